@@ -1,0 +1,15 @@
+// Command modegrid is the command-line client of the modegrid service. With
+// --server it calls a running modegridd; without, it starts an embedded
+// server on a loopback port and calls that over real gRPC.
+//
+// Exit codes: 0 success, 2 usage error, 3 invalid model or request,
+// 4 server unreachable, 1 anything else.
+package main
+
+import (
+	"os"
+)
+
+func main() {
+	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
+}

@@ -1,0 +1,446 @@
+package physics
+
+import (
+	"fmt"
+	"math"
+	"sort"
+)
+
+// Options controls how a Crystal is compiled into a Model.
+type Options struct {
+	// EnforceSumRule rebuilds the on-site blocks of explicit force constants
+	// from the acoustic sum rule, replacing any given by the caller.
+	EnforceSumRule bool
+	// Limits bounds the model size; the zero value means the defaults.
+	Limits Limits
+}
+
+// ShellInfo reports what the neighbour search found for one Shell.
+type ShellInfo struct {
+	Bonds     int     // bonds produced
+	DistanceA float64 // shell distance, Å
+}
+
+// ShellTolA is the distance tolerance (Å) within which two neighbour
+// distances belong to the same shell.
+const ShellTolA = 1e-4
+
+// term is one directed force-constant block between site i in cell 0 and
+// site j in cell n, already divided by sqrt(m_i m_j): eV/Å²/amu, row-major
+// 3×3 (only the top-left p×p part is used).
+type term struct {
+	i, j int
+	n    [3]int
+	phi  [9]float64
+}
+
+// Model is a compiled, validated force-constant model, ready for the
+// dynamical matrix at any q. A Model is immutable and safe for concurrent
+// use.
+type Model struct {
+	dim, p, nsites int
+	lattice        [3][3]float64 // rows are lattice vectors a_k, Å (unused rows 0)
+	recip          [3][3]float64 // rows are reciprocal vectors b_k, Å⁻¹ (2π included)
+	pos            [][3]float64  // Cartesian site positions, Å
+	frac           [][]float64
+	massAmu        []float64
+	labels         []string
+	terms          []term // directed, consolidated per (i, j, n)
+
+	shells           []ShellInfo
+	interactions     int
+	sumRuleViolation float64 // eV/Å², before enforcement
+}
+
+// Compile validates c and builds its force constants. A model that fails
+// validation returns a *ValidationError listing every violation.
+func Compile(c *Crystal, opt Options) (*Model, error) {
+	lim := opt.Limits.withDefaults()
+	var vs violations
+	validate(c, lim, &vs)
+	if len(vs.list) > 0 {
+		return nil, vs.err()
+	}
+	m := &Model{dim: len(c.Lattice), p: c.P(), nsites: len(c.Sites)}
+	for k, v := range c.Lattice {
+		m.lattice[k] = v
+	}
+	m.recip = reciprocal(m.lattice, m.dim)
+	for _, s := range c.Sites {
+		m.pos = append(m.pos, m.cart(s.Frac, nil))
+		m.frac = append(m.frac, append([]float64(nil), s.Frac...))
+		m.massAmu = append(m.massAmu, s.MassAmu)
+		m.labels = append(m.labels, s.Label)
+	}
+	scale := 1.0 // to eV/Å²
+	if c.ForceUnit == NPerM {
+		scale = 1 / EVPerA2InNPerM
+	}
+
+	// Raw (mass-unweighted) force constants in eV/Å², keyed by directed pair.
+	type key struct {
+		i, j int
+		n    [3]int
+	}
+	fc := map[key]*[9]float64{}
+	addBlock := func(i, j int, n [3]int, phi [9]float64) {
+		k := key{i, j, n}
+		b := fc[k]
+		if b == nil {
+			b = new([9]float64)
+			fc[k] = b
+		}
+		for a := range phi {
+			b[a] += phi[a]
+		}
+	}
+	// springSelf accumulates spring on-site terms (always from the sum rule).
+	self := make([][9]float64, m.nsites)
+	addSpring := func(i, j int, n [3]int, kl, kt float64) {
+		r := sub3(add3(m.pos[j], m.latticeVec(n)), m.pos[i])
+		l := norm3(r)
+		e := [3]float64{r[0] / l, r[1] / l, r[2] / l}
+		var phi [9]float64
+		for a := 0; a < 3; a++ {
+			for b := 0; b < 3; b++ {
+				ee := e[a] * e[b]
+				id := 0.0
+				if a == b {
+					id = 1
+				}
+				phi[3*a+b] = -(kl*ee + kt*(id-ee))
+			}
+		}
+		addBlock(i, j, n, phi)
+		addBlock(j, i, neg3(n), transpose9(phi))
+		for a := range phi {
+			self[i][a] -= phi[a]
+			self[j][a] -= phi[a] // transpose of a symmetric block
+		}
+	}
+	for _, s := range c.Springs {
+		addSpring(s.From, s.To, cellOf(s.Cell), s.KLong*scale, s.KTrans*scale)
+	}
+	m.interactions = len(c.Springs) + len(c.Blocks)
+	m.shells = make([]ShellInfo, len(c.Shells))
+	for idx, sh := range c.Shells {
+		bonds, dist, err := m.findShell(sh, lim)
+		if err != nil {
+			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
+			continue
+		}
+		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
+		m.interactions += len(bonds)
+		for _, b := range bonds {
+			addSpring(b.i, b.j, b.n, sh.KLong*scale, sh.KTrans*scale)
+		}
+	}
+	if m.interactions > lim.MaxInteractions {
+		vs.add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
+	}
+	if len(vs.list) > 0 {
+		return nil, vs.err()
+	}
+
+	// Explicit blocks: off-site blocks and their implied transposes, and the
+	// caller's on-site blocks.
+	blockSelf := make([][9]float64, m.nsites)
+	hasSelf := make([]bool, m.nsites)
+	offSum := make([][9]float64, m.nsites) // Σ of off-site blocks per site
+	for _, b := range c.Blocks {
+		var phi [9]float64
+		for a := range phi {
+			phi[a] = b.Phi[a] * scale
+		}
+		n := cellOf(b.Cell)
+		if b.From == b.To && n == ([3]int{}) {
+			hasSelf[b.From] = true
+			sym := symmetrize9(phi)
+			for a := range sym {
+				blockSelf[b.From][a] += sym[a]
+			}
+			continue
+		}
+		addBlock(b.From, b.To, n, phi)
+		addBlock(b.To, b.From, neg3(n), transpose9(phi))
+		pt := transpose9(phi)
+		for a := range phi {
+			offSum[b.From][a] += phi[a]
+			offSum[b.To][a] += pt[a]
+		}
+	}
+	for i := 0; i < m.nsites; i++ {
+		asr := symmetrize9(offSum[i])
+		for a := range asr {
+			asr[a] = -asr[a]
+		}
+		if hasSelf[i] {
+			// Violation: largest row sum of all blocks of site i.
+			for a := 0; a < 3; a++ {
+				var row float64
+				for b := 0; b < 3; b++ {
+					row += blockSelf[i][3*a+b] + offSum[i][3*a+b]
+				}
+				m.sumRuleViolation = math.Max(m.sumRuleViolation, math.Abs(row))
+			}
+			if !opt.EnforceSumRule {
+				asr = blockSelf[i]
+			}
+		}
+		for a := range asr {
+			self[i][a] += asr[a]
+		}
+	}
+	for i := 0; i < m.nsites; i++ {
+		addBlock(i, i, [3]int{}, self[i])
+	}
+
+	keys := make([]key, 0, len(fc))
+	for k := range fc {
+		keys = append(keys, k)
+	}
+	sort.Slice(keys, func(a, b int) bool {
+		ka, kb := keys[a], keys[b]
+		if ka.i != kb.i {
+			return ka.i < kb.i
+		}
+		if ka.j != kb.j {
+			return ka.j < kb.j
+		}
+		return lessCell(ka.n, kb.n)
+	})
+	for _, k := range keys {
+		w := 1 / math.Sqrt(m.massAmu[k.i]*m.massAmu[k.j])
+		t := term{i: k.i, j: k.j, n: k.n}
+		for a, v := range fc[k] {
+			t.phi[a] = v * w
+		}
+		m.terms = append(m.terms, t)
+	}
+	return m, nil
+}
+
+// shellBond is a bond found by the neighbour search: site i in cell 0 to
+// site j in cell n.
+type shellBond struct {
+	i, j int
+	n    [3]int
+}
+
+// findShell finds every bond between sites labelled sh.FromLabel and
+// sh.ToLabel at the sh.Shell-th smallest distance, within ShellTolA. Each
+// bond is returned once (for equal labels, (i, j, n) and (j, i, −n) are the
+// same bond). The search radius grows until the shell is complete or the
+// cell-offset limit is reached.
+func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
+	var from, to []int
+	for i, l := range m.labels {
+		if l == sh.FromLabel {
+			from = append(from, i)
+		}
+		if l == sh.ToLabel {
+			to = append(to, i)
+		}
+	}
+	maxLen := 0.0
+	for k := 0; k < m.dim; k++ {
+		maxLen = math.Max(maxLen, norm3(m.lattice[k]))
+	}
+	radius := 1.5 * maxLen * float64(sh.Shell)
+	for {
+		// Cells needed along k so that every point within radius is found:
+		// the spacing of lattice planes is 2π/|b_k|.
+		var reach [3]int
+		capped := false
+		for k := 0; k < m.dim; k++ {
+			r := int(math.Ceil(radius*norm3(m.recip[k])/(2*math.Pi))) + 1
+			if r > lim.MaxCellOffset {
+				r = lim.MaxCellOffset
+				capped = true
+			}
+			reach[k] = r
+		}
+		type cand struct {
+			b shellBond
+			d float64
+		}
+		var cands []cand
+		var n [3]int
+		for n[0] = -reach[0]; n[0] <= reach[0]; n[0]++ {
+			for n[1] = -reach[1]; n[1] <= reach[1]; n[1]++ {
+				for n[2] = -reach[2]; n[2] <= reach[2]; n[2]++ {
+					rn := m.latticeVec(n)
+					for _, i := range from {
+						for _, j := range to {
+							if i == j && n == ([3]int{}) {
+								continue
+							}
+							d := norm3(sub3(add3(m.pos[j], rn), m.pos[i]))
+							if d <= radius {
+								cands = append(cands, cand{shellBond{i, j, n}, d})
+							}
+						}
+					}
+				}
+			}
+		}
+		sort.Slice(cands, func(a, b int) bool { return cands[a].d < cands[b].d })
+		// Distinct distances in order.
+		var shellD []float64
+		for _, c := range cands {
+			if len(shellD) == 0 || c.d-shellD[len(shellD)-1] > ShellTolA {
+				shellD = append(shellD, c.d)
+			}
+		}
+		// The shell is only known complete if a farther distance exists
+		// inside the radius (so nothing between was missed).
+		if len(shellD) > sh.Shell || (capped && len(shellD) >= sh.Shell) {
+			target := shellD[sh.Shell-1]
+			var bonds []shellBond
+			same := sh.FromLabel == sh.ToLabel
+			for _, c := range cands {
+				if math.Abs(c.d-target) > ShellTolA {
+					continue
+				}
+				b := c.b
+				if same {
+					// Keep one of (i, j, n) and (j, i, −n).
+					if b.i > b.j || (b.i == b.j && lessCell(b.n, neg3(b.n))) {
+						continue
+					}
+				}
+				bonds = append(bonds, b)
+			}
+			return bonds, target, nil
+		}
+		if capped {
+			return nil, 0, fmt.Errorf("found no neighbours in shell %d between %q and %q within the cell-offset limit of ±%d", sh.Shell, sh.FromLabel, sh.ToLabel, lim.MaxCellOffset)
+		}
+		radius *= 2
+	}
+}
+
+// cart converts fractional coordinates (d numbers) to Cartesian Å.
+func (m *Model) cart(frac []float64, _ []float64) [3]float64 {
+	var r [3]float64
+	for k, f := range frac {
+		for a := 0; a < 3; a++ {
+			r[a] += f * m.lattice[k][a]
+		}
+	}
+	return r
+}
+
+func (m *Model) latticeVec(n [3]int) [3]float64 {
+	var r [3]float64
+	for k := 0; k < m.dim; k++ {
+		for a := 0; a < 3; a++ {
+			r[a] += float64(n[k]) * m.lattice[k][a]
+		}
+	}
+	return r
+}
+
+// reciprocal returns reciprocal vectors b_k (rows) with b_k·a_l = 2π δ_kl,
+// spanning the same subspace as the d lattice vectors.
+func reciprocal(a [3][3]float64, d int) [3][3]float64 {
+	// b = 2π (A Aᵀ)⁻¹ A restricted to the d vectors: works for any d.
+	var g [3][3]float64
+	for i := 0; i < d; i++ {
+		for j := 0; j < d; j++ {
+			g[i][j] = dot3(a[i], a[j])
+		}
+	}
+	gi := invertSmall(g, d)
+	var b [3][3]float64
+	for k := 0; k < d; k++ {
+		for l := 0; l < d; l++ {
+			for x := 0; x < 3; x++ {
+				b[k][x] += 2 * math.Pi * gi[k][l] * a[l][x]
+			}
+		}
+	}
+	return b
+}
+
+// invertSmall inverts the top-left d×d block of g (d ≤ 3, non-singular).
+func invertSmall(g [3][3]float64, d int) [3][3]float64 {
+	var r [3][3]float64
+	switch d {
+	case 1:
+		r[0][0] = 1 / g[0][0]
+	case 2:
+		det := g[0][0]*g[1][1] - g[0][1]*g[1][0]
+		r[0][0], r[0][1] = g[1][1]/det, -g[0][1]/det
+		r[1][0], r[1][1] = -g[1][0]/det, g[0][0]/det
+	case 3:
+		det := g[0][0]*(g[1][1]*g[2][2]-g[1][2]*g[2][1]) -
+			g[0][1]*(g[1][0]*g[2][2]-g[1][2]*g[2][0]) +
+			g[0][2]*(g[1][0]*g[2][1]-g[1][1]*g[2][0])
+		for i := 0; i < 3; i++ {
+			for j := 0; j < 3; j++ {
+				i1, i2 := (j+1)%3, (j+2)%3
+				j1, j2 := (i+1)%3, (i+2)%3
+				r[i][j] = (g[i1][j1]*g[i2][j2] - g[i1][j2]*g[i2][j1]) / det
+			}
+		}
+	}
+	return r
+}
+
+func cellOf(c []int) [3]int {
+	var n [3]int
+	copy(n[:], c)
+	return n
+}
+
+func add3(a, b [3]float64) [3]float64 { return [3]float64{a[0] + b[0], a[1] + b[1], a[2] + b[2]} }
+func sub3(a, b [3]float64) [3]float64 { return [3]float64{a[0] - b[0], a[1] - b[1], a[2] - b[2]} }
+func neg3(n [3]int) [3]int             { return [3]int{-n[0], -n[1], -n[2]} }
+
+func transpose9(p [9]float64) [9]float64 {
+	return [9]float64{p[0], p[3], p[6], p[1], p[4], p[7], p[2], p[5], p[8]}
+}
+
+func symmetrize9(p [9]float64) [9]float64 {
+	t := transpose9(p)
+	var s [9]float64
+	for a := range p {
+		s[a] = (p[a] + t[a]) / 2
+	}
+	return s
+}
+
+// Dim is the dimensionality d of the crystal.
+func (m *Model) Dim() int { return m.dim }
+
+// P is the number of polarizations.
+func (m *Model) P() int { return m.p }
+
+// Sites is the number of sites per cell.
+func (m *Model) Sites() int { return m.nsites }
+
+// Modes is the number of modes per q-point (sites × p).
+func (m *Model) Modes() int { return m.nsites * m.p }
+
+// Labels returns the site labels in site order.
+func (m *Model) Labels() []string { return append([]string(nil), m.labels...) }
+
+// MassAmu returns the mass of site i in amu.
+func (m *Model) MassAmu(i int) float64 { return m.massAmu[i] }
+
+// Shells reports the neighbour search result per shell of the crystal.
+func (m *Model) Shells() []ShellInfo { return append([]ShellInfo(nil), m.shells...) }
+
+// Interactions is the number of pair interactions after expanding shells.
+func (m *Model) Interactions() int { return m.interactions }
+
+// SumRuleViolation is the largest row sum of the explicit blocks (eV/Å²)
+// before any enforcement; 0 when no on-site block was given.
+func (m *Model) SumRuleViolation() float64 { return m.sumRuleViolation }
+
+// Reciprocal returns the reciprocal lattice vectors b_k (Å⁻¹, 2π included).
+func (m *Model) Reciprocal() [3][3]float64 { return m.recip }
+
+// Lattice returns the lattice vectors (rows, Å; rows past d are zero).
+func (m *Model) Lattice() [3][3]float64 { return m.lattice }

@@ -1,0 +1,87 @@
+package physics
+
+import "math"
+
+// Physical constants, CODATA 2018 (NIST, "Fundamental Physical Constants",
+// 2018 adjustment). Exact values are marked.
+const (
+	BoltzmannJPerK      = 1.380649e-23   // k_B, J/K (exact)
+	PlanckJS            = 6.62607015e-34 // h, J·s (exact)
+	ReducedPlanckJS     = PlanckJS / (2 * math.Pi)
+	ElementaryChargeC   = 1.602176634e-19           // e, C (exact)
+	AtomicMassKg        = 1.66053906660e-27         // m_u, kg
+	AvogadroPerMol      = 6.02214076e23             // N_A, 1/mol (exact)
+	SpeedOfLightMPerS   = 299792458.0               // c, m/s (exact)
+	EVPerA2InNPerM      = ElementaryChargeC / 1e-20 // 1 eV/Å² in N/m = 16.02176634 (exact)
+	BoltzmannEVPerK     = BoltzmannJPerK / ElementaryChargeC
+	GasConstantJPerMolK = BoltzmannJPerK * AvogadroPerMol // R
+	angstromM           = 1e-10
+)
+
+// OmegaUnitRadPerS is ω in rad/s of an eigenvalue of 1 eV/Å²/amu:
+// sqrt(e / (1e-20 m² · m_u)) ≈ 9.82269475e13 rad/s.
+var OmegaUnitRadPerS = math.Sqrt(ElementaryChargeC / (angstromM * angstromM * AtomicMassKg))
+
+// NuUnitTHz is ν in THz of an eigenvalue of 1 eV/Å²/amu, ≈ 15.6333042 THz.
+var NuUnitTHz = OmegaUnitRadPerS / (2 * math.Pi) / 1e12
+
+// Unit is a frequency unit for output.
+type Unit int
+
+// Frequency units. THz is the zero value.
+const (
+	THz     Unit = iota // terahertz, ν
+	MeV                 // millielectronvolt, hν
+	CM1                 // wavenumber ν/c in cm⁻¹
+	RadPerS             // angular frequency ω in rad/s
+)
+
+// String returns the unit's short name as used in CSV headers.
+func (u Unit) String() string {
+	switch u {
+	case MeV:
+		return "mev"
+	case CM1:
+		return "cm-1"
+	case RadPerS:
+		return "rad_per_s"
+	default:
+		return "thz"
+	}
+}
+
+// PerTHz is how many of unit u make 1 THz:
+// 1 THz = 4.135667697 meV = 33.35640952 cm⁻¹ = 2π·1e12 rad/s.
+func (u Unit) PerTHz() float64 {
+	switch u {
+	case MeV:
+		return PlanckJS * 1e12 / ElementaryChargeC * 1e3
+	case CM1:
+		return 1e12 / (SpeedOfLightMPerS * 100)
+	case RadPerS:
+		return 2 * math.Pi * 1e12
+	default:
+		return 1
+	}
+}
+
+// FromTHz converts a frequency in THz to unit u.
+func (u Unit) FromTHz(nuTHz float64) float64 { return nuTHz * u.PerTHz() }
+
+// ToTHz converts a frequency in unit u to THz.
+func (u Unit) ToTHz(v float64) float64 { return v / u.PerTHz() }
+
+// THzToEV is the energy hν in eV of 1 THz.
+const THzToEV = PlanckJS * 1e12 / ElementaryChargeC
+
+// THzToKelvin is hν/k_B in K of 1 THz (≈ 47.99243073 K).
+const THzToKelvin = PlanckJS * 1e12 / BoltzmannJPerK
+
+// eigToTHz converts an eigenvalue λ = ω² in eV/Å²/amu to a signed frequency
+// in THz: negative for λ < 0 (imaginary modes).
+func eigToTHz(lambda float64) float64 {
+	if lambda < 0 {
+		return -math.Sqrt(-lambda) * NuUnitTHz
+	}
+	return math.Sqrt(lambda) * NuUnitTHz
+}

@@ -1,0 +1,349 @@
+package physics
+
+import (
+	"fmt"
+	"math"
+	"strings"
+)
+
+// Limits bounds the size of a model. The zero value means the defaults.
+type Limits struct {
+	MaxSites        int // default 512
+	MaxInteractions int // springs + shell bonds + blocks; default 200 000
+	MaxCellOffset   int // largest |component| of a cell offset; default 64
+}
+
+// Default model limits.
+const (
+	DefaultMaxSites        = 512
+	DefaultMaxInteractions = 200000
+	DefaultMaxCellOffset   = 64
+)
+
+func (l Limits) withDefaults() Limits {
+	if l.MaxSites <= 0 {
+		l.MaxSites = DefaultMaxSites
+	}
+	if l.MaxInteractions <= 0 {
+		l.MaxInteractions = DefaultMaxInteractions
+	}
+	if l.MaxCellOffset <= 0 {
+		l.MaxCellOffset = DefaultMaxCellOffset
+	}
+	return l
+}
+
+// Geometric tolerances used by validation and neighbour search.
+const (
+	// LatticeTolA is the smallest accepted lattice-vector length (Å), and
+	// the smallest accepted area (Å²) or volume (Å³) of the cell.
+	LatticeTolA = 1e-6
+	// CoincidenceTolA is the distance (Å) below which two sites are on the
+	// same point.
+	CoincidenceTolA = 1e-6
+)
+
+// Violation is one validation failure: the field path (proto field names,
+// e.g. "sites[2].mass_amu") and what is wrong with it, naming the bad value.
+type Violation struct {
+	Field       string
+	Description string
+}
+
+func (v Violation) String() string { return v.Field + ": " + v.Description }
+
+// ValidationError lists every violation found in a model or request.
+type ValidationError struct {
+	Violations []Violation
+}
+
+func (e *ValidationError) Error() string {
+	parts := make([]string, len(e.Violations))
+	for i, v := range e.Violations {
+		parts[i] = v.String()
+	}
+	return "invalid model: " + strings.Join(parts, "; ")
+}
+
+// violations accumulates Violations; the zero value is ready to use.
+type violations struct{ list []Violation }
+
+func (vs *violations) add(field, format string, args ...any) {
+	vs.list = append(vs.list, Violation{Field: field, Description: fmt.Sprintf(format, args...)})
+}
+
+func (vs *violations) err() error {
+	if len(vs.list) == 0 {
+		return nil
+	}
+	return &ValidationError{Violations: vs.list}
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// Validate checks everything about c that can be checked without the
+// neighbour search and returns a *ValidationError listing every violation,
+// or nil. Compile runs it and then checks the shells.
+func Validate(c *Crystal, lim Limits) error {
+	var vs violations
+	validate(c, lim.withDefaults(), &vs)
+	return vs.err()
+}
+
+func validate(c *Crystal, lim Limits, vs *violations) {
+	d := len(c.Lattice)
+	switch {
+	case d == 0:
+		vs.add("lattice", "must have 1 to 3 vectors, got none")
+	case d > 3:
+		vs.add("lattice", "must have 1 to 3 vectors, got %d", d)
+	}
+	latticeOK := d >= 1 && d <= 3
+	for i, v := range c.Lattice {
+		for k, x := range v {
+			if !finite(x) {
+				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
+				latticeOK = false
+			}
+		}
+	}
+	if latticeOK {
+		for i, v := range c.Lattice {
+			if l := norm3(v); l < LatticeTolA {
+				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
+				latticeOK = false
+			}
+		}
+	}
+	if latticeOK {
+		if m := gramMeasure(c.Lattice); m < LatticeTolA {
+			what := [...]string{"", "length", "area", "volume"}[d]
+			vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
+			latticeOK = false
+		}
+	}
+	if c.Polarizations < 0 || c.Polarizations > 3 {
+		vs.add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
+	}
+	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
+		vs.add("force_unit", "unknown unit %d", c.ForceUnit)
+	}
+
+	n := len(c.Sites)
+	if n == 0 {
+		vs.add("sites", "must have at least one site, got none")
+	}
+	if n > lim.MaxSites {
+		vs.add("sites", "has %d sites, more than the limit of %d", n, lim.MaxSites)
+	}
+	posOK := make([]bool, n)
+	for i, s := range c.Sites {
+		f := fmt.Sprintf("sites[%d]", i)
+		if !finite(s.MassAmu) {
+			vs.add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
+		} else if s.MassAmu <= 0 {
+			vs.add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
+		}
+		if d >= 1 && d <= 3 && len(s.Frac) != d {
+			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", d, len(s.Frac))
+			continue
+		}
+		ok := true
+		for k, x := range s.Frac {
+			if !finite(x) {
+				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
+				ok = false
+			}
+		}
+		posOK[i] = ok && latticeOK
+	}
+	if latticeOK {
+		for i := 0; i < n; i++ {
+			for j := i + 1; j < n; j++ {
+				if !posOK[i] || !posOK[j] {
+					continue
+				}
+				if dist := siteSeparation(c, i, j); dist < CoincidenceTolA {
+					vs.add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
+				}
+			}
+		}
+	}
+
+	total := len(c.Springs) + len(c.Blocks)
+	type bondKey struct {
+		i, j int
+		n    [3]int
+	}
+	seen := map[bondKey]int{}
+	checkPair := func(f string, from, to int, cell []int, allowSelf bool) (bondKey, bool) {
+		ok := true
+		if from < 0 || from >= n {
+			vs.add(f+".from", "site index %d out of range [0, %d)", from, n)
+			ok = false
+		}
+		if to < 0 || to >= n {
+			vs.add(f+".to", "site index %d out of range [0, %d)", to, n)
+			ok = false
+		}
+		var key bondKey
+		if d >= 1 && d <= 3 && len(cell) != d {
+			vs.add(f+".cell", "must have %d integers (one per lattice vector), got %d", d, len(cell))
+			return key, false
+		}
+		zero := true
+		for k, x := range cell {
+			if x > lim.MaxCellOffset || x < -lim.MaxCellOffset {
+				vs.add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, lim.MaxCellOffset)
+				ok = false
+			}
+			if x != 0 {
+				zero = false
+			}
+			if k < 3 {
+				key.n[k] = x
+			}
+		}
+		if ok && from == to && zero && !allowSelf {
+			vs.add(f, "site %d is bonded to itself in the same cell", from)
+			ok = false
+		}
+		key.i, key.j = from, to
+		return key, ok
+	}
+	canonical := func(k bondKey) bondKey {
+		// A bond and its reverse (j, i, −n) are the same bond.
+		r := bondKey{i: k.j, j: k.i, n: [3]int{-k.n[0], -k.n[1], -k.n[2]}}
+		if r.i < k.i || (r.i == k.i && lessCell(r.n, k.n)) {
+			return r
+		}
+		return k
+	}
+	for idx, s := range c.Springs {
+		f := fmt.Sprintf("springs[%d]", idx)
+		for _, kv := range []struct {
+			name string
+			v    float64
+		}{{"k_long", s.KLong}, {"k_trans", s.KTrans}} {
+			if !finite(kv.v) {
+				vs.add(f+"."+kv.name, "must be finite, got %v", kv.v)
+			}
+		}
+		key, ok := checkPair(f, s.From, s.To, s.Cell, false)
+		if !ok {
+			continue
+		}
+		ck := canonical(key)
+		if prev, dup := seen[ck]; dup {
+			vs.add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
+			continue
+		}
+		seen[ck] = idx
+	}
+	seenBlocks := map[bondKey]int{}
+	for idx, b := range c.Blocks {
+		f := fmt.Sprintf("blocks[%d]", idx)
+		if len(b.Phi) != 9 {
+			vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
+		}
+		for k, x := range b.Phi {
+			if !finite(x) {
+				vs.add(fmt.Sprintf("%s.phi[%d]", f, k), "must be finite, got %v", x)
+			}
+		}
+		key, ok := checkPair(f, b.From, b.To, b.Cell, true)
+		if !ok {
+			continue
+		}
+		ck := canonical(key)
+		if prev, dup := seenBlocks[ck]; dup {
+			vs.add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
+			continue
+		}
+		seenBlocks[ck] = idx
+	}
+	labels := map[string]bool{}
+	for _, s := range c.Sites {
+		labels[s.Label] = true
+	}
+	for idx, s := range c.Shells {
+		f := fmt.Sprintf("shells[%d]", idx)
+		if !labels[s.FromLabel] {
+			vs.add(f+".from_label", "no site has label %q", s.FromLabel)
+		}
+		if !labels[s.ToLabel] {
+			vs.add(f+".to_label", "no site has label %q", s.ToLabel)
+		}
+		if s.Shell < 1 {
+			vs.add(f+".shell", "must be ≥ 1 (1 = nearest neighbours), got %d", s.Shell)
+		} else if s.Shell > maxShell {
+			vs.add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
+		}
+		if !finite(s.KLong) {
+			vs.add(f+".k_long", "must be finite, got %v", s.KLong)
+		}
+		if !finite(s.KTrans) {
+			vs.add(f+".k_trans", "must be finite, got %v", s.KTrans)
+		}
+	}
+	if total > lim.MaxInteractions {
+		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
+	}
+}
+
+// maxShell is the highest neighbour shell a model may ask for.
+const maxShell = 20
+
+func lessCell(a, b [3]int) bool {
+	for k := range a {
+		if a[k] != b[k] {
+			return a[k] < b[k]
+		}
+	}
+	return false
+}
+
+func norm3(v [3]float64) float64 { return math.Sqrt(v[0]*v[0] + v[1]*v[1] + v[2]*v[2]) }
+
+// gramMeasure is the d-dimensional measure of the cell spanned by the
+// vectors: length, area or volume, sqrt(det G) with G the Gram matrix.
+func gramMeasure(vecs [][3]float64) float64 {
+	d := len(vecs)
+	var g [3][3]float64
+	for i := 0; i < d; i++ {
+		for j := 0; j < d; j++ {
+			g[i][j] = dot3(vecs[i], vecs[j])
+		}
+	}
+	var det float64
+	switch d {
+	case 1:
+		det = g[0][0]
+	case 2:
+		det = g[0][0]*g[1][1] - g[0][1]*g[1][0]
+	case 3:
+		det = g[0][0]*(g[1][1]*g[2][2]-g[1][2]*g[2][1]) -
+			g[0][1]*(g[1][0]*g[2][2]-g[1][2]*g[2][0]) +
+			g[0][2]*(g[1][0]*g[2][1]-g[1][1]*g[2][0])
+	}
+	if det <= 0 {
+		return 0
+	}
+	return math.Sqrt(det)
+}
+
+func dot3(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
+
+// siteSeparation is the Cartesian distance between sites i and j after
+// wrapping their fractional difference into [−½, ½).
+func siteSeparation(c *Crystal, i, j int) float64 {
+	var r [3]float64
+	for k := range c.Lattice {
+		df := c.Sites[j].Frac[k] - c.Sites[i].Frac[k]
+		df -= math.Floor(df + 0.5)
+		for a := 0; a < 3; a++ {
+			r[a] += df * c.Lattice[k][a]
+		}
+	}
+	return norm3(r)
+}
