@@ -396,7 +396,7 @@ func cellOf(c []int) [3]int {
 
 func add3(a, b [3]float64) [3]float64 { return [3]float64{a[0] + b[0], a[1] + b[1], a[2] + b[2]} }
 func sub3(a, b [3]float64) [3]float64 { return [3]float64{a[0] - b[0], a[1] - b[1], a[2] - b[2]} }
-func neg3(n [3]int) [3]int             { return [3]int{-n[0], -n[1], -n[2]} }
+func neg3(n [3]int) [3]int            { return [3]int{-n[0], -n[1], -n[2]} }
 
 func transpose9(p [9]float64) [9]float64 {
 	return [9]float64{p[0], p[3], p[6], p[1], p[4], p[7], p[2], p[5], p[8]}
