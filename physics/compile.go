@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"sync"
 )
 
 // Options controls how a Crystal is compiled into a Model.
@@ -50,6 +51,9 @@ type Model struct {
 	shells           []ShellInfo
 	interactions     int
 	sumRuleViolation float64 // eV/Å², before enforcement
+
+	symOnce sync.Once // guards symOps (symmetry.go, owned by the lead)
+	symOps  []SymOp   // lazily computed by Symmetry
 }
 
 // Compile validates c and builds its force constants. A model that fails

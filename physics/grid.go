@@ -22,8 +22,24 @@ type QPoint struct {
 // must be 1 (0 is read as 1).
 type GridSpec struct {
 	Mesh    [3]int
-	Shifted bool // half-step shift (Monkhorst–Pack only)
+	Shifted bool // half-step shift (Monkhorst–Pack only), along the d lattice directions
 	Finite  bool // finite crystal of Mesh cells: q = n/N, n in (−N/2, N/2]
+
+	dim int // dimensionality, set by normalize (0: treat as 3)
+}
+
+// Offset is the grid shift s along k: q_k = (n_k + s)/N_k. It is ½ for a
+// shifted grid along the crystal's d directions and 0 elsewhere, so
+// unused components stay 0.
+func (g GridSpec) Offset(k int) float64 {
+	d := g.dim
+	if d == 0 {
+		d = 3
+	}
+	if g.Shifted && k < d {
+		return 0.5
+	}
+	return 0
 }
 
 // MaxGridPoints bounds any grid the engine will build.
@@ -34,6 +50,7 @@ const MaxGridPoints = 1 << 27
 // prefix.
 func (g GridSpec) normalize(dim int, prefix string) (GridSpec, error) {
 	var vs violations
+	g.dim = dim
 	for k := 0; k < 3; k++ {
 		if g.Mesh[k] == 0 && k >= dim {
 			g.Mesh[k] = 1
@@ -74,18 +91,15 @@ func (g GridSpec) Count() int {
 func (g GridSpec) Points() []QPoint {
 	n := g.Count()
 	pts := make([]QPoint, 0, n)
-	s := 0.0
-	if g.Shifted {
-		s = 0.5
-	}
+	s0, s1, s2 := g.Offset(0), g.Offset(1), g.Offset(2)
 	w := 1 / float64(n)
 	for a := 0; a < g.Mesh[0]; a++ {
 		for b := 0; b < g.Mesh[1]; b++ {
 			for c := 0; c < g.Mesh[2]; c++ {
 				pts = append(pts, QPoint{Q: [3]float64{
-					wrapHalf((float64(a) + s) / float64(g.Mesh[0])),
-					wrapHalf((float64(b) + s) / float64(g.Mesh[1])),
-					wrapHalf((float64(c) + s) / float64(g.Mesh[2])),
+					wrapHalf((float64(a) + s0) / float64(g.Mesh[0])),
+					wrapHalf((float64(b) + s1) / float64(g.Mesh[1])),
+					wrapHalf((float64(c) + s2) / float64(g.Mesh[2])),
 				}, Weight: w})
 			}
 		}

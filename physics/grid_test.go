@@ -68,3 +68,22 @@ func TestFiniteCrystalPoints(t *testing.T) {
 		}
 	}
 }
+
+// TestShiftedGridKeepsUnusedComponentsZero: a shifted grid shifts only
+// along the crystal's d directions (Monkhorst & Pack, PRB 13, 5188: the
+// grid lives in the d-dimensional zone).
+func TestShiftedGridKeepsUnusedComponentsZero(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "chain"))
+	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{4}, Shifted: true}, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range g.Points {
+		if p.Q[1] != 0 || p.Q[2] != 0 {
+			t.Errorf("q = %v: unused components must be 0", p.Q)
+		}
+		if math.Abs(math.Abs(p.Q[0]*8)-math.Round(math.Abs(p.Q[0]*8))) > 1e-12 || int(math.Round(math.Abs(p.Q[0]*8)))%2 != 1 {
+			t.Errorf("q1 = %v: want an odd multiple of 1/8", p.Q[0])
+		}
+	}
+}

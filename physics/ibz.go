@@ -1,0 +1,325 @@
+package physics
+
+import (
+	"container/list"
+	"context"
+	"fmt"
+	"math"
+	"math/cmplx"
+	"strings"
+	"sync"
+)
+
+// IrreducibleGrid is a regular grid reduced by the model's symmetry and
+// time reversal: the irreducible points, their integer multiplicities, and
+// the table that unfolds them back onto every grid point.
+type IrreducibleGrid struct {
+	Spec GridSpec
+	// Ops are the model's operations that map this grid onto itself (the
+	// identity first); OpIndex values refer to this slice.
+	Ops []SymOp
+	// Irr are the grid indices (grid order) of the irreducible points,
+	// ascending; Mult their multiplicities (Σ Mult = number of points).
+	Irr  []int
+	Mult []int
+	// Slot[g] is the position in Irr of the representative of grid point g,
+	// and OpIndex[g] the operation taking the representative q to g:
+	// k ≥ 0 means q_g ≡ Ops[k]·q, k < 0 means q_g ≡ −Ops[−k−1]·q (time
+	// reversal composed with the operation).
+	Slot    []int32
+	OpIndex []int16
+}
+
+// ReduceGrid returns the irreducible points of spec under the model's
+// symmetry operations and time reversal. Results are kept in a bounded
+// cache shared by every model with the same q-space operations, so repeated
+// requests on one lattice and grid reduce once.
+func (m *Model) ReduceGrid(spec GridSpec) (*IrreducibleGrid, error) {
+	spec, err := spec.normalize(m.dim, "mesh")
+	if err != nil {
+		return nil, err
+	}
+	var ops []SymOp
+	for _, op := range m.Symmetry() {
+		if gridCompatible(op, spec) {
+			ops = append(ops, op)
+		}
+	}
+	key := reduceKey(ops, spec)
+	if ir, ok := irrCache.get(key); ok {
+		// Share the tables; the ops (with this model's site maps) are ours.
+		cp := *ir
+		cp.Ops = ops
+		return &cp, nil
+	}
+	ir := reduce(ops, spec)
+	irrCache.put(key, ir)
+	return ir, nil
+}
+
+func reduceKey(ops []SymOp, spec GridSpec) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%v/%v/%v;", spec.Mesh, spec.Shifted, spec.Finite)
+	for _, op := range ops {
+		fmt.Fprint(&b, op.QRot)
+	}
+	return b.String()
+}
+
+// gridCompatible reports that the operation maps every point of the grid
+// onto a point of the grid: by linearity it is enough that the first point
+// lands on the grid and each unit step becomes a whole number of steps.
+func gridCompatible(op SymOp, spec GridSpec) bool {
+	var origin [3]float64
+	for k := 0; k < 3; k++ {
+		origin[k] = spec.Offset(k) / float64(spec.Mesh[k])
+	}
+	img := op.applyQ(origin)
+	for k := 0; k < 3; k++ {
+		if !nearInt(img[k]*float64(spec.Mesh[k]) - spec.Offset(k)) {
+			return false
+		}
+	}
+	for l := 0; l < 3; l++ {
+		var step [3]float64
+		step[l] = 1 / float64(spec.Mesh[l])
+		img := op.applyQ(step)
+		for k := 0; k < 3; k++ {
+			if !nearInt(img[k] * float64(spec.Mesh[k])) {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+func nearInt(x float64) bool { return math.Abs(x-math.Round(x)) < 1e-6 }
+
+// reduce builds the orbits of the grid under ±ops.
+func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
+	n := spec.Count()
+	N := spec.Mesh
+	off := [3]float64{spec.Offset(0), spec.Offset(1), spec.Offset(2)}
+	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n)}
+	visited := make([]bool, n)
+	index := func(q [3]float64) int {
+		var c [3]int
+		for k := 0; k < 3; k++ {
+			x := int(math.Round(q[k]*float64(N[k]) - off[k]))
+			x %= N[k]
+			if x < 0 {
+				x += N[k]
+			}
+			c[k] = x
+		}
+		return (c[0]*N[1]+c[1])*N[2] + c[2]
+	}
+	for g := 0; g < n; g++ {
+		if visited[g] {
+			continue
+		}
+		a := g / (N[1] * N[2])
+		b := (g / N[2]) % N[1]
+		c := g % N[2]
+		q := [3]float64{(float64(a) + off[0]) / float64(N[0]), (float64(b) + off[1]) / float64(N[1]), (float64(c) + off[2]) / float64(N[2])}
+		slot := int32(len(ir.Irr))
+		mult := 0
+		for k := range ops {
+			img := ops[k].applyQ(q)
+			for _, sign := range [2]int{1, -1} {
+				var qq [3]float64
+				for x := 0; x < 3; x++ {
+					qq[x] = float64(sign) * img[x]
+				}
+				h := index(qq)
+				if visited[h] {
+					continue
+				}
+				visited[h] = true
+				ir.Slot[h] = slot
+				if sign > 0 {
+					ir.OpIndex[h] = int16(k)
+				} else {
+					ir.OpIndex[h] = int16(-k - 1)
+				}
+				mult++
+			}
+		}
+		ir.Irr = append(ir.Irr, g)
+		ir.Mult = append(ir.Mult, mult)
+	}
+	return ir
+}
+
+// unfoldSiteWeights fills the site weights of grid point g from those of
+// its representative: the share of site Perm[i] at q_g equals the share of
+// site i at q (time reversal conjugates the eigenvector and leaves shares
+// unchanged).
+func unfoldSiteWeights(op *SymOp, nmodes, nsites int, src, dst []float64) {
+	for k := 0; k < nmodes; k++ {
+		for i := 0; i < nsites; i++ {
+			dst[k*nsites+op.Perm[i]] = src[k*nsites+i]
+		}
+	}
+}
+
+// unfoldEigvecs rotates the eigenvectors of the representative q into
+// those at the image q' = S q: e'_{π(i)α} = exp(−2πi q'·L_i) Σ_β C_αβ e_{iβ}
+// (from D(q') = U D(q) U†, see rotateD), conjugated when time reversal is
+// applied.
+func unfoldEigvecs(op *SymOp, timeReversal bool, qImage [3]float64, p, nsites int, src, dst []complex128) {
+	nm := p * nsites
+	if timeReversal {
+		// q_g = −S q: the eigenvector at S q is needed before conjugation.
+		for a := range qImage {
+			qImage[a] = -qImage[a]
+		}
+	}
+	for i := 0; i < nsites; i++ {
+		var arg float64
+		for a := 0; a < 3; a++ {
+			arg += qImage[a] * float64(op.Shift[i][a])
+		}
+		ph := cmplx.Rect(1, -2*math.Pi*arg)
+		pi := op.Perm[i]
+		for k := 0; k < nm; k++ {
+			for a := 0; a < p; a++ {
+				var z complex128
+				for b := 0; b < p; b++ {
+					z += complex(op.Cart[a][b], 0) * src[k*nm+i*p+b]
+				}
+				z *= ph
+				if timeReversal {
+					z = cmplx.Conj(z)
+				}
+				dst[k*nm+pi*p+a] = z
+			}
+		}
+	}
+}
+
+// irrCache is the bounded cache of reduced grids.
+var irrCache = newLRU[*IrreducibleGrid](16)
+
+// lru is a small mutex-guarded LRU of fixed entry count.
+type lru[V any] struct {
+	mu    sync.Mutex // guards ll and items
+	max   int
+	ll    *list.List
+	items map[string]*list.Element
+}
+
+type lruEntry[V any] struct {
+	key string
+	val V
+}
+
+func newLRU[V any](max int) *lru[V] {
+	return &lru[V]{max: max, ll: list.New(), items: map[string]*list.Element{}}
+}
+
+func (c *lru[V]) get(key string) (V, bool) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if e, ok := c.items[key]; ok {
+		c.ll.MoveToFront(e)
+		return e.Value.(*lruEntry[V]).val, true
+	}
+	var zero V
+	return zero, false
+}
+
+func (c *lru[V]) put(key string, v V) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if e, ok := c.items[key]; ok {
+		e.Value.(*lruEntry[V]).val = v
+		c.ll.MoveToFront(e)
+		return
+	}
+	c.items[key] = c.ll.PushFront(&lruEntry[V]{key, v})
+	for c.ll.Len() > c.max {
+		e := c.ll.Back()
+		c.ll.Remove(e)
+		delete(c.items, e.Value.(*lruEntry[V]).key)
+	}
+}
+
+// gridModesReduced computes the modes of the irreducible points only and
+// unfolds them onto the whole grid: frequencies are copied, site weights
+// permuted and eigenvectors rotated (see unfoldEigvecs).
+func (m *Model) gridModesReduced(ctx context.Context, spec GridSpec, opt GridOptions) (*GridModes, error) {
+	ir, err := m.ReduceGrid(spec)
+	if err != nil {
+		return nil, err
+	}
+	spec = ir.Spec
+	pts := spec.Points()
+	nm, ns := m.Modes(), m.nsites
+	needVec := opt.Projections || opt.Eigenvectors
+	nIrr := len(ir.Irr)
+	freq := make([]float64, nIrr*nm)
+	var sw []float64
+	var vecs []complex128
+	if opt.Projections {
+		sw = make([]float64, nIrr*nm*ns)
+	}
+	if opt.Eigenvectors {
+		vecs = make([]complex128, nIrr*nm*nm)
+	}
+	err = parallelRange(ctx, nIrr, func(lo, hi int) {
+		for s := lo; s < hi; s++ {
+			q := pts[ir.Irr[s]].Q
+			if !needVec {
+				copy(freq[s*nm:], m.FrequenciesTHz(q))
+				continue
+			}
+			f, v := m.ModesAt(q)
+			copy(freq[s*nm:], f)
+			if opt.Eigenvectors {
+				copy(vecs[s*nm*nm:], v)
+			}
+			if opt.Projections {
+				for k := 0; k < nm; k++ {
+					for c := 0; c < nm; c++ {
+						z := v[k*nm+c]
+						sw[(s*nm+k)*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
+					}
+				}
+			}
+		}
+	})
+	if err != nil {
+		return nil, err
+	}
+	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: m.p,
+		FreqTHz: make([]float64, len(pts)*nm)}
+	if opt.Projections {
+		g.SiteWeight = make([]float64, len(pts)*nm*ns)
+	}
+	if opt.Eigenvectors {
+		g.Eigvecs = make([]complex128, len(pts)*nm*nm)
+	}
+	err = parallelRange(ctx, len(pts), func(lo, hi int) {
+		for i := lo; i < hi; i++ {
+			s := int(ir.Slot[i])
+			copy(g.FreqTHz[i*nm:(i+1)*nm], freq[s*nm:(s+1)*nm])
+			k := int(ir.OpIndex[i])
+			tr := k < 0
+			if tr {
+				k = -k - 1
+			}
+			op := &ir.Ops[k]
+			if opt.Projections {
+				unfoldSiteWeights(op, nm, ns, sw[s*nm*ns:(s+1)*nm*ns], g.SiteWeight[i*nm*ns:(i+1)*nm*ns])
+			}
+			if opt.Eigenvectors {
+				unfoldEigvecs(op, tr, pts[i].Q, m.p, ns, vecs[s*nm*nm:(s+1)*nm*nm], g.Eigvecs[i*nm*nm:(i+1)*nm*nm])
+			}
+		}
+	})
+	if err != nil {
+		return nil, err
+	}
+	return g, nil
+}

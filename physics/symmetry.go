@@ -1,0 +1,326 @@
+package physics
+
+import (
+	"math"
+	"math/cmplx"
+	"math/rand/v2"
+)
+
+// SymOp is a point-group operation of a model with its fractional
+// translation: a site at fractional position x goes to Rot·x + Trans.
+// Rot acts on fractional (lattice) coordinates; only its top-left d×d
+// block is meaningful (the rest is the identity).
+type SymOp struct {
+	Rot   [3][3]int     // integer lattice automorphism
+	Trans [3]float64    // fractional translation, in [0, 1)
+	Cart  [3][3]float64 // the same rotation in Cartesian coordinates
+	// Perm[i] is the site that site i goes to; Shift[i] the cell it lands
+	// in: Rot·x_i + Trans = x_{Perm[i]} + Shift[i].
+	Perm  []int
+	Shift [][3]int
+	// QRot maps fractional q to the image wavevector: q' = QRot·q, with
+	// QRot = Rot⁻ᵀ (so that q'·(Rot n) = q·n).
+	QRot [3][3]int
+}
+
+// Symmetry tolerances.
+const (
+	// SymPosTolA is the Cartesian distance (Å) within which a transformed
+	// site must land on a site of the same mass.
+	SymPosTolA = 1e-5
+	// SymFCTol is the tolerance, relative to the largest element of D, for
+	// D(Sq) = U D(q) U† to hold.
+	SymFCTol = 1e-9
+)
+
+// Symmetry returns the model's point-group operations (with fractional
+// translations): the integer lattice automorphisms with entries in
+// {−1, 0, 1} — enough for a reduced basis — that preserve the metric, keep
+// the first p Cartesian axes apart from the others, map every site onto a
+// site of the same mass, and leave the whole force-constant model
+// invariant. Invariance is checked on the dynamical matrix itself,
+// D(Sq) = U D(q) U†, at three random incommensurate q-points; D is a
+// trigonometric polynomial in q, so a broken symmetry cannot pass by
+// accident (any interaction that breaks a symmetry removes the operation).
+// The identity is always first. The result is computed once per model.
+// Time reversal (q → −q) is not listed: it always holds.
+func (m *Model) Symmetry() []SymOp {
+	m.symOnce.Do(func() { m.symOps = m.findSymmetry() })
+	return m.symOps
+}
+
+func (m *Model) findSymmetry() []SymOp {
+	d := m.dim
+	var g [3][3]float64
+	scale := 0.0
+	for i := 0; i < d; i++ {
+		for j := 0; j < d; j++ {
+			g[i][j] = dot3(m.lattice[i], m.lattice[j])
+			scale = math.Max(scale, math.Abs(g[i][j]))
+		}
+	}
+	rng := rand.New(rand.NewPCG(0x5eed, 0x0dd5))
+	var probes [][3]float64
+	for k := 0; k < 3; k++ {
+		var q [3]float64
+		for a := 0; a < d; a++ {
+			q[a] = rng.Float64() - 0.5
+		}
+		probes = append(probes, q)
+	}
+	dq := make([][]complex128, len(probes))
+	for k, q := range probes {
+		dq[k] = m.DynamicalMatrix(q, nil)
+	}
+	var dmax float64
+	for _, dm := range dq {
+		for _, z := range dm {
+			dmax = math.Max(dmax, cmplx.Abs(z))
+		}
+	}
+	n := d * d
+	total := 1
+	for k := 0; k < n; k++ {
+		total *= 3
+	}
+	var ops []SymOp
+	for code := 0; code < total; code++ {
+		var r [3][3]int
+		c := code
+		for k := 0; k < n; k++ {
+			r[k/d][k%d] = c%3 - 1
+			c /= 3
+		}
+		for k := d; k < 3; k++ {
+			r[k][k] = 1
+		}
+		if !metricPreserved(r, g, d, 1e-8*scale) {
+			continue
+		}
+		cart := m.cartesianRotation(r)
+		if !m.keepsPolarizations(cart) {
+			continue
+		}
+		for _, op := range m.siteMappings(r, cart) {
+			if m.fcInvariant(op, probes, dq, dmax) {
+				ops = append(ops, op)
+				break // one translation per rotation suffices for q-space use
+			}
+		}
+	}
+	// Identity first.
+	for i, op := range ops {
+		if op.Rot == identity3() && i > 0 {
+			ops[0], ops[i] = ops[i], ops[0]
+		}
+	}
+	return ops
+}
+
+func identity3() [3][3]int { return [3][3]int{{1, 0, 0}, {0, 1, 0}, {0, 0, 1}} }
+
+// metricPreserved reports Rᵀ G R = G on the d×d block.
+func metricPreserved(r [3][3]int, g [3][3]float64, d int, tol float64) bool {
+	for i := 0; i < d; i++ {
+		for j := 0; j < d; j++ {
+			var s float64
+			for k := 0; k < d; k++ {
+				for l := 0; l < d; l++ {
+					s += float64(r[k][i]) * g[k][l] * float64(r[l][j])
+				}
+			}
+			if math.Abs(s-g[i][j]) > tol {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// cartesianRotation is C = Σ_kl a_k R_kl b_lᵀ/2π on the lattice span plus
+// the identity on its orthogonal complement (for d < 3).
+func (m *Model) cartesianRotation(r [3][3]int) [3][3]float64 {
+	var c [3][3]float64
+	d := m.dim
+	for x := 0; x < 3; x++ {
+		for y := 0; y < 3; y++ {
+			var s, proj float64
+			for k := 0; k < d; k++ {
+				for l := 0; l < d; l++ {
+					s += m.lattice[k][x] * float64(r[k][l]) * m.recip[l][y]
+				}
+				proj += m.lattice[k][x] * m.recip[k][y]
+			}
+			s /= 2 * math.Pi
+			proj /= 2 * math.Pi
+			if x == y {
+				s += 1 - proj
+			} else {
+				s -= proj
+			}
+			c[x][y] = s
+		}
+	}
+	return c
+}
+
+// keepsPolarizations reports that C does not mix the first p Cartesian
+// axes (the ones atoms move along) with the others.
+func (m *Model) keepsPolarizations(c [3][3]float64) bool {
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			if (a < m.p) != (b < m.p) && math.Abs(c[a][b]) > 1e-8 {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// siteMappings returns the candidate operations (R, t) that map every site
+// onto a site of the same mass; t runs over x_j − R x_0.
+func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
+	d, ns := m.dim, m.nsites
+	rx := make([][3]float64, ns)
+	for i := 0; i < ns; i++ {
+		for a := 0; a < d; a++ {
+			for b := 0; b < d; b++ {
+				rx[i][a] += float64(r[a][b]) * m.frac[i][b]
+			}
+		}
+	}
+	var out []SymOp
+	for j0 := 0; j0 < ns; j0++ {
+		if m.massAmu[j0] != m.massAmu[0] {
+			continue
+		}
+		var t [3]float64
+		for a := 0; a < d; a++ {
+			t[a] = m.frac[j0][a] - rx[0][a]
+			t[a] -= math.Floor(t[a])
+		}
+		perm := make([]int, ns)
+		shift := make([][3]int, ns)
+		used := make([]bool, ns)
+		ok := true
+		for i := 0; i < ns && ok; i++ {
+			found := false
+			for j := 0; j < ns; j++ {
+				if used[j] || m.massAmu[j] != m.massAmu[i] {
+					continue
+				}
+				var diff, cell [3]float64
+				for a := 0; a < d; a++ {
+					diff[a] = rx[i][a] + t[a] - m.frac[j][a]
+					cell[a] = math.Round(diff[a])
+					diff[a] -= cell[a]
+				}
+				if norm3(m.cartVec(diff)) < SymPosTolA {
+					perm[i], used[j], found = j, true, true
+					for a := 0; a < d; a++ {
+						shift[i][a] = int(cell[a])
+					}
+					break
+				}
+			}
+			ok = found
+		}
+		if !ok {
+			continue
+		}
+		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: invTransposeInt(r, d)}
+		out = append(out, op)
+	}
+	return out
+}
+
+// cartVec converts a fractional difference to Cartesian Å.
+func (m *Model) cartVec(f [3]float64) [3]float64 {
+	var r [3]float64
+	for k := 0; k < m.dim; k++ {
+		for a := 0; a < 3; a++ {
+			r[a] += f[k] * m.lattice[k][a]
+		}
+	}
+	return r
+}
+
+// invTransposeInt returns R⁻ᵀ for a unimodular integer matrix (d ≤ 3),
+// through the adjugate: R⁻¹ = adj(R)/det R with det R = ±1.
+func invTransposeInt(r [3][3]int, d int) [3][3]int {
+	var f [3][3]float64
+	for i := 0; i < 3; i++ {
+		for j := 0; j < 3; j++ {
+			f[i][j] = float64(r[i][j])
+		}
+	}
+	inv := invertSmall(f, 3)
+	var out [3][3]int
+	for i := 0; i < 3; i++ {
+		for j := 0; j < 3; j++ {
+			out[i][j] = int(math.Round(inv[j][i]))
+		}
+	}
+	_ = d
+	return out
+}
+
+// applyQ returns QRot·q.
+func (op *SymOp) applyQ(q [3]float64) [3]float64 {
+	var out [3]float64
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			out[a] += float64(op.QRot[a][b]) * q[b]
+		}
+	}
+	return out
+}
+
+// rotateD computes U D(q) U† for the operation: the block of sites
+// (π i, π j) is C D_ij Cᵀ · exp(−2πi q'·(L_i − L_j)), q' = QRot q, using
+// only the p×p part of C.
+func (m *Model) rotateD(op *SymOp, q [3]float64, dm []complex128) []complex128 {
+	p, nm := m.p, m.Modes()
+	qp := op.applyQ(q)
+	ph := make([]complex128, m.nsites)
+	for i := range ph {
+		var arg float64
+		for a := 0; a < 3; a++ {
+			arg += qp[a] * float64(op.Shift[i][a])
+		}
+		ph[i] = cmplx.Rect(1, -2*math.Pi*arg)
+	}
+	out := make([]complex128, nm*nm)
+	for i := 0; i < m.nsites; i++ {
+		for j := 0; j < m.nsites; j++ {
+			f := ph[i] * cmplx.Conj(ph[j])
+			pi, pj := op.Perm[i], op.Perm[j]
+			for a := 0; a < p; a++ {
+				for b := 0; b < p; b++ {
+					var s complex128
+					for c := 0; c < p; c++ {
+						for e := 0; e < p; e++ {
+							s += complex(op.Cart[a][c]*op.Cart[b][e], 0) * dm[(i*p+c)*nm+j*p+e]
+						}
+					}
+					out[(pi*p+a)*nm+pj*p+b] = s * f
+				}
+			}
+		}
+	}
+	return out
+}
+
+func (m *Model) fcInvariant(op SymOp, probes [][3]float64, dq [][]complex128, dmax float64) bool {
+	tol := SymFCTol*dmax + 1e-14
+	for k, q := range probes {
+		want := m.rotateD(&op, q, dq[k])
+		got := m.DynamicalMatrix(op.applyQ(q), nil)
+		for x := range got {
+			if cmplx.Abs(got[x]-want[x]) > tol {
+				return false
+			}
+		}
+	}
+	return true
+}
