@@ -5,7 +5,7 @@ VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo dev)
 LDFLAGS := -s -w -X main.version=$(VERSION)
 PKGS    := ./...
 
-.PHONY: all build test demo proto proto-check lint vet bench clean
+.PHONY: all build test demo proto proto-check lint vet bench image clean
 
 all: build
 
@@ -42,6 +42,11 @@ vet:
 
 bench:
 	$(GO) test -run '^$$' -bench . -benchmem $(PKGS)
+
+# Container image (needs a Docker engine; none runs on the CI machine, where
+# the Dockerfile is checked statically by the tests in deploy/).
+image:
+	docker build -f deploy/Dockerfile --build-arg VERSION=$(VERSION) -t modegrid:$(VERSION) .
 
 clean:
 	rm -rf $(BIN)
