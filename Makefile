@@ -45,8 +45,9 @@ bench:
 
 # Container image (needs a Docker engine; none runs on the CI machine, where
 # the Dockerfile is checked statically by the tests in deploy/).
+IMAGE ?= modegrid/modegridd:$(VERSION)
 image:
-	docker build -f deploy/Dockerfile --build-arg VERSION=$(VERSION) -t modegrid:$(VERSION) .
+	docker build -f deploy/Dockerfile --build-arg VERSION=$(VERSION) -t $(IMAGE) .
 
 clean:
 	rm -rf $(BIN)
