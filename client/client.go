@@ -1,98 +1,312 @@
-// Package client is a thin Go client for the modegrid gRPC service. It
-// depends only on the generated protobuf package.
 package client
 
 import (
 	"context"
-	"errors"
+	"crypto/tls"
+	"crypto/x509"
+	"encoding/json"
 	"fmt"
-	"io"
+	"net"
 	"os"
+	"strings"
+	"time"
 
 	"google.golang.org/grpc"
+	_ "google.golang.org/grpc/balancer/ringhash" // registers ring_hash_experimental for WithModelAffinity
+	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/credentials/insecure"
-	"google.golang.org/protobuf/encoding/protojson"
+	_ "google.golang.org/grpc/health" // registers client-side health checking used by the service config
+	"google.golang.org/grpc/keepalive"
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-// Client calls a modegrid server. It is safe for concurrent use.
+// Defaults of Dial. The keepalive time is inside the server's keepalive
+// enforcement policy (server.KeepaliveMinTime); the message limit equals the
+// server's default receive and send limits.
+const (
+	// DefaultMaxMessageBytes is the largest message sent or received, 16 MiB.
+	DefaultMaxMessageBytes = 16 << 20
+	// DefaultKeepaliveTime is the interval between keepalive pings.
+	DefaultKeepaliveTime = 30 * time.Second
+	// DefaultKeepaliveTimeout is how long a ping may go unanswered before
+	// the connection is considered dead.
+	DefaultKeepaliveTimeout = 10 * time.Second
+	// DefaultMaxAttempts is the number of attempts of a call that fails with
+	// UNAVAILABLE (the first one included); gRPC caps it at 5.
+	DefaultMaxAttempts = 4
+	// AffinityHeader is the request metadata key that carries the model hash
+	// for WithModelAffinity; ring_hash hashes its value to pick a replica.
+	AffinityHeader = "x-modegrid-model"
+	// ServiceName is the full name of the modegrid gRPC service.
+	ServiceName = "modegrid.v1.ModegridService"
+)
+
+// Client calls a modegrid server. It is safe for concurrent use. The zero
+// value is not usable: create one with Dial.
 type Client struct {
-	conn *grpc.ClientConn
-	api  modegridv1.ModegridServiceClient
+	conn     *grpc.ClientConn
+	api      modegridv1.ModegridServiceClient
+	affinity bool
+	refs     modelRefs
 }
 
 // Option configures Dial.
 type Option func(*options)
 
 type options struct {
-	dialOpts []grpc.DialOption
+	tls         *tls.Config // nil: plaintext
+	err         error       // first error met while applying options
+	token       string
+	affinity    bool
+	maxMsg      int
+	keepalive   keepalive.ClientParameters
+	maxAttempts int
+	noHealth    bool
+	dialOpts    []grpc.DialOption
 }
 
-// WithDialOptions appends raw gRPC dial options.
-func WithDialOptions(o ...grpc.DialOption) Option {
-	return func(opts *options) { opts.dialOpts = append(opts.dialOpts, o...) }
+func (o *options) fail(err error) {
+	if o.err == nil {
+		o.err = err
+	}
 }
 
-// Dial creates a client for target (any gRPC target, e.g. "127.0.0.1:7420"
-// or "dns:///modegrid.lab.svc:7420"). The connection is made lazily.
+func (o *options) tlsConfig() *tls.Config {
+	if o.tls == nil {
+		o.tls = &tls.Config{MinVersion: tls.VersionTLS12}
+	}
+	return o.tls
+}
+
+// WithTLS uses TLS with the given configuration (nil: the system's root
+// certificates and the target's host name). The configuration is cloned.
+func WithTLS(cfg *tls.Config) Option {
+	return func(o *options) {
+		if cfg == nil {
+			o.tlsConfig()
+			return
+		}
+		o.tls = cfg.Clone()
+	}
+}
+
+// WithCAFile uses TLS and trusts the PEM certificates in file (instead of the
+// system roots) to verify the server.
+func WithCAFile(file string) Option {
+	return func(o *options) {
+		b, err := os.ReadFile(file)
+		if err != nil {
+			o.fail(fmt.Errorf("read CA file: %w", err))
+			return
+		}
+		pool := x509.NewCertPool()
+		if !pool.AppendCertsFromPEM(b) {
+			o.fail(fmt.Errorf("CA file %s holds no PEM certificate", file))
+			return
+		}
+		o.tlsConfig().RootCAs = pool
+	}
+}
+
+// WithClientCertificate uses mutual TLS: the client presents the certificate
+// and key in the PEM files certFile and keyFile. It implies TLS.
+func WithClientCertificate(certFile, keyFile string) Option {
+	return func(o *options) {
+		cert, err := tls.LoadX509KeyPair(certFile, keyFile)
+		if err != nil {
+			o.fail(fmt.Errorf("load client certificate: %w", err))
+			return
+		}
+		cfg := o.tlsConfig()
+		cfg.Certificates = append(cfg.Certificates, cert)
+	}
+}
+
+// WithServerName sets the name the server certificate is verified against
+// (default: the host of the target). It implies TLS.
+func WithServerName(name string) Option {
+	return func(o *options) { o.tlsConfig().ServerName = name }
+}
+
+// WithToken sends "authorization: Bearer <token>" with every call. Without
+// TLS it is allowed only for a loopback or unix-socket target, so a token
+// never crosses a network in the clear.
+func WithToken(token string) Option {
+	return func(o *options) { o.token = token }
+}
+
+// WithModelAffinity routes every call for one model to the same replica, so
+// its cached results are reused: the balancer becomes gRPC's ring_hash
+// (ring_hash_experimental) with request-hash header AffinityHeader, and the
+// Client sets that header to the model hash on each call. The first time a
+// model is seen, the Client learns its hash with one CheckModel call.
+// Replicas that come and go move only the models that hashed to them.
+func WithModelAffinity() Option {
+	return func(o *options) { o.affinity = true }
+}
+
+// WithMaxMessageBytes sets the largest message sent or received (default
+// DefaultMaxMessageBytes); keep it at or below the server's limit.
+func WithMaxMessageBytes(n int) Option {
+	return func(o *options) {
+		if n <= 0 {
+			o.fail(fmt.Errorf("max message bytes must be > 0, got %d", n))
+			return
+		}
+		o.maxMsg = n
+	}
+}
+
+// WithKeepalive replaces the keepalive parameters. Pinging more often than
+// the server's enforcement policy allows makes the server close the
+// connection (GOAWAY "too_many_pings").
+func WithKeepalive(kp keepalive.ClientParameters) Option {
+	return func(o *options) { o.keepalive = kp }
+}
+
+// WithMaxAttempts sets how many times a call failing with UNAVAILABLE is
+// tried in all (default DefaultMaxAttempts; 1 disables retries; gRPC caps it
+// at 5).
+func WithMaxAttempts(n int) Option {
+	return func(o *options) {
+		if n < 1 {
+			o.fail(fmt.Errorf("max attempts must be ≥ 1, got %d", n))
+			return
+		}
+		o.maxAttempts = n
+	}
+}
+
+// WithoutHealthCheck turns off client-side health checking (on by default:
+// a replica whose health service reports NOT_SERVING gets no calls).
+func WithoutHealthCheck() Option {
+	return func(o *options) { o.noHealth = true }
+}
+
+// WithDialOptions appends raw gRPC dial options, applied after the defaults.
+func WithDialOptions(d ...grpc.DialOption) Option {
+	return func(o *options) { o.dialOpts = append(o.dialOpts, d...) }
+}
+
+// Dial creates a client for target, any gRPC target: "127.0.0.1:7420",
+// "dns:///modegrid.lab.svc:7420" (balanced over every address), or
+// "unix:///run/modegrid.sock". The connection is made lazily, on the first
+// call; Dial fails only on bad options.
 func Dial(target string, opt ...Option) (*Client, error) {
-	var o options
+	o := options{
+		maxMsg:      DefaultMaxMessageBytes,
+		maxAttempts: DefaultMaxAttempts,
+		keepalive: keepalive.ClientParameters{
+			Time:                DefaultKeepaliveTime,
+			Timeout:             DefaultKeepaliveTimeout,
+			PermitWithoutStream: true,
+		},
+	}
 	for _, f := range opt {
 		f(&o)
 	}
-	dopts := append([]grpc.DialOption{grpc.WithTransportCredentials(insecure.NewCredentials())}, o.dialOpts...)
+	if o.err != nil {
+		return nil, fmt.Errorf("modegrid client: %w", o.err)
+	}
+	sc, err := serviceConfig(o.affinity, o.maxAttempts, !o.noHealth)
+	if err != nil {
+		return nil, fmt.Errorf("modegrid client: %w", err)
+	}
+	dopts := []grpc.DialOption{
+		grpc.WithDefaultServiceConfig(sc),
+		grpc.WithKeepaliveParams(o.keepalive),
+		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(o.maxMsg), grpc.MaxCallSendMsgSize(o.maxMsg)),
+		grpc.WithUserAgent("modegrid-go-client"),
+	}
+	if o.tls != nil {
+		dopts = append(dopts, grpc.WithTransportCredentials(credentials.NewTLS(o.tls)))
+	} else {
+		dopts = append(dopts, grpc.WithTransportCredentials(insecure.NewCredentials()))
+	}
+	if o.token != "" {
+		if o.tls == nil && !isLocalTarget(target) {
+			return nil, fmt.Errorf("modegrid client: a bearer token needs TLS (WithTLS or WithCAFile) unless the target is loopback; target %q", target)
+		}
+		dopts = append(dopts, grpc.WithPerRPCCredentials(bearer{token: o.token, secure: o.tls != nil}))
+	}
+	dopts = append(dopts, o.dialOpts...)
 	conn, err := grpc.NewClient(target, dopts...)
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
-	return &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn)}, nil
+	return &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}, nil
 }
 
-// Close closes the connection.
+// Close closes the connection. Calls in progress fail with CANCELED.
 func (c *Client) Close() error { return c.conn.Close() }
 
-// Modes calls ComputeModes and collects the whole stream into one response.
-func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest) (*modegridv1.ComputeModesResponse, error) {
-	stream, err := c.api.ComputeModes(ctx, req)
-	if err != nil {
-		return nil, err
+// Conn returns the underlying connection, for example to call the standard
+// gRPC health service.
+func (c *Client) Conn() *grpc.ClientConn { return c.conn }
+
+// Raw returns the generated stub for calls the typed helpers do not cover.
+// It bypasses the model reference cache and the affinity header.
+func (c *Client) Raw() modegridv1.ModegridServiceClient { return c.api }
+
+// serviceConfig builds the gRPC service config JSON: the balancer, the retry
+// policy on UNAVAILABLE for every method of the service, and client-side
+// health checking.
+func serviceConfig(affinity bool, maxAttempts int, health bool) (string, error) {
+	type obj = map[string]any
+	lb := []obj{{"round_robin": obj{}}}
+	if affinity {
+		lb = []obj{{"ring_hash_experimental": obj{"requestHashHeader": AffinityHeader}}}
 	}
-	var all *modegridv1.ComputeModesResponse
-	for {
-		chunk, err := stream.Recv()
-		if errors.Is(err, io.EOF) {
-			break
-		}
-		if err != nil {
-			return nil, err
-		}
-		if all == nil {
-			all = chunk
-			continue
-		}
-		all.Points = append(all.Points, chunk.GetPoints()...)
+	mc := obj{
+		"name":         []obj{{"service": ServiceName}},
+		"waitForReady": false,
 	}
-	if all == nil {
-		all = &modegridv1.ComputeModesResponse{}
+	if maxAttempts > 1 {
+		mc["retryPolicy"] = obj{
+			"maxAttempts":          maxAttempts,
+			"initialBackoff":       "0.1s",
+			"maxBackoff":           "2s",
+			"backoffMultiplier":    2.0,
+			"retryableStatusCodes": []string{"UNAVAILABLE"},
+		}
 	}
-	return all, nil
+	sc := obj{"loadBalancingConfig": lb, "methodConfig": []obj{mc}}
+	if health {
+		sc["healthCheckConfig"] = obj{"serviceName": ServiceName}
+	}
+	b, err := json.Marshal(sc)
+	return string(b), err
 }
 
-// LoadModel reads a model file (the protobuf JSON of modegrid.v1.Crystal).
-func LoadModel(path string) (*modegridv1.Crystal, error) {
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, fmt.Errorf("read model: %w", err)
-	}
-	return ParseModel(b)
+// bearer adds a bearer token to every call.
+type bearer struct {
+	token  string
+	secure bool
 }
 
-// ParseModel parses the protobuf JSON of a modegrid.v1.Crystal.
-func ParseModel(b []byte) (*modegridv1.Crystal, error) {
-	var c modegridv1.Crystal
-	if err := protojson.Unmarshal(b, &c); err != nil {
-		return nil, fmt.Errorf("parse model: %w", err)
+func (b bearer) GetRequestMetadata(_ context.Context, _ ...string) (map[string]string, error) {
+	return map[string]string{"authorization": "Bearer " + b.token}, nil
+}
+
+func (b bearer) RequireTransportSecurity() bool { return b.secure }
+
+// isLocalTarget reports whether target names a loopback address or a unix
+// socket, where a plaintext token stays on the machine.
+func isLocalTarget(target string) bool {
+	if strings.HasPrefix(target, "unix:") || strings.HasPrefix(target, "unix-abstract:") {
+		return true
 	}
-	return &c, nil
+	if i := strings.Index(target, ":///"); i >= 0 {
+		target = target[i+4:]
+	}
+	host, _, err := net.SplitHostPort(target)
+	if err != nil {
+		host = target
+	}
+	if host == "localhost" {
+		return true
+	}
+	ip := net.ParseIP(strings.Trim(host, "[]"))
+	return ip != nil && ip.IsLoopback()
 }

@@ -1,3 +1,7 @@
+// Compile: from a validated Crystal to a Model — raw force constants from
+// springs, neighbour shells and blocks, the acoustic-sum-rule self terms,
+// mass weighting, the packed blocks of D(q) and the canonical hash.
+
 package physics
 
 import (
@@ -46,11 +50,21 @@ type Model struct {
 	frac           [][]float64
 	massAmu        []float64
 	labels         []string
-	terms          []term // directed, consolidated per (i, j, n)
+	terms          []term // directed, consolidated per (i, j, n), sorted
+
+	// The lower triangle of D(q) as blocks grouped by cell offset (dynmat.go).
+	cells  []dmCell
+	blocks []dmBlock
+	reach  [3]int // largest |n_k| of any cell
+
+	hash string // canonical SHA-256, hex (hash.go)
 
 	shells           []ShellInfo
 	interactions     int
 	sumRuleViolation float64 // eV/Å², before enforcement
+
+	latticeType string                // LatticeType (lattice.go), found by Compile
+	standard    map[string][3]float64 // StandardPoints
 
 	symOnce sync.Once // guards symOps (symmetry.go, owned by the lead)
 	symOps  []SymOp   // lazily computed by Symmetry
@@ -179,13 +193,15 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 			asr[a] = -asr[a]
 		}
 		if hasSelf[i] {
-			// Violation: largest row sum of all blocks of site i.
-			for a := 0; a < 3; a++ {
-				var row float64
-				for b := 0; b < 3; b++ {
-					row += blockSelf[i][3*a+b] + offSum[i][3*a+b]
+			// Violation: the largest |Σ_{j,n} Φ_αβ(0i; nj)| over the
+			// p×p components the model uses, i.e. the force along α on
+			// site i when the whole crystal moves rigidly by a unit step
+			// along β (zero under the acoustic sum rule).
+			for a := 0; a < m.p; a++ {
+				for b := 0; b < m.p; b++ {
+					row := blockSelf[i][3*a+b] + offSum[i][3*a+b]
+					m.sumRuleViolation = math.Max(m.sumRuleViolation, math.Abs(row))
 				}
-				m.sumRuleViolation = math.Max(m.sumRuleViolation, math.Abs(row))
 			}
 			if !opt.EnforceSumRule {
 				asr = blockSelf[i]
@@ -213,14 +229,19 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		}
 		return lessCell(ka.n, kb.n)
 	})
+	raw := make([]term, 0, len(keys)) // eV/Å², for the hash
 	for _, k := range keys {
 		w := 1 / math.Sqrt(m.massAmu[k.i]*m.massAmu[k.j])
-		t := term{i: k.i, j: k.j, n: k.n}
-		for a, v := range fc[k] {
-			t.phi[a] = v * w
+		t := term{i: k.i, j: k.j, n: k.n, phi: *fc[k]}
+		raw = append(raw, t)
+		for a := range t.phi {
+			t.phi[a] *= w
 		}
 		m.terms = append(m.terms, t)
 	}
+	m.buildBlocks()
+	m.hash = m.canonicalHash(raw)
+	m.latticeType, m.standard = detectLattice(m)
 	return m, nil
 }
 
@@ -297,9 +318,23 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 			}
 		}
 		// The shell is only known complete if a farther distance exists
-		// inside the radius (so nothing between was missed).
-		if len(shellD) > sh.Shell || (capped && len(shellD) >= sh.Shell) {
-			target := shellD[sh.Shell-1]
+		// inside the radius (so nothing between was missed). When the
+		// cell-offset limit capped the search, only distances up to
+		// min_k (reach_k − 1)·2π/|b_k| are known complete.
+		complete := radius
+		if capped {
+			for k := 0; k < m.dim; k++ {
+				complete = math.Min(complete, float64(reach[k]-1)*2*math.Pi/norm3(m.recip[k]))
+			}
+		}
+		var within []float64
+		for _, d := range shellD {
+			if d+ShellTolA <= complete {
+				within = append(within, d)
+			}
+		}
+		if len(within) > sh.Shell || (capped && len(within) >= sh.Shell) {
+			target := within[sh.Shell-1]
 			var bonds []shellBond
 			same := sh.FromLabel == sh.ToLabel
 			for _, c := range cands {
@@ -318,7 +353,7 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 			return bonds, target, nil
 		}
 		if capped {
-			return nil, 0, fmt.Errorf("found no neighbours in shell %d between %q and %q within the cell-offset limit of ±%d", sh.Shell, sh.FromLabel, sh.ToLabel, lim.MaxCellOffset)
+			return nil, 0, fmt.Errorf("found no neighbours in shell %d between %q and %q: only %d shell(s) lie within reach of the cell-offset limit of ±%d", sh.Shell, sh.FromLabel, sh.ToLabel, len(within), lim.MaxCellOffset)
 		}
 		radius *= 2
 	}

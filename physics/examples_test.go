@@ -34,6 +34,12 @@ func loadExample(t testing.TB, name string) *Crystal {
 	if err != nil {
 		t.Fatal(err)
 	}
+	return decodeCrystal(t, name, b)
+}
+
+// decodeCrystal decodes a model file text (see loadExample).
+func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
+	t.Helper()
 	var f struct {
 		Name          string
 		Lattice       []struct{ X, Y, Z float64 }

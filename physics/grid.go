@@ -1,3 +1,6 @@
+// Regular q-point sets (Monkhorst–Pack grids, finite crystals) and the
+// modes on every point of one, in parallel.
+
 package physics
 
 import (
@@ -6,6 +9,7 @@ import (
 	"math"
 	"runtime"
 	"sync"
+	"sync/atomic"
 )
 
 // QPoint is a wavevector (fractional reciprocal coordinates) with its weight
@@ -107,6 +111,29 @@ func (g GridSpec) Points() []QPoint {
 	return pts
 }
 
+// Point returns point i of Points without building the list, for grids
+// too large to hold (a 1 cm crystal of 1 nm cells has 10⁷ points).
+// Components of Mesh that are 0 count as 1.
+func (g GridSpec) Point(i int) QPoint {
+	var n [3]int
+	for k := range n {
+		n[k] = max(1, g.Mesh[k])
+	}
+	c := i % n[2]
+	b := (i / n[2]) % n[1]
+	a := i / (n[1] * n[2])
+	return QPoint{Q: [3]float64{
+		wrapHalf((float64(a) + g.Offset(0)) / float64(n[0])),
+		wrapHalf((float64(b) + g.Offset(1)) / float64(n[1])),
+		wrapHalf((float64(c) + g.Offset(2)) / float64(n[2])),
+	}, Weight: 1 / float64(g.Count())}
+}
+
+// Normalize checks the spec against a d-dimensional crystal (components of
+// Mesh past d must be 1, 0 read as 1) and returns it ready for Points,
+// with violations under the field "mesh".
+func (g GridSpec) Normalize(dim int) (GridSpec, error) { return g.normalize(dim, "mesh") }
+
 // wrapHalf maps x into (−½, ½].
 func wrapHalf(x float64) float64 {
 	x -= math.Ceil(x - 0.5)
@@ -142,48 +169,90 @@ type GridOptions struct {
 }
 
 // GridModes diagonalises D(q) on every point of the grid, spread over all
-// cores, and stops early when ctx is done.
+// cores with one reusable workspace per core (no allocation per point),
+// and stops promptly when ctx is done, returning ctx.Err().
 func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (*GridModes, error) {
 	spec, err := spec.normalize(m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
 	pts := spec.Points()
-	nm := m.Modes()
-	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: m.nsites, P: m.p,
+	nm, ns := m.Modes(), m.nsites
+	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: m.p,
 		FreqTHz: make([]float64, len(pts)*nm)}
 	vec := opt.Projections || opt.Eigenvectors
 	if opt.Projections {
-		g.SiteWeight = make([]float64, len(pts)*nm*m.nsites)
+		g.SiteWeight = make([]float64, len(pts)*nm*ns)
 	}
 	if opt.Eigenvectors {
 		g.Eigvecs = make([]complex128, len(pts)*nm*nm)
 	}
-	err = parallelRange(ctx, len(pts), func(lo, hi int) {
-		buf := make([]complex128, nm*nm)
-		for i := lo; i < hi; i++ {
-			buf = m.DynamicalMatrix(pts[i].Q, buf)
-			vals, vecs := hermitianEigen(buf, nm, vec)
-			for k, v := range vals {
-				g.FreqTHz[i*nm+k] = eigToTHz(v)
+	err = parallelWork(ctx, len(pts), func(done <-chan struct{}) func(i int) bool {
+		w := m.newPointWork(done)
+		return func(i int) bool {
+			if !w.solve(pts[i].Q, vec) {
+				return false
 			}
+			w.freqs(g.FreqTHz[i*nm : (i+1)*nm])
 			if opt.Eigenvectors {
-				copy(g.Eigvecs[i*nm*nm:], vecs)
+				copy(g.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.vecs)
 			}
 			if opt.Projections {
+				sw := g.SiteWeight[i*nm*ns : (i+1)*nm*ns]
 				for k := 0; k < nm; k++ {
-					for c := 0; c < nm; c++ {
-						z := vecs[k*nm+c]
-						g.SiteWeight[(i*nm+k)*m.nsites+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
+					e := w.eig.vecs[k*nm : (k+1)*nm]
+					for c, z := range e {
+						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
 					}
 				}
 			}
+			return true
 		}
 	})
 	if err != nil {
 		return nil, err
 	}
 	return g, nil
+}
+
+// parallelWork runs a per-point function over [0, n) on all cores. Each
+// worker builds its own function (and workspace) with newWorker; the
+// function returns false when it saw done closed. Points are handed out in
+// small blocks and ctx is polled before every point, so cancellation stops
+// the work within one point (and within a fraction of one for large
+// matrices, whose solver polls done itself). It returns ctx.Err() if ctx
+// ended first.
+func parallelWork(ctx context.Context, n int, newWorker func(done <-chan struct{}) func(i int) bool) error {
+	workers := min(runtime.GOMAXPROCS(0), max(1, n))
+	const block = 16
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	done := ctx.Done()
+	for wk := 0; wk < workers; wk++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			fn := newWorker(done)
+			for {
+				lo := int(next.Add(block) - block)
+				if lo >= n {
+					return
+				}
+				for i := lo; i < min(lo+block, n); i++ {
+					select {
+					case <-done:
+						return
+					default:
+					}
+					if !fn(i) {
+						return
+					}
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	return ctx.Err()
 }
 
 // parallelRange runs fn over [0, n) in chunks on all cores, checking ctx

@@ -2,6 +2,7 @@ package physics
 
 import (
 	"context"
+	"errors"
 	"math"
 	"math/cmplx"
 	"testing"
@@ -85,5 +86,202 @@ func TestShiftedGridKeepsUnusedComponentsZero(t *testing.T) {
 		if math.Abs(math.Abs(p.Q[0]*8)-math.Round(math.Abs(p.Q[0]*8))) > 1e-12 || int(math.Round(math.Abs(p.Q[0]*8)))%2 != 1 {
 			t.Errorf("q1 = %v: want an odd multiple of 1/8", p.Q[0])
 		}
+	}
+}
+
+// TestFiniteCrystalCounts: a crystal of N1×N2×N3 cells under periodic
+// boundary conditions has exactly N1·N2·N3 allowed wavevectors q_k = n/N_k,
+// n in (−N/2, N/2], each once, hence cells × sites × p modes (common
+// practice).
+func TestFiniteCrystalCounts(t *testing.T) {
+	cases := []struct {
+		name    string
+		example string
+		mesh    [3]int
+	}{
+		{"ring of 1", "chain", [3]int{1}},
+		{"ring of 5", "chain", [3]int{5}},
+		{"ring of 6", "diatomic-chain", [3]int{6}},
+		{"3×4 sheet", "square-net", [3]int{3, 4}},
+		{"2×3×5 crystal", "rocksalt-like", [3]int{2, 3, 5}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			m := mustCompile(t, loadExample(t, tc.example))
+			g, err := m.GridModes(testCtx(t), GridSpec{Mesh: tc.mesh, Finite: true}, GridOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			cells := 1
+			for k := 0; k < m.Dim(); k++ {
+				cells *= tc.mesh[k]
+			}
+			if len(g.Points) != cells || len(g.FreqTHz) != cells*m.Sites()*m.P() {
+				t.Fatalf("%d points, %d modes; want %d, %d", len(g.Points), len(g.FreqTHz), cells, cells*m.Sites()*m.P())
+			}
+			seen := map[[3]int]bool{}
+			var wsum float64
+			for _, p := range g.Points {
+				var key [3]int
+				for k := 0; k < 3; k++ {
+					n := max(1, tc.mesh[k])
+					x := p.Q[k] * float64(n)
+					key[k] = int(math.Round(x))
+					if math.Abs(x-float64(key[k])) > 1e-9 || 2*key[k] <= -n || 2*key[k] > n {
+						t.Errorf("q = %v: component %d is not n/N with n in (−N/2, N/2]", p.Q, k)
+					}
+				}
+				if seen[key] {
+					t.Errorf("q = %v twice", p.Q)
+				}
+				seen[key] = true
+				wsum += p.Weight
+			}
+			if math.Abs(wsum-1) > 1e-12 {
+				t.Errorf("weights sum to %v", wsum)
+			}
+		})
+	}
+}
+
+// TestFiniteCrystalSpacing: allowed wavevectors of a ring of N cells of
+// length a are spaced 2π/L, L = N a; a 1 cm chain of 1 nm cells has
+// N = 10⁷ cells, so about 10⁷ modes per branch, spaced 2π/(1 cm) (common
+// practice). The grid is never built: Count and Point suffice.
+func TestFiniteCrystalSpacing(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		n    int
+		aA   float64
+	}{{"ring of 7, 2.5 Å", 7, 2.5}, {"1 cm of 1 nm cells", 10_000_000, 10}} {
+		t.Run(tc.name, func(t *testing.T) {
+			c := &Crystal{Lattice: [][3]float64{{tc.aA, 0, 0}}, Polarizations: 1,
+				Sites:   []Site{{Label: "A", MassAmu: 50, Frac: []float64{0}}},
+				Springs: []Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}}}
+			m := mustCompile(t, c)
+			spec, err := GridSpec{Mesh: [3]int{tc.n}, Finite: true}.Normalize(m.Dim())
+			if err != nil {
+				t.Fatal(err)
+			}
+			if modes := spec.Count() * m.Sites() * m.P(); modes != tc.n {
+				t.Fatalf("%d modes; want %d", modes, tc.n)
+			}
+			L := float64(tc.n) * tc.aA
+			for _, i := range []int{1, 2, tc.n / 3, tc.n/2 - 1} {
+				q0, q1 := m.cartQ(spec.Point(i-1).Q), m.cartQ(spec.Point(i).Q)
+				if d := q1[0] - q0[0]; math.Abs(d-2*math.Pi/L) > 1e-9*2*math.Pi/L {
+					t.Errorf("spacing at %d: %.6g Å⁻¹; want 2π/L = %.6g", i, d, 2*math.Pi/L)
+				}
+			}
+			if tc.n == 10_000_000 && !relClose(2*math.Pi/L, 2*math.Pi/1e8, 1e-12) {
+				t.Errorf("1 cm = 1e8 Å")
+			}
+		})
+	}
+}
+
+// TestMonkhorstPackGrids: Γ-centred grids contain Γ; shifted grids do not
+// and are symmetric under q → −q (Monkhorst & Pack, PRB 13, 5188 (1976));
+// weights sum to 1; components past d stay 0.
+func TestMonkhorstPackGrids(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		example string
+		mesh    [3]int
+		shifted bool
+	}{
+		{"1D 8", "chain", [3]int{8}, false},
+		{"1D 8 shifted", "chain", [3]int{8}, true},
+		{"2D 4×6 shifted", "square-net", [3]int{4, 6}, true},
+		{"3D 4×4×4", "fcc", [3]int{4, 4, 4}, false},
+		{"3D 3×4×5 shifted", "fcc", [3]int{3, 4, 5}, true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m := mustCompile(t, loadExample(t, tc.example))
+			spec, err := GridSpec{Mesh: tc.mesh, Shifted: tc.shifted}.Normalize(m.Dim())
+			if err != nil {
+				t.Fatal(err)
+			}
+			pts := spec.Points()
+			set := map[[3]int64]bool{}
+			key := func(q [3]float64) [3]int64 {
+				var k [3]int64
+				for x := range q {
+					w := q[x] - math.Floor(q[x])
+					k[x] = int64(math.Round(w*1e9)) % 1_000_000_000
+				}
+				return k
+			}
+			hasGamma := false
+			var wsum float64
+			for i, p := range pts {
+				set[key(p.Q)] = true
+				hasGamma = hasGamma || p.Q == [3]float64{}
+				wsum += p.Weight
+				if spec.Point(i) != p {
+					t.Fatalf("Point(%d) = %v; Points()[%d] = %v", i, spec.Point(i), i, p)
+				}
+				for k := m.Dim(); k < 3; k++ {
+					if p.Q[k] != 0 {
+						t.Fatalf("q = %v: component %d must be 0", p.Q, k)
+					}
+				}
+			}
+			if hasGamma == tc.shifted {
+				t.Errorf("Γ in grid: %v; shifted: %v", hasGamma, tc.shifted)
+			}
+			if tc.shifted {
+				for _, p := range pts {
+					if !set[key([3]float64{-p.Q[0], -p.Q[1], -p.Q[2]})] {
+						t.Errorf("−q of %v missing", p.Q)
+					}
+				}
+			}
+			if math.Abs(wsum-1) > 1e-12 || len(set) != len(pts) {
+				t.Errorf("weights %v, %d distinct of %d", wsum, len(set), len(pts))
+			}
+		})
+	}
+}
+
+// TestGridModesMatchesPoints: GridModes frequencies, eigenvectors and site
+// weights equal those of single points.
+func TestGridModesMatchesPoints(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	g, err := m.GridModes(testCtx(t), GridSpec{Mesh: [3]int{3, 2, 4}}, GridOptions{Projections: true, Eigenvectors: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := m.Modes()
+	for i, p := range g.Points {
+		f, v := m.ModesAt(p.Q)
+		if !closeSlices(g.FreqTHz[i*n:(i+1)*n], f, 1e-14) {
+			t.Fatalf("point %d: %v; want %v", i, g.FreqTHz[i*n:(i+1)*n], f)
+		}
+		for k := 0; k < n; k++ {
+			var w [2]float64
+			for c := 0; c < n; c++ {
+				z := v[k*n+c]
+				w[c/3] += real(z)*real(z) + imag(z)*imag(z)
+				if g.Eigvecs[(i*n+k)*n+c] != z {
+					t.Fatalf("point %d: eigenvectors differ", i)
+				}
+			}
+			for s := 0; s < 2; s++ {
+				if math.Abs(g.SiteWeight[(i*n+k)*2+s]-w[s]) > 1e-14 {
+					t.Fatalf("point %d mode %d: site weight %v; want %v", i, k, g.SiteWeight[(i*n+k)*2+s], w[s])
+				}
+			}
+		}
+	}
+}
+
+// TestGridModesCancel: a cancelled context stops GridModes with its error.
+func TestGridModesCancel(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := m.GridModes(ctx, GridSpec{Mesh: [3]int{64, 64, 64}}, GridOptions{}); !errors.Is(err, context.Canceled) {
+		t.Fatalf("err = %v; want context.Canceled", err)
 	}
 }

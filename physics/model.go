@@ -1,3 +1,6 @@
+// The model as a caller describes it: Crystal and its parts, the physics
+// twin of the modegrid.v1.Crystal message.
+
 package physics
 
 // ForceUnit is the unit of spring constants and force-constant blocks in a

@@ -1,25 +1,345 @@
+// Normal modes at single q-points and streamed over q-point lists.
+
 package physics
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"runtime"
+	"sync"
+	"sync/atomic"
+)
+
+// ImaginaryTolTHz is the magnitude (THz) below which a negative frequency
+// is rounding noise rather than an imaginary mode. Eigenvalue errors are a
+// few ε of the largest eigenvalue, which for any plausible model (up to
+// 1000 THz) is below 1e-4 THz near zero frequency; 1e-3 THz (0.03 cm⁻¹)
+// stays far below any physically meaningful soft mode (common practice).
+const ImaginaryTolTHz = 1e-3
+
+// DefaultChunkBytes bounds the memory of one streamed chunk when
+// ModeOptions.ChunkSize is 0: 4 MiB, so that a stream holds only a few
+// such chunks at once whatever the grid size.
+const DefaultChunkBytes = 4 << 20
+
+// DefaultChunkPoints is the largest default chunk, in points.
+const DefaultChunkPoints = 1024
+
+// ModeOptions selects what StreamModes computes beyond frequencies.
+type ModeOptions struct {
+	Eigenvectors bool // normalised eigenvectors of D(q)
+	Velocities   bool // group velocities, km/s
+	// ChunkSize is the number of points per emitted chunk; 0 chooses one
+	// from DefaultChunkBytes.
+	ChunkSize int
+	// VelocityDir (Cartesian, any length) is the direction used to split
+	// degenerate modes for their group velocities: inside a degenerate
+	// subspace the modes returned are the eigenvectors of VelocityDir·∂D/∂q
+	// (first-order degenerate perturbation theory along that direction).
+	// Zero means a fixed generic direction. See velocity.go.
+	VelocityDir [3]float64
+}
+
+// PointModes holds the modes at one q-point.
+type PointModes struct {
+	Q      [3]float64 // fractional reciprocal coordinates
+	Weight float64
+	// FreqTHz are the frequencies, ascending, THz; imaginary modes are
+	// negative.
+	FreqTHz []float64
+	// Imaginary is true when any mode is below −ImaginaryTolTHz.
+	Imaginary bool
+	// Eigvecs are the normalised eigenvectors of D(q), mode-major:
+	// Eigvecs[k*n+c] is component c = site·p + axis of mode k (phase
+	// convention of doc.go). Nil unless asked.
+	Eigvecs []complex128
+	// VelKmS[k] is the group velocity ∂ω/∂q of mode k, Cartesian, km/s.
+	// Nil unless asked.
+	VelKmS [][3]float64
+}
+
+// ModeChunk is a run of consecutive points of a StreamModes call; Offset
+// is the index of Points[0] in the caller's list.
+type ModeChunk struct {
+	Offset int
+	Points []PointModes
+}
+
+// imaginary reports a frequency list with a mode below −ImaginaryTolTHz.
+func imaginary(freqTHz []float64) bool {
+	for _, f := range freqTHz {
+		if f < -ImaginaryTolTHz {
+			return true
+		}
+	}
+	return false
+}
+
+// pointWork is one worker's reusable state for the modes at one q-point:
+// nothing is allocated per point once it is warm.
+type pointWork struct {
+	m    *Model
+	eig  *eigenWork
+	ph   phaseTable
+	vel  *velWork // lazily, for group velocities
+	done <-chan struct{}
+}
+
+func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
+	w := &pointWork{m: m, eig: newEigenWork(m.Modes()), done: done}
+	w.eig.done = done
+	return w
+}
+
+// solve diagonalises D(q) into w.eig.vals (eigenvalues, eV/Å²/amu,
+// ascending) and, with vectors, w.eig.vecs. It returns false if stopped.
+func (w *pointWork) solve(q [3]float64, vectors bool) bool {
+	w.m.assemble(q, w.eig.a, &w.ph)
+	switch w.eig.solve(vectors) {
+	case solveStopped:
+		return false
+	case solveNoConverge:
+		// Never seen on finite input; the real embedding is the
+		// slower, independent second opinion.
+		vals, vecs := embeddedEigen(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
+		copy(w.eig.vals, vals)
+		if vectors {
+			copy(w.eig.vecs, vecs)
+		}
+	}
+	return true
+}
+
+// freqs converts the eigenvalues of the last solve to THz into out.
+func (w *pointWork) freqs(out []float64) {
+	for k, v := range w.eig.vals {
+		out[k] = eigToTHz(v)
+	}
+}
 
 // FrequenciesTHz returns the mode frequencies at q (fractional reciprocal
 // coordinates) in THz, ascending; imaginary modes are negative.
 func (m *Model) FrequenciesTHz(q [3]float64) []float64 {
-	n := m.Modes()
-	d := m.DynamicalMatrix(q, nil)
-	vals, _ := hermitianEigen(d, n, false)
-	for k, v := range vals {
-		vals[k] = eigToTHz(v)
-	}
-	return vals
+	w := m.newPointWork(nil)
+	w.solve(q, false)
+	out := make([]float64, m.Modes())
+	w.freqs(out)
+	return out
 }
 
 // ModesAt returns the frequencies at q (THz, ascending) and the normalised
 // eigenvectors of D(q), mode-major (vecs[k*n+c], c = site·p + axis).
 func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
+	w := m.newPointWork(nil)
+	w.solve(q, true)
+	out := make([]float64, m.Modes())
+	w.freqs(out)
+	return out, w.eig.vecs
+}
+
+// Point returns the modes at one q-point with the options' extras
+// (ChunkSize is ignored).
+func (m *Model) Point(q [3]float64, opt ModeOptions) PointModes {
+	w := m.newPointWork(nil)
 	n := m.Modes()
-	d := m.DynamicalMatrix(q, nil)
-	vals, vecs := hermitianEigen(d, n, true)
-	for k, v := range vals {
-		vals[k] = eigToTHz(v)
+	pm := PointModes{Q: q, Weight: 1, FreqTHz: make([]float64, n)}
+	if opt.Eigenvectors {
+		pm.Eigvecs = make([]complex128, n*n)
 	}
-	return vals, vecs
+	if opt.Velocities {
+		pm.VelKmS = make([][3]float64, n)
+	}
+	w.point(&pm, opt)
+	return pm
+}
+
+// point fills pm (whose slices are allocated to size) at pm.Q; it returns
+// false if stopped.
+func (w *pointWork) point(pm *PointModes, opt ModeOptions) bool {
+	vectors := opt.Eigenvectors || opt.Velocities
+	if !w.solve(pm.Q, vectors) {
+		return false
+	}
+	if opt.Velocities {
+		if w.vel == nil {
+			w.vel = newVelWork(w.m)
+		}
+		if !w.vel.velocities(w, pm.Q, opt.VelocityDir, pm.VelKmS) {
+			return false
+		}
+	}
+	w.freqs(pm.FreqTHz)
+	pm.Imaginary = imaginary(pm.FreqTHz)
+	if opt.Eigenvectors {
+		copy(pm.Eigvecs, w.eig.vecs)
+	}
+	return true
+}
+
+// chunkPoints is the chunk size StreamModes uses for opt.
+func (m *Model) chunkPoints(opt ModeOptions) int {
+	if opt.ChunkSize > 0 {
+		return opt.ChunkSize
+	}
+	n := m.Modes()
+	per := 8*n + 64 // frequencies and the point record
+	if opt.Eigenvectors {
+		per += 16 * n * n
+	}
+	if opt.Velocities {
+		per += 24 * n
+	}
+	return max(1, min(DefaultChunkPoints, DefaultChunkBytes/per))
+}
+
+// StreamModes computes the modes at every point of pts on all cores and
+// calls emit with consecutive chunks of at most ChunkSize points, in q
+// order, from the calling goroutine. At most a few chunks exist at once
+// (two per core), so memory stays bounded on any number of points even with
+// eigenvectors. A chunk and its slices belong to emit once passed.
+//
+// It stops promptly when ctx is done (workers poll it between points and,
+// for large matrices, inside the eigensolver) and returns ctx.Err(); an
+// error from emit stops the work and is returned as is. Points are checked
+// first with ValidateQPoints (fields "points[i].q1" …).
+func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
+	if err := ValidateQPoints(m.dim, pts, "points"); err != nil {
+		return err
+	}
+	if emit == nil {
+		return errors.New("physics: StreamModes needs an emit function")
+	}
+	if len(pts) == 0 {
+		return ctx.Err()
+	}
+	chunk := m.chunkPoints(opt)
+	nchunks := (len(pts) + chunk - 1) / chunk
+	workers := min(runtime.GOMAXPROCS(0), nchunks)
+	window := 2 * workers
+
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	slots := make([]chan ModeChunk, window)
+	for k := range slots {
+		slots[k] = make(chan ModeChunk, 1)
+	}
+	tokens := make(chan struct{}, window)
+	for k := 0; k < window; k++ {
+		tokens <- struct{}{}
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	n := m.Modes()
+	for wk := 0; wk < workers; wk++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w := m.newPointWork(ctx.Done())
+			for {
+				select {
+				case <-tokens:
+				case <-ctx.Done():
+					return
+				}
+				c := int(next.Add(1) - 1)
+				if c >= nchunks {
+					return
+				}
+				lo, hi := c*chunk, min((c+1)*chunk, len(pts))
+				mc, ok := w.chunk(pts[lo:hi], lo, n, opt)
+				if !ok {
+					return
+				}
+				if testHookChunkDone != nil {
+					testHookChunkDone(c)
+				}
+				slots[c%window] <- mc
+			}
+		}()
+	}
+	var err error
+	for c := 0; c < nchunks && err == nil; c++ {
+		select {
+		case mc := <-slots[c%window]:
+			if e := emit(mc); e != nil {
+				err = e
+			}
+			tokens <- struct{}{}
+		case <-ctx.Done():
+			err = ctx.Err()
+		}
+	}
+	cancel()
+	wg.Wait()
+	return err
+}
+
+// testHookChunkDone, when set by a test, is called from the worker that
+// finished chunk c, before the chunk is handed to the emitter.
+var testHookChunkDone func(c int)
+
+// chunk computes one chunk; false if stopped.
+func (w *pointWork) chunk(pts []QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
+	mc := ModeChunk{Offset: offset, Points: make([]PointModes, len(pts))}
+	freq := make([]float64, len(pts)*n)
+	var vecs []complex128
+	if opt.Eigenvectors {
+		vecs = make([]complex128, len(pts)*n*n)
+	}
+	var vel [][3]float64
+	if opt.Velocities {
+		vel = make([][3]float64, len(pts)*n)
+	}
+	for i, p := range pts {
+		if w.stopped() {
+			return mc, false
+		}
+		pm := &mc.Points[i]
+		pm.Q, pm.Weight = p.Q, p.Weight
+		pm.FreqTHz = freq[i*n : (i+1)*n : (i+1)*n]
+		if vecs != nil {
+			pm.Eigvecs = vecs[i*n*n : (i+1)*n*n : (i+1)*n*n]
+		}
+		if vel != nil {
+			pm.VelKmS = vel[i*n : (i+1)*n : (i+1)*n]
+		}
+		if !w.point(pm, opt) {
+			return mc, false
+		}
+	}
+	return mc, true
+}
+
+func (w *pointWork) stopped() bool {
+	if w.done == nil {
+		return false
+	}
+	select {
+	case <-w.done:
+		return true
+	default:
+		return false
+	}
+}
+
+// ValidateQPoints checks explicit q-points for a d-dimensional crystal:
+// every component finite and the components past d zero. Violations name
+// fields prefix[i].q1 … q3.
+func ValidateQPoints(dim int, pts []QPoint, prefix string) error {
+	var vs violations
+	for i, p := range pts {
+		for k, x := range p.Q {
+			switch {
+			case !finite(x):
+				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be finite, got %v", x)
+			case k >= dim && x != 0:
+				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, x)
+			}
+		}
+		if !finite(p.Weight) {
+			vs.add(fmt.Sprintf("%s[%d].weight", prefix, i), "must be finite, got %v", p.Weight)
+		}
+	}
+	return vs.err()
 }

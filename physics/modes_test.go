@@ -61,3 +61,255 @@ func TestFCCNearestNeighbour(t *testing.T) {
 		}
 	}
 }
+
+// TestDiatomicChain checks the two-site chain (masses m < M, spring K):
+// Γ optical sqrt(2K(1/m + 1/M)), zone boundary sqrt(2K/M) (acoustic top)
+// and sqrt(2K/m) (optical bottom), and zero at Γ (Kittel, Introduction to
+// Solid State Physics, ch. 4, diatomic lattice).
+func TestDiatomicChain(t *testing.T) {
+	c := loadExample(t, "diatomic-chain")
+	m := mustCompile(t, c)
+	K := c.Springs[0].KLong
+	lo, hi := c.Sites[0].MassAmu, c.Sites[1].MassAmu // 20 and 50 amu
+	cases := []struct {
+		name string
+		q    float64
+		want [2]float64 // ω²/(K) per branch, ascending, amu⁻¹
+	}{
+		{"Γ", 0, [2]float64{0, 2 * (1/lo + 1/hi)}},
+		{"zone boundary", 0.5, [2]float64{2 / hi, 2 / lo}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			got := m.FrequenciesTHz([3]float64{tc.q})
+			for k, w := range tc.want {
+				want := math.Sqrt(w*K) * NuUnitTHz
+				if math.Abs(got[k]-want) > 1e-9*NuUnitTHz {
+					t.Errorf("branch %d: %.12g THz; want %.12g", k+1, got[k], want)
+				}
+			}
+		})
+	}
+	// Whole dispersion: ω² = K(1/m+1/M) ∓ K sqrt((1/m+1/M)² − 4 sin²(qa/2)/(mM))
+	// for springs K between neighbours a/2 apart (Kittel ch. 4, the
+	// two-atom chain, with C = K).
+	for _, q := range []float64{0.1, 0.23, 0.37} {
+		s := math.Sin(math.Pi * q)
+		mu := 1/lo + 1/hi
+		root := math.Sqrt(mu*mu - 4*s*s/(lo*hi))
+		got := m.FrequenciesTHz([3]float64{q})
+		for k, w2 := range []float64{K * (mu - root), K * (mu + root)} {
+			if want := math.Sqrt(w2) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+				t.Errorf("q=%v branch %d: %.12g; want %.12g", q, k+1, got[k], want)
+			}
+		}
+	}
+}
+
+// TestFCCNearestNeighbourWK extends TestFCCNearestNeighbour to W and K:
+// W = (2π/a)(1, ½, 0): ω²M/K = 6, 6, 4 … ascending 4, 6, 6; K = (2π/a)(¾, ¾,
+// 0): 4+2√2, 4+√2, 2+√2 (../shared reference values, from the standard NN
+// dynamical matrix D = (K/M) Σ_δ (1 − cos q·δ) δ̂δ̂ᵀ, Ashcroft & Mermin
+// ch. 22). Fractional coordinates of W and K are those of Setyawan &
+// Curtarolo (2010) for the fcc primitive cell of the example.
+func TestFCCNearestNeighbourWK(t *testing.T) {
+	c := loadExample(t, "fcc")
+	m := mustCompile(t, c)
+	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
+	r2 := math.Sqrt2
+	for _, tc := range []struct {
+		name string
+		q    [3]float64
+		want []float64
+	}{
+		{"W", [3]float64{0.5, 0.25, 0.75}, []float64{4, 6, 6}},
+		{"K", [3]float64{3.0 / 8, 3.0 / 8, 3.0 / 4}, []float64{2 + r2, 4 + r2, 4 + 2*r2}},
+	} {
+		got := m.FrequenciesTHz(tc.q)
+		for k, w := range tc.want {
+			if want := math.Sqrt(w*K/M) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+				t.Errorf("%s branch %d: %.12g THz; want %.12g", tc.name, k+1, got[k], want)
+			}
+		}
+	}
+}
+
+// TestSquareNet: NN springs K and diagonal springs K′ = K/2 on the square
+// net (p = 2): at X ω²M/K = 2, 6 and at M 4, 4; with K′ = 0 the transverse
+// branch is flat at zero along Γ–X (../shared reference values; derived
+// from D = Σ_δ k_δ (1 − cos q·δ) δ̂δ̂ᵀ/M: at X = (π/a, 0) the NN bonds along
+// x give 4K on xx, the four diagonals 2K′ on each of xx and yy).
+func TestSquareNet(t *testing.T) {
+	c := loadExample(t, "square-net")
+	m := mustCompile(t, c)
+	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
+	if c.Shells[1].KLong != K/2 {
+		t.Fatalf("example changed: K′ = %v, want K/2", c.Shells[1].KLong)
+	}
+	for _, tc := range []struct {
+		name string
+		q    [3]float64
+		want []float64
+	}{
+		{"X", [3]float64{0.5, 0, 0}, []float64{2, 6}},
+		{"M", [3]float64{0.5, 0.5, 0}, []float64{4, 4}},
+	} {
+		got := m.FrequenciesTHz(tc.q)
+		for k, w := range tc.want {
+			if want := math.Sqrt(w*K/M) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+				t.Errorf("%s branch %d: %.12g THz; want %.12g", tc.name, k+1, got[k], want)
+			}
+		}
+	}
+	c.Shells = c.Shells[:1] // K′ = 0
+	m = mustCompile(t, c)
+	for _, x := range []float64{0.1, 0.25, 0.4, 0.5} {
+		got := m.FrequenciesTHz([3]float64{x, 0, 0})
+		if math.Abs(got[0]) > 1e-6 {
+			t.Errorf("K′=0, q=(%v,0): transverse %.3g THz; want 0", x, got[0])
+		}
+		// Longitudinal: ω = 2 sqrt(K/M) |sin(πx)| (the chain along x).
+		if want := 2 * math.Sqrt(K/M) * math.Sin(math.Pi*x) * NuUnitTHz; !relClose(got[1], want, 1e-10) {
+			t.Errorf("K′=0, q=(%v,0): longitudinal %.12g; want %.12g", x, got[1], want)
+		}
+	}
+}
+
+// springBlock is the force-constant block of a spring along r (Å):
+// Φ = −(k∥ e eᵀ + k⊥ (1 − e eᵀ)) (doc.go).
+func springBlock(r [3]float64, kl, kt float64) []float64 {
+	l := norm3(r)
+	phi := make([]float64, 9)
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			ee := r[a] * r[b] / (l * l)
+			id := 0.0
+			if a == b {
+				id = 1
+			}
+			phi[3*a+b] = -(kl*ee + kt*(id-ee))
+		}
+	}
+	return phi
+}
+
+// TestBlocksEqualSprings: the rock-salt-like crystal given as explicit
+// blocks (the spring blocks of its shells, common practice) has the same
+// spectrum as its shell form, and the sum rule builds the self terms.
+func TestBlocksEqualSprings(t *testing.T) {
+	c := loadExample(t, "rocksalt-like")
+	ref := mustCompile(t, c)
+	bc := &Crystal{Lattice: c.Lattice, Sites: c.Sites, ForceUnit: c.ForceUnit}
+	for _, sh := range c.Shells {
+		bonds, _, err := ref.findShell(sh, Limits{}.withDefaults())
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, b := range bonds {
+			r := sub3(add3(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
+			bc.Blocks = append(bc.Blocks, Block{From: b.i, To: b.j, Cell: b.n[:], Phi: springBlock(r, sh.KLong, sh.KTrans)})
+		}
+	}
+	m := mustCompile(t, bc)
+	if m.SumRuleViolation() != 0 {
+		t.Errorf("no on-site block given: violation %v; want 0", m.SumRuleViolation())
+	}
+	for _, q := range [][3]float64{{0, 0, 0}, {0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0.5, 0, 0.5}} {
+		if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSlices(got, want, 1e-12) {
+			t.Errorf("q=%v: blocks %v; springs %v", q, got, want)
+		}
+	}
+}
+
+// TestSumRuleReportAndEnforcement: an on-site block that breaks the
+// acoustic sum rule Σ_{j,n} Φ(0i; nj) = 0 (Born & Huang, Dynamical Theory of
+// Crystal Lattices, §23; common practice) is reported as the largest
+// component of that sum, moves the acoustic modes at Γ off zero, and is
+// replaced when enforcement is asked.
+func TestSumRuleReportAndEnforcement(t *testing.T) {
+	c := &Crystal{
+		Lattice:       [][3]float64{{3, 0, 0}},
+		Polarizations: 1,
+		Sites:         []Site{{Label: "A", MassAmu: 12, Frac: []float64{0}}},
+		Blocks: []Block{
+			{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-1.5, 0, 0, 0, 0, 0, 0, 0, 0}},
+			// Correct on-site value 2·1.5 = 3; given 3.2: violation 0.2.
+			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{3.2, 0, 0, 0, 0, 0, 0, 0, 0}},
+		},
+	}
+	plain := mustCompile(t, c)
+	if v := plain.SumRuleViolation(); math.Abs(v-0.2) > 1e-12 {
+		t.Errorf("violation %v eV/Å²; want 0.2", v)
+	}
+	// Γ: ω² = 0.2/M.
+	if got, want := plain.FrequenciesTHz([3]float64{})[0], math.Sqrt(0.2/12)*NuUnitTHz; !relClose(got, want, 1e-10) {
+		t.Errorf("unenforced Γ: %v THz; want %v", got, want)
+	}
+	enforced, err := Compile(c, Options{EnforceSumRule: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if v := enforced.SumRuleViolation(); math.Abs(v-0.2) > 1e-12 {
+		t.Errorf("violation is reported before enforcement: %v; want 0.2", v)
+	}
+	if got := enforced.FrequenciesTHz([3]float64{})[0]; math.Abs(got) > 1e-9 {
+		t.Errorf("enforced Γ: %v THz; want 0", got)
+	}
+	// Enforced spectrum is the chain's: 2 sqrt(K/M)|sin(πq)| (Kittel ch. 4).
+	if got, want := enforced.FrequenciesTHz([3]float64{0.3})[0], 2*math.Sqrt(1.5/12)*math.Sin(0.3*math.Pi)*NuUnitTHz; !relClose(got, want, 1e-10) {
+		t.Errorf("enforced q=0.3: %v; want %v", got, want)
+	}
+	if plain.Hash() == enforced.Hash() {
+		t.Error("enforcing a violated sum rule changes results, so it must change the hash")
+	}
+}
+
+// TestImaginaryModes: a negative spring gives ω² < 0, reported as a
+// negative frequency −sqrt(|ω²|) (common practice) with the point flagged.
+func TestImaginaryModes(t *testing.T) {
+	c := &Crystal{
+		Lattice:       [][3]float64{{2, 0, 0}},
+		Polarizations: 1,
+		Sites:         []Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
+		Springs: []Spring{
+			{From: 0, To: 0, Cell: []int{1}, KLong: 1},
+			{From: 0, To: 0, Cell: []int{2}, KLong: -0.5},
+		},
+	}
+	m := mustCompile(t, c)
+	// ω² = (4/M)(K₁ sin²(πq) + K₂ sin²(2πq)) for first and second
+	// neighbours (Kittel ch. 4, problem on second-neighbour forces).
+	for _, q := range []float64{0.05, 0.2, 0.5} {
+		w2 := 4 / 4.0 * (1*math.Pow(math.Sin(math.Pi*q), 2) - 0.5*math.Pow(math.Sin(2*math.Pi*q), 2))
+		want := math.Copysign(math.Sqrt(math.Abs(w2)), w2) * NuUnitTHz
+		pm := m.Point([3]float64{q}, ModeOptions{})
+		if !relClose(pm.FreqTHz[0], want, 1e-10) {
+			t.Errorf("q=%v: %.12g THz; want %.12g", q, pm.FreqTHz[0], want)
+		}
+		if pm.Imaginary != (want < -ImaginaryTolTHz) {
+			t.Errorf("q=%v: Imaginary = %v for %v THz", q, pm.Imaginary, want)
+		}
+	}
+}
+
+// TestFrequencyUnits: 1 THz = 4.135667697 meV = 33.35640952 cm⁻¹ =
+// 2π·10¹² rad/s (CODATA 2018, ../shared reference values, 1e-9
+// relative).
+func TestFrequencyUnits(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		u    Unit
+		want float64
+	}{
+		{"THz", THz, 1}, {"meV", MeV, 4.135667697}, {"cm-1", CM1, 33.35640952}, {"rad/s", RadPerS, 2 * math.Pi * 1e12},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := tc.u.FromTHz(1); !relClose(got, tc.want, 1e-9) {
+				t.Errorf("1 THz = %.10g; want %.10g", got, tc.want)
+			}
+			if got := tc.u.ToTHz(tc.u.FromTHz(2.5)); !relClose(got, 2.5, 1e-15) {
+				t.Errorf("round trip 2.5 THz = %v", got)
+			}
+		})
+	}
+}

@@ -85,3 +85,15 @@ func eigToTHz(lambda float64) float64 {
 	}
 	return math.Sqrt(lambda) * NuUnitTHz
 }
+
+// Thermal units per mole (added with the thermal properties, issue 4).
+// Thermal quantities are computed per cell; a mole of cells is N_A cells,
+// so 1 eV per cell is e·N_A = 96.48533212 kJ/mol (the Faraday constant,
+// CODATA 2018, exact).
+
+// EVToKJPerMol converts an energy per cell in eV to kJ per mole of cells.
+func EVToKJPerMol(x float64) float64 { return x * ElementaryChargeC * AvogadroPerMol / 1e3 }
+
+// EVPerKToJPerMolK converts an entropy or heat capacity per cell in eV/K to
+// J/(mol·K) per mole of cells.
+func EVPerKToJPerMolK(x float64) float64 { return x * ElementaryChargeC * AvogadroPerMol }

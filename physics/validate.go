@@ -1,3 +1,6 @@
+// Validation of a Crystal: every violation at once, each with its field
+// path (proto snake_case names) and the bad value; the size limits.
+
 package physics
 
 import (
@@ -41,6 +44,11 @@ const (
 	// CoincidenceTolA is the distance (Å) below which two sites are on the
 	// same point.
 	CoincidenceTolA = 1e-6
+	// DegenerateLatticeRel is the smallest accepted ratio of the cell's
+	// length, area or volume to the product of its vector lengths (the
+	// sine of the angle for two vectors): below it the reciprocal vectors
+	// lose most of their digits.
+	DegenerateLatticeRel = 1e-6
 )
 
 // Violation is one validation failure: the field path (proto field names,
@@ -116,9 +124,18 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		}
 	}
 	if latticeOK {
-		if m := gramMeasure(c.Lattice); m < LatticeTolA {
-			what := [...]string{"", "length", "area", "volume"}[d]
+		m := gramMeasure(c.Lattice)
+		prod := 1.0
+		for _, v := range c.Lattice {
+			prod *= norm3(v)
+		}
+		what := [...]string{"", "length", "area", "volume"}[d]
+		switch {
+		case m < LatticeTolA:
 			vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
+			latticeOK = false
+		case m < DegenerateLatticeRel*prod:
+			vs.add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
 			latticeOK = false
 		}
 	}
@@ -266,8 +283,24 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	for _, s := range c.Sites {
 		labels[s.Label] = true
 	}
+	type shellKey struct {
+		a, b  string
+		shell int
+	}
+	seenShells := map[shellKey]int{}
 	for idx, s := range c.Shells {
 		f := fmt.Sprintf("shells[%d]", idx)
+		// A shell between A and B is the same set of bonds as between B
+		// and A.
+		sk := shellKey{s.FromLabel, s.ToLabel, s.Shell}
+		if sk.b < sk.a {
+			sk.a, sk.b = sk.b, sk.a
+		}
+		if prev, dup := seenShells[sk]; dup {
+			vs.add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
+		} else {
+			seenShells[sk] = idx
+		}
 		if !labels[s.FromLabel] {
 			vs.add(f+".from_label", "no site has label %q", s.FromLabel)
 		}

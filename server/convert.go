@@ -1,12 +1,6 @@
 package server
 
 import (
-	"errors"
-
-	"google.golang.org/genproto/googleapis/rpc/errdetails"
-	"google.golang.org/grpc/codes"
-	"google.golang.org/grpc/status"
-
 	"github.com/materials-lab/modegrid/physics"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
@@ -50,36 +44,4 @@ func ints(v []int32) []int {
 		out[i] = int(x)
 	}
 	return out
-}
-
-// invalidArgument builds an INVALID_ARGUMENT status carrying every
-// violation as a google.rpc.BadRequest field violation. prefix is prepended
-// to each field path (e.g. "model.crystal.").
-func invalidArgument(prefix string, vs []physics.Violation) error {
-	br := &errdetails.BadRequest{}
-	msg := "invalid request: "
-	for i, v := range vs {
-		br.FieldViolations = append(br.FieldViolations, &errdetails.BadRequest_FieldViolation{
-			Field:       prefix + v.Field,
-			Description: v.Description,
-		})
-		if i > 0 {
-			msg += "; "
-		}
-		msg += prefix + v.Field + ": " + v.Description
-	}
-	st, err := status.New(codes.InvalidArgument, msg).WithDetails(br)
-	if err != nil {
-		return status.Error(codes.InvalidArgument, msg)
-	}
-	return st.Err()
-}
-
-// compileError turns a physics compile error into a status error.
-func compileError(prefix string, err error) error {
-	var ve *physics.ValidationError
-	if errors.As(err, &ve) {
-		return invalidArgument(prefix, ve.Violations)
-	}
-	return status.Errorf(codes.Internal, "compile model: %v", err)
 }

@@ -2,11 +2,15 @@ package main
 
 import (
 	"bytes"
+	"net"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 )
+
+// The CLI tests run the command in-process: run() starts the embedded
+// server on a loopback port and calls it over real gRPC, as the binary does.
 
 func runCLI(t *testing.T, args ...string) (int, string, string) {
 	t.Helper()
@@ -17,48 +21,119 @@ func runCLI(t *testing.T, args ...string) (int, string, string) {
 
 var exampleDir = filepath.Join("..", "..", "..", "proto", "examples")
 
-func TestModesCSVHeader(t *testing.T) {
-	code, out, errs := runCLI(t, "modes", "--model", filepath.Join(exampleDir, "fcc.json"), "--q", "0,0,0;0.5,0,0.5", "--format", "csv")
-	if code != 0 {
-		t.Fatalf("exit %d: %s", code, errs)
+func example(name string) string { return filepath.Join(exampleDir, name+".json") }
+
+func testdata(name string) string { return filepath.Join("testdata", name) }
+
+// TestExitCodes: every exit code, with a one-sentence message on stderr
+// that starts with "modegrid:" and never a stack trace.
+func TestExitCodes(t *testing.T) {
+	outDir := filepath.Join(t.TempDir(), "no", "such", "dir")
+	tests := []struct {
+		name       string
+		args       []string
+		want       int
+		wantStderr []string
+	}{
+		{name: "success", args: []string{"modes", "-m", example("chain"), "--q", "0.5"}, want: exitOK},
+		{name: "help", args: []string{"help"}, want: exitOK},
+		{name: "command help", args: []string{"dos", "-h"}, want: exitOK, wantStderr: []string{"usage: modegrid dos", "-per-site"}},
+		{name: "no command", args: nil, want: exitUsage, wantStderr: []string{"usage: modegrid"}},
+		{name: "unknown command", args: []string{"nonsense"}, want: exitUsage, wantStderr: []string{`unknown command "nonsense"`}},
+		{name: "unknown flag", args: []string{"modes", "--frobnicate"}, want: exitUsage, wantStderr: []string{"frobnicate"}},
+		{name: "missing model", args: []string{"modes", "--q", "0"}, want: exitUsage, wantStderr: []string{"--model FILE is required"}},
+		{name: "model file absent", args: []string{"check", "-m", "no-such-model.json"}, want: exitUsage, wantStderr: []string{"no-such-model.json does not exist"}},
+		{name: "bad q", args: []string{"modes", "-m", example("chain"), "--q", "0.5,x"}, want: exitUsage, wantStderr: []string{`--q: q-point 1 "0.5,x": component 2: "x" is not a number`}},
+		{name: "no q-set", args: []string{"modes", "-m", example("chain")}, want: exitUsage, wantStderr: []string{"--q, --grid or --cells"}},
+		{name: "two q-sets", args: []string{"modes", "-m", example("chain"), "--q", "0", "--grid", "4"}, want: exitUsage, wantStderr: []string{"only one of"}},
+		{name: "bad grid", args: []string{"dos", "-m", example("chain"), "--grid", "4x"}, want: exitUsage, wantStderr: []string{"--grid"}},
+		{name: "shift without grid", args: []string{"dos", "-m", example("chain"), "--shift"}, want: exitUsage, wantStderr: []string{"--shift needs --grid"}},
+		{name: "bad unit", args: []string{"modes", "-m", example("chain"), "--q", "0", "--unit", "hz"}, want: exitUsage, wantStderr: []string{"--unit must be thz, mev or cm-1"}},
+		{name: "bad format", args: []string{"modes", "-m", example("chain"), "--q", "0", "--format", "xml"}, want: exitUsage, wantStderr: []string{"--format must be"}},
+		{name: "bad plot name", args: []string{"dos", "-m", example("chain"), "--plot", "x.jpg"}, want: exitUsage, wantStderr: []string{".png or .svg"}},
+		{name: "bad method", args: []string{"dos", "-m", example("chain"), "--method", "magic"}, want: exitUsage, wantStderr: []string{"--method must be"}},
+		{name: "bad temps", args: []string{"thermal", "-m", example("chain"), "--temps", "300:0:10"}, want: exitUsage, wantStderr: []string{"--temps", "below start"}},
+		{name: "bad path", args: []string{"path", "-m", example("chain"), "--path", "G"}, want: exitUsage, wantStderr: []string{"at least two corners"}},
+		{name: "positional argument", args: []string{"modes", "-m", example("chain"), "--q", "0", "extra"}, want: exitUsage, wantStderr: []string{`unexpected argument "extra"`}},
+		{name: "tls without server", args: []string{"modes", "-m", example("chain"), "--q", "0", "--tls"}, want: exitUsage, wantStderr: []string{"need --server"}},
+		{name: "invalid model", args: []string{"modes", "-m", testdata("bad.json"), "--q", "0,0"}, want: exitInvalid,
+			wantStderr: []string{"lattice", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to"}},
+		{name: "check invalid model", args: []string{"check", "-m", testdata("bad.json")}, want: exitInvalid,
+			wantStderr: []string{"is invalid", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to"}},
+		{name: "model file syntax", args: []string{"check", "-m", testdata("syntax-error.json")}, want: exitInvalid, wantStderr: []string{"syntax-error.json is not a valid model"}},
+		{name: "model file unknown key", args: []string{"check", "-m", testdata("unknown-key.json")}, want: exitInvalid, wantStderr: []string{"polarisations"}},
+		{name: "q past the dimension", args: []string{"modes", "-m", example("chain"), "--q", "0.5,0.5"}, want: exitInvalid, wantStderr: []string{"qpoints", "q2"}},
+		{name: "server unreachable", args: []string{"modes", "--server", closedPort(t), "-m", example("chain"), "--q", "0.5"}, want: exitUnreachable,
+			wantStderr: []string{"server is unreachable", "connection refused"}},
+		{name: "output not writable", args: []string{"modes", "-m", example("chain"), "--q", "0.5", "--out", filepath.Join(outDir, "x.csv")}, want: exitOther,
+			wantStderr: []string{"cannot write the output"}},
 	}
-	lines := strings.Split(strings.TrimSpace(out), "\n")
-	if lines[0] != "q1,q2,q3,branch,frequency_thz" {
-		t.Errorf("header %q", lines[0])
-	}
-	if len(lines) != 1+2*3 { // 2 q-points × 3 branches
-		t.Errorf("got %d lines; want 7", len(lines))
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			code, _, stderr := runCLI(t, tc.args...)
+			if code != tc.want {
+				t.Fatalf("exit %d; want %d; stderr:\n%s", code, tc.want, stderr)
+			}
+			for _, s := range tc.wantStderr {
+				if !strings.Contains(stderr, s) {
+					t.Errorf("stderr does not contain %q:\n%s", s, stderr)
+				}
+			}
+			if code != exitOK && len(tc.args) > 0 && !strings.HasPrefix(stderr, "modegrid: ") {
+				t.Errorf("stderr does not start with \"modegrid: \":\n%s", stderr)
+			}
+			for _, bad := range []string{"goroutine ", "panic", ".go:"} {
+				if strings.Contains(stderr, bad) {
+					t.Errorf("stderr looks like a stack trace (%q):\n%s", bad, stderr)
+				}
+			}
+		})
 	}
 }
 
-// TestInvalidModelExit: an invalid model exits 3 and names every bad field.
-func TestInvalidModelExit(t *testing.T) {
-	bad := `{
-  "lattice": [{"x": 1}, {"x": 2}],
-  "sites": [{"label": "A", "massAmu": -1, "frac": [0, 0]},
-            {"label": "B", "massAmu": "NaN", "frac": [0.5, 0.5]}],
-  "springs": [{"from": 0, "to": 5, "cell": [0, 0], "kLong": 1}]
-}`
-	path := filepath.Join(t.TempDir(), "bad.json")
-	if err := os.WriteFile(path, []byte(bad), 0o644); err != nil {
+// TestQuietStderr: on success with stderr not a terminal, nothing is
+// written to stderr (no progress bar in logs).
+func TestQuietStderr(t *testing.T) {
+	code, out, stderr := runCLI(t, "modes", "-m", example("chain"), "--grid", "16")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if stderr != "" {
+		t.Errorf("stderr not empty: %q", stderr)
+	}
+	if out == "" {
+		t.Error("no output")
+	}
+}
+
+// TestOutFile: --out writes the output to a file and nothing to stdout.
+func TestOutFile(t *testing.T) {
+	file := filepath.Join(t.TempDir(), "modes.csv")
+	code, out, stderr := runCLI(t, "modes", "-m", example("chain"), "--q", "0.25;0.5", "--format", "csv", "--out", file)
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if out != "" {
+		t.Errorf("stdout not empty: %q", out)
+	}
+	b, err := os.ReadFile(file)
+	if err != nil {
 		t.Fatal(err)
 	}
-	code, _, errs := runCLI(t, "modes", "-m", path, "--q", "0,0")
-	if code != exitInvalid {
-		t.Fatalf("exit %d; want %d; stderr: %s", code, exitInvalid, errs)
-	}
-	for _, f := range []string{"lattice", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to"} {
-		if !strings.Contains(errs, f) {
-			t.Errorf("stderr does not name %q:\n%s", f, errs)
-		}
+	if lines := strings.Split(strings.TrimSpace(string(b)), "\n"); len(lines) != 3 || lines[0] != "q1,q2,q3,branch,frequency_thz" {
+		t.Errorf("file holds %q", b)
 	}
 }
 
-func TestUsageExit(t *testing.T) {
-	if code, _, _ := runCLI(t, "modes", "--q", "0"); code != exitUsage {
-		t.Errorf("missing --model: exit %d; want %d", code, exitUsage)
+// closedPort returns a loopback address nothing listens on: a port that was
+// just bound and released.
+func closedPort(t *testing.T) string {
+	t.Helper()
+	lis, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
 	}
-	if code, _, _ := runCLI(t, "nonsense"); code != exitUsage {
-		t.Errorf("unknown command: exit %d; want %d", code, exitUsage)
-	}
+	addr := lis.Addr().String()
+	lis.Close()
+	return addr
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"flag"
@@ -10,8 +11,6 @@ import (
 	"strings"
 	"time"
 
-	"google.golang.org/genproto/googleapis/rpc/errdetails"
-	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
@@ -21,11 +20,11 @@ import (
 
 // Exit codes.
 const (
-	exitOK          = 0
-	exitOther       = 1
-	exitUsage       = 2
-	exitInvalid     = 3
-	exitUnreachable = 4
+	exitOK          = 0 // success
+	exitOther       = 1 // anything else (I/O, server-side failure, ...)
+	exitUsage       = 2 // a command-line mistake
+	exitInvalid     = 3 // invalid model or request; each bad field printed
+	exitUnreachable = 4 // no server could be reached
 )
 
 // usageError is a command-line mistake (exit 2).
@@ -35,147 +34,212 @@ func (e *usageError) Error() string { return e.msg }
 
 func usagef(format string, args ...any) error { return &usageError{fmt.Sprintf(format, args...)} }
 
-const usage = `usage: modegrid <command> [flags]
-
-commands:
-  modes    frequencies at q-points  (--model FILE --q "a,b,c;...")
-  demo     the main job on the built-in example crystals
-
-common flags:
-  -m, --model FILE     model file (protobuf JSON of modegrid.v1.Crystal)
-  --server ADDR        modegridd address; absent: an embedded server on loopback
-  --format FORMAT      table | csv | json (default table)
-`
-
-func run(args []string, stdout, stderr io.Writer) int {
-	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
-		fmt.Fprint(stderr, usage)
-		if len(args) == 0 {
-			return exitUsage
-		}
-		return exitOK
-	}
-	var err error
-	switch args[0] {
-	case "modes":
-		err = cmdModes(args[1:], stdout, stderr)
-	case "demo":
-		err = cmdDemo(args[1:], stdout, stderr)
-	default:
-		err = usagef("unknown command %q", args[0])
-	}
-	return report(err, stderr)
+// invalidError is an invalid model or request found on the client side, or
+// an invalid model reported by CheckModel (exit 3).
+type invalidError struct {
+	msg        string
+	violations []string // "field: description"
 }
 
-// report prints err as one clear message and returns the exit code.
+func (e *invalidError) Error() string { return e.msg }
+
+// commands, in the order of the help text.
+var commands = []struct {
+	name, summary string
+	run           func(args []string, e *env) error
+}{
+	{"check", "validate a model and summarise it (hash, sites, bonds per shell, symmetry, stability)", cmdCheck},
+	{"modes", "frequencies at q-points, on a grid or for a finite crystal", cmdModes},
+	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
+	{"dos", "phonon density of states, total and per site", cmdDOS},
+	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
+	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
+}
+
+func usageText() string {
+	var b strings.Builder
+	b.WriteString("usage: modegrid <command> [flags]     (modegrid <command> -h for its flags)\n\ncommands:\n")
+	for _, c := range commands {
+		fmt.Fprintf(&b, "  %-8s %s\n", c.name, c.summary)
+	}
+	b.WriteString(`
+common flags:
+  -m, --model FILE   model file (protobuf JSON of modegrid.v1.Crystal; see README)
+  --server ADDR      modegridd address; absent: an embedded server on loopback
+  --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
+  --unit U           thz (default), mev or cm-1
+  --format F         table (default), csv or json; --out FILE writes it to FILE
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal)
+
+exit codes: 0 success, 2 usage error, 3 invalid model or request,
+            4 server unreachable, 1 anything else
+`)
+	return b.String()
+}
+
+// run executes the command line args and returns the exit code.
+func run(args []string, stdout, stderr io.Writer) int {
+	if len(args) == 0 {
+		fmt.Fprint(stderr, usageText())
+		return exitUsage
+	}
+	switch args[0] {
+	case "-h", "--help", "help":
+		fmt.Fprint(stdout, usageText())
+		return exitOK
+	}
+	e := &env{stdout: stdout, stderr: stderr, prog: newProgress(stderr, isTerminal(stderr))}
+	for _, c := range commands {
+		if c.name == args[0] {
+			err := c.run(args[1:], e)
+			e.prog.clear()
+			return report(err, stderr)
+		}
+	}
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, demo)", args[0]), stderr)
+}
+
+// report prints err as one clear message (plus one line per bad field) and
+// returns the exit code.
 func report(err error, stderr io.Writer) int {
-	if err == nil {
+	if err == nil || errors.Is(err, flag.ErrHelp) {
 		return exitOK
 	}
 	var ue *usageError
 	if errors.As(err, &ue) {
-		fmt.Fprintf(stderr, "modegrid: %s\n(run 'modegrid help' for usage)\n", ue.msg)
+		fmt.Fprintf(stderr, "modegrid: %s.\n(run 'modegrid help' for usage)\n", strings.TrimSuffix(ue.msg, "."))
 		return exitUsage
 	}
-	if errors.Is(err, flag.ErrHelp) {
-		return exitOK
-	}
-	st, ok := status.FromError(err)
-	if !ok {
-		fmt.Fprintf(stderr, "modegrid: %v\n", err)
-		return exitOther
-	}
-	switch st.Code() {
-	case codes.InvalidArgument:
-		fmt.Fprintln(stderr, "modegrid: the model or request is invalid:")
-		printed := false
-		for _, d := range st.Details() {
-			if br, ok := d.(*errdetails.BadRequest); ok {
-				for _, v := range br.GetFieldViolations() {
-					fmt.Fprintf(stderr, "  %s: %s\n", v.GetField(), v.GetDescription())
-					printed = true
-				}
-			}
-		}
-		if !printed {
-			fmt.Fprintf(stderr, "  %s\n", st.Message())
+	var ie *invalidError
+	if errors.As(err, &ie) {
+		fmt.Fprintf(stderr, "modegrid: %s.\n", strings.TrimSuffix(ie.msg, "."))
+		for _, v := range ie.violations {
+			fmt.Fprintf(stderr, "  %s\n", v)
 		}
 		return exitInvalid
+	}
+	var se interface {
+		error
+		GRPCStatus() *status.Status
+	}
+	if !errors.As(err, &se) {
+		fmt.Fprintf(stderr, "modegrid: %s.\n", strings.TrimSuffix(err.Error(), "."))
+		return exitOther
+	}
+	st := se.GRPCStatus()
+	// Context added around the status error ("demo fcc: ") leads the line.
+	stderr = prefixed{w: stderr, prefix: strings.TrimSuffix(err.Error(), se.Error())}
+	msg := strings.TrimSuffix(st.Message(), ".")
+	switch st.Code() {
+	case codes.InvalidArgument:
+		vs := client.FieldViolations(err)
+		fmt.Fprintf(stderr, "modegrid: the server refused the model or request (%d problem%s):\n", max(len(vs), 1), plural(len(vs)))
+		for _, v := range vs {
+			fmt.Fprintf(stderr, "  %s: %s\n", v.GetField(), v.GetDescription())
+		}
+		if len(vs) == 0 {
+			fmt.Fprintf(stderr, "  %s\n", msg)
+		}
+		return exitInvalid
+	case codes.FailedPrecondition:
+		fmt.Fprintf(stderr, "modegrid: the request cannot be met for this model: %s.\n", msg)
+		return exitInvalid
 	case codes.Unavailable:
-		fmt.Fprintf(stderr, "modegrid: server unreachable: %s\n", st.Message())
+		fmt.Fprintf(stderr, "modegrid: the server is unreachable (%s); check --server and that modegridd is running.\n", rootCause(msg))
 		return exitUnreachable
+	case codes.Unauthenticated:
+		fmt.Fprintf(stderr, "modegrid: the server refused the credentials: %s (check --token, --cert and --key).\n", msg)
+		return exitOther
+	case codes.ResourceExhausted:
+		fmt.Fprintf(stderr, "modegrid: the server is busy or a limit was reached: %s.\n", msg)
+		return exitOther
+	case codes.DeadlineExceeded:
+		fmt.Fprintf(stderr, "modegrid: the call took too long: %s.\n", msg)
+		return exitOther
 	default:
-		fmt.Fprintf(stderr, "modegrid: %s: %s\n", st.Code(), st.Message())
+		fmt.Fprintf(stderr, "modegrid: the call failed (%s): %s.\n", st.Code(), msg)
 		return exitOther
 	}
 }
 
-// common holds the flags every subcommand shares.
-type common struct {
-	model  string
-	server string
-	format string
+// prefixed inserts a prefix after the "modegrid: " that starts the first
+// line written.
+type prefixed struct {
+	w      io.Writer
+	prefix string
 }
 
-func (c *common) register(fs *flag.FlagSet) {
-	fs.StringVar(&c.model, "model", "", "model file (protobuf JSON)")
-	fs.StringVar(&c.model, "m", "", "model file (shorthand)")
-	fs.StringVar(&c.server, "server", "", "modegridd address (default: embedded server)")
-	fs.StringVar(&c.format, "format", "table", "output format: table|csv|json")
-}
-
-func (c *common) check() error {
-	switch c.format {
-	case "table", "csv", "json":
-	default:
-		return usagef("--format must be table, csv or json, got %q", c.format)
-	}
-	return nil
-}
-
-// parse parses flags, turning flag errors into usage errors.
-func parse(fs *flag.FlagSet, args []string) error {
-	fs.SetOutput(io.Discard)
-	if err := fs.Parse(args); err != nil {
-		if errors.Is(err, flag.ErrHelp) {
-			return err
+func (p prefixed) Write(b []byte) (int, error) {
+	if p.prefix != "" {
+		if rest, ok := bytes.CutPrefix(b, []byte("modegrid: ")); ok {
+			if _, err := p.w.Write(append([]byte("modegrid: "+p.prefix), rest...)); err != nil {
+				return 0, err
+			}
+			return len(b), nil
 		}
-		return usagef("%v", err)
 	}
-	if fs.NArg() > 0 {
-		return usagef("unexpected argument %q", fs.Arg(0))
+	return p.w.Write(b)
+}
+
+// rootCause keeps the last clause of a gRPC transport message ("...: dial
+// tcp 127.0.0.1:1: connect: connection refused" → "connection refused").
+func rootCause(msg string) string {
+	if strings.Contains(msg, "no children to pick from") || strings.Contains(msg, "zero addresses") {
+		return "its name resolves to no address"
 	}
-	return nil
+	msg = strings.TrimRight(strings.TrimSpace(msg), `".`)
+	if i := strings.LastIndex(msg, ": "); i >= 0 && i+2 < len(msg) {
+		msg = msg[i+2:]
+	}
+	return strings.Trim(msg, `" `)
+}
+
+func plural(n int) string {
+	if n == 1 || n == 0 {
+		return ""
+	}
+	return "s"
 }
 
 // connect returns a client for --server, or for an embedded server started
-// on a loopback port. The returned stop function releases everything.
-func connect(addr string) (*client.Client, func(), error) {
+// on a loopback port and called over real gRPC. The returned stop function
+// releases everything.
+func connect(addr string, opts ...client.Option) (*client.Client, func(), error) {
 	if addr != "" {
-		c, err := client.Dial(addr)
+		c, err := client.Dial(addr, opts...)
 		if err != nil {
 			return nil, nil, err
 		}
 		return c, func() { c.Close() }, nil
 	}
+	srv, err := server.New(server.Config{MetricsListen: "off"})
+	if err != nil {
+		return nil, nil, fmt.Errorf("start embedded server: %w", err)
+	}
 	lis, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		return nil, nil, fmt.Errorf("start embedded server: %w", err)
 	}
-	gs := grpc.NewServer()
-	server.Register(gs, server.NewService())
-	go gs.Serve(lis)
-	c, err := client.Dial(lis.Addr().String())
+	served := make(chan struct{})
+	go func() {
+		defer close(served)
+		srv.Serve(lis)
+	}()
+	c, err := client.Dial(lis.Addr().String(), opts...)
 	if err != nil {
-		gs.Stop()
+		lis.Close()
 		return nil, nil, err
 	}
-	return c, func() { c.Close(); gs.Stop() }, nil
+	return c, func() {
+		c.Close()
+		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+		defer cancel()
+		srv.Shutdown(ctx)
+		<-served
+	}, nil
 }
 
-// callContext bounds every call; long jobs are still far inside it.
+// callContext bounds a command's calls; long jobs are still far inside it.
 func callContext() (context.Context, context.CancelFunc) {
 	return context.WithTimeout(context.Background(), 30*time.Minute)
 }
-
-var _ = strings.TrimSpace

@@ -2308,8 +2308,17 @@ type CheckModelResponse struct {
 	MinFrequencyThz float64 `protobuf:"fixed64,13,opt,name=min_frequency_thz,json=minFrequencyThz,proto3" json:"min_frequency_thz,omitempty"`
 	// Highest frequency found on the coarse grid, THz.
 	MaxFrequencyThz float64 `protobuf:"fixed64,14,opt,name=max_frequency_thz,json=maxFrequencyThz,proto3" json:"max_frequency_thz,omitempty"`
-	unknownFields   protoimpl.UnknownFields
-	sizeCache       protoimpl.SizeCache
+	// Lattice type recognised from the lattice vectors: "sc", "fcc", "bcc",
+	// "hexagonal", "square", "rectangular", "1d", or empty when none.
+	LatticeType string `protobuf:"bytes,15,opt,name=lattice_type,json=latticeType,proto3" json:"lattice_type,omitempty"`
+	// Built-in labelled points of that lattice type (usable as PathPoint
+	// labels without q), sorted by label; q in fractional reciprocal
+	// coordinates.
+	StandardPoints []*PathPoint `protobuf:"bytes,16,rep,name=standard_points,json=standardPoints,proto3" json:"standard_points,omitempty"`
+	// Canonical parameters of the check (e.g. the coarse stability grid).
+	Parameters    string `protobuf:"bytes,17,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *CheckModelResponse) Reset() {
@@ -2438,6 +2447,27 @@ func (x *CheckModelResponse) GetMaxFrequencyThz() float64 {
 		return x.MaxFrequencyThz
 	}
 	return 0
+}
+
+func (x *CheckModelResponse) GetLatticeType() string {
+	if x != nil {
+		return x.LatticeType
+	}
+	return ""
+}
+
+func (x *CheckModelResponse) GetStandardPoints() []*PathPoint {
+	if x != nil {
+		return x.StandardPoints
+	}
+	return nil
+}
+
+func (x *CheckModelResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
 }
 
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
@@ -2606,7 +2636,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc8\x04\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xcc\x05\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -2627,7 +2657,12 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\bsymmetry\x18\v \x03(\v2\x1e.modegrid.v1.SymmetryOperationR\bsymmetry\x12\x16\n" +
 	"\x06stable\x18\f \x01(\bR\x06stable\x12*\n" +
 	"\x11min_frequency_thz\x18\r \x01(\x01R\x0fminFrequencyThz\x12*\n" +
-	"\x11max_frequency_thz\x18\x0e \x01(\x01R\x0fmaxFrequencyThz*\x95\x01\n" +
+	"\x11max_frequency_thz\x18\x0e \x01(\x01R\x0fmaxFrequencyThz\x12!\n" +
+	"\flattice_type\x18\x0f \x01(\tR\vlatticeType\x12?\n" +
+	"\x0fstandard_points\x18\x10 \x03(\v2\x16.modegrid.v1.PathPointR\x0estandardPoints\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x11 \x01(\tR\n" +
+	"parameters*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
@@ -2740,21 +2775,22 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	26, // 33: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
 	27, // 34: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	28, // 35: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	25, // 36: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	10, // 37: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	14, // 38: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	17, // 39: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	21, // 40: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	29, // 41: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	12, // 42: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	16, // 43: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	19, // 44: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	24, // 45: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	41, // [41:46] is the sub-list for method output_type
-	36, // [36:41] is the sub-list for method input_type
-	36, // [36:36] is the sub-list for extension type_name
-	36, // [36:36] is the sub-list for extension extendee
-	0,  // [0:36] is the sub-list for field type_name
+	13, // 36: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	25, // 37: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	10, // 38: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	14, // 39: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	17, // 40: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	21, // 41: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	29, // 42: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	12, // 43: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	16, // 44: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	19, // 45: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	24, // 46: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	42, // [42:47] is the sub-list for method output_type
+	37, // [37:42] is the sub-list for method input_type
+	37, // [37:37] is the sub-list for extension type_name
+	37, // [37:37] is the sub-list for extension extendee
+	0,  // [0:37] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }

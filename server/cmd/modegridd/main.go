@@ -1,46 +1,244 @@
-// Command modegridd serves the modegrid gRPC API.
+// Command modegridd serves the modegrid gRPC API, with Prometheus metrics
+// on a separate HTTP port.
+//
+// Every flag can also be set by an environment variable MODEGRID_<FLAG>,
+// the flag name in capitals with "-" as "_" (--metrics-listen is
+// MODEGRID_METRICS_LISTEN); a flag on the command line wins over the
+// environment. Run `modegridd -h` for the list.
+//
+// SIGTERM or SIGINT stops it gracefully: health goes NOT_SERVING, new calls
+// are refused after --drain-delay, calls in flight get --shutdown-grace to
+// finish, then the rest are cut off. A clean stop exits 0.
 package main
 
 import (
+	"context"
+	"errors"
 	"flag"
+	"fmt"
+	"io"
 	"log/slog"
 	"net"
 	"os"
 	"os/signal"
+	"strconv"
+	"strings"
 	"syscall"
-
-	"google.golang.org/grpc"
+	"time"
 
 	"github.com/materials-lab/modegrid/server"
+	"github.com/materials-lab/modegrid/server/cache"
 )
 
+// version is stamped at build time with -ldflags "-X main.version=…".
+var version = "dev"
+
 func main() {
-	listen := flag.String("listen", envOr("MODEGRID_LISTEN", "127.0.0.1:7420"), "gRPC listen address (env MODEGRID_LISTEN)")
-	flag.Parse()
-	log := slog.New(slog.NewJSONHandler(os.Stderr, nil))
-	lis, err := net.Listen("tcp", *listen)
-	if err != nil {
-		log.Error("listen", "addr", *listen, "err", err)
-		os.Exit(1)
-	}
-	gs := grpc.NewServer()
-	server.Register(gs, server.NewService())
-	go func() {
-		ch := make(chan os.Signal, 1)
-		signal.Notify(ch, syscall.SIGTERM, syscall.SIGINT)
-		<-ch
-		gs.GracefulStop()
-	}()
-	log.Info("serving", "addr", lis.Addr().String())
-	if err := gs.Serve(lis); err != nil {
-		log.Error("serve", "err", err)
-		os.Exit(1)
-	}
+	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGTERM, syscall.SIGINT)
+	code := run(ctx, os.Args[1:], os.Stdout, os.Stderr)
+	stop()
+	os.Exit(code)
 }
 
-func envOr(key, def string) string {
-	if v := os.Getenv(key); v != "" {
-		return v
+// Exit codes.
+const (
+	exitOK     = 0
+	exitFailed = 1 // could not start or serve
+	exitUsage  = 2 // bad flag, environment variable or configuration
+)
+
+// options are the command line, before conversion to server.Config.
+type options struct {
+	cfg         server.Config
+	cacheBytes  byteSize
+	maxMsg      byteSize
+	maxChunk    byteSize
+	maxQueue    int
+	reflection  bool
+	logLevel    string
+	redis       cache.RedisOptions
+	redisMax    byteSize
+	showVersion bool
+}
+
+// byteSize is a flag value in bytes accepting the suffixes KiB, MiB, GiB
+// (and KB, MB, GB as powers of 1000).
+type byteSize int64
+
+func (b *byteSize) String() string { return strconv.FormatInt(int64(*b), 10) }
+
+func (b *byteSize) Set(s string) error {
+	s = strings.TrimSpace(s)
+	mult := int64(1)
+	for _, u := range []struct {
+		suffix string
+		mult   int64
+	}{{"KiB", 1 << 10}, {"MiB", 1 << 20}, {"GiB", 1 << 30}, {"KB", 1e3}, {"MB", 1e6}, {"GB", 1e9}, {"B", 1}} {
+		if strings.HasSuffix(s, u.suffix) {
+			s, mult = strings.TrimSpace(strings.TrimSuffix(s, u.suffix)), u.mult
+			break
+		}
 	}
-	return def
+	n, err := strconv.ParseInt(s, 10, 64)
+	if err != nil || n < 0 {
+		return fmt.Errorf("want a byte count ≥ 0 such as 536870912 or 512MiB")
+	}
+	*b = byteSize(n * mult)
+	return nil
+}
+
+func newFlags(o *options) *flag.FlagSet {
+	fs := flag.NewFlagSet("modegridd", flag.ContinueOnError)
+	c := &o.cfg
+	fs.StringVar(&c.Listen, "listen", server.DefaultListen, "gRPC listen address host:port")
+	fs.StringVar(&c.MetricsListen, "metrics-listen", server.DefaultMetricsListen, `HTTP address of the Prometheus /metrics endpoint ("off" disables)`)
+	o.cacheBytes = server.DefaultCacheBytes
+	fs.Var(&o.cacheBytes, "cache-bytes", "in-process result cache bound, bytes (suffix KiB/MiB/GiB allowed; 0 disables)")
+	fs.StringVar(&o.redis.Addr, "redis-addr", "", "Redis host:port of the shared second-level cache (empty: none)")
+	fs.DurationVar(&o.redis.TTL, "redis-ttl", cache.DefaultRedisTTL, "lifetime of a Redis cache entry")
+	fs.DurationVar(&o.redis.Timeout, "redis-timeout", cache.DefaultRedisTimeout, "bound on every Redis operation")
+	o.redisMax = cache.DefaultRedisMaxEntryBytes
+	fs.Var(&o.redisMax, "redis-max-entry-bytes", "largest value stored in Redis, bytes")
+	fs.IntVar(&c.MaxConcurrent, "max-concurrent", 0, "computations run at once (0: one per core)")
+	fs.IntVar(&o.maxQueue, "max-queue", server.DefaultMaxQueue, "computations that may wait for a slot (0: none wait)")
+	fs.DurationVar(&c.QueueTimeout, "queue-timeout", server.DefaultQueueTimeout, "longest wait for a computation slot before RESOURCE_EXHAUSTED")
+	fs.IntVar(&c.MaxQPoints, "max-qpoints", server.DefaultMaxQPoints, "cap: q-points of one request")
+	fs.IntVar(&c.MaxSites, "max-sites", server.DefaultMaxSites, "cap: sites of a model")
+	fs.IntVar(&c.MaxTemps, "max-temps", server.DefaultMaxTemps, "cap: temperatures of one thermal request")
+	fs.IntVar(&c.MaxPathPoints, "max-path-points", server.DefaultMaxPathPoints, "cap: samples of one dispersion")
+	fs.IntVar(&c.MaxPathCorners, "max-path-corners", server.DefaultMaxPathCorners, "cap: corners of one dispersion path")
+	fs.IntVar(&c.MaxDOSBins, "max-dos-bins", server.DefaultMaxDOSBins, "cap: frequency samples of one density of states")
+	o.maxMsg = server.DefaultMaxMsgBytes
+	fs.Var(&o.maxMsg, "max-msg-bytes", "cap: largest gRPC message received or sent, bytes")
+	fs.IntVar(&c.ChunkPoints, "chunk-points", server.DefaultChunkPoints, "default q-points per streamed modes message")
+	o.maxChunk = server.DefaultMaxChunkBytes
+	fs.Var(&o.maxChunk, "max-chunk-bytes", "bound on the mode data of one streamed message, bytes")
+	fs.IntVar(&c.StabilityMesh, "stability-mesh", server.DefaultStabilityMesh, "points per reciprocal direction of the coarse grid CheckModel searches for imaginary modes")
+	fs.DurationVar(&c.ShutdownGrace, "shutdown-grace", server.DefaultShutdownGrace, "time calls in flight get to finish after SIGTERM/SIGINT")
+	fs.DurationVar(&c.DrainDelay, "drain-delay", 0, "time calls are still accepted after health goes NOT_SERVING on a stop signal")
+	fs.StringVar(&c.TLSCertFile, "tls-cert", "", "TLS certificate file (PEM); with --tls-key enables TLS")
+	fs.StringVar(&c.TLSKeyFile, "tls-key", "", "TLS private key file (PEM)")
+	fs.StringVar(&c.ClientCAFile, "client-ca", "", "CA file (PEM): require client certificates it signed (mutual TLS)")
+	fs.StringVar(&c.TokenFile, "token-file", "", "file of accepted bearer tokens, one a line (health checks need none)")
+	fs.BoolVar(&o.reflection, "reflection", true, "serve gRPC server reflection")
+	fs.StringVar(&o.logLevel, "log-level", "info", "log level: debug, info, warn or error")
+	fs.BoolVar(&o.showVersion, "version", false, "print the version and exit")
+	return fs
+}
+
+// envName is the environment variable of a flag: MODEGRID_<NAME>.
+func envName(flagName string) string {
+	return "MODEGRID_" + strings.ToUpper(strings.ReplaceAll(flagName, "-", "_"))
+}
+
+// applyEnv sets every flag not given on the command line from its
+// environment variable, reporting every bad value at once.
+func applyEnv(fs *flag.FlagSet, getenv func(string) string) error {
+	set := map[string]bool{}
+	fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
+	var errs []error
+	fs.VisitAll(func(f *flag.Flag) {
+		if set[f.Name] {
+			return
+		}
+		if v := getenv(envName(f.Name)); v != "" {
+			if err := fs.Set(f.Name, v); err != nil {
+				errs = append(errs, fmt.Errorf("%s=%q: %w", envName(f.Name), v, err))
+			}
+		}
+	})
+	return errors.Join(errs...)
+}
+
+// parse reads the command line and environment into options.
+func parse(args []string, getenv func(string) string, stderr io.Writer) (*options, error) {
+	o := &options{}
+	fs := newFlags(o)
+	fs.SetOutput(stderr)
+	if err := fs.Parse(args); err != nil {
+		return nil, err
+	}
+	if fs.NArg() > 0 {
+		return nil, fmt.Errorf("unexpected argument %q", fs.Arg(0))
+	}
+	if err := applyEnv(fs, getenv); err != nil {
+		return nil, err
+	}
+	c := &o.cfg
+	// The flags' "0 disables" become the Config's negative values (a zero
+	// Config field means "default").
+	c.CacheBytes = int64(o.cacheBytes)
+	if c.CacheBytes == 0 {
+		c.CacheBytes = -1
+	}
+	c.MaxQueue = o.maxQueue
+	if c.MaxQueue == 0 {
+		c.MaxQueue = -1
+	}
+	c.MaxMsgBytes = int(o.maxMsg)
+	c.MaxChunkBytes = int(o.maxChunk)
+	c.DisableReflection = !o.reflection
+	o.redis.MaxEntryBytes = int(o.redisMax)
+	c.Version = version
+	var lvl slog.Level
+	if err := lvl.UnmarshalText([]byte(o.logLevel)); err != nil {
+		return nil, fmt.Errorf("log-level: want debug, info, warn or error, got %q", o.logLevel)
+	}
+	c.Logger = slog.New(slog.NewJSONHandler(stderr, &slog.HandlerOptions{Level: lvl}))
+	if err := c.Validate(); err != nil {
+		return nil, err
+	}
+	return o, nil
+}
+
+// run is main without the process: it serves until ctx ends and returns
+// the exit code.
+func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
+	o, err := parse(args, os.Getenv, stderr)
+	if errors.Is(err, flag.ErrHelp) {
+		return exitOK
+	}
+	if err != nil {
+		fmt.Fprintf(stderr, "modegridd: %v\n", err)
+		return exitUsage
+	}
+	if o.showVersion {
+		fmt.Fprintln(stdout, "modegridd", version)
+		return exitOK
+	}
+	log := o.cfg.Logger
+	if o.redis.Addr != "" {
+		cache.SetRedisLogger(log)
+		r := cache.NewRedis(o.redis)
+		defer r.Close()
+		pctx, cancel := context.WithTimeout(ctx, time.Second)
+		if err := r.Ping(pctx); err != nil {
+			log.Warn("redis not answering; serving without it until it does", "addr", o.redis.Addr, "err", err)
+		} else {
+			log.Info("redis cache connected", "addr", o.redis.Addr)
+		}
+		cancel()
+		o.cfg.Backend = r
+	}
+	srv, err := server.New(o.cfg)
+	if err != nil {
+		fmt.Fprintf(stderr, "modegridd: %v\n", err)
+		return exitUsage
+	}
+	cfg := srv.Config()
+	err = srv.Run(ctx, func(grpcAddr, metricsAddr net.Addr) {
+		attrs := []any{"version", version, "addr", grpcAddr.String(), "tls", cfg.TLSCertFile != "",
+			"mtls", cfg.ClientCAFile != "", "tokens", cfg.TokenFile != "", "cache_bytes", max(cfg.CacheBytes, 0),
+			"max_concurrent", cfg.MaxConcurrent, "redis", o.redis.Addr}
+		if metricsAddr != nil {
+			attrs = append(attrs, "metrics_addr", metricsAddr.String())
+		}
+		log.Info("serving", attrs...)
+	})
+	if err != nil {
+		log.Error("stopped with an error", "err", err)
+		return exitFailed
+	}
+	log.Info("stopped")
+	return exitOK
 }

@@ -1,0 +1,311 @@
+package client
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/metadata"
+	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// CallOption configures one call of a typed helper.
+type CallOption func(*callOptions)
+
+type callOptions struct {
+	progress func(done, total int)
+	grpcOpts []grpc.CallOption
+}
+
+// Progress calls fn after each chunk of a streamed result with the number of
+// points received so far and the total. fn runs on the calling goroutine.
+func Progress(fn func(done, total int)) CallOption {
+	return func(o *callOptions) { o.progress = fn }
+}
+
+// GRPCCallOptions passes raw gRPC call options (for example
+// grpc.Header(&md)) to every attempt of the call.
+func GRPCCallOptions(opts ...grpc.CallOption) CallOption {
+	return func(o *callOptions) { o.grpcOpts = append(o.grpcOpts, opts...) }
+}
+
+func collectOptions(opts []CallOption) callOptions {
+	var o callOptions
+	for _, f := range opts {
+		f(&o)
+	}
+	return o
+}
+
+// maxStreamResumes bounds how often one StreamModes call reopens a stream
+// broken by UNAVAILABLE after it delivered some points.
+const maxStreamResumes = 3
+
+// Check calls CheckModel. An invalid model is not an error: the response has
+// Valid false and lists every violation.
+func (c *Client) Check(ctx context.Context, req *modegridv1.CheckModelRequest, opts ...CallOption) (*modegridv1.CheckModelResponse, error) {
+	return unary(ctx, c, req, c.api.CheckModel, false, collectOptions(opts))
+}
+
+// Dispersion calls ComputeDispersion.
+func (c *Client) Dispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest, opts ...CallOption) (*modegridv1.ComputeDispersionResponse, error) {
+	return unary(ctx, c, req, c.api.ComputeDispersion, c.affinity, collectOptions(opts))
+}
+
+// DOS calls ComputeDos.
+func (c *Client) DOS(ctx context.Context, req *modegridv1.ComputeDosRequest, opts ...CallOption) (*modegridv1.ComputeDosResponse, error) {
+	return unary(ctx, c, req, c.api.ComputeDos, c.affinity, collectOptions(opts))
+}
+
+// Thermal calls ComputeThermal.
+func (c *Client) Thermal(ctx context.Context, req *modegridv1.ComputeThermalRequest, opts ...CallOption) (*modegridv1.ComputeThermalResponse, error) {
+	return unary(ctx, c, req, c.api.ComputeThermal, c.affinity, collectOptions(opts))
+}
+
+// Modes calls ComputeModes and collects the whole stream into one response
+// (offset 0, every point in q order).
+func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest, opts ...CallOption) (*modegridv1.ComputeModesResponse, error) {
+	var all *modegridv1.ComputeModesResponse
+	err := c.StreamModes(ctx, req, func(chunk *modegridv1.ComputeModesResponse) error {
+		if all == nil {
+			all = &modegridv1.ComputeModesResponse{
+				ModelHash:  chunk.GetModelHash(),
+				Parameters: chunk.GetParameters(),
+				Total:      chunk.GetTotal(),
+				Unit:       chunk.GetUnit(),
+			}
+		}
+		all.Points = append(all.Points, chunk.GetPoints()...)
+		return nil
+	}, opts...)
+	if err != nil {
+		return nil, err
+	}
+	if all == nil {
+		all = &modegridv1.ComputeModesResponse{Unit: req.GetUnit()}
+	}
+	return all, nil
+}
+
+// StreamModes calls ComputeModes and hands each chunk to fn, in q order,
+// each point exactly once: a stream broken by UNAVAILABLE is reopened and
+// points already delivered are skipped. An error from fn stops the stream
+// and is returned.
+func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRequest, fn func(*modegridv1.ComputeModesResponse) error, opts ...CallOption) error {
+	o := collectOptions(opts)
+	s, err := c.newSender(ctx, req, c.affinity)
+	if err != nil {
+		return err
+	}
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel() // ends an abandoned stream
+	delivered := 0
+	resumes := 0
+	for {
+		err := s.streamOnce(ctx, o, &delivered, fn)
+		if err == nil {
+			return nil
+		}
+		var fe fnError
+		if errors.As(err, &fe) {
+			return fe.err
+		}
+		switch {
+		case delivered == 0 && s.fallback(err):
+			continue
+		case delivered > 0 && status.Code(err) == codes.Unavailable && resumes < maxStreamResumes && ctx.Err() == nil:
+			resumes++
+			continue
+		case delivered > 0 && s.fallback(err):
+			// A resumed stream reached a replica without the model.
+			continue
+		}
+		return err
+	}
+}
+
+// fnError marks an error returned by the caller's chunk function.
+type fnError struct{ err error }
+
+func (e fnError) Error() string { return e.err.Error() }
+
+// streamOnce runs one attempt of a ComputeModes stream, skipping points
+// before *delivered and advancing it.
+func (s *sender) streamOnce(ctx context.Context, o callOptions, delivered *int, fn func(*modegridv1.ComputeModesResponse) error) error {
+	sctx, cancel := context.WithCancel(s.outgoing(ctx))
+	defer cancel()
+	req := s.request().(*modegridv1.ComputeModesRequest)
+	stream, err := s.c.api.ComputeModes(sctx, req, o.grpcOpts...)
+	if err != nil {
+		return err
+	}
+	first := true
+	for {
+		chunk, err := stream.Recv()
+		if errors.Is(err, io.EOF) {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if first {
+			s.succeeded(chunk.GetModelHash())
+			first = false
+		}
+		pts := chunk.GetPoints()
+		off := int(chunk.GetOffset())
+		if skip := *delivered - off; skip > 0 {
+			if skip >= len(pts) {
+				continue
+			}
+			out := &modegridv1.ComputeModesResponse{
+				ModelHash: chunk.GetModelHash(), Parameters: chunk.GetParameters(),
+				Offset: uint32(*delivered), Total: chunk.GetTotal(), Unit: chunk.GetUnit(),
+				Points: pts[skip:],
+			}
+			chunk, pts = out, out.Points
+		} else if skip < 0 {
+			return fmt.Errorf("modegrid client: stream skipped points %d to %d", *delivered, off)
+		}
+		if err := fn(chunk); err != nil {
+			return fnError{err}
+		}
+		*delivered += len(pts)
+		if o.progress != nil {
+			o.progress(*delivered, int(chunk.GetTotal()))
+		}
+	}
+}
+
+// hashed is a response that names the model hash that produced it.
+type hashed interface {
+	proto.Message
+	GetModelHash() string
+}
+
+// unary runs one unary call with the model reference logic.
+func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req Req,
+	call func(context.Context, Req, ...grpc.CallOption) (Resp, error), learn bool, o callOptions) (Resp, error) {
+	s, err := c.newSender(ctx, req, learn)
+	if err != nil {
+		var zero Resp
+		return zero, err
+	}
+	for {
+		resp, err := call(s.outgoing(ctx), s.request().(Req), o.grpcOpts...)
+		if err == nil {
+			s.succeeded(resp.GetModelHash())
+			return resp, nil
+		}
+		if !s.fallback(err) {
+			return resp, err
+		}
+	}
+}
+
+// sender decides, for one logical call, whether the model goes inline or
+// by reference, and which affinity header the call carries.
+type sender struct {
+	c      *Client
+	req    proto.Message           // the caller's request, never modified
+	src    *modegridv1.ModelSource // the caller's model source (nil: none)
+	key    modelKey                // client-side key of the inline model
+	hasKey bool
+	inline *modegridv1.ModelSource // an inline source for this model, if known
+	ref    string                  // hash to send as a reference; "" sends inline
+	hash   string                  // hash for the affinity header; "" unknown
+	resent bool                    // the NOT_FOUND fallback has been used
+}
+
+func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (*sender, error) {
+	s := &sender{c: c, req: req, src: sourceOf(req)}
+	switch {
+	case s.src.GetCrystal() != nil:
+		s.inline = s.src
+		s.key, s.hasKey = keyOf(s.src)
+		if !s.hasKey {
+			break
+		}
+		e, ok := c.refs.lookupKey(s.key)
+		if !ok && learn {
+			// Ask once for the hash so that even the first compute call is
+			// routed to the replica that will own the model.
+			resp, err := c.api.CheckModel(ctx, &modegridv1.CheckModelRequest{Model: s.src})
+			if err != nil && status.Code(err) != codes.Unimplemented {
+				return nil, err
+			}
+			if resp.GetValid() && resp.GetModelHash() != "" {
+				c.refs.remember(s.key, s.src, resp.GetModelHash(), false)
+				e, ok = c.refs.lookupKey(s.key)
+			}
+		}
+		if ok {
+			s.hash = e.hash
+			if e.sent {
+				s.ref = e.hash
+			}
+		}
+	case s.src.GetModelHash() != "":
+		s.hash = s.src.GetModelHash()
+		s.ref = s.hash
+		if e, ok := c.refs.lookupHash(s.hash); ok {
+			s.inline = e.inline
+			s.key, s.hasKey = keyOf(e.inline)
+		}
+	}
+	return s, nil
+}
+
+// request returns the request to send now.
+func (s *sender) request() proto.Message {
+	switch {
+	case s.ref != "" && s.src.GetModelHash() == s.ref:
+		return s.req // the caller's own reference
+	case s.ref != "":
+		return withSource(s.req, reference(s.ref, s.inline))
+	case s.src.GetCrystal() != nil || s.inline == nil:
+		return s.req // the caller's own inline model (or no model)
+	default:
+		return withSource(s.req, s.inline) // resend a remembered model
+	}
+}
+
+// outgoing adds the affinity header when it applies.
+func (s *sender) outgoing(ctx context.Context) context.Context {
+	if !s.c.affinity || s.hash == "" {
+		return ctx
+	}
+	return metadata.AppendToOutgoingContext(ctx, AffinityHeader, s.hash)
+}
+
+// fallback reports whether err is a NOT_FOUND for a model sent by reference
+// that can be resent inline, and switches to inline if so.
+func (s *sender) fallback(err error) bool {
+	if s.resent || s.ref == "" || s.inline == nil || status.Code(err) != codes.NotFound {
+		return false
+	}
+	s.c.refs.unsent(s.ref)
+	s.ref = ""
+	s.resent = true
+	return true
+}
+
+// succeeded records the server's hash after a successful call.
+func (s *sender) succeeded(h string) {
+	if h == "" || !s.hasKey || s.inline == nil {
+		return
+	}
+	// With affinity, only a call routed by the hash header has left the
+	// model on the replica that owns it.
+	routed := !s.c.affinity || s.hash != ""
+	s.c.refs.remember(s.key, s.inline, h, routed)
+	if s.hash == "" {
+		s.hash = h
+	}
+}

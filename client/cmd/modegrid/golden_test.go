@@ -1,0 +1,238 @@
+package main
+
+import (
+	"encoding/json"
+	"flag"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+// go test ./client/cmd/modegrid -run Golden -update rewrites the golden
+// files from the current output; review the diff before committing.
+var update = flag.Bool("update", false, "rewrite the golden files in testdata/golden")
+
+// goldenCases run every subcommand in every format against the embedded
+// server. Numbers are compared with a tolerance (see sameOutput), text
+// exactly.
+var goldenCases = []struct {
+	name string
+	args []string
+}{
+	{"check-fcc-table", []string{"check", "-m", example("fcc")}},
+	{"check-fcc-csv", []string{"check", "-m", example("fcc"), "--format", "csv"}},
+	{"check-fcc-json", []string{"check", "-m", example("fcc"), "--format", "json"}},
+	{"check-rocksalt-like-table", []string{"check", "-m", example("rocksalt-like")}},
+
+	{"modes-fcc-table", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5"}},
+	{"modes-fcc-csv", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5", "--format", "csv"}},
+	{"modes-fcc-json", []string{"modes", "-m", example("fcc"), "--q", "0.5,0,0.5", "--format", "json"}},
+	{"modes-fcc-mev-csv", []string{"modes", "-m", example("fcc"), "--q", "0.5,0,0.5", "--unit", "mev", "--format", "csv"}},
+	{"modes-fcc-cm-1-csv", []string{"modes", "-m", example("fcc"), "--q", "0.5,0,0.5", "--unit", "cm-1", "--format", "csv"}},
+	{"modes-chain-grid-csv", []string{"modes", "-m", example("chain"), "--grid", "4", "--format", "csv"}},
+	{"modes-chain-shifted-grid-table", []string{"modes", "-m", example("chain"), "--grid", "4", "--shift"}},
+	{"modes-square-net-cells-csv", []string{"modes", "-m", example("square-net"), "--cells", "2x2", "--format", "csv"}},
+
+	{"path-fcc-table", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9"}},
+	{"path-fcc-csv", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9", "--format", "csv"}},
+	{"path-fcc-json", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5", "--points", "3", "--format", "json"}},
+	{"path-square-net-builtin-csv", []string{"path", "-m", example("square-net"), "--path", "G-X-M-G", "--points", "7", "--format", "csv"}},
+
+	{"dos-chain-table", []string{"dos", "-m", example("chain"), "--grid", "64", "--step", "0.5"}},
+	{"dos-chain-csv", []string{"dos", "-m", example("chain"), "--grid", "64", "--step", "0.5", "--format", "csv"}},
+	{"dos-chain-json", []string{"dos", "-m", example("chain"), "--grid", "16", "--step", "1", "--format", "json"}},
+	{"dos-chain-gaussian-csv", []string{"dos", "-m", example("chain"), "--grid", "64", "--method", "gaussian", "--width", "0.3", "--step", "0.5", "--format", "csv"}},
+	{"dos-chain-histogram-cells-csv", []string{"dos", "-m", example("chain"), "--cells", "16", "--method", "histogram", "--step", "0.5", "--format", "csv"}},
+	{"dos-diatomic-chain-per-site-csv", []string{"dos", "-m", example("diatomic-chain"), "--grid", "64", "--step", "0.5", "--per-site", "--format", "csv"}},
+	{"dos-twin-chain-per-site-csv", []string{"dos", "-m", testdata("twin-chain.json"), "--grid", "32", "--step", "0.5", "--per-site", "--format", "csv"}},
+
+	{"thermal-chain-table", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0:300:100"}},
+	{"thermal-chain-csv", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0:300:100", "--format", "csv"}},
+	{"thermal-chain-json", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "300", "--format", "json"}},
+	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
+}
+
+func goldenFile(name string) string {
+	ext := ".txt"
+	switch {
+	case strings.HasSuffix(name, "-csv"):
+		ext = ".csv"
+	case strings.HasSuffix(name, "-json"):
+		ext = ".json"
+	}
+	return filepath.Join("testdata", "golden", name+ext)
+}
+
+// TestGolden compares every subcommand and format with its golden file.
+func TestGolden(t *testing.T) {
+	for _, tc := range goldenCases {
+		t.Run(tc.name, func(t *testing.T) {
+			code, out, stderr := runCLI(t, tc.args...)
+			if code != exitOK {
+				t.Fatalf("exit %d: %s", code, stderr)
+			}
+			checkGolden(t, goldenFile(tc.name), out)
+		})
+	}
+}
+
+func checkGolden(t *testing.T, file, got string) {
+	t.Helper()
+	if *update {
+		if err := os.WriteFile(file, []byte(got), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return
+	}
+	want, err := os.ReadFile(file)
+	if err != nil {
+		t.Fatalf("%v (run with -update to create it)", err)
+	}
+	if err := sameOutput(filepath.Ext(file), got, string(want)); err != nil {
+		t.Errorf("%s: %v\n--- got:\n%s", file, err, got)
+	}
+}
+
+// Tolerances of the golden comparison: CSV and JSON carry full precision,
+// tables four decimals.
+const (
+	fullAbsTol, fullRelTol   = 1e-6, 1e-7
+	tableAbsTol, tableRelTol = 1.5e-4, 1e-6
+)
+
+var numberRE = regexp.MustCompile(`[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?`)
+
+// sameOutput compares output with its golden text: JSON structurally, CSV
+// and tables line by line with the numbers compared within a tolerance and
+// everything else (headers, labels, separators up to alignment) exactly.
+func sameOutput(ext, got, want string) error {
+	if ext == ".json" {
+		var g, w any
+		if err := json.Unmarshal([]byte(got), &g); err != nil {
+			return fmt.Errorf("output is not JSON: %v", err)
+		}
+		if err := json.Unmarshal([]byte(want), &w); err != nil {
+			return fmt.Errorf("golden file is not JSON: %v", err)
+		}
+		return sameJSON("$", g, w)
+	}
+	abs, rel := fullAbsTol, fullRelTol
+	if ext == ".txt" {
+		abs, rel = tableAbsTol, tableRelTol
+	}
+	gl := strings.Split(strings.TrimRight(got, "\n"), "\n")
+	wl := strings.Split(strings.TrimRight(want, "\n"), "\n")
+	if len(gl) != len(wl) {
+		return fmt.Errorf("%d lines; want %d", len(gl), len(wl))
+	}
+	for i := range gl {
+		if err := sameLine(gl[i], wl[i], abs, rel); err != nil {
+			return fmt.Errorf("line %d: %v\n  got:  %s\n  want: %s", i+1, err, gl[i], wl[i])
+		}
+	}
+	return nil
+}
+
+func sameLine(got, want string, abs, rel float64) error {
+	skel := func(s string) string {
+		return strings.Join(strings.Fields(numberRE.ReplaceAllString(s, "#")), " ")
+	}
+	if skel(got) != skel(want) {
+		return fmt.Errorf("text differs")
+	}
+	gn, wn := numberRE.FindAllString(got, -1), numberRE.FindAllString(want, -1)
+	for k := range gn {
+		g, _ := strconv.ParseFloat(gn[k], 64)
+		w, _ := strconv.ParseFloat(wn[k], 64)
+		if !near(g, w, abs, rel) {
+			return fmt.Errorf("number %d is %s; want %s", k+1, gn[k], wn[k])
+		}
+	}
+	return nil
+}
+
+func near(a, b, abs, rel float64) bool {
+	return math.Abs(a-b) <= abs+rel*math.Max(math.Abs(a), math.Abs(b))
+}
+
+func sameJSON(path string, got, want any) error {
+	switch w := want.(type) {
+	case map[string]any:
+		g, ok := got.(map[string]any)
+		if !ok {
+			return fmt.Errorf("%s: got %T; want an object", path, got)
+		}
+		for k := range w {
+			if _, ok := g[k]; !ok {
+				return fmt.Errorf("%s.%s missing", path, k)
+			}
+		}
+		for k, gv := range g {
+			wv, ok := w[k]
+			if !ok {
+				return fmt.Errorf("%s.%s not in the golden file", path, k)
+			}
+			if err := sameJSON(path+"."+k, gv, wv); err != nil {
+				return err
+			}
+		}
+	case []any:
+		g, ok := got.([]any)
+		if !ok || len(g) != len(w) {
+			return fmt.Errorf("%s: got %v; want %d elements", path, got, len(w))
+		}
+		for i := range w {
+			if err := sameJSON(fmt.Sprintf("%s[%d]", path, i), g[i], w[i]); err != nil {
+				return err
+			}
+		}
+	case float64:
+		g, ok := got.(float64)
+		if !ok || !near(g, w, fullAbsTol, fullRelTol) {
+			return fmt.Errorf("%s: got %v; want %v", path, got, w)
+		}
+	default:
+		if got != want {
+			return fmt.Errorf("%s: got %v; want %v", path, got, want)
+		}
+	}
+	return nil
+}
+
+// TestCSVHeaders: the CSV headers are exactly the documented ones, the
+// frequency column follows --unit, and per-site columns are named by label
+// (with the site index for a shared label).
+func TestCSVHeaders(t *testing.T) {
+	tests := []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"modes", []string{"modes", "-m", example("chain"), "--q", "0.5"}, "q1,q2,q3,branch,frequency_thz"},
+		{"modes mev", []string{"modes", "-m", example("chain"), "--q", "0.5", "--unit", "mev"}, "q1,q2,q3,branch,frequency_mev"},
+		{"modes cm-1", []string{"modes", "-m", example("chain"), "--q", "0.5", "--unit", "cm-1"}, "q1,q2,q3,branch,frequency_cm-1"},
+		{"path", []string{"path", "-m", example("chain"), "--path", "G=0 X=0.5", "--points", "5"}, "distance,label,q1,q2,q3,branch,frequency_thz"},
+		{"dos", []string{"dos", "-m", example("chain"), "--grid", "32"}, "frequency_thz,dos,integrated"},
+		{"dos mev", []string{"dos", "-m", example("chain"), "--grid", "32", "--unit", "mev"}, "frequency_mev,dos,integrated"},
+		{"dos per site", []string{"dos", "-m", example("rocksalt-like"), "--grid", "4", "--per-site"}, "frequency_thz,dos,integrated,dos_P,dos_Q"},
+		{"dos shared label", []string{"dos", "-m", testdata("twin-chain.json"), "--grid", "16", "--per-site"}, "frequency_thz,dos,integrated,dos_A_0,dos_A_1"},
+		{"thermal", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300"},
+			"temperature_k,heat_capacity_j_per_mol_k,entropy_j_per_mol_k,free_energy_kj_per_mol,internal_energy_kj_per_mol,debye_temperature_k"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			code, out, stderr := runCLI(t, append(tc.args, "--format", "csv")...)
+			if code != exitOK {
+				t.Fatalf("exit %d: %s", code, stderr)
+			}
+			if got, _, _ := strings.Cut(out, "\n"); got != tc.want {
+				t.Errorf("header %q; want %q", got, tc.want)
+			}
+		})
+	}
+}

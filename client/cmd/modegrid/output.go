@@ -1,0 +1,430 @@
+package main
+
+// Writers of the three output formats. "table" is aligned for people;
+// "csv" has fixed headers for programs (long format for modes and paths;
+// frequency columns carry the --unit value as suffix); "json" is the
+// protobuf JSON of the response.
+
+import (
+	"encoding/csv"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+
+	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/proto"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// wideBranches is the most branches a table shows side by side; past it a
+// table lists one row per branch.
+const wideBranches = 12
+
+func writeJSON(w io.Writer, m proto.Message) error {
+	b, err := protojson.MarshalOptions{Multiline: true, Indent: "  "}.Marshal(m)
+	if err != nil {
+		return fmt.Errorf("encode JSON: %w", err)
+	}
+	_, err = fmt.Fprintf(w, "%s\n", b)
+	return err
+}
+
+// num formats a number for CSV: the shortest decimal that reads back to the
+// same float64.
+func num(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// csvWriter writes records and remembers the first error.
+type csvWriter struct {
+	w   *csv.Writer
+	err error
+}
+
+func newCSV(w io.Writer) *csvWriter { return &csvWriter{w: csv.NewWriter(w)} }
+
+func (c *csvWriter) row(fields ...string) {
+	if c.err == nil {
+		c.err = c.w.Write(fields)
+	}
+}
+
+func (c *csvWriter) flush() error {
+	c.w.Flush()
+	if c.err != nil {
+		return c.err
+	}
+	return c.w.Error()
+}
+
+// table writes right-aligned columns.
+type table struct {
+	tw *tabwriter.Writer
+}
+
+func newTable(w io.Writer) *table {
+	return &table{tw: tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)}
+}
+
+func (t *table) row(cells ...string) {
+	fmt.Fprintln(t.tw, strings.Join(cells, "\t")+"\t")
+}
+
+func (t *table) flush() error { return t.tw.Flush() }
+
+// f4 formats a number for tables with four decimals; values that would
+// print as -0.0000 (numerical noise around zero) print as 0.0000.
+func f4(x float64) string {
+	if math.Abs(x) < 5e-5 {
+		x = 0
+	}
+	return strconv.FormatFloat(x, 'f', 4, 64)
+}
+
+// siteColumns names one column per site: prefix+label, or
+// prefix+label+"_"+index when several sites share the label.
+func siteColumns(prefix string, labels []string, index []int) []string {
+	count := map[string]int{}
+	for _, l := range labels {
+		count[l]++
+	}
+	out := make([]string, len(labels))
+	for i, l := range labels {
+		if count[l] > 1 {
+			out[i] = fmt.Sprintf("%s%s_%d", prefix, l, index[i])
+		} else {
+			out[i] = prefix + l
+		}
+	}
+	return out
+}
+
+// ---- check ----
+
+func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelResponse) error {
+	if format == "json" {
+		return writeJSON(w, r)
+	}
+	csv := format == "csv"
+	// Tables round for reading; CSV keeps full precision.
+	real := func(x float64) string {
+		if csv {
+			return num(x)
+		}
+		return strconv.FormatFloat(x, 'g', 6, 64)
+	}
+	freq := func(x float64) string {
+		if csv {
+			return num(x)
+		}
+		return f4(x)
+	}
+	type kv struct{ key, human, value string }
+	yes := func(b bool) string {
+		if b {
+			return "yes"
+		}
+		return "no"
+	}
+	rows := []kv{
+		{"name", "model", name},
+		{"valid", "valid", yes(r.GetValid())},
+	}
+	if r.GetValid() {
+		var labels []string
+		for _, p := range r.GetStandardPoints() {
+			labels = append(labels, displayLabel(p.GetLabel()))
+		}
+		rows = append(rows,
+			kv{"model_hash", "model hash", r.GetModelHash()},
+			kv{"dimensions", "dimensions", fmt.Sprint(r.GetDimensions())},
+			kv{"lattice_type", "lattice type", r.GetLatticeType()},
+			kv{"standard_points", "built-in points", strings.Join(labels, " ")},
+			kv{"sites", "sites", fmt.Sprint(r.GetSites())},
+			kv{"polarizations", "polarizations", fmt.Sprint(r.GetPolarizations())},
+			kv{"modes_per_cell", "modes per cell", fmt.Sprint(r.GetModesPerCell())},
+			kv{"interactions", "interactions", fmt.Sprint(r.GetInteractions())},
+		)
+		for _, s := range r.GetShells() {
+			rows = append(rows,
+				kv{fmt.Sprintf("shell_%d_bonds", s.GetShell()), fmt.Sprintf("shells[%d] bonds", s.GetShell()), fmt.Sprint(s.GetBonds())},
+				kv{fmt.Sprintf("shell_%d_distance_a", s.GetShell()), fmt.Sprintf("shells[%d] distance (Å)", s.GetShell()), real(s.GetDistanceA())},
+			)
+		}
+		rows = append(rows,
+			kv{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
+			kv{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
+			kv{"stable", "stable (coarse grid)", yes(r.GetStable())},
+			kv{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
+			kv{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},
+		)
+	}
+	for _, v := range r.GetViolations() {
+		rows = append(rows, kv{"violation", "violation", v.GetField() + ": " + v.GetDescription()})
+	}
+	if csv {
+		c := newCSV(w)
+		c.row("property", "value")
+		for _, r := range rows {
+			c.row(r.key, r.value)
+		}
+		return c.flush()
+	}
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	for _, r := range rows {
+		fmt.Fprintf(tw, "%s\t%s\n", r.human, r.value)
+	}
+	return tw.Flush()
+}
+
+// ---- modes ----
+
+func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse) error {
+	unit := r.GetUnit()
+	switch format {
+	case "json":
+		return writeJSON(w, r)
+	case "csv":
+		c := newCSV(w)
+		c.row("q1", "q2", "q3", "branch", "frequency_"+unitName(unit))
+		for _, p := range r.GetPoints() {
+			q := p.GetQ()
+			for b, f := range p.GetFrequencies() {
+				c.row(num(q.GetQ1()), num(q.GetQ2()), num(q.GetQ3()), strconv.Itoa(b+1), num(f))
+			}
+		}
+		return c.flush()
+	}
+	t := newTable(w)
+	branches := 0
+	for _, p := range r.GetPoints() {
+		branches = max(branches, len(p.GetFrequencies()))
+	}
+	if branches <= wideBranches {
+		head := []string{"q1", "q2", "q3", "weight"}
+		for b := range branches {
+			head = append(head, fmt.Sprintf("ν%d (%s)", b+1, unitLabel(unit)))
+		}
+		t.row(head...)
+		for _, p := range r.GetPoints() {
+			q := p.GetQ()
+			cells := []string{f4(q.GetQ1()), f4(q.GetQ2()), f4(q.GetQ3()), strconv.FormatFloat(p.GetWeight(), 'g', 6, 64)}
+			for _, f := range p.GetFrequencies() {
+				cells = append(cells, f4(f))
+			}
+			t.row(cells...)
+		}
+		return t.flush()
+	}
+	t.row("q1", "q2", "q3", "branch", fmt.Sprintf("ν (%s)", unitLabel(unit)))
+	for _, p := range r.GetPoints() {
+		q := p.GetQ()
+		for b, f := range p.GetFrequencies() {
+			t.row(f4(q.GetQ1()), f4(q.GetQ2()), f4(q.GetQ3()), strconv.Itoa(b+1), f4(f))
+		}
+	}
+	return t.flush()
+}
+
+// ---- path ----
+
+func writePath(w io.Writer, format string, r *modegridv1.ComputeDispersionResponse) error {
+	unit := r.GetUnit()
+	switch format {
+	case "json":
+		return writeJSON(w, r)
+	case "csv":
+		c := newCSV(w)
+		c.row("distance", "label", "q1", "q2", "q3", "branch", "frequency_"+unitName(unit))
+		for _, s := range r.GetSamples() {
+			q := s.GetQ()
+			for b, f := range s.GetFrequencies() {
+				c.row(num(s.GetDistanceInvA()), s.GetLabel(), num(q.GetQ1()), num(q.GetQ2()), num(q.GetQ3()), strconv.Itoa(b+1), num(f))
+			}
+		}
+		return c.flush()
+	}
+	t := newTable(w)
+	branches := 0
+	for _, s := range r.GetSamples() {
+		branches = max(branches, len(s.GetFrequencies()))
+	}
+	wide := branches <= wideBranches
+	head := []string{"distance (1/Å)", "label", "q1", "q2", "q3"}
+	if wide {
+		for b := range branches {
+			head = append(head, fmt.Sprintf("ν%d (%s)", b+1, unitLabel(unit)))
+		}
+	} else {
+		head = append(head, "branch", fmt.Sprintf("ν (%s)", unitLabel(unit)))
+	}
+	t.row(head...)
+	for _, s := range r.GetSamples() {
+		q := s.GetQ()
+		lead := []string{f4(s.GetDistanceInvA()), displayLabel(s.GetLabel()), f4(q.GetQ1()), f4(q.GetQ2()), f4(q.GetQ3())}
+		if wide {
+			cells := lead
+			for _, f := range s.GetFrequencies() {
+				cells = append(cells, f4(f))
+			}
+			t.row(cells...)
+			continue
+		}
+		for b, f := range s.GetFrequencies() {
+			t.row(append(append([]string(nil), lead...), strconv.Itoa(b+1), f4(f))...)
+		}
+	}
+	return t.flush()
+}
+
+// displayLabel writes the built-in G as Γ for people.
+func displayLabel(l string) string {
+	parts := strings.Split(l, "|")
+	for i, p := range parts {
+		if p == "G" {
+			parts[i] = "Γ"
+		}
+	}
+	return strings.Join(parts, "|")
+}
+
+// ---- dos ----
+
+// dosSiteColumns returns the per-site projections of r and their column
+// names.
+func dosSiteColumns(r *modegridv1.ComputeDosResponse) ([]*modegridv1.ProjectedDos, []string) {
+	sites := r.GetSites()
+	labels := make([]string, len(sites))
+	index := make([]int, len(sites))
+	for i, s := range sites {
+		labels[i], index[i] = s.GetLabel(), int(s.GetSite())
+	}
+	return sites, siteColumns("dos_", labels, index)
+}
+
+func writeDOS(w io.Writer, format string, r *modegridv1.ComputeDosResponse) error {
+	if format == "json" {
+		return writeJSON(w, r)
+	}
+	sites, cols := dosSiteColumns(r)
+	value := func(p *modegridv1.ProjectedDos, i int) float64 {
+		if i < len(p.GetDos()) {
+			return p.GetDos()[i]
+		}
+		return 0
+	}
+	freqs := r.GetFrequencies()
+	if format == "csv" {
+		c := newCSV(w)
+		c.row(append([]string{"frequency_" + unitName(r.GetUnit()), "dos", "integrated"}, cols...)...)
+		for i, f := range freqs {
+			rec := []string{num(f), num(at(r.GetDos(), i)), num(at(r.GetIntegrated(), i))}
+			for _, s := range sites {
+				rec = append(rec, num(value(s, i)))
+			}
+			c.row(rec...)
+		}
+		return c.flush()
+	}
+	t := newTable(w)
+	u := unitLabel(r.GetUnit())
+	head := []string{fmt.Sprintf("ν (%s)", u), fmt.Sprintf("g (1/%s)", u), "integrated"}
+	for _, col := range cols {
+		head = append(head, strings.TrimPrefix(col, "dos_"))
+	}
+	t.row(head...)
+	g := func(x float64) string { return strconv.FormatFloat(x, 'f', 5, 64) }
+	for i, f := range freqs {
+		cells := []string{f4(f), g(at(r.GetDos(), i)), g(at(r.GetIntegrated(), i))}
+		for _, s := range sites {
+			cells = append(cells, g(value(s, i)))
+		}
+		t.row(cells...)
+	}
+	return t.flush()
+}
+
+func at(v []float64, i int) float64 {
+	if i < len(v) {
+		return v[i]
+	}
+	return 0
+}
+
+// ---- thermal ----
+
+// thermalHeader is the CSV header of `thermal`, per mole of unit cells.
+var thermalHeader = []string{
+	"temperature_k", "heat_capacity_j_per_mol_k", "entropy_j_per_mol_k",
+	"free_energy_kj_per_mol", "internal_energy_kj_per_mol", "debye_temperature_k",
+}
+
+// msdColumns names the mean-square-displacement columns of --msd.
+func msdColumns(r *modegridv1.ComputeThermalResponse) (uiso, b []string) {
+	if len(r.GetPoints()) == 0 {
+		return nil, nil
+	}
+	ds := r.GetPoints()[0].GetDisplacements()
+	labels := make([]string, len(ds))
+	index := make([]int, len(ds))
+	for i, d := range ds {
+		labels[i], index[i] = d.GetLabel(), int(d.GetSite())
+	}
+	return siteColumns("u_iso_a2_", labels, index), siteColumns("b_a2_", labels, index)
+}
+
+func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalResponse) error {
+	if format == "json" {
+		return writeJSON(w, r)
+	}
+	uiso, bcol := msdColumns(r)
+	if format == "csv" {
+		c := newCSV(w)
+		head := append([]string(nil), thermalHeader...)
+		for i := range uiso {
+			head = append(head, uiso[i], bcol[i])
+		}
+		c.row(head...)
+		for _, p := range r.GetPoints() {
+			rec := []string{num(p.GetTemperatureK()), num(p.GetHeatCapacityJPerMolK()), num(p.GetEntropyJPerMolK()),
+				num(p.GetFreeEnergyKjPerMol()), num(p.GetInternalEnergyKjPerMol()), num(p.GetDebyeTemperatureK())}
+			for i := range uiso {
+				d := displacement(p, i)
+				rec = append(rec, num(d.GetUIsoA2()), num(d.GetBA2()))
+			}
+			c.row(rec...)
+		}
+		return c.flush()
+	}
+	t := newTable(w)
+	head := []string{"T (K)", "Cv (J/mol/K)", "S (J/mol/K)", "F (kJ/mol)", "U (kJ/mol)", "θD (K)"}
+	for i := range uiso {
+		head = append(head, "Uiso "+strings.TrimPrefix(uiso[i], "u_iso_a2_")+" (Å²)")
+	}
+	t.row(head...)
+	for _, p := range r.GetPoints() {
+		cells := []string{
+			strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(p.GetHeatCapacityJPerMolK()), f4(p.GetEntropyJPerMolK()),
+			f4(p.GetFreeEnergyKjPerMol()), f4(p.GetInternalEnergyKjPerMol()), strconv.FormatFloat(p.GetDebyeTemperatureK(), 'f', 2, 64),
+		}
+		for i := range uiso {
+			cells = append(cells, strconv.FormatFloat(displacement(p, i).GetUIsoA2(), 'f', 6, 64))
+		}
+		t.row(cells...)
+	}
+	if err := t.flush(); err != nil {
+		return err
+	}
+	_, err := fmt.Fprintf(w, "zero-point energy: %s kJ/mol of cells; elastic Debye temperature: %s K\n",
+		f4(r.GetZeroPointEnergyKjPerMol()), strconv.FormatFloat(r.GetDebyeTemperatureElasticK(), 'f', 2, 64))
+	return err
+}
+
+func displacement(p *modegridv1.ThermalPoint, i int) *modegridv1.SiteDisplacement {
+	if i < len(p.GetDisplacements()) {
+		return p.GetDisplacements()[i]
+	}
+	return nil
+}

@@ -1,0 +1,179 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"io"
+
+	"github.com/materials-lab/modegrid/client"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+const pathSummary = `Frequencies along a path of straight segments through labelled points.
+Without --path, the standard path of the crystal's lattice (sc, fcc, bcc,
+hexagonal, square, rectangular, 1D) is used. --path G-X-W-L-G uses the built-in points of the crystal's lattice (G is Γ;
+'|' starts a disconnected piece), --path "G=0,0,0 X=0.5,0,0.5" gives them in
+fractional reciprocal coordinates. Distances are cumulative, in 1/Å (2π
+included). With --plot the figure has a DOS panel beside the dispersion on
+the same frequency axis (grid: --grid, or a default; --no-dos omits it).`
+
+func cmdPath(args []string, e *env) error {
+	fs := newFlagSet("path")
+	var m modelFlag
+	var conn connFlags
+	var out outFlags
+	var qs qsetFlags
+	m.register(fs)
+	conn.register(fs)
+	out.register(fs, true)
+	qs.register(fs, false)
+	pathFlag := fs.String("path", "", `corners: "G-X-W-L-G" (built-in labels) or "G=0,0,0 X=0.5,0,0.5 ..."`)
+	points := fs.Uint("points", 0, "samples along the whole path (default: the server's, 201)")
+	spacing := fs.Float64("spacing", 0, "sample spacing in 1/Å instead of --points")
+	connectBranches := fs.Bool("connect", false, "follow branches through crossings by eigenvector overlap instead of sorting")
+	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
+	method := fs.String("method", "tetrahedron", "DOS method of the panel: tetrahedron, gaussian or histogram")
+	width := fs.Float64("width", 0, "Gaussian width of the panel's DOS, in --unit (default: from the grid)")
+	noDOS := fs.Bool("no-dos", false, "plot the dispersion without the DOS panel")
+	sumRule := fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
+	if err := parse(fs, args, e.stderr, pathSummary); err != nil {
+		return err
+	}
+	if err := out.check(fs); err != nil {
+		return err
+	}
+	if err := conn.check(); err != nil {
+		return err
+	}
+	u, err := parseUnit(*unit)
+	if err != nil {
+		return usagef("%v", err)
+	}
+	meth, err := parseMethod(*method)
+	if err != nil {
+		return usagef("%v", err)
+	}
+	if *spacing < 0 {
+		return usagef("--spacing must be > 0 1/Å, got %v", *spacing)
+	}
+	var corners []pathCorner
+	if *pathFlag != "" {
+		if corners, err = parsePath(*pathFlag); err != nil {
+			return usagef("--path: %v", err)
+		}
+	}
+	crystal, err := m.load()
+	if err != nil {
+		return err
+	}
+	d, _ := dims(crystal)
+	var dosSet *modegridv1.QPointSet
+	if out.plot != "" && !*noDOS {
+		if dosSet, err = qs.set(d, true); err != nil {
+			return err
+		}
+	}
+	cl, stop, err := connect(conn.server, conn.options()...)
+	if err != nil {
+		return err
+	}
+	defer stop()
+	ctx, cancel := callContext()
+	defer cancel()
+	src := client.Inline(crystal)
+	src.EnforceSumRule = *sumRule
+	if corners == nil {
+		if corners, err = standardPath(ctx, cl, src); err != nil {
+			return err
+		}
+	}
+	req := &modegridv1.ComputeDispersionRequest{
+		Model: src, Path: pathPoints(corners), Points: uint32(*points), SpacingInvA: *spacing,
+		Unit: u, ConnectBranches: *connectBranches,
+	}
+	done := e.prog.running("dispersion")
+	resp, err := cl.Dispersion(ctx, req)
+	done()
+	if err != nil {
+		return err
+	}
+	if err := out.write(e.stdout, func(w io.Writer) error { return writePath(w, out.format, resp) }); err != nil {
+		return err
+	}
+	if out.plot == "" {
+		return nil
+	}
+	var dos *modegridv1.ComputeDosResponse
+	if dosSet != nil {
+		done := e.prog.running("density of states for the side panel")
+		dos, err = cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: dosSet, Method: meth, Unit: u, Width: *width})
+		done()
+		if err != nil {
+			return err
+		}
+	}
+	return plotDispersion(out.plot, out.kind, resp, dos, crystal.GetName())
+}
+
+// defaultPaths are the standard paths through the built-in points of each
+// lattice type: for sc, fcc, bcc and hexagonal those of Setyawan &
+// Curtarolo, Comput. Mater. Sci. 49, 299 (2010), Table 2 and Figs. 1–4 (from
+// memory); for the 2D and 1D lattices the usual closed loops (common
+// practice).
+var defaultPaths = map[string]string{
+	"sc":          "G-X-M-G-R-X|M-R",
+	"fcc":         "G-X-W-K-G-L-U-W-L-K|U-X",
+	"bcc":         "G-H-N-G-P-H|P-N",
+	"hexagonal":   "G-M-K-G-A-L-H-A|L-M|K-H",
+	"square":      "G-X-M-G",
+	"rectangular": "G-X-S-Y-G",
+	"1d":          "G-X",
+}
+
+// standardPath asks the server for the model's lattice type and returns its
+// default path, or a usage error when the lattice has none.
+func standardPath(ctx context.Context, cl *client.Client, src *modegridv1.ModelSource) ([]pathCorner, error) {
+	chk, err := cl.Check(ctx, &modegridv1.CheckModelRequest{Model: src})
+	if err != nil {
+		return nil, err
+	}
+	if !chk.GetValid() {
+		ie := &invalidError{msg: fmt.Sprintf("the model is invalid (%d problem%s)", len(chk.GetViolations()), plural(len(chk.GetViolations())))}
+		for _, v := range chk.GetViolations() {
+			ie.violations = append(ie.violations, v.GetField()+": "+v.GetDescription())
+		}
+		return nil, ie
+	}
+	lt := chk.GetLatticeType()
+	spec, ok := defaultPaths[lt]
+	if !ok {
+		return nil, usagef(`--path is required: the lattice is not one with built-in points (give coordinates, e.g. --path "G=0,0,0 X=0.5,0,0")`)
+	}
+	have := map[string]bool{}
+	for _, p := range chk.GetStandardPoints() {
+		have[p.GetLabel()] = true
+	}
+	corners, err := parsePath(spec)
+	if err != nil {
+		return nil, err
+	}
+	for _, c := range corners {
+		if !have[c.Label] {
+			return nil, usagef("--path is required: the server has no built-in point %s for a %s lattice", c.Label, lt)
+		}
+	}
+	return corners, nil
+}
+
+// pathPoints converts parsed corners to the API's path points.
+func pathPoints(cs []pathCorner) []*modegridv1.PathPoint {
+	out := make([]*modegridv1.PathPoint, len(cs))
+	for i, c := range cs {
+		p := &modegridv1.PathPoint{Label: c.Label, BreakBefore: c.Break}
+		if c.HasQ {
+			p.Q = &modegridv1.QPoint{Q1: c.Q[0], Q2: c.Q[1], Q3: c.Q[2]}
+		}
+		out[i] = p
+	}
+	return out
+}

@@ -1,0 +1,68 @@
+package client
+
+import (
+	"fmt"
+	"os"
+
+	"google.golang.org/protobuf/encoding/protojson"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// LoadModel reads a model file: the protobuf JSON of modegrid.v1.Crystal
+// (camelCase or snake_case keys). It checks only the JSON; the server
+// validates the physics.
+func LoadModel(path string) (*modegridv1.Crystal, error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("read model: %w", err)
+	}
+	c, err := ParseModel(b)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return c, nil
+}
+
+// ParseModel parses the protobuf JSON of a modegrid.v1.Crystal. Unknown keys
+// are an error, so a misspelt key is not silently ignored.
+func ParseModel(b []byte) (*modegridv1.Crystal, error) {
+	var c modegridv1.Crystal
+	if err := protojson.Unmarshal(b, &c); err != nil {
+		return nil, fmt.Errorf("parse model: %w", err)
+	}
+	return &c, nil
+}
+
+// Inline returns a ModelSource carrying the model itself. The Client turns
+// it into a reference by hash once the server has seen the model.
+func Inline(c *modegridv1.Crystal) *modegridv1.ModelSource {
+	return &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: c}}
+}
+
+// QList returns an explicit q-point set; each point is fractional reciprocal
+// coordinates (components past the crystal's dimensionality 0).
+func QList(points ...[3]float64) *modegridv1.QPointSet {
+	l := &modegridv1.QPointList{}
+	for _, q := range points {
+		l.Points = append(l.Points, &modegridv1.QPoint{Q1: q[0], Q2: q[1], Q3: q[2]})
+	}
+	return &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: l}}
+}
+
+// Grid returns a Γ-centred Monkhorst–Pack grid with the given divisions
+// (one per lattice vector).
+func Grid(mesh ...uint32) *modegridv1.QPointSet {
+	return &modegridv1.QPointSet{Set: &modegridv1.QPointSet_Grid{Grid: &modegridv1.MonkhorstPackGrid{Mesh: mesh}}}
+}
+
+// ShiftedGrid returns a Monkhorst–Pack grid shifted by half a step.
+func ShiftedGrid(mesh ...uint32) *modegridv1.QPointSet {
+	return &modegridv1.QPointSet{Set: &modegridv1.QPointSet_Grid{Grid: &modegridv1.MonkhorstPackGrid{Mesh: mesh, Shifted: true}}}
+}
+
+// Cells returns the q-point set of a finite crystal of N1×N2×N3 cells with
+// periodic boundary conditions: exactly its allowed wavevectors.
+func Cells(cells ...uint32) *modegridv1.QPointSet {
+	return &modegridv1.QPointSet{Set: &modegridv1.QPointSet_Cells{Cells: &modegridv1.FiniteCrystal{Cells: cells}}}
+}

@@ -1,0 +1,188 @@
+package client
+
+import (
+	"fmt"
+	"strings"
+	"testing"
+
+	"google.golang.org/protobuf/proto"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+func chain(massAmu float64) *modegridv1.Crystal {
+	return &modegridv1.Crystal{
+		Name:          "chain",
+		Lattice:       []*modegridv1.Vec3{{X: 2.5}},
+		Polarizations: 1,
+		Sites:         []*modegridv1.Site{{Label: "A", MassAmu: massAmu, Frac: []float64{0}}},
+		Springs:       []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: 1.5}},
+	}
+}
+
+// TestWithSource: the copy carries the new model source and shares every
+// other field; the caller's request is unchanged.
+func TestWithSource(t *testing.T) {
+	src := Inline(chain(40))
+	qs := Grid(8)
+	tests := []struct {
+		name string
+		req  proto.Message
+	}{
+		{name: "check", req: &modegridv1.CheckModelRequest{Model: src}},
+		{name: "modes", req: &modegridv1.ComputeModesRequest{Model: src, Qpoints: qs, Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_MEV, ChunkSize: 7}},
+		{name: "dispersion", req: &modegridv1.ComputeDispersionRequest{Model: src, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, Points: 11}},
+		{name: "dos", req: &modegridv1.ComputeDosRequest{Model: src, Qpoints: qs, PerSite: true, Step: 0.1}},
+		{name: "thermal", req: &modegridv1.ComputeThermalRequest{Model: src, Qpoints: qs, TemperaturesK: []float64{300}, Msd: true}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			before := proto.Clone(tc.req)
+			ref := reference("abc", src)
+			out := withSource(tc.req, ref)
+			if got := sourceOf(out); got.GetModelHash() != "abc" || got.GetCrystal() != nil {
+				t.Errorf("copy has model %v; want the reference", got)
+			}
+			if !proto.Equal(tc.req, before) {
+				t.Error("the caller's request changed")
+			}
+			// Everything but the model is equal.
+			a, b := proto.Clone(out), proto.Clone(tc.req)
+			clearModel(a)
+			clearModel(b)
+			if !proto.Equal(a, b) {
+				t.Errorf("fields other than the model differ:\n%v\n%v", a, b)
+			}
+		})
+	}
+}
+
+func clearModel(m proto.Message) {
+	r := m.ProtoReflect()
+	r.Clear(modelField(r))
+}
+
+// TestKeyOf: the client-side key ignores JSON spelling but not content or
+// the sum-rule flag.
+func TestKeyOf(t *testing.T) {
+	const camel = `{"name":"chain","lattice":[{"x":2.5}],"polarizations":1,"sites":[{"label":"A","massAmu":40,"frac":[0]}],"springs":[{"from":0,"to":0,"cell":[1],"kLong":1.5}]}`
+	const snake = `{"springs":[{"k_long":1.5,"cell":[1],"to":0,"from":0}],"sites":[{"frac":[0],"mass_amu":40,"label":"A"}],"polarizations":1,"lattice":[{"x":2.5,"y":0}],"name":"chain"}`
+	a, err := ParseModel([]byte(camel))
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := ParseModel([]byte(snake))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ka, _ := keyOf(Inline(a))
+	kb, _ := keyOf(Inline(b))
+	if ka != kb {
+		t.Error("the same model spelled two ways has two keys")
+	}
+	withRule := Inline(a)
+	withRule.EnforceSumRule = true
+	if k, _ := keyOf(withRule); k == ka {
+		t.Error("enforce_sum_rule does not change the key")
+	}
+	if k, _ := keyOf(Inline(chain(41))); k == ka {
+		t.Error("a different mass has the same key")
+	}
+	if _, ok := keyOf(&modegridv1.ModelSource{Source: &modegridv1.ModelSource_ModelHash{ModelHash: "x"}}); ok {
+		t.Error("a reference has a key")
+	}
+}
+
+// TestRefsBounded: the reference table holds at most maxRefs models and
+// forgets the oldest first.
+func TestRefsBounded(t *testing.T) {
+	var r modelRefs
+	keys := make([]modelKey, maxRefs+10)
+	for i := range keys {
+		src := Inline(chain(10 + float64(i)))
+		keys[i], _ = keyOf(src)
+		r.remember(keys[i], src, fmt.Sprintf("h%d", i), true)
+	}
+	if n := len(r.byKey); n != maxRefs {
+		t.Errorf("%d entries; want %d", n, maxRefs)
+	}
+	if n := len(r.byHash); n != maxRefs {
+		t.Errorf("%d hashes; want %d", n, maxRefs)
+	}
+	if _, ok := r.lookupKey(keys[0]); ok {
+		t.Error("the oldest entry is still there")
+	}
+	if _, ok := r.lookupHash("h0"); ok {
+		t.Error("the oldest hash is still there")
+	}
+	if e, ok := r.lookupKey(keys[len(keys)-1]); !ok || e.hash != fmt.Sprintf("h%d", len(keys)-1) || !e.sent {
+		t.Errorf("newest entry %+v, %v", e, ok)
+	}
+	r.unsent(fmt.Sprintf("h%d", len(keys)-1))
+	if e, _ := r.lookupKey(keys[len(keys)-1]); e.sent {
+		t.Error("unsent did not clear sent")
+	}
+}
+
+func TestIsLocalTarget(t *testing.T) {
+	tests := []struct {
+		name   string
+		target string
+		want   bool
+	}{
+		{"ipv4 loopback", "127.0.0.1:7420", true},
+		{"ipv6 loopback", "[::1]:7420", true},
+		{"localhost", "localhost:7420", true},
+		{"dns localhost", "dns:///localhost:7420", true},
+		{"unix socket", "unix:///run/modegrid.sock", true},
+		{"passthrough loopback", "passthrough:///127.0.0.1:1", true},
+		{"remote name", "modegrid.lab:7420", false},
+		{"dns remote", "dns:///modegrid-headless.lab.svc:7420", false},
+		{"remote ip", "10.0.0.5:7420", false},
+		{"all interfaces", "0.0.0.0:7420", false},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := isLocalTarget(tc.target); got != tc.want {
+				t.Errorf("isLocalTarget(%q) = %v; want %v", tc.target, got, tc.want)
+			}
+		})
+	}
+}
+
+// TestServiceConfig: the service config names the balancer, the retry
+// policy on UNAVAILABLE only, and health checking.
+func TestServiceConfig(t *testing.T) {
+	tests := []struct {
+		name        string
+		affinity    bool
+		attempts    int
+		health      bool
+		contains    []string
+		notContains []string
+	}{
+		{name: "defaults", attempts: 4, health: true,
+			contains: []string{`"round_robin"`, `"maxAttempts":4`, `"retryableStatusCodes":["UNAVAILABLE"]`, `"healthCheckConfig"`, `"service":"modegrid.v1.ModegridService"`}},
+		{name: "affinity", affinity: true, attempts: 4, health: true,
+			contains: []string{`"ring_hash_experimental":{"requestHashHeader":"x-modegrid-model"}`}, notContains: []string{"round_robin"}},
+		{name: "no retries", attempts: 1, contains: []string{`"round_robin"`}, notContains: []string{"retryPolicy", "healthCheckConfig"}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, s := range tc.contains {
+				if !strings.Contains(sc, s) {
+					t.Errorf("%s lacks %s", sc, s)
+				}
+			}
+			for _, s := range tc.notContains {
+				if strings.Contains(sc, s) {
+					t.Errorf("%s has %s", sc, s)
+				}
+			}
+		})
+	}
+}

@@ -1,0 +1,541 @@
+package deploy
+
+import (
+	"bufio"
+	"debug/elf"
+	"fmt"
+	"os"
+	"os/exec"
+	"path"
+	"path/filepath"
+	"regexp"
+	"slices"
+	"strings"
+	"testing"
+	"time"
+)
+
+// instruction is one Dockerfile instruction with continuation lines joined.
+type instruction struct {
+	cmd  string // upper case: FROM, RUN, ...
+	args string
+	line int
+}
+
+// stage is one build stage: its FROM image, its name and its instructions.
+type stage struct {
+	image string
+	name  string
+	instr []instruction
+}
+
+// dockerfile is a parsed Dockerfile: global ARG defaults (before the first
+// FROM) and the stages in order.
+type dockerfile struct {
+	args   map[string]string
+	stages []*stage
+}
+
+// parseDockerfile reads the subset of Dockerfile syntax deploy/Dockerfile
+// uses: comments, backslash continuations, one instruction per logical line.
+func parseDockerfile(file string) (*dockerfile, error) {
+	f, err := os.Open(file)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	df := &dockerfile{args: map[string]string{}}
+	sc := bufio.NewScanner(f)
+	var cur strings.Builder
+	start, n := 0, 0
+	flush := func() error {
+		text := strings.TrimSpace(cur.String())
+		cur.Reset()
+		if text == "" {
+			return nil
+		}
+		cmd, args, _ := strings.Cut(text, " ")
+		in := instruction{cmd: strings.ToUpper(cmd), args: strings.TrimSpace(args), line: start}
+		switch {
+		case in.cmd == "FROM":
+			fields := strings.Fields(in.args)
+			s := &stage{image: fields[0]}
+			if len(fields) == 3 && strings.EqualFold(fields[1], "AS") {
+				s.name = fields[2]
+			}
+			df.stages = append(df.stages, s)
+		case len(df.stages) == 0 && in.cmd == "ARG":
+			k, v, _ := strings.Cut(in.args, "=")
+			df.args[k] = v
+		case len(df.stages) == 0:
+			return fmt.Errorf("line %d: %s before the first FROM", in.line, in.cmd)
+		default:
+			s := df.stages[len(df.stages)-1]
+			s.instr = append(s.instr, in)
+		}
+		return nil
+	}
+	for sc.Scan() {
+		n++
+		line := sc.Text()
+		trimmed := strings.TrimSpace(line)
+		if strings.HasPrefix(trimmed, "#") || (trimmed == "" && cur.Len() == 0) {
+			continue
+		}
+		if cur.Len() == 0 {
+			start = n
+		}
+		if strings.HasSuffix(trimmed, "\\") {
+			cur.WriteString(strings.TrimSuffix(trimmed, "\\") + " ")
+			continue
+		}
+		cur.WriteString(trimmed)
+		if err := flush(); err != nil {
+			return nil, err
+		}
+	}
+	if err := sc.Err(); err != nil {
+		return nil, err
+	}
+	if cur.Len() > 0 {
+		return nil, fmt.Errorf("line %d: continuation at end of file", start)
+	}
+	return df, flush()
+}
+
+// env returns the ENV settings of a stage (KEY=VALUE pairs, space-separated).
+func (s *stage) env() map[string]string {
+	m := map[string]string{}
+	for _, in := range s.instr {
+		if in.cmd != "ENV" {
+			continue
+		}
+		for _, kv := range shellWords(in.args) {
+			k, v, _ := strings.Cut(kv, "=")
+			m[k] = v
+		}
+	}
+	return m
+}
+
+// all returns the arguments of every instruction cmd in the stage.
+func (s *stage) all(cmd string) []string {
+	var out []string
+	for _, in := range s.instr {
+		if in.cmd == cmd {
+			out = append(out, in.args)
+		}
+	}
+	return out
+}
+
+// shellWords splits a command line the way sh does for the plain words,
+// double- and single-quoted strings used in deploy/Dockerfile.
+func shellWords(s string) []string {
+	var words []string
+	var cur strings.Builder
+	inWord := false
+	var quote rune
+	for _, r := range s {
+		switch {
+		case quote != 0 && r == quote:
+			quote = 0
+		case quote != 0:
+			cur.WriteRune(r)
+		case r == '"' || r == '\'':
+			quote, inWord = r, true
+		case r == ' ' || r == '\t':
+			if inWord {
+				words = append(words, cur.String())
+				cur.Reset()
+				inWord = false
+			}
+		default:
+			cur.WriteRune(r)
+			inWord = true
+		}
+	}
+	if inWord {
+		words = append(words, cur.String())
+	}
+	return words
+}
+
+// goBuildCommand turns the build stage's `go build` RUN line into a command
+// run on this machine: BuildKit --mount flags dropped, ${VERSION} replaced by
+// version, the -o path replaced by out, the stage's ENV (CGO_ENABLED=0 ...)
+// applied, run from the repository root.
+func (df *dockerfile) goBuildCommand(out, version string) (*exec.Cmd, error) {
+	var run string
+	var st *stage
+	for _, s := range df.stages {
+		for _, r := range s.all("RUN") {
+			if strings.Contains(r, "go build") {
+				run, st = r, s
+			}
+		}
+	}
+	if run == "" {
+		return nil, fmt.Errorf("no RUN go build in any stage")
+	}
+	words := shellWords(run)
+	for len(words) > 0 && strings.HasPrefix(words[0], "--mount=") {
+		words = words[1:]
+	}
+	if len(words) < 2 || words[0] != "go" || words[1] != "build" {
+		return nil, fmt.Errorf("RUN line does not start with go build: %q", run)
+	}
+	args := words[1:]
+	for i, a := range args {
+		args[i] = strings.ReplaceAll(a, "${VERSION}", version)
+		if a == "-o" && i+1 < len(args) {
+			args[i+1] = out
+		}
+	}
+	cmd := exec.Command("go", args...)
+	cmd.Dir = repoRoot
+	cmd.Env = os.Environ()
+	for k, v := range st.env() {
+		cmd.Env = append(cmd.Env, k+"="+v)
+	}
+	return cmd, nil
+}
+
+// TestDockerfile checks deploy/Dockerfile statically (no Docker engine runs
+// here): a build stage on the Go image named in go.mod or newer compiles a
+// static, trimmed, version-stamped binary of ./server/cmd/modegridd; the
+// final stage is distroless static (no shell) with the nonroot user, copies
+// only that binary, exposes the gRPC and metrics ports its ENV listens on,
+// and nothing mentions GPU or CUDA layers.
+func TestDockerfile(t *testing.T) {
+	file := filepath.Join(repoRoot, "deploy", "Dockerfile")
+	df, err := parseDockerfile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(df.stages) < 2 {
+		t.Fatalf("%d stages; want a multi-stage build (build + run)", len(df.stages))
+	}
+	buildSt, runSt := df.stages[0], df.stages[len(df.stages)-1]
+	raw, err := os.ReadFile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+
+	t.Run("build stage", func(t *testing.T) {
+		img := expandArgs(buildSt.image, df.args)
+		m := regexp.MustCompile(`^golang:(\d+\.\d+(?:\.\d+)?)-`).FindStringSubmatch(img)
+		if m == nil {
+			t.Fatalf("build stage FROM %q; want the official golang image with a version tag", img)
+		}
+		if want := goModVersion(t); versionLess(m[1], want) {
+			t.Errorf("build image Go %s is older than go.mod's go %s", m[1], want)
+		}
+		if buildSt.name == "" {
+			t.Error("build stage has no name (FROM ... AS build) for COPY --from")
+		}
+		if got := buildSt.env()["CGO_ENABLED"]; got != "0" {
+			t.Errorf("build stage ENV CGO_ENABLED=%q; want 0 (static binary)", got)
+		}
+		var run string
+		for _, r := range buildSt.all("RUN") {
+			if strings.Contains(r, "go build") {
+				run = r
+			}
+		}
+		for _, want := range []string{"-trimpath", "-X main.version=${VERSION}", "-s -w", "./server/cmd/modegridd"} {
+			if !strings.Contains(run, want) {
+				t.Errorf("go build line %q lacks %q", run, want)
+			}
+		}
+		if !slices.ContainsFunc(buildSt.all("ARG"), func(a string) bool { return strings.HasPrefix(a, "VERSION") }) {
+			t.Error("build stage has no ARG VERSION to stamp the version")
+		}
+	})
+
+	t.Run("run stage", func(t *testing.T) {
+		if !strings.HasPrefix(runSt.image, "gcr.io/distroless/static") || !strings.HasSuffix(runSt.image, ":nonroot") {
+			t.Errorf("run stage FROM %q; want gcr.io/distroless/static…:nonroot (no shell, non-root)", runSt.image)
+		}
+		users := runSt.all("USER")
+		if len(users) == 0 {
+			t.Error("run stage sets no USER")
+		}
+		for _, u := range users {
+			if name, _, _ := strings.Cut(u, ":"); name != "nonroot" && name != "65532" {
+				t.Errorf("run stage USER %q; want nonroot (65532)", u)
+			}
+		}
+		for _, in := range runSt.instr {
+			if in.cmd == "RUN" {
+				t.Errorf("line %d: RUN in the run stage (distroless has no shell)", in.line)
+			}
+			if in.cmd == "COPY" && !strings.HasPrefix(in.args, "--from="+buildSt.name+" ") {
+				t.Errorf("line %d: COPY %s; the run stage should copy only the binary from the build stage", in.line, in.args)
+			}
+		}
+		var ports []string
+		for _, e := range runSt.all("EXPOSE") {
+			ports = append(ports, strings.Fields(e)...)
+		}
+		env := runSt.env()
+		for _, key := range []string{"MODEGRID_LISTEN", "MODEGRID_METRICS_LISTEN"} {
+			_, port, err := splitHostPort(env[key])
+			if err != nil {
+				t.Errorf("ENV %s=%q: %v", key, env[key], err)
+				continue
+			}
+			if !slices.Contains(ports, port) && !slices.Contains(ports, port+"/tcp") {
+				t.Errorf("ENV %s listens on port %s, which is not in EXPOSE %v", key, port, ports)
+			}
+		}
+		if len(ports) != 2 {
+			t.Errorf("EXPOSE %v; want exactly the gRPC and the metrics port", ports)
+		}
+		ep := runSt.all("ENTRYPOINT")
+		if len(ep) != 1 || !strings.HasPrefix(ep[0], "[") {
+			t.Errorf("ENTRYPOINT %v; want one, in exec form (no shell to run a string)", ep)
+		}
+	})
+
+	t.Run("no GPU layers", func(t *testing.T) {
+		if m := regexp.MustCompile(`(?i)cuda|nvidia|\bgpu\b`).FindAllString(stripComments(string(raw)), -1); len(m) > 0 {
+			t.Errorf("Dockerfile instructions mention %v; the image must be CPU-only", m)
+		}
+	})
+}
+
+// stripComments drops comment lines, which may say what the image is not.
+func stripComments(s string) string {
+	var b strings.Builder
+	for _, l := range strings.Split(s, "\n") {
+		if !strings.HasPrefix(strings.TrimSpace(l), "#") {
+			b.WriteString(l + "\n")
+		}
+	}
+	return b.String()
+}
+
+func splitHostPort(hp string) (string, string, error) {
+	i := strings.LastIndex(hp, ":")
+	if i < 0 || i == len(hp)-1 {
+		return "", "", fmt.Errorf("not host:port")
+	}
+	return hp[:i], hp[i+1:], nil
+}
+
+// expandArgs replaces ${NAME} with the global ARG defaults.
+func expandArgs(s string, args map[string]string) string {
+	for k, v := range args {
+		s = strings.ReplaceAll(s, "${"+k+"}", v)
+	}
+	return s
+}
+
+// goModVersion returns the go directive of go.mod.
+func goModVersion(t *testing.T) string {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(repoRoot, "go.mod"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := regexp.MustCompile(`(?m)^go (\S+)$`).FindSubmatch(b)
+	if m == nil {
+		t.Fatal("no go directive in go.mod")
+	}
+	return string(m[1])
+}
+
+// versionLess compares dotted numeric versions ("1.26" < "1.26.7").
+func versionLess(a, b string) bool {
+	pa, pb := strings.Split(a, "."), strings.Split(b, ".")
+	for i := range max(len(pa), len(pb)) {
+		var x, y int
+		if i < len(pa) {
+			fmt.Sscan(pa[i], &x)
+		}
+		if i < len(pb) {
+			fmt.Sscan(pb[i], &y)
+		}
+		if x != y {
+			return x < y
+		}
+	}
+	return false
+}
+
+func TestVersionLess(t *testing.T) {
+	tests := []struct {
+		name string
+		a, b string
+		want bool
+	}{
+		{name: "patch older", a: "1.26.7", b: "1.26.8", want: true},
+		{name: "equal", a: "1.26.8", b: "1.26.8", want: false},
+		{name: "minor only equals .0", a: "1.26", b: "1.26.0", want: false},
+		{name: "minor older than patch", a: "1.26", b: "1.26.7", want: true},
+		{name: "newer minor", a: "1.27", b: "1.26.9", want: false},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := versionLess(tc.a, tc.b); got != tc.want {
+				t.Errorf("versionLess(%q, %q) = %v; want %v", tc.a, tc.b, got, tc.want)
+			}
+		})
+	}
+}
+
+// TestShellWords covers the quoting deploy/Dockerfile uses.
+func TestShellWords(t *testing.T) {
+	tests := []struct {
+		name string
+		in   string
+		want []string
+	}{
+		{name: "plain", in: "go build -o x", want: []string{"go", "build", "-o", "x"}},
+		{name: "double quotes", in: `-ldflags "-s -w -X main.version=${VERSION}" -o /out`, want: []string{"-ldflags", "-s -w -X main.version=${VERSION}", "-o", "/out"}},
+		{name: "empty quoted", in: `--save "" x`, want: []string{"--save", "", "x"}},
+		{name: "env pairs", in: "A=0 B=-x", want: []string{"A=0", "B=-x"}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := shellWords(tc.in); !slices.Equal(got, tc.want) {
+				t.Errorf("shellWords(%q) = %q; want %q", tc.in, got, tc.want)
+			}
+		})
+	}
+}
+
+// TestDockerignore: the build context keeps what go build needs (go.mod,
+// go.sum, the packages of modegridd) and leaves out version control, build
+// outputs and test binaries.
+func TestDockerignore(t *testing.T) {
+	b, err := os.ReadFile(filepath.Join(repoRoot, ".dockerignore"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var patterns []string
+	for _, l := range strings.Split(string(b), "\n") {
+		if l = strings.TrimSpace(l); l != "" && !strings.HasPrefix(l, "#") {
+			patterns = append(patterns, l)
+		}
+	}
+	tests := []struct {
+		name     string
+		path     string
+		excluded bool
+	}{
+		{name: "git metadata", path: ".git/HEAD", excluded: true},
+		{name: "built binaries", path: "bin/modegridd", excluded: true},
+		{name: "test binary", path: "server/server.test", excluded: true},
+		{name: "CI scripts", path: ".ci/run", excluded: true},
+		{name: "go.mod", path: "go.mod", excluded: false},
+		{name: "go.sum", path: "go.sum", excluded: false},
+		{name: "server main", path: "server/cmd/modegridd/main.go", excluded: false},
+		{name: "server package", path: "server/server.go", excluded: false},
+		{name: "physics", path: "physics/model.go", excluded: false},
+		{name: "generated protos", path: "proto/modegrid/v1/service.pb.go", excluded: false},
+		{name: "embedded examples", path: "proto/examples/fcc.json", excluded: false},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := dockerIgnored(patterns, tc.path); got != tc.excluded {
+				t.Errorf("%s excluded = %v; want %v (patterns %q)", tc.path, got, tc.excluded, patterns)
+			}
+		})
+	}
+}
+
+// dockerIgnored applies .dockerignore rules to a context path: a pattern
+// (path.Match syntax, "**/" matching any directories) excludes the path or
+// any of its parent directories; a later "!pattern" re-includes.
+func dockerIgnored(patterns []string, p string) bool {
+	ignored := false
+	for _, pat := range patterns {
+		neg := strings.HasPrefix(pat, "!")
+		pat = strings.TrimPrefix(pat, "!")
+		if matchDockerPattern(pat, p) {
+			ignored = !neg
+		}
+	}
+	return ignored
+}
+
+func matchDockerPattern(pat, p string) bool {
+	for q := p; q != "." && q != "/"; q = path.Dir(q) {
+		if ok, _ := path.Match(pat, q); ok {
+			return true
+		}
+		if rest, found := strings.CutPrefix(pat, "**/"); found {
+			parts := strings.Split(q, "/")
+			for i := range parts {
+				if ok, _ := path.Match(rest, strings.Join(parts[i:], "/")); ok {
+					return true
+				}
+			}
+		}
+	}
+	return false
+}
+
+// TestStaticBinary builds modegridd with the Dockerfile's own go build
+// command and checks the result: a statically linked ELF (no interpreter,
+// no shared libraries, so it runs on distroless/static), built with
+// -trimpath (no build-machine paths inside), carrying the stamped version;
+// started with only the container's environment (ports moved to free
+// loopback ones), it reports SERVING on the gRPC health service and exits
+// with status 0 on SIGTERM.
+func TestStaticBinary(t *testing.T) {
+	bin := daemonBinary(t)
+	f, err := elf.Open(bin)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	for _, p := range f.Progs {
+		if p.Type == elf.PT_INTERP {
+			t.Error("binary has a PT_INTERP program header: dynamically linked")
+		}
+	}
+	if libs, _ := f.ImportedLibraries(); len(libs) > 0 {
+		t.Errorf("binary needs shared libraries %v", libs)
+	}
+	raw, err := os.ReadFile(bin)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if abs, _ := filepath.Abs(repoRoot); strings.Contains(string(raw), abs) {
+		t.Errorf("binary contains the build path %s: not built with -trimpath", abs)
+	}
+	if !strings.Contains(string(raw), testVersion) {
+		t.Errorf("binary does not contain the stamped version %q (is main.version defined?)", testVersion)
+	}
+
+	t.Run("version flag", func(t *testing.T) {
+		out, err := exec.Command(bin, "--version").CombinedOutput()
+		if err != nil {
+			t.Fatalf("modegridd --version: %v\n%s", err, out)
+		}
+		if !strings.Contains(string(out), testVersion) {
+			t.Errorf("modegridd --version printed %q; want it to contain %q", out, testVersion)
+		}
+	})
+
+	t.Run("serves and stops on SIGTERM", func(t *testing.T) {
+		df, err := parseDockerfile(filepath.Join(repoRoot, "deploy", "Dockerfile"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		// The container's environment, with its listen addresses moved to
+		// free loopback ports (startDaemon's MODEGRID_LISTEN and
+		// MODEGRID_METRICS_LISTEN come after and win).
+		var env []string
+		for k, v := range df.stages[len(df.stages)-1].env() {
+			env = append(env, k+"="+v)
+		}
+		d := startDaemon(t, daemonConfig{name: "container-like", env: env})
+		if err := d.terminate(30 * time.Second); err != nil {
+			t.Fatalf("after SIGTERM: %v; want exit status 0\nlog:\n%s", err, d.logs.String())
+		}
+	})
+}

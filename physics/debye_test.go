@@ -1,0 +1,170 @@
+package physics
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"gonum.org/v1/gonum/integrate/quad"
+)
+
+// TestDebyeFunctionTable: D₃(x) and the Debye heat capacity C_V/(3Nk) =
+// 4D₃(x) − 3x/(eˣ−1) against R. Pässler, Adv. Condens. Matter Phys. 2017,
+// 9321439, Table 7 (D₃ as in Abramowitz & Stegun §27.1) via
+// REFERENCE-VALUES, to the table's 10 digits.
+func TestDebyeFunctionTable(t *testing.T) {
+	for _, tc := range []struct{ x, cv, d3 float64 }{
+		{0.5, 0.9876107521, 0.8249629690},
+		{1.0, 0.9517321357, 0.6744155641},
+		{1.5, 0.8959504801, 0.5471066514},
+		{2.0, 0.825408038, 0.44112847372762},
+		{3.0, 0.662758044, 0.28357982814342},
+		{5.0, 0.3686348236, 0.1175974118},
+		{10, 0.07582100303, 0.01929576569},
+		{15, 0.02307128730, 0.005771263228},
+	} {
+		if got := debyeFunction(3, tc.x); math.Abs(got-tc.d3) > 1e-10 {
+			t.Errorf("D₃(%g) = %.12f; want %.12f", tc.x, got, tc.d3)
+		}
+		if got := debyeHeatCapacity(3, tc.x); math.Abs(got-tc.cv) > 1e-9 {
+			t.Errorf("C_V/3Nk(%g) = %.11f; want %.10f", tc.x, got, tc.cv)
+		}
+	}
+}
+
+// TestDebyeT3Law: at low T, C_V = (12π⁴/5) R (T/θ)³ per mole of atoms
+// (Debye; REFERENCE-VALUES, 12π⁴/5 = 233.7818185): 3x³·C_V/(3Nk) → 12π⁴/5
+// as x = θ/T → ∞ (exactly, up to e^(−x) terms).
+func TestDebyeT3Law(t *testing.T) {
+	for _, x := range []float64{60, 200, 1000} {
+		got := 3 * x * x * x * debyeHeatCapacity(3, x)
+		if math.Abs(got-233.7818185) > 1e-7 || math.Abs(got-12*math.Pow(math.Pi, 4)/5) > 1e-9*got {
+			t.Errorf("x=%g: 3x³ C/3Nk = %.10f; want 12π⁴/5 = 233.7818185", x, got)
+		}
+	}
+}
+
+// TestDebyeFunctionsQuadrature: D₁, D₂, D₃ against their definition
+// D_n(x) = (n/xⁿ) ∫₀ˣ tⁿ/(eᵗ−1) dt (A&S 27.1.1) integrated by 100-point
+// Gauss–Legendre quadrature (gonum integrate/quad; the integrand is
+// analytic in |Im t| < 2π, so the rule is exact to rounding), to 1e-12,
+// including both sides of the series/tail switch at x = 2.
+func TestDebyeFunctionsQuadrature(t *testing.T) {
+	for n := 1; n <= 3; n++ {
+		for _, x := range []float64{1e-3, 0.1, 1, 1.999999, 2, 2.000001, 3.7, 8, 25} {
+			f := func(s float64) float64 {
+				if s == 0 {
+					return 0
+				}
+				return math.Pow(s, float64(n)) / math.Expm1(s)
+			}
+			want := float64(n) / math.Pow(x, float64(n)) * quad.Fixed(f, 0, x, 100, quad.Legendre{}, 0)
+			if got := debyeFunction(n, x); math.Abs(got-want) > 1e-12 {
+				t.Errorf("D_%d(%g) = %.15f; quadrature %.15f", n, x, got, want)
+			}
+		}
+	}
+}
+
+// TestApery: ζ(3) as used by D₂ (A&S Table 23.3) against Σ k⁻³ to K = 1000
+// plus the Euler–Maclaurin tail 1/(2K²) − 1/(2K³) + 1/(4K⁴) (A&S 23.1.30),
+// error O(K⁻⁶).
+func TestApery(t *testing.T) {
+	const K = 1000
+	s := 0.0
+	for k := K; k >= 1; k-- {
+		s += 1 / math.Pow(float64(k), 3)
+	}
+	s += 1/(2.0*K*K) - 1/(2.0*K*K*K) + 1/(4.0*K*K*K*K)
+	if math.Abs(s-apery) > 1e-15 {
+		t.Errorf("ζ(3) by summation %.17f; constant %.17f", s, apery)
+	}
+}
+
+// TestDebyeThetaRoundTrip: θ_D(T) inverts the Debye heat capacity in 1, 2
+// and 3 dimensions (Brent's method; Brent 1973, ch. 4) to 1e-10, from the
+// classical to the deep quantum regime.
+func TestDebyeThetaRoundTrip(t *testing.T) {
+	for d := 1; d <= 3; d++ {
+		for _, x := range []float64{0.05, 1, 7, 40, 300} {
+			const tempK = 123.0
+			c := debyeHeatCapacity(d, x)
+			if got := debyeTheta(d, tempK, c) / tempK; math.Abs(got-x) > 1e-10*x {
+				t.Errorf("d=%d: θ/T = %.14g from C = %.6g; want %g", d, got, c, x)
+			}
+		}
+		if debyeTheta(d, 0, 0.5) != 0 || debyeTheta(d, 100, 0) != 0 || debyeTheta(d, 100, 1) != 0 {
+			t.Errorf("d=%d: undefined cases must give 0", d)
+		}
+	}
+}
+
+// TestBrentRoot: roots of functions with known zeros, to the tolerance
+// (common practice test functions).
+func TestBrentRoot(t *testing.T) {
+	for _, tc := range []struct {
+		name       string
+		f          func(float64) float64
+		a, b, want float64
+	}{
+		{"sqrt2", func(x float64) float64 { return x*x - 2 }, 0, 2, math.Sqrt2},
+		{"ln3", func(x float64) float64 { return math.Exp(x) - 3 }, -5, 5, math.Log(3)},
+		{"steep", func(x float64) float64 { return math.Pow(x, 9) - 1e-9 }, 0, 1, 0.1},
+		{"endpoint", func(x float64) float64 { return x - 1 }, 1, 4, 1},
+	} {
+		if got := brentRoot(tc.f, tc.a, tc.b, 1e-14); math.Abs(got-tc.want) > 1e-12*math.Abs(tc.want) {
+			t.Errorf("%s: root %.16g; want %.16g", tc.name, got, tc.want)
+		}
+	}
+}
+
+// TestElasticDebyeChain: for the monatomic chain the sound velocity is
+// v = a·sqrt(K/M) (Kittel ch. 5) = a·πν_max, and the 1D Debye cutoff is
+// ν_D = v/(2a) (one mode per cell), so θ_D = (π/2)·hν_max/k.
+func TestElasticDebyeChain(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "chain"))
+	want := math.Pi / 2 * chainNuMaxTHz * THzToKelvin
+	if got := elasticDebyeTemperature(m); relDiff(got, want) > 1e-8 {
+		t.Errorf("elastic θ_D = %.9f K; want (π/2)hν_max/k = %.9f K", got, want)
+	}
+	v := acousticSpeedsATHz(m, [3]float64{1, 0, 0})
+	if want := 2.5 * math.Sqrt(1.5/40) * OmegaUnitRadPerS * 1e-12; relDiff(v[0], want) > 1e-8 {
+		t.Errorf("sound velocity %.9g Å·THz; want a·sqrt(K/M) = %.9g", v[0], want)
+	}
+}
+
+// TestSoundVelocitiesFCC: along [100] the fcc nearest-neighbour model has
+// v_L = a·sqrt(K/2M) and a doubly degenerate v_T = a·sqrt(K/4M), the slopes
+// of ω²M/K = 4(1 − cos(qa/2)) and 2(1 − cos(qa/2)), which reach the
+// REFERENCE-VALUES X-point values 8 and 4 (derived from the standard NN
+// dynamical matrix; Ashcroft & Mermin ch. 22). Cubic constant a = 4 Å, K =
+// 1.2 eV/Å², M = 60 amu (proto/examples/fcc.json).
+func TestSoundVelocitiesFCC(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "fcc"))
+	unit := OmegaUnitRadPerS * 1e-12 // sqrt(eV/Å²/amu)·Å in Å·THz
+	vL, vT := 4*math.Sqrt(1.2/120)*unit, 4*math.Sqrt(1.2/240)*unit
+	v := acousticSpeedsATHz(m, [3]float64{1, 0, 0})
+	for i, want := range []float64{vT, vT, vL} {
+		if relDiff(v[i], want) > 1e-8 {
+			t.Errorf("branch %d: %.9g Å·THz; want %.9g", i, v[i], want)
+		}
+	}
+	// The elastic θ_D from the 16×32 product rule against an independent
+	// average of Σ_s v_s⁻³ over 4000 random directions (uniform on the
+	// sphere: normalised Gaussian vectors, common practice), Monte Carlo
+	// error ≈ 0.5 %: ν_D³ = 9·sites/(4πV Σ⟨v⁻³⟩) (Kittel ch. 5).
+	r := rand.New(rand.NewPCG(5, 1912))
+	sum := 0.0
+	const ndir = 4000
+	for i := 0; i < ndir; i++ {
+		d := [3]float64{r.NormFloat64(), r.NormFloat64(), r.NormFloat64()}
+		l := norm3(d)
+		for _, v := range acousticSpeedsATHz(m, [3]float64{d[0] / l, d[1] / l, d[2] / l}) {
+			sum += math.Pow(v, -3) / ndir
+		}
+	}
+	want := math.Cbrt(9/(4*math.Pi*cellMeasure(m)*sum)) * THzToKelvin
+	if got := elasticDebyeTemperature(m); relDiff(got, want) > 0.015 {
+		t.Errorf("elastic θ_D %.3f K; Monte Carlo direction average %.3f K", got, want)
+	}
+}

@@ -1,0 +1,498 @@
+package physics
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"sync/atomic"
+)
+
+// DOSMethod selects how ComputeDOS turns grid modes into a density of
+// states.
+type DOSMethod int
+
+// DOS methods. Tetrahedron is the zero value.
+const (
+	// Tetrahedron is the linear tetrahedron method in 3D (Blöchl, Jepsen &
+	// Andersen, Phys. Rev. B 49, 16223 (1994)), its triangle analogue in 2D
+	// and linear segments in 1D: frequencies are interpolated linearly
+	// inside every simplex of the grid and the states counted exactly.
+	Tetrahedron DOSMethod = iota
+	// Gaussian broadens every mode into a normalised Gaussian of standard
+	// deviation Width.
+	Gaussian
+	// Histogram counts modes per bin of width Step; for a finite crystal
+	// this is its exact discrete spectrum.
+	Histogram
+)
+
+func (m DOSMethod) String() string {
+	switch m {
+	case Tetrahedron:
+		return "tetrahedron"
+	case Gaussian:
+		return "gaussian"
+	case Histogram:
+		return "histogram"
+	}
+	return fmt.Sprintf("DOSMethod(%d)", int(m))
+}
+
+// DOSOptions configures ComputeDOS. The zero value asks for the
+// tetrahedron DOS in THz on a window chosen from the modes.
+type DOSOptions struct {
+	Method DOSMethod
+	Unit   Unit // unit of Min, Max, Step, Width and of the result
+	// Min and Max bound the window of sample frequencies; both 0 means a
+	// window chosen from the modes: from 0 (or below the lowest imaginary
+	// mode with NegativeAxis) to 5 % above the highest mode, plus 5 widths
+	// for Gaussian.
+	Min, Max float64
+	// Step is the spacing of the samples and the width of the bin each one
+	// stands for; 0 means the window divided into DefaultDOSBins.
+	Step float64
+	// Width is the Gaussian standard deviation; 0 means the default
+	// ν_top / (2^(d−1)·n), with ν_top the highest mode and n = N^(1/d) the
+	// grid's points per direction (see defaultGaussianWidth). Only the
+	// Gaussian method takes a width.
+	Width float64
+	// PerSite also returns the DOS projected on every site and label
+	// (the GridModes must carry SiteWeight).
+	PerSite bool
+	// NegativeAxis keeps imaginary modes, as negative frequencies, instead
+	// of leaving them out.
+	NegativeAxis bool
+}
+
+// DOSResult is a density of states sampled on a frequency window.
+//
+// Freq[i] = Min + i·Step; DOS[i] is the average of g(ν) over the bin
+// [Freq[i] − Step/2, Freq[i] + Step/2), in states per cell per Unit, so
+// Σ DOS[i]·Step is the number of states in the window; Integrated[i] is the
+// number of states per cell below Freq[i]. Sites[s] and LabelDOS[l] are
+// projections in the same units, summing to DOS at every sample.
+type DOSResult struct {
+	Unit       Unit
+	Freq       []float64
+	DOS        []float64
+	Integrated []float64
+	Sites      [][]float64 // per site, in site order (PerSite only)
+	Labels     []string    // distinct site labels in first-appearance order (PerSite only)
+	LabelDOS   [][]float64 // per label, parallel to Labels (PerSite only)
+	// Imaginary is the number of imaginary modes on the grid (q-point ×
+	// branch, frequency below −max(ImaginaryTolTHz, ZeroModeTol·|ν|max),
+	// not counting the acoustic modes at Γ), whether or not they are shown.
+	Imaginary int
+	// StatesPerCell is p × sites, the integral of g over all frequencies.
+	StatesPerCell float64
+	// Width is the Gaussian standard deviation used (Unit), 0 for the other
+	// methods.
+	Width float64
+}
+
+// DOS limits and defaults.
+const (
+	DefaultDOSBins = 500       // samples across a default window
+	MaxDOSSamples  = 1_000_000 // largest number of samples ComputeDOS returns
+	// ZeroModeTol is the tolerance, relative to the largest |ν| on the grid,
+	// within which a frequency counts as zero: the acoustic modes at Γ of a
+	// model obeying the acoustic sum rule come out at about 1e-8 of the
+	// highest mode from rounding (eigenvalue errors are a few ε of the
+	// largest). It is relative, not absolute like ImaginaryTolTHz, so that
+	// the real low modes of fine grids (ν_max·π/N on a chain of N points)
+	// are never taken for zero.
+	ZeroModeTol = 1e-6
+	// gaussianCutoff is how many standard deviations a Gaussian is
+	// evaluated over on each side (the tail beyond is 6e-16 of its area).
+	gaussianCutoff = 8
+)
+
+// ComputeDOS returns the density of states of the modes g of model m.
+//
+// Bad options give a *ValidationError naming the fields ("method", "unit",
+// "min", "max", "step", "width"), every violation at once. g must come from
+// m; the tetrahedron method needs the full regular grid (in grid order),
+// PerSite needs g.SiteWeight.
+func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*DOSResult, error) {
+	if err := checkGridModes(m, g); err != nil {
+		return nil, err
+	}
+	if err := opt.validate(); err != nil {
+		return nil, err
+	}
+	if opt.PerSite && len(g.SiteWeight) != len(g.FreqTHz)*g.NSites {
+		return nil, errors.New("physics: per-site DOS needs grid modes with site weights (GridOptions.Projections)")
+	}
+	if opt.Method == Tetrahedron && len(g.Points) != g.Spec.Count() {
+		return nil, fmt.Errorf("physics: the tetrahedron method needs the full %d-point grid, got %d points", g.Spec.Count(), len(g.Points))
+	}
+	scale := opt.Unit.PerTHz()
+	st := spectrumStats(g)
+	res := &DOSResult{Unit: opt.Unit, Imaginary: st.imaginary, StatesPerCell: float64(g.NModes)}
+
+	top, low := st.maxTHz*scale, st.minTHz*scale
+	ref := math.Max(top, -low)
+	if !(ref > 0) {
+		ref = scale // no non-zero mode at all: a window of 1 THz
+		top = math.Max(top, 0)
+	}
+	width := 0.0
+	if opt.Method == Gaussian {
+		width = opt.Width
+		if width == 0 {
+			width = defaultGaussianWidth(ref, g.Spec.Mesh, m.Dim())
+		}
+		res.Width = width
+	}
+	lo, hi, step := opt.Min, opt.Max, opt.Step
+	if lo == 0 && hi == 0 {
+		margin := 0.05*ref + 5*width
+		hi = math.Max(top, 0) + margin
+		if opt.NegativeAxis && st.imaginary > 0 {
+			lo = low - margin
+		}
+	}
+	if step == 0 {
+		step = (hi - lo) / DefaultDOSBins
+	}
+	n := int(math.Floor((hi-lo)/step+1e-9)) + 1
+	if n > MaxDOSSamples {
+		return nil, &ValidationError{Violations: []Violation{{Field: "step", Description: fmt.Sprintf(
+			"the window [%g, %g] at step %g gives %d samples, more than the limit of %d", lo, hi, step, n, MaxDOSSamples)}}}
+	}
+	grid := newCumGrid(lo-step/2, step/2, 2*n+1)
+	hasCut, cut := !opt.NegativeAxis, -st.imagTol*scale
+	ns := g.NSites
+
+	var acc *cumAcc
+	var err error
+	switch opt.Method {
+	case Tetrahedron:
+		set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+		acc, err = tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)
+	default:
+		acc, err = modeAccumulate(ctx, g, opt.Method, scale, width, grid, opt.PerSite, hasCut, cut)
+	}
+	if err != nil {
+		return nil, err
+	}
+	tot, site := acc.totals()
+
+	res.Freq = make([]float64, n)
+	res.DOS = make([]float64, n)
+	res.Integrated = make([]float64, n)
+	for i := 0; i < n; i++ {
+		res.Freq[i] = lo + float64(i)*step
+		res.DOS[i] = (tot[2*i+2] - tot[2*i]) / step
+		res.Integrated[i] = tot[2*i+1]
+	}
+	if opt.PerSite {
+		res.Sites = make([][]float64, ns)
+		for s := range res.Sites {
+			d := make([]float64, n)
+			for i := range d {
+				d[i] = (site[(2*i+2)*ns+s] - site[2*i*ns+s]) / step
+			}
+			res.Sites[s] = d
+		}
+		// The total is the sum of the projections, so the two agree at
+		// every sample to rounding.
+		for i := range res.DOS {
+			sum := 0.0
+			for s := 0; s < ns; s++ {
+				sum += res.Sites[s][i]
+			}
+			res.DOS[i] = sum
+		}
+		labels := m.Labels()
+		index := map[string]int{}
+		for s, l := range labels {
+			li, ok := index[l]
+			if !ok {
+				li = len(res.Labels)
+				index[l] = li
+				res.Labels = append(res.Labels, l)
+				res.LabelDOS = append(res.LabelDOS, make([]float64, n))
+			}
+			for i, x := range res.Sites[s] {
+				res.LabelDOS[li][i] += x
+			}
+		}
+	}
+	return res, nil
+}
+
+// validate checks the options alone, listing every violation.
+func (o DOSOptions) validate() error {
+	var vs violations
+	if o.Method < Tetrahedron || o.Method > Histogram {
+		vs.add("method", "unknown method %d", int(o.Method))
+	}
+	if o.Unit < THz || o.Unit > RadPerS {
+		vs.add("unit", "unknown unit %d", int(o.Unit))
+	}
+	for _, f := range []struct {
+		name string
+		v    float64
+	}{{"min", o.Min}, {"max", o.Max}, {"step", o.Step}, {"width", o.Width}} {
+		if !finite(f.v) {
+			vs.add(f.name, "must be finite, got %v", f.v)
+		}
+	}
+	if finite(o.Min) && finite(o.Max) && !(o.Min == 0 && o.Max == 0) && !(o.Max > o.Min) {
+		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", o.Min, o.Max)
+	}
+	if o.Step < 0 {
+		vs.add("step", "must be > 0 (0 for the default), got %g", o.Step)
+	}
+	if o.Width < 0 {
+		vs.add("width", "must be > 0 (0 for the default), got %g", o.Width)
+	} else if o.Width != 0 && o.Method != Gaussian && o.Method >= Tetrahedron && o.Method <= Histogram {
+		vs.add("width", "only the gaussian method takes a width, got %g with %v", o.Width, o.Method)
+	}
+	return vs.err()
+}
+
+// checkGridModes checks that g is a complete set of modes of m.
+func checkGridModes(m *Model, g *GridModes) error {
+	switch {
+	case m == nil:
+		return errors.New("physics: nil model")
+	case g == nil:
+		return errors.New("physics: nil grid modes")
+	case g.NModes != m.Modes() || g.NSites != m.Sites():
+		return fmt.Errorf("physics: grid modes have %d modes of %d sites, the model %d of %d", g.NModes, g.NSites, m.Modes(), m.Sites())
+	case len(g.Points) == 0 || len(g.FreqTHz) != len(g.Points)*g.NModes:
+		return fmt.Errorf("physics: grid modes hold %d frequencies for %d points of %d modes", len(g.FreqTHz), len(g.Points), g.NModes)
+	}
+	return nil
+}
+
+// spectrum holds the extremes of the grid frequencies (THz), the
+// tolerances derived from them and the number of imaginary modes.
+type spectrum struct {
+	minTHz, maxTHz, absMaxTHz float64
+	zeroTol                   float64 // |ν| up to this is a zero mode: ZeroModeTol·absMaxTHz
+	imagTol                   float64 // below −imagTol a mode is imaginary: max(ImaginaryTolTHz, zeroTol)
+	imaginary                 int
+}
+
+// spectrumStats scans the frequencies of g. A mode is imaginary below
+// −imagTol, except that at Γ the p modes of smallest |ν| (the acoustic
+// modes, zero only to rounding, or not at all for explicit blocks without
+// the sum rule) are never counted imaginary, as in Model.Stability.
+func spectrumStats(g *GridModes) spectrum {
+	st := spectrum{minTHz: math.Inf(1), maxTHz: math.Inf(-1)}
+	for _, f := range g.FreqTHz {
+		st.minTHz, st.maxTHz = min(st.minTHz, f), max(st.maxTHz, f)
+	}
+	st.absMaxTHz = math.Max(st.maxTHz, -st.minTHz)
+	st.zeroTol = ZeroModeTol * st.absMaxTHz
+	st.imagTol = math.Max(ImaginaryTolTHz, st.zeroTol)
+	nm := g.NModes
+	for i, q := range g.Points {
+		f := g.FreqTHz[i*nm : (i+1)*nm]
+		var skip uint64 // bit k: mode k is one of Γ's acoustic modes
+		if isGamma(q.Q) {
+			skip = gammaAcoustic(f, g.P)
+		}
+		for k, x := range f {
+			if x < -st.imagTol && skip>>k&1 == 0 {
+				st.imaginary++
+			}
+		}
+	}
+	return st
+}
+
+// isGamma reports whether q (fractional) is a reciprocal lattice vector.
+func isGamma(q [3]float64) bool {
+	for _, x := range q {
+		if math.Abs(x-math.Round(x)) > 1e-12 {
+			return false
+		}
+	}
+	return true
+}
+
+// gammaAcoustic returns a bit set of the p modes of f with the smallest
+// |ν| (of the first 64 modes; p ≤ 3).
+func gammaAcoustic(f []float64, p int) uint64 {
+	var set uint64
+	for n := 0; n < p; n++ {
+		best := -1
+		for k := 0; k < len(f) && k < 64; k++ {
+			if set>>k&1 == 0 && (best < 0 || math.Abs(f[k]) < math.Abs(f[best])) {
+				best = k
+			}
+		}
+		if best >= 0 {
+			set |= 1 << best
+		}
+	}
+	return set
+}
+
+// defaultGaussianWidth is ν_top / (2^(d−1) · N^(1/d)). In 1D, ν_top/N is
+// about the frequency step between neighbouring grid points, the smallest
+// width that hides the grid; in 2D and 3D the frequencies of neighbouring
+// grid lines interleave, so a finer width does. Measured against converged
+// DOS (/work/coord/dos-convergence.md), this is the width of least L1 error
+// in 1D and 2D and within a factor 2.5 of it in 3D.
+func defaultGaussianWidth(top float64, mesh [3]int, dim int) float64 {
+	dim = min(max(dim, 1), 3)
+	n := 1.0
+	for k := 0; k < dim; k++ {
+		n *= float64(max(mesh[k], 1))
+	}
+	return top / (math.Pow(n, 1/float64(dim)) * float64(int(1)<<(dim-1)))
+}
+
+// modeAccumulate accumulates the Gaussian or histogram state counts of
+// every mode of g (frequencies times scale), all cores, one accumulator per
+// worker. Modes below the cut (imaginary ones, when excluded) are left out.
+func modeAccumulate(ctx context.Context, g *GridModes, method DOSMethod, scale, width float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
+	nm, ns := g.NModes, g.NSites
+	accNS := 0
+	if sites {
+		accNS = ns
+	}
+	npts := len(g.Points)
+	workers := chunkWorkers(npts, modeChunk)
+	accs := make([]*cumAcc, workers)
+	for w := range accs {
+		accs[w] = newCumAcc(grid, accNS, false, 0)
+	}
+	reach := gaussianCutoff * width
+	invSigma := 1 / width
+	err := forChunks(ctx, npts, modeChunk, workers, func(worker, lo, hi int) {
+		a := accs[worker]
+		sw := a.sw[0]
+		for i := lo; i < hi; i++ {
+			w := g.Points[i].Weight
+			for k := 0; k < nm; k++ {
+				nu := g.FreqTHz[i*nm+k] * scale
+				if hasCut && nu < cut {
+					continue
+				}
+				if sites {
+					src := g.SiteWeight[(i*nm+k)*ns : (i*nm+k)*ns+ns]
+					sum := 0.0
+					for _, x := range src {
+						sum += x
+					}
+					for s, x := range src {
+						sw[s] = 0
+						if sum > 0 {
+							sw[s] = w * x / sum
+						}
+					}
+				}
+				if method == Histogram {
+					j := grid.above(nu)
+					a.step[j] += w
+					if sites {
+						row := a.sstep[j*ns : j*ns+ns]
+						for s, x := range sw {
+							row[s] += x
+						}
+					}
+					continue
+				}
+				j0, j1 := grid.from(nu-reach), grid.from(nu+reach)
+				a.step[j1] += w
+				if sites {
+					row := a.sstep[j1*ns : j1*ns+ns]
+					for s, x := range sw {
+						row[s] += x
+					}
+				}
+				for j := j0; j < j1; j++ {
+					phi := normalCDF((grid.at(j) - nu) * invSigma)
+					a.val[j] += w * phi
+					if sites {
+						out := a.sval[j*ns : j*ns+ns]
+						for s, x := range sw {
+							out[s] += x * phi
+						}
+					}
+				}
+			}
+		}
+	})
+	if err != nil {
+		return nil, err
+	}
+	for _, b := range accs[1:] {
+		accs[0].merge(b)
+	}
+	return accs[0], nil
+}
+
+// cdfTable holds Φ(u) = ½ erfc(−u/√2) and φ(u) = Φ′(u) at u = −8 + i/cdfPerUnit,
+// for cubic Hermite interpolation: error ≤ h⁴/384 · max|φ‴| ≈ 5e-12
+// (h = 1/128; common practice, e.g. Burden & Faires, Numerical Analysis,
+// §3.4), so the Gaussian DOS costs a table look-up per sample instead of an
+// erfc.
+var cdfTable = func() (t [2*gaussianCutoff*cdfPerUnit + 1][2]float64) {
+	for i := range t {
+		u := -gaussianCutoff + float64(i)/cdfPerUnit
+		t[i] = [2]float64{0.5 * math.Erfc(-u/math.Sqrt2), math.Exp(-u*u/2) / math.Sqrt(2*math.Pi)}
+	}
+	return t
+}()
+
+const cdfPerUnit = 128
+
+// normalCDF is Φ(u) for |u| ≤ gaussianCutoff (0 below, 1 above), from
+// cdfTable.
+func normalCDF(u float64) float64 {
+	x := (u + gaussianCutoff) * cdfPerUnit
+	switch {
+	case !(x > 0):
+		return 0
+	case x >= 2*gaussianCutoff*cdfPerUnit:
+		return 1
+	}
+	i := int(x)
+	t := x - float64(i)
+	p0, p1 := cdfTable[i], cdfTable[i+1]
+	const h = 1.0 / cdfPerUnit
+	t2, t3 := t*t, t*t*t
+	return (2*t3-3*t2+1)*p0[0] + (t3-2*t2+t)*h*p0[1] + (-2*t3+3*t2)*p1[0] + (t3-t2)*h*p1[1]
+}
+
+// modeChunk is how many q-points a worker takes at a time.
+const modeChunk = 256
+
+// chunkWorkers is the number of workers forChunks uses for n items.
+func chunkWorkers(n, chunk int) int {
+	return max(1, min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk))
+}
+
+// forChunks runs work over [0, n) in chunks of the given size on the given
+// number of goroutines, passing each its worker number so it can use its
+// own accumulator. It checks ctx between chunks and returns ctx.Err() if
+// ctx ended first.
+func forChunks(ctx context.Context, n, chunk, workers int, work func(worker, lo, hi int)) error {
+	var next atomic.Int64
+	done := make(chan struct{}, workers)
+	for w := 0; w < workers; w++ {
+		go func() {
+			defer func() { done <- struct{}{} }()
+			for ctx.Err() == nil {
+				lo := int(next.Add(int64(chunk))) - chunk
+				if lo >= n {
+					return
+				}
+				work(w, lo, min(lo+chunk, n))
+			}
+		}()
+	}
+	for w := 0; w < workers; w++ {
+		<-done
+	}
+	return ctx.Err()
+}

@@ -1,0 +1,583 @@
+package physics
+
+import (
+	"context"
+	"errors"
+	"math"
+	"slices"
+	"testing"
+	"time"
+)
+
+// specCtx returns a context with a generous timeout for one test.
+func specCtx(t testing.TB) context.Context {
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	t.Cleanup(cancel)
+	return ctx
+}
+
+// exampleGrid compiles an example crystal and computes its modes on spec.
+func exampleGrid(t testing.TB, name string, spec GridSpec, opt GridOptions) (*Model, *GridModes) {
+	t.Helper()
+	m := mustCompile(t, loadExample(t, name))
+	return m, modesOn(t, m, spec, opt)
+}
+
+func modesOn(t testing.TB, m *Model, spec GridSpec, opt GridOptions) *GridModes {
+	t.Helper()
+	g, err := m.GridModes(specCtx(t), spec, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return g
+}
+
+func mustDOS(t testing.TB, m *Model, g *GridModes, opt DOSOptions) *DOSResult {
+	t.Helper()
+	r, err := ComputeDOS(specCtx(t), m, g, opt)
+	if err != nil {
+		t.Fatalf("ComputeDOS(%+v): %v", opt, err)
+	}
+	return r
+}
+
+// integral is Σ DOS·Step: the states in the window (the samples are bin
+// averages).
+func integral(r *DOSResult, dos []float64) float64 {
+	step := r.Freq[1] - r.Freq[0]
+	s := 0.0
+	for _, x := range dos {
+		s += x * step
+	}
+	return s
+}
+
+// Chain example (proto/examples/chain.json): K = 1.5 eV/Å², M = 40 amu, so
+// ν_max = 2·sqrt(K/M) in units of sqrt(eV/Å²/amu) = 15.6333042 THz
+// (REFERENCE-VALUES: Kittel ch. 4; CODATA 2018 for the unit).
+var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * NuUnitTHz
+
+// chainStatesBelow is the exact number of states per cell below ν of the
+// monatomic chain, ∫ (2/π)(ν_m² − ν²)^(−1/2) dν = (2/π) arcsin(ν/ν_m)
+// (Ashcroft & Mermin ch. 23; Kittel ch. 5).
+func chainStatesBelow(nu float64) float64 {
+	switch {
+	case nu <= 0:
+		return 0
+	case nu >= chainNuMaxTHz:
+		return 1
+	}
+	return 2 / math.Pi * math.Asin(nu/chainNuMaxTHz)
+}
+
+// chainL1 is the L1 distance ∫|g − g_exact| between a chain DOS and the
+// exact bin averages of the closed form, in states per cell.
+func chainL1(r *DOSResult) float64 {
+	h := r.Freq[1] - r.Freq[0]
+	l1 := 0.0
+	for i, f := range r.Freq {
+		want := (chainStatesBelow(f+h/2) - chainStatesBelow(f-h/2)) / h
+		l1 += math.Abs(r.DOS[i]-want) * h
+	}
+	return l1
+}
+
+// TestDOSChainClosedForm: the segment DOS of the monatomic chain on 4096
+// points against g(ν) = (2/π)/sqrt(ν_max² − ν²) per cell (Ashcroft &
+// Mermin ch. 23; Kittel ch. 5), compared bin by bin with the exact bin
+// averages, and the integrated DOS against (2/π) arcsin(ν/ν_max).
+// Tolerances are 3× the measured errors (L1 2.9e-6, integrated 4.6e-7).
+func TestDOSChainClosedForm(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{4096}}, GridOptions{})
+	r := mustDOS(t, m, g, DOSOptions{Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
+	if l1 := chainL1(r); l1 > 1e-5 {
+		t.Errorf("L1 distance to the closed form %.3g; want < 1e-5", l1)
+	}
+	for i, f := range r.Freq {
+		if d := math.Abs(r.Integrated[i] - chainStatesBelow(f)); d > 1.5e-6 {
+			t.Errorf("N(%.4f THz) = %.8f; closed form %.8f", f, r.Integrated[i], chainStatesBelow(f))
+		}
+	}
+	// The density at ν → 0 is 2/(π ν_max) per cell per THz.
+	if got, want := r.DOS[1], 2/(math.Pi*chainNuMaxTHz); math.Abs(got-want) > 1e-4*want {
+		t.Errorf("g(%.4f THz) = %.6f; want ≈ 2/(π ν_max) = %.6f", r.Freq[1], got, want)
+	}
+}
+
+// TestDOSChainConvergence: the segment DOS converges to the closed form as
+// the grid grows, roughly as N⁻² (each doubling must at least halve the L1
+// error), and the Gaussian DOS at its default width converges too, more
+// slowly (Ashcroft & Mermin ch. 23 for the closed form). The errors are
+// logged: go test -run TestDOSChainConvergence -v ./physics/.
+func TestDOSChainConvergence(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "chain"))
+	prev := map[DOSMethod]float64{}
+	for _, n := range []int{32, 64, 128, 256, 512, 1024, 2048} {
+		g := modesOn(t, m, GridSpec{Mesh: [3]int{n}}, GridOptions{})
+		for _, meth := range []DOSMethod{Tetrahedron, Gaussian} {
+			r := mustDOS(t, m, g, DOSOptions{Method: meth, Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
+			l1 := chainL1(r)
+			t.Logf("N = %5d  %-11v L1 = %.3g", n, meth, l1)
+			if p, ok := prev[meth]; ok {
+				factor := map[DOSMethod]float64{Tetrahedron: 2, Gaussian: 1}[meth]
+				if l1*factor >= p {
+					t.Errorf("%v: L1 error %.3g at N = %d did not fall by %g× from %.3g", meth, l1, n, factor, p)
+				}
+			}
+			prev[meth] = l1
+		}
+	}
+	if prev[Tetrahedron] > 1e-4 {
+		t.Errorf("segments at N = 2048: L1 = %.3g; want < 1e-4", prev[Tetrahedron])
+	}
+}
+
+// TestDOSChainZoneEdge: the chain DOS diverges at the zone edge as
+// (ν_max − ν)^(−1/2), where the group velocity goes to zero (van Hove
+// singularity; Ashcroft & Mermin ch. 23, Kittel ch. 5). The log-log slope
+// over 0.5 %–10 % of ν_max below the edge is −½ to 0.02.
+func TestDOSChainZoneEdge(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{65536}}, GridOptions{})
+	r := mustDOS(t, m, g, DOSOptions{Max: chainNuMaxTHz, Step: chainNuMaxTHz / 2000})
+	var xs, ys []float64
+	for i, f := range r.Freq {
+		gap := (chainNuMaxTHz - f) / chainNuMaxTHz
+		if gap >= 0.005 && gap <= 0.1 {
+			xs = append(xs, math.Log(gap))
+			ys = append(ys, math.Log(r.DOS[i]))
+		}
+	}
+	if slope := fitSlope(xs, ys); math.Abs(slope+0.5) > 0.02 {
+		t.Errorf("log g vs log(ν_max − ν): slope %.4f; want −0.5", slope)
+	}
+	last := r.DOS[len(r.DOS)-2]
+	if first := r.DOS[1]; !(last > 20*first) {
+		t.Errorf("g just below the edge %.4g is not ≫ g near 0 (%.4g)", last, first)
+	}
+}
+
+// fitSlope is the least-squares slope of y against x.
+func fitSlope(x, y []float64) float64 {
+	var sx, sy, sxx, sxy float64
+	n := float64(len(x))
+	for i := range x {
+		sx += x[i]
+		sy += y[i]
+		sxx += x[i] * x[i]
+		sxy += x[i] * y[i]
+	}
+	return (n*sxy - sx*sy) / (n*sxx - sx*sx)
+}
+
+// TestDOSNormalization: ∫g dν = p × sites per cell (common practice: the
+// modes per cell), to 1e-6 for tetrahedra (the requirement; it
+// comes out at rounding), exactly for the histogram, and for Gaussians when
+// the window holds their tails; the last integrated value is the same
+// number and StatesPerCell reports it.
+func TestDOSNormalization(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		mesh [3]int
+	}{
+		{"chain", [3]int{64}},
+		{"diatomic-chain", [3]int{50}},
+		{"square-net", [3]int{20, 20}},
+		{"fcc", [3]int{8, 8, 8}},
+		{"rocksalt-like", [3]int{6, 6, 6}},
+	} {
+		m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
+		want := float64(m.P() * m.Sites())
+		for _, meth := range []DOSMethod{Tetrahedron, Histogram, Gaussian} {
+			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
+				opt := DOSOptions{Method: meth, PerSite: true}
+				tol := 1e-6
+				if meth == Gaussian {
+					// A window with room for the tails below 0.
+					top := spectrumStats(g).maxTHz
+					w := defaultGaussianWidth(top, tc.mesh, m.Dim())
+					opt.Min, opt.Max, opt.Step = -9*w, top+9*w, top/400
+					tol = 1e-9
+				}
+				if meth == Histogram {
+					tol = 1e-12
+				}
+				r := mustDOS(t, m, g, opt)
+				if r.StatesPerCell != want {
+					t.Errorf("StatesPerCell = %v; want %v", r.StatesPerCell, want)
+				}
+				if got := integral(r, r.DOS); math.Abs(got-want) > tol {
+					t.Errorf("∫g = %.12f; want %v ± %g", got, want, tol)
+				}
+				if got := r.Integrated[len(r.Integrated)-1]; math.Abs(got-want) > tol {
+					t.Errorf("N(top) = %.12f; want %v", got, want)
+				}
+				// Each site carries p states: Σ_modes |e_s|² = p at every q by
+				// the completeness of the eigenvectors (common practice).
+				for s, d := range r.Sites {
+					if got := integral(r, d); math.Abs(got-float64(m.P())) > tol {
+						t.Errorf("∫g_site%d = %.12f; want p = %d", s, got, m.P())
+					}
+				}
+			})
+		}
+	}
+}
+
+// TestProjectedDOSSum: per-site and per-label DOS sum to the total at every
+// sample to 1e-9 (the requirement), and the total with projections
+// equals the total without (to 1e-10 of the peak): the corner weights of
+// the simplex method integrate to its state count (Blöchl, Jepsen &
+// Andersen 1994, App. B).
+func TestProjectedDOSSum(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		mesh [3]int
+	}{
+		{"diatomic-chain", [3]int{64}},
+		{"square-net", [3]int{16, 16}},
+		{"rocksalt-like", [3]int{8, 8, 8}},
+	} {
+		m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
+		for _, meth := range []DOSMethod{Tetrahedron, Gaussian, Histogram} {
+			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
+				with := mustDOS(t, m, g, DOSOptions{Method: meth, PerSite: true})
+				without := mustDOS(t, m, g, DOSOptions{Method: meth})
+				peak := slices.Max(without.DOS)
+				labels := m.Labels()
+				for i := range with.DOS {
+					ss, ls := 0.0, 0.0
+					for s := range with.Sites {
+						ss += with.Sites[s][i]
+					}
+					for l := range with.LabelDOS {
+						ls += with.LabelDOS[l][i]
+					}
+					if math.Abs(ss-with.DOS[i]) > 1e-9 || math.Abs(ls-with.DOS[i]) > 1e-9 {
+						t.Fatalf("ν = %.4f: Σ sites %.15g, Σ labels %.15g, total %.15g", with.Freq[i], ss, ls, with.DOS[i])
+					}
+					if math.Abs(with.DOS[i]-without.DOS[i]) > 1e-10*peak {
+						t.Fatalf("ν = %.4f: total with projections %.15g, without %.15g", with.Freq[i], with.DOS[i], without.DOS[i])
+					}
+				}
+				if len(with.Labels) == 0 || with.Labels[0] != labels[0] {
+					t.Errorf("labels %v; want first-appearance order of %v", with.Labels, labels)
+				}
+			})
+		}
+	}
+}
+
+// diatomicEdges are the diatomic chain example's gap edges and optical top
+// in THz (proto/examples/diatomic-chain.json: K = 2 eV/Å², m = 20 amu
+// light, M = 50 amu heavy): sqrt(2K/M), sqrt(2K/m) and sqrt(2K(1/m + 1/M))
+// (Kittel ch. 4; REFERENCE-VALUES).
+var diatomicEdges = [3]float64{
+	math.Sqrt(2*2.0/50) * NuUnitTHz,
+	math.Sqrt(2*2.0/20) * NuUnitTHz,
+	math.Sqrt(2*2.0*(1.0/20+1.0/50)) * NuUnitTHz,
+}
+
+// TestDiatomicGap: the diatomic chain has no states between the top of the
+// acoustic band sqrt(2K/M) and the bottom of the optical band sqrt(2K/m)
+// (Kittel ch. 4); both edges are zone-edge van Hove divergences; at the
+// zone edge the acoustic mode moves only the heavy atoms and the optical
+// mode only the light ones (Kittel ch. 4), so the label projections near
+// each edge belong to one species.
+func TestDiatomicGap(t *testing.T) {
+	m, g := exampleGrid(t, "diatomic-chain", GridSpec{Mesh: [3]int{512}}, GridOptions{Projections: true})
+	lo, hi, top := diatomicEdges[0], diatomicEdges[1], diatomicEdges[2]
+	step := top / 1000
+	r := mustDOS(t, m, g, DOSOptions{Max: 1.02 * top, Step: step, PerSite: true})
+	light, heavy := slices.Index(r.Labels, "L"), slices.Index(r.Labels, "H")
+	if light < 0 || heavy < 0 {
+		t.Fatalf("labels %v; want L and H", r.Labels)
+	}
+	inGap, below, above := 0, -1, -1
+	for i, f := range r.Freq {
+		switch {
+		case f-step/2 > lo*1.001 && f+step/2 < hi*0.999:
+			inGap++
+			if r.DOS[i] > 1e-12 {
+				t.Errorf("g(%.4f THz) = %.3g inside the gap (%.4f, %.4f)", f, r.DOS[i], lo, hi)
+			}
+			if math.Abs(r.Integrated[i]-1) > 1e-9 {
+				t.Errorf("N(%.4f THz) = %.12f in the gap; want the acoustic band's 1 state", f, r.Integrated[i])
+			}
+		case f+step/2 < lo:
+			below = i
+		case f-step/2 > hi && above < 0:
+			above = i
+		}
+	}
+	if inGap < 100 {
+		t.Fatalf("only %d samples in the gap", inGap)
+	}
+	mid := r.DOS[slices.IndexFunc(r.Freq, func(f float64) bool { return f > lo/2 })]
+	for _, edge := range []struct {
+		name    string
+		i       int
+		species int
+	}{{"acoustic top", below, heavy}, {"optical bottom", above, light}} {
+		i := edge.i
+		if r.DOS[i] < 2*mid {
+			t.Errorf("%s: g(%.4f) = %.4g, no divergence (mid-band %.4g)", edge.name, r.Freq[i], r.DOS[i], mid)
+		}
+		if share := r.LabelDOS[edge.species][i] / r.DOS[i]; share < 0.9 {
+			t.Errorf("%s: share of %s %.3f; want > 0.9", edge.name, r.Labels[edge.species], share)
+		}
+	}
+}
+
+// TestDOSUnits: in meV and cm⁻¹ the frequencies scale by the unit's
+// factor (1 THz = 4.135667697 meV = 33.35640952 cm⁻¹, REFERENCE-VALUES from
+// CODATA 2018), g by its inverse (states per cell per unit), the integrated
+// DOS not at all.
+func TestDOSUnits(t *testing.T) {
+	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
+	ref := mustDOS(t, m, g, DOSOptions{Max: 10, Step: 0.05})
+	for _, tc := range []struct {
+		name   string
+		unit   Unit
+		factor float64
+	}{
+		{"meV", MeV, 4.135667697},
+		{"cm-1", CM1, 33.35640952},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if math.Abs(tc.unit.PerTHz()/tc.factor-1) > 1e-9 {
+				t.Fatalf("%v per THz = %.10g; want %.10g", tc.unit, tc.unit.PerTHz(), tc.factor)
+			}
+			f := tc.unit.PerTHz()
+			r := mustDOS(t, m, g, DOSOptions{Unit: tc.unit, Max: 10 * f, Step: 0.05 * f})
+			if r.Unit != tc.unit || len(r.Freq) != len(ref.Freq) {
+				t.Fatalf("unit %v, %d samples; want %v, %d", r.Unit, len(r.Freq), tc.unit, len(ref.Freq))
+			}
+			for i := range r.Freq {
+				if math.Abs(r.Freq[i]-ref.Freq[i]*f) > 1e-9*f ||
+					math.Abs(r.DOS[i]*f-ref.DOS[i]) > 1e-9*(1+ref.DOS[i]) ||
+					math.Abs(r.Integrated[i]-ref.Integrated[i]) > 1e-12 {
+					t.Fatalf("sample %d: (%g, %g, %g) vs THz (%g, %g, %g)", i, r.Freq[i], r.DOS[i], r.Integrated[i], ref.Freq[i], ref.DOS[i], ref.Integrated[i])
+				}
+			}
+		})
+	}
+}
+
+// unstableChain is a chain whose second-neighbour spring is negative enough
+// (K₂ < −K₁/4) that long waves are imaginary: ω² ∝ K₁ sin²(q/2) + K₂
+// sin²(q) < 0 near Γ (Born–von Kármán chain, Kittel ch. 4 problem set;
+// the sign test is common practice).
+func unstableChain() *Crystal {
+	return &Crystal{
+		Name: "unstable-chain", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
+		Sites: []Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Springs: []Spring{
+			{From: 0, To: 0, Cell: []int{1}, KLong: 1.0},
+			{From: 0, To: 0, Cell: []int{2}, KLong: -0.4},
+		},
+	}
+}
+
+// TestDOSImaginary: imaginary modes are counted; by default they are left
+// out of the DOS (the states in the window are the real ones), and with
+// NegativeAxis they appear at negative frequencies with the full
+// normalisation (common practice: imaginary modes as negative numbers).
+func TestDOSImaginary(t *testing.T) {
+	m := mustCompile(t, unstableChain())
+	g := modesOn(t, m, GridSpec{Mesh: [3]int{400}}, GridOptions{})
+	st := spectrumStats(g)
+	want := 0 // Γ's acoustic mode is 0 here (springs keep the sum rule)
+	for _, f := range g.FreqTHz {
+		if f < -math.Max(ImaginaryTolTHz, ZeroModeTol*st.absMaxTHz) {
+			want++
+		}
+	}
+	if want == 0 {
+		t.Fatal("the test model has no imaginary modes")
+	}
+	real := 1 - float64(want)/400
+	for _, meth := range []DOSMethod{Tetrahedron, Histogram} {
+		t.Run(meth.String(), func(t *testing.T) {
+			ex := mustDOS(t, m, g, DOSOptions{Method: meth})
+			if ex.Imaginary != want {
+				t.Errorf("Imaginary = %d; want %d", ex.Imaginary, want)
+			}
+			if ex.Freq[0] != 0 {
+				t.Errorf("excluding: window starts at %g; want 0", ex.Freq[0])
+			}
+			tol := 1e-12
+			if meth == Tetrahedron {
+				tol = 2.0 / 400 // the segments straddling ν = 0 put part of a point's weight on each side
+			}
+			if got := integral(ex, ex.DOS); math.Abs(got-real) > tol {
+				t.Errorf("excluding: ∫g = %.6f; want the real modes' %.6f", got, real)
+			}
+			neg := mustDOS(t, m, g, DOSOptions{Method: meth, NegativeAxis: true})
+			if !(neg.Freq[0] < st.minTHz) {
+				t.Errorf("negative axis: window starts at %g, above the lowest mode %g", neg.Freq[0], st.minTHz)
+			}
+			if got := integral(neg, neg.DOS); math.Abs(got-1) > 1e-9 {
+				t.Errorf("negative axis: ∫g = %.12f; want 1", got)
+			}
+			below := 0.0
+			for i, f := range neg.Freq {
+				if f < st.minTHz/2 {
+					below += neg.DOS[i]
+				}
+			}
+			if !(below > 0) {
+				t.Error("negative axis: no states at negative frequencies")
+			}
+		})
+	}
+}
+
+// TestHistogramFiniteCrystal: the histogram of a finite ring of 8 cells is
+// its exact discrete spectrum: ν_n = ν_max |sin(πn/8)|, n = −3…4, each
+// wavevector carrying 1/8 of a state per cell (allowed q = 2πn/(Na): common
+// practice; dispersion Kittel ch. 4).
+func TestHistogramFiniteCrystal(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{8}, Finite: true}, GridOptions{})
+	step := 1e-3
+	r := mustDOS(t, m, g, DOSOptions{Method: Histogram, Max: 1.1 * chainNuMaxTHz, Step: step})
+	want := map[int]float64{} // sample index → states
+	for n := -3; n <= 4; n++ {
+		nu := chainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/8))
+		want[int(math.Round(nu/step))] += 1.0 / 8
+	}
+	for i := range r.DOS {
+		if got := r.DOS[i] * step; math.Abs(got-want[i]) > 1e-12 {
+			t.Errorf("bin at %.3f THz holds %.6f states; want %.6f", r.Freq[i], got, want[i])
+		}
+	}
+}
+
+// TestGaussianWidth: the default width is ν_top / (2^(d−1)·N^(1/d)), as
+// documented,
+// and is reported; a given width is used as is; a broad Gaussian and the
+// tetrahedron DOS agree in the mean frequency ⟨ν⟩ = ∫νg/∫g, which smearing
+// does not move (common practice).
+func TestGaussianWidth(t *testing.T) {
+	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{10, 10, 10}}, GridOptions{})
+	top := spectrumStats(g).maxTHz
+	def := mustDOS(t, m, g, DOSOptions{Method: Gaussian})
+	if want := top / (4 * 10); math.Abs(def.Width-want) > 1e-12*want {
+		t.Errorf("default width %.6g; want ν_top/(4·N^(1/3)) = %.6g", def.Width, want)
+	}
+	m1, g1 := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, chainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
+		t.Errorf("1D default width %.6g; want ν_top/N = %.6g", got, want)
+	}
+	w := mustDOS(t, m, g, DOSOptions{Method: Gaussian, Width: 0.2, Min: -2, Max: top + 2})
+	if w.Width != 0.2 {
+		t.Errorf("width %v; want the given 0.2", w.Width)
+	}
+	tet := mustDOS(t, m, g, DOSOptions{})
+	mean := func(r *DOSResult) float64 {
+		s, n := 0.0, 0.0
+		for i, f := range r.Freq {
+			s += f * r.DOS[i]
+			n += r.DOS[i]
+		}
+		return s / n
+	}
+	if a, b := mean(w), mean(tet); math.Abs(a-b) > 1e-3*b {
+		t.Errorf("⟨ν⟩ Gaussian %.6f, tetrahedron %.6f", a, b)
+	}
+}
+
+// TestDOSShiftedGrid: a shifted grid (no Γ point) is cut into tetrahedra
+// the same way and gives the same normalisation and, at 12³, a DOS within
+// 3 % (L1) of the Γ-centred one (common practice: both sample the same
+// zone).
+func TestDOSShiftedGrid(t *testing.T) {
+	m, g0 := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{})
+	g1 := modesOn(t, m, GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, GridOptions{})
+	opt := DOSOptions{Max: 8, Step: 0.04}
+	a, b := mustDOS(t, m, g0, opt), mustDOS(t, m, g1, opt)
+	if got := integral(b, b.DOS); math.Abs(got-3) > 1e-6 {
+		t.Errorf("shifted: ∫g = %.9f; want 3", got)
+	}
+	l1 := 0.0
+	for i := range a.DOS {
+		l1 += math.Abs(a.DOS[i]-b.DOS[i]) * 0.04
+	}
+	if l1 > 0.03*3 {
+		t.Errorf("Γ-centred vs shifted L1 = %.4f states; want < 3 %%", l1)
+	}
+}
+
+// TestDOSValidation: bad options are refused with every violation named by
+// its field; wrong grid modes are refused with a plain error.
+func TestDOSValidation(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	for _, tc := range []struct {
+		name   string
+		opt    DOSOptions
+		fields []string
+	}{
+		{"method", DOSOptions{Method: 7}, []string{"method"}},
+		{"unit", DOSOptions{Unit: 9}, []string{"unit"}},
+		{"window", DOSOptions{Min: 5, Max: 1}, []string{"max"}},
+		{"negative step", DOSOptions{Step: -1}, []string{"step"}},
+		{"negative width", DOSOptions{Method: Gaussian, Width: -1}, []string{"width"}},
+		{"width without gaussian", DOSOptions{Width: 0.1}, []string{"width"}},
+		{"not finite", DOSOptions{Min: math.NaN(), Max: math.Inf(1)}, []string{"min", "max"}},
+		{"all at once", DOSOptions{Method: 7, Unit: -1, Step: -2, Min: 3, Max: 2}, []string{"method", "unit", "max", "step"}},
+		{"too many samples", DOSOptions{Max: 10, Step: 1e-6}, []string{"step"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := ComputeDOS(specCtx(t), m, g, tc.opt)
+			var ve *ValidationError
+			if !errors.As(err, &ve) {
+				t.Fatalf("got %v; want a *ValidationError", err)
+			}
+			var got []string
+			for _, v := range ve.Violations {
+				if !slices.Contains(got, v.Field) {
+					got = append(got, v.Field)
+				}
+			}
+			slices.Sort(got)
+			want := slices.Clone(tc.fields)
+			slices.Sort(want)
+			if !slices.Equal(got, want) {
+				t.Errorf("fields %v; want %v (%v)", got, want, err)
+			}
+		})
+	}
+	if _, err := ComputeDOS(specCtx(t), m, g, DOSOptions{PerSite: true}); err == nil {
+		t.Error("per-site DOS of modes without site weights: no error")
+	}
+	part := *g
+	part.Points, part.FreqTHz = g.Points[:8], g.FreqTHz[:8]
+	if _, err := ComputeDOS(specCtx(t), m, &part, DOSOptions{}); err == nil {
+		t.Error("tetrahedra on part of a grid: no error")
+	}
+	other := mustCompile(t, loadExample(t, "diatomic-chain"))
+	if _, err := ComputeDOS(specCtx(t), other, g, DOSOptions{}); err == nil {
+		t.Error("modes of another model: no error")
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := ComputeDOS(ctx, m, g, DOSOptions{}); !errors.Is(err, context.Canceled) {
+		t.Errorf("cancelled context: got %v; want context.Canceled", err)
+	}
+}
+
+// TestNormalCDF: the tabulated Gaussian cumulative distribution against
+// ½ erfc(−u/√2) (A&S 26.2.2, 7.1.2) at 20 000 points, to 1e-11.
+func TestNormalCDF(t *testing.T) {
+	for i := 0; i <= 20000; i++ {
+		u := -9 + 18*float64(i)/20000
+		want := 0.5 * math.Erfc(-u/math.Sqrt2)
+		if u <= -gaussianCutoff {
+			want = 0
+		} else if u >= gaussianCutoff {
+			want = 1
+		}
+		if got := normalCDF(u); math.Abs(got-want) > 1e-11 {
+			t.Fatalf("Φ(%g) = %.15g; want %.15g", u, got, want)
+		}
+	}
+}

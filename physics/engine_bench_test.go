@@ -1,0 +1,151 @@
+// Benchmarks of the engine: per-q cost on a size ladder, the two-site
+// eigenvalue solve, and whole 48³ grids.
+
+package physics
+
+import (
+	"context"
+	"fmt"
+	"math/rand/v2"
+	"testing"
+)
+
+// conventionalRocksalt is the rock-salt-like example in its conventional
+// cubic cell (8 sites): a'_k = −a_k + Σ_{l≠k} a_l of the fcc primitive
+// vectors gives the cube edges.
+var conventionalCell = [3][3]int{{-1, 1, 1}, {1, -1, 1}, {1, 1, -1}}
+
+// ladder returns the benchmark models by site count: 1 (fcc), 2
+// (rocksalt-like), 8 (its conventional cube) and 64 (2×2×2 cubes).
+func ladder(b testing.TB) []struct {
+	sites int
+	m     *Model
+} {
+	rs := loadExample(b, "rocksalt-like")
+	cube := supercell(b, rs, conventionalCell)
+	big := supercell(b, cube, [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}})
+	return []struct {
+		sites int
+		m     *Model
+	}{
+		{1, mustCompile(b, loadExample(b, "fcc"))},
+		{2, mustCompile(b, rs)},
+		{8, mustCompile(b, cube)},
+		{64, mustCompile(b, big)},
+	}
+}
+
+func randomQs(rng *rand.Rand, n int) [][3]float64 {
+	qs := make([][3]float64, n)
+	for i := range qs {
+		qs[i] = [3]float64{rng.Float64() - 0.5, rng.Float64() - 0.5, rng.Float64() - 0.5}
+	}
+	return qs
+}
+
+var sinkPoint PointModes
+
+// BenchmarkModesPerQ is the cost of one q-point on one core, reusing the
+// worker's workspace as the grid and stream loops do: D(q) assembly plus
+// eigenvalues (freq), plus eigenvectors (vectors), plus group velocities
+// (velocities).
+func BenchmarkModesPerQ(b *testing.B) {
+	rng := rand.New(rand.NewPCG(7, 7))
+	qs := randomQs(rng, 64)
+	for _, l := range ladder(b) {
+		n := l.m.Modes()
+		for _, kind := range []string{"freq", "vectors", "velocities"} {
+			opt := ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
+			b.Run(fmt.Sprintf("sites=%d/%s", l.sites, kind), func(b *testing.B) {
+				w := l.m.newPointWork(nil)
+				pm := PointModes{FreqTHz: make([]float64, n)}
+				if opt.Eigenvectors {
+					pm.Eigvecs = make([]complex128, n*n)
+				}
+				if opt.Velocities {
+					pm.VelKmS = make([][3]float64, n)
+				}
+				w.point(&pm, opt) // warm the lazily built parts
+				b.ReportAllocs()
+				i := 0
+				for b.Loop() {
+					pm.Q = qs[i%len(qs)]
+					i++
+					w.point(&pm, opt)
+				}
+				sinkPoint = pm
+			})
+		}
+	}
+}
+
+// BenchmarkTwoSiteEigenvalues is the 6×6 Hermitian eigenvalue solve alone on
+// dynamical matrices of the two-site crystal at random q (the issue's
+// 1.5 µs target), and the D(q) assembly alone.
+func BenchmarkTwoSiteEigenvalues(b *testing.B) {
+	m := mustCompile(b, loadExample(b, "rocksalt-like"))
+	rng := rand.New(rand.NewPCG(8, 8))
+	qs := randomQs(rng, 64)
+	mats := make([][]complex128, len(qs))
+	for i, q := range qs {
+		mats[i] = m.DynamicalMatrix(q, nil)
+	}
+	b.Run("solve", func(b *testing.B) {
+		w := newEigenWork(6)
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			copy(w.a, mats[i%len(mats)])
+			i++
+			w.solve(false)
+		}
+		sinkVals = w.vals
+	})
+	b.Run("assemble", func(b *testing.B) {
+		w := newEigenWork(6)
+		var t phaseTable
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			m.assemble(qs[i%len(qs)], w.a, &t)
+			i++
+		}
+	})
+}
+
+var sinkGrid *GridModes
+
+// BenchmarkGrid48 computes all frequencies of a 48×48×48 Γ-centred grid
+// (110 592 points, no symmetry) on all cores, through GridModes and through
+// StreamModes, for the one-site fcc and the two-site rock-salt-like
+// examples. ns/op is wall time for the whole grid.
+func BenchmarkGrid48(b *testing.B) {
+	spec := GridSpec{Mesh: [3]int{48, 48, 48}}
+	for _, name := range []string{"fcc", "rocksalt-like"} {
+		m := mustCompile(b, loadExample(b, name))
+		b.Run(name+"/GridModes", func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				g, err := m.GridModes(context.Background(), spec, GridOptions{})
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkGrid = g
+			}
+		})
+		pts := spec.Points()
+		b.Run(name+"/StreamModes", func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				var got int
+				err := m.StreamModes(context.Background(), pts, ModeOptions{}, func(c ModeChunk) error {
+					got += len(c.Points)
+					return nil
+				})
+				if err != nil || got != len(pts) {
+					b.Fatal(err, got)
+				}
+			}
+		})
+	}
+}

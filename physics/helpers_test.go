@@ -1,0 +1,293 @@
+// Test helpers that transform crystals: supercells, rigid rotations, site
+// and interaction permutations, unit changes.
+
+package physics
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+)
+
+// cloneCrystal deep-copies c.
+func cloneCrystal(c *Crystal) *Crystal {
+	out := *c
+	out.Lattice = append([][3]float64(nil), c.Lattice...)
+	out.Sites = nil
+	for _, s := range c.Sites {
+		s.Frac = append([]float64(nil), s.Frac...)
+		out.Sites = append(out.Sites, s)
+	}
+	out.Springs = nil
+	for _, s := range c.Springs {
+		s.Cell = append([]int(nil), s.Cell...)
+		out.Springs = append(out.Springs, s)
+	}
+	out.Shells = append([]Shell(nil), c.Shells...)
+	out.Blocks = nil
+	for _, b := range c.Blocks {
+		b.Cell = append([]int(nil), b.Cell...)
+		b.Phi = append([]float64(nil), b.Phi...)
+		out.Blocks = append(out.Blocks, b)
+	}
+	return &out
+}
+
+// supercell returns c described in the cell a'_k = Σ_l M_kl a_l (d×d
+// integer matrix, det ≠ 0): det(M) copies of every site, every spring and
+// block re-expressed between the copies, shells unchanged (they act by
+// label). Site I = copy·nsites + i… in enumeration order.
+func supercell(t testing.TB, c *Crystal, mt [3][3]int) *Crystal {
+	t.Helper()
+	d := len(c.Lattice)
+	var mf [3][3]float64
+	for i := 0; i < 3; i++ {
+		for j := 0; j < 3; j++ {
+			if i < d && j < d {
+				mf[i][j] = float64(mt[i][j])
+			} else if i == j {
+				mf[i][j] = 1
+			}
+		}
+	}
+	det := int(math.Round(mf[0][0]*(mf[1][1]*mf[2][2]-mf[1][2]*mf[2][1]) -
+		mf[0][1]*(mf[1][0]*mf[2][2]-mf[1][2]*mf[2][0]) +
+		mf[0][2]*(mf[1][0]*mf[2][1]-mf[1][1]*mf[2][0])))
+	if det < 0 {
+		det = -det
+	}
+	inv := invertSmall(mf, 3) // M⁻¹
+	out := cloneCrystal(c)
+	out.Lattice = make([][3]float64, d)
+	for k := 0; k < d; k++ {
+		for l := 0; l < d; l++ {
+			for a := 0; a < 3; a++ {
+				out.Lattice[k][a] += mf[k][l] * c.Lattice[l][a]
+			}
+		}
+	}
+	// newFrac = M⁻ᵀ (f + t).
+	toNew := func(f [3]float64) [3]float64 {
+		var g [3]float64
+		for k := 0; k < 3; k++ {
+			for l := 0; l < 3; l++ {
+				g[k] += inv[l][k] * f[l]
+			}
+		}
+		return g
+	}
+	type copyOf struct {
+		prim int
+		t    [3]int
+	}
+	var copies []copyOf
+	out.Sites = nil
+	reach := 0
+	for i := 0; i < d; i++ {
+		for j := 0; j < d; j++ {
+			reach += abs(mt[i][j])
+		}
+	}
+	for i, s := range c.Sites {
+		var tt [3]int
+		for tt[0] = -reach; tt[0] <= reach; tt[0]++ {
+			for tt[1] = -reach; tt[1] <= reach; tt[1]++ {
+				for tt[2] = -reach; tt[2] <= reach; tt[2]++ {
+					skip := false
+					for k := d; k < 3; k++ {
+						skip = skip || tt[k] != 0
+					}
+					if skip {
+						continue
+					}
+					var f [3]float64
+					for k := 0; k < d; k++ {
+						f[k] = s.Frac[k] + float64(tt[k])
+					}
+					g := toNew(f)
+					in := true
+					for k := 0; k < d; k++ {
+						in = in && g[k] >= -1e-9 && g[k] < 1-1e-9
+					}
+					if !in {
+						continue
+					}
+					ns := Site{Label: s.Label, MassAmu: s.MassAmu, Frac: make([]float64, d)}
+					for k := 0; k < d; k++ {
+						ns.Frac[k] = math.Max(g[k], 0)
+					}
+					out.Sites = append(out.Sites, ns)
+					copies = append(copies, copyOf{i, tt})
+				}
+			}
+		}
+	}
+	if len(out.Sites) != det*len(c.Sites) {
+		t.Fatalf("supercell: %d sites; want %d", len(out.Sites), det*len(c.Sites))
+	}
+	// target finds the copy J of primitive site j at absolute translation
+	// T and the supercell offset N with T = t_J + Mᵀ N.
+	target := func(j int, T [3]int) (int, []int) {
+		for J, cp := range copies {
+			if cp.prim != j {
+				continue
+			}
+			var diff [3]float64
+			for k := 0; k < 3; k++ {
+				diff[k] = float64(T[k] - cp.t[k])
+			}
+			n := toNew(diff)
+			ok := true
+			cell := make([]int, d)
+			for k := 0; k < d; k++ {
+				r := math.Round(n[k])
+				ok = ok && math.Abs(n[k]-r) < 1e-9
+				cell[k] = int(r)
+			}
+			if ok {
+				return J, cell
+			}
+		}
+		t.Fatalf("supercell: no copy of site %d at %v", j, T)
+		return 0, nil
+	}
+	out.Springs = nil
+	for _, s := range c.Springs {
+		for I, cp := range copies {
+			if cp.prim != s.From {
+				continue
+			}
+			var T [3]int
+			for k := 0; k < d; k++ {
+				T[k] = cp.t[k] + s.Cell[k]
+			}
+			J, cell := target(s.To, T)
+			out.Springs = append(out.Springs, Spring{From: I, To: J, Cell: cell, KLong: s.KLong, KTrans: s.KTrans})
+		}
+	}
+	out.Blocks = nil
+	for _, b := range c.Blocks {
+		for I, cp := range copies {
+			if cp.prim != b.From {
+				continue
+			}
+			var T [3]int
+			for k := 0; k < d; k++ {
+				T[k] = cp.t[k] + b.Cell[k]
+			}
+			J, cell := target(b.To, T)
+			out.Blocks = append(out.Blocks, Block{From: I, To: J, Cell: cell, Phi: append([]float64(nil), b.Phi...)})
+		}
+	}
+	return out
+}
+
+func abs(x int) int {
+	if x < 0 {
+		return -x
+	}
+	return x
+}
+
+// randomRotation returns a random proper rotation matrix (from a random
+// unit quaternion).
+func randomRotation(rng *rand.Rand) [3][3]float64 {
+	q := [4]float64{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
+	n := math.Sqrt(q[0]*q[0] + q[1]*q[1] + q[2]*q[2] + q[3]*q[3])
+	w, x, y, z := q[0]/n, q[1]/n, q[2]/n, q[3]/n
+	return [3][3]float64{
+		{1 - 2*(y*y+z*z), 2 * (x*y - z*w), 2 * (x*z + y*w)},
+		{2 * (x*y + z*w), 1 - 2*(x*x+z*z), 2 * (y*z - x*w)},
+		{2 * (x*z - y*w), 2 * (y*z + x*w), 1 - 2*(x*x+y*y)},
+	}
+}
+
+func rotate3(r [3][3]float64, v [3]float64) [3]float64 {
+	var o [3]float64
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			o[a] += r[a][b] * v[b]
+		}
+	}
+	return o
+}
+
+// rotated returns c rigidly rotated by r: lattice vectors rotate, fractional
+// positions stay, blocks transform as R Φ Rᵀ.
+func rotated(c *Crystal, r [3][3]float64) *Crystal {
+	out := cloneCrystal(c)
+	for k := range out.Lattice {
+		out.Lattice[k] = rotate3(r, out.Lattice[k])
+	}
+	for i, b := range out.Blocks {
+		var phi [9]float64
+		for a := 0; a < 3; a++ {
+			for bb := 0; bb < 3; bb++ {
+				for x := 0; x < 3; x++ {
+					for y := 0; y < 3; y++ {
+						phi[3*a+bb] += r[a][x] * b.Phi[3*x+y] * r[bb][y]
+					}
+				}
+			}
+		}
+		out.Blocks[i].Phi = phi[:]
+	}
+	return out
+}
+
+// permutedSites returns c with site i moved to position perm[i].
+func permutedSites(c *Crystal, perm []int) *Crystal {
+	out := cloneCrystal(c)
+	for i, s := range c.Sites {
+		s.Frac = append([]float64(nil), s.Frac...)
+		out.Sites[perm[i]] = s
+	}
+	for k := range out.Springs {
+		out.Springs[k].From = perm[out.Springs[k].From]
+		out.Springs[k].To = perm[out.Springs[k].To]
+	}
+	for k := range out.Blocks {
+		out.Blocks[k].From = perm[out.Blocks[k].From]
+		out.Blocks[k].To = perm[out.Blocks[k].To]
+	}
+	return out
+}
+
+// inNPerM returns c with every force constant converted to N/m
+// (1 eV/Å² = 16.02176634 N/m, CODATA 2018 exact).
+func inNPerM(c *Crystal) *Crystal {
+	if c.ForceUnit == NPerM {
+		return cloneCrystal(c)
+	}
+	out := cloneCrystal(c)
+	out.ForceUnit = NPerM
+	const f = 16.02176634
+	for k := range out.Springs {
+		out.Springs[k].KLong *= f
+		out.Springs[k].KTrans *= f
+	}
+	for k := range out.Shells {
+		out.Shells[k].KLong *= f
+		out.Shells[k].KTrans *= f
+	}
+	for k := range out.Blocks {
+		for a := range out.Blocks[k].Phi {
+			out.Blocks[k].Phi[a] *= f
+		}
+	}
+	return out
+}
+
+// closeSlices reports |a_k − b_k| ≤ tol·max(|b|) for all k.
+func closeSlices(a, b []float64, tol float64) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	s := maxAbs(b)
+	for k := range a {
+		if math.Abs(a[k]-b[k]) > tol*math.Max(s, 1e-300) {
+			return false
+		}
+	}
+	return true
+}

@@ -1,0 +1,381 @@
+// Lattice types and their standard Brillouin-zone points.
+//
+// The type is recognised from the lattice vectors alone (any primitive
+// basis, any orientation): sc, fcc, bcc and hexagonal in 3D; square,
+// rectangular and hexagonal in 2D; 1d. The labelled points of the 3D types
+// are those of Setyawan & Curtarolo, Comput. Mater. Sci. 49, 299 (2010)
+// (Tables for CUB, FCC, BCC and HEX), given there in fractional
+// coordinates of the reciprocal vectors of their standard primitive cell.
+// The engine finds that standard cell inside the caller's lattice — the
+// choice of standard vectors closest to the caller's own — and converts
+// the points to the caller's reciprocal basis, so for a lattice given in
+// the standard setting the numbers are the paper's, and for any other
+// setting they are the same points of the zone. The 2D and 1D points are
+// the in-plane analogues (common practice): square Γ, X, M; rectangular
+// Γ, X, Y, S; hexagonal Γ, M, K; 1D Γ, X.
+
+package physics
+
+import (
+	"math"
+	"sort"
+)
+
+// LatticeTypeTol is the relative tolerance on lengths and on cosines of
+// angles used to recognise a lattice type: 1e-4, loose enough for lattice
+// vectors written with five or six digits (e.g. √3/2 as 0.86603).
+const LatticeTypeTol = 1e-4
+
+// Lattice type names returned by Model.LatticeType.
+const (
+	LatticeSC          = "sc"
+	LatticeFCC         = "fcc"
+	LatticeBCC         = "bcc"
+	LatticeHexagonal   = "hexagonal"
+	LatticeSquare      = "square"
+	LatticeRectangular = "rectangular"
+	Lattice1D          = "1d"
+)
+
+// LatticeType returns the recognised lattice type of the model: "sc",
+// "fcc", "bcc", "hexagonal" (3D or 2D), "square", "rectangular", "1d", or
+// "" when the lattice is none of these (only Γ is then built in).
+func (m *Model) LatticeType() string { return m.latticeType }
+
+// StandardPoints returns the built-in labelled points for the model's
+// lattice type, in fractional reciprocal coordinates of the model's own
+// lattice; "G" is Γ and is always present. The map is a fresh copy.
+func (m *Model) StandardPoints() map[string][3]float64 {
+	out := make(map[string][3]float64, len(m.standard))
+	for k, v := range m.standard {
+		out[k] = v
+	}
+	return out
+}
+
+// standardFrac lists the points in fractional coordinates of the reciprocal
+// vectors of each type's standard primitive cell (see standardCell).
+var standardFrac = map[string]map[string][3]float64{
+	// Setyawan & Curtarolo (2010), CUB.
+	LatticeSC: {"G": {}, "M": {0.5, 0.5, 0}, "R": {0.5, 0.5, 0.5}, "X": {0, 0.5, 0}},
+	// Setyawan & Curtarolo (2010), FCC.
+	LatticeFCC: {"G": {}, "K": {3.0 / 8, 3.0 / 8, 3.0 / 4}, "L": {0.5, 0.5, 0.5},
+		"U": {5.0 / 8, 1.0 / 4, 5.0 / 8}, "W": {0.5, 0.25, 0.75}, "X": {0.5, 0, 0.5}},
+	// Setyawan & Curtarolo (2010), BCC.
+	LatticeBCC: {"G": {}, "H": {0.5, -0.5, 0.5}, "P": {0.25, 0.25, 0.25}, "N": {0, 0, 0.5}},
+	// Setyawan & Curtarolo (2010), HEX (a₁, a₂ at 120°, a₃ = c ẑ); in 2D
+	// the in-plane points only.
+	LatticeHexagonal: {"G": {}, "A": {0, 0, 0.5}, "H": {1.0 / 3, 1.0 / 3, 0.5},
+		"K": {1.0 / 3, 1.0 / 3, 0}, "L": {0.5, 0, 0.5}, "M": {0.5, 0, 0}},
+	LatticeSquare:      {"G": {}, "X": {0.5, 0, 0}, "M": {0.5, 0.5, 0}},
+	LatticeRectangular: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
+	Lattice1D:          {"G": {}, "X": {0.5, 0, 0}},
+}
+
+// detectLattice recognises the lattice type of m and returns it with its
+// standard points in m's fractional reciprocal coordinates.
+func detectLattice(m *Model) (string, map[string][3]float64) {
+	d := m.dim
+	user := make([][3]float64, d)
+	copy(user, m.lattice[:d])
+	typ, frames := "", [][][3]float64(nil)
+	switch d {
+	case 1:
+		typ, frames = Lattice1D, [][][3]float64{{user[0]}}
+	case 2:
+		typ, frames = classify2D(user)
+	case 3:
+		typ, frames = classify3D(m, user)
+	}
+	pts := map[string][3]float64{"G": {}}
+	if typ == "" {
+		return "", pts
+	}
+	// The standard cell closest to the caller's vectors.
+	best, bestScore := frames[0], math.Inf(-1)
+	for _, f := range frames {
+		var s float64
+		for k := range f {
+			s += dot3(f[k], user[k])
+		}
+		if s > bestScore+1e-9*math.Abs(s) {
+			best, bestScore = f, s
+		}
+	}
+	var std [3][3]float64
+	copy(std[:], best)
+	recip := reciprocal(std, d)
+	for label, f := range standardFrac[typ] {
+		if d == 2 && f[2] != 0 {
+			continue // 3D-only points (A, H, L of HEX)
+		}
+		var qc [3]float64
+		for k := 0; k < d; k++ {
+			for a := 0; a < 3; a++ {
+				qc[a] += f[k] * recip[k][a]
+			}
+		}
+		var q [3]float64
+		for k := 0; k < d; k++ {
+			q[k] = snap(dot3(qc, user[k]) / (2 * math.Pi))
+		}
+		pts[label] = q
+	}
+	return typ, pts
+}
+
+// snap rounds x to the nearest multiple of 1/48 when within 1e-9: every
+// standard coordinate is such a multiple in the standard setting, and
+// integer changes of basis keep it so.
+func snap(x float64) float64 {
+	r := math.Round(x*48) / 48
+	if math.Abs(x-r) < 1e-9 {
+		return r
+	}
+	return x
+}
+
+func near(a, b, scale float64) bool { return math.Abs(a-b) <= LatticeTypeTol*scale }
+
+func scale3(v [3]float64, s float64) [3]float64 { return [3]float64{v[0] * s, v[1] * s, v[2] * s} }
+
+func cross3(a, b [3]float64) [3]float64 {
+	return [3]float64{a[1]*b[2] - a[2]*b[1], a[2]*b[0] - a[0]*b[2], a[0]*b[1] - a[1]*b[0]}
+}
+
+// reduceGreedy reduces a basis by repeated size reduction against every
+// other vector until no vector gets shorter (greedy reduction, Minkowski-
+// reduced for d ≤ 3: Nguyen & Stehlé, ACM Trans. Algorithms 5, 46 (2009)).
+func reduceGreedy(u [][3]float64) {
+	for changed := true; changed; {
+		changed = false
+		for i := range u {
+			for j := range u {
+				if i == j {
+					continue
+				}
+				mu := math.Round(dot3(u[i], u[j]) / dot3(u[j], u[j]))
+				if mu == 0 {
+					continue
+				}
+				c := sub3(u[i], scale3(u[j], mu))
+				if dot3(c, c) < dot3(u[i], u[i])*(1-1e-12) {
+					u[i] = c
+					changed = true
+				}
+			}
+		}
+	}
+	sort.Slice(u, func(a, b int) bool { return dot3(u[a], u[a]) < dot3(u[b], u[b]) })
+}
+
+// classify2D recognises square, rectangular and hexagonal nets and lists
+// the candidate standard cells (s₁, s₂).
+func classify2D(user [][3]float64) (string, [][][3]float64) {
+	u := [][3]float64{user[0], user[1]}
+	reduceGreedy(u)
+	l1, l2 := norm3(u[0]), norm3(u[1])
+	cos := dot3(u[0], u[1]) / (l1 * l2)
+	var frames [][][3]float64
+	switch {
+	case near(l1, l2, l2) && math.Abs(cos) <= LatticeTypeTol:
+		for _, s1 := range [][3]float64{u[0], scale3(u[0], -1), u[1], scale3(u[1], -1)} {
+			for _, s2 := range [][3]float64{u[0], scale3(u[0], -1), u[1], scale3(u[1], -1)} {
+				if math.Abs(dot3(s1, s2)) <= LatticeTypeTol*l1*l1 {
+					frames = append(frames, [][3]float64{s1, s2})
+				}
+			}
+		}
+		return LatticeSquare, frames
+	case math.Abs(cos) <= LatticeTypeTol:
+		for _, s1 := range [][3]float64{u[0], scale3(u[0], -1)} {
+			for _, s2 := range [][3]float64{u[1], scale3(u[1], -1)} {
+				frames = append(frames, [][3]float64{s1, s2})
+			}
+		}
+		return LatticeRectangular, frames
+	case near(l1, l2, l2) && near(math.Abs(cos), 0.5, 1):
+		// The six shortest vectors; standard pairs are at 120°.
+		w := u[1]
+		if cos > 0 {
+			w = scale3(w, -1)
+		}
+		six := [][3]float64{u[0], w, add3(u[0], w)}
+		for _, v := range six[:3] {
+			six = append(six, scale3(v, -1))
+		}
+		for _, s1 := range six {
+			for _, s2 := range six {
+				if near(dot3(s1, s2)/(l1*l1), -0.5, 1) {
+					frames = append(frames, [][3]float64{s1, s2})
+				}
+			}
+		}
+		return LatticeHexagonal, frames
+	}
+	return "", nil
+}
+
+// classify3D recognises sc, fcc, bcc and hexagonal lattices and lists the
+// candidate standard primitive cells.
+func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
+	u := [][3]float64{user[0], user[1], user[2]}
+	reduceGreedy(u)
+	vol := math.Abs(dot3(u[0], cross3(u[1], u[2])))
+	// Short lattice vectors: integer combinations of the reduced basis.
+	var vecs [][3]float64
+	for a := -2; a <= 2; a++ {
+		for b := -2; b <= 2; b++ {
+			for c := -2; c <= 2; c++ {
+				if a == 0 && b == 0 && c == 0 {
+					continue
+				}
+				v := add3(add3(scale3(u[0], float64(a)), scale3(u[1], float64(b))), scale3(u[2], float64(c)))
+				vecs = append(vecs, v)
+			}
+		}
+	}
+	sort.Slice(vecs, func(i, j int) bool { return dot3(vecs[i], vecs[i]) < dot3(vecs[j], vecs[j]) })
+	var shells []float64 // distinct lengths
+	for _, v := range vecs {
+		l := norm3(v)
+		if len(shells) == 0 || !near(l, shells[len(shells)-1], l) {
+			shells = append(shells, l)
+		}
+	}
+	isLattice := func(v [3]float64) bool {
+		for k := 0; k < 3; k++ {
+			f := dot3(v, m.recip[k]) / (2 * math.Pi)
+			if math.Abs(f-math.Round(f)) > LatticeTypeTol {
+				return false
+			}
+		}
+		return true
+	}
+	ofLength := func(l float64) [][3]float64 {
+		var out [][3]float64
+		for _, v := range vecs {
+			if near(norm3(v), l, l) {
+				out = append(out, v)
+			}
+		}
+		return out
+	}
+
+	// Cubic: three orthogonal lattice vectors of one length a (the first
+	// shell for sc, the second for fcc and bcc) spanning a cube of volume
+	// a³ = V, 2V or 4V with the body or face centres on the lattice.
+	for si := 0; si < len(shells) && si < 3; si++ {
+		a := shells[si]
+		set := ofLength(a)
+		var e [3][3]float64
+		found := false
+		for _, e1 := range set {
+			for _, e2 := range set {
+				if math.Abs(dot3(e1, e2)) > LatticeTypeTol*a*a {
+					continue
+				}
+				e3 := scale3(cross3(e1, e2), 1/a)
+				if isLattice(e3) {
+					e, found = [3][3]float64{e1, e2, e3}, true
+					break
+				}
+			}
+			if found {
+				break
+			}
+		}
+		if !found {
+			continue
+		}
+		ratio := a * a * a / vol
+		half := func(v [3]float64) bool { return isLattice(scale3(v, 0.5)) }
+		var typ string
+		switch {
+		case near(ratio, 1, 1):
+			typ = LatticeSC
+		case near(ratio, 2, 2) && half(add3(add3(e[0], e[1]), e[2])):
+			typ = LatticeBCC
+		case near(ratio, 4, 4) && half(add3(e[0], e[1])) && half(add3(e[1], e[2])) && half(add3(e[0], e[2])):
+			typ = LatticeFCC
+		default:
+			continue
+		}
+		var frames [][][3]float64
+		for _, f := range cubeFrames(e) {
+			frames = append(frames, standardCell(typ, f))
+		}
+		return typ, frames
+	}
+
+	// Hexagonal: two vectors of one length at 120° and a third orthogonal
+	// to both, spanning a cell of volume V.
+	var frames [][][3]float64
+	limit := math.Inf(1)
+	if len(shells) > 2 {
+		limit = shells[2]
+	}
+	for _, v1 := range vecs {
+		l := norm3(v1)
+		if l > limit*(1+LatticeTypeTol) {
+			break
+		}
+		for _, v2 := range vecs {
+			if !near(norm3(v2), l, l) || !near(dot3(v1, v2)/(l*l), -0.5, 1) {
+				continue
+			}
+			for _, v3 := range vecs {
+				c := norm3(v3)
+				if math.Abs(dot3(v1, v3)) > LatticeTypeTol*l*c || math.Abs(dot3(v2, v3)) > LatticeTypeTol*l*c {
+					continue
+				}
+				if near(math.Abs(dot3(v1, cross3(v2, v3))), vol, vol) {
+					frames = append(frames, [][3]float64{v1, v2, v3})
+				}
+			}
+		}
+	}
+	if len(frames) > 0 {
+		return LatticeHexagonal, frames
+	}
+	return "", nil
+}
+
+// cubeFrames returns the 48 signed permutations of the cube axes e.
+func cubeFrames(e [3][3]float64) [][3][3]float64 {
+	var out [][3][3]float64
+	perms := [6][3]int{{0, 1, 2}, {0, 2, 1}, {1, 0, 2}, {1, 2, 0}, {2, 0, 1}, {2, 1, 0}}
+	for _, p := range perms {
+		for s := 0; s < 8; s++ {
+			var f [3][3]float64
+			for k := 0; k < 3; k++ {
+				sign := 1.0
+				if s>>k&1 == 1 {
+					sign = -1
+				}
+				f[k] = scale3(e[p[k]], sign)
+			}
+			out = append(out, f)
+		}
+	}
+	return out
+}
+
+// standardCell returns the standard primitive vectors of Setyawan &
+// Curtarolo (2010) for a cubic type, on the cube axes f (each of length a):
+// CUB a f_k; FCC (f₂+f₃)/2, (f₁+f₃)/2, (f₁+f₂)/2; BCC (−f₁+f₂+f₃)/2,
+// (f₁−f₂+f₃)/2, (f₁+f₂−f₃)/2.
+func standardCell(typ string, f [3][3]float64) [][3]float64 {
+	switch typ {
+	case LatticeFCC:
+		return [][3]float64{scale3(add3(f[1], f[2]), 0.5), scale3(add3(f[0], f[2]), 0.5), scale3(add3(f[0], f[1]), 0.5)}
+	case LatticeBCC:
+		return [][3]float64{
+			scale3(add3(sub3(f[1], f[0]), f[2]), 0.5),
+			scale3(add3(sub3(f[0], f[1]), f[2]), 0.5),
+			scale3(sub3(add3(f[0], f[1]), f[2]), 0.5),
+		}
+	default:
+		return [][3]float64{f[0], f[1], f[2]}
+	}
+}

@@ -1,0 +1,164 @@
+// Tests of lattice-type recognition and the built-in standard points.
+
+package physics
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+)
+
+// withLattice is a one-site crystal on the given lattice (no springs: the
+// lattice type needs none).
+func withLattice(vecs ...[3]float64) *Model {
+	c := &Crystal{Lattice: vecs, Sites: []Site{{Label: "A", MassAmu: 1, Frac: make([]float64, len(vecs))}}}
+	m, err := Compile(c, Options{})
+	if err != nil {
+		panic(err)
+	}
+	return m
+}
+
+// TestLatticeType recognises each type from its vectors in any primitive
+// basis and orientation, and nothing else.
+func TestLatticeType(t *testing.T) {
+	s3 := math.Sqrt(3)
+	rng := rand.New(rand.NewPCG(41, 1))
+	r := randomRotation(rng)
+	rot := func(vs ...[3]float64) [][3]float64 {
+		out := make([][3]float64, len(vs))
+		for i, v := range vs {
+			out[i] = rotate3(r, v)
+		}
+		return out
+	}
+	cases := []struct {
+		name string
+		vecs [][3]float64
+		want string
+	}{
+		{"sc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}}, LatticeSC},
+		{"sc skewed basis", [][3]float64{{3, 0, 0}, {3, 3, 0}, {-3, 3, 3}}, LatticeSC},
+		{"fcc standard", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 2, 0}}, LatticeFCC},
+		{"fcc other basis", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}, LatticeFCC},
+		{"fcc rotated", rot([3]float64{0, 2, 2}, [3]float64{2, 0, 2}, [3]float64{2, 2, 0}), LatticeFCC},
+		{"bcc standard", [][3]float64{{-1.5, 1.5, 1.5}, {1.5, -1.5, 1.5}, {1.5, 1.5, -1.5}}, LatticeBCC},
+		{"bcc cube-edge basis", [][3]float64{{3, 0, 0}, {0, 3, 0}, {1.5, 1.5, 1.5}}, LatticeBCC},
+		{"hexagonal standard", [][3]float64{{1.5, -1.5 * s3, 0}, {1.5, 1.5 * s3, 0}, {0, 0, 5}}, LatticeHexagonal},
+		{"hexagonal 60° short c", rot([3]float64{3, 0, 0}, [3]float64{1.5, 1.5 * s3, 0}, [3]float64{0, 0, 2}), LatticeHexagonal},
+		{"tetragonal", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 4}}, ""},
+		{"orthorhombic", [][3]float64{{3, 0, 0}, {0, 4, 0}, {0, 0, 5}}, ""},
+		{"triclinic", [][3]float64{{3, 0.1, 0.2}, {0.3, 4, 0}, {0.5, 0.2, 5}}, ""},
+		{"square", [][3]float64{{3, 0, 0}, {0, 3, 0}}, LatticeSquare},
+		{"square skewed basis, tilted plane", rot([3]float64{3, 0, 0}, [3]float64{3, 3, 0}), LatticeSquare},
+		{"rectangular", [][3]float64{{3, 0, 0}, {0, 5, 0}}, LatticeRectangular},
+		{"hexagonal 2D", [][3]float64{{3, 0, 0}, {-1.5, 1.5 * s3, 0}}, LatticeHexagonal},
+		{"centred rectangular", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, ""},
+		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, ""},
+		{"1d", [][3]float64{{0, 0, 2.5}}, Lattice1D},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := withLattice(tc.vecs...).LatticeType(); got != tc.want {
+				t.Errorf("LatticeType = %q; want %q", got, tc.want)
+			}
+		})
+	}
+}
+
+// TestStandardPointsSetting: in the standard setting the points are the
+// fractional coordinates of Setyawan & Curtarolo (2010) — checked in
+// Cartesian form against the zone geometry (fcc X = (2π/a)(0,1,0),
+// L = (π/a)(1,1,1), W = (2π/a)(½,1,0), K = (2π/a)(¾,¾,0), U = (2π/a)(¼,1,¼);
+// bcc H = (2π/a)(0,1,0), P = (π/a)(1,1,1), N = (π/a)(1,1,0); sc X =
+// (π/a)(0,1,0), M = (π/a)(1,1,0), R = (π/a)(1,1,1); hex K = (4π/3a)(1,0,0)
+// with a₁ = (a/2, −a√3/2, 0); from memory of the paper's figures, derived
+// here from the reciprocal vectors).
+func TestStandardPointsSetting(t *testing.T) {
+	s3 := math.Sqrt(3)
+	const a = 4.0
+	type pt struct {
+		label string
+		cart  [3]float64 // in units of 2π/a
+	}
+	cases := []struct {
+		name string
+		vecs [][3]float64
+		pts  []pt
+	}{
+		{"sc", [][3]float64{{a, 0, 0}, {0, a, 0}, {0, 0, a}},
+			[]pt{{"X", [3]float64{0, 0.5, 0}}, {"M", [3]float64{0.5, 0.5, 0}}, {"R", [3]float64{0.5, 0.5, 0.5}}}},
+		{"fcc", [][3]float64{{0, a / 2, a / 2}, {a / 2, 0, a / 2}, {a / 2, a / 2, 0}},
+			[]pt{{"X", [3]float64{0, 1, 0}}, {"L", [3]float64{0.5, 0.5, 0.5}}, {"W", [3]float64{0.5, 1, 0}},
+				{"K", [3]float64{0.75, 0.75, 0}}, {"U", [3]float64{0.25, 1, 0.25}}}},
+		{"bcc", [][3]float64{{-a / 2, a / 2, a / 2}, {a / 2, -a / 2, a / 2}, {a / 2, a / 2, -a / 2}},
+			[]pt{{"H", [3]float64{0, 1, 0}}, {"P", [3]float64{0.5, 0.5, 0.5}}, {"N", [3]float64{0.5, 0.5, 0}}}},
+		{"hexagonal", [][3]float64{{a / 2, -a * s3 / 2, 0}, {a / 2, a * s3 / 2, 0}, {0, 0, 6}},
+			[]pt{{"K", [3]float64{2.0 / 3, 0, 0}}, {"M", [3]float64{0.5, -0.5 / s3, 0}}, {"A", [3]float64{0, 0, a / 12}}}},
+		{"square", [][3]float64{{a, 0, 0}, {0, a, 0}}, []pt{{"X", [3]float64{0.5, 0, 0}}, {"M", [3]float64{0.5, 0.5, 0}}}},
+		{"rectangular", [][3]float64{{a, 0, 0}, {0, 2 * a, 0}},
+			[]pt{{"X", [3]float64{0.5, 0, 0}}, {"Y", [3]float64{0, 0.25, 0}}, {"S", [3]float64{0.5, 0.25, 0}}}},
+		{"hexagonal 2D", [][3]float64{{a / 2, -a * s3 / 2, 0}, {a / 2, a * s3 / 2, 0}}, []pt{{"K", [3]float64{2.0 / 3, 0, 0}}}},
+		{"1d", [][3]float64{{a, 0, 0}}, []pt{{"X", [3]float64{0.5, 0, 0}}}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			m := withLattice(tc.vecs...)
+			std := m.StandardPoints()
+			if std["G"] != ([3]float64{}) {
+				t.Errorf("G = %v", std["G"])
+			}
+			for _, p := range tc.pts {
+				q, ok := std[p.label]
+				if !ok {
+					t.Fatalf("no point %s in %v", p.label, std)
+				}
+				got := m.cartQ(q)
+				for x := 0; x < 3; x++ {
+					if math.Abs(got[x]-p.cart[x]*2*math.Pi/a) > 1e-12 {
+						t.Errorf("%s = %v (frac %v); want %v·2π/a", p.label, got, q, p.cart)
+						break
+					}
+				}
+			}
+			if want := len(standardFrac[m.LatticeType()]); tc.name != "hexagonal 2D" && len(std) != want {
+				t.Errorf("%d points; want %d", len(std), want)
+			}
+		})
+	}
+	// The fcc example is in the standard setting: X and L are the paper's
+	// numbers exactly.
+	m := mustCompile(t, loadExample(t, "fcc"))
+	if x, l := m.StandardPoints()["X"], m.StandardPoints()["L"]; x != [3]float64{0.5, 0, 0.5} || l != [3]float64{0.5, 0.5, 0.5} {
+		t.Errorf("fcc example X = %v, L = %v", x, l)
+	}
+}
+
+// TestStandardPointsAnySetting: in a rotated lattice the fractional
+// coordinates do not change; in another primitive basis of the same fcc
+// lattice the points are still the zone's X, L, W, K (same frequencies in
+// the NN model, whose closed forms are in TestFCCNearestNeighbour*).
+func TestStandardPointsAnySetting(t *testing.T) {
+	rng := rand.New(rand.NewPCG(43, 3))
+	c := loadExample(t, "fcc")
+	ref := mustCompile(t, c)
+	rot := mustCompile(t, rotated(c, randomRotation(rng)))
+	for label, q := range ref.StandardPoints() {
+		if got := rot.StandardPoints()[label]; math.Abs(got[0]-q[0])+math.Abs(got[1]-q[1])+math.Abs(got[2]-q[2]) > 1e-9 {
+			t.Errorf("rotated %s = %v; want %v", label, got, q)
+		}
+	}
+	other := cloneCrystal(c)
+	other.Lattice = [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}
+	om := mustCompile(t, other)
+	if om.LatticeType() != LatticeFCC {
+		t.Fatalf("type %q", om.LatticeType())
+	}
+	for _, label := range []string{"X", "L", "W", "K", "U"} {
+		got := om.FrequenciesTHz(om.StandardPoints()[label])
+		want := ref.FrequenciesTHz(ref.StandardPoints()[label])
+		if !closeSlices(got, want, 1e-10) {
+			t.Errorf("%s in another basis: %v; want %v", label, got, want)
+		}
+	}
+}

@@ -1,0 +1,115 @@
+// Tests of Stability and of the cancellation latency.
+
+package physics
+
+import (
+	"context"
+	"math"
+	"os"
+	"testing"
+	"time"
+)
+
+// TestStability: spring models with positive constants are stable; a
+// negative second-neighbour spring strong enough to make ω² < 0 near Γ
+// (ω² ∝ K₁ sin²πq + K₂ sin²2πq, Kittel ch. 4 with second neighbours; here
+// K₂ < −K₁/4) is unstable, with the lowest frequency negative; an
+// imaginary optical mode at Γ itself counts, the acoustic zeros do not.
+func TestStability(t *testing.T) {
+	for _, name := range exampleNames(t) {
+		t.Run(name, func(t *testing.T) {
+			m := mustCompile(t, loadExample(t, name))
+			lo, hi, ok, err := m.Stability(testCtx(t), 6)
+			if err != nil || !ok || lo < -ImaginaryTolTHz || hi <= 0 {
+				t.Fatalf("min %v max %v stable %v err %v", lo, hi, ok, err)
+			}
+		})
+	}
+	unstable := &Crystal{Lattice: [][3]float64{{2, 0, 0}}, Polarizations: 1,
+		Sites:   []Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
+		Springs: []Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}, {From: 0, To: 0, Cell: []int{2}, KLong: -0.5}}}
+	m := mustCompile(t, unstable)
+	lo, _, ok, err := m.Stability(testCtx(t), 16)
+	if err != nil || ok || lo >= -ImaginaryTolTHz {
+		t.Fatalf("negative second-neighbour spring: min %v stable %v err %v", lo, ok, err)
+	}
+	// The lowest grid frequency: ω² = K₁ sin²πq + K₂ sin²2πq (4/M = 1)
+	// minimised over q = k/16.
+	want := math.Inf(1)
+	for k := 0; k < 16; k++ {
+		q := float64(k) / 16
+		w2 := math.Pow(math.Sin(math.Pi*q), 2) - 0.5*math.Pow(math.Sin(2*math.Pi*q), 2)
+		want = math.Min(want, math.Copysign(math.Sqrt(math.Abs(w2)), w2)*NuUnitTHz)
+	}
+	if !relClose(lo, want, 1e-10) {
+		t.Errorf("min %v; want %v", lo, want)
+	}
+	// An on-site block that pushes the optical mode at Γ below zero.
+	gamma := &Crystal{Lattice: [][3]float64{{4, 0, 0}}, Polarizations: 1,
+		Sites: []Site{{Label: "A", MassAmu: 10, Frac: []float64{0}}, {Label: "B", MassAmu: 10, Frac: []float64{0.5}}},
+		Springs: []Spring{{From: 0, To: 1, Cell: []int{0}, KLong: -1}, {From: 1, To: 0, Cell: []int{1}, KLong: -1},
+			{From: 0, To: 0, Cell: []int{1}, KLong: 3}, {From: 1, To: 1, Cell: []int{1}, KLong: 3}}}
+	g := mustCompile(t, gamma)
+	if _, _, ok, _ := g.Stability(testCtx(t), 4); ok {
+		t.Errorf("imaginary optical mode at Γ (%v THz) must make the model unstable", g.FrequenciesTHz([3]float64{}))
+	}
+	if _, _, _, err := g.Stability(testCtx(t), 0); violationsOf(t, err) == nil {
+		t.Error("mesh 0 must be a validation error")
+	}
+}
+
+// TestCancelStopsLargeSolve: a stream on a 64-site model with eigenvectors
+// and velocities stops once cancelled, well before it would finish (the
+// bound here is loose on purpose, only a hang fails it; the latency
+// itself is measured by BenchmarkCancelLatency).
+func TestCancelStopsLargeSolve(t *testing.T) {
+	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	spec, _ := GridSpec{Mesh: [3]int{8, 8, 8}}.Normalize(3)
+	ctx, cancel := context.WithCancel(context.Background())
+	go cancel()
+	err := m.StreamModes(ctx, spec.Points(), ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(ModeChunk) error { return nil })
+	if err != context.Canceled {
+		t.Fatalf("err %v; want context.Canceled", err)
+	}
+}
+
+// BenchmarkCancelLatency measures the time from cancel to the return of
+// StreamModes while workers diagonalise with eigenvectors and velocities
+// (64 sites, and 512 — the largest the default limits allow — with
+// MODEGRID_BENCH_LARGE=1 set, a minute per iteration): the emitter
+// cancels on the first chunk, when the other workers are inside solves.
+// Reported as ms/cancel; the issue asks for under 10 ms. GridModes shares
+// the polling (parallelWork and the solver's own).
+func BenchmarkCancelLatency(b *testing.B) {
+	cube := supercell(b, loadExample(b, "rocksalt-like"), conventionalCell)
+	for _, tc := range []struct {
+		name string
+		mult int
+	}{{"sites=64", 2}, {"sites=512", 4}} {
+		if tc.mult == 4 && os.Getenv("MODEGRID_BENCH_LARGE") == "" {
+			// One solve of 1536 modes with vectors takes about a minute.
+			continue
+		}
+		m := mustCompile(b, supercell(b, cube, [3][3]int{{tc.mult, 0, 0}, {0, tc.mult, 0}, {0, 0, tc.mult}}))
+		pts := []QPoint{{Q: [3]float64{0.1, 0.2, 0.3}}, {Q: [3]float64{0.3, 0.1, 0.2}}, {Q: [3]float64{0.2, 0.3, 0.1}}, {Q: [3]float64{0.4, 0.1, 0.3}}}
+		b.Run(tc.name, func(b *testing.B) {
+			var total time.Duration
+			for b.Loop() {
+				ctx, cancel := context.WithCancel(context.Background())
+				var t0 time.Time
+				err := m.StreamModes(ctx, pts, ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(ModeChunk) error {
+					if t0.IsZero() {
+						t0 = time.Now()
+						cancel()
+					}
+					return nil
+				})
+				total += time.Since(t0)
+				if err != context.Canceled {
+					b.Fatalf("err %v", err)
+				}
+			}
+			b.ReportMetric(float64(total.Microseconds())/1e3/float64(b.N), "ms/cancel")
+		})
+	}
+}

@@ -1,0 +1,324 @@
+package physics
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+)
+
+// ErrUnstable is wrapped by ComputeThermal when the grid has imaginary
+// modes and the caller did not allow them.
+var ErrUnstable = errors.New("physics: the model is dynamically unstable (imaginary modes)")
+
+// ThermalRoute selects how ComputeThermal takes its sums.
+type ThermalRoute int
+
+// Thermal routes. ModeSum is the zero value.
+const (
+	// ModeSum is the exact sum over the grid's modes with their weights.
+	ModeSum ThermalRoute = iota
+	// DOSIntegral integrates the tetrahedron DOS of the grid (2000 bins up
+	// to the highest mode, midpoint rule). Mean-square displacements are
+	// always mode sums.
+	DOSIntegral
+)
+
+func (r ThermalRoute) String() string {
+	switch r {
+	case ModeSum:
+		return "mode-sum"
+	case DOSIntegral:
+		return "dos-integral"
+	}
+	return fmt.Sprintf("ThermalRoute(%d)", int(r))
+}
+
+// ThermalOptions configures ComputeThermal.
+type ThermalOptions struct {
+	TempsK        []float64 // temperatures, K, each in [0, MaxTempK]
+	Route         ThermalRoute
+	AllowUnstable bool // exclude (and count) imaginary modes instead of failing
+	MSD           bool // mean-square displacements (the grid needs Eigvecs)
+}
+
+// SiteMSD is the mean-square displacement of one site.
+type SiteMSD struct {
+	U    [9]float64 // ⟨u uᵀ⟩, Å², row-major; rows and columns past p are 0
+	UIso float64    // ⟨u²⟩/3 = trace(U)/3, Å²
+	B    float64    // Debye–Waller B = 8π²⟨u²⟩/3, Å²
+}
+
+// ThermalPoint holds the harmonic thermodynamics of one cell at one
+// temperature. Per mole of cells: EVToKJPerMol, EVPerKToJPerMolK.
+type ThermalPoint struct {
+	TempK    float64
+	UeV      float64 // internal energy, zero-point included
+	FeV      float64 // Helmholtz free energy, zero-point included
+	SeVPerK  float64 // entropy
+	CveVPerK float64 // heat capacity at constant volume
+	// ThetaDK is the Debye temperature equivalent θ_D(T): the θ for which
+	// the Debye model of the crystal's dimensionality has the model's heat
+	// capacity per mode at T; 0 where undefined (T = 0).
+	ThetaDK float64
+	MSD     []SiteMSD // per site (MSD only)
+}
+
+// ThermalResult is ComputeThermal's answer.
+type ThermalResult struct {
+	Points []ThermalPoint // in the order of TempsK
+	ZPEeV  float64        // zero-point energy per cell, Σ hν/2
+	// ThetaElasticK is θ_D from the sound velocities in the elastic limit,
+	// 0 when undefined (p < d, or a zero or imaginary sound velocity).
+	ThetaElasticK float64
+	// ImaginaryExcluded counts the imaginary modes (q-point × branch) left
+	// out when AllowUnstable.
+	ImaginaryExcluded int
+	// ZeroExcluded counts the other modes left out: zero modes (|ν| within
+	// ZeroModeTol of the highest), the p acoustic modes at Γ when the grid
+	// holds Γ and any exactly flat zero branch, and negative frequencies
+	// too small to count as imaginary (within ImaginaryTolTHz).
+	ZeroExcluded int
+	// ModesPerCell is the weight of the modes summed: p·sites less the
+	// excluded modes' weights (for DOSIntegral, the integral of the DOS).
+	ModesPerCell float64
+}
+
+// Thermal limits.
+const (
+	MaxTempK        = 1e6     // highest temperature accepted
+	MaxTemperatures = 100_000 // most temperatures in one call
+	// dosRouteBins is the number of DOS bins the DOSIntegral route uses.
+	dosRouteBins = 2000
+)
+
+// ComputeThermal returns the harmonic thermal properties of model m from
+// its modes g at every temperature of opt.TempsK: U, F, S and Cv per cell
+// (U and F include the zero-point energy), θ_D(T), and with opt.MSD the
+// mean-square displacement tensor of every site (Maradudin, Montroll &
+// Weiss, Theory of Lattice Dynamics in the Harmonic Approximation, 1963;
+// Ashcroft & Mermin ch. 23; B. T. M. Willis & A. W. Pryor, Thermal
+// Vibrations in Crystallography, 1975, ch. 4):
+//
+//	U = Σ w hν (½ + n),  F = Σ w [hν/2 + kT ln(1 − e^(−x))],
+//	S = k Σ w [x n − ln(1 − e^(−x))],  Cv = k Σ w x² n (1 + n),
+//	⟨u uᵀ⟩_s = Σ w ħ/(2 m_s ω) (1 + 2n) Re(e_s e_s†),
+//
+// x = hν/kT, n = 1/(eˣ − 1), over every mode with weight w of its q-point.
+// Modes at or below zero (|ν| within ZeroModeTol of the highest) are left
+// out: they carry no energy and their entropy is not defined. Imaginary
+// modes (as counted by DOSResult.Imaginary) make it fail with an error wrapping ErrUnstable
+// unless opt.AllowUnstable, which leaves them out and counts them. For a
+// finite crystal (GridSpec.Finite) every quantity is the exact sum over its
+// allowed modes. Bad options give a *ValidationError naming the fields
+// ("temperatures_k[3]", "route").
+func ComputeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOptions) (*ThermalResult, error) {
+	return computeThermal(ctx, m, g, opt, evalAuto)
+}
+
+// evalMode forces the evaluation strategy (tests compare them).
+type evalMode int
+
+const (
+	evalAuto   evalMode = iota
+	evalDirect          // every mode at every temperature
+	evalTree            // frequency tree with Taylor series
+)
+
+func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOptions, mode evalMode) (*ThermalResult, error) {
+	if err := checkGridModes(m, g); err != nil {
+		return nil, err
+	}
+	if err := opt.validate(); err != nil {
+		return nil, err
+	}
+	if opt.MSD && len(g.Eigvecs) != len(g.FreqTHz)*g.NModes {
+		return nil, errors.New("physics: mean-square displacements need grid modes with eigenvectors (GridOptions.Eigenvectors)")
+	}
+	st := spectrumStats(g)
+	if st.imaginary > 0 && !opt.AllowUnstable {
+		return nil, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz); allow unstable models to leave them out",
+			ErrUnstable, st.imaginary, len(g.FreqTHz), st.minTHz)
+	}
+	res := &ThermalResult{ImaginaryExcluded: st.imaginary}
+	for _, f := range g.FreqTHz {
+		if f <= st.zeroTol {
+			res.ZeroExcluded++
+		}
+	}
+	res.ZeroExcluded -= st.imaginary
+
+	// The grid's modes: weights and, for MSD, the tensor channels.
+	grid := collectModes(m, g, st.zeroTol, opt.MSD)
+	thermo := grid
+	if opt.Route == DOSIntegral {
+		var err error
+		if thermo, err = dosModes(ctx, m, g, st); err != nil {
+			return nil, err
+		}
+	}
+	for i, f := range thermo.nu {
+		res.ZPEeV += thermo.ch[i*thermo.nc] * f * THzToEV / 2
+		res.ModesPerCell += thermo.ch[i*thermo.nc]
+	}
+
+	temps := opt.TempsK
+	sums, err := evalSums(ctx, thermo, temps, mode)
+	if err != nil {
+		return nil, err
+	}
+	msdSums := sums
+	if opt.MSD && thermo != grid {
+		// The DOS carries no eigenvectors: displacements stay mode sums.
+		if msdSums, err = evalSums(ctx, grid, temps, mode); err != nil {
+			return nil, err
+		}
+	}
+
+	kB := BoltzmannEVPerK
+	res.Points = make([]ThermalPoint, len(temps))
+	for i, tK := range temps {
+		s := sums[i]
+		p := ThermalPoint{TempK: tK, UeV: res.ZPEeV, FeV: res.ZPEeV}
+		if tK > 0 {
+			kappa := THzToKelvin / tK
+			p.UeV += THzToEV * s[0]
+			p.FeV += kB * tK * s[1]
+			p.SeVPerK = kB * (kappa*s[0] - s[1])
+			p.CveVPerK = kB * s[2]
+			if res.ModesPerCell > 0 {
+				p.ThetaDK = debyeTheta(m.Dim(), tK, s[2]/res.ModesPerCell)
+			}
+		}
+		if opt.MSD {
+			p.MSD = grid.assembleMSD(msdSums[i][3:])
+		}
+		res.Points[i] = p
+	}
+	res.ThetaElasticK = elasticDebyeTemperature(m)
+	return res, nil
+}
+
+// evalSums returns, for every temperature, the sums of directSums over the
+// modes of set (all zero at T = 0), spread over the cores by temperature.
+func evalSums(ctx context.Context, set *modeSet, temps []float64, mode evalMode) ([][]float64, error) {
+	var tree *modeTree
+	if len(set.nu) > 0 && (mode == evalTree || (mode == evalAuto && set.worthTree(len(temps)))) {
+		var err error
+		if tree, err = newModeTree(ctx, set); err != nil {
+			return nil, err
+		}
+	}
+	sums := make([][]float64, len(temps))
+	for i := range sums {
+		sums[i] = make([]float64, 2+set.nc)
+	}
+	const chunk = 4
+	err := forChunks(ctx, len(temps), chunk, chunkWorkers(len(temps), chunk), func(_, lo, hi int) {
+		var sc seriesScratch
+		for i := lo; i < hi; i++ {
+			if !(temps[i] > 0) {
+				continue
+			}
+			kappa := THzToKelvin / temps[i] // h/kT in 1/THz
+			if tree != nil {
+				tree.eval(kappa, sums[i], &sc)
+			} else {
+				directSums(kappa, set.nu, set.ch, set.nc, sums[i])
+			}
+		}
+	})
+	return sums, err
+}
+
+// validate checks the options alone, listing every violation.
+func (o ThermalOptions) validate() error {
+	var vs violations
+	switch {
+	case len(o.TempsK) == 0:
+		vs.add("temperatures_k", "at least one temperature is needed")
+	case len(o.TempsK) > MaxTemperatures:
+		vs.add("temperatures_k", "%d temperatures, more than the limit of %d", len(o.TempsK), MaxTemperatures)
+	}
+	for i, t := range o.TempsK {
+		if !finite(t) || t < 0 || t > MaxTempK {
+			vs.add(fmt.Sprintf("temperatures_k[%d]", i), "must be in [0, %g] K, got %v", MaxTempK, t)
+		}
+	}
+	if o.Route < ModeSum || o.Route > DOSIntegral {
+		vs.add("route", "unknown route %d", int(o.Route))
+	}
+	return vs.err()
+}
+
+// modeSet is a list of modes with positive frequency and per-mode weight
+// channels: channel 0 is the mode's weight per cell, channels 1… (MSD only)
+// the tensor weights A = w ħ/(2 m_s ω) Re(e_sα e_sβ*) in Å², site-major,
+// (α, β) over the p(p+1)/2 pairs α ≤ β. zero holds Σ A per channel, the
+// zero-point displacement.
+type modeSet struct {
+	nu   []float64 // THz, > 0
+	ch   []float64 // len(nu)*nc
+	nc   int
+	zero []float64 // nc − 1 channel totals (MSD only)
+
+	p, nsites int
+}
+
+// worthTree says whether the frequency tree beats summing every mode at
+// every temperature (it costs about one pass over the modes per channel to
+// build, then a few hundred series per temperature).
+func (s *modeSet) worthTree(ntemps int) bool {
+	return len(s.nu) >= 4096 && ntemps >= 4 && len(s.nu)*ntemps > 1<<20
+}
+
+// dosModes turns the tetrahedron DOS of g into pseudo-modes for the
+// DOSIntegral route: dosRouteBins bins of width h from 0 to just above the
+// highest mode, each a mode at its centre (i + ½)h carrying the states of
+// the bin (midpoint rule). Imaginary states are cut off as in ComputeDOS.
+func dosModes(ctx context.Context, m *Model, g *GridModes, st spectrum) (*modeSet, error) {
+	top := st.maxTHz
+	set := &modeSet{nc: 1, p: g.P, nsites: g.NSites}
+	if !(top > 0) {
+		return set, nil
+	}
+	h := top / dosRouteBins * (1 + 1e-9)
+	d, err := ComputeDOS(ctx, m, g, DOSOptions{Min: h / 2, Max: h / 2 * (2*dosRouteBins - 1), Step: h})
+	if err != nil {
+		return nil, err
+	}
+	for i, f := range d.Freq {
+		if w := d.DOS[i] * h; w > 0 {
+			set.nu = append(set.nu, f)
+			set.ch = append(set.ch, w)
+		}
+	}
+	return set, nil
+}
+
+// directSums adds, for every mode, the temperature-dependent sums at κ =
+// h/kT (1/THz): out[0] += w ν n, out[1] += w ln(1 − e^(−x)), out[2] += w x²
+// n(1+n), out[2+c] += A_c n for the channels c ≥ 1; x = κν, n = 1/(eˣ−1).
+func directSums(kappa float64, nu, ch []float64, nc int, out []float64) {
+	for i, f := range nu {
+		x := kappa * f
+		if x > 745 { // e^(−x) underflows: the mode is frozen out
+			continue
+		}
+		n := 1 / math.Expm1(x)
+		var l float64
+		if x > math.Ln2 {
+			l = math.Log1p(-math.Exp(-x))
+		} else {
+			l = math.Log(-math.Expm1(-x))
+		}
+		row := ch[i*nc : i*nc+nc]
+		w := row[0]
+		out[0] += w * f * n
+		out[1] += w * l
+		out[2] += w * x * x * n * (1 + n)
+		for c := 1; c < nc; c++ {
+			out[2+c] += row[c] * n
+		}
+	}
+}

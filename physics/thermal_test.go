@@ -1,0 +1,468 @@
+package physics
+
+import (
+	"context"
+	"errors"
+	"math"
+	"slices"
+	"testing"
+)
+
+func mustThermal(t testing.TB, m *Model, g *GridModes, opt ThermalOptions) *ThermalResult {
+	t.Helper()
+	r, err := ComputeThermal(specCtx(t), m, g, opt)
+	if err != nil {
+		t.Fatalf("ComputeThermal: %v", err)
+	}
+	return r
+}
+
+func relDiff(a, b float64) float64 {
+	if a == b {
+		return 0
+	}
+	return math.Abs(a-b) / math.Max(math.Abs(a), math.Abs(b))
+}
+
+// einsteinCrystal is one site of mass 40 amu tied to its lattice point by
+// an on-site block k·1 (k = 1 eV/Å², no springs, sum rule not enforced):
+// every mode at every q is the Einstein oscillator ω² = k/m.
+func einsteinCrystal() *Crystal {
+	return &Crystal{
+		Name: "einstein", Lattice: [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}},
+		Sites:  []Site{{Label: "E", MassAmu: 40, Frac: []float64{0, 0, 0}}},
+		Blocks: []Block{{From: 0, To: 0, Cell: []int{0, 0, 0}, Phi: []float64{1, 0, 0, 0, 1, 0, 0, 0, 1}}},
+	}
+}
+
+var einsteinNuTHz = math.Sqrt(1.0/40) * NuUnitTHz
+
+// TestEinsteinFunctions: the per-mode sums against the closed forms at
+// x = hν/kT (REFERENCE-VALUES Einstein table, computed from C/k =
+// x²eˣ/(eˣ−1)², U_th/kT = x/(eˣ−1), S/k = x/(eˣ−1) − ln(1−e⁻ˣ)), to the
+// table's 9 digits.
+func TestEinsteinFunctions(t *testing.T) {
+	for _, tc := range []struct{ x, c, u, s float64 }{
+		{0.5, 0.979424522, 0.770747041, 1.703499171},
+		{1, 0.920673594, 0.581976707, 1.040651852},
+		{2, 0.724061661, 0.313035285, 0.458448743},
+		{5, 0.170741822, 0.033918275, 0.040679024},
+		{10, 0.004540405, 0.000454020, 0.000499421},
+	} {
+		out := make([]float64, 3)
+		directSums(1, []float64{tc.x}, []float64{1}, 1, out) // κ = 1, ν = x
+		if got := out[2]; math.Abs(got-tc.c) > 1e-9 {
+			t.Errorf("x=%g: C/k = %.10f; want %.9f", tc.x, got, tc.c)
+		}
+		if got := out[0]; math.Abs(got-tc.u) > 1e-9 {
+			t.Errorf("x=%g: U/kT = %.10f; want %.9f", tc.x, got, tc.u)
+		}
+		if got := out[0] - out[1]; math.Abs(got-tc.s) > 1e-9 {
+			t.Errorf("x=%g: S/k = %.10f; want %.9f", tc.x, got, tc.s)
+		}
+	}
+}
+
+// TestEinsteinCrystal: a crystal of independent Einstein oscillators has,
+// per cell, U = 3hν(½ + n), S and Cv three times the Einstein functions
+// (Einstein 1907; Kittel ch. 5) and ZPE = 3hν/2, on any grid.
+func TestEinsteinCrystal(t *testing.T) {
+	m := mustCompile(t, einsteinCrystal())
+	g := modesOn(t, m, GridSpec{Mesh: [3]int{3, 3, 3}}, GridOptions{})
+	thetaE := einsteinNuTHz * THzToKelvin
+	xs := []float64{0.5, 1, 2, 5, 10}
+	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // REFERENCE-VALUES Einstein table
+	var temps []float64
+	for _, x := range xs {
+		temps = append(temps, thetaE/x)
+	}
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
+	if r.ZeroExcluded != 0 || math.Abs(r.ModesPerCell-3) > 1e-12 {
+		t.Errorf("excluded %d zero modes, %v modes per cell; want 0 and 3", r.ZeroExcluded, r.ModesPerCell)
+	}
+	if want := 3 * einsteinNuTHz * THzToEV / 2; relDiff(r.ZPEeV, want) > 1e-12 {
+		t.Errorf("ZPE %.12g eV; want 3hν/2 = %.12g", r.ZPEeV, want)
+	}
+	for i, p := range r.Points {
+		if got := p.CveVPerK / BoltzmannEVPerK / 3; math.Abs(got-cs[i]) > 1e-9 {
+			t.Errorf("x=%g: Cv/3k = %.10f; want %.9f", xs[i], got, cs[i])
+		}
+		x := xs[i]
+		wantU := 3 * einsteinNuTHz * THzToEV * (0.5 + 1/math.Expm1(x))
+		if relDiff(p.UeV, wantU) > 1e-12 {
+			t.Errorf("x=%g: U = %.12g eV; want %.12g", x, p.UeV, wantU)
+		}
+	}
+}
+
+// TestDulongPetit: at high T the heat capacity tends to k per mode, 3R per
+// site per mole for p = 3 (Dulong–Petit; R = 24.94338785/3 J/(mol·K),
+// CODATA 2018 via REFERENCE-VALUES), approached as C/(Nk) = 1 − ⟨x²⟩/12 +
+// ⟨x⁴⟩/240 (REFERENCE-VALUES high-T series). For the fcc example the zone
+// average ⟨ω²⟩ = 4K/M exactly on any Γ-centred grid of N ≥ 2 per direction
+// (REFERENCE-VALUES, from the trace of the nearest-neighbour dynamical
+// matrix), which fixes the first correction independently of the modes.
+func TestDulongPetit(t *testing.T) {
+	m, g := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{8, 8, 8}}, GridOptions{})
+	const k, mass = 1.2, 60.0 // proto/examples/fcc.json
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e4, 1e6}})
+	perMole := EVPerKToJPerMolK(r.Points[1].CveVPerK) / r.ModesPerCell * 3 // per site, p = 3
+	if math.Abs(perMole-24.94338785) > 1e-6*24.94338785 {
+		t.Errorf("Cv at 10⁶ K = %.8f J/(mol·K) per site; want 3R = 24.94338785", perMole)
+	}
+	// ⟨x²⟩ over the summed modes: Σ w ν² = 3·4K/M·ν_unit², spread over
+	// ModesPerCell (the three Γ zero modes carry no ν²).
+	nu2 := 3 * 4 * k / mass * NuUnitTHz * NuUnitTHz / r.ModesPerCell
+	x2 := nu2 * math.Pow(THzToKelvin/1e4, 2)
+	deficit := 1 - r.Points[0].CveVPerK/BoltzmannEVPerK/r.ModesPerCell
+	if relDiff(deficit, x2/12) > 1e-3 { // the ⟨x⁴⟩/240 term is ~1e-4 of ⟨x²⟩/12 here
+		t.Errorf("1 − C/Nk at 10⁴ K = %.6g; want ⟨x²⟩/12 = %.6g", deficit, x2/12)
+	}
+}
+
+// TestLowTExponents: Cv ∝ T^d at low T (Debye; Kittel ch. 5, Ashcroft &
+// Mermin ch. 23), the exponent fitted from two temperatures a factor 2
+// apart. 1D and 2D use the exact mode sum on grids fine enough that the
+// lowest grid frequency lies well below kT/h; in 3D no affordable grid is,
+// so the DOS-integral route is used, whose tetrahedron DOS below the first
+// grid shell is ∝ ν² (the cubic state count of tetrahedra touching Γ, as
+// for linear acoustic dispersion). Tolerances: 1 %, 2.5 %, 1 %.
+func TestLowTExponents(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		mesh  [3]int
+		route ThermalRoute
+		t1    float64
+		want  float64
+		tol   float64
+	}{
+		{"chain", [3]int{100000}, ModeSum, 1, 1, 0.01},
+		{"square-net", [3]int{256, 256}, ModeSum, 4, 2, 0.05},
+		{"fcc", [3]int{24, 24, 24}, DOSIntegral, 1, 3, 0.03},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{})
+			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{tc.t1, 2 * tc.t1}, Route: tc.route})
+			exp := math.Log2(r.Points[1].CveVPerK / r.Points[0].CveVPerK)
+			if math.Abs(exp-tc.want) > tc.tol {
+				t.Errorf("Cv exponent %.4f between %g and %g K; want %g ± %g", exp, tc.t1, 2*tc.t1, tc.want, tc.tol)
+			}
+			// Below the dispersive region θ_D(T) tends to the elastic θ_D
+			// (Kittel ch. 5), to 1 % where the mode sum resolves it.
+			if tc.route == ModeSum {
+				if got, want := r.Points[0].ThetaDK, r.ThetaElasticK; relDiff(got, want) > 0.01 {
+					t.Errorf("θ_D(%g K) = %.2f K; elastic θ_D %.2f K", tc.t1, got, want)
+				}
+			}
+		})
+	}
+}
+
+// TestThermodynamicConsistency: F = U − TS, S = −∂F/∂T and Cv = ∂U/∂T
+// (central differences at steps h = 1e-3 T and h/2, Richardson-extrapolated:
+// error ~ (h/T)⁴x⁴ ≤ 1e-6 for x = hν/kT ≤ 30, plus the rounding of U
+// and F over the step), S ≥ 0 and Cv ≥ 0 (Callen,
+// Thermodynamics, ch. 5 and 8; common practice).
+func TestThermodynamicConsistency(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		mesh [3]int
+	}{
+		{"diatomic-chain", [3]int{64}},
+		{"square-net", [3]int{16, 16}},
+		{"fcc", [3]int{8, 8, 8}},
+		{"rocksalt-like", [3]int{6, 6, 6}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{})
+			for _, temp := range []float64{5, 50, 300, 2000} {
+				h := 1e-3 * temp
+				r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{temp - h, temp - h/2, temp, temp + h/2, temp + h}})
+				pt := r.Points
+				p := pt[2]
+				deriv := func(f func(ThermalPoint) float64) float64 {
+					d1 := (f(pt[4]) - f(pt[0])) / (2 * h)
+					d2 := (f(pt[3]) - f(pt[1])) / h
+					return (4*d2 - d1) / 3
+				}
+				if d := math.Abs(p.FeV - (p.UeV - temp*p.SeVPerK)); d > 1e-12*math.Abs(p.UeV) {
+					t.Errorf("T=%g: F − (U − TS) = %.3g eV", temp, d)
+				}
+				// Rounding of U and F (which hold the zero-point energy) limits
+				// the differences at low T: add 4ε|U|/h to the tolerance.
+				round := 4 * 2.2e-16 * math.Abs(p.UeV) / h
+				if s := -deriv(func(p ThermalPoint) float64 { return p.FeV }); math.Abs(s-p.SeVPerK) > 1e-6*p.SeVPerK+round {
+					t.Errorf("T=%g: −∂F/∂T = %.9g; S = %.9g eV/K", temp, s, p.SeVPerK)
+				}
+				if c := deriv(func(p ThermalPoint) float64 { return p.UeV }); math.Abs(c-p.CveVPerK) > 1e-6*p.CveVPerK+round {
+					t.Errorf("T=%g: ∂U/∂T = %.9g; Cv = %.9g eV/K", temp, c, p.CveVPerK)
+				}
+				if p.SeVPerK < 0 || p.CveVPerK < 0 {
+					t.Errorf("T=%g: S = %g, Cv = %g; want ≥ 0", temp, p.SeVPerK, p.CveVPerK)
+				}
+			}
+		})
+	}
+}
+
+// TestModeSumVsDOSIntegral: the exact mode sum and the integral over the
+// tetrahedron DOS of the same 24³ grid agree (they sample the same
+// spectrum; common practice) to 2e-3 for T ≥ 100 K (measured ≤ 7.3e-4, the
+// entropy at 100 K; the zero-point energy to 1e-8).
+func TestModeSumVsDOSIntegral(t *testing.T) {
+	m, g := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{24, 24, 24}}, GridOptions{})
+	temps := []float64{100, 300, 1000}
+	a := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
+	b := mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: DOSIntegral})
+	if relDiff(a.ZPEeV, b.ZPEeV) > 1e-6 {
+		t.Errorf("ZPE: mode sum %.8g, DOS %.8g eV", a.ZPEeV, b.ZPEeV)
+	}
+	for i, temp := range temps {
+		p, q := a.Points[i], b.Points[i]
+		for _, c := range []struct {
+			name string
+			x, y float64
+		}{{"U", p.UeV, q.UeV}, {"F", p.FeV, q.FeV}, {"S", p.SeVPerK, q.SeVPerK}, {"Cv", p.CveVPerK, q.CveVPerK}} {
+			if relDiff(c.x, c.y) > 2e-3 {
+				t.Errorf("T=%g %s: mode sum %.8g, DOS integral %.8g", temp, c.name, c.x, c.y)
+			}
+		}
+	}
+}
+
+// TestThermalWeights: the q-point weights of a grid sum to 1 (common
+// practice); a Γ-centred grid leaves out exactly the p zero modes at Γ,
+// weight p/N, and a shifted grid (no Γ) none.
+func TestThermalWeights(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		spec  GridSpec
+		zeros int
+	}{
+		{"rocksalt-like", GridSpec{Mesh: [3]int{5, 5, 5}}, 3},
+		{"rocksalt-like", GridSpec{Mesh: [3]int{4, 4, 4}, Shifted: true}, 0},
+		{"square-net", GridSpec{Mesh: [3]int{7, 7}, Finite: true}, 2},
+		{"diatomic-chain", GridSpec{Mesh: [3]int{9}}, 1},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, g := exampleGrid(t, tc.name, tc.spec, GridOptions{})
+			sum := 0.0
+			for _, p := range g.Points {
+				sum += p.Weight
+			}
+			if math.Abs(sum-1) > 1e-12 {
+				t.Errorf("Σ weights = %.15f; want 1", sum)
+			}
+			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}})
+			n := float64(g.Spec.Count())
+			if r.ZeroExcluded != tc.zeros {
+				t.Errorf("excluded %d zero modes; want %d", r.ZeroExcluded, tc.zeros)
+			}
+			if want := float64(m.Modes()) - float64(tc.zeros)/n; math.Abs(r.ModesPerCell-want) > 1e-12 {
+				t.Errorf("modes per cell %.15g; want %.15g", r.ModesPerCell, want)
+			}
+		})
+	}
+}
+
+// TestZeroKelvin: at T = 0, U = F = the zero-point energy, S = Cv = 0 and
+// θ_D is undefined (0); just above, the values join continuously (common
+// practice: the limits of the Bose–Einstein sums).
+func TestZeroKelvin(t *testing.T) {
+	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 0.01}, MSD: true})
+	z, near := r.Points[0], r.Points[1]
+	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 || z.ThetaDK != 0 {
+		t.Errorf("T=0: %+v; want U = F = ZPE %g, S = Cv = θ = 0", z, r.ZPEeV)
+	}
+	if relDiff(near.UeV, z.UeV) > 1e-12 || relDiff(near.FeV, z.FeV) > 1e-12 || near.SeVPerK > 1e-20 {
+		t.Errorf("T=0.01 K: U %g, F %g, S %g; not at the T=0 limit", near.UeV, near.FeV, near.SeVPerK)
+	}
+	for s := range z.MSD {
+		if relDiff(near.MSD[s].UIso, z.MSD[s].UIso) > 1e-12 || !(z.MSD[s].UIso > 0) {
+			t.Errorf("site %d: zero-point ⟨u²⟩/3 = %g, at 0.01 K %g", s, z.MSD[s].UIso, near.MSD[s].UIso)
+		}
+	}
+}
+
+// TestUnstable: imaginary modes make ComputeThermal fail with ErrUnstable
+// unless allowed; allowed, they are left out and counted.
+func TestUnstable(t *testing.T) {
+	m := mustCompile(t, unstableChain())
+	g := modesOn(t, m, GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	_, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{300}})
+	if !errors.Is(err, ErrUnstable) {
+		t.Fatalf("got %v; want an error wrapping ErrUnstable", err)
+	}
+	imag := spectrumStats(g).imaginary
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, AllowUnstable: true})
+	if r.ImaginaryExcluded != imag || imag == 0 {
+		t.Errorf("ImaginaryExcluded = %d; want %d (> 0)", r.ImaginaryExcluded, imag)
+	}
+	if p := r.Points[0]; !finite(p.UeV) || !finite(p.SeVPerK) || p.CveVPerK <= 0 {
+		t.Errorf("allowed unstable model: %+v", p)
+	}
+}
+
+// TestFiniteCrystal: a ring of 10 cells is summed exactly over its ten
+// allowed modes ν_n = ν_max |sin(πn/10)|, n = −4…5, less the zero mode
+// (allowed wavevectors: common practice; dispersion: Kittel ch. 4), and at
+// low T it falls far below the bulk, which has modes down to ν → 0.
+func TestFiniteCrystal(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{10}, Finite: true}, GridOptions{})
+	temps := []float64{5, 30, 300}
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
+	for i, temp := range temps {
+		cv, u := 0.0, 0.0
+		for n := -4; n <= 5; n++ {
+			if n == 0 {
+				continue
+			}
+			nu := chainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/10))
+			x := nu * THzToKelvin / temp
+			cv += x * x * math.Exp(x) / (math.Expm1(x) * math.Expm1(x)) / 10
+			u += nu * THzToEV * (0.5 + 1/math.Expm1(x)) / 10
+		}
+		if got := r.Points[i].CveVPerK / BoltzmannEVPerK; relDiff(got, cv) > 1e-12 {
+			t.Errorf("T=%g: Cv/k = %.15g; exact sum %.15g", temp, got, cv)
+		}
+		if relDiff(r.Points[i].UeV, u) > 1e-12 {
+			t.Errorf("T=%g: U = %.15g; exact sum %.15g", temp, r.Points[i].UeV, u)
+		}
+	}
+	_, bulkG := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{10000}}, GridOptions{})
+	bulk := mustThermal(t, m, bulkG, ThermalOptions{TempsK: temps[:1]})
+	if !(r.Points[0].CveVPerK < 0.5*bulk.Points[0].CveVPerK) {
+		t.Errorf("Cv at 5 K: 10-cell ring %g, bulk %g; want the ring far below", r.Points[0].CveVPerK, bulk.Points[0].CveVPerK)
+	}
+}
+
+// TestSeriesMatchesDirect: the frequency tree with Taylor series gives the
+// exact mode sums to 1e-11 relative from 0.01 K to 10⁵ K (its truncation
+// bound is ~1e-15, see thermal_series.go), with mean-square displacements.
+func TestSeriesMatchesDirect(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		mesh [3]int
+	}{
+		{"rocksalt-like", [3]int{12, 12, 12}},
+		{"chain", [3]int{20000}},
+		{"square-net", [3]int{64, 64}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Eigenvectors: true})
+			var temps []float64
+			for e := -2.0; e <= 5; e += 0.1 {
+				temps = append(temps, math.Pow(10, e))
+			}
+			opt := ThermalOptions{TempsK: temps, MSD: true}
+			d, err := computeThermal(specCtx(t), m, g, opt, evalDirect)
+			if err != nil {
+				t.Fatal(err)
+			}
+			s, err := computeThermal(specCtx(t), m, g, opt, evalTree)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for i, temp := range temps {
+				p, q := d.Points[i], s.Points[i]
+				for _, c := range []struct {
+					name string
+					x, y float64
+				}{
+					{"U − ZPE", p.UeV - d.ZPEeV, q.UeV - s.ZPEeV},
+					{"F − ZPE", p.FeV - d.ZPEeV, q.FeV - s.ZPEeV},
+					{"S", p.SeVPerK, q.SeVPerK},
+					{"Cv", p.CveVPerK, q.CveVPerK},
+					{"MSD", p.MSD[0].U[0], q.MSD[0].U[0]},
+				} {
+					if relDiff(c.x, c.y) > 1e-11 {
+						t.Errorf("T=%.4g K %s: direct %.15g, series %.15g", temp, c.name, c.x, c.y)
+					}
+				}
+			}
+		})
+	}
+}
+
+// TestPerMole: 1 eV per cell is e·N_A = 96.48533212 kJ per mole of cells
+// (the Faraday constant, CODATA 2018: e and N_A exact).
+func TestPerMole(t *testing.T) {
+	if got := EVToKJPerMol(1); math.Abs(got-96.48533212) > 1e-8 {
+		t.Errorf("EVToKJPerMol(1) = %.10f; want 96.48533212", got)
+	}
+	if got := EVPerKToJPerMolK(BoltzmannEVPerK); math.Abs(got-8.314462618) > 1e-9 {
+		t.Errorf("k_B per mole = %.10f J/(mol·K); want R = 8.314462618", got)
+	}
+}
+
+// TestThermalValidation: bad options are refused with every violation
+// named by its field; MSD needs eigenvectors.
+func TestThermalValidation(t *testing.T) {
+	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	for _, tc := range []struct {
+		name   string
+		opt    ThermalOptions
+		fields []string
+	}{
+		{"no temperatures", ThermalOptions{}, []string{"temperatures_k"}},
+		{"bad temperatures", ThermalOptions{TempsK: []float64{300, -1, math.NaN(), 2e6}},
+			[]string{"temperatures_k[1]", "temperatures_k[2]", "temperatures_k[3]"}},
+		{"route", ThermalOptions{TempsK: []float64{1}, Route: 9}, []string{"route"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := ComputeThermal(specCtx(t), m, g, tc.opt)
+			var ve *ValidationError
+			if !errors.As(err, &ve) {
+				t.Fatalf("got %v; want a *ValidationError", err)
+			}
+			var got []string
+			for _, v := range ve.Violations {
+				got = append(got, v.Field)
+			}
+			if !slices.Equal(got, tc.fields) {
+				t.Errorf("fields %v; want %v", got, tc.fields)
+			}
+		})
+	}
+	if _, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{1}, MSD: true}); err == nil {
+		t.Error("MSD without eigenvectors: no error")
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := ComputeThermal(ctx, m, g, ThermalOptions{TempsK: []float64{300}}); !errors.Is(err, context.Canceled) {
+		t.Errorf("cancelled context: got %v; want context.Canceled", err)
+	}
+}
+
+// TestGammaAcousticNotImaginary: a block model whose on-site term misses
+// the acoustic sum rule by 1e-5 has a slightly negative acoustic mode at Γ
+// and nowhere else on a 100-point ring. Like Model.Stability, the DOS and
+// the thermal sums do not count it imaginary: it is left out as a zero
+// mode, and the model is not unstable (ω²(q) = (2(1−1e-5) − 2 cos q)/M for
+// neighbour blocks −1 eV/Å²: Born–von Kármán chain, Kittel ch. 4).
+func TestGammaAcousticNotImaginary(t *testing.T) {
+	c := &Crystal{
+		Name: "near-sum-rule", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
+		Sites: []Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Blocks: []Block{
+			{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-1, 0, 0, 0, -1, 0, 0, 0, -1}},
+			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{2 * (1 - 1e-5), 0, 0, 0, 2, 0, 0, 0, 2}},
+		},
+	}
+	m := mustCompile(t, c)
+	g := modesOn(t, m, GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	if g.FreqTHz[0] >= -ImaginaryTolTHz {
+		t.Fatalf("Γ mode %g THz is not below −ImaginaryTolTHz; the test needs it to be", g.FreqTHz[0])
+	}
+	if _, _, stable, err := m.Stability(specCtx(t), 100); err != nil || !stable {
+		t.Fatalf("Stability: stable = %v, err = %v; the reference classification must be stable", stable, err)
+	}
+	if d := mustDOS(t, m, g, DOSOptions{}); d.Imaginary != 0 {
+		t.Errorf("DOS counts %d imaginary modes; want 0", d.Imaginary)
+	}
+	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}})
+	if r.ImaginaryExcluded != 0 || r.ZeroExcluded != 1 {
+		t.Errorf("excluded %d imaginary, %d zero modes; want 0 and 1", r.ImaginaryExcluded, r.ZeroExcluded)
+	}
+}

@@ -1,0 +1,136 @@
+package server
+
+import (
+	"bufio"
+	"context"
+	"net"
+	"os"
+	"os/exec"
+	"strconv"
+	"strings"
+	"testing"
+
+	"google.golang.org/protobuf/proto"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+	"github.com/materials-lab/modegrid/server/cache"
+)
+
+const redisServerBin = "/usr/bin/redis-server"
+
+// startRedis runs a real redis-server on a free loopback port, without
+// persistence, until the test ends; it returns its address.
+func startRedis(t *testing.T) string {
+	t.Helper()
+	if _, err := os.Stat(redisServerBin); err != nil {
+		t.Skipf("%s not installed (the CI installs it): %v", redisServerBin, err)
+	}
+	lis, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	port := lis.Addr().(*net.TCPAddr).Port
+	lis.Close()
+	ctx, cancel := context.WithCancel(context.Background())
+	cmd := exec.CommandContext(ctx, redisServerBin, "--port", strconv.Itoa(port), "--bind", "127.0.0.1",
+		"--save", "", "--appendonly", "no", "--daemonize", "no", "--dir", t.TempDir())
+	out, err := cmd.StdoutPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { cancel(); cmd.Wait() })
+	sc := bufio.NewScanner(out)
+	for sc.Scan() {
+		if strings.Contains(sc.Text(), "Ready to accept connections") {
+			go func() {
+				for sc.Scan() {
+				}
+			}()
+			return "127.0.0.1:" + strconv.Itoa(port)
+		}
+	}
+	t.Fatalf("redis-server exited before it was ready: %v", sc.Err())
+	return ""
+}
+
+// TestRedisBackendSharedByReplicas: two replicas share a real Redis. What
+// one computed the other answers from the backend, and a model sent to one
+// is referable by hash on the other.
+func TestRedisBackendSharedByReplicas(t *testing.T) {
+	addr := startRedis(t)
+	replica := func() *testServer {
+		r := cache.NewRedis(cache.RedisOptions{Addr: addr})
+		t.Cleanup(func() { r.Close() })
+		return startServer(t, Config{Backend: r})
+	}
+	a, b := replica(), replica()
+	ctx := testContext(t)
+	req := &modegridv1.ComputeDosRequest{Model: inline(example(t, "square-net")), Qpoints: mpGrid(false, 12, 12)}
+	want, err := a.api.ComputeDos(ctx, req)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := b.api.ComputeDos(ctx, &modegridv1.ComputeDosRequest{Model: byHash(want.GetModelHash()), Qpoints: mpGrid(false, 12, 12)})
+	if err != nil {
+		t.Fatalf("replica b, model by hash: %v", err)
+	}
+	if !proto.Equal(got, want) {
+		t.Error("replica b answered differently")
+	}
+	reg := b.srv.Registry()
+	if n := metric(t, reg, "modegrid_cache_hits_total", map[string]string{"kind": kindModel, "level": "backend"}); n != 1 {
+		t.Errorf("b: model backend hits %v; want 1", n)
+	}
+	if n := metric(t, reg, "modegrid_cache_hits_total", map[string]string{"kind": kindDOS, "level": "backend"}); n != 1 {
+		t.Errorf("b: DOS backend hits %v; want 1", n)
+	}
+	if n := metric(t, reg, "modegrid_computations_total", map[string]string{"kind": kindDOS}); n != 0 {
+		t.Errorf("b computed the DOS %v times; want 0", n)
+	}
+}
+
+// TestBackendDownNeverFails: with Redis unreachable every request is
+// computed and answered; the failures are counted.
+func TestBackendDownNeverFails(t *testing.T) {
+	lis, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dead := lis.Addr().String()
+	lis.Close() // nothing listens here now
+	r := cache.NewRedis(cache.RedisOptions{Addr: dead})
+	t.Cleanup(func() { r.Close() })
+	ts := startServer(t, Config{Backend: r})
+	ctx := testContext(t)
+	for range 2 {
+		if _, err := ts.api.ComputeDos(ctx, &modegridv1.ComputeDosRequest{Model: inline(example(t, "chain")), Qpoints: mpGrid(false, 64)}); err != nil {
+			t.Fatalf("with the backend down: %v", err)
+		}
+	}
+	if n := metric(t, ts.srv.Registry(), "modegrid_cache_backend_errors_total", map[string]string{"kind": kindDOS}); n < 1 {
+		t.Errorf("DOS backend errors %v; want ≥ 1", n)
+	}
+	if n := metric(t, ts.srv.Registry(), "modegrid_cache_hits_total", map[string]string{"kind": kindDOS, "level": "memory"}); n != 1 {
+		t.Errorf("DOS memory hits %v; want 1 (the second request)", n)
+	}
+}
+
+// TestBackendSkipsLargeValues: a result over the backend's per-entry cap
+// stays in memory only and is counted.
+func TestBackendSkipsLargeValues(t *testing.T) {
+	r := cache.NewRedis(cache.RedisOptions{Addr: startRedis(t), MaxEntryBytes: 100})
+	t.Cleanup(func() { r.Close() })
+	ts := startServer(t, Config{Backend: r})
+	if _, err := ts.api.ComputeDos(testContext(t), &modegridv1.ComputeDosRequest{Model: inline(example(t, "chain")), Qpoints: mpGrid(false, 32)}); err != nil {
+		t.Fatal(err)
+	}
+	if n := metric(t, ts.srv.Registry(), "modegrid_cache_backend_skipped_total", nil); n < 1 {
+		t.Errorf("skipped %v; want ≥ 1 (a 500-sample DOS is over 100 bytes)", n)
+	}
+	if n := metric(t, ts.srv.Registry(), "modegrid_cache_backend_errors_total", map[string]string{"kind": kindDOS}); n != 0 {
+		t.Errorf("backend errors %v; want 0 (skipping is not an error)", n)
+	}
+}

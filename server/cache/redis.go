@@ -1,0 +1,160 @@
+package cache
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"sync/atomic"
+	"time"
+
+	"github.com/redis/go-redis/v9"
+	"github.com/redis/go-redis/v9/maintnotifications"
+)
+
+// Defaults applied by NewRedis to zero fields of RedisOptions.
+const (
+	// DefaultRedisTTL is how long an entry lives in Redis. Results never go
+	// stale (a model hash and its parameters fix the answer), so the TTL only
+	// bounds the memory a shared Redis spends on models nobody asks for.
+	DefaultRedisTTL = 24 * time.Hour
+	// DefaultRedisMaxEntryBytes is the largest value stored; larger results
+	// (dense grids with eigenvectors) stay in the in-memory LRU only.
+	DefaultRedisMaxEntryBytes = 4 << 20
+	// DefaultRedisTimeout bounds every Redis operation, dial included. A
+	// loopback or in-cluster round trip takes well under a millisecond, so
+	// 100 ms is ample for a healthy Redis and short against a computation.
+	DefaultRedisTimeout = 100 * time.Millisecond
+	// RedisKeyPrefix is put in front of every key so that modegrid can share
+	// a Redis with other programs.
+	RedisKeyPrefix = "modegrid:"
+)
+
+// RedisOptions configure a Redis backend. The zero value is usable: every
+// zero field takes its default.
+type RedisOptions struct {
+	// Addr is the Redis server, host:port (empty: 127.0.0.1:6379).
+	Addr string
+	// TTL is the lifetime of each stored entry (0: DefaultRedisTTL).
+	TTL time.Duration
+	// MaxEntryBytes is the size cap per entry, bytes; Set skips larger
+	// values (0: DefaultRedisMaxEntryBytes).
+	MaxEntryBytes int
+	// Timeout bounds each Get or Set, including dialling (0:
+	// DefaultRedisTimeout).
+	Timeout time.Duration
+}
+
+// Redis is a Backend that keeps entries in a Redis server shared by several
+// modegridd replicas. It never blocks a request for long: every operation
+// is bounded by the configured timeout, commands are not retried, and after
+// repeated dial failures go-redis's pool fails fast (probing the server in
+// the background once a second) until Redis is back. Errors are returned to
+// the caller, which counts them and computes instead. Safe for concurrent
+// use.
+type Redis struct {
+	rdb     *redis.Client
+	ttl     time.Duration
+	maxSize int
+	timeout time.Duration
+	skipped atomic.Uint64 // values not stored because they exceeded maxSize
+}
+
+// NewRedis returns a Redis backend for opt. It does not connect: the first
+// operation dials, so a replica starts even while Redis is down.
+func NewRedis(opt RedisOptions) *Redis {
+	if opt.Addr == "" {
+		opt.Addr = "127.0.0.1:6379"
+	}
+	if opt.TTL <= 0 {
+		opt.TTL = DefaultRedisTTL
+	}
+	if opt.MaxEntryBytes <= 0 {
+		opt.MaxEntryBytes = DefaultRedisMaxEntryBytes
+	}
+	if opt.Timeout <= 0 {
+		opt.Timeout = DefaultRedisTimeout
+	}
+	rdb := redis.NewClient(&redis.Options{
+		Addr:                  opt.Addr,
+		DialTimeout:           opt.Timeout,
+		ReadTimeout:           opt.Timeout,
+		WriteTimeout:          opt.Timeout,
+		PoolTimeout:           opt.Timeout,
+		ContextTimeoutEnabled: true,
+		// One dial attempt and no command retries: a cache that is not
+		// answering is skipped, not waited for.
+		DialerRetries: 1,
+		MaxRetries:    -1,
+		// No identity handshake (CLIENT SETINFO) and no maintenance
+		// notifications: fewer round trips on each new connection, and
+		// nothing a plain Redis 7.0 server refuses.
+		DisableIdentity:          true,
+		MaintNotificationsConfig: &maintnotifications.Config{Mode: maintnotifications.ModeDisabled},
+	})
+	return &Redis{rdb: rdb, ttl: opt.TTL, maxSize: opt.MaxEntryBytes, timeout: opt.Timeout}
+}
+
+// Get returns the value stored under key. A missing key is (nil, false,
+// nil); an unreachable, slow or failing Redis is an error.
+func (r *Redis) Get(ctx context.Context, key string) ([]byte, bool, error) {
+	ctx, cancel := context.WithTimeout(ctx, r.timeout)
+	defer cancel()
+	b, err := r.rdb.Get(ctx, RedisKeyPrefix+key).Bytes()
+	if errors.Is(err, redis.Nil) {
+		return nil, false, nil
+	}
+	if err != nil {
+		return nil, false, fmt.Errorf("redis get: %w", err)
+	}
+	return b, true, nil
+}
+
+// Set stores value under key with the configured TTL. A value larger than
+// the size cap is skipped (not an error: the in-memory cache still holds
+// it); SkippedTooLarge counts those.
+func (r *Redis) Set(ctx context.Context, key string, value []byte) error {
+	if len(value) > r.maxSize {
+		r.skipped.Add(1)
+		return nil
+	}
+	ctx, cancel := context.WithTimeout(ctx, r.timeout)
+	defer cancel()
+	if err := r.rdb.Set(ctx, RedisKeyPrefix+key, value, r.ttl).Err(); err != nil {
+		return fmt.Errorf("redis set: %w", err)
+	}
+	return nil
+}
+
+// Ping checks that Redis answers within the timeout; modegridd uses it to
+// log the cache's state at start-up.
+func (r *Redis) Ping(ctx context.Context) error {
+	ctx, cancel := context.WithTimeout(ctx, r.timeout)
+	defer cancel()
+	if err := r.rdb.Ping(ctx).Err(); err != nil {
+		return fmt.Errorf("redis ping: %w", err)
+	}
+	return nil
+}
+
+// SkippedTooLarge is the number of values Set did not store because they
+// exceeded MaxEntryBytes.
+func (r *Redis) SkippedTooLarge() uint64 { return r.skipped.Load() }
+
+// Close closes the connections to Redis.
+func (r *Redis) Close() error { return r.rdb.Close() }
+
+// SetRedisLogger sends go-redis's own log lines (one per failed dial while
+// Redis is down, for example) to l at debug level instead of the standard
+// library logger on stderr. The server already logs and counts every
+// backend error, so these lines are detail. go-redis's logger is
+// process-wide: call this once, from main.
+func SetRedisLogger(l *slog.Logger) {
+	redis.SetLogger(redisLogger{l})
+}
+
+type redisLogger struct{ l *slog.Logger }
+
+func (r redisLogger) Printf(ctx context.Context, format string, v ...any) {
+	r.l.DebugContext(ctx, fmt.Sprintf(format, v...), "component", "go-redis")
+}

@@ -1,0 +1,109 @@
+package server
+
+import (
+	"context"
+	"fmt"
+	"sort"
+	"strings"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+var checkCodec = protoCodec(func() *modegridv1.CheckModelResponse { return &modegridv1.CheckModelResponse{} })
+
+// CheckModel validates a model and summarises it. An invalid inline model
+// is not a call error: the response lists every violation. The summary of
+// a valid model is cached by its hash.
+func (s *Service) CheckModel(ctx context.Context, req *modegridv1.CheckModelRequest) (*modegridv1.CheckModelResponse, error) {
+	resp, err := s.checkModel(ctx, req)
+	return resp, s.toStatus(ctx, "CheckModel", err)
+}
+
+func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequest) (*modegridv1.CheckModelResponse, error) {
+	var vs violations
+	var mvs violations // violations of the model itself, answered in the response
+	src := req.GetModel()
+	var e *modelEntry
+	var err error
+	if src.GetCrystal() != nil {
+		e, err = s.resolve(ctx, src, &mvs)
+	} else {
+		e, err = s.resolve(ctx, src, &vs)
+	}
+	if err != nil {
+		return nil, err
+	}
+	if err := vs.err(); err != nil {
+		return nil, err
+	}
+	mesh := s.cfg.StabilityMesh
+	canon := fmt.Sprintf("stability_mesh=%d", mesh)
+	if e == nil {
+		out := &modegridv1.CheckModelResponse{Parameters: canon}
+		for _, v := range mvs.list {
+			out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, "model.crystal."), Description: v.Description})
+		}
+		return out, nil
+	}
+	return cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {
+		m := e.m
+		out := &modegridv1.CheckModelResponse{
+			Valid:                   true,
+			ModelHash:               e.hash,
+			Parameters:              canon,
+			Dimensions:              uint32(m.Dim()),
+			Sites:                   uint32(m.Sites()),
+			Polarizations:           uint32(m.P()),
+			ModesPerCell:            uint32(m.Modes()),
+			Interactions:            uint32(m.Interactions()),
+			SumRuleViolationEvPerA2: m.SumRuleViolation(),
+			LatticeType:             m.LatticeType(),
+		}
+		for i, sh := range m.Shells() {
+			out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})
+		}
+		std := m.StandardPoints()
+		labels := make([]string, 0, len(std))
+		for l := range std {
+			labels = append(labels, l)
+		}
+		sort.Strings(labels)
+		for _, l := range labels {
+			q := std[l]
+			out.StandardPoints = append(out.StandardPoints, &modegridv1.PathPoint{Label: l, Q: &modegridv1.QPoint{Q1: q[0], Q2: q[1], Q3: q[2]}})
+		}
+		err := s.run(ctx, kindCheck, func(ctx context.Context) error {
+			d := m.Dim()
+			for _, op := range m.Symmetry() {
+				so := &modegridv1.SymmetryOperation{}
+				for i := 0; i < d; i++ {
+					for j := 0; j < d; j++ {
+						so.Rotation = append(so.Rotation, int32(op.Rot[i][j]))
+					}
+					so.Translation = append(so.Translation, op.Trans[i])
+				}
+				out.Symmetry = append(out.Symmetry, so)
+			}
+			lo, hi, stable, err := m.Stability(ctx, mesh)
+			if err != nil {
+				return err
+			}
+			s.met.qpoints.Add(float64(stabilityPoints(d, mesh)))
+			out.MinFrequencyThz, out.MaxFrequencyThz, out.Stable = lo, hi, stable
+			return nil
+		})
+		if err != nil {
+			return nil, err
+		}
+		return out, nil
+	})
+}
+
+// stabilityPoints is the number of points of the coarse stability grid.
+func stabilityPoints(d, mesh int) int {
+	n := 1
+	for range d {
+		n *= mesh
+	}
+	return n
+}

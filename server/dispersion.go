@@ -1,0 +1,182 @@
+package server
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"strings"
+
+	"github.com/materials-lab/modegrid/physics"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+var dispersionCodec = protoCodec(func() *modegridv1.ComputeDispersionResponse { return &modegridv1.ComputeDispersionResponse{} })
+
+// ComputeDispersion returns the frequencies along a path of straight
+// segments. Cached by (model hash, canonical parameters), where built-in
+// labels are resolved to their coordinates.
+func (s *Service) ComputeDispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest) (*modegridv1.ComputeDispersionResponse, error) {
+	resp, err := s.computeDispersion(ctx, req)
+	return resp, s.toStatus(ctx, "ComputeDispersion", err)
+}
+
+func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest) (*modegridv1.ComputeDispersionResponse, error) {
+	var vs violations
+	if !validUnit(req.GetUnit()) {
+		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
+	}
+	unit := unitFromProto(req.GetUnit())
+	path := req.GetPath()
+	switch {
+	case len(path) < 2:
+		vs.add("path", "at least two corners are required, got %d", len(path))
+	case len(path) > s.cfg.MaxPathCorners:
+		vs.add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
+	}
+	opt := physics.PathOptions{Connect: req.GetConnectBranches()}
+	spacing := req.GetSpacingInvA()
+	switch {
+	case math.IsNaN(spacing) || math.IsInf(spacing, 0) || spacing < 0:
+		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", spacing)
+	case spacing > 0:
+		opt.SpacingInvA = canonFloat(spacing)
+	default:
+		opt.Points = int(req.GetPoints())
+		if opt.Points == 0 {
+			opt.Points = physics.DefaultPathPoints
+		}
+		if opt.Points > s.cfg.MaxPathPoints {
+			vs.add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
+		}
+	}
+	e, err := s.resolve(ctx, req.GetModel(), &vs)
+	if err != nil {
+		return nil, err
+	}
+	var corners []physics.PathCorner
+	if e != nil && len(path) >= 2 && len(path) <= s.cfg.MaxPathCorners {
+		corners = s.pathCorners(e.m, path, &vs)
+		if opt.SpacingInvA > 0 && len(corners) == len(path) {
+			if n := pathLengthInvA(e.m, corners)/opt.SpacingInvA + float64(len(corners)); n > float64(s.cfg.MaxPathPoints) {
+				vs.add("spacing_inv_a", "a spacing of %v Å⁻¹ gives about %.0f samples, over this server's cap max-path-points=%d", opt.SpacingInvA, n, s.cfg.MaxPathPoints)
+			}
+		}
+	}
+	if e != nil && opt.Points > 0 {
+		s.checkResponseSize(&vs, "points", float64(opt.Points)*float64(8*e.m.Modes()+64), fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes()))
+	}
+	if err := vs.err(); err != nil {
+		return nil, err
+	}
+
+	var p params
+	var b strings.Builder
+	for i, c := range corners {
+		if i > 0 {
+			if c.BreakBefore {
+				b.WriteByte('|')
+			} else {
+				b.WriteByte('-')
+			}
+		}
+		fmt.Fprintf(&b, "%s(%s,%s,%s)", c.Label, fmtFloat(c.Q[0]), fmtFloat(c.Q[1]), fmtFloat(c.Q[2]))
+	}
+	p.add("path", b.String())
+	if opt.SpacingInvA > 0 {
+		p.add("spacing_inv_a", fmtFloat(opt.SpacingInvA))
+	} else {
+		p.add("points", fmt.Sprint(opt.Points))
+	}
+	p.add("unit", unitName(unit))
+	p.addBool("connect_branches", opt.Connect)
+	canon := p.String()
+
+	return cachedResult(ctx, s, kindDispersion, e.hash, canon, dispersionCodec, func(ctx context.Context) (*modegridv1.ComputeDispersionResponse, error) {
+		var samples []physics.PathSample
+		err := s.run(ctx, kindDispersion, func(ctx context.Context) error {
+			var err error
+			samples, err = e.m.Dispersion(ctx, corners, opt)
+			return err
+		})
+		if err != nil {
+			return nil, err
+		}
+		s.met.qpoints.Add(float64(len(samples)))
+		out := &modegridv1.ComputeDispersionResponse{ModelHash: e.hash, Parameters: canon, Unit: unitToProto(unit),
+			Samples: make([]*modegridv1.DispersionSample, len(samples))}
+		for i, smp := range samples {
+			f := make([]float64, len(smp.FreqTHz))
+			for k, v := range smp.FreqTHz {
+				f[k] = unit.FromTHz(v)
+			}
+			out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
+				Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}}
+		}
+		return out, nil
+	})
+}
+
+// pathCorners resolves the corners: given coordinates (canonical) or the
+// model's built-in label, so that equal paths spelled with labels or with
+// numbers share a cache entry.
+func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs *violations) []physics.PathCorner {
+	std := m.StandardPoints()
+	out := make([]physics.PathCorner, 0, len(path))
+	for i, pp := range path {
+		c := physics.PathCorner{Label: pp.GetLabel(), BreakBefore: pp.GetBreakBefore() && i > 0}
+		if q := pp.GetQ(); q != nil {
+			c.Q = [3]float64{canonFloat(q.GetQ1()), canonFloat(q.GetQ2()), canonFloat(q.GetQ3())}
+			for k, v := range c.Q {
+				switch {
+				case math.IsNaN(v) || math.IsInf(v, 0):
+					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be a finite number, got %v", v)
+				case k >= m.Dim() && v != 0:
+					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
+				}
+			}
+		} else {
+			key := c.Label
+			switch strings.ToUpper(key) {
+			case "Γ", "GAMMA", "G": // spellings of Γ, as physics accepts them
+				key = "G"
+			}
+			q, ok := std[key]
+			if !ok {
+				vs.add(fmt.Sprintf("path[%d].label", i), "%q is not a built-in point of this %s lattice (have %s); give q", c.Label, latticeName(m), labelList(std))
+				continue
+			}
+			c.Q = q
+		}
+		c.HasQ = true
+		out = append(out, c)
+	}
+	return out
+}
+
+func latticeName(m *physics.Model) string {
+	if t := m.LatticeType(); t != "" {
+		return t
+	}
+	return "unrecognised"
+}
+
+// pathLengthInvA is the path's length in Å⁻¹ (2π included), breaks not
+// counted: |Σ_k Δq_k b_k| summed over the connected segments.
+func pathLengthInvA(m *physics.Model, corners []physics.PathCorner) float64 {
+	b := m.Reciprocal()
+	total := 0.0
+	for i := 1; i < len(corners); i++ {
+		if corners[i].BreakBefore {
+			continue
+		}
+		var v [3]float64
+		for k := 0; k < 3; k++ {
+			dq := corners[i].Q[k] - corners[i-1].Q[k]
+			for c := 0; c < 3; c++ {
+				v[c] += dq * b[k][c]
+			}
+		}
+		total += math.Sqrt(v[0]*v[0] + v[1]*v[1] + v[2]*v[2])
+	}
+	return total
+}

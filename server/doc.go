@@ -1,0 +1,115 @@
+package server
+
+// This file is the operating manual of the service.
+//
+// # Embedding
+//
+//	srv, err := server.New(server.Config{}) // every zero field is a default
+//	lis, err := net.Listen("tcp", "127.0.0.1:0")
+//	go srv.Serve(lis)                       // nil after Shutdown
+//	defer srv.Shutdown(ctx)                 // graceful until ctx ends, then forced
+//
+// Server.Run(ctx, ready) does the listening on Config.Listen and
+// Config.MetricsListen itself and shuts down within Config.ShutdownGrace
+// once ctx ends; modegridd is Run plus flags and signals.
+//
+// # Requests and models
+//
+// Every RPC takes a ModelSource: the model inline, or the model_hash of a
+// response to an earlier call. The server compiles a model once and keeps
+// it under two keys — its serialised bytes and its hash — so repeated
+// inline requests cost a hash of the bytes, and references work on any
+// replica sharing the Backend. A reference the server does not hold (never
+// sent, or evicted) is NOT_FOUND; the client resends the model inline.
+//
+// Every response carries the model hash and the canonical parameters (see
+// params.go) that produced it.
+//
+// # Caching
+//
+// Results of CheckModel, ComputeDispersion, ComputeDos and ComputeThermal
+// are cached by (model hash, canonical parameters), so requests equal in
+// meaning hit however they are spelled. The modes on a grid — the costly
+// intermediate of a density of states or a thermal calculation — are
+// cached by (model hash, grid, what is kept: frequencies, site weights or
+// eigenvectors), so a DOS and a thermal request on one model and grid
+// diagonalise once. Modes streams are not cached.
+//
+// The in-process cache is one LRU bounded in bytes (Config.CacheBytes,
+// default 512 MiB, negative disables it); concurrent identical requests
+// wait for one computation (golang.org/x/sync/singleflight). The
+// computation is cancelled only when every request waiting for it has gone.
+// With a Backend (Redis, --redis-addr), results and models are also stored
+// there as serialised protobuf and looked up after the LRU misses; any
+// Backend failure is logged, counted (modegrid_cache_backend_errors_total)
+// and the request computed as if the key were absent. Losing either level
+// loses only time.
+//
+// # Limits and overload
+//
+// Request caps (Config.Max*) are checked before any work: q-points per
+// request, sites per model, temperatures, path samples and corners, DOS
+// samples, message size. A request over a cap is INVALID_ARGUMENT with a
+// google.rpc.BadRequest violation naming the field and the cap
+// ("… exceed this server's cap max-qpoints=4194304").
+//
+// At most Config.MaxConcurrent computations run at once (default: cores);
+// up to Config.MaxQueue more wait, each at most Config.QueueTimeout.
+// Beyond that a call gets RESOURCE_EXHAUSTED with QuotaFailure and
+// RetryInfo details naming the cap. A client deadline or cancellation stops
+// the computation (modegrid_computations_canceled_total counts it).
+//
+// # Status codes
+//
+//	INVALID_ARGUMENT     bad model or request, every bad field in BadRequest; request over a cap
+//	NOT_FOUND            model_hash not held by this server (resend the model inline)
+//	FAILED_PRECONDITION  thermal properties of a model with imaginary modes without allow_unstable
+//	RESOURCE_EXHAUSTED   computation queue full or wait timed out; message over max-msg-bytes
+//	DEADLINE_EXCEEDED    the client's deadline passed (the computation was stopped)
+//	CANCELED             the client cancelled (the computation was stopped)
+//	UNAUTHENTICATED      bearer tokens configured and none or a wrong one sent
+//	UNAVAILABLE          the server is shutting down
+//	INTERNAL             a bug: a recovered panic or unexpected error, logged and counted
+//
+// # Connections
+//
+// Keepalive enforcement: clients may ping every KeepaliveMinTime (20 s) or
+// less often, also without calls in flight; the client library pings every
+// 30 s. Connections are recycled after MaxConnectionAge (30 min) with
+// MaxConnectionAgeGrace (10 min) for calls in flight, and closed after
+// MaxConnectionIdle (30 min) idle. Messages up to Config.MaxMsgBytes
+// (16 MiB) both ways, as the client library's default.
+//
+// # Security
+//
+// TLS from Config.TLSCertFile/TLSKeyFile (TLS 1.2 minimum); with
+// Config.ClientCAFile, mutual TLS requiring client certificates that CA
+// signed. With Config.TokenFile, every call but the health service needs
+// "authorization: Bearer <token>"; tokens are compared as SHA-256 digests
+// in constant time.
+//
+// # Metrics
+//
+// Server.MetricsHandler (or ServeMetrics, or Run on Config.MetricsListen)
+// serves the registry Config.Registry (a private one by default):
+// grpc_server_* from go-grpc-middleware's Prometheus provider with latency
+// buckets up to an hour; modegrid_computations_{in_flight,queued,total,
+// canceled_total,rejected_total}, modegrid_compute_duration_seconds,
+// modegrid_qpoints_diagonalized_total, modegrid_cache_{hits,misses,
+// evictions,refused,flight_joins,backend_errors}_total, modegrid_cache_
+// {bytes,entries,max_bytes}, modegrid_panics_recovered_total,
+// modegrid_auth_failures_total, modegrid_build_info, and the Go and process
+// collectors. Labels are method, code, kind, level and reason only.
+//
+// # Logs
+//
+// One JSON line per call (log/slog): method, code, duration_ms, model
+// (hash prefix), cache (memory, backend, shared, computed), peer and, on
+// failure, the status message.
+//
+// # Shutdown
+//
+// Shutdown sets health NOT_SERVING, keeps accepting calls for
+// Config.DrainDelay, then refuses new calls while those in flight finish;
+// when its context ends the rest are cut off and their computations
+// cancelled.

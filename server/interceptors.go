@@ -1,0 +1,133 @@
+package server
+
+import (
+	"context"
+	"log/slog"
+	"runtime/debug"
+	"time"
+
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/peer"
+	"google.golang.org/grpc/status"
+)
+
+// callInfo collects what a handler learns about its call for the log line:
+// filled by the handler's goroutine, read by the interceptor after the
+// handler returns.
+type callInfo struct {
+	model string // model hash
+	cache string // where the result came from (memory, backend, shared, computed)
+}
+
+type callInfoKey struct{}
+
+// noteModel records the model hash of the call for its log line.
+func noteModel(ctx context.Context, hash string) {
+	if ci, ok := ctx.Value(callInfoKey{}).(*callInfo); ok {
+		ci.model = hash
+	}
+}
+
+// noteCache records where the call's result came from.
+func noteCache(ctx context.Context, src string) {
+	if ci, ok := ctx.Value(callInfoKey{}).(*callInfo); ok {
+		ci.cache = src
+	}
+}
+
+// prefix shortens a model hash for logs.
+func prefix(hash string) string {
+	if len(hash) > 12 {
+		return hash[:12]
+	}
+	return hash
+}
+
+// unaryInterceptor authenticates, recovers panics (→ INTERNAL, logged,
+// counted) and logs one line per call. It runs inside the metrics
+// interceptor, so the metrics see the final status code.
+func (s *Server) unaryInterceptor(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (resp any, err error) {
+	start := time.Now()
+	ci := &callInfo{}
+	ctx = context.WithValue(ctx, callInfoKey{}, ci)
+	defer func() {
+		if p := recover(); p != nil {
+			resp, err = nil, s.svc.panicked(info.FullMethod, p, debug.Stack())
+		}
+		s.logCall(ctx, info.FullMethod, start, ci, err)
+	}()
+	if err := s.tokens.authorize(ctx, info.FullMethod); err != nil {
+		s.svc.met.authFailures.Inc()
+		return nil, err
+	}
+	return handler(ctx, req)
+}
+
+// streamInterceptor is unaryInterceptor for streaming calls.
+func (s *Server) streamInterceptor(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, handler grpc.StreamHandler) (err error) {
+	start := time.Now()
+	ci := &callInfo{}
+	ctx := context.WithValue(ss.Context(), callInfoKey{}, ci)
+	defer func() {
+		if p := recover(); p != nil {
+			err = s.svc.panicked(info.FullMethod, p, debug.Stack())
+		}
+		s.logCall(ctx, info.FullMethod, start, ci, err)
+	}()
+	if err := s.tokens.authorize(ctx, info.FullMethod); err != nil {
+		s.svc.met.authFailures.Inc()
+		return err
+	}
+	return handler(srv, &contextStream{ServerStream: ss, ctx: ctx})
+}
+
+// contextStream carries the call-info context into a streaming handler.
+type contextStream struct {
+	grpc.ServerStream
+	ctx context.Context
+}
+
+func (c *contextStream) Context() context.Context { return c.ctx }
+
+// panicked logs and counts a recovered panic and returns the INTERNAL
+// status sent to the client (which reveals nothing of the panic).
+func (s *Service) panicked(method string, p any, stack []byte) error {
+	s.met.panics.Inc()
+	s.log.Error("panic recovered", "method", method, "panic", p, "stack", string(stack))
+	return status.Error(codes.Internal, "internal error (logged on the server)")
+}
+
+// logCall writes the call's JSON log line: method, code, duration, model
+// hash prefix and cache source. Server-side failures log at error level.
+func (s *Server) logCall(ctx context.Context, method string, start time.Time, ci *callInfo, err error) {
+	code := status.Code(err)
+	level := slog.LevelInfo
+	switch code {
+	case codes.Internal, codes.Unknown, codes.DataLoss:
+		level = slog.LevelError
+	case codes.ResourceExhausted, codes.Unauthenticated:
+		level = slog.LevelWarn
+	}
+	if !s.cfg.Logger.Enabled(ctx, level) {
+		return
+	}
+	attrs := []slog.Attr{
+		slog.String("method", method),
+		slog.String("code", code.String()),
+		slog.Float64("duration_ms", float64(time.Since(start).Microseconds())/1000),
+	}
+	if ci.model != "" {
+		attrs = append(attrs, slog.String("model", prefix(ci.model)))
+	}
+	if ci.cache != "" {
+		attrs = append(attrs, slog.String("cache", ci.cache))
+	}
+	if p, ok := peer.FromContext(ctx); ok && p.Addr != nil {
+		attrs = append(attrs, slog.String("peer", p.Addr.String()))
+	}
+	if err != nil {
+		attrs = append(attrs, slog.String("error", status.Convert(err).Message()))
+	}
+	s.cfg.Logger.LogAttrs(ctx, level, "call", attrs...)
+}

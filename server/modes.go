@@ -1,0 +1,115 @@
+package server
+
+import (
+	"context"
+
+	"google.golang.org/grpc"
+
+	"github.com/materials-lab/modegrid/physics"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// ComputeModes streams the modes on a q-point set in chunks of bounded size,
+// in q order. Modes streams are not cached (they can be far larger than
+// anything worth keeping); the model is.
+func (s *Service) ComputeModes(req *modegridv1.ComputeModesRequest, stream grpc.ServerStreamingServer[modegridv1.ComputeModesResponse]) error {
+	ctx := stream.Context()
+	return s.toStatus(ctx, "ComputeModes", s.computeModes(ctx, req, stream))
+}
+
+// modeChunkOverhead is the per-point size (bytes) of a Modes message
+// beyond its numbers: q, weight, flags and framing.
+const modeChunkOverhead = 64
+
+func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModesRequest, stream grpc.ServerStreamingServer[modegridv1.ComputeModesResponse]) error {
+	var vs violations
+	if !validUnit(req.GetUnit()) {
+		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
+	}
+	e, err := s.resolve(ctx, req.GetModel(), &vs)
+	if err != nil {
+		return err
+	}
+	dim := 0
+	if e != nil {
+		dim = e.m.Dim()
+	}
+	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", true, &vs)
+	if err := vs.err(); err != nil {
+		return err
+	}
+	unit := unitFromProto(req.GetUnit())
+	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
+
+	// Chunk size: as asked (or the default), but never more mode data per
+	// message than MaxChunkBytes.
+	n := e.m.Modes()
+	per := 8*n + modeChunkOverhead
+	if opt.Eigenvectors {
+		per += 16 * n * n
+	}
+	if opt.Velocities {
+		per += 24 * n
+	}
+	chunk := int(req.GetChunkSize())
+	if chunk == 0 {
+		chunk = s.cfg.ChunkPoints
+	}
+	chunk = max(1, min(chunk, s.cfg.MaxChunkBytes/per))
+	opt.ChunkSize = chunk
+
+	var p params
+	p.add("qpoints", qs.param())
+	p.add("unit", unitName(unit))
+	p.addBool("eigenvectors", opt.Eigenvectors)
+	p.addBool("group_velocities", opt.Velocities)
+	canon := p.String()
+
+	pts := qs.points(dim)
+	total := uint32(len(pts))
+	noteCache(ctx, "computed")
+	return s.run(ctx, kindModes, func(ctx context.Context) error {
+		return e.m.StreamModes(ctx, pts, opt, func(c physics.ModeChunk) error {
+			s.met.qpoints.Add(float64(len(c.Points)))
+			resp := &modegridv1.ComputeModesResponse{
+				ModelHash:  e.hash,
+				Parameters: canon,
+				Offset:     uint32(c.Offset),
+				Total:      total,
+				Unit:       unitToProto(unit),
+				Points:     make([]*modegridv1.Modes, len(c.Points)),
+			}
+			for i := range c.Points {
+				resp.Points[i] = modesToProto(&c.Points[i], unit)
+			}
+			return stream.Send(resp)
+		})
+	})
+}
+
+// modesToProto converts the modes at one point, frequencies in unit.
+func modesToProto(pm *physics.PointModes, unit physics.Unit) *modegridv1.Modes {
+	out := &modegridv1.Modes{
+		Q:           &modegridv1.QPoint{Q1: pm.Q[0], Q2: pm.Q[1], Q3: pm.Q[2]},
+		Weight:      pm.Weight,
+		Frequencies: make([]float64, len(pm.FreqTHz)),
+		Imaginary:   pm.Imaginary,
+	}
+	for k, f := range pm.FreqTHz {
+		out.Frequencies[k] = unit.FromTHz(f)
+	}
+	if pm.Eigvecs != nil {
+		out.Eigenvectors = make([]float64, 2*len(pm.Eigvecs))
+		for i, z := range pm.Eigvecs {
+			out.Eigenvectors[2*i] = real(z)
+			out.Eigenvectors[2*i+1] = imag(z)
+		}
+	}
+	if pm.VelKmS != nil {
+		out.GroupVelocitiesKmS = make([]float64, 0, 3*len(pm.VelKmS))
+		for _, v := range pm.VelKmS {
+			out.GroupVelocitiesKmS = append(out.GroupVelocitiesKmS, v[0], v[1], v[2])
+		}
+	}
+	return out
+}

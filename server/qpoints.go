@@ -1,0 +1,139 @@
+package server
+
+import (
+	"crypto/sha256"
+	"encoding/binary"
+	"fmt"
+	"math"
+
+	"github.com/materials-lab/modegrid/physics"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// qset is a parsed q-point set: an explicit list or a regular grid.
+type qset struct {
+	list  []physics.QPoint // explicit points (weight 1), nil for a grid
+	grid  physics.GridSpec // when list is nil
+	count int
+}
+
+// param is the canonical description of the set.
+func (q *qset) param() string {
+	if q.list == nil {
+		return gridParam(q.grid)
+	}
+	h := sha256.New()
+	var b [8]byte
+	for _, p := range q.list {
+		for _, v := range p.Q {
+			binary.LittleEndian.PutUint64(b[:], math.Float64bits(v+0)) // −0 → 0
+			h.Write(b[:])
+		}
+	}
+	return fmt.Sprintf("list:%d:sha256-%x", len(q.list), h.Sum(nil)[:8])
+}
+
+// points lists the set's points with their weights, in order; a grid's
+// components past the dimensionality dim are 0, shifted or not.
+func (q *qset) points(dim int) []physics.QPoint {
+	if q.list != nil {
+		return q.list
+	}
+	pts := q.grid.Points()
+	for i := range pts { // the spec is not normalised: no shift past d
+		for k := dim; k < 3; k++ {
+			pts[i].Q[k] = 0
+		}
+	}
+	return pts
+}
+
+// parseQSet checks a q-point set against the caps and, when dim > 0, the
+// crystal's dimensionality, adding every problem to vs under field.
+// allowList says whether an explicit list is acceptable.
+func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, allowList bool, vs *violations) *qset {
+	switch x := set.GetSet().(type) {
+	case *modegridv1.QPointSet_List:
+		if !allowList {
+			vs.add(field+".list", "a Monkhorst–Pack grid or a finite crystal is required here, not an explicit list")
+			return nil
+		}
+		pts := x.List.GetPoints()
+		f := field + ".list.points"
+		if len(pts) == 0 {
+			vs.add(f, "at least one q-point is required")
+			return nil
+		}
+		if len(pts) > s.cfg.MaxQPoints {
+			vs.add(f, "%d q-points exceed this server's cap max-qpoints=%d", len(pts), s.cfg.MaxQPoints)
+			return nil
+		}
+		out := &qset{list: make([]physics.QPoint, len(pts)), count: len(pts)}
+		bad := 0
+		for i, p := range pts {
+			q := [3]float64{p.GetQ1(), p.GetQ2(), p.GetQ3()}
+			for k, v := range q {
+				if bad >= 20 {
+					break // enough to see the pattern in a huge list
+				}
+				switch {
+				case math.IsNaN(v) || math.IsInf(v, 0):
+					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be a finite number, got %v", v)
+					bad++
+				case dim > 0 && k >= dim && v != 0:
+					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, v)
+					bad++
+				}
+			}
+			out.list[i] = physics.QPoint{Q: q, Weight: 1}
+		}
+		return out
+	case *modegridv1.QPointSet_Grid:
+		g := s.parseMesh(x.Grid.GetMesh(), dim, field+".grid.mesh", vs)
+		g.Shifted = x.Grid.GetShifted()
+		return &qset{grid: g, count: g.Count()}
+	case *modegridv1.QPointSet_Cells:
+		g := s.parseMesh(x.Cells.GetCells(), dim, field+".cells.cells", vs)
+		g.Finite = true
+		return &qset{grid: g, count: g.Count()}
+	default:
+		vs.add(field, "a q-point set is required (list, grid or cells)")
+		return nil
+	}
+}
+
+// parseMesh checks mesh divisions: 1 to 3 numbers, each ≥ 1, 1 past the
+// dimensionality (absent components are 1), their product within the cap.
+func (s *Service) parseMesh(mesh []uint32, dim int, field string, vs *violations) physics.GridSpec {
+	g := physics.GridSpec{Mesh: [3]int{1, 1, 1}}
+	if len(mesh) == 0 || len(mesh) > 3 {
+		vs.add(field, "must have 1 to 3 numbers (one per lattice vector), got %d", len(mesh))
+		return g
+	}
+	ok := true
+	for k, n := range mesh {
+		switch {
+		case n < 1:
+			vs.add(fmt.Sprintf("%s[%d]", field, k), "must be ≥ 1, got %d", n)
+			ok = false
+		case dim > 0 && k >= dim && n != 1:
+			vs.add(fmt.Sprintf("%s[%d]", field, k), "must be 1 (or absent) for a %d-dimensional crystal, got %d", dim, n)
+			ok = false
+		case n > uint32(s.cfg.MaxQPoints):
+			vs.add(fmt.Sprintf("%s[%d]", field, k), "%d divisions exceed this server's cap max-qpoints=%d", n, s.cfg.MaxQPoints)
+			ok = false
+		default:
+			g.Mesh[k] = int(n)
+		}
+	}
+	if dim > 0 && len(mesh) < dim {
+		vs.add(field, "must have %d numbers for a %d-dimensional crystal, got %d", dim, dim, len(mesh))
+		ok = false
+	}
+	if ok {
+		if n := g.Mesh[0] * g.Mesh[1] * g.Mesh[2]; n > s.cfg.MaxQPoints {
+			vs.add(field, "%s is %d q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), n, s.cfg.MaxQPoints)
+		}
+	}
+	return g
+}

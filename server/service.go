@@ -1,0 +1,192 @@
+package server
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"log/slog"
+	"time"
+
+	"google.golang.org/protobuf/proto"
+
+	"github.com/materials-lab/modegrid/physics"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+	"github.com/materials-lab/modegrid/server/cache"
+	"github.com/materials-lab/modegrid/server/gate"
+)
+
+// Service implements modegridv1.ModegridServiceServer. Make one with New
+// (inside a Server) or NewService.
+type Service struct {
+	modegridv1.UnimplementedModegridServiceServer
+
+	cfg   Config // defaults resolved
+	log   *slog.Logger
+	cache *cache.Cache
+	gate  *gate.Gate
+	met   *metrics
+
+	// hook, when set (tests only), runs at the start of every computation,
+	// after it obtained its slot.
+	hook func(ctx context.Context, kind string)
+}
+
+// run performs one computation of kind: it waits for a slot (refusing with
+// a *gate.Refusal past the queue), counts it, times it, and counts it as
+// cancelled when its context ended before it did.
+func (s *Service) run(ctx context.Context, kind string, fn func(ctx context.Context) error) error {
+	release, err := s.gate.Acquire(ctx)
+	if err != nil {
+		return err
+	}
+	defer release()
+	s.met.computations.WithLabelValues(kind).Inc()
+	start := time.Now()
+	if s.hook != nil {
+		s.hook(ctx, kind)
+	}
+	err = fn(ctx)
+	s.met.computeSeconds.WithLabelValues(kind).Observe(time.Since(start).Seconds())
+	if err != nil && ctx.Err() != nil {
+		s.met.canceled.WithLabelValues(kind).Inc()
+	}
+	return err
+}
+
+// modelEntry is a compiled model with what is needed to rebuild it on
+// another replica: its source, serialised deterministically.
+type modelEntry struct {
+	m      *physics.Model
+	hash   string
+	source []byte // deterministic ModelSource{crystal, enforce_sum_rule}
+}
+
+// size is the entry's charge in the cache: an estimate of the compiled
+// model (force-constant terms dominate) plus its source.
+func (e *modelEntry) size() int64 {
+	return int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
+}
+
+var modelCodec = &cache.Codec{
+	Encode: func(v any) ([]byte, error) { return v.(*modelEntry).source, nil },
+	Decode: func(b []byte) (any, int64, error) {
+		var src modegridv1.ModelSource
+		if err := proto.Unmarshal(b, &src); err != nil {
+			return nil, 0, err
+		}
+		e, err := compileEntry(&src, b, physics.Limits{})
+		if err != nil {
+			return nil, 0, err
+		}
+		return e, e.size(), nil
+	},
+}
+
+// compileEntry compiles an inline model. raw is its deterministic
+// serialisation.
+func compileEntry(src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
+	m, err := physics.Compile(crystalFromProto(src.GetCrystal()), physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim})
+	if err != nil {
+		return nil, err
+	}
+	return &modelEntry{m: m, hash: m.Hash(), source: raw}, nil
+}
+
+// modelKey is the cache key of a model referred to by hash.
+func modelKey(hash string) cache.Key { return cache.Key{Kind: kindModel, Model: hash} }
+
+// isHash reports whether h looks like a model hash: 64 lower-case hex
+// digits.
+func isHash(h string) bool {
+	if len(h) != 64 {
+		return false
+	}
+	for _, c := range h {
+		if !('0' <= c && c <= '9' || 'a' <= c && c <= 'f') {
+			return false
+		}
+	}
+	return true
+}
+
+// resolve returns the model of src, from the cache when it was seen
+// before. Problems with the model are added to vs (field paths under
+// "model") and the entry is nil; an unknown reference is NOT_FOUND.
+func (s *Service) resolve(ctx context.Context, src *modegridv1.ModelSource, vs *violations) (*modelEntry, error) {
+	switch {
+	case src.GetCrystal() != nil:
+		return s.resolveInline(ctx, src, vs)
+	case src.GetModelHash() != "":
+		h := src.GetModelHash()
+		if !isHash(h) {
+			vs.add("model.model_hash", "must be 64 lower-case hex digits (a hash from an earlier response), got %q", h)
+			return nil, nil
+		}
+		v, src, ok := s.cache.Lookup(ctx, modelKey(h), modelCodec)
+		if !ok {
+			return nil, errModelNotFound(h)
+		}
+		noteCache(ctx, src.String())
+		e := v.(*modelEntry)
+		noteModel(ctx, e.hash)
+		return e, nil
+	default:
+		vs.add("model", "a model is required: set crystal (inline) or model_hash")
+		return nil, nil
+	}
+}
+
+func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource, vs *violations) (*modelEntry, error) {
+	if n := len(src.GetCrystal().GetSites()); n > s.cfg.MaxSites {
+		vs.add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
+		return nil, nil
+	}
+	norm := &modegridv1.ModelSource{
+		Source:         &modegridv1.ModelSource_Crystal{Crystal: src.GetCrystal()},
+		EnforceSumRule: src.GetEnforceSumRule(),
+	}
+	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
+	if err != nil {
+		vs.add("model.crystal", "cannot be serialised: %v", err)
+		return nil, nil
+	}
+	sum := sha256.Sum256(raw)
+	key := cache.Key{Kind: kindInline, Model: hex.EncodeToString(sum[:])}
+	v, from, err := s.cache.Do(ctx, key, nil, func(ctx context.Context) (any, int64, error) {
+		var e *modelEntry
+		err := s.run(ctx, kindCompile, func(context.Context) error {
+			var err error
+			e, err = compileEntry(norm, raw, physics.Limits{MaxSites: s.cfg.MaxSites})
+			return err
+		})
+		if err != nil {
+			return nil, 0, err
+		}
+		s.cache.Put(ctx, modelKey(e.hash), e, e.size(), modelCodec)
+		return e, e.size(), nil
+	})
+	if err != nil {
+		if isValidation(err) {
+			vs.addErr("model.crystal", "model.crystal", err)
+			return nil, nil
+		}
+		return nil, err
+	}
+	e := v.(*modelEntry)
+	// Referable by hash from now on, here and (through the Backend) on
+	// other replicas. The entry is charged under both keys: a model
+	// evicted under its hash stays usable inline, and sending it inline
+	// makes it referable again.
+	if from == cache.Memory && !s.cache.Contains(modelKey(e.hash)) {
+		s.cache.Put(ctx, modelKey(e.hash), e, e.size(), modelCodec)
+	}
+	noteModel(ctx, e.hash)
+	return e, nil
+}
+
+// isValidation reports whether err carries physics validation violations.
+func isValidation(err error) bool {
+	var ve *physics.ValidationError
+	return errors.As(err, &ve)
+}

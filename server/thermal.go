@@ -1,0 +1,172 @@
+package server
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/status"
+
+	"github.com/materials-lab/modegrid/physics"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+var thermalCodec = protoCodec(func() *modegridv1.ComputeThermalResponse { return &modegridv1.ComputeThermalResponse{} })
+
+// ComputeThermal returns harmonic thermal properties on a grid or finite
+// crystal at a list of temperatures. Cached by (model hash, canonical
+// parameters); the grid's modes are shared with DOS requests. A model with
+// imaginary modes is FAILED_PRECONDITION unless allow_unstable.
+func (s *Service) ComputeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
+	resp, err := s.computeThermal(ctx, req)
+	if errors.Is(err, physics.ErrUnstable) {
+		return nil, status.Errorf(codes.FailedPrecondition, "%v (set allow_unstable to compute anyway, leaving imaginary modes out)", err)
+	}
+	return resp, s.toStatus(ctx, "ComputeThermal", err)
+}
+
+// temperatures expands the explicit list and the range into one list,
+// canonical values, checking every value and the cap.
+func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violations) []float64 {
+	var ts []float64
+	check := func(field string, t float64) bool {
+		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > physics.MaxTempK {
+			vs.add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
+			return false
+		}
+		return true
+	}
+	list := req.GetTemperaturesK()
+	if len(list) > s.cfg.MaxTemps {
+		vs.add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
+		return nil
+	}
+	for i, t := range list {
+		if check(fmt.Sprintf("temperatures_k[%d]", i), t) {
+			ts = append(ts, canonFloat(t))
+		}
+	}
+	if r := req.GetRange(); r != nil {
+		start, stop, step := canonFloat(r.GetStartK()), canonFloat(r.GetStopK()), canonFloat(r.GetStepK())
+		ok := check("range.start_k", start)
+		ok = check("range.stop_k", stop) && ok
+		if !(step > 0) || math.IsInf(step, 0) {
+			vs.add("range.step_k", "must be > 0, got %v", r.GetStepK())
+			ok = false
+		}
+		if ok && stop < start {
+			vs.add("range.stop_k", "must be ≥ start_k (%v), got %v", start, stop)
+			ok = false
+		}
+		if ok {
+			// Values start + i·step up to stop, stop included when on the
+			// step (within 1e-9 of a step, for decimal steps).
+			n := int(math.Floor((stop-start)/step+1e-9)) + 1
+			if len(ts)+n > s.cfg.MaxTemps {
+				vs.add("range", "%d temperatures exceed this server's cap max-temps=%d", len(ts)+n, s.cfg.MaxTemps)
+				return nil
+			}
+			for i := range n {
+				ts = append(ts, rangeValue(start, step, i))
+			}
+		}
+	}
+	if len(ts) == 0 && len(vs.list) == 0 {
+		vs.add("temperatures_k", "at least one temperature is required (temperatures_k or range)")
+	}
+	return ts
+}
+
+func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
+	var vs violations
+	opt := physics.ThermalOptions{AllowUnstable: req.GetAllowUnstable(), MSD: req.GetMsd()}
+	switch req.GetRoute() {
+	case modegridv1.ThermalRoute_THERMAL_ROUTE_UNSPECIFIED, modegridv1.ThermalRoute_THERMAL_ROUTE_MODE_SUM:
+		opt.Route = physics.ModeSum
+	case modegridv1.ThermalRoute_THERMAL_ROUTE_DOS_INTEGRAL:
+		opt.Route = physics.DOSIntegral
+	default:
+		vs.add("route", "unknown route %d", req.GetRoute())
+	}
+	opt.TempsK = s.temperatures(req, &vs)
+	e, err := s.resolve(ctx, req.GetModel(), &vs)
+	if err != nil {
+		return nil, err
+	}
+	dim := 0
+	if e != nil {
+		dim = e.m.Dim()
+	}
+	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", false, &vs)
+	if e != nil {
+		per := 100.0 // ten numbers and framing
+		if opt.MSD {
+			per += float64(e.m.Sites()) * 110
+		}
+		s.checkResponseSize(&vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
+	}
+	if err := vs.err(); err != nil {
+		return nil, err
+	}
+
+	var p params
+	p.add("grid", gridParam(qs.grid))
+	p.add("temperatures_k", tempsParam(opt.TempsK))
+	p.add("route", opt.Route.String())
+	p.addBool("allow_unstable", opt.AllowUnstable)
+	p.addBool("msd", opt.MSD)
+	canon := p.String()
+
+	return cachedResult(ctx, s, kindThermal, e.hash, canon, thermalCodec, func(ctx context.Context) (*modegridv1.ComputeThermalResponse, error) {
+		g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{vectors: opt.MSD})
+		if err != nil {
+			return nil, err
+		}
+		var res *physics.ThermalResult
+		err = s.run(ctx, kindThermal, func(ctx context.Context) error {
+			var err error
+			res, err = physics.ComputeThermal(ctx, e.m, g, opt)
+			return err
+		})
+		if err != nil {
+			return nil, err
+		}
+		return thermalToProto(e, canon, res), nil
+	})
+}
+
+func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *modegridv1.ComputeThermalResponse {
+	out := &modegridv1.ComputeThermalResponse{
+		ModelHash:                e.hash,
+		Parameters:               canon,
+		ZeroPointEnergyEv:        r.ZPEeV,
+		ZeroPointEnergyKjPerMol:  physics.EVToKJPerMol(r.ZPEeV),
+		DebyeTemperatureElasticK: r.ThetaElasticK,
+		ImaginaryModesExcluded:   uint32(r.ImaginaryExcluded),
+		Points:                   make([]*modegridv1.ThermalPoint, len(r.Points)),
+	}
+	labels := e.m.Labels()
+	for i, tp := range r.Points {
+		pt := &modegridv1.ThermalPoint{
+			TemperatureK:           tp.TempK,
+			InternalEnergyEv:       tp.UeV,
+			FreeEnergyEv:           tp.FeV,
+			EntropyEvPerK:          tp.SeVPerK,
+			HeatCapacityEvPerK:     tp.CveVPerK,
+			InternalEnergyKjPerMol: physics.EVToKJPerMol(tp.UeV),
+			FreeEnergyKjPerMol:     physics.EVToKJPerMol(tp.FeV),
+			EntropyJPerMolK:        physics.EVPerKToJPerMolK(tp.SeVPerK),
+			HeatCapacityJPerMolK:   physics.EVPerKToJPerMolK(tp.CveVPerK),
+			DebyeTemperatureK:      tp.ThetaDK,
+		}
+		for si, m := range tp.MSD {
+			pt.Displacements = append(pt.Displacements, &modegridv1.SiteDisplacement{
+				Site: uint32(si), Label: labels[si], UA2: append([]float64(nil), m.U[:]...), UIsoA2: m.UIso, BA2: m.B,
+			})
+		}
+		out.Points[i] = pt
+	}
+	return out
+}
