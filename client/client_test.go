@@ -15,6 +15,7 @@ import (
 
 	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+	"github.com/materials-lab/modegrid/server"
 )
 
 // thzPerSqrtEVPerA2Amu is ν in THz of ω = sqrt(1 eV/Å²/1 amu):
@@ -110,7 +111,7 @@ func TestModelSentOnceThenByHash(t *testing.T) {
 // caller gave inline and for a reference the caller gave itself.
 func TestResendOnNotFound(t *testing.T) {
 	var rec1 recorder
-	addr, gs := startServer(t, "", rec1.options()...)
+	addr, kill := startServer(t, "", rec1.options()...)
 	c := dial(t, addr)
 	crystal := example(t, "chain")
 	req := &modegridv1.ComputeModesRequest{Model: client.Inline(crystal), Qpoints: client.QList([3]float64{0.5, 0, 0})}
@@ -122,10 +123,10 @@ func TestResendOnNotFound(t *testing.T) {
 	if hash == "" {
 		t.Fatal("response names no model hash")
 	}
-	gs.Stop()
+	kill()
 
 	var rec2 recorder
-	_, gs2 := startServer(t, addr, rec2.options()...) // same address, empty cache
+	_, kill2 := startServer(t, addr, rec2.options()...) // same address, empty cache
 	wait := client.GRPCCallOptions(grpc.WaitForReady(true))
 	again, err := c.Modes(testContext(t), req, wait)
 	if err != nil {
@@ -140,7 +141,7 @@ func TestResendOnNotFound(t *testing.T) {
 	}
 
 	// The caller's own reference, after another restart: still resent.
-	gs2.Stop()
+	kill2()
 	var rec3 recorder
 	startServer(t, addr, rec3.options()...)
 	byRef := &modegridv1.ComputeModesRequest{
@@ -463,5 +464,18 @@ func TestDialOptions(t *testing.T) {
 				t.Errorf("got %v; want an error containing %q", err, tc.wantErr)
 			}
 		})
+	}
+}
+
+// TestDefaultsMatchServer: the client's keepalive pings are no more frequent
+// than the server's enforcement policy allows (else the server would close
+// the connection with too_many_pings), and its message limit equals the
+// server's.
+func TestDefaultsMatchServer(t *testing.T) {
+	if client.DefaultKeepaliveTime < server.KeepaliveMinTime {
+		t.Errorf("client pings every %v; the server allows one every %v at most", client.DefaultKeepaliveTime, server.KeepaliveMinTime)
+	}
+	if client.DefaultMaxMessageBytes != server.DefaultMaxMsgBytes {
+		t.Errorf("client message limit %d bytes; server %d", client.DefaultMaxMessageBytes, server.DefaultMaxMsgBytes)
 	}
 }

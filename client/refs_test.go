@@ -186,3 +186,25 @@ func TestServiceConfig(t *testing.T) {
 		})
 	}
 }
+
+// sink keeps benchmark results alive.
+var sink modelKey
+
+// BenchmarkKeyOf: the client-side cost of recognising a model it has sent
+// before (deterministic marshal + SHA-256), paid on every call with an
+// inline model, for models of increasing size.
+func BenchmarkKeyOf(b *testing.B) {
+	for _, sites := range []int{1, 64, 512} {
+		c := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 10}, {Y: 10}, {Z: 10}}}
+		for i := range sites {
+			c.Sites = append(c.Sites, &modegridv1.Site{Label: "A", MassAmu: 40, Frac: []float64{float64(i) / float64(sites), 0, 0}})
+			c.Springs = append(c.Springs, &modegridv1.Spring{From: uint32(i), To: uint32((i + 1) % sites), Cell: []int32{0, 0, 0}, KLong: 1})
+		}
+		src := Inline(c)
+		b.Run(fmt.Sprintf("sites=%d", sites), func(b *testing.B) {
+			for b.Loop() {
+				sink, _ = keyOf(src)
+			}
+		})
+	}
+}

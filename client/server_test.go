@@ -22,22 +22,40 @@ import (
 	"github.com/materials-lab/modegrid/server"
 )
 
-// startServer serves the real modegrid service on a fresh loopback port
-// (or on addr when given) and stops it when the test ends.
-func startServer(t testing.TB, addr string, opts ...grpc.ServerOption) (string, *grpc.Server) {
+// startServer serves the real modegrid server (server.New with its
+// interceptors, limits and health service; opts are added inside them) on a
+// fresh loopback port, or on addr when given. It returns the address and a
+// kill function that stops the server at once, as a crashed replica would;
+// the server is stopped when the test ends in any case.
+func startServer(t testing.TB, addr string, opts ...grpc.ServerOption) (string, func()) {
 	t.Helper()
 	if addr == "" {
 		addr = "127.0.0.1:0"
+	}
+	srv, err := server.New(server.Config{MetricsListen: "off", ServerOptions: opts})
+	if err != nil {
+		t.Fatal(err)
 	}
 	lis, err := net.Listen("tcp", addr)
 	if err != nil {
 		t.Fatalf("listen: %v", err)
 	}
-	gs := grpc.NewServer(opts...)
-	server.Register(gs, server.NewService())
-	go gs.Serve(lis)
-	t.Cleanup(gs.Stop)
-	return lis.Addr().String(), gs
+	served := make(chan struct{})
+	go func() {
+		defer close(served)
+		srv.Serve(lis)
+	}()
+	var once sync.Once
+	kill := func() {
+		once.Do(func() {
+			ctx, cancel := context.WithCancel(context.Background())
+			cancel() // no grace: stop now
+			srv.Shutdown(ctx)
+			<-served
+		})
+	}
+	t.Cleanup(kill)
+	return lis.Addr().String(), kill
 }
 
 // call is one call seen by a recorder.

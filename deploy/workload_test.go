@@ -133,7 +133,7 @@ func mixedWorkload(rng *rand.Rand, models []*modegridv1.Crystal, n int) []call {
 			calls = append(calls, call{name: fmt.Sprintf("modes grid %d %s", meshN, m.Name), do: func(ctx context.Context, c *client.Client) (proto.Message, error) { return c.Modes(ctx, req) }})
 		case k < 65:
 			req := &modegridv1.ComputeDispersionRequest{Model: src, Points: []uint32{21, 51}[rng.IntN(2)], Path: []*modegridv1.PathPoint{
-				{Label: "G", Q: qAlong(m, 0)}, {Label: "A", Q: qAlong(m, 0.5)}, {Label: "B", Q: &modegridv1.QPoint{Q1: 0.5}},
+				{Label: "G", Q: qAlong(m, 0)}, {Label: "A", Q: qAlong(m, 0.5)}, {Label: "B", Q: &modegridv1.QPoint{Q1: 0.25}},
 			}}
 			calls = append(calls, call{name: "dispersion " + m.Name, do: func(ctx context.Context, c *client.Client) (proto.Message, error) { return c.Dispersion(ctx, req) }})
 		case k < 80:

@@ -59,6 +59,11 @@ type Model struct {
 
 	hash string // canonical SHA-256, hex (hash.go)
 
+	// lambdaScale bounds every eigenvalue of D(q) at any q (Gershgorin:
+	// the largest row sum of |Φ|/sqrt(m_i m_j) over all terms), eV/Å²/amu;
+	// the scale of the velocity tolerances.
+	lambdaScale float64
+
 	shells           []ShellInfo
 	interactions     int
 	sumRuleViolation float64 // eV/Å², before enforcement
@@ -240,6 +245,17 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		m.terms = append(m.terms, t)
 	}
 	m.buildBlocks()
+	rows := make([]float64, m.Modes())
+	for _, t := range m.terms {
+		for a := 0; a < m.p; a++ {
+			for b := 0; b < m.p; b++ {
+				rows[t.i*m.p+a] += math.Abs(t.phi[3*a+b])
+			}
+		}
+	}
+	for _, r := range rows {
+		m.lambdaScale = math.Max(m.lambdaScale, r)
+	}
 	m.hash = m.canonicalHash(raw)
 	m.latticeType, m.standard = detectLattice(m)
 	return m, nil

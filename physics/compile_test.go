@@ -4,6 +4,7 @@ package physics
 
 import (
 	"math"
+	"math/rand/v2"
 	"testing"
 )
 
@@ -50,5 +51,94 @@ func TestShellBondCounts(t *testing.T) {
 				t.Errorf("Interactions = %d; want %d", m.Interactions(), total)
 			}
 		})
+	}
+}
+
+// TestRandomModelsNeverPanic: random crystals, valid or not (NaN, zero
+// masses, wild indices and offsets, random lattices of 1–4 vectors), give a
+// model or a *ValidationError, never a panic; valid ones give finite
+// frequencies, a lattice type or "", and a path through Γ.
+func TestRandomModelsNeverPanic(t *testing.T) {
+	rng := rand.New(rand.NewPCG(61, 7))
+	// rare returns bad with probability 1/12, else good.
+	rare := func(good, bad float64) float64 {
+		if rng.IntN(12) == 0 {
+			return bad
+		}
+		return good
+	}
+	rareInt := func(good, bad int) int { return int(rare(float64(good), float64(bad))) }
+	valid := 0
+	for iter := 0; iter < 400; iter++ {
+		d := 1 + rng.IntN(3)
+		if rng.IntN(20) == 0 {
+			d = 4
+		}
+		c := &Crystal{Polarizations: rareInt(rng.IntN(4), 5)}
+		for k := 0; k < d; k++ {
+			var v [3]float64
+			for a := range v {
+				v[a] = rng.NormFloat64() * 3
+			}
+			v[k%3] += 4
+			c.Lattice = append(c.Lattice, v)
+		}
+		ns := rareInt(1+rng.IntN(3), 0)
+		for i := 0; i < ns; i++ {
+			s := Site{Label: string(rune('A' + i%2)), MassAmu: rare(1+30*rng.Float64(), []float64{0, -1, math.NaN()}[rng.IntN(3)])}
+			fl := d
+			if rng.IntN(40) == 0 {
+				fl++
+			}
+			for k := 0; k < fl; k++ {
+				s.Frac = append(s.Frac, rng.Float64())
+			}
+			c.Sites = append(c.Sites, s)
+		}
+		cell := func() []int {
+			n := make([]int, d)
+			for k := range n {
+				n[k] = rng.IntN(5) - 2
+			}
+			return n
+		}
+		for k := rng.IntN(4); k > 0; k-- {
+			c.Springs = append(c.Springs, Spring{From: rareInt(rng.IntN(max(ns, 1)), -1), To: rareInt(rng.IntN(max(ns, 1)), ns), Cell: cell(),
+				KLong: rare(rng.Float64()*2-0.3, math.Inf(1)), KTrans: rng.Float64()})
+		}
+		for k := rng.IntN(3); k > 0; k-- {
+			c.Shells = append(c.Shells, Shell{FromLabel: "A", ToLabel: string(rune('A' + rareInt(0, 2))), Shell: rareInt(1+rng.IntN(3), 0), KLong: 1})
+		}
+		for k := rng.IntN(3); k > 0; k-- {
+			phi := make([]float64, rareInt(9, 8))
+			for a := range phi {
+				phi[a] = rng.NormFloat64()
+			}
+			c.Blocks = append(c.Blocks, Block{From: rng.IntN(max(ns, 1)), To: rareInt(rng.IntN(max(ns, 1)), ns+3), Cell: cell(), Phi: phi})
+		}
+		m, err := Compile(c, Options{EnforceSumRule: rng.IntN(2) == 0, Limits: Limits{MaxCellOffset: 3}})
+		if err != nil {
+			violationsOf(t, err) // must be a *ValidationError
+			continue
+		}
+		valid++
+		for _, q := range randomQs(rng, 2) {
+			for k := m.Dim(); k < 3; k++ {
+				q[k] = 0
+			}
+			pm := m.Point(q, ModeOptions{Eigenvectors: true, Velocities: true})
+			for _, f := range pm.FreqTHz {
+				if math.IsNaN(f) || math.IsInf(f, 0) {
+					t.Fatalf("model %d: non-finite frequency %v", iter, pm.FreqTHz)
+				}
+			}
+		}
+		_ = m.LatticeType()
+		if _, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 5, Connect: true}); err != nil {
+			t.Fatalf("model %d: path: %v", iter, err)
+		}
+	}
+	if valid < 40 {
+		t.Errorf("only %d of 400 random models were valid; the test needs more", valid)
 	}
 }

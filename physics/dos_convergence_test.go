@@ -29,10 +29,10 @@ func convergenceL1(g, ref []float64) float64 {
 // (segment) method and Gaussian smearing need to bring the DOS within 1 %
 // (relative L1) of the converged answer: in 1D the chain's closed form
 // (2/π)/sqrt(ν_max² − ν²) (Ashcroft & Mermin ch. 23), in 3D the
-// tetrahedron DOS of the rock-salt-like example on a 128³ grid. All DOS are
+// tetrahedron DOS of the rock-salt-like and fcc examples on a 128³ grid. All DOS are
 // bin averages on 200 bins up to 1.05 ν_max. Gaussian smearing is shown at
-// its default width ν_max/(2^(d−1)·N^(1/d)) and at the best of ⅛…4 times that
-// width for each grid (an oracle a user does not have). The test fails if
+// its default width ν_max/(c_d·N^(1/d)), c_d = 1, 2, 8, and at the best of
+// ⅛…4 times that width for each grid (an oracle a user does not have). The test fails if
 // the tetrahedron method never reaches 1 %, or needs more points than the
 // Gaussian. The markdown table goes to the test log.
 func TestDOSConvergenceTable(t *testing.T) {
@@ -89,22 +89,25 @@ func TestDOSConvergenceTable(t *testing.T) {
 	}
 	study("1D monatomic chain (reference: closed form)", rows)
 
-	// 3D: the rock-salt-like example against a 128³ tetrahedron DOS.
-	m = mustCompile(t, loadExample(t, "rocksalt-like"))
-	big := modesOn(t, m, GridSpec{Mesh: [3]int{128, 128, 128}}, GridOptions{})
-	top := spectrumStats(big).maxTHz
-	window = DOSOptions{Max: 1.05 * top, Step: 1.05 * top / 200}
-	ref = mustDOS(t, m, big, window).DOS
-	check := mustDOS(t, m, modesOn(t, m, GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{}), window).DOS
-	fmt.Fprintf(&report, "\n(3D reference check: tetrahedra on 96³ differ from 128³ by %.2g %% L1.)\n", 100*convergenceL1(check, ref))
-	rows = nil
-	for _, n := range []int{4, 6, 8, 12, 16, 24, 32, 48, 64, 96} {
-		g := modesOn(t, m, GridSpec{Mesh: [3]int{n, n, n}}, GridOptions{})
-		r := gaussRow(t, m, g, window, ref, factors, n, n*n*n)
-		r.tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
-		rows = append(rows, r)
+	// 3D: the rock-salt-like and fcc examples against 128³ tetrahedron DOS.
+	for _, name := range []string{"rocksalt-like", "fcc"} {
+		m = mustCompile(t, loadExample(t, name))
+		big := modesOn(t, m, GridSpec{Mesh: [3]int{128, 128, 128}}, GridOptions{})
+		top := spectrumStats(big).maxTHz
+		window = DOSOptions{Max: 1.05 * top, Step: 1.05 * top / 200}
+		ref = mustDOS(t, m, big, window).DOS
+		check := mustDOS(t, m, modesOn(t, m, GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{}), window).DOS
+		big = nil
+		fmt.Fprintf(&report, "\n(%s reference check: tetrahedra on 96³ differ from 128³ by %.2g %% L1.)\n", name, 100*convergenceL1(check, ref))
+		rows = nil
+		for _, n := range []int{4, 6, 8, 12, 16, 24, 32, 48, 64, 96} {
+			g := modesOn(t, m, GridSpec{Mesh: [3]int{n, n, n}}, GridOptions{})
+			r := gaussRow(t, m, g, window, ref, factors, n, n*n*n)
+			r.tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
+			rows = append(rows, r)
+		}
+		study(fmt.Sprintf("3D %s example (reference: tetrahedra on 128³)", name), rows)
 	}
-	study("3D rock-salt-like example (reference: tetrahedra on 128³)", rows)
 	t.Log(report.String())
 }
 

@@ -452,8 +452,8 @@ func TestHistogramFiniteCrystal(t *testing.T) {
 	}
 }
 
-// TestGaussianWidth: the default width is ν_top / (2^(d−1)·N^(1/d)), as
-// documented,
+// TestGaussianWidth: the default width is ν_top / (c_d·N^(1/d)), c_d = 1,
+// 2, 8, as documented,
 // and is reported; a given width is used as is; a broad Gaussian and the
 // tetrahedron DOS agree in the mean frequency ⟨ν⟩ = ∫νg/∫g, which smearing
 // does not move (common practice).
@@ -461,8 +461,8 @@ func TestGaussianWidth(t *testing.T) {
 	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{10, 10, 10}}, GridOptions{})
 	top := spectrumStats(g).maxTHz
 	def := mustDOS(t, m, g, DOSOptions{Method: Gaussian})
-	if want := top / (4 * 10); math.Abs(def.Width-want) > 1e-12*want {
-		t.Errorf("default width %.6g; want ν_top/(4·N^(1/3)) = %.6g", def.Width, want)
+	if want := top / (8 * 10); math.Abs(def.Width-want) > 1e-12*want {
+		t.Errorf("default width %.6g; want ν_top/(8·N^(1/3)) = %.6g", def.Width, want)
 	}
 	m1, g1 := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{100}}, GridOptions{})
 	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, chainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
@@ -525,6 +525,7 @@ func TestDOSValidation(t *testing.T) {
 		{"not finite", DOSOptions{Min: math.NaN(), Max: math.Inf(1)}, []string{"min", "max"}},
 		{"all at once", DOSOptions{Method: 7, Unit: -1, Step: -2, Min: 3, Max: 2}, []string{"method", "unit", "max", "step"}},
 		{"too many samples", DOSOptions{Max: 10, Step: 1e-6}, []string{"step"}},
+		{"tiny step", DOSOptions{Max: 10, Step: 1e-300}, []string{"step"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := ComputeDOS(specCtx(t), m, g, tc.opt)
@@ -545,6 +546,9 @@ func TestDOSValidation(t *testing.T) {
 				t.Errorf("fields %v; want %v (%v)", got, want, err)
 			}
 		})
+	}
+	if r, err := ComputeDOS(specCtx(t), m, g, DOSOptions{Max: 1e-300}); err != nil || len(r.Freq) != DefaultDOSBins+1 {
+		t.Errorf("a window of 1e-300 THz: %v; want %d samples", err, DefaultDOSBins+1)
 	}
 	if _, err := ComputeDOS(specCtx(t), m, g, DOSOptions{PerSite: true}); err == nil {
 		t.Error("per-site DOS of modes without site weights: no error")

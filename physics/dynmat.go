@@ -129,13 +129,34 @@ func (t *phaseTable) phase(n [3]int, reach [3]int) complex128 {
 }
 
 // assemble writes the lower triangle of D(q) into a (row-major, length
-// Modes()²; the strict upper triangle is zeroed and left so).
-func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable) {
-	clear(a)
-	t.fill(q, m.reach)
+// Modes()²; the strict upper triangle is zeroed and left so). If stop is
+// not nil it is polled every few thousand blocks and between row blocks of
+// the clearing pass (37 MB at 512 sites), and assemble returns false
+// (a unfinished) when it says so.
+func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func() bool) bool {
 	p, nm := m.p, m.Modes()
+	if stop == nil {
+		clear(a)
+	} else {
+		for r := 0; r < nm; r += pollRows + 1 {
+			if stop() {
+				return false
+			}
+			clear(a[r*nm : min(r+pollRows+1, nm)*nm])
+		}
+	}
+	t.fill(q, m.reach)
+	done := 0
 	for ci := range m.cells {
 		cell := &m.cells[ci]
+		if stop != nil {
+			if done += cell.hi - cell.lo; done > 4096 {
+				done = 0
+				if stop() {
+					return false
+				}
+			}
+		}
 		ph := t.phase(cell.n, m.reach)
 		c, s := real(ph), imag(ph)
 		blocks := m.blocks[cell.lo:cell.hi]
@@ -186,21 +207,36 @@ func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable) {
 			}
 		}
 	}
+	return true
 }
 
 // assembleGrad writes the lower triangles of ∂D/∂q_α (α = x, y, z,
 // Cartesian q in Å⁻¹; units eV/Å²/amu·Å) into g[α]: each term's phase
-// e^{iq·R} brings down a factor iR_α.
-func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable) {
+// e^{iq·R} brings down a factor iR_α. stop as for assemble.
+func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable, stop func() bool) bool {
+	p, nm := m.p, m.Modes()
 	for x := 0; x < 3; x++ {
-		clear(g[x])
+		for r := 0; r < nm; r += pollRows + 1 {
+			if stop != nil && stop() {
+				return false
+			}
+			clear(g[x][r*nm : min(r+pollRows+1, nm)*nm])
+		}
 	}
 	t.fill(q, m.reach)
-	p, nm := m.p, m.Modes()
+	done := 0
 	for ci := range m.cells {
 		cell := &m.cells[ci]
 		if cell.n == ([3]int{}) {
 			continue // R = 0
+		}
+		if stop != nil {
+			if done += cell.hi - cell.lo; done > 4096 {
+				done = 0
+				if stop() {
+					return false
+				}
+			}
 		}
 		ph := t.phase(cell.n, m.reach)
 		c, s := real(ph), imag(ph)
@@ -230,6 +266,7 @@ func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable) {
 			}
 		}
 	}
+	return true
 }
 
 // fillUpper completes a Hermitian matrix from its lower triangle.
@@ -258,7 +295,7 @@ func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 	}
 	out = out[:nm*nm]
 	var t phaseTable
-	m.assemble(q, out, &t)
+	m.assemble(q, out, &t, nil)
 	fillUpper(out, nm)
 	return out
 }
@@ -276,7 +313,7 @@ func (m *Model) DynamicalMatrixGrad(q [3]float64) [3][]complex128 {
 		g[x] = make([]complex128, nm*nm)
 	}
 	var t phaseTable
-	m.assembleGrad(q, &g, &t)
+	m.assembleGrad(q, &g, &t, nil)
 	for x := range g {
 		fillUpper(g[x], nm)
 	}

@@ -129,11 +129,15 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 		}
 		return solveOK
 	}
-	// Scale by a power of two (exact) so that the largest element is near
-	// 1: sqrt(a² + b²) below can then neither overflow nor lose everything
-	// to underflow.
+	// Scale by a power of two (exact) so that the largest element is not
+	// far from 1: sqrt(a² + b²) below can then neither overflow nor lose
+	// everything to underflow.
 	var amax float64
+	poll := n >= cancelCheckModes
 	for i := 0; i < n; i++ {
+		if poll && i&pollRows == pollRows && w.stopped() {
+			return solveStopped
+		}
 		for _, z := range w.a[i*n : i*n+i+1] {
 			amax = max(amax, math.Abs(real(z)), math.Abs(imag(z)))
 		}
@@ -141,10 +145,18 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 	if amax == 0 || math.IsInf(amax, 0) || math.IsNaN(amax) {
 		return w.trivial(amax, vectors)
 	}
+	// Within 2^±200 nothing can overflow or underflow harmfully, and the
+	// pass is skipped.
 	_, exp := math.Frexp(amax)
+	if exp > -200 && exp < 200 {
+		exp = 0
+	}
 	if exp != 0 {
 		s := complex(math.Ldexp(1, -exp), 0)
 		for i := 0; i < n; i++ {
+			if poll && i&pollRows == pollRows && w.stopped() {
+				return solveStopped
+			}
 			row := w.a[i*n : i*n+i+1]
 			for j := range row {
 				row[j] *= s
@@ -155,9 +167,13 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 		return solveStopped
 	}
 	if vectors {
-		clear(w.zt)
 		for k := 0; k < n; k++ {
-			w.zt[k*n+k] = 1
+			if poll && k&pollRows == pollRows && w.stopped() {
+				return solveStopped
+			}
+			row := w.zt[k*n : (k+1)*n]
+			clear(row)
+			row[k] = 1
 		}
 	}
 	st := w.ql(vectors)
@@ -258,11 +274,16 @@ func (w *eigenWork) tridiagonalize() bool {
 			continue
 		}
 		beta := -math.Copysign(math.Sqrt(ar*ar+ai*ai+xnorm2), ar)
-		tau := complex((beta-ar)/beta, -ai/beta)
+		ib := 1 / beta
+		tau := complex((beta-ar)*ib, -ai*ib)
 		v := w.hv[k*n : (k+1)*n]
 		v[k+1] = 1
 		if k+2 < n {
-			scale := 1 / (alpha - complex(beta, 0))
+			// 1/(α − β) as conj/|·|²: one real division instead of
+			// the runtime's careful complex one (safe after scaling).
+			zr, zi := ar-beta, ai
+			inv := 1 / (zr*zr + zi*zi)
+			scale := complex(zr*inv, -zi*inv)
 			for i := k + 2; i < n; i++ {
 				v[i] = a[i*n+k] * scale
 			}
@@ -322,8 +343,8 @@ func (w *eigenWork) tridiagonalize() bool {
 // with Wilkinson's shift, as in the procedures tql/imtql of Bowdler, Martin,
 // Reinsch & Wilkinson (Numer. Math. 11, 293 (1968)): for each l, sweeps of
 // Givens rotations chase the bulge from the first negligible sub-diagonal
-// element m up to l until e[l] is negligible, |e| ≤ ε(|d_m| + |d_{m+1}|).
-// A 2×2 block left over is diagonalised directly. With vectors, each
+// element m up to l until e[l] is negligible (tridiagTol). A 2×2 block
+// left over is diagonalised directly. With vectors, each
 // rotation is also applied to rows i, i+1 of w.zt (rows of zt are the
 // eigenvectors of T, a layout that keeps the update contiguous); without,
 // the root-free variant qlValues is used.
@@ -332,13 +353,14 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 		return w.qlValues()
 	}
 	n, d, e := w.n, w.d, w.e
+	tol := w.tridiagTol()
 	e[n-1] = 0
 	poll := n >= cancelCheckModes
 	for l := 0; l < n; l++ {
 		for iter := 0; ; iter++ {
 			m := l
 			for ; m < n-1; m++ {
-				if math.Abs(e[m]) <= epsilon*(math.Abs(d[m])+math.Abs(d[m+1])) {
+				if math.Abs(e[m]) <= tol {
 					break
 				}
 			}
@@ -370,7 +392,7 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 				b := c * e[i]
 				// sqrt(f² + g²): no overflow after scaling, and an
 				// underflow to 0 only when both are negligible next to
-				// the unit norm, which the split below then treats right.
+				// the norm (≥ 2⁻²⁰⁰), which the split below treats right.
 				r = math.Sqrt(f*f + g*g)
 				e[i+1] = r
 				if r == 0 {
@@ -408,6 +430,21 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 		}
 	}
 	return solveOK
+}
+
+// tridiagTol is the size below which a sub-diagonal element of the
+// tridiagonal counts as zero: ε‖T‖, with ‖T‖ bounded by max |d| + 2 max |e|.
+// The reduction already made errors of ε‖A‖ in every eigenvalue, so a test
+// relative to each |d| (as in the classic tql) would buy only iterations.
+func (w *eigenWork) tridiagTol() float64 {
+	var dmax, emax float64
+	for i := 0; i < w.n; i++ {
+		dmax = max(dmax, math.Abs(w.d[i]))
+		if i < w.n-1 {
+			emax = max(emax, math.Abs(w.e[i]))
+		}
+	}
+	return epsilon * (dmax + 2*emax)
 }
 
 // jacobi2 returns the rotation (c, s) and the eigenvalues (λ₁, λ₂) of the
@@ -455,18 +492,11 @@ func (w *eigenWork) rotate2(l int) {
 // needs no square root per rotation; the shift is that of ql.
 func (w *eigenWork) qlValues() solveStatus {
 	n, d, e2 := w.n, w.d, w.e
-	// Negligible: e² ≤ (ε‖T‖)², with ‖T‖ bounded by max |d| + 2 max |e|.
-	// The reduction already made errors of ε‖A‖ in every eigenvalue, so a
-	// test relative to each |d| would buy only iterations.
-	var dmax, emax float64
+	tol := w.tridiagTol()
 	for i := 0; i < n-1; i++ {
-		dmax = max(dmax, math.Abs(d[i]))
-		emax = max(emax, math.Abs(e2[i]))
 		e2[i] *= e2[i]
 	}
-	dmax = max(dmax, math.Abs(d[n-1]))
 	e2[n-1] = 0
-	tol := epsilon * (dmax + 2*emax)
 	tol2 := tol * tol
 	for l := 0; l < n; l++ {
 		for iter := 0; ; iter++ {

@@ -107,7 +107,7 @@ func BenchmarkTwoSiteEigenvalues(b *testing.B) {
 		b.ReportAllocs()
 		i := 0
 		for b.Loop() {
-			m.assemble(qs[i%len(qs)], w.a, &t)
+			m.assemble(qs[i%len(qs)], w.a, &t, nil)
 			i++
 		}
 	})

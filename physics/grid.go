@@ -70,8 +70,14 @@ func (g GridSpec) normalize(dim int, prefix string) (GridSpec, error) {
 		vs.add(prefix, "a finite crystal has no shifted grid")
 	}
 	if len(vs.list) == 0 {
-		if n := g.Mesh[0] * g.Mesh[1] * g.Mesh[2]; n > MaxGridPoints || n < 0 {
-			vs.add(prefix, "%d points is more than the engine limit of %d", n, MaxGridPoints)
+		// Multiply step by step so that huge meshes cannot overflow.
+		n := 1
+		for _, x := range g.Mesh {
+			if n > MaxGridPoints/x {
+				vs.add(prefix, "%d×%d×%d points is more than the engine limit of %d", g.Mesh[0], g.Mesh[1], g.Mesh[2], MaxGridPoints)
+				break
+			}
+			n *= x
 		}
 	}
 	return g, vs.err()
@@ -160,12 +166,19 @@ type GridModes struct {
 	// Eigvecs holds, when asked, the eigenvectors of every point:
 	// Eigvecs[(i*NModes+k)*NModes+c]. Nil unless asked.
 	Eigvecs []complex128
+	// SiteTensor holds, when asked, Re(e_{sα} e*_{sβ}) of mode k at point i
+	// for each site s and α ≤ β < P (pairs in the order (0,0), (0,1), …,
+	// (0,P−1), (1,1), …): SiteTensor[((i*NModes+k)*NSites+s)*P(P+1)/2 +
+	// pair] — the per-site displacement tensors that mean-square
+	// displacements need, in memory that grows with sites, not sites².
+	SiteTensor []float64
 }
 
 // GridOptions selects what GridModes keeps beyond frequencies.
 type GridOptions struct {
 	Projections  bool // per-site weights
 	Eigenvectors bool // full eigenvectors (memory: N·n² complex numbers)
+	SiteTensors  bool // per-site displacement tensors (GridModes.SiteTensor)
 }
 
 // GridModes diagonalises D(q) on every point of the grid, spread over all
@@ -180,12 +193,17 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	nm, ns := m.Modes(), m.nsites
 	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: m.p,
 		FreqTHz: make([]float64, len(pts)*nm)}
-	vec := opt.Projections || opt.Eigenvectors
+	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
 	if opt.Projections {
 		g.SiteWeight = make([]float64, len(pts)*nm*ns)
 	}
 	if opt.Eigenvectors {
 		g.Eigvecs = make([]complex128, len(pts)*nm*nm)
+	}
+	p := m.p
+	pairs := p * (p + 1) / 2
+	if opt.SiteTensors {
+		g.SiteTensor = make([]float64, len(pts)*nm*ns*pairs)
 	}
 	err = parallelWork(ctx, len(pts), func(done <-chan struct{}) func(i int) bool {
 		w := m.newPointWork(done)
@@ -203,6 +221,22 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 					e := w.eig.vecs[k*nm : (k+1)*nm]
 					for c, z := range e {
 						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
+					}
+				}
+			}
+			if opt.SiteTensors {
+				st := g.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
+				for k := 0; k < nm; k++ {
+					for s := 0; s < ns; s++ {
+						e := w.eig.vecs[k*nm+s*p : k*nm+(s+1)*p]
+						t := st[(k*ns+s)*pairs : (k*ns+s+1)*pairs]
+						x := 0
+						for a := 0; a < p; a++ {
+							for b := a; b < p; b++ {
+								t[x] = real(e[a])*real(e[b]) + imag(e[a])*imag(e[b])
+								x++
+							}
+						}
 					}
 				}
 			}

@@ -276,6 +276,37 @@ func TestGridModesMatchesPoints(t *testing.T) {
 	}
 }
 
+// TestGridSiteTensors: SiteTensor holds Re(e_sα e*_sβ) of the
+// eigenvectors, its trace is the site weight (definitions).
+func TestGridSiteTensors(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	g, err := m.GridModes(testCtx(t), GridSpec{Mesh: [3]int{2, 3, 2}}, GridOptions{SiteTensors: true, Eigenvectors: true, Projections: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	n, ns := g.NModes, g.NSites
+	for i := range g.Points {
+		for k := 0; k < n; k++ {
+			for s := 0; s < ns; s++ {
+				tt := g.SiteTensor[((i*n+k)*ns+s)*6 : ((i*n+k)*ns+s+1)*6]
+				e := g.Eigvecs[(i*n+k)*n+3*s : (i*n+k)*n+3*s+3]
+				x := 0
+				for a := 0; a < 3; a++ {
+					for b := a; b < 3; b++ {
+						if want := real(e[a] * cmplx.Conj(e[b])); math.Abs(tt[x]-want) > 1e-15 {
+							t.Fatalf("point %d mode %d site %d pair (%d,%d): %v; want %v", i, k, s, a, b, tt[x], want)
+						}
+						x++
+					}
+				}
+				if tr := tt[0] + tt[3] + tt[5]; math.Abs(tr-g.SiteWeight[(i*n+k)*ns+s]) > 1e-14 {
+					t.Fatalf("trace %v; site weight %v", tr, g.SiteWeight[(i*n+k)*ns+s])
+				}
+			}
+		}
+	}
+}
+
 // TestGridModesCancel: a cancelled context stops GridModes with its error.
 func TestGridModesCancel(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
@@ -283,5 +314,33 @@ func TestGridModesCancel(t *testing.T) {
 	cancel()
 	if _, err := m.GridModes(ctx, GridSpec{Mesh: [3]int{64, 64, 64}}, GridOptions{}); !errors.Is(err, context.Canceled) {
 		t.Fatalf("err = %v; want context.Canceled", err)
+	}
+}
+
+// TestGridSpecLimits: meshes must be ≥ 1 along d, 1 past d, and at most
+// MaxGridPoints in all, without integer overflow on absurd sizes.
+func TestGridSpecLimits(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		dim   int
+		mesh  [3]int
+		field string
+	}{
+		{"zero along d", 3, [3]int{4, 0, 4}, "mesh[1]"},
+		{"negative", 1, [3]int{-2}, "mesh[0]"},
+		{"past d", 2, [3]int{4, 4, 2}, "mesh[2]"},
+		{"too many points", 3, [3]int{1024, 1024, 1024}, "mesh"},
+		{"overflowing product", 3, [3]int{1 << 31, 1 << 31, 4}, "mesh"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := GridSpec{Mesh: tc.mesh}.Normalize(tc.dim)
+			vs := violationsOf(t, err)
+			if len(vs) == 0 || vs[0].Field != tc.field {
+				t.Fatalf("violations %v; want one on %s", vs, tc.field)
+			}
+		})
+	}
+	if _, err := (GridSpec{Mesh: [3]int{4, 4}, Finite: true, Shifted: true}).Normalize(2); err == nil {
+		t.Error("a shifted finite crystal must be refused")
 	}
 }

@@ -88,7 +88,7 @@ func detectLattice(m *Model) (string, map[string][3]float64) {
 		typ, frames = classify3D(m, user)
 	}
 	pts := map[string][3]float64{"G": {}}
-	if typ == "" {
+	if typ == "" || len(frames) == 0 {
 		return "", pts
 	}
 	// The standard cell closest to the caller's vectors.

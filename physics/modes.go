@@ -95,7 +95,13 @@ func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
 // solve diagonalises D(q) into w.eig.vals (eigenvalues, eV/Å²/amu,
 // ascending) and, with vectors, w.eig.vecs. It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
-	w.m.assemble(q, w.eig.a, &w.ph)
+	var stop func() bool
+	if w.done != nil && w.m.Modes() >= cancelCheckModes {
+		stop = w.stopped
+	}
+	if !w.m.assemble(q, w.eig.a, &w.ph, stop) {
+		return false
+	}
 	switch w.eig.solve(vectors) {
 	case solveStopped:
 		return false
@@ -172,7 +178,14 @@ func (w *pointWork) point(pm *PointModes, opt ModeOptions) bool {
 	w.freqs(pm.FreqTHz)
 	pm.Imaginary = imaginary(pm.FreqTHz)
 	if opt.Eigenvectors {
-		copy(pm.Eigvecs, w.eig.vecs)
+		n := w.m.Modes()
+		for r := 0; r < n; r += pollRows + 1 { // 37 MB at 512 sites
+			if n >= cancelCheckModes && w.stopped() {
+				return false
+			}
+			hi := min(r+pollRows+1, n) * n
+			copy(pm.Eigvecs[r*n:hi], w.eig.vecs[r*n:hi])
+		}
 	}
 	return true
 }
@@ -281,6 +294,9 @@ var testHookChunkDone func(c int)
 
 // chunk computes one chunk; false if stopped.
 func (w *pointWork) chunk(pts []QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
+	if w.stopped() {
+		return ModeChunk{}, false
+	}
 	mc := ModeChunk{Offset: offset, Points: make([]PointModes, len(pts))}
 	freq := make([]float64, len(pts)*n)
 	var vecs []complex128

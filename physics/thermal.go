@@ -107,8 +107,9 @@ const (
 // x = hν/kT, n = 1/(eˣ − 1), over every mode with weight w of its q-point.
 // Modes at or below zero (|ν| within ZeroModeTol of the highest) are left
 // out: they carry no energy and their entropy is not defined. Imaginary
-// modes (as counted by DOSResult.Imaginary) make it fail with an error wrapping ErrUnstable
-// unless opt.AllowUnstable, which leaves them out and counts them. For a
+// modes (as counted by DOSResult.Imaginary) make it fail with an error
+// wrapping ErrUnstable unless opt.AllowUnstable, which leaves them out and
+// counts them. For a
 // finite crystal (GridSpec.Finite) every quantity is the exact sum over its
 // allowed modes. Bad options give a *ValidationError naming the fields
 // ("temperatures_k[3]", "route").

@@ -22,7 +22,7 @@ import (
 var VelocityUnitKmS = OmegaUnitRadPerS * 1e-10 / 1e3
 
 // Degeneracy and zero-mode tolerances for velocities, relative to the
-// largest |λ| at the point.
+// model's bound on |λ| (Model.lambdaScale).
 const (
 	// degenerateTol groups modes with |λ_k − λ_{k+1}| below it: eigenvector
 	// errors inside a cluster scale as ε‖D‖/gap, so clusters closer than
@@ -94,20 +94,21 @@ func dotc(a, b []complex128) complex128 {
 func (v *velWork) velocities(pw *pointWork, q [3]float64, dir [3]float64, out [][3]float64) bool {
 	n := v.n
 	m := pw.m
-	m.assembleGrad(q, &v.grad, &pw.ph)
+	var stop func() bool
+	if n >= cancelCheckModes && pw.done != nil {
+		stop = pw.stopped
+	}
+	if !m.assembleGrad(q, &v.grad, &pw.ph, stop) {
+		return false
+	}
 	if norm3(dir) == 0 {
 		dir = defaultVelocityDir
 	}
 	dir = scale3(dir, 1/norm3(dir))
 	vals, vecs := pw.eig.vals, pw.eig.vecs
-	var scale float64
-	for _, l := range vals {
-		scale = math.Max(scale, math.Abs(l))
-	}
-	var stop func() bool
-	if n >= cancelCheckModes && pw.done != nil {
-		stop = pw.stopped
-	}
+	// The model's eigenvalue bound, not this point's largest eigenvalue:
+	// at Γ of a one-site model every eigenvalue is rounding noise.
+	scale := m.lambdaScale
 	for lo := 0; lo < n; {
 		hi := lo + 1
 		for hi < n && vals[hi]-vals[hi-1] <= degenerateTol*scale {

@@ -173,3 +173,21 @@ func TestSoundVelocities(t *testing.T) {
 		t.Errorf("N/m model: %v; want %v", g, got)
 	}
 }
+
+// TestVelocitiesAtGamma: at Γ the acoustic modes get velocity 0 (their
+// slope depends on the direction, see SoundVelocities) and, in these
+// centrosymmetric crystals, so do the optical ones (ω(q) = ω(−q) makes
+// ∂ω/∂q vanish at Γ; common practice); all finite.
+func TestVelocitiesAtGamma(t *testing.T) {
+	for _, name := range []string{"fcc", "rocksalt-like", "chain", "square-net"} {
+		m := mustCompile(t, loadExample(t, name))
+		pm := m.Point([3]float64{}, ModeOptions{Velocities: true})
+		for k, v := range pm.VelKmS {
+			for _, x := range v {
+				if math.IsNaN(x) || math.Abs(x) > 1e-9 {
+					t.Errorf("%s mode %d at Γ: v = %v", name, k, v)
+				}
+			}
+		}
+	}
+}

@@ -91,7 +91,8 @@ type Config struct {
 
 	// ChunkPoints is the default number of q-points per streamed modes
 	// message (0 → 256); MaxChunkBytes bounds a message's mode data
-	// (0 → 1 MiB), whatever chunk size a client asks for.
+	// (0 → 1 MiB, or a quarter of MaxMsgBytes if less), whatever chunk
+	// size a client asks for.
 	ChunkPoints   int
 	MaxChunkBytes int
 
@@ -167,7 +168,7 @@ func (c Config) withDefaults() Config {
 	setInt(&c.MaxDOSBins, DefaultMaxDOSBins)
 	setInt(&c.MaxMsgBytes, DefaultMaxMsgBytes)
 	setInt(&c.ChunkPoints, DefaultChunkPoints)
-	setInt(&c.MaxChunkBytes, DefaultMaxChunkBytes)
+	setInt(&c.MaxChunkBytes, min(DefaultMaxChunkBytes, c.MaxMsgBytes/4))
 	setInt(&c.StabilityMesh, DefaultStabilityMesh)
 	if c.ShutdownGrace == 0 {
 		c.ShutdownGrace = DefaultShutdownGrace

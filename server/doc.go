@@ -36,7 +36,8 @@ package server
 // diagonalise once. Modes streams are not cached.
 //
 // The in-process cache is one LRU bounded in bytes (Config.CacheBytes,
-// default 512 MiB, negative disables it); concurrent identical requests
+// default 512 MiB, negative disables it — references by hash then work
+// only through a Backend); concurrent identical requests
 // wait for one computation (golang.org/x/sync/singleflight). The
 // computation is cancelled only when every request waiting for it has gone.
 // With a Backend (Redis, --redis-addr), results and models are also stored

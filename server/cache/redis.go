@@ -19,7 +19,8 @@ const (
 	// bounds the memory a shared Redis spends on models nobody asks for.
 	DefaultRedisTTL = 24 * time.Hour
 	// DefaultRedisMaxEntryBytes is the largest value stored; larger results
-	// (dense grids with eigenvectors) stay in the in-memory LRU only.
+	// (a fine DOS with per-site projections, a long dispersion of a big
+	// cell) stay in the in-memory LRU only.
 	DefaultRedisMaxEntryBytes = 4 << 20
 	// DefaultRedisTimeout bounds every Redis operation, dial included. A
 	// loopback or in-cluster round trip takes well under a millisecond, so

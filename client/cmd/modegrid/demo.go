@@ -80,10 +80,15 @@ func cmdDemo(args []string, e *env) error {
 		files += n
 	}
 	e.prog.clear()
-	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintln(tw, "crystal\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/mol/K)\tθD(300 K) (K)\tzero-point (kJ/mol)\t")
+	width := len("crystal")
 	for _, r := range rows {
-		fmt.Fprintf(tw, "%s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%.1f\t%.4f\t\n", r.name, r.dim, r.sites, r.modes,
+		width = max(width, len(r.name))
+	}
+	// Names left-aligned (padded here), numbers right-aligned.
+	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/mol/K)\tθD(300 K) (K)\tzero-point (kJ/mol)\t\n", width, "crystal")
+	for _, r := range rows {
+		fmt.Fprintf(tw, "%-*s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%.1f\t%.4f\t\n", width, r.name, r.dim, r.sites, r.modes,
 			map[bool]string{true: "yes", false: "no"}[r.stable], r.maxTHz, r.cv300, r.theta300, r.zpe)
 	}
 	if err := tw.Flush(); err != nil {

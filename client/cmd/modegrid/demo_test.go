@@ -6,15 +6,18 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/plot/vg"
+
 	"github.com/materials-lab/modegrid/proto/examples"
 )
 
 // TestDemo runs the demo end to end on every built-in example (small grid
-// to stay fast): exit 0, a summary row per example, and per example four
-// CSV files with their documented headers and three figures that decode.
+// and SVG figures to stay fast under -race; TestDemoPNG covers the default
+// PNG): exit 0, a summary row per example, and per example four CSV files
+// with their documented headers and three figures that parse.
 func TestDemo(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "out")
-	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "6")
+	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "6", "--plot-format", "svg")
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, stderr)
 	}
@@ -39,10 +42,9 @@ func TestDemo(t *testing.T) {
 				t.Errorf("%s%s header %q; want %q", name, suffix, first, head)
 			}
 		}
-		for _, fig := range []string{"-dispersion.png", "-dos.png", "-thermal.png"} {
-			_, _, ink, _ := pngStats(t, filepath.Join(dir, name+fig))
-			if ink < 0.01 {
-				t.Errorf("%s%s is nearly blank (%.2f%% ink)", name, fig, 100*ink)
+		for _, fig := range []string{"-dispersion.svg", "-dos.svg", "-thermal.svg"} {
+			if _, _, paths, text := svgStats(t, filepath.Join(dir, name+fig)); paths < 10 || !strings.Contains(text, name) {
+				t.Errorf("%s%s: %d paths, text %q", name, fig, paths, text)
 			}
 		}
 	}
@@ -53,22 +55,26 @@ func TestDemo(t *testing.T) {
 	if want := 7 * len(examples.Names()); len(entries) != want {
 		t.Errorf("demo wrote %d files; want %d", len(entries), want)
 	}
-	if !strings.Contains(out, "wrote 35 files") || !strings.Contains(out, mustAbs(t, dir)) {
+	if !strings.Contains(out, "wrote 35 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
 		t.Errorf("summary does not name the folder and file count:\n%s", out)
 	}
 }
 
-// TestDemoSVG: --plot-format svg writes SVG figures that parse.
-func TestDemoSVG(t *testing.T) {
+// TestDemoPNG: by default the demo writes PNG figures of the report size
+// with visible content (one example, to stay fast).
+func TestDemoPNG(t *testing.T) {
 	dir := t.TempDir()
-	code, _, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "4", "--examples", "square-net", "--plot-format", "svg")
+	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "8", "--examples", "diatomic-chain")
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, stderr)
 	}
-	for _, fig := range []string{"-dispersion.svg", "-dos.svg", "-thermal.svg"} {
-		_, _, paths, text := svgStats(t, filepath.Join(dir, "square-net"+fig))
-		if paths < 10 || !strings.Contains(text, "square-net") {
-			t.Errorf("%s: %d paths, text %q", fig, paths, text)
+	if !strings.Contains(out, "wrote 7 files (CSV tables, PNG figures)") {
+		t.Errorf("summary:\n%s", out)
+	}
+	for fig, size := range map[string][2]vg.Length{"-dispersion.png": dispersionSize, "-dos.png": dosSize, "-thermal.png": thermalSize} {
+		w, h, ink, branch := pngStats(t, filepath.Join(dir, "diatomic-chain"+fig))
+		if w != pixels(size[0]) || h != pixels(size[1]) || ink < 0.01 || (fig != "-dos.png" && !branch) {
+			t.Errorf("%s: %d×%d px, %.2f%% ink, branch colour %v", fig, w, h, 100*ink, branch)
 		}
 	}
 }

@@ -257,6 +257,12 @@ func describe(s *modegridv1.QPointSet) string {
 		return strings.Join(p, "×")
 	}
 	switch {
+	case s.GetGrid() != nil && len(s.GetGrid().GetMesh()) == 1:
+		d := fmt.Sprintf("%d-point grid", s.GetGrid().GetMesh()[0])
+		if s.GetGrid().GetShifted() {
+			d += " (shifted)"
+		}
+		return d
 	case s.GetGrid() != nil:
 		d := join(s.GetGrid().GetMesh()) + " grid"
 		if s.GetGrid().GetShifted() {

@@ -385,9 +385,9 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, sites
 
 func dulongPetitLabel(sites, pol int) string {
 	if pol == 3 {
-		return fmt.Sprintf("Dulong–Petit 3R × %d site(s)", sites)
+		return fmt.Sprintf("Dulong–Petit 3R × %d site%s", sites, plural(sites))
 	}
-	return fmt.Sprintf("classical limit %dR × %d site(s)", pol, sites)
+	return fmt.Sprintf("classical limit %dR × %d site%s", pol, sites, plural(sites))
 }
 
 // drawTitle writes a page title at the top of dc and returns the rest.

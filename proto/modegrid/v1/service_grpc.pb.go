@@ -33,6 +33,22 @@ const (
 // ModegridService computes harmonic phonon properties of force-constant
 // models. Every call is idempotent and stateless: the server may cache, but a
 // lost cache only costs time.
+//
+// Every response carries model_hash (usable as ModelSource.model_hash
+// afterwards) and parameters: the canonical form of the request's
+// parameters, "key=value" pairs joined by ";" with defaults resolved, so
+// requests equal in meaning have equal parameters (and share a cache entry).
+//
+// Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
+// field (also for a request over a server cap, named in the description);
+// NOT_FOUND for a model_hash the server does not hold (resend the model
+// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
+// timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
+// over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
+// deadline or cancellation stopped the computation; UNAUTHENTICATED without a
+// valid bearer token (when the server requires one); UNAVAILABLE while it
+// shuts down; INTERNAL for a server bug (logged).
 type ModegridServiceClient interface {
 	// CheckModel validates a model and summarises it. An invalid model is not a
 	// call error here: the response lists every violation.
@@ -122,6 +138,22 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 // ModegridService computes harmonic phonon properties of force-constant
 // models. Every call is idempotent and stateless: the server may cache, but a
 // lost cache only costs time.
+//
+// Every response carries model_hash (usable as ModelSource.model_hash
+// afterwards) and parameters: the canonical form of the request's
+// parameters, "key=value" pairs joined by ";" with defaults resolved, so
+// requests equal in meaning have equal parameters (and share a cache entry).
+//
+// Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
+// field (also for a request over a server cap, named in the description);
+// NOT_FOUND for a model_hash the server does not hold (resend the model
+// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
+// timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
+// over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
+// deadline or cancellation stopped the computation; UNAUTHENTICATED without a
+// valid bearer token (when the server requires one); UNAVAILABLE while it
+// shuts down; INTERNAL for a server bug (logged).
 type ModegridServiceServer interface {
 	// CheckModel validates a model and summarises it. An invalid model is not a
 	// call error here: the response lists every violation.

@@ -111,8 +111,7 @@ func newFlags(o *options) *flag.FlagSet {
 	o.maxMsg = server.DefaultMaxMsgBytes
 	fs.Var(&o.maxMsg, "max-msg-bytes", "cap: largest gRPC message received or sent, bytes")
 	fs.IntVar(&c.ChunkPoints, "chunk-points", server.DefaultChunkPoints, "default q-points per streamed modes message")
-	o.maxChunk = server.DefaultMaxChunkBytes
-	fs.Var(&o.maxChunk, "max-chunk-bytes", "bound on the mode data of one streamed message, bytes")
+	fs.Var(&o.maxChunk, "max-chunk-bytes", "bound on the mode data of one streamed message, bytes (0: 1 MiB or a quarter of --max-msg-bytes if less)")
 	fs.IntVar(&c.StabilityMesh, "stability-mesh", server.DefaultStabilityMesh, "points per reciprocal direction of the coarse grid CheckModel searches for imaginary modes")
 	fs.DurationVar(&c.ShutdownGrace, "shutdown-grace", server.DefaultShutdownGrace, "time calls in flight get to finish after SIGTERM/SIGINT")
 	fs.DurationVar(&c.DrainDelay, "drain-delay", 0, "time calls are still accepted after health goes NOT_SERVING on a stop signal")
@@ -123,6 +122,15 @@ func newFlags(o *options) *flag.FlagSet {
 	fs.BoolVar(&o.reflection, "reflection", true, "serve gRPC server reflection")
 	fs.StringVar(&o.logLevel, "log-level", "info", "log level: debug, info, warn or error")
 	fs.BoolVar(&o.showVersion, "version", false, "print the version and exit")
+	fs.VisitAll(func(f *flag.Flag) {
+		if f.Name != "version" {
+			f.Usage += " [env " + envName(f.Name) + "]"
+		}
+	})
+	fs.Usage = func() {
+		fmt.Fprintf(fs.Output(), "usage: modegridd [flags]\n\nServes the modegrid gRPC API; Prometheus metrics on a separate HTTP port.\nEvery flag can also be set by the environment variable shown; a flag given wins.\n\n")
+		fs.PrintDefaults()
+	}
 	return fs
 }
 
