@@ -292,6 +292,9 @@ func spectrumStats(g *GridModes) spectrum {
 	st.absMaxTHz = math.Max(st.maxTHz, -st.minTHz)
 	st.zeroTol = ZeroModeTol * st.absMaxTHz
 	st.imagTol = math.Max(ImaginaryTolTHz, st.zeroTol)
+	if st.minTHz >= -st.imagTol {
+		return st // nothing is imaginary
+	}
 	nm := g.NModes
 	for i, q := range g.Points {
 		f := g.FreqTHz[i*nm : (i+1)*nm]
@@ -341,7 +344,7 @@ func gammaAcoustic(f []float64, p int) uint64 {
 // the frequency step between neighbouring grid points, the smallest width
 // that hides the grid; in 2D and 3D the frequencies of neighbouring grid
 // lines interleave, so finer widths do. The factors come from the
-// convergence study (/work/coord/dos-convergence.md, TestDOSConvergenceTable):
+// convergence study of TestDOSConvergenceTable (dos_convergence_test.go):
 // the width of least L1 error in 1D and 2D, and in 3D a compromise between
 // the fcc and rock-salt-like examples, whose best widths differ by a factor
 // 3 to 6: at 48³ its error is within a factor 2.1 of the best for both.

@@ -56,7 +56,7 @@ func BenchmarkTetraDOS(b *testing.B) {
 			}
 		})
 	}
-	b.Run("n=48/per-site", func(b *testing.B) {
+	b.Run("n=48-per-site", func(b *testing.B) {
 		m, g := benchModes(b, "rocksalt-like", 48, GridOptions{Projections: true})
 		b.ResetTimer()
 		for b.Loop() {

@@ -382,3 +382,23 @@ func BenchmarkHermitianEigen(b *testing.B) {
 		}
 	}
 }
+
+// TestEigenDegenerateDynamicalMatrices: dynamical matrices of a 64-site
+// supercell at Γ and zone-boundary points are massively degenerate
+// (folding); the eigenpairs still satisfy D x = λ x and xᴴx = I to 1e-11
+// and agree with gonum.
+func TestEigenDegenerateDynamicalMatrices(t *testing.T) {
+	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	n := m.Modes()
+	for _, q := range [][3]float64{{0, 0, 0}, {0.5, 0, 0}, {0.5, 0.5, 0.5}} {
+		d := m.DynamicalMatrix(q, nil)
+		vals, vecs := hermitianEigen(d, n, true)
+		want, _ := embeddedEigen(d, n, false)
+		for k := range want {
+			if math.Abs(vals[k]-want[k]) > 1e-12*maxAbs(want) {
+				t.Fatalf("q=%v λ%d = %v; gonum %v", q, k, vals[k], want[k])
+			}
+		}
+		checkEigenpairs(t, d, n, vals, vecs, 1e-11)
+	}
+}

@@ -1,3 +1,6 @@
+// Loading the built-in example crystals in tests (a test-only mirror of
+// the protobuf JSON mapping: physics must not import proto/).
+
 package physics
 
 import (

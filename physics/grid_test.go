@@ -1,3 +1,5 @@
+// Tests of q-point grids, finite crystals and GridModes.
+
 package physics
 
 import (

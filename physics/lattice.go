@@ -5,7 +5,9 @@
 // rectangular and hexagonal in 2D; 1d. The labelled points of the 3D types
 // are those of Setyawan & Curtarolo, Comput. Mater. Sci. 49, 299 (2010)
 // (Tables for CUB, FCC, BCC and HEX), given there in fractional
-// coordinates of the reciprocal vectors of their standard primitive cell.
+// coordinates of the reciprocal vectors of their standard primitive cell
+// (recalled from the paper, and checked against the Cartesian zone points
+// in lattice_test.go).
 // The engine finds that standard cell inside the caller's lattice — the
 // choice of standard vectors closest to the caller's own — and converts
 // the points to the caller's reciprocal basis, so for a lattice given in

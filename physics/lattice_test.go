@@ -66,14 +66,15 @@ func TestLatticeType(t *testing.T) {
 	}
 }
 
-// TestStandardPointsSetting: in the standard setting the points are the
-// fractional coordinates of Setyawan & Curtarolo (2010) — checked in
-// Cartesian form against the zone geometry (fcc X = (2π/a)(0,1,0),
-// L = (π/a)(1,1,1), W = (2π/a)(½,1,0), K = (2π/a)(¾,¾,0), U = (2π/a)(¼,1,¼);
-// bcc H = (2π/a)(0,1,0), P = (π/a)(1,1,1), N = (π/a)(1,1,0); sc X =
-// (π/a)(0,1,0), M = (π/a)(1,1,0), R = (π/a)(1,1,1); hex K = (4π/3a)(1,0,0)
-// with a₁ = (a/2, −a√3/2, 0); from memory of the paper's figures, derived
-// here from the reciprocal vectors).
+// TestStandardPointsSetting: in the standard setting the built-in points
+// are the fractional coordinates of Setyawan & Curtarolo (2010) — recalled
+// from the paper's tables (from memory) and checked here against the
+// Cartesian zone points as they are usually labelled (common practice):
+// fcc X = (2π/a)(0,1,0), L = (π/a)(1,1,1), W = (2π/a)(½,1,0),
+// K = (2π/a)(¾,¾,0), U = (2π/a)(¼,1,¼); bcc H = (2π/a)(0,1,0),
+// P = (π/a)(1,1,1), N = (π/a)(1,1,0); sc X = (π/a)(0,1,0), M = (π/a)(1,1,0),
+// R = (π/a)(1,1,1); hexagonal K = (4π/3a)(1,0,0), M = b₁/2, A = (π/c)ẑ
+// with a₁ = (a/2, −a√3/2, 0); and the 2D and 1D analogues.
 func TestStandardPointsSetting(t *testing.T) {
 	s3 := math.Sqrt(3)
 	const a = 4.0

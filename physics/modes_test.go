@@ -1,3 +1,6 @@
+// Closed-form spectra: chains, fcc, square net, blocks, sum rule,
+// imaginary modes and units.
+
 package physics
 
 import (

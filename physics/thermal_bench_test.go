@@ -21,7 +21,7 @@ func BenchmarkThermal(b *testing.B) {
 	}{{12, false}, {24, false}, {48, false}, {24, true}, {48, true}} {
 		name := fmt.Sprintf("n=%d", tc.n)
 		if tc.msd {
-			name += "/msd"
+			name += "-msd"
 		}
 		b.Run(name, func(b *testing.B) {
 			m, g := benchModes(b, "rocksalt-like", tc.n, GridOptions{Eigenvectors: tc.msd})
@@ -35,7 +35,7 @@ func BenchmarkThermal(b *testing.B) {
 			}
 		})
 	}
-	b.Run("n=48/direct", func(b *testing.B) {
+	b.Run("n=48-direct", func(b *testing.B) {
 		m, g := benchModes(b, "rocksalt-like", 48, GridOptions{})
 		b.ResetTimer()
 		for b.Loop() {

@@ -89,7 +89,8 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 	for nleaf < treeMaxLeaves && nleaf*32 < len(set.nu) {
 		nleaf *= 2
 	}
-	leafOf := func(f float64) int { return min(nleaf-1, int(f/numax*float64(nleaf))) }
+	perTHz := float64(nleaf) / numax
+	leafOf := func(f float64) int { return min(nleaf-1, int(f*perTHz)) }
 
 	// Counting sort of the modes into leaves.
 	t.start = make([]int, nleaf+1)

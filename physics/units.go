@@ -1,3 +1,6 @@
+// Physical constants (CODATA 2018) and frequency units: the one place
+// every factor of the engine comes from.
+
 package physics
 
 import "math"

@@ -85,9 +85,13 @@ package server
 //
 // TLS from Config.TLSCertFile/TLSKeyFile (TLS 1.2 minimum); with
 // Config.ClientCAFile, mutual TLS requiring client certificates that CA
-// signed. With Config.TokenFile, every call but the health service needs
+// signed: the handshake refuses a client without a certificate (the client
+// sees UNAVAILABLE), and every call checks the certificate's chain, validity
+// period and client-authentication usage, refusing an expired or foreign
+// certificate with UNAUTHENTICATED naming the reason. With
+// Config.TokenFile, every call but the health service needs
 // "authorization: Bearer <token>"; tokens are compared as SHA-256 digests
-// in constant time.
+// in constant time. A refused call runs no handler and computes nothing.
 //
 // # Metrics
 //

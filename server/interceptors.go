@@ -44,7 +44,7 @@ func prefix(hash string) string {
 	return hash
 }
 
-// unaryInterceptor authenticates, recovers panics (→ INTERNAL, logged,
+// unaryInterceptor authenticates (authenticate), recovers panics (→ INTERNAL, logged,
 // counted) and logs one line per call. It runs inside the metrics
 // interceptor, so the metrics see the final status code.
 func (s *Server) unaryInterceptor(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (resp any, err error) {
@@ -57,8 +57,7 @@ func (s *Server) unaryInterceptor(ctx context.Context, req any, info *grpc.Unary
 		}
 		s.logCall(ctx, info.FullMethod, start, ci, err)
 	}()
-	if err := s.tokens.authorize(ctx, info.FullMethod); err != nil {
-		s.svc.met.authFailures.Inc()
+	if err := s.authenticate(ctx, info.FullMethod); err != nil {
 		return nil, err
 	}
 	return handler(ctx, req)
@@ -75,11 +74,23 @@ func (s *Server) streamInterceptor(srv any, ss grpc.ServerStream, info *grpc.Str
 		}
 		s.logCall(ctx, info.FullMethod, start, ci, err)
 	}()
-	if err := s.tokens.authorize(ctx, info.FullMethod); err != nil {
-		s.svc.met.authFailures.Inc()
+	if err := s.authenticate(ctx, info.FullMethod); err != nil {
 		return err
 	}
 	return handler(srv, &contextStream{ServerStream: ss, ctx: ctx})
+}
+
+// authenticate checks the call's client certificate (mutual TLS: every
+// method) and bearer token (every method but health), counting failures.
+func (s *Server) authenticate(ctx context.Context, method string) error {
+	err := s.certs.verify(ctx)
+	if err == nil {
+		err = s.tokens.authorize(ctx, method)
+	}
+	if err != nil {
+		s.svc.met.authFailures.Inc()
+	}
+	return err
 }
 
 // contextStream carries the call-info context into a streaming handler.

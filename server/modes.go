@@ -65,10 +65,13 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	p.addBool("group_velocities", opt.Velocities)
 	canon := p.String()
 
-	pts := qs.points(dim)
-	total := uint32(len(pts))
+	total := uint32(qs.count)
 	noteCache(ctx, "computed")
 	return s.run(ctx, kindModes, func(ctx context.Context) error {
+		// The points are built only once the computation holds its slot,
+		// so requests waiting in the queue hold no point lists (a grid at
+		// the default cap is 128 MiB of them).
+		pts := qs.points(dim)
 		return e.m.StreamModes(ctx, pts, opt, func(c physics.ModeChunk) error {
 			s.met.qpoints.Add(float64(len(c.Points)))
 			resp := &modegridv1.ComputeModesResponse{

@@ -131,8 +131,11 @@ func (s *Service) parseMesh(mesh []uint32, dim int, field string, vs *violations
 		ok = false
 	}
 	if ok {
-		if n := g.Mesh[0] * g.Mesh[1] * g.Mesh[2]; n > s.cfg.MaxQPoints {
-			vs.add(field, "%s is %d q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), n, s.cfg.MaxQPoints)
+		// In floating point: three divisions each within the cap can
+		// overflow an int (2²²·2²²·2²² wraps to 0), and a wrapped product
+		// would pass the cap and make the points list unbounded.
+		if n := float64(g.Mesh[0]) * float64(g.Mesh[1]) * float64(g.Mesh[2]); n > float64(s.cfg.MaxQPoints) {
+			vs.add(field, "%s is %.0f q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), n, s.cfg.MaxQPoints)
 		}
 	}
 	return g

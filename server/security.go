@@ -11,34 +11,86 @@ import (
 	"fmt"
 	"os"
 	"strings"
+	"time"
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/metadata"
+	"google.golang.org/grpc/peer"
 	"google.golang.org/grpc/status"
 )
 
 // tlsCredentials loads the server certificate and, for mutual TLS, the
 // client CA. TLS 1.2 is the minimum.
-func tlsCredentials(certFile, keyFile, clientCAFile string) (credentials.TransportCredentials, error) {
+//
+// With a client CA the handshake requires a client certificate and proof
+// of its private key, but the chain is verified per call by
+// clientCerts.verify, not in the handshake: a certificate that is expired,
+// not yet valid, not for client authentication or signed by another CA
+// then gets UNAUTHENTICATED naming the reason, instead of a TLS alert the
+// client reports as an unreachable server (UNAVAILABLE). Either way no
+// handler runs.
+func tlsCredentials(certFile, keyFile, clientCAFile string) (credentials.TransportCredentials, *clientCerts, error) {
 	cert, err := tls.LoadX509KeyPair(certFile, keyFile)
 	if err != nil {
-		return nil, fmt.Errorf("tls-cert/tls-key: %w", err)
+		return nil, nil, fmt.Errorf("tls-cert/tls-key: %w", err)
 	}
 	cfg := &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
+	var cc *clientCerts
 	if clientCAFile != "" {
 		pem, err := os.ReadFile(clientCAFile)
 		if err != nil {
-			return nil, fmt.Errorf("client-ca: %w", err)
+			return nil, nil, fmt.Errorf("client-ca: %w", err)
 		}
 		pool := x509.NewCertPool()
 		if !pool.AppendCertsFromPEM(pem) {
-			return nil, fmt.Errorf("client-ca: %s holds no PEM certificate", clientCAFile)
+			return nil, nil, fmt.Errorf("client-ca: %s holds no PEM certificate", clientCAFile)
 		}
-		cfg.ClientCAs = pool
-		cfg.ClientAuth = tls.RequireAndVerifyClientCert
+		// The CA is not advertised in the handshake (tls.Config.ClientCAs):
+		// a client whose certificate another CA signed would then send
+		// none, and be refused with an alert instead of a reason.
+		cfg.ClientAuth = tls.RequireAnyClientCert
+		cc = &clientCerts{roots: pool, now: time.Now}
 	}
-	return credentials.NewTLS(cfg), nil
+	return credentials.NewTLS(cfg), cc, nil
+}
+
+// clientCerts verifies the client certificate of each call against the
+// client CA. The nil *clientCerts (no mutual TLS) accepts every call.
+type clientCerts struct {
+	roots *x509.CertPool
+	now   func() time.Time // the clock certificates are checked at
+}
+
+// verify checks the peer's certificate chain of the call: signed by the
+// client CA, valid now, usable for client authentication. Every call is
+// checked, so a certificate that expires during a long-lived connection
+// stops being accepted when it expires.
+func (cc *clientCerts) verify(ctx context.Context) error {
+	if cc == nil {
+		return nil
+	}
+	p, ok := peer.FromContext(ctx)
+	if !ok {
+		return status.Error(codes.Unauthenticated, "client certificate required (mutual TLS)")
+	}
+	info, ok := p.AuthInfo.(credentials.TLSInfo)
+	if !ok || len(info.State.PeerCertificates) == 0 {
+		return status.Error(codes.Unauthenticated, "client certificate required (mutual TLS)")
+	}
+	certs := info.State.PeerCertificates
+	inter := x509.NewCertPool()
+	for _, c := range certs[1:] {
+		inter.AddCert(c)
+	}
+	_, err := certs[0].Verify(x509.VerifyOptions{
+		Roots: cc.roots, Intermediates: inter, CurrentTime: cc.now(),
+		KeyUsages: []x509.ExtKeyUsage{x509.ExtKeyUsageClientAuth},
+	})
+	if err != nil {
+		return status.Errorf(codes.Unauthenticated, "client certificate %q not accepted: %v", certs[0].Subject.CommonName, err)
+	}
+	return nil
 }
 
 // tokenSet holds the SHA-256 digests of the accepted bearer tokens. Digests

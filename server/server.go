@@ -45,7 +45,8 @@ type Server struct {
 	gs     *grpc.Server
 	health *health.Server
 	reg    *prometheus.Registry
-	tokens *tokenSet // nil: no token required
+	tokens *tokenSet    // nil: no token required
+	certs  *clientCerts // nil: no client certificate required
 
 	mu       sync.Mutex     // protects below
 	http     []*http.Server // metrics servers started by ServeMetrics
@@ -86,11 +87,12 @@ func New(cfg Config) (*Server, error) {
 		}),
 	}
 	if cfg.TLSCertFile != "" {
-		creds, err := tlsCredentials(cfg.TLSCertFile, cfg.TLSKeyFile, cfg.ClientCAFile)
+		creds, cc, err := tlsCredentials(cfg.TLSCertFile, cfg.TLSKeyFile, cfg.ClientCAFile)
 		if err != nil {
 			return nil, fmt.Errorf("server config: %w", err)
 		}
 		opts = append(opts, grpc.Creds(creds))
+		s.certs = cc
 	}
 	s.gs = grpc.NewServer(append(opts, cfg.ServerOptions...)...)
 	modegridv1.RegisterModegridServiceServer(s.gs, s.svc)

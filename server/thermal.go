@@ -63,11 +63,15 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 		if ok {
 			// Values start + i·step up to stop, stop included when on the
 			// step (within 1e-9 of a step, for decimal steps).
-			n := int(math.Floor((stop-start)/step+1e-9)) + 1
-			if len(ts)+n > s.cfg.MaxTemps {
-				vs.add("range", "%d temperatures exceed this server's cap max-temps=%d", len(ts)+n, s.cfg.MaxTemps)
+			// Counted in floating point first: a tiny step gives more
+			// values than an int holds, and a wrapped count would slip
+			// past the cap.
+			nf := math.Floor((stop-start)/step+1e-9) + 1
+			if float64(len(ts))+nf > float64(s.cfg.MaxTemps) {
+				vs.add("range", "%.0f temperatures exceed this server's cap max-temps=%d", float64(len(ts))+nf, s.cfg.MaxTemps)
 				return nil
 			}
+			n := int(nf)
 			for i := range n {
 				ts = append(ts, rangeValue(start, step, i))
 			}
