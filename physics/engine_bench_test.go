@@ -126,6 +126,16 @@ func BenchmarkGrid48(b *testing.B) {
 		b.Run(name+"/GridModes", func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
+				g, err := m.GridModes(context.Background(), spec, GridOptions{NoSymmetry: true})
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkGrid = g
+			}
+		})
+		b.Run(name+"/GridModesSymmetry", func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
 				g, err := m.GridModes(context.Background(), spec, GridOptions{})
 				if err != nil {
 					b.Fatal(err)

@@ -172,6 +172,11 @@ type GridModes struct {
 	// pair] — the per-site displacement tensors that mean-square
 	// displacements need, in memory that grows with sites, not sites².
 	SiteTensor []float64
+	// Diagonalized is the number of points actually diagonalised (the
+	// irreducible points unless GridOptions.NoSymmetry).
+	Diagonalized int
+
+	irr *IrreducibleGrid // the reduction used (nil: every point diagonalised)
 }
 
 // GridOptions selects what GridModes keeps beyond frequencies.
@@ -179,53 +184,83 @@ type GridOptions struct {
 	Projections  bool // per-site weights
 	Eigenvectors bool // full eigenvectors (memory: N·n² complex numbers)
 	SiteTensors  bool // per-site displacement tensors (GridModes.SiteTensor)
+	// NoSymmetry diagonalises every grid point instead of the irreducible
+	// ones: the reference path (results agree to rounding), and the faster
+	// one for crystals whose only symmetry is time reversal and grids so
+	// small that reducing them costs more than it saves.
+	NoSymmetry bool
 }
 
-// GridModes diagonalises D(q) on every point of the grid, spread over all
-// cores with one reusable workspace per core (no allocation per point),
-// and stops promptly when ctx is done, returning ctx.Err().
+// GridModes computes the modes on every point of the grid. By default only
+// the irreducible points under the model's symmetry and time reversal are
+// diagonalised (see ReduceGrid) and the rest are unfolded from them:
+// frequencies copied, site weights and site tensors permuted and rotated,
+// eigenvectors rotated with their phases. Within each degenerate group of
+// modes (frequencies equal to DegenerateTolTHz) the site weights and site
+// tensors are replaced by their group average, which — unlike the
+// per-mode values — does not depend on the arbitrary basis a solver picks
+// inside a degenerate subspace; with that, the reduced and the full
+// computation (GridOptions.NoSymmetry) agree to rounding. Work is spread
+// over all cores with one reusable workspace per core (no allocation per
+// point) and stops promptly when ctx is done, returning ctx.Err().
 func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (*GridModes, error) {
 	spec, err := spec.normalize(m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
 	pts := spec.Points()
+	var ir *IrreducibleGrid
+	reps := len(pts)
+	if !opt.NoSymmetry {
+		if ir, err = m.ReduceGrid(spec); err != nil {
+			return nil, err
+		}
+		reps = len(ir.Irr)
+	}
+	repQ := func(s int) [3]float64 {
+		if ir == nil {
+			return pts[s].Q
+		}
+		return pts[ir.Irr[s]].Q
+	}
 	nm, ns := m.Modes(), m.nsites
-	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: m.p,
-		FreqTHz: make([]float64, len(pts)*nm)}
-	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
-	if opt.Projections {
-		g.SiteWeight = make([]float64, len(pts)*nm*ns)
-	}
-	if opt.Eigenvectors {
-		g.Eigvecs = make([]complex128, len(pts)*nm*nm)
-	}
 	p := m.p
 	pairs := p * (p + 1) / 2
-	if opt.SiteTensors {
-		g.SiteTensor = make([]float64, len(pts)*nm*ns*pairs)
+	c := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: p,
+		FreqTHz: make([]float64, reps*nm), Diagonalized: reps}
+	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
+	if opt.Projections {
+		c.SiteWeight = make([]float64, reps*nm*ns)
 	}
-	err = parallelWork(ctx, len(pts), func(done <-chan struct{}) func(i int) bool {
+	if opt.Eigenvectors {
+		c.Eigvecs = make([]complex128, reps*nm*nm)
+	}
+	if opt.SiteTensors {
+		c.SiteTensor = make([]float64, reps*nm*ns*pairs)
+	}
+	err = parallelWork(ctx, reps, func(done <-chan struct{}) func(i int) bool {
 		w := m.newPointWork(done)
 		return func(i int) bool {
-			if !w.solve(pts[i].Q, vec) {
+			if !w.solve(repQ(i), vec) {
 				return false
 			}
-			w.freqs(g.FreqTHz[i*nm : (i+1)*nm])
+			f := c.FreqTHz[i*nm : (i+1)*nm]
+			w.freqs(f)
 			if opt.Eigenvectors {
-				copy(g.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.vecs)
+				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.vecs)
 			}
 			if opt.Projections {
-				sw := g.SiteWeight[i*nm*ns : (i+1)*nm*ns]
+				sw := c.SiteWeight[i*nm*ns : (i+1)*nm*ns]
 				for k := 0; k < nm; k++ {
 					e := w.eig.vecs[k*nm : (k+1)*nm]
 					for c, z := range e {
 						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
 					}
 				}
+				averageDegenerate(f, sw, ns)
 			}
 			if opt.SiteTensors {
-				st := g.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
+				st := c.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
 				for k := 0; k < nm; k++ {
 					for s := 0; s < ns; s++ {
 						e := w.eig.vecs[k*nm+s*p : k*nm+(s+1)*p]
@@ -239,6 +274,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 						}
 					}
 				}
+				averageDegenerate(f, st, ns*pairs)
 			}
 			return true
 		}
@@ -246,7 +282,43 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	if err != nil {
 		return nil, err
 	}
-	return g, nil
+	if ir == nil {
+		return c, nil
+	}
+	return m.unfold(ctx, ir, c, opt)
+}
+
+// DegenerateTolTHz is the frequency difference (THz, relative to the
+// largest |ν| at the point, with an absolute floor of 1e-9 THz) within which
+// modes at one q-point are treated as one degenerate group.
+const DegenerateTolTHz = 1e-7
+
+// averageDegenerate replaces the per-mode values vals[k*stride : (k+1)*stride]
+// of every group of degenerate modes (freq ascending) by the group average.
+func averageDegenerate(freq, vals []float64, stride int) {
+	var top float64
+	for _, f := range freq {
+		top = max(top, math.Abs(f))
+	}
+	tol := DegenerateTolTHz*top + 1e-9
+	for k := 0; k < len(freq); {
+		e := k + 1
+		for e < len(freq) && freq[e]-freq[e-1] <= tol {
+			e++
+		}
+		if n := e - k; n > 1 {
+			for x := 0; x < stride; x++ {
+				var sum float64
+				for j := k; j < e; j++ {
+					sum += vals[j*stride+x]
+				}
+				for j := k; j < e; j++ {
+					vals[j*stride+x] = sum / float64(n)
+				}
+			}
+		}
+		k = e
+	}
 }
 
 // parallelWork runs a per-point function over [0, n) on all cores. Each

@@ -95,49 +95,67 @@ func gridCompatible(op SymOp, spec GridSpec) bool {
 
 func nearInt(x float64) bool { return math.Abs(x-math.Round(x)) < 1e-6 }
 
-// reduce builds the orbits of the grid under ±ops.
+// reduce builds the orbits of the grid under ±ops. It works in integer
+// grid coordinates: with q_k = (a_k + s_k)/N_k, an operation compatible
+// with the grid maps a to a'_k = Σ_l M_kl a_l + c_k (mod N_k), with
+// M_kl = S_kl N_k/N_l and c_k = Σ_l S_kl N_k s_l/N_l − s_k both integers
+// (gridCompatible checked that); time reversal maps a'_k to −a'_k − 2 s_k.
 func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 	n := spec.Count()
 	N := spec.Mesh
-	off := [3]float64{spec.Offset(0), spec.Offset(1), spec.Offset(2)}
+	var off [3]float64
+	var tr [3]int // −2 s_k
+	for k := range off {
+		off[k] = spec.Offset(k)
+		tr[k] = -int(math.Round(2 * off[k]))
+	}
+	type intOp struct {
+		m [3][3]int
+		c [3]int
+	}
+	iops := make([]intOp, len(ops))
+	for x, op := range ops {
+		for k := 0; k < 3; k++ {
+			cf := -off[k]
+			for l := 0; l < 3; l++ {
+				iops[x].m[k][l] = int(math.Round(float64(op.QRot[k][l]*N[k]) / float64(N[l])))
+				cf += float64(op.QRot[k][l]) * float64(N[k]) * off[l] / float64(N[l])
+			}
+			iops[x].c[k] = int(math.Round(cf))
+		}
+	}
+	mod := func(x, m int) int {
+		x %= m
+		if x < 0 {
+			x += m
+		}
+		return x
+	}
 	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n)}
 	visited := make([]bool, n)
-	index := func(q [3]float64) int {
-		var c [3]int
-		for k := 0; k < 3; k++ {
-			x := int(math.Round(q[k]*float64(N[k]) - off[k]))
-			x %= N[k]
-			if x < 0 {
-				x += N[k]
-			}
-			c[k] = x
-		}
-		return (c[0]*N[1]+c[1])*N[2] + c[2]
-	}
 	for g := 0; g < n; g++ {
 		if visited[g] {
 			continue
 		}
-		a := g / (N[1] * N[2])
-		b := (g / N[2]) % N[1]
-		c := g % N[2]
-		q := [3]float64{(float64(a) + off[0]) / float64(N[0]), (float64(b) + off[1]) / float64(N[1]), (float64(c) + off[2]) / float64(N[2])}
+		a := [3]int{g / (N[1] * N[2]), (g / N[2]) % N[1], g % N[2]}
 		slot := int32(len(ir.Irr))
 		mult := 0
-		for k := range ops {
-			img := ops[k].applyQ(q)
-			for _, sign := range [2]int{1, -1} {
-				var qq [3]float64
-				for x := 0; x < 3; x++ {
-					qq[x] = float64(sign) * img[x]
-				}
-				h := index(qq)
+		for k := range iops {
+			op := &iops[k]
+			var img, neg [3]int
+			for x := 0; x < 3; x++ {
+				v := op.m[x][0]*a[0] + op.m[x][1]*a[1] + op.m[x][2]*a[2] + op.c[x]
+				img[x] = mod(v, N[x])
+				neg[x] = mod(-v+tr[x], N[x])
+			}
+			for sign, c := range [2][3]int{img, neg} {
+				h := (c[0]*N[1]+c[1])*N[2] + c[2]
 				if visited[h] {
 					continue
 				}
 				visited[h] = true
 				ir.Slot[h] = slot
-				if sign > 0 {
+				if sign == 0 {
 					ir.OpIndex[h] = int16(k)
 				} else {
 					ir.OpIndex[h] = int16(-k - 1)
@@ -245,65 +263,30 @@ func (c *lru[V]) put(key string, v V) {
 	}
 }
 
-// gridModesReduced computes the modes of the irreducible points only and
-// unfolds them onto the whole grid: frequencies are copied, site weights
-// permuted and eigenvectors rotated (see unfoldEigvecs).
-func (m *Model) gridModesReduced(ctx context.Context, spec GridSpec, opt GridOptions) (*GridModes, error) {
-	ir, err := m.ReduceGrid(spec)
-	if err != nil {
-		return nil, err
-	}
-	spec = ir.Spec
-	pts := spec.Points()
-	nm, ns := m.Modes(), m.nsites
-	needVec := opt.Projections || opt.Eigenvectors
-	nIrr := len(ir.Irr)
-	freq := make([]float64, nIrr*nm)
-	var sw []float64
-	var vecs []complex128
-	if opt.Projections {
-		sw = make([]float64, nIrr*nm*ns)
-	}
-	if opt.Eigenvectors {
-		vecs = make([]complex128, nIrr*nm*nm)
-	}
-	err = parallelRange(ctx, nIrr, func(lo, hi int) {
-		for s := lo; s < hi; s++ {
-			q := pts[ir.Irr[s]].Q
-			if !needVec {
-				copy(freq[s*nm:], m.FrequenciesTHz(q))
-				continue
-			}
-			f, v := m.ModesAt(q)
-			copy(freq[s*nm:], f)
-			if opt.Eigenvectors {
-				copy(vecs[s*nm*nm:], v)
-			}
-			if opt.Projections {
-				for k := 0; k < nm; k++ {
-					for c := 0; c < nm; c++ {
-						z := v[k*nm+c]
-						sw[(s*nm+k)*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
-					}
-				}
-			}
-		}
-	})
-	if err != nil {
-		return nil, err
-	}
-	g := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: m.p,
-		FreqTHz: make([]float64, len(pts)*nm)}
+// unfold spreads the modes computed at the irreducible points (c, indexed
+// by position in ir.Irr) onto every point of the grid.
+func (m *Model) unfold(ctx context.Context, ir *IrreducibleGrid, c *GridModes, opt GridOptions) (*GridModes, error) {
+	pts := c.Points
+	nm, ns, p := c.NModes, c.NSites, c.P
+	pairs := p * (p + 1) / 2
+	g := &GridModes{Spec: c.Spec, Points: pts, NModes: nm, NSites: ns, P: p,
+		FreqTHz: make([]float64, len(pts)*nm), Diagonalized: c.Diagonalized, irr: ir}
 	if opt.Projections {
 		g.SiteWeight = make([]float64, len(pts)*nm*ns)
 	}
 	if opt.Eigenvectors {
 		g.Eigvecs = make([]complex128, len(pts)*nm*nm)
 	}
-	err = parallelRange(ctx, len(pts), func(lo, hi int) {
+	if opt.SiteTensors {
+		g.SiteTensor = make([]float64, len(pts)*nm*ns*pairs)
+	}
+	err := parallelRange(ctx, len(pts), func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			s := int(ir.Slot[i])
-			copy(g.FreqTHz[i*nm:(i+1)*nm], freq[s*nm:(s+1)*nm])
+			copy(g.FreqTHz[i*nm:(i+1)*nm], c.FreqTHz[s*nm:(s+1)*nm])
+			if !vecOpts(opt) {
+				continue
+			}
 			k := int(ir.OpIndex[i])
 			tr := k < 0
 			if tr {
@@ -311,10 +294,13 @@ func (m *Model) gridModesReduced(ctx context.Context, spec GridSpec, opt GridOpt
 			}
 			op := &ir.Ops[k]
 			if opt.Projections {
-				unfoldSiteWeights(op, nm, ns, sw[s*nm*ns:(s+1)*nm*ns], g.SiteWeight[i*nm*ns:(i+1)*nm*ns])
+				unfoldSiteWeights(op, nm, ns, c.SiteWeight[s*nm*ns:(s+1)*nm*ns], g.SiteWeight[i*nm*ns:(i+1)*nm*ns])
+			}
+			if opt.SiteTensors {
+				unfoldSiteTensors(op, nm, ns, p, c.SiteTensor[s*nm*ns*pairs:(s+1)*nm*ns*pairs], g.SiteTensor[i*nm*ns*pairs:(i+1)*nm*ns*pairs])
 			}
 			if opt.Eigenvectors {
-				unfoldEigvecs(op, tr, pts[i].Q, m.p, ns, vecs[s*nm*nm:(s+1)*nm*nm], g.Eigvecs[i*nm*nm:(i+1)*nm*nm])
+				unfoldEigvecs(op, tr, pts[i].Q, p, ns, c.Eigvecs[s*nm*nm:(s+1)*nm*nm], g.Eigvecs[i*nm*nm:(i+1)*nm*nm])
 			}
 		}
 	})
@@ -322,4 +308,46 @@ func (m *Model) gridModesReduced(ctx context.Context, spec GridSpec, opt GridOpt
 		return nil, err
 	}
 	return g, nil
+}
+
+func vecOpts(o GridOptions) bool { return o.Projections || o.Eigenvectors || o.SiteTensors }
+
+// unfoldSiteTensors maps the per-site tensors t_ab = Re(e_a e_b*) of the
+// representative to the image point: site Perm[i] gets C t_i Cᵀ (C the p×p
+// Cartesian rotation; the phase of unfoldEigvecs cancels in e e†, and time
+// reversal conjugates e e†, leaving its real part unchanged).
+func unfoldSiteTensors(op *SymOp, nmodes, nsites, p int, src, dst []float64) {
+	pairs := p * (p + 1) / 2
+	var t, r [3][3]float64
+	for k := 0; k < nmodes; k++ {
+		for i := 0; i < nsites; i++ {
+			in := src[(k*nsites+i)*pairs : (k*nsites+i+1)*pairs]
+			x := 0
+			for a := 0; a < p; a++ {
+				for b := a; b < p; b++ {
+					t[a][b], t[b][a] = in[x], in[x]
+					x++
+				}
+			}
+			for a := 0; a < p; a++ {
+				for b := 0; b < p; b++ {
+					var v float64
+					for c := 0; c < p; c++ {
+						for e := 0; e < p; e++ {
+							v += op.Cart[a][c] * t[c][e] * op.Cart[b][e]
+						}
+					}
+					r[a][b] = v
+				}
+			}
+			out := dst[(k*nsites+op.Perm[i])*pairs : (k*nsites+op.Perm[i]+1)*pairs]
+			x = 0
+			for a := 0; a < p; a++ {
+				for b := a; b < p; b++ {
+					out[x] = r[a][b]
+					x++
+				}
+			}
+		}
+	}
 }

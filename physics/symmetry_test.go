@@ -215,16 +215,30 @@ func TestReducedEqualsFull(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			m := mustCompile(t, c.c)
 			spec := GridSpec{Mesh: c.mesh, Shifted: c.sh}
-			opt := GridOptions{Projections: true, Eigenvectors: true}
+			opt := GridOptions{Projections: true, Eigenvectors: true, SiteTensors: true}
+			red, err := m.GridModes(context.Background(), spec, opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			opt.NoSymmetry = true
 			full, err := m.GridModes(context.Background(), spec, opt)
 			if err != nil {
 				t.Fatal(err)
 			}
-			red, err := m.gridModesReduced(context.Background(), spec, opt)
-			if err != nil {
-				t.Fatal(err)
-			}
 			nm := full.NModes
+			if red.Diagonalized >= full.Diagonalized && len(full.Points) > 2 {
+				t.Errorf("reduced path diagonalised %d points, full %d", red.Diagonalized, full.Diagonalized)
+			}
+			for i := range full.SiteWeight {
+				if math.Abs(full.SiteWeight[i]-red.SiteWeight[i]) > 1e-10 {
+					t.Fatalf("site weight %d: full %v reduced %v", i, full.SiteWeight[i], red.SiteWeight[i])
+				}
+			}
+			for i := range full.SiteTensor {
+				if math.Abs(full.SiteTensor[i]-red.SiteTensor[i]) > 1e-10 {
+					t.Fatalf("site tensor %d: full %v reduced %v", i, full.SiteTensor[i], red.SiteTensor[i])
+				}
+			}
 			for i := range full.FreqTHz {
 				if math.Abs(full.FreqTHz[i]-red.FreqTHz[i]) > 1e-10*math.Max(1, math.Abs(full.FreqTHz[i])) {
 					t.Fatalf("freq %d: full %v reduced %v", i, full.FreqTHz[i], red.FreqTHz[i])

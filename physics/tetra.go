@@ -291,21 +291,34 @@ func sort4(e *[4]float64, id *[4]uint8, n int) {
 }
 
 // cumGrid is a set of equally spaced abscissae x_j = x0 + j·dx, j < n, at
-// which cumulative state counts N(x_j) are accumulated.
+// which cumulative state counts N(x_j) are accumulated. The abscissae are
+// computed from an anchor x_a = x0 + a·dx that is represented exactly, so
+// that a mode exactly on the anchor (a zero mode on a window starting at 0)
+// falls on the same side whatever rounding produced dx.
 type cumGrid struct {
 	x0, dx float64
 	n      int
 	inv    float64 // 1/dx, set by newCumGrid
+	anchor float64 // x_a, exact
+	a      float64 // anchor index
 }
 
-func newCumGrid(x0, dx float64, n int) cumGrid { return cumGrid{x0: x0, dx: dx, n: n, inv: 1 / dx} }
+func newCumGrid(x0, dx float64, n int) cumGrid {
+	return cumGrid{x0: x0, dx: dx, n: n, inv: 1 / dx, anchor: x0}
+}
 
-func (s cumGrid) at(j int) float64 { return s.x0 + float64(j)*s.dx }
+// newAnchoredCumGrid is newCumGrid with x_a = anchor exactly (x0 =
+// anchor − a·dx).
+func newAnchoredCumGrid(anchor, dx float64, a, n int) cumGrid {
+	return cumGrid{x0: anchor - float64(a)*dx, dx: dx, n: n, inv: 1 / dx, anchor: anchor, a: float64(a)}
+}
+
+func (s cumGrid) at(j int) float64 { return s.anchor + (float64(j)-s.a)*s.dx }
 
 // from is the smallest j with x_j ≥ e, in [0, n]. (Integer truncation
 // instead of math.Ceil: this runs four times per simplex and band.)
 func (s cumGrid) from(e float64) int {
-	f := (e - s.x0) * s.inv
+	f := (e-s.anchor)*s.inv + s.a
 	switch {
 	case !(f > 0): // also NaN
 		return 0
@@ -321,7 +334,7 @@ func (s cumGrid) from(e float64) int {
 
 // above is the smallest j with x_j > e, in [0, n].
 func (s cumGrid) above(e float64) int {
-	f := (e - s.x0) * s.inv
+	f := (e-s.anchor)*s.inv + s.a
 	switch {
 	case !(f >= 0):
 		return 0

@@ -1,0 +1,157 @@
+// Symmetry-reduced tetrahedron sums for the total DOS.
+
+package physics
+
+import (
+	"context"
+	"fmt"
+)
+
+// simplexClass is a set of grid simplices whose corners carry the same
+// irreducible points: slots are positions in IrreducibleGrid.Irr, sorted.
+// The total-DOS contribution of a simplex depends only on the frequencies
+// at its corners, and a grid point's frequencies depend only on its
+// irreducible representative, so every simplex of a class contributes
+// exactly the same; the class is summed once with its count as weight. This
+// is exact for the total DOS (not for site projections, whose weights are
+// permuted between equivalent points).
+type simplexClass struct {
+	slots [4]int32
+	count float64
+}
+
+// classCache keeps the classes per (reduced grid, cutting), so repeated
+// requests on one lattice and grid find them once.
+var classCache = newLRU[[]simplexClass](8)
+
+// maxClassSlots bounds the irreducible-point count for which slots pack
+// into one uint64 key (16 bits each).
+const maxClassSlots = 1 << 16
+
+// simplexClasses returns the classes of the grid's simplices, or nil when
+// the grid was not reduced or has too many irreducible points to pack.
+func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
+	ir := g.irr
+	if ir == nil || len(ir.Irr) >= maxClassSlots {
+		return nil
+	}
+	key := fmt.Sprint(reduceKey(ir.Ops, ir.Spec), set.corners[:], set.dim)
+	if c, ok := classCache.get(key); ok {
+		return c
+	}
+	mesh := g.Spec.Mesh
+	ncell := mesh[0] * mesh[1] * mesh[2]
+	dim := set.dim
+	keys := make([]uint64, 0, ncell*len(set.corners))
+	var idx [8]int
+	for ci := 0; ci < ncell; ci++ {
+		ca, cb, cc := ci/(mesh[1]*mesh[2]), ci/mesh[2]%mesh[1], ci%mesh[2]
+		for bits := 0; bits < 1<<dim; bits++ {
+			idx[bits] = cornerIndex(mesh, ca, cb, cc, uint8(bits))
+		}
+		for _, corners := range set.corners {
+			var s [4]uint64
+			for c := 0; c <= dim; c++ {
+				s[c] = uint64(ir.Slot[idx[corners[c]]])
+			}
+			sortSlots(&s, dim+1)
+			keys = append(keys, s[0]|s[1]<<16|s[2]<<32|s[3]<<48)
+		}
+	}
+	radixSort64(keys, 16*(dim+1))
+	var out []simplexClass
+	for i := 0; i < len(keys); {
+		j := i + 1
+		for j < len(keys) && keys[j] == keys[i] {
+			j++
+		}
+		k := keys[i]
+		out = append(out, simplexClass{
+			slots: [4]int32{int32(k & 0xffff), int32(k >> 16 & 0xffff), int32(k >> 32 & 0xffff), int32(k >> 48 & 0xffff)},
+			count: float64(j - i),
+		})
+		i = j
+	}
+	classCache.put(key, out)
+	return out
+}
+
+// radixSort64 sorts keys in place by their low `bits` bits (LSD radix
+// sort, 16-bit digits): linear time, which matters for the millions of
+// simplices of a 96³ grid.
+func radixSort64(keys []uint64, bits int) {
+	if bits <= 0 || len(keys) < 2 {
+		return
+	}
+	buf := make([]uint64, len(keys))
+	const digit = 16
+	var count [1 << digit]int
+	src, dst := keys, buf
+	for shift := 0; shift < bits; shift += digit {
+		clear(count[:])
+		for _, k := range src {
+			count[k>>shift&(1<<digit-1)]++
+		}
+		pos := 0
+		for i, c := range count {
+			count[i] = pos
+			pos += c
+		}
+		for _, k := range src {
+			d := k >> shift & (1<<digit - 1)
+			dst[count[d]] = k
+			count[d]++
+		}
+		src, dst = dst, src
+	}
+	if &src[0] != &keys[0] {
+		copy(keys, src)
+	}
+}
+
+func sortSlots(s *[4]uint64, n int) {
+	for i := 1; i < n; i++ {
+		for j := i; j > 0 && s[j] < s[j-1]; j-- {
+			s[j], s[j-1] = s[j-1], s[j]
+		}
+	}
+}
+
+// tetraAccumulateClasses is tetraAccumulate for the total DOS over simplex
+// classes: each class once, weighted by its count.
+func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []simplexClass, set simplexSet, scale float64, grid cumGrid, hasCut bool, cut float64) (*cumAcc, error) {
+	nm := g.NModes
+	dim := set.dim
+	irr := g.irr.Irr
+	workers := chunkWorkers(len(classes), tetraChunk)
+	accs := make([]*cumAcc, workers)
+	for w := range accs {
+		accs[w] = newCumAcc(grid, 0, hasCut, cut)
+	}
+	freq := g.FreqTHz
+	err := forChunks(ctx, len(classes), tetraChunk, workers, func(worker, lo, hi int) {
+		a := accs[worker]
+		var e [4]float64
+		var base [4]int
+		for _, cl := range classes[lo:hi] {
+			for c := 0; c <= dim; c++ {
+				base[c] = irr[cl.slots[c]] * nm
+			}
+			v := set.weight * cl.count
+			for k := 0; k < nm; k++ {
+				for c := 0; c <= dim; c++ {
+					e[c] = freq[base[c]+k] * scale
+				}
+				sortValues(&e, dim+1)
+				a.addSimplex(dim, &e, v)
+			}
+		}
+	})
+	if err != nil {
+		return nil, err
+	}
+	for _, b := range accs[1:] {
+		accs[0].merge(b)
+	}
+	return accs[0], nil
+}
