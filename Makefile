@@ -5,7 +5,7 @@ VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo dev)
 LDFLAGS := -s -w -X main.version=$(VERSION)
 PKGS    := ./...
 
-.PHONY: all build test demo proto proto-check lint vet bench image clean
+.PHONY: all build test demo proto proto-check lint vet bench image clean fuzz fuzz-short
 
 all: build
 
@@ -13,9 +13,30 @@ build:
 	$(GO) build -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegridd ./server/cmd/modegridd
 	$(GO) build -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegrid ./client/cmd/modegrid
 
-# Everything: generated code fresh, buf lint, go vet, gofmt, race tests.
-test: proto-check lint
+# Everything: generated code fresh, buf lint, go vet, gofmt, a short fuzz
+# of every fuzz target, race tests.
+test: proto-check lint fuzz-short
 	$(GO) test -race -count=1 -timeout 9m $(PKGS)
+
+# Fuzz targets (package:function): the model file decoder, every RPC
+# handler, the CLI's parsers. Seeds: <package>/testdata/fuzz/<function>/.
+FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
+  ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal \
+  ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
+  ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
+FUZZTIME ?= 10m
+FUZZTIME_SHORT ?= 3s
+
+# Each fuzz target for FUZZTIME (10 minutes each by default).
+fuzz:
+	@for t in $(FUZZ_TARGETS); do pkg=$${t%%:*}; fn=$${t##*:}; \
+	  echo "fuzz $$fn in $$pkg for $(FUZZTIME)"; \
+	  $(GO) test -run '^$$' -fuzz "^$$fn\$$" -fuzztime $(FUZZTIME) $$pkg || exit 1; \
+	done
+
+# Each fuzz target for a few seconds (part of make test).
+fuzz-short:
+	@$(MAKE) --no-print-directory fuzz FUZZTIME=$(FUZZTIME_SHORT)
 
 demo:
 	$(GO) run ./client/cmd/modegrid demo

@@ -147,6 +147,8 @@ func TestReplicaFailure(t *testing.T) {
 	if failed > 0 {
 		t.Fatalf("%d of %d calls failed; want 0", failed, n)
 	}
+	t.Logf("%d calls, %d workers: %d attempts (%d failed attempts retried); killed replica had handled %.0f calls",
+		n, workers, counter.attempts.Load(), counter.failed.Load(), victimHandled)
 	differ := map[string]int{} // by RPC
 	nDiffer := 0
 	for i := range calls {
@@ -177,8 +179,6 @@ func TestReplicaFailure(t *testing.T) {
 			t.Errorf("%s handled no call", d.name)
 		}
 	}
-	t.Logf("%d calls, %d workers: %d attempts (%d failed attempts retried); killed replica had handled %.0f calls",
-		n, workers, counter.attempts.Load(), counter.failed.Load(), victimHandled)
 }
 
 // cacheCounts are replicas' cache counters summed over some cache kinds.

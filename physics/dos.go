@@ -483,27 +483,40 @@ func normalCDF(u float64) float64 {
 // modeChunk is how many q-points a worker takes at a time.
 const modeChunk = 256
 
-// chunkWorkers is the number of workers forChunks uses for n items.
+// chunkWorkers is the number of accumulators (slices) forChunks uses for
+// n items: a fixed number independent of the core count, so that results
+// are bit-for-bit the same on any machine and under any scheduling.
 func chunkWorkers(n, chunk int) int {
-	return max(1, min(runtime.GOMAXPROCS(0), (n+chunk-1)/chunk))
+	return max(1, min(detSlices, (n+chunk-1)/chunk))
 }
 
-// forChunks runs work over [0, n) in chunks of the given size on the given
-// number of goroutines, passing each its worker number so it can use its
-// own accumulator. It checks ctx between chunks and returns ctx.Err() if
-// ctx ended first.
-func forChunks(ctx context.Context, n, chunk, workers int, work func(worker, lo, hi int)) error {
+// detSlices is the most slices forChunks cuts its range into.
+const detSlices = 16
+
+// forChunks runs work over [0, n), cut into `slices` contiguous slices
+// (slices = chunkWorkers(n, chunk)), each processed in order in chunks of
+// the given size, slices spread over all cores. work receives the slice
+// number, so that a caller keeping one accumulator per slice and merging
+// them in slice order gets sums that do not depend on scheduling or on
+// GOMAXPROCS (replicas must return identical bytes for the same request).
+// It checks ctx between chunks and returns ctx.Err() if ctx ended first.
+func forChunks(ctx context.Context, n, chunk, slices int, work func(slice, lo, hi int)) error {
+	slices = max(1, slices)
 	var next atomic.Int64
+	workers := min(runtime.GOMAXPROCS(0), slices)
 	done := make(chan struct{}, workers)
 	for w := 0; w < workers; w++ {
 		go func() {
 			defer func() { done <- struct{}{} }()
 			for ctx.Err() == nil {
-				lo := int(next.Add(int64(chunk))) - chunk
-				if lo >= n {
+				sl := int(next.Add(1)) - 1
+				if sl >= slices {
 					return
 				}
-				work(w, lo, min(lo+chunk, n))
+				lo, hi := sl*n/slices, (sl+1)*n/slices
+				for c := lo; c < hi && ctx.Err() == nil; c += chunk {
+					work(sl, c, min(c+chunk, hi))
+				}
 			}
 		}()
 	}

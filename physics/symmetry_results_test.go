@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"runtime"
 	"testing"
 )
 
@@ -116,5 +117,52 @@ func TestReducedResultsEqualFull(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestDOSDeterministic: the DOS and thermal sums are bit-for-bit the same
+// whatever the core count (replicas behind one balancer must return
+// identical answers; common practice for reproducible services).
+func TestDOSDeterministic(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	ctx := context.Background()
+	run := func(procs int) (*DOSResult, *DOSResult, *ThermalResult) {
+		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
+		g, err := m.GridModes(ctx, GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{Projections: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		a, err := ComputeDOS(ctx, m, g, DOSOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := ComputeDOS(ctx, m, g, DOSOptions{Method: Gaussian, PerSite: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		th, err := ComputeThermal(ctx, m, g, ThermalOptions{TempsK: []float64{10, 300}, Route: DOSIntegral})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return a, b, th
+	}
+	a1, b1, t1 := run(1)
+	a4, b4, t4 := run(4)
+	for i := range a1.DOS {
+		if a1.DOS[i] != a4.DOS[i] || a1.Integrated[i] != a4.Integrated[i] {
+			t.Fatalf("tetrahedron DOS[%d] differs between 1 and 4 procs: %v vs %v", i, a1.DOS[i], a4.DOS[i])
+		}
+	}
+	for s := range b1.Sites {
+		for i := range b1.Sites[s] {
+			if b1.Sites[s][i] != b4.Sites[s][i] {
+				t.Fatalf("Gaussian site %d DOS[%d] differs: %v vs %v", s, i, b1.Sites[s][i], b4.Sites[s][i])
+			}
+		}
+	}
+	for i := range t1.Points {
+		if t1.Points[i].CveVPerK != t4.Points[i].CveVPerK || t1.Points[i].FeV != t4.Points[i].FeV {
+			t.Fatalf("thermal point %d differs", i)
+		}
 	}
 }
