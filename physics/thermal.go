@@ -9,7 +9,7 @@ import (
 
 // ErrUnstable is wrapped by ComputeThermal when the grid has imaginary
 // modes and the caller did not allow them.
-var ErrUnstable = errors.New("physics: the model is dynamically unstable (imaginary modes)")
+var ErrUnstable = errors.New("the model is dynamically unstable")
 
 // ThermalRoute selects how ComputeThermal takes its sums.
 type ThermalRoute int
@@ -138,7 +138,7 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 	}
 	st := spectrumStats(g)
 	if st.imaginary > 0 && !opt.AllowUnstable {
-		return nil, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz); allow unstable models to leave them out",
+		return nil, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz)",
 			ErrUnstable, st.imaginary, len(g.FreqTHz), st.minTHz)
 	}
 	res := &ThermalResult{ImaginaryExcluded: st.imaginary}

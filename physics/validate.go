@@ -70,7 +70,7 @@ func (e *ValidationError) Error() string {
 	for i, v := range e.Violations {
 		parts[i] = v.String()
 	}
-	return "invalid model: " + strings.Join(parts, "; ")
+	return "invalid: " + strings.Join(parts, "; ")
 }
 
 // violations accumulates Violations; the zero value is ready to use.
