@@ -75,7 +75,12 @@ func cmdThermal(args []string, e *env) error {
 	resp, err := cl.Thermal(ctx, req)
 	done()
 	if status.Code(err) == codes.FailedPrecondition {
-		return &invalidError{msg: fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(status.Convert(err).Message(), "."))}
+		// The server's hint names the request field; at a terminal, name the flag.
+		msg := status.Convert(err).Message()
+		if i := strings.Index(msg, " (set allow_unstable"); i >= 0 {
+			msg = msg[:i]
+		}
+		return &invalidError{msg: fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))}
 	}
 	if err != nil {
 		return err
