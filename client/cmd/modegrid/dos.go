@@ -3,7 +3,6 @@ package main
 import (
 	"io"
 
-	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -14,14 +13,9 @@ linear bands), gaussian (--width), histogram (--step; the exact spectrum of
 a finite crystal). --per-site adds one column and one curve per site.`
 
 func cmdDOS(args []string, e *env) error {
-	fs := newFlagSet("dos")
-	var m modelFlag
-	var conn connFlags
-	var out outFlags
+	c := newModelCommand("dos", true)
+	fs := c.fs
 	var qs qsetFlags
-	m.register(fs)
-	conn.register(fs)
-	out.register(fs, true)
 	qs.register(fs, false)
 	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
 	method := fs.String("method", "tetrahedron", "tetrahedron, gaussian or histogram")
@@ -32,14 +26,7 @@ func cmdDOS(args []string, e *env) error {
 	perSite := fs.Bool("per-site", false, "also give the DOS projected on each site")
 	stack := fs.Bool("stack", false, "with --plot and --per-site: draw the sites as stacked bands")
 	negative := fs.Bool("show-imaginary", false, "put imaginary modes on the negative frequency axis instead of leaving them out")
-	sumRule := fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
-	if err := parse(fs, args, e.stderr, dosSummary); err != nil {
-		return err
-	}
-	if err := out.check(fs); err != nil {
-		return err
-	}
-	if err := conn.check(); err != nil {
+	if err := c.parse(args, e, dosSummary); err != nil {
 		return err
 	}
 	u, err := parseUnit(*unit)
@@ -50,7 +37,7 @@ func cmdDOS(args []string, e *env) error {
 	if err != nil {
 		return usagef("%v", err)
 	}
-	crystal, err := m.load()
+	crystal, err := c.m.load()
 	if err != nil {
 		return err
 	}
@@ -59,15 +46,12 @@ func cmdDOS(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	cl, stop, err := connect(conn.server, conn.options()...)
+	cl, ctx, release, err := c.dial()
 	if err != nil {
 		return err
 	}
-	defer stop()
-	ctx, cancel := callContext()
-	defer cancel()
-	src := client.Inline(crystal)
-	src.EnforceSumRule = *sumRule
+	defer release()
+	src := c.source(crystal)
 	req := &modegridv1.ComputeDosRequest{
 		Model: src, Qpoints: set, Method: meth, Unit: u,
 		Min: *lo, Max: *hi, Step: *step, Width: *width, PerSite: *perSite,
@@ -84,11 +68,11 @@ func cmdDOS(args []string, e *env) error {
 	if n := resp.GetImaginaryModes(); n > 0 && !*negative {
 		e.note("%d imaginary modes on the %s are left out of the DOS (--show-imaginary shows them)", n, describe(set))
 	}
-	if err := out.write(e.stdout, func(w io.Writer) error { return writeDOS(w, out.format, resp) }); err != nil {
+	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeDOS(w, c.out.format, resp) }); err != nil {
 		return err
 	}
-	if out.plot == "" {
+	if c.out.plot == "" {
 		return nil
 	}
-	return plotDOS(out.plot, out.kind, resp, *stack, crystal.GetName())
+	return plotDOS(c.out.plot, c.out.kind, resp, *stack, crystal.GetName())
 }

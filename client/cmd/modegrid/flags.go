@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"errors"
 	"flag"
 	"fmt"
@@ -298,4 +299,55 @@ func parse(fs *flag.FlagSet, args []string, stderr io.Writer, summary string) er
 		return usagef("%s: unexpected argument %q (flags come as --name value)", fs.Name(), fs.Arg(0))
 	}
 	return nil
+}
+
+// modelCommand bundles what every model-taking subcommand shares: the
+// model, connection and output flags, --sum-rule, and the steps from
+// parsing to a connected client.
+type modelCommand struct {
+	fs      *flag.FlagSet
+	m       modelFlag
+	conn    connFlags
+	out     outFlags
+	sumRule *bool
+}
+
+// newModelCommand registers the shared flags; plots says whether --plot
+// is offered.
+func newModelCommand(name string, plots bool) *modelCommand {
+	c := &modelCommand{fs: newFlagSet(name)}
+	c.m.register(c.fs)
+	c.conn.register(c.fs)
+	c.out.register(c.fs, plots)
+	c.sumRule = c.fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
+	return c
+}
+
+// parse parses args and checks the shared flags.
+func (c *modelCommand) parse(args []string, e *env, summary string) error {
+	if err := parse(c.fs, args, e.stderr, summary); err != nil {
+		return err
+	}
+	if err := c.out.check(c.fs); err != nil {
+		return err
+	}
+	return c.conn.check()
+}
+
+// dial connects (to --server or an embedded server) and returns the client,
+// the call context and the function that releases both.
+func (c *modelCommand) dial() (*client.Client, context.Context, func(), error) {
+	cl, stop, err := connect(c.conn.server, c.conn.options()...)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	ctx, cancel := callContext()
+	return cl, ctx, func() { cancel(); stop() }, nil
+}
+
+// source is the inline model with the --sum-rule choice.
+func (c *modelCommand) source(crystal *modegridv1.Crystal) *modegridv1.ModelSource {
+	src := client.Inline(crystal)
+	src.EnforceSumRule = *c.sumRule
+	return src
 }

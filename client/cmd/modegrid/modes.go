@@ -12,31 +12,19 @@ grid (--grid, --shift) or for a finite crystal of N cells (--cells). q is in
 fractional reciprocal coordinates; imaginary modes are negative numbers.`
 
 func cmdModes(args []string, e *env) error {
-	fs := newFlagSet("modes")
-	var m modelFlag
-	var conn connFlags
-	var out outFlags
+	c := newModelCommand("modes", false)
+	fs := c.fs
 	var qs qsetFlags
-	m.register(fs)
-	conn.register(fs)
-	out.register(fs, false)
 	qs.register(fs, true)
 	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
-	sumRule := fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
-	if err := parse(fs, args, e.stderr, modesSummary); err != nil {
-		return err
-	}
-	if err := out.check(fs); err != nil {
-		return err
-	}
-	if err := conn.check(); err != nil {
+	if err := c.parse(args, e, modesSummary); err != nil {
 		return err
 	}
 	u, err := parseUnit(*unit)
 	if err != nil {
 		return usagef("%v", err)
 	}
-	crystal, err := m.load()
+	crystal, err := c.m.load()
 	if err != nil {
 		return err
 	}
@@ -45,20 +33,17 @@ func cmdModes(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	cl, stop, err := connect(conn.server, conn.options()...)
+	cl, ctx, release, err := c.dial()
 	if err != nil {
 		return err
 	}
-	defer stop()
-	ctx, cancel := callContext()
-	defer cancel()
-	src := client.Inline(crystal)
-	src.EnforceSumRule = *sumRule
+	defer release()
+	src := c.source(crystal)
 	resp, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: src, Qpoints: set, Unit: u},
 		client.Progress(func(done, total int) { e.prog.update("modes", done, total) }))
 	e.prog.clear()
 	if err != nil {
 		return err
 	}
-	return out.write(e.stdout, func(w io.Writer) error { return writeModes(w, out.format, resp) })
+	return c.out.write(e.stdout, func(w io.Writer) error { return writeModes(w, c.out.format, resp) })
 }

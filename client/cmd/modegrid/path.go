@@ -18,14 +18,9 @@ included). With --plot the figure has a DOS panel beside the dispersion on
 the same frequency axis (grid: --grid, or a default; --no-dos omits it).`
 
 func cmdPath(args []string, e *env) error {
-	fs := newFlagSet("path")
-	var m modelFlag
-	var conn connFlags
-	var out outFlags
+	c := newModelCommand("path", true)
+	fs := c.fs
 	var qs qsetFlags
-	m.register(fs)
-	conn.register(fs)
-	out.register(fs, true)
 	qs.register(fs, false)
 	pathFlag := fs.String("path", "", `corners: "G-X-W-L-G" (built-in labels) or "G=0,0,0 X=0.5,0,0.5 ..."`)
 	points := fs.Uint("points", 0, "samples along the whole path (default: the server's, 201)")
@@ -35,14 +30,7 @@ func cmdPath(args []string, e *env) error {
 	method := fs.String("method", "tetrahedron", "DOS method of the panel: tetrahedron, gaussian or histogram")
 	width := fs.Float64("width", 0, "Gaussian width of the panel's DOS, in --unit (default: from the grid)")
 	noDOS := fs.Bool("no-dos", false, "plot the dispersion without the DOS panel")
-	sumRule := fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
-	if err := parse(fs, args, e.stderr, pathSummary); err != nil {
-		return err
-	}
-	if err := out.check(fs); err != nil {
-		return err
-	}
-	if err := conn.check(); err != nil {
+	if err := c.parse(args, e, pathSummary); err != nil {
 		return err
 	}
 	u, err := parseUnit(*unit)
@@ -62,26 +50,23 @@ func cmdPath(args []string, e *env) error {
 			return usagef("--path: %v", err)
 		}
 	}
-	crystal, err := m.load()
+	crystal, err := c.m.load()
 	if err != nil {
 		return err
 	}
 	d, _ := dims(crystal)
 	var dosSet *modegridv1.QPointSet
-	if out.plot != "" && !*noDOS {
+	if c.out.plot != "" && !*noDOS {
 		if dosSet, err = qs.set(d, true); err != nil {
 			return err
 		}
 	}
-	cl, stop, err := connect(conn.server, conn.options()...)
+	cl, ctx, release, err := c.dial()
 	if err != nil {
 		return err
 	}
-	defer stop()
-	ctx, cancel := callContext()
-	defer cancel()
-	src := client.Inline(crystal)
-	src.EnforceSumRule = *sumRule
+	defer release()
+	src := c.source(crystal)
 	if corners == nil {
 		if corners, err = standardPath(ctx, cl, src); err != nil {
 			return err
@@ -97,10 +82,10 @@ func cmdPath(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	if err := out.write(e.stdout, func(w io.Writer) error { return writePath(w, out.format, resp) }); err != nil {
+	if err := c.out.write(e.stdout, func(w io.Writer) error { return writePath(w, c.out.format, resp) }); err != nil {
 		return err
 	}
-	if out.plot == "" {
+	if c.out.plot == "" {
 		return nil
 	}
 	var dos *modegridv1.ComputeDosResponse
@@ -112,7 +97,7 @@ func cmdPath(args []string, e *env) error {
 			return err
 		}
 	}
-	return plotDispersion(out.plot, out.kind, resp, dos, crystal.GetName())
+	return plotDispersion(c.out.plot, c.out.kind, resp, dos, crystal.GetName())
 }
 
 // defaultPaths are the standard paths through the built-in points of each

@@ -8,7 +8,6 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
-	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -19,34 +18,22 @@ and the Debye temperature θD(T) that reproduces Cv, at --temps
 site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.`
 
 func cmdThermal(args []string, e *env) error {
-	fs := newFlagSet("thermal")
-	var m modelFlag
-	var conn connFlags
-	var out outFlags
+	c := newModelCommand("thermal", true)
+	fs := c.fs
 	var qs qsetFlags
-	m.register(fs)
-	conn.register(fs)
-	out.register(fs, true)
 	qs.register(fs, false)
 	temps := fs.String("temps", "0:1000:10", "temperatures in K: start:stop:step or a list like 100,200,300")
 	msd := fs.Bool("msd", false, "also give mean-square displacements (Uiso, B) per site")
 	allowUnstable := fs.Bool("allow-unstable", false, "leave imaginary modes out instead of refusing an unstable model")
 	dosRoute := fs.Bool("dos-route", false, "integrate over the tetrahedron DOS instead of summing the grid's modes")
-	sumRule := fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
-	if err := parse(fs, args, e.stderr, thermalSummary); err != nil {
-		return err
-	}
-	if err := out.check(fs); err != nil {
-		return err
-	}
-	if err := conn.check(); err != nil {
+	if err := c.parse(args, e, thermalSummary); err != nil {
 		return err
 	}
 	list, rng, err := parseTemps(*temps)
 	if err != nil {
 		return usagef("--temps: %v", err)
 	}
-	crystal, err := m.load()
+	crystal, err := c.m.load()
 	if err != nil {
 		return err
 	}
@@ -55,15 +42,12 @@ func cmdThermal(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	cl, stop, err := connect(conn.server, conn.options()...)
+	cl, ctx, release, err := c.dial()
 	if err != nil {
 		return err
 	}
-	defer stop()
-	ctx, cancel := callContext()
-	defer cancel()
-	src := client.Inline(crystal)
-	src.EnforceSumRule = *sumRule
+	defer release()
+	src := c.source(crystal)
 	req := &modegridv1.ComputeThermalRequest{Model: src, Qpoints: set, TemperaturesK: list, AllowUnstable: *allowUnstable, Msd: *msd}
 	if rng != nil {
 		req.Range = &modegridv1.TemperatureRange{StartK: rng.Start, StopK: rng.Stop, StepK: rng.Step}
@@ -88,11 +72,11 @@ func cmdThermal(args []string, e *env) error {
 	if n := resp.GetImaginaryModesExcluded(); n > 0 {
 		e.note("%d imaginary modes on the %s were left out of the sums", n, describe(set))
 	}
-	if err := out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, out.format, resp) }); err != nil {
+	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp) }); err != nil {
 		return err
 	}
-	if out.plot == "" {
+	if c.out.plot == "" {
 		return nil
 	}
-	return plotThermal(out.plot, out.kind, resp, len(crystal.GetSites()), p, crystal.GetName())
+	return plotThermal(c.out.plot, c.out.kind, resp, len(crystal.GetSites()), p, crystal.GetName())
 }
