@@ -303,23 +303,5 @@ func latticeSpanBasis(m *Model) [3][3]float64 {
 // root of the Gram determinant of the lattice vectors.
 func cellMeasure(m *Model) float64 {
 	lat := m.Lattice()
-	d := m.Dim()
-	var g [3][3]float64
-	for i := 0; i < d; i++ {
-		for j := 0; j < d; j++ {
-			g[i][j] = dot3(lat[i], lat[j])
-		}
-	}
-	var det float64
-	switch d {
-	case 1:
-		det = g[0][0]
-	case 2:
-		det = g[0][0]*g[1][1] - g[0][1]*g[1][0]
-	default:
-		det = g[0][0]*(g[1][1]*g[2][2]-g[1][2]*g[2][1]) -
-			g[0][1]*(g[1][0]*g[2][2]-g[1][2]*g[2][0]) +
-			g[0][2]*(g[1][0]*g[2][1]-g[1][1]*g[2][0])
-	}
-	return math.Sqrt(det)
+	return gramMeasure(lat[:m.Dim()])
 }

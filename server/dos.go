@@ -56,6 +56,17 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	if opt.Method == physics.Gaussian {
 		opt.Width = canonFloat(req.GetWidth())
 	}
+	// The window, step and width are checked here, before any work, as
+	// physics.ComputeDOS would check them after the grid's modes.
+	if !(opt.Min == 0 && opt.Max == 0) && opt.Max <= opt.Min {
+		vs.add("max", "must be greater than min (%v), got %v (leave both 0 for a window from the modes)", opt.Min, opt.Max)
+	}
+	if opt.Step < 0 {
+		vs.add("step", "must be > 0 (0 for a default from the window), got %v", opt.Step)
+	}
+	if opt.Width < 0 {
+		vs.add("width", "must be > 0 (0 for a default from the grid), got %v", opt.Width)
+	}
 	if opt.Step > 0 && opt.Max > opt.Min {
 		if n := (opt.Max-opt.Min)/opt.Step + 1; n > float64(s.cfg.MaxDOSBins) {
 			vs.add("step", "the window %v…%v in steps of %v is %.0f samples, over this server's cap max-dos-bins=%d", opt.Min, opt.Max, opt.Step, n, s.cfg.MaxDOSBins)

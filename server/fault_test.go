@@ -314,6 +314,10 @@ func TestFaultCapsRefusedBeforeWork(t *testing.T) {
 		{name: "path spacing over max-path-points", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: corners(2), SpacingInvA: 1e-4}), field: "spacing_inv_a", cap: "max-path-points=300"},
 		{name: "path corners over max-path-corners", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: corners(6)}), field: "path", cap: "max-path-corners=5"},
 		{name: "dos window over max-dos-bins", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Min: 0, Max: 10, Step: 1e-3}), field: "step", cap: "max-dos-bins=2000"},
+		// Not caps, but refused before the grid is diagonalised all the
+		// same (they used to be found by physics.ComputeDOS after it).
+		{name: "dos window upside down", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Min: 4, Max: 2}), field: "max", cap: "greater than min"},
+		{name: "dos negative width", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: -0.5}), field: "width", cap: "must be > 0"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -328,6 +332,7 @@ func TestFaultCapsRefusedBeforeWork(t *testing.T) {
 			if !strings.Contains(desc, tt.cap) {
 				t.Errorf("%s: %q does not name the cap %s", tt.field, desc, tt.cap)
 			}
+			t.Logf("INVALID_ARGUMENT %s: %s", tt.field, desc)
 			if n := metricSum(t, reg, "modegrid_computations_total", kindCompile) - work0; n != 0 {
 				t.Errorf("%v computations started for a refused request; want 0", n)
 			}
@@ -344,6 +349,7 @@ func TestFaultCapsRefusedBeforeWork(t *testing.T) {
 		if st.Code() != codes.ResourceExhausted || !strings.Contains(st.Message(), "1048576") {
 			t.Errorf("got %v; want ResourceExhausted naming the 1048576-byte limit", err)
 		}
+		t.Logf("%v: %s", st.Code(), st.Message())
 		if n := metricSum(t, reg, "modegrid_computations_total") - work0; n != 0 {
 			t.Errorf("%v computations (compilation included) for an undecoded message; want 0", n)
 		}
@@ -391,6 +397,8 @@ func TestFaultOverflowingCaps(t *testing.T) {
 			fields := badFields(t, tt.call(testContext(t)))
 			if d, ok := fields[tt.field]; !ok || !strings.Contains(d, tt.cap) {
 				t.Errorf("violations %v; want %s naming %s", fields, tt.field, tt.cap)
+			} else {
+				t.Logf("INVALID_ARGUMENT %s: %s", tt.field, d)
 			}
 			if n := metricSum(t, reg, "modegrid_computations_total", kindCompile) - work0; n != 0 {
 				t.Errorf("%v computations started; want 0", n)
@@ -662,3 +670,118 @@ func value(m prometheus.Metric) float64 {
 }
 
 func insecureCreds() credentials.TransportCredentials { return insecure.NewCredentials() }
+
+// TestFaultBadInputs: a catalogue of bad requests and what each gets —
+// the code, and for INVALID_ARGUMENT the field named — logged for the
+// reliability table (go test ./server -run TestFaultBadInputs -v).
+func TestFaultBadInputs(t *testing.T) {
+	ts := startServer(t, Config{})
+	chain, fcc := example(t, "chain"), example(t, "fcc")
+	withSites := func(c *modegridv1.Crystal, edit func(*modegridv1.Crystal)) *modegridv1.Crystal {
+		c = proto.Clone(c).(*modegridv1.Crystal)
+		edit(c)
+		return c
+	}
+	unstable := withSites(chain, func(c *modegridv1.Crystal) { c.Springs[0].KLong = -1 })
+	modes := func(r *modegridv1.ComputeModesRequest) func(context.Context) error {
+		return func(ctx context.Context) error { _, err := collectModes(ctx, ts.api, r); return err }
+	}
+	dos := func(r *modegridv1.ComputeDosRequest) func(context.Context) error {
+		return func(ctx context.Context) error { _, err := ts.api.ComputeDos(ctx, r); return err }
+	}
+	thermal := func(r *modegridv1.ComputeThermalRequest) func(context.Context) error {
+		return func(ctx context.Context) error { _, err := ts.api.ComputeThermal(ctx, r); return err }
+	}
+	disp := func(r *modegridv1.ComputeDispersionRequest) func(context.Context) error {
+		return func(ctx context.Context) error { _, err := ts.api.ComputeDispersion(ctx, r); return err }
+	}
+	q := func(qs ...[3]float64) *modegridv1.QPointSet {
+		l := &modegridv1.QPointList{}
+		for _, v := range qs {
+			l.Points = append(l.Points, &modegridv1.QPoint{Q1: v[0], Q2: v[1], Q3: v[2]})
+		}
+		return &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: l}}
+	}
+	tests := []struct {
+		name  string
+		call  func(context.Context) error
+		code  codes.Code
+		field string // for INVALID_ARGUMENT: a violation's field
+	}{
+		{name: "no model", call: modes(&modegridv1.ComputeModesRequest{Qpoints: qlist(0)}), code: codes.InvalidArgument, field: "model"},
+		{name: "malformed model hash", call: modes(&modegridv1.ComputeModesRequest{Model: byHash("abc"), Qpoints: qlist(0)}), code: codes.InvalidArgument, field: "model.model_hash"},
+		{name: "unknown model hash", call: modes(&modegridv1.ComputeModesRequest{Model: byHash(strings.Repeat("ab", 32)), Qpoints: qlist(0)}), code: codes.NotFound},
+		{name: "negative mass", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) { c.Sites[0].MassAmu = -1 })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.sites[0].mass_amu"},
+		{name: "NaN lattice component", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) { c.Lattice[0].X = math.NaN() })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.lattice[0].x"},
+		{name: "parallel lattice vectors", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(fcc, func(c *modegridv1.Crystal) { c.Lattice[2] = c.Lattice[1] })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.lattice"},
+		{name: "spring to a missing site", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) { c.Springs[0].To = 5 })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.springs[0].to"},
+		{name: "duplicate bond", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) {
+			c.Springs = append(c.Springs, &modegridv1.Spring{From: 0, To: 0, Cell: []int32{-1}, KLong: 1})
+		})), Qpoints: qlist(0)}), code: codes.InvalidArgument, field: "model.crystal.springs[1]"},
+		{name: "frac of the wrong length", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(fcc, func(c *modegridv1.Crystal) { c.Sites[0].Frac = []float64{0} })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.sites[0].frac"},
+		{name: "shell of an unknown label", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) {
+			c.Shells = []*modegridv1.Shell{{FromLabel: "A", ToLabel: "Zz", Shell: 1, KLong: 1}}
+		})), Qpoints: qlist(0)}), code: codes.InvalidArgument, field: "model.crystal.shells[0].to_label"},
+		{name: "NaN q", call: modes(&modegridv1.ComputeModesRequest{Model: inline(chain), Qpoints: q([3]float64{0.1, 0, 0}, [3]float64{math.NaN(), 0, 0})}),
+			code: codes.InvalidArgument, field: "qpoints.list.points[1].q1"},
+		{name: "q past the dimensionality", call: modes(&modegridv1.ComputeModesRequest{Model: inline(chain), Qpoints: q([3]float64{0.1, 0.2, 0})}),
+			code: codes.InvalidArgument, field: "qpoints.list.points[0].q2"},
+		{name: "unknown unit", call: modes(&modegridv1.ComputeModesRequest{Model: inline(chain), Qpoints: qlist(0), Unit: 9}), code: codes.InvalidArgument, field: "unit"},
+		{name: "DOS on an explicit list", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: qlist(0.1)}), code: codes.InvalidArgument, field: "qpoints.list"},
+		{name: "DOS window upside down", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), Min: 5, Max: 1}), code: codes.InvalidArgument, field: "max"},
+		{name: "negative Gaussian width", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: -1}),
+			code: codes.InvalidArgument, field: "width"},
+		{name: "negative DOS step", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), Step: -0.1}),
+			code: codes.InvalidArgument, field: "step"},
+		{name: "negative temperature", call: thermal(&modegridv1.ComputeThermalRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), TemperaturesK: []float64{300, -4}}),
+			code: codes.InvalidArgument, field: "temperatures_k[1]"},
+		{name: "range stop below start", call: thermal(&modegridv1.ComputeThermalRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), Range: &modegridv1.TemperatureRange{StartK: 300, StopK: 100, StepK: 10}}),
+			code: codes.InvalidArgument, field: "range.stop_k"},
+		{name: "range step zero", call: thermal(&modegridv1.ComputeThermalRequest{Model: inline(chain), Qpoints: mpGrid(false, 16), Range: &modegridv1.TemperatureRange{StopK: 100}}),
+			code: codes.InvalidArgument, field: "range.step_k"},
+		{name: "thermal of an unstable model", call: thermal(&modegridv1.ComputeThermalRequest{Model: inline(unstable), Qpoints: mpGrid(false, 16), TemperaturesK: []float64{300}}),
+			code: codes.FailedPrecondition},
+		{name: "path of one corner", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: []*modegridv1.PathPoint{{Label: "G"}}}), code: codes.InvalidArgument, field: "path"},
+		{name: "label not of this lattice", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "L"}}}),
+			code: codes.InvalidArgument, field: "path[1].label"},
+		{name: "bytes that are not a request", call: func(ctx context.Context) error {
+			return ts.conn.Invoke(ctx, modegridv1.ModegridService_CheckModel_FullMethodName, rawRequest("\xff\xff\xff"), &modegridv1.CheckModelResponse{}, grpc.ForceCodec(rawCodec{}))
+		}, code: codes.Internal},
+		{name: "message over max-msg-bytes", call: modes(tooBigMessage(t)), code: codes.ResourceExhausted},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			err := tt.call(testContext(t))
+			st := status.Convert(err)
+			if st.Code() != tt.code {
+				t.Fatalf("got %v; want %v", err, tt.code)
+			}
+			if tt.code != codes.InvalidArgument {
+				t.Logf("%v: %s", st.Code(), st.Message())
+				return
+			}
+			fields := badFields(t, err)
+			d, ok := fields[tt.field]
+			if !ok {
+				t.Fatalf("violations %v do not name %s", fields, tt.field)
+			}
+			t.Logf("INVALID_ARGUMENT %s: %s", tt.field, d)
+		})
+	}
+}
+
+// tooBigMessage is a request over the default 16 MiB message cap: a list
+// of 600 000 q-points (about 17 MB serialised).
+func tooBigMessage(t testing.TB) *modegridv1.ComputeModesRequest {
+	pts := make([]*modegridv1.QPoint, 600_000)
+	for i := range pts {
+		pts[i] = &modegridv1.QPoint{Q1: 0.1 + float64(i)*1e-7, Q2: 0.2, Q3: 0.3}
+	}
+	return &modegridv1.ComputeModesRequest{Model: inline(example(t, "fcc")),
+		Qpoints: &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: &modegridv1.QPointList{Points: pts}}}}
+}

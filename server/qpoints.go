@@ -135,8 +135,17 @@ func (s *Service) parseMesh(mesh []uint32, dim int, field string, vs *violations
 		// overflow an int (2²²·2²²·2²² wraps to 0), and a wrapped product
 		// would pass the cap and make the points list unbounded.
 		if n := float64(g.Mesh[0]) * float64(g.Mesh[1]) * float64(g.Mesh[2]); n > float64(s.cfg.MaxQPoints) {
-			vs.add(field, "%s is %.0f q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), n, s.cfg.MaxQPoints)
+			vs.add(field, "%s is %s q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), countString(n), s.cfg.MaxQPoints)
 		}
 	}
 	return g
+}
+
+// countString prints a count computed in floating point: whole digits up
+// to 10¹⁵, three significant digits beyond.
+func countString(n float64) string {
+	if n < 1e15 {
+		return fmt.Sprintf("%.0f", n)
+	}
+	return fmt.Sprintf("%.3g", n)
 }

@@ -68,7 +68,7 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 			// past the cap.
 			nf := math.Floor((stop-start)/step+1e-9) + 1
 			if float64(len(ts))+nf > float64(s.cfg.MaxTemps) {
-				vs.add("range", "%.0f temperatures exceed this server's cap max-temps=%d", float64(len(ts))+nf, s.cfg.MaxTemps)
+				vs.add("range", "%s temperatures exceed this server's cap max-temps=%d", countString(float64(len(ts))+nf), s.cfg.MaxTemps)
 				return nil
 			}
 			n := int(nf)
