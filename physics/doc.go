@@ -200,4 +200,31 @@
 // both routes. In one and two dimensions the thermal ⟨u²⟩ of an infinite
 // crystal diverges (Peierls 1934; Mermin 1968), so there it grows with the
 // grid; in three it converges, slowly, because of the 1/ω² weight near Γ.
+//
+// # Symmetry and reduced grids
+//
+// Model.Symmetry finds the point-group operations of the whole model:
+// integer lattice automorphisms R (entries −1, 0, 1; enough for a reduced
+// basis) that preserve the metric, keep the first p Cartesian axes apart
+// from the others, map every site onto a site of equal mass with a
+// fractional translation t, and leave the force constants invariant. The
+// last test is made on the dynamical matrix itself, D(Sq) = U D(q) U† at
+// three random q, with S = R⁻ᵀ acting on fractional q and
+// U_{π(i)α, iβ} = C_αβ exp(−2πi Sq·L_i), C the Cartesian rotation and L_i
+// the cell site i lands in; so springs, shells and blocks that break an
+// operation remove it. Time reversal, D(−q) = D(q)*, always holds.
+//
+// ReduceGrid keeps the operations that map the grid onto itself and groups
+// the grid into orbits under them and time reversal (integer
+// multiplicities); the tables are cached (bounded) per lattice operations
+// and grid. GridModes diagonalises one point per orbit and unfolds:
+// frequencies are copied, the weight of site π(i) at Sq is that of site i at
+// q, site tensors rotate as C t Cᵀ, eigenvectors as U e (conjugated under
+// time reversal). Per-site weights and tensors are averaged within each
+// degenerate group first — the only basis-independent choice — so the
+// reduced and the full computation agree to rounding. For the total DOS
+// the tetrahedra whose corners carry the same irreducible points are summed
+// once with their count (exact: a tetrahedron's contribution depends only on
+// its corner frequencies). Sums over slices are merged in a fixed order, so
+// results are bit-for-bit independent of scheduling and core count.
 package physics
