@@ -301,38 +301,38 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 			}
 			reach[k] = r
 		}
-		type cand struct {
-			b shellBond
-			d float64
+		cells := 1
+		for k := 0; k < m.dim; k++ {
+			cells *= 2*reach[k] + 1
 		}
-		var cands []cand
-		var n [3]int
-		for n[0] = -reach[0]; n[0] <= reach[0]; n[0]++ {
-			for n[1] = -reach[1]; n[1] <= reach[1]; n[1]++ {
-				for n[2] = -reach[2]; n[2] <= reach[2]; n[2]++ {
-					rn := m.latticeVec(n)
-					for _, i := range from {
-						for _, j := range to {
-							if i == j && n == ([3]int{}) {
-								continue
-							}
-							d := norm3(sub3(add3(m.pos[j], rn), m.pos[i]))
-							if d <= radius {
-								cands = append(cands, cand{shellBond{i, j, n}, d})
-							}
-						}
-					}
+		if work := float64(cells) * float64(len(from)) * float64(len(to)); work > ShellSearchBudget {
+			return nil, 0, fmt.Errorf("the search for shell %d between %q and %q would compare %.3g site pairs, more than the limit of %.0e: ask for a nearer shell or give the bonds as springs", sh.Shell, sh.FromLabel, sh.ToLabel, work, float64(ShellSearchBudget))
+		}
+		// Pass 1: the Shell+1 smallest distinct distances within radius,
+		// kept in a short sorted list (no list of every candidate pair).
+		keep := sh.Shell + 1
+		shellD := make([]float64, 0, keep+1)
+		m.eachPair(from, to, reach, func(_ shellBond, d float64) {
+			if d > radius {
+				return
+			}
+			x := sort.SearchFloat64s(shellD, d)
+			if (x < len(shellD) && shellD[x]-d <= ShellTolA) || (x > 0 && d-shellD[x-1] <= ShellTolA) {
+				if x < len(shellD) && shellD[x]-d <= ShellTolA && d < shellD[x] {
+					shellD[x] = d
 				}
+				return
 			}
-		}
-		sort.Slice(cands, func(a, b int) bool { return cands[a].d < cands[b].d })
-		// Distinct distances in order.
-		var shellD []float64
-		for _, c := range cands {
-			if len(shellD) == 0 || c.d-shellD[len(shellD)-1] > ShellTolA {
-				shellD = append(shellD, c.d)
+			if x >= keep {
+				return
 			}
-		}
+			shellD = append(shellD, 0)
+			copy(shellD[x+1:], shellD[x:])
+			shellD[x] = d
+			if len(shellD) > keep {
+				shellD = shellD[:keep]
+			}
+		})
 		// The shell is only known complete if a farther distance exists
 		// inside the radius (so nothing between was missed). When the
 		// cell-offset limit capped the search, only distances up to
@@ -350,28 +350,54 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 			}
 		}
 		if len(within) > sh.Shell || (capped && len(within) >= sh.Shell) {
+			// Pass 2: every bond at the target distance.
 			target := within[sh.Shell-1]
 			var bonds []shellBond
 			same := sh.FromLabel == sh.ToLabel
-			for _, c := range cands {
-				if math.Abs(c.d-target) > ShellTolA {
-					continue
+			m.eachPair(from, to, reach, func(b shellBond, d float64) {
+				if math.Abs(d-target) > ShellTolA || len(bonds) > lim.MaxInteractions {
+					return
 				}
-				b := c.b
 				if same {
 					// Keep one of (i, j, n) and (j, i, −n).
 					if b.i > b.j || (b.i == b.j && lessCell(b.n, neg3(b.n))) {
-						continue
+						return
 					}
 				}
 				bonds = append(bonds, b)
-			}
+			})
 			return bonds, target, nil
 		}
 		if capped {
 			return nil, 0, fmt.Errorf("found no neighbours in shell %d between %q and %q: only %d shell(s) lie within reach of the cell-offset limit of ±%d", sh.Shell, sh.FromLabel, sh.ToLabel, len(within), lim.MaxCellOffset)
 		}
 		radius *= 2
+	}
+}
+
+// ShellSearchBudget bounds the site-pair distances one neighbour-shell
+// search may evaluate (cells in reach × sites of one label × sites of the
+// other), so that no model can make Compile run for minutes.
+const ShellSearchBudget = 1e8
+
+// eachPair calls fn with every pair (i in from, cell 0; j in to, cell n),
+// |n_k| ≤ reach_k, except a site with itself in cell 0, and its distance.
+func (m *Model) eachPair(from, to []int, reach [3]int, fn func(b shellBond, d float64)) {
+	var n [3]int
+	for n[0] = -reach[0]; n[0] <= reach[0]; n[0]++ {
+		for n[1] = -reach[1]; n[1] <= reach[1]; n[1]++ {
+			for n[2] = -reach[2]; n[2] <= reach[2]; n[2]++ {
+				rn := m.latticeVec(n)
+				for _, i := range from {
+					for _, j := range to {
+						if i == j && n == ([3]int{}) {
+							continue
+						}
+						fn(shellBond{i, j, n}, norm3(sub3(add3(m.pos[j], rn), m.pos[i])))
+					}
+				}
+			}
+		}
 	}
 }
 

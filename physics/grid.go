@@ -179,6 +179,13 @@ type GridModes struct {
 	irr *IrreducibleGrid // the reduction used (nil: every point diagonalised)
 }
 
+// Bytes is the memory the grid modes hold, for cache accounting: the
+// arrays and points (the reduction tables they share are counted once, in
+// the engine's own bounded cache).
+func (g *GridModes) Bytes() int64 {
+	return int64(256 + 8*len(g.FreqTHz) + 8*len(g.SiteWeight) + 8*len(g.SiteTensor) + 16*len(g.Eigvecs) + 32*len(g.Points))
+}
+
 // GridOptions selects what GridModes keeps beyond frequencies.
 type GridOptions struct {
 	Projections  bool // per-site weights

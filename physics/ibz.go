@@ -216,15 +216,26 @@ func unfoldEigvecs(op *SymOp, timeReversal bool, qImage [3]float64, p, nsites in
 	}
 }
 
-// irrCache is the bounded cache of reduced grids.
-var irrCache = newLRU[*IrreducibleGrid](16)
+// irrCache is the bounded cache of reduced grids: at most 16 of them and
+// 64 MiB of tables (6 bytes per grid point), so its memory is a fixed
+// overhead beside the server's own cache.
+var irrCache = newSizedLRU[*IrreducibleGrid](16, 64<<20, (*IrreducibleGrid).bytes)
 
-// lru is a small mutex-guarded LRU of fixed entry count.
+// bytes is the memory held by the reduction tables.
+func (ir *IrreducibleGrid) bytes() int {
+	return 6*len(ir.Slot) + 16*len(ir.Irr)
+}
+
+// lru is a small mutex-guarded LRU bounded by entry count and, when size
+// is set, by the sum of the entries' sizes.
 type lru[V any] struct {
-	mu    sync.Mutex // guards ll and items
-	max   int
-	ll    *list.List
-	items map[string]*list.Element
+	mu       sync.Mutex // guards ll, items and bytes
+	max      int
+	maxBytes int
+	size     func(V) int // nil: entries have no size
+	bytes    int
+	ll       *list.List
+	items    map[string]*list.Element
 }
 
 type lruEntry[V any] struct {
@@ -234,6 +245,19 @@ type lruEntry[V any] struct {
 
 func newLRU[V any](max int) *lru[V] {
 	return &lru[V]{max: max, ll: list.New(), items: map[string]*list.Element{}}
+}
+
+func newSizedLRU[V any](max, maxBytes int, size func(V) int) *lru[V] {
+	c := newLRU[V](max)
+	c.maxBytes, c.size = maxBytes, size
+	return c
+}
+
+func (c *lru[V]) sizeOf(v V) int {
+	if c.size == nil {
+		return 0
+	}
+	return c.size(v)
 }
 
 func (c *lru[V]) get(key string) (V, bool) {
@@ -250,16 +274,24 @@ func (c *lru[V]) get(key string) (V, bool) {
 func (c *lru[V]) put(key string, v V) {
 	c.mu.Lock()
 	defer c.mu.Unlock()
-	if e, ok := c.items[key]; ok {
-		e.Value.(*lruEntry[V]).val = v
-		c.ll.MoveToFront(e)
-		return
+	if c.size != nil && c.sizeOf(v) > c.maxBytes {
+		return // larger than the whole cache: not kept
 	}
-	c.items[key] = c.ll.PushFront(&lruEntry[V]{key, v})
-	for c.ll.Len() > c.max {
+	if e, ok := c.items[key]; ok {
+		old := e.Value.(*lruEntry[V])
+		c.bytes += c.sizeOf(v) - c.sizeOf(old.val)
+		old.val = v
+		c.ll.MoveToFront(e)
+	} else {
+		c.items[key] = c.ll.PushFront(&lruEntry[V]{key, v})
+		c.bytes += c.sizeOf(v)
+	}
+	for c.ll.Len() > c.max || (c.size != nil && c.bytes > c.maxBytes) {
 		e := c.ll.Back()
 		c.ll.Remove(e)
-		delete(c.items, e.Value.(*lruEntry[V]).key)
+		ent := e.Value.(*lruEntry[V])
+		delete(c.items, ent.key)
+		c.bytes -= c.sizeOf(ent.val)
 	}
 }
 

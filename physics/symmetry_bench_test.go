@@ -28,7 +28,7 @@ func BenchmarkDOSEndToEnd(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
 				if run.cold { // forget the reduced grid and its simplex classes
-					irrCache = newLRU[*IrreducibleGrid](16)
+					irrCache = newSizedLRU[*IrreducibleGrid](16, 64<<20, (*IrreducibleGrid).bytes)
 					classCache = newLRU[[]simplexClass](8)
 				}
 				m, err := Compile(c, Options{})

@@ -87,6 +87,7 @@ type ThermalResult struct {
 // Thermal limits.
 const (
 	MaxTempK        = 1e6     // highest temperature accepted
+	MinTempK        = 1e-200  // below it (and above 0) a temperature is computed as its T → 0 limit
 	MaxTemperatures = 100_000 // most temperatures in one call
 	// dosRouteBins is the number of DOS bins the DOSIntegral route uses.
 	dosRouteBins = 2000
@@ -163,7 +164,14 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		res.ModesPerCell += thermo.ch[i*thermo.nc]
 	}
 
-	temps := opt.TempsK
+	// Below MinTempK, k_B·T underflows against hν (x = hν/k_BT overflows):
+	// such temperatures are computed as their T → 0 limit.
+	temps := make([]float64, len(opt.TempsK))
+	for i, t := range opt.TempsK {
+		if t >= MinTempK {
+			temps[i] = t
+		}
+	}
 	sums, err := evalSums(ctx, thermo, temps, mode)
 	if err != nil {
 		return nil, err
@@ -180,7 +188,7 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 	res.Points = make([]ThermalPoint, len(temps))
 	for i, tK := range temps {
 		s := sums[i]
-		p := ThermalPoint{TempK: tK, UeV: res.ZPEeV, FeV: res.ZPEeV}
+		p := ThermalPoint{TempK: opt.TempsK[i], UeV: res.ZPEeV, FeV: res.ZPEeV}
 		if tK > 0 {
 			kappa := THzToKelvin / tK
 			p.UeV += THzToEV * s[0]

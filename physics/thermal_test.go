@@ -471,3 +471,23 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 		t.Errorf("excluded %d imaginary, %d zero modes; want 0 and 1", r.ImaginaryExcluded, r.ZeroExcluded)
 	}
 }
+
+// TestThermalTinyTemperature: temperatures so small that k_B·T underflows
+// against hν give the T = 0 limits (S = 0, Cv = 0, U = F = zero-point
+// energy; the third law, Kittel ch. 5), not NaN — found by fuzzing.
+func TestThermalTinyTemperature(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "chain"))
+	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{8}}, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := ComputeThermal(context.Background(), m, g, ThermalOptions{TempsK: []float64{0, 9.005004792076203e-308, 5e-324}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range r.Points {
+		if p.SeVPerK != 0 || p.CveVPerK != 0 || p.UeV != r.ZPEeV || p.FeV != r.ZPEeV {
+			t.Errorf("T = %g K: S %v, Cv %v, U %v, F %v; want 0, 0, ZPE %v, ZPE", p.TempK, p.SeVPerK, p.CveVPerK, p.UeV, p.FeV, r.ZPEeV)
+		}
+	}
+}

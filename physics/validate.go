@@ -36,6 +36,17 @@ func (l Limits) withDefaults() Limits {
 	return l
 }
 
+// Ranges of accepted input: far beyond any real crystal, and small enough
+// that every product the engine forms (ω² = k/m, |a|², positions) stays
+// finite and keeps its digits.
+const (
+	MaxLengthA      = 1e5  // |lattice component| and lattice-vector length, Å
+	MaxFrac         = 1e3  // |fractional coordinate|
+	MinMassAmu      = 1e-6 // amu
+	MaxMassAmu      = 1e9  // amu
+	MaxForceEVPerA2 = 1e6  // |spring constant| or |block element|, eV/Å² (1.6e7 N/m)
+)
+
 // Geometric tolerances used by validation and neighbour search.
 const (
 	// LatticeTolA is the smallest accepted lattice-vector length (Å), and
@@ -112,6 +123,9 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 			if !finite(x) {
 				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
 				latticeOK = false
+			} else if math.Abs(x) > MaxLengthA {
+				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
+				latticeOK = false
 			}
 		}
 	}
@@ -160,6 +174,8 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 			vs.add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
 		} else if s.MassAmu <= 0 {
 			vs.add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
+		} else if s.MassAmu < MinMassAmu || s.MassAmu > MaxMassAmu {
+			vs.add(f+".mass_amu", "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, s.MassAmu)
 		}
 		if d >= 1 && d <= 3 && len(s.Frac) != d {
 			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", d, len(s.Frac))
@@ -169,6 +185,9 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		for k, x := range s.Frac {
 			if !finite(x) {
 				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
+				ok = false
+			} else if math.Abs(x) > MaxFrac {
+				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be within ±%g, got %v", MaxFrac, x)
 				ok = false
 			}
 		}
@@ -236,19 +255,38 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		}
 		return k
 	}
+	maxForce, forceUnit := MaxForceEVPerA2, "eV/Å²"
+	if c.ForceUnit == NPerM {
+		maxForce, forceUnit = MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
+	}
+	checkForce := func(field string, v float64) {
+		if !finite(v) {
+			vs.add(field, "must be finite, got %v", v)
+		} else if math.Abs(v) > maxForce {
+			vs.add(field, "must be within ±%g %s, got %v", maxForce, forceUnit, v)
+		}
+	}
 	for idx, s := range c.Springs {
 		f := fmt.Sprintf("springs[%d]", idx)
-		for _, kv := range []struct {
-			name string
-			v    float64
-		}{{"k_long", s.KLong}, {"k_trans", s.KTrans}} {
-			if !finite(kv.v) {
-				vs.add(f+"."+kv.name, "must be finite, got %v", kv.v)
-			}
-		}
+		checkForce(f+".k_long", s.KLong)
+		checkForce(f+".k_trans", s.KTrans)
 		key, ok := checkPair(f, s.From, s.To, s.Cell, false)
 		if !ok {
 			continue
+		}
+		if posOK[s.From] && posOK[s.To] {
+			// A spring needs a direction: its two ends must be apart.
+			var r [3]float64
+			for k := range c.Lattice {
+				df := c.Sites[s.To].Frac[k] + float64(s.Cell[k]) - c.Sites[s.From].Frac[k]
+				for a := 0; a < 3; a++ {
+					r[a] += df * c.Lattice[k][a]
+				}
+			}
+			if l := norm3(r); l < CoincidenceTolA {
+				vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
+				continue
+			}
 		}
 		ck := canonical(key)
 		if prev, dup := seen[ck]; dup {
@@ -264,9 +302,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 			vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
 		}
 		for k, x := range b.Phi {
-			if !finite(x) {
-				vs.add(fmt.Sprintf("%s.phi[%d]", f, k), "must be finite, got %v", x)
-			}
+			checkForce(fmt.Sprintf("%s.phi[%d]", f, k), x)
 		}
 		key, ok := checkPair(f, b.From, b.To, b.Cell, true)
 		if !ok {
@@ -312,12 +348,8 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		} else if s.Shell > maxShell {
 			vs.add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
 		}
-		if !finite(s.KLong) {
-			vs.add(f+".k_long", "must be finite, got %v", s.KLong)
-		}
-		if !finite(s.KTrans) {
-			vs.add(f+".k_trans", "must be finite, got %v", s.KTrans)
-		}
+		checkForce(f+".k_long", s.KLong)
+		checkForce(f+".k_trans", s.KTrans)
 	}
 	if total > lim.MaxInteractions {
 		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)

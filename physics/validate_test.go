@@ -73,6 +73,21 @@ func TestValidationRules(t *testing.T) {
 		{"spring k NaN", twoSiteChain, func(c *Crystal) { c.Springs[1].KTrans = nan }, Limits{}, "springs[1].k_trans", "got NaN"},
 		{"block phi Inf", twoSiteChain, func(c *Crystal) { c.Blocks[0].Phi[4] = inf }, Limits{}, "blocks[0].phi[4]", "got +Inf"},
 		{"shell k NaN", threeD, func(c *Crystal) { c.Shells[0].KLong = nan }, Limits{}, "shells[0].k_long", "got NaN"},
+		{"mass too small", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = 1e-300 }, Limits{}, "sites[0].mass_amu", "must be in [1e-06, 1e+09] amu"},
+		{"mass too large", twoSiteChain, func(c *Crystal) { c.Sites[1].MassAmu = 1e12 }, Limits{}, "sites[1].mass_amu", "got 1e+12"},
+		{"lattice too long", twoSiteChain, func(c *Crystal) { c.Lattice[0][0] = 2.6e159 }, Limits{}, "lattice[0].x", "within ±100000 Å"},
+		{"frac too large", twoSiteChain, func(c *Crystal) { c.Sites[0].Frac[0] = 7.88e115 }, Limits{}, "sites[0].frac[0]", "within ±1000"},
+		{"spring too stiff", twoSiteChain, func(c *Crystal) { c.Springs[0].KLong = 1e300 }, Limits{}, "springs[0].k_long", "within ±1e+06 eV/Å²"},
+		{"spring too stiff in N/m", twoSiteChain, func(c *Crystal) { c.ForceUnit = NPerM; c.Springs[0].KLong = 2e7 }, Limits{}, "springs[0].k_long", "N/m"},
+		{"block element too large", twoSiteChain, func(c *Crystal) { c.Blocks[0].Phi[0] = -1e7 }, Limits{}, "blocks[0].phi[0]", "got -1e+07"},
+		{"spring of zero length", twoSiteChain, func(c *Crystal) {
+			c.Sites[0].Frac[0] = 0.5
+			c.Sites[1].Frac[0] = 0.25
+			c.Springs[0].Cell[0] = 0
+			c.Springs[0].To = 1
+			c.Springs[0].From = 0
+			c.Sites[1].Frac[0] = 0.5 + 1e-9
+		}, Limits{}, "springs[0]", "a spring needs two separate ends"},
 		{"no lattice", twoSiteChain, func(c *Crystal) { c.Lattice = nil }, Limits{}, "lattice", "got none"},
 		{"four lattice vectors", threeD, func(c *Crystal) { c.Lattice = append(c.Lattice, [3]float64{1, 1, 1}) }, Limits{}, "lattice", "got 4"},
 		{"zero-length vector", threeD, func(c *Crystal) { c.Lattice[1] = [3]float64{} }, Limits{}, "lattice[1]", "length 0"},

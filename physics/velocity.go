@@ -15,6 +15,7 @@ package physics
 
 import (
 	"math"
+	"math/cmplx"
 )
 
 // VelocityUnitKmS is the group velocity in km/s of a slope of
@@ -165,8 +166,30 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 			w.a[k*size+l] = z
 		}
 	}
+	// Scale to order one: the eigenvectors do not change, and entries far
+	// below 1 (at Γ of a nearly centro-symmetric model ∂D/∂q is ~0) would
+	// otherwise underflow inside the solver and come back as NaN.
+	var amax float64
+	for k := 0; k < size; k++ {
+		for l := 0; l <= k; l++ {
+			amax = math.Max(amax, cmplx.Abs(w.a[k*size+l]))
+		}
+	}
+	if !(amax > 1e-290) || math.IsInf(amax, 0) {
+		return // no splitting to follow (or nothing finite): keep the basis
+	}
+	for k := 0; k < size; k++ {
+		for l := 0; l <= k; l++ {
+			w.a[k*size+l] /= complex(amax, 0)
+		}
+	}
 	if w.solve(true) != solveOK {
 		return // keep the basis: velocities are then those of the solver's vectors
+	}
+	for _, c := range w.vecs[:size*size] {
+		if cmplx.IsNaN(c) {
+			return
+		}
 	}
 	// new e_k = Σ_l old e_l U_lk, U_lk = w.vecs[k*size+l]; the same for y.
 	rot := func(src []complex128) {

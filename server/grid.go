@@ -44,7 +44,7 @@ func gridKey(hash string, spec physics.GridSpec, n gridNeed) cache.Key {
 
 // gridBytes is the memory held by grid modes.
 func gridBytes(g *physics.GridModes) int64 {
-	return int64(256 + 8*len(g.FreqTHz) + 8*len(g.SiteWeight) + 16*len(g.Eigvecs) + 32*len(g.Points))
+	return g.Bytes()
 }
 
 // gridModes returns the modes of e's model on spec with at least what need
