@@ -156,6 +156,12 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 	if amax == 0 || math.IsInf(amax, 0) || math.IsNaN(amax) {
 		return w.trivial(amax, vectors)
 	}
+	if amax < tinyMatrix {
+		// Every eigenvalue is below tinyMatrix in magnitude (frequencies
+		// below 1e-130 THz): zero to any use, and scaling such a matrix
+		// up by 2^1000 and more would overflow.
+		return w.trivial(0, vectors)
+	}
 	// Within 2^±200 nothing can overflow or underflow harmfully, and the
 	// pass is skipped.
 	_, exp := math.Frexp(amax)
@@ -234,6 +240,9 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 // trivial handles a zero matrix (every eigenvalue 0, unit vectors) and a
 // non-finite one (NaN results: such input cannot come from a validated
 // model).
+// tinyMatrix is the largest element below which a matrix is taken as zero.
+const tinyMatrix = 0x1p-900
+
 func (w *eigenWork) trivial(amax float64, vectors bool) solveStatus {
 	n := w.n
 	v := 0.0
