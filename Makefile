@@ -26,10 +26,14 @@ FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComp
   ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
 FUZZTIME ?= 10m
 FUZZTIME_SHORT ?= 3s
+FUZZ_VMEM_KB ?= 8000000
 
-# Each fuzz target for FUZZTIME (10 minutes each by default).
+# Each fuzz target for FUZZTIME (10 minutes each by default). Address space
+# is limited to FUZZ_VMEM_KB so that an input exhausting memory fails its
+# worker (and is reported) instead of the machine.
 fuzz:
-	@for t in $(FUZZ_TARGETS); do pkg=$${t%%:*}; fn=$${t##*:}; \
+	@ulimit -v $(FUZZ_VMEM_KB) 2>/dev/null || true; \
+	for t in $(FUZZ_TARGETS); do pkg=$${t%%:*}; fn=$${t##*:}; \
 	  echo "fuzz $$fn in $$pkg for $(FUZZTIME)"; \
 	  $(GO) test -run '^$$' -fuzz "^$$fn\$$" -fuzztime $(FUZZTIME) $$pkg || exit 1; \
 	done

@@ -56,16 +56,16 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	if opt.Method == physics.Gaussian {
 		opt.Width = canonFloat(req.GetWidth())
 	}
-	// The window, step and width are checked here, before any work, as
-	// physics.ComputeDOS would check them after the grid's modes.
+	// The window, step and width are checked here, before any work, in
+	// the words physics.ComputeDOS would use after the grid's modes.
 	if !(opt.Min == 0 && opt.Max == 0) && opt.Max <= opt.Min {
-		vs.add("max", "must be greater than min (%v), got %v (leave both 0 for a window from the modes)", opt.Min, opt.Max)
+		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", opt.Min, opt.Max)
 	}
 	if opt.Step < 0 {
-		vs.add("step", "must be > 0 (0 for a default from the window), got %v", opt.Step)
+		vs.add("step", "must be > 0 (0 for the default), got %g", opt.Step)
 	}
 	if opt.Width < 0 {
-		vs.add("width", "must be > 0 (0 for a default from the grid), got %v", opt.Width)
+		vs.add("width", "must be > 0 (0 for the default), got %g", opt.Width)
 	}
 	if opt.Step > 0 && opt.Max > opt.Min {
 		if n := (opt.Max-opt.Min)/opt.Step + 1; n > float64(s.cfg.MaxDOSBins) {

@@ -5,7 +5,7 @@ package server
 // abusive and idle connections, a reader too slow for its stream, and
 // callers without valid credentials. Each test shows its outcome with the
 // server's own counters. The SIGTERM fault runs against a real modegridd
-// child process in client/cmd/modegrid-load (daemon_test.go), whose
+// child process in client/cmd/modegrid-load (load_test.go), whose
 // TestMain builds it once.
 
 import (

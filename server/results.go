@@ -2,10 +2,12 @@ package server
 
 import (
 	"context"
+	"reflect"
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/reflect/protoreflect"
 
 	"github.com/materials-lab/modegrid/server/cache"
 )
@@ -25,9 +27,68 @@ func protoCodec[M proto.Message](newMsg func() M) *cache.Codec {
 	}
 }
 
-// resultBytes charges a response message its wire size plus the Go
-// overhead of its slices and headers (a rough 2×, floats dominate).
-func resultBytes(m proto.Message) int64 { return int64(256 + 2*proto.Size(m)) }
+// entryOverhead is what a cache entry costs besides its value: its key
+// strings (the 64-digit hash and the canonical parameters), the LRU list
+// element and the map slot, bytes.
+const entryOverhead = 256
+
+// resultBytes charges a cached response the memory it holds (see
+// messageBytes) plus entryOverhead. (Its wire size is no measure: a
+// dispersion sample holds three times its wire size in Go structs, a DOS
+// about its wire size.)
+func resultBytes(m proto.Message) int64 { return entryOverhead + messageBytes(m.ProtoReflect()) }
+
+// messageBytes is the memory a message holds, bytes: the Go struct of the
+// message and of every message in it, the backing arrays of its repeated
+// fields and the bytes of its strings, each rounded up as the allocator
+// rounds (allocBytes). It reads the lengths only, not the elements of
+// scalar lists, so it is cheap even for a 10⁶-sample DOS.
+func messageBytes(m protoreflect.Message) int64 {
+	n := allocBytes(int64(reflect.TypeOf(m.Interface()).Elem().Size()))
+	m.Range(func(fd protoreflect.FieldDescriptor, v protoreflect.Value) bool {
+		switch {
+		case fd.IsList() && fd.Message() != nil:
+			l := v.List()
+			n += allocBytes(10 * int64(l.Len())) // pointers, and room a decoder's appends leave
+			for i := range l.Len() {
+				n += messageBytes(l.Get(i).Message())
+			}
+		case fd.IsList() && (fd.Kind() == protoreflect.StringKind || fd.Kind() == protoreflect.BytesKind):
+			l := v.List()
+			n += allocBytes(24 * int64(l.Len()))
+			for i := range l.Len() {
+				n += allocBytes(int64(len(l.Get(i).String())))
+			}
+		case fd.IsList():
+			n += allocBytes(8 * int64(v.List().Len())) // 8: the widest scalar
+		case fd.IsMap():
+			n += 64 * int64(v.Map().Len()) // no map in our messages; a rough charge
+		case fd.Message() != nil:
+			n += messageBytes(v.Message())
+		case fd.Kind() == protoreflect.StringKind || fd.Kind() == protoreflect.BytesKind:
+			n += allocBytes(int64(len(v.String())))
+		}
+		return true
+	})
+	return n
+}
+
+// allocBytes rounds an allocation of b bytes up as Go's allocator may:
+// to its size classes (at most 1/8 apart, at least 16 bytes) below
+// 32 KiB, to 8 KiB pages above.
+func allocBytes(b int64) int64 {
+	switch {
+	case b == 0:
+		return 0
+	case b > 32<<10:
+		return (b + 8191) &^ 8191
+	}
+	g := int64(16)
+	for g*16 <= b { // granule b/8 or more, a power of two
+		g *= 2
+	}
+	return (b + g - 1) / g * g
+}
 
 // cachedResult returns the response of kind for (model hash, canonical
 // parameters): from the cache, or computed once for all concurrent

@@ -64,11 +64,14 @@ type sample struct {
 
 // engine runs a load.
 type engine struct {
-	cfg    config
-	c      *client.Client
-	warm   []request
-	cold   atomic.Uint64 // counter making every cold request unique
-	flight atomic.Int64  // calls in flight
+	cfg  config
+	c    *client.Client
+	warm []request
+	cold atomic.Uint64 // counter making every cold request unique
+
+	flightMu sync.Mutex // protects inFlight and halted, so a signal sees an exact count
+	inFlight int        // calls in flight
+	halted   bool       // no call starts any more (haltWhenFull)
 
 	// afterWarm, if set, runs once the warm set has been made, before the
 	// measured part of the run.
@@ -297,7 +300,9 @@ func (e *engine) run(ctx context.Context) error {
 					class = classCold
 					r = coldRequest(cfg, rng, e.cold.Add(1))
 				}
-				e.do(ctx, class, r)
+				if !e.do(ctx, class, r) {
+					return
+				}
 			}
 		}()
 	}
@@ -306,15 +311,23 @@ func (e *engine) run(ctx context.Context) error {
 	return nil
 }
 
-// do makes one call and records it.
-func (e *engine) do(ctx context.Context, class string, r request) {
+// do makes one call and records it; false (and no call) once halted.
+func (e *engine) do(ctx context.Context, class string, r request) bool {
 	cctx, cancel := context.WithTimeout(ctx, e.cfg.callTimeout)
 	defer cancel()
-	e.flight.Add(1)
+	e.flightMu.Lock()
+	if e.halted {
+		e.flightMu.Unlock()
+		return false
+	}
+	e.inFlight++
 	start := time.Now()
+	e.flightMu.Unlock()
 	bad, err := r.call(cctx, e.c)
+	e.flightMu.Lock()
+	e.inFlight--
 	lat := time.Since(start)
-	e.flight.Add(-1)
+	e.flightMu.Unlock()
 	code := status.Code(err)
 	if err != nil && code == codes.Unknown {
 		switch {
@@ -327,6 +340,31 @@ func (e *engine) do(ctx context.Context, class string, r request) {
 	e.mu.Lock()
 	e.samples = append(e.samples, sample{class: class, kind: r.kind, start: start, latency: lat, code: code, bad: bad})
 	e.mu.Unlock()
+	return true
+}
+
+// haltWhenFull waits (at most limit) until n calls are in flight, then,
+// with no call able to start or end meanwhile, runs act, stops calls from
+// starting and returns the number in flight and the time act ran. Calls
+// that started before that time and ended after it are exactly the ones
+// in flight when act ran.
+func (e *engine) haltWhenFull(n int, limit time.Duration, act func()) (int, time.Time) {
+	deadline := time.Now().Add(limit)
+	tick := time.NewTicker(time.Millisecond)
+	defer tick.Stop()
+	for {
+		e.flightMu.Lock()
+		if e.inFlight >= n || time.Now().After(deadline) {
+			at := time.Now()
+			act()
+			e.halted = true
+			k := e.inFlight
+			e.flightMu.Unlock()
+			return k, at
+		}
+		e.flightMu.Unlock()
+		<-tick.C
+	}
 }
 
 // stats are the figures of a set of calls.

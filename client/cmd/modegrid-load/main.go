@@ -276,13 +276,13 @@ func load(ctx context.Context, o *options) (*report, error) {
 			case <-ctx.Done():
 				return
 			}
-			// Wait (at most 10 s) until every caller has a call in flight.
-			waitUntil(10*time.Second, time.Millisecond, func() bool { return e.flight.Load() >= int64(cfg.concurrency) })
+			// At a moment every caller has a call in flight (waiting at most
+			// 10 s for one), SIGTERM; no call starts afterwards.
 			srv.PeakRSSBytes, _ = ch.peakRSS()
-			sig = &sigtermStats{InFlight: int(e.flight.Load()), Codes: map[string]int{}}
+			n, at := e.haltWhenFull(cfg.concurrency, 10*time.Second, func() { ch.terminate() })
+			sig = &sigtermStats{InFlight: n, Codes: map[string]int{}}
+			signalled = at
 			close(stop)
-			signalled = time.Now()
-			ch.terminate()
 		}()
 	} else {
 		close(sigDone)
