@@ -90,7 +90,7 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	}
 	m.recip = reciprocal(m.lattice, m.dim)
 	for _, s := range c.Sites {
-		m.pos = append(m.pos, m.cart(s.Frac, nil))
+		m.pos = append(m.pos, m.cart(s.Frac))
 		m.frac = append(m.frac, append([]float64(nil), s.Frac...))
 		m.massAmu = append(m.massAmu, s.MassAmu)
 		m.labels = append(m.labels, s.Label)
@@ -402,7 +402,7 @@ func (m *Model) eachPair(from, to []int, reach [3]int, fn func(b shellBond, d fl
 }
 
 // cart converts fractional coordinates (d numbers) to Cartesian Å.
-func (m *Model) cart(frac []float64, _ []float64) [3]float64 {
+func (m *Model) cart(frac []float64) [3]float64 {
 	var r [3]float64
 	for k, f := range frac {
 		for a := 0; a < 3; a++ {

@@ -215,7 +215,7 @@ func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
 					cell[a] = math.Round(diff[a])
 					diff[a] -= cell[a]
 				}
-				if norm3(m.cartVec(diff)) < SymPosTolA {
+				if norm3(m.cart(diff[:d])) < SymPosTolA {
 					perm[i], used[j], found = j, true, true
 					for a := 0; a < d; a++ {
 						shift[i][a] = int(cell[a])
@@ -228,26 +228,15 @@ func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
 		if !ok {
 			continue
 		}
-		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: invTransposeInt(r, d)}
+		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: invTransposeInt(r)}
 		out = append(out, op)
 	}
 	return out
 }
 
-// cartVec converts a fractional difference to Cartesian Å.
-func (m *Model) cartVec(f [3]float64) [3]float64 {
-	var r [3]float64
-	for k := 0; k < m.dim; k++ {
-		for a := 0; a < 3; a++ {
-			r[a] += f[k] * m.lattice[k][a]
-		}
-	}
-	return r
-}
-
 // invTransposeInt returns R⁻ᵀ for a unimodular integer matrix (d ≤ 3),
 // through the adjugate: R⁻¹ = adj(R)/det R with det R = ±1.
-func invTransposeInt(r [3][3]int, d int) [3][3]int {
+func invTransposeInt(r [3][3]int) [3][3]int {
 	var f [3][3]float64
 	for i := 0; i < 3; i++ {
 		for j := 0; j < 3; j++ {
@@ -261,7 +250,6 @@ func invTransposeInt(r [3][3]int, d int) [3][3]int {
 			out[i][j] = int(math.Round(inv[j][i]))
 		}
 	}
-	_ = d
 	return out
 }
 
