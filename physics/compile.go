@@ -73,6 +73,13 @@ type Model struct {
 
 	symOnce sync.Once // guards symOps (symmetry.go, owned by the lead)
 	symOps  []SymOp   // lazily computed by Symmetry
+
+	// The springs in factored form and whether explicit blocks exist: the
+	// long-wavelength limit (elastic.go) uses them for accuracy.
+	springs   []springBond
+	hasBlocks bool
+	lwOnce    sync.Once // guards lw
+	lw        *longWave // lazily computed by longWaveLimit
 }
 
 // Compile validates c and builds its force constants. A model that fails
@@ -136,6 +143,7 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		}
 		addBlock(i, j, n, phi)
 		addBlock(j, i, neg3(n), transpose9(phi))
+		m.springs = append(m.springs, springBond{i: i, j: j, bond: r, kLong: kl, kTrans: kt})
 		for a := range phi {
 			self[i][a] -= phi[a]
 			self[j][a] -= phi[a] // transpose of a symmetric block
@@ -145,6 +153,7 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		addSpring(s.From, s.To, cellOf(s.Cell), s.KLong*scale, s.KTrans*scale)
 	}
 	m.interactions = len(c.Springs) + len(c.Blocks)
+	m.hasBlocks = len(c.Blocks) > 0
 	m.shells = make([]ShellInfo, len(c.Shells))
 	for idx, sh := range c.Shells {
 		bonds, dist, err := m.findShell(sh, lim)
