@@ -474,6 +474,15 @@ func (m *Model) denseLongWave() *longWave {
 			}
 		}
 	}
+	if rows := psdRows(phi0, y[p*np:], lw.gmat, nw, np); rows != nil {
+		// Stable on every gradient: the least-squares route on a square
+		// root of the energy form, whose C(u) = L(u)ᵀL(u) is never
+		// negative.
+		lw.lmat, lw.lrows = trailingFactor(rows, nw, np)
+		lw.gmat = nil
+		lw.ok = true
+		return lw
+	}
 	if nw > 0 {
 		relax := relaxation(phi0, y[p*np:], nw, np)
 		for k := range lw.gmat {
@@ -489,6 +498,59 @@ func (m *Model) denseLongWave() *longWave {
 	lw.ok = true
 	return lw
 }
+
+// psdRows returns rows B with BᵀB = H, the energy form over (w, U_α) —
+// H = [[Φ0', Y], [Yᵀ, G2]] — from its eigendecomposition, B = Λ^½Vᵀ, or
+// nil when H has an eigenvalue below −64ε of its largest (an energy that
+// falls along some displacement gradient; the subtraction route then
+// gives the signed result).
+func psdRows(phi0, y, g2 []float64, nw, np int) [][]float64 {
+	n := nw + np
+	h := mat.NewSymDense(n, nil)
+	for i := 0; i < nw; i++ {
+		for j := 0; j <= i; j++ {
+			h.SetSym(i, j, 0.5*(phi0[i*nw+j]+phi0[j*nw+i]))
+		}
+		for k := 0; k < np; k++ {
+			h.SetSym(i, nw+k, y[i*np+k])
+		}
+	}
+	for k := 0; k < np; k++ {
+		for l := 0; l <= k; l++ {
+			h.SetSym(nw+k, nw+l, 0.5*(g2[k*np+l]+g2[l*np+k]))
+		}
+	}
+	var es mat.EigenSym
+	if !es.Factorize(h, true) {
+		return nil
+	}
+	vals := es.Values(nil)
+	var big float64
+	for _, v := range vals {
+		big = math.Max(big, math.Abs(v))
+	}
+	var vecs mat.Dense
+	es.VectorsTo(&vecs)
+	var rows [][]float64
+	for k, v := range vals {
+		if v < -64*dlamchE*big {
+			return nil
+		}
+		if v <= 0 {
+			continue
+		}
+		r := make([]float64, n)
+		s := math.Sqrt(v)
+		for i := range r {
+			r[i] = s * vecs.At(i, k)
+		}
+		rows = append(rows, r)
+	}
+	return rows
+}
+
+// dlamchE is the unit roundoff of float64, 2⁻⁵³.
+const dlamchE = 1.0 / (1 << 53)
 
 // relaxation returns Yᵀ Φ0⁺ Y (np × np) for the symmetric nw×nw Φ0 and
 // the nw×np Y, with the pseudo-inverse from a symmetric eigendecomposition
