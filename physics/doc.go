@@ -85,6 +85,25 @@
 // frequency (the acoustic modes at Γ) get 0; their direction-dependent
 // slope is SoundVelocities.
 //
+// # Sound velocities
+//
+// SoundVelocities is the long-wavelength limit ω/|q| of the p acoustic
+// branches by the method of long waves (Born & Huang, Dynamical Theory of
+// Crystal Lattices, ch. V): the analytic expansion D(q) ≈ D0 + iq D1 + q² D2
+// along the direction, with the internal (optical) coordinates relaxed —
+// the Schur complement of D0 — and the total mass of the cell; no finite
+// differences. For spring models (all constants ≥ 0) the relaxation is a
+// least-squares problem solved by a row-sorted, pivoted Householder QR, so
+// nothing is subtracted: measured errors are a few 1e-16 relative at
+// stiffness ratios of 1e-4, 1e-8 and 1e-12 (soft shear against stiff
+// stretch, two springs in series), against 1.5e-6, 5e-3 and a factor of 11
+// by the former finite differences. Explicit blocks go through the
+// compiled force constants; when internal relaxation nearly cancels the
+// unrelaxed stiffness the error grows as ε times the stiffness ratio
+// (3e-5 for two springs in series at 1e-12), but the result stays
+// non-negative for a model whose energy is non-negative for every
+// displacement gradient. See elastic.go.
+//
 // # Eigensolver
 //
 // Complex Householder tridiagonalisation and implicit QL (root-free for

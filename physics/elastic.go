@@ -78,7 +78,7 @@ type longWave struct {
 	ok    bool      // false: no finite long-wave limit (see SoundVelocities)
 	p     int       // polarizations
 	mtot  float64   // total mass of the cell, amu
-	lmat  []float64 // lrows × 3p, eV^½·Å^0 units: sqrt(eV/Å²)·Å
+	lmat  []float64 // lrows × 3p, sqrt(eV/Å²)·Å
 	lrows int
 	gmat  []float64 // 3p × 3p, eV
 }

@@ -1,0 +1,27 @@
+package physics
+
+import (
+	"fmt"
+	"testing"
+)
+
+// elasticSink keeps the benchmark results alive.
+var elasticSink float64
+
+// BenchmarkElasticDebye: θ_D of the elastic limit (512 directions) on a
+// fresh model of the rock-salt-like example and its n×n×n supercells
+// (2n³ sites), the long-wave limit included (it is cached per model).
+func BenchmarkElasticDebye(b *testing.B) {
+	base := loadExample(b, "rocksalt-like")
+	for _, n := range []int{1, 2, 3} {
+		c := supercell(b, base, [3][3]int{{n, 0, 0}, {0, n, 0}, {0, 0, n}})
+		b.Run(fmt.Sprintf("sites=%d", len(c.Sites)), func(b *testing.B) {
+			for i := 0; i < b.N; i++ {
+				b.StopTimer()
+				m := mustCompile(b, c)
+				b.StartTimer()
+				elasticSink = elasticDebyeTemperature(m)
+			}
+		})
+	}
+}
