@@ -225,8 +225,15 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 // negative value (its imaginary "slope"). Accuracy is about 1e-9
 // relative: near Γ the sum-rule self terms cancel the neighbour terms of
 // D(q) to (q·R)² ≈ 4e-6, which costs digits, while the extrapolation
-// leaves O((q·R)⁴).
+// leaves O((q·R)⁴). dir must be finite (it panics otherwise: a programmer
+// error, as for FrequenciesTHz).
 func (m *Model) SoundVelocities(dir [3]float64) []float64 {
+	if !finite3(dir) {
+		panic("physics: SoundVelocities: direction is not finite")
+	}
+	if s := math.Max(math.Abs(dir[0]), math.Max(math.Abs(dir[1]), math.Abs(dir[2]))); s > 0 {
+		dir = scale3(dir, 1/s) // any length: no overflow in the projection
+	}
 	// Project dir onto the lattice span (reciprocal vectors span it too).
 	var qdir [3]float64
 	for k := 0; k < m.dim; k++ {
