@@ -83,8 +83,12 @@ type Model struct {
 }
 
 // Compile validates c and builds its force constants. A model that fails
-// validation returns a *ValidationError listing every violation.
+// validation (or a nil c) returns a *ValidationError listing every
+// violation.
 func Compile(c *Crystal, opt Options) (*Model, error) {
+	if c == nil {
+		return nil, Validate(nil, opt.Limits)
+	}
 	lim := opt.Limits.withDefaults()
 	var vs violations
 	validate(c, lim, &vs)

@@ -32,7 +32,14 @@
 //
 // Wavevectors q are fractional coordinates of the reciprocal lattice
 // vectors: q = Σ qₖ bₖ with bₖ·aₗ = 2π δₖₗ, so q = (0.5, 0, 0) is the zone
-// boundary along b₁. Components past the dimensionality d are 0.
+// boundary along b₁. Components past the dimensionality d are 0. Every
+// component must be finite with |qₖ| ≤ MaxQ = 1e6: ValidateQPoints, the
+// list, grid and path methods return a *ValidationError otherwise, and the
+// single-point methods (FrequenciesTHz, ModesAt, Point, DynamicalMatrix,
+// DynamicalMatrixGrad) panic with a "physics: " message, a programmer
+// error as in gonum. D(q) is periodic, and the phases are computed from qₖ
+// reduced modulo 1 (exactly), so any q in the domain is as accurate as one
+// in the first zone.
 //
 // The dynamical matrix uses the cell (lattice-vector) phase convention:
 //
@@ -47,9 +54,41 @@
 // are asked (see Group velocities).
 //
 // Eigenvalues λ = ω² below zero are imaginary modes; they are reported as
-// negative frequencies, −sqrt(|λ|) (common practice), and a point has
-// Imaginary set when any mode is below −ImaginaryTolTHz. A model is
-// unstable (Stability) when a mode away from the acoustic zeros at Γ is.
+// negative frequencies, −sqrt(|λ|) (common practice). Eigenvalues within
+// the solver's accuracy of zero are reported as exactly 0 (see Zero and
+// imaginary modes), so every negative frequency the engine reports is a
+// real instability: a point has Imaginary set when any mode is negative,
+// and a model is unstable (Stability) when a mode away from the acoustic
+// modes at Γ is.
+//
+// # Zero and imaginary modes
+//
+// The eigensolver is backward stable: its eigenvalues are exact for a
+// matrix within about n·ε·‖D‖ of D (Golub & Van Loan, Matrix
+// Computations, 4th ed., §8.3), and D itself carries the rounding of its
+// sum over C cell offsets, self terms included. The engine's tolerance is
+// Model.EigenTol = c·(n + C)·ε·Λ, with n the number of modes, ε = 2⁻⁵², Λ
+// the Gershgorin bound on ‖D(q)‖ at every q (largest row sum of
+// |Φ|/√(m_i m_j)) and c = 4; as a frequency, Model.EigenTolTHz (0.3–4e-6
+// THz for the examples, whose acoustic eigenvalues at Γ come out within
+// 1.3 % of it, 0 to 3.5e-17 eV/Å²/amu). After every solve:
+//
+//   - at a reciprocal lattice vector (q = Γ and its images), the p
+//     eigenvalues of smallest |λ| that are within EigenTol are set to 0:
+//     the acoustic modes, zero for any model that keeps the acoustic sum
+//     rule (not zeroed when explicit blocks break it by more);
+//   - anywhere, a negative eigenvalue within EigenTol is set to 0.
+//
+// Nothing else is touched: a small positive eigenvalue away from Γ is kept
+// (a chain whose springs differ by 1e-12 keeps its modes at 1e-6 of the
+// top frequency). The rule applies in every output path, because it is
+// applied where eigenvalues are made: single points, streams, paths,
+// grids (and so their unfolding by symmetry), Stability and the checks
+// built on it, and the imaginary counts of the DOS and thermal results,
+// which count every negative frequency except, as in Stability, the p
+// acoustic modes at Γ (those of a sum-rule-breaking model, reported by
+// SumRuleViolation instead). The thermal sums still leave out modes below
+// ZeroModeTol of the highest as zero modes.
 //
 // Force constants follow Φ_{iα,jβ} = ∂²E/∂u_{iα}∂u_{jβ}. A spring of
 // longitudinal constant k∥ and transverse constant k⊥ along unit vector e
@@ -109,7 +148,7 @@
 // Complex Householder tridiagonalisation and implicit QL (root-free for
 // eigenvalues only), chosen by measurement over a real 2n×2n embedding in
 // gonum and a complex Jacobi method; see the header of eigen.go. Every
-// eigenvalue is within a few ε‖D‖ of exact. Workspaces are reused per core:
+// eigenvalue is within a few n·ε‖D‖ of exact (EigenTol above). Workspaces are reused per core:
 // grid and stream loops allocate nothing per point.
 //
 // # Concurrency and cancellation
@@ -124,9 +163,9 @@
 // # Invariants
 //
 // D(q) is Hermitian by construction (only its lower triangle is built) and
-// D(−q) = D(q)*. The p acoustic modes at Γ are zero to rounding for any
-// model built from springs, and for blocks when the sum rule holds or is
-// enforced. The spectrum is invariant under a rigid rotation of lattice and
+// D(−q) = D(q)*. The p acoustic modes at Γ are exactly 0 for any model
+// built from springs, and for blocks when the sum rule holds or is
+// enforced (to rounding in D, set to 0 by the rule above). The spectrum is invariant under a rigid rotation of lattice and
 // positions, a renumbering of sites, the order of springs, shells and
 // blocks, and the force unit; Model.Hash is invariant under the same
 // description changes except rotation and renumbering, which move
@@ -134,7 +173,9 @@
 //
 // # Density of states and thermal properties
 //
-// ComputeDOS turns the modes of a grid (Model.GridModes) into a phonon
+// ComputeDOS turns the modes of a grid (Model.GridModes; they record the
+// hash of the model that made them, and ComputeDOS and ComputeThermal
+// refuse the modes of another model) into a phonon
 // density of states g(ν) in states per cell per frequency unit (THz, meV,
 // cm⁻¹ or rad/s: DOSOptions.Unit), normalised to p × sites states per
 // cell. Three methods:
@@ -174,13 +215,13 @@
 // projections sum to the total at every sample; each site's integrates to
 // p.
 //
-// A frequency is zero when |ν| ≤ ZeroModeTol (1e-6) times the largest |ν|
-// on the grid, and imaginary below −max(ImaginaryTolTHz, that tolerance),
-// except that the p acoustic modes at Γ are never counted imaginary (as in
-// Model.Stability). ComputeDOS counts imaginary modes and by default leaves
+// A frequency is imaginary when it is negative (see Zero and imaginary
+// modes), except that the p acoustic modes at Γ are never counted
+// imaginary (as in Model.Stability); the thermal sums treat |ν| ≤
+// ZeroModeTol (1e-6) times the largest |ν| on the grid as a zero mode. ComputeDOS counts imaginary modes and by default leaves
 // them out: the Gaussian and histogram skip them, the tetrahedron DOS drops
-// the interpolated spectrum below −tolerance (simplices straddling zero
-// keep their positive part). NegativeAxis keeps them on the negative
+// the interpolated spectrum below zero (simplices straddling zero keep
+// their positive part). NegativeAxis keeps them on the negative
 // frequency axis, with the window extended below the lowest mode.
 //
 // ComputeThermal gives, per cell, the harmonic internal energy U and

@@ -82,8 +82,8 @@ type DOSResult struct {
 	Labels     []string    // distinct site labels in first-appearance order (PerSite only)
 	LabelDOS   [][]float64 // per label, parallel to Labels (PerSite only)
 	// Imaginary is the number of imaginary modes on the grid (q-point ×
-	// branch, frequency below −max(ImaginaryTolTHz, ZeroModeTol·|ν|max),
-	// not counting the acoustic modes at Γ), whether or not they are shown.
+	// branch, negative frequency, not counting the acoustic modes at Γ),
+	// whether or not they are shown.
 	Imaginary int
 	// StatesPerCell is p × sites, the integral of g over all frequencies.
 	StatesPerCell float64
@@ -97,13 +97,22 @@ const (
 	DefaultDOSBins = 500       // samples across a default window
 	MaxDOSSamples  = 1_000_000 // largest number of samples ComputeDOS returns
 	// ZeroModeTol is the tolerance, relative to the largest |ν| on the grid,
-	// within which a frequency counts as zero: the acoustic modes at Γ of a
-	// model obeying the acoustic sum rule come out at about 1e-8 of the
-	// highest mode from rounding (eigenvalue errors are a few ε of the
-	// largest). It is relative, not absolute like ImaginaryTolTHz, so that
-	// the real low modes of fine grids (ν_max·π/N on a chain of N points)
-	// are never taken for zero.
+	// within which a positive frequency counts as a zero mode for the
+	// thermal sums (which leave zero modes out). Rounding noise itself is
+	// already exactly 0 (doc.go, Zero and imaginary modes; it was about
+	// 1e-8 of the highest mode before). It is relative so that the real low
+	// modes of fine grids (ν_max·π/N on a chain of N points) are never
+	// taken for zero.
 	ZeroModeTol = 1e-6
+	// MaxDOSFrequency bounds |Min|, |Max|, Step and Width in any unit:
+	// above every plausible mode (1000 THz is 6.3e15 rad/s), and low
+	// enough that window arithmetic (Max − Min, margins of five widths)
+	// cannot overflow.
+	MaxDOSFrequency = 1e18
+	// MinDOSWidth is the narrowest Gaussian accepted (in the DOS unit):
+	// below it 1/Width could overflow and a mode on a bin edge would give
+	// 0·∞; far below any meaningful broadening in every unit.
+	MinDOSWidth = 1e-12
 	// gaussianCutoff is how many standard deviations a Gaussian is
 	// evaluated over on each side (the tail beyond is 6e-16 of its area).
 	gaussianCutoff = 8
@@ -164,7 +173,7 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	}
 	n := int(nf)
 	grid := newAnchoredCumGrid(lo, step/2, 1, 2*n+1)
-	hasCut, cut := !opt.NegativeAxis, -st.imagTol*scale
+	hasCut, cut := !opt.NegativeAxis, 0.0 // every negative frequency is imaginary
 	ns := g.NSites
 
 	var acc *cumAcc
@@ -242,9 +251,12 @@ func (o DOSOptions) validate() error {
 		name string
 		v    float64
 	}{{"min", o.Min}, {"max", o.Max}, {"step", o.Step}, {"width", o.Width}} {
-		if !finite(f.v) {
-			vs.add(f.name, "must be finite, got %v", f.v)
+		if !(math.Abs(f.v) <= MaxDOSFrequency) {
+			vs.add(f.name, "must be a finite number within ±%g (in the DOS unit), got %v", MaxDOSFrequency, f.v)
 		}
+	}
+	if o.Width > 0 && o.Width < MinDOSWidth {
+		vs.add("width", "must be ≥ %g (in the DOS unit; 0 for the default), got %v", MinDOSWidth, o.Width)
 	}
 	if finite(o.Min) && finite(o.Max) && !(o.Min == 0 && o.Max == 0) && !(o.Max > o.Min) {
 		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", o.Min, o.Max)
@@ -260,13 +272,16 @@ func (o DOSOptions) validate() error {
 	return vs.err()
 }
 
-// checkGridModes checks that g is a complete set of modes of m.
+// checkGridModes checks that g is a complete set of modes made by m (or a
+// model of the same hash, which has the same physics).
 func checkGridModes(m *Model, g *GridModes) error {
 	switch {
 	case m == nil:
 		return errors.New("physics: nil model")
 	case g == nil:
 		return errors.New("physics: nil grid modes")
+	case g.ModelHash != m.Hash():
+		return fmt.Errorf("physics: grid modes were made by model %s, not by this model %s: compute them with this model's GridModes", shortHash(g.ModelHash), shortHash(m.Hash()))
 	case g.NModes != m.Modes() || g.NSites != m.Sites():
 		return fmt.Errorf("physics: grid modes have %d modes of %d sites, the model %d of %d", g.NModes, g.NSites, m.Modes(), m.Sites())
 	case len(g.Points) == 0 || len(g.FreqTHz) != len(g.Points)*g.NModes:
@@ -275,17 +290,28 @@ func checkGridModes(m *Model, g *GridModes) error {
 	return nil
 }
 
+// shortHash is the first 12 characters of a model hash, for messages.
+func shortHash(h string) string {
+	switch {
+	case h == "":
+		return "(none recorded)"
+	case len(h) > 12:
+		return h[:12]
+	}
+	return h
+}
+
 // spectrum holds the extremes of the grid frequencies (THz), the
 // tolerances derived from them and the number of imaginary modes.
 type spectrum struct {
 	minTHz, maxTHz, absMaxTHz float64
 	zeroTol                   float64 // |ν| up to this is a zero mode: ZeroModeTol·absMaxTHz
-	imagTol                   float64 // below −imagTol a mode is imaginary: max(ImaginaryTolTHz, zeroTol)
 	imaginary                 int
 }
 
-// spectrumStats scans the frequencies of g. A mode is imaginary below
-// −imagTol, except that at Γ the p modes of smallest |ν| (the acoustic
+// spectrumStats scans the frequencies of g. A mode is imaginary when its
+// frequency is negative (rounding noise was set to 0 when the modes were
+// computed: doc.go, Zero and imaginary modes), except that at Γ the p modes of smallest |ν| (the acoustic
 // modes, zero only to rounding, or not at all for explicit blocks without
 // the sum rule) are never counted imaginary, as in Model.Stability.
 func spectrumStats(g *GridModes) spectrum {
@@ -300,8 +326,7 @@ func spectrumStats(g *GridModes) spectrum {
 	}
 	st.absMaxTHz = math.Max(st.maxTHz, -st.minTHz)
 	st.zeroTol = ZeroModeTol * st.absMaxTHz
-	st.imagTol = math.Max(ImaginaryTolTHz, st.zeroTol)
-	if st.minTHz >= -st.imagTol {
+	if st.minTHz >= 0 {
 		return st // nothing is imaginary
 	}
 	nm := g.NModes
@@ -312,7 +337,7 @@ func spectrumStats(g *GridModes) spectrum {
 			skip = gammaAcoustic(f, g.P)
 		}
 		for k, x := range f {
-			if x < -st.imagTol && skip>>k&1 == 0 {
+			if x < 0 && skip>>k&1 == 0 {
 				st.imaginary++
 			}
 		}

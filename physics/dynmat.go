@@ -99,7 +99,9 @@ type phaseTable struct {
 }
 
 // fill computes the tables for q by repeated multiplication (the error
-// after m steps is about m·ε, at most 64·ε here).
+// after m steps is about m·ε, at most 64·ε here). Each qₖ is first reduced
+// modulo 1 — exact in floating point, and D(q) is periodic with the
+// reciprocal lattice — so the phase is as accurate at qₖ = 1e6 as near 0.
 func (t *phaseTable) fill(q [3]float64, reach [3]int) {
 	for k := 0; k < 3; k++ {
 		r := reach[k]
@@ -112,7 +114,7 @@ func (t *phaseTable) fill(q [3]float64, reach [3]int) {
 		if r == 0 {
 			continue
 		}
-		s, c := math.Sincos(2 * math.Pi * q[k])
+		s, c := math.Sincos(2 * math.Pi * (q[k] - math.Round(q[k])))
 		w := complex(c, s)
 		z := complex(1, 0)
 		for j := 1; j <= r; j++ {
@@ -287,8 +289,10 @@ func fillUpper(a []complex128, n int) {
 //	D_{iα,jβ}(q) = Σ_n Φ_αβ(0i; nj) exp(2πi q·n) / sqrt(m_i m_j).
 //
 // D is Hermitian by construction: the upper triangle is the conjugate of
-// the lower one, which is the only part computed.
+// the lower one, which is the only part computed. q must be finite with
+// |qₖ| ≤ MaxQ; it panics otherwise (check user data with ValidateQPoints).
 func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
+	mustQ("DynamicalMatrix", q)
 	nm := m.Modes()
 	if cap(out) < nm*nm {
 		out = make([]complex128, nm*nm)
@@ -305,8 +309,10 @@ func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 // full row-major N×N Hermitian matrix in eV/Å²/amu·Å: the analytic
 // derivative Σ_n iR_{n,α} Φ(0i; nj) e^{iq·R_n}/sqrt(m_i m_j), with R_n the
 // Cartesian lattice vector of cell n. Group velocities follow from it by
-// the Hellmann–Feynman theorem (velocity.go).
+// the Hellmann–Feynman theorem (velocity.go). Precondition on q as for
+// DynamicalMatrix.
 func (m *Model) DynamicalMatrixGrad(q [3]float64) [3][]complex128 {
+	mustQ("DynamicalMatrixGrad", q)
 	nm := m.Modes()
 	var g [3][]complex128
 	for x := range g {

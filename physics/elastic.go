@@ -110,6 +110,12 @@ func (m *Model) longWaveLimit() *longWave {
 // (measured to 1e-12); see the header of elastic.go for the bound of the
 // general route.
 func (m *Model) SoundVelocities(dir [3]float64) []float64 {
+	if !finite3(dir) {
+		panic("physics: SoundVelocities: direction is not finite")
+	}
+	if s := math.Max(math.Abs(dir[0]), math.Max(math.Abs(dir[1]), math.Abs(dir[2]))); s > 0 {
+		dir = scale3(dir, 1/s) // any length: no overflow in the projection
+	}
 	var qdir [3]float64
 	for k := 0; k < m.dim; k++ {
 		f := dot3(dir, m.lattice[k]) / (2 * math.Pi) // fractional q of dir

@@ -151,13 +151,18 @@ func wrapHalf(x float64) float64 {
 
 // GridModes holds the modes on every point of a grid, in grid order.
 type GridModes struct {
-	Spec   GridSpec
-	Points []QPoint
-	NModes int // modes per point (sites × p)
-	NSites int
-	P      int
+	// ModelHash is Model.Hash of the model that made these modes:
+	// ComputeDOS and ComputeThermal refuse modes of another model, even one
+	// of the same size.
+	ModelHash string
+	Spec      GridSpec
+	Points    []QPoint
+	NModes    int // modes per point (sites × p)
+	NSites    int
+	P         int
 	// FreqTHz[i*NModes+k] is mode k at point i, ascending, THz; imaginary
-	// modes negative.
+	// modes negative, zero modes exactly 0 (doc.go, Zero and imaginary
+	// modes).
 	FreqTHz []float64
 	// SiteWeight[(i*NModes+k)*NSites+s] is Σ_α |e_{sα}|² of mode k at point
 	// i: the share of site s in the mode (sums to 1 over sites). Nil unless
@@ -233,7 +238,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	nm, ns := m.Modes(), m.nsites
 	p := m.p
 	pairs := p * (p + 1) / 2
-	c := &GridModes{Spec: spec, Points: pts, NModes: nm, NSites: ns, P: p,
+	c := &GridModes{ModelHash: m.hash, Spec: spec, Points: pts, NModes: nm, NSites: ns, P: p,
 		FreqTHz: make([]float64, reps*nm), Diagonalized: reps}
 	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
 	if opt.Projections {

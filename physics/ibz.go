@@ -301,7 +301,7 @@ func (m *Model) unfold(ctx context.Context, ir *IrreducibleGrid, c *GridModes, o
 	pts := c.Points
 	nm, ns, p := c.NModes, c.NSites, c.P
 	pairs := p * (p + 1) / 2
-	g := &GridModes{Spec: c.Spec, Points: pts, NModes: nm, NSites: ns, P: p,
+	g := &GridModes{ModelHash: c.ModelHash, Spec: c.Spec, Points: pts, NModes: nm, NSites: ns, P: p,
 		FreqTHz: make([]float64, len(pts)*nm), Diagonalized: c.Diagonalized, irr: ir}
 	if opt.Projections {
 		g.SiteWeight = make([]float64, len(pts)*nm*ns)

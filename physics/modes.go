@@ -6,17 +6,88 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"runtime"
 	"sync"
 	"sync/atomic"
 )
 
-// ImaginaryTolTHz is the magnitude (THz) below which a negative frequency
-// is rounding noise rather than an imaginary mode. Eigenvalue errors are a
-// few ε of the largest eigenvalue, which for any plausible model (up to
-// 1000 THz) is below 1e-4 THz near zero frequency; 1e-3 THz (0.03 cm⁻¹)
-// stays far below any physically meaningful soft mode (common practice).
-const ImaginaryTolTHz = 1e-3
+// MaxQ bounds every component of a wavevector the engine accepts, in
+// fractional reciprocal coordinates (reciprocal-lattice units): |qₖ| ≤ 1e6.
+// D(q) is periodic in q, so larger components say nothing new; the phases
+// are computed from qₖ reduced modulo 1 (exact in floating point), so the
+// bound costs no accuracy, and it keeps Cartesian wavevectors, path lengths
+// and distances far from overflow.
+const MaxQ = 1e6
+
+// checkQ reports whether every component of q is finite and within ±MaxQ.
+func checkQ(q [3]float64) bool {
+	for _, x := range q {
+		if !(math.Abs(x) <= MaxQ) { // false for NaN
+			return false
+		}
+	}
+	return true
+}
+
+// mustQ panics (a programmer error, as gonum does) when q is out of the
+// engine's domain: the single-point methods document the precondition;
+// data from users goes through ValidateQPoints or the list and path
+// methods, which return errors instead.
+func mustQ(fn string, q [3]float64) {
+	if !checkQ(q) {
+		panic(fmt.Sprintf("physics: %s: q = %v is not finite or exceeds MaxQ = %g (check with ValidateQPoints)", fn, q, MaxQ))
+	}
+}
+
+// eigenTolFactor is the constant c of the eigenvalue tolerance
+// c·(n + cells)·ε·‖D‖ (EigenTol).
+const eigenTolFactor = 4
+
+// EigenTol is the eigenvalue tolerance of the model (eV/Å²/amu): an
+// eigenvalue of D(q) with |λ| ≤ EigenTol cannot be told from zero. It is
+// c·(n + C)·ε·Λ with n = Modes(), C the number of cell offsets that
+// contribute to D, ε = 2⁻⁵² and Λ the Gershgorin bound on ‖D(q)‖ at every q
+// (largest row sum of |Φ|/√(m_i m_j)), c = 4: the backward error of the
+// Householder reduction and QL, n·ε‖D‖ up to a modest constant (Golub &
+// Van Loan, Matrix Computations, 4th ed., §8.3.1 and §8.3.5; Parlett, The
+// Symmetric Eigenvalue Problem, §8.15), plus the rounding of D itself,
+// summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
+// Zero and imaginary modes.
+func (m *Model) EigenTol() float64 {
+	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * epsilon * m.lambdaScale
+}
+
+// EigenTolTHz is EigenTol as a frequency (THz): a mode with |ν| up to
+// this is zero to the solver's accuracy.
+func (m *Model) EigenTolTHz() float64 { return eigToTHz(m.EigenTol()) }
+
+// cleanEigenvalues applies the zero rule of doc.go to eigenvalues vals
+// (ascending) of D(q): at a reciprocal lattice vector the p eigenvalues of
+// smallest |λ| that are within tol are set to 0 (the acoustic modes at Γ);
+// anywhere, a negative eigenvalue within tol is set to 0. Values stay
+// ascending and keep their index (eigenvectors stay attached).
+func cleanEigenvalues(vals []float64, q [3]float64, p int, tol float64) {
+	if isGamma(q) {
+		for n := 0; n < p; n++ {
+			best := -1
+			for k, v := range vals {
+				if v != 0 && math.Abs(v) <= tol && (best < 0 || math.Abs(v) < math.Abs(vals[best])) {
+					best = k
+				}
+			}
+			if best < 0 {
+				break
+			}
+			vals[best] = 0
+		}
+	}
+	for k, v := range vals {
+		if v < 0 && v >= -tol {
+			vals[k] = 0
+		}
+	}
+}
 
 // DefaultChunkBytes bounds the memory of one streamed chunk when
 // ModeOptions.ChunkSize is 0: 4 MiB, so that a stream holds only a few
@@ -46,9 +117,10 @@ type PointModes struct {
 	Q      [3]float64 // fractional reciprocal coordinates
 	Weight float64
 	// FreqTHz are the frequencies, ascending, THz; imaginary modes are
-	// negative.
+	// negative, and modes zero within the solver's accuracy are exactly 0
+	// (see doc.go, Zero and imaginary modes).
 	FreqTHz []float64
-	// Imaginary is true when any mode is below −ImaginaryTolTHz.
+	// Imaginary is true when any mode is negative: a real instability.
 	Imaginary bool
 	// Eigvecs are the normalised eigenvectors of D(q), mode-major:
 	// Eigvecs[k*n+c] is component c = site·p + axis of mode k (phase
@@ -66,10 +138,11 @@ type ModeChunk struct {
 	Points []PointModes
 }
 
-// imaginary reports a frequency list with a mode below −ImaginaryTolTHz.
+// imaginary reports a frequency list with a negative mode (rounding noise
+// has been set to 0 by cleanEigenvalues).
 func imaginary(freqTHz []float64) bool {
 	for _, f := range freqTHz {
-		if f < -ImaginaryTolTHz {
+		if f < 0 {
 			return true
 		}
 	}
@@ -93,7 +166,8 @@ func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
 }
 
 // solve diagonalises D(q) into w.eig.vals (eigenvalues, eV/Å²/amu,
-// ascending) and, with vectors, w.eig.vecs. It returns false if stopped.
+// ascending, rounding noise around zero set to 0 by cleanEigenvalues) and,
+// with vectors, w.eig.vecs. It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 	var stop func() bool
 	if w.done != nil && w.m.Modes() >= cancelCheckModes {
@@ -114,6 +188,7 @@ func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 			copy(w.eig.vecs, vecs)
 		}
 	}
+	cleanEigenvalues(w.eig.vals, q, w.m.p, w.m.EigenTol())
 	return true
 }
 
@@ -125,8 +200,11 @@ func (w *pointWork) freqs(out []float64) {
 }
 
 // FrequenciesTHz returns the mode frequencies at q (fractional reciprocal
-// coordinates) in THz, ascending; imaginary modes are negative.
+// coordinates) in THz, ascending; imaginary modes are negative, zero modes
+// exactly 0. q must be finite with |qₖ| ≤ MaxQ (it panics otherwise: check
+// user data with ValidateQPoints).
 func (m *Model) FrequenciesTHz(q [3]float64) []float64 {
+	mustQ("FrequenciesTHz", q)
 	w := m.newPointWork(nil)
 	w.solve(q, false)
 	out := make([]float64, m.Modes())
@@ -136,7 +214,9 @@ func (m *Model) FrequenciesTHz(q [3]float64) []float64 {
 
 // ModesAt returns the frequencies at q (THz, ascending) and the normalised
 // eigenvectors of D(q), mode-major (vecs[k*n+c], c = site·p + axis).
+// Precondition on q as for FrequenciesTHz.
 func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
+	mustQ("ModesAt", q)
 	w := m.newPointWork(nil)
 	w.solve(q, true)
 	out := make([]float64, m.Modes())
@@ -145,8 +225,13 @@ func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
 }
 
 // Point returns the modes at one q-point with the options' extras
-// (ChunkSize is ignored).
+// (ChunkSize is ignored). Preconditions as for FrequenciesTHz, and
+// opt.VelocityDir finite (it panics otherwise; StreamModes returns errors).
 func (m *Model) Point(q [3]float64, opt ModeOptions) PointModes {
+	mustQ("Point", q)
+	if !finite3(opt.VelocityDir) {
+		panic(fmt.Sprintf("physics: Point: VelocityDir %v is not finite", opt.VelocityDir))
+	}
 	w := m.newPointWork(nil)
 	n := m.Modes()
 	pm := PointModes{Q: q, Weight: 1, FreqTHz: make([]float64, n)}
@@ -215,10 +300,16 @@ func (m *Model) chunkPoints(opt ModeOptions) int {
 // It stops promptly when ctx is done (workers poll it between points and,
 // for large matrices, inside the eigensolver) and returns ctx.Err(); an
 // error from emit stops the work and is returned as is. Points are checked
-// first with ValidateQPoints (fields "points[i].q1" …).
+// first with ValidateQPoints (fields "points[i].q1" …), and
+// opt.VelocityDir must be finite (field "velocity_dir").
 func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
 	if err := ValidateQPoints(m.dim, pts, "points"); err != nil {
 		return err
+	}
+	if !finite3(opt.VelocityDir) {
+		var vs violations
+		vs.add("velocity_dir", "must be finite, got %v", opt.VelocityDir)
+		return vs.err()
 	}
 	if emit == nil {
 		return errors.New("physics: StreamModes needs an emit function")
@@ -340,15 +431,15 @@ func (w *pointWork) stopped() bool {
 }
 
 // ValidateQPoints checks explicit q-points for a d-dimensional crystal:
-// every component finite and the components past d zero. Violations name
-// fields prefix[i].q1 … q3.
+// every component finite and within ±MaxQ, the components past d zero, the
+// weight finite. Violations name fields prefix[i].q1 … q3.
 func ValidateQPoints(dim int, pts []QPoint, prefix string) error {
 	var vs violations
 	for i, p := range pts {
 		for k, x := range p.Q {
 			switch {
-			case !finite(x):
-				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be finite, got %v", x)
+			case !(math.Abs(x) <= MaxQ):
+				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), qRangeMsg, x)
 			case k >= dim && x != 0:
 				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, x)
 			}
@@ -359,3 +450,9 @@ func ValidateQPoints(dim int, pts []QPoint, prefix string) error {
 	}
 	return vs.err()
 }
+
+// qRangeMsg is the violation text of a q component out of the domain.
+const qRangeMsg = "must be a finite number within ±1e6 reciprocal-lattice units (D(q) is periodic: reduce q modulo 1), got %v"
+
+// finite3 reports whether every component of v is finite.
+func finite3(v [3]float64) bool { return finite(v[0]) && finite(v[1]) && finite(v[2]) }

@@ -289,7 +289,7 @@ func TestImaginaryModes(t *testing.T) {
 		if !relClose(pm.FreqTHz[0], want, 1e-10) {
 			t.Errorf("q=%v: %.12g THz; want %.12g", q, pm.FreqTHz[0], want)
 		}
-		if pm.Imaginary != (want < -ImaginaryTolTHz) {
+		if pm.Imaginary != (want < 0) {
 			t.Errorf("q=%v: Imaginary = %v for %v THz", q, pm.Imaginary, want)
 		}
 	}

@@ -72,8 +72,8 @@ func (m *Model) cartQ(q [3]float64) [3]float64 {
 // Dispersion samples the frequencies along the path through corners.
 // Samples include every corner; consecutive corners are joined by straight
 // segments unless the later one has BreakBefore. Invalid input returns a
-// *ValidationError with fields "path[i].label", "path[i].q.q1", "points",
-// "spacing_inv_a". The work runs on all cores and stops when ctx is done.
+// *ValidationError with fields "path[i].label", "path[i].q.q1" (finite,
+// within ±MaxQ), "points", "spacing_inv_a". The work runs on all cores and stops when ctx is done.
 func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOptions) ([]PathSample, error) {
 	var vs violations
 	qs := make([][3]float64, len(corners))
@@ -85,8 +85,8 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		if c.HasQ {
 			for k, x := range c.Q {
 				switch {
-				case !finite(x):
-					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be finite, got %v", x)
+				case !(math.Abs(x) <= MaxQ):
+					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
 				case k >= m.dim && x != 0:
 					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
 				}

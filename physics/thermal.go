@@ -76,8 +76,9 @@ type ThermalResult struct {
 	ImaginaryExcluded int
 	// ZeroExcluded counts the other modes left out: zero modes (|ν| within
 	// ZeroModeTol of the highest), the p acoustic modes at Γ when the grid
-	// holds Γ and any exactly flat zero branch, and negative frequencies
-	// too small to count as imaginary (within ImaginaryTolTHz).
+	// holds Γ (exactly 0, or not counted imaginary for a model breaking
+	// the sum rule) and any exactly flat zero branch. Rounding noise is
+	// already 0 (doc.go, Zero and imaginary modes).
 	ZeroExcluded int
 	// ModesPerCell is the weight of the modes summed: p·sites less the
 	// excluded modes' weights (for DOSIntegral, the integral of the DOS).

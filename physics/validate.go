@@ -103,8 +103,13 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 // Validate checks everything about c that can be checked without the
 // neighbour search and returns a *ValidationError listing every violation,
 // or nil. Compile runs it and then checks the shells.
+// A nil c is an error too (field "model"), not a panic.
 func Validate(c *Crystal, lim Limits) error {
 	var vs violations
+	if c == nil {
+		vs.add("model", "is required (got a nil crystal)")
+		return vs.err()
+	}
 	validate(c, lim.withDefaults(), &vs)
 	return vs.err()
 }

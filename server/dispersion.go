@@ -128,8 +128,8 @@ func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs
 			c.Q = [3]float64{canonFloat(q.GetQ1()), canonFloat(q.GetQ2()), canonFloat(q.GetQ3())}
 			for k, v := range c.Q {
 				switch {
-				case math.IsNaN(v) || math.IsInf(v, 0):
-					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be a finite number, got %v", v)
+				case !(math.Abs(v) <= physics.MaxQ):
+					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), qRangeMsg, v)
 				case k >= m.Dim() && v != 0:
 					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
 				}

@@ -48,8 +48,8 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 		name string
 		v    float64
 	}{{"min", req.GetMin()}, {"max", req.GetMax()}, {"step", req.GetStep()}, {"width", req.GetWidth()}} {
-		if math.IsNaN(f.v) || math.IsInf(f.v, 0) {
-			vs.add(f.name, "must be a finite number, got %v", f.v)
+		if !(math.Abs(f.v) <= physics.MaxDOSFrequency) {
+			vs.add(f.name, "must be a finite number within ±%g (in the request's unit), got %v", physics.MaxDOSFrequency, f.v)
 		}
 	}
 	opt.Min, opt.Max, opt.Step = canonFloat(req.GetMin()), canonFloat(req.GetMax()), canonFloat(req.GetStep())
@@ -66,6 +66,8 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	}
 	if opt.Width < 0 {
 		vs.add("width", "must be > 0 (0 for the default), got %g", opt.Width)
+	} else if opt.Width > 0 && opt.Width < physics.MinDOSWidth {
+		vs.add("width", "must be ≥ %g (in the request's unit; 0 for the default), got %v", physics.MinDOSWidth, opt.Width)
 	}
 	if opt.Step > 0 && opt.Max > opt.Min {
 		if n := (opt.Max-opt.Min)/opt.Step + 1; n > float64(s.cfg.MaxDOSBins) {

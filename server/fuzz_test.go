@@ -446,7 +446,8 @@ func modesSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: nan, Unit: 17},
 		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: mpGrid(false, 1<<22, 1<<22, 1<<22)}, // the int-overflow regression
 		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: cells(0, 2)},
-		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: qlist(make([]float64, 600)...)}) // over the cap
+		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: qlist(make([]float64, 600)...)}, // over the cap
+		&modegridv1.ComputeModesRequest{Model: chain, Qpoints: qlist(-1e308, 1e6, 1e6+1)})      // out of the q domain (once NaN frequencies)
 }
 
 func dispersionSeeds(tb testing.TB) []proto.Message {
@@ -466,7 +467,8 @@ func dispersionSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: long},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "W"}, {Label: "G", Q: &modegridv1.QPoint{Q2: 1}}}, SpacingInvA: math.NaN()},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, SpacingInvA: 1e-300},
-		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "G"}}, Points: 2})
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "G"}}, Points: 2},
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Q: &modegridv1.QPoint{Q1: -1e308}}}, Points: 3})
 }
 
 func dosSeeds(tb testing.TB) []proto.Message {
@@ -483,7 +485,8 @@ func dosSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: mpGrid(false, 8), Step: 1e-9},                   // auto window, tiny step
 		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: mpGrid(false, 8), Min: -1e308, Max: 1e308},      // huge window
 		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: qlist(0.1), Width: -1, Method: 9, Imaginary: 7}, // everything wrong
-		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: mpGrid(false, 1), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: 1e-300})
+		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: mpGrid(false, 1), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: 1e-300},
+		&modegridv1.ComputeDosRequest{Model: chain, Qpoints: mpGrid(false, 8), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: 1e308}) // huge width
 }
 
 func thermalSeeds(tb testing.TB) []proto.Message {

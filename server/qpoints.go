@@ -77,8 +77,8 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 					break // enough to see the pattern in a huge list
 				}
 				switch {
-				case math.IsNaN(v) || math.IsInf(v, 0):
-					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be a finite number, got %v", v)
+				case !(math.Abs(v) <= physics.MaxQ):
+					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), qRangeMsg, v)
 					bad++
 				case dim > 0 && k >= dim && v != 0:
 					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, v)
@@ -101,6 +101,10 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 		return nil
 	}
 }
+
+// qRangeMsg is the violation text of a q component out of the engine's
+// domain (physics.MaxQ).
+var qRangeMsg = fmt.Sprintf("must be a finite number within ±%g reciprocal-lattice units (D(q) is periodic: reduce q modulo 1), got %%v", physics.MaxQ)
 
 // parseMesh checks mesh divisions: 1 to 3 numbers, each ≥ 1, 1 past the
 // dimensionality (absent components are 1), their product within the cap.

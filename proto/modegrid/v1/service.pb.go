@@ -345,7 +345,9 @@ func (*ModelSource_ModelHash) isModelSource_Source() {}
 
 // QPoint is a wavevector in fractional coordinates of the reciprocal lattice
 // vectors (q = q1 b1 + q2 b2 + q3 b3, bi·aj = 2π δij). Components past the
-// crystal's dimensionality must be 0.
+// crystal's dimensionality must be 0. Every component must be finite with
+// |q| ≤ 1e6 (reciprocal-lattice units; D(q) is periodic, so larger values say
+// nothing new).
 type QPoint struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// First fractional component.
@@ -763,9 +765,11 @@ type Modes struct {
 	// 1 for explicit points).
 	Weight float64 `protobuf:"fixed64,2,opt,name=weight,proto3" json:"weight,omitempty"`
 	// Frequencies in ascending order, in the response unit. Imaginary modes are
-	// negative numbers.
+	// negative numbers; modes zero within the eigensolver's accuracy (the
+	// acoustic modes at Γ) are exactly 0, so every negative value is a real
+	// instability (physics/doc.go, Zero and imaginary modes).
 	Frequencies []float64 `protobuf:"fixed64,3,rep,packed,name=frequencies,proto3" json:"frequencies,omitempty"`
-	// True when any mode at this point is imaginary beyond tolerance.
+	// True when any mode at this point is imaginary (negative).
 	Imaginary bool `protobuf:"varint,4,opt,name=imaginary,proto3" json:"imaginary,omitempty"`
 	// Eigenvectors, mode-major: for mode m and component c (site·p + axis),
 	// element [2·(m·n + c)] is the real part and [2·(m·n + c) + 1] the
@@ -2304,7 +2308,8 @@ type CheckModelResponse struct {
 	Symmetry []*SymmetryOperation `protobuf:"bytes,11,rep,name=symmetry,proto3" json:"symmetry,omitempty"`
 	// True when no imaginary mode was found on a coarse grid.
 	Stable bool `protobuf:"varint,12,opt,name=stable,proto3" json:"stable,omitempty"`
-	// Lowest frequency found on the coarse grid, THz (negative: imaginary).
+	// Lowest frequency found on the coarse grid, THz (negative: imaginary;
+	// exactly 0 for the acoustic modes at Γ of a stable model).
 	MinFrequencyThz float64 `protobuf:"fixed64,13,opt,name=min_frequency_thz,json=minFrequencyThz,proto3" json:"min_frequency_thz,omitempty"`
 	// Highest frequency found on the coarse grid, THz.
 	MaxFrequencyThz float64 `protobuf:"fixed64,14,opt,name=max_frequency_thz,json=maxFrequencyThz,proto3" json:"max_frequency_thz,omitempty"`
