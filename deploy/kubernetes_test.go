@@ -16,6 +16,7 @@ import (
 	appsv1 "k8s.io/api/apps/v1"
 	autoscalingv2 "k8s.io/api/autoscaling/v2"
 	corev1 "k8s.io/api/core/v1"
+	networkingv1 "k8s.io/api/networking/v1"
 	policyv1 "k8s.io/api/policy/v1"
 	"k8s.io/apimachinery/pkg/api/resource"
 	metav1 "k8s.io/apimachinery/pkg/apis/meta/v1"
@@ -35,6 +36,7 @@ type manifests struct {
 	configMaps   map[string]*corev1.ConfigMap
 	hpas         map[string]*autoscalingv2.HorizontalPodAutoscaler
 	pdbs         map[string]*policyv1.PodDisruptionBudget
+	netpols      map[string]*networkingv1.NetworkPolicy
 	kustomize    *kustomization
 	objectFiles  []string // files holding API objects (not the kustomization)
 	objectsCount int
@@ -64,6 +66,7 @@ func loadManifests(t *testing.T) *manifests {
 		configMaps:  map[string]*corev1.ConfigMap{},
 		hpas:        map[string]*autoscalingv2.HorizontalPodAutoscaler{},
 		pdbs:        map[string]*policyv1.PodDisruptionBudget{},
+		netpols:     map[string]*networkingv1.NetworkPolicy{},
 	}
 	for _, f := range files {
 		b, err := os.ReadFile(f)
@@ -101,6 +104,9 @@ func loadManifests(t *testing.T) *manifests {
 			case "policy/v1 PodDisruptionBudget":
 				o := new(policyv1.PodDisruptionBudget)
 				obj, name = o, func() string { m.pdbs[o.Name] = o; return o.Name }
+			case "networking.k8s.io/v1 NetworkPolicy":
+				o := new(networkingv1.NetworkPolicy)
+				obj, name = o, func() string { m.netpols[o.Name] = o; return o.Name }
 			default:
 				t.Fatalf("%s document %d: unexpected %s %s (add it to this test)", f, i, tm.APIVersion, tm.Kind)
 			}
@@ -173,8 +179,8 @@ func TestManifestsDecode(t *testing.T) {
 	if !slices.Equal(got, want) {
 		t.Errorf("kustomization resources %v; want every manifest file %v", got, want)
 	}
-	if m.objectsCount < 7 {
-		t.Errorf("decoded %d objects; want at least 7 (ConfigMap, 2 Deployments, 3 Services, HPA, PDB)", m.objectsCount)
+	if m.objectsCount < 9 {
+		t.Errorf("decoded %d objects; want at least 9 (ConfigMap, 2 Deployments, 3 Services, HPA, PDB, 2 NetworkPolicies)", m.objectsCount)
 	}
 }
 
@@ -300,8 +306,9 @@ func TestDeployment(t *testing.T) {
 		if pod.AutomountServiceAccountToken == nil || *pod.AutomountServiceAccountToken {
 			t.Error("service account token mounted; modegridd does not talk to the API server")
 		}
-		if len(pod.Volumes) != 0 || len(c.VolumeMounts) != 0 {
-			t.Errorf("volumes %v; modegridd needs none", pod.Volumes)
+		// The one volume is the Redis password Secret, read-only.
+		if len(pod.Volumes) != 1 || pod.Volumes[0].Secret == nil || len(c.VolumeMounts) != 1 || !c.VolumeMounts[0].ReadOnly {
+			t.Errorf("volumes %v, mounts %v; want only the Redis password Secret, mounted read-only", pod.Volumes, c.VolumeMounts)
 		}
 	})
 

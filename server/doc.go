@@ -42,9 +42,18 @@ package server
 // computation is cancelled only when every request waiting for it has gone.
 // With a Backend (Redis, --redis-addr), results and models are also stored
 // there as serialised protobuf and looked up after the LRU misses; any
-// Backend failure is logged, counted (modegrid_cache_backend_errors_total)
-// and the request computed as if the key were absent. Losing either level
-// loses only time.
+// Backend failure is counted (modegrid_cache_backend_errors_total), logged
+// at most once a minute with a count, and the request computed as if the
+// key were absent. Losing either level loses only time.
+//
+// The cache never serves what it cannot vouch for: a Backend value travels
+// in an envelope with its full key, format versions and a SHA-256, checked
+// against the key asked for, and a decoded response must name the model
+// hash and parameters of its key (a model must compile to its hash); LRU
+// entries keep their full key, checked on every hit. A value failing a
+// check is a miss, recomputed, counted in
+// modegrid_cache_integrity_failures_total{tier,reason} and logged at most
+// once a minute.
 //
 // # Limits and overload
 //
@@ -101,10 +110,10 @@ package server
 // buckets up to an hour; modegrid_computations_{in_flight,queued,total,
 // canceled_total,rejected_total}, modegrid_compute_duration_seconds,
 // modegrid_qpoints_diagonalized_total, modegrid_cache_{hits,misses,
-// evictions,refused,flight_joins,backend_errors}_total, modegrid_cache_
+// evictions,refused,flight_joins,backend_errors,integrity_failures}_total, modegrid_cache_
 // {bytes,entries,max_bytes}, modegrid_panics_recovered_total,
 // modegrid_auth_failures_total, modegrid_build_info, and the Go and process
-// collectors. Labels are method, code, kind, level and reason only.
+// collectors. Labels are method, code, kind, level, tier and reason only.
 //
 // # Logs
 //

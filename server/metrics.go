@@ -52,6 +52,7 @@ type metrics struct {
 	computeSeconds *prometheus.HistogramVec // {kind}
 	panics         prometheus.Counter
 	authFailures   prometheus.Counter
+	cacheIntegrity *prometheus.CounterVec // {tier, reason} cache entries refused on read
 }
 
 // skipCounter is what a Backend may offer about values it declined to
@@ -92,6 +93,15 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 			Namespace: "modegrid", Name: "auth_failures_total",
 			Help: "Calls refused with UNAUTHENTICATED.",
 		}),
+		cacheIntegrity: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: "modegrid", Name: "cache_integrity_failures_total",
+			Help: "Cache entries refused on read and computed again, by tier (memory, shared) and reason (key_mismatch, checksum, decode, version).",
+		}, []string{"tier", "reason"}),
+	}
+	for _, tier := range []string{cache.TierMemory, cache.TierShared} {
+		for _, r := range []string{cache.ReasonKeyMismatch, cache.ReasonChecksum, cache.ReasonDecode, cache.ReasonVersion} {
+			m.cacheIntegrity.WithLabelValues(tier, r)
+		}
 	}
 	for _, k := range computeKinds {
 		m.computations.WithLabelValues(k)
@@ -107,7 +117,7 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 	}, []string{"version", "goversion"})
 	build.WithLabelValues(version, runtime.Version()).Set(1)
 	reg.MustRegister(
-		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, build,
+		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.cacheIntegrity, build,
 		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Namespace: "modegrid", Name: "computations_in_flight",
 			Help: "Computations holding a slot now.",

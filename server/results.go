@@ -2,6 +2,7 @@ package server
 
 import (
 	"context"
+	"fmt"
 	"reflect"
 
 	"google.golang.org/grpc/codes"
@@ -13,10 +14,15 @@ import (
 )
 
 // protoCodec stores results of one message type in the Backend as
-// serialised protobuf.
+// serialised protobuf. Every cached response names the model hash and the
+// canonical parameters it answers; a decoded response whose own
+// model_hash or parameters differ from the key it was read under is
+// refused.
 func protoCodec[M proto.Message](newMsg func() M) *cache.Codec {
 	return &cache.Codec{
-		Encode: func(v any) ([]byte, error) { return proto.Marshal(v.(proto.Message)) },
+		Version: 1,
+		Verify:  verifyResult,
+		Encode:  func(v any) ([]byte, error) { return proto.Marshal(v.(proto.Message)) },
 		Decode: func(b []byte) (any, int64, error) {
 			m := newMsg()
 			if err := proto.Unmarshal(b, m); err != nil {
@@ -25,6 +31,30 @@ func protoCodec[M proto.Message](newMsg func() M) *cache.Codec {
 			return m, resultBytes(m), nil
 		},
 	}
+}
+
+// verifyResult checks that a response's model_hash and parameters fields
+// are the model hash and canonical parameters of key k.
+func verifyResult(k cache.Key, v any) error {
+	m := v.(proto.Message).ProtoReflect()
+	for _, f := range []struct{ name, want string }{{"model_hash", k.Model}, {"parameters", k.Params}} {
+		fd := m.Descriptor().Fields().ByName(protoreflect.Name(f.name))
+		if fd == nil {
+			return fmt.Errorf("%s has no field %s to check", m.Descriptor().FullName(), f.name)
+		}
+		if got := m.Get(fd).String(); got != f.want {
+			return fmt.Errorf("response %s is %q, key has %q", f.name, abbreviate(got), abbreviate(f.want))
+		}
+	}
+	return nil
+}
+
+// abbreviate shortens s for an error message.
+func abbreviate(s string) string {
+	if len(s) > 80 {
+		return s[:80] + "…"
+	}
+	return s
 }
 
 // entryOverhead is what a cache entry costs besides its value: its key

@@ -273,14 +273,14 @@ func Register(s *grpc.Server, svc *Service) *health.Server {
 
 // newService builds the service's cache, gate and metrics.
 func newService(cfg Config, reg prometheus.Registerer) *Service {
-	s := &Service{cfg: cfg, log: cfg.Logger}
+	s := &Service{cfg: cfg, log: cfg.Logger,
+		backendLog: newLogLimiter(cacheLogEvery), integrityLog: newLogLimiter(cacheLogEvery)}
 	s.gate = gate.New(cfg.MaxConcurrent, cfg.queueLen(), cfg.QueueTimeout)
 	s.cache = cache.New(cache.Options{
-		MaxBytes: cfg.cacheBytes(),
-		Backend:  cfg.Backend,
-		OnBackendError: func(op string, k cache.Key, err error) {
-			s.log.Warn("cache backend error", "op", op, "kind", k.Kind, "model", prefix(k.Model), "err", err)
-		},
+		MaxBytes:           cfg.cacheBytes(),
+		Backend:            cfg.Backend,
+		OnBackendError:     s.onBackendError,
+		OnIntegrityFailure: s.onIntegrityFailure,
 	})
 	s.met = newMetrics(reg, s.gate, s.cache, cfg.Backend, cfg.Version)
 	return s

@@ -5,6 +5,7 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"errors"
+	"fmt"
 	"log/slog"
 	"time"
 
@@ -26,6 +27,10 @@ type Service struct {
 	cache *cache.Cache
 	gate  *gate.Gate
 	met   *metrics
+
+	// backendLog and integrityLog rate-limit the log lines about shared
+	// cache failures and refused cache entries (cachelog.go).
+	backendLog, integrityLog *logLimiter
 
 	// hook, when set (tests only), runs at the start of every computation,
 	// after it obtained its slot.
@@ -68,7 +73,17 @@ func (e *modelEntry) size() int64 {
 	return int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
 }
 
+// modelCodec stores a model in the Backend as its source; a replica reading
+// it compiles it again, and refuses it unless it compiles to the model hash
+// of the key it was read under.
 var modelCodec = &cache.Codec{
+	Version: 1,
+	Verify: func(k cache.Key, v any) error {
+		if h := v.(*modelEntry).hash; h != k.Model {
+			return fmt.Errorf("the stored source compiles to model %s", prefix(h))
+		}
+		return nil
+	},
 	Encode: func(v any) ([]byte, error) { return v.(*modelEntry).source, nil },
 	Decode: func(b []byte) (any, int64, error) {
 		var src modegridv1.ModelSource

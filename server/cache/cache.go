@@ -36,10 +36,22 @@ func (k Key) String() string {
 }
 
 // Codec converts values of one kind to and from bytes for the Backend.
-// Decode also returns the size to charge the value in the LRU.
+// Decode also returns the size to charge the value in the LRU. The cache
+// wraps the bytes in an envelope (envelope.go) holding the full key, the
+// codec's Version and a checksum, and checks all three before Decode sees
+// the payload.
 type Codec struct {
 	Encode func(v any) ([]byte, error)
 	Decode func(b []byte) (v any, size int64, err error)
+	// Version is the format of Encode's bytes; bump it when the format
+	// changes, so replicas of different builds never read each other's
+	// values (they are refused as ReasonVersion and recomputed).
+	Version uint32
+	// Verify, if set, checks a decoded value against the key it was read
+	// under (for example that a model rebuilt from its source has the
+	// model hash of the key); an error refuses the value as
+	// ReasonKeyMismatch.
+	Verify func(k Key, v any) error
 }
 
 // ComputeFunc computes a value and the number of bytes it holds (its
@@ -92,21 +104,27 @@ type Options struct {
 	// Backend is the optional second level; nil means none.
 	Backend Backend
 	// OnBackendError, if set, is called for every Backend failure (op is
-	// "get", "set" or "decode"); the cache then carries on without it.
+	// "get" or "set"); the cache then carries on without it.
 	OnBackendError func(op string, key Key, err error)
+	// OnIntegrityFailure, if set, is called for every entry refused on
+	// read (a value under the wrong key, a failed checksum, bytes that do
+	// not decode, another format version). The entry is never served: the
+	// read is a miss and the value is computed again.
+	OnIntegrityFailure func(key Key, err *IntegrityError)
 }
 
 // KindStats are the counters and sizes of one kind of key.
 type KindStats struct {
-	Hits          uint64 // served from memory
-	BackendHits   uint64 // served from the Backend
-	Misses        uint64 // found in neither level
-	Joined        uint64 // waited for a concurrent identical computation
-	Evictions     uint64 // dropped from memory to respect MaxBytes
-	Refused       uint64 // larger than MaxBytes on its own, not stored
-	BackendErrors uint64 // Backend get/set/decode failures
-	Bytes         int64  // bytes held in memory
-	Entries       int64  // entries held in memory
+	Hits              uint64 // served from memory
+	BackendHits       uint64 // served from the Backend
+	Misses            uint64 // found in neither level
+	Joined            uint64 // waited for a concurrent identical computation
+	Evictions         uint64 // dropped from memory to respect MaxBytes
+	Refused           uint64 // larger than MaxBytes on its own, not stored
+	BackendErrors     uint64 // Backend get/set failures
+	IntegrityFailures uint64 // entries refused on read by an integrity check (either tier)
+	Bytes             int64  // bytes held in memory
+	Entries           int64  // entries held in memory
 }
 
 // Cache is a byte-bounded LRU with a flight group and an optional Backend.
@@ -169,22 +187,49 @@ func (c *Cache) Stats() map[string]KindStats {
 func (c *Cache) MaxBytes() int64 { return c.opt.MaxBytes }
 
 // Get looks key up in memory only, counting a hit but not a miss.
+// An entry filed under k's string but holding another key is refused
+// (ReasonKeyMismatch), dropped, and reported as a miss.
 func (c *Cache) Get(k Key) (any, bool) {
 	c.mu.Lock()
-	defer c.mu.Unlock()
-	return c.getLocked(k)
+	v, ok, ierr := c.getLocked(k)
+	c.mu.Unlock()
+	if ierr != nil {
+		c.refuse(k, ierr)
+	}
+	return v, ok
 }
 
-func (c *Cache) getLocked(k Key) (any, bool) {
+func (c *Cache) getLocked(k Key) (any, bool, *IntegrityError) {
 	if c.lru == nil {
-		return nil, false
+		return nil, false, nil
 	}
 	e, ok := c.lru.get(k.String())
 	if !ok {
-		return nil, false
+		return nil, false, nil
+	}
+	if e.full != k {
+		c.dropLocked(e)
+		return nil, false, &IntegrityError{Tier: TierMemory, Reason: ReasonKeyMismatch,
+			Err: fmt.Errorf("entry is for %s, asked for %s", shortKey(e.full), shortKey(k))}
 	}
 	c.kind(k.Kind).Hits++
-	return e.value, true
+	return e.value, true, nil
+}
+
+// dropLocked removes e from memory; c.mu must be held.
+func (c *Cache) dropLocked(e *entry) {
+	st := c.kind(e.kind)
+	st.Bytes -= e.size
+	st.Entries--
+	c.lru.remove(e.key)
+}
+
+// refuse counts and reports an entry refused by an integrity check.
+func (c *Cache) refuse(k Key, err *IntegrityError) {
+	c.count(k, func(st *KindStats) { st.IntegrityFailures++ })
+	if c.opt.OnIntegrityFailure != nil {
+		c.opt.OnIntegrityFailure(k, err)
+	}
 }
 
 // Lookup finds key in memory, then in the Backend (decoding with codec and
@@ -221,7 +266,7 @@ func (c *Cache) putMemory(k Key, v any, size int64) {
 		ost.Bytes -= oe.size
 		ost.Entries--
 	}
-	if !c.lru.add(&entry{key: key, kind: k.Kind, value: v, size: size}) {
+	if !c.lru.add(&entry{key: key, full: k, kind: k.Kind, value: v, size: size}) {
 		st.Refused++
 		return
 	}
@@ -242,12 +287,17 @@ func (c *Cache) backendError(op string, k Key, err error) {
 	}
 }
 
-// fromBackend fetches and decodes k, keeping it in memory on success.
+// backendKey is k's key in the Backend. It names the envelope version, so
+// replicas of a build with another envelope format use other keys.
+func backendKey(k Key) string { return fmt.Sprintf("e%d/%s", envelopeVersion, k.String()) }
+
+// fromBackend fetches k, checks its envelope and decodes it, keeping it in
+// memory on success. A refused entry is a miss.
 func (c *Cache) fromBackend(ctx context.Context, k Key, codec *Codec) (any, bool) {
 	if c.opt.Backend == nil || codec == nil {
 		return nil, false
 	}
-	b, ok, err := c.opt.Backend.Get(ctx, k.String())
+	b, ok, err := c.opt.Backend.Get(ctx, backendKey(k))
 	if err != nil {
 		c.backendError("get", k, err)
 		return nil, false
@@ -255,14 +305,32 @@ func (c *Cache) fromBackend(ctx context.Context, k Key, codec *Codec) (any, bool
 	if !ok {
 		return nil, false
 	}
-	v, size, err := codec.Decode(b)
-	if err != nil {
-		c.backendError("decode", k, err)
+	v, size, ierr := decodeEntry(k, codec, b)
+	if ierr != nil {
+		c.refuse(k, ierr)
 		return nil, false
 	}
 	c.count(k, func(st *KindStats) { st.BackendHits++ })
 	c.putMemory(k, v, size)
 	return v, true
+}
+
+// decodeEntry opens b's envelope for k and decodes and verifies the value.
+func decodeEntry(k Key, codec *Codec, b []byte) (any, int64, *IntegrityError) {
+	payload, err := openEnvelope(k, codec.Version, b)
+	if err != nil {
+		return nil, 0, err.(*IntegrityError)
+	}
+	v, size, err := codec.Decode(payload)
+	if err != nil {
+		return nil, 0, sharedFailure(ReasonDecode, "payload does not decode: %w", err)
+	}
+	if codec.Verify != nil {
+		if err := codec.Verify(k, v); err != nil {
+			return nil, 0, sharedFailure(ReasonKeyMismatch, "value does not match its key: %w", err)
+		}
+	}
+	return v, size, nil
 }
 
 func (c *Cache) toBackend(ctx context.Context, k Key, v any, codec *Codec) {
@@ -271,7 +339,7 @@ func (c *Cache) toBackend(ctx context.Context, k Key, v any, codec *Codec) {
 	}
 	b, err := codec.Encode(v)
 	if err == nil {
-		err = c.opt.Backend.Set(ctx, k.String(), b)
+		err = c.opt.Backend.Set(ctx, backendKey(k), sealEnvelope(k, codec.Version, b))
 	}
 	if err != nil {
 		c.backendError("set", k, err)
@@ -399,11 +467,7 @@ func (c *Cache) Remove(k Key) {
 		return
 	}
 	if el, ok := c.lru.items[k.String()]; ok {
-		e := el.Value.(*entry)
-		st := c.kind(e.kind)
-		st.Bytes -= e.size
-		st.Entries--
-		c.lru.remove(e.key)
+		c.dropLocked(el.Value.(*entry))
 	}
 }
 
@@ -415,8 +479,8 @@ func (c *Cache) Contains(k Key) bool {
 	if c.lru == nil {
 		return false
 	}
-	_, ok := c.lru.items[k.String()]
-	return ok
+	el, ok := c.lru.items[k.String()]
+	return ok && el.Value.(*entry).full == k
 }
 
 // Waiting is the number of callers waiting for running computations of

@@ -326,7 +326,6 @@ func TestBackendErrorsNeverFail(t *testing.T) {
 		ops   []string
 	}{
 		{name: "get and set fail", be: &mapBackend{fail: errors.New("connection refused")}, ops: []string{"get", "set"}},
-		{name: "undecodable value", be: &mapBackend{m: map[string][]byte{key(1).String(): {}}}, ops: []string{"decode"}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

@@ -15,9 +15,10 @@ type lru struct {
 	onEvict func(e *entry)
 }
 
-// entry is one cached value with the size charged for it.
+// entry is one cached value with its full key and the size charged for it.
 type entry struct {
-	key   string
+	key   string // full.String(), the LRU's index
+	full  Key    // the whole key, checked on every read
 	kind  string
 	value any
 	size  int64

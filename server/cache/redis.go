@@ -44,7 +44,23 @@ type RedisOptions struct {
 	// Timeout bounds each Get or Set, including dialling (0:
 	// DefaultRedisTimeout).
 	Timeout time.Duration
+	// Password is sent with AUTH on every new connection (Redis's
+	// requirepass); empty: none. It is never logged.
+	Password string
 }
+
+// String describes the options without the password, so that logging
+// them never leaks it.
+func (o RedisOptions) String() string {
+	return fmt.Sprintf("addr=%s ttl=%v max_entry_bytes=%d timeout=%v password_set=%v",
+		o.Addr, o.TTL, o.MaxEntryBytes, o.Timeout, o.Password != "")
+}
+
+// IsAuthError reports whether err is Redis refusing the credentials: a
+// wrong password (WRONGPASS) or none where one is required (NOAUTH). These
+// are configuration errors, not outages: retrying will not fix them. (A
+// Redis without requirepass accepts any password.)
+func IsAuthError(err error) bool { return err != nil && redis.IsAuthError(err) }
 
 // Redis is a Backend that keeps entries in a Redis server shared by several
 // modegridd replicas. It never blocks a request for long: every operation
@@ -78,6 +94,7 @@ func NewRedis(opt RedisOptions) *Redis {
 	}
 	rdb := redis.NewClient(&redis.Options{
 		Addr:                  opt.Addr,
+		Password:              opt.Password,
 		DialTimeout:           opt.Timeout,
 		ReadTimeout:           opt.Timeout,
 		WriteTimeout:          opt.Timeout,

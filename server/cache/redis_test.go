@@ -25,21 +25,22 @@ const redisServerPath = "/usr/bin/redis-server"
 // redisServer is a real redis-server process on a loopback port, started
 // by the test with persistence off.
 type redisServer struct {
-	t    testing.TB
-	addr string
-	cmd  *exec.Cmd
-	dir  string
+	t     testing.TB
+	addr  string
+	cmd   *exec.Cmd
+	dir   string
+	extra []string // more redis-server arguments (e.g. --requirepass)
 }
 
 // startRedis starts redis-server on a free loopback port and waits until it
 // accepts connections. The test is skipped, saying why, only when the binary
 // is not installed (Debian package redis-server).
-func startRedis(t testing.TB) *redisServer {
+func startRedis(t testing.TB, extra ...string) *redisServer {
 	t.Helper()
 	if _, err := os.Stat(redisServerPath); err != nil {
 		t.Skipf("redis-server not installed (%v): apt-get install redis-server", err)
 	}
-	s := &redisServer{t: t, addr: freeAddr(t), dir: t.TempDir()}
+	s := &redisServer{t: t, addr: freeAddr(t), dir: t.TempDir(), extra: extra}
 	s.start()
 	t.Cleanup(s.stop)
 	return s
@@ -61,9 +62,10 @@ func freeAddr(t testing.TB) string {
 func (s *redisServer) start() {
 	s.t.Helper()
 	_, port, _ := net.SplitHostPort(s.addr)
-	cmd := exec.Command(redisServerPath, "--bind", "127.0.0.1", "--port", port,
+	args := append([]string{"--bind", "127.0.0.1", "--port", port,
 		"--save", "", "--appendonly", "no", "--dir", s.dir, "--daemonize", "no",
-		"--protected-mode", "yes", "--loglevel", "notice")
+		"--protected-mode", "yes", "--loglevel", "notice"}, s.extra...)
+	cmd := exec.Command(redisServerPath, args...)
 	out, err := cmd.StdoutPipe()
 	if err != nil {
 		s.t.Fatal(err)
@@ -411,6 +413,59 @@ func (l *lockedBuffer) String() string {
 func isTimeout(err error) bool {
 	var ne net.Error
 	return errors.As(err, &ne) && ne.Timeout()
+}
+
+// TestRedisPassword: against a real Redis with requirepass, the right
+// password works; a wrong one or none is an authentication error (a
+// configuration error, not an outage) whose message does not contain the
+// password. A Redis without requirepass takes any password (Redis's
+// default user).
+func TestRedisPassword(t *testing.T) {
+	const secret = "s3cret-for-this-test-only"
+	locked := startRedis(t, "--requirepass", secret)
+	open := startRedis(t)
+	ctx := testCtx(t)
+	tests := []struct {
+		name     string
+		addr     string
+		password string
+		authErr  bool
+	}{
+		{name: "right password", addr: locked.addr, password: secret},
+		{name: "wrong password", addr: locked.addr, password: "not-" + secret, authErr: true},
+		{name: "no password", addr: locked.addr, authErr: true},
+		{name: "password to a Redis without one", addr: open.addr, password: secret},
+		{name: "no password, none required", addr: open.addr},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			opt := RedisOptions{Addr: tc.addr, Password: tc.password}
+			r := NewRedis(opt)
+			defer r.Close()
+			err := r.Ping(ctx)
+			if got := IsAuthError(err); got != tc.authErr {
+				t.Fatalf("Ping: %v; IsAuthError = %v, want %v", err, got, tc.authErr)
+			}
+			if err != nil && strings.Contains(err.Error(), secret) {
+				t.Errorf("error %q contains the password", err)
+			}
+			if s := opt.String(); strings.Contains(s, secret) {
+				t.Errorf("options print as %q, with the password", s)
+			}
+			if tc.authErr {
+				return
+			}
+			if err := r.Set(ctx, "k", []byte("v")); err != nil {
+				t.Fatal(err)
+			}
+			if got, ok, err := r.Get(ctx, "k"); err != nil || !ok || string(got) != "v" {
+				t.Fatalf("Get = %q, %v, %v; want v", got, ok, err)
+			}
+		})
+	}
+	if IsAuthError(errors.New("dial tcp 127.0.0.1:1: connect: connection refused")) {
+		t.Error("a refused connection taken for an authentication error")
+	}
 }
 
 // TestRedisCallerContext: a caller's context that is already cancelled

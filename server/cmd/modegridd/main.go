@@ -24,7 +24,6 @@ import (
 	"strconv"
 	"strings"
 	"syscall"
-	"time"
 
 	"github.com/materials-lab/modegrid/server"
 	"github.com/materials-lab/modegrid/server/cache"
@@ -58,6 +57,7 @@ type options struct {
 	logLevel    string
 	redis       cache.RedisOptions
 	redisMax    byteSize
+	redisPwFile string
 	showVersion bool
 }
 
@@ -99,6 +99,7 @@ func newFlags(o *options) *flag.FlagSet {
 	fs.DurationVar(&o.redis.Timeout, "redis-timeout", cache.DefaultRedisTimeout, "bound on every Redis operation")
 	o.redisMax = cache.DefaultRedisMaxEntryBytes
 	fs.Var(&o.redisMax, "redis-max-entry-bytes", "largest value stored in Redis, bytes")
+	fs.StringVar(&o.redisPwFile, "redis-password-file", "", "file holding the Redis password (or set "+redisPasswordEnv+" to the password itself)")
 	fs.IntVar(&c.MaxConcurrent, "max-concurrent", 0, "computations run at once (0: one per core)")
 	fs.IntVar(&o.maxQueue, "max-queue", server.DefaultMaxQueue, "computations that may wait for a slot (0: none wait)")
 	fs.DurationVar(&c.QueueTimeout, "queue-timeout", server.DefaultQueueTimeout, "longest wait for a computation slot before RESOURCE_EXHAUSTED")
@@ -187,6 +188,11 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 	c.MaxChunkBytes = int(o.maxChunk)
 	c.DisableReflection = !o.reflection
 	o.redis.MaxEntryBytes = int(o.redisMax)
+	pw, err := redisPassword(o.redisPwFile, getenv)
+	if err != nil {
+		return nil, err
+	}
+	o.redis.Password = pw
 	c.Version = version
 	var lvl slog.Level
 	if err := lvl.UnmarshalText([]byte(o.logLevel)); err != nil {
@@ -216,16 +222,12 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 	log := o.cfg.Logger
 	if o.redis.Addr != "" {
-		cache.SetRedisLogger(log)
-		r := cache.NewRedis(o.redis)
-		defer r.Close()
-		pctx, cancel := context.WithTimeout(ctx, time.Second)
-		if err := r.Ping(pctx); err != nil {
-			log.Warn("redis not answering; serving without it until it does", "addr", o.redis.Addr, "err", err)
-		} else {
-			log.Info("redis cache connected", "addr", o.redis.Addr)
+		r, err := connectRedis(ctx, o.redis, log)
+		if err != nil {
+			fmt.Fprintf(stderr, "modegridd: %v\n", err)
+			return exitFailed
 		}
-		cancel()
+		defer r.Close()
 		o.cfg.Backend = r
 	}
 	srv, err := server.New(o.cfg)
