@@ -749,9 +749,11 @@ func TestFaultBadInputs(t *testing.T) {
 		{name: "path of one corner", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: []*modegridv1.PathPoint{{Label: "G"}}}), code: codes.InvalidArgument, field: "path"},
 		{name: "label not of this lattice", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "L"}}}),
 			code: codes.InvalidArgument, field: "path[1].label"},
+		// No field: nothing of the request could be read (ops_test.go
+		// checks the message, metric and log line).
 		{name: "bytes that are not a request", call: func(ctx context.Context) error {
 			return ts.conn.Invoke(ctx, modegridv1.ModegridService_CheckModel_FullMethodName, rawRequest("\xff\xff\xff"), &modegridv1.CheckModelResponse{}, grpc.ForceCodec(rawCodec{}))
-		}, code: codes.Internal},
+		}, code: codes.InvalidArgument, field: ""},
 		{name: "message over max-msg-bytes", call: modes(tooBigMessage(t)), code: codes.ResourceExhausted},
 	}
 	for _, tt := range tests {

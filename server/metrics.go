@@ -8,6 +8,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
 )
@@ -52,6 +53,7 @@ type metrics struct {
 	computeSeconds *prometheus.HistogramVec // {kind}
 	panics         prometheus.Counter
 	authFailures   prometheus.Counter
+	undecodable    *prometheus.CounterVec // {method} requests whose bytes did not decode
 }
 
 // skipCounter is what a Backend may offer about values it declined to
@@ -92,11 +94,22 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 			Namespace: "modegrid", Name: "auth_failures_total",
 			Help: "Calls refused with UNAUTHENTICATED.",
 		}),
+		undecodable: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: "modegrid", Name: "requests_undecodable_total",
+			Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by full method name.",
+		}, []string{"method"}),
 	}
 	for _, k := range computeKinds {
 		m.computations.WithLabelValues(k)
 		m.canceled.WithLabelValues(k)
 		m.computeSeconds.WithLabelValues(k)
+	}
+	sd := modegridv1.ModegridService_ServiceDesc
+	for _, md := range sd.Methods {
+		m.undecodable.WithLabelValues("/" + sd.ServiceName + "/" + md.MethodName)
+	}
+	for _, st := range sd.Streams {
+		m.undecodable.WithLabelValues("/" + sd.ServiceName + "/" + st.StreamName)
 	}
 	for _, r := range []string{gate.ReasonQueueFull, gate.ReasonWaitTimeout} {
 		m.rejected.WithLabelValues(r)
@@ -107,7 +120,7 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 	}, []string{"version", "goversion"})
 	build.WithLabelValues(version, runtime.Version()).Set(1)
 	reg.MustRegister(
-		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, build,
+		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.undecodable, build,
 		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Namespace: "modegrid", Name: "computations_in_flight",
 			Help: "Computations holding a slot now.",

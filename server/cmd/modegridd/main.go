@@ -21,6 +21,7 @@ import (
 	"net"
 	"os"
 	"os/signal"
+	"runtime/debug"
 	"strconv"
 	"strings"
 	"syscall"
@@ -34,10 +35,20 @@ import (
 var version = "dev"
 
 func main() {
+	defer logPanic("main")
 	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGTERM, syscall.SIGINT)
 	code := run(ctx, os.Args[1:], os.Stdout, os.Stderr)
 	stop()
 	os.Exit(code)
+}
+
+// logPanic, deferred, writes a panic of the calling goroutine as one JSON
+// log line on stderr, then lets it continue (Go's exit status 2 and trace).
+func logPanic(goroutine string) {
+	if p := recover(); p != nil {
+		server.LogCrash(slog.New(slog.NewJSONHandler(os.Stderr, nil)), goroutine, p, debug.Stack())
+		panic(p)
+	}
 }
 
 // Exit codes.
@@ -58,6 +69,7 @@ type options struct {
 	logLevel    string
 	redis       cache.RedisOptions
 	redisMax    byteSize
+	crashFile   string
 	showVersion bool
 }
 
@@ -92,6 +104,7 @@ func newFlags(o *options) *flag.FlagSet {
 	c := &o.cfg
 	fs.StringVar(&c.Listen, "listen", server.DefaultListen, "gRPC listen address host:port")
 	fs.StringVar(&c.MetricsListen, "metrics-listen", server.DefaultMetricsListen, `HTTP address of the Prometheus /metrics endpoint ("off" disables)`)
+	fs.StringVar(&c.HealthListen, "health-listen", "", "address of a plaintext gRPC port serving only the health service, for probes when the main port uses TLS (empty: none)")
 	o.cacheBytes = server.DefaultCacheBytes
 	fs.Var(&o.cacheBytes, "cache-bytes", "in-process result cache bound, bytes (suffix KiB/MiB/GiB allowed; 0 disables)")
 	fs.StringVar(&o.redis.Addr, "redis-addr", "", "Redis host:port of the shared second-level cache (empty: none)")
@@ -121,6 +134,7 @@ func newFlags(o *options) *flag.FlagSet {
 	fs.StringVar(&c.TokenFile, "token-file", "", "file of accepted bearer tokens, one a line (health checks need none)")
 	fs.BoolVar(&o.reflection, "reflection", true, "serve gRPC server reflection")
 	fs.StringVar(&o.logLevel, "log-level", "info", "log level: debug, info, warn or error")
+	fs.StringVar(&o.crashFile, "crash-file", "", "file receiving the runtime's output of a fatal crash, reported as one JSON line by the next start (empty: none)")
 	fs.BoolVar(&o.showVersion, "version", false, "print the version and exit")
 	fs.VisitAll(func(f *flag.Flag) {
 		if f.Name != "version" {
@@ -172,6 +186,9 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 	if err := applyEnv(fs, getenv); err != nil {
 		return nil, err
 	}
+	if err := unknownEnv(fs, environ()); err != nil {
+		return nil, err
+	}
 	c := &o.cfg
 	// The flags' "0 disables" become the Config's negative values (a zero
 	// Config field means "default").
@@ -215,6 +232,14 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return exitOK
 	}
 	log := o.cfg.Logger
+	if o.crashFile != "" {
+		f, err := openCrashFile(o.crashFile, log)
+		if err != nil {
+			fmt.Fprintf(stderr, "modegridd: %v\n", err)
+			return exitUsage
+		}
+		defer f.Close()
+	}
 	if o.redis.Addr != "" {
 		cache.SetRedisLogger(log)
 		r := cache.NewRedis(o.redis)
@@ -235,7 +260,7 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 	cfg := srv.Config()
 	err = srv.Run(ctx, func(grpcAddr, metricsAddr net.Addr) {
-		attrs := []any{"version", version, "addr", grpcAddr.String(), "tls", cfg.TLSCertFile != "",
+		attrs := []any{"version", version, "addr", grpcAddr.String(), "health_addr", cfg.HealthListen, "tls", cfg.TLSCertFile != "",
 			"mtls", cfg.ClientCAFile != "", "tokens", cfg.TokenFile != "", "cache_bytes", max(cfg.CacheBytes, 0),
 			"max_concurrent", cfg.MaxConcurrent, "redis", o.redis.Addr}
 		if metricsAddr != nil {
