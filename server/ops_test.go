@@ -13,6 +13,7 @@ import (
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/credentials/insecure"
+	"google.golang.org/grpc/encoding"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 	reflectionpb "google.golang.org/grpc/reflection/grpc_reflection_v1"
 	"google.golang.org/grpc/status"
@@ -262,5 +263,21 @@ func TestCrashGuard(t *testing.T) {
 	r := recs[0]
 	if r["level"] != "ERROR" || r["goroutine"] != "test-goroutine" || r["panic"] != "deliberate" || !strings.Contains(r["stack"].(string), "TestCrashGuard") {
 		t.Errorf("crash line %v; want level, goroutine, panic and stack", r)
+	}
+}
+
+// TestUndecodableStockCodec documents why the server has its own codec:
+// with grpc-go's protobuf codec (given here through ServerOptions, which
+// override the server's), the same bytes get INTERNAL — a server fault to
+// the client and to the error-ratio alert — and the undecodable counter
+// never moves.
+func TestUndecodableStockCodec(t *testing.T) {
+	ts := startServer(t, Config{ServerOptions: []grpc.ServerOption{grpc.ForceServerCodecV2(encoding.GetCodecV2("proto"))}})
+	err := ts.conn.Invoke(testContext(t), modegridv1.ModegridService_CheckModel_FullMethodName, garbage, &modegridv1.CheckModelResponse{}, grpc.ForceCodec(rawCodec{}))
+	if status.Code(err) != codes.Internal {
+		t.Errorf("stock codec: %v; want Internal (grpc-go's answer to a codec error)", err)
+	}
+	if got := metric(t, ts.srv.Registry(), "modegrid_requests_undecodable_total", map[string]string{"method": modegridv1.ModegridService_CheckModel_FullMethodName}); got != 0 {
+		t.Errorf("undecodable counter %v; want 0 (the stock codec reports nothing)", got)
 	}
 }

@@ -6,9 +6,15 @@
 // MODEGRID_METRICS_LISTEN); a flag on the command line wins over the
 // environment. Run `modegridd -h` for the list.
 //
+// A MODEGRID_* variable that names no flag is refused (exit 2), with the
+// nearest known name suggested.
+//
 // SIGTERM or SIGINT stops it gracefully: health goes NOT_SERVING, new calls
 // are refused after --drain-delay, calls in flight get --shutdown-grace to
-// finish, then the rest are cut off. A clean stop exits 0.
+// finish, then the rest are cut off (and logged). Every such stop exits 0,
+// whether or not the grace ran out; exit 1 means the server could not
+// start or serve. A panic outside a call is logged as one JSON line
+// ("msg":"crash") before the process dies with Go's exit status 2.
 package main
 
 import (
@@ -260,11 +266,14 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 	cfg := srv.Config()
 	err = srv.Run(ctx, func(grpcAddr, metricsAddr net.Addr) {
-		attrs := []any{"version", version, "addr", grpcAddr.String(), "health_addr", cfg.HealthListen, "tls", cfg.TLSCertFile != "",
+		attrs := []any{"version", version, "addr", grpcAddr.String(), "tls", cfg.TLSCertFile != "",
 			"mtls", cfg.ClientCAFile != "", "tokens", cfg.TokenFile != "", "cache_bytes", max(cfg.CacheBytes, 0),
 			"max_concurrent", cfg.MaxConcurrent, "redis", o.redis.Addr}
 		if metricsAddr != nil {
 			attrs = append(attrs, "metrics_addr", metricsAddr.String())
+		}
+		if cfg.HealthListen != "" {
+			attrs = append(attrs, "health_listen", cfg.HealthListen)
 		}
 		log.Info("serving", attrs...)
 	})
