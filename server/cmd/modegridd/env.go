@@ -11,6 +11,12 @@ import (
 // environ is the process environment; a variable so tests can replace it.
 var environ = os.Environ
 
+// otherPrograms are MODEGRID_* variables read by the project's other
+// programs, which share a shell with modegridd on a developer's machine:
+// the modegrid CLI's bearer token and the test suite's switches. They are
+// not modegridd's settings, and not refused.
+var otherPrograms = map[string]bool{"MODEGRID_TOKEN": true, "MODEGRID_BENCH_LARGE": true, "MODEGRID_TEST_PLOT_DIR": true}
+
 // unknownEnv refuses MODEGRID_* variables that name no flag of fs: a
 // misspelt setting would otherwise be ignored without a word. The known
 // names are derived from the flags themselves, so a new flag is known at
@@ -29,7 +35,7 @@ func unknownEnv(fs *flag.FlagSet, env []string) error {
 	var bad []string
 	for _, kv := range env {
 		k, _, _ := strings.Cut(kv, "=")
-		if !strings.HasPrefix(k, "MODEGRID_") || known[k] {
+		if !strings.HasPrefix(k, "MODEGRID_") || known[k] || otherPrograms[k] {
 			continue
 		}
 		msg := k

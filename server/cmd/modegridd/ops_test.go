@@ -51,7 +51,7 @@ func TestUnknownEnvironment(t *testing.T) {
 			all = append(all, envName(f.Name)+"=")
 		}
 	})
-	withEnviron(t, append(all, "PATH=/bin", "MODEGRID=x"))
+	withEnviron(t, append(all, "PATH=/bin", "MODEGRID=x", "MODEGRID_TOKEN=the-cli-s", "MODEGRID_BENCH_LARGE=1"))
 	if _, err := parse(nil, env(nil), &bytes.Buffer{}); err != nil {
 		t.Errorf("every flag's variable set (empty): %v; want no error", err)
 	}
