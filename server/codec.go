@@ -2,6 +2,7 @@ package server
 
 import (
 	"fmt"
+	"strings"
 	"sync"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
@@ -21,7 +22,7 @@ import (
 // server's codec therefore does not fail: it leaves the message empty and
 // records the decoding error against the message; the server's interceptor
 // (unary) or its stream wrapper (RecvMsg) finds the record, counts
-// modegrid_requests_undecodable_total{method}, logs a warning and answers
+// modegrid_requests_undecodable_total{grpc_service,grpc_method}, logs a warning and answers
 // INVALID_ARGUMENT — a client's mistake, which the request metrics then
 // count with that code.
 
@@ -88,13 +89,14 @@ func (c countingCodec) Name() string { return c.base.Name() }
 // reportUndecodable counts and logs a request the codec could not decode
 // and returns the INVALID_ARGUMENT status its client gets.
 func (s *Server) reportUndecodable(method string, msg any, err error) error {
-	s.svc.met.undecodable.WithLabelValues(method).Inc()
-	name := fmt.Sprintf("%T", msg)
+	svc, name, _ := strings.Cut(strings.TrimPrefix(method, "/"), "/")
+	s.svc.met.undecodable.WithLabelValues(svc, name).Inc()
+	typ := fmt.Sprintf("%T", msg)
 	if m, ok := msg.(proto.Message); ok {
-		name = string(m.ProtoReflect().Descriptor().FullName())
+		typ = string(m.ProtoReflect().Descriptor().FullName())
 	}
-	s.cfg.Logger.Warn("undecodable request", "method", method, "message", name, "err", err.Error())
-	desc := fmt.Sprintf("the bytes received are not a valid %s: %v", name, err)
+	s.cfg.Logger.Warn("undecodable request", "method", method, "message", typ, "err", err.Error())
+	desc := fmt.Sprintf("the bytes received are not a valid %s: %v", typ, err)
 	// The violation names no field (the empty path: the request as a
 	// whole), since nothing of it could be read.
 	st, e := status.New(codes.InvalidArgument, "invalid request: "+desc).WithDetails(&errdetails.BadRequest{

@@ -112,7 +112,7 @@ package server
 // modegrid_qpoints_diagonalized_total, modegrid_cache_{hits,misses,
 // evictions,refused,flight_joins,backend_errors}_total, modegrid_cache_
 // {bytes,entries,max_bytes}, modegrid_panics_recovered_total,
-// modegrid_auth_failures_total, modegrid_requests_undecodable_total{method},
+// modegrid_auth_failures_total, modegrid_requests_undecodable_total{grpc_service,grpc_method},
 // modegrid_build_info, and the Go and process
 // collectors. Labels are method, code, kind, level and reason only.
 //

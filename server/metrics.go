@@ -53,7 +53,7 @@ type metrics struct {
 	computeSeconds *prometheus.HistogramVec // {kind}
 	panics         prometheus.Counter
 	authFailures   prometheus.Counter
-	undecodable    *prometheus.CounterVec // {method} requests whose bytes did not decode
+	undecodable    *prometheus.CounterVec // {grpc_service, grpc_method} requests whose bytes did not decode
 }
 
 // skipCounter is what a Backend may offer about values it declined to
@@ -96,8 +96,8 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 		}),
 		undecodable: prometheus.NewCounterVec(prometheus.CounterOpts{
 			Namespace: "modegrid", Name: "requests_undecodable_total",
-			Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by full method name.",
-		}, []string{"method"}),
+			Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by service and method (labels as grpc_server_*).",
+		}, []string{"grpc_service", "grpc_method"}),
 	}
 	for _, k := range computeKinds {
 		m.computations.WithLabelValues(k)
@@ -106,10 +106,10 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 	}
 	sd := modegridv1.ModegridService_ServiceDesc
 	for _, md := range sd.Methods {
-		m.undecodable.WithLabelValues("/" + sd.ServiceName + "/" + md.MethodName)
+		m.undecodable.WithLabelValues(sd.ServiceName, md.MethodName)
 	}
 	for _, st := range sd.Streams {
-		m.undecodable.WithLabelValues("/" + sd.ServiceName + "/" + st.StreamName)
+		m.undecodable.WithLabelValues(sd.ServiceName, st.StreamName)
 	}
 	for _, r := range []string{gate.ReasonQueueFull, gate.ReasonWaitTimeout} {
 		m.rejected.WithLabelValues(r)

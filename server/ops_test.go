@@ -77,14 +77,14 @@ func TestUndecodableRequests(t *testing.T) {
 	}
 	reg := ts.srv.Registry()
 	for _, m := range []string{"CheckModel", "ComputeModes"} {
-		if got := metric(t, reg, "modegrid_requests_undecodable_total", map[string]string{"method": svc + m}); got != 1 {
+		if got := metric(t, reg, "modegrid_requests_undecodable_total", map[string]string{"grpc_service": "modegrid.v1.ModegridService", "grpc_method": m}); got != 1 {
 			t.Errorf("undecodable %s: %v; want 1", m, got)
 		}
 		if got := metric(t, reg, "grpc_server_handled_total", map[string]string{"grpc_method": m, "grpc_code": "InvalidArgument"}); got != 1 {
 			t.Errorf("handled %s InvalidArgument: %v; want 1", m, got)
 		}
 	}
-	if got := metric(t, reg, "modegrid_requests_undecodable_total", map[string]string{"method": svc + "ComputeDos"}); got != 0 {
+	if got := metric(t, reg, "modegrid_requests_undecodable_total", map[string]string{"grpc_service": "modegrid.v1.ModegridService", "grpc_method": "ComputeDos"}); got != 0 {
 		t.Errorf("undecodable ComputeDos: %v; want 0 (exported, never incremented)", got)
 	}
 	recs := logRecords(t, &buf, "undecodable request")
@@ -277,7 +277,7 @@ func TestUndecodableStockCodec(t *testing.T) {
 	if status.Code(err) != codes.Internal {
 		t.Errorf("stock codec: %v; want Internal (grpc-go's answer to a codec error)", err)
 	}
-	if got := metric(t, ts.srv.Registry(), "modegrid_requests_undecodable_total", map[string]string{"method": modegridv1.ModegridService_CheckModel_FullMethodName}); got != 0 {
+	if got := metric(t, ts.srv.Registry(), "modegrid_requests_undecodable_total", map[string]string{"grpc_method": "CheckModel"}); got != 0 {
 		t.Errorf("undecodable counter %v; want 0 (the stock codec reports nothing)", got)
 	}
 }
