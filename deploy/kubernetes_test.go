@@ -21,6 +21,7 @@ import (
 	"k8s.io/apimachinery/pkg/api/resource"
 	metav1 "k8s.io/apimachinery/pkg/apis/meta/v1"
 	"k8s.io/apimachinery/pkg/labels"
+	"k8s.io/apimachinery/pkg/util/intstr"
 	sigsjson "sigs.k8s.io/json"
 	"sigs.k8s.io/yaml"
 )
@@ -184,6 +185,9 @@ func TestManifestsDecode(t *testing.T) {
 	}
 }
 
+// healthPort is the plaintext health-only port the kubelet probes.
+const healthPort = 7421
+
 // TestDeployment checks the modegridd Deployment: two replicas, gRPC
 // readiness and liveness probes on the standard health service, resource
 // requests and limits, non-root with a read-only root filesystem, a grace
@@ -211,7 +215,9 @@ func TestDeployment(t *testing.T) {
 	})
 
 	t.Run("ports match the image", func(t *testing.T) {
-		want := map[string]int32{"grpc": 7420, "metrics": 9420}
+		// grpc and metrics are the Dockerfile's EXPOSE; health is the
+		// ConfigMap's MODEGRID_HEALTH_LISTEN (checked in "configuration").
+		want := map[string]int32{"grpc": 7420, "metrics": 9420, "health": healthPort}
 		got := map[string]int32{}
 		for _, p := range c.Ports {
 			got[p.Name] = p.ContainerPort
@@ -236,8 +242,8 @@ func TestDeployment(t *testing.T) {
 				if tc.probe == nil || tc.probe.GRPC == nil {
 					t.Fatalf("%s probe %+v; want a native gRPC probe", tc.name, tc.probe)
 				}
-				if tc.probe.GRPC.Port != 7420 {
-					t.Errorf("probe port %d; want the gRPC port 7420", tc.probe.GRPC.Port)
+				if tc.probe.GRPC.Port != healthPort {
+					t.Errorf("probe port %d; want the plaintext health port %d (the kubelet's gRPC probes take no TLS)", tc.probe.GRPC.Port, healthPort)
 				}
 				got := ""
 				if tc.probe.GRPC.Service != nil {
@@ -247,6 +253,9 @@ func TestDeployment(t *testing.T) {
 					t.Errorf("probe service %q; want %q", got, tc.service)
 				}
 			})
+		}
+		if c.TerminationMessagePolicy != corev1.TerminationMessageFallbackToLogsOnError {
+			t.Errorf("terminationMessagePolicy %q; want FallbackToLogsOnError (a crash's last log lines in the pod status)", c.TerminationMessagePolicy)
 		}
 		// Liveness must not be stricter than readiness: a busy replica should
 		// leave the endpoints before it is restarted.
@@ -355,7 +364,7 @@ func TestDeployment(t *testing.T) {
 				t.Errorf("ConfigMap key %s=%q: modegridd has no flag -%s (flags %v)", k, v, flag, flags)
 			}
 		}
-		for key, port := range map[string]string{"MODEGRID_LISTEN": "7420", "MODEGRID_METRICS_LISTEN": "9420"} {
+		for key, port := range map[string]string{"MODEGRID_LISTEN": "7420", "MODEGRID_METRICS_LISTEN": "9420", "MODEGRID_HEALTH_LISTEN": strconv.Itoa(healthPort)} {
 			if _, p, err := splitHostPort(cm.Data[key]); err != nil || p != port {
 				t.Errorf("ConfigMap %s=%q; want port %s to match the container port", key, cm.Data[key], port)
 			}
@@ -546,8 +555,14 @@ func TestAutoscalingAndDisruption(t *testing.T) {
 		if !sel.Matches(labels.Set(d.Spec.Template.Labels)) {
 			t.Errorf("selector %v does not select the modegridd pods", sel)
 		}
-		if p.Spec.MinAvailable == nil || p.Spec.MinAvailable.IntValue() < 1 || p.Spec.MinAvailable.IntValue() >= int(*d.Spec.Replicas) {
-			t.Errorf("minAvailable %v; want at least 1 and fewer than the %d replicas (or drains block)", p.Spec.MinAvailable, *d.Spec.Replicas)
+		// One pod at a time, at every replica count the autoscaler
+		// allows: maxUnavailable 1 (minAvailable would have to follow the
+		// replica count; a minAvailable of 1 lets 9 of 10 go at once).
+		if p.Spec.MinAvailable != nil {
+			t.Errorf("minAvailable %v; want maxUnavailable only", p.Spec.MinAvailable)
+		}
+		if mu := p.Spec.MaxUnavailable; mu == nil || mu.Type != intstr.Int || mu.IntValue() != 1 {
+			t.Errorf("maxUnavailable %v; want 1 (one pod evicted at a time; 0 would block drains)", mu)
 		}
 	})
 }

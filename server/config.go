@@ -64,6 +64,11 @@ type Config struct {
 	// MetricsListen is the HTTP address of /metrics used by ListenAndServe
 	// ("" → DefaultMetricsListen; "off" → no metrics listener).
 	MetricsListen string
+	// HealthListen, when set, is a second gRPC address serving only the
+	// standard health service, in plaintext and without tokens, for
+	// probes that cannot use the main port's TLS (the kubelet's gRPC
+	// probes); "" → no such port. See Server.ServeHealth.
+	HealthListen string
 
 	// CacheBytes bounds the in-process result cache, bytes (0 → 512 MiB;
 	// negative → no in-process cache).
@@ -188,8 +193,8 @@ func (c Config) Validate() error {
 	bad := func(name, format string, args ...any) {
 		errs = append(errs, fmt.Errorf("%s: %s", name, fmt.Sprintf(format, args...)))
 	}
-	for _, a := range []struct{ name, addr string }{{"listen", c.Listen}, {"metrics-listen", c.MetricsListen}} {
-		if a.name == "metrics-listen" && a.addr == "off" {
+	for _, a := range []struct{ name, addr string }{{"listen", c.Listen}, {"metrics-listen", c.MetricsListen}, {"health-listen", c.HealthListen}} {
+		if (a.name == "metrics-listen" && a.addr == "off") || (a.name == "health-listen" && a.addr == "") {
 			continue
 		}
 		if _, _, err := net.SplitHostPort(a.addr); err != nil {
@@ -198,6 +203,10 @@ func (c Config) Validate() error {
 	}
 	if c.MetricsListen == c.Listen && !strings.HasSuffix(c.Listen, ":0") {
 		bad("metrics-listen", "must differ from listen (%s)", c.Listen)
+	}
+	if c.HealthListen != "" && !strings.HasSuffix(c.HealthListen, ":0") &&
+		(c.HealthListen == c.Listen || c.HealthListen == c.MetricsListen) {
+		bad("health-listen", "must differ from listen (%s) and metrics-listen (%s)", c.Listen, c.MetricsListen)
 	}
 	positive := []struct {
 		name string

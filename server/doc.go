@@ -9,9 +9,11 @@ package server
 //	go srv.Serve(lis)                       // nil after Shutdown
 //	defer srv.Shutdown(ctx)                 // graceful until ctx ends, then forced
 //
-// Server.Run(ctx, ready) does the listening on Config.Listen and
-// Config.MetricsListen itself and shuts down within Config.ShutdownGrace
-// once ctx ends; modegridd is Run plus flags and signals.
+// Server.Run(ctx, ready) does the listening on Config.Listen,
+// Config.MetricsListen and Config.HealthListen itself and shuts down within
+// Config.ShutdownGrace once ctx ends, returning nil whether or not calls
+// had to be cut off at the end of the grace; modegridd is Run plus flags
+// and signals.
 //
 // # Requests and models
 //
@@ -71,7 +73,9 @@ package server
 //
 // # Status codes
 //
-//	INVALID_ARGUMENT     bad model or request, every bad field in BadRequest; request over a cap
+//	INVALID_ARGUMENT     bad model or request, every bad field in BadRequest; request over a cap;
+//	                     request bytes that do not decode as the message (see codec.go: grpc-go
+//	                     alone answers those INTERNAL, before any interceptor)
 //	NOT_FOUND            model_hash not held by this server (resend the model inline)
 //	FAILED_PRECONDITION  thermal properties of a model with imaginary modes without allow_unstable
 //	RESOURCE_EXHAUSTED   computation queue full or wait timed out; message over max-msg-bytes
@@ -102,6 +106,11 @@ package server
 // "authorization: Bearer <token>"; tokens are compared as SHA-256 digests
 // in constant time. A refused call runs no handler and computes nothing.
 //
+// Config.HealthListen (or Server.ServeHealth) adds a plaintext port that
+// serves the standard health service and nothing else, reporting the same
+// status as the main port: for probes that cannot do TLS (the kubelet's
+// gRPC probes) while the main port requires it.
+//
 // # Metrics
 //
 // Server.MetricsHandler (or ServeMetrics, or Run on Config.MetricsListen)
@@ -112,18 +121,24 @@ package server
 // modegrid_qpoints_diagonalized_total, modegrid_cache_{hits,misses,
 // evictions,refused,flight_joins,backend_errors,integrity_failures}_total, modegrid_cache_
 // {bytes,entries,max_bytes}, modegrid_panics_recovered_total,
-// modegrid_auth_failures_total, modegrid_build_info, and the Go and process
+// modegrid_auth_failures_total, modegrid_requests_undecodable_total{grpc_service,grpc_method},
+// modegrid_build_info, and the Go and process
 // collectors. Labels are method, code, kind, level, tier and reason only.
 //
 // # Logs
 //
 // One JSON line per call (log/slog): method, code, duration_ms, model
 // (hash prefix), cache (memory, backend, shared, computed), peer and, on
-// failure, the status message.
+// failure, the status message. Health checks log at debug (probes come
+// every few seconds). A panic in a call is recovered (INTERNAL, "panic
+// recovered" line); a panic in a goroutine the server starts outside calls
+// is logged as one "crash" line and then ends the process as Go does.
 //
 // # Shutdown
 //
 // Shutdown sets health NOT_SERVING, keeps accepting calls for
 // Config.DrainDelay, then refuses new calls while those in flight finish;
 // when its context ends the rest are cut off and their computations
-// cancelled.
+// cancelled (a warning with their number; each call's line has its code),
+// and Shutdown returns the context's error. The health-only port stops
+// last, after the main port.

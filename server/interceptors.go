@@ -4,6 +4,7 @@ import (
 	"context"
 	"log/slog"
 	"runtime/debug"
+	"strings"
 	"time"
 
 	"google.golang.org/grpc"
@@ -51,6 +52,7 @@ func (s *Server) unaryInterceptor(ctx context.Context, req any, info *grpc.Unary
 	start := time.Now()
 	ci := &callInfo{}
 	ctx = context.WithValue(ctx, callInfoKey{}, ci)
+	decodeErr := s.undecodable.take(req) // taken whatever happens next
 	defer func() {
 		if p := recover(); p != nil {
 			resp, err = nil, s.svc.panicked(info.FullMethod, p, debug.Stack())
@@ -59,6 +61,9 @@ func (s *Server) unaryInterceptor(ctx context.Context, req any, info *grpc.Unary
 	}()
 	if err := s.authenticate(ctx, info.FullMethod); err != nil {
 		return nil, err
+	}
+	if decodeErr != nil {
+		return nil, s.reportUndecodable(info.FullMethod, req, decodeErr)
 	}
 	return handler(ctx, req)
 }
@@ -77,8 +82,40 @@ func (s *Server) streamInterceptor(srv any, ss grpc.ServerStream, info *grpc.Str
 	if err := s.authenticate(ctx, info.FullMethod); err != nil {
 		return err
 	}
-	return handler(srv, &contextStream{ServerStream: ss, ctx: ctx})
+	return handler(srv, &decodeCheckedStream{contextStream: &contextStream{ServerStream: ss, ctx: ctx}, s: s, method: info.FullMethod})
 }
+
+// healthLogInterceptor logs the calls of the health-only port (at debug
+// level, as every health check) and recovers panics.
+func (s *Server) healthLogInterceptor(ctx context.Context, req any, info *grpc.UnaryServerInfo, handler grpc.UnaryHandler) (resp any, err error) {
+	start := time.Now()
+	defer func() {
+		if p := recover(); p != nil {
+			resp, err = nil, s.svc.panicked(info.FullMethod, p, debug.Stack())
+		}
+		s.logCall(ctx, info.FullMethod, start, &callInfo{}, err)
+	}()
+	if err := s.undecodable.take(req); err != nil {
+		return nil, s.reportUndecodable(info.FullMethod, req, err)
+	}
+	return handler(ctx, req)
+}
+
+// healthStreamLogInterceptor is healthLogInterceptor for Health.Watch.
+func (s *Server) healthStreamLogInterceptor(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, handler grpc.StreamHandler) (err error) {
+	start := time.Now()
+	defer func() {
+		if p := recover(); p != nil {
+			err = s.svc.panicked(info.FullMethod, p, debug.Stack())
+		}
+		s.logCall(ss.Context(), info.FullMethod, start, &callInfo{}, err)
+	}()
+	return handler(srv, &decodeCheckedStream{contextStream: &contextStream{ServerStream: ss, ctx: ss.Context()}, s: s, method: info.FullMethod})
+}
+
+// healthMethodPrefix starts the full method names of the standard health
+// service, whose calls (probes every few seconds) are logged at debug.
+const healthMethodPrefix = "/grpc.health.v1.Health/"
 
 // authenticate checks the call's client certificate (mutual TLS: every
 // method) and bearer token (every method but health), counting failures.
@@ -110,7 +147,9 @@ func (s *Service) panicked(method string, p any, stack []byte) error {
 }
 
 // logCall writes the call's JSON log line: method, code, duration, model
-// hash prefix and cache source. Server-side failures log at error level.
+// hash prefix and cache source. Server-side failures log at error level;
+// health checks (probes, every few seconds per prober) at debug, whatever
+// their outcome, so that they do not drown the calls.
 func (s *Server) logCall(ctx context.Context, method string, start time.Time, ci *callInfo, err error) {
 	code := status.Code(err)
 	level := slog.LevelInfo
@@ -119,6 +158,9 @@ func (s *Server) logCall(ctx context.Context, method string, start time.Time, ci
 		level = slog.LevelError
 	case codes.ResourceExhausted, codes.Unauthenticated:
 		level = slog.LevelWarn
+	}
+	if strings.HasPrefix(method, healthMethodPrefix) {
+		level = slog.LevelDebug
 	}
 	if !s.cfg.Logger.Enabled(ctx, level) {
 		return

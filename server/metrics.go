@@ -8,6 +8,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
 )
@@ -53,6 +54,7 @@ type metrics struct {
 	panics         prometheus.Counter
 	authFailures   prometheus.Counter
 	cacheIntegrity *prometheus.CounterVec // {tier, reason} cache entries refused on read
+	undecodable    *prometheus.CounterVec // {grpc_service, grpc_method} requests whose bytes did not decode
 }
 
 // skipCounter is what a Backend may offer about values it declined to
@@ -97,6 +99,10 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 			Namespace: "modegrid", Name: "cache_integrity_failures_total",
 			Help: "Cache entries refused on read and computed again, by tier (memory, shared) and reason (key_mismatch, checksum, decode, version).",
 		}, []string{"tier", "reason"}),
+		undecodable: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Namespace: "modegrid", Name: "requests_undecodable_total",
+			Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by service and method (labels as grpc_server_*).",
+		}, []string{"grpc_service", "grpc_method"}),
 	}
 	for _, tier := range []string{cache.TierMemory, cache.TierShared} {
 		for _, r := range []string{cache.ReasonKeyMismatch, cache.ReasonChecksum, cache.ReasonDecode, cache.ReasonVersion} {
@@ -108,6 +114,13 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 		m.canceled.WithLabelValues(k)
 		m.computeSeconds.WithLabelValues(k)
 	}
+	sd := modegridv1.ModegridService_ServiceDesc
+	for _, md := range sd.Methods {
+		m.undecodable.WithLabelValues(sd.ServiceName, md.MethodName)
+	}
+	for _, st := range sd.Streams {
+		m.undecodable.WithLabelValues(sd.ServiceName, st.StreamName)
+	}
 	for _, r := range []string{gate.ReasonQueueFull, gate.ReasonWaitTimeout} {
 		m.rejected.WithLabelValues(r)
 	}
@@ -117,7 +130,7 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 	}, []string{"version", "goversion"})
 	build.WithLabelValues(version, runtime.Version()).Set(1)
 	reg.MustRegister(
-		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.cacheIntegrity, build,
+		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.cacheIntegrity, m.undecodable, build,
 		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Namespace: "modegrid", Name: "computations_in_flight",
 			Help: "Computations holding a slot now.",

@@ -18,6 +18,8 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 	"google.golang.org/grpc"
+	"google.golang.org/grpc/encoding"
+	protoenc "google.golang.org/grpc/encoding/proto"
 	"google.golang.org/grpc/health"
 	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 	"google.golang.org/grpc/keepalive"
@@ -48,8 +50,11 @@ type Server struct {
 	tokens *tokenSet    // nil: no token required
 	certs  *clientCerts // nil: no client certificate required
 
+	undecodable *undecodable // requests the codec could not decode, until their interceptor reports them
+
 	mu       sync.Mutex     // protects below
 	http     []*http.Server // metrics servers started by ServeMetrics
+	healthGS []*grpc.Server // health-only servers started by ServeHealth
 	shutdown bool
 }
 
@@ -72,7 +77,9 @@ func New(cfg Config) (*Server, error) {
 		s.tokens = ts
 	}
 	s.svc = newService(cfg, s.reg)
+	s.undecodable = newUndecodable()
 	opts := []grpc.ServerOption{
+		grpc.ForceServerCodecV2(countingCodec{base: encoding.GetCodecV2(protoenc.Name), failed: s.undecodable}),
 		grpc.ChainUnaryInterceptor(s.svc.met.grpc.UnaryServerInterceptor(), s.unaryInterceptor),
 		grpc.ChainStreamInterceptor(s.svc.met.grpc.StreamServerInterceptor(), s.streamInterceptor),
 		grpc.MaxRecvMsgSize(cfg.MaxMsgBytes),
@@ -156,6 +163,33 @@ func (s *Server) ServeMetrics(lis net.Listener) error {
 	return nil
 }
 
+// ServeHealth serves only the standard gRPC health service, in plaintext,
+// on lis until Shutdown, then returns nil. It is the port for probes that
+// cannot speak TLS or send tokens (the kubelet's gRPC probes) while the
+// main port requires them: it reports the same status as the main port's
+// health service and serves nothing else (no computation, no reflection).
+func (s *Server) ServeHealth(lis net.Listener) error {
+	gs := grpc.NewServer(
+		grpc.ForceServerCodecV2(countingCodec{base: encoding.GetCodecV2(protoenc.Name), failed: s.undecodable}),
+		grpc.MaxRecvMsgSize(4<<10), // a HealthCheckRequest is a service name
+		grpc.ChainUnaryInterceptor(s.healthLogInterceptor),
+		grpc.ChainStreamInterceptor(s.healthStreamLogInterceptor),
+	)
+	healthpb.RegisterHealthServer(gs, s.health)
+	s.mu.Lock()
+	if s.shutdown {
+		s.mu.Unlock()
+		lis.Close()
+		return nil
+	}
+	s.healthGS = append(s.healthGS, gs)
+	s.mu.Unlock()
+	if err := gs.Serve(lis); err != nil && !errors.Is(err, grpc.ErrServerStopped) {
+		return err
+	}
+	return nil
+}
+
 // Shutdown stops the server gracefully: health goes NOT_SERVING, calls are
 // still accepted for cfg.DrainDelay, then new calls are refused and calls
 // in flight may finish until ctx ends; then every
@@ -164,7 +198,7 @@ func (s *Server) ServeMetrics(lis net.Listener) error {
 func (s *Server) Shutdown(ctx context.Context) error {
 	s.mu.Lock()
 	s.shutdown = true
-	hs := s.http
+	hs, hgs := s.http, s.healthGS
 	s.mu.Unlock()
 	s.health.Shutdown() // every service NOT_SERVING, further updates ignored
 	s.cfg.Logger.Info("draining", "in_flight", s.svc.gate.InFlight(), "queued", s.svc.gate.Queued(), "drain_delay", s.cfg.DrainDelay.String())
@@ -178,6 +212,7 @@ func (s *Server) Shutdown(ctx context.Context) error {
 	}
 	done := make(chan struct{})
 	go func() {
+		defer s.crashGuard("graceful-stop")
 		s.gs.GracefulStop()
 		close(done)
 	}()
@@ -186,9 +221,13 @@ func (s *Server) Shutdown(ctx context.Context) error {
 	case <-done:
 	case <-ctx.Done():
 		err = ctx.Err()
-		s.cfg.Logger.Warn("grace period over: stopping calls still in flight", "in_flight", s.svc.gate.InFlight())
+		s.cfg.Logger.Warn("grace period over: stopping calls still in flight (each logged with its code)",
+			"in_flight", s.svc.gate.InFlight(), "queued", s.svc.gate.Queued())
 		s.gs.Stop()
 		<-done
+	}
+	for _, g := range hgs {
+		g.Stop() // probes are short unary calls: nothing to drain
 	}
 	hctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), time.Second)
 	defer cancel()
@@ -200,32 +239,40 @@ func (s *Server) Shutdown(ctx context.Context) error {
 	return err
 }
 
-// Run listens on cfg.Listen (and cfg.MetricsListen unless "off"), serves
-// until ctx ends, then shuts down within cfg.ShutdownGrace. It returns nil
-// after a clean shutdown. ready, if not nil, is called with the bound
-// addresses once both listeners are open.
+// Run listens on cfg.Listen (and cfg.MetricsListen unless "off", and
+// cfg.HealthListen if set), serves until ctx ends, then shuts down within
+// cfg.ShutdownGrace. It returns nil after any orderly shutdown, including
+// one whose grace period ran out: the calls then cut off are logged (a
+// warning with their number, and each call's own line with its code), and
+// cutting them is the documented end of the grace, not a failure. It
+// returns an error only when a listener could not be opened or serving
+// failed. ready, if not nil, is called with the bound gRPC and metrics
+// addresses once every listener is open.
 func (s *Server) Run(ctx context.Context, ready func(grpcAddr, metricsAddr net.Addr)) error {
-	lis, err := net.Listen("tcp", s.cfg.Listen)
+	lis, mlis, hlis, err := s.listen()
 	if err != nil {
-		return fmt.Errorf("listen: %w", err)
+		return err
 	}
-	var mlis net.Listener
-	if s.cfg.MetricsListen != "off" {
-		if mlis, err = net.Listen("tcp", s.cfg.MetricsListen); err != nil {
-			lis.Close()
-			return fmt.Errorf("metrics-listen: %w", err)
+	errc := make(chan error, 3)
+	running := 0
+	start := func(name string, serve func(net.Listener) error, l net.Listener) {
+		if l == nil {
+			return
 		}
-	}
-	errc := make(chan error, 2)
-	go func() { errc <- s.Serve(lis) }()
-	running := 1
-	var maddr net.Addr
-	if mlis != nil {
-		maddr = mlis.Addr()
 		running++
-		go func() { errc <- s.ServeMetrics(mlis) }()
+		go func() {
+			defer s.crashGuard(name)
+			errc <- serve(l)
+		}()
 	}
+	start("serve", s.Serve, lis)
+	start("serve-metrics", s.ServeMetrics, mlis)
+	start("serve-health", s.ServeHealth, hlis)
 	if ready != nil {
+		var maddr net.Addr
+		if mlis != nil {
+			maddr = mlis.Addr()
+		}
 		ready(lis.Addr(), maddr)
 	}
 	var serveErr error
@@ -236,19 +283,39 @@ func (s *Server) Run(ctx context.Context, ready func(grpcAddr, metricsAddr net.A
 	}
 	sctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), s.cfg.ShutdownGrace)
 	defer cancel()
-	shutErr := s.Shutdown(sctx)
+	if err := s.Shutdown(sctx); err != nil {
+		s.cfg.Logger.Warn("stopped after the grace period: calls still running were cut off", "grace", s.cfg.ShutdownGrace.String())
+	}
 	for ; running > 0; running-- {
 		if err := <-errc; err != nil && serveErr == nil {
 			serveErr = err
 		}
 	}
-	if serveErr != nil {
-		return serveErr
+	return serveErr
+}
+
+// listen opens the gRPC listener and, when configured, the metrics and
+// health listeners (nil when off), closing what it opened on failure.
+func (s *Server) listen() (lis, mlis, hlis net.Listener, err error) {
+	if lis, err = net.Listen("tcp", s.cfg.Listen); err != nil {
+		return nil, nil, nil, fmt.Errorf("listen: %w", err)
 	}
-	if shutErr != nil {
-		return fmt.Errorf("shutdown: %w", shutErr)
+	if s.cfg.MetricsListen != "off" {
+		if mlis, err = net.Listen("tcp", s.cfg.MetricsListen); err != nil {
+			lis.Close()
+			return nil, nil, nil, fmt.Errorf("metrics-listen: %w", err)
+		}
 	}
-	return nil
+	if s.cfg.HealthListen != "" {
+		if hlis, err = net.Listen("tcp", s.cfg.HealthListen); err != nil {
+			lis.Close()
+			if mlis != nil {
+				mlis.Close()
+			}
+			return nil, nil, nil, fmt.Errorf("health-listen: %w", err)
+		}
+	}
+	return lis, mlis, hlis, nil
 }
 
 // NewService returns a Service with the default configuration and a

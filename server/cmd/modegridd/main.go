@@ -6,9 +6,15 @@
 // MODEGRID_METRICS_LISTEN); a flag on the command line wins over the
 // environment. Run `modegridd -h` for the list.
 //
+// A MODEGRID_* variable that names no flag is refused (exit 2), with the
+// nearest known name suggested.
+//
 // SIGTERM or SIGINT stops it gracefully: health goes NOT_SERVING, new calls
 // are refused after --drain-delay, calls in flight get --shutdown-grace to
-// finish, then the rest are cut off. A clean stop exits 0.
+// finish, then the rest are cut off (and logged). Every such stop exits 0,
+// whether or not the grace ran out; exit 1 means the server could not
+// start or serve. A panic outside a call is logged as one JSON line
+// ("msg":"crash") before the process dies with Go's exit status 2.
 package main
 
 import (
@@ -21,6 +27,7 @@ import (
 	"net"
 	"os"
 	"os/signal"
+	"runtime/debug"
 	"strconv"
 	"strings"
 	"syscall"
@@ -33,10 +40,20 @@ import (
 var version = "dev"
 
 func main() {
+	defer logPanic("main")
 	ctx, stop := signal.NotifyContext(context.Background(), syscall.SIGTERM, syscall.SIGINT)
 	code := run(ctx, os.Args[1:], os.Stdout, os.Stderr)
 	stop()
 	os.Exit(code)
+}
+
+// logPanic, deferred, writes a panic of the calling goroutine as one JSON
+// log line on stderr, then lets it continue (Go's exit status 2 and trace).
+func logPanic(goroutine string) {
+	if p := recover(); p != nil {
+		server.LogCrash(slog.New(slog.NewJSONHandler(os.Stderr, nil)), goroutine, p, debug.Stack())
+		panic(p)
+	}
 }
 
 // Exit codes.
@@ -58,6 +75,7 @@ type options struct {
 	redis       cache.RedisOptions
 	redisMax    byteSize
 	redisPwFile string
+	crashFile   string
 	showVersion bool
 }
 
@@ -92,6 +110,7 @@ func newFlags(o *options) *flag.FlagSet {
 	c := &o.cfg
 	fs.StringVar(&c.Listen, "listen", server.DefaultListen, "gRPC listen address host:port")
 	fs.StringVar(&c.MetricsListen, "metrics-listen", server.DefaultMetricsListen, `HTTP address of the Prometheus /metrics endpoint ("off" disables)`)
+	fs.StringVar(&c.HealthListen, "health-listen", "", "address of a plaintext gRPC port serving only the health service, for probes when the main port uses TLS (empty: none)")
 	o.cacheBytes = server.DefaultCacheBytes
 	fs.Var(&o.cacheBytes, "cache-bytes", "in-process result cache bound, bytes (suffix KiB/MiB/GiB allowed; 0 disables)")
 	fs.StringVar(&o.redis.Addr, "redis-addr", "", "Redis host:port of the shared second-level cache (empty: none)")
@@ -122,6 +141,7 @@ func newFlags(o *options) *flag.FlagSet {
 	fs.StringVar(&c.TokenFile, "token-file", "", "file of accepted bearer tokens, one a line (health checks need none)")
 	fs.BoolVar(&o.reflection, "reflection", true, "serve gRPC server reflection")
 	fs.StringVar(&o.logLevel, "log-level", "info", "log level: debug, info, warn or error")
+	fs.StringVar(&o.crashFile, "crash-file", "", "file receiving the runtime's output of a fatal crash, reported as one JSON line by the next start (empty: none)")
 	fs.BoolVar(&o.showVersion, "version", false, "print the version and exit")
 	fs.VisitAll(func(f *flag.Flag) {
 		if f.Name != "version" {
@@ -173,6 +193,9 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 	if err := applyEnv(fs, getenv); err != nil {
 		return nil, err
 	}
+	if err := unknownEnv(fs, environ()); err != nil {
+		return nil, err
+	}
 	c := &o.cfg
 	// The flags' "0 disables" become the Config's negative values (a zero
 	// Config field means "default").
@@ -221,6 +244,14 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return exitOK
 	}
 	log := o.cfg.Logger
+	if o.crashFile != "" {
+		f, err := openCrashFile(o.crashFile, log)
+		if err != nil {
+			fmt.Fprintf(stderr, "modegridd: %v\n", err)
+			return exitUsage
+		}
+		defer f.Close()
+	}
 	if o.redis.Addr != "" {
 		r, err := connectRedis(ctx, o.redis, log)
 		if err != nil {
@@ -242,6 +273,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 			"max_concurrent", cfg.MaxConcurrent, "redis", o.redis.Addr}
 		if metricsAddr != nil {
 			attrs = append(attrs, "metrics_addr", metricsAddr.String())
+		}
+		if cfg.HealthListen != "" {
+			attrs = append(attrs, "health_listen", cfg.HealthListen)
 		}
 		log.Info("serving", attrs...)
 	})

@@ -21,8 +21,14 @@ import (
 // TestMain doubles as modegridd itself when MODEGRID_TEST_AS_MAIN is set,
 // so the signal test runs the real main in a child process.
 func TestMain(m *testing.M) {
-	if os.Getenv("MODEGRID_TEST_AS_MAIN") == "1" {
+	if mode := os.Getenv("MODEGRID_TEST_AS_MAIN"); mode != "" {
 		os.Args = append([]string{"modegridd"}, strings.Fields(os.Getenv("MODEGRID_TEST_ARGS"))...)
+		// Not modegridd's own variables: it refuses unknown MODEGRID_*.
+		os.Unsetenv("MODEGRID_TEST_AS_MAIN")
+		os.Unsetenv("MODEGRID_TEST_ARGS")
+		if mode == "crash" {
+			crashAsMain()
+		}
 		main()
 		return
 	}
