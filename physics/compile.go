@@ -50,7 +50,7 @@ type Model struct {
 	frac           [][]float64
 	massAmu        []float64
 	labels         []string
-	terms          []term // directed, consolidated per (i, j, n), sorted
+	terms          []term // directed, summed per (i, j, n) in canonical order, non-zero, sorted
 
 	// The lower triangle of D(q) as blocks grouped by cell offset (dynmat.go).
 	cells  []dmCell
