@@ -50,7 +50,7 @@ type Model struct {
 	frac           [][]float64
 	massAmu        []float64
 	labels         []string
-	terms          []term // directed, consolidated per (i, j, n), sorted
+	terms          []term // directed, summed per (i, j, n) in canonical order, non-zero, sorted
 
 	// The lower triangle of D(q) as blocks grouped by cell offset (dynmat.go).
 	cells  []dmCell
@@ -83,8 +83,13 @@ type Model struct {
 }
 
 // Compile validates c and builds its force constants. A model that fails
-// validation (or a nil c) returns a *ValidationError listing every
-// violation.
+// validation returns a *ValidationError listing every violation.
+//
+// The compiled numbers do not depend on how the model was spelled: every
+// force-constant block is summed from its contributions in a canonical
+// order (sumParts), a spring is built in one orientation of its bond, and
+// negative zeros become +0, so equivalent descriptions compile to
+// bit-identical models (which Hash relies on).
 func Compile(c *Crystal, opt Options) (*Model, error) {
 	if c == nil {
 		return nil, Validate(nil, opt.Limits)
@@ -95,66 +100,16 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	if len(vs.list) > 0 {
 		return nil, vs.err()
 	}
-	m := &Model{dim: len(c.Lattice), p: c.P(), nsites: len(c.Sites)}
-	for k, v := range c.Lattice {
-		m.lattice[k] = v
-	}
-	m.recip = reciprocal(m.lattice, m.dim)
-	for _, s := range c.Sites {
-		m.pos = append(m.pos, m.cart(s.Frac))
-		m.frac = append(m.frac, append([]float64(nil), s.Frac...))
-		m.massAmu = append(m.massAmu, s.MassAmu)
-		m.labels = append(m.labels, s.Label)
-	}
-	scale := 1.0 // to eV/Å²
+	m := newModel(c)
+	toEV := func(k float64) float64 { return k } // force constants to eV/Å²
 	if c.ForceUnit == NPerM {
-		scale = 1 / EVPerA2InNPerM
+		// One division (a single rounding), so that a value converted to
+		// N/m and back lands on the same eV/Å² number whenever it can.
+		toEV = func(k float64) float64 { return k / EVPerA2InNPerM }
 	}
-
-	// Raw (mass-unweighted) force constants in eV/Å², keyed by directed pair.
-	type key struct {
-		i, j int
-		n    [3]int
-	}
-	fc := map[key]*[9]float64{}
-	addBlock := func(i, j int, n [3]int, phi [9]float64) {
-		k := key{i, j, n}
-		b := fc[k]
-		if b == nil {
-			b = new([9]float64)
-			fc[k] = b
-		}
-		for a := range phi {
-			b[a] += phi[a]
-		}
-	}
-	// springSelf accumulates spring on-site terms (always from the sum rule).
-	self := make([][9]float64, m.nsites)
-	addSpring := func(i, j int, n [3]int, kl, kt float64) {
-		r := sub3(add3(m.pos[j], m.latticeVec(n)), m.pos[i])
-		l := norm3(r)
-		e := [3]float64{r[0] / l, r[1] / l, r[2] / l}
-		var phi [9]float64
-		for a := 0; a < 3; a++ {
-			for b := 0; b < 3; b++ {
-				ee := e[a] * e[b]
-				id := 0.0
-				if a == b {
-					id = 1
-				}
-				phi[3*a+b] = -(kl*ee + kt*(id-ee))
-			}
-		}
-		addBlock(i, j, n, phi)
-		addBlock(j, i, neg3(n), transpose9(phi))
-		m.springs = append(m.springs, springBond{i: i, j: j, bond: r, kLong: kl, kTrans: kt})
-		for a := range phi {
-			self[i][a] -= phi[a]
-			self[j][a] -= phi[a] // transpose of a symmetric block
-		}
-	}
+	parts := fcParts{}
 	for _, s := range c.Springs {
-		addSpring(s.From, s.To, cellOf(s.Cell), s.KLong*scale, s.KTrans*scale)
+		m.addSpring(parts, s.From, s.To, cellOf(s.Cell), toEV(s.KLong), toEV(s.KTrans))
 	}
 	m.interactions = len(c.Springs) + len(c.Blocks)
 	m.hasBlocks = len(c.Blocks) > 0
@@ -168,7 +123,7 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
 		m.interactions += len(bonds)
 		for _, b := range bonds {
-			addSpring(b.i, b.j, b.n, sh.KLong*scale, sh.KTrans*scale)
+			m.addSpring(parts, b.i, b.j, b.n, toEV(sh.KLong), toEV(sh.KTrans))
 		}
 	}
 	if m.interactions > lim.MaxInteractions {
@@ -177,83 +132,13 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	if len(vs.list) > 0 {
 		return nil, vs.err()
 	}
+	m.addBlocks(parts, c.Blocks, toEV, opt.EnforceSumRule)
 
-	// Explicit blocks: off-site blocks and their implied transposes, and the
-	// caller's on-site blocks.
-	blockSelf := make([][9]float64, m.nsites)
-	hasSelf := make([]bool, m.nsites)
-	offSum := make([][9]float64, m.nsites) // Σ of off-site blocks per site
-	for _, b := range c.Blocks {
-		var phi [9]float64
-		for a := range phi {
-			phi[a] = b.Phi[a] * scale
-		}
-		n := cellOf(b.Cell)
-		if b.From == b.To && n == ([3]int{}) {
-			hasSelf[b.From] = true
-			sym := symmetrize9(phi)
-			for a := range sym {
-				blockSelf[b.From][a] += sym[a]
-			}
-			continue
-		}
-		addBlock(b.From, b.To, n, phi)
-		addBlock(b.To, b.From, neg3(n), transpose9(phi))
-		pt := transpose9(phi)
-		for a := range phi {
-			offSum[b.From][a] += phi[a]
-			offSum[b.To][a] += pt[a]
-		}
-	}
-	for i := 0; i < m.nsites; i++ {
-		asr := symmetrize9(offSum[i])
-		for a := range asr {
-			asr[a] = -asr[a]
-		}
-		if hasSelf[i] {
-			// Violation: the largest |Σ_{j,n} Φ_αβ(0i; nj)| over the
-			// p×p components the model uses, i.e. the force along α on
-			// site i when the whole crystal moves rigidly by a unit step
-			// along β (zero under the acoustic sum rule).
-			for a := 0; a < m.p; a++ {
-				for b := 0; b < m.p; b++ {
-					row := blockSelf[i][3*a+b] + offSum[i][3*a+b]
-					m.sumRuleViolation = math.Max(m.sumRuleViolation, math.Abs(row))
-				}
-			}
-			if !opt.EnforceSumRule {
-				asr = blockSelf[i]
-			}
-		}
-		for a := range asr {
-			self[i][a] += asr[a]
-		}
-	}
-	for i := 0; i < m.nsites; i++ {
-		addBlock(i, i, [3]int{}, self[i])
-	}
-
-	keys := make([]key, 0, len(fc))
-	for k := range fc {
-		keys = append(keys, k)
-	}
-	sort.Slice(keys, func(a, b int) bool {
-		ka, kb := keys[a], keys[b]
-		if ka.i != kb.i {
-			return ka.i < kb.i
-		}
-		if ka.j != kb.j {
-			return ka.j < kb.j
-		}
-		return lessCell(ka.n, kb.n)
-	})
-	raw := make([]term, 0, len(keys)) // eV/Å², for the hash
-	for _, k := range keys {
-		w := 1 / math.Sqrt(m.massAmu[k.i]*m.massAmu[k.j])
-		t := term{i: k.i, j: k.j, n: k.n, phi: *fc[k]}
-		raw = append(raw, t)
+	raw := m.rawTerms(parts) // eV/Å², for the hash
+	for _, t := range raw {
+		w := 1 / math.Sqrt(m.massAmu[t.i]*m.massAmu[t.j])
 		for a := range t.phi {
-			t.phi[a] *= w
+			t.phi[a] = posZero(t.phi[a] * w)
 		}
 		m.terms = append(m.terms, t)
 	}
@@ -272,6 +157,198 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	m.hash = m.canonicalHash(raw)
 	m.latticeType, m.standard = detectLattice(m)
 	return m, nil
+}
+
+// newModel copies the geometry of a validated crystal into a Model, with
+// negative zeros made +0 (so that −0 and 0 compile alike).
+func newModel(c *Crystal) *Model {
+	m := &Model{dim: len(c.Lattice), p: c.P(), nsites: len(c.Sites)}
+	for k, v := range c.Lattice {
+		for a := range v {
+			m.lattice[k][a] = posZero(v[a])
+		}
+	}
+	m.recip = reciprocal(m.lattice, m.dim)
+	for _, s := range c.Sites {
+		frac := make([]float64, len(s.Frac))
+		for k, f := range s.Frac {
+			frac[k] = posZero(f)
+		}
+		m.pos = append(m.pos, m.cart(frac))
+		m.frac = append(m.frac, frac)
+		m.massAmu = append(m.massAmu, s.MassAmu)
+		m.labels = append(m.labels, s.Label)
+	}
+	return m
+}
+
+// fcKey names the directed force-constant block Φ(0i; nj): site i in cell
+// 0, site j in cell n.
+type fcKey struct {
+	i, j int
+	n    [3]int
+}
+
+// fcParts collects the contributions (raw 3×3 blocks, eV/Å²) to every
+// force-constant block, to be summed by sumParts once all are in.
+type fcParts map[fcKey][][9]float64
+
+func (f fcParts) add(k fcKey, phi [9]float64) { f[k] = append(f[k], phi) }
+
+// addPair adds phi to the off-site block k and its transpose to the
+// reverse block (j, i, −n), as Φ(0j; −n i) = Φ(0i; nj)ᵀ requires. Every
+// contribution to one enters the other transposed, so the canonical sums
+// are exact transposes of each other.
+func (f fcParts) addPair(k fcKey, phi [9]float64) {
+	f.add(k, phi)
+	f.add(fcKey{k.j, k.i, neg3(k.n)}, transpose9(phi))
+}
+
+// sumParts adds the contributions component by component in ascending
+// order of value (negative zeros made +0 first), so that the sum is the
+// same float64 whatever order the springs, shells and blocks came in. The
+// result has no negative zero.
+func sumParts(parts [][9]float64) [9]float64 {
+	var out [9]float64
+	col := make([]float64, len(parts))
+	for a := range out {
+		for x, p := range parts {
+			col[x] = posZero(p[a])
+		}
+		sort.Float64s(col)
+		s := 0.0
+		for _, v := range col {
+			s += v
+		}
+		out[a] = posZero(s)
+	}
+	return out
+}
+
+// posZero returns x with −0 made +0.
+func posZero(x float64) float64 {
+	if x == 0 {
+		return 0
+	}
+	return x
+}
+
+// addSpring adds a spring of constants kl, kt (eV/Å²) on the bond from
+// site i in cell 0 to site j in cell n: the pair blocks and, by the
+// acoustic sum rule, the on-site blocks of both ends. The bond is taken in
+// one orientation (i < j, or for i = j the larger of ±n), so that a bond
+// and its own reverse give bit-identical blocks; a spring block is exactly
+// symmetric (e_a e_b = e_b e_a in floating point).
+func (m *Model) addSpring(f fcParts, i, j int, n [3]int, kl, kt float64) {
+	if j < i || (i == j && lessCell(n, neg3(n))) {
+		i, j, n = j, i, neg3(n)
+	}
+	r := sub3(add3(m.pos[j], m.latticeVec(n)), m.pos[i])
+	l := norm3(r)
+	e := [3]float64{r[0] / l, r[1] / l, r[2] / l}
+	var phi, self [9]float64
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			ee := e[a] * e[b]
+			id := 0.0
+			if a == b {
+				id = 1
+			}
+			phi[3*a+b] = -(kl*ee + kt*(id-ee))
+			self[3*a+b] = -phi[3*a+b]
+		}
+	}
+	f.addPair(fcKey{i, j, n}, phi)
+	f.add(fcKey{i: i, j: i}, self)
+	f.add(fcKey{i: j, j: j}, self)
+	m.springs = append(m.springs, springBond{i: i, j: j, bond: r, kLong: kl, kTrans: kt})
+}
+
+// addBlocks adds the explicit blocks (eV/Å² after toEV): off-site blocks
+// with their implied transposes, and per site the on-site block — the
+// caller's (symmetric part) or, when none is given or enforce is set, the
+// acoustic-sum-rule value from the off-site blocks. It records the largest
+// sum-rule violation of the given on-site blocks.
+func (m *Model) addBlocks(f fcParts, blocks []Block, toEV func(float64) float64, enforce bool) {
+	onSite := make([][][9]float64, m.nsites) // symmetric parts of given on-site blocks
+	off := make([][][9]float64, m.nsites)    // off-site blocks leaving each site
+	for _, b := range blocks {
+		var phi [9]float64
+		for a := range phi {
+			phi[a] = toEV(b.Phi[a])
+		}
+		n := cellOf(b.Cell)
+		if b.From == b.To && n == ([3]int{}) {
+			onSite[b.From] = append(onSite[b.From], symmetrize9(phi))
+			continue
+		}
+		f.addPair(fcKey{b.From, b.To, n}, phi)
+		off[b.From] = append(off[b.From], phi)
+		off[b.To] = append(off[b.To], transpose9(phi))
+	}
+	for i := 0; i < m.nsites; i++ {
+		if len(off[i]) == 0 && len(onSite[i]) == 0 {
+			continue
+		}
+		offSum := sumParts(off[i])
+		asr := symmetrize9(offSum)
+		for a := range asr {
+			asr[a] = -asr[a]
+		}
+		if len(onSite[i]) > 0 {
+			given := sumParts(onSite[i])
+			// Violation: the largest |Σ_{j,n} Φ_αβ(0i; nj)| over the
+			// p×p components the model uses, i.e. the force along α on
+			// site i when the whole crystal moves rigidly by a unit step
+			// along β (zero under the acoustic sum rule).
+			for a := 0; a < m.p; a++ {
+				for b := 0; b < m.p; b++ {
+					row := given[3*a+b] + offSum[3*a+b]
+					m.sumRuleViolation = math.Max(m.sumRuleViolation, math.Abs(row))
+				}
+			}
+			if !enforce {
+				asr = given
+			}
+		}
+		f.add(fcKey{i: i, j: i}, asr)
+	}
+}
+
+// rawTerms sums the contributions of every block (sumParts) and returns the
+// blocks that are not zero, sorted by (i, j, n), in eV/Å², with only the
+// p×p components the model uses (the others 0).
+func (m *Model) rawTerms(f fcParts) []term {
+	keys := make([]fcKey, 0, len(f))
+	for k := range f {
+		keys = append(keys, k)
+	}
+	sort.Slice(keys, func(a, b int) bool {
+		ka, kb := keys[a], keys[b]
+		if ka.i != kb.i {
+			return ka.i < kb.i
+		}
+		if ka.j != kb.j {
+			return ka.j < kb.j
+		}
+		return lessCell(ka.n, kb.n)
+	})
+	raw := make([]term, 0, len(keys))
+	for _, k := range keys {
+		sum := sumParts(f[k])
+		t := term{i: k.i, j: k.j, n: k.n}
+		nonzero := false
+		for a := 0; a < m.p; a++ {
+			for b := 0; b < m.p; b++ {
+				t.phi[3*a+b] = sum[3*a+b]
+				nonzero = nonzero || sum[3*a+b] != 0
+			}
+		}
+		if nonzero {
+			raw = append(raw, t)
+		}
+	}
+	return raw
 }
 
 // shellBond is a bond found by the neighbour search: site i in cell 0 to

@@ -167,9 +167,25 @@
 // built from springs, and for blocks when the sum rule holds or is
 // enforced (to rounding in D, set to 0 by the rule above). The spectrum is invariant under a rigid rotation of lattice and
 // positions, a renumbering of sites, the order of springs, shells and
-// blocks, and the force unit; Model.Hash is invariant under the same
-// description changes except rotation and renumbering, which move
-// eigenvectors, velocities and per-site results (see Hash).
+// blocks, and the force unit.
+//
+// # Model hash
+//
+// Model.Hash identifies exactly the numbers the engine computes with: the
+// exact float64 bits (−0 as +0) of the lattice, the masses and fractional
+// positions as given, the labels, the sum-rule violation and the non-zero
+// compiled force-constant blocks in eV/Å². Two models whose results could
+// differ in any digit never share a hash, however small the difference
+// (results are cached by hash). Compile makes the compiled numbers
+// independent of the spelling — each block is summed from its
+// contributions in a canonical order, a spring is built in one orientation
+// of its bond, the reverse of a block is its exact transpose — so the JSON
+// spelling, the name, the order of springs, shells and blocks, a bond given
+// as its reverse, a shell versus its explicit springs, a zero spring,
+// enforcing a sum rule that already holds, and N/m versus eV/Å² where the
+// conversion gives the same float64 all share one hash. Rotation and
+// renumbering change it: they move eigenvectors, velocities and per-site
+// results (see Hash).
 //
 // # Density of states and thermal properties
 //

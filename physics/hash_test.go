@@ -4,6 +4,8 @@ package physics
 
 import (
 	"encoding/json"
+	"fmt"
+	"math"
 	"math/rand/v2"
 	"regexp"
 	"testing"
@@ -33,6 +35,8 @@ func TestHashInvariances(t *testing.T) {
 		a, b *Crystal
 	}{
 		{"name", fcc, func() *Crystal { c := cloneCrystal(fcc); c.Name = "other"; return c }()},
+		// The example constants convert from N/m back to the same
+		// float64 (TestHashUnitConversion covers ones that do not).
 		{"N/m vs eV/Å² (fcc)", fcc, inNPerM(fcc)},
 		{"N/m vs eV/Å² (blocks and springs)", chain, inNPerM(chain)},
 		{"spring order", chain, func() *Crystal {
@@ -85,15 +89,60 @@ func TestHashInvariances(t *testing.T) {
 			}
 		})
 	}
-	t.Run("enforcing a sum rule with nothing to enforce", func(t *testing.T) {
-		m, err := Compile(fcc, Options{EnforceSumRule: true})
-		if err != nil {
-			t.Fatal(err)
+	// On-site blocks that satisfy the sum rule exactly: Σ of the
+	// off-site blocks of each site is −1 − 1 = −2 (exact in binary).
+	atRule := &Crystal{
+		Lattice:       [][3]float64{{4, 0, 0}},
+		Polarizations: 1,
+		Sites:         []Site{{Label: "A", MassAmu: 10, Frac: []float64{0}}, {Label: "B", MassAmu: 20, Frac: []float64{0.5}}},
+		Blocks: []Block{
+			{From: 0, To: 1, Cell: []int{0}, Phi: []float64{-1, 0, 0, 0, 0, 0, 0, 0, 0}},
+			{From: 1, To: 0, Cell: []int{1}, Phi: []float64{-1, 0, 0, 0, 0, 0, 0, 0, 0}},
+			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{2, 0, 0, 0, 0, 0, 0, 0, 0}},
+			{From: 1, To: 1, Cell: []int{0}, Phi: []float64{2, 0, 0, 0, 0, 0, 0, 0, 0}},
+		},
+	}
+	for name, c := range map[string]*Crystal{"fcc (no on-site block)": fcc, "on-site blocks at the sum rule": atRule} {
+		t.Run("enforcing a sum rule with nothing to enforce: "+name, func(t *testing.T) {
+			m, err := Compile(c, Options{EnforceSumRule: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if m.Hash() != mustCompile(t, c).Hash() {
+				t.Error("hash changed")
+			}
+		})
+	}
+}
+
+// TestHashUnitConversion: a constant given in N/m hashes with its eV/Å²
+// twin exactly when the conversion k/16.02176634 (CODATA 2018: 1 eV/Å² =
+// 16.02176634 N/m) yields the same float64; when it does not, the engine
+// computes with a different number, and the hashes differ.
+func TestHashUnitConversion(t *testing.T) {
+	var exact, inexact float64
+	for k := 1.0; exact == 0 || inexact == 0; k += 0.001 {
+		if (k*EVPerA2InNPerM)/EVPerA2InNPerM == k {
+			exact = k
+		} else {
+			inexact = k
 		}
-		if m.Hash() != mustCompile(t, fcc).Hash() {
-			t.Error("hash changed")
+	}
+	for _, tc := range []struct {
+		k    float64
+		same bool
+	}{{exact, true}, {inexact, false}} {
+		ev := twoChain(10, 20)
+		ev.Springs[0].KLong = tc.k
+		nm := cloneCrystal(ev)
+		nm.ForceUnit = NPerM
+		nm.Springs[0].KLong = tc.k * EVPerA2InNPerM
+		nm.Springs[1].KLong = EVPerA2InNPerM // converts back to exactly 1
+		a, b := mustCompile(t, ev), mustCompile(t, nm)
+		if same := a.Hash() == b.Hash(); same != tc.same || sameBits(a, b) != tc.same {
+			t.Errorf("k = %v eV/Å² vs %v N/m: same hash %v, same compiled terms %v; want %v", tc.k, nm.Springs[0].KLong, same, sameBits(a, b), tc.same)
 		}
-	})
+	}
 }
 
 // TestHashJSONSpelling: key order, spacing and number spelling of the
@@ -161,5 +210,144 @@ func TestHashChanges(t *testing.T) {
 				t.Error("hash unchanged")
 			}
 		})
+	}
+}
+
+// numberRef names one number of a crystal description and points at it.
+type numberRef struct {
+	name string
+	p    *float64
+}
+
+// numbersOf lists every real number of c: lattice components, masses,
+// fractional positions, spring and shell constants and block elements.
+func numbersOf(c *Crystal) []numberRef {
+	var out []numberRef
+	add := func(p *float64, format string, args ...any) {
+		out = append(out, numberRef{fmt.Sprintf(format, args...), p})
+	}
+	for k := range c.Lattice {
+		for a := range c.Lattice[k] {
+			add(&c.Lattice[k][a], "lattice[%d][%d]", k, a)
+		}
+	}
+	for i := range c.Sites {
+		add(&c.Sites[i].MassAmu, "sites[%d].mass_amu", i)
+		for k := range c.Sites[i].Frac {
+			add(&c.Sites[i].Frac[k], "sites[%d].frac[%d]", i, k)
+		}
+	}
+	for i := range c.Springs {
+		add(&c.Springs[i].KLong, "springs[%d].k_long", i)
+		add(&c.Springs[i].KTrans, "springs[%d].k_trans", i)
+	}
+	for i := range c.Shells {
+		add(&c.Shells[i].KLong, "shells[%d].k_long", i)
+		add(&c.Shells[i].KTrans, "shells[%d].k_trans", i)
+	}
+	for i := range c.Blocks {
+		for a := range c.Blocks[i].Phi {
+			add(&c.Blocks[i].Phi[a], "blocks[%d].phi[%d]", i, a)
+		}
+	}
+	return out
+}
+
+// everyKind is a three-dimensional two-site crystal in which every number
+// is non-zero and enters the compiled model: a skewed cell, springs with
+// both constants, a shell, an off-site and an on-site block.
+func everyKind() *Crystal {
+	return &Crystal{
+		Lattice: [][3]float64{{3.1, 0.2, 0.15}, {0.25, 2.9, 0.1}, {0.12, 0.3, 3.3}},
+		Sites: []Site{
+			{Label: "A", MassAmu: 12.5, Frac: []float64{0.05, 0.1, 0.15}},
+			{Label: "B", MassAmu: 31.25, Frac: []float64{0.55, 0.45, 0.6}},
+		},
+		Springs: []Spring{
+			{From: 0, To: 1, Cell: []int{0, 0, 0}, KLong: 2.5, KTrans: 0.75},
+			{From: 1, To: 0, Cell: []int{1, 0, 0}, KLong: 1.5, KTrans: 0.25},
+		},
+		Shells: []Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 0.8, KTrans: 0.3}},
+		Blocks: []Block{
+			{From: 0, To: 1, Cell: []int{0, 1, 0}, Phi: []float64{-0.11, 0.012, 0.013, 0.021, -0.12, 0.023, 0.031, 0.032, -0.13}},
+			{From: 1, To: 1, Cell: []int{0, 0, 0}, Phi: []float64{0.41, 0.042, 0.043, 0.051, 0.42, 0.053, 0.061, 0.062, 0.43}},
+		},
+	}
+}
+
+// TestHashSeesEveryNumber: changing any single number of a model by one
+// part in 1e12 changes the hash — every field kind, and a number beside
+// values 1e12 times larger of its kind (a hash that kept a fixed number of
+// bits relative to the largest value would miss these; the engine does
+// not: the force constant or mass enters its own terms unscaled).
+func TestHashSeesEveryNumber(t *testing.T) {
+	wide := func() []*Crystal {
+		masses := twoSiteChain()
+		masses.Sites[0].MassAmu, masses.Sites[1].MassAmu = 1e-3, 1e9 // MinMassAmu < 1e-3, 1e9 = MaxMassAmu
+		springs := twoSiteChain()
+		springs.Springs[0].KLong, springs.Springs[1].KLong = 1e-6, 1e6 // 1e6 = MaxForceEVPerA2
+		blocks := twoSiteChain()
+		blocks.Blocks = append(blocks.Blocks, Block{From: 0, To: 1, Cell: []int{2}, Phi: []float64{1e6, 0, 0, 0, 0, 0, 0, 0, 0}})
+		blocks.Blocks[0].Phi[0] = -1e-6
+		lattice := twoSiteChain()
+		lattice.Lattice[0] = [3]float64{4, 4e-12, 0}
+		return []*Crystal{masses, springs, blocks, lattice}
+	}
+	models := []struct {
+		name string
+		c    *Crystal
+	}{{"every kind", everyKind()}}
+	for i, c := range wide() {
+		models = append(models, struct {
+			name string
+			c    *Crystal
+		}{fmt.Sprintf("ratio 1e12 #%d", i), c})
+	}
+	for _, tc := range models {
+		name, c := tc.name, tc.c
+		base := mustCompile(t, c).Hash()
+		for x := range numbersOf(c) {
+			pc := cloneCrystal(c)
+			ref := numbersOf(pc)[x]
+			if *ref.p == 0 {
+				continue // zero spring constants of the chains: no relative change
+			}
+			*ref.p *= 1 - 1e-12 // down: 1e9 amu and 1e6 eV/Å² are the largest accepted
+			if h := mustCompile(t, pc).Hash(); h == base {
+				t.Errorf("%s: %s × (1 − 1e-12): hash unchanged", name, ref.name)
+			}
+		}
+	}
+}
+
+// twoChain is a diatomic chain (a = 4 Å, p = 1) of masses m1, m2 amu with
+// nearest-neighbour springs of 1 eV/Å².
+func twoChain(m1, m2 float64) *Crystal {
+	return &Crystal{
+		Lattice:       [][3]float64{{4, 0, 0}},
+		Polarizations: 1,
+		Sites:         []Site{{Label: "A", MassAmu: m1, Frac: []float64{0}}, {Label: "B", MassAmu: m2, Frac: []float64{0.5}}},
+		Springs:       []Spring{{From: 0, To: 1, Cell: []int{0}, KLong: 1}, {From: 1, To: 0, Cell: []int{1}, KLong: 1}},
+	}
+}
+
+// TestHashNearbyMasses: chains of masses (1, 1e6) and (1.00005, 1e6) amu
+// are different models with different answers — at the zone boundary the
+// optical branch of a diatomic chain is ω² = 2K/m₁ (m₁ < m₂; Ashcroft &
+// Mermin, Solid State Physics, ch. 22) — so they hash apart, and each
+// gives its own frequency.
+func TestHashNearbyMasses(t *testing.T) {
+	a, b := mustCompile(t, twoChain(1, 1e6)), mustCompile(t, twoChain(1.00005, 1e6))
+	if a.Hash() == b.Hash() {
+		t.Fatalf("both chains hash to %s", a.Hash())
+	}
+	for _, tc := range []struct {
+		m  *Model
+		m1 float64
+	}{{a, 1}, {b, 1.00005}} {
+		got := tc.m.FrequenciesTHz([3]float64{0.5, 0, 0})[1]
+		if want := math.Sqrt(2*1/tc.m1) * NuUnitTHz; !relClose(got, want, 1e-12) {
+			t.Errorf("m₁ = %v: optical branch at X %.12g THz; want %.12g", tc.m1, got, want)
+		}
 	}
 }

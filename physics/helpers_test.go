@@ -278,6 +278,22 @@ func inNPerM(c *Crystal) *Crystal {
 	return out
 }
 
+// closeSpectra reports that two spectra (THz, imaginary modes negative)
+// agree as eigenvalues λ = ν|ν|: |λa − λb| ≤ tol·max|λb|. Zero modes at Γ
+// are square roots of rounding noise (|λ| ≈ 1e-16 of the largest gives
+// ν ≈ 1e-8 of the largest, of either sign), which a comparison of
+// frequencies at 1e-12 would take for a difference.
+func closeSpectra(a, b []float64, tol float64) bool {
+	sq := func(v []float64) []float64 {
+		out := make([]float64, len(v))
+		for k, x := range v {
+			out[k] = x * math.Abs(x)
+		}
+		return out
+	}
+	return closeSlices(sq(a), sq(b), tol)
+}
+
 // closeSlices reports |a_k − b_k| ≤ tol·max(|b|) for all k.
 func closeSlices(a, b []float64, tol float64) bool {
 	if len(a) != len(b) {

@@ -312,7 +312,8 @@ func TestSitePermutation(t *testing.T) {
 
 // TestSpringPermutationAndUnits: shuffling springs, shells and blocks and
 // switching eV/Å² to N/m (1 eV/Å² = 16.02176634 N/m, CODATA 2018) change
-// nothing: spectrum to 1e-12 and hash.
+// nothing: spectrum to 1e-12 and hash (these constants convert back to the
+// same float64; see TestHashUnitConversion).
 func TestSpringPermutationAndUnits(t *testing.T) {
 	rng := rand.New(rand.NewPCG(14, 2))
 	for _, c := range []*Crystal{twoSiteChain(), loadExample(t, "rocksalt-like"), supercell(t, twoSiteChain(), [3][3]int{{3}})} {
@@ -339,6 +340,156 @@ func TestSpringPermutationAndUnits(t *testing.T) {
 				if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSlices(got, want, 1e-12) {
 					t.Errorf("%s q=%v: %v; want %v", name, q, got, want)
 				}
+			}
+		}
+	}
+}
+
+// respell returns another description of the same model as c: springs,
+// shells and blocks shuffled, each bond or off-site block given as its own
+// reverse at random (Φ(0j; −n i) = Φ(0i; nj)ᵀ), on-site blocks transposed
+// (only their symmetric part enters), a zero spring added, zero lattice
+// components and positions spelled −0, and one shell replaced by its
+// explicit springs.
+func respell(t *testing.T, rng *rand.Rand, c *Crystal) *Crystal {
+	t.Helper()
+	out := cloneCrystal(c)
+	if len(out.Shells) > 0 {
+		k := rng.IntN(len(out.Shells))
+		sh := out.Shells[k]
+		bonds, _, err := mustCompile(t, c).findShell(sh, Limits{}.withDefaults())
+		if err != nil {
+			t.Fatal(err)
+		}
+		out.Shells = append(out.Shells[:k:k], out.Shells[k+1:]...)
+		for _, b := range bonds {
+			out.Springs = append(out.Springs, Spring{From: b.i, To: b.j, Cell: append([]int(nil), b.n[:len(c.Lattice)]...), KLong: sh.KLong, KTrans: sh.KTrans})
+		}
+	}
+	zero := Spring{From: 0, To: 0, Cell: make([]int, len(c.Lattice))}
+	zero.Cell[0] = 2
+	out.Springs = append(out.Springs, zero)
+	for k := range out.Springs {
+		if s := &out.Springs[k]; rng.IntN(2) == 0 {
+			s.From, s.To = s.To, s.From
+			for x := range s.Cell {
+				s.Cell[x] = -s.Cell[x]
+			}
+		}
+	}
+	for k := range out.Blocks {
+		if b := &out.Blocks[k]; rng.IntN(2) == 0 {
+			b.From, b.To = b.To, b.From
+			for x := range b.Cell {
+				b.Cell[x] = -b.Cell[x] // −0 is 0 for ints: on-site blocks stay on-site
+			}
+			tr := transpose9([9]float64(b.Phi))
+			b.Phi = tr[:]
+		}
+	}
+	rng.Shuffle(len(out.Springs), func(i, j int) { out.Springs[i], out.Springs[j] = out.Springs[j], out.Springs[i] })
+	rng.Shuffle(len(out.Shells), func(i, j int) { out.Shells[i], out.Shells[j] = out.Shells[j], out.Shells[i] })
+	rng.Shuffle(len(out.Blocks), func(i, j int) { out.Blocks[i], out.Blocks[j] = out.Blocks[j], out.Blocks[i] })
+	negZero := math.Copysign(0, -1)
+	for k := range out.Lattice {
+		for a := range out.Lattice[k] {
+			if out.Lattice[k][a] == 0 {
+				out.Lattice[k][a] = negZero
+			}
+		}
+	}
+	for i := range out.Sites {
+		for k := range out.Sites[i].Frac {
+			if out.Sites[i].Frac[k] == 0 {
+				out.Sites[i].Frac[k] = negZero
+			}
+		}
+	}
+	return out
+}
+
+// sameBits reports whether two compiled models hold bit-identical
+// force-constant terms (same blocks, same float64 bits).
+func sameBits(a, b *Model) bool {
+	if len(a.terms) != len(b.terms) {
+		return false
+	}
+	for k, ta := range a.terms {
+		tb := b.terms[k]
+		if ta.i != tb.i || ta.j != tb.j || ta.n != tb.n {
+			return false
+		}
+		for x := range ta.phi {
+			if math.Float64bits(ta.phi[x]) != math.Float64bits(tb.phi[x]) {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// TestRespelledModelsBitIdentical: descriptions of one model in any order
+// and orientation compile to bit-identical force constants, the same hash
+// and bit-identical frequencies (the hash can be exact only because the
+// compiled numbers are).
+func TestRespelledModelsBitIdentical(t *testing.T) {
+	rng := rand.New(rand.NewPCG(31, 7))
+	names := []string{"every kind", "two-site chain ×3"}
+	models := map[string]*Crystal{"every kind": everyKind(), "two-site chain ×3": supercell(t, twoSiteChain(), [3][3]int{{3}})}
+	for _, name := range exampleNames(t) {
+		names = append(names, name)
+		models[name] = loadExample(t, name)
+	}
+	for _, name := range names {
+		c := models[name]
+		t.Run(name, func(t *testing.T) {
+			ref := mustCompile(t, c)
+			for trial := 0; trial < 4; trial++ {
+				m := mustCompile(t, respell(t, rng, c))
+				if !sameBits(m, ref) {
+					t.Fatalf("trial %d: compiled terms differ", trial)
+				}
+				if m.Hash() != ref.Hash() {
+					t.Fatalf("trial %d: hash %s; want %s", trial, m.Hash(), ref.Hash())
+				}
+				for _, q := range randomQs(rng, 2) {
+					for k := m.Dim(); k < 3; k++ {
+						q[k] = 0
+					}
+					got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q)
+					for x := range want {
+						if math.Float64bits(got[x]) != math.Float64bits(want[x]) {
+							t.Fatalf("trial %d q=%v: %v; want %v bit for bit", trial, q, got, want)
+						}
+					}
+				}
+			}
+		})
+	}
+}
+
+// TestReverseBlocksExact: every compiled block Φ(0i; nj) has its reverse
+// Φ(0j; −n i) equal to its transpose bit for bit, and every on-site block
+// is symmetric bit for bit, so D(q) is exactly Hermitian.
+func TestReverseBlocksExact(t *testing.T) {
+	models := map[string]*Crystal{"every kind": everyKind()}
+	for _, name := range exampleNames(t) {
+		models[name] = loadExample(t, name)
+	}
+	for name, c := range models {
+		m := mustCompile(t, c)
+		index := map[fcKey]term{}
+		for _, tm := range m.terms {
+			index[fcKey{tm.i, tm.j, tm.n}] = tm
+		}
+		for _, tm := range m.terms {
+			rev, ok := index[fcKey{tm.j, tm.i, neg3(tm.n)}]
+			if !ok {
+				t.Errorf("%s: block (%d, %d, %v) has no reverse", name, tm.i, tm.j, tm.n)
+				continue
+			}
+			if transpose9(rev.phi) != tm.phi {
+				t.Errorf("%s: block (%d, %d, %v) is not the transpose of its reverse: %v vs %v", name, tm.i, tm.j, tm.n, tm.phi, transpose9(rev.phi))
 			}
 		}
 	}

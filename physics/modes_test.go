@@ -218,7 +218,7 @@ func TestBlocksEqualSprings(t *testing.T) {
 		t.Errorf("no on-site block given: violation %v; want 0", m.SumRuleViolation())
 	}
 	for _, q := range [][3]float64{{0, 0, 0}, {0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0.5, 0, 0.5}} {
-		if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSlices(got, want, 1e-12) {
+		if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSpectra(got, want, 1e-12) {
 			t.Errorf("q=%v: blocks %v; springs %v", q, got, want)
 		}
 	}

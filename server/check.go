@@ -6,6 +6,8 @@ import (
 	"sort"
 	"strings"
 
+	"google.golang.org/protobuf/proto"
+
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -45,7 +47,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		}
 		return out, nil
 	}
-	return cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {
+	resp, err := cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {
 		m := e.m
 		out := &modegridv1.CheckModelResponse{
 			Valid:                   true,
@@ -55,12 +57,8 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 			Sites:                   uint32(m.Sites()),
 			Polarizations:           uint32(m.P()),
 			ModesPerCell:            uint32(m.Modes()),
-			Interactions:            uint32(m.Interactions()),
 			SumRuleViolationEvPerA2: m.SumRuleViolation(),
 			LatticeType:             m.LatticeType(),
-		}
-		for i, sh := range m.Shells() {
-			out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})
 		}
 		std := m.StandardPoints()
 		labels := make([]string, 0, len(std))
@@ -97,6 +95,26 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		}
 		return out, nil
 	})
+	if err != nil {
+		return nil, err
+	}
+	return withDescription(resp, e), nil
+}
+
+// withDescription adds to a cached summary what belongs to the
+// description rather than to the compiled model — the interactions counted
+// and the shells found — which the hash deliberately ignores (a shell and
+// its explicit springs, or an added zero spring, share a hash). They come
+// from the model as this request gave it (for a request by hash, as it
+// was first sent). The cached message is shared, so this is a copy.
+func withDescription(resp *modegridv1.CheckModelResponse, e *modelEntry) *modegridv1.CheckModelResponse {
+	out := proto.Clone(resp).(*modegridv1.CheckModelResponse)
+	out.Interactions = uint32(e.m.Interactions())
+	out.Shells = nil
+	for i, sh := range e.m.Shells() {
+		out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})
+	}
+	return out
 }
 
 // stabilityPoints is the number of points of the coarse stability grid.

@@ -17,27 +17,21 @@ import (
 // parameters), so two requests equal in meaning share one entry however
 // they are spelled: defaults are resolved (an unspecified unit is "thz"),
 // options that do not apply are dropped (a width without Gaussian
-// smearing), mesh components past the dimensionality are 1, temperature
-// lists and ranges expand to the same list, and real numbers are rounded to
-// 12 significant digits — the values then used for the computation — and
-// printed in their shortest form.
+// smearing), mesh components past the dimensionality are 1, and
+// temperature lists and ranges expand to the same list. Real numbers are
+// never rounded: the computation uses the exact float64 given (−0 as 0),
+// and the key prints it in its shortest form that parses back to the same
+// float64, so two requests share a key only when the computation sees the
+// same numbers (a fitting client's 1e-12 change is a new computation).
 //
 // The form is "key=value" pairs joined by ";", in a fixed order per call.
 
-// canonSigDigits is the number of significant digits real-valued
-// parameters are rounded to.
-const canonSigDigits = 12
+// canonFloat is the value a real-valued parameter is computed with: x
+// itself, with −0 made 0.
+func canonFloat(x float64) float64 { return x + 0 } // −0 + 0 = +0
 
-// canonFloat rounds x to canonSigDigits significant digits; −0 becomes 0.
-func canonFloat(x float64) float64 {
-	if x == 0 || math.IsNaN(x) || math.IsInf(x, 0) {
-		return x + 0 // −0 + 0 = +0
-	}
-	v, _ := strconv.ParseFloat(strconv.FormatFloat(x, 'g', canonSigDigits, 64), 64)
-	return v
-}
-
-// fmtFloat prints a canonical number in its shortest round-trip form.
+// fmtFloat prints a canonical number in its shortest round-trip form: the
+// text parses back to exactly canonFloat(x), so the text identifies it.
 func fmtFloat(x float64) string { return strconv.FormatFloat(canonFloat(x), 'g', -1, 64) }
 
 // params builds a canonical parameter string.
@@ -118,15 +112,17 @@ func gridParam(g physics.GridSpec) string {
 }
 
 // tempsParam prints a temperature list compactly: runs of three or more
-// values t0 + i·step (as a range expands) as "t0:step:tn", others one by
-// one, joined by ",".
+// strictly increasing values t0 + i·step (as a range expands, rangeValue)
+// as "t0:step:tn", others one by one, joined by ",". The text determines
+// the list exactly: every number round-trips, and a run is the values
+// rangeValue(t0, step, i) up to tn.
 func tempsParam(ts []float64) string {
 	var parts []string
 	for i := 0; i < len(ts); {
 		if i+2 < len(ts) {
 			step := canonFloat(ts[i+1] - ts[i])
 			j := i + 1
-			for step > 0 && j < len(ts) && ts[j] == rangeValue(ts[i], step, j-i) {
+			for step > 0 && j < len(ts) && ts[j] > ts[j-1] && ts[j] == rangeValue(ts[i], step, j-i) {
 				j++
 			}
 			if j-i >= 3 {
@@ -141,8 +137,12 @@ func tempsParam(ts []float64) string {
 	return strings.Join(parts, ",")
 }
 
-// rangeValue is the i-th temperature of a range: start + i·step, canonical.
-func rangeValue(start, step float64, i int) float64 { return canonFloat(start + float64(i)*step) }
+// rangeValue is the i-th temperature of a range, start + i·step rounded
+// once (a fused multiply-add): the float64 nearest the exact value, with
+// no error growing along the range and no rounding to decimal digits.
+func rangeValue(start, step float64, i int) float64 {
+	return canonFloat(math.FMA(float64(i), step, start))
+}
 
 // labelList is the sorted labels of a set of standard points, for
 // messages.

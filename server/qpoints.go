@@ -17,7 +17,9 @@ type qset struct {
 	count int
 }
 
-// param is the canonical description of the set.
+// param is the canonical description of the set. A list is named by its
+// length and the full SHA-256 of its exact coordinates (a shorter digest
+// would let two different lists share a cache key).
 func (q *qset) param() string {
 	if q.list == nil {
 		return gridParam(q.grid)
@@ -26,11 +28,11 @@ func (q *qset) param() string {
 	var b [8]byte
 	for _, p := range q.list {
 		for _, v := range p.Q {
-			binary.LittleEndian.PutUint64(b[:], math.Float64bits(v+0)) // −0 → 0
+			binary.LittleEndian.PutUint64(b[:], math.Float64bits(v)) // exact bits (−0 made 0 on parsing)
 			h.Write(b[:])
 		}
 	}
-	return fmt.Sprintf("list:%d:sha256-%x", len(q.list), h.Sum(nil)[:8])
+	return fmt.Sprintf("list:%d:sha256-%x", len(q.list), h.Sum(nil))
 }
 
 // points lists the set's points with their weights, in order; a grid's
@@ -71,7 +73,7 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 		out := &qset{list: make([]physics.QPoint, len(pts)), count: len(pts)}
 		bad := 0
 		for i, p := range pts {
-			q := [3]float64{p.GetQ1(), p.GetQ2(), p.GetQ3()}
+			q := [3]float64{canonFloat(p.GetQ1()), canonFloat(p.GetQ2()), canonFloat(p.GetQ3())} // as keyed: −0 is 0
 			for k, v := range q {
 				if bad >= 20 {
 					break // enough to see the pattern in a huge list

@@ -17,6 +17,9 @@ var environ = os.Environ
 // not modegridd's settings, and not refused.
 var otherPrograms = map[string]bool{"MODEGRID_TOKEN": true, "MODEGRID_BENCH_LARGE": true, "MODEGRID_TEST_PLOT_DIR": true}
 
+// envOnly are modegridd's settings read only from the environment.
+var envOnly = []string{redisPasswordEnv}
+
 // unknownEnv refuses MODEGRID_* variables that name no flag of fs: a
 // misspelt setting would otherwise be ignored without a word. The known
 // names are derived from the flags themselves, so a new flag is known at
@@ -31,6 +34,12 @@ func unknownEnv(fs *flag.FlagSet, env []string) error {
 			names = append(names, envName(f.Name))
 		}
 	})
+	// Settings read only from the environment (no flag: a secret must not
+	// show in the process list).
+	for _, k := range envOnly {
+		known[k] = true
+		names = append(names, k)
+	}
 	sort.Strings(names)
 	var bad []string
 	for _, kv := range env {
