@@ -249,8 +249,10 @@
 //	S = k Σ w [x n − ln(1 − e^(−x))],  Cv = k Σ w x² n (1 + n),
 //
 // with x = hν/kT, n = 1/(eˣ − 1) and w the weight of the mode's q-point
-// (1/N on a grid). T = 0 gives U = F = ZPE and S = Cv = 0. Zero modes — the
-// p acoustic modes at Γ — are left out, and so are imaginary modes when
+// (1/N on a grid). T = 0 gives U = F = ZPE and S = Cv = 0. Only the p
+// acoustic modes at Γ (translations, zero to rounding) and modes of zero or
+// negative frequency are left out — every positive mode is summed, however
+// far below the highest, as the DOS keeps it — and so are imaginary modes when
 // AllowUnstable (counted in ImaginaryExcluded); without it an unstable grid
 // is an error wrapping ErrUnstable. The default route is the exact sum over
 // the grid's modes (for a finite crystal, over its allowed modes, so small
@@ -263,7 +265,13 @@
 // θ_D(T) is the temperature θ for which the Debye model of the crystal's
 // dimensionality d, C/(k per mode) = (d+1)D_d(θ/T) − d(θ/T)/(e^(θ/T) − 1)
 // with the Debye function D_d of Abramowitz & Stegun §27.1, has the model's
-// heat capacity per mode at T (0 at T = 0). ThetaElasticK is θ_D of the
+// heat capacity per mode at T. It comes with a ThetaStatus: at T = 0 it is
+// the elastic θ_D, its limit; where the grid cannot determine it (lowest
+// grid mode above 4 k_BT/h, or the Γ modes left out shifting it by more
+// than 1 %, or Cv per mode too near 0 or 1 for the inversion) it is 0 with
+// the reason. The DOS route's tetrahedra touching Γ undercount the acoustic
+// states below the first grid shell (θ_D → 370 K instead of 314.6 K for the
+// fcc example), so it is trusted only for x₁ ≤ 1. ThetaElasticK is θ_D of the
 // elastic limit: the Debye model whose low-frequency DOS matches the
 // sound velocities of the acoustic branches (Model.SoundVelocities,
 // averaged over directions), ν_D^d = d·p·sites/(V S_d Σ_s ⟨v_s^(−d)⟩),
@@ -273,9 +281,11 @@
 // Re(e_s e_s†) over the grid's modes (GridOptions.Eigenvectors), and B =
 // 8π²⟨u²⟩/3 = 8π² trace/3 is the isotropic Debye–Waller factor (Willis &
 // Pryor, Thermal Vibrations in Crystallography, ch. 4). It is a mode sum on
-// both routes. In one and two dimensions the thermal ⟨u²⟩ of an infinite
-// crystal diverges (Peierls 1934; Mermin 1968), so there it grows with the
-// grid; in three it converges, slowly, because of the 1/ω² weight near Γ.
+// both routes. In one dimension ⟨u²⟩ of an infinite crystal diverges at
+// every T (zero-point ∝ ln N, thermal ∝ N on an N-point grid), in two at
+// T > 0 (∝ ln N) (Peierls 1934; Mermin & Wagner 1966): such sums are
+// flagged SiteMSD.Divergent with the reason. In three it converges,
+// slowly, because of the 1/ω² weight near Γ.
 //
 // # Symmetry and reduced grids
 //

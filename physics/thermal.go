@@ -47,6 +47,16 @@ type SiteMSD struct {
 	U    [9]float64 // ⟨u uᵀ⟩, Å², row-major; rows and columns past p are 0
 	UIso float64    // ⟨u²⟩/3 = trace(U)/3, Å²
 	B    float64    // Debye–Waller B = 8π²⟨u²⟩/3, Å²
+	// Divergent is set when ⟨u²⟩ of the infinite crystal is infinite (one
+	// dimension at any T, zero-point included; two dimensions at T > 0;
+	// only for models whose acoustic modes go to zero at Γ). U, UIso and B
+	// are then the sums on this grid only, growing without bound with it
+	// (like N in 1D at T > 0, like ln N in 1D at T = 0 and in 2D), not a
+	// property of the crystal; DivergentReason says so. A finite crystal
+	// (GridSpec.Finite) is never flagged: its sums are its own, finite
+	// ⟨u²⟩ (relative to its centre of mass), which grow with its size.
+	Divergent       bool
+	DivergentReason string
 }
 
 // ThermalPoint holds the harmonic thermodynamics of one cell at one
@@ -57,11 +67,16 @@ type ThermalPoint struct {
 	FeV      float64 // Helmholtz free energy, zero-point included
 	SeVPerK  float64 // entropy
 	CveVPerK float64 // heat capacity at constant volume
-	// ThetaDK is the Debye temperature equivalent θ_D(T): the θ for which
-	// the Debye model of the crystal's dimensionality has the model's heat
-	// capacity per mode at T; 0 where undefined (T = 0).
-	ThetaDK float64
-	MSD     []SiteMSD // per site (MSD only)
+	// ThetaDK is the Debye temperature equivalent θ_D(T), K: the θ for
+	// which the Debye model of the crystal's dimensionality has the model's
+	// heat capacity per mode at T. It is meaningful only as ThetaDStatus
+	// says: ThetaDetermined (θ_D(T)), ThetaElasticLimit (T = 0: the elastic
+	// θ_D, its T → 0 limit); otherwise it is 0 and ThetaDReason says why
+	// (see debyeThetaChecked for the criteria).
+	ThetaDK      float64
+	ThetaDStatus ThetaStatus
+	ThetaDReason string
+	MSD          []SiteMSD // per site (MSD only)
 }
 
 // ThermalResult is ComputeThermal's answer.
@@ -74,11 +89,12 @@ type ThermalResult struct {
 	// ImaginaryExcluded counts the imaginary modes (q-point × branch) left
 	// out when AllowUnstable.
 	ImaginaryExcluded int
-	// ZeroExcluded counts the other modes left out: zero modes (|ν| within
-	// ZeroModeTol of the highest), the p acoustic modes at Γ when the grid
-	// holds Γ (exactly 0, or not counted imaginary for a model breaking
-	// the sum rule) and any exactly flat zero branch. Rounding noise is
-	// already 0 (doc.go, Zero and imaginary modes).
+	// ZeroExcluded counts the other modes left out (q-point × branch): the
+	// p acoustic modes at Γ when the grid holds Γ (exactly 0 — rounding
+	// noise is already 0, doc.go, Zero and imaginary modes — or not
+	// counted imaginary for a model breaking the sum rule), and modes the
+	// solver returns as exactly zero (a flat zero branch). Every positive
+	// frequency is summed, however low: the DOS holds the same modes.
 	ZeroExcluded int
 	// ModesPerCell is the weight of the modes summed: p·sites less the
 	// excluded modes' weights (for DOSIntegral, the integral of the DOS).
@@ -107,8 +123,11 @@ const (
 //	⟨u uᵀ⟩_s = Σ w ħ/(2 m_s ω) (1 + 2n) Re(e_s e_s†),
 //
 // x = hν/kT, n = 1/(eˣ − 1), over every mode with weight w of its q-point.
-// Modes at or below zero (|ν| within ZeroModeTol of the highest) are left
-// out: they carry no energy and their entropy is not defined. Imaginary
+// The p acoustic modes at Γ (uniform translations, zero to rounding) and
+// modes of zero or negative frequency are left out: they carry no energy
+// and their entropy is not defined; every positive mode is summed (see
+// ThermalResult.ZeroExcluded). θ_D(T) comes with a status (ThetaStatus):
+// where the grid cannot determine it, it is 0 with the reason. Imaginary
 // modes (as counted by DOSResult.Imaginary) make it fail with an error
 // wrapping ErrUnstable unless opt.AllowUnstable, which leaves them out and
 // counts them. For a
@@ -144,26 +163,25 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 			ErrUnstable, st.imaginary, len(g.FreqTHz), st.minTHz)
 	}
 	res := &ThermalResult{ImaginaryExcluded: st.imaginary}
-	for _, f := range g.FreqTHz {
-		if f <= st.zeroTol {
-			res.ZeroExcluded++
-		}
-	}
-	res.ZeroExcluded -= st.imaginary
 
 	// The grid's modes: weights and, for MSD, the tensor channels.
-	grid := collectModes(m, g, st.zeroTol, opt.MSD)
+	grid, zeroWeight, zeros := collectModes(m, g, st, opt.MSD)
+	res.ZeroExcluded = zeros
 	thermo := grid
+	binTHz := 0.0
 	if opt.Route == DOSIntegral {
 		var err error
-		if thermo, err = dosModes(ctx, m, g, st); err != nil {
+		if thermo, binTHz, err = dosModes(ctx, m, g, st); err != nil {
 			return nil, err
 		}
+		zeroWeight = 0 // the DOS holds every state
 	}
 	for i, f := range thermo.nu {
 		res.ZPEeV += thermo.ch[i*thermo.nc] * f * THzToEV / 2
 		res.ModesPerCell += thermo.ch[i*thermo.nc]
 	}
+	theta := thetaInput{dim: m.Dim(), modesPerCell: res.ModesPerCell, zeroWeight: zeroWeight,
+		nuLowTHz: lowestMode(grid.nu), binTHz: binTHz, finite: g.Spec.Finite}
 
 	// Below MinTempK, k_B·T underflows against hν (x = hν/k_BT overflows):
 	// such temperatures are computed as their T → 0 limit.
@@ -185,6 +203,11 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		}
 	}
 
+	res.ThetaElasticK = elasticDebyeTemperature(m)
+	var msdNote msdDivergence
+	if opt.MSD {
+		msdNote = msdDivergenceOf(m, g, st)
+	}
 	kB := BoltzmannEVPerK
 	res.Points = make([]ThermalPoint, len(temps))
 	for i, tK := range temps {
@@ -196,17 +219,43 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 			p.FeV += kB * tK * s[1]
 			p.SeVPerK = kB * (kappa*s[0] - s[1])
 			p.CveVPerK = kB * s[2]
+			in := theta
+			in.tempK = tK
 			if res.ModesPerCell > 0 {
-				p.ThetaDK = debyeTheta(m.Dim(), tK, s[2]/res.ModesPerCell)
+				in.c = s[2] / res.ModesPerCell
 			}
+			p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = debyeThetaChecked(in)
+		} else {
+			p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = zeroTempTheta(res.ThetaElasticK)
 		}
 		if opt.MSD {
 			p.MSD = grid.assembleMSD(msdSums[i][3:])
+			msdNote.mark(p.MSD, tK)
 		}
 		res.Points[i] = p
 	}
-	res.ThetaElasticK = elasticDebyeTemperature(m)
 	return res, nil
+}
+
+// zeroTempTheta is θ_D at T = 0 (and below MinTempK): θ_D(T) is a ratio
+// of vanishing quantities there, defined only as its T → 0 limit, the
+// elastic θ_D of the bulk crystal (Kittel ch. 5).
+func zeroTempTheta(elasticK float64) (float64, ThetaStatus, string) {
+	if elasticK > 0 {
+		return elasticK, ThetaElasticLimit, "T = 0: the elastic Debye temperature, the T → 0 limit of θ_D(T)"
+	}
+	return 0, ThetaUndefined, "T = 0, where θ_D(T) is only a limit, and the elastic Debye temperature is not defined for this model"
+}
+
+// lowestMode returns the lowest of nu (THz, all > 0), +Inf when empty.
+func lowestMode(nu []float64) float64 {
+	low := math.Inf(1)
+	for _, f := range nu {
+		if f < low {
+			low = f
+		}
+	}
+	return low
 }
 
 // evalSums returns, for every temperature, the sums of directSums over the
@@ -285,17 +334,18 @@ func (s *modeSet) worthTree(ntemps int) bool {
 // dosModes turns the tetrahedron DOS of g into pseudo-modes for the
 // DOSIntegral route: dosRouteBins bins of width h from 0 to just above the
 // highest mode, each a mode at its centre (i + ½)h carrying the states of
-// the bin (midpoint rule). Imaginary states are cut off as in ComputeDOS.
-func dosModes(ctx context.Context, m *Model, g *GridModes, st spectrum) (*modeSet, error) {
+// the bin (midpoint rule); it also returns h. Imaginary states are cut off
+// as in ComputeDOS.
+func dosModes(ctx context.Context, m *Model, g *GridModes, st spectrum) (*modeSet, float64, error) {
 	top := st.maxTHz
 	set := &modeSet{nc: 1, p: g.P, nsites: g.NSites}
 	if !(top > 0) {
-		return set, nil
+		return set, 0, nil
 	}
 	h := top / dosRouteBins * (1 + 1e-9)
 	d, err := ComputeDOS(ctx, m, g, DOSOptions{Min: h / 2, Max: h / 2 * (2*dosRouteBins - 1), Step: h})
 	if err != nil {
-		return nil, err
+		return nil, 0, err
 	}
 	for i, f := range d.Freq {
 		if w := d.DOS[i] * h; w > 0 {
@@ -303,7 +353,7 @@ func dosModes(ctx context.Context, m *Model, g *GridModes, st spectrum) (*modeSe
 			set.ch = append(set.ch, w)
 		}
 	}
-	return set, nil
+	return set, h, nil
 }
 
 // directSums adds, for every mode, the temperature-dependent sums at κ =

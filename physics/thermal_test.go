@@ -271,14 +271,19 @@ func TestThermalWeights(t *testing.T) {
 }
 
 // TestZeroKelvin: at T = 0, U = F = the zero-point energy, S = Cv = 0 and
-// θ_D is undefined (0); just above, the values join continuously (common
-// practice: the limits of the Bose–Einstein sums).
+// θ_D is reported as its T → 0 limit, the elastic θ_D (Kittel ch. 5; it
+// used to be a bare 0, which read as a Debye temperature of 0 K); just
+// above, the values join continuously (common practice: the limits of the
+// Bose–Einstein sums).
 func TestZeroKelvin(t *testing.T) {
 	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 0.01}, MSD: true})
 	z, near := r.Points[0], r.Points[1]
-	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 || z.ThetaDK != 0 {
-		t.Errorf("T=0: %+v; want U = F = ZPE %g, S = Cv = θ = 0", z, r.ZPEeV)
+	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 {
+		t.Errorf("T=0: %+v; want U = F = ZPE %g, S = Cv = 0", z, r.ZPEeV)
+	}
+	if z.ThetaDStatus != ThetaElasticLimit || z.ThetaDK != r.ThetaElasticK || !(z.ThetaDK > 0) {
+		t.Errorf("T=0: θ_D %g K (%v); want the elastic limit %g K", z.ThetaDK, z.ThetaDStatus, r.ThetaElasticK)
 	}
 	if relDiff(near.UeV, z.UeV) > 1e-12 || relDiff(near.FeV, z.FeV) > 1e-12 || near.SeVPerK > 1e-20 {
 		t.Errorf("T=0.01 K: U %g, F %g, S %g; not at the T=0 limit", near.UeV, near.FeV, near.SeVPerK)

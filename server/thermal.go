@@ -164,13 +164,36 @@ func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *mode
 			EntropyJPerMolK:        physics.EVPerKToJPerMolK(tp.SeVPerK),
 			HeatCapacityJPerMolK:   physics.EVPerKToJPerMolK(tp.CveVPerK),
 			DebyeTemperatureK:      tp.ThetaDK,
+			DebyeTemperatureStatus: debyeStatusToProto(tp.ThetaDStatus),
+			DebyeTemperatureReason: tp.ThetaDReason,
 		}
 		for si, m := range tp.MSD {
-			pt.Displacements = append(pt.Displacements, &modegridv1.SiteDisplacement{
-				Site: uint32(si), Label: labels[si], UA2: append([]float64(nil), m.U[:]...), UIsoA2: m.UIso, BA2: m.B,
-			})
+			d := &modegridv1.SiteDisplacement{Site: uint32(si), Label: labels[si]}
+			if m.Divergent {
+				// The grid sum grows with the grid: no number is sent.
+				d.Divergent, d.DivergenceReason = true, m.DivergentReason
+			} else {
+				d.UA2, d.UIsoA2, d.BA2 = append([]float64(nil), m.U[:]...), m.UIso, m.B
+			}
+			pt.Displacements = append(pt.Displacements, d)
 		}
 		out.Points[i] = pt
 	}
 	return out
+}
+
+// debyeStatusToProto converts the physics θ_D status; the number beside it
+// is 0 unless the status is DETERMINED or ELASTIC_LIMIT.
+func debyeStatusToProto(s physics.ThetaStatus) modegridv1.DebyeTemperatureStatus {
+	switch s {
+	case physics.ThetaDetermined:
+		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_DETERMINED
+	case physics.ThetaElasticLimit:
+		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT
+	case physics.ThetaGridTooCoarse:
+		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE
+	case physics.ThetaIllConditioned:
+		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED
+	}
+	return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNDEFINED
 }

@@ -24,11 +24,12 @@ embedded server, as every command does.`
 
 // demoRow is one line of the summary.
 type demoRow struct {
-	name                 string
-	dim, sites, modes    int
-	stable               bool
-	maxTHz               float64
-	cv300, theta300, zpe float64
+	name              string
+	dim, sites, modes int
+	stable            bool
+	maxTHz            float64
+	cv300, zpe        float64
+	theta300          string // θ_D(300 K) as thermalTheta prints it
 }
 
 func cmdDemo(args []string, e *env) error {
@@ -88,7 +89,7 @@ func cmdDemo(args []string, e *env) error {
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/mol/K)\tθD(300 K) (K)\tzero-point (kJ/mol)\t\n", width, "crystal")
 	for _, r := range rows {
-		fmt.Fprintf(tw, "%-*s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%.1f\t%.4f\t\n", width, r.name, r.dim, r.sites, r.modes,
+		fmt.Fprintf(tw, "%-*s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%s\t%.4f\t\n", width, r.name, r.dim, r.sites, r.modes,
 			map[bool]string{true: "yes", false: "no"}[r.stable], r.maxTHz, r.cv300, r.theta300, r.zpe)
 	}
 	if err := tw.Flush(); err != nil {
@@ -182,7 +183,7 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	best := math.Inf(1)
 	for _, pt := range th.GetPoints() {
 		if dT := math.Abs(pt.GetTemperatureK() - 300); dT < best {
-			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolK(), pt.GetDebyeTemperatureK()
+			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolK(), thetaCell(pt, 1)
 		}
 	}
 	row.zpe = th.GetZeroPointEnergyKjPerMol()

@@ -54,6 +54,11 @@ var goldenCases = []struct {
 	{"thermal-chain-table", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0:300:100"}},
 	{"thermal-chain-csv", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0:300:100", "--format", "csv"}},
 	{"thermal-chain-json", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "300", "--format", "json"}},
+	// Undetermined θ_D (coarse grid at low T) and divergent 1D displacements are named, not printed as numbers.
+	{"thermal-fcc-low-t-table", []string{"thermal", "-m", example("fcc"), "--grid", "8", "--temps", "0,0.5,1,2,50"}},
+	{"thermal-chain-msd-table", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd"}},
+	{"thermal-chain-msd-csv", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd", "--format", "csv"}},
+	{"thermal-chain-msd-json", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "300", "--msd", "--format", "json"}},
 	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
 }
 
@@ -225,7 +230,8 @@ func TestCSVHeaders(t *testing.T) {
 		{"dos per site", []string{"dos", "-m", example("rocksalt-like"), "--grid", "4", "--per-site"}, "frequency_thz,dos,integrated,dos_P,dos_Q"},
 		{"dos shared label", []string{"dos", "-m", testdata("twin-chain.json"), "--grid", "16", "--per-site"}, "frequency_thz,dos,integrated,dos_A_0,dos_A_1"},
 		{"thermal", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300"},
-			"temperature_k,heat_capacity_j_per_mol_k,entropy_j_per_mol_k,free_energy_kj_per_mol,internal_energy_kj_per_mol,debye_temperature_k"},
+			// θ_D's status column: the number alone read as a Debye temperature where none is determined.
+			"temperature_k,heat_capacity_j_per_mol_k,entropy_j_per_mol_k,free_energy_kj_per_mol,internal_energy_kj_per_mol,debye_temperature_k,debye_temperature_status"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

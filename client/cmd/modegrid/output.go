@@ -358,7 +358,7 @@ func at(v []float64, i int) float64 {
 // thermalHeader is the CSV header of `thermal`, per mole of unit cells.
 var thermalHeader = []string{
 	"temperature_k", "heat_capacity_j_per_mol_k", "entropy_j_per_mol_k",
-	"free_energy_kj_per_mol", "internal_energy_kj_per_mol", "debye_temperature_k",
+	"free_energy_kj_per_mol", "internal_energy_kj_per_mol", "debye_temperature_k", "debye_temperature_status",
 }
 
 // msdColumns names the mean-square-displacement columns of --msd.
@@ -389,10 +389,13 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 		c.row(head...)
 		for _, p := range r.GetPoints() {
 			rec := []string{num(p.GetTemperatureK()), num(p.GetHeatCapacityJPerMolK()), num(p.GetEntropyJPerMolK()),
-				num(p.GetFreeEnergyKjPerMol()), num(p.GetInternalEnergyKjPerMol()), num(p.GetDebyeTemperatureK())}
+				num(p.GetFreeEnergyKjPerMol()), num(p.GetInternalEnergyKjPerMol()), thetaCSV(p), thetaStatusName(p.GetDebyeTemperatureStatus())}
 			for i := range uiso {
-				d := displacement(p, i)
-				rec = append(rec, num(d.GetUIsoA2()), num(d.GetBA2()))
+				if d := displacement(p, i); d.GetDivergent() {
+					rec = append(rec, "divergent", "divergent")
+				} else {
+					rec = append(rec, num(d.GetUIsoA2()), num(d.GetBA2()))
+				}
 			}
 			c.row(rec...)
 		}
@@ -404,22 +407,125 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 		head = append(head, "Uiso "+strings.TrimPrefix(uiso[i], "u_iso_a2_")+" (Å²)")
 	}
 	t.row(head...)
+	var notes thermalNotes
 	for _, p := range r.GetPoints() {
 		cells := []string{
 			strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(p.GetHeatCapacityJPerMolK()), f4(p.GetEntropyJPerMolK()),
-			f4(p.GetFreeEnergyKjPerMol()), f4(p.GetInternalEnergyKjPerMol()), strconv.FormatFloat(p.GetDebyeTemperatureK(), 'f', 2, 64),
+			f4(p.GetFreeEnergyKjPerMol()), f4(p.GetInternalEnergyKjPerMol()), thetaCell(p, 2),
 		}
+		notes.theta(p)
 		for i := range uiso {
-			cells = append(cells, strconv.FormatFloat(displacement(p, i).GetUIsoA2(), 'f', 6, 64))
+			d := displacement(p, i)
+			if d.GetDivergent() {
+				cells = append(cells, "divergent")
+				// One line per reason: zero-point and thermal divergences grow differently.
+				notes.add("Uiso divergent", p.GetTemperatureK(), d.GetDivergenceReason(), true)
+				continue
+			}
+			cells = append(cells, strconv.FormatFloat(d.GetUIsoA2(), 'f', 6, 64))
 		}
 		t.row(cells...)
 	}
 	if err := t.flush(); err != nil {
 		return err
 	}
-	_, err := fmt.Fprintf(w, "zero-point energy: %s kJ/mol of cells; elastic Debye temperature: %s K\n",
-		f4(r.GetZeroPointEnergyKjPerMol()), strconv.FormatFloat(r.GetDebyeTemperatureElasticK(), 'f', 2, 64))
-	return err
+	if _, err := fmt.Fprintf(w, "zero-point energy: %s kJ/mol of cells; elastic Debye temperature: %s\n",
+		f4(r.GetZeroPointEnergyKjPerMol()), elasticTheta(r.GetDebyeTemperatureElasticK())); err != nil {
+		return err
+	}
+	return notes.write(w)
+}
+
+// elasticTheta prints the elastic θ_D, "not defined" when the server sent 0.
+func elasticTheta(k float64) string {
+	if !(k > 0) {
+		return "not defined"
+	}
+	return strconv.FormatFloat(k, 'f', 2, 64) + " K"
+}
+
+// thetaCell is the table cell of θ_D(T): the number when determined, the
+// number marked as the T → 0 limit at T = 0, otherwise "n/d (why)".
+func thetaCell(p *modegridv1.ThermalPoint, prec int) string {
+	v := strconv.FormatFloat(p.GetDebyeTemperatureK(), 'f', prec, 64)
+	switch s := p.GetDebyeTemperatureStatus(); s {
+	case modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_DETERMINED:
+		return v
+	case modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT:
+		return v + " (T→0 limit)"
+	default:
+		return "n/d (" + strings.ReplaceAll(thetaStatusName(s), "-", " ") + ")"
+	}
+}
+
+// thetaCSV is the CSV value of θ_D(T): the number when the status gives
+// it one, "n/d" otherwise (the status column says why).
+func thetaCSV(p *modegridv1.ThermalPoint) string {
+	switch p.GetDebyeTemperatureStatus() {
+	case modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_DETERMINED,
+		modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT:
+		return num(p.GetDebyeTemperatureK())
+	}
+	return "n/d"
+}
+
+// thetaStatusName is the status in lower-case words joined by dashes
+// ("grid-too-coarse"); "unknown" for a response without one.
+func thetaStatusName(s modegridv1.DebyeTemperatureStatus) string {
+	if s == modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNSPECIFIED {
+		return "unknown"
+	}
+	name := strings.TrimPrefix(s.String(), "DEBYE_TEMPERATURE_STATUS_")
+	return strings.ToLower(strings.ReplaceAll(name, "_", "-"))
+}
+
+// thermalNotes gathers, under the table, why values are not given: one
+// line per kind with the temperatures and the first reason.
+type thermalNotes struct {
+	order []string
+	temps map[string][]string
+	why   map[string]string
+}
+
+func (n *thermalNotes) theta(p *modegridv1.ThermalPoint) {
+	if r := p.GetDebyeTemperatureReason(); r != "" && p.GetDebyeTemperatureStatus() !=
+		modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT {
+		n.add("θD n/d ("+strings.ReplaceAll(thetaStatusName(p.GetDebyeTemperatureStatus()), "-", " ")+")", p.GetTemperatureK(), r, false)
+	}
+}
+
+// add notes the reason at tempK; with byReason every distinct reason gets
+// its own line, otherwise the first reason of the kind stands for all.
+func (n *thermalNotes) add(kind string, tempK float64, reason string, byReason bool) {
+	if byReason {
+		kind += "\x00" + reason
+	}
+	if n.temps == nil {
+		n.temps, n.why = map[string][]string{}, map[string]string{}
+	}
+	if _, ok := n.temps[kind]; !ok {
+		n.order = append(n.order, kind)
+		n.why[kind] = reason
+	}
+	ts := n.temps[kind]
+	if s := strconv.FormatFloat(tempK, 'g', -1, 64); len(ts) == 0 || ts[len(ts)-1] != s {
+		n.temps[kind] = append(ts, s)
+	}
+}
+
+func (n *thermalNotes) write(w io.Writer) error {
+	for _, k := range n.order {
+		ts := n.temps[k]
+		list := strings.Join(ts, ", ")
+		if len(ts) > 6 {
+			list = fmt.Sprintf("%s … %s (%d temperatures)", ts[0], ts[len(ts)-1], len(ts))
+		}
+		label, _, _ := strings.Cut(k, "\x00")
+		if _, err := fmt.Fprintf(w, "%s at T = %s K: %s\n", label, list, n.why[k]); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 func displacement(p *modegridv1.ThermalPoint, i int) *modegridv1.SiteDisplacement {

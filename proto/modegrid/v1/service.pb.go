@@ -245,6 +245,76 @@ func (ThermalRoute) EnumDescriptor() ([]byte, []int) {
 	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{3}
 }
 
+// DebyeTemperatureStatus says whether ThermalPoint.debye_temperature_k
+// holds a Debye temperature.
+type DebyeTemperatureStatus int32
+
+const (
+	// Not set (a response from an older server).
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNSPECIFIED DebyeTemperatureStatus = 0
+	// debye_temperature_k is θ_D(T), estimated within 1 % of the infinite
+	// crystal's.
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_DETERMINED DebyeTemperatureStatus = 1
+	// T = 0: debye_temperature_k is the elastic θ_D, the T → 0 limit of
+	// θ_D(T).
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT DebyeTemperatureStatus = 2
+	// Not determined: the grid (or finite crystal) does not resolve the
+	// thermally populated modes at this temperature.
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE DebyeTemperatureStatus = 3
+	// Not determined: the heat capacity per mode is so close to 0 or to its
+	// classical value that the Debye inversion is ill-conditioned.
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED DebyeTemperatureStatus = 4
+	// Not defined: no modes, or T = 0 without an elastic θ_D.
+	DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNDEFINED DebyeTemperatureStatus = 5
+)
+
+// Enum value maps for DebyeTemperatureStatus.
+var (
+	DebyeTemperatureStatus_name = map[int32]string{
+		0: "DEBYE_TEMPERATURE_STATUS_UNSPECIFIED",
+		1: "DEBYE_TEMPERATURE_STATUS_DETERMINED",
+		2: "DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT",
+		3: "DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE",
+		4: "DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED",
+		5: "DEBYE_TEMPERATURE_STATUS_UNDEFINED",
+	}
+	DebyeTemperatureStatus_value = map[string]int32{
+		"DEBYE_TEMPERATURE_STATUS_UNSPECIFIED":     0,
+		"DEBYE_TEMPERATURE_STATUS_DETERMINED":      1,
+		"DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT":   2,
+		"DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE": 3,
+		"DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED": 4,
+		"DEBYE_TEMPERATURE_STATUS_UNDEFINED":       5,
+	}
+)
+
+func (x DebyeTemperatureStatus) Enum() *DebyeTemperatureStatus {
+	p := new(DebyeTemperatureStatus)
+	*p = x
+	return p
+}
+
+func (x DebyeTemperatureStatus) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (DebyeTemperatureStatus) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[4].Descriptor()
+}
+
+func (DebyeTemperatureStatus) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[4]
+}
+
+func (x DebyeTemperatureStatus) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use DebyeTemperatureStatus.Descriptor instead.
+func (DebyeTemperatureStatus) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{4}
+}
+
 // ModelSource is a model sent inline or a reference to a model the server has
 // already seen. An unknown reference gets NOT_FOUND: resend the model inline.
 type ModelSource struct {
@@ -1753,9 +1823,21 @@ type SiteDisplacement struct {
 	// Isotropic ⟨u²⟩/3, Å².
 	UIsoA2 float64 `protobuf:"fixed64,4,opt,name=u_iso_a2,json=uIsoA2,proto3" json:"u_iso_a2,omitempty"`
 	// Debye–Waller B = 8π²⟨u²⟩/3, Å².
-	BA2           float64 `protobuf:"fixed64,5,opt,name=b_a2,json=bA2,proto3" json:"b_a2,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	BA2 float64 `protobuf:"fixed64,5,opt,name=b_a2,json=bA2,proto3" json:"b_a2,omitempty"`
+	// True when ⟨u²⟩ of the infinite crystal is infinite: one-dimensional
+	// crystals at any temperature (zero-point included) and two-dimensional
+	// ones at T > 0, for models whose acoustic modes vanish at Γ. u_a2,
+	// u_iso_a2 and b_a2 are then left at 0: the grid sum is finite but grows
+	// without bound with the grid (like N in 1D at T > 0, like ln N in 1D at
+	// T = 0 and in 2D), so it is no property of the crystal. A reader must
+	// check this flag before using the numbers. Never set for a finite
+	// crystal, whose sums are its own ⟨u²⟩.
+	Divergent bool `protobuf:"varint,6,opt,name=divergent,proto3" json:"divergent,omitempty"`
+	// Why the displacement diverges and how the grid sum grows; empty when
+	// divergent is false.
+	DivergenceReason string `protobuf:"bytes,7,opt,name=divergence_reason,json=divergenceReason,proto3" json:"divergence_reason,omitempty"`
+	unknownFields    protoimpl.UnknownFields
+	sizeCache        protoimpl.SizeCache
 }
 
 func (x *SiteDisplacement) Reset() {
@@ -1823,6 +1905,20 @@ func (x *SiteDisplacement) GetBA2() float64 {
 	return 0
 }
 
+func (x *SiteDisplacement) GetDivergent() bool {
+	if x != nil {
+		return x.Divergent
+	}
+	return false
+}
+
+func (x *SiteDisplacement) GetDivergenceReason() string {
+	if x != nil {
+		return x.DivergenceReason
+	}
+	return ""
+}
+
 // ThermalPoint holds the thermal properties at one temperature.
 type ThermalPoint struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -1844,12 +1940,21 @@ type ThermalPoint struct {
 	EntropyJPerMolK float64 `protobuf:"fixed64,8,opt,name=entropy_j_per_mol_k,json=entropyJPerMolK,proto3" json:"entropy_j_per_mol_k,omitempty"`
 	// Cv per mole of cells, J/(mol·K).
 	HeatCapacityJPerMolK float64 `protobuf:"fixed64,9,opt,name=heat_capacity_j_per_mol_k,json=heatCapacityJPerMolK,proto3" json:"heat_capacity_j_per_mol_k,omitempty"`
-	// Debye temperature equivalent θ_D(T), K (0 where undefined, e.g. T = 0).
+	// Debye temperature equivalent θ_D(T), K: the θ of the Debye model with
+	// this heat capacity per mode. Meaningful only when
+	// debye_temperature_status is DETERMINED (θ_D(T)) or ELASTIC_LIMIT (T = 0:
+	// the elastic θ_D); otherwise 0 (absent in JSON). A reader must check the
+	// status before using it.
 	DebyeTemperatureK float64 `protobuf:"fixed64,10,opt,name=debye_temperature_k,json=debyeTemperatureK,proto3" json:"debye_temperature_k,omitempty"`
 	// Mean-square displacements per site (when asked).
 	Displacements []*SiteDisplacement `protobuf:"bytes,11,rep,name=displacements,proto3" json:"displacements,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	// Whether debye_temperature_k holds a Debye temperature.
+	DebyeTemperatureStatus DebyeTemperatureStatus `protobuf:"varint,12,opt,name=debye_temperature_status,json=debyeTemperatureStatus,proto3,enum=modegrid.v1.DebyeTemperatureStatus" json:"debye_temperature_status,omitempty"`
+	// Why θ_D(T) is not determined (empty when it is), e.g. the grid's lowest
+	// mode in units of k_BT/h.
+	DebyeTemperatureReason string `protobuf:"bytes,13,opt,name=debye_temperature_reason,json=debyeTemperatureReason,proto3" json:"debye_temperature_reason,omitempty"`
+	unknownFields          protoimpl.UnknownFields
+	sizeCache              protoimpl.SizeCache
 }
 
 func (x *ThermalPoint) Reset() {
@@ -1957,6 +2062,20 @@ func (x *ThermalPoint) GetDisplacements() []*SiteDisplacement {
 		return x.Displacements
 	}
 	return nil
+}
+
+func (x *ThermalPoint) GetDebyeTemperatureStatus() DebyeTemperatureStatus {
+	if x != nil {
+		return x.DebyeTemperatureStatus
+	}
+	return DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNSPECIFIED
+}
+
+func (x *ThermalPoint) GetDebyeTemperatureReason() string {
+	if x != nil {
+		return x.DebyeTemperatureReason
+	}
+	return ""
 }
 
 // ComputeThermalResponse holds thermal properties.
@@ -2597,13 +2716,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x05range\x18\x04 \x01(\v2\x1d.modegrid.v1.TemperatureRangeR\x05range\x12/\n" +
 	"\x05route\x18\x05 \x01(\x0e2\x19.modegrid.v1.ThermalRouteR\x05route\x12%\n" +
 	"\x0eallow_unstable\x18\x06 \x01(\bR\rallowUnstable\x12\x10\n" +
-	"\x03msd\x18\a \x01(\bR\x03msd\"|\n" +
+	"\x03msd\x18\a \x01(\bR\x03msd\"\xc7\x01\n" +
 	"\x10SiteDisplacement\x12\x12\n" +
 	"\x04site\x18\x01 \x01(\rR\x04site\x12\x14\n" +
 	"\x05label\x18\x02 \x01(\tR\x05label\x12\x11\n" +
 	"\x04u_a2\x18\x03 \x03(\x01R\x03uA2\x12\x18\n" +
 	"\bu_iso_a2\x18\x04 \x01(\x01R\x06uIsoA2\x12\x11\n" +
-	"\x04b_a2\x18\x05 \x01(\x01R\x03bA2\"\xb0\x04\n" +
+	"\x04b_a2\x18\x05 \x01(\x01R\x03bA2\x12\x1c\n" +
+	"\tdivergent\x18\x06 \x01(\bR\tdivergent\x12+\n" +
+	"\x11divergence_reason\x18\a \x01(\tR\x10divergenceReason\"\xc9\x05\n" +
 	"\fThermalPoint\x12#\n" +
 	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12,\n" +
 	"\x12internal_energy_ev\x18\x02 \x01(\x01R\x10internalEnergyEv\x12$\n" +
@@ -2616,7 +2737,9 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x19heat_capacity_j_per_mol_k\x18\t \x01(\x01R\x14heatCapacityJPerMolK\x12.\n" +
 	"\x13debye_temperature_k\x18\n" +
 	" \x01(\x01R\x11debyeTemperatureK\x12C\n" +
-	"\rdisplacements\x18\v \x03(\v2\x1d.modegrid.v1.SiteDisplacementR\rdisplacements\"\xf3\x02\n" +
+	"\rdisplacements\x18\v \x03(\v2\x1d.modegrid.v1.SiteDisplacementR\rdisplacements\x12]\n" +
+	"\x18debye_temperature_status\x18\f \x01(\x0e2#.modegrid.v1.DebyeTemperatureStatusR\x16debyeTemperatureStatus\x128\n" +
+	"\x18debye_temperature_reason\x18\r \x01(\tR\x16debyeTemperatureReason\"\xf3\x02\n" +
 	"\x16ComputeThermalResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -2686,7 +2809,14 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\fThermalRoute\x12\x1d\n" +
 	"\x19THERMAL_ROUTE_UNSPECIFIED\x10\x00\x12\x1a\n" +
 	"\x16THERMAL_ROUTE_MODE_SUM\x10\x01\x12\x1e\n" +
-	"\x1aTHERMAL_ROUTE_DOS_INTEGRAL\x10\x022\xc5\x03\n" +
+	"\x1aTHERMAL_ROUTE_DOS_INTEGRAL\x10\x02*\x9b\x02\n" +
+	"\x16DebyeTemperatureStatus\x12(\n" +
+	"$DEBYE_TEMPERATURE_STATUS_UNSPECIFIED\x10\x00\x12'\n" +
+	"#DEBYE_TEMPERATURE_STATUS_DETERMINED\x10\x01\x12*\n" +
+	"&DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT\x10\x02\x12,\n" +
+	"(DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE\x10\x03\x12,\n" +
+	"(DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED\x10\x04\x12&\n" +
+	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\xc5\x03\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -2708,94 +2838,96 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 	return file_modegrid_v1_service_proto_rawDescData
 }
 
-var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 4)
+var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
 var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 26)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
 	(ImaginaryModes)(0),               // 2: modegrid.v1.ImaginaryModes
 	(ThermalRoute)(0),                 // 3: modegrid.v1.ThermalRoute
-	(*ModelSource)(nil),               // 4: modegrid.v1.ModelSource
-	(*QPoint)(nil),                    // 5: modegrid.v1.QPoint
-	(*QPointList)(nil),                // 6: modegrid.v1.QPointList
-	(*MonkhorstPackGrid)(nil),         // 7: modegrid.v1.MonkhorstPackGrid
-	(*FiniteCrystal)(nil),             // 8: modegrid.v1.FiniteCrystal
-	(*QPointSet)(nil),                 // 9: modegrid.v1.QPointSet
-	(*ComputeModesRequest)(nil),       // 10: modegrid.v1.ComputeModesRequest
-	(*Modes)(nil),                     // 11: modegrid.v1.Modes
-	(*ComputeModesResponse)(nil),      // 12: modegrid.v1.ComputeModesResponse
-	(*PathPoint)(nil),                 // 13: modegrid.v1.PathPoint
-	(*ComputeDispersionRequest)(nil),  // 14: modegrid.v1.ComputeDispersionRequest
-	(*DispersionSample)(nil),          // 15: modegrid.v1.DispersionSample
-	(*ComputeDispersionResponse)(nil), // 16: modegrid.v1.ComputeDispersionResponse
-	(*ComputeDosRequest)(nil),         // 17: modegrid.v1.ComputeDosRequest
-	(*ProjectedDos)(nil),              // 18: modegrid.v1.ProjectedDos
-	(*ComputeDosResponse)(nil),        // 19: modegrid.v1.ComputeDosResponse
-	(*TemperatureRange)(nil),          // 20: modegrid.v1.TemperatureRange
-	(*ComputeThermalRequest)(nil),     // 21: modegrid.v1.ComputeThermalRequest
-	(*SiteDisplacement)(nil),          // 22: modegrid.v1.SiteDisplacement
-	(*ThermalPoint)(nil),              // 23: modegrid.v1.ThermalPoint
-	(*ComputeThermalResponse)(nil),    // 24: modegrid.v1.ComputeThermalResponse
-	(*CheckModelRequest)(nil),         // 25: modegrid.v1.CheckModelRequest
-	(*FieldViolation)(nil),            // 26: modegrid.v1.FieldViolation
-	(*ShellBonds)(nil),                // 27: modegrid.v1.ShellBonds
-	(*SymmetryOperation)(nil),         // 28: modegrid.v1.SymmetryOperation
-	(*CheckModelResponse)(nil),        // 29: modegrid.v1.CheckModelResponse
-	(*Crystal)(nil),                   // 30: modegrid.v1.Crystal
+	(DebyeTemperatureStatus)(0),       // 4: modegrid.v1.DebyeTemperatureStatus
+	(*ModelSource)(nil),               // 5: modegrid.v1.ModelSource
+	(*QPoint)(nil),                    // 6: modegrid.v1.QPoint
+	(*QPointList)(nil),                // 7: modegrid.v1.QPointList
+	(*MonkhorstPackGrid)(nil),         // 8: modegrid.v1.MonkhorstPackGrid
+	(*FiniteCrystal)(nil),             // 9: modegrid.v1.FiniteCrystal
+	(*QPointSet)(nil),                 // 10: modegrid.v1.QPointSet
+	(*ComputeModesRequest)(nil),       // 11: modegrid.v1.ComputeModesRequest
+	(*Modes)(nil),                     // 12: modegrid.v1.Modes
+	(*ComputeModesResponse)(nil),      // 13: modegrid.v1.ComputeModesResponse
+	(*PathPoint)(nil),                 // 14: modegrid.v1.PathPoint
+	(*ComputeDispersionRequest)(nil),  // 15: modegrid.v1.ComputeDispersionRequest
+	(*DispersionSample)(nil),          // 16: modegrid.v1.DispersionSample
+	(*ComputeDispersionResponse)(nil), // 17: modegrid.v1.ComputeDispersionResponse
+	(*ComputeDosRequest)(nil),         // 18: modegrid.v1.ComputeDosRequest
+	(*ProjectedDos)(nil),              // 19: modegrid.v1.ProjectedDos
+	(*ComputeDosResponse)(nil),        // 20: modegrid.v1.ComputeDosResponse
+	(*TemperatureRange)(nil),          // 21: modegrid.v1.TemperatureRange
+	(*ComputeThermalRequest)(nil),     // 22: modegrid.v1.ComputeThermalRequest
+	(*SiteDisplacement)(nil),          // 23: modegrid.v1.SiteDisplacement
+	(*ThermalPoint)(nil),              // 24: modegrid.v1.ThermalPoint
+	(*ComputeThermalResponse)(nil),    // 25: modegrid.v1.ComputeThermalResponse
+	(*CheckModelRequest)(nil),         // 26: modegrid.v1.CheckModelRequest
+	(*FieldViolation)(nil),            // 27: modegrid.v1.FieldViolation
+	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
+	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
+	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
+	(*Crystal)(nil),                   // 31: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	30, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
-	5,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	6,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	7,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	8,  // 4: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	4,  // 5: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	9,  // 6: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	31, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
+	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	9,  // 4: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	5,  // 5: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 6: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	0,  // 7: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	5,  // 8: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	6,  // 8: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
 	0,  // 9: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	11, // 10: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	5,  // 11: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	4,  // 12: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	13, // 13: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	12, // 10: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	6,  // 11: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	5,  // 12: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	14, // 13: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
 	0,  // 14: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	5,  // 15: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	6,  // 15: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
 	0,  // 16: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	15, // 17: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	4,  // 18: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	9,  // 19: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	16, // 17: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	5,  // 18: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 19: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	1,  // 20: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
 	0,  // 21: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
 	2,  // 22: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
 	0,  // 23: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	18, // 24: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	18, // 25: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	4,  // 26: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	9,  // 27: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	20, // 28: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	19, // 24: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	19, // 25: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	5,  // 26: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 27: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	21, // 28: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
 	3,  // 29: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	22, // 30: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
-	23, // 31: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	4,  // 32: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	26, // 33: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	27, // 34: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	28, // 35: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	13, // 36: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	25, // 37: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	10, // 38: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	14, // 39: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	17, // 40: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	21, // 41: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	29, // 42: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	12, // 43: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	16, // 44: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	19, // 45: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	24, // 46: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	42, // [42:47] is the sub-list for method output_type
-	37, // [37:42] is the sub-list for method input_type
-	37, // [37:37] is the sub-list for extension type_name
-	37, // [37:37] is the sub-list for extension extendee
-	0,  // [0:37] is the sub-list for field type_name
+	23, // 30: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	4,  // 31: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
+	24, // 32: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	5,  // 33: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	27, // 34: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	26, // 38: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 39: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 40: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 41: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 42: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 43: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 44: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 45: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 46: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 47: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	43, // [43:48] is the sub-list for method output_type
+	38, // [38:43] is the sub-list for method input_type
+	38, // [38:38] is the sub-list for extension type_name
+	38, // [38:38] is the sub-list for extension extendee
+	0,  // [0:38] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -2818,7 +2950,7 @@ func file_modegrid_v1_service_proto_init() {
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
-			NumEnums:      4,
+			NumEnums:      5,
 			NumMessages:   26,
 			NumExtensions: 0,
 			NumServices:   1,
