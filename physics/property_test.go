@@ -81,9 +81,9 @@ func logUniform(rng *rand.Rand, lo, hi float64) float64 {
 
 // randomProperCrystal draws a valid model that is stable by construction:
 // every spring has k∥ > 0 and k⊥ ≥ 0, so each adds the positive
-// semi-definite energy ½ Δuᵀ(k∥ eeᵀ + k⊥(1 − eeᵀ))Δu and D(q) is positive
-// semi-definite at every q (Born & Huang, Dynamical Theory of Crystal
-// Lattices, §23; common practice). Rigidity (no zero mode away from Γ) comes
+// semi-definite energy ½ Δuᵀ(k∥ eeᵀ + k⊥(1 − eeᵀ))Δu, so the harmonic
+// energy of any Bloch wave is ≥ 0 and D(q) is positive semi-definite at
+// every q (derived from the spring block in doc.go). Rigidity (no zero mode away from Γ) comes
 // from a skeleton of springs with k⊥ > 0 that connects every site and
 // closes a loop along every lattice vector: then u_j e^{2πiq·n} = u_i on
 // every bond forces q to be a reciprocal lattice vector. Half the models
@@ -336,8 +336,8 @@ func gammaWeight(pc *propCase) float64 {
 // good to 5e-12: 1e-9). Per-site projections: each site's DOS integrates
 // to p and the sites sum to the total of the plain (unprojected)
 // computation at every sample, to 1e-9 of its peak — completeness of the
-// eigenvectors, Σ_k |e_k⟩⟨e_k| = 1, whose site-s block has trace p
-// (Maradudin, Montroll & Weiss 1963, ch. 2; common practice).
+// eigenvectors of the Hermitian D(q), Σ_k |e_k⟩⟨e_k| = 1, whose site-s
+// block has trace p (linear algebra; common practice).
 func TestPropertyDOSNormalization(t *testing.T) {
 	ctx := specCtx(t)
 	for _, pc := range propCases(t) {
