@@ -160,6 +160,21 @@ func TestHealthPort(t *testing.T) {
 	}
 	defer conn.Close()
 	ctx := testContext(t)
+	// Serve (started in a goroutine by startServer) turns the status to
+	// SERVING: wait for that event on the health port itself.
+	w, err := healthpb.NewHealthClient(conn).Watch(ctx, &healthpb.HealthCheckRequest{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for {
+		r, err := w.Recv()
+		if err != nil {
+			t.Fatalf("watching health on the health port: %v", err)
+		}
+		if r.GetStatus() == healthpb.HealthCheckResponse_SERVING {
+			break
+		}
+	}
 	for _, svc := range []string{"", modegridv1.ModegridService_ServiceDesc.ServiceName} {
 		r, err := healthpb.NewHealthClient(conn).Check(ctx, &healthpb.HealthCheckRequest{Service: svc})
 		if err != nil || r.GetStatus() != healthpb.HealthCheckResponse_SERVING {
