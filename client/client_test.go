@@ -9,6 +9,7 @@ import (
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/resolver"
 	"google.golang.org/grpc/resolver/manual"
 	"google.golang.org/grpc/status"
@@ -172,22 +173,35 @@ func TestUnknownReference(t *testing.T) {
 }
 
 // failFirst injects UNAVAILABLE into the first n attempts of every call, in
-// front of the real service, and counts attempts.
+// front of the real service, and counts attempts. With afterHeader the
+// response headers go out first, so the call is committed and gRPC's retry
+// policy no longer applies.
 type failFirst struct {
-	n        int32
-	attempts atomic.Int32
+	n           int32
+	afterHeader bool
+	attempts    atomic.Int32
 }
 
 func (f *failFirst) options() []grpc.ServerOption {
 	return []grpc.ServerOption{
 		grpc.ChainUnaryInterceptor(func(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (any, error) {
 			if isModegrid(info.FullMethod) && f.attempts.Add(1) <= f.n {
+				if f.afterHeader {
+					if err := grpc.SendHeader(ctx, metadata.Pairs("x-fault", "after-header")); err != nil {
+						return nil, err
+					}
+				}
 				return nil, status.Error(codes.Unavailable, "injected fault")
 			}
 			return h(ctx, req)
 		}),
 		grpc.ChainStreamInterceptor(func(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, h grpc.StreamHandler) error {
 			if isModegrid(info.FullMethod) && f.attempts.Add(1) <= f.n {
+				if f.afterHeader {
+					if err := ss.SendHeader(metadata.Pairs("x-fault", "after-header")); err != nil {
+						return err
+					}
+				}
 				return status.Error(codes.Unavailable, "injected fault")
 			}
 			return h(srv, ss)
@@ -196,11 +210,14 @@ func (f *failFirst) options() []grpc.ServerOption {
 }
 
 // TestRetryOnUnavailable: UNAVAILABLE is retried by the service config up
-// to the attempt limit; other codes are not retried.
+// to the attempt limit; other codes are not retried. A call broken after
+// the server's response headers (which gRPC no longer retries) is sent
+// again by the client up to 3 times.
 func TestRetryOnUnavailable(t *testing.T) {
 	tests := []struct {
 		name         string
 		fail         int32
+		afterHeader  bool
 		maxAttempts  int
 		stream       bool
 		invalid      bool
@@ -212,10 +229,13 @@ func TestRetryOnUnavailable(t *testing.T) {
 		{name: "retries disabled", fail: 1, maxAttempts: 1, stream: true, wantCode: codes.Unavailable, wantAttempts: 1},
 		{name: "attempts exhausted", fail: 10, maxAttempts: 3, stream: true, wantCode: codes.Unavailable, wantAttempts: 3},
 		{name: "invalid argument not retried", fail: 0, maxAttempts: 4, stream: true, invalid: true, wantCode: codes.InvalidArgument, wantAttempts: 1},
+		{name: "unary broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, wantCode: codes.OK, wantAttempts: 3},
+		{name: "stream broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, stream: true, wantCode: codes.OK, wantAttempts: 3},
+		{name: "resends exhausted", fail: 10, afterHeader: true, maxAttempts: 4, wantCode: codes.Unavailable, wantAttempts: 4},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			f := &failFirst{n: tc.fail}
+			f := &failFirst{n: tc.fail, afterHeader: tc.afterHeader}
 			addr, _ := startServer(t, "", f.options()...)
 			c := dial(t, addr, client.WithMaxAttempts(tc.maxAttempts))
 			crystal := example(t, "chain")
@@ -419,17 +439,6 @@ func TestFieldViolations(t *testing.T) {
 	}
 	if client.IsUnreachable(err) {
 		t.Error("an invalid model is not an unreachable server")
-	}
-}
-
-// TestUnreachable: a closed port gives UNAVAILABLE, which IsUnreachable
-// recognises, after the retries.
-func TestUnreachable(t *testing.T) {
-	addr := closedPort(t)
-	c := dial(t, addr)
-	_, err := c.Modes(testContext(t), &modegridv1.ComputeModesRequest{Model: client.Inline(example(t, "chain")), Qpoints: client.QList([3]float64{0.5, 0, 0})})
-	if !client.IsUnreachable(err) {
-		t.Errorf("got %v; want UNAVAILABLE", err)
 	}
 }
 

@@ -169,7 +169,7 @@ func TestServiceConfig(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health)
+			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health, true)
 			if err != nil {
 				t.Fatal(err)
 			}
