@@ -48,7 +48,8 @@ func collectOptions(opts []CallOption) callOptions {
 // it once the server had begun to answer (a modes stream: resumed after the
 // points it delivered). gRPC's retry policy stops at that point, because the
 // call is committed; every modegrid call is a pure computation on its
-// request, so sending it again is harmless.
+// request, so sending it again is harmless. WithMaxAttempts(1) turns this
+// off with the other retries.
 const maxResends = 3
 
 // broken reports whether err is an UNAVAILABLE that ended a call after the
@@ -134,7 +135,7 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 		switch {
 		case delivered == 0 && s.fallback(err):
 			continue
-		case resumes < maxResends && broken(ctx, err, len(hdr) > 0 || delivered > 0):
+		case resumes < c.maxResends && broken(ctx, err, len(hdr) > 0 || delivered > 0):
 			resumes++
 			continue
 		case delivered > 0 && s.fallback(err):
@@ -224,7 +225,7 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 		}
 		switch {
 		case s.fallback(err):
-		case resends < maxResends && broken(ctx, err, len(hdr) > 0):
+		case resends < c.maxResends && broken(ctx, err, len(hdr) > 0):
 			resends++
 		default:
 			return resp, err

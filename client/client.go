@@ -70,10 +70,11 @@ const (
 // Client calls a modegrid server. It is safe for concurrent use. The zero
 // value is not usable: create one with Dial.
 type Client struct {
-	conn     *grpc.ClientConn
-	api      modegridv1.ModegridServiceClient
-	affinity bool
-	refs     modelRefs
+	conn       *grpc.ClientConn
+	api        modegridv1.ModegridServiceClient
+	affinity   bool
+	maxResends int // resends of a call broken after the server began to answer
+	refs       modelRefs
 }
 
 // Option configures Dial.
@@ -194,8 +195,9 @@ func WithKeepalive(kp keepalive.ClientParameters) Option {
 }
 
 // WithMaxAttempts sets how many times a call failing with UNAVAILABLE is
-// tried in all (default DefaultMaxAttempts; 1 disables retries; gRPC caps it
-// at 5).
+// tried in all (default DefaultMaxAttempts; gRPC caps it at 5). 1 disables
+// retries: gRPC's, and the Client's own resends of a call broken after the
+// server began to answer (a modes stream is then not resumed either).
 func WithMaxAttempts(n int) Option {
 	return func(o *options) {
 		if n < 1 {
@@ -326,7 +328,11 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
-	return &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}, nil
+	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}
+	if o.maxAttempts > 1 {
+		c.maxResends = maxResends
+	}
+	return c, nil
 }
 
 // Close closes the connection. Calls in progress fail with CANCELED.

@@ -232,6 +232,7 @@ func TestRetryOnUnavailable(t *testing.T) {
 		{name: "unary broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, wantCode: codes.OK, wantAttempts: 3},
 		{name: "stream broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, stream: true, wantCode: codes.OK, wantAttempts: 3},
 		{name: "resends exhausted", fail: 10, afterHeader: true, maxAttempts: 4, wantCode: codes.Unavailable, wantAttempts: 4},
+		{name: "resends disabled with retries", fail: 1, afterHeader: true, maxAttempts: 1, stream: true, wantCode: codes.Unavailable, wantAttempts: 1},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
