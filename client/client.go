@@ -343,8 +343,9 @@ func (c *Client) Close() error { return c.conn.Close() }
 func (c *Client) Conn() *grpc.ClientConn { return c.conn }
 
 // Raw returns the generated stub for calls the typed helpers do not cover.
-// It bypasses the model reference cache and the affinity header; waiting
-// for a ready server and the retries apply to its calls as to all others.
+// It bypasses the model reference cache, the affinity header and the
+// Client's own resends; waiting for a ready server and gRPC's retry policy
+// apply to its calls as to all others.
 func (c *Client) Raw() modegridv1.ModegridServiceClient { return c.api }
 
 // serviceConfig builds the gRPC service config JSON: the balancer, waiting

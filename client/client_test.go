@@ -6,8 +6,10 @@ import (
 	"strings"
 	"sync/atomic"
 	"testing"
+	"time"
 
 	"google.golang.org/grpc"
+	"google.golang.org/grpc/backoff"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/resolver"
@@ -459,6 +461,12 @@ func TestDialOptions(t *testing.T) {
 		{name: "missing CA file", target: "x:1", opts: []client.Option{client.WithCAFile("/nonexistent/ca.pem")}, wantErr: "read CA file"},
 		{name: "zero attempts", target: "x:1", opts: []client.Option{client.WithMaxAttempts(0)}, wantErr: "max attempts"},
 		{name: "zero message size", target: "x:1", opts: []client.Option{client.WithMaxMessageBytes(0)}, wantErr: "max message bytes"},
+		{name: "zero ready wait", target: "x:1", opts: []client.Option{client.WithReadyWait(0)}, wantErr: "ready wait must be > 0"},
+		{name: "connect back-off", target: "x:1", opts: []client.Option{client.WithConnectBackoff(backoff.Config{
+			BaseDelay: time.Second, Multiplier: 0.5, Jitter: 2, MaxDelay: time.Millisecond})},
+			wantErr: "multiplier must be ≥ 1, got 0.5; jitter must be in [0, 1], got 2; max delay 1ms must be ≥ base delay 1s"},
+		{name: "custom back-off", target: "x:1", opts: []client.Option{client.WithConnectBackoff(backoff.DefaultConfig), client.WithReadyWait(time.Minute)}},
+		{name: "fail fast", target: "x:1", opts: []client.Option{client.WithFailFast()}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
