@@ -52,6 +52,7 @@ func BenchmarkCachedDOS(b *testing.B) {
 	}{
 		{"client", nil},
 		{"client-no-retry", []client.Option{client.WithMaxAttempts(1)}},
+		{"client-fail-fast", []client.Option{client.WithFailFast()}},
 		{"client-no-retry-no-health", []client.Option{client.WithMaxAttempts(1), client.WithoutHealthCheck()}},
 	} {
 		b.Run(v.name, func(b *testing.B) { benchClientDOS(b, dial(b, addr, v.opts...), req) })

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"slices"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
@@ -43,9 +44,21 @@ func collectOptions(opts []CallOption) callOptions {
 	return o
 }
 
-// maxStreamResumes bounds how often one StreamModes call reopens a stream
-// broken by UNAVAILABLE after it delivered some points.
-const maxStreamResumes = 3
+// maxResends bounds how often one call is sent again after UNAVAILABLE broke
+// it once the server had begun to answer (a modes stream: resumed after the
+// points it delivered). gRPC's retry policy stops at that point, because the
+// call is committed; every modegrid call is a pure computation on its
+// request, so sending it again is harmless. WithMaxAttempts(1) turns this
+// off with the other retries.
+const maxResends = 3
+
+// broken reports whether err is an UNAVAILABLE that ended a call after the
+// server had begun to answer (begun: the last attempt received response
+// headers or points; gRPC's retry policy covered every failure before
+// that), and the caller still waits.
+func broken(ctx context.Context, err error, begun bool) bool {
+	return begun && status.Code(err) == codes.Unavailable && !waitedOut(err) && ctx.Err() == nil
+}
 
 // Check calls CheckModel. An invalid model is not an error: the response has
 // Valid false and lists every violation.
@@ -107,7 +120,10 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 	defer cancel() // ends an abandoned stream
 	delivered := 0
 	resumes := 0
+	var hdr metadata.MD
+	o.grpcOpts = append(slices.Clip(o.grpcOpts), grpc.Header(&hdr))
 	for {
+		hdr = nil
 		err := s.streamOnce(ctx, o, &delivered, fn)
 		if err == nil {
 			return nil
@@ -119,7 +135,7 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 		switch {
 		case delivered == 0 && s.fallback(err):
 			continue
-		case delivered > 0 && status.Code(err) == codes.Unavailable && resumes < maxStreamResumes && ctx.Err() == nil:
+		case resumes < c.maxResends && broken(ctx, err, len(hdr) > 0 || delivered > 0):
 			resumes++
 			continue
 		case delivered > 0 && s.fallback(err):
@@ -197,13 +213,21 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 		var zero Resp
 		return zero, err
 	}
+	var hdr metadata.MD
+	opts := append(slices.Clip(o.grpcOpts), grpc.Header(&hdr))
+	resends := 0
 	for {
-		resp, err := call(s.outgoing(ctx), s.request().(Req), o.grpcOpts...)
+		hdr = nil
+		resp, err := call(s.outgoing(ctx), s.request().(Req), opts...)
 		if err == nil {
 			s.succeeded(resp.GetModelHash())
 			return resp, nil
 		}
-		if !s.fallback(err) {
+		switch {
+		case s.fallback(err):
+		case resends < c.maxResends && broken(ctx, err, len(hdr) > 0):
+			resends++
+		default:
 			return resp, err
 		}
 	}

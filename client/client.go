@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"google.golang.org/grpc"
+	"google.golang.org/grpc/backoff"
 	_ "google.golang.org/grpc/balancer/ringhash" // registers ring_hash_experimental for WithModelAffinity
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/credentials/insecure"
@@ -35,6 +36,30 @@ const (
 	// DefaultMaxAttempts is the number of attempts of a call that fails with
 	// UNAVAILABLE (the first one included); gRPC caps it at 5.
 	DefaultMaxAttempts = 4
+	// DefaultReadyWait is how long an attempt waits for a ready server
+	// (when the caller's deadline does not end the wait first): longer than
+	// a replica's restart, short enough that a server that stays down is
+	// reported to a caller without a deadline.
+	DefaultReadyWait = 20 * time.Second
+	// DefaultConnectBaseDelay is the wait before reconnecting after the
+	// first failed connection attempt; each further failure multiplies it
+	// by DefaultConnectMultiplier, up to DefaultConnectMaxDelay, and every
+	// wait is spread by ±DefaultConnectJitter of itself.
+	DefaultConnectBaseDelay = 200 * time.Millisecond
+	// DefaultConnectMultiplier is the growth of the reconnection wait per
+	// failed attempt (gRPC's own default).
+	DefaultConnectMultiplier = 1.6
+	// DefaultConnectJitter is the relative random spread of each
+	// reconnection wait (gRPC's own default), so that clients that lost the
+	// same server do not come back in step.
+	DefaultConnectJitter = 0.2
+	// DefaultConnectMaxDelay caps the reconnection wait, well inside
+	// DefaultReadyWait, so a waiting call notices a returned server within
+	// a few seconds.
+	DefaultConnectMaxDelay = 5 * time.Second
+	// DefaultMinConnectTimeout is the least time a connection attempt
+	// (TCP, TLS and HTTP/2 handshakes) is given (gRPC's own default).
+	DefaultMinConnectTimeout = 20 * time.Second
 	// AffinityHeader is the request metadata key that carries the model hash
 	// for WithModelAffinity; ring_hash hashes its value to pick a replica.
 	AffinityHeader = "x-modegrid-model"
@@ -45,10 +70,11 @@ const (
 // Client calls a modegrid server. It is safe for concurrent use. The zero
 // value is not usable: create one with Dial.
 type Client struct {
-	conn     *grpc.ClientConn
-	api      modegridv1.ModegridServiceClient
-	affinity bool
-	refs     modelRefs
+	conn       *grpc.ClientConn
+	api        modegridv1.ModegridServiceClient
+	affinity   bool
+	maxResends int // resends of a call broken after the server began to answer
+	refs       modelRefs
 }
 
 // Option configures Dial.
@@ -62,6 +88,9 @@ type options struct {
 	maxMsg      int
 	keepalive   keepalive.ClientParameters
 	maxAttempts int
+	readyWait   time.Duration
+	failFast    bool
+	connect     backoff.Config
 	noHealth    bool
 	dialOpts    []grpc.DialOption
 }
@@ -166,8 +195,9 @@ func WithKeepalive(kp keepalive.ClientParameters) Option {
 }
 
 // WithMaxAttempts sets how many times a call failing with UNAVAILABLE is
-// tried in all (default DefaultMaxAttempts; 1 disables retries; gRPC caps it
-// at 5).
+// tried in all (default DefaultMaxAttempts; gRPC caps it at 5). 1 disables
+// retries: gRPC's, and the Client's own resends of a call broken after the
+// server began to answer (a modes stream is then not resumed either).
 func WithMaxAttempts(n int) Option {
 	return func(o *options) {
 		if n < 1 {
@@ -175,6 +205,55 @@ func WithMaxAttempts(n int) Option {
 			return
 		}
 		o.maxAttempts = n
+	}
+}
+
+// WithReadyWait sets how long one attempt of a call waits for a ready
+// server before it fails with UNAVAILABLE (default DefaultReadyWait). The
+// caller's deadline, if earlier, ends the wait too; the call then fails
+// with DEADLINE_EXCEEDED. Either way IsUnreachable reports the error.
+func WithReadyWait(d time.Duration) Option {
+	return func(o *options) {
+		if d <= 0 {
+			o.fail(fmt.Errorf("ready wait must be > 0, got %v", d))
+			return
+		}
+		o.readyWait = d
+	}
+}
+
+// WithFailFast turns off waiting for a ready server: a call made while no
+// server is ready fails at once with UNAVAILABLE (after the retries of
+// WithMaxAttempts, whose back-off is short). For tools that want to see
+// every refusal; a service should keep the default.
+func WithFailFast() Option {
+	return func(o *options) { o.failFast = true }
+}
+
+// WithConnectBackoff replaces the back-off between connection attempts to
+// a server that cannot be reached (defaults DefaultConnectBaseDelay,
+// DefaultConnectMultiplier, DefaultConnectJitter and
+// DefaultConnectMaxDelay).
+func WithConnectBackoff(b backoff.Config) Option {
+	return func(o *options) {
+		var bad []string
+		if b.BaseDelay <= 0 {
+			bad = append(bad, fmt.Sprintf("base delay must be > 0, got %v", b.BaseDelay))
+		}
+		if !(b.Multiplier >= 1) {
+			bad = append(bad, fmt.Sprintf("multiplier must be ≥ 1, got %v", b.Multiplier))
+		}
+		if !(b.Jitter >= 0 && b.Jitter <= 1) {
+			bad = append(bad, fmt.Sprintf("jitter must be in [0, 1], got %v", b.Jitter))
+		}
+		if b.MaxDelay < b.BaseDelay {
+			bad = append(bad, fmt.Sprintf("max delay %v must be ≥ base delay %v", b.MaxDelay, b.BaseDelay))
+		}
+		if len(bad) > 0 {
+			o.fail(fmt.Errorf("connect back-off: %s", strings.Join(bad, "; ")))
+			return
+		}
+		o.connect = b
 	}
 }
 
@@ -197,6 +276,13 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	o := options{
 		maxMsg:      DefaultMaxMessageBytes,
 		maxAttempts: DefaultMaxAttempts,
+		readyWait:   DefaultReadyWait,
+		connect: backoff.Config{
+			BaseDelay:  DefaultConnectBaseDelay,
+			Multiplier: DefaultConnectMultiplier,
+			Jitter:     DefaultConnectJitter,
+			MaxDelay:   DefaultConnectMaxDelay,
+		},
 		keepalive: keepalive.ClientParameters{
 			Time:                DefaultKeepaliveTime,
 			Timeout:             DefaultKeepaliveTimeout,
@@ -209,15 +295,22 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	if o.err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", o.err)
 	}
-	sc, err := serviceConfig(o.affinity, o.maxAttempts, !o.noHealth)
+	sc, err := serviceConfig(o.affinity, o.maxAttempts, !o.noHealth, !o.failFast)
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
 	dopts := []grpc.DialOption{
 		grpc.WithDefaultServiceConfig(sc),
 		grpc.WithKeepaliveParams(o.keepalive),
-		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(o.maxMsg), grpc.MaxCallSendMsgSize(o.maxMsg)),
+		grpc.WithConnectParams(grpc.ConnectParams{Backoff: o.connect, MinConnectTimeout: DefaultMinConnectTimeout}),
+		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(o.maxMsg), grpc.MaxCallSendMsgSize(o.maxMsg),
+			grpc.WaitForReady(!o.failFast)),
 		grpc.WithUserAgent("modegrid-go-client"),
+	}
+	if !o.failFast {
+		w := waiter{d: o.readyWait}
+		dopts = append(dopts, grpc.WithStatsHandler(w),
+			grpc.WithChainUnaryInterceptor(w.unary), grpc.WithChainStreamInterceptor(w.stream))
 	}
 	if o.tls != nil {
 		dopts = append(dopts, grpc.WithTransportCredentials(credentials.NewTLS(o.tls)))
@@ -235,7 +328,11 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
-	return &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}, nil
+	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}
+	if o.maxAttempts > 1 {
+		c.maxResends = maxResends
+	}
+	return c, nil
 }
 
 // Close closes the connection. Calls in progress fail with CANCELED.
@@ -246,13 +343,17 @@ func (c *Client) Close() error { return c.conn.Close() }
 func (c *Client) Conn() *grpc.ClientConn { return c.conn }
 
 // Raw returns the generated stub for calls the typed helpers do not cover.
-// It bypasses the model reference cache and the affinity header.
+// It bypasses the model reference cache, the affinity header and the
+// Client's own resends; waiting for a ready server and gRPC's retry policy
+// apply to its calls as to all others.
 func (c *Client) Raw() modegridv1.ModegridServiceClient { return c.api }
 
-// serviceConfig builds the gRPC service config JSON: the balancer, the retry
-// policy on UNAVAILABLE for every method of the service, and client-side
-// health checking.
-func serviceConfig(affinity bool, maxAttempts int, health bool) (string, error) {
+// serviceConfig builds the gRPC service config JSON: the balancer, waiting
+// for a ready server, the retry policy on UNAVAILABLE for every method of
+// the service, and client-side health checking. Every method is retried:
+// each is a pure computation on its request (no state changes on the
+// server but its caches), so running one twice is harmless.
+func serviceConfig(affinity bool, maxAttempts int, health, waitForReady bool) (string, error) {
 	type obj = map[string]any
 	lb := []obj{{"round_robin": obj{}}}
 	if affinity {
@@ -260,7 +361,7 @@ func serviceConfig(affinity bool, maxAttempts int, health bool) (string, error) 
 	}
 	mc := obj{
 		"name":         []obj{{"service": ServiceName}},
-		"waitForReady": false,
+		"waitForReady": waitForReady,
 	}
 	if maxAttempts > 1 {
 		mc["retryPolicy"] = obj{

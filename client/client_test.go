@@ -6,9 +6,12 @@ import (
 	"strings"
 	"sync/atomic"
 	"testing"
+	"time"
 
 	"google.golang.org/grpc"
+	"google.golang.org/grpc/backoff"
 	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/resolver"
 	"google.golang.org/grpc/resolver/manual"
 	"google.golang.org/grpc/status"
@@ -172,22 +175,35 @@ func TestUnknownReference(t *testing.T) {
 }
 
 // failFirst injects UNAVAILABLE into the first n attempts of every call, in
-// front of the real service, and counts attempts.
+// front of the real service, and counts attempts. With afterHeader the
+// response headers go out first, so the call is committed and gRPC's retry
+// policy no longer applies.
 type failFirst struct {
-	n        int32
-	attempts atomic.Int32
+	n           int32
+	afterHeader bool
+	attempts    atomic.Int32
 }
 
 func (f *failFirst) options() []grpc.ServerOption {
 	return []grpc.ServerOption{
 		grpc.ChainUnaryInterceptor(func(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (any, error) {
 			if isModegrid(info.FullMethod) && f.attempts.Add(1) <= f.n {
+				if f.afterHeader {
+					if err := grpc.SendHeader(ctx, metadata.Pairs("x-fault", "after-header")); err != nil {
+						return nil, err
+					}
+				}
 				return nil, status.Error(codes.Unavailable, "injected fault")
 			}
 			return h(ctx, req)
 		}),
 		grpc.ChainStreamInterceptor(func(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, h grpc.StreamHandler) error {
 			if isModegrid(info.FullMethod) && f.attempts.Add(1) <= f.n {
+				if f.afterHeader {
+					if err := ss.SendHeader(metadata.Pairs("x-fault", "after-header")); err != nil {
+						return err
+					}
+				}
 				return status.Error(codes.Unavailable, "injected fault")
 			}
 			return h(srv, ss)
@@ -196,11 +212,14 @@ func (f *failFirst) options() []grpc.ServerOption {
 }
 
 // TestRetryOnUnavailable: UNAVAILABLE is retried by the service config up
-// to the attempt limit; other codes are not retried.
+// to the attempt limit; other codes are not retried. A call broken after
+// the server's response headers (which gRPC no longer retries) is sent
+// again by the client up to 3 times.
 func TestRetryOnUnavailable(t *testing.T) {
 	tests := []struct {
 		name         string
 		fail         int32
+		afterHeader  bool
 		maxAttempts  int
 		stream       bool
 		invalid      bool
@@ -212,10 +231,14 @@ func TestRetryOnUnavailable(t *testing.T) {
 		{name: "retries disabled", fail: 1, maxAttempts: 1, stream: true, wantCode: codes.Unavailable, wantAttempts: 1},
 		{name: "attempts exhausted", fail: 10, maxAttempts: 3, stream: true, wantCode: codes.Unavailable, wantAttempts: 3},
 		{name: "invalid argument not retried", fail: 0, maxAttempts: 4, stream: true, invalid: true, wantCode: codes.InvalidArgument, wantAttempts: 1},
+		{name: "unary broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, wantCode: codes.OK, wantAttempts: 3},
+		{name: "stream broken after headers resent", fail: 2, afterHeader: true, maxAttempts: 4, stream: true, wantCode: codes.OK, wantAttempts: 3},
+		{name: "resends exhausted", fail: 10, afterHeader: true, maxAttempts: 4, wantCode: codes.Unavailable, wantAttempts: 4},
+		{name: "resends disabled with retries", fail: 1, afterHeader: true, maxAttempts: 1, stream: true, wantCode: codes.Unavailable, wantAttempts: 1},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			f := &failFirst{n: tc.fail}
+			f := &failFirst{n: tc.fail, afterHeader: tc.afterHeader}
 			addr, _ := startServer(t, "", f.options()...)
 			c := dial(t, addr, client.WithMaxAttempts(tc.maxAttempts))
 			crystal := example(t, "chain")
@@ -422,17 +445,6 @@ func TestFieldViolations(t *testing.T) {
 	}
 }
 
-// TestUnreachable: a closed port gives UNAVAILABLE, which IsUnreachable
-// recognises, after the retries.
-func TestUnreachable(t *testing.T) {
-	addr := closedPort(t)
-	c := dial(t, addr)
-	_, err := c.Modes(testContext(t), &modegridv1.ComputeModesRequest{Model: client.Inline(example(t, "chain")), Qpoints: client.QList([3]float64{0.5, 0, 0})})
-	if !client.IsUnreachable(err) {
-		t.Errorf("got %v; want UNAVAILABLE", err)
-	}
-}
-
 // TestDialOptions: bad options fail Dial with a clear error.
 func TestDialOptions(t *testing.T) {
 	tests := []struct {
@@ -449,6 +461,12 @@ func TestDialOptions(t *testing.T) {
 		{name: "missing CA file", target: "x:1", opts: []client.Option{client.WithCAFile("/nonexistent/ca.pem")}, wantErr: "read CA file"},
 		{name: "zero attempts", target: "x:1", opts: []client.Option{client.WithMaxAttempts(0)}, wantErr: "max attempts"},
 		{name: "zero message size", target: "x:1", opts: []client.Option{client.WithMaxMessageBytes(0)}, wantErr: "max message bytes"},
+		{name: "zero ready wait", target: "x:1", opts: []client.Option{client.WithReadyWait(0)}, wantErr: "ready wait must be > 0"},
+		{name: "connect back-off", target: "x:1", opts: []client.Option{client.WithConnectBackoff(backoff.Config{
+			BaseDelay: time.Second, Multiplier: 0.5, Jitter: 2, MaxDelay: time.Millisecond})},
+			wantErr: "multiplier must be ≥ 1, got 0.5; jitter must be in [0, 1], got 2; max delay 1ms must be ≥ base delay 1s"},
+		{name: "custom back-off", target: "x:1", opts: []client.Option{client.WithConnectBackoff(backoff.DefaultConfig), client.WithReadyWait(time.Minute)}},
+		{name: "fail fast", target: "x:1", opts: []client.Option{client.WithFailFast()}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -6,8 +6,10 @@
 //
 // Dial returns a Client with defaults suited to a shared lab server:
 //
-//   - every call is retried on UNAVAILABLE through a gRPC service config
-//     (all modegrid calls are idempotent), with exponential back-off;
+//   - a call made while no server is ready waits for one (see "Waiting
+//     for a server") instead of failing at once;
+//   - every call is retried on UNAVAILABLE through a gRPC service config,
+//     with exponential back-off (see "Retries");
 //   - calls are spread round_robin over every address the resolver returns,
 //     so "dns:///modegrid-headless.lab.svc:7420" balances over all replicas
 //     of a headless Kubernetes Service; WithModelAffinity switches to gRPC's
@@ -21,6 +23,49 @@
 //     limit;
 //   - plaintext unless WithTLS, WithCAFile or WithClientCertificate is given;
 //     WithToken adds a bearer token to every call.
+//
+// # Waiting for a server
+//
+// Calls are wait-for-ready. When no replica is ready (a lone server
+// restarting, every replica down, a name that does not resolve yet), a call
+// does not fail: it waits while gRPC reconnects in the background with
+// exponential back-off and jitter, DefaultConnectBaseDelay (200 ms) after
+// the first failed connection attempt, growing by DefaultConnectMultiplier
+// (1.6) up to DefaultConnectMaxDelay (5 s), each wait spread by
+// ±DefaultConnectJitter (20 %). A waiting call costs nothing on the
+// network: it makes one attempt, which is sent when a connection is ready.
+//
+// The wait of each attempt ends at the caller's deadline (the call fails
+// with DEADLINE_EXCEEDED) or after the ready wait, DefaultReadyWait (20 s),
+// whichever comes first (the call fails with UNAVAILABLE). A call whose
+// context has no deadline therefore waits at most DefaultReadyWait for a
+// server; once a server has its request the call lasts as long as the
+// computation (the server bounds its queue with --queue-timeout and its work
+// with its caps; keepalive notices a server that died). IsUnreachable
+// recognises both errors of a call that never reached a server. Errors name
+// the last connection failure ("connection refused", a TLS handshake error):
+// a misconfigured client also waits, and says why when it gives up.
+//
+// WithReadyWait changes the ready wait, WithConnectBackoff the reconnection
+// back-off, and WithFailFast turns waiting off (a call made while no server
+// is ready fails at once with UNAVAILABLE, as tools that count refusals
+// want).
+//
+// # Retries
+//
+// Every modegrid call is a pure computation on its request: running it twice
+// changes nothing on the server but its caches, so every method is retried.
+// A call that fails with UNAVAILABLE (a replica that stopped or broke the
+// connection before answering) is retried by gRPC's retry policy, up to
+// DefaultMaxAttempts attempts in all (WithMaxAttempts), with a random
+// back-off of up to 0.1 s doubling to 2 s; the retry waits for a ready
+// server like any attempt, on another replica when there is one. Once the
+// server has begun to answer, gRPC no longer retries a call (it is
+// committed); the Client then sends it again itself, at most 3 times (a
+// modes stream resumes after the points it delivered). WithMaxAttempts(1)
+// turns off every retry, the Client's resends included. No other code is
+// retried: INVALID_ARGUMENT, RESOURCE_EXHAUSTED (a busy server: retrying
+// would add load) and the rest are returned as they came.
 //
 // # Models by reference
 //
@@ -36,12 +81,15 @@
 // ComputeModes is a server stream. Modes collects it into one response,
 // calling an optional progress function after each chunk; StreamModes hands
 // over chunks one at a time for results too large to hold. A stream broken
-// by UNAVAILABLE part-way is reopened and resumes after the last point
-// received (results come in q order and are deterministic).
+// by UNAVAILABLE part-way is reopened (up to 3 times, each waiting for a
+// ready server) and resumes after the last point received (results come in
+// q order and are deterministic).
 //
 // # Errors
 //
-// Errors are gRPC status errors. FieldViolations lists the bad fields of an
-// INVALID_ARGUMENT; IsUnreachable tells a server that cannot be reached from
-// a server that refused the request.
+// Errors are gRPC status errors (status.Code and status.FromError work on
+// them). FieldViolations lists the bad fields of an INVALID_ARGUMENT;
+// IsUnreachable tells a server that cannot be reached (UNAVAILABLE, or a
+// deadline that ran out while waiting for a server) from a server that
+// refused the request.
 package client

@@ -27,8 +27,10 @@ func FieldViolations(err error) []*modegridv1.FieldViolation {
 	return out
 }
 
-// IsUnreachable reports whether err means no server could be reached
-// (UNAVAILABLE after every retry), as opposed to a server that answered.
+// IsUnreachable reports whether err means no server could be reached, as
+// opposed to a server that answered: UNAVAILABLE (after every retry, or
+// when no server became ready within the ready wait), or DEADLINE_EXCEEDED
+// reached while the call was still waiting for a ready server.
 func IsUnreachable(err error) bool {
-	return status.Code(err) == codes.Unavailable
+	return status.Code(err) == codes.Unavailable || waitedOut(err)
 }

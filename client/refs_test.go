@@ -150,26 +150,29 @@ func TestIsLocalTarget(t *testing.T) {
 	}
 }
 
-// TestServiceConfig: the service config names the balancer, the retry
-// policy on UNAVAILABLE only, and health checking.
+// TestServiceConfig: the service config names the balancer, waiting for a
+// ready server, the retry policy on UNAVAILABLE only, and health checking.
 func TestServiceConfig(t *testing.T) {
 	tests := []struct {
 		name        string
 		affinity    bool
 		attempts    int
 		health      bool
+		failFast    bool
 		contains    []string
 		notContains []string
 	}{
 		{name: "defaults", attempts: 4, health: true,
-			contains: []string{`"round_robin"`, `"maxAttempts":4`, `"retryableStatusCodes":["UNAVAILABLE"]`, `"healthCheckConfig"`, `"service":"modegrid.v1.ModegridService"`}},
+			contains: []string{`"round_robin"`, `"maxAttempts":4`, `"retryableStatusCodes":["UNAVAILABLE"]`, `"healthCheckConfig"`,
+				`"service":"modegrid.v1.ModegridService"`, `"waitForReady":true`}},
+		{name: "fail fast", attempts: 4, failFast: true, contains: []string{`"waitForReady":false`}},
 		{name: "affinity", affinity: true, attempts: 4, health: true,
 			contains: []string{`"ring_hash_experimental":{"requestHashHeader":"x-modegrid-model"}`}, notContains: []string{"round_robin"}},
 		{name: "no retries", attempts: 1, contains: []string{`"round_robin"`}, notContains: []string{"retryPolicy", "healthCheckConfig"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health)
+			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health, !tc.failFast)
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -117,7 +117,7 @@ func inProcess(t *testing.T, cfg server.Config) (*server.Server, string) {
 // afterwards.
 func runEngine(t *testing.T, addr string, cfg config) []sample {
 	t.Helper()
-	c, err := client.Dial(addr, client.WithMaxAttempts(1))
+	c, err := client.Dial(addr, client.WithMaxAttempts(1), client.WithFailFast())
 	if err != nil {
 		t.Fatal(err)
 	}

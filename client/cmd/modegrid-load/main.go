@@ -17,8 +17,9 @@
 // the child took to exit.
 //
 // Calls are made with the client library (package client) on one
-// connection, without retries, so every status the server returns is
-// counted as it came. A response that is OK but incomplete (a modes
+// connection, without retries and without waiting for a server that is not
+// ready (WithMaxAttempts(1), WithFailFast), so every status the server
+// returns, and every refusal while it is down, is counted as it came. A response that is OK but incomplete (a modes
 // stream short of its total, a DOS without values) is counted apart as
 // "incomplete"; there should never be one.
 package main
@@ -165,7 +166,7 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 		}
 		o.cfg.models = append(o.cfg.models, namedModel{name: name, crystal: c})
 	}
-	o.cfg.dial = []client.Option{client.WithMaxAttempts(1)}
+	o.cfg.dial = []client.Option{client.WithMaxAttempts(1), client.WithFailFast()}
 	if *token != "" {
 		o.cfg.dial = append(o.cfg.dial, client.WithToken(*token))
 	}

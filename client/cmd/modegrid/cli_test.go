@@ -67,7 +67,7 @@ func TestExitCodes(t *testing.T) {
 			wantStderr: []string{"unstable", "--allow-unstable"}},
 		{name: "unstable model allowed", args: []string{"thermal", "-m", testdata("unstable-chain.json"), "--grid", "32", "--temps", "300", "--allow-unstable"}, want: exitOK,
 			wantStderr: []string{"note: ", "imaginary modes on the 32-point grid were left out"}},
-		{name: "server unreachable", args: []string{"modes", "--server", closedPort(t), "-m", example("chain"), "--q", "0.5"}, want: exitUnreachable,
+		{name: "server unreachable", args: []string{"modes", "--server", closedPort(t), "--wait", "300ms", "-m", example("chain"), "--q", "0.5"}, want: exitUnreachable,
 			wantStderr: []string{"server is unreachable", "connection refused"}},
 		{name: "output not writable", args: []string{"modes", "-m", example("chain"), "--q", "0.5", "--out", filepath.Join(outDir, "x.csv")}, want: exitOther,
 			wantStderr: []string{"cannot write the output"}},

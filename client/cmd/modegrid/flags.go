@@ -8,6 +8,7 @@ import (
 	"io"
 	"os"
 	"strings"
+	"time"
 
 	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
@@ -28,6 +29,7 @@ func (e *env) note(format string, args ...any) {
 type connFlags struct {
 	server, token, ca, cert, key string
 	tls                          bool
+	wait                         time.Duration // how long a call waits for a ready server
 }
 
 func (c *connFlags) register(fs *flag.FlagSet) {
@@ -37,11 +39,15 @@ func (c *connFlags) register(fs *flag.FlagSet) {
 	fs.StringVar(&c.ca, "ca", "", "PEM file of the CA that signed the server certificate (implies --tls)")
 	fs.StringVar(&c.cert, "cert", "", "PEM client certificate for mutual TLS (with --key)")
 	fs.StringVar(&c.key, "key", "", "PEM client key for mutual TLS (with --cert)")
+	fs.DurationVar(&c.wait, "wait", client.DefaultReadyWait, "how long a call waits for an unreachable --server (restarting, say) before giving up")
 }
 
 func (c *connFlags) check() error {
 	if (c.cert == "") != (c.key == "") {
 		return usagef("--cert and --key go together")
+	}
+	if c.wait <= 0 {
+		return usagef("--wait must be > 0, got %v", c.wait)
 	}
 	if c.server == "" && (c.tls || c.ca != "" || c.cert != "") {
 		return usagef("--tls, --ca and --cert need --server (the embedded server is plaintext on loopback)")
@@ -54,7 +60,7 @@ func (c *connFlags) check() error {
 
 // options are the client options the flags ask for.
 func (c *connFlags) options() []client.Option {
-	var o []client.Option
+	o := []client.Option{client.WithReadyWait(c.wait)}
 	if c.tls {
 		o = append(o, client.WithTLS(nil))
 	}
