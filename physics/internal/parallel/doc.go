@@ -33,13 +33,15 @@
 //
 // # Cancellation
 //
-// The context passed to a loop is polled between indices (For), between
-// chunks (Chunks, Slices), and its Done channel is handed to For's body
-// builders, whose long computations (a large eigensolver) poll it
-// themselves; cancellation thus stops a loop within one index or chunk. A
-// loop returns ctx.Err() of the caller's context once every worker has
-// exited: nil when the work is complete. Returning early is the only way
-// a loop reports cancellation; indices not reached are simply not run.
+// Every loop runs its workers in a Group derived from the caller's
+// context, whose Done channel (closed when the caller's context ends or a
+// worker panics) is polled between indices (For) or chunks (Chunks,
+// Slices), and is handed to For's body builders, whose long computations
+// (a large eigensolver) poll it themselves; cancellation thus stops a loop
+// within one index or chunk. A loop returns ctx.Err() of the caller's
+// context once every worker has exited: nil means every index was run; on
+// a non-nil error the indices not reached were skipped and the caller
+// must discard the partial result.
 //
 // # Ordering and determinism
 //
