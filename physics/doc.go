@@ -160,6 +160,13 @@
 // for matrices of cancelCheckModes modes and more, inside the solver's
 // loops, so cancellation takes effect within milliseconds at any size.
 //
+// Every parallel loop runs on one internal helper (physics/internal/parallel,
+// whose doc.go is its manual). A panic in a worker does not end the
+// process: it stops the other workers and is raised again, once they have
+// all exited, on the goroutine that called the engine, as a *PanicError
+// carrying the worker's value and stack. SetFaultHook lets tests make a
+// worker panic.
+//
 // # Invariants
 //
 // D(q) is Hermitian by construction (only its lower triangle is built) and

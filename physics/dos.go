@@ -5,8 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"runtime"
-	"sync/atomic"
+
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
 // DOSMethod selects how ComputeDOS turns grid modes into a density of
@@ -512,11 +512,8 @@ const modeChunk = 256
 // n items: a fixed number independent of the core count, so that results
 // are bit-for-bit the same on any machine and under any scheduling.
 func chunkWorkers(n, chunk int) int {
-	return max(1, min(detSlices, (n+chunk-1)/chunk))
+	return parallel.SliceCount(n, chunk)
 }
-
-// detSlices is the most slices forChunks cuts its range into.
-const detSlices = 16
 
 // forChunks runs work over [0, n), cut into `slices` contiguous slices
 // (slices = chunkWorkers(n, chunk)), each processed in order in chunks of
@@ -524,29 +521,8 @@ const detSlices = 16
 // number, so that a caller keeping one accumulator per slice and merging
 // them in slice order gets sums that do not depend on scheduling or on
 // GOMAXPROCS (replicas must return identical bytes for the same request).
-// It checks ctx between chunks and returns ctx.Err() if ctx ended first.
+// It checks ctx between chunks and returns ctx.Err() if ctx ended first;
+// a worker's panic is re-raised here (parallel.Slices).
 func forChunks(ctx context.Context, n, chunk, slices int, work func(slice, lo, hi int)) error {
-	slices = max(1, slices)
-	var next atomic.Int64
-	workers := min(runtime.GOMAXPROCS(0), slices)
-	done := make(chan struct{}, workers)
-	for w := 0; w < workers; w++ {
-		go func() {
-			defer func() { done <- struct{}{} }()
-			for ctx.Err() == nil {
-				sl := int(next.Add(1)) - 1
-				if sl >= slices {
-					return
-				}
-				lo, hi := sl*n/slices, (sl+1)*n/slices
-				for c := lo; c < hi && ctx.Err() == nil; c += chunk {
-					work(sl, c, min(c+chunk, hi))
-				}
-			}
-		}()
-	}
-	for w := 0; w < workers; w++ {
-		<-done
-	}
-	return ctx.Err()
+	return parallel.Slices(ctx, n, chunk, slices, work)
 }

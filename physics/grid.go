@@ -7,9 +7,8 @@ import (
 	"context"
 	"fmt"
 	"math"
-	"runtime"
-	"sync"
-	"sync/atomic"
+
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
 // QPoint is a wavevector (fractional reciprocal coordinates) with its weight
@@ -339,67 +338,14 @@ func averageDegenerate(freq, vals []float64, stride int) {
 // small blocks and ctx is polled before every point, so cancellation stops
 // the work within one point (and within a fraction of one for large
 // matrices, whose solver polls done itself). It returns ctx.Err() if ctx
-// ended first.
+// ended first; a worker's panic is re-raised here (parallel.For).
 func parallelWork(ctx context.Context, n int, newWorker func(done <-chan struct{}) func(i int) bool) error {
-	workers := min(runtime.GOMAXPROCS(0), max(1, n))
-	const block = 16
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	done := ctx.Done()
-	for wk := 0; wk < workers; wk++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			fn := newWorker(done)
-			for {
-				lo := int(next.Add(block) - block)
-				if lo >= n {
-					return
-				}
-				for i := lo; i < min(lo+block, n); i++ {
-					select {
-					case <-done:
-						return
-					default:
-					}
-					if !fn(i) {
-						return
-					}
-				}
-			}
-		}()
-	}
-	wg.Wait()
-	return ctx.Err()
+	return parallel.For(ctx, n, 16, newWorker)
 }
 
 // parallelRange runs fn over [0, n) in chunks on all cores, checking ctx
-// between chunks; it returns ctx.Err() if ctx ended first.
+// between chunks; it returns ctx.Err() if ctx ended first; a worker's
+// panic is re-raised here (parallel.Chunks).
 func parallelRange(ctx context.Context, n int, fn func(lo, hi int)) error {
-	workers := runtime.GOMAXPROCS(0)
-	chunk := 64
-	var next int
-	var mu sync.Mutex
-	var wg sync.WaitGroup
-	for w := 0; w < workers; w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for {
-				if ctx.Err() != nil {
-					return
-				}
-				mu.Lock()
-				lo := next
-				next += chunk
-				mu.Unlock()
-				if lo >= n {
-					return
-				}
-				fn(lo, min(lo+chunk, n))
-			}
-		}()
-	}
-	wg.Wait()
-	return ctx.Err()
+	return parallel.Chunks(ctx, n, 64, fn)
 }

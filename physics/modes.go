@@ -8,8 +8,9 @@ import (
 	"fmt"
 	"math"
 	"runtime"
-	"sync"
 	"sync/atomic"
+
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
 // MaxQ bounds every component of a wavevector the engine accepts, in
@@ -322,8 +323,8 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 	workers := min(runtime.GOMAXPROCS(0), nchunks)
 	window := 2 * workers
 
-	ctx, cancel := context.WithCancel(ctx)
-	defer cancel()
+	g, ctx := parallel.NewGroup(ctx) // a worker's panic cancels ctx; g.Wait re-raises it
+	defer g.Stop()
 	slots := make([]chan ModeChunk, window)
 	for k := range slots {
 		slots[k] = make(chan ModeChunk, 1)
@@ -333,12 +334,9 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 		tokens <- struct{}{}
 	}
 	var next atomic.Int64
-	var wg sync.WaitGroup
 	n := m.Modes()
 	for wk := 0; wk < workers; wk++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
+		g.Go(func() {
 			w := m.newPointWork(ctx.Done())
 			for {
 				select {
@@ -360,7 +358,7 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 				}
 				slots[c%window] <- mc
 			}
-		}()
+		})
 	}
 	var err error
 	for c := 0; c < nchunks && err == nil; c++ {
@@ -374,8 +372,8 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 			err = ctx.Err()
 		}
 	}
-	cancel()
-	wg.Wait()
+	g.Stop()
+	g.Wait()
 	return err
 }
 

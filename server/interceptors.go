@@ -2,6 +2,7 @@ package server
 
 import (
 	"context"
+	"fmt"
 	"log/slog"
 	"runtime/debug"
 	"strings"
@@ -11,6 +12,8 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/peer"
 	"google.golang.org/grpc/status"
+
+	"github.com/materials-lab/modegrid/physics"
 )
 
 // callInfo collects what a handler learns about its call for the log line:
@@ -139,10 +142,22 @@ type contextStream struct {
 func (c *contextStream) Context() context.Context { return c.ctx }
 
 // panicked logs and counts a recovered panic and returns the INTERNAL
-// status sent to the client (which reveals nothing of the panic).
+// status sent to the client (which reveals nothing of the panic). The log
+// is one structured record: method, panic value and stack (a JSON handler
+// writes it on one line). A panic of an engine worker, re-raised on the
+// calling goroutine as a *physics.PanicError, is logged with the worker's
+// original value and stack (where it happened), and the stack where it was
+// recovered as caller_stack.
 func (s *Service) panicked(method string, p any, stack []byte) error {
 	s.met.panics.Inc()
-	s.log.Error("panic recovered", "method", method, "panic", p, "stack", string(stack))
+	attrs := []any{"method", method}
+	if pe, ok := p.(*physics.PanicError); ok {
+		attrs = append(attrs, "panic", fmt.Sprint(pe.Value), "where", "engine worker",
+			"stack", string(pe.Stack), "caller_stack", string(stack))
+	} else {
+		attrs = append(attrs, "panic", fmt.Sprint(p), "stack", string(stack))
+	}
+	s.log.Error("panic recovered", attrs...)
 	return status.Error(codes.Internal, "internal error (logged on the server)")
 }
 

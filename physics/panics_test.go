@@ -1,0 +1,82 @@
+// A panic in a parallel worker of the engine reaches the caller.
+
+package physics
+
+import (
+	"context"
+	"testing"
+)
+
+type faultKey struct{}
+
+// TestWorkerPanicReachesCaller: with a fault hook that panics in the
+// workers of computations whose context is marked, every parallel entry
+// point of the engine panics on the caller's goroutine with a *PanicError
+// carrying the hook's value (instead of ending the process), and the same
+// computation on an unmarked context still succeeds.
+func TestWorkerPanicReachesCaller(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	spec, err := GridSpec{Mesh: [3]int{6, 6, 6}}.Normalize(3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g, err := m.GridModes(testCtx(t), spec, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	restore := SetFaultHook(func(ctx context.Context) {
+		if v := ctx.Value(faultKey{}); v != nil {
+			panic(v)
+		}
+	})
+	defer restore()
+	cases := []struct {
+		name string
+		run  func(ctx context.Context) error
+	}{
+		{"GridModes", func(ctx context.Context) error {
+			_, err := m.GridModes(ctx, spec, GridOptions{NoSymmetry: true})
+			return err
+		}},
+		{"GridModes reduced", func(ctx context.Context) error {
+			_, err := m.GridModes(ctx, spec, GridOptions{})
+			return err
+		}},
+		{"StreamModes", func(ctx context.Context) error {
+			return m.StreamModes(ctx, spec.Points(), ModeOptions{ChunkSize: 8}, func(ModeChunk) error { return nil })
+		}},
+		{"ComputeDOS tetrahedron", func(ctx context.Context) error {
+			_, err := ComputeDOS(ctx, m, g, DOSOptions{})
+			return err
+		}},
+		{"ComputeDOS Gaussian", func(ctx context.Context) error {
+			_, err := ComputeDOS(ctx, m, g, DOSOptions{Method: Gaussian})
+			return err
+		}},
+		{"ComputeThermal", func(ctx context.Context) error {
+			_, err := ComputeThermal(ctx, m, g, ThermalOptions{TempsK: []float64{10, 100, 300}})
+			return err
+		}},
+	}
+	for _, tt := range cases {
+		t.Run(tt.name, func(t *testing.T) {
+			value := "injected fault in " + tt.name
+			ctx := context.WithValue(testCtx(t), faultKey{}, value)
+			p := func() (p any) {
+				defer func() { p = recover() }()
+				_ = tt.run(ctx)
+				return nil
+			}()
+			pe, ok := p.(*PanicError)
+			if !ok {
+				t.Fatalf("recovered %T %v; want *PanicError", p, p)
+			}
+			if pe.Value != value || len(pe.Stack) == 0 {
+				t.Errorf("PanicError{Value: %v, %d bytes of stack}; want value %q and a stack", pe.Value, len(pe.Stack), value)
+			}
+			if err := tt.run(testCtx(t)); err != nil {
+				t.Errorf("unmarked run after the panic: %v", err)
+			}
+		})
+	}
+}
