@@ -26,6 +26,11 @@ type Service struct {
 	cache *cache.Cache
 	gate  *gate.Gate
 	met   *metrics
+	// budget is the server-wide memory budget of computations and the
+	// compute-time bound (admission.go); reductions the grid reductions
+	// kept for reuse, whose bound is taken out of the budget.
+	budget     *budget
+	reductions *physics.ReductionCache
 
 	// hook, when set (tests only), runs at the start of every computation,
 	// after it obtained its slot.
