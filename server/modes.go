@@ -132,6 +132,7 @@ func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (
 	}
 	return estimate{cost: c, field: field, change: change}, per
 }
+
 // modesToProto converts the modes at one point, frequencies in unit.
 func modesToProto(pm *physics.PointModes, unit physics.Unit) *modegridv1.Modes {
 	out := &modegridv1.Modes{
