@@ -49,10 +49,11 @@ const (
 	FallbackMemoryLimit = 4 << 30
 	// MinMemoryBudget is the smallest derived budget.
 	MinMemoryBudget = 64 << 20
-	// DefaultReductionCacheBytes bounds the grid reductions and simplex
-	// classes the server keeps for reuse (physics.ReductionCache); the
-	// bound is taken out of the memory budget.
-	DefaultReductionCacheBytes = 64 << 20
+	// MaxReductionCacheBytes bounds the grid reductions and simplex
+	// classes the server keeps for reuse (physics.ReductionCache): a
+	// quarter of the result cache's bound, at most this. The bound is
+	// taken out of the memory budget.
+	MaxReductionCacheBytes = 64 << 20
 	// DefaultMaxComputeSeconds bounds the estimated compute time of one
 	// request (estimated work at physics.FlopsPerCoreSecond on every core).
 	DefaultMaxComputeSeconds = 300
@@ -164,7 +165,7 @@ type budget struct {
 func newBudget(cfg Config, reg prometheus.Registerer) *budget {
 	total, how := cfg.MemoryBudget, "--memory-budget"
 	if total <= 0 {
-		total, how = DerivedMemoryBudget(cfg.cacheBytes(), DefaultReductionCacheBytes)
+		total, how = DerivedMemoryBudget(cfg.cacheBytes(), cfg.reductionBytes())
 	}
 	b := &budget{sem: semaphore.NewWeighted(total), total: total, wait: cfg.QueueTimeout,
 		maxSecs: cfg.MaxComputeSeconds, cores: runtime.GOMAXPROCS(0), describe: how}
@@ -182,6 +183,12 @@ func newBudget(cfg Config, reg prometheus.Registerer) *budget {
 			Help: "Memory reserved from the budget by running computations, bytes (their estimates)."}, func() float64 { return float64(b.inUse.Load()) }),
 	)
 	return b
+}
+
+// reductionBytes is the bound of the reduction cache: a quarter of the
+// result cache's, at most MaxReductionCacheBytes.
+func (c Config) reductionBytes() int64 {
+	return min(c.cacheBytes()/4, MaxReductionCacheBytes)
 }
 
 // estimate is a request's estimated cost and what the client can change.

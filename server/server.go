@@ -284,7 +284,7 @@ func newService(cfg Config, reg prometheus.Registerer) *Service {
 		},
 	})
 	s.met = newMetrics(reg, s.gate, s.cache, cfg.Backend, cfg.Version)
-	s.reductions = physics.NewReductionCache(DefaultReductionCacheBytes)
+	s.reductions = physics.NewReductionCache(cfg.reductionBytes())
 	s.budget = newBudget(cfg, reg)
 	return s
 }

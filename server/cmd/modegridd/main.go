@@ -112,7 +112,7 @@ func newFlags(o *options) *flag.FlagSet {
 	o.maxMsg = server.DefaultMaxMsgBytes
 	fs.Var(&o.maxMsg, "max-msg-bytes", "cap: largest gRPC message received or sent, bytes")
 	fs.IntVar(&c.ChunkPoints, "chunk-points", server.DefaultChunkPoints, "default q-points per streamed modes message")
-	fs.Var(&o.memBudget, "memory-budget", "memory all computations together may take by their estimates, bytes (0: the container's memory limit, cgroup memory.max or GOMEMLIMIT, minus --cache-bytes, 64 MiB of grid reductions and a 256 MiB runtime reserve)")
+	fs.Var(&o.memBudget, "memory-budget", "memory all computations together may take by their estimates, bytes (0: the container's memory limit, cgroup memory.max or GOMEMLIMIT, minus --cache-bytes, grid reductions (a quarter of --cache-bytes, at most 64 MiB) and a 256 MiB runtime reserve)")
 	fs.Float64Var(&c.MaxComputeSeconds, "max-compute-seconds", server.DefaultMaxComputeSeconds, "bound on the estimated compute time of one request, seconds (work at a conservative 1 GFlop/s per core)")
 	fs.Var(&o.maxChunk, "max-chunk-bytes", "bound on the mode data of one streamed message, bytes (0: 1 MiB or a quarter of --max-msg-bytes if less)")
 	fs.IntVar(&c.StabilityMesh, "stability-mesh", server.DefaultStabilityMesh, "points per reciprocal direction of the coarse grid CheckModel searches for imaginary modes")
