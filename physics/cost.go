@@ -230,7 +230,7 @@ func DOSCost(s GridSize, opt DOSOptions, samples int, reduced bool) Cost {
 			// Classes: keys, the radix sort's buffer and its digit
 			// counts (1<<16 ints), the classes; then one accumulator per
 			// slice of at most one class per simplex.
-			c.Bytes += 32*simplices + 8<<16
+			c.Bytes += 32*simplices + 8<<16 + 16<<10 // 16 kB: the cache key and headers
 			accs = int64(chunkWorkers(int(simplices), classChunk))
 		}
 	}
