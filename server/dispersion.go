@@ -62,8 +62,19 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			}
 		}
 	}
+	var est estimate
+	if e != nil && len(vs.list) == 0 {
+		n := opt.Points
+		if opt.SpacingInvA > 0 {
+			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
+		}
+		c := physics.DispersionCost(e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.Connect)
+		c.Bytes += 2 * int64(n) * int64(8*e.m.Modes()+64)
+		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
+		s.budget.check(&vs, est)
+	}
 	if e != nil && opt.Points > 0 {
-		s.checkResponseSize(&vs, "points", float64(opt.Points)*float64(8*e.m.Modes()+64), fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes()))
+		s.checkReply(&vs, "points", float64(opt.Points)*float64(8*e.m.Modes()+64), fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes()))
 	}
 	if err := vs.err(); err != nil {
 		return nil, err
@@ -93,10 +104,12 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 
 	return cachedResult(ctx, s, kindDispersion, e.hash, canon, dispersionCodec, func(ctx context.Context) (*modegridv1.ComputeDispersionResponse, error) {
 		var samples []physics.PathSample
-		err := s.run(ctx, kindDispersion, func(ctx context.Context) error {
-			var err error
-			samples, err = e.m.Dispersion(ctx, corners, opt)
-			return err
+		err := s.admitted(ctx, est, func(ctx context.Context) error {
+			return s.run(ctx, kindDispersion, func(ctx context.Context) error {
+				var err error
+				samples, err = e.m.Dispersion(ctx, corners, opt)
+				return err
+			})
 		})
 		if err != nil {
 			return nil, err

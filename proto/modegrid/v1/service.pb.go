@@ -2440,7 +2440,11 @@ type CheckModelResponse struct {
 	// coordinates.
 	StandardPoints []*PathPoint `protobuf:"bytes,16,rep,name=standard_points,json=standardPoints,proto3" json:"standard_points,omitempty"`
 	// Canonical parameters of the check (e.g. the coarse stability grid).
-	Parameters    string `protobuf:"bytes,17,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	Parameters string `protobuf:"bytes,17,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Estimated cost on this server of requests typical for this model,
+	// from the same estimators admission control uses: whether each would be
+	// admitted, its peak memory and its compute time.
+	TypicalCosts  []*RequestCost `protobuf:"bytes,18,rep,name=typical_costs,json=typicalCosts,proto3" json:"typical_costs,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2592,6 +2596,88 @@ func (x *CheckModelResponse) GetParameters() string {
 		return x.Parameters
 	}
 	return ""
+}
+
+func (x *CheckModelResponse) GetTypicalCosts() []*RequestCost {
+	if x != nil {
+		return x.TypicalCosts
+	}
+	return nil
+}
+
+// RequestCost is the estimated cost of one kind of request on a model.
+type RequestCost struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// What is estimated, e.g. "dos 24x24x24 tetrahedron".
+	Request string `protobuf:"bytes,1,opt,name=request,proto3" json:"request,omitempty"`
+	// Estimated peak memory of the computation, bytes.
+	PeakBytes uint64 `protobuf:"varint,2,opt,name=peak_bytes,json=peakBytes,proto3" json:"peak_bytes,omitempty"`
+	// Estimated compute time on this server's cores, seconds (at the
+	// server's conservative calibrated rate).
+	Seconds float64 `protobuf:"fixed64,3,opt,name=seconds,proto3" json:"seconds,omitempty"`
+	// Whether the request fits this server's memory budget and compute-time
+	// bound (it may still have to wait for memory while others run).
+	Admitted      bool `protobuf:"varint,4,opt,name=admitted,proto3" json:"admitted,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RequestCost) Reset() {
+	*x = RequestCost{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RequestCost) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RequestCost) ProtoMessage() {}
+
+func (x *RequestCost) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
+func (*RequestCost) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *RequestCost) GetRequest() string {
+	if x != nil {
+		return x.Request
+	}
+	return ""
+}
+
+func (x *RequestCost) GetPeakBytes() uint64 {
+	if x != nil {
+		return x.PeakBytes
+	}
+	return 0
+}
+
+func (x *RequestCost) GetSeconds() float64 {
+	if x != nil {
+		return x.Seconds
+	}
+	return 0
+}
+
+func (x *RequestCost) GetAdmitted() bool {
+	if x != nil {
+		return x.Admitted
+	}
+	return false
 }
 
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
@@ -2764,7 +2850,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xcc\x05\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\x8b\x06\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -2790,7 +2876,14 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x0fstandard_points\x18\x10 \x03(\v2\x16.modegrid.v1.PathPointR\x0estandardPoints\x12\x1e\n" +
 	"\n" +
 	"parameters\x18\x11 \x01(\tR\n" +
-	"parameters*\x95\x01\n" +
+	"parameters\x12=\n" +
+	"\rtypical_costs\x18\x12 \x03(\v2\x18.modegrid.v1.RequestCostR\ftypicalCosts\"|\n" +
+	"\vRequestCost\x12\x18\n" +
+	"\arequest\x18\x01 \x01(\tR\arequest\x12\x1d\n" +
+	"\n" +
+	"peak_bytes\x18\x02 \x01(\x04R\tpeakBytes\x12\x18\n" +
+	"\aseconds\x18\x03 \x01(\x01R\aseconds\x12\x1a\n" +
+	"\badmitted\x18\x04 \x01(\bR\badmitted*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
@@ -2839,7 +2932,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 26)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 27)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -2872,10 +2965,11 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*Crystal)(nil),                   // 31: modegrid.v1.Crystal
+	(*RequestCost)(nil),               // 31: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 32: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	31, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	32, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
 	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
 	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
@@ -2913,21 +3007,22 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	26, // 38: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 39: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 40: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 41: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 42: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 43: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 44: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 45: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 46: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 47: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	43, // [43:48] is the sub-list for method output_type
-	38, // [38:43] is the sub-list for method input_type
-	38, // [38:38] is the sub-list for extension type_name
-	38, // [38:38] is the sub-list for extension extendee
-	0,  // [0:38] is the sub-list for field type_name
+	31, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	26, // 39: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 40: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 41: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 42: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 43: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 44: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 45: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 46: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 47: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 48: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	44, // [44:49] is the sub-list for method output_type
+	39, // [39:44] is the sub-list for method input_type
+	39, // [39:39] is the sub-list for extension type_name
+	39, // [39:39] is the sub-list for extension extendee
+	0,  // [0:39] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -2951,7 +3046,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   26,
+			NumMessages:   27,
 			NumExtensions: 0,
 			NumServices:   1,
 		},
