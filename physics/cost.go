@@ -291,14 +291,20 @@ func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bo
 		}
 	}
 	c.Bytes += T * (24 + 8*sums) * 2
-	c.Bytes += T*int64(unsafe.Sizeof(ThermalPoint{})) + elasticThetaBytes
+	// Per point, the θ_D status reason; per site and point, the divergence
+	// reason of low-dimensional displacements (short strings, 128 B each).
+	c.Bytes += T*(int64(unsafe.Sizeof(ThermalPoint{}))+reasonBytes) + elasticThetaBytes
 	if msd {
-		c.Bytes += T * int64(s.Sites) * int64(unsafe.Sizeof(SiteMSD{}))
+		c.Bytes += T * int64(s.Sites) * (int64(unsafe.Sizeof(SiteMSD{})) + reasonBytes)
 	}
 	c.Flops += float64(modes) * (20 + 2*float64(nc)) // collecting the modes
 	c.Flops += float64(T) * float64(modes) * (40 + 2*float64(nc))
 	return c
 }
+
+// reasonBytes bounds one explanatory string of a thermal result (a θ_D
+// status reason, a divergence reason).
+const reasonBytes = 128
 
 // elasticThetaBytes bounds what the elastic Debye temperature of a thermal
 // result allocates once the model's long-wave limit is known: 512
