@@ -456,6 +456,7 @@ func dispersionSeeds(tb testing.TB) []proto.Message {
 		path := []*modegridv1.PathPoint{{Label: "G", Q: &modegridv1.QPoint{}}, {Label: "X", Q: &modegridv1.QPoint{Q1: 0.5}}, {Label: "G"}, {Label: "Y", Q: &modegridv1.QPoint{Q1: 0.25}, BreakBefore: true}}
 		out = append(out,
 			&modegridv1.ComputeDispersionRequest{Model: src, Path: path, Points: 40, ConnectBranches: true},
+			&modegridv1.ComputeDispersionRequest{Model: src, Path: path, Points: 40, FollowModes: true, SiteWeights: true},
 			&modegridv1.ComputeDispersionRequest{Model: src, Path: path[:2], SpacingInvA: 0.05, Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_RAD_PER_S})
 	}
 	chain := inline(example(tb, "chain"))
