@@ -76,18 +76,27 @@ func (k siteKey) mix(w []float64, def color.Color) color.Color {
 	if len(w) == 0 || len(w) != len(k.group) {
 		return def
 	}
-	var r, g, b, sum float64
-	for s, x := range w {
-		cr, cg, cb, _ := k.color(k.group[s]).RGBA()
-		r, g, b, sum = r+x*float64(cr), g+x*float64(cg), b+x*float64(cb), sum+x
+	var sum float64
+	for _, x := range w {
+		sum += x
 	}
 	if !(sum > 0) {
 		return def
 	}
-	// Quantised to 1/32 of the range so runs of one colour join into one
-	// polyline (smooth joins) without a visible step.
-	q := func(v float64) uint8 { return uint8(math.Round(v/sum/0x101/8) * 8) }
-	return color.RGBA{R: q(r), G: q(g), B: q(b), A: 0xff}
+	// Shares rounded to 1/32, so runs of one colour join into one polyline
+	// (smooth joins) without a visible step, and a mode on one site has
+	// exactly that site's colour.
+	var r, g, b, tot float64
+	for s, x := range w {
+		q := math.Round(32*x/sum) / 32
+		cr, cg, cb, _ := k.color(k.group[s]).RGBA()
+		r, g, b, tot = r+q*float64(cr>>8), g+q*float64(cg>>8), b+q*float64(cb>>8), tot+q
+	}
+	if tot == 0 {
+		return def
+	}
+	c8 := func(v float64) uint8 { return uint8(math.Round(v / tot)) }
+	return color.RGBA{R: c8(r), G: c8(g), B: c8(b), A: 0xff}
 }
 
 // dispersionFigure is what the dispersion figure shows.

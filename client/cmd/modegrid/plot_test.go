@@ -445,3 +445,28 @@ func TestCornerTicks(t *testing.T) {
 		t.Errorf("%d pieces; want 2", n)
 	}
 }
+
+// pngHasColor says whether any pixel of a PNG has exactly colour c.
+func pngHasColor(t *testing.T, file string, c color.Color) bool {
+	t.Helper()
+	f, err := os.Open(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	img, err := png.Decode(f)
+	if err != nil {
+		t.Fatalf("%s does not decode as PNG: %v", file, err)
+	}
+	rgba, ok := img.(*image.RGBA)
+	if !ok {
+		t.Fatalf("%s: %T; want RGBA", file, img)
+	}
+	r, g, b, _ := c.RGBA()
+	for i := 0; i+3 < len(rgba.Pix); i += 4 {
+		if uint32(rgba.Pix[i]) == r>>8 && uint32(rgba.Pix[i+1]) == g>>8 && uint32(rgba.Pix[i+2]) == b>>8 {
+			return true
+		}
+	}
+	return false
+}
