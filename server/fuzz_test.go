@@ -456,7 +456,6 @@ func dispersionSeeds(tb testing.TB) []proto.Message {
 		path := []*modegridv1.PathPoint{{Label: "G", Q: &modegridv1.QPoint{}}, {Label: "X", Q: &modegridv1.QPoint{Q1: 0.5}}, {Label: "G"}, {Label: "Y", Q: &modegridv1.QPoint{Q1: 0.25}, BreakBefore: true}}
 		out = append(out,
 			&modegridv1.ComputeDispersionRequest{Model: src, Path: path, Points: 40, ConnectBranches: true},
-			&modegridv1.ComputeDispersionRequest{Model: src, Path: path, Points: 40, FollowModes: true, SiteWeights: true},
 			&modegridv1.ComputeDispersionRequest{Model: src, Path: path[:2], SpacingInvA: 0.05, Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_RAD_PER_S})
 	}
 	chain := inline(example(tb, "chain"))
@@ -469,7 +468,8 @@ func dispersionSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "W"}, {Label: "G", Q: &modegridv1.QPoint{Q2: 1}}}, SpacingInvA: math.NaN()},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, SpacingInvA: 1e-300},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "G"}}, Points: 2},
-		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Q: &modegridv1.QPoint{Q1: -1e308}}}, Points: 3})
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Q: &modegridv1.QPoint{Q1: -1e308}}}, Points: 3},
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, Points: 40, FollowModes: true, SiteWeights: true})
 }
 
 func dosSeeds(tb testing.TB) []proto.Message {
