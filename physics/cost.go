@@ -359,7 +359,10 @@ func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
 // frequencies kept from the streamed chunks), the stream (eigenvectors in
 // chunks of at most 64 points when connecting branches) and the branch
 // connector (about five n² matrices, plus an output row per sample).
-func DispersionCost(s GridSize, samples int, connect bool) Cost {
+// vectors is true when the path needs eigenvectors (following modes or
+// per-site weights); weights adds the per-sample site shares.
+func DispersionCost(s GridSize, samples int, vectors, weights bool) Cost {
+	connect := vectors
 	n := int64(s.modes())
 	S := int64(samples)
 	chunk := DefaultChunkPoints
@@ -371,6 +374,9 @@ func DispersionCost(s GridSize, samples int, connect bool) Cost {
 	if connect {
 		c.Bytes += 80*n*n + S*(8*n+16*n+64)
 		c.Flops += float64(S) * 8 * float64(n*n*n)
+	}
+	if weights {
+		c.Bytes += S * 8 * n * int64(s.Sites)
 	}
 	return c
 }

@@ -367,7 +367,7 @@ func (s *Service) typicalCosts(e *modelEntry) []*modegridv1.RequestCost {
 	add("thermal "+label+" 100 temperatures", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps}), true)
 	add("thermal "+label+" 100 temperatures msd", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps, MSD: true}), true)
 	size := e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
-	add("dispersion 100 points", estimate{cost: physics.DispersionCost(size, 100, false)}, true)
+	add("dispersion 100 points", estimate{cost: physics.DispersionCost(size, 100, false, false)}, true)
 	opt := physics.ModeOptions{Eigenvectors: true}
 	est, per := s.modesCost(e, 1000, opt)
 	add("modes 1000 q-points eigenvectors", est, per <= float64(s.cfg.MaxMsgBytes))

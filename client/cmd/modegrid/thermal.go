@@ -1,10 +1,14 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"strings"
 
+	"google.golang.org/protobuf/proto"
+
+	"github.com/materials-lab/modegrid/client"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
@@ -15,7 +19,12 @@ const thermalSummary = `Harmonic thermal properties per mole of unit cells: heat
 entropy S, free energy F and internal energy U (zero-point energy included),
 and the Debye temperature θD(T) that reproduces Cv, at --temps
 (start:stop:step in K, or a list). --msd adds mean-square displacements per
-site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.`
+site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.
+--measured FILE.csv compares measured heat capacities with the model (on
+the figure, with error bars) and makes the output the residuals
+(measured − model, and over σ) instead of the listing; its header is
+T_K,Cv_J_per_molcell_K[,sigma] (per mole of unit cells) or
+T_K,Cv_J_per_molatom_K[,sigma] (per mole of atoms), Cv at constant volume.`
 
 func cmdThermal(args []string, e *env) error {
 	c := newModelCommand("thermal", true)
@@ -26,6 +35,7 @@ func cmdThermal(args []string, e *env) error {
 	msd := fs.Bool("msd", false, "also give mean-square displacements (Uiso, B) per site")
 	allowUnstable := fs.Bool("allow-unstable", false, "leave imaginary modes out instead of refusing an unstable model")
 	dosRoute := fs.Bool("dos-route", false, "integrate over the tetrahedron DOS instead of summing the grid's modes")
+	measured := fs.String("measured", "", "CSV of measured heat capacities to compare with (see above)")
 	if err := c.parse(args, e, thermalSummary); err != nil {
 		return err
 	}
@@ -38,6 +48,12 @@ func cmdThermal(args []string, e *env) error {
 		return err
 	}
 	d, p := dims(crystal)
+	var rows []measuredRow
+	if *measured != "" {
+		if rows, err = readThermalMeasured(*measured, len(crystal.GetSites())); err != nil {
+			return usagef("--measured: %v", err)
+		}
+	}
 	set, err := qs.set(d, true)
 	if err != nil {
 		return err
@@ -72,11 +88,50 @@ func cmdThermal(args []string, e *env) error {
 	if n := resp.GetImaginaryModesExcluded(); n > 0 {
 		e.note("%d imaginary modes on the %s were left out of the sums", n, describe(set))
 	}
-	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp) }); err != nil {
+	var points []plotPoint
+	if rows != nil {
+		if points, err = c.thermalResiduals(ctx, cl, e, req, rows); err != nil {
+			return err
+		}
+	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp) }); err != nil {
 		return err
 	}
 	if c.out.plot == "" {
 		return nil
 	}
-	return plotThermal(c.out.plot, c.out.kind, resp, len(crystal.GetSites()), p, crystal.GetName())
+	return plotThermal(c.out.plot, c.out.kind, thermalFigure{th: resp, sites: len(crystal.GetSites()), pol: p,
+		measured: points, title: crystal.GetName()})
+}
+
+// thermalResiduals asks the model's Cv at the measured temperatures (the
+// request of the listing with those temperatures) and writes the residuals
+// as the output.
+func (c *modelCommand) thermalResiduals(ctx context.Context, cl *client.Client, e *env, req *modegridv1.ComputeThermalRequest,
+	rows []measuredRow) ([]plotPoint, error) {
+	at := proto.Clone(req).(*modegridv1.ComputeThermalRequest)
+	at.Range, at.TemperaturesK, at.Msd = nil, nil, false
+	for _, m := range rows {
+		at.TemperaturesK = append(at.TemperaturesK, m.x)
+	}
+	done := e.prog.running("heat capacity at the measured temperatures")
+	resp, err := cl.Thermal(ctx, at)
+	done()
+	if err != nil {
+		return nil, err
+	}
+	cv := map[float64]float64{}
+	for _, p := range resp.GetPoints() {
+		cv[p.GetTemperatureK()] = p.GetHeatCapacityJPerMolK()
+	}
+	rs := make([]residual, len(rows))
+	for i, m := range rows {
+		v, ok := cv[m.x]
+		if !ok {
+			return nil, fmt.Errorf("thermal: the server gave no point at the measured %v K", m.x)
+		}
+		rs[i] = newResidual(m, v)
+	}
+	t := residualTable{xName: "T (K)", xCSV: "T_K", yName: "Cv (J/(mol·K), per mole of cells)", yCSV: "Cv_J_per_molcell_K"}
+	c.out.explicit = true // with --measured the residuals are the output, also beside --plot
+	return plotPoints(rows), c.out.write(e.stdout, func(w io.Writer) error { return writeResiduals(w, c.out.format, t, rs) })
 }

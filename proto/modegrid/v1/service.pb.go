@@ -1093,11 +1093,21 @@ type ComputeDispersionRequest struct {
 	SpacingInvA float64 `protobuf:"fixed64,4,opt,name=spacing_inv_a,json=spacingInvA,proto3" json:"spacing_inv_a,omitempty"`
 	// Unit of the frequencies.
 	Unit FrequencyUnit `protobuf:"varint,5,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
-	// Connect branches across crossings by eigenvector overlap instead of
-	// sorting frequencies at each point.
+	// Deprecated: use follow_modes, which means the same. Still honoured: the
+	// branches are followed when either field is true.
+	//
+	// Deprecated: Marked as deprecated in modegrid/v1/service.proto.
 	ConnectBranches bool `protobuf:"varint,6,opt,name=connect_branches,json=connectBranches,proto3" json:"connect_branches,omitempty"`
-	unknownFields   protoimpl.UnknownFields
-	sizeCache       protoimpl.SizeCache
+	// Order the frequencies of each sample by branch, following each mode from
+	// sample to sample by the overlap of its eigenvector with the previous
+	// sample's (so branches keep their identity through crossings), instead of
+	// ascending. Each piece of the path starts in ascending order.
+	FollowModes bool `protobuf:"varint,7,opt,name=follow_modes,json=followModes,proto3" json:"follow_modes,omitempty"`
+	// Also return, per sample and branch, how much of the mode's motion each
+	// site carries (DispersionSample.site_weights).
+	SiteWeights   bool `protobuf:"varint,8,opt,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ComputeDispersionRequest) Reset() {
@@ -1165,9 +1175,24 @@ func (x *ComputeDispersionRequest) GetUnit() FrequencyUnit {
 	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
 }
 
+// Deprecated: Marked as deprecated in modegrid/v1/service.proto.
 func (x *ComputeDispersionRequest) GetConnectBranches() bool {
 	if x != nil {
 		return x.ConnectBranches
+	}
+	return false
+}
+
+func (x *ComputeDispersionRequest) GetFollowModes() bool {
+	if x != nil {
+		return x.FollowModes
+	}
+	return false
+}
+
+func (x *ComputeDispersionRequest) GetSiteWeights() bool {
+	if x != nil {
+		return x.SiteWeights
 	}
 	return false
 }
@@ -1182,7 +1207,17 @@ type DispersionSample struct {
 	// Label when this sample is a path corner, otherwise empty.
 	Label string `protobuf:"bytes,3,opt,name=label,proto3" json:"label,omitempty"`
 	// Frequencies per branch, response unit.
-	Frequencies   []float64 `protobuf:"fixed64,4,rep,packed,name=frequencies,proto3" json:"frequencies,omitempty"`
+	Frequencies []float64 `protobuf:"fixed64,4,rep,packed,name=frequencies,proto3" json:"frequencies,omitempty"`
+	// With site_weights: the share of each site in each branch's motion,
+	// branch-major, site_weights[b·S + s] for branch b (the order of
+	// frequencies) and site s (model order), S = number of sites. The share is
+	// Σ_axes |e_s,axis|² of the normalised eigenvector e of the dynamical
+	// matrix (mass-weighted, so it is the site's share of the mode's kinetic
+	// energy); dimensionless, in [0, 1], summing to 1 over the sites of a
+	// branch. Within a group of degenerate modes (frequencies within 1e-6 THz)
+	// the individual eigenvectors are arbitrary, so each mode of the group gets
+	// the group's mean shares. Empty unless asked for.
+	SiteWeights   []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1241,6 +1276,13 @@ func (x *DispersionSample) GetLabel() string {
 func (x *DispersionSample) GetFrequencies() []float64 {
 	if x != nil {
 		return x.Frequencies
+	}
+	return nil
+}
+
+func (x *DispersionSample) GetSiteWeights() []float64 {
+	if x != nil {
+		return x.SiteWeights
 	}
 	return nil
 }
@@ -2736,19 +2778,22 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\tPathPoint\x12\x14\n" +
 	"\x05label\x18\x01 \x01(\tR\x05label\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12!\n" +
-	"\fbreak_before\x18\x03 \x01(\bR\vbreakBefore\"\x8d\x02\n" +
+	"\fbreak_before\x18\x03 \x01(\bR\vbreakBefore\"\xd7\x02\n" +
 	"\x18ComputeDispersionRequest\x12.\n" +
 	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12*\n" +
 	"\x04path\x18\x02 \x03(\v2\x16.modegrid.v1.PathPointR\x04path\x12\x16\n" +
 	"\x06points\x18\x03 \x01(\rR\x06points\x12\"\n" +
 	"\rspacing_inv_a\x18\x04 \x01(\x01R\vspacingInvA\x12.\n" +
-	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12)\n" +
-	"\x10connect_branches\x18\x06 \x01(\bR\x0fconnectBranches\"\x93\x01\n" +
+	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12-\n" +
+	"\x10connect_branches\x18\x06 \x01(\bB\x02\x18\x01R\x0fconnectBranches\x12!\n" +
+	"\ffollow_modes\x18\a \x01(\bR\vfollowModes\x12!\n" +
+	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xb6\x01\n" +
 	"\x10DispersionSample\x12$\n" +
 	"\x0edistance_inv_a\x18\x01 \x01(\x01R\fdistanceInvA\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x14\n" +
 	"\x05label\x18\x03 \x01(\tR\x05label\x12 \n" +
-	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\"\xc3\x01\n" +
+	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\x12!\n" +
+	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\"\xc3\x01\n" +
 	"\x19ComputeDispersionResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
