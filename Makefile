@@ -5,7 +5,7 @@ VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo dev)
 LDFLAGS := -s -w -X main.version=$(VERSION)
 PKGS    := ./...
 
-.PHONY: all build test demo proto proto-check lint vet bench image clean fuzz fuzz-short
+.PHONY: all build test demo proto proto-check lint vet bench image clean fuzz fuzz-short adversarial
 
 all: build
 
@@ -41,6 +41,14 @@ fuzz:
 # Each fuzz target for a few seconds (part of make test).
 fuzz-short:
 	@$(MAKE) --no-print-directory fuzz FUZZTIME=$(FUZZTIME_SHORT)
+
+# The adversarial suite at full size (minutes): each request that once took
+# a replica down, against a fresh modegridd child on loopback; prints the
+# markdown table of DEVELOPERS.md's reliability section. Its short form
+# runs in make test (TestAdversarialShort).
+adversarial: build
+	$(GO) build -trimpath -o $(BIN)/modegrid-load ./client/cmd/modegrid-load
+	$(BIN)/modegrid-load --spawn $(BIN)/modegridd --adversarial --long
 
 demo:
 	$(GO) run ./client/cmd/modegrid demo

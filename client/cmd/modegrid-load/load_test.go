@@ -328,3 +328,33 @@ func TestFlags(t *testing.T) {
 		})
 	}
 }
+
+// TestAdversarialShort runs the adversarial suite's short form against
+// the built modegridd, a fresh process per row, and asserts outcomes
+// only: each row's status codes, refusals before any work (the server's
+// computation and q-point counters unchanged apart from compiling the
+// model), every slot, queue place and byte of the memory budget released
+// after the call (waited for by polling the metrics, with a hang limit and
+// no time bound), the server still serving (health and a small DOS) and
+// never exiting by itself. Times and peak memory are logged as the table,
+// never asserted: they are the long form's figures (`make adversarial`).
+func TestAdversarialShort(t *testing.T) {
+	bin := daemonPath(t)
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
+	defer cancel()
+	var progress bytes.Buffer
+	rows := adversarial(ctx, bin, false, &progress)
+	var table bytes.Buffer
+	printAdversarial(&table, rows, false)
+	t.Logf("\n%s", table.String())
+	if len(rows) < 10 {
+		t.Fatalf("%d rows; want the whole short form", len(rows))
+	}
+	for _, r := range rows {
+		if r.Pass() {
+			continue
+		}
+		t.Errorf("%s: codes %v (want %s), work before refusal %v, released %v, serving %v, exits %d, exit code %d, suite error %q",
+			r.Request, r.Codes, r.Want, r.WorkDone && r.kind == expectRefusal, r.Released, r.Serving, r.Exits, r.ExitCode, r.Err)
+	}
+}

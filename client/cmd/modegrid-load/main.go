@@ -96,6 +96,8 @@ type options struct {
 	metrics      string
 	sigtermAfter time.Duration
 	jsonOut      bool
+	adversarial  bool // run the adversarial suite instead of a load
+	long         bool // the suite's long form
 }
 
 func parseFlags(args []string, stderr io.Writer) (*options, error) {
@@ -119,6 +121,8 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	fs.Uint64Var(&o.cfg.seed, "seed", 1, "seed of the request mix (math/rand/v2 PCG)")
 	fs.DurationVar(&o.sigtermAfter, "sigterm-after", 0, "with --spawn: send SIGTERM after this long, once every caller has a call in flight")
 	fs.BoolVar(&o.jsonOut, "json", false, "print the report as JSON")
+	fs.BoolVar(&o.adversarial, "adversarial", false, "with --spawn: run the adversarial suite (a fresh server per request; markdown table) instead of a load")
+	fs.BoolVar(&o.long, "long", false, "with --adversarial: the long form (the requests at full size; minutes)")
 	token := fs.String("token", "", "bearer token")
 	ca := fs.String("ca", "", "CA file: use TLS and trust it")
 	cert := fs.String("cert", "", "client certificate file (mutual TLS; with --key)")
@@ -136,6 +140,12 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	}
 	if o.sigtermAfter > 0 && (o.spawn == "" || o.sigtermAfter >= o.cfg.duration) {
 		errs = append(errs, errors.New("--sigterm-after needs --spawn and must be shorter than -d"))
+	}
+	if o.adversarial && o.spawn == "" {
+		errs = append(errs, errors.New("--adversarial needs --spawn (every request gets a fresh server)"))
+	}
+	if o.long && !o.adversarial {
+		errs = append(errs, errors.New("--long goes with --adversarial"))
 	}
 	if o.cfg.concurrency < 1 {
 		errs = append(errs, fmt.Errorf("-c must be ≥ 1, got %d", o.cfg.concurrency))
@@ -189,6 +199,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	if err != nil {
 		fmt.Fprintf(stderr, "modegrid-load: %v\n", err)
 		return 2
+	}
+	if o.adversarial {
+		return runAdversarial(ctx, o, stdout, stderr)
 	}
 	rep, err := load(ctx, o)
 	if err != nil {

@@ -235,6 +235,7 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 // run is main without the process: it serves until ctx ends and returns
 // the exit code.
 func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
+	args, faults := takeFaultFlag(args)
 	o, err := parse(args, os.Getenv, stderr)
 	if errors.Is(err, flag.ErrHelp) {
 		return exitOK
@@ -248,6 +249,10 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return exitOK
 	}
 	log := o.cfg.Logger
+	if faults {
+		defer enableFaultInjection()()
+		log.Warn("TEST ONLY: engine fault injection is on; calls with " + faultHeader + " metadata make the engine panic (" + unsafeFaultFlag + ")")
+	}
 	if o.crashFile != "" {
 		f, err := openCrashFile(o.crashFile, log)
 		if err != nil {
