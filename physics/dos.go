@@ -181,7 +181,13 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	switch opt.Method {
 	case Tetrahedron:
 		set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
-		if classes := simplexClasses(g, set); classes != nil && !opt.PerSite {
+		var classes []simplexClass
+		if !opt.PerSite {
+			if classes, err = simplexClasses(ctx, g, set); err != nil {
+				return nil, err
+			}
+		}
+		if classes != nil {
 			acc, err = tetraAccumulateClasses(ctx, g, classes, set, scale, grid, hasCut, cut)
 		} else {
 			acc, err = tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)

@@ -224,7 +224,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	var ir *IrreducibleGrid
 	reps := len(pts)
 	if !opt.NoSymmetry {
-		if ir, err = m.ReduceGrid(spec); err != nil {
+		if ir, err = m.ReduceGrid(ctx, spec); err != nil {
 			return nil, err
 		}
 		reps = len(ir.Irr)

@@ -33,14 +33,21 @@ type IrreducibleGrid struct {
 // ReduceGrid returns the irreducible points of spec under the model's
 // symmetry operations and time reversal. Results are kept in a bounded
 // cache shared by every model with the same q-space operations, so repeated
-// requests on one lattice and grid reduce once.
-func (m *Model) ReduceGrid(spec GridSpec) (*IrreducibleGrid, error) {
+// requests on one lattice and grid reduce once. The first call on a model
+// finds its symmetry (Symmetry); that and the reduction of a large grid
+// poll ctx, and ctx.Err() is returned when ctx ends first (nothing
+// partial is cached).
+func (m *Model) ReduceGrid(ctx context.Context, spec GridSpec) (*IrreducibleGrid, error) {
 	spec, err := spec.normalize(m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
+	sym, err := m.Symmetry(ctx)
+	if err != nil {
+		return nil, err
+	}
 	var ops []SymOp
-	for _, op := range m.Symmetry() {
+	for _, op := range sym {
 		if gridCompatible(op, spec) {
 			ops = append(ops, op)
 		}
@@ -52,7 +59,10 @@ func (m *Model) ReduceGrid(spec GridSpec) (*IrreducibleGrid, error) {
 		cp.Ops = ops
 		return &cp, nil
 	}
-	ir := reduce(ops, spec)
+	ir, err := reduce(ctx, ops, spec)
+	if err != nil {
+		return nil, err
+	}
 	irrCache.put(key, ir)
 	return ir, nil
 }
@@ -100,7 +110,8 @@ func nearInt(x float64) bool { return math.Abs(x-math.Round(x)) < 1e-6 }
 // with the grid maps a to a'_k = Σ_l M_kl a_l + c_k (mod N_k), with
 // M_kl = S_kl N_k/N_l and c_k = Σ_l S_kl N_k s_l/N_l − s_k both integers
 // (gridCompatible checked that); time reversal maps a'_k to −a'_k − 2 s_k.
-func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
+// It polls ctx every reducePoll grid points.
+func reduce(ctx context.Context, ops []SymOp, spec GridSpec) (*IrreducibleGrid, error) {
 	n := spec.Count()
 	N := spec.Mesh
 	var off [3]float64
@@ -134,6 +145,9 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n)}
 	visited := make([]bool, n)
 	for g := 0; g < n; g++ {
+		if g%reducePoll == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		if visited[g] {
 			continue
 		}
@@ -166,8 +180,13 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 		ir.Irr = append(ir.Irr, g)
 		ir.Mult = append(ir.Mult, mult)
 	}
-	return ir
+	return ir, nil
 }
+
+// reducePoll is the number of grid points between two polls of the
+// context in reduce: each costs at most 2·48 images, so a poll every
+// 4 096 points is a fraction of a millisecond apart.
+const reducePoll = 4096
 
 // unfoldSiteWeights fills the site weights of grid point g from those of
 // its representative: the share of site Perm[i] at q_g equals the share of

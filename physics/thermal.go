@@ -203,7 +203,9 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		}
 	}
 
-	res.ThetaElasticK = elasticDebyeTemperature(m)
+	if res.ThetaElasticK, err = elasticDebyeTemperature(ctx, m); err != nil {
+		return nil, err
+	}
 	var msdNote msdDivergence
 	if opt.MSD {
 		msdNote = msdDivergenceOf(m, g, st)
