@@ -171,6 +171,10 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	}
 	sum := sha256.Sum256(raw)
 	key := cache.Key{Kind: kindInline, Model: hex.EncodeToString(sum[:])}
+	// The compile is shared by every concurrent caller of the same model
+	// (cache.Do): its ctx ends when the last of them has left, so one
+	// caller's deadline never cancels it for the others, and a compile
+	// nobody waits for stops at once.
 	v, from, err := s.cache.Do(ctx, key, nil, func(ctx context.Context) (any, int64, error) {
 		var e *modelEntry
 		err := s.run(ctx, kindCompile, func(ctx context.Context) error {
