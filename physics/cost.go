@@ -296,6 +296,10 @@ func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bo
 	c.Bytes += T*(int64(unsafe.Sizeof(ThermalPoint{}))+reasonBytes) + elasticThetaBytes
 	if msd {
 		c.Bytes += T * int64(s.Sites) * (int64(unsafe.Sizeof(SiteMSD{})) + reasonBytes)
+		if s.Dim < 3 {
+			// msd.go, msdDivergenceOf: one diagonalisation at Γ.
+			c.Bytes += workspaceBytes(s.modes(), false)
+		}
 	}
 	c.Flops += float64(modes) * (20 + 2*float64(nc)) // collecting the modes
 	c.Flops += float64(T) * float64(modes) * (40 + 2*float64(nc))

@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -73,7 +74,7 @@ func TestHashInvariances(t *testing.T) {
 			c := cloneCrystal(fcc)
 			c.Shells = nil
 			m := mustCompile(t, fcc)
-			bonds, _, _ := m.findShell(fcc.Shells[0], Limits{}.withDefaults())
+			bonds, _, _ := m.findShell(context.Background(), fcc.Shells[0], Limits{}.withDefaults())
 			for _, b := range bonds {
 				c.Springs = append(c.Springs, Spring{From: b.i, To: b.j, Cell: b.n[:], KLong: fcc.Shells[0].KLong})
 			}
@@ -104,7 +105,7 @@ func TestHashInvariances(t *testing.T) {
 	}
 	for name, c := range map[string]*Crystal{"fcc (no on-site block)": fcc, "on-site blocks at the sum rule": atRule} {
 		t.Run("enforcing a sum rule with nothing to enforce: "+name, func(t *testing.T) {
-			m, err := Compile(c, Options{EnforceSumRule: true})
+			m, err := Compile(context.Background(), c, Options{EnforceSumRule: true})
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -12,7 +13,7 @@ import (
 // lattice type needs none).
 func withLattice(vecs ...[3]float64) *Model {
 	c := &Crystal{Lattice: vecs, Sites: []Site{{Label: "A", MassAmu: 1, Frac: make([]float64, len(vecs))}}}
-	m, err := Compile(c, Options{})
+	m, err := Compile(context.Background(), c, Options{})
 	if err != nil {
 		panic(err)
 	}

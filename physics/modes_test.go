@@ -4,6 +4,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"testing"
 )
@@ -204,7 +205,7 @@ func TestBlocksEqualSprings(t *testing.T) {
 	ref := mustCompile(t, c)
 	bc := &Crystal{Lattice: c.Lattice, Sites: c.Sites, ForceUnit: c.ForceUnit}
 	for _, sh := range c.Shells {
-		bonds, _, err := ref.findShell(sh, Limits{}.withDefaults())
+		bonds, _, err := ref.findShell(context.Background(), sh, Limits{}.withDefaults())
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -248,7 +249,7 @@ func TestSumRuleReportAndEnforcement(t *testing.T) {
 	if got, want := plain.FrequenciesTHz([3]float64{})[0], math.Sqrt(0.2/12)*NuUnitTHz; !relClose(got, want, 1e-10) {
 		t.Errorf("unenforced Γ: %v THz; want %v", got, want)
 	}
-	enforced, err := Compile(c, Options{EnforceSumRule: true})
+	enforced, err := Compile(context.Background(), c, Options{EnforceSumRule: true})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -31,7 +31,7 @@ func BenchmarkDOSEndToEnd(b *testing.B) {
 				if run.cold { // forget the reduced grid and its simplex classes
 					cache = nil
 				}
-				m, err := Compile(c, Options{})
+				m, err := Compile(context.Background(), c, Options{})
 				if err != nil {
 					b.Fatal(err)
 				}
@@ -56,14 +56,18 @@ func BenchmarkReduceGrid(b *testing.B) {
 	for _, n := range []int{48, 96} {
 		spec, _ := GridSpec{Mesh: [3]int{n, n, n}}.normalize(3, "mesh")
 		var ops []SymOp
-		for _, op := range m.Symmetry() {
+		for _, op := range mustSymmetry(b, m) {
 			if gridCompatible(op, spec) {
 				ops = append(ops, op)
 			}
 		}
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
 			for b.Loop() {
-				benchSink = reduce(ops, spec)
+				ir, err := reduce(context.Background(), ops, spec)
+				if err != nil {
+					b.Fatal(err)
+				}
+				benchSink = ir
 			}
 		})
 	}

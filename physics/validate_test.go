@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"errors"
 	"math"
 	"strings"
@@ -138,7 +139,7 @@ func TestValidationRules(t *testing.T) {
 			if tc.mutate != nil {
 				tc.mutate(c)
 			}
-			_, err := Compile(c, Options{Limits: tc.lim})
+			_, err := Compile(context.Background(), c, Options{Limits: tc.lim})
 			vs := violationsOf(t, err)
 			for _, v := range vs {
 				if v.Field == tc.field && strings.Contains(v.Description, tc.want) {
@@ -155,14 +156,14 @@ func TestValidationRules(t *testing.T) {
 // an on-site block).
 func TestValidationBasesAreValid(t *testing.T) {
 	for _, c := range []*Crystal{twoSiteChain(), threeD()} {
-		if _, err := Compile(c, Options{}); err != nil {
+		if _, err := Compile(context.Background(), c, Options{}); err != nil {
 			t.Fatalf("base model invalid: %v", err)
 		}
 	}
 	c := twoSiteChain()
 	c.Blocks[0].Cell[0] = 64
 	c.Blocks = append(c.Blocks, Block{From: 1, To: 1, Cell: []int{0}, Phi: []float64{0.5, 0, 0, 0, 0, 0, 0, 0, 0}})
-	if _, err := Compile(c, Options{}); err != nil {
+	if _, err := Compile(context.Background(), c, Options{}); err != nil {
 		t.Fatalf("offset 64 and an on-site block must be accepted: %v", err)
 	}
 }

@@ -79,7 +79,11 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		err := s.admitted(ctx, stab, func(ctx context.Context) error {
 			return s.run(ctx, kindCheck, func(ctx context.Context) error {
 				d := m.Dim()
-				for _, op := range m.Symmetry() {
+				ops, err := m.Symmetry(ctx)
+				if err != nil {
+					return err
+				}
+				for _, op := range ops {
 					so := &modegridv1.SymmetryOperation{}
 					for i := 0; i < d; i++ {
 						for j := 0; j < d; j++ {

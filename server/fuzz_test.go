@@ -174,7 +174,7 @@ func FuzzModelJSON(f *testing.F) {
 		var m *physics.Model
 		var err error
 		withinTime(t, 10*time.Second, "Compile", func() {
-			m, err = physics.Compile(crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+			m, err = physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
 		})
 		if err != nil {
 			ve, ok := err.(*physics.ValidationError)
@@ -198,7 +198,7 @@ func FuzzModelJSON(f *testing.F) {
 		if !isHash(m.Hash()) {
 			t.Fatalf("hash %q is not 64 hex digits", m.Hash())
 		}
-		again, err := physics.Compile(crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+		again, err := physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
 		if err != nil || again.Hash() != m.Hash() {
 			t.Fatalf("compiling again: %v, hash %s; want %s", err, again.Hash(), m.Hash())
 		}
@@ -387,7 +387,7 @@ func fuzzModels(tb testing.TB) []*modegridv1.ModelSource {
 		if len(c.GetSites()) > fuzzConfig.MaxSites {
 			continue
 		}
-		m, err := physics.Compile(crystalFromProto(c), physics.Options{})
+		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{})
 		if err != nil {
 			tb.Fatal(err)
 		}

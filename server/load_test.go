@@ -93,7 +93,7 @@ func TestCacheChargesResultMemory(t *testing.T) {
 	}
 	t.Run("grid modes", func(t *testing.T) {
 		for _, name := range []string{"chain", "square-net", "fcc", "rocksalt-like"} {
-			m, err := physics.Compile(crystalFromProto(example(t, name)), physics.Options{})
+			m, err := physics.Compile(context.Background(), crystalFromProto(example(t, name)), physics.Options{})
 			if err != nil {
 				t.Fatal(err)
 			}
