@@ -1,6 +1,8 @@
 module github.com/materials-lab/modegrid
 
-go 1.26.7
+go 1.26.0
+
+toolchain go1.26.8
 
 require (
 	github.com/grpc-ecosystem/go-grpc-middleware/providers/prometheus v1.1.1

@@ -2,6 +2,8 @@ module github.com/materials-lab/modegrid/proto/tools
 
 go 1.26.7
 
+toolchain go1.26.8
+
 tool (
 	github.com/bufbuild/buf/cmd/buf
 	google.golang.org/grpc/cmd/protoc-gen-go-grpc
