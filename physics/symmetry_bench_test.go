@@ -10,8 +10,8 @@ import (
 // two-site rock-salt-like example, find its symmetry, diagonalise the
 // irreducible points of an n³ Γ-centred grid, unfold, and take the
 // tetrahedron DOS (default window). The reduced grid's tables are reused
-// across iterations, as they are across requests in the service. Issue
-// targets: 48³ under 50 ms, 96³ under 0.3 s and 200 MiB. The cold
+// across iterations, as they are across requests in the service. The
+// project's targets: 48³ under 50 ms, 96³ under 0.3 s and 200 MiB. The cold
 // variants rebuild the reduction tables every time (a first request).
 func BenchmarkDOSEndToEnd(b *testing.B) {
 	c := loadExample(b, "rocksalt-like")

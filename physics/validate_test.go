@@ -51,9 +51,10 @@ func violationsOf(t *testing.T, err error) []Violation {
 	return ve.Violations
 }
 
-// TestValidationRules: every rule of the issue gives a violation on its
+// TestValidationRules: every validation rule gives a violation on its
 // field whose description names the bad value (common practice for
-// input validation; the rules are the issue's list).
+// input validation; the rules are those README.md lists under "The model
+// file").
 func TestValidationRules(t *testing.T) {
 	nan, inf := math.NaN(), math.Inf(1)
 	cases := []struct {
@@ -169,7 +170,7 @@ func TestValidationBasesAreValid(t *testing.T) {
 }
 
 // TestValidationDefaultSiteLimit: 512 sites pass Validate, 513 do not
-// (the issue's default limit).
+// (DefaultMaxSites, the default limit README.md documents).
 func TestValidationDefaultSiteLimit(t *testing.T) {
 	for _, tc := range []struct {
 		name string
@@ -190,7 +191,7 @@ func TestValidationDefaultSiteLimit(t *testing.T) {
 }
 
 // TestValidationDefaultInteractionLimit: 200 000 springs pass, 200 001 do
-// not (the issue's default limit).
+// not (DefaultMaxInteractions, the default limit README.md documents).
 func TestValidationDefaultInteractionLimit(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds 200 001 springs")

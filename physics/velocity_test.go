@@ -45,7 +45,7 @@ func TestChainGroupVelocity(t *testing.T) {
 		}
 	}
 	// 1 Å·sqrt(eV/Å²/amu) = 9.82269475 km/s (from OmegaUnitRadPerS,
-	// CODATA 2018 via ../shared reference values).
+	// sqrt(e·10²⁰/m_u)·10⁻¹³ with CODATA 2018 e and m_u).
 	if !relClose(VelocityUnitKmS, 9.82269475025, 1e-9) {
 		t.Errorf("VelocityUnitKmS = %v", VelocityUnitKmS)
 	}

@@ -90,7 +90,8 @@ func TestDispersion(t *testing.T) {
 		c := example(t, "chain")
 		K, m := c.GetSprings()[0].GetKLong(), c.GetSites()[0].GetMassAmu()
 		// ν = 2·sqrt(K/m)·|sin(πq)| · 15.6333042 THz per sqrt(eV/Å²/amu)
-		// (Kittel ch. 4; unit factor CODATA 2018, REFERENCE-VALUES.md).
+		// (Kittel, Introduction to Solid State Physics, ch. 4; the unit
+		// factor sqrt(e·10²⁰/m_u)/2π from CODATA 2018 e and m_u).
 		prev := -1.0
 		for _, s := range r.GetSamples() {
 			want := 2 * math.Sqrt(K/m) * math.Abs(math.Sin(math.Pi*s.GetQ().GetQ1())) * 15.6333042

@@ -1,6 +1,6 @@
 package server
 
-// Fault injection over real gRPC on loopback TCP (issue 9): a client
+// Fault injection over real gRPC on loopback TCP: a client
 // cancelling a 10⁶-point stream half way, requests past every cap,
 // abusive and idle connections, a reader too slow for its stream, and
 // callers without valid credentials. Each test shows its outcome with the

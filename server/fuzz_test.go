@@ -1,6 +1,6 @@
 package server
 
-// Fuzz targets (issue 9): the model JSON decoder with validation and
+// Fuzz targets: the model JSON decoder with validation and
 // compilation, and every RPC handler fed arbitrary bytes as its request
 // message through a real server on loopback TCP.
 //

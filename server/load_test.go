@@ -1,6 +1,6 @@
 package server
 
-// Memory accounting under load (issue 9): the cache's byte bound is only a
+// Memory accounting under load: the cache's byte bound is only a
 // memory bound if every entry is charged at least the memory it holds. The
 // load runs themselves are in client/cmd/modegrid-load (load_test.go).
 

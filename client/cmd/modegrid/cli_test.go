@@ -10,7 +10,8 @@ import (
 )
 
 // The CLI tests run the command in-process: run() starts the embedded
-// server on a loopback port and calls it over real gRPC, as the binary does.
+// server in-process and calls it over real gRPC through an in-memory
+// connection, as the binary does.
 
 func runCLI(t *testing.T, args ...string) (int, string, string) {
 	t.Helper()

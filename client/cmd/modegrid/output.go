@@ -3,10 +3,12 @@ package main
 // Writers of the three output formats. "table" is aligned for people;
 // "csv" has fixed headers for programs (long format for modes and paths;
 // frequency columns carry the --unit value as suffix); "json" is the
-// protobuf JSON of the response.
+// protobuf JSON of the response with every field and a stable layout.
 
 import (
+	"bytes"
 	"encoding/csv"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -24,12 +26,28 @@ import (
 // table lists one row per branch.
 const wideBranches = 12
 
+// jsonOptions emit every field, zero values included (a temperature of
+// 0 K, site 0, an empty list, false), so that a reader finds each key it
+// expects instead of having to know protobuf's rule of omitting defaults.
+var jsonOptions = protojson.MarshalOptions{EmitUnpopulated: true}
+
+// writeJSON writes m as protobuf JSON with byte-stable layout: protojson
+// varies its whitespace on purpose (so that nobody relies on it), so its
+// output is re-indented by encoding/json, which drops that whitespace and
+// writes two-space indentation. Values and field order are protojson's own
+// (field order of the .proto, map keys sorted), so the bytes change only
+// when a value does.
 func writeJSON(w io.Writer, m proto.Message) error {
-	b, err := protojson.MarshalOptions{Multiline: true, Indent: "  "}.Marshal(m)
+	b, err := jsonOptions.Marshal(m)
 	if err != nil {
 		return fmt.Errorf("encode JSON: %w", err)
 	}
-	_, err = fmt.Fprintf(w, "%s\n", b)
+	var out bytes.Buffer
+	if err := json.Indent(&out, b, "", "  "); err != nil {
+		return fmt.Errorf("encode JSON: %w", err)
+	}
+	out.WriteByte('\n')
+	_, err = w.Write(out.Bytes())
 	return err
 }
 

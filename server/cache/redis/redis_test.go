@@ -1,4 +1,4 @@
-package cache
+package redis
 
 import (
 	"bufio"
@@ -17,7 +17,9 @@ import (
 	"testing"
 	"time"
 
-	"github.com/redis/go-redis/v9"
+	goredis "github.com/redis/go-redis/v9"
+
+	"github.com/materials-lab/modegrid/server/cache"
 )
 
 const redisServerPath = "/usr/bin/redis-server"
@@ -126,8 +128,8 @@ func (s *redisServer) signal(sig syscall.Signal) {
 }
 
 // admin is a plain go-redis client to inspect what the backend stored.
-func (s *redisServer) admin() *redis.Client {
-	c := redis.NewClient(&redis.Options{Addr: s.addr})
+func (s *redisServer) admin() *goredis.Client {
+	c := goredis.NewClient(&goredis.Options{Addr: s.addr})
 	s.t.Cleanup(func() { c.Close() })
 	return c
 }
@@ -146,15 +148,15 @@ func randomBytes(r *rand.Rand, n int) []byte {
 	return b
 }
 
-// The Redis type is a Backend (the interface the server's cache layer uses).
-var _ Backend = (*Redis)(nil)
+// Backend is a cache.Backend (the interface the server's cache layer uses).
+var _ cache.Backend = (*Backend)(nil)
 
 // TestRedisSetGet: values round-trip byte for byte, including empty and
 // binary values; absent keys are a miss without error; the key carries the
 // modegrid prefix in Redis.
 func TestRedisSetGet(t *testing.T) {
 	srv := startRedis(t)
-	r := NewRedis(RedisOptions{Addr: srv.addr})
+	r := New(Options{Addr: srv.addr})
 	defer r.Close()
 	ctx := testCtx(t)
 	rng := rand.New(rand.NewPCG(8, 1))
@@ -180,8 +182,8 @@ func TestRedisSetGet(t *testing.T) {
 			if !bytes.Equal(got, tc.value) {
 				t.Fatalf("Get returned %d bytes differing from the %d stored", len(got), len(tc.value))
 			}
-			if n, err := srv.admin().Exists(ctx, RedisKeyPrefix+tc.key).Result(); err != nil || n != 1 {
-				t.Errorf("key %q in Redis: exists=%d err=%v; want 1", RedisKeyPrefix+tc.key, n, err)
+			if n, err := srv.admin().Exists(ctx, KeyPrefix+tc.key).Result(); err != nil || n != 1 {
+				t.Errorf("key %q in Redis: exists=%d err=%v; want 1", KeyPrefix+tc.key, n, err)
 			}
 		})
 	}
@@ -217,16 +219,16 @@ func TestRedisTTL(t *testing.T) {
 		want time.Duration
 	}{
 		{name: "explicit hour", ttl: time.Hour, want: time.Hour},
-		{name: "default", ttl: 0, want: DefaultRedisTTL},
+		{name: "default", ttl: 0, want: DefaultTTL},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			r := NewRedis(RedisOptions{Addr: srv.addr, TTL: tc.ttl})
+			r := New(Options{Addr: srv.addr, TTL: tc.ttl})
 			defer r.Close()
 			if err := r.Set(ctx, tc.name, []byte("v")); err != nil {
 				t.Fatal(err)
 			}
-			got, err := admin.PTTL(ctx, RedisKeyPrefix+tc.name).Result()
+			got, err := admin.PTTL(ctx, KeyPrefix+tc.name).Result()
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -237,7 +239,7 @@ func TestRedisTTL(t *testing.T) {
 		})
 	}
 	t.Run("expires", func(t *testing.T) {
-		r := NewRedis(RedisOptions{Addr: srv.addr, TTL: 50 * time.Millisecond})
+		r := New(Options{Addr: srv.addr, TTL: 50 * time.Millisecond})
 		defer r.Close()
 		if err := r.Set(ctx, "short", []byte("v")); err != nil {
 			t.Fatal(err)
@@ -267,7 +269,7 @@ func TestRedisTTL(t *testing.T) {
 // and counted; a value of exactly MaxEntryBytes is stored.
 func TestRedisSizeCap(t *testing.T) {
 	srv := startRedis(t)
-	r := NewRedis(RedisOptions{Addr: srv.addr, MaxEntryBytes: 1000})
+	r := New(Options{Addr: srv.addr, MaxEntryBytes: 1000})
 	defer r.Close()
 	ctx := testCtx(t)
 	tests := []struct {
@@ -309,7 +311,7 @@ func TestRedisSizeCap(t *testing.T) {
 func TestRedisOutage(t *testing.T) {
 	srv := startRedis(t)
 	const timeout = 100 * time.Millisecond
-	r := NewRedis(RedisOptions{Addr: srv.addr, Timeout: timeout})
+	r := New(Options{Addr: srv.addr, Timeout: timeout})
 	defer r.Close()
 	ctx := testCtx(t)
 	if err := r.Set(ctx, "before", []byte("v")); err != nil {
@@ -358,7 +360,7 @@ func TestRedisOutage(t *testing.T) {
 	})
 	t.Run("killed", func(t *testing.T) {
 		var logs lockedBuffer
-		SetRedisLogger(slog.New(slog.NewTextHandler(&logs, &slog.HandlerOptions{Level: slog.LevelDebug})))
+		SetLogger(slog.New(slog.NewTextHandler(&logs, &slog.HandlerOptions{Level: slog.LevelDebug})))
 		srv.kill()
 		failing(t, "Redis killed")
 		// go-redis's dial-failure lines went to slog at debug level.
@@ -439,8 +441,8 @@ func TestRedisPassword(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			opt := RedisOptions{Addr: tc.addr, Password: tc.password}
-			r := NewRedis(opt)
+			opt := Options{Addr: tc.addr, Password: tc.password}
+			r := New(opt)
 			defer r.Close()
 			err := r.Ping(ctx)
 			if got := IsAuthError(err); got != tc.authErr {
@@ -472,7 +474,7 @@ func TestRedisPassword(t *testing.T) {
 // makes the call fail at once instead of reaching Redis.
 func TestRedisCallerContext(t *testing.T) {
 	srv := startRedis(t)
-	r := NewRedis(RedisOptions{Addr: srv.addr})
+	r := New(Options{Addr: srv.addr})
 	defer r.Close()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
@@ -489,7 +491,7 @@ func TestRedisCallerContext(t *testing.T) {
 // dispersion of a 6-branch model).
 func BenchmarkRedisGetSet(b *testing.B) {
 	srv := startRedis(b)
-	r := NewRedis(RedisOptions{Addr: srv.addr})
+	r := New(Options{Addr: srv.addr})
 	defer r.Close()
 	ctx := context.Background()
 	v := randomBytes(rand.New(rand.NewPCG(8, 2)), 16<<10)
