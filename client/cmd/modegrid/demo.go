@@ -141,9 +141,9 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 		return row, files, err
 	}
 
-	corners, err := parsePath(defaultPaths[chk.GetLatticeType()])
+	corners, err := defaultPath(chk)
 	if err != nil {
-		return row, files, fmt.Errorf("no standard path for lattice type %q: %w", chk.GetLatticeType(), err)
+		return row, files, fmt.Errorf("no default path for lattice type %q: %w", chk.GetLatticeType(), err)
 	}
 	done = e.prog.running(name + ": dispersion")
 	disp, err := cl.Dispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: src, Path: pathPoints(corners)})

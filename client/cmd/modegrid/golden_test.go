@@ -41,6 +41,8 @@ var goldenCases = []struct {
 	{"path-fcc-table", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9"}},
 	{"path-fcc-csv", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9", "--format", "csv"}},
 	{"path-fcc-json", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5", "--points", "3", "--format", "json"}},
+	// No --path on a 2D hexagonal net: the default 2D path Γ–M–K–Γ (not the 3D one).
+	{"path-honeycomb-default-csv", []string{"path", "-m", testdata("honeycomb.json"), "--points", "7", "--format", "csv"}},
 	{"path-square-net-builtin-csv", []string{"path", "-m", example("square-net"), "--path", "G-X-M-G", "--points", "7", "--format", "csv"}},
 
 	{"dos-chain-table", []string{"dos", "-m", example("chain"), "--grid", "64", "--step", "0.5"}},

@@ -59,12 +59,7 @@ func cmdThermal(args []string, e *env) error {
 	resp, err := cl.Thermal(ctx, req)
 	done()
 	if status.Code(err) == codes.FailedPrecondition {
-		// The server's hint names the request field; at a terminal, name the flag.
-		msg := status.Convert(err).Message()
-		if i := strings.Index(msg, " (set allow_unstable"); i >= 0 {
-			msg = msg[:i]
-		}
-		return &invalidError{msg: fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))}
+		return &invalidError{msg: unstableHint(status.Convert(err).Message())}
 	}
 	if err != nil {
 		return err
@@ -79,4 +74,17 @@ func cmdThermal(args []string, e *env) error {
 		return nil
 	}
 	return plotThermal(c.out.plot, c.out.kind, resp, len(crystal.GetSites()), p, crystal.GetName())
+}
+
+// unstableHint rewrites the server's FAILED_PRECONDITION message for a
+// terminal: its hint names request fields, the CLI names the flags
+// (enforce_sum_rule is --sum-rule, allow_unstable is --allow-unstable).
+func unstableHint(msg string) string {
+	if strings.Contains(msg, "set enforce_sum_rule to impose it") {
+		return strings.Replace(msg, "set enforce_sum_rule to impose it", "run with --sum-rule to impose it", 1)
+	}
+	if i := strings.Index(msg, " (set allow_unstable"); i >= 0 {
+		msg = msg[:i]
+	}
+	return fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))
 }
