@@ -87,7 +87,7 @@ func cmdDemo(args []string, e *env) error {
 	}
 	// Names left-aligned (padded here), numbers right-aligned.
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/mol/K)\tθD(300 K) (K)\tzero-point (kJ/mol)\t\n", width, "crystal")
+	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/(K·mol atoms))\tθD(300 K) (K)\tzero-point (kJ/mol atoms)\t\n", width, "crystal")
 	for _, r := range rows {
 		fmt.Fprintf(tw, "%-*s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%s\t%.4f\t\n", width, r.name, r.dim, r.sites, r.modes,
 			map[bool]string{true: "yes", false: "no"}[r.stable], r.maxTHz, r.cv300, r.theta300, r.zpe)
@@ -177,16 +177,16 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	if err != nil {
 		return row, files, err
 	}
-	if err := save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th) }); err != nil {
+	if err := save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th, basisAtoms) }); err != nil {
 		return row, files, err
 	}
 	best := math.Inf(1)
 	for _, pt := range th.GetPoints() {
 		if dT := math.Abs(pt.GetTemperatureK() - 300); dT < best {
-			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolK(), thetaCell(pt, 1)
+			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolAtomsK(), thetaCell(pt, 1)
 		}
 	}
-	row.zpe = th.GetZeroPointEnergyKjPerMol()
+	row.zpe = th.GetZeroPointEnergyKjPerMolAtoms()
 
 	ext := "." + kind
 	title := crystal.GetName() + " (example)"
@@ -196,7 +196,7 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	if err := plotDOS(base+"-dos"+ext, kind, dos, false, title); err != nil {
 		return row, files, err
 	}
-	if err := plotThermal(base+"-thermal"+ext, kind, th, row.sites, p, title); err != nil {
+	if err := plotThermal(base+"-thermal"+ext, kind, th, basisAtoms, row.sites, p, title); err != nil {
 		return row, files, err
 	}
 	return row, files + 3, nil

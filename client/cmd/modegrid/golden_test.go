@@ -61,6 +61,9 @@ var goldenCases = []struct {
 	{"thermal-chain-msd-table", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd"}},
 	{"thermal-chain-msd-csv", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd", "--format", "csv"}},
 	{"thermal-chain-msd-json", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "300", "--msd", "--format", "json"}},
+	{"thermal-rocksalt-like-cells-csv", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000", "--basis", "cells", "--format", "csv"}},
+	{"thermal-rocksalt-like-kg-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000", "--basis", "kg"}},
+	{"thermal-rocksalt-like-atoms-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000"}},
 	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
 }
 
@@ -233,7 +236,11 @@ func TestCSVHeaders(t *testing.T) {
 		{"dos shared label", []string{"dos", "-m", testdata("twin-chain.json"), "--grid", "16", "--per-site"}, "frequency_thz,dos,integrated,dos_A_0,dos_A_1"},
 		{"thermal", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300"},
 			// θ_D's status column: the number alone read as a Debye temperature where none is determined.
-			"temperature_k,heat_capacity_j_per_mol_k,entropy_j_per_mol_k,free_energy_kj_per_mol,internal_energy_kj_per_mol,debye_temperature_k,debye_temperature_status"},
+			"temperature_k,heat_capacity_j_per_mol_atoms_k,entropy_j_per_mol_atoms_k,free_energy_kj_per_mol_atoms,internal_energy_kj_per_mol_atoms,debye_temperature_k,debye_temperature_status"},
+		{"thermal per mole of cells", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300", "--basis", "cells"},
+			"temperature_k,heat_capacity_j_per_mol_cells_k,entropy_j_per_mol_cells_k,free_energy_kj_per_mol_cells,internal_energy_kj_per_mol_cells,debye_temperature_k,debye_temperature_status"},
+		{"thermal per kg", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300", "--basis", "kg"},
+			"temperature_k,heat_capacity_j_per_kg_k,entropy_j_per_kg_k,free_energy_kj_per_kg,internal_energy_kj_per_kg,debye_temperature_k,debye_temperature_status"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

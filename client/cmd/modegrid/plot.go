@@ -20,7 +20,6 @@ import (
 	"gonum.org/v1/plot/vg/vgimg"
 	"gonum.org/v1/plot/vg/vgsvg"
 
-	"github.com/materials-lab/modegrid/physics"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -328,7 +327,7 @@ func lighten(c color.Color) color.Color {
 // plotThermal draws Cv (with the Dulong–Petit limit p·R per site, 3R per
 // site in three dimensions), S, F and U against temperature, per mole of
 // unit cells, on one page.
-func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, sites, pol int, title string) error {
+func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, b thermalBasis, sites, pol int, title string) error {
 	pts := th.GetPoints()
 	if len(pts) == 0 {
 		return fmt.Errorf("plot: no temperatures")
@@ -337,8 +336,7 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, sites
 	cv, s, f, u := make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts))
 	for i, p := range pts {
 		T[i] = p.GetTemperatureK()
-		cv[i], s[i] = p.GetHeatCapacityJPerMolK(), p.GetEntropyJPerMolK()
-		f[i], u[i] = p.GetFreeEnergyKjPerMol(), p.GetInternalEnergyKjPerMol()
+		cv[i], s[i], f[i], u[i] = b.values(p)
 	}
 	panel := func(ys []float64, ylabel string) (*plot.Plot, *plotter.Line) {
 		p := newPlot()
@@ -352,21 +350,20 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, sites
 		p.Add(l)
 		return p, l
 	}
-	pcv, cvLine := panel(cv, "heat capacity Cv (J/(mol·K))")
+	pcv, cvLine := panel(cv, "heat capacity Cv ("+b.entropyUnit()+")")
 	pcv.Y.Min = 0
-	// Dulong–Petit: the classical limit kB per mode, p·R per site per mole
-	// of cells (Kittel, Introduction to Solid State Physics, ch. 5).
-	limit := float64(pol*sites) * physics.GasConstantJPerMolK
+	// Dulong–Petit: the classical limit kB per mode on the basis b.
+	limit := b.classicalLimit(th, sites, pol)
 	dp := line([]float64{pcv.X.Min, pcv.X.Max}, []float64{limit, limit}, siteColors[0], 1.2*vg.Points(1))
 	dp.Dashes = []vg.Length{5 * vg.Points(1), 3 * vg.Points(1)}
 	pcv.Add(dp)
 	pcv.Legend.Add("Cv", cvLine)
-	pcv.Legend.Add(dulongPetitLabel(sites, pol), dp)
+	pcv.Legend.Add(b.classicalLabel(sites, pol), dp)
 	pcv.Legend.Left, pcv.Legend.Top = false, false
 	pcv.Y.Max = math.Max(limit, maxOf(cv)) * 1.08
-	ps, _ := panel(s, "entropy S (J/(mol·K))")
-	pf, _ := panel(f, "free energy F (kJ/mol)")
-	pu, _ := panel(u, "internal energy U (kJ/mol)")
+	ps, _ := panel(s, "entropy S ("+b.entropyUnit()+")")
+	pf, _ := panel(f, "free energy F ("+b.energyUnit()+")")
+	pu, _ := panel(u, "internal energy U ("+b.energyUnit()+")")
 	grid := [][]*plot.Plot{{pcv, ps}, {pf, pu}}
 	return writeFigure(file, kind, thermalSize, func(dc draw.Canvas) {
 		if title != "" {
@@ -383,12 +380,6 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, sites
 	})
 }
 
-func dulongPetitLabel(sites, pol int) string {
-	if pol == 3 {
-		return fmt.Sprintf("Dulong–Petit 3R × %d site%s", sites, plural(sites))
-	}
-	return fmt.Sprintf("classical limit %dR × %d site%s", pol, sites, plural(sites))
-}
 
 // drawTitle writes a page title at the top of dc and returns the rest.
 func drawTitle(dc draw.Canvas, title string) draw.Canvas {

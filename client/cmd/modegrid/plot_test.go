@@ -211,7 +211,7 @@ func TestPlots(t *testing.T) {
 			draw:     func(f, k string) error { return plotDOS(f, k, syntheticDOS(2), true, "") },
 			wantText: []string{"total", "A", "B"}},
 		{name: "thermal page", size: thermalSize, png: true,
-			draw: func(f, k string) error { return plotThermal(f, k, syntheticThermal(), 2, 3, "page") },
+			draw: func(f, k string) error { return plotThermal(f, k, syntheticThermal(), basisCells, 2, 3, "page") },
 			wantText: []string{"Dulong–Petit 3R × 2 sites", "heat capacity Cv", "entropy S", "free energy F",
 				"internal energy U", "temperature T (K)"}},
 	}
@@ -263,7 +263,7 @@ func TestPlotErrors(t *testing.T) {
 	if err := plotDOS(f, "png", &modegridv1.ComputeDosResponse{}, false, ""); err == nil {
 		t.Error("empty DOS drawn")
 	}
-	if err := plotThermal(f, "png", &modegridv1.ComputeThermalResponse{}, 1, 3, ""); err == nil {
+	if err := plotThermal(f, "png", &modegridv1.ComputeThermalResponse{}, basisAtoms, 1, 3, ""); err == nil {
 		t.Error("empty thermal drawn")
 	}
 }

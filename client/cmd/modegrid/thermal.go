@@ -11,8 +11,9 @@ import (
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-const thermalSummary = `Harmonic thermal properties per mole of unit cells: heat capacity Cv,
-entropy S, free energy F and internal energy U (zero-point energy included),
+const thermalSummary = `Harmonic thermal properties: heat capacity Cv, entropy S, free energy F
+and internal energy U (zero-point energy included), per mole of atoms (the
+default: Cv tends to 3R in 3D), per mole of cells or per kilogram (--basis),
 and the Debye temperature θD(T) that reproduces Cv, at --temps
 (start:stop:step in K, or a list). --msd adds mean-square displacements per
 site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.`
@@ -26,8 +27,13 @@ func cmdThermal(args []string, e *env) error {
 	msd := fs.Bool("msd", false, "also give mean-square displacements (Uiso, B) per site")
 	allowUnstable := fs.Bool("allow-unstable", false, "leave imaginary modes out instead of refusing an unstable model")
 	dosRoute := fs.Bool("dos-route", false, "integrate over the tetrahedron DOS instead of summing the grid's modes")
+	basisFlag := fs.String("basis", "atoms", "amount the values are per: atoms (mole of atoms), cells (mole of cells, formula units) or kg")
 	if err := c.parse(args, e, thermalSummary); err != nil {
 		return err
+	}
+	basis, err := parseBasis(*basisFlag)
+	if err != nil {
+		return usagef("%v", err)
 	}
 	list, rng, err := parseTemps(*temps)
 	if err != nil {
@@ -67,13 +73,13 @@ func cmdThermal(args []string, e *env) error {
 	if n := resp.GetImaginaryModesExcluded(); n > 0 {
 		e.note("%d imaginary modes on the %s were left out of the sums", n, describe(set))
 	}
-	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp) }); err != nil {
+	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp, basis) }); err != nil {
 		return err
 	}
 	if c.out.plot == "" {
 		return nil
 	}
-	return plotThermal(c.out.plot, c.out.kind, resp, len(crystal.GetSites()), p, crystal.GetName())
+	return plotThermal(c.out.plot, c.out.kind, resp, basis, len(crystal.GetSites()), p, crystal.GetName())
 }
 
 // unstableHint rewrites the server's FAILED_PRECONDITION message for a
