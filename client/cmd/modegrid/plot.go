@@ -380,7 +380,6 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, b the
 	})
 }
 
-
 // drawTitle writes a page title at the top of dc and returns the rest.
 func drawTitle(dc draw.Canvas, title string) draw.Canvas {
 	sty := newPlot().Title.TextStyle
