@@ -181,7 +181,10 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 
 // ---- modes ----
 
-func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse) error {
+func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse, x modesExtras) error {
+	if x.any() && format != "json" {
+		return writeModesExtras(w, format, r, x)
+	}
 	unit := r.GetUnit()
 	switch format {
 	case "json":
