@@ -44,6 +44,8 @@ var goldenCases = []struct {
 	{"modes-rocksalt-like-eigenvectors-csv", []string{"modes", "-m", example("rocksalt-like"), "--q", "0.5,0,0.5", "--eigenvectors", "--format", "csv"}},
 	{"modes-fcc-velocities-table", []string{"modes", "-m", example("fcc"), "--q", "0.1,0,0.1", "--velocities"}},
 
+	{"shape-diatomic-chain-xyz", []string{"shape", "-m", example("diatomic-chain"), "--q", "0.25", "--branch", "2", "--frames", "3", "--xyz", "-"}},
+
 	{"path-fcc-table", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9"}},
 	{"path-fcc-csv", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9", "--format", "csv"}},
 	{"path-fcc-json", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5", "--points", "3", "--format", "json"}},
