@@ -64,7 +64,7 @@ func TestValidationRules(t *testing.T) {
 		want   string // substring of the description
 	}{
 		{"no sites", twoSiteChain, func(c *Crystal) { c.Sites = nil; c.Springs = nil; c.Blocks = nil }, Limits{}, "sites", "got none"},
-		{"mass zero", twoSiteChain, func(c *Crystal) { c.Sites[1].MassAmu = 0 }, Limits{}, "sites[1].mass_amu", "must be > 0, got 0"},
+		{"mass zero (missing in JSON)", twoSiteChain, func(c *Crystal) { c.Sites[1].MassAmu = 0 }, Limits{}, "sites[1].mass_amu", "is required (missing or 0)"},
 		{"mass negative", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = -1 }, Limits{}, "sites[0].mass_amu", "got -1"},
 		{"mass NaN", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = nan }, Limits{}, "sites[0].mass_amu", "finite, got NaN"},
 		{"mass Inf", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = inf }, Limits{}, "sites[0].mass_amu", "finite, got +Inf"},
