@@ -134,7 +134,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 			}
 		}
 		_ = m.LatticeType()
-		if _, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 5, Connect: true}); err != nil {
+		if _, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 5, FollowModes: true}); err != nil {
 			t.Fatalf("model %d: path: %v", iter, err)
 		}
 	}

@@ -181,7 +181,9 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	switch opt.Method {
 	case Tetrahedron:
 		set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
-		if classes := simplexClasses(g, set); classes != nil && !opt.PerSite {
+		// Projections need every simplex (their weights differ between
+		// equivalent points): classes only for the total.
+		if classes := totalClasses(g, set, opt.PerSite); classes != nil {
 			acc, err = tetraAccumulateClasses(ctx, g, classes, set, scale, grid, hasCut, cut)
 		} else {
 			acc, err = tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)

@@ -180,12 +180,13 @@ type GridModes struct {
 	// irreducible points unless GridOptions.NoSymmetry).
 	Diagonalized int
 
-	irr *IrreducibleGrid // the reduction used (nil: every point diagonalised)
+	irr   *IrreducibleGrid // the reduction used (nil: every point diagonalised)
+	cache *ReductionCache  // where simplex classes of this grid are kept (nil: nowhere)
 }
 
 // Bytes is the memory the grid modes hold, for cache accounting: the
 // arrays and points (the reduction tables they share are counted once, in
-// the engine's own bounded cache).
+// the caller's ReductionCache).
 func (g *GridModes) Bytes() int64 {
 	return int64(256 + 8*len(g.FreqTHz) + 8*len(g.SiteWeight) + 8*len(g.SiteTensor) + 16*len(g.Eigvecs) + 32*len(g.Points))
 }
@@ -195,6 +196,9 @@ type GridOptions struct {
 	Projections  bool // per-site weights
 	Eigenvectors bool // full eigenvectors (memory: N·n² complex numbers)
 	SiteTensors  bool // per-site displacement tensors (GridModes.SiteTensor)
+	// Cache, when not nil, keeps grid reductions and simplex classes for
+	// reuse by later calls (see ReductionCache); nil reduces afresh.
+	Cache *ReductionCache
 	// NoSymmetry diagonalises every grid point instead of the irreducible
 	// ones: the reference path (results agree to rounding), and the faster
 	// one for crystals whose only symmetry is time reversal and grids so
@@ -223,7 +227,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	var ir *IrreducibleGrid
 	reps := len(pts)
 	if !opt.NoSymmetry {
-		if ir, err = m.ReduceGrid(spec); err != nil {
+		if ir, err = m.ReduceGrid(spec, opt.Cache); err != nil {
 			return nil, err
 		}
 		reps = len(ir.Irr)

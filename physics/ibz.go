@@ -31,31 +31,41 @@ type IrreducibleGrid struct {
 }
 
 // ReduceGrid returns the irreducible points of spec under the model's
-// symmetry operations and time reversal. Results are kept in a bounded
-// cache shared by every model with the same q-space operations, so repeated
-// requests on one lattice and grid reduce once.
-func (m *Model) ReduceGrid(spec GridSpec) (*IrreducibleGrid, error) {
+// symmetry operations and time reversal. With a cache (nil: none),
+// reductions are kept there and shared by every model with the same
+// q-space operations, so repeated requests on one lattice and grid reduce
+// once.
+func (m *Model) ReduceGrid(spec GridSpec, cache *ReductionCache) (*IrreducibleGrid, error) {
 	spec, err := spec.normalize(m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
+	ops := m.gridOps(spec)
+	key := irrKey(ops, spec)
+	if v, ok := cache.get(key); ok {
+		// Share the tables; the ops (with this model's site maps) are ours.
+		cp := *v.(*IrreducibleGrid)
+		cp.Ops = ops
+		return &cp, nil
+	}
+	ir := reduce(ops, spec)
+	cache.put(key, ir)
+	return ir, nil
+}
+
+// gridOps are the model's operations that map the (normalised) grid onto
+// itself.
+func (m *Model) gridOps(spec GridSpec) []SymOp {
 	var ops []SymOp
 	for _, op := range m.Symmetry() {
 		if gridCompatible(op, spec) {
 			ops = append(ops, op)
 		}
 	}
-	key := reduceKey(ops, spec)
-	if ir, ok := irrCache.get(key); ok {
-		// Share the tables; the ops (with this model's site maps) are ours.
-		cp := *ir
-		cp.Ops = ops
-		return &cp, nil
-	}
-	ir := reduce(ops, spec)
-	irrCache.put(key, ir)
-	return ir, nil
+	return ops
 }
+
+func irrKey(ops []SymOp, spec GridSpec) string { return "irr:" + reduceKey(ops, spec) }
 
 func reduceKey(ops []SymOp, spec GridSpec) string {
 	var b strings.Builder
@@ -131,7 +141,12 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 		}
 		return x
 	}
-	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n)}
+	// Irr and Mult get the capacity of the bound on their length (every
+	// group here holds time reversal) and are trimmed at the end, so the
+	// memory reduce takes is known in advance (see GridModesCost).
+	ub := IrreducibleUpperBound(n, spec.dim)
+	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n),
+		Irr: make([]int, 0, ub), Mult: make([]int, 0, ub)}
 	visited := make([]bool, n)
 	for g := 0; g < n; g++ {
 		if visited[g] {
@@ -166,7 +181,20 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 		ir.Irr = append(ir.Irr, g)
 		ir.Mult = append(ir.Mult, mult)
 	}
+	if len(ir.Irr) < cap(ir.Irr)/2 {
+		ir.Irr = append([]int(nil), ir.Irr...)
+		ir.Mult = append([]int(nil), ir.Mult...)
+	}
 	return ir
+}
+
+// IrreducibleUpperBound bounds the number of irreducible points of an
+// n-point grid of a d-dimensional crystal under any symmetry: time
+// reversal alone pairs every point with another except those fixed by
+// q → −q (at most 2^d of them), so at most (n + 2^d)/2 orbits remain.
+func IrreducibleUpperBound(n, dim int) int {
+	d := min(max(dim, 1), 3)
+	return min(n, (n+(1<<d)+1)/2)
 }
 
 // unfoldSiteWeights fills the site weights of grid point g from those of
@@ -216,14 +244,11 @@ func unfoldEigvecs(op *SymOp, timeReversal bool, qImage [3]float64, p, nsites in
 	}
 }
 
-// irrCache is the bounded cache of reduced grids: at most 16 of them and
-// 64 MiB of tables (6 bytes per grid point), so its memory is a fixed
-// overhead beside the server's own cache.
-var irrCache = newSizedLRU[*IrreducibleGrid](16, 64<<20, (*IrreducibleGrid).bytes)
-
-// bytes is the memory held by the reduction tables.
-func (ir *IrreducibleGrid) bytes() int {
-	return 6*len(ir.Slot) + 16*len(ir.Irr)
+// Bytes is the memory held by the reduction tables: Slot (4 B) and
+// OpIndex (2 B) per grid point, Irr and Mult (8 B each) per irreducible
+// point.
+func (ir *IrreducibleGrid) Bytes() int64 {
+	return int64(6*len(ir.Slot) + 16*len(ir.Irr))
 }
 
 // lru is a small mutex-guarded LRU bounded by entry count and, when size
@@ -302,7 +327,7 @@ func (m *Model) unfold(ctx context.Context, ir *IrreducibleGrid, c *GridModes, o
 	nm, ns, p := c.NModes, c.NSites, c.P
 	pairs := p * (p + 1) / 2
 	g := &GridModes{ModelHash: c.ModelHash, Spec: c.Spec, Points: pts, NModes: nm, NSites: ns, P: p,
-		FreqTHz: make([]float64, len(pts)*nm), Diagonalized: c.Diagonalized, irr: ir}
+		FreqTHz: make([]float64, len(pts)*nm), Diagonalized: c.Diagonalized, irr: ir, cache: opt.Cache}
 	if opt.Projections {
 		g.SiteWeight = make([]float64, len(pts)*nm*ns)
 	}

@@ -1,5 +1,6 @@
 // Dispersion along paths of straight segments through labelled points,
-// with branches optionally connected by eigenvector overlap.
+// with branches optionally followed by eigenvector overlap and, when asked,
+// the share of each site in each branch.
 
 package physics
 
@@ -35,9 +36,12 @@ type PathOptions struct {
 	// SpacingInvA, when > 0, replaces Points: every segment gets the
 	// fewest equal steps no longer than this (Å⁻¹, 2π included).
 	SpacingInvA float64
-	// Connect orders the frequencies of each sample by branch, following
-	// eigenvector overlap from the previous sample, instead of ascending.
-	Connect bool
+	// FollowModes orders the frequencies of each sample by branch,
+	// following eigenvector overlap from the previous sample, instead of
+	// ascending.
+	FollowModes bool
+	// SiteWeights fills PathSample.SiteWeight.
+	SiteWeights bool
 }
 
 // PathSample is one sample along the path.
@@ -45,7 +49,12 @@ type PathSample struct {
 	DistanceInvA float64    // cumulative distance along the path, Å⁻¹ (2π included; breaks add nothing)
 	Q            [3]float64 // fractional reciprocal coordinates
 	Label        string     // the corner's label at corners, else ""
-	FreqTHz      []float64  // ascending, or by branch when connected
+	FreqTHz      []float64  // ascending, or by branch when modes are followed
+	// SiteWeight, with PathOptions.SiteWeights, is the share of site s in
+	// branch b at SiteWeight[b*Sites()+s], in the order of FreqTHz:
+	// Σ_axes |e_s,axis|² of the normalised eigenvector of D(q), in [0, 1]
+	// and summing to 1 over the sites (see siteShares for degenerate modes).
+	SiteWeight []float64
 }
 
 // lookupLabel resolves a built-in label.
@@ -215,9 +224,11 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 	}
 	n := m.Modes()
 	var conn *connector
-	mopt := ModeOptions{Eigenvectors: opt.Connect}
-	if opt.Connect {
+	mopt := ModeOptions{Eigenvectors: opt.FollowModes || opt.SiteWeights}
+	if opt.FollowModes {
 		conn = newConnector(n)
+	}
+	if mopt.Eigenvectors {
 		mopt.ChunkSize = max(1, min(64, DefaultChunkBytes/(16*n*n+1)))
 	}
 	err := m.StreamModes(ctx, pts, mopt, func(c ModeChunk) error {
@@ -225,9 +236,22 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 			i := c.Offset + k
 			if conn == nil {
 				samples[i].FreqTHz = pm.FreqTHz
+				if opt.SiteWeights {
+					samples[i].SiteWeight = m.siteShares(pm.Eigvecs, pm.FreqTHz)
+				}
 				continue
 			}
 			samples[i].FreqTHz = conn.next(pm.FreqTHz, pm.Eigvecs, pieceStart[i])
+			if opt.SiteWeights {
+				// The followed vectors, in branch order; inside a piece a
+				// degenerate group is already aligned to the branches
+				// coming in, so only a piece's first sample needs the mean.
+				var groups []float64
+				if pieceStart[i] {
+					groups = pm.FreqTHz
+				}
+				samples[i].SiteWeight = m.siteShares(conn.prev, groups)
+			}
 		}
 		return nil
 	})
@@ -283,8 +307,9 @@ func newConnector(n int) *connector {
 // group the solver's vectors are arbitrary.
 const degenerateTHz = 1e-6
 
-// next returns the frequencies of a sample in branch order. At the start of
-// a piece the order is ascending.
+// next returns the frequencies of a sample in branch order, and leaves the
+// sample's vectors in branch order in c.prev. At the start of a piece the
+// order is ascending.
 func (c *connector) next(freq []float64, vecs []complex128, start bool) []float64 {
 	n := c.n
 	copy(c.cur, vecs)
@@ -341,6 +366,47 @@ func (c *connector) next(freq []float64, vecs []complex128, start bool) []float6
 	for b, l := range c.assign {
 		out[b] = freq[l]
 		copy(c.prev[b*n:(b+1)*n], c.cur[l*n:(l+1)*n])
+	}
+	return out
+}
+
+// siteShares returns the share of each site in each mode of vecs
+// (mode-major, normalised), mode-major: Σ_axes |e_s,axis|², the site's
+// share of the mode's kinetic energy. When groups (the modes' ascending
+// frequencies) is given, each group of degenerate modes (within
+// degenerateTHz) gets the group mean: there the solver's vectors are an
+// arbitrary basis of the group's subspace, and the mean (the site's part of
+// the trace of the projector on the subspace, over the group size) does not
+// depend on that basis.
+func (m *Model) siteShares(vecs []complex128, groups []float64) []float64 {
+	n, ns, p := m.Modes(), m.nsites, m.p
+	out := make([]float64, n*ns)
+	for k := 0; k < n; k++ {
+		for s := 0; s < ns; s++ {
+			var w float64
+			for a := 0; a < p; a++ {
+				z := vecs[k*n+s*p+a]
+				w += real(z)*real(z) + imag(z)*imag(z)
+			}
+			out[k*ns+s] = w
+		}
+	}
+	for lo := 0; lo < len(groups); {
+		hi := lo + 1
+		for hi < n && groups[hi]-groups[hi-1] <= degenerateTHz {
+			hi++
+		}
+		for s := 0; s < ns && hi-lo > 1; s++ {
+			var mean float64
+			for k := lo; k < hi; k++ {
+				mean += out[k*ns+s]
+			}
+			mean /= float64(hi - lo)
+			for k := lo; k < hi; k++ {
+				out[k*ns+s] = mean
+			}
+		}
+		lo = hi
 	}
 	return out
 }

@@ -162,7 +162,7 @@ func TestConnectedBranchesCross(t *testing.T) {
 	wA := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q)) * NuUnitTHz }
 	wB := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(2*math.Pi*q)) * NuUnitTHz }
 	for _, points := range []int{61, 64} { // 61: q = 1/3 is sample 20
-		s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: points, Connect: true})
+		s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: points, FollowModes: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -185,6 +185,75 @@ func TestConnectedBranchesCross(t *testing.T) {
 		last := sorted[len(sorted)-1]
 		if last.FreqTHz[0] > last.FreqTHz[1] {
 			t.Errorf("unconnected samples must be ascending: %v", last.FreqTHz)
+		}
+	}
+}
+
+// TestSiteWeightsDiatomicChain: the shares of the two sites of a diatomic
+// chain with equal springs (masses m1, m2, M = m1 + m2), derived from its
+// equations of motion (Kittel, Introduction to Solid State Physics, ch. 4):
+// at Γ the acoustic mode moves both sites alike (u1 = u2, so the
+// mass-weighted e_s ∝ √m_s u_s gives shares m1/M, m2/M) and the optical
+// mode keeps the centre of mass still (m1u1 = −m2u2: shares m2/M, m1/M);
+// at the zone boundary the acoustic mode (ω² = 2K/m2, m2 > m1) moves only
+// the heavy site and the optical one (ω² = 2K/m1) only the light one.
+// Shares sum to 1 per branch everywhere, with and without following.
+func TestSiteWeightsDiatomicChain(t *testing.T) {
+	const m1, m2 = 20.0, 70.0 // our own example numbers
+	m := mustCompile(t, diatomicChainK(5, m1, m2, 3, 3))
+	for _, follow := range []bool{false, true} {
+		s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 11, SiteWeights: true, FollowModes: follow})
+		if err != nil {
+			t.Fatal(err)
+		}
+		check := func(i int, want []float64) {
+			t.Helper()
+			for k, w := range want {
+				if math.Abs(s[i].SiteWeight[k]-w) > 1e-9 {
+					t.Errorf("follow=%v sample %d (q=%v): shares %v; want %v", follow, i, s[i].Q[0], s[i].SiteWeight, want)
+					return
+				}
+			}
+		}
+		M := m1 + m2
+		check(0, []float64{m1 / M, m2 / M, m2 / M, m1 / M})
+		check(len(s)-1, []float64{0, 1, 1, 0})
+		for i, x := range s {
+			if len(x.SiteWeight) != 4 {
+				t.Fatalf("sample %d: %d shares; want 2 branches × 2 sites", i, len(x.SiteWeight))
+			}
+			for b := 0; b < 2; b++ {
+				if sum := x.SiteWeight[2*b] + x.SiteWeight[2*b+1]; math.Abs(sum-1) > 1e-12 {
+					t.Errorf("sample %d branch %d: shares sum to %v; want 1", i, b, sum)
+				}
+			}
+		}
+	}
+	plain, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 11})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if plain[3].SiteWeight != nil {
+		t.Error("shares returned without being asked for")
+	}
+}
+
+// TestSiteWeightsFollowCrossing: the uncoupled chains of crossingChains
+// keep their motion on their own site; followed through the crossing
+// (which is itself a sample at 61 points), each branch stays wholly on one
+// site, where sorted samples would swap sites at q = 1/3.
+func TestSiteWeightsFollowCrossing(t *testing.T) {
+	m := mustCompile(t, crossingChains())
+	s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 61, FollowModes: true, SiteWeights: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	first := s[1].SiteWeight // just off Γ, where the branches are told apart
+	for i, x := range s[1:] {
+		for k := range first {
+			if math.Abs(x.SiteWeight[k]-first[k]) > 1e-9 || (first[k] > 1e-9 && math.Abs(first[k]-1) > 1e-9) {
+				t.Fatalf("sample %d (q=%v): shares %v; want %v, each 0 or 1", i+1, x.Q[0], x.SiteWeight, first)
+			}
 		}
 	}
 }

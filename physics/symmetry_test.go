@@ -94,7 +94,7 @@ func TestIrreducibleCountsFCC(t *testing.T) {
 		sizes = sizes[:3]
 	}
 	for _, n := range sizes {
-		ir, err := m.ReduceGrid(GridSpec{Mesh: [3]int{n, n, n}})
+		ir, err := m.ReduceGrid(GridSpec{Mesh: [3]int{n, n, n}}, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

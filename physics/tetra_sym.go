@@ -8,21 +8,24 @@ import (
 )
 
 // simplexClass is a set of grid simplices whose corners carry the same
-// irreducible points: slots are positions in IrreducibleGrid.Irr, sorted.
-// The total-DOS contribution of a simplex depends only on the frequencies
-// at its corners, and a grid point's frequencies depend only on its
-// irreducible representative, so every simplex of a class contributes
-// exactly the same; the class is summed once with its count as weight. This
-// is exact for the total DOS (not for site projections, whose weights are
-// permuted between equivalent points).
+// irreducible points: key packs their slots (positions in
+// IrreducibleGrid.Irr, sorted, 16 bits each). The total-DOS contribution
+// of a simplex depends only on the frequencies at its corners, and a grid
+// point's frequencies depend only on its irreducible representative, so
+// every simplex of a class contributes exactly the same; the class is
+// summed once with its count as weight. This is exact for the total DOS
+// (not for site projections, whose weights are permuted between
+// equivalent points).
 type simplexClass struct {
-	slots [4]int32
+	key   uint64
 	count float64
 }
 
-// classCache keeps the classes per (reduced grid, cutting), so repeated
-// requests on one lattice and grid find them once.
-var classCache = newLRU[[]simplexClass](8)
+// classBytes is the memory of one simplexClass.
+const classBytes = 16
+
+// slot is corner c's slot of the class.
+func (cl simplexClass) slot(c int) int { return int(cl.key >> (16 * c) & 0xffff) }
 
 // maxClassSlots bounds the irreducible-point count for which slots pack
 // into one uint64 key (16 bits each).
@@ -30,14 +33,18 @@ const maxClassSlots = 1 << 16
 
 // simplexClasses returns the classes of the grid's simplices, or nil when
 // the grid was not reduced or has too many irreducible points to pack.
+// They are kept in the grid's ReductionCache (GridOptions.Cache) per
+// (reduced grid, cutting), so repeated requests on one lattice and grid
+// find them once. Memory: 8 bytes of key per simplex and as much again
+// for the radix sort, then 16 bytes per class.
 func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 	ir := g.irr
 	if ir == nil || len(ir.Irr) >= maxClassSlots {
 		return nil
 	}
-	key := fmt.Sprint(reduceKey(ir.Ops, ir.Spec), set.corners[:], set.dim)
-	if c, ok := classCache.get(key); ok {
-		return c
+	key := fmt.Sprint("classes:", reduceKey(ir.Ops, ir.Spec), set.corners[:], set.dim)
+	if c, ok := g.cache.get(key); ok {
+		return c.([]simplexClass)
 	}
 	mesh := g.Spec.Mesh
 	ncell := mesh[0] * mesh[1] * mesh[2]
@@ -59,22 +66,36 @@ func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 		}
 	}
 	radixSort64(keys, 16*(dim+1))
-	var out []simplexClass
+	distinct := 0
+	for i := range keys {
+		if i == 0 || keys[i] != keys[i-1] {
+			distinct++
+		}
+	}
+	out := make([]simplexClass, 0, distinct)
 	for i := 0; i < len(keys); {
 		j := i + 1
 		for j < len(keys) && keys[j] == keys[i] {
 			j++
 		}
-		k := keys[i]
-		out = append(out, simplexClass{
-			slots: [4]int32{int32(k & 0xffff), int32(k >> 16 & 0xffff), int32(k >> 32 & 0xffff), int32(k >> 48 & 0xffff)},
-			count: float64(j - i),
-		})
+		out = append(out, simplexClass{key: keys[i], count: float64(j - i)})
 		i = j
 	}
-	classCache.put(key, out)
+	g.cache.put(key, out)
 	return out
 }
+
+// totalClasses is simplexClasses for a total DOS, nil for projections.
+func totalClasses(g *GridModes, set simplexSet, perSite bool) []simplexClass {
+	if perSite {
+		return nil
+	}
+	return simplexClasses(g, set)
+}
+
+// classChunk is how many classes a worker takes at a time: classes are
+// few, so the accumulators (one per slice, chunkWorkers) stay few too.
+const classChunk = 1024
 
 // radixSort64 sorts keys in place by their low `bits` bits (LSD radix
 // sort, 16-bit digits): linear time, which matters for the millions of
@@ -123,19 +144,19 @@ func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []simplex
 	nm := g.NModes
 	dim := set.dim
 	irr := g.irr.Irr
-	workers := chunkWorkers(len(classes), tetraChunk)
+	workers := chunkWorkers(len(classes), classChunk)
 	accs := make([]*cumAcc, workers)
 	for w := range accs {
 		accs[w] = newCumAcc(grid, 0, hasCut, cut)
 	}
 	freq := g.FreqTHz
-	err := forChunks(ctx, len(classes), tetraChunk, workers, func(worker, lo, hi int) {
+	err := forChunks(ctx, len(classes), classChunk, workers, func(worker, lo, hi int) {
 		a := accs[worker]
 		var e [4]float64
 		var base [4]int
 		for _, cl := range classes[lo:hi] {
 			for c := 0; c <= dim; c++ {
-				base[c] = irr[cl.slots[c]] * nm
+				base[c] = irr[cl.slot(c)] * nm
 			}
 			v := set.weight * cl.count
 			for k := 0; k < nm; k++ {

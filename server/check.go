@@ -47,6 +47,11 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		}
 		return out, nil
 	}
+	stab := s.stabilityEstimate(e, mesh)
+	s.budget.check(&vs, stab)
+	if err := vs.err(); err != nil {
+		return nil, err
+	}
 	resp, err := cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {
 		m := e.m
 		out := &modegridv1.CheckModelResponse{
@@ -73,25 +78,28 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		for _, c := range m.DefaultPath() {
 			out.DefaultPath = append(out.DefaultPath, &modegridv1.PathPoint{Label: c.Label, BreakBefore: c.BreakBefore})
 		}
-		err := s.run(ctx, kindCheck, func(ctx context.Context) error {
-			d := m.Dim()
-			for _, op := range m.Symmetry() {
-				so := &modegridv1.SymmetryOperation{}
-				for i := 0; i < d; i++ {
-					for j := 0; j < d; j++ {
-						so.Rotation = append(so.Rotation, int32(op.Rot[i][j]))
+		out.TypicalCosts = s.typicalCosts(e)
+		err := s.admitted(ctx, stab, func(ctx context.Context) error {
+			return s.run(ctx, kindCheck, func(ctx context.Context) error {
+				d := m.Dim()
+				for _, op := range m.Symmetry() {
+					so := &modegridv1.SymmetryOperation{}
+					for i := 0; i < d; i++ {
+						for j := 0; j < d; j++ {
+							so.Rotation = append(so.Rotation, int32(op.Rot[i][j]))
+						}
+						so.Translation = append(so.Translation, op.Trans[i])
 					}
-					so.Translation = append(so.Translation, op.Trans[i])
+					out.Symmetry = append(out.Symmetry, so)
 				}
-				out.Symmetry = append(out.Symmetry, so)
-			}
-			lo, hi, stable, err := m.Stability(ctx, mesh)
-			if err != nil {
-				return err
-			}
-			s.met.qpoints.Add(float64(stabilityPoints(d, mesh)))
-			out.MinFrequencyThz, out.MaxFrequencyThz, out.Stable = lo, hi, stable
-			return nil
+				lo, hi, stable, err := m.Stability(ctx, mesh)
+				if err != nil {
+					return err
+				}
+				s.met.qpoints.Add(float64(stabilityPoints(d, mesh)))
+				out.MinFrequencyThz, out.MaxFrequencyThz, out.Stable = lo, hi, stable
+				return nil
+			})
 		})
 		if err != nil {
 			return nil, err

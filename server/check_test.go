@@ -136,6 +136,46 @@ func TestDispersion(t *testing.T) {
 			t.Errorf("parameters %q do not resolve the default of 201 points", a.GetParameters())
 		}
 	})
+	t.Run("site weights; connect_branches is follow_modes", func(t *testing.T) {
+		di := inline(example(t, "diatomic-chain"))
+		path := []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}
+		follow, err := ts.api.ComputeDispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: di, Points: 21, Path: path,
+			FollowModes: true, SiteWeights: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		old, err := ts.api.ComputeDispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: di, Points: 21, Path: path,
+			ConnectBranches: true, SiteWeights: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !strings.Contains(follow.GetParameters(), "follow_modes=true;site_weights=true") || old.GetParameters() != follow.GetParameters() {
+			t.Errorf("parameters %q and (deprecated field) %q; want equal, with follow_modes=true;site_weights=true", follow.GetParameters(), old.GetParameters())
+		}
+		sites := len(example(t, "diatomic-chain").GetSites())
+		for _, s := range follow.GetSamples() {
+			nb := len(s.GetFrequencies())
+			if len(s.GetSiteWeights()) != nb*sites {
+				t.Fatalf("q=%v: %d site weights; want %d branches × %d sites", s.GetQ().GetQ1(), len(s.GetSiteWeights()), nb, sites)
+			}
+			for b := range nb {
+				sum := 0.0
+				for _, w := range s.GetSiteWeights()[b*sites : (b+1)*sites] {
+					sum += w
+				}
+				if math.Abs(sum-1) > 1e-12 {
+					t.Errorf("q=%v branch %d: weights sum to %v; want 1", s.GetQ().GetQ1(), b, sum)
+				}
+			}
+		}
+		plain, err := ts.api.ComputeDispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: di, Points: 21, Path: path})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(plain.GetSamples()[0].GetSiteWeights()) != 0 || !strings.Contains(plain.GetParameters(), "follow_modes=false;site_weights=false") {
+			t.Errorf("unasked: %d weights, parameters %q", len(plain.GetSamples()[0].GetSiteWeights()), plain.GetParameters())
+		}
+	})
 	t.Run("violations", func(t *testing.T) {
 		_, err := ts.api.ComputeDispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: chain, Points: 1000,
 			Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "Q"}, {Label: "Z", Q: &modegridv1.QPoint{Q1: 0.5, Q2: 0.1}}}})

@@ -101,6 +101,14 @@ type Config struct {
 	ChunkPoints   int
 	MaxChunkBytes int
 
+	// MemoryBudget is the memory all computations together may take,
+	// bytes, by their estimates (0 → derived from the container's memory
+	// limit, see DerivedMemoryBudget).
+	MemoryBudget int64
+	// MaxComputeSeconds bounds the estimated compute time of one request,
+	// seconds (0 → DefaultMaxComputeSeconds).
+	MaxComputeSeconds float64
+
 	// StabilityMesh is the coarse grid (points per reciprocal direction)
 	// CheckModel searches for imaginary modes (0 → 8).
 	StabilityMesh int
@@ -175,6 +183,9 @@ func (c Config) withDefaults() Config {
 	setInt(&c.ChunkPoints, DefaultChunkPoints)
 	setInt(&c.MaxChunkBytes, min(DefaultMaxChunkBytes, c.MaxMsgBytes/4))
 	setInt(&c.StabilityMesh, DefaultStabilityMesh)
+	if c.MaxComputeSeconds == 0 {
+		c.MaxComputeSeconds = DefaultMaxComputeSeconds
+	}
 	if c.ShutdownGrace == 0 {
 		c.ShutdownGrace = DefaultShutdownGrace
 	}
@@ -227,6 +238,12 @@ func (c Config) Validate() error {
 	}
 	if c.StabilityMesh > 64 {
 		bad("stability-mesh", "must be ≤ 64, got %d", c.StabilityMesh)
+	}
+	if c.MemoryBudget < 0 {
+		bad("memory-budget", "must be ≥ 0 (0: derived from the memory limit), got %d", c.MemoryBudget)
+	}
+	if !(c.MaxComputeSeconds > 0) {
+		bad("max-compute-seconds", "must be > 0, got %v", c.MaxComputeSeconds)
 	}
 	if c.QueueTimeout < 0 {
 		bad("queue-timeout", "must be > 0, got %v", c.QueueTimeout)

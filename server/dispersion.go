@@ -33,7 +33,9 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 	case len(path) > s.cfg.MaxPathCorners:
 		vs.add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
 	}
-	opt := physics.PathOptions{Connect: req.GetConnectBranches()}
+	// connect_branches is the deprecated spelling of follow_modes: either
+	// asks for it, and both share one cache entry.
+	opt := physics.PathOptions{FollowModes: req.GetFollowModes() || req.GetConnectBranches(), SiteWeights: req.GetSiteWeights()}
 	spacing := req.GetSpacingInvA()
 	switch {
 	case math.IsNaN(spacing) || math.IsInf(spacing, 0) || spacing < 0:
@@ -62,8 +64,29 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			}
 		}
 	}
+	var est estimate
+	if e != nil && len(vs.list) == 0 {
+		n := opt.Points
+		if opt.SpacingInvA > 0 {
+			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
+		}
+		c := physics.DispersionCost(e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
+		perSample := int64(8*e.m.Modes() + 64) // the response
+		if opt.SiteWeights {
+			perSample += int64(8 * e.m.Modes() * e.m.Sites())
+		}
+		c.Bytes += 2 * int64(n) * perSample
+		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
+		s.budget.check(&vs, est)
+	}
 	if e != nil && opt.Points > 0 {
-		s.checkResponseSize(&vs, "points", float64(opt.Points)*float64(8*e.m.Modes()+64), fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes()))
+		perSample := 8*e.m.Modes() + 64
+		what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes())
+		if opt.SiteWeights {
+			perSample += 8 * e.m.Modes() * e.m.Sites()
+			what += fmt.Sprintf(" × (1 + %d site weights)", e.m.Sites())
+		}
+		s.checkReply(&vs, "points", float64(opt.Points)*float64(perSample), what)
 	}
 	if err := vs.err(); err != nil {
 		return nil, err
@@ -88,15 +111,18 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 		p.add("points", fmt.Sprint(opt.Points))
 	}
 	p.add("unit", unitName(unit))
-	p.addBool("connect_branches", opt.Connect)
+	p.addBool("follow_modes", opt.FollowModes)
+	p.addBool("site_weights", opt.SiteWeights)
 	canon := p.String()
 
 	return cachedResult(ctx, s, kindDispersion, e.hash, canon, dispersionCodec, func(ctx context.Context) (*modegridv1.ComputeDispersionResponse, error) {
 		var samples []physics.PathSample
-		err := s.run(ctx, kindDispersion, func(ctx context.Context) error {
-			var err error
-			samples, err = e.m.Dispersion(ctx, corners, opt)
-			return err
+		err := s.admitted(ctx, est, func(ctx context.Context) error {
+			return s.run(ctx, kindDispersion, func(ctx context.Context) error {
+				var err error
+				samples, err = e.m.Dispersion(ctx, corners, opt)
+				return err
+			})
 		})
 		if err != nil {
 			return nil, err
@@ -110,7 +136,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 				f[k] = unit.FromTHz(v)
 			}
 			out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
-				Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}}
+				Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}, SiteWeights: smp.SiteWeight}
 		}
 		return out, nil
 	})

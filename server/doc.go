@@ -65,6 +65,15 @@ package server
 // google.rpc.BadRequest violation naming the field and the cap
 // ("… exceed this server's cap max-qpoints=4194304").
 //
+// Caps bound sizes one at a time; admission by estimated cost
+// (admission.go) bounds their product. Before any work each request's peak
+// memory and work are estimated (physics/cost.go). One that could never
+// fit — over the whole Config.MemoryBudget, over Config.MaxComputeSeconds,
+// or one streamed point over the message cap — is INVALID_ARGUMENT naming
+// the field to change, the estimate and the budget. One that fits reserves
+// its estimate from the budget all computations share while it computes,
+// waiting at most Config.QueueTimeout, else RESOURCE_EXHAUSTED.
+//
 // At most Config.MaxConcurrent computations run at once (default: cores);
 // up to Config.MaxQueue more wait, each at most Config.QueueTimeout.
 // Beyond that a call gets RESOURCE_EXHAUSTED with QuotaFailure and
@@ -78,7 +87,7 @@ package server
 //	                     alone answers those INTERNAL, before any interceptor)
 //	NOT_FOUND            model_hash not held by this server (resend the model inline)
 //	FAILED_PRECONDITION  thermal properties of a model with imaginary modes without allow_unstable
-//	RESOURCE_EXHAUSTED   computation queue full or wait timed out; message over max-msg-bytes
+//	RESOURCE_EXHAUSTED   computation queue full or wait timed out; memory budget busy past the wait; message over max-msg-bytes
 //	DEADLINE_EXCEEDED    the client's deadline passed (the computation was stopped)
 //	CANCELED             the client cancelled (the computation was stopped)
 //	UNAUTHENTICATED      bearer tokens configured and none or a wrong one sent

@@ -92,7 +92,12 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 		if opt.PerSite {
 			series += 2 * float64(e.m.Sites())
 		}
-		s.checkResponseSize(&vs, "step", bins*series*8, fmt.Sprintf("%.0f samples × %.0f series", bins, series))
+		s.checkReply(&vs, "step", bins*series*8, fmt.Sprintf("%.0f samples × %.0f series", bins, series))
+	}
+	var est estimate
+	if len(vs.list) == 0 {
+		est = s.dosEstimate(e, qs.grid, opt)
+		s.budget.check(&vs, est)
 	}
 	if err := vs.err(); err != nil {
 		return nil, err
@@ -128,15 +133,17 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	canon := p.String()
 
 	return cachedResult(ctx, s, kindDOS, e.hash, canon, dosCodec, func(ctx context.Context) (*modegridv1.ComputeDosResponse, error) {
-		g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{sites: opt.PerSite})
-		if err != nil {
-			return nil, err
-		}
 		var res *physics.DOSResult
-		err = s.run(ctx, kindDOS, func(ctx context.Context) error {
-			var err error
-			res, err = physics.ComputeDOS(ctx, e.m, g, opt)
-			return err
+		err := s.admitted(ctx, est, func(ctx context.Context) error {
+			g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{sites: opt.PerSite})
+			if err != nil {
+				return err
+			}
+			return s.run(ctx, kindDOS, func(ctx context.Context) error {
+				var err error
+				res, err = physics.ComputeDOS(ctx, e.m, g, opt)
+				return err
+			})
 		})
 		if err != nil {
 			return nil, err
@@ -169,4 +176,27 @@ func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.C
 		out.Labels = append(out.Labels, &modegridv1.ProjectedDos{Site: -1, Label: r.Labels[i], Dos: d})
 	}
 	return out
+}
+
+// dosEstimate is the cost of a DOS request: the grid's modes (with site
+// weights for a per-site DOS), the DOS, and the reply twice (the message
+// and its encoding).
+func (s *Service) dosEstimate(e *modelEntry, spec physics.GridSpec, opt physics.DOSOptions) estimate {
+	size := s.gridSize(e, spec)
+	samples := physics.DefaultDOSBins + 1
+	if opt.Step > 0 && opt.Max > opt.Min {
+		samples = int((opt.Max-opt.Min)/opt.Step) + 1
+	}
+	c := physics.GridModesCost(size, physics.GridOptions{Projections: opt.PerSite})
+	c = c.Plus(physics.DOSCost(size, opt, samples, true))
+	series := int64(3)
+	if opt.PerSite {
+		series += 2 * int64(e.m.Sites())
+	}
+	c.Bytes += 2 * 8 * series * int64(samples)
+	change := "a smaller grid (qpoints)"
+	if opt.PerSite {
+		change = "a smaller grid (qpoints) or no per-site DOS (per_site)"
+	}
+	return estimate{cost: c, field: "qpoints", change: change}
 }

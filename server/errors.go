@@ -102,6 +102,9 @@ func (s *Service) toStatus(ctx context.Context, method string, err error) error 
 	if _, ok := status.FromError(err); ok {
 		return err
 	}
+	if st := busyStatus(err); st != nil {
+		return st
+	}
 	var ref *gate.Refusal
 	var ve *physics.ValidationError
 	var pe *cache.PanicError

@@ -468,7 +468,8 @@ func dispersionSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "W"}, {Label: "G", Q: &modegridv1.QPoint{Q2: 1}}}, SpacingInvA: math.NaN()},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, SpacingInvA: 1e-300},
 		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "G"}}, Points: 2},
-		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Q: &modegridv1.QPoint{Q1: -1e308}}}, Points: 3})
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Q: &modegridv1.QPoint{Q1: -1e308}}}, Points: 3},
+		&modegridv1.ComputeDispersionRequest{Model: chain, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, Points: 40, FollowModes: true, SiteWeights: true})
 }
 
 func dosSeeds(tb testing.TB) []proto.Message {

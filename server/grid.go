@@ -62,7 +62,7 @@ func (s *Service) gridModes(ctx context.Context, e *modelEntry, spec physics.Gri
 		var g *physics.GridModes
 		err := s.run(ctx, kindGrid, func(ctx context.Context) error {
 			var err error
-			g, err = e.m.GridModes(ctx, spec, physics.GridOptions{Projections: need.sites, Eigenvectors: need.vectors})
+			g, err = e.m.GridModes(ctx, spec, physics.GridOptions{Projections: need.sites, Eigenvectors: need.vectors, Cache: s.reductions})
 			return err
 		})
 		if err != nil {

@@ -2,6 +2,7 @@ package server
 
 import (
 	"context"
+	"fmt"
 
 	"google.golang.org/grpc"
 
@@ -35,11 +36,15 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 		dim = e.m.Dim()
 	}
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", true, &vs)
+	unit := unitFromProto(req.GetUnit())
+	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
+	var est estimate
+	if len(vs.list) == 0 {
+		est = s.modesEstimate(e, qs.count, opt, &vs)
+	}
 	if err := vs.err(); err != nil {
 		return err
 	}
-	unit := unitFromProto(req.GetUnit())
-	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
 
 	// Chunk size: as asked (or the default), but never more mode data per
 	// message than MaxChunkBytes.
@@ -67,27 +72,65 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 
 	total := uint32(qs.count)
 	noteCache(ctx, "computed")
-	return s.run(ctx, kindModes, func(ctx context.Context) error {
-		// The points are built only once the computation holds its slot,
-		// so requests waiting in the queue hold no point lists (a grid at
-		// the default cap is 128 MiB of them).
-		pts := qs.points(dim)
-		return e.m.StreamModes(ctx, pts, opt, func(c physics.ModeChunk) error {
-			s.met.qpoints.Add(float64(len(c.Points)))
-			resp := &modegridv1.ComputeModesResponse{
-				ModelHash:  e.hash,
-				Parameters: canon,
-				Offset:     uint32(c.Offset),
-				Total:      total,
-				Unit:       unitToProto(unit),
-				Points:     make([]*modegridv1.Modes, len(c.Points)),
-			}
-			for i := range c.Points {
-				resp.Points[i] = modesToProto(&c.Points[i], unit)
-			}
-			return stream.Send(resp)
+	return s.admitted(ctx, est, func(ctx context.Context) error {
+		return s.run(ctx, kindModes, func(ctx context.Context) error {
+			// The points are built only once the computation holds its slot,
+			// so requests waiting in the queue hold no point lists (a grid at
+			// the default cap is 128 MiB of them).
+			pts := qs.points(dim)
+			return e.m.StreamModes(ctx, pts, opt, func(c physics.ModeChunk) error {
+				s.met.qpoints.Add(float64(len(c.Points)))
+				resp := &modegridv1.ComputeModesResponse{
+					ModelHash:  e.hash,
+					Parameters: canon,
+					Offset:     uint32(c.Offset),
+					Total:      total,
+					Unit:       unitToProto(unit),
+					Points:     make([]*modegridv1.Modes, len(c.Points)),
+				}
+				for i := range c.Points {
+					resp.Points[i] = modesToProto(&c.Points[i], unit)
+				}
+				return stream.Send(resp)
+			})
 		})
 	})
+}
+
+// modesEstimate is the cost of a modes stream (modesCost), checked: one
+// point that cannot fit a message (a 512-site model with eigenvectors is
+// 1536² complex numbers, 38 MB) is refused here, before any work, and so
+// is a stream over the budget or the compute-time bound.
+func (s *Service) modesEstimate(e *modelEntry, count int, opt physics.ModeOptions, vs *violations) estimate {
+	est, per := s.modesCost(e, count, opt)
+	s.checkReply(vs, est.field, per, fmt.Sprintf("one q-point of %d modes", e.m.Modes()))
+	s.budget.check(vs, est)
+	return est
+}
+
+// modesCost is the cost of a modes stream of count points: the point
+// list, the chunks computed ahead, and a message and its encoding; per is
+// the size of one point's message.
+func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (estimate, float64) {
+	n := float64(e.m.Modes())
+	per := 8*n + modeChunkOverhead
+	field := "qpoints"
+	if opt.Eigenvectors {
+		per += 16 * n * n
+		field = "eigenvectors"
+	}
+	if opt.Velocities {
+		per += 24 * n
+	}
+	chunk := max(1, min(s.cfg.ChunkPoints, s.cfg.MaxChunkBytes/int(per)))
+	size := e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
+	c := physics.StreamCost(size, count, chunk, 0, opt)
+	c.Bytes += 32*int64(count) + 2*int64(per)*int64(chunk)
+	change := "fewer q-points (qpoints)"
+	if opt.Eigenvectors {
+		change = "fewer q-points (qpoints) or no eigenvectors"
+	}
+	return estimate{cost: c, field: field, change: change}, per
 }
 
 // modesToProto converts the modes at one point, frequencies in unit.

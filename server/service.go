@@ -27,6 +27,11 @@ type Service struct {
 	cache *cache.Cache
 	gate  *gate.Gate
 	met   *metrics
+	// budget is the server-wide memory budget of computations and the
+	// compute-time bound (admission.go); reductions the grid reductions
+	// kept for reuse, whose bound is taken out of the budget.
+	budget     *budget
+	reductions *physics.ReductionCache
 
 	// backendLog and integrityLog rate-limit the log lines about shared
 	// cache failures and refused cache entries (cachelog.go).

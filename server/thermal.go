@@ -145,7 +145,12 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		if opt.MSD {
 			per += float64(e.m.Sites()) * 110
 		}
-		s.checkResponseSize(&vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
+		s.checkReply(&vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
+	}
+	var est estimate
+	if len(vs.list) == 0 {
+		est = s.thermalEstimate(e, qs.grid, opt)
+		s.budget.check(&vs, est)
 	}
 	if err := vs.err(); err != nil {
 		return nil, err
@@ -160,15 +165,17 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	canon := p.String()
 
 	return cachedResult(ctx, s, kindThermal, e.hash, canon, thermalCodec, func(ctx context.Context) (*modegridv1.ComputeThermalResponse, error) {
-		g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{vectors: opt.MSD})
-		if err != nil {
-			return nil, err
-		}
 		var res *physics.ThermalResult
-		err = s.run(ctx, kindThermal, func(ctx context.Context) error {
-			var err error
-			res, err = physics.ComputeThermal(ctx, e.m, g, opt)
-			return sumRuleCause(e, err)
+		err := s.admitted(ctx, est, func(ctx context.Context) error {
+			g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{vectors: opt.MSD})
+			if err != nil {
+				return err
+			}
+			return s.run(ctx, kindThermal, func(ctx context.Context) error {
+				var err error
+				res, err = physics.ComputeThermal(ctx, e.m, g, opt)
+				return sumRuleCause(e, err)
+			})
 		})
 		if err != nil {
 			return nil, err

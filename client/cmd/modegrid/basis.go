@@ -124,3 +124,39 @@ func (b thermalBasis) classicalLabel(sites, pol int) string {
 	}
 	return fmt.Sprintf("%s %dR", name, pol)
 }
+
+// measuredColumn is the name of the heat-capacity column of a measured
+// file (--measured) on this basis: Cv_J_per_molatom_K, Cv_J_per_molcell_K
+// or Cv_J_per_kg_K.
+func (b thermalBasis) measuredColumn() string {
+	switch b {
+	case basisCells:
+		return "Cv_J_per_molcell_K"
+	case basisKg:
+		return "Cv_J_per_kg_K"
+	}
+	return "Cv_J_per_molatom_K"
+}
+
+// inMoleOfCells is the amount of this basis in one mole of cells: sites
+// moles of atoms, one mole of cells, or the cells' molar mass in kg
+// (cellMassAmu × M_u). An extensive value per b times it is the value per
+// mole of cells.
+func (b thermalBasis) inMoleOfCells(sites int, cellMassAmu float64) float64 {
+	switch b {
+	case basisCells:
+		return 1
+	case basisKg:
+		return cellMassAmu * physics.MolarMassConstantKgPerMol
+	}
+	return float64(sites)
+}
+
+// convert turns a value per basis from into one per basis b, for a cell of
+// sites sites and cellMassAmu amu.
+func (b thermalBasis) convert(v float64, from thermalBasis, sites int, cellMassAmu float64) float64 {
+	if b == from {
+		return v
+	}
+	return v * from.inMoleOfCells(sites, cellMassAmu) / b.inMoleOfCells(sites, cellMassAmu)
+}

@@ -146,7 +146,7 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 		return row, files, fmt.Errorf("no default path for lattice type %q: %w", chk.GetLatticeType(), err)
 	}
 	done = e.prog.running(name + ": dispersion")
-	disp, err := cl.Dispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: src, Path: pathPoints(corners)})
+	disp, err := cl.Dispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: src, Path: pathPoints(corners), SiteWeights: true})
 	done()
 	if err != nil {
 		return row, files, err
@@ -190,13 +190,13 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 
 	ext := "." + kind
 	title := crystal.GetName() + " (example)"
-	if err := plotDispersion(base+"-dispersion"+ext, kind, disp, dos, title); err != nil {
+	if err := plotDispersion(base+"-dispersion"+ext, kind, dispersionFigure{disp: disp, dos: dos, key: newSiteKey(siteLabels(crystal)), title: title}); err != nil {
 		return row, files, err
 	}
 	if err := plotDOS(base+"-dos"+ext, kind, dos, false, title); err != nil {
 		return row, files, err
 	}
-	if err := plotThermal(base+"-thermal"+ext, kind, th, basisAtoms, row.sites, p, title); err != nil {
+	if err := plotThermal(base+"-thermal"+ext, kind, thermalFigure{th: th, basis: basisAtoms, sites: row.sites, pol: p, title: title}); err != nil {
 		return row, files, err
 	}
 	return row, files + 3, nil

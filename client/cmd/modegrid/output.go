@@ -160,6 +160,14 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 			kv{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
 			kv{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},
 		)
+		for _, c := range r.GetTypicalCosts() {
+			key := "cost " + c.GetRequest()
+			val := fmt.Sprintf("%s, %s s", humanBytes(c.GetPeakBytes()), strconv.FormatFloat(c.GetSeconds(), 'g', 2, 64))
+			if !c.GetAdmitted() {
+				val += " (refused by this server)"
+			}
+			rows = append(rows, kv{strings.ReplaceAll(key, " ", "_"), key, val})
+		}
 	}
 	for _, v := range r.GetViolations() {
 		rows = append(rows, kv{"violation", "violation", v.GetField() + ": " + v.GetDescription()})
@@ -535,4 +543,18 @@ func displacement(p *modegridv1.ThermalPoint, i int) *modegridv1.SiteDisplacemen
 		return p.GetDisplacements()[i]
 	}
 	return nil
+}
+
+// humanBytes prints a byte count with a binary unit, two significant
+// digits past the point at most.
+func humanBytes(b uint64) string {
+	switch {
+	case b >= 1<<30:
+		return fmt.Sprintf("%.3g GiB", float64(b)/(1<<30))
+	case b >= 1<<20:
+		return fmt.Sprintf("%.3g MiB", float64(b)/(1<<20))
+	case b >= 1<<10:
+		return fmt.Sprintf("%.3g KiB", float64(b)/(1<<10))
+	}
+	return fmt.Sprintf("%d B", b)
 }

@@ -15,8 +15,15 @@ bcc, hexagonal in 3D; every 2D net; 1D; a 3D lattice of lower symmetry
 needs --path). --path G-X-W-L-G uses the built-in points of the crystal's lattice (G is Γ;
 '|' starts a disconnected piece), --path "G=0,0,0 X=0.5,0,0.5" gives them in
 fractional reciprocal coordinates. Distances are cumulative, in 1/Å (2π
-included). With --plot the figure has a DOS panel beside the dispersion on
-the same frequency axis (grid: --grid, or a default; --no-dos omits it).`
+included). --follow-modes orders each sample's frequencies by branch,
+following every mode by eigenvector overlap through crossings (--connect is
+its deprecated old name). With --plot the branches are coloured by the
+sites that carry the motion, and a DOS panel, stacked by site in the same
+colours, shares the frequency axis (grid: --grid, or a default; --no-dos
+omits it). --measured FILE.csv overlays measured frequencies and makes the
+output the residuals (measured − model) instead of the listing; its
+columns: q1,q2,q3,freq_UNIT[,sigma][,branch] or
+distance_invA,freq_UNIT[,sigma][,branch] (UNIT: THz, meV or cm-1).`
 
 func cmdPath(args []string, e *env) error {
 	c := newModelCommand("path", true)
@@ -26,7 +33,9 @@ func cmdPath(args []string, e *env) error {
 	pathFlag := fs.String("path", "", `corners: "G-X-W-L-G" (built-in labels) or "G=0,0,0 X=0.5,0,0.5 ..."`)
 	points := fs.Uint("points", 0, "samples along the whole path (default: the server's, 201)")
 	spacing := fs.Float64("spacing", 0, "sample spacing in 1/Å instead of --points")
-	connectBranches := fs.Bool("connect", false, "follow branches through crossings by eigenvector overlap instead of sorting")
+	follow := fs.Bool("follow-modes", false, "order frequencies by branch, following each mode through crossings by eigenvector overlap, instead of ascending")
+	connectOld := fs.Bool("connect", false, "deprecated: the old name of --follow-modes")
+	measured := fs.String("measured", "", "CSV of measured frequencies to compare with (see above)")
 	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
 	method := fs.String("method", "tetrahedron", "DOS method of the panel: tetrahedron, gaussian or histogram")
 	width := fs.Float64("width", 0, "Gaussian width of the panel's DOS, in --unit (default: from the grid)")
@@ -44,6 +53,15 @@ func cmdPath(args []string, e *env) error {
 	}
 	if *spacing < 0 {
 		return usagef("--spacing must be > 0 1/Å, got %v", *spacing)
+	}
+	if *connectOld {
+		e.note("--connect is deprecated; it is now called --follow-modes")
+	}
+	var rows []measuredRow
+	if *measured != "" {
+		if rows, err = readPathMeasured(*measured, unitPerTHz(u)); err != nil {
+			return usagef("--measured: %v", err)
+		}
 	}
 	var corners []pathCorner
 	if *pathFlag != "" {
@@ -73,9 +91,10 @@ func cmdPath(args []string, e *env) error {
 			return err
 		}
 	}
+	manySites := len(crystal.GetSites()) > 1
 	req := &modegridv1.ComputeDispersionRequest{
 		Model: src, Path: pathPoints(corners), Points: uint32(*points), SpacingInvA: *spacing,
-		Unit: u, ConnectBranches: *connectBranches,
+		Unit: u, FollowModes: *follow || *connectOld, SiteWeights: c.out.plot != "" && manySites,
 	}
 	done := e.prog.running("dispersion")
 	resp, err := cl.Dispersion(ctx, req)
@@ -83,7 +102,12 @@ func cmdPath(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	if err := c.out.write(e.stdout, func(w io.Writer) error { return writePath(w, c.out.format, resp) }); err != nil {
+	var overlay []plotPoint
+	if rows != nil {
+		if overlay, err = c.pathResiduals(ctx, cl, e, src, *measured, rows, resp); err != nil {
+			return err
+		}
+	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writePath(w, c.out.format, resp) }); err != nil {
 		return err
 	}
 	if c.out.plot == "" {
@@ -92,13 +116,53 @@ func cmdPath(args []string, e *env) error {
 	var dos *modegridv1.ComputeDosResponse
 	if dosSet != nil {
 		done := e.prog.running("density of states for the side panel")
-		dos, err = cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: dosSet, Method: meth, Unit: u, Width: *width})
+		dos, err = cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: dosSet, Method: meth, Unit: u, Width: *width, PerSite: manySites})
 		done()
 		if err != nil {
 			return err
 		}
 	}
-	return plotDispersion(c.out.plot, c.out.kind, resp, dos, crystal.GetName())
+	return plotDispersion(c.out.plot, c.out.kind, dispersionFigure{disp: resp, dos: dos, key: newSiteKey(siteLabels(crystal)),
+		measured: overlay, title: crystal.GetName()})
+}
+
+// pathResiduals places the measured rows on the path, asks the model's
+// frequencies at their q and writes the residuals as the output.
+func (c *modelCommand) pathResiduals(ctx context.Context, cl *client.Client, e *env, src *modegridv1.ModelSource, file string, rows []measuredRow,
+	resp *modegridv1.ComputeDispersionResponse) ([]plotPoint, error) {
+	if err := locateOnPath(file, rows, resp.GetSamples()); err != nil {
+		return nil, usagef("--measured: %v", err)
+	}
+	list := &modegridv1.QPointList{}
+	for _, m := range rows {
+		list.Points = append(list.Points, &modegridv1.QPoint{Q1: m.q[0], Q2: m.q[1], Q3: m.q[2]})
+	}
+	done := e.prog.running("modes at the measured points")
+	modes, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: src, Unit: resp.GetUnit(),
+		Qpoints: &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: list}}})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	rs, err := pathResiduals(file, rows, modes.GetPoints())
+	if err != nil {
+		return nil, usagef("--measured: %v", err)
+	}
+	u := unitName(resp.GetUnit())
+	t := residualTable{xName: "distance (1/Å)", xCSV: "distance_invA", yName: "ν (" + unitLabel(resp.GetUnit()) + ")", yCSV: "freq_" + u, path: true}
+	c.out.explicit = true // with --measured the residuals are the output, also beside --plot
+	return plotPoints(rows), c.out.write(e.stdout, func(w io.Writer) error { return writeResiduals(w, c.out.format, t, rs) })
+}
+
+// unitPerTHz is the value of 1 THz in an output unit.
+func unitPerTHz(u modegridv1.FrequencyUnit) float64 {
+	switch u {
+	case modegridv1.FrequencyUnit_FREQUENCY_UNIT_MEV:
+		return freqPerTHz["meV"]
+	case modegridv1.FrequencyUnit_FREQUENCY_UNIT_CM1:
+		return freqPerTHz["cm-1"]
+	}
+	return 1
 }
 
 // standardPath asks the server for the model's default path (by lattice

@@ -14,7 +14,9 @@ import (
 	"os"
 
 	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/text"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
@@ -34,34 +36,49 @@ var (
 )
 
 var (
+	// branchColor draws curves that carry no site information.
 	branchColor = color.RGBA{R: 0x1f, G: 0x4e, B: 0x9a, A: 0xff}
-	cornerColor = color.Gray{Y: 0xa0}
-	totalColor  = color.Black
-	// siteColors are distinguishable in colour and in grey print.
+	zeroColor   = color.Gray{Y: 0x90}
+	// shadeColor fills every other segment of a path.
+	shadeColor = color.Gray{Y: 0xf0}
+	totalColor = color.Black
+	// siteColors tell sites apart in every figure: the colour-blind-safe
+	// set of Okabe & Ito (2008), "Color Universal Design", blue first.
+	// Branches mix them by site share, so the first two, the commonest
+	// pair, are far apart in hue.
 	siteColors = []color.Color{
-		color.RGBA{R: 0xd9, G: 0x5f, B: 0x02, A: 0xff},
-		color.RGBA{R: 0x1b, G: 0x9e, B: 0x77, A: 0xff},
-		color.RGBA{R: 0x75, G: 0x70, B: 0xb3, A: 0xff},
-		color.RGBA{R: 0xe7, G: 0x29, B: 0x8a, A: 0xff},
-		color.RGBA{R: 0x66, G: 0xa6, B: 0x1e, A: 0xff},
-		color.RGBA{R: 0xa6, G: 0x76, B: 0x1d, A: 0xff},
+		color.RGBA{R: 0x00, G: 0x72, B: 0xb2, A: 0xff},
+		color.RGBA{R: 0xd5, G: 0x5e, B: 0x00, A: 0xff},
+		color.RGBA{R: 0x00, G: 0x9e, B: 0x73, A: 0xff},
+		color.RGBA{R: 0xcc, G: 0x79, B: 0xa7, A: 0xff},
+		color.RGBA{R: 0xe6, G: 0x9f, B: 0x00, A: 0xff},
+		color.RGBA{R: 0x56, G: 0xb4, B: 0xe9, A: 0xff},
 	}
+	// measuredColor marks measured points.
+	measuredColor = color.Black
 )
 
 // maxSiteCurves is the most per-site curves a DOS figure draws; past it,
 // the per-label projections are drawn instead.
 const maxSiteCurves = 8
 
-// newPlot returns a plot with the house fonts.
+// figureText is the text handler of every figure (plot_text.go).
+var figureText = raisedText{text.Plain{Fonts: font.DefaultCache}}
+
+// newPlot returns a plot with the house fonts and text handler.
 func newPlot() *plot.Plot {
 	p := plot.New()
 	for _, a := range []*plot.Axis{&p.X, &p.Y} {
 		a.Label.TextStyle.Font.Size = 11 * vg.Points(1)
 		a.Tick.Label.Font.Size = 10 * vg.Points(1)
 		a.Label.Padding = 3 * vg.Points(1)
+		a.Label.TextStyle.Handler = figureText
+		a.Tick.Label.Handler = figureText
 	}
 	p.Legend.TextStyle.Font.Size = 10 * vg.Points(1)
+	p.Legend.TextStyle.Handler = figureText
 	p.Title.TextStyle.Font.Size = 12 * vg.Points(1)
+	p.Title.TextStyle.Handler = figureText
 	return p
 }
 
@@ -75,29 +92,44 @@ func line(xs, ys []float64, c color.Color, width vg.Length) *plotter.Line {
 	return l
 }
 
-// writeFigure renders draw onto a canvas of the given size and writes it
-// as kind ("png" or "svg") to file.
-func writeFigure(file, kind string, size [2]vg.Length, render func(draw.Canvas)) error {
-	var wt io.WriterTo
-	switch kind {
-	case "svg":
-		c := vgsvg.New(size[0], size[1])
-		render(draw.New(c))
-		wt = c
-	default:
-		c := vgimg.NewWith(vgimg.UseWH(size[0], size[1]), vgimg.UseDPI(plotDPI), vgimg.UseBackgroundColor(color.White))
-		render(draw.New(c))
-		wt = vgimg.PngCanvas{Canvas: c}
+// figure is a drawing of a given size, not yet written.
+type figure struct {
+	size   [2]vg.Length
+	render func(draw.Canvas)
+}
+
+// canvas returns a fresh canvas of kind ("png" or "svg") for f, and how to
+// write it.
+func (f figure) canvas(kind string) (vg.CanvasSizer, io.WriterTo) {
+	if kind == "svg" {
+		c := vgsvg.New(f.size[0], f.size[1])
+		return c, c
 	}
-	f, err := os.Create(file)
+	c := vgimg.NewWith(vgimg.UseWH(f.size[0], f.size[1]), vgimg.UseDPI(plotDPI), vgimg.UseBackgroundColor(color.White))
+	return c, vgimg.PngCanvas{Canvas: c}
+}
+
+// writeTo renders f as kind to w.
+func (f figure) writeTo(w io.Writer, kind string) error {
+	c, wt := f.canvas(kind)
+	f.render(draw.New(c))
+	if _, err := wt.WriteTo(w); err != nil {
+		return fmt.Errorf("write plot: %w", err)
+	}
+	return nil
+}
+
+// write renders f as kind into file.
+func (f figure) write(file, kind string) error {
+	out, err := os.Create(file)
 	if err != nil {
 		return fmt.Errorf("write plot: %w", err)
 	}
-	if _, err := wt.WriteTo(f); err != nil {
-		f.Close()
-		return fmt.Errorf("write plot %s: %w", file, err)
+	if err := f.writeTo(out, kind); err != nil {
+		out.Close()
+		return fmt.Errorf("%s: %w", file, err)
 	}
-	if err := f.Close(); err != nil {
+	if err := out.Close(); err != nil {
 		return fmt.Errorf("write plot %s: %w", file, err)
 	}
 	return nil
@@ -168,97 +200,21 @@ func cornerTicks(s []*modegridv1.DispersionSample) plot.ConstantTicks {
 	return ticks
 }
 
-// plotDispersion draws the branches along the path, with vertical lines and
-// labelled ticks at the corners, and, when dos is not nil, the total DOS in
-// a narrow panel to the right on the same frequency axis.
-func plotDispersion(file, kind string, disp *modegridv1.ComputeDispersionResponse, dos *modegridv1.ComputeDosResponse, title string) error {
-	samples := disp.GetSamples()
-	if len(samples) == 0 {
-		return fmt.Errorf("plot: the dispersion has no samples")
-	}
-	u := unitLabel(disp.GetUnit())
-	var all [][]float64
-	for _, s := range samples {
-		all = append(all, s.GetFrequencies())
-	}
-	if dos != nil {
-		all = append(all, dos.GetFrequencies())
-	}
-	lo, hi := freqRange(all...)
-
-	left := newPlot()
-	left.Title.Text = title
-	left.X.Label.Text = "wavevector along the path"
-	left.Y.Label.Text = fmt.Sprintf("frequency ν (%s)", u)
-	left.Y.Min, left.Y.Max = lo, hi
-	left.X.Min = samples[0].GetDistanceInvA()
-	left.X.Max = samples[len(samples)-1].GetDistanceInvA()
-	ticks := cornerTicks(samples)
-	left.X.Tick.Marker = ticks
-	for _, t := range ticks {
-		left.Add(line([]float64{t.Value, t.Value}, []float64{lo, hi}, cornerColor, 0.6*vg.Points(1)))
-	}
-	if lo < 0 {
-		left.Add(line([]float64{left.X.Min, left.X.Max}, []float64{0, 0}, cornerColor, 0.6*vg.Points(1)))
-	}
-	for _, piece := range pathPieces(samples) {
-		branches := 0
-		for _, s := range piece {
-			branches = max(branches, len(s.GetFrequencies()))
-		}
-		for b := range branches {
-			var xs, ys []float64
-			for _, s := range piece {
-				if b < len(s.GetFrequencies()) {
-					xs = append(xs, s.GetDistanceInvA())
-					ys = append(ys, s.GetFrequencies()[b])
-				}
-			}
-			left.Add(line(xs, ys, branchColor, 1.4*vg.Points(1)))
-		}
-	}
-
-	var right *plot.Plot
-	if dos != nil && len(dos.GetFrequencies()) > 0 {
-		right = newPlot()
-		right.Title.Text = " " // keeps the panel tops level with the left title
-		if title == "" {
-			right.Title.Text = ""
-		}
-		right.X.Label.Text = fmt.Sprintf("DOS (1/%s)", u)
-		right.Y.Min, right.Y.Max = lo, hi
-		right.Y.Tick.Marker = blankLabels{plot.DefaultTicks{}}
-		right.X.Min = 0
-		gmax := 0.0
-		for _, g := range dos.GetDos() {
-			gmax = math.Max(gmax, g)
-		}
-		right.X.Max = gmax * 1.05
-		if right.X.Max == 0 {
-			right.X.Max = 1
-		}
-		right.Add(line(dos.GetDos(), dos.GetFrequencies(), totalColor, 1.2*vg.Points(1)))
-		if lo < 0 {
-			right.Add(line([]float64{0, right.X.Max}, []float64{0, 0}, cornerColor, 0.6*vg.Points(1)))
-		}
-	}
-	return writeFigure(file, kind, dispersionSize, func(dc draw.Canvas) {
-		if right == nil {
-			left.Draw(dc)
-			return
-		}
-		w := dc.Max.X - dc.Min.X
-		left.Draw(draw.Crop(dc, 0, -0.26*w, 0, 0))
-		right.Draw(draw.Crop(dc, 0.75*w, 0, 0, 0))
-	})
-}
-
 // plotDOS draws the total DOS and, when present, per-site curves, overlaid
 // or (stacked) as cumulative bands whose top is the total.
 func plotDOS(file, kind string, dos *modegridv1.ComputeDosResponse, stacked bool, title string) error {
+	f, err := buildDOS(dos, stacked, title)
+	if err != nil {
+		return err
+	}
+	return f.write(file, kind)
+}
+
+// buildDOS is the figure of plotDOS.
+func buildDOS(dos *modegridv1.ComputeDosResponse, stacked bool, title string) (figure, error) {
 	freqs := dos.GetFrequencies()
 	if len(freqs) == 0 {
-		return fmt.Errorf("plot: the DOS has no samples")
+		return figure{}, fmt.Errorf("plot: the DOS has no samples")
 	}
 	u := unitLabel(dos.GetUnit())
 	p := newPlot()
@@ -314,7 +270,7 @@ func plotDOS(file, kind string, dos *modegridv1.ComputeDosResponse, stacked bool
 	if p.Y.Max <= 0 {
 		p.Y.Max = 1
 	}
-	return writeFigure(file, kind, dosSize, func(dc draw.Canvas) { p.Draw(dc) })
+	return figure{size: dosSize, render: func(dc draw.Canvas) { p.Draw(dc) }}, nil
 }
 
 // lighten mixes c with white for the fill of a stacked band.
@@ -324,13 +280,31 @@ func lighten(c color.Color) color.Color {
 	return color.RGBA{R: mix(r), G: mix(g), B: mix(b), A: 0xff}
 }
 
-// plotThermal draws Cv (with the Dulong–Petit limit p·R per site, 3R per
-// site in three dimensions), S, F and U against temperature, per mole of
-// unit cells, on one page.
-func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, b thermalBasis, sites, pol int, title string) error {
-	pts := th.GetPoints()
+// thermalFigure is what the thermal page shows.
+type thermalFigure struct {
+	th         *modegridv1.ComputeThermalResponse
+	basis      thermalBasis // the amount every value is per
+	sites, pol int          // sites per cell, polarisations per site
+	measured   []plotPoint  // T (K), Cv ± σ in J/K per basis
+	title      string
+}
+
+// plotThermal draws t into file as kind.
+func plotThermal(file, kind string, t thermalFigure) error {
+	f, err := t.build()
+	if err != nil {
+		return err
+	}
+	return f.write(file, kind)
+}
+
+// build draws Cv (with the classical limit, kB per mode: p·R per mole of
+// atoms, 3R in three dimensions, and any measured points), S, F and U
+// against temperature, on one page, every axis per the basis t.basis.
+func (t thermalFigure) build() (figure, error) {
+	b, pts := t.basis, t.th.GetPoints()
 	if len(pts) == 0 {
-		return fmt.Errorf("plot: no temperatures")
+		return figure{}, fmt.Errorf("plot: no temperatures")
 	}
 	T := make([]float64, len(pts))
 	cv, s, f, u := make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts))
@@ -352,22 +326,29 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, b the
 	}
 	pcv, cvLine := panel(cv, "heat capacity Cv ("+b.entropyUnit()+")")
 	pcv.Y.Min = 0
-	// Dulong–Petit: the classical limit kB per mode on the basis b.
-	limit := b.classicalLimit(th, sites, pol)
-	dp := line([]float64{pcv.X.Min, pcv.X.Max}, []float64{limit, limit}, siteColors[0], 1.2*vg.Points(1))
+	// Dulong–Petit: the classical limit kB per mode on the basis
+	// (Kittel, Introduction to Solid State Physics, ch. 5).
+	limit := b.classicalLimit(t.th, t.sites, t.pol)
+	dp := line([]float64{pcv.X.Min, pcv.X.Max}, []float64{limit, limit}, siteColors[1], 1.2*vg.Points(1))
 	dp.Dashes = []vg.Length{5 * vg.Points(1), 3 * vg.Points(1)}
 	pcv.Add(dp)
 	pcv.Legend.Add("Cv", cvLine)
-	pcv.Legend.Add(b.classicalLabel(sites, pol), dp)
+	pcv.Legend.Add(b.classicalLabel(t.sites, t.pol), dp)
+	top := math.Max(limit, maxOf(cv))
+	for _, m := range t.measured {
+		top = math.Max(top, m.Y+m.Sigma)
+		pcv.X.Min, pcv.X.Max = math.Min(pcv.X.Min, m.X), math.Max(pcv.X.Max, m.X)
+	}
+	addMeasured(pcv, t.measured)
 	pcv.Legend.Left, pcv.Legend.Top = false, false
-	pcv.Y.Max = math.Max(limit, maxOf(cv)) * 1.08
+	pcv.Y.Max = top * 1.08
 	ps, _ := panel(s, "entropy S ("+b.entropyUnit()+")")
 	pf, _ := panel(f, "free energy F ("+b.energyUnit()+")")
 	pu, _ := panel(u, "internal energy U ("+b.energyUnit()+")")
 	grid := [][]*plot.Plot{{pcv, ps}, {pf, pu}}
-	return writeFigure(file, kind, thermalSize, func(dc draw.Canvas) {
-		if title != "" {
-			dc = drawTitle(dc, title)
+	return figure{size: thermalSize, render: func(dc draw.Canvas) {
+		if t.title != "" {
+			dc = drawTitle(dc, t.title)
 		}
 		tiles := draw.Tiles{Rows: 2, Cols: 2, PadX: 8 * vg.Millimeter, PadY: 6 * vg.Millimeter,
 			PadTop: 2 * vg.Millimeter, PadBottom: 2 * vg.Millimeter, PadLeft: 2 * vg.Millimeter, PadRight: 4 * vg.Millimeter}
@@ -377,7 +358,7 @@ func plotThermal(file, kind string, th *modegridv1.ComputeThermalResponse, b the
 				grid[i][j].Draw(canvases[i][j])
 			}
 		}
-	})
+	}}, nil
 }
 
 // drawTitle writes a page title at the top of dc and returns the rest.

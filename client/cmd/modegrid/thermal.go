@@ -1,10 +1,14 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"strings"
 
+	"google.golang.org/protobuf/proto"
+
+	"github.com/materials-lab/modegrid/client"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
@@ -16,7 +20,13 @@ and internal energy U (zero-point energy included), per mole of atoms (the
 default: Cv tends to 3R in 3D), per mole of cells or per kilogram (--basis),
 and the Debye temperature θD(T) that reproduces Cv, at --temps
 (start:stop:step in K, or a list). --msd adds mean-square displacements per
-site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.`
+site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.
+--measured FILE.csv compares measured heat capacities with the model (on
+the figure, with error bars) and makes the output the residuals
+(measured − model, and over σ, on the --basis) instead of the listing;
+its header is T_K,Cv_J_per_molatom_K[,sigma] (per mole of atoms),
+T_K,Cv_J_per_molcell_K[,sigma] (per mole of unit cells) or
+T_K,Cv_J_per_kg_K[,sigma] (per kilogram), Cv at constant volume.`
 
 func cmdThermal(args []string, e *env) error {
 	c := newModelCommand("thermal", true)
@@ -28,6 +38,7 @@ func cmdThermal(args []string, e *env) error {
 	allowUnstable := fs.Bool("allow-unstable", false, "leave imaginary modes out instead of refusing an unstable model")
 	dosRoute := fs.Bool("dos-route", false, "integrate over the tetrahedron DOS instead of summing the grid's modes")
 	basisFlag := fs.String("basis", "atoms", "amount the values are per: atoms (mole of atoms), cells (mole of cells, formula units) or kg")
+	measured := fs.String("measured", "", "CSV of measured heat capacities to compare with (see above)")
 	if err := c.parse(args, e, thermalSummary); err != nil {
 		return err
 	}
@@ -44,6 +55,13 @@ func cmdThermal(args []string, e *env) error {
 		return err
 	}
 	d, p := dims(crystal)
+	var rows []measuredRow
+	var rowsBasis thermalBasis
+	if *measured != "" {
+		if rows, rowsBasis, err = readThermalMeasured(*measured); err != nil {
+			return usagef("--measured: %v", err)
+		}
+	}
 	set, err := qs.set(d, true)
 	if err != nil {
 		return err
@@ -73,13 +91,19 @@ func cmdThermal(args []string, e *env) error {
 	if n := resp.GetImaginaryModesExcluded(); n > 0 {
 		e.note("%d imaginary modes on the %s were left out of the sums", n, describe(set))
 	}
-	if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp, basis) }); err != nil {
+	var points []plotPoint
+	if rows != nil {
+		if points, err = c.thermalResiduals(ctx, cl, e, req, rows, rowsBasis, basis); err != nil {
+			return err
+		}
+	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp, basis) }); err != nil {
 		return err
 	}
 	if c.out.plot == "" {
 		return nil
 	}
-	return plotThermal(c.out.plot, c.out.kind, resp, basis, len(crystal.GetSites()), p, crystal.GetName())
+	return plotThermal(c.out.plot, c.out.kind, thermalFigure{th: resp, basis: basis, sites: len(crystal.GetSites()), pol: p,
+		measured: points, title: crystal.GetName()})
 }
 
 // unstableHint rewrites the server's FAILED_PRECONDITION message for a
@@ -93,4 +117,39 @@ func unstableHint(msg string) string {
 		msg = msg[:i]
 	}
 	return fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))
+}
+
+// thermalResiduals asks the model's Cv at the measured temperatures (the
+// request of the listing with those temperatures), converts the measured
+// values from the file's basis to the output's, and writes the residuals
+// as the output. It returns the converted points for the figure.
+func (c *modelCommand) thermalResiduals(ctx context.Context, cl *client.Client, e *env, req *modegridv1.ComputeThermalRequest,
+	rows []measuredRow, from, basis thermalBasis) ([]plotPoint, error) {
+	at := proto.Clone(req).(*modegridv1.ComputeThermalRequest)
+	at.Range, at.TemperaturesK, at.Msd = nil, nil, false
+	for _, m := range rows {
+		at.TemperaturesK = append(at.TemperaturesK, m.x)
+	}
+	done := e.prog.running("heat capacity at the measured temperatures")
+	resp, err := cl.Thermal(ctx, at)
+	done()
+	if err != nil {
+		return nil, err
+	}
+	rows = convertRows(rows, from, basis, int(resp.GetAtomsPerCell()), resp.GetCellMassAmu())
+	cv := map[float64]float64{}
+	for _, p := range resp.GetPoints() {
+		cv[p.GetTemperatureK()], _, _, _ = basis.values(p)
+	}
+	rs := make([]residual, len(rows))
+	for i, m := range rows {
+		v, ok := cv[m.x]
+		if !ok {
+			return nil, fmt.Errorf("thermal: the server gave no point at the measured %v K", m.x)
+		}
+		rs[i] = newResidual(m, v)
+	}
+	t := residualTable{xName: "T (K)", xCSV: "T_K", yName: "Cv (" + basis.entropyUnit() + ")", yCSV: basis.measuredColumn()}
+	c.out.explicit = true // with --measured the residuals are the output, also beside --plot
+	return plotPoints(rows), c.out.write(e.stdout, func(w io.Writer) error { return writeResiduals(w, c.out.format, t, rs) })
 }

@@ -1093,11 +1093,21 @@ type ComputeDispersionRequest struct {
 	SpacingInvA float64 `protobuf:"fixed64,4,opt,name=spacing_inv_a,json=spacingInvA,proto3" json:"spacing_inv_a,omitempty"`
 	// Unit of the frequencies.
 	Unit FrequencyUnit `protobuf:"varint,5,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
-	// Connect branches across crossings by eigenvector overlap instead of
-	// sorting frequencies at each point.
+	// Deprecated: use follow_modes, which means the same. Still honoured: the
+	// branches are followed when either field is true.
+	//
+	// Deprecated: Marked as deprecated in modegrid/v1/service.proto.
 	ConnectBranches bool `protobuf:"varint,6,opt,name=connect_branches,json=connectBranches,proto3" json:"connect_branches,omitempty"`
-	unknownFields   protoimpl.UnknownFields
-	sizeCache       protoimpl.SizeCache
+	// Order the frequencies of each sample by branch, following each mode from
+	// sample to sample by the overlap of its eigenvector with the previous
+	// sample's (so branches keep their identity through crossings), instead of
+	// ascending. Each piece of the path starts in ascending order.
+	FollowModes bool `protobuf:"varint,7,opt,name=follow_modes,json=followModes,proto3" json:"follow_modes,omitempty"`
+	// Also return, per sample and branch, how much of the mode's motion each
+	// site carries (DispersionSample.site_weights).
+	SiteWeights   bool `protobuf:"varint,8,opt,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ComputeDispersionRequest) Reset() {
@@ -1165,9 +1175,24 @@ func (x *ComputeDispersionRequest) GetUnit() FrequencyUnit {
 	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
 }
 
+// Deprecated: Marked as deprecated in modegrid/v1/service.proto.
 func (x *ComputeDispersionRequest) GetConnectBranches() bool {
 	if x != nil {
 		return x.ConnectBranches
+	}
+	return false
+}
+
+func (x *ComputeDispersionRequest) GetFollowModes() bool {
+	if x != nil {
+		return x.FollowModes
+	}
+	return false
+}
+
+func (x *ComputeDispersionRequest) GetSiteWeights() bool {
+	if x != nil {
+		return x.SiteWeights
 	}
 	return false
 }
@@ -1182,7 +1207,17 @@ type DispersionSample struct {
 	// Label when this sample is a path corner, otherwise empty.
 	Label string `protobuf:"bytes,3,opt,name=label,proto3" json:"label,omitempty"`
 	// Frequencies per branch, response unit.
-	Frequencies   []float64 `protobuf:"fixed64,4,rep,packed,name=frequencies,proto3" json:"frequencies,omitempty"`
+	Frequencies []float64 `protobuf:"fixed64,4,rep,packed,name=frequencies,proto3" json:"frequencies,omitempty"`
+	// With site_weights: the share of each site in each branch's motion,
+	// branch-major, site_weights[b·S + s] for branch b (the order of
+	// frequencies) and site s (model order), S = number of sites. The share is
+	// Σ_axes |e_s,axis|² of the normalised eigenvector e of the dynamical
+	// matrix (mass-weighted, so it is the site's share of the mode's kinetic
+	// energy); dimensionless, in [0, 1], summing to 1 over the sites of a
+	// branch. Within a group of degenerate modes (frequencies within 1e-6 THz)
+	// the individual eigenvectors are arbitrary, so each mode of the group gets
+	// the group's mean shares. Empty unless asked for.
+	SiteWeights   []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1241,6 +1276,13 @@ func (x *DispersionSample) GetLabel() string {
 func (x *DispersionSample) GetFrequencies() []float64 {
 	if x != nil {
 		return x.Frequencies
+	}
+	return nil
+}
+
+func (x *DispersionSample) GetSiteWeights() []float64 {
+	if x != nil {
+		return x.SiteWeights
 	}
 	return nil
 }
@@ -2557,10 +2599,14 @@ type CheckModelResponse struct {
 	StandardPoints []*PathPoint `protobuf:"bytes,16,rep,name=standard_points,json=standardPoints,proto3" json:"standard_points,omitempty"`
 	// Canonical parameters of the check (e.g. the coarse stability grid).
 	Parameters string `protobuf:"bytes,17,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Estimated cost on this server of requests typical for this model,
+	// from the same estimators admission control uses: whether each would be
+	// admitted, its peak memory and its compute time.
+	TypicalCosts []*RequestCost `protobuf:"bytes,18,rep,name=typical_costs,json=typicalCosts,proto3" json:"typical_costs,omitempty"`
 	// The default path of this lattice type and dimensionality through the
 	// built-in points (labels, with break_before where a new piece starts);
 	// empty when the lattice has none (give coordinates instead).
-	DefaultPath   []*PathPoint `protobuf:"bytes,18,rep,name=default_path,json=defaultPath,proto3" json:"default_path,omitempty"`
+	DefaultPath   []*PathPoint `protobuf:"bytes,19,rep,name=default_path,json=defaultPath,proto3" json:"default_path,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2714,11 +2760,93 @@ func (x *CheckModelResponse) GetParameters() string {
 	return ""
 }
 
+func (x *CheckModelResponse) GetTypicalCosts() []*RequestCost {
+	if x != nil {
+		return x.TypicalCosts
+	}
+	return nil
+}
+
 func (x *CheckModelResponse) GetDefaultPath() []*PathPoint {
 	if x != nil {
 		return x.DefaultPath
 	}
 	return nil
+}
+
+// RequestCost is the estimated cost of one kind of request on a model.
+type RequestCost struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// What is estimated, e.g. "dos 24x24x24 tetrahedron".
+	Request string `protobuf:"bytes,1,opt,name=request,proto3" json:"request,omitempty"`
+	// Estimated peak memory of the computation, bytes.
+	PeakBytes uint64 `protobuf:"varint,2,opt,name=peak_bytes,json=peakBytes,proto3" json:"peak_bytes,omitempty"`
+	// Estimated compute time on this server's cores, seconds (at the
+	// server's conservative calibrated rate).
+	Seconds float64 `protobuf:"fixed64,3,opt,name=seconds,proto3" json:"seconds,omitempty"`
+	// Whether the request fits this server's memory budget and compute-time
+	// bound (it may still have to wait for memory while others run).
+	Admitted      bool `protobuf:"varint,4,opt,name=admitted,proto3" json:"admitted,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *RequestCost) Reset() {
+	*x = RequestCost{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *RequestCost) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*RequestCost) ProtoMessage() {}
+
+func (x *RequestCost) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
+func (*RequestCost) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *RequestCost) GetRequest() string {
+	if x != nil {
+		return x.Request
+	}
+	return ""
+}
+
+func (x *RequestCost) GetPeakBytes() uint64 {
+	if x != nil {
+		return x.PeakBytes
+	}
+	return 0
+}
+
+func (x *RequestCost) GetSeconds() float64 {
+	if x != nil {
+		return x.Seconds
+	}
+	return 0
+}
+
+func (x *RequestCost) GetAdmitted() bool {
+	if x != nil {
+		return x.Admitted
+	}
+	return false
 }
 
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
@@ -2777,19 +2905,22 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\tPathPoint\x12\x14\n" +
 	"\x05label\x18\x01 \x01(\tR\x05label\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12!\n" +
-	"\fbreak_before\x18\x03 \x01(\bR\vbreakBefore\"\x8d\x02\n" +
+	"\fbreak_before\x18\x03 \x01(\bR\vbreakBefore\"\xd7\x02\n" +
 	"\x18ComputeDispersionRequest\x12.\n" +
 	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12*\n" +
 	"\x04path\x18\x02 \x03(\v2\x16.modegrid.v1.PathPointR\x04path\x12\x16\n" +
 	"\x06points\x18\x03 \x01(\rR\x06points\x12\"\n" +
 	"\rspacing_inv_a\x18\x04 \x01(\x01R\vspacingInvA\x12.\n" +
-	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12)\n" +
-	"\x10connect_branches\x18\x06 \x01(\bR\x0fconnectBranches\"\x93\x01\n" +
+	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12-\n" +
+	"\x10connect_branches\x18\x06 \x01(\bB\x02\x18\x01R\x0fconnectBranches\x12!\n" +
+	"\ffollow_modes\x18\a \x01(\bR\vfollowModes\x12!\n" +
+	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xb6\x01\n" +
 	"\x10DispersionSample\x12$\n" +
 	"\x0edistance_inv_a\x18\x01 \x01(\x01R\fdistanceInvA\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x14\n" +
 	"\x05label\x18\x03 \x01(\tR\x05label\x12 \n" +
-	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\"\xc3\x01\n" +
+	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\x12!\n" +
+	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\"\xc3\x01\n" +
 	"\x19ComputeDispersionResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -2904,7 +3035,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\x87\x06\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc6\x06\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -2930,8 +3061,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x0fstandard_points\x18\x10 \x03(\v2\x16.modegrid.v1.PathPointR\x0estandardPoints\x12\x1e\n" +
 	"\n" +
 	"parameters\x18\x11 \x01(\tR\n" +
-	"parameters\x129\n" +
-	"\fdefault_path\x18\x12 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath*\x95\x01\n" +
+	"parameters\x12=\n" +
+	"\rtypical_costs\x18\x12 \x03(\v2\x18.modegrid.v1.RequestCostR\ftypicalCosts\x129\n" +
+	"\fdefault_path\x18\x13 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath\"|\n" +
+	"\vRequestCost\x12\x18\n" +
+	"\arequest\x18\x01 \x01(\tR\arequest\x12\x1d\n" +
+	"\n" +
+	"peak_bytes\x18\x02 \x01(\x04R\tpeakBytes\x12\x18\n" +
+	"\aseconds\x18\x03 \x01(\x01R\aseconds\x12\x1a\n" +
+	"\badmitted\x18\x04 \x01(\bR\badmitted*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
@@ -2980,7 +3118,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 26)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 27)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -3013,10 +3151,11 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*Crystal)(nil),                   // 31: modegrid.v1.Crystal
+	(*RequestCost)(nil),               // 31: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 32: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	31, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	32, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
 	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
 	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
@@ -3054,22 +3193,23 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	14, // 38: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	26, // 39: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 40: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 41: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 42: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 43: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 44: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 45: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 46: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 47: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 48: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	44, // [44:49] is the sub-list for method output_type
-	39, // [39:44] is the sub-list for method input_type
-	39, // [39:39] is the sub-list for extension type_name
-	39, // [39:39] is the sub-list for extension extendee
-	0,  // [0:39] is the sub-list for field type_name
+	31, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	26, // 40: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 41: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 42: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 43: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 44: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 45: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 46: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 47: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 48: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 49: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	45, // [45:50] is the sub-list for method output_type
+	40, // [40:45] is the sub-list for method input_type
+	40, // [40:40] is the sub-list for extension type_name
+	40, // [40:40] is the sub-list for extension extendee
+	0,  // [0:40] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3093,7 +3233,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   26,
+			NumMessages:   27,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

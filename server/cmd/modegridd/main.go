@@ -69,6 +69,7 @@ type options struct {
 	cacheBytes  byteSize
 	maxMsg      byteSize
 	maxChunk    byteSize
+	memBudget   byteSize
 	maxQueue    int
 	reflection  bool
 	logLevel    string
@@ -131,6 +132,8 @@ func newFlags(o *options) *flag.FlagSet {
 	o.maxMsg = server.DefaultMaxMsgBytes
 	fs.Var(&o.maxMsg, "max-msg-bytes", "cap: largest gRPC message received or sent, bytes")
 	fs.IntVar(&c.ChunkPoints, "chunk-points", server.DefaultChunkPoints, "default q-points per streamed modes message")
+	fs.Var(&o.memBudget, "memory-budget", "memory all computations together may take by their estimates, bytes (0: the container's memory limit, cgroup memory.max or GOMEMLIMIT, minus --cache-bytes, grid reductions (a quarter of --cache-bytes, at most 64 MiB) and a 256 MiB runtime reserve)")
+	fs.Float64Var(&c.MaxComputeSeconds, "max-compute-seconds", server.DefaultMaxComputeSeconds, "bound on the estimated compute time of one request, seconds (work at a conservative 1 GFlop/s per core)")
 	fs.Var(&o.maxChunk, "max-chunk-bytes", "bound on the mode data of one streamed message, bytes (0: 1 MiB or a quarter of --max-msg-bytes if less)")
 	fs.IntVar(&c.StabilityMesh, "stability-mesh", server.DefaultStabilityMesh, "points per reciprocal direction of the coarse grid CheckModel searches for imaginary modes")
 	fs.DurationVar(&c.ShutdownGrace, "shutdown-grace", server.DefaultShutdownGrace, "time calls in flight get to finish after SIGTERM/SIGINT")
@@ -209,6 +212,7 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 	}
 	c.MaxMsgBytes = int(o.maxMsg)
 	c.MaxChunkBytes = int(o.maxChunk)
+	c.MemoryBudget = int64(o.memBudget)
 	c.DisableReflection = !o.reflection
 	o.redis.MaxEntryBytes = int(o.redisMax)
 	pw, err := redisPassword(o.redisPwFile, getenv)

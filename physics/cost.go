@@ -1,0 +1,382 @@
+package physics
+
+import (
+	"math"
+	"runtime"
+	"unsafe"
+)
+
+// Cost estimates of the engine's computations, for admission control: a
+// caller can tell before any work how much memory a request will take and
+// how long it will compute, and refuse what cannot fit.
+//
+// Memory is an upper bound of everything the computation allocates
+// (Cost.Bytes), term by term from the allocations the code makes (each
+// estimator says which); with the garbage collector running the live peak
+// is lower, since transient arrays are freed on the way. Counting total
+// allocation rather than the live peak is deliberate: a collector that lags
+// behind (GOGC) keeps garbage resident, so what was allocated is what the
+// process may hold. TestCostLadder checks every estimator against the
+// measured allocation of real runs: never below, never more than 2× above.
+//
+// Work (Cost.Flops) is an operation count from the dominant loops
+// (Hermitian eigensolver, assembly of D(q), unfolding, simplex and mode
+// sums); it is an estimate to within a small factor, turned into seconds
+// with a conservative calibrated rate (FlopsPerCoreSecond).
+
+// Cost is the estimated peak memory and work of one computation.
+type Cost struct {
+	Bytes int64   // memory allocated, bytes (upper bound of the peak)
+	Flops float64 // floating-point operations
+}
+
+// Plus is the cost of doing c and then o while still holding c's memory.
+func (c Cost) Plus(o Cost) Cost { return Cost{Bytes: c.Bytes + o.Bytes, Flops: c.Flops + o.Flops} }
+
+// FlopsPerCoreSecond is the conservative rate at which work estimates are
+// turned into time: 1 GFlop/s per core. Measured on the project's 2-core
+// machine (Go 1.26, pure-Go Hermitian solver, n = 96…768): 3–6 GFlop/s per
+// core idle by the operation counts of diagFlops, 1.5–3 GFlop/s under a
+// load average of 10; the rate used is below all of them, so estimated
+// seconds over-state the time.
+const FlopsPerCoreSecond = 1e9
+
+// Seconds is the estimated time of c on the given number of cores (≥ 1)
+// at FlopsPerCoreSecond.
+func (c Cost) Seconds(cores int) float64 {
+	return c.Flops / (FlopsPerCoreSecond * float64(max(1, cores)))
+}
+
+// GridSize describes a grid computation for the estimators: the model's
+// size and the grid's.
+type GridSize struct {
+	Sites, P, Dim int
+	Interactions  int // force-constant pair terms (Model.Interactions): assembly work
+	Points        int // grid points N
+	// Irreducible is the number of points diagonalised: the exact count
+	// when known (ReductionCache.IrreducibleCount), else 0 for the upper
+	// bound IrreducibleUpperBound. Ignored with NoSymmetry (all points).
+	Irreducible int
+	Workers     int // goroutines of the parallel loops (0: GOMAXPROCS)
+}
+
+// GridSizeOf fills a GridSize for model m on spec (normalised, see
+// GridSpec.Normalize) with irr irreducible points (0: unknown).
+func (m *Model) GridSizeOf(spec GridSpec, irr int) GridSize {
+	return GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
+}
+
+func (s GridSize) modes() int { return s.Sites * s.P }
+
+func (s GridSize) workers() int {
+	if s.Workers > 0 {
+		return s.Workers
+	}
+	return runtime.GOMAXPROCS(0)
+}
+
+// reps is the number of points diagonalised.
+func (s GridSize) reps(opt GridOptions) int {
+	switch {
+	case opt.NoSymmetry:
+		return s.Points
+	case s.Irreducible > 0:
+		return min(s.Irreducible, s.Points)
+	}
+	return IrreducibleUpperBound(s.Points, s.Dim)
+}
+
+// pointBytes is what GridModes keeps per point: frequencies, and per
+// option the site weights, eigenvectors and site tensors.
+func (s GridSize) pointBytes(opt GridOptions) int64 {
+	nm, ns := int64(s.modes()), int64(s.Sites)
+	pairs := int64(s.P * (s.P + 1) / 2)
+	b := 8 * nm
+	if opt.Projections {
+		b += 8 * nm * ns
+	}
+	if opt.Eigenvectors {
+		b += 16 * nm * nm
+	}
+	if opt.SiteTensors {
+		b += 8 * nm * ns * pairs
+	}
+	return b
+}
+
+// diagFlops is the work of one Hermitian eigenproblem of order n:
+// reduction to tridiagonal form ≈ 16n³/3 real operations (4 per complex
+// multiply-add, 4n³/3 of them), then ≈ 18n³ more to accumulate the
+// transformations into eigenvectors (common practice: Golub & Van Loan,
+// Matrix Computations, 4th ed., §8.3, counts for the real case times four).
+func diagFlops(n int, vectors bool) float64 {
+	x := float64(n)
+	f := 16.0 / 3 * x * x * x
+	if vectors {
+		f += 18 * x * x * x
+	}
+	return f
+}
+
+// assembleFlops is the work of building D(q): a complex phase and a p×p
+// block per interaction, plus filling the n² matrix.
+func (s GridSize) assembleFlops() float64 {
+	n := float64(s.modes())
+	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
+}
+
+// workspaceBytes is one worker's eigensolver workspace (eigenWork: a and
+// hv, n² complex each, and n-vectors; with eigenvectors vecs, n² complex,
+// and zt, n² real) and its phase tables.
+func workspaceBytes(n int, vectors bool) int64 {
+	b := int64(32*n*n + 64*n + 1024)
+	if vectors {
+		b += int64(24 * n * n)
+	}
+	return b
+}
+
+// GridModesCost estimates Model.GridModes. Memory, from grid.go and
+// ibz.go: the point list (32 B a point); the reduction (Slot 4 B, OpIndex
+// 2 B and the visited mark 1 B per point; Irr and Mult allocated at the
+// capacity IrreducibleUpperBound and trimmed, 8 B each, at most 24 B per
+// bound point in all), counted even when the reduction comes from a cache,
+// which may have dropped it by the time the work starts; the arrays of the
+// diagonalised points, then the same arrays for every point (unfold); one
+// solver workspace per worker. Work: assembly and diagonalisation of every
+// diagonalised point, plus the unfolding (a p×p rotation per site and mode
+// for eigenvectors and tensors).
+func GridModesCost(s GridSize, opt GridOptions) Cost {
+	n := int64(s.Points)
+	reps := int64(s.reps(opt))
+	per := s.pointBytes(opt)
+	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
+	// 4 kB: the result's header, the workers' closures and channels.
+	c := Cost{Bytes: 4<<10 + 32*n + n*per + int64(s.workers())*workspaceBytes(s.modes(), vec)}
+	if opt.NoSymmetry {
+		c.Bytes += 10 * n // measured: about 9.5 B a point beyond the arrays, origin not traced
+	} else {
+		ub := int64(IrreducibleUpperBound(s.Points, s.Dim))
+		c.Bytes += 7*n + 24*ub + reps*per + symOpsBytes + 12<<10
+	}
+	c.Flops = float64(reps) * (diagFlops(s.modes(), vec) + s.assembleFlops())
+	if !opt.NoSymmetry {
+		nm, p := float64(s.modes()), float64(s.P)
+		u := nm // frequencies copied
+		if opt.Projections {
+			u += nm * float64(s.Sites)
+		}
+		if opt.Eigenvectors {
+			u += 8 * nm * nm * p
+		}
+		if opt.SiteTensors {
+			u += nm * float64(s.Sites) * 2 * p * p * p * p
+		}
+		c.Flops += float64(n) * u
+	}
+	return c
+}
+
+// symOpsBytes bounds the copies of the symmetry operations a reduction
+// makes (at most 48 SymOp of about 300 B, in a slice grown by append, and
+// their integer forms) and its cache key.
+const symOpsBytes = 64 << 10
+
+// GridModesBytes is the memory the finished GridModes hold
+// (GridModes.Bytes): what a cache keeping them is charged.
+func GridModesBytes(s GridSize, opt GridOptions) int64 {
+	return 256 + int64(s.Points)*(32+s.pointBytes(opt))
+}
+
+// simplicesPerCell is d!: the simplices of one grid cell (gridSimplices).
+func simplicesPerCell(dim int) int64 { return [4]int64{1, 1, 2, 6}[min(max(dim, 1), 3)] }
+
+// accBytes is one cumAcc of ns sites on a cumGrid of n abscissae: val and
+// step, and with sites sval, sstep, cutSite and four scratch rows.
+func accBytes(n, ns int64) int64 {
+	b := 16*n + 8 + 256
+	if ns > 0 {
+		b += 16*n*ns + 8*ns + 8*ns + 4*8*ns
+	}
+	return b
+}
+
+// DOSCost estimates ComputeDOS on grid modes of size s (not included: add
+// GridModesCost) for samples frequency samples (the window divided by the
+// step; DefaultDOSBins when chosen from the modes). Memory, from dos.go,
+// tetra.go and tetra_sym.go: for the total tetrahedron DOS of a reduced
+// grid, the simplex classes (8 B of key per simplex, 8 B more for the
+// radix sort, 16 B per class at most one per simplex); up to detSlices
+// accumulators on 2·samples+1 abscissae (per site too with projections);
+// the resolved totals; the result's series (3 per sample, plus one per
+// site and per label with projections, labels ≤ sites). Work: every
+// simplex (or point, for Gaussian and histogram) and band, with the
+// samples it spans estimated from the spread of frequencies across one
+// grid cell.
+func DOSCost(s GridSize, opt DOSOptions, samples int, reduced bool) Cost {
+	ns := int64(0)
+	if opt.PerSite {
+		ns = int64(s.Sites)
+	}
+	S := int64(samples)
+	acc := 2*S + 1
+	var c Cost
+	simplices := simplicesPerCell(s.Dim) * int64(s.Points)
+	// One accumulator per slice of the work (chunkWorkers).
+	accs := int64(chunkWorkers(s.Points, modeChunk))
+	if opt.Method == Tetrahedron {
+		accs = int64(chunkWorkers(s.Points, tetraChunk))
+		if reduced && !opt.PerSite {
+			// Classes: keys, the radix sort's buffer and its digit
+			// counts (1<<16 ints), the classes; then one accumulator per
+			// slice of at most one class per simplex.
+			c.Bytes += 32*simplices + 8<<16 + 16<<10 // 16 kB: the cache key and headers
+			accs = int64(chunkWorkers(int(simplices), classChunk))
+		}
+	}
+	c.Bytes += accs*accBytes(acc, ns) + 8*acc*(1+ns) + 8*ns
+	c.Bytes += 24*S + 16*S*ns + 64*ns + 16<<10
+	// Samples a band spans inside one simplex: the band's range over the
+	// zone (at most the window) divided by the points per direction.
+	perDir := math.Pow(float64(max(1, s.Points)), 1/float64(min(max(s.Dim, 1), 3)))
+	span := 2 + float64(S)/perDir
+	bands := float64(s.modes())
+	switch opt.Method {
+	case Tetrahedron:
+		c.Flops = float64(simplices) * bands * (60 + span*(4+4*float64(ns)))
+	default:
+		c.Flops = float64(s.Points) * bands * (20 + span*(8+2*float64(ns)))
+	}
+	return c
+}
+
+// ThermalCost estimates ComputeThermal on grid modes of size s (not
+// included: add GridModesCost, with eigenvectors for msd) at temps
+// temperatures. Memory, from thermal.go, msd.go and thermal_series.go: the
+// mode set (8 B of frequency and 8·nc B of channels per mode, nc = 1 or,
+// with msd, 1 + sites·p(p+1)/2; every mode counted), its copy sorted into
+// the frequency tree with the leaves' moments and the upper levels when
+// the tree is worth building; for the DOS-integral route a tetrahedron DOS
+// of dosRouteBins samples and its pseudo-modes; the sums per temperature;
+// the result points (and per-site tensors with msd). Work: the sums over
+// every mode and channel at every temperature (an upper bound: the tree
+// replaces most of them by series).
+func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bool) Cost {
+	modes := int64(s.Points) * int64(s.modes())
+	nc := int64(1)
+	if msd {
+		nc += int64(s.Sites * s.P * (s.P + 1) / 2)
+	}
+	T := int64(temps)
+	c := Cost{Bytes: 1024 + modes*8*(1+nc) + 8*(nc-1)}
+	tree := func(count, ncs int64) int64 {
+		if !(count >= 4096 && T >= 4 && count*T > 1<<20) {
+			return 0
+		}
+		nleaf := int64(1)
+		for nleaf < treeMaxLeaves && nleaf*32 < count {
+			nleaf *= 2
+		}
+		node := int64(unsafe.Sizeof(treeNode{}))
+		return count*8*(1+ncs) + 16*(nleaf+1) + 2*nleaf*(node+8*ncs*treeMoments) + 4096
+	}
+	c.Bytes += tree(modes, nc)
+	sums := 2 + nc
+	if route == DOSIntegral {
+		d := DOSCost(s, DOSOptions{}, dosRouteBins, reduced)
+		c = c.Plus(d)
+		c.Bytes += 2*8*dosRouteBins*2 + tree(dosRouteBins, 1)
+		if msd {
+			sums += 3
+		}
+	}
+	c.Bytes += T * (24 + 8*sums) * 2
+	// Per point, the θ_D status reason; per site and point, the divergence
+	// reason of low-dimensional displacements (short strings, 128 B each).
+	c.Bytes += T*(int64(unsafe.Sizeof(ThermalPoint{}))+reasonBytes) + elasticThetaBytes
+	if msd {
+		c.Bytes += T * int64(s.Sites) * (int64(unsafe.Sizeof(SiteMSD{})) + reasonBytes)
+	}
+	c.Flops += float64(modes) * (20 + 2*float64(nc)) // collecting the modes
+	c.Flops += float64(T) * float64(modes) * (40 + 2*float64(nc))
+	return c
+}
+
+// reasonBytes bounds one explanatory string of a thermal result (a θ_D
+// status reason, a divergence reason).
+const reasonBytes = 128
+
+// elasticThetaBytes bounds what the elastic Debye temperature of a thermal
+// result allocates once the model's long-wave limit is known: 512
+// directions, each a few p-vectors and a 3p × p factor, about 256 B
+// (elastic.go; measured 130–150 kB in all). The
+// long-wave limit itself is computed once per model (at most
+// maxLongWaveEntries of 8 B) and is part of the model's memory, not of a
+// request's.
+const elasticThetaBytes = 192 << 10
+
+// StreamCost estimates StreamModes over points q-points in chunks of
+// chunk points with workers goroutines (0: GOMAXPROCS). Memory, from
+// modes.go: at most 2·workers chunks computed ahead plus the one being
+// emitted, each holding its PointModes records, frequencies, eigenvectors
+// and velocities; one workspace per worker (and the velocity workspace,
+// 7 n² complex). The point list itself is the caller's. Work: every point
+// assembled and diagonalised, velocities by three Hermitian products per
+// mode.
+func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
+	n := int64(s.modes())
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	chunk = max(1, min(chunk, max(1, points)))
+	nchunks := (points + chunk - 1) / chunk
+	workers = min(workers, max(1, nchunks))
+	per := int64(unsafe.Sizeof(PointModes{})) + 8*n
+	if opt.Eigenvectors {
+		per += 16 * n * n
+	}
+	if opt.Velocities {
+		per += 24 * n
+	}
+	inFlight := int64(min(nchunks, 2*workers+1))
+	vec := opt.Eigenvectors || opt.Velocities
+	ws := workspaceBytes(int(n), vec)
+	if opt.Velocities {
+		ws += 9*16*n*n + 1024 // velWork and its solvers of degenerate groups
+	}
+	c := Cost{Bytes: 8<<10 + inFlight*int64(chunk)*per + int64(workers)*ws}
+	f := diagFlops(int(n), vec) + s.assembleFlops()
+	if opt.Velocities {
+		x := float64(n)
+		f += 3 * (8*x*x*x + s.assembleFlops())
+	}
+	c.Flops = float64(points) * f
+	return c
+}
+
+// DispersionCost estimates Model.Dispersion for samples samples
+// (path.go): the samples (a PathSample, its point and frequencies each, the
+// frequencies kept from the streamed chunks), the stream (eigenvectors in
+// chunks of at most 64 points when connecting branches) and the branch
+// connector (about five n² matrices, plus an output row per sample).
+// vectors is true when the path needs eigenvectors (following modes or
+// per-site weights); weights adds the per-sample site shares.
+func DispersionCost(s GridSize, samples int, vectors, weights bool) Cost {
+	connect := vectors
+	n := int64(s.modes())
+	S := int64(samples)
+	chunk := DefaultChunkPoints
+	if connect {
+		chunk = int(max(1, min(64, DefaultChunkBytes/(16*n*n+1))))
+	}
+	c := Cost{Bytes: S * (int64(unsafe.Sizeof(PathSample{})) + 1 + 32 + 8*n)}
+	c = c.Plus(StreamCost(s, samples, chunk, 0, ModeOptions{Eigenvectors: connect}))
+	if connect {
+		c.Bytes += 80*n*n + S*(8*n+16*n+64)
+		c.Flops += float64(S) * 8 * float64(n*n*n)
+	}
+	if weights {
+		c.Bytes += S * 8 * n * int64(s.Sites)
+	}
+	return c
+}

@@ -1,0 +1,173 @@
+package physics
+
+import (
+	"context"
+	"fmt"
+	"runtime"
+	"runtime/debug"
+	"testing"
+)
+
+// measureAlloc runs fn with the garbage collector off and returns the heap
+// bytes it allocated (runtime.MemStats.TotalAlloc growth). With no
+// collection nothing is freed, so this is an upper bound of fn's peak live
+// heap, and deterministic: it does not depend on when a collection would
+// have run. Estimates are held to it from both sides: an estimate at or
+// above it is at or above the true peak (the direction admission needs);
+// the ≤ 2× side is checked against this upper bound of the peak, so it
+// says the estimate is within 2× of everything fn allocates.
+func measureAlloc(t *testing.T, fn func()) int64 {
+	t.Helper()
+	old := debug.SetGCPercent(-1)
+	defer debug.SetGCPercent(old)
+	runtime.GC()
+	var a, b runtime.MemStats
+	runtime.ReadMemStats(&a)
+	fn()
+	runtime.ReadMemStats(&b)
+	return int64(b.TotalAlloc - a.TotalAlloc)
+}
+
+// TestCostLadder compares every estimator with the measured allocation of
+// the real computation over a ladder of models (1, 2, 8 and 64 sites) and
+// grids, with every output option: the estimate must never be below the
+// measurement nor more than twice it. The table is logged (go test -v).
+func TestCostLadder(t *testing.T) {
+	ctx := context.Background()
+	type rung struct {
+		name string
+		est  func() int64
+		run  func()
+	}
+	var rungs []rung
+	for _, l := range ladder(t) {
+		if raceEnabled && l.sites > 8 {
+			continue // the 64-site rungs take a minute under the race detector
+		}
+		m := l.m
+		m.SoundVelocities([3]float64{0, 0, 1}) // the model's one-time long-wave limit
+		meshes := []int{4, 10}
+		if raceEnabled {
+			meshes = meshes[:1]
+		}
+		if l.sites >= 8 {
+			meshes = []int{2, 4}
+		}
+		if l.sites >= 64 {
+			meshes = []int{2}
+		}
+		for _, n := range meshes {
+			spec := GridSpec{Mesh: [3]int{n, n, n}}
+			cache := NewReductionCache(64 << 20)
+			irr, _ := cache.IrreducibleCount(m, spec)
+			size := m.GridSizeOf(spec, irr)
+			for _, opt := range []GridOptions{{}, {Projections: true}, {Eigenvectors: true}, {SiteTensors: true}, {NoSymmetry: true, Projections: true}} {
+				opt.Cache = cache
+				rungs = append(rungs, rung{
+					name: fmt.Sprintf("%d sites %d³ grid %+v", l.sites, n, optName(opt)),
+					est:  func() int64 { return GridModesCost(size, opt).Bytes },
+					run: func() {
+						if _, err := m.GridModes(ctx, spec, opt); err != nil {
+							t.Fatal(err)
+						}
+					},
+				})
+			}
+			g, err := m.GridModes(ctx, spec, GridOptions{Projections: true, Eigenvectors: true, Cache: cache})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, dopt := range []DOSOptions{{}, {PerSite: true}, {Method: Gaussian, PerSite: true}, {Method: Histogram}, {Step: 0.01, Min: 0, Max: 20}} {
+				samples := DefaultDOSBins + 1
+				if dopt.Step > 0 {
+					samples = int((dopt.Max-dopt.Min)/dopt.Step) + 1
+				}
+				rungs = append(rungs, rung{
+					name: fmt.Sprintf("%d sites %d³ DOS %v per-site=%v samples=%d", l.sites, n, dopt.Method, dopt.PerSite, samples),
+					est: func() int64 {
+						// A cold class table: a fresh cache for every run.
+						return DOSCost(size, dopt, samples, true).Bytes
+					},
+					run: func() {
+						gg := *g
+						gg.cache = nil
+						if _, err := ComputeDOS(ctx, m, &gg, dopt); err != nil {
+							t.Fatal(err)
+						}
+					},
+				})
+			}
+			for _, th := range []struct {
+				temps int
+				msd   bool
+				route ThermalRoute
+			}{{3, false, ModeSum}, {50, false, ModeSum}, {10, true, ModeSum}, {20, false, DOSIntegral}, {20, true, DOSIntegral}} {
+				temps := make([]float64, th.temps)
+				for i := range temps {
+					temps[i] = 10 + 20*float64(i)
+				}
+				rungs = append(rungs, rung{
+					name: fmt.Sprintf("%d sites %d³ thermal %d temps msd=%v %v", l.sites, n, th.temps, th.msd, th.route),
+					est:  func() int64 { return ThermalCost(size, th.temps, th.msd, th.route, true).Bytes },
+					run: func() {
+						gg := *g
+						gg.cache = nil
+						if _, err := ComputeThermal(ctx, m, &gg, ThermalOptions{TempsK: temps, MSD: th.msd, Route: th.route, AllowUnstable: true}); err != nil {
+							t.Fatal(err)
+						}
+					},
+				})
+			}
+		}
+		for _, mo := range []ModeOptions{{}, {Eigenvectors: true}, {Velocities: true}} {
+			// Few enough chunks that all are in flight at once: then the
+			// total allocation is the peak the estimate bounds.
+			pts := GridSpec{Mesh: [3]int{4, 4, 4}}.Points()
+			mo.ChunkSize = 16
+			if l.sites >= 64 {
+				if mo.Velocities {
+					continue // the 8-site rung covers them
+				}
+				pts, mo.ChunkSize = pts[:8], 2
+			}
+			size := m.GridSizeOf(GridSpec{Mesh: [3]int{1, 1, 1}}, 0)
+			rungs = append(rungs, rung{
+				name: fmt.Sprintf("%d sites stream of %d points, eigenvectors=%v velocities=%v", l.sites, len(pts), mo.Eigenvectors, mo.Velocities),
+				est:  func() int64 { return StreamCost(size, len(pts), mo.ChunkSize, 0, mo).Bytes },
+				run: func() {
+					if err := m.StreamModes(ctx, pts, mo, func(ModeChunk) error { return nil }); err != nil {
+						t.Fatal(err)
+					}
+				},
+			})
+		}
+	}
+	t.Logf("| request | estimate | measured | ratio |")
+	t.Logf("|---|---|---|---|")
+	for _, r := range rungs {
+		got := measureAlloc(t, r.run)
+		est := r.est()
+		ratio := float64(est) / float64(got)
+		t.Logf("| %s | %d | %d | %.2f |", r.name, est, got, ratio)
+		if est < got || ratio > 2 {
+			t.Errorf("%s: estimate %d B, measured %d B (ratio %.2f, want 1…2)", r.name, est, got, ratio)
+		}
+	}
+}
+
+func optName(o GridOptions) string {
+	s := "freq"
+	if o.Projections {
+		s += "+sites"
+	}
+	if o.Eigenvectors {
+		s += "+vectors"
+	}
+	if o.SiteTensors {
+		s += "+tensors"
+	}
+	if o.NoSymmetry {
+		s += " nosym"
+	}
+	return s
+}

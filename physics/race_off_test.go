@@ -1,0 +1,5 @@
+//go:build !race
+
+package physics
+
+const raceEnabled = false
