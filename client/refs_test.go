@@ -16,7 +16,7 @@ func chain(massAmu float64) *modegridv1.Crystal {
 		Lattice:       []*modegridv1.Vec3{{X: 2.5}},
 		Polarizations: 1,
 		Sites:         []*modegridv1.Site{{Label: "A", MassAmu: massAmu, Frac: []float64{0}}},
-		Springs:       []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: 1.5}},
+		Springs:       []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: 1.5}},
 	}
 }
 
@@ -65,8 +65,8 @@ func clearModel(m proto.Message) {
 // TestKeyOf: the client-side key ignores JSON spelling but not content or
 // the sum-rule flag.
 func TestKeyOf(t *testing.T) {
-	const camel = `{"name":"chain","lattice":[{"x":2.5}],"polarizations":1,"sites":[{"label":"A","massAmu":40,"frac":[0]}],"springs":[{"from":0,"to":0,"cell":[1],"kLong":1.5}]}`
-	const snake = `{"springs":[{"k_long":1.5,"cell":[1],"to":0,"from":0}],"sites":[{"frac":[0],"mass_amu":40,"label":"A"}],"polarizations":1,"lattice":[{"x":2.5,"y":0}],"name":"chain"}`
+	const camel = `{"name":"chain","lattice":[{"x":2.5}],"polarizations":1,"sites":[{"label":"A","massAmu":40,"frac":[0]}],"springs":[{"fromSite":0,"toSite":0,"cell":[1],"kLong":1.5}]}`
+	const snake = `{"springs":[{"k_long":1.5,"cell":[1],"to_site":0,"from_site":0}],"sites":[{"frac":[0],"mass_amu":40,"label":"A"}],"polarizations":1,"lattice":[{"x":2.5,"y":0}],"name":"chain"}`
 	a, err := ParseModel([]byte(camel))
 	if err != nil {
 		t.Fatal(err)
@@ -300,7 +300,7 @@ func BenchmarkKeyOf(b *testing.B) {
 		c := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 10}, {Y: 10}, {Z: 10}}}
 		for i := range sites {
 			c.Sites = append(c.Sites, &modegridv1.Site{Label: "A", MassAmu: 40, Frac: []float64{float64(i) / float64(sites), 0, 0}})
-			c.Springs = append(c.Springs, &modegridv1.Spring{From: uint32(i), To: uint32((i + 1) % sites), Cell: []int32{0, 0, 0}, KLong: 1})
+			c.Springs = append(c.Springs, &modegridv1.Spring{FromSite: uint32(i), ToSite: uint32((i + 1) % sites), Cell: []int32{0, 0, 0}, KLong: 1})
 		}
 		src := Inline(c)
 		b.Run(fmt.Sprintf("sites=%d", sites), func(b *testing.B) {

@@ -54,7 +54,7 @@ func ExampleValidate() {
 	}
 	// Output:
 	// sites[0].mass_amu: must be > 0, got -40
-	// springs[0].to: site index 3 out of range [0, 1)
+	// springs[0].to_site: site index 3 out of range [0, 1)
 }
 
 // A path through built-in labels, five samples shared by length.

@@ -55,7 +55,8 @@ func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
 			Frac    []float64
 		}
 		Springs []struct {
-			From, To      int
+			From          int `json:"fromSite"`
+			To            int `json:"toSite"`
 			Cell          []int
 			KLong, KTrans float64
 		}
@@ -65,9 +66,10 @@ func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
 			KLong, KTrans      float64
 		}
 		Blocks []struct {
-			From, To int
-			Cell     []int
-			Phi      []float64
+			From int `json:"fromSite"`
+			To   int `json:"toSite"`
+			Cell []int
+			Phi  []float64
 		}
 	}
 	if err := json.Unmarshal(b, &f); err != nil {

@@ -151,8 +151,8 @@ func TestHashUnitConversion(t *testing.T) {
 func TestHashJSONSpelling(t *testing.T) {
 	a := `{"name":"x","lattice":[{"x":2.5,"y":0,"z":0}],"polarizations":1,
 	"sites":[{"label":"A","massAmu":40,"frac":[0]}],
-	"springs":[{"from":0,"to":0,"cell":[1],"kLong":1.5}]}`
-	b := `{ "springs" : [ { "kLong" : 15e-1, "cell" : [ 1 ], "to" : 0, "from" : 0 } ],
+	"springs":[{"fromSite":0,"toSite":0,"cell":[1],"kLong":1.5}]}`
+	b := `{ "springs" : [ { "kLong" : 15e-1, "cell" : [ 1 ], "toSite" : 0, "fromSite" : 0 } ],
 	  "sites" : [ { "frac" : [ 0.0 ], "massAmu" : 40.000, "label" : "A" } ],
 	  "polarizations" : 1, "lattice" : [ { "z" : 0, "y" : 0, "x" : 2.50 } ], "name" : "y" }`
 	if !json.Valid([]byte(a)) || !json.Valid([]byte(b)) {

@@ -202,6 +202,6 @@ func unstableChain() *modegridv1.Crystal {
 	return &modegridv1.Crystal{
 		Name: "unstable chain", Lattice: []*modegridv1.Vec3{{X: 2.5}}, Polarizations: 1,
 		Sites:   []*modegridv1.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: -1.5}},
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: -1.5}},
 	}
 }

@@ -418,14 +418,14 @@ func checkSeeds(tb testing.TB) []proto.Message {
 		out = append(out, &modegridv1.CheckModelRequest{Model: src})
 	}
 	bad := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 1}, {X: 2}}, Sites: []*modegridv1.Site{{Label: "A", MassAmu: -1, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 3, Cell: []int32{1}}}, Shells: []*modegridv1.Shell{{FromLabel: "A", ToLabel: "B", Shell: 30}}}
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 3, Cell: []int32{1}}}, Shells: []*modegridv1.Shell{{FromLabel: "A", ToLabel: "B", Shell: 30}}}
 	many := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 3}}}
 	for i := range 6 { // over fuzzConfig.MaxSites
 		many.Sites = append(many.Sites, &modegridv1.Site{Label: "A", MassAmu: 1, Frac: []float64{float64(i) / 6}})
 	}
 	extreme := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 1e-3}}, Polarizations: 1, // tiny mass, stiff spring
 		Sites:   []*modegridv1.Site{{Label: "A", MassAmu: 1e-300, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: 1e300}}}
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: 1e300}}}
 	return append(out, &modegridv1.CheckModelRequest{Model: inline(bad)}, &modegridv1.CheckModelRequest{Model: byHash(strings.Repeat("0", 64))},
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
 		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{})

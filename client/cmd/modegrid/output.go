@@ -207,7 +207,10 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 
 // ---- modes ----
 
-func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse) error {
+func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse, x modesExtras) error {
+	if x.any() && format != "json" {
+		return writeModesExtras(w, format, r, x)
+	}
 	unit := r.GetUnit()
 	switch format {
 	case "json":
@@ -381,10 +384,11 @@ func at(v []float64, i int) float64 {
 
 // ---- thermal ----
 
-// thermalHeader is the CSV header of `thermal`, per mole of unit cells.
-var thermalHeader = []string{
-	"temperature_k", "heat_capacity_j_per_mol_k", "entropy_j_per_mol_k",
-	"free_energy_kj_per_mol", "internal_energy_kj_per_mol", "debye_temperature_k", "debye_temperature_status",
+// thermalHeader is the CSV header of `thermal` on basis b.
+func thermalHeader(b thermalBasis) []string {
+	h := []string{"temperature_k"}
+	h = append(h, b.csvColumns()...)
+	return append(h, "debye_temperature_k", "debye_temperature_status")
 }
 
 // msdColumns names the mean-square-displacement columns of --msd.
@@ -401,21 +405,21 @@ func msdColumns(r *modegridv1.ComputeThermalResponse) (uiso, b []string) {
 	return siteColumns("u_iso_a2_", labels, index), siteColumns("b_a2_", labels, index)
 }
 
-func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalResponse) error {
+func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalResponse, b thermalBasis) error {
 	if format == "json" {
 		return writeJSON(w, r)
 	}
 	uiso, bcol := msdColumns(r)
 	if format == "csv" {
 		c := newCSV(w)
-		head := append([]string(nil), thermalHeader...)
+		head := thermalHeader(b)
 		for i := range uiso {
 			head = append(head, uiso[i], bcol[i])
 		}
 		c.row(head...)
 		for _, p := range r.GetPoints() {
-			rec := []string{num(p.GetTemperatureK()), num(p.GetHeatCapacityJPerMolK()), num(p.GetEntropyJPerMolK()),
-				num(p.GetFreeEnergyKjPerMol()), num(p.GetInternalEnergyKjPerMol()), thetaCSV(p), thetaStatusName(p.GetDebyeTemperatureStatus())}
+			cv, s, f, u := b.values(p)
+			rec := []string{num(p.GetTemperatureK()), num(cv), num(s), num(f), num(u), thetaCSV(p), thetaStatusName(p.GetDebyeTemperatureStatus())}
 			for i := range uiso {
 				if d := displacement(p, i); d.GetDivergent() {
 					rec = append(rec, "divergent", "divergent")
@@ -428,17 +432,15 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 		return c.flush()
 	}
 	t := newTable(w)
-	head := []string{"T (K)", "Cv (J/mol/K)", "S (J/mol/K)", "F (kJ/mol)", "U (kJ/mol)", "θD (K)"}
+	head := []string{"T (K)", "Cv (" + b.entropyUnit() + ")", "S (" + b.entropyUnit() + ")", "F (" + b.energyUnit() + ")", "U (" + b.energyUnit() + ")", "θD (K)"}
 	for i := range uiso {
 		head = append(head, "Uiso "+strings.TrimPrefix(uiso[i], "u_iso_a2_")+" (Å²)")
 	}
 	t.row(head...)
 	var notes thermalNotes
 	for _, p := range r.GetPoints() {
-		cells := []string{
-			strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(p.GetHeatCapacityJPerMolK()), f4(p.GetEntropyJPerMolK()),
-			f4(p.GetFreeEnergyKjPerMol()), f4(p.GetInternalEnergyKjPerMol()), thetaCell(p, 2),
-		}
+		cv, s, f, u := b.values(p)
+		cells := []string{strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(cv), f4(s), f4(f), f4(u), thetaCell(p, 2)}
 		notes.theta(p)
 		for i := range uiso {
 			d := displacement(p, i)
@@ -455,8 +457,8 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 	if err := t.flush(); err != nil {
 		return err
 	}
-	if _, err := fmt.Fprintf(w, "zero-point energy: %s kJ/mol of cells; elastic Debye temperature: %s\n",
-		f4(r.GetZeroPointEnergyKjPerMol()), elasticTheta(r.GetDebyeTemperatureElasticK())); err != nil {
+	if _, err := fmt.Fprintf(w, "zero-point energy: %s %s (included in F and U); elastic Debye temperature: %s\n",
+		f4(b.zeroPoint(r)), b.energyUnit(), elasticTheta(r.GetDebyeTemperatureElasticK())); err != nil {
 		return err
 	}
 	return notes.write(w)

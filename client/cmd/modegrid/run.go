@@ -55,6 +55,7 @@ var commands = []struct {
 	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
+	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz)", cmdShape},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -98,7 +99,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and
