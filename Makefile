@@ -53,20 +53,25 @@ adversarial: build
 demo:
 	$(GO) run ./client/cmd/modegrid demo
 
+# The code generators (buf, protoc-gen-go, protoc-gen-go-grpc) are pinned in
+# a module of their own, proto/tools/go.mod, so that their dependency graph
+# stays out of the main module; `go tool -modfile=...` runs them from there.
+BUF := $(GO) tool -modfile=tools/go.mod buf
+
 # Regenerate the committed Go code from proto/ with the pinned generators.
 proto:
-	cd proto && $(GO) tool buf generate
+	cd proto && $(BUF) generate
 
 # Fails when the committed generated code differs from a fresh generation.
 proto-check:
 	@tmp=$$(mktemp -d) && trap 'rm -rf $$tmp' EXIT && \
-	  (cd proto && $(GO) tool buf generate -o $$tmp) && \
+	  (cd proto && $(BUF) generate -o $$tmp) && \
 	  for f in $$(cd $$tmp && find . -name '*.go'); do \
 	    cmp -s $$tmp/$$f proto/$$f || { echo "proto/$$f is stale: run 'make proto' and commit"; exit 1; }; \
 	  done && echo "generated code is fresh"
 
 lint: vet
-	cd proto && $(GO) tool buf lint
+	cd proto && $(BUF) lint
 	@out=$$(gofmt -l $$(git ls-files '*.go' | grep -v '\.pb\.go$$')); \
 	  if [ -n "$$out" ]; then echo "gofmt needed:"; echo "$$out"; exit 1; fi
 

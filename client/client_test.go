@@ -426,7 +426,7 @@ func TestFieldViolations(t *testing.T) {
 	c := dial(t, addr)
 	bad := example(t, "diatomic-chain")
 	bad.Sites[0].MassAmu = -1
-	bad.Springs[1].To = 9
+	bad.Springs[1].ToSite = 9
 	_, err := c.Modes(testContext(t), &modegridv1.ComputeModesRequest{Model: client.Inline(bad), Qpoints: client.QList([3]float64{0.5, 0, 0})})
 	if status.Code(err) != codes.InvalidArgument {
 		t.Fatalf("got %v; want InvalidArgument", err)
@@ -435,7 +435,7 @@ func TestFieldViolations(t *testing.T) {
 	for _, v := range client.FieldViolations(err) {
 		got[v.GetField()] = true
 	}
-	for _, f := range []string{"model.crystal.sites[0].mass_amu", "model.crystal.springs[1].to"} {
+	for _, f := range []string{"model.crystal.sites[0].mass_amu", "model.crystal.springs[1].to_site"} {
 		if !got[f] {
 			t.Errorf("violations %v do not name %s", got, f)
 		}

@@ -25,9 +25,19 @@ func LoadModel(path string) (*modegridv1.Crystal, error) {
 }
 
 // ParseModel parses the protobuf JSON of a modegrid.v1.Crystal. Unknown keys
-// are an error, so a misspelt key is not silently ignored.
+// are an error, so a misspelt key is not silently ignored: every one is
+// named with its place and the nearest field name ("did you mean"). The
+// keys "from" and "to" of springs and blocks, the names of from_site and
+// to_site before their rename, are still accepted.
 func ParseModel(b []byte) (*modegridv1.Crystal, error) {
 	var c modegridv1.Crystal
+	b, err := rewriteLegacy(b)
+	if err != nil {
+		return nil, fmt.Errorf("parse model: %w", err)
+	}
+	if err := checkKeys(b, c.ProtoReflect().Descriptor()); err != nil {
+		return nil, fmt.Errorf("parse model: %w", err)
+	}
 	if err := protojson.Unmarshal(b, &c); err != nil {
 		return nil, fmt.Errorf("parse model: %w", err)
 	}

@@ -1,6 +1,7 @@
 package client
 
 import (
+	"container/list"
 	"crypto/sha256"
 	"sync"
 
@@ -10,8 +11,9 @@ import (
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-// maxRefs bounds the models remembered by one Client; past it the oldest
-// entry is forgotten (it costs one inline send later, nothing else).
+// maxRefs bounds the models remembered by one Client; past it the least
+// recently used entry is forgotten (it costs one inline send later,
+// nothing else).
 const maxRefs = 256
 
 // modelKey identifies an inline model on the client side: a SHA-256 of its
@@ -39,6 +41,7 @@ func keyOf(src *modegridv1.ModelSource) (modelKey, bool) {
 
 // refEntry is what the client knows of one model.
 type refEntry struct {
+	key    modelKey                // the client-side key, the LRU's index
 	hash   string                  // the server's model hash
 	inline *modegridv1.ModelSource // the caller's inline source, for resends
 	// sent is true once a compute call carried the model (inline) to where
@@ -47,19 +50,42 @@ type refEntry struct {
 	sent bool
 }
 
-// modelRefs maps inline models to server hashes and back. The zero value is
-// ready to use.
+// modelRefs maps inline models to server hashes and back, keeping the
+// maxRefs most recently used models. The zero value is ready to use.
+//
+// Several keys may share one hash (the same model spelled differently:
+// sites listed in another order, say; the server's hash is canonical in
+// meaning, the key is not). byHash then points at the most recently used
+// of them, and dropping one entry never drops another's hash.
+//
+// The LRU is a list and a map, like the server's result cache
+// (server/cache/lru.go), but bounded by count instead of bytes; the client
+// library imports no more than proto/, grpc and protobuf, so it keeps this
+// small one of its own rather than a library.
 type modelRefs struct {
-	mu     sync.Mutex             // protects the fields below
-	byKey  map[modelKey]*refEntry // lazily initialised
-	byHash map[string]*refEntry   // lazily initialised
-	order  []modelKey             // insertion order, for bounded eviction
+	mu     sync.Mutex                 // protects the fields below
+	ll     *list.List                 // of *refEntry, most recently used first; lazily initialised
+	byKey  map[modelKey]*list.Element // lazily initialised
+	byHash map[string]*refEntry       // lazily initialised
+}
+
+// entry returns the entry under k and marks it most recently used.
+// r.mu must be held.
+func (r *modelRefs) entry(k modelKey) (*refEntry, bool) {
+	el, ok := r.byKey[k]
+	if !ok {
+		return nil, false
+	}
+	r.ll.MoveToFront(el)
+	e := el.Value.(*refEntry)
+	r.byHash[e.hash] = e
+	return e, true
 }
 
 func (r *modelRefs) lookupKey(k modelKey) (refEntry, bool) {
 	r.mu.Lock()
 	defer r.mu.Unlock()
-	e, ok := r.byKey[k]
+	e, ok := r.entry(k)
 	if !ok {
 		return refEntry{}, false
 	}
@@ -73,6 +99,7 @@ func (r *modelRefs) lookupHash(h string) (refEntry, bool) {
 	if !ok {
 		return refEntry{}, false
 	}
+	r.entry(e.key)
 	return *e, true
 }
 
@@ -84,40 +111,64 @@ func (r *modelRefs) remember(k modelKey, inline *modegridv1.ModelSource, h strin
 	}
 	r.mu.Lock()
 	defer r.mu.Unlock()
-	if r.byKey == nil {
-		r.byKey = make(map[modelKey]*refEntry)
+	if r.ll == nil {
+		r.ll = list.New()
+		r.byKey = make(map[modelKey]*list.Element)
 		r.byHash = make(map[string]*refEntry)
 	}
-	if e, ok := r.byKey[k]; ok {
+	if e, ok := r.entry(k); ok {
 		if e.hash != h {
-			delete(r.byHash, e.hash)
+			r.unlinkHash(e)
 			e.hash = h
 		}
 		e.sent = e.sent || sent
 		r.byHash[h] = e
 		return
 	}
-	for len(r.order) >= maxRefs {
-		old := r.order[0]
-		r.order = r.order[1:]
-		if e, ok := r.byKey[old]; ok {
-			delete(r.byHash, e.hash)
-			delete(r.byKey, old)
-		}
+	for r.ll.Len() >= maxRefs {
+		r.evict(r.ll.Back())
 	}
-	e := &refEntry{hash: h, inline: inline, sent: sent}
-	r.byKey[k] = e
+	e := &refEntry{key: k, hash: h, inline: inline, sent: sent}
+	r.byKey[k] = r.ll.PushFront(e)
 	r.byHash[h] = e
-	r.order = append(r.order, k)
 }
 
-// unsent marks a model as no longer held where it is routed (after a
-// NOT_FOUND), so the next call sends it inline.
+// evict forgets the entry of el. r.mu must be held.
+func (r *modelRefs) evict(el *list.Element) {
+	e := r.ll.Remove(el).(*refEntry)
+	delete(r.byKey, e.key)
+	r.unlinkHash(e)
+}
+
+// unlinkHash removes e from byHash if byHash points at it there, pointing
+// the hash at the most recently used other entry that has it, if any.
+// r.mu must be held.
+func (r *modelRefs) unlinkHash(e *refEntry) {
+	if r.byHash[e.hash] != e {
+		return // another key owns the hash now; leave it
+	}
+	delete(r.byHash, e.hash)
+	for el := r.ll.Front(); el != nil; el = el.Next() {
+		if o := el.Value.(*refEntry); o != e && o.hash == e.hash {
+			r.byHash[e.hash] = o
+			return
+		}
+	}
+}
+
+// unsent marks every model with hash h as no longer held where it is
+// routed (after a NOT_FOUND), so the next call sends it inline. The server
+// holds models by hash, so this applies to each key that has h.
 func (r *modelRefs) unsent(h string) {
 	r.mu.Lock()
 	defer r.mu.Unlock()
-	if e, ok := r.byHash[h]; ok {
-		e.sent = false
+	if r.ll == nil {
+		return
+	}
+	for el := r.ll.Front(); el != nil; el = el.Next() {
+		if e := el.Value.(*refEntry); e.hash == h {
+			e.sent = false
+		}
 	}
 }
 

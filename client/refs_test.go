@@ -16,7 +16,7 @@ func chain(massAmu float64) *modegridv1.Crystal {
 		Lattice:       []*modegridv1.Vec3{{X: 2.5}},
 		Polarizations: 1,
 		Sites:         []*modegridv1.Site{{Label: "A", MassAmu: massAmu, Frac: []float64{0}}},
-		Springs:       []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: 1.5}},
+		Springs:       []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: 1.5}},
 	}
 }
 
@@ -65,8 +65,8 @@ func clearModel(m proto.Message) {
 // TestKeyOf: the client-side key ignores JSON spelling but not content or
 // the sum-rule flag.
 func TestKeyOf(t *testing.T) {
-	const camel = `{"name":"chain","lattice":[{"x":2.5}],"polarizations":1,"sites":[{"label":"A","massAmu":40,"frac":[0]}],"springs":[{"from":0,"to":0,"cell":[1],"kLong":1.5}]}`
-	const snake = `{"springs":[{"k_long":1.5,"cell":[1],"to":0,"from":0}],"sites":[{"frac":[0],"mass_amu":40,"label":"A"}],"polarizations":1,"lattice":[{"x":2.5,"y":0}],"name":"chain"}`
+	const camel = `{"name":"chain","lattice":[{"x":2.5}],"polarizations":1,"sites":[{"label":"A","massAmu":40,"frac":[0]}],"springs":[{"fromSite":0,"toSite":0,"cell":[1],"kLong":1.5}]}`
+	const snake = `{"springs":[{"k_long":1.5,"cell":[1],"to_site":0,"from_site":0}],"sites":[{"frac":[0],"mass_amu":40,"label":"A"}],"polarizations":1,"lattice":[{"x":2.5,"y":0}],"name":"chain"}`
 	a, err := ParseModel([]byte(camel))
 	if err != nil {
 		t.Fatal(err)
@@ -121,6 +121,105 @@ func TestRefsBounded(t *testing.T) {
 	r.unsent(fmt.Sprintf("h%d", len(keys)-1))
 	if e, _ := r.lookupKey(keys[len(keys)-1]); e.sent {
 		t.Error("unsent did not clear sent")
+	}
+}
+
+// fillRefs remembers n models of distinct keys and hashes ("fill0", ...).
+func fillRefs(r *modelRefs, n int) {
+	for i := range n {
+		src := Inline(chain(1000 + float64(i)))
+		k, _ := keyOf(src)
+		r.remember(k, src, fmt.Sprintf("fill%d", i), true)
+	}
+}
+
+// TestRefsSharedHash is a regression test: two keys (one model spelled two
+// ways) share a server hash; forgetting the older key, by eviction or by a
+// new hash for it, must not forget the hash the newer key still has.
+func TestRefsSharedHash(t *testing.T) {
+	srcA, srcB := Inline(chain(40)), Inline(chain(40))
+	srcB.GetCrystal().Name = "the same chain, named otherwise"
+	kA, _ := keyOf(srcA)
+	kB, _ := keyOf(srcB)
+	if kA == kB {
+		t.Fatal("the two spellings have one key; the test needs two")
+	}
+	t.Run("older key evicted", func(t *testing.T) {
+		var r modelRefs
+		r.remember(kA, srcA, "h", true)
+		r.remember(kB, srcB, "h", true)
+		fillRefs(&r, maxRefs-1) // one past the bound: evicts kA only
+		if _, ok := r.lookupKey(kA); ok {
+			t.Fatal("the least recently used key was not evicted")
+		}
+		e, ok := r.lookupHash("h")
+		if !ok {
+			t.Fatal(`hash "h" forgotten with the older key; the newer key still has it`)
+		}
+		if keyOfEntry, _ := keyOf(e.inline); keyOfEntry != kB {
+			t.Error(`hash "h" points at another model than the newer key's`)
+		}
+	})
+	t.Run("older key rehashed", func(t *testing.T) {
+		var r modelRefs
+		r.remember(kA, srcA, "h", true)
+		r.remember(kB, srcB, "h", true)
+		r.remember(kA, srcA, "h2", true)
+		if _, ok := r.lookupHash("h"); !ok {
+			t.Error(`hash "h" forgotten when the older key moved to "h2"`)
+		}
+		if e, ok := r.lookupHash("h2"); !ok || e.key != kA {
+			t.Errorf(`hash "h2": %+v, %v; want the older key`, e, ok)
+		}
+	})
+	t.Run("newer key evicted", func(t *testing.T) {
+		var r modelRefs
+		r.remember(kB, srcB, "h", true)
+		r.remember(kA, srcA, "h", true)
+		r.lookupKey(kB) // kB most recently used: "h" points at it
+		fillRefs(&r, maxRefs-1)
+		// kA was least recently used and is gone; "h" still reaches kB.
+		if e, ok := r.lookupHash("h"); !ok || e.key != kB {
+			t.Errorf(`hash "h": %+v, %v; want the remaining key`, e, ok)
+		}
+	})
+	t.Run("unsent reaches every key of the hash", func(t *testing.T) {
+		var r modelRefs
+		r.remember(kA, srcA, "h", true)
+		r.remember(kB, srcB, "h", true)
+		r.unsent("h")
+		for _, k := range []modelKey{kA, kB} {
+			if e, _ := r.lookupKey(k); e.sent {
+				t.Error("a key of the hash is still marked sent after NOT_FOUND")
+			}
+		}
+	})
+}
+
+// TestRefsLeastRecentlyUsed: a lookup keeps a model; the one used least
+// recently is evicted first, not the one remembered first.
+func TestRefsLeastRecentlyUsed(t *testing.T) {
+	var r modelRefs
+	old, other := Inline(chain(40)), Inline(chain(41))
+	kOld, _ := keyOf(old)
+	kOther, _ := keyOf(other)
+	r.remember(kOld, old, "old", true)
+	r.remember(kOther, other, "other", true)
+	fillRefs(&r, maxRefs-2) // full
+	if _, ok := r.lookupKey(kOld); !ok {
+		t.Fatal("the first model was evicted before the bound")
+	}
+	src := Inline(chain(39))
+	k, _ := keyOf(src)
+	r.remember(k, src, "new", true) // one past the bound
+	if _, ok := r.lookupKey(kOld); !ok {
+		t.Error("a model just looked up was evicted")
+	}
+	if _, ok := r.lookupKey(kOther); ok {
+		t.Error("the least recently used model is still there")
+	}
+	if n := len(r.byKey); n != maxRefs {
+		t.Errorf("%d entries; want %d", n, maxRefs)
 	}
 }
 
@@ -201,7 +300,7 @@ func BenchmarkKeyOf(b *testing.B) {
 		c := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 10}, {Y: 10}, {Z: 10}}}
 		for i := range sites {
 			c.Sites = append(c.Sites, &modegridv1.Site{Label: "A", MassAmu: 40, Frac: []float64{float64(i) / float64(sites), 0, 0}})
-			c.Springs = append(c.Springs, &modegridv1.Spring{From: uint32(i), To: uint32((i + 1) % sites), Cell: []int32{0, 0, 0}, KLong: 1})
+			c.Springs = append(c.Springs, &modegridv1.Spring{FromSite: uint32(i), ToSite: uint32((i + 1) % sites), Cell: []int32{0, 0, 0}, KLong: 1})
 		}
 		src := Inline(c)
 		b.Run(fmt.Sprintf("sites=%d", sites), func(b *testing.B) {

@@ -202,7 +202,7 @@ func (df *dockerfile) goBuildCommand(out, version string) (*exec.Cmd, error) {
 }
 
 // TestDockerfile checks deploy/Dockerfile statically (no Docker engine runs
-// here): a build stage on the Go image named in go.mod or newer compiles a
+// here): a build stage on the Go toolchain named in go.mod or newer compiles a
 // static, trimmed, version-stamped binary of ./server/cmd/modegridd; the
 // final stage is distroless static (no shell) with the nonroot user, copies
 // only that binary, exposes the gRPC and metrics ports its ENV listens on,
@@ -229,7 +229,7 @@ func TestDockerfile(t *testing.T) {
 			t.Fatalf("build stage FROM %q; want the official golang image with a version tag", img)
 		}
 		if want := goModVersion(t); versionLess(m[1], want) {
-			t.Errorf("build image Go %s is older than go.mod's go %s", m[1], want)
+			t.Errorf("build image Go %s is older than go.mod's toolchain %s", m[1], want)
 		}
 		if buildSt.name == "" {
 			t.Error("build stage has no name (FROM ... AS build) for COPY --from")
@@ -332,12 +332,17 @@ func expandArgs(s string, args map[string]string) string {
 	return s
 }
 
-// goModVersion returns the go directive of go.mod.
+// goModVersion returns the Go version go.mod builds with: its toolchain
+// directive (without the "go" prefix) when it has one, else its go
+// directive (the oldest Go the module accepts).
 func goModVersion(t *testing.T) string {
 	t.Helper()
 	b, err := os.ReadFile(filepath.Join(repoRoot, "go.mod"))
 	if err != nil {
 		t.Fatal(err)
+	}
+	if m := regexp.MustCompile(`(?m)^toolchain go(\S+)$`).FindSubmatch(b); m != nil {
+		return string(m[1])
 	}
 	m := regexp.MustCompile(`(?m)^go (\S+)$`).FindSubmatch(b)
 	if m == nil {

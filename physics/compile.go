@@ -5,10 +5,10 @@
 package physics
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"sort"
-	"sync"
 )
 
 // Options controls how a Crystal is compiled into a Model.
@@ -71,15 +71,13 @@ type Model struct {
 	latticeType string                // LatticeType (lattice.go), found by Compile
 	standard    map[string][3]float64 // StandardPoints
 
-	symOnce sync.Once // guards symOps (symmetry.go, owned by the lead)
-	symOps  []SymOp   // lazily computed by Symmetry
+	sym lazy[[]SymOp] // computed on first use by Symmetry (symmetry.go)
 
 	// The springs in factored form and whether explicit blocks exist: the
 	// long-wavelength limit (elastic.go) uses them for accuracy.
 	springs   []springBond
 	hasBlocks bool
-	lwOnce    sync.Once // guards lw
-	lw        *longWave // lazily computed by longWaveLimit
+	lw        lazy[*longWave] // computed on first use by longWaveLimit
 }
 
 // Compile validates c and builds its force constants. A model that fails
@@ -90,7 +88,13 @@ type Model struct {
 // order (sumParts), a spring is built in one orientation of its bond, and
 // negative zeros become +0, so equivalent descriptions compile to
 // bit-identical models (which Hash relies on).
-func Compile(c *Crystal, opt Options) (*Model, error) {
+//
+// The neighbour search of shells grows with the sites and the shell
+// radius (over a second at 512 sites); Compile polls ctx in it and in
+// every loop over sites, interactions and blocks, and returns ctx.Err()
+// when ctx ends first. Validation is not interrupted: it is linear in the
+// input except for one pass over site pairs (milliseconds at MaxSites).
+func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	if c == nil {
 		return nil, Validate(nil, opt.Limits)
 	}
@@ -108,21 +112,30 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 		toEV = func(k float64) float64 { return k / EVPerA2InNPerM }
 	}
 	parts := fcParts{}
-	for _, s := range c.Springs {
+	for x, s := range c.Springs {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		m.addSpring(parts, s.From, s.To, cellOf(s.Cell), toEV(s.KLong), toEV(s.KTrans))
 	}
 	m.interactions = len(c.Springs) + len(c.Blocks)
 	m.hasBlocks = len(c.Blocks) > 0
 	m.shells = make([]ShellInfo, len(c.Shells))
 	for idx, sh := range c.Shells {
-		bonds, dist, err := m.findShell(sh, lim)
+		bonds, dist, err := m.findShell(ctx, sh, lim)
+		if ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		if err != nil {
 			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
 			continue
 		}
 		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
 		m.interactions += len(bonds)
-		for _, b := range bonds {
+		for x, b := range bonds {
+			if x%pollEvery == 0 && ctx.Err() != nil {
+				return nil, ctx.Err()
+			}
 			m.addSpring(parts, b.i, b.j, b.n, toEV(sh.KLong), toEV(sh.KTrans))
 		}
 	}
@@ -132,9 +145,13 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	if len(vs.list) > 0 {
 		return nil, vs.err()
 	}
-	m.addBlocks(parts, c.Blocks, toEV, opt.EnforceSumRule)
-
-	raw := m.rawTerms(parts) // eV/Å², for the hash
+	if err := m.addBlocks(ctx, parts, c.Blocks, toEV, opt.EnforceSumRule); err != nil {
+		return nil, err
+	}
+	raw, err := m.rawTerms(ctx, parts) // eV/Å², for the hash
+	if err != nil {
+		return nil, err
+	}
 	for _, t := range raw {
 		w := 1 / math.Sqrt(m.massAmu[t.i]*m.massAmu[t.j])
 		for a := range t.phi {
@@ -153,6 +170,9 @@ func Compile(c *Crystal, opt Options) (*Model, error) {
 	}
 	for _, r := range rows {
 		m.lambdaScale = math.Max(m.lambdaScale, r)
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
 	}
 	m.hash = m.canonicalHash(raw)
 	m.latticeType, m.standard = detectLattice(m)
@@ -268,11 +288,15 @@ func (m *Model) addSpring(f fcParts, i, j int, n [3]int, kl, kt float64) {
 // with their implied transposes, and per site the on-site block — the
 // caller's (symmetric part) or, when none is given or enforce is set, the
 // acoustic-sum-rule value from the off-site blocks. It records the largest
-// sum-rule violation of the given on-site blocks.
-func (m *Model) addBlocks(f fcParts, blocks []Block, toEV func(float64) float64, enforce bool) {
+// sum-rule violation of the given on-site blocks. It returns ctx.Err() if
+// ctx ends first.
+func (m *Model) addBlocks(ctx context.Context, f fcParts, blocks []Block, toEV func(float64) float64, enforce bool) error {
 	onSite := make([][][9]float64, m.nsites) // symmetric parts of given on-site blocks
 	off := make([][][9]float64, m.nsites)    // off-site blocks leaving each site
-	for _, b := range blocks {
+	for x, b := range blocks {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
 		var phi [9]float64
 		for a := range phi {
 			phi[a] = toEV(b.Phi[a])
@@ -287,6 +311,9 @@ func (m *Model) addBlocks(f fcParts, blocks []Block, toEV func(float64) float64,
 		off[b.To] = append(off[b.To], transpose9(phi))
 	}
 	for i := 0; i < m.nsites; i++ {
+		if i%pollEvery == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
 		if len(off[i]) == 0 && len(onSite[i]) == 0 {
 			continue
 		}
@@ -313,12 +340,14 @@ func (m *Model) addBlocks(f fcParts, blocks []Block, toEV func(float64) float64,
 		}
 		f.add(fcKey{i: i, j: i}, asr)
 	}
+	return nil
 }
 
 // rawTerms sums the contributions of every block (sumParts) and returns the
 // blocks that are not zero, sorted by (i, j, n), in eV/Å², with only the
-// p×p components the model uses (the others 0).
-func (m *Model) rawTerms(f fcParts) []term {
+// p×p components the model uses (the others 0). It returns ctx.Err() if
+// ctx ends first.
+func (m *Model) rawTerms(ctx context.Context, f fcParts) ([]term, error) {
 	keys := make([]fcKey, 0, len(f))
 	for k := range f {
 		keys = append(keys, k)
@@ -334,7 +363,10 @@ func (m *Model) rawTerms(f fcParts) []term {
 		return lessCell(ka.n, kb.n)
 	})
 	raw := make([]term, 0, len(keys))
-	for _, k := range keys {
+	for x, k := range keys {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		sum := sumParts(f[k])
 		t := term{i: k.i, j: k.j, n: k.n}
 		nonzero := false
@@ -348,7 +380,7 @@ func (m *Model) rawTerms(f fcParts) []term {
 			raw = append(raw, t)
 		}
 	}
-	return raw
+	return raw, nil
 }
 
 // shellBond is a bond found by the neighbour search: site i in cell 0 to
@@ -362,8 +394,8 @@ type shellBond struct {
 // sh.ToLabel at the sh.Shell-th smallest distance, within ShellTolA. Each
 // bond is returned once (for equal labels, (i, j, n) and (j, i, −n) are the
 // same bond). The search radius grows until the shell is complete or the
-// cell-offset limit is reached.
-func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
+// cell-offset limit is reached. It returns ctx.Err() if ctx ends first.
+func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBond, float64, error) {
 	var from, to []int
 	for i, l := range m.labels {
 		if l == sh.FromLabel {
@@ -402,7 +434,7 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 		// kept in a short sorted list (no list of every candidate pair).
 		keep := sh.Shell + 1
 		shellD := make([]float64, 0, keep+1)
-		m.eachPair(from, to, reach, func(_ shellBond, d float64) {
+		err := m.eachPair(ctx, from, to, reach, func(_ shellBond, d float64) {
 			if d > radius {
 				return
 			}
@@ -423,6 +455,9 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 				shellD = shellD[:keep]
 			}
 		})
+		if err != nil {
+			return nil, 0, err
+		}
 		// The shell is only known complete if a farther distance exists
 		// inside the radius (so nothing between was missed). When the
 		// cell-offset limit capped the search, only distances up to
@@ -444,7 +479,7 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 			target := within[sh.Shell-1]
 			var bonds []shellBond
 			same := sh.FromLabel == sh.ToLabel
-			m.eachPair(from, to, reach, func(b shellBond, d float64) {
+			err := m.eachPair(ctx, from, to, reach, func(b shellBond, d float64) {
 				if math.Abs(d-target) > ShellTolA || len(bonds) > lim.MaxInteractions {
 					return
 				}
@@ -456,6 +491,9 @@ func (m *Model) findShell(sh Shell, lim Limits) ([]shellBond, float64, error) {
 				}
 				bonds = append(bonds, b)
 			})
+			if err != nil {
+				return nil, 0, err
+			}
 			return bonds, target, nil
 		}
 		if capped {
@@ -472,13 +510,18 @@ const ShellSearchBudget = 1e8
 
 // eachPair calls fn with every pair (i in from, cell 0; j in to, cell n),
 // |n_k| ≤ reach_k, except a site with itself in cell 0, and its distance.
-func (m *Model) eachPair(from, to []int, reach [3]int, fn func(b shellBond, d float64)) {
+// It polls ctx before every row (one site i against every j of one cell)
+// and returns ctx.Err() when ctx ended.
+func (m *Model) eachPair(ctx context.Context, from, to []int, reach [3]int, fn func(b shellBond, d float64)) error {
 	var n [3]int
 	for n[0] = -reach[0]; n[0] <= reach[0]; n[0]++ {
 		for n[1] = -reach[1]; n[1] <= reach[1]; n[1]++ {
 			for n[2] = -reach[2]; n[2] <= reach[2]; n[2]++ {
 				rn := m.latticeVec(n)
 				for _, i := range from {
+					if err := ctx.Err(); err != nil {
+						return err
+					}
 					for _, j := range to {
 						if i == j && n == ([3]int{}) {
 							continue
@@ -489,6 +532,7 @@ func (m *Model) eachPair(from, to []int, reach [3]int, fn func(b shellBond, d fl
 			}
 		}
 	}
+	return nil
 }
 
 // cart converts fractional coordinates (d numbers) to Cartesian Å.

@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -116,7 +117,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 			}
 			c.Blocks = append(c.Blocks, Block{From: rng.IntN(max(ns, 1)), To: rareInt(rng.IntN(max(ns, 1)), ns+3), Cell: cell(), Phi: phi})
 		}
-		m, err := Compile(c, Options{EnforceSumRule: rng.IntN(2) == 0, Limits: Limits{MaxCellOffset: 3}})
+		m, err := Compile(context.Background(), c, Options{EnforceSumRule: rng.IntN(2) == 0, Limits: Limits{MaxCellOffset: 3}})
 		if err != nil {
 			violationsOf(t, err) // must be a *ValidationError
 			continue

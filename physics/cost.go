@@ -258,7 +258,8 @@ func DOSCost(s GridSize, opt DOSOptions, samples int, reduced bool) Cost {
 // the frequency tree with the leaves' moments and the upper levels when
 // the tree is worth building; for the DOS-integral route a tetrahedron DOS
 // of dosRouteBins samples and its pseudo-modes; the sums per temperature;
-// the result points (and per-site tensors with msd). Work: the sums over
+// the result points (and per-site tensors with msd, and the solution at Γ
+// of the divergence check). Work: the sums over
 // every mode and channel at every temperature (an upper bound: the tree
 // replaces most of them by series).
 func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bool) Cost {
@@ -296,6 +297,14 @@ func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bo
 	c.Bytes += T*(int64(unsafe.Sizeof(ThermalPoint{}))+reasonBytes) + elasticThetaBytes
 	if msd {
 		c.Bytes += T * int64(s.Sites) * (int64(unsafe.Sizeof(SiteMSD{})) + reasonBytes)
+		if s.Dim < 3 {
+			// The divergence check diagonalises D(Γ) once (msd.go,
+			// msdDivergenceOf; in 3D it is skipped): a workspace without
+			// eigenvectors and the frequencies.
+			n := s.modes()
+			c.Bytes += workspaceBytes(n, false) + 8*int64(n)
+			c.Flops += s.assembleFlops() + diagFlops(n, false)
+		}
 	}
 	c.Flops += float64(modes) * (20 + 2*float64(nc)) // collecting the modes
 	c.Flops += float64(T) * float64(modes) * (40 + 2*float64(nc))

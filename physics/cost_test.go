@@ -45,7 +45,7 @@ func TestCostLadder(t *testing.T) {
 			continue // the 64-site rungs take a minute under the race detector
 		}
 		m := l.m
-		m.SoundVelocities([3]float64{0, 0, 1}) // the model's one-time long-wave limit
+		m.SoundVelocities(ctx, [3]float64{0, 0, 1}) // the model's one-time long-wave limit
 		meshes := []int{4, 10}
 		if raceEnabled {
 			meshes = meshes[:1]

@@ -167,6 +167,16 @@
 // carrying the worker's value and stack. SetFaultHook lets tests make a
 // worker panic.
 //
+// Every other stage whose work grows with the model or the grid takes a
+// context too and returns ctx.Err() soon after it ends: Compile (the
+// neighbour search and the force-constant assembly), Symmetry and
+// ReduceGrid, SoundVelocities (the long-wave set-up, O(sites³)),
+// Stability, ComputeDOS (including the tetrahedron classes) and
+// ComputeThermal (see cancel.go). The values a Model computes on first use
+// (its symmetry operations, its long-wave limit) are kept only when their
+// computation finished: a cancelled first use stores nothing and the next
+// call computes again, under its own context (lazy.go).
+//
 // # Invariants
 //
 // D(q) is Hermitian by construction (only its lower triangle is built) and

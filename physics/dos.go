@@ -183,7 +183,13 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 		set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
 		// Projections need every simplex (their weights differ between
 		// equivalent points): classes only for the total.
-		if classes := totalClasses(g, set, opt.PerSite); classes != nil {
+		var classes []simplexClass
+		if !opt.PerSite {
+			if classes, err = simplexClasses(ctx, g, set); err != nil {
+				return nil, err
+			}
+		}
+		if classes != nil {
 			acc, err = tetraAccumulateClasses(ctx, g, classes, set, scale, grid, hasCut, cut)
 		} else {
 			acc, err = tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)

@@ -41,7 +41,7 @@ func benchModes(b *testing.B, name string, n int, opt GridOptions) (*Model, *Gri
 
 // BenchmarkTetraDOS times the tetrahedron DOS of the rock-salt-like example
 // (2 sites, 6 branches) on n³ grids, default window (501 samples), from
-// given frequencies; the target is 48³ in under 0.2 s.
+// given frequencies; the project's target is 48³ in under 0.2 s.
 func BenchmarkTetraDOS(b *testing.B) {
 	for _, n := range []int{12, 24, 48} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {

@@ -9,7 +9,7 @@ import (
 
 // A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
 func exampleChain() *physics.Model {
-	m, err := physics.Compile(&physics.Crystal{
+	m, err := physics.Compile(context.Background(), &physics.Crystal{
 		Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
 		Sites:   []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
 		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},

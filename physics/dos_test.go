@@ -54,7 +54,8 @@ func integral(r *DOSResult, dos []float64) float64 {
 
 // Chain example (proto/examples/chain.json): K = 1.5 eV/Å², M = 40 amu, so
 // ν_max = 2·sqrt(K/M) in units of sqrt(eV/Å²/amu) = 15.6333042 THz
-// (REFERENCE-VALUES: Kittel ch. 4; CODATA 2018 for the unit).
+// (Kittel, Introduction to Solid State Physics, ch. 4; the unit
+// sqrt(e·10²⁰/m_u)/2π from CODATA 2018 e and m_u).
 var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * NuUnitTHz
 
 // chainStatesBelow is the exact number of states per cell below ν of the
@@ -170,7 +171,7 @@ func fitSlope(x, y []float64) float64 {
 }
 
 // TestDOSNormalization: ∫g dν = p × sites per cell (common practice: the
-// modes per cell), to 1e-6 for tetrahedra (the requirement; it
+// modes per cell), to 1e-6 for tetrahedra (the project's requirement; it
 // comes out at rounding), exactly for the histogram, and for Gaussians when
 // the window holds their tails; the last integrated value is the same
 // number and StatesPerCell reports it.
@@ -224,7 +225,7 @@ func TestDOSNormalization(t *testing.T) {
 }
 
 // TestProjectedDOSSum: per-site and per-label DOS sum to the total at every
-// sample to 1e-9 (the requirement), and the total with projections
+// sample to 1e-9 (the project's requirement), and the total with projections
 // equals the total without (to 1e-10 of the peak): the corner weights of
 // the simplex method integrate to its state count (Blöchl, Jepsen &
 // Andersen 1994, App. B).
@@ -270,7 +271,7 @@ func TestProjectedDOSSum(t *testing.T) {
 // diatomicEdges are the diatomic chain example's gap edges and optical top
 // in THz (proto/examples/diatomic-chain.json: K = 2 eV/Å², m = 20 amu
 // light, M = 50 amu heavy): sqrt(2K/M), sqrt(2K/m) and sqrt(2K(1/m + 1/M))
-// (Kittel ch. 4; REFERENCE-VALUES).
+// (Kittel, Introduction to Solid State Physics, ch. 4).
 var diatomicEdges = [3]float64{
 	math.Sqrt(2*2.0/50) * NuUnitTHz,
 	math.Sqrt(2*2.0/20) * NuUnitTHz,
@@ -329,8 +330,9 @@ func TestDiatomicGap(t *testing.T) {
 }
 
 // TestDOSUnits: in meV and cm⁻¹ the frequencies scale by the unit's
-// factor (1 THz = 4.135667697 meV = 33.35640952 cm⁻¹, REFERENCE-VALUES from
-// CODATA 2018), g by its inverse (states per cell per unit), the integrated
+// factor (1 THz = 4.135667697 meV = 33.35640952 cm⁻¹: h·10¹²/e and
+// 10¹⁰/c with CODATA 2018 h, e and c), g by its inverse (states per cell
+// per unit), the integrated
 // DOS not at all.
 func TestDOSUnits(t *testing.T) {
 	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})

@@ -120,7 +120,7 @@ func checkEigenpairs(t *testing.T, h []complex128, n int, vals []float64, vecs [
 // TestEigenAgainstGonum compares the Householder + QL eigenvalues with
 // gonum's real symmetric solver (mat.EigenSym) applied to the 2n×2n real
 // embedding of random Hermitian matrices, to 1e-12 of the largest
-// eigenvalue (the issue asks for 1e-10), and checks residuals and
+// eigenvalue (the project asks for 1e-10), and checks residuals and
 // orthonormality of the eigenvectors (definition of an eigendecomposition;
 // common practice).
 func TestEigenAgainstGonum(t *testing.T) {

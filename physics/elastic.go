@@ -52,11 +52,11 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"sort"
 
 	"gonum.org/v1/gonum/integrate/quad"
-	"gonum.org/v1/gonum/mat"
 )
 
 // springBond is one spring of the model in factored form: site i in cell 0
@@ -83,15 +83,19 @@ type longWave struct {
 	gmat  []float64 // 3p × 3p, eV
 }
 
-// longWaveLimit returns the model's elastic limit, computed once.
-func (m *Model) longWaveLimit() *longWave {
-	m.lwOnce.Do(func() {
-		m.lw = m.factoredLongWave()
-		if m.lw == nil {
-			m.lw = m.denseLongWave()
+// longWaveLimit returns the model's elastic limit, computed once. Its
+// set-up is O(sites³) (a QR factorisation, and on the dense route an
+// eigendecomposition of order 3·sites: a minute and more at 512 sites);
+// it polls ctx and returns ctx.Err() when ctx ends first, keeping nothing,
+// so the next call starts again.
+func (m *Model) longWaveLimit(ctx context.Context) (*longWave, error) {
+	return m.lw.get(ctx, func(ctx context.Context) (*longWave, error) {
+		lw, err := m.factoredLongWave(ctx)
+		if lw != nil || err != nil {
+			return lw, err
 		}
+		return m.denseLongWave(ctx)
 	})
-	return m.lw
 }
 
 // SoundVelocities returns the speeds of sound (km/s) of the p acoustic
@@ -109,7 +113,11 @@ func (m *Model) longWaveLimit() *longWave {
 // relative for spring models, independent of the stiffness contrast
 // (measured to 1e-12); see the header of elastic.go for the bound of the
 // general route.
-func (m *Model) SoundVelocities(dir [3]float64) []float64 {
+//
+// The first call on a model sets up the long-wave limit (O(sites³), see
+// longWaveLimit) and returns ctx.Err() if ctx ends first; later calls
+// cost a p×p eigenproblem.
+func (m *Model) SoundVelocities(ctx context.Context, dir [3]float64) ([]float64, error) {
 	if !finite3(dir) {
 		panic("physics: SoundVelocities: direction is not finite")
 	}
@@ -125,12 +133,12 @@ func (m *Model) SoundVelocities(dir [3]float64) []float64 {
 	}
 	l := norm3(qdir)
 	if l == 0 || norm3(dir) == 0 {
-		return nil
+		return nil, nil
 	}
 	u := scale3(qdir, 1/l)
-	lw := m.longWaveLimit()
-	if !lw.ok {
-		return nil
+	lw, err := m.longWaveLimit(ctx)
+	if err != nil || !lw.ok {
+		return nil, err
 	}
 	v2 := lw.speedsSquared(u)
 	out := make([]float64, len(v2))
@@ -138,7 +146,7 @@ func (m *Model) SoundVelocities(dir [3]float64) []float64 {
 		// Å·sqrt(eV/Å²/amu) → km/s; the signed root for unstable branches.
 		out[s] = math.Copysign(math.Sqrt(math.Abs(x)/lw.mtot), x) * VelocityUnitKmS
 	}
-	return out
+	return out, nil
 }
 
 // speedsSquared returns the eigenvalues of C(u), ascending (eV).
@@ -176,21 +184,25 @@ func (lw *longWave) speedsSquared(u [3]float64) []float64 {
 }
 
 // factoredLongWave builds the elastic limit of a spring model by least
-// squares (header of elastic.go); nil when the route does not apply.
-func (m *Model) factoredLongWave() *longWave {
+// squares (header of elastic.go); nil when the route does not apply, and
+// ctx.Err() if ctx ends first.
+func (m *Model) factoredLongWave(ctx context.Context) (*longWave, error) {
 	p, ns := m.p, m.nsites
 	if m.hasBlocks || len(m.springs) == 0 {
-		return nil
+		return nil, nil
 	}
 	nw := p * (ns - 1) // internal displacements of sites 1.., site 0 fixed
 	nc := nw + 3*p
 	var rows [][]float64
-	for _, sb := range m.springs {
+	for x, sb := range m.springs {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		if !(sb.kLong >= 0 && sb.kTrans >= 0) {
-			return nil
+			return nil, nil
 		}
 		if (len(rows)+4)*nc > maxLongWaveEntries {
-			return nil
+			return nil, nil
 		}
 		e := scale3(sb.bond, 1/norm3(sb.bond))
 		gs := [4][3]float64{scale3(e, math.Sqrt(sb.kLong))}
@@ -224,8 +236,11 @@ func (m *Model) factoredLongWave() *longWave {
 		}
 	}
 	lw := &longWave{ok: true, p: p, mtot: m.totalMassAmu()}
-	lw.lmat, lw.lrows = trailingFactor(rows, nw, 3*p)
-	return lw
+	var err error
+	if lw.lmat, lw.lrows, err = trailingFactor(ctx, rows, nw, 3*p); err != nil {
+		return nil, err
+	}
+	return lw, nil
 }
 
 // trailingFactor returns R̃ (k × nu, row-major) with R̃ᵀR̃ = min over x of
@@ -234,17 +249,26 @@ func (m *Model) factoredLongWave() *longWave {
 // sorted by decreasing ∞-norm and columns pivoted within each block
 // (row-wise backward stable Householder QR); a w column whose residual
 // falls below 1e-12 of its own norm is dependent (a free internal
-// translation) and dropped.
-func trailingFactor(rows [][]float64, nw, nu int) ([]float64, int) {
+// translation) and dropped. The factorisation is O(rows·columns²); it
+// polls ctx before every reflector and returns ctx.Err() if ctx ends first.
+func trailingFactor(ctx context.Context, rows [][]float64, nw, nu int) ([]float64, int, error) {
 	nc := nw + nu
-	inf := func(r []float64) float64 {
-		var x float64
-		for _, v := range r {
-			x = math.Max(x, math.Abs(v))
+	norms := make([]float64, len(rows)) // ∞-norms, computed once for the sort
+	for r, row := range rows {
+		for _, v := range row {
+			norms[r] = math.Max(norms[r], math.Abs(v))
 		}
-		return x
 	}
-	sort.SliceStable(rows, func(a, b int) bool { return inf(rows[a]) > inf(rows[b]) })
+	order := make([]int, len(rows))
+	for r := range order {
+		order[r] = r
+	}
+	sort.SliceStable(order, func(a, b int) bool { return norms[order[a]] > norms[order[b]] })
+	sorted := make([][]float64, len(rows))
+	for r, o := range order {
+		sorted[r] = rows[o]
+	}
+	copy(rows, sorted)
 	nr := len(rows)
 	col := func(c, from int) float64 {
 		var s, sc float64
@@ -278,6 +302,9 @@ func trailingFactor(rows [][]float64, nw, nu int) ([]float64, int) {
 	k, kw := 0, 0 // reflectors applied (= next row); those of the w block
 	for bi, blk := range [2][2]int{{0, nw}, {nw, nc}} {
 		for c := blk[0]; c < blk[1] && k < nr; c++ {
+			if err := ctx.Err(); err != nil {
+				return nil, 0, err
+			}
 			best, bn := -1, 0.0
 			for j := c; j < blk[1]; j++ {
 				if n := col(j, k); n > bn {
@@ -304,7 +331,7 @@ func trailingFactor(rows [][]float64, nw, nu int) ([]float64, int) {
 			out[r*nu+perm[c]-nw] = rows[kw+r][c]
 		}
 	}
-	return out, lrows
+	return out, lrows, nil
 }
 
 // householder reflects rows[k:] so that column c is zero below row k, with
@@ -440,8 +467,9 @@ func (m *Model) totalMassAmu() float64 {
 
 // denseLongWave builds the elastic limit from the compiled force constants
 // (the general route of the header): G = ΣΦ2 − Yᵀ Φ0'⁺ Y. ok is false when
-// the first-order term Σ (u·b)Φ over the whole cell does not vanish.
-func (m *Model) denseLongWave() *longWave {
+// the first-order term Σ (u·b)Φ over the whole cell does not vanish. It
+// returns ctx.Err() if ctx ends first.
+func (m *Model) denseLongWave(ctx context.Context) (*longWave, error) {
 	p, ns := m.p, m.nsites
 	np := 3 * p
 	lw := &longWave{p: p, mtot: m.totalMassAmu(), gmat: make([]float64, np*np)}
@@ -449,7 +477,10 @@ func (m *Model) denseLongWave() *longWave {
 	y := make([]float64, p*ns*np) // Y[(i,a), (α,c)] = Σ_jn b_α Φ_ac(0i;nj)
 	phi0 := make([]float64, nw*nw)
 	var mag float64 // Σ |b| |Φ|: the scale of the first-order test
-	for _, t := range m.terms {
+	for x, t := range m.terms {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		w := math.Sqrt(m.massAmu[t.i] * m.massAmu[t.j])
 		b := sub3(add3(m.pos[t.j], m.latticeVec(t.n)), m.pos[t.i])
 		for a := 0; a < p; a++ {
@@ -476,21 +507,30 @@ func (m *Model) denseLongWave() *longWave {
 				s += y[(i*p+a)*np+k]
 			}
 			if math.Abs(s) > 1e-10*mag {
-				return lw
+				return lw, nil
 			}
 		}
 	}
-	if rows := psdRows(phi0, y[p*np:], lw.gmat, nw, np); rows != nil {
+	rows, err := psdRows(ctx, phi0, y[p*np:], lw.gmat, nw, np)
+	if err != nil {
+		return nil, err
+	}
+	if rows != nil {
 		// Stable on every gradient: the least-squares route on a square
 		// root of the energy form, whose C(u) = L(u)ᵀL(u) is never
 		// negative.
-		lw.lmat, lw.lrows = trailingFactor(rows, nw, np)
+		if lw.lmat, lw.lrows, err = trailingFactor(ctx, rows, nw, np); err != nil {
+			return nil, err
+		}
 		lw.gmat = nil
 		lw.ok = true
-		return lw
+		return lw, nil
 	}
 	if nw > 0 {
-		relax := relaxation(phi0, y[p*np:], nw, np)
+		relax, err := relaxation(ctx, phi0, y[p*np:], nw, np)
+		if err != nil {
+			return nil, err
+		}
 		for k := range lw.gmat {
 			lw.gmat[k] -= relax[k]
 		}
@@ -502,45 +542,42 @@ func (m *Model) denseLongWave() *longWave {
 		}
 	}
 	lw.ok = true
-	return lw
+	return lw, nil
 }
 
 // psdRows returns rows B with BᵀB = H, the energy form over (w, U_α) —
 // H = [[Φ0', Y], [Yᵀ, G2]] — from its eigendecomposition, B = Λ^½Vᵀ, or
 // nil when H has an eigenvalue below −64ε of its largest (an energy that
 // falls along some displacement gradient; the subtraction route then
-// gives the signed result).
-func psdRows(phi0, y, g2 []float64, nw, np int) [][]float64 {
+// gives the signed result). It returns ctx.Err() if ctx ends first.
+func psdRows(ctx context.Context, phi0, y, g2 []float64, nw, np int) ([][]float64, error) {
 	n := nw + np
-	h := mat.NewSymDense(n, nil)
+	w := newSymEigen(n)
 	for i := 0; i < nw; i++ {
 		for j := 0; j <= i; j++ {
-			h.SetSym(i, j, 0.5*(phi0[i*nw+j]+phi0[j*nw+i]))
-		}
-		for k := 0; k < np; k++ {
-			h.SetSym(i, nw+k, y[i*np+k])
+			w.set(i, j, 0.5*(phi0[i*nw+j]+phi0[j*nw+i]))
 		}
 	}
 	for k := 0; k < np; k++ {
+		for i := 0; i < nw; i++ {
+			w.set(nw+k, i, y[i*np+k])
+		}
 		for l := 0; l <= k; l++ {
-			h.SetSym(nw+k, nw+l, 0.5*(g2[k*np+l]+g2[l*np+k]))
+			w.set(nw+k, nw+l, 0.5*(g2[k*np+l]+g2[l*np+k]))
 		}
 	}
-	var es mat.EigenSym
-	if !es.Factorize(h, true) {
-		return nil
+	ok, err := w.solve(ctx)
+	if !ok || err != nil {
+		return nil, err
 	}
-	vals := es.Values(nil)
 	var big float64
-	for _, v := range vals {
+	for _, v := range w.vals {
 		big = math.Max(big, math.Abs(v))
 	}
-	var vecs mat.Dense
-	es.VectorsTo(&vecs)
 	var rows [][]float64
-	for k, v := range vals {
+	for k, v := range w.vals {
 		if v < -64*dlamchE*big {
-			return nil
+			return nil, nil
 		}
 		if v <= 0 {
 			continue
@@ -548,11 +585,11 @@ func psdRows(phi0, y, g2 []float64, nw, np int) [][]float64 {
 		r := make([]float64, n)
 		s := math.Sqrt(v)
 		for i := range r {
-			r[i] = s * vecs.At(i, k)
+			r[i] = s * w.vector(k, i)
 		}
 		rows = append(rows, r)
 	}
-	return rows
+	return rows, nil
 }
 
 // dlamchE is the unit roundoff of float64, 2⁻⁵³.
@@ -562,34 +599,45 @@ const dlamchE = 1.0 / (1 << 53)
 // the nw×np Y, with the pseudo-inverse from a symmetric eigendecomposition
 // (eigenvalues below 1e-12 of the largest in magnitude are zero modes and
 // left out).
-func relaxation(phi0, y []float64, nw, np int) []float64 {
+func relaxation(ctx context.Context, phi0, y []float64, nw, np int) ([]float64, error) {
 	out := make([]float64, np*np)
-	var es mat.EigenSym
-	if !es.Factorize(mat.NewSymDense(nw, phi0), true) {
-		return out
+	w := newSymEigen(nw)
+	for i := 0; i < nw; i++ {
+		for j := 0; j <= i; j++ {
+			w.set(i, j, phi0[j*nw+i]) // the upper triangle, as given
+		}
 	}
-	vals := es.Values(nil)
-	var vecs mat.Dense
-	es.VectorsTo(&vecs)
+	ok, err := w.solve(ctx)
+	if !ok || err != nil {
+		return out, err
+	}
 	var big float64
-	for _, v := range vals {
+	for _, v := range w.vals {
 		big = math.Max(big, math.Abs(v))
 	}
 	// Z = Vᵀ Y; Yᵀ Φ0⁺ Y = Σ_k Z_k Z_kᵀ / λ_k.
-	var z mat.Dense
-	z.Mul(vecs.T(), mat.NewDense(nw, np, y))
-	for k, v := range vals {
+	row := make([]float64, np)
+	for k, v := range w.vals {
 		if math.Abs(v) <= 1e-12*big {
 			continue
 		}
-		row := z.RawRowView(k)
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		clear(row)
+		for i := 0; i < nw; i++ {
+			vi := w.vector(k, i)
+			for a := 0; a < np; a++ {
+				row[a] += vi * y[i*np+a]
+			}
+		}
 		for a := 0; a < np; a++ {
 			for b := 0; b < np; b++ {
 				out[a*np+b] += row[a] * row[b] / v
 			}
 		}
 	}
-	return out
+	return out, nil
 }
 
 // elasticDebyeTemperature returns θ_D from the sound velocities of the
@@ -601,11 +649,12 @@ func relaxation(phi0, y []float64, nw, np int) []float64 {
 // The direction average is exact for d = 1, a 64-point trapezoid rule on
 // the circle for d = 2 and a 16×32 Gauss–Legendre × trapezoid product rule
 // on the sphere for d = 3. It is 0 when undefined: p < d, a non-positive
-// or imaginary acoustic velocity, or no lattice.
-func elasticDebyeTemperature(m *Model) float64 {
+// or imaginary acoustic velocity, or no lattice. It returns ctx.Err() if
+// ctx ends during the set-up of the long-wave limit.
+func elasticDebyeTemperature(ctx context.Context, m *Model) (float64, error) {
 	d, p := m.Dim(), m.P()
 	if p < d || d < 1 || d > 3 {
-		return 0
+		return 0, nil
 	}
 	basis := latticeSpanBasis(m)
 	type dirW struct {
@@ -645,13 +694,16 @@ func elasticDebyeTemperature(m *Model) float64 {
 	}
 	sum := 0.0 // Σ_s ⟨v_s^(−d)⟩, (Å·THz)^(−d)
 	for _, dw := range dirs {
-		vs := acousticSpeedsATHz(m, dw.dir)
+		vs, err := acousticSpeedsATHz(ctx, m, dw.dir)
+		if err != nil {
+			return 0, err
+		}
 		if len(vs) != p {
-			return 0
+			return 0, nil
 		}
 		for _, v := range vs {
 			if !(v > 0) {
-				return 0
+				return 0, nil
 			}
 			sum += dw.w * math.Pow(v, -float64(d))
 		}
@@ -659,19 +711,19 @@ func elasticDebyeTemperature(m *Model) float64 {
 	sd := [4]float64{0, 2, 2 * math.Pi, 4 * math.Pi}[d]
 	vol := cellMeasure(m)
 	nuD := math.Pow(float64(d*p*m.Sites())/(vol*sd*sum), 1/float64(d))
-	return nuD * THzToKelvin
+	return nuD * THzToKelvin, nil
 }
 
 // acousticSpeedsATHz returns the sound velocities of the p acoustic
 // branches along the Cartesian unit vector dir in Å·THz (Model.
 // SoundVelocities gives km/s; 1 km/s = 10 Å·THz), the unit in which
 // ν = v|q|/2π with q in Å⁻¹.
-func acousticSpeedsATHz(m *Model, dir [3]float64) []float64 {
-	v := m.SoundVelocities(dir)
+func acousticSpeedsATHz(ctx context.Context, m *Model, dir [3]float64) ([]float64, error) {
+	v, err := m.SoundVelocities(ctx, dir)
 	for s := range v {
 		v[s] *= 10
 	}
-	return v
+	return v, err
 }
 
 // latticeSpanBasis returns an orthonormal basis (Gram–Schmidt) of the

@@ -20,7 +20,7 @@ func BenchmarkElasticDebye(b *testing.B) {
 				b.StopTimer()
 				m := mustCompile(b, c)
 				b.StartTimer()
-				elasticSink = elasticDebyeTemperature(m)
+				elasticSink = mustElasticTheta(b, m)
 			}
 		})
 	}

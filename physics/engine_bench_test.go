@@ -80,7 +80,7 @@ func BenchmarkModesPerQ(b *testing.B) {
 }
 
 // BenchmarkTwoSiteEigenvalues is the 6×6 Hermitian eigenvalue solve alone on
-// dynamical matrices of the two-site crystal at random q (the issue's
+// dynamical matrices of the two-site crystal at random q (the project's
 // 1.5 µs target), and the D(q) assembly alone.
 func BenchmarkTwoSiteEigenvalues(b *testing.B) {
 	m := mustCompile(b, loadExample(b, "rocksalt-like"))

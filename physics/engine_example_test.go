@@ -24,14 +24,19 @@ func chain() *physics.Crystal {
 // = 6.05477 THz (Kittel ch. 4), its speed of sound a sqrt(K/M)·9.82269
 // km/s = 4.75537 km/s; along Γ–X, ν = 6.05477 sin(πq) THz.
 func ExampleCompile() {
-	m, err := physics.Compile(chain(), physics.Options{})
+	m, err := physics.Compile(context.Background(), chain(), physics.Options{})
 	if err != nil {
 		fmt.Println(err)
 		return
 	}
 	fmt.Printf("%s, %d mode(s) per q\n", m.LatticeType(), m.Modes())
 	fmt.Printf("ν(X) = %.4f THz\n", m.FrequenciesTHz(m.StandardPoints()["X"])[0])
-	fmt.Printf("c = %.4f km/s\n", m.SoundVelocities([3]float64{1, 0, 0})[0])
+	c, err := m.SoundVelocities(context.Background(), [3]float64{1, 0, 0})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Printf("c = %.4f km/s\n", c[0])
 	// Output:
 	// 1d, 1 mode(s) per q
 	// ν(X) = 6.0548 THz
@@ -49,12 +54,12 @@ func ExampleValidate() {
 	}
 	// Output:
 	// sites[0].mass_amu: must be > 0, got -40
-	// springs[0].to: site index 3 out of range [0, 1)
+	// springs[0].to_site: site index 3 out of range [0, 1)
 }
 
 // A path through built-in labels, five samples shared by length.
 func ExampleModel_Dispersion() {
-	m, _ := physics.Compile(chain(), physics.Options{})
+	m, _ := physics.Compile(context.Background(), chain(), physics.Options{})
 	s, err := m.Dispersion(context.Background(), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 5})
 	if err != nil {
 		fmt.Println(err)
@@ -73,11 +78,11 @@ func ExampleModel_Dispersion() {
 
 // The hash is that of the physics: the same chain in N/m hashes alike.
 func ExampleModel_Hash() {
-	a, _ := physics.Compile(chain(), physics.Options{})
+	a, _ := physics.Compile(context.Background(), chain(), physics.Options{})
 	c := chain()
 	c.ForceUnit = physics.NPerM
 	c.Springs[0].KLong = 1.5 * 16.02176634
-	b, _ := physics.Compile(c, physics.Options{})
+	b, _ := physics.Compile(context.Background(), c, physics.Options{})
 	fmt.Println(len(a.Hash()), a.Hash() == b.Hash())
 	// Output: 64 true
 }

@@ -4,6 +4,7 @@
 package physics
 
 import (
+	"context"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -54,7 +55,8 @@ func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
 			Frac    []float64
 		}
 		Springs []struct {
-			From, To      int
+			From          int `json:"fromSite"`
+			To            int `json:"toSite"`
 			Cell          []int
 			KLong, KTrans float64
 		}
@@ -64,9 +66,10 @@ func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
 			KLong, KTrans      float64
 		}
 		Blocks []struct {
-			From, To int
-			Cell     []int
-			Phi      []float64
+			From int `json:"fromSite"`
+			To   int `json:"toSite"`
+			Cell []int
+			Phi  []float64
 		}
 	}
 	if err := json.Unmarshal(b, &f); err != nil {
@@ -96,9 +99,49 @@ func decodeCrystal(t testing.TB, name string, b []byte) *Crystal {
 
 func mustCompile(t testing.TB, c *Crystal) *Model {
 	t.Helper()
-	m, err := Compile(c, Options{})
+	m, err := Compile(context.Background(), c, Options{})
 	if err != nil {
 		t.Fatal(err)
 	}
 	return m
+}
+
+// mustSymmetry is Model.Symmetry without a deadline.
+func mustSymmetry(t testing.TB, m *Model) []SymOp {
+	t.Helper()
+	ops, err := m.Symmetry(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return ops
+}
+
+// mustSound is Model.SoundVelocities without a deadline.
+func mustSound(t testing.TB, m *Model, dir [3]float64) []float64 {
+	t.Helper()
+	v, err := m.SoundVelocities(context.Background(), dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return v
+}
+
+// mustElasticTheta is elasticDebyeTemperature without a deadline.
+func mustElasticTheta(t testing.TB, m *Model) float64 {
+	t.Helper()
+	th, err := elasticDebyeTemperature(context.Background(), m)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return th
+}
+
+// mustSpeedsATHz is acousticSpeedsATHz without a deadline.
+func mustSpeedsATHz(t testing.TB, m *Model, dir [3]float64) []float64 {
+	t.Helper()
+	v, err := acousticSpeedsATHz(context.Background(), m, dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return v
 }

@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -73,7 +74,7 @@ func TestHashInvariances(t *testing.T) {
 			c := cloneCrystal(fcc)
 			c.Shells = nil
 			m := mustCompile(t, fcc)
-			bonds, _, _ := m.findShell(fcc.Shells[0], Limits{}.withDefaults())
+			bonds, _, _ := m.findShell(context.Background(), fcc.Shells[0], Limits{}.withDefaults())
 			for _, b := range bonds {
 				c.Springs = append(c.Springs, Spring{From: b.i, To: b.j, Cell: b.n[:], KLong: fcc.Shells[0].KLong})
 			}
@@ -104,7 +105,7 @@ func TestHashInvariances(t *testing.T) {
 	}
 	for name, c := range map[string]*Crystal{"fcc (no on-site block)": fcc, "on-site blocks at the sum rule": atRule} {
 		t.Run("enforcing a sum rule with nothing to enforce: "+name, func(t *testing.T) {
-			m, err := Compile(c, Options{EnforceSumRule: true})
+			m, err := Compile(context.Background(), c, Options{EnforceSumRule: true})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -150,8 +151,8 @@ func TestHashUnitConversion(t *testing.T) {
 func TestHashJSONSpelling(t *testing.T) {
 	a := `{"name":"x","lattice":[{"x":2.5,"y":0,"z":0}],"polarizations":1,
 	"sites":[{"label":"A","massAmu":40,"frac":[0]}],
-	"springs":[{"from":0,"to":0,"cell":[1],"kLong":1.5}]}`
-	b := `{ "springs" : [ { "kLong" : 15e-1, "cell" : [ 1 ], "to" : 0, "from" : 0 } ],
+	"springs":[{"fromSite":0,"toSite":0,"cell":[1],"kLong":1.5}]}`
+	b := `{ "springs" : [ { "kLong" : 15e-1, "cell" : [ 1 ], "toSite" : 0, "fromSite" : 0 } ],
 	  "sites" : [ { "frac" : [ 0.0 ], "massAmu" : 40.000, "label" : "A" } ],
 	  "polarizations" : 1, "lattice" : [ { "z" : 0, "y" : 0, "x" : 2.50 } ], "name" : "y" }`
 	if !json.Valid([]byte(a)) || !json.Valid([]byte(b)) {

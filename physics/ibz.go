@@ -34,13 +34,18 @@ type IrreducibleGrid struct {
 // symmetry operations and time reversal. With a cache (nil: none),
 // reductions are kept there and shared by every model with the same
 // q-space operations, so repeated requests on one lattice and grid reduce
-// once.
-func (m *Model) ReduceGrid(spec GridSpec, cache *ReductionCache) (*IrreducibleGrid, error) {
+// once. The first call on a model finds its symmetry (Symmetry); that and
+// the reduction of a large grid poll ctx, and ctx.Err() is returned when
+// ctx ends first (nothing partial is cached).
+func (m *Model) ReduceGrid(ctx context.Context, spec GridSpec, cache *ReductionCache) (*IrreducibleGrid, error) {
 	spec, err := spec.normalize(m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
-	ops := m.gridOps(spec)
+	ops, err := m.gridOps(ctx, spec)
+	if err != nil {
+		return nil, err
+	}
 	key := irrKey(ops, spec)
 	if v, ok := cache.get(key); ok {
 		// Share the tables; the ops (with this model's site maps) are ours.
@@ -48,21 +53,28 @@ func (m *Model) ReduceGrid(spec GridSpec, cache *ReductionCache) (*IrreducibleGr
 		cp.Ops = ops
 		return &cp, nil
 	}
-	ir := reduce(ops, spec)
+	ir, err := reduce(ctx, ops, spec)
+	if err != nil {
+		return nil, err
+	}
 	cache.put(key, ir)
 	return ir, nil
 }
 
 // gridOps are the model's operations that map the (normalised) grid onto
 // itself.
-func (m *Model) gridOps(spec GridSpec) []SymOp {
+func (m *Model) gridOps(ctx context.Context, spec GridSpec) ([]SymOp, error) {
+	sym, err := m.Symmetry(ctx)
+	if err != nil {
+		return nil, err
+	}
 	var ops []SymOp
-	for _, op := range m.Symmetry() {
+	for _, op := range sym {
 		if gridCompatible(op, spec) {
 			ops = append(ops, op)
 		}
 	}
-	return ops
+	return ops, nil
 }
 
 func irrKey(ops []SymOp, spec GridSpec) string { return "irr:" + reduceKey(ops, spec) }
@@ -110,7 +122,8 @@ func nearInt(x float64) bool { return math.Abs(x-math.Round(x)) < 1e-6 }
 // with the grid maps a to a'_k = Σ_l M_kl a_l + c_k (mod N_k), with
 // M_kl = S_kl N_k/N_l and c_k = Σ_l S_kl N_k s_l/N_l − s_k both integers
 // (gridCompatible checked that); time reversal maps a'_k to −a'_k − 2 s_k.
-func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
+// It polls ctx every reducePoll grid points.
+func reduce(ctx context.Context, ops []SymOp, spec GridSpec) (*IrreducibleGrid, error) {
 	n := spec.Count()
 	N := spec.Mesh
 	var off [3]float64
@@ -149,6 +162,9 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 		Irr: make([]int, 0, ub), Mult: make([]int, 0, ub)}
 	visited := make([]bool, n)
 	for g := 0; g < n; g++ {
+		if g%reducePoll == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		if visited[g] {
 			continue
 		}
@@ -185,8 +201,13 @@ func reduce(ops []SymOp, spec GridSpec) *IrreducibleGrid {
 		ir.Irr = append([]int(nil), ir.Irr...)
 		ir.Mult = append([]int(nil), ir.Mult...)
 	}
-	return ir
+	return ir, nil
 }
+
+// reducePoll is the number of grid points between two polls of the
+// context in reduce: each costs at most 2·48 images, so a poll every
+// 4 096 points is a fraction of a millisecond apart.
+const reducePoll = 4096
 
 // IrreducibleUpperBound bounds the number of irreducible points of an
 // n-point grid of a d-dimensional crystal under any symmetry: time

@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
@@ -357,7 +358,7 @@ func respell(t *testing.T, rng *rand.Rand, c *Crystal) *Crystal {
 	if len(out.Shells) > 0 {
 		k := rng.IntN(len(out.Shells))
 		sh := out.Shells[k]
-		bonds, _, err := mustCompile(t, c).findShell(sh, Limits{}.withDefaults())
+		bonds, _, err := mustCompile(t, c).findShell(context.Background(), sh, Limits{}.withDefaults())
 		if err != nil {
 			t.Fatal(err)
 		}

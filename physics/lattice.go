@@ -1,8 +1,8 @@
 // Lattice types and their standard Brillouin-zone points.
 //
 // The type is recognised from the lattice vectors alone (any primitive
-// basis, any orientation): sc, fcc, bcc and hexagonal in 3D; square,
-// rectangular and hexagonal in 2D; 1d. The labelled points of the 3D types
+// basis, any orientation): sc, fcc, bcc and hexagonal in 3D; all five 2D
+// nets (square, rectangular, centred rectangular, hexagonal, oblique); 1d. The labelled points of the 3D types
 // are those of Setyawan & Curtarolo, Comput. Mater. Sci. 49, 299 (2010)
 // (Tables for CUB, FCC, BCC and HEX), given there in fractional
 // coordinates of the reciprocal vectors of their standard primitive cell
@@ -14,7 +14,14 @@
 // the standard setting the numbers are the paper's, and for any other
 // setting they are the same points of the zone. The 2D and 1D points are
 // the in-plane analogues (common practice): square Γ, X, M; rectangular
-// Γ, X, Y, S; hexagonal Γ, M, K; 1D Γ, X.
+// Γ, X, Y, S; hexagonal Γ, M, K; 1D Γ, X. The zone of a centred
+// rectangular or oblique net is a hexagon whose corners move with the
+// cell's shape, so only Γ and the midpoints of its edges (fixed fractions of
+// the reciprocal vectors) are built in: centred rectangular X (the edge
+// across the long diagonal s₁+s₂ of the rhombic cell) and S (the edges
+// across s₁ and s₂, one point by the net's mirror); oblique X, Y, S (the
+// edges across b₁, b₂ and b₁+b₂ of the reduced cell with an acute angle,
+// named as in the rectangular net it becomes at 90°).
 
 package physics
 
@@ -36,12 +43,15 @@ const (
 	LatticeHexagonal   = "hexagonal"
 	LatticeSquare      = "square"
 	LatticeRectangular = "rectangular"
+	LatticeCentredRect = "centred-rectangular"
+	LatticeOblique     = "oblique"
 	Lattice1D          = "1d"
 )
 
 // LatticeType returns the recognised lattice type of the model: "sc",
-// "fcc", "bcc", "hexagonal" (3D or 2D), "square", "rectangular", "1d", or
-// "" when the lattice is none of these (only Γ is then built in).
+// "fcc", "bcc", "hexagonal" (3D or 2D), "square", "rectangular",
+// "centred-rectangular", "oblique", "1d", or "" when the lattice is none of
+// these (a 3D lattice of lower symmetry: only Γ is then built in).
 func (m *Model) LatticeType() string { return m.latticeType }
 
 // StandardPoints returns the built-in labelled points for the model's
@@ -71,7 +81,12 @@ var standardFrac = map[string]map[string][3]float64{
 		"K": {1.0 / 3, 1.0 / 3, 0}, "L": {0.5, 0, 0.5}, "M": {0.5, 0, 0}},
 	LatticeSquare:      {"G": {}, "X": {0.5, 0, 0}, "M": {0.5, 0.5, 0}},
 	LatticeRectangular: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
-	Lattice1D:          {"G": {}, "X": {0.5, 0, 0}},
+	// Rhombic cell s₁, s₂ of equal length at an acute angle (b₁·b₂ < 0, so
+	// the zone's edges lie across ±b₁, ±b₂, ±(b₁+b₂)).
+	LatticeCentredRect: {"G": {}, "X": {0.5, 0.5, 0}, "S": {0.5, 0, 0}},
+	// Reduced cell at an acute angle, the same three pairs of edges.
+	LatticeOblique: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
+	Lattice1D:      {"G": {}, "X": {0.5, 0, 0}},
 }
 
 // detectLattice recognises the lattice type of m and returns it with its
@@ -171,8 +186,8 @@ func reduceGreedy(u [][3]float64) {
 	sort.Slice(u, func(a, b int) bool { return dot3(u[a], u[a]) < dot3(u[b], u[b]) })
 }
 
-// classify2D recognises square, rectangular and hexagonal nets and lists
-// the candidate standard cells (s₁, s₂).
+// classify2D recognises the five 2D nets and lists the candidate standard
+// cells (s₁, s₂).
 func classify2D(user [][3]float64) (string, [][][3]float64) {
 	u := [][3]float64{user[0], user[1]}
 	reduceGreedy(u)
@@ -215,7 +230,30 @@ func classify2D(user [][3]float64) (string, [][][3]float64) {
 		}
 		return LatticeHexagonal, frames
 	}
-	return "", nil
+	// The remaining nets, with the reduced pair at an acute angle.
+	if cos < 0 {
+		u[1] = scale3(u[1], -1)
+	}
+	switch {
+	case near(l1, l2, l2):
+		// A rhombic reduced cell: centred rectangular.
+		return LatticeCentredRect, pairFrames(u[0], u[1], true)
+	case near(2*dot3(u[0], u[1]), l1*l1, l1*l1):
+		// u₂ projects onto half of u₁: u₂ and u₂ − u₁ are the rhombic cell.
+		return LatticeCentredRect, pairFrames(u[1], sub3(u[1], u[0]), true)
+	}
+	return LatticeOblique, pairFrames(u[0], u[1], false)
+}
+
+// pairFrames lists the cells (s₁, s₂) and (−s₁, −s₂), and when swap also
+// (s₂, s₁) and (−s₂, −s₁): the settings of a centred rectangular or oblique
+// net with the same standard points.
+func pairFrames(s1, s2 [3]float64, swap bool) [][][3]float64 {
+	f := [][][3]float64{{s1, s2}, {scale3(s1, -1), scale3(s2, -1)}}
+	if swap {
+		f = append(f, [][3]float64{s2, s1}, [][3]float64{scale3(s2, -1), scale3(s1, -1)})
+	}
+	return f
 }
 
 // classify3D recognises sc, fcc, bcc and hexagonal lattices and lists the

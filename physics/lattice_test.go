@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -12,7 +13,7 @@ import (
 // lattice type needs none).
 func withLattice(vecs ...[3]float64) *Model {
 	c := &Crystal{Lattice: vecs, Sites: []Site{{Label: "A", MassAmu: 1, Frac: make([]float64, len(vecs))}}}
-	m, err := Compile(c, Options{})
+	m, err := Compile(context.Background(), c, Options{})
 	if err != nil {
 		panic(err)
 	}
@@ -53,8 +54,8 @@ func TestLatticeType(t *testing.T) {
 		{"square skewed basis, tilted plane", rot([3]float64{3, 0, 0}, [3]float64{3, 3, 0}), LatticeSquare},
 		{"rectangular", [][3]float64{{3, 0, 0}, {0, 5, 0}}, LatticeRectangular},
 		{"hexagonal 2D", [][3]float64{{3, 0, 0}, {-1.5, 1.5 * s3, 0}}, LatticeHexagonal},
-		{"centred rectangular", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, ""},
-		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, ""},
+		{"centred rectangular", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, LatticeCentredRect},
+		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, LatticeOblique},
 		{"1d", [][3]float64{{0, 0, 2.5}}, Lattice1D},
 	}
 	for _, tc := range cases {

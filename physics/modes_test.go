@@ -4,6 +4,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"testing"
 )
@@ -28,8 +29,8 @@ func TestMonatomicChainDispersion(t *testing.T) {
 	}
 }
 
-// TestUnitFactor checks sqrt(eV/Å²/amu) = 15.6333042 THz (CODATA 2018,
-// ../shared reference values: 1e-7 relative).
+// TestUnitFactor checks sqrt(eV/Å²/amu) = 15.6333042 THz (sqrt(e·10²⁰/m_u)/2π
+// with CODATA 2018 e and m_u; 1e-7 relative covers the 2014–2022 editions).
 func TestUnitFactor(t *testing.T) {
 	if !relClose(NuUnitTHz, 15.6333042, 1e-7) {
 		t.Errorf("NuUnitTHz = %.10g; want 15.6333042", NuUnitTHz)
@@ -111,7 +112,7 @@ func TestDiatomicChain(t *testing.T) {
 
 // TestFCCNearestNeighbourWK extends TestFCCNearestNeighbour to W and K:
 // W = (2π/a)(1, ½, 0): ω²M/K = 6, 6, 4 … ascending 4, 6, 6; K = (2π/a)(¾, ¾,
-// 0): 4+2√2, 4+√2, 2+√2 (../shared reference values, from the standard NN
+// 0): 4+2√2, 4+√2, 2+√2 (derived from the standard NN
 // dynamical matrix D = (K/M) Σ_δ (1 − cos q·δ) δ̂δ̂ᵀ, Ashcroft & Mermin
 // ch. 22). Fractional coordinates of W and K are those of Setyawan &
 // Curtarolo (2010) for the fcc primitive cell of the example.
@@ -139,7 +140,7 @@ func TestFCCNearestNeighbourWK(t *testing.T) {
 
 // TestSquareNet: NN springs K and diagonal springs K′ = K/2 on the square
 // net (p = 2): at X ω²M/K = 2, 6 and at M 4, 4; with K′ = 0 the transverse
-// branch is flat at zero along Γ–X (../shared reference values; derived
+// branch is flat at zero along Γ–X (derived
 // from D = Σ_δ k_δ (1 − cos q·δ) δ̂δ̂ᵀ/M: at X = (π/a, 0) the NN bonds along
 // x give 4K on xx, the four diagonals 2K′ on each of xx and yy).
 func TestSquareNet(t *testing.T) {
@@ -204,7 +205,7 @@ func TestBlocksEqualSprings(t *testing.T) {
 	ref := mustCompile(t, c)
 	bc := &Crystal{Lattice: c.Lattice, Sites: c.Sites, ForceUnit: c.ForceUnit}
 	for _, sh := range c.Shells {
-		bonds, _, err := ref.findShell(sh, Limits{}.withDefaults())
+		bonds, _, err := ref.findShell(context.Background(), sh, Limits{}.withDefaults())
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -248,7 +249,7 @@ func TestSumRuleReportAndEnforcement(t *testing.T) {
 	if got, want := plain.FrequenciesTHz([3]float64{})[0], math.Sqrt(0.2/12)*NuUnitTHz; !relClose(got, want, 1e-10) {
 		t.Errorf("unenforced Γ: %v THz; want %v", got, want)
 	}
-	enforced, err := Compile(c, Options{EnforceSumRule: true})
+	enforced, err := Compile(context.Background(), c, Options{EnforceSumRule: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -296,7 +297,7 @@ func TestImaginaryModes(t *testing.T) {
 }
 
 // TestFrequencyUnits: 1 THz = 4.135667697 meV = 33.35640952 cm⁻¹ =
-// 2π·10¹² rad/s (CODATA 2018, ../shared reference values, 1e-9
+// 2π·10¹² rad/s (h·10¹²/e and 10¹⁰/c with CODATA 2018 h, e and c; 1e-9
 // relative).
 func TestFrequencyUnits(t *testing.T) {
 	for _, tc := range []struct {

@@ -1,6 +1,9 @@
 package physics
 
-import "math"
+import (
+	"context"
+	"math"
+)
 
 // Mean-square displacements: the modes' tensor channels and their
 // assembly into ⟨u uᵀ⟩ per site (B. T. M. Willis & A. W. Pryor, Thermal
@@ -20,8 +23,9 @@ var msdUnitA2 = ReducedPlanckJS / (2 * AtomicMassKg * 2 * math.Pi * 1e12) / (ang
 // gammaZeroAcoustic) with their weights and, with msd, the tensor channels
 // from the eigenvectors. It also returns the number and total weight of
 // the modes left out that are not imaginary: Γ's acoustic modes, exact
-// zeros (negative frequencies are imaginary).
-func collectModes(m *Model, g *GridModes, st spectrum, msd bool) (set *modeSet, zeroWeight float64, zeros int) {
+// zeros (negative frequencies are imaginary). It polls ctx per q-point
+// and returns ctx.Err() if ctx ends first.
+func collectModes(ctx context.Context, m *Model, g *GridModes, st spectrum, msd bool) (set *modeSet, zeroWeight float64, zeros int, err error) {
 	nm, ns, p := g.NModes, g.NSites, g.P
 	npair := p * (p + 1) / 2
 	set = &modeSet{nc: 1, p: p, nsites: ns}
@@ -32,6 +36,9 @@ func collectModes(m *Model, g *GridModes, st spectrum, msd bool) (set *modeSet, 
 	set.nu = make([]float64, 0, len(g.FreqTHz))
 	set.ch = make([]float64, 0, len(g.FreqTHz)*set.nc)
 	for i, q := range g.Points {
+		if (msd || i%pollEvery == 0) && ctx.Err() != nil {
+			return nil, 0, 0, ctx.Err()
+		}
 		f := g.FreqTHz[i*nm : (i+1)*nm]
 		var ac uint64 // Γ's acoustic modes, zero to rounding
 		if isGamma(q.Q) {
@@ -70,7 +77,7 @@ func collectModes(m *Model, g *GridModes, st spectrum, msd bool) (set *modeSet, 
 			}
 		}
 	}
-	return set, zeroWeight, zeros
+	return set, zeroWeight, zeros, nil
 }
 
 // gammaZeroAcoustic returns the bit set of the acoustic modes among the
@@ -135,6 +142,9 @@ type msdDivergence struct {
 
 // msdDivergenceOf sets up the divergence check for model m on the grid g.
 func msdDivergenceOf(m *Model, g *GridModes, st spectrum) msdDivergence {
+	if m.Dim() == 3 || g.Spec.Finite {
+		return msdDivergence{dim: m.Dim(), finite: g.Spec.Finite} // never divergent
+	}
 	f := m.FrequenciesTHz([3]float64{})
 	return msdDivergence{dim: m.Dim(), acoustic: gammaZeroAcoustic(f, m.P(), st) != 0, finite: g.Spec.Finite}
 }

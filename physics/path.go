@@ -472,3 +472,42 @@ func (c *connector) align(lo, hi int) {
 	}
 	copy(c.cur[lo*n:hi*n], basis)
 }
+
+// defaultPaths are the default paths through the built-in points, by
+// dimensionality and lattice type ('-' joins, '|' breaks): for sc, fcc, bcc
+// and hexagonal in 3D those of Setyawan & Curtarolo, Comput. Mater. Sci. 49,
+// 299 (2010), Table 2 and Figs. 1–4 (from memory); for the 2D nets and 1D
+// the closed loops through Γ and every built-in point (common practice).
+var defaultPaths = map[int]map[string]string{
+	3: {
+		LatticeSC:        "G-X-M-G-R-X|M-R",
+		LatticeFCC:       "G-X-W-K-G-L-U-W-L-K|U-X",
+		LatticeBCC:       "G-H-N-G-P-H|P-N",
+		LatticeHexagonal: "G-M-K-G-A-L-H-A|L-M|K-H",
+	},
+	2: {
+		LatticeSquare:      "G-X-M-G",
+		LatticeRectangular: "G-X-S-Y-G",
+		LatticeCentredRect: "G-X-S-G",
+		LatticeHexagonal:   "G-M-K-G",
+		LatticeOblique:     "G-X-S-Y-G",
+	},
+	1: {Lattice1D: "G-X"},
+}
+
+// DefaultPath returns the default path of the model's lattice through its
+// built-in points (labels only; Dispersion resolves them), or nil when the
+// lattice type has none (an unrecognised 3D lattice: give coordinates).
+func (m *Model) DefaultPath() []PathCorner {
+	spec := defaultPaths[m.dim][m.latticeType]
+	if spec == "" {
+		return nil
+	}
+	var out []PathCorner
+	for pi, piece := range strings.Split(spec, "|") {
+		for li, label := range strings.Split(piece, "-") {
+			out = append(out, PathCorner{Label: label, BreakBefore: pi > 0 && li == 0})
+		}
+	}
+	return out
+}

@@ -8,6 +8,7 @@
 package physics
 
 import (
+	"context"
 	"encoding/json"
 	"flag"
 	"fmt"
@@ -269,7 +270,7 @@ func propCases(t *testing.T) []*propCase {
 		rng := propRNG(seed)
 		c := randomProperCrystal(rng)
 		pc := &propCase{seed: seed, c: c, spec: propMesh(rng, len(c.Lattice))}
-		m, err := Compile(c, Options{})
+		m, err := Compile(context.Background(), c, Options{})
 		if err != nil {
 			t.Fatalf("generator made an invalid model: %v\n%v", err, pc)
 		}
@@ -570,7 +571,7 @@ func TestPropertyHashPerturbation(t *testing.T) {
 	var fails []string
 	for _, seed := range propSeeds() {
 		c := randomProperCrystal(propRNG(seed))
-		m, err := Compile(c, Options{})
+		m, err := Compile(context.Background(), c, Options{})
 		if err != nil {
 			t.Fatalf("seed %d: %v", seed, err)
 		}
@@ -582,7 +583,7 @@ func TestPropertyHashPerturbation(t *testing.T) {
 				continue
 			}
 			*p[k] *= 1 + rel
-			pm, err := Compile(pc, Options{})
+			pm, err := Compile(context.Background(), pc, Options{})
 			if err != nil {
 				t.Fatalf("seed %d, %s × (1 + %g): %v", seed, names[k], rel, err)
 			}

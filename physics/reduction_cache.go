@@ -1,5 +1,7 @@
 package physics
 
+import "context"
+
 // ReductionCache keeps what is worth reusing between grid computations of
 // models on one lattice: the symmetry reductions of grids (ReduceGrid) and
 // the simplex classes of the tetrahedron method built on them. The engine
@@ -72,9 +74,15 @@ func (r *ReductionCache) put(key string, v any) {
 // milliseconds.
 const CheapReduction = 1 << 16
 
+// CheapSymmetrySites is the largest model (sites) whose symmetry
+// IrreducibleCount finds on the spot when it is not yet known: the search
+// grows with sites² per candidate operation, milliseconds up to here.
+const CheapSymmetrySites = 16
+
 // IrreducibleCount returns the number of irreducible points of spec for m
 // and true when it is known cheaply: the reduction is in the cache, or the
-// grid is small enough (CheapReduction) to reduce now (the reduction is
+// grid is small enough (CheapReduction) to reduce now, the model's symmetry
+// being known or cheap to find (CheapSymmetrySites) (the reduction is
 // then kept in the cache for the computation that follows). Otherwise it
 // returns IrreducibleUpperBound and false. Admission control uses it to
 // estimate a grid computation before any large work.
@@ -83,14 +91,26 @@ func (r *ReductionCache) IrreducibleCount(m *Model, spec GridSpec) (int, bool) {
 	if err != nil {
 		return 0, false
 	}
-	ops := m.gridOps(spec)
+	bound := IrreducibleUpperBound(spec.Count(), m.dim)
+	if _, known := m.sym.peek(); !known && m.nsites > CheapSymmetrySites {
+		return bound, false // finding the symmetry is work to admit first
+	}
+	// Known, or a search of milliseconds (CheapSymmetrySites): not
+	// cancellable from here, and not needed to be.
+	ops, err := m.gridOps(context.Background(), spec)
+	if err != nil {
+		return bound, false
+	}
 	if v, ok := r.get(irrKey(ops, spec)); ok {
 		return len(v.(*IrreducibleGrid).Irr), true
 	}
 	if spec.Count() <= CheapReduction {
-		ir := reduce(ops, spec)
+		ir, err := reduce(context.Background(), ops, spec)
+		if err != nil {
+			return bound, false
+		}
 		r.put(irrKey(ops, spec), ir)
 		return len(ir.Irr), true
 	}
-	return IrreducibleUpperBound(spec.Count(), m.dim), false
+	return bound, false
 }

@@ -79,7 +79,7 @@ func TestCancelStopsLargeSolve(t *testing.T) {
 // MODEGRID_BENCH_LARGE=1 set (one such point takes about a minute). The
 // cancel comes after a delay that cycles through the phases of a solve
 // (assembly, reduction, QL, back-transformation, velocities). Reported as
-// the mean and the largest ms/cancel; the issue asks for under 10 ms.
+// the mean and the largest ms/cancel; the project's target is under 10 ms.
 // GridModes shares the polling (parallelWork and the solver's own).
 func BenchmarkCancelLatency(b *testing.B) {
 	cube := supercell(b, loadExample(b, "rocksalt-like"), conventionalCell)

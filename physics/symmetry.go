@@ -1,6 +1,7 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
@@ -44,12 +45,16 @@ const (
 // accident (any interaction that breaks a symmetry removes the operation).
 // The identity is always first. The result is computed once per model.
 // Time reversal (q → −q) is not listed: it always holds.
-func (m *Model) Symmetry() []SymOp {
-	m.symOnce.Do(func() { m.symOps = m.findSymmetry() })
-	return m.symOps
+//
+// The search costs O(sites³) per candidate rotation plus a few dynamical
+// matrices (tens of seconds at 512 sites); it polls ctx and returns
+// ctx.Err() when ctx ends first. A cancelled search keeps nothing: the
+// next call searches again.
+func (m *Model) Symmetry(ctx context.Context) ([]SymOp, error) {
+	return m.sym.get(ctx, m.findSymmetry)
 }
 
-func (m *Model) findSymmetry() []SymOp {
+func (m *Model) findSymmetry(ctx context.Context) ([]SymOp, error) {
 	d := m.dim
 	var g [3][3]float64
 	scale := 0.0
@@ -70,7 +75,10 @@ func (m *Model) findSymmetry() []SymOp {
 	}
 	dq := make([][]complex128, len(probes))
 	for k, q := range probes {
-		dq[k] = m.DynamicalMatrix(q, nil)
+		var err error
+		if dq[k], err = m.dynamicalMatrixCtx(ctx, q); err != nil {
+			return nil, err
+		}
 	}
 	var dmax float64
 	for _, dm := range dq {
@@ -85,6 +93,9 @@ func (m *Model) findSymmetry() []SymOp {
 	}
 	var ops []SymOp
 	for code := 0; code < total; code++ {
+		if code%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		var r [3][3]int
 		c := code
 		for k := 0; k < n; k++ {
@@ -101,11 +112,17 @@ func (m *Model) findSymmetry() []SymOp {
 		if !m.keepsPolarizations(cart) {
 			continue
 		}
-		for _, op := range m.siteMappings(r, cart) {
-			if m.fcInvariant(op, probes, dq, dmax) {
+		// One translation per rotation suffices for q-space use: the
+		// first candidate that leaves the model invariant.
+		err := m.siteMappings(ctx, r, cart, func(op SymOp) (bool, error) {
+			ok, err := m.fcInvariant(ctx, op, probes, dq, dmax)
+			if ok {
 				ops = append(ops, op)
-				break // one translation per rotation suffices for q-space use
 			}
+			return ok, err
+		})
+		if err != nil {
+			return nil, err
 		}
 	}
 	// Identity first.
@@ -114,7 +131,7 @@ func (m *Model) findSymmetry() []SymOp {
 			ops[0], ops[i] = ops[i], ops[0]
 		}
 	}
-	return ops
+	return ops, nil
 }
 
 func identity3() [3][3]int { return [3][3]int{{1, 0, 0}, {0, 1, 0}, {0, 0, 1}} }
@@ -177,9 +194,13 @@ func (m *Model) keepsPolarizations(c [3][3]float64) bool {
 	return true
 }
 
-// siteMappings returns the candidate operations (R, t) that map every site
-// onto a site of the same mass; t runs over x_j − R x_0.
-func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
+// siteMappings passes to try, in order, the candidate operations (R, t)
+// that map every site onto a site of the same mass, t running over
+// x_j − R x_0, until try returns true or an error. Candidates are built
+// one at a time (each costs O(sites²)), so a rotation whose first
+// candidate holds costs one, not sites, of them. It polls ctx per
+// candidate translation.
+func (m *Model) siteMappings(ctx context.Context, r [3][3]int, cart [3][3]float64, try func(SymOp) (bool, error)) error {
 	d, ns := m.dim, m.nsites
 	rx := make([][3]float64, ns)
 	for i := 0; i < ns; i++ {
@@ -189,10 +210,12 @@ func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
 			}
 		}
 	}
-	var out []SymOp
 	for j0 := 0; j0 < ns; j0++ {
 		if m.massAmu[j0] != m.massAmu[0] {
 			continue
+		}
+		if err := ctx.Err(); err != nil {
+			return err
 		}
 		var t [3]float64
 		for a := 0; a < d; a++ {
@@ -229,9 +252,11 @@ func (m *Model) siteMappings(r [3][3]int, cart [3][3]float64) []SymOp {
 			continue
 		}
 		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: invTransposeInt(r)}
-		out = append(out, op)
+		if done, err := try(op); done || err != nil {
+			return err
+		}
 	}
-	return out
+	return nil
 }
 
 // invTransposeInt returns R⁻ᵀ for a unimodular integer matrix (d ≤ 3),
@@ -266,8 +291,9 @@ func (op *SymOp) applyQ(q [3]float64) [3]float64 {
 
 // rotateD computes U D(q) U† for the operation: the block of sites
 // (π i, π j) is C D_ij Cᵀ · exp(−2πi q'·(L_i − L_j)), q' = QRot q, using
-// only the p×p part of C.
-func (m *Model) rotateD(op *SymOp, q [3]float64, dm []complex128) []complex128 {
+// only the p×p part of C. It polls ctx once per row of sites and returns
+// nil when ctx ended.
+func (m *Model) rotateD(ctx context.Context, op *SymOp, q [3]float64, dm []complex128) []complex128 {
 	p, nm := m.p, m.Modes()
 	qp := op.applyQ(q)
 	ph := make([]complex128, m.nsites)
@@ -280,6 +306,9 @@ func (m *Model) rotateD(op *SymOp, q [3]float64, dm []complex128) []complex128 {
 	}
 	out := make([]complex128, nm*nm)
 	for i := 0; i < m.nsites; i++ {
+		if ctx.Err() != nil {
+			return nil
+		}
 		for j := 0; j < m.nsites; j++ {
 			f := ph[i] * cmplx.Conj(ph[j])
 			pi, pj := op.Perm[i], op.Perm[j]
@@ -299,16 +328,24 @@ func (m *Model) rotateD(op *SymOp, q [3]float64, dm []complex128) []complex128 {
 	return out
 }
 
-func (m *Model) fcInvariant(op SymOp, probes [][3]float64, dq [][]complex128, dmax float64) bool {
+// fcInvariant reports D(Sq) = U D(q) U† at the probes, within SymFCTol of
+// the largest element; it returns ctx.Err() when ctx ends first.
+func (m *Model) fcInvariant(ctx context.Context, op SymOp, probes [][3]float64, dq [][]complex128, dmax float64) (bool, error) {
 	tol := SymFCTol*dmax + 1e-14
 	for k, q := range probes {
-		want := m.rotateD(&op, q, dq[k])
-		got := m.DynamicalMatrix(op.applyQ(q), nil)
+		want := m.rotateD(ctx, &op, q, dq[k])
+		if want == nil {
+			return false, ctx.Err()
+		}
+		got, err := m.dynamicalMatrixCtx(ctx, op.applyQ(q))
+		if err != nil {
+			return false, err
+		}
 		for x := range got {
 			if cmplx.Abs(got[x]-want[x]) > tol {
-				return false
+				return false, nil
 			}
 		}
 	}
-	return true
+	return true, nil
 }

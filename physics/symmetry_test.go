@@ -26,7 +26,7 @@ func TestSymmetryOperationCounts(t *testing.T) {
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, tc.name))
-			ops := m.Symmetry()
+			ops := mustSymmetry(t, m)
 			if len(ops) != tc.want {
 				t.Fatalf("got %d operations; want %d", len(ops), tc.want)
 			}
@@ -69,13 +69,13 @@ func brokenFCC(t testing.TB) *Crystal {
 }
 
 func TestSymmetryBrokenAndTriclinic(t *testing.T) {
-	if n := len(mustCompile(t, triclinic()).Symmetry()); n != 1 {
+	if n := len(mustSymmetry(t, mustCompile(t, triclinic()))); n != 1 {
 		t.Errorf("triclinic: %d operations; want 1 (identity)", n)
 	}
 	// The bond a1 = (0, 2, 2) is kept (up to sign) by the operations of the
 	// cubic group fixing the axis [011] up to sign: a group of order 8 (mmm
 	// with a twofold axis along [011]; International Tables Vol. A).
-	if n := len(mustCompile(t, brokenFCC(t)).Symmetry()); n != 8 {
+	if n := len(mustSymmetry(t, mustCompile(t, brokenFCC(t)))); n != 8 {
 		t.Errorf("fcc with one extra bond: %d operations; want 8", n)
 	}
 }
@@ -94,7 +94,7 @@ func TestIrreducibleCountsFCC(t *testing.T) {
 		sizes = sizes[:3]
 	}
 	for _, n := range sizes {
-		ir, err := m.ReduceGrid(GridSpec{Mesh: [3]int{n, n, n}}, nil)
+		ir, err := m.ReduceGrid(context.Background(), GridSpec{Mesh: [3]int{n, n, n}}, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -36,15 +36,17 @@ const maxClassSlots = 1 << 16
 // They are kept in the grid's ReductionCache (GridOptions.Cache) per
 // (reduced grid, cutting), so repeated requests on one lattice and grid
 // find them once. Memory: 8 bytes of key per simplex and as much again
-// for the radix sort, then 16 bytes per class.
-func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
+// for the radix sort, then 16 bytes per class. Building them is linear in
+// the simplices (24 million on a 160³ grid); it polls ctx and returns
+// ctx.Err() when ctx ends first, caching nothing.
+func simplexClasses(ctx context.Context, g *GridModes, set simplexSet) ([]simplexClass, error) {
 	ir := g.irr
 	if ir == nil || len(ir.Irr) >= maxClassSlots {
-		return nil
+		return nil, nil
 	}
 	key := fmt.Sprint("classes:", reduceKey(ir.Ops, ir.Spec), set.corners[:], set.dim)
 	if c, ok := g.cache.get(key); ok {
-		return c.([]simplexClass)
+		return c.([]simplexClass), nil
 	}
 	mesh := g.Spec.Mesh
 	ncell := mesh[0] * mesh[1] * mesh[2]
@@ -52,6 +54,9 @@ func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 	keys := make([]uint64, 0, ncell*len(set.corners))
 	var idx [8]int
 	for ci := 0; ci < ncell; ci++ {
+		if ci%reducePoll == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		ca, cb, cc := ci/(mesh[1]*mesh[2]), ci/mesh[2]%mesh[1], ci%mesh[2]
 		for bits := 0; bits < 1<<dim; bits++ {
 			idx[bits] = cornerIndex(mesh, ca, cb, cc, uint8(bits))
@@ -65,7 +70,9 @@ func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 			keys = append(keys, s[0]|s[1]<<16|s[2]<<32|s[3]<<48)
 		}
 	}
-	radixSort64(keys, 16*(dim+1))
+	if err := radixSort64(ctx, keys, 16*(dim+1)); err != nil {
+		return nil, err
+	}
 	distinct := 0
 	for i := range keys {
 		if i == 0 || keys[i] != keys[i-1] {
@@ -74,6 +81,9 @@ func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 	}
 	out := make([]simplexClass, 0, distinct)
 	for i := 0; i < len(keys); {
+		if ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		j := i + 1
 		for j < len(keys) && keys[j] == keys[i] {
 			j++
@@ -82,15 +92,7 @@ func simplexClasses(g *GridModes, set simplexSet) []simplexClass {
 		i = j
 	}
 	g.cache.put(key, out)
-	return out
-}
-
-// totalClasses is simplexClasses for a total DOS, nil for projections.
-func totalClasses(g *GridModes, set simplexSet, perSite bool) []simplexClass {
-	if perSite {
-		return nil
-	}
-	return simplexClasses(g, set)
+	return out, nil
 }
 
 // classChunk is how many classes a worker takes at a time: classes are
@@ -99,16 +101,20 @@ const classChunk = 1024
 
 // radixSort64 sorts keys in place by their low `bits` bits (LSD radix
 // sort, 16-bit digits): linear time, which matters for the millions of
-// simplices of a 96³ grid.
-func radixSort64(keys []uint64, bits int) {
+// simplices of a 96³ grid. It polls ctx between passes (each a few tens
+// of milliseconds at 24 million keys) and returns ctx.Err() if ctx ended.
+func radixSort64(ctx context.Context, keys []uint64, bits int) error {
 	if bits <= 0 || len(keys) < 2 {
-		return
+		return nil
 	}
 	buf := make([]uint64, len(keys))
 	const digit = 16
 	var count [1 << digit]int
 	src, dst := keys, buf
 	for shift := 0; shift < bits; shift += digit {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
 		clear(count[:])
 		for _, k := range src {
 			count[k>>shift&(1<<digit-1)]++
@@ -128,6 +134,7 @@ func radixSort64(keys []uint64, bits int) {
 	if &src[0] != &keys[0] {
 		copy(keys, src)
 	}
+	return nil
 }
 
 func sortSlots(s *[4]uint64, n int) {

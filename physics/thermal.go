@@ -165,12 +165,14 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 	res := &ThermalResult{ImaginaryExcluded: st.imaginary}
 
 	// The grid's modes: weights and, for MSD, the tensor channels.
-	grid, zeroWeight, zeros := collectModes(m, g, st, opt.MSD)
+	grid, zeroWeight, zeros, err := collectModes(ctx, m, g, st, opt.MSD)
+	if err != nil {
+		return nil, err
+	}
 	res.ZeroExcluded = zeros
 	thermo := grid
 	binTHz := 0.0
 	if opt.Route == DOSIntegral {
-		var err error
 		if thermo, binTHz, err = dosModes(ctx, m, g, st); err != nil {
 			return nil, err
 		}
@@ -203,7 +205,9 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		}
 	}
 
-	res.ThetaElasticK = elasticDebyeTemperature(m)
+	if res.ThetaElasticK, err = elasticDebyeTemperature(ctx, m); err != nil {
+		return nil, err
+	}
 	var msdNote msdDivergence
 	if opt.MSD {
 		msdNote = msdDivergenceOf(m, g, st)
@@ -211,6 +215,9 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 	kB := BoltzmannEVPerK
 	res.Points = make([]ThermalPoint, len(temps))
 	for i, tK := range temps {
+		if i%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err() // θ_D is a root search per temperature
+		}
 		s := sums[i]
 		p := ThermalPoint{TempK: opt.TempsK[i], UeV: res.ZPEeV, FeV: res.ZPEeV}
 		if tK > 0 {

@@ -8,7 +8,7 @@ import (
 
 // BenchmarkThermal times ComputeThermal at 1 000 temperatures (2 K to
 // 2000 K) from the given modes of the rock-salt-like example on n³ grids;
-// the target is 48³ in under 0.2 s. The msd variants add the
+// the project's target is 48³ in under 0.2 s. The msd variants add the
 // displacement tensors of both sites (nine channels more per mode).
 func BenchmarkThermal(b *testing.B) {
 	temps := make([]float64, 1000)

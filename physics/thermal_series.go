@@ -76,6 +76,10 @@ var binomial = func() [treeMoments][treeMoments]float64 {
 	return c
 }()
 
+// modePoll is the number of modes between two polls of the context in the
+// linear passes over every mode of a grid (millions on a large one).
+const modePoll = 1 << 14
+
 // newModeTree builds the tree of set (which must hold at least one mode),
 // the leaves' moments on all cores.
 func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
@@ -94,7 +98,10 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 
 	// Counting sort of the modes into leaves.
 	t.start = make([]int, nleaf+1)
-	for _, f := range set.nu {
+	for i, f := range set.nu {
+		if i%modePoll == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		t.start[leafOf(f)+1]++
 	}
 	for l := 0; l < nleaf; l++ {
@@ -104,6 +111,9 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 	t.ch = make([]float64, len(set.ch))
 	fill := append([]int(nil), t.start[:nleaf]...)
 	for i, f := range set.nu {
+		if i%modePoll == 0 && ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		l := leafOf(f)
 		j := fill[l]
 		fill[l]++

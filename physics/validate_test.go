@@ -3,6 +3,7 @@
 package physics
 
 import (
+	"context"
 	"errors"
 	"math"
 	"strings"
@@ -50,9 +51,10 @@ func violationsOf(t *testing.T, err error) []Violation {
 	return ve.Violations
 }
 
-// TestValidationRules: every rule of the issue gives a violation on its
+// TestValidationRules: every validation rule gives a violation on its
 // field whose description names the bad value (common practice for
-// input validation; the rules are the issue's list).
+// input validation; the rules are those README.md lists under "The model
+// file").
 func TestValidationRules(t *testing.T) {
 	nan, inf := math.NaN(), math.Inf(1)
 	cases := []struct {
@@ -64,7 +66,7 @@ func TestValidationRules(t *testing.T) {
 		want   string // substring of the description
 	}{
 		{"no sites", twoSiteChain, func(c *Crystal) { c.Sites = nil; c.Springs = nil; c.Blocks = nil }, Limits{}, "sites", "got none"},
-		{"mass zero", twoSiteChain, func(c *Crystal) { c.Sites[1].MassAmu = 0 }, Limits{}, "sites[1].mass_amu", "must be > 0, got 0"},
+		{"mass zero (missing in JSON)", twoSiteChain, func(c *Crystal) { c.Sites[1].MassAmu = 0 }, Limits{}, "sites[1].mass_amu", "is required (missing or 0)"},
 		{"mass negative", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = -1 }, Limits{}, "sites[0].mass_amu", "got -1"},
 		{"mass NaN", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = nan }, Limits{}, "sites[0].mass_amu", "finite, got NaN"},
 		{"mass Inf", twoSiteChain, func(c *Crystal) { c.Sites[0].MassAmu = inf }, Limits{}, "sites[0].mass_amu", "finite, got +Inf"},
@@ -103,8 +105,8 @@ func TestValidationRules(t *testing.T) {
 		{"sites on the same point", twoSiteChain, func(c *Crystal) { c.Sites[1].Frac[0] = 0 }, Limits{}, "sites[1].frac", "same point as sites[0]"},
 		{"sites one lattice vector apart", twoSiteChain, func(c *Crystal) { c.Sites[1].Frac[0] = 1 }, Limits{}, "sites[1].frac", "same point as sites[0]"},
 		{"bonded to itself", twoSiteChain, func(c *Crystal) { c.Springs[0].To = 0 }, Limits{}, "springs[0]", "bonded to itself"},
-		{"index out of range", twoSiteChain, func(c *Crystal) { c.Springs[1].To = 2 }, Limits{}, "springs[1].to", "index 2 out of range [0, 2)"},
-		{"negative index", twoSiteChain, func(c *Crystal) { c.Blocks[0].From = -1 }, Limits{}, "blocks[0].from", "index -1"},
+		{"index out of range", twoSiteChain, func(c *Crystal) { c.Springs[1].To = 2 }, Limits{}, "springs[1].to_site", "index 2 out of range [0, 2)"},
+		{"negative index", twoSiteChain, func(c *Crystal) { c.Blocks[0].From = -1 }, Limits{}, "blocks[0].from_site", "index -1"},
 		{"duplicate bond", twoSiteChain, func(c *Crystal) { c.Springs = append(c.Springs, c.Springs[0]) }, Limits{}, "springs[2]", "same bond as springs[0]"},
 		{"duplicate bond as its reverse", twoSiteChain, func(c *Crystal) {
 			c.Springs = append(c.Springs, Spring{From: 1, To: 0, Cell: []int{0}, KLong: 2})
@@ -138,7 +140,7 @@ func TestValidationRules(t *testing.T) {
 			if tc.mutate != nil {
 				tc.mutate(c)
 			}
-			_, err := Compile(c, Options{Limits: tc.lim})
+			_, err := Compile(context.Background(), c, Options{Limits: tc.lim})
 			vs := violationsOf(t, err)
 			for _, v := range vs {
 				if v.Field == tc.field && strings.Contains(v.Description, tc.want) {
@@ -155,20 +157,20 @@ func TestValidationRules(t *testing.T) {
 // an on-site block).
 func TestValidationBasesAreValid(t *testing.T) {
 	for _, c := range []*Crystal{twoSiteChain(), threeD()} {
-		if _, err := Compile(c, Options{}); err != nil {
+		if _, err := Compile(context.Background(), c, Options{}); err != nil {
 			t.Fatalf("base model invalid: %v", err)
 		}
 	}
 	c := twoSiteChain()
 	c.Blocks[0].Cell[0] = 64
 	c.Blocks = append(c.Blocks, Block{From: 1, To: 1, Cell: []int{0}, Phi: []float64{0.5, 0, 0, 0, 0, 0, 0, 0, 0}})
-	if _, err := Compile(c, Options{}); err != nil {
+	if _, err := Compile(context.Background(), c, Options{}); err != nil {
 		t.Fatalf("offset 64 and an on-site block must be accepted: %v", err)
 	}
 }
 
 // TestValidationDefaultSiteLimit: 512 sites pass Validate, 513 do not
-// (the issue's default limit).
+// (DefaultMaxSites, the default limit README.md documents).
 func TestValidationDefaultSiteLimit(t *testing.T) {
 	for _, tc := range []struct {
 		name string
@@ -189,7 +191,7 @@ func TestValidationDefaultSiteLimit(t *testing.T) {
 }
 
 // TestValidationDefaultInteractionLimit: 200 000 springs pass, 200 001 do
-// not (the issue's default limit).
+// not (DefaultMaxInteractions, the default limit README.md documents).
 func TestValidationDefaultInteractionLimit(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds 200 001 springs")
@@ -220,7 +222,7 @@ func TestValidationReportsEverything(t *testing.T) {
 	c.Blocks[0].Phi[0] = math.NaN()
 	c.Polarizations = 5
 	vs := violationsOf(t, Validate(c, Limits{}))
-	want := []string{"sites[0].mass_amu", "springs[0].to", "blocks[0].phi[0]", "polarizations"}
+	want := []string{"sites[0].mass_amu", "springs[0].to_site", "blocks[0].phi[0]", "polarizations"}
 	for _, f := range want {
 		found := false
 		for _, v := range vs {

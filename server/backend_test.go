@@ -13,7 +13,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
-	"github.com/materials-lab/modegrid/server/cache"
+	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
 )
 
 const redisServerBin = "/usr/bin/redis-server"
@@ -62,7 +62,7 @@ func startRedis(t *testing.T) string {
 func TestRedisBackendSharedByReplicas(t *testing.T) {
 	addr := startRedis(t)
 	replica := func() *testServer {
-		r := cache.NewRedis(cache.RedisOptions{Addr: addr})
+		r := rediscache.New(rediscache.Options{Addr: addr})
 		t.Cleanup(func() { r.Close() })
 		return startServer(t, Config{Backend: r})
 	}
@@ -101,7 +101,7 @@ func TestBackendDownNeverFails(t *testing.T) {
 	}
 	dead := lis.Addr().String()
 	lis.Close() // nothing listens here now
-	r := cache.NewRedis(cache.RedisOptions{Addr: dead})
+	r := rediscache.New(rediscache.Options{Addr: dead})
 	t.Cleanup(func() { r.Close() })
 	ts := startServer(t, Config{Backend: r})
 	ctx := testContext(t)
@@ -121,7 +121,7 @@ func TestBackendDownNeverFails(t *testing.T) {
 // TestBackendSkipsLargeValues: a result over the backend's per-entry cap
 // stays in memory only and is counted.
 func TestBackendSkipsLargeValues(t *testing.T) {
-	r := cache.NewRedis(cache.RedisOptions{Addr: startRedis(t), MaxEntryBytes: 100})
+	r := rediscache.New(rediscache.Options{Addr: startRedis(t), MaxEntryBytes: 100})
 	t.Cleanup(func() { r.Close() })
 	ts := startServer(t, Config{Backend: r})
 	if _, err := ts.api.ComputeDos(testContext(t), &modegridv1.ComputeDosRequest{Model: inline(example(t, "chain")), Qpoints: mpGrid(false, 32)}); err != nil {

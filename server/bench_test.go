@@ -107,7 +107,7 @@ func reportLatency(b *testing.B, lat []time.Duration) {
 // alike; overhead-% is the server's extra time relative to the direct call
 // (target < 5 %).
 func BenchmarkColdDos48(b *testing.B) {
-	e, err := compileEntry(inline(example(b, "fcc")), nil, physics.Limits{})
+	e, err := compileEntry(context.Background(), inline(example(b, "fcc")), nil, physics.Limits{})
 	if err != nil {
 		b.Fatal(err)
 	}

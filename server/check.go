@@ -75,11 +75,18 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 			q := std[l]
 			out.StandardPoints = append(out.StandardPoints, &modegridv1.PathPoint{Label: l, Q: &modegridv1.QPoint{Q1: q[0], Q2: q[1], Q3: q[2]}})
 		}
+		for _, c := range m.DefaultPath() {
+			out.DefaultPath = append(out.DefaultPath, &modegridv1.PathPoint{Label: c.Label, BreakBefore: c.BreakBefore})
+		}
 		out.TypicalCosts = s.typicalCosts(e)
 		err := s.admitted(ctx, stab, func(ctx context.Context) error {
 			return s.run(ctx, kindCheck, func(ctx context.Context) error {
 				d := m.Dim()
-				for _, op := range m.Symmetry() {
+				ops, err := m.Symmetry(ctx)
+				if err != nil {
+					return err
+				}
+				for _, op := range ops {
 					so := &modegridv1.SymmetryOperation{}
 					for i := 0; i < d; i++ {
 						for j := 0; j < d; j++ {

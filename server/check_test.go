@@ -90,7 +90,8 @@ func TestDispersion(t *testing.T) {
 		c := example(t, "chain")
 		K, m := c.GetSprings()[0].GetKLong(), c.GetSites()[0].GetMassAmu()
 		// ν = 2·sqrt(K/m)·|sin(πq)| · 15.6333042 THz per sqrt(eV/Å²/amu)
-		// (Kittel ch. 4; unit factor CODATA 2018, REFERENCE-VALUES.md).
+		// (Kittel, Introduction to Solid State Physics, ch. 4; the unit
+		// factor sqrt(e·10²⁰/m_u)/2π from CODATA 2018 e and m_u).
 		prev := -1.0
 		for _, s := range r.GetSamples() {
 			want := 2 * math.Sqrt(K/m) * math.Abs(math.Sin(math.Pi*s.GetQ().GetQ1())) * 15.6333042
@@ -201,6 +202,6 @@ func unstableChain() *modegridv1.Crystal {
 	return &modegridv1.Crystal{
 		Name: "unstable chain", Lattice: []*modegridv1.Vec3{{X: 2.5}}, Polarizations: 1,
 		Sites:   []*modegridv1.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: -1.5}},
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: -1.5}},
 	}
 }

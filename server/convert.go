@@ -27,13 +27,13 @@ func crystalFromProto(c *modegridv1.Crystal) *physics.Crystal {
 		out.Sites = append(out.Sites, physics.Site{Label: s.GetLabel(), MassAmu: s.GetMassAmu(), Frac: s.GetFrac()})
 	}
 	for _, s := range c.GetSprings() {
-		out.Springs = append(out.Springs, physics.Spring{From: int(s.GetFrom()), To: int(s.GetTo()), Cell: ints(s.GetCell()), KLong: s.GetKLong(), KTrans: s.GetKTrans()})
+		out.Springs = append(out.Springs, physics.Spring{From: int(s.GetFromSite()), To: int(s.GetToSite()), Cell: ints(s.GetCell()), KLong: s.GetKLong(), KTrans: s.GetKTrans()})
 	}
 	for _, s := range c.GetShells() {
 		out.Shells = append(out.Shells, physics.Shell{FromLabel: s.GetFromLabel(), ToLabel: s.GetToLabel(), Shell: int(s.GetShell()), KLong: s.GetKLong(), KTrans: s.GetKTrans()})
 	}
 	for _, b := range c.GetBlocks() {
-		out.Blocks = append(out.Blocks, physics.Block{From: int(b.GetFrom()), To: int(b.GetTo()), Cell: ints(b.GetCell()), Phi: b.GetPhi()})
+		out.Blocks = append(out.Blocks, physics.Block{From: int(b.GetFromSite()), To: int(b.GetToSite()), Cell: ints(b.GetCell()), Phi: b.GetPhi()})
 	}
 	return out
 }

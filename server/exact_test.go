@@ -18,8 +18,8 @@ func twoChainProto(m1, m2 float64) *modegridv1.Crystal {
 			{Label: "B", MassAmu: m2, Frac: []float64{0.5}},
 		},
 		Springs: []*modegridv1.Spring{
-			{From: 0, To: 1, Cell: []int32{0}, KLong: 1},
-			{From: 1, To: 0, Cell: []int32{1}, KLong: 1},
+			{FromSite: 0, ToSite: 1, Cell: []int32{0}, KLong: 1},
+			{FromSite: 1, ToSite: 0, Cell: []int32{1}, KLong: 1},
 		},
 	}
 }
@@ -152,7 +152,7 @@ func TestCheckDescriptionFields(t *testing.T) {
 	withShell.Springs = withShell.Springs[:0]
 	withShell.Shells = []*modegridv1.Shell{{FromLabel: "A", ToLabel: "B", Shell: 1, KLong: 1}}
 	withZero := twoChainProto(10, 20)
-	withZero.Springs = append(withZero.Springs, &modegridv1.Spring{From: 0, To: 0, Cell: []int32{3}})
+	withZero.Springs = append(withZero.Springs, &modegridv1.Spring{FromSite: 0, ToSite: 0, Cell: []int32{3}})
 	var hash string
 	for _, tc := range []struct {
 		name         string

@@ -1,6 +1,6 @@
 package server
 
-// Fault injection over real gRPC on loopback TCP (issue 9): a client
+// Fault injection over real gRPC on loopback TCP: a client
 // cancelling a 10⁶-point stream half way, requests past every cap,
 // abusive and idle connections, a reader too slow for its stream, and
 // callers without valid credentials. Each test shows its outcome with the
@@ -715,10 +715,10 @@ func TestFaultBadInputs(t *testing.T) {
 			code: codes.InvalidArgument, field: "model.crystal.lattice[0].x"},
 		{name: "parallel lattice vectors", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(fcc, func(c *modegridv1.Crystal) { c.Lattice[2] = c.Lattice[1] })), Qpoints: qlist(0)}),
 			code: codes.InvalidArgument, field: "model.crystal.lattice"},
-		{name: "spring to a missing site", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) { c.Springs[0].To = 5 })), Qpoints: qlist(0)}),
-			code: codes.InvalidArgument, field: "model.crystal.springs[0].to"},
+		{name: "spring to a missing site", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) { c.Springs[0].ToSite = 5 })), Qpoints: qlist(0)}),
+			code: codes.InvalidArgument, field: "model.crystal.springs[0].to_site"},
 		{name: "duplicate bond", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(chain, func(c *modegridv1.Crystal) {
-			c.Springs = append(c.Springs, &modegridv1.Spring{From: 0, To: 0, Cell: []int32{-1}, KLong: 1})
+			c.Springs = append(c.Springs, &modegridv1.Spring{FromSite: 0, ToSite: 0, Cell: []int32{-1}, KLong: 1})
 		})), Qpoints: qlist(0)}), code: codes.InvalidArgument, field: "model.crystal.springs[1]"},
 		{name: "frac of the wrong length", call: modes(&modegridv1.ComputeModesRequest{Model: inline(withSites(fcc, func(c *modegridv1.Crystal) { c.Sites[0].Frac = []float64{0} })), Qpoints: qlist(0)}),
 			code: codes.InvalidArgument, field: "model.crystal.sites[0].frac"},

@@ -1,6 +1,6 @@
 package server
 
-// Fuzz targets (issue 9): the model JSON decoder with validation and
+// Fuzz targets: the model JSON decoder with validation and
 // compilation, and every RPC handler fed arbitrary bytes as its request
 // message through a real server on loopback TCP.
 //
@@ -174,7 +174,7 @@ func FuzzModelJSON(f *testing.F) {
 		var m *physics.Model
 		var err error
 		withinTime(t, 10*time.Second, "Compile", func() {
-			m, err = physics.Compile(crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+			m, err = physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
 		})
 		if err != nil {
 			ve, ok := err.(*physics.ValidationError)
@@ -198,7 +198,7 @@ func FuzzModelJSON(f *testing.F) {
 		if !isHash(m.Hash()) {
 			t.Fatalf("hash %q is not 64 hex digits", m.Hash())
 		}
-		again, err := physics.Compile(crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+		again, err := physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
 		if err != nil || again.Hash() != m.Hash() {
 			t.Fatalf("compiling again: %v, hash %s; want %s", err, again.Hash(), m.Hash())
 		}
@@ -387,7 +387,7 @@ func fuzzModels(tb testing.TB) []*modegridv1.ModelSource {
 		if len(c.GetSites()) > fuzzConfig.MaxSites {
 			continue
 		}
-		m, err := physics.Compile(crystalFromProto(c), physics.Options{})
+		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{})
 		if err != nil {
 			tb.Fatal(err)
 		}
@@ -418,14 +418,14 @@ func checkSeeds(tb testing.TB) []proto.Message {
 		out = append(out, &modegridv1.CheckModelRequest{Model: src})
 	}
 	bad := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 1}, {X: 2}}, Sites: []*modegridv1.Site{{Label: "A", MassAmu: -1, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 3, Cell: []int32{1}}}, Shells: []*modegridv1.Shell{{FromLabel: "A", ToLabel: "B", Shell: 30}}}
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 3, Cell: []int32{1}}}, Shells: []*modegridv1.Shell{{FromLabel: "A", ToLabel: "B", Shell: 30}}}
 	many := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 3}}}
 	for i := range 6 { // over fuzzConfig.MaxSites
 		many.Sites = append(many.Sites, &modegridv1.Site{Label: "A", MassAmu: 1, Frac: []float64{float64(i) / 6}})
 	}
 	extreme := &modegridv1.Crystal{Lattice: []*modegridv1.Vec3{{X: 1e-3}}, Polarizations: 1, // tiny mass, stiff spring
 		Sites:   []*modegridv1.Site{{Label: "A", MassAmu: 1e-300, Frac: []float64{0}}},
-		Springs: []*modegridv1.Spring{{From: 0, To: 0, Cell: []int32{1}, KLong: 1e300}}}
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: 1e300}}}
 	return append(out, &modegridv1.CheckModelRequest{Model: inline(bad)}, &modegridv1.CheckModelRequest{Model: byHash(strings.Repeat("0", 64))},
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
 		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{})

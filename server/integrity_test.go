@@ -14,6 +14,7 @@ import (
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
+	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
 )
 
 // stepClock is a clock that moves only when the test says so.
@@ -49,7 +50,7 @@ func logLines(buf *syncBuffer, msg string) []string {
 // part.
 func redisKeyOf(t *testing.T, ctx context.Context, admin *redis.Client, kind, part string) string {
 	t.Helper()
-	keys, err := admin.Keys(ctx, cache.RedisKeyPrefix+"*/"+kind+"/*").Result()
+	keys, err := admin.Keys(ctx, rediscache.KeyPrefix+"*/"+kind+"/*").Result()
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,7 +75,7 @@ func TestPoisonedRedisRefused(t *testing.T) {
 	addr := startRedis(t)
 	ctx := testContext(t)
 	replica := func(log *slog.Logger) *testServer {
-		r := cache.NewRedis(cache.RedisOptions{Addr: addr})
+		r := rediscache.New(rediscache.Options{Addr: addr})
 		t.Cleanup(func() { r.Close() })
 		return startServer(t, Config{Backend: r, Logger: log})
 	}
@@ -175,7 +176,7 @@ func TestBackendOutageLogBounded(t *testing.T) {
 	}
 	dead := lis.Addr().String()
 	lis.Close() // nothing listens here now
-	r := cache.NewRedis(cache.RedisOptions{Addr: dead})
+	r := rediscache.New(rediscache.Options{Addr: dead})
 	t.Cleanup(func() { r.Close() })
 	var buf syncBuffer
 	ts := startServer(t, Config{Backend: r, Logger: slog.New(slog.NewJSONHandler(&buf, nil))})

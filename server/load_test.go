@@ -1,6 +1,6 @@
 package server
 
-// Memory accounting under load (issue 9): the cache's byte bound is only a
+// Memory accounting under load: the cache's byte bound is only a
 // memory bound if every entry is charged at least the memory it holds. The
 // load runs themselves are in client/cmd/modegrid-load (load_test.go).
 
@@ -93,7 +93,7 @@ func TestCacheChargesResultMemory(t *testing.T) {
 	}
 	t.Run("grid modes", func(t *testing.T) {
 		for _, name := range []string{"chain", "square-net", "fcc", "rocksalt-like"} {
-			m, err := physics.Compile(crystalFromProto(example(t, name)), physics.Options{})
+			m, err := physics.Compile(context.Background(), crystalFromProto(example(t, name)), physics.Options{})
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -58,7 +58,7 @@ type metrics struct {
 }
 
 // skipCounter is what a Backend may offer about values it declined to
-// store (cache.Redis: larger than its per-entry cap).
+// store (server/cache/redis: larger than its per-entry cap).
 type skipCounter interface{ SkippedTooLarge() uint64 }
 
 func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend cache.Backend, version string) *metrics {

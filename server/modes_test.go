@@ -65,7 +65,7 @@ func TestModesStreamChunks(t *testing.T) {
 // TestModesEigenvectors: eigenvectors come back orthonormal (a property of
 // the eigenvectors of a Hermitian matrix; Horn & Johnson, Matrix Analysis,
 // §2.5), interleaved re/im, and the unit converts frequencies (1 THz =
-// 4.135667697 meV, CODATA 2018, see REFERENCE-VALUES.md).
+// 4.135667697 meV = h·10¹²/e with CODATA 2018 h and e, both exact).
 func TestModesEigenvectors(t *testing.T) {
 	ts := startServer(t, Config{})
 	c := example(t, "rocksalt-like")
@@ -163,7 +163,7 @@ func TestModesRequestViolations(t *testing.T) {
 // TestModesGroupVelocities: the monatomic chain's group velocity is
 // dω/dk = a·sqrt(K/M)·cos(ka/2) along the chain (Kittel, Introduction to
 // Solid State Physics, ch. 4), with sqrt(eV/Å²/amu) = 9.82269475025e13
-// rad/s (CODATA 2018, REFERENCE-VALUES.md); to 1e-6 relative.
+// rad/s (sqrt(e·10²⁰/m_u) with CODATA 2018 e and m_u); to 1e-6 relative.
 func TestModesGroupVelocities(t *testing.T) {
 	ts := startServer(t, Config{})
 	c := example(t, "chain")

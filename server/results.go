@@ -23,7 +23,7 @@ func protoCodec[M proto.Message](newMsg func() M) *cache.Codec {
 		Version: 1,
 		Verify:  verifyResult,
 		Encode:  func(v any) ([]byte, error) { return proto.Marshal(v.(proto.Message)) },
-		Decode: func(b []byte) (any, int64, error) {
+		Decode: func(_ context.Context, b []byte) (any, int64, error) {
 			m := newMsg()
 			if err := proto.Unmarshal(b, m); err != nil {
 				return nil, 0, err

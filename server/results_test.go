@@ -228,8 +228,8 @@ func TestThermal(t *testing.T) {
 			t.Fatal(err)
 		}
 		// 3R = 24.94338785 J/(mol·K) per mole of cells of one atom
-		// (REFERENCE-VALUES.md); at 5000 K the high-T series correction
-		// ⟨x²⟩/12 is below 1e-3 for modes under 10 THz (x < 0.1).
+		// (Dulong–Petit, R from CODATA 2018); at 5000 K the high-T series
+		// correction ⟨x²⟩/12 is below 1e-3 for modes under 10 THz (x < 0.1).
 		cv := r.GetPoints()[0].GetHeatCapacityJPerMolK()
 		if math.Abs(cv-24.94338785) > 0.01*24.94338785 {
 			t.Errorf("Cv(5000 K) = %v J/(mol·K); want 3R = 24.943 within 1%%", cv)

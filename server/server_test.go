@@ -301,11 +301,11 @@ func TestInvalidModelOverGRPC(t *testing.T) {
 			{Label: "A", MassAmu: -1, Frac: []float64{0, 0}},
 			{Label: "B", MassAmu: math.NaN(), Frac: []float64{0.5, 0.5}},
 		},
-		Springs: []*modegridv1.Spring{{From: 0, To: 7, Cell: []int32{0, 0}, KLong: 1}},
+		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 7, Cell: []int32{0, 0}, KLong: 1}},
 	}
 	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(c), Qpoints: qlist(0), Unit: 99})
 	fields := badFields(t, err)
-	for _, want := range []string{"model.crystal.lattice", "model.crystal.sites[0].mass_amu", "model.crystal.sites[1].mass_amu", "model.crystal.springs[0].to", "unit"} {
+	for _, want := range []string{"model.crystal.lattice", "model.crystal.sites[0].mass_amu", "model.crystal.sites[1].mass_amu", "model.crystal.springs[0].to_site", "unit"} {
 		if _, ok := fields[want]; !ok {
 			t.Errorf("violations %v do not name %s", fields, want)
 		}

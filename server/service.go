@@ -90,12 +90,12 @@ var modelCodec = &cache.Codec{
 		return nil
 	},
 	Encode: func(v any) ([]byte, error) { return v.(*modelEntry).source, nil },
-	Decode: func(b []byte) (any, int64, error) {
+	Decode: func(ctx context.Context, b []byte) (any, int64, error) {
 		var src modegridv1.ModelSource
 		if err := proto.Unmarshal(b, &src); err != nil {
 			return nil, 0, err
 		}
-		e, err := compileEntry(&src, b, physics.Limits{})
+		e, err := compileEntry(ctx, &src, b, physics.Limits{})
 		if err != nil {
 			return nil, 0, err
 		}
@@ -104,9 +104,9 @@ var modelCodec = &cache.Codec{
 }
 
 // compileEntry compiles an inline model. raw is its deterministic
-// serialisation.
-func compileEntry(src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
-	m, err := physics.Compile(crystalFromProto(src.GetCrystal()), physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim})
+// serialisation. It stops with ctx.Err() when ctx ends first.
+func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
+	m, err := physics.Compile(ctx, crystalFromProto(src.GetCrystal()), physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim})
 	if err != nil {
 		return nil, err
 	}
@@ -145,6 +145,9 @@ func (s *Service) resolve(ctx context.Context, src *modegridv1.ModelSource, vs *
 		}
 		v, src, ok := s.cache.Lookup(ctx, modelKey(h), modelCodec)
 		if !ok {
+			if err := ctx.Err(); err != nil {
+				return nil, err // left while the stored model was rebuilt
+			}
 			return nil, errModelNotFound(h)
 		}
 		noteCache(ctx, src.String())
@@ -173,11 +176,15 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	}
 	sum := sha256.Sum256(raw)
 	key := cache.Key{Kind: kindInline, Model: hex.EncodeToString(sum[:])}
+	// The compile is shared by every concurrent caller of the same model
+	// (cache.Do): its ctx ends when the last of them has left, so one
+	// caller's deadline never cancels it for the others, and a compile
+	// nobody waits for stops at once.
 	v, from, err := s.cache.Do(ctx, key, nil, func(ctx context.Context) (any, int64, error) {
 		var e *modelEntry
-		err := s.run(ctx, kindCompile, func(context.Context) error {
+		err := s.run(ctx, kindCompile, func(ctx context.Context) error {
 			var err error
-			e, err = compileEntry(norm, raw, physics.Limits{MaxSites: s.cfg.MaxSites})
+			e, err = compileEntry(ctx, norm, raw, physics.Limits{MaxSites: s.cfg.MaxSites})
 			return err
 		})
 		if err != nil {

@@ -8,6 +8,7 @@ import (
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
@@ -21,10 +22,45 @@ var thermalCodec = protoCodec(func() *modegridv1.ComputeThermalResponse { return
 // imaginary modes is FAILED_PRECONDITION unless allow_unstable.
 func (s *Service) ComputeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
 	resp, err := s.computeThermal(ctx, req)
-	if errors.Is(err, physics.ErrUnstable) {
+	var sr *sumRuleError
+	switch {
+	case errors.As(err, &sr):
+		return nil, status.Errorf(codes.FailedPrecondition, "%v (%s)", sr.err, sr.hint())
+	case errors.Is(err, physics.ErrUnstable):
 		return nil, status.Errorf(codes.FailedPrecondition, "%v (set allow_unstable to compute anyway, leaving imaginary modes out)", err)
 	}
 	return resp, s.toStatus(ctx, "ComputeThermal", err)
+}
+
+// sumRuleError is an instability of a model whose explicit blocks break the
+// acoustic sum rule (not enforced): the broken rule, not the lattice, is
+// the likely cause, and the fix is to impose it rather than to leave the
+// imaginary modes out.
+type sumRuleError struct {
+	err            error   // wraps physics.ErrUnstable
+	violationEVPA2 float64 // Model.SumRuleViolation, eV/Å²
+}
+
+func (e *sumRuleError) Error() string { return e.err.Error() + " (" + e.hint() + ")" }
+func (e *sumRuleError) Unwrap() error { return e.err }
+
+// hint names the request field that fixes the cause.
+func (e *sumRuleError) hint() string {
+	return fmt.Sprintf("the explicit force-constant blocks break the acoustic sum rule by %.3g eV/Å², "+
+		"which makes long-wave modes imaginary: set enforce_sum_rule to impose it", e.violationEVPA2)
+}
+
+// sumRuleCause wraps an instability of e's model as a *sumRuleError when
+// its blocks break the sum rule and the request did not enforce it.
+func sumRuleCause(e *modelEntry, err error) error {
+	if !errors.Is(err, physics.ErrUnstable) || !(e.m.SumRuleViolation() > 0) {
+		return err
+	}
+	var src modegridv1.ModelSource
+	if proto.Unmarshal(e.source, &src) != nil || src.GetEnforceSumRule() {
+		return err
+	}
+	return &sumRuleError{err: err, violationEVPA2: e.m.SumRuleViolation()}
 }
 
 // temperatures expands the explicit list and the range into one list,
@@ -138,7 +174,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 			return s.run(ctx, kindThermal, func(ctx context.Context) error {
 				var err error
 				res, err = physics.ComputeThermal(ctx, e.m, g, opt)
-				return err
+				return sumRuleCause(e, err)
 			})
 		})
 		if err != nil {
@@ -159,6 +195,14 @@ func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *mode
 		Points:                   make([]*modegridv1.ThermalPoint, len(r.Points)),
 	}
 	labels := e.m.Labels()
+	atoms := float64(e.m.Sites())
+	var massAmu float64
+	for i := range e.m.Sites() {
+		massAmu += e.m.MassAmu(i)
+	}
+	out.AtomsPerCell, out.CellMassAmu = uint32(e.m.Sites()), massAmu
+	out.ZeroPointEnergyKjPerMolAtoms = physics.EVToKJPerMol(r.ZPEeV) / atoms
+	out.ZeroPointEnergyKjPerKg = physics.EVToKJPerKg(r.ZPEeV, massAmu)
 	for i, tp := range r.Points {
 		pt := &modegridv1.ThermalPoint{
 			TemperatureK:           tp.TempK,
@@ -173,6 +217,15 @@ func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *mode
 			DebyeTemperatureK:      tp.ThetaDK,
 			DebyeTemperatureStatus: debyeStatusToProto(tp.ThetaDStatus),
 			DebyeTemperatureReason: tp.ThetaDReason,
+			// Per mole of atoms: per mole of cells over the sites per cell.
+			InternalEnergyKjPerMolAtoms: physics.EVToKJPerMol(tp.UeV) / atoms,
+			FreeEnergyKjPerMolAtoms:     physics.EVToKJPerMol(tp.FeV) / atoms,
+			EntropyJPerMolAtomsK:        physics.EVPerKToJPerMolK(tp.SeVPerK) / atoms,
+			HeatCapacityJPerMolAtomsK:   physics.EVPerKToJPerMolK(tp.CveVPerK) / atoms,
+			InternalEnergyKjPerKg:       physics.EVToKJPerKg(tp.UeV, massAmu),
+			FreeEnergyKjPerKg:           physics.EVToKJPerKg(tp.FeV, massAmu),
+			EntropyJPerKgK:              physics.EVPerKToJPerKgK(tp.SeVPerK, massAmu),
+			HeatCapacityJPerKgK:         physics.EVPerKToJPerKgK(tp.CveVPerK, massAmu),
 		}
 		for si, m := range tp.MSD {
 			d := &modegridv1.SiteDisplacement{Site: uint32(si), Label: labels[si]}

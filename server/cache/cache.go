@@ -36,13 +36,15 @@ func (k Key) String() string {
 }
 
 // Codec converts values of one kind to and from bytes for the Backend.
-// Decode also returns the size to charge the value in the LRU. The cache
+// Decode also returns the size to charge the value in the LRU; it gets the
+// context of the read, so a costly decode (a model is compiled again from
+// its source) stops when its caller leaves. The cache
 // wraps the bytes in an envelope (envelope.go) holding the full key, the
 // codec's Version and a checksum, and checks all three before Decode sees
 // the payload.
 type Codec struct {
 	Encode func(v any) ([]byte, error)
-	Decode func(b []byte) (v any, size int64, err error)
+	Decode func(ctx context.Context, b []byte) (v any, size int64, err error)
 	// Version is the format of Encode's bytes; bump it when the format
 	// changes, so replicas of different builds never read each other's
 	// values (they are refused as ReasonVersion and recomputed).
@@ -305,7 +307,10 @@ func (c *Cache) fromBackend(ctx context.Context, k Key, codec *Codec) (any, bool
 	if !ok {
 		return nil, false
 	}
-	v, size, ierr := decodeEntry(k, codec, b)
+	v, size, ierr := decodeEntry(ctx, k, codec, b)
+	if ierr != nil && ctx.Err() != nil {
+		return nil, false // the reader left: a miss, not a bad entry
+	}
 	if ierr != nil {
 		c.refuse(k, ierr)
 		return nil, false
@@ -316,12 +321,12 @@ func (c *Cache) fromBackend(ctx context.Context, k Key, codec *Codec) (any, bool
 }
 
 // decodeEntry opens b's envelope for k and decodes and verifies the value.
-func decodeEntry(k Key, codec *Codec, b []byte) (any, int64, *IntegrityError) {
+func decodeEntry(ctx context.Context, k Key, codec *Codec, b []byte) (any, int64, *IntegrityError) {
 	payload, err := openEnvelope(k, codec.Version, b)
 	if err != nil {
 		return nil, 0, err.(*IntegrityError)
 	}
-	v, size, err := codec.Decode(payload)
+	v, size, err := codec.Decode(ctx, payload)
 	if err != nil {
 		return nil, 0, sharedFailure(ReasonDecode, "payload does not decode: %w", err)
 	}

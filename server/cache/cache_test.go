@@ -56,7 +56,7 @@ func (b *mapBackend) Set(_ context.Context, key string, value []byte) error {
 
 var stringCodec = &Codec{
 	Encode: func(v any) ([]byte, error) { return []byte(v.(string)), nil },
-	Decode: func(b []byte) (any, int64, error) {
+	Decode: func(_ context.Context, b []byte) (any, int64, error) {
 		if len(b) == 0 {
 			return nil, 0, errors.New("empty")
 		}

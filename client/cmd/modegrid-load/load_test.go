@@ -1,6 +1,6 @@
 package main
 
-// Load and shutdown tests (issue 9), short enough for `make test`: the
+// Load and shutdown tests, short enough for `make test`: the
 // engine against an in-process server below and above its concurrency cap,
 // and against a real modegridd child process (built once in TestMain)
 // for its peak memory and for SIGTERM with 20 calls in flight.

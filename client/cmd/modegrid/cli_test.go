@@ -10,7 +10,8 @@ import (
 )
 
 // The CLI tests run the command in-process: run() starts the embedded
-// server on a loopback port and calls it over real gRPC, as the binary does.
+// server in-process and calls it over real gRPC through an in-memory
+// connection, as the binary does.
 
 func runCLI(t *testing.T, args ...string) (int, string, string) {
 	t.Helper()
@@ -34,6 +35,7 @@ func TestExitCodes(t *testing.T) {
 		args       []string
 		want       int
 		wantStderr []string
+		notStderr  []string
 	}{
 		{name: "success", args: []string{"modes", "-m", example("chain"), "--q", "0.5"}, want: exitOK},
 		{name: "help", args: []string{"help"}, want: exitOK},
@@ -57,11 +59,18 @@ func TestExitCodes(t *testing.T) {
 		{name: "positional argument", args: []string{"modes", "-m", example("chain"), "--q", "0", "extra"}, want: exitUsage, wantStderr: []string{`unexpected argument "extra"`}},
 		{name: "tls without server", args: []string{"modes", "-m", example("chain"), "--q", "0", "--tls"}, want: exitUsage, wantStderr: []string{"need --server"}},
 		{name: "invalid model", args: []string{"modes", "-m", testdata("bad.json"), "--q", "0,0"}, want: exitInvalid,
-			wantStderr: []string{"lattice", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to"}},
+			wantStderr: []string{"lattice", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to_site"}},
 		{name: "check invalid model", args: []string{"check", "-m", testdata("bad.json")}, want: exitInvalid,
-			wantStderr: []string{"is invalid", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to"}},
+			wantStderr: []string{"is invalid", "sites[0].mass_amu: must be > 0, got -1", "sites[1].mass_amu", "springs[0].to_site"}},
 		{name: "model file syntax", args: []string{"check", "-m", testdata("syntax-error.json")}, want: exitInvalid, wantStderr: []string{"syntax-error.json is not a valid model"}},
-		{name: "model file unknown key", args: []string{"check", "-m", testdata("unknown-key.json")}, want: exitInvalid, wantStderr: []string{"polarisations"}},
+		{name: "model file unknown key", args: []string{"check", "-m", testdata("unknown-key.json")}, want: exitInvalid,
+			wantStderr: []string{`unknown key "polarisations" at the top level (did you mean "polarizations"?)`}},
+		{name: "missing mass", args: []string{"check", "-m", testdata("missing-mass.json")}, want: exitInvalid,
+			wantStderr: []string{"sites[0].mass_amu: is required (missing or 0)"}, notStderr: []string{"got 0"}},
+		{name: "old spring keys", args: []string{"modes", "-m", testdata("legacy-keys.json"), "--q", "0.5"}, want: exitOK},
+		{name: "thermal of a model breaking the sum rule", args: []string{"thermal", "-m", testdata("broken-sum-rule-chain.json"), "--grid", "16", "--temps", "300"}, want: exitInvalid,
+			wantStderr: []string{"unstable", "break the acoustic sum rule by 1 eV/Å²", "run with --sum-rule to impose it"}, notStderr: []string{"allow-unstable", "allow_unstable", "enforce_sum_rule"}},
+		{name: "sum rule imposed", args: []string{"thermal", "-m", testdata("broken-sum-rule-chain.json"), "--grid", "16", "--temps", "300", "--sum-rule"}, want: exitOK},
 		{name: "q past the dimension", args: []string{"modes", "-m", example("chain"), "--q", "0.5,0.5"}, want: exitInvalid, wantStderr: []string{"qpoints", "q2"}},
 		{name: "thermal of an unstable model", args: []string{"thermal", "-m", testdata("unstable-chain.json"), "--grid", "32", "--temps", "300"}, want: exitInvalid,
 			wantStderr: []string{"unstable", "--allow-unstable"}},
@@ -81,6 +90,11 @@ func TestExitCodes(t *testing.T) {
 			for _, s := range tc.wantStderr {
 				if !strings.Contains(stderr, s) {
 					t.Errorf("stderr does not contain %q:\n%s", s, stderr)
+				}
+			}
+			for _, s := range tc.notStderr {
+				if strings.Contains(stderr, s) {
+					t.Errorf("stderr contains %q:\n%s", s, stderr)
 				}
 			}
 			if code != exitOK && len(tc.args) > 0 && !strings.HasPrefix(stderr, "modegrid: ") {

@@ -87,7 +87,7 @@ func cmdDemo(args []string, e *env) error {
 	}
 	// Names left-aligned (padded here), numbers right-aligned.
 	tw := tabwriter.NewWriter(e.stdout, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/mol/K)\tθD(300 K) (K)\tzero-point (kJ/mol)\t\n", width, "crystal")
+	fmt.Fprintf(tw, "%-*s\td\tsites\tmodes/cell\tstable\tmax ν (THz)\tCv(300 K) (J/(K·mol atoms))\tθD(300 K) (K)\tzero-point (kJ/mol atoms)\t\n", width, "crystal")
 	for _, r := range rows {
 		fmt.Fprintf(tw, "%-*s\t%d\t%d\t%d\t%s\t%.3f\t%.3f\t%s\t%.4f\t\n", width, r.name, r.dim, r.sites, r.modes,
 			map[bool]string{true: "yes", false: "no"}[r.stable], r.maxTHz, r.cv300, r.theta300, r.zpe)
@@ -141,9 +141,9 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 		return row, files, err
 	}
 
-	corners, err := parsePath(defaultPaths[chk.GetLatticeType()])
+	corners, err := defaultPath(chk)
 	if err != nil {
-		return row, files, fmt.Errorf("no standard path for lattice type %q: %w", chk.GetLatticeType(), err)
+		return row, files, fmt.Errorf("no default path for lattice type %q: %w", chk.GetLatticeType(), err)
 	}
 	done = e.prog.running(name + ": dispersion")
 	disp, err := cl.Dispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: src, Path: pathPoints(corners), SiteWeights: true})
@@ -177,16 +177,16 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	if err != nil {
 		return row, files, err
 	}
-	if err := save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th) }); err != nil {
+	if err := save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th, basisAtoms) }); err != nil {
 		return row, files, err
 	}
 	best := math.Inf(1)
 	for _, pt := range th.GetPoints() {
 		if dT := math.Abs(pt.GetTemperatureK() - 300); dT < best {
-			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolK(), thetaCell(pt, 1)
+			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolAtomsK(), thetaCell(pt, 1)
 		}
 	}
-	row.zpe = th.GetZeroPointEnergyKjPerMol()
+	row.zpe = th.GetZeroPointEnergyKjPerMolAtoms()
 
 	ext := "." + kind
 	title := crystal.GetName() + " (example)"
@@ -196,7 +196,7 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	if err := plotDOS(base+"-dos"+ext, kind, dos, false, title); err != nil {
 		return row, files, err
 	}
-	if err := plotThermal(base+"-thermal"+ext, kind, thermalFigure{th: th, sites: row.sites, pol: p, title: title}); err != nil {
+	if err := plotThermal(base+"-thermal"+ext, kind, thermalFigure{th: th, basis: basisAtoms, sites: row.sites, pol: p, title: title}); err != nil {
 		return row, files, err
 	}
 	return row, files + 3, nil

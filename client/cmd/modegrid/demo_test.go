@@ -82,7 +82,7 @@ func TestDemoPNG(t *testing.T) {
 	}
 }
 
-var thermalHeaderLine = strings.Join(thermalHeader, ",")
+var thermalHeaderLine = strings.Join(thermalHeader(basisAtoms), ",")
 
 func mustAbs(t *testing.T, p string) string {
 	t.Helper()

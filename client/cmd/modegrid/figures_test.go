@@ -1,9 +1,14 @@
 package main
 
 import (
+	"encoding/csv"
 	"flag"
+	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"slices"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -34,7 +39,7 @@ func TestFigureGallery(t *testing.T) {
 		{"dos-rocksalt-like-stacked", []string{"dos", "-m", example("rocksalt-like"), "--grid", "12", "--per-site", "--stack"}, nil},
 		{"thermal-diatomic-chain-measured", []string{"thermal", "-m", example("diatomic-chain"), "--grid", "64", "--temps", "0:400:10",
 			"--measured", testdata("measured-thermal.csv")},
-			[]string{"measured Cv (J/(mol·K), per mole of cells)", "5 measured points", "χ²/N ="}},
+			[]string{"measured Cv (J/(K·mol atoms))", "5 measured points", "χ²/N ="}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -71,8 +76,9 @@ func TestMeasuredCSVErrors(t *testing.T) {
 		thermal    bool
 		want       []string
 	}{
-		{"header", "T,Cv\n1,2\n", true, []string{":1: header \"T,Cv\"; want T_K,Cv_J_per_molcell_K"}},
-		{"basis", "T_K,Cv_J_per_mol_K\n1,2\n", true, []string{":1: column 2: \"Cv_J_per_mol_K\"; want Cv_J_per_molcell_K or Cv_J_per_molatom_K"}},
+		{"header", "T,Cv\n1,2\n", true, []string{":1: header \"T,Cv\"; want T_K,Cv_J_per_<basis>_K[,sigma]"}},
+		{"basis", "T_K,Cv_J_per_mol_K\n1,2\n", true,
+			[]string{":1: column 2: \"Cv_J_per_mol_K\"; want Cv_J_per_molatom_K, Cv_J_per_molcell_K, Cv_J_per_kg_K"}},
 		{"numbers", "# c\nT_K,Cv_J_per_molcell_K,sigma\n10,abc,1\n-5,1,1\n20,1,0\n", true,
 			[]string{":3: column 2: Cv_J_per_molcell_K: \"abc\" is not a finite number", ":4: column 1: T_K must be ≥ 0",
 				":5: column 3: sigma must be > 0"}},
@@ -86,7 +92,7 @@ func TestMeasuredCSVErrors(t *testing.T) {
 			f := write(tc.name+".csv", tc.body)
 			var err error
 			if tc.thermal {
-				_, err = readThermalMeasured(f, 2)
+				_, _, err = readThermalMeasured(f)
 			} else {
 				_, err = readPathMeasured(f, 1)
 			}
@@ -114,5 +120,123 @@ func TestConnectDeprecated(t *testing.T) {
 	if code != exitOK || !strings.Contains(stderr, "--connect is deprecated; it is now called --follow-modes") ||
 		!strings.Contains(out, "follow_modes=true") {
 		t.Errorf("exit %d, stderr %q, output %q", code, stderr, out)
+	}
+}
+
+// TestThermalBasisConvert: a measured heat capacity moves between bases by
+// the amount of each basis in a mole of cells. For two sites in a cell of
+// 60 amu, a mole of cells is 2 mol of atoms and 60 g (the molar mass in
+// g/mol is the mass in amu, to 1e-9: M_u = 0.99999999965 g/mol, CODATA
+// 2018), so 3 J/(K·mol atoms) is 6 J/(K·mol cells) and 6/0.060 J/(kg·K).
+func TestThermalBasisConvert(t *testing.T) {
+	const sites, mass = 2, 60.0
+	tests := []struct {
+		v        float64
+		from, to thermalBasis
+		want     float64
+	}{
+		{3, basisAtoms, basisCells, 6},
+		{6, basisCells, basisAtoms, 3},
+		{3, basisAtoms, basisKg, 100},
+		{100, basisKg, basisCells, 6},
+		{100, basisKg, basisAtoms, 3},
+		{6, basisCells, basisCells, 6},
+	}
+	for _, tc := range tests {
+		got := tc.to.convert(tc.v, tc.from, sites, mass)
+		if math.Abs(got-tc.want) > 1e-8*tc.want {
+			t.Errorf("%v per %s = %v per %s; want %v", tc.v, tc.from.per(), got, tc.to.per(), tc.want)
+		}
+	}
+	rows := convertRows([]measuredRow{{x: 10, y: 3, sigma: 0.5}}, basisAtoms, basisCells, sites, mass)
+	if rows[0].y != 6 || rows[0].sigma != 1 || rows[0].x != 10 {
+		t.Errorf("converted row %+v; want y 6, σ 1 at 10 K", rows[0])
+	}
+}
+
+// TestMeasuredBasis: the measured heat capacities of a file declared per
+// mole of atoms, per mole of cells or per kilogram are converted to the
+// --basis of the residual table, whose columns name that basis. The same
+// data in any file basis gives the same table; across output bases the
+// measured values scale as the model's (so measured/model and the
+// residual over σ do not change), and per mole of cells they are twice
+// those per mole of atoms (the chain has two sites per cell).
+func TestMeasuredBasis(t *testing.T) {
+	dir := t.TempDir()
+	residuals := func(t *testing.T, file, basis string) ([]string, [][]float64) {
+		t.Helper()
+		code, out, stderr := runCLI(t, "thermal", "-m", example("diatomic-chain"), "--grid", "16", "--measured", file,
+			"--basis", basis, "--format", "csv")
+		if code != exitOK {
+			t.Fatalf("exit %d: %s", code, stderr)
+		}
+		recs, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+		if err != nil || len(recs) < 2 {
+			t.Fatalf("CSV %q: %v", out, err)
+		}
+		var vals [][]float64
+		for _, r := range recs[1:] {
+			row := make([]float64, len(r))
+			for i, c := range r {
+				if row[i], err = strconv.ParseFloat(c, 64); err != nil {
+					t.Fatalf("cell %q: %v", c, err)
+				}
+			}
+			vals = append(vals, row)
+		}
+		return recs[0], vals
+	}
+	// Columns: line, T_K, measured, sigma, model, residual, residual_over_sigma.
+	atomsHead, atoms := residuals(t, testdata("measured-thermal.csv"), "atoms")
+	if atomsHead[2] != "measured_Cv_J_per_molatom_K" || atomsHead[4] != "model_Cv_J_per_molatom_K" {
+		t.Errorf("header %q; want the per-atom basis named", atomsHead)
+	}
+	cellsHead, cells := residuals(t, testdata("measured-thermal.csv"), "cells")
+	if cellsHead[2] != "measured_Cv_J_per_molcell_K" || cellsHead[4] != "model_Cv_J_per_molcell_K" {
+		t.Errorf("header %q; want the per-cell basis named", cellsHead)
+	}
+	kgHead, kg := residuals(t, testdata("measured-thermal.csv"), "kg")
+	if kgHead[2] != "measured_Cv_J_per_kg_K" {
+		t.Errorf("header %q; want the per-kg basis named", kgHead)
+	}
+	same := func(a, b float64) bool { return math.Abs(a-b) <= 1e-9*math.Max(math.Abs(a), math.Abs(b)) }
+	for i := range atoms {
+		a, c, k := atoms[i], cells[i], kg[i]
+		if !same(c[2], 2*a[2]) || !same(c[3], 2*a[3]) || !same(c[4], 2*a[4]) {
+			t.Errorf("row %d per cell %v; want twice per atom %v", i, c, a)
+		}
+		if !same(k[2]/k[4], a[2]/a[4]) || !same(k[6], a[6]) || !same(c[6], a[6]) {
+			t.Errorf("row %d: measured/model or residual/σ depends on the basis: atoms %v, cells %v, kg %v", i, a, c, k)
+		}
+	}
+	// The same data declared per mole of cells and per kilogram (written
+	// from the kg table) give the per-atom table again.
+	write := func(name, column string, col func(r []float64) (float64, float64)) string {
+		var b strings.Builder
+		fmt.Fprintf(&b, "T_K,%s,sigma\n", column)
+		for _, r := range kg {
+			y, s := col(r)
+			fmt.Fprintf(&b, "%s,%s,%s\n", num(r[1]), num(y), num(s))
+		}
+		f := filepath.Join(dir, name)
+		if err := os.WriteFile(f, []byte(b.String()), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return f
+	}
+	perCell := write("cells.csv", "Cv_J_per_molcell_K", func(r []float64) (float64, float64) {
+		i := slices.IndexFunc(cells, func(c []float64) bool { return c[1] == r[1] })
+		return cells[i][2], cells[i][3]
+	})
+	perKg := write("kg.csv", "Cv_J_per_kg_K", func(r []float64) (float64, float64) { return r[2], r[3] })
+	for _, f := range []string{perCell, perKg} {
+		_, again := residuals(t, f, "atoms")
+		for i := range atoms {
+			for c := 2; c < len(atoms[i]); c++ {
+				if !same(again[i][c], atoms[i][c]) && math.Abs(again[i][c]-atoms[i][c]) > 1e-9 {
+					t.Errorf("%s row %d column %d: %v; want %v as from the per-atom file", filepath.Base(f), i, c, again[i][c], atoms[i][c])
+				}
+			}
+		}
 	}
 }

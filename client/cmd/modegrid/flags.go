@@ -33,7 +33,7 @@ type connFlags struct {
 }
 
 func (c *connFlags) register(fs *flag.FlagSet) {
-	fs.StringVar(&c.server, "server", "", "modegridd address host:port or dns:///name:port (default: an embedded server on loopback)")
+	fs.StringVar(&c.server, "server", "", "modegridd address host:port or dns:///name:port (default: an embedded server in this process)")
 	fs.StringVar(&c.token, "token", "", "bearer token sent with every call (default: $MODEGRID_TOKEN)")
 	fs.BoolVar(&c.tls, "tls", false, "use TLS, verifying the server against the system roots")
 	fs.StringVar(&c.ca, "ca", "", "PEM file of the CA that signed the server certificate (implies --tls)")
@@ -50,7 +50,7 @@ func (c *connFlags) check() error {
 		return usagef("--wait must be > 0, got %v", c.wait)
 	}
 	if c.server == "" && (c.tls || c.ca != "" || c.cert != "") {
-		return usagef("--tls, --ca and --cert need --server (the embedded server is plaintext on loopback)")
+		return usagef("--tls, --ca and --cert need --server (the embedded server is in this process, reached without a network)")
 	}
 	if c.token == "" {
 		c.token = os.Getenv("MODEGRID_TOKEN")
@@ -70,7 +70,9 @@ func (c *connFlags) options() []client.Option {
 	if c.cert != "" {
 		o = append(o, client.WithClientCertificate(c.cert, c.key))
 	}
-	if c.token != "" {
+	// The embedded server (no --server) is in this process and checks no
+	// token, so none is sent to it.
+	if c.token != "" && c.server != "" {
 		o = append(o, client.WithToken(c.token))
 	}
 	return o

@@ -1,6 +1,6 @@
 package main
 
-// Fuzz targets of the command-line parsers (issue 9): q-point lists, grid
+// Fuzz targets of the command-line parsers: q-point lists, grid
 // divisions, paths and temperature ranges. Invariants: no panic, bounded
 // time (inputs past 64 KiB are not considered), an error is a non-empty
 // sentence, and an accepted value is well-formed and survives a round trip

@@ -38,9 +38,19 @@ var goldenCases = []struct {
 	{"modes-chain-shifted-grid-table", []string{"modes", "-m", example("chain"), "--grid", "4", "--shift"}},
 	{"modes-square-net-cells-csv", []string{"modes", "-m", example("square-net"), "--cells", "2x2", "--format", "csv"}},
 
+	{"modes-diatomic-chain-extras-table", []string{"modes", "-m", example("diatomic-chain"), "--q", "0;0.25;0.5", "--eigenvectors", "--velocities"}},
+	{"modes-diatomic-chain-extras-csv", []string{"modes", "-m", example("diatomic-chain"), "--q", "0;0.25;0.5", "--eigenvectors", "--velocities", "--format", "csv"}},
+	{"modes-diatomic-chain-extras-json", []string{"modes", "-m", example("diatomic-chain"), "--q", "0.25", "--eigenvectors", "--velocities", "--format", "json"}},
+	{"modes-rocksalt-like-eigenvectors-csv", []string{"modes", "-m", example("rocksalt-like"), "--q", "0.5,0,0.5", "--eigenvectors", "--format", "csv"}},
+	{"modes-fcc-velocities-table", []string{"modes", "-m", example("fcc"), "--q", "0.1,0,0.1", "--velocities"}},
+
+	{"shape-diatomic-chain-xyz", []string{"shape", "-m", example("diatomic-chain"), "--q", "0.25", "--branch", "2", "--frames", "3", "--xyz", "-"}},
+
 	{"path-fcc-table", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9"}},
 	{"path-fcc-csv", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5 L=0.5,0.5,0.5", "--points", "9", "--format", "csv"}},
 	{"path-fcc-json", []string{"path", "-m", example("fcc"), "--path", "G=0,0,0 X=0.5,0,0.5", "--points", "3", "--format", "json"}},
+	// No --path on a 2D hexagonal net: the default 2D path Γ–M–K–Γ (not the 3D one).
+	{"path-honeycomb-default-csv", []string{"path", "-m", testdata("honeycomb.json"), "--points", "7", "--format", "csv"}},
 	{"path-square-net-builtin-csv", []string{"path", "-m", example("square-net"), "--path", "G-X-M-G", "--points", "7", "--format", "csv"}},
 
 	{"dos-chain-table", []string{"dos", "-m", example("chain"), "--grid", "64", "--step", "0.5"}},
@@ -59,6 +69,9 @@ var goldenCases = []struct {
 	{"thermal-chain-msd-table", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd"}},
 	{"thermal-chain-msd-csv", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "0,300", "--msd", "--format", "csv"}},
 	{"thermal-chain-msd-json", []string{"thermal", "-m", example("chain"), "--grid", "64", "--temps", "300", "--msd", "--format", "json"}},
+	{"thermal-rocksalt-like-cells-csv", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000", "--basis", "cells", "--format", "csv"}},
+	{"thermal-rocksalt-like-kg-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000", "--basis", "kg"}},
+	{"thermal-rocksalt-like-atoms-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000"}},
 	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
 }
 
@@ -224,6 +237,11 @@ func TestCSVHeaders(t *testing.T) {
 		{"modes", []string{"modes", "-m", example("chain"), "--q", "0.5"}, "q1,q2,q3,branch,frequency_thz"},
 		{"modes mev", []string{"modes", "-m", example("chain"), "--q", "0.5", "--unit", "mev"}, "q1,q2,q3,branch,frequency_mev"},
 		{"modes cm-1", []string{"modes", "-m", example("chain"), "--q", "0.5", "--unit", "cm-1"}, "q1,q2,q3,branch,frequency_cm-1"},
+		{"modes velocities", []string{"modes", "-m", example("chain"), "--q", "0.5", "--velocities"}, "q1,q2,q3,branch,frequency_thz,v_x_km_s,v_y_km_s,v_z_km_s"},
+		{"modes eigenvectors", []string{"modes", "-m", example("rocksalt-like"), "--q", "0.5,0,0", "--eigenvectors"},
+			"q1,q2,q3,branch,frequency_thz,e_P_x_re,e_P_x_im,e_P_y_re,e_P_y_im,e_P_z_re,e_P_z_im,e_Q_x_re,e_Q_x_im,e_Q_y_re,e_Q_y_im,e_Q_z_re,e_Q_z_im"},
+		{"modes both, shared label", []string{"modes", "-m", testdata("twin-chain.json"), "--q", "0.5", "--velocities", "--eigenvectors"},
+			"q1,q2,q3,branch,frequency_thz,v_x_km_s,v_y_km_s,v_z_km_s,e_A_0_x_re,e_A_0_x_im,e_A_1_x_re,e_A_1_x_im"},
 		{"path", []string{"path", "-m", example("chain"), "--path", "G=0 X=0.5", "--points", "5"}, "distance,label,q1,q2,q3,branch,frequency_thz"},
 		{"dos", []string{"dos", "-m", example("chain"), "--grid", "32"}, "frequency_thz,dos,integrated"},
 		{"dos mev", []string{"dos", "-m", example("chain"), "--grid", "32", "--unit", "mev"}, "frequency_mev,dos,integrated"},
@@ -231,7 +249,11 @@ func TestCSVHeaders(t *testing.T) {
 		{"dos shared label", []string{"dos", "-m", testdata("twin-chain.json"), "--grid", "16", "--per-site"}, "frequency_thz,dos,integrated,dos_A_0,dos_A_1"},
 		{"thermal", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300"},
 			// θ_D's status column: the number alone read as a Debye temperature where none is determined.
-			"temperature_k,heat_capacity_j_per_mol_k,entropy_j_per_mol_k,free_energy_kj_per_mol,internal_energy_kj_per_mol,debye_temperature_k,debye_temperature_status"},
+			"temperature_k,heat_capacity_j_per_mol_atoms_k,entropy_j_per_mol_atoms_k,free_energy_kj_per_mol_atoms,internal_energy_kj_per_mol_atoms,debye_temperature_k,debye_temperature_status"},
+		{"thermal per mole of cells", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300", "--basis", "cells"},
+			"temperature_k,heat_capacity_j_per_mol_cells_k,entropy_j_per_mol_cells_k,free_energy_kj_per_mol_cells,internal_energy_kj_per_mol_cells,debye_temperature_k,debye_temperature_status"},
+		{"thermal per kg", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300", "--basis", "kg"},
+			"temperature_k,heat_capacity_j_per_kg_k,entropy_j_per_kg_k,free_energy_kj_per_kg,internal_energy_kj_per_kg,debye_temperature_k,debye_temperature_status"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

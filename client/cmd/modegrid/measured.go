@@ -7,14 +7,16 @@ package main
 // this order; the header states the units), '#' lines and blank lines
 // ignored, every value a finite number:
 //
-//	thermal:  T_K,Cv_J_per_molcell_K[,sigma]
-//	      or  T_K,Cv_J_per_molatom_K[,sigma]
+//	thermal:  T_K,Cv_J_per_molatom_K[,sigma]
+//	      or  T_K,Cv_J_per_molcell_K[,sigma]
+//	      or  T_K,Cv_J_per_kg_K[,sigma]
 //	path:     q1,q2,q3,freq_UNIT[,sigma][,branch]
 //	      or  distance_invA,freq_UNIT[,sigma][,branch]
 //
-// Heat capacity is at constant volume, J/(mol·K), per mole of unit cells
-// ("molcell", the model's basis) or per mole of atoms ("molatom", converted
-// to per mole of cells by multiplying by the sites per cell). UNIT is THz,
+// Heat capacity is at constant volume, J/K per mole of atoms ("molatom"),
+// per mole of unit cells ("molcell") or per kilogram; it is converted to the
+// --basis of the output (sites per cell and cell mass from the server's
+// answer). UNIT is THz,
 // meV or cm-1; the values are converted to the --unit of the output. q is in
 // fractional reciprocal coordinates and must lie on the path; distance is
 // the cumulative distance along the path in 1/Å (2π included), as printed
@@ -31,6 +33,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -44,7 +47,7 @@ type measuredRow struct {
 	x      float64    // T (K), or path distance (1/Å)
 	q      [3]float64 // path form with q columns
 	hasQ   bool
-	y      float64 // Cv (J/(mol·K) per mole of cells) or frequency (output unit)
+	y      float64 // Cv (J/K per the file's basis) or frequency (output unit)
 	sigma  float64 // 0: not given
 	branch int     // 1-based; 0: nearest
 }
@@ -119,23 +122,25 @@ func cell(file string, line int, rec []string, col int, name string) (float64, e
 	return v, nil
 }
 
-// readThermalMeasured reads a thermal file; sitesPerCell converts a
-// per-atom heat capacity to per cell.
-func readThermalMeasured(file string, sitesPerCell int) ([]measuredRow, error) {
+// readThermalMeasured reads a thermal file and returns its rows, Cv as
+// given, and the basis its header declares.
+func readThermalMeasured(file string) ([]measuredRow, thermalBasis, error) {
 	header, rows, lines, err := readMeasuredCSV(file)
 	if err != nil {
-		return nil, err
+		return nil, 0, err
 	}
-	want := "T_K,Cv_J_per_molcell_K[,sigma] or T_K,Cv_J_per_molatom_K[,sigma]"
-	scale := 1.0
-	switch {
-	case len(header) < 2 || len(header) > 3 || header[0] != "T_K" || len(header) == 3 && header[2] != "sigma":
-		return nil, &csvError{file: file, line: 1, msg: fmt.Sprintf("header %q; want %s", strings.Join(header, ","), want)}
-	case header[1] == "Cv_J_per_molcell_K":
-	case header[1] == "Cv_J_per_molatom_K":
-		scale = float64(sitesPerCell)
-	default:
-		return nil, &csvError{file: file, line: 1, column: 2, msg: fmt.Sprintf("%q; want Cv_J_per_molcell_K or Cv_J_per_molatom_K", header[1])}
+	bases := []thermalBasis{basisAtoms, basisCells, basisKg}
+	names := make([]string, len(bases))
+	for i, b := range bases {
+		names[i] = b.measuredColumn()
+	}
+	want := "T_K,Cv_J_per_<basis>_K[,sigma], <basis> one of " + strings.Join([]string{"molatom", "molcell", "kg"}, ", ")
+	if len(header) < 2 || len(header) > 3 || header[0] != "T_K" || len(header) == 3 && header[2] != "sigma" {
+		return nil, 0, &csvError{file: file, line: 1, msg: fmt.Sprintf("header %q; want %s", strings.Join(header, ","), want)}
+	}
+	bi := slices.Index(names, header[1])
+	if bi < 0 {
+		return nil, 0, &csvError{file: file, line: 1, column: 2, msg: fmt.Sprintf("%q; want %s", header[1], strings.Join(names, ", "))}
 	}
 	var errs []error
 	out := make([]measuredRow, 0, len(rows))
@@ -144,9 +149,9 @@ func readThermalMeasured(file string, sitesPerCell int) ([]measuredRow, error) {
 			if v[0] < 0 {
 				return &csvError{file: file, line: lines[i], column: 1, msg: fmt.Sprintf("T_K must be ≥ 0, got %v", v[0])}
 			}
-			m.x, m.y = v[0], v[1]*scale
+			m.x, m.y = v[0], v[1]
 			if len(v) == 3 {
-				m.sigma = v[2] * scale
+				m.sigma = v[2]
 			}
 			return nil
 		})
@@ -156,7 +161,18 @@ func readThermalMeasured(file string, sitesPerCell int) ([]measuredRow, error) {
 		}
 		out = append(out, m)
 	}
-	return out, errors.Join(errs...)
+	return out, bases[bi], errors.Join(errs...)
+}
+
+// convertRows turns the Cv (and σ) of thermal rows from basis from to
+// basis to, for a cell of sites sites and cellMassAmu amu.
+func convertRows(rows []measuredRow, from, to thermalBasis, sites int, cellMassAmu float64) []measuredRow {
+	out := make([]measuredRow, len(rows))
+	for i, m := range rows {
+		m.y, m.sigma = to.convert(m.y, from, sites, cellMassAmu), to.convert(m.sigma, from, sites, cellMassAmu)
+		out[i] = m
+	}
+	return out
 }
 
 // parseRow checks the column count and sigma of a row, parses its numbers
@@ -275,7 +291,7 @@ func newResidual(m measuredRow, model float64) residual {
 // residualTable describes the columns of a residual listing.
 type residualTable struct {
 	xName, xCSV string // "T (K)", "T_K"
-	yName, yCSV string // "Cv (J/(mol·K), per mole of cells)", "Cv_J_per_molcell_K"
+	yName, yCSV string // "Cv (J/(K·mol atoms))", "Cv_J_per_molatom_K"
 	path        bool
 }
 

@@ -9,7 +9,11 @@ import (
 
 const modesSummary = `Normal-mode frequencies at explicit q-points (--q), on a Monkhorst–Pack
 grid (--grid, --shift) or for a finite crystal of N cells (--cells). q is in
-fractional reciprocal coordinates; imaginary modes are negative numbers.`
+fractional reciprocal coordinates; imaginary modes are negative numbers.
+--velocities adds the group velocity (km/s, Cartesian x, y, z) of every
+mode, --eigenvectors its normalised eigenvector (one complex component per
+site and axis, cell phase convention: the mode shape of site s in cell n is
+e_s·exp(2πi q·n)/sqrt(m_s)); both give one row per q-point and branch.`
 
 func cmdModes(args []string, e *env) error {
 	c := newModelCommand("modes", false)
@@ -17,6 +21,8 @@ func cmdModes(args []string, e *env) error {
 	var qs qsetFlags
 	qs.register(fs, true)
 	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
+	vectors := fs.Bool("eigenvectors", false, "also give each mode's normalised eigenvector (complex, per site and axis)")
+	velocities := fs.Bool("velocities", false, "also give each mode's group velocity (km/s, Cartesian)")
 	if err := c.parse(args, e, modesSummary); err != nil {
 		return err
 	}
@@ -28,7 +34,7 @@ func cmdModes(args []string, e *env) error {
 	if err != nil {
 		return err
 	}
-	d, _ := dims(crystal)
+	d, p := dims(crystal)
 	set, err := qs.set(d, false)
 	if err != nil {
 		return err
@@ -39,11 +45,15 @@ func cmdModes(args []string, e *env) error {
 	}
 	defer release()
 	src := c.source(crystal)
-	resp, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: src, Qpoints: set, Unit: u},
+	resp, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: src, Qpoints: set, Unit: u, Eigenvectors: *vectors, GroupVelocities: *velocities},
 		client.Progress(func(done, total int) { e.prog.update("modes", done, total) }))
 	e.prog.clear()
 	if err != nil {
 		return err
 	}
-	return c.out.write(e.stdout, func(w io.Writer) error { return writeModes(w, c.out.format, resp) })
+	x := modesExtras{vectors: *vectors, velocities: *velocities, pol: p}
+	for _, s := range crystal.GetSites() {
+		x.labels = append(x.labels, s.GetLabel())
+	}
+	return c.out.write(e.stdout, func(w io.Writer) error { return writeModes(w, c.out.format, resp, x) })
 }

@@ -3,10 +3,12 @@ package main
 // Writers of the three output formats. "table" is aligned for people;
 // "csv" has fixed headers for programs (long format for modes and paths;
 // frequency columns carry the --unit value as suffix); "json" is the
-// protobuf JSON of the response.
+// protobuf JSON of the response with every field and a stable layout.
 
 import (
+	"bytes"
 	"encoding/csv"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -24,12 +26,28 @@ import (
 // table lists one row per branch.
 const wideBranches = 12
 
+// jsonOptions emit every field, zero values included (a temperature of
+// 0 K, site 0, an empty list, false), so that a reader finds each key it
+// expects instead of having to know protobuf's rule of omitting defaults.
+var jsonOptions = protojson.MarshalOptions{EmitUnpopulated: true}
+
+// writeJSON writes m as protobuf JSON with byte-stable layout: protojson
+// varies its whitespace on purpose (so that nobody relies on it), so its
+// output is re-indented by encoding/json, which drops that whitespace and
+// writes two-space indentation. Values and field order are protojson's own
+// (field order of the .proto, map keys sorted), so the bytes change only
+// when a value does.
 func writeJSON(w io.Writer, m proto.Message) error {
-	b, err := protojson.MarshalOptions{Multiline: true, Indent: "  "}.Marshal(m)
+	b, err := jsonOptions.Marshal(m)
 	if err != nil {
 		return fmt.Errorf("encode JSON: %w", err)
 	}
-	_, err = fmt.Fprintf(w, "%s\n", b)
+	var out bytes.Buffer
+	if err := json.Indent(&out, b, "", "  "); err != nil {
+		return fmt.Errorf("encode JSON: %w", err)
+	}
+	out.WriteByte('\n')
+	_, err = w.Write(out.Bytes())
 	return err
 }
 
@@ -189,7 +207,10 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 
 // ---- modes ----
 
-func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse) error {
+func writeModes(w io.Writer, format string, r *modegridv1.ComputeModesResponse, x modesExtras) error {
+	if x.any() && format != "json" {
+		return writeModesExtras(w, format, r, x)
+	}
 	unit := r.GetUnit()
 	switch format {
 	case "json":
@@ -363,10 +384,11 @@ func at(v []float64, i int) float64 {
 
 // ---- thermal ----
 
-// thermalHeader is the CSV header of `thermal`, per mole of unit cells.
-var thermalHeader = []string{
-	"temperature_k", "heat_capacity_j_per_mol_k", "entropy_j_per_mol_k",
-	"free_energy_kj_per_mol", "internal_energy_kj_per_mol", "debye_temperature_k", "debye_temperature_status",
+// thermalHeader is the CSV header of `thermal` on basis b.
+func thermalHeader(b thermalBasis) []string {
+	h := []string{"temperature_k"}
+	h = append(h, b.csvColumns()...)
+	return append(h, "debye_temperature_k", "debye_temperature_status")
 }
 
 // msdColumns names the mean-square-displacement columns of --msd.
@@ -383,21 +405,21 @@ func msdColumns(r *modegridv1.ComputeThermalResponse) (uiso, b []string) {
 	return siteColumns("u_iso_a2_", labels, index), siteColumns("b_a2_", labels, index)
 }
 
-func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalResponse) error {
+func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalResponse, b thermalBasis) error {
 	if format == "json" {
 		return writeJSON(w, r)
 	}
 	uiso, bcol := msdColumns(r)
 	if format == "csv" {
 		c := newCSV(w)
-		head := append([]string(nil), thermalHeader...)
+		head := thermalHeader(b)
 		for i := range uiso {
 			head = append(head, uiso[i], bcol[i])
 		}
 		c.row(head...)
 		for _, p := range r.GetPoints() {
-			rec := []string{num(p.GetTemperatureK()), num(p.GetHeatCapacityJPerMolK()), num(p.GetEntropyJPerMolK()),
-				num(p.GetFreeEnergyKjPerMol()), num(p.GetInternalEnergyKjPerMol()), thetaCSV(p), thetaStatusName(p.GetDebyeTemperatureStatus())}
+			cv, s, f, u := b.values(p)
+			rec := []string{num(p.GetTemperatureK()), num(cv), num(s), num(f), num(u), thetaCSV(p), thetaStatusName(p.GetDebyeTemperatureStatus())}
 			for i := range uiso {
 				if d := displacement(p, i); d.GetDivergent() {
 					rec = append(rec, "divergent", "divergent")
@@ -410,17 +432,15 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 		return c.flush()
 	}
 	t := newTable(w)
-	head := []string{"T (K)", "Cv (J/mol/K)", "S (J/mol/K)", "F (kJ/mol)", "U (kJ/mol)", "θD (K)"}
+	head := []string{"T (K)", "Cv (" + b.entropyUnit() + ")", "S (" + b.entropyUnit() + ")", "F (" + b.energyUnit() + ")", "U (" + b.energyUnit() + ")", "θD (K)"}
 	for i := range uiso {
 		head = append(head, "Uiso "+strings.TrimPrefix(uiso[i], "u_iso_a2_")+" (Å²)")
 	}
 	t.row(head...)
 	var notes thermalNotes
 	for _, p := range r.GetPoints() {
-		cells := []string{
-			strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(p.GetHeatCapacityJPerMolK()), f4(p.GetEntropyJPerMolK()),
-			f4(p.GetFreeEnergyKjPerMol()), f4(p.GetInternalEnergyKjPerMol()), thetaCell(p, 2),
-		}
+		cv, s, f, u := b.values(p)
+		cells := []string{strconv.FormatFloat(p.GetTemperatureK(), 'f', 2, 64), f4(cv), f4(s), f4(f), f4(u), thetaCell(p, 2)}
 		notes.theta(p)
 		for i := range uiso {
 			d := displacement(p, i)
@@ -437,8 +457,8 @@ func writeThermal(w io.Writer, format string, r *modegridv1.ComputeThermalRespon
 	if err := t.flush(); err != nil {
 		return err
 	}
-	if _, err := fmt.Fprintf(w, "zero-point energy: %s kJ/mol of cells; elastic Debye temperature: %s\n",
-		f4(r.GetZeroPointEnergyKjPerMol()), elasticTheta(r.GetDebyeTemperatureElasticK())); err != nil {
+	if _, err := fmt.Fprintf(w, "zero-point energy: %s %s (included in F and U); elastic Debye temperature: %s\n",
+		f4(b.zeroPoint(r)), b.energyUnit(), elasticTheta(r.GetDebyeTemperatureElasticK())); err != nil {
 		return err
 	}
 	return notes.write(w)

@@ -10,8 +10,9 @@ import (
 )
 
 const pathSummary = `Frequencies along a path of straight segments through labelled points.
-Without --path, the standard path of the crystal's lattice (sc, fcc, bcc,
-hexagonal, square, rectangular, 1D) is used. --path G-X-W-L-G uses the built-in points of the crystal's lattice (G is Γ;
+Without --path, the default path of the crystal's lattice is used (sc, fcc,
+bcc, hexagonal in 3D; every 2D net; 1D; a 3D lattice of lower symmetry
+needs --path). --path G-X-W-L-G uses the built-in points of the crystal's lattice (G is Γ;
 '|' starts a disconnected piece), --path "G=0,0,0 X=0.5,0,0.5" gives them in
 fractional reciprocal coordinates. Distances are cumulative, in 1/Å (2π
 included). --follow-modes orders each sample's frequencies by branch,
@@ -164,23 +165,9 @@ func unitPerTHz(u modegridv1.FrequencyUnit) float64 {
 	return 1
 }
 
-// defaultPaths are the standard paths through the built-in points of each
-// lattice type: for sc, fcc, bcc and hexagonal those of Setyawan &
-// Curtarolo, Comput. Mater. Sci. 49, 299 (2010), Table 2 and Figs. 1–4 (from
-// memory); for the 2D and 1D lattices the usual closed loops (common
-// practice).
-var defaultPaths = map[string]string{
-	"sc":          "G-X-M-G-R-X|M-R",
-	"fcc":         "G-X-W-K-G-L-U-W-L-K|U-X",
-	"bcc":         "G-H-N-G-P-H|P-N",
-	"hexagonal":   "G-M-K-G-A-L-H-A|L-M|K-H",
-	"square":      "G-X-M-G",
-	"rectangular": "G-X-S-Y-G",
-	"1d":          "G-X",
-}
-
-// standardPath asks the server for the model's lattice type and returns its
-// default path, or a usage error when the lattice has none.
+// standardPath asks the server for the model's default path (by lattice
+// type and dimensionality) and returns it, or a usage error when the
+// lattice has none.
 func standardPath(ctx context.Context, cl *client.Client, src *modegridv1.ModelSource) ([]pathCorner, error) {
 	chk, err := cl.Check(ctx, &modegridv1.CheckModelRequest{Model: src})
 	if err != nil {
@@ -193,25 +180,24 @@ func standardPath(ctx context.Context, cl *client.Client, src *modegridv1.ModelS
 		}
 		return nil, ie
 	}
-	lt := chk.GetLatticeType()
-	spec, ok := defaultPaths[lt]
-	if !ok {
-		return nil, usagef(`--path is required: the lattice is not one with built-in points (give coordinates, e.g. --path "G=0,0,0 X=0.5,0,0")`)
-	}
-	have := map[string]bool{}
-	for _, p := range chk.GetStandardPoints() {
-		have[p.GetLabel()] = true
-	}
-	corners, err := parsePath(spec)
-	if err != nil {
-		return nil, err
-	}
-	for _, c := range corners {
-		if !have[c.Label] {
-			return nil, usagef("--path is required: the server has no built-in point %s for a %s lattice", c.Label, lt)
+	return defaultPath(chk)
+}
+
+// defaultPath converts the check's default path to corners; a usage error
+// when the lattice has none.
+func defaultPath(chk *modegridv1.CheckModelResponse) ([]pathCorner, error) {
+	if len(chk.GetDefaultPath()) < 2 {
+		lt := chk.GetLatticeType()
+		if lt == "" {
+			lt = "unrecognised"
 		}
+		return nil, usagef(`--path is required: the %dD %s lattice has no default path (give coordinates, e.g. --path "G=0,0,0 X=0.5,0,0")`, chk.GetDimensions(), lt)
 	}
-	return corners, nil
+	var out []pathCorner
+	for _, p := range chk.GetDefaultPath() {
+		out = append(out, pathCorner{Label: p.GetLabel(), Break: p.GetBreakBefore()})
+	}
+	return out, nil
 }
 
 // pathPoints converts parsed corners to the API's path points.

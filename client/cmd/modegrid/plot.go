@@ -22,7 +22,6 @@ import (
 	"gonum.org/v1/plot/vg/vgimg"
 	"gonum.org/v1/plot/vg/vgsvg"
 
-	"github.com/materials-lab/modegrid/physics"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -284,8 +283,9 @@ func lighten(c color.Color) color.Color {
 // thermalFigure is what the thermal page shows.
 type thermalFigure struct {
 	th         *modegridv1.ComputeThermalResponse
-	sites, pol int         // sites per cell, polarisations per site
-	measured   []plotPoint // T (K), Cv ± σ in J/(mol·K) per mole of cells
+	basis      thermalBasis // the amount every value is per
+	sites, pol int          // sites per cell, polarisations per site
+	measured   []plotPoint  // T (K), Cv ± σ in J/K per basis
 	title      string
 }
 
@@ -298,11 +298,11 @@ func plotThermal(file, kind string, t thermalFigure) error {
 	return f.write(file, kind)
 }
 
-// build draws Cv (with the Dulong–Petit limit p·R per site, 3R per site in
-// three dimensions, and any measured points), S, F and U against
-// temperature, per mole of unit cells, on one page.
+// build draws Cv (with the classical limit, kB per mode: p·R per mole of
+// atoms, 3R in three dimensions, and any measured points), S, F and U
+// against temperature, on one page, every axis per the basis t.basis.
 func (t thermalFigure) build() (figure, error) {
-	pts := t.th.GetPoints()
+	b, pts := t.basis, t.th.GetPoints()
 	if len(pts) == 0 {
 		return figure{}, fmt.Errorf("plot: no temperatures")
 	}
@@ -310,8 +310,7 @@ func (t thermalFigure) build() (figure, error) {
 	cv, s, f, u := make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts)), make([]float64, len(pts))
 	for i, p := range pts {
 		T[i] = p.GetTemperatureK()
-		cv[i], s[i] = p.GetHeatCapacityJPerMolK(), p.GetEntropyJPerMolK()
-		f[i], u[i] = p.GetFreeEnergyKjPerMol(), p.GetInternalEnergyKjPerMol()
+		cv[i], s[i], f[i], u[i] = b.values(p)
 	}
 	panel := func(ys []float64, ylabel string) (*plot.Plot, *plotter.Line) {
 		p := newPlot()
@@ -325,16 +324,16 @@ func (t thermalFigure) build() (figure, error) {
 		p.Add(l)
 		return p, l
 	}
-	pcv, cvLine := panel(cv, "heat capacity Cv (J/(mol·K))")
+	pcv, cvLine := panel(cv, "heat capacity Cv ("+b.entropyUnit()+")")
 	pcv.Y.Min = 0
-	// Dulong–Petit: the classical limit kB per mode, p·R per site per mole
-	// of cells (Kittel, Introduction to Solid State Physics, ch. 5).
-	limit := float64(t.pol*t.sites) * physics.GasConstantJPerMolK
+	// Dulong–Petit: the classical limit kB per mode on the basis
+	// (Kittel, Introduction to Solid State Physics, ch. 5).
+	limit := b.classicalLimit(t.th, t.sites, t.pol)
 	dp := line([]float64{pcv.X.Min, pcv.X.Max}, []float64{limit, limit}, siteColors[1], 1.2*vg.Points(1))
 	dp.Dashes = []vg.Length{5 * vg.Points(1), 3 * vg.Points(1)}
 	pcv.Add(dp)
 	pcv.Legend.Add("Cv", cvLine)
-	pcv.Legend.Add(dulongPetitLabel(t.sites, t.pol), dp)
+	pcv.Legend.Add(b.classicalLabel(t.sites, t.pol), dp)
 	top := math.Max(limit, maxOf(cv))
 	for _, m := range t.measured {
 		top = math.Max(top, m.Y+m.Sigma)
@@ -343,9 +342,9 @@ func (t thermalFigure) build() (figure, error) {
 	addMeasured(pcv, t.measured)
 	pcv.Legend.Left, pcv.Legend.Top = false, false
 	pcv.Y.Max = top * 1.08
-	ps, _ := panel(s, "entropy S (J/(mol·K))")
-	pf, _ := panel(f, "free energy F (kJ/mol)")
-	pu, _ := panel(u, "internal energy U (kJ/mol)")
+	ps, _ := panel(s, "entropy S ("+b.entropyUnit()+")")
+	pf, _ := panel(f, "free energy F ("+b.energyUnit()+")")
+	pu, _ := panel(u, "internal energy U ("+b.energyUnit()+")")
 	grid := [][]*plot.Plot{{pcv, ps}, {pf, pu}}
 	return figure{size: thermalSize, render: func(dc draw.Canvas) {
 		if t.title != "" {
@@ -360,13 +359,6 @@ func (t thermalFigure) build() (figure, error) {
 			}
 		}
 	}}, nil
-}
-
-func dulongPetitLabel(sites, pol int) string {
-	if pol == 3 {
-		return fmt.Sprintf("Dulong–Petit 3R × %d site%s", sites, plural(sites))
-	}
-	return fmt.Sprintf("classical limit %dR × %d site%s", pol, sites, plural(sites))
 }
 
 // drawTitle writes a page title at the top of dc and returns the rest.

@@ -172,12 +172,18 @@ func syntheticDOS(sites int) *modegridv1.ComputeDosResponse {
 }
 
 func syntheticThermal() *modegridv1.ComputeThermalResponse {
-	r := &modegridv1.ComputeThermalResponse{}
+	// Two sites in a cell of 60 amu: per mole of atoms is half per mole of
+	// cells, per kilogram is per mole of cells over 0.060 kg/mol.
+	const sites, molarKg = 2, 0.060
+	r := &modegridv1.ComputeThermalResponse{CellMassAmu: 60}
 	for T := 0.0; T <= 1000; T += 20 {
 		x := T / 300
+		cv, s, f, u := 24.9*x*x/(1+x*x), 10*math.Log1p(x), 2-x, 2+x
 		r.Points = append(r.Points, &modegridv1.ThermalPoint{
-			TemperatureK: T, HeatCapacityJPerMolK: 24.9 * x * x / (1 + x*x), EntropyJPerMolK: 10 * math.Log1p(x),
-			FreeEnergyKjPerMol: 2 - x, InternalEnergyKjPerMol: 2 + x,
+			TemperatureK: T, HeatCapacityJPerMolK: cv, EntropyJPerMolK: s, FreeEnergyKjPerMol: f, InternalEnergyKjPerMol: u,
+			HeatCapacityJPerMolAtomsK: cv / sites, EntropyJPerMolAtomsK: s / sites,
+			FreeEnergyKjPerMolAtoms: f / sites, InternalEnergyKjPerMolAtoms: u / sites,
+			HeatCapacityJPerKgK: cv / molarKg, EntropyJPerKgK: s / molarKg, FreeEnergyKjPerKg: f / molarKg, InternalEnergyKjPerKg: u / molarKg,
 		})
 	}
 	return r
@@ -302,11 +308,23 @@ func TestPlots(t *testing.T) {
 			wantText: []string{"total", "A", "B", "frequency ν (cm⁻¹)", "DOS g(ν) (states per cell per cm⁻¹)"}},
 		{name: "thermal page", size: thermalSize, png: true, branch: true,
 			build: func() (figure, error) {
-				return thermalFigure{th: syntheticThermal(), sites: 2, pol: 3, title: "page",
+				return thermalFigure{th: syntheticThermal(), basis: basisCells, sites: 2, pol: 3, title: "page",
 					measured: []plotPoint{{X: 300, Y: 12, Sigma: 1}, {X: 600, Y: 20, Sigma: 1}}}.build()
 			},
-			wantText: []string{"Dulong–Petit 3R × 2 sites", "heat capacity Cv (J/(mol·K))", "entropy S (J/(mol·K))",
-				"free energy F (kJ/mol)", "internal energy U (kJ/mol)", "temperature T (K)", "measured ± σ"}},
+			wantText: []string{"Dulong–Petit 3R × 2 sites", "heat capacity Cv (J/(K·mol cells))", "entropy S (J/(K·mol cells))",
+				"free energy F (kJ/mol cells)", "internal energy U (kJ/mol cells)", "temperature T (K)", "measured ± σ"}},
+		{name: "thermal page per mole of atoms", size: thermalSize,
+			build: func() (figure, error) {
+				return thermalFigure{th: syntheticThermal(), basis: basisAtoms, sites: 2, pol: 3}.build()
+			},
+			wantText: []string{"Dulong–Petit 3R", "heat capacity Cv (J/(K·mol atoms))", "entropy S (J/(K·mol atoms))",
+				"free energy F (kJ/mol atoms)", "internal energy U (kJ/mol atoms)"}},
+		{name: "thermal page per kilogram", size: thermalSize,
+			build: func() (figure, error) {
+				return thermalFigure{th: syntheticThermal(), basis: basisKg, sites: 2, pol: 3}.build()
+			},
+			wantText: []string{"Dulong–Petit 3·2·kB / cell mass", "heat capacity Cv (J/(kg·K))", "entropy S (J/(kg·K))",
+				"free energy F (kJ/kg)", "internal energy U (kJ/kg)"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -426,7 +444,7 @@ func TestPlotErrors(t *testing.T) {
 	if err := plotDOS(f, "png", &modegridv1.ComputeDosResponse{}, false, ""); err == nil {
 		t.Error("empty DOS drawn")
 	}
-	if err := plotThermal(f, "png", thermalFigure{th: &modegridv1.ComputeThermalResponse{}, sites: 1, pol: 3}); err == nil {
+	if err := plotThermal(f, "png", thermalFigure{th: &modegridv1.ComputeThermalResponse{}, basis: basisAtoms, sites: 1, pol: 3}); err == nil {
 		t.Error("empty thermal drawn")
 	}
 }

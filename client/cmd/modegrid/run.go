@@ -11,8 +11,10 @@ import (
 	"strings"
 	"time"
 
+	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
+	"google.golang.org/grpc/test/bufconn"
 
 	"github.com/materials-lab/modegrid/client"
 	"github.com/materials-lab/modegrid/server"
@@ -53,6 +55,7 @@ var commands = []struct {
 	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
+	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz)", cmdShape},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -65,7 +68,7 @@ func usageText() string {
 	b.WriteString(`
 common flags:
   -m, --model FILE   model file (protobuf JSON of modegrid.v1.Crystal; see README)
-  --server ADDR      modegridd address; absent: an embedded server on loopback
+  --server ADDR      modegridd address; absent: an embedded server in this process
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
@@ -96,7 +99,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and
@@ -201,9 +204,20 @@ func plural(n int) string {
 	return "s"
 }
 
-// connect returns a client for --server, or for an embedded server started
-// on a loopback port and called over real gRPC. The returned stop function
-// releases everything.
+// embeddedBufBytes is the buffer of each direction of the in-memory
+// connection to the embedded server; gRPC's flow control bounds what is in
+// flight, so a larger message only takes more round trips.
+const embeddedBufBytes = 1 << 20
+
+// embeddedTarget is the gRPC target of the embedded server. The passthrough
+// resolver hands it unchanged to the in-memory dialer, which ignores it.
+const embeddedTarget = "passthrough:///modegrid-embedded"
+
+// connect returns a client for --server, or for an embedded server in this
+// process. The embedded server is reached through an in-memory listener
+// (bufconn): the real gRPC stack, codecs and server interceptors, but no
+// socket, so no other local user can call it while the CLI runs. The
+// returned stop function releases everything.
 func connect(addr string, opts ...client.Option) (*client.Client, func(), error) {
 	if addr != "" {
 		c, err := client.Dial(addr, opts...)
@@ -216,26 +230,28 @@ func connect(addr string, opts ...client.Option) (*client.Client, func(), error)
 	if err != nil {
 		return nil, nil, fmt.Errorf("start embedded server: %w", err)
 	}
-	lis, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		return nil, nil, fmt.Errorf("start embedded server: %w", err)
-	}
+	lis := bufconn.Listen(embeddedBufBytes)
 	served := make(chan struct{})
 	go func() {
 		defer close(served)
 		srv.Serve(lis)
 	}()
-	c, err := client.Dial(lis.Addr().String(), opts...)
-	if err != nil {
-		lis.Close()
-		return nil, nil, err
-	}
-	return c, func() {
-		c.Close()
+	stopServer := func() {
 		ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
 		defer cancel()
 		srv.Shutdown(ctx)
 		<-served
+	}
+	dialer := func(ctx context.Context, _ string) (net.Conn, error) { return lis.DialContext(ctx) }
+	opts = append(opts, client.WithDialOptions(grpc.WithContextDialer(dialer)))
+	c, err := client.Dial(embeddedTarget, opts...)
+	if err != nil {
+		stopServer()
+		return nil, nil, err
+	}
+	return c, func() {
+		c.Close()
+		stopServer()
 	}, nil
 }
 

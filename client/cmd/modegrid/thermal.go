@@ -15,16 +15,18 @@ import (
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-const thermalSummary = `Harmonic thermal properties per mole of unit cells: heat capacity Cv,
-entropy S, free energy F and internal energy U (zero-point energy included),
+const thermalSummary = `Harmonic thermal properties: heat capacity Cv, entropy S, free energy F
+and internal energy U (zero-point energy included), per mole of atoms (the
+default: Cv tends to 3R in 3D), per mole of cells or per kilogram (--basis),
 and the Debye temperature θD(T) that reproduces Cv, at --temps
 (start:stop:step in K, or a list). --msd adds mean-square displacements per
 site. An unstable model (imaginary modes) exits 3 unless --allow-unstable.
 --measured FILE.csv compares measured heat capacities with the model (on
 the figure, with error bars) and makes the output the residuals
-(measured − model, and over σ) instead of the listing; its header is
+(measured − model, and over σ, on the --basis) instead of the listing;
+its header is T_K,Cv_J_per_molatom_K[,sigma] (per mole of atoms),
 T_K,Cv_J_per_molcell_K[,sigma] (per mole of unit cells) or
-T_K,Cv_J_per_molatom_K[,sigma] (per mole of atoms), Cv at constant volume.`
+T_K,Cv_J_per_kg_K[,sigma] (per kilogram), Cv at constant volume.`
 
 func cmdThermal(args []string, e *env) error {
 	c := newModelCommand("thermal", true)
@@ -35,9 +37,14 @@ func cmdThermal(args []string, e *env) error {
 	msd := fs.Bool("msd", false, "also give mean-square displacements (Uiso, B) per site")
 	allowUnstable := fs.Bool("allow-unstable", false, "leave imaginary modes out instead of refusing an unstable model")
 	dosRoute := fs.Bool("dos-route", false, "integrate over the tetrahedron DOS instead of summing the grid's modes")
+	basisFlag := fs.String("basis", "atoms", "amount the values are per: atoms (mole of atoms), cells (mole of cells, formula units) or kg")
 	measured := fs.String("measured", "", "CSV of measured heat capacities to compare with (see above)")
 	if err := c.parse(args, e, thermalSummary); err != nil {
 		return err
+	}
+	basis, err := parseBasis(*basisFlag)
+	if err != nil {
+		return usagef("%v", err)
 	}
 	list, rng, err := parseTemps(*temps)
 	if err != nil {
@@ -49,8 +56,9 @@ func cmdThermal(args []string, e *env) error {
 	}
 	d, p := dims(crystal)
 	var rows []measuredRow
+	var rowsBasis thermalBasis
 	if *measured != "" {
-		if rows, err = readThermalMeasured(*measured, len(crystal.GetSites())); err != nil {
+		if rows, rowsBasis, err = readThermalMeasured(*measured); err != nil {
 			return usagef("--measured: %v", err)
 		}
 	}
@@ -75,12 +83,7 @@ func cmdThermal(args []string, e *env) error {
 	resp, err := cl.Thermal(ctx, req)
 	done()
 	if status.Code(err) == codes.FailedPrecondition {
-		// The server's hint names the request field; at a terminal, name the flag.
-		msg := status.Convert(err).Message()
-		if i := strings.Index(msg, " (set allow_unstable"); i >= 0 {
-			msg = msg[:i]
-		}
-		return &invalidError{msg: fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))}
+		return &invalidError{msg: unstableHint(status.Convert(err).Message())}
 	}
 	if err != nil {
 		return err
@@ -90,24 +93,38 @@ func cmdThermal(args []string, e *env) error {
 	}
 	var points []plotPoint
 	if rows != nil {
-		if points, err = c.thermalResiduals(ctx, cl, e, req, rows); err != nil {
+		if points, err = c.thermalResiduals(ctx, cl, e, req, rows, rowsBasis, basis); err != nil {
 			return err
 		}
-	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp) }); err != nil {
+	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writeThermal(w, c.out.format, resp, basis) }); err != nil {
 		return err
 	}
 	if c.out.plot == "" {
 		return nil
 	}
-	return plotThermal(c.out.plot, c.out.kind, thermalFigure{th: resp, sites: len(crystal.GetSites()), pol: p,
+	return plotThermal(c.out.plot, c.out.kind, thermalFigure{th: resp, basis: basis, sites: len(crystal.GetSites()), pol: p,
 		measured: points, title: crystal.GetName()})
 }
 
+// unstableHint rewrites the server's FAILED_PRECONDITION message for a
+// terminal: its hint names request fields, the CLI names the flags
+// (enforce_sum_rule is --sum-rule, allow_unstable is --allow-unstable).
+func unstableHint(msg string) string {
+	if strings.Contains(msg, "set enforce_sum_rule to impose it") {
+		return strings.Replace(msg, "set enforce_sum_rule to impose it", "run with --sum-rule to impose it", 1)
+	}
+	if i := strings.Index(msg, " (set allow_unstable"); i >= 0 {
+		msg = msg[:i]
+	}
+	return fmt.Sprintf("%s (--allow-unstable leaves the imaginary modes out instead)", strings.TrimSuffix(msg, "."))
+}
+
 // thermalResiduals asks the model's Cv at the measured temperatures (the
-// request of the listing with those temperatures) and writes the residuals
-// as the output.
+// request of the listing with those temperatures), converts the measured
+// values from the file's basis to the output's, and writes the residuals
+// as the output. It returns the converted points for the figure.
 func (c *modelCommand) thermalResiduals(ctx context.Context, cl *client.Client, e *env, req *modegridv1.ComputeThermalRequest,
-	rows []measuredRow) ([]plotPoint, error) {
+	rows []measuredRow, from, basis thermalBasis) ([]plotPoint, error) {
 	at := proto.Clone(req).(*modegridv1.ComputeThermalRequest)
 	at.Range, at.TemperaturesK, at.Msd = nil, nil, false
 	for _, m := range rows {
@@ -119,9 +136,10 @@ func (c *modelCommand) thermalResiduals(ctx context.Context, cl *client.Client, 
 	if err != nil {
 		return nil, err
 	}
+	rows = convertRows(rows, from, basis, int(resp.GetAtomsPerCell()), resp.GetCellMassAmu())
 	cv := map[float64]float64{}
 	for _, p := range resp.GetPoints() {
-		cv[p.GetTemperatureK()] = p.GetHeatCapacityJPerMolK()
+		cv[p.GetTemperatureK()], _, _, _ = basis.values(p)
 	}
 	rs := make([]residual, len(rows))
 	for i, m := range rows {
@@ -131,7 +149,7 @@ func (c *modelCommand) thermalResiduals(ctx context.Context, cl *client.Client, 
 		}
 		rs[i] = newResidual(m, v)
 	}
-	t := residualTable{xName: "T (K)", xCSV: "T_K", yName: "Cv (J/(mol·K), per mole of cells)", yCSV: "Cv_J_per_molcell_K"}
+	t := residualTable{xName: "T (K)", xCSV: "T_K", yName: "Cv (" + basis.entropyUnit() + ")", yCSV: basis.measuredColumn()}
 	c.out.explicit = true // with --measured the residuals are the output, also beside --plot
 	return plotPoints(rows), c.out.write(e.stdout, func(w io.Writer) error { return writeResiduals(w, c.out.format, t, rs) })
 }

@@ -78,6 +78,11 @@ func (ForceUnit) EnumDescriptor() ([]byte, []int) {
 // crystal. The same message is the JSON model file (protobuf JSON mapping) and
 // the inline model of every RPC.
 //
+// Springs and blocks name their two sites from_site and to_site (JSON
+// fromSite/toSite). Before they were `from` and `to` (same field numbers, so
+// the wire format is unchanged); the model-file decoder of the Go client
+// (client.ParseModel) still accepts those keys in model files.
+//
 // Units: lengths in ångström (Å), masses in unified atomic mass units (amu),
 // force constants in eV/Å² unless force_unit says N/m.
 type Crystal struct {
@@ -98,7 +103,7 @@ type Crystal struct {
 	Springs []*Spring `protobuf:"bytes,6,rep,name=springs,proto3" json:"springs,omitempty"`
 	// Neighbour-shell springs: the engine finds every pair in the shell.
 	Shells []*Shell `protobuf:"bytes,7,rep,name=shells,proto3" json:"shells,omitempty"`
-	// Explicit 3×3 force-constant blocks Φ(from, cell 0; to, cell).
+	// Explicit 3×3 force-constant blocks Φ(from_site, cell 0; to_site, cell).
 	Blocks        []*Block `protobuf:"bytes,8,rep,name=blocks,proto3" json:"blocks,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
@@ -259,7 +264,7 @@ type Site struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Species label; shells refer to sites by label.
 	Label string `protobuf:"bytes,1,opt,name=label,proto3" json:"label,omitempty"`
-	// Mass in amu; must be > 0.
+	// Mass in amu; required, > 0.
 	MassAmu float64 `protobuf:"fixed64,2,opt,name=mass_amu,json=massAmu,proto3" json:"mass_amu,omitempty"`
 	// Position in fractional coordinates of the lattice vectors (d numbers).
 	Frac          []float64 `protobuf:"fixed64,3,rep,packed,name=frac,proto3" json:"frac,omitempty"`
@@ -318,14 +323,14 @@ func (x *Site) GetFrac() []float64 {
 	return nil
 }
 
-// Spring is a pair spring between site `from` in cell 0 and site `to` in the
-// cell displaced by `cell` lattice vectors.
+// Spring is a pair spring between site `from_site` in cell 0 and site
+// `to_site` in the cell displaced by `cell` lattice vectors.
 type Spring struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// Index of the first site (in cell 0).
-	From uint32 `protobuf:"varint,1,opt,name=from,proto3" json:"from,omitempty"`
-	// Index of the second site (in cell `cell`).
-	To uint32 `protobuf:"varint,2,opt,name=to,proto3" json:"to,omitempty"`
+	// Index of the first site (in cell 0). Formerly `from`.
+	FromSite uint32 `protobuf:"varint,1,opt,name=from_site,json=fromSite,proto3" json:"from_site,omitempty"`
+	// Index of the second site (in cell `cell`). Formerly `to`.
+	ToSite uint32 `protobuf:"varint,2,opt,name=to_site,json=toSite,proto3" json:"to_site,omitempty"`
 	// Integer lattice offset of the second site's cell (d integers).
 	Cell []int32 `protobuf:"varint,3,rep,packed,name=cell,proto3" json:"cell,omitempty"`
 	// Longitudinal spring constant (along the bond), force_unit.
@@ -366,16 +371,16 @@ func (*Spring) Descriptor() ([]byte, []int) {
 	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{3}
 }
 
-func (x *Spring) GetFrom() uint32 {
+func (x *Spring) GetFromSite() uint32 {
 	if x != nil {
-		return x.From
+		return x.FromSite
 	}
 	return 0
 }
 
-func (x *Spring) GetTo() uint32 {
+func (x *Spring) GetToSite() uint32 {
 	if x != nil {
-		return x.To
+		return x.ToSite
 	}
 	return 0
 }
@@ -484,15 +489,16 @@ func (x *Shell) GetKTrans() float64 {
 	return 0
 }
 
-// Block is an explicit force-constant block Φ_{αβ}(from, 0; to, cell),
-// the second derivative of the energy with respect to displacement α of
-// site `from` in cell 0 and displacement β of site `to` in cell `cell`.
+// Block is an explicit force-constant block Φ_{αβ}(from_site, 0; to_site,
+// cell), the second derivative of the energy with respect to displacement α
+// of site `from_site` in cell 0 and displacement β of site `to_site` in cell
+// `cell`.
 type Block struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// Index of the first site (in cell 0).
-	From uint32 `protobuf:"varint,1,opt,name=from,proto3" json:"from,omitempty"`
-	// Index of the second site.
-	To uint32 `protobuf:"varint,2,opt,name=to,proto3" json:"to,omitempty"`
+	// Index of the first site (in cell 0). Formerly `from`.
+	FromSite uint32 `protobuf:"varint,1,opt,name=from_site,json=fromSite,proto3" json:"from_site,omitempty"`
+	// Index of the second site. Formerly `to`.
+	ToSite uint32 `protobuf:"varint,2,opt,name=to_site,json=toSite,proto3" json:"to_site,omitempty"`
 	// Integer lattice offset of the second site's cell (d integers).
 	Cell []int32 `protobuf:"varint,3,rep,packed,name=cell,proto3" json:"cell,omitempty"`
 	// 9 numbers, row-major (xx, xy, xz, yx, ...), force_unit.
@@ -531,16 +537,16 @@ func (*Block) Descriptor() ([]byte, []int) {
 	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{5}
 }
 
-func (x *Block) GetFrom() uint32 {
+func (x *Block) GetFromSite() uint32 {
 	if x != nil {
-		return x.From
+		return x.FromSite
 	}
 	return 0
 }
 
-func (x *Block) GetTo() uint32 {
+func (x *Block) GetToSite() uint32 {
 	if x != nil {
-		return x.To
+		return x.ToSite
 	}
 	return 0
 }
@@ -581,10 +587,10 @@ const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\x04Site\x12\x14\n" +
 	"\x05label\x18\x01 \x01(\tR\x05label\x12\x19\n" +
 	"\bmass_amu\x18\x02 \x01(\x01R\amassAmu\x12\x12\n" +
-	"\x04frac\x18\x03 \x03(\x01R\x04frac\"p\n" +
-	"\x06Spring\x12\x12\n" +
-	"\x04from\x18\x01 \x01(\rR\x04from\x12\x0e\n" +
-	"\x02to\x18\x02 \x01(\rR\x02to\x12\x12\n" +
+	"\x04frac\x18\x03 \x03(\x01R\x04frac\"\x82\x01\n" +
+	"\x06Spring\x12\x1b\n" +
+	"\tfrom_site\x18\x01 \x01(\rR\bfromSite\x12\x17\n" +
+	"\ato_site\x18\x02 \x01(\rR\x06toSite\x12\x12\n" +
 	"\x04cell\x18\x03 \x03(\x05R\x04cell\x12\x15\n" +
 	"\x06k_long\x18\x04 \x01(\x01R\x05kLong\x12\x17\n" +
 	"\ak_trans\x18\x05 \x01(\x01R\x06kTrans\"\x87\x01\n" +
@@ -594,10 +600,10 @@ const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\bto_label\x18\x02 \x01(\tR\atoLabel\x12\x14\n" +
 	"\x05shell\x18\x03 \x01(\rR\x05shell\x12\x15\n" +
 	"\x06k_long\x18\x04 \x01(\x01R\x05kLong\x12\x17\n" +
-	"\ak_trans\x18\x05 \x01(\x01R\x06kTrans\"Q\n" +
-	"\x05Block\x12\x12\n" +
-	"\x04from\x18\x01 \x01(\rR\x04from\x12\x0e\n" +
-	"\x02to\x18\x02 \x01(\rR\x02to\x12\x12\n" +
+	"\ak_trans\x18\x05 \x01(\x01R\x06kTrans\"c\n" +
+	"\x05Block\x12\x1b\n" +
+	"\tfrom_site\x18\x01 \x01(\rR\bfromSite\x12\x17\n" +
+	"\ato_site\x18\x02 \x01(\rR\x06toSite\x12\x12\n" +
 	"\x04cell\x18\x03 \x03(\x05R\x04cell\x12\x10\n" +
 	"\x03phi\x18\x04 \x03(\x01R\x03phi*Y\n" +
 	"\tForceUnit\x12\x1a\n" +

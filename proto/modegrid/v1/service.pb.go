@@ -1961,7 +1961,13 @@ func (x *SiteDisplacement) GetDivergenceReason() string {
 	return ""
 }
 
-// ThermalPoint holds the thermal properties at one temperature.
+// ThermalPoint holds the thermal properties at one temperature, on three
+// bases: per cell (eV) and per mole of cells (formula units: the *_per_mol
+// fields, kJ/mol and J/(mol·K)); per mole of atoms (sites: the per-cell
+// values divided by the sites per cell, so the classical limit of Cv is
+// p·R, 3R for a 3D crystal); and per kilogram (the per-cell values divided
+// by the cell's mass, the sum of its site masses). Energies include the
+// zero-point energy on every basis.
 type ThermalPoint struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Temperature, K.
@@ -1974,13 +1980,13 @@ type ThermalPoint struct {
 	EntropyEvPerK float64 `protobuf:"fixed64,4,opt,name=entropy_ev_per_k,json=entropyEvPerK,proto3" json:"entropy_ev_per_k,omitempty"`
 	// Heat capacity Cv per cell, eV/K.
 	HeatCapacityEvPerK float64 `protobuf:"fixed64,5,opt,name=heat_capacity_ev_per_k,json=heatCapacityEvPerK,proto3" json:"heat_capacity_ev_per_k,omitempty"`
-	// U per mole of cells, kJ/mol.
+	// U per mole of cells (formula units), kJ/mol.
 	InternalEnergyKjPerMol float64 `protobuf:"fixed64,6,opt,name=internal_energy_kj_per_mol,json=internalEnergyKjPerMol,proto3" json:"internal_energy_kj_per_mol,omitempty"`
-	// F per mole of cells, kJ/mol.
+	// F per mole of cells (formula units), kJ/mol.
 	FreeEnergyKjPerMol float64 `protobuf:"fixed64,7,opt,name=free_energy_kj_per_mol,json=freeEnergyKjPerMol,proto3" json:"free_energy_kj_per_mol,omitempty"`
-	// S per mole of cells, J/(mol·K).
+	// S per mole of cells (formula units), J/(mol·K).
 	EntropyJPerMolK float64 `protobuf:"fixed64,8,opt,name=entropy_j_per_mol_k,json=entropyJPerMolK,proto3" json:"entropy_j_per_mol_k,omitempty"`
-	// Cv per mole of cells, J/(mol·K).
+	// Cv per mole of cells (formula units), J/(mol·K).
 	HeatCapacityJPerMolK float64 `protobuf:"fixed64,9,opt,name=heat_capacity_j_per_mol_k,json=heatCapacityJPerMolK,proto3" json:"heat_capacity_j_per_mol_k,omitempty"`
 	// Debye temperature equivalent θ_D(T), K: the θ of the Debye model with
 	// this heat capacity per mode. Meaningful only when
@@ -1995,8 +2001,24 @@ type ThermalPoint struct {
 	// Why θ_D(T) is not determined (empty when it is), e.g. the grid's lowest
 	// mode in units of k_BT/h.
 	DebyeTemperatureReason string `protobuf:"bytes,13,opt,name=debye_temperature_reason,json=debyeTemperatureReason,proto3" json:"debye_temperature_reason,omitempty"`
-	unknownFields          protoimpl.UnknownFields
-	sizeCache              protoimpl.SizeCache
+	// U per mole of atoms, kJ/mol.
+	InternalEnergyKjPerMolAtoms float64 `protobuf:"fixed64,14,opt,name=internal_energy_kj_per_mol_atoms,json=internalEnergyKjPerMolAtoms,proto3" json:"internal_energy_kj_per_mol_atoms,omitempty"`
+	// F per mole of atoms, kJ/mol.
+	FreeEnergyKjPerMolAtoms float64 `protobuf:"fixed64,15,opt,name=free_energy_kj_per_mol_atoms,json=freeEnergyKjPerMolAtoms,proto3" json:"free_energy_kj_per_mol_atoms,omitempty"`
+	// S per mole of atoms, J/(mol·K).
+	EntropyJPerMolAtomsK float64 `protobuf:"fixed64,16,opt,name=entropy_j_per_mol_atoms_k,json=entropyJPerMolAtomsK,proto3" json:"entropy_j_per_mol_atoms_k,omitempty"`
+	// Cv per mole of atoms, J/(mol·K).
+	HeatCapacityJPerMolAtomsK float64 `protobuf:"fixed64,17,opt,name=heat_capacity_j_per_mol_atoms_k,json=heatCapacityJPerMolAtomsK,proto3" json:"heat_capacity_j_per_mol_atoms_k,omitempty"`
+	// U per kilogram, kJ/kg.
+	InternalEnergyKjPerKg float64 `protobuf:"fixed64,18,opt,name=internal_energy_kj_per_kg,json=internalEnergyKjPerKg,proto3" json:"internal_energy_kj_per_kg,omitempty"`
+	// F per kilogram, kJ/kg.
+	FreeEnergyKjPerKg float64 `protobuf:"fixed64,19,opt,name=free_energy_kj_per_kg,json=freeEnergyKjPerKg,proto3" json:"free_energy_kj_per_kg,omitempty"`
+	// S per kilogram, J/(kg·K).
+	EntropyJPerKgK float64 `protobuf:"fixed64,20,opt,name=entropy_j_per_kg_k,json=entropyJPerKgK,proto3" json:"entropy_j_per_kg_k,omitempty"`
+	// Cv per kilogram, J/(kg·K).
+	HeatCapacityJPerKgK float64 `protobuf:"fixed64,21,opt,name=heat_capacity_j_per_kg_k,json=heatCapacityJPerKgK,proto3" json:"heat_capacity_j_per_kg_k,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
 }
 
 func (x *ThermalPoint) Reset() {
@@ -2120,6 +2142,62 @@ func (x *ThermalPoint) GetDebyeTemperatureReason() string {
 	return ""
 }
 
+func (x *ThermalPoint) GetInternalEnergyKjPerMolAtoms() float64 {
+	if x != nil {
+		return x.InternalEnergyKjPerMolAtoms
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetFreeEnergyKjPerMolAtoms() float64 {
+	if x != nil {
+		return x.FreeEnergyKjPerMolAtoms
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetEntropyJPerMolAtomsK() float64 {
+	if x != nil {
+		return x.EntropyJPerMolAtomsK
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetHeatCapacityJPerMolAtomsK() float64 {
+	if x != nil {
+		return x.HeatCapacityJPerMolAtomsK
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetInternalEnergyKjPerKg() float64 {
+	if x != nil {
+		return x.InternalEnergyKjPerKg
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetFreeEnergyKjPerKg() float64 {
+	if x != nil {
+		return x.FreeEnergyKjPerKg
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetEntropyJPerKgK() float64 {
+	if x != nil {
+		return x.EntropyJPerKgK
+	}
+	return 0
+}
+
+func (x *ThermalPoint) GetHeatCapacityJPerKgK() float64 {
+	if x != nil {
+		return x.HeatCapacityJPerKgK
+	}
+	return 0
+}
+
 // ComputeThermalResponse holds thermal properties.
 type ComputeThermalResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -2131,15 +2209,24 @@ type ComputeThermalResponse struct {
 	Points []*ThermalPoint `protobuf:"bytes,3,rep,name=points,proto3" json:"points,omitempty"`
 	// Zero-point energy per cell, eV.
 	ZeroPointEnergyEv float64 `protobuf:"fixed64,4,opt,name=zero_point_energy_ev,json=zeroPointEnergyEv,proto3" json:"zero_point_energy_ev,omitempty"`
-	// Zero-point energy per mole of cells, kJ/mol.
+	// Zero-point energy per mole of cells (formula units), kJ/mol.
 	ZeroPointEnergyKjPerMol float64 `protobuf:"fixed64,5,opt,name=zero_point_energy_kj_per_mol,json=zeroPointEnergyKjPerMol,proto3" json:"zero_point_energy_kj_per_mol,omitempty"`
 	// Debye temperature from the sound velocities in the elastic limit, K
 	// (0 when not defined, e.g. p < d).
 	DebyeTemperatureElasticK float64 `protobuf:"fixed64,6,opt,name=debye_temperature_elastic_k,json=debyeTemperatureElasticK,proto3" json:"debye_temperature_elastic_k,omitempty"`
 	// Imaginary modes excluded from the sums (q-point × branch).
 	ImaginaryModesExcluded uint32 `protobuf:"varint,7,opt,name=imaginary_modes_excluded,json=imaginaryModesExcluded,proto3" json:"imaginary_modes_excluded,omitempty"`
-	unknownFields          protoimpl.UnknownFields
-	sizeCache              protoimpl.SizeCache
+	// Zero-point energy per mole of atoms, kJ/mol.
+	ZeroPointEnergyKjPerMolAtoms float64 `protobuf:"fixed64,8,opt,name=zero_point_energy_kj_per_mol_atoms,json=zeroPointEnergyKjPerMolAtoms,proto3" json:"zero_point_energy_kj_per_mol_atoms,omitempty"`
+	// Zero-point energy per kilogram, kJ/kg.
+	ZeroPointEnergyKjPerKg float64 `protobuf:"fixed64,9,opt,name=zero_point_energy_kj_per_kg,json=zeroPointEnergyKjPerKg,proto3" json:"zero_point_energy_kj_per_kg,omitempty"`
+	// Atoms (sites) per cell: per mole of atoms = per mole of cells / this.
+	AtomsPerCell uint32 `protobuf:"varint,10,opt,name=atoms_per_cell,json=atomsPerCell,proto3" json:"atoms_per_cell,omitempty"`
+	// Mass of one cell, the sum of its site masses, amu: per kilogram = per
+	// cell / (this × m_u), m_u = 1.66053906660e-27 kg (CODATA 2018).
+	CellMassAmu   float64 `protobuf:"fixed64,11,opt,name=cell_mass_amu,json=cellMassAmu,proto3" json:"cell_mass_amu,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ComputeThermalResponse) Reset() {
@@ -2217,6 +2304,34 @@ func (x *ComputeThermalResponse) GetDebyeTemperatureElasticK() float64 {
 func (x *ComputeThermalResponse) GetImaginaryModesExcluded() uint32 {
 	if x != nil {
 		return x.ImaginaryModesExcluded
+	}
+	return 0
+}
+
+func (x *ComputeThermalResponse) GetZeroPointEnergyKjPerMolAtoms() float64 {
+	if x != nil {
+		return x.ZeroPointEnergyKjPerMolAtoms
+	}
+	return 0
+}
+
+func (x *ComputeThermalResponse) GetZeroPointEnergyKjPerKg() float64 {
+	if x != nil {
+		return x.ZeroPointEnergyKjPerKg
+	}
+	return 0
+}
+
+func (x *ComputeThermalResponse) GetAtomsPerCell() uint32 {
+	if x != nil {
+		return x.AtomsPerCell
+	}
+	return 0
+}
+
+func (x *ComputeThermalResponse) GetCellMassAmu() float64 {
+	if x != nil {
+		return x.CellMassAmu
 	}
 	return 0
 }
@@ -2475,7 +2590,8 @@ type CheckModelResponse struct {
 	// Highest frequency found on the coarse grid, THz.
 	MaxFrequencyThz float64 `protobuf:"fixed64,14,opt,name=max_frequency_thz,json=maxFrequencyThz,proto3" json:"max_frequency_thz,omitempty"`
 	// Lattice type recognised from the lattice vectors: "sc", "fcc", "bcc",
-	// "hexagonal", "square", "rectangular", "1d", or empty when none.
+	// "hexagonal" (3D or 2D), "square", "rectangular", "centred-rectangular",
+	// "oblique", "1d", or empty when none.
 	LatticeType string `protobuf:"bytes,15,opt,name=lattice_type,json=latticeType,proto3" json:"lattice_type,omitempty"`
 	// Built-in labelled points of that lattice type (usable as PathPoint
 	// labels without q), sorted by label; q in fractional reciprocal
@@ -2486,7 +2602,11 @@ type CheckModelResponse struct {
 	// Estimated cost on this server of requests typical for this model,
 	// from the same estimators admission control uses: whether each would be
 	// admitted, its peak memory and its compute time.
-	TypicalCosts  []*RequestCost `protobuf:"bytes,18,rep,name=typical_costs,json=typicalCosts,proto3" json:"typical_costs,omitempty"`
+	TypicalCosts []*RequestCost `protobuf:"bytes,18,rep,name=typical_costs,json=typicalCosts,proto3" json:"typical_costs,omitempty"`
+	// The default path of this lattice type and dimensionality through the
+	// built-in points (labels, with break_before where a new piece starts);
+	// empty when the lattice has none (give coordinates instead).
+	DefaultPath   []*PathPoint `protobuf:"bytes,19,rep,name=default_path,json=defaultPath,proto3" json:"default_path,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2643,6 +2763,13 @@ func (x *CheckModelResponse) GetParameters() string {
 func (x *CheckModelResponse) GetTypicalCosts() []*RequestCost {
 	if x != nil {
 		return x.TypicalCosts
+	}
+	return nil
+}
+
+func (x *CheckModelResponse) GetDefaultPath() []*PathPoint {
+	if x != nil {
+		return x.DefaultPath
 	}
 	return nil
 }
@@ -2855,7 +2982,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\bu_iso_a2\x18\x04 \x01(\x01R\x06uIsoA2\x12\x11\n" +
 	"\x04b_a2\x18\x05 \x01(\x01R\x03bA2\x12\x1c\n" +
 	"\tdivergent\x18\x06 \x01(\bR\tdivergent\x12+\n" +
-	"\x11divergence_reason\x18\a \x01(\tR\x10divergenceReason\"\xc9\x05\n" +
+	"\x11divergence_reason\x18\a \x01(\tR\x10divergenceReason\"\x9b\t\n" +
 	"\fThermalPoint\x12#\n" +
 	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12,\n" +
 	"\x12internal_energy_ev\x18\x02 \x01(\x01R\x10internalEnergyEv\x12$\n" +
@@ -2870,7 +2997,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	" \x01(\x01R\x11debyeTemperatureK\x12C\n" +
 	"\rdisplacements\x18\v \x03(\v2\x1d.modegrid.v1.SiteDisplacementR\rdisplacements\x12]\n" +
 	"\x18debye_temperature_status\x18\f \x01(\x0e2#.modegrid.v1.DebyeTemperatureStatusR\x16debyeTemperatureStatus\x128\n" +
-	"\x18debye_temperature_reason\x18\r \x01(\tR\x16debyeTemperatureReason\"\xf3\x02\n" +
+	"\x18debye_temperature_reason\x18\r \x01(\tR\x16debyeTemperatureReason\x12E\n" +
+	" internal_energy_kj_per_mol_atoms\x18\x0e \x01(\x01R\x1binternalEnergyKjPerMolAtoms\x12=\n" +
+	"\x1cfree_energy_kj_per_mol_atoms\x18\x0f \x01(\x01R\x17freeEnergyKjPerMolAtoms\x127\n" +
+	"\x19entropy_j_per_mol_atoms_k\x18\x10 \x01(\x01R\x14entropyJPerMolAtomsK\x12B\n" +
+	"\x1fheat_capacity_j_per_mol_atoms_k\x18\x11 \x01(\x01R\x19heatCapacityJPerMolAtomsK\x128\n" +
+	"\x19internal_energy_kj_per_kg\x18\x12 \x01(\x01R\x15internalEnergyKjPerKg\x120\n" +
+	"\x15free_energy_kj_per_kg\x18\x13 \x01(\x01R\x11freeEnergyKjPerKg\x12*\n" +
+	"\x12entropy_j_per_kg_k\x18\x14 \x01(\x01R\x0eentropyJPerKgK\x125\n" +
+	"\x18heat_capacity_j_per_kg_k\x18\x15 \x01(\x01R\x13heatCapacityJPerKgK\"\xc4\x04\n" +
 	"\x16ComputeThermalResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -2881,7 +3016,12 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14zero_point_energy_ev\x18\x04 \x01(\x01R\x11zeroPointEnergyEv\x12=\n" +
 	"\x1czero_point_energy_kj_per_mol\x18\x05 \x01(\x01R\x17zeroPointEnergyKjPerMol\x12=\n" +
 	"\x1bdebye_temperature_elastic_k\x18\x06 \x01(\x01R\x18debyeTemperatureElasticK\x128\n" +
-	"\x18imaginary_modes_excluded\x18\a \x01(\rR\x16imaginaryModesExcluded\"C\n" +
+	"\x18imaginary_modes_excluded\x18\a \x01(\rR\x16imaginaryModesExcluded\x12H\n" +
+	"\"zero_point_energy_kj_per_mol_atoms\x18\b \x01(\x01R\x1czeroPointEnergyKjPerMolAtoms\x12;\n" +
+	"\x1bzero_point_energy_kj_per_kg\x18\t \x01(\x01R\x16zeroPointEnergyKjPerKg\x12$\n" +
+	"\x0eatoms_per_cell\x18\n" +
+	" \x01(\rR\fatomsPerCell\x12\"\n" +
+	"\rcell_mass_amu\x18\v \x01(\x01R\vcellMassAmu\"C\n" +
 	"\x11CheckModelRequest\x12.\n" +
 	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\"H\n" +
 	"\x0eFieldViolation\x12\x14\n" +
@@ -2895,7 +3035,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\x8b\x06\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc6\x06\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -2922,7 +3062,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"parameters\x18\x11 \x01(\tR\n" +
 	"parameters\x12=\n" +
-	"\rtypical_costs\x18\x12 \x03(\v2\x18.modegrid.v1.RequestCostR\ftypicalCosts\"|\n" +
+	"\rtypical_costs\x18\x12 \x03(\v2\x18.modegrid.v1.RequestCostR\ftypicalCosts\x129\n" +
+	"\fdefault_path\x18\x13 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath\"|\n" +
 	"\vRequestCost\x12\x18\n" +
 	"\arequest\x18\x01 \x01(\tR\arequest\x12\x1d\n" +
 	"\n" +
@@ -3053,21 +3194,22 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
 	31, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	26, // 39: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 40: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 41: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 42: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 43: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 44: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 45: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 46: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 47: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 48: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	44, // [44:49] is the sub-list for method output_type
-	39, // [39:44] is the sub-list for method input_type
-	39, // [39:39] is the sub-list for extension type_name
-	39, // [39:39] is the sub-list for extension extendee
-	0,  // [0:39] is the sub-list for field type_name
+	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	26, // 40: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 41: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 42: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 43: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 44: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 45: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 46: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 47: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 48: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 49: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	45, // [45:50] is the sub-list for method output_type
+	40, // [40:45] is the sub-list for method input_type
+	40, // [40:40] is the sub-list for extension type_name
+	40, // [40:40] is the sub-list for extension extendee
+	0,  // [0:40] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }

@@ -33,7 +33,7 @@ import (
 	"syscall"
 
 	"github.com/materials-lab/modegrid/server"
-	"github.com/materials-lab/modegrid/server/cache"
+	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
 )
 
 // version is stamped at build time with -ldflags "-X main.version=…".
@@ -73,7 +73,7 @@ type options struct {
 	maxQueue    int
 	reflection  bool
 	logLevel    string
-	redis       cache.RedisOptions
+	redis       rediscache.Options
 	redisMax    byteSize
 	redisPwFile string
 	crashFile   string
@@ -115,9 +115,9 @@ func newFlags(o *options) *flag.FlagSet {
 	o.cacheBytes = server.DefaultCacheBytes
 	fs.Var(&o.cacheBytes, "cache-bytes", "in-process result cache bound, bytes (suffix KiB/MiB/GiB allowed; 0 disables)")
 	fs.StringVar(&o.redis.Addr, "redis-addr", "", "Redis host:port of the shared second-level cache (empty: none)")
-	fs.DurationVar(&o.redis.TTL, "redis-ttl", cache.DefaultRedisTTL, "lifetime of a Redis cache entry")
-	fs.DurationVar(&o.redis.Timeout, "redis-timeout", cache.DefaultRedisTimeout, "bound on every Redis operation")
-	o.redisMax = cache.DefaultRedisMaxEntryBytes
+	fs.DurationVar(&o.redis.TTL, "redis-ttl", rediscache.DefaultTTL, "lifetime of a Redis cache entry")
+	fs.DurationVar(&o.redis.Timeout, "redis-timeout", rediscache.DefaultTimeout, "bound on every Redis operation")
+	o.redisMax = rediscache.DefaultMaxEntryBytes
 	fs.Var(&o.redisMax, "redis-max-entry-bytes", "largest value stored in Redis, bytes")
 	fs.StringVar(&o.redisPwFile, "redis-password-file", "", "file holding the Redis password (or set "+redisPasswordEnv+" to the password itself)")
 	fs.IntVar(&c.MaxConcurrent, "max-concurrent", 0, "computations run at once (0: one per core)")

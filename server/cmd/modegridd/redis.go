@@ -9,7 +9,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/materials-lab/modegrid/server/cache"
+	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
 )
 
 // redisPasswordEnv holds the Redis password itself. It is read from the
@@ -49,13 +49,13 @@ var errRedisAuth = errors.New("redis refused the credentials")
 // answering is no reason to stay down (requests are computed until it
 // answers); Redis refusing the password is a configuration error that
 // would fail every cache operation, so it stops the start.
-func connectRedis(ctx context.Context, opt cache.RedisOptions, log *slog.Logger) (*cache.Redis, error) {
-	cache.SetRedisLogger(log)
-	r := cache.NewRedis(opt)
+func connectRedis(ctx context.Context, opt rediscache.Options, log *slog.Logger) (*rediscache.Backend, error) {
+	rediscache.SetLogger(log)
+	r := rediscache.New(opt)
 	pctx, cancel := context.WithTimeout(ctx, time.Second)
 	defer cancel()
 	switch err := r.Ping(pctx); {
-	case cache.IsAuthError(err):
+	case rediscache.IsAuthError(err):
 		r.Close()
 		return nil, fmt.Errorf("%w: redis at %s: %v (password set: %v; check --redis-password-file or %s)",
 			errRedisAuth, opt.Addr, err, opt.Password != "", redisPasswordEnv)

@@ -1,4 +1,8 @@
-package cache
+// Package redis is the Redis second level of modegrid's result cache: a
+// cache.Backend shared by modegridd replicas. It lives apart from package
+// cache so that only the server binary (server/cmd/modegridd) links the
+// Redis client; the CLI, which embeds the server, does not.
+package redis
 
 import (
 	"context"
@@ -8,41 +12,41 @@ import (
 	"sync/atomic"
 	"time"
 
-	"github.com/redis/go-redis/v9"
+	goredis "github.com/redis/go-redis/v9"
 	"github.com/redis/go-redis/v9/maintnotifications"
 )
 
-// Defaults applied by NewRedis to zero fields of RedisOptions.
+// Defaults applied by New to zero fields of Options.
 const (
-	// DefaultRedisTTL is how long an entry lives in Redis. Results never go
+	// DefaultTTL is how long an entry lives in Redis. Results never go
 	// stale (a model hash and its parameters fix the answer), so the TTL only
 	// bounds the memory a shared Redis spends on models nobody asks for.
-	DefaultRedisTTL = 24 * time.Hour
-	// DefaultRedisMaxEntryBytes is the largest value stored; larger results
+	DefaultTTL = 24 * time.Hour
+	// DefaultMaxEntryBytes is the largest value stored; larger results
 	// (a fine DOS with per-site projections, a long dispersion of a big
 	// cell) stay in the in-memory LRU only.
-	DefaultRedisMaxEntryBytes = 4 << 20
-	// DefaultRedisTimeout bounds every Redis operation, dial included. A
+	DefaultMaxEntryBytes = 4 << 20
+	// DefaultTimeout bounds every Redis operation, dial included. A
 	// loopback or in-cluster round trip takes well under a millisecond, so
 	// 100 ms is ample for a healthy Redis and short against a computation.
-	DefaultRedisTimeout = 100 * time.Millisecond
-	// RedisKeyPrefix is put in front of every key so that modegrid can share
+	DefaultTimeout = 100 * time.Millisecond
+	// KeyPrefix is put in front of every key so that modegrid can share
 	// a Redis with other programs.
-	RedisKeyPrefix = "modegrid:"
+	KeyPrefix = "modegrid:"
 )
 
-// RedisOptions configure a Redis backend. The zero value is usable: every
+// Options configure a Redis backend. The zero value is usable: every
 // zero field takes its default.
-type RedisOptions struct {
+type Options struct {
 	// Addr is the Redis server, host:port (empty: 127.0.0.1:6379).
 	Addr string
-	// TTL is the lifetime of each stored entry (0: DefaultRedisTTL).
+	// TTL is the lifetime of each stored entry (0: DefaultTTL).
 	TTL time.Duration
 	// MaxEntryBytes is the size cap per entry, bytes; Set skips larger
-	// values (0: DefaultRedisMaxEntryBytes).
+	// values (0: DefaultMaxEntryBytes).
 	MaxEntryBytes int
 	// Timeout bounds each Get or Set, including dialling (0:
-	// DefaultRedisTimeout).
+	// DefaultTimeout).
 	Timeout time.Duration
 	// Password is sent with AUTH on every new connection (Redis's
 	// requirepass); empty: none. It is never logged.
@@ -51,7 +55,7 @@ type RedisOptions struct {
 
 // String describes the options without the password, so that logging
 // them never leaks it.
-func (o RedisOptions) String() string {
+func (o Options) String() string {
 	return fmt.Sprintf("addr=%s ttl=%v max_entry_bytes=%d timeout=%v password_set=%v",
 		o.Addr, o.TTL, o.MaxEntryBytes, o.Timeout, o.Password != "")
 }
@@ -60,39 +64,39 @@ func (o RedisOptions) String() string {
 // wrong password (WRONGPASS) or none where one is required (NOAUTH). These
 // are configuration errors, not outages: retrying will not fix them. (A
 // Redis without requirepass accepts any password.)
-func IsAuthError(err error) bool { return err != nil && redis.IsAuthError(err) }
+func IsAuthError(err error) bool { return err != nil && goredis.IsAuthError(err) }
 
-// Redis is a Backend that keeps entries in a Redis server shared by several
-// modegridd replicas. It never blocks a request for long: every operation
+// Backend is a cache.Backend that keeps entries in a Redis server shared by
+// several modegridd replicas. It never blocks a request for long: every operation
 // is bounded by the configured timeout, commands are not retried, and after
 // repeated dial failures go-redis's pool fails fast (probing the server in
 // the background once a second) until Redis is back. Errors are returned to
 // the caller, which counts them and computes instead. Safe for concurrent
 // use.
-type Redis struct {
-	rdb     *redis.Client
+type Backend struct {
+	rdb     *goredis.Client
 	ttl     time.Duration
 	maxSize int
 	timeout time.Duration
 	skipped atomic.Uint64 // values not stored because they exceeded maxSize
 }
 
-// NewRedis returns a Redis backend for opt. It does not connect: the first
+// New returns a Redis backend for opt. It does not connect: the first
 // operation dials, so a replica starts even while Redis is down.
-func NewRedis(opt RedisOptions) *Redis {
+func New(opt Options) *Backend {
 	if opt.Addr == "" {
 		opt.Addr = "127.0.0.1:6379"
 	}
 	if opt.TTL <= 0 {
-		opt.TTL = DefaultRedisTTL
+		opt.TTL = DefaultTTL
 	}
 	if opt.MaxEntryBytes <= 0 {
-		opt.MaxEntryBytes = DefaultRedisMaxEntryBytes
+		opt.MaxEntryBytes = DefaultMaxEntryBytes
 	}
 	if opt.Timeout <= 0 {
-		opt.Timeout = DefaultRedisTimeout
+		opt.Timeout = DefaultTimeout
 	}
-	rdb := redis.NewClient(&redis.Options{
+	rdb := goredis.NewClient(&goredis.Options{
 		Addr:                  opt.Addr,
 		Password:              opt.Password,
 		DialTimeout:           opt.Timeout,
@@ -110,16 +114,16 @@ func NewRedis(opt RedisOptions) *Redis {
 		DisableIdentity:          true,
 		MaintNotificationsConfig: &maintnotifications.Config{Mode: maintnotifications.ModeDisabled},
 	})
-	return &Redis{rdb: rdb, ttl: opt.TTL, maxSize: opt.MaxEntryBytes, timeout: opt.Timeout}
+	return &Backend{rdb: rdb, ttl: opt.TTL, maxSize: opt.MaxEntryBytes, timeout: opt.Timeout}
 }
 
 // Get returns the value stored under key. A missing key is (nil, false,
 // nil); an unreachable, slow or failing Redis is an error.
-func (r *Redis) Get(ctx context.Context, key string) ([]byte, bool, error) {
+func (r *Backend) Get(ctx context.Context, key string) ([]byte, bool, error) {
 	ctx, cancel := context.WithTimeout(ctx, r.timeout)
 	defer cancel()
-	b, err := r.rdb.Get(ctx, RedisKeyPrefix+key).Bytes()
-	if errors.Is(err, redis.Nil) {
+	b, err := r.rdb.Get(ctx, KeyPrefix+key).Bytes()
+	if errors.Is(err, goredis.Nil) {
 		return nil, false, nil
 	}
 	if err != nil {
@@ -131,14 +135,14 @@ func (r *Redis) Get(ctx context.Context, key string) ([]byte, bool, error) {
 // Set stores value under key with the configured TTL. A value larger than
 // the size cap is skipped (not an error: the in-memory cache still holds
 // it); SkippedTooLarge counts those.
-func (r *Redis) Set(ctx context.Context, key string, value []byte) error {
+func (r *Backend) Set(ctx context.Context, key string, value []byte) error {
 	if len(value) > r.maxSize {
 		r.skipped.Add(1)
 		return nil
 	}
 	ctx, cancel := context.WithTimeout(ctx, r.timeout)
 	defer cancel()
-	if err := r.rdb.Set(ctx, RedisKeyPrefix+key, value, r.ttl).Err(); err != nil {
+	if err := r.rdb.Set(ctx, KeyPrefix+key, value, r.ttl).Err(); err != nil {
 		return fmt.Errorf("redis set: %w", err)
 	}
 	return nil
@@ -146,7 +150,7 @@ func (r *Redis) Set(ctx context.Context, key string, value []byte) error {
 
 // Ping checks that Redis answers within the timeout; modegridd uses it to
 // log the cache's state at start-up.
-func (r *Redis) Ping(ctx context.Context) error {
+func (r *Backend) Ping(ctx context.Context) error {
 	ctx, cancel := context.WithTimeout(ctx, r.timeout)
 	defer cancel()
 	if err := r.rdb.Ping(ctx).Err(); err != nil {
@@ -157,22 +161,22 @@ func (r *Redis) Ping(ctx context.Context) error {
 
 // SkippedTooLarge is the number of values Set did not store because they
 // exceeded MaxEntryBytes.
-func (r *Redis) SkippedTooLarge() uint64 { return r.skipped.Load() }
+func (r *Backend) SkippedTooLarge() uint64 { return r.skipped.Load() }
 
 // Close closes the connections to Redis.
-func (r *Redis) Close() error { return r.rdb.Close() }
+func (r *Backend) Close() error { return r.rdb.Close() }
 
-// SetRedisLogger sends go-redis's own log lines (one per failed dial while
+// SetLogger sends go-redis's own log lines (one per failed dial while
 // Redis is down, for example) to l at debug level instead of the standard
 // library logger on stderr. The server already logs and counts every
 // backend error, so these lines are detail. go-redis's logger is
 // process-wide: call this once, from main.
-func SetRedisLogger(l *slog.Logger) {
-	redis.SetLogger(redisLogger{l})
+func SetLogger(l *slog.Logger) {
+	goredis.SetLogger(logger{l})
 }
 
-type redisLogger struct{ l *slog.Logger }
+type logger struct{ l *slog.Logger }
 
-func (r redisLogger) Printf(ctx context.Context, format string, v ...any) {
+func (r logger) Printf(ctx context.Context, format string, v ...any) {
 	r.l.DebugContext(ctx, fmt.Sprintf(format, v...), "component", "go-redis")
 }

@@ -1,0 +1,271 @@
+package main
+
+import (
+	"bufio"
+	"fmt"
+	"io"
+	"math"
+	"math/cmplx"
+	"os"
+	"strings"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+const shapeSummary = `The motion of one normal mode, as a multi-frame XYZ trajectory (--xyz
+FILE, or - for stdout): per frame a line with the atom count, a comment
+line, then "label x y z" (Å) per atom of a block of --cells cells. Site s of
+cell n moves by Re[A e_s(q) exp(i(2π q·n − ωt))]/sqrt(m_s) (the engine's
+cell phase convention: eigenvectors carry the phase within the cell), A
+scaled so that the largest site amplitude is --amplitude Å; the --frames
+frames sample one period. The default block is the fewest cells (up to 12
+per lattice vector) on which the mode is periodic.`
+
+// shapeOptions are the parsed flags of `shape`.
+type shapeOptions struct {
+	q          [3]float64
+	branch     int     // 1-based
+	amplitudeA float64 // largest site amplitude, Å
+	cells      [3]int
+	frames     int
+}
+
+func cmdShape(args []string, e *env) error {
+	c := newModelCommand("shape", false)
+	fs := c.fs
+	qFlag := fs.String("q", "", "the q-point, fractional reciprocal coordinates: q1[,q2[,q3]]")
+	branch := fs.Int("branch", 1, "the branch, 1 = lowest frequency at q")
+	amplitude := fs.Float64("amplitude", 0.1, "largest site displacement amplitude, Å")
+	cellsFlag := fs.String("cells", "", "block of N1xN2xN3 cells to show (default: the fewest on which the mode is periodic)")
+	frames := fs.Int("frames", 20, "frames per period")
+	xyz := fs.String("xyz", "", "write the trajectory to this XYZ file (- for stdout)")
+	if err := c.parse(args, e, shapeSummary); err != nil {
+		return err
+	}
+	if *xyz == "" {
+		return usagef("--xyz FILE is required (- writes to stdout)")
+	}
+	if *qFlag == "" {
+		return usagef("--q is required")
+	}
+	qs, err := parseQList(*qFlag)
+	if err != nil {
+		return usagef("--q: %v", err)
+	}
+	if len(qs) != 1 {
+		return usagef("--q: one q-point, got %d", len(qs))
+	}
+	switch {
+	case *branch < 1:
+		return usagef("--branch must be ≥ 1, got %d", *branch)
+	case !(*amplitude > 0) || math.IsInf(*amplitude, 0):
+		return usagef("--amplitude must be a number of Å > 0, got %v", *amplitude)
+	case *frames < 1 || *frames > 10000:
+		return usagef("--frames must be in [1, 10000], got %d", *frames)
+	}
+	crystal, err := c.m.load()
+	if err != nil {
+		return err
+	}
+	d, p := dims(crystal)
+	opt := shapeOptions{q: qs[0], branch: *branch, amplitudeA: *amplitude, frames: *frames, cells: defaultShapeCells(qs[0], d)}
+	if *cellsFlag != "" {
+		mesh, err := parseMesh(*cellsFlag)
+		if err != nil {
+			return usagef("--cells: %v", err)
+		}
+		mesh = expandMesh(mesh, d)
+		if len(mesh) != d {
+			return usagef("--cells: %d numbers for a %d-dimensional crystal", len(mesh), d)
+		}
+		opt.cells = [3]int{1, 1, 1}
+		total := 1
+		for k, n := range mesh {
+			opt.cells[k] = int(n)
+			total *= int(n)
+		}
+		if total*len(crystal.GetSites()) > 1_000_000 {
+			return usagef("--cells: %s cells of %d sites is over a million atoms", *cellsFlag, len(crystal.GetSites()))
+		}
+	}
+	cl, ctx, release, err := c.dial()
+	if err != nil {
+		return err
+	}
+	defer release()
+	resp, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: c.source(crystal), Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_THZ,
+		Qpoints:      &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: &modegridv1.QPointList{Points: []*modegridv1.QPoint{{Q1: opt.q[0], Q2: opt.q[1], Q3: opt.q[2]}}}}},
+		Eigenvectors: true})
+	if err != nil {
+		return err
+	}
+	pts := resp.GetPoints()
+	if len(pts) != 1 {
+		return fmt.Errorf("the server sent %d points for one q-point", len(pts))
+	}
+	if n := len(pts[0].GetFrequencies()); opt.branch > n {
+		return usagef("--branch must be ≤ %d (the modes per cell), got %d", n, opt.branch)
+	}
+	tr, err := modeTrajectory(crystal, p, pts[0], opt)
+	if err != nil {
+		return err
+	}
+	if *xyz == "-" {
+		return tr.writeXYZ(e.stdout)
+	}
+	f, err := os.Create(*xyz)
+	if err != nil {
+		return fmt.Errorf("cannot write the output: %w", err)
+	}
+	if err := tr.writeXYZ(f); err != nil {
+		f.Close()
+		return fmt.Errorf("cannot write the output: %w", err)
+	}
+	return f.Close()
+}
+
+// defaultShapeCells is, per lattice vector, the fewest cells N ≤ 12 with
+// N·q_k an integer (the mode is then periodic on the block, so the frames
+// tile space and loop); 8 when there is none; 1 past the dimensionality.
+func defaultShapeCells(q [3]float64, d int) [3]int {
+	out := [3]int{1, 1, 1}
+	for k := 0; k < d; k++ {
+		out[k] = 8
+		for n := 1; n <= 12; n++ {
+			x := float64(n) * q[k]
+			if math.Abs(x-math.Round(x)) < 1e-9 {
+				out[k] = n
+				break
+			}
+		}
+	}
+	return out
+}
+
+// trajectory is the frames of a mode's motion: labels[i] and
+// frames[f][i] (Cartesian Å) for every atom of the block.
+type trajectory struct {
+	labels  []string
+	frames  [][][3]float64
+	comment []string // one per frame
+}
+
+// modeTrajectory computes the frames: atom (n, s) at R_n + τ_s plus
+// Re[A e_s exp(i(2π q·n − 2π f/F))]/sqrt(m_s), the eigenvector's global
+// phase fixed so that its largest component is real and positive (frame 0
+// is then a turning point of that atom).
+func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*trajectory, error) {
+	sites := c.GetSites()
+	n := len(sites) * pol
+	b := o.branch - 1
+	raw := pm.GetEigenvectors()
+	if len(raw) != 2*n*len(pm.GetFrequencies()) {
+		return nil, fmt.Errorf("the server sent %d eigenvector numbers for %d modes of %d components", len(raw), len(pm.GetFrequencies()), n)
+	}
+	e := make([]complex128, n)
+	big := 0
+	for i := range e {
+		e[i] = complex(raw[2*(b*n+i)], raw[2*(b*n+i)+1])
+		if cmplx.Abs(e[i]) > cmplx.Abs(e[big]) {
+			big = i
+		}
+	}
+	if a := cmplx.Abs(e[big]); a > 0 {
+		g := cmplx.Conj(e[big]) / complex(a, 0)
+		for i := range e {
+			e[i] *= g
+		}
+	}
+	// Scale: the largest |e_s|/sqrt(m_s) becomes the amplitude.
+	var peak float64
+	for s, site := range sites {
+		var l2 float64
+		for a := 0; a < pol; a++ {
+			l2 += real(e[s*pol+a] * cmplx.Conj(e[s*pol+a]))
+		}
+		peak = math.Max(peak, math.Sqrt(l2/site.GetMassAmu()))
+	}
+	if !(peak > 0) {
+		return nil, fmt.Errorf("branch %d at q has a zero eigenvector", o.branch)
+	}
+	amp := o.amplitudeA / peak
+	lat := c.GetLattice()
+	vec := func(k int) [3]float64 {
+		if k >= len(lat) {
+			return [3]float64{}
+		}
+		return [3]float64{lat[k].GetX(), lat[k].GetY(), lat[k].GetZ()}
+	}
+	nu := pm.GetFrequencies()[b]
+	tr := &trajectory{}
+	type atom struct {
+		rest [3]float64
+		s    int
+		cell [3]int
+	}
+	var atoms []atom
+	for n1 := 0; n1 < o.cells[0]; n1++ {
+		for n2 := 0; n2 < o.cells[1]; n2++ {
+			for n3 := 0; n3 < o.cells[2]; n3++ {
+				cell := [3]int{n1, n2, n3}
+				for s, site := range sites {
+					var r [3]float64
+					for k := 0; k < 3; k++ {
+						x := float64(cell[k])
+						if k < len(site.GetFrac()) {
+							x += site.GetFrac()[k]
+						}
+						v := vec(k)
+						for a := range r {
+							r[a] += x * v[a]
+						}
+					}
+					atoms = append(atoms, atom{r, s, cell})
+					tr.labels = append(tr.labels, site.GetLabel())
+				}
+			}
+		}
+	}
+	for f := 0; f < o.frames; f++ {
+		t := 2 * math.Pi * float64(f) / float64(o.frames) // ωt
+		pos := make([][3]float64, len(atoms))
+		for i, at := range atoms {
+			phase := 2*math.Pi*(o.q[0]*float64(at.cell[0])+o.q[1]*float64(at.cell[1])+o.q[2]*float64(at.cell[2])) - t
+			w := cmplx.Exp(complex(0, phase)) * complex(amp/math.Sqrt(sites[at.s].GetMassAmu()), 0)
+			pos[i] = at.rest
+			for a := 0; a < pol; a++ {
+				pos[i][a] += real(e[at.s*pol+a] * w)
+			}
+		}
+		tr.frames = append(tr.frames, pos)
+		tr.comment = append(tr.comment, fmt.Sprintf("%s q=(%g,%g,%g) branch %d frequency %.6g THz%s frame %d/%d phase %.4f rad amplitude %g Angstrom cells %dx%dx%d",
+			strings.ReplaceAll(c.GetName(), "\n", " "), o.q[0], o.q[1], o.q[2], o.branch, nu, imaginaryNote(nu), f+1, o.frames, t, o.amplitudeA, o.cells[0], o.cells[1], o.cells[2]))
+	}
+	return tr, nil
+}
+
+// imaginaryNote marks an imaginary mode, whose pattern grows instead of
+// oscillating: the frames then cycle the pattern's phase only.
+func imaginaryNote(nu float64) string {
+	if nu < 0 {
+		return " (imaginary: the frames cycle the pattern's phase; it does not oscillate)"
+	}
+	return ""
+}
+
+// writeXYZ writes the frames in the XYZ format: atom count, comment, then
+// "label x y z" per atom.
+func (tr *trajectory) writeXYZ(w io.Writer) error {
+	bw := bufio.NewWriter(w)
+	for f, pos := range tr.frames {
+		fmt.Fprintf(bw, "%d\n%s\n", len(pos), tr.comment[f])
+		for i, r := range pos {
+			label := tr.labels[i]
+			if label == "" || strings.ContainsAny(label, " \t") {
+				label = "X"
+			}
+			fmt.Fprintf(bw, "%s %.6f %.6f %.6f\n", label, r[0], r[1], r[2])
+		}
+	}
+	return bw.Flush()
+}

@@ -1,0 +1,384 @@
+// Tests of cancellation: every long stage stops when its context ends,
+// returns the context's error, and keeps nothing half-computed.
+
+package physics
+
+import (
+	"context"
+	"errors"
+	"flag"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+)
+
+// hangGuard bounds how long a cancelled stage may take to return before
+// the test calls it hung: a detector of stages that ignore cancellation
+// (which would run on for seconds to minutes), not a latency requirement.
+const hangGuard = 10 * time.Second
+
+// pollCtx is a context that signals, by closing reached, the moment the
+// stage under test has polled it `after` times with Err, or — when after
+// is 0 — first asked for its Done channel (the eigensolver and the grid
+// workers take ctx.Done() once and poll the channel). The stage is then
+// inside its loops and the test cancels it.
+type pollCtx struct {
+	context.Context
+	after   int64
+	polls   atomic.Int64
+	once    sync.Once
+	reached chan struct{}
+}
+
+func newPollCtx(parent context.Context, after int64) *pollCtx {
+	return &pollCtx{Context: parent, after: after, reached: make(chan struct{})}
+}
+
+func (c *pollCtx) Err() error {
+	if n := c.polls.Add(1); c.after > 0 && n == c.after {
+		c.once.Do(func() { close(c.reached) })
+	}
+	return c.Context.Err()
+}
+
+func (c *pollCtx) Done() <-chan struct{} {
+	if c.after == 0 {
+		c.once.Do(func() { close(c.reached) })
+	}
+	return c.Context.Done()
+}
+
+// cancelMidway runs stage with a context cancelled once the stage has
+// polled it after times (0: once it took the Done channel), and checks
+// that it returns context.Canceled. It returns the time from the
+// cancellation to the stage's return.
+func cancelMidway(t *testing.T, after int64, stage func(ctx context.Context) error) time.Duration {
+	t.Helper()
+	parent, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	ctx := newPollCtx(parent, after)
+	result := make(chan error, 1)
+	var returned time.Time
+	go func() {
+		err := stage(ctx)
+		returned = time.Now()
+		result <- err
+	}()
+	select {
+	case <-ctx.reached:
+	case err := <-result:
+		t.Fatalf("the stage returned (%v) after %d polls of its context, before the event (after=%d)", err, ctx.polls.Load(), after)
+	}
+	cancelled := time.Now()
+	cancel()
+	select {
+	case err := <-result:
+		if !errors.Is(err, context.Canceled) {
+			t.Fatalf("cancelled stage returned %v; want context.Canceled", err)
+		}
+		return returned.Sub(cancelled)
+	case <-time.After(hangGuard):
+		t.Fatalf("the stage did not return within %v of its cancellation", hangGuard)
+		return 0
+	}
+}
+
+// bigCrystal returns the rock-salt-like example as an m1×m2×m3 supercell
+// of its 8-site conventional cube (8·m1·m2·m3 sites, shells by label).
+func bigCrystal(t testing.TB, m1, m2, m3 int) *Crystal {
+	cube := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
+	return supercell(t, cube, [3][3]int{{m1, 0, 0}, {0, m2, 0}, {0, 0, m3}})
+}
+
+var (
+	big256Once  sync.Once
+	big256Model *Model
+)
+
+// big256 is a 256-site model shared by the stage tests: compiled once (a
+// fraction of a second); its lazy symmetry and long-wave limit take
+// seconds, so each test cancels them midway on the same model, which a
+// cancelled stage must leave usable.
+func big256(t testing.TB) *Model {
+	big256Once.Do(func() { big256Model = mustCompile(t, bigCrystal(t, 4, 4, 2)) })
+	if big256Model == nil {
+		t.Fatal("the 256-site model did not compile")
+	}
+	return big256Model
+}
+
+// TestCancelCompile: the neighbour search of a 512-site model (about a
+// second of work) stops when cancelled.
+func TestCancelCompile(t *testing.T) {
+	c := bigCrystal(t, 4, 4, 4)
+	lat := cancelMidway(t, 2000, func(ctx context.Context) error {
+		_, err := Compile(ctx, c, Options{})
+		return err
+	})
+	t.Logf("Compile, 512 sites: returned %v after cancellation", lat)
+}
+
+// TestCancelSymmetry: the symmetry search of a 256-site model stops when
+// cancelled, and a later call still finds the operations of a fresh
+// model (nothing partial was kept; checked on a small model, where the
+// search is quick).
+func TestCancelSymmetry(t *testing.T) {
+	m := big256(t)
+	lat := cancelMidway(t, 100, func(ctx context.Context) error {
+		_, err := m.Symmetry(ctx)
+		return err
+	})
+	t.Logf("Symmetry, 256 sites: returned %v after cancellation", lat)
+}
+
+// TestCancelLongWave: the long-wave set-up of a 256-site model (the dense
+// route: an eigendecomposition of order 774 and a QR factorisation) stops
+// when cancelled inside the eigensolver.
+func TestCancelLongWave(t *testing.T) {
+	m := big256(t)
+	lat := cancelMidway(t, 0, func(ctx context.Context) error {
+		_, err := m.SoundVelocities(ctx, [3]float64{1, 0, 0})
+		return err
+	})
+	t.Logf("long-wave set-up, 256 sites: returned %v after cancellation", lat)
+}
+
+// TestCancelStability: the stability grid of a 256-site model stops when
+// cancelled (in the symmetry search, or in the 768×768 eigenproblems).
+func TestCancelStability(t *testing.T) {
+	m := big256(t)
+	lat := cancelMidway(t, 0, func(ctx context.Context) error {
+		_, _, _, err := m.Stability(ctx, 2)
+		return err
+	})
+	t.Logf("Stability, 256 sites: returned %v after cancellation", lat)
+}
+
+// TestCancelReduceGrid: reducing a 4-million-point grid stops when
+// cancelled (the fcc symmetry is found first, uncancelled).
+func TestCancelReduceGrid(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "fcc"))
+	mustSymmetry(t, m)
+	lat := cancelMidway(t, 20, func(ctx context.Context) error {
+		_, err := m.ReduceGrid(ctx, GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
+		return err
+	})
+	t.Logf("ReduceGrid, 4.1 M points: returned %v after cancellation", lat)
+}
+
+// TestCancelTetraClasses: building the tetrahedron classes of a fresh
+// 90³ grid stops when cancelled, and caches nothing: the DOS computed
+// afterwards equals the one computed without symmetry classes.
+func TestCancelTetraClasses(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "fcc"))
+	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{90, 90, 90}}, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+	lat := cancelMidway(t, 20, func(ctx context.Context) error {
+		_, err := simplexClasses(ctx, g, set)
+		return err
+	})
+	t.Logf("tetrahedron classes, 90³: returned %v after cancellation", lat)
+	classes, err := simplexClasses(context.Background(), g, set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var n float64
+	for _, c := range classes {
+		n += c.count
+	}
+	if want := float64(90 * 90 * 90 * len(set.corners)); n != want {
+		t.Errorf("classes after a cancelled build hold %g simplices; want %g", n, want)
+	}
+}
+
+// TestCancelThermal: the thermal sums over a large grid and many
+// temperatures stop when cancelled.
+func TestCancelThermal(t *testing.T) {
+	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{48, 48, 48}}, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	temps := make([]float64, 4000)
+	for i := range temps {
+		temps[i] = 1 + float64(i)/4
+	}
+	lat := cancelMidway(t, 3, func(ctx context.Context) error {
+		_, err := ComputeThermal(ctx, m, g, ThermalOptions{TempsK: temps})
+		return err
+	})
+	t.Logf("ComputeThermal, 48³ × 4000 temperatures: returned %v after cancellation", lat)
+}
+
+// TestCancelledFirstUseKeepsNothing: a first use of the lazy per-model
+// values under an ended context fails with its error and stores nothing,
+// so the next use computes the same result as on a fresh model.
+func TestCancelledFirstUseKeepsNothing(t *testing.T) {
+	c := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
+	m := mustCompile(t, c)
+	done, cancel := context.WithCancel(context.Background())
+	cancel()
+	if ops, err := m.Symmetry(done); !errors.Is(err, context.Canceled) || ops != nil {
+		t.Fatalf("Symmetry(cancelled) = %d ops, %v; want none and context.Canceled", len(ops), err)
+	}
+	dir := [3]float64{1, 2, 3}
+	if v, err := m.SoundVelocities(done, dir); !errors.Is(err, context.Canceled) || v != nil {
+		t.Fatalf("SoundVelocities(cancelled) = %v, %v; want nil and context.Canceled", v, err)
+	}
+	fresh := mustCompile(t, c)
+	if got, want := len(mustSymmetry(t, m)), len(mustSymmetry(t, fresh)); got != want || want != 48 {
+		t.Errorf("after a cancelled search: %d operations; a fresh model has %d (want 48, the cubic group Oh)", got, want)
+	}
+	got, want := mustSound(t, m, dir), mustSound(t, fresh, dir)
+	if len(got) != 3 || !closeSlices(got, want, 0) {
+		t.Errorf("after a cancelled set-up: velocities %v; a fresh model gives %v", got, want)
+	}
+}
+
+// TestLazy: one computation for concurrent first users; a waiter leaves
+// when its own context ends; a failed or panicking computation stores
+// nothing and the next caller computes again.
+func TestLazy(t *testing.T) {
+	var l lazy[int]
+	started, release := make(chan struct{}), make(chan struct{})
+	var calls atomic.Int32
+	slow := func(context.Context) (int, error) {
+		calls.Add(1)
+		close(started)
+		<-release
+		return 7, nil
+	}
+	first := make(chan int)
+	go func() {
+		v, _ := l.get(context.Background(), slow)
+		first <- v
+	}()
+	<-started
+	// A waiter whose context ends leaves with its error, the computation
+	// carries on.
+	gone, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := l.get(gone, slow); !errors.Is(err, context.Canceled) {
+		t.Fatalf("waiter with an ended context: %v; want context.Canceled", err)
+	}
+	second := make(chan int)
+	go func() {
+		v, _ := l.get(context.Background(), slow)
+		second <- v
+	}()
+	close(release)
+	if a, b := <-first, <-second; a != 7 || b != 7 || calls.Load() != 1 {
+		t.Fatalf("got %d and %d from %d computations; want 7 and 7 from 1", a, b, calls.Load())
+	}
+
+	var f lazy[int]
+	boom := errors.New("boom")
+	if _, err := f.get(context.Background(), func(context.Context) (int, error) { return 1, boom }); !errors.Is(err, boom) {
+		t.Fatalf("failing computation: %v; want %v", err, boom)
+	}
+	func() {
+		defer func() { _ = recover() }()
+		_, _ = f.get(context.Background(), func(context.Context) (int, error) { panic("inside compute") })
+	}()
+	if v, err := f.get(context.Background(), func(context.Context) (int, error) { return 3, nil }); v != 3 || err != nil {
+		t.Fatalf("after a failure and a panic: %d, %v; want 3, nil", v, err)
+	}
+}
+
+var cancelTable = flag.Bool("cancel.table", false, "measure the cancel-to-return latency of every long stage at 512 sites (slow)")
+
+// TestCancelLatencyTable measures, for every long stage on a 512-site model
+// (and the grid stages on large grids), the time from cancellation to
+// return, cancelling after a ladder of delays so that every phase of the
+// stage is hit. It asserts nothing; it prints the table quoted in
+// DEVELOPERS.md. Run:
+//
+//	go test -run TestCancelLatencyTable -v ./physics/ -args -cancel.table
+func TestCancelLatencyTable(t *testing.T) {
+	if !*cancelTable {
+		t.Skip("the latency table runs with -args -cancel.table")
+	}
+	c512 := bigCrystal(t, 4, 4, 4)
+	m512 := mustCompile(t, c512)
+	fcc := mustCompile(t, loadExample(t, "fcc"))
+	mustSymmetry(t, fcc)
+	g96, err := fcc.GridModes(context.Background(), GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	delays := []time.Duration{time.Millisecond, 10 * time.Millisecond, 30 * time.Millisecond, 100 * time.Millisecond, 300 * time.Millisecond, time.Second, 3 * time.Second, 10 * time.Second}
+	stages := []struct {
+		name  string
+		stage func(ctx context.Context) error
+	}{
+		{"Compile, 512 sites", func(ctx context.Context) error { _, err := Compile(ctx, c512, Options{}); return err }},
+		{"Symmetry, 512 sites", func(ctx context.Context) error { _, err := m512.Symmetry(ctx); return err }},
+		{"long-wave set-up, 512 sites", func(ctx context.Context) error {
+			_, err := m512.SoundVelocities(ctx, [3]float64{1, 0, 0})
+			return err
+		}},
+		{"Stability mesh 2, 512 sites", func(ctx context.Context) error { _, _, _, err := m512.Stability(ctx, 2); return err }},
+		{"ReduceGrid 161×160×159 (fcc)", func(ctx context.Context) error {
+			_, err := fcc.ReduceGrid(ctx, GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
+			return err
+		}},
+		{"GridModes 160³ no symmetry (fcc)", func(ctx context.Context) error {
+			_, err := fcc.GridModes(ctx, GridSpec{Mesh: [3]int{160, 160, 160}}, GridOptions{NoSymmetry: true})
+			return err
+		}},
+		{"tetrahedron DOS 96³, cold classes (fcc)", func(ctx context.Context) error {
+			// g96 has no ReductionCache: the classes are built every time.
+			_, err := ComputeDOS(ctx, fcc, g96, DOSOptions{})
+			return err
+		}},
+		{"ComputeThermal 96³ × 20 000 temperatures (fcc)", func(ctx context.Context) error {
+			temps := make([]float64, 20000)
+			for i := range temps {
+				temps[i] = 1 + float64(i)/20
+			}
+			_, err := ComputeThermal(ctx, fcc, g96, ThermalOptions{TempsK: temps})
+			return err
+		}},
+	}
+	t.Logf("| stage | cancellations | largest cancel-to-return | mean |")
+	t.Logf("|---|---|---|---|")
+	for _, st := range stages {
+		var worst, sum time.Duration
+		n := 0
+		for _, d := range delays {
+			ctx, cancel := context.WithCancel(context.Background())
+			var at time.Time
+			var mu sync.Mutex
+			timer := time.AfterFunc(d, func() {
+				mu.Lock()
+				at = time.Now()
+				mu.Unlock()
+				cancel()
+			})
+			err := st.stage(ctx)
+			end := time.Now()
+			timer.Stop()
+			cancel()
+			if !errors.Is(err, context.Canceled) {
+				break // finished before this delay: later ones would too
+			}
+			mu.Lock()
+			lat := end.Sub(at)
+			mu.Unlock()
+			worst = max(worst, lat)
+			sum += lat
+			n++
+		}
+		if n == 0 {
+			t.Logf("| %s | 0 (finished within %v) | — | — |", st.name, delays[0])
+			continue
+		}
+		t.Logf("| %s | %d | %.2f ms | %.2f ms |", st.name, n, ms(worst), ms(sum/time.Duration(n)))
+	}
+}
+
+func ms(d time.Duration) float64 { return float64(d) / float64(time.Millisecond) }
