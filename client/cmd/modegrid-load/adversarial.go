@@ -133,12 +133,12 @@ func (r *Row) Pass() bool {
 	return len(r.gotCodes) > 0
 }
 
-// adversarial runs the suite (long or short) against bin and returns its
-// rows.
-func adversarial(ctx context.Context, bin string, long bool, progress io.Writer) []*Row {
+// adversarial runs the suite (long or short; only the rows whose request
+// contains only) against bin and returns its rows.
+func adversarial(ctx context.Context, bin string, long bool, only string, progress io.Writer) []*Row {
 	var rows []*Row
 	for _, at := range attacks() {
-		if (long && !at.long) || (!long && !at.short) {
+		if (long && !at.long) || (!long && !at.short) || !strings.Contains(at.name, only) {
 			continue
 		}
 		fmt.Fprintf(progress, "adversarial: %s\n", at.name)
@@ -374,7 +374,7 @@ const (
 // work before refusal, a slot not released, the server not serving or
 // exiting); the time and memory goals are reported, not enforced.
 func runAdversarial(ctx context.Context, o *options, stdout, stderr io.Writer) int {
-	rows := adversarial(ctx, o.spawn, o.long, stderr)
+	rows := adversarial(ctx, o.spawn, o.long, o.only, stderr)
 	if o.jsonOut {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")

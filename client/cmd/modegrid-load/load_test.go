@@ -343,7 +343,7 @@ func TestAdversarialShort(t *testing.T) {
 	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
 	defer cancel()
 	var progress bytes.Buffer
-	rows := adversarial(ctx, bin, false, &progress)
+	rows := adversarial(ctx, bin, false, "", &progress)
 	var table bytes.Buffer
 	printAdversarial(&table, rows, false)
 	t.Logf("\n%s", table.String())

@@ -8,6 +8,7 @@
 //
 //	modegrid-load --spawn bin/modegridd [--server-args "--max-concurrent 2"] [flags]
 //	modegrid-load --server 127.0.0.1:7420 [--metrics http://127.0.0.1:9420/metrics] [flags]
+//	modegrid-load --spawn bin/modegridd --adversarial [--long] [--json]
 //
 // With --spawn it starts that modegridd as a child on loopback ports and
 // reads its peak resident set (VmHWM) from /proc; with --server it samples
@@ -15,6 +16,14 @@
 // (with --spawn) sends the child SIGTERM part-way, once every caller has a
 // call in flight, and reports how each of those calls ended and how long
 // the child took to exit.
+//
+// With --adversarial it runs the adversarial suite instead of a load (see
+// adversarial.go): each request that once took a replica down, and
+// variants, against a fresh modegridd child (started with GOMEMLIMIT=2700MiB
+// and the test-only --unsafe-fault-injection), printing a markdown table
+// of status, time to refuse, release after cancellation, peak RSS, still
+// serving and process exits. The short form runs in seconds (and in go
+// test); --long sends the requests at full size (`make adversarial`).
 //
 // Calls are made with the client library (package client) on one
 // connection, without retries and without waiting for a server that is not
@@ -96,8 +105,9 @@ type options struct {
 	metrics      string
 	sigtermAfter time.Duration
 	jsonOut      bool
-	adversarial  bool // run the adversarial suite instead of a load
-	long         bool // the suite's long form
+	adversarial  bool   // run the adversarial suite instead of a load
+	long         bool   // the suite's long form
+	only         string // with adversarial: only the rows whose request contains this
 }
 
 func parseFlags(args []string, stderr io.Writer) (*options, error) {
@@ -122,6 +132,7 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	fs.DurationVar(&o.sigtermAfter, "sigterm-after", 0, "with --spawn: send SIGTERM after this long, once every caller has a call in flight")
 	fs.BoolVar(&o.jsonOut, "json", false, "print the report as JSON")
 	fs.BoolVar(&o.adversarial, "adversarial", false, "with --spawn: run the adversarial suite (a fresh server per request; markdown table) instead of a load")
+	fs.StringVar(&o.only, "only", "", "with --adversarial: run only the rows whose request contains this text")
 	fs.BoolVar(&o.long, "long", false, "with --adversarial: the long form (the requests at full size; minutes)")
 	token := fs.String("token", "", "bearer token")
 	ca := fs.String("ca", "", "CA file: use TLS and trust it")
