@@ -179,6 +179,12 @@ func runAttack(ctx context.Context, bin string, at attack) *Row {
 		r.Err = err.Error()
 		return r
 	}
+	// Connect first (the client connects lazily), so that no row's time
+	// includes the TCP and HTTP/2 handshakes.
+	if err := serving(ctx, a.c); err != nil {
+		r.Err = "before the attack: " + err.Error()
+		return r
+	}
 	before, err := scrape(ctx, a.metrics)
 	if err != nil {
 		r.Err = err.Error()
@@ -264,12 +270,22 @@ func waitReleased(ctx context.Context, url string) (bool, time.Time, error) {
 func stillServing(ctx context.Context, c *client.Client) bool {
 	cctx, cancel := context.WithTimeout(ctx, 30*time.Second)
 	defer cancel()
-	h, err := healthpb.NewHealthClient(c.Conn()).Check(cctx, &healthpb.HealthCheckRequest{})
-	if err != nil || h.GetStatus() != healthpb.HealthCheckResponse_SERVING {
+	if serving(cctx, c) != nil {
 		return false
 	}
 	r, err := c.DOS(cctx, &modegridv1.ComputeDosRequest{Model: client.Inline(supercell(1, false)), Qpoints: client.Grid(4, 4, 4)})
 	return err == nil && len(r.GetDos()) > 0
+}
+
+// serving checks that the server's health is SERVING.
+func serving(ctx context.Context, c *client.Client) error {
+	cctx, cancel := context.WithTimeout(ctx, 30*time.Second)
+	defer cancel()
+	h, err := healthpb.NewHealthClient(c.Conn()).Check(cctx, &healthpb.HealthCheckRequest{})
+	if err == nil && h.GetStatus() != healthpb.HealthCheckResponse_SERVING {
+		err = fmt.Errorf("health %v", h.GetStatus())
+	}
+	return err
 }
 
 // stopChild sends SIGTERM and waits for the exit: an exit before the
