@@ -150,14 +150,71 @@ type trajectory struct {
 	comment []string // one per frame
 }
 
-// modeTrajectory computes the frames: atom (n, s) at R_n + τ_s plus
-// Re[A e_s exp(i(2π q·n − 2π f/F))]/sqrt(m_s), the eigenvector's global
-// phase fixed so that its largest component is real and positive (frame 0
-// is then a turning point of that atom).
-func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*trajectory, error) {
+// modePattern is one mode on a block of cells, the single place the CLI
+// turns an eigenvector into atom displacements (the XYZ frames and the
+// figure both read it): atom i (site[i] of cell[i]) rests at rest[i] and is
+// displaced by Re[disp[i] exp(−iωt)] (Cartesian Å).
+type modePattern struct {
+	labels []string
+	site   []int
+	cell   [][3]int
+	rest   [][3]float64
+	disp   [][3]complex128
+	nuTHz  float64
+}
+
+// newModePattern computes the pattern: disp = A e_s exp(i 2π q·n)/sqrt(m_s)
+// (the cell phase convention: the phase between cells from the cell offset
+// n only), the eigenvector's global phase fixed so that its largest
+// component is real and positive (ωt = 0 is then a turning point of that
+// atom), A such that the largest site amplitude is o.amplitudeA.
+func newModePattern(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*modePattern, error) {
 	sites := c.GetSites()
-	n := len(sites) * pol
-	b := o.branch - 1
+	e, err := branchEigenvector(pm, len(sites)*pol, o.branch)
+	if err != nil {
+		return nil, err
+	}
+	// Scale: the largest |e_s|/sqrt(m_s) becomes the amplitude.
+	var peak float64
+	for s, site := range sites {
+		var l2 float64
+		for a := 0; a < pol; a++ {
+			l2 += real(e[s*pol+a] * cmplx.Conj(e[s*pol+a]))
+		}
+		peak = math.Max(peak, math.Sqrt(l2/site.GetMassAmu()))
+	}
+	if !(peak > 0) {
+		return nil, fmt.Errorf("branch %d at q has a zero eigenvector", o.branch)
+	}
+	amp := o.amplitudeA / peak
+	m := &modePattern{nuTHz: pm.GetFrequencies()[o.branch-1]}
+	for n1 := 0; n1 < o.cells[0]; n1++ {
+		for n2 := 0; n2 < o.cells[1]; n2++ {
+			for n3 := 0; n3 < o.cells[2]; n3++ {
+				cell := [3]int{n1, n2, n3}
+				phase := 2 * math.Pi * (o.q[0]*float64(n1) + o.q[1]*float64(n2) + o.q[2]*float64(n3))
+				for s, site := range sites {
+					w := cmplx.Exp(complex(0, phase)) * complex(amp/math.Sqrt(site.GetMassAmu()), 0)
+					var u [3]complex128
+					for a := 0; a < pol; a++ {
+						u[a] = e[s*pol+a] * w
+					}
+					m.labels = append(m.labels, site.GetLabel())
+					m.site = append(m.site, s)
+					m.cell = append(m.cell, cell)
+					m.rest = append(m.rest, restPosition(c, s, cell))
+					m.disp = append(m.disp, u)
+				}
+			}
+		}
+	}
+	return m, nil
+}
+
+// branchEigenvector is the eigenvector of a 1-based branch, its global
+// phase fixed so that its largest component is real and positive.
+func branchEigenvector(pm *modegridv1.Modes, n, branch int) ([]complex128, error) {
+	b := branch - 1
 	raw := pm.GetEigenvectors()
 	if len(raw) != 2*n*len(pm.GetFrequencies()) {
 		return nil, fmt.Errorf("the server sent %d eigenvector numbers for %d modes of %d components", len(raw), len(pm.GetFrequencies()), n)
@@ -176,70 +233,56 @@ func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shap
 			e[i] *= g
 		}
 	}
-	// Scale: the largest |e_s|/sqrt(m_s) becomes the amplitude.
-	var peak float64
-	for s, site := range sites {
-		var l2 float64
-		for a := 0; a < pol; a++ {
-			l2 += real(e[s*pol+a] * cmplx.Conj(e[s*pol+a]))
+	return e, nil
+}
+
+// restPosition is R_n + τ_s in Cartesian Å.
+func restPosition(c *modegridv1.Crystal, s int, cell [3]int) [3]float64 {
+	lat, frac := c.GetLattice(), c.GetSites()[s].GetFrac()
+	var r [3]float64
+	for k := 0; k < 3 && k < len(lat); k++ {
+		x := float64(cell[k])
+		if k < len(frac) {
+			x += frac[k]
 		}
-		peak = math.Max(peak, math.Sqrt(l2/site.GetMassAmu()))
-	}
-	if !(peak > 0) {
-		return nil, fmt.Errorf("branch %d at q has a zero eigenvector", o.branch)
-	}
-	amp := o.amplitudeA / peak
-	lat := c.GetLattice()
-	vec := func(k int) [3]float64 {
-		if k >= len(lat) {
-			return [3]float64{}
-		}
-		return [3]float64{lat[k].GetX(), lat[k].GetY(), lat[k].GetZ()}
-	}
-	nu := pm.GetFrequencies()[b]
-	tr := &trajectory{}
-	type atom struct {
-		rest [3]float64
-		s    int
-		cell [3]int
-	}
-	var atoms []atom
-	for n1 := 0; n1 < o.cells[0]; n1++ {
-		for n2 := 0; n2 < o.cells[1]; n2++ {
-			for n3 := 0; n3 < o.cells[2]; n3++ {
-				cell := [3]int{n1, n2, n3}
-				for s, site := range sites {
-					var r [3]float64
-					for k := 0; k < 3; k++ {
-						x := float64(cell[k])
-						if k < len(site.GetFrac()) {
-							x += site.GetFrac()[k]
-						}
-						v := vec(k)
-						for a := range r {
-							r[a] += x * v[a]
-						}
-					}
-					atoms = append(atoms, atom{r, s, cell})
-					tr.labels = append(tr.labels, site.GetLabel())
-				}
-			}
+		v := [3]float64{lat[k].GetX(), lat[k].GetY(), lat[k].GetZ()}
+		for a := range r {
+			r[a] += x * v[a]
 		}
 	}
+	return r
+}
+
+// at is the displacement of every atom at phase ωt (radians), Å.
+func (m *modePattern) at(wt float64) [][3]float64 {
+	rot := cmplx.Exp(complex(0, -wt))
+	out := make([][3]float64, len(m.disp))
+	for i, u := range m.disp {
+		for a := range u {
+			out[i][a] = real(u[a] * rot)
+		}
+	}
+	return out
+}
+
+// modeTrajectory samples the pattern at ωt = 2π f/F for the F frames.
+func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*trajectory, error) {
+	m, err := newModePattern(c, pol, pm, o)
+	if err != nil {
+		return nil, err
+	}
+	tr := &trajectory{labels: m.labels}
 	for f := 0; f < o.frames; f++ {
 		t := 2 * math.Pi * float64(f) / float64(o.frames) // ωt
-		pos := make([][3]float64, len(atoms))
-		for i, at := range atoms {
-			phase := 2*math.Pi*(o.q[0]*float64(at.cell[0])+o.q[1]*float64(at.cell[1])+o.q[2]*float64(at.cell[2])) - t
-			w := cmplx.Exp(complex(0, phase)) * complex(amp/math.Sqrt(sites[at.s].GetMassAmu()), 0)
-			pos[i] = at.rest
-			for a := 0; a < pol; a++ {
-				pos[i][a] += real(e[at.s*pol+a] * w)
+		pos := m.at(t)
+		for i := range pos {
+			for a := range pos[i] {
+				pos[i][a] += m.rest[i][a]
 			}
 		}
 		tr.frames = append(tr.frames, pos)
 		tr.comment = append(tr.comment, fmt.Sprintf("%s q=(%g,%g,%g) branch %d frequency %.6g THz%s frame %d/%d phase %.4f rad amplitude %g Angstrom cells %dx%dx%d",
-			strings.ReplaceAll(c.GetName(), "\n", " "), o.q[0], o.q[1], o.q[2], o.branch, nu, imaginaryNote(nu), f+1, o.frames, t, o.amplitudeA, o.cells[0], o.cells[1], o.cells[2]))
+			strings.ReplaceAll(c.GetName(), "\n", " "), o.q[0], o.q[1], o.q[2], o.branch, m.nuTHz, imaginaryNote(m.nuTHz), f+1, o.frames, t, o.amplitudeA, o.cells[0], o.cells[1], o.cells[2]))
 	}
 	return tr, nil
 }
