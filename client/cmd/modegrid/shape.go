@@ -19,7 +19,15 @@ cell n moves by Re[A e_s(q) exp(i(2π q·n − ωt))]/sqrt(m_s) (the engine's
 cell phase convention: eigenvectors carry the phase within the cell), A
 scaled so that the largest site amplitude is --amplitude Å; the --frames
 frames sample one period. The default block is the fewest cells (up to 12
-per lattice vector) on which the mode is periodic.`
+per lattice vector) on which the mode is periodic.
+
+--plot FILE.png|.svg draws, for a 1D or 2D crystal, the sites of the block
+at rest (coloured by site) with arrows for the displacement at one phase
+(--phase peak: the phase of largest total displacement, or 0: t = 0), the
+largest arrow --arrow-length times the nearest-neighbour distance; the
+caption states the scale. With --plot and no --cells, the periodic block
+is repeated to at least 4 cells per lattice vector. 3D crystals: use --xyz
+and a molecular viewer.`
 
 // shapeOptions are the parsed flags of `shape`.
 type shapeOptions struct {
@@ -31,7 +39,7 @@ type shapeOptions struct {
 }
 
 func cmdShape(args []string, e *env) error {
-	c := newModelCommand("shape", false)
+	c := newModelCommand("shape", true)
 	fs := c.fs
 	qFlag := fs.String("q", "", "the q-point, fractional reciprocal coordinates: q1[,q2[,q3]]")
 	branch := fs.Int("branch", 1, "the branch, 1 = lowest frequency at q")
@@ -39,11 +47,17 @@ func cmdShape(args []string, e *env) error {
 	cellsFlag := fs.String("cells", "", "block of N1xN2xN3 cells to show (default: the fewest on which the mode is periodic)")
 	frames := fs.Int("frames", 20, "frames per period")
 	xyz := fs.String("xyz", "", "write the trajectory to this XYZ file (- for stdout)")
+	phase := fs.String("phase", "peak", "--plot snapshot: peak (the phase of largest total displacement) or 0 (t = 0)")
+	arrowFrac := fs.Float64("arrow-length", 0.4, "--plot: the largest arrow as a fraction of the nearest-neighbour distance")
 	if err := c.parse(args, e, shapeSummary); err != nil {
 		return err
 	}
-	if *xyz == "" {
-		return usagef("--xyz FILE is required (- writes to stdout)")
+	if *xyz == "" && c.out.plot == "" {
+		return usagef("--xyz FILE (- for stdout) or --plot FILE.png|.svg is required")
+	}
+	po, err := parseShapePlot(*phase, *arrowFrac)
+	if err != nil {
+		return err
 	}
 	if *qFlag == "" {
 		return usagef("--q is required")
@@ -68,7 +82,13 @@ func cmdShape(args []string, e *env) error {
 		return err
 	}
 	d, p := dims(crystal)
+	if c.out.plot != "" && (d < 1 || d > 2) {
+		return usagef("--plot draws 1D and 2D crystals only; this crystal is %dD: write --xyz FILE and play it in a molecular viewer", d)
+	}
 	opt := shapeOptions{q: qs[0], branch: *branch, amplitudeA: *amplitude, frames: *frames, cells: defaultShapeCells(qs[0], d)}
+	if c.out.plot != "" {
+		opt.cells = repeatCells(opt.cells, d, 4)
+	}
 	if *cellsFlag != "" {
 		mesh, err := parseMesh(*cellsFlag)
 		if err != nil {
@@ -86,6 +106,9 @@ func cmdShape(args []string, e *env) error {
 		}
 		if total*len(crystal.GetSites()) > 1_000_000 {
 			return usagef("--cells: %s cells of %d sites is over a million atoms", *cellsFlag, len(crystal.GetSites()))
+		}
+		if c.out.plot != "" && total*len(crystal.GetSites()) > maxShapePlotAtoms {
+			return usagef("--cells: %s cells of %d sites is over the %d atoms a figure can show legibly", *cellsFlag, len(crystal.GetSites()), maxShapePlotAtoms)
 		}
 	}
 	cl, ctx, release, err := c.dial()
@@ -106,6 +129,14 @@ func cmdShape(args []string, e *env) error {
 	if n := len(pts[0].GetFrequencies()); opt.branch > n {
 		return usagef("--branch must be ≤ %d (the modes per cell), got %d", n, opt.branch)
 	}
+	if c.out.plot != "" {
+		if err := plotShape(c.out.plot, c.out.kind, crystal, d, p, pts[0], opt, po); err != nil {
+			return err
+		}
+	}
+	if *xyz == "" {
+		return nil
+	}
 	tr, err := modeTrajectory(crystal, p, pts[0], opt)
 	if err != nil {
 		return err
@@ -122,6 +153,50 @@ func cmdShape(args []string, e *env) error {
 		return fmt.Errorf("cannot write the output: %w", err)
 	}
 	return f.Close()
+}
+
+// maxShapePlotAtoms bounds the atoms of a mode-shape figure.
+const maxShapePlotAtoms = 5000
+
+// parseShapePlot checks --phase and --arrow-length.
+func parseShapePlot(phase string, frac float64) (shapePlotOptions, error) {
+	var po shapePlotOptions
+	switch strings.ToLower(strings.TrimSpace(phase)) {
+	case "peak":
+		po.peakPhase = true
+	case "0":
+	default:
+		return po, usagef("--phase must be peak or 0, got %q", phase)
+	}
+	if !(frac > 0 && frac <= 2) {
+		return po, usagef("--arrow-length must be a fraction of the nearest-neighbour distance in (0, 2], got %v", frac)
+	}
+	po.arrowFrac = frac
+	return po, nil
+}
+
+// repeatCells repeats the block along each of the d lattice vectors until
+// it has at least n cells (a whole number of blocks: still periodic).
+func repeatCells(cells [3]int, d, n int) [3]int {
+	for k := 0; k < d; k++ {
+		for r := cells[k]; cells[k] < n; {
+			cells[k] += r
+		}
+	}
+	return cells
+}
+
+// plotShape draws the mode-shape figure of mode pm into file as kind.
+func plotShape(file, kind string, c *modegridv1.Crystal, d, p int, pm *modegridv1.Modes, o shapeOptions, po shapePlotOptions) error {
+	m, err := newModePattern(c, p, pm, o)
+	if err != nil {
+		return err
+	}
+	f, err := buildShapeFigure(c, d, p, m, o, po)
+	if err != nil {
+		return err
+	}
+	return f.figure().write(file, kind)
 }
 
 // defaultShapeCells is, per lattice vector, the fewest cells N ≤ 12 with
