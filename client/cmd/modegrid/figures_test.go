@@ -40,6 +40,7 @@ func TestFigureGallery(t *testing.T) {
 		{"thermal-diatomic-chain-measured", []string{"thermal", "-m", example("diatomic-chain"), "--grid", "64", "--temps", "0:400:10",
 			"--measured", testdata("measured-thermal.csv")},
 			[]string{"measured Cv (J/(K·mol atoms))", "5 measured points", "χ²/N ="}},
+		{"shape-diatomic-chain-zone-boundary", []string{"shape", "-m", example("diatomic-chain"), "--q", "0.5", "--branch", "2"}, nil},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

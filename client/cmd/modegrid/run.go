@@ -55,7 +55,7 @@ var commands = []struct {
 	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
-	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz)", cmdShape},
+	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 

@@ -19,7 +19,15 @@ cell n moves by Re[A e_s(q) exp(i(2π q·n − ωt))]/sqrt(m_s) (the engine's
 cell phase convention: eigenvectors carry the phase within the cell), A
 scaled so that the largest site amplitude is --amplitude Å; the --frames
 frames sample one period. The default block is the fewest cells (up to 12
-per lattice vector) on which the mode is periodic.`
+per lattice vector) on which the mode is periodic.
+
+--plot FILE.png|.svg draws, for a 1D or 2D crystal, the sites of the block
+at rest (coloured by site) with arrows for the displacement at one phase
+(--phase peak: the phase of largest total displacement, or 0: t = 0), the
+largest arrow --arrow-length times the nearest-neighbour distance; the
+caption states the scale. With --plot and no --cells, the periodic block
+is repeated to at least 4 cells per lattice vector. 3D crystals: use --xyz
+and a molecular viewer.`
 
 // shapeOptions are the parsed flags of `shape`.
 type shapeOptions struct {
@@ -31,7 +39,7 @@ type shapeOptions struct {
 }
 
 func cmdShape(args []string, e *env) error {
-	c := newModelCommand("shape", false)
+	c := newModelCommand("shape", true)
 	fs := c.fs
 	qFlag := fs.String("q", "", "the q-point, fractional reciprocal coordinates: q1[,q2[,q3]]")
 	branch := fs.Int("branch", 1, "the branch, 1 = lowest frequency at q")
@@ -39,11 +47,17 @@ func cmdShape(args []string, e *env) error {
 	cellsFlag := fs.String("cells", "", "block of N1xN2xN3 cells to show (default: the fewest on which the mode is periodic)")
 	frames := fs.Int("frames", 20, "frames per period")
 	xyz := fs.String("xyz", "", "write the trajectory to this XYZ file (- for stdout)")
+	phase := fs.String("phase", "peak", "--plot snapshot: peak (the phase of largest total displacement) or 0 (t = 0)")
+	arrowFrac := fs.Float64("arrow-length", 0.4, "--plot: the largest arrow as a fraction of the nearest-neighbour distance")
 	if err := c.parse(args, e, shapeSummary); err != nil {
 		return err
 	}
-	if *xyz == "" {
-		return usagef("--xyz FILE is required (- writes to stdout)")
+	if *xyz == "" && c.out.plot == "" {
+		return usagef("--xyz FILE (- for stdout) or --plot FILE.png|.svg is required")
+	}
+	po, err := parseShapePlot(*phase, *arrowFrac)
+	if err != nil {
+		return err
 	}
 	if *qFlag == "" {
 		return usagef("--q is required")
@@ -68,7 +82,13 @@ func cmdShape(args []string, e *env) error {
 		return err
 	}
 	d, p := dims(crystal)
+	if c.out.plot != "" && (d < 1 || d > 2) {
+		return usagef("--plot draws 1D and 2D crystals only; this crystal is %dD: write --xyz FILE and play it in a molecular viewer", d)
+	}
 	opt := shapeOptions{q: qs[0], branch: *branch, amplitudeA: *amplitude, frames: *frames, cells: defaultShapeCells(qs[0], d)}
+	if c.out.plot != "" {
+		opt.cells = repeatCells(opt.cells, d, 4)
+	}
 	if *cellsFlag != "" {
 		mesh, err := parseMesh(*cellsFlag)
 		if err != nil {
@@ -86,6 +106,9 @@ func cmdShape(args []string, e *env) error {
 		}
 		if total*len(crystal.GetSites()) > 1_000_000 {
 			return usagef("--cells: %s cells of %d sites is over a million atoms", *cellsFlag, len(crystal.GetSites()))
+		}
+		if c.out.plot != "" && total*len(crystal.GetSites()) > maxShapePlotAtoms {
+			return usagef("--cells: %s cells of %d sites is over the %d atoms a figure can show legibly", *cellsFlag, len(crystal.GetSites()), maxShapePlotAtoms)
 		}
 	}
 	cl, ctx, release, err := c.dial()
@@ -106,6 +129,14 @@ func cmdShape(args []string, e *env) error {
 	if n := len(pts[0].GetFrequencies()); opt.branch > n {
 		return usagef("--branch must be ≤ %d (the modes per cell), got %d", n, opt.branch)
 	}
+	if c.out.plot != "" {
+		if err := plotShape(c.out.plot, c.out.kind, crystal, d, p, pts[0], opt, po); err != nil {
+			return err
+		}
+	}
+	if *xyz == "" {
+		return nil
+	}
 	tr, err := modeTrajectory(crystal, p, pts[0], opt)
 	if err != nil {
 		return err
@@ -122,6 +153,50 @@ func cmdShape(args []string, e *env) error {
 		return fmt.Errorf("cannot write the output: %w", err)
 	}
 	return f.Close()
+}
+
+// maxShapePlotAtoms bounds the atoms of a mode-shape figure.
+const maxShapePlotAtoms = 5000
+
+// parseShapePlot checks --phase and --arrow-length.
+func parseShapePlot(phase string, frac float64) (shapePlotOptions, error) {
+	var po shapePlotOptions
+	switch strings.ToLower(strings.TrimSpace(phase)) {
+	case "peak":
+		po.peakPhase = true
+	case "0":
+	default:
+		return po, usagef("--phase must be peak or 0, got %q", phase)
+	}
+	if !(frac > 0 && frac <= 2) {
+		return po, usagef("--arrow-length must be a fraction of the nearest-neighbour distance in (0, 2], got %v", frac)
+	}
+	po.arrowFrac = frac
+	return po, nil
+}
+
+// repeatCells repeats the block along each of the d lattice vectors until
+// it has at least n cells (a whole number of blocks: still periodic).
+func repeatCells(cells [3]int, d, n int) [3]int {
+	for k := 0; k < d; k++ {
+		for r := cells[k]; cells[k] < n; {
+			cells[k] += r
+		}
+	}
+	return cells
+}
+
+// plotShape draws the mode-shape figure of mode pm into file as kind.
+func plotShape(file, kind string, c *modegridv1.Crystal, d, p int, pm *modegridv1.Modes, o shapeOptions, po shapePlotOptions) error {
+	m, err := newModePattern(c, p, pm, o)
+	if err != nil {
+		return err
+	}
+	f, err := buildShapeFigure(c, d, p, m, o, po)
+	if err != nil {
+		return err
+	}
+	return f.figure().write(file, kind)
 }
 
 // defaultShapeCells is, per lattice vector, the fewest cells N ≤ 12 with
@@ -150,14 +225,71 @@ type trajectory struct {
 	comment []string // one per frame
 }
 
-// modeTrajectory computes the frames: atom (n, s) at R_n + τ_s plus
-// Re[A e_s exp(i(2π q·n − 2π f/F))]/sqrt(m_s), the eigenvector's global
-// phase fixed so that its largest component is real and positive (frame 0
-// is then a turning point of that atom).
-func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*trajectory, error) {
+// modePattern is one mode on a block of cells, the single place the CLI
+// turns an eigenvector into atom displacements (the XYZ frames and the
+// figure both read it): atom i (site[i] of cell[i]) rests at rest[i] and is
+// displaced by Re[disp[i] exp(−iωt)] (Cartesian Å).
+type modePattern struct {
+	labels []string
+	site   []int
+	cell   [][3]int
+	rest   [][3]float64
+	disp   [][3]complex128
+	nuTHz  float64
+}
+
+// newModePattern computes the pattern: disp = A e_s exp(i 2π q·n)/sqrt(m_s)
+// (the cell phase convention: the phase between cells from the cell offset
+// n only), the eigenvector's global phase fixed so that its largest
+// component is real and positive (ωt = 0 is then a turning point of that
+// atom), A such that the largest site amplitude is o.amplitudeA.
+func newModePattern(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*modePattern, error) {
 	sites := c.GetSites()
-	n := len(sites) * pol
-	b := o.branch - 1
+	e, err := branchEigenvector(pm, len(sites)*pol, o.branch)
+	if err != nil {
+		return nil, err
+	}
+	// Scale: the largest |e_s|/sqrt(m_s) becomes the amplitude.
+	var peak float64
+	for s, site := range sites {
+		var l2 float64
+		for a := 0; a < pol; a++ {
+			l2 += real(e[s*pol+a] * cmplx.Conj(e[s*pol+a]))
+		}
+		peak = math.Max(peak, math.Sqrt(l2/site.GetMassAmu()))
+	}
+	if !(peak > 0) {
+		return nil, fmt.Errorf("branch %d at q has a zero eigenvector", o.branch)
+	}
+	amp := o.amplitudeA / peak
+	m := &modePattern{nuTHz: pm.GetFrequencies()[o.branch-1]}
+	for n1 := 0; n1 < o.cells[0]; n1++ {
+		for n2 := 0; n2 < o.cells[1]; n2++ {
+			for n3 := 0; n3 < o.cells[2]; n3++ {
+				cell := [3]int{n1, n2, n3}
+				phase := 2 * math.Pi * (o.q[0]*float64(n1) + o.q[1]*float64(n2) + o.q[2]*float64(n3))
+				for s, site := range sites {
+					w := cmplx.Exp(complex(0, phase)) * complex(amp/math.Sqrt(site.GetMassAmu()), 0)
+					var u [3]complex128
+					for a := 0; a < pol; a++ {
+						u[a] = e[s*pol+a] * w
+					}
+					m.labels = append(m.labels, site.GetLabel())
+					m.site = append(m.site, s)
+					m.cell = append(m.cell, cell)
+					m.rest = append(m.rest, restPosition(c, s, cell))
+					m.disp = append(m.disp, u)
+				}
+			}
+		}
+	}
+	return m, nil
+}
+
+// branchEigenvector is the eigenvector of a 1-based branch, its global
+// phase fixed so that its largest component is real and positive.
+func branchEigenvector(pm *modegridv1.Modes, n, branch int) ([]complex128, error) {
+	b := branch - 1
 	raw := pm.GetEigenvectors()
 	if len(raw) != 2*n*len(pm.GetFrequencies()) {
 		return nil, fmt.Errorf("the server sent %d eigenvector numbers for %d modes of %d components", len(raw), len(pm.GetFrequencies()), n)
@@ -176,70 +308,56 @@ func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shap
 			e[i] *= g
 		}
 	}
-	// Scale: the largest |e_s|/sqrt(m_s) becomes the amplitude.
-	var peak float64
-	for s, site := range sites {
-		var l2 float64
-		for a := 0; a < pol; a++ {
-			l2 += real(e[s*pol+a] * cmplx.Conj(e[s*pol+a]))
+	return e, nil
+}
+
+// restPosition is R_n + τ_s in Cartesian Å.
+func restPosition(c *modegridv1.Crystal, s int, cell [3]int) [3]float64 {
+	lat, frac := c.GetLattice(), c.GetSites()[s].GetFrac()
+	var r [3]float64
+	for k := 0; k < 3 && k < len(lat); k++ {
+		x := float64(cell[k])
+		if k < len(frac) {
+			x += frac[k]
 		}
-		peak = math.Max(peak, math.Sqrt(l2/site.GetMassAmu()))
-	}
-	if !(peak > 0) {
-		return nil, fmt.Errorf("branch %d at q has a zero eigenvector", o.branch)
-	}
-	amp := o.amplitudeA / peak
-	lat := c.GetLattice()
-	vec := func(k int) [3]float64 {
-		if k >= len(lat) {
-			return [3]float64{}
-		}
-		return [3]float64{lat[k].GetX(), lat[k].GetY(), lat[k].GetZ()}
-	}
-	nu := pm.GetFrequencies()[b]
-	tr := &trajectory{}
-	type atom struct {
-		rest [3]float64
-		s    int
-		cell [3]int
-	}
-	var atoms []atom
-	for n1 := 0; n1 < o.cells[0]; n1++ {
-		for n2 := 0; n2 < o.cells[1]; n2++ {
-			for n3 := 0; n3 < o.cells[2]; n3++ {
-				cell := [3]int{n1, n2, n3}
-				for s, site := range sites {
-					var r [3]float64
-					for k := 0; k < 3; k++ {
-						x := float64(cell[k])
-						if k < len(site.GetFrac()) {
-							x += site.GetFrac()[k]
-						}
-						v := vec(k)
-						for a := range r {
-							r[a] += x * v[a]
-						}
-					}
-					atoms = append(atoms, atom{r, s, cell})
-					tr.labels = append(tr.labels, site.GetLabel())
-				}
-			}
+		v := [3]float64{lat[k].GetX(), lat[k].GetY(), lat[k].GetZ()}
+		for a := range r {
+			r[a] += x * v[a]
 		}
 	}
+	return r
+}
+
+// at is the displacement of every atom at phase ωt (radians), Å.
+func (m *modePattern) at(wt float64) [][3]float64 {
+	rot := cmplx.Exp(complex(0, -wt))
+	out := make([][3]float64, len(m.disp))
+	for i, u := range m.disp {
+		for a := range u {
+			out[i][a] = real(u[a] * rot)
+		}
+	}
+	return out
+}
+
+// modeTrajectory samples the pattern at ωt = 2π f/F for the F frames.
+func modeTrajectory(c *modegridv1.Crystal, pol int, pm *modegridv1.Modes, o shapeOptions) (*trajectory, error) {
+	m, err := newModePattern(c, pol, pm, o)
+	if err != nil {
+		return nil, err
+	}
+	tr := &trajectory{labels: m.labels}
 	for f := 0; f < o.frames; f++ {
 		t := 2 * math.Pi * float64(f) / float64(o.frames) // ωt
-		pos := make([][3]float64, len(atoms))
-		for i, at := range atoms {
-			phase := 2*math.Pi*(o.q[0]*float64(at.cell[0])+o.q[1]*float64(at.cell[1])+o.q[2]*float64(at.cell[2])) - t
-			w := cmplx.Exp(complex(0, phase)) * complex(amp/math.Sqrt(sites[at.s].GetMassAmu()), 0)
-			pos[i] = at.rest
-			for a := 0; a < pol; a++ {
-				pos[i][a] += real(e[at.s*pol+a] * w)
+		pos := m.at(t)
+		for i := range pos {
+			for a := range pos[i] {
+				pos[i][a] += m.rest[i][a]
 			}
 		}
 		tr.frames = append(tr.frames, pos)
 		tr.comment = append(tr.comment, fmt.Sprintf("%s q=(%g,%g,%g) branch %d frequency %.6g THz%s frame %d/%d phase %.4f rad amplitude %g Angstrom cells %dx%dx%d",
-			strings.ReplaceAll(c.GetName(), "\n", " "), o.q[0], o.q[1], o.q[2], o.branch, nu, imaginaryNote(nu), f+1, o.frames, t, o.amplitudeA, o.cells[0], o.cells[1], o.cells[2]))
+			strings.ReplaceAll(c.GetName(), "\n", " "), o.q[0], o.q[1], o.q[2], o.branch, m.nuTHz, imaginaryNote(m.nuTHz), f+1, o.frames, t, o.amplitudeA, o.cells[0], o.cells[1], o.cells[2]))
 	}
 	return tr, nil
 }

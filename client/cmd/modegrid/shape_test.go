@@ -187,7 +187,7 @@ func TestShapeErrors(t *testing.T) {
 		args []string
 		want string
 	}{
-		{[]string{"shape", "-m", example("chain"), "--q", "0.5"}, "--xyz FILE is required"},
+		{[]string{"shape", "-m", example("chain"), "--q", "0.5"}, "--xyz FILE (- for stdout) or --plot FILE.png|.svg is required"},
 		{[]string{"shape", "-m", example("chain"), "--xyz", "-"}, "--q is required"},
 		{[]string{"shape", "-m", example("chain"), "--xyz", "-", "--q", "0;0.5"}, "one q-point"},
 		{[]string{"shape", "-m", example("chain"), "--xyz", "-", "--q", "0.5", "--branch", "2"}, "--branch must be ≤ 1"},
