@@ -125,7 +125,7 @@ func (s GridSize) assembleFlops() float64 {
 	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
 }
 
-// workspaceBytes is one worker's eigensolver workspace (eigenWork: a and
+// workspaceBytes is one worker's eigensolver workspace (eigen.Work: a and
 // hv, n² complex each, and n-vectors; with eigenvectors vecs, n² complex,
 // and zt, n² real) and its phase tables.
 func workspaceBytes(n int, vectors bool) int64 {

@@ -147,7 +147,7 @@
 //
 // Complex Householder tridiagonalisation and implicit QL (root-free for
 // eigenvalues only), chosen by measurement over a real 2n×2n embedding in
-// gonum and a complex Jacobi method; see the header of eigen.go. Every
+// gonum and a complex Jacobi method; see the header of eigen/eigen.go. Every
 // eigenvalue is within a few n·ε‖D‖ of exact (EigenTol above). Workspaces are reused per core:
 // grid and stream loops allocate nothing per point.
 //
@@ -157,7 +157,7 @@
 // points over all cores (runtime.GOMAXPROCS); StreamModes emits chunks in q
 // order and holds at most two chunks per core, so memory stays bounded with
 // eigenvectors on any grid. Both poll their context between points and,
-// for matrices of cancelCheckModes modes and more, inside the solver's
+// for matrices of eigen.CancelCheckModes modes and more, inside the solver's
 // loops, so cancellation takes effect within milliseconds at any size.
 //
 // Every parallel loop runs on one internal helper (physics/internal/parallel,

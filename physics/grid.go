@@ -275,12 +275,12 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 			f := c.FreqTHz[i*nm : (i+1)*nm]
 			w.freqs(f)
 			if opt.Eigenvectors {
-				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.vecs)
+				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.Vectors())
 			}
 			if opt.Projections {
 				sw := c.SiteWeight[i*nm*ns : (i+1)*nm*ns]
 				for k := 0; k < nm; k++ {
-					e := w.eig.vecs[k*nm : (k+1)*nm]
+					e := w.eig.Vectors()[k*nm : (k+1)*nm]
 					for c, z := range e {
 						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
 					}
@@ -291,7 +291,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 				st := c.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
 				for k := 0; k < nm; k++ {
 					for s := 0; s < ns; s++ {
-						e := w.eig.vecs[k*nm+s*p : k*nm+(s+1)*p]
+						e := w.eig.Vectors()[k*nm+s*p : k*nm+(s+1)*p]
 						t := st[(k*ns+s)*pairs : (k*ns+s+1)*pairs]
 						x := 0
 						for a := 0; a < p; a++ {

@@ -5,6 +5,7 @@ package physics
 import (
 	"context"
 	"errors"
+	"github.com/materials-lab/modegrid/physics/eigen"
 	"math"
 	"math/cmplx"
 	"testing"
@@ -17,7 +18,7 @@ func TestEigenvectors(t *testing.T) {
 	n := m.Modes()
 	for _, q := range [][3]float64{{0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0, 0, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
-		vals, vecs := hermitianEigen(d, n, true)
+		vals, vecs := eigen.Hermitian(d, n, true)
 		for k := 0; k < n; k++ {
 			for r := 0; r < n; r++ {
 				var s complex128

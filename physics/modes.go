@@ -6,6 +6,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"github.com/materials-lab/modegrid/physics/eigen"
 	"math"
 	"runtime"
 	"sync/atomic"
@@ -56,7 +57,7 @@ const eigenTolFactor = 4
 // summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
 // Zero and imaginary modes.
 func (m *Model) EigenTol() float64 {
-	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * epsilon * m.lambdaScale
+	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * eigen.Epsilon * m.lambdaScale
 }
 
 // EigenTolTHz is EigenTol as a frequency (THz): a mode with |ν| up to
@@ -154,48 +155,48 @@ func imaginary(freqTHz []float64) bool {
 // nothing is allocated per point once it is warm.
 type pointWork struct {
 	m    *Model
-	eig  *eigenWork
+	eig  *eigen.Work
 	ph   phaseTable
 	vel  *velWork // lazily, for group velocities
 	done <-chan struct{}
 }
 
 func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
-	w := &pointWork{m: m, eig: newEigenWork(m.Modes()), done: done}
-	w.eig.done = done
+	w := &pointWork{m: m, eig: eigen.NewWork(m.Modes()), done: done}
+	w.eig.SetStop(done)
 	return w
 }
 
-// solve diagonalises D(q) into w.eig.vals (eigenvalues, eV/Å²/amu,
+// solve diagonalises D(q) into w.eig.Values() (eigenvalues, eV/Å²/amu,
 // ascending, rounding noise around zero set to 0 by cleanEigenvalues) and,
-// with vectors, w.eig.vecs. It returns false if stopped.
+// with vectors, w.eig.Vectors(). It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 	var stop func() bool
-	if w.done != nil && w.m.Modes() >= cancelCheckModes {
+	if w.done != nil && w.m.Modes() >= eigen.CancelCheckModes {
 		stop = w.stopped
 	}
-	if !w.m.assemble(q, w.eig.a, &w.ph, stop) {
+	if !w.m.assemble(q, w.eig.A(), &w.ph, stop) {
 		return false
 	}
-	switch w.eig.solve(vectors) {
-	case solveStopped:
+	switch w.eig.Solve(vectors) {
+	case eigen.Stopped:
 		return false
-	case solveNoConverge:
+	case eigen.NoConverge:
 		// Never seen on finite input; the real embedding is the
 		// slower, independent second opinion.
-		vals, vecs := embeddedEigen(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
-		copy(w.eig.vals, vals)
+		vals, vecs := eigen.Embedded(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
+		copy(w.eig.Values(), vals)
 		if vectors {
-			copy(w.eig.vecs, vecs)
+			copy(w.eig.Vectors(), vecs)
 		}
 	}
-	cleanEigenvalues(w.eig.vals, q, w.m.p, w.m.EigenTol())
+	cleanEigenvalues(w.eig.Values(), q, w.m.p, w.m.EigenTol())
 	return true
 }
 
 // freqs converts the eigenvalues of the last solve to THz into out.
 func (w *pointWork) freqs(out []float64) {
-	for k, v := range w.eig.vals {
+	for k, v := range w.eig.Values() {
 		out[k] = eigToTHz(v)
 	}
 }
@@ -222,7 +223,7 @@ func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
 	w.solve(q, true)
 	out := make([]float64, m.Modes())
 	w.freqs(out)
-	return out, w.eig.vecs
+	return out, w.eig.Vectors()
 }
 
 // Point returns the modes at one q-point with the options' extras
@@ -265,12 +266,12 @@ func (w *pointWork) point(pm *PointModes, opt ModeOptions) bool {
 	pm.Imaginary = imaginary(pm.FreqTHz)
 	if opt.Eigenvectors {
 		n := w.m.Modes()
-		for r := 0; r < n; r += pollRows + 1 { // 37 MB at 512 sites
-			if n >= cancelCheckModes && w.stopped() {
+		for r := 0; r < n; r += eigen.PollRows + 1 { // 37 MB at 512 sites
+			if n >= eigen.CancelCheckModes && w.stopped() {
 				return false
 			}
-			hi := min(r+pollRows+1, n) * n
-			copy(pm.Eigvecs[r*n:hi], w.eig.vecs[r*n:hi])
+			hi := min(r+eigen.PollRows+1, n) * n
+			copy(pm.Eigvecs[r*n:hi], w.eig.Vectors()[r*n:hi])
 		}
 	}
 	return true

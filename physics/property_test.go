@@ -453,7 +453,7 @@ func TestPropertyThermalLimits(t *testing.T) {
 // time reversal, ReduceGrid) or at every point directly (NoSymmetry): the
 // operations are symmetries of D(q) (Maradudin & Vosko, Rev. Mod. Phys. 40,
 // 1 (1968)). Compared as signed ω² to 1e-10 of the largest (eigenvalues are
-// exact to a few ε‖D‖, eigen.go). At least a third of the models must have
+// exact to a few ε‖D‖, package eigen). At least a third of the models must have
 // been reduced to fewer points than the grid, or the test proves nothing.
 func TestPropertyReducedGrid(t *testing.T) {
 	ctx := specCtx(t)
