@@ -1,6 +1,7 @@
 package physics
 
 import (
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -159,7 +160,7 @@ func TestSoundVelocitiesFCC(t *testing.T) {
 	const ndir = 4000
 	for i := 0; i < ndir; i++ {
 		d := [3]float64{r.NormFloat64(), r.NormFloat64(), r.NormFloat64()}
-		l := norm3(d)
+		l := lattice.Norm(d)
 		for _, v := range mustSpeedsATHz(t, m, [3]float64{d[0] / l, d[1] / l, d[2] / l}) {
 			sum += math.Pow(v, -3) / ndir
 		}

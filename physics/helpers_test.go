@@ -4,6 +4,7 @@
 package physics
 
 import (
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -56,7 +57,7 @@ func supercell(t testing.TB, c *Crystal, mt [3][3]int) *Crystal {
 	if det < 0 {
 		det = -det
 	}
-	inv := invertSmall(mf, 3) // M⁻¹
+	inv := lattice.Invert(mf, 3) // M⁻¹
 	out := cloneCrystal(c)
 	out.Lattice = make([][3]float64, d)
 	for k := 0; k < d; k++ {

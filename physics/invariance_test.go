@@ -5,6 +5,7 @@ package physics
 import (
 	"context"
 	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
@@ -154,7 +155,7 @@ func foldedSpectrum(m *Model, mt [3][3]int, Q [3]float64, det int) []float64 {
 			mf[i][j] = float64(mt[i][j])
 		}
 	}
-	inv := invertSmall(mf, 3)
+	inv := lattice.Invert(mf, 3)
 	seen := map[[3]int64]bool{}
 	var out []float64
 	for g0 := 0; g0 < det; g0++ {

@@ -5,6 +5,7 @@ package physics
 
 import (
 	"context"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"testing"
 )
@@ -182,7 +183,7 @@ func TestSquareNet(t *testing.T) {
 // springBlock is the force-constant block of a spring along r (Å):
 // Φ = −(k∥ e eᵀ + k⊥ (1 − e eᵀ)) (doc.go).
 func springBlock(r [3]float64, kl, kt float64) []float64 {
-	l := norm3(r)
+	l := lattice.Norm(r)
 	phi := make([]float64, 9)
 	for a := 0; a < 3; a++ {
 		for b := 0; b < 3; b++ {
@@ -210,7 +211,7 @@ func TestBlocksEqualSprings(t *testing.T) {
 			t.Fatal(err)
 		}
 		for _, b := range bonds {
-			r := sub3(add3(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
+			r := lattice.Sub(lattice.Add(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
 			bc.Blocks = append(bc.Blocks, Block{From: b.i, To: b.j, Cell: b.n[:], Phi: springBlock(r, sh.KLong, sh.KTrans)})
 		}
 	}

@@ -12,6 +12,7 @@ import (
 	"encoding/json"
 	"flag"
 	"fmt"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -109,14 +110,14 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 		c.Lattice = c.Lattice[:0]
 		for k := 0; k < d; k++ {
 			v := [3]float64{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
-			l := (2 + 3*rng.Float64()) * scale / norm3(v)
+			l := (2 + 3*rng.Float64()) * scale / lattice.Norm(v)
 			c.Lattice = append(c.Lattice, [3]float64{v[0] * l, v[1] * l, v[2] * l})
 		}
 		prod := 1.0
 		for _, v := range c.Lattice {
-			prod *= norm3(v)
+			prod *= lattice.Norm(v)
 		}
-		if gramMeasure(c.Lattice) > 0.3*prod {
+		if lattice.GramMeasure(c.Lattice) > 0.3*prod {
 			break
 		}
 	}
@@ -151,7 +152,7 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 				r[a] += df * c.Lattice[k][a]
 			}
 		}
-		if norm3(r) < minSepA {
+		if lattice.Norm(r) < minSepA {
 			return
 		}
 		seen[key] = true

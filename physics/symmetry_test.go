@@ -2,6 +2,7 @@ package physics
 
 import (
 	"context"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 	"testing"
@@ -30,7 +31,7 @@ func TestSymmetryOperationCounts(t *testing.T) {
 			if len(ops) != tc.want {
 				t.Fatalf("got %d operations; want %d", len(ops), tc.want)
 			}
-			if ops[0].Rot != identity3() {
+			if ops[0].Rot != lattice.Identity() {
 				t.Errorf("first operation is %v; want the identity", ops[0].Rot)
 			}
 		})
@@ -171,7 +172,7 @@ func bruteForceCubicOrbits(m *Model, n int) int {
 			for _, sign := range []float64{1, -1} {
 				var qf [3]float64
 				for l := 0; l < 3; l++ {
-					qf[l] = sign * dot3(kr, a[l]) / (2 * math.Pi)
+					qf[l] = sign * lattice.Dot(kr, a[l]) / (2 * math.Pi)
 				}
 				if j := idx(qf); j < best {
 					best = j

@@ -2,6 +2,7 @@ package physics
 
 import (
 	"context"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 )
 
@@ -78,7 +79,7 @@ func shortestDiagonal(recip [3][3]float64, mesh [3]int, dim int) int {
 				v[a] += sign * recip[k][a] / float64(mesh[k])
 			}
 		}
-		l := dot3(v, v)
+		l := lattice.Dot(v, v)
 		if l < bestLen*(1-1e-9) {
 			best, bestLen = s, l
 		}

@@ -1,6 +1,7 @@
 package physics
 
 import (
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -187,7 +188,7 @@ func TestShortestDiagonal(t *testing.T) {
 					v[a] += sign * b[k][a] / float64(mesh[k])
 				}
 			}
-			return norm3(v)
+			return lattice.Norm(v)
 		}
 		for o := 0; o < 4; o++ {
 			if length(o) < length(s)*(1-1e-9) {

@@ -15,6 +15,7 @@ package physics
 
 import (
 	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 )
@@ -103,10 +104,10 @@ func (v *velWork) velocities(pw *pointWork, q [3]float64, dir [3]float64, out []
 	if !m.assembleGrad(q, &v.grad, &pw.ph, stop) {
 		return false
 	}
-	if norm3(dir) == 0 {
+	if lattice.Norm(dir) == 0 {
 		dir = defaultVelocityDir
 	}
-	dir = scale3(dir, 1/norm3(dir))
+	dir = lattice.Scale(dir, 1/lattice.Norm(dir))
 	vals, vecs := pw.eig.Values(), pw.eig.Vectors()
 	// The model's eigenvalue bound, not this point's largest eigenvalue:
 	// at Γ of a one-site model every eigenvalue is rounding noise.
