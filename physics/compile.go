@@ -7,9 +7,10 @@ package physics
 import (
 	"context"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"sort"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // Options controls how a Crystal is compiled into a Model.

@@ -4,6 +4,8 @@ import (
 	"math"
 	"runtime"
 	"unsafe"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // Cost estimates of the engine's computations, for admission control: a
@@ -62,7 +64,7 @@ type GridSize struct {
 
 // GridSizeOf fills a GridSize for model m on spec (normalised, see
 // GridSpec.Normalize) with irr irreducible points (0: unknown).
-func (m *Model) GridSizeOf(spec GridSpec, irr int) GridSize {
+func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
 	return GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
 }
 
@@ -83,7 +85,7 @@ func (s GridSize) reps(opt GridOptions) int {
 	case s.Irreducible > 0:
 		return min(s.Irreducible, s.Points)
 	}
-	return IrreducibleUpperBound(s.Points, s.Dim)
+	return mesh.IrreducibleUpperBound(s.Points, s.Dim)
 }
 
 // pointBytes is what GridModes keeps per point: frequencies, and per
@@ -156,7 +158,7 @@ func GridModesCost(s GridSize, opt GridOptions) Cost {
 	if opt.NoSymmetry {
 		c.Bytes += 10 * n // measured: about 9.5 B a point beyond the arrays, origin not traced
 	} else {
-		ub := int64(IrreducibleUpperBound(s.Points, s.Dim))
+		ub := int64(mesh.IrreducibleUpperBound(s.Points, s.Dim))
 		c.Bytes += 7*n + 24*ub + reps*per + symOpsBytes + 12<<10
 	}
 	c.Flops = float64(reps) * (diagFlops(s.modes(), vec) + s.assembleFlops())

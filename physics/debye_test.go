@@ -1,10 +1,11 @@
 package physics
 
 import (
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 
 	"gonum.org/v1/gonum/integrate/quad"
 )

@@ -11,8 +11,9 @@
 package physics
 
 import (
-	"github.com/materials-lab/modegrid/physics/eigen"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
 )
 
 // dmBlock is one p×p block of the lower triangle of D(q) contributed by one

@@ -53,9 +53,10 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"sort"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 
 	"gonum.org/v1/gonum/integrate/quad"
 )

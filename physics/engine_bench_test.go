@@ -6,9 +6,11 @@ package physics
 import (
 	"context"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/eigen"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // conventionalRocksalt is the rock-salt-like example in its conventional
@@ -121,7 +123,7 @@ var sinkGrid *GridModes
 // StreamModes, for the one-site fcc and the two-site rock-salt-like
 // examples. ns/op is wall time for the whole grid.
 func BenchmarkGrid48(b *testing.B) {
-	spec := GridSpec{Mesh: [3]int{48, 48, 48}}
+	spec := mesh.GridSpec{Mesh: [3]int{48, 48, 48}}
 	for _, name := range []string{"fcc", "rocksalt-like"} {
 		m := mustCompile(b, loadExample(b, name))
 		b.Run(name+"/GridModes", func(b *testing.B) {

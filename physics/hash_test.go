@@ -6,11 +6,12 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"regexp"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // decodeModel decodes a model file text the way loadExample does.

@@ -4,10 +4,11 @@
 package physics
 
 import (
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // cloneCrystal deep-copies c.

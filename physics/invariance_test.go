@@ -4,13 +4,14 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/eigen"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
 	"sort"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // TestZeroModesAtGamma: every example built from springs has exactly p

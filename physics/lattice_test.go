@@ -4,10 +4,11 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // withLattice is a one-site crystal on the given lattice (no springs: the

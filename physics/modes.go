@@ -6,10 +6,12 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/eigen"
 	"math"
 	"runtime"
 	"sync/atomic"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/mesh"
 
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
@@ -304,7 +306,7 @@ func (m *Model) chunkPoints(opt ModeOptions) int {
 // error from emit stops the work and is returned as is. Points are checked
 // first with ValidateQPoints (fields "points[i].q1" …), and
 // opt.VelocityDir must be finite (field "velocity_dir").
-func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
+func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
 	if err := ValidateQPoints(m.dim, pts, "points"); err != nil {
 		return err
 	}
@@ -383,7 +385,7 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 var testHookChunkDone func(c int)
 
 // chunk computes one chunk; false if stopped.
-func (w *pointWork) chunk(pts []QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
+func (w *pointWork) chunk(pts []mesh.QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
 	if w.stopped() {
 		return ModeChunk{}, false
 	}
@@ -432,7 +434,7 @@ func (w *pointWork) stopped() bool {
 // ValidateQPoints checks explicit q-points for a d-dimensional crystal:
 // every component finite and within ±MaxQ, the components past d zero, the
 // weight finite. Violations name fields prefix[i].q1 … q3.
-func ValidateQPoints(dim int, pts []QPoint, prefix string) error {
+func ValidateQPoints(dim int, pts []mesh.QPoint, prefix string) error {
 	var vs violations
 	for i, p := range pts {
 		for k, x := range p.Q {

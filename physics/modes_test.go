@@ -5,9 +5,10 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 func relClose(got, want, tol float64) bool {

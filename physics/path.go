@@ -7,10 +7,12 @@ package physics
 import (
 	"context"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"sort"
 	"strings"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // Path sampling defaults and bounds.
@@ -219,9 +221,9 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		dist += seglen[i]
 	}
 
-	pts := make([]QPoint, len(samples))
+	pts := make([]mesh.QPoint, len(samples))
 	for i, s := range samples {
-		pts[i] = QPoint{Q: s.Q, Weight: 1}
+		pts[i] = mesh.QPoint{Q: s.Q, Weight: 1}
 	}
 	n := m.Modes()
 	var conn *connector

@@ -5,9 +5,10 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // TestDefaultPathEveryLatticeType builds a model of each lattice type (1D,

@@ -12,10 +12,12 @@ import (
 	"encoding/json"
 	"flag"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 var propsN = flag.Int("props.n", 0, "random models per property test (0: the quick default of make test)")
@@ -61,7 +63,7 @@ type propCase struct {
 	seed uint64
 	c    *Crystal
 	m    *Model
-	spec GridSpec
+	spec mesh.GridSpec
 }
 
 // String is the reproduction recipe printed on failure: the seed and the
@@ -234,8 +236,8 @@ func randomShellCrystal(rng *rand.Rand) *Crystal {
 }
 
 // propMesh is a small Γ-centred grid for a d-dimensional model.
-func propMesh(rng *rand.Rand, d int) GridSpec {
-	var s GridSpec
+func propMesh(rng *rand.Rand, d int) mesh.GridSpec {
+	var s mesh.GridSpec
 	for k := 0; k < 3; k++ {
 		switch {
 		case k >= d:

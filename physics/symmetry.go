@@ -2,10 +2,11 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // SymOp is a point-group operation of a model with its fractional

@@ -2,10 +2,12 @@ package physics
 
 import (
 	"context"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // TestSymmetryOperationCounts: point-group orders of the example crystals.
@@ -95,7 +97,7 @@ func TestIrreducibleCountsFCC(t *testing.T) {
 		sizes = sizes[:3]
 	}
 	for _, n := range sizes {
-		ir, err := m.ReduceGrid(context.Background(), GridSpec{Mesh: [3]int{n, n, n}}, nil)
+		ir, err := m.ReduceGrid(context.Background(), mesh.GridSpec{Mesh: [3]int{n, n, n}}, nil)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -215,7 +217,7 @@ func TestReducedEqualsFull(t *testing.T) {
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			m := mustCompile(t, c.c)
-			spec := GridSpec{Mesh: c.mesh, Shifted: c.sh}
+			spec := mesh.GridSpec{Mesh: c.mesh, Shifted: c.sh}
 			opt := GridOptions{Projections: true, Eigenvectors: true, SiteTensors: true}
 			red, err := m.GridModes(context.Background(), spec, opt)
 			if err != nil {
@@ -281,27 +283,5 @@ func TestReducedEqualsFull(t *testing.T) {
 				}
 			}
 		})
-	}
-}
-
-// TestSizedLRU: the reduced-grid cache evicts by bytes as well as by count
-// (common practice for bounded caches).
-func TestSizedLRU(t *testing.T) {
-	c := newSizedLRU[[]byte](10, 100, func(b []byte) int { return len(b) })
-	c.put("a", make([]byte, 60))
-	c.put("b", make([]byte, 30))
-	if _, ok := c.get("a"); !ok {
-		t.Fatal("a evicted too early")
-	}
-	c.put("c", make([]byte, 30)) // 120 bytes: evict the least recent, b
-	if _, ok := c.get("b"); ok {
-		t.Error("b kept past the byte bound")
-	}
-	if c.bytes != 90 {
-		t.Errorf("bytes = %d; want 90", c.bytes)
-	}
-	c.put("huge", make([]byte, 200))
-	if _, ok := c.get("huge"); ok {
-		t.Error("an entry larger than the bound was kept")
 	}
 }

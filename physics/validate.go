@@ -5,9 +5,10 @@ package physics
 
 import (
 	"fmt"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"strings"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // Limits bounds the size of a model. The zero value means the defaults.

@@ -14,10 +14,11 @@
 package physics
 
 import (
-	"github.com/materials-lab/modegrid/physics/eigen"
-	"github.com/materials-lab/modegrid/physics/lattice"
 	"math"
 	"math/cmplx"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // VelocityUnitKmS is the group velocity in km/s of a slope of
