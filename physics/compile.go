@@ -70,7 +70,7 @@ type Model struct {
 	interactions     int
 	sumRuleViolation float64 // eV/Å², before enforcement
 
-	latticeType string                // LatticeType (lattice.go), found by Compile
+	latticeType string                // LatticeType (lattice.Detect), found by Compile
 	standard    map[string][3]float64 // StandardPoints
 
 	sym lazy[[]SymOp] // computed on first use by Symmetry (symmetry.go)

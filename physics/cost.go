@@ -56,7 +56,7 @@ type GridSize struct {
 	Interactions  int // force-constant pair terms (Model.Interactions): assembly work
 	Points        int // grid points N
 	// Irreducible is the number of points diagonalised: the exact count
-	// when known (ReductionCache.IrreducibleCount), else 0 for the upper
+	// when known (IrreducibleCount), else 0 for the upper
 	// bound IrreducibleUpperBound. Ignored with NoSymmetry (all points).
 	Irreducible int
 	Workers     int // goroutines of the parallel loops (0: GOMAXPROCS)
@@ -139,7 +139,7 @@ func workspaceBytes(n int, vectors bool) int64 {
 }
 
 // GridModesCost estimates Model.GridModes. Memory, from grid.go and
-// ibz.go: the point list (32 B a point); the reduction (Slot 4 B, OpIndex
+// the point list (32 B a point); the reduction (Slot 4 B, OpIndex
 // 2 B and the visited mark 1 B per point; Irr and Mult allocated at the
 // capacity IrreducibleUpperBound and trimmed, 8 B each, at most 24 B per
 // bound point in all), counted even when the reduction comes from a cache,
@@ -190,7 +190,7 @@ func GridModesBytes(s GridSize, opt GridOptions) int64 {
 	return 256 + int64(s.Points)*(32+s.pointBytes(opt))
 }
 
-// simplicesPerCell is d!: the simplices of one grid cell (gridSimplices).
+// simplicesPerCell is d!: the simplices of one grid cell (mesh.GridSimplices).
 func simplicesPerCell(dim int) int64 { return [4]int64{1, 1, 2, 6}[min(max(dim, 1), 3)] }
 
 // accBytes is one cumAcc of ns sites on a cumGrid of n abscissae: val and
