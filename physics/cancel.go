@@ -12,7 +12,11 @@
 
 package physics
 
-import "context"
+import (
+	"context"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+)
 
 // pollEvery is the number of iterations of a cheap loop (a few hundred
 // nanoseconds each at most) between two polls of the context.
@@ -39,7 +43,7 @@ func (m *Model) dynamicalMatrixCtx(ctx context.Context, q [3]float64) ([]complex
 	return out, ctx.Err()
 }
 
-// symEigen is the engine's Hermitian eigensolver (eigen.go) applied to a
+// symEigen is the engine's Hermitian eigensolver (package eigen) applied to a
 // real symmetric matrix: with a real input its reflectors and rotations
 // are real, so the eigenvectors come out real (imaginary parts exactly 0).
 // Unlike a library call it polls the context inside its O(n³) loops, which
@@ -47,29 +51,29 @@ func (m *Model) dynamicalMatrixCtx(ctx context.Context, q [3]float64) ([]complex
 // sites); it is also faster than gonum's EigenSym there (2.5 s against
 // 4.8 s at n = 768 in one run on this machine).
 type symEigen struct {
-	w    *eigenWork
+	w    *eigen.Work
 	vals []float64 // eigenvalues, ascending, after solve
 }
 
-func newSymEigen(n int) *symEigen { return &symEigen{w: newEigenWork(n)} }
+func newSymEigen(n int) *symEigen { return &symEigen{w: eigen.NewWork(n)} }
 
 // set stores element (i, j), j ≤ i, of the lower triangle.
-func (s *symEigen) set(i, j int, v float64) { s.w.a[i*s.w.n+j] = complex(v, 0) }
+func (s *symEigen) set(i, j int, v float64) { s.w.A()[i*s.w.N()+j] = complex(v, 0) }
 
 // solve computes the eigenvalues and eigenvectors. It returns false when
 // the solver did not converge (a non-finite matrix) and ctx.Err() when ctx
 // ended first.
 func (s *symEigen) solve(ctx context.Context) (bool, error) {
-	s.w.done = ctx.Done()
-	switch s.w.solve(true) {
-	case solveStopped:
+	s.w.SetStop(ctx.Done())
+	switch s.w.Solve(true) {
+	case eigen.Stopped:
 		return false, ctx.Err()
-	case solveNoConverge:
+	case eigen.NoConverge:
 		return false, nil
 	}
-	s.vals = s.w.vals
+	s.vals = s.w.Values()
 	return true, ctx.Err()
 }
 
 // vector returns component i of the eigenvector of eigenvalue k.
-func (s *symEigen) vector(k, i int) float64 { return real(s.w.vecs[k*s.w.n+i]) }
+func (s *symEigen) vector(k, i int) float64 { return real(s.w.Vectors()[k*s.w.N()+i]) }

@@ -11,6 +11,8 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // hangGuard bounds how long a cancelled stage may take to return before
@@ -161,7 +163,7 @@ func TestCancelReduceGrid(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "fcc"))
 	mustSymmetry(t, m)
 	lat := cancelMidway(t, 20, func(ctx context.Context) error {
-		_, err := m.ReduceGrid(ctx, GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
+		_, err := m.ReduceGrid(ctx, mesh.GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
 		return err
 	})
 	t.Logf("ReduceGrid, 4.1 M points: returned %v after cancellation", lat)
@@ -172,25 +174,25 @@ func TestCancelReduceGrid(t *testing.T) {
 // afterwards equals the one computed without symmetry classes.
 func TestCancelTetraClasses(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "fcc"))
-	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{90, 90, 90}}, GridOptions{})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{90, 90, 90}}, GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+	set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
 	lat := cancelMidway(t, 20, func(ctx context.Context) error {
-		_, err := simplexClasses(ctx, g, set)
+		_, err := mesh.SimplexClasses(ctx, g.irr, set, g.cache)
 		return err
 	})
 	t.Logf("tetrahedron classes, 90³: returned %v after cancellation", lat)
-	classes, err := simplexClasses(context.Background(), g, set)
+	classes, err := mesh.SimplexClasses(context.Background(), g.irr, set, g.cache)
 	if err != nil {
 		t.Fatal(err)
 	}
 	var n float64
 	for _, c := range classes {
-		n += c.count
+		n += c.Count
 	}
-	if want := float64(90 * 90 * 90 * len(set.corners)); n != want {
+	if want := float64(90 * 90 * 90 * len(set.Corners)); n != want {
 		t.Errorf("classes after a cancelled build hold %g simplices; want %g", n, want)
 	}
 }
@@ -199,7 +201,7 @@ func TestCancelTetraClasses(t *testing.T) {
 // temperatures stop when cancelled.
 func TestCancelThermal(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{48, 48, 48}}, GridOptions{})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{48, 48, 48}}, GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -306,7 +308,7 @@ func TestCancelLatencyTable(t *testing.T) {
 	m512 := mustCompile(t, c512)
 	fcc := mustCompile(t, loadExample(t, "fcc"))
 	mustSymmetry(t, fcc)
-	g96, err := fcc.GridModes(context.Background(), GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{})
+	g96, err := fcc.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -323,11 +325,11 @@ func TestCancelLatencyTable(t *testing.T) {
 		}},
 		{"Stability mesh 2, 512 sites", func(ctx context.Context) error { _, _, _, err := m512.Stability(ctx, 2); return err }},
 		{"ReduceGrid 161×160×159 (fcc)", func(ctx context.Context) error {
-			_, err := fcc.ReduceGrid(ctx, GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
+			_, err := fcc.ReduceGrid(ctx, mesh.GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
 			return err
 		}},
 		{"GridModes 160³ no symmetry (fcc)", func(ctx context.Context) error {
-			_, err := fcc.GridModes(ctx, GridSpec{Mesh: [3]int{160, 160, 160}}, GridOptions{NoSymmetry: true})
+			_, err := fcc.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{160, 160, 160}}, GridOptions{NoSymmetry: true})
 			return err
 		}},
 		{"tetrahedron DOS 96³, cold classes (fcc)", func(ctx context.Context) error {

@@ -9,6 +9,8 @@ import (
 	"fmt"
 	"math"
 	"sort"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // Options controls how a Crystal is compiled into a Model.
@@ -68,7 +70,7 @@ type Model struct {
 	interactions     int
 	sumRuleViolation float64 // eV/Å², before enforcement
 
-	latticeType string                // LatticeType (lattice.go), found by Compile
+	latticeType string                // LatticeType (lattice.Detect), found by Compile
 	standard    map[string][3]float64 // StandardPoints
 
 	sym lazy[[]SymOp] // computed on first use by Symmetry (symmetry.go)
@@ -175,7 +177,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		return nil, err
 	}
 	m.hash = m.canonicalHash(raw)
-	m.latticeType, m.standard = detectLattice(m)
+	m.latticeType, m.standard = lattice.Detect(m.lattice, m.dim)
 	return m, nil
 }
 
@@ -188,7 +190,7 @@ func newModel(c *Crystal) *Model {
 			m.lattice[k][a] = posZero(v[a])
 		}
 	}
-	m.recip = reciprocal(m.lattice, m.dim)
+	m.recip = lattice.Reciprocal(m.lattice, m.dim)
 	for _, s := range c.Sites {
 		frac := make([]float64, len(s.Frac))
 		for k, f := range s.Frac {
@@ -263,8 +265,8 @@ func (m *Model) addSpring(f fcParts, i, j int, n [3]int, kl, kt float64) {
 	if j < i || (i == j && lessCell(n, neg3(n))) {
 		i, j, n = j, i, neg3(n)
 	}
-	r := sub3(add3(m.pos[j], m.latticeVec(n)), m.pos[i])
-	l := norm3(r)
+	r := lattice.Sub(lattice.Add(m.pos[j], m.latticeVec(n)), m.pos[i])
+	l := lattice.Norm(r)
 	e := [3]float64{r[0] / l, r[1] / l, r[2] / l}
 	var phi, self [9]float64
 	for a := 0; a < 3; a++ {
@@ -407,7 +409,7 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 	}
 	maxLen := 0.0
 	for k := 0; k < m.dim; k++ {
-		maxLen = math.Max(maxLen, norm3(m.lattice[k]))
+		maxLen = math.Max(maxLen, lattice.Norm(m.lattice[k]))
 	}
 	radius := 1.5 * maxLen * float64(sh.Shell)
 	for {
@@ -416,7 +418,7 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 		var reach [3]int
 		capped := false
 		for k := 0; k < m.dim; k++ {
-			r := int(math.Ceil(radius*norm3(m.recip[k])/(2*math.Pi))) + 1
+			r := int(math.Ceil(radius*lattice.Norm(m.recip[k])/(2*math.Pi))) + 1
 			if r > lim.MaxCellOffset {
 				r = lim.MaxCellOffset
 				capped = true
@@ -465,7 +467,7 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 		complete := radius
 		if capped {
 			for k := 0; k < m.dim; k++ {
-				complete = math.Min(complete, float64(reach[k]-1)*2*math.Pi/norm3(m.recip[k]))
+				complete = math.Min(complete, float64(reach[k]-1)*2*math.Pi/lattice.Norm(m.recip[k]))
 			}
 		}
 		var within []float64
@@ -526,7 +528,7 @@ func (m *Model) eachPair(ctx context.Context, from, to []int, reach [3]int, fn f
 						if i == j && n == ([3]int{}) {
 							continue
 						}
-						fn(shellBond{i, j, n}, norm3(sub3(add3(m.pos[j], rn), m.pos[i])))
+						fn(shellBond{i, j, n}, lattice.Norm(lattice.Sub(lattice.Add(m.pos[j], rn), m.pos[i])))
 					}
 				}
 			}
@@ -556,62 +558,13 @@ func (m *Model) latticeVec(n [3]int) [3]float64 {
 	return r
 }
 
-// reciprocal returns reciprocal vectors b_k (rows) with b_k·a_l = 2π δ_kl,
-// spanning the same subspace as the d lattice vectors.
-func reciprocal(a [3][3]float64, d int) [3][3]float64 {
-	// b = 2π (A Aᵀ)⁻¹ A restricted to the d vectors: works for any d.
-	var g [3][3]float64
-	for i := 0; i < d; i++ {
-		for j := 0; j < d; j++ {
-			g[i][j] = dot3(a[i], a[j])
-		}
-	}
-	gi := invertSmall(g, d)
-	var b [3][3]float64
-	for k := 0; k < d; k++ {
-		for l := 0; l < d; l++ {
-			for x := 0; x < 3; x++ {
-				b[k][x] += 2 * math.Pi * gi[k][l] * a[l][x]
-			}
-		}
-	}
-	return b
-}
-
-// invertSmall inverts the top-left d×d block of g (d ≤ 3, non-singular).
-func invertSmall(g [3][3]float64, d int) [3][3]float64 {
-	var r [3][3]float64
-	switch d {
-	case 1:
-		r[0][0] = 1 / g[0][0]
-	case 2:
-		det := g[0][0]*g[1][1] - g[0][1]*g[1][0]
-		r[0][0], r[0][1] = g[1][1]/det, -g[0][1]/det
-		r[1][0], r[1][1] = -g[1][0]/det, g[0][0]/det
-	case 3:
-		det := g[0][0]*(g[1][1]*g[2][2]-g[1][2]*g[2][1]) -
-			g[0][1]*(g[1][0]*g[2][2]-g[1][2]*g[2][0]) +
-			g[0][2]*(g[1][0]*g[2][1]-g[1][1]*g[2][0])
-		for i := 0; i < 3; i++ {
-			for j := 0; j < 3; j++ {
-				i1, i2 := (j+1)%3, (j+2)%3
-				j1, j2 := (i+1)%3, (i+2)%3
-				r[i][j] = (g[i1][j1]*g[i2][j2] - g[i1][j2]*g[i2][j1]) / det
-			}
-		}
-	}
-	return r
-}
-
 func cellOf(c []int) [3]int {
 	var n [3]int
 	copy(n[:], c)
 	return n
 }
 
-func add3(a, b [3]float64) [3]float64 { return [3]float64{a[0] + b[0], a[1] + b[1], a[2] + b[2]} }
-func sub3(a, b [3]float64) [3]float64 { return [3]float64{a[0] - b[0], a[1] - b[1], a[2] - b[2]} }
-func neg3(n [3]int) [3]int            { return [3]int{-n[0], -n[1], -n[2]} }
+func neg3(n [3]int) [3]int { return [3]int{-n[0], -n[1], -n[2]} }
 
 func transpose9(p [9]float64) [9]float64 {
 	return [9]float64{p[0], p[3], p[6], p[1], p[4], p[7], p[2], p[5], p[8]}
@@ -659,3 +612,20 @@ func (m *Model) Reciprocal() [3][3]float64 { return m.recip }
 
 // Lattice returns the lattice vectors (rows, Å; rows past d are zero).
 func (m *Model) Lattice() [3][3]float64 { return m.lattice }
+
+// LatticeType returns the recognised lattice type of the model: "sc",
+// "fcc", "bcc", "hexagonal" (3D or 2D), "square", "rectangular",
+// "centred-rectangular", "oblique", "1d", or "" when the lattice is none of
+// these (a 3D lattice of lower symmetry: only Γ is then built in).
+func (m *Model) LatticeType() string { return m.latticeType }
+
+// StandardPoints returns the built-in labelled points for the model's
+// lattice type, in fractional reciprocal coordinates of the model's own
+// lattice; "G" is Γ and is always present. The map is a fresh copy.
+func (m *Model) StandardPoints() map[string][3]float64 {
+	out := make(map[string][3]float64, len(m.standard))
+	for k, v := range m.standard {
+		out[k] = v
+	}
+	return out
+}

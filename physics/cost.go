@@ -4,6 +4,8 @@ import (
 	"math"
 	"runtime"
 	"unsafe"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // Cost estimates of the engine's computations, for admission control: a
@@ -54,7 +56,7 @@ type GridSize struct {
 	Interactions  int // force-constant pair terms (Model.Interactions): assembly work
 	Points        int // grid points N
 	// Irreducible is the number of points diagonalised: the exact count
-	// when known (ReductionCache.IrreducibleCount), else 0 for the upper
+	// when known (IrreducibleCount), else 0 for the upper
 	// bound IrreducibleUpperBound. Ignored with NoSymmetry (all points).
 	Irreducible int
 	Workers     int // goroutines of the parallel loops (0: GOMAXPROCS)
@@ -62,7 +64,7 @@ type GridSize struct {
 
 // GridSizeOf fills a GridSize for model m on spec (normalised, see
 // GridSpec.Normalize) with irr irreducible points (0: unknown).
-func (m *Model) GridSizeOf(spec GridSpec, irr int) GridSize {
+func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
 	return GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
 }
 
@@ -83,7 +85,7 @@ func (s GridSize) reps(opt GridOptions) int {
 	case s.Irreducible > 0:
 		return min(s.Irreducible, s.Points)
 	}
-	return IrreducibleUpperBound(s.Points, s.Dim)
+	return mesh.IrreducibleUpperBound(s.Points, s.Dim)
 }
 
 // pointBytes is what GridModes keeps per point: frequencies, and per
@@ -125,7 +127,7 @@ func (s GridSize) assembleFlops() float64 {
 	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
 }
 
-// workspaceBytes is one worker's eigensolver workspace (eigenWork: a and
+// workspaceBytes is one worker's eigensolver workspace (eigen.Work: a and
 // hv, n² complex each, and n-vectors; with eigenvectors vecs, n² complex,
 // and zt, n² real) and its phase tables.
 func workspaceBytes(n int, vectors bool) int64 {
@@ -137,7 +139,7 @@ func workspaceBytes(n int, vectors bool) int64 {
 }
 
 // GridModesCost estimates Model.GridModes. Memory, from grid.go and
-// ibz.go: the point list (32 B a point); the reduction (Slot 4 B, OpIndex
+// the point list (32 B a point); the reduction (Slot 4 B, OpIndex
 // 2 B and the visited mark 1 B per point; Irr and Mult allocated at the
 // capacity IrreducibleUpperBound and trimmed, 8 B each, at most 24 B per
 // bound point in all), counted even when the reduction comes from a cache,
@@ -156,7 +158,7 @@ func GridModesCost(s GridSize, opt GridOptions) Cost {
 	if opt.NoSymmetry {
 		c.Bytes += 10 * n // measured: about 9.5 B a point beyond the arrays, origin not traced
 	} else {
-		ub := int64(IrreducibleUpperBound(s.Points, s.Dim))
+		ub := int64(mesh.IrreducibleUpperBound(s.Points, s.Dim))
 		c.Bytes += 7*n + 24*ub + reps*per + symOpsBytes + 12<<10
 	}
 	c.Flops = float64(reps) * (diagFlops(s.modes(), vec) + s.assembleFlops())
@@ -188,7 +190,7 @@ func GridModesBytes(s GridSize, opt GridOptions) int64 {
 	return 256 + int64(s.Points)*(32+s.pointBytes(opt))
 }
 
-// simplicesPerCell is d!: the simplices of one grid cell (gridSimplices).
+// simplicesPerCell is d!: the simplices of one grid cell (mesh.GridSimplices).
 func simplicesPerCell(dim int) int64 { return [4]int64{1, 1, 2, 6}[min(max(dim, 1), 3)] }
 
 // accBytes is one cumAcc of ns sites on a cumGrid of n abscissae: val and

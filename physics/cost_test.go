@@ -6,6 +6,8 @@ import (
 	"runtime"
 	"runtime/debug"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // measureAlloc runs fn with the garbage collector off and returns the heap
@@ -57,9 +59,9 @@ func TestCostLadder(t *testing.T) {
 			meshes = []int{2}
 		}
 		for _, n := range meshes {
-			spec := GridSpec{Mesh: [3]int{n, n, n}}
-			cache := NewReductionCache(64 << 20)
-			irr, _ := cache.IrreducibleCount(m, spec)
+			spec := mesh.GridSpec{Mesh: [3]int{n, n, n}}
+			cache := mesh.NewReductionCache(64 << 20)
+			irr, _ := IrreducibleCount(cache, m, spec)
 			size := m.GridSizeOf(spec, irr)
 			for _, opt := range []GridOptions{{}, {Projections: true}, {Eigenvectors: true}, {SiteTensors: true}, {NoSymmetry: true, Projections: true}} {
 				opt.Cache = cache
@@ -122,7 +124,7 @@ func TestCostLadder(t *testing.T) {
 		for _, mo := range []ModeOptions{{}, {Eigenvectors: true}, {Velocities: true}} {
 			// Few enough chunks that all are in flight at once: then the
 			// total allocation is the peak the estimate bounds.
-			pts := GridSpec{Mesh: [3]int{4, 4, 4}}.Points()
+			pts := mesh.GridSpec{Mesh: [3]int{4, 4, 4}}.Points()
 			mo.ChunkSize = 16
 			if l.sites >= 64 {
 				if mo.Velocities {
@@ -130,7 +132,7 @@ func TestCostLadder(t *testing.T) {
 				}
 				pts, mo.ChunkSize = pts[:8], 2
 			}
-			size := m.GridSizeOf(GridSpec{Mesh: [3]int{1, 1, 1}}, 0)
+			size := m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 0)
 			rungs = append(rungs, rung{
 				name: fmt.Sprintf("%d sites stream of %d points, eigenvectors=%v velocities=%v", l.sites, len(pts), mo.Eigenvectors, mo.Velocities),
 				est:  func() int64 { return StreamCost(size, len(pts), mo.ChunkSize, 0, mo).Bytes },

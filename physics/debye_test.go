@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics/lattice"
+
 	"gonum.org/v1/gonum/integrate/quad"
 )
 
@@ -159,7 +161,7 @@ func TestSoundVelocitiesFCC(t *testing.T) {
 	const ndir = 4000
 	for i := 0; i < ndir; i++ {
 		d := [3]float64{r.NormFloat64(), r.NormFloat64(), r.NormFloat64()}
-		l := norm3(d)
+		l := lattice.Norm(d)
 		for _, v := range mustSpeedsATHz(t, m, [3]float64{d[0] / l, d[1] / l, d[2] / l}) {
 			sum += math.Pow(v, -3) / ndir
 		}

@@ -147,7 +147,7 @@
 //
 // Complex Householder tridiagonalisation and implicit QL (root-free for
 // eigenvalues only), chosen by measurement over a real 2n×2n embedding in
-// gonum and a complex Jacobi method; see the header of eigen.go. Every
+// gonum and a complex Jacobi method; see the header of eigen/eigen.go. Every
 // eigenvalue is within a few n·ε‖D‖ of exact (EigenTol above). Workspaces are reused per core:
 // grid and stream loops allocate nothing per point.
 //
@@ -157,7 +157,7 @@
 // points over all cores (runtime.GOMAXPROCS); StreamModes emits chunks in q
 // order and holds at most two chunks per core, so memory stays bounded with
 // eigenvectors on any grid. Both poll their context between points and,
-// for matrices of cancelCheckModes modes and more, inside the solver's
+// for matrices of eigen.CancelCheckModes modes and more, inside the solver's
 // loops, so cancellation takes effect within milliseconds at any size.
 //
 // Every parallel loop runs on one internal helper (physics/internal/parallel,
@@ -330,4 +330,24 @@
 // once with their count (exact: a tetrahedron's contribution depends only on
 // its corner frequencies). Sums over slices are merged in a fixed order, so
 // results are bit-for-bit independent of scheduling and core count.
+//
+// # Packages
+//
+// The engine is split by concept; arrows point one way (a package imports
+// only those listed above it):
+//
+//   - physics/internal/parallel — the one parallel-loop helper (chunked
+//     work over all cores, cancellation, panics re-raised).
+//   - physics/eigen — the Hermitian eigensolver (Householder + QL, gonum
+//     embedding as fallback) with a reusable workspace.
+//   - physics/lattice — lattice geometry on plain vectors: 3-vector
+//     helpers, reciprocal lattice, Gram measure, lattice type and built-in
+//     points, default paths, the lattice's point group.
+//   - physics/mesh — q-point meshes: grids, finite-crystal sets, reduction
+//     by integer q-space rotations, the ReductionCache, tetrahedron
+//     geometry and simplex classes.
+//   - physics (this package) — the model, validation, compilation, the
+//     dynamical matrix, symmetry with site maps, modes, velocities,
+//     long-wave limit, paths, stability, grid modes and their unfolding,
+//     DOS, thermal sums, displacements, cost estimates, units.
 package physics

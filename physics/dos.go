@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/materials-lab/modegrid/physics/mesh"
+
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
@@ -180,12 +182,12 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	var err error
 	switch opt.Method {
 	case Tetrahedron:
-		set := gridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+		set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
 		// Projections need every simplex (their weights differ between
 		// equivalent points): classes only for the total.
-		var classes []simplexClass
+		var classes []mesh.SimplexClass
 		if !opt.PerSite {
-			if classes, err = simplexClasses(ctx, g, set); err != nil {
+			if classes, err = mesh.SimplexClasses(ctx, g.irr, set, g.cache); err != nil {
 				return nil, err
 			}
 		}

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"sync"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // benchSink keeps benchmark results alive.
@@ -30,7 +32,7 @@ func benchModes(b *testing.B, name string, n int, opt GridOptions) (*Model, *Gri
 	g := benchGrids.m[key]
 	if g == nil {
 		var err error
-		g, err = m.GridModes(context.Background(), GridSpec{Mesh: [3]int{n, n, n}}, opt)
+		g, err = m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{n, n, n}}, opt)
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
@@ -26,7 +27,7 @@ func exampleChain() *physics.Model {
 func ExampleComputeDOS() {
 	ctx := context.Background()
 	m := exampleChain()
-	g, err := m.GridModes(ctx, physics.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
+	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
 	if err != nil {
 		panic(err)
 	}

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // specCtx returns a context with a generous timeout for one test.
@@ -17,13 +19,13 @@ func specCtx(t testing.TB) context.Context {
 }
 
 // exampleGrid compiles an example crystal and computes its modes on spec.
-func exampleGrid(t testing.TB, name string, spec GridSpec, opt GridOptions) (*Model, *GridModes) {
+func exampleGrid(t testing.TB, name string, spec mesh.GridSpec, opt GridOptions) (*Model, *GridModes) {
 	t.Helper()
 	m := mustCompile(t, loadExample(t, name))
 	return m, modesOn(t, m, spec, opt)
 }
 
-func modesOn(t testing.TB, m *Model, spec GridSpec, opt GridOptions) *GridModes {
+func modesOn(t testing.TB, m *Model, spec mesh.GridSpec, opt GridOptions) *GridModes {
 	t.Helper()
 	g, err := m.GridModes(specCtx(t), spec, opt)
 	if err != nil {
@@ -89,7 +91,7 @@ func chainL1(r *DOSResult) float64 {
 // averages, and the integrated DOS against (2/π) arcsin(ν/ν_max).
 // Tolerances are 3× the measured errors (L1 2.9e-6, integrated 4.6e-7).
 func TestDOSChainClosedForm(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{4096}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{4096}}, GridOptions{})
 	r := mustDOS(t, m, g, DOSOptions{Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
 	if l1 := chainL1(r); l1 > 1e-5 {
 		t.Errorf("L1 distance to the closed form %.3g; want < 1e-5", l1)
@@ -114,7 +116,7 @@ func TestDOSChainConvergence(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
 	prev := map[DOSMethod]float64{}
 	for _, n := range []int{32, 64, 128, 256, 512, 1024, 2048} {
-		g := modesOn(t, m, GridSpec{Mesh: [3]int{n}}, GridOptions{})
+		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, GridOptions{})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian} {
 			r := mustDOS(t, m, g, DOSOptions{Method: meth, Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
 			l1 := chainL1(r)
@@ -138,7 +140,7 @@ func TestDOSChainConvergence(t *testing.T) {
 // singularity; Ashcroft & Mermin ch. 23, Kittel ch. 5). The log-log slope
 // over 0.5 %–10 % of ν_max below the edge is −½ to 0.02.
 func TestDOSChainZoneEdge(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{65536}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{65536}}, GridOptions{})
 	r := mustDOS(t, m, g, DOSOptions{Max: chainNuMaxTHz, Step: chainNuMaxTHz / 2000})
 	var xs, ys []float64
 	for i, f := range r.Freq {
@@ -186,7 +188,7 @@ func TestDOSNormalization(t *testing.T) {
 		{"fcc", [3]int{8, 8, 8}},
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
-		m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
+		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
 		want := float64(m.P() * m.Sites())
 		for _, meth := range []DOSMethod{Tetrahedron, Histogram, Gaussian} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
@@ -238,7 +240,7 @@ func TestProjectedDOSSum(t *testing.T) {
 		{"square-net", [3]int{16, 16}},
 		{"rocksalt-like", [3]int{8, 8, 8}},
 	} {
-		m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
+		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian, Histogram} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
 				with := mustDOS(t, m, g, DOSOptions{Method: meth, PerSite: true})
@@ -285,7 +287,7 @@ var diatomicEdges = [3]float64{
 // mode only the light ones (Kittel ch. 4), so the label projections near
 // each edge belong to one species.
 func TestDiatomicGap(t *testing.T) {
-	m, g := exampleGrid(t, "diatomic-chain", GridSpec{Mesh: [3]int{512}}, GridOptions{Projections: true})
+	m, g := exampleGrid(t, "diatomic-chain", mesh.GridSpec{Mesh: [3]int{512}}, GridOptions{Projections: true})
 	lo, hi, top := diatomicEdges[0], diatomicEdges[1], diatomicEdges[2]
 	step := top / 1000
 	r := mustDOS(t, m, g, DOSOptions{Max: 1.02 * top, Step: step, PerSite: true})
@@ -335,7 +337,7 @@ func TestDiatomicGap(t *testing.T) {
 // per unit), the integrated
 // DOS not at all.
 func TestDOSUnits(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
 	ref := mustDOS(t, m, g, DOSOptions{Max: 10, Step: 0.05})
 	for _, tc := range []struct {
 		name   string
@@ -386,7 +388,7 @@ func unstableChain() *Crystal {
 // normalisation (common practice: imaginary modes as negative numbers).
 func TestDOSImaginary(t *testing.T) {
 	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{400}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{400}}, GridOptions{})
 	st := spectrumStats(g)
 	want := 0 // Γ's acoustic mode is 0 here (springs keep the sum rule)
 	for _, f := range g.FreqTHz {
@@ -439,7 +441,7 @@ func TestDOSImaginary(t *testing.T) {
 // wavevector carrying 1/8 of a state per cell (allowed q = 2πn/(Na): common
 // practice; dispersion Kittel ch. 4).
 func TestHistogramFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{8}, Finite: true}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{8}, Finite: true}, GridOptions{})
 	step := 1e-3
 	r := mustDOS(t, m, g, DOSOptions{Method: Histogram, Max: 1.1 * chainNuMaxTHz, Step: step})
 	want := map[int]float64{} // sample index → states
@@ -460,13 +462,13 @@ func TestHistogramFiniteCrystal(t *testing.T) {
 // tetrahedron DOS agree in the mean frequency ⟨ν⟩ = ∫νg/∫g, which smearing
 // does not move (common practice).
 func TestGaussianWidth(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{10, 10, 10}}, GridOptions{})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{10, 10, 10}}, GridOptions{})
 	top := spectrumStats(g).maxTHz
 	def := mustDOS(t, m, g, DOSOptions{Method: Gaussian})
 	if want := top / (8 * 10); math.Abs(def.Width-want) > 1e-12*want {
 		t.Errorf("default width %.6g; want ν_top/(8·N^(1/3)) = %.6g", def.Width, want)
 	}
-	m1, g1 := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	m1, g1 := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
 	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, chainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
 		t.Errorf("1D default width %.6g; want ν_top/N = %.6g", got, want)
 	}
@@ -493,8 +495,8 @@ func TestGaussianWidth(t *testing.T) {
 // 3 % (L1) of the Γ-centred one (common practice: both sample the same
 // zone).
 func TestDOSShiftedGrid(t *testing.T) {
-	m, g0 := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{})
-	g1 := modesOn(t, m, GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, GridOptions{})
+	m, g0 := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{})
+	g1 := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, GridOptions{})
 	opt := DOSOptions{Max: 8, Step: 0.04}
 	a, b := mustDOS(t, m, g0, opt), mustDOS(t, m, g1, opt)
 	if got := integral(b, b.DOS); math.Abs(got-3) > 1e-6 {
@@ -512,7 +514,7 @@ func TestDOSShiftedGrid(t *testing.T) {
 // TestDOSValidation: bad options are refused with every violation named by
 // its field; wrong grid modes are refused with a plain error.
 func TestDOSValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    DOSOptions

@@ -12,6 +12,8 @@ package physics
 
 import (
 	"math"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
 )
 
 // dmBlock is one p×p block of the lower triangle of D(q) contributed by one
@@ -140,11 +142,11 @@ func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func(
 	if stop == nil {
 		clear(a)
 	} else {
-		for r := 0; r < nm; r += pollRows + 1 {
+		for r := 0; r < nm; r += eigen.PollRows + 1 {
 			if stop() {
 				return false
 			}
-			clear(a[r*nm : min(r+pollRows+1, nm)*nm])
+			clear(a[r*nm : min(r+eigen.PollRows+1, nm)*nm])
 		}
 	}
 	t.fill(q, m.reach)
@@ -218,11 +220,11 @@ func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func(
 func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable, stop func() bool) bool {
 	p, nm := m.p, m.Modes()
 	for x := 0; x < 3; x++ {
-		for r := 0; r < nm; r += pollRows + 1 {
+		for r := 0; r < nm; r += eigen.PollRows + 1 {
 			if stop != nil && stop() {
 				return false
 			}
-			clear(g[x][r*nm : min(r+pollRows+1, nm)*nm])
+			clear(g[x][r*nm : min(r+eigen.PollRows+1, nm)*nm])
 		}
 	}
 	t.fill(q, m.reach)

@@ -56,6 +56,8 @@ import (
 	"math"
 	"sort"
 
+	"github.com/materials-lab/modegrid/physics/lattice"
+
 	"gonum.org/v1/gonum/integrate/quad"
 )
 
@@ -122,20 +124,20 @@ func (m *Model) SoundVelocities(ctx context.Context, dir [3]float64) ([]float64,
 		panic("physics: SoundVelocities: direction is not finite")
 	}
 	if s := math.Max(math.Abs(dir[0]), math.Max(math.Abs(dir[1]), math.Abs(dir[2]))); s > 0 {
-		dir = scale3(dir, 1/s) // any length: no overflow in the projection
+		dir = lattice.Scale(dir, 1/s) // any length: no overflow in the projection
 	}
 	var qdir [3]float64
 	for k := 0; k < m.dim; k++ {
-		f := dot3(dir, m.lattice[k]) / (2 * math.Pi) // fractional q of dir
+		f := lattice.Dot(dir, m.lattice[k]) / (2 * math.Pi) // fractional q of dir
 		for a := 0; a < 3; a++ {
 			qdir[a] += f * m.recip[k][a]
 		}
 	}
-	l := norm3(qdir)
-	if l == 0 || norm3(dir) == 0 {
+	l := lattice.Norm(qdir)
+	if l == 0 || lattice.Norm(dir) == 0 {
 		return nil, nil
 	}
-	u := scale3(qdir, 1/l)
+	u := lattice.Scale(qdir, 1/l)
 	lw, err := m.longWaveLimit(ctx)
 	if err != nil || !lw.ok {
 		return nil, err
@@ -204,8 +206,8 @@ func (m *Model) factoredLongWave(ctx context.Context) (*longWave, error) {
 		if (len(rows)+4)*nc > maxLongWaveEntries {
 			return nil, nil
 		}
-		e := scale3(sb.bond, 1/norm3(sb.bond))
-		gs := [4][3]float64{scale3(e, math.Sqrt(sb.kLong))}
+		e := lattice.Scale(sb.bond, 1/lattice.Norm(sb.bond))
+		gs := [4][3]float64{lattice.Scale(e, math.Sqrt(sb.kLong))}
 		st := math.Sqrt(sb.kTrans)
 		gs[1] = [3]float64{0, st * e[2], -st * e[1]} // √k⊥ e × x̂
 		gs[2] = [3]float64{-st * e[2], 0, st * e[0]} // √k⊥ e × ŷ
@@ -482,14 +484,14 @@ func (m *Model) denseLongWave(ctx context.Context) (*longWave, error) {
 			return nil, ctx.Err()
 		}
 		w := math.Sqrt(m.massAmu[t.i] * m.massAmu[t.j])
-		b := sub3(add3(m.pos[t.j], m.latticeVec(t.n)), m.pos[t.i])
+		b := lattice.Sub(lattice.Add(m.pos[t.j], m.latticeVec(t.n)), m.pos[t.i])
 		for a := 0; a < p; a++ {
 			for c := 0; c < p; c++ {
 				f := t.phi[3*a+c] * w // raw Φ, eV/Å²
 				if t.i > 0 && t.j > 0 {
 					phi0[((t.i-1)*p+a)*nw+(t.j-1)*p+c] += f
 				}
-				mag += math.Abs(f) * norm3(b)
+				mag += math.Abs(f) * lattice.Norm(b)
 				for al := 0; al < 3; al++ {
 					y[(t.i*p+a)*np+al*p+c] += b[al] * f
 					for be := 0; be < 3; be++ {
@@ -735,12 +737,12 @@ func latticeSpanBasis(m *Model) [3][3]float64 {
 	for k := 0; k < m.Dim(); k++ {
 		v := lat[k]
 		for j := 0; j < k; j++ {
-			c := dot3(v, b[j])
+			c := lattice.Dot(v, b[j])
 			for a := 0; a < 3; a++ {
 				v[a] -= c * b[j][a]
 			}
 		}
-		l := norm3(v)
+		l := lattice.Norm(v)
 		for a := 0; a < 3; a++ {
 			b[k][a] = v[a] / l
 		}
@@ -752,5 +754,5 @@ func latticeSpanBasis(m *Model) [3][3]float64 {
 // root of the Gram determinant of the lattice vectors.
 func cellMeasure(m *Model) float64 {
 	lat := m.Lattice()
-	return gramMeasure(lat[:m.Dim()])
+	return lattice.GramMeasure(lat[:m.Dim()])
 }

@@ -5,158 +5,12 @@ package physics
 
 import (
 	"context"
-	"fmt"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
-
-// QPoint is a wavevector (fractional reciprocal coordinates) with its weight
-// in its set.
-type QPoint struct {
-	Q      [3]float64
-	Weight float64
-}
-
-// GridSpec is a regular q-point grid: a Monkhorst–Pack grid (Monkhorst &
-// Pack, Phys. Rev. B 13, 5188 (1976)), Γ-centred or shifted by half a step,
-// or the allowed wavevectors of a finite crystal of Mesh cells under
-// periodic boundary conditions. Components of Mesh past the dimensionality
-// must be 1 (0 is read as 1).
-type GridSpec struct {
-	Mesh    [3]int
-	Shifted bool // half-step shift (Monkhorst–Pack only), along the d lattice directions
-	Finite  bool // finite crystal of Mesh cells: q = n/N, n in (−N/2, N/2]
-
-	dim int // dimensionality, set by normalize (0: treat as 3)
-}
-
-// Offset is the grid shift s along k: q_k = (n_k + s)/N_k. It is ½ for a
-// shifted grid along the crystal's d directions and 0 elsewhere, so
-// unused components stay 0.
-func (g GridSpec) Offset(k int) float64 {
-	d := g.dim
-	if d == 0 {
-		d = 3
-	}
-	if g.Shifted && k < d {
-		return 0.5
-	}
-	return 0
-}
-
-// MaxGridPoints bounds any grid the engine will build.
-const MaxGridPoints = 1 << 27
-
-// normalize resolves zero components to 1 and checks the spec against the
-// model's dimensionality, returning violations with field paths under
-// prefix.
-func (g GridSpec) normalize(dim int, prefix string) (GridSpec, error) {
-	var vs violations
-	g.dim = dim
-	for k := 0; k < 3; k++ {
-		if g.Mesh[k] == 0 && k >= dim {
-			g.Mesh[k] = 1
-		}
-		if k < dim && g.Mesh[k] < 1 {
-			vs.add(fmt.Sprintf("%s[%d]", prefix, k), "must be ≥ 1, got %d", g.Mesh[k])
-		}
-		if k >= dim && g.Mesh[k] != 1 {
-			vs.add(fmt.Sprintf("%s[%d]", prefix, k), "must be 1 for a %d-dimensional crystal, got %d", dim, g.Mesh[k])
-		}
-	}
-	if g.Finite && g.Shifted {
-		vs.add(prefix, "a finite crystal has no shifted grid")
-	}
-	if len(vs.list) == 0 {
-		// Multiply step by step so that huge meshes cannot overflow.
-		n := 1
-		for _, x := range g.Mesh {
-			if n > MaxGridPoints/x {
-				vs.add(prefix, "%d×%d×%d points is more than the engine limit of %d", g.Mesh[0], g.Mesh[1], g.Mesh[2], MaxGridPoints)
-				break
-			}
-			n *= x
-		}
-	}
-	return g, vs.err()
-}
-
-// Count is the number of points of the grid.
-func (g GridSpec) Count() int {
-	n := 1
-	for _, x := range g.Mesh {
-		if x > 0 {
-			n *= x
-		}
-	}
-	return n
-}
-
-// Points lists the grid's points in grid order: index (n0·N1 + n1)·N2 + n2,
-// nk = 0…Nk−1, q_k = (nk + s)/Nk with s = ½ when shifted, wrapped into
-// (−½, ½]. Every point has weight 1/N. For a finite crystal these are
-// exactly its allowed wavevectors, each once (common practice).
-func (g GridSpec) Points() []QPoint {
-	pts, _ := g.points(context.Background())
-	return pts
-}
-
-// points is Points polling ctx per row of the grid (a list of 4 million
-// points takes 0.2–0.3 s); it returns ctx.Err() if ctx ends first.
-func (g GridSpec) points(ctx context.Context) ([]QPoint, error) {
-	n := g.Count()
-	pts := make([]QPoint, 0, n)
-	s0, s1, s2 := g.Offset(0), g.Offset(1), g.Offset(2)
-	w := 1 / float64(n)
-	for a := 0; a < g.Mesh[0]; a++ {
-		for b := 0; b < g.Mesh[1]; b++ {
-			if err := ctx.Err(); err != nil {
-				return nil, err
-			}
-			for c := 0; c < g.Mesh[2]; c++ {
-				pts = append(pts, QPoint{Q: [3]float64{
-					wrapHalf((float64(a) + s0) / float64(g.Mesh[0])),
-					wrapHalf((float64(b) + s1) / float64(g.Mesh[1])),
-					wrapHalf((float64(c) + s2) / float64(g.Mesh[2])),
-				}, Weight: w})
-			}
-		}
-	}
-	return pts, nil
-}
-
-// Point returns point i of Points without building the list, for grids
-// too large to hold (a 1 cm crystal of 1 nm cells has 10⁷ points).
-// Components of Mesh that are 0 count as 1.
-func (g GridSpec) Point(i int) QPoint {
-	var n [3]int
-	for k := range n {
-		n[k] = max(1, g.Mesh[k])
-	}
-	c := i % n[2]
-	b := (i / n[2]) % n[1]
-	a := i / (n[1] * n[2])
-	return QPoint{Q: [3]float64{
-		wrapHalf((float64(a) + g.Offset(0)) / float64(n[0])),
-		wrapHalf((float64(b) + g.Offset(1)) / float64(n[1])),
-		wrapHalf((float64(c) + g.Offset(2)) / float64(n[2])),
-	}, Weight: 1 / float64(g.Count())}
-}
-
-// Normalize checks the spec against a d-dimensional crystal (components of
-// Mesh past d must be 1, 0 read as 1) and returns it ready for Points,
-// with violations under the field "mesh".
-func (g GridSpec) Normalize(dim int) (GridSpec, error) { return g.normalize(dim, "mesh") }
-
-// wrapHalf maps x into (−½, ½].
-func wrapHalf(x float64) float64 {
-	x -= math.Ceil(x - 0.5)
-	if x == -0.5 {
-		x = 0.5
-	}
-	return x
-}
 
 // GridModes holds the modes on every point of a grid, in grid order.
 type GridModes struct {
@@ -164,8 +18,8 @@ type GridModes struct {
 	// ComputeDOS and ComputeThermal refuse modes of another model, even one
 	// of the same size.
 	ModelHash string
-	Spec      GridSpec
-	Points    []QPoint
+	Spec      mesh.GridSpec
+	Points    []mesh.QPoint
 	NModes    int // modes per point (sites × p)
 	NSites    int
 	P         int
@@ -190,8 +44,8 @@ type GridModes struct {
 	// irreducible points unless GridOptions.NoSymmetry).
 	Diagonalized int
 
-	irr   *IrreducibleGrid // the reduction used (nil: every point diagonalised)
-	cache *ReductionCache  // where simplex classes of this grid are kept (nil: nowhere)
+	irr   *mesh.IrreducibleGrid // the reduction used (nil: every point diagonalised)
+	cache *mesh.ReductionCache  // where simplex classes of this grid are kept (nil: nowhere)
 }
 
 // Bytes is the memory the grid modes hold, for cache accounting: the
@@ -208,7 +62,7 @@ type GridOptions struct {
 	SiteTensors  bool // per-site displacement tensors (GridModes.SiteTensor)
 	// Cache, when not nil, keeps grid reductions and simplex classes for
 	// reuse by later calls (see ReductionCache); nil reduces afresh.
-	Cache *ReductionCache
+	Cache *mesh.ReductionCache
 	// NoSymmetry diagonalises every grid point instead of the irreducible
 	// ones: the reference path (results agree to rounding), and the faster
 	// one for crystals whose only symmetry is time reversal and grids so
@@ -228,19 +82,20 @@ type GridOptions struct {
 // computation (GridOptions.NoSymmetry) agree to rounding. Work is spread
 // over all cores with one reusable workspace per core (no allocation per
 // point) and stops promptly when ctx is done, returning ctx.Err().
-func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (*GridModes, error) {
-	spec, err := spec.normalize(m.dim, "mesh")
+func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptions) (*GridModes, error) {
+	spec, err := normalizeSpec(spec, m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
-	pts, err := spec.points(ctx)
+	pts, err := spec.PointsContext(ctx)
 	if err != nil {
 		return nil, err
 	}
-	var ir *IrreducibleGrid
+	var ir *mesh.IrreducibleGrid
+	var ops []SymOp
 	reps := len(pts)
 	if !opt.NoSymmetry {
-		if ir, err = m.ReduceGrid(ctx, spec, opt.Cache); err != nil {
+		if ir, ops, err = m.reduceGrid(ctx, spec, opt.Cache); err != nil {
 			return nil, err
 		}
 		reps = len(ir.Irr)
@@ -275,12 +130,12 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 			f := c.FreqTHz[i*nm : (i+1)*nm]
 			w.freqs(f)
 			if opt.Eigenvectors {
-				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.vecs)
+				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.Vectors())
 			}
 			if opt.Projections {
 				sw := c.SiteWeight[i*nm*ns : (i+1)*nm*ns]
 				for k := 0; k < nm; k++ {
-					e := w.eig.vecs[k*nm : (k+1)*nm]
+					e := w.eig.Vectors()[k*nm : (k+1)*nm]
 					for c, z := range e {
 						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
 					}
@@ -291,7 +146,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 				st := c.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
 				for k := 0; k < nm; k++ {
 					for s := 0; s < ns; s++ {
-						e := w.eig.vecs[k*nm+s*p : k*nm+(s+1)*p]
+						e := w.eig.Vectors()[k*nm+s*p : k*nm+(s+1)*p]
 						t := st[(k*ns+s)*pairs : (k*ns+s+1)*pairs]
 						x := 0
 						for a := 0; a < p; a++ {
@@ -313,7 +168,7 @@ func (m *Model) GridModes(ctx context.Context, spec GridSpec, opt GridOptions) (
 	if ir == nil {
 		return c, nil
 	}
-	return m.unfold(ctx, ir, c, opt)
+	return m.unfold(ctx, ir, ops, c, opt)
 }
 
 // DegenerateTolTHz is the frequency difference (THz, relative to the
@@ -365,4 +220,23 @@ func parallelWork(ctx context.Context, n int, newWorker func(done <-chan struct{
 // panic is re-raised here (parallel.Chunks).
 func parallelRange(ctx context.Context, n int, fn func(lo, hi int)) error {
 	return parallel.Chunks(ctx, n, 64, fn)
+}
+
+// normalizeSpec checks the grid spec against the model's dimensionality
+// (mesh.GridSpec.Check) and returns the problems as a *ValidationError
+// with field paths under prefix.
+func normalizeSpec(g mesh.GridSpec, dim int, prefix string) (mesh.GridSpec, error) {
+	g, probs := g.Check(dim, prefix)
+	var vs violations
+	for _, p := range probs {
+		vs.list = append(vs.list, Violation{Field: p.Field, Description: p.Description})
+	}
+	return g, vs.err()
+}
+
+// NormalizeGrid fills the unused mesh entries of a dim-dimensional grid spec
+// with 1 and checks it, returning a *ValidationError with violations under
+// the field "mesh".
+func NormalizeGrid(g mesh.GridSpec, dim int) (mesh.GridSpec, error) {
+	return normalizeSpec(g, dim, "mesh")
 }

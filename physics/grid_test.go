@@ -8,6 +8,9 @@ import (
 	"math"
 	"math/cmplx"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // TestEigenvectors: D e = λ e and the eigenvectors are orthonormal
@@ -17,7 +20,7 @@ func TestEigenvectors(t *testing.T) {
 	n := m.Modes()
 	for _, q := range [][3]float64{{0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0, 0, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
-		vals, vecs := hermitianEigen(d, n, true)
+		vals, vecs := eigen.Hermitian(d, n, true)
 		for k := 0; k < n; k++ {
 			for r := 0; r < n; r++ {
 				var s complex128
@@ -50,7 +53,7 @@ func TestEigenvectors(t *testing.T) {
 // conditions).
 func TestFiniteCrystalPoints(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{5}, Finite: true}, GridOptions{Projections: true})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{5}, Finite: true}, GridOptions{Projections: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -77,7 +80,7 @@ func TestFiniteCrystalPoints(t *testing.T) {
 // grid lives in the d-dimensional zone).
 func TestShiftedGridKeepsUnusedComponentsZero(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{4}, Shifted: true}, GridOptions{})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{4}, Shifted: true}, GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -110,7 +113,7 @@ func TestFiniteCrystalCounts(t *testing.T) {
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, tc.example))
-			g, err := m.GridModes(testCtx(t), GridSpec{Mesh: tc.mesh, Finite: true}, GridOptions{})
+			g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: tc.mesh, Finite: true}, GridOptions{})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -161,7 +164,7 @@ func TestFiniteCrystalSpacing(t *testing.T) {
 				Sites:   []Site{{Label: "A", MassAmu: 50, Frac: []float64{0}}},
 				Springs: []Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}}}
 			m := mustCompile(t, c)
-			spec, err := GridSpec{Mesh: [3]int{tc.n}, Finite: true}.Normalize(m.Dim())
+			spec, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{tc.n}, Finite: true}, m.Dim())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -200,7 +203,7 @@ func TestMonkhorstPackGrids(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, tc.example))
-			spec, err := GridSpec{Mesh: tc.mesh, Shifted: tc.shifted}.Normalize(m.Dim())
+			spec, err := NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh, Shifted: tc.shifted}, m.Dim())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -252,7 +255,7 @@ func TestMonkhorstPackGrids(t *testing.T) {
 // sum is basis-independent; definitions, common practice).
 func TestGridModesMatchesPoints(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	g, err := m.GridModes(testCtx(t), GridSpec{Mesh: [3]int{3, 2, 4}}, GridOptions{Projections: true, Eigenvectors: true, NoSymmetry: true})
+	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{3, 2, 4}}, GridOptions{Projections: true, Eigenvectors: true, NoSymmetry: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -307,7 +310,7 @@ func degenerateGroups(f []float64) [][2]int {
 // part), and its trace is the site weight (definitions).
 func TestGridSiteTensors(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	g, err := m.GridModes(testCtx(t), GridSpec{Mesh: [3]int{2, 3, 2}}, GridOptions{SiteTensors: true, Eigenvectors: true, Projections: true, NoSymmetry: true})
+	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{2, 3, 2}}, GridOptions{SiteTensors: true, Eigenvectors: true, Projections: true, NoSymmetry: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -349,7 +352,7 @@ func TestGridModesCancel(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := m.GridModes(ctx, GridSpec{Mesh: [3]int{64, 64, 64}}, GridOptions{}); !errors.Is(err, context.Canceled) {
+	if _, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{64, 64, 64}}, GridOptions{}); !errors.Is(err, context.Canceled) {
 		t.Fatalf("err = %v; want context.Canceled", err)
 	}
 }
@@ -370,14 +373,14 @@ func TestGridSpecLimits(t *testing.T) {
 		{"overflowing product", 3, [3]int{1 << 31, 1 << 31, 4}, "mesh"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := GridSpec{Mesh: tc.mesh}.Normalize(tc.dim)
+			_, err := NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh}, tc.dim)
 			vs := violationsOf(t, err)
 			if len(vs) == 0 || vs[0].Field != tc.field {
 				t.Fatalf("violations %v; want one on %s", vs, tc.field)
 			}
 		})
 	}
-	if _, err := (GridSpec{Mesh: [3]int{4, 4}, Finite: true, Shifted: true}).Normalize(2); err == nil {
+	if _, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{4, 4}, Finite: true, Shifted: true}, 2); err == nil {
 		t.Error("a shifted finite crystal must be refused")
 	}
 }

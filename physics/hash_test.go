@@ -10,6 +10,8 @@ import (
 	"math/rand/v2"
 	"regexp"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // decodeModel decodes a model file text the way loadExample does.
@@ -181,7 +183,7 @@ func TestHashChanges(t *testing.T) {
 		{"spring constant by 1e-8", func(c *Crystal) *Crystal { c.Shells[0].KLong *= 1 + 1e-8; return c }},
 		{"lattice scale", func(c *Crystal) *Crystal {
 			for k := range c.Lattice {
-				c.Lattice[k] = scale3(c.Lattice[k], 1.01)
+				c.Lattice[k] = lattice.Scale(c.Lattice[k], 1.01)
 			}
 			return c
 		}},

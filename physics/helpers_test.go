@@ -7,6 +7,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // cloneCrystal deep-copies c.
@@ -56,7 +58,7 @@ func supercell(t testing.TB, c *Crystal, mt [3][3]int) *Crystal {
 	if det < 0 {
 		det = -det
 	}
-	inv := invertSmall(mf, 3) // M⁻¹
+	inv := lattice.Invert(mf, 3) // M⁻¹
 	out := cloneCrystal(c)
 	out.Lattice = make([][3]float64, d)
 	for k := 0; k < d; k++ {

@@ -1,34 +1,12 @@
 package physics
 
 import (
-	"container/list"
 	"context"
-	"fmt"
 	"math"
 	"math/cmplx"
-	"strings"
-	"sync"
-)
 
-// IrreducibleGrid is a regular grid reduced by the model's symmetry and
-// time reversal: the irreducible points, their integer multiplicities, and
-// the table that unfolds them back onto every grid point.
-type IrreducibleGrid struct {
-	Spec GridSpec
-	// Ops are the model's operations that map this grid onto itself (the
-	// identity first); OpIndex values refer to this slice.
-	Ops []SymOp
-	// Irr are the grid indices (grid order) of the irreducible points,
-	// ascending; Mult their multiplicities (Σ Mult = number of points).
-	Irr  []int
-	Mult []int
-	// Slot[g] is the position in Irr of the representative of grid point g,
-	// and OpIndex[g] the operation taking the representative q to g:
-	// k ≥ 0 means q_g ≡ Ops[k]·q, k < 0 means q_g ≡ −Ops[−k−1]·q (time
-	// reversal composed with the operation).
-	Slot    []int32
-	OpIndex []int16
-}
+	"github.com/materials-lab/modegrid/physics/mesh"
+)
 
 // ReduceGrid returns the irreducible points of spec under the model's
 // symmetry operations and time reversal. With a cache (nil: none),
@@ -37,185 +15,53 @@ type IrreducibleGrid struct {
 // once. The first call on a model finds its symmetry (Symmetry); that and
 // the reduction of a large grid poll ctx, and ctx.Err() is returned when
 // ctx ends first (nothing partial is cached).
-func (m *Model) ReduceGrid(ctx context.Context, spec GridSpec, cache *ReductionCache) (*IrreducibleGrid, error) {
-	spec, err := spec.normalize(m.dim, "mesh")
+func (m *Model) ReduceGrid(ctx context.Context, spec mesh.GridSpec, cache *mesh.ReductionCache) (*mesh.IrreducibleGrid, error) {
+	spec, err := normalizeSpec(spec, m.dim, "mesh")
 	if err != nil {
 		return nil, err
 	}
+	ir, _, err := m.reduceGrid(ctx, spec, cache)
+	return ir, err
+}
+
+// reduceGrid reduces the normalised spec and returns the reduction with
+// the model's operations its Rots are the q-space parts of (OpIndex refers
+// to both).
+func (m *Model) reduceGrid(ctx context.Context, spec mesh.GridSpec, cache *mesh.ReductionCache) (*mesh.IrreducibleGrid, []SymOp, error) {
 	ops, err := m.gridOps(ctx, spec)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	key := irrKey(ops, spec)
-	if v, ok := cache.get(key); ok {
-		// Share the tables; the ops (with this model's site maps) are ours.
-		cp := *v.(*IrreducibleGrid)
-		cp.Ops = ops
-		return &cp, nil
-	}
-	ir, err := reduce(ctx, ops, spec)
+	ir, err := mesh.Reduce(ctx, qRots(ops), spec, cache)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	cache.put(key, ir)
-	return ir, nil
+	return ir, ops, nil
+}
+
+// qRots are the q-space rotations of ops, in order.
+func qRots(ops []SymOp) [][3][3]int {
+	rots := make([][3][3]int, len(ops))
+	for i, op := range ops {
+		rots[i] = op.QRot
+	}
+	return rots
 }
 
 // gridOps are the model's operations that map the (normalised) grid onto
 // itself.
-func (m *Model) gridOps(ctx context.Context, spec GridSpec) ([]SymOp, error) {
+func (m *Model) gridOps(ctx context.Context, spec mesh.GridSpec) ([]SymOp, error) {
 	sym, err := m.Symmetry(ctx)
 	if err != nil {
 		return nil, err
 	}
 	var ops []SymOp
 	for _, op := range sym {
-		if gridCompatible(op, spec) {
+		if mesh.Compatible(op.QRot, spec) {
 			ops = append(ops, op)
 		}
 	}
 	return ops, nil
-}
-
-func irrKey(ops []SymOp, spec GridSpec) string { return "irr:" + reduceKey(ops, spec) }
-
-func reduceKey(ops []SymOp, spec GridSpec) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "%v/%v/%v;", spec.Mesh, spec.Shifted, spec.Finite)
-	for _, op := range ops {
-		fmt.Fprint(&b, op.QRot)
-	}
-	return b.String()
-}
-
-// gridCompatible reports that the operation maps every point of the grid
-// onto a point of the grid: by linearity it is enough that the first point
-// lands on the grid and each unit step becomes a whole number of steps.
-func gridCompatible(op SymOp, spec GridSpec) bool {
-	var origin [3]float64
-	for k := 0; k < 3; k++ {
-		origin[k] = spec.Offset(k) / float64(spec.Mesh[k])
-	}
-	img := op.applyQ(origin)
-	for k := 0; k < 3; k++ {
-		if !nearInt(img[k]*float64(spec.Mesh[k]) - spec.Offset(k)) {
-			return false
-		}
-	}
-	for l := 0; l < 3; l++ {
-		var step [3]float64
-		step[l] = 1 / float64(spec.Mesh[l])
-		img := op.applyQ(step)
-		for k := 0; k < 3; k++ {
-			if !nearInt(img[k] * float64(spec.Mesh[k])) {
-				return false
-			}
-		}
-	}
-	return true
-}
-
-func nearInt(x float64) bool { return math.Abs(x-math.Round(x)) < 1e-6 }
-
-// reduce builds the orbits of the grid under ±ops. It works in integer
-// grid coordinates: with q_k = (a_k + s_k)/N_k, an operation compatible
-// with the grid maps a to a'_k = Σ_l M_kl a_l + c_k (mod N_k), with
-// M_kl = S_kl N_k/N_l and c_k = Σ_l S_kl N_k s_l/N_l − s_k both integers
-// (gridCompatible checked that); time reversal maps a'_k to −a'_k − 2 s_k.
-// It polls ctx every reducePoll grid points.
-func reduce(ctx context.Context, ops []SymOp, spec GridSpec) (*IrreducibleGrid, error) {
-	n := spec.Count()
-	N := spec.Mesh
-	var off [3]float64
-	var tr [3]int // −2 s_k
-	for k := range off {
-		off[k] = spec.Offset(k)
-		tr[k] = -int(math.Round(2 * off[k]))
-	}
-	type intOp struct {
-		m [3][3]int
-		c [3]int
-	}
-	iops := make([]intOp, len(ops))
-	for x, op := range ops {
-		for k := 0; k < 3; k++ {
-			cf := -off[k]
-			for l := 0; l < 3; l++ {
-				iops[x].m[k][l] = int(math.Round(float64(op.QRot[k][l]*N[k]) / float64(N[l])))
-				cf += float64(op.QRot[k][l]) * float64(N[k]) * off[l] / float64(N[l])
-			}
-			iops[x].c[k] = int(math.Round(cf))
-		}
-	}
-	mod := func(x, m int) int {
-		x %= m
-		if x < 0 {
-			x += m
-		}
-		return x
-	}
-	// Irr and Mult get the capacity of the bound on their length (every
-	// group here holds time reversal) and are trimmed at the end, so the
-	// memory reduce takes is known in advance (see GridModesCost).
-	ub := IrreducibleUpperBound(n, spec.dim)
-	ir := &IrreducibleGrid{Spec: spec, Ops: ops, Slot: make([]int32, n), OpIndex: make([]int16, n),
-		Irr: make([]int, 0, ub), Mult: make([]int, 0, ub)}
-	visited := make([]bool, n)
-	for g := 0; g < n; g++ {
-		if g%reducePoll == 0 && ctx.Err() != nil {
-			return nil, ctx.Err()
-		}
-		if visited[g] {
-			continue
-		}
-		a := [3]int{g / (N[1] * N[2]), (g / N[2]) % N[1], g % N[2]}
-		slot := int32(len(ir.Irr))
-		mult := 0
-		for k := range iops {
-			op := &iops[k]
-			var img, neg [3]int
-			for x := 0; x < 3; x++ {
-				v := op.m[x][0]*a[0] + op.m[x][1]*a[1] + op.m[x][2]*a[2] + op.c[x]
-				img[x] = mod(v, N[x])
-				neg[x] = mod(-v+tr[x], N[x])
-			}
-			for sign, c := range [2][3]int{img, neg} {
-				h := (c[0]*N[1]+c[1])*N[2] + c[2]
-				if visited[h] {
-					continue
-				}
-				visited[h] = true
-				ir.Slot[h] = slot
-				if sign == 0 {
-					ir.OpIndex[h] = int16(k)
-				} else {
-					ir.OpIndex[h] = int16(-k - 1)
-				}
-				mult++
-			}
-		}
-		ir.Irr = append(ir.Irr, g)
-		ir.Mult = append(ir.Mult, mult)
-	}
-	if len(ir.Irr) < cap(ir.Irr)/2 {
-		ir.Irr = append([]int(nil), ir.Irr...)
-		ir.Mult = append([]int(nil), ir.Mult...)
-	}
-	return ir, nil
-}
-
-// reducePoll is the number of grid points between two polls of the
-// context in reduce: each costs at most 2·48 images, so a poll every
-// 4 096 points is a fraction of a millisecond apart.
-const reducePoll = 4096
-
-// IrreducibleUpperBound bounds the number of irreducible points of an
-// n-point grid of a d-dimensional crystal under any symmetry: time
-// reversal alone pairs every point with another except those fixed by
-// q → −q (at most 2^d of them), so at most (n + 2^d)/2 orbits remain.
-func IrreducibleUpperBound(n, dim int) int {
-	d := min(max(dim, 1), 3)
-	return min(n, (n+(1<<d)+1)/2)
 }
 
 // unfoldSiteWeights fills the site weights of grid point g from those of
@@ -265,85 +111,9 @@ func unfoldEigvecs(op *SymOp, timeReversal bool, qImage [3]float64, p, nsites in
 	}
 }
 
-// Bytes is the memory held by the reduction tables: Slot (4 B) and
-// OpIndex (2 B) per grid point, Irr and Mult (8 B each) per irreducible
-// point.
-func (ir *IrreducibleGrid) Bytes() int64 {
-	return int64(6*len(ir.Slot) + 16*len(ir.Irr))
-}
-
-// lru is a small mutex-guarded LRU bounded by entry count and, when size
-// is set, by the sum of the entries' sizes.
-type lru[V any] struct {
-	mu       sync.Mutex // guards ll, items and bytes
-	max      int
-	maxBytes int
-	size     func(V) int // nil: entries have no size
-	bytes    int
-	ll       *list.List
-	items    map[string]*list.Element
-}
-
-type lruEntry[V any] struct {
-	key string
-	val V
-}
-
-func newLRU[V any](max int) *lru[V] {
-	return &lru[V]{max: max, ll: list.New(), items: map[string]*list.Element{}}
-}
-
-func newSizedLRU[V any](max, maxBytes int, size func(V) int) *lru[V] {
-	c := newLRU[V](max)
-	c.maxBytes, c.size = maxBytes, size
-	return c
-}
-
-func (c *lru[V]) sizeOf(v V) int {
-	if c.size == nil {
-		return 0
-	}
-	return c.size(v)
-}
-
-func (c *lru[V]) get(key string) (V, bool) {
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	if e, ok := c.items[key]; ok {
-		c.ll.MoveToFront(e)
-		return e.Value.(*lruEntry[V]).val, true
-	}
-	var zero V
-	return zero, false
-}
-
-func (c *lru[V]) put(key string, v V) {
-	c.mu.Lock()
-	defer c.mu.Unlock()
-	if c.size != nil && c.sizeOf(v) > c.maxBytes {
-		return // larger than the whole cache: not kept
-	}
-	if e, ok := c.items[key]; ok {
-		old := e.Value.(*lruEntry[V])
-		c.bytes += c.sizeOf(v) - c.sizeOf(old.val)
-		old.val = v
-		c.ll.MoveToFront(e)
-	} else {
-		c.items[key] = c.ll.PushFront(&lruEntry[V]{key, v})
-		c.bytes += c.sizeOf(v)
-	}
-	for c.ll.Len() > c.max || (c.size != nil && c.bytes > c.maxBytes) {
-		e := c.ll.Back()
-		c.ll.Remove(e)
-		ent := e.Value.(*lruEntry[V])
-		delete(c.items, ent.key)
-		c.bytes -= c.sizeOf(ent.val)
-	}
-}
-
 // unfold spreads the modes computed at the irreducible points (c, indexed
 // by position in ir.Irr) onto every point of the grid.
-func (m *Model) unfold(ctx context.Context, ir *IrreducibleGrid, c *GridModes, opt GridOptions) (*GridModes, error) {
+func (m *Model) unfold(ctx context.Context, ir *mesh.IrreducibleGrid, ops []SymOp, c *GridModes, opt GridOptions) (*GridModes, error) {
 	pts := c.Points
 	nm, ns, p := c.NModes, c.NSites, c.P
 	pairs := p * (p + 1) / 2
@@ -370,7 +140,7 @@ func (m *Model) unfold(ctx context.Context, ir *IrreducibleGrid, c *GridModes, o
 			if tr {
 				k = -k - 1
 			}
-			op := &ir.Ops[k]
+			op := &ops[k]
 			if opt.Projections {
 				unfoldSiteWeights(op, nm, ns, c.SiteWeight[s*nm*ns:(s+1)*nm*ns], g.SiteWeight[i*nm*ns:(i+1)*nm*ns])
 			}
@@ -428,4 +198,45 @@ func unfoldSiteTensors(op *SymOp, nmodes, nsites, p int, src, dst []float64) {
 			}
 		}
 	}
+}
+
+// CheapSymmetrySites is the largest model (sites) whose symmetry
+// IrreducibleCount finds on the spot when it is not yet known: the search
+// grows with sites² per candidate operation, milliseconds up to here.
+const CheapSymmetrySites = 16
+
+// IrreducibleCount returns the number of irreducible points of spec for m
+// and true when it is known cheaply: the reduction is in the cache r, or the
+// grid is small enough (mesh.CheapReduction) to reduce now, the model's symmetry
+// being known or cheap to find (CheapSymmetrySites) (the reduction is
+// then kept in the cache for the computation that follows). Otherwise it
+// returns IrreducibleUpperBound and false. Admission control uses it to
+// estimate a grid computation before any large work.
+func IrreducibleCount(r *mesh.ReductionCache, m *Model, spec mesh.GridSpec) (int, bool) {
+	spec, err := normalizeSpec(spec, m.dim, "mesh")
+	if err != nil {
+		return 0, false
+	}
+	bound := mesh.IrreducibleUpperBound(spec.Count(), m.dim)
+	if _, known := m.sym.peek(); !known && m.nsites > CheapSymmetrySites {
+		return bound, false // finding the symmetry is work to admit first
+	}
+	// Known, or a search of milliseconds (CheapSymmetrySites): not
+	// cancellable from here, and not needed to be.
+	ops, err := m.gridOps(context.Background(), spec)
+	if err != nil {
+		return bound, false
+	}
+	rots := qRots(ops)
+	if ir, ok := r.Lookup(rots, spec); ok {
+		return len(ir.Irr), true
+	}
+	if spec.Count() <= mesh.CheapReduction {
+		ir, err := mesh.Reduce(context.Background(), rots, spec, r)
+		if err != nil {
+			return bound, false
+		}
+		return len(ir.Irr), true
+	}
+	return bound, false
 }

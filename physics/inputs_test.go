@@ -6,6 +6,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // violationFields returns the field names of a *ValidationError (nil for
@@ -44,7 +46,7 @@ func mustPanic(t *testing.T, name string, fn func()) {
 func TestQOutOfDomain(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "fcc"))
 	for _, x := range []float64{-1e308, 1e308, math.NaN(), math.Inf(1), -MaxQ * (1 + 1e-15), 2e6} {
-		pts := []QPoint{{Q: [3]float64{0.1, 0, 0}, Weight: 1}, {Q: [3]float64{x, 0.2, 0}, Weight: 1}}
+		pts := []mesh.QPoint{{Q: [3]float64{0.1, 0, 0}, Weight: 1}, {Q: [3]float64{x, 0.2, 0}, Weight: 1}}
 		if got := violationFields(ValidateQPoints(3, pts, "points")); len(got) != 1 || got[0] != "points[1].q1" {
 			t.Errorf("ValidateQPoints q1=%v: fields %v; want [points[1].q1]", x, got)
 		}
@@ -64,13 +66,13 @@ func TestQOutOfDomain(t *testing.T) {
 		mustPanic(t, "DynamicalMatrixGrad", func() { m.DynamicalMatrixGrad(q) })
 	}
 	// The bound itself is accepted.
-	if err := ValidateQPoints(3, []QPoint{{Q: [3]float64{MaxQ, -MaxQ, 0.5}}}, "points"); err != nil {
+	if err := ValidateQPoints(3, []mesh.QPoint{{Q: [3]float64{MaxQ, -MaxQ, 0.5}}}, "points"); err != nil {
 		t.Errorf("q at ±MaxQ: %v", err)
 	}
 	bad := [3]float64{math.NaN(), 0, 0}
 	mustPanic(t, "Point(VelocityDir)", func() { m.Point([3]float64{0.1}, ModeOptions{Velocities: true, VelocityDir: bad}) })
 	mustPanic(t, "SoundVelocities", func() { _, _ = m.SoundVelocities(context.Background(), bad) })
-	err := m.StreamModes(context.Background(), []QPoint{{Q: [3]float64{0.1}}}, ModeOptions{Velocities: true, VelocityDir: bad}, func(ModeChunk) error { return nil })
+	err := m.StreamModes(context.Background(), []mesh.QPoint{{Q: [3]float64{0.1}}}, ModeOptions{Velocities: true, VelocityDir: bad}, func(ModeChunk) error { return nil })
 	if got := violationFields(err); len(got) != 1 || got[0] != "velocity_dir" {
 		t.Errorf("StreamModes with a NaN VelocityDir: %v; want a violation of velocity_dir", err)
 	}
@@ -119,7 +121,7 @@ func TestGridModesOtherModel(t *testing.T) {
 	b := cloneCrystal(a)
 	b.Springs[0].KLong *= 1.3 // same size, other physics
 	ma, mb, ma2 := mustCompile(t, a), mustCompile(t, b), mustCompile(t, cloneCrystal(a))
-	g := modesOn(t, ma, GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	g := modesOn(t, ma, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
 	if g.ModelHash != ma.Hash() {
 		t.Fatalf("ModelHash %q; want %q", g.ModelHash, ma.Hash())
 	}
@@ -143,7 +145,7 @@ func TestGridModesOtherModel(t *testing.T) {
 // enter, so that window arithmetic cannot overflow into NaN samples.
 func TestDOSOptionBounds(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
 	for _, tc := range []struct {
 		name  string
 		opt   DOSOptions
@@ -219,7 +221,7 @@ func TestExamplesZeroAtGamma(t *testing.T) {
 			f, _ := m.ModesAt([3]float64{})
 			check("ModesAt", f)
 			check("Point", m.Point([3]float64{}, ModeOptions{Velocities: true}).FreqTHz)
-			g := modesOn(t, m, GridSpec{Mesh: [3]int{4, 4, 4}}.forDim(m.Dim()), GridOptions{})
+			g := modesOn(t, m, forDim(mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, m.Dim()), GridOptions{})
 			check("GridModes", g.FreqTHz[:g.NModes])
 			path, err := m.Dispersion(specCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 3})
 			if err != nil {
@@ -235,7 +237,7 @@ func TestExamplesZeroAtGamma(t *testing.T) {
 }
 
 // forDim sets the mesh components past d to 1.
-func (g GridSpec) forDim(d int) GridSpec {
+func forDim(g mesh.GridSpec, d int) mesh.GridSpec {
 	for k := d; k < 3; k++ {
 		g.Mesh[k] = 1
 	}
@@ -254,7 +256,7 @@ func TestUnstableStaysNegative(t *testing.T) {
 	if lo, _, stable, err := m.Stability(specCtx(t), 16); err != nil || stable || !(lo < 0) {
 		t.Errorf("Stability: lowest %g, stable %v, err %v; want unstable", lo, stable, err)
 	}
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
 	if d := mustDOS(t, m, g, DOSOptions{}); d.Imaginary == 0 {
 		t.Error("DOS counts no imaginary mode")
 	}

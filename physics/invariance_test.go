@@ -9,6 +9,9 @@ import (
 	"math/rand/v2"
 	"sort"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // TestZeroModesAtGamma: every example built from springs has exactly p
@@ -19,10 +22,10 @@ func TestZeroModesAtGamma(t *testing.T) {
 	for _, name := range exampleNames(t) {
 		t.Run(name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, name))
-			vals, _ := hermitianEigen(m.DynamicalMatrix([3]float64{}, nil), m.Modes(), false)
+			vals, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{}, nil), m.Modes(), false)
 			// Scale: the largest eigenvalue at the zone boundary (at Γ a
 			// one-site model has nothing but zeros).
-			edge, _ := hermitianEigen(m.DynamicalMatrix([3]float64{0.5, 0.5 * float64(min(m.Dim()-1, 1)), 0}, nil), m.Modes(), false)
+			edge, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{0.5, 0.5 * float64(min(m.Dim()-1, 1)), 0}, nil), m.Modes(), false)
 			top := maxAbs(edge)
 			zeros := 0
 			for _, v := range vals {
@@ -153,7 +156,7 @@ func foldedSpectrum(m *Model, mt [3][3]int, Q [3]float64, det int) []float64 {
 			mf[i][j] = float64(mt[i][j])
 		}
 	}
-	inv := invertSmall(mf, 3)
+	inv := lattice.Invert(mf, 3)
 	seen := map[[3]int64]bool{}
 	var out []float64
 	for g0 := 0; g0 < det; g0++ {

@@ -7,6 +7,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // withLattice is a one-site crystal on the given lattice (no springs: the
@@ -18,53 +20,6 @@ func withLattice(vecs ...[3]float64) *Model {
 		panic(err)
 	}
 	return m
-}
-
-// TestLatticeType recognises each type from its vectors in any primitive
-// basis and orientation, and nothing else.
-func TestLatticeType(t *testing.T) {
-	s3 := math.Sqrt(3)
-	rng := rand.New(rand.NewPCG(41, 1))
-	r := randomRotation(rng)
-	rot := func(vs ...[3]float64) [][3]float64 {
-		out := make([][3]float64, len(vs))
-		for i, v := range vs {
-			out[i] = rotate3(r, v)
-		}
-		return out
-	}
-	cases := []struct {
-		name string
-		vecs [][3]float64
-		want string
-	}{
-		{"sc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}}, LatticeSC},
-		{"sc skewed basis", [][3]float64{{3, 0, 0}, {3, 3, 0}, {-3, 3, 3}}, LatticeSC},
-		{"fcc standard", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 2, 0}}, LatticeFCC},
-		{"fcc other basis", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}, LatticeFCC},
-		{"fcc rotated", rot([3]float64{0, 2, 2}, [3]float64{2, 0, 2}, [3]float64{2, 2, 0}), LatticeFCC},
-		{"bcc standard", [][3]float64{{-1.5, 1.5, 1.5}, {1.5, -1.5, 1.5}, {1.5, 1.5, -1.5}}, LatticeBCC},
-		{"bcc cube-edge basis", [][3]float64{{3, 0, 0}, {0, 3, 0}, {1.5, 1.5, 1.5}}, LatticeBCC},
-		{"hexagonal standard", [][3]float64{{1.5, -1.5 * s3, 0}, {1.5, 1.5 * s3, 0}, {0, 0, 5}}, LatticeHexagonal},
-		{"hexagonal 60° short c", rot([3]float64{3, 0, 0}, [3]float64{1.5, 1.5 * s3, 0}, [3]float64{0, 0, 2}), LatticeHexagonal},
-		{"tetragonal", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 4}}, ""},
-		{"orthorhombic", [][3]float64{{3, 0, 0}, {0, 4, 0}, {0, 0, 5}}, ""},
-		{"triclinic", [][3]float64{{3, 0.1, 0.2}, {0.3, 4, 0}, {0.5, 0.2, 5}}, ""},
-		{"square", [][3]float64{{3, 0, 0}, {0, 3, 0}}, LatticeSquare},
-		{"square skewed basis, tilted plane", rot([3]float64{3, 0, 0}, [3]float64{3, 3, 0}), LatticeSquare},
-		{"rectangular", [][3]float64{{3, 0, 0}, {0, 5, 0}}, LatticeRectangular},
-		{"hexagonal 2D", [][3]float64{{3, 0, 0}, {-1.5, 1.5 * s3, 0}}, LatticeHexagonal},
-		{"centred rectangular", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, LatticeCentredRect},
-		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, LatticeOblique},
-		{"1d", [][3]float64{{0, 0, 2.5}}, Lattice1D},
-	}
-	for _, tc := range cases {
-		t.Run(tc.name, func(t *testing.T) {
-			if got := withLattice(tc.vecs...).LatticeType(); got != tc.want {
-				t.Errorf("LatticeType = %q; want %q", got, tc.want)
-			}
-		})
-	}
 }
 
 // TestStandardPointsSetting: in the standard setting the built-in points
@@ -123,7 +78,7 @@ func TestStandardPointsSetting(t *testing.T) {
 					}
 				}
 			}
-			if want := len(standardFrac[m.LatticeType()]); tc.name != "hexagonal 2D" && len(std) != want {
+			if want := len(lattice.StandardFrac(m.LatticeType())); tc.name != "hexagonal 2D" && len(std) != want {
 				t.Errorf("%d points; want %d", len(std), want)
 			}
 		})
@@ -153,7 +108,7 @@ func TestStandardPointsAnySetting(t *testing.T) {
 	other := cloneCrystal(c)
 	other.Lattice = [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}
 	om := mustCompile(t, other)
-	if om.LatticeType() != LatticeFCC {
+	if om.LatticeType() != lattice.FCC {
 		t.Fatalf("type %q", om.LatticeType())
 	}
 	for _, label := range []string{"X", "L", "W", "K", "U"} {

@@ -10,6 +10,9 @@ import (
 	"runtime"
 	"sync/atomic"
 
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/mesh"
+
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
@@ -56,7 +59,7 @@ const eigenTolFactor = 4
 // summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
 // Zero and imaginary modes.
 func (m *Model) EigenTol() float64 {
-	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * epsilon * m.lambdaScale
+	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * eigen.Epsilon * m.lambdaScale
 }
 
 // EigenTolTHz is EigenTol as a frequency (THz): a mode with |ν| up to
@@ -154,48 +157,48 @@ func imaginary(freqTHz []float64) bool {
 // nothing is allocated per point once it is warm.
 type pointWork struct {
 	m    *Model
-	eig  *eigenWork
+	eig  *eigen.Work
 	ph   phaseTable
 	vel  *velWork // lazily, for group velocities
 	done <-chan struct{}
 }
 
 func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
-	w := &pointWork{m: m, eig: newEigenWork(m.Modes()), done: done}
-	w.eig.done = done
+	w := &pointWork{m: m, eig: eigen.NewWork(m.Modes()), done: done}
+	w.eig.SetStop(done)
 	return w
 }
 
-// solve diagonalises D(q) into w.eig.vals (eigenvalues, eV/Å²/amu,
+// solve diagonalises D(q) into w.eig.Values() (eigenvalues, eV/Å²/amu,
 // ascending, rounding noise around zero set to 0 by cleanEigenvalues) and,
-// with vectors, w.eig.vecs. It returns false if stopped.
+// with vectors, w.eig.Vectors(). It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 	var stop func() bool
-	if w.done != nil && w.m.Modes() >= cancelCheckModes {
+	if w.done != nil && w.m.Modes() >= eigen.CancelCheckModes {
 		stop = w.stopped
 	}
-	if !w.m.assemble(q, w.eig.a, &w.ph, stop) {
+	if !w.m.assemble(q, w.eig.A(), &w.ph, stop) {
 		return false
 	}
-	switch w.eig.solve(vectors) {
-	case solveStopped:
+	switch w.eig.Solve(vectors) {
+	case eigen.Stopped:
 		return false
-	case solveNoConverge:
+	case eigen.NoConverge:
 		// Never seen on finite input; the real embedding is the
 		// slower, independent second opinion.
-		vals, vecs := embeddedEigen(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
-		copy(w.eig.vals, vals)
+		vals, vecs := eigen.Embedded(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
+		copy(w.eig.Values(), vals)
 		if vectors {
-			copy(w.eig.vecs, vecs)
+			copy(w.eig.Vectors(), vecs)
 		}
 	}
-	cleanEigenvalues(w.eig.vals, q, w.m.p, w.m.EigenTol())
+	cleanEigenvalues(w.eig.Values(), q, w.m.p, w.m.EigenTol())
 	return true
 }
 
 // freqs converts the eigenvalues of the last solve to THz into out.
 func (w *pointWork) freqs(out []float64) {
-	for k, v := range w.eig.vals {
+	for k, v := range w.eig.Values() {
 		out[k] = eigToTHz(v)
 	}
 }
@@ -222,7 +225,7 @@ func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
 	w.solve(q, true)
 	out := make([]float64, m.Modes())
 	w.freqs(out)
-	return out, w.eig.vecs
+	return out, w.eig.Vectors()
 }
 
 // Point returns the modes at one q-point with the options' extras
@@ -265,12 +268,12 @@ func (w *pointWork) point(pm *PointModes, opt ModeOptions) bool {
 	pm.Imaginary = imaginary(pm.FreqTHz)
 	if opt.Eigenvectors {
 		n := w.m.Modes()
-		for r := 0; r < n; r += pollRows + 1 { // 37 MB at 512 sites
-			if n >= cancelCheckModes && w.stopped() {
+		for r := 0; r < n; r += eigen.PollRows + 1 { // 37 MB at 512 sites
+			if n >= eigen.CancelCheckModes && w.stopped() {
 				return false
 			}
-			hi := min(r+pollRows+1, n) * n
-			copy(pm.Eigvecs[r*n:hi], w.eig.vecs[r*n:hi])
+			hi := min(r+eigen.PollRows+1, n) * n
+			copy(pm.Eigvecs[r*n:hi], w.eig.Vectors()[r*n:hi])
 		}
 	}
 	return true
@@ -303,7 +306,7 @@ func (m *Model) chunkPoints(opt ModeOptions) int {
 // error from emit stops the work and is returned as is. Points are checked
 // first with ValidateQPoints (fields "points[i].q1" …), and
 // opt.VelocityDir must be finite (field "velocity_dir").
-func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
+func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOptions, emit func(ModeChunk) error) error {
 	if err := ValidateQPoints(m.dim, pts, "points"); err != nil {
 		return err
 	}
@@ -382,7 +385,7 @@ func (m *Model) StreamModes(ctx context.Context, pts []QPoint, opt ModeOptions, 
 var testHookChunkDone func(c int)
 
 // chunk computes one chunk; false if stopped.
-func (w *pointWork) chunk(pts []QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
+func (w *pointWork) chunk(pts []mesh.QPoint, offset, n int, opt ModeOptions) (ModeChunk, bool) {
 	if w.stopped() {
 		return ModeChunk{}, false
 	}
@@ -431,7 +434,7 @@ func (w *pointWork) stopped() bool {
 // ValidateQPoints checks explicit q-points for a d-dimensional crystal:
 // every component finite and within ±MaxQ, the components past d zero, the
 // weight finite. Violations name fields prefix[i].q1 … q3.
-func ValidateQPoints(dim int, pts []QPoint, prefix string) error {
+func ValidateQPoints(dim int, pts []mesh.QPoint, prefix string) error {
 	var vs violations
 	for i, p := range pts {
 		for k, x := range p.Q {

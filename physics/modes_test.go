@@ -7,6 +7,8 @@ import (
 	"context"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 func relClose(got, want, tol float64) bool {
@@ -182,7 +184,7 @@ func TestSquareNet(t *testing.T) {
 // springBlock is the force-constant block of a spring along r (Å):
 // Φ = −(k∥ e eᵀ + k⊥ (1 − e eᵀ)) (doc.go).
 func springBlock(r [3]float64, kl, kt float64) []float64 {
-	l := norm3(r)
+	l := lattice.Norm(r)
 	phi := make([]float64, 9)
 	for a := 0; a < 3; a++ {
 		for b := 0; b < 3; b++ {
@@ -210,7 +212,7 @@ func TestBlocksEqualSprings(t *testing.T) {
 			t.Fatal(err)
 		}
 		for _, b := range bonds {
-			r := sub3(add3(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
+			r := lattice.Sub(lattice.Add(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
 			bc.Blocks = append(bc.Blocks, Block{From: b.i, To: b.j, Cell: b.n[:], Phi: springBlock(r, sh.KLong, sh.KTrans)})
 		}
 	}

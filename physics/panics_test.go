@@ -5,6 +5,8 @@ package physics
 import (
 	"context"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 type faultKey struct{}
@@ -16,7 +18,7 @@ type faultKey struct{}
 // computation on an unmarked context still succeeds.
 func TestWorkerPanicReachesCaller(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	spec, err := GridSpec{Mesh: [3]int{6, 6, 6}}.Normalize(3)
+	spec, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, 3)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -10,6 +10,9 @@ import (
 	"math"
 	"sort"
 	"strings"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // Path sampling defaults and bounds.
@@ -139,7 +142,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		if corners[i].BreakBefore {
 			continue
 		}
-		l := norm3(sub3(m.cartQ(qs[i]), m.cartQ(qs[i-1])))
+		l := lattice.Norm(lattice.Sub(m.cartQ(qs[i]), m.cartQ(qs[i-1])))
 		if l < 1e-12 {
 			vs.add(fmt.Sprintf("path[%d]", i), "is the same point as path[%d]: a segment needs two distinct points (use break_before to jump)", i-1)
 		}
@@ -218,9 +221,9 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		dist += seglen[i]
 	}
 
-	pts := make([]QPoint, len(samples))
+	pts := make([]mesh.QPoint, len(samples))
 	for i, s := range samples {
-		pts[i] = QPoint{Q: s.Q, Weight: 1}
+		pts[i] = mesh.QPoint{Q: s.Q, Weight: 1}
 	}
 	n := m.Modes()
 	var conn *connector
@@ -473,33 +476,11 @@ func (c *connector) align(lo, hi int) {
 	copy(c.cur[lo*n:hi*n], basis)
 }
 
-// defaultPaths are the default paths through the built-in points, by
-// dimensionality and lattice type ('-' joins, '|' breaks): for sc, fcc, bcc
-// and hexagonal in 3D those of Setyawan & Curtarolo, Comput. Mater. Sci. 49,
-// 299 (2010), Table 2 and Figs. 1–4 (from memory); for the 2D nets and 1D
-// the closed loops through Γ and every built-in point (common practice).
-var defaultPaths = map[int]map[string]string{
-	3: {
-		LatticeSC:        "G-X-M-G-R-X|M-R",
-		LatticeFCC:       "G-X-W-K-G-L-U-W-L-K|U-X",
-		LatticeBCC:       "G-H-N-G-P-H|P-N",
-		LatticeHexagonal: "G-M-K-G-A-L-H-A|L-M|K-H",
-	},
-	2: {
-		LatticeSquare:      "G-X-M-G",
-		LatticeRectangular: "G-X-S-Y-G",
-		LatticeCentredRect: "G-X-S-G",
-		LatticeHexagonal:   "G-M-K-G",
-		LatticeOblique:     "G-X-S-Y-G",
-	},
-	1: {Lattice1D: "G-X"},
-}
-
 // DefaultPath returns the default path of the model's lattice through its
 // built-in points (labels only; Dispersion resolves them), or nil when the
 // lattice type has none (an unrecognised 3D lattice: give coordinates).
 func (m *Model) DefaultPath() []PathCorner {
-	spec := defaultPaths[m.dim][m.latticeType]
+	spec := lattice.DefaultPath(m.dim, m.latticeType)
 	if spec == "" {
 		return nil
 	}

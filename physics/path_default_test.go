@@ -7,6 +7,8 @@ import (
 	"context"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // TestDefaultPathEveryLatticeType builds a model of each lattice type (1D,
@@ -20,18 +22,18 @@ func TestDefaultPathEveryLatticeType(t *testing.T) {
 		vecs [][3]float64
 		want string
 	}{
-		{"1d", [][3]float64{{2.5, 0, 0}}, Lattice1D},
-		{"square", [][3]float64{{3, 0, 0}, {3, 3, 0}}, LatticeSquare},
-		{"rectangular", [][3]float64{{3, 0, 0}, {0, 5, 0}}, LatticeRectangular},
-		{"centred rectangular (rhombic reduced cell)", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, LatticeCentredRect},
-		{"centred rectangular (half projection)", [][3]float64{{3, 0, 0}, {-1.5, 2, 0}}, LatticeCentredRect},
-		{"hexagonal 2D (honeycomb/triangular net)", [][3]float64{{2.46, 0, 0}, {-1.23, 1.23 * s3, 0}}, LatticeHexagonal},
-		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, LatticeOblique},
-		{"oblique obtuse basis", [][3]float64{{3, 0, 0}, {-1, 4, 0}}, LatticeOblique},
-		{"sc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}}, LatticeSC},
-		{"fcc", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}, LatticeFCC},
-		{"bcc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {1.5, 1.5, 1.5}}, LatticeBCC},
-		{"hexagonal 3D", [][3]float64{{1.5, -1.5 * s3, 0}, {1.5, 1.5 * s3, 0}, {0, 0, 5}}, LatticeHexagonal},
+		{"1d", [][3]float64{{2.5, 0, 0}}, lattice.Linear},
+		{"square", [][3]float64{{3, 0, 0}, {3, 3, 0}}, lattice.Square},
+		{"rectangular", [][3]float64{{3, 0, 0}, {0, 5, 0}}, lattice.Rectangular},
+		{"centred rectangular (rhombic reduced cell)", [][3]float64{{3, 0, 0}, {1.5, 4, 0}}, lattice.CentredRect},
+		{"centred rectangular (half projection)", [][3]float64{{3, 0, 0}, {-1.5, 2, 0}}, lattice.CentredRect},
+		{"hexagonal 2D (honeycomb/triangular net)", [][3]float64{{2.46, 0, 0}, {-1.23, 1.23 * s3, 0}}, lattice.Hexagonal},
+		{"oblique", [][3]float64{{3, 0, 0}, {1, 4, 0}}, lattice.Oblique},
+		{"oblique obtuse basis", [][3]float64{{3, 0, 0}, {-1, 4, 0}}, lattice.Oblique},
+		{"sc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}}, lattice.SC},
+		{"fcc", [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}, lattice.FCC},
+		{"bcc", [][3]float64{{3, 0, 0}, {0, 3, 0}, {1.5, 1.5, 1.5}}, lattice.BCC},
+		{"hexagonal 3D", [][3]float64{{1.5, -1.5 * s3, 0}, {1.5, 1.5 * s3, 0}, {0, 0, 5}}, lattice.Hexagonal},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -90,7 +92,7 @@ func TestCentredRectObliquePoints(t *testing.T) {
 			for h := -3; h <= 3; h++ {
 				for k := -3; k <= 3; k++ {
 					g := m.cartQ([3]float64{float64(h), float64(k), 0})
-					if dot3(qc, g) > dot3(g, g)/2*(1+1e-12) {
+					if lattice.Dot(qc, g) > lattice.Dot(g, g)/2*(1+1e-12) {
 						t.Errorf("%v %s = %v is outside the first zone (beyond the bisector of (%d,%d))", vecs, label, q, h, k)
 					}
 				}

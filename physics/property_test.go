@@ -15,6 +15,9 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 var propsN = flag.Int("props.n", 0, "random models per property test (0: the quick default of make test)")
@@ -60,7 +63,7 @@ type propCase struct {
 	seed uint64
 	c    *Crystal
 	m    *Model
-	spec GridSpec
+	spec mesh.GridSpec
 }
 
 // String is the reproduction recipe printed on failure: the seed and the
@@ -109,14 +112,14 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 		c.Lattice = c.Lattice[:0]
 		for k := 0; k < d; k++ {
 			v := [3]float64{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
-			l := (2 + 3*rng.Float64()) * scale / norm3(v)
+			l := (2 + 3*rng.Float64()) * scale / lattice.Norm(v)
 			c.Lattice = append(c.Lattice, [3]float64{v[0] * l, v[1] * l, v[2] * l})
 		}
 		prod := 1.0
 		for _, v := range c.Lattice {
-			prod *= norm3(v)
+			prod *= lattice.Norm(v)
 		}
-		if gramMeasure(c.Lattice) > 0.3*prod {
+		if lattice.GramMeasure(c.Lattice) > 0.3*prod {
 			break
 		}
 	}
@@ -151,7 +154,7 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 				r[a] += df * c.Lattice[k][a]
 			}
 		}
-		if norm3(r) < minSepA {
+		if lattice.Norm(r) < minSepA {
 			return
 		}
 		seen[key] = true
@@ -233,8 +236,8 @@ func randomShellCrystal(rng *rand.Rand) *Crystal {
 }
 
 // propMesh is a small Γ-centred grid for a d-dimensional model.
-func propMesh(rng *rand.Rand, d int) GridSpec {
-	var s GridSpec
+func propMesh(rng *rand.Rand, d int) mesh.GridSpec {
+	var s mesh.GridSpec
 	for k := 0; k < 3; k++ {
 		switch {
 		case k >= d:
@@ -453,7 +456,7 @@ func TestPropertyThermalLimits(t *testing.T) {
 // time reversal, ReduceGrid) or at every point directly (NoSymmetry): the
 // operations are symmetries of D(q) (Maradudin & Vosko, Rev. Mod. Phys. 40,
 // 1 (1968)). Compared as signed ω² to 1e-10 of the largest (eigenvalues are
-// exact to a few ε‖D‖, eigen.go). At least a third of the models must have
+// exact to a few ε‖D‖, package eigen). At least a third of the models must have
 // been reduced to fewer points than the grid, or the test proves nothing.
 func TestPropertyReducedGrid(t *testing.T) {
 	ctx := specCtx(t)

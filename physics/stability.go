@@ -6,9 +6,11 @@ import (
 	"context"
 	"math"
 	"strconv"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// Stability diagonalises D(q) on the Γ-centred mesh^d grid and returns the
+// Stability diagonalises D(q) on the Γ-centred side^d grid and returns the
 // lowest and highest frequency found (THz; negative for imaginary modes)
 // and whether the model is stable: no negative frequency anywhere except
 // the p acoustic modes at Γ itself. Rounding noise is exactly 0 already
@@ -16,15 +18,15 @@ import (
 // instability; the acoustic modes at Γ are exempt because for explicit
 // blocks that break the acoustic sum rule they are not zero at all, and
 // SumRuleViolation reports that separately. A grid samples the
-// zone: an instability between its points can be missed, so mesh should
+// zone: an instability between its points can be missed, so side should
 // resolve the dispersion (8 is a fair start for short-range models).
-func (m *Model) Stability(ctx context.Context, mesh int) (minTHz, maxTHz float64, stable bool, err error) {
-	if mesh < 1 {
-		return 0, 0, false, &ValidationError{Violations: []Violation{{Field: "mesh", Description: "must be ≥ 1, got " + strconv.Itoa(mesh)}}}
+func (m *Model) Stability(ctx context.Context, side int) (minTHz, maxTHz float64, stable bool, err error) {
+	if side < 1 {
+		return 0, 0, false, &ValidationError{Violations: []Violation{{Field: "mesh", Description: "must be ≥ 1, got " + strconv.Itoa(side)}}}
 	}
-	var spec GridSpec
+	var spec mesh.GridSpec
 	for k := 0; k < m.dim; k++ {
-		spec.Mesh[k] = mesh
+		spec.Mesh[k] = side
 	}
 	g, err := m.GridModes(ctx, spec, GridOptions{})
 	if err != nil {

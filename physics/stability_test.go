@@ -8,6 +8,8 @@ import (
 	"os"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // TestStability: spring models with positive constants are stable; a
@@ -64,7 +66,7 @@ func TestStability(t *testing.T) {
 // itself is measured by BenchmarkCancelLatency).
 func TestCancelStopsLargeSolve(t *testing.T) {
 	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
-	spec, _ := GridSpec{Mesh: [3]int{8, 8, 8}}.Normalize(3)
+	spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
 	ctx, cancel := context.WithCancel(context.Background())
 	go cancel()
 	err := m.StreamModes(ctx, spec.Points(), ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(ModeChunk) error { return nil })
@@ -95,7 +97,7 @@ func BenchmarkCancelLatency(b *testing.B) {
 			continue
 		}
 		m := mustCompile(b, supercell(b, cube, [3][3]int{{tc.mult, 0, 0}, {0, tc.mult, 0}, {0, 0, tc.mult}}))
-		spec, _ := GridSpec{Mesh: [3]int{3, 3, 3}, Shifted: true}.Normalize(3)
+		spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{3, 3, 3}, Shifted: true}, 3)
 		pts := spec.Points()
 		b.Run(tc.name, func(b *testing.B) {
 			var total, worst time.Duration

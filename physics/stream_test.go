@@ -10,6 +10,8 @@ import (
 	"runtime"
 	"sync/atomic"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // TestStreamModesOrder: chunks arrive in q order with the right offsets and
@@ -17,10 +19,10 @@ import (
 func TestStreamModesOrder(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
 	rng := rand.New(rand.NewPCG(51, 2))
-	pts := make([]QPoint, 203)
+	pts := make([]mesh.QPoint, 203)
 	for i := range pts {
 		q := randomQs(rng, 1)[0]
-		pts[i] = QPoint{Q: q, Weight: float64(i)}
+		pts[i] = mesh.QPoint{Q: q, Weight: float64(i)}
 	}
 	opt := ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 17}
 	next := 0
@@ -61,7 +63,7 @@ func TestStreamModesOrder(t *testing.T) {
 // hook checks every finished chunk against the number emitted.
 func TestStreamModesBoundedMemory(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "fcc"))
-	spec, _ := GridSpec{Mesh: [3]int{8, 8, 8}}.Normalize(3)
+	spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
 	pts := spec.Points()
 	const chunk = 4
 	window := 2 * runtime.GOMAXPROCS(0)
@@ -101,7 +103,7 @@ func TestStreamModesBoundedMemory(t *testing.T) {
 // error from emit is returned as is; a bad point is a *ValidationError.
 func TestStreamModesStops(t *testing.T) {
 	m := mustCompile(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell))
-	spec, _ := GridSpec{Mesh: [3]int{16, 16, 16}}.Normalize(3)
+	spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{16, 16, 16}}, 3)
 	pts := spec.Points()
 	ctx, cancel := context.WithCancel(testCtx(t))
 	got := 0
@@ -119,11 +121,11 @@ func TestStreamModesStops(t *testing.T) {
 		t.Fatalf("err %v; want the emitter's", err)
 	}
 	discard := func(ModeChunk) error { return nil }
-	if err := m.StreamModes(testCtx(t), []QPoint{{Q: [3]float64{0, 0, 2}}}, ModeOptions{}, discard); err != nil {
+	if err := m.StreamModes(testCtx(t), []mesh.QPoint{{Q: [3]float64{0, 0, 2}}}, ModeOptions{}, discard); err != nil {
 		t.Fatalf("q3 = 2 is valid in 3D: %v", err)
 	}
 	chain := mustCompile(t, loadExample(t, "chain"))
-	if _, ok := chain.StreamModes(testCtx(t), []QPoint{{Q: [3]float64{0, 0.5, 0}}}, ModeOptions{}, discard).(*ValidationError); !ok {
+	if _, ok := chain.StreamModes(testCtx(t), []mesh.QPoint{{Q: [3]float64{0, 0.5, 0}}}, ModeOptions{}, discard).(*ValidationError); !ok {
 		t.Fatal("q2 ≠ 0 in 1D must be a *ValidationError")
 	}
 }

@@ -5,6 +5,8 @@ import (
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // SymOp is a point-group operation of a model with its fractional
@@ -56,14 +58,6 @@ func (m *Model) Symmetry(ctx context.Context) ([]SymOp, error) {
 
 func (m *Model) findSymmetry(ctx context.Context) ([]SymOp, error) {
 	d := m.dim
-	var g [3][3]float64
-	scale := 0.0
-	for i := 0; i < d; i++ {
-		for j := 0; j < d; j++ {
-			g[i][j] = dot3(m.lattice[i], m.lattice[j])
-			scale = math.Max(scale, math.Abs(g[i][j]))
-		}
-	}
 	rng := rand.New(rand.NewPCG(0x5eed, 0x0dd5))
 	var probes [][3]float64
 	for k := 0; k < 3; k++ {
@@ -86,27 +80,10 @@ func (m *Model) findSymmetry(ctx context.Context) ([]SymOp, error) {
 			dmax = math.Max(dmax, cmplx.Abs(z))
 		}
 	}
-	n := d * d
-	total := 1
-	for k := 0; k < n; k++ {
-		total *= 3
-	}
 	var ops []SymOp
-	for code := 0; code < total; code++ {
-		if code%pollEvery == 0 && ctx.Err() != nil {
+	for _, r := range lattice.PointGroup(m.lattice, d) {
+		if ctx.Err() != nil {
 			return nil, ctx.Err()
-		}
-		var r [3][3]int
-		c := code
-		for k := 0; k < n; k++ {
-			r[k/d][k%d] = c%3 - 1
-			c /= 3
-		}
-		for k := d; k < 3; k++ {
-			r[k][k] = 1
-		}
-		if !metricPreserved(r, g, d, 1e-8*scale) {
-			continue
 		}
 		cart := m.cartesianRotation(r)
 		if !m.keepsPolarizations(cart) {
@@ -127,31 +104,11 @@ func (m *Model) findSymmetry(ctx context.Context) ([]SymOp, error) {
 	}
 	// Identity first.
 	for i, op := range ops {
-		if op.Rot == identity3() && i > 0 {
+		if op.Rot == lattice.Identity() && i > 0 {
 			ops[0], ops[i] = ops[i], ops[0]
 		}
 	}
 	return ops, nil
-}
-
-func identity3() [3][3]int { return [3][3]int{{1, 0, 0}, {0, 1, 0}, {0, 0, 1}} }
-
-// metricPreserved reports Rᵀ G R = G on the d×d block.
-func metricPreserved(r [3][3]int, g [3][3]float64, d int, tol float64) bool {
-	for i := 0; i < d; i++ {
-		for j := 0; j < d; j++ {
-			var s float64
-			for k := 0; k < d; k++ {
-				for l := 0; l < d; l++ {
-					s += float64(r[k][i]) * g[k][l] * float64(r[l][j])
-				}
-			}
-			if math.Abs(s-g[i][j]) > tol {
-				return false
-			}
-		}
-	}
-	return true
 }
 
 // cartesianRotation is C = Σ_kl a_k R_kl b_lᵀ/2π on the lattice span plus
@@ -238,7 +195,7 @@ func (m *Model) siteMappings(ctx context.Context, r [3][3]int, cart [3][3]float6
 					cell[a] = math.Round(diff[a])
 					diff[a] -= cell[a]
 				}
-				if norm3(m.cart(diff[:d])) < SymPosTolA {
+				if lattice.Norm(m.cart(diff[:d])) < SymPosTolA {
 					perm[i], used[j], found = j, true, true
 					for a := 0; a < d; a++ {
 						shift[i][a] = int(cell[a])
@@ -251,31 +208,12 @@ func (m *Model) siteMappings(ctx context.Context, r [3][3]int, cart [3][3]float6
 		if !ok {
 			continue
 		}
-		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: invTransposeInt(r)}
+		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: lattice.InvTransposeInt(r)}
 		if done, err := try(op); done || err != nil {
 			return err
 		}
 	}
 	return nil
-}
-
-// invTransposeInt returns R⁻ᵀ for a unimodular integer matrix (d ≤ 3),
-// through the adjugate: R⁻¹ = adj(R)/det R with det R = ±1.
-func invTransposeInt(r [3][3]int) [3][3]int {
-	var f [3][3]float64
-	for i := 0; i < 3; i++ {
-		for j := 0; j < 3; j++ {
-			f[i][j] = float64(r[i][j])
-		}
-	}
-	inv := invertSmall(f, 3)
-	var out [3][3]int
-	for i := 0; i < 3; i++ {
-		for j := 0; j < 3; j++ {
-			out[i][j] = int(math.Round(inv[j][i]))
-		}
-	}
-	return out
 }
 
 // applyQ returns QRot·q.

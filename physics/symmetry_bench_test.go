@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // BenchmarkDOSEndToEnd times the whole job a caller asks for: compile the
@@ -26,7 +28,7 @@ func BenchmarkDOSEndToEnd(b *testing.B) {
 		n := run.n
 		b.Run(name, func(b *testing.B) {
 			b.ReportAllocs()
-			cache := NewReductionCache(256 << 20)
+			cache := mesh.NewReductionCache(256 << 20)
 			for b.Loop() {
 				if run.cold { // forget the reduced grid and its simplex classes
 					cache = nil
@@ -35,7 +37,7 @@ func BenchmarkDOSEndToEnd(b *testing.B) {
 				if err != nil {
 					b.Fatal(err)
 				}
-				g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{n, n, n}}, GridOptions{Cache: cache})
+				g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{n, n, n}}, GridOptions{Cache: cache})
 				if err != nil {
 					b.Fatal(err)
 				}
@@ -54,16 +56,16 @@ func BenchmarkDOSEndToEnd(b *testing.B) {
 func BenchmarkReduceGrid(b *testing.B) {
 	m := mustCompile(b, loadExample(b, "fcc"))
 	for _, n := range []int{48, 96} {
-		spec, _ := GridSpec{Mesh: [3]int{n, n, n}}.normalize(3, "mesh")
-		var ops []SymOp
+		spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{n, n, n}}, 3)
+		var rots [][3][3]int
 		for _, op := range mustSymmetry(b, m) {
-			if gridCompatible(op, spec) {
-				ops = append(ops, op)
+			if mesh.Compatible(op.QRot, spec) {
+				rots = append(rots, op.QRot)
 			}
 		}
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
 			for b.Loop() {
-				ir, err := reduce(context.Background(), ops, spec)
+				ir, err := mesh.Reduce(context.Background(), rots, spec, nil)
 				if err != nil {
 					b.Fatal(err)
 				}

@@ -6,6 +6,8 @@ import (
 	"math"
 	"runtime"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // relEqual compares a and b to rel relative to the largest magnitude of the
@@ -55,20 +57,20 @@ func TestReducedResultsEqualFull(t *testing.T) {
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			m := mustCompile(t, c.c)
-			var mesh [3]int
-			for k := range mesh {
-				mesh[k] = 1
+			var msh [3]int
+			for k := range msh {
+				msh[k] = 1
 				if k < m.Dim() {
-					mesh[k] = c.n
+					msh[k] = c.n
 				}
 			}
 			opt := GridOptions{Projections: true, SiteTensors: true, Eigenvectors: true}
-			red, err := m.GridModes(ctx, GridSpec{Mesh: mesh}, opt)
+			red, err := m.GridModes(ctx, mesh.GridSpec{Mesh: msh}, opt)
 			if err != nil {
 				t.Fatal(err)
 			}
 			opt.NoSymmetry = true
-			full, err := m.GridModes(ctx, GridSpec{Mesh: mesh}, opt)
+			full, err := m.GridModes(ctx, mesh.GridSpec{Mesh: msh}, opt)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -128,7 +130,7 @@ func TestDOSDeterministic(t *testing.T) {
 	ctx := context.Background()
 	run := func(procs int) (*DOSResult, *DOSResult, *ThermalResult) {
 		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
-		g, err := m.GridModes(ctx, GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{Projections: true})
+		g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{Projections: true})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -5,6 +5,9 @@ import (
 	"math"
 	"math/cmplx"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // TestSymmetryOperationCounts: point-group orders of the example crystals.
@@ -30,7 +33,7 @@ func TestSymmetryOperationCounts(t *testing.T) {
 			if len(ops) != tc.want {
 				t.Fatalf("got %d operations; want %d", len(ops), tc.want)
 			}
-			if ops[0].Rot != identity3() {
+			if ops[0].Rot != lattice.Identity() {
 				t.Errorf("first operation is %v; want the identity", ops[0].Rot)
 			}
 		})
@@ -94,7 +97,7 @@ func TestIrreducibleCountsFCC(t *testing.T) {
 		sizes = sizes[:3]
 	}
 	for _, n := range sizes {
-		ir, err := m.ReduceGrid(context.Background(), GridSpec{Mesh: [3]int{n, n, n}}, nil)
+		ir, err := m.ReduceGrid(context.Background(), mesh.GridSpec{Mesh: [3]int{n, n, n}}, nil)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -171,7 +174,7 @@ func bruteForceCubicOrbits(m *Model, n int) int {
 			for _, sign := range []float64{1, -1} {
 				var qf [3]float64
 				for l := 0; l < 3; l++ {
-					qf[l] = sign * dot3(kr, a[l]) / (2 * math.Pi)
+					qf[l] = sign * lattice.Dot(kr, a[l]) / (2 * math.Pi)
 				}
 				if j := idx(qf); j < best {
 					best = j
@@ -214,7 +217,7 @@ func TestReducedEqualsFull(t *testing.T) {
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			m := mustCompile(t, c.c)
-			spec := GridSpec{Mesh: c.mesh, Shifted: c.sh}
+			spec := mesh.GridSpec{Mesh: c.mesh, Shifted: c.sh}
 			opt := GridOptions{Projections: true, Eigenvectors: true, SiteTensors: true}
 			red, err := m.GridModes(context.Background(), spec, opt)
 			if err != nil {
@@ -280,27 +283,5 @@ func TestReducedEqualsFull(t *testing.T) {
 				}
 			}
 		})
-	}
-}
-
-// TestSizedLRU: the reduced-grid cache evicts by bytes as well as by count
-// (common practice for bounded caches).
-func TestSizedLRU(t *testing.T) {
-	c := newSizedLRU[[]byte](10, 100, func(b []byte) int { return len(b) })
-	c.put("a", make([]byte, 60))
-	c.put("b", make([]byte, 30))
-	if _, ok := c.get("a"); !ok {
-		t.Fatal("a evicted too early")
-	}
-	c.put("c", make([]byte, 30)) // 120 bytes: evict the least recent, b
-	if _, ok := c.get("b"); ok {
-		t.Error("b kept past the byte bound")
-	}
-	if c.bytes != 90 {
-		t.Errorf("bytes = %d; want 90", c.bytes)
-	}
-	c.put("huge", make([]byte, 200))
-	if _, ok := c.get("huge"); ok {
-		t.Error("an entry larger than the bound was kept")
 	}
 }

@@ -2,7 +2,8 @@ package physics
 
 import (
 	"context"
-	"math"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // This file holds the linear simplex (tetrahedron) method: how a regular
@@ -19,90 +20,6 @@ import (
 // the same construction one dimension down: the occupied part of a simplex
 // is itself a simplex (or the complement of one), whose measure and
 // barycentric centroid give n and w_j.
-
-// simplexSet is the cutting of every grid cell into simplices of d+1
-// corners.
-type simplexSet struct {
-	dim     int
-	corners [][4]uint8 // corner bit patterns (bit k = +1 step along axis k); d+1 used
-	weight  float64    // zone fraction of one simplex: 1/(d!·N)
-}
-
-// gridSimplices cuts each cell of the grid spec (mesh N along the d lattice
-// directions) into d! simplices sharing the cell's shortest main diagonal,
-// measured in Cartesian reciprocal space with the rows of recip as the
-// reciprocal vectors b_k (Blöchl, Jepsen & Andersen 1994, §II: the shortest
-// diagonal keeps the simplices compact and the interpolation error
-// smallest).
-func gridSimplices(recip [3][3]float64, mesh [3]int, dim int) simplexSet {
-	n := mesh[0] * mesh[1] * mesh[2]
-	set := simplexSet{dim: dim}
-	switch dim {
-	case 1:
-		set.corners = [][4]uint8{{0, 1}}
-		set.weight = 1 / float64(n)
-		return set
-	case 2:
-		s := uint8(shortestDiagonal(recip, mesh, 2))
-		for _, perm := range [][2]uint8{{0, 1}, {1, 0}} {
-			v1 := s ^ (1 << perm[0])
-			set.corners = append(set.corners, [4]uint8{s, v1, s ^ 3})
-		}
-		set.weight = 1 / (2 * float64(n))
-		return set
-	}
-	s := uint8(shortestDiagonal(recip, mesh, 3))
-	for _, perm := range [][3]uint8{{0, 1, 2}, {0, 2, 1}, {1, 0, 2}, {1, 2, 0}, {2, 0, 1}, {2, 1, 0}} {
-		v1 := s ^ (1 << perm[0])
-		v2 := v1 ^ (1 << perm[1])
-		set.corners = append(set.corners, [4]uint8{s, v1, v2, s ^ 7})
-	}
-	set.weight = 1 / (6 * float64(n))
-	return set
-}
-
-// shortestDiagonal returns the start corner s (bit pattern, s < 2^(d−1)) of
-// the shortest main diagonal s → s XOR (2^d − 1) of a grid cell with edges
-// b_k/N_k. Ties (within 1e-9 relative) go to the smallest s, so symmetric
-// lattices cut the same way on every machine.
-func shortestDiagonal(recip [3][3]float64, mesh [3]int, dim int) int {
-	best, bestLen := 0, math.Inf(1)
-	for s := 0; s < 1<<(dim-1); s++ {
-		var v [3]float64
-		for k := 0; k < dim; k++ {
-			sign := 1.0
-			if s>>k&1 == 1 {
-				sign = -1
-			}
-			for a := 0; a < 3; a++ {
-				v[a] += sign * recip[k][a] / float64(mesh[k])
-			}
-		}
-		l := dot3(v, v)
-		if l < bestLen*(1-1e-9) {
-			best, bestLen = s, l
-		}
-	}
-	return best
-}
-
-// cornerIndex is the grid-order index of the corner with bit pattern bits of
-// the cell whose lowest corner is (a, b, c), wrapping periodically.
-func cornerIndex(mesh [3]int, a, b, c int, bits uint8) int {
-	a += int(bits & 1)
-	b += int(bits >> 1 & 1)
-	c += int(bits >> 2 & 1)
-	if a == mesh[0] {
-		a = 0
-	}
-	if b == mesh[1] {
-		b = 0
-	}
-	if c == mesh[2] {
-		c = 0
-	}
-	return (a*mesh[1]+b)*mesh[2] + c
-}
 
 // The functions below take the corner frequencies of one simplex sorted
 // ascending (e[0] ≤ e[1] ≤ …) and its zone weight v.
@@ -645,14 +562,14 @@ func simplexCorners(dim int, e *[4]float64, v, x float64, w *[4]float64) {
 // accumulator per worker, and returns the merged accumulator. With sites it
 // also integrates the site weights of g (which sum to 1 over the sites of
 // a mode, to rounding; ComputeDOS takes the total as the sum of the sites).
-func tetraAccumulate(ctx context.Context, g *GridModes, set simplexSet, scale float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
-	mesh := g.Spec.Mesh
-	for k := range mesh {
-		mesh[k] = max(mesh[k], 1)
+func tetraAccumulate(ctx context.Context, g *GridModes, set mesh.Simplices, scale float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
+	msh := g.Spec.Mesh
+	for k := range msh {
+		msh[k] = max(msh[k], 1)
 	}
-	ncell := mesh[0] * mesh[1] * mesh[2]
+	ncell := msh[0] * msh[1] * msh[2]
 	nm, ns := g.NModes, g.NSites
-	dim := set.dim
+	dim := set.Dim
 	ncorner := 1 << dim
 	accNS := 0
 	if sites {
@@ -670,11 +587,11 @@ func tetraAccumulate(ctx context.Context, g *GridModes, set simplexSet, scale fl
 		var id [4]uint8
 		freq := g.FreqTHz
 		for ci := lo; ci < hi; ci++ {
-			ca, cb, cc := ci/(mesh[1]*mesh[2]), ci/mesh[2]%mesh[1], ci%mesh[2]
+			ca, cb, cc := ci/(msh[1]*msh[2]), ci/msh[2]%msh[1], ci%msh[2]
 			for bits := 0; bits < ncorner; bits++ {
-				idx[bits] = cornerIndex(mesh, ca, cb, cc, uint8(bits))
+				idx[bits] = mesh.CornerIndex(msh, ca, cb, cc, uint8(bits))
 			}
-			for _, corners := range set.corners {
+			for _, corners := range set.Corners {
 				if !sites {
 					var base [4]int
 					for c := 0; c <= dim; c++ {
@@ -685,7 +602,7 @@ func tetraAccumulate(ctx context.Context, g *GridModes, set simplexSet, scale fl
 							e[c] = freq[base[c]+k] * scale
 						}
 						sortValues(&e, dim+1)
-						a.addSimplex(dim, &e, set.weight)
+						a.addSimplex(dim, &e, set.Weight)
 					}
 					continue
 				}
@@ -700,9 +617,9 @@ func tetraAccumulate(ctx context.Context, g *GridModes, set simplexSet, scale fl
 						a.sw[c] = g.SiteWeight[p : p+ns]
 					}
 					if dim == 3 {
-						a.addTetraSites(&e, set.weight)
+						a.addTetraSites(&e, set.Weight)
 					} else {
-						a.addSimplexSites(dim, &e, set.weight)
+						a.addSimplexSites(dim, &e, set.Weight)
 					}
 				}
 			}

@@ -4,152 +4,19 @@ package physics
 
 import (
 	"context"
-	"fmt"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
-
-// simplexClass is a set of grid simplices whose corners carry the same
-// irreducible points: key packs their slots (positions in
-// IrreducibleGrid.Irr, sorted, 16 bits each). The total-DOS contribution
-// of a simplex depends only on the frequencies at its corners, and a grid
-// point's frequencies depend only on its irreducible representative, so
-// every simplex of a class contributes exactly the same; the class is
-// summed once with its count as weight. This is exact for the total DOS
-// (not for site projections, whose weights are permuted between
-// equivalent points).
-type simplexClass struct {
-	key   uint64
-	count float64
-}
-
-// classBytes is the memory of one simplexClass.
-const classBytes = 16
-
-// slot is corner c's slot of the class.
-func (cl simplexClass) slot(c int) int { return int(cl.key >> (16 * c) & 0xffff) }
-
-// maxClassSlots bounds the irreducible-point count for which slots pack
-// into one uint64 key (16 bits each).
-const maxClassSlots = 1 << 16
-
-// simplexClasses returns the classes of the grid's simplices, or nil when
-// the grid was not reduced or has too many irreducible points to pack.
-// They are kept in the grid's ReductionCache (GridOptions.Cache) per
-// (reduced grid, cutting), so repeated requests on one lattice and grid
-// find them once. Memory: 8 bytes of key per simplex and as much again
-// for the radix sort, then 16 bytes per class. Building them is linear in
-// the simplices (24 million on a 160³ grid); it polls ctx and returns
-// ctx.Err() when ctx ends first, caching nothing.
-func simplexClasses(ctx context.Context, g *GridModes, set simplexSet) ([]simplexClass, error) {
-	ir := g.irr
-	if ir == nil || len(ir.Irr) >= maxClassSlots {
-		return nil, nil
-	}
-	key := fmt.Sprint("classes:", reduceKey(ir.Ops, ir.Spec), set.corners[:], set.dim)
-	if c, ok := g.cache.get(key); ok {
-		return c.([]simplexClass), nil
-	}
-	mesh := g.Spec.Mesh
-	ncell := mesh[0] * mesh[1] * mesh[2]
-	dim := set.dim
-	keys := make([]uint64, 0, ncell*len(set.corners))
-	var idx [8]int
-	for ci := 0; ci < ncell; ci++ {
-		if ci%reducePoll == 0 && ctx.Err() != nil {
-			return nil, ctx.Err()
-		}
-		ca, cb, cc := ci/(mesh[1]*mesh[2]), ci/mesh[2]%mesh[1], ci%mesh[2]
-		for bits := 0; bits < 1<<dim; bits++ {
-			idx[bits] = cornerIndex(mesh, ca, cb, cc, uint8(bits))
-		}
-		for _, corners := range set.corners {
-			var s [4]uint64
-			for c := 0; c <= dim; c++ {
-				s[c] = uint64(ir.Slot[idx[corners[c]]])
-			}
-			sortSlots(&s, dim+1)
-			keys = append(keys, s[0]|s[1]<<16|s[2]<<32|s[3]<<48)
-		}
-	}
-	if err := radixSort64(ctx, keys, 16*(dim+1)); err != nil {
-		return nil, err
-	}
-	distinct := 0
-	for i := range keys {
-		if i == 0 || keys[i] != keys[i-1] {
-			distinct++
-		}
-	}
-	out := make([]simplexClass, 0, distinct)
-	for i := 0; i < len(keys); {
-		if ctx.Err() != nil {
-			return nil, ctx.Err()
-		}
-		j := i + 1
-		for j < len(keys) && keys[j] == keys[i] {
-			j++
-		}
-		out = append(out, simplexClass{key: keys[i], count: float64(j - i)})
-		i = j
-	}
-	g.cache.put(key, out)
-	return out, nil
-}
 
 // classChunk is how many classes a worker takes at a time: classes are
 // few, so the accumulators (one per slice, chunkWorkers) stay few too.
 const classChunk = 1024
 
-// radixSort64 sorts keys in place by their low `bits` bits (LSD radix
-// sort, 16-bit digits): linear time, which matters for the millions of
-// simplices of a 96³ grid. It polls ctx between passes (each a few tens
-// of milliseconds at 24 million keys) and returns ctx.Err() if ctx ended.
-func radixSort64(ctx context.Context, keys []uint64, bits int) error {
-	if bits <= 0 || len(keys) < 2 {
-		return nil
-	}
-	buf := make([]uint64, len(keys))
-	const digit = 16
-	var count [1 << digit]int
-	src, dst := keys, buf
-	for shift := 0; shift < bits; shift += digit {
-		if err := ctx.Err(); err != nil {
-			return err
-		}
-		clear(count[:])
-		for _, k := range src {
-			count[k>>shift&(1<<digit-1)]++
-		}
-		pos := 0
-		for i, c := range count {
-			count[i] = pos
-			pos += c
-		}
-		for _, k := range src {
-			d := k >> shift & (1<<digit - 1)
-			dst[count[d]] = k
-			count[d]++
-		}
-		src, dst = dst, src
-	}
-	if &src[0] != &keys[0] {
-		copy(keys, src)
-	}
-	return nil
-}
-
-func sortSlots(s *[4]uint64, n int) {
-	for i := 1; i < n; i++ {
-		for j := i; j > 0 && s[j] < s[j-1]; j-- {
-			s[j], s[j-1] = s[j-1], s[j]
-		}
-	}
-}
-
 // tetraAccumulateClasses is tetraAccumulate for the total DOS over simplex
 // classes: each class once, weighted by its count.
-func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []simplexClass, set simplexSet, scale float64, grid cumGrid, hasCut bool, cut float64) (*cumAcc, error) {
+func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []mesh.SimplexClass, set mesh.Simplices, scale float64, grid cumGrid, hasCut bool, cut float64) (*cumAcc, error) {
 	nm := g.NModes
-	dim := set.dim
+	dim := set.Dim
 	irr := g.irr.Irr
 	workers := chunkWorkers(len(classes), classChunk)
 	accs := make([]*cumAcc, workers)
@@ -163,9 +30,9 @@ func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []simplex
 		var base [4]int
 		for _, cl := range classes[lo:hi] {
 			for c := 0; c <= dim; c++ {
-				base[c] = irr[cl.slot(c)] * nm
+				base[c] = irr[cl.Slot(c)] * nm
 			}
-			v := set.weight * cl.count
+			v := set.Weight * cl.Count
 			for k := 0; k < nm; k++ {
 				for c := 0; c <= dim; c++ {
 					e[c] = freq[base[c]+k] * scale

@@ -5,6 +5,9 @@ import (
 	"math/rand/v2"
 	"slices"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // simplexSample draws n points uniformly in a simplex of d+1 corners as
@@ -174,8 +177,8 @@ func TestShortestDiagonal(t *testing.T) {
 			}
 			b[i][i] += 1
 		}
-		mesh := [3]int{1 + r.IntN(8), 1 + r.IntN(8), 1 + r.IntN(8)}
-		s := shortestDiagonal(b, mesh, 3)
+		msh := [3]int{1 + r.IntN(8), 1 + r.IntN(8), 1 + r.IntN(8)}
+		s := mesh.ShortestDiagonal(b, msh, 3)
 		length := func(s int) float64 {
 			var v [3]float64
 			for k := 0; k < 3; k++ {
@@ -184,10 +187,10 @@ func TestShortestDiagonal(t *testing.T) {
 					sign = -1
 				}
 				for a := 0; a < 3; a++ {
-					v[a] += sign * b[k][a] / float64(mesh[k])
+					v[a] += sign * b[k][a] / float64(msh[k])
 				}
 			}
-			return norm3(v)
+			return lattice.Norm(v)
 		}
 		for o := 0; o < 4; o++ {
 			if length(o) < length(s)*(1-1e-9) {
@@ -196,11 +199,11 @@ func TestShortestDiagonal(t *testing.T) {
 		}
 	}
 	m := mustCompile(t, loadExample(t, "fcc"))
-	set := gridSimplices(m.Reciprocal(), [3]int{8, 8, 8}, 3)
-	if len(set.corners) != 6 || math.Abs(set.weight*6*512-1) > 1e-15 {
-		t.Fatalf("fcc: %d tetrahedra of weight %g; want 6 of 1/(6·512)", len(set.corners), set.weight)
+	set := mesh.GridSimplices(m.Reciprocal(), [3]int{8, 8, 8}, 3)
+	if len(set.Corners) != 6 || math.Abs(set.Weight*6*512-1) > 1e-15 {
+		t.Fatalf("fcc: %d tetrahedra of weight %g; want 6 of 1/(6·512)", len(set.Corners), set.Weight)
 	}
-	for _, c := range set.corners {
+	for _, c := range set.Corners {
 		if c[0]^c[3] != 7 {
 			t.Errorf("tetrahedron %v does not span the main diagonal", c)
 		}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // Heat capacity and entropy of a chain per mole of cells, and its Debye
@@ -16,7 +17,7 @@ import (
 func ExampleComputeThermal() {
 	ctx := context.Background()
 	m := exampleChain()
-	g, err := m.GridModes(ctx, physics.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
+	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
 	if err != nil {
 		panic(err)
 	}

@@ -4,6 +4,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // einsteinHeat is the Einstein heat capacity per mode, in units of k_B, at
@@ -52,7 +54,7 @@ func TestStiffnessContrastChain(t *testing.T) {
 	c := loadExample(t, "diatomic-chain")
 	c.Springs[0].KLong, c.Springs[1].KLong = k1, k2
 	m := mustCompile(t, c)
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{n}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, GridOptions{})
 	temps := []float64{1e-4, 1, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 
@@ -108,10 +110,10 @@ func TestChainLowTLargeGrid(t *testing.T) {
 	if f := m.FrequenciesTHz([3]float64{0.5}); relDiff(f[0], numax) > 1e-12 {
 		t.Fatalf("zone-boundary frequency %g THz; closed form %g", f[0], numax)
 	}
-	g := &GridModes{Spec: GridSpec{Mesh: [3]int{n, 1, 1}}, NModes: 1, NSites: 1, P: 1, ModelHash: m.Hash(),
-		Points: make([]QPoint, n), FreqTHz: make([]float64, n)}
+	g := &GridModes{Spec: mesh.GridSpec{Mesh: [3]int{n, 1, 1}}, NModes: 1, NSites: 1, P: 1, ModelHash: m.Hash(),
+		Points: make([]mesh.QPoint, n), FreqTHz: make([]float64, n)}
 	for j := range g.Points {
-		g.Points[j] = QPoint{Q: [3]float64{float64(j) / n}, Weight: 1.0 / n}
+		g.Points[j] = mesh.QPoint{Q: [3]float64{float64(j) / n}, Weight: 1.0 / n}
 		g.FreqTHz[j] = numax * math.Abs(math.Sin(math.Pi*float64(j)/n))
 	}
 	temps := []float64{0.01, 0.02, 0.05, 0.1}
@@ -154,10 +156,10 @@ func TestThetaStatus(t *testing.T) {
 		r     *ThermalResult
 	}
 	var runs []run
-	for _, mesh := range []int{8, 32, 64} {
-		m, g := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{mesh, mesh, mesh}}, GridOptions{})
+	for _, side := range []int{8, 32, 64} {
+		m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{side, side, side}}, GridOptions{})
 		for _, route := range []ThermalRoute{ModeSum, DOSIntegral} {
-			runs = append(runs, run{mesh, route, mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: route})})
+			runs = append(runs, run{side, route, mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: route})})
 		}
 	}
 	ref := runs[4].r // 64³ mode sum
@@ -204,7 +206,7 @@ func TestThetaIllConditioned(t *testing.T) {
 	c := loadExample(t, "chain")
 	c.Springs[0].KLong *= 1e-12
 	m := mustCompile(t, c)
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{10000}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{10000}}, GridOptions{})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e-5, 1000}})
 	if p := r.Points[1]; p.ThetaDStatus != ThetaIllConditioned || p.ThetaDK != 0 || p.ThetaDReason == "" {
 		t.Errorf("1000 K: θ_D %g K (%v, %q); want ill-conditioned", p.ThetaDK, p.ThetaDStatus, p.ThetaDReason)
@@ -223,7 +225,7 @@ func TestThetaIllConditioned(t *testing.T) {
 // zero modes) and a finite crystal are never flagged.
 func TestMSDDivergentFlag(t *testing.T) {
 	temps := []float64{0, 300}
-	msd := func(name string, spec GridSpec) *ThermalResult {
+	msd := func(name string, spec mesh.GridSpec) *ThermalResult {
 		m, g := exampleGrid(t, name, spec, GridOptions{Eigenvectors: true})
 		return mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	}
@@ -237,8 +239,8 @@ func TestMSDDivergentFlag(t *testing.T) {
 			}
 		}
 	}
-	a := msd("chain", GridSpec{Mesh: [3]int{500}})
-	b := msd("chain", GridSpec{Mesh: [3]int{1000}})
+	a := msd("chain", mesh.GridSpec{Mesh: [3]int{500}})
+	b := msd("chain", mesh.GridSpec{Mesh: [3]int{1000}})
 	check("chain", a, []bool{true, true})
 	if ratio := b.Points[1].MSD[0].UIso / a.Points[1].MSD[0].UIso; math.Abs(ratio-2) > 0.06 {
 		t.Errorf("chain, 300 K: ⟨u²⟩ on 1000 / 500 points = %.4f; want ≈ 2 (∝ N)", ratio)
@@ -247,9 +249,9 @@ func TestMSDDivergentFlag(t *testing.T) {
 		t.Errorf("chain, 0 K: ⟨u²⟩ %g on 1000 points, %g on 500; want it to grow (∝ ln N)", b.Points[0].MSD[0].UIso, a.Points[0].MSD[0].UIso)
 	}
 	t.Logf("chain ⟨u²⟩/3 at 300 K: %.4g Å² (500 points), %.4g Å² (1000 points)", a.Points[1].MSD[0].UIso, b.Points[1].MSD[0].UIso)
-	check("square net", msd("square-net", GridSpec{Mesh: [3]int{16, 16}}), []bool{false, true})
-	check("fcc", msd("fcc", GridSpec{Mesh: [3]int{6, 6, 6}}), []bool{false, false})
-	check("finite chain", msd("chain", GridSpec{Mesh: [3]int{100}, Finite: true}), []bool{false, false})
+	check("square net", msd("square-net", mesh.GridSpec{Mesh: [3]int{16, 16}}), []bool{false, true})
+	check("fcc", msd("fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}), []bool{false, false})
+	check("finite chain", msd("chain", mesh.GridSpec{Mesh: [3]int{100}, Finite: true}), []bool{false, false})
 
 	pinned := &Crystal{
 		Name: "pinned-chain", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
@@ -260,6 +262,6 @@ func TestMSDDivergentFlag(t *testing.T) {
 		},
 	}
 	m := mustCompile(t, pinned)
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{100}}, GridOptions{Eigenvectors: true})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{Eigenvectors: true})
 	check("pinned chain", mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true}), []bool{false, false})
 }

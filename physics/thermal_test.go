@@ -6,6 +6,8 @@ import (
 	"math"
 	"slices"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 func mustThermal(t testing.TB, m *Model, g *GridModes, opt ThermalOptions) *ThermalResult {
@@ -68,7 +70,7 @@ func TestEinsteinFunctions(t *testing.T) {
 // (Einstein 1907; Kittel ch. 5) and ZPE = 3hν/2, on any grid.
 func TestEinsteinCrystal(t *testing.T) {
 	m := mustCompile(t, einsteinCrystal())
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{3, 3, 3}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{3, 3, 3}}, GridOptions{})
 	thetaE := einsteinNuTHz * THzToKelvin
 	xs := []float64{0.5, 1, 2, 5, 10}
 	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // C/k = x²eˣ/(eˣ−1)² at each x, to 9 digits
@@ -106,7 +108,7 @@ func TestEinsteinCrystal(t *testing.T) {
 // independently of the modes.
 func TestDulongPetit(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
-		m, g := exampleGrid(t, name, GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
+		m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
 		r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e6}})
 		// Per mole of cells, less the weight of the three Γ zero modes.
 		perSite := EVPerKToJPerMolK(r.Points[0].CveVPerK) / float64(m.Sites()) * float64(m.Modes()) / r.ModesPerCell
@@ -114,7 +116,7 @@ func TestDulongPetit(t *testing.T) {
 			t.Errorf("%s: Cv at 10⁶ K = %.8f J/(mol·K) per site; want 3R = 24.94338785", name, perSite)
 		}
 	}
-	m, g := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{8, 8, 8}}, GridOptions{})
+	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, GridOptions{})
 	const k, mass = 1.2, 60.0 // proto/examples/fcc.json
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e4}})
 	// ⟨x²⟩ over the summed modes: Σ w ν² = 3·4K/M·ν_unit², spread over
@@ -148,7 +150,7 @@ func TestLowTExponents(t *testing.T) {
 		{"fcc", [3]int{24, 24, 24}, DOSIntegral, 1, 3, 0.03},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{})
 			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{tc.t1, 2 * tc.t1}, Route: tc.route})
 			exp := math.Log2(r.Points[1].CveVPerK / r.Points[0].CveVPerK)
 			if math.Abs(exp-tc.want) > tc.tol {
@@ -181,7 +183,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{})
 			for _, temp := range []float64{5, 50, 300, 2000} {
 				h := 1e-3 * temp
 				r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{temp - h, temp - h/2, temp, temp + h/2, temp + h}})
@@ -217,7 +219,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 // spectrum; common practice) to 2e-3 for T ≥ 100 K (measured ≤ 7.3e-4, the
 // entropy at 100 K; the zero-point energy to 1e-8).
 func TestModeSumVsDOSIntegral(t *testing.T) {
-	m, g := exampleGrid(t, "fcc", GridSpec{Mesh: [3]int{24, 24, 24}}, GridOptions{})
+	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{24, 24, 24}}, GridOptions{})
 	temps := []float64{100, 300, 1000}
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: DOSIntegral})
@@ -243,13 +245,13 @@ func TestModeSumVsDOSIntegral(t *testing.T) {
 func TestThermalWeights(t *testing.T) {
 	for _, tc := range []struct {
 		name  string
-		spec  GridSpec
+		spec  mesh.GridSpec
 		zeros int
 	}{
-		{"rocksalt-like", GridSpec{Mesh: [3]int{5, 5, 5}}, 3},
-		{"rocksalt-like", GridSpec{Mesh: [3]int{4, 4, 4}, Shifted: true}, 0},
-		{"square-net", GridSpec{Mesh: [3]int{7, 7}, Finite: true}, 2},
-		{"diatomic-chain", GridSpec{Mesh: [3]int{9}}, 1},
+		{"rocksalt-like", mesh.GridSpec{Mesh: [3]int{5, 5, 5}}, 3},
+		{"rocksalt-like", mesh.GridSpec{Mesh: [3]int{4, 4, 4}, Shifted: true}, 0},
+		{"square-net", mesh.GridSpec{Mesh: [3]int{7, 7}, Finite: true}, 2},
+		{"diatomic-chain", mesh.GridSpec{Mesh: [3]int{9}}, 1},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			m, g := exampleGrid(t, tc.name, tc.spec, GridOptions{})
@@ -278,7 +280,7 @@ func TestThermalWeights(t *testing.T) {
 // above, the values join continuously (common practice: the limits of the
 // Bose–Einstein sums).
 func TestZeroKelvin(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 0.01}, MSD: true})
 	z, near := r.Points[0], r.Points[1]
 	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 {
@@ -301,7 +303,7 @@ func TestZeroKelvin(t *testing.T) {
 // unless allowed; allowed, they are left out and counted.
 func TestUnstable(t *testing.T) {
 	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
 	_, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{300}})
 	if !errors.Is(err, ErrUnstable) {
 		t.Fatalf("got %v; want an error wrapping ErrUnstable", err)
@@ -321,7 +323,7 @@ func TestUnstable(t *testing.T) {
 // (allowed wavevectors: common practice; dispersion: Kittel ch. 4), and at
 // low T it falls far below the bulk, which has modes down to ν → 0.
 func TestFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{10}, Finite: true}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10}, Finite: true}, GridOptions{})
 	temps := []float64{5, 30, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	for i, temp := range temps {
@@ -342,7 +344,7 @@ func TestFiniteCrystal(t *testing.T) {
 			t.Errorf("T=%g: U = %.15g; exact sum %.15g", temp, r.Points[i].UeV, u)
 		}
 	}
-	_, bulkG := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{10000}}, GridOptions{})
+	_, bulkG := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10000}}, GridOptions{})
 	bulk := mustThermal(t, m, bulkG, ThermalOptions{TempsK: temps[:1]})
 	if !(r.Points[0].CveVPerK < 0.5*bulk.Points[0].CveVPerK) {
 		t.Errorf("Cv at 5 K: 10-cell ring %g, bulk %g; want the ring far below", r.Points[0].CveVPerK, bulk.Points[0].CveVPerK)
@@ -362,7 +364,7 @@ func TestSeriesMatchesDirect(t *testing.T) {
 		{"square-net", [3]int{64, 64}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, GridSpec{Mesh: tc.mesh}, GridOptions{Eigenvectors: true})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Eigenvectors: true})
 			var temps []float64
 			for e := -2.0; e <= 5; e += 0.1 {
 				temps = append(temps, math.Pow(10, e))
@@ -411,7 +413,7 @@ func TestPerMole(t *testing.T) {
 // TestThermalValidation: bad options are refused with every violation
 // named by its field; MSD needs eigenvectors.
 func TestThermalValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    ThermalOptions
@@ -463,7 +465,7 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 		},
 	}
 	m := mustCompile(t, c)
-	g := modesOn(t, m, GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
 	if g.FreqTHz[0] >= -m.EigenTolTHz() {
 		t.Fatalf("Γ mode %g THz is not below −EigenTolTHz; the test needs it to be", g.FreqTHz[0])
 	}
@@ -484,7 +486,7 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 // energy; the third law, Kittel ch. 5), not NaN — found by fuzzing.
 func TestThermalTinyTemperature(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), GridSpec{Mesh: [3]int{8}}, GridOptions{})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{8}}, GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}

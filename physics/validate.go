@@ -7,6 +7,8 @@ import (
 	"fmt"
 	"math"
 	"strings"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // Limits bounds the size of a model. The zero value means the defaults.
@@ -136,17 +138,17 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	}
 	if latticeOK {
 		for i, v := range c.Lattice {
-			if l := norm3(v); l < LatticeTolA {
+			if l := lattice.Norm(v); l < LatticeTolA {
 				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
 				latticeOK = false
 			}
 		}
 	}
 	if latticeOK {
-		m := gramMeasure(c.Lattice)
+		m := lattice.GramMeasure(c.Lattice)
 		prod := 1.0
 		for _, v := range c.Lattice {
-			prod *= norm3(v)
+			prod *= lattice.Norm(v)
 		}
 		what := [...]string{"", "length", "area", "volume"}[d]
 		switch {
@@ -291,7 +293,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 					r[a] += df * c.Lattice[k][a]
 				}
 			}
-			if l := norm3(r); l < CoincidenceTolA {
+			if l := lattice.Norm(r); l < CoincidenceTolA {
 				vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
 				continue
 			}
@@ -376,37 +378,6 @@ func lessCell(a, b [3]int) bool {
 	return false
 }
 
-func norm3(v [3]float64) float64 { return math.Sqrt(v[0]*v[0] + v[1]*v[1] + v[2]*v[2]) }
-
-// gramMeasure is the d-dimensional measure of the cell spanned by the
-// vectors: length, area or volume, sqrt(det G) with G the Gram matrix.
-func gramMeasure(vecs [][3]float64) float64 {
-	d := len(vecs)
-	var g [3][3]float64
-	for i := 0; i < d; i++ {
-		for j := 0; j < d; j++ {
-			g[i][j] = dot3(vecs[i], vecs[j])
-		}
-	}
-	var det float64
-	switch d {
-	case 1:
-		det = g[0][0]
-	case 2:
-		det = g[0][0]*g[1][1] - g[0][1]*g[1][0]
-	case 3:
-		det = g[0][0]*(g[1][1]*g[2][2]-g[1][2]*g[2][1]) -
-			g[0][1]*(g[1][0]*g[2][2]-g[1][2]*g[2][0]) +
-			g[0][2]*(g[1][0]*g[2][1]-g[1][1]*g[2][0])
-	}
-	if det <= 0 {
-		return 0
-	}
-	return math.Sqrt(det)
-}
-
-func dot3(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
-
 // siteSeparation is the Cartesian distance between sites i and j after
 // wrapping their fractional difference into [−½, ½).
 func siteSeparation(c *Crystal, i, j int) float64 {
@@ -418,5 +389,5 @@ func siteSeparation(c *Crystal, i, j int) float64 {
 			r[a] += df * c.Lattice[k][a]
 		}
 	}
-	return norm3(r)
+	return lattice.Norm(r)
 }

@@ -8,6 +8,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // twoSiteChain is a valid base for mutation: a 1D crystal of two sites with
@@ -236,11 +238,11 @@ func TestValidationReportsEverything(t *testing.T) {
 
 // TestValidateQPoints: non-finite components and components past d.
 func TestValidateQPoints(t *testing.T) {
-	vs := violationsOf(t, ValidateQPoints(2, []QPoint{{Q: [3]float64{0.1, 0.2, 0}}, {Q: [3]float64{math.NaN(), 0, 0.3}}}, "qpoints"))
+	vs := violationsOf(t, ValidateQPoints(2, []mesh.QPoint{{Q: [3]float64{0.1, 0.2, 0}}, {Q: [3]float64{math.NaN(), 0, 0.3}}}, "qpoints"))
 	if len(vs) != 2 || vs[0].Field != "qpoints[1].q1" || vs[1].Field != "qpoints[1].q3" || !strings.Contains(vs[1].Description, "got 0.3") {
 		t.Fatalf("got %v", vs)
 	}
-	if err := ValidateQPoints(3, []QPoint{{Q: [3]float64{0.5, -0.5, 0.25}}}, "q"); err != nil {
+	if err := ValidateQPoints(3, []mesh.QPoint{{Q: [3]float64{0.5, -0.5, 0.25}}}, "q"); err != nil {
 		t.Fatal(err)
 	}
 }

@@ -16,6 +16,9 @@ package physics
 import (
 	"math"
 	"math/cmplx"
+
+	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // VelocityUnitKmS is the group velocity in km/s of a slope of
@@ -44,13 +47,13 @@ type velWork struct {
 	n    int
 	grad [3][]complex128 // lower triangles of ∂D/∂q_α
 	y    [3][]complex128 // ∂D/∂q_α e_k for the modes of one cluster, k-major
-	sub  map[int]*eigenWork
+	sub  map[int]*eigen.Work
 	tmp  []complex128
 }
 
 func newVelWork(m *Model) *velWork {
 	n := m.Modes()
-	v := &velWork{n: n, sub: map[int]*eigenWork{}, tmp: make([]complex128, n*n)}
+	v := &velWork{n: n, sub: map[int]*eigen.Work{}, tmp: make([]complex128, n*n)}
 	for a := range v.grad {
 		v.grad[a] = make([]complex128, n*n)
 		v.y[a] = make([]complex128, n*n)
@@ -59,12 +62,12 @@ func newVelWork(m *Model) *velWork {
 }
 
 // hemv computes y = G x for a Hermitian G stored as its lower triangle.
-// If stop is not nil it is polled every pollRows+1 rows, and hemv returns
+// If stop is not nil it is polled every eigen.PollRows+1 rows, and hemv returns
 // false (y unfinished) when it says so.
 func hemv(g []complex128, n int, x, y []complex128, stop func() bool) bool {
 	clear(y[:n])
 	for i := 0; i < n; i++ {
-		if stop != nil && i&pollRows == pollRows && stop() {
+		if stop != nil && i&eigen.PollRows == eigen.PollRows && stop() {
 			return false
 		}
 		row := g[i*n : i*n+i+1]
@@ -90,23 +93,23 @@ func dotc(a, b []complex128) complex128 {
 // velocities writes the group velocity (km/s, Cartesian) of every mode at q
 // into out, from the eigenvalues and eigenvectors of the last solve of pw,
 // rotating the eigenvectors inside degenerate subspaces as described
-// above (pw.eig.vecs is updated accordingly). dir zero means
+// above (pw.eig.Vectors() is updated accordingly). dir zero means
 // defaultVelocityDir. It returns false if stopped.
 func (v *velWork) velocities(pw *pointWork, q [3]float64, dir [3]float64, out [][3]float64) bool {
 	n := v.n
 	m := pw.m
 	var stop func() bool
-	if n >= cancelCheckModes && pw.done != nil {
+	if n >= eigen.CancelCheckModes && pw.done != nil {
 		stop = pw.stopped
 	}
 	if !m.assembleGrad(q, &v.grad, &pw.ph, stop) {
 		return false
 	}
-	if norm3(dir) == 0 {
+	if lattice.Norm(dir) == 0 {
 		dir = defaultVelocityDir
 	}
-	dir = scale3(dir, 1/norm3(dir))
-	vals, vecs := pw.eig.vals, pw.eig.vecs
+	dir = lattice.Scale(dir, 1/lattice.Norm(dir))
+	vals, vecs := pw.eig.Values(), pw.eig.Vectors()
 	// The model's eigenvalue bound, not this point's largest eigenvalue:
 	// at Γ of a one-site model every eigenvalue is rounding noise.
 	scale := m.lambdaScale
@@ -151,7 +154,7 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 	n, size := v.n, hi-lo
 	w := v.sub[size]
 	if w == nil {
-		w = newEigenWork(size)
+		w = eigen.NewWork(size)
 		v.sub[size] = w
 	}
 	for k := 0; k < size; k++ {
@@ -163,7 +166,7 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 					z += complex(u[a], 0) * dotc(ek, v.y[a][l*n:(l+1)*n])
 				}
 			}
-			w.a[k*size+l] = z
+			w.A()[k*size+l] = z
 		}
 	}
 	// Scale to order one: the eigenvectors do not change, and entries far
@@ -172,7 +175,7 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 	var amax float64
 	for k := 0; k < size; k++ {
 		for l := 0; l <= k; l++ {
-			amax = math.Max(amax, cmplx.Abs(w.a[k*size+l]))
+			amax = math.Max(amax, cmplx.Abs(w.A()[k*size+l]))
 		}
 	}
 	if !(amax > 1e-290) || math.IsInf(amax, 0) {
@@ -180,25 +183,25 @@ func (v *velWork) rotate(lo, hi int, u [3]float64, vecs []complex128) {
 	}
 	for k := 0; k < size; k++ {
 		for l := 0; l <= k; l++ {
-			w.a[k*size+l] /= complex(amax, 0)
+			w.A()[k*size+l] /= complex(amax, 0)
 		}
 	}
-	if w.solve(true) != solveOK {
+	if w.Solve(true) != eigen.OK {
 		return // keep the basis: velocities are then those of the solver's vectors
 	}
-	for _, c := range w.vecs[:size*size] {
+	for _, c := range w.Vectors()[:size*size] {
 		if cmplx.IsNaN(c) {
 			return
 		}
 	}
-	// new e_k = Σ_l old e_l U_lk, U_lk = w.vecs[k*size+l]; the same for y.
+	// new e_k = Σ_l old e_l U_lk, U_lk = w.Vectors()[k*size+l]; the same for y.
 	rot := func(src []complex128) {
 		tmp := v.tmp[:size*n]
 		clear(tmp)
 		for k := 0; k < size; k++ {
 			dst := tmp[k*n : (k+1)*n]
 			for l := 0; l < size; l++ {
-				c := w.vecs[k*size+l]
+				c := w.Vectors()[k*size+l]
 				if c == 0 {
 					continue
 				}

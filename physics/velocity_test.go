@@ -7,6 +7,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // crossingChains is a 1D crystal of two uncoupled chains of mass M: chain A
@@ -205,7 +207,7 @@ func TestVelocitiesFiniteAtNearDegeneracy(t *testing.T) {
 		},
 		Shells: []Shell{{FromLabel: "P", ToLabel: "Q", Shell: 1, KLong: 1060912.188235294, KTrans: 16.188250612511354}}}
 	m := mustCompile(t, c)
-	err := m.StreamModes(context.Background(), []QPoint{{}}, ModeOptions{Velocities: true}, func(ch ModeChunk) error {
+	err := m.StreamModes(context.Background(), []mesh.QPoint{{}}, ModeOptions{Velocities: true}, func(ch ModeChunk) error {
 		for k, v := range ch.Points[0].VelKmS {
 			for a, x := range v {
 				if math.IsNaN(x) || math.IsInf(x, 0) || math.Abs(x) > 1e-9 {

@@ -35,6 +35,7 @@ import (
 	"google.golang.org/protobuf/types/known/durationpb"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -50,7 +51,7 @@ const (
 	// MinMemoryBudget is the smallest derived budget.
 	MinMemoryBudget = 64 << 20
 	// MaxReductionCacheBytes bounds the grid reductions and simplex
-	// classes the server keeps for reuse (physics.ReductionCache): a
+	// classes the server keeps for reuse (mesh.ReductionCache): a
 	// quarter of the result cache's bound, at most this. The bound is
 	// taken out of the memory budget.
 	MaxReductionCacheBytes = 64 << 20
@@ -302,15 +303,15 @@ func busyStatus(err error) error {
 
 // gridSize describes model e on spec for the estimators, with the exact
 // irreducible count when it is cheap to know.
-func (s *Service) gridSize(e *modelEntry, spec physics.GridSpec) physics.GridSize {
-	irr, _ := s.reductions.IrreducibleCount(e.m, spec)
+func (s *Service) gridSize(e *modelEntry, spec mesh.GridSpec) physics.GridSize {
+	irr, _ := physics.IrreducibleCount(s.reductions, e.m, spec)
 	return e.m.GridSizeOf(spec, irr)
 }
 
 // thermalEstimate is the cost of a thermal request: the grid's modes
 // (with eigenvectors for mean-square displacements), the sums, and the
 // reply twice.
-func (s *Service) thermalEstimate(e *modelEntry, spec physics.GridSpec, opt physics.ThermalOptions) estimate {
+func (s *Service) thermalEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.ThermalOptions) estimate {
 	size := s.gridSize(e, spec)
 	c := physics.GridModesCost(size, physics.GridOptions{Eigenvectors: opt.MSD})
 	c = c.Plus(physics.ThermalCost(size, len(opt.TempsK), opt.MSD, opt.Route, true))
@@ -328,8 +329,8 @@ func (s *Service) thermalEstimate(e *modelEntry, spec physics.GridSpec, opt phys
 
 // stabilityEstimate is the cost of CheckModel's search for imaginary
 // modes: the frequencies on the coarse stability grid.
-func (s *Service) stabilityEstimate(e *modelEntry, mesh int) estimate {
-	spec := physics.GridSpec{Mesh: [3]int{mesh, mesh, mesh}}
+func (s *Service) stabilityEstimate(e *modelEntry, side int) estimate {
+	spec := mesh.GridSpec{Mesh: [3]int{side, side, side}}
 	for k := e.m.Dim(); k < 3; k++ {
 		spec.Mesh[k] = 1
 	}
@@ -345,7 +346,7 @@ func (s *Service) stabilityEstimate(e *modelEntry, mesh int) estimate {
 // eigenvectors.
 func (s *Service) typicalCosts(e *modelEntry) []*modegridv1.RequestCost {
 	const n = 24
-	spec := physics.GridSpec{Mesh: [3]int{n, n, n}}
+	spec := mesh.GridSpec{Mesh: [3]int{n, n, n}}
 	label := "24x24x24"
 	switch e.m.Dim() {
 	case 1:
@@ -366,7 +367,7 @@ func (s *Service) typicalCosts(e *modelEntry) []*modegridv1.RequestCost {
 	add("dos "+label+" tetrahedron per-site", s.dosEstimate(e, spec, physics.DOSOptions{PerSite: true}), true)
 	add("thermal "+label+" 100 temperatures", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps}), true)
 	add("thermal "+label+" 100 temperatures msd", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps, MSD: true}), true)
-	size := e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
+	size := e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
 	add("dispersion 100 points", estimate{cost: physics.DispersionCost(size, 100, false, false)}, true)
 	opt := physics.ModeOptions{Eigenvectors: true}
 	est, per := s.modesCost(e, 1000, opt)

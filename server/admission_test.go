@@ -11,6 +11,7 @@ import (
 	"google.golang.org/grpc/status"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -127,7 +128,7 @@ func TestAdmissionSharesOneBudget(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	spec := physics.GridSpec{Mesh: [3]int{20, 20, 20}}
+	spec := mesh.GridSpec{Mesh: [3]int{20, 20, 20}}
 	one := probe.dosEstimate(e, spec, physics.DOSOptions{PerSite: true}).cost.Bytes
 	b := newBlocker(kindDOS)
 	ts := startServer(t, Config{MemoryBudget: one * 3 / 2, QueueTimeout: 300 * time.Millisecond}, serverOpts{hook: b.hook})

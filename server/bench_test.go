@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -111,7 +112,7 @@ func BenchmarkColdDos48(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	spec := physics.GridSpec{Mesh: [3]int{48, 48, 48}}
+	spec := mesh.GridSpec{Mesh: [3]int{48, 48, 48}}
 	ts := startServer(b, Config{CacheBytes: -1})
 	ctx := context.Background()
 	req := &modegridv1.ComputeDosRequest{Model: inline(example(b, "fcc")), Qpoints: mpGrid(false, 48, 48, 48)}

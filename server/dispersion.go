@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -70,7 +71,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 		if opt.SpacingInvA > 0 {
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
 		}
-		c := physics.DispersionCost(e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
+		c := physics.DispersionCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
 		perSample := int64(8*e.m.Modes() + 64) // the response
 		if opt.SiteWeights {
 			perSample += int64(8 * e.m.Modes() * e.m.Sites())

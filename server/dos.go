@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -181,7 +182,7 @@ func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.C
 // dosEstimate is the cost of a DOS request: the grid's modes (with site
 // weights for a per-site DOS), the DOS, and the reply twice (the message
 // and its encoding).
-func (s *Service) dosEstimate(e *modelEntry, spec physics.GridSpec, opt physics.DOSOptions) estimate {
+func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.DOSOptions) estimate {
 	size := s.gridSize(e, spec)
 	samples := physics.DefaultDOSBins + 1
 	if opt.Step > 0 && opt.Max > opt.Min {

@@ -4,6 +4,7 @@ import (
 	"context"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/server/cache"
 )
 
@@ -38,7 +39,7 @@ func (n gridNeed) covers() []gridNeed {
 	return all
 }
 
-func gridKey(hash string, spec physics.GridSpec, n gridNeed) cache.Key {
+func gridKey(hash string, spec mesh.GridSpec, n gridNeed) cache.Key {
 	return cache.Key{Kind: kindGrid, Model: hash, Params: gridParam(spec) + ";" + n.param()}
 }
 
@@ -52,7 +53,7 @@ func gridBytes(g *physics.GridModes) int64 {
 // computed once for every concurrent caller and cached. It is the shared
 // intermediate of DOS and thermal requests. Grid modes are not sent to the
 // Backend: they are large and quick to rebuild compared with a transfer.
-func (s *Service) gridModes(ctx context.Context, e *modelEntry, spec physics.GridSpec, need gridNeed) (*physics.GridModes, cache.Source, error) {
+func (s *Service) gridModes(ctx context.Context, e *modelEntry, spec mesh.GridSpec, need gridNeed) (*physics.GridModes, cache.Source, error) {
 	for _, n := range need.covers() {
 		if v, ok := s.cache.Get(gridKey(e.hash, spec, n)); ok {
 			return v.(*physics.GridModes), cache.Memory, nil

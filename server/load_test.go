@@ -12,6 +12,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -98,11 +99,11 @@ func TestCacheChargesResultMemory(t *testing.T) {
 				t.Fatal(err)
 			}
 			n := map[int]int{1: 4096, 2: 64, 3: 16}[m.Dim()]
-			spec := physics.GridSpec{Mesh: [3]int{1, 1, 1}}
+			spec := mesh.GridSpec{Mesh: [3]int{1, 1, 1}}
 			for k := range m.Dim() {
 				spec.Mesh[k] = n
 			}
-			cache := physics.NewReductionCache(64 << 20)
+			cache := mesh.NewReductionCache(64 << 20)
 			for _, opt := range []physics.GridOptions{{Cache: cache}, {Projections: true, Cache: cache}, {Eigenvectors: true, Cache: cache}} {
 				// Reduce the grid once first: the reduction is kept in the
 				// reduction cache (the server's, charged to its memory

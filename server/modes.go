@@ -7,6 +7,7 @@ import (
 	"google.golang.org/grpc"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -123,7 +124,7 @@ func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (
 		per += 24 * n
 	}
 	chunk := max(1, min(s.cfg.ChunkPoints, s.cfg.MaxChunkBytes/int(per)))
-	size := e.m.GridSizeOf(physics.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
+	size := e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
 	c := physics.StreamCost(size, count, chunk, 0, opt)
 	c.Bytes += 32*int64(count) + 2*int64(per)*int64(chunk)
 	change := "fewer q-points (qpoints)"

@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -100,7 +101,7 @@ func meshString(m [3]int) string {
 
 // gridParam is the canonical name of a grid spec: "mp:8x8x8",
 // "mp-shifted:8x8x1" or "cells:10x1x1".
-func gridParam(g physics.GridSpec) string {
+func gridParam(g mesh.GridSpec) string {
 	switch {
 	case g.Finite:
 		return "cells:" + meshString(g.Mesh)

@@ -7,13 +7,14 @@ import (
 	"math"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
 // qset is a parsed q-point set: an explicit list or a regular grid.
 type qset struct {
-	list  []physics.QPoint // explicit points (weight 1), nil for a grid
-	grid  physics.GridSpec // when list is nil
+	list  []mesh.QPoint // explicit points (weight 1), nil for a grid
+	grid  mesh.GridSpec // when list is nil
 	count int
 }
 
@@ -37,7 +38,7 @@ func (q *qset) param() string {
 
 // points lists the set's points with their weights, in order; a grid's
 // components past the dimensionality dim are 0, shifted or not.
-func (q *qset) points(dim int) []physics.QPoint {
+func (q *qset) points(dim int) []mesh.QPoint {
 	if q.list != nil {
 		return q.list
 	}
@@ -70,7 +71,7 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 			vs.add(f, "%d q-points exceed this server's cap max-qpoints=%d", len(pts), s.cfg.MaxQPoints)
 			return nil
 		}
-		out := &qset{list: make([]physics.QPoint, len(pts)), count: len(pts)}
+		out := &qset{list: make([]mesh.QPoint, len(pts)), count: len(pts)}
 		bad := 0
 		for i, p := range pts {
 			q := [3]float64{canonFloat(p.GetQ1()), canonFloat(p.GetQ2()), canonFloat(p.GetQ3())} // as keyed: −0 is 0
@@ -87,7 +88,7 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 					bad++
 				}
 			}
-			out.list[i] = physics.QPoint{Q: q, Weight: 1}
+			out.list[i] = mesh.QPoint{Q: q, Weight: 1}
 		}
 		return out
 	case *modegridv1.QPointSet_Grid:
@@ -110,14 +111,14 @@ var qRangeMsg = fmt.Sprintf("must be a finite number within ±%g reciprocal-latt
 
 // parseMesh checks mesh divisions: 1 to 3 numbers, each ≥ 1, 1 past the
 // dimensionality (absent components are 1), their product within the cap.
-func (s *Service) parseMesh(mesh []uint32, dim int, field string, vs *violations) physics.GridSpec {
-	g := physics.GridSpec{Mesh: [3]int{1, 1, 1}}
-	if len(mesh) == 0 || len(mesh) > 3 {
-		vs.add(field, "must have 1 to 3 numbers (one per lattice vector), got %d", len(mesh))
+func (s *Service) parseMesh(divs []uint32, dim int, field string, vs *violations) mesh.GridSpec {
+	g := mesh.GridSpec{Mesh: [3]int{1, 1, 1}}
+	if len(divs) == 0 || len(divs) > 3 {
+		vs.add(field, "must have 1 to 3 numbers (one per lattice vector), got %d", len(divs))
 		return g
 	}
 	ok := true
-	for k, n := range mesh {
+	for k, n := range divs {
 		switch {
 		case n < 1:
 			vs.add(fmt.Sprintf("%s[%d]", field, k), "must be ≥ 1, got %d", n)
@@ -132,8 +133,8 @@ func (s *Service) parseMesh(mesh []uint32, dim int, field string, vs *violations
 			g.Mesh[k] = int(n)
 		}
 	}
-	if dim > 0 && len(mesh) < dim {
-		vs.add(field, "must have %d numbers for a %d-dimensional crystal, got %d", dim, dim, len(mesh))
+	if dim > 0 && len(divs) < dim {
+		vs.add(field, "must have %d numbers for a %d-dimensional crystal, got %d", dim, dim, len(divs))
 		ok = false
 	}
 	if ok {

@@ -25,7 +25,7 @@ import (
 	"google.golang.org/grpc/keepalive"
 	"google.golang.org/grpc/reflection"
 
-	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
@@ -351,7 +351,7 @@ func newService(cfg Config, reg prometheus.Registerer) *Service {
 		OnIntegrityFailure: s.onIntegrityFailure,
 	})
 	s.met = newMetrics(reg, s.gate, s.cache, cfg.Backend, cfg.Version)
-	s.reductions = physics.NewReductionCache(cfg.reductionBytes())
+	s.reductions = mesh.NewReductionCache(cfg.reductionBytes())
 	s.budget = newBudget(cfg, reg)
 	return s
 }

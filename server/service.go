@@ -12,6 +12,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
@@ -31,7 +32,7 @@ type Service struct {
 	// compute-time bound (admission.go); reductions the grid reductions
 	// kept for reuse, whose bound is taken out of the budget.
 	budget     *budget
-	reductions *physics.ReductionCache
+	reductions *mesh.ReductionCache
 
 	// backendLog and integrityLog rate-limit the log lines about shared
 	// cache failures and refused cache entries (cachelog.go).

@@ -182,6 +182,23 @@ func importViolations(path string, imports []string, test bool) []string {
 	return bad
 }
 
+// engineLayers are the engine's packages from the bottom up: each imports
+// only those before it (the leaves among themselves not at all).
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics"}
+
+// engineRank is the layer of a module-relative physics path: 1 for the
+// leaves (eigen, lattice, mesh, internal/...), 2 for the core, 0 for a
+// path outside physics.
+func engineRank(r string) int {
+	switch {
+	case r == "physics":
+		return 2
+	case under(r, "physics"):
+		return 1
+	}
+	return 0
+}
+
 // importRule returns why the package at path (in area a) may not import
 // imp, or "" when it may.
 // goleakPath is the goroutine-leak checker physics tests may use.
@@ -209,6 +226,9 @@ func importRule(a, path, imp string, test bool) string {
 		}
 		if !std && !under(imp, gonum) && !(own && under(r, "physics")) {
 			return "physics imports only the standard library, gonum and physics/..."
+		}
+		if own && engineRank(r) > engineRank(path) && engineRank(path) > 0 {
+			return "physics packages import only the packages below them (" + strings.Join(engineLayers, " ← ") + ")"
 		}
 	case "proto":
 		if !std && !under(imp, grpcPath) && !under(imp, protobuf) && !(own && under(r, "proto")) {
@@ -370,7 +390,9 @@ func TestRulesCatchViolations(t *testing.T) {
 		want    bool // a violation is expected
 	}{
 		{name: "physics on std and gonum", path: "physics", imports: []string{"math", gonum + "/mat", m("physics/lattice")}},
-		{name: "physics sub-package on physics", path: "physics/dos", imports: []string{m("physics")}},
+		{name: "physics leaf imports the core", path: "physics/mesh", imports: []string{m("physics")}, want: true},
+		{name: "physics leaf imports a leaf", path: "physics/lattice", imports: []string{m("physics/eigen")}},
+		{name: "physics leaf test imports the core", path: "physics/eigen", imports: []string{m("physics")}, test: true, want: true},
 		{name: "physics imports proto", path: "physics", imports: []string{m("proto/modegrid/v1")}, want: true},
 		{name: "physics imports server", path: "physics/dos", imports: []string{m("server")}, want: true},
 		{name: "physics imports a library", path: "physics", imports: []string{"gonum.org/v1/plot"}, want: true},

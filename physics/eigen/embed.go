@@ -2,7 +2,7 @@
 // the engine's first eigensolver, now the fallback of eigen.go and the
 // reference its tests compare against.
 
-package physics
+package eigen
 
 import (
 	"math"
@@ -11,7 +11,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 )
 
-// embeddedEigen returns the eigenvalues of the Hermitian n×n matrix h
+// Embedded returns the eigenvalues of the Hermitian n×n matrix h
 // (row-major; the lower triangle is read) in ascending order and, when
 // vectors is true, orthonormal eigenvectors, mode-major.
 //
@@ -21,7 +21,7 @@ import (
 // i(u + iv). A complex Gram–Schmidt pass over the real eigenvectors in
 // ascending order keeps one complex vector per direction. If gonum does not
 // converge either, the results are NaN. The matrix must be finite.
-func embeddedEigen(h []complex128, n int, vectors bool) ([]float64, []complex128) {
+func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
 	// Scale by a power of two (exact) to a largest element near 1: gonum
 	// v0.17 panics inside Dsterf on matrices of very small norm (found by
 	// TestEigenAgainstGonum at 1e-150).

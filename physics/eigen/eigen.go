@@ -38,7 +38,7 @@
 // for a matrix within a few ε‖H‖ of the input; the tests ask for 1e-12 of
 // the largest eigenvalue against gonum (the issue asks for 1e-10).
 
-package physics
+package eigen
 
 import (
 	"math"
@@ -46,28 +46,28 @@ import (
 	"slices"
 )
 
-// epsilon is the unit round-off of float64, 2⁻⁵².
-const epsilon = 0x1p-52
+// Epsilon is the unit round-off of float64, 2⁻⁵².
+const Epsilon = 0x1p-52
 
 // maxQLIterations bounds the QL sweeps spent on one eigenvalue; Wilkinson's
 // shift converges globally and typically in two or three (Golub & Van
 // Loan §8.3.5), so reaching the bound means the input was not finite.
 const maxQLIterations = 50
 
-// cancelCheckModes is the matrix size from which the solver polls for
+// CancelCheckModes is the matrix size from which the solver polls for
 // cancellation inside its loops; below it a whole solve takes microseconds.
-// Large solves poll every pollRows+1 rows of their O(n²) inner steps, so
+// Large solves poll every PollRows+1 rows of their O(n²) inner steps, so
 // that even n = 1536 (512 sites) stops within about a millisecond.
 const (
-	cancelCheckModes = 48
-	pollRows         = 127
+	CancelCheckModes = 48
+	PollRows         = 127
 )
 
-// eigenWork is the reusable workspace of the Hermitian eigensolver for
-// matrices of one size n. A caller fills the lower triangle of a (row-major
-// n×n; the strict upper triangle is never read) and calls solve. Nothing is
-// allocated after newEigenWork. An eigenWork is not safe for concurrent use.
-type eigenWork struct {
+// Work is the reusable workspace of the Hermitian eigensolver for
+// matrices of one size n. A caller fills the lower triangle of A() (row-major
+// n×n; the strict upper triangle is never read) and calls Solve. Nothing is
+// allocated after NewWork. A Work is not safe for concurrent use.
+type Work struct {
 	n    int
 	a    []complex128 // input matrix, lower triangle; overwritten
 	hv   []complex128 // Householder vectors: hv[k*n+i], i > k (hv[k*n+k+1] = 1)
@@ -77,17 +77,18 @@ type eigenWork struct {
 	zt   []float64    // rotations of QL: row k is the k-th tridiagonal eigenvector
 	perm []int        // ascending order of d
 
-	// Results of solve.
+	// Results of Solve.
 	vals []float64    // eigenvalues, ascending
 	vecs []complex128 // eigenvectors, mode-major: vecs[k*n+c]; only when asked
 
 	// done, when not nil, is polled inside the loops of large solves; a
-	// closed channel makes solve return errStopped.
+	// closed channel makes Solve return Stopped.
 	done <-chan struct{}
 }
 
-func newEigenWork(n int) *eigenWork {
-	return &eigenWork{
+// NewWork returns the workspace for n×n matrices.
+func NewWork(n int) *Work {
+	return &Work{
 		n:    n,
 		a:    make([]complex128, n*n),
 		hv:   make([]complex128, n*n),
@@ -100,17 +101,37 @@ func newEigenWork(n int) *eigenWork {
 	}
 }
 
-// solveStatus says why solve did not produce a result.
-type solveStatus int
+// N is the matrix size the workspace was made for.
+func (w *Work) N() int { return w.n }
+
+// A is the input matrix, row-major n×n, of which Solve reads the lower
+// triangle and which it overwrites.
+func (w *Work) A() []complex128 { return w.a }
+
+// Values are the eigenvalues of the last Solve, ascending (the slice is
+// reused by the next Solve).
+func (w *Work) Values() []float64 { return w.vals }
+
+// Vectors are the orthonormal eigenvectors of the last Solve that asked for
+// them, mode-major: Vectors()[k*n+c] is component c of eigenvector k (the
+// slice is reused by the next Solve).
+func (w *Work) Vectors() []complex128 { return w.vecs }
+
+// SetStop makes large solves poll done inside their loops: a closed channel
+// makes Solve return Stopped. nil polls nothing.
+func (w *Work) SetStop(done <-chan struct{}) { w.done = done }
+
+// Status says why Solve did not produce a result.
+type Status int
 
 const (
-	solveOK         solveStatus = iota
-	solveStopped                // done was closed
-	solveNoConverge             // QL did not converge (non-finite input)
+	OK         Status = iota // eigenvalues (and vectors if asked) are in Values (and Vectors)
+	Stopped                  // the stop channel was closed
+	NoConverge               // QL did not converge (non-finite input)
 )
 
 // stopped polls done without blocking.
-func (w *eigenWork) stopped() bool {
+func (w *Work) stopped() bool {
 	if w.done == nil {
 		return false
 	}
@@ -124,10 +145,10 @@ func (w *eigenWork) stopped() bool {
 
 // solve computes the eigenvalues of the Hermitian matrix in w.a (lower
 // triangle) into w.vals, ascending, and, when vectors is true, orthonormal
-// eigenvectors into w.vecs. It returns solveNoConverge if QL did not
+// eigenvectors into w.vecs. It returns NoConverge if QL did not
 // converge (w.a is then destroyed; callers rebuild the matrix and use the
-// real embedding of eigen_embed.go), solveStopped if done was closed.
-func (w *eigenWork) solve(vectors bool) solveStatus {
+// real embedding of eigen_embed.go), Stopped if done was closed.
+func (w *Work) Solve(vectors bool) Status {
 	n := w.n
 	if vectors && w.vecs == nil {
 		w.vecs = make([]complex128, n*n)
@@ -138,16 +159,16 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 		if vectors {
 			w.vecs[0] = 1
 		}
-		return solveOK
+		return OK
 	}
 	// Scale by a power of two (exact) so that the largest element is not
 	// far from 1: sqrt(a² + b²) below can then neither overflow nor lose
 	// everything to underflow.
 	var amax float64
-	poll := n >= cancelCheckModes
+	poll := n >= CancelCheckModes
 	for i := 0; i < n; i++ {
-		if poll && i&pollRows == pollRows && w.stopped() {
-			return solveStopped
+		if poll && i&PollRows == PollRows && w.stopped() {
+			return Stopped
 		}
 		for _, z := range w.a[i*n : i*n+i+1] {
 			amax = max(amax, math.Abs(real(z)), math.Abs(imag(z)))
@@ -171,8 +192,8 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 	if exp != 0 {
 		s := complex(math.Ldexp(1, -exp), 0)
 		for i := 0; i < n; i++ {
-			if poll && i&pollRows == pollRows && w.stopped() {
-				return solveStopped
+			if poll && i&PollRows == PollRows && w.stopped() {
+				return Stopped
 			}
 			row := w.a[i*n : i*n+i+1]
 			for j := range row {
@@ -181,12 +202,12 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 		}
 	}
 	if w.tridiagonalize() {
-		return solveStopped
+		return Stopped
 	}
 	if vectors {
 		for k := 0; k < n; k++ {
-			if poll && k&pollRows == pollRows && w.stopped() {
-				return solveStopped
+			if poll && k&PollRows == PollRows && w.stopped() {
+				return Stopped
 			}
 			row := w.zt[k*n : (k+1)*n]
 			clear(row)
@@ -194,12 +215,12 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 		}
 	}
 	st := w.ql(vectors)
-	if st == solveStopped {
+	if st == Stopped {
 		return st
 	}
-	if st == solveNoConverge {
+	if st == NoConverge {
 		// The caller still has the matrix and retries with the real
-		// embedding (see hermitianEigen and pointWork.modes).
+		// embedding (see Hermitian and pointWork.modes).
 		return st
 	}
 	unscale := math.Ldexp(1, exp)
@@ -231,10 +252,10 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 	}
 	if vectors {
 		if w.backTransform() {
-			return solveStopped
+			return Stopped
 		}
 	}
-	return solveOK
+	return OK
 }
 
 // trivial handles a zero matrix (every eigenvalue 0, unit vectors) and a
@@ -243,7 +264,7 @@ func (w *eigenWork) solve(vectors bool) solveStatus {
 // tinyMatrix is the largest element below which a matrix is taken as zero.
 const tinyMatrix = 0x1p-900
 
-func (w *eigenWork) trivial(amax float64, vectors bool) solveStatus {
+func (w *Work) trivial(amax float64, vectors bool) Status {
 	n := w.n
 	v := 0.0
 	if amax != 0 {
@@ -263,7 +284,7 @@ func (w *eigenWork) trivial(amax float64, vectors bool) solveStatus {
 			}
 		}
 	}
-	return solveOK
+	return OK
 }
 
 // tridiagonalize reduces the Hermitian matrix in w.a (lower triangle) to the
@@ -273,9 +294,9 @@ func (w *eigenWork) trivial(amax float64, vectors bool) solveStatus {
 // complex phase of the sub-diagonal element is absorbed into τ), so T is
 // real. The rank-2 update A ← A − v wᴴ − w vᴴ, w = τ A v − ½|τ|²(vᴴAv) v,
 // is Qᴴ A Q written out for one reflector. It returns true when stopped.
-func (w *eigenWork) tridiagonalize() bool {
+func (w *Work) tridiagonalize() bool {
 	n, a := w.n, w.a
-	poll := n >= cancelCheckModes
+	poll := n >= CancelCheckModes
 	for k := 0; k < n-1; k++ {
 		if poll && w.stopped() {
 			return true
@@ -318,7 +339,7 @@ func (w *eigenWork) tridiagonalize() bool {
 		ys := w.y[k+1 : n]
 		clear(ys)
 		for i := 0; i < m; i++ {
-			if poll && i&pollRows == pollRows && w.stopped() {
+			if poll && i&PollRows == PollRows && w.stopped() {
 				return true
 			}
 			row := a[(k+1+i)*n+k+1 : (k+1+i)*n+k+2+i]
@@ -344,7 +365,7 @@ func (w *eigenWork) tridiagonalize() bool {
 		}
 		// A ← A − v yᴴ − y vᴴ on the lower triangle of the trailing block.
 		for i := 0; i < m; i++ {
-			if poll && i&pollRows == pollRows && w.stopped() {
+			if poll && i&PollRows == PollRows && w.stopped() {
 				return true
 			}
 			row := a[(k+1+i)*n+k+1 : (k+1+i)*n+k+2+i]
@@ -368,14 +389,14 @@ func (w *eigenWork) tridiagonalize() bool {
 // rotation is also applied to rows i, i+1 of w.zt (rows of zt are the
 // eigenvectors of T, a layout that keeps the update contiguous); without,
 // the root-free variant qlValues is used.
-func (w *eigenWork) ql(vectors bool) solveStatus {
+func (w *Work) ql(vectors bool) Status {
 	if !vectors {
 		return w.qlValues()
 	}
 	n, d, e := w.n, w.d, w.e
 	tol := w.tridiagTol()
 	e[n-1] = 0
-	poll := n >= cancelCheckModes
+	poll := n >= CancelCheckModes
 	for l := 0; l < n; l++ {
 		for iter := 0; ; iter++ {
 			m := l
@@ -392,10 +413,10 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 				break
 			}
 			if iter == maxQLIterations {
-				return solveNoConverge
+				return NoConverge
 			}
 			if poll && w.stopped() {
-				return solveStopped
+				return Stopped
 			}
 			// Shift: the eigenvalue of the leading 2×2 block at l nearer
 			// d[l], folded into the first rotation.
@@ -437,8 +458,8 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 					zj[k] = s*x + c*t
 					zi[k] = c*x - s*t
 				}
-				if poll && i&pollRows == 0 && w.stopped() {
-					return solveStopped // mid-sweep: the result is abandoned
+				if poll && i&PollRows == 0 && w.stopped() {
+					return Stopped // mid-sweep: the result is abandoned
 				}
 			}
 			if underflow {
@@ -449,14 +470,14 @@ func (w *eigenWork) ql(vectors bool) solveStatus {
 			e[m] = 0
 		}
 	}
-	return solveOK
+	return OK
 }
 
 // tridiagTol is the size below which a sub-diagonal element of the
 // tridiagonal counts as zero: ε‖T‖, with ‖T‖ bounded by max |d| + 2 max |e|.
 // The reduction already made errors of ε‖A‖ in every eigenvalue, so a test
 // relative to each |d| (as in the classic tql) would buy only iterations.
-func (w *eigenWork) tridiagTol() float64 {
+func (w *Work) tridiagTol() float64 {
 	var dmax, emax float64
 	for i := 0; i < w.n; i++ {
 		dmax = max(dmax, math.Abs(w.d[i]))
@@ -464,7 +485,7 @@ func (w *eigenWork) tridiagTol() float64 {
 			emax = max(emax, math.Abs(w.e[i]))
 		}
 	}
-	return epsilon * (dmax + 2*emax)
+	return Epsilon * (dmax + 2*emax)
 }
 
 // jacobi2 returns the rotation (c, s) and the eigenvalues (λ₁, λ₂) of the
@@ -492,7 +513,7 @@ func jacobi2(a, b, d float64) (c, s, l1, l2 float64) {
 
 // rotate2 diagonalises the 2×2 block at (l, l+1) of the tridiagonal and
 // applies its rotation to rows l, l+1 of w.zt.
-func (w *eigenWork) rotate2(l int) {
+func (w *Work) rotate2(l int) {
 	n := w.n
 	c, s, l1, l2 := jacobi2(w.d[l], w.e[l], w.d[l+1])
 	w.d[l], w.d[l+1], w.e[l] = l1, l2, 0
@@ -510,7 +531,7 @@ func (w *eigenWork) rotate2(l int) {
 // and Kahan as described by Parlett (The Symmetric Eigenvalue Problem,
 // SIAM 1998, §8.15), which works on the squares e² of the sub-diagonal and
 // needs no square root per rotation; the shift is that of ql.
-func (w *eigenWork) qlValues() solveStatus {
+func (w *Work) qlValues() Status {
 	n, d, e2 := w.n, w.d, w.e
 	tol := w.tridiagTol()
 	for i := 0; i < n-1; i++ {
@@ -535,7 +556,7 @@ func (w *eigenWork) qlValues() solveStatus {
 				break
 			}
 			if iter == maxQLIterations {
-				return solveNoConverge
+				return NoConverge
 			}
 			// Wilkinson's shift, the eigenvalue of the leading 2×2 block
 			// nearer d[l]: σ = d_l − e²/(δ + sign(δ) sqrt(δ² + e²)),
@@ -575,15 +596,15 @@ func (w *eigenWork) qlValues() solveStatus {
 			d[l] = sigma + gamma
 		}
 	}
-	return solveOK
+	return OK
 }
 
 // backTransform forms the eigenvectors of A, x = Q z = H₀(H₁(…H_{n−2} z)),
 // from the tridiagonal eigenvectors (rows of w.zt) in ascending order of
 // eigenvalue, into w.vecs (mode-major). It returns true when stopped.
-func (w *eigenWork) backTransform() bool {
+func (w *Work) backTransform() bool {
 	n := w.n
-	poll := n >= cancelCheckModes
+	poll := n >= CancelCheckModes
 	for k, j := range w.perm {
 		if poll && w.stopped() {
 			return true
@@ -594,7 +615,7 @@ func (w *eigenWork) backTransform() bool {
 			x[c] = complex(z[c], 0)
 		}
 		for r := n - 2; r >= 0; r-- {
-			if poll && r&pollRows == 0 && w.stopped() {
+			if poll && r&PollRows == 0 && w.stopped() {
 				return true
 			}
 			tau := w.tau[r]
@@ -616,16 +637,16 @@ func (w *eigenWork) backTransform() bool {
 	return false
 }
 
-// hermitianEigen returns the eigenvalues of the Hermitian n×n matrix h
+// Hermitian returns the eigenvalues of the Hermitian n×n matrix h
 // (row-major, full storage; only the lower triangle is read) in ascending
 // order and, when vectors is true, orthonormal eigenvectors, mode-major:
-// vecs[k*n+c] is component c of mode k. It allocates; hot loops keep an
-// eigenWork instead.
-func hermitianEigen(h []complex128, n int, vectors bool) ([]float64, []complex128) {
-	w := newEigenWork(n)
+// vecs[k*n+c] is component c of mode k. It allocates; hot loops keep a
+// Work instead.
+func Hermitian(h []complex128, n int, vectors bool) ([]float64, []complex128) {
+	w := NewWork(n)
 	copy(w.a, h[:n*n])
-	if w.solve(vectors) == solveNoConverge {
-		return embeddedEigen(h, n, vectors)
+	if w.Solve(vectors) == NoConverge {
+		return Embedded(h, n, vectors)
 	}
 	return w.vals, w.vecs
 }

@@ -23,43 +23,41 @@
 // edges across b₁, b₂ and b₁+b₂ of the reduced cell with an acute angle,
 // named as in the rectangular net it becomes at 90°).
 
-package physics
+package lattice
 
 import (
 	"math"
 	"sort"
 )
 
-// LatticeTypeTol is the relative tolerance on lengths and on cosines of
+// TypeTol is the relative tolerance on lengths and on cosines of
 // angles used to recognise a lattice type: 1e-4, loose enough for lattice
 // vectors written with five or six digits (e.g. √3/2 as 0.86603).
-const LatticeTypeTol = 1e-4
+const TypeTol = 1e-4
 
-// Lattice type names returned by Model.LatticeType.
+// Lattice type names returned by Detect.
 const (
-	LatticeSC          = "sc"
-	LatticeFCC         = "fcc"
-	LatticeBCC         = "bcc"
-	LatticeHexagonal   = "hexagonal"
-	LatticeSquare      = "square"
-	LatticeRectangular = "rectangular"
-	LatticeCentredRect = "centred-rectangular"
-	LatticeOblique     = "oblique"
-	Lattice1D          = "1d"
+	SC          = "sc"
+	FCC         = "fcc"
+	BCC         = "bcc"
+	Hexagonal   = "hexagonal"
+	Square      = "square"
+	Rectangular = "rectangular"
+	CentredRect = "centred-rectangular"
+	Oblique     = "oblique"
+	Linear      = "1d"
 )
 
-// LatticeType returns the recognised lattice type of the model: "sc",
-// "fcc", "bcc", "hexagonal" (3D or 2D), "square", "rectangular",
-// "centred-rectangular", "oblique", "1d", or "" when the lattice is none of
-// these (a 3D lattice of lower symmetry: only Γ is then built in).
-func (m *Model) LatticeType() string { return m.latticeType }
-
-// StandardPoints returns the built-in labelled points for the model's
-// lattice type, in fractional reciprocal coordinates of the model's own
-// lattice; "G" is Γ and is always present. The map is a fresh copy.
-func (m *Model) StandardPoints() map[string][3]float64 {
-	out := make(map[string][3]float64, len(m.standard))
-	for k, v := range m.standard {
+// StandardFrac returns a fresh copy of the built-in points of a lattice
+// type in fractional coordinates of the reciprocal vectors of the type's
+// standard primitive cell (nil for an unknown type).
+func StandardFrac(typ string) map[string][3]float64 {
+	std, ok := standardFrac[typ]
+	if !ok {
+		return nil
+	}
+	out := make(map[string][3]float64, len(std))
+	for k, v := range std {
 		out[k] = v
 	}
 	return out
@@ -69,40 +67,41 @@ func (m *Model) StandardPoints() map[string][3]float64 {
 // vectors of each type's standard primitive cell (see standardCell).
 var standardFrac = map[string]map[string][3]float64{
 	// Setyawan & Curtarolo (2010), CUB.
-	LatticeSC: {"G": {}, "M": {0.5, 0.5, 0}, "R": {0.5, 0.5, 0.5}, "X": {0, 0.5, 0}},
+	SC: {"G": {}, "M": {0.5, 0.5, 0}, "R": {0.5, 0.5, 0.5}, "X": {0, 0.5, 0}},
 	// Setyawan & Curtarolo (2010), FCC.
-	LatticeFCC: {"G": {}, "K": {3.0 / 8, 3.0 / 8, 3.0 / 4}, "L": {0.5, 0.5, 0.5},
+	FCC: {"G": {}, "K": {3.0 / 8, 3.0 / 8, 3.0 / 4}, "L": {0.5, 0.5, 0.5},
 		"U": {5.0 / 8, 1.0 / 4, 5.0 / 8}, "W": {0.5, 0.25, 0.75}, "X": {0.5, 0, 0.5}},
 	// Setyawan & Curtarolo (2010), BCC.
-	LatticeBCC: {"G": {}, "H": {0.5, -0.5, 0.5}, "P": {0.25, 0.25, 0.25}, "N": {0, 0, 0.5}},
+	BCC: {"G": {}, "H": {0.5, -0.5, 0.5}, "P": {0.25, 0.25, 0.25}, "N": {0, 0, 0.5}},
 	// Setyawan & Curtarolo (2010), HEX (a₁, a₂ at 120°, a₃ = c ẑ); in 2D
 	// the in-plane points only.
-	LatticeHexagonal: {"G": {}, "A": {0, 0, 0.5}, "H": {1.0 / 3, 1.0 / 3, 0.5},
+	Hexagonal: {"G": {}, "A": {0, 0, 0.5}, "H": {1.0 / 3, 1.0 / 3, 0.5},
 		"K": {1.0 / 3, 1.0 / 3, 0}, "L": {0.5, 0, 0.5}, "M": {0.5, 0, 0}},
-	LatticeSquare:      {"G": {}, "X": {0.5, 0, 0}, "M": {0.5, 0.5, 0}},
-	LatticeRectangular: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
+	Square:      {"G": {}, "X": {0.5, 0, 0}, "M": {0.5, 0.5, 0}},
+	Rectangular: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
 	// Rhombic cell s₁, s₂ of equal length at an acute angle (b₁·b₂ < 0, so
 	// the zone's edges lie across ±b₁, ±b₂, ±(b₁+b₂)).
-	LatticeCentredRect: {"G": {}, "X": {0.5, 0.5, 0}, "S": {0.5, 0, 0}},
+	CentredRect: {"G": {}, "X": {0.5, 0.5, 0}, "S": {0.5, 0, 0}},
 	// Reduced cell at an acute angle, the same three pairs of edges.
-	LatticeOblique: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
-	Lattice1D:      {"G": {}, "X": {0.5, 0, 0}},
+	Oblique: {"G": {}, "X": {0.5, 0, 0}, "Y": {0, 0.5, 0}, "S": {0.5, 0.5, 0}},
+	Linear:  {"G": {}, "X": {0.5, 0, 0}},
 }
 
-// detectLattice recognises the lattice type of m and returns it with its
-// standard points in m's fractional reciprocal coordinates.
-func detectLattice(m *Model) (string, map[string][3]float64) {
-	d := m.dim
+// Detect recognises the type of the lattice spanned by the first d rows
+// of lat (Å) and returns it with its standard points in fractional
+// coordinates of lat's own reciprocal vectors; "G" (Γ) is always present,
+// and an unrecognised lattice gives "" and Γ alone.
+func Detect(lat [3][3]float64, d int) (string, map[string][3]float64) {
 	user := make([][3]float64, d)
-	copy(user, m.lattice[:d])
+	copy(user, lat[:d])
 	typ, frames := "", [][][3]float64(nil)
 	switch d {
 	case 1:
-		typ, frames = Lattice1D, [][][3]float64{{user[0]}}
+		typ, frames = Linear, [][][3]float64{{user[0]}}
 	case 2:
 		typ, frames = classify2D(user)
 	case 3:
-		typ, frames = classify3D(m, user)
+		typ, frames = classify3D(Reciprocal(lat, d), user)
 	}
 	pts := map[string][3]float64{"G": {}}
 	if typ == "" || len(frames) == 0 {
@@ -113,7 +112,7 @@ func detectLattice(m *Model) (string, map[string][3]float64) {
 	for _, f := range frames {
 		var s float64
 		for k := range f {
-			s += dot3(f[k], user[k])
+			s += Dot(f[k], user[k])
 		}
 		if s > bestScore+1e-9*math.Abs(s) {
 			best, bestScore = f, s
@@ -121,7 +120,7 @@ func detectLattice(m *Model) (string, map[string][3]float64) {
 	}
 	var std [3][3]float64
 	copy(std[:], best)
-	recip := reciprocal(std, d)
+	recip := Reciprocal(std, d)
 	for label, f := range standardFrac[typ] {
 		if d == 2 && f[2] != 0 {
 			continue // 3D-only points (A, H, L of HEX)
@@ -134,7 +133,7 @@ func detectLattice(m *Model) (string, map[string][3]float64) {
 		}
 		var q [3]float64
 		for k := 0; k < d; k++ {
-			q[k] = snap(dot3(qc, user[k]) / (2 * math.Pi))
+			q[k] = snap(Dot(qc, user[k]) / (2 * math.Pi))
 		}
 		pts[label] = q
 	}
@@ -152,13 +151,7 @@ func snap(x float64) float64 {
 	return x
 }
 
-func near(a, b, scale float64) bool { return math.Abs(a-b) <= LatticeTypeTol*scale }
-
-func scale3(v [3]float64, s float64) [3]float64 { return [3]float64{v[0] * s, v[1] * s, v[2] * s} }
-
-func cross3(a, b [3]float64) [3]float64 {
-	return [3]float64{a[1]*b[2] - a[2]*b[1], a[2]*b[0] - a[0]*b[2], a[0]*b[1] - a[1]*b[0]}
-}
+func near(a, b, scale float64) bool { return math.Abs(a-b) <= TypeTol*scale }
 
 // reduceGreedy reduces a basis by repeated size reduction against every
 // other vector until no vector gets shorter (greedy reduction, Minkowski-
@@ -171,19 +164,19 @@ func reduceGreedy(u [][3]float64) {
 				if i == j {
 					continue
 				}
-				mu := math.Round(dot3(u[i], u[j]) / dot3(u[j], u[j]))
+				mu := math.Round(Dot(u[i], u[j]) / Dot(u[j], u[j]))
 				if mu == 0 {
 					continue
 				}
-				c := sub3(u[i], scale3(u[j], mu))
-				if dot3(c, c) < dot3(u[i], u[i])*(1-1e-12) {
+				c := Sub(u[i], Scale(u[j], mu))
+				if Dot(c, c) < Dot(u[i], u[i])*(1-1e-12) {
 					u[i] = c
 					changed = true
 				}
 			}
 		}
 	}
-	sort.Slice(u, func(a, b int) bool { return dot3(u[a], u[a]) < dot3(u[b], u[b]) })
+	sort.Slice(u, func(a, b int) bool { return Dot(u[a], u[a]) < Dot(u[b], u[b]) })
 }
 
 // classify2D recognises the five 2D nets and lists the candidate standard
@@ -191,77 +184,77 @@ func reduceGreedy(u [][3]float64) {
 func classify2D(user [][3]float64) (string, [][][3]float64) {
 	u := [][3]float64{user[0], user[1]}
 	reduceGreedy(u)
-	l1, l2 := norm3(u[0]), norm3(u[1])
-	cos := dot3(u[0], u[1]) / (l1 * l2)
+	l1, l2 := Norm(u[0]), Norm(u[1])
+	cos := Dot(u[0], u[1]) / (l1 * l2)
 	var frames [][][3]float64
 	switch {
-	case near(l1, l2, l2) && math.Abs(cos) <= LatticeTypeTol:
-		for _, s1 := range [][3]float64{u[0], scale3(u[0], -1), u[1], scale3(u[1], -1)} {
-			for _, s2 := range [][3]float64{u[0], scale3(u[0], -1), u[1], scale3(u[1], -1)} {
-				if math.Abs(dot3(s1, s2)) <= LatticeTypeTol*l1*l1 {
+	case near(l1, l2, l2) && math.Abs(cos) <= TypeTol:
+		for _, s1 := range [][3]float64{u[0], Scale(u[0], -1), u[1], Scale(u[1], -1)} {
+			for _, s2 := range [][3]float64{u[0], Scale(u[0], -1), u[1], Scale(u[1], -1)} {
+				if math.Abs(Dot(s1, s2)) <= TypeTol*l1*l1 {
 					frames = append(frames, [][3]float64{s1, s2})
 				}
 			}
 		}
-		return LatticeSquare, frames
-	case math.Abs(cos) <= LatticeTypeTol:
-		for _, s1 := range [][3]float64{u[0], scale3(u[0], -1)} {
-			for _, s2 := range [][3]float64{u[1], scale3(u[1], -1)} {
+		return Square, frames
+	case math.Abs(cos) <= TypeTol:
+		for _, s1 := range [][3]float64{u[0], Scale(u[0], -1)} {
+			for _, s2 := range [][3]float64{u[1], Scale(u[1], -1)} {
 				frames = append(frames, [][3]float64{s1, s2})
 			}
 		}
-		return LatticeRectangular, frames
+		return Rectangular, frames
 	case near(l1, l2, l2) && near(math.Abs(cos), 0.5, 1):
 		// The six shortest vectors; standard pairs are at 120°.
 		w := u[1]
 		if cos > 0 {
-			w = scale3(w, -1)
+			w = Scale(w, -1)
 		}
-		six := [][3]float64{u[0], w, add3(u[0], w)}
+		six := [][3]float64{u[0], w, Add(u[0], w)}
 		for _, v := range six[:3] {
-			six = append(six, scale3(v, -1))
+			six = append(six, Scale(v, -1))
 		}
 		for _, s1 := range six {
 			for _, s2 := range six {
-				if near(dot3(s1, s2)/(l1*l1), -0.5, 1) {
+				if near(Dot(s1, s2)/(l1*l1), -0.5, 1) {
 					frames = append(frames, [][3]float64{s1, s2})
 				}
 			}
 		}
-		return LatticeHexagonal, frames
+		return Hexagonal, frames
 	}
 	// The remaining nets, with the reduced pair at an acute angle.
 	if cos < 0 {
-		u[1] = scale3(u[1], -1)
+		u[1] = Scale(u[1], -1)
 	}
 	switch {
 	case near(l1, l2, l2):
 		// A rhombic reduced cell: centred rectangular.
-		return LatticeCentredRect, pairFrames(u[0], u[1], true)
-	case near(2*dot3(u[0], u[1]), l1*l1, l1*l1):
+		return CentredRect, pairFrames(u[0], u[1], true)
+	case near(2*Dot(u[0], u[1]), l1*l1, l1*l1):
 		// u₂ projects onto half of u₁: u₂ and u₂ − u₁ are the rhombic cell.
-		return LatticeCentredRect, pairFrames(u[1], sub3(u[1], u[0]), true)
+		return CentredRect, pairFrames(u[1], Sub(u[1], u[0]), true)
 	}
-	return LatticeOblique, pairFrames(u[0], u[1], false)
+	return Oblique, pairFrames(u[0], u[1], false)
 }
 
 // pairFrames lists the cells (s₁, s₂) and (−s₁, −s₂), and when swap also
 // (s₂, s₁) and (−s₂, −s₁): the settings of a centred rectangular or oblique
 // net with the same standard points.
 func pairFrames(s1, s2 [3]float64, swap bool) [][][3]float64 {
-	f := [][][3]float64{{s1, s2}, {scale3(s1, -1), scale3(s2, -1)}}
+	f := [][][3]float64{{s1, s2}, {Scale(s1, -1), Scale(s2, -1)}}
 	if swap {
-		f = append(f, [][3]float64{s2, s1}, [][3]float64{scale3(s2, -1), scale3(s1, -1)})
+		f = append(f, [][3]float64{s2, s1}, [][3]float64{Scale(s2, -1), Scale(s1, -1)})
 	}
 	return f
 }
 
 // classify3D recognises sc, fcc, bcc and hexagonal lattices and lists the
 // candidate standard primitive cells.
-func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
+func classify3D(recip [3][3]float64, user [][3]float64) (string, [][][3]float64) {
 	u := [][3]float64{user[0], user[1], user[2]}
 	reduceGreedy(u)
-	vol := math.Abs(dot3(u[0], cross3(u[1], u[2])))
+	vol := math.Abs(Dot(u[0], Cross(u[1], u[2])))
 	// Short lattice vectors: integer combinations of the reduced basis.
 	var vecs [][3]float64
 	for a := -2; a <= 2; a++ {
@@ -270,23 +263,23 @@ func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
 				if a == 0 && b == 0 && c == 0 {
 					continue
 				}
-				v := add3(add3(scale3(u[0], float64(a)), scale3(u[1], float64(b))), scale3(u[2], float64(c)))
+				v := Add(Add(Scale(u[0], float64(a)), Scale(u[1], float64(b))), Scale(u[2], float64(c)))
 				vecs = append(vecs, v)
 			}
 		}
 	}
-	sort.Slice(vecs, func(i, j int) bool { return dot3(vecs[i], vecs[i]) < dot3(vecs[j], vecs[j]) })
+	sort.Slice(vecs, func(i, j int) bool { return Dot(vecs[i], vecs[i]) < Dot(vecs[j], vecs[j]) })
 	var shells []float64 // distinct lengths
 	for _, v := range vecs {
-		l := norm3(v)
+		l := Norm(v)
 		if len(shells) == 0 || !near(l, shells[len(shells)-1], l) {
 			shells = append(shells, l)
 		}
 	}
 	isLattice := func(v [3]float64) bool {
 		for k := 0; k < 3; k++ {
-			f := dot3(v, m.recip[k]) / (2 * math.Pi)
-			if math.Abs(f-math.Round(f)) > LatticeTypeTol {
+			f := Dot(v, recip[k]) / (2 * math.Pi)
+			if math.Abs(f-math.Round(f)) > TypeTol {
 				return false
 			}
 		}
@@ -295,7 +288,7 @@ func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
 	ofLength := func(l float64) [][3]float64 {
 		var out [][3]float64
 		for _, v := range vecs {
-			if near(norm3(v), l, l) {
+			if near(Norm(v), l, l) {
 				out = append(out, v)
 			}
 		}
@@ -312,10 +305,10 @@ func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
 		found := false
 		for _, e1 := range set {
 			for _, e2 := range set {
-				if math.Abs(dot3(e1, e2)) > LatticeTypeTol*a*a {
+				if math.Abs(Dot(e1, e2)) > TypeTol*a*a {
 					continue
 				}
-				e3 := scale3(cross3(e1, e2), 1/a)
+				e3 := Scale(Cross(e1, e2), 1/a)
 				if isLattice(e3) {
 					e, found = [3][3]float64{e1, e2, e3}, true
 					break
@@ -329,15 +322,15 @@ func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
 			continue
 		}
 		ratio := a * a * a / vol
-		half := func(v [3]float64) bool { return isLattice(scale3(v, 0.5)) }
+		half := func(v [3]float64) bool { return isLattice(Scale(v, 0.5)) }
 		var typ string
 		switch {
 		case near(ratio, 1, 1):
-			typ = LatticeSC
-		case near(ratio, 2, 2) && half(add3(add3(e[0], e[1]), e[2])):
-			typ = LatticeBCC
-		case near(ratio, 4, 4) && half(add3(e[0], e[1])) && half(add3(e[1], e[2])) && half(add3(e[0], e[2])):
-			typ = LatticeFCC
+			typ = SC
+		case near(ratio, 2, 2) && half(Add(Add(e[0], e[1]), e[2])):
+			typ = BCC
+		case near(ratio, 4, 4) && half(Add(e[0], e[1])) && half(Add(e[1], e[2])) && half(Add(e[0], e[2])):
+			typ = FCC
 		default:
 			continue
 		}
@@ -356,27 +349,27 @@ func classify3D(m *Model, user [][3]float64) (string, [][][3]float64) {
 		limit = shells[2]
 	}
 	for _, v1 := range vecs {
-		l := norm3(v1)
-		if l > limit*(1+LatticeTypeTol) {
+		l := Norm(v1)
+		if l > limit*(1+TypeTol) {
 			break
 		}
 		for _, v2 := range vecs {
-			if !near(norm3(v2), l, l) || !near(dot3(v1, v2)/(l*l), -0.5, 1) {
+			if !near(Norm(v2), l, l) || !near(Dot(v1, v2)/(l*l), -0.5, 1) {
 				continue
 			}
 			for _, v3 := range vecs {
-				c := norm3(v3)
-				if math.Abs(dot3(v1, v3)) > LatticeTypeTol*l*c || math.Abs(dot3(v2, v3)) > LatticeTypeTol*l*c {
+				c := Norm(v3)
+				if math.Abs(Dot(v1, v3)) > TypeTol*l*c || math.Abs(Dot(v2, v3)) > TypeTol*l*c {
 					continue
 				}
-				if near(math.Abs(dot3(v1, cross3(v2, v3))), vol, vol) {
+				if near(math.Abs(Dot(v1, Cross(v2, v3))), vol, vol) {
 					frames = append(frames, [][3]float64{v1, v2, v3})
 				}
 			}
 		}
 	}
 	if len(frames) > 0 {
-		return LatticeHexagonal, frames
+		return Hexagonal, frames
 	}
 	return "", nil
 }
@@ -393,7 +386,7 @@ func cubeFrames(e [3][3]float64) [][3][3]float64 {
 				if s>>k&1 == 1 {
 					sign = -1
 				}
-				f[k] = scale3(e[p[k]], sign)
+				f[k] = Scale(e[p[k]], sign)
 			}
 			out = append(out, f)
 		}
@@ -407,13 +400,13 @@ func cubeFrames(e [3][3]float64) [][3][3]float64 {
 // (f₁−f₂+f₃)/2, (f₁+f₂−f₃)/2.
 func standardCell(typ string, f [3][3]float64) [][3]float64 {
 	switch typ {
-	case LatticeFCC:
-		return [][3]float64{scale3(add3(f[1], f[2]), 0.5), scale3(add3(f[0], f[2]), 0.5), scale3(add3(f[0], f[1]), 0.5)}
-	case LatticeBCC:
+	case FCC:
+		return [][3]float64{Scale(Add(f[1], f[2]), 0.5), Scale(Add(f[0], f[2]), 0.5), Scale(Add(f[0], f[1]), 0.5)}
+	case BCC:
 		return [][3]float64{
-			scale3(add3(sub3(f[1], f[0]), f[2]), 0.5),
-			scale3(add3(sub3(f[0], f[1]), f[2]), 0.5),
-			scale3(sub3(add3(f[0], f[1]), f[2]), 0.5),
+			Scale(Add(Sub(f[1], f[0]), f[2]), 0.5),
+			Scale(Add(Sub(f[0], f[1]), f[2]), 0.5),
+			Scale(Sub(Add(f[0], f[1]), f[2]), 0.5),
 		}
 	default:
 		return [][3]float64{f[0], f[1], f[2]}

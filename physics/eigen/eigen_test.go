@@ -1,7 +1,7 @@
 // Tests of the Hermitian eigensolver against gonum's real symmetric solver,
 // and the benchmark that chose the method (see the header of eigen.go).
 
-package physics
+package eigen
 
 import (
 	"fmt"
@@ -158,15 +158,15 @@ func TestEigenAgainstGonum(t *testing.T) {
 	)
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			want, _ := embeddedEigen(c.h, c.n, false)
-			got, _ := hermitianEigen(c.h, c.n, false)
+			want, _ := Embedded(c.h, c.n, false)
+			got, _ := Hermitian(c.h, c.n, false)
 			scale := maxAbs(want)
 			for k := range want {
 				if math.Abs(got[k]-want[k]) > 1e-12*scale {
 					t.Fatalf("λ%d = %.17g; gonum %.17g (|Δ|/max = %.2g)", k, got[k], want[k], math.Abs(got[k]-want[k])/scale)
 				}
 			}
-			vals, vecs := hermitianEigen(c.h, c.n, true)
+			vals, vecs := Hermitian(c.h, c.n, true)
 			for k := range want {
 				if math.Abs(vals[k]-want[k]) > 1e-12*scale {
 					t.Fatalf("with vectors λ%d = %.17g; gonum %.17g", k, vals[k], want[k])
@@ -182,7 +182,7 @@ func TestEigenAgainstGonum(t *testing.T) {
 func TestEigenWorkReuse(t *testing.T) {
 	rng := rand.New(rand.NewPCG(5, 5))
 	const n = 6
-	w := newEigenWork(n)
+	w := NewWork(n)
 	mats := make([][]complex128, 8)
 	for i := range mats {
 		mats[i] = randomHermitian(rng, n)
@@ -190,10 +190,10 @@ func TestEigenWorkReuse(t *testing.T) {
 	for _, vectors := range []bool{false, true} {
 		for _, h := range mats {
 			copy(w.a, h)
-			if st := w.solve(vectors); st != solveOK {
+			if st := w.Solve(vectors); st != OK {
 				t.Fatalf("status %v", st)
 			}
-			want, _ := embeddedEigen(h, n, false)
+			want, _ := Embedded(h, n, false)
 			for k := range want {
 				if math.Abs(w.vals[k]-want[k]) > 1e-12*maxAbs(want) {
 					t.Fatalf("reused workspace: λ%d = %v; want %v", k, w.vals[k], want[k])
@@ -202,7 +202,7 @@ func TestEigenWorkReuse(t *testing.T) {
 		}
 		allocs := testing.AllocsPerRun(100, func() {
 			copy(w.a, mats[0])
-			w.solve(vectors)
+			w.Solve(vectors)
 		})
 		if allocs != 0 {
 			t.Errorf("vectors=%v: %v allocations per solve; want 0", vectors, allocs)
@@ -213,14 +213,14 @@ func TestEigenWorkReuse(t *testing.T) {
 // TestEigenStops: a closed done channel stops a large solve.
 func TestEigenStops(t *testing.T) {
 	rng := rand.New(rand.NewPCG(9, 9))
-	n := 2 * cancelCheckModes
-	w := newEigenWork(n)
+	n := 2 * CancelCheckModes
+	w := NewWork(n)
 	copy(w.a, randomHermitian(rng, n))
 	done := make(chan struct{})
 	close(done)
 	w.done = done
-	if st := w.solve(true); st != solveStopped {
-		t.Fatalf("status %v; want solveStopped", st)
+	if st := w.Solve(true); st != Stopped {
+		t.Fatalf("status %v; want Stopped", st)
 	}
 }
 
@@ -251,7 +251,7 @@ func jacobiEigen(h []complex128, n int, vectors bool) ([]float64, []complex128) 
 				off += real(z)*real(z) + imag(z)*imag(z)
 			}
 		}
-		if off <= epsilon*epsilon*total {
+		if off <= Epsilon*Epsilon*total {
 			break
 		}
 		for p := 0; p < n; p++ {
@@ -329,7 +329,7 @@ func TestJacobiCandidate(t *testing.T) {
 	rng := rand.New(rand.NewPCG(11, 2))
 	for _, n := range []int{2, 6, 24} {
 		h := randomHermitian(rng, n)
-		want, _ := embeddedEigen(h, n, false)
+		want, _ := Embedded(h, n, false)
 		vals, vecs := jacobiEigen(h, n, true)
 		for k := range want {
 			if math.Abs(vals[k]-want[k]) > 1e-12*maxAbs(want) {
@@ -356,18 +356,18 @@ func BenchmarkHermitianEigen(b *testing.B) {
 				kind = "vectors"
 			}
 			b.Run(fmt.Sprintf("householder-ql/%s/n=%d", kind, n), func(b *testing.B) {
-				w := newEigenWork(n)
+				w := NewWork(n)
 				b.ReportAllocs()
 				for b.Loop() {
 					copy(w.a, h)
-					w.solve(vectors)
+					w.Solve(vectors)
 				}
 				sinkVals = w.vals
 			})
 			b.Run(fmt.Sprintf("embedding-gonum/%s/n=%d", kind, n), func(b *testing.B) {
 				b.ReportAllocs()
 				for b.Loop() {
-					sinkVals, _ = embeddedEigen(h, n, vectors)
+					sinkVals, _ = Embedded(h, n, vectors)
 				}
 			})
 			if n > 24 {
@@ -379,45 +379,6 @@ func BenchmarkHermitianEigen(b *testing.B) {
 					sinkVals, _ = jacobiEigen(h, n, vectors)
 				}
 			})
-		}
-	}
-}
-
-// TestEigenDegenerateDynamicalMatrices: dynamical matrices of a 64-site
-// supercell at Γ and zone-boundary points are massively degenerate
-// (folding); the eigenpairs still satisfy D x = λ x and xᴴx = I to 1e-11
-// and agree with gonum.
-func TestEigenDegenerateDynamicalMatrices(t *testing.T) {
-	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
-	n := m.Modes()
-	for _, q := range [][3]float64{{0, 0, 0}, {0.5, 0, 0}, {0.5, 0.5, 0.5}} {
-		d := m.DynamicalMatrix(q, nil)
-		vals, vecs := hermitianEigen(d, n, true)
-		want, _ := embeddedEigen(d, n, false)
-		for k := range want {
-			if math.Abs(vals[k]-want[k]) > 1e-12*maxAbs(want) {
-				t.Fatalf("q=%v λ%d = %v; gonum %v", q, k, vals[k], want[k])
-			}
-		}
-		checkEigenpairs(t, d, n, vals, vecs, 1e-11)
-	}
-}
-
-// TestTinyLatticeComponentFiniteAtGamma: a lattice component of 1e-154 Å
-// (its square subnormal) left D(Γ) with subnormal rounding residue that the
-// solver's power-of-two scaling overflowed into NaN — found by fuzzing. At Γ
-// the acoustic frequencies are zero (acoustic sum rule; Kittel ch. 4).
-func TestTinyLatticeComponentFiniteAtGamma(t *testing.T) {
-	c := &Crystal{
-		Lattice: [][3]float64{{0, 1.4916681462400413e-154, 2}, {16.188339233398438, 0, 0}, {0, 16.188235294117646, 0}},
-		Sites:   []Site{{Label: "M", MassAmu: 40, Frac: []float64{0, 0, 0}}},
-		Shells:  []Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: 1}},
-	}
-	m := mustCompile(t, c)
-	for _, f := range m.FrequenciesTHz([3]float64{}) {
-		if math.IsNaN(f) || math.Abs(f) > 1e-6 {
-			t.Errorf("Γ frequencies %v; want zeros", m.FrequenciesTHz([3]float64{}))
-			break
 		}
 	}
 }
