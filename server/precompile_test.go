@@ -9,8 +9,8 @@ import (
 	"google.golang.org/grpc/status"
 
 	"github.com/materials-lab/modegrid/physics"
-	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/proto/examples"
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
 // TestPrecompileRefusesNewModelBombs: the memory and reply bombs of the
