@@ -24,15 +24,15 @@ func (s *Service) ComputeDispersion(ctx context.Context, req *modegridv1.Compute
 func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest) (*modegridv1.ComputeDispersionResponse, error) {
 	var vs violations
 	if !validUnit(req.GetUnit()) {
-		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
+		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
 	unit := unitFromProto(req.GetUnit())
 	path := req.GetPath()
 	switch {
 	case len(path) < 2:
-		vs.add("path", "at least two corners are required, got %d", len(path))
+		vs.Add("path", "at least two corners are required, got %d", len(path))
 	case len(path) > s.cfg.MaxPathCorners:
-		vs.add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
+		vs.Add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
 	}
 	// connect_branches is the deprecated spelling of follow_modes: either
 	// asks for it, and both share one cache entry.
@@ -40,7 +40,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 	spacing := req.GetSpacingInvA()
 	switch {
 	case math.IsNaN(spacing) || math.IsInf(spacing, 0) || spacing < 0:
-		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", spacing)
+		vs.Add("spacing_inv_a", "must be a finite number ≥ 0, got %v", spacing)
 	case spacing > 0:
 		opt.SpacingInvA = canonFloat(spacing)
 	default:
@@ -49,7 +49,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			opt.Points = physics.DefaultPathPoints
 		}
 		if opt.Points > s.cfg.MaxPathPoints {
-			vs.add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
+			vs.Add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
 		}
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
@@ -61,12 +61,12 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 		corners = s.pathCorners(e.m, path, &vs)
 		if opt.SpacingInvA > 0 && len(corners) == len(path) {
 			if n := pathLengthInvA(e.m, corners)/opt.SpacingInvA + float64(len(corners)); n > float64(s.cfg.MaxPathPoints) {
-				vs.add("spacing_inv_a", "a spacing of %v Å⁻¹ gives about %.0f samples, over this server's cap max-path-points=%d", opt.SpacingInvA, n, s.cfg.MaxPathPoints)
+				vs.Add("spacing_inv_a", "a spacing of %v Å⁻¹ gives about %.0f samples, over this server's cap max-path-points=%d", opt.SpacingInvA, n, s.cfg.MaxPathPoints)
 			}
 		}
 	}
 	var est estimate
-	if e != nil && len(vs.list) == 0 {
+	if e != nil && vs.Len() == 0 {
 		n := opt.Points
 		if opt.SpacingInvA > 0 {
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
@@ -89,7 +89,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 		}
 		s.checkReply(&vs, "points", float64(opt.Points)*float64(perSample), what)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
 
@@ -156,9 +156,9 @@ func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs
 			for k, v := range c.Q {
 				switch {
 				case !(math.Abs(v) <= physics.MaxQ):
-					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), qRangeMsg, v)
+					vs.Add(fmt.Sprintf("path[%d].q.q%d", i, k+1), qRangeMsg, v)
 				case k >= m.Dim() && v != 0:
-					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
+					vs.Add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
 				}
 			}
 		} else {
@@ -169,7 +169,7 @@ func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs
 			}
 			q, ok := std[key]
 			if !ok {
-				vs.add(fmt.Sprintf("path[%d].label", i), "%q is not a built-in point of this %s lattice (have %s); give q", c.Label, latticeName(m), labelList(std))
+				vs.Add(fmt.Sprintf("path[%d].label", i), "%q is not a built-in point of this %s lattice (have %s); give q", c.Label, latticeName(m), labelList(std))
 				continue
 			}
 			c.Q = q

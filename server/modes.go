@@ -26,7 +26,7 @@ const modeChunkOverhead = 64
 func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModesRequest, stream grpc.ServerStreamingServer[modegridv1.ComputeModesResponse]) error {
 	var vs violations
 	if !validUnit(req.GetUnit()) {
-		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
+		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
@@ -40,10 +40,10 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	unit := unitFromProto(req.GetUnit())
 	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
 	var est estimate
-	if len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		est = s.modesEstimate(e, qs.count, opt, &vs)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return err
 	}
 

@@ -69,14 +69,14 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 	var ts []float64
 	check := func(field string, t float64) bool {
 		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > physics.MaxTempK {
-			vs.add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
+			vs.Add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
 			return false
 		}
 		return true
 	}
 	list := req.GetTemperaturesK()
 	if len(list) > s.cfg.MaxTemps {
-		vs.add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
+		vs.Add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
 		return nil
 	}
 	for i, t := range list {
@@ -89,11 +89,11 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 		ok := check("range.start_k", start)
 		ok = check("range.stop_k", stop) && ok
 		if !(step > 0) || math.IsInf(step, 0) {
-			vs.add("range.step_k", "must be > 0, got %v", r.GetStepK())
+			vs.Add("range.step_k", "must be > 0, got %v", r.GetStepK())
 			ok = false
 		}
 		if ok && stop < start {
-			vs.add("range.stop_k", "must be ≥ start_k (%v), got %v", start, stop)
+			vs.Add("range.stop_k", "must be ≥ start_k (%v), got %v", start, stop)
 			ok = false
 		}
 		if ok {
@@ -104,7 +104,7 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 			// past the cap.
 			nf := math.Floor((stop-start)/step+1e-9) + 1
 			if float64(len(ts))+nf > float64(s.cfg.MaxTemps) {
-				vs.add("range", "%s temperatures exceed this server's cap max-temps=%d", countString(float64(len(ts))+nf), s.cfg.MaxTemps)
+				vs.Add("range", "%s temperatures exceed this server's cap max-temps=%d", countString(float64(len(ts))+nf), s.cfg.MaxTemps)
 				return nil
 			}
 			n := int(nf)
@@ -113,8 +113,8 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 			}
 		}
 	}
-	if len(ts) == 0 && len(vs.list) == 0 {
-		vs.add("temperatures_k", "at least one temperature is required (temperatures_k or range)")
+	if len(ts) == 0 && vs.Len() == 0 {
+		vs.Add("temperatures_k", "at least one temperature is required (temperatures_k or range)")
 	}
 	return ts
 }
@@ -128,7 +128,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_DOS_INTEGRAL:
 		opt.Route = physics.DOSIntegral
 	default:
-		vs.add("route", "unknown route %d", req.GetRoute())
+		vs.Add("route", "unknown route %d", req.GetRoute())
 	}
 	opt.TempsK = s.temperatures(req, &vs)
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
@@ -148,11 +148,11 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		s.checkReply(&vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
 	}
 	var est estimate
-	if len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		est = s.thermalEstimate(e, qs.grid, opt)
 		s.budget.check(&vs, est)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
 
