@@ -63,8 +63,14 @@ func sumRuleCause(e *modelEntry, err error) error {
 	return &sumRuleError{err: err, violationEVPA2: e.m.SumRuleViolation()}
 }
 
+// thermalFields maps physics.ThermalOptions's field paths onto
+// ComputeThermalRequest's: the explicit temperatures come first in
+// TempsK, so their indices agree; the range's values are checked here.
+var thermalFields = fieldMap{"temperatures_k": "temperatures_k", "route": "route"}
+
 // temperatures expands the explicit list and the range into one list,
-// canonical values, checking every value and the cap.
+// canonical values, checking the range and the cap (the explicit values
+// are left to the engine's check).
 func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violations) []float64 {
 	var ts []float64
 	check := func(field string, t float64) bool {
@@ -79,10 +85,11 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 		vs.Add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
 		return nil
 	}
-	for i, t := range list {
-		if check(fmt.Sprintf("temperatures_k[%d]", i), t) {
-			ts = append(ts, canonFloat(t))
-		}
+	// The explicit values are the engine's to check (physics.
+	// ThermalOptions.Validate): they keep their indices, the range's
+	// values follow them.
+	for _, t := range list {
+		ts = append(ts, canonFloat(t))
 	}
 	if r := req.GetRange(); r != nil {
 		start, stop, step := canonFloat(r.GetStartK()), canonFloat(r.GetStopK()), canonFloat(r.GetStepK())
@@ -121,6 +128,7 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 
 func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
 	var vs violations
+	bad := map[string]bool{}
 	opt := physics.ThermalOptions{AllowUnstable: req.GetAllowUnstable(), MSD: req.GetMsd()}
 	switch req.GetRoute() {
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_UNSPECIFIED, modegridv1.ThermalRoute_THERMAL_ROUTE_MODE_SUM:
@@ -129,8 +137,12 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		opt.Route = physics.DOSIntegral
 	default:
 		vs.Add("route", "unknown route %d", req.GetRoute())
+		bad["route"] = true
 	}
 	opt.TempsK = s.temperatures(req, &vs)
+	if len(opt.TempsK) > 0 { // none: reported above, in the request's terms
+		thermalFields.addEngine(&vs, opt.Validate(), "temperatures_k", bad)
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return nil, err
