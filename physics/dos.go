@@ -168,7 +168,7 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	if step == 0 {
 		step = (hi - lo) / DefaultDOSBins
 	}
-	nf := math.Floor((hi-lo)/step+1e-9) + 1 // float first: a tiny step must not overflow int
+	nf := dosSamples(lo, hi, step)
 	if !(nf <= MaxDOSSamples) {
 		return nil, &ValidationError{Violations: []Violation{{Field: "step", Description: fmt.Sprintf(
 			"the window [%g, %g] at step %g gives %.3g samples, more than the limit of %d", lo, hi, step, nf, MaxDOSSamples)}}}
@@ -247,6 +247,35 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	}
 	return res, nil
 }
+
+// Samples is the number of frequency samples ComputeDOS returns for these
+// options, when the options alone fix it: DefaultDOSBins+1 for the default
+// step, the window over the step for a given window and step. known is
+// false for a given step across the window chosen from the modes. The count
+// is a float64: a tiny step gives more samples than an int holds.
+func (o DOSOptions) Samples() (n float64, known bool) {
+	switch {
+	case o.Step == 0:
+		return DefaultDOSBins + 1, true
+	case o.Min == 0 && o.Max == 0:
+		return 0, false
+	}
+	return dosSamples(o.Min, o.Max, o.Step), true
+}
+
+// dosSamples is the number of samples lo, lo+step, … up to hi, hi included
+// when on the step (within 1e-9 of a step). Counted in floating point: a
+// tiny step must not overflow an int.
+func dosSamples(lo, hi, step float64) float64 {
+	return math.Floor((hi-lo)/step+1e-9) + 1
+}
+
+// Validate checks the options alone and returns a *ValidationError listing
+// every violation with field paths relative to DOSOptions ("method",
+// "unit", "min", "max", "step", "width"), or nil. ComputeDOS runs it; a
+// caller checks a request with it before any work. A width with a method
+// other than Gaussian is a violation, not ignored.
+func (o DOSOptions) Validate() error { return o.validate() }
 
 // validate checks the options alone, listing every violation.
 func (o DOSOptions) validate() error {

@@ -297,6 +297,12 @@ func evalSums(ctx context.Context, set *modeSet, temps []float64, mode evalMode)
 	return sums, err
 }
 
+// Validate checks the options alone and returns a *ValidationError listing
+// every violation with field paths relative to ThermalOptions
+// ("temperatures_k", "temperatures_k[i]", "route"), or nil. ComputeThermal
+// runs it; a caller checks a request with it before any work.
+func (o ThermalOptions) Validate() error { return o.validate() }
+
 // validate checks the options alone, listing every violation.
 func (o ThermalOptions) validate() error {
 	var vs violations

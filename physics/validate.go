@@ -4,6 +4,7 @@
 package physics
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"strings"
@@ -86,18 +87,66 @@ func (e *ValidationError) Error() string {
 	return "invalid: " + strings.Join(parts, "; ")
 }
 
-// violations accumulates Violations; the zero value is ready to use.
-type violations struct{ list []Violation }
+// Violations accumulates Violations; the zero value is ready to use. It is
+// the one collector of the engine and of the server, which maps the
+// engine's field paths (relative to an option struct or a model) onto its
+// request's paths with AddErr.
+type Violations struct{ list []Violation }
 
-func (vs *violations) add(field, format string, args ...any) {
+// violations is the engine's internal name for the collector.
+type violations = Violations
+
+// Add records a violation of field, the description formatted by Sprintf.
+func (vs *Violations) Add(field, format string, args ...any) {
 	vs.list = append(vs.list, Violation{Field: field, Description: fmt.Sprintf(format, args...)})
 }
 
-func (vs *violations) err() error {
+// AddErr records the violations of a *ValidationError in err with their
+// fields joined under prefix (JoinField), or any other non-nil error as
+// one violation of field.
+func (vs *Violations) AddErr(prefix, field string, err error) {
+	var ve *ValidationError
+	switch {
+	case err == nil:
+	case errors.As(err, &ve):
+		for _, v := range ve.Violations {
+			vs.list = append(vs.list, Violation{Field: JoinField(prefix, v.Field), Description: v.Description})
+		}
+	default:
+		vs.Add(field, "%v", err)
+	}
+}
+
+// Len is the number of violations recorded.
+func (vs *Violations) Len() int { return len(vs.list) }
+
+// List returns the violations recorded, in order.
+func (vs *Violations) List() []Violation { return vs.list }
+
+// Err is a *ValidationError listing every violation, or nil if none.
+func (vs *Violations) Err() error {
 	if len(vs.list) == 0 {
 		return nil
 	}
 	return &ValidationError{Violations: vs.list}
+}
+
+func (vs *Violations) add(field, format string, args ...any) { vs.Add(field, format, args...) }
+func (vs *Violations) err() error                            { return vs.Err() }
+
+// JoinField joins a prefix ("model.crystal") and a field path relative to
+// it ("sites[2].mass_amu", or "[3]" for an element of the prefix itself).
+func JoinField(prefix, field string) string {
+	switch {
+	case prefix == "":
+		return field
+	case field == "":
+		return prefix
+	case strings.HasPrefix(field, "["):
+		return prefix + field
+	default:
+		return prefix + "." + field
+	}
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }

@@ -208,7 +208,7 @@ type estimate struct {
 func (b *budget) check(vs *violations, e estimate) {
 	if reason, msg := b.verdict(e); reason != "" {
 		b.refused.WithLabelValues(reason).Inc()
-		vs.add(e.field, "%s", msg)
+		vs.Add(e.field, "%s", msg)
 	}
 }
 

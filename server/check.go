@@ -29,7 +29,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	var err error
 	if src.GetCrystal() != nil {
 		if s.precheckCheck(&vs, src) {
-			return nil, vs.err() // refused from the request alone, before compiling
+			return nil, vs.Err() // refused from the request alone, before compiling
 		}
 		e, err = s.resolve(ctx, src, &mvs)
 	} else {
@@ -38,21 +38,21 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	if err != nil {
 		return nil, err
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
 	mesh := s.cfg.StabilityMesh
 	canon := fmt.Sprintf("stability_mesh=%d", mesh)
 	if e == nil {
 		out := &modegridv1.CheckModelResponse{Parameters: canon}
-		for _, v := range mvs.list {
+		for _, v := range mvs.List() {
 			out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, "model.crystal."), Description: v.Description})
 		}
 		return out, nil
 	}
 	stab := s.stabilityEstimate(e, mesh)
 	s.budget.check(&vs, stab)
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
 	resp, err := cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {

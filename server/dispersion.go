@@ -21,18 +21,57 @@ func (s *Service) ComputeDispersion(ctx context.Context, req *modegridv1.Compute
 	return resp, s.toStatus(ctx, "ComputeDispersion", err)
 }
 
+// computeDispersion converts the request, checks it (the server's caps and
+// budget; the engine checks the path itself), and computes through the
+// cache.
 func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest) (*modegridv1.ComputeDispersionResponse, error) {
 	var vs violations
-	if !validUnit(req.GetUnit()) {
-		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
-	}
-	unit := unitFromProto(req.GetUnit())
+	unit, opt := s.pathOptions(req, &vs)
 	path := req.GetPath()
 	switch {
 	case len(path) < 2:
-		vs.add("path", "at least two corners are required, got %d", len(path))
+		vs.Add("path", "at least two corners are required, got %d", len(path))
 	case len(path) > s.cfg.MaxPathCorners:
-		vs.add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
+		vs.Add("path", "%d corners exceed this server's cap max-path-corners=%d", len(path), s.cfg.MaxPathCorners)
+	}
+	if s.precheck(&vs, req.GetModel(), nil) {
+		return nil, vs.Err() // the compile alone is over the bound
+	}
+	e, err := s.resolve(ctx, req.GetModel(), &vs)
+	if err != nil {
+		return nil, err
+	}
+	var corners []physics.PathCorner
+	var est estimate
+	if e != nil {
+		corners, est = s.checkDispersion(e, path, opt, &vs)
+	}
+	if err := vs.Err(); err != nil {
+		return nil, err
+	}
+	canon := dispersionParams(corners, opt, unit)
+	return cachedResult(ctx, s, kindDispersion, e.hash, canon, dispersionCodec, func(ctx context.Context) (*modegridv1.ComputeDispersionResponse, error) {
+		var samples []physics.PathSample
+		err := s.admitted(ctx, est, func(ctx context.Context) error {
+			return s.run(ctx, kindDispersion, func(ctx context.Context) error {
+				var err error
+				samples, err = e.m.Dispersion(ctx, corners, opt)
+				return err
+			})
+		})
+		if err != nil {
+			return nil, err
+		}
+		s.met.qpoints.Add(float64(len(samples)))
+		return dispersionToProto(e.hash, canon, unit, samples), nil
+	})
+}
+
+// pathOptions converts the request's sampling options, checking the unit,
+// the spacing and the cap on points.
+func (s *Service) pathOptions(req *modegridv1.ComputeDispersionRequest, vs *violations) (physics.Unit, physics.PathOptions) {
+	if !validUnit(req.GetUnit()) {
+		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
 	// connect_branches is the deprecated spelling of follow_modes: either
 	// asks for it, and both share one cache entry.
@@ -40,7 +79,7 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 	spacing := req.GetSpacingInvA()
 	switch {
 	case math.IsNaN(spacing) || math.IsInf(spacing, 0) || spacing < 0:
-		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", spacing)
+		vs.Add("spacing_inv_a", "must be a finite number ≥ 0, got %v", spacing)
 	case spacing > 0:
 		opt.SpacingInvA = canonFloat(spacing)
 	default:
@@ -49,53 +88,51 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			opt.Points = physics.DefaultPathPoints
 		}
 		if opt.Points > s.cfg.MaxPathPoints {
-			vs.add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
+			vs.Add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
 		}
 	}
-	if s.precheck(&vs, req.GetModel(), nil) {
-		return nil, vs.err() // the compile alone is over the bound
-	}
-	e, err := s.resolve(ctx, req.GetModel(), &vs)
-	if err != nil {
-		return nil, err
-	}
+	return unitFromProto(req.GetUnit()), opt
+}
+
+// checkDispersion resolves the corners on e's model and checks the
+// server's caps (samples, reply size) and the budget, returning the
+// corners and the estimate of the work.
+func (s *Service) checkDispersion(e *modelEntry, path []*modegridv1.PathPoint, opt physics.PathOptions, vs *violations) ([]physics.PathCorner, estimate) {
 	var corners []physics.PathCorner
-	if e != nil && len(path) >= 2 && len(path) <= s.cfg.MaxPathCorners {
-		corners = s.pathCorners(e.m, path, &vs)
+	if len(path) >= 2 && len(path) <= s.cfg.MaxPathCorners {
+		corners = s.pathCorners(e.m, path, vs)
 		if opt.SpacingInvA > 0 && len(corners) == len(path) {
 			if n := pathLengthInvA(e.m, corners)/opt.SpacingInvA + float64(len(corners)); n > float64(s.cfg.MaxPathPoints) {
-				vs.add("spacing_inv_a", "a spacing of %v Å⁻¹ gives about %.0f samples, over this server's cap max-path-points=%d", opt.SpacingInvA, n, s.cfg.MaxPathPoints)
+				vs.Add("spacing_inv_a", "a spacing of %v Å⁻¹ gives about %.0f samples, over this server's cap max-path-points=%d", opt.SpacingInvA, n, s.cfg.MaxPathPoints)
 			}
 		}
 	}
+	perSample := 8*e.m.Modes() + 64 // the response
+	what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes())
+	if opt.SiteWeights {
+		perSample += 8 * e.m.Modes() * e.m.Sites()
+		what += fmt.Sprintf(" × (1 + %d site weights)", e.m.Sites())
+	}
 	var est estimate
-	if e != nil && len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		n := opt.Points
 		if opt.SpacingInvA > 0 {
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
 		}
 		c := physics.DispersionCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
-		perSample := int64(8*e.m.Modes() + 64) // the response
-		if opt.SiteWeights {
-			perSample += int64(8 * e.m.Modes() * e.m.Sites())
-		}
-		c.Bytes += 2 * int64(n) * perSample
+		c.Bytes += 2 * int64(n) * int64(perSample)
 		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
-		s.budget.check(&vs, est)
+		s.budget.check(vs, est)
 	}
-	if e != nil && opt.Points > 0 {
-		perSample := 8*e.m.Modes() + 64
-		what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes())
-		if opt.SiteWeights {
-			perSample += 8 * e.m.Modes() * e.m.Sites()
-			what += fmt.Sprintf(" × (1 + %d site weights)", e.m.Sites())
-		}
-		s.checkReply(&vs, "points", float64(opt.Points)*float64(perSample), what)
+	if opt.Points > 0 {
+		s.checkReply(vs, "points", float64(opt.Points)*float64(perSample), what)
 	}
-	if err := vs.err(); err != nil {
-		return nil, err
-	}
+	return corners, est
+}
 
+// dispersionParams is the canonical parameter string of a dispersion
+// request, its cache key with the model hash: corners by coordinates.
+func dispersionParams(corners []physics.PathCorner, opt physics.PathOptions, unit physics.Unit) string {
 	var p params
 	var b strings.Builder
 	for i, c := range corners {
@@ -117,33 +154,22 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 	p.add("unit", unitName(unit))
 	p.addBool("follow_modes", opt.FollowModes)
 	p.addBool("site_weights", opt.SiteWeights)
-	canon := p.String()
+	return p.String()
+}
 
-	return cachedResult(ctx, s, kindDispersion, e.hash, canon, dispersionCodec, func(ctx context.Context) (*modegridv1.ComputeDispersionResponse, error) {
-		var samples []physics.PathSample
-		err := s.admitted(ctx, est, func(ctx context.Context) error {
-			return s.run(ctx, kindDispersion, func(ctx context.Context) error {
-				var err error
-				samples, err = e.m.Dispersion(ctx, corners, opt)
-				return err
-			})
-		})
-		if err != nil {
-			return nil, err
+// dispersionToProto converts the engine's samples, frequencies into unit.
+func dispersionToProto(hash, canon string, unit physics.Unit, samples []physics.PathSample) *modegridv1.ComputeDispersionResponse {
+	out := &modegridv1.ComputeDispersionResponse{ModelHash: hash, Parameters: canon, Unit: unitToProto(unit),
+		Samples: make([]*modegridv1.DispersionSample, len(samples))}
+	for i, smp := range samples {
+		f := make([]float64, len(smp.FreqTHz))
+		for k, v := range smp.FreqTHz {
+			f[k] = unit.FromTHz(v)
 		}
-		s.met.qpoints.Add(float64(len(samples)))
-		out := &modegridv1.ComputeDispersionResponse{ModelHash: e.hash, Parameters: canon, Unit: unitToProto(unit),
-			Samples: make([]*modegridv1.DispersionSample, len(samples))}
-		for i, smp := range samples {
-			f := make([]float64, len(smp.FreqTHz))
-			for k, v := range smp.FreqTHz {
-				f[k] = unit.FromTHz(v)
-			}
-			out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
-				Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}, SiteWeights: smp.SiteWeight}
-		}
-		return out, nil
-	})
+		out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
+			Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}, SiteWeights: smp.SiteWeight}
+	}
+	return out
 }
 
 // pathCorners resolves the corners: given coordinates (canonical) or the
@@ -159,9 +185,9 @@ func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs
 			for k, v := range c.Q {
 				switch {
 				case !(math.Abs(v) <= physics.MaxQ):
-					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), qRangeMsg, v)
+					vs.Add(fmt.Sprintf("path[%d].q.q%d", i, k+1), qRangeMsg, v)
 				case k >= m.Dim() && v != 0:
-					vs.add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
+					vs.Add(fmt.Sprintf("path[%d].q.q%d", i, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.Dim(), v)
 				}
 			}
 		} else {
@@ -172,7 +198,7 @@ func (s *Service) pathCorners(m *physics.Model, path []*modegridv1.PathPoint, vs
 			}
 			q, ok := std[key]
 			if !ok {
-				vs.add(fmt.Sprintf("path[%d].label", i), "%q is not a built-in point of this %s lattice (have %s); give q", c.Label, latticeName(m), labelList(std))
+				vs.Add(fmt.Sprintf("path[%d].label", i), "%q is not a built-in point of this %s lattice (have %s); give q", c.Label, latticeName(m), labelList(std))
 				continue
 			}
 			c.Q = q

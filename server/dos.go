@@ -3,7 +3,6 @@ package server
 import (
 	"context"
 	"fmt"
-	"math"
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -11,6 +10,10 @@ import (
 )
 
 var dosCodec = protoCodec(func() *modegridv1.ComputeDosResponse { return &modegridv1.ComputeDosResponse{} })
+
+// dosFields maps physics.DOSOptions's field paths onto ComputeDosRequest's:
+// the names agree.
+var dosFields = fieldMap{"method": "method", "unit": "unit", "min": "min", "max": "max", "step": "step", "width": "width"}
 
 // ComputeDos returns the phonon density of states on a grid or finite
 // crystal, total and (when asked) per site and label. Cached by (model
@@ -21,62 +24,18 @@ func (s *Service) ComputeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	return resp, s.toStatus(ctx, "ComputeDos", err)
 }
 
+// computeDos converts the request, has the engine check the options, adds
+// the server's caps and budget, and computes through the cache.
 func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequest) (*modegridv1.ComputeDosResponse, error) {
 	var vs violations
-	opt := physics.DOSOptions{PerSite: req.GetPerSite()}
-	switch req.GetMethod() {
-	case modegridv1.DosMethod_DOS_METHOD_UNSPECIFIED, modegridv1.DosMethod_DOS_METHOD_TETRAHEDRON:
-		opt.Method = physics.Tetrahedron
-	case modegridv1.DosMethod_DOS_METHOD_GAUSSIAN:
-		opt.Method = physics.Gaussian
-	case modegridv1.DosMethod_DOS_METHOD_HISTOGRAM:
-		opt.Method = physics.Histogram
-	default:
-		vs.add("method", "unknown method %d", req.GetMethod())
-	}
-	switch req.GetImaginary() {
-	case modegridv1.ImaginaryModes_IMAGINARY_MODES_UNSPECIFIED, modegridv1.ImaginaryModes_IMAGINARY_MODES_EXCLUDE:
-	case modegridv1.ImaginaryModes_IMAGINARY_MODES_NEGATIVE_AXIS:
-		opt.NegativeAxis = true
-	default:
-		vs.add("imaginary", "unknown value %d", req.GetImaginary())
-	}
-	if !validUnit(req.GetUnit()) {
-		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
-	}
-	opt.Unit = unitFromProto(req.GetUnit())
-	for _, f := range []struct {
-		name string
-		v    float64
-	}{{"min", req.GetMin()}, {"max", req.GetMax()}, {"step", req.GetStep()}, {"width", req.GetWidth()}} {
-		if !(math.Abs(f.v) <= physics.MaxDOSFrequency) {
-			vs.add(f.name, "must be a finite number within ±%g (in the request's unit), got %v", physics.MaxDOSFrequency, f.v)
-		}
-	}
-	opt.Min, opt.Max, opt.Step = canonFloat(req.GetMin()), canonFloat(req.GetMax()), canonFloat(req.GetStep())
-	if opt.Method == physics.Gaussian {
-		opt.Width = canonFloat(req.GetWidth())
-	}
-	// The window, step and width are checked here, before any work, in
-	// the words physics.ComputeDOS would use after the grid's modes.
-	if !(opt.Min == 0 && opt.Max == 0) && opt.Max <= opt.Min {
-		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", opt.Min, opt.Max)
-	}
-	if opt.Step < 0 {
-		vs.add("step", "must be > 0 (0 for the default), got %g", opt.Step)
-	}
-	if opt.Width < 0 {
-		vs.add("width", "must be > 0 (0 for the default), got %g", opt.Width)
-	} else if opt.Width > 0 && opt.Width < physics.MinDOSWidth {
-		vs.add("width", "must be ≥ %g (in the request's unit; 0 for the default), got %v", physics.MinDOSWidth, opt.Width)
-	}
-	if opt.Step > 0 && opt.Max > opt.Min {
-		if n := (opt.Max-opt.Min)/opt.Step + 1; n > float64(s.cfg.MaxDOSBins) {
-			vs.add("step", "the window %v…%v in steps of %v is %.0f samples, over this server's cap max-dos-bins=%d", opt.Min, opt.Max, opt.Step, n, s.cfg.MaxDOSBins)
-		}
+	opt, bad := dosOptions(req, &vs)
+	optErr := opt.Validate()
+	dosFields.addEngine(&vs, optErr, "method", bad)
+	if f := violatedFields(optErr); !f["min"] && !f["max"] && !f["step"] {
+		s.checkDOSSamples(&vs, opt)
 	}
 	if s.precheckDOS(&vs, req, opt) {
-		return nil, vs.err() // refused from the request alone, before compiling
+		return nil, vs.Err() // refused from the request alone, before compiling
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
@@ -91,16 +50,96 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 		s.checkDOSReply(&vs, opt, e.m.Sites())
 	}
 	var est estimate
-	if len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		est = s.dosEstimate(e, qs.grid, opt)
 		s.budget.check(&vs, est)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
+	canon := dosParams(qs.grid, opt)
+	return cachedResult(ctx, s, kindDOS, e.hash, canon, dosCodec, func(ctx context.Context) (*modegridv1.ComputeDosResponse, error) {
+		res, err := s.runDOS(ctx, e, qs.grid, opt, est)
+		if err != nil {
+			return nil, err
+		}
+		return dosToProto(e, canon, res), nil
+	})
+}
 
+// dosOptions converts the request into the engine's options, reporting
+// enum values the proto does not define; bad names the fields so reported,
+// whose engine checks would repeat them.
+func dosOptions(req *modegridv1.ComputeDosRequest, vs *violations) (opt physics.DOSOptions, bad map[string]bool) {
+	bad = map[string]bool{}
+	opt = physics.DOSOptions{PerSite: req.GetPerSite(), Unit: unitFromProto(req.GetUnit()),
+		Min: canonFloat(req.GetMin()), Max: canonFloat(req.GetMax()), Step: canonFloat(req.GetStep()), Width: canonFloat(req.GetWidth())}
+	switch req.GetMethod() {
+	case modegridv1.DosMethod_DOS_METHOD_UNSPECIFIED, modegridv1.DosMethod_DOS_METHOD_TETRAHEDRON:
+		opt.Method = physics.Tetrahedron
+	case modegridv1.DosMethod_DOS_METHOD_GAUSSIAN:
+		opt.Method = physics.Gaussian
+	case modegridv1.DosMethod_DOS_METHOD_HISTOGRAM:
+		opt.Method = physics.Histogram
+	default:
+		vs.Add("method", "unknown method %d", req.GetMethod())
+		bad["method"] = true
+		opt.Method = physics.Gaussian // the method that takes a width: the width's own checks still run
+	}
+	switch req.GetImaginary() {
+	case modegridv1.ImaginaryModes_IMAGINARY_MODES_UNSPECIFIED, modegridv1.ImaginaryModes_IMAGINARY_MODES_EXCLUDE:
+	case modegridv1.ImaginaryModes_IMAGINARY_MODES_NEGATIVE_AXIS:
+		opt.NegativeAxis = true
+	default:
+		vs.Add("imaginary", "unknown value %d", req.GetImaginary())
+	}
+	if !validUnit(req.GetUnit()) {
+		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
+		bad["unit"] = true
+	}
+	return opt, bad
+}
+
+// checkDOSSamples checks the number of samples, when the options fix it,
+// against this server's cap max-dos-bins.
+func (s *Service) checkDOSSamples(vs *violations, opt physics.DOSOptions) {
+	if n, known := opt.Samples(); known && n > float64(s.cfg.MaxDOSBins) {
+		vs.Add("step", "the window %v…%v in steps of %v is %.0f samples, over this server's cap max-dos-bins=%d", opt.Min, opt.Max, opt.Step, n, s.cfg.MaxDOSBins)
+	}
+}
+
+// dosReplyGuess is the number of samples for the reply's size: the
+// engine's count when the options fix it, else the default's.
+func dosReplyGuess(opt physics.DOSOptions) float64 {
+	if n, known := opt.Samples(); known {
+		return n
+	}
+	n, _ := physics.DOSOptions{}.Samples()
+	return n
+}
+
+// dosSeries is the number of series of a DOS reply for a model of sites
+// sites: frequencies, DOS and its integral, and per site and per label
+// when asked.
+func dosSeries(sites int, opt physics.DOSOptions) float64 {
+	if opt.PerSite {
+		return 3 + 2*float64(sites)
+	}
+	return 3
+}
+
+// checkDOSReply refuses a DOS whose reply for a model of sites sites
+// cannot fit one message.
+func (s *Service) checkDOSReply(vs *violations, opt physics.DOSOptions, sites int) {
+	n, series := dosReplyGuess(opt), dosSeries(sites, opt)
+	s.checkReply(vs, "step", n*series*8, fmt.Sprintf("%.0f samples × %.0f series", n, series))
+}
+
+// dosParams is the canonical parameter string of a DOS request, its cache
+// key with the model hash.
+func dosParams(grid mesh.GridSpec, opt physics.DOSOptions) string {
 	var p params
-	p.add("grid", gridParam(qs.grid))
+	p.add("grid", gridParam(grid))
 	p.add("method", opt.Method.String())
 	p.add("unit", unitName(opt.Unit))
 	if opt.Min == 0 && opt.Max == 0 {
@@ -126,44 +165,32 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	} else {
 		p.add("imaginary", "exclude")
 	}
-	canon := p.String()
-
-	return cachedResult(ctx, s, kindDOS, e.hash, canon, dosCodec, func(ctx context.Context) (*modegridv1.ComputeDosResponse, error) {
-		var res *physics.DOSResult
-		err := s.admitted(ctx, est, func(ctx context.Context) error {
-			g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{sites: opt.PerSite})
-			if err != nil {
-				return err
-			}
-			return s.run(ctx, kindDOS, func(ctx context.Context) error {
-				var err error
-				res, err = physics.ComputeDOS(ctx, e.m, g, opt)
-				return err
-			})
-		})
-		if err != nil {
-			return nil, err
-		}
-		if len(res.Freq) > s.cfg.MaxDOSBins {
-			return nil, invalidArgument("", []physics.Violation{{Field: "step", Description: fmt.Sprintf(
-				"the window chosen from the modes in steps of %v is %d samples, over this server's cap max-dos-bins=%d", opt.Step, len(res.Freq), s.cfg.MaxDOSBins)}})
-		}
-		return dosToProto(e, canon, res), nil
-	})
+	return p.String()
 }
 
-// checkDOSReply refuses a DOS whose reply for a model of sites sites
-// cannot fit one message.
-func (s *Service) checkDOSReply(vs *violations, opt physics.DOSOptions, sites int) {
-	bins := 500.0 // physics.DefaultDOSBins with a chosen step
-	if opt.Step > 0 && opt.Max > opt.Min {
-		bins = (opt.Max-opt.Min)/opt.Step + 1
+// runDOS computes the DOS once admitted: the grid's modes (shared), then
+// physics.ComputeDOS, then the cap on a window chosen from the modes.
+func (s *Service) runDOS(ctx context.Context, e *modelEntry, grid mesh.GridSpec, opt physics.DOSOptions, est estimate) (*physics.DOSResult, error) {
+	var res *physics.DOSResult
+	err := s.admitted(ctx, est, func(ctx context.Context) error {
+		g, _, err := s.gridModes(ctx, e, grid, gridNeed{sites: opt.PerSite})
+		if err != nil {
+			return err
+		}
+		return s.run(ctx, kindDOS, func(ctx context.Context) error {
+			var err error
+			res, err = physics.ComputeDOS(ctx, e.m, g, opt)
+			return err
+		})
+	})
+	if err != nil {
+		return nil, err
 	}
-	series := 3.0
-	if opt.PerSite {
-		series += 2 * float64(sites)
+	if len(res.Freq) > s.cfg.MaxDOSBins {
+		return nil, invalidArgument("", []physics.Violation{{Field: "step", Description: fmt.Sprintf(
+			"the window chosen from the modes in steps of %v is %d samples, over this server's cap max-dos-bins=%d", opt.Step, len(res.Freq), s.cfg.MaxDOSBins)}})
 	}
-	s.checkReply(vs, "step", bins*series*8, fmt.Sprintf("%.0f samples × %.0f series", bins, series))
+	return res, nil
 }
 
 func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.ComputeDosResponse {
@@ -197,16 +224,10 @@ func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.DOS
 
 // dosCost is dosEstimate for a model of size.
 func dosCost(size physics.GridSize, opt physics.DOSOptions) estimate {
-	samples := physics.DefaultDOSBins + 1
-	if opt.Step > 0 && opt.Max > opt.Min {
-		samples = int((opt.Max-opt.Min)/opt.Step) + 1
-	}
+	samples := int(dosReplyGuess(opt))
 	c := physics.GridModesCost(size, physics.GridOptions{Projections: opt.PerSite})
 	c = c.Plus(physics.DOSCost(size, opt, samples, true))
-	series := int64(3)
-	if opt.PerSite {
-		series += 2 * int64(size.Sites)
-	}
+	series := int64(dosSeries(size.Sites, opt))
 	c.Bytes += 2 * 8 * series * int64(samples)
 	change := "a smaller grid (qpoints)"
 	if opt.PerSite {

@@ -17,47 +17,10 @@ import (
 	"github.com/materials-lab/modegrid/server/gate"
 )
 
-// violations collects request field violations; the zero value is ready.
-type violations struct{ list []physics.Violation }
-
-func (vs *violations) add(field, format string, args ...any) {
-	vs.list = append(vs.list, physics.Violation{Field: field, Description: fmt.Sprintf(format, args...)})
-}
-
-// addErr adds the violations of a physics validation error under prefix,
-// or the error itself as one violation of field.
-func (vs *violations) addErr(prefix, field string, err error) {
-	var ve *physics.ValidationError
-	if errors.As(err, &ve) {
-		for _, v := range ve.Violations {
-			vs.list = append(vs.list, physics.Violation{Field: joinField(prefix, v.Field), Description: v.Description})
-		}
-		return
-	}
-	vs.add(field, "%v", err)
-}
-
-// joinField joins a prefix ("model.crystal") and a physics field path
-// ("sites[2].mass_amu" or "[3]").
-func joinField(prefix, field string) string {
-	switch {
-	case prefix == "":
-		return field
-	case field == "":
-		return prefix
-	case strings.HasPrefix(field, "["):
-		return prefix + field
-	default:
-		return prefix + "." + field
-	}
-}
-
-func (vs *violations) err() error {
-	if len(vs.list) == 0 {
-		return nil
-	}
-	return invalidArgument("", vs.list)
-}
+// violations is the engine's collector, used as is: one Violation type
+// and one collector from the engine's checks to the BadRequest. Its Err is
+// a *physics.ValidationError, which toStatus turns into INVALID_ARGUMENT.
+type violations = physics.Violations
 
 // invalidArgument builds an INVALID_ARGUMENT status carrying every
 // violation as a google.rpc.BadRequest field violation. prefix is joined to
@@ -67,7 +30,7 @@ func invalidArgument(prefix string, vs []physics.Violation) error {
 	var msg strings.Builder
 	msg.WriteString("invalid request: ")
 	for i, v := range vs {
-		f := joinField(prefix, v.Field)
+		f := physics.JoinField(prefix, v.Field)
 		br.FieldViolations = append(br.FieldViolations, &errdetails.BadRequest_FieldViolation{Field: f, Description: v.Description})
 		if i > 0 {
 			msg.WriteString("; ")
@@ -145,4 +108,61 @@ func resourceExhausted(r *gate.Refusal) error {
 		st = d
 	}
 	return st.Err()
+}
+
+// fieldMap maps the engine's field paths, relative to an option struct,
+// onto a request's paths: each entry maps a leading engine field name
+// ("width", "temperatures_k") to the request path it came from. One table
+// per RPC; a name missing from the table maps to itself.
+type fieldMap map[string]string
+
+// addEngine records the violations of err, a check of the engine's (a
+// *physics.ValidationError, or any error as one violation of fallback),
+// under the request's paths. Violations of a field in skip are dropped: the
+// conversion from the request already reported that field in the request's
+// own terms (an unknown enum value, say).
+func (fm fieldMap) addEngine(vs *violations, err error, fallback string, skip map[string]bool) {
+	var ve *physics.ValidationError
+	if !errors.As(err, &ve) {
+		vs.AddErr("", fallback, err)
+		return
+	}
+	for _, v := range ve.Violations {
+		head, rest := splitField(v.Field)
+		if skip[head] {
+			continue
+		}
+		if to, ok := fm[head]; ok {
+			head = to
+		}
+		vs.Add(physics.JoinField(head, rest), "%s", v.Description)
+	}
+}
+
+// splitField splits "temperatures_k[3]" into "temperatures_k" and "[3]",
+// "range.step_k" into "range" and "step_k".
+func splitField(f string) (head, rest string) {
+	i := strings.IndexAny(f, ".[")
+	switch {
+	case i < 0:
+		return f, ""
+	case f[i] == '.':
+		return f[:i], f[i+1:]
+	default:
+		return f[:i], f[i:]
+	}
+}
+
+// violatedFields is the set of leading field names in a
+// *physics.ValidationError (none for nil or another error).
+func violatedFields(err error) map[string]bool {
+	out := map[string]bool{}
+	var ve *physics.ValidationError
+	if errors.As(err, &ve) {
+		for _, v := range ve.Violations {
+			head, _ := splitField(v.Field)
+			out[head] = true
+		}
+	}
+	return out
 }

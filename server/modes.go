@@ -26,11 +26,11 @@ const modeChunkOverhead = 64
 func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModesRequest, stream grpc.ServerStreamingServer[modegridv1.ComputeModesResponse]) error {
 	var vs violations
 	if !validUnit(req.GetUnit()) {
-		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
+		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
 	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
 	if s.precheckModes(&vs, req, opt) {
-		return vs.err() // refused from the request alone, before compiling
+		return vs.Err() // refused from the request alone, before compiling
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
@@ -43,10 +43,10 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", true, &vs)
 	unit := unitFromProto(req.GetUnit())
 	var est estimate
-	if len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		est = s.modesEstimate(e, qs.count, opt, &vs)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return err
 	}
 

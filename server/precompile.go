@@ -168,7 +168,7 @@ func (s *Service) checkCompile(vs *violations, r rawModel) {
 		return
 	}
 	s.budget.refused.WithLabelValues(reasonCompileTooLong).Inc()
-	vs.add("model.crystal.shells", "compiling the model searches at least %.3g site pairs for its neighbour shells, at least %.0f s, over this server's bound max-compute-seconds=%g; ask for nearer shells (shell), fewer sites, or give the bonds as springs",
+	vs.Add("model.crystal.shells", "compiling the model searches at least %.3g site pairs for its neighbour shells, at least %.0f s, over this server's bound max-compute-seconds=%g; ask for nearer shells (shell), fewer sites, or give the bonds as springs",
 		pairs, secs, s.cfg.MaxComputeSeconds)
 }
 
@@ -191,12 +191,12 @@ func (s *Service) precheck(vs *violations, src *modegridv1.ModelSource, refuse f
 	if !s.valid(r) {
 		return false
 	}
-	n := len(vs.list)
+	n := vs.Len()
 	s.checkCompile(vs, r)
-	if len(vs.list) == n && refuse != nil {
+	if vs.Len() == n && refuse != nil {
 		refuse(r, vs)
 	}
-	return len(vs.list) > n
+	return vs.Len() > n
 }
 
 // qsetFor parses set for a model of dim dimensions without reporting: nil
@@ -204,7 +204,7 @@ func (s *Service) precheck(vs *violations, src *modegridv1.ModelSource, refuse f
 func (s *Service) qsetFor(set *modegridv1.QPointSet, dim int, allowList bool) *qset {
 	var scratch violations
 	qs := s.parseQSet(set, dim, "qpoints", allowList, &scratch)
-	if len(scratch.list) > 0 || qs == nil {
+	if scratch.Len() > 0 || qs == nil {
 		return nil
 	}
 	return qs
@@ -220,7 +220,7 @@ func (s *Service) lowerBound(vs *violations, est estimate) {
 func (s *Service) precheckDOS(vs *violations, req *modegridv1.ComputeDosRequest, opt physics.DOSOptions) bool {
 	return s.precheck(vs, req.GetModel(), func(r rawModel, vs *violations) {
 		s.checkDOSReply(vs, opt, r.size.Sites)
-		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && len(vs.list) == 0 {
+		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && vs.Len() == 0 {
 			s.lowerBound(vs, dosCost(r.grid(qs.grid), opt))
 		}
 	})
@@ -233,7 +233,7 @@ func (s *Service) precheckThermal(vs *violations, req *modegridv1.ComputeThermal
 			return
 		}
 		s.checkThermalReply(vs, opt, r.size.Sites)
-		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && len(vs.list) == 0 {
+		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && vs.Len() == 0 {
 			s.lowerBound(vs, thermalCost(r.grid(qs.grid), opt))
 		}
 	})

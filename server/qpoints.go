@@ -58,17 +58,17 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 	switch x := set.GetSet().(type) {
 	case *modegridv1.QPointSet_List:
 		if !allowList {
-			vs.add(field+".list", "a Monkhorst–Pack grid or a finite crystal is required here, not an explicit list")
+			vs.Add(field+".list", "a Monkhorst–Pack grid or a finite crystal is required here, not an explicit list")
 			return nil
 		}
 		pts := x.List.GetPoints()
 		f := field + ".list.points"
 		if len(pts) == 0 {
-			vs.add(f, "at least one q-point is required")
+			vs.Add(f, "at least one q-point is required")
 			return nil
 		}
 		if len(pts) > s.cfg.MaxQPoints {
-			vs.add(f, "%d q-points exceed this server's cap max-qpoints=%d", len(pts), s.cfg.MaxQPoints)
+			vs.Add(f, "%d q-points exceed this server's cap max-qpoints=%d", len(pts), s.cfg.MaxQPoints)
 			return nil
 		}
 		out := &qset{list: make([]mesh.QPoint, len(pts)), count: len(pts)}
@@ -81,10 +81,10 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 				}
 				switch {
 				case !(math.Abs(v) <= physics.MaxQ):
-					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), qRangeMsg, v)
+					vs.Add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), qRangeMsg, v)
 					bad++
 				case dim > 0 && k >= dim && v != 0:
-					vs.add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, v)
+					vs.Add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, v)
 					bad++
 				}
 			}
@@ -100,7 +100,7 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 		g.Finite = true
 		return &qset{grid: g, count: g.Count()}
 	default:
-		vs.add(field, "a q-point set is required (list, grid or cells)")
+		vs.Add(field, "a q-point set is required (list, grid or cells)")
 		return nil
 	}
 }
@@ -114,27 +114,27 @@ var qRangeMsg = fmt.Sprintf("must be a finite number within ±%g reciprocal-latt
 func (s *Service) parseMesh(divs []uint32, dim int, field string, vs *violations) mesh.GridSpec {
 	g := mesh.GridSpec{Mesh: [3]int{1, 1, 1}}
 	if len(divs) == 0 || len(divs) > 3 {
-		vs.add(field, "must have 1 to 3 numbers (one per lattice vector), got %d", len(divs))
+		vs.Add(field, "must have 1 to 3 numbers (one per lattice vector), got %d", len(divs))
 		return g
 	}
 	ok := true
 	for k, n := range divs {
 		switch {
 		case n < 1:
-			vs.add(fmt.Sprintf("%s[%d]", field, k), "must be ≥ 1, got %d", n)
+			vs.Add(fmt.Sprintf("%s[%d]", field, k), "must be ≥ 1, got %d", n)
 			ok = false
 		case dim > 0 && k >= dim && n != 1:
-			vs.add(fmt.Sprintf("%s[%d]", field, k), "must be 1 (or absent) for a %d-dimensional crystal, got %d", dim, n)
+			vs.Add(fmt.Sprintf("%s[%d]", field, k), "must be 1 (or absent) for a %d-dimensional crystal, got %d", dim, n)
 			ok = false
 		case n > uint32(s.cfg.MaxQPoints):
-			vs.add(fmt.Sprintf("%s[%d]", field, k), "%d divisions exceed this server's cap max-qpoints=%d", n, s.cfg.MaxQPoints)
+			vs.Add(fmt.Sprintf("%s[%d]", field, k), "%d divisions exceed this server's cap max-qpoints=%d", n, s.cfg.MaxQPoints)
 			ok = false
 		default:
 			g.Mesh[k] = int(n)
 		}
 	}
 	if dim > 0 && len(divs) < dim {
-		vs.add(field, "must have %d numbers for a %d-dimensional crystal, got %d", dim, dim, len(divs))
+		vs.Add(field, "must have %d numbers for a %d-dimensional crystal, got %d", dim, dim, len(divs))
 		ok = false
 	}
 	if ok {
@@ -142,7 +142,7 @@ func (s *Service) parseMesh(divs []uint32, dim int, field string, vs *violations
 		// overflow an int (2²²·2²²·2²² wraps to 0), and a wrapped product
 		// would pass the cap and make the points list unbounded.
 		if n := float64(g.Mesh[0]) * float64(g.Mesh[1]) * float64(g.Mesh[2]); n > float64(s.cfg.MaxQPoints) {
-			vs.add(field, "%s is %s q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), countString(n), s.cfg.MaxQPoints)
+			vs.Add(field, "%s is %s q-points, over this server's cap max-qpoints=%d", meshString(g.Mesh), countString(n), s.cfg.MaxQPoints)
 		}
 	}
 	return g

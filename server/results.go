@@ -150,6 +150,6 @@ func cachedResult[M proto.Message](ctx context.Context, s *Service, kind, hash, 
 // bytes would exceed the message cap.
 func (s *Service) checkResponseSize(vs *violations, field string, bytes float64, what string) {
 	if bytes > float64(s.cfg.MaxMsgBytes) {
-		vs.add(field, "%s makes a response of about %.0f bytes, over this server's cap max-msg-bytes=%d", what, bytes, s.cfg.MaxMsgBytes)
+		vs.Add(field, "%s makes a response of about %.0f bytes, over this server's cap max-msg-bytes=%d", what, bytes, s.cfg.MaxMsgBytes)
 	}
 }

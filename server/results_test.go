@@ -37,7 +37,6 @@ func TestDosSpelledDifferently(t *testing.T) {
 	ctx := testContext(t)
 	first, err := ts.api.ComputeDos(ctx, &modegridv1.ComputeDosRequest{
 		Model: inline(example(t, "fcc")), Qpoints: mpGrid(false, 8, 8, 8),
-		Width: 0.7, // no effect on a tetrahedron DOS
 	})
 	if err != nil {
 		t.Fatal(err)

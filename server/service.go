@@ -141,7 +141,7 @@ func (s *Service) resolve(ctx context.Context, src *modegridv1.ModelSource, vs *
 	case src.GetModelHash() != "":
 		h := src.GetModelHash()
 		if !isHash(h) {
-			vs.add("model.model_hash", "must be 64 lower-case hex digits (a hash from an earlier response), got %q", h)
+			vs.Add("model.model_hash", "must be 64 lower-case hex digits (a hash from an earlier response), got %q", h)
 			return nil, nil
 		}
 		v, src, ok := s.cache.Lookup(ctx, modelKey(h), modelCodec)
@@ -156,19 +156,19 @@ func (s *Service) resolve(ctx context.Context, src *modegridv1.ModelSource, vs *
 		noteModel(ctx, e.hash)
 		return e, nil
 	default:
-		vs.add("model", "a model is required: set crystal (inline) or model_hash")
+		vs.Add("model", "a model is required: set crystal (inline) or model_hash")
 		return nil, nil
 	}
 }
 
 func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource, vs *violations) (*modelEntry, error) {
 	if n := len(src.GetCrystal().GetSites()); n > s.cfg.MaxSites {
-		vs.add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
+		vs.Add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
 		return nil, nil
 	}
 	norm, raw, key, err := inlineKey(src)
 	if err != nil {
-		vs.add("model.crystal", "cannot be serialised: %v", err)
+		vs.Add("model.crystal", "cannot be serialised: %v", err)
 		return nil, nil
 	}
 	// The compile is shared by every concurrent caller of the same model
@@ -190,7 +190,7 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	})
 	if err != nil {
 		if isValidation(err) {
-			vs.addErr("model.crystal", "model.crystal", err)
+			vs.AddErr("model.crystal", "model.crystal", err)
 			return nil, nil
 		}
 		return nil, err

@@ -63,37 +63,44 @@ func sumRuleCause(e *modelEntry, err error) error {
 	return &sumRuleError{err: err, violationEVPA2: e.m.SumRuleViolation()}
 }
 
+// thermalFields maps physics.ThermalOptions's field paths onto
+// ComputeThermalRequest's: the explicit temperatures come first in
+// TempsK, so their indices agree; the range's values are checked here.
+var thermalFields = fieldMap{"temperatures_k": "temperatures_k", "route": "route"}
+
 // temperatures expands the explicit list and the range into one list,
-// canonical values, checking every value and the cap.
+// canonical values, checking the range and the cap (the explicit values
+// are left to the engine's check).
 func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violations) []float64 {
 	var ts []float64
 	check := func(field string, t float64) bool {
 		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > physics.MaxTempK {
-			vs.add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
+			vs.Add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
 			return false
 		}
 		return true
 	}
 	list := req.GetTemperaturesK()
 	if len(list) > s.cfg.MaxTemps {
-		vs.add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
+		vs.Add("temperatures_k", "%d temperatures exceed this server's cap max-temps=%d", len(list), s.cfg.MaxTemps)
 		return nil
 	}
-	for i, t := range list {
-		if check(fmt.Sprintf("temperatures_k[%d]", i), t) {
-			ts = append(ts, canonFloat(t))
-		}
+	// The explicit values are the engine's to check (physics.
+	// ThermalOptions.Validate): they keep their indices, the range's
+	// values follow them.
+	for _, t := range list {
+		ts = append(ts, canonFloat(t))
 	}
 	if r := req.GetRange(); r != nil {
 		start, stop, step := canonFloat(r.GetStartK()), canonFloat(r.GetStopK()), canonFloat(r.GetStepK())
 		ok := check("range.start_k", start)
 		ok = check("range.stop_k", stop) && ok
 		if !(step > 0) || math.IsInf(step, 0) {
-			vs.add("range.step_k", "must be > 0, got %v", r.GetStepK())
+			vs.Add("range.step_k", "must be > 0, got %v", r.GetStepK())
 			ok = false
 		}
 		if ok && stop < start {
-			vs.add("range.stop_k", "must be ≥ start_k (%v), got %v", start, stop)
+			vs.Add("range.stop_k", "must be ≥ start_k (%v), got %v", start, stop)
 			ok = false
 		}
 		if ok {
@@ -104,7 +111,7 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 			// past the cap.
 			nf := math.Floor((stop-start)/step+1e-9) + 1
 			if float64(len(ts))+nf > float64(s.cfg.MaxTemps) {
-				vs.add("range", "%s temperatures exceed this server's cap max-temps=%d", countString(float64(len(ts))+nf), s.cfg.MaxTemps)
+				vs.Add("range", "%s temperatures exceed this server's cap max-temps=%d", countString(float64(len(ts))+nf), s.cfg.MaxTemps)
 				return nil
 			}
 			n := int(nf)
@@ -113,14 +120,15 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 			}
 		}
 	}
-	if len(ts) == 0 && len(vs.list) == 0 {
-		vs.add("temperatures_k", "at least one temperature is required (temperatures_k or range)")
+	if len(ts) == 0 && vs.Len() == 0 {
+		vs.Add("temperatures_k", "at least one temperature is required (temperatures_k or range)")
 	}
 	return ts
 }
 
 func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
 	var vs violations
+	bad := map[string]bool{}
 	opt := physics.ThermalOptions{AllowUnstable: req.GetAllowUnstable(), MSD: req.GetMsd()}
 	switch req.GetRoute() {
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_UNSPECIFIED, modegridv1.ThermalRoute_THERMAL_ROUTE_MODE_SUM:
@@ -128,11 +136,15 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_DOS_INTEGRAL:
 		opt.Route = physics.DOSIntegral
 	default:
-		vs.add("route", "unknown route %d", req.GetRoute())
+		vs.Add("route", "unknown route %d", req.GetRoute())
+		bad["route"] = true
 	}
 	opt.TempsK = s.temperatures(req, &vs)
+	if len(opt.TempsK) > 0 { // none: reported above, in the request's terms
+		thermalFields.addEngine(&vs, opt.Validate(), "temperatures_k", bad)
+	}
 	if s.precheckThermal(&vs, req, opt) {
-		return nil, vs.err() // refused from the request alone, before compiling
+		return nil, vs.Err() // refused from the request alone, before compiling
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
@@ -147,11 +159,11 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		s.checkThermalReply(&vs, opt, e.m.Sites())
 	}
 	var est estimate
-	if len(vs.list) == 0 {
+	if vs.Len() == 0 {
 		est = s.thermalEstimate(e, qs.grid, opt)
 		s.budget.check(&vs, est)
 	}
-	if err := vs.err(); err != nil {
+	if err := vs.Err(); err != nil {
 		return nil, err
 	}
 
