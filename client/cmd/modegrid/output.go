@@ -174,6 +174,15 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 		rows = append(rows,
 			kv{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
 			kv{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
+			kv{"symmetry_tolerance_a", "symmetry tolerance (Å)", strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', -1, 64)},
+		)
+		if h := symmetryHint(r); h != "" {
+			rows = append(rows, kv{"symmetry_hint", "symmetry hint", h})
+		}
+		if r.GetSymmetrized() {
+			rows = append(rows, kv{"symmetrized", "symmetrized", "yes (the figures are those of the symmetrised model)"})
+		}
+		rows = append(rows,
 			kv{"stable", "stable (coarse grid)", yes(r.GetStable())},
 			kv{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
 			kv{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},
@@ -203,6 +212,21 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 		fmt.Fprintf(tw, "%s\t%s\n", r.human, r.value)
 	}
 	return tw.Flush()
+}
+
+// symmetryHint says when a looser symmetry tolerance finds more
+// operations than the one used ("" when none does), naming the smallest
+// such tolerance.
+func symmetryHint(r *modegridv1.CheckModelResponse) string {
+	n := len(r.GetSymmetry())
+	for _, l := range r.GetSymmetryAtLooserTolerance() {
+		if int(l.GetOperations()) > n {
+			tol := strconv.FormatFloat(l.GetToleranceA(), 'g', 3, 64)
+			return fmt.Sprintf("%d operations at %s Å, %d at %s Å: consider --sym-tol %s (and --symmetrize)",
+				n, strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', 3, 64), l.GetOperations(), tol, tol)
+		}
+	}
+	return ""
 }
 
 // ---- modes ----
