@@ -17,7 +17,8 @@ import (
 const maxRefs = 256
 
 // modelKey identifies an inline model on the client side: a SHA-256 of its
-// deterministic protobuf encoding and the sum-rule flag. It is not the
+// deterministic protobuf encoding (with the symmetry options when set) and
+// the sum-rule flag. It is not the
 // server's model hash (that one is canonical in meaning, not in bytes).
 type modelKey [sha256.Size + 1]byte
 
@@ -27,14 +28,30 @@ func keyOf(src *modegridv1.ModelSource) (modelKey, bool) {
 	if c == nil {
 		return k, false
 	}
+	// The symmetry options change the compiled model, so they are part of
+	// the key (serialised with the crystal; absent when unset, so keys of
+	// sources without them are unchanged).
+	var opts []byte
+	if src.GetSymmetryToleranceA() != 0 || src.GetSymmetrize() {
+		var err error
+		opts, err = proto.MarshalOptions{Deterministic: true}.Marshal(&modegridv1.ModelSource{
+			SymmetryToleranceA: src.GetSymmetryToleranceA(), Symmetrize: src.GetSymmetrize()})
+		if err != nil {
+			return k, false
+		}
+	}
 	b, err := proto.MarshalOptions{Deterministic: true}.Marshal(c)
 	if err != nil {
 		return k, false
 	}
 	sum := sha256.Sum256(b)
+	if opts != nil {
+		sum = sha256.Sum256(append(sum[:], opts...))
+		k[sha256.Size] = 2 // marks the options, so no crystal alone collides
+	}
 	copy(k[:], sum[:])
 	if src.GetEnforceSumRule() {
-		k[sha256.Size] = 1
+		k[sha256.Size] |= 1
 	}
 	return k, true
 }

@@ -20,6 +20,31 @@ type Options struct {
 	EnforceSumRule bool
 	// Limits bounds the model size; the zero value means the defaults.
 	Limits Limits
+	// SymTolA is the symmetry tolerance, Å: how far the model may be from
+	// exactly symmetric for its symmetry operations to be found (see
+	// DefaultSymTolA, which 0 means). It is part of the model's identity:
+	// a model compiled with another tolerance has another hash, since the
+	// operations found (and so grid reductions) may differ.
+	SymTolA float64
+}
+
+// symTol returns the symmetry tolerance, resolving 0 to the default.
+func (o Options) symTol() float64 {
+	if o.SymTolA == 0 {
+		return DefaultSymTolA
+	}
+	return o.SymTolA
+}
+
+// validateSymTol adds a violation when a given symmetry tolerance is not a
+// finite length in [MinSymTolA, MaxSymTolA] Å (0 means the default).
+func validateSymTol(tolA float64, vs *violations) {
+	if tolA == 0 {
+		return
+	}
+	if !(tolA >= MinSymTolA && tolA <= MaxSymTolA) { // also NaN
+		vs.add("symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", DefaultSymTolA, MinSymTolA, MaxSymTolA, tolA)
+	}
 }
 
 // ShellInfo reports what the neighbour search found for one Shell.
@@ -73,7 +98,8 @@ type Model struct {
 	latticeType string                // LatticeType (lattice.Detect), found by Compile
 	standard    map[string][3]float64 // StandardPoints
 
-	sym lazy[[]SymOp] // computed on first use by Symmetry (symmetry.go)
+	sym     lazy[[]SymOp] // computed on first use by Symmetry (symmetry.go)
+	symTolA float64       // symmetry tolerance, Å (Options.SymTolA resolved)
 
 	// The springs in factored form and whether explicit blocks exist: the
 	// long-wavelength limit (elastic.go) uses them for accuracy.
@@ -103,10 +129,12 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	lim := opt.Limits.withDefaults()
 	var vs violations
 	validate(c, lim, &vs)
+	validateSymTol(opt.SymTolA, &vs)
 	if len(vs.list) > 0 {
 		return nil, vs.err()
 	}
 	m := newModel(c)
+	m.symTolA = opt.symTol()
 	toEV := func(k float64) float64 { return k } // force constants to eV/Å²
 	if c.ForceUnit == NPerM {
 		// One division (a single rounding), so that a value converted to

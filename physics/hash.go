@@ -85,6 +85,14 @@ func (m *Model) canonicalHash(raw []term) string {
 			}
 		}
 	}
+	// A tolerance other than the default may change the operations found
+	// and with them every reduced result, so it is part of the identity;
+	// the default is not written, so models hashed before the tolerance
+	// was settable keep their hashes.
+	if m.symTolA != DefaultSymTolA {
+		enc.str("symmetry_tolerance_a")
+		enc.float(m.symTolA)
+	}
 	return hex.EncodeToString(h.Sum(nil))
 }
 

@@ -8,6 +8,8 @@ import (
 
 	"google.golang.org/protobuf/proto"
 
+	"github.com/materials-lab/modegrid/physics"
+
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -99,6 +101,10 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 					}
 					out.Symmetry = append(out.Symmetry, so)
 				}
+				out.SymmetryToleranceA = m.SymTolA()
+				if out.SymmetryAtLooserTolerance, err = looserSymmetry(ctx, m); err != nil {
+					return err
+				}
 				lo, hi, stable, err := m.Stability(ctx, mesh)
 				if err != nil {
 					return err
@@ -128,6 +134,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 func withDescription(resp *modegridv1.CheckModelResponse, e *modelEntry) *modegridv1.CheckModelResponse {
 	out := proto.Clone(resp).(*modegridv1.CheckModelResponse)
 	out.Interactions = uint32(e.m.Interactions())
+	out.Symmetrized = e.symmetrized
 	out.Shells = nil
 	for i, sh := range e.m.Shells() {
 		out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})
@@ -142,4 +149,28 @@ func stabilityPoints(d, mesh int) int {
 		n *= mesh
 	}
 	return n
+}
+
+// looserSymmetry counts the operations found at 10× and 100× the model's
+// symmetry tolerance, and at the default when that is looser still (a
+// tolerance set far too tight would otherwise get no hint), keeping those
+// within physics.MaxSymTolA, so that check can say when a looser
+// tolerance would find more. Each costs one more symmetry search.
+func looserSymmetry(ctx context.Context, m *physics.Model) ([]*modegridv1.SymmetryAtTolerance, error) {
+	tols := []float64{10 * m.SymTolA(), 100 * m.SymTolA()}
+	if physics.DefaultSymTolA > tols[1] {
+		tols = append(tols, physics.DefaultSymTolA)
+	}
+	var out []*modegridv1.SymmetryAtTolerance
+	for _, tol := range tols {
+		if tol > physics.MaxSymTolA {
+			break
+		}
+		ops, err := m.SymmetryAt(ctx, tol)
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, &modegridv1.SymmetryAtTolerance{ToleranceA: tol, Operations: uint32(len(ops))})
+	}
+	return out, nil
 }

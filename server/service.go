@@ -70,7 +70,9 @@ func (s *Service) run(ctx context.Context, kind string, fn func(ctx context.Cont
 type modelEntry struct {
 	m      *physics.Model
 	hash   string
-	source []byte // deterministic ModelSource{crystal, enforce_sum_rule}
+	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize}
+	// symmetrized: m is the source's crystal made exactly symmetric.
+	symmetrized bool
 }
 
 // size is the entry's charge in the cache: an estimate of the compiled
@@ -106,12 +108,22 @@ var modelCodec = &cache.Codec{
 
 // compileEntry compiles an inline model. raw is its deterministic
 // serialisation. It stops with ctx.Err() when ctx ends first.
+// With symmetrize set, the crystal is first made exactly symmetric
+// (physics.Symmetrize) and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
-	m, err := physics.Compile(ctx, crystalFromProto(src.GetCrystal()), physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim})
+	c := crystalFromProto(src.GetCrystal())
+	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
+	if src.GetSymmetrize() {
+		var err error
+		if c, _, err = physics.Symmetrize(ctx, c, opt); err != nil {
+			return nil, err
+		}
+	}
+	m, err := physics.Compile(ctx, c, opt)
 	if err != nil {
 		return nil, err
 	}
-	return &modelEntry{m: m, hash: m.Hash(), source: raw}, nil
+	return &modelEntry{m: m, hash: m.Hash(), source: raw, symmetrized: src.GetSymmetrize()}, nil
 }
 
 // modelKey is the cache key of a model referred to by hash.
@@ -166,6 +178,10 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 		vs.Add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
 		return nil, nil
 	}
+	if tol := src.GetSymmetryToleranceA(); tol != 0 && !(tol >= physics.MinSymTolA && tol <= physics.MaxSymTolA) {
+		vs.add("model.symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", physics.DefaultSymTolA, physics.MinSymTolA, physics.MaxSymTolA, tol)
+		return nil, nil
+	}
 	norm, raw, key, err := inlineKey(src)
 	if err != nil {
 		vs.Add("model.crystal", "cannot be serialised: %v", err)
@@ -211,8 +227,10 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 // deterministic serialisation and the cache key of its compile.
 func inlineKey(src *modegridv1.ModelSource) (*modegridv1.ModelSource, []byte, cache.Key, error) {
 	norm := &modegridv1.ModelSource{
-		Source:         &modegridv1.ModelSource_Crystal{Crystal: src.GetCrystal()},
-		EnforceSumRule: src.GetEnforceSumRule(),
+		Source:             &modegridv1.ModelSource_Crystal{Crystal: src.GetCrystal()},
+		EnforceSumRule:     src.GetEnforceSumRule(),
+		SymmetryToleranceA: src.GetSymmetryToleranceA(),
+		Symmetrize:         src.GetSymmetrize(),
 	}
 	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
 	if err != nil {

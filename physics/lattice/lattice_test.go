@@ -142,7 +142,7 @@ func TestPointGroup(t *testing.T) {
 		{"1d", [3][3]float64{{2.5, 0, 0}}, 1, 2},
 	}
 	for _, tc := range cases {
-		ops := PointGroup(tc.lat, tc.d)
+		ops := PointGroup(tc.lat, tc.d, 1e-4)
 		if len(ops) != tc.want {
 			t.Errorf("%s: %d operations; want %d", tc.name, len(ops), tc.want)
 		}
@@ -165,5 +165,20 @@ func TestPointGroup(t *testing.T) {
 		if !hasIdentity {
 			t.Errorf("%s: identity missing", tc.name)
 		}
+	}
+}
+
+// TestPointGroupTolerance: a hexagonal lattice typed to 6 decimals
+// (a·√3/2 = 2.598076 for a = 3 Å) keeps the 24 rotations of 6/mmm at a
+// tolerance of 1e-4 Å, above its typing error of 5e-7 Å, and loses the
+// ones that exchange a1 and a2 at 1e-9 Å, below it (International Tables
+// for Crystallography, Vol. A: 6/mmm has order 24).
+func TestPointGroupTolerance(t *testing.T) {
+	lat := [3][3]float64{{3, 0, 0}, {-1.5, 2.598076, 0}, {0, 0, 5.2}}
+	if n := len(PointGroup(lat, 3, 1e-4)); n != 24 {
+		t.Errorf("at 1e-4 Å: %d rotations; want 24", n)
+	}
+	if n := len(PointGroup(lat, 3, 1e-9)); n >= 24 {
+		t.Errorf("at 1e-9 Å: %d rotations; want fewer than 24", n)
 	}
 }

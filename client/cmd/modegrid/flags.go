@@ -318,6 +318,10 @@ type modelCommand struct {
 	conn    connFlags
 	out     outFlags
 	sumRule *bool
+	// symTol is the symmetry tolerance (Å, 0: the server's default) and
+	// symmetrize asks for the model made exactly symmetric.
+	symTol     *float64
+	symmetrize *bool
 }
 
 // newModelCommand registers the shared flags; plots says whether --plot
@@ -328,6 +332,8 @@ func newModelCommand(name string, plots bool) *modelCommand {
 	c.conn.register(c.fs)
 	c.out.register(c.fs, plots)
 	c.sumRule = c.fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
+	c.symTol = c.fs.Float64("sym-tol", 0, "symmetry `tolerance` in Å: how far sites may be from symmetric positions (0: the default, 1e-4 Å)")
+	c.symmetrize = c.fs.Bool("symmetrize", false, "make the model exactly symmetric under the operations found within --sym-tol (a new model, new hash)")
 	return c
 }
 
@@ -353,9 +359,12 @@ func (c *modelCommand) dial() (*client.Client, context.Context, func(), error) {
 	return cl, ctx, func() { cancel(); stop() }, nil
 }
 
-// source is the inline model with the --sum-rule choice.
+// source is the inline model with the --sum-rule, --sym-tol and
+// --symmetrize choices.
 func (c *modelCommand) source(crystal *modegridv1.Crystal) *modegridv1.ModelSource {
 	src := client.Inline(crystal)
 	src.EnforceSumRule = *c.sumRule
+	src.SymmetryToleranceA = *c.symTol
+	src.Symmetrize = *c.symmetrize
 	return src
 }

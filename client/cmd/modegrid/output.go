@@ -157,6 +157,21 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 	return tw.Flush()
 }
 
+// symmetryHint says when a looser symmetry tolerance finds more
+// operations than the one used ("" when none does), naming the smallest
+// such tolerance.
+func symmetryHint(r *modegridv1.CheckModelResponse) string {
+	n := len(r.GetSymmetry())
+	for _, l := range r.GetSymmetryAtLooserTolerance() {
+		if int(l.GetOperations()) > n {
+			tol := strconv.FormatFloat(l.GetToleranceA(), 'g', 3, 64)
+			return fmt.Sprintf("%d operations at %s Å, %d at %s Å: consider --sym-tol %s (and --symmetrize)",
+				n, strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', 3, 64), l.GetOperations(), tol, tol)
+		}
+	}
+	return ""
+}
+
 // yesNo spells a boolean of a check report.
 func yesNo(b bool) string {
 	if b {
@@ -204,6 +219,15 @@ func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
 	rows = append(rows,
 		checkRow{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
 		checkRow{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
+		checkRow{"symmetry_tolerance_a", "symmetry tolerance (Å)", strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', -1, 64)},
+	)
+	if h := symmetryHint(r); h != "" {
+		rows = append(rows, checkRow{"symmetry_hint", "symmetry hint", h})
+	}
+	if r.GetSymmetrized() {
+		rows = append(rows, checkRow{"symmetrized", "symmetrized", "yes (the figures are those of the symmetrised model)"})
+	}
+	rows = append(rows,
 		checkRow{"stable", "stable (coarse grid)", yesNo(r.GetStable())},
 		checkRow{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
 		checkRow{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},

@@ -329,8 +329,20 @@ type ModelSource struct {
 	// Impose the acoustic sum rule on explicit blocks (self terms are rebuilt so
 	// that every row of force constants sums to zero).
 	EnforceSumRule bool `protobuf:"varint,3,opt,name=enforce_sum_rule,json=enforceSumRule,proto3" json:"enforce_sum_rule,omitempty"`
-	unknownFields  protoimpl.UnknownFields
-	sizeCache      protoimpl.SizeCache
+	// Symmetry tolerance, Å: how far the model may be from exactly symmetric
+	// for its symmetry operations to be found (sites compared as Cartesian
+	// distances modulo the lattice; the metric and force constants with
+	// tolerances derived from it). 0 means the default, 1e-4 Å (enough for
+	// coordinates typed to 6 decimals); otherwise 1e-9 to 0.1 Å. A value
+	// other than the default is part of the model hash.
+	SymmetryToleranceA float64 `protobuf:"fixed64,4,opt,name=symmetry_tolerance_a,json=symmetryToleranceA,proto3" json:"symmetry_tolerance_a,omitempty"`
+	// Make the model exactly symmetric under the operations found within the
+	// tolerance before use: lattice metric and positions averaged over the
+	// group, springs recomputed from the new positions, explicit blocks
+	// averaged. The result is a new model with its own hash.
+	Symmetrize    bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *ModelSource) Reset() {
@@ -391,6 +403,20 @@ func (x *ModelSource) GetModelHash() string {
 func (x *ModelSource) GetEnforceSumRule() bool {
 	if x != nil {
 		return x.EnforceSumRule
+	}
+	return false
+}
+
+func (x *ModelSource) GetSymmetryToleranceA() float64 {
+	if x != nil {
+		return x.SymmetryToleranceA
+	}
+	return 0
+}
+
+func (x *ModelSource) GetSymmetrize() bool {
+	if x != nil {
+		return x.Symmetrize
 	}
 	return false
 }
@@ -2606,7 +2632,16 @@ type CheckModelResponse struct {
 	// The default path of this lattice type and dimensionality through the
 	// built-in points (labels, with break_before where a new piece starts);
 	// empty when the lattice has none (give coordinates instead).
-	DefaultPath   []*PathPoint `protobuf:"bytes,19,rep,name=default_path,json=defaultPath,proto3" json:"default_path,omitempty"`
+	DefaultPath []*PathPoint `protobuf:"bytes,19,rep,name=default_path,json=defaultPath,proto3" json:"default_path,omitempty"`
+	// Symmetry tolerance used to find the operations, Å.
+	SymmetryToleranceA float64 `protobuf:"fixed64,20,opt,name=symmetry_tolerance_a,json=symmetryToleranceA,proto3" json:"symmetry_tolerance_a,omitempty"`
+	// Operations found at 10× and 100× that tolerance, and at the default
+	// when it is looser still (those within the allowed range), so a caller
+	// sees when a looser tolerance finds more.
+	SymmetryAtLooserTolerance []*SymmetryAtTolerance `protobuf:"bytes,21,rep,name=symmetry_at_looser_tolerance,json=symmetryAtLooserTolerance,proto3" json:"symmetry_at_looser_tolerance,omitempty"`
+	// True when the model was symmetrised (ModelSource.symmetrize): the hash
+	// and every figure above are those of the symmetrised model.
+	Symmetrized   bool `protobuf:"varint,22,opt,name=symmetrized,proto3" json:"symmetrized,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2774,6 +2809,83 @@ func (x *CheckModelResponse) GetDefaultPath() []*PathPoint {
 	return nil
 }
 
+func (x *CheckModelResponse) GetSymmetryToleranceA() float64 {
+	if x != nil {
+		return x.SymmetryToleranceA
+	}
+	return 0
+}
+
+func (x *CheckModelResponse) GetSymmetryAtLooserTolerance() []*SymmetryAtTolerance {
+	if x != nil {
+		return x.SymmetryAtLooserTolerance
+	}
+	return nil
+}
+
+func (x *CheckModelResponse) GetSymmetrized() bool {
+	if x != nil {
+		return x.Symmetrized
+	}
+	return false
+}
+
+// SymmetryAtTolerance is the number of symmetry operations found at a
+// symmetry tolerance.
+type SymmetryAtTolerance struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Symmetry tolerance, Å.
+	ToleranceA float64 `protobuf:"fixed64,1,opt,name=tolerance_a,json=toleranceA,proto3" json:"tolerance_a,omitempty"`
+	// Operations found.
+	Operations    uint32 `protobuf:"varint,2,opt,name=operations,proto3" json:"operations,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SymmetryAtTolerance) Reset() {
+	*x = SymmetryAtTolerance{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SymmetryAtTolerance) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SymmetryAtTolerance) ProtoMessage() {}
+
+func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SymmetryAtTolerance.ProtoReflect.Descriptor instead.
+func (*SymmetryAtTolerance) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *SymmetryAtTolerance) GetToleranceA() float64 {
+	if x != nil {
+		return x.ToleranceA
+	}
+	return 0
+}
+
+func (x *SymmetryAtTolerance) GetOperations() uint32 {
+	if x != nil {
+		return x.Operations
+	}
+	return 0
+}
+
 // RequestCost is the estimated cost of one kind of request on a model.
 type RequestCost struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -2793,7 +2905,7 @@ type RequestCost struct {
 
 func (x *RequestCost) Reset() {
 	*x = RequestCost{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2805,7 +2917,7 @@ func (x *RequestCost) String() string {
 func (*RequestCost) ProtoMessage() {}
 
 func (x *RequestCost) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2818,7 +2930,7 @@ func (x *RequestCost) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
 func (*RequestCost) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
 }
 
 func (x *RequestCost) GetRequest() string {
@@ -2853,12 +2965,16 @@ var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
-	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\x94\x01\n" +
+	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\xe6\x01\n" +
 	"\vModelSource\x120\n" +
 	"\acrystal\x18\x01 \x01(\v2\x14.modegrid.v1.CrystalH\x00R\acrystal\x12\x1f\n" +
 	"\n" +
 	"model_hash\x18\x02 \x01(\tH\x00R\tmodelHash\x12(\n" +
-	"\x10enforce_sum_rule\x18\x03 \x01(\bR\x0eenforceSumRuleB\b\n" +
+	"\x10enforce_sum_rule\x18\x03 \x01(\bR\x0eenforceSumRule\x120\n" +
+	"\x14symmetry_tolerance_a\x18\x04 \x01(\x01R\x12symmetryToleranceA\x12\x1e\n" +
+	"\n" +
+	"symmetrize\x18\x05 \x01(\bR\n" +
+	"symmetrizeB\b\n" +
 	"\x06source\"8\n" +
 	"\x06QPoint\x12\x0e\n" +
 	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
@@ -3035,7 +3151,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc6\x06\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xfd\a\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -3063,7 +3179,16 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"parameters\x18\x11 \x01(\tR\n" +
 	"parameters\x12=\n" +
 	"\rtypical_costs\x18\x12 \x03(\v2\x18.modegrid.v1.RequestCostR\ftypicalCosts\x129\n" +
-	"\fdefault_path\x18\x13 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath\"|\n" +
+	"\fdefault_path\x18\x13 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath\x120\n" +
+	"\x14symmetry_tolerance_a\x18\x14 \x01(\x01R\x12symmetryToleranceA\x12a\n" +
+	"\x1csymmetry_at_looser_tolerance\x18\x15 \x03(\v2 .modegrid.v1.SymmetryAtToleranceR\x19symmetryAtLooserTolerance\x12 \n" +
+	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\"V\n" +
+	"\x13SymmetryAtTolerance\x12\x1f\n" +
+	"\vtolerance_a\x18\x01 \x01(\x01R\n" +
+	"toleranceA\x12\x1e\n" +
+	"\n" +
+	"operations\x18\x02 \x01(\rR\n" +
+	"operations\"|\n" +
 	"\vRequestCost\x12\x18\n" +
 	"\arequest\x18\x01 \x01(\tR\arequest\x12\x1d\n" +
 	"\n" +
@@ -3118,7 +3243,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 27)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 28)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -3151,11 +3276,12 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*RequestCost)(nil),               // 31: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 32: modegrid.v1.Crystal
+	(*SymmetryAtTolerance)(nil),       // 31: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),               // 32: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 33: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	32, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	33, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
 	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
 	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
@@ -3193,23 +3319,24 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	31, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	32, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
 	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	26, // 40: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 41: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 42: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 43: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 44: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 45: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 46: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 47: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 48: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 49: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	45, // [45:50] is the sub-list for method output_type
-	40, // [40:45] is the sub-list for method input_type
-	40, // [40:40] is the sub-list for extension type_name
-	40, // [40:40] is the sub-list for extension extendee
-	0,  // [0:40] is the sub-list for field type_name
+	31, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	26, // 41: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 42: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 43: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 44: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 45: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 46: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 47: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 48: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 49: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 50: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	46, // [46:51] is the sub-list for method output_type
+	41, // [41:46] is the sub-list for method input_type
+	41, // [41:41] is the sub-list for extension type_name
+	41, // [41:41] is the sub-list for extension extendee
+	0,  // [0:41] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3233,7 +3360,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   27,
+			NumMessages:   28,
 			NumExtensions: 0,
 			NumServices:   1,
 		},
