@@ -15,7 +15,7 @@ import (
 // when the encoding changes. v2: exact float64 values (v1 rounded every
 // number to 33 significant bits relative to the largest of its kind, so
 // models differing by less than that shared a hash and a cached answer).
-const hashVersion = "modegrid/model/v2"
+const hashVersion = "modegrid/model/v3"
 
 // Hash returns the model's canonical hash: SHA-256 in lower-case hex of
 // exactly the numbers every result the engine computes is made from, and

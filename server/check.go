@@ -151,12 +151,22 @@ func stabilityPoints(d, mesh int) int {
 	return n
 }
 
+// looserSymmetryMaxSites is the largest model whose check searches for
+// operations at looser tolerances.
+const looserSymmetryMaxSites = 64
+
 // looserSymmetry counts the operations found at 10× and 100× the model's
 // symmetry tolerance, and at the default when that is looser still (a
 // tolerance set far too tight would otherwise get no hint), keeping those
 // within physics.MaxSymTolA, so that check can say when a looser
-// tolerance would find more. Each costs one more symmetry search.
+// tolerance would find more. Each costs one more symmetry search, which
+// grows with sites² per candidate operation and is not part of CheckModel's
+// admitted estimate: models over looserSymmetryMaxSites get no hint (a
+// fraction of a second each up to there; tens of seconds at 512 sites).
 func looserSymmetry(ctx context.Context, m *physics.Model) ([]*modegridv1.SymmetryAtTolerance, error) {
+	if m.Sites() > looserSymmetryMaxSites {
+		return nil, nil
+	}
 	tols := []float64{10 * m.SymTolA(), 100 * m.SymTolA()}
 	if physics.DefaultSymTolA > tols[1] {
 		tols = append(tols, physics.DefaultSymTolA)

@@ -179,7 +179,7 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 		return nil, nil
 	}
 	if tol := src.GetSymmetryToleranceA(); tol != 0 && !(tol >= physics.MinSymTolA && tol <= physics.MaxSymTolA) {
-		vs.add("model.symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", physics.DefaultSymTolA, physics.MinSymTolA, physics.MaxSymTolA, tol)
+		vs.Add("model.symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", physics.DefaultSymTolA, physics.MinSymTolA, physics.MaxSymTolA, tol)
 		return nil, nil
 	}
 	norm, raw, key, err := inlineKey(src)
