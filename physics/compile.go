@@ -162,7 +162,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		m.terms = append(m.terms, t)
 	}
 	m.buildBlocks()
-	rows := make([]float64, m.Modes())
+	rows := make([]float64, m.ModeCount())
 	for _, t := range m.terms {
 		for a := 0; a < m.p; a++ {
 			for b := 0; b < m.p; b++ {
@@ -582,13 +582,25 @@ func symmetrize9(p [9]float64) [9]float64 {
 // Dim is the dimensionality d of the crystal.
 func (m *Model) Dim() int { return m.dim }
 
-// P is the number of polarizations.
+// Polarizations is the number of displacement components per site (1, 2
+// or 3).
+func (m *Model) Polarizations() int { return m.p }
+
+// P is the old name of Polarizations.
+//
+// Deprecated: use Polarizations.
 func (m *Model) P() int { return m.p }
 
 // Sites is the number of sites per cell.
 func (m *Model) Sites() int { return m.nsites }
 
-// Modes is the number of modes per q-point (sites × p).
+// ModeCount is the number of modes (branches) per q-point: sites ×
+// polarizations.
+func (m *Model) ModeCount() int { return m.nsites * m.p }
+
+// Modes is the old name of ModeCount.
+//
+// Deprecated: use ModeCount.
 func (m *Model) Modes() int { return m.nsites * m.p }
 
 // Labels returns the site labels in site order.

@@ -56,7 +56,7 @@ func BenchmarkModesPerQ(b *testing.B) {
 	rng := rand.New(rand.NewPCG(7, 7))
 	qs := randomQs(rng, 64)
 	for _, l := range ladder(b) {
-		n := l.m.Modes()
+		n := l.m.ModeCount()
 		for _, kind := range []string{"freq", "vectors", "velocities"} {
 			opt := ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
 			b.Run(fmt.Sprintf("sites=%d/%s", l.sites, kind), func(b *testing.B) {

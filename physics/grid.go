@@ -106,7 +106,7 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 		}
 		return pts[ir.Irr[s]].Q
 	}
-	nm, ns := m.Modes(), m.nsites
+	nm, ns := m.ModeCount(), m.nsites
 	p := m.p
 	pairs := p * (p + 1) / 2
 	c := &GridModes{ModelHash: m.hash, Spec: spec, Points: pts, NModes: nm, NSites: ns, P: p,

@@ -17,7 +17,7 @@ import (
 // (definition of a Hermitian eigendecomposition; common practice).
 func TestEigenvectors(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	n := m.Modes()
+	n := m.ModeCount()
 	for _, q := range [][3]float64{{0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0, 0, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
 		vals, vecs := eigen.Hermitian(d, n, true)
@@ -259,7 +259,7 @@ func TestGridModesMatchesPoints(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	n := m.Modes()
+	n := m.ModeCount()
 	for i, p := range g.Points {
 		f, v := m.ModesAt(p.Q)
 		if !closeSlices(g.FreqTHz[i*n:(i+1)*n], f, 1e-14) {

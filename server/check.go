@@ -61,7 +61,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 			Dimensions:              uint32(m.Dim()),
 			Sites:                   uint32(m.Sites()),
 			Polarizations:           uint32(m.P()),
-			ModesPerCell:            uint32(m.Modes()),
+			ModesPerCell:            uint32(m.ModeCount()),
 			SumRuleViolationEvPerA2: m.SumRuleViolation(),
 			LatticeType:             m.LatticeType(),
 		}

@@ -72,19 +72,19 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
 		}
 		c := physics.DispersionCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
-		perSample := int64(8*e.m.Modes() + 64) // the response
+		perSample := int64(8*e.m.ModeCount() + 64) // the response
 		if opt.SiteWeights {
-			perSample += int64(8 * e.m.Modes() * e.m.Sites())
+			perSample += int64(8 * e.m.ModeCount() * e.m.Sites())
 		}
 		c.Bytes += 2 * int64(n) * perSample
 		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
 		s.budget.check(&vs, est)
 	}
 	if e != nil && opt.Points > 0 {
-		perSample := 8*e.m.Modes() + 64
-		what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes())
+		perSample := 8*e.m.ModeCount() + 64
+		what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.ModeCount())
 		if opt.SiteWeights {
-			perSample += 8 * e.m.Modes() * e.m.Sites()
+			perSample += 8 * e.m.ModeCount() * e.m.Sites()
 			what += fmt.Sprintf(" × (1 + %d site weights)", e.m.Sites())
 		}
 		s.checkReply(&vs, "points", float64(opt.Points)*float64(perSample), what)

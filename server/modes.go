@@ -49,7 +49,7 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 
 	// Chunk size: as asked (or the default), but never more mode data per
 	// message than MaxChunkBytes.
-	n := e.m.Modes()
+	n := e.m.ModeCount()
 	per := 8*n + modeChunkOverhead
 	if opt.Eigenvectors {
 		per += 16 * n * n
@@ -104,7 +104,7 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 // is a stream over the budget or the compute-time bound.
 func (s *Service) modesEstimate(e *modelEntry, count int, opt physics.ModeOptions, vs *violations) estimate {
 	est, per := s.modesCost(e, count, opt)
-	s.checkReply(vs, est.field, per, fmt.Sprintf("one q-point of %d modes", e.m.Modes()))
+	s.checkReply(vs, est.field, per, fmt.Sprintf("one q-point of %d modes", e.m.ModeCount()))
 	s.budget.check(vs, est)
 	return est
 }
@@ -113,7 +113,7 @@ func (s *Service) modesEstimate(e *modelEntry, count int, opt physics.ModeOption
 // list, the chunks computed ahead, and a message and its encoding; per is
 // the size of one point's message.
 func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (estimate, float64) {
-	n := float64(e.m.Modes())
+	n := float64(e.m.ModeCount())
 	per := 8*n + modeChunkOverhead
 	field := "qpoints"
 	if opt.Eigenvectors {
