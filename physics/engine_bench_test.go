@@ -13,7 +13,7 @@ import (
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// conventionalRocksalt is the rock-salt-like example in its conventional
+// conventionalCell takes the rock-salt-like example to its conventional
 // cubic cell (8 sites): a'_k = −a_k + Σ_{l≠k} a_l of the fcc primitive
 // vectors gives the cube edges.
 var conventionalCell = [3][3]int{{-1, 1, 1}, {1, -1, 1}, {1, 1, -1}}

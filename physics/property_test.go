@@ -100,7 +100,7 @@ func randomProperCrystal(rng *rand.Rand) *Crystal {
 	return randomShellCrystal(rng)
 }
 
-// kRange is the range of spring constants, eV/Å²: six orders of magnitude.
+// kLo and kHi bound the spring constants, eV/Å²: six orders of magnitude.
 const kLo, kHi = 1e-5, 10.0
 
 func randomSpringCrystal(rng *rand.Rand) *Crystal {
