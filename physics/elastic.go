@@ -664,7 +664,7 @@ func relaxation(ctx context.Context, phi0, y []float64, nw, np int) ([]float64, 
 // or imaginary acoustic velocity, or no lattice. It returns ctx.Err() if
 // ctx ends during the set-up of the long-wave limit.
 func elasticDebyeTemperature(ctx context.Context, m *Model) (float64, error) {
-	d, p := m.Dim(), m.P()
+	d, p := m.Dim(), m.Polarizations()
 	if p < d || d < 1 || d > 3 {
 		return 0, nil
 	}

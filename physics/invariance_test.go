@@ -33,8 +33,8 @@ func TestZeroModesAtGamma(t *testing.T) {
 					zeros++
 				}
 			}
-			if zeros != m.P() {
-				t.Errorf("%d zero modes at Γ; want p = %d (eigenvalues %v)", zeros, m.P(), vals)
+			if zeros != m.Polarizations() {
+				t.Errorf("%d zero modes at Γ; want p = %d (eigenvalues %v)", zeros, m.Polarizations(), vals)
 			}
 		})
 	}
@@ -44,7 +44,7 @@ func TestZeroModesAtGamma(t *testing.T) {
 // with one exp per term (doc.go), as an independent check of the packed
 // assembly.
 func referenceD(m *Model, q [3]float64) []complex128 {
-	n, p := m.ModeCount(), m.P()
+	n, p := m.ModeCount(), m.Polarizations()
 	d := make([]complex128, n*n)
 	for _, t := range m.terms {
 		ph := cmplx.Exp(complex(0, 2*math.Pi*(q[0]*float64(t.n[0])+q[1]*float64(t.n[1])+q[2]*float64(t.n[2]))))

@@ -28,6 +28,9 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	var e *modelEntry
 	var err error
 	if src.GetCrystal() != nil {
+		if s.precheckCheck(&vs, src) {
+			return nil, vs.err() // refused from the request alone, before compiling
+		}
 		e, err = s.resolve(ctx, src, &mvs)
 	} else {
 		e, err = s.resolve(ctx, src, &vs)
@@ -60,7 +63,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 			Parameters:              canon,
 			Dimensions:              uint32(m.Dim()),
 			Sites:                   uint32(m.Sites()),
-			Polarizations:           uint32(m.P()),
+			Polarizations:           uint32(m.Polarizations()),
 			ModesPerCell:            uint32(m.ModeCount()),
 			SumRuleViolationEvPerA2: m.SumRuleViolation(),
 			LatticeType:             m.LatticeType(),
