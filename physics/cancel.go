@@ -33,7 +33,7 @@ func stopFunc(ctx context.Context) func() bool {
 // 37 MB and tens of milliseconds.
 func (m *Model) dynamicalMatrixCtx(ctx context.Context, q [3]float64) ([]complex128, error) {
 	mustQ("DynamicalMatrix", q)
-	nm := m.Modes()
+	nm := m.ModeCount()
 	out := make([]complex128, nm*nm)
 	var t phaseTable
 	if !m.assemble(q, out, &t, stopFunc(ctx)) {

@@ -142,35 +142,8 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		toEV = func(k float64) float64 { return k / EVPerA2InNPerM }
 	}
 	parts := fcParts{}
-	for x, s := range c.Springs {
-		if x%pollEvery == 0 && ctx.Err() != nil {
-			return nil, ctx.Err()
-		}
-		m.addSpring(parts, s.From, s.To, cellOf(s.Cell), toEV(s.KLong), toEV(s.KTrans))
-	}
-	m.interactions = len(c.Springs) + len(c.Blocks)
-	m.hasBlocks = len(c.Blocks) > 0
-	m.shells = make([]ShellInfo, len(c.Shells))
-	for idx, sh := range c.Shells {
-		bonds, dist, err := m.findShell(ctx, sh, lim)
-		if ctx.Err() != nil {
-			return nil, ctx.Err()
-		}
-		if err != nil {
-			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
-			continue
-		}
-		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
-		m.interactions += len(bonds)
-		for x, b := range bonds {
-			if x%pollEvery == 0 && ctx.Err() != nil {
-				return nil, ctx.Err()
-			}
-			m.addSpring(parts, b.i, b.j, b.n, toEV(sh.KLong), toEV(sh.KTrans))
-		}
-	}
-	if m.interactions > lim.MaxInteractions {
-		vs.add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
+	if err := m.addSprings(ctx, parts, c, toEV, lim, &vs); err != nil {
+		return nil, err
 	}
 	if len(vs.list) > 0 {
 		return nil, vs.err()
@@ -182,6 +155,57 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
+	m.setTerms(raw)
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	m.hash = m.canonicalHash(raw)
+	m.latticeType, m.standard = lattice.Detect(m.lattice, m.dim)
+	return m, nil
+}
+
+// addSprings adds the explicit springs of c and the bonds of its neighbour
+// shells to parts, and counts the interactions. A shell whose search fails
+// and an interaction count over the limit are added to vs; it returns
+// ctx.Err() if ctx ends first.
+func (m *Model) addSprings(ctx context.Context, parts fcParts, c *Crystal, toEV func(float64) float64, lim Limits, vs *violations) error {
+	for x, s := range c.Springs {
+		if x%pollEvery == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
+		m.addSpring(parts, s.From, s.To, cellOf(s.Cell), toEV(s.KLong), toEV(s.KTrans))
+	}
+	m.interactions = len(c.Springs) + len(c.Blocks)
+	m.hasBlocks = len(c.Blocks) > 0
+	m.shells = make([]ShellInfo, len(c.Shells))
+	for idx, sh := range c.Shells {
+		bonds, dist, err := m.findShell(ctx, sh, lim)
+		if ctx.Err() != nil {
+			return ctx.Err()
+		}
+		if err != nil {
+			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
+			continue
+		}
+		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
+		m.interactions += len(bonds)
+		for x, b := range bonds {
+			if x%pollEvery == 0 && ctx.Err() != nil {
+				return ctx.Err()
+			}
+			m.addSpring(parts, b.i, b.j, b.n, toEV(sh.KLong), toEV(sh.KTrans))
+		}
+	}
+	if m.interactions > lim.MaxInteractions {
+		vs.add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
+	}
+	return nil
+}
+
+// setTerms mass-weights the raw force constants (eV/Å²) into m.terms,
+// packs the blocks of D(q), and sets lambdaScale, the Gershgorin bound on
+// every eigenvalue: the largest row sum of |Φ|/sqrt(m_i m_j).
+func (m *Model) setTerms(raw []term) {
 	for _, t := range raw {
 		w := 1 / math.Sqrt(m.massAmu[t.i]*m.massAmu[t.j])
 		for a := range t.phi {
@@ -190,7 +214,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		m.terms = append(m.terms, t)
 	}
 	m.buildBlocks()
-	rows := make([]float64, m.Modes())
+	rows := make([]float64, m.ModeCount())
 	for _, t := range m.terms {
 		for a := 0; a < m.p; a++ {
 			for b := 0; b < m.p; b++ {
@@ -201,12 +225,6 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	for _, r := range rows {
 		m.lambdaScale = math.Max(m.lambdaScale, r)
 	}
-	if err := ctx.Err(); err != nil {
-		return nil, err
-	}
-	m.hash = m.canonicalHash(raw)
-	m.latticeType, m.standard = lattice.Detect(m.lattice, m.dim)
-	return m, nil
 }
 
 // newModel copies the geometry of a validated crystal into a Model, with
@@ -426,33 +444,14 @@ type shellBond struct {
 // same bond). The search radius grows until the shell is complete or the
 // cell-offset limit is reached. It returns ctx.Err() if ctx ends first.
 func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBond, float64, error) {
-	var from, to []int
-	for i, l := range m.labels {
-		if l == sh.FromLabel {
-			from = append(from, i)
-		}
-		if l == sh.ToLabel {
-			to = append(to, i)
-		}
-	}
+	from, to := m.sitesLabelled(sh.FromLabel), m.sitesLabelled(sh.ToLabel)
 	maxLen := 0.0
 	for k := 0; k < m.dim; k++ {
 		maxLen = math.Max(maxLen, lattice.Norm(m.lattice[k]))
 	}
 	radius := 1.5 * maxLen * float64(sh.Shell)
 	for {
-		// Cells needed along k so that every point within radius is found:
-		// the spacing of lattice planes is 2π/|b_k|.
-		var reach [3]int
-		capped := false
-		for k := 0; k < m.dim; k++ {
-			r := int(math.Ceil(radius*lattice.Norm(m.recip[k])/(2*math.Pi))) + 1
-			if r > lim.MaxCellOffset {
-				r = lim.MaxCellOffset
-				capped = true
-			}
-			reach[k] = r
-		}
+		reach, capped := m.searchReach(radius, lim.MaxCellOffset)
 		cells := 1
 		for k := 0; k < m.dim; k++ {
 			cells *= 2*reach[k] + 1
@@ -460,31 +459,7 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 		if work := float64(cells) * float64(len(from)) * float64(len(to)); work > ShellSearchBudget {
 			return nil, 0, fmt.Errorf("the search for shell %d between %q and %q would compare %.3g site pairs, more than the limit of %.0e: ask for a nearer shell or give the bonds as springs", sh.Shell, sh.FromLabel, sh.ToLabel, work, float64(ShellSearchBudget))
 		}
-		// Pass 1: the Shell+1 smallest distinct distances within radius,
-		// kept in a short sorted list (no list of every candidate pair).
-		keep := sh.Shell + 1
-		shellD := make([]float64, 0, keep+1)
-		err := m.eachPair(ctx, from, to, reach, func(_ shellBond, d float64) {
-			if d > radius {
-				return
-			}
-			x := sort.SearchFloat64s(shellD, d)
-			if (x < len(shellD) && shellD[x]-d <= ShellTolA) || (x > 0 && d-shellD[x-1] <= ShellTolA) {
-				if x < len(shellD) && shellD[x]-d <= ShellTolA && d < shellD[x] {
-					shellD[x] = d
-				}
-				return
-			}
-			if x >= keep {
-				return
-			}
-			shellD = append(shellD, 0)
-			copy(shellD[x+1:], shellD[x:])
-			shellD[x] = d
-			if len(shellD) > keep {
-				shellD = shellD[:keep]
-			}
-		})
+		shellD, err := m.nearestDistances(ctx, from, to, reach, radius, sh.Shell+1)
 		if err != nil {
 			return nil, 0, err
 		}
@@ -505,22 +480,8 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 			}
 		}
 		if len(within) > sh.Shell || (capped && len(within) >= sh.Shell) {
-			// Pass 2: every bond at the target distance.
 			target := within[sh.Shell-1]
-			var bonds []shellBond
-			same := sh.FromLabel == sh.ToLabel
-			err := m.eachPair(ctx, from, to, reach, func(b shellBond, d float64) {
-				if math.Abs(d-target) > ShellTolA || len(bonds) > lim.MaxInteractions {
-					return
-				}
-				if same {
-					// Keep one of (i, j, n) and (j, i, −n).
-					if b.i > b.j || (b.i == b.j && lessCell(b.n, neg3(b.n))) {
-						return
-					}
-				}
-				bonds = append(bonds, b)
-			})
+			bonds, err := m.bondsAt(ctx, from, to, reach, target, sh.FromLabel == sh.ToLabel, lim.MaxInteractions)
 			if err != nil {
 				return nil, 0, err
 			}
@@ -531,6 +492,82 @@ func (m *Model) findShell(ctx context.Context, sh Shell, lim Limits) ([]shellBon
 		}
 		radius *= 2
 	}
+}
+
+// sitesLabelled lists the sites with the given label, in site order.
+func (m *Model) sitesLabelled(label string) []int {
+	var out []int
+	for i, l := range m.labels {
+		if l == label {
+			out = append(out, i)
+		}
+	}
+	return out
+}
+
+// searchReach returns the cells needed along each lattice vector so that
+// every point within radius (Å) is found — the spacing of lattice planes
+// is 2π/|b_k| — each capped at maxOffset, and whether any cap applied.
+func (m *Model) searchReach(radius float64, maxOffset int) (reach [3]int, capped bool) {
+	for k := 0; k < m.dim; k++ {
+		r := int(math.Ceil(radius*lattice.Norm(m.recip[k])/(2*math.Pi))) + 1
+		if r > maxOffset {
+			r = maxOffset
+			capped = true
+		}
+		reach[k] = r
+	}
+	return reach, capped
+}
+
+// nearestDistances returns the keep smallest distinct pair distances (Å)
+// within radius, ascending, two distances within ShellTolA counting as
+// one (the smaller kept). It holds only a short sorted list, never every
+// candidate pair.
+func (m *Model) nearestDistances(ctx context.Context, from, to []int, reach [3]int, radius float64, keep int) ([]float64, error) {
+	shellD := make([]float64, 0, keep+1)
+	err := m.eachPair(ctx, from, to, reach, func(_ shellBond, d float64) {
+		if d > radius {
+			return
+		}
+		x := sort.SearchFloat64s(shellD, d)
+		if (x < len(shellD) && shellD[x]-d <= ShellTolA) || (x > 0 && d-shellD[x-1] <= ShellTolA) {
+			if x < len(shellD) && shellD[x]-d <= ShellTolA && d < shellD[x] {
+				shellD[x] = d
+			}
+			return
+		}
+		if x >= keep {
+			return
+		}
+		shellD = append(shellD, 0)
+		copy(shellD[x+1:], shellD[x:])
+		shellD[x] = d
+		if len(shellD) > keep {
+			shellD = shellD[:keep]
+		}
+	})
+	return shellD, err
+}
+
+// bondsAt returns every bond at distance target (within ShellTolA), at
+// most maxBonds+1 of them (the caller reports the excess); when same, the
+// two labels are one and only one of (i, j, n) and (j, i, −n) is kept.
+func (m *Model) bondsAt(ctx context.Context, from, to []int, reach [3]int, target float64, same bool, maxBonds int) ([]shellBond, error) {
+	var bonds []shellBond
+	err := m.eachPair(ctx, from, to, reach, func(b shellBond, d float64) {
+		if math.Abs(d-target) > ShellTolA || len(bonds) > maxBonds {
+			return
+		}
+		if same {
+			// Keep one of (i, j, n) and (j, i, −n).
+			if b.i > b.j || (b.i == b.j && lessCell(b.n, neg3(b.n))) {
+				return
+			}
+		}
+		bonds = append(bonds, b)
+	})
+	return bonds, err
 }
 
 // ShellSearchBudget bounds the site-pair distances one neighbour-shell
@@ -610,13 +647,25 @@ func symmetrize9(p [9]float64) [9]float64 {
 // Dim is the dimensionality d of the crystal.
 func (m *Model) Dim() int { return m.dim }
 
-// P is the number of polarizations.
+// Polarizations is the number of displacement components per site (1, 2
+// or 3).
+func (m *Model) Polarizations() int { return m.p }
+
+// P is the old name of Polarizations.
+//
+// Deprecated: use Polarizations.
 func (m *Model) P() int { return m.p }
 
 // Sites is the number of sites per cell.
 func (m *Model) Sites() int { return m.nsites }
 
-// Modes is the number of modes per q-point (sites × p).
+// ModeCount is the number of modes (branches) per q-point: sites ×
+// polarizations.
+func (m *Model) ModeCount() int { return m.nsites * m.p }
+
+// Modes is the old name of ModeCount.
+//
+// Deprecated: use ModeCount.
 func (m *Model) Modes() int { return m.nsites * m.p }
 
 // Labels returns the site labels in site order.

@@ -37,7 +37,7 @@ type dmCell struct {
 
 // buildBlocks packs m.terms into the lower-triangle blocks of D(q).
 func (m *Model) buildBlocks() {
-	p, nm := m.p, m.Modes()
+	p, nm := m.p, m.ModeCount()
 	type acc struct {
 		cell   [3]int
 		blocks []dmBlock
@@ -138,7 +138,7 @@ func (t *phaseTable) phase(n [3]int, reach [3]int) complex128 {
 // the clearing pass (37 MB at 512 sites), and assemble returns false
 // (a unfinished) when it says so.
 func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func() bool) bool {
-	p, nm := m.p, m.Modes()
+	p, nm := m.p, m.ModeCount()
 	if stop == nil {
 		clear(a)
 	} else {
@@ -218,7 +218,7 @@ func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func(
 // Cartesian q in Å⁻¹; units eV/Å²/amu·Å) into g[α]: each term's phase
 // e^{iq·R} brings down a factor iR_α. stop as for assemble.
 func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable, stop func() bool) bool {
-	p, nm := m.p, m.Modes()
+	p, nm := m.p, m.ModeCount()
 	for x := 0; x < 3; x++ {
 		for r := 0; r < nm; r += eigen.PollRows + 1 {
 			if stop != nil && stop() {
@@ -295,7 +295,7 @@ func fillUpper(a []complex128, n int) {
 // |qₖ| ≤ MaxQ; it panics otherwise (check user data with ValidateQPoints).
 func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 	mustQ("DynamicalMatrix", q)
-	nm := m.Modes()
+	nm := m.ModeCount()
 	if cap(out) < nm*nm {
 		out = make([]complex128, nm*nm)
 	}
@@ -315,7 +315,7 @@ func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 // DynamicalMatrix.
 func (m *Model) DynamicalMatrixGrad(q [3]float64) [3][]complex128 {
 	mustQ("DynamicalMatrixGrad", q)
-	nm := m.Modes()
+	nm := m.ModeCount()
 	var g [3][]complex128
 	for x := range g {
 		g[x] = make([]complex128, nm*nm)

@@ -55,7 +55,7 @@ func checkEigenpairs(t *testing.T, h []complex128, n int, vals []float64, vecs [
 // and agree with gonum.
 func TestEigenDegenerateDynamicalMatrices(t *testing.T) {
 	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
-	n := m.Modes()
+	n := m.ModeCount()
 	for _, q := range [][3]float64{{0, 0, 0}, {0.5, 0, 0}, {0.5, 0.5, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
 		vals, vecs := eigen.Hermitian(d, n, true)

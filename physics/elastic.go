@@ -255,37 +255,9 @@ func (m *Model) factoredLongWave(ctx context.Context) (*longWave, error) {
 // polls ctx before every reflector and returns ctx.Err() if ctx ends first.
 func trailingFactor(ctx context.Context, rows [][]float64, nw, nu int) ([]float64, int, error) {
 	nc := nw + nu
-	norms := make([]float64, len(rows)) // ∞-norms, computed once for the sort
-	for r, row := range rows {
-		for _, v := range row {
-			norms[r] = math.Max(norms[r], math.Abs(v))
-		}
-	}
-	order := make([]int, len(rows))
-	for r := range order {
-		order[r] = r
-	}
-	sort.SliceStable(order, func(a, b int) bool { return norms[order[a]] > norms[order[b]] })
-	sorted := make([][]float64, len(rows))
-	for r, o := range order {
-		sorted[r] = rows[o]
-	}
-	copy(rows, sorted)
+	sortRowsByNorm(rows)
 	nr := len(rows)
-	col := func(c, from int) float64 {
-		var s, sc float64
-		for r := from; r < nr; r++ {
-			sc = math.Max(sc, math.Abs(rows[r][c]))
-		}
-		if sc == 0 {
-			return 0
-		}
-		for r := from; r < nr; r++ {
-			x := rows[r][c] / sc
-			s += x * x
-		}
-		return sc * math.Sqrt(s)
-	}
+	col := func(c, from int) float64 { return colNorm(rows, c, from) }
 	orig := make([]float64, nc)
 	for c := range orig {
 		orig[c] = col(c, 0)
@@ -334,6 +306,44 @@ func trailingFactor(ctx context.Context, rows [][]float64, nw, nu int) ([]float6
 		}
 	}
 	return out, lrows, nil
+}
+
+// sortRowsByNorm orders rows by decreasing ∞-norm, stably: the row
+// ordering that makes Householder QR row-wise backward stable.
+func sortRowsByNorm(rows [][]float64) {
+	norms := make([]float64, len(rows)) // ∞-norms, computed once for the sort
+	for r, row := range rows {
+		for _, v := range row {
+			norms[r] = math.Max(norms[r], math.Abs(v))
+		}
+	}
+	order := make([]int, len(rows))
+	for r := range order {
+		order[r] = r
+	}
+	sort.SliceStable(order, func(a, b int) bool { return norms[order[a]] > norms[order[b]] })
+	sorted := make([][]float64, len(rows))
+	for r, o := range order {
+		sorted[r] = rows[o]
+	}
+	copy(rows, sorted)
+}
+
+// colNorm is the 2-norm of column c of rows[from:], scaled by its largest
+// element so that no square overflows or underflows.
+func colNorm(rows [][]float64, c, from int) float64 {
+	var s, sc float64
+	for r := from; r < len(rows); r++ {
+		sc = math.Max(sc, math.Abs(rows[r][c]))
+	}
+	if sc == 0 {
+		return 0
+	}
+	for r := from; r < len(rows); r++ {
+		x := rows[r][c] / sc
+		s += x * x
+	}
+	return sc * math.Sqrt(s)
 }
 
 // householder reflects rows[k:] so that column c is zero below row k, with
@@ -654,7 +664,7 @@ func relaxation(ctx context.Context, phi0, y []float64, nw, np int) ([]float64, 
 // or imaginary acoustic velocity, or no lattice. It returns ctx.Err() if
 // ctx ends during the set-up of the long-wave limit.
 func elasticDebyeTemperature(ctx context.Context, m *Model) (float64, error) {
-	d, p := m.Dim(), m.P()
+	d, p := m.Dim(), m.Polarizations()
 	if p < d || d < 1 || d > 3 {
 		return 0, nil
 	}

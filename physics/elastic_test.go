@@ -198,7 +198,7 @@ func TestElasticDebyeContrast(t *testing.T) {
 	}
 }
 
-// diatomicChain: masses m1, m2 at 0 and a/2, springs K1 (inside the
+// diatomicChainK: masses m1, m2 at 0 and a/2, springs K1 (inside the
 // cell) and K2 (to the next cell) in series.
 func diatomicChainK(a, m1, m2, k1, k2 float64) *Crystal {
 	return &Crystal{Lattice: [][3]float64{{a, 0, 0}}, Polarizations: 1,

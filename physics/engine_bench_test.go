@@ -13,7 +13,7 @@ import (
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// conventionalRocksalt is the rock-salt-like example in its conventional
+// conventionalCell takes the rock-salt-like example to its conventional
 // cubic cell (8 sites): a'_k = −a_k + Σ_{l≠k} a_l of the fcc primitive
 // vectors gives the cube edges.
 var conventionalCell = [3][3]int{{-1, 1, 1}, {1, -1, 1}, {1, 1, -1}}
@@ -56,7 +56,7 @@ func BenchmarkModesPerQ(b *testing.B) {
 	rng := rand.New(rand.NewPCG(7, 7))
 	qs := randomQs(rng, 64)
 	for _, l := range ladder(b) {
-		n := l.m.Modes()
+		n := l.m.ModeCount()
 		for _, kind := range []string{"freq", "vectors", "velocities"} {
 			opt := ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
 			b.Run(fmt.Sprintf("sites=%d/%s", l.sites, kind), func(b *testing.B) {

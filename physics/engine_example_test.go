@@ -29,7 +29,7 @@ func ExampleCompile() {
 		fmt.Println(err)
 		return
 	}
-	fmt.Printf("%s, %d mode(s) per q\n", m.LatticeType(), m.Modes())
+	fmt.Printf("%s, %d mode(s) per q\n", m.LatticeType(), m.ModeCount())
 	fmt.Printf("ν(X) = %.4f THz\n", m.FrequenciesTHz(m.StandardPoints()["X"])[0])
 	c, err := m.SoundVelocities(context.Background(), [3]float64{1, 0, 0})
 	if err != nil {

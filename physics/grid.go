@@ -106,8 +106,7 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 		}
 		return pts[ir.Irr[s]].Q
 	}
-	nm, ns := m.Modes(), m.nsites
-	p := m.p
+	nm, ns, p := m.ModeCount(), m.nsites, m.p
 	pairs := p * (p + 1) / 2
 	c := &GridModes{ModelHash: m.hash, Spec: spec, Points: pts, NModes: nm, NSites: ns, P: p,
 		FreqTHz: make([]float64, reps*nm), Diagonalized: reps}
@@ -127,38 +126,7 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 			if !w.solve(repQ(i), vec) {
 				return false
 			}
-			f := c.FreqTHz[i*nm : (i+1)*nm]
-			w.freqs(f)
-			if opt.Eigenvectors {
-				copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], w.eig.Vectors())
-			}
-			if opt.Projections {
-				sw := c.SiteWeight[i*nm*ns : (i+1)*nm*ns]
-				for k := 0; k < nm; k++ {
-					e := w.eig.Vectors()[k*nm : (k+1)*nm]
-					for c, z := range e {
-						sw[k*ns+c/m.p] += real(z)*real(z) + imag(z)*imag(z)
-					}
-				}
-				averageDegenerate(f, sw, ns)
-			}
-			if opt.SiteTensors {
-				st := c.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
-				for k := 0; k < nm; k++ {
-					for s := 0; s < ns; s++ {
-						e := w.eig.Vectors()[k*nm+s*p : k*nm+(s+1)*p]
-						t := st[(k*ns+s)*pairs : (k*ns+s+1)*pairs]
-						x := 0
-						for a := 0; a < p; a++ {
-							for b := a; b < p; b++ {
-								t[x] = real(e[a])*real(e[b]) + imag(e[a])*imag(e[b])
-								x++
-							}
-						}
-					}
-				}
-				averageDegenerate(f, st, ns*pairs)
-			}
+			c.store(i, w, opt)
 			return true
 		}
 	})
@@ -169,6 +137,51 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 		return c, nil
 	}
 	return m.unfold(ctx, ir, ops, c, opt)
+}
+
+// store writes the modes that w has just solved into row i of c: the
+// frequencies, and the eigenvectors, site weights and site tensors that
+// opt asks for (the last two averaged over degenerate groups).
+func (c *GridModes) store(i int, w *pointWork, opt GridOptions) {
+	nm, ns, p := c.NModes, c.NSites, c.P
+	pairs := p * (p + 1) / 2
+	f := c.FreqTHz[i*nm : (i+1)*nm]
+	w.freqs(f)
+	vecs := w.eig.Vectors()
+	if opt.Eigenvectors {
+		copy(c.Eigvecs[i*nm*nm:(i+1)*nm*nm], vecs)
+	}
+	if opt.Projections {
+		sw := c.SiteWeight[i*nm*ns : (i+1)*nm*ns]
+		for k := 0; k < nm; k++ {
+			e := vecs[k*nm : (k+1)*nm]
+			for x, z := range e {
+				sw[k*ns+x/p] += real(z)*real(z) + imag(z)*imag(z)
+			}
+		}
+		averageDegenerate(f, sw, ns)
+	}
+	if opt.SiteTensors {
+		st := c.SiteTensor[i*nm*ns*pairs : (i+1)*nm*ns*pairs]
+		for k := 0; k < nm; k++ {
+			for s := 0; s < ns; s++ {
+				siteTensor(vecs[k*nm+s*p:k*nm+(s+1)*p], st[(k*ns+s)*pairs:(k*ns+s+1)*pairs])
+			}
+		}
+		averageDegenerate(f, st, ns*pairs)
+	}
+}
+
+// siteTensor writes the upper triangle of Re(e eᴴ), row by row, for the
+// p displacement components e of one site in one mode.
+func siteTensor(e []complex128, t []float64) {
+	x := 0
+	for a := range e {
+		for b := a; b < len(e); b++ {
+			t[x] = real(e[a])*real(e[b]) + imag(e[a])*imag(e[b])
+			x++
+		}
+	}
 }
 
 // DegenerateTolTHz is the frequency difference (THz, relative to the

@@ -17,7 +17,7 @@ import (
 // (definition of a Hermitian eigendecomposition; common practice).
 func TestEigenvectors(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	n := m.Modes()
+	n := m.ModeCount()
 	for _, q := range [][3]float64{{0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0, 0, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
 		vals, vecs := eigen.Hermitian(d, n, true)
@@ -121,8 +121,8 @@ func TestFiniteCrystalCounts(t *testing.T) {
 			for k := 0; k < m.Dim(); k++ {
 				cells *= tc.mesh[k]
 			}
-			if len(g.Points) != cells || len(g.FreqTHz) != cells*m.Sites()*m.P() {
-				t.Fatalf("%d points, %d modes; want %d, %d", len(g.Points), len(g.FreqTHz), cells, cells*m.Sites()*m.P())
+			if len(g.Points) != cells || len(g.FreqTHz) != cells*m.Sites()*m.Polarizations() {
+				t.Fatalf("%d points, %d modes; want %d, %d", len(g.Points), len(g.FreqTHz), cells, cells*m.Sites()*m.Polarizations())
 			}
 			seen := map[[3]int]bool{}
 			var wsum float64
@@ -168,7 +168,7 @@ func TestFiniteCrystalSpacing(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if modes := spec.Count() * m.Sites() * m.P(); modes != tc.n {
+			if modes := spec.Count() * m.Sites() * m.Polarizations(); modes != tc.n {
 				t.Fatalf("%d modes; want %d", modes, tc.n)
 			}
 			L := float64(tc.n) * tc.aA
@@ -259,7 +259,7 @@ func TestGridModesMatchesPoints(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	n := m.Modes()
+	n := m.ModeCount()
 	for i, p := range g.Points {
 		f, v := m.ModesAt(p.Q)
 		if !closeSlices(g.FreqTHz[i*n:(i+1)*n], f, 1e-14) {

@@ -200,7 +200,7 @@ func TestExamplesZeroAtGamma(t *testing.T) {
 	for _, name := range exampleNames(t) {
 		t.Run(name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, name))
-			p := m.P()
+			p := m.Polarizations()
 			check := func(where string, f []float64) {
 				t.Helper()
 				for k := 0; k < p; k++ {

@@ -22,10 +22,10 @@ func TestZeroModesAtGamma(t *testing.T) {
 	for _, name := range exampleNames(t) {
 		t.Run(name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, name))
-			vals, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{}, nil), m.Modes(), false)
+			vals, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{}, nil), m.ModeCount(), false)
 			// Scale: the largest eigenvalue at the zone boundary (at Γ a
 			// one-site model has nothing but zeros).
-			edge, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{0.5, 0.5 * float64(min(m.Dim()-1, 1)), 0}, nil), m.Modes(), false)
+			edge, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{0.5, 0.5 * float64(min(m.Dim()-1, 1)), 0}, nil), m.ModeCount(), false)
 			top := maxAbs(edge)
 			zeros := 0
 			for _, v := range vals {
@@ -33,8 +33,8 @@ func TestZeroModesAtGamma(t *testing.T) {
 					zeros++
 				}
 			}
-			if zeros != m.P() {
-				t.Errorf("%d zero modes at Γ; want p = %d (eigenvalues %v)", zeros, m.P(), vals)
+			if zeros != m.Polarizations() {
+				t.Errorf("%d zero modes at Γ; want p = %d (eigenvalues %v)", zeros, m.Polarizations(), vals)
 			}
 		})
 	}
@@ -44,7 +44,7 @@ func TestZeroModesAtGamma(t *testing.T) {
 // with one exp per term (doc.go), as an independent check of the packed
 // assembly.
 func referenceD(m *Model, q [3]float64) []complex128 {
-	n, p := m.Modes(), m.P()
+	n, p := m.ModeCount(), m.Polarizations()
 	d := make([]complex128, n*n)
 	for _, t := range m.terms {
 		ph := cmplx.Exp(complex(0, 2*math.Pi*(q[0]*float64(t.n[0])+q[1]*float64(t.n[1])+q[2]*float64(t.n[2]))))
@@ -70,7 +70,7 @@ func TestDynamicalMatrixHermitian(t *testing.T) {
 	models["64-site cube"] = mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	for name, m := range models {
 		t.Run(name, func(t *testing.T) {
-			n := m.Modes()
+			n := m.ModeCount()
 			for _, q := range randomQs(rng, 5) {
 				for k := m.Dim(); k < 3; k++ {
 					q[k] = 0
@@ -108,7 +108,7 @@ func TestDynamicalMatrixGrad(t *testing.T) {
 	for _, name := range []string{"rocksalt-like", "square-net", "diatomic-chain"} {
 		t.Run(name, func(t *testing.T) {
 			m := mustCompile(t, loadExample(t, name))
-			n := m.Modes()
+			n := m.ModeCount()
 			for _, q := range randomQs(rng, 3) {
 				for k := m.Dim(); k < 3; k++ {
 					q[k] = 0
@@ -248,7 +248,7 @@ func TestRigidRotation(t *testing.T) {
 		if !closeSlices(pb.FreqTHz, pa.FreqTHz, 1e-12) {
 			t.Fatalf("q=%v: rotated %v; original %v", q, pb.FreqTHz, pa.FreqTHz)
 		}
-		n := a.Modes()
+		n := a.ModeCount()
 		for k := 0; k < n; k++ {
 			if (k > 0 && pa.FreqTHz[k]-pa.FreqTHz[k-1] < 1e-6) || (k < n-1 && pa.FreqTHz[k+1]-pa.FreqTHz[k] < 1e-6) {
 				continue // degenerate: vectors defined up to a rotation
@@ -296,7 +296,7 @@ func TestSitePermutation(t *testing.T) {
 		if !closeSlices(fb, fa, 1e-12) {
 			t.Fatalf("q=%v: permuted %v; original %v", q, fb, fa)
 		}
-		n := a.Modes()
+		n := a.ModeCount()
 		for k := 0; k < n; k++ {
 			if (k > 0 && fa[k]-fa[k-1] < 1e-6) || (k < n-1 && fa[k+1]-fa[k] < 1e-6) {
 				continue

@@ -59,7 +59,7 @@ const eigenTolFactor = 4
 // summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
 // Zero and imaginary modes.
 func (m *Model) EigenTol() float64 {
-	return eigenTolFactor * float64(m.Modes()+len(m.cells)) * eigen.Epsilon * m.lambdaScale
+	return eigenTolFactor * float64(m.ModeCount()+len(m.cells)) * eigen.Epsilon * m.lambdaScale
 }
 
 // EigenTolTHz is EigenTol as a frequency (THz): a mode with |ν| up to
@@ -164,7 +164,7 @@ type pointWork struct {
 }
 
 func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
-	w := &pointWork{m: m, eig: eigen.NewWork(m.Modes()), done: done}
+	w := &pointWork{m: m, eig: eigen.NewWork(m.ModeCount()), done: done}
 	w.eig.SetStop(done)
 	return w
 }
@@ -174,7 +174,7 @@ func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
 // with vectors, w.eig.Vectors(). It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 	var stop func() bool
-	if w.done != nil && w.m.Modes() >= eigen.CancelCheckModes {
+	if w.done != nil && w.m.ModeCount() >= eigen.CancelCheckModes {
 		stop = w.stopped
 	}
 	if !w.m.assemble(q, w.eig.A(), &w.ph, stop) {
@@ -186,7 +186,7 @@ func (w *pointWork) solve(q [3]float64, vectors bool) bool {
 	case eigen.NoConverge:
 		// Never seen on finite input; the real embedding is the
 		// slower, independent second opinion.
-		vals, vecs := eigen.Embedded(w.m.DynamicalMatrix(q, nil), w.m.Modes(), vectors)
+		vals, vecs := eigen.Embedded(w.m.DynamicalMatrix(q, nil), w.m.ModeCount(), vectors)
 		copy(w.eig.Values(), vals)
 		if vectors {
 			copy(w.eig.Vectors(), vecs)
@@ -211,7 +211,7 @@ func (m *Model) FrequenciesTHz(q [3]float64) []float64 {
 	mustQ("FrequenciesTHz", q)
 	w := m.newPointWork(nil)
 	w.solve(q, false)
-	out := make([]float64, m.Modes())
+	out := make([]float64, m.ModeCount())
 	w.freqs(out)
 	return out
 }
@@ -223,7 +223,7 @@ func (m *Model) ModesAt(q [3]float64) ([]float64, []complex128) {
 	mustQ("ModesAt", q)
 	w := m.newPointWork(nil)
 	w.solve(q, true)
-	out := make([]float64, m.Modes())
+	out := make([]float64, m.ModeCount())
 	w.freqs(out)
 	return out, w.eig.Vectors()
 }
@@ -237,7 +237,7 @@ func (m *Model) Point(q [3]float64, opt ModeOptions) PointModes {
 		panic(fmt.Sprintf("physics: Point: VelocityDir %v is not finite", opt.VelocityDir))
 	}
 	w := m.newPointWork(nil)
-	n := m.Modes()
+	n := m.ModeCount()
 	pm := PointModes{Q: q, Weight: 1, FreqTHz: make([]float64, n)}
 	if opt.Eigenvectors {
 		pm.Eigvecs = make([]complex128, n*n)
@@ -267,7 +267,7 @@ func (w *pointWork) point(pm *PointModes, opt ModeOptions) bool {
 	w.freqs(pm.FreqTHz)
 	pm.Imaginary = imaginary(pm.FreqTHz)
 	if opt.Eigenvectors {
-		n := w.m.Modes()
+		n := w.m.ModeCount()
 		for r := 0; r < n; r += eigen.PollRows + 1 { // 37 MB at 512 sites
 			if n >= eigen.CancelCheckModes && w.stopped() {
 				return false
@@ -284,7 +284,7 @@ func (m *Model) chunkPoints(opt ModeOptions) int {
 	if opt.ChunkSize > 0 {
 		return opt.ChunkSize
 	}
-	n := m.Modes()
+	n := m.ModeCount()
 	per := 8*n + 64 // frequencies and the point record
 	if opt.Eigenvectors {
 		per += 16 * n * n
@@ -337,7 +337,7 @@ func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOpti
 		tokens <- struct{}{}
 	}
 	var next atomic.Int64
-	n := m.Modes()
+	n := m.ModeCount()
 	for wk := 0; wk < workers; wk++ {
 		g.Go(func() {
 			w := m.newPointWork(ctx.Done())

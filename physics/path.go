@@ -85,9 +85,36 @@ func (m *Model) cartQ(q [3]float64) [3]float64 {
 // Samples include every corner; consecutive corners are joined by straight
 // segments unless the later one has BreakBefore. Invalid input returns a
 // *ValidationError with fields "path[i].label", "path[i].q.q1" (finite,
-// within ±MaxQ), "points", "spacing_inv_a". The work runs on all cores and stops when ctx is done.
+// within ±MaxQ), "points", "spacing_inv_a". The work runs on all cores and
+// stops when ctx is done.
+//
+// Validation comes in three rounds, each reported whole before the next is
+// tried: the corners and options one by one, then the segments they form,
+// then the number of samples those segments would take.
 func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOptions) ([]PathSample, error) {
 	var vs violations
+	qs := m.resolveCorners(corners, opt, &vs)
+	if len(vs.list) > 0 {
+		return nil, vs.err()
+	}
+	seglen, total := m.segmentLengths(corners, qs, &vs)
+	if len(vs.list) > 0 {
+		return nil, vs.err()
+	}
+	steps, nsamples := planSteps(len(corners), seglen, total, opt, &vs)
+	if len(vs.list) > 0 {
+		return nil, vs.err()
+	}
+	samples, pieceStart := pathSamples(corners, qs, seglen, steps, nsamples)
+	if err := m.fillPathModes(ctx, samples, pieceStart, opt); err != nil {
+		return nil, err
+	}
+	return samples, nil
+}
+
+// resolveCorners returns the fractional q of every corner, from its
+// coordinates or its built-in label, and checks the sampling options.
+func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violations) [][3]float64 {
 	qs := make([][3]float64, len(corners))
 	if len(corners) < 2 {
 		vs.add("path", "must have at least 2 points, got %d", len(corners))
@@ -95,14 +122,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 	for i, c := range corners {
 		f := fmt.Sprintf("path[%d]", i)
 		if c.HasQ {
-			for k, x := range c.Q {
-				switch {
-				case !(math.Abs(x) <= MaxQ):
-					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
-				case k >= m.dim && x != 0:
-					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
-				}
-			}
+			m.checkCornerQ(f, c.Q, vs)
 			qs[i] = c.Q
 			continue
 		}
@@ -112,16 +132,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		}
 		q, ok := m.lookupLabel(c.Label)
 		if !ok {
-			known := make([]string, 0, len(m.standard))
-			for k := range m.standard {
-				known = append(known, k)
-			}
-			sort.Strings(known)
-			typ := m.latticeType
-			if typ == "" {
-				typ = "unrecognised"
-			}
-			vs.add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, typ, strings.Join(known, ", "))
+			vs.add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, m.latticeTypeName(), strings.Join(m.knownLabels(), ", "))
 			continue
 		}
 		qs[i] = q
@@ -132,12 +143,45 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 	case !finite(opt.SpacingInvA) || opt.SpacingInvA < 0:
 		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", opt.SpacingInvA)
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	return qs
+}
+
+// checkCornerQ checks the given coordinates q of the corner at field f:
+// finite, within ±MaxQ, and 0 beyond the crystal's dimension.
+func (m *Model) checkCornerQ(f string, q [3]float64, vs *violations) {
+	for k, x := range q {
+		switch {
+		case !(math.Abs(x) <= MaxQ):
+			vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
+		case k >= m.dim && x != 0:
+			vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
+		}
 	}
-	// Pieces and segment lengths.
-	seglen := make([]float64, len(corners)) // seglen[i]: segment ending at corner i (0 at piece starts)
-	var total float64
+}
+
+// knownLabels lists the built-in labels of the model's lattice, sorted.
+func (m *Model) knownLabels() []string {
+	known := make([]string, 0, len(m.standard))
+	for k := range m.standard {
+		known = append(known, k)
+	}
+	sort.Strings(known)
+	return known
+}
+
+// latticeTypeName names the lattice type for messages.
+func (m *Model) latticeTypeName() string {
+	if m.latticeType == "" {
+		return "unrecognised"
+	}
+	return m.latticeType
+}
+
+// segmentLengths returns the Cartesian length (Å⁻¹) of the segment ending
+// at each corner (0 at the start of a piece) and their sum, and reports a
+// zero-length segment and a piece of one point.
+func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *violations) (seglen []float64, total float64) {
+	seglen = make([]float64, len(corners))
 	for i := 1; i < len(corners); i++ {
 		if corners[i].BreakBefore {
 			continue
@@ -156,11 +200,16 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 			vs.add(fmt.Sprintf("path[%d]", i), "is alone in its piece of path: a piece needs at least two points")
 		}
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
-	}
-	steps := make([]int, len(corners))
-	nsamples := len(corners)
+	return seglen, total
+}
+
+// planSteps returns, for each segment, the number of steps from its first
+// corner to its last (0 at a piece start), and the total number of
+// samples: from the spacing if one is given, else by sharing opt.Points
+// (or the default) among segments by length.
+func planSteps(ncorners int, seglen []float64, total float64, opt PathOptions, vs *violations) (steps []int, nsamples int) {
+	steps = make([]int, ncorners)
+	nsamples = ncorners
 	if opt.SpacingInvA > 0 {
 		for i, l := range seglen {
 			if l > 0 {
@@ -175,28 +224,29 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		if nsamples > MaxPathSamples {
 			vs.add("spacing_inv_a", "%v Å⁻¹ gives more than %d samples over a path of %.4g Å⁻¹", opt.SpacingInvA, MaxPathSamples, total)
 		}
-	} else {
-		n := opt.Points
-		if n == 0 {
-			n = DefaultPathPoints
-		}
-		switch {
-		case n > MaxPathSamples:
-			vs.add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
-		case n < len(corners):
-			vs.add("points", "must be at least the number of path points (%d), got %d", len(corners), n)
-		default:
-			distributeSteps(seglen, total, n-len(corners), steps)
-			nsamples = n
-		}
+		return steps, nsamples
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	n := opt.Points
+	if n == 0 {
+		n = DefaultPathPoints
 	}
+	switch {
+	case n > MaxPathSamples:
+		vs.add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
+	case n < ncorners:
+		vs.add("points", "must be at least the number of path points (%d), got %d", ncorners, n)
+	default:
+		distributeSteps(seglen, total, n-ncorners, steps)
+		nsamples = n
+	}
+	return steps, nsamples
+}
 
-	// The samples.
-	samples := make([]PathSample, 0, nsamples)
-	pieceStart := make([]bool, 0, nsamples)
+// pathSamples lays the samples along the segments (frequencies not yet
+// filled in) and marks those that start a piece of path.
+func pathSamples(corners []PathCorner, qs [][3]float64, seglen []float64, steps []int, nsamples int) (samples []PathSample, pieceStart []bool) {
+	samples = make([]PathSample, 0, nsamples)
+	pieceStart = make([]bool, 0, nsamples)
 	var dist float64
 	for i := range corners {
 		if i == 0 || corners[i].BreakBefore {
@@ -220,12 +270,17 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		}
 		dist += seglen[i]
 	}
+	return samples, pieceStart
+}
 
+// fillPathModes computes the frequencies (and site weights, if asked) of
+// every sample, following the branches through each piece if asked.
+func (m *Model) fillPathModes(ctx context.Context, samples []PathSample, pieceStart []bool, opt PathOptions) error {
 	pts := make([]mesh.QPoint, len(samples))
 	for i, s := range samples {
 		pts[i] = mesh.QPoint{Q: s.Q, Weight: 1}
 	}
-	n := m.Modes()
+	n := m.ModeCount()
 	var conn *connector
 	mopt := ModeOptions{Eigenvectors: opt.FollowModes || opt.SiteWeights}
 	if opt.FollowModes {
@@ -234,7 +289,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 	if mopt.Eigenvectors {
 		mopt.ChunkSize = max(1, min(64, DefaultChunkBytes/(16*n*n+1)))
 	}
-	err := m.StreamModes(ctx, pts, mopt, func(c ModeChunk) error {
+	return m.StreamModes(ctx, pts, mopt, func(c ModeChunk) error {
 		for k, pm := range c.Points {
 			i := c.Offset + k
 			if conn == nil {
@@ -258,10 +313,6 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		}
 		return nil
 	})
-	if err != nil {
-		return nil, err
-	}
-	return samples, nil
 }
 
 // distributeSteps shares extra interior samples among segments in
@@ -382,7 +433,7 @@ func (c *connector) next(freq []float64, vecs []complex128, start bool) []float6
 // the trace of the projector on the subspace, over the group size) does not
 // depend on that basis.
 func (m *Model) siteShares(vecs []complex128, groups []float64) []float64 {
-	n, ns, p := m.Modes(), m.nsites, m.p
+	n, ns, p := m.ModeCount(), m.nsites, m.p
 	out := make([]float64, n*ns)
 	for k := 0; k < n; k++ {
 		for s := 0; s < ns; s++ {

@@ -100,7 +100,7 @@ func randomProperCrystal(rng *rand.Rand) *Crystal {
 	return randomShellCrystal(rng)
 }
 
-// kRange is the range of spring constants, eV/Å²: six orders of magnitude.
+// kLo and kHi bound the spring constants, eV/Å²: six orders of magnitude.
 const kLo, kHi = 1e-5, 10.0
 
 func randomSpringCrystal(rng *rand.Rand) *Crystal {
@@ -327,7 +327,7 @@ func floppy(t *testing.T, pc *propCase) bool {
 // Γ-centred grid of N points: p/N modes per cell. They are the only modes
 // a rigid model leaves out of the thermal sums.
 func gammaWeight(pc *propCase) float64 {
-	return float64(pc.m.P()) / float64(pc.spec.Count())
+	return float64(pc.m.Polarizations()) / float64(pc.spec.Count())
 }
 
 // TestPropertyDOSNormalization: the density of states integrates to
@@ -349,7 +349,7 @@ func TestPropertyDOSNormalization(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
 		}
-		want := float64(pc.m.P() * pc.m.Sites())
+		want := float64(pc.m.Polarizations() * pc.m.Sites())
 		for _, method := range []DOSMethod{Tetrahedron, Gaussian} {
 			opt := DOSOptions{Method: method}
 			if method == Gaussian {
@@ -368,8 +368,8 @@ func TestPropertyDOSNormalization(t *testing.T) {
 			peak := maxAbs(plain.DOS)
 			sum := make([]float64, len(plain.DOS))
 			for s, d := range proj.Sites {
-				if got := integral(proj, d); math.Abs(got-float64(pc.m.P())) > 1e-9*want {
-					t.Errorf("%v: site %d integrates to %.12g; want p = %d\n%v", method, s, got, pc.m.P(), pc)
+				if got := integral(proj, d); math.Abs(got-float64(pc.m.Polarizations())) > 1e-9*want {
+					t.Errorf("%v: site %d integrates to %.12g; want p = %d\n%v", method, s, got, pc.m.Polarizations(), pc)
 				}
 				for i, x := range d {
 					sum[i] += x
@@ -418,7 +418,7 @@ func TestPropertyThermalLimits(t *testing.T) {
 		}
 		top := maxAbs(g.FreqTHz)
 		temps := propTemps(propRNG(pc.seed), top)
-		states := float64(pc.m.P() * pc.m.Sites())
+		states := float64(pc.m.Polarizations() * pc.m.Sites())
 		for _, route := range []ThermalRoute{ModeSum, DOSIntegral} {
 			r, err := ComputeThermal(ctx, pc.m, g, ThermalOptions{TempsK: temps, Route: route})
 			if err != nil {
@@ -730,7 +730,7 @@ func TestPropertyThermalRoutes(t *testing.T) {
 			t.Fatalf("%v\n%v", err, pc)
 		}
 		top := maxAbs(g.FreqTHz)
-		states := float64(pc.m.P() * pc.m.Sites())
+		states := float64(pc.m.Polarizations() * pc.m.Sites())
 		gw := gammaWeight(pc)
 		var temps []float64
 		for _, x := range []float64{8, 2, 0.5} {
@@ -786,7 +786,7 @@ func checkFiniteHistogram(t *testing.T, pc *propCase, e1 float64) float64 {
 	top := maxAbs(g.FreqTHz)
 	step := top / 20000
 	h := mustDOS(t, pc.m, g, DOSOptions{Method: Histogram, Min: 0, Max: 1.0001 * top, Step: step})
-	states := float64(pc.m.P() * pc.m.Sites())
+	states := float64(pc.m.Polarizations() * pc.m.Sites())
 	var temps []float64
 	for _, x := range []float64{8, 2, 0.5} {
 		temps = append(temps, top*THzToKelvin/x)

@@ -134,7 +134,7 @@ func TestStreamModesStops(t *testing.T) {
 // DefaultChunkBytes even with eigenvectors of a large model.
 func TestDefaultChunkBounded(t *testing.T) {
 	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
-	n := m.Modes()
+	n := m.ModeCount()
 	c := m.chunkPoints(ModeOptions{Eigenvectors: true})
 	if bytes := c * 16 * n * n; bytes > DefaultChunkBytes || c < 1 {
 		t.Errorf("default chunk of %d points holds %d bytes of eigenvectors", c, bytes)

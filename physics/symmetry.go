@@ -277,7 +277,7 @@ func (op *SymOp) applyQ(q [3]float64) [3]float64 {
 // only the p×p part of C. It polls ctx once per row of sites and returns
 // nil when ctx ended.
 func (m *Model) rotateD(ctx context.Context, op *SymOp, q [3]float64, dm []complex128) []complex128 {
-	p, nm := m.p, m.Modes()
+	p, nm := m.p, m.ModeCount()
 	qp := op.applyQ(q)
 	ph := make([]complex128, m.nsites)
 	for i := range ph {

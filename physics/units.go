@@ -89,7 +89,7 @@ func eigToTHz(lambda float64) float64 {
 	return math.Sqrt(lambda) * NuUnitTHz
 }
 
-// Thermal units per mole (added with the thermal properties, issue 4).
+// Thermal units per mole.
 // Thermal quantities are computed per cell; a mole of cells is N_A cells,
 // so 1 eV per cell is e·N_A = 96.48533212 kJ/mol (the Faraday constant,
 // CODATA 2018, exact).

@@ -165,79 +165,122 @@ func Validate(c *Crystal, lim Limits) error {
 	return vs.err()
 }
 
+// validate appends to vs every violation in c, in a fixed order: lattice,
+// polarizations and force unit, sites, springs, blocks, shells, then the
+// interaction count. Later checks that need a sound lattice or sound site
+// positions skip what an earlier check has already reported.
 func validate(c *Crystal, lim Limits, vs *violations) {
-	d := len(c.Lattice)
-	switch {
-	case d == 0:
-		vs.add("lattice", "must have 1 to 3 vectors, got none")
-	case d > 3:
-		vs.add("lattice", "must have 1 to 3 vectors, got %d", d)
-	}
-	latticeOK := d >= 1 && d <= 3
-	for i, v := range c.Lattice {
-		for k, x := range v {
-			if !finite(x) {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
-				latticeOK = false
-			} else if math.Abs(x) > MaxLengthA {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
-				latticeOK = false
-			}
-		}
-	}
-	if latticeOK {
-		for i, v := range c.Lattice {
-			if l := lattice.Norm(v); l < LatticeTolA {
-				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
-				latticeOK = false
-			}
-		}
-	}
-	if latticeOK {
-		m := lattice.GramMeasure(c.Lattice)
-		prod := 1.0
-		for _, v := range c.Lattice {
-			prod *= lattice.Norm(v)
-		}
-		what := [...]string{"", "length", "area", "volume"}[d]
-		switch {
-		case m < LatticeTolA:
-			vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
-			latticeOK = false
-		case m < DegenerateLatticeRel*prod:
-			vs.add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
-			latticeOK = false
-		}
-	}
+	v := &validator{c: c, lim: lim, vs: vs, d: len(c.Lattice), n: len(c.Sites)}
+	v.checkLattice()
 	if c.Polarizations < 0 || c.Polarizations > 3 {
 		vs.add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
 	}
 	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
 		vs.add("force_unit", "unknown unit %d", c.ForceUnit)
 	}
+	v.maxForce, v.forceUnit = MaxForceEVPerA2, "eV/Å²"
+	if c.ForceUnit == NPerM {
+		v.maxForce, v.forceUnit = MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
+	}
+	v.checkSites()
+	v.checkCoincidences()
+	v.checkSprings()
+	v.checkBlocks()
+	v.checkShells()
+	if total := len(c.Springs) + len(c.Blocks); total > lim.MaxInteractions {
+		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
+	}
+}
 
-	n := len(c.Sites)
+// validator carries what the parts of validate share: the crystal, the
+// limits, the violations found so far, and what earlier parts learnt.
+type validator struct {
+	c    *Crystal
+	lim  Limits
+	vs   *violations
+	d, n int // lattice vectors, sites
+
+	latticeOK bool   // 1–3 finite, non-degenerate vectors
+	posOK     []bool // per site: finite, in-range position on a sound lattice
+
+	maxForce  float64 // largest |force constant| in the crystal's unit
+	forceUnit string  // that unit, for messages
+}
+
+// dimOK reports whether the lattice has an acceptable number of vectors,
+// so that per-site and per-bond lengths can be checked against it.
+func (v *validator) dimOK() bool { return v.d >= 1 && v.d <= 3 }
+
+// checkLattice checks the number, components, lengths and independence of
+// the lattice vectors, and sets latticeOK.
+func (v *validator) checkLattice() {
+	c, vs, d := v.c, v.vs, v.d
+	switch {
+	case d == 0:
+		vs.add("lattice", "must have 1 to 3 vectors, got none")
+	case d > 3:
+		vs.add("lattice", "must have 1 to 3 vectors, got %d", d)
+	}
+	v.latticeOK = v.dimOK()
+	for i, vec := range c.Lattice {
+		for k, x := range vec {
+			if !finite(x) {
+				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
+				v.latticeOK = false
+			} else if math.Abs(x) > MaxLengthA {
+				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
+				v.latticeOK = false
+			}
+		}
+	}
+	if v.latticeOK {
+		for i, vec := range c.Lattice {
+			if l := lattice.Norm(vec); l < LatticeTolA {
+				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
+				v.latticeOK = false
+			}
+		}
+	}
+	if v.latticeOK {
+		v.checkDegenerate()
+	}
+}
+
+// checkDegenerate rejects a cell whose length, area or volume is tiny, in
+// absolute terms or relative to the product of its vector lengths.
+func (v *validator) checkDegenerate() {
+	m := lattice.GramMeasure(v.c.Lattice)
+	prod := 1.0
+	for _, vec := range v.c.Lattice {
+		prod *= lattice.Norm(vec)
+	}
+	what := [...]string{"", "length", "area", "volume"}[v.d]
+	switch {
+	case m < LatticeTolA:
+		v.vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
+		v.latticeOK = false
+	case m < DegenerateLatticeRel*prod:
+		v.vs.add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
+		v.latticeOK = false
+	}
+}
+
+// checkSites checks the site count, each mass and each fractional
+// position, and sets posOK.
+func (v *validator) checkSites() {
+	vs, n := v.vs, v.n
 	if n == 0 {
 		vs.add("sites", "must have at least one site, got none")
 	}
-	if n > lim.MaxSites {
-		vs.add("sites", "has %d sites, more than the limit of %d", n, lim.MaxSites)
+	if n > v.lim.MaxSites {
+		vs.add("sites", "has %d sites, more than the limit of %d", n, v.lim.MaxSites)
 	}
-	posOK := make([]bool, n)
-	for i, s := range c.Sites {
+	v.posOK = make([]bool, n)
+	for i, s := range v.c.Sites {
 		f := fmt.Sprintf("sites[%d]", i)
-		if !finite(s.MassAmu) {
-			vs.add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
-		} else if s.MassAmu == 0 {
-			// proto3 JSON cannot tell a missing mass from 0.
-			vs.add(f+".mass_amu", "is required (missing or 0): the site's mass in amu, > 0")
-		} else if s.MassAmu < 0 {
-			vs.add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
-		} else if s.MassAmu < MinMassAmu || s.MassAmu > MaxMassAmu {
-			vs.add(f+".mass_amu", "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, s.MassAmu)
-		}
-		if d >= 1 && d <= 3 && len(s.Frac) != d {
-			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", d, len(s.Frac))
+		checkMass(vs, f+".mass_amu", s.MassAmu)
+		if v.dimOK() && len(s.Frac) != v.d {
+			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", v.d, len(s.Frac))
 			continue
 		}
 		ok := true
@@ -250,140 +293,188 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 				ok = false
 			}
 		}
-		posOK[i] = ok && latticeOK
+		v.posOK[i] = ok && v.latticeOK
 	}
-	if latticeOK {
-		for i := 0; i < n; i++ {
-			for j := i + 1; j < n; j++ {
-				if !posOK[i] || !posOK[j] {
-					continue
-				}
-				if dist := siteSeparation(c, i, j); dist < CoincidenceTolA {
-					vs.add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
-				}
-			}
-		}
-	}
+}
 
-	total := len(c.Springs) + len(c.Blocks)
-	type bondKey struct {
-		i, j int
-		n    [3]int
+// checkMass checks one site mass (amu) at field f.
+func checkMass(vs *violations, f string, m float64) {
+	switch {
+	case !finite(m):
+		vs.add(f, "must be finite, got %v", m)
+	case m == 0:
+		// proto3 JSON cannot tell a missing mass from 0.
+		vs.add(f, "is required (missing or 0): the site's mass in amu, > 0")
+	case m < 0:
+		vs.add(f, "must be > 0, got %v", m)
+	case m < MinMassAmu || m > MaxMassAmu:
+		vs.add(f, "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, m)
 	}
+}
+
+// checkCoincidences reports every pair of sound sites on the same point.
+func (v *validator) checkCoincidences() {
+	if !v.latticeOK {
+		return
+	}
+	for i := 0; i < v.n; i++ {
+		for j := i + 1; j < v.n; j++ {
+			if !v.posOK[i] || !v.posOK[j] {
+				continue
+			}
+			if dist := siteSeparation(v.c, i, j); dist < CoincidenceTolA {
+				v.vs.add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
+			}
+		}
+	}
+}
+
+// checkForce checks one force constant (in the crystal's unit) at field.
+func (v *validator) checkForce(field string, x float64) {
+	if !finite(x) {
+		v.vs.add(field, "must be finite, got %v", x)
+	} else if math.Abs(x) > v.maxForce {
+		v.vs.add(field, "must be within ±%g %s, got %v", v.maxForce, v.forceUnit, x)
+	}
+}
+
+// bondKey names one bond: from site i to site j in the cell offset n.
+type bondKey struct {
+	i, j int
+	n    [3]int
+}
+
+// canonical returns the one of k and its reverse (j, i, −n) that sorts
+// first: a bond and its reverse are the same bond.
+func (k bondKey) canonical() bondKey {
+	r := bondKey{i: k.j, j: k.i, n: [3]int{-k.n[0], -k.n[1], -k.n[2]}}
+	if r.i < k.i || (r.i == k.i && lessCell(r.n, k.n)) {
+		return r
+	}
+	return k
+}
+
+// checkPair checks the site indices and cell offset of a spring or block
+// at field f and returns its key; ok is false if any of them is bad (or
+// the bond joins a site to itself in its own cell and allowSelf is false).
+func (v *validator) checkPair(f string, from, to int, cell []int, allowSelf bool) (key bondKey, ok bool) {
+	vs, n := v.vs, v.n
+	ok = true
+	if from < 0 || from >= n {
+		vs.add(f+".from_site", "site index %d out of range [0, %d)", from, n)
+		ok = false
+	}
+	if to < 0 || to >= n {
+		vs.add(f+".to_site", "site index %d out of range [0, %d)", to, n)
+		ok = false
+	}
+	if v.dimOK() && len(cell) != v.d {
+		vs.add(f+".cell", "must have %d integers (one per lattice vector), got %d", v.d, len(cell))
+		return key, false
+	}
+	zero := true
+	for k, x := range cell {
+		if x > v.lim.MaxCellOffset || x < -v.lim.MaxCellOffset {
+			vs.add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, v.lim.MaxCellOffset)
+			ok = false
+		}
+		if x != 0 {
+			zero = false
+		}
+		if k < 3 {
+			key.n[k] = x
+		}
+	}
+	if ok && from == to && zero && !allowSelf {
+		vs.add(f, "site %d is bonded to itself in the same cell", from)
+		ok = false
+	}
+	key.i, key.j = from, to
+	return key, ok
+}
+
+// checkSprings checks every spring: force constants, ends, a non-zero
+// length, and no duplicate of an earlier spring.
+func (v *validator) checkSprings() {
 	seen := map[bondKey]int{}
-	checkPair := func(f string, from, to int, cell []int, allowSelf bool) (bondKey, bool) {
-		ok := true
-		if from < 0 || from >= n {
-			vs.add(f+".from_site", "site index %d out of range [0, %d)", from, n)
-			ok = false
-		}
-		if to < 0 || to >= n {
-			vs.add(f+".to_site", "site index %d out of range [0, %d)", to, n)
-			ok = false
-		}
-		var key bondKey
-		if d >= 1 && d <= 3 && len(cell) != d {
-			vs.add(f+".cell", "must have %d integers (one per lattice vector), got %d", d, len(cell))
-			return key, false
-		}
-		zero := true
-		for k, x := range cell {
-			if x > lim.MaxCellOffset || x < -lim.MaxCellOffset {
-				vs.add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, lim.MaxCellOffset)
-				ok = false
-			}
-			if x != 0 {
-				zero = false
-			}
-			if k < 3 {
-				key.n[k] = x
-			}
-		}
-		if ok && from == to && zero && !allowSelf {
-			vs.add(f, "site %d is bonded to itself in the same cell", from)
-			ok = false
-		}
-		key.i, key.j = from, to
-		return key, ok
-	}
-	canonical := func(k bondKey) bondKey {
-		// A bond and its reverse (j, i, −n) are the same bond.
-		r := bondKey{i: k.j, j: k.i, n: [3]int{-k.n[0], -k.n[1], -k.n[2]}}
-		if r.i < k.i || (r.i == k.i && lessCell(r.n, k.n)) {
-			return r
-		}
-		return k
-	}
-	maxForce, forceUnit := MaxForceEVPerA2, "eV/Å²"
-	if c.ForceUnit == NPerM {
-		maxForce, forceUnit = MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
-	}
-	checkForce := func(field string, v float64) {
-		if !finite(v) {
-			vs.add(field, "must be finite, got %v", v)
-		} else if math.Abs(v) > maxForce {
-			vs.add(field, "must be within ±%g %s, got %v", maxForce, forceUnit, v)
-		}
-	}
-	for idx, s := range c.Springs {
+	for idx, s := range v.c.Springs {
 		f := fmt.Sprintf("springs[%d]", idx)
-		checkForce(f+".k_long", s.KLong)
-		checkForce(f+".k_trans", s.KTrans)
-		key, ok := checkPair(f, s.From, s.To, s.Cell, false)
+		v.checkForce(f+".k_long", s.KLong)
+		v.checkForce(f+".k_trans", s.KTrans)
+		key, ok := v.checkPair(f, s.From, s.To, s.Cell, false)
 		if !ok {
 			continue
 		}
-		if posOK[s.From] && posOK[s.To] {
+		if v.posOK[s.From] && v.posOK[s.To] {
 			// A spring needs a direction: its two ends must be apart.
-			var r [3]float64
-			for k := range c.Lattice {
-				df := c.Sites[s.To].Frac[k] + float64(s.Cell[k]) - c.Sites[s.From].Frac[k]
-				for a := 0; a < 3; a++ {
-					r[a] += df * c.Lattice[k][a]
-				}
-			}
-			if l := lattice.Norm(r); l < CoincidenceTolA {
-				vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
+			if l := v.bondLength(s); l < CoincidenceTolA {
+				v.vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
 				continue
 			}
 		}
-		ck := canonical(key)
+		ck := key.canonical()
 		if prev, dup := seen[ck]; dup {
-			vs.add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
+			v.vs.add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
 			continue
 		}
 		seen[ck] = idx
 	}
-	seenBlocks := map[bondKey]int{}
-	for idx, b := range c.Blocks {
+}
+
+// bondLength is the Cartesian length (Å) of spring s, whose sites and cell
+// have been checked.
+func (v *validator) bondLength(s Spring) float64 {
+	c := v.c
+	var r [3]float64
+	for k := range c.Lattice {
+		df := c.Sites[s.To].Frac[k] + float64(s.Cell[k]) - c.Sites[s.From].Frac[k]
+		for a := 0; a < 3; a++ {
+			r[a] += df * c.Lattice[k][a]
+		}
+	}
+	return lattice.Norm(r)
+}
+
+// checkBlocks checks every force-constant block: nine finite elements,
+// its ends, and no duplicate of an earlier block.
+func (v *validator) checkBlocks() {
+	seen := map[bondKey]int{}
+	for idx, b := range v.c.Blocks {
 		f := fmt.Sprintf("blocks[%d]", idx)
 		if len(b.Phi) != 9 {
-			vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
+			v.vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
 		}
 		for k, x := range b.Phi {
-			checkForce(fmt.Sprintf("%s.phi[%d]", f, k), x)
+			v.checkForce(fmt.Sprintf("%s.phi[%d]", f, k), x)
 		}
-		key, ok := checkPair(f, b.From, b.To, b.Cell, true)
+		key, ok := v.checkPair(f, b.From, b.To, b.Cell, true)
 		if !ok {
 			continue
 		}
-		ck := canonical(key)
-		if prev, dup := seenBlocks[ck]; dup {
-			vs.add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
+		ck := key.canonical()
+		if prev, dup := seen[ck]; dup {
+			v.vs.add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
 			continue
 		}
-		seenBlocks[ck] = idx
+		seen[ck] = idx
 	}
+}
+
+// checkShells checks every shell rule: no duplicate (in either label
+// order), labels that some site carries, a shell number in range, and its
+// force constants.
+func (v *validator) checkShells() {
+	vs := v.vs
 	labels := map[string]bool{}
-	for _, s := range c.Sites {
+	for _, s := range v.c.Sites {
 		labels[s.Label] = true
 	}
 	type shellKey struct {
 		a, b  string
 		shell int
 	}
-	seenShells := map[shellKey]int{}
-	for idx, s := range c.Shells {
+	seen := map[shellKey]int{}
+	for idx, s := range v.c.Shells {
 		f := fmt.Sprintf("shells[%d]", idx)
 		// A shell between A and B is the same set of bonds as between B
 		// and A.
@@ -391,10 +482,10 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		if sk.b < sk.a {
 			sk.a, sk.b = sk.b, sk.a
 		}
-		if prev, dup := seenShells[sk]; dup {
+		if prev, dup := seen[sk]; dup {
 			vs.add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
 		} else {
-			seenShells[sk] = idx
+			seen[sk] = idx
 		}
 		if !labels[s.FromLabel] {
 			vs.add(f+".from_label", "no site has label %q", s.FromLabel)
@@ -407,11 +498,8 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		} else if s.Shell > maxShell {
 			vs.add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
 		}
-		checkForce(f+".k_long", s.KLong)
-		checkForce(f+".k_trans", s.KTrans)
-	}
-	if total > lim.MaxInteractions {
-		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
+		v.checkForce(f+".k_long", s.KLong)
+		v.checkForce(f+".k_trans", s.KTrans)
 	}
 }
 

@@ -52,7 +52,7 @@ type velWork struct {
 }
 
 func newVelWork(m *Model) *velWork {
-	n := m.Modes()
+	n := m.ModeCount()
 	v := &velWork{n: n, sub: map[int]*eigen.Work{}, tmp: make([]complex128, n*n)}
 	for a := range v.grad {
 		v.grad[a] = make([]complex128, n*n)

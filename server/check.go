@@ -65,8 +65,8 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 			Parameters:              canon,
 			Dimensions:              uint32(m.Dim()),
 			Sites:                   uint32(m.Sites()),
-			Polarizations:           uint32(m.P()),
-			ModesPerCell:            uint32(m.Modes()),
+			Polarizations:           uint32(m.Polarizations()),
+			ModesPerCell:            uint32(m.ModeCount()),
 			SumRuleViolationEvPerA2: m.SumRuleViolation(),
 			LatticeType:             m.LatticeType(),
 		}

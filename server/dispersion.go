@@ -107,10 +107,10 @@ func (s *Service) checkDispersion(e *modelEntry, path []*modegridv1.PathPoint, o
 			}
 		}
 	}
-	perSample := 8*e.m.Modes() + 64 // the response
-	what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.Modes())
+	perSample := 8*e.m.ModeCount() + 64 // the response
+	what := fmt.Sprintf("%d samples × %d branches", opt.Points, e.m.ModeCount())
 	if opt.SiteWeights {
-		perSample += 8 * e.m.Modes() * e.m.Sites()
+		perSample += 8 * e.m.ModeCount() * e.m.Sites()
 		what += fmt.Sprintf(" × (1 + %d site weights)", e.m.Sites())
 	}
 	var est estimate

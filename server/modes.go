@@ -52,7 +52,7 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 
 	// Chunk size: as asked (or the default), but never more mode data per
 	// message than MaxChunkBytes.
-	n := e.m.Modes()
+	n := e.m.ModeCount()
 	per := 8*n + modeChunkOverhead
 	if opt.Eigenvectors {
 		per += 16 * n * n

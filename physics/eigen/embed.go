@@ -22,32 +22,7 @@ import (
 // ascending order keeps one complex vector per direction. If gonum does not
 // converge either, the results are NaN. The matrix must be finite.
 func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
-	// Scale by a power of two (exact) to a largest element near 1: gonum
-	// v0.17 panics inside Dsterf on matrices of very small norm (found by
-	// TestEigenAgainstGonum at 1e-150).
-	var amax float64
-	for i := 0; i < n; i++ {
-		for _, z := range h[i*n : i*n+i+1] {
-			amax = math.Max(amax, math.Max(math.Abs(real(z)), math.Abs(imag(z))))
-		}
-	}
-	exp := 0
-	if amax > 0 && !math.IsInf(amax, 0) {
-		_, exp = math.Frexp(amax)
-	}
-	down := math.Ldexp(1, -exp)
-	s := mat.NewSymDense(2*n, nil)
-	for i := 0; i < n; i++ {
-		for j := 0; j <= i; j++ {
-			z := h[i*n+j] * complex(down, 0)
-			s.SetSym(i, j, real(z))
-			s.SetSym(n+i, n+j, real(z))
-			// Block B at (n+i, j) holds imag(h_ij); −B at (i, n+j) is its
-			// mirror (−B = Bᵀ for Hermitian H).
-			s.SetSym(n+i, j, imag(z))
-			s.SetSym(n+j, i, -imag(z))
-		}
-	}
+	s, exp := embed(h, n)
 	vals := make([]float64, n)
 	var es mat.EigenSym
 	if !es.Factorize(s, vectors) {
@@ -75,6 +50,45 @@ func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
 	}
 	var ev mat.Dense
 	es.VectorsTo(&ev)
+	vecs := complexVectors(&ev, all, n, vals)
+	return vals, vecs
+}
+
+// embed returns the real symmetric 2n×2n embedding [[A, −B], [B, A]] of
+// H = A + iB scaled by 2^−exp, a power of two (exact) that brings the
+// largest element near 1: gonum v0.17 panics inside Dsterf on matrices of
+// very small norm (found by TestEigenAgainstGonum at 1e-150).
+func embed(h []complex128, n int) (s *mat.SymDense, exp int) {
+	var amax float64
+	for i := 0; i < n; i++ {
+		for _, z := range h[i*n : i*n+i+1] {
+			amax = math.Max(amax, math.Max(math.Abs(real(z)), math.Abs(imag(z))))
+		}
+	}
+	if amax > 0 && !math.IsInf(amax, 0) {
+		_, exp = math.Frexp(amax)
+	}
+	down := math.Ldexp(1, -exp)
+	s = mat.NewSymDense(2*n, nil)
+	for i := 0; i < n; i++ {
+		for j := 0; j <= i; j++ {
+			z := h[i*n+j] * complex(down, 0)
+			s.SetSym(i, j, real(z))
+			s.SetSym(n+i, n+j, real(z))
+			// Block B at (n+i, j) holds imag(h_ij); −B at (i, n+j) is its
+			// mirror (−B = Bᵀ for Hermitian H).
+			s.SetSym(n+i, j, imag(z))
+			s.SetSym(n+j, i, -imag(z))
+		}
+	}
+	return s, exp
+}
+
+// complexVectors turns the real eigenvectors ev of the embedding (columns,
+// eigenvalues all ascending) into n orthonormal complex eigenvectors of H,
+// mode-major, by a complex Gram–Schmidt pass that keeps one vector per
+// direction, and writes the eigenvalue of each kept vector into vals.
+func complexVectors(ev *mat.Dense, all []float64, n int, vals []float64) []complex128 {
 	vecs := make([]complex128, n*n)
 	z := make([]complex128, n)
 	found := 0
@@ -105,5 +119,5 @@ func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
 		vals[found] = all[col]
 		found++
 	}
-	return vals, vecs
+	return vecs
 }

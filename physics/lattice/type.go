@@ -254,9 +254,29 @@ func pairFrames(s1, s2 [3]float64, swap bool) [][][3]float64 {
 func classify3D(recip [3][3]float64, user [][3]float64) (string, [][][3]float64) {
 	u := [][3]float64{user[0], user[1], user[2]}
 	reduceGreedy(u)
-	vol := math.Abs(Dot(u[0], Cross(u[1], u[2])))
-	// Short lattice vectors: integer combinations of the reduced basis.
-	var vecs [][3]float64
+	ls := lattice3D{recip: recip, vol: math.Abs(Dot(u[0], Cross(u[1], u[2])))}
+	ls.vecs, ls.shells = shortVectors(u)
+	if typ, frames := ls.cubic(); typ != "" {
+		return typ, frames
+	}
+	if frames := ls.hexagonal(); len(frames) > 0 {
+		return Hexagonal, frames
+	}
+	return "", nil
+}
+
+// lattice3D holds what classify3D learns about a 3D lattice.
+type lattice3D struct {
+	recip  [3][3]float64 // reciprocal vectors, 2π convention
+	vol    float64       // primitive cell volume
+	vecs   [][3]float64  // short lattice vectors, shortest first
+	shells []float64     // the distinct lengths of vecs, ascending
+}
+
+// shortVectors returns the integer combinations (each coefficient in
+// [−2, 2], not all 0) of the reduced basis u, shortest first, and their
+// distinct lengths.
+func shortVectors(u [][3]float64) (vecs [][3]float64, shells []float64) {
 	for a := -2; a <= 2; a++ {
 		for b := -2; b <= 2; b++ {
 			for c := -2; c <= 2; c++ {
@@ -269,69 +289,50 @@ func classify3D(recip [3][3]float64, user [][3]float64) (string, [][][3]float64)
 		}
 	}
 	sort.Slice(vecs, func(i, j int) bool { return Dot(vecs[i], vecs[i]) < Dot(vecs[j], vecs[j]) })
-	var shells []float64 // distinct lengths
 	for _, v := range vecs {
 		l := Norm(v)
 		if len(shells) == 0 || !near(l, shells[len(shells)-1], l) {
 			shells = append(shells, l)
 		}
 	}
-	isLattice := func(v [3]float64) bool {
-		for k := 0; k < 3; k++ {
-			f := Dot(v, recip[k]) / (2 * math.Pi)
-			if math.Abs(f-math.Round(f)) > TypeTol {
-				return false
-			}
-		}
-		return true
-	}
-	ofLength := func(l float64) [][3]float64 {
-		var out [][3]float64
-		for _, v := range vecs {
-			if near(Norm(v), l, l) {
-				out = append(out, v)
-			}
-		}
-		return out
-	}
+	return vecs, shells
+}
 
-	// Cubic: three orthogonal lattice vectors of one length a (the first
-	// shell for sc, the second for fcc and bcc) spanning a cube of volume
-	// a³ = V, 2V or 4V with the body or face centres on the lattice.
-	for si := 0; si < len(shells) && si < 3; si++ {
-		a := shells[si]
-		set := ofLength(a)
-		var e [3][3]float64
-		found := false
-		for _, e1 := range set {
-			for _, e2 := range set {
-				if math.Abs(Dot(e1, e2)) > TypeTol*a*a {
-					continue
-				}
-				e3 := Scale(Cross(e1, e2), 1/a)
-				if isLattice(e3) {
-					e, found = [3][3]float64{e1, e2, e3}, true
-					break
-				}
-			}
-			if found {
-				break
-			}
+// isLattice reports whether v is a lattice vector.
+func (ls *lattice3D) isLattice(v [3]float64) bool {
+	for k := 0; k < 3; k++ {
+		f := Dot(v, ls.recip[k]) / (2 * math.Pi)
+		if math.Abs(f-math.Round(f)) > TypeTol {
+			return false
 		}
+	}
+	return true
+}
+
+// ofLength returns the short vectors of length l.
+func (ls *lattice3D) ofLength(l float64) [][3]float64 {
+	var out [][3]float64
+	for _, v := range ls.vecs {
+		if near(Norm(v), l, l) {
+			out = append(out, v)
+		}
+	}
+	return out
+}
+
+// cubic looks for three orthogonal lattice vectors of one length a (the
+// first shell for sc, the second for fcc and bcc) spanning a cube of
+// volume a³ = V, 2V or 4V with the body or face centres on the lattice,
+// and returns the type and its standard cells, or "".
+func (ls *lattice3D) cubic() (string, [][][3]float64) {
+	for si := 0; si < len(ls.shells) && si < 3; si++ {
+		a := ls.shells[si]
+		e, found := ls.cubeAxes(a)
 		if !found {
 			continue
 		}
-		ratio := a * a * a / vol
-		half := func(v [3]float64) bool { return isLattice(Scale(v, 0.5)) }
-		var typ string
-		switch {
-		case near(ratio, 1, 1):
-			typ = SC
-		case near(ratio, 2, 2) && half(Add(Add(e[0], e[1]), e[2])):
-			typ = BCC
-		case near(ratio, 4, 4) && half(Add(e[0], e[1])) && half(Add(e[1], e[2])) && half(Add(e[0], e[2])):
-			typ = FCC
-		default:
+		typ := ls.cubicType(a, e)
+		if typ == "" {
 			continue
 		}
 		var frames [][][3]float64
@@ -340,38 +341,82 @@ func classify3D(recip [3][3]float64, user [][3]float64) (string, [][][3]float64)
 		}
 		return typ, frames
 	}
+	return "", nil
+}
 
-	// Hexagonal: two vectors of one length at 120° and a third orthogonal
-	// to both, spanning a cell of volume V.
+// cubeAxes finds two orthogonal short vectors of length a whose cross
+// product over a is a lattice vector too.
+func (ls *lattice3D) cubeAxes(a float64) ([3][3]float64, bool) {
+	set := ls.ofLength(a)
+	for _, e1 := range set {
+		for _, e2 := range set {
+			if math.Abs(Dot(e1, e2)) > TypeTol*a*a {
+				continue
+			}
+			e3 := Scale(Cross(e1, e2), 1/a)
+			if ls.isLattice(e3) {
+				return [3][3]float64{e1, e2, e3}, true
+			}
+		}
+	}
+	return [3][3]float64{}, false
+}
+
+// cubicType names the cubic lattice with cube axes e of length a from the
+// cube's volume in primitive cells and which centres are lattice points,
+// or returns "".
+func (ls *lattice3D) cubicType(a float64, e [3][3]float64) string {
+	ratio := a * a * a / ls.vol
+	half := func(v [3]float64) bool { return ls.isLattice(Scale(v, 0.5)) }
+	switch {
+	case near(ratio, 1, 1):
+		return SC
+	case near(ratio, 2, 2) && half(Add(Add(e[0], e[1]), e[2])):
+		return BCC
+	case near(ratio, 4, 4) && half(Add(e[0], e[1])) && half(Add(e[1], e[2])) && half(Add(e[0], e[2])):
+		return FCC
+	}
+	return ""
+}
+
+// hexagonal lists every cell of two vectors of one length at 120° (no
+// longer than the third shell) and a third orthogonal to both, spanning
+// a cell of volume V.
+func (ls *lattice3D) hexagonal() [][][3]float64 {
 	var frames [][][3]float64
 	limit := math.Inf(1)
-	if len(shells) > 2 {
-		limit = shells[2]
+	if len(ls.shells) > 2 {
+		limit = ls.shells[2]
 	}
-	for _, v1 := range vecs {
+	for _, v1 := range ls.vecs {
 		l := Norm(v1)
 		if l > limit*(1+TypeTol) {
 			break
 		}
-		for _, v2 := range vecs {
+		for _, v2 := range ls.vecs {
 			if !near(Norm(v2), l, l) || !near(Dot(v1, v2)/(l*l), -0.5, 1) {
 				continue
 			}
-			for _, v3 := range vecs {
-				c := Norm(v3)
-				if math.Abs(Dot(v1, v3)) > TypeTol*l*c || math.Abs(Dot(v2, v3)) > TypeTol*l*c {
-					continue
-				}
-				if near(math.Abs(Dot(v1, Cross(v2, v3))), vol, vol) {
-					frames = append(frames, [][3]float64{v1, v2, v3})
-				}
-			}
+			frames = append(frames, ls.hexCells(v1, v2, l)...)
 		}
 	}
-	if len(frames) > 0 {
-		return Hexagonal, frames
+	return frames
+}
+
+// hexCells completes the basal pair v1, v2 (of length l) with every short
+// vector orthogonal to both that gives a primitive cell.
+func (ls *lattice3D) hexCells(v1, v2 [3]float64, l float64) [][][3]float64 {
+	var frames [][][3]float64
+	for _, v3 := range ls.vecs {
+		c := Norm(v3)
+		if math.Abs(Dot(v1, v3)) > TypeTol*l*c || math.Abs(Dot(v2, v3)) > TypeTol*l*c {
+			continue
+		}
+		if near(math.Abs(Dot(v1, Cross(v2, v3))), ls.vol, ls.vol) {
+			frames = append(frames, [][3]float64{v1, v2, v3})
+		}
 	}
-	return "", nil
+	return frames
 }
 
 // cubeFrames returns the 48 signed permutations of the cube axes e.
