@@ -317,10 +317,23 @@
 // the cell site i lands in; so springs, shells and blocks that break an
 // operation remove it. Time reversal, D(−q) = D(q)*, always holds.
 //
+// Tolerance: every comparison is made within one length, Options.SymTolA
+// (default DefaultSymTolA = 1e-4 Å): sites must land within it of a site
+// (Cartesian, modulo the lattice); the metric, the polarisation axes and
+// the force-constant test use tolerances derived from it (symmetry.go).
+// The default survives coordinates typed to 5–6 significant digits (6
+// decimals on a 10 Å vector: ~5e-6 Å) and stays far below real
+// distortions (1e-2 Å). A model within the tolerance of a symmetric one is
+// reduced with that symmetry, so its results differ from the unreduced
+// computation by the model's own asymmetry (e.g. 2e-6 THz between modes
+// that would be degenerate); Symmetrize makes the model exactly symmetric
+// (a new model, with its own hash). A tolerance other than the default is
+// part of the hash.
+//
 // ReduceGrid keeps the operations that map the grid onto itself and groups
 // the grid into orbits under them and time reversal (integer
-// multiplicities); the tables are cached (bounded) per lattice operations
-// and grid. GridModes diagonalises one point per orbit and unfolds:
+// multiplicities); the tables are kept, when the caller passes a
+// mesh.ReductionCache, per lattice operations and grid. GridModes diagonalises one point per orbit and unfolds:
 // frequencies are copied, the weight of site π(i) at Sq is that of site i at
 // q, site tensors rotate as C t Cᵀ, eigenvectors as U e (conjugated under
 // time reversal). Per-site weights and tensors are averaged within each
