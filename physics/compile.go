@@ -101,10 +101,10 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		return nil, Validate(nil, opt.Limits)
 	}
 	lim := opt.Limits.withDefaults()
-	var vs violations
+	var vs Violations
 	validate(c, lim, &vs)
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if len(vs.List) > 0 {
+		return nil, vs.Err()
 	}
 	m := newModel(c)
 	toEV := func(k float64) float64 { return k } // force constants to eV/Å²
@@ -129,7 +129,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 			return nil, ctx.Err()
 		}
 		if err != nil {
-			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
+			vs.Add(fmt.Sprintf("shells[%d]", idx), "%v", err)
 			continue
 		}
 		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
@@ -142,10 +142,10 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		}
 	}
 	if m.interactions > lim.MaxInteractions {
-		vs.add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
+		vs.Add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if len(vs.List) > 0 {
+		return nil, vs.Err()
 	}
 	if err := m.addBlocks(ctx, parts, c.Blocks, toEV, opt.EnforceSumRule); err != nil {
 		return nil, err

@@ -87,10 +87,10 @@ func (m *Model) cartQ(q [3]float64) [3]float64 {
 // *ValidationError with fields "path[i].label", "path[i].q.q1" (finite,
 // within ±MaxQ), "points", "spacing_inv_a". The work runs on all cores and stops when ctx is done.
 func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOptions) ([]PathSample, error) {
-	var vs violations
+	var vs Violations
 	qs := make([][3]float64, len(corners))
 	if len(corners) < 2 {
-		vs.add("path", "must have at least 2 points, got %d", len(corners))
+		vs.Add("path", "must have at least 2 points, got %d", len(corners))
 	}
 	for i, c := range corners {
 		f := fmt.Sprintf("path[%d]", i)
@@ -98,16 +98,16 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 			for k, x := range c.Q {
 				switch {
 				case !(math.Abs(x) <= MaxQ):
-					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
+					vs.Add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
 				case k >= m.dim && x != 0:
-					vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
+					vs.Add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
 				}
 			}
 			qs[i] = c.Q
 			continue
 		}
 		if c.Label == "" {
-			vs.add(f, "needs coordinates or a built-in label")
+			vs.Add(f, "needs coordinates or a built-in label")
 			continue
 		}
 		q, ok := m.lookupLabel(c.Label)
@@ -121,19 +121,19 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 			if typ == "" {
 				typ = "unrecognised"
 			}
-			vs.add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, typ, strings.Join(known, ", "))
+			vs.Add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, typ, strings.Join(known, ", "))
 			continue
 		}
 		qs[i] = q
 	}
 	switch {
 	case opt.Points < 0:
-		vs.add("points", "must be ≥ 0, got %d", opt.Points)
+		vs.Add("points", "must be ≥ 0, got %d", opt.Points)
 	case !finite(opt.SpacingInvA) || opt.SpacingInvA < 0:
-		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", opt.SpacingInvA)
+		vs.Add("spacing_inv_a", "must be a finite number ≥ 0, got %v", opt.SpacingInvA)
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if len(vs.List) > 0 {
+		return nil, vs.Err()
 	}
 	// Pieces and segment lengths.
 	seglen := make([]float64, len(corners)) // seglen[i]: segment ending at corner i (0 at piece starts)
@@ -144,7 +144,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		}
 		l := lattice.Norm(lattice.Sub(m.cartQ(qs[i]), m.cartQ(qs[i-1])))
 		if l < 1e-12 {
-			vs.add(fmt.Sprintf("path[%d]", i), "is the same point as path[%d]: a segment needs two distinct points (use break_before to jump)", i-1)
+			vs.Add(fmt.Sprintf("path[%d]", i), "is the same point as path[%d]: a segment needs two distinct points (use break_before to jump)", i-1)
 		}
 		seglen[i] = l
 		total += l
@@ -153,11 +153,11 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		start := i == 0 || corners[i].BreakBefore
 		end := i == len(corners)-1 || corners[i+1].BreakBefore
 		if start && end {
-			vs.add(fmt.Sprintf("path[%d]", i), "is alone in its piece of path: a piece needs at least two points")
+			vs.Add(fmt.Sprintf("path[%d]", i), "is alone in its piece of path: a piece needs at least two points")
 		}
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if len(vs.List) > 0 {
+		return nil, vs.Err()
 	}
 	steps := make([]int, len(corners))
 	nsamples := len(corners)
@@ -173,7 +173,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 			}
 		}
 		if nsamples > MaxPathSamples {
-			vs.add("spacing_inv_a", "%v Å⁻¹ gives more than %d samples over a path of %.4g Å⁻¹", opt.SpacingInvA, MaxPathSamples, total)
+			vs.Add("spacing_inv_a", "%v Å⁻¹ gives more than %d samples over a path of %.4g Å⁻¹", opt.SpacingInvA, MaxPathSamples, total)
 		}
 	} else {
 		n := opt.Points
@@ -182,16 +182,16 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		}
 		switch {
 		case n > MaxPathSamples:
-			vs.add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
+			vs.Add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
 		case n < len(corners):
-			vs.add("points", "must be at least the number of path points (%d), got %d", len(corners), n)
+			vs.Add("points", "must be at least the number of path points (%d), got %d", len(corners), n)
 		default:
 			distributeSteps(seglen, total, n-len(corners), steps)
 			nsamples = n
 		}
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if len(vs.List) > 0 {
+		return nil, vs.Err()
 	}
 
 	// The samples.

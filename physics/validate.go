@@ -86,18 +86,24 @@ func (e *ValidationError) Error() string {
 	return "invalid: " + strings.Join(parts, "; ")
 }
 
-// violations accumulates Violations; the zero value is ready to use.
-type violations struct{ list []Violation }
+// Violations accumulates Violation values, so that a check can report
+// every problem at once; the zero value is ready to use. Packages built on
+// the core (spectra, thermo) validate their options with it too.
+type Violations struct{ List []Violation }
 
-func (vs *violations) add(field, format string, args ...any) {
-	vs.list = append(vs.list, Violation{Field: field, Description: fmt.Sprintf(format, args...)})
+// Add records a violation of field, its description formatted as by
+// fmt.Sprintf.
+func (vs *Violations) Add(field, format string, args ...any) {
+	vs.List = append(vs.List, Violation{Field: field, Description: fmt.Sprintf(format, args...)})
 }
 
-func (vs *violations) err() error {
-	if len(vs.list) == 0 {
+// Err is nil when nothing was recorded, else a *ValidationError listing
+// every violation in the order added.
+func (vs *Violations) Err() error {
+	if len(vs.List) == 0 {
 		return nil
 	}
-	return &ValidationError{Violations: vs.list}
+	return &ValidationError{Violations: vs.List}
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
@@ -107,31 +113,31 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 // or nil. Compile runs it and then checks the shells.
 // A nil c is an error too (field "model"), not a panic.
 func Validate(c *Crystal, lim Limits) error {
-	var vs violations
+	var vs Violations
 	if c == nil {
-		vs.add("model", "is required (got a nil crystal)")
-		return vs.err()
+		vs.Add("model", "is required (got a nil crystal)")
+		return vs.Err()
 	}
 	validate(c, lim.withDefaults(), &vs)
-	return vs.err()
+	return vs.Err()
 }
 
-func validate(c *Crystal, lim Limits, vs *violations) {
+func validate(c *Crystal, lim Limits, vs *Violations) {
 	d := len(c.Lattice)
 	switch {
 	case d == 0:
-		vs.add("lattice", "must have 1 to 3 vectors, got none")
+		vs.Add("lattice", "must have 1 to 3 vectors, got none")
 	case d > 3:
-		vs.add("lattice", "must have 1 to 3 vectors, got %d", d)
+		vs.Add("lattice", "must have 1 to 3 vectors, got %d", d)
 	}
 	latticeOK := d >= 1 && d <= 3
 	for i, v := range c.Lattice {
 		for k, x := range v {
 			if !finite(x) {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
+				vs.Add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
 				latticeOK = false
 			} else if math.Abs(x) > MaxLengthA {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
+				vs.Add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
 				latticeOK = false
 			}
 		}
@@ -139,7 +145,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	if latticeOK {
 		for i, v := range c.Lattice {
 			if l := lattice.Norm(v); l < LatticeTolA {
-				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
+				vs.Add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
 				latticeOK = false
 			}
 		}
@@ -153,51 +159,51 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		what := [...]string{"", "length", "area", "volume"}[d]
 		switch {
 		case m < LatticeTolA:
-			vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
+			vs.Add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
 			latticeOK = false
 		case m < DegenerateLatticeRel*prod:
-			vs.add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
+			vs.Add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
 			latticeOK = false
 		}
 	}
 	if c.Polarizations < 0 || c.Polarizations > 3 {
-		vs.add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
+		vs.Add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
 	}
 	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
-		vs.add("force_unit", "unknown unit %d", c.ForceUnit)
+		vs.Add("force_unit", "unknown unit %d", c.ForceUnit)
 	}
 
 	n := len(c.Sites)
 	if n == 0 {
-		vs.add("sites", "must have at least one site, got none")
+		vs.Add("sites", "must have at least one site, got none")
 	}
 	if n > lim.MaxSites {
-		vs.add("sites", "has %d sites, more than the limit of %d", n, lim.MaxSites)
+		vs.Add("sites", "has %d sites, more than the limit of %d", n, lim.MaxSites)
 	}
 	posOK := make([]bool, n)
 	for i, s := range c.Sites {
 		f := fmt.Sprintf("sites[%d]", i)
 		if !finite(s.MassAmu) {
-			vs.add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
+			vs.Add(f+".mass_amu", "must be finite, got %v", s.MassAmu)
 		} else if s.MassAmu == 0 {
 			// proto3 JSON cannot tell a missing mass from 0.
-			vs.add(f+".mass_amu", "is required (missing or 0): the site's mass in amu, > 0")
+			vs.Add(f+".mass_amu", "is required (missing or 0): the site's mass in amu, > 0")
 		} else if s.MassAmu < 0 {
-			vs.add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
+			vs.Add(f+".mass_amu", "must be > 0, got %v", s.MassAmu)
 		} else if s.MassAmu < MinMassAmu || s.MassAmu > MaxMassAmu {
-			vs.add(f+".mass_amu", "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, s.MassAmu)
+			vs.Add(f+".mass_amu", "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, s.MassAmu)
 		}
 		if d >= 1 && d <= 3 && len(s.Frac) != d {
-			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", d, len(s.Frac))
+			vs.Add(f+".frac", "must have %d numbers (one per lattice vector), got %d", d, len(s.Frac))
 			continue
 		}
 		ok := true
 		for k, x := range s.Frac {
 			if !finite(x) {
-				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
+				vs.Add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
 				ok = false
 			} else if math.Abs(x) > MaxFrac {
-				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be within ±%g, got %v", MaxFrac, x)
+				vs.Add(fmt.Sprintf("%s.frac[%d]", f, k), "must be within ±%g, got %v", MaxFrac, x)
 				ok = false
 			}
 		}
@@ -210,7 +216,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 					continue
 				}
 				if dist := siteSeparation(c, i, j); dist < CoincidenceTolA {
-					vs.add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
+					vs.Add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
 				}
 			}
 		}
@@ -225,22 +231,22 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	checkPair := func(f string, from, to int, cell []int, allowSelf bool) (bondKey, bool) {
 		ok := true
 		if from < 0 || from >= n {
-			vs.add(f+".from_site", "site index %d out of range [0, %d)", from, n)
+			vs.Add(f+".from_site", "site index %d out of range [0, %d)", from, n)
 			ok = false
 		}
 		if to < 0 || to >= n {
-			vs.add(f+".to_site", "site index %d out of range [0, %d)", to, n)
+			vs.Add(f+".to_site", "site index %d out of range [0, %d)", to, n)
 			ok = false
 		}
 		var key bondKey
 		if d >= 1 && d <= 3 && len(cell) != d {
-			vs.add(f+".cell", "must have %d integers (one per lattice vector), got %d", d, len(cell))
+			vs.Add(f+".cell", "must have %d integers (one per lattice vector), got %d", d, len(cell))
 			return key, false
 		}
 		zero := true
 		for k, x := range cell {
 			if x > lim.MaxCellOffset || x < -lim.MaxCellOffset {
-				vs.add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, lim.MaxCellOffset)
+				vs.Add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, lim.MaxCellOffset)
 				ok = false
 			}
 			if x != 0 {
@@ -251,7 +257,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 			}
 		}
 		if ok && from == to && zero && !allowSelf {
-			vs.add(f, "site %d is bonded to itself in the same cell", from)
+			vs.Add(f, "site %d is bonded to itself in the same cell", from)
 			ok = false
 		}
 		key.i, key.j = from, to
@@ -271,9 +277,9 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	}
 	checkForce := func(field string, v float64) {
 		if !finite(v) {
-			vs.add(field, "must be finite, got %v", v)
+			vs.Add(field, "must be finite, got %v", v)
 		} else if math.Abs(v) > maxForce {
-			vs.add(field, "must be within ±%g %s, got %v", maxForce, forceUnit, v)
+			vs.Add(field, "must be within ±%g %s, got %v", maxForce, forceUnit, v)
 		}
 	}
 	for idx, s := range c.Springs {
@@ -294,13 +300,13 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 				}
 			}
 			if l := lattice.Norm(r); l < CoincidenceTolA {
-				vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
+				vs.Add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
 				continue
 			}
 		}
 		ck := canonical(key)
 		if prev, dup := seen[ck]; dup {
-			vs.add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
+			vs.Add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
 			continue
 		}
 		seen[ck] = idx
@@ -309,7 +315,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	for idx, b := range c.Blocks {
 		f := fmt.Sprintf("blocks[%d]", idx)
 		if len(b.Phi) != 9 {
-			vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
+			vs.Add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
 		}
 		for k, x := range b.Phi {
 			checkForce(fmt.Sprintf("%s.phi[%d]", f, k), x)
@@ -320,7 +326,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 		}
 		ck := canonical(key)
 		if prev, dup := seenBlocks[ck]; dup {
-			vs.add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
+			vs.Add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
 			continue
 		}
 		seenBlocks[ck] = idx
@@ -343,26 +349,26 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 			sk.a, sk.b = sk.b, sk.a
 		}
 		if prev, dup := seenShells[sk]; dup {
-			vs.add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
+			vs.Add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
 		} else {
 			seenShells[sk] = idx
 		}
 		if !labels[s.FromLabel] {
-			vs.add(f+".from_label", "no site has label %q", s.FromLabel)
+			vs.Add(f+".from_label", "no site has label %q", s.FromLabel)
 		}
 		if !labels[s.ToLabel] {
-			vs.add(f+".to_label", "no site has label %q", s.ToLabel)
+			vs.Add(f+".to_label", "no site has label %q", s.ToLabel)
 		}
 		if s.Shell < 1 {
-			vs.add(f+".shell", "must be ≥ 1 (1 = nearest neighbours), got %d", s.Shell)
+			vs.Add(f+".shell", "must be ≥ 1 (1 = nearest neighbours), got %d", s.Shell)
 		} else if s.Shell > maxShell {
-			vs.add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
+			vs.Add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
 		}
 		checkForce(f+".k_long", s.KLong)
 		checkForce(f+".k_trans", s.KTrans)
 	}
 	if total > lim.MaxInteractions {
-		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
+		vs.Add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
 	}
 }
 

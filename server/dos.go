@@ -7,6 +7,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -23,14 +24,14 @@ func (s *Service) ComputeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 
 func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequest) (*modegridv1.ComputeDosResponse, error) {
 	var vs violations
-	opt := physics.DOSOptions{PerSite: req.GetPerSite()}
+	opt := spectra.DOSOptions{PerSite: req.GetPerSite()}
 	switch req.GetMethod() {
 	case modegridv1.DosMethod_DOS_METHOD_UNSPECIFIED, modegridv1.DosMethod_DOS_METHOD_TETRAHEDRON:
-		opt.Method = physics.Tetrahedron
+		opt.Method = spectra.Tetrahedron
 	case modegridv1.DosMethod_DOS_METHOD_GAUSSIAN:
-		opt.Method = physics.Gaussian
+		opt.Method = spectra.Gaussian
 	case modegridv1.DosMethod_DOS_METHOD_HISTOGRAM:
-		opt.Method = physics.Histogram
+		opt.Method = spectra.Histogram
 	default:
 		vs.add("method", "unknown method %d", req.GetMethod())
 	}
@@ -49,16 +50,16 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 		name string
 		v    float64
 	}{{"min", req.GetMin()}, {"max", req.GetMax()}, {"step", req.GetStep()}, {"width", req.GetWidth()}} {
-		if !(math.Abs(f.v) <= physics.MaxDOSFrequency) {
-			vs.add(f.name, "must be a finite number within ±%g (in the request's unit), got %v", physics.MaxDOSFrequency, f.v)
+		if !(math.Abs(f.v) <= spectra.MaxDOSFrequency) {
+			vs.add(f.name, "must be a finite number within ±%g (in the request's unit), got %v", spectra.MaxDOSFrequency, f.v)
 		}
 	}
 	opt.Min, opt.Max, opt.Step = canonFloat(req.GetMin()), canonFloat(req.GetMax()), canonFloat(req.GetStep())
-	if opt.Method == physics.Gaussian {
+	if opt.Method == spectra.Gaussian {
 		opt.Width = canonFloat(req.GetWidth())
 	}
 	// The window, step and width are checked here, before any work, in
-	// the words physics.ComputeDOS would use after the grid's modes.
+	// the words spectra.ComputeDOS would use after the grid's modes.
 	if !(opt.Min == 0 && opt.Max == 0) && opt.Max <= opt.Min {
 		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", opt.Min, opt.Max)
 	}
@@ -67,8 +68,8 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	}
 	if opt.Width < 0 {
 		vs.add("width", "must be > 0 (0 for the default), got %g", opt.Width)
-	} else if opt.Width > 0 && opt.Width < physics.MinDOSWidth {
-		vs.add("width", "must be ≥ %g (in the request's unit; 0 for the default), got %v", physics.MinDOSWidth, opt.Width)
+	} else if opt.Width > 0 && opt.Width < spectra.MinDOSWidth {
+		vs.add("width", "must be ≥ %g (in the request's unit; 0 for the default), got %v", spectra.MinDOSWidth, opt.Width)
 	}
 	if opt.Step > 0 && opt.Max > opt.Min {
 		if n := (opt.Max-opt.Min)/opt.Step + 1; n > float64(s.cfg.MaxDOSBins) {
@@ -85,7 +86,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	}
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", false, &vs)
 	if e != nil {
-		bins := 500.0 // physics.DefaultDOSBins with a chosen step
+		bins := 500.0 // spectra.DefaultDOSBins with a chosen step
 		if opt.Step > 0 && opt.Max > opt.Min {
 			bins = (opt.Max-opt.Min)/opt.Step + 1
 		}
@@ -118,7 +119,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	} else {
 		p.add("step", fmtFloat(opt.Step))
 	}
-	if opt.Method == physics.Gaussian {
+	if opt.Method == spectra.Gaussian {
 		if opt.Width == 0 {
 			p.add("width", "auto")
 		} else {
@@ -134,7 +135,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	canon := p.String()
 
 	return cachedResult(ctx, s, kindDOS, e.hash, canon, dosCodec, func(ctx context.Context) (*modegridv1.ComputeDosResponse, error) {
-		var res *physics.DOSResult
+		var res *spectra.DOSResult
 		err := s.admitted(ctx, est, func(ctx context.Context) error {
 			g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{sites: opt.PerSite})
 			if err != nil {
@@ -142,7 +143,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 			}
 			return s.run(ctx, kindDOS, func(ctx context.Context) error {
 				var err error
-				res, err = physics.ComputeDOS(ctx, e.m, g, opt)
+				res, err = spectra.ComputeDOS(ctx, e.m, g, opt)
 				return err
 			})
 		})
@@ -157,7 +158,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	})
 }
 
-func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.ComputeDosResponse {
+func dosToProto(e *modelEntry, canon string, r *spectra.DOSResult) *modegridv1.ComputeDosResponse {
 	out := &modegridv1.ComputeDosResponse{
 		ModelHash:      e.hash,
 		Parameters:     canon,
@@ -182,14 +183,14 @@ func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.C
 // dosEstimate is the cost of a DOS request: the grid's modes (with site
 // weights for a per-site DOS), the DOS, and the reply twice (the message
 // and its encoding).
-func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.DOSOptions) estimate {
+func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt spectra.DOSOptions) estimate {
 	size := s.gridSize(e, spec)
-	samples := physics.DefaultDOSBins + 1
+	samples := spectra.DefaultDOSBins + 1
 	if opt.Step > 0 && opt.Max > opt.Min {
 		samples = int((opt.Max-opt.Min)/opt.Step) + 1
 	}
 	c := physics.GridModesCost(size, physics.GridOptions{Projections: opt.PerSite})
-	c = c.Plus(physics.DOSCost(size, opt, samples, true))
+	c = c.Plus(spectra.DOSCost(size, opt, samples, true))
 	series := int64(3)
 	if opt.PerSite {
 		series += 2 * int64(e.m.Sites())
