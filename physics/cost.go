@@ -17,7 +17,7 @@ import (
 // is lower, since transient arrays are freed on the way. Counting total
 // allocation rather than the live peak is deliberate: a collector that lags
 // behind (GOGC) keeps garbage resident, so what was allocated is what the
-// process may hold. TestCostLadder checks every estimator against the
+// process may hold. TestCostLadder (physics/thermo) checks every estimator against the
 // measured allocation of real runs: never below, never more than 2× above.
 //
 // Work (Cost.Flops) is an operation count from the dominant loops

@@ -3,7 +3,7 @@
 // orders of magnitude) drawn from fixed seeds. A failure prints the seed and
 // the model so that it can be reproduced. More models:
 //
-//	go test -run TestProperty ./physics -args -props.n=500
+//	go test -run TestProperty ./physics/... -args -props.n=500
 
 package physics
 

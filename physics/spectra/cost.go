@@ -1,9 +1,10 @@
 package spectra
 
 import (
+	"math"
+
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
-	"math"
 )
 
 // Cost estimate of ComputeDOS, for admission control (the conventions of

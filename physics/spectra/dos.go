@@ -4,12 +4,11 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"github.com/materials-lab/modegrid/physics"
 	"math"
 
-	"github.com/materials-lab/modegrid/physics/mesh"
-
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // DOSMethod selects how ComputeDOS turns grid modes into a density of

@@ -8,14 +8,13 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // dosConvergence enables TestDOSConvergenceTable, which takes about a
 // minute (a 128³ reference grid) and so stays out of `make test`:
 //
-//	go test -run TestDOSConvergenceTable -v ./physics/ -args -dos.convergence
+//	go test -run TestDOSConvergenceTable -v ./physics/spectra -args -dos.convergence
 var dosConvergence = flag.Bool("dos.convergence", false, "run the DOS convergence study (slow)")
 
 // convergenceL1 is the relative L1 distance Σ|g − g_ref|/Σ g_ref of two DOS

@@ -8,7 +8,6 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 

@@ -2,9 +2,9 @@ package spectra
 
 import (
 	"context"
+
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 

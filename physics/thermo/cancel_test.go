@@ -12,9 +12,8 @@ import (
 	"time"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // TestCancelThermal: the thermal sums over a large grid and many
@@ -44,7 +43,7 @@ var cancelTable = flag.Bool("cancel.table", false, "measure the cancel-to-return
 // stage is hit. It asserts nothing; it prints the table quoted in
 // DEVELOPERS.md. Run:
 //
-//	go test -run TestCancelLatencyTable -v ./physics/ -args -cancel.table
+//	go test -run TestCancelLatencyTable -v ./physics/thermo -args -cancel.table
 func TestCancelLatencyTable(t *testing.T) {
 	if !*cancelTable {
 		t.Skip("the latency table runs with -args -cancel.table")

@@ -8,9 +8,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // measureAlloc runs fn with the garbage collector off and returns the heap

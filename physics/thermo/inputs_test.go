@@ -5,9 +5,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // TestGridModesOtherModel: grid modes record the model that made them;

@@ -5,9 +5,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // TestMSDEinstein: an Einstein oscillator of mass m and frequency ω has

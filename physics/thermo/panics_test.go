@@ -7,9 +7,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 type faultKey struct{}

@@ -8,9 +8,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // relEqual compares a and b to rel relative to the largest magnitude of the

@@ -8,9 +8,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
-	"github.com/materials-lab/modegrid/physics/spectra"
-
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 func mustThermal(t testing.TB, m *physics.Model, g *physics.GridModes, opt ThermalOptions) *ThermalResult {
