@@ -69,6 +69,7 @@ const (
 	reasonWorkTooLong     = "work_too_long"
 	reasonReplyTooLarge   = "reply_too_large"
 	reasonMemoryBusy      = "memory_busy"
+	reasonCompileTooLong  = "compile_too_long"
 )
 
 // memoryLimit is the memory the process may use and where that figure
@@ -174,9 +175,9 @@ func newBudget(cfg Config, reg prometheus.Registerer) *budget {
 		maxSecs: cfg.MaxComputeSeconds, cores: runtime.GOMAXPROCS(0), describe: how}
 	b.refused = prometheus.NewCounterVec(prometheus.CounterOpts{
 		Namespace: "modegrid", Name: "admission_refused_total",
-		Help: "Requests refused by estimated cost before any work, by reason (memory_never_fits, work_too_long, reply_too_large, memory_busy).",
+		Help: "Requests refused by estimated cost before any work, by reason (memory_never_fits, work_too_long, reply_too_large, memory_busy, compile_too_long).",
 	}, []string{"reason"})
-	for _, r := range []string{reasonMemoryNeverFits, reasonWorkTooLong, reasonReplyTooLarge, reasonMemoryBusy} {
+	for _, r := range []string{reasonMemoryNeverFits, reasonWorkTooLong, reasonReplyTooLarge, reasonMemoryBusy, reasonCompileTooLong} {
 		b.refused.WithLabelValues(r)
 	}
 	reg.MustRegister(b.refused,
@@ -199,6 +200,9 @@ type estimate struct {
 	cost   physics.Cost
 	field  string // the request field to change
 	change string // what to change, in words ("a smaller grid", …)
+	// lower marks a lower bound computed from the request before its
+	// model is compiled (precompile.go): the refusal says "at least".
+	lower bool
 }
 
 // check adds to vs what makes the request impossible on this server: an
@@ -212,13 +216,17 @@ func (b *budget) check(vs *violations, e estimate) {
 
 // verdict says why e could never be admitted ("" when it could).
 func (b *budget) verdict(e estimate) (reason, msg string) {
+	atLeast := ""
+	if e.lower {
+		atLeast = "at least "
+	}
 	if e.cost.Bytes > b.total {
-		return reasonMemoryNeverFits, fmt.Sprintf("estimated peak memory %s exceeds this server's memory budget %s (memory-budget); ask for %s",
-			fmtBytes(e.cost.Bytes), fmtBytes(b.total), e.change)
+		return reasonMemoryNeverFits, fmt.Sprintf("estimated peak memory %s%s exceeds this server's memory budget %s (memory-budget); ask for %s",
+			atLeast, fmtBytes(e.cost.Bytes), fmtBytes(b.total), e.change)
 	}
 	if secs := e.cost.Seconds(b.cores); secs > b.maxSecs {
-		return reasonWorkTooLong, fmt.Sprintf("estimated work %.3g floating-point operations, about %.0f s on %d cores, exceeds this server's bound max-compute-seconds=%g; ask for %s",
-			e.cost.Flops, secs, b.cores, b.maxSecs, e.change)
+		return reasonWorkTooLong, fmt.Sprintf("estimated work %s%.3g floating-point operations, about %.0f s on %d cores, exceeds this server's bound max-compute-seconds=%g; ask for %s",
+			atLeast, e.cost.Flops, secs, b.cores, b.maxSecs, e.change)
 	}
 	return "", ""
 }
@@ -314,12 +322,16 @@ func (s *Service) gridSize(e *modelEntry, spec mesh.GridSpec) physics.GridSize {
 // (with eigenvectors for mean-square displacements), the sums, and the
 // reply twice.
 func (s *Service) thermalEstimate(e *modelEntry, spec mesh.GridSpec, opt thermo.ThermalOptions) estimate {
-	size := s.gridSize(e, spec)
+	return thermalCost(s.gridSize(e, spec), opt)
+}
+
+// thermalCost is thermalEstimate for a model of size.
+func thermalCost(size physics.GridSize, opt thermo.ThermalOptions) estimate {
 	c := physics.GridModesCost(size, physics.GridOptions{Eigenvectors: opt.MSD})
 	c = c.Plus(thermo.ThermalCost(size, len(opt.TempsK), opt.MSD, opt.Route, true))
 	per := int64(100)
 	if opt.MSD {
-		per += int64(e.m.Sites()) * 110
+		per += int64(size.Sites) * 110
 	}
 	c.Bytes += 2 * per * int64(len(opt.TempsK))
 	change := "a smaller grid (qpoints)"
@@ -332,11 +344,22 @@ func (s *Service) thermalEstimate(e *modelEntry, spec mesh.GridSpec, opt thermo.
 // stabilityEstimate is the cost of CheckModel's search for imaginary
 // modes: the frequencies on the coarse stability grid.
 func (s *Service) stabilityEstimate(e *modelEntry, side int) estimate {
+	spec := stabilitySpec(e.m.Dim(), side)
+	return stabilityCost(s.gridSize(e, spec))
+}
+
+// stabilitySpec is the coarse stability grid of a dim-dimensional model.
+func stabilitySpec(dim, side int) mesh.GridSpec {
 	spec := mesh.GridSpec{Mesh: [3]int{side, side, side}}
-	for k := e.m.Dim(); k < 3; k++ {
+	for k := dim; k < 3; k++ {
 		spec.Mesh[k] = 1
 	}
-	c := physics.GridModesCost(s.gridSize(e, spec), physics.GridOptions{})
+	return spec
+}
+
+// stabilityCost is stabilityEstimate for a model of size.
+func stabilityCost(size physics.GridSize) estimate {
+	c := physics.GridModesCost(size, physics.GridOptions{})
 	c.Bytes += 64 << 10 // the summary and its encoding
 	return estimate{cost: c, field: "model", change: "a model with fewer sites (or a server with a larger stability-mesh budget)"}
 }

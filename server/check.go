@@ -28,6 +28,9 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	var e *modelEntry
 	var err error
 	if src.GetCrystal() != nil {
+		if s.precheckCheck(&vs, src) {
+			return nil, vs.err() // refused from the request alone, before compiling
+		}
 		e, err = s.resolve(ctx, src, &mvs)
 	} else {
 		e, err = s.resolve(ctx, src, &vs)

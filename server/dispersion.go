@@ -52,6 +52,9 @@ func (s *Service) computeDispersion(ctx context.Context, req *modegridv1.Compute
 			vs.add("points", "%d samples exceed this server's cap max-path-points=%d", opt.Points, s.cfg.MaxPathPoints)
 		}
 	}
+	if s.precheck(&vs, req.GetModel(), nil) {
+		return nil, vs.err() // the compile alone is over the bound
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return nil, err

@@ -76,6 +76,9 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 			vs.add("step", "the window %v…%v in steps of %v is %.0f samples, over this server's cap max-dos-bins=%d", opt.Min, opt.Max, opt.Step, n, s.cfg.MaxDOSBins)
 		}
 	}
+	if s.precheckDOS(&vs, req, opt) {
+		return nil, vs.err() // refused from the request alone, before compiling
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return nil, err
@@ -86,15 +89,7 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	}
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", false, &vs)
 	if e != nil {
-		bins := 500.0 // spectra.DefaultDOSBins with a chosen step
-		if opt.Step > 0 && opt.Max > opt.Min {
-			bins = (opt.Max-opt.Min)/opt.Step + 1
-		}
-		series := 3.0
-		if opt.PerSite {
-			series += 2 * float64(e.m.Sites())
-		}
-		s.checkReply(&vs, "step", bins*series*8, fmt.Sprintf("%.0f samples × %.0f series", bins, series))
+		s.checkDOSReply(&vs, opt, e.m.Sites())
 	}
 	var est estimate
 	if len(vs.list) == 0 {
@@ -158,6 +153,20 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 	})
 }
 
+// checkDOSReply refuses a DOS whose reply for a model of sites sites
+// cannot fit one message.
+func (s *Service) checkDOSReply(vs *violations, opt spectra.DOSOptions, sites int) {
+	bins := 500.0 // spectra.DefaultDOSBins with a chosen step
+	if opt.Step > 0 && opt.Max > opt.Min {
+		bins = (opt.Max-opt.Min)/opt.Step + 1
+	}
+	series := 3.0
+	if opt.PerSite {
+		series += 2 * float64(sites)
+	}
+	s.checkReply(vs, "step", bins*series*8, fmt.Sprintf("%.0f samples × %.0f series", bins, series))
+}
+
 func dosToProto(e *modelEntry, canon string, r *spectra.DOSResult) *modegridv1.ComputeDosResponse {
 	out := &modegridv1.ComputeDosResponse{
 		ModelHash:      e.hash,
@@ -184,7 +193,11 @@ func dosToProto(e *modelEntry, canon string, r *spectra.DOSResult) *modegridv1.C
 // weights for a per-site DOS), the DOS, and the reply twice (the message
 // and its encoding).
 func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt spectra.DOSOptions) estimate {
-	size := s.gridSize(e, spec)
+	return dosCost(s.gridSize(e, spec), opt)
+}
+
+// dosCost is dosEstimate for a model of size.
+func dosCost(size physics.GridSize, opt spectra.DOSOptions) estimate {
 	samples := spectra.DefaultDOSBins + 1
 	if opt.Step > 0 && opt.Max > opt.Min {
 		samples = int((opt.Max-opt.Min)/opt.Step) + 1
@@ -193,7 +206,7 @@ func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt spectra.DOS
 	c = c.Plus(spectra.DOSCost(size, opt, samples, true))
 	series := int64(3)
 	if opt.PerSite {
-		series += 2 * int64(e.m.Sites())
+		series += 2 * int64(size.Sites)
 	}
 	c.Bytes += 2 * 8 * series * int64(samples)
 	change := "a smaller grid (qpoints)"

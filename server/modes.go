@@ -28,6 +28,10 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	if !validUnit(req.GetUnit()) {
 		vs.add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
+	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
+	if s.precheckModes(&vs, req, opt) {
+		return vs.err() // refused from the request alone, before compiling
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return err
@@ -38,7 +42,6 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	}
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", true, &vs)
 	unit := unitFromProto(req.GetUnit())
-	opt := physics.ModeOptions{Eigenvectors: req.GetEigenvectors(), Velocities: req.GetGroupVelocities()}
 	var est estimate
 	if len(vs.list) == 0 {
 		est = s.modesEstimate(e, qs.count, opt, &vs)
@@ -103,8 +106,13 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 // 1536² complex numbers, 38 MB) is refused here, before any work, and so
 // is a stream over the budget or the compute-time bound.
 func (s *Service) modesEstimate(e *modelEntry, count int, opt physics.ModeOptions, vs *violations) estimate {
-	est, per := s.modesCost(e, count, opt)
-	s.checkReply(vs, est.field, per, fmt.Sprintf("one q-point of %d modes", e.m.Modes()))
+	return s.checkModes(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), count, opt, vs)
+}
+
+// checkModes is modesEstimate for a model of size.
+func (s *Service) checkModes(size physics.GridSize, count int, opt physics.ModeOptions, vs *violations) estimate {
+	est, per := s.streamCost(size, count, opt)
+	s.checkReply(vs, est.field, per, fmt.Sprintf("one q-point of %d modes", size.Sites*size.P))
 	s.budget.check(vs, est)
 	return est
 }
@@ -113,7 +121,12 @@ func (s *Service) modesEstimate(e *modelEntry, count int, opt physics.ModeOption
 // list, the chunks computed ahead, and a message and its encoding; per is
 // the size of one point's message.
 func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (estimate, float64) {
-	n := float64(e.m.Modes())
+	return s.streamCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), count, opt)
+}
+
+// streamCost is modesCost for a model of size.
+func (s *Service) streamCost(size physics.GridSize, count int, opt physics.ModeOptions) (estimate, float64) {
+	n := float64(size.Sites * size.P)
 	per := 8*n + modeChunkOverhead
 	field := "qpoints"
 	if opt.Eigenvectors {
@@ -124,7 +137,6 @@ func (s *Service) modesCost(e *modelEntry, count int, opt physics.ModeOptions) (
 		per += 24 * n
 	}
 	chunk := max(1, min(s.cfg.ChunkPoints, s.cfg.MaxChunkBytes/int(per)))
-	size := e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
 	c := physics.StreamCost(size, count, chunk, 0, opt)
 	c.Bytes += 32*int64(count) + 2*int64(per)*int64(chunk)
 	change := "fewer q-points (qpoints)"

@@ -166,17 +166,11 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 		vs.add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
 		return nil, nil
 	}
-	norm := &modegridv1.ModelSource{
-		Source:         &modegridv1.ModelSource_Crystal{Crystal: src.GetCrystal()},
-		EnforceSumRule: src.GetEnforceSumRule(),
-	}
-	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
+	norm, raw, key, err := inlineKey(src)
 	if err != nil {
 		vs.add("model.crystal", "cannot be serialised: %v", err)
 		return nil, nil
 	}
-	sum := sha256.Sum256(raw)
-	key := cache.Key{Kind: kindInline, Model: hex.EncodeToString(sum[:])}
 	// The compile is shared by every concurrent caller of the same model
 	// (cache.Do): its ctx ends when the last of them has left, so one
 	// caller's deadline never cancels it for the others, and a compile
@@ -211,6 +205,21 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	}
 	noteModel(ctx, e.hash)
 	return e, nil
+}
+
+// inlineKey is the normalised source of an inline model, its
+// deterministic serialisation and the cache key of its compile.
+func inlineKey(src *modegridv1.ModelSource) (*modegridv1.ModelSource, []byte, cache.Key, error) {
+	norm := &modegridv1.ModelSource{
+		Source:         &modegridv1.ModelSource_Crystal{Crystal: src.GetCrystal()},
+		EnforceSumRule: src.GetEnforceSumRule(),
+	}
+	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
+	if err != nil {
+		return nil, nil, cache.Key{}, err
+	}
+	sum := sha256.Sum256(raw)
+	return norm, raw, cache.Key{Kind: kindInline, Model: hex.EncodeToString(sum[:])}, nil
 }
 
 // isValidation reports whether err carries physics validation violations.

@@ -132,6 +132,9 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		vs.add("route", "unknown route %d", req.GetRoute())
 	}
 	opt.TempsK = s.temperatures(req, &vs)
+	if s.precheckThermal(&vs, req, opt) {
+		return nil, vs.err() // refused from the request alone, before compiling
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return nil, err
@@ -142,11 +145,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	}
 	qs := s.parseQSet(req.GetQpoints(), dim, "qpoints", false, &vs)
 	if e != nil {
-		per := 100.0 // ten numbers and framing
-		if opt.MSD {
-			per += float64(e.m.Sites()) * 110
-		}
-		s.checkReply(&vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
+		s.checkThermalReply(&vs, opt, e.m.Sites())
 	}
 	var est estimate
 	if len(vs.list) == 0 {
@@ -183,6 +182,16 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 		}
 		return thermalToProto(e, canon, res), nil
 	})
+}
+
+// checkThermalReply refuses a thermal call whose reply for a model of
+// sites sites cannot fit one message.
+func (s *Service) checkThermalReply(vs *violations, opt thermo.ThermalOptions, sites int) {
+	per := 100.0 // ten numbers and framing
+	if opt.MSD {
+		per += float64(sites) * 110
+	}
+	s.checkReply(vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
 }
 
 func thermalToProto(e *modelEntry, canon string, r *thermo.ThermalResult) *modegridv1.ComputeThermalResponse {

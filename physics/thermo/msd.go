@@ -86,7 +86,7 @@ func collectModes(ctx context.Context, m *physics.Model, g *physics.GridModes, s
 // gammaZeroAcoustic returns the bit set of the acoustic modes among the
 // modes f at Γ (the p of smallest |ν|, of the first 64) that are zero to
 // rounding: |ν| ≤ the zero tolerance, or negative (at Γ they are never
-// counted imaginary, see spectrumStats). The thermal sums leave out these
+// counted imaginary, see spectra.Stats). The thermal sums leave out these
 // and modes of zero or negative frequency, and nothing else: a relative cut
 // on every point would drop the whole acoustic branch of a model with a
 // large stiffness contrast (all its acoustic frequencies below 1e-6 of the

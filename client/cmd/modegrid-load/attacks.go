@@ -21,22 +21,32 @@ import (
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-// attacks lists the suite's rows in the order they run.
+// attacks lists the suite's rows in the order they run: refusals of
+// requests too large, two calls together over the memory budget, calls
+// cut by their deadline, then cancellation, injected panics and a restart.
 func attacks() []attack {
-	refused := func(name string, fn func(ctx context.Context, c *client.Client) error) attack {
-		return attack{name: name, kind: expectRefusal, want: codes.InvalidArgument, short: true, long: true,
-			run: func(ctx context.Context, a *arena) (outcome, error) {
-				// Cold: the server compiles the model first. Warm: the
-				// same request again, the model compiled and known by hash.
-				var o, warm outcome
-				call(&o, func() error { return fn(ctx, a.c) })
-				call(&warm, func() error { return fn(ctx, a.c) })
-				o.codes = append(o.codes, warm.codes...)
-				o.warm = warm.elapsed
-				return o, nil
-			}}
-	}
-	out := []attack{
+	return slices.Concat(refusalAttacks(), deadlineAttacks(), faultAttacks())
+}
+
+// refused is a row whose request must be refused with INVALID_ARGUMENT,
+// cold (the server compiles the model first) and warm (the same request
+// again, the model compiled and known by hash).
+func refused(name string, fn func(ctx context.Context, c *client.Client) error) attack {
+	return attack{name: name, kind: expectRefusal, want: codes.InvalidArgument, short: true, long: true,
+		run: func(ctx context.Context, a *arena) (outcome, error) {
+			var o, warm outcome
+			call(&o, func() error { return fn(ctx, a.c) })
+			call(&warm, func() error { return fn(ctx, a.c) })
+			o.codes = append(o.codes, warm.codes...)
+			o.warm = warm.elapsed
+			return o, nil
+		}}
+}
+
+// refusalAttacks are the rows of requests the server must refuse before
+// computing, and of two calls that fit only one at a time.
+func refusalAttacks() []attack {
+	return []attack{
 		refused("ComputeDos, 216 sites, 160³ grid, per-site DOS", func(ctx context.Context, c *client.Client) error {
 			_, err := c.DOS(ctx, &modegridv1.ComputeDosRequest{Model: model(216, true), Qpoints: client.Grid(160, 160, 160), PerSite: true})
 			return err
@@ -69,6 +79,12 @@ func attacks() []attack {
 			run: twoFitting},
 		{name: "2 × ComputeThermal at once, 8 sites, mean-square displacements, together over the budget", kind: expectRun,
 			want: codes.OK, also: codes.ResourceExhausted, long: true, run: twoFitting},
+	}
+}
+
+// deadlineAttacks are the rows of calls that run past their deadline.
+func deadlineAttacks() []attack {
+	return []attack{
 		deadline("CheckModel, 64 sites, work bound lifted, 300 ms deadline (mid-diagonalisation)", true, false,
 			[]string{"--max-compute-seconds", "1e9"}, 300*time.Millisecond, func(ctx context.Context, c *client.Client) error {
 				_, err := c.Check(ctx, &modegridv1.CheckModelRequest{Model: model(64, true)})
@@ -105,6 +121,13 @@ func attacks() []attack {
 					TemperaturesK: []float64{300}, Msd: true})
 				return err
 			}),
+	}
+}
+
+// faultAttacks are the rows of a cancelled stream, panics injected in the
+// engine and a restart under load.
+func faultAttacks() []attack {
+	return []attack{
 		{name: "ComputeModes, 64 sites, 1000 q-points with eigenvectors, cancelled after the first message", kind: expectCancel,
 			want: codes.Canceled, short: true, long: true, run: cancelStream},
 		{name: "ComputeModes (stream), panic injected in an engine worker", kind: expectRun, want: codes.Internal, short: true, long: true,
@@ -128,7 +151,6 @@ func attacks() []attack {
 		{name: "restart under load: 6 callers, SIGTERM, a new server on the same port", kind: expectRun, want: codes.OK, short: true, long: true,
 			run: restartUnderLoad},
 	}
-	return out
 }
 
 // deadline is a row whose call runs past its deadline d.

@@ -110,8 +110,29 @@ type options struct {
 	only         string // with adversarial: only the rows whose request contains this
 }
 
+// rawFlags are the flags that options holds only once converted: lists
+// to split, files to turn into dial options.
+type rawFlags struct {
+	models, kinds        string // comma-separated
+	mesh                 uint
+	token, ca, cert, key string
+}
+
+// parseFlags parses the command line and reports every violation at once.
 func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	o := &options{}
+	var raw rawFlags
+	fs := newFlagSet(o, &raw, stderr)
+	if err := fs.Parse(args); err != nil {
+		return nil, err
+	}
+	errs := o.check(raw.mesh)
+	errs = append(errs, o.resolve(raw)...)
+	return o, errors.Join(errs...)
+}
+
+// newFlagSet defines the flags, writing into o and raw.
+func newFlagSet(o *options, raw *rawFlags, stderr io.Writer) *flag.FlagSet {
 	fs := flag.NewFlagSet("modegrid-load", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	fs.StringVar(&o.cfg.target, "server", "", "address of a running modegridd (host:port)")
@@ -122,11 +143,10 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	fs.IntVar(&o.cfg.concurrency, "c", 8, "concurrent callers, each with one call in flight")
 	fs.DurationVar(&o.cfg.duration, "d", 10*time.Second, "how long callers start new calls")
 	fs.Float64Var(&o.cfg.cached, "cached", 0.8, "fraction of calls drawn from the warm (cached) set")
-	models := fs.String("models", strings.Join(examples.Names(), ","), "example crystals to use, comma-separated")
-	var mesh uint
-	fs.UintVar(&mesh, "grid", 12, "grid divisions per direction of DOS and thermal calls on 3D models (2D: 2.5×, 1D: 20×)")
+	fs.StringVar(&raw.models, "models", strings.Join(examples.Names(), ","), "example crystals to use, comma-separated")
+	fs.UintVar(&raw.mesh, "grid", 12, "grid divisions per direction of DOS and thermal calls on 3D models (2D: 2.5×, 1D: 20×)")
 	fs.IntVar(&o.cfg.modesPoints, "modes-points", 64, "q-points of a cold modes call")
-	kinds := fs.String("cold-kinds", strings.Join(coldKinds, ","), "kinds of cold calls, comma-separated")
+	fs.StringVar(&raw.kinds, "cold-kinds", strings.Join(coldKinds, ","), "kinds of cold calls, comma-separated")
 	fs.DurationVar(&o.cfg.callTimeout, "timeout", 30*time.Second, "deadline of each call")
 	fs.Uint64Var(&o.cfg.seed, "seed", 1, "seed of the request mix (math/rand/v2 PCG)")
 	fs.DurationVar(&o.sigtermAfter, "sigterm-after", 0, "with --spawn: send SIGTERM after this long, once every caller has a call in flight")
@@ -134,17 +154,19 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	fs.BoolVar(&o.adversarial, "adversarial", false, "with --spawn: run the adversarial suite (a fresh server per request; markdown table) instead of a load")
 	fs.StringVar(&o.only, "only", "", "with --adversarial: run only the rows whose request contains this text")
 	fs.BoolVar(&o.long, "long", false, "with --adversarial: the long form (the requests at full size; minutes)")
-	token := fs.String("token", "", "bearer token")
-	ca := fs.String("ca", "", "CA file: use TLS and trust it")
-	cert := fs.String("cert", "", "client certificate file (mutual TLS; with --key)")
-	key := fs.String("key", "", "client key file")
+	fs.StringVar(&raw.token, "token", "", "bearer token")
+	fs.StringVar(&raw.ca, "ca", "", "CA file: use TLS and trust it")
+	fs.StringVar(&raw.cert, "cert", "", "client certificate file (mutual TLS; with --key)")
+	fs.StringVar(&raw.key, "key", "", "client key file")
 	fs.Usage = func() {
 		fmt.Fprintf(fs.Output(), "usage: modegrid-load (--spawn BIN | --server ADDR) [flags]\n\n")
 		fs.PrintDefaults()
 	}
-	if err := fs.Parse(args); err != nil {
-		return nil, err
-	}
+	return fs
+}
+
+// check returns every violation among the parsed options and --grid.
+func (o *options) check(mesh uint) []error {
 	var errs []error
 	if (o.cfg.target == "") == (o.spawn == "") {
 		errs = append(errs, errors.New("give exactly one of --server and --spawn"))
@@ -170,8 +192,15 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 	if mesh < 1 || mesh > 64 || o.cfg.modesPoints < 1 {
 		errs = append(errs, errors.New("--grid must be 1…64 and --modes-points ≥ 1"))
 	}
-	o.cfg.mesh3D = uint32(mesh)
-	for _, k := range strings.Split(*kinds, ",") {
+	return errs
+}
+
+// resolve converts raw into o.cfg (grid, cold kinds, models, dial
+// options), returning every violation.
+func (o *options) resolve(raw rawFlags) []error {
+	var errs []error
+	o.cfg.mesh3D = uint32(raw.mesh)
+	for _, k := range strings.Split(raw.kinds, ",") {
 		k = strings.TrimSpace(k)
 		if !slices.Contains(coldKinds, k) {
 			errs = append(errs, fmt.Errorf("--cold-kinds: %q is not one of %s", k, strings.Join(coldKinds, ", ")))
@@ -179,7 +208,7 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 		}
 		o.cfg.coldKinds = append(o.cfg.coldKinds, k)
 	}
-	for _, name := range strings.Split(*models, ",") {
+	for _, name := range strings.Split(raw.models, ",") {
 		c, err := examples.Load(strings.TrimSpace(name))
 		if err != nil {
 			errs = append(errs, err)
@@ -188,18 +217,18 @@ func parseFlags(args []string, stderr io.Writer) (*options, error) {
 		o.cfg.models = append(o.cfg.models, namedModel{name: name, crystal: c})
 	}
 	o.cfg.dial = []client.Option{client.WithMaxAttempts(1), client.WithFailFast()}
-	if *token != "" {
-		o.cfg.dial = append(o.cfg.dial, client.WithToken(*token))
+	if raw.token != "" {
+		o.cfg.dial = append(o.cfg.dial, client.WithToken(raw.token))
 	}
-	if *ca != "" {
-		o.cfg.dial = append(o.cfg.dial, client.WithCAFile(*ca))
+	if raw.ca != "" {
+		o.cfg.dial = append(o.cfg.dial, client.WithCAFile(raw.ca))
 	}
-	if (*cert == "") != (*key == "") {
+	if (raw.cert == "") != (raw.key == "") {
 		errs = append(errs, errors.New("--cert and --key go together"))
-	} else if *cert != "" {
-		o.cfg.dial = append(o.cfg.dial, client.WithClientCertificate(*cert, *key))
+	} else if raw.cert != "" {
+		o.cfg.dial = append(o.cfg.dial, client.WithClientCertificate(raw.cert, raw.key))
 	}
-	return o, errors.Join(errs...)
+	return errs
 }
 
 func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
@@ -230,7 +259,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 }
 
 // load performs the run o describes, starting and stopping the child
-// modegridd when asked.
+// modegridd when asked: start the target, run the callers while sampling
+// memory (and sending SIGTERM part-way, if asked), then summarise the
+// calls and what the server said about itself.
 func load(ctx context.Context, o *options) (*report, error) {
 	cfg := o.cfg
 	var ch *child
@@ -259,59 +290,8 @@ func load(ctx context.Context, o *options) (*report, error) {
 	srv := &serverStats{Rejected: map[string]float64{}}
 	var before map[string]float64
 
-	// Memory sampling while the run lasts.
-	sctx, stopSampling := context.WithCancel(ctx)
-	var sampled sync.WaitGroup
-	var peakSampled uint64
-	sampled.Add(1)
-	go func() {
-		defer sampled.Done()
-		tick := time.NewTicker(100 * time.Millisecond)
-		defer tick.Stop()
-		for {
-			var v uint64
-			switch {
-			case ch != nil:
-				v, _ = ch.rss()
-			case metricsURL != "":
-				m, err := scrape(sctx, metricsURL)
-				if err == nil {
-					v = uint64(m["process_resident_memory_bytes"])
-				}
-			}
-			peakSampled = max(peakSampled, v)
-			select {
-			case <-tick.C:
-			case <-sctx.Done():
-				return
-			}
-		}
-	}()
-
-	var sig *sigtermStats
-	var signalled time.Time
-	sigDone := make(chan struct{})
-	if o.sigtermAfter > 0 {
-		go func() {
-			defer close(sigDone)
-			t := time.NewTimer(o.sigtermAfter)
-			defer t.Stop()
-			select {
-			case <-t.C:
-			case <-ctx.Done():
-				return
-			}
-			// At a moment every caller has a call in flight (waiting at most
-			// 10 s for one), SIGTERM; no call starts afterwards.
-			srv.PeakRSSBytes, _ = ch.peakRSS()
-			n, at := e.haltWhenFull(cfg.concurrency, 10*time.Second, func() { ch.terminate() })
-			sig = &sigtermStats{InFlight: n, Codes: map[string]int{}}
-			signalled = at
-			close(stop)
-		}()
-	} else {
-		close(sigDone)
-	}
+	mem := sampleMemory(ctx, ch, metricsURL)
+	sg := startSigterm(ctx, o.sigtermAfter, ch, e, srv, stop)
 
 	start := time.Now()
 	// The warm-up happens inside run; "before" is scraped by the engine's
@@ -324,91 +304,203 @@ func load(ctx context.Context, o *options) (*report, error) {
 		start = time.Now()
 	}
 	if err := e.run(ctx); err != nil {
-		stopSampling()
-		sampled.Wait()
+		mem.stop()
 		return nil, err
 	}
 	elapsed := time.Since(start)
-	<-sigDone
-	stopSampling()
-	sampled.Wait()
+	<-sg.done
+	peakSampled := mem.stop()
 
+	rep := summarizeRun(cfg, e.samples, elapsed)
+	if sg.stats != nil {
+		if err := sg.finish(e.samples, ch, srv); err != nil {
+			return nil, err
+		}
+		rep.Sigterm = sg.stats
+		rep.Server = srv
+		return rep, nil
+	}
+	if metricsURL != "" {
+		readServerMetrics(ctx, metricsURL, before, srv)
+		rep.Server = srv
+	}
+	switch {
+	case ch != nil:
+		rep.Server = srv
+		if err := finishChild(ch, srv); err != nil {
+			return nil, err
+		}
+	case metricsURL != "":
+		srv.PeakRSSBytes = peakSampled
+		srv.RSSSource = "largest process_resident_memory_bytes sampled every 100 ms"
+	}
+	return rep, nil
+}
+
+// memorySampler samples the server's resident memory every 100 ms while
+// a run lasts, keeping the largest value.
+type memorySampler struct {
+	cancel context.CancelFunc
+	wg     sync.WaitGroup
+	peak   uint64 // written by the sampling goroutine until stop
+}
+
+// sampleMemory starts sampling the child's VmRSS, or else
+// process_resident_memory_bytes at metricsURL, or else nothing (peak 0).
+func sampleMemory(ctx context.Context, ch *child, metricsURL string) *memorySampler {
+	sctx, cancel := context.WithCancel(ctx)
+	m := &memorySampler{cancel: cancel}
+	m.wg.Add(1)
+	go func() {
+		defer m.wg.Done()
+		tick := time.NewTicker(100 * time.Millisecond)
+		defer tick.Stop()
+		for {
+			var v uint64
+			switch {
+			case ch != nil:
+				v, _ = ch.rss()
+			case metricsURL != "":
+				met, err := scrape(sctx, metricsURL)
+				if err == nil {
+					v = uint64(met["process_resident_memory_bytes"])
+				}
+			}
+			m.peak = max(m.peak, v)
+			select {
+			case <-tick.C:
+			case <-sctx.Done():
+				return
+			}
+		}
+	}()
+	return m
+}
+
+// stop ends the sampling and returns the largest value sampled.
+func (m *memorySampler) stop() uint64 {
+	m.cancel()
+	m.wg.Wait()
+	return m.peak
+}
+
+// sigterm is the SIGTERM fault of a run: its outcome is valid once done
+// is closed (stats nil: no signal was sent).
+type sigterm struct {
+	done      chan struct{}
+	stats     *sigtermStats
+	signalled time.Time
+}
+
+// startSigterm, for after > 0, sends the child SIGTERM after that long,
+// at a moment every caller has a call in flight (waiting at most 10 s for
+// one), records the child's peak RSS just before in srv, and closes stop
+// so that no call starts afterwards. For after == 0 it does nothing.
+func startSigterm(ctx context.Context, after time.Duration, ch *child, e *engine, srv *serverStats, stop chan struct{}) *sigterm {
+	sg := &sigterm{done: make(chan struct{})}
+	if after <= 0 {
+		close(sg.done)
+		return sg
+	}
+	go func() {
+		defer close(sg.done)
+		t := time.NewTimer(after)
+		defer t.Stop()
+		select {
+		case <-t.C:
+		case <-ctx.Done():
+			return
+		}
+		srv.PeakRSSBytes, _ = ch.peakRSS()
+		n, at := e.haltWhenFull(e.cfg.concurrency, 10*time.Second, func() { ch.terminate() })
+		sg.stats = &sigtermStats{InFlight: n, Codes: map[string]int{}}
+		sg.signalled = at
+		close(stop)
+	}()
+	return sg
+}
+
+// finish counts how the calls in flight at the signal ended (and those
+// begun as it went out), waits for the child to exit and records its exit
+// in sg.stats and srv.
+func (sg *sigterm) finish(samples []sample, ch *child, srv *serverStats) error {
+	sig := sg.stats
+	for _, s := range samples {
+		if !s.start.Before(sg.signalled) {
+			sig.StartedAfter++
+			continue
+		}
+		end := s.start.Add(s.latency)
+		if end.Before(sg.signalled) {
+			continue // finished before the signal
+		}
+		sig.MaxAfterSignalMs = max(sig.MaxAfterSignalMs, float64(end.Sub(sg.signalled).Microseconds())/1000)
+		switch {
+		case s.code.String() != "OK":
+			sig.Codes[s.code.String()]++
+		case s.bad != "":
+			sig.Incomplete++
+		default:
+			sig.Codes["OK"]++
+		}
+	}
+	code, err := ch.wait(time.Minute)
+	if err != nil {
+		return err
+	}
+	sig.ExitCode = code
+	sig.ExitAfterMs = float64(time.Since(sg.signalled).Microseconds()) / 1000
+	srv.ExitCode = code
+	srv.RSSSource = "VmHWM of the child before SIGTERM"
+	return nil
+}
+
+// summarizeRun is the report of the calls made, all and by class.
+func summarizeRun(cfg config, samples []sample, elapsed time.Duration) *report {
 	rep := &report{Target: cfg.target, Concurrency: cfg.concurrency, DurationS: elapsed.Seconds(), CachedFraction: cfg.cached}
 	var cached, cold []sample
-	for _, s := range e.samples {
+	for _, s := range samples {
 		if s.class == classCached {
 			cached = append(cached, s)
 		} else {
 			cold = append(cold, s)
 		}
 	}
-	rep.All, rep.Cached, rep.Cold = summarize(e.samples), summarize(cached), summarize(cold)
+	rep.All, rep.Cached, rep.Cold = summarize(samples), summarize(cached), summarize(cold)
 	rep.Calls = rep.All.Calls
 	rep.ThroughputPerS = float64(rep.Calls) / elapsed.Seconds()
+	return rep
+}
 
-	if sig != nil {
-		for _, s := range e.samples {
-			if !s.start.Before(signalled) {
-				sig.StartedAfter++
-				continue
-			}
-			end := s.start.Add(s.latency)
-			if end.Before(signalled) {
-				continue // finished before the signal
-			}
-			sig.MaxAfterSignalMs = max(sig.MaxAfterSignalMs, float64(end.Sub(signalled).Microseconds())/1000)
-			switch {
-			case s.code.String() != "OK":
-				sig.Codes[s.code.String()]++
-			case s.bad != "":
-				sig.Incomplete++
-			default:
-				sig.Codes["OK"]++
-			}
-		}
-		code, err := ch.wait(time.Minute)
-		if err != nil {
-			return nil, err
-		}
-		sig.ExitCode = code
-		sig.ExitAfterMs = float64(time.Since(signalled).Microseconds()) / 1000
-		srv.ExitCode = code
-		srv.RSSSource = "VmHWM of the child before SIGTERM"
-		rep.Sigterm = sig
-		rep.Server = srv
-		return rep, nil
+// readServerMetrics records in srv the goroutines before the run and,
+// once settled, after it, and the cache and rejection counters.
+func readServerMetrics(ctx context.Context, metricsURL string, before map[string]float64, srv *serverStats) {
+	after := scrapeSettled(ctx, metricsURL, before["go_goroutines"])
+	srv.GoroutinesBefore, srv.GoroutinesAfter = before["go_goroutines"], after["go_goroutines"]
+	srv.CacheMaxBytes = after["modegrid_cache_max_bytes"]
+	srv.CacheBytes = sum(after, "modegrid_cache_bytes")
+	srv.CacheEvictions = sum(after, "modegrid_cache_evictions_total")
+	for _, r := range []string{"queue_full", "wait_timeout"} {
+		srv.Rejected[r] = after[`modegrid_computations_rejected_total{reason="`+r+`"}`]
 	}
+}
 
-	if metricsURL != "" {
-		after := scrapeSettled(ctx, metricsURL, before["go_goroutines"])
-		srv.GoroutinesBefore, srv.GoroutinesAfter = before["go_goroutines"], after["go_goroutines"]
-		srv.CacheMaxBytes = after["modegrid_cache_max_bytes"]
-		srv.CacheBytes = sum(after, "modegrid_cache_bytes")
-		srv.CacheEvictions = sum(after, "modegrid_cache_evictions_total")
-		for _, r := range []string{"queue_full", "wait_timeout"} {
-			srv.Rejected[r] = after[`modegrid_computations_rejected_total{reason="`+r+`"}`]
-		}
-		rep.Server = srv
+// finishChild records the child's peak RSS in srv, stops it with SIGTERM
+// and records its exit code.
+func finishChild(ch *child, srv *serverStats) error {
+	var err error
+	srv.PeakRSSBytes, err = ch.peakRSS()
+	if err != nil {
+		return err
 	}
-	switch {
-	case ch != nil:
-		srv.PeakRSSBytes, err = ch.peakRSS()
-		if err != nil {
-			return nil, err
-		}
-		srv.RSSSource = "VmHWM of the child"
-		rep.Server = srv
-		ch.terminate()
-		code, err := ch.wait(time.Minute)
-		if err != nil {
-			return nil, err
-		}
-		srv.ExitCode = code
-	case metricsURL != "":
-		srv.PeakRSSBytes = peakSampled
-		srv.RSSSource = "largest process_resident_memory_bytes sampled every 100 ms"
+	srv.RSSSource = "VmHWM of the child"
+	ch.terminate()
+	code, err := ch.wait(time.Minute)
+	if err != nil {
+		return err
 	}
-	return rep, nil
+	srv.ExitCode = code
+	return nil
 }
 
 // scrapeSettled scrapes url until go_goroutines is back to want (at most

@@ -29,7 +29,7 @@ type demoRow struct {
 	stable            bool
 	maxTHz            float64
 	cv300, zpe        float64
-	theta300          string // θ_D(300 K) as thermalTheta prints it
+	theta300          string // θ_D(300 K) as thetaCell prints it (one decimal)
 }
 
 func cmdDemo(args []string, e *env) error {
@@ -103,7 +103,9 @@ func cmdDemo(args []string, e *env) error {
 	return err
 }
 
-// demoOne runs the four steps on one example and writes its files.
+// demoOne runs the four steps on one example and writes its files: check,
+// dispersion, DOS per site and thermal properties (one CSV each), then the
+// three figures. It returns the summary row and the number of files written.
 func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind string, grid uint32) (demoRow, int, error) {
 	crystal, err := examples.Load(name)
 	if err != nil {
@@ -111,93 +113,148 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	}
 	d, p := dims(crystal)
 	row := demoRow{name: name, dim: d, sites: len(crystal.GetSites())}
-	src := client.Inline(crystal)
-	base := filepath.Join(dir, name)
-	files := 0
-	save := func(suffix string, fn func(io.Writer) error) error {
-		f, err := os.Create(base + suffix)
-		if err != nil {
-			return fmt.Errorf("cannot write: %w", err)
-		}
-		if err := fn(f); err != nil {
-			f.Close()
-			return err
-		}
-		files++
-		return f.Close()
-	}
+	st := &demoStep{ctx: ctx, cl: cl, e: e, name: name, src: client.Inline(crystal), base: filepath.Join(dir, name)}
 
-	done := e.prog.running(name + ": check")
-	chk, err := cl.Check(ctx, &modegridv1.CheckModelRequest{Model: src})
-	done()
+	chk, err := st.check(crystal.GetName())
 	if err != nil {
-		return row, files, err
-	}
-	if !chk.GetValid() {
-		return row, files, fmt.Errorf("the example is invalid: %v", chk.GetViolations())
+		return row, st.files, err
 	}
 	row.modes, row.stable, row.maxTHz = int(chk.GetModesPerCell()), chk.GetStable(), chk.GetMaxFrequencyThz()
-	if err := save("-check.csv", func(w io.Writer) error { return writeCheck(w, "csv", crystal.GetName(), chk) }); err != nil {
-		return row, files, err
-	}
-
-	corners, err := defaultPath(chk)
+	disp, err := st.dispersion(chk)
 	if err != nil {
-		return row, files, fmt.Errorf("no default path for lattice type %q: %w", chk.GetLatticeType(), err)
+		return row, st.files, err
 	}
-	done = e.prog.running(name + ": dispersion")
-	disp, err := cl.Dispersion(ctx, &modegridv1.ComputeDispersionRequest{Model: src, Path: pathPoints(corners), SiteWeights: true})
-	done()
-	if err != nil {
-		return row, files, err
-	}
-	if err := save("-path.csv", func(w io.Writer) error { return writePath(w, "csv", disp) }); err != nil {
-		return row, files, err
-	}
-
 	mesh := grid
 	if mesh == 0 {
 		mesh = defaultMeshFor(d)
 	}
 	set := client.Grid(expandMesh([]uint32{mesh}, d)...)
-	done = e.prog.running(name + ": density of states")
-	dos, err := cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: set, PerSite: true})
-	done()
+	dos, err := st.dos(set)
 	if err != nil {
-		return row, files, err
+		return row, st.files, err
 	}
-	if err := save("-dos.csv", func(w io.Writer) error { return writeDOS(w, "csv", dos) }); err != nil {
-		return row, files, err
-	}
-
-	done = e.prog.running(name + ": thermal properties")
-	th, err := cl.Thermal(ctx, &modegridv1.ComputeThermalRequest{Model: src, Qpoints: set,
-		Range: &modegridv1.TemperatureRange{StartK: 0, StopK: 1000, StepK: 10}})
-	done()
+	th, err := st.thermal(set)
 	if err != nil {
-		return row, files, err
+		return row, st.files, err
 	}
-	if err := save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th, basisAtoms) }); err != nil {
-		return row, files, err
-	}
-	best := math.Inf(1)
-	for _, pt := range th.GetPoints() {
-		if dT := math.Abs(pt.GetTemperatureK() - 300); dT < best {
-			best, row.cv300, row.theta300 = dT, pt.GetHeatCapacityJPerMolAtomsK(), thetaCell(pt, 1)
-		}
-	}
+	row.cv300, row.theta300 = thermalNear300(th)
 	row.zpe = th.GetZeroPointEnergyKjPerMolAtoms()
 
 	ext := "." + kind
 	title := crystal.GetName() + " (example)"
-	if err := plotDispersion(base+"-dispersion"+ext, kind, dispersionFigure{disp: disp, dos: dos, key: newSiteKey(siteLabels(crystal)), title: title}); err != nil {
-		return row, files, err
+	if err := plotDispersion(st.base+"-dispersion"+ext, kind, dispersionFigure{disp: disp, dos: dos, key: newSiteKey(siteLabels(crystal)), title: title}); err != nil {
+		return row, st.files, err
 	}
-	if err := plotDOS(base+"-dos"+ext, kind, dos, false, title); err != nil {
-		return row, files, err
+	if err := plotDOS(st.base+"-dos"+ext, kind, dos, false, title); err != nil {
+		return row, st.files, err
 	}
-	if err := plotThermal(base+"-thermal"+ext, kind, thermalFigure{th: th, basis: basisAtoms, sites: row.sites, pol: p, title: title}); err != nil {
-		return row, files, err
+	if err := plotThermal(st.base+"-thermal"+ext, kind, thermalFigure{th: th, basis: basisAtoms, sites: row.sites, pol: p, title: title}); err != nil {
+		return row, st.files, err
 	}
-	return row, files + 3, nil
+	return row, st.files + 3, nil
+}
+
+// demoStep holds what every step of one example's demo needs: the call
+// context and client, the example's name and model, and the path prefix
+// of its files, with the count of files written so far.
+type demoStep struct {
+	ctx   context.Context
+	cl    *client.Client
+	e     *env
+	name  string
+	src   *modegridv1.ModelSource
+	base  string // dir/name; each file adds a suffix
+	files int
+}
+
+// save writes base+suffix with fn and counts the file.
+func (st *demoStep) save(suffix string, fn func(io.Writer) error) error {
+	f, err := os.Create(st.base + suffix)
+	if err != nil {
+		return fmt.Errorf("cannot write: %w", err)
+	}
+	if err := fn(f); err != nil {
+		f.Close()
+		return err
+	}
+	st.files++
+	return f.Close()
+}
+
+// check checks the example (it must be valid) and writes -check.csv.
+func (st *demoStep) check(crystalName string) (*modegridv1.CheckModelResponse, error) {
+	done := st.e.prog.running(st.name + ": check")
+	chk, err := st.cl.Check(st.ctx, &modegridv1.CheckModelRequest{Model: st.src})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	if !chk.GetValid() {
+		return nil, fmt.Errorf("the example is invalid: %v", chk.GetViolations())
+	}
+	if err := st.save("-check.csv", func(w io.Writer) error { return writeCheck(w, "csv", crystalName, chk) }); err != nil {
+		return nil, err
+	}
+	return chk, nil
+}
+
+// dispersion computes the dispersion along the default path of the
+// example's lattice type, with site weights, and writes -path.csv.
+func (st *demoStep) dispersion(chk *modegridv1.CheckModelResponse) (*modegridv1.ComputeDispersionResponse, error) {
+	corners, err := defaultPath(chk)
+	if err != nil {
+		return nil, fmt.Errorf("no default path for lattice type %q: %w", chk.GetLatticeType(), err)
+	}
+	done := st.e.prog.running(st.name + ": dispersion")
+	disp, err := st.cl.Dispersion(st.ctx, &modegridv1.ComputeDispersionRequest{Model: st.src, Path: pathPoints(corners), SiteWeights: true})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	if err := st.save("-path.csv", func(w io.Writer) error { return writePath(w, "csv", disp) }); err != nil {
+		return nil, err
+	}
+	return disp, nil
+}
+
+// dos computes the DOS per site on set and writes -dos.csv.
+func (st *demoStep) dos(set *modegridv1.QPointSet) (*modegridv1.ComputeDosResponse, error) {
+	done := st.e.prog.running(st.name + ": density of states")
+	dos, err := st.cl.DOS(st.ctx, &modegridv1.ComputeDosRequest{Model: st.src, Qpoints: set, PerSite: true})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	if err := st.save("-dos.csv", func(w io.Writer) error { return writeDOS(w, "csv", dos) }); err != nil {
+		return nil, err
+	}
+	return dos, nil
+}
+
+// thermal computes the thermal properties on set from 0 to 1000 K in
+// steps of 10 K and writes -thermal.csv.
+func (st *demoStep) thermal(set *modegridv1.QPointSet) (*modegridv1.ComputeThermalResponse, error) {
+	done := st.e.prog.running(st.name + ": thermal properties")
+	th, err := st.cl.Thermal(st.ctx, &modegridv1.ComputeThermalRequest{Model: st.src, Qpoints: set,
+		Range: &modegridv1.TemperatureRange{StartK: 0, StopK: 1000, StepK: 10}})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	if err := st.save("-thermal.csv", func(w io.Writer) error { return writeThermal(w, "csv", th, basisAtoms) }); err != nil {
+		return nil, err
+	}
+	return th, nil
+}
+
+// thermalNear300 returns the heat capacity (J/(K·mol atoms)) and θ_D as
+// thetaCell prints it (one decimal) at the temperature of th nearest 300 K.
+func thermalNear300(th *modegridv1.ComputeThermalResponse) (cv float64, theta string) {
+	best := math.Inf(1)
+	for _, pt := range th.GetPoints() {
+		if dT := math.Abs(pt.GetTemperatureK() - 300); dT < best {
+			best, cv, theta = dT, pt.GetHeatCapacityJPerMolAtomsK(), thetaCell(pt, 1)
+		}
+	}
+	return cv, theta
 }

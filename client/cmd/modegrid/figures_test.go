@@ -155,6 +155,49 @@ func TestThermalBasisConvert(t *testing.T) {
 	}
 }
 
+// thermalResiduals runs `thermal --measured file --basis basis` on the
+// diatomic chain and returns the CSV header and the rows as numbers.
+func thermalResiduals(t *testing.T, file, basis string) ([]string, [][]float64) {
+	t.Helper()
+	code, out, stderr := runCLI(t, "thermal", "-m", example("diatomic-chain"), "--grid", "16", "--measured", file,
+		"--basis", basis, "--format", "csv")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	recs, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+	if err != nil || len(recs) < 2 {
+		t.Fatalf("CSV %q: %v", out, err)
+	}
+	var vals [][]float64
+	for _, r := range recs[1:] {
+		row := make([]float64, len(r))
+		for i, c := range r {
+			if row[i], err = strconv.ParseFloat(c, 64); err != nil {
+				t.Fatalf("cell %q: %v", c, err)
+			}
+		}
+		vals = append(vals, row)
+	}
+	return recs[0], vals
+}
+
+// writeThermalMeasured writes a measured heat-capacity file at path: per
+// row of rows (residual tables; T in column 1) its temperature and the
+// value and σ col takes from it, under the header column.
+func writeThermalMeasured(t *testing.T, path string, rows [][]float64, column string, col func(r []float64) (float64, float64)) string {
+	t.Helper()
+	var b strings.Builder
+	fmt.Fprintf(&b, "T_K,%s,sigma\n", column)
+	for _, r := range rows {
+		y, s := col(r)
+		fmt.Fprintf(&b, "%s,%s,%s\n", num(r[1]), num(y), num(s))
+	}
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return path
+}
+
 // TestMeasuredBasis: the measured heat capacities of a file declared per
 // mole of atoms, per mole of cells or per kilogram are converted to the
 // --basis of the residual table, whose columns name that basis. The same
@@ -164,39 +207,16 @@ func TestThermalBasisConvert(t *testing.T) {
 // those per mole of atoms (the chain has two sites per cell).
 func TestMeasuredBasis(t *testing.T) {
 	dir := t.TempDir()
-	residuals := func(t *testing.T, file, basis string) ([]string, [][]float64) {
-		t.Helper()
-		code, out, stderr := runCLI(t, "thermal", "-m", example("diatomic-chain"), "--grid", "16", "--measured", file,
-			"--basis", basis, "--format", "csv")
-		if code != exitOK {
-			t.Fatalf("exit %d: %s", code, stderr)
-		}
-		recs, err := csv.NewReader(strings.NewReader(out)).ReadAll()
-		if err != nil || len(recs) < 2 {
-			t.Fatalf("CSV %q: %v", out, err)
-		}
-		var vals [][]float64
-		for _, r := range recs[1:] {
-			row := make([]float64, len(r))
-			for i, c := range r {
-				if row[i], err = strconv.ParseFloat(c, 64); err != nil {
-					t.Fatalf("cell %q: %v", c, err)
-				}
-			}
-			vals = append(vals, row)
-		}
-		return recs[0], vals
-	}
 	// Columns: line, T_K, measured, sigma, model, residual, residual_over_sigma.
-	atomsHead, atoms := residuals(t, testdata("measured-thermal.csv"), "atoms")
+	atomsHead, atoms := thermalResiduals(t, testdata("measured-thermal.csv"), "atoms")
 	if atomsHead[2] != "measured_Cv_J_per_molatom_K" || atomsHead[4] != "model_Cv_J_per_molatom_K" {
 		t.Errorf("header %q; want the per-atom basis named", atomsHead)
 	}
-	cellsHead, cells := residuals(t, testdata("measured-thermal.csv"), "cells")
+	cellsHead, cells := thermalResiduals(t, testdata("measured-thermal.csv"), "cells")
 	if cellsHead[2] != "measured_Cv_J_per_molcell_K" || cellsHead[4] != "model_Cv_J_per_molcell_K" {
 		t.Errorf("header %q; want the per-cell basis named", cellsHead)
 	}
-	kgHead, kg := residuals(t, testdata("measured-thermal.csv"), "kg")
+	kgHead, kg := thermalResiduals(t, testdata("measured-thermal.csv"), "kg")
 	if kgHead[2] != "measured_Cv_J_per_kg_K" {
 		t.Errorf("header %q; want the per-kg basis named", kgHead)
 	}
@@ -212,26 +232,13 @@ func TestMeasuredBasis(t *testing.T) {
 	}
 	// The same data declared per mole of cells and per kilogram (written
 	// from the kg table) give the per-atom table again.
-	write := func(name, column string, col func(r []float64) (float64, float64)) string {
-		var b strings.Builder
-		fmt.Fprintf(&b, "T_K,%s,sigma\n", column)
-		for _, r := range kg {
-			y, s := col(r)
-			fmt.Fprintf(&b, "%s,%s,%s\n", num(r[1]), num(y), num(s))
-		}
-		f := filepath.Join(dir, name)
-		if err := os.WriteFile(f, []byte(b.String()), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return f
-	}
-	perCell := write("cells.csv", "Cv_J_per_molcell_K", func(r []float64) (float64, float64) {
+	perCell := writeThermalMeasured(t, filepath.Join(dir, "cells.csv"), kg, "Cv_J_per_molcell_K", func(r []float64) (float64, float64) {
 		i := slices.IndexFunc(cells, func(c []float64) bool { return c[1] == r[1] })
 		return cells[i][2], cells[i][3]
 	})
-	perKg := write("kg.csv", "Cv_J_per_kg_K", func(r []float64) (float64, float64) { return r[2], r[3] })
+	perKg := writeThermalMeasured(t, filepath.Join(dir, "kg.csv"), kg, "Cv_J_per_kg_K", func(r []float64) (float64, float64) { return r[2], r[3] })
 	for _, f := range []string{perCell, perKg} {
-		_, again := residuals(t, f, "atoms")
+		_, again := thermalResiduals(t, f, "atoms")
 		for i := range atoms {
 			for c := 2; c < len(atoms[i]); c++ {
 				if !same(again[i][c], atoms[i][c]) && math.Abs(again[i][c]-atoms[i][c]) > 1e-9 {

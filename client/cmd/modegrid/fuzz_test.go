@@ -187,44 +187,59 @@ func FuzzParseTemps(f *testing.F) {
 			t.Fatalf("%q: list %v and range %v; want exactly one", s, list, r)
 		}
 		if r == nil {
-			if len(list) == 0 || len(list) > maxListItems {
-				t.Fatalf("%q: %d temperatures; want 1…%d", s, len(list), maxListItems)
-			}
-			parts := make([]string, len(list))
-			for i, x := range list {
-				checkFinite(t, s, x)
-				if x < 0 {
-					t.Fatalf("%q: accepted %v K", s, x)
-				}
-				parts[i] = strconv.FormatFloat(x, 'g', -1, 64)
-			}
-			again, rr, err := parseTemps(strings.Join(parts, ","))
-			if err != nil || rr != nil || !reflect.DeepEqual(again, list) {
-				t.Fatalf("%q: printed as %q, parsed back as %v, %v, %v", s, strings.Join(parts, ","), again, rr, err)
-			}
+			checkTempList(t, s, list)
 			return
 		}
-		checkFinite(t, s, r.Start, r.Stop, r.Step)
-		if r.Start < 0 || r.Stop < r.Start || !(r.Step > 0) {
-			t.Fatalf("%q: accepted the range %+v", s, *r)
-		}
-		ts := rangeTemps(*r)
-		if len(ts) == 0 || len(ts) > maxListItems {
-			t.Fatalf("%q: %d temperatures in the range; want 1…%d", s, len(ts), maxListItems)
-		}
-		for i, x := range ts {
-			if x < r.Start || x > r.Stop+1e-9*r.Step || (i > 0 && x < ts[i-1]) {
-				t.Fatalf("%q: temperature %d is %v, outside [%v, %v] or out of order", s, i, x, r.Start, r.Stop)
-			}
-		}
-		// rangeTemps promises the server's list. Where a step is below the
-		// resolution of the temperatures (start + step == start) the two
-		// cannot agree; the CLI sends the range itself, so only the count
-		// shown locally would differ (noted for the CLI owner).
-		if r.Start+r.Step > r.Start && r.Stop+r.Step > r.Stop {
-			if n := serverRangeCount(*r); n <= maxListItems && float64(len(ts)) != n {
-				t.Fatalf("%q: rangeTemps gives %d temperatures, the server %v", s, len(ts), n)
-			}
-		}
+		checkTempRange(t, s, *r)
 	})
+}
+
+// checkTempList checks a list of temperatures parsed from s: 1 to
+// maxListItems finite values ≥ 0 K that print and parse back unchanged.
+func checkTempList(t *testing.T, s string, list []float64) {
+	t.Helper()
+	if len(list) == 0 || len(list) > maxListItems {
+		t.Fatalf("%q: %d temperatures; want 1…%d", s, len(list), maxListItems)
+	}
+	parts := make([]string, len(list))
+	for i, x := range list {
+		checkFinite(t, s, x)
+		if x < 0 {
+			t.Fatalf("%q: accepted %v K", s, x)
+		}
+		parts[i] = strconv.FormatFloat(x, 'g', -1, 64)
+	}
+	again, rr, err := parseTemps(strings.Join(parts, ","))
+	if err != nil || rr != nil || !reflect.DeepEqual(again, list) {
+		t.Fatalf("%q: printed as %q, parsed back as %v, %v, %v", s, strings.Join(parts, ","), again, rr, err)
+	}
+}
+
+// checkTempRange checks a range parsed from s: finite, ordered, a step
+// > 0, and expanding to 1 to maxListItems ascending temperatures within
+// it, as many as the server makes of it.
+func checkTempRange(t *testing.T, s string, r tempRange) {
+	t.Helper()
+	checkFinite(t, s, r.Start, r.Stop, r.Step)
+	if r.Start < 0 || r.Stop < r.Start || !(r.Step > 0) {
+		t.Fatalf("%q: accepted the range %+v", s, r)
+	}
+	ts := rangeTemps(r)
+	if len(ts) == 0 || len(ts) > maxListItems {
+		t.Fatalf("%q: %d temperatures in the range; want 1…%d", s, len(ts), maxListItems)
+	}
+	for i, x := range ts {
+		if x < r.Start || x > r.Stop+1e-9*r.Step || (i > 0 && x < ts[i-1]) {
+			t.Fatalf("%q: temperature %d is %v, outside [%v, %v] or out of order", s, i, x, r.Start, r.Stop)
+		}
+	}
+	// rangeTemps promises the server's list. Where a step is below the
+	// resolution of the temperatures (start + step == start) the two
+	// cannot agree; the CLI sends the range itself, so only the count
+	// shown locally would differ (noted for the CLI owner).
+	if r.Start+r.Step > r.Start && r.Stop+r.Step > r.Stop {
+		if n := serverRangeCount(r); n <= maxListItems && float64(len(ts)) != n {
+			t.Fatalf("%q: rangeTemps gives %d temperatures, the server %v", s, len(ts), n)
+		}
+	}
 }

@@ -121,74 +121,26 @@ func siteColumns(prefix string, labels []string, index []int) []string {
 
 // ---- check ----
 
+// checkRow is one property of a check report: its CSV key, its table
+// label and its value as printed.
+type checkRow struct{ key, human, value string }
+
+// writeCheck writes a check report as JSON, CSV (property,value; full
+// precision) or a two-column table (rounded for reading).
 func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelResponse) error {
 	if format == "json" {
 		return writeJSON(w, r)
 	}
 	csv := format == "csv"
-	// Tables round for reading; CSV keeps full precision.
-	real := func(x float64) string {
-		if csv {
-			return num(x)
-		}
-		return strconv.FormatFloat(x, 'g', 6, 64)
-	}
-	freq := func(x float64) string {
-		if csv {
-			return num(x)
-		}
-		return f4(x)
-	}
-	type kv struct{ key, human, value string }
-	yes := func(b bool) string {
-		if b {
-			return "yes"
-		}
-		return "no"
-	}
-	rows := []kv{
+	rows := []checkRow{
 		{"name", "model", name},
-		{"valid", "valid", yes(r.GetValid())},
+		{"valid", "valid", yesNo(r.GetValid())},
 	}
 	if r.GetValid() {
-		var labels []string
-		for _, p := range r.GetStandardPoints() {
-			labels = append(labels, displayLabel(p.GetLabel()))
-		}
-		rows = append(rows,
-			kv{"model_hash", "model hash", r.GetModelHash()},
-			kv{"dimensions", "dimensions", fmt.Sprint(r.GetDimensions())},
-			kv{"lattice_type", "lattice type", r.GetLatticeType()},
-			kv{"standard_points", "built-in points", strings.Join(labels, " ")},
-			kv{"sites", "sites", fmt.Sprint(r.GetSites())},
-			kv{"polarizations", "polarizations", fmt.Sprint(r.GetPolarizations())},
-			kv{"modes_per_cell", "modes per cell", fmt.Sprint(r.GetModesPerCell())},
-			kv{"interactions", "interactions", fmt.Sprint(r.GetInteractions())},
-		)
-		for _, s := range r.GetShells() {
-			rows = append(rows,
-				kv{fmt.Sprintf("shell_%d_bonds", s.GetShell()), fmt.Sprintf("shells[%d] bonds", s.GetShell()), fmt.Sprint(s.GetBonds())},
-				kv{fmt.Sprintf("shell_%d_distance_a", s.GetShell()), fmt.Sprintf("shells[%d] distance (Å)", s.GetShell()), real(s.GetDistanceA())},
-			)
-		}
-		rows = append(rows,
-			kv{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
-			kv{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
-			kv{"stable", "stable (coarse grid)", yes(r.GetStable())},
-			kv{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
-			kv{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},
-		)
-		for _, c := range r.GetTypicalCosts() {
-			key := "cost " + c.GetRequest()
-			val := fmt.Sprintf("%s, %s s", humanBytes(c.GetPeakBytes()), strconv.FormatFloat(c.GetSeconds(), 'g', 2, 64))
-			if !c.GetAdmitted() {
-				val += " (refused by this server)"
-			}
-			rows = append(rows, kv{strings.ReplaceAll(key, " ", "_"), key, val})
-		}
+		rows = append(rows, checkValidRows(r, csv)...)
 	}
 	for _, v := range r.GetViolations() {
-		rows = append(rows, kv{"violation", "violation", v.GetField() + ": " + v.GetDescription()})
+		rows = append(rows, checkRow{"violation", "violation", v.GetField() + ": " + v.GetDescription()})
 	}
 	if csv {
 		c := newCSV(w)
@@ -203,6 +155,68 @@ func writeCheck(w io.Writer, format, name string, r *modegridv1.CheckModelRespon
 		fmt.Fprintf(tw, "%s\t%s\n", r.human, r.value)
 	}
 	return tw.Flush()
+}
+
+// yesNo spells a boolean of a check report.
+func yesNo(b bool) string {
+	if b {
+		return "yes"
+	}
+	return "no"
+}
+
+// checkValidRows are the rows only a valid model has: its description,
+// shells, sum rule, stability and the typical costs of requests. Tables
+// round numbers for reading; CSV (csv true) keeps full precision.
+func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
+	real := func(x float64) string {
+		if csv {
+			return num(x)
+		}
+		return strconv.FormatFloat(x, 'g', 6, 64)
+	}
+	freq := func(x float64) string {
+		if csv {
+			return num(x)
+		}
+		return f4(x)
+	}
+	var labels []string
+	for _, p := range r.GetStandardPoints() {
+		labels = append(labels, displayLabel(p.GetLabel()))
+	}
+	rows := []checkRow{
+		{"model_hash", "model hash", r.GetModelHash()},
+		{"dimensions", "dimensions", fmt.Sprint(r.GetDimensions())},
+		{"lattice_type", "lattice type", r.GetLatticeType()},
+		{"standard_points", "built-in points", strings.Join(labels, " ")},
+		{"sites", "sites", fmt.Sprint(r.GetSites())},
+		{"polarizations", "polarizations", fmt.Sprint(r.GetPolarizations())},
+		{"modes_per_cell", "modes per cell", fmt.Sprint(r.GetModesPerCell())},
+		{"interactions", "interactions", fmt.Sprint(r.GetInteractions())},
+	}
+	for _, s := range r.GetShells() {
+		rows = append(rows,
+			checkRow{fmt.Sprintf("shell_%d_bonds", s.GetShell()), fmt.Sprintf("shells[%d] bonds", s.GetShell()), fmt.Sprint(s.GetBonds())},
+			checkRow{fmt.Sprintf("shell_%d_distance_a", s.GetShell()), fmt.Sprintf("shells[%d] distance (Å)", s.GetShell()), real(s.GetDistanceA())},
+		)
+	}
+	rows = append(rows,
+		checkRow{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
+		checkRow{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
+		checkRow{"stable", "stable (coarse grid)", yesNo(r.GetStable())},
+		checkRow{"min_frequency_thz", "lowest frequency (THz)", freq(r.GetMinFrequencyThz())},
+		checkRow{"max_frequency_thz", "highest frequency (THz)", freq(r.GetMaxFrequencyThz())},
+	)
+	for _, c := range r.GetTypicalCosts() {
+		key := "cost " + c.GetRequest()
+		val := fmt.Sprintf("%s, %s s", humanBytes(c.GetPeakBytes()), strconv.FormatFloat(c.GetSeconds(), 'g', 2, 64))
+		if !c.GetAdmitted() {
+			val += " (refused by this server)"
+		}
+		rows = append(rows, checkRow{strings.ReplaceAll(key, " ", "_"), key, val})
+	}
+	return rows
 }
 
 // ---- modes ----

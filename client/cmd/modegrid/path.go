@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"flag"
 	"fmt"
 	"io"
 
@@ -25,49 +26,87 @@ output the residuals (measured − model) instead of the listing; its
 columns: q1,q2,q3,freq_UNIT[,sigma][,branch] or
 distance_invA,freq_UNIT[,sigma][,branch] (UNIT: THz, meV or cm-1).`
 
+// pathFlags are the flags of `path` beyond the model, connection and
+// output ones.
+type pathFlags struct {
+	qs         qsetFlags // the DOS panel's grid
+	path       string
+	points     uint
+	spacing    float64 // 1/Å
+	follow     bool
+	connectOld bool // deprecated name of follow
+	measured   string
+	unit       string
+	method     string
+	width      float64 // in unit
+	noDOS      bool
+}
+
+// register defines the flags on fs.
+func (f *pathFlags) register(fs *flag.FlagSet) {
+	f.qs.register(fs, false)
+	fs.StringVar(&f.path, "path", "", `corners: "G-X-W-L-G" (built-in labels) or "G=0,0,0 X=0.5,0,0.5 ..."`)
+	fs.UintVar(&f.points, "points", 0, "samples along the whole path (default: the server's, 201)")
+	fs.Float64Var(&f.spacing, "spacing", 0, "sample spacing in 1/Å instead of --points")
+	fs.BoolVar(&f.follow, "follow-modes", false, "order frequencies by branch, following each mode through crossings by eigenvector overlap, instead of ascending")
+	fs.BoolVar(&f.connectOld, "connect", false, "deprecated: the old name of --follow-modes")
+	fs.StringVar(&f.measured, "measured", "", "CSV of measured frequencies to compare with (see above)")
+	fs.StringVar(&f.unit, "unit", "thz", "frequency unit: thz, mev or cm-1")
+	fs.StringVar(&f.method, "method", "tetrahedron", "DOS method of the panel: tetrahedron, gaussian or histogram")
+	fs.Float64Var(&f.width, "width", 0, "Gaussian width of the panel's DOS, in --unit (default: from the grid)")
+	fs.BoolVar(&f.noDOS, "no-dos", false, "plot the dispersion without the DOS panel")
+}
+
+// pathInputs are the flags of `path` checked and parsed.
+type pathInputs struct {
+	unit    modegridv1.FrequencyUnit
+	method  modegridv1.DosMethod
+	rows    []measuredRow // of --measured; nil without it
+	corners []pathCorner  // of --path; nil for the lattice's default path
+}
+
+// check parses and checks the flags that need no model, in the order a
+// user reads them, and notes the deprecated --connect.
+func (f *pathFlags) check(e *env) (pathInputs, error) {
+	var in pathInputs
+	var err error
+	if in.unit, err = parseUnit(f.unit); err != nil {
+		return in, usagef("%v", err)
+	}
+	if in.method, err = parseMethod(f.method); err != nil {
+		return in, usagef("%v", err)
+	}
+	if f.spacing < 0 {
+		return in, usagef("--spacing must be > 0 1/Å, got %v", f.spacing)
+	}
+	if f.connectOld {
+		e.note("--connect is deprecated; it is now called --follow-modes")
+	}
+	if f.measured != "" {
+		if in.rows, err = readPathMeasured(f.measured, unitPerTHz(in.unit)); err != nil {
+			return in, usagef("--measured: %v", err)
+		}
+	}
+	if f.path != "" {
+		if in.corners, err = parsePath(f.path); err != nil {
+			return in, usagef("--path: %v", err)
+		}
+	}
+	return in, nil
+}
+
+// cmdPath computes the dispersion along a path and writes it (or, with
+// --measured, the residuals), then with --plot draws it beside a DOS panel.
 func cmdPath(args []string, e *env) error {
 	c := newModelCommand("path", true)
-	fs := c.fs
-	var qs qsetFlags
-	qs.register(fs, false)
-	pathFlag := fs.String("path", "", `corners: "G-X-W-L-G" (built-in labels) or "G=0,0,0 X=0.5,0,0.5 ..."`)
-	points := fs.Uint("points", 0, "samples along the whole path (default: the server's, 201)")
-	spacing := fs.Float64("spacing", 0, "sample spacing in 1/Å instead of --points")
-	follow := fs.Bool("follow-modes", false, "order frequencies by branch, following each mode through crossings by eigenvector overlap, instead of ascending")
-	connectOld := fs.Bool("connect", false, "deprecated: the old name of --follow-modes")
-	measured := fs.String("measured", "", "CSV of measured frequencies to compare with (see above)")
-	unit := fs.String("unit", "thz", "frequency unit: thz, mev or cm-1")
-	method := fs.String("method", "tetrahedron", "DOS method of the panel: tetrahedron, gaussian or histogram")
-	width := fs.Float64("width", 0, "Gaussian width of the panel's DOS, in --unit (default: from the grid)")
-	noDOS := fs.Bool("no-dos", false, "plot the dispersion without the DOS panel")
+	var f pathFlags
+	f.register(c.fs)
 	if err := c.parse(args, e, pathSummary); err != nil {
 		return err
 	}
-	u, err := parseUnit(*unit)
+	in, err := f.check(e)
 	if err != nil {
-		return usagef("%v", err)
-	}
-	meth, err := parseMethod(*method)
-	if err != nil {
-		return usagef("%v", err)
-	}
-	if *spacing < 0 {
-		return usagef("--spacing must be > 0 1/Å, got %v", *spacing)
-	}
-	if *connectOld {
-		e.note("--connect is deprecated; it is now called --follow-modes")
-	}
-	var rows []measuredRow
-	if *measured != "" {
-		if rows, err = readPathMeasured(*measured, unitPerTHz(u)); err != nil {
-			return usagef("--measured: %v", err)
-		}
-	}
-	var corners []pathCorner
-	if *pathFlag != "" {
-		if corners, err = parsePath(*pathFlag); err != nil {
-			return usagef("--path: %v", err)
-		}
+		return err
 	}
 	crystal, err := c.m.load()
 	if err != nil {
@@ -75,8 +114,8 @@ func cmdPath(args []string, e *env) error {
 	}
 	d, _ := dims(crystal)
 	var dosSet *modegridv1.QPointSet
-	if c.out.plot != "" && !*noDOS {
-		if dosSet, err = qs.set(d, true); err != nil {
+	if c.out.plot != "" && !f.noDOS {
+		if dosSet, err = f.qs.set(d, true); err != nil {
 			return err
 		}
 	}
@@ -86,15 +125,15 @@ func cmdPath(args []string, e *env) error {
 	}
 	defer release()
 	src := c.source(crystal)
-	if corners == nil {
-		if corners, err = standardPath(ctx, cl, src); err != nil {
+	if in.corners == nil {
+		if in.corners, err = standardPath(ctx, cl, src); err != nil {
 			return err
 		}
 	}
 	manySites := len(crystal.GetSites()) > 1
 	req := &modegridv1.ComputeDispersionRequest{
-		Model: src, Path: pathPoints(corners), Points: uint32(*points), SpacingInvA: *spacing,
-		Unit: u, FollowModes: *follow || *connectOld, SiteWeights: c.out.plot != "" && manySites,
+		Model: src, Path: pathPoints(in.corners), Points: uint32(f.points), SpacingInvA: f.spacing,
+		Unit: in.unit, FollowModes: f.follow || f.connectOld, SiteWeights: c.out.plot != "" && manySites,
 	}
 	done := e.prog.running("dispersion")
 	resp, err := cl.Dispersion(ctx, req)
@@ -103,8 +142,8 @@ func cmdPath(args []string, e *env) error {
 		return err
 	}
 	var overlay []plotPoint
-	if rows != nil {
-		if overlay, err = c.pathResiduals(ctx, cl, e, src, *measured, rows, resp); err != nil {
+	if in.rows != nil {
+		if overlay, err = c.pathResiduals(ctx, cl, e, src, f.measured, in.rows, resp); err != nil {
 			return err
 		}
 	} else if err := c.out.write(e.stdout, func(w io.Writer) error { return writePath(w, c.out.format, resp) }); err != nil {
@@ -116,7 +155,7 @@ func cmdPath(args []string, e *env) error {
 	var dos *modegridv1.ComputeDosResponse
 	if dosSet != nil {
 		done := e.prog.running("density of states for the side panel")
-		dos, err = cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: dosSet, Method: meth, Unit: u, Width: *width, PerSite: manySites})
+		dos, err = cl.DOS(ctx, &modegridv1.ComputeDosRequest{Model: src, Qpoints: dosSet, Method: in.method, Unit: in.unit, Width: f.width, PerSite: manySites})
 		done()
 		if err != nil {
 			return err

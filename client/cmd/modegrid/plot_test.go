@@ -278,14 +278,7 @@ func TestPlots(t *testing.T) {
 	dosCM1 := syntheticDOS(2)
 	dosCM1.Unit = modegridv1.FrequencyUnit_FREQUENCY_UNIT_CM1
 	key := newSiteKey([]string{"A", "B"})
-	tests := []struct {
-		name     string
-		size     [2]vg.Length
-		build    func() (figure, error)
-		png      bool // also as PNG (rasterising is slow under -race: once per figure kind)
-		wantText []string
-		branch   bool // the PNG shows branchColor
-	}{
+	tests := []plotCase{
 		{name: "dispersion by site with DOS panel", size: dispersionSize, png: true,
 			build: func() (figure, error) {
 				return dispersionFigure{disp: cm1(syntheticWeights(syntheticDispersion())), dos: dosCM1, key: key, title: "synthetic",
@@ -327,44 +320,59 @@ func TestPlots(t *testing.T) {
 				"free energy F (kJ/kg)", "internal energy U (kJ/kg)"}},
 	}
 	for _, tc := range tests {
-		t.Run(tc.name, func(t *testing.T) {
-			base := filepath.Join(dir, strings.ReplaceAll(tc.name, " ", "-"))
-			f, err := tc.build()
-			if err != nil {
-				t.Fatal(err)
-			}
-			checkPNGText(t, f, tc.wantText)
-			if tc.png {
-				if err := f.write(base+".png", "png"); err != nil {
-					t.Fatal(err)
-				}
-				w, h, ink, branch := pngStats(t, base+".png")
-				if w != pixels(tc.size[0]) || h != pixels(tc.size[1]) {
-					t.Errorf("PNG is %d×%d px; want %d×%d", w, h, pixels(tc.size[0]), pixels(tc.size[1]))
-				}
-				if ink < 0.01 || ink > 0.6 {
-					t.Errorf("PNG has %.1f%% non-white pixels; want between 1%% and 60%%", 100*ink)
-				}
-				if tc.branch && !branch {
-					t.Error("PNG shows no curve in the branch colour")
-				}
-			}
-			if err := f.write(base+".svg", "svg"); err != nil {
-				t.Fatal(err)
-			}
-			sw, sh, paths, text := svgStats(t, base+".svg")
-			if math.Abs(sw-tc.size[0].Points()) > 0.5 || math.Abs(sh-tc.size[1].Points()) > 0.5 {
-				t.Errorf("SVG is %.1f×%.1f pt; want %.1f×%.1f", sw, sh, tc.size[0].Points(), tc.size[1].Points())
-			}
-			if paths < 10 {
-				t.Errorf("SVG has %d paths; want ≥ 10", paths)
-			}
-			for _, s := range tc.wantText {
-				if !strings.Contains(text, s) {
-					t.Errorf("SVG text lacks %q; has %q", s, text)
-				}
-			}
-		})
+		t.Run(tc.name, func(t *testing.T) { checkPlotCase(t, dir, tc) })
+	}
+}
+
+// plotCase is one figure of TestPlots and what it must show.
+type plotCase struct {
+	name     string
+	size     [2]vg.Length
+	build    func() (figure, error)
+	png      bool // also as PNG (rasterising is slow under -race: once per figure kind)
+	wantText []string
+	branch   bool // the PNG shows branchColor
+}
+
+// checkPlotCase builds tc's figure, checks its text, writes it into dir
+// as SVG (and PNG when tc.png) and checks each file's size and contents.
+func checkPlotCase(t *testing.T, dir string, tc plotCase) {
+	t.Helper()
+	base := filepath.Join(dir, strings.ReplaceAll(tc.name, " ", "-"))
+	f, err := tc.build()
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkPNGText(t, f, tc.wantText)
+	if tc.png {
+		if err := f.write(base+".png", "png"); err != nil {
+			t.Fatal(err)
+		}
+		w, h, ink, branch := pngStats(t, base+".png")
+		if w != pixels(tc.size[0]) || h != pixels(tc.size[1]) {
+			t.Errorf("PNG is %d×%d px; want %d×%d", w, h, pixels(tc.size[0]), pixels(tc.size[1]))
+		}
+		if ink < 0.01 || ink > 0.6 {
+			t.Errorf("PNG has %.1f%% non-white pixels; want between 1%% and 60%%", 100*ink)
+		}
+		if tc.branch && !branch {
+			t.Error("PNG shows no curve in the branch colour")
+		}
+	}
+	if err := f.write(base+".svg", "svg"); err != nil {
+		t.Fatal(err)
+	}
+	sw, sh, paths, text := svgStats(t, base+".svg")
+	if math.Abs(sw-tc.size[0].Points()) > 0.5 || math.Abs(sh-tc.size[1].Points()) > 0.5 {
+		t.Errorf("SVG is %.1f×%.1f pt; want %.1f×%.1f", sw, sh, tc.size[0].Points(), tc.size[1].Points())
+	}
+	if paths < 10 {
+		t.Errorf("SVG has %d paths; want ≥ 10", paths)
+	}
+	for _, s := range tc.wantText {
+		if !strings.Contains(text, s) {
+			t.Errorf("SVG text lacks %q; has %q", s, text)
+		}
 	}
 }
 

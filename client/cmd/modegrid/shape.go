@@ -2,6 +2,7 @@ package main
 
 import (
 	"bufio"
+	"flag"
 	"fmt"
 	"io"
 	"math"
@@ -38,113 +39,172 @@ type shapeOptions struct {
 	frames     int
 }
 
+// shapeFlags are the flags of `shape` beyond the model, connection and
+// output ones.
+type shapeFlags struct {
+	q          string
+	branch     int
+	amplitudeA float64
+	cells      string
+	frames     int
+	xyz        string
+	phase      string
+	arrowFrac  float64
+}
+
+// register defines the flags on fs.
+func (f *shapeFlags) register(fs *flag.FlagSet) {
+	fs.StringVar(&f.q, "q", "", "the q-point, fractional reciprocal coordinates: q1[,q2[,q3]]")
+	fs.IntVar(&f.branch, "branch", 1, "the branch, 1 = lowest frequency at q")
+	fs.Float64Var(&f.amplitudeA, "amplitude", 0.1, "largest site displacement amplitude, Å")
+	fs.StringVar(&f.cells, "cells", "", "block of N1xN2xN3 cells to show (default: the fewest on which the mode is periodic)")
+	fs.IntVar(&f.frames, "frames", 20, "frames per period")
+	fs.StringVar(&f.xyz, "xyz", "", "write the trajectory to this XYZ file (- for stdout)")
+	fs.StringVar(&f.phase, "phase", "peak", "--plot snapshot: peak (the phase of largest total displacement) or 0 (t = 0)")
+	fs.Float64Var(&f.arrowFrac, "arrow-length", 0.4, "--plot: the largest arrow as a fraction of the nearest-neighbour distance")
+}
+
+// check checks the flags that need no model (plot: --plot was given) and
+// returns the q-point and the figure's options.
+func (f *shapeFlags) check(plot bool) ([3]float64, shapePlotOptions, error) {
+	if f.xyz == "" && !plot {
+		return [3]float64{}, shapePlotOptions{}, usagef("--xyz FILE (- for stdout) or --plot FILE.png|.svg is required")
+	}
+	po, err := parseShapePlot(f.phase, f.arrowFrac)
+	if err != nil {
+		return [3]float64{}, po, err
+	}
+	if f.q == "" {
+		return [3]float64{}, po, usagef("--q is required")
+	}
+	qs, err := parseQList(f.q)
+	if err != nil {
+		return [3]float64{}, po, usagef("--q: %v", err)
+	}
+	if len(qs) != 1 {
+		return [3]float64{}, po, usagef("--q: one q-point, got %d", len(qs))
+	}
+	switch {
+	case f.branch < 1:
+		return qs[0], po, usagef("--branch must be ≥ 1, got %d", f.branch)
+	case !(f.amplitudeA > 0) || math.IsInf(f.amplitudeA, 0):
+		return qs[0], po, usagef("--amplitude must be a number of Å > 0, got %v", f.amplitudeA)
+	case f.frames < 1 || f.frames > 10000:
+		return qs[0], po, usagef("--frames must be in [1, 10000], got %d", f.frames)
+	}
+	return qs[0], po, nil
+}
+
+// options checks the flags against the crystal (d dimensions; plot:
+// --plot was given) and returns the mode to show and the block of cells:
+// --cells, or the default block (repeated for a figure).
+func (f *shapeFlags) options(q [3]float64, crystal *modegridv1.Crystal, d int, plot bool) (shapeOptions, error) {
+	if plot && (d < 1 || d > 2) {
+		return shapeOptions{}, usagef("--plot draws 1D and 2D crystals only; this crystal is %dD: write --xyz FILE and play it in a molecular viewer", d)
+	}
+	opt := shapeOptions{q: q, branch: f.branch, amplitudeA: f.amplitudeA, frames: f.frames, cells: defaultShapeCells(q, d)}
+	if plot {
+		opt.cells = repeatCells(opt.cells, d, 4)
+	}
+	if f.cells == "" {
+		return opt, nil
+	}
+	mesh, err := parseMesh(f.cells)
+	if err != nil {
+		return opt, usagef("--cells: %v", err)
+	}
+	mesh = expandMesh(mesh, d)
+	if len(mesh) != d {
+		return opt, usagef("--cells: %d numbers for a %d-dimensional crystal", len(mesh), d)
+	}
+	opt.cells = [3]int{1, 1, 1}
+	total := 1
+	for k, n := range mesh {
+		opt.cells[k] = int(n)
+		total *= int(n)
+	}
+	sites := len(crystal.GetSites())
+	if total*sites > 1_000_000 {
+		return opt, usagef("--cells: %s cells of %d sites is over a million atoms", f.cells, sites)
+	}
+	if plot && total*sites > maxShapePlotAtoms {
+		return opt, usagef("--cells: %s cells of %d sites is over the %d atoms a figure can show legibly", f.cells, sites, maxShapePlotAtoms)
+	}
+	return opt, nil
+}
+
+// cmdShape shows one normal mode: as an XYZ trajectory (--xyz) and/or a
+// figure of the displacements (--plot).
 func cmdShape(args []string, e *env) error {
 	c := newModelCommand("shape", true)
-	fs := c.fs
-	qFlag := fs.String("q", "", "the q-point, fractional reciprocal coordinates: q1[,q2[,q3]]")
-	branch := fs.Int("branch", 1, "the branch, 1 = lowest frequency at q")
-	amplitude := fs.Float64("amplitude", 0.1, "largest site displacement amplitude, Å")
-	cellsFlag := fs.String("cells", "", "block of N1xN2xN3 cells to show (default: the fewest on which the mode is periodic)")
-	frames := fs.Int("frames", 20, "frames per period")
-	xyz := fs.String("xyz", "", "write the trajectory to this XYZ file (- for stdout)")
-	phase := fs.String("phase", "peak", "--plot snapshot: peak (the phase of largest total displacement) or 0 (t = 0)")
-	arrowFrac := fs.Float64("arrow-length", 0.4, "--plot: the largest arrow as a fraction of the nearest-neighbour distance")
+	var f shapeFlags
+	f.register(c.fs)
 	if err := c.parse(args, e, shapeSummary); err != nil {
 		return err
 	}
-	if *xyz == "" && c.out.plot == "" {
-		return usagef("--xyz FILE (- for stdout) or --plot FILE.png|.svg is required")
-	}
-	po, err := parseShapePlot(*phase, *arrowFrac)
+	plot := c.out.plot != ""
+	q, po, err := f.check(plot)
 	if err != nil {
 		return err
-	}
-	if *qFlag == "" {
-		return usagef("--q is required")
-	}
-	qs, err := parseQList(*qFlag)
-	if err != nil {
-		return usagef("--q: %v", err)
-	}
-	if len(qs) != 1 {
-		return usagef("--q: one q-point, got %d", len(qs))
-	}
-	switch {
-	case *branch < 1:
-		return usagef("--branch must be ≥ 1, got %d", *branch)
-	case !(*amplitude > 0) || math.IsInf(*amplitude, 0):
-		return usagef("--amplitude must be a number of Å > 0, got %v", *amplitude)
-	case *frames < 1 || *frames > 10000:
-		return usagef("--frames must be in [1, 10000], got %d", *frames)
 	}
 	crystal, err := c.m.load()
 	if err != nil {
 		return err
 	}
 	d, p := dims(crystal)
-	if c.out.plot != "" && (d < 1 || d > 2) {
-		return usagef("--plot draws 1D and 2D crystals only; this crystal is %dD: write --xyz FILE and play it in a molecular viewer", d)
-	}
-	opt := shapeOptions{q: qs[0], branch: *branch, amplitudeA: *amplitude, frames: *frames, cells: defaultShapeCells(qs[0], d)}
-	if c.out.plot != "" {
-		opt.cells = repeatCells(opt.cells, d, 4)
-	}
-	if *cellsFlag != "" {
-		mesh, err := parseMesh(*cellsFlag)
-		if err != nil {
-			return usagef("--cells: %v", err)
-		}
-		mesh = expandMesh(mesh, d)
-		if len(mesh) != d {
-			return usagef("--cells: %d numbers for a %d-dimensional crystal", len(mesh), d)
-		}
-		opt.cells = [3]int{1, 1, 1}
-		total := 1
-		for k, n := range mesh {
-			opt.cells[k] = int(n)
-			total *= int(n)
-		}
-		if total*len(crystal.GetSites()) > 1_000_000 {
-			return usagef("--cells: %s cells of %d sites is over a million atoms", *cellsFlag, len(crystal.GetSites()))
-		}
-		if c.out.plot != "" && total*len(crystal.GetSites()) > maxShapePlotAtoms {
-			return usagef("--cells: %s cells of %d sites is over the %d atoms a figure can show legibly", *cellsFlag, len(crystal.GetSites()), maxShapePlotAtoms)
-		}
-	}
-	cl, ctx, release, err := c.dial()
+	opt, err := f.options(q, crystal, d, plot)
 	if err != nil {
 		return err
+	}
+	pm, err := c.shapeModes(crystal, opt)
+	if err != nil {
+		return err
+	}
+	if plot {
+		if err := plotShape(c.out.plot, c.out.kind, crystal, d, p, pm, opt, po); err != nil {
+			return err
+		}
+	}
+	if f.xyz == "" {
+		return nil
+	}
+	tr, err := modeTrajectory(crystal, p, pm, opt)
+	if err != nil {
+		return err
+	}
+	return writeShapeXYZ(f.xyz, e.stdout, tr)
+}
+
+// shapeModes asks the server for the frequencies and eigenvectors at
+// opt.q and checks that opt.branch is one of them.
+func (c *modelCommand) shapeModes(crystal *modegridv1.Crystal, opt shapeOptions) (*modegridv1.Modes, error) {
+	cl, ctx, release, err := c.dial()
+	if err != nil {
+		return nil, err
 	}
 	defer release()
 	resp, err := cl.Modes(ctx, &modegridv1.ComputeModesRequest{Model: c.source(crystal), Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_THZ,
 		Qpoints:      &modegridv1.QPointSet{Set: &modegridv1.QPointSet_List{List: &modegridv1.QPointList{Points: []*modegridv1.QPoint{{Q1: opt.q[0], Q2: opt.q[1], Q3: opt.q[2]}}}}},
 		Eigenvectors: true})
 	if err != nil {
-		return err
+		return nil, err
 	}
 	pts := resp.GetPoints()
 	if len(pts) != 1 {
-		return fmt.Errorf("the server sent %d points for one q-point", len(pts))
+		return nil, fmt.Errorf("the server sent %d points for one q-point", len(pts))
 	}
 	if n := len(pts[0].GetFrequencies()); opt.branch > n {
-		return usagef("--branch must be ≤ %d (the modes per cell), got %d", n, opt.branch)
+		return nil, usagef("--branch must be ≤ %d (the modes per cell), got %d", n, opt.branch)
 	}
-	if c.out.plot != "" {
-		if err := plotShape(c.out.plot, c.out.kind, crystal, d, p, pts[0], opt, po); err != nil {
-			return err
-		}
+	return pts[0], nil
+}
+
+// writeShapeXYZ writes the trajectory to file, or to stdout for "-".
+func writeShapeXYZ(file string, stdout io.Writer, tr *trajectory) error {
+	if file == "-" {
+		return tr.writeXYZ(stdout)
 	}
-	if *xyz == "" {
-		return nil
-	}
-	tr, err := modeTrajectory(crystal, p, pts[0], opt)
-	if err != nil {
-		return err
-	}
-	if *xyz == "-" {
-		return tr.writeXYZ(e.stdout)
-	}
-	f, err := os.Create(*xyz)
+	f, err := os.Create(file)
 	if err != nil {
 		return fmt.Errorf("cannot write the output: %w", err)
 	}
