@@ -127,7 +127,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 		return nil, Validate(nil, opt.Limits)
 	}
 	lim := opt.Limits.withDefaults()
-	var vs violations
+	var vs Violations
 	validate(c, lim, &vs)
 	validateSymTol(opt.SymTolA, &vs)
 	if len(vs.list) > 0 {
@@ -145,8 +145,8 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	if err := m.addSprings(ctx, parts, c, toEV, lim, &vs); err != nil {
 		return nil, err
 	}
-	if len(vs.list) > 0 {
-		return nil, vs.err()
+	if vs.Len() > 0 {
+		return nil, vs.Err()
 	}
 	if err := m.addBlocks(ctx, parts, c.Blocks, toEV, opt.EnforceSumRule); err != nil {
 		return nil, err
@@ -651,22 +651,12 @@ func (m *Model) Dim() int { return m.dim }
 // or 3).
 func (m *Model) Polarizations() int { return m.p }
 
-// P is the old name of Polarizations.
-//
-// Deprecated: use Polarizations.
-func (m *Model) P() int { return m.p }
-
 // Sites is the number of sites per cell.
 func (m *Model) Sites() int { return m.nsites }
 
 // ModeCount is the number of modes (branches) per q-point: sites ×
 // polarizations.
 func (m *Model) ModeCount() int { return m.nsites * m.p }
-
-// Modes is the old name of ModeCount.
-//
-// Deprecated: use ModeCount.
-func (m *Model) Modes() int { return m.nsites * m.p }
 
 // Labels returns the site labels in site order.
 func (m *Model) Labels() []string { return append([]string(nil), m.labels...) }

@@ -1,7 +1,6 @@
 package physics
 
 import (
-	"math"
 	"runtime"
 	"unsafe"
 
@@ -18,7 +17,7 @@ import (
 // is lower, since transient arrays are freed on the way. Counting total
 // allocation rather than the live peak is deliberate: a collector that lags
 // behind (GOGC) keeps garbage resident, so what was allocated is what the
-// process may hold. TestCostLadder checks every estimator against the
+// process may hold. TestCostLadder (physics/thermo) checks every estimator against the
 // measured allocation of real runs: never below, never more than 2× above.
 //
 // Work (Cost.Flops) is an operation count from the dominant loops
@@ -68,7 +67,17 @@ func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
 	return GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
 }
 
-func (s GridSize) modes() int { return s.Sites * s.P }
+// Modes is the number of modes per point (sites × p).
+func (s GridSize) Modes() int { return s.Sites * s.P }
+
+// SolveCost is one D(q) assembled and diagonalised on its own, without
+// eigenvectors (a workspace and the frequencies): for estimators of
+// computations that solve a single point besides their main work (the
+// divergence check of mean-square displacements at Γ).
+func (s GridSize) SolveCost() Cost {
+	n := s.Modes()
+	return Cost{Bytes: workspaceBytes(n, false) + 8*int64(n), Flops: s.assembleFlops() + diagFlops(n, false)}
+}
 
 func (s GridSize) workers() int {
 	if s.Workers > 0 {
@@ -91,7 +100,7 @@ func (s GridSize) reps(opt GridOptions) int {
 // pointBytes is what GridModes keeps per point: frequencies, and per
 // option the site weights, eigenvectors and site tensors.
 func (s GridSize) pointBytes(opt GridOptions) int64 {
-	nm, ns := int64(s.modes()), int64(s.Sites)
+	nm, ns := int64(s.Modes()), int64(s.Sites)
 	pairs := int64(s.P * (s.P + 1) / 2)
 	b := 8 * nm
 	if opt.Projections {
@@ -123,7 +132,7 @@ func diagFlops(n int, vectors bool) float64 {
 // assembleFlops is the work of building D(q): a complex phase and a p×p
 // block per interaction, plus filling the n² matrix.
 func (s GridSize) assembleFlops() float64 {
-	n := float64(s.modes())
+	n := float64(s.Modes())
 	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
 }
 
@@ -154,16 +163,16 @@ func GridModesCost(s GridSize, opt GridOptions) Cost {
 	per := s.pointBytes(opt)
 	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
 	// 4 kB: the result's header, the workers' closures and channels.
-	c := Cost{Bytes: 4<<10 + 32*n + n*per + int64(s.workers())*workspaceBytes(s.modes(), vec)}
+	c := Cost{Bytes: 4<<10 + 32*n + n*per + int64(s.workers())*workspaceBytes(s.Modes(), vec)}
 	if opt.NoSymmetry {
 		c.Bytes += 10 * n // measured: about 9.5 B a point beyond the arrays, origin not traced
 	} else {
 		ub := int64(mesh.IrreducibleUpperBound(s.Points, s.Dim))
 		c.Bytes += 7*n + 24*ub + reps*per + symOpsBytes + 12<<10
 	}
-	c.Flops = float64(reps) * (diagFlops(s.modes(), vec) + s.assembleFlops())
+	c.Flops = float64(reps) * (diagFlops(s.Modes(), vec) + s.assembleFlops())
 	if !opt.NoSymmetry {
-		nm, p := float64(s.modes()), float64(s.P)
+		nm, p := float64(s.Modes()), float64(s.P)
 		u := nm // frequencies copied
 		if opt.Projections {
 			u += nm * float64(s.Sites)
@@ -190,142 +199,6 @@ func GridModesBytes(s GridSize, opt GridOptions) int64 {
 	return 256 + int64(s.Points)*(32+s.pointBytes(opt))
 }
 
-// simplicesPerCell is d!: the simplices of one grid cell (mesh.GridSimplices).
-func simplicesPerCell(dim int) int64 { return [4]int64{1, 1, 2, 6}[min(max(dim, 1), 3)] }
-
-// accBytes is one cumAcc of ns sites on a cumGrid of n abscissae: val and
-// step, and with sites sval, sstep, cutSite and four scratch rows.
-func accBytes(n, ns int64) int64 {
-	b := 16*n + 8 + 256
-	if ns > 0 {
-		b += 16*n*ns + 8*ns + 8*ns + 4*8*ns
-	}
-	return b
-}
-
-// DOSCost estimates ComputeDOS on grid modes of size s (not included: add
-// GridModesCost) for samples frequency samples (the window divided by the
-// step; DefaultDOSBins when chosen from the modes). Memory, from dos.go,
-// tetra.go and tetra_sym.go: for the total tetrahedron DOS of a reduced
-// grid, the simplex classes (8 B of key per simplex, 8 B more for the
-// radix sort, 16 B per class at most one per simplex); up to detSlices
-// accumulators on 2·samples+1 abscissae (per site too with projections);
-// the resolved totals; the result's series (3 per sample, plus one per
-// site and per label with projections, labels ≤ sites). Work: every
-// simplex (or point, for Gaussian and histogram) and band, with the
-// samples it spans estimated from the spread of frequencies across one
-// grid cell.
-func DOSCost(s GridSize, opt DOSOptions, samples int, reduced bool) Cost {
-	ns := int64(0)
-	if opt.PerSite {
-		ns = int64(s.Sites)
-	}
-	S := int64(samples)
-	acc := 2*S + 1
-	var c Cost
-	simplices := simplicesPerCell(s.Dim) * int64(s.Points)
-	// One accumulator per slice of the work (chunkWorkers).
-	accs := int64(chunkWorkers(s.Points, modeChunk))
-	if opt.Method == Tetrahedron {
-		accs = int64(chunkWorkers(s.Points, tetraChunk))
-		if reduced && !opt.PerSite {
-			// Classes: keys, the radix sort's buffer and its digit
-			// counts (1<<16 ints), the classes; then one accumulator per
-			// slice of at most one class per simplex.
-			c.Bytes += 32*simplices + 8<<16 + 16<<10 // 16 kB: the cache key and headers
-			accs = int64(chunkWorkers(int(simplices), classChunk))
-		}
-	}
-	c.Bytes += accs*accBytes(acc, ns) + 8*acc*(1+ns) + 8*ns
-	c.Bytes += 24*S + 16*S*ns + 64*ns + 16<<10
-	// Samples a band spans inside one simplex: the band's range over the
-	// zone (at most the window) divided by the points per direction.
-	perDir := math.Pow(float64(max(1, s.Points)), 1/float64(min(max(s.Dim, 1), 3)))
-	span := 2 + float64(S)/perDir
-	bands := float64(s.modes())
-	switch opt.Method {
-	case Tetrahedron:
-		c.Flops = float64(simplices) * bands * (60 + span*(4+4*float64(ns)))
-	default:
-		c.Flops = float64(s.Points) * bands * (20 + span*(8+2*float64(ns)))
-	}
-	return c
-}
-
-// ThermalCost estimates ComputeThermal on grid modes of size s (not
-// included: add GridModesCost, with eigenvectors for msd) at temps
-// temperatures. Memory, from thermal.go, msd.go and thermal_series.go: the
-// mode set (8 B of frequency and 8·nc B of channels per mode, nc = 1 or,
-// with msd, 1 + sites·p(p+1)/2; every mode counted), its copy sorted into
-// the frequency tree with the leaves' moments and the upper levels when
-// the tree is worth building; for the DOS-integral route a tetrahedron DOS
-// of dosRouteBins samples and its pseudo-modes; the sums per temperature;
-// the result points (and per-site tensors with msd, and the solution at Γ
-// of the divergence check). Work: the sums over
-// every mode and channel at every temperature (an upper bound: the tree
-// replaces most of them by series).
-func ThermalCost(s GridSize, temps int, msd bool, route ThermalRoute, reduced bool) Cost {
-	modes := int64(s.Points) * int64(s.modes())
-	nc := int64(1)
-	if msd {
-		nc += int64(s.Sites * s.P * (s.P + 1) / 2)
-	}
-	T := int64(temps)
-	c := Cost{Bytes: 1024 + modes*8*(1+nc) + 8*(nc-1)}
-	tree := func(count, ncs int64) int64 {
-		if !(count >= 4096 && T >= 4 && count*T > 1<<20) {
-			return 0
-		}
-		nleaf := int64(1)
-		for nleaf < treeMaxLeaves && nleaf*32 < count {
-			nleaf *= 2
-		}
-		node := int64(unsafe.Sizeof(treeNode{}))
-		return count*8*(1+ncs) + 16*(nleaf+1) + 2*nleaf*(node+8*ncs*treeMoments) + 4096
-	}
-	c.Bytes += tree(modes, nc)
-	sums := 2 + nc
-	if route == DOSIntegral {
-		d := DOSCost(s, DOSOptions{}, dosRouteBins, reduced)
-		c = c.Plus(d)
-		c.Bytes += 2*8*dosRouteBins*2 + tree(dosRouteBins, 1)
-		if msd {
-			sums += 3
-		}
-	}
-	c.Bytes += T * (24 + 8*sums) * 2
-	// Per point, the θ_D status reason; per site and point, the divergence
-	// reason of low-dimensional displacements (short strings, 128 B each).
-	c.Bytes += T*(int64(unsafe.Sizeof(ThermalPoint{}))+reasonBytes) + elasticThetaBytes
-	if msd {
-		c.Bytes += T * int64(s.Sites) * (int64(unsafe.Sizeof(SiteMSD{})) + reasonBytes)
-		if s.Dim < 3 {
-			// The divergence check diagonalises D(Γ) once (msd.go,
-			// msdDivergenceOf; in 3D it is skipped): a workspace without
-			// eigenvectors and the frequencies.
-			n := s.modes()
-			c.Bytes += workspaceBytes(n, false) + 8*int64(n)
-			c.Flops += s.assembleFlops() + diagFlops(n, false)
-		}
-	}
-	c.Flops += float64(modes) * (20 + 2*float64(nc)) // collecting the modes
-	c.Flops += float64(T) * float64(modes) * (40 + 2*float64(nc))
-	return c
-}
-
-// reasonBytes bounds one explanatory string of a thermal result (a θ_D
-// status reason, a divergence reason).
-const reasonBytes = 128
-
-// elasticThetaBytes bounds what the elastic Debye temperature of a thermal
-// result allocates once the model's long-wave limit is known: 512
-// directions, each a few p-vectors and a 3p × p factor, about 256 B
-// (elastic.go; measured 130–150 kB in all). The
-// long-wave limit itself is computed once per model (at most
-// maxLongWaveEntries of 8 B) and is part of the model's memory, not of a
-// request's.
-const elasticThetaBytes = 192 << 10
-
 // StreamCost estimates StreamModes over points q-points in chunks of
 // chunk points with workers goroutines (0: GOMAXPROCS). Memory, from
 // modes.go: at most 2·workers chunks computed ahead plus the one being
@@ -335,7 +208,7 @@ const elasticThetaBytes = 192 << 10
 // assembled and diagonalised, velocities by three Hermitian products per
 // mode.
 func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
-	n := int64(s.modes())
+	n := int64(s.Modes())
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
 	}
@@ -374,7 +247,7 @@ func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
 // per-site weights); weights adds the per-sample site shares.
 func DispersionCost(s GridSize, samples int, vectors, weights bool) Cost {
 	connect := vectors
-	n := int64(s.modes())
+	n := int64(s.Modes())
 	S := int64(samples)
 	chunk := DefaultChunkPoints
 	if connect {

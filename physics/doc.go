@@ -171,8 +171,8 @@
 // context too and returns ctx.Err() soon after it ends: Compile (the
 // neighbour search and the force-constant assembly), Symmetry and
 // ReduceGrid, SoundVelocities (the long-wave set-up, O(sites³)),
-// Stability, ComputeDOS (including the tetrahedron classes) and
-// ComputeThermal (see cancel.go). The values a Model computes on first use
+// Stability, and above the core spectra.ComputeDOS (including the
+// tetrahedron classes) and thermo.ComputeThermal (see cancel.go). The values a Model computes on first use
 // (its symmetry operations, its long-wave limit) are kept only when their
 // computation finished: a cancelled first use stores nothing and the next
 // call computes again, under its own context (lazy.go).
@@ -206,103 +206,13 @@
 //
 // # Density of states and thermal properties
 //
-// ComputeDOS turns the modes of a grid (Model.GridModes; they record the
-// hash of the model that made them, and ComputeDOS and ComputeThermal
-// refuse the modes of another model) into a phonon
-// density of states g(ν) in states per cell per frequency unit (THz, meV,
-// cm⁻¹ or rad/s: DOSOptions.Unit), normalised to p × sites states per
-// cell. Three methods:
-//
-//   - Tetrahedron (the default): the linear tetrahedron method (Blöchl,
-//     Jepsen & Andersen, Phys. Rev. B 49, 16223 (1994)). Every grid cell is
-//     cut into six tetrahedra around its shortest main diagonal (in
-//     Cartesian reciprocal space, Model.Reciprocal), each branch (modes in
-//     ascending order) is interpolated linearly inside every tetrahedron
-//     and its states are counted exactly. 2D grids use two triangles per
-//     cell along the shorter diagonal, 1D grids linear segments. It needs
-//     the full grid in grid order.
-//   - Gaussian: every mode broadened into a normalised Gaussian of
-//     standard deviation Width; the default is ν_top/(c_d·n), ν_top the
-//     highest mode, n = N^(1/d) the grid points per direction and c_d = 1,
-//     2, 8 in one, two, three dimensions (chosen by measuring the error
-//     against converged spectra). Tetrahedra need far fewer q-points for
-//     the same accuracy: to come within 1 % (L1), 128 against 4096 for a
-//     chain, 32³–48³ against 96³ for the 3D examples.
-//   - Histogram: modes counted per bin; for a finite crystal
-//     (GridSpec.Finite) this is its exact discrete spectrum.
-//
-// The samples are Freq[i] = Min + i·Step. DOS[i] is the average of g over
-// the bin [Freq[i] − Step/2, Freq[i] + Step/2), taken from the exact state
-// count at the bin edges, so Σ DOS·Step is the number of states in the
-// window — p × sites to rounding for tetrahedra when the window holds the
-// spectrum — and a 1D van Hove divergence stays finite. Integrated[i] is the
-// number of states per cell below Freq[i] (including any below the
-// window). With Min = Max = 0 the window runs from 0 to 5 % above the
-// highest mode (plus five widths for Gaussian); Step defaults to the window
-// over DefaultDOSBins (500). A Gaussian's tail below the window is cut off.
-//
-// Projections (PerSite) weight each mode by its site shares Σ_α |e_sα|²
-// (GridOptions.Projections), with tetrahedra through the corner
-// integration weights of the same paper, so the shares are interpolated
-// like the frequencies. Per-site and per-label (first-appearance order)
-// projections sum to the total at every sample; each site's integrates to
-// p.
-//
-// A frequency is imaginary when it is negative (see Zero and imaginary
-// modes), except that the p acoustic modes at Γ are never counted
-// imaginary (as in Model.Stability); the thermal sums treat |ν| ≤
-// ZeroModeTol (1e-6) times the largest |ν| on the grid as a zero mode. ComputeDOS counts imaginary modes and by default leaves
-// them out: the Gaussian and histogram skip them, the tetrahedron DOS drops
-// the interpolated spectrum below zero (simplices straddling zero keep
-// their positive part). NegativeAxis keeps them on the negative
-// frequency axis, with the window extended below the lowest mode.
-//
-// ComputeThermal gives, per cell, the harmonic internal energy U and
-// Helmholtz free energy F (both with the zero-point energy Σ hν/2), the
-// entropy S and the heat capacity at constant volume Cv, in eV and eV/K
-// (per mole of cells: EVToKJPerMol, EVPerKToJPerMolK), at T ≥ 0 K:
-//
-//	U = Σ w hν (½ + n),  F = Σ w [hν/2 + kT ln(1 − e^(−x))],
-//	S = k Σ w [x n − ln(1 − e^(−x))],  Cv = k Σ w x² n (1 + n),
-//
-// with x = hν/kT, n = 1/(eˣ − 1) and w the weight of the mode's q-point
-// (1/N on a grid). T = 0 gives U = F = ZPE and S = Cv = 0. Only the p
-// acoustic modes at Γ (translations, zero to rounding) and modes of zero or
-// negative frequency are left out — every positive mode is summed, however
-// far below the highest, as the DOS keeps it — and so are imaginary modes when
-// AllowUnstable (counted in ImaginaryExcluded); without it an unstable grid
-// is an error wrapping ErrUnstable. The default route is the exact sum over
-// the grid's modes (for a finite crystal, over its allowed modes, so small
-// crystals show their real low-T deviation from the bulk); it is evaluated
-// by Taylor series of n over groups of modes of similar frequency, equal to
-// the mode-by-mode sum to rounding (1e-11 is tested). DOSIntegral
-// integrates a 2000-bin tetrahedron DOS by the midpoint rule instead: it
-// smooths a coarse grid but needs kT well above the bin width.
-//
-// θ_D(T) is the temperature θ for which the Debye model of the crystal's
-// dimensionality d, C/(k per mode) = (d+1)D_d(θ/T) − d(θ/T)/(e^(θ/T) − 1)
-// with the Debye function D_d of Abramowitz & Stegun §27.1, has the model's
-// heat capacity per mode at T. It comes with a ThetaStatus: at T = 0 it is
-// the elastic θ_D, its limit; where the grid cannot determine it (lowest
-// grid mode above 4 k_BT/h, or the Γ modes left out shifting it by more
-// than 1 %, or Cv per mode too near 0 or 1 for the inversion) it is 0 with
-// the reason. The DOS route's tetrahedra touching Γ undercount the acoustic
-// states below the first grid shell (θ_D → 370 K instead of 314.6 K for the
-// fcc example), so it is trusted only for x₁ ≤ 1. ThetaElasticK is θ_D of the
-// elastic limit: the Debye model whose low-frequency DOS matches the
-// sound velocities of the acoustic branches (Model.SoundVelocities,
-// averaged over directions), ν_D^d = d·p·sites/(V S_d Σ_s ⟨v_s^(−d)⟩),
-// S_d = 2, 2π, 4π; θ_D(T) tends to it as T → 0 in the bulk.
-//
-// With MSD, ⟨u uᵀ⟩ of every site (Å²) is Σ w ħ/(2 m_s ω) coth(ħω/2kT)
-// Re(e_s e_s†) over the grid's modes (GridOptions.Eigenvectors), and B =
-// 8π²⟨u²⟩/3 = 8π² trace/3 is the isotropic Debye–Waller factor (Willis &
-// Pryor, Thermal Vibrations in Crystallography, ch. 4). It is a mode sum on
-// both routes. In one dimension ⟨u²⟩ of an infinite crystal diverges at
-// every T (zero-point ∝ ln N, thermal ∝ N on an N-point grid), in two at
-// T > 0 (∝ ln N) (Peierls 1934; Mermin & Wagner 1966): such sums are
-// flagged SiteMSD.Divergent with the reason. In three it converges,
-// slowly, because of the 1/ω² weight near Γ.
+// They are computed from grid modes by the packages above the core:
+// physics/spectra (ComputeDOS: tetrahedra, Gaussian, histogram,
+// projections) and physics/thermo (ComputeThermal: U, F, S, Cv, θ_D,
+// mean-square displacements); their doc.go files are their manuals. The
+// core gives them GridModes (with the reduction they were computed with,
+// GridModes.Reduction, and its cache), CheckGridModes, IsGamma and the
+// elastic Debye temperature (Model.ElasticDebyeTemperature).
 //
 // # Symmetry and reduced grids
 //
@@ -361,6 +271,25 @@
 //     geometry and simplex classes.
 //   - physics (this package) — the model, validation, compilation, the
 //     dynamical matrix, symmetry with site maps, modes, velocities,
-//     long-wave limit, paths, stability, grid modes and their unfolding,
-//     DOS, thermal sums, displacements, cost estimates, units.
+//     long-wave limit and elastic Debye temperature, paths, stability,
+//     grid modes and their unfolding, units, and the cost estimates of
+//     these computations (cost.go: Cost, GridSize, GridModesCost,
+//     StreamCost, DispersionCost).
+//   - physics/internal/testmodels — for tests only: the example crystals
+//     compiled, crystal transformations, random models for property tests,
+//     shared by the tests of spectra and thermo.
+//   - physics/spectra — densities of states from grid modes (ComputeDOS:
+//     linear tetrahedra with symmetry classes, Gaussian, histogram,
+//     per-site and per-label projections) and their cost (DOSCost).
+//   - physics/thermo — thermal properties from grid modes (ComputeThermal:
+//     harmonic U, F, S, Cv; θ_D(T) with its status; Debye functions;
+//     mean-square displacements) and their cost (ThermalCost); its
+//     DOS-integral route uses spectra.
+//
+// Capabilities still to come each get a package of their own above the
+// core (DEVELOPERS.md, Architecture): imported first-principles force
+// constants (physics/fcimport), polar crystals and the dipole–dipole sum
+// (physics/polar), fitting force constants to data (physics/fit),
+// scattering intensities (physics/scatter), heat transport and the
+// quasi-harmonic approximation (physics/transport, physics/thermo/qha).
 package physics

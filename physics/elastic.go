@@ -652,7 +652,7 @@ func relaxation(ctx context.Context, phi0, y []float64, nw, np int) ([]float64, 
 	return out, nil
 }
 
-// elasticDebyeTemperature returns θ_D from the sound velocities of the
+// ElasticDebyeTemperature returns θ_D (K) from the sound velocities of the
 // acoustic branches in the elastic (long-wavelength) limit: the Debye model
 // whose low-frequency DOS matches the model's, g(ν) = V S_d ν^(d−1) Σ_s
 // ⟨v_s^(−d)⟩ per cell, holding all p·sites modes (Kittel ch. 5;
@@ -663,7 +663,7 @@ func relaxation(ctx context.Context, phi0, y []float64, nw, np int) ([]float64, 
 // on the sphere for d = 3. It is 0 when undefined: p < d, a non-positive
 // or imaginary acoustic velocity, or no lattice. It returns ctx.Err() if
 // ctx ends during the set-up of the long-wave limit.
-func elasticDebyeTemperature(ctx context.Context, m *Model) (float64, error) {
+func (m *Model) ElasticDebyeTemperature(ctx context.Context) (float64, error) {
 	d, p := m.Dim(), m.Polarizations()
 	if p < d || d < 1 || d > 3 {
 		return 0, nil

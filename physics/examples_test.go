@@ -126,10 +126,10 @@ func mustSound(t testing.TB, m *Model, dir [3]float64) []float64 {
 	return v
 }
 
-// mustElasticTheta is elasticDebyeTemperature without a deadline.
+// mustElasticTheta is Model.ElasticDebyeTemperature without a deadline.
 func mustElasticTheta(t testing.TB, m *Model) float64 {
 	t.Helper()
-	th, err := elasticDebyeTemperature(context.Background(), m)
+	th, err := m.ElasticDebyeTemperature(context.Background())
 	if err != nil {
 		t.Fatal(err)
 	}

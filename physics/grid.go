@@ -5,6 +5,8 @@ package physics
 
 import (
 	"context"
+	"errors"
+	"fmt"
 	"math"
 
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -46,6 +48,57 @@ type GridModes struct {
 
 	irr   *mesh.IrreducibleGrid // the reduction used (nil: every point diagonalised)
 	cache *mesh.ReductionCache  // where simplex classes of this grid are kept (nil: nowhere)
+}
+
+// Reduction is the symmetry reduction the modes were computed with (the
+// orbits of the grid's points), nil when every point was diagonalised
+// (GridOptions.NoSymmetry, a finite crystal, or no operation but the
+// identity). The tetrahedron DOS (package spectra) uses it to sum
+// equivalent simplices once. Read-only: it is shared with the cache.
+func (g *GridModes) Reduction() *mesh.IrreducibleGrid { return g.irr }
+
+// ReductionCache is the cache the reduction came from and where tables
+// derived from it (the tetrahedron method's simplex classes) are kept;
+// nil keeps nothing.
+func (g *GridModes) ReductionCache() *mesh.ReductionCache { return g.cache }
+
+// WithoutCache returns a shallow copy of g (sharing its arrays) that keeps
+// derived tables in no cache, so that consumers compute them afresh: for
+// measuring a cold computation (the cost estimators' tests).
+func (g *GridModes) WithoutCache() *GridModes {
+	c := *g
+	c.cache = nil
+	return &c
+}
+
+// CheckGridModes checks that g is a complete set of modes made by m (or by
+// a model of the same hash, which has the same physics): the check every
+// consumer of grid modes (the DOS, the thermal sums) makes first.
+func CheckGridModes(m *Model, g *GridModes) error {
+	switch {
+	case m == nil:
+		return errors.New("physics: nil model")
+	case g == nil:
+		return errors.New("physics: nil grid modes")
+	case g.ModelHash != m.Hash():
+		return fmt.Errorf("physics: grid modes were made by model %s, not by this model %s: compute them with this model's GridModes", shortHash(g.ModelHash), shortHash(m.Hash()))
+	case g.NModes != m.ModeCount() || g.NSites != m.Sites():
+		return fmt.Errorf("physics: grid modes have %d modes of %d sites, the model %d of %d", g.NModes, g.NSites, m.ModeCount(), m.Sites())
+	case len(g.Points) == 0 || len(g.FreqTHz) != len(g.Points)*g.NModes:
+		return fmt.Errorf("physics: grid modes hold %d frequencies for %d points of %d modes", len(g.FreqTHz), len(g.Points), g.NModes)
+	}
+	return nil
+}
+
+// shortHash is the first 12 characters of a model hash, for messages.
+func shortHash(h string) string {
+	switch {
+	case h == "":
+		return "(none recorded)"
+	case len(h) > 12:
+		return h[:12]
+	}
+	return h
 }
 
 // Bytes is the memory the grid modes hold, for cache accounting: the
@@ -120,7 +173,7 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 	if opt.SiteTensors {
 		c.SiteTensor = make([]float64, reps*nm*ns*pairs)
 	}
-	err = parallelWork(ctx, reps, func(done <-chan struct{}) func(i int) bool {
+	err = parallel.For(ctx, reps, 16, func(done <-chan struct{}) func(i int) bool {
 		w := m.newPointWork(done)
 		return func(i int) bool {
 			if !w.solve(repQ(i), vec) {
@@ -217,34 +270,16 @@ func averageDegenerate(freq, vals []float64, stride int) {
 	}
 }
 
-// parallelWork runs a per-point function over [0, n) on all cores. Each
-// worker builds its own function (and workspace) with newWorker; the
-// function returns false when it saw done closed. Points are handed out in
-// small blocks and ctx is polled before every point, so cancellation stops
-// the work within one point (and within a fraction of one for large
-// matrices, whose solver polls done itself). It returns ctx.Err() if ctx
-// ended first; a worker's panic is re-raised here (parallel.For).
-func parallelWork(ctx context.Context, n int, newWorker func(done <-chan struct{}) func(i int) bool) error {
-	return parallel.For(ctx, n, 16, newWorker)
-}
-
-// parallelRange runs fn over [0, n) in chunks on all cores, checking ctx
-// between chunks; it returns ctx.Err() if ctx ended first; a worker's
-// panic is re-raised here (parallel.Chunks).
-func parallelRange(ctx context.Context, n int, fn func(lo, hi int)) error {
-	return parallel.Chunks(ctx, n, 64, fn)
-}
-
 // normalizeSpec checks the grid spec against the model's dimensionality
 // (mesh.GridSpec.Check) and returns the problems as a *ValidationError
 // with field paths under prefix.
 func normalizeSpec(g mesh.GridSpec, dim int, prefix string) (mesh.GridSpec, error) {
 	g, probs := g.Check(dim, prefix)
-	var vs violations
+	var vs Violations
 	for _, p := range probs {
-		vs.list = append(vs.list, Violation{Field: p.Field, Description: p.Description})
+		vs.Add(p.Field, "%s", p.Description)
 	}
-	return g, vs.err()
+	return g, vs.Err()
 }
 
 // NormalizeGrid fills the unused mesh entries of a dim-dimensional grid spec

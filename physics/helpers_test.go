@@ -4,11 +4,14 @@
 package physics
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"testing"
+	"time"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // cloneCrystal deep-copies c.
@@ -308,4 +311,28 @@ func closeSlices(a, b []float64, tol float64) bool {
 		}
 	}
 	return true
+}
+
+// specCtx is a context for a test, ended after two minutes or with it.
+func specCtx(t testing.TB) context.Context {
+	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
+	t.Cleanup(cancel)
+	return ctx
+}
+
+// modesOn computes the modes of m on spec.
+func modesOn(t testing.TB, m *Model, spec mesh.GridSpec, opt GridOptions) *GridModes {
+	t.Helper()
+	g, err := m.GridModes(specCtx(t), spec, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return g
+}
+
+// exampleGrid compiles an example crystal and computes its modes on spec.
+func exampleGrid(t testing.TB, name string, spec mesh.GridSpec, opt GridOptions) (*Model, *GridModes) {
+	t.Helper()
+	m := mustCompile(t, loadExample(t, name))
+	return m, modesOn(t, m, spec, opt)
 }

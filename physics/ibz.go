@@ -2,6 +2,7 @@ package physics
 
 import (
 	"context"
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 	"math"
 	"math/cmplx"
 
@@ -128,7 +129,7 @@ func (m *Model) unfold(ctx context.Context, ir *mesh.IrreducibleGrid, ops []SymO
 	if opt.SiteTensors {
 		g.SiteTensor = make([]float64, len(pts)*nm*ns*pairs)
 	}
-	err := parallelRange(ctx, len(pts), func(lo, hi int) {
+	err := parallel.Chunks(ctx, len(pts), 64, func(lo, hi int) {
 		for i := lo; i < hi; i++ {
 			s := int(ir.Slot[i])
 			copy(g.FreqTHz[i*nm:(i+1)*nm], c.FreqTHz[s*nm:(s+1)*nm])

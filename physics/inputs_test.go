@@ -113,56 +113,6 @@ func TestNilCrystal(t *testing.T) {
 	}
 }
 
-// TestGridModesOtherModel: grid modes record the model that made them;
-// ComputeDOS and ComputeThermal refuse those of another model of the same
-// size, and accept those of a model with the same hash.
-func TestGridModesOtherModel(t *testing.T) {
-	a := loadExample(t, "chain")
-	b := cloneCrystal(a)
-	b.Springs[0].KLong *= 1.3 // same size, other physics
-	ma, mb, ma2 := mustCompile(t, a), mustCompile(t, b), mustCompile(t, cloneCrystal(a))
-	g := modesOn(t, ma, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
-	if g.ModelHash != ma.Hash() {
-		t.Fatalf("ModelHash %q; want %q", g.ModelHash, ma.Hash())
-	}
-	ctx := specCtx(t)
-	if _, err := ComputeDOS(ctx, mb, g, DOSOptions{}); err == nil || !strings.Contains(err.Error(), "made by model") {
-		t.Errorf("ComputeDOS with another model's modes: %v; want a refusal", err)
-	}
-	if _, err := ComputeThermal(ctx, mb, g, ThermalOptions{TempsK: []float64{300}}); err == nil || !strings.Contains(err.Error(), "made by model") {
-		t.Errorf("ComputeThermal with another model's modes: %v; want a refusal", err)
-	}
-	mustDOS(t, ma2, g, DOSOptions{})
-	mustThermal(t, ma2, g, ThermalOptions{TempsK: []float64{300}})
-	forged := *g
-	forged.ModelHash = ""
-	if _, err := ComputeDOS(ctx, ma, &forged, DOSOptions{}); err == nil {
-		t.Error("ComputeDOS accepted grid modes with no model recorded")
-	}
-}
-
-// TestDOSOptionBounds: DOS window, step and width are bounded where they
-// enter, so that window arithmetic cannot overflow into NaN samples.
-func TestDOSOptionBounds(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
-	for _, tc := range []struct {
-		name  string
-		opt   DOSOptions
-		field string
-	}{
-		{"huge width", DOSOptions{Method: Gaussian, Width: 1e308}, "width"},
-		{"tiny width", DOSOptions{Method: Gaussian, Width: 5e-324}, "width"},
-		{"huge window", DOSOptions{Min: -1e308, Max: 1e308}, "min"},
-		{"huge step", DOSOptions{Step: 1e300}, "step"},
-	} {
-		_, err := ComputeDOS(specCtx(t), m, g, tc.opt)
-		if !strings.Contains(strings.Join(violationFields(err), ","), tc.field) {
-			t.Errorf("%s: %v; want a violation of %s", tc.name, err, tc.field)
-		}
-	}
-}
-
 // TestCleanEigenvalues: the zero rule of doc.go on hand-made spectra.
 func TestCleanEigenvalues(t *testing.T) {
 	const tol = 1e-14
@@ -242,24 +192,6 @@ func forDim(g mesh.GridSpec, d int) mesh.GridSpec {
 		g.Mesh[k] = 1
 	}
 	return g
-}
-
-// TestUnstableStaysNegative: a genuinely unstable chain (negative
-// second-neighbour spring, Kittel ch. 4) still reports negative
-// frequencies, flagged imaginary, on every path.
-func TestUnstableStaysNegative(t *testing.T) {
-	m := mustCompile(t, unstableChain())
-	pm := m.Point([3]float64{0.05}, ModeOptions{})
-	if !(pm.FreqTHz[0] < 0) || !pm.Imaginary {
-		t.Errorf("q=0.05: %v THz, Imaginary %v; want negative, imaginary", pm.FreqTHz, pm.Imaginary)
-	}
-	if lo, _, stable, err := m.Stability(specCtx(t), 16); err != nil || stable || !(lo < 0) {
-		t.Errorf("Stability: lowest %g, stable %v, err %v; want unstable", lo, stable, err)
-	}
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
-	if d := mustDOS(t, m, g, DOSOptions{}); d.Imaginary == 0 {
-		t.Error("DOS counts no imaginary mode")
-	}
 }
 
 // TestTinyStiffnessKept: a chain of equal masses M joined by alternating

@@ -72,7 +72,7 @@ func (m *Model) EigenTolTHz() float64 { return eigToTHz(m.EigenTol()) }
 // anywhere, a negative eigenvalue within tol is set to 0. Values stay
 // ascending and keep their index (eigenvectors stay attached).
 func cleanEigenvalues(vals []float64, q [3]float64, p int, tol float64) {
-	if isGamma(q) {
+	if IsGamma(q) {
 		for n := 0; n < p; n++ {
 			best := -1
 			for k, v := range vals {
@@ -311,9 +311,9 @@ func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOpti
 		return err
 	}
 	if !finite3(opt.VelocityDir) {
-		var vs violations
-		vs.add("velocity_dir", "must be finite, got %v", opt.VelocityDir)
-		return vs.err()
+		var vs Violations
+		vs.Add("velocity_dir", "must be finite, got %v", opt.VelocityDir)
+		return vs.Err()
 	}
 	if emit == nil {
 		return errors.New("physics: StreamModes needs an emit function")
@@ -435,21 +435,21 @@ func (w *pointWork) stopped() bool {
 // every component finite and within ±MaxQ, the components past d zero, the
 // weight finite. Violations name fields prefix[i].q1 … q3.
 func ValidateQPoints(dim int, pts []mesh.QPoint, prefix string) error {
-	var vs violations
+	var vs Violations
 	for i, p := range pts {
 		for k, x := range p.Q {
 			switch {
 			case !(math.Abs(x) <= MaxQ):
-				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), qRangeMsg, x)
+				vs.Add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), qRangeMsg, x)
 			case k >= dim && x != 0:
-				vs.add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, x)
+				vs.Add(fmt.Sprintf("%s[%d].q%d", prefix, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, x)
 			}
 		}
 		if !finite(p.Weight) {
-			vs.add(fmt.Sprintf("%s[%d].weight", prefix, i), "must be finite, got %v", p.Weight)
+			vs.Add(fmt.Sprintf("%s[%d].weight", prefix, i), "must be finite, got %v", p.Weight)
 		}
 	}
-	return vs.err()
+	return vs.Err()
 }
 
 // qRangeMsg is the violation text of a q component out of the domain.
@@ -457,3 +457,13 @@ const qRangeMsg = "must be a finite number within ±1e6 reciprocal-lattice units
 
 // finite3 reports whether every component of v is finite.
 func finite3(v [3]float64) bool { return finite(v[0]) && finite(v[1]) && finite(v[2]) }
+
+// IsGamma reports whether q (fractional) is a reciprocal lattice vector.
+func IsGamma(q [3]float64) bool {
+	for _, x := range q {
+		if math.Abs(x-math.Round(x)) > 1e-12 {
+			return false
+		}
+	}
+	return true
+}

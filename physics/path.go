@@ -117,7 +117,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violations) [][3]float64 {
 	qs := make([][3]float64, len(corners))
 	if len(corners) < 2 {
-		vs.add("path", "must have at least 2 points, got %d", len(corners))
+		vs.Add("path", "must have at least 2 points, got %d", len(corners))
 	}
 	for i, c := range corners {
 		f := fmt.Sprintf("path[%d]", i)
@@ -127,7 +127,7 @@ func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violat
 			continue
 		}
 		if c.Label == "" {
-			vs.add(f, "needs coordinates or a built-in label")
+			vs.Add(f, "needs coordinates or a built-in label")
 			continue
 		}
 		q, ok := m.lookupLabel(c.Label)
@@ -139,9 +139,9 @@ func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violat
 	}
 	switch {
 	case opt.Points < 0:
-		vs.add("points", "must be ≥ 0, got %d", opt.Points)
+		vs.Add("points", "must be ≥ 0, got %d", opt.Points)
 	case !finite(opt.SpacingInvA) || opt.SpacingInvA < 0:
-		vs.add("spacing_inv_a", "must be a finite number ≥ 0, got %v", opt.SpacingInvA)
+		vs.Add("spacing_inv_a", "must be a finite number ≥ 0, got %v", opt.SpacingInvA)
 	}
 	return qs
 }
@@ -188,7 +188,7 @@ func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *violat
 		}
 		l := lattice.Norm(lattice.Sub(m.cartQ(qs[i]), m.cartQ(qs[i-1])))
 		if l < 1e-12 {
-			vs.add(fmt.Sprintf("path[%d]", i), "is the same point as path[%d]: a segment needs two distinct points (use break_before to jump)", i-1)
+			vs.Add(fmt.Sprintf("path[%d]", i), "is the same point as path[%d]: a segment needs two distinct points (use break_before to jump)", i-1)
 		}
 		seglen[i] = l
 		total += l
@@ -197,7 +197,7 @@ func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *violat
 		start := i == 0 || corners[i].BreakBefore
 		end := i == len(corners)-1 || corners[i+1].BreakBefore
 		if start && end {
-			vs.add(fmt.Sprintf("path[%d]", i), "is alone in its piece of path: a piece needs at least two points")
+			vs.Add(fmt.Sprintf("path[%d]", i), "is alone in its piece of path: a piece needs at least two points")
 		}
 	}
 	return seglen, total
@@ -222,7 +222,7 @@ func planSteps(ncorners int, seglen []float64, total float64, opt PathOptions, v
 			}
 		}
 		if nsamples > MaxPathSamples {
-			vs.add("spacing_inv_a", "%v Å⁻¹ gives more than %d samples over a path of %.4g Å⁻¹", opt.SpacingInvA, MaxPathSamples, total)
+			vs.Add("spacing_inv_a", "%v Å⁻¹ gives more than %d samples over a path of %.4g Å⁻¹", opt.SpacingInvA, MaxPathSamples, total)
 		}
 		return steps, nsamples
 	}

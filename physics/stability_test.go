@@ -82,7 +82,7 @@ func TestCancelStopsLargeSolve(t *testing.T) {
 // cancel comes after a delay that cycles through the phases of a solve
 // (assembly, reduction, QL, back-transformation, velocities). Reported as
 // the mean and the largest ms/cancel; the project's target is under 10 ms.
-// GridModes shares the polling (parallelWork and the solver's own).
+// GridModes shares the polling (parallel.For and the solver's own).
 func BenchmarkCancelLatency(b *testing.B) {
 	cube := supercell(b, loadExample(b, "rocksalt-like"), conventionalCell)
 	for _, tc := range []struct {

@@ -18,12 +18,12 @@ const (
 	EVPerA2InNPerM      = ElementaryChargeC / 1e-20 // 1 eV/Å² in N/m = 16.02176634 (exact)
 	BoltzmannEVPerK     = BoltzmannJPerK / ElementaryChargeC
 	GasConstantJPerMolK = BoltzmannJPerK * AvogadroPerMol // R
-	angstromM           = 1e-10
+	AngstromM           = 1e-10                           // 1 Å in m (exact)
 )
 
 // OmegaUnitRadPerS is ω in rad/s of an eigenvalue of 1 eV/Å²/amu:
 // sqrt(e / (1e-20 m² · m_u)) ≈ 9.82269475e13 rad/s.
-var OmegaUnitRadPerS = math.Sqrt(ElementaryChargeC / (angstromM * angstromM * AtomicMassKg))
+var OmegaUnitRadPerS = math.Sqrt(ElementaryChargeC / (AngstromM * AngstromM * AtomicMassKg))
 
 // NuUnitTHz is ν in THz of an eigenvalue of 1 eV/Å²/amu, ≈ 15.6333042 THz.
 var NuUnitTHz = OmegaUnitRadPerS / (2 * math.Pi) / 1e12

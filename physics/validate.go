@@ -156,13 +156,13 @@ func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 // or nil. Compile runs it and then checks the shells.
 // A nil c is an error too (field "model"), not a panic.
 func Validate(c *Crystal, lim Limits) error {
-	var vs violations
+	var vs Violations
 	if c == nil {
-		vs.add("model", "is required (got a nil crystal)")
-		return vs.err()
+		vs.Add("model", "is required (got a nil crystal)")
+		return vs.Err()
 	}
 	validate(c, lim.withDefaults(), &vs)
-	return vs.err()
+	return vs.Err()
 }
 
 // validate appends to vs every violation in c, in a fixed order: lattice,
@@ -173,10 +173,10 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	v := &validator{c: c, lim: lim, vs: vs, d: len(c.Lattice), n: len(c.Sites)}
 	v.checkLattice()
 	if c.Polarizations < 0 || c.Polarizations > 3 {
-		vs.add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
+		vs.Add("polarizations", "must be 1, 2 or 3 (0 means 3), got %d", c.Polarizations)
 	}
 	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
-		vs.add("force_unit", "unknown unit %d", c.ForceUnit)
+		vs.Add("force_unit", "unknown unit %d", c.ForceUnit)
 	}
 	v.maxForce, v.forceUnit = MaxForceEVPerA2, "eV/Å²"
 	if c.ForceUnit == NPerM {
@@ -270,7 +270,7 @@ func (v *validator) checkDegenerate() {
 func (v *validator) checkSites() {
 	vs, n := v.vs, v.n
 	if n == 0 {
-		vs.add("sites", "must have at least one site, got none")
+		vs.Add("sites", "must have at least one site, got none")
 	}
 	if n > v.lim.MaxSites {
 		vs.add("sites", "has %d sites, more than the limit of %d", n, v.lim.MaxSites)
@@ -286,10 +286,10 @@ func (v *validator) checkSites() {
 		ok := true
 		for k, x := range s.Frac {
 			if !finite(x) {
-				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
+				vs.Add(fmt.Sprintf("%s.frac[%d]", f, k), "must be finite, got %v", x)
 				ok = false
 			} else if math.Abs(x) > MaxFrac {
-				vs.add(fmt.Sprintf("%s.frac[%d]", f, k), "must be within ±%g, got %v", MaxFrac, x)
+				vs.Add(fmt.Sprintf("%s.frac[%d]", f, k), "must be within ±%g, got %v", MaxFrac, x)
 				ok = false
 			}
 		}
@@ -488,15 +488,15 @@ func (v *validator) checkShells() {
 			seen[sk] = idx
 		}
 		if !labels[s.FromLabel] {
-			vs.add(f+".from_label", "no site has label %q", s.FromLabel)
+			vs.Add(f+".from_label", "no site has label %q", s.FromLabel)
 		}
 		if !labels[s.ToLabel] {
-			vs.add(f+".to_label", "no site has label %q", s.ToLabel)
+			vs.Add(f+".to_label", "no site has label %q", s.ToLabel)
 		}
 		if s.Shell < 1 {
-			vs.add(f+".shell", "must be ≥ 1 (1 = nearest neighbours), got %d", s.Shell)
+			vs.Add(f+".shell", "must be ≥ 1 (1 = nearest neighbours), got %d", s.Shell)
 		} else if s.Shell > maxShell {
-			vs.add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
+			vs.Add(f+".shell", "must be ≤ %d, got %d", maxShell, s.Shell)
 		}
 		v.checkForce(f+".k_long", s.KLong)
 		v.checkForce(f+".k_trans", s.KTrans)

@@ -36,6 +36,8 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
+	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -319,14 +321,14 @@ func (s *Service) gridSize(e *modelEntry, spec mesh.GridSpec) physics.GridSize {
 // thermalEstimate is the cost of a thermal request: the grid's modes
 // (with eigenvectors for mean-square displacements), the sums, and the
 // reply twice.
-func (s *Service) thermalEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.ThermalOptions) estimate {
+func (s *Service) thermalEstimate(e *modelEntry, spec mesh.GridSpec, opt thermo.ThermalOptions) estimate {
 	return thermalCost(s.gridSize(e, spec), opt)
 }
 
 // thermalCost is thermalEstimate for a model of size.
-func thermalCost(size physics.GridSize, opt physics.ThermalOptions) estimate {
+func thermalCost(size physics.GridSize, opt thermo.ThermalOptions) estimate {
 	c := physics.GridModesCost(size, physics.GridOptions{Eigenvectors: opt.MSD})
-	c = c.Plus(physics.ThermalCost(size, len(opt.TempsK), opt.MSD, opt.Route, true))
+	c = c.Plus(thermo.ThermalCost(size, len(opt.TempsK), opt.MSD, opt.Route, true))
 	per := int64(100)
 	if opt.MSD {
 		per += int64(size.Sites) * 110
@@ -386,10 +388,10 @@ func (s *Service) typicalCosts(e *modelEntry) []*modegridv1.RequestCost {
 		out = append(out, &modegridv1.RequestCost{Request: what, PeakBytes: uint64(max(0, est.cost.Bytes)),
 			Seconds: est.cost.Seconds(s.budget.cores), Admitted: fits && reason == ""})
 	}
-	add("dos "+label+" tetrahedron", s.dosEstimate(e, spec, physics.DOSOptions{}), true)
-	add("dos "+label+" tetrahedron per-site", s.dosEstimate(e, spec, physics.DOSOptions{PerSite: true}), true)
-	add("thermal "+label+" 100 temperatures", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps}), true)
-	add("thermal "+label+" 100 temperatures msd", s.thermalEstimate(e, spec, physics.ThermalOptions{TempsK: temps, MSD: true}), true)
+	add("dos "+label+" tetrahedron", s.dosEstimate(e, spec, spectra.DOSOptions{}), true)
+	add("dos "+label+" tetrahedron per-site", s.dosEstimate(e, spec, spectra.DOSOptions{PerSite: true}), true)
+	add("thermal "+label+" 100 temperatures", s.thermalEstimate(e, spec, thermo.ThermalOptions{TempsK: temps}), true)
+	add("thermal "+label+" 100 temperatures msd", s.thermalEstimate(e, spec, thermo.ThermalOptions{TempsK: temps, MSD: true}), true)
 	size := e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1)
 	add("dispersion 100 points", estimate{cost: physics.DispersionCost(size, 100, false, false)}, true)
 	opt := physics.ModeOptions{Eigenvectors: true}

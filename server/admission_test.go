@@ -10,8 +10,8 @@ import (
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
-	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -129,7 +129,7 @@ func TestAdmissionSharesOneBudget(t *testing.T) {
 		t.Fatal(err)
 	}
 	spec := mesh.GridSpec{Mesh: [3]int{20, 20, 20}}
-	one := probe.dosEstimate(e, spec, physics.DOSOptions{PerSite: true}).cost.Bytes
+	one := probe.dosEstimate(e, spec, spectra.DOSOptions{PerSite: true}).cost.Bytes
 	b := newBlocker(kindDOS)
 	ts := startServer(t, Config{MemoryBudget: one * 3 / 2, QueueTimeout: 300 * time.Millisecond}, serverOpts{hook: b.hook})
 	reg := ts.srv.Registry()

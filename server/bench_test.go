@@ -9,6 +9,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -102,7 +103,7 @@ func reportLatency(b *testing.B, lat []time.Duration) {
 }
 
 // BenchmarkColdDos48 compares a 48³ tetrahedron DOS of the fcc example
-// computed directly (physics.GridModes + physics.ComputeDOS) with the same
+// computed directly (physics.GridModes + spectra.ComputeDOS) with the same
 // request sent cold to a server without cache over loopback. Each
 // iteration does both, alternately, so that load from elsewhere hits them
 // alike; overhead-% is the server's extra time relative to the direct call
@@ -134,7 +135,7 @@ func BenchmarkColdDos48(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			if _, err := physics.ComputeDOS(ctx, e.m, g, physics.DOSOptions{}); err != nil {
+			if _, err := spectra.ComputeDOS(ctx, e.m, g, spectra.DOSOptions{}); err != nil {
 				b.Fatal(err)
 			}
 			direct += time.Since(t0)

@@ -6,12 +6,13 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
 var dosCodec = protoCodec(func() *modegridv1.ComputeDosResponse { return &modegridv1.ComputeDosResponse{} })
 
-// dosFields maps physics.DOSOptions's field paths onto ComputeDosRequest's:
+// dosFields maps spectra.DOSOptions's field paths onto ComputeDosRequest's:
 // the names agree.
 var dosFields = fieldMap{"method": "method", "unit": "unit", "min": "min", "max": "max", "step": "step", "width": "width"}
 
@@ -70,21 +71,21 @@ func (s *Service) computeDos(ctx context.Context, req *modegridv1.ComputeDosRequ
 // dosOptions converts the request into the engine's options, reporting
 // enum values the proto does not define; bad names the fields so reported,
 // whose engine checks would repeat them.
-func dosOptions(req *modegridv1.ComputeDosRequest, vs *violations) (opt physics.DOSOptions, bad map[string]bool) {
+func dosOptions(req *modegridv1.ComputeDosRequest, vs *violations) (opt spectra.DOSOptions, bad map[string]bool) {
 	bad = map[string]bool{}
-	opt = physics.DOSOptions{PerSite: req.GetPerSite(), Unit: unitFromProto(req.GetUnit()),
+	opt = spectra.DOSOptions{PerSite: req.GetPerSite(), Unit: unitFromProto(req.GetUnit()),
 		Min: canonFloat(req.GetMin()), Max: canonFloat(req.GetMax()), Step: canonFloat(req.GetStep()), Width: canonFloat(req.GetWidth())}
 	switch req.GetMethod() {
 	case modegridv1.DosMethod_DOS_METHOD_UNSPECIFIED, modegridv1.DosMethod_DOS_METHOD_TETRAHEDRON:
-		opt.Method = physics.Tetrahedron
+		opt.Method = spectra.Tetrahedron
 	case modegridv1.DosMethod_DOS_METHOD_GAUSSIAN:
-		opt.Method = physics.Gaussian
+		opt.Method = spectra.Gaussian
 	case modegridv1.DosMethod_DOS_METHOD_HISTOGRAM:
-		opt.Method = physics.Histogram
+		opt.Method = spectra.Histogram
 	default:
 		vs.Add("method", "unknown method %d", req.GetMethod())
 		bad["method"] = true
-		opt.Method = physics.Gaussian // the method that takes a width: the width's own checks still run
+		opt.Method = spectra.Gaussian // the method that takes a width: the width's own checks still run
 	}
 	switch req.GetImaginary() {
 	case modegridv1.ImaginaryModes_IMAGINARY_MODES_UNSPECIFIED, modegridv1.ImaginaryModes_IMAGINARY_MODES_EXCLUDE:
@@ -102,7 +103,7 @@ func dosOptions(req *modegridv1.ComputeDosRequest, vs *violations) (opt physics.
 
 // checkDOSSamples checks the number of samples, when the options fix it,
 // against this server's cap max-dos-bins.
-func (s *Service) checkDOSSamples(vs *violations, opt physics.DOSOptions) {
+func (s *Service) checkDOSSamples(vs *violations, opt spectra.DOSOptions) {
 	if n, known := opt.Samples(); known && n > float64(s.cfg.MaxDOSBins) {
 		vs.Add("step", "the window %v…%v in steps of %v is %.0f samples, over this server's cap max-dos-bins=%d", opt.Min, opt.Max, opt.Step, n, s.cfg.MaxDOSBins)
 	}
@@ -110,18 +111,18 @@ func (s *Service) checkDOSSamples(vs *violations, opt physics.DOSOptions) {
 
 // dosReplyGuess is the number of samples for the reply's size: the
 // engine's count when the options fix it, else the default's.
-func dosReplyGuess(opt physics.DOSOptions) float64 {
+func dosReplyGuess(opt spectra.DOSOptions) float64 {
 	if n, known := opt.Samples(); known {
 		return n
 	}
-	n, _ := physics.DOSOptions{}.Samples()
+	n, _ := spectra.DOSOptions{}.Samples()
 	return n
 }
 
 // dosSeries is the number of series of a DOS reply for a model of sites
 // sites: frequencies, DOS and its integral, and per site and per label
 // when asked.
-func dosSeries(sites int, opt physics.DOSOptions) float64 {
+func dosSeries(sites int, opt spectra.DOSOptions) float64 {
 	if opt.PerSite {
 		return 3 + 2*float64(sites)
 	}
@@ -130,14 +131,14 @@ func dosSeries(sites int, opt physics.DOSOptions) float64 {
 
 // checkDOSReply refuses a DOS whose reply for a model of sites sites
 // cannot fit one message.
-func (s *Service) checkDOSReply(vs *violations, opt physics.DOSOptions, sites int) {
+func (s *Service) checkDOSReply(vs *violations, opt spectra.DOSOptions, sites int) {
 	n, series := dosReplyGuess(opt), dosSeries(sites, opt)
 	s.checkReply(vs, "step", n*series*8, fmt.Sprintf("%.0f samples × %.0f series", n, series))
 }
 
 // dosParams is the canonical parameter string of a DOS request, its cache
 // key with the model hash.
-func dosParams(grid mesh.GridSpec, opt physics.DOSOptions) string {
+func dosParams(grid mesh.GridSpec, opt spectra.DOSOptions) string {
 	var p params
 	p.add("grid", gridParam(grid))
 	p.add("method", opt.Method.String())
@@ -152,7 +153,7 @@ func dosParams(grid mesh.GridSpec, opt physics.DOSOptions) string {
 	} else {
 		p.add("step", fmtFloat(opt.Step))
 	}
-	if opt.Method == physics.Gaussian {
+	if opt.Method == spectra.Gaussian {
 		if opt.Width == 0 {
 			p.add("width", "auto")
 		} else {
@@ -169,9 +170,9 @@ func dosParams(grid mesh.GridSpec, opt physics.DOSOptions) string {
 }
 
 // runDOS computes the DOS once admitted: the grid's modes (shared), then
-// physics.ComputeDOS, then the cap on a window chosen from the modes.
-func (s *Service) runDOS(ctx context.Context, e *modelEntry, grid mesh.GridSpec, opt physics.DOSOptions, est estimate) (*physics.DOSResult, error) {
-	var res *physics.DOSResult
+// spectra.ComputeDOS, then the cap on a window chosen from the modes.
+func (s *Service) runDOS(ctx context.Context, e *modelEntry, grid mesh.GridSpec, opt spectra.DOSOptions, est estimate) (*spectra.DOSResult, error) {
+	var res *spectra.DOSResult
 	err := s.admitted(ctx, est, func(ctx context.Context) error {
 		g, _, err := s.gridModes(ctx, e, grid, gridNeed{sites: opt.PerSite})
 		if err != nil {
@@ -179,7 +180,7 @@ func (s *Service) runDOS(ctx context.Context, e *modelEntry, grid mesh.GridSpec,
 		}
 		return s.run(ctx, kindDOS, func(ctx context.Context) error {
 			var err error
-			res, err = physics.ComputeDOS(ctx, e.m, g, opt)
+			res, err = spectra.ComputeDOS(ctx, e.m, g, opt)
 			return err
 		})
 	})
@@ -193,7 +194,7 @@ func (s *Service) runDOS(ctx context.Context, e *modelEntry, grid mesh.GridSpec,
 	return res, nil
 }
 
-func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.ComputeDosResponse {
+func dosToProto(e *modelEntry, canon string, r *spectra.DOSResult) *modegridv1.ComputeDosResponse {
 	out := &modegridv1.ComputeDosResponse{
 		ModelHash:      e.hash,
 		Parameters:     canon,
@@ -218,15 +219,15 @@ func dosToProto(e *modelEntry, canon string, r *physics.DOSResult) *modegridv1.C
 // dosEstimate is the cost of a DOS request: the grid's modes (with site
 // weights for a per-site DOS), the DOS, and the reply twice (the message
 // and its encoding).
-func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt physics.DOSOptions) estimate {
+func (s *Service) dosEstimate(e *modelEntry, spec mesh.GridSpec, opt spectra.DOSOptions) estimate {
 	return dosCost(s.gridSize(e, spec), opt)
 }
 
 // dosCost is dosEstimate for a model of size.
-func dosCost(size physics.GridSize, opt physics.DOSOptions) estimate {
+func dosCost(size physics.GridSize, opt spectra.DOSOptions) estimate {
 	samples := int(dosReplyGuess(opt))
 	c := physics.GridModesCost(size, physics.GridOptions{Projections: opt.PerSite})
-	c = c.Plus(physics.DOSCost(size, opt, samples, true))
+	c = c.Plus(spectra.DOSCost(size, opt, samples, true))
 	series := int64(dosSeries(size.Sites, opt))
 	c.Bytes += 2 * 8 * series * int64(samples)
 	change := "a smaller grid (qpoints)"

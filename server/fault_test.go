@@ -313,7 +313,7 @@ func TestFaultCapsRefusedBeforeWork(t *testing.T) {
 		{name: "path corners over max-path-corners", call: disp(&modegridv1.ComputeDispersionRequest{Model: inline(chain), Path: corners(6)}), field: "path", cap: "max-path-corners=5"},
 		{name: "dos window over max-dos-bins", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Min: 0, Max: 10, Step: 1e-3}), field: "step", cap: "max-dos-bins=2000"},
 		// Not caps, but refused before the grid is diagonalised all the
-		// same (they used to be found by physics.ComputeDOS after it).
+		// same (they used to be found by spectra.ComputeDOS after it).
 		{name: "dos window upside down", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Min: 4, Max: 2}), field: "max", cap: "greater than min"},
 		{name: "dos negative width", call: dos(&modegridv1.ComputeDosRequest{Model: inline(chain), Qpoints: mpGrid(false, 8), Method: modegridv1.DosMethod_DOS_METHOD_GAUSSIAN, Width: -0.5}), field: "width", cap: "must be > 0"},
 	}

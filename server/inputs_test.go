@@ -45,7 +45,7 @@ func TestQOutOfRange(t *testing.T) {
 }
 
 // TestDosParameterBounds: DOS window and width are bounded where they
-// enter (physics.MaxDOSFrequency, MinDOSWidth), so no request can
+// enter (spectra.MaxDOSFrequency, MinDOSWidth), so no request can
 // overflow the window arithmetic into NaN samples.
 func TestDosParameterBounds(t *testing.T) {
 	ts := startServer(t, Config{})

@@ -6,6 +6,8 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/spectra"
+	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -43,7 +45,7 @@ func agree(t *testing.T, engine, client map[string]string, fm fieldMap) {
 }
 
 // TestDOSOptionViolationsAgree: every bad DOS option is INVALID_ARGUMENT
-// naming the request field, with the words of physics.DOSOptions.Validate
+// naming the request field, with the words of spectra.DOSOptions.Validate
 // run on the same options — including a width with a method other than
 // Gaussian, which the engine refuses and the server once dropped.
 func TestDOSOptionViolationsAgree(t *testing.T) {
@@ -59,9 +61,9 @@ func TestDOSOptionViolationsAgree(t *testing.T) {
 		{"max infinite", &modegridv1.ComputeDosRequest{Max: math.Inf(1)}},
 		{"max below min", &modegridv1.ComputeDosRequest{Min: 5, Max: 1}},
 		{"step negative", &modegridv1.ComputeDosRequest{Step: -0.1}},
-		{"step huge", &modegridv1.ComputeDosRequest{Step: 2 * physics.MaxDOSFrequency}},
+		{"step huge", &modegridv1.ComputeDosRequest{Step: 2 * spectra.MaxDOSFrequency}},
 		{"width negative", &modegridv1.ComputeDosRequest{Method: G, Width: -1}},
-		{"width too narrow", &modegridv1.ComputeDosRequest{Method: G, Width: physics.MinDOSWidth / 10}},
+		{"width too narrow", &modegridv1.ComputeDosRequest{Method: G, Width: spectra.MinDOSWidth / 10}},
 		{"width with tetrahedron", &modegridv1.ComputeDosRequest{Width: 0.5}},
 		{"width with histogram", &modegridv1.ComputeDosRequest{Method: H, Width: 0.5}},
 		{"several at once", &modegridv1.ComputeDosRequest{Method: H, Min: 2, Max: 1, Step: -1, Width: 0.5}},
@@ -82,7 +84,7 @@ func TestDOSOptionViolationsAgree(t *testing.T) {
 
 // TestThermalOptionViolationsAgree: every bad explicit temperature is
 // INVALID_ARGUMENT naming temperatures_k[i] at its index in the request,
-// with the words of physics.ThermalOptions.Validate on the same options.
+// with the words of thermo.ThermalOptions.Validate on the same options.
 func TestThermalOptionViolationsAgree(t *testing.T) {
 	ts := startServer(t, Config{})
 	ctx := testContext(t)
@@ -93,10 +95,10 @@ func TestThermalOptionViolationsAgree(t *testing.T) {
 	}{
 		{"negative", []float64{-1}},
 		{"NaN after a good one", []float64{300, math.NaN()}},
-		{"too hot and infinite", []float64{10 * physics.MaxTempK, 100, math.Inf(-1)}},
+		{"too hot and infinite", []float64{10 * thermo.MaxTempK, 100, math.Inf(-1)}},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
-			want := engineFields(t, physics.ThermalOptions{TempsK: tt.temps}.Validate())
+			want := engineFields(t, thermo.ThermalOptions{TempsK: tt.temps}.Validate())
 			_, err := ts.api.ComputeThermal(ctx, &modegridv1.ComputeThermalRequest{Model: fcc, Qpoints: mpGrid(false, 2, 2, 2),
 				TemperaturesK: tt.temps, Range: &modegridv1.TemperatureRange{StartK: 10, StopK: 20, StepK: 5}})
 			agree(t, want, badFields(t, err), thermalFields)

@@ -30,6 +30,8 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
+	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -217,7 +219,7 @@ func (s *Service) lowerBound(vs *violations, est estimate) {
 }
 
 // precheckDOS is ComputeDos's pre-compile check.
-func (s *Service) precheckDOS(vs *violations, req *modegridv1.ComputeDosRequest, opt physics.DOSOptions) bool {
+func (s *Service) precheckDOS(vs *violations, req *modegridv1.ComputeDosRequest, opt spectra.DOSOptions) bool {
 	return s.precheck(vs, req.GetModel(), func(r rawModel, vs *violations) {
 		s.checkDOSReply(vs, opt, r.size.Sites)
 		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && vs.Len() == 0 {
@@ -227,7 +229,7 @@ func (s *Service) precheckDOS(vs *violations, req *modegridv1.ComputeDosRequest,
 }
 
 // precheckThermal is ComputeThermal's pre-compile check.
-func (s *Service) precheckThermal(vs *violations, req *modegridv1.ComputeThermalRequest, opt physics.ThermalOptions) bool {
+func (s *Service) precheckThermal(vs *violations, req *modegridv1.ComputeThermalRequest, opt thermo.ThermalOptions) bool {
 	return s.precheck(vs, req.GetModel(), func(r rawModel, vs *violations) {
 		if len(opt.TempsK) == 0 {
 			return

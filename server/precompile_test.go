@@ -10,6 +10,8 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
+	"github.com/materials-lab/modegrid/physics/thermo"
 	"github.com/materials-lab/modegrid/proto/examples"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
@@ -137,9 +139,9 @@ func TestPrecompileBoundIsBelowTheEstimate(t *testing.T) {
 				}
 			}
 			for _, per := range []bool{false, true} {
-				opt := physics.DOSOptions{PerSite: per}
+				opt := spectra.DOSOptions{PerSite: per}
 				check("dos", dosCost(r.grid(spec), opt), svc.dosEstimate(e, spec, opt))
-				topt := physics.ThermalOptions{TempsK: []float64{10, 300}, MSD: per}
+				topt := thermo.ThermalOptions{TempsK: []float64{10, 300}, MSD: per}
 				check("thermal", thermalCost(r.grid(spec), topt), svc.thermalEstimate(e, spec, topt))
 			}
 			lo, _ := svc.streamCost(r.grid(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}), n, physics.ModeOptions{Eigenvectors: true})

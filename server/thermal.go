@@ -11,6 +11,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -26,7 +27,7 @@ func (s *Service) ComputeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	switch {
 	case errors.As(err, &sr):
 		return nil, status.Errorf(codes.FailedPrecondition, "%v (%s)", sr.err, sr.hint())
-	case errors.Is(err, physics.ErrUnstable):
+	case errors.Is(err, thermo.ErrUnstable):
 		return nil, status.Errorf(codes.FailedPrecondition, "%v (set allow_unstable to compute anyway, leaving imaginary modes out)", err)
 	}
 	return resp, s.toStatus(ctx, "ComputeThermal", err)
@@ -37,7 +38,7 @@ func (s *Service) ComputeThermal(ctx context.Context, req *modegridv1.ComputeThe
 // the likely cause, and the fix is to impose it rather than to leave the
 // imaginary modes out.
 type sumRuleError struct {
-	err            error   // wraps physics.ErrUnstable
+	err            error   // wraps thermo.ErrUnstable
 	violationEVPA2 float64 // Model.SumRuleViolation, eV/Å²
 }
 
@@ -53,7 +54,7 @@ func (e *sumRuleError) hint() string {
 // sumRuleCause wraps an instability of e's model as a *sumRuleError when
 // its blocks break the sum rule and the request did not enforce it.
 func sumRuleCause(e *modelEntry, err error) error {
-	if !errors.Is(err, physics.ErrUnstable) || !(e.m.SumRuleViolation() > 0) {
+	if !errors.Is(err, thermo.ErrUnstable) || !(e.m.SumRuleViolation() > 0) {
 		return err
 	}
 	var src modegridv1.ModelSource
@@ -63,7 +64,7 @@ func sumRuleCause(e *modelEntry, err error) error {
 	return &sumRuleError{err: err, violationEVPA2: e.m.SumRuleViolation()}
 }
 
-// thermalFields maps physics.ThermalOptions's field paths onto
+// thermalFields maps thermo.ThermalOptions's field paths onto
 // ComputeThermalRequest's: the explicit temperatures come first in
 // TempsK, so their indices agree; the range's values are checked here.
 var thermalFields = fieldMap{"temperatures_k": "temperatures_k", "route": "route"}
@@ -74,8 +75,8 @@ var thermalFields = fieldMap{"temperatures_k": "temperatures_k", "route": "route
 func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violations) []float64 {
 	var ts []float64
 	check := func(field string, t float64) bool {
-		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > physics.MaxTempK {
-			vs.Add(field, "must be a temperature in [0, %g] K, got %v", physics.MaxTempK, t)
+		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > thermo.MaxTempK {
+			vs.Add(field, "must be a temperature in [0, %g] K, got %v", thermo.MaxTempK, t)
 			return false
 		}
 		return true
@@ -129,12 +130,12 @@ func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violat
 func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThermalRequest) (*modegridv1.ComputeThermalResponse, error) {
 	var vs violations
 	bad := map[string]bool{}
-	opt := physics.ThermalOptions{AllowUnstable: req.GetAllowUnstable(), MSD: req.GetMsd()}
+	opt := thermo.ThermalOptions{AllowUnstable: req.GetAllowUnstable(), MSD: req.GetMsd()}
 	switch req.GetRoute() {
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_UNSPECIFIED, modegridv1.ThermalRoute_THERMAL_ROUTE_MODE_SUM:
-		opt.Route = physics.ModeSum
+		opt.Route = thermo.ModeSum
 	case modegridv1.ThermalRoute_THERMAL_ROUTE_DOS_INTEGRAL:
-		opt.Route = physics.DOSIntegral
+		opt.Route = thermo.DOSIntegral
 	default:
 		vs.Add("route", "unknown route %d", req.GetRoute())
 		bad["route"] = true
@@ -176,7 +177,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 	canon := p.String()
 
 	return cachedResult(ctx, s, kindThermal, e.hash, canon, thermalCodec, func(ctx context.Context) (*modegridv1.ComputeThermalResponse, error) {
-		var res *physics.ThermalResult
+		var res *thermo.ThermalResult
 		err := s.admitted(ctx, est, func(ctx context.Context) error {
 			g, _, err := s.gridModes(ctx, e, qs.grid, gridNeed{vectors: opt.MSD})
 			if err != nil {
@@ -184,7 +185,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 			}
 			return s.run(ctx, kindThermal, func(ctx context.Context) error {
 				var err error
-				res, err = physics.ComputeThermal(ctx, e.m, g, opt)
+				res, err = thermo.ComputeThermal(ctx, e.m, g, opt)
 				return sumRuleCause(e, err)
 			})
 		})
@@ -197,7 +198,7 @@ func (s *Service) computeThermal(ctx context.Context, req *modegridv1.ComputeThe
 
 // checkThermalReply refuses a thermal call whose reply for a model of
 // sites sites cannot fit one message.
-func (s *Service) checkThermalReply(vs *violations, opt physics.ThermalOptions, sites int) {
+func (s *Service) checkThermalReply(vs *violations, opt thermo.ThermalOptions, sites int) {
 	per := 100.0 // ten numbers and framing
 	if opt.MSD {
 		per += float64(sites) * 110
@@ -205,7 +206,7 @@ func (s *Service) checkThermalReply(vs *violations, opt physics.ThermalOptions, 
 	s.checkReply(vs, "temperatures_k", float64(len(opt.TempsK))*per, fmt.Sprintf("%d temperatures", len(opt.TempsK)))
 }
 
-func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *modegridv1.ComputeThermalResponse {
+func thermalToProto(e *modelEntry, canon string, r *thermo.ThermalResult) *modegridv1.ComputeThermalResponse {
 	out := &modegridv1.ComputeThermalResponse{
 		ModelHash:                e.hash,
 		Parameters:               canon,
@@ -265,15 +266,15 @@ func thermalToProto(e *modelEntry, canon string, r *physics.ThermalResult) *mode
 
 // debyeStatusToProto converts the physics θ_D status; the number beside it
 // is 0 unless the status is DETERMINED or ELASTIC_LIMIT.
-func debyeStatusToProto(s physics.ThetaStatus) modegridv1.DebyeTemperatureStatus {
+func debyeStatusToProto(s thermo.ThetaStatus) modegridv1.DebyeTemperatureStatus {
 	switch s {
-	case physics.ThetaDetermined:
+	case thermo.ThetaDetermined:
 		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_DETERMINED
-	case physics.ThetaElasticLimit:
+	case thermo.ThetaElasticLimit:
 		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT
-	case physics.ThetaGridTooCoarse:
+	case thermo.ThetaGridTooCoarse:
 		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE
-	case physics.ThetaIllConditioned:
+	case thermo.ThetaIllConditioned:
 		return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED
 	}
 	return modegridv1.DebyeTemperatureStatus_DEBYE_TEMPERATURE_STATUS_UNDEFINED

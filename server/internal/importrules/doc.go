@@ -7,7 +7,12 @@
 //
 //   - physics/... imports only the standard library, gonum
 //     (gonum.org/v1/gonum/...) and physics/... (its own sub-packages); its
-//     tests too, and go.uber.org/goleak.
+//     tests too, and go.uber.org/goleak. Inside physics the arrows point
+//     one way: the leaves (physics/internal/parallel, eigen, lattice,
+//     mesh) ← the core (physics) ← physics/spectra ← physics/thermo; a
+//     package (and its tests) imports only packages below it.
+//     physics/internal/testmodels sits between the core and spectra and
+//     is imported by tests only.
 //   - proto/... imports only the standard library, grpc, protobuf and
 //     proto/....
 //   - server/... imports the standard library, libraries, physics/...,

@@ -183,16 +183,31 @@ func importViolations(path string, imports []string, test bool) []string {
 }
 
 // engineLayers are the engine's packages from the bottom up: each imports
-// only those before it (the leaves among themselves not at all).
-var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics"}
+// only those before it (the leaves among themselves not at all);
+// physics/internal/testmodels, the tests' example models, is imported by
+// tests only.
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra", "physics/thermo"}
+
+// testModels is the test-only package of example models for the tests of
+// the packages above the core.
+const testModels = "physics/internal/testmodels"
 
 // engineRank is the layer of a module-relative physics path: 1 for the
-// leaves (eigen, lattice, mesh, internal/...), 2 for the core, 0 for a
-// path outside physics.
+// leaves (eigen, lattice, mesh, internal/...), 2 for the core, 3 for the
+// test models, 4 for spectra, 5 for thermo, 0 for a path outside physics.
+// A package imports only packages of a lower rank (or of its own, for the
+// leaves' sub-packages): spectra the core and the leaves, thermo spectra
+// too, the leaves nothing of the engine above them.
 func engineRank(r string) int {
 	switch {
 	case r == "physics":
 		return 2
+	case under(r, testModels):
+		return 3
+	case under(r, "physics/spectra"):
+		return 4
+	case under(r, "physics/thermo"):
+		return 5
 	case under(r, "physics"):
 		return 1
 	}
@@ -226,6 +241,9 @@ func importRule(a, path, imp string, test bool) string {
 		}
 		if !std && !under(imp, gonum) && !(own && under(r, "physics")) {
 			return "physics imports only the standard library, gonum and physics/..."
+		}
+		if own && under(r, testModels) && !test {
+			return testModels + " is for tests only"
 		}
 		if own && engineRank(r) > engineRank(path) && engineRank(path) > 0 {
 			return "physics packages import only the packages below them (" + strings.Join(engineLayers, " ← ") + ")"
@@ -393,6 +411,16 @@ func TestRulesCatchViolations(t *testing.T) {
 		{name: "physics leaf imports the core", path: "physics/mesh", imports: []string{m("physics")}, want: true},
 		{name: "physics leaf imports a leaf", path: "physics/lattice", imports: []string{m("physics/eigen")}},
 		{name: "physics leaf test imports the core", path: "physics/eigen", imports: []string{m("physics")}, test: true, want: true},
+		{name: "spectra on the core and leaves", path: "physics/spectra", imports: []string{m("physics"), m("physics/mesh"), m("physics/internal/parallel")}},
+		{name: "thermo on spectra, core and leaves", path: "physics/thermo", imports: []string{m("physics/spectra"), m("physics"), m("physics/mesh")}},
+		{name: "spectra imports thermo", path: "physics/spectra", imports: []string{m("physics/thermo")}, want: true},
+		{name: "spectra test imports thermo", path: "physics/spectra", imports: []string{m("physics/thermo")}, test: true, want: true},
+		{name: "core imports spectra", path: "physics", imports: []string{m("physics/spectra")}, want: true},
+		{name: "leaf imports thermo", path: "physics/mesh", imports: []string{m("physics/thermo")}, want: true},
+		{name: "thermo test on test models", path: "physics/thermo", imports: []string{m("physics/internal/testmodels")}, test: true},
+		{name: "spectra imports test models", path: "physics/spectra", imports: []string{m("physics/internal/testmodels")}, want: true},
+		{name: "test models import spectra", path: "physics/internal/testmodels", imports: []string{m("physics/spectra")}, want: true},
+		{name: "test models on the core", path: "physics/internal/testmodels", imports: []string{m("physics"), m("physics/mesh")}},
 		{name: "physics imports proto", path: "physics", imports: []string{m("proto/modegrid/v1")}, want: true},
 		{name: "physics imports server", path: "physics/dos", imports: []string{m("server")}, want: true},
 		{name: "physics imports a library", path: "physics", imports: []string{"gonum.org/v1/plot"}, want: true},

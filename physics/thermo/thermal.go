@@ -1,10 +1,14 @@
-package physics
+package thermo
 
 import (
 	"context"
 	"errors"
 	"fmt"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // ErrUnstable is wrapped by ComputeThermal when the grid has imaginary
@@ -134,7 +138,7 @@ const (
 // finite crystal (GridSpec.Finite) every quantity is the exact sum over its
 // allowed modes. Bad options give a *ValidationError naming the fields
 // ("temperatures_k[3]", "route").
-func ComputeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOptions) (*ThermalResult, error) {
+func ComputeThermal(ctx context.Context, m *physics.Model, g *physics.GridModes, opt ThermalOptions) (*ThermalResult, error) {
 	return computeThermal(ctx, m, g, opt, evalAuto)
 }
 
@@ -147,8 +151,8 @@ const (
 	evalTree            // frequency tree with Taylor series
 )
 
-func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOptions, mode evalMode) (*ThermalResult, error) {
-	if err := checkGridModes(m, g); err != nil {
+func computeThermal(ctx context.Context, m *physics.Model, g *physics.GridModes, opt ThermalOptions, mode evalMode) (*ThermalResult, error) {
+	if err := physics.CheckGridModes(m, g); err != nil {
 		return nil, err
 	}
 	if err := opt.validate(); err != nil {
@@ -157,12 +161,12 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 	if opt.MSD && len(g.Eigvecs) != len(g.FreqTHz)*g.NModes {
 		return nil, errors.New("physics: mean-square displacements need grid modes with eigenvectors (GridOptions.Eigenvectors)")
 	}
-	st := spectrumStats(g)
-	if st.imaginary > 0 && !opt.AllowUnstable {
+	st := spectra.Stats(g)
+	if st.Imaginary > 0 && !opt.AllowUnstable {
 		return nil, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz)",
-			ErrUnstable, st.imaginary, len(g.FreqTHz), st.minTHz)
+			ErrUnstable, st.Imaginary, len(g.FreqTHz), st.MinTHz)
 	}
-	res := &ThermalResult{ImaginaryExcluded: st.imaginary}
+	res := &ThermalResult{ImaginaryExcluded: st.Imaginary}
 
 	// The grid's modes: weights and, for MSD, the tensor channels.
 	grid, zeroWeight, zeros, err := collectModes(ctx, m, g, st, opt.MSD)
@@ -179,7 +183,7 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		zeroWeight = 0 // the DOS holds every state
 	}
 	for i, f := range thermo.nu {
-		res.ZPEeV += thermo.ch[i*thermo.nc] * f * THzToEV / 2
+		res.ZPEeV += thermo.ch[i*thermo.nc] * f * physics.THzToEV / 2
 		res.ModesPerCell += thermo.ch[i*thermo.nc]
 	}
 	theta := thetaInput{dim: m.Dim(), modesPerCell: res.ModesPerCell, zeroWeight: zeroWeight,
@@ -205,14 +209,14 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		}
 	}
 
-	if res.ThetaElasticK, err = elasticDebyeTemperature(ctx, m); err != nil {
+	if res.ThetaElasticK, err = m.ElasticDebyeTemperature(ctx); err != nil {
 		return nil, err
 	}
 	var msdNote msdDivergence
 	if opt.MSD {
 		msdNote = msdDivergenceOf(m, g, st)
 	}
-	kB := BoltzmannEVPerK
+	kB := physics.BoltzmannEVPerK
 	res.Points = make([]ThermalPoint, len(temps))
 	for i, tK := range temps {
 		if i%pollEvery == 0 && ctx.Err() != nil {
@@ -221,8 +225,8 @@ func computeThermal(ctx context.Context, m *Model, g *GridModes, opt ThermalOpti
 		s := sums[i]
 		p := ThermalPoint{TempK: opt.TempsK[i], UeV: res.ZPEeV, FeV: res.ZPEeV}
 		if tK > 0 {
-			kappa := THzToKelvin / tK
-			p.UeV += THzToEV * s[0]
+			kappa := physics.THzToKelvin / tK
+			p.UeV += physics.THzToEV * s[0]
 			p.FeV += kB * tK * s[1]
 			p.SeVPerK = kB * (kappa*s[0] - s[1])
 			p.CveVPerK = kB * s[2]
@@ -280,13 +284,13 @@ func evalSums(ctx context.Context, set *modeSet, temps []float64, mode evalMode)
 		sums[i] = make([]float64, 2+set.nc)
 	}
 	const chunk = 4
-	err := forChunks(ctx, len(temps), chunk, chunkWorkers(len(temps), chunk), func(_, lo, hi int) {
+	err := parallel.Slices(ctx, len(temps), chunk, parallel.SliceCount(len(temps), chunk), func(_, lo, hi int) {
 		var sc seriesScratch
 		for i := lo; i < hi; i++ {
 			if !(temps[i] > 0) {
 				continue
 			}
-			kappa := THzToKelvin / temps[i] // h/kT in 1/THz
+			kappa := physics.THzToKelvin / temps[i] // h/kT in 1/THz
 			if tree != nil {
 				tree.eval(kappa, sums[i], &sc)
 			} else {
@@ -305,22 +309,22 @@ func (o ThermalOptions) Validate() error { return o.validate() }
 
 // validate checks the options alone, listing every violation.
 func (o ThermalOptions) validate() error {
-	var vs violations
+	var vs physics.Violations
 	switch {
 	case len(o.TempsK) == 0:
-		vs.add("temperatures_k", "at least one temperature is needed")
+		vs.Add("temperatures_k", "at least one temperature is needed")
 	case len(o.TempsK) > MaxTemperatures:
-		vs.add("temperatures_k", "%d temperatures, more than the limit of %d", len(o.TempsK), MaxTemperatures)
+		vs.Add("temperatures_k", "%d temperatures, more than the limit of %d", len(o.TempsK), MaxTemperatures)
 	}
 	for i, t := range o.TempsK {
-		if !finite(t) || t < 0 || t > MaxTempK {
-			vs.add(fmt.Sprintf("temperatures_k[%d]", i), "must be in [0, %g] K, got %v", MaxTempK, t)
+		if math.IsNaN(t) || t < 0 || t > MaxTempK {
+			vs.Add(fmt.Sprintf("temperatures_k[%d]", i), "must be in [0, %g] K, got %v", MaxTempK, t)
 		}
 	}
 	if o.Route < ModeSum || o.Route > DOSIntegral {
-		vs.add("route", "unknown route %d", int(o.Route))
+		vs.Add("route", "unknown route %d", int(o.Route))
 	}
-	return vs.err()
+	return vs.Err()
 }
 
 // modeSet is a list of modes with positive frequency and per-mode weight
@@ -349,14 +353,14 @@ func (s *modeSet) worthTree(ntemps int) bool {
 // highest mode, each a mode at its centre (i + ½)h carrying the states of
 // the bin (midpoint rule); it also returns h. Imaginary states are cut off
 // as in ComputeDOS.
-func dosModes(ctx context.Context, m *Model, g *GridModes, st spectrum) (*modeSet, float64, error) {
-	top := st.maxTHz
+func dosModes(ctx context.Context, m *physics.Model, g *physics.GridModes, st spectra.Spectrum) (*modeSet, float64, error) {
+	top := st.MaxTHz
 	set := &modeSet{nc: 1, p: g.P, nsites: g.NSites}
 	if !(top > 0) {
 		return set, 0, nil
 	}
 	h := top / dosRouteBins * (1 + 1e-9)
-	d, err := ComputeDOS(ctx, m, g, DOSOptions{Min: h / 2, Max: h / 2 * (2*dosRouteBins - 1), Step: h})
+	d, err := spectra.ComputeDOS(ctx, m, g, spectra.DOSOptions{Min: h / 2, Max: h / 2 * (2*dosRouteBins - 1), Step: h})
 	if err != nil {
 		return nil, 0, err
 	}
@@ -395,3 +399,8 @@ func directSums(kappa float64, nu, ch []float64, nc int, out []float64) {
 		}
 	}
 }
+
+// pollEvery is how many temperatures (or modes) a loop runs between polls
+// of its context, as in the core: a few hundred iterations of a cheap loop
+// are well under a millisecond.
+const pollEvery = 256

@@ -1,8 +1,10 @@
-package physics
+package thermo
 
 import (
 	"context"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 )
 
 // The exact mode sum Σ_i w_i f(hν_i/kT) costs one exponential and one
@@ -124,7 +126,7 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 	// Leaves: range and moments from the modes.
 	leaves := make([]treeNode, nleaf)
 	mom := make([]float64, nleaf*nc*treeMoments)
-	err := forChunks(ctx, nleaf, 16, chunkWorkers(nleaf, 16), func(_, lo, hi int) {
+	err := parallel.Slices(ctx, nleaf, 16, parallel.SliceCount(nleaf, 16), func(_, lo, hi int) {
 		var pow [treeMoments]float64
 		for l := lo; l < hi; l++ {
 			a, b := t.start[l], t.start[l+1]

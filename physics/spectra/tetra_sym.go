@@ -1,30 +1,32 @@
 // Symmetry-reduced tetrahedron sums for the total DOS.
 
-package physics
+package spectra
 
 import (
 	"context"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // classChunk is how many classes a worker takes at a time: classes are
-// few, so the accumulators (one per slice, chunkWorkers) stay few too.
+// few, so the accumulators (one per slice, parallel.SliceCount) stay few too.
 const classChunk = 1024
 
 // tetraAccumulateClasses is tetraAccumulate for the total DOS over simplex
 // classes: each class once, weighted by its count.
-func tetraAccumulateClasses(ctx context.Context, g *GridModes, classes []mesh.SimplexClass, set mesh.Simplices, scale float64, grid cumGrid, hasCut bool, cut float64) (*cumAcc, error) {
+func tetraAccumulateClasses(ctx context.Context, g *physics.GridModes, classes []mesh.SimplexClass, set mesh.Simplices, scale float64, grid cumGrid, hasCut bool, cut float64) (*cumAcc, error) {
 	nm := g.NModes
 	dim := set.Dim
-	irr := g.irr.Irr
-	workers := chunkWorkers(len(classes), classChunk)
+	irr := g.Reduction().Irr
+	workers := parallel.SliceCount(len(classes), classChunk)
 	accs := make([]*cumAcc, workers)
 	for w := range accs {
 		accs[w] = newCumAcc(grid, 0, hasCut, cut)
 	}
 	freq := g.FreqTHz
-	err := forChunks(ctx, len(classes), classChunk, workers, func(worker, lo, hi int) {
+	err := parallel.Slices(ctx, len(classes), classChunk, workers, func(worker, lo, hi int) {
 		a := accs[worker]
 		var e [4]float64
 		var base [4]int

@@ -1,12 +1,14 @@
 // A panic in a parallel worker of the engine reaches the caller.
 
-package physics
+package thermo
 
 import (
 	"context"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 type faultKey struct{}
@@ -18,15 +20,15 @@ type faultKey struct{}
 // computation on an unmarked context still succeeds.
 func TestWorkerPanicReachesCaller(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	spec, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, 3)
+	spec, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, 3)
 	if err != nil {
 		t.Fatal(err)
 	}
-	g, err := m.GridModes(testCtx(t), spec, GridOptions{})
+	g, err := m.GridModes(testCtx(t), spec, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	restore := SetFaultHook(func(ctx context.Context) {
+	restore := physics.SetFaultHook(func(ctx context.Context) {
 		if v := ctx.Value(faultKey{}); v != nil {
 			panic(v)
 		}
@@ -37,22 +39,22 @@ func TestWorkerPanicReachesCaller(t *testing.T) {
 		run  func(ctx context.Context) error
 	}{
 		{"GridModes", func(ctx context.Context) error {
-			_, err := m.GridModes(ctx, spec, GridOptions{NoSymmetry: true})
+			_, err := m.GridModes(ctx, spec, physics.GridOptions{NoSymmetry: true})
 			return err
 		}},
 		{"GridModes reduced", func(ctx context.Context) error {
-			_, err := m.GridModes(ctx, spec, GridOptions{})
+			_, err := m.GridModes(ctx, spec, physics.GridOptions{})
 			return err
 		}},
 		{"StreamModes", func(ctx context.Context) error {
-			return m.StreamModes(ctx, spec.Points(), ModeOptions{ChunkSize: 8}, func(ModeChunk) error { return nil })
+			return m.StreamModes(ctx, spec.Points(), physics.ModeOptions{ChunkSize: 8}, func(physics.ModeChunk) error { return nil })
 		}},
 		{"ComputeDOS tetrahedron", func(ctx context.Context) error {
-			_, err := ComputeDOS(ctx, m, g, DOSOptions{})
+			_, err := spectra.ComputeDOS(ctx, m, g, spectra.DOSOptions{})
 			return err
 		}},
 		{"ComputeDOS Gaussian", func(ctx context.Context) error {
-			_, err := ComputeDOS(ctx, m, g, DOSOptions{Method: Gaussian})
+			_, err := spectra.ComputeDOS(ctx, m, g, spectra.DOSOptions{Method: spectra.Gaussian})
 			return err
 		}},
 		{"ComputeThermal", func(ctx context.Context) error {
@@ -69,7 +71,7 @@ func TestWorkerPanicReachesCaller(t *testing.T) {
 				_ = tt.run(ctx)
 				return nil
 			}()
-			pe, ok := p.(*PanicError)
+			pe, ok := p.(*physics.PanicError)
 			if !ok {
 				t.Fatalf("recovered %T %v; want *PanicError", p, p)
 			}

@@ -1,9 +1,11 @@
-package physics
+package thermo
 
 import (
 	"context"
 	"fmt"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
 )
 
 // BenchmarkThermal times ComputeThermal at 1 000 temperatures (2 K to
@@ -24,7 +26,7 @@ func BenchmarkThermal(b *testing.B) {
 			name += "-msd"
 		}
 		b.Run(name, func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", tc.n, GridOptions{Eigenvectors: tc.msd})
+			m, g := benchModes(b, "rocksalt-like", tc.n, physics.GridOptions{Eigenvectors: tc.msd})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeThermal(context.Background(), m, g, ThermalOptions{TempsK: temps, MSD: tc.msd})
@@ -36,7 +38,7 @@ func BenchmarkThermal(b *testing.B) {
 		})
 	}
 	b.Run("n=48-direct", func(b *testing.B) {
-		m, g := benchModes(b, "rocksalt-like", 48, GridOptions{})
+		m, g := benchModes(b, "rocksalt-like", 48, physics.GridOptions{})
 		b.ResetTimer()
 		for b.Loop() {
 			r, err := computeThermal(context.Background(), m, g, ThermalOptions{TempsK: temps}, evalDirect)

@@ -1,8 +1,10 @@
-package physics
+package spectra
 
 import (
 	"context"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/parallel"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
@@ -562,7 +564,7 @@ func simplexCorners(dim int, e *[4]float64, v, x float64, w *[4]float64) {
 // accumulator per worker, and returns the merged accumulator. With sites it
 // also integrates the site weights of g (which sum to 1 over the sites of
 // a mode, to rounding; ComputeDOS takes the total as the sum of the sites).
-func tetraAccumulate(ctx context.Context, g *GridModes, set mesh.Simplices, scale float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
+func tetraAccumulate(ctx context.Context, g *physics.GridModes, set mesh.Simplices, scale float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
 	msh := g.Spec.Mesh
 	for k := range msh {
 		msh[k] = max(msh[k], 1)
@@ -575,12 +577,12 @@ func tetraAccumulate(ctx context.Context, g *GridModes, set mesh.Simplices, scal
 	if sites {
 		accNS = ns
 	}
-	workers := chunkWorkers(ncell, tetraChunk)
+	workers := parallel.SliceCount(ncell, tetraChunk)
 	accs := make([]*cumAcc, workers)
 	for w := range accs {
 		accs[w] = newCumAcc(grid, accNS, hasCut, cut)
 	}
-	err := forChunks(ctx, ncell, tetraChunk, workers, func(worker, lo, hi int) {
+	err := parallel.Slices(ctx, ncell, tetraChunk, workers, func(worker, lo, hi int) {
 		a := accs[worker]
 		var idx [8]int
 		var e [4]float64

@@ -1,10 +1,12 @@
-package physics
+package thermo
 
 import (
 	"math"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // TestMSDEinstein: an Einstein oscillator of mass m and frequency ω has
@@ -13,15 +15,15 @@ import (
 // harmonic-oscillator text), B = 8π²⟨u²⟩/3; CODATA 2018 constants.
 func TestMSDEinstein(t *testing.T) {
 	m := mustCompile(t, einsteinCrystal())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{2, 2, 2}}, GridOptions{Eigenvectors: true})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{2, 2, 2}}, physics.GridOptions{Eigenvectors: true})
 	temps := []float64{0, 10, 300, 3000}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	omega := 2 * math.Pi * einsteinNuTHz * 1e12
-	zp := ReducedPlanckJS / (2 * 40 * AtomicMassKg * omega) * 1e20 // Å²
+	zp := physics.ReducedPlanckJS / (2 * 40 * physics.AtomicMassKg * omega) * 1e20 // Å²
 	for i, temp := range temps {
 		want := zp
 		if temp > 0 {
-			want = zp / math.Tanh(ReducedPlanckJS*omega/(2*BoltzmannJPerK*temp))
+			want = zp / math.Tanh(physics.ReducedPlanckJS*omega/(2*physics.BoltzmannJPerK*temp))
 		}
 		u := r.Points[i].MSD[0]
 		for a := 0; a < 3; a++ {
@@ -49,7 +51,7 @@ func TestMSDEinstein(t *testing.T) {
 func TestMSDCubicIsotropy(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
 		t.Run(name, func(t *testing.T) {
-			m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+			m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 300}, MSD: true})
 			for _, p := range r.Points {
 				for s, u := range p.MSD {
@@ -75,20 +77,20 @@ func TestMSDCubicIsotropy(t *testing.T) {
 // practice): a check of the eigenvector weighting against frequencies
 // alone. And the light site moves more than the heavy one.
 func TestMSDMassWeightedSum(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	temps := []float64{0, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
-	st := spectrumStats(g)
+	st := spectra.Stats(g)
 	for i, temp := range temps {
 		want := 0.0
 		for j, f := range g.FreqTHz {
-			if f <= ZeroModeTol*st.absMaxTHz {
+			if f <= spectra.ZeroModeTol*st.AbsMaxTHz {
 				continue
 			}
 			w := g.Points[j/g.NModes].Weight
 			c := 1.0
 			if temp > 0 {
-				c = 1 / math.Tanh(f*THzToKelvin/(2*temp))
+				c = 1 / math.Tanh(f*physics.THzToKelvin/(2*temp))
 			}
 			want += w * msdUnitA2 / f * c
 		}
@@ -109,7 +111,7 @@ func TestMSDMassWeightedSum(t *testing.T) {
 // (equipartition; Willis & Pryor ch. 4): ⟨u²⟩ ∝ T(1 + x²/12 + …), x ≤ 0.015
 // at 2·10⁴ K here, so doubling T doubles it to 1e-4.
 func TestMSDClassicalLimit(t *testing.T) {
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{2e4, 4e4}, MSD: true})
 	if ratio := r.Points[1].MSD[0].UIso / r.Points[0].MSD[0].UIso; math.Abs(ratio-2) > 1e-4 {
 		t.Errorf("⟨u²⟩(4·10⁴ K)/⟨u²⟩(2·10⁴ K) = %.6f; want 2", ratio)
@@ -124,7 +126,7 @@ func TestMSDChainDiverges(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
 	var u []float64
 	for _, n := range []int{200, 400} {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}, Finite: true}, GridOptions{Eigenvectors: true})
+		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}, Finite: true}, physics.GridOptions{Eigenvectors: true})
 		r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{2000}, MSD: true})
 		u = append(u, r.Points[0].MSD[0].U[0])
 	}
@@ -136,7 +138,7 @@ func TestMSDChainDiverges(t *testing.T) {
 // TestMSDRoutes: displacements are mode sums on either thermal route
 // (the DOS carries no eigenvectors), so both routes give the same tensor.
 func TestMSDRoutes(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, GridOptions{Eigenvectors: true})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, physics.GridOptions{Eigenvectors: true})
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, MSD: true})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, MSD: true, Route: DOSIntegral})
 	for s := range a.Points[0].MSD {

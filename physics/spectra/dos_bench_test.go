@@ -1,44 +1,20 @@
-package physics
+package spectra
 
 import (
 	"context"
 	"fmt"
-	"sync"
 	"testing"
 
-	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // benchSink keeps benchmark results alive.
 var benchSink any
 
-// benchGrids caches grid modes across benchmarks: a 48³ grid of the
-// rock-salt-like example takes about a second to diagonalise, and the
-// benchmarks time only what comes after ("frequencies given").
-var benchGrids struct {
-	sync.Mutex
-	m map[string]*GridModes
-}
-
-func benchModes(b *testing.B, name string, n int, opt GridOptions) (*Model, *GridModes) {
+func benchModes(b *testing.B, name string, n int, opt physics.GridOptions) (*physics.Model, *physics.GridModes) {
 	b.Helper()
-	m := mustCompile(b, loadExample(b, name))
-	key := fmt.Sprintf("%s/%d/%v", name, n, opt)
-	benchGrids.Lock()
-	defer benchGrids.Unlock()
-	if benchGrids.m == nil {
-		benchGrids.m = map[string]*GridModes{}
-	}
-	g := benchGrids.m[key]
-	if g == nil {
-		var err error
-		g, err = m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{n, n, n}}, opt)
-		if err != nil {
-			b.Fatal(err)
-		}
-		benchGrids.m[key] = g
-	}
-	return m, g
+	return testmodels.BenchGrid(b, name, n, opt)
 }
 
 // BenchmarkTetraDOS times the tetrahedron DOS of the rock-salt-like example
@@ -47,7 +23,7 @@ func benchModes(b *testing.B, name string, n int, opt GridOptions) (*Model, *Gri
 func BenchmarkTetraDOS(b *testing.B) {
 	for _, n := range []int{12, 24, 48} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", n, GridOptions{Projections: true})
+			m, g := benchModes(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeDOS(context.Background(), m, g, DOSOptions{})
@@ -59,7 +35,7 @@ func BenchmarkTetraDOS(b *testing.B) {
 		})
 	}
 	b.Run("n=48-per-site", func(b *testing.B) {
-		m, g := benchModes(b, "rocksalt-like", 48, GridOptions{Projections: true})
+		m, g := benchModes(b, "rocksalt-like", 48, physics.GridOptions{Projections: true})
 		b.ResetTimer()
 		for b.Loop() {
 			r, err := ComputeDOS(context.Background(), m, g, DOSOptions{PerSite: true})
@@ -76,7 +52,7 @@ func BenchmarkTetraDOS(b *testing.B) {
 func BenchmarkGaussianDOS(b *testing.B) {
 	for _, n := range []int{12, 24, 48} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", n, GridOptions{Projections: true})
+			m, g := benchModes(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeDOS(context.Background(), m, g, DOSOptions{Method: Gaussian})

@@ -1,4 +1,4 @@
-package physics
+package spectra
 
 import (
 	"flag"
@@ -7,13 +7,14 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // dosConvergence enables TestDOSConvergenceTable, which takes about a
 // minute (a 128³ reference grid) and so stays out of `make test`:
 //
-//	go test -run TestDOSConvergenceTable -v ./physics/ -args -dos.convergence
+//	go test -run TestDOSConvergenceTable -v ./physics/spectra -args -dos.convergence
 var dosConvergence = flag.Bool("dos.convergence", false, "run the DOS convergence study (slow)")
 
 // convergenceL1 is the relative L1 distance Σ|g − g_ref|/Σ g_ref of two DOS
@@ -85,7 +86,7 @@ func TestDOSConvergenceTable(t *testing.T) {
 	}
 	var rows []convRow
 	for n := 8; n <= 1<<16; n *= 2 {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, GridOptions{})
+		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 		rows = append(rows, gaussRow(t, m, g, window, ref, factors, n, n))
 		rows[len(rows)-1].tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
 	}
@@ -94,16 +95,16 @@ func TestDOSConvergenceTable(t *testing.T) {
 	// 3D: the rock-salt-like and fcc examples against 128³ tetrahedron DOS.
 	for _, name := range []string{"rocksalt-like", "fcc"} {
 		m = mustCompile(t, loadExample(t, name))
-		big := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{128, 128, 128}}, GridOptions{})
-		top := spectrumStats(big).maxTHz
+		big := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{128, 128, 128}}, physics.GridOptions{})
+		top := Stats(big).MaxTHz
 		window = DOSOptions{Max: 1.05 * top, Step: 1.05 * top / 200}
 		ref = mustDOS(t, m, big, window).DOS
-		check := mustDOS(t, m, modesOn(t, m, mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, GridOptions{}), window).DOS
+		check := mustDOS(t, m, modesOn(t, m, mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, physics.GridOptions{}), window).DOS
 		big = nil
 		fmt.Fprintf(&report, "\n(%s reference check: tetrahedra on 96³ differ from 128³ by %.2g %% L1.)\n", name, 100*convergenceL1(check, ref))
 		rows = nil
 		for _, n := range []int{4, 6, 8, 12, 16, 24, 32, 48, 64, 96} {
-			g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n, n, n}}, GridOptions{})
+			g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n, n, n}}, physics.GridOptions{})
 			r := gaussRow(t, m, g, window, ref, factors, n, n*n*n)
 			r.tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
 			rows = append(rows, r)
@@ -124,9 +125,9 @@ type convRow struct {
 
 // gaussRow measures the Gaussian DOS of g at its default width and at the
 // best of the given multiples of it.
-func gaussRow(t *testing.T, m *Model, g *GridModes, window DOSOptions, ref, factors []float64, n, points int) convRow {
+func gaussRow(t *testing.T, m *physics.Model, g *physics.GridModes, window DOSOptions, ref, factors []float64, n, points int) convRow {
 	r := convRow{n: n, points: points, gbest: math.Inf(1)}
-	def := defaultGaussianWidth(spectrumStats(g).maxTHz, g.Spec.Mesh, m.Dim())
+	def := defaultGaussianWidth(Stats(g).MaxTHz, g.Spec.Mesh, m.Dim())
 	for _, f := range factors {
 		opt := window
 		opt.Method, opt.Width = Gaussian, f*def

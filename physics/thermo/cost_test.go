@@ -1,4 +1,4 @@
-package physics
+package thermo
 
 import (
 	"context"
@@ -7,7 +7,9 @@ import (
 	"runtime/debug"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // measureAlloc runs fn with the garbage collector off and returns the heap
@@ -43,31 +45,31 @@ func TestCostLadder(t *testing.T) {
 	}
 	var rungs []rung
 	for _, l := range ladder(t) {
-		if raceEnabled && l.sites > 8 {
+		if raceEnabled && l.Sites > 8 {
 			continue // the 64-site rungs take a minute under the race detector
 		}
-		m := l.m
+		m := l.M
 		m.SoundVelocities(ctx, [3]float64{0, 0, 1}) // the model's one-time long-wave limit
 		meshes := []int{4, 10}
 		if raceEnabled {
 			meshes = meshes[:1]
 		}
-		if l.sites >= 8 {
+		if l.Sites >= 8 {
 			meshes = []int{2, 4}
 		}
-		if l.sites >= 64 {
+		if l.Sites >= 64 {
 			meshes = []int{2}
 		}
 		for _, n := range meshes {
 			spec := mesh.GridSpec{Mesh: [3]int{n, n, n}}
 			cache := mesh.NewReductionCache(64 << 20)
-			irr, _ := IrreducibleCount(cache, m, spec)
+			irr, _ := physics.IrreducibleCount(cache, m, spec)
 			size := m.GridSizeOf(spec, irr)
-			for _, opt := range []GridOptions{{}, {Projections: true}, {Eigenvectors: true}, {SiteTensors: true}, {NoSymmetry: true, Projections: true}} {
+			for _, opt := range []physics.GridOptions{{}, {Projections: true}, {Eigenvectors: true}, {SiteTensors: true}, {NoSymmetry: true, Projections: true}} {
 				opt.Cache = cache
 				rungs = append(rungs, rung{
-					name: fmt.Sprintf("%d sites %d³ grid %+v", l.sites, n, optName(opt)),
-					est:  func() int64 { return GridModesCost(size, opt).Bytes },
+					name: fmt.Sprintf("%d sites %d³ grid %+v", l.Sites, n, optName(opt)),
+					est:  func() int64 { return physics.GridModesCost(size, opt).Bytes },
 					run: func() {
 						if _, err := m.GridModes(ctx, spec, opt); err != nil {
 							t.Fatal(err)
@@ -75,25 +77,24 @@ func TestCostLadder(t *testing.T) {
 					},
 				})
 			}
-			g, err := m.GridModes(ctx, spec, GridOptions{Projections: true, Eigenvectors: true, Cache: cache})
+			g, err := m.GridModes(ctx, spec, physics.GridOptions{Projections: true, Eigenvectors: true, Cache: cache})
 			if err != nil {
 				t.Fatal(err)
 			}
-			for _, dopt := range []DOSOptions{{}, {PerSite: true}, {Method: Gaussian, PerSite: true}, {Method: Histogram}, {Step: 0.01, Min: 0, Max: 20}} {
-				samples := DefaultDOSBins + 1
+			for _, dopt := range []spectra.DOSOptions{{}, {PerSite: true}, {Method: spectra.Gaussian, PerSite: true}, {Method: spectra.Histogram}, {Step: 0.01, Min: 0, Max: 20}} {
+				samples := spectra.DefaultDOSBins + 1
 				if dopt.Step > 0 {
 					samples = int((dopt.Max-dopt.Min)/dopt.Step) + 1
 				}
 				rungs = append(rungs, rung{
-					name: fmt.Sprintf("%d sites %d³ DOS %v per-site=%v samples=%d", l.sites, n, dopt.Method, dopt.PerSite, samples),
+					name: fmt.Sprintf("%d sites %d³ DOS %v per-site=%v samples=%d", l.Sites, n, dopt.Method, dopt.PerSite, samples),
 					est: func() int64 {
 						// A cold class table: a fresh cache for every run.
-						return DOSCost(size, dopt, samples, true).Bytes
+						return spectra.DOSCost(size, dopt, samples, true).Bytes
 					},
 					run: func() {
-						gg := *g
-						gg.cache = nil
-						if _, err := ComputeDOS(ctx, m, &gg, dopt); err != nil {
+						gg := g.WithoutCache()
+						if _, err := spectra.ComputeDOS(ctx, m, gg, dopt); err != nil {
 							t.Fatal(err)
 						}
 					},
@@ -109,24 +110,23 @@ func TestCostLadder(t *testing.T) {
 					temps[i] = 10 + 20*float64(i)
 				}
 				rungs = append(rungs, rung{
-					name: fmt.Sprintf("%d sites %d³ thermal %d temps msd=%v %v", l.sites, n, th.temps, th.msd, th.route),
+					name: fmt.Sprintf("%d sites %d³ thermal %d temps msd=%v %v", l.Sites, n, th.temps, th.msd, th.route),
 					est:  func() int64 { return ThermalCost(size, th.temps, th.msd, th.route, true).Bytes },
 					run: func() {
-						gg := *g
-						gg.cache = nil
-						if _, err := ComputeThermal(ctx, m, &gg, ThermalOptions{TempsK: temps, MSD: th.msd, Route: th.route, AllowUnstable: true}); err != nil {
+						gg := g.WithoutCache()
+						if _, err := ComputeThermal(ctx, m, gg, ThermalOptions{TempsK: temps, MSD: th.msd, Route: th.route, AllowUnstable: true}); err != nil {
 							t.Fatal(err)
 						}
 					},
 				})
 			}
 		}
-		for _, mo := range []ModeOptions{{}, {Eigenvectors: true}, {Velocities: true}} {
+		for _, mo := range []physics.ModeOptions{{}, {Eigenvectors: true}, {Velocities: true}} {
 			// Few enough chunks that all are in flight at once: then the
 			// total allocation is the peak the estimate bounds.
 			pts := mesh.GridSpec{Mesh: [3]int{4, 4, 4}}.Points()
 			mo.ChunkSize = 16
-			if l.sites >= 64 {
+			if l.Sites >= 64 {
 				if mo.Velocities {
 					continue // the 8-site rung covers them
 				}
@@ -134,10 +134,10 @@ func TestCostLadder(t *testing.T) {
 			}
 			size := m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 0)
 			rungs = append(rungs, rung{
-				name: fmt.Sprintf("%d sites stream of %d points, eigenvectors=%v velocities=%v", l.sites, len(pts), mo.Eigenvectors, mo.Velocities),
-				est:  func() int64 { return StreamCost(size, len(pts), mo.ChunkSize, 0, mo).Bytes },
+				name: fmt.Sprintf("%d sites stream of %d points, eigenvectors=%v velocities=%v", l.Sites, len(pts), mo.Eigenvectors, mo.Velocities),
+				est:  func() int64 { return physics.StreamCost(size, len(pts), mo.ChunkSize, 0, mo).Bytes },
 				run: func() {
-					if err := m.StreamModes(ctx, pts, mo, func(ModeChunk) error { return nil }); err != nil {
+					if err := m.StreamModes(ctx, pts, mo, func(physics.ModeChunk) error { return nil }); err != nil {
 						t.Fatal(err)
 					}
 				},
@@ -157,7 +157,7 @@ func TestCostLadder(t *testing.T) {
 	}
 }
 
-func optName(o GridOptions) string {
+func optName(o physics.GridOptions) string {
 	s := "freq"
 	if o.Projections {
 		s += "+sites"

@@ -1,4 +1,4 @@
-package physics_test
+package thermo_test
 
 import (
 	"context"
@@ -6,7 +6,21 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/thermo"
 )
+
+// A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
+func exampleChain() *physics.Model {
+	m, err := physics.Compile(context.Background(), &physics.Crystal{
+		Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
+		Sites:   []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
+	}, physics.Options{})
+	if err != nil {
+		panic(err)
+	}
+	return m
+}
 
 // Heat capacity and entropy of a chain per mole of cells, and its Debye
 // temperatures. The zero-point energy is hν_max/π per cell (⟨ν⟩ = 2ν_max/π
@@ -21,7 +35,7 @@ func ExampleComputeThermal() {
 	if err != nil {
 		panic(err)
 	}
-	r, err := physics.ComputeThermal(ctx, m, g, physics.ThermalOptions{TempsK: []float64{0, 50, 300}})
+	r, err := thermo.ComputeThermal(ctx, m, g, thermo.ThermalOptions{TempsK: []float64{0, 50, 300}})
 	if err != nil {
 		panic(err)
 	}

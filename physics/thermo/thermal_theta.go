@@ -1,8 +1,10 @@
-package physics
+package thermo
 
 import (
 	"fmt"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics"
 )
 
 // ThetaStatus says whether ThermalPoint.ThetaDK holds a Debye temperature
@@ -112,7 +114,7 @@ func debyeThetaChecked(in thetaInput) (float64, ThetaStatus, string) {
 	if !(in.modesPerCell > 0) {
 		return 0, ThetaUndefined, "no modes to sum"
 	}
-	kT := in.tempK / THzToKelvin // k_BT/h, THz
+	kT := in.tempK / physics.THzToKelvin // k_BT/h, THz
 	x1 := in.nuLowTHz / kT
 	what := "grid"
 	if in.finite {

@@ -1,4 +1,4 @@
-package physics
+package spectra
 
 import (
 	"context"
@@ -6,35 +6,12 @@ import (
 	"math"
 	"slices"
 	"testing"
-	"time"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// specCtx returns a context with a generous timeout for one test.
-func specCtx(t testing.TB) context.Context {
-	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-	t.Cleanup(cancel)
-	return ctx
-}
-
-// exampleGrid compiles an example crystal and computes its modes on spec.
-func exampleGrid(t testing.TB, name string, spec mesh.GridSpec, opt GridOptions) (*Model, *GridModes) {
-	t.Helper()
-	m := mustCompile(t, loadExample(t, name))
-	return m, modesOn(t, m, spec, opt)
-}
-
-func modesOn(t testing.TB, m *Model, spec mesh.GridSpec, opt GridOptions) *GridModes {
-	t.Helper()
-	g, err := m.GridModes(specCtx(t), spec, opt)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return g
-}
-
-func mustDOS(t testing.TB, m *Model, g *GridModes, opt DOSOptions) *DOSResult {
+func mustDOS(t testing.TB, m *physics.Model, g *physics.GridModes, opt DOSOptions) *DOSResult {
 	t.Helper()
 	r, err := ComputeDOS(specCtx(t), m, g, opt)
 	if err != nil {
@@ -58,7 +35,7 @@ func integral(r *DOSResult, dos []float64) float64 {
 // ν_max = 2·sqrt(K/M) in units of sqrt(eV/Å²/amu) = 15.6333042 THz
 // (Kittel, Introduction to Solid State Physics, ch. 4; the unit
 // sqrt(e·10²⁰/m_u)/2π from CODATA 2018 e and m_u).
-var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * NuUnitTHz
+var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz
 
 // chainStatesBelow is the exact number of states per cell below ν of the
 // monatomic chain, ∫ (2/π)(ν_m² − ν²)^(−1/2) dν = (2/π) arcsin(ν/ν_m)
@@ -91,7 +68,7 @@ func chainL1(r *DOSResult) float64 {
 // averages, and the integrated DOS against (2/π) arcsin(ν/ν_max).
 // Tolerances are 3× the measured errors (L1 2.9e-6, integrated 4.6e-7).
 func TestDOSChainClosedForm(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{4096}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{4096}}, physics.GridOptions{})
 	r := mustDOS(t, m, g, DOSOptions{Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
 	if l1 := chainL1(r); l1 > 1e-5 {
 		t.Errorf("L1 distance to the closed form %.3g; want < 1e-5", l1)
@@ -116,7 +93,7 @@ func TestDOSChainConvergence(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
 	prev := map[DOSMethod]float64{}
 	for _, n := range []int{32, 64, 128, 256, 512, 1024, 2048} {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, GridOptions{})
+		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian} {
 			r := mustDOS(t, m, g, DOSOptions{Method: meth, Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
 			l1 := chainL1(r)
@@ -140,7 +117,7 @@ func TestDOSChainConvergence(t *testing.T) {
 // singularity; Ashcroft & Mermin ch. 23, Kittel ch. 5). The log-log slope
 // over 0.5 %–10 % of ν_max below the edge is −½ to 0.02.
 func TestDOSChainZoneEdge(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{65536}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{65536}}, physics.GridOptions{})
 	r := mustDOS(t, m, g, DOSOptions{Max: chainNuMaxTHz, Step: chainNuMaxTHz / 2000})
 	var xs, ys []float64
 	for i, f := range r.Freq {
@@ -188,15 +165,15 @@ func TestDOSNormalization(t *testing.T) {
 		{"fcc", [3]int{8, 8, 8}},
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
-		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
-		want := float64(m.P() * m.Sites())
+		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
+		want := float64(m.Polarizations() * m.Sites())
 		for _, meth := range []DOSMethod{Tetrahedron, Histogram, Gaussian} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
 				opt := DOSOptions{Method: meth, PerSite: true}
 				tol := 1e-6
 				if meth == Gaussian {
 					// A window with room for the tails below 0.
-					top := spectrumStats(g).maxTHz
+					top := Stats(g).MaxTHz
 					w := defaultGaussianWidth(top, tc.mesh, m.Dim())
 					opt.Min, opt.Max, opt.Step = -9*w, top+9*w, top/400
 					tol = 1e-9
@@ -217,8 +194,8 @@ func TestDOSNormalization(t *testing.T) {
 				// Each site carries p states: Σ_modes |e_s|² = p at every q by
 				// the completeness of the eigenvectors (common practice).
 				for s, d := range r.Sites {
-					if got := integral(r, d); math.Abs(got-float64(m.P())) > tol {
-						t.Errorf("∫g_site%d = %.12f; want p = %d", s, got, m.P())
+					if got := integral(r, d); math.Abs(got-float64(m.Polarizations())) > tol {
+						t.Errorf("∫g_site%d = %.12f; want p = %d", s, got, m.Polarizations())
 					}
 				}
 			})
@@ -240,7 +217,7 @@ func TestProjectedDOSSum(t *testing.T) {
 		{"square-net", [3]int{16, 16}},
 		{"rocksalt-like", [3]int{8, 8, 8}},
 	} {
-		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Projections: true})
+		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian, Histogram} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
 				with := mustDOS(t, m, g, DOSOptions{Method: meth, PerSite: true})
@@ -275,9 +252,9 @@ func TestProjectedDOSSum(t *testing.T) {
 // light, M = 50 amu heavy): sqrt(2K/M), sqrt(2K/m) and sqrt(2K(1/m + 1/M))
 // (Kittel, Introduction to Solid State Physics, ch. 4).
 var diatomicEdges = [3]float64{
-	math.Sqrt(2*2.0/50) * NuUnitTHz,
-	math.Sqrt(2*2.0/20) * NuUnitTHz,
-	math.Sqrt(2*2.0*(1.0/20+1.0/50)) * NuUnitTHz,
+	math.Sqrt(2*2.0/50) * physics.NuUnitTHz,
+	math.Sqrt(2*2.0/20) * physics.NuUnitTHz,
+	math.Sqrt(2*2.0*(1.0/20+1.0/50)) * physics.NuUnitTHz,
 }
 
 // TestDiatomicGap: the diatomic chain has no states between the top of the
@@ -287,7 +264,7 @@ var diatomicEdges = [3]float64{
 // mode only the light ones (Kittel ch. 4), so the label projections near
 // each edge belong to one species.
 func TestDiatomicGap(t *testing.T) {
-	m, g := exampleGrid(t, "diatomic-chain", mesh.GridSpec{Mesh: [3]int{512}}, GridOptions{Projections: true})
+	m, g := exampleGrid(t, "diatomic-chain", mesh.GridSpec{Mesh: [3]int{512}}, physics.GridOptions{Projections: true})
 	lo, hi, top := diatomicEdges[0], diatomicEdges[1], diatomicEdges[2]
 	step := top / 1000
 	r := mustDOS(t, m, g, DOSOptions{Max: 1.02 * top, Step: step, PerSite: true})
@@ -337,15 +314,15 @@ func TestDiatomicGap(t *testing.T) {
 // per unit), the integrated
 // DOS not at all.
 func TestDOSUnits(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
 	ref := mustDOS(t, m, g, DOSOptions{Max: 10, Step: 0.05})
 	for _, tc := range []struct {
 		name   string
-		unit   Unit
+		unit   physics.Unit
 		factor float64
 	}{
-		{"meV", MeV, 4.135667697},
-		{"cm-1", CM1, 33.35640952},
+		{"meV", physics.MeV, 4.135667697},
+		{"cm-1", physics.CM1, 33.35640952},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			if math.Abs(tc.unit.PerTHz()/tc.factor-1) > 1e-9 {
@@ -371,11 +348,11 @@ func TestDOSUnits(t *testing.T) {
 // (K₂ < −K₁/4) that long waves are imaginary: ω² ∝ K₁ sin²(q/2) + K₂
 // sin²(q) < 0 near Γ (Born–von Kármán chain, Kittel ch. 4 problem set;
 // the sign test is common practice).
-func unstableChain() *Crystal {
-	return &Crystal{
+func unstableChain() *physics.Crystal {
+	return &physics.Crystal{
 		Name: "unstable-chain", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []Spring{
+		Sites: []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Springs: []physics.Spring{
 			{From: 0, To: 0, Cell: []int{1}, KLong: 1.0},
 			{From: 0, To: 0, Cell: []int{2}, KLong: -0.4},
 		},
@@ -388,8 +365,8 @@ func unstableChain() *Crystal {
 // normalisation (common practice: imaginary modes as negative numbers).
 func TestDOSImaginary(t *testing.T) {
 	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{400}}, GridOptions{})
-	st := spectrumStats(g)
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{400}}, physics.GridOptions{})
+	st := Stats(g)
 	want := 0 // Γ's acoustic mode is 0 here (springs keep the sum rule)
 	for _, f := range g.FreqTHz {
 		if f < 0 { // every negative frequency is imaginary (doc.go)
@@ -417,15 +394,15 @@ func TestDOSImaginary(t *testing.T) {
 				t.Errorf("excluding: ∫g = %.6f; want the real modes' %.6f", got, real)
 			}
 			neg := mustDOS(t, m, g, DOSOptions{Method: meth, NegativeAxis: true})
-			if !(neg.Freq[0] < st.minTHz) {
-				t.Errorf("negative axis: window starts at %g, above the lowest mode %g", neg.Freq[0], st.minTHz)
+			if !(neg.Freq[0] < st.MinTHz) {
+				t.Errorf("negative axis: window starts at %g, above the lowest mode %g", neg.Freq[0], st.MinTHz)
 			}
 			if got := integral(neg, neg.DOS); math.Abs(got-1) > 1e-9 {
 				t.Errorf("negative axis: ∫g = %.12f; want 1", got)
 			}
 			below := 0.0
 			for i, f := range neg.Freq {
-				if f < st.minTHz/2 {
+				if f < st.MinTHz/2 {
 					below += neg.DOS[i]
 				}
 			}
@@ -441,7 +418,7 @@ func TestDOSImaginary(t *testing.T) {
 // wavevector carrying 1/8 of a state per cell (allowed q = 2πn/(Na): common
 // practice; dispersion Kittel ch. 4).
 func TestHistogramFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{8}, Finite: true}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{8}, Finite: true}, physics.GridOptions{})
 	step := 1e-3
 	r := mustDOS(t, m, g, DOSOptions{Method: Histogram, Max: 1.1 * chainNuMaxTHz, Step: step})
 	want := map[int]float64{} // sample index → states
@@ -462,13 +439,13 @@ func TestHistogramFiniteCrystal(t *testing.T) {
 // tetrahedron DOS agree in the mean frequency ⟨ν⟩ = ∫νg/∫g, which smearing
 // does not move (common practice).
 func TestGaussianWidth(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{10, 10, 10}}, GridOptions{})
-	top := spectrumStats(g).maxTHz
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{10, 10, 10}}, physics.GridOptions{})
+	top := Stats(g).MaxTHz
 	def := mustDOS(t, m, g, DOSOptions{Method: Gaussian})
 	if want := top / (8 * 10); math.Abs(def.Width-want) > 1e-12*want {
 		t.Errorf("default width %.6g; want ν_top/(8·N^(1/3)) = %.6g", def.Width, want)
 	}
-	m1, g1 := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	m1, g1 := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
 	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, chainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
 		t.Errorf("1D default width %.6g; want ν_top/N = %.6g", got, want)
 	}
@@ -495,8 +472,8 @@ func TestGaussianWidth(t *testing.T) {
 // 3 % (L1) of the Γ-centred one (common practice: both sample the same
 // zone).
 func TestDOSShiftedGrid(t *testing.T) {
-	m, g0 := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, GridOptions{})
-	g1 := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, GridOptions{})
+	m, g0 := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, physics.GridOptions{})
+	g1 := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, physics.GridOptions{})
 	opt := DOSOptions{Max: 8, Step: 0.04}
 	a, b := mustDOS(t, m, g0, opt), mustDOS(t, m, g1, opt)
 	if got := integral(b, b.DOS); math.Abs(got-3) > 1e-6 {
@@ -514,7 +491,7 @@ func TestDOSShiftedGrid(t *testing.T) {
 // TestDOSValidation: bad options are refused with every violation named by
 // its field; wrong grid modes are refused with a plain error.
 func TestDOSValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    DOSOptions
@@ -533,7 +510,7 @@ func TestDOSValidation(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := ComputeDOS(specCtx(t), m, g, tc.opt)
-			var ve *ValidationError
+			var ve *physics.ValidationError
 			if !errors.As(err, &ve) {
 				t.Fatalf("got %v; want a *ValidationError", err)
 			}

@@ -1,4 +1,4 @@
-package physics_test
+package spectra_test
 
 import (
 	"context"
@@ -6,6 +6,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
@@ -31,7 +32,7 @@ func ExampleComputeDOS() {
 	if err != nil {
 		panic(err)
 	}
-	d, err := physics.ComputeDOS(ctx, m, g, physics.DOSOptions{Unit: physics.MeV, Max: 25, Step: 5})
+	d, err := spectra.ComputeDOS(ctx, m, g, spectra.DOSOptions{Unit: physics.MeV, Max: 25, Step: 5})
 	if err != nil {
 		panic(err)
 	}

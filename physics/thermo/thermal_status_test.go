@@ -1,11 +1,13 @@
-package physics
+package thermo
 
 import (
 	"math"
 	"strings"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // einsteinHeat is the Einstein heat capacity per mode, in units of k_B, at
@@ -54,7 +56,7 @@ func TestStiffnessContrastChain(t *testing.T) {
 	c := loadExample(t, "diatomic-chain")
 	c.Springs[0].KLong, c.Springs[1].KLong = k1, k2
 	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 	temps := []float64{1e-4, 1, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 
@@ -67,28 +69,28 @@ func TestStiffnessContrastChain(t *testing.T) {
 			det := 4 * k1 * k2 * s * s / (m1 * m2)
 			plus := half + math.Sqrt(half*half-det)
 			for _, lam := range []float64{det / plus, plus} {
-				x := math.Sqrt(lam) * NuUnitTHz * THzToKelvin / tK
+				x := math.Sqrt(lam) * physics.NuUnitTHz * physics.THzToKelvin / tK
 				cv, slope := einsteinHeat(x)
 				want += cv / n
 				tol += slope * (16 * 2.2e-16 * lamMax / lam) / 2 / n
 			}
 		}
-		x := math.Sqrt(lamMax) * NuUnitTHz * THzToKelvin / tK // Γ optical
+		x := math.Sqrt(lamMax) * physics.NuUnitTHz * physics.THzToKelvin / tK // Γ optical
 		cv, slope := einsteinHeat(x)
 		want += cv / n
 		tol += slope*(16*2.2e-16)/2/n + 1e-12*want
-		got := r.Points[i].CveVPerK / BoltzmannEVPerK
+		got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK
 		if math.Abs(got-want) > tol {
 			t.Errorf("T = %g K: Cv = %.12g k_B per cell; closed-form mode sum %.12g ± %.2g", tK, got, want, tol)
 		}
-		t.Logf("T = %g K: Cv = %.4f J/(mol·K), closed form %.4f", tK, EVPerKToJPerMolK(r.Points[i].CveVPerK), want*GasConstantJPerMolK)
+		t.Logf("T = %g K: Cv = %.4f J/(mol·K), closed form %.4f", tK, physics.EVPerKToJPerMolK(r.Points[i].CveVPerK), want*physics.GasConstantJPerMolK)
 	}
 	if r.ZeroExcluded != 1 || r.ModesPerCell != 2-1.0/n {
 		t.Errorf("left out %d modes, summed %g per cell; want Γ's acoustic mode only (1, %g)", r.ZeroExcluded, r.ModesPerCell, 2-1.0/n)
 	}
 	// The DOS holds the same modes: its states are the summed modes plus
 	// Γ's acoustic mode.
-	d := mustDOS(t, m, g, DOSOptions{Method: Histogram})
+	d := mustDOS(t, m, g, spectra.DOSOptions{Method: spectra.Histogram})
 	if states := d.Integrated[len(d.Integrated)-1]; math.Abs(states-(r.ModesPerCell+1.0/n)) > 1e-12 {
 		t.Errorf("DOS holds %.15g states per cell, the thermal sums %.15g + Γ's 1/%d", states, r.ModesPerCell, n)
 	}
@@ -106,11 +108,11 @@ func TestStiffnessContrastChain(t *testing.T) {
 func TestChainLowTLargeGrid(t *testing.T) {
 	const n = 1 << 22
 	m := mustCompile(t, loadExample(t, "chain")) // K = 1.5 eV/Å², M = 40 amu
-	numax := 2 * math.Sqrt(1.5/40) * NuUnitTHz
+	numax := 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz
 	if f := m.FrequenciesTHz([3]float64{0.5}); relDiff(f[0], numax) > 1e-12 {
 		t.Fatalf("zone-boundary frequency %g THz; closed form %g", f[0], numax)
 	}
-	g := &GridModes{Spec: mesh.GridSpec{Mesh: [3]int{n, 1, 1}}, NModes: 1, NSites: 1, P: 1, ModelHash: m.Hash(),
+	g := &physics.GridModes{Spec: mesh.GridSpec{Mesh: [3]int{n, 1, 1}}, NModes: 1, NSites: 1, P: 1, ModelHash: m.Hash(),
 		Points: make([]mesh.QPoint, n), FreqTHz: make([]float64, n)}
 	for j := range g.Points {
 		g.Points[j] = mesh.QPoint{Q: [3]float64{float64(j) / n}, Weight: 1.0 / n}
@@ -121,7 +123,7 @@ func TestChainLowTLargeGrid(t *testing.T) {
 	for i, tK := range temps {
 		want := 0.0
 		for j := 1; j <= n/2; j++ { // ν_j = ν_(N−j); terms past x = 60 are below 1e-20 of the sum
-			x := g.FreqTHz[j] * THzToKelvin / tK
+			x := g.FreqTHz[j] * physics.THzToKelvin / tK
 			if x > 60 {
 				break
 			}
@@ -131,7 +133,7 @@ func TestChainLowTLargeGrid(t *testing.T) {
 			}
 			want += c / n
 		}
-		if got := r.Points[i].CveVPerK / BoltzmannEVPerK; relDiff(got, want) > 1e-9 {
+		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; relDiff(got, want) > 1e-9 {
 			t.Errorf("T = %g K: Cv = %.12g k_B per cell; closed-form sum %.12g (%.2g %% off)", tK, got, want, 100*(got-want)/want)
 		}
 	}
@@ -157,7 +159,7 @@ func TestThetaStatus(t *testing.T) {
 	}
 	var runs []run
 	for _, side := range []int{8, 32, 64} {
-		m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{side, side, side}}, GridOptions{})
+		m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{side, side, side}}, physics.GridOptions{})
 		for _, route := range []ThermalRoute{ModeSum, DOSIntegral} {
 			runs = append(runs, run{side, route, mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: route})})
 		}
@@ -206,7 +208,7 @@ func TestThetaIllConditioned(t *testing.T) {
 	c := loadExample(t, "chain")
 	c.Springs[0].KLong *= 1e-12
 	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{10000}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e-5, 1000}})
 	if p := r.Points[1]; p.ThetaDStatus != ThetaIllConditioned || p.ThetaDK != 0 || p.ThetaDReason == "" {
 		t.Errorf("1000 K: θ_D %g K (%v, %q); want ill-conditioned", p.ThetaDK, p.ThetaDStatus, p.ThetaDReason)
@@ -226,7 +228,7 @@ func TestThetaIllConditioned(t *testing.T) {
 func TestMSDDivergentFlag(t *testing.T) {
 	temps := []float64{0, 300}
 	msd := func(name string, spec mesh.GridSpec) *ThermalResult {
-		m, g := exampleGrid(t, name, spec, GridOptions{Eigenvectors: true})
+		m, g := exampleGrid(t, name, spec, physics.GridOptions{Eigenvectors: true})
 		return mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	}
 	check := func(what string, r *ThermalResult, want []bool) {
@@ -253,15 +255,15 @@ func TestMSDDivergentFlag(t *testing.T) {
 	check("fcc", msd("fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}), []bool{false, false})
 	check("finite chain", msd("chain", mesh.GridSpec{Mesh: [3]int{100}, Finite: true}), []bool{false, false})
 
-	pinned := &Crystal{
+	pinned := &physics.Crystal{
 		Name: "pinned-chain", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Blocks: []Block{
+		Sites: []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Blocks: []physics.Block{
 			{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-1, 0, 0, 0, -1, 0, 0, 0, -1}},
 			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{3, 0, 0, 0, 3, 0, 0, 0, 3}},
 		},
 	}
 	m := mustCompile(t, pinned)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{Eigenvectors: true})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{Eigenvectors: true})
 	check("pinned chain", mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true}), []bool{false, false})
 }

@@ -1,4 +1,4 @@
-package physics
+package spectra
 
 import (
 	"context"
@@ -6,9 +6,9 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/materials-lab/modegrid/physics/mesh"
-
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
+	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // DOSMethod selects how ComputeDOS turns grid modes into a density of
@@ -46,7 +46,7 @@ func (m DOSMethod) String() string {
 // tetrahedron DOS in THz on a window chosen from the modes.
 type DOSOptions struct {
 	Method DOSMethod
-	Unit   Unit // unit of Min, Max, Step, Width and of the result
+	Unit   physics.Unit // unit of Min, Max, Step, Width and of the result
 	// Min and Max bound the window of sample frequencies; both 0 means a
 	// window chosen from the modes: from 0 (or below the lowest imaginary
 	// mode with NegativeAxis) to 5 % above the highest mode, plus 5 widths
@@ -76,7 +76,7 @@ type DOSOptions struct {
 // number of states per cell below Freq[i]. Sites[s] and LabelDOS[l] are
 // projections in the same units, summing to DOS at every sample.
 type DOSResult struct {
-	Unit       Unit
+	Unit       physics.Unit
 	Freq       []float64
 	DOS        []float64
 	Integrated []float64
@@ -126,8 +126,8 @@ const (
 // "min", "max", "step", "width"), every violation at once. g must come from
 // m; the tetrahedron method needs the full regular grid (in grid order),
 // PerSite needs g.SiteWeight.
-func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*DOSResult, error) {
-	if err := checkGridModes(m, g); err != nil {
+func ComputeDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt DOSOptions) (*DOSResult, error) {
+	if err := physics.CheckGridModes(m, g); err != nil {
 		return nil, err
 	}
 	if err := opt.validate(); err != nil {
@@ -140,10 +140,10 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 		return nil, fmt.Errorf("physics: the tetrahedron method needs the full %d-point grid, got %d points", g.Spec.Count(), len(g.Points))
 	}
 	scale := opt.Unit.PerTHz()
-	st := spectrumStats(g)
-	res := &DOSResult{Unit: opt.Unit, Imaginary: st.imaginary, StatesPerCell: float64(g.NModes)}
+	st := Stats(g)
+	res := &DOSResult{Unit: opt.Unit, Imaginary: st.Imaginary, StatesPerCell: float64(g.NModes)}
 
-	top, low := st.maxTHz*scale, st.minTHz*scale
+	top, low := st.MaxTHz*scale, st.MinTHz*scale
 	ref := math.Max(top, -low)
 	if !(ref > 0) {
 		ref = scale // no non-zero mode at all: a window of 1 THz
@@ -161,7 +161,7 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	if lo == 0 && hi == 0 {
 		margin := 0.05*ref + 5*width
 		hi = math.Max(top, 0) + margin
-		if opt.NegativeAxis && st.imaginary > 0 {
+		if opt.NegativeAxis && st.Imaginary > 0 {
 			lo = low - margin
 		}
 	}
@@ -170,7 +170,7 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 	}
 	nf := dosSamples(lo, hi, step)
 	if !(nf <= MaxDOSSamples) {
-		return nil, &ValidationError{Violations: []Violation{{Field: "step", Description: fmt.Sprintf(
+		return nil, &physics.ValidationError{Violations: []physics.Violation{{Field: "step", Description: fmt.Sprintf(
 			"the window [%g, %g] at step %g gives %.3g samples, more than the limit of %d", lo, hi, step, nf, MaxDOSSamples)}}}
 	}
 	n := int(nf)
@@ -187,7 +187,7 @@ func ComputeDOS(ctx context.Context, m *Model, g *GridModes, opt DOSOptions) (*D
 		// equivalent points): classes only for the total.
 		var classes []mesh.SimplexClass
 		if !opt.PerSite {
-			if classes, err = mesh.SimplexClasses(ctx, g.irr, set, g.cache); err != nil {
+			if classes, err = mesh.SimplexClasses(ctx, g.Reduction(), set, g.ReductionCache()); err != nil {
 				return nil, err
 			}
 		}
@@ -279,124 +279,86 @@ func (o DOSOptions) Validate() error { return o.validate() }
 
 // validate checks the options alone, listing every violation.
 func (o DOSOptions) validate() error {
-	var vs violations
+	var vs physics.Violations
 	if o.Method < Tetrahedron || o.Method > Histogram {
-		vs.add("method", "unknown method %d", int(o.Method))
+		vs.Add("method", "unknown method %d", int(o.Method))
 	}
-	if o.Unit < THz || o.Unit > RadPerS {
-		vs.add("unit", "unknown unit %d", int(o.Unit))
+	if o.Unit < physics.THz || o.Unit > physics.RadPerS {
+		vs.Add("unit", "unknown unit %d", int(o.Unit))
 	}
 	for _, f := range []struct {
 		name string
 		v    float64
 	}{{"min", o.Min}, {"max", o.Max}, {"step", o.Step}, {"width", o.Width}} {
 		if !(math.Abs(f.v) <= MaxDOSFrequency) {
-			vs.add(f.name, "must be a finite number within ±%g (in the DOS unit), got %v", MaxDOSFrequency, f.v)
+			vs.Add(f.name, "must be a finite number within ±%g (in the DOS unit), got %v", MaxDOSFrequency, f.v)
 		}
 	}
 	if o.Width > 0 && o.Width < MinDOSWidth {
-		vs.add("width", "must be ≥ %g (in the DOS unit; 0 for the default), got %v", MinDOSWidth, o.Width)
+		vs.Add("width", "must be ≥ %g (in the DOS unit; 0 for the default), got %v", MinDOSWidth, o.Width)
 	}
-	if finite(o.Min) && finite(o.Max) && !(o.Min == 0 && o.Max == 0) && !(o.Max > o.Min) {
-		vs.add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", o.Min, o.Max)
+	if !math.IsInf(o.Min, 0) && !math.IsNaN(o.Min) && !math.IsInf(o.Max, 0) && !math.IsNaN(o.Max) && !(o.Min == 0 && o.Max == 0) && !(o.Max > o.Min) {
+		vs.Add("max", "must be greater than min (%g), got %g (leave both 0 for a window from the modes)", o.Min, o.Max)
 	}
 	if o.Step < 0 {
-		vs.add("step", "must be > 0 (0 for the default), got %g", o.Step)
+		vs.Add("step", "must be > 0 (0 for the default), got %g", o.Step)
 	}
 	if o.Width < 0 {
-		vs.add("width", "must be > 0 (0 for the default), got %g", o.Width)
+		vs.Add("width", "must be > 0 (0 for the default), got %g", o.Width)
 	} else if o.Width != 0 && o.Method != Gaussian && o.Method >= Tetrahedron && o.Method <= Histogram {
-		vs.add("width", "only the gaussian method takes a width, got %g with %v", o.Width, o.Method)
+		vs.Add("width", "only the gaussian method takes a width, got %g with %v", o.Width, o.Method)
 	}
-	return vs.err()
+	return vs.Err()
 }
 
-// checkGridModes checks that g is a complete set of modes made by m (or a
-// model of the same hash, which has the same physics).
-func checkGridModes(m *Model, g *GridModes) error {
-	switch {
-	case m == nil:
-		return errors.New("physics: nil model")
-	case g == nil:
-		return errors.New("physics: nil grid modes")
-	case g.ModelHash != m.Hash():
-		return fmt.Errorf("physics: grid modes were made by model %s, not by this model %s: compute them with this model's GridModes", shortHash(g.ModelHash), shortHash(m.Hash()))
-	case g.NModes != m.Modes() || g.NSites != m.Sites():
-		return fmt.Errorf("physics: grid modes have %d modes of %d sites, the model %d of %d", g.NModes, g.NSites, m.Modes(), m.Sites())
-	case len(g.Points) == 0 || len(g.FreqTHz) != len(g.Points)*g.NModes:
-		return fmt.Errorf("physics: grid modes hold %d frequencies for %d points of %d modes", len(g.FreqTHz), len(g.Points), g.NModes)
-	}
-	return nil
+// Spectrum holds the extremes of the grid frequencies (THz), the
+// tolerance derived from them and the number of imaginary modes: what the
+// DOS and the thermal sums (package thermo) both need of grid modes.
+type Spectrum struct {
+	MinTHz, MaxTHz, AbsMaxTHz float64
+	ZeroTol                   float64 // |ν| up to this is a zero mode: ZeroModeTol·AbsMaxTHz
+	Imaginary                 int     // imaginary modes, Γ's acoustic modes never counted
 }
 
-// shortHash is the first 12 characters of a model hash, for messages.
-func shortHash(h string) string {
-	switch {
-	case h == "":
-		return "(none recorded)"
-	case len(h) > 12:
-		return h[:12]
-	}
-	return h
-}
-
-// spectrum holds the extremes of the grid frequencies (THz), the
-// tolerances derived from them and the number of imaginary modes.
-type spectrum struct {
-	minTHz, maxTHz, absMaxTHz float64
-	zeroTol                   float64 // |ν| up to this is a zero mode: ZeroModeTol·absMaxTHz
-	imaginary                 int
-}
-
-// spectrumStats scans the frequencies of g. A mode is imaginary when its
+// Stats scans the frequencies of g. A mode is imaginary when its
 // frequency is negative (rounding noise was set to 0 when the modes were
 // computed: doc.go, Zero and imaginary modes), except that at Γ the p modes of smallest |ν| (the acoustic
 // modes, zero only to rounding, or not at all for explicit blocks without
 // the sum rule) are never counted imaginary, as in Model.Stability.
-func spectrumStats(g *GridModes) spectrum {
-	st := spectrum{minTHz: math.Inf(1), maxTHz: math.Inf(-1)}
+func Stats(g *physics.GridModes) Spectrum {
+	st := Spectrum{MinTHz: math.Inf(1), MaxTHz: math.Inf(-1)}
 	for _, f := range g.FreqTHz { // plain comparisons: the min/max builtins' NaN handling is 8× slower here
-		if f < st.minTHz {
-			st.minTHz = f
+		if f < st.MinTHz {
+			st.MinTHz = f
 		}
-		if f > st.maxTHz {
-			st.maxTHz = f
+		if f > st.MaxTHz {
+			st.MaxTHz = f
 		}
 	}
-	st.absMaxTHz = math.Max(st.maxTHz, -st.minTHz)
-	st.zeroTol = ZeroModeTol * st.absMaxTHz
-	if st.minTHz >= 0 {
+	st.AbsMaxTHz = math.Max(st.MaxTHz, -st.MinTHz)
+	st.ZeroTol = ZeroModeTol * st.AbsMaxTHz
+	if st.MinTHz >= 0 {
 		return st // nothing is imaginary
 	}
 	nm := g.NModes
 	for i, q := range g.Points {
 		f := g.FreqTHz[i*nm : (i+1)*nm]
 		var skip uint64 // bit k: mode k is one of Γ's acoustic modes
-		if isGamma(q.Q) {
-			skip = gammaAcoustic(f, g.P)
+		if physics.IsGamma(q.Q) {
+			skip = GammaAcoustic(f, g.P)
 		}
 		for k, x := range f {
 			if x < 0 && skip>>k&1 == 0 {
-				st.imaginary++
+				st.Imaginary++
 			}
 		}
 	}
 	return st
 }
 
-// isGamma reports whether q (fractional) is a reciprocal lattice vector.
-func isGamma(q [3]float64) bool {
-	for _, x := range q {
-		if math.Abs(x-math.Round(x)) > 1e-12 {
-			return false
-		}
-	}
-	return true
-}
-
-// gammaAcoustic returns a bit set of the p modes of f with the smallest
+// GammaAcoustic returns a bit set of the p modes of f with the smallest
 // |ν| (of the first 64 modes; p ≤ 3).
-func gammaAcoustic(f []float64, p int) uint64 {
+func GammaAcoustic(f []float64, p int) uint64 {
 	var set uint64
 	for n := 0; n < p; n++ {
 		best := -1
@@ -433,21 +395,21 @@ func defaultGaussianWidth(top float64, mesh [3]int, dim int) float64 {
 // modeAccumulate accumulates the Gaussian or histogram state counts of
 // every mode of g (frequencies times scale), all cores, one accumulator per
 // worker. Modes below the cut (imaginary ones, when excluded) are left out.
-func modeAccumulate(ctx context.Context, g *GridModes, method DOSMethod, scale, width float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
+func modeAccumulate(ctx context.Context, g *physics.GridModes, method DOSMethod, scale, width float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
 	nm, ns := g.NModes, g.NSites
 	accNS := 0
 	if sites {
 		accNS = ns
 	}
 	npts := len(g.Points)
-	workers := chunkWorkers(npts, modeChunk)
+	workers := parallel.SliceCount(npts, modeChunk)
 	accs := make([]*cumAcc, workers)
 	for w := range accs {
 		accs[w] = newCumAcc(grid, accNS, false, 0)
 	}
 	reach := gaussianCutoff * width
 	invSigma := 1 / width
-	err := forChunks(ctx, npts, modeChunk, workers, func(worker, lo, hi int) {
+	err := parallel.Slices(ctx, npts, modeChunk, workers, func(worker, lo, hi int) {
 		a := accs[worker]
 		sw := a.sw[0]
 		for i := lo; i < hi; i++ {
@@ -546,22 +508,3 @@ func normalCDF(u float64) float64 {
 
 // modeChunk is how many q-points a worker takes at a time.
 const modeChunk = 256
-
-// chunkWorkers is the number of accumulators (slices) forChunks uses for
-// n items: a fixed number independent of the core count, so that results
-// are bit-for-bit the same on any machine and under any scheduling.
-func chunkWorkers(n, chunk int) int {
-	return parallel.SliceCount(n, chunk)
-}
-
-// forChunks runs work over [0, n), cut into `slices` contiguous slices
-// (slices = chunkWorkers(n, chunk)), each processed in order in chunks of
-// the given size, slices spread over all cores. work receives the slice
-// number, so that a caller keeping one accumulator per slice and merging
-// them in slice order gets sums that do not depend on scheduling or on
-// GOMAXPROCS (replicas must return identical bytes for the same request).
-// It checks ctx between chunks and returns ctx.Err() if ctx ended first;
-// a worker's panic is re-raised here (parallel.Slices).
-func forChunks(ctx context.Context, n, chunk, slices int, work func(slice, lo, hi int)) error {
-	return parallel.Slices(ctx, n, chunk, slices, work)
-}

@@ -1,8 +1,11 @@
-package physics
+package thermo
 
 import (
 	"context"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // Mean-square displacements: the modes' tensor channels and their
@@ -17,7 +20,7 @@ import (
 
 // msdUnitA2 is ħ/(2 m_u · 2π·1 THz) in Å²: ⟨u²⟩ of one mode of ν THz on a
 // site of m amu at T = 0 is msdUnitA2/(m ν) times its eigenvector share.
-var msdUnitA2 = ReducedPlanckJS / (2 * AtomicMassKg * 2 * math.Pi * 1e12) / (angstromM * angstromM)
+var msdUnitA2 = physics.ReducedPlanckJS / (2 * physics.AtomicMassKg * 2 * math.Pi * 1e12) / (physics.AngstromM * physics.AngstromM)
 
 // collectModes gathers the modes of g that the thermal sums keep (see
 // gammaZeroAcoustic) with their weights and, with msd, the tensor channels
@@ -25,7 +28,7 @@ var msdUnitA2 = ReducedPlanckJS / (2 * AtomicMassKg * 2 * math.Pi * 1e12) / (ang
 // the modes left out that are not imaginary: Γ's acoustic modes, exact
 // zeros (negative frequencies are imaginary). It polls ctx per q-point
 // and returns ctx.Err() if ctx ends first.
-func collectModes(ctx context.Context, m *Model, g *GridModes, st spectrum, msd bool) (set *modeSet, zeroWeight float64, zeros int, err error) {
+func collectModes(ctx context.Context, m *physics.Model, g *physics.GridModes, st spectra.Spectrum, msd bool) (set *modeSet, zeroWeight float64, zeros int, err error) {
 	nm, ns, p := g.NModes, g.NSites, g.P
 	npair := p * (p + 1) / 2
 	set = &modeSet{nc: 1, p: p, nsites: ns}
@@ -41,7 +44,7 @@ func collectModes(ctx context.Context, m *Model, g *GridModes, st spectrum, msd 
 		}
 		f := g.FreqTHz[i*nm : (i+1)*nm]
 		var ac uint64 // Γ's acoustic modes, zero to rounding
-		if isGamma(q.Q) {
+		if physics.IsGamma(q.Q) {
 			ac = gammaZeroAcoustic(f, p, st)
 		}
 		for k, nu := range f {
@@ -83,15 +86,15 @@ func collectModes(ctx context.Context, m *Model, g *GridModes, st spectrum, msd 
 // gammaZeroAcoustic returns the bit set of the acoustic modes among the
 // modes f at Γ (the p of smallest |ν|, of the first 64) that are zero to
 // rounding: |ν| ≤ the zero tolerance, or negative (at Γ they are never
-// counted imaginary, see spectrumStats). The thermal sums leave out these
+// counted imaginary, see spectra.Stats). The thermal sums leave out these
 // and modes of zero or negative frequency, and nothing else: a relative cut
 // on every point would drop the whole acoustic branch of a model with a
 // large stiffness contrast (all its acoustic frequencies below 1e-6 of the
 // optical ones) and the lowest modes of any fine grid, which the DOS keeps.
-func gammaZeroAcoustic(f []float64, p int, st spectrum) uint64 {
-	ac := gammaAcoustic(f, p)
+func gammaZeroAcoustic(f []float64, p int, st spectra.Spectrum) uint64 {
+	ac := spectra.GammaAcoustic(f, p)
 	for k := 0; k < len(f) && k < 64; k++ {
-		if ac>>k&1 == 1 && f[k] > st.zeroTol {
+		if ac>>k&1 == 1 && f[k] > st.ZeroTol {
 			ac &^= 1 << k
 		}
 	}
@@ -141,12 +144,12 @@ type msdDivergence struct {
 }
 
 // msdDivergenceOf sets up the divergence check for model m on the grid g.
-func msdDivergenceOf(m *Model, g *GridModes, st spectrum) msdDivergence {
+func msdDivergenceOf(m *physics.Model, g *physics.GridModes, st spectra.Spectrum) msdDivergence {
 	if m.Dim() == 3 || g.Spec.Finite {
 		return msdDivergence{dim: m.Dim(), finite: g.Spec.Finite} // never divergent
 	}
 	f := m.FrequenciesTHz([3]float64{})
-	return msdDivergence{dim: m.Dim(), acoustic: gammaZeroAcoustic(f, m.P(), st) != 0, finite: g.Spec.Finite}
+	return msdDivergence{dim: m.Dim(), acoustic: gammaZeroAcoustic(f, m.Polarizations(), st) != 0, finite: g.Spec.Finite}
 }
 
 // reason returns why ⟨u²⟩ diverges at temperature tempK (0 for T = 0),

@@ -1,4 +1,4 @@
-package physics
+package thermo
 
 import (
 	"context"
@@ -7,10 +7,12 @@ import (
 	"slices"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
-func mustThermal(t testing.TB, m *Model, g *GridModes, opt ThermalOptions) *ThermalResult {
+func mustThermal(t testing.TB, m *physics.Model, g *physics.GridModes, opt ThermalOptions) *ThermalResult {
 	t.Helper()
 	r, err := ComputeThermal(specCtx(t), m, g, opt)
 	if err != nil {
@@ -29,15 +31,15 @@ func relDiff(a, b float64) float64 {
 // einsteinCrystal is one site of mass 40 amu tied to its lattice point by
 // an on-site block k·1 (k = 1 eV/Å², no springs, sum rule not enforced):
 // every mode at every q is the Einstein oscillator ω² = k/m.
-func einsteinCrystal() *Crystal {
-	return &Crystal{
+func einsteinCrystal() *physics.Crystal {
+	return &physics.Crystal{
 		Name: "einstein", Lattice: [][3]float64{{3, 0, 0}, {0, 3, 0}, {0, 0, 3}},
-		Sites:  []Site{{Label: "E", MassAmu: 40, Frac: []float64{0, 0, 0}}},
-		Blocks: []Block{{From: 0, To: 0, Cell: []int{0, 0, 0}, Phi: []float64{1, 0, 0, 0, 1, 0, 0, 0, 1}}},
+		Sites:  []physics.Site{{Label: "E", MassAmu: 40, Frac: []float64{0, 0, 0}}},
+		Blocks: []physics.Block{{From: 0, To: 0, Cell: []int{0, 0, 0}, Phi: []float64{1, 0, 0, 0, 1, 0, 0, 0, 1}}},
 	}
 }
 
-var einsteinNuTHz = math.Sqrt(1.0/40) * NuUnitTHz
+var einsteinNuTHz = math.Sqrt(1.0/40) * physics.NuUnitTHz
 
 // TestEinsteinFunctions: the per-mode sums against the closed forms at
 // x = hν/kT (values computed to 30 digits from the closed forms C/k =
@@ -70,8 +72,8 @@ func TestEinsteinFunctions(t *testing.T) {
 // (Einstein 1907; Kittel ch. 5) and ZPE = 3hν/2, on any grid.
 func TestEinsteinCrystal(t *testing.T) {
 	m := mustCompile(t, einsteinCrystal())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{3, 3, 3}}, GridOptions{})
-	thetaE := einsteinNuTHz * THzToKelvin
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{3, 3, 3}}, physics.GridOptions{})
+	thetaE := einsteinNuTHz * physics.THzToKelvin
 	xs := []float64{0.5, 1, 2, 5, 10}
 	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // C/k = x²eˣ/(eˣ−1)² at each x, to 9 digits
 	var temps []float64
@@ -82,15 +84,15 @@ func TestEinsteinCrystal(t *testing.T) {
 	if r.ZeroExcluded != 0 || math.Abs(r.ModesPerCell-3) > 1e-12 {
 		t.Errorf("excluded %d zero modes, %v modes per cell; want 0 and 3", r.ZeroExcluded, r.ModesPerCell)
 	}
-	if want := 3 * einsteinNuTHz * THzToEV / 2; relDiff(r.ZPEeV, want) > 1e-12 {
+	if want := 3 * einsteinNuTHz * physics.THzToEV / 2; relDiff(r.ZPEeV, want) > 1e-12 {
 		t.Errorf("ZPE %.12g eV; want 3hν/2 = %.12g", r.ZPEeV, want)
 	}
 	for i, p := range r.Points {
-		if got := p.CveVPerK / BoltzmannEVPerK / 3; math.Abs(got-cs[i]) > 1e-9 {
+		if got := p.CveVPerK / physics.BoltzmannEVPerK / 3; math.Abs(got-cs[i]) > 1e-9 {
 			t.Errorf("x=%g: Cv/3k = %.10f; want %.9f", xs[i], got, cs[i])
 		}
 		x := xs[i]
-		wantU := 3 * einsteinNuTHz * THzToEV * (0.5 + 1/math.Expm1(x))
+		wantU := 3 * einsteinNuTHz * physics.THzToEV * (0.5 + 1/math.Expm1(x))
 		if relDiff(p.UeV, wantU) > 1e-12 {
 			t.Errorf("x=%g: U = %.12g eV; want %.12g", x, p.UeV, wantU)
 		}
@@ -108,22 +110,22 @@ func TestEinsteinCrystal(t *testing.T) {
 // independently of the modes.
 func TestDulongPetit(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
-		m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{})
+		m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
 		r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e6}})
 		// Per mole of cells, less the weight of the three Γ zero modes.
-		perSite := EVPerKToJPerMolK(r.Points[0].CveVPerK) / float64(m.Sites()) * float64(m.Modes()) / r.ModesPerCell
+		perSite := physics.EVPerKToJPerMolK(r.Points[0].CveVPerK) / float64(m.Sites()) * float64(m.ModeCount()) / r.ModesPerCell
 		if math.Abs(perSite-24.94338785) > 1e-6*24.94338785 {
 			t.Errorf("%s: Cv at 10⁶ K = %.8f J/(mol·K) per site; want 3R = 24.94338785", name, perSite)
 		}
 	}
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, GridOptions{})
+	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, physics.GridOptions{})
 	const k, mass = 1.2, 60.0 // proto/examples/fcc.json
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e4}})
 	// ⟨x²⟩ over the summed modes: Σ w ν² = 3·4K/M·ν_unit², spread over
 	// ModesPerCell (the three Γ zero modes carry no ν²).
-	nu2 := 3 * 4 * k / mass * NuUnitTHz * NuUnitTHz / r.ModesPerCell
-	x2 := nu2 * math.Pow(THzToKelvin/1e4, 2)
-	deficit := 1 - r.Points[0].CveVPerK/BoltzmannEVPerK/r.ModesPerCell
+	nu2 := 3 * 4 * k / mass * physics.NuUnitTHz * physics.NuUnitTHz / r.ModesPerCell
+	x2 := nu2 * math.Pow(physics.THzToKelvin/1e4, 2)
+	deficit := 1 - r.Points[0].CveVPerK/physics.BoltzmannEVPerK/r.ModesPerCell
 	if relDiff(deficit, x2/12) > 1e-3 { // the ⟨x⁴⟩/240 term is ~1e-4 of ⟨x²⟩/12 here
 		t.Errorf("1 − C/Nk at 10⁴ K = %.6g; want ⟨x²⟩/12 = %.6g", deficit, x2/12)
 	}
@@ -150,7 +152,7 @@ func TestLowTExponents(t *testing.T) {
 		{"fcc", [3]int{24, 24, 24}, DOSIntegral, 1, 3, 0.03},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
 			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{tc.t1, 2 * tc.t1}, Route: tc.route})
 			exp := math.Log2(r.Points[1].CveVPerK / r.Points[0].CveVPerK)
 			if math.Abs(exp-tc.want) > tc.tol {
@@ -183,7 +185,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
 			for _, temp := range []float64{5, 50, 300, 2000} {
 				h := 1e-3 * temp
 				r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{temp - h, temp - h/2, temp, temp + h/2, temp + h}})
@@ -219,7 +221,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 // spectrum; common practice) to 2e-3 for T ≥ 100 K (measured ≤ 7.3e-4, the
 // entropy at 100 K; the zero-point energy to 1e-8).
 func TestModeSumVsDOSIntegral(t *testing.T) {
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{24, 24, 24}}, GridOptions{})
+	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{24, 24, 24}}, physics.GridOptions{})
 	temps := []float64{100, 300, 1000}
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: DOSIntegral})
@@ -254,7 +256,7 @@ func TestThermalWeights(t *testing.T) {
 		{"diatomic-chain", mesh.GridSpec{Mesh: [3]int{9}}, 1},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, tc.spec, GridOptions{})
+			m, g := exampleGrid(t, tc.name, tc.spec, physics.GridOptions{})
 			sum := 0.0
 			for _, p := range g.Points {
 				sum += p.Weight
@@ -267,7 +269,7 @@ func TestThermalWeights(t *testing.T) {
 			if r.ZeroExcluded != tc.zeros {
 				t.Errorf("excluded %d zero modes; want %d", r.ZeroExcluded, tc.zeros)
 			}
-			if want := float64(m.Modes()) - float64(tc.zeros)/n; math.Abs(r.ModesPerCell-want) > 1e-12 {
+			if want := float64(m.ModeCount()) - float64(tc.zeros)/n; math.Abs(r.ModesPerCell-want) > 1e-12 {
 				t.Errorf("modes per cell %.15g; want %.15g", r.ModesPerCell, want)
 			}
 		})
@@ -280,7 +282,7 @@ func TestThermalWeights(t *testing.T) {
 // above, the values join continuously (common practice: the limits of the
 // Bose–Einstein sums).
 func TestZeroKelvin(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, GridOptions{Eigenvectors: true})
+	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 0.01}, MSD: true})
 	z, near := r.Points[0], r.Points[1]
 	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 {
@@ -303,12 +305,12 @@ func TestZeroKelvin(t *testing.T) {
 // unless allowed; allowed, they are left out and counted.
 func TestUnstable(t *testing.T) {
 	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
 	_, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{300}})
 	if !errors.Is(err, ErrUnstable) {
 		t.Fatalf("got %v; want an error wrapping ErrUnstable", err)
 	}
-	imag := spectrumStats(g).imaginary
+	imag := spectra.Stats(g).Imaginary
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, AllowUnstable: true})
 	if r.ImaginaryExcluded != imag || imag == 0 {
 		t.Errorf("ImaginaryExcluded = %d; want %d (> 0)", r.ImaginaryExcluded, imag)
@@ -323,7 +325,7 @@ func TestUnstable(t *testing.T) {
 // (allowed wavevectors: common practice; dispersion: Kittel ch. 4), and at
 // low T it falls far below the bulk, which has modes down to ν → 0.
 func TestFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10}, Finite: true}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10}, Finite: true}, physics.GridOptions{})
 	temps := []float64{5, 30, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	for i, temp := range temps {
@@ -333,18 +335,18 @@ func TestFiniteCrystal(t *testing.T) {
 				continue
 			}
 			nu := chainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/10))
-			x := nu * THzToKelvin / temp
+			x := nu * physics.THzToKelvin / temp
 			cv += x * x * math.Exp(x) / (math.Expm1(x) * math.Expm1(x)) / 10
-			u += nu * THzToEV * (0.5 + 1/math.Expm1(x)) / 10
+			u += nu * physics.THzToEV * (0.5 + 1/math.Expm1(x)) / 10
 		}
-		if got := r.Points[i].CveVPerK / BoltzmannEVPerK; relDiff(got, cv) > 1e-12 {
+		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; relDiff(got, cv) > 1e-12 {
 			t.Errorf("T=%g: Cv/k = %.15g; exact sum %.15g", temp, got, cv)
 		}
 		if relDiff(r.Points[i].UeV, u) > 1e-12 {
 			t.Errorf("T=%g: U = %.15g; exact sum %.15g", temp, r.Points[i].UeV, u)
 		}
 	}
-	_, bulkG := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10000}}, GridOptions{})
+	_, bulkG := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
 	bulk := mustThermal(t, m, bulkG, ThermalOptions{TempsK: temps[:1]})
 	if !(r.Points[0].CveVPerK < 0.5*bulk.Points[0].CveVPerK) {
 		t.Errorf("Cv at 5 K: 10-cell ring %g, bulk %g; want the ring far below", r.Points[0].CveVPerK, bulk.Points[0].CveVPerK)
@@ -364,7 +366,7 @@ func TestSeriesMatchesDirect(t *testing.T) {
 		{"square-net", [3]int{64, 64}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, GridOptions{Eigenvectors: true})
+			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Eigenvectors: true})
 			var temps []float64
 			for e := -2.0; e <= 5; e += 0.1 {
 				temps = append(temps, math.Pow(10, e))
@@ -402,10 +404,10 @@ func TestSeriesMatchesDirect(t *testing.T) {
 // TestPerMole: 1 eV per cell is e·N_A = 96.48533212 kJ per mole of cells
 // (the Faraday constant, CODATA 2018: e and N_A exact).
 func TestPerMole(t *testing.T) {
-	if got := EVToKJPerMol(1); math.Abs(got-96.48533212) > 1e-8 {
+	if got := physics.EVToKJPerMol(1); math.Abs(got-96.48533212) > 1e-8 {
 		t.Errorf("EVToKJPerMol(1) = %.10f; want 96.48533212", got)
 	}
-	if got := EVPerKToJPerMolK(BoltzmannEVPerK); math.Abs(got-8.314462618) > 1e-9 {
+	if got := physics.EVPerKToJPerMolK(physics.BoltzmannEVPerK); math.Abs(got-8.314462618) > 1e-9 {
 		t.Errorf("k_B per mole = %.10f J/(mol·K); want R = 8.314462618", got)
 	}
 }
@@ -413,7 +415,7 @@ func TestPerMole(t *testing.T) {
 // TestThermalValidation: bad options are refused with every violation
 // named by its field; MSD needs eigenvectors.
 func TestThermalValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, GridOptions{})
+	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    ThermalOptions
@@ -426,7 +428,7 @@ func TestThermalValidation(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := ComputeThermal(specCtx(t), m, g, tc.opt)
-			var ve *ValidationError
+			var ve *physics.ValidationError
 			if !errors.As(err, &ve) {
 				t.Fatalf("got %v; want a *ValidationError", err)
 			}
@@ -456,23 +458,23 @@ func TestThermalValidation(t *testing.T) {
 // mode, and the model is not unstable (ω²(q) = (2(1−1e-5) − 2 cos q)/M for
 // neighbour blocks −1 eV/Å²: Born–von Kármán chain, Kittel ch. 4).
 func TestGammaAcousticNotImaginary(t *testing.T) {
-	c := &Crystal{
+	c := &physics.Crystal{
 		Name: "near-sum-rule", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Blocks: []Block{
+		Sites: []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Blocks: []physics.Block{
 			{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-1, 0, 0, 0, -1, 0, 0, 0, -1}},
 			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{2 * (1 - 1e-5), 0, 0, 0, 2, 0, 0, 0, 2}},
 		},
 	}
 	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, GridOptions{})
+	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
 	if g.FreqTHz[0] >= -m.EigenTolTHz() {
 		t.Fatalf("Γ mode %g THz is not below −EigenTolTHz; the test needs it to be", g.FreqTHz[0])
 	}
 	if _, _, stable, err := m.Stability(specCtx(t), 100); err != nil || !stable {
 		t.Fatalf("Stability: stable = %v, err = %v; the reference classification must be stable", stable, err)
 	}
-	if d := mustDOS(t, m, g, DOSOptions{}); d.Imaginary != 0 {
+	if d := mustDOS(t, m, g, spectra.DOSOptions{}); d.Imaginary != 0 {
 		t.Errorf("DOS counts %d imaginary modes; want 0", d.Imaginary)
 	}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}})
@@ -486,7 +488,7 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 // energy; the third law, Kittel ch. 5), not NaN — found by fuzzing.
 func TestThermalTinyTemperature(t *testing.T) {
 	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{8}}, GridOptions{})
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{8}}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
