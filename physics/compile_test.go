@@ -1,12 +1,15 @@
 // Tests of compilation: neighbour shells and interaction counts.
 
-package physics
+package physics_test
 
 import (
 	"context"
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // TestShellBondCounts: the neighbour search finds the coordination shells
@@ -16,30 +19,30 @@ import (
 // ch. 1) — and reports each bond once: half the neighbours for like
 // labels, all of them for unlike.
 func TestShellBondCounts(t *testing.T) {
-	bcc := &Crystal{Lattice: [][3]float64{{-1.5, 1.5, 1.5}, {1.5, -1.5, 1.5}, {1.5, 1.5, -1.5}},
-		Sites: []Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
-		Shells: []Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1},
+	bcc := &physics.Crystal{Lattice: [][3]float64{{-1.5, 1.5, 1.5}, {1.5, -1.5, 1.5}, {1.5, 1.5, -1.5}},
+		Sites: []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
+		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1},
 			{FromLabel: "A", ToLabel: "A", Shell: 2, KLong: 1}}}
-	sc := &Crystal{Lattice: [][3]float64{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}},
-		Sites:  []Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
-		Shells: []Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}, {FromLabel: "A", ToLabel: "A", Shell: 3, KLong: 1}}}
-	cube := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
+	sc := &physics.Crystal{Lattice: [][3]float64{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}},
+		Sites:  []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
+		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}, {FromLabel: "A", ToLabel: "A", Shell: 3, KLong: 1}}}
+	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), physics.ConventionalCell)
 	cases := []struct {
 		name  string
-		c     *Crystal
+		c     *physics.Crystal
 		bonds []int
 		distA []float64
 	}{
-		{"fcc (a = 4 Å)", loadExample(t, "fcc"), []int{6}, []float64{4 / math.Sqrt2}},
+		{"fcc (a = 4 Å)", testmodels.Load(t, "fcc"), []int{6}, []float64{4 / math.Sqrt2}},
 		{"sc (a = 2 Å): 6 at a, 8 at √3a", sc, []int{3, 4}, []float64{2, 2 * math.Sqrt(3)}},
 		{"bcc (a = 3 Å)", bcc, []int{4, 3}, []float64{1.5 * math.Sqrt(3), 3}},
-		{"rock salt (a = 5.6 Å)", loadExample(t, "rocksalt-like"), []int{6, 6, 6}, []float64{2.8, 5.6 / math.Sqrt2, 5.6 / math.Sqrt2}},
+		{"rock salt (a = 5.6 Å)", testmodels.Load(t, "rocksalt-like"), []int{6, 6, 6}, []float64{2.8, 5.6 / math.Sqrt2, 5.6 / math.Sqrt2}},
 		{"rock salt conventional cell (4 P, 4 Q)", cube, []int{24, 24, 24}, []float64{2.8, 5.6 / math.Sqrt2, 5.6 / math.Sqrt2}},
-		{"square net: 4 at a, 4 at √2a", loadExample(t, "square-net"), []int{2, 2}, []float64{3, 3 * math.Sqrt2}},
+		{"square net: 4 at a, 4 at √2a", testmodels.Load(t, "square-net"), []int{2, 2}, []float64{3, 3 * math.Sqrt2}},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			m := mustCompile(t, tc.c)
+			m := testmodels.Compile(t, tc.c)
 			sh := m.Shells()
 			total := len(tc.c.Springs) + len(tc.c.Blocks)
 			for k, want := range tc.bonds {
@@ -75,7 +78,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 		if rng.IntN(20) == 0 {
 			d = 4
 		}
-		c := &Crystal{Polarizations: rareInt(rng.IntN(4), 5)}
+		c := &physics.Crystal{Polarizations: rareInt(rng.IntN(4), 5)}
 		for k := 0; k < d; k++ {
 			var v [3]float64
 			for a := range v {
@@ -86,7 +89,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 		}
 		ns := rareInt(1+rng.IntN(3), 0)
 		for i := 0; i < ns; i++ {
-			s := Site{Label: string(rune('A' + i%2)), MassAmu: rare(1+30*rng.Float64(), []float64{0, -1, math.NaN()}[rng.IntN(3)])}
+			s := physics.Site{Label: string(rune('A' + i%2)), MassAmu: rare(1+30*rng.Float64(), []float64{0, -1, math.NaN()}[rng.IntN(3)])}
 			fl := d
 			if rng.IntN(40) == 0 {
 				fl++
@@ -104,30 +107,30 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 			return n
 		}
 		for k := rng.IntN(4); k > 0; k-- {
-			c.Springs = append(c.Springs, Spring{From: rareInt(rng.IntN(max(ns, 1)), -1), To: rareInt(rng.IntN(max(ns, 1)), ns), Cell: cell(),
+			c.Springs = append(c.Springs, physics.Spring{From: rareInt(rng.IntN(max(ns, 1)), -1), To: rareInt(rng.IntN(max(ns, 1)), ns), Cell: cell(),
 				KLong: rare(rng.Float64()*2-0.3, math.Inf(1)), KTrans: rng.Float64()})
 		}
 		for k := rng.IntN(3); k > 0; k-- {
-			c.Shells = append(c.Shells, Shell{FromLabel: "A", ToLabel: string(rune('A' + rareInt(0, 2))), Shell: rareInt(1+rng.IntN(3), 0), KLong: 1})
+			c.Shells = append(c.Shells, physics.Shell{FromLabel: "A", ToLabel: string(rune('A' + rareInt(0, 2))), Shell: rareInt(1+rng.IntN(3), 0), KLong: 1})
 		}
 		for k := rng.IntN(3); k > 0; k-- {
 			phi := make([]float64, rareInt(9, 8))
 			for a := range phi {
 				phi[a] = rng.NormFloat64()
 			}
-			c.Blocks = append(c.Blocks, Block{From: rng.IntN(max(ns, 1)), To: rareInt(rng.IntN(max(ns, 1)), ns+3), Cell: cell(), Phi: phi})
+			c.Blocks = append(c.Blocks, physics.Block{From: rng.IntN(max(ns, 1)), To: rareInt(rng.IntN(max(ns, 1)), ns+3), Cell: cell(), Phi: phi})
 		}
-		m, err := Compile(context.Background(), c, Options{EnforceSumRule: rng.IntN(2) == 0, Limits: Limits{MaxCellOffset: 3}})
+		m, err := physics.Compile(context.Background(), c, physics.Options{EnforceSumRule: rng.IntN(2) == 0, Limits: physics.Limits{MaxCellOffset: 3}})
 		if err != nil {
-			violationsOf(t, err) // must be a *ValidationError
+			physics.ViolationsOf(t, err) // must be a *ValidationError
 			continue
 		}
 		valid++
-		for _, q := range randomQs(rng, 2) {
+		for _, q := range physics.RandomQs(rng, 2) {
 			for k := m.Dim(); k < 3; k++ {
 				q[k] = 0
 			}
-			pm := m.Point(q, ModeOptions{Eigenvectors: true, Velocities: true})
+			pm := m.Point(q, physics.ModeOptions{Eigenvectors: true, Velocities: true})
 			for _, f := range pm.FreqTHz {
 				if math.IsNaN(f) || math.IsInf(f, 0) {
 					t.Fatalf("model %d: non-finite frequency %v", iter, pm.FreqTHz)
@@ -135,7 +138,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 			}
 		}
 		_ = m.LatticeType()
-		if _, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 5, FollowModes: true}); err != nil {
+		if _, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, physics.PathOptions{Points: 5, FollowModes: true}); err != nil {
 			t.Fatalf("model %d: path: %v", iter, err)
 		}
 	}

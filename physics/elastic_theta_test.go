@@ -1,12 +1,15 @@
 // The elastic Debye temperature (Model.ElasticDebyeTemperature) against
 // closed forms.
 
-package physics
+package physics_test
 
 import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 )
@@ -15,13 +18,13 @@ import (
 // v = a·sqrt(K/M) (Kittel ch. 5) = a·πν_max, and the 1D Debye cutoff is
 // ν_D = v/(2a) (one mode per cell), so θ_D = (π/2)·hν_max/k.
 func TestElasticDebyeChain(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
-	want := math.Pi / 2 * chainNuMaxTHz * THzToKelvin
-	if got := mustElasticTheta(t, m); relDiff(got, want) > 1e-8 {
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
+	want := math.Pi / 2 * chainNuMaxTHz * physics.THzToKelvin
+	if got := testmodels.ElasticTheta(t, m); physics.RelDiff(got, want) > 1e-8 {
 		t.Errorf("elastic θ_D = %.9f K; want (π/2)hν_max/k = %.9f K", got, want)
 	}
-	v := mustSpeedsATHz(t, m, [3]float64{1, 0, 0})
-	if want := 2.5 * math.Sqrt(1.5/40) * OmegaUnitRadPerS * 1e-12; relDiff(v[0], want) > 1e-8 {
+	v := physics.MustSpeedsATHz(t, m, [3]float64{1, 0, 0})
+	if want := 2.5 * math.Sqrt(1.5/40) * physics.OmegaUnitRadPerS * 1e-12; physics.RelDiff(v[0], want) > 1e-8 {
 		t.Errorf("sound velocity %.9g Å·THz; want a·sqrt(K/M) = %.9g", v[0], want)
 	}
 }
@@ -33,12 +36,12 @@ func TestElasticDebyeChain(t *testing.T) {
 // Ashcroft & Mermin, Solid State Physics, ch. 22). Cubic constant a = 4 Å, K =
 // 1.2 eV/Å², M = 60 amu (proto/examples/fcc.json).
 func TestSoundVelocitiesFCC(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
-	unit := OmegaUnitRadPerS * 1e-12 // sqrt(eV/Å²/amu)·Å in Å·THz
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
+	unit := physics.OmegaUnitRadPerS * 1e-12 // sqrt(eV/Å²/amu)·Å in Å·THz
 	vL, vT := 4*math.Sqrt(1.2/120)*unit, 4*math.Sqrt(1.2/240)*unit
-	v := mustSpeedsATHz(t, m, [3]float64{1, 0, 0})
+	v := physics.MustSpeedsATHz(t, m, [3]float64{1, 0, 0})
 	for i, want := range []float64{vT, vT, vL} {
-		if relDiff(v[i], want) > 1e-8 {
+		if physics.RelDiff(v[i], want) > 1e-8 {
 			t.Errorf("branch %d: %.9g Å·THz; want %.9g", i, v[i], want)
 		}
 	}
@@ -52,25 +55,17 @@ func TestSoundVelocitiesFCC(t *testing.T) {
 	for i := 0; i < ndir; i++ {
 		d := [3]float64{r.NormFloat64(), r.NormFloat64(), r.NormFloat64()}
 		l := lattice.Norm(d)
-		for _, v := range mustSpeedsATHz(t, m, [3]float64{d[0] / l, d[1] / l, d[2] / l}) {
+		for _, v := range physics.MustSpeedsATHz(t, m, [3]float64{d[0] / l, d[1] / l, d[2] / l}) {
 			sum += math.Pow(v, -3) / ndir
 		}
 	}
-	want := math.Cbrt(9/(4*math.Pi*cellMeasure(m)*sum)) * THzToKelvin
-	if got := mustElasticTheta(t, m); relDiff(got, want) > 0.015 {
+	want := math.Cbrt(9/(4*math.Pi*physics.CellMeasure(m)*sum)) * physics.THzToKelvin
+	if got := testmodels.ElasticTheta(t, m); physics.RelDiff(got, want) > 0.015 {
 		t.Errorf("elastic θ_D %.3f K; Monte Carlo direction average %.3f K", got, want)
 	}
-}
-
-// relDiff is |a − b| relative to the larger of |a|, |b| (0 when equal).
-func relDiff(a, b float64) float64 {
-	if a == b {
-		return 0
-	}
-	return math.Abs(a-b) / math.Max(math.Abs(a), math.Abs(b))
 }
 
 // chainNuMaxTHz: the chain example (proto/examples/chain.json) has K = 1.5
 // eV/Å², M = 40 amu, so ν_max = 2·sqrt(K/M) in units of sqrt(eV/Å²/amu)
 // (Kittel, Introduction to Solid State Physics, ch. 4).
-var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * NuUnitTHz
+var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz

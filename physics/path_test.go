@@ -1,21 +1,15 @@
 // Tests of dispersion paths.
 
-package physics
+package physics_test
 
 import (
-	"context"
 	"math"
 	"strings"
 	"testing"
-	"time"
-)
 
-func testCtx(t *testing.T) context.Context {
-	t.Helper()
-	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Second)
-	t.Cleanup(cancel)
-	return ctx
-}
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
+)
 
 // TestDispersionFCC walks G–X–W–K–G–L on the fcc example with built-in
 // labels: corner samples carry their labels and the closed-form
@@ -24,12 +18,12 @@ func testCtx(t *testing.T) context.Context {
 // |WK| = π/(√2 a), |KΓ| = 3π/(√2 a), |ΓL| = √3π/a (from the Cartesian
 // points; common practice), and the sample count is exact.
 func TestDispersionFCC(t *testing.T) {
-	c := loadExample(t, "fcc")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "fcc")
+	m := testmodels.Compile(t, c)
 	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
 	a := 2 * c.Lattice[0][1]
-	corners := []PathCorner{{Label: "G"}, {Label: "X"}, {Label: "W"}, {Label: "K"}, {Label: "Γ"}, {Label: "L"}}
-	s, err := m.Dispersion(testCtx(t), corners, PathOptions{Points: 120})
+	corners := []physics.PathCorner{{Label: "G"}, {Label: "X"}, {Label: "W"}, {Label: "K"}, {Label: "Γ"}, {Label: "L"}}
+	s, err := m.Dispersion(physics.TestCtx(t), corners, physics.PathOptions{Points: 120})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -59,7 +53,7 @@ func TestDispersionFCC(t *testing.T) {
 			if w == 0 {
 				tol = 1e-6
 			}
-			if want := math.Sqrt(w*K/M) * NuUnitTHz; math.Abs(x.FreqTHz[k]-want) > tol {
+			if want := math.Sqrt(w*K/M) * physics.NuUnitTHz; math.Abs(x.FreqTHz[k]-want) > tol {
 				t.Errorf("%s branch %d: %.10g; want %.10g", x.Label, k, x.FreqTHz[k], want)
 			}
 		}
@@ -74,13 +68,13 @@ func TestDispersionFCC(t *testing.T) {
 // spacing; a break starts a new piece without adding the jump to the
 // distance; explicit coordinates mix with labels.
 func TestDispersionSpacingAndBreaks(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "square-net"))
-	corners := []PathCorner{
+	m := testmodels.Compile(t, testmodels.Load(t, "square-net"))
+	corners := []physics.PathCorner{
 		{Label: "G"}, {Label: "X"},
 		{Label: "M", BreakBefore: true}, {Label: "mid", Q: [3]float64{0.25, 0.25, 0}, HasQ: true},
 	}
 	const sp = 0.05
-	s, err := m.Dispersion(testCtx(t), corners, PathOptions{SpacingInvA: sp})
+	s, err := m.Dispersion(physics.TestCtx(t), corners, physics.PathOptions{SpacingInvA: sp})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -112,28 +106,28 @@ func TestDispersionSpacingAndBreaks(t *testing.T) {
 // TestDispersionValidation: unknown labels, bad coordinates and options
 // are reported with their fields, all at once.
 func TestDispersionValidation(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	cases := []struct {
 		name    string
-		corners []PathCorner
-		opt     PathOptions
+		corners []physics.PathCorner
+		opt     physics.PathOptions
 		field   string
 		want    string
 	}{
-		{"unknown label", []PathCorner{{Label: "G"}, {Label: "X"}, {Label: "Q"}}, PathOptions{}, "path[2].label", `unknown label "Q" for this fcc lattice (built in: G, K, L, U, W, X)`},
-		{"one corner", []PathCorner{{Label: "G"}}, PathOptions{}, "path", "at least 2"},
-		{"no label, no q", []PathCorner{{Label: "G"}, {}}, PathOptions{}, "path[1]", "needs coordinates"},
-		{"NaN coordinate", []PathCorner{{Label: "G"}, {Q: [3]float64{math.NaN(), 0, 0}, HasQ: true}}, PathOptions{}, "path[1].q.q1", "got NaN"},
-		{"repeated point", []PathCorner{{Label: "X"}, {Label: "X"}}, PathOptions{}, "path[1]", "same point as path[0]"},
-		{"lonely piece", []PathCorner{{Label: "G"}, {Label: "X"}, {Label: "L", BreakBefore: true}}, PathOptions{}, "path[2]", "alone in its piece"},
-		{"too few points", []PathCorner{{Label: "G"}, {Label: "X"}, {Label: "L"}}, PathOptions{Points: 2}, "points", "at least the number of path points (3), got 2"},
-		{"negative spacing", []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{SpacingInvA: -1}, "spacing_inv_a", "got -1"},
-		{"tiny spacing", []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{SpacingInvA: 1e-9}, "spacing_inv_a", "more than 200000 samples"},
+		{"unknown label", []physics.PathCorner{{Label: "G"}, {Label: "X"}, {Label: "Q"}}, physics.PathOptions{}, "path[2].label", `unknown label "Q" for this fcc lattice (built in: G, K, L, U, W, X)`},
+		{"one corner", []physics.PathCorner{{Label: "G"}}, physics.PathOptions{}, "path", "at least 2"},
+		{"no label, no q", []physics.PathCorner{{Label: "G"}, {}}, physics.PathOptions{}, "path[1]", "needs coordinates"},
+		{"NaN coordinate", []physics.PathCorner{{Label: "G"}, {Q: [3]float64{math.NaN(), 0, 0}, HasQ: true}}, physics.PathOptions{}, "path[1].q.q1", "got NaN"},
+		{"repeated point", []physics.PathCorner{{Label: "X"}, {Label: "X"}}, physics.PathOptions{}, "path[1]", "same point as path[0]"},
+		{"lonely piece", []physics.PathCorner{{Label: "G"}, {Label: "X"}, {Label: "L", BreakBefore: true}}, physics.PathOptions{}, "path[2]", "alone in its piece"},
+		{"too few points", []physics.PathCorner{{Label: "G"}, {Label: "X"}, {Label: "L"}}, physics.PathOptions{Points: 2}, "points", "at least the number of path points (3), got 2"},
+		{"negative spacing", []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{SpacingInvA: -1}, "spacing_inv_a", "got -1"},
+		{"tiny spacing", []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{SpacingInvA: 1e-9}, "spacing_inv_a", "more than 200000 samples"},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := m.Dispersion(testCtx(t), tc.corners, tc.opt)
-			for _, v := range violationsOf(t, err) {
+			_, err := m.Dispersion(physics.TestCtx(t), tc.corners, tc.opt)
+			for _, v := range physics.ViolationsOf(t, err) {
 				if v.Field == tc.field && strings.Contains(v.Description, tc.want) {
 					return
 				}
@@ -142,27 +136,29 @@ func TestDispersionValidation(t *testing.T) {
 		})
 	}
 	// A 2D net on an unrecognised lattice still knows Γ.
-	obl := mustCompile(t, &Crystal{Lattice: [][3]float64{{3, 0, 0}, {1, 4, 0}}, Polarizations: 2,
-		Sites:  []Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0}}},
-		Shells: []Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}}})
-	if _, err := obl.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5, 0, 0}, HasQ: true}}, PathOptions{}); err != nil {
+	obl := testmodels.Compile(t, &physics.Crystal{Lattice: [][3]float64{{3, 0, 0}, {1, 4, 0}}, Polarizations: 2,
+		Sites:  []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0}}},
+		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}}})
+	if _, err := obl.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5, 0, 0}, HasQ: true}}, physics.PathOptions{}); err != nil {
 		t.Errorf("Γ on an oblique net: %v", err)
 	}
 }
 
-// TestConnectedBranchesCross: the two uncoupled chains of crossingChains
+// TestConnectedBranchesCross: the two uncoupled chains of physics.CrossingChains
 // cross at q = 1/3; sorted frequencies swap branches there, connected ones
 // follow each chain's own dispersion ω_A = 2 sqrt(K/M)|sin πq|, ω_B =
 // 2 sqrt(K/M)|sin 2πq| (Kittel ch. 4) through the crossing, also when the
 // crossing is itself a sample.
 func TestConnectedBranchesCross(t *testing.T) {
-	c := crossingChains()
-	m := mustCompile(t, c)
+	c := physics.CrossingChains()
+	m := testmodels.Compile(t, c)
 	K, M := c.Springs[0].KLong, c.Sites[0].MassAmu
-	wA := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q)) * NuUnitTHz }
-	wB := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(2*math.Pi*q)) * NuUnitTHz }
+	wA := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q)) * physics.NuUnitTHz }
+	wB := func(q float64) float64 {
+		return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(2*math.Pi*q)) * physics.NuUnitTHz
+	}
 	for _, points := range []int{61, 64} { // 61: q = 1/3 is sample 20
-		s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: points, FollowModes: true})
+		s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points, FollowModes: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -178,7 +174,7 @@ func TestConnectedBranchesCross(t *testing.T) {
 				t.Fatalf("points=%d q=%.6f: branches %v; want A=%v B=%v", points, q, x.FreqTHz, wA(q), wB(q))
 			}
 		}
-		sorted, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: points})
+		sorted, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -200,9 +196,9 @@ func TestConnectedBranchesCross(t *testing.T) {
 // Shares sum to 1 per branch everywhere, with and without following.
 func TestSiteWeightsDiatomicChain(t *testing.T) {
 	const m1, m2 = 20.0, 70.0 // our own example numbers
-	m := mustCompile(t, diatomicChainK(5, m1, m2, 3, 3))
+	m := testmodels.Compile(t, physics.DiatomicChainK(5, m1, m2, 3, 3))
 	for _, follow := range []bool{false, true} {
-		s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 11, SiteWeights: true, FollowModes: follow})
+		s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11, SiteWeights: true, FollowModes: follow})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -229,7 +225,7 @@ func TestSiteWeightsDiatomicChain(t *testing.T) {
 			}
 		}
 	}
-	plain, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 11})
+	plain, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -238,13 +234,13 @@ func TestSiteWeightsDiatomicChain(t *testing.T) {
 	}
 }
 
-// TestSiteWeightsFollowCrossing: the uncoupled chains of crossingChains
+// TestSiteWeightsFollowCrossing: the uncoupled chains of physics.CrossingChains
 // keep their motion on their own site; followed through the crossing
 // (which is itself a sample at 61 points), each branch stays wholly on one
 // site, where sorted samples would swap sites at q = 1/3.
 func TestSiteWeightsFollowCrossing(t *testing.T) {
-	m := mustCompile(t, crossingChains())
-	s, err := m.Dispersion(testCtx(t), []PathCorner{{Label: "G"}, {Label: "X"}}, PathOptions{Points: 61, FollowModes: true, SiteWeights: true})
+	m := testmodels.Compile(t, physics.CrossingChains())
+	s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 61, FollowModes: true, SiteWeights: true})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,6 +1,6 @@
 // Tests of Stability and of the cancellation latency.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -8,6 +8,9 @@ import (
 	"os"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
@@ -18,20 +21,20 @@ import (
 // K₂ < −K₁/4) is unstable, with the lowest frequency negative; an
 // imaginary optical mode at Γ itself counts, the acoustic zeros do not.
 func TestStability(t *testing.T) {
-	for _, name := range exampleNames(t) {
+	for _, name := range testmodels.Names(t) {
 		t.Run(name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, name))
-			lo, hi, ok, err := m.Stability(testCtx(t), 6)
+			m := testmodels.Compile(t, testmodels.Load(t, name))
+			lo, hi, ok, err := m.Stability(physics.TestCtx(t), 6)
 			if err != nil || !ok || lo < 0 || hi <= 0 {
 				t.Fatalf("min %v max %v stable %v err %v", lo, hi, ok, err)
 			}
 		})
 	}
-	unstable := &Crystal{Lattice: [][3]float64{{2, 0, 0}}, Polarizations: 1,
-		Sites:   []Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
-		Springs: []Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}, {From: 0, To: 0, Cell: []int{2}, KLong: -0.5}}}
-	m := mustCompile(t, unstable)
-	lo, _, ok, err := m.Stability(testCtx(t), 16)
+	unstable := &physics.Crystal{Lattice: [][3]float64{{2, 0, 0}}, Polarizations: 1,
+		Sites:   []physics.Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
+		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}, {From: 0, To: 0, Cell: []int{2}, KLong: -0.5}}}
+	m := testmodels.Compile(t, unstable)
+	lo, _, ok, err := m.Stability(physics.TestCtx(t), 16)
 	if err != nil || ok || lo >= 0 {
 		t.Fatalf("negative second-neighbour spring: min %v stable %v err %v", lo, ok, err)
 	}
@@ -41,21 +44,21 @@ func TestStability(t *testing.T) {
 	for k := 0; k < 16; k++ {
 		q := float64(k) / 16
 		w2 := math.Pow(math.Sin(math.Pi*q), 2) - 0.5*math.Pow(math.Sin(2*math.Pi*q), 2)
-		want = math.Min(want, math.Copysign(math.Sqrt(math.Abs(w2)), w2)*NuUnitTHz)
+		want = math.Min(want, math.Copysign(math.Sqrt(math.Abs(w2)), w2)*physics.NuUnitTHz)
 	}
-	if !relClose(lo, want, 1e-10) {
+	if !physics.RelClose(lo, want, 1e-10) {
 		t.Errorf("min %v; want %v", lo, want)
 	}
 	// An on-site block that pushes the optical mode at Γ below zero.
-	gamma := &Crystal{Lattice: [][3]float64{{4, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: 10, Frac: []float64{0}}, {Label: "B", MassAmu: 10, Frac: []float64{0.5}}},
-		Springs: []Spring{{From: 0, To: 1, Cell: []int{0}, KLong: -1}, {From: 1, To: 0, Cell: []int{1}, KLong: -1},
+	gamma := &physics.Crystal{Lattice: [][3]float64{{4, 0, 0}}, Polarizations: 1,
+		Sites: []physics.Site{{Label: "A", MassAmu: 10, Frac: []float64{0}}, {Label: "B", MassAmu: 10, Frac: []float64{0.5}}},
+		Springs: []physics.Spring{{From: 0, To: 1, Cell: []int{0}, KLong: -1}, {From: 1, To: 0, Cell: []int{1}, KLong: -1},
 			{From: 0, To: 0, Cell: []int{1}, KLong: 3}, {From: 1, To: 1, Cell: []int{1}, KLong: 3}}}
-	g := mustCompile(t, gamma)
-	if _, _, ok, _ := g.Stability(testCtx(t), 4); ok {
+	g := testmodels.Compile(t, gamma)
+	if _, _, ok, _ := g.Stability(physics.TestCtx(t), 4); ok {
 		t.Errorf("imaginary optical mode at Γ (%v THz) must make the model unstable", g.FrequenciesTHz([3]float64{}))
 	}
-	if _, _, _, err := g.Stability(testCtx(t), 0); violationsOf(t, err) == nil {
+	if _, _, _, err := g.Stability(physics.TestCtx(t), 0); physics.ViolationsOf(t, err) == nil {
 		t.Error("mesh 0 must be a validation error")
 	}
 }
@@ -65,11 +68,11 @@ func TestStability(t *testing.T) {
 // bound here is loose on purpose, only a hang fails it; the latency
 // itself is measured by BenchmarkCancelLatency).
 func TestCancelStopsLargeSolve(t *testing.T) {
-	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
-	spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), physics.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	spec, _ := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
 	ctx, cancel := context.WithCancel(context.Background())
 	go cancel()
-	err := m.StreamModes(ctx, spec.Points(), ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(ModeChunk) error { return nil })
+	err := m.StreamModes(ctx, spec.Points(), physics.ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(physics.ModeChunk) error { return nil })
 	if err != context.Canceled {
 		t.Fatalf("err %v; want context.Canceled", err)
 	}
@@ -84,7 +87,7 @@ func TestCancelStopsLargeSolve(t *testing.T) {
 // the mean and the largest ms/cancel; the project's target is under 10 ms.
 // GridModes shares the polling (parallel.For and the solver's own).
 func BenchmarkCancelLatency(b *testing.B) {
-	cube := supercell(b, loadExample(b, "rocksalt-like"), conventionalCell)
+	cube := testmodels.Supercell(b, testmodels.Load(b, "rocksalt-like"), physics.ConventionalCell)
 	for _, tc := range []struct {
 		name   string
 		mult   int
@@ -96,8 +99,8 @@ func BenchmarkCancelLatency(b *testing.B) {
 		if tc.mult == 4 && os.Getenv("MODEGRID_BENCH_LARGE") == "" {
 			continue
 		}
-		m := mustCompile(b, supercell(b, cube, [3][3]int{{tc.mult, 0, 0}, {0, tc.mult, 0}, {0, 0, tc.mult}}))
-		spec, _ := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{3, 3, 3}, Shifted: true}, 3)
+		m := testmodels.Compile(b, testmodels.Supercell(b, cube, [3][3]int{{tc.mult, 0, 0}, {0, tc.mult, 0}, {0, 0, tc.mult}}))
+		spec, _ := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{3, 3, 3}, Shifted: true}, 3)
 		pts := spec.Points()
 		b.Run(tc.name, func(b *testing.B) {
 			var total, worst time.Duration
@@ -110,7 +113,7 @@ func BenchmarkCancelLatency(b *testing.B) {
 					cancel()
 				})
 				i++
-				err := m.StreamModes(ctx, pts, ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(ModeChunk) error { return nil })
+				err := m.StreamModes(ctx, pts, physics.ModeOptions{Eigenvectors: true, Velocities: true, ChunkSize: 1}, func(physics.ModeChunk) error { return nil })
 				end := time.Now()
 				timer.Stop()
 				if err != context.Canceled {
