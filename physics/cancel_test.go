@@ -1,7 +1,7 @@
 // Tests of cancellation: every long stage stops when its context ends,
 // returns the context's error, and keeps nothing half-computed.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -10,6 +10,9 @@ import (
 	"sync/atomic"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
@@ -87,22 +90,22 @@ func cancelMidway(t *testing.T, after int64, stage func(ctx context.Context) err
 
 // bigCrystal returns the rock-salt-like example as an m1×m2×m3 supercell
 // of its 8-site conventional cube (8·m1·m2·m3 sites, shells by label).
-func bigCrystal(t testing.TB, m1, m2, m3 int) *Crystal {
-	cube := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
-	return supercell(t, cube, [3][3]int{{m1, 0, 0}, {0, m2, 0}, {0, 0, m3}})
+func bigCrystal(t testing.TB, m1, m2, m3 int) *physics.Crystal {
+	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
+	return testmodels.Supercell(t, cube, [3][3]int{{m1, 0, 0}, {0, m2, 0}, {0, 0, m3}})
 }
 
 var (
 	big256Once  sync.Once
-	big256Model *Model
+	big256Model *physics.Model
 )
 
 // big256 is a 256-site model shared by the stage tests: compiled once (a
 // fraction of a second); its lazy symmetry and long-wave limit take
 // seconds, so each test cancels them midway on the same model, which a
 // cancelled stage must leave usable.
-func big256(t testing.TB) *Model {
-	big256Once.Do(func() { big256Model = mustCompile(t, bigCrystal(t, 4, 4, 2)) })
+func big256(t testing.TB) *physics.Model {
+	big256Once.Do(func() { big256Model = testmodels.Compile(t, bigCrystal(t, 4, 4, 2)) })
 	if big256Model == nil {
 		t.Fatal("the 256-site model did not compile")
 	}
@@ -114,7 +117,7 @@ func big256(t testing.TB) *Model {
 func TestCancelCompile(t *testing.T) {
 	c := bigCrystal(t, 4, 4, 4)
 	lat := cancelMidway(t, 2000, func(ctx context.Context) error {
-		_, err := Compile(ctx, c, Options{})
+		_, err := physics.Compile(ctx, c, physics.Options{})
 		return err
 	})
 	t.Logf("Compile, 512 sites: returned %v after cancellation", lat)
@@ -159,8 +162,8 @@ func TestCancelStability(t *testing.T) {
 // TestCancelReduceGrid: reducing a 4-million-point grid stops when
 // cancelled (the fcc symmetry is found first, uncancelled).
 func TestCancelReduceGrid(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
-	mustSymmetry(t, m)
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
+	testmodels.Symmetry(t, m)
 	lat := cancelMidway(t, 20, func(ctx context.Context) error {
 		_, err := m.ReduceGrid(ctx, mesh.GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
 		return err
@@ -172,18 +175,18 @@ func TestCancelReduceGrid(t *testing.T) {
 // 90³ grid stops when cancelled, and caches nothing: the DOS computed
 // afterwards equals the one computed without symmetry classes.
 func TestCancelTetraClasses(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
-	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{90, 90, 90}}, GridOptions{})
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{90, 90, 90}}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
 	set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
 	lat := cancelMidway(t, 20, func(ctx context.Context) error {
-		_, err := mesh.SimplexClasses(ctx, g.irr, set, g.cache)
+		_, err := mesh.SimplexClasses(ctx, g.Reduction(), set, g.ReductionCache())
 		return err
 	})
 	t.Logf("tetrahedron classes, 90³: returned %v after cancellation", lat)
-	classes, err := mesh.SimplexClasses(context.Background(), g.irr, set, g.cache)
+	classes, err := mesh.SimplexClasses(context.Background(), g.Reduction(), set, g.ReductionCache())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -200,8 +203,8 @@ func TestCancelTetraClasses(t *testing.T) {
 // values under an ended context fails with its error and stores nothing,
 // so the next use computes the same result as on a fresh model.
 func TestCancelledFirstUseKeepsNothing(t *testing.T) {
-	c := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
-	m := mustCompile(t, c)
+	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
+	m := testmodels.Compile(t, c)
 	done, cancel := context.WithCancel(context.Background())
 	cancel()
 	if ops, err := m.Symmetry(done); !errors.Is(err, context.Canceled) || ops != nil {
@@ -211,12 +214,12 @@ func TestCancelledFirstUseKeepsNothing(t *testing.T) {
 	if v, err := m.SoundVelocities(done, dir); !errors.Is(err, context.Canceled) || v != nil {
 		t.Fatalf("SoundVelocities(cancelled) = %v, %v; want nil and context.Canceled", v, err)
 	}
-	fresh := mustCompile(t, c)
-	if got, want := len(mustSymmetry(t, m)), len(mustSymmetry(t, fresh)); got != want || want != 48 {
+	fresh := testmodels.Compile(t, c)
+	if got, want := len(testmodels.Symmetry(t, m)), len(testmodels.Symmetry(t, fresh)); got != want || want != 48 {
 		t.Errorf("after a cancelled search: %d operations; a fresh model has %d (want 48, the cubic group Oh)", got, want)
 	}
-	got, want := mustSound(t, m, dir), mustSound(t, fresh, dir)
-	if len(got) != 3 || !closeSlices(got, want, 0) {
+	got, want := testmodels.Sound(t, m, dir), testmodels.Sound(t, fresh, dir)
+	if len(got) != 3 || !testmodels.CloseSlices(got, want, 0) {
 		t.Errorf("after a cancelled set-up: velocities %v; a fresh model gives %v", got, want)
 	}
 }
@@ -225,7 +228,7 @@ func TestCancelledFirstUseKeepsNothing(t *testing.T) {
 // when its own context ends; a failed or panicking computation stores
 // nothing and the next caller computes again.
 func TestLazy(t *testing.T) {
-	var l lazy[int]
+	var l physics.Lazy[int]
 	started, release := make(chan struct{}), make(chan struct{})
 	var calls atomic.Int32
 	slow := func(context.Context) (int, error) {
@@ -236,7 +239,7 @@ func TestLazy(t *testing.T) {
 	}
 	first := make(chan int)
 	go func() {
-		v, _ := l.get(context.Background(), slow)
+		v, _ := l.Get(context.Background(), slow)
 		first <- v
 	}()
 	<-started
@@ -244,12 +247,12 @@ func TestLazy(t *testing.T) {
 	// carries on.
 	gone, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := l.get(gone, slow); !errors.Is(err, context.Canceled) {
+	if _, err := l.Get(gone, slow); !errors.Is(err, context.Canceled) {
 		t.Fatalf("waiter with an ended context: %v; want context.Canceled", err)
 	}
 	second := make(chan int)
 	go func() {
-		v, _ := l.get(context.Background(), slow)
+		v, _ := l.Get(context.Background(), slow)
 		second <- v
 	}()
 	close(release)
@@ -257,16 +260,16 @@ func TestLazy(t *testing.T) {
 		t.Fatalf("got %d and %d from %d computations; want 7 and 7 from 1", a, b, calls.Load())
 	}
 
-	var f lazy[int]
+	var f physics.Lazy[int]
 	boom := errors.New("boom")
-	if _, err := f.get(context.Background(), func(context.Context) (int, error) { return 1, boom }); !errors.Is(err, boom) {
+	if _, err := f.Get(context.Background(), func(context.Context) (int, error) { return 1, boom }); !errors.Is(err, boom) {
 		t.Fatalf("failing computation: %v; want %v", err, boom)
 	}
 	func() {
 		defer func() { _ = recover() }()
-		_, _ = f.get(context.Background(), func(context.Context) (int, error) { panic("inside compute") })
+		_, _ = f.Get(context.Background(), func(context.Context) (int, error) { panic("inside compute") })
 	}()
-	if v, err := f.get(context.Background(), func(context.Context) (int, error) { return 3, nil }); v != 3 || err != nil {
+	if v, err := f.Get(context.Background(), func(context.Context) (int, error) { return 3, nil }); v != 3 || err != nil {
 		t.Fatalf("after a failure and a panic: %d, %v; want 3, nil", v, err)
 	}
 }

@@ -26,7 +26,7 @@ func TestShellBondCounts(t *testing.T) {
 	sc := &physics.Crystal{Lattice: [][3]float64{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}},
 		Sites:  []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
 		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}, {FromLabel: "A", ToLabel: "A", Shell: 3, KLong: 1}}}
-	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), physics.ConventionalCell)
+	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
 	cases := []struct {
 		name  string
 		c     *physics.Crystal
@@ -122,11 +122,11 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 		}
 		m, err := physics.Compile(context.Background(), c, physics.Options{EnforceSumRule: rng.IntN(2) == 0, Limits: physics.Limits{MaxCellOffset: 3}})
 		if err != nil {
-			physics.ViolationsOf(t, err) // must be a *ValidationError
+			violationsOf(t, err) // must be a *ValidationError
 			continue
 		}
 		valid++
-		for _, q := range physics.RandomQs(rng, 2) {
+		for _, q := range randomQs(rng, 2) {
 			for k := m.Dim(); k < 3; k++ {
 				q[k] = 0
 			}
@@ -138,7 +138,7 @@ func TestRandomModelsNeverPanic(t *testing.T) {
 			}
 		}
 		_ = m.LatticeType()
-		if _, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, physics.PathOptions{Points: 5, FollowModes: true}); err != nil {
+		if _, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, physics.PathOptions{Points: 5, FollowModes: true}); err != nil {
 			t.Fatalf("model %d: path: %v", iter, err)
 		}
 	}

@@ -1,4 +1,4 @@
-package physics
+package physics_test
 
 import (
 	"context"
@@ -6,35 +6,38 @@ import (
 	"math/rand/v2"
 	"sort"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // kmsPerUnit converts Å·sqrt(eV/Å²/amu) to km/s.
-var kmsPerUnit = VelocityUnitKmS
+var kmsPerUnit = physics.VelocityUnitKmS
 
 // asBlocks returns the model m compiled from c with every off-site force
 // constant given as an explicit block (sum rule enforced), which takes the
 // general (non-spring) route of the long-wave limit.
-func asBlocks(t *testing.T, c *Crystal) *Crystal {
+func asBlocks(t *testing.T, c *physics.Crystal) *physics.Crystal {
 	t.Helper()
-	m := mustCompile(t, c)
-	out := &Crystal{Lattice: c.Lattice, Polarizations: c.Polarizations, Sites: c.Sites}
-	for _, tm := range m.terms {
-		if tm.i > tm.j || (tm.i == tm.j && !lessCell([3]int{}, tm.n)) {
+	m := testmodels.Compile(t, c)
+	out := &physics.Crystal{Lattice: c.Lattice, Polarizations: c.Polarizations, Sites: c.Sites}
+	for _, tm := range m.Terms() {
+		if tm.I > tm.J || (tm.I == tm.J && !physics.LessCell([3]int{}, tm.N)) {
 			continue
 		}
-		w := math.Sqrt(m.massAmu[tm.i] * m.massAmu[tm.j])
+		w := math.Sqrt(m.MassAmu(tm.I) * m.MassAmu(tm.J))
 		phi := make([]float64, 9)
 		for a := range phi {
-			phi[a] = tm.phi[a] * w
+			phi[a] = tm.Phi[a] * w
 		}
-		out.Blocks = append(out.Blocks, Block{From: tm.i, To: tm.j, Cell: tm.n[:m.dim], Phi: phi})
+		out.Blocks = append(out.Blocks, physics.Block{From: tm.I, To: tm.J, Cell: tm.N[:m.Dim()], Phi: phi})
 	}
 	return out
 }
 
-func compileOpt(t *testing.T, c *Crystal, opt Options) *Model {
+func compileOpt(t *testing.T, c *physics.Crystal, opt physics.Options) *physics.Model {
 	t.Helper()
-	m, err := Compile(context.Background(), c, opt)
+	m, err := physics.Compile(context.Background(), c, opt)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -55,10 +58,10 @@ func worstRel(got, want []float64) float64 {
 	return worst
 }
 
-func fccNN(a, m, kl, kt float64) *Crystal {
-	return &Crystal{Lattice: [][3]float64{{0, a / 2, a / 2}, {a / 2, 0, a / 2}, {a / 2, a / 2, 0}},
-		Sites:  []Site{{Label: "M", MassAmu: m, Frac: []float64{0, 0, 0}}},
-		Shells: []Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: kl, KTrans: kt}}}
+func fccNN(a, m, kl, kt float64) *physics.Crystal {
+	return &physics.Crystal{Lattice: [][3]float64{{0, a / 2, a / 2}, {a / 2, 0, a / 2}, {a / 2, a / 2, 0}},
+		Sites:  []physics.Site{{Label: "M", MassAmu: m, Frac: []float64{0, 0, 0}}},
+		Shells: []physics.Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: kl, KTrans: kt}}}
 }
 
 // TestSoundVelocitiesFCCChristoffel: fcc with central nearest-neighbour
@@ -93,13 +96,13 @@ func TestSoundVelocitiesFCCChristoffel(t *testing.T) {
 	}
 	for _, route := range []struct {
 		name string
-		m    *Model
+		m    *physics.Model
 	}{
-		{"springs", mustCompile(t, fccNN(a, mass, k, 0))},
-		{"blocks", compileOpt(t, asBlocks(t, fccNN(a, mass, k, 0)), Options{EnforceSumRule: true})},
+		{"springs", testmodels.Compile(t, fccNN(a, mass, k, 0))},
+		{"blocks", compileOpt(t, asBlocks(t, fccNN(a, mass, k, 0)), physics.Options{EnforceSumRule: true})},
 	} {
 		for _, tc := range cases {
-			got := mustSound(t, route.m, tc.dir)
+			got := testmodels.Sound(t, route.m, tc.dir)
 			if e := worstRel(got, tc.want); e > 1e-12 {
 				t.Errorf("%s %v: %v km/s; want %v (relative error %.2g)", route.name, tc.dir, got, tc.want, e)
 			}
@@ -109,10 +112,10 @@ func TestSoundVelocitiesFCCChristoffel(t *testing.T) {
 
 // scContrast is a simple cubic crystal (constant a, mass m) with
 // nearest-neighbour springs k∥ = k and k⊥ = r·k.
-func scContrast(a, m, k, r float64) *Crystal {
-	return &Crystal{Lattice: [][3]float64{{a, 0, 0}, {0, a, 0}, {0, 0, a}},
-		Sites:  []Site{{Label: "M", MassAmu: m, Frac: []float64{0, 0, 0}}},
-		Shells: []Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: k, KTrans: r * k}}}
+func scContrast(a, m, k, r float64) *physics.Crystal {
+	return &physics.Crystal{Lattice: [][3]float64{{a, 0, 0}, {0, a, 0}, {0, 0, a}},
+		Sites:  []physics.Site{{Label: "M", MassAmu: m, Frac: []float64{0, 0, 0}}},
+		Shells: []physics.Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: k, KTrans: r * k}}}
 }
 
 // TestSoundVelocitiesContrast: velocities that differ by a stiffness
@@ -131,7 +134,7 @@ func scContrast(a, m, k, r float64) *Crystal {
 // (for t = 0 the Christoffel matrix of the previous test).
 func TestSoundVelocitiesContrast(t *testing.T) {
 	const a, mass, k = 3.0, 40.0, 2.0 // Å, amu, eV/Å² (our own example numbers)
-	rot := randomRotation(rand.New(rand.NewPCG(4, 1954)))
+	rot := testmodels.RandomRotation(rand.New(rand.NewPCG(4, 1954)))
 	generic := [3]float64{0.8017837257372732, 0.5345224838248488, 0.2672612419124244}
 	for _, r := range []float64{1e-4, 1e-8, 1e-12} {
 		tt := r * k
@@ -148,8 +151,8 @@ func TestSoundVelocitiesContrast(t *testing.T) {
 				}
 				want = append(want, math.Sqrt(s*a*a/mass)*kmsPerUnit)
 			}
-			m := mustCompile(t, rotated(scContrast(a, mass, k, r), rot))
-			got := mustSound(t, m, rotate3(rot, u))
+			m := testmodels.Compile(t, testmodels.Rotated(scContrast(a, mass, k, r), rot))
+			got := testmodels.Sound(t, m, testmodels.Rotate3(rot, u))
 			if e := worstRel(got, want); e > 1e-9 {
 				t.Errorf("sc r=%g u=%v: %v km/s; want %v (relative error %.2g)", r, u, got, want, e)
 			}
@@ -158,7 +161,7 @@ func TestSoundVelocitiesContrast(t *testing.T) {
 		// values through the same one-sided Jacobi rotations would not be
 		// independent, so compare the quadratic form instead: Σv² = trace
 		// and the product of v² = determinant).
-		m := mustCompile(t, rotated(fccNN(a, mass, k, tt), rot))
+		m := testmodels.Compile(t, testmodels.Rotated(fccNN(a, mass, k, tt), rot))
 		u := generic
 		var mm [3][3]float64
 		for x := 0; x < 3; x++ {
@@ -172,7 +175,7 @@ func TestSoundVelocitiesContrast(t *testing.T) {
 		}
 		tr := mm[0][0] + mm[1][1] + mm[2][2]
 		det := mm[0][0]*(mm[1][1]*mm[2][2]-mm[1][2]*mm[2][1]) - mm[0][1]*(mm[1][0]*mm[2][2]-mm[1][2]*mm[2][0]) + mm[0][2]*(mm[1][0]*mm[2][1]-mm[1][1]*mm[2][0])
-		got := mustSound(t, m, rotate3(rot, u))
+		got := testmodels.Sound(t, m, testmodels.Rotate3(rot, u))
 		gtr, gdet := 0.0, 1.0
 		for _, x := range got {
 			v2 := x * x / (kmsPerUnit * kmsPerUnit)
@@ -190,9 +193,9 @@ func TestSoundVelocitiesContrast(t *testing.T) {
 // rigid rotation (the direction rule turns with the lattice).
 func TestElasticDebyeContrast(t *testing.T) {
 	c := scContrast(3, 40, 2, 1e-12)
-	th := mustElasticTheta(t, mustCompile(t, c))
-	rot := randomRotation(rand.New(rand.NewPCG(7, 1912)))
-	thr := mustElasticTheta(t, mustCompile(t, rotated(c, rot)))
+	th := testmodels.ElasticTheta(t, testmodels.Compile(t, c))
+	rot := testmodels.RandomRotation(rand.New(rand.NewPCG(7, 1912)))
+	thr := testmodels.ElasticTheta(t, testmodels.Compile(t, testmodels.Rotated(c, rot)))
 	if !(th > 0) || math.IsInf(th, 0) || relDiff(th, thr) > 1e-9 {
 		t.Errorf("θ_D = %v K, rotated %v K; want positive, finite and equal", th, thr)
 	}
@@ -200,10 +203,10 @@ func TestElasticDebyeContrast(t *testing.T) {
 
 // diatomicChainK: masses m1, m2 at 0 and a/2, springs K1 (inside the
 // cell) and K2 (to the next cell) in series.
-func diatomicChainK(a, m1, m2, k1, k2 float64) *Crystal {
-	return &Crystal{Lattice: [][3]float64{{a, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: m1, Frac: []float64{0}}, {Label: "B", MassAmu: m2, Frac: []float64{0.5}}},
-		Springs: []Spring{
+func diatomicChainK(a, m1, m2, k1, k2 float64) *physics.Crystal {
+	return &physics.Crystal{Lattice: [][3]float64{{a, 0, 0}}, Polarizations: 1,
+		Sites: []physics.Site{{Label: "A", MassAmu: m1, Frac: []float64{0}}, {Label: "B", MassAmu: m2, Frac: []float64{0.5}}},
+		Springs: []physics.Spring{
 			{From: 0, To: 1, Cell: []int{0}, KLong: k1},
 			{From: 1, To: 0, Cell: []int{1}, KLong: k2},
 		}}
@@ -222,16 +225,16 @@ func TestSoundVelocityDiatomicContrast(t *testing.T) {
 		k2 := r * k1
 		want := a * math.Sqrt(k1*k2/((k1+k2)*(m1+m2))) * kmsPerUnit
 		c := diatomicChainK(a, m1, m2, k1, k2)
-		got := mustSound(t, mustCompile(t, c), [3]float64{1, 0, 0})
+		got := testmodels.Sound(t, testmodels.Compile(t, c), [3]float64{1, 0, 0})
 		if len(got) != 1 || relDiff(got[0], want) > 1e-12 {
 			t.Errorf("springs, r=%g: %v km/s; want %.15g", r, got, want)
 		}
-		gb := mustSound(t, compileOpt(t, asBlocks(t, c), Options{EnforceSumRule: true}), [3]float64{1, 0, 0})
-		if bound := 16 * dlamchE / r; len(gb) != 1 || !(gb[0] > 0) || relDiff(gb[0], want) > max(bound, 1e-12) {
+		gb := testmodels.Sound(t, compileOpt(t, asBlocks(t, c), physics.Options{EnforceSumRule: true}), [3]float64{1, 0, 0})
+		if bound := 16 * physics.DlamchE / r; len(gb) != 1 || !(gb[0] > 0) || relDiff(gb[0], want) > max(bound, 1e-12) {
 			t.Errorf("blocks, r=%g: %v km/s; want %.15g within %.2g", r, gb, want, bound)
 		}
-		for _, m := range []*Model{mustCompile(t, c), compileOpt(t, asBlocks(t, c), Options{EnforceSumRule: true})} {
-			if th := mustElasticTheta(t, m); !(th > 0) || math.IsInf(th, 0) {
+		for _, m := range []*physics.Model{testmodels.Compile(t, c), compileOpt(t, asBlocks(t, c), physics.Options{EnforceSumRule: true})} {
+			if th := testmodels.ElasticTheta(t, m); !(th > 0) || math.IsInf(th, 0) {
 				t.Errorf("r=%g: θ_D = %v K", r, th)
 			}
 		}
@@ -242,17 +245,17 @@ func TestSoundVelocityDiatomicContrast(t *testing.T) {
 // makes D(q) ≈ iq(B − Bᵀ)a to first order, so ω² is linear in |q| and
 // there is no sound velocity: nil, and θ_D is 0 (undefined).
 func TestSoundVelocitiesNoLongWaveLimit(t *testing.T) {
-	c := &Crystal{Lattice: [][3]float64{{3, 0, 0}, {0, 3, 0}}, Polarizations: 2,
-		Sites: []Site{{Label: "A", MassAmu: 10, Frac: []float64{0, 0}}},
-		Blocks: []Block{
+	c := &physics.Crystal{Lattice: [][3]float64{{3, 0, 0}, {0, 3, 0}}, Polarizations: 2,
+		Sites: []physics.Site{{Label: "A", MassAmu: 10, Frac: []float64{0, 0}}},
+		Blocks: []physics.Block{
 			{From: 0, To: 0, Cell: []int{1, 0}, Phi: []float64{-1, 0.3, 0, 0, -1, 0, 0, 0, 0}},
 			{From: 0, To: 0, Cell: []int{0, 1}, Phi: []float64{-1, 0, 0, 0, -1, 0, 0, 0, 0}},
 		}}
-	m := compileOpt(t, c, Options{EnforceSumRule: true})
-	if v := mustSound(t, m, [3]float64{1, 0, 0}); v != nil {
+	m := compileOpt(t, c, physics.Options{EnforceSumRule: true})
+	if v := testmodels.Sound(t, m, [3]float64{1, 0, 0}); v != nil {
 		t.Errorf("velocities %v; want nil", v)
 	}
-	if th := mustElasticTheta(t, m); th != 0 {
+	if th := testmodels.ElasticTheta(t, m); th != 0 {
 		t.Errorf("θ_D = %v; want 0", th)
 	}
 }

@@ -1,13 +1,16 @@
 // Benchmarks of the engine: per-q cost on a size ladder, the two-site
 // eigenvalue solve, and whole 48³ grids.
 
-package physics
+package physics_test
 
 import (
 	"context"
 	"fmt"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/eigen"
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -22,19 +25,19 @@ var conventionalCell = [3][3]int{{-1, 1, 1}, {1, -1, 1}, {1, 1, -1}}
 // (rocksalt-like), 8 (its conventional cube) and 64 (2×2×2 cubes).
 func ladder(b testing.TB) []struct {
 	sites int
-	m     *Model
+	m     *physics.Model
 } {
-	rs := loadExample(b, "rocksalt-like")
-	cube := supercell(b, rs, conventionalCell)
-	big := supercell(b, cube, [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}})
+	rs := testmodels.Load(b, "rocksalt-like")
+	cube := testmodels.Supercell(b, rs, conventionalCell)
+	big := testmodels.Supercell(b, cube, [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}})
 	return []struct {
 		sites int
-		m     *Model
+		m     *physics.Model
 	}{
-		{1, mustCompile(b, loadExample(b, "fcc"))},
-		{2, mustCompile(b, rs)},
-		{8, mustCompile(b, cube)},
-		{64, mustCompile(b, big)},
+		{1, testmodels.Compile(b, testmodels.Load(b, "fcc"))},
+		{2, testmodels.Compile(b, rs)},
+		{8, testmodels.Compile(b, cube)},
+		{64, testmodels.Compile(b, big)},
 	}
 }
 
@@ -46,7 +49,7 @@ func randomQs(rng *rand.Rand, n int) [][3]float64 {
 	return qs
 }
 
-var sinkPoint PointModes
+var sinkPoint physics.PointModes
 
 // BenchmarkModesPerQ is the cost of one q-point on one core, reusing the
 // worker's workspace as the grid and stream loops do: D(q) assembly plus
@@ -58,23 +61,23 @@ func BenchmarkModesPerQ(b *testing.B) {
 	for _, l := range ladder(b) {
 		n := l.m.ModeCount()
 		for _, kind := range []string{"freq", "vectors", "velocities"} {
-			opt := ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
+			opt := physics.ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
 			b.Run(fmt.Sprintf("sites=%d/%s", l.sites, kind), func(b *testing.B) {
-				w := l.m.newPointWork(nil)
-				pm := PointModes{FreqTHz: make([]float64, n)}
+				w := l.m.NewPointWork()
+				pm := physics.PointModes{FreqTHz: make([]float64, n)}
 				if opt.Eigenvectors {
 					pm.Eigvecs = make([]complex128, n*n)
 				}
 				if opt.Velocities {
 					pm.VelKmS = make([][3]float64, n)
 				}
-				w.point(&pm, opt) // warm the lazily built parts
+				w.Point(&pm, opt) // warm the lazily built parts
 				b.ReportAllocs()
 				i := 0
 				for b.Loop() {
 					pm.Q = qs[i%len(qs)]
 					i++
-					w.point(&pm, opt)
+					w.Point(&pm, opt)
 				}
 				sinkPoint = pm
 			})
@@ -86,7 +89,7 @@ func BenchmarkModesPerQ(b *testing.B) {
 // dynamical matrices of the two-site crystal at random q (the project's
 // 1.5 µs target), and the D(q) assembly alone.
 func BenchmarkTwoSiteEigenvalues(b *testing.B) {
-	m := mustCompile(b, loadExample(b, "rocksalt-like"))
+	m := testmodels.Compile(b, testmodels.Load(b, "rocksalt-like"))
 	rng := rand.New(rand.NewPCG(8, 8))
 	qs := randomQs(rng, 64)
 	mats := make([][]complex128, len(qs))
@@ -106,17 +109,17 @@ func BenchmarkTwoSiteEigenvalues(b *testing.B) {
 	})
 	b.Run("assemble", func(b *testing.B) {
 		w := eigen.NewWork(6)
-		var t phaseTable
+		var t physics.PhaseTable
 		b.ReportAllocs()
 		i := 0
 		for b.Loop() {
-			m.assemble(qs[i%len(qs)], w.A(), &t, nil)
+			m.Assemble(qs[i%len(qs)], w.A(), &t)
 			i++
 		}
 	})
 }
 
-var sinkGrid *GridModes
+var sinkGrid *physics.GridModes
 
 // BenchmarkGrid48 computes all frequencies of a 48×48×48 Γ-centred grid
 // (110 592 points, no symmetry) on all cores, through GridModes and through
@@ -125,11 +128,11 @@ var sinkGrid *GridModes
 func BenchmarkGrid48(b *testing.B) {
 	spec := mesh.GridSpec{Mesh: [3]int{48, 48, 48}}
 	for _, name := range []string{"fcc", "rocksalt-like"} {
-		m := mustCompile(b, loadExample(b, name))
+		m := testmodels.Compile(b, testmodels.Load(b, name))
 		b.Run(name+"/GridModes", func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				g, err := m.GridModes(context.Background(), spec, GridOptions{NoSymmetry: true})
+				g, err := m.GridModes(context.Background(), spec, physics.GridOptions{NoSymmetry: true})
 				if err != nil {
 					b.Fatal(err)
 				}
@@ -139,7 +142,7 @@ func BenchmarkGrid48(b *testing.B) {
 		b.Run(name+"/GridModesSymmetry", func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				g, err := m.GridModes(context.Background(), spec, GridOptions{})
+				g, err := m.GridModes(context.Background(), spec, physics.GridOptions{})
 				if err != nil {
 					b.Fatal(err)
 				}
@@ -151,7 +154,7 @@ func BenchmarkGrid48(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
 				var got int
-				err := m.StreamModes(context.Background(), pts, ModeOptions{}, func(c ModeChunk) error {
+				err := m.StreamModes(context.Background(), pts, physics.ModeOptions{}, func(c physics.ModeChunk) error {
 					got += len(c.Points)
 					return nil
 				})

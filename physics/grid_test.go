@@ -1,6 +1,6 @@
 // Tests of q-point grids, finite crystals and GridModes.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -9,6 +9,9 @@ import (
 	"math/cmplx"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
+
 	"github.com/materials-lab/modegrid/physics/eigen"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
@@ -16,7 +19,7 @@ import (
 // TestEigenvectors: D e = λ e and the eigenvectors are orthonormal
 // (definition of a Hermitian eigendecomposition; common practice).
 func TestEigenvectors(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	n := m.ModeCount()
 	for _, q := range [][3]float64{{0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0, 0, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
@@ -52,8 +55,8 @@ func TestEigenvectors(t *testing.T) {
 // (common practice: N allowed wavevectors under periodic boundary
 // conditions).
 func TestFiniteCrystalPoints(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{5}, Finite: true}, GridOptions{Projections: true})
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{5}, Finite: true}, physics.GridOptions{Projections: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -79,8 +82,8 @@ func TestFiniteCrystalPoints(t *testing.T) {
 // along the crystal's d directions (Monkhorst & Pack, PRB 13, 5188: the
 // grid lives in the d-dimensional zone).
 func TestShiftedGridKeepsUnusedComponentsZero(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
-	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{4}, Shifted: true}, GridOptions{})
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
+	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{4}, Shifted: true}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -112,8 +115,8 @@ func TestFiniteCrystalCounts(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, tc.example))
-			g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: tc.mesh, Finite: true}, GridOptions{})
+			m := testmodels.Compile(t, testmodels.Load(t, tc.example))
+			g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: tc.mesh, Finite: true}, physics.GridOptions{})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -160,11 +163,11 @@ func TestFiniteCrystalSpacing(t *testing.T) {
 		aA   float64
 	}{{"ring of 7, 2.5 Å", 7, 2.5}, {"1 cm of 1 nm cells", 10_000_000, 10}} {
 		t.Run(tc.name, func(t *testing.T) {
-			c := &Crystal{Lattice: [][3]float64{{tc.aA, 0, 0}}, Polarizations: 1,
-				Sites:   []Site{{Label: "A", MassAmu: 50, Frac: []float64{0}}},
-				Springs: []Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}}}
-			m := mustCompile(t, c)
-			spec, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{tc.n}, Finite: true}, m.Dim())
+			c := &physics.Crystal{Lattice: [][3]float64{{tc.aA, 0, 0}}, Polarizations: 1,
+				Sites:   []physics.Site{{Label: "A", MassAmu: 50, Frac: []float64{0}}},
+				Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}}}
+			m := testmodels.Compile(t, c)
+			spec, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{tc.n}, Finite: true}, m.Dim())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -173,7 +176,7 @@ func TestFiniteCrystalSpacing(t *testing.T) {
 			}
 			L := float64(tc.n) * tc.aA
 			for _, i := range []int{1, 2, tc.n / 3, tc.n/2 - 1} {
-				q0, q1 := m.cartQ(spec.Point(i-1).Q), m.cartQ(spec.Point(i).Q)
+				q0, q1 := m.CartQ(spec.Point(i-1).Q), m.CartQ(spec.Point(i).Q)
 				if d := q1[0] - q0[0]; math.Abs(d-2*math.Pi/L) > 1e-9*2*math.Pi/L {
 					t.Errorf("spacing at %d: %.6g Å⁻¹; want 2π/L = %.6g", i, d, 2*math.Pi/L)
 				}
@@ -202,8 +205,8 @@ func TestMonkhorstPackGrids(t *testing.T) {
 		{"3D 3×4×5 shifted", "fcc", [3]int{3, 4, 5}, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, tc.example))
-			spec, err := NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh, Shifted: tc.shifted}, m.Dim())
+			m := testmodels.Compile(t, testmodels.Load(t, tc.example))
+			spec, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh, Shifted: tc.shifted}, m.Dim())
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -254,15 +257,15 @@ func TestMonkhorstPackGrids(t *testing.T) {
 // over each degenerate group equals that of the eigenvectors (the group
 // sum is basis-independent; definitions, common practice).
 func TestGridModesMatchesPoints(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{3, 2, 4}}, GridOptions{Projections: true, Eigenvectors: true, NoSymmetry: true})
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
+	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{3, 2, 4}}, physics.GridOptions{Projections: true, Eigenvectors: true, NoSymmetry: true})
 	if err != nil {
 		t.Fatal(err)
 	}
 	n := m.ModeCount()
 	for i, p := range g.Points {
 		f, v := m.ModesAt(p.Q)
-		if !closeSlices(g.FreqTHz[i*n:(i+1)*n], f, 1e-14) {
+		if !testmodels.CloseSlices(g.FreqTHz[i*n:(i+1)*n], f, 1e-14) {
 			t.Fatalf("point %d: %v; want %v", i, g.FreqTHz[i*n:(i+1)*n], f)
 		}
 		w := make([]float64, n*2)
@@ -309,8 +312,8 @@ func degenerateGroups(f []float64) [][2]int {
 // eigenvectors summed over each degenerate group (the basis-independent
 // part), and its trace is the site weight (definitions).
 func TestGridSiteTensors(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
-	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{2, 3, 2}}, GridOptions{SiteTensors: true, Eigenvectors: true, Projections: true, NoSymmetry: true})
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
+	g, err := m.GridModes(testCtx(t), mesh.GridSpec{Mesh: [3]int{2, 3, 2}}, physics.GridOptions{SiteTensors: true, Eigenvectors: true, Projections: true, NoSymmetry: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -349,10 +352,10 @@ func TestGridSiteTensors(t *testing.T) {
 
 // TestGridModesCancel: a cancelled context stops GridModes with its error.
 func TestGridModesCancel(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{64, 64, 64}}, GridOptions{}); !errors.Is(err, context.Canceled) {
+	if _, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{64, 64, 64}}, physics.GridOptions{}); !errors.Is(err, context.Canceled) {
 		t.Fatalf("err = %v; want context.Canceled", err)
 	}
 }
@@ -373,14 +376,14 @@ func TestGridSpecLimits(t *testing.T) {
 		{"overflowing product", 3, [3]int{1 << 31, 1 << 31, 4}, "mesh"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh}, tc.dim)
+			_, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: tc.mesh}, tc.dim)
 			vs := violationsOf(t, err)
 			if len(vs) == 0 || vs[0].Field != tc.field {
 				t.Fatalf("violations %v; want one on %s", vs, tc.field)
 			}
 		})
 	}
-	if _, err := NormalizeGrid(mesh.GridSpec{Mesh: [3]int{4, 4}, Finite: true, Shifted: true}, 2); err == nil {
+	if _, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{4, 4}, Finite: true, Shifted: true}, 2); err == nil {
 		t.Error("a shifted finite crystal must be refused")
 	}
 }

@@ -1,4 +1,4 @@
-package physics
+package physics_test
 
 import (
 	"context"
@@ -7,13 +7,16 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
+
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 // violationFields returns the field names of a *ValidationError (nil for
 // another error).
 func violationFields(err error) []string {
-	var ve *ValidationError
+	var ve *physics.ValidationError
 	if !errors.As(err, &ve) {
 		return nil
 	}
@@ -44,35 +47,35 @@ func mustPanic(t *testing.T, name string, fn func()) {
 // a "physics: " panic on the single-point methods, whose precondition it
 // is; never NaN frequencies.
 func TestQOutOfDomain(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
-	for _, x := range []float64{-1e308, 1e308, math.NaN(), math.Inf(1), -MaxQ * (1 + 1e-15), 2e6} {
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
+	for _, x := range []float64{-1e308, 1e308, math.NaN(), math.Inf(1), -physics.MaxQ * (1 + 1e-15), 2e6} {
 		pts := []mesh.QPoint{{Q: [3]float64{0.1, 0, 0}, Weight: 1}, {Q: [3]float64{x, 0.2, 0}, Weight: 1}}
-		if got := violationFields(ValidateQPoints(3, pts, "points")); len(got) != 1 || got[0] != "points[1].q1" {
+		if got := violationFields(physics.ValidateQPoints(3, pts, "points")); len(got) != 1 || got[0] != "points[1].q1" {
 			t.Errorf("ValidateQPoints q1=%v: fields %v; want [points[1].q1]", x, got)
 		}
-		err := m.StreamModes(context.Background(), pts, ModeOptions{}, func(ModeChunk) error { return nil })
+		err := m.StreamModes(context.Background(), pts, physics.ModeOptions{}, func(physics.ModeChunk) error { return nil })
 		if got := violationFields(err); len(got) != 1 || got[0] != "points[1].q1" {
 			t.Errorf("StreamModes q1=%v: %v; want a violation of points[1].q1", x, err)
 		}
-		corners := []PathCorner{{Label: "G"}, {Q: [3]float64{0, 0, x}, HasQ: true}}
-		if _, err := m.Dispersion(context.Background(), corners, PathOptions{Points: 5}); !strings.Contains(strings.Join(violationFields(err), ","), "path[1].q.q3") {
+		corners := []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0, 0, x}, HasQ: true}}
+		if _, err := m.Dispersion(context.Background(), corners, physics.PathOptions{Points: 5}); !strings.Contains(strings.Join(violationFields(err), ","), "path[1].q.q3") {
 			t.Errorf("Dispersion q3=%v: %v; want a violation of path[1].q.q3", x, err)
 		}
 		q := [3]float64{x, 0, 0}
 		mustPanic(t, "FrequenciesTHz", func() { m.FrequenciesTHz(q) })
 		mustPanic(t, "ModesAt", func() { m.ModesAt(q) })
-		mustPanic(t, "Point", func() { m.Point(q, ModeOptions{}) })
+		mustPanic(t, "Point", func() { m.Point(q, physics.ModeOptions{}) })
 		mustPanic(t, "DynamicalMatrix", func() { m.DynamicalMatrix(q, nil) })
 		mustPanic(t, "DynamicalMatrixGrad", func() { m.DynamicalMatrixGrad(q) })
 	}
 	// The bound itself is accepted.
-	if err := ValidateQPoints(3, []mesh.QPoint{{Q: [3]float64{MaxQ, -MaxQ, 0.5}}}, "points"); err != nil {
+	if err := physics.ValidateQPoints(3, []mesh.QPoint{{Q: [3]float64{physics.MaxQ, -physics.MaxQ, 0.5}}}, "points"); err != nil {
 		t.Errorf("q at ±MaxQ: %v", err)
 	}
 	bad := [3]float64{math.NaN(), 0, 0}
-	mustPanic(t, "Point(VelocityDir)", func() { m.Point([3]float64{0.1}, ModeOptions{Velocities: true, VelocityDir: bad}) })
+	mustPanic(t, "Point(VelocityDir)", func() { m.Point([3]float64{0.1}, physics.ModeOptions{Velocities: true, VelocityDir: bad}) })
 	mustPanic(t, "SoundVelocities", func() { _, _ = m.SoundVelocities(context.Background(), bad) })
-	err := m.StreamModes(context.Background(), []mesh.QPoint{{Q: [3]float64{0.1}}}, ModeOptions{Velocities: true, VelocityDir: bad}, func(ModeChunk) error { return nil })
+	err := m.StreamModes(context.Background(), []mesh.QPoint{{Q: [3]float64{0.1}}}, physics.ModeOptions{Velocities: true, VelocityDir: bad}, func(physics.ModeChunk) error { return nil })
 	if got := violationFields(err); len(got) != 1 || got[0] != "velocity_dir" {
 		t.Errorf("StreamModes with a NaN VelocityDir: %v; want a violation of velocity_dir", err)
 	}
@@ -83,7 +86,7 @@ func TestQOutOfDomain(t *testing.T) {
 // exactly, so frequencies at q and at q shifted by integers up to MaxQ are
 // bit-for-bit equal for q exactly representable (dyadic fractions).
 func TestLargeQPeriodic(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	q := [3]float64{0.25, -0.375, 0.125}
 	want := m.FrequenciesTHz(q)
 	for _, shift := range [][3]float64{{999999, 0, 0}, {-999999, 999999, 12345}, {-999999, -999999, -999999}} {
@@ -96,18 +99,18 @@ func TestLargeQPeriodic(t *testing.T) {
 		}
 	}
 	// Sound velocities take a direction of any finite length.
-	small, huge := mustSound(t, m, [3]float64{1, 1, 0}), mustSound(t, m, [3]float64{1e300, 1e300, 0})
-	if !closeSlices(small, huge, 1e-12) {
+	small, huge := testmodels.Sound(t, m, [3]float64{1, 1, 0}), testmodels.Sound(t, m, [3]float64{1e300, 1e300, 0})
+	if !testmodels.CloseSlices(small, huge, 1e-12) {
 		t.Errorf("SoundVelocities(1e300·dir) = %v; want %v", huge, small)
 	}
 }
 
 // TestNilCrystal: a nil crystal is a validation error, not a panic.
 func TestNilCrystal(t *testing.T) {
-	if got := violationFields(Validate(nil, Limits{})); len(got) != 1 || got[0] != "model" {
+	if got := violationFields(physics.Validate(nil, physics.Limits{})); len(got) != 1 || got[0] != "model" {
 		t.Errorf("Validate(nil): fields %v; want [model]", got)
 	}
-	m, err := Compile(context.Background(), nil, Options{})
+	m, err := physics.Compile(context.Background(), nil, physics.Options{})
 	if got := violationFields(err); m != nil || len(got) != 1 || got[0] != "model" {
 		t.Errorf("Compile(context.Background(), nil): %v, %v; want a violation of model", m, err)
 	}
@@ -133,7 +136,7 @@ func TestCleanEigenvalues(t *testing.T) {
 		{"off Γ: imaginary kept", [3]float64{0.1}, 1, []float64{-2e-14, 0.3}, []float64{-2e-14, 0.3}},
 	} {
 		got := append([]float64(nil), tc.in...)
-		cleanEigenvalues(got, tc.q, tc.p, tol)
+		physics.CleanEigenvalues(got, tc.q, tc.p, tol)
 		for k := range got {
 			if got[k] != tc.want[k] {
 				t.Errorf("%s: %v; want %v", tc.name, got, tc.want)
@@ -147,9 +150,9 @@ func TestCleanEigenvalues(t *testing.T) {
 // rule) the p acoustic modes at Γ and at its images are exactly 0 on every
 // output path, none negative, and Stability's lowest frequency is 0.
 func TestExamplesZeroAtGamma(t *testing.T) {
-	for _, name := range exampleNames(t) {
+	for _, name := range testmodels.Names(t) {
 		t.Run(name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, name))
+			m := testmodels.Compile(t, testmodels.Load(t, name))
 			p := m.Polarizations()
 			check := func(where string, f []float64) {
 				t.Helper()
@@ -170,15 +173,15 @@ func TestExamplesZeroAtGamma(t *testing.T) {
 			check("FrequenciesTHz(image of Γ)", m.FrequenciesTHz(img))
 			f, _ := m.ModesAt([3]float64{})
 			check("ModesAt", f)
-			check("Point", m.Point([3]float64{}, ModeOptions{Velocities: true}).FreqTHz)
-			g := modesOn(t, m, forDim(mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, m.Dim()), GridOptions{})
+			check("Point", m.Point([3]float64{}, physics.ModeOptions{Velocities: true}).FreqTHz)
+			g := testmodels.Modes(t, m, forDim(mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, m.Dim()), physics.GridOptions{})
 			check("GridModes", g.FreqTHz[:g.NModes])
-			path, err := m.Dispersion(specCtx(t), []PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, PathOptions{Points: 3})
+			path, err := m.Dispersion(testmodels.Ctx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5}, HasQ: true}}, physics.PathOptions{Points: 3})
 			if err != nil {
 				t.Fatal(err)
 			}
 			check("Dispersion", path[0].FreqTHz)
-			lo, _, stable, err := m.Stability(specCtx(t), 4)
+			lo, _, stable, err := m.Stability(testmodels.Ctx(t), 4)
 			if err != nil || !stable || lo != 0 {
 				t.Errorf("Stability: lowest %g THz, stable %v, err %v; want exactly 0, stable", lo, stable, err)
 			}
@@ -203,13 +206,13 @@ func forDim(g mesh.GridSpec, d int) mesh.GridSpec {
 // cancellation.
 func TestTinyStiffnessKept(t *testing.T) {
 	const k, gk, mass = 1.0, 1e-12, 10.0
-	c := &Crystal{Lattice: [][3]float64{{4, 0, 0}}, Polarizations: 1,
-		Sites: []Site{{Label: "A", MassAmu: mass, Frac: []float64{0}}, {Label: "B", MassAmu: mass, Frac: []float64{0.5}}},
-		Springs: []Spring{
+	c := &physics.Crystal{Lattice: [][3]float64{{4, 0, 0}}, Polarizations: 1,
+		Sites: []physics.Site{{Label: "A", MassAmu: mass, Frac: []float64{0}}, {Label: "B", MassAmu: mass, Frac: []float64{0.5}}},
+		Springs: []physics.Spring{
 			{From: 0, To: 1, Cell: []int{0}, KLong: k},
 			{From: 1, To: 0, Cell: []int{1}, KLong: gk},
 		}}
-	m := mustCompile(t, c)
+	m := testmodels.Compile(t, c)
 	for _, q := range []float64{0.5, 0.25, 0.1} {
 		cs := math.Cos(2 * math.Pi * q)
 		wp := (k+gk)/mass + math.Sqrt(k*k+gk*gk+2*k*gk*cs)/mass
@@ -217,17 +220,17 @@ func TestTinyStiffnessKept(t *testing.T) {
 		f := m.FrequenciesTHz([3]float64{q})
 		// Eigenvalue error ≈ ε‖D‖ ≈ 4e-17 against ω₋² ≥ 1.9e-14 (q = 0.1):
 		// 0.2 % at most, 0.1 % in frequency.
-		if want := math.Sqrt(wm) * NuUnitTHz; !(f[0] > 0) || !relClose(f[0], want, 1e-2) {
+		if want := math.Sqrt(wm) * physics.NuUnitTHz; !(f[0] > 0) || !relClose(f[0], want, 1e-2) {
 			t.Errorf("q=%v: acoustic %g THz; want %g THz (positive)", q, f[0], want)
 		}
-		if want := math.Sqrt(wp) * NuUnitTHz; !relClose(f[1], want, 1e-12) {
+		if want := math.Sqrt(wp) * physics.NuUnitTHz; !relClose(f[1], want, 1e-12) {
 			t.Errorf("q=%v: optical %g THz; want %g", q, f[1], want)
 		}
 	}
 	if wm := 2 * gk / mass; !(wm > 100*m.EigenTol()) {
 		t.Fatalf("the zone-boundary eigenvalue %g is not well above EigenTol %g; the test needs it to be", wm, m.EigenTol())
 	}
-	if _, _, stable, err := m.Stability(specCtx(t), 16); err != nil || !stable {
+	if _, _, stable, err := m.Stability(testmodels.Ctx(t), 16); err != nil || !stable {
 		t.Errorf("Stability: stable %v, err %v", stable, err)
 	}
 }

@@ -1,6 +1,6 @@
 // Invariances of the dynamical matrix and the spectrum.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -9,6 +9,9 @@ import (
 	"math/rand/v2"
 	"sort"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/eigen"
 	"github.com/materials-lab/modegrid/physics/lattice"
@@ -19,14 +22,14 @@ import (
 // energy; Born & Huang §23, common practice), to 1e-12 of the largest
 // zone-boundary eigenvalue, and no others.
 func TestZeroModesAtGamma(t *testing.T) {
-	for _, name := range exampleNames(t) {
+	for _, name := range testmodels.Names(t) {
 		t.Run(name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, name))
+			m := testmodels.Compile(t, testmodels.Load(t, name))
 			vals, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{}, nil), m.ModeCount(), false)
 			// Scale: the largest eigenvalue at the zone boundary (at Γ a
 			// one-site model has nothing but zeros).
 			edge, _ := eigen.Hermitian(m.DynamicalMatrix([3]float64{0.5, 0.5 * float64(min(m.Dim()-1, 1)), 0}, nil), m.ModeCount(), false)
-			top := maxAbs(edge)
+			top := testmodels.MaxAbs(edge)
 			zeros := 0
 			for _, v := range vals {
 				if math.Abs(v) <= 1e-12*top {
@@ -43,14 +46,14 @@ func TestZeroModesAtGamma(t *testing.T) {
 // referenceD is D(q) straight from its definition over the directed terms,
 // with one exp per term (doc.go), as an independent check of the packed
 // assembly.
-func referenceD(m *Model, q [3]float64) []complex128 {
+func referenceD(m *physics.Model, q [3]float64) []complex128 {
 	n, p := m.ModeCount(), m.Polarizations()
 	d := make([]complex128, n*n)
-	for _, t := range m.terms {
-		ph := cmplx.Exp(complex(0, 2*math.Pi*(q[0]*float64(t.n[0])+q[1]*float64(t.n[1])+q[2]*float64(t.n[2]))))
+	for _, t := range m.Terms() {
+		ph := cmplx.Exp(complex(0, 2*math.Pi*(q[0]*float64(t.N[0])+q[1]*float64(t.N[1])+q[2]*float64(t.N[2]))))
 		for a := 0; a < p; a++ {
 			for b := 0; b < p; b++ {
-				d[(t.i*p+a)*n+t.j*p+b] += complex(t.phi[3*a+b], 0) * ph
+				d[(t.I*p+a)*n+t.J*p+b] += complex(t.Phi[3*a+b], 0) * ph
 			}
 		}
 	}
@@ -63,11 +66,11 @@ func referenceD(m *Model, q [3]float64) []complex128 {
 // 64-site supercell at random q.
 func TestDynamicalMatrixHermitian(t *testing.T) {
 	rng := rand.New(rand.NewPCG(4, 4))
-	models := map[string]*Model{}
-	for _, name := range exampleNames(t) {
-		models[name] = mustCompile(t, loadExample(t, name))
+	models := map[string]*physics.Model{}
+	for _, name := range testmodels.Names(t) {
+		models[name] = testmodels.Compile(t, testmodels.Load(t, name))
 	}
-	models["64-site cube"] = mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	models["64-site cube"] = testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	for name, m := range models {
 		t.Run(name, func(t *testing.T) {
 			n := m.ModeCount()
@@ -107,7 +110,7 @@ func TestDynamicalMatrixGrad(t *testing.T) {
 	rng := rand.New(rand.NewPCG(6, 1))
 	for _, name := range []string{"rocksalt-like", "square-net", "diatomic-chain"} {
 		t.Run(name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, name))
+			m := testmodels.Compile(t, testmodels.Load(t, name))
 			n := m.ModeCount()
 			for _, q := range randomQs(rng, 3) {
 				for k := m.Dim(); k < 3; k++ {
@@ -118,7 +121,7 @@ func TestDynamicalMatrixGrad(t *testing.T) {
 				for a := 0; a < 3; a++ {
 					var dq [3]float64 // fractional change for a Cartesian step h along a
 					for k := 0; k < m.Dim(); k++ {
-						dq[k] = h * m.lattice[k][a] / (2 * math.Pi)
+						dq[k] = h * m.Lattice()[k][a] / (2 * math.Pi)
 					}
 					plus := m.DynamicalMatrix([3]float64{q[0] + dq[0], q[1] + dq[1], q[2] + dq[2]}, nil)
 					minus := m.DynamicalMatrix([3]float64{q[0] - dq[0], q[1] - dq[1], q[2] - dq[2]}, nil)
@@ -149,7 +152,7 @@ func TestDynamicalMatrixGrad(t *testing.T) {
 // q with M q ≡ Q (mod 1): the primitive wavevectors that fold onto Q of the
 // supercell a' = M a (common practice: a supercell's zone folds the
 // primitive zone det(M) times).
-func foldedSpectrum(m *Model, mt [3][3]int, Q [3]float64, det int) []float64 {
+func foldedSpectrum(m *physics.Model, mt [3][3]int, Q [3]float64, det int) []float64 {
 	var mf [3][3]float64
 	for i := 0; i < 3; i++ {
 		for j := 0; j < 3; j++ {
@@ -197,21 +200,21 @@ func TestDoubledCellFolding(t *testing.T) {
 	rng := rand.New(rand.NewPCG(8, 3))
 	cases := []struct {
 		name string
-		c    *Crystal
+		c    *physics.Crystal
 		m    [3][3]int
 		det  int
 	}{
-		{"chain doubled (springs)", loadExample(t, "chain"), [3][3]int{{2}}, 2},
-		{"chain tripled (springs)", loadExample(t, "chain"), [3][3]int{{3}}, 3},
+		{"chain doubled (springs)", testmodels.Load(t, "chain"), [3][3]int{{2}}, 2},
+		{"chain tripled (springs)", testmodels.Load(t, "chain"), [3][3]int{{3}}, 3},
 		{"two-site chain doubled (springs and blocks)", twoSiteChain(), [3][3]int{{2}}, 2},
-		{"square net 2×1 (shells)", loadExample(t, "square-net"), [3][3]int{{2, 0}, {0, 1}}, 2},
-		{"fcc doubled along a₁ (shells)", loadExample(t, "fcc"), [3][3]int{{2, 0, 0}, {0, 1, 0}, {0, 0, 1}}, 2},
-		{"rock salt conventional cube (shells)", loadExample(t, "rocksalt-like"), conventionalCell, 4},
+		{"square net 2×1 (shells)", testmodels.Load(t, "square-net"), [3][3]int{{2, 0}, {0, 1}}, 2},
+		{"fcc doubled along a₁ (shells)", testmodels.Load(t, "fcc"), [3][3]int{{2, 0, 0}, {0, 1, 0}, {0, 0, 1}}, 2},
+		{"rock salt conventional cube (shells)", testmodels.Load(t, "rocksalt-like"), conventionalCell, 4},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			prim := mustCompile(t, tc.c)
-			super := mustCompile(t, supercell(t, tc.c, tc.m))
+			prim := testmodels.Compile(t, tc.c)
+			super := testmodels.Compile(t, testmodels.Supercell(t, tc.c, tc.m))
 			for _, Q := range randomQs(rng, 3) {
 				for k := prim.Dim(); k < 3; k++ {
 					Q[k] = 0
@@ -222,7 +225,7 @@ func TestDoubledCellFolding(t *testing.T) {
 					mt[k][k] = 1
 				}
 				want := foldedSpectrum(prim, mt, Q, tc.det)
-				if !closeSlices(got, want, 1e-10) {
+				if !testmodels.CloseSlices(got, want, 1e-10) {
 					t.Fatalf("Q=%v:\n supercell %v\n folded    %v", Q, got, want)
 				}
 			}
@@ -236,16 +239,16 @@ func TestDoubledCellFolding(t *testing.T) {
 // rotation, and — because those results change — changes the hash.
 func TestRigidRotation(t *testing.T) {
 	rng := rand.New(rand.NewPCG(10, 10))
-	c := loadExample(t, "rocksalt-like")
-	r := randomRotation(rng)
-	a, b := mustCompile(t, c), mustCompile(t, rotated(c, r))
+	c := testmodels.Load(t, "rocksalt-like")
+	r := testmodels.RandomRotation(rng)
+	a, b := testmodels.Compile(t, c), testmodels.Compile(t, testmodels.Rotated(c, r))
 	if a.Hash() == b.Hash() {
 		t.Error("hash unchanged under rotation, but eigenvectors and velocities rotate")
 	}
 	for _, q := range randomQs(rng, 4) {
-		pa := a.Point(q, ModeOptions{Eigenvectors: true, Velocities: true})
-		pb := b.Point(q, ModeOptions{Eigenvectors: true, Velocities: true})
-		if !closeSlices(pb.FreqTHz, pa.FreqTHz, 1e-12) {
+		pa := a.Point(q, physics.ModeOptions{Eigenvectors: true, Velocities: true})
+		pb := b.Point(q, physics.ModeOptions{Eigenvectors: true, Velocities: true})
+		if !testmodels.CloseSlices(pb.FreqTHz, pa.FreqTHz, 1e-12) {
 			t.Fatalf("q=%v: rotated %v; original %v", q, pb.FreqTHz, pa.FreqTHz)
 		}
 		n := a.ModeCount()
@@ -261,7 +264,7 @@ func TestRigidRotation(t *testing.T) {
 					re[x] = real(pa.Eigvecs[k*n+3*s+x])
 					im[x] = imag(pa.Eigvecs[k*n+3*s+x])
 				}
-				rr, ri := rotate3(r, re), rotate3(r, im)
+				rr, ri := testmodels.Rotate3(r, re), testmodels.Rotate3(r, im)
 				for x := 0; x < 3; x++ {
 					dot += cmplx.Conj(complex(rr[x], ri[x])) * pb.Eigvecs[k*n+3*s+x]
 				}
@@ -269,7 +272,7 @@ func TestRigidRotation(t *testing.T) {
 			if math.Abs(cmplx.Abs(dot)-1) > 1e-9 {
 				t.Fatalf("q=%v mode %d: |⟨R e|e′⟩| = %v; want 1", q, k, cmplx.Abs(dot))
 			}
-			want := rotate3(r, pa.VelKmS[k])
+			want := testmodels.Rotate3(r, pa.VelKmS[k])
 			for x := 0; x < 3; x++ {
 				if math.Abs(pb.VelKmS[k][x]-want[x]) > 1e-9 {
 					t.Fatalf("q=%v mode %d: velocity %v; want R v = %v", q, k, pb.VelKmS[k], want)
@@ -284,16 +287,16 @@ func TestRigidRotation(t *testing.T) {
 // per-site results are reordered.
 func TestSitePermutation(t *testing.T) {
 	rng := rand.New(rand.NewPCG(12, 1))
-	c := supercell(t, loadExample(t, "rocksalt-like"), conventionalCell)
+	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
 	perm := rng.Perm(len(c.Sites))
-	a, b := mustCompile(t, c), mustCompile(t, permutedSites(c, perm))
+	a, b := testmodels.Compile(t, c), testmodels.Compile(t, testmodels.PermutedSites(c, perm))
 	if a.Hash() == b.Hash() {
 		t.Error("hash unchanged under site permutation, but per-site results are reordered")
 	}
 	for _, q := range randomQs(rng, 3) {
 		fa, va := a.ModesAt(q)
 		fb, vb := b.ModesAt(q)
-		if !closeSlices(fb, fa, 1e-12) {
+		if !testmodels.CloseSlices(fb, fa, 1e-12) {
 			t.Fatalf("q=%v: permuted %v; original %v", q, fb, fa)
 		}
 		n := a.ModeCount()
@@ -320,8 +323,8 @@ func TestSitePermutation(t *testing.T) {
 // same float64; see TestHashUnitConversion).
 func TestSpringPermutationAndUnits(t *testing.T) {
 	rng := rand.New(rand.NewPCG(14, 2))
-	for _, c := range []*Crystal{twoSiteChain(), loadExample(t, "rocksalt-like"), supercell(t, twoSiteChain(), [3][3]int{{3}})} {
-		shuffled := cloneCrystal(c)
+	for _, c := range []*physics.Crystal{twoSiteChain(), testmodels.Load(t, "rocksalt-like"), testmodels.Supercell(t, twoSiteChain(), [3][3]int{{3}})} {
+		shuffled := testmodels.Clone(c)
 		rng.Shuffle(len(shuffled.Springs), func(i, j int) {
 			shuffled.Springs[i], shuffled.Springs[j] = shuffled.Springs[j], shuffled.Springs[i]
 		})
@@ -331,9 +334,9 @@ func TestSpringPermutationAndUnits(t *testing.T) {
 		rng.Shuffle(len(shuffled.Blocks), func(i, j int) {
 			shuffled.Blocks[i], shuffled.Blocks[j] = shuffled.Blocks[j], shuffled.Blocks[i]
 		})
-		ref := mustCompile(t, c)
-		for name, v := range map[string]*Crystal{"shuffled": shuffled, "N/m": inNPerM(c), "N/m shuffled": inNPerM(shuffled)} {
-			m := mustCompile(t, v)
+		ref := testmodels.Compile(t, c)
+		for name, v := range map[string]*physics.Crystal{"shuffled": shuffled, "N/m": testmodels.InNPerM(c), "N/m shuffled": testmodels.InNPerM(shuffled)} {
+			m := testmodels.Compile(t, v)
 			if m.Hash() != ref.Hash() {
 				t.Errorf("%s: hash changed", name)
 			}
@@ -341,7 +344,7 @@ func TestSpringPermutationAndUnits(t *testing.T) {
 				for k := m.Dim(); k < 3; k++ {
 					q[k] = 0
 				}
-				if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSlices(got, want, 1e-12) {
+				if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !testmodels.CloseSlices(got, want, 1e-12) {
 					t.Errorf("%s q=%v: %v; want %v", name, q, got, want)
 				}
 			}
@@ -355,22 +358,22 @@ func TestSpringPermutationAndUnits(t *testing.T) {
 // (only their symmetric part enters), a zero spring added, zero lattice
 // components and positions spelled −0, and one shell replaced by its
 // explicit springs.
-func respell(t *testing.T, rng *rand.Rand, c *Crystal) *Crystal {
+func respell(t *testing.T, rng *rand.Rand, c *physics.Crystal) *physics.Crystal {
 	t.Helper()
-	out := cloneCrystal(c)
+	out := testmodels.Clone(c)
 	if len(out.Shells) > 0 {
 		k := rng.IntN(len(out.Shells))
 		sh := out.Shells[k]
-		bonds, _, err := mustCompile(t, c).findShell(context.Background(), sh, Limits{}.withDefaults())
+		bonds, err := testmodels.Compile(t, c).ShellBonds(context.Background(), sh)
 		if err != nil {
 			t.Fatal(err)
 		}
 		out.Shells = append(out.Shells[:k:k], out.Shells[k+1:]...)
 		for _, b := range bonds {
-			out.Springs = append(out.Springs, Spring{From: b.i, To: b.j, Cell: append([]int(nil), b.n[:len(c.Lattice)]...), KLong: sh.KLong, KTrans: sh.KTrans})
+			out.Springs = append(out.Springs, physics.Spring{From: b.From, To: b.To, Cell: append([]int(nil), b.N[:len(c.Lattice)]...), KLong: sh.KLong, KTrans: sh.KTrans})
 		}
 	}
-	zero := Spring{From: 0, To: 0, Cell: make([]int, len(c.Lattice))}
+	zero := physics.Spring{From: 0, To: 0, Cell: make([]int, len(c.Lattice))}
 	zero.Cell[0] = 2
 	out.Springs = append(out.Springs, zero)
 	for k := range out.Springs {
@@ -387,7 +390,7 @@ func respell(t *testing.T, rng *rand.Rand, c *Crystal) *Crystal {
 			for x := range b.Cell {
 				b.Cell[x] = -b.Cell[x] // −0 is 0 for ints: on-site blocks stay on-site
 			}
-			tr := transpose9([9]float64(b.Phi))
+			tr := physics.Transpose9([9]float64(b.Phi))
 			b.Phi = tr[:]
 		}
 	}
@@ -414,17 +417,17 @@ func respell(t *testing.T, rng *rand.Rand, c *Crystal) *Crystal {
 
 // sameBits reports whether two compiled models hold bit-identical
 // force-constant terms (same blocks, same float64 bits).
-func sameBits(a, b *Model) bool {
-	if len(a.terms) != len(b.terms) {
+func sameBits(a, b *physics.Model) bool {
+	if len(a.Terms()) != len(b.Terms()) {
 		return false
 	}
-	for k, ta := range a.terms {
-		tb := b.terms[k]
-		if ta.i != tb.i || ta.j != tb.j || ta.n != tb.n {
+	for k, ta := range a.Terms() {
+		tb := b.Terms()[k]
+		if ta.I != tb.I || ta.J != tb.J || ta.N != tb.N {
 			return false
 		}
-		for x := range ta.phi {
-			if math.Float64bits(ta.phi[x]) != math.Float64bits(tb.phi[x]) {
+		for x := range ta.Phi {
+			if math.Float64bits(ta.Phi[x]) != math.Float64bits(tb.Phi[x]) {
 				return false
 			}
 		}
@@ -439,17 +442,17 @@ func sameBits(a, b *Model) bool {
 func TestRespelledModelsBitIdentical(t *testing.T) {
 	rng := rand.New(rand.NewPCG(31, 7))
 	names := []string{"every kind", "two-site chain ×3"}
-	models := map[string]*Crystal{"every kind": everyKind(), "two-site chain ×3": supercell(t, twoSiteChain(), [3][3]int{{3}})}
-	for _, name := range exampleNames(t) {
+	models := map[string]*physics.Crystal{"every kind": everyKind(), "two-site chain ×3": testmodels.Supercell(t, twoSiteChain(), [3][3]int{{3}})}
+	for _, name := range testmodels.Names(t) {
 		names = append(names, name)
-		models[name] = loadExample(t, name)
+		models[name] = testmodels.Load(t, name)
 	}
 	for _, name := range names {
 		c := models[name]
 		t.Run(name, func(t *testing.T) {
-			ref := mustCompile(t, c)
+			ref := testmodels.Compile(t, c)
 			for trial := 0; trial < 4; trial++ {
-				m := mustCompile(t, respell(t, rng, c))
+				m := testmodels.Compile(t, respell(t, rng, c))
 				if !sameBits(m, ref) {
 					t.Fatalf("trial %d: compiled terms differ", trial)
 				}
@@ -476,24 +479,28 @@ func TestRespelledModelsBitIdentical(t *testing.T) {
 // Φ(0j; −n i) equal to its transpose bit for bit, and every on-site block
 // is symmetric bit for bit, so D(q) is exactly Hermitian.
 func TestReverseBlocksExact(t *testing.T) {
-	models := map[string]*Crystal{"every kind": everyKind()}
-	for _, name := range exampleNames(t) {
-		models[name] = loadExample(t, name)
+	models := map[string]*physics.Crystal{"every kind": everyKind()}
+	for _, name := range testmodels.Names(t) {
+		models[name] = testmodels.Load(t, name)
 	}
 	for name, c := range models {
-		m := mustCompile(t, c)
-		index := map[fcKey]term{}
-		for _, tm := range m.terms {
-			index[fcKey{tm.i, tm.j, tm.n}] = tm
+		m := testmodels.Compile(t, c)
+		type key struct {
+			i, j int
+			n    [3]int
 		}
-		for _, tm := range m.terms {
-			rev, ok := index[fcKey{tm.j, tm.i, neg3(tm.n)}]
+		index := map[key]physics.Term{}
+		for _, tm := range m.Terms() {
+			index[key{tm.I, tm.J, tm.N}] = tm
+		}
+		for _, tm := range m.Terms() {
+			rev, ok := index[key{tm.J, tm.I, physics.Neg3(tm.N)}]
 			if !ok {
-				t.Errorf("%s: block (%d, %d, %v) has no reverse", name, tm.i, tm.j, tm.n)
+				t.Errorf("%s: block (%d, %d, %v) has no reverse", name, tm.I, tm.J, tm.N)
 				continue
 			}
-			if transpose9(rev.phi) != tm.phi {
-				t.Errorf("%s: block (%d, %d, %v) is not the transpose of its reverse: %v vs %v", name, tm.i, tm.j, tm.n, tm.phi, transpose9(rev.phi))
+			if physics.Transpose9(rev.Phi) != tm.Phi {
+				t.Errorf("%s: block (%d, %d, %v) is not the transpose of its reverse: %v vs %v", name, tm.I, tm.J, tm.N, tm.Phi, physics.Transpose9(rev.Phi))
 			}
 		}
 	}

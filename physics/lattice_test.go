@@ -1,6 +1,6 @@
 // Tests of lattice-type recognition and the built-in standard points.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -8,14 +8,17 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
+
 	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // withLattice is a one-site crystal on the given lattice (no springs: the
 // lattice type needs none).
-func withLattice(vecs ...[3]float64) *Model {
-	c := &Crystal{Lattice: vecs, Sites: []Site{{Label: "A", MassAmu: 1, Frac: make([]float64, len(vecs))}}}
-	m, err := Compile(context.Background(), c, Options{})
+func withLattice(vecs ...[3]float64) *physics.Model {
+	c := &physics.Crystal{Lattice: vecs, Sites: []physics.Site{{Label: "A", MassAmu: 1, Frac: make([]float64, len(vecs))}}}
+	m, err := physics.Compile(context.Background(), c, physics.Options{})
 	if err != nil {
 		panic(err)
 	}
@@ -70,7 +73,7 @@ func TestStandardPointsSetting(t *testing.T) {
 				if !ok {
 					t.Fatalf("no point %s in %v", p.label, std)
 				}
-				got := m.cartQ(q)
+				got := m.CartQ(q)
 				for x := 0; x < 3; x++ {
 					if math.Abs(got[x]-p.cart[x]*2*math.Pi/a) > 1e-12 {
 						t.Errorf("%s = %v (frac %v); want %v·2π/a", p.label, got, q, p.cart)
@@ -85,7 +88,7 @@ func TestStandardPointsSetting(t *testing.T) {
 	}
 	// The fcc example is in the standard setting: X and L are the paper's
 	// numbers exactly.
-	m := mustCompile(t, loadExample(t, "fcc"))
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	if x, l := m.StandardPoints()["X"], m.StandardPoints()["L"]; x != [3]float64{0.5, 0, 0.5} || l != [3]float64{0.5, 0.5, 0.5} {
 		t.Errorf("fcc example X = %v, L = %v", x, l)
 	}
@@ -97,24 +100,24 @@ func TestStandardPointsSetting(t *testing.T) {
 // the NN model, whose closed forms are in TestFCCNearestNeighbour*).
 func TestStandardPointsAnySetting(t *testing.T) {
 	rng := rand.New(rand.NewPCG(43, 3))
-	c := loadExample(t, "fcc")
-	ref := mustCompile(t, c)
-	rot := mustCompile(t, rotated(c, randomRotation(rng)))
+	c := testmodels.Load(t, "fcc")
+	ref := testmodels.Compile(t, c)
+	rot := testmodels.Compile(t, testmodels.Rotated(c, testmodels.RandomRotation(rng)))
 	for label, q := range ref.StandardPoints() {
 		if got := rot.StandardPoints()[label]; math.Abs(got[0]-q[0])+math.Abs(got[1]-q[1])+math.Abs(got[2]-q[2]) > 1e-9 {
 			t.Errorf("rotated %s = %v; want %v", label, got, q)
 		}
 	}
-	other := cloneCrystal(c)
+	other := testmodels.Clone(c)
 	other.Lattice = [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 4, 2}}
-	om := mustCompile(t, other)
+	om := testmodels.Compile(t, other)
 	if om.LatticeType() != lattice.FCC {
 		t.Fatalf("type %q", om.LatticeType())
 	}
 	for _, label := range []string{"X", "L", "W", "K", "U"} {
 		got := om.FrequenciesTHz(om.StandardPoints()[label])
 		want := ref.FrequenciesTHz(ref.StandardPoints()[label])
-		if !closeSlices(got, want, 1e-10) {
+		if !testmodels.CloseSlices(got, want, 1e-10) {
 			t.Errorf("%s in another basis: %v; want %v", label, got, want)
 		}
 	}

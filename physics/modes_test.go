@@ -1,12 +1,15 @@
 // Closed-form spectra: chains, fcc, square net, blocks, sum rule,
 // imaginary modes and units.
 
-package physics
+package physics_test
 
 import (
 	"context"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 )
@@ -19,12 +22,12 @@ func relClose(got, want, tol float64) bool {
 // (Kittel, Introduction to Solid State Physics, ch. 4; Ashcroft & Mermin,
 // Solid State Physics, ch. 22). With q fractional, qa/2 = π q1.
 func TestMonatomicChainDispersion(t *testing.T) {
-	c := loadExample(t, "chain")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "chain")
+	m := testmodels.Compile(t, c)
 	K, M := c.Springs[0].KLong, c.Sites[0].MassAmu
 	for _, q1 := range []float64{0.05, 0.1, 0.25, 0.3, 0.5, -0.4} {
 		got := m.FrequenciesTHz([3]float64{q1})[0]
-		want := 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q1)) * NuUnitTHz
+		want := 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q1)) * physics.NuUnitTHz
 		if !relClose(got, want, 1e-9) {
 			t.Errorf("q=%v: got %.12g THz; want %.12g", q1, got, want)
 		}
@@ -34,11 +37,11 @@ func TestMonatomicChainDispersion(t *testing.T) {
 // TestUnitFactor checks sqrt(eV/Å²/amu) = 15.6333042 THz (sqrt(e·10²⁰/m_u)/2π
 // with CODATA 2018 e and m_u; 1e-7 relative covers the 2014–2022 editions).
 func TestUnitFactor(t *testing.T) {
-	if !relClose(NuUnitTHz, 15.6333042, 1e-7) {
-		t.Errorf("NuUnitTHz = %.10g; want 15.6333042", NuUnitTHz)
+	if !relClose(physics.NuUnitTHz, 15.6333042, 1e-7) {
+		t.Errorf("NuUnitTHz = %.10g; want 15.6333042", physics.NuUnitTHz)
 	}
-	if !relClose(OmegaUnitRadPerS, 9.82269475025e13, 1e-9) {
-		t.Errorf("OmegaUnitRadPerS = %.12g; want 9.82269475025e13", OmegaUnitRadPerS)
+	if !relClose(physics.OmegaUnitRadPerS, 9.82269475025e13, 1e-9) {
+		t.Errorf("OmegaUnitRadPerS = %.12g; want 9.82269475025e13", physics.OmegaUnitRadPerS)
 	}
 }
 
@@ -46,8 +49,8 @@ func TestUnitFactor(t *testing.T) {
 // at X ω²M/K = 8, 4, 4 and at L 8, 2, 2 (derived from the standard NN
 // dynamical matrix, Ashcroft & Mermin ch. 22 problem 22.2).
 func TestFCCNearestNeighbour(t *testing.T) {
-	c := loadExample(t, "fcc")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "fcc")
+	m := testmodels.Compile(t, c)
 	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
 	cases := []struct {
 		name string
@@ -60,7 +63,7 @@ func TestFCCNearestNeighbour(t *testing.T) {
 	for _, tc := range cases {
 		got := m.FrequenciesTHz(tc.q)
 		for k, w := range tc.want {
-			want := math.Sqrt(w*K/M) * NuUnitTHz
+			want := math.Sqrt(w*K/M) * physics.NuUnitTHz
 			if !relClose(got[k], want, 1e-9) {
 				t.Errorf("%s branch %d: got %.10g THz; want %.10g", tc.name, k+1, got[k], want)
 			}
@@ -73,8 +76,8 @@ func TestFCCNearestNeighbour(t *testing.T) {
 // and sqrt(2K/m) (optical bottom), and zero at Γ (Kittel, Introduction to
 // Solid State Physics, ch. 4, diatomic lattice).
 func TestDiatomicChain(t *testing.T) {
-	c := loadExample(t, "diatomic-chain")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "diatomic-chain")
+	m := testmodels.Compile(t, c)
 	K := c.Springs[0].KLong
 	lo, hi := c.Sites[0].MassAmu, c.Sites[1].MassAmu // 20 and 50 amu
 	cases := []struct {
@@ -89,8 +92,8 @@ func TestDiatomicChain(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			got := m.FrequenciesTHz([3]float64{tc.q})
 			for k, w := range tc.want {
-				want := math.Sqrt(w*K) * NuUnitTHz
-				if math.Abs(got[k]-want) > 1e-9*NuUnitTHz {
+				want := math.Sqrt(w*K) * physics.NuUnitTHz
+				if math.Abs(got[k]-want) > 1e-9*physics.NuUnitTHz {
 					t.Errorf("branch %d: %.12g THz; want %.12g", k+1, got[k], want)
 				}
 			}
@@ -105,7 +108,7 @@ func TestDiatomicChain(t *testing.T) {
 		root := math.Sqrt(mu*mu - 4*s*s/(lo*hi))
 		got := m.FrequenciesTHz([3]float64{q})
 		for k, w2 := range []float64{K * (mu - root), K * (mu + root)} {
-			if want := math.Sqrt(w2) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+			if want := math.Sqrt(w2) * physics.NuUnitTHz; !relClose(got[k], want, 1e-10) {
 				t.Errorf("q=%v branch %d: %.12g; want %.12g", q, k+1, got[k], want)
 			}
 		}
@@ -119,8 +122,8 @@ func TestDiatomicChain(t *testing.T) {
 // ch. 22). Fractional coordinates of W and K are those of Setyawan &
 // Curtarolo (2010) for the fcc primitive cell of the example.
 func TestFCCNearestNeighbourWK(t *testing.T) {
-	c := loadExample(t, "fcc")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "fcc")
+	m := testmodels.Compile(t, c)
 	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
 	r2 := math.Sqrt2
 	for _, tc := range []struct {
@@ -133,7 +136,7 @@ func TestFCCNearestNeighbourWK(t *testing.T) {
 	} {
 		got := m.FrequenciesTHz(tc.q)
 		for k, w := range tc.want {
-			if want := math.Sqrt(w*K/M) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+			if want := math.Sqrt(w*K/M) * physics.NuUnitTHz; !relClose(got[k], want, 1e-10) {
 				t.Errorf("%s branch %d: %.12g THz; want %.12g", tc.name, k+1, got[k], want)
 			}
 		}
@@ -146,8 +149,8 @@ func TestFCCNearestNeighbourWK(t *testing.T) {
 // from D = Σ_δ k_δ (1 − cos q·δ) δ̂δ̂ᵀ/M: at X = (π/a, 0) the NN bonds along
 // x give 4K on xx, the four diagonals 2K′ on each of xx and yy).
 func TestSquareNet(t *testing.T) {
-	c := loadExample(t, "square-net")
-	m := mustCompile(t, c)
+	c := testmodels.Load(t, "square-net")
+	m := testmodels.Compile(t, c)
 	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
 	if c.Shells[1].KLong != K/2 {
 		t.Fatalf("example changed: K′ = %v, want K/2", c.Shells[1].KLong)
@@ -162,20 +165,20 @@ func TestSquareNet(t *testing.T) {
 	} {
 		got := m.FrequenciesTHz(tc.q)
 		for k, w := range tc.want {
-			if want := math.Sqrt(w*K/M) * NuUnitTHz; !relClose(got[k], want, 1e-10) {
+			if want := math.Sqrt(w*K/M) * physics.NuUnitTHz; !relClose(got[k], want, 1e-10) {
 				t.Errorf("%s branch %d: %.12g THz; want %.12g", tc.name, k+1, got[k], want)
 			}
 		}
 	}
 	c.Shells = c.Shells[:1] // K′ = 0
-	m = mustCompile(t, c)
+	m = testmodels.Compile(t, c)
 	for _, x := range []float64{0.1, 0.25, 0.4, 0.5} {
 		got := m.FrequenciesTHz([3]float64{x, 0, 0})
 		if math.Abs(got[0]) > 1e-6 {
 			t.Errorf("K′=0, q=(%v,0): transverse %.3g THz; want 0", x, got[0])
 		}
 		// Longitudinal: ω = 2 sqrt(K/M) |sin(πx)| (the chain along x).
-		if want := 2 * math.Sqrt(K/M) * math.Sin(math.Pi*x) * NuUnitTHz; !relClose(got[1], want, 1e-10) {
+		if want := 2 * math.Sqrt(K/M) * math.Sin(math.Pi*x) * physics.NuUnitTHz; !relClose(got[1], want, 1e-10) {
 			t.Errorf("K′=0, q=(%v,0): longitudinal %.12g; want %.12g", x, got[1], want)
 		}
 	}
@@ -203,25 +206,24 @@ func springBlock(r [3]float64, kl, kt float64) []float64 {
 // blocks (the spring blocks of its shells, common practice) has the same
 // spectrum as its shell form, and the sum rule builds the self terms.
 func TestBlocksEqualSprings(t *testing.T) {
-	c := loadExample(t, "rocksalt-like")
-	ref := mustCompile(t, c)
-	bc := &Crystal{Lattice: c.Lattice, Sites: c.Sites, ForceUnit: c.ForceUnit}
+	c := testmodels.Load(t, "rocksalt-like")
+	ref := testmodels.Compile(t, c)
+	bc := &physics.Crystal{Lattice: c.Lattice, Sites: c.Sites, ForceUnit: c.ForceUnit}
 	for _, sh := range c.Shells {
-		bonds, _, err := ref.findShell(context.Background(), sh, Limits{}.withDefaults())
+		bonds, err := ref.ShellBonds(context.Background(), sh)
 		if err != nil {
 			t.Fatal(err)
 		}
 		for _, b := range bonds {
-			r := lattice.Sub(lattice.Add(ref.pos[b.j], ref.latticeVec(b.n)), ref.pos[b.i])
-			bc.Blocks = append(bc.Blocks, Block{From: b.i, To: b.j, Cell: b.n[:], Phi: springBlock(r, sh.KLong, sh.KTrans)})
+			bc.Blocks = append(bc.Blocks, physics.Block{From: b.From, To: b.To, Cell: b.N[:], Phi: springBlock(b.R, sh.KLong, sh.KTrans)})
 		}
 	}
-	m := mustCompile(t, bc)
+	m := testmodels.Compile(t, bc)
 	if m.SumRuleViolation() != 0 {
 		t.Errorf("no on-site block given: violation %v; want 0", m.SumRuleViolation())
 	}
 	for _, q := range [][3]float64{{0, 0, 0}, {0.1, 0.2, 0.3}, {0.5, 0.5, 0.5}, {0.5, 0, 0.5}} {
-		if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !closeSpectra(got, want, 1e-12) {
+		if got, want := m.FrequenciesTHz(q), ref.FrequenciesTHz(q); !testmodels.CloseSpectra(got, want, 1e-12) {
 			t.Errorf("q=%v: blocks %v; springs %v", q, got, want)
 		}
 	}
@@ -233,25 +235,25 @@ func TestBlocksEqualSprings(t *testing.T) {
 // component of that sum, moves the acoustic modes at Γ off zero, and is
 // replaced when enforcement is asked.
 func TestSumRuleReportAndEnforcement(t *testing.T) {
-	c := &Crystal{
+	c := &physics.Crystal{
 		Lattice:       [][3]float64{{3, 0, 0}},
 		Polarizations: 1,
-		Sites:         []Site{{Label: "A", MassAmu: 12, Frac: []float64{0}}},
-		Blocks: []Block{
+		Sites:         []physics.Site{{Label: "A", MassAmu: 12, Frac: []float64{0}}},
+		Blocks: []physics.Block{
 			{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-1.5, 0, 0, 0, 0, 0, 0, 0, 0}},
 			// Correct on-site value 2·1.5 = 3; given 3.2: violation 0.2.
 			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{3.2, 0, 0, 0, 0, 0, 0, 0, 0}},
 		},
 	}
-	plain := mustCompile(t, c)
+	plain := testmodels.Compile(t, c)
 	if v := plain.SumRuleViolation(); math.Abs(v-0.2) > 1e-12 {
 		t.Errorf("violation %v eV/Å²; want 0.2", v)
 	}
 	// Γ: ω² = 0.2/M.
-	if got, want := plain.FrequenciesTHz([3]float64{})[0], math.Sqrt(0.2/12)*NuUnitTHz; !relClose(got, want, 1e-10) {
+	if got, want := plain.FrequenciesTHz([3]float64{})[0], math.Sqrt(0.2/12)*physics.NuUnitTHz; !relClose(got, want, 1e-10) {
 		t.Errorf("unenforced Γ: %v THz; want %v", got, want)
 	}
-	enforced, err := Compile(context.Background(), c, Options{EnforceSumRule: true})
+	enforced, err := physics.Compile(context.Background(), c, physics.Options{EnforceSumRule: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -262,7 +264,7 @@ func TestSumRuleReportAndEnforcement(t *testing.T) {
 		t.Errorf("enforced Γ: %v THz; want 0", got)
 	}
 	// Enforced spectrum is the chain's: 2 sqrt(K/M)|sin(πq)| (Kittel ch. 4).
-	if got, want := enforced.FrequenciesTHz([3]float64{0.3})[0], 2*math.Sqrt(1.5/12)*math.Sin(0.3*math.Pi)*NuUnitTHz; !relClose(got, want, 1e-10) {
+	if got, want := enforced.FrequenciesTHz([3]float64{0.3})[0], 2*math.Sqrt(1.5/12)*math.Sin(0.3*math.Pi)*physics.NuUnitTHz; !relClose(got, want, 1e-10) {
 		t.Errorf("enforced q=0.3: %v; want %v", got, want)
 	}
 	if plain.Hash() == enforced.Hash() {
@@ -273,22 +275,22 @@ func TestSumRuleReportAndEnforcement(t *testing.T) {
 // TestImaginaryModes: a negative spring gives ω² < 0, reported as a
 // negative frequency −sqrt(|ω²|) (common practice) with the point flagged.
 func TestImaginaryModes(t *testing.T) {
-	c := &Crystal{
+	c := &physics.Crystal{
 		Lattice:       [][3]float64{{2, 0, 0}},
 		Polarizations: 1,
-		Sites:         []Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
-		Springs: []Spring{
+		Sites:         []physics.Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
+		Springs: []physics.Spring{
 			{From: 0, To: 0, Cell: []int{1}, KLong: 1},
 			{From: 0, To: 0, Cell: []int{2}, KLong: -0.5},
 		},
 	}
-	m := mustCompile(t, c)
+	m := testmodels.Compile(t, c)
 	// ω² = (4/M)(K₁ sin²(πq) + K₂ sin²(2πq)) for first and second
 	// neighbours (Kittel ch. 4, problem on second-neighbour forces).
 	for _, q := range []float64{0.05, 0.2, 0.5} {
 		w2 := 4 / 4.0 * (1*math.Pow(math.Sin(math.Pi*q), 2) - 0.5*math.Pow(math.Sin(2*math.Pi*q), 2))
-		want := math.Copysign(math.Sqrt(math.Abs(w2)), w2) * NuUnitTHz
-		pm := m.Point([3]float64{q}, ModeOptions{})
+		want := math.Copysign(math.Sqrt(math.Abs(w2)), w2) * physics.NuUnitTHz
+		pm := m.Point([3]float64{q}, physics.ModeOptions{})
 		if !relClose(pm.FreqTHz[0], want, 1e-10) {
 			t.Errorf("q=%v: %.12g THz; want %.12g", q, pm.FreqTHz[0], want)
 		}
@@ -304,10 +306,10 @@ func TestImaginaryModes(t *testing.T) {
 func TestFrequencyUnits(t *testing.T) {
 	for _, tc := range []struct {
 		name string
-		u    Unit
+		u    physics.Unit
 		want float64
 	}{
-		{"THz", THz, 1}, {"meV", MeV, 4.135667697}, {"cm-1", CM1, 33.35640952}, {"rad/s", RadPerS, 2 * math.Pi * 1e12},
+		{"THz", physics.THz, 1}, {"meV", physics.MeV, 4.135667697}, {"cm-1", physics.CM1, 33.35640952}, {"rad/s", physics.RadPerS, 2 * math.Pi * 1e12},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			if got := tc.u.FromTHz(1); !relClose(got, tc.want, 1e-9) {

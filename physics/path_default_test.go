@@ -1,12 +1,15 @@
 // Tests of the default paths: every recognised lattice type of every
 // dimensionality has one, through built-in points only, and it samples.
 
-package physics
+package physics_test
 
 import (
 	"context"
 	"math"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 )
@@ -58,7 +61,7 @@ func TestDefaultPathEveryLatticeType(t *testing.T) {
 					t.Errorf("built-in point %s is not on the default path %v", label, path)
 				}
 			}
-			s, err := m.Dispersion(context.Background(), path, PathOptions{Points: 4 * len(path)})
+			s, err := m.Dispersion(context.Background(), path, physics.PathOptions{Points: 4 * len(path)})
 			if err != nil {
 				t.Fatalf("Dispersion of the default path: %v", err)
 			}
@@ -88,10 +91,10 @@ func TestCentredRectObliquePoints(t *testing.T) {
 			if label == "G" {
 				continue
 			}
-			qc := m.cartQ(q)
+			qc := m.CartQ(q)
 			for h := -3; h <= 3; h++ {
 				for k := -3; k <= 3; k++ {
-					g := m.cartQ([3]float64{float64(h), float64(k), 0})
+					g := m.CartQ([3]float64{float64(h), float64(k), 0})
 					if lattice.Dot(qc, g) > lattice.Dot(g, g)/2*(1+1e-12) {
 						t.Errorf("%v %s = %v is outside the first zone (beyond the bisector of (%d,%d))", vecs, label, q, h, k)
 					}
@@ -108,12 +111,12 @@ func TestCentredRectObliquePoints(t *testing.T) {
 
 // withSpringLattice is a one-site crystal with nearest-neighbour springs on
 // the given lattice, so that it has frequencies to sample.
-func withSpringLattice(t *testing.T, vecs ...[3]float64) *Model {
+func withSpringLattice(t *testing.T, vecs ...[3]float64) *physics.Model {
 	t.Helper()
-	c := &Crystal{
+	c := &physics.Crystal{
 		Lattice: vecs,
-		Sites:   []Site{{Label: "A", MassAmu: 12, Frac: make([]float64, len(vecs))}},
-		Shells:  []Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1, KTrans: 0.2}},
+		Sites:   []physics.Site{{Label: "A", MassAmu: 12, Frac: make([]float64, len(vecs))}},
+		Shells:  []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1, KTrans: 0.2}},
 	}
-	return mustCompile(t, c)
+	return testmodels.Compile(t, c)
 }

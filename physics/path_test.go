@@ -23,7 +23,7 @@ func TestDispersionFCC(t *testing.T) {
 	K, M := c.Shells[0].KLong, c.Sites[0].MassAmu
 	a := 2 * c.Lattice[0][1]
 	corners := []physics.PathCorner{{Label: "G"}, {Label: "X"}, {Label: "W"}, {Label: "K"}, {Label: "Γ"}, {Label: "L"}}
-	s, err := m.Dispersion(physics.TestCtx(t), corners, physics.PathOptions{Points: 120})
+	s, err := m.Dispersion(testCtx(t), corners, physics.PathOptions{Points: 120})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,7 +74,7 @@ func TestDispersionSpacingAndBreaks(t *testing.T) {
 		{Label: "M", BreakBefore: true}, {Label: "mid", Q: [3]float64{0.25, 0.25, 0}, HasQ: true},
 	}
 	const sp = 0.05
-	s, err := m.Dispersion(physics.TestCtx(t), corners, physics.PathOptions{SpacingInvA: sp})
+	s, err := m.Dispersion(testCtx(t), corners, physics.PathOptions{SpacingInvA: sp})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -126,8 +126,8 @@ func TestDispersionValidation(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := m.Dispersion(physics.TestCtx(t), tc.corners, tc.opt)
-			for _, v := range physics.ViolationsOf(t, err) {
+			_, err := m.Dispersion(testCtx(t), tc.corners, tc.opt)
+			for _, v := range violationsOf(t, err) {
 				if v.Field == tc.field && strings.Contains(v.Description, tc.want) {
 					return
 				}
@@ -139,18 +139,18 @@ func TestDispersionValidation(t *testing.T) {
 	obl := testmodels.Compile(t, &physics.Crystal{Lattice: [][3]float64{{3, 0, 0}, {1, 4, 0}}, Polarizations: 2,
 		Sites:  []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0}}},
 		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}}})
-	if _, err := obl.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5, 0, 0}, HasQ: true}}, physics.PathOptions{}); err != nil {
+	if _, err := obl.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0.5, 0, 0}, HasQ: true}}, physics.PathOptions{}); err != nil {
 		t.Errorf("Γ on an oblique net: %v", err)
 	}
 }
 
-// TestConnectedBranchesCross: the two uncoupled chains of physics.CrossingChains
+// TestConnectedBranchesCross: the two uncoupled chains of crossingChains
 // cross at q = 1/3; sorted frequencies swap branches there, connected ones
 // follow each chain's own dispersion ω_A = 2 sqrt(K/M)|sin πq|, ω_B =
 // 2 sqrt(K/M)|sin 2πq| (Kittel ch. 4) through the crossing, also when the
 // crossing is itself a sample.
 func TestConnectedBranchesCross(t *testing.T) {
-	c := physics.CrossingChains()
+	c := crossingChains()
 	m := testmodels.Compile(t, c)
 	K, M := c.Springs[0].KLong, c.Sites[0].MassAmu
 	wA := func(q float64) float64 { return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(math.Pi*q)) * physics.NuUnitTHz }
@@ -158,7 +158,7 @@ func TestConnectedBranchesCross(t *testing.T) {
 		return 2 * math.Sqrt(K/M) * math.Abs(math.Sin(2*math.Pi*q)) * physics.NuUnitTHz
 	}
 	for _, points := range []int{61, 64} { // 61: q = 1/3 is sample 20
-		s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points, FollowModes: true})
+		s, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points, FollowModes: true})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -174,7 +174,7 @@ func TestConnectedBranchesCross(t *testing.T) {
 				t.Fatalf("points=%d q=%.6f: branches %v; want A=%v B=%v", points, q, x.FreqTHz, wA(q), wB(q))
 			}
 		}
-		sorted, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points})
+		sorted, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: points})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -196,9 +196,9 @@ func TestConnectedBranchesCross(t *testing.T) {
 // Shares sum to 1 per branch everywhere, with and without following.
 func TestSiteWeightsDiatomicChain(t *testing.T) {
 	const m1, m2 = 20.0, 70.0 // our own example numbers
-	m := testmodels.Compile(t, physics.DiatomicChainK(5, m1, m2, 3, 3))
+	m := testmodels.Compile(t, diatomicChainK(5, m1, m2, 3, 3))
 	for _, follow := range []bool{false, true} {
-		s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11, SiteWeights: true, FollowModes: follow})
+		s, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11, SiteWeights: true, FollowModes: follow})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -225,7 +225,7 @@ func TestSiteWeightsDiatomicChain(t *testing.T) {
 			}
 		}
 	}
-	plain, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11})
+	plain, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 11})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -234,13 +234,13 @@ func TestSiteWeightsDiatomicChain(t *testing.T) {
 	}
 }
 
-// TestSiteWeightsFollowCrossing: the uncoupled chains of physics.CrossingChains
+// TestSiteWeightsFollowCrossing: the uncoupled chains of crossingChains
 // keep their motion on their own site; followed through the crossing
 // (which is itself a sample at 61 points), each branch stays wholly on one
 // site, where sorted samples would swap sites at q = 1/3.
 func TestSiteWeightsFollowCrossing(t *testing.T) {
-	m := testmodels.Compile(t, physics.CrossingChains())
-	s, err := m.Dispersion(physics.TestCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 61, FollowModes: true, SiteWeights: true})
+	m := testmodels.Compile(t, crossingChains())
+	s, err := m.Dispersion(testCtx(t), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 61, FollowModes: true, SiteWeights: true})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -5,7 +5,7 @@
 //
 //	go test -run TestProperty ./physics/... -args -props.n=500
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -16,6 +16,9 @@ import (
 	"math/rand/v2"
 	"strconv"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -72,8 +75,8 @@ func propSeeds() []uint64 {
 // propCase is one random model with the grid it is tested on.
 type propCase struct {
 	seed uint64
-	c    *Crystal
-	m    *Model
+	c    *physics.Crystal
+	m    *physics.Model
 	spec mesh.GridSpec
 }
 
@@ -104,7 +107,7 @@ func logUniform(rng *rand.Rand, lo, hi float64) float64 {
 // every bond forces q to be a reciprocal lattice vector. Half the models
 // are low-symmetry cells with explicit springs, half are high-symmetry
 // lattices with neighbour shells (which exercise the symmetry reduction).
-func randomProperCrystal(rng *rand.Rand) *Crystal {
+func randomProperCrystal(rng *rand.Rand) *physics.Crystal {
 	if rng.IntN(2) == 0 {
 		return randomSpringCrystal(rng)
 	}
@@ -114,10 +117,10 @@ func randomProperCrystal(rng *rand.Rand) *Crystal {
 // kRange is the range of spring constants, eV/Å²: six orders of magnitude.
 const kLo, kHi = 1e-5, 10.0
 
-func randomSpringCrystal(rng *rand.Rand) *Crystal {
+func randomSpringCrystal(rng *rand.Rand) *physics.Crystal {
 	d := 1 + rng.IntN(3)
 	n := 1 + rng.IntN(8)
-	c := &Crystal{Name: "random springs", Polarizations: 1 + rng.IntN(3)}
+	c := &physics.Crystal{Name: "random springs", Polarizations: 1 + rng.IntN(3)}
 	scale := math.Max(1, math.Pow(float64(n), 1/float64(d))/1.5)
 	for {
 		c.Lattice = c.Lattice[:0]
@@ -136,13 +139,13 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 	}
 	const minSepA = 0.3
 	for len(c.Sites) < n {
-		s := Site{Label: fmt.Sprintf("S%d", rng.IntN(3)), MassAmu: logUniform(rng, 1, 250), Frac: make([]float64, d)}
+		s := physics.Site{Label: fmt.Sprintf("S%d", rng.IntN(3)), MassAmu: logUniform(rng, 1, 250), Frac: make([]float64, d)}
 		for k := range s.Frac {
 			s.Frac[k] = rng.Float64()
 		}
 		c.Sites = append(c.Sites, s)
 		for j := 0; j < len(c.Sites)-1; j++ {
-			if siteSeparation(c, j, len(c.Sites)-1) < minSepA {
+			if physics.SiteSeparation(c, j, len(c.Sites)-1) < minSepA {
 				c.Sites = c.Sites[:len(c.Sites)-1]
 				break
 			}
@@ -169,7 +172,7 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 			return
 		}
 		seen[key] = true
-		s := Spring{From: from, To: to, Cell: cell, KLong: logUniform(rng, kLo, kHi)}
+		s := physics.Spring{From: from, To: to, Cell: cell, KLong: logUniform(rng, kLo, kHi)}
 		if rigid || rng.IntN(3) > 0 {
 			s.KTrans = logUniform(rng, kLo, kHi)
 		}
@@ -197,10 +200,10 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 	}
 	rng.Shuffle(len(c.Springs), func(i, j int) { c.Springs[i], c.Springs[j] = c.Springs[j], c.Springs[i] })
 	if rng.IntN(5) == 0 {
-		c.ForceUnit = NPerM
+		c.ForceUnit = physics.NPerM
 		for i := range c.Springs {
-			c.Springs[i].KLong *= EVPerA2InNPerM
-			c.Springs[i].KTrans *= EVPerA2InNPerM
+			c.Springs[i].KLong *= physics.EVPerA2InNPerM
+			c.Springs[i].KTrans *= physics.EVPerA2InNPerM
 		}
 	}
 	return c
@@ -211,7 +214,7 @@ func randomSpringCrystal(rng *rand.Rand) *Crystal {
 // B–B 1…3 and A–B 1, all with k∥, k⊥ > 0. Shells 1…3 of one label always
 // include bonds that generate the lattice for the shapes drawn here (the
 // tetragonal and hexagonal c lies within the third shell).
-func randomShellCrystal(rng *rand.Rand) *Crystal {
+func randomShellCrystal(rng *rand.Rand) *physics.Crystal {
 	a := 2 + 2*rng.Float64()
 	cOverA := 1.2 + 0.35*rng.Float64()
 	fam := []struct {
@@ -228,20 +231,20 @@ func randomShellCrystal(rng *rand.Rand) *Crystal {
 		{[][3]float64{{a, 0, 0}, {-a / 2, a * math.Sqrt(3) / 2, 0}, {0, 0, a * cOverA}}, []float64{1.0 / 3, 2.0 / 3, 0.5}},
 	}[rng.IntN(8)]
 	d := len(fam.lat)
-	c := &Crystal{Name: "random shells", Lattice: fam.lat, Polarizations: 1 + rng.IntN(3)}
-	c.Sites = append(c.Sites, Site{Label: "A", MassAmu: logUniform(rng, 1, 250), Frac: make([]float64, d)})
+	c := &physics.Crystal{Name: "random shells", Lattice: fam.lat, Polarizations: 1 + rng.IntN(3)}
+	c.Sites = append(c.Sites, physics.Site{Label: "A", MassAmu: logUniform(rng, 1, 250), Frac: make([]float64, d)})
 	labels := []string{"A"}
 	if rng.IntN(2) == 0 {
-		c.Sites = append(c.Sites, Site{Label: "B", MassAmu: logUniform(rng, 1, 250), Frac: fam.centre})
+		c.Sites = append(c.Sites, physics.Site{Label: "B", MassAmu: logUniform(rng, 1, 250), Frac: fam.centre})
 		labels = append(labels, "B")
 	}
 	for _, l := range labels {
 		for sh := 1; sh <= 3; sh++ {
-			c.Shells = append(c.Shells, Shell{FromLabel: l, ToLabel: l, Shell: sh, KLong: logUniform(rng, kLo, kHi), KTrans: logUniform(rng, kLo, kHi)})
+			c.Shells = append(c.Shells, physics.Shell{FromLabel: l, ToLabel: l, Shell: sh, KLong: logUniform(rng, kLo, kHi), KTrans: logUniform(rng, kLo, kHi)})
 		}
 	}
 	if len(labels) == 2 {
-		c.Shells = append(c.Shells, Shell{FromLabel: "A", ToLabel: "B", Shell: 1, KLong: logUniform(rng, kLo, kHi), KTrans: logUniform(rng, kLo, kHi)})
+		c.Shells = append(c.Shells, physics.Shell{FromLabel: "A", ToLabel: "B", Shell: 1, KLong: logUniform(rng, kLo, kHi), KTrans: logUniform(rng, kLo, kHi)})
 	}
 	return c
 }
@@ -275,7 +278,7 @@ func propMesh(rng *rand.Rand, d int) mesh.GridSpec {
 // tenth are skipped.
 func propCases(t *testing.T) []*propCase {
 	t.Helper()
-	ctx := specCtx(t)
+	ctx := testmodels.Ctx(t)
 	var out []*propCase
 	skipped := 0
 	seeds := propSeeds()
@@ -284,7 +287,7 @@ func propCases(t *testing.T) []*propCase {
 		rng := propRNG(seed)
 		c := randomProperCrystal(rng)
 		pc := &propCase{seed: seed, c: c, spec: propMesh(rng, len(c.Lattice))}
-		m, err := Compile(context.Background(), c, Options{})
+		m, err := physics.Compile(context.Background(), c, physics.Options{})
 		if err != nil {
 			t.Fatalf("generator made an invalid model: %v\n%v", err, pc)
 		}
@@ -321,10 +324,10 @@ func propCases(t *testing.T) []*propCase {
 // modes above that are kept: they are the ones a thermal sum must not
 // drop.
 func floppy(t *testing.T, pc *propCase) bool {
-	g := modesOn(t, pc.m, pc.spec, GridOptions{NoSymmetry: true})
-	top := maxAbs(g.FreqTHz)
+	g := testmodels.Modes(t, pc.m, pc.spec, physics.GridOptions{NoSymmetry: true})
+	top := testmodels.MaxAbs(g.FreqTHz)
 	for i, q := range g.Points {
-		if IsGamma(q.Q) {
+		if physics.IsGamma(q.Q) {
 			continue
 		}
 		if f := g.FreqTHz[i*g.NModes]; f <= 0 || f*f <= 1e-13*top*top {
@@ -342,15 +345,15 @@ func floppy(t *testing.T, pc *propCase) bool {
 // exact to a few ε‖D‖, package eigen). At least a third of the models must have
 // been reduced to fewer points than the grid, or the test proves nothing.
 func TestPropertyReducedGrid(t *testing.T) {
-	ctx := specCtx(t)
+	ctx := testmodels.Ctx(t)
 	cases := propCases(t)
 	reduced := 0
 	for _, pc := range cases {
-		full, err := pc.m.GridModes(ctx, pc.spec, GridOptions{NoSymmetry: true})
+		full, err := pc.m.GridModes(ctx, pc.spec, physics.GridOptions{NoSymmetry: true})
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
 		}
-		red, err := pc.m.GridModes(ctx, pc.spec, GridOptions{})
+		red, err := pc.m.GridModes(ctx, pc.spec, physics.GridOptions{})
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
 		}
@@ -360,7 +363,7 @@ func TestPropertyReducedGrid(t *testing.T) {
 		if len(red.FreqTHz) != len(full.FreqTHz) {
 			t.Fatalf("reduced grid has %d frequencies, full %d\n%v", len(red.FreqTHz), len(full.FreqTHz), pc)
 		}
-		top := maxAbs(full.FreqTHz)
+		top := testmodels.MaxAbs(full.FreqTHz)
 		sq := func(f float64) float64 { return math.Copysign(f*f, f) }
 		for i, f := range full.FreqTHz {
 			if d := math.Abs(sq(red.FreqTHz[i]) - sq(f)); d > 1e-10*top*top {
@@ -379,7 +382,7 @@ func TestPropertyReducedGrid(t *testing.T) {
 // perturbableNumbers returns a pointer to every number of c that
 // describes the physics: lattice components, masses, fractional
 // positions, spring, shell and block constants.
-func perturbableNumbers(c *Crystal) (ptrs []*float64, names []string) {
+func perturbableNumbers(c *physics.Crystal) (ptrs []*float64, names []string) {
 	add := func(p *float64, format string, args ...any) {
 		ptrs = append(ptrs, p)
 		names = append(names, fmt.Sprintf(format, args...))
@@ -411,40 +414,6 @@ func perturbableNumbers(c *Crystal) (ptrs []*float64, names []string) {
 	return ptrs, names
 }
 
-// samePhysics reports whether two compiled models are bit for bit the same
-// in everything a result depends on: lattice, site masses and positions,
-// and the p×p parts of the mass-weighted force constants. Where they are,
-// every result is the same and the hash need not change.
-func samePhysics(a, b *Model) bool {
-	if a.dim != b.dim || a.p != b.p || a.nsites != b.nsites || a.lattice != b.lattice || len(a.terms) != len(b.terms) {
-		return false
-	}
-	for i := range a.pos {
-		if a.pos[i] != b.pos[i] || a.massAmu[i] != b.massAmu[i] {
-			return false
-		}
-		for k := range a.frac[i] {
-			if a.frac[i][k] != b.frac[i][k] {
-				return false
-			}
-		}
-	}
-	for n := range a.terms {
-		s, u := a.terms[n], b.terms[n]
-		if s.i != u.i || s.j != u.j || s.n != u.n {
-			return false
-		}
-		for x := 0; x < a.p; x++ {
-			for y := 0; y < a.p; y++ {
-				if s.phi[3*x+y] != u.phi[3*x+y] {
-					return false
-				}
-			}
-		}
-	}
-	return true
-}
-
 // TestPropertyHashPerturbation: the model hash is a cache key, so two
 // models that give different results must never share it (hash.go: "any
 // change that moves a result changes it"). Every number of every random
@@ -457,23 +426,23 @@ func TestPropertyHashPerturbation(t *testing.T) {
 	var fails []string
 	for _, seed := range propSeeds() {
 		c := randomProperCrystal(propRNG(seed))
-		m, err := Compile(context.Background(), c, Options{})
+		m, err := physics.Compile(context.Background(), c, physics.Options{})
 		if err != nil {
 			t.Fatalf("seed %d: %v", seed, err)
 		}
-		ptrs, names := perturbableNumbers(cloneCrystal(c))
+		ptrs, names := perturbableNumbers(testmodels.Clone(c))
 		for k := range ptrs {
-			pc := cloneCrystal(c)
+			pc := testmodels.Clone(c)
 			p, _ := perturbableNumbers(pc)
 			if *p[k] == 0 {
 				continue
 			}
 			*p[k] *= 1 + rel
-			pm, err := Compile(context.Background(), pc, Options{})
+			pm, err := physics.Compile(context.Background(), pc, physics.Options{})
 			if err != nil {
 				t.Fatalf("seed %d, %s × (1 + %g): %v", seed, names[k], rel, err)
 			}
-			if samePhysics(m, pm) {
+			if physics.SamePhysics(m, pm) {
 				same++
 				continue
 			}

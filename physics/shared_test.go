@@ -1,7 +1,7 @@
 // Small helpers shared by the core's in-package tests and, through
 // export_test.go, its external tests.
 
-package physics
+package physics_test
 
 import (
 	"context"
@@ -9,6 +9,8 @@ import (
 	"math"
 	"testing"
 	"time"
+
+	"github.com/materials-lab/modegrid/physics"
 )
 
 func testCtx(t *testing.T) context.Context {
@@ -20,30 +22,30 @@ func testCtx(t *testing.T) context.Context {
 
 // twoSiteChain is a valid base for mutation: a 1D crystal of two sites with
 // two springs and a block.
-func twoSiteChain() *Crystal {
-	return &Crystal{
+func twoSiteChain() *physics.Crystal {
+	return &physics.Crystal{
 		Lattice:       [][3]float64{{4, 0, 0}},
 		Polarizations: 1,
-		Sites: []Site{
+		Sites: []physics.Site{
 			{Label: "A", MassAmu: 10, Frac: []float64{0}},
 			{Label: "B", MassAmu: 20, Frac: []float64{0.5}},
 		},
-		Springs: []Spring{
+		Springs: []physics.Spring{
 			{From: 0, To: 1, Cell: []int{0}, KLong: 1},
 			{From: 1, To: 0, Cell: []int{1}, KLong: 1},
 		},
-		Blocks: []Block{{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-0.1, 0, 0, 0, 0, 0, 0, 0, 0}}},
+		Blocks: []physics.Block{{From: 0, To: 0, Cell: []int{1}, Phi: []float64{-0.1, 0, 0, 0, 0, 0, 0, 0, 0}}},
 	}
 }
 
 // violationsOf returns the violations of err (nil if err is nil) and fails
 // on any other kind of error.
-func violationsOf(t *testing.T, err error) []Violation {
+func violationsOf(t *testing.T, err error) []physics.Violation {
 	t.Helper()
 	if err == nil {
 		return nil
 	}
-	var ve *ValidationError
+	var ve *physics.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("error %v is not a *ValidationError", err)
 	}

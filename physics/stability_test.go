@@ -24,7 +24,7 @@ func TestStability(t *testing.T) {
 	for _, name := range testmodels.Names(t) {
 		t.Run(name, func(t *testing.T) {
 			m := testmodels.Compile(t, testmodels.Load(t, name))
-			lo, hi, ok, err := m.Stability(physics.TestCtx(t), 6)
+			lo, hi, ok, err := m.Stability(testCtx(t), 6)
 			if err != nil || !ok || lo < 0 || hi <= 0 {
 				t.Fatalf("min %v max %v stable %v err %v", lo, hi, ok, err)
 			}
@@ -34,7 +34,7 @@ func TestStability(t *testing.T) {
 		Sites:   []physics.Site{{Label: "A", MassAmu: 4, Frac: []float64{0}}},
 		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1}, {From: 0, To: 0, Cell: []int{2}, KLong: -0.5}}}
 	m := testmodels.Compile(t, unstable)
-	lo, _, ok, err := m.Stability(physics.TestCtx(t), 16)
+	lo, _, ok, err := m.Stability(testCtx(t), 16)
 	if err != nil || ok || lo >= 0 {
 		t.Fatalf("negative second-neighbour spring: min %v stable %v err %v", lo, ok, err)
 	}
@@ -46,7 +46,7 @@ func TestStability(t *testing.T) {
 		w2 := math.Pow(math.Sin(math.Pi*q), 2) - 0.5*math.Pow(math.Sin(2*math.Pi*q), 2)
 		want = math.Min(want, math.Copysign(math.Sqrt(math.Abs(w2)), w2)*physics.NuUnitTHz)
 	}
-	if !physics.RelClose(lo, want, 1e-10) {
+	if !relClose(lo, want, 1e-10) {
 		t.Errorf("min %v; want %v", lo, want)
 	}
 	// An on-site block that pushes the optical mode at Γ below zero.
@@ -55,10 +55,10 @@ func TestStability(t *testing.T) {
 		Springs: []physics.Spring{{From: 0, To: 1, Cell: []int{0}, KLong: -1}, {From: 1, To: 0, Cell: []int{1}, KLong: -1},
 			{From: 0, To: 0, Cell: []int{1}, KLong: 3}, {From: 1, To: 1, Cell: []int{1}, KLong: 3}}}
 	g := testmodels.Compile(t, gamma)
-	if _, _, ok, _ := g.Stability(physics.TestCtx(t), 4); ok {
+	if _, _, ok, _ := g.Stability(testCtx(t), 4); ok {
 		t.Errorf("imaginary optical mode at Γ (%v THz) must make the model unstable", g.FrequenciesTHz([3]float64{}))
 	}
-	if _, _, _, err := g.Stability(physics.TestCtx(t), 0); physics.ViolationsOf(t, err) == nil {
+	if _, _, _, err := g.Stability(testCtx(t), 0); violationsOf(t, err) == nil {
 		t.Error("mesh 0 must be a validation error")
 	}
 }
@@ -68,7 +68,7 @@ func TestStability(t *testing.T) {
 // bound here is loose on purpose, only a hang fails it; the latency
 // itself is measured by BenchmarkCancelLatency).
 func TestCancelStopsLargeSolve(t *testing.T) {
-	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), physics.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	spec, _ := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
 	ctx, cancel := context.WithCancel(context.Background())
 	go cancel()
@@ -87,7 +87,7 @@ func TestCancelStopsLargeSolve(t *testing.T) {
 // the mean and the largest ms/cancel; the project's target is under 10 ms.
 // GridModes shares the polling (parallel.For and the solver's own).
 func BenchmarkCancelLatency(b *testing.B) {
-	cube := testmodels.Supercell(b, testmodels.Load(b, "rocksalt-like"), physics.ConventionalCell)
+	cube := testmodels.Supercell(b, testmodels.Load(b, "rocksalt-like"), conventionalCell)
 	for _, tc := range []struct {
 		name   string
 		mult   int
