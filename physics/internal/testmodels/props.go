@@ -1,7 +1,6 @@
-// Random models for the property tests of spectra and thermo: a copy of
-// the core's generator (property_test.go), drawn from the same fixed
-// seeds, so the properties spanning the core, spectra and thermo are
-// checked on the same models. More models:
+// Random models for the property tests of the core, spectra and thermo,
+// drawn from fixed seeds, so the properties spanning the three are checked
+// on the same models. More models:
 //
 //	go test -run TestProperty ./physics/... -args -props.n=500
 
@@ -39,10 +38,10 @@ const propSeedBase = 20240601
 // their weight.
 var propRegressionSeeds = []uint64{20240905}
 
-// propSeeds lists the seeds of the models every property test draws:
+// PropSeeds lists the seeds of the models every property test draws:
 // propSeedBase + 0 … n−1 (n = -props.n, or propDefaultN) and the
 // regression seeds.
-func propSeeds() []uint64 {
+func PropSeeds() []uint64 {
 	n := propDefaultN
 	if *propsN > 0 {
 		n = *propsN
@@ -84,7 +83,7 @@ func logUniform(rng *rand.Rand, lo, hi float64) float64 {
 	return lo * math.Pow(hi/lo, rng.Float64())
 }
 
-// randomProperCrystal draws a valid model that is stable by construction:
+// RandomProperCrystal draws a valid model that is stable by construction:
 // every spring has k∥ > 0 and k⊥ ≥ 0, so each adds the positive
 // semi-definite energy ½ Δuᵀ(k∥ eeᵀ + k⊥(1 − eeᵀ))Δu, so the harmonic
 // energy of any Bloch wave is ≥ 0 and D(q) is positive semi-definite at
@@ -94,7 +93,7 @@ func logUniform(rng *rand.Rand, lo, hi float64) float64 {
 // every bond forces q to be a reciprocal lattice vector. Half the models
 // are low-symmetry cells with explicit springs, half are high-symmetry
 // lattices with neighbour shells (which exercise the symmetry reduction).
-func randomProperCrystal(rng *rand.Rand) *physics.Crystal {
+func RandomProperCrystal(rng *rand.Rand) *physics.Crystal {
 	if rng.IntN(2) == 0 {
 		return randomSpringCrystal(rng)
 	}
@@ -258,7 +257,7 @@ func propMesh(rng *rand.Rand, d int) mesh.GridSpec {
 	return s
 }
 
-// PropCases draws the models of propSeeds, compiles them and keeps those the
+// PropCases draws the models of PropSeeds, compiles them and keeps those the
 // engine's own Stability finds stable and that have no zero mode away from
 // Γ on their grid (rigid). The rest are skipped and counted: all should be
 // stable and rigid by construction, so the test fails when more than a
@@ -268,11 +267,11 @@ func PropCases(t *testing.T) []*PropCase {
 	ctx := Ctx(t)
 	var out []*PropCase
 	skipped := 0
-	seeds := propSeeds()
+	seeds := PropSeeds()
 	n := len(seeds)
 	for _, seed := range seeds {
 		rng := PropRNG(seed)
-		c := randomProperCrystal(rng)
+		c := RandomProperCrystal(rng)
 		pc := &PropCase{Seed: seed, C: c, Spec: propMesh(rng, len(c.Lattice))}
 		m, err := physics.Compile(context.Background(), c, physics.Options{})
 		if err != nil {

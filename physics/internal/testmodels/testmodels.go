@@ -2,8 +2,8 @@
 // core (spectra, thermo) the example crystals of proto/examples compiled,
 // and crystal transformations (supercells, rotations, permutations, unit
 // changes). It is for tests only: no non-test package imports it. The
-// core's external tests (package physics_test) use it too; its in-package
-// tests cannot (it imports physics) and still keep a copy of some helpers.
+// core's tests use it too: they are external tests (package physics_test),
+// reaching the few internals they check through physics/export_test.go.
 package testmodels
 
 import (
