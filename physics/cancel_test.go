@@ -9,91 +9,12 @@ import (
 	"sync"
 	"sync/atomic"
 	"testing"
-	"time"
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
-
-// hangGuard bounds how long a cancelled stage may take to return before
-// the test calls it hung: a detector of stages that ignore cancellation
-// (which would run on for seconds to minutes), not a latency requirement.
-const hangGuard = 10 * time.Second
-
-// pollCtx is a context that signals, by closing reached, the moment the
-// stage under test has polled it `after` times with Err, or — when after
-// is 0 — first asked for its Done channel (the eigensolver and the grid
-// workers take ctx.Done() once and poll the channel). The stage is then
-// inside its loops and the test cancels it.
-type pollCtx struct {
-	context.Context
-	after   int64
-	polls   atomic.Int64
-	once    sync.Once
-	reached chan struct{}
-}
-
-func newPollCtx(parent context.Context, after int64) *pollCtx {
-	return &pollCtx{Context: parent, after: after, reached: make(chan struct{})}
-}
-
-func (c *pollCtx) Err() error {
-	if n := c.polls.Add(1); c.after > 0 && n == c.after {
-		c.once.Do(func() { close(c.reached) })
-	}
-	return c.Context.Err()
-}
-
-func (c *pollCtx) Done() <-chan struct{} {
-	if c.after == 0 {
-		c.once.Do(func() { close(c.reached) })
-	}
-	return c.Context.Done()
-}
-
-// cancelMidway runs stage with a context cancelled once the stage has
-// polled it after times (0: once it took the Done channel), and checks
-// that it returns context.Canceled. It returns the time from the
-// cancellation to the stage's return.
-func cancelMidway(t *testing.T, after int64, stage func(ctx context.Context) error) time.Duration {
-	t.Helper()
-	parent, cancel := context.WithCancel(context.Background())
-	defer cancel()
-	ctx := newPollCtx(parent, after)
-	result := make(chan error, 1)
-	var returned time.Time
-	go func() {
-		err := stage(ctx)
-		returned = time.Now()
-		result <- err
-	}()
-	select {
-	case <-ctx.reached:
-	case err := <-result:
-		t.Fatalf("the stage returned (%v) after %d polls of its context, before the event (after=%d)", err, ctx.polls.Load(), after)
-	}
-	cancelled := time.Now()
-	cancel()
-	select {
-	case err := <-result:
-		if !errors.Is(err, context.Canceled) {
-			t.Fatalf("cancelled stage returned %v; want context.Canceled", err)
-		}
-		return returned.Sub(cancelled)
-	case <-time.After(hangGuard):
-		t.Fatalf("the stage did not return within %v of its cancellation", hangGuard)
-		return 0
-	}
-}
-
-// bigCrystal returns the rock-salt-like example as an m1×m2×m3 supercell
-// of its 8-site conventional cube (8·m1·m2·m3 sites, shells by label).
-func bigCrystal(t testing.TB, m1, m2, m3 int) *physics.Crystal {
-	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
-	return testmodels.Supercell(t, cube, [3][3]int{{m1, 0, 0}, {0, m2, 0}, {0, 0, m3}})
-}
 
 var (
 	big256Once  sync.Once
@@ -105,7 +26,7 @@ var (
 // seconds, so each test cancels them midway on the same model, which a
 // cancelled stage must leave usable.
 func big256(t testing.TB) *physics.Model {
-	big256Once.Do(func() { big256Model = testmodels.Compile(t, bigCrystal(t, 4, 4, 2)) })
+	big256Once.Do(func() { big256Model = testmodels.Compile(t, testmodels.BigCrystal(t, 4, 4, 2)) })
 	if big256Model == nil {
 		t.Fatal("the 256-site model did not compile")
 	}
@@ -115,8 +36,8 @@ func big256(t testing.TB) *physics.Model {
 // TestCancelCompile: the neighbour search of a 512-site model (about a
 // second of work) stops when cancelled.
 func TestCancelCompile(t *testing.T) {
-	c := bigCrystal(t, 4, 4, 4)
-	lat := cancelMidway(t, 2000, func(ctx context.Context) error {
+	c := testmodels.BigCrystal(t, 4, 4, 4)
+	lat := testmodels.CancelMidway(t, 2000, func(ctx context.Context) error {
 		_, err := physics.Compile(ctx, c, physics.Options{})
 		return err
 	})
@@ -129,7 +50,7 @@ func TestCancelCompile(t *testing.T) {
 // search is quick).
 func TestCancelSymmetry(t *testing.T) {
 	m := big256(t)
-	lat := cancelMidway(t, 100, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 100, func(ctx context.Context) error {
 		_, err := m.Symmetry(ctx)
 		return err
 	})
@@ -141,7 +62,7 @@ func TestCancelSymmetry(t *testing.T) {
 // when cancelled inside the eigensolver.
 func TestCancelLongWave(t *testing.T) {
 	m := big256(t)
-	lat := cancelMidway(t, 0, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 0, func(ctx context.Context) error {
 		_, err := m.SoundVelocities(ctx, [3]float64{1, 0, 0})
 		return err
 	})
@@ -152,7 +73,7 @@ func TestCancelLongWave(t *testing.T) {
 // cancelled (in the symmetry search, or in the 768×768 eigenproblems).
 func TestCancelStability(t *testing.T) {
 	m := big256(t)
-	lat := cancelMidway(t, 0, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 0, func(ctx context.Context) error {
 		_, _, _, err := m.Stability(ctx, 2)
 		return err
 	})
@@ -164,7 +85,7 @@ func TestCancelStability(t *testing.T) {
 func TestCancelReduceGrid(t *testing.T) {
 	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	testmodels.Symmetry(t, m)
-	lat := cancelMidway(t, 20, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 20, func(ctx context.Context) error {
 		_, err := m.ReduceGrid(ctx, mesh.GridSpec{Mesh: [3]int{161, 160, 159}}, nil)
 		return err
 	})
@@ -181,7 +102,7 @@ func TestCancelTetraClasses(t *testing.T) {
 		t.Fatal(err)
 	}
 	set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
-	lat := cancelMidway(t, 20, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 20, func(ctx context.Context) error {
 		_, err := mesh.SimplexClasses(ctx, g.Reduction(), set, g.ReductionCache())
 		return err
 	})
@@ -203,7 +124,7 @@ func TestCancelTetraClasses(t *testing.T) {
 // values under an ended context fails with its error and stores nothing,
 // so the next use computes the same result as on a fresh model.
 func TestCancelledFirstUseKeepsNothing(t *testing.T) {
-	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
+	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell)
 	m := testmodels.Compile(t, c)
 	done, cancel := context.WithCancel(context.Background())
 	cancel()

@@ -26,7 +26,7 @@ func TestShellBondCounts(t *testing.T) {
 	sc := &physics.Crystal{Lattice: [][3]float64{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}},
 		Sites:  []physics.Site{{Label: "A", MassAmu: 1, Frac: []float64{0, 0, 0}}},
 		Shells: []physics.Shell{{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 1}, {FromLabel: "A", ToLabel: "A", Shell: 3, KLong: 1}}}
-	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
+	cube := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell)
 	cases := []struct {
 		name  string
 		c     *physics.Crystal

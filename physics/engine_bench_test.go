@@ -16,31 +16,6 @@ import (
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// conventionalCell takes the rock-salt-like example to its conventional
-// cubic cell (8 sites): a'_k = −a_k + Σ_{l≠k} a_l of the fcc primitive
-// vectors gives the cube edges.
-var conventionalCell = [3][3]int{{-1, 1, 1}, {1, -1, 1}, {1, 1, -1}}
-
-// ladder returns the benchmark models by site count: 1 (fcc), 2
-// (rocksalt-like), 8 (its conventional cube) and 64 (2×2×2 cubes).
-func ladder(b testing.TB) []struct {
-	sites int
-	m     *physics.Model
-} {
-	rs := testmodels.Load(b, "rocksalt-like")
-	cube := testmodels.Supercell(b, rs, conventionalCell)
-	big := testmodels.Supercell(b, cube, [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}})
-	return []struct {
-		sites int
-		m     *physics.Model
-	}{
-		{1, testmodels.Compile(b, testmodels.Load(b, "fcc"))},
-		{2, testmodels.Compile(b, rs)},
-		{8, testmodels.Compile(b, cube)},
-		{64, testmodels.Compile(b, big)},
-	}
-}
-
 func randomQs(rng *rand.Rand, n int) [][3]float64 {
 	qs := make([][3]float64, n)
 	for i := range qs {
@@ -58,12 +33,12 @@ var sinkPoint physics.PointModes
 func BenchmarkModesPerQ(b *testing.B) {
 	rng := rand.New(rand.NewPCG(7, 7))
 	qs := randomQs(rng, 64)
-	for _, l := range ladder(b) {
-		n := l.m.ModeCount()
+	for _, l := range testmodels.Ladder(b) {
+		n := l.M.ModeCount()
 		for _, kind := range []string{"freq", "vectors", "velocities"} {
 			opt := physics.ModeOptions{Eigenvectors: kind != "freq", Velocities: kind == "velocities"}
-			b.Run(fmt.Sprintf("sites=%d/%s", l.sites, kind), func(b *testing.B) {
-				w := l.m.NewPointWork()
+			b.Run(fmt.Sprintf("sites=%d/%s", l.Sites, kind), func(b *testing.B) {
+				w := l.M.NewPointWork()
 				pm := physics.PointModes{FreqTHz: make([]float64, n)}
 				if opt.Eigenvectors {
 					pm.Eigvecs = make([]complex128, n*n)

@@ -70,7 +70,7 @@ func TestDynamicalMatrixHermitian(t *testing.T) {
 	for _, name := range testmodels.Names(t) {
 		models[name] = testmodels.Compile(t, testmodels.Load(t, name))
 	}
-	models["64-site cube"] = testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	models["64-site cube"] = testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	for name, m := range models {
 		t.Run(name, func(t *testing.T) {
 			n := m.ModeCount()
@@ -209,7 +209,7 @@ func TestDoubledCellFolding(t *testing.T) {
 		{"two-site chain doubled (springs and blocks)", twoSiteChain(), [3][3]int{{2}}, 2},
 		{"square net 2×1 (shells)", testmodels.Load(t, "square-net"), [3][3]int{{2, 0}, {0, 1}}, 2},
 		{"fcc doubled along a₁ (shells)", testmodels.Load(t, "fcc"), [3][3]int{{2, 0, 0}, {0, 1, 0}, {0, 0, 1}}, 2},
-		{"rock salt conventional cube (shells)", testmodels.Load(t, "rocksalt-like"), conventionalCell, 4},
+		{"rock salt conventional cube (shells)", testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell, 4},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -287,7 +287,7 @@ func TestRigidRotation(t *testing.T) {
 // per-site results are reordered.
 func TestSitePermutation(t *testing.T) {
 	rng := rand.New(rand.NewPCG(12, 1))
-	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell)
+	c := testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell)
 	perm := rng.Perm(len(c.Sites))
 	a, b := testmodels.Compile(t, c), testmodels.Compile(t, testmodels.PermutedSites(c, perm))
 	if a.Hash() == b.Hash() {

@@ -68,7 +68,7 @@ func TestStability(t *testing.T) {
 // bound here is loose on purpose, only a hang fails it; the latency
 // itself is measured by BenchmarkCancelLatency).
 func TestCancelStopsLargeSolve(t *testing.T) {
-	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	spec, _ := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, 3)
 	ctx, cancel := context.WithCancel(context.Background())
 	go cancel()
@@ -87,7 +87,7 @@ func TestCancelStopsLargeSolve(t *testing.T) {
 // the mean and the largest ms/cancel; the project's target is under 10 ms.
 // GridModes shares the polling (parallel.For and the solver's own).
 func BenchmarkCancelLatency(b *testing.B) {
-	cube := testmodels.Supercell(b, testmodels.Load(b, "rocksalt-like"), conventionalCell)
+	cube := testmodels.Supercell(b, testmodels.Load(b, "rocksalt-like"), testmodels.ConventionalCell)
 	for _, tc := range []struct {
 		name   string
 		mult   int

@@ -105,7 +105,7 @@ func TestStreamModesBoundedMemory(t *testing.T) {
 // TestStreamModesStops: cancelling mid-stream returns context.Canceled; an
 // error from emit is returned as is; a bad point is a *ValidationError.
 func TestStreamModesStops(t *testing.T) {
-	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell))
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell))
 	spec, _ := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{16, 16, 16}}, 3)
 	pts := spec.Points()
 	ctx, cancel := context.WithCancel(testCtx(t))
@@ -136,7 +136,7 @@ func TestStreamModesStops(t *testing.T) {
 // TestDefaultChunkBounded: the default chunk keeps a chunk near
 // DefaultChunkBytes even with eigenvectors of a large model.
 func TestDefaultChunkBounded(t *testing.T) {
-	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	n := m.ModeCount()
 	c := m.ChunkPoints(physics.ModeOptions{Eigenvectors: true})
 	if bytes := c * 16 * n * n; bytes > physics.DefaultChunkBytes || c < 1 {

@@ -14,8 +14,8 @@ import (
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// Test crystals and harnesses shared by the tests of spectra and thermo
-// (copies of the core's in-package ones).
+// Test crystals and harnesses shared by the tests of the core, spectra
+// and thermo.
 
 // HangGuard bounds how long a cancelled stage may take to return before
 // the test calls it hung: a detector of stages that ignore cancellation
