@@ -60,41 +60,6 @@ func TestPropertyReducedGrid(t *testing.T) {
 	}
 }
 
-// perturbableNumbers returns a pointer to every number of c that
-// describes the physics: lattice components, masses, fractional
-// positions, spring, shell and block constants.
-func perturbableNumbers(c *physics.Crystal) (ptrs []*float64, names []string) {
-	add := func(p *float64, format string, args ...any) {
-		ptrs = append(ptrs, p)
-		names = append(names, fmt.Sprintf(format, args...))
-	}
-	for k := range c.Lattice {
-		for a := range c.Lattice[k] {
-			add(&c.Lattice[k][a], "lattice[%d].%c", k, "xyz"[a])
-		}
-	}
-	for i := range c.Sites {
-		add(&c.Sites[i].MassAmu, "sites[%d].mass_amu", i)
-		for k := range c.Sites[i].Frac {
-			add(&c.Sites[i].Frac[k], "sites[%d].frac[%d]", i, k)
-		}
-	}
-	for i := range c.Springs {
-		add(&c.Springs[i].KLong, "springs[%d].k_long", i)
-		add(&c.Springs[i].KTrans, "springs[%d].k_trans", i)
-	}
-	for i := range c.Shells {
-		add(&c.Shells[i].KLong, "shells[%d].k_long", i)
-		add(&c.Shells[i].KTrans, "shells[%d].k_trans", i)
-	}
-	for i := range c.Blocks {
-		for a := range c.Blocks[i].Phi {
-			add(&c.Blocks[i].Phi[a], "blocks[%d].phi[%d]", i, a)
-		}
-	}
-	return ptrs, names
-}
-
 // TestPropertyHashPerturbation: the model hash is a cache key, so two
 // models that give different results must never share it (hash.go: "any
 // change that moves a result changes it"). Every number of every random
@@ -111,17 +76,17 @@ func TestPropertyHashPerturbation(t *testing.T) {
 		if err != nil {
 			t.Fatalf("seed %d: %v", seed, err)
 		}
-		ptrs, names := perturbableNumbers(testmodels.Clone(c))
-		for k := range ptrs {
+		refs := numbersOf(testmodels.Clone(c))
+		for k, ref := range refs {
 			pc := testmodels.Clone(c)
-			p, _ := perturbableNumbers(pc)
-			if *p[k] == 0 {
+			p := numbersOf(pc)[k].p
+			if *p == 0 {
 				continue
 			}
-			*p[k] *= 1 + rel
+			*p *= 1 + rel
 			pm, err := physics.Compile(context.Background(), pc, physics.Options{})
 			if err != nil {
-				t.Fatalf("seed %d, %s × (1 + %g): %v", seed, names[k], rel, err)
+				t.Fatalf("seed %d, %s × (1 + %g): %v", seed, ref.name, rel, err)
 			}
 			if physics.SamePhysics(m, pm) {
 				same++
@@ -130,7 +95,7 @@ func TestPropertyHashPerturbation(t *testing.T) {
 			checked++
 			if pm.Hash() == m.Hash() {
 				b, _ := json.Marshal(c)
-				fails = append(fails, fmt.Sprintf("seed %d: %s = %.17g × (1 + %g) keeps hash %s; model %s", seed, names[k], *ptrs[k], rel, m.Hash()[:12], b))
+				fails = append(fails, fmt.Sprintf("seed %d: %s = %.17g × (1 + %g) keeps hash %s; model %s", seed, ref.name, *ref.p, rel, m.Hash()[:12], b))
 			}
 		}
 	}
