@@ -12,18 +12,13 @@ import (
 // benchSink keeps benchmark results alive.
 var benchSink any
 
-func benchModes(b *testing.B, name string, n int, opt physics.GridOptions) (*physics.Model, *physics.GridModes) {
-	b.Helper()
-	return testmodels.BenchGrid(b, name, n, opt)
-}
-
 // BenchmarkTetraDOS times the tetrahedron DOS of the rock-salt-like example
 // (2 sites, 6 branches) on n³ grids, default window (501 samples), from
 // given frequencies; the project's target is 48³ in under 0.2 s.
 func BenchmarkTetraDOS(b *testing.B) {
 	for _, n := range []int{12, 24, 48} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
+			m, g := testmodels.BenchGrid(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeDOS(context.Background(), m, g, DOSOptions{})
@@ -35,7 +30,7 @@ func BenchmarkTetraDOS(b *testing.B) {
 		})
 	}
 	b.Run("n=48-per-site", func(b *testing.B) {
-		m, g := benchModes(b, "rocksalt-like", 48, physics.GridOptions{Projections: true})
+		m, g := testmodels.BenchGrid(b, "rocksalt-like", 48, physics.GridOptions{Projections: true})
 		b.ResetTimer()
 		for b.Loop() {
 			r, err := ComputeDOS(context.Background(), m, g, DOSOptions{PerSite: true})
@@ -52,7 +47,7 @@ func BenchmarkTetraDOS(b *testing.B) {
 func BenchmarkGaussianDOS(b *testing.B) {
 	for _, n := range []int{12, 24, 48} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
+			m, g := testmodels.BenchGrid(b, "rocksalt-like", n, physics.GridOptions{Projections: true})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeDOS(context.Background(), m, g, DOSOptions{Method: Gaussian})

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
@@ -76,9 +77,9 @@ func TestDOSConvergenceTable(t *testing.T) {
 	}
 
 	// 1D: the monatomic chain against its closed form.
-	m := mustCompile(t, loadExample(t, "chain"))
-	step := 1.05 * chainNuMaxTHz / 200
-	window := DOSOptions{Max: 1.05 * chainNuMaxTHz, Step: step}
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
+	step := 1.05 * testmodels.ChainNuMaxTHz / 200
+	window := DOSOptions{Max: 1.05 * testmodels.ChainNuMaxTHz, Step: step}
 	var ref []float64
 	for i := 0; i <= 200; i++ {
 		f := float64(i) * step
@@ -86,7 +87,7 @@ func TestDOSConvergenceTable(t *testing.T) {
 	}
 	var rows []convRow
 	for n := 8; n <= 1<<16; n *= 2 {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
+		g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 		rows = append(rows, gaussRow(t, m, g, window, ref, factors, n, n))
 		rows[len(rows)-1].tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
 	}
@@ -94,17 +95,17 @@ func TestDOSConvergenceTable(t *testing.T) {
 
 	// 3D: the rock-salt-like and fcc examples against 128³ tetrahedron DOS.
 	for _, name := range []string{"rocksalt-like", "fcc"} {
-		m = mustCompile(t, loadExample(t, name))
-		big := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{128, 128, 128}}, physics.GridOptions{})
+		m = testmodels.Compile(t, testmodels.Load(t, name))
+		big := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{128, 128, 128}}, physics.GridOptions{})
 		top := Stats(big).MaxTHz
 		window = DOSOptions{Max: 1.05 * top, Step: 1.05 * top / 200}
 		ref = mustDOS(t, m, big, window).DOS
-		check := mustDOS(t, m, modesOn(t, m, mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, physics.GridOptions{}), window).DOS
+		check := mustDOS(t, m, testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, physics.GridOptions{}), window).DOS
 		big = nil
 		fmt.Fprintf(&report, "\n(%s reference check: tetrahedra on 96³ differ from 128³ by %.2g %% L1.)\n", name, 100*convergenceL1(check, ref))
 		rows = nil
 		for _, n := range []int{4, 6, 8, 12, 16, 24, 32, 48, 64, 96} {
-			g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n, n, n}}, physics.GridOptions{})
+			g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{n, n, n}}, physics.GridOptions{})
 			r := gaussRow(t, m, g, window, ref, factors, n, n*n*n)
 			r.tet = convergenceL1(mustDOS(t, m, g, window).DOS, ref)
 			rows = append(rows, r)

@@ -8,12 +8,13 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
 func mustDOS(t testing.TB, m *physics.Model, g *physics.GridModes, opt DOSOptions) *DOSResult {
 	t.Helper()
-	r, err := ComputeDOS(specCtx(t), m, g, opt)
+	r, err := ComputeDOS(testmodels.Ctx(t), m, g, opt)
 	if err != nil {
 		t.Fatalf("ComputeDOS(%+v): %v", opt, err)
 	}
@@ -31,12 +32,6 @@ func integral(r *DOSResult, dos []float64) float64 {
 	return s
 }
 
-// Chain example (proto/examples/chain.json): K = 1.5 eV/Å², M = 40 amu, so
-// ν_max = 2·sqrt(K/M) in units of sqrt(eV/Å²/amu) = 15.6333042 THz
-// (Kittel, Introduction to Solid State Physics, ch. 4; the unit
-// sqrt(e·10²⁰/m_u)/2π from CODATA 2018 e and m_u).
-var chainNuMaxTHz = 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz
-
 // chainStatesBelow is the exact number of states per cell below ν of the
 // monatomic chain, ∫ (2/π)(ν_m² − ν²)^(−1/2) dν = (2/π) arcsin(ν/ν_m)
 // (Ashcroft & Mermin ch. 23; Kittel ch. 5).
@@ -44,10 +39,10 @@ func chainStatesBelow(nu float64) float64 {
 	switch {
 	case nu <= 0:
 		return 0
-	case nu >= chainNuMaxTHz:
+	case nu >= testmodels.ChainNuMaxTHz:
 		return 1
 	}
-	return 2 / math.Pi * math.Asin(nu/chainNuMaxTHz)
+	return 2 / math.Pi * math.Asin(nu/testmodels.ChainNuMaxTHz)
 }
 
 // chainL1 is the L1 distance ∫|g − g_exact| between a chain DOS and the
@@ -68,8 +63,8 @@ func chainL1(r *DOSResult) float64 {
 // averages, and the integrated DOS against (2/π) arcsin(ν/ν_max).
 // Tolerances are 3× the measured errors (L1 2.9e-6, integrated 4.6e-7).
 func TestDOSChainClosedForm(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{4096}}, physics.GridOptions{})
-	r := mustDOS(t, m, g, DOSOptions{Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{4096}}, physics.GridOptions{})
+	r := mustDOS(t, m, g, DOSOptions{Max: 1.05 * testmodels.ChainNuMaxTHz, Step: testmodels.ChainNuMaxTHz / 200})
 	if l1 := chainL1(r); l1 > 1e-5 {
 		t.Errorf("L1 distance to the closed form %.3g; want < 1e-5", l1)
 	}
@@ -79,7 +74,7 @@ func TestDOSChainClosedForm(t *testing.T) {
 		}
 	}
 	// The density at ν → 0 is 2/(π ν_max) per cell per THz.
-	if got, want := r.DOS[1], 2/(math.Pi*chainNuMaxTHz); math.Abs(got-want) > 1e-4*want {
+	if got, want := r.DOS[1], 2/(math.Pi*testmodels.ChainNuMaxTHz); math.Abs(got-want) > 1e-4*want {
 		t.Errorf("g(%.4f THz) = %.6f; want ≈ 2/(π ν_max) = %.6f", r.Freq[1], got, want)
 	}
 }
@@ -90,12 +85,12 @@ func TestDOSChainClosedForm(t *testing.T) {
 // slowly (Ashcroft & Mermin ch. 23 for the closed form). The errors are
 // logged: go test -run TestDOSChainConvergence -v ./physics/.
 func TestDOSChainConvergence(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
 	prev := map[DOSMethod]float64{}
 	for _, n := range []int{32, 64, 128, 256, 512, 1024, 2048} {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
+		g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian} {
-			r := mustDOS(t, m, g, DOSOptions{Method: meth, Max: 1.05 * chainNuMaxTHz, Step: chainNuMaxTHz / 200})
+			r := mustDOS(t, m, g, DOSOptions{Method: meth, Max: 1.05 * testmodels.ChainNuMaxTHz, Step: testmodels.ChainNuMaxTHz / 200})
 			l1 := chainL1(r)
 			t.Logf("N = %5d  %-11v L1 = %.3g", n, meth, l1)
 			if p, ok := prev[meth]; ok {
@@ -117,11 +112,11 @@ func TestDOSChainConvergence(t *testing.T) {
 // singularity; Ashcroft & Mermin ch. 23, Kittel ch. 5). The log-log slope
 // over 0.5 %–10 % of ν_max below the edge is −½ to 0.02.
 func TestDOSChainZoneEdge(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{65536}}, physics.GridOptions{})
-	r := mustDOS(t, m, g, DOSOptions{Max: chainNuMaxTHz, Step: chainNuMaxTHz / 2000})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{65536}}, physics.GridOptions{})
+	r := mustDOS(t, m, g, DOSOptions{Max: testmodels.ChainNuMaxTHz, Step: testmodels.ChainNuMaxTHz / 2000})
 	var xs, ys []float64
 	for i, f := range r.Freq {
-		gap := (chainNuMaxTHz - f) / chainNuMaxTHz
+		gap := (testmodels.ChainNuMaxTHz - f) / testmodels.ChainNuMaxTHz
 		if gap >= 0.005 && gap <= 0.1 {
 			xs = append(xs, math.Log(gap))
 			ys = append(ys, math.Log(r.DOS[i]))
@@ -165,7 +160,7 @@ func TestDOSNormalization(t *testing.T) {
 		{"fcc", [3]int{8, 8, 8}},
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
-		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
+		m, g := testmodels.Grid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
 		want := float64(m.Polarizations() * m.Sites())
 		for _, meth := range []DOSMethod{Tetrahedron, Histogram, Gaussian} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
@@ -217,7 +212,7 @@ func TestProjectedDOSSum(t *testing.T) {
 		{"square-net", [3]int{16, 16}},
 		{"rocksalt-like", [3]int{8, 8, 8}},
 	} {
-		m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
+		m, g := testmodels.Grid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Projections: true})
 		for _, meth := range []DOSMethod{Tetrahedron, Gaussian, Histogram} {
 			t.Run(tc.name+"/"+meth.String(), func(t *testing.T) {
 				with := mustDOS(t, m, g, DOSOptions{Method: meth, PerSite: true})
@@ -264,7 +259,7 @@ var diatomicEdges = [3]float64{
 // mode only the light ones (Kittel ch. 4), so the label projections near
 // each edge belong to one species.
 func TestDiatomicGap(t *testing.T) {
-	m, g := exampleGrid(t, "diatomic-chain", mesh.GridSpec{Mesh: [3]int{512}}, physics.GridOptions{Projections: true})
+	m, g := testmodels.Grid(t, "diatomic-chain", mesh.GridSpec{Mesh: [3]int{512}}, physics.GridOptions{Projections: true})
 	lo, hi, top := diatomicEdges[0], diatomicEdges[1], diatomicEdges[2]
 	step := top / 1000
 	r := mustDOS(t, m, g, DOSOptions{Max: 1.02 * top, Step: step, PerSite: true})
@@ -314,7 +309,7 @@ func TestDiatomicGap(t *testing.T) {
 // per unit), the integrated
 // DOS not at all.
 func TestDOSUnits(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
 	ref := mustDOS(t, m, g, DOSOptions{Max: 10, Step: 0.05})
 	for _, tc := range []struct {
 		name   string
@@ -344,28 +339,13 @@ func TestDOSUnits(t *testing.T) {
 	}
 }
 
-// unstableChain is a chain whose second-neighbour spring is negative enough
-// (K₂ < −K₁/4) that long waves are imaginary: ω² ∝ K₁ sin²(q/2) + K₂
-// sin²(q) < 0 near Γ (Born–von Kármán chain, Kittel ch. 4 problem set;
-// the sign test is common practice).
-func unstableChain() *physics.Crystal {
-	return &physics.Crystal{
-		Name: "unstable-chain", Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites: []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []physics.Spring{
-			{From: 0, To: 0, Cell: []int{1}, KLong: 1.0},
-			{From: 0, To: 0, Cell: []int{2}, KLong: -0.4},
-		},
-	}
-}
-
 // TestDOSImaginary: imaginary modes are counted; by default they are left
 // out of the DOS (the states in the window are the real ones), and with
 // NegativeAxis they appear at negative frequencies with the full
 // normalisation (common practice: imaginary modes as negative numbers).
 func TestDOSImaginary(t *testing.T) {
-	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{400}}, physics.GridOptions{})
+	m := testmodels.Compile(t, testmodels.UnstableChain())
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{400}}, physics.GridOptions{})
 	st := Stats(g)
 	want := 0 // Γ's acoustic mode is 0 here (springs keep the sum rule)
 	for _, f := range g.FreqTHz {
@@ -418,12 +398,12 @@ func TestDOSImaginary(t *testing.T) {
 // wavevector carrying 1/8 of a state per cell (allowed q = 2πn/(Na): common
 // practice; dispersion Kittel ch. 4).
 func TestHistogramFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{8}, Finite: true}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{8}, Finite: true}, physics.GridOptions{})
 	step := 1e-3
-	r := mustDOS(t, m, g, DOSOptions{Method: Histogram, Max: 1.1 * chainNuMaxTHz, Step: step})
+	r := mustDOS(t, m, g, DOSOptions{Method: Histogram, Max: 1.1 * testmodels.ChainNuMaxTHz, Step: step})
 	want := map[int]float64{} // sample index → states
 	for n := -3; n <= 4; n++ {
-		nu := chainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/8))
+		nu := testmodels.ChainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/8))
 		want[int(math.Round(nu/step))] += 1.0 / 8
 	}
 	for i := range r.DOS {
@@ -439,14 +419,14 @@ func TestHistogramFiniteCrystal(t *testing.T) {
 // tetrahedron DOS agree in the mean frequency ⟨ν⟩ = ∫νg/∫g, which smearing
 // does not move (common practice).
 func TestGaussianWidth(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{10, 10, 10}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{10, 10, 10}}, physics.GridOptions{})
 	top := Stats(g).MaxTHz
 	def := mustDOS(t, m, g, DOSOptions{Method: Gaussian})
 	if want := top / (8 * 10); math.Abs(def.Width-want) > 1e-12*want {
 		t.Errorf("default width %.6g; want ν_top/(8·N^(1/3)) = %.6g", def.Width, want)
 	}
-	m1, g1 := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
-	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, chainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
+	m1, g1 := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
+	if got, want := mustDOS(t, m1, g1, DOSOptions{Method: Gaussian}).Width, testmodels.ChainNuMaxTHz/100; math.Abs(got-want) > 1e-9*want {
 		t.Errorf("1D default width %.6g; want ν_top/N = %.6g", got, want)
 	}
 	w := mustDOS(t, m, g, DOSOptions{Method: Gaussian, Width: 0.2, Min: -2, Max: top + 2})
@@ -472,8 +452,8 @@ func TestGaussianWidth(t *testing.T) {
 // 3 % (L1) of the Γ-centred one (common practice: both sample the same
 // zone).
 func TestDOSShiftedGrid(t *testing.T) {
-	m, g0 := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, physics.GridOptions{})
-	g1 := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, physics.GridOptions{})
+	m, g0 := testmodels.Grid(t, "fcc", mesh.GridSpec{Mesh: [3]int{12, 12, 12}}, physics.GridOptions{})
+	g1 := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, physics.GridOptions{})
 	opt := DOSOptions{Max: 8, Step: 0.04}
 	a, b := mustDOS(t, m, g0, opt), mustDOS(t, m, g1, opt)
 	if got := integral(b, b.DOS); math.Abs(got-3) > 1e-6 {
@@ -491,7 +471,7 @@ func TestDOSShiftedGrid(t *testing.T) {
 // TestDOSValidation: bad options are refused with every violation named by
 // its field; wrong grid modes are refused with a plain error.
 func TestDOSValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    DOSOptions
@@ -509,7 +489,7 @@ func TestDOSValidation(t *testing.T) {
 		{"tiny step", DOSOptions{Max: 10, Step: 1e-300}, []string{"step"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := ComputeDOS(specCtx(t), m, g, tc.opt)
+			_, err := ComputeDOS(testmodels.Ctx(t), m, g, tc.opt)
 			var ve *physics.ValidationError
 			if !errors.As(err, &ve) {
 				t.Fatalf("got %v; want a *ValidationError", err)
@@ -528,19 +508,19 @@ func TestDOSValidation(t *testing.T) {
 			}
 		})
 	}
-	if r, err := ComputeDOS(specCtx(t), m, g, DOSOptions{Max: 1e-300}); err != nil || len(r.Freq) != DefaultDOSBins+1 {
+	if r, err := ComputeDOS(testmodels.Ctx(t), m, g, DOSOptions{Max: 1e-300}); err != nil || len(r.Freq) != DefaultDOSBins+1 {
 		t.Errorf("a window of 1e-300 THz: %v; want %d samples", err, DefaultDOSBins+1)
 	}
-	if _, err := ComputeDOS(specCtx(t), m, g, DOSOptions{PerSite: true}); err == nil {
+	if _, err := ComputeDOS(testmodels.Ctx(t), m, g, DOSOptions{PerSite: true}); err == nil {
 		t.Error("per-site DOS of modes without site weights: no error")
 	}
 	part := *g
 	part.Points, part.FreqTHz = g.Points[:8], g.FreqTHz[:8]
-	if _, err := ComputeDOS(specCtx(t), m, &part, DOSOptions{}); err == nil {
+	if _, err := ComputeDOS(testmodels.Ctx(t), m, &part, DOSOptions{}); err == nil {
 		t.Error("tetrahedra on part of a grid: no error")
 	}
-	other := mustCompile(t, loadExample(t, "diatomic-chain"))
-	if _, err := ComputeDOS(specCtx(t), other, g, DOSOptions{}); err == nil {
+	other := testmodels.Compile(t, testmodels.Load(t, "diatomic-chain"))
+	if _, err := ComputeDOS(testmodels.Ctx(t), other, g, DOSOptions{}); err == nil {
 		t.Error("modes of another model: no error")
 	}
 	ctx, cancel := context.WithCancel(context.Background())

@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
@@ -17,7 +18,7 @@ import (
 // project's targets: 48³ under 50 ms, 96³ under 0.3 s and 200 MiB. The cold
 // variants rebuild the reduction tables every time (a first request).
 func BenchmarkDOSEndToEnd(b *testing.B) {
-	c := loadExample(b, "rocksalt-like")
+	c := testmodels.Load(b, "rocksalt-like")
 	for _, run := range []struct {
 		n    int
 		cold bool

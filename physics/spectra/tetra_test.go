@@ -6,6 +6,7 @@ import (
 	"slices"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/lattice"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
@@ -198,7 +199,7 @@ func TestShortestDiagonal(t *testing.T) {
 			}
 		}
 	}
-	m := mustCompile(t, loadExample(t, "fcc"))
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	set := mesh.GridSimplices(m.Reciprocal(), [3]int{8, 8, 8}, 3)
 	if len(set.Corners) != 6 || math.Abs(set.Weight*6*512-1) > 1e-15 {
 		t.Fatalf("fcc: %d tetrahedra of weight %g; want 6 of 1/(6·512)", len(set.Corners), set.Weight)

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -19,7 +20,7 @@ import (
 // TestCancelThermal: the thermal sums over a large grid and many
 // temperatures stop when cancelled.
 func TestCancelThermal(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{48, 48, 48}}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
@@ -28,7 +29,7 @@ func TestCancelThermal(t *testing.T) {
 	for i := range temps {
 		temps[i] = 1 + float64(i)/4
 	}
-	lat := cancelMidway(t, 3, func(ctx context.Context) error {
+	lat := testmodels.CancelMidway(t, 3, func(ctx context.Context) error {
 		_, err := ComputeThermal(ctx, m, g, ThermalOptions{TempsK: temps})
 		return err
 	})
@@ -48,10 +49,10 @@ func TestCancelLatencyTable(t *testing.T) {
 	if !*cancelTable {
 		t.Skip("the latency table runs with -args -cancel.table")
 	}
-	c512 := bigCrystal(t, 4, 4, 4)
-	m512 := mustCompile(t, c512)
-	fcc := mustCompile(t, loadExample(t, "fcc"))
-	mustSymmetry(t, fcc)
+	c512 := testmodels.BigCrystal(t, 4, 4, 4)
+	m512 := testmodels.Compile(t, c512)
+	fcc := testmodels.Compile(t, testmodels.Load(t, "fcc"))
+	testmodels.Symmetry(t, fcc)
 	g96, err := fcc.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{96, 96, 96}}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)

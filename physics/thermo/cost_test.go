@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -44,14 +45,14 @@ func TestCostLadder(t *testing.T) {
 		run  func()
 	}
 	var rungs []rung
-	for _, l := range ladder(t) {
-		if raceEnabled && l.Sites > 8 {
+	for _, l := range testmodels.Ladder(t) {
+		if testmodels.RaceEnabled && l.Sites > 8 {
 			continue // the 64-site rungs take a minute under the race detector
 		}
 		m := l.M
 		m.SoundVelocities(ctx, [3]float64{0, 0, 1}) // the model's one-time long-wave limit
 		meshes := []int{4, 10}
-		if raceEnabled {
+		if testmodels.RaceEnabled {
 			meshes = meshes[:1]
 		}
 		if l.Sites >= 8 {

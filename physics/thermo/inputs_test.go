@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -13,15 +14,15 @@ import (
 // ComputeDOS and ComputeThermal refuse those of another model of the same
 // size, and accept those of a model with the same hash.
 func TestGridModesOtherModel(t *testing.T) {
-	a := loadExample(t, "chain")
-	b := cloneCrystal(a)
+	a := testmodels.Load(t, "chain")
+	b := testmodels.Clone(a)
 	b.Springs[0].KLong *= 1.3 // same size, other physics
-	ma, mb, ma2 := mustCompile(t, a), mustCompile(t, b), mustCompile(t, cloneCrystal(a))
-	g := modesOn(t, ma, mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
+	ma, mb, ma2 := testmodels.Compile(t, a), testmodels.Compile(t, b), testmodels.Compile(t, testmodels.Clone(a))
+	g := testmodels.Modes(t, ma, mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
 	if g.ModelHash != ma.Hash() {
 		t.Fatalf("ModelHash %q; want %q", g.ModelHash, ma.Hash())
 	}
-	ctx := specCtx(t)
+	ctx := testmodels.Ctx(t)
 	if _, err := spectra.ComputeDOS(ctx, mb, g, spectra.DOSOptions{}); err == nil || !strings.Contains(err.Error(), "made by model") {
 		t.Errorf("ComputeDOS with another model's modes: %v; want a refusal", err)
 	}

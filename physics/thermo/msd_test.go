@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -14,8 +15,8 @@ import (
 // axes (Willis & Pryor, Thermal Vibrations in Crystallography, ch. 4; any
 // harmonic-oscillator text), B = 8π²⟨u²⟩/3; CODATA 2018 constants.
 func TestMSDEinstein(t *testing.T) {
-	m := mustCompile(t, einsteinCrystal())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{2, 2, 2}}, physics.GridOptions{Eigenvectors: true})
+	m := testmodels.Compile(t, einsteinCrystal())
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{2, 2, 2}}, physics.GridOptions{Eigenvectors: true})
 	temps := []float64{0, 10, 300, 3000}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	omega := 2 * math.Pi * einsteinNuTHz * 1e12
@@ -51,7 +52,7 @@ func TestMSDEinstein(t *testing.T) {
 func TestMSDCubicIsotropy(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
 		t.Run(name, func(t *testing.T) {
-			m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
+			m, g := testmodels.Grid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 300}, MSD: true})
 			for _, p := range r.Points {
 				for s, u := range p.MSD {
@@ -77,7 +78,7 @@ func TestMSDCubicIsotropy(t *testing.T) {
 // practice): a check of the eigenvector weighting against frequencies
 // alone. And the light site moves more than the heavy one.
 func TestMSDMassWeightedSum(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
+	m, g := testmodels.Grid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	temps := []float64{0, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	st := spectra.Stats(g)
@@ -111,7 +112,7 @@ func TestMSDMassWeightedSum(t *testing.T) {
 // (equipartition; Willis & Pryor ch. 4): ⟨u²⟩ ∝ T(1 + x²/12 + …), x ≤ 0.015
 // at 2·10⁴ K here, so doubling T doubles it to 1e-4.
 func TestMSDClassicalLimit(t *testing.T) {
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
+	m, g := testmodels.Grid(t, "fcc", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{2e4, 4e4}, MSD: true})
 	if ratio := r.Points[1].MSD[0].UIso / r.Points[0].MSD[0].UIso; math.Abs(ratio-2) > 1e-4 {
 		t.Errorf("⟨u²⟩(4·10⁴ K)/⟨u²⟩(2·10⁴ K) = %.6f; want 2", ratio)
@@ -123,10 +124,10 @@ func TestMSDClassicalLimit(t *testing.T) {
 // Rev. 176, 250 (1968)): the classical grid sum kT/M Σ_q w/ω² grows as N,
 // so doubling the ring doubles it at high T (to 2 %).
 func TestMSDChainDiverges(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
 	var u []float64
 	for _, n := range []int{200, 400} {
-		g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}, Finite: true}, physics.GridOptions{Eigenvectors: true})
+		g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{n}, Finite: true}, physics.GridOptions{Eigenvectors: true})
 		r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{2000}, MSD: true})
 		u = append(u, r.Points[0].MSD[0].U[0])
 	}
@@ -138,7 +139,7 @@ func TestMSDChainDiverges(t *testing.T) {
 // TestMSDRoutes: displacements are mode sums on either thermal route
 // (the DOS carries no eigenvectors), so both routes give the same tensor.
 func TestMSDRoutes(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, physics.GridOptions{Eigenvectors: true})
+	m, g := testmodels.Grid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, physics.GridOptions{Eigenvectors: true})
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, MSD: true})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{300}, MSD: true, Route: DOSIntegral})
 	for s := range a.Points[0].MSD {

@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -19,12 +20,12 @@ type faultKey struct{}
 // carrying the hook's value (instead of ending the process), and the same
 // computation on an unmarked context still succeeds.
 func TestWorkerPanicReachesCaller(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	spec, err := physics.NormalizeGrid(mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, 3)
 	if err != nil {
 		t.Fatal(err)
 	}
-	g, err := m.GridModes(testCtx(t), spec, physics.GridOptions{})
+	g, err := m.GridModes(testmodels.Ctx(t), spec, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -65,7 +66,7 @@ func TestWorkerPanicReachesCaller(t *testing.T) {
 	for _, tt := range cases {
 		t.Run(tt.name, func(t *testing.T) {
 			value := "injected fault in " + tt.name
-			ctx := context.WithValue(testCtx(t), faultKey{}, value)
+			ctx := context.WithValue(testmodels.Ctx(t), faultKey{}, value)
 			p := func() (p any) {
 				defer func() { p = recover() }()
 				_ = tt.run(ctx)
@@ -78,7 +79,7 @@ func TestWorkerPanicReachesCaller(t *testing.T) {
 			if pe.Value != value || len(pe.Stack) == 0 {
 				t.Errorf("PanicError{Value: %v, %d bytes of stack}; want value %q and a stack", pe.Value, len(pe.Stack), value)
 			}
-			if err := tt.run(testCtx(t)); err != nil {
+			if err := tt.run(testmodels.Ctx(t)); err != nil {
 				t.Errorf("unmarked run after the panic: %v", err)
 			}
 		})

@@ -13,13 +13,14 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 // gammaWeight is the weight of the p acoustic zero modes at Γ on a
 // Γ-centred grid of N points: p/N modes per cell. They are the only modes
 // a rigid model leaves out of the thermal sums.
-func gammaWeight(pc *propCase) float64 {
+func gammaWeight(pc *testmodels.PropCase) float64 {
 	return float64(pc.M.Polarizations()) / float64(pc.Spec.Count())
 }
 
@@ -36,8 +37,8 @@ func gammaWeight(pc *propCase) float64 {
 // eigenvectors of the Hermitian D(q), Σ_k |e_k⟩⟨e_k| = 1, whose site-s
 // block has trace p (linear algebra; common practice).
 func TestPropertyDOSNormalization(t *testing.T) {
-	ctx := specCtx(t)
-	for _, pc := range propCases(t) {
+	ctx := testmodels.Ctx(t)
+	for _, pc := range testmodels.PropCases(t) {
 		g, err := pc.M.GridModes(ctx, pc.Spec, physics.GridOptions{Projections: true})
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
@@ -48,7 +49,7 @@ func TestPropertyDOSNormalization(t *testing.T) {
 			if method == spectra.Gaussian {
 				// Any width will do; a fiftieth of the top is between the
 				// defaults of the 1D and 3D grids here.
-				top := maxAbs(g.FreqTHz)
+				top := testmodels.MaxAbs(g.FreqTHz)
 				opt.Width = top / 50
 				opt.Min, opt.Max = -9*opt.Width, top+9*opt.Width
 			}
@@ -58,7 +59,7 @@ func TestPropertyDOSNormalization(t *testing.T) {
 			}
 			opt.PerSite = true
 			proj := mustDOS(t, pc.M, g, opt)
-			peak := maxAbs(plain.DOS)
+			peak := testmodels.MaxAbs(plain.DOS)
 			sum := make([]float64, len(plain.DOS))
 			for s, d := range proj.Sites {
 				if got := integral(proj, d); math.Abs(got-float64(pc.M.Polarizations())) > 1e-9*want {
@@ -103,14 +104,14 @@ func propTemps(rng *rand.Rand, topTHz float64) []float64 {
 // and p·sites − p/N, p/N being the weight of the acoustic zero modes at Γ,
 // the only modes a rigid model leaves out.
 func TestPropertyThermalLimits(t *testing.T) {
-	ctx := specCtx(t)
-	for _, pc := range propCases(t) {
+	ctx := testmodels.Ctx(t)
+	for _, pc := range testmodels.PropCases(t) {
 		g, err := pc.M.GridModes(ctx, pc.Spec, physics.GridOptions{})
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
 		}
-		top := maxAbs(g.FreqTHz)
-		temps := propTemps(propRNG(pc.Seed), top)
+		top := testmodels.MaxAbs(g.FreqTHz)
+		temps := propTemps(testmodels.PropRNG(pc.Seed), top)
 		states := float64(pc.M.Polarizations() * pc.M.Sites())
 		for _, route := range []ThermalRoute{ModeSum, DOSIntegral} {
 			r, err := ComputeThermal(ctx, pc.M, g, ThermalOptions{TempsK: temps, Route: route})
@@ -240,18 +241,18 @@ func branchSpread(g *physics.GridModes, dim int) []float64 {
 //     sup|c′|·(Step/2)·p·sites (each state displaced by at most half a
 //     bin).
 func TestPropertyThermalRoutes(t *testing.T) {
-	ctx := specCtx(t)
+	ctx := testmodels.Ctx(t)
 	e1, e2 := supDeriv(einsteinC) // of E(x)
 	u1, u2 := supDeriv(einsteinU) // of (x/2)coth(x/2)
 	kB := physics.BoltzmannEVPerK
 	worst := map[string]float64{} // largest difference / bound, for -v
 	defer func() { t.Logf("largest difference as a fraction of its bound: %v", worst) }()
-	for _, pc := range propCases(t) {
+	for _, pc := range testmodels.PropCases(t) {
 		g, err := pc.M.GridModes(ctx, pc.Spec, physics.GridOptions{})
 		if err != nil {
 			t.Fatalf("%v\n%v", err, pc)
 		}
-		top := maxAbs(g.FreqTHz)
+		top := testmodels.MaxAbs(g.FreqTHz)
 		states := float64(pc.M.Polarizations() * pc.M.Sites())
 		gw := gammaWeight(pc)
 		var temps []float64
@@ -300,12 +301,12 @@ func TestPropertyThermalRoutes(t *testing.T) {
 // checkFiniteHistogram is the finite-crystal part of
 // TestPropertyThermalRoutes. It returns the largest difference as a
 // fraction of its bound.
-func checkFiniteHistogram(t *testing.T, pc *propCase, e1 float64) float64 {
+func checkFiniteHistogram(t *testing.T, pc *testmodels.PropCase, e1 float64) float64 {
 	t.Helper()
 	spec := pc.Spec
 	spec.Finite = true
-	g := modesOn(t, pc.M, spec, physics.GridOptions{})
-	top := maxAbs(g.FreqTHz)
+	g := testmodels.Modes(t, pc.M, spec, physics.GridOptions{})
+	top := testmodels.MaxAbs(g.FreqTHz)
 	step := top / 20000
 	h := mustDOS(t, pc.M, g, spectra.DOSOptions{Method: spectra.Histogram, Min: 0, Max: 1.0001 * top, Step: step})
 	states := float64(pc.M.Polarizations() * pc.M.Sites())

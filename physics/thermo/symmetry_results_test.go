@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -43,22 +44,22 @@ func TestReducedResultsEqualFull(t *testing.T) {
 		n    int
 	}
 	var cases []tc
-	for _, name := range exampleNames(t) {
+	for _, name := range testmodels.Names(t) {
 		n := 64
-		switch len(loadExample(t, name).Lattice) {
+		switch len(testmodels.Load(t, name).Lattice) {
 		case 2:
 			n = 16
 		case 3:
 			n = 8
 		}
-		cases = append(cases, tc{name, loadExample(t, name), n})
+		cases = append(cases, tc{name, testmodels.Load(t, name), n})
 	}
-	cases = append(cases, tc{"triclinic", triclinic(), 6}, tc{"fcc+bond", brokenFCC(t), 8})
+	cases = append(cases, tc{"triclinic", testmodels.Triclinic(), 6}, tc{"fcc+bond", testmodels.BrokenFCC(t), 8})
 	ctx := context.Background()
 	temps := []float64{0, 1, 10, 50, 300, 1000}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			m := mustCompile(t, c.c)
+			m := testmodels.Compile(t, c.c)
 			var msh [3]int
 			for k := range msh {
 				msh[k] = 1
@@ -128,7 +129,7 @@ func TestReducedResultsEqualFull(t *testing.T) {
 // whatever the core count (replicas behind one balancer must return
 // identical answers; common practice for reproducible services).
 func TestDOSDeterministic(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "rocksalt-like"))
+	m := testmodels.Compile(t, testmodels.Load(t, "rocksalt-like"))
 	ctx := context.Background()
 	run := func(procs int) (*spectra.DOSResult, *spectra.DOSResult, *ThermalResult) {
 		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))

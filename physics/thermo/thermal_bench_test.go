@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // BenchmarkThermal times ComputeThermal at 1 000 temperatures (2 K to
@@ -26,7 +27,7 @@ func BenchmarkThermal(b *testing.B) {
 			name += "-msd"
 		}
 		b.Run(name, func(b *testing.B) {
-			m, g := benchModes(b, "rocksalt-like", tc.n, physics.GridOptions{Eigenvectors: tc.msd})
+			m, g := testmodels.BenchGrid(b, "rocksalt-like", tc.n, physics.GridOptions{Eigenvectors: tc.msd})
 			b.ResetTimer()
 			for b.Loop() {
 				r, err := ComputeThermal(context.Background(), m, g, ThermalOptions{TempsK: temps, MSD: tc.msd})
@@ -38,7 +39,7 @@ func BenchmarkThermal(b *testing.B) {
 		})
 	}
 	b.Run("n=48-direct", func(b *testing.B) {
-		m, g := benchModes(b, "rocksalt-like", 48, physics.GridOptions{})
+		m, g := testmodels.BenchGrid(b, "rocksalt-like", 48, physics.GridOptions{})
 		b.ResetTimer()
 		for b.Loop() {
 			r, err := computeThermal(context.Background(), m, g, ThermalOptions{TempsK: temps}, evalDirect)

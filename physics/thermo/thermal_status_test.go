@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
@@ -53,10 +54,10 @@ func TestStiffnessContrastChain(t *testing.T) {
 		k1, k2 = 1.0, 1e-12 // eV/Å²
 		n      = 16
 	)
-	c := loadExample(t, "diatomic-chain")
+	c := testmodels.Load(t, "diatomic-chain")
 	c.Springs[0].KLong, c.Springs[1].KLong = k1, k2
-	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
+	m := testmodels.Compile(t, c)
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
 	temps := []float64{1e-4, 1, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 
@@ -107,7 +108,7 @@ func TestStiffnessContrastChain(t *testing.T) {
 // Tolerance 1e-9: rounding over 4M terms.
 func TestChainLowTLargeGrid(t *testing.T) {
 	const n = 1 << 22
-	m := mustCompile(t, loadExample(t, "chain")) // K = 1.5 eV/Å², M = 40 amu
+	m := testmodels.Compile(t, testmodels.Load(t, "chain")) // K = 1.5 eV/Å², M = 40 amu
 	numax := 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz
 	if f := m.FrequenciesTHz([3]float64{0.5}); relDiff(f[0], numax) > 1e-12 {
 		t.Fatalf("zone-boundary frequency %g THz; closed form %g", f[0], numax)
@@ -159,7 +160,7 @@ func TestThetaStatus(t *testing.T) {
 	}
 	var runs []run
 	for _, side := range []int{8, 32, 64} {
-		m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{side, side, side}}, physics.GridOptions{})
+		m, g := testmodels.Grid(t, "fcc", mesh.GridSpec{Mesh: [3]int{side, side, side}}, physics.GridOptions{})
 		for _, route := range []ThermalRoute{ModeSum, DOSIntegral} {
 			runs = append(runs, run{side, route, mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: route})})
 		}
@@ -205,10 +206,10 @@ func TestThetaStatus(t *testing.T) {
 // = ½ there). At 1e-5 K (T/θ ≈ 0.02) on 10 000 points it is determined and
 // within 1 % of the elastic θ_D (Kittel ch. 5: the low-T limit).
 func TestThetaIllConditioned(t *testing.T) {
-	c := loadExample(t, "chain")
+	c := testmodels.Load(t, "chain")
 	c.Springs[0].KLong *= 1e-12
-	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
+	m := testmodels.Compile(t, c)
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e-5, 1000}})
 	if p := r.Points[1]; p.ThetaDStatus != ThetaIllConditioned || p.ThetaDK != 0 || p.ThetaDReason == "" {
 		t.Errorf("1000 K: θ_D %g K (%v, %q); want ill-conditioned", p.ThetaDK, p.ThetaDStatus, p.ThetaDReason)
@@ -228,7 +229,7 @@ func TestThetaIllConditioned(t *testing.T) {
 func TestMSDDivergentFlag(t *testing.T) {
 	temps := []float64{0, 300}
 	msd := func(name string, spec mesh.GridSpec) *ThermalResult {
-		m, g := exampleGrid(t, name, spec, physics.GridOptions{Eigenvectors: true})
+		m, g := testmodels.Grid(t, name, spec, physics.GridOptions{Eigenvectors: true})
 		return mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true})
 	}
 	check := func(what string, r *ThermalResult, want []bool) {
@@ -263,7 +264,7 @@ func TestMSDDivergentFlag(t *testing.T) {
 			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{3, 0, 0, 0, 3, 0, 0, 0, 3}},
 		},
 	}
-	m := mustCompile(t, pinned)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{Eigenvectors: true})
+	m := testmodels.Compile(t, pinned)
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{Eigenvectors: true})
 	check("pinned chain", mustThermal(t, m, g, ThermalOptions{TempsK: temps, MSD: true}), []bool{false, false})
 }

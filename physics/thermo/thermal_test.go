@@ -8,13 +8,14 @@ import (
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
 func mustThermal(t testing.TB, m *physics.Model, g *physics.GridModes, opt ThermalOptions) *ThermalResult {
 	t.Helper()
-	r, err := ComputeThermal(specCtx(t), m, g, opt)
+	r, err := ComputeThermal(testmodels.Ctx(t), m, g, opt)
 	if err != nil {
 		t.Fatalf("ComputeThermal: %v", err)
 	}
@@ -71,8 +72,8 @@ func TestEinsteinFunctions(t *testing.T) {
 // per cell, U = 3hν(½ + n), S and Cv three times the Einstein functions
 // (Einstein 1907; Kittel ch. 5) and ZPE = 3hν/2, on any grid.
 func TestEinsteinCrystal(t *testing.T) {
-	m := mustCompile(t, einsteinCrystal())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{3, 3, 3}}, physics.GridOptions{})
+	m := testmodels.Compile(t, einsteinCrystal())
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{3, 3, 3}}, physics.GridOptions{})
 	thetaE := einsteinNuTHz * physics.THzToKelvin
 	xs := []float64{0.5, 1, 2, 5, 10}
 	cs := []float64{0.979424522, 0.920673594, 0.724061661, 0.170741822, 0.004540405} // C/k = x²eˣ/(eˣ−1)² at each x, to 9 digits
@@ -110,7 +111,7 @@ func TestEinsteinCrystal(t *testing.T) {
 // independently of the modes.
 func TestDulongPetit(t *testing.T) {
 	for _, name := range []string{"fcc", "rocksalt-like"} {
-		m, g := exampleGrid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
+		m, g := testmodels.Grid(t, name, mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{})
 		r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e6}})
 		// Per mole of cells, less the weight of the three Γ zero modes.
 		perSite := physics.EVPerKToJPerMolK(r.Points[0].CveVPerK) / float64(m.Sites()) * float64(m.ModeCount()) / r.ModesPerCell
@@ -118,7 +119,7 @@ func TestDulongPetit(t *testing.T) {
 			t.Errorf("%s: Cv at 10⁶ K = %.8f J/(mol·K) per site; want 3R = 24.94338785", name, perSite)
 		}
 	}
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "fcc", mesh.GridSpec{Mesh: [3]int{8, 8, 8}}, physics.GridOptions{})
 	const k, mass = 1.2, 60.0 // proto/examples/fcc.json
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{1e4}})
 	// ⟨x²⟩ over the summed modes: Σ w ν² = 3·4K/M·ν_unit², spread over
@@ -152,7 +153,7 @@ func TestLowTExponents(t *testing.T) {
 		{"fcc", [3]int{24, 24, 24}, DOSIntegral, 1, 3, 0.03},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
+			m, g := testmodels.Grid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
 			r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{tc.t1, 2 * tc.t1}, Route: tc.route})
 			exp := math.Log2(r.Points[1].CveVPerK / r.Points[0].CveVPerK)
 			if math.Abs(exp-tc.want) > tc.tol {
@@ -185,7 +186,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 		{"rocksalt-like", [3]int{6, 6, 6}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
+			m, g := testmodels.Grid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{})
 			for _, temp := range []float64{5, 50, 300, 2000} {
 				h := 1e-3 * temp
 				r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{temp - h, temp - h/2, temp, temp + h/2, temp + h}})
@@ -221,7 +222,7 @@ func TestThermodynamicConsistency(t *testing.T) {
 // spectrum; common practice) to 2e-3 for T ≥ 100 K (measured ≤ 7.3e-4, the
 // entropy at 100 K; the zero-point energy to 1e-8).
 func TestModeSumVsDOSIntegral(t *testing.T) {
-	m, g := exampleGrid(t, "fcc", mesh.GridSpec{Mesh: [3]int{24, 24, 24}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "fcc", mesh.GridSpec{Mesh: [3]int{24, 24, 24}}, physics.GridOptions{})
 	temps := []float64{100, 300, 1000}
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: DOSIntegral})
@@ -256,7 +257,7 @@ func TestThermalWeights(t *testing.T) {
 		{"diatomic-chain", mesh.GridSpec{Mesh: [3]int{9}}, 1},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, tc.spec, physics.GridOptions{})
+			m, g := testmodels.Grid(t, tc.name, tc.spec, physics.GridOptions{})
 			sum := 0.0
 			for _, p := range g.Points {
 				sum += p.Weight
@@ -282,7 +283,7 @@ func TestThermalWeights(t *testing.T) {
 // above, the values join continuously (common practice: the limits of the
 // Bose–Einstein sums).
 func TestZeroKelvin(t *testing.T) {
-	m, g := exampleGrid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
+	m, g := testmodels.Grid(t, "rocksalt-like", mesh.GridSpec{Mesh: [3]int{6, 6, 6}}, physics.GridOptions{Eigenvectors: true})
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: []float64{0, 0.01}, MSD: true})
 	z, near := r.Points[0], r.Points[1]
 	if z.UeV != r.ZPEeV || z.FeV != r.ZPEeV || z.SeVPerK != 0 || z.CveVPerK != 0 {
@@ -304,9 +305,9 @@ func TestZeroKelvin(t *testing.T) {
 // TestUnstable: imaginary modes make ComputeThermal fail with ErrUnstable
 // unless allowed; allowed, they are left out and counted.
 func TestUnstable(t *testing.T) {
-	m := mustCompile(t, unstableChain())
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
-	_, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{300}})
+	m := testmodels.Compile(t, testmodels.UnstableChain())
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
+	_, err := ComputeThermal(testmodels.Ctx(t), m, g, ThermalOptions{TempsK: []float64{300}})
 	if !errors.Is(err, ErrUnstable) {
 		t.Fatalf("got %v; want an error wrapping ErrUnstable", err)
 	}
@@ -325,7 +326,7 @@ func TestUnstable(t *testing.T) {
 // (allowed wavevectors: common practice; dispersion: Kittel ch. 4), and at
 // low T it falls far below the bulk, which has modes down to ν → 0.
 func TestFiniteCrystal(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10}, Finite: true}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{10}, Finite: true}, physics.GridOptions{})
 	temps := []float64{5, 30, 300}
 	r := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	for i, temp := range temps {
@@ -334,7 +335,7 @@ func TestFiniteCrystal(t *testing.T) {
 			if n == 0 {
 				continue
 			}
-			nu := chainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/10))
+			nu := testmodels.ChainNuMaxTHz * math.Abs(math.Sin(math.Pi*float64(n)/10))
 			x := nu * physics.THzToKelvin / temp
 			cv += x * x * math.Exp(x) / (math.Expm1(x) * math.Expm1(x)) / 10
 			u += nu * physics.THzToEV * (0.5 + 1/math.Expm1(x)) / 10
@@ -346,7 +347,7 @@ func TestFiniteCrystal(t *testing.T) {
 			t.Errorf("T=%g: U = %.15g; exact sum %.15g", temp, r.Points[i].UeV, u)
 		}
 	}
-	_, bulkG := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
+	_, bulkG := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{10000}}, physics.GridOptions{})
 	bulk := mustThermal(t, m, bulkG, ThermalOptions{TempsK: temps[:1]})
 	if !(r.Points[0].CveVPerK < 0.5*bulk.Points[0].CveVPerK) {
 		t.Errorf("Cv at 5 K: 10-cell ring %g, bulk %g; want the ring far below", r.Points[0].CveVPerK, bulk.Points[0].CveVPerK)
@@ -366,17 +367,17 @@ func TestSeriesMatchesDirect(t *testing.T) {
 		{"square-net", [3]int{64, 64}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, g := exampleGrid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Eigenvectors: true})
+			m, g := testmodels.Grid(t, tc.name, mesh.GridSpec{Mesh: tc.mesh}, physics.GridOptions{Eigenvectors: true})
 			var temps []float64
 			for e := -2.0; e <= 5; e += 0.1 {
 				temps = append(temps, math.Pow(10, e))
 			}
 			opt := ThermalOptions{TempsK: temps, MSD: true}
-			d, err := computeThermal(specCtx(t), m, g, opt, evalDirect)
+			d, err := computeThermal(testmodels.Ctx(t), m, g, opt, evalDirect)
 			if err != nil {
 				t.Fatal(err)
 			}
-			s, err := computeThermal(specCtx(t), m, g, opt, evalTree)
+			s, err := computeThermal(testmodels.Ctx(t), m, g, opt, evalTree)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -415,7 +416,7 @@ func TestPerMole(t *testing.T) {
 // TestThermalValidation: bad options are refused with every violation
 // named by its field; MSD needs eigenvectors.
 func TestThermalValidation(t *testing.T) {
-	m, g := exampleGrid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
+	m, g := testmodels.Grid(t, "chain", mesh.GridSpec{Mesh: [3]int{16}}, physics.GridOptions{})
 	for _, tc := range []struct {
 		name   string
 		opt    ThermalOptions
@@ -427,7 +428,7 @@ func TestThermalValidation(t *testing.T) {
 		{"route", ThermalOptions{TempsK: []float64{1}, Route: 9}, []string{"route"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := ComputeThermal(specCtx(t), m, g, tc.opt)
+			_, err := ComputeThermal(testmodels.Ctx(t), m, g, tc.opt)
 			var ve *physics.ValidationError
 			if !errors.As(err, &ve) {
 				t.Fatalf("got %v; want a *ValidationError", err)
@@ -441,7 +442,7 @@ func TestThermalValidation(t *testing.T) {
 			}
 		})
 	}
-	if _, err := ComputeThermal(specCtx(t), m, g, ThermalOptions{TempsK: []float64{1}, MSD: true}); err == nil {
+	if _, err := ComputeThermal(testmodels.Ctx(t), m, g, ThermalOptions{TempsK: []float64{1}, MSD: true}); err == nil {
 		t.Error("MSD without eigenvectors: no error")
 	}
 	ctx, cancel := context.WithCancel(context.Background())
@@ -466,12 +467,12 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 			{From: 0, To: 0, Cell: []int{0}, Phi: []float64{2 * (1 - 1e-5), 0, 0, 0, 2, 0, 0, 0, 2}},
 		},
 	}
-	m := mustCompile(t, c)
-	g := modesOn(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
+	m := testmodels.Compile(t, c)
+	g := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{100}}, physics.GridOptions{})
 	if g.FreqTHz[0] >= -m.EigenTolTHz() {
 		t.Fatalf("Γ mode %g THz is not below −EigenTolTHz; the test needs it to be", g.FreqTHz[0])
 	}
-	if _, _, stable, err := m.Stability(specCtx(t), 100); err != nil || !stable {
+	if _, _, stable, err := m.Stability(testmodels.Ctx(t), 100); err != nil || !stable {
 		t.Fatalf("Stability: stable = %v, err = %v; the reference classification must be stable", stable, err)
 	}
 	if d := mustDOS(t, m, g, spectra.DOSOptions{}); d.Imaginary != 0 {
@@ -487,7 +488,7 @@ func TestGammaAcousticNotImaginary(t *testing.T) {
 // against hν give the T = 0 limits (S = 0, Cv = 0, U = F = zero-point
 // energy; the third law, Kittel ch. 5), not NaN — found by fuzzing.
 func TestThermalTinyTemperature(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "chain"))
+	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
 	g, err := m.GridModes(context.Background(), mesh.GridSpec{Mesh: [3]int{8}}, physics.GridOptions{})
 	if err != nil {
 		t.Fatal(err)
