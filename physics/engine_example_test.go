@@ -8,23 +8,14 @@ import (
 	"fmt"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
-
-// chain is a monatomic chain: a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å².
-func chain() *physics.Crystal {
-	return &physics.Crystal{
-		Lattice:       [][3]float64{{2.5, 0, 0}},
-		Polarizations: 1,
-		Sites:         []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs:       []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
-	}
-}
 
 // The zone-boundary frequency of the chain is 2 sqrt(K/M)·15.6333042 THz
 // = 6.05477 THz (Kittel ch. 4), its speed of sound a sqrt(K/M)·9.82269
 // km/s = 4.75537 km/s; along Γ–X, ν = 6.05477 sin(πq) THz.
 func ExampleCompile() {
-	m, err := physics.Compile(context.Background(), chain(), physics.Options{})
+	m, err := physics.Compile(context.Background(), testmodels.Chain(), physics.Options{})
 	if err != nil {
 		fmt.Println(err)
 		return
@@ -45,7 +36,7 @@ func ExampleCompile() {
 
 // Validation reports every problem at once, each with its field.
 func ExampleValidate() {
-	c := chain()
+	c := testmodels.Chain()
 	c.Sites[0].MassAmu = -40
 	c.Springs[0].To = 3
 	err := physics.Validate(c, physics.Limits{})
@@ -59,7 +50,7 @@ func ExampleValidate() {
 
 // A path through built-in labels, five samples shared by length.
 func ExampleModel_Dispersion() {
-	m, _ := physics.Compile(context.Background(), chain(), physics.Options{})
+	m, _ := physics.Compile(context.Background(), testmodels.Chain(), physics.Options{})
 	s, err := m.Dispersion(context.Background(), []physics.PathCorner{{Label: "G"}, {Label: "X"}}, physics.PathOptions{Points: 5})
 	if err != nil {
 		fmt.Println(err)
@@ -78,8 +69,8 @@ func ExampleModel_Dispersion() {
 
 // The hash is that of the physics: the same chain in N/m hashes alike.
 func ExampleModel_Hash() {
-	a, _ := physics.Compile(context.Background(), chain(), physics.Options{})
-	c := chain()
+	a, _ := physics.Compile(context.Background(), testmodels.Chain(), physics.Options{})
+	c := testmodels.Chain()
 	c.ForceUnit = physics.NPerM
 	c.Springs[0].KLong = 1.5 * 16.02176634
 	b, _ := physics.Compile(context.Background(), c, physics.Options{})

@@ -5,29 +5,20 @@ import (
 	"fmt"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
-
-// A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
-func exampleChain() *physics.Model {
-	m, err := physics.Compile(context.Background(), &physics.Crystal{
-		Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites:   []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
-	}, physics.Options{})
-	if err != nil {
-		panic(err)
-	}
-	return m
-}
 
 // The density of states of a chain by linear segments, in meV: ν_max =
 // 25.04 meV, and N(ν) follows (2/π) arcsin(ν/ν_max) (Ashcroft & Mermin
 // ch. 23), e.g. 0.1280 at 5 meV; g is the bin average over ±2.5 meV.
 func ExampleComputeDOS() {
 	ctx := context.Background()
-	m := exampleChain()
+	m, err := physics.Compile(ctx, testmodels.Chain(), physics.Options{}) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²
+	if err != nil {
+		panic(err)
+	}
 	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
 	if err != nil {
 		panic(err)

@@ -5,22 +5,10 @@ import (
 	"fmt"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/thermo"
 )
-
-// A monatomic chain: K = 1.5 eV/Å², M = 40 amu, a = 2.5 Å.
-func exampleChain() *physics.Model {
-	m, err := physics.Compile(context.Background(), &physics.Crystal{
-		Lattice: [][3]float64{{2.5, 0, 0}}, Polarizations: 1,
-		Sites:   []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
-		Springs: []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
-	}, physics.Options{})
-	if err != nil {
-		panic(err)
-	}
-	return m
-}
 
 // Heat capacity and entropy of a chain per mole of cells, and its Debye
 // temperatures. The zero-point energy is hν_max/π per cell (⟨ν⟩ = 2ν_max/π
@@ -30,7 +18,10 @@ func exampleChain() *physics.Model {
 // before using ThetaDK.
 func ExampleComputeThermal() {
 	ctx := context.Background()
-	m := exampleChain()
+	m, err := physics.Compile(ctx, testmodels.Chain(), physics.Options{}) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²
+	if err != nil {
+		panic(err)
+	}
 	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
 	if err != nil {
 		panic(err)

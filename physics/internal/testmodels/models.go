@@ -200,3 +200,14 @@ func BenchGrid(b testing.TB, name string, n int, opt physics.GridOptions) (*phys
 	}
 	return m, g
 }
+
+// Chain is the monatomic chain of the packages' examples: a = 2.5 Å,
+// M = 40 amu, K = 1.5 eV/Å² (the numbers of proto/examples/chain.json).
+func Chain() *physics.Crystal {
+	return &physics.Crystal{
+		Lattice:       [][3]float64{{2.5, 0, 0}},
+		Polarizations: 1,
+		Sites:         []physics.Site{{Label: "A", MassAmu: 40, Frac: []float64{0}}},
+		Springs:       []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
+	}
+}
