@@ -2,7 +2,6 @@ package physics_test
 
 import (
 	"context"
-	"errors"
 	"math"
 	"strings"
 	"testing"
@@ -12,20 +11,6 @@ import (
 
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
-
-// violationFields returns the field names of a *ValidationError (nil for
-// another error).
-func violationFields(err error) []string {
-	var ve *physics.ValidationError
-	if !errors.As(err, &ve) {
-		return nil
-	}
-	var out []string
-	for _, v := range ve.Violations {
-		out = append(out, v.Field)
-	}
-	return out
-}
 
 // mustPanic runs fn and returns its panic message; the test fails if fn
 // does not panic with a "physics: " message.
@@ -50,15 +35,15 @@ func TestQOutOfDomain(t *testing.T) {
 	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	for _, x := range []float64{-1e308, 1e308, math.NaN(), math.Inf(1), -physics.MaxQ * (1 + 1e-15), 2e6} {
 		pts := []mesh.QPoint{{Q: [3]float64{0.1, 0, 0}, Weight: 1}, {Q: [3]float64{x, 0.2, 0}, Weight: 1}}
-		if got := violationFields(physics.ValidateQPoints(3, pts, "points")); len(got) != 1 || got[0] != "points[1].q1" {
+		if got := testmodels.ViolationFields(physics.ValidateQPoints(3, pts, "points")); len(got) != 1 || got[0] != "points[1].q1" {
 			t.Errorf("ValidateQPoints q1=%v: fields %v; want [points[1].q1]", x, got)
 		}
 		err := m.StreamModes(context.Background(), pts, physics.ModeOptions{}, func(physics.ModeChunk) error { return nil })
-		if got := violationFields(err); len(got) != 1 || got[0] != "points[1].q1" {
+		if got := testmodels.ViolationFields(err); len(got) != 1 || got[0] != "points[1].q1" {
 			t.Errorf("StreamModes q1=%v: %v; want a violation of points[1].q1", x, err)
 		}
 		corners := []physics.PathCorner{{Label: "G"}, {Q: [3]float64{0, 0, x}, HasQ: true}}
-		if _, err := m.Dispersion(context.Background(), corners, physics.PathOptions{Points: 5}); !strings.Contains(strings.Join(violationFields(err), ","), "path[1].q.q3") {
+		if _, err := m.Dispersion(context.Background(), corners, physics.PathOptions{Points: 5}); !strings.Contains(strings.Join(testmodels.ViolationFields(err), ","), "path[1].q.q3") {
 			t.Errorf("Dispersion q3=%v: %v; want a violation of path[1].q.q3", x, err)
 		}
 		q := [3]float64{x, 0, 0}
@@ -76,7 +61,7 @@ func TestQOutOfDomain(t *testing.T) {
 	mustPanic(t, "Point(VelocityDir)", func() { m.Point([3]float64{0.1}, physics.ModeOptions{Velocities: true, VelocityDir: bad}) })
 	mustPanic(t, "SoundVelocities", func() { _, _ = m.SoundVelocities(context.Background(), bad) })
 	err := m.StreamModes(context.Background(), []mesh.QPoint{{Q: [3]float64{0.1}}}, physics.ModeOptions{Velocities: true, VelocityDir: bad}, func(physics.ModeChunk) error { return nil })
-	if got := violationFields(err); len(got) != 1 || got[0] != "velocity_dir" {
+	if got := testmodels.ViolationFields(err); len(got) != 1 || got[0] != "velocity_dir" {
 		t.Errorf("StreamModes with a NaN VelocityDir: %v; want a violation of velocity_dir", err)
 	}
 }
@@ -107,11 +92,11 @@ func TestLargeQPeriodic(t *testing.T) {
 
 // TestNilCrystal: a nil crystal is a validation error, not a panic.
 func TestNilCrystal(t *testing.T) {
-	if got := violationFields(physics.Validate(nil, physics.Limits{})); len(got) != 1 || got[0] != "model" {
+	if got := testmodels.ViolationFields(physics.Validate(nil, physics.Limits{})); len(got) != 1 || got[0] != "model" {
 		t.Errorf("Validate(nil): fields %v; want [model]", got)
 	}
 	m, err := physics.Compile(context.Background(), nil, physics.Options{})
-	if got := violationFields(err); m != nil || len(got) != 1 || got[0] != "model" {
+	if got := testmodels.ViolationFields(err); m != nil || len(got) != 1 || got[0] != "model" {
 		t.Errorf("Compile(context.Background(), nil): %v, %v; want a violation of model", m, err)
 	}
 }
