@@ -1,27 +1,21 @@
 // Tests of the Hermitian eigensolver on the engine's dynamical matrices.
 
-package physics
+package physics_test
 
 import (
 	"math"
 	"math/cmplx"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/eigen"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
-
-func maxAbs(xs []float64) float64 {
-	var m float64
-	for _, x := range xs {
-		m = math.Max(m, math.Abs(x))
-	}
-	return m
-}
 
 // checkEigenpairs verifies H x_k = λ_k x_k and xᴴx = I to tol·scale.
 func checkEigenpairs(t *testing.T, h []complex128, n int, vals []float64, vecs []complex128, tol float64) {
 	t.Helper()
-	scale := math.Max(maxAbs(vals), 1e-300)
+	scale := math.Max(testmodels.MaxAbs(vals), 1e-300)
 	for k := 0; k < n; k++ {
 		x := vecs[k*n : (k+1)*n]
 		for r := 0; r < n; r++ {
@@ -54,14 +48,14 @@ func checkEigenpairs(t *testing.T, h []complex128, n int, vals []float64, vecs [
 // (folding); the eigenpairs still satisfy D x = λ x and xᴴx = I to 1e-11
 // and agree with gonum.
 func TestEigenDegenerateDynamicalMatrices(t *testing.T) {
-	m := mustCompile(t, supercell(t, supercell(t, loadExample(t, "rocksalt-like"), conventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
+	m := testmodels.Compile(t, testmodels.Supercell(t, testmodels.Supercell(t, testmodels.Load(t, "rocksalt-like"), testmodels.ConventionalCell), [3][3]int{{2, 0, 0}, {0, 2, 0}, {0, 0, 2}}))
 	n := m.ModeCount()
 	for _, q := range [][3]float64{{0, 0, 0}, {0.5, 0, 0}, {0.5, 0.5, 0.5}} {
 		d := m.DynamicalMatrix(q, nil)
 		vals, vecs := eigen.Hermitian(d, n, true)
 		want, _ := eigen.Embedded(d, n, false)
 		for k := range want {
-			if math.Abs(vals[k]-want[k]) > 1e-12*maxAbs(want) {
+			if math.Abs(vals[k]-want[k]) > 1e-12*testmodels.MaxAbs(want) {
 				t.Fatalf("q=%v λ%d = %v; gonum %v", q, k, vals[k], want[k])
 			}
 		}
@@ -74,12 +68,12 @@ func TestEigenDegenerateDynamicalMatrices(t *testing.T) {
 // solver's power-of-two scaling overflowed into NaN — found by fuzzing. At Γ
 // the acoustic frequencies are zero (acoustic sum rule; Kittel ch. 4).
 func TestTinyLatticeComponentFiniteAtGamma(t *testing.T) {
-	c := &Crystal{
+	c := &physics.Crystal{
 		Lattice: [][3]float64{{0, 1.4916681462400413e-154, 2}, {16.188339233398438, 0, 0}, {0, 16.188235294117646, 0}},
-		Sites:   []Site{{Label: "M", MassAmu: 40, Frac: []float64{0, 0, 0}}},
-		Shells:  []Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: 1}},
+		Sites:   []physics.Site{{Label: "M", MassAmu: 40, Frac: []float64{0, 0, 0}}},
+		Shells:  []physics.Shell{{FromLabel: "M", ToLabel: "M", Shell: 1, KLong: 1}},
 	}
-	m := mustCompile(t, c)
+	m := testmodels.Compile(t, c)
 	for _, f := range m.FrequenciesTHz([3]float64{}) {
 		if math.IsNaN(f) || math.Abs(f) > 1e-6 {
 			t.Errorf("Γ frequencies %v; want zeros", m.FrequenciesTHz([3]float64{}))

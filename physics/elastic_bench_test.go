@@ -1,8 +1,10 @@
-package physics
+package physics_test
 
 import (
 	"fmt"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // elasticSink keeps the benchmark results alive.
@@ -12,15 +14,15 @@ var elasticSink float64
 // fresh model of the rock-salt-like example and its n×n×n supercells
 // (2n³ sites), the long-wave limit included (it is cached per model).
 func BenchmarkElasticDebye(b *testing.B) {
-	base := loadExample(b, "rocksalt-like")
+	base := testmodels.Load(b, "rocksalt-like")
 	for _, n := range []int{1, 2, 3} {
-		c := supercell(b, base, [3][3]int{{n, 0, 0}, {0, n, 0}, {0, 0, n}})
+		c := testmodels.Supercell(b, base, [3][3]int{{n, 0, 0}, {0, n, 0}, {0, 0, n}})
 		b.Run(fmt.Sprintf("sites=%d", len(c.Sites)), func(b *testing.B) {
 			for i := 0; i < b.N; i++ {
 				b.StopTimer()
-				m := mustCompile(b, c)
+				m := testmodels.Compile(b, c)
 				b.StartTimer()
-				elasticSink = mustElasticTheta(b, m)
+				elasticSink = testmodels.ElasticTheta(b, m)
 			}
 		})
 	}

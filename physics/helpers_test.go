@@ -370,3 +370,12 @@ func exampleGrid(t testing.TB, name string, spec mesh.GridSpec, opt GridOptions)
 	m := mustCompile(t, loadExample(t, name))
 	return m, modesOn(t, m, spec, opt)
 }
+
+// maxAbs is the largest magnitude in xs (0 for none).
+func maxAbs(xs []float64) float64 {
+	var m float64
+	for _, x := range xs {
+		m = math.Max(m, math.Abs(x))
+	}
+	return m
+}

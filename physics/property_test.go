@@ -14,13 +14,24 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strconv"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-var propsN = flag.Int("props.n", 0, "random models per property test (0: the quick default of make test)")
+// propsN is the -props.n flag (random models per property test; 0: the
+// quick default of make test). The flag is defined by the test models
+// package, which the core's external tests link into this test binary.
+func propsN() int {
+	f := flag.Lookup("props.n")
+	if f == nil {
+		return 0
+	}
+	n, _ := strconv.Atoi(f.Value.String())
+	return n
+}
 
 // propDefaultN is the number of random models per property test in a
 // plain `go test`: enough to mix dimensions, site counts, polarizations and
@@ -43,8 +54,8 @@ var propRegressionSeeds = []uint64{20240905}
 // regression seeds.
 func propSeeds() []uint64 {
 	n := propDefaultN
-	if *propsN > 0 {
-		n = *propsN
+	if pn := propsN(); pn > 0 {
+		n = pn
 	}
 	var seeds []uint64
 	for i := 0; i < n; i++ {

@@ -1,1 +1,1 @@
-package physics
+package physics_test

@@ -1,4 +1,4 @@
-package physics
+package physics_test
 
 import (
 	"context"
@@ -6,6 +6,8 @@ import (
 	"math/cmplx"
 	"testing"
 
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/lattice"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
@@ -28,8 +30,8 @@ func TestSymmetryOperationCounts(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			m := mustCompile(t, loadExample(t, tc.name))
-			ops := mustSymmetry(t, m)
+			m := testmodels.Compile(t, testmodels.Load(t, tc.name))
+			ops := testmodels.Symmetry(t, m)
 			if len(ops) != tc.want {
 				t.Fatalf("got %d operations; want %d", len(ops), tc.want)
 			}
@@ -40,45 +42,14 @@ func TestSymmetryOperationCounts(t *testing.T) {
 	}
 }
 
-// triclinic is a two-site model with unequal springs along skewed lattice
-// vectors: no symmetry but the identity (and time reversal). Invented.
-func triclinic() *Crystal {
-	return &Crystal{
-		Lattice: [][3]float64{{3.1, 0, 0}, {0.4, 2.7, 0}, {0.3, 0.5, 3.4}},
-		Sites: []Site{
-			{Label: "A", MassAmu: 12, Frac: []float64{0, 0, 0}},
-			{Label: "B", MassAmu: 31, Frac: []float64{0.31, 0.22, 0.43}},
-		},
-		Springs: []Spring{
-			{From: 0, To: 1, Cell: []int{0, 0, 0}, KLong: 1.3, KTrans: 0.2},
-			{From: 0, To: 0, Cell: []int{1, 0, 0}, KLong: 0.7, KTrans: 0.1},
-			{From: 0, To: 0, Cell: []int{0, 1, 0}, KLong: 0.5, KTrans: 0.05},
-			{From: 0, To: 0, Cell: []int{0, 0, 1}, KLong: 0.9, KTrans: 0.15},
-			{From: 1, To: 1, Cell: []int{1, 0, 0}, KLong: 0.4, KTrans: 0.08},
-			{From: 1, To: 1, Cell: []int{0, 1, 0}, KLong: 0.6, KTrans: 0.03},
-			{From: 1, To: 1, Cell: []int{0, 0, 1}, KLong: 0.3, KTrans: 0.09},
-			{From: 1, To: 0, Cell: []int{1, 1, 1}, KLong: 0.8, KTrans: 0.11},
-		},
-	}
-}
-
-// brokenFCC is the fcc example with one extra spring along a single
-// nearest-neighbour direction: that spring breaks every operation that
-// does not map the bond ±a1 onto itself. Invented.
-func brokenFCC(t testing.TB) *Crystal {
-	c := loadExample(t, "fcc")
-	c.Springs = append(c.Springs, Spring{From: 0, To: 0, Cell: []int{1, 0, 0}, KLong: 0.3, KTrans: 0.05})
-	return c
-}
-
 func TestSymmetryBrokenAndTriclinic(t *testing.T) {
-	if n := len(mustSymmetry(t, mustCompile(t, triclinic()))); n != 1 {
+	if n := len(testmodels.Symmetry(t, testmodels.Compile(t, testmodels.Triclinic()))); n != 1 {
 		t.Errorf("triclinic: %d operations; want 1 (identity)", n)
 	}
 	// The bond a1 = (0, 2, 2) is kept (up to sign) by the operations of the
 	// cubic group fixing the axis [011] up to sign: a group of order 8 (mmm
 	// with a twofold axis along [011]; International Tables Vol. A).
-	if n := len(mustSymmetry(t, mustCompile(t, brokenFCC(t)))); n != 8 {
+	if n := len(testmodels.Symmetry(t, testmodels.Compile(t, testmodels.BrokenFCC(t)))); n != 8 {
 		t.Errorf("fcc with one extra bond: %d operations; want 8", n)
 	}
 }
@@ -91,7 +62,7 @@ func TestSymmetryBrokenAndTriclinic(t *testing.T) {
 // indices, and the points are grouped by their smallest image. From
 // memory: 8 points for N = 4 and 29 for N = 8.
 func TestIrreducibleCountsFCC(t *testing.T) {
-	m := mustCompile(t, loadExample(t, "fcc"))
+	m := testmodels.Compile(t, testmodels.Load(t, "fcc"))
 	sizes := []int{4, 8, 16, 48}
 	if testing.Short() {
 		sizes = sizes[:3]
@@ -125,7 +96,7 @@ func TestIrreducibleCountsFCC(t *testing.T) {
 	}
 }
 
-func bruteForceCubicOrbits(m *Model, n int) int {
+func bruteForceCubicOrbits(m *physics.Model, n int) int {
 	a, b := m.Lattice(), m.Reciprocal()
 	var mats [][3][3]float64
 	perms := [][3]int{{0, 1, 2}, {0, 2, 1}, {1, 0, 2}, {1, 2, 0}, {2, 0, 1}, {2, 1, 0}}
@@ -197,13 +168,13 @@ func bruteForceCubicOrbits(m *Model, n int) int {
 func TestReducedEqualsFull(t *testing.T) {
 	type tc struct {
 		name string
-		c    *Crystal
+		c    *physics.Crystal
 		mesh [3]int
 		sh   bool
 	}
 	var cases []tc
-	for _, name := range exampleNames(t) {
-		c := loadExample(t, name)
+	for _, name := range testmodels.Names(t) {
+		c := testmodels.Load(t, name)
 		mesh := [3]int{6, 1, 1}
 		switch len(c.Lattice) {
 		case 2:
@@ -213,12 +184,12 @@ func TestReducedEqualsFull(t *testing.T) {
 		}
 		cases = append(cases, tc{name, c, mesh, false}, tc{name + "/shifted", c, mesh, true})
 	}
-	cases = append(cases, tc{"triclinic", triclinic(), [3]int{3, 4, 5}, false}, tc{"fcc+bond", brokenFCC(t), [3]int{4, 4, 4}, false})
+	cases = append(cases, tc{"triclinic", testmodels.Triclinic(), [3]int{3, 4, 5}, false}, tc{"fcc+bond", testmodels.BrokenFCC(t), [3]int{4, 4, 4}, false})
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			m := mustCompile(t, c.c)
+			m := testmodels.Compile(t, c.c)
 			spec := mesh.GridSpec{Mesh: c.mesh, Shifted: c.sh}
-			opt := GridOptions{Projections: true, Eigenvectors: true, SiteTensors: true}
+			opt := physics.GridOptions{Projections: true, Eigenvectors: true, SiteTensors: true}
 			red, err := m.GridModes(context.Background(), spec, opt)
 			if err != nil {
 				t.Fatal(err)
@@ -269,7 +240,7 @@ func TestReducedEqualsFull(t *testing.T) {
 				// Unfolded eigenvectors are eigenvectors of D at that point.
 				d := m.DynamicalMatrix(full.Points[p].Q, nil)
 				for k := 0; k < nm; k++ {
-					lam := full.FreqTHz[p*nm+k] / NuUnitTHz
+					lam := full.FreqTHz[p*nm+k] / physics.NuUnitTHz
 					lam = math.Copysign(lam*lam, lam)
 					for r := 0; r < nm; r++ {
 						var s complex128

@@ -1,4 +1,4 @@
-package physics
+package physics_test
 
 import (
 	"context"
@@ -6,6 +6,9 @@ import (
 	"math"
 	"slices"
 	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 )
 
 // hcpTyped is an invented two-site hexagonal crystal on the sites of the
@@ -14,14 +17,14 @@ import (
 // and out-of-plane neighbours form separate shells), typed to 6 decimals
 // as a person would: 1/3 as 0.333333, a·√3/2 as 2.598076. shift moves the
 // second site along x by that many Å (a genuine distortion when non-zero).
-func hcpTyped(shiftA float64) *Crystal {
-	return &Crystal{
+func hcpTyped(shiftA float64) *physics.Crystal {
+	return &physics.Crystal{
 		Lattice: [][3]float64{{3, 0, 0}, {-1.5, 2.598076, 0}, {0, 0, 5.2}},
-		Sites: []Site{
+		Sites: []physics.Site{
 			{Label: "A", MassAmu: 24, Frac: []float64{0.333333, 0.666667, 0.25}},
 			{Label: "A", MassAmu: 24, Frac: []float64{0.666667 + shiftA/3, 0.333333, 0.75}},
 		},
-		Shells: []Shell{
+		Shells: []physics.Shell{
 			{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 3, KTrans: 0.4},
 			{FromLabel: "A", ToLabel: "A", Shell: 2, KLong: 2, KTrans: 0.3},
 		},
@@ -31,14 +34,14 @@ func hcpTyped(shiftA float64) *Crystal {
 // honeycombTyped is an invented honeycomb net of two equal sites at
 // (1/3, 2/3) and (2/3, 1/3) with a = 2.46 Å, typed to 6 decimals
 // (a·√3/2 = 2.130422), moving in 3 directions.
-func honeycombTyped() *Crystal {
-	return &Crystal{
+func honeycombTyped() *physics.Crystal {
+	return &physics.Crystal{
 		Lattice: [][3]float64{{2.46, 0, 0}, {-1.23, 2.130422, 0}},
-		Sites: []Site{
+		Sites: []physics.Site{
 			{Label: "A", MassAmu: 12, Frac: []float64{0.333333, 0.666667}},
 			{Label: "B", MassAmu: 12, Frac: []float64{0.666667, 0.333333}},
 		},
-		Shells: []Shell{
+		Shells: []physics.Shell{
 			{FromLabel: "A", ToLabel: "B", Shell: 1, KLong: 25, KTrans: 6},
 			{FromLabel: "A", ToLabel: "A", Shell: 1, KLong: 4, KTrans: 1},
 			{FromLabel: "B", ToLabel: "B", Shell: 1, KLong: 4, KTrans: 1},
@@ -46,9 +49,9 @@ func honeycombTyped() *Crystal {
 	}
 }
 
-func compileTol(t *testing.T, c *Crystal, tolA float64) *Model {
+func compileTol(t *testing.T, c *physics.Crystal, tolA float64) *physics.Model {
 	t.Helper()
-	m, err := Compile(context.Background(), c, Options{SymTolA: tolA})
+	m, err := physics.Compile(context.Background(), c, physics.Options{SymTolA: tolA})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -69,7 +72,7 @@ func compileTol(t *testing.T, c *Crystal, tolA float64) *Model {
 func TestSymmetryTolerance(t *testing.T) {
 	cases := []struct {
 		name string
-		c    *Crystal
+		c    *physics.Crystal
 		tolA float64
 		want int
 	}{
@@ -81,7 +84,7 @@ func TestSymmetryTolerance(t *testing.T) {
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			m := compileTol(t, tc.c, tc.tolA)
-			if got := len(mustSymmetry(t, m)); got != tc.want {
+			if got := len(testmodels.Symmetry(t, m)); got != tc.want {
 				t.Errorf("%d operations; want %d", got, tc.want)
 			}
 		})
@@ -99,7 +102,7 @@ func TestSymmetryAtLooser(t *testing.T) {
 	if len(ops) != 24 {
 		t.Errorf("at 1e-4 Å: %d operations; want 24", len(ops))
 	}
-	if n := len(mustSymmetry(t, m)); n != 4 {
+	if n := len(testmodels.Symmetry(t, m)); n != 4 {
 		t.Errorf("the model's own tolerance: %d operations; want 4", n)
 	}
 }
@@ -108,7 +111,7 @@ func TestSymmetryAtLooser(t *testing.T) {
 // of the model's identity; a bad one is refused naming the field.
 func TestSymTolHashAndValidation(t *testing.T) {
 	def := compileTol(t, hcpTyped(0), 0)
-	same := compileTol(t, hcpTyped(0), DefaultSymTolA)
+	same := compileTol(t, hcpTyped(0), physics.DefaultSymTolA)
 	other := compileTol(t, hcpTyped(0), 1e-3)
 	if def.Hash() != same.Hash() {
 		t.Error("0 and the default tolerance give different hashes")
@@ -117,8 +120,8 @@ func TestSymTolHashAndValidation(t *testing.T) {
 		t.Error("tolerance 1e-3 Å gives the default's hash")
 	}
 	for _, bad := range []float64{-1e-4, math.NaN(), math.Inf(1), 1, 1e-12} {
-		_, err := Compile(context.Background(), hcpTyped(0), Options{SymTolA: bad})
-		var ve *ValidationError
+		_, err := physics.Compile(context.Background(), hcpTyped(0), physics.Options{SymTolA: bad})
+		var ve *physics.ValidationError
 		if !errors.As(err, &ve) || len(ve.Violations) != 1 || ve.Violations[0].Field != "symmetry_tolerance_a" {
 			t.Errorf("tolerance %v: error %v; want one violation of symmetry_tolerance_a", bad, err)
 		}
@@ -136,7 +139,7 @@ func TestSymTolHashAndValidation(t *testing.T) {
 func TestSymmetrize(t *testing.T) {
 	ctx := context.Background()
 	typed := hcpTyped(0)
-	sc, n, err := Symmetrize(ctx, typed, Options{})
+	sc, n, err := physics.Symmetrize(ctx, typed, physics.Options{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -149,7 +152,7 @@ func TestSymmetrize(t *testing.T) {
 		t.Error("symmetrisation kept the hash")
 	}
 	exact := compileTol(t, sc, 1e-9)
-	if got := len(mustSymmetry(t, exact)); got != 24 {
+	if got := len(testmodels.Symmetry(t, exact)); got != 24 {
 		t.Errorf("symmetrised model at 1e-9 Å: %d operations; want 24", got)
 	}
 	a1, a2 := sc.Lattice[0], sc.Lattice[1]
@@ -158,7 +161,7 @@ func TestSymmetrize(t *testing.T) {
 	if math.Abs(l1-l2) > 1e-12 || math.Abs(cos+0.5) > 1e-12 {
 		t.Errorf("symmetrised lattice |a1| = %.15g, |a2| = %.15g, cos = %.15g; want equal lengths at 120°", l1, l2, cos)
 	}
-	split := func(m *Model) float64 {
+	split := func(m *physics.Model) float64 {
 		s := slices.Clone(m.FrequenciesTHz([3]float64{}))
 		slices.Sort(s)
 		// s[3..5] are the optic modes; the E pair is the two closest.
@@ -176,14 +179,14 @@ func TestSymmetrize(t *testing.T) {
 // symmetric at the default tolerance: symmetrisation under the 4
 // operations it has leaves the distortion in place.
 func TestSymmetrizeKeepsDistortion(t *testing.T) {
-	sc, n, err := Symmetrize(context.Background(), hcpTyped(1e-2), Options{})
+	sc, n, err := physics.Symmetrize(context.Background(), hcpTyped(1e-2), physics.Options{})
 	if err != nil {
 		t.Fatal(err)
 	}
 	if n != 4 {
 		t.Fatalf("%d operations; want 4", n)
 	}
-	if got := len(mustSymmetry(t, compileTol(t, sc, 0))); got != 4 {
+	if got := len(testmodels.Symmetry(t, compileTol(t, sc, 0))); got != 4 {
 		t.Errorf("symmetrised distorted cell: %d operations; want 4", got)
 	}
 }

@@ -2,8 +2,8 @@
 // core (spectra, thermo) the example crystals of proto/examples compiled,
 // and crystal transformations (supercells, rotations, permutations, unit
 // changes). It is for tests only: no non-test package imports it. The
-// core's own tests keep an in-package copy of these helpers (an internal
-// test of package physics cannot import a package that imports physics).
+// core's external tests (package physics_test) use it too; its in-package
+// tests cannot (it imports physics) and still keep a copy of some helpers.
 package testmodels
 
 import (

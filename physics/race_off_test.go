@@ -1,5 +1,0 @@
-//go:build !race
-
-package physics
-
-const raceEnabled = false
