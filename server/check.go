@@ -23,6 +23,7 @@ func (s *Service) CheckModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	return resp, s.toStatus(ctx, "CheckModel", err)
 }
 
+// checkModel is CheckModel before the conversion of errors to statuses.
 func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequest) (*modegridv1.CheckModelResponse, error) {
 	var vs violations
 	var mvs violations // violations of the model itself, answered in the response
@@ -46,11 +47,7 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	mesh := s.cfg.StabilityMesh
 	canon := fmt.Sprintf("stability_mesh=%d", mesh)
 	if e == nil {
-		out := &modegridv1.CheckModelResponse{Parameters: canon}
-		for _, v := range mvs.List() {
-			out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, "model.crystal."), Description: v.Description})
-		}
-		return out, nil
+		return invalidModelResponse(canon, &mvs), nil
 	}
 	stab := s.stabilityEstimate(e, mesh)
 	s.budget.check(&vs, stab)
@@ -58,60 +55,10 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		return nil, err
 	}
 	resp, err := cachedResult(ctx, s, kindCheck, e.hash, canon, checkCodec, func(ctx context.Context) (*modegridv1.CheckModelResponse, error) {
-		m := e.m
-		out := &modegridv1.CheckModelResponse{
-			Valid:                   true,
-			ModelHash:               e.hash,
-			Parameters:              canon,
-			Dimensions:              uint32(m.Dim()),
-			Sites:                   uint32(m.Sites()),
-			Polarizations:           uint32(m.Polarizations()),
-			ModesPerCell:            uint32(m.ModeCount()),
-			SumRuleViolationEvPerA2: m.SumRuleViolation(),
-			LatticeType:             m.LatticeType(),
-		}
-		std := m.StandardPoints()
-		labels := make([]string, 0, len(std))
-		for l := range std {
-			labels = append(labels, l)
-		}
-		sort.Strings(labels)
-		for _, l := range labels {
-			q := std[l]
-			out.StandardPoints = append(out.StandardPoints, &modegridv1.PathPoint{Label: l, Q: &modegridv1.QPoint{Q1: q[0], Q2: q[1], Q3: q[2]}})
-		}
-		for _, c := range m.DefaultPath() {
-			out.DefaultPath = append(out.DefaultPath, &modegridv1.PathPoint{Label: c.Label, BreakBefore: c.BreakBefore})
-		}
-		out.TypicalCosts = s.typicalCosts(e)
+		out := s.modelSummary(e, canon)
 		err := s.admitted(ctx, stab, func(ctx context.Context) error {
 			return s.run(ctx, kindCheck, func(ctx context.Context) error {
-				d := m.Dim()
-				ops, err := m.Symmetry(ctx)
-				if err != nil {
-					return err
-				}
-				for _, op := range ops {
-					so := &modegridv1.SymmetryOperation{}
-					for i := 0; i < d; i++ {
-						for j := 0; j < d; j++ {
-							so.Rotation = append(so.Rotation, int32(op.Rot[i][j]))
-						}
-						so.Translation = append(so.Translation, op.Trans[i])
-					}
-					out.Symmetry = append(out.Symmetry, so)
-				}
-				out.SymmetryToleranceA = m.SymTolA()
-				if out.SymmetryAtLooserTolerance, err = looserSymmetry(ctx, m); err != nil {
-					return err
-				}
-				lo, hi, stable, err := m.Stability(ctx, mesh)
-				if err != nil {
-					return err
-				}
-				s.met.qpoints.Add(float64(stabilityPoints(d, mesh)))
-				out.MinFrequencyThz, out.MaxFrequencyThz, out.Stable = lo, hi, stable
-				return nil
+				return s.checkSymmetryAndStability(ctx, e.m, mesh, out)
 			})
 		})
 		if err != nil {
@@ -123,6 +70,83 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 		return nil, err
 	}
 	return withDescription(resp, e), nil
+}
+
+// invalidModelResponse is the answer for an inline model that does not
+// compile: not valid, every violation of the model listed (fields relative
+// to the crystal).
+func invalidModelResponse(canon string, mvs *violations) *modegridv1.CheckModelResponse {
+	out := &modegridv1.CheckModelResponse{Parameters: canon}
+	for _, v := range mvs.List() {
+		out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, "model.crystal."), Description: v.Description})
+	}
+	return out
+}
+
+// modelSummary is the part of a valid model's summary that needs no
+// computation: sizes, sum rule, lattice type, standard points (sorted by
+// label), default path and typical costs.
+func (s *Service) modelSummary(e *modelEntry, canon string) *modegridv1.CheckModelResponse {
+	m := e.m
+	out := &modegridv1.CheckModelResponse{
+		Valid:                   true,
+		ModelHash:               e.hash,
+		Parameters:              canon,
+		Dimensions:              uint32(m.Dim()),
+		Sites:                   uint32(m.Sites()),
+		Polarizations:           uint32(m.Polarizations()),
+		ModesPerCell:            uint32(m.ModeCount()),
+		SumRuleViolationEvPerA2: m.SumRuleViolation(),
+		LatticeType:             m.LatticeType(),
+	}
+	std := m.StandardPoints()
+	labels := make([]string, 0, len(std))
+	for l := range std {
+		labels = append(labels, l)
+	}
+	sort.Strings(labels)
+	for _, l := range labels {
+		q := std[l]
+		out.StandardPoints = append(out.StandardPoints, &modegridv1.PathPoint{Label: l, Q: &modegridv1.QPoint{Q1: q[0], Q2: q[1], Q3: q[2]}})
+	}
+	for _, c := range m.DefaultPath() {
+		out.DefaultPath = append(out.DefaultPath, &modegridv1.PathPoint{Label: c.Label, BreakBefore: c.BreakBefore})
+	}
+	out.TypicalCosts = s.typicalCosts(e)
+	return out
+}
+
+// checkSymmetryAndStability fills the computed part of the summary in
+// out: the symmetry operations, the tolerance and what a looser one would
+// find, and the stability scan on mesh (counted in the q-points metric).
+// It runs holding a computation slot.
+func (s *Service) checkSymmetryAndStability(ctx context.Context, m *physics.Model, mesh int, out *modegridv1.CheckModelResponse) error {
+	d := m.Dim()
+	ops, err := m.Symmetry(ctx)
+	if err != nil {
+		return err
+	}
+	for _, op := range ops {
+		so := &modegridv1.SymmetryOperation{}
+		for i := 0; i < d; i++ {
+			for j := 0; j < d; j++ {
+				so.Rotation = append(so.Rotation, int32(op.Rot[i][j]))
+			}
+			so.Translation = append(so.Translation, op.Trans[i])
+		}
+		out.Symmetry = append(out.Symmetry, so)
+	}
+	out.SymmetryToleranceA = m.SymTolA()
+	if out.SymmetryAtLooserTolerance, err = looserSymmetry(ctx, m); err != nil {
+		return err
+	}
+	lo, hi, stable, err := m.Stability(ctx, mesh)
+	if err != nil {
+		return err
+	}
+	s.met.qpoints.Add(float64(stabilityPoints(d, mesh)))
+	out.MinFrequencyThz, out.MaxFrequencyThz, out.Stable = lo, hi, stable
+	return nil
 }
 
 // withDescription adds to a cached summary what belongs to the

@@ -204,6 +204,19 @@ func (c Config) Validate() error {
 	bad := func(name, format string, args ...any) {
 		errs = append(errs, fmt.Errorf("%s: %s", name, fmt.Sprintf(format, args...)))
 	}
+	c.validateAddresses(bad)
+	c.validateLimits(bad)
+	c.validateDurations(bad)
+	c.validateTLS(bad)
+	return errors.Join(errs...)
+}
+
+// complaint records one problem of a setting (name) for Validate.
+type complaint func(name, format string, args ...any)
+
+// validateAddresses checks the listen addresses: host:port each (metrics
+// may be "off", health empty), and distinct unless ephemeral (":0").
+func (c Config) validateAddresses(bad complaint) {
 	for _, a := range []struct{ name, addr string }{{"listen", c.Listen}, {"metrics-listen", c.MetricsListen}, {"health-listen", c.HealthListen}} {
 		if (a.name == "metrics-listen" && a.addr == "off") || (a.name == "health-listen" && a.addr == "") {
 			continue
@@ -219,6 +232,12 @@ func (c Config) Validate() error {
 		(c.HealthListen == c.Listen || c.HealthListen == c.MetricsListen) {
 		bad("health-listen", "must differ from listen (%s) and metrics-listen (%s)", c.Listen, c.MetricsListen)
 	}
+}
+
+// validateLimits checks the counts and sizes: none negative, chunks at
+// most half a message, the stability mesh at most 64, the memory budget
+// not negative.
+func (c Config) validateLimits(bad complaint) {
 	positive := []struct {
 		name string
 		v    int
@@ -242,6 +261,10 @@ func (c Config) Validate() error {
 	if c.MemoryBudget < 0 {
 		bad("memory-budget", "must be ≥ 0 (0: derived from the memory limit), got %d", c.MemoryBudget)
 	}
+}
+
+// validateDurations checks the time limits and delays.
+func (c Config) validateDurations(bad complaint) {
 	if !(c.MaxComputeSeconds > 0) {
 		bad("max-compute-seconds", "must be > 0, got %v", c.MaxComputeSeconds)
 	}
@@ -254,13 +277,17 @@ func (c Config) Validate() error {
 	if c.ShutdownGrace < 0 {
 		bad("shutdown-grace", "must be > 0, got %v", c.ShutdownGrace)
 	}
+}
+
+// validateTLS checks that the certificate and key come together and that
+// a client CA comes with them.
+func (c Config) validateTLS(bad complaint) {
 	if (c.TLSCertFile == "") != (c.TLSKeyFile == "") {
 		bad("tls-cert/tls-key", "give both or neither (cert %q, key %q)", c.TLSCertFile, c.TLSKeyFile)
 	}
 	if c.ClientCAFile != "" && c.TLSCertFile == "" {
 		bad("client-ca", "mutual TLS needs tls-cert and tls-key")
 	}
-	return errors.Join(errs...)
 }
 
 // queueLen is the configured queue length, resolving negative to none.

@@ -61,59 +61,83 @@ type metrics struct {
 // store (server/cache/redis: larger than its per-entry cap).
 type skipCounter interface{ SkippedTooLarge() uint64 }
 
+// newMetrics creates the server's metrics and registers them on reg with
+// the scrape-time gauges of the gate g and the cache c (and of backend,
+// when it counts the values it skipped), the build info and the Go and
+// process collectors. Every label value known in advance is created, so
+// that its series reads 0 before the first event.
 func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend cache.Backend, version string) *metrics {
 	m := &metrics{
 		grpc: grpcprom.NewServerMetrics(
 			grpcprom.WithServerHandlingTimeHistogram(grpcprom.WithHistogramBuckets(latencyBuckets)),
 		),
-		computations: prometheus.NewCounterVec(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "computations_total",
-			Help: "Computations started (after cache misses), by kind.",
-		}, []string{"kind"}),
-		canceled: prometheus.NewCounterVec(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "computations_canceled_total",
-			Help: "Computations stopped early because every caller waiting for them cancelled or passed its deadline, by kind.",
-		}, []string{"kind"}),
-		rejected: prometheus.NewCounterVec(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "computations_rejected_total",
-			Help: "Computations refused with RESOURCE_EXHAUSTED, by reason (queue_full, wait_timeout).",
-		}, []string{"reason"}),
-		qpoints: prometheus.NewCounter(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "qpoints_diagonalized_total",
-			Help: "q-points at which a dynamical matrix was diagonalised.",
-		}),
-		computeSeconds: prometheus.NewHistogramVec(prometheus.HistogramOpts{
-			Namespace: "modegrid", Name: "compute_duration_seconds",
-			Help:    "Time spent computing (holding a computation slot), by kind.",
-			Buckets: latencyBuckets,
-		}, []string{"kind"}),
-		panics: prometheus.NewCounter(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "panics_recovered_total",
-			Help: "Panics recovered and answered with INTERNAL.",
-		}),
-		authFailures: prometheus.NewCounter(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "auth_failures_total",
-			Help: "Calls refused with UNAUTHENTICATED.",
-		}),
-		cacheIntegrity: prometheus.NewCounterVec(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "cache_integrity_failures_total",
-			Help: "Cache entries refused on read and computed again, by tier (memory, shared) and reason (key_mismatch, checksum, decode, version).",
-		}, []string{"tier", "reason"}),
-		undecodable: prometheus.NewCounterVec(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "requests_undecodable_total",
-			Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by service and method (labels as grpc_server_*).",
-		}, []string{"grpc_service", "grpc_method"}),
 	}
-	for _, tier := range []string{cache.TierMemory, cache.TierShared} {
-		for _, r := range []string{cache.ReasonKeyMismatch, cache.ReasonChecksum, cache.ReasonDecode, cache.ReasonVersion} {
-			m.cacheIntegrity.WithLabelValues(tier, r)
-		}
+	m.newComputationMetrics()
+	m.newRequestMetrics()
+	m.newCacheMetrics()
+	m.newAdmissionMetrics()
+	cs := []prometheus.Collector{
+		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.cacheIntegrity, m.undecodable, buildInfo(version),
 	}
+	cs = append(cs, admissionGauges(g)...)
+	cs = append(cs,
+		&cacheCollector{c: c},
+		collectors.NewGoCollector(),
+		collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}),
+	)
+	reg.MustRegister(cs...)
+	if sc, ok := backend.(skipCounter); ok {
+		reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{
+			Namespace: "modegrid", Name: "cache_backend_skipped_total",
+			Help: "Values the second-level cache did not store because they exceeded its per-entry size cap.",
+		}, func() float64 { return float64(sc.SkippedTooLarge()) }))
+	}
+	return m
+}
+
+// newComputationMetrics creates the computation metrics (started,
+// cancelled, q-points, time), with every computation kind.
+func (m *metrics) newComputationMetrics() {
+	m.computations = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "computations_total",
+		Help: "Computations started (after cache misses), by kind.",
+	}, []string{"kind"})
+	m.canceled = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "computations_canceled_total",
+		Help: "Computations stopped early because every caller waiting for them cancelled or passed its deadline, by kind.",
+	}, []string{"kind"})
+	m.qpoints = prometheus.NewCounter(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "qpoints_diagonalized_total",
+		Help: "q-points at which a dynamical matrix was diagonalised.",
+	})
+	m.computeSeconds = prometheus.NewHistogramVec(prometheus.HistogramOpts{
+		Namespace: "modegrid", Name: "compute_duration_seconds",
+		Help:    "Time spent computing (holding a computation slot), by kind.",
+		Buckets: latencyBuckets,
+	}, []string{"kind"})
 	for _, k := range computeKinds {
 		m.computations.WithLabelValues(k)
 		m.canceled.WithLabelValues(k)
 		m.computeSeconds.WithLabelValues(k)
 	}
+}
+
+// newRequestMetrics creates the request metrics beside the gRPC ones
+// (panics, authentication failures, undecodable requests), the last with
+// every method of the service.
+func (m *metrics) newRequestMetrics() {
+	m.panics = prometheus.NewCounter(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "panics_recovered_total",
+		Help: "Panics recovered and answered with INTERNAL.",
+	})
+	m.authFailures = prometheus.NewCounter(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "auth_failures_total",
+		Help: "Calls refused with UNAUTHENTICATED.",
+	})
+	m.undecodable = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "requests_undecodable_total",
+		Help: "Request messages whose bytes did not decode as their protobuf type (answered INVALID_ARGUMENT), by service and method (labels as grpc_server_*).",
+	}, []string{"grpc_service", "grpc_method"})
 	sd := modegridv1.ModegridService_ServiceDesc
 	for _, md := range sd.Methods {
 		m.undecodable.WithLabelValues(sd.ServiceName, md.MethodName)
@@ -121,16 +145,39 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 	for _, st := range sd.Streams {
 		m.undecodable.WithLabelValues(sd.ServiceName, st.StreamName)
 	}
+}
+
+// newCacheMetrics creates the cache integrity counter with every tier and
+// reason (the other cache figures are read at scrape time by
+// cacheCollector).
+func (m *metrics) newCacheMetrics() {
+	m.cacheIntegrity = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "cache_integrity_failures_total",
+		Help: "Cache entries refused on read and computed again, by tier (memory, shared) and reason (key_mismatch, checksum, decode, version).",
+	}, []string{"tier", "reason"})
+	for _, tier := range []string{cache.TierMemory, cache.TierShared} {
+		for _, r := range []string{cache.ReasonKeyMismatch, cache.ReasonChecksum, cache.ReasonDecode, cache.ReasonVersion} {
+			m.cacheIntegrity.WithLabelValues(tier, r)
+		}
+	}
+}
+
+// newAdmissionMetrics creates the counter of computations the gate
+// refused, with every reason.
+func (m *metrics) newAdmissionMetrics() {
+	m.rejected = prometheus.NewCounterVec(prometheus.CounterOpts{
+		Namespace: "modegrid", Name: "computations_rejected_total",
+		Help: "Computations refused with RESOURCE_EXHAUSTED, by reason (queue_full, wait_timeout).",
+	}, []string{"reason"})
 	for _, r := range []string{gate.ReasonQueueFull, gate.ReasonWaitTimeout} {
 		m.rejected.WithLabelValues(r)
 	}
-	build := prometheus.NewGaugeVec(prometheus.GaugeOpts{
-		Namespace: "modegrid", Name: "build_info",
-		Help: "Always 1; labels carry the build version and Go version.",
-	}, []string{"version", "goversion"})
-	build.WithLabelValues(version, runtime.Version()).Set(1)
-	reg.MustRegister(
-		m.grpc, m.computations, m.canceled, m.rejected, m.qpoints, m.computeSeconds, m.panics, m.authFailures, m.cacheIntegrity, m.undecodable, build,
+}
+
+// admissionGauges read the gate g at scrape time: computations holding a
+// slot, computations waiting, and the number of slots.
+func admissionGauges(g *gate.Gate) []prometheus.Collector {
+	return []prometheus.Collector{
 		prometheus.NewGaugeFunc(prometheus.GaugeOpts{
 			Namespace: "modegrid", Name: "computations_in_flight",
 			Help: "Computations holding a slot now.",
@@ -143,17 +190,18 @@ func newMetrics(reg prometheus.Registerer, g *gate.Gate, c *cache.Cache, backend
 			Namespace: "modegrid", Name: "computation_slots",
 			Help: "Computations admitted at once (max-concurrent).",
 		}, func() float64 { return float64(g.Slots()) }),
-		&cacheCollector{c: c},
-		collectors.NewGoCollector(),
-		collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}),
-	)
-	if sc, ok := backend.(skipCounter); ok {
-		reg.MustRegister(prometheus.NewCounterFunc(prometheus.CounterOpts{
-			Namespace: "modegrid", Name: "cache_backend_skipped_total",
-			Help: "Values the second-level cache did not store because they exceeded its per-entry size cap.",
-		}, func() float64 { return float64(sc.SkippedTooLarge()) }))
 	}
-	return m
+}
+
+// buildInfo is the constant build_info gauge: 1, labelled with the
+// build version and the Go version.
+func buildInfo(version string) prometheus.Collector {
+	build := prometheus.NewGaugeVec(prometheus.GaugeOpts{
+		Namespace: "modegrid", Name: "build_info",
+		Help: "Always 1; labels carry the build version and Go version.",
+	}, []string{"version", "goversion"})
+	build.WithLabelValues(version, runtime.Version()).Set(1)
+	return build
 }
 
 // cacheCollector exports cache.Stats at scrape time.

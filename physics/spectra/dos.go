@@ -127,22 +127,59 @@ const (
 // m; the tetrahedron method needs the full regular grid (in grid order),
 // PerSite needs g.SiteWeight.
 func ComputeDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt DOSOptions) (*DOSResult, error) {
-	if err := physics.CheckGridModes(m, g); err != nil {
+	if err := checkDOSInput(m, g, opt); err != nil {
 		return nil, err
-	}
-	if err := opt.validate(); err != nil {
-		return nil, err
-	}
-	if opt.PerSite && len(g.SiteWeight) != len(g.FreqTHz)*g.NSites {
-		return nil, errors.New("physics: per-site DOS needs grid modes with site weights (GridOptions.Projections)")
-	}
-	if opt.Method == Tetrahedron && len(g.Points) != g.Spec.Count() {
-		return nil, fmt.Errorf("physics: the tetrahedron method needs the full %d-point grid, got %d points", g.Spec.Count(), len(g.Points))
 	}
 	scale := opt.Unit.PerTHz()
 	st := Stats(g)
 	res := &DOSResult{Unit: opt.Unit, Imaginary: st.Imaginary, StatesPerCell: float64(g.NModes)}
+	w, err := dosWindowOf(m, g, opt, st, scale)
+	if err != nil {
+		return nil, err
+	}
+	res.Width = w.width
+	grid := newAnchoredCumGrid(w.lo, w.step/2, 1, 2*w.n+1)
+	acc, err := accumulateDOS(ctx, m, g, opt, scale, w.width, grid)
+	if err != nil {
+		return nil, err
+	}
+	tot, site := acc.totals()
+	res.fillTotal(tot, w)
+	if opt.PerSite {
+		res.fillProjections(m.Labels(), site, g.NSites, w)
+	}
+	return res, nil
+}
 
+// checkDOSInput checks the grid against the model, the options, and what
+// PerSite and the tetrahedron method need of the grid.
+func checkDOSInput(m *physics.Model, g *physics.GridModes, opt DOSOptions) error {
+	if err := physics.CheckGridModes(m, g); err != nil {
+		return err
+	}
+	if err := opt.validate(); err != nil {
+		return err
+	}
+	if opt.PerSite && len(g.SiteWeight) != len(g.FreqTHz)*g.NSites {
+		return errors.New("physics: per-site DOS needs grid modes with site weights (GridOptions.Projections)")
+	}
+	if opt.Method == Tetrahedron && len(g.Points) != g.Spec.Count() {
+		return fmt.Errorf("physics: the tetrahedron method needs the full %d-point grid, got %d points", g.Spec.Count(), len(g.Points))
+	}
+	return nil
+}
+
+// dosWindow is the sampling of one DOS: n samples lo + i·step (opt.Unit)
+// and the Gaussian width (0 for the other methods).
+type dosWindow struct {
+	lo, step, width float64
+	n               int
+}
+
+// dosWindowOf resolves the window, step and width of opt against the
+// modes' statistics st (scale: opt.Unit per THz), refusing more than
+// MaxDOSSamples samples.
+func dosWindowOf(m *physics.Model, g *physics.GridModes, opt DOSOptions, st Spectrum, scale float64) (dosWindow, error) {
 	top, low := st.MaxTHz*scale, st.MinTHz*scale
 	ref := math.Max(top, -low)
 	if !(ref > 0) {
@@ -155,7 +192,6 @@ func ComputeDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt
 		if width == 0 {
 			width = defaultGaussianWidth(ref, g.Spec.Mesh, m.Dim())
 		}
-		res.Width = width
 	}
 	lo, hi, step := opt.Min, opt.Max, opt.Step
 	if lo == 0 && hi == 0 {
@@ -170,40 +206,42 @@ func ComputeDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt
 	}
 	nf := dosSamples(lo, hi, step)
 	if !(nf <= MaxDOSSamples) {
-		return nil, &physics.ValidationError{Violations: []physics.Violation{{Field: "step", Description: fmt.Sprintf(
+		return dosWindow{}, &physics.ValidationError{Violations: []physics.Violation{{Field: "step", Description: fmt.Sprintf(
 			"the window [%g, %g] at step %g gives %.3g samples, more than the limit of %d", lo, hi, step, nf, MaxDOSSamples)}}}
 	}
-	n := int(nf)
-	grid := newAnchoredCumGrid(lo, step/2, 1, 2*n+1)
-	hasCut, cut := !opt.NegativeAxis, 0.0 // every negative frequency is imaginary
-	ns := g.NSites
+	return dosWindow{lo: lo, step: step, width: width, n: int(nf)}, nil
+}
 
-	var acc *cumAcc
-	var err error
-	switch opt.Method {
-	case Tetrahedron:
-		set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+// accumulateDOS counts the states of g below every edge and centre of
+// grid by opt.Method: tetrahedra (by symmetry class for the total alone,
+// every simplex for projections), or Gaussians or bins per mode.
+// Negative frequencies are imaginary modes: left out unless
+// opt.NegativeAxis.
+func accumulateDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt DOSOptions, scale, width float64, grid cumGrid) (*cumAcc, error) {
+	hasCut, cut := !opt.NegativeAxis, 0.0
+	if opt.Method != Tetrahedron {
+		return modeAccumulate(ctx, g, opt.Method, scale, width, grid, opt.PerSite, hasCut, cut)
+	}
+	set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
+	if opt.PerSite {
 		// Projections need every simplex (their weights differ between
 		// equivalent points): classes only for the total.
-		var classes []mesh.SimplexClass
-		if !opt.PerSite {
-			if classes, err = mesh.SimplexClasses(ctx, g.Reduction(), set, g.ReductionCache()); err != nil {
-				return nil, err
-			}
-		}
-		if classes != nil {
-			acc, err = tetraAccumulateClasses(ctx, g, classes, set, scale, grid, hasCut, cut)
-		} else {
-			acc, err = tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)
-		}
-	default:
-		acc, err = modeAccumulate(ctx, g, opt.Method, scale, width, grid, opt.PerSite, hasCut, cut)
+		return tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)
 	}
+	classes, err := mesh.SimplexClasses(ctx, g.Reduction(), set, g.ReductionCache())
 	if err != nil {
 		return nil, err
 	}
-	tot, site := acc.totals()
+	if classes != nil {
+		return tetraAccumulateClasses(ctx, g, classes, set, scale, grid, hasCut, cut)
+	}
+	return tetraAccumulate(ctx, g, set, scale, grid, opt.PerSite, hasCut, cut)
+}
 
+// fillTotal sets Freq, DOS and Integrated from the cumulative totals tot
+// (states below every bin edge and centre, edges at even indices).
+func (res *DOSResult) fillTotal(tot []float64, w dosWindow) {
+	n, lo, step := w.n, w.lo, w.step
 	res.Freq = make([]float64, n)
 	res.DOS = make([]float64, n)
 	res.Integrated = make([]float64, n)
@@ -212,40 +250,42 @@ func ComputeDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, opt
 		res.DOS[i] = (tot[2*i+2] - tot[2*i]) / step
 		res.Integrated[i] = tot[2*i+1]
 	}
-	if opt.PerSite {
-		res.Sites = make([][]float64, ns)
-		for s := range res.Sites {
-			d := make([]float64, n)
-			for i := range d {
-				d[i] = (site[(2*i+2)*ns+s] - site[2*i*ns+s]) / step
-			}
-			res.Sites[s] = d
+}
+
+// fillProjections sets Sites from the cumulative per-site counts site
+// (ns sites per edge or centre), replaces DOS by the sum of the sites so
+// that the two agree at every sample to rounding, and sums the sites by
+// label (labels: the model's, per site) into Labels and LabelDOS.
+func (res *DOSResult) fillProjections(labels []string, site []float64, ns int, w dosWindow) {
+	n, step := w.n, w.step
+	res.Sites = make([][]float64, ns)
+	for s := range res.Sites {
+		d := make([]float64, n)
+		for i := range d {
+			d[i] = (site[(2*i+2)*ns+s] - site[2*i*ns+s]) / step
 		}
-		// The total is the sum of the projections, so the two agree at
-		// every sample to rounding.
-		for i := range res.DOS {
-			sum := 0.0
-			for s := 0; s < ns; s++ {
-				sum += res.Sites[s][i]
-			}
-			res.DOS[i] = sum
+		res.Sites[s] = d
+	}
+	for i := range res.DOS {
+		sum := 0.0
+		for s := 0; s < ns; s++ {
+			sum += res.Sites[s][i]
 		}
-		labels := m.Labels()
-		index := map[string]int{}
-		for s, l := range labels {
-			li, ok := index[l]
-			if !ok {
-				li = len(res.Labels)
-				index[l] = li
-				res.Labels = append(res.Labels, l)
-				res.LabelDOS = append(res.LabelDOS, make([]float64, n))
-			}
-			for i, x := range res.Sites[s] {
-				res.LabelDOS[li][i] += x
-			}
+		res.DOS[i] = sum
+	}
+	index := map[string]int{}
+	for s, l := range labels {
+		li, ok := index[l]
+		if !ok {
+			li = len(res.Labels)
+			index[l] = li
+			res.Labels = append(res.Labels, l)
+			res.LabelDOS = append(res.LabelDOS, make([]float64, n))
+		}
+		for i, x := range res.Sites[s] {
+			res.LabelDOS[li][i] += x
 		}
 	}
-	return res, nil
 }
 
 // Samples is the number of frequency samples ComputeDOS returns for these

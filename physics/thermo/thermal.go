@@ -151,34 +151,95 @@ const (
 	evalTree            // frequency tree with Taylor series
 )
 
+// computeThermal is ComputeThermal with the evaluation strategy forced by
+// mode (evalAuto in production).
 func computeThermal(ctx context.Context, m *physics.Model, g *physics.GridModes, opt ThermalOptions, mode evalMode) (*ThermalResult, error) {
-	if err := physics.CheckGridModes(m, g); err != nil {
+	st, err := checkThermalInput(m, g, opt)
+	if err != nil {
 		return nil, err
+	}
+	res := &ThermalResult{ImaginaryExcluded: st.Imaginary}
+	ms, err := thermalModeSets(ctx, m, g, st, opt, res)
+	if err != nil {
+		return nil, err
+	}
+	temps := computedTemps(opt.TempsK)
+	sums, err := evalSums(ctx, ms.thermo, temps, mode)
+	if err != nil {
+		return nil, err
+	}
+	msdSums := sums
+	if opt.MSD && ms.thermo != ms.grid {
+		// The DOS carries no eigenvectors: displacements stay mode sums.
+		if msdSums, err = evalSums(ctx, ms.grid, temps, mode); err != nil {
+			return nil, err
+		}
+	}
+	if res.ThetaElasticK, err = m.ElasticDebyeTemperature(ctx); err != nil {
+		return nil, err
+	}
+	var msdNote msdDivergence
+	if opt.MSD {
+		msdNote = msdDivergenceOf(m, g, st)
+	}
+	res.Points = make([]ThermalPoint, len(temps))
+	for i, tK := range temps {
+		if i%pollEvery == 0 && ctx.Err() != nil {
+			return nil, ctx.Err() // θ_D is a root search per temperature
+		}
+		p := res.point(opt.TempsK[i], tK, sums[i], ms.theta)
+		if opt.MSD {
+			p.MSD = ms.grid.assembleMSD(msdSums[i][3:])
+			msdNote.mark(p.MSD, tK)
+		}
+		res.Points[i] = p
+	}
+	return res, nil
+}
+
+// checkThermalInput checks the grid against the model, the options, and
+// the eigenvectors MSD needs, then refuses imaginary modes unless
+// opt.AllowUnstable; it returns the grid's frequency statistics.
+func checkThermalInput(m *physics.Model, g *physics.GridModes, opt ThermalOptions) (spectra.Spectrum, error) {
+	if err := physics.CheckGridModes(m, g); err != nil {
+		return spectra.Spectrum{}, err
 	}
 	if err := opt.validate(); err != nil {
-		return nil, err
+		return spectra.Spectrum{}, err
 	}
 	if opt.MSD && len(g.Eigvecs) != len(g.FreqTHz)*g.NModes {
-		return nil, errors.New("physics: mean-square displacements need grid modes with eigenvectors (GridOptions.Eigenvectors)")
+		return spectra.Spectrum{}, errors.New("physics: mean-square displacements need grid modes with eigenvectors (GridOptions.Eigenvectors)")
 	}
 	st := spectra.Stats(g)
 	if st.Imaginary > 0 && !opt.AllowUnstable {
-		return nil, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz)",
+		return spectra.Spectrum{}, fmt.Errorf("%w: %d of %d modes on the grid are imaginary (lowest %.6g THz)",
 			ErrUnstable, st.Imaginary, len(g.FreqTHz), st.MinTHz)
 	}
-	res := &ThermalResult{ImaginaryExcluded: st.Imaginary}
+	return st, nil
+}
 
-	// The grid's modes: weights and, for MSD, the tensor channels.
+// thermalSets are the mode sets of one thermal computation: grid, the
+// grid's modes (weights and, for MSD, the tensor channels); thermo, the
+// modes the thermal sums run over (grid itself, or the binned DOS for the
+// DOSIntegral route); and the θ_D input common to every temperature.
+type thermalSets struct {
+	grid, thermo *modeSet
+	theta        thetaInput
+}
+
+// thermalModeSets collects the mode sets of the route opt.Route and fills
+// res.ZeroExcluded, res.ZPEeV and res.ModesPerCell from them.
+func thermalModeSets(ctx context.Context, m *physics.Model, g *physics.GridModes, st spectra.Spectrum, opt ThermalOptions, res *ThermalResult) (thermalSets, error) {
 	grid, zeroWeight, zeros, err := collectModes(ctx, m, g, st, opt.MSD)
 	if err != nil {
-		return nil, err
+		return thermalSets{}, err
 	}
 	res.ZeroExcluded = zeros
 	thermo := grid
 	binTHz := 0.0
 	if opt.Route == DOSIntegral {
 		if thermo, binTHz, err = dosModes(ctx, m, g, st); err != nil {
-			return nil, err
+			return thermalSets{}, err
 		}
 		zeroWeight = 0 // the DOS holds every state
 	}
@@ -188,64 +249,45 @@ func computeThermal(ctx context.Context, m *physics.Model, g *physics.GridModes,
 	}
 	theta := thetaInput{dim: m.Dim(), modesPerCell: res.ModesPerCell, zeroWeight: zeroWeight,
 		nuLowTHz: lowestMode(grid.nu), binTHz: binTHz, finite: g.Spec.Finite}
+	return thermalSets{grid: grid, thermo: thermo, theta: theta}, nil
+}
 
-	// Below MinTempK, k_B·T underflows against hν (x = hν/k_BT overflows):
-	// such temperatures are computed as their T → 0 limit.
-	temps := make([]float64, len(opt.TempsK))
-	for i, t := range opt.TempsK {
+// computedTemps returns the temperatures as computed: below MinTempK,
+// k_B·T underflows against hν (x = hν/k_BT overflows), so such
+// temperatures are computed as their T → 0 limit (0).
+func computedTemps(tempsK []float64) []float64 {
+	temps := make([]float64, len(tempsK))
+	for i, t := range tempsK {
 		if t >= MinTempK {
 			temps[i] = t
 		}
 	}
-	sums, err := evalSums(ctx, thermo, temps, mode)
-	if err != nil {
-		return nil, err
-	}
-	msdSums := sums
-	if opt.MSD && thermo != grid {
-		// The DOS carries no eigenvectors: displacements stay mode sums.
-		if msdSums, err = evalSums(ctx, grid, temps, mode); err != nil {
-			return nil, err
-		}
-	}
+	return temps
+}
 
-	if res.ThetaElasticK, err = m.ElasticDebyeTemperature(ctx); err != nil {
-		return nil, err
-	}
-	var msdNote msdDivergence
-	if opt.MSD {
-		msdNote = msdDivergenceOf(m, g, st)
-	}
+// point is the thermal point at temperature tempK (as asked) computed at
+// tK (0 below MinTempK) from the mode sums s of directSums, without the
+// displacements; res carries the zero-point energy, the modes per cell and
+// the elastic θ_D.
+func (res *ThermalResult) point(tempK, tK float64, s []float64, theta thetaInput) ThermalPoint {
 	kB := physics.BoltzmannEVPerK
-	res.Points = make([]ThermalPoint, len(temps))
-	for i, tK := range temps {
-		if i%pollEvery == 0 && ctx.Err() != nil {
-			return nil, ctx.Err() // θ_D is a root search per temperature
-		}
-		s := sums[i]
-		p := ThermalPoint{TempK: opt.TempsK[i], UeV: res.ZPEeV, FeV: res.ZPEeV}
-		if tK > 0 {
-			kappa := physics.THzToKelvin / tK
-			p.UeV += physics.THzToEV * s[0]
-			p.FeV += kB * tK * s[1]
-			p.SeVPerK = kB * (kappa*s[0] - s[1])
-			p.CveVPerK = kB * s[2]
-			in := theta
-			in.tempK = tK
-			if res.ModesPerCell > 0 {
-				in.c = s[2] / res.ModesPerCell
-			}
-			p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = debyeThetaChecked(in)
-		} else {
-			p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = zeroTempTheta(res.ThetaElasticK)
-		}
-		if opt.MSD {
-			p.MSD = grid.assembleMSD(msdSums[i][3:])
-			msdNote.mark(p.MSD, tK)
-		}
-		res.Points[i] = p
+	p := ThermalPoint{TempK: tempK, UeV: res.ZPEeV, FeV: res.ZPEeV}
+	if !(tK > 0) {
+		p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = zeroTempTheta(res.ThetaElasticK)
+		return p
 	}
-	return res, nil
+	kappa := physics.THzToKelvin / tK
+	p.UeV += physics.THzToEV * s[0]
+	p.FeV += kB * tK * s[1]
+	p.SeVPerK = kB * (kappa*s[0] - s[1])
+	p.CveVPerK = kB * s[2]
+	in := theta
+	in.tempK = tK
+	if res.ModesPerCell > 0 {
+		in.c = s[2] / res.ModesPerCell
+	}
+	p.ThetaDK, p.ThetaDStatus, p.ThetaDReason = debyeThetaChecked(in)
+	return p
 }
 
 // zeroTempTheta is θ_D at T = 0 (and below MinTempK): θ_D(T) is a ratio

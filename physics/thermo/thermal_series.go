@@ -85,8 +85,7 @@ const modePoll = 1 << 14
 // newModeTree builds the tree of set (which must hold at least one mode),
 // the leaves' moments on all cores.
 func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
-	nc := set.nc
-	t := &modeTree{nc: nc, numin: math.Inf(1)}
+	t := &modeTree{nc: set.nc, numin: math.Inf(1)}
 	numax := 0.0
 	for _, f := range set.nu {
 		t.numin, numax = min(t.numin, f), max(numax, f)
@@ -95,16 +94,44 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 	for nleaf < treeMaxLeaves && nleaf*32 < len(set.nu) {
 		nleaf *= 2
 	}
-	perTHz := float64(nleaf) / numax
-	leafOf := func(f float64) int { return min(nleaf-1, int(f*perTHz)) }
+	bins := leafBins{n: nleaf, perTHz: float64(nleaf) / numax}
+	if err := t.sortIntoLeaves(ctx, set, bins); err != nil {
+		return nil, err
+	}
+	leaves, mom, err := t.leafMoments(ctx, nleaf)
+	if err != nil {
+		return nil, err
+	}
+	t.levels = append(t.levels, leaves)
+	t.mom = append(t.mom, mom)
+	for len(t.levels[len(t.levels)-1]) > 1 {
+		nodes, pm := t.parentLevel(t.levels[len(t.levels)-1], t.mom[len(t.mom)-1])
+		t.levels = append(t.levels, nodes)
+		t.mom = append(t.mom, pm)
+	}
+	return t, nil
+}
 
-	// Counting sort of the modes into leaves.
+// leafBins maps a frequency to its leaf: n equal bins from 0 to the
+// highest mode, the highest mode itself in the last.
+type leafBins struct {
+	n      int
+	perTHz float64
+}
+
+// of is the leaf of frequency f (THz).
+func (b leafBins) of(f float64) int { return min(b.n-1, int(f*b.perTHz)) }
+
+// sortIntoLeaves fills t.start, t.nu and t.ch: the modes of set in a
+// counting sort by leaf (stable, so the order within a leaf is the set's).
+func (t *modeTree) sortIntoLeaves(ctx context.Context, set *modeSet, bins leafBins) error {
+	nc, nleaf := t.nc, bins.n
 	t.start = make([]int, nleaf+1)
 	for i, f := range set.nu {
 		if i%modePoll == 0 && ctx.Err() != nil {
-			return nil, ctx.Err()
+			return ctx.Err()
 		}
-		t.start[leafOf(f)+1]++
+		t.start[bins.of(f)+1]++
 	}
 	for l := 0; l < nleaf; l++ {
 		t.start[l+1] += t.start[l]
@@ -114,123 +141,149 @@ func newModeTree(ctx context.Context, set *modeSet) (*modeTree, error) {
 	fill := append([]int(nil), t.start[:nleaf]...)
 	for i, f := range set.nu {
 		if i%modePoll == 0 && ctx.Err() != nil {
-			return nil, ctx.Err()
+			return ctx.Err()
 		}
-		l := leafOf(f)
+		l := bins.of(f)
 		j := fill[l]
 		fill[l]++
 		t.nu[j] = f
 		copy(t.ch[j*nc:(j+1)*nc], set.ch[i*nc:(i+1)*nc])
 	}
+	return nil
+}
 
-	// Leaves: range and moments from the modes.
+// leafMoments returns the leaves (the range their modes span) and their
+// moments, [(leaf·nc + channel)·treeMoments + k], computed on all cores.
+func (t *modeTree) leafMoments(ctx context.Context, nleaf int) ([]treeNode, []float64, error) {
+	nc := t.nc
 	leaves := make([]treeNode, nleaf)
 	mom := make([]float64, nleaf*nc*treeMoments)
 	err := parallel.Slices(ctx, nleaf, 16, parallel.SliceCount(nleaf, 16), func(_, lo, hi int) {
-		var pow [treeMoments]float64
 		for l := lo; l < hi; l++ {
-			a, b := t.start[l], t.start[l+1]
-			nd := treeNode{lo: math.Inf(1), hi: math.Inf(-1), count: b - a}
-			for _, f := range t.nu[a:b] {
-				nd.lo, nd.hi = min(nd.lo, f), max(nd.hi, f)
-			}
-			leaves[l] = nd
-			if nd.count == 0 {
-				continue
-			}
-			c, h := (nd.lo+nd.hi)/2, (nd.hi-nd.lo)/2
-			lm := mom[l*nc*treeMoments : (l+1)*nc*treeMoments]
-			inv := 0.0
-			if h > 0 {
-				inv = 1 / h
-			}
-			i := a
-			if nc == 1 {
-				// Four modes at a time: four independent chains of
-				// multiplications keep the pipeline full.
-				row := lm[:treeMoments]
-				for ; i+4 <= b; i += 4 {
-					d0, d1, d2, d3 := (t.nu[i]-c)*inv, (t.nu[i+1]-c)*inv, (t.nu[i+2]-c)*inv, (t.nu[i+3]-c)*inv
-					p0, p1, p2, p3 := t.ch[i], t.ch[i+1], t.ch[i+2], t.ch[i+3]
-					for k := range row {
-						row[k] += (p0 + p1) + (p2 + p3)
-						p0, p1, p2, p3 = p0*d0, p1*d1, p2*d2, p3*d3
-					}
-				}
-			}
-			for ; i < b; i++ {
-				delta := (t.nu[i] - c) * inv
-				pow[0] = 1
-				for k := 1; k < treeMoments; k++ {
-					pow[k] = pow[k-1] * delta
-				}
-				for ch, w := range t.ch[i*nc : (i+1)*nc] {
-					row := lm[ch*treeMoments : (ch+1)*treeMoments]
-					for k, p := range pow {
-						row[k] += w * p
-					}
-				}
-			}
+			leaves[l] = t.leafMoment(l, mom[l*nc*treeMoments:(l+1)*nc*treeMoments])
 		}
 	})
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	t.levels = append(t.levels, leaves)
-	t.mom = append(t.mom, mom)
+	return leaves, mom, nil
+}
 
-	// Inner levels: ranges merged, moments shifted from the children.
-	var apow, bpow [treeMoments]float64
-	for len(t.levels[len(t.levels)-1]) > 1 {
-		kids := t.levels[len(t.levels)-1]
-		kmom := t.mom[len(t.mom)-1]
-		nodes := make([]treeNode, (len(kids)+1)/2)
-		pm := make([]float64, len(nodes)*nc*treeMoments)
-		for i := range nodes {
-			nd := treeNode{lo: math.Inf(1), hi: math.Inf(-1)}
-			for _, kid := range kids[2*i : min(2*i+2, len(kids))] {
-				if kid.count > 0 {
-					nd.lo, nd.hi = math.Min(nd.lo, kid.lo), math.Max(nd.hi, kid.hi)
-					nd.count += kid.count
-				}
-			}
-			nodes[i] = nd
-			if nd.count == 0 {
-				continue
-			}
-			cp, hp := (nd.lo+nd.hi)/2, (nd.hi-nd.lo)/2
-			for ki := 2 * i; ki < min(2*i+2, len(kids)); ki++ {
-				kid := kids[ki]
-				if kid.count == 0 {
-					continue
-				}
-				// δ_parent = a + b δ_kid
-				a, b := 0.0, 0.0
-				if hp > 0 {
-					a = ((kid.lo+kid.hi)/2 - cp) / hp
-					b = (kid.hi - kid.lo) / 2 / hp
-				}
-				apow[0], bpow[0] = 1, 1
-				for k := 1; k < treeMoments; k++ {
-					apow[k], bpow[k] = apow[k-1]*a, bpow[k-1]*b
-				}
-				for ch := 0; ch < nc; ch++ {
-					src := kmom[(ki*nc+ch)*treeMoments : (ki*nc+ch+1)*treeMoments]
-					dst := pm[(i*nc+ch)*treeMoments : (i*nc+ch+1)*treeMoments]
-					for k := range dst {
-						s := 0.0
-						for j := 0; j <= k; j++ {
-							s += binomial[k][j] * apow[k-j] * bpow[j] * src[j]
-						}
-						dst[k] += s
-					}
-				}
+// leafMoment returns leaf l's node and adds its moments to lm (nc rows of
+// treeMoments, zero on entry).
+func (t *modeTree) leafMoment(l int, lm []float64) treeNode {
+	a, b := t.start[l], t.start[l+1]
+	nd := treeNode{lo: math.Inf(1), hi: math.Inf(-1), count: b - a}
+	for _, f := range t.nu[a:b] {
+		nd.lo, nd.hi = min(nd.lo, f), max(nd.hi, f)
+	}
+	if nd.count == 0 {
+		return nd
+	}
+	c, h := (nd.lo+nd.hi)/2, (nd.hi-nd.lo)/2
+	inv := 0.0
+	if h > 0 {
+		inv = 1 / h
+	}
+	i := a
+	if t.nc == 1 {
+		i = t.addMomentsBy4(lm[:treeMoments], a, b, c, inv)
+	}
+	t.addMoments(lm, i, b, c, inv)
+	return nd
+}
+
+// addMomentsBy4 adds to row the moments of single-channel modes a, a+1, …
+// four at a time (four independent chains of multiplications keep the
+// pipeline full) and returns the first mode left over (fewer than four).
+func (t *modeTree) addMomentsBy4(row []float64, a, b int, c, inv float64) int {
+	i := a
+	for ; i+4 <= b; i += 4 {
+		d0, d1, d2, d3 := (t.nu[i]-c)*inv, (t.nu[i+1]-c)*inv, (t.nu[i+2]-c)*inv, (t.nu[i+3]-c)*inv
+		p0, p1, p2, p3 := t.ch[i], t.ch[i+1], t.ch[i+2], t.ch[i+3]
+		for k := range row {
+			row[k] += (p0 + p1) + (p2 + p3)
+			p0, p1, p2, p3 = p0*d0, p1*d1, p2*d2, p3*d3
+		}
+	}
+	return i
+}
+
+// addMoments adds to lm the moments of modes a … b−1 one by one, every
+// channel, about centre c with inverse half-width inv.
+func (t *modeTree) addMoments(lm []float64, a, b int, c, inv float64) {
+	nc := t.nc
+	var pow [treeMoments]float64
+	for i := a; i < b; i++ {
+		delta := (t.nu[i] - c) * inv
+		pow[0] = 1
+		for k := 1; k < treeMoments; k++ {
+			pow[k] = pow[k-1] * delta
+		}
+		for ch, w := range t.ch[i*nc : (i+1)*nc] {
+			row := lm[ch*treeMoments : (ch+1)*treeMoments]
+			for k, p := range pow {
+				row[k] += w * p
 			}
 		}
-		t.levels = append(t.levels, nodes)
-		t.mom = append(t.mom, pm)
 	}
-	return t, nil
+}
+
+// parentLevel returns the level above kids (with moments kmom): pairs of
+// children merged, their ranges joined and their moments shifted to the
+// parent's centre and scale.
+func (t *modeTree) parentLevel(kids []treeNode, kmom []float64) ([]treeNode, []float64) {
+	nc := t.nc
+	nodes := make([]treeNode, (len(kids)+1)/2)
+	pm := make([]float64, len(nodes)*nc*treeMoments)
+	for i := range nodes {
+		nd := treeNode{lo: math.Inf(1), hi: math.Inf(-1)}
+		for _, kid := range kids[2*i : min(2*i+2, len(kids))] {
+			if kid.count > 0 {
+				nd.lo, nd.hi = math.Min(nd.lo, kid.lo), math.Max(nd.hi, kid.hi)
+				nd.count += kid.count
+			}
+		}
+		nodes[i] = nd
+		if nd.count == 0 {
+			continue
+		}
+		for ki := 2 * i; ki < min(2*i+2, len(kids)); ki++ {
+			if kids[ki].count == 0 {
+				continue
+			}
+			t.shiftMoments(nd, kids[ki], kmom[ki*nc*treeMoments:(ki+1)*nc*treeMoments], pm[i*nc*treeMoments:(i+1)*nc*treeMoments])
+		}
+	}
+	return nodes, pm
+}
+
+// shiftMoments adds to dst (the parent's nc rows of moments) the moments
+// src of one child, re-expressed about the parent's centre and scale:
+// with δ_parent = a + b δ_kid, m_k = Σ_j C(k, j) a^(k−j) b^j m_j(kid).
+func (t *modeTree) shiftMoments(parent, kid treeNode, src, dst []float64) {
+	cp, hp := (parent.lo+parent.hi)/2, (parent.hi-parent.lo)/2
+	a, b := 0.0, 0.0
+	if hp > 0 {
+		a = ((kid.lo+kid.hi)/2 - cp) / hp
+		b = (kid.hi - kid.lo) / 2 / hp
+	}
+	var apow, bpow [treeMoments]float64
+	apow[0], bpow[0] = 1, 1
+	for k := 1; k < treeMoments; k++ {
+		apow[k], bpow[k] = apow[k-1]*a, bpow[k-1]*b
+	}
+	for ch := 0; ch < t.nc; ch++ {
+		s := src[ch*treeMoments : (ch+1)*treeMoments]
+		d := dst[ch*treeMoments : (ch+1)*treeMoments]
+		for k := range d {
+			sum := 0.0
+			for j := 0; j <= k; j++ {
+				sum += binomial[k][j] * apow[k-j] * bpow[j] * s[j]
+			}
+			d[k] += sum
+		}
+	}
 }
 
 // eval adds the sums of directSums at κ = h/kT over all modes to out.

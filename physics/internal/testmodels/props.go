@@ -103,27 +103,72 @@ func RandomProperCrystal(rng *rand.Rand) *physics.Crystal {
 // kRange is the range of spring constants, eV/Å²: six orders of magnitude.
 const kLo, kHi = 1e-5, 10.0
 
+// randomSpringCrystal draws a low-symmetry cell of 1 … 8 sites in 1 … 3
+// dimensions with explicit springs: a rigid skeleton (see
+// randomProperCrystal) plus up to 2n random extra springs, in eV/Å² or,
+// one time in five, in N/m.
 func randomSpringCrystal(rng *rand.Rand) *physics.Crystal {
 	d := 1 + rng.IntN(3)
 	n := 1 + rng.IntN(8)
 	c := &physics.Crystal{Name: "random springs", Polarizations: 1 + rng.IntN(3)}
 	scale := math.Max(1, math.Pow(float64(n), 1/float64(d))/1.5)
+	c.Lattice = randomLattice(rng, d, scale)
+	addRandomSites(rng, c, n)
+	sp := springDrawer{rng: rng, c: c, seen: map[[5]int]bool{}}
+	// Skeleton: a spanning tree in cell 0 and a loop along every lattice
+	// vector.
+	for i := 1; i < n; i++ {
+		sp.add(rng.IntN(i), i, make([]int, d), true)
+	}
+	for k := 0; k < d; k++ {
+		cell := make([]int, d)
+		cell[k] = 1
+		sp.add(0, 0, cell, true)
+	}
+	for extra := rng.IntN(2*n + 1); extra > 0; extra-- {
+		sp.add(rng.IntN(n), rng.IntN(n), sp.randCell(), false)
+	}
+	rng.Shuffle(len(c.Springs), func(i, j int) { c.Springs[i], c.Springs[j] = c.Springs[j], c.Springs[i] })
+	if rng.IntN(5) == 0 {
+		c.ForceUnit = physics.NPerM
+		for i := range c.Springs {
+			c.Springs[i].KLong *= physics.EVPerA2InNPerM
+			c.Springs[i].KTrans *= physics.EVPerA2InNPerM
+		}
+	}
+	return c
+}
+
+// minSepA is the smallest distance (Å) between two sites, and the
+// shortest spring, of a random spring crystal.
+const minSepA = 0.3
+
+// randomLattice draws d random lattice vectors of length (2 … 5)·scale Å,
+// again until the cell is not too flat (volume above 0.3 of the product of
+// the lengths).
+func randomLattice(rng *rand.Rand, d int, scale float64) [][3]float64 {
+	var lat [][3]float64
 	for {
-		c.Lattice = c.Lattice[:0]
+		lat = lat[:0]
 		for k := 0; k < d; k++ {
 			v := [3]float64{rng.NormFloat64(), rng.NormFloat64(), rng.NormFloat64()}
 			l := (2 + 3*rng.Float64()) * scale / lattice.Norm(v)
-			c.Lattice = append(c.Lattice, [3]float64{v[0] * l, v[1] * l, v[2] * l})
+			lat = append(lat, [3]float64{v[0] * l, v[1] * l, v[2] * l})
 		}
 		prod := 1.0
-		for _, v := range c.Lattice {
+		for _, v := range lat {
 			prod *= lattice.Norm(v)
 		}
-		if lattice.GramMeasure(c.Lattice) > 0.3*prod {
-			break
+		if lattice.GramMeasure(lat) > 0.3*prod {
+			return lat
 		}
 	}
-	const minSepA = 0.3
+}
+
+// addRandomSites adds sites at random positions to c until it has n,
+// drawing again any that falls within minSepA of another.
+func addRandomSites(rng *rand.Rand, c *physics.Crystal, n int) {
+	d := len(c.Lattice)
 	for len(c.Sites) < n {
 		s := physics.Site{Label: fmt.Sprintf("S%d", rng.IntN(3)), MassAmu: logUniform(rng, 1, 250), Frac: make([]float64, d)}
 		for k := range s.Frac {
@@ -137,62 +182,54 @@ func randomSpringCrystal(rng *rand.Rand) *physics.Crystal {
 			}
 		}
 	}
-	seen := map[[5]int]bool{}
-	add := func(from, to int, cell []int, rigid bool) {
-		key := [5]int{from, to}
-		rev := [5]int{to, from}
-		for k, x := range cell {
-			key[2+k], rev[2+k] = x, -x
-		}
-		if seen[key] || seen[rev] {
-			return
-		}
-		var r [3]float64
-		for k := range c.Lattice {
-			df := c.Sites[to].Frac[k] + float64(cell[k]) - c.Sites[from].Frac[k]
-			for a := 0; a < 3; a++ {
-				r[a] += df * c.Lattice[k][a]
-			}
-		}
-		if lattice.Norm(r) < minSepA {
-			return
-		}
-		seen[key] = true
-		s := physics.Spring{From: from, To: to, Cell: cell, KLong: logUniform(rng, kLo, kHi)}
-		if rigid || rng.IntN(3) > 0 {
-			s.KTrans = logUniform(rng, kLo, kHi)
-		}
-		c.Springs = append(c.Springs, s)
+}
+
+// springDrawer adds random springs to c, each bond (either direction) at
+// most once.
+type springDrawer struct {
+	rng  *rand.Rand
+	c    *physics.Crystal
+	seen map[[5]int]bool // from, to, cell
+}
+
+// add adds a spring from site from to site to in cell with a random k∥
+// and, when rigid or two times in three, a random k⊥; a bond already
+// present or shorter than minSepA is left out (drawing nothing).
+func (sp *springDrawer) add(from, to int, cell []int, rigid bool) {
+	c := sp.c
+	key := [5]int{from, to}
+	rev := [5]int{to, from}
+	for k, x := range cell {
+		key[2+k], rev[2+k] = x, -x
 	}
-	randCell := func() []int {
-		cell := make([]int, d)
-		for k := range cell {
-			cell[k] = rng.IntN(3) - 1
-		}
-		return cell
+	if sp.seen[key] || sp.seen[rev] {
+		return
 	}
-	// Skeleton: a spanning tree in cell 0 and a loop along every lattice
-	// vector.
-	for i := 1; i < n; i++ {
-		add(rng.IntN(i), i, make([]int, d), true)
-	}
-	for k := 0; k < d; k++ {
-		cell := make([]int, d)
-		cell[k] = 1
-		add(0, 0, cell, true)
-	}
-	for extra := rng.IntN(2*n + 1); extra > 0; extra-- {
-		add(rng.IntN(n), rng.IntN(n), randCell(), false)
-	}
-	rng.Shuffle(len(c.Springs), func(i, j int) { c.Springs[i], c.Springs[j] = c.Springs[j], c.Springs[i] })
-	if rng.IntN(5) == 0 {
-		c.ForceUnit = physics.NPerM
-		for i := range c.Springs {
-			c.Springs[i].KLong *= physics.EVPerA2InNPerM
-			c.Springs[i].KTrans *= physics.EVPerA2InNPerM
+	var r [3]float64
+	for k := range c.Lattice {
+		df := c.Sites[to].Frac[k] + float64(cell[k]) - c.Sites[from].Frac[k]
+		for a := 0; a < 3; a++ {
+			r[a] += df * c.Lattice[k][a]
 		}
 	}
-	return c
+	if lattice.Norm(r) < minSepA {
+		return
+	}
+	sp.seen[key] = true
+	s := physics.Spring{From: from, To: to, Cell: cell, KLong: logUniform(sp.rng, kLo, kHi)}
+	if rigid || sp.rng.IntN(3) > 0 {
+		s.KTrans = logUniform(sp.rng, kLo, kHi)
+	}
+	c.Springs = append(c.Springs, s)
+}
+
+// randCell draws a cell offset with every component in {−1, 0, 1}.
+func (sp *springDrawer) randCell() []int {
+	cell := make([]int, len(sp.c.Lattice))
+	for k := range cell {
+		cell[k] = sp.rng.IntN(3) - 1
+	}
+	return cell
 }
 
 // randomShellCrystal draws a Bravais lattice of high symmetry with one or

@@ -179,7 +179,65 @@ func Clone(c *physics.Crystal) *physics.Crystal {
 func Supercell(t testing.TB, c *physics.Crystal, mt [3][3]int) *physics.Crystal {
 	t.Helper()
 	d := len(c.Lattice)
-	var mf [3][3]float64
+	sc := newSupercellMap(t, d, mt)
+	out := Clone(c)
+	out.Lattice = make([][3]float64, d)
+	for k := 0; k < d; k++ {
+		for l := 0; l < d; l++ {
+			for a := 0; a < 3; a++ {
+				out.Lattice[k][a] += sc.mf[k][l] * c.Lattice[l][a]
+			}
+		}
+	}
+	out.Sites = sc.copySites(c.Sites)
+	if len(out.Sites) != sc.det*len(c.Sites) {
+		t.Fatalf("Supercell: %d sites; want %d", len(out.Sites), sc.det*len(c.Sites))
+	}
+	out.Springs = nil
+	for _, s := range c.Springs {
+		for I, cp := range sc.copies {
+			if cp.prim == s.From {
+				J, cell := sc.target(s.To, cp.t, s.Cell)
+				out.Springs = append(out.Springs, physics.Spring{From: I, To: J, Cell: cell, KLong: s.KLong, KTrans: s.KTrans})
+			}
+		}
+	}
+	out.Blocks = nil
+	for _, b := range c.Blocks {
+		for I, cp := range sc.copies {
+			if cp.prim == b.From {
+				J, cell := sc.target(b.To, cp.t, b.Cell)
+				out.Blocks = append(out.Blocks, physics.Block{From: I, To: J, Cell: cell, Phi: append([]float64(nil), b.Phi...)})
+			}
+		}
+	}
+	return out
+}
+
+// supercellMap is the change of cell of Supercell: M (integer and padded
+// to 3×3 with the identity), its inverse and determinant, and the copies
+// of the primitive sites in the new cell.
+type supercellMap struct {
+	t      testing.TB
+	d      int
+	mt     [3][3]int
+	mf     [3][3]float64 // M
+	inv    [3][3]float64 // M⁻¹
+	det    int           // |det M|
+	copies []siteCopy
+}
+
+// siteCopy is one site of the supercell: primitive site prim translated
+// by the lattice vector t (primitive cells).
+type siteCopy struct {
+	prim int
+	t    [3]int
+}
+
+// newSupercellMap pads mt (d×d) to 3×3 and inverts it.
+func newSupercellMap(t testing.TB, d int, mt [3][3]int) *supercellMap {
+	sc := &supercellMap{t: t, d: d, mt: mt}
+	mf := &sc.mf
 	for i := 0; i < 3; i++ {
 		for j := 0; j < 3; j++ {
 			if i < d && j < d {
@@ -189,136 +247,112 @@ func Supercell(t testing.TB, c *physics.Crystal, mt [3][3]int) *physics.Crystal 
 			}
 		}
 	}
-	det := int(math.Round(mf[0][0]*(mf[1][1]*mf[2][2]-mf[1][2]*mf[2][1]) -
+	sc.det = abs(int(math.Round(mf[0][0]*(mf[1][1]*mf[2][2]-mf[1][2]*mf[2][1]) -
 		mf[0][1]*(mf[1][0]*mf[2][2]-mf[1][2]*mf[2][0]) +
-		mf[0][2]*(mf[1][0]*mf[2][1]-mf[1][1]*mf[2][0])))
-	if det < 0 {
-		det = -det
-	}
-	inv := lattice.Invert(mf, 3) // M⁻¹
-	out := Clone(c)
-	out.Lattice = make([][3]float64, d)
-	for k := 0; k < d; k++ {
-		for l := 0; l < d; l++ {
-			for a := 0; a < 3; a++ {
-				out.Lattice[k][a] += mf[k][l] * c.Lattice[l][a]
-			}
+		mf[0][2]*(mf[1][0]*mf[2][1]-mf[1][1]*mf[2][0]))))
+	sc.inv = lattice.Invert(sc.mf, 3)
+	return sc
+}
+
+// toNew converts primitive fractional coordinates f to the supercell's:
+// M⁻ᵀ f.
+func (sc *supercellMap) toNew(f [3]float64) [3]float64 {
+	var g [3]float64
+	for k := 0; k < 3; k++ {
+		for l := 0; l < 3; l++ {
+			g[k] += sc.inv[l][k] * f[l]
 		}
 	}
-	// newFrac = M⁻ᵀ (f + t).
-	toNew := func(f [3]float64) [3]float64 {
-		var g [3]float64
-		for k := 0; k < 3; k++ {
-			for l := 0; l < 3; l++ {
-				g[k] += inv[l][k] * f[l]
-			}
-		}
-		return g
-	}
-	type copyOf struct {
-		prim int
-		t    [3]int
-	}
-	var copies []copyOf
-	out.Sites = nil
+	return g
+}
+
+// copySites returns the sites of the supercell: every translate of every
+// primitive site, within Σ|M_ij| cells, that falls inside the new cell, in
+// order of primitive site then translation; it records them in sc.copies.
+func (sc *supercellMap) copySites(sites []physics.Site) []physics.Site {
+	d := sc.d
 	reach := 0
 	for i := 0; i < d; i++ {
 		for j := 0; j < d; j++ {
-			reach += abs(mt[i][j])
+			reach += abs(sc.mt[i][j])
 		}
 	}
-	for i, s := range c.Sites {
+	var out []physics.Site
+	sc.copies = nil
+	for i, s := range sites {
 		var tt [3]int
 		for tt[0] = -reach; tt[0] <= reach; tt[0]++ {
 			for tt[1] = -reach; tt[1] <= reach; tt[1]++ {
 				for tt[2] = -reach; tt[2] <= reach; tt[2]++ {
-					skip := false
-					for k := d; k < 3; k++ {
-						skip = skip || tt[k] != 0
+					if ns, ok := sc.copyInCell(s, tt); ok {
+						out = append(out, ns)
+						sc.copies = append(sc.copies, siteCopy{i, tt})
 					}
-					if skip {
-						continue
-					}
-					var f [3]float64
-					for k := 0; k < d; k++ {
-						f[k] = s.Frac[k] + float64(tt[k])
-					}
-					g := toNew(f)
-					in := true
-					for k := 0; k < d; k++ {
-						in = in && g[k] >= -1e-9 && g[k] < 1-1e-9
-					}
-					if !in {
-						continue
-					}
-					ns := physics.Site{Label: s.Label, MassAmu: s.MassAmu, Frac: make([]float64, d)}
-					for k := 0; k < d; k++ {
-						ns.Frac[k] = math.Max(g[k], 0)
-					}
-					out.Sites = append(out.Sites, ns)
-					copies = append(copies, copyOf{i, tt})
 				}
 			}
 		}
 	}
-	if len(out.Sites) != det*len(c.Sites) {
-		t.Fatalf("Supercell: %d sites; want %d", len(out.Sites), det*len(c.Sites))
-	}
-	// target finds the copy J of primitive site j at absolute translation
-	// T and the Supercell offset N with T = t_J + Mᵀ N.
-	target := func(j int, T [3]int) (int, []int) {
-		for J, cp := range copies {
-			if cp.prim != j {
-				continue
-			}
-			var diff [3]float64
-			for k := 0; k < 3; k++ {
-				diff[k] = float64(T[k] - cp.t[k])
-			}
-			n := toNew(diff)
-			ok := true
-			cell := make([]int, d)
-			for k := 0; k < d; k++ {
-				r := math.Round(n[k])
-				ok = ok && math.Abs(n[k]-r) < 1e-9
-				cell[k] = int(r)
-			}
-			if ok {
-				return J, cell
-			}
-		}
-		t.Fatalf("Supercell: no copy of site %d at %v", j, T)
-		return 0, nil
-	}
-	out.Springs = nil
-	for _, s := range c.Springs {
-		for I, cp := range copies {
-			if cp.prim != s.From {
-				continue
-			}
-			var T [3]int
-			for k := 0; k < d; k++ {
-				T[k] = cp.t[k] + s.Cell[k]
-			}
-			J, cell := target(s.To, T)
-			out.Springs = append(out.Springs, physics.Spring{From: I, To: J, Cell: cell, KLong: s.KLong, KTrans: s.KTrans})
-		}
-	}
-	out.Blocks = nil
-	for _, b := range c.Blocks {
-		for I, cp := range copies {
-			if cp.prim != b.From {
-				continue
-			}
-			var T [3]int
-			for k := 0; k < d; k++ {
-				T[k] = cp.t[k] + b.Cell[k]
-			}
-			J, cell := target(b.To, T)
-			out.Blocks = append(out.Blocks, physics.Block{From: I, To: J, Cell: cell, Phi: append([]float64(nil), b.Phi...)})
-		}
-	}
 	return out
+}
+
+// copyInCell returns site s translated by tt in supercell coordinates,
+// and whether it lies in the supercell (tt zero beyond d dimensions, every
+// coordinate in [0, 1) to 1e-9; −1e-9 … 0 is stored as 0).
+func (sc *supercellMap) copyInCell(s physics.Site, tt [3]int) (physics.Site, bool) {
+	d := sc.d
+	for k := d; k < 3; k++ {
+		if tt[k] != 0 {
+			return physics.Site{}, false
+		}
+	}
+	var f [3]float64
+	for k := 0; k < d; k++ {
+		f[k] = s.Frac[k] + float64(tt[k])
+	}
+	g := sc.toNew(f)
+	for k := 0; k < d; k++ {
+		if !(g[k] >= -1e-9 && g[k] < 1-1e-9) {
+			return physics.Site{}, false
+		}
+	}
+	ns := physics.Site{Label: s.Label, MassAmu: s.MassAmu, Frac: make([]float64, d)}
+	for k := 0; k < d; k++ {
+		ns.Frac[k] = math.Max(g[k], 0)
+	}
+	return ns, true
+}
+
+// target finds, for a bond from a copy at translation from to primitive
+// site j in primitive cell offset cell (absolute translation T = from +
+// cell), the copy J of j and the supercell offset N with T = t_J + Mᵀ N.
+func (sc *supercellMap) target(j int, from [3]int, cell []int) (int, []int) {
+	d := sc.d
+	var T [3]int
+	for k := 0; k < d; k++ {
+		T[k] = from[k] + cell[k]
+	}
+	for J, cp := range sc.copies {
+		if cp.prim != j {
+			continue
+		}
+		var diff [3]float64
+		for k := 0; k < 3; k++ {
+			diff[k] = float64(T[k] - cp.t[k])
+		}
+		n := sc.toNew(diff)
+		ok := true
+		out := make([]int, d)
+		for k := 0; k < d; k++ {
+			r := math.Round(n[k])
+			ok = ok && math.Abs(n[k]-r) < 1e-9
+			out[k] = int(r)
+		}
+		if ok {
+			return J, out
+		}
+	}
+	sc.t.Fatalf("Supercell: no copy of site %d at %v", j, T)
+	return 0, nil
 }
 
 func abs(x int) int {
