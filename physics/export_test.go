@@ -1,5 +1,4 @@
-// Internals and in-package test helpers exposed to the core's external
-// tests (package physics_test), which cannot reach them otherwise (the Go
+// Internals exposed to the core's tests (package physics_test), which cannot reach them otherwise (the Go
 // convention: this file is in package physics and compiled only with the
 // tests).
 

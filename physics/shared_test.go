@@ -1,5 +1,4 @@
-// Small helpers shared by the core's in-package tests and, through
-// export_test.go, its external tests.
+// Small helpers shared by several test files of the core.
 
 package physics_test
 

@@ -184,9 +184,10 @@ func importViolations(path string, imports []string, test bool) []string {
 
 // coreXTestImports drops the test models from the imports of the core's
 // external tests (package physics_test): they use the core's exported API
-// only, as spectra's tests do, so they share its test models instead of
-// keeping copies (an in-package test of the core cannot import them, as
-// they import the core). Other packages' imports are returned unchanged.
+// and the internals export_test.go exposes, so they share the test models
+// with spectra and thermo (an in-package test of the core could not import
+// them, as they import the core). Other packages' imports are returned
+// unchanged.
 func coreXTestImports(path string, imports []string) []string {
 	if path != "physics" {
 		return imports
