@@ -1,6 +1,6 @@
-// Internals exposed to the core's tests (package physics_test), which cannot reach them otherwise (the Go
-// convention: this file is in package physics and compiled only with the
-// tests).
+// Internals exposed to the core's tests (package physics_test), which
+// cannot reach them otherwise (the Go convention: this file is in package
+// physics and compiled only with the tests).
 
 package physics
 
