@@ -182,7 +182,7 @@ func TestSoundVelocitiesContrast(t *testing.T) {
 			gtr += v2
 			gdet *= v2
 		}
-		if relDiff(gtr, tr) > 1e-9 || relDiff(gdet, det) > 1e-9 {
+		if testmodels.RelDiff(gtr, tr) > 1e-9 || testmodels.RelDiff(gdet, det) > 1e-9 {
 			t.Errorf("fcc r=%g: Σv² %.15g, Πv² %.15g; want %.15g, %.15g", r, gtr, gdet, tr, det)
 		}
 	}
@@ -196,7 +196,7 @@ func TestElasticDebyeContrast(t *testing.T) {
 	th := testmodels.ElasticTheta(t, testmodels.Compile(t, c))
 	rot := testmodels.RandomRotation(rand.New(rand.NewPCG(7, 1912)))
 	thr := testmodels.ElasticTheta(t, testmodels.Compile(t, testmodels.Rotated(c, rot)))
-	if !(th > 0) || math.IsInf(th, 0) || relDiff(th, thr) > 1e-9 {
+	if !(th > 0) || math.IsInf(th, 0) || testmodels.RelDiff(th, thr) > 1e-9 {
 		t.Errorf("θ_D = %v K, rotated %v K; want positive, finite and equal", th, thr)
 	}
 }
@@ -226,11 +226,11 @@ func TestSoundVelocityDiatomicContrast(t *testing.T) {
 		want := a * math.Sqrt(k1*k2/((k1+k2)*(m1+m2))) * kmsPerUnit
 		c := diatomicChainK(a, m1, m2, k1, k2)
 		got := testmodels.Sound(t, testmodels.Compile(t, c), [3]float64{1, 0, 0})
-		if len(got) != 1 || relDiff(got[0], want) > 1e-12 {
+		if len(got) != 1 || testmodels.RelDiff(got[0], want) > 1e-12 {
 			t.Errorf("springs, r=%g: %v km/s; want %.15g", r, got, want)
 		}
 		gb := testmodels.Sound(t, compileOpt(t, asBlocks(t, c), physics.Options{EnforceSumRule: true}), [3]float64{1, 0, 0})
-		if bound := 16 * physics.DlamchE / r; len(gb) != 1 || !(gb[0] > 0) || relDiff(gb[0], want) > max(bound, 1e-12) {
+		if bound := 16 * physics.DlamchE / r; len(gb) != 1 || !(gb[0] > 0) || testmodels.RelDiff(gb[0], want) > max(bound, 1e-12) {
 			t.Errorf("blocks, r=%g: %v km/s; want %.15g within %.2g", r, gb, want, bound)
 		}
 		for _, m := range []*physics.Model{testmodels.Compile(t, c), compileOpt(t, asBlocks(t, c), physics.Options{EnforceSumRule: true})} {

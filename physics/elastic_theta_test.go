@@ -21,11 +21,11 @@ import (
 func TestElasticDebyeChain(t *testing.T) {
 	m := testmodels.Compile(t, testmodels.Load(t, "chain"))
 	want := math.Pi / 2 * chainNuMaxTHz * physics.THzToKelvin
-	if got := testmodels.ElasticTheta(t, m); relDiff(got, want) > 1e-8 {
+	if got := testmodels.ElasticTheta(t, m); testmodels.RelDiff(got, want) > 1e-8 {
 		t.Errorf("elastic θ_D = %.9f K; want (π/2)hν_max/k = %.9f K", got, want)
 	}
 	v := mustSpeedsATHz(t, m, [3]float64{1, 0, 0})
-	if want := 2.5 * math.Sqrt(1.5/40) * physics.OmegaUnitRadPerS * 1e-12; relDiff(v[0], want) > 1e-8 {
+	if want := 2.5 * math.Sqrt(1.5/40) * physics.OmegaUnitRadPerS * 1e-12; testmodels.RelDiff(v[0], want) > 1e-8 {
 		t.Errorf("sound velocity %.9g Å·THz; want a·sqrt(K/M) = %.9g", v[0], want)
 	}
 }
@@ -42,7 +42,7 @@ func TestSoundVelocitiesFCC(t *testing.T) {
 	vL, vT := 4*math.Sqrt(1.2/120)*unit, 4*math.Sqrt(1.2/240)*unit
 	v := mustSpeedsATHz(t, m, [3]float64{1, 0, 0})
 	for i, want := range []float64{vT, vT, vL} {
-		if relDiff(v[i], want) > 1e-8 {
+		if testmodels.RelDiff(v[i], want) > 1e-8 {
 			t.Errorf("branch %d: %.9g Å·THz; want %.9g", i, v[i], want)
 		}
 	}
@@ -61,7 +61,7 @@ func TestSoundVelocitiesFCC(t *testing.T) {
 		}
 	}
 	want := math.Cbrt(9/(4*math.Pi*physics.CellMeasure(m)*sum)) * physics.THzToKelvin
-	if got := testmodels.ElasticTheta(t, m); relDiff(got, want) > 0.015 {
+	if got := testmodels.ElasticTheta(t, m); testmodels.RelDiff(got, want) > 0.015 {
 		t.Errorf("elastic θ_D %.3f K; Monte Carlo direction average %.3f K", got, want)
 	}
 }

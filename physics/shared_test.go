@@ -5,7 +5,6 @@ package physics_test
 import (
 	"context"
 	"errors"
-	"math"
 	"testing"
 	"time"
 
@@ -49,12 +48,4 @@ func violationsOf(t *testing.T, err error) []physics.Violation {
 		t.Fatalf("error %v is not a *ValidationError", err)
 	}
 	return ve.Violations
-}
-
-// relDiff is |a − b| relative to the larger of |a|, |b| (0 when equal).
-func relDiff(a, b float64) float64 {
-	if a == b {
-		return 0
-	}
-	return math.Abs(a-b) / math.Max(math.Abs(a), math.Abs(b))
 }

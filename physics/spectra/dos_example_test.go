@@ -6,7 +6,6 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/testmodels"
-	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 )
 
@@ -15,14 +14,7 @@ import (
 // ch. 23), e.g. 0.1280 at 5 meV; g is the bin average over ±2.5 meV.
 func ExampleComputeDOS() {
 	ctx := context.Background()
-	m, err := physics.Compile(ctx, testmodels.Chain(), physics.Options{}) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²
-	if err != nil {
-		panic(err)
-	}
-	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
-	if err != nil {
-		panic(err)
-	}
+	m, g := testmodels.ChainModes(ctx, 1000) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²; 1000 points
 	d, err := spectra.ComputeDOS(ctx, m, g, spectra.DOSOptions{Unit: physics.MeV, Max: 25, Step: 5})
 	if err != nil {
 		panic(err)

@@ -21,17 +21,6 @@ func mustDOS(t testing.TB, m *physics.Model, g *physics.GridModes, opt DOSOption
 	return r
 }
 
-// integral is Σ DOS·Step: the states in the window (the samples are bin
-// averages).
-func integral(r *DOSResult, dos []float64) float64 {
-	step := r.Freq[1] - r.Freq[0]
-	s := 0.0
-	for _, x := range dos {
-		s += x * step
-	}
-	return s
-}
-
 // chainStatesBelow is the exact number of states per cell below ν of the
 // monatomic chain, ∫ (2/π)(ν_m² − ν²)^(−1/2) dν = (2/π) arcsin(ν/ν_m)
 // (Ashcroft & Mermin ch. 23; Kittel ch. 5).
@@ -180,7 +169,7 @@ func TestDOSNormalization(t *testing.T) {
 				if r.StatesPerCell != want {
 					t.Errorf("StatesPerCell = %v; want %v", r.StatesPerCell, want)
 				}
-				if got := integral(r, r.DOS); math.Abs(got-want) > tol {
+				if got := testmodels.StepIntegral(r.Freq, r.DOS); math.Abs(got-want) > tol {
 					t.Errorf("∫g = %.12f; want %v ± %g", got, want, tol)
 				}
 				if got := r.Integrated[len(r.Integrated)-1]; math.Abs(got-want) > tol {
@@ -189,7 +178,7 @@ func TestDOSNormalization(t *testing.T) {
 				// Each site carries p states: Σ_modes |e_s|² = p at every q by
 				// the completeness of the eigenvectors (common practice).
 				for s, d := range r.Sites {
-					if got := integral(r, d); math.Abs(got-float64(m.Polarizations())) > tol {
+					if got := testmodels.StepIntegral(r.Freq, d); math.Abs(got-float64(m.Polarizations())) > tol {
 						t.Errorf("∫g_site%d = %.12f; want p = %d", s, got, m.Polarizations())
 					}
 				}
@@ -370,14 +359,14 @@ func TestDOSImaginary(t *testing.T) {
 			if meth == Tetrahedron {
 				tol = 2.0 / 400 // the segments straddling ν = 0 put part of a point's weight on each side
 			}
-			if got := integral(ex, ex.DOS); math.Abs(got-real) > tol {
+			if got := testmodels.StepIntegral(ex.Freq, ex.DOS); math.Abs(got-real) > tol {
 				t.Errorf("excluding: ∫g = %.6f; want the real modes' %.6f", got, real)
 			}
 			neg := mustDOS(t, m, g, DOSOptions{Method: meth, NegativeAxis: true})
 			if !(neg.Freq[0] < st.MinTHz) {
 				t.Errorf("negative axis: window starts at %g, above the lowest mode %g", neg.Freq[0], st.MinTHz)
 			}
-			if got := integral(neg, neg.DOS); math.Abs(got-1) > 1e-9 {
+			if got := testmodels.StepIntegral(neg.Freq, neg.DOS); math.Abs(got-1) > 1e-9 {
 				t.Errorf("negative axis: ∫g = %.12f; want 1", got)
 			}
 			below := 0.0
@@ -456,7 +445,7 @@ func TestDOSShiftedGrid(t *testing.T) {
 	g1 := testmodels.Modes(t, m, mesh.GridSpec{Mesh: [3]int{12, 12, 12}, Shifted: true}, physics.GridOptions{})
 	opt := DOSOptions{Max: 8, Step: 0.04}
 	a, b := mustDOS(t, m, g0, opt), mustDOS(t, m, g1, opt)
-	if got := integral(b, b.DOS); math.Abs(got-3) > 1e-6 {
+	if got := testmodels.StepIntegral(b.Freq, b.DOS); math.Abs(got-3) > 1e-6 {
 		t.Errorf("shifted: ∫g = %.9f; want 3", got)
 	}
 	l1 := 0.0

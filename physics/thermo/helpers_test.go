@@ -1,6 +1,6 @@
 // Helpers of the thermo tests beyond the shared ones of
-// physics/internal/testmodels: the benchmark sink, a finiteness check, the
-// DOS of a grid and its integral.
+// physics/internal/testmodels: the benchmark sink, a finiteness check and
+// the DOS of a grid.
 
 package thermo
 
@@ -25,15 +25,4 @@ func mustDOS(t testing.TB, m *physics.Model, g *physics.GridModes, opt spectra.D
 		t.Fatalf("ComputeDOS(%+v): %v", opt, err)
 	}
 	return r
-}
-
-// integral is Σ DOS·Step: the states in the window (the samples are bin
-// averages).
-func integral(r *spectra.DOSResult, dos []float64) float64 {
-	step := r.Freq[1] - r.Freq[0]
-	s := 0.0
-	for _, x := range dos {
-		s += x * step
-	}
-	return s
 }

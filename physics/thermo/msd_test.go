@@ -38,7 +38,7 @@ func TestMSDEinstein(t *testing.T) {
 				}
 			}
 		}
-		if relDiff(u.UIso, want) > 1e-12 || relDiff(u.B, 8*math.Pi*math.Pi*want) > 1e-12 {
+		if testmodels.RelDiff(u.UIso, want) > 1e-12 || testmodels.RelDiff(u.B, 8*math.Pi*math.Pi*want) > 1e-12 {
 			t.Errorf("T=%g: UIso %.12g, B %.12g; want %.12g, %.12g", temp, u.UIso, u.B, want, 8*math.Pi*math.Pi*want)
 		}
 	}
@@ -99,7 +99,7 @@ func TestMSDMassWeightedSum(t *testing.T) {
 		for s, u := range r.Points[i].MSD {
 			got += m.MassAmu(s) * (u.U[0] + u.U[4] + u.U[8])
 		}
-		if relDiff(got, want) > 1e-12 {
+		if testmodels.RelDiff(got, want) > 1e-12 {
 			t.Errorf("T=%g: Σ m tr U = %.14g amu·Å²; want %.14g", temp, got, want)
 		}
 		if light, heavy := r.Points[i].MSD[0].UIso, r.Points[i].MSD[1].UIso; !(light > heavy) {

@@ -6,7 +6,6 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/testmodels"
-	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/thermo"
 )
 
@@ -18,14 +17,7 @@ import (
 // before using ThetaDK.
 func ExampleComputeThermal() {
 	ctx := context.Background()
-	m, err := physics.Compile(ctx, testmodels.Chain(), physics.Options{}) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²
-	if err != nil {
-		panic(err)
-	}
-	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{1000}}, physics.GridOptions{})
-	if err != nil {
-		panic(err)
-	}
+	m, g := testmodels.ChainModes(ctx, 1000) // a = 2.5 Å, M = 40 amu, K = 1.5 eV/Å²; 1000 points
 	r, err := thermo.ComputeThermal(ctx, m, g, thermo.ThermalOptions{TempsK: []float64{0, 50, 300}})
 	if err != nil {
 		panic(err)

@@ -110,7 +110,7 @@ func TestChainLowTLargeGrid(t *testing.T) {
 	const n = 1 << 22
 	m := testmodels.Compile(t, testmodels.Load(t, "chain")) // K = 1.5 eV/Å², M = 40 amu
 	numax := 2 * math.Sqrt(1.5/40) * physics.NuUnitTHz
-	if f := m.FrequenciesTHz([3]float64{0.5}); relDiff(f[0], numax) > 1e-12 {
+	if f := m.FrequenciesTHz([3]float64{0.5}); testmodels.RelDiff(f[0], numax) > 1e-12 {
 		t.Fatalf("zone-boundary frequency %g THz; closed form %g", f[0], numax)
 	}
 	g := &physics.GridModes{Spec: mesh.GridSpec{Mesh: [3]int{n, 1, 1}}, NModes: 1, NSites: 1, P: 1, ModelHash: m.Hash(),
@@ -134,7 +134,7 @@ func TestChainLowTLargeGrid(t *testing.T) {
 			}
 			want += c / n
 		}
-		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; relDiff(got, want) > 1e-9 {
+		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; testmodels.RelDiff(got, want) > 1e-9 {
 			t.Errorf("T = %g K: Cv = %.12g k_B per cell; closed-form sum %.12g (%.2g %% off)", tK, got, want, 100*(got-want)/want)
 		}
 	}
@@ -166,7 +166,7 @@ func TestThetaStatus(t *testing.T) {
 		}
 	}
 	ref := runs[4].r // 64³ mode sum
-	if p := ref.Points[4]; p.ThetaDStatus != ThetaDetermined || relDiff(p.ThetaDK, ref.ThetaElasticK) > 0.01 {
+	if p := ref.Points[4]; p.ThetaDStatus != ThetaDetermined || testmodels.RelDiff(p.ThetaDK, ref.ThetaElasticK) > 0.01 {
 		t.Errorf("64³, 5 K: θ_D %.2f K (%v); want within 1 %% of the elastic %.2f K", p.ThetaDK, p.ThetaDStatus, ref.ThetaElasticK)
 	}
 	for _, rn := range runs {
@@ -181,7 +181,7 @@ func TestThetaStatus(t *testing.T) {
 					t.Errorf("%d³ %v, %g K: θ_D %g (%v, %q); want not determined, grid too coarse", rn.mesh, rn.route, p.TempK, p.ThetaDK, p.ThetaDStatus, p.ThetaDReason)
 				}
 			case p.ThetaDStatus == ThetaDetermined:
-				if rp := ref.Points[i]; rp.ThetaDStatus == ThetaDetermined && relDiff(p.ThetaDK, rp.ThetaDK) > ThetaRelTol {
+				if rp := ref.Points[i]; rp.ThetaDStatus == ThetaDetermined && testmodels.RelDiff(p.ThetaDK, rp.ThetaDK) > ThetaRelTol {
 					t.Errorf("%d³ %v, %g K: θ_D %.2f K reported, 64³ mode sum %.2f K", rn.mesh, rn.route, p.TempK, p.ThetaDK, rp.ThetaDK)
 				}
 			default:
@@ -214,7 +214,7 @@ func TestThetaIllConditioned(t *testing.T) {
 	if p := r.Points[1]; p.ThetaDStatus != ThetaIllConditioned || p.ThetaDK != 0 || p.ThetaDReason == "" {
 		t.Errorf("1000 K: θ_D %g K (%v, %q); want ill-conditioned", p.ThetaDK, p.ThetaDStatus, p.ThetaDReason)
 	}
-	if p := r.Points[0]; p.ThetaDStatus != ThetaDetermined || relDiff(p.ThetaDK, r.ThetaElasticK) > 0.01 {
+	if p := r.Points[0]; p.ThetaDStatus != ThetaDetermined || testmodels.RelDiff(p.ThetaDK, r.ThetaElasticK) > 0.01 {
 		t.Errorf("1e-5 K: θ_D %g K (%v, %q); want determined, within 1 %% of the elastic %g K", p.ThetaDK, p.ThetaDStatus, p.ThetaDReason, r.ThetaElasticK)
 	}
 }

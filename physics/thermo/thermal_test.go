@@ -22,13 +22,6 @@ func mustThermal(t testing.TB, m *physics.Model, g *physics.GridModes, opt Therm
 	return r
 }
 
-func relDiff(a, b float64) float64 {
-	if a == b {
-		return 0
-	}
-	return math.Abs(a-b) / math.Max(math.Abs(a), math.Abs(b))
-}
-
 // einsteinCrystal is one site of mass 40 amu tied to its lattice point by
 // an on-site block k·1 (k = 1 eV/Å², no springs, sum rule not enforced):
 // every mode at every q is the Einstein oscillator ω² = k/m.
@@ -85,7 +78,7 @@ func TestEinsteinCrystal(t *testing.T) {
 	if r.ZeroExcluded != 0 || math.Abs(r.ModesPerCell-3) > 1e-12 {
 		t.Errorf("excluded %d zero modes, %v modes per cell; want 0 and 3", r.ZeroExcluded, r.ModesPerCell)
 	}
-	if want := 3 * einsteinNuTHz * physics.THzToEV / 2; relDiff(r.ZPEeV, want) > 1e-12 {
+	if want := 3 * einsteinNuTHz * physics.THzToEV / 2; testmodels.RelDiff(r.ZPEeV, want) > 1e-12 {
 		t.Errorf("ZPE %.12g eV; want 3hν/2 = %.12g", r.ZPEeV, want)
 	}
 	for i, p := range r.Points {
@@ -94,7 +87,7 @@ func TestEinsteinCrystal(t *testing.T) {
 		}
 		x := xs[i]
 		wantU := 3 * einsteinNuTHz * physics.THzToEV * (0.5 + 1/math.Expm1(x))
-		if relDiff(p.UeV, wantU) > 1e-12 {
+		if testmodels.RelDiff(p.UeV, wantU) > 1e-12 {
 			t.Errorf("x=%g: U = %.12g eV; want %.12g", x, p.UeV, wantU)
 		}
 	}
@@ -127,7 +120,7 @@ func TestDulongPetit(t *testing.T) {
 	nu2 := 3 * 4 * k / mass * physics.NuUnitTHz * physics.NuUnitTHz / r.ModesPerCell
 	x2 := nu2 * math.Pow(physics.THzToKelvin/1e4, 2)
 	deficit := 1 - r.Points[0].CveVPerK/physics.BoltzmannEVPerK/r.ModesPerCell
-	if relDiff(deficit, x2/12) > 1e-3 { // the ⟨x⁴⟩/240 term is ~1e-4 of ⟨x²⟩/12 here
+	if testmodels.RelDiff(deficit, x2/12) > 1e-3 { // the ⟨x⁴⟩/240 term is ~1e-4 of ⟨x²⟩/12 here
 		t.Errorf("1 − C/Nk at 10⁴ K = %.6g; want ⟨x²⟩/12 = %.6g", deficit, x2/12)
 	}
 }
@@ -162,7 +155,7 @@ func TestLowTExponents(t *testing.T) {
 			// Below the dispersive region θ_D(T) tends to the elastic θ_D
 			// (Kittel ch. 5), to 1 % where the mode sum resolves it.
 			if tc.route == ModeSum {
-				if got, want := r.Points[0].ThetaDK, r.ThetaElasticK; relDiff(got, want) > 0.01 {
+				if got, want := r.Points[0].ThetaDK, r.ThetaElasticK; testmodels.RelDiff(got, want) > 0.01 {
 					t.Errorf("θ_D(%g K) = %.2f K; elastic θ_D %.2f K", tc.t1, got, want)
 				}
 			}
@@ -226,7 +219,7 @@ func TestModeSumVsDOSIntegral(t *testing.T) {
 	temps := []float64{100, 300, 1000}
 	a := mustThermal(t, m, g, ThermalOptions{TempsK: temps})
 	b := mustThermal(t, m, g, ThermalOptions{TempsK: temps, Route: DOSIntegral})
-	if relDiff(a.ZPEeV, b.ZPEeV) > 1e-6 {
+	if testmodels.RelDiff(a.ZPEeV, b.ZPEeV) > 1e-6 {
 		t.Errorf("ZPE: mode sum %.8g, DOS %.8g eV", a.ZPEeV, b.ZPEeV)
 	}
 	for i, temp := range temps {
@@ -235,7 +228,7 @@ func TestModeSumVsDOSIntegral(t *testing.T) {
 			name string
 			x, y float64
 		}{{"U", p.UeV, q.UeV}, {"F", p.FeV, q.FeV}, {"S", p.SeVPerK, q.SeVPerK}, {"Cv", p.CveVPerK, q.CveVPerK}} {
-			if relDiff(c.x, c.y) > 2e-3 {
+			if testmodels.RelDiff(c.x, c.y) > 2e-3 {
 				t.Errorf("T=%g %s: mode sum %.8g, DOS integral %.8g", temp, c.name, c.x, c.y)
 			}
 		}
@@ -292,11 +285,11 @@ func TestZeroKelvin(t *testing.T) {
 	if z.ThetaDStatus != ThetaElasticLimit || z.ThetaDK != r.ThetaElasticK || !(z.ThetaDK > 0) {
 		t.Errorf("T=0: θ_D %g K (%v); want the elastic limit %g K", z.ThetaDK, z.ThetaDStatus, r.ThetaElasticK)
 	}
-	if relDiff(near.UeV, z.UeV) > 1e-12 || relDiff(near.FeV, z.FeV) > 1e-12 || near.SeVPerK > 1e-20 {
+	if testmodels.RelDiff(near.UeV, z.UeV) > 1e-12 || testmodels.RelDiff(near.FeV, z.FeV) > 1e-12 || near.SeVPerK > 1e-20 {
 		t.Errorf("T=0.01 K: U %g, F %g, S %g; not at the T=0 limit", near.UeV, near.FeV, near.SeVPerK)
 	}
 	for s := range z.MSD {
-		if relDiff(near.MSD[s].UIso, z.MSD[s].UIso) > 1e-12 || !(z.MSD[s].UIso > 0) {
+		if testmodels.RelDiff(near.MSD[s].UIso, z.MSD[s].UIso) > 1e-12 || !(z.MSD[s].UIso > 0) {
 			t.Errorf("site %d: zero-point ⟨u²⟩/3 = %g, at 0.01 K %g", s, z.MSD[s].UIso, near.MSD[s].UIso)
 		}
 	}
@@ -340,10 +333,10 @@ func TestFiniteCrystal(t *testing.T) {
 			cv += x * x * math.Exp(x) / (math.Expm1(x) * math.Expm1(x)) / 10
 			u += nu * physics.THzToEV * (0.5 + 1/math.Expm1(x)) / 10
 		}
-		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; relDiff(got, cv) > 1e-12 {
+		if got := r.Points[i].CveVPerK / physics.BoltzmannEVPerK; testmodels.RelDiff(got, cv) > 1e-12 {
 			t.Errorf("T=%g: Cv/k = %.15g; exact sum %.15g", temp, got, cv)
 		}
-		if relDiff(r.Points[i].UeV, u) > 1e-12 {
+		if testmodels.RelDiff(r.Points[i].UeV, u) > 1e-12 {
 			t.Errorf("T=%g: U = %.15g; exact sum %.15g", temp, r.Points[i].UeV, u)
 		}
 	}
@@ -393,7 +386,7 @@ func TestSeriesMatchesDirect(t *testing.T) {
 					{"Cv", p.CveVPerK, q.CveVPerK},
 					{"MSD", p.MSD[0].U[0], q.MSD[0].U[0]},
 				} {
-					if relDiff(c.x, c.y) > 1e-11 {
+					if testmodels.RelDiff(c.x, c.y) > 1e-11 {
 						t.Errorf("T=%.4g K %s: direct %.15g, series %.15g", temp, c.name, c.x, c.y)
 					}
 				}

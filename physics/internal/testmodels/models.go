@@ -211,3 +211,17 @@ func Chain() *physics.Crystal {
 		Springs:       []physics.Spring{{From: 0, To: 0, Cell: []int{1}, KLong: 1.5}},
 	}
 }
+
+// ChainModes compiles Chain and computes its modes on an n-point grid, for
+// the examples (which have no *testing.T): it panics on an error.
+func ChainModes(ctx context.Context, n int) (*physics.Model, *physics.GridModes) {
+	m, err := physics.Compile(ctx, Chain(), physics.Options{})
+	if err != nil {
+		panic(err)
+	}
+	g, err := m.GridModes(ctx, mesh.GridSpec{Mesh: [3]int{n}}, physics.GridOptions{})
+	if err != nil {
+		panic(err)
+	}
+	return m, g
+}

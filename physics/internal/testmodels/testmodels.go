@@ -534,3 +534,22 @@ func ViolationFields(err error) []string {
 	}
 	return out
 }
+
+// RelDiff is |a − b| relative to the larger magnitude (0 when equal).
+func RelDiff(a, b float64) float64 {
+	if a == b {
+		return 0
+	}
+	return math.Abs(a-b) / math.Max(math.Abs(a), math.Abs(b))
+}
+
+// StepIntegral is Σ dos·step on the equally spaced frequencies freq: the
+// states in a DOS window (the samples are bin averages).
+func StepIntegral(freq, dos []float64) float64 {
+	step := freq[1] - freq[0]
+	s := 0.0
+	for _, x := range dos {
+		s += x * step
+	}
+	return s
+}
