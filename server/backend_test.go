@@ -1,66 +1,21 @@
 package server
 
 import (
-	"bufio"
-	"context"
 	"net"
-	"os"
-	"os/exec"
-	"strconv"
-	"strings"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
+	"github.com/materials-lab/modegrid/server/internal/testredis"
 )
-
-const redisServerBin = "/usr/bin/redis-server"
-
-// startRedis runs a real redis-server on a free loopback port, without
-// persistence, until the test ends; it returns its address.
-func startRedis(t *testing.T) string {
-	t.Helper()
-	if _, err := os.Stat(redisServerBin); err != nil {
-		t.Skipf("%s not installed (the CI installs it): %v", redisServerBin, err)
-	}
-	lis, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	port := lis.Addr().(*net.TCPAddr).Port
-	lis.Close()
-	ctx, cancel := context.WithCancel(context.Background())
-	cmd := exec.CommandContext(ctx, redisServerBin, "--port", strconv.Itoa(port), "--bind", "127.0.0.1",
-		"--save", "", "--appendonly", "no", "--daemonize", "no", "--dir", t.TempDir())
-	out, err := cmd.StdoutPipe()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { cancel(); cmd.Wait() })
-	sc := bufio.NewScanner(out)
-	for sc.Scan() {
-		if strings.Contains(sc.Text(), "Ready to accept connections") {
-			go func() {
-				for sc.Scan() {
-				}
-			}()
-			return "127.0.0.1:" + strconv.Itoa(port)
-		}
-	}
-	t.Fatalf("redis-server exited before it was ready: %v", sc.Err())
-	return ""
-}
 
 // TestRedisBackendSharedByReplicas: two replicas share a real Redis. What
 // one computed the other answers from the backend, and a model sent to one
 // is referable by hash on the other.
 func TestRedisBackendSharedByReplicas(t *testing.T) {
-	addr := startRedis(t)
+	addr := testredis.Start(t, "")
 	replica := func() *testServer {
 		r := rediscache.New(rediscache.Options{Addr: addr})
 		t.Cleanup(func() { r.Close() })
@@ -121,7 +76,7 @@ func TestBackendDownNeverFails(t *testing.T) {
 // TestBackendSkipsLargeValues: a result over the backend's per-entry cap
 // stays in memory only and is counted.
 func TestBackendSkipsLargeValues(t *testing.T) {
-	r := rediscache.New(rediscache.Options{Addr: startRedis(t), MaxEntryBytes: 100})
+	r := rediscache.New(rediscache.Options{Addr: testredis.Start(t, ""), MaxEntryBytes: 100})
 	t.Cleanup(func() { r.Close() })
 	ts := startServer(t, Config{Backend: r})
 	if _, err := ts.api.ComputeDos(testContext(t), &modegridv1.ComputeDosRequest{Model: inline(example(t, "chain")), Qpoints: mpGrid(false, 32)}); err != nil {

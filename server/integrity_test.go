@@ -15,6 +15,7 @@ import (
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
+	"github.com/materials-lab/modegrid/server/internal/testredis"
 )
 
 // stepClock is a clock that moves only when the test says so.
@@ -72,7 +73,7 @@ func redisKeyOf(t *testing.T, ctx context.Context, admin *redis.Client, kind, pa
 // once), computes the right answer, answers it, and stores it back so the
 // next replica reads the good value.
 func TestPoisonedRedisRefused(t *testing.T) {
-	addr := startRedis(t)
+	addr := testredis.Start(t, "")
 	ctx := testContext(t)
 	replica := func(log *slog.Logger) *testServer {
 		r := rediscache.New(rediscache.Options{Addr: addr})

@@ -5,11 +5,8 @@ import (
 	"context"
 	"encoding/json"
 	"io"
-	"net"
 	"os"
-	"os/exec"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -20,6 +17,7 @@ import (
 
 	"github.com/materials-lab/modegrid/proto/examples"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+	"github.com/materials-lab/modegrid/server/internal/testredis"
 )
 
 const testPassword = "pw-of-this-test-7f3a9c"
@@ -78,54 +76,12 @@ func TestRedisPasswordSources(t *testing.T) {
 	}
 }
 
-// startRedis runs a real redis-server with requirepass on a free loopback
-// port until the test ends and returns its address.
-func startRedis(t *testing.T, password string) string {
-	t.Helper()
-	const bin = "/usr/bin/redis-server"
-	if _, err := os.Stat(bin); err != nil {
-		t.Skipf("%s not installed (the CI installs it): %v", bin, err)
-	}
-	lis, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	port := lis.Addr().(*net.TCPAddr).Port
-	lis.Close()
-	ctx, cancel := context.WithCancel(context.Background())
-	// The password goes in on standard input ("-" reads the configuration
-	// from it), as deploy/kubernetes/redis.yaml hands it over.
-	cmd := exec.CommandContext(ctx, bin, "-", "--port", strconv.Itoa(port), "--bind", "127.0.0.1",
-		"--save", "", "--appendonly", "no", "--daemonize", "no", "--dir", t.TempDir())
-	cmd.Stdin = strings.NewReader("requirepass " + password + "\n")
-	out, err := cmd.StdoutPipe()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { cancel(); cmd.Wait() })
-	sc := bufio.NewScanner(out)
-	for sc.Scan() {
-		if strings.Contains(sc.Text(), "Ready to accept connections") {
-			go func() {
-				for sc.Scan() {
-				}
-			}()
-			return "127.0.0.1:" + strconv.Itoa(port)
-		}
-	}
-	t.Fatalf("redis-server exited before it was ready: %v", sc.Err())
-	return ""
-}
-
 // TestRedisRequirepass runs modegridd against a real Redis that requires a
 // password: a wrong or missing password stops the start with a clear
 // error; the right one (from a file or the environment) serves and fills
 // the shared cache. The password never appears in modegridd's output.
 func TestRedisRequirepass(t *testing.T) {
-	addr := startRedis(t, testPassword)
+	addr := testredis.Start(t, testPassword)
 	base := []string{"--listen", "127.0.0.1:0", "--metrics-listen", "off", "--redis-addr", addr}
 	refused := []struct {
 		name string
