@@ -2,7 +2,8 @@ package server
 
 // Admission by estimated cost. Before any work every RPC estimates the
 // peak memory and the work of its computation from the request (the
-// estimators of physics/cost.go) and
+// estimators of physics/cost.go, physics/spectra/cost.go and
+// physics/thermo/cost.go) and
 //
 //   - refuses with INVALID_ARGUMENT, naming the field to change, what
 //     could never fit this server: an estimate over the whole memory

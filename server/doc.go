@@ -67,7 +67,8 @@ package server
 //
 // Caps bound sizes one at a time; admission by estimated cost
 // (admission.go) bounds their product. Before any work each request's peak
-// memory and work are estimated (physics/cost.go). One that could never
+// memory and work are estimated (physics/cost.go and the cost.go of
+// physics/spectra and physics/thermo). One that could never
 // fit — over the whole Config.MemoryBudget, over Config.MaxComputeSeconds,
 // or one streamed point over the message cap — is INVALID_ARGUMENT naming
 // the field to change, the estimate and the budget. One that fits reserves
