@@ -138,7 +138,7 @@ func supercell(t *testing.T, c *physics.Crystal, m []int, rng *rand.Rand, noise 
 func diatomic() *physics.Crystal {
 	return &physics.Crystal{
 		Lattice: [][3]float64{{5, 0, 0}}, Polarizations: 1,
-		Sites: []physics.Site{{Label: "L", MassAmu: 20, Frac: []float64{0}}, {Label: "H", MassAmu: 50, Frac: []float64{0.5}}},
+		Sites:   []physics.Site{{Label: "L", MassAmu: 20, Frac: []float64{0}}, {Label: "H", MassAmu: 50, Frac: []float64{0.5}}},
 		Springs: []physics.Spring{{From: 0, To: 1, Cell: []int{0}, KLong: 2}, {From: 1, To: 0, Cell: []int{1}, KLong: 2}},
 	}
 }
