@@ -63,6 +63,12 @@ func springBlocks(c *physics.Crystal) map[key][9]float64 {
 // Φ(s_i,0;s_j,R). The atoms are shuffled by rng (if not nil) and get
 // Cartesian noise of amplitude noise Å.
 func supercell(t *testing.T, c *physics.Crystal, m []int, rng *rand.Rand, noise float64) (*Set, []atomMap) {
+	return supercellAs(t, c, m, rng, noise, false)
+}
+
+// supercellAs is supercell with the atoms' positions fractional in the
+// supercell vectors when fractional is set (noise is then not applied).
+func supercellAs(t *testing.T, c *physics.Crystal, m []int, rng *rand.Rand, noise float64, fractional bool) (*Set, []atomMap) {
 	t.Helper()
 	g, err := newGeometry(c, &Set{Matrix: m, Atoms: make([][]float64, 0)})
 	if g == nil {
@@ -107,13 +113,23 @@ func supercell(t *testing.T, c *physics.Crystal, m []int, rng *rand.Rand, noise 
 			f[x] = c.Sites[a.site].Frac[x] + float64(a.cell[x])
 		}
 		p := g.cart(f)
-		if rng != nil {
+		if rng != nil && !fractional {
 			for x := 0; x < g.d; x++ {
 				p[x] += noise * (2*rng.Float64() - 1)
 			}
 		}
 		set.Atoms = append(set.Atoms, p[:])
+		if fractional {
+			fs := make([]float64, g.d)
+			for r := range fs {
+				for c := 0; c < g.d; c++ {
+					fs[r] += f[c] * g.minv[c*g.d+r]
+				}
+			}
+			set.Atoms[len(set.Atoms)-1] = fs
+		}
 	}
+	set.Fractional = fractional
 	for _, ai := range atoms {
 		for _, aj := range atoms {
 			var blk [9]float64
@@ -336,6 +352,15 @@ func TestRowsOnly(t *testing.T) {
 		}
 	}
 	s.Phi = rows
+	got, _ := folded(t, c, s)
+	sameFrequencies(t, c, got, 1e-10)
+}
+
+// TestFractionalPositions: atoms given fractional in the vectors of a
+// non-diagonal supercell map and fold back like Cartesian ones.
+func TestFractionalPositions(t *testing.T) {
+	c := fcc()
+	s, _ := supercellAs(t, c, []int{3, 1, 0, 0, 3, 0, 0, -1, 3}, rand.New(rand.NewPCG(9, 9)), 0, true)
 	got, _ := folded(t, c, s)
 	sameFrequencies(t, c, got, 1e-10)
 }

@@ -7,19 +7,20 @@ import (
 )
 
 // imposeSumRule makes Σ_{t,R} Φ(s,0;t,R) = 0 for every site s while
-// keeping Φ(s,0;t,R) = Φ(t,0;s,−R)ᵀ. The correction of every block present
-// has the Lagrange-multiplier form of the least-squares smallest change
-// under those two constraints,
+// keeping Φ(s,0;t,R) = Φ(t,0;s,−R)ᵀ, by the smallest change in the least-
+// squares sense: the sum of ‖δΦ‖²_F over every block of the folded set
+// (each ordered pair (s,t,R) counted, zero blocks of supercell pairs
+// included). Lagrange multipliers Λ_s for the row constraints give, for a
+// pair and its transposed partner alike (derived here; spreading the
+// residual over the row rather than onto the on-site block alone is
+// common practice),
 //
 //	δΦ(s,0;t,R) = −(λ_s + λ_tᵀ),
 //
-// which is permutation-symmetric by construction; the 3×3 multipliers λ_s
-// solve n_s λ_s + Σ_{(t,R) in row s} λ_tᵀ = E_s (E_s the row residual, n_s
-// the row's block count) in the least-squares sense (SVD pseudo-inverse:
-// the system is singular along a common antisymmetric λ, which changes no
-// block). Spreading the residual over the blocks of each row rather than
-// dumping it on the on-site block is common practice; the exact uniform
-// weighting is our choice.
+// which is permutation-symmetric by construction; the 3×3 λ_s solve
+// n_s λ_s + Σ_{(t,R) in row s} λ_tᵀ = E_s (E_s the row residual, n_s the
+// row's block count). The system is singular along a common antisymmetric
+// λ, which changes no block, so it is solved by the SVD pseudo-inverse.
 func imposeSumRule(fc map[key][9]float64, nsites int) error {
 	if len(fc) == 0 {
 		return nil
