@@ -105,3 +105,13 @@ func TestSupercellRefused(t *testing.T) {
 		}
 	}
 }
+
+// TestSupercellCap: a set with more atoms than the server's max sites is
+// refused, naming the field and the cap.
+func TestSupercellCap(t *testing.T) {
+	ts := startServer(t, Config{MaxSites: 4})
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.1)})
+	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "max sites 4") {
+		t.Fatalf("err = %v, want INVALID_ARGUMENT naming supercell_fc.atoms and the cap", err)
+	}
+}

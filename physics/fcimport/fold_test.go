@@ -364,3 +364,42 @@ func TestFractionalPositions(t *testing.T) {
 	got, _ := folded(t, c, s)
 	sameFrequencies(t, c, got, 1e-10)
 }
+
+// TestPermutationImposed: a set with Φ(i,j) ≠ Φ(j,i)ᵀ (one off-diagonal
+// element of every block of a pair changed on one side) is averaged: the
+// report shows the violation before and none after.
+func TestPermutationImposed(t *testing.T) {
+	c := fcc()
+	s, atoms := supercell(t, c, []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, nil, 0)
+	n := len(atoms)
+	s.Phi[9*(0*n+1)+1] += 0.02 // Φ_xy(0,1) only, not Φ_yx(1,0)
+	_, rep, err := Fold(c, s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The change lands on one of 27 images of site 0, weighted 1/27, on
+	// Φ_xy(0,0;0,R) and not on its partner's transpose.
+	if want := 0.02 / 27; math.Abs(rep.PermutationBefore-want) > 1e-12 || rep.PermutationAfter > 1e-15 {
+		t.Fatalf("report %+v: want %g before and none after", rep, want)
+	}
+}
+
+// TestDuplicateAndWrongImage: two atoms on one place and a primitive
+// atom that is the image of another site are named.
+func TestDuplicateAndWrongImage(t *testing.T) {
+	c := diatomic()
+	s, atoms := supercell(t, c, []int{3}, nil, 0)
+	s.Atoms[2] = append([]float64(nil), s.Atoms[0]...)
+	_, _, err := Fold(c, s)
+	if err == nil || !strings.Contains(err.Error(), "supercell_fc.atoms[2]") || !strings.Contains(err.Error(), "atoms[0]") {
+		t.Errorf("duplicate: err = %v", err)
+	}
+	s, atoms = supercell(t, c, []int{3}, nil, 0)
+	n := len(atoms)
+	s.Phi = s.Phi[:9*2*n]
+	s.PrimitiveAtoms = []int{0, 1} // atoms 0 and 1 are both images of site 0
+	_, _, err = Fold(c, s)
+	if err == nil || !strings.Contains(err.Error(), "supercell_fc.primitive_atoms[1]") {
+		t.Errorf("wrong image: err = %v", err)
+	}
+}
