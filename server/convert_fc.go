@@ -37,10 +37,7 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 	if err := vs.Err(); err != nil {
 		return err
 	}
-	if err := ctx.Err(); err != nil {
-		return err
-	}
-	blocks, _, err := fcimport.Fold(c, setFromProto(fc))
+	blocks, _, err := fcimport.Fold(ctx, c, setFromProto(fc))
 	if err != nil {
 		return fmt.Errorf("folding the supercell force constants: %w", err)
 	}

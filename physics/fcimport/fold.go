@@ -1,6 +1,7 @@
 package fcimport
 
 import (
+	"context"
 	"fmt"
 	"math"
 
@@ -51,8 +52,9 @@ type atomMap struct {
 // Fold maps, folds and corrects the set s for the primitive cell of c and
 // returns the blocks (the canonical half: each pair once, plus on-site
 // blocks) in c's force unit. Invalid input gives a *physics.ValidationError
-// listing every violation with field paths under "supercell_fc".
-func Fold(c *physics.Crystal, s *Set) ([]physics.Block, Report, error) {
+// listing every violation with field paths under "supercell_fc". It returns
+// ctx.Err() if ctx ends first (polled once per row of the set).
+func Fold(ctx context.Context, c *physics.Crystal, s *Set) ([]physics.Block, Report, error) {
 	g, err := newGeometry(c, s)
 	if err != nil {
 		return nil, Report{}, err
@@ -61,7 +63,10 @@ func Fold(c *physics.Crystal, s *Set) ([]physics.Block, Report, error) {
 	if err != nil {
 		return nil, Report{}, err
 	}
-	fc := g.fold(s, maps)
+	fc, err := g.fold(ctx, s, maps)
+	if err != nil {
+		return nil, Report{}, err
+	}
 	var rep Report
 	rep.Multiplicities = g.shared
 	rep.PermutationBefore = permute(fc)

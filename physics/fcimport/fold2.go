@@ -1,6 +1,7 @@
 package fcimport
 
 import (
+	"context"
 	"math"
 	"sort"
 
@@ -9,8 +10,8 @@ import (
 
 // fold accumulates every pair's block onto its nearest images: with N×N
 // rows, each site's det M images each contribute 1/|det M|; with n×N rows
-// the one image contributes fully.
-func (g *geometry) fold(s *Set, maps []atomMap) map[key][9]float64 {
+// the one image contributes fully. It returns ctx.Err() if ctx ends first.
+func (g *geometry) fold(ctx context.Context, s *Set, maps []atomMap) (map[key][9]float64, error) {
 	fc := map[key][9]float64{}
 	n := len(s.Atoms)
 	rows, weight := make([]int, 0, n), 1/float64(abs(g.det))
@@ -22,6 +23,9 @@ func (g *geometry) fold(s *Set, maps []atomMap) map[key][9]float64 {
 		}
 	}
 	for x, i := range rows {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
 		for j := 0; j < n; j++ {
 			blk := s.Phi[9*(x*n+j) : 9*(x*n+j)+9]
 			images := g.images(maps[i], maps[j])
@@ -39,7 +43,7 @@ func (g *geometry) fold(s *Set, maps []atomMap) map[key][9]float64 {
 			}
 		}
 	}
-	return fc
+	return fc, nil
 }
 
 // images returns the lattice vectors R of the nearest periodic images of

@@ -175,7 +175,7 @@ func fcc() *physics.Crystal {
 // folded returns c's lattice and sites with the set's folded blocks.
 func folded(t *testing.T, c *physics.Crystal, s *Set) (*physics.Crystal, Report) {
 	t.Helper()
-	b, rep, err := Fold(c, s)
+	b, rep, err := Fold(context.Background(), c, s)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -245,7 +245,7 @@ func TestCommensurate(t *testing.T) {
 	c := fcc()
 	m := []int{2, 0, 0, 0, 2, 0, 0, 0, 2}
 	s, atoms := supercell(t, c, m, nil, 0)
-	blocks, rep, err := Fold(c, s)
+	blocks, rep, err := Fold(context.Background(), c, s)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -319,7 +319,7 @@ func TestUnmappable(t *testing.T) {
 	s, _ := supercell(t, c, []int{3}, nil, 0)
 	s.Atoms[1] = []float64{s.Atoms[1][0] + 0.3, 0, 0}
 	s.Atoms[4] = []float64{s.Atoms[4][0] - 0.01, 0, 0}
-	_, _, err := Fold(c, s)
+	_, _, err := Fold(context.Background(), c, s)
 	var ve *physics.ValidationError
 	if !errors.As(err, &ve) {
 		t.Fatalf("err = %v, want a ValidationError", err)
@@ -331,7 +331,7 @@ func TestUnmappable(t *testing.T) {
 		}
 	}
 	s.Matrix = []int{0}
-	if _, _, err := Fold(c, s); err == nil || !strings.Contains(err.Error(), "supercell_fc.matrix") {
+	if _, _, err := Fold(context.Background(), c, s); err == nil || !strings.Contains(err.Error(), "supercell_fc.matrix") {
 		t.Errorf("singular matrix: err = %v", err)
 	}
 }
@@ -373,7 +373,7 @@ func TestPermutationImposed(t *testing.T) {
 	s, atoms := supercell(t, c, []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, nil, 0)
 	n := len(atoms)
 	s.Phi[9*(0*n+1)+1] += 0.02 // Φ_xy(0,1) only, not Φ_yx(1,0)
-	_, rep, err := Fold(c, s)
+	_, rep, err := Fold(context.Background(), c, s)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -390,7 +390,7 @@ func TestDuplicateAndWrongImage(t *testing.T) {
 	c := diatomic()
 	s, atoms := supercell(t, c, []int{3}, nil, 0)
 	s.Atoms[2] = append([]float64(nil), s.Atoms[0]...)
-	_, _, err := Fold(c, s)
+	_, _, err := Fold(context.Background(), c, s)
 	if err == nil || !strings.Contains(err.Error(), "supercell_fc.atoms[2]") || !strings.Contains(err.Error(), "atoms[0]") {
 		t.Errorf("duplicate: err = %v", err)
 	}
@@ -398,8 +398,19 @@ func TestDuplicateAndWrongImage(t *testing.T) {
 	n := len(atoms)
 	s.Phi = s.Phi[:9*2*n]
 	s.PrimitiveAtoms = []int{0, 1} // atoms 0 and 1 are both images of site 0
-	_, _, err = Fold(c, s)
+	_, _, err = Fold(context.Background(), c, s)
 	if err == nil || !strings.Contains(err.Error(), "supercell_fc.primitive_atoms[1]") {
 		t.Errorf("wrong image: err = %v", err)
+	}
+}
+
+// TestFoldCancelled: a cancelled context stops the fold with its error.
+func TestFoldCancelled(t *testing.T) {
+	c := diatomic()
+	s, _ := supercell(t, c, []int{3}, nil, 0)
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, _, err := Fold(ctx, c, s); !errors.Is(err, context.Canceled) {
+		t.Fatalf("err = %v, want context.Canceled", err)
 	}
 }
