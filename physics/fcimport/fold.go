@@ -89,6 +89,7 @@ type geometry struct {
 	frac      [][]float64 // site fractional positions
 	tol       float64
 	shared    int
+	memo      map[imageKey][][3]int // images by pair class
 }
 
 // newGeometry checks the set's shape and prepares the lattices.

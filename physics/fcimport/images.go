@@ -46,14 +46,37 @@ func (g *geometry) fold(ctx context.Context, s *Set, maps []atomMap) (map[key][9
 	return fc, nil
 }
 
+// imageKey names the pairs that share their nearest images: the two
+// sites and the cell offset reduced modulo the supercell.
+type imageKey struct {
+	s, t int
+	base [3]int
+}
+
 // images returns the lattice vectors R of the nearest periodic images of
-// atom j seen from atom i (all within the tolerance of the nearest).
+// atom j seen from atom i (all within the tolerance of the nearest),
+// memoised by imageKey: the N² pairs have only n²·|det M| distinct ones.
 func (g *geometry) images(i, j atomMap) [][3]int {
 	var base [3]int
 	for c := 0; c < g.d; c++ {
 		base[c] = j.cell[c] - i.cell[c]
 	}
 	base = g.reduce(base)
+	k := imageKey{i.site, j.site, base}
+	if r, ok := g.memo[k]; ok {
+		return r
+	}
+	if g.memo == nil {
+		g.memo = map[imageKey][][3]int{}
+	}
+	r := g.searchImages(i.site, j.site, base)
+	g.memo[k] = r
+	return r
+}
+
+// searchImages tries every supercell translation K in
+// [−searchRange, searchRange]^d added to base and keeps the nearest.
+func (g *geometry) searchImages(si, sj int, base [3]int) [][3]int {
 	type cand struct {
 		r [3]int
 		d float64
@@ -75,7 +98,7 @@ func (g *geometry) images(i, j atomMap) [][3]int {
 					}
 				}
 				for c := 0; c < g.d; c++ {
-					df[c] = g.frac[j.site][c] + float64(r[c]) - g.frac[i.site][c]
+					df[c] = g.frac[sj][c] + float64(r[c]) - g.frac[si][c]
 				}
 				x := g.cart(df)
 				cs = append(cs, cand{r, math.Sqrt(dot(x, x))})
