@@ -12,6 +12,12 @@
 // then imposes index-permutation symmetry and the acoustic sum rule and
 // reports the size of each violation before and after.
 //
+// Limits: the nearest image of a pair is sought among the supercell
+// translations within ±2 supercell vectors of the pair's offset reduced
+// into the supercell, enough for any reasonably reduced supercell matrix
+// (not for extremely skewed ones). The sum-rule correction solves a dense
+// 9n×9n system (n primitive sites).
+//
 // Arrows: fcimport imports the core (for its Crystal, Block and
 // ValidationError) and the core never imports fcimport; the server calls
 // Fold, puts the blocks on the crystal, then Compile.
