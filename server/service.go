@@ -112,6 +112,9 @@ var modelCodec = &cache.Codec{
 // (physics.Symmetrize) and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
 	c := crystalFromProto(src.GetCrystal())
+	if err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites); err != nil {
+		return nil, err
+	}
 	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
 	if src.GetSymmetrize() {
 		var err error

@@ -104,7 +104,12 @@ type Crystal struct {
 	// Neighbour-shell springs: the engine finds every pair in the shell.
 	Shells []*Shell `protobuf:"bytes,7,rep,name=shells,proto3" json:"shells,omitempty"`
 	// Explicit 3×3 force-constant blocks Φ(from_site, cell 0; to_site, cell).
-	Blocks        []*Block `protobuf:"bytes,8,rep,name=blocks,proto3" json:"blocks,omitempty"`
+	Blocks []*Block `protobuf:"bytes,8,rep,name=blocks,proto3" json:"blocks,omitempty"`
+	// Force constants of a supercell (for example from first-principles
+	// finite displacements), folded into blocks of this primitive cell (the
+	// lattice and sites above) by the engine. A model has either this set or
+	// springs/shells/blocks, never both: a model with both is refused.
+	SupercellFc   *SupercellForceConstants `protobuf:"bytes,9,opt,name=supercell_fc,json=supercellFc,proto3" json:"supercell_fc,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -195,6 +200,168 @@ func (x *Crystal) GetBlocks() []*Block {
 	return nil
 }
 
+func (x *Crystal) GetSupercellFc() *SupercellForceConstants {
+	if x != nil {
+		return x.SupercellFc
+	}
+	return nil
+}
+
+// SupercellForceConstants is the force-constant set of a supercell of the
+// primitive cell. The engine maps every supercell atom to a primitive site
+// and cell, folds each pair's block onto the lattice vector of the pair's
+// nearest periodic image in the supercell (equidistant images share it
+// equally), imposes Φ(i,j) = Φ(j,i)ᵀ by averaging and the acoustic sum rule.
+//
+// Units: positions in Å (or fractional), force constants in the crystal's
+// force_unit (eV/Å² unless N/m), tolerance in Å.
+type SupercellForceConstants struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The supercell matrix M, d×d integers row-major: supercell vector r is
+	// A_r = Σ_c M[r][c] a_c with a_c the primitive lattice vectors. Diagonal
+	// or not; det M ≠ 0.
+	Matrix []int32 `protobuf:"varint,1,rep,packed,name=matrix,proto3" json:"matrix,omitempty"`
+	// The supercell's atoms, in any order; there must be |det M| × (number of
+	// sites) of them, one per site and primitive cell of the supercell.
+	Atoms []*SupercellAtom `protobuf:"bytes,2,rep,name=atoms,proto3" json:"atoms,omitempty"`
+	// When true, every atom's position is d fractional coordinates of the
+	// supercell vectors A_r; when false, 3 Cartesian coordinates in Å.
+	Fractional bool `protobuf:"varint,3,opt,name=fractional,proto3" json:"fractional,omitempty"`
+	// Empty: phi holds Φ(i, j) for every pair of atoms (N×N blocks, i-major).
+	// Otherwise one entry per primitive site: the index of the supercell atom
+	// that is that site's image, and phi holds Φ(primitive_atoms[s], j) for
+	// every site s and atom j (n×N blocks, s-major).
+	PrimitiveAtoms []uint32 `protobuf:"varint,4,rep,packed,name=primitive_atoms,json=primitiveAtoms,proto3" json:"primitive_atoms,omitempty"`
+	// The 3×3 blocks Φ_{αβ}(i, j), 9 numbers each, row-major (xx, xy, xz, yx,
+	// ...), in force_unit: the second derivative of the energy with respect
+	// to displacement α of atom i and β of atom j.
+	Phi []float64 `protobuf:"fixed64,5,rep,packed,name=phi,proto3" json:"phi,omitempty"`
+	// Position tolerance in Å for mapping atoms onto sites and for equal
+	// image distances; 0 means 1e-3 Å.
+	ToleranceA    float64 `protobuf:"fixed64,6,opt,name=tolerance_a,json=toleranceA,proto3" json:"tolerance_a,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SupercellForceConstants) Reset() {
+	*x = SupercellForceConstants{}
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[1]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SupercellForceConstants) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SupercellForceConstants) ProtoMessage() {}
+
+func (x *SupercellForceConstants) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[1]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SupercellForceConstants.ProtoReflect.Descriptor instead.
+func (*SupercellForceConstants) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{1}
+}
+
+func (x *SupercellForceConstants) GetMatrix() []int32 {
+	if x != nil {
+		return x.Matrix
+	}
+	return nil
+}
+
+func (x *SupercellForceConstants) GetAtoms() []*SupercellAtom {
+	if x != nil {
+		return x.Atoms
+	}
+	return nil
+}
+
+func (x *SupercellForceConstants) GetFractional() bool {
+	if x != nil {
+		return x.Fractional
+	}
+	return false
+}
+
+func (x *SupercellForceConstants) GetPrimitiveAtoms() []uint32 {
+	if x != nil {
+		return x.PrimitiveAtoms
+	}
+	return nil
+}
+
+func (x *SupercellForceConstants) GetPhi() []float64 {
+	if x != nil {
+		return x.Phi
+	}
+	return nil
+}
+
+func (x *SupercellForceConstants) GetToleranceA() float64 {
+	if x != nil {
+		return x.ToleranceA
+	}
+	return 0
+}
+
+// SupercellAtom is one atom of a supercell.
+type SupercellAtom struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Position: Cartesian Å (3 numbers) or fractional in the supercell vectors
+	// (d numbers), as SupercellForceConstants.fractional says.
+	Position      []float64 `protobuf:"fixed64,1,rep,packed,name=position,proto3" json:"position,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SupercellAtom) Reset() {
+	*x = SupercellAtom{}
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[2]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SupercellAtom) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SupercellAtom) ProtoMessage() {}
+
+func (x *SupercellAtom) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[2]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SupercellAtom.ProtoReflect.Descriptor instead.
+func (*SupercellAtom) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{2}
+}
+
+func (x *SupercellAtom) GetPosition() []float64 {
+	if x != nil {
+		return x.Position
+	}
+	return nil
+}
+
 // Vec3 is a Cartesian vector in Å.
 type Vec3 struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
@@ -210,7 +377,7 @@ type Vec3 struct {
 
 func (x *Vec3) Reset() {
 	*x = Vec3{}
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[1]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[3]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -222,7 +389,7 @@ func (x *Vec3) String() string {
 func (*Vec3) ProtoMessage() {}
 
 func (x *Vec3) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[1]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[3]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -235,7 +402,7 @@ func (x *Vec3) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Vec3.ProtoReflect.Descriptor instead.
 func (*Vec3) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{1}
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{3}
 }
 
 func (x *Vec3) GetX() float64 {
@@ -274,7 +441,7 @@ type Site struct {
 
 func (x *Site) Reset() {
 	*x = Site{}
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[2]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[4]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -286,7 +453,7 @@ func (x *Site) String() string {
 func (*Site) ProtoMessage() {}
 
 func (x *Site) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[2]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[4]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -299,7 +466,7 @@ func (x *Site) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Site.ProtoReflect.Descriptor instead.
 func (*Site) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{2}
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{4}
 }
 
 func (x *Site) GetLabel() string {
@@ -343,7 +510,7 @@ type Spring struct {
 
 func (x *Spring) Reset() {
 	*x = Spring{}
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[3]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[5]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -355,7 +522,7 @@ func (x *Spring) String() string {
 func (*Spring) ProtoMessage() {}
 
 func (x *Spring) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[3]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[5]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -368,7 +535,7 @@ func (x *Spring) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Spring.ProtoReflect.Descriptor instead.
 func (*Spring) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{3}
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{5}
 }
 
 func (x *Spring) GetFromSite() uint32 {
@@ -426,7 +593,7 @@ type Shell struct {
 
 func (x *Shell) Reset() {
 	*x = Shell{}
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[4]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[6]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -438,7 +605,7 @@ func (x *Shell) String() string {
 func (*Shell) ProtoMessage() {}
 
 func (x *Shell) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[4]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[6]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -451,7 +618,7 @@ func (x *Shell) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Shell.ProtoReflect.Descriptor instead.
 func (*Shell) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{4}
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{6}
 }
 
 func (x *Shell) GetFromLabel() string {
@@ -509,7 +676,7 @@ type Block struct {
 
 func (x *Block) Reset() {
 	*x = Block{}
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[5]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[7]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -521,7 +688,7 @@ func (x *Block) String() string {
 func (*Block) ProtoMessage() {}
 
 func (x *Block) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_crystal_proto_msgTypes[5]
+	mi := &file_modegrid_v1_crystal_proto_msgTypes[7]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -534,7 +701,7 @@ func (x *Block) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Block.ProtoReflect.Descriptor instead.
 func (*Block) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{5}
+	return file_modegrid_v1_crystal_proto_rawDescGZIP(), []int{7}
 }
 
 func (x *Block) GetFromSite() uint32 {
@@ -569,7 +736,7 @@ var File_modegrid_v1_crystal_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\n" +
-	"\x19modegrid/v1/crystal.proto\x12\vmodegrid.v1\"\xd7\x02\n" +
+	"\x19modegrid/v1/crystal.proto\x12\vmodegrid.v1\"\xa0\x03\n" +
 	"\aCrystal\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12+\n" +
 	"\alattice\x18\x02 \x03(\v2\x11.modegrid.v1.Vec3R\alattice\x12$\n" +
@@ -579,7 +746,20 @@ const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\x05sites\x18\x05 \x03(\v2\x11.modegrid.v1.SiteR\x05sites\x12-\n" +
 	"\asprings\x18\x06 \x03(\v2\x13.modegrid.v1.SpringR\asprings\x12*\n" +
 	"\x06shells\x18\a \x03(\v2\x12.modegrid.v1.ShellR\x06shells\x12*\n" +
-	"\x06blocks\x18\b \x03(\v2\x12.modegrid.v1.BlockR\x06blocks\"0\n" +
+	"\x06blocks\x18\b \x03(\v2\x12.modegrid.v1.BlockR\x06blocks\x12G\n" +
+	"\fsupercell_fc\x18\t \x01(\v2$.modegrid.v1.SupercellForceConstantsR\vsupercellFc\"\xdf\x01\n" +
+	"\x17SupercellForceConstants\x12\x16\n" +
+	"\x06matrix\x18\x01 \x03(\x05R\x06matrix\x120\n" +
+	"\x05atoms\x18\x02 \x03(\v2\x1a.modegrid.v1.SupercellAtomR\x05atoms\x12\x1e\n" +
+	"\n" +
+	"fractional\x18\x03 \x01(\bR\n" +
+	"fractional\x12'\n" +
+	"\x0fprimitive_atoms\x18\x04 \x03(\rR\x0eprimitiveAtoms\x12\x10\n" +
+	"\x03phi\x18\x05 \x03(\x01R\x03phi\x12\x1f\n" +
+	"\vtolerance_a\x18\x06 \x01(\x01R\n" +
+	"toleranceA\"+\n" +
+	"\rSupercellAtom\x12\x1a\n" +
+	"\bposition\x18\x01 \x03(\x01R\bposition\"0\n" +
 	"\x04Vec3\x12\f\n" +
 	"\x01x\x18\x01 \x01(\x01R\x01x\x12\f\n" +
 	"\x01y\x18\x02 \x01(\x01R\x01y\x12\f\n" +
@@ -624,28 +804,32 @@ func file_modegrid_v1_crystal_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_crystal_proto_enumTypes = make([]protoimpl.EnumInfo, 1)
-var file_modegrid_v1_crystal_proto_msgTypes = make([]protoimpl.MessageInfo, 6)
+var file_modegrid_v1_crystal_proto_msgTypes = make([]protoimpl.MessageInfo, 8)
 var file_modegrid_v1_crystal_proto_goTypes = []any{
-	(ForceUnit)(0),  // 0: modegrid.v1.ForceUnit
-	(*Crystal)(nil), // 1: modegrid.v1.Crystal
-	(*Vec3)(nil),    // 2: modegrid.v1.Vec3
-	(*Site)(nil),    // 3: modegrid.v1.Site
-	(*Spring)(nil),  // 4: modegrid.v1.Spring
-	(*Shell)(nil),   // 5: modegrid.v1.Shell
-	(*Block)(nil),   // 6: modegrid.v1.Block
+	(ForceUnit)(0),                  // 0: modegrid.v1.ForceUnit
+	(*Crystal)(nil),                 // 1: modegrid.v1.Crystal
+	(*SupercellForceConstants)(nil), // 2: modegrid.v1.SupercellForceConstants
+	(*SupercellAtom)(nil),           // 3: modegrid.v1.SupercellAtom
+	(*Vec3)(nil),                    // 4: modegrid.v1.Vec3
+	(*Site)(nil),                    // 5: modegrid.v1.Site
+	(*Spring)(nil),                  // 6: modegrid.v1.Spring
+	(*Shell)(nil),                   // 7: modegrid.v1.Shell
+	(*Block)(nil),                   // 8: modegrid.v1.Block
 }
 var file_modegrid_v1_crystal_proto_depIdxs = []int32{
-	2, // 0: modegrid.v1.Crystal.lattice:type_name -> modegrid.v1.Vec3
+	4, // 0: modegrid.v1.Crystal.lattice:type_name -> modegrid.v1.Vec3
 	0, // 1: modegrid.v1.Crystal.force_unit:type_name -> modegrid.v1.ForceUnit
-	3, // 2: modegrid.v1.Crystal.sites:type_name -> modegrid.v1.Site
-	4, // 3: modegrid.v1.Crystal.springs:type_name -> modegrid.v1.Spring
-	5, // 4: modegrid.v1.Crystal.shells:type_name -> modegrid.v1.Shell
-	6, // 5: modegrid.v1.Crystal.blocks:type_name -> modegrid.v1.Block
-	6, // [6:6] is the sub-list for method output_type
-	6, // [6:6] is the sub-list for method input_type
-	6, // [6:6] is the sub-list for extension type_name
-	6, // [6:6] is the sub-list for extension extendee
-	0, // [0:6] is the sub-list for field type_name
+	5, // 2: modegrid.v1.Crystal.sites:type_name -> modegrid.v1.Site
+	6, // 3: modegrid.v1.Crystal.springs:type_name -> modegrid.v1.Spring
+	7, // 4: modegrid.v1.Crystal.shells:type_name -> modegrid.v1.Shell
+	8, // 5: modegrid.v1.Crystal.blocks:type_name -> modegrid.v1.Block
+	2, // 6: modegrid.v1.Crystal.supercell_fc:type_name -> modegrid.v1.SupercellForceConstants
+	3, // 7: modegrid.v1.SupercellForceConstants.atoms:type_name -> modegrid.v1.SupercellAtom
+	8, // [8:8] is the sub-list for method output_type
+	8, // [8:8] is the sub-list for method input_type
+	8, // [8:8] is the sub-list for extension type_name
+	8, // [8:8] is the sub-list for extension extendee
+	0, // [0:8] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_crystal_proto_init() }
@@ -659,7 +843,7 @@ func file_modegrid_v1_crystal_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_crystal_proto_rawDesc), len(file_modegrid_v1_crystal_proto_rawDesc)),
 			NumEnums:      1,
-			NumMessages:   6,
+			NumMessages:   8,
 			NumExtensions: 0,
 			NumServices:   0,
 		},

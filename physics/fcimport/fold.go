@@ -1,0 +1,194 @@
+package fcimport
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"github.com/materials-lab/modegrid/physics"
+)
+
+// DefaultTolA is the position tolerance (Å) used when Set.TolA is 0.
+const DefaultTolA = 1e-3
+
+// searchRange bounds the supercell translations K (each component in
+// [-searchRange, searchRange]) tried for a pair's nearest image, after the
+// pair's offset is first reduced into the supercell.
+const searchRange = 2
+
+// Set is a supercell force-constant set, the physics twin of
+// modegrid.v1.SupercellForceConstants. Units: positions Å (or fractional),
+// Phi in the crystal's force unit, TolA Å.
+type Set struct {
+	Matrix         []int       // d×d row-major: A_r = Σ_c Matrix[r·d+c] a_c
+	Atoms          [][]float64 // Cartesian Å (3) or fractional in A_r (d)
+	Fractional     bool        // Atoms are fractional in the supercell vectors
+	PrimitiveAtoms []int       // empty: Phi is N×N; else Phi is n×N rows of these atoms
+	Phi            []float64   // 9 per block, row-major, i-major
+	TolA           float64     // 0 → DefaultTolA
+}
+
+// Report gives the largest element (force unit) of each violation before
+// and after its correction: Permutation is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ|
+// of the folded set, SumRule is max |Σ_{t,R} Φ(s,0;t,R)| over sites.
+type Report struct {
+	PermutationBefore, PermutationAfter float64
+	SumRuleBefore, SumRuleAfter         float64
+	Multiplicities                      int // pairs shared among >1 equidistant images
+}
+
+// key names a folded block Φ(s, 0; t, R).
+type key struct {
+	s, t int
+	r    [3]int
+}
+
+// atomMap is where a supercell atom sits: site and reduced cell offset.
+type atomMap struct {
+	site int
+	cell [3]int
+}
+
+// Fold maps, folds and corrects the set s for the primitive cell of c and
+// returns the blocks (the canonical half: each pair once, plus on-site
+// blocks) in c's force unit. Invalid input gives a *physics.ValidationError
+// listing every violation with field paths under "supercell_fc". It returns
+// ctx.Err() if ctx ends first (polled once per row of the set).
+func Fold(ctx context.Context, c *physics.Crystal, s *Set) ([]physics.Block, Report, error) {
+	g, err := newGeometry(c, s)
+	if err != nil {
+		return nil, Report{}, err
+	}
+	maps, err := g.mapAtoms(s)
+	if err != nil {
+		return nil, Report{}, err
+	}
+	fc, err := g.fold(ctx, s, maps)
+	if err != nil {
+		return nil, Report{}, err
+	}
+	var rep Report
+	rep.Multiplicities = g.shared
+	rep.PermutationBefore = permute(fc)
+	rep.PermutationAfter = permutationViolation(fc)
+	rep.SumRuleBefore = sumRuleViolation(fc, g.nsites)
+	if err := imposeSumRule(fc, g.nsites); err != nil {
+		return nil, rep, err
+	}
+	rep.SumRuleAfter = sumRuleViolation(fc, g.nsites)
+	return blocksOf(fc, g.d), rep, nil
+}
+
+// geometry holds the primitive and supercell lattices.
+type geometry struct {
+	d, nsites int
+	lat       [][3]float64 // primitive vectors
+	m         []int        // supercell matrix
+	minv      []float64    // its inverse, row-major
+	det       int
+	frac      [][]float64 // site fractional positions
+	tol       float64
+	shared    int
+	memo      map[imageKey][][3]int // images by pair class
+}
+
+// newGeometry checks the set's shape and prepares the lattices.
+func newGeometry(c *physics.Crystal, s *Set) (*geometry, error) {
+	var vs physics.Violations
+	d := c.Dim()
+	g := &geometry{d: d, nsites: len(c.Sites), lat: c.Lattice, m: s.Matrix, tol: s.TolA}
+	if d < 1 || d > 3 || g.nsites == 0 {
+		vs.Add("lattice", "the primitive cell needs 1 to 3 lattice vectors and at least one site")
+		return nil, vs.Err()
+	}
+	for _, st := range c.Sites {
+		if len(st.Frac) != d {
+			vs.Add("sites", "every site needs %d fractional coordinates", d)
+			return nil, vs.Err()
+		}
+		g.frac = append(g.frac, st.Frac)
+	}
+	if g.tol == 0 {
+		g.tol = DefaultTolA
+	}
+	if !(g.tol > 0) || math.IsInf(g.tol, 0) {
+		vs.Add("supercell_fc.tolerance_a", "must be a positive finite length in Å or 0, got %v", s.TolA)
+	}
+	if len(s.Matrix) != d*d {
+		vs.Add("supercell_fc.matrix", "needs %d integers (d×d), got %d", d*d, len(s.Matrix))
+		return nil, vs.Err()
+	}
+	g.det, g.minv = inverse(s.Matrix, d)
+	if g.det == 0 {
+		vs.Add("supercell_fc.matrix", "is singular (determinant 0)")
+		return nil, vs.Err()
+	}
+	n := abs(g.det) * g.nsites
+	if len(s.Atoms) != n {
+		vs.Add("supercell_fc.atoms", "needs |det M|×sites = %d atoms, got %d", n, len(s.Atoms))
+	}
+	rows := n
+	if len(s.PrimitiveAtoms) > 0 {
+		rows = g.nsites
+		if len(s.PrimitiveAtoms) != g.nsites {
+			vs.Add("supercell_fc.primitive_atoms", "needs one atom per site (%d), got %d", g.nsites, len(s.PrimitiveAtoms))
+		}
+		for i, a := range s.PrimitiveAtoms {
+			if a < 0 || a >= len(s.Atoms) {
+				vs.Add(fmt.Sprintf("supercell_fc.primitive_atoms[%d]", i), "atom %d is not in 0..%d", a, len(s.Atoms)-1)
+			}
+		}
+	}
+	if len(s.Phi) != 9*rows*len(s.Atoms) {
+		vs.Add("supercell_fc.phi", "needs 9×%d×%d = %d numbers, got %d", rows, len(s.Atoms), 9*rows*len(s.Atoms), len(s.Phi))
+	}
+	for i, x := range s.Phi {
+		if math.IsNaN(x) || math.Abs(x) > physics.MaxForceEVPerA2 {
+			vs.Add(fmt.Sprintf("supercell_fc.phi[%d]", i), "must be finite with |Φ| ≤ %g, got %v", physics.MaxForceEVPerA2, x)
+			break
+		}
+	}
+	return g, vs.Err()
+}
+
+func abs(x int) int {
+	if x < 0 {
+		return -x
+	}
+	return x
+}
+
+// inverse returns det M and M⁻¹ (row-major) of the d×d integer matrix.
+func inverse(m []int, d int) (int, []float64) {
+	a := func(r, c int) int { return m[r*d+c] }
+	switch d {
+	case 1:
+		if m[0] == 0 {
+			return 0, nil
+		}
+		return m[0], []float64{1 / float64(m[0])}
+	case 2:
+		det := a(0, 0)*a(1, 1) - a(0, 1)*a(1, 0)
+		if det == 0 {
+			return 0, nil
+		}
+		f := 1 / float64(det)
+		return det, []float64{f * float64(a(1, 1)), -f * float64(a(0, 1)), -f * float64(a(1, 0)), f * float64(a(0, 0))}
+	}
+	cof := func(r, c int) int {
+		r1, r2 := (r+1)%3, (r+2)%3
+		c1, c2 := (c+1)%3, (c+2)%3
+		return a(r1, c1)*a(r2, c2) - a(r1, c2)*a(r2, c1)
+	}
+	det := a(0, 0)*cof(0, 0) + a(0, 1)*cof(0, 1) + a(0, 2)*cof(0, 2)
+	if det == 0 {
+		return 0, nil
+	}
+	inv := make([]float64, 9)
+	for r := 0; r < 3; r++ {
+		for c := 0; c < 3; c++ {
+			inv[r*3+c] = float64(cof(c, r)) / float64(det)
+		}
+	}
+	return det, inv
+}

@@ -1,0 +1,226 @@
+package fcimport
+
+import (
+	"context"
+	"math"
+	"sort"
+
+	"github.com/materials-lab/modegrid/physics"
+)
+
+// fold accumulates every pair's block onto its nearest images: with N×N
+// rows, each site's det M images each contribute 1/|det M|; with n×N rows
+// the one image contributes fully. It returns ctx.Err() if ctx ends first.
+func (g *geometry) fold(ctx context.Context, s *Set, maps []atomMap) (map[key][9]float64, error) {
+	fc := map[key][9]float64{}
+	n := len(s.Atoms)
+	rows, weight := make([]int, 0, n), 1/float64(abs(g.det))
+	if len(s.PrimitiveAtoms) > 0 {
+		rows, weight = s.PrimitiveAtoms, 1
+	} else {
+		for i := 0; i < n; i++ {
+			rows = append(rows, i)
+		}
+	}
+	for x, i := range rows {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		for j := 0; j < n; j++ {
+			blk := s.Phi[9*(x*n+j) : 9*(x*n+j)+9]
+			images := g.images(maps[i], maps[j])
+			if len(images) > 1 {
+				g.shared++
+			}
+			w := weight / float64(len(images))
+			for _, r := range images {
+				k := key{maps[i].site, maps[j].site, r}
+				b := fc[k]
+				for a := range b {
+					b[a] += w * blk[a]
+				}
+				fc[k] = b
+			}
+		}
+	}
+	return fc, nil
+}
+
+// imageKey names the pairs that share their nearest images: the two
+// sites and the cell offset reduced modulo the supercell.
+type imageKey struct {
+	s, t int
+	base [3]int
+}
+
+// images returns the lattice vectors R of the nearest periodic images of
+// atom j seen from atom i (all within the tolerance of the nearest),
+// memoised by imageKey: the N² pairs have only n²·|det M| distinct ones.
+func (g *geometry) images(i, j atomMap) [][3]int {
+	var base [3]int
+	for c := 0; c < g.d; c++ {
+		base[c] = j.cell[c] - i.cell[c]
+	}
+	base = g.reduce(base)
+	k := imageKey{i.site, j.site, base}
+	if r, ok := g.memo[k]; ok {
+		return r
+	}
+	if g.memo == nil {
+		g.memo = map[imageKey][][3]int{}
+	}
+	r := g.searchImages(i.site, j.site, base)
+	g.memo[k] = r
+	return r
+}
+
+// searchImages tries every supercell translation K in
+// [−searchRange, searchRange]^d added to base and keeps the nearest.
+func (g *geometry) searchImages(si, sj int, base [3]int) [][3]int {
+	type cand struct {
+		r [3]int
+		d float64
+	}
+	var cs []cand
+	lo, hi := [3]int{}, [3]int{}
+	for c := 0; c < g.d; c++ {
+		lo[c], hi[c] = -searchRange, searchRange
+	}
+	df := make([]float64, g.d)
+	for k0 := lo[0]; k0 <= hi[0]; k0++ {
+		for k1 := lo[1]; k1 <= hi[1]; k1++ {
+			for k2 := lo[2]; k2 <= hi[2]; k2++ {
+				k := [3]int{k0, k1, k2}
+				r := base
+				for row := 0; row < g.d; row++ {
+					for c := 0; c < g.d; c++ {
+						r[c] += k[row] * g.m[row*g.d+c]
+					}
+				}
+				for c := 0; c < g.d; c++ {
+					df[c] = g.frac[sj][c] + float64(r[c]) - g.frac[si][c]
+				}
+				x := g.cart(df)
+				cs = append(cs, cand{r, math.Sqrt(dot(x, x))})
+			}
+		}
+	}
+	dmin := math.Inf(1)
+	for _, c := range cs {
+		dmin = math.Min(dmin, c.d)
+	}
+	var out [][3]int
+	for _, c := range cs {
+		if c.d <= dmin+g.tol {
+			out = append(out, c.r)
+		}
+	}
+	return out
+}
+
+func neg(r [3]int) [3]int { return [3]int{-r[0], -r[1], -r[2]} }
+
+func transpose(b [9]float64) [9]float64 {
+	return [9]float64{b[0], b[3], b[6], b[1], b[4], b[7], b[2], b[5], b[8]}
+}
+
+// permutationViolation is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ| over the set.
+func permutationViolation(fc map[key][9]float64) float64 {
+	var v float64
+	for k, b := range fc {
+		p := transpose(fc[key{k.t, k.s, neg(k.r)}])
+		for a := range b {
+			v = math.Max(v, math.Abs(b[a]-p[a]))
+		}
+	}
+	return v
+}
+
+// permute imposes Φ(s,0;t,R) = Φ(t,0;s,−R)ᵀ by replacing both with their
+// average (a missing partner counts as zero) and returns the violation
+// before.
+func permute(fc map[key][9]float64) float64 {
+	before := permutationViolation(fc)
+	for _, k := range sortedKeys(fc) {
+		pk := key{k.t, k.s, neg(k.r)}
+		b, p := fc[k], transpose(fc[pk])
+		var avg [9]float64
+		for a := range avg {
+			avg[a] = (b[a] + p[a]) / 2
+		}
+		fc[k], fc[pk] = avg, transpose(avg)
+	}
+	return before
+}
+
+// sumRuleViolation is max |Σ_{t,R} Φ_αβ(s,0;t,R)| over sites and α, β.
+func sumRuleViolation(fc map[key][9]float64, nsites int) float64 {
+	var v float64
+	for _, e := range residuals(fc, nsites) {
+		for _, x := range e {
+			v = math.Max(v, math.Abs(x))
+		}
+	}
+	return v
+}
+
+// residuals returns E_s = Σ_{t,R} Φ(s,0;t,R) per site.
+func residuals(fc map[key][9]float64, nsites int) [][9]float64 {
+	e := make([][9]float64, nsites)
+	for _, k := range sortedKeys(fc) {
+		b := fc[k]
+		for a := range b {
+			e[k.s][a] += b[a]
+		}
+	}
+	return e
+}
+
+// sortedKeys returns the keys in (s, t, R) order, for sums that do not
+// depend on map order.
+func sortedKeys(fc map[key][9]float64) []key {
+	ks := make([]key, 0, len(fc))
+	for k := range fc {
+		ks = append(ks, k)
+	}
+	sort.Slice(ks, func(a, b int) bool {
+		x, y := ks[a], ks[b]
+		if x.s != y.s {
+			return x.s < y.s
+		}
+		if x.t != y.t {
+			return x.t < y.t
+		}
+		for c := 0; c < 3; c++ {
+			if x.r[c] != y.r[c] {
+				return x.r[c] < y.r[c]
+			}
+		}
+		return false
+	})
+	return ks
+}
+
+// blocksOf returns the canonical half of the set (s < t, or s = t with R
+// ≥ 0 lexicographically) as physics blocks; Compile adds the transposes.
+func blocksOf(fc map[key][9]float64, d int) []physics.Block {
+	var out []physics.Block
+	for _, k := range sortedKeys(fc) {
+		if k.s > k.t || (k.s == k.t && lessZero(k.r)) {
+			continue
+		}
+		b := fc[k]
+		out = append(out, physics.Block{From: k.s, To: k.t, Cell: append([]int(nil), k.r[:d]...), Phi: append([]float64(nil), b[:]...)})
+	}
+	return out
+}
+
+// lessZero reports whether r < 0 lexicographically.
+func lessZero(r [3]int) bool {
+	for _, x := range r {
+		if x != 0 {
+			return x < 0
+		}
+	}
+	return false
+}

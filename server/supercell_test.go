@@ -1,0 +1,117 @@
+package server
+
+import (
+	"math"
+	"strings"
+	"testing"
+
+	"google.golang.org/genproto/googleapis/rpc/errdetails"
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/status"
+
+	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+)
+
+// diatomicSupercell is the diatomic chain example (springs K = 2 eV/Å²
+// between nearest L–H neighbours, Kittel, Introduction to Solid State
+// Physics, ch. 4) written as a 3-cell supercell force-constant set: atoms
+// at 2.5·i Å (L, H alternating, listed in reverse), Φ_xx(i,i) = 2K,
+// Φ_xx(i,i±1 mod 6) = −K.
+func diatomicSupercell(t *testing.T) *modegridv1.Crystal {
+	c := example(t, "diatomic-chain")
+	c.Springs = nil
+	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{3}}
+	const n = 6
+	order := []int{5, 4, 3, 2, 1, 0}
+	for _, i := range order {
+		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+	}
+	for _, i := range order {
+		for _, j := range order {
+			blk := make([]float64, 9)
+			switch {
+			case i == j:
+				blk[0] = 4
+			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
+				blk[0] = -2
+			}
+			fc.Phi = append(fc.Phi, blk...)
+		}
+	}
+	c.SupercellFc = fc
+	return c
+}
+
+// TestSupercellModesOverGRPC: through real gRPC, the diatomic chain given
+// as a supercell set computes the same modes as its spring model.
+func TestSupercellModesOverGRPC(t *testing.T) {
+	ts := startServer(t, Config{})
+	qs := qlist(0, 0.1, 0.37, -0.23, 0.5)
+	want, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(example(t, "diatomic-chain")), Qpoints: qs})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qs})
+	if err != nil {
+		t.Fatal(err)
+	}
+	wp, gp := allPoints(want), allPoints(got)
+	if len(wp) != 5 || len(gp) != 5 {
+		t.Fatalf("got %d and %d points, want 5", len(wp), len(gp))
+	}
+	for i := range wp {
+		for m, f := range wp[i].GetFrequencies() {
+			if g := gp[i].GetFrequencies()[m]; math.Abs(g-f) > 1e-10 {
+				t.Errorf("q=%v mode %d: supercell %.15g, springs %.15g", wp[i].GetQ(), m, g, f)
+			}
+		}
+	}
+}
+
+// TestSupercellRefused: a set together with springs, and a set with an
+// atom far from every site, are INVALID_ARGUMENT naming the fields.
+func TestSupercellRefused(t *testing.T) {
+	ts := startServer(t, Config{})
+	both := diatomicSupercell(t)
+	both.Springs = example(t, "diatomic-chain").GetSprings()
+	far := diatomicSupercell(t)
+	far.SupercellFc.Atoms[2].Position[0] += 0.7
+	far.SupercellFc.Atoms[4].Position[0] -= 0.9
+	for name, tc := range map[string]struct {
+		c      *modegridv1.Crystal
+		fields []string
+	}{
+		"both":       {both, []string{"supercell_fc"}},
+		"unmappable": {far, []string{"supercell_fc.atoms[2]", "supercell_fc.atoms[4]"}},
+	} {
+		_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(tc.c), Qpoints: qlist(0.1)})
+		st := status.Convert(err)
+		if st.Code() != codes.InvalidArgument {
+			t.Fatalf("%s: %v, want INVALID_ARGUMENT", name, err)
+		}
+		var fields []string
+		for _, d := range st.Details() {
+			if br, ok := d.(*errdetails.BadRequest); ok {
+				for _, v := range br.GetFieldViolations() {
+					fields = append(fields, v.GetField())
+				}
+			}
+		}
+		all := strings.Join(fields, " ")
+		for _, f := range tc.fields {
+			if !strings.Contains(all, f) {
+				t.Errorf("%s: violations %q do not name %s", name, all, f)
+			}
+		}
+	}
+}
+
+// TestSupercellCap: a set with more atoms than the server's max sites is
+// refused, naming the field and the cap.
+func TestSupercellCap(t *testing.T) {
+	ts := startServer(t, Config{MaxSites: 4})
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.1)})
+	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "max sites 4") {
+		t.Fatalf("err = %v, want INVALID_ARGUMENT naming supercell_fc.atoms and the cap", err)
+	}
+}
