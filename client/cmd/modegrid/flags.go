@@ -7,11 +7,13 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"strings"
 	"time"
 
 	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
+	"google.golang.org/protobuf/proto"
 )
 
 // env is what a command writes to.
@@ -145,7 +147,7 @@ func (o *outFlags) write(stdout io.Writer, fn func(io.Writer) error) error {
 type modelFlag struct{ path string }
 
 func (m *modelFlag) register(fs *flag.FlagSet) {
-	fs.StringVar(&m.path, "model", "", "model file: the protobuf JSON of modegrid.v1.Crystal")
+	fs.StringVar(&m.path, "model", "", "model file by extension: .json (protobuf JSON of modegrid.v1.Crystal), .pb or .binpb (protobuf binary of modegrid.v1.Crystal), .npz (NumPy supercell force constants)")
 	fs.StringVar(&m.path, "m", "", "shorthand for --model")
 }
 
@@ -162,9 +164,31 @@ func (m *modelFlag) load() (*modegridv1.Crystal, error) {
 		}
 		return nil, usagef("cannot read model file %s: %v", m.path, err)
 	}
+	c, err := parseModelFile(m.path, b)
+	if err != nil {
+		return nil, &invalidError{msg: fmt.Sprintf("model file %s is not a valid model: %v", m.path, err)}
+	}
+	return c, nil
+}
+
+// parseModelFile decodes a model file by its extension: .npz is a NumPy
+// supercell force-constant set, .pb and .binpb the protobuf binary of a
+// Crystal (the same message as the JSON file, so the two convert one to
+// one), anything else protobuf JSON.
+func parseModelFile(path string, b []byte) (*modegridv1.Crystal, error) {
+	switch strings.ToLower(filepath.Ext(path)) {
+	case ".npz":
+		return loadNPZ(path, b)
+	case ".pb", ".binpb":
+		var c modegridv1.Crystal
+		if err := proto.Unmarshal(b, &c); err != nil {
+			return nil, fmt.Errorf("protobuf binary of modegrid.v1.Crystal: %s", jsonProblem(err))
+		}
+		return &c, nil
+	}
 	c, err := client.ParseModel(b)
 	if err != nil {
-		return nil, &invalidError{msg: fmt.Sprintf("model file %s is not a valid model: %v", m.path, jsonProblem(err))}
+		return nil, errors.New(jsonProblem(err))
 	}
 	return c, nil
 }
