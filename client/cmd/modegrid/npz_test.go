@@ -24,6 +24,7 @@ type npyArray struct {
 	shape   []int
 	dtype   string
 	data    []float64
+	text    []string // dtype "<U1": one character each, UTF-32
 	fortran bool
 }
 
@@ -54,6 +55,9 @@ func writeNPZ(t *testing.T, path string, arrays map[string]npyArray) {
 		b.WriteString("\x93NUMPY\x01\x00")
 		_ = binary.Write(&b, binary.LittleEndian, uint16(len(hdr)))
 		b.WriteString(hdr)
+		for _, r := range strings.Join(a.text, "") {
+			_ = binary.Write(&b, binary.LittleEndian, uint32(r))
+		}
 		for _, v := range a.data {
 			switch a.dtype {
 			case "<f8":
@@ -302,5 +306,33 @@ func TestBinaryModelRoundTrip(t *testing.T) {
 	}
 	if code, _, stderr := runCLI(t, "modes", "-m", bad, "--q", "0"); code != exitInvalid || !strings.Contains(stderr, "protobuf binary") {
 		t.Errorf("garbage .pb: exit %d, stderr %s", code, stderr)
+	}
+}
+
+// TestNPZLabels: optional labels become the site labels, the file's name
+// the model's; a label count other than n is named.
+func TestNPZLabels(t *testing.T) {
+	a := chainArrays()
+	a["labels"] = npyArray{shape: []int{2}, dtype: "<U1", text: []string{"L", "H"}}
+	path := filepath.Join(t.TempDir(), "labelled.npz")
+	writeNPZ(t, path, a)
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, err := parseModelFile(path, b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.GetName() != "labelled" || c.GetSites()[0].GetLabel() != "L" || c.GetSites()[1].GetLabel() != "H" {
+		t.Errorf("name %q, sites %v; want labelled, L, H", c.GetName(), c.GetSites())
+	}
+	a["labels"] = npyArray{shape: []int{3}, dtype: "<U1", text: []string{"L", "H", "X"}}
+	writeNPZ(t, path, a)
+	if b, err = os.ReadFile(path); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := parseModelFile(path, b); err == nil || !strings.Contains(err.Error(), "labels: 3 entries, want n = 2") {
+		t.Errorf("3 labels for 2 sites: %v", err)
 	}
 }
