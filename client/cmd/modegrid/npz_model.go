@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"fmt"
+	"math"
 	"path/filepath"
 	"strings"
 
@@ -75,7 +76,13 @@ func (z *npzFile) checkShapes(a *npzArrays) {
 		return
 	}
 	z.shapeIs("positions", a.positions, []int{n, d}, fmt.Sprintf("(n, d) = (%d, %d)", n, d))
-	z.shapeIs("supercell_matrix", a.matrix, []int{d, d}, fmt.Sprintf("(d, d) = (%d, %d)", d, d))
+	if z.shapeIs("supercell_matrix", a.matrix, []int{d, d}, fmt.Sprintf("(d, d) = (%d, %d)", d, d)) {
+		for k, m := range a.matrix.ints {
+			if m < math.MinInt32 || m > math.MaxInt32 {
+				z.problemf("supercell_matrix[%d][%d]: %d does not fit in int32", k/d, k%d, m)
+			}
+		}
+	}
 	if a.labels != nil && len(a.labels) != n {
 		z.problemf("labels: %d entries, want n = %d", len(a.labels), n)
 	}

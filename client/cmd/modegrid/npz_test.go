@@ -251,6 +251,9 @@ func TestNPZProblems(t *testing.T) {
 		"primitive rows": {func(a map[string]npyArray) {
 			a["primitive_atoms"] = npyArray{shape: []int{2}, dtype: "<i8", data: []float64{0, 9}}
 		}, []string{"force_constants: shape (8, 8, 3, 3), want (n, N, 3, 3) = (2, 8, 3, 3)", "primitive_atoms[1]: 9, want a supercell atom index in [0, 8)"}},
+		"huge matrix": {func(a map[string]npyArray) {
+			a["supercell_matrix"] = npyArray{shape: []int{1, 1}, dtype: "<i8", data: []float64{1 << 40}}
+		}, []string{"supercell_matrix[0][0]: 1099511627776 does not fit in int32"}},
 	}
 	for name, tc := range cases {
 		t.Run(name, func(t *testing.T) {
@@ -334,5 +337,18 @@ func TestNPZLabels(t *testing.T) {
 	}
 	if _, err := parseModelFile(path, b); err == nil || !strings.Contains(err.Error(), "labels: 3 entries, want n = 2") {
 		t.Errorf("3 labels for 2 sites: %v", err)
+	}
+}
+
+// TestNPZNotAnArchive: a .npz that is not a zip archive is an invalid
+// model that says so.
+func TestNPZNotAnArchive(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "text.npz")
+	if err := os.WriteFile(path, []byte("lattice = 5\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	code, _, stderr := runCLI(t, "modes", "-m", path, "--q", "0")
+	if code != exitInvalid || !strings.Contains(stderr, "not a NumPy .npz archive") {
+		t.Errorf("exit %d, stderr %s", code, stderr)
 	}
 }
