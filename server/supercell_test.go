@@ -5,6 +5,10 @@ import (
 	"strings"
 	"testing"
 
+	"google.golang.org/protobuf/proto"
+
+	"github.com/materials-lab/modegrid/physics"
+
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
@@ -113,5 +117,58 @@ func TestSupercellCap(t *testing.T) {
 	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.1)})
 	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "max sites 4") {
 		t.Fatalf("err = %v, want INVALID_ARGUMENT naming supercell_fc.atoms and the cap", err)
+	}
+}
+
+// TestSupercellCheckReportsFold: through real gRPC, CheckModel reports the
+// fold of a 3-cell set with an on-site element raised by δ (breaking the
+// acoustic sum rule) and one pair element changed by ε (breaking index
+// permutation). Derived: a folded block is the set's block summed over
+// the supercell's 3 cells of atom i and divided by 3, so the row sum of
+// that site is off by δ/3 and the pair differs from its transpose by ε/3.
+// The sum rule is measured after the pair is averaged (ε/2 each way), so
+// atom 0's row is off by (δ + ε/2)/3; both corrections bring them to
+// rounding. Given in N/m the same sizes
+// are reported in eV/Å².
+func TestSupercellCheckReportsFold(t *testing.T) {
+	ts := startServer(t, Config{})
+	const delta, eps, n = 0.3, 0.06, 6
+	c := diatomicSupercell(t)
+	c.SupercellFc.Phi[0] += delta       // atom 0's on-site xx
+	c.SupercellFc.Phi[(0*n+1)*9] += eps // Φ_xx(0, 1), not Φ_xx(1, 0)
+	c.SupercellFc.ToleranceA = 2e-3
+	inN := proto.Clone(c).(*modegridv1.Crystal)
+	inN.ForceUnit = modegridv1.ForceUnit_FORCE_UNIT_N_PER_M
+	for i := range inN.SupercellFc.Phi {
+		inN.SupercellFc.Phi[i] *= physics.EVPerA2InNPerM
+	}
+	for name, cr := range map[string]*modegridv1.Crystal{"eV/Å²": c, "N/m": inN} {
+		r, err := ts.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: inline(cr)})
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		f := r.GetSupercellFold()
+		if f == nil {
+			t.Fatalf("%s: no supercell_fold in %v", name, r)
+		}
+		if f.GetAtomsMapped() != n || f.GetToleranceA() != 2e-3 || f.GetSharedImagePairs() == 0 {
+			t.Errorf("%s: atoms %d tolerance %v shared %d, want %d, 0.002, > 0 (pairs 7.5 Å apart in a 15 Å cell)", name, f.GetAtomsMapped(), f.GetToleranceA(), f.GetSharedImagePairs(), n)
+		}
+		near := func(what string, got, want float64) {
+			if math.Abs(got-want) > 1e-12 {
+				t.Errorf("%s: %s = %.15g, want %.15g", name, what, got, want)
+			}
+		}
+		near("permutation before", f.GetPermutationBeforeEvPerA2(), eps/3)
+		near("permutation after", f.GetPermutationAfterEvPerA2(), 0)
+		near("sum rule after", f.GetSumRuleAfterEvPerA2(), 0)
+		near("sum rule before", f.GetSumRuleBeforeEvPerA2(), (delta+eps/2)/3)
+	}
+	plain, err := ts.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: inline(example(t, "diatomic-chain"))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if plain.GetSupercellFold() != nil {
+		t.Errorf("a spring model reports a fold: %v", plain.GetSupercellFold())
 	}
 }
