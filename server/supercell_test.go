@@ -1,6 +1,7 @@
 package server
 
 import (
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -170,5 +171,97 @@ func TestSupercellCheckReportsFold(t *testing.T) {
 	}
 	if plain.GetSupercellFold() != nil {
 		t.Errorf("a spring model reports a fold: %v", plain.GetSupercellFold())
+	}
+}
+
+// chainSet is a 1D chain of n sites 2.5 Å apart in one cell (the
+// supercell matrix is [1]) given as its force-constant set: nearest
+// neighbours K = 2 eV/Å² (invented), on-site 2K.
+func chainSet(n int) *modegridv1.Crystal {
+	c := &modegridv1.Crystal{Name: fmt.Sprintf("chain-set-%d", n), Lattice: []*modegridv1.Vec3{{X: 2.5 * float64(n)}}, Polarizations: 1}
+	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{1}}
+	for i := range n {
+		c.Sites = append(c.Sites, &modegridv1.Site{Label: fmt.Sprintf("S%d", i), MassAmu: 30, Frac: []float64{float64(i) / float64(n)}})
+		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+	}
+	for i := range n {
+		for j := range n {
+			blk := make([]float64, 9)
+			switch {
+			case i == j:
+				blk[0] = 4
+			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
+				blk[0] = -2
+			}
+			fc.Phi = append(fc.Phi, blk...)
+		}
+	}
+	c.SupercellFc = fc
+	return c
+}
+
+// TestSupercellFoldAdmission: through real gRPC with max-compute-seconds
+// 0.01, the diatomic chain's 3-cell set (a 18×18 sum-rule system) computes;
+// a 32-site set, whose sum-rule SVD alone is at least 8·288³/3 = 6.370e7
+// operations (with the image search, 32²·5·9, and the accumulation,
+// 18·32², 6.377e7: 0.064 s at the server's rate), is refused before anything
+// runs: no computation counted, not even the compile, and the refusal
+// names the set, its work and the bound.
+func TestSupercellFoldAdmission(t *testing.T) {
+	ts := startServer(t, Config{MaxComputeSeconds: 0.01})
+	reg := ts.srv.Registry()
+	got, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.25)})
+	if err != nil || len(allPoints(got)) != 1 {
+		t.Fatalf("a set within the bounds: %v, %d points; want 1 point", err, len(allPoints(got)))
+	}
+	work0 := metricSum(t, reg, "modegrid_computations_total")
+	q0 := metric(t, reg, "modegrid_qpoints_diagonalized_total", nil)
+	_, err = collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
+	desc := badFields(t, err)["model.crystal.supercell_fc"]
+	for _, w := range []string{"288×288", "6.38e+07", "max-compute-seconds=0.01"} {
+		if !strings.Contains(desc, w) {
+			t.Errorf("model.crystal.supercell_fc: %q does not say %q", desc, w)
+		}
+	}
+	if w := metricSum(t, reg, "modegrid_computations_total"); w != work0 {
+		t.Errorf("computations went from %v to %v: work started", work0, w)
+	}
+	if q := metric(t, reg, "modegrid_qpoints_diagonalized_total", nil); q != q0 {
+		t.Errorf("q-points diagonalised went from %v to %v", q0, q)
+	}
+	if n := metric(t, reg, "modegrid_admission_refused_total", map[string]string{"reason": reasonCompileTooLong}); n != 1 {
+		t.Errorf("compile_too_long refusals = %v; want 1", n)
+	}
+	// The same set on a server with room computes: the refusal was the bound's.
+	roomy := startServer(t, Config{})
+	if _, err := collectModes(testContext(t), roomy.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)}); err != nil {
+		t.Errorf("the 32-site set with the default bound: %v", err)
+	}
+}
+
+// TestFoldedInteractionsBound: the pre-compile count of a set's folded
+// interactions is never above what the compiled model has, nor above the
+// set's own block count; a malformed set counts none.
+func TestFoldedInteractionsBound(t *testing.T) {
+	svc := NewService()
+	for name, c := range map[string]*modegridv1.Crystal{"diatomic 3 cells": diatomicSupercell(t), "chain of 5": chainSet(5), "chain of 12": chainSet(12)} {
+		fs, ok := fcShapeOf(c)
+		if !ok {
+			t.Fatalf("%s: shape not read", name)
+		}
+		e, err := svc.resolve(testContext(t), inline(c), &violations{})
+		if err != nil || e == nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		low, blocks := fs.foldedInteractions(), len(c.GetSupercellFc().GetPhi())/9
+		t.Logf("%s: bound %d, compiled %d, set blocks %d", name, low, e.m.Interactions(), blocks)
+		if low < 1 || low > e.m.Interactions() || low > blocks {
+			t.Errorf("%s: bound %d, compiled %d, set blocks %d", name, low, e.m.Interactions(), blocks)
+		}
+	}
+	bad := chainSet(5)
+	bad.SupercellFc.Phi = bad.SupercellFc.Phi[9:]
+	if _, ok := fcShapeOf(bad); ok {
+		t.Error("a set short of one block has a shape")
 	}
 }
