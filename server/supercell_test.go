@@ -265,3 +265,23 @@ func TestFoldedInteractionsBound(t *testing.T) {
 		t.Error("a set short of one block has a shape")
 	}
 }
+
+// TestSupercellFoldMemory: a 32-site set's fold needs at least
+// 24·288² + 72·32² = 2,064,384 bytes (the SVD's three 288×288 arrays and
+// the folded blocks); on a 1 MiB memory budget it is refused before any
+// computation, naming the set and the budget.
+func TestSupercellFoldMemory(t *testing.T) {
+	ts := startServer(t, Config{MemoryBudget: 1 << 20})
+	reg := ts.srv.Registry()
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
+	desc := badFields(t, err)["model.crystal.supercell_fc"]
+	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "288×288") {
+		t.Errorf("model.crystal.supercell_fc: %q; want the sum-rule system and the memory budget named", desc)
+	}
+	if n := metricSum(t, reg, "modegrid_computations_total"); n != 0 {
+		t.Errorf("computations = %v; want 0 (not even the compile)", n)
+	}
+	if n := metric(t, reg, "modegrid_admission_refused_total", map[string]string{"reason": reasonMemoryNeverFits}); n != 1 {
+		t.Errorf("memory_never_fits refusals = %v; want 1", n)
+	}
+}
