@@ -159,6 +159,7 @@ func withDescription(resp *modegridv1.CheckModelResponse, e *modelEntry) *modegr
 	out := proto.Clone(resp).(*modegridv1.CheckModelResponse)
 	out.Interactions = uint32(e.m.Interactions())
 	out.Symmetrized = e.symmetrized
+	out.SupercellFold = e.fold
 	out.Shells = nil
 	for i, sh := range e.m.Shells() {
 		out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})

@@ -19,10 +19,12 @@ const maxSupercellSites = 64
 // crystal's supercell force-constant set, if it has one. A model with the
 // set and springs, shells or blocks too is refused (they would not
 // combine meaningfully). maxSites 0 means no cap.
-func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int) error {
+// The returned report (nil without a set) says what the fold found and
+// corrected; CheckModel answers it.
+func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int) (*modegridv1.SupercellFold, error) {
 	fc := cr.GetSupercellFc()
 	if fc == nil {
-		return nil
+		return nil, nil
 	}
 	var vs violations
 	if len(cr.GetSprings())+len(cr.GetShells())+len(cr.GetBlocks()) > 0 {
@@ -35,14 +37,39 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 		vs.Add("sites", "%d sites exceed the cap of %d for a model given as a supercell set", len(cr.GetSites()), maxSupercellSites)
 	}
 	if err := vs.Err(); err != nil {
-		return err
+		return nil, err
 	}
-	blocks, _, err := fcimport.Fold(ctx, c, setFromProto(fc))
+	blocks, rep, err := fcimport.Fold(ctx, c, setFromProto(fc))
 	if err != nil {
-		return fmt.Errorf("folding the supercell force constants: %w", err)
+		return nil, fmt.Errorf("folding the supercell force constants: %w", err)
 	}
 	c.Blocks = blocks
-	return nil
+	return foldReport(fc, rep, c.ForceUnit), nil
+}
+
+// foldReport is the wire form of the fold's report. Every supercell atom
+// is mapped when Fold succeeds (an unmapped atom is a violation). Sizes
+// are converted from the crystal's force unit to eV/Å².
+func foldReport(fc *modegridv1.SupercellForceConstants, r fcimport.Report, unit physics.ForceUnit) *modegridv1.SupercellFold {
+	tol := fc.GetToleranceA()
+	if tol == 0 {
+		tol = fcimport.DefaultTolA
+	}
+	ev := func(x float64) float64 {
+		if unit == physics.NPerM {
+			return x / physics.EVPerA2InNPerM
+		}
+		return x
+	}
+	return &modegridv1.SupercellFold{
+		AtomsMapped:              uint32(len(fc.GetAtoms())),
+		ToleranceA:               tol,
+		SharedImagePairs:         uint32(r.Multiplicities),
+		PermutationBeforeEvPerA2: ev(r.PermutationBefore),
+		PermutationAfterEvPerA2:  ev(r.PermutationAfter),
+		SumRuleBeforeEvPerA2:     ev(r.SumRuleBefore),
+		SumRuleAfterEvPerA2:      ev(r.SumRuleAfter),
+	}
 }
 
 // setFromProto converts the wire set to fcimport's; Fold validates it.

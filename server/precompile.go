@@ -9,7 +9,8 @@ package server
 //
 //   - the model's sites, polarizations p and dimensionality are read from
 //     the message; its interactions are at least its springs and blocks
-//     (shell bonds are found by the compile);
+//     (shell bonds are found by the compile), plus ⌈n·N/2⌉ for a supercell
+//     force-constant set of N atoms (precompile_fc.go);
 //   - the grid is reduced by the largest point group possible in its
 //     dimension (minIrreducible), so at least ⌈N/|G|⌉ points are
 //     diagonalised, while every array kept for all N points (frequencies,
@@ -22,7 +23,8 @@ package server
 // A request that not even its lower bound lets fit is refused with
 // INVALID_ARGUMENT at once: no compile, no slot, no computation counted.
 // Everything else goes on as before and meets the exact estimate after the
-// compile. The compile itself is bounded too (compileSeconds).
+// compile. The compile itself is bounded too (compileSeconds), and so is
+// the fold of a supercell set that precedes it (fcShape.foldCost).
 
 import (
 	"fmt"
@@ -62,7 +64,11 @@ const compileNsPerPair = 4.0
 // is compiled.
 type rawModel struct {
 	c    *physics.Crystal
-	size physics.GridSize // Interactions: springs + blocks, a lower bound
+	size physics.GridSize // Interactions: springs + blocks (+ folded set), a lower bound
+	// fc is the shape of a well-formed supercell force-constant set
+	// (hasFC), folded before the compile (precompile_fc.go).
+	fc    fcShape
+	hasFC bool
 }
 
 // rawModelOf reads src when it carries an inline model whose shape the
@@ -78,8 +84,13 @@ func (s *Service) rawModelOf(src *modegridv1.ModelSource) (rawModel, bool) {
 		return rawModel{}, false
 	}
 	c := crystalFromProto(cr)
-	return rawModel{c: c, size: physics.GridSize{Sites: n, P: c.P(), Dim: d,
-		Interactions: len(cr.GetSprings()) + len(cr.GetBlocks())}}, true
+	r := rawModel{c: c, size: physics.GridSize{Sites: n, P: c.P(), Dim: d,
+		Interactions: len(cr.GetSprings()) + len(cr.GetBlocks())}}
+	if fs, ok := fcShapeOf(cr); ok {
+		r.fc, r.hasFC = fs, true
+		r.size.Interactions += fs.foldedInteractions()
+	}
+	return r, true
 }
 
 // grid is the lower-bound size of the model on spec.
@@ -163,15 +174,41 @@ func gram(v [][3]float64) float64 {
 func dot(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
 
 // checkCompile refuses a model whose compile alone would run past the
-// compute-time bound.
+// compute-time bound, counting the fold of a supercell set before it; a
+// fold whose own memory cannot fit the budget is refused too.
 func (s *Service) checkCompile(vs *violations, r rawModel) {
 	secs, pairs := compileSeconds(r.c)
-	if secs <= s.cfg.MaxComputeSeconds {
+	var fold physics.Cost
+	if r.hasFC {
+		fold = r.fc.foldCost()
+	}
+	foldSecs := fold.Seconds(1)
+	if fold.Bytes > s.budget.total {
+		s.budget.refused.WithLabelValues(reasonMemoryNeverFits).Inc()
+		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites: a %d×%d sum-rule system) needs at least %s, over this server's memory budget %s (memory-budget); give fewer primitive sites",
+			r.fc.n, 9*r.fc.n, 9*r.fc.n, fmtBytes(fold.Bytes), fmtBytes(s.budget.total))
+		return
+	}
+	if secs+foldSecs <= s.cfg.MaxComputeSeconds {
 		return
 	}
 	s.budget.refused.WithLabelValues(reasonCompileTooLong).Inc()
+	if foldSecs >= secs {
+		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: image search and a %d×%d sum-rule SVD) takes at least %.3g floating-point operations, about %.3g s on 1 core%s, over this server's bound max-compute-seconds=%g; give fewer primitive sites or a smaller supercell",
+			r.fc.n, r.fc.atoms, 9*r.fc.n, 9*r.fc.n, fold.Flops, foldSecs, compileMore(secs), s.cfg.MaxComputeSeconds)
+		return
+	}
 	vs.Add("model.crystal.shells", "compiling the model searches at least %.3g site pairs for its neighbour shells, at least %.0f s, over this server's bound max-compute-seconds=%g; ask for nearer shells (shell), fewer sites, or give the bonds as springs",
-		pairs, secs, s.cfg.MaxComputeSeconds)
+		pairs, secs+foldSecs, s.cfg.MaxComputeSeconds)
+}
+
+// compileMore words the compile's share of a fold's refusal (none when
+// its bound is 0).
+func compileMore(secs float64) string {
+	if secs == 0 {
+		return ""
+	}
+	return fmt.Sprintf(" and the compile at least %.3g s more", secs)
 }
 
 // precheck runs the pre-compile checks of a request on an inline model:

@@ -73,6 +73,10 @@ type modelEntry struct {
 	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize}
 	// symmetrized: m is the source's crystal made exactly symmetric.
 	symmetrized bool
+	// fold reports the fold of the source's supercell force-constant set
+	// (nil when it has none). It belongs to the source, not the hash: two
+	// sets differing only in what the fold corrects compile alike.
+	fold *modegridv1.SupercellFold
 }
 
 // size is the entry's charge in the cache: an estimate of the compiled
@@ -112,12 +116,12 @@ var modelCodec = &cache.Codec{
 // (physics.Symmetrize) and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
 	c := crystalFromProto(src.GetCrystal())
-	if err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites); err != nil {
+	fold, err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites)
+	if err != nil {
 		return nil, err
 	}
 	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
 	if src.GetSymmetrize() {
-		var err error
 		if c, _, err = physics.Symmetrize(ctx, c, opt); err != nil {
 			return nil, err
 		}
@@ -126,7 +130,7 @@ func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, 
 	if err != nil {
 		return nil, err
 	}
-	return &modelEntry{m: m, hash: m.Hash(), source: raw, symmetrized: src.GetSymmetrize()}, nil
+	return &modelEntry{m: m, hash: m.Hash(), source: raw, symmetrized: src.GetSymmetrize(), fold: fold}, nil
 }
 
 // modelKey is the cache key of a model referred to by hash.

@@ -1,9 +1,14 @@
 package server
 
 import (
+	"fmt"
 	"math"
 	"strings"
 	"testing"
+
+	"google.golang.org/protobuf/proto"
+
+	"github.com/materials-lab/modegrid/physics"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
 	"google.golang.org/grpc/codes"
@@ -113,5 +118,170 @@ func TestSupercellCap(t *testing.T) {
 	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.1)})
 	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "max sites 4") {
 		t.Fatalf("err = %v, want INVALID_ARGUMENT naming supercell_fc.atoms and the cap", err)
+	}
+}
+
+// TestSupercellCheckReportsFold: through real gRPC, CheckModel reports the
+// fold of a 3-cell set with an on-site element raised by δ (breaking the
+// acoustic sum rule) and one pair element changed by ε (breaking index
+// permutation). Derived: a folded block is the set's block summed over
+// the supercell's 3 cells of atom i and divided by 3, so the row sum of
+// that site is off by δ/3 and the pair differs from its transpose by ε/3.
+// The sum rule is measured after the pair is averaged (ε/2 each way), so
+// atom 0's row is off by (δ + ε/2)/3; both corrections bring them to
+// rounding. Given in N/m the same sizes
+// are reported in eV/Å².
+func TestSupercellCheckReportsFold(t *testing.T) {
+	ts := startServer(t, Config{})
+	const delta, eps, n = 0.3, 0.06, 6
+	c := diatomicSupercell(t)
+	c.SupercellFc.Phi[0] += delta       // atom 0's on-site xx
+	c.SupercellFc.Phi[(0*n+1)*9] += eps // Φ_xx(0, 1), not Φ_xx(1, 0)
+	c.SupercellFc.ToleranceA = 2e-3
+	inN := proto.Clone(c).(*modegridv1.Crystal)
+	inN.ForceUnit = modegridv1.ForceUnit_FORCE_UNIT_N_PER_M
+	for i := range inN.SupercellFc.Phi {
+		inN.SupercellFc.Phi[i] *= physics.EVPerA2InNPerM
+	}
+	for name, cr := range map[string]*modegridv1.Crystal{"eV/Å²": c, "N/m": inN} {
+		r, err := ts.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: inline(cr)})
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		f := r.GetSupercellFold()
+		if f == nil {
+			t.Fatalf("%s: no supercell_fold in %v", name, r)
+		}
+		if f.GetAtomsMapped() != n || f.GetToleranceA() != 2e-3 || f.GetSharedImagePairs() == 0 {
+			t.Errorf("%s: atoms %d tolerance %v shared %d, want %d, 0.002, > 0 (pairs 7.5 Å apart in a 15 Å cell)", name, f.GetAtomsMapped(), f.GetToleranceA(), f.GetSharedImagePairs(), n)
+		}
+		near := func(what string, got, want float64) {
+			if math.Abs(got-want) > 1e-12 {
+				t.Errorf("%s: %s = %.15g, want %.15g", name, what, got, want)
+			}
+		}
+		near("permutation before", f.GetPermutationBeforeEvPerA2(), eps/3)
+		near("permutation after", f.GetPermutationAfterEvPerA2(), 0)
+		near("sum rule after", f.GetSumRuleAfterEvPerA2(), 0)
+		near("sum rule before", f.GetSumRuleBeforeEvPerA2(), (delta+eps/2)/3)
+	}
+	plain, err := ts.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: inline(example(t, "diatomic-chain"))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if plain.GetSupercellFold() != nil {
+		t.Errorf("a spring model reports a fold: %v", plain.GetSupercellFold())
+	}
+}
+
+// chainSet is a 1D chain of n sites 2.5 Å apart in one cell (the
+// supercell matrix is [1]) given as its force-constant set: nearest
+// neighbours K = 2 eV/Å² (invented), on-site 2K.
+func chainSet(n int) *modegridv1.Crystal {
+	c := &modegridv1.Crystal{Name: fmt.Sprintf("chain-set-%d", n), Lattice: []*modegridv1.Vec3{{X: 2.5 * float64(n)}}, Polarizations: 1}
+	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{1}}
+	for i := range n {
+		c.Sites = append(c.Sites, &modegridv1.Site{Label: fmt.Sprintf("S%d", i), MassAmu: 30, Frac: []float64{float64(i) / float64(n)}})
+		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+	}
+	for i := range n {
+		for j := range n {
+			blk := make([]float64, 9)
+			switch {
+			case i == j:
+				blk[0] = 4
+			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
+				blk[0] = -2
+			}
+			fc.Phi = append(fc.Phi, blk...)
+		}
+	}
+	c.SupercellFc = fc
+	return c
+}
+
+// TestSupercellFoldAdmission: through real gRPC with max-compute-seconds
+// 0.01, the diatomic chain's 3-cell set (a 18×18 sum-rule system) computes;
+// a 32-site set, whose sum-rule SVD alone is at least 8·288³/3 = 6.370e7
+// operations (with the image search, 32²·5·9, and the accumulation,
+// 18·32², 6.377e7: 0.064 s at the server's rate), is refused before anything
+// runs: no computation counted, not even the compile, and the refusal
+// names the set, its work and the bound.
+func TestSupercellFoldAdmission(t *testing.T) {
+	ts := startServer(t, Config{MaxComputeSeconds: 0.01})
+	reg := ts.srv.Registry()
+	got, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.25)})
+	if err != nil || len(allPoints(got)) != 1 {
+		t.Fatalf("a set within the bounds: %v, %d points; want 1 point", err, len(allPoints(got)))
+	}
+	work0 := metricSum(t, reg, "modegrid_computations_total")
+	q0 := metric(t, reg, "modegrid_qpoints_diagonalized_total", nil)
+	_, err = collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
+	desc := badFields(t, err)["model.crystal.supercell_fc"]
+	for _, w := range []string{"288×288", "6.38e+07", "max-compute-seconds=0.01"} {
+		if !strings.Contains(desc, w) {
+			t.Errorf("model.crystal.supercell_fc: %q does not say %q", desc, w)
+		}
+	}
+	if w := metricSum(t, reg, "modegrid_computations_total"); w != work0 {
+		t.Errorf("computations went from %v to %v: work started", work0, w)
+	}
+	if q := metric(t, reg, "modegrid_qpoints_diagonalized_total", nil); q != q0 {
+		t.Errorf("q-points diagonalised went from %v to %v", q0, q)
+	}
+	if n := metric(t, reg, "modegrid_admission_refused_total", map[string]string{"reason": reasonCompileTooLong}); n != 1 {
+		t.Errorf("compile_too_long refusals = %v; want 1", n)
+	}
+	// The same set on a server with room computes: the refusal was the bound's.
+	roomy := startServer(t, Config{})
+	if _, err := collectModes(testContext(t), roomy.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)}); err != nil {
+		t.Errorf("the 32-site set with the default bound: %v", err)
+	}
+}
+
+// TestFoldedInteractionsBound: the pre-compile count of a set's folded
+// interactions is never above what the compiled model has, nor above the
+// set's own block count; a malformed set counts none.
+func TestFoldedInteractionsBound(t *testing.T) {
+	svc := NewService()
+	for name, c := range map[string]*modegridv1.Crystal{"diatomic 3 cells": diatomicSupercell(t), "chain of 5": chainSet(5), "chain of 12": chainSet(12)} {
+		fs, ok := fcShapeOf(c)
+		if !ok {
+			t.Fatalf("%s: shape not read", name)
+		}
+		e, err := svc.resolve(testContext(t), inline(c), &violations{})
+		if err != nil || e == nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		low, blocks := fs.foldedInteractions(), len(c.GetSupercellFc().GetPhi())/9
+		t.Logf("%s: bound %d, compiled %d, set blocks %d", name, low, e.m.Interactions(), blocks)
+		if low < 1 || low > e.m.Interactions() || low > blocks {
+			t.Errorf("%s: bound %d, compiled %d, set blocks %d", name, low, e.m.Interactions(), blocks)
+		}
+	}
+	bad := chainSet(5)
+	bad.SupercellFc.Phi = bad.SupercellFc.Phi[9:]
+	if _, ok := fcShapeOf(bad); ok {
+		t.Error("a set short of one block has a shape")
+	}
+}
+
+// TestSupercellFoldMemory: a 32-site set's fold needs at least
+// 24·288² + 72·32² = 2,064,384 bytes (the SVD's three 288×288 arrays and
+// the folded blocks); on a 1 MiB memory budget it is refused before any
+// computation, naming the set and the budget.
+func TestSupercellFoldMemory(t *testing.T) {
+	ts := startServer(t, Config{MemoryBudget: 1 << 20})
+	reg := ts.srv.Registry()
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
+	desc := badFields(t, err)["model.crystal.supercell_fc"]
+	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "288×288") {
+		t.Errorf("model.crystal.supercell_fc: %q; want the sum-rule system and the memory budget named", desc)
+	}
+	if n := metricSum(t, reg, "modegrid_computations_total"); n != 0 {
+		t.Errorf("computations = %v; want 0 (not even the compile)", n)
+	}
+	if n := metric(t, reg, "modegrid_admission_refused_total", map[string]string{"reason": reasonMemoryNeverFits}); n != 1 {
+		t.Errorf("memory_never_fits refusals = %v; want 1", n)
 	}
 }

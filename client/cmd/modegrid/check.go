@@ -9,8 +9,9 @@ import (
 
 const checkSummary = `Validates a model and summarises it: its hash, dimensionality, sites,
 modes per cell, interactions and bonds per shell, the acoustic sum-rule
-violation of explicit blocks, symmetry operations, and stability on a coarse
-grid. An invalid model exits 3 with every bad field listed.`
+violation of explicit blocks, for a model given as a supercell force-constant
+set what its fold corrected (each violation before and after), symmetry
+operations, and stability on a coarse grid. An invalid model exits 3 with every bad field listed.`
 
 func cmdCheck(args []string, e *env) error {
 	c := newModelCommand("check", false)

@@ -28,6 +28,9 @@ var goldenCases = []struct {
 	{"check-fcc-csv", []string{"check", "-m", example("fcc"), "--format", "csv"}},
 	{"check-fcc-json", []string{"check", "-m", example("fcc"), "--format", "json"}},
 	{"check-rocksalt-like-table", []string{"check", "-m", example("rocksalt-like")}},
+	// A supercell force-constant set with invented, deliberately broken
+	// numbers: the check reports the fold's corrections.
+	{"check-supercell-chain-table", []string{"check", "-m", testdata("broken-sum-rule-supercell-chain.json")}},
 
 	{"modes-fcc-table", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5"}},
 	{"modes-fcc-csv", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5", "--format", "csv"}},

@@ -218,6 +218,9 @@ func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
 	}
 	rows = append(rows,
 		checkRow{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
+	)
+	rows = append(rows, foldRows(r.GetSupercellFold(), real)...)
+	rows = append(rows,
 		checkRow{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
 		checkRow{"symmetry_tolerance_a", "symmetry tolerance (Å)", strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', -1, 64)},
 	)
@@ -241,6 +244,24 @@ func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
 		rows = append(rows, checkRow{strings.ReplaceAll(key, " ", "_"), key, val})
 	}
 	return rows
+}
+
+// foldRows report the fold of a supercell force-constant set (none when
+// the model has no set): atoms mapped, tolerance, pairs that shared images
+// and each violation before → after its correction.
+func foldRows(f *modegridv1.SupercellFold, real func(float64) string) []checkRow {
+	if f == nil {
+		return nil
+	}
+	return []checkRow{
+		{"fold_atoms_mapped", "supercell atoms mapped", fmt.Sprint(f.GetAtomsMapped())},
+		{"fold_tolerance_a", "supercell tolerance (Å)", strconv.FormatFloat(f.GetToleranceA(), 'g', -1, 64)},
+		{"fold_shared_image_pairs", "pairs sharing images", fmt.Sprint(f.GetSharedImagePairs())},
+		{"fold_permutation_before_ev_per_a2", "permutation violation before (eV/Å²)", real(f.GetPermutationBeforeEvPerA2())},
+		{"fold_permutation_after_ev_per_a2", "permutation violation after (eV/Å²)", real(f.GetPermutationAfterEvPerA2())},
+		{"fold_sum_rule_before_ev_per_a2", "supercell sum-rule violation before (eV/Å²)", real(f.GetSumRuleBeforeEvPerA2())},
+		{"fold_sum_rule_after_ev_per_a2", "supercell sum-rule violation after (eV/Å²)", real(f.GetSumRuleAfterEvPerA2())},
+	}
 }
 
 // ---- modes ----

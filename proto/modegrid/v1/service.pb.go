@@ -2641,7 +2641,10 @@ type CheckModelResponse struct {
 	SymmetryAtLooserTolerance []*SymmetryAtTolerance `protobuf:"bytes,21,rep,name=symmetry_at_looser_tolerance,json=symmetryAtLooserTolerance,proto3" json:"symmetry_at_looser_tolerance,omitempty"`
 	// True when the model was symmetrised (ModelSource.symmetrize): the hash
 	// and every figure above are those of the symmetrised model.
-	Symmetrized   bool `protobuf:"varint,22,opt,name=symmetrized,proto3" json:"symmetrized,omitempty"`
+	Symmetrized bool `protobuf:"varint,22,opt,name=symmetrized,proto3" json:"symmetrized,omitempty"`
+	// How the model's supercell force-constant set was folded onto its
+	// primitive cell (unset when the model has no set).
+	SupercellFold *SupercellFold `protobuf:"bytes,23,opt,name=supercell_fold,json=supercellFold,proto3" json:"supercell_fold,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2830,6 +2833,119 @@ func (x *CheckModelResponse) GetSymmetrized() bool {
 	return false
 }
 
+func (x *CheckModelResponse) GetSupercellFold() *SupercellFold {
+	if x != nil {
+		return x.SupercellFold
+	}
+	return nil
+}
+
+// SupercellFold reports the fold of a supercell force-constant set: the
+// largest element of each violation before and after its correction, all
+// in eV/Å². Permutation symmetry is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ| of the
+// folded blocks (corrected by averaging the pair); the acoustic sum rule is
+// max |Σ_{t,R} Φ(s,0;t,R)| over sites (corrected by the least-squares
+// change that restores it).
+type SupercellFold struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Supercell atoms mapped onto a primitive site and cell.
+	AtomsMapped uint32 `protobuf:"varint,1,opt,name=atoms_mapped,json=atomsMapped,proto3" json:"atoms_mapped,omitempty"`
+	// Position tolerance used to map atoms and find images, Å.
+	ToleranceA float64 `protobuf:"fixed64,2,opt,name=tolerance_a,json=toleranceA,proto3" json:"tolerance_a,omitempty"`
+	// Pairs whose force constants were shared among more than one
+	// equidistant image.
+	SharedImagePairs uint32 `protobuf:"varint,3,opt,name=shared_image_pairs,json=sharedImagePairs,proto3" json:"shared_image_pairs,omitempty"`
+	// Index-permutation violation before the fold's correction, eV/Å².
+	PermutationBeforeEvPerA2 float64 `protobuf:"fixed64,4,opt,name=permutation_before_ev_per_a2,json=permutationBeforeEvPerA2,proto3" json:"permutation_before_ev_per_a2,omitempty"`
+	// Index-permutation violation after it, eV/Å².
+	PermutationAfterEvPerA2 float64 `protobuf:"fixed64,5,opt,name=permutation_after_ev_per_a2,json=permutationAfterEvPerA2,proto3" json:"permutation_after_ev_per_a2,omitempty"`
+	// Acoustic sum-rule violation before the fold's correction, eV/Å².
+	SumRuleBeforeEvPerA2 float64 `protobuf:"fixed64,6,opt,name=sum_rule_before_ev_per_a2,json=sumRuleBeforeEvPerA2,proto3" json:"sum_rule_before_ev_per_a2,omitempty"`
+	// Acoustic sum-rule violation after it, eV/Å².
+	SumRuleAfterEvPerA2 float64 `protobuf:"fixed64,7,opt,name=sum_rule_after_ev_per_a2,json=sumRuleAfterEvPerA2,proto3" json:"sum_rule_after_ev_per_a2,omitempty"`
+	unknownFields       protoimpl.UnknownFields
+	sizeCache           protoimpl.SizeCache
+}
+
+func (x *SupercellFold) Reset() {
+	*x = SupercellFold{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SupercellFold) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SupercellFold) ProtoMessage() {}
+
+func (x *SupercellFold) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SupercellFold.ProtoReflect.Descriptor instead.
+func (*SupercellFold) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *SupercellFold) GetAtomsMapped() uint32 {
+	if x != nil {
+		return x.AtomsMapped
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetToleranceA() float64 {
+	if x != nil {
+		return x.ToleranceA
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetSharedImagePairs() uint32 {
+	if x != nil {
+		return x.SharedImagePairs
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetPermutationBeforeEvPerA2() float64 {
+	if x != nil {
+		return x.PermutationBeforeEvPerA2
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetPermutationAfterEvPerA2() float64 {
+	if x != nil {
+		return x.PermutationAfterEvPerA2
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetSumRuleBeforeEvPerA2() float64 {
+	if x != nil {
+		return x.SumRuleBeforeEvPerA2
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetSumRuleAfterEvPerA2() float64 {
+	if x != nil {
+		return x.SumRuleAfterEvPerA2
+	}
+	return 0
+}
+
 // SymmetryAtTolerance is the number of symmetry operations found at a
 // symmetry tolerance.
 type SymmetryAtTolerance struct {
@@ -2844,7 +2960,7 @@ type SymmetryAtTolerance struct {
 
 func (x *SymmetryAtTolerance) Reset() {
 	*x = SymmetryAtTolerance{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2856,7 +2972,7 @@ func (x *SymmetryAtTolerance) String() string {
 func (*SymmetryAtTolerance) ProtoMessage() {}
 
 func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2869,7 +2985,7 @@ func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SymmetryAtTolerance.ProtoReflect.Descriptor instead.
 func (*SymmetryAtTolerance) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
 }
 
 func (x *SymmetryAtTolerance) GetToleranceA() float64 {
@@ -2905,7 +3021,7 @@ type RequestCost struct {
 
 func (x *RequestCost) Reset() {
 	*x = RequestCost{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2917,7 +3033,7 @@ func (x *RequestCost) String() string {
 func (*RequestCost) ProtoMessage() {}
 
 func (x *RequestCost) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2930,7 +3046,7 @@ func (x *RequestCost) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
 func (*RequestCost) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{28}
 }
 
 func (x *RequestCost) GetRequest() string {
@@ -3151,7 +3267,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xfd\a\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc0\b\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -3182,7 +3298,17 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\fdefault_path\x18\x13 \x03(\v2\x16.modegrid.v1.PathPointR\vdefaultPath\x120\n" +
 	"\x14symmetry_tolerance_a\x18\x14 \x01(\x01R\x12symmetryToleranceA\x12a\n" +
 	"\x1csymmetry_at_looser_tolerance\x18\x15 \x03(\v2 .modegrid.v1.SymmetryAtToleranceR\x19symmetryAtLooserTolerance\x12 \n" +
-	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\"V\n" +
+	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\x12A\n" +
+	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"\xef\x02\n" +
+	"\rSupercellFold\x12!\n" +
+	"\fatoms_mapped\x18\x01 \x01(\rR\vatomsMapped\x12\x1f\n" +
+	"\vtolerance_a\x18\x02 \x01(\x01R\n" +
+	"toleranceA\x12,\n" +
+	"\x12shared_image_pairs\x18\x03 \x01(\rR\x10sharedImagePairs\x12>\n" +
+	"\x1cpermutation_before_ev_per_a2\x18\x04 \x01(\x01R\x18permutationBeforeEvPerA2\x12<\n" +
+	"\x1bpermutation_after_ev_per_a2\x18\x05 \x01(\x01R\x17permutationAfterEvPerA2\x127\n" +
+	"\x19sum_rule_before_ev_per_a2\x18\x06 \x01(\x01R\x14sumRuleBeforeEvPerA2\x125\n" +
+	"\x18sum_rule_after_ev_per_a2\x18\a \x01(\x01R\x13sumRuleAfterEvPerA2\"V\n" +
 	"\x13SymmetryAtTolerance\x12\x1f\n" +
 	"\vtolerance_a\x18\x01 \x01(\x01R\n" +
 	"toleranceA\x12\x1e\n" +
@@ -3243,7 +3369,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 28)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 29)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -3276,12 +3402,13 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*SymmetryAtTolerance)(nil),       // 31: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),               // 32: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 33: modegrid.v1.Crystal
+	(*SupercellFold)(nil),             // 31: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),       // 32: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),               // 33: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 34: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	33, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	34, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
 	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
 	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
@@ -3319,24 +3446,25 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	32, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	33, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
 	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	31, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	26, // 41: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 42: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 43: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 44: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 45: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 46: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 47: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 48: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 49: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 50: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	46, // [46:51] is the sub-list for method output_type
-	41, // [41:46] is the sub-list for method input_type
-	41, // [41:41] is the sub-list for extension type_name
-	41, // [41:41] is the sub-list for extension extendee
-	0,  // [0:41] is the sub-list for field type_name
+	32, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	31, // 41: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	26, // 42: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 43: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 44: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 45: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 46: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 47: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 48: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 49: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 50: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 51: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	47, // [47:52] is the sub-list for method output_type
+	42, // [42:47] is the sub-list for method input_type
+	42, // [42:42] is the sub-list for extension type_name
+	42, // [42:42] is the sub-list for extension extendee
+	0,  // [0:42] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3360,7 +3488,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   28,
+			NumMessages:   29,
 			NumExtensions: 0,
 			NumServices:   1,
 		},
