@@ -60,6 +60,20 @@ func broken(ctx context.Context, err error, begun bool) bool {
 	return begun && status.Code(err) == codes.Unavailable && !waitedOut(err) && ctx.Err() == nil
 }
 
+// answered reports whether the response headers hdr show that the server
+// had begun to answer: headers of their own, not the trailers of a
+// trailers-only response (which gRPC may hand back as the header metadata
+// of a call that failed before any answer — one its retry policy already
+// covered).
+func answered(hdr, trl metadata.MD) bool {
+	for k, v := range hdr {
+		if !slices.Equal(trl[k], v) {
+			return true
+		}
+	}
+	return false
+}
+
 // Check calls CheckModel. An invalid model is not an error: the response has
 // Valid false and lists every violation.
 func (c *Client) Check(ctx context.Context, req *modegridv1.CheckModelRequest, opts ...CallOption) (*modegridv1.CheckModelResponse, error) {
@@ -120,10 +134,10 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 	defer cancel() // ends an abandoned stream
 	delivered := 0
 	resumes := 0
-	var hdr metadata.MD
-	o.grpcOpts = append(slices.Clip(o.grpcOpts), grpc.Header(&hdr))
+	var hdr, trl metadata.MD
+	o.grpcOpts = append(slices.Clip(o.grpcOpts), grpc.Header(&hdr), grpc.Trailer(&trl))
 	for {
-		hdr = nil
+		hdr, trl = nil, nil
 		err := s.streamOnce(ctx, o, &delivered, fn)
 		if err == nil {
 			return nil
@@ -135,7 +149,7 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 		switch {
 		case delivered == 0 && s.fallback(err):
 			continue
-		case resumes < c.maxResends && broken(ctx, err, len(hdr) > 0 || delivered > 0):
+		case resumes < c.maxResends && broken(ctx, err, answered(hdr, trl) || delivered > 0):
 			resumes++
 			continue
 		case delivered > 0 && s.fallback(err):
@@ -213,11 +227,11 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 		var zero Resp
 		return zero, err
 	}
-	var hdr metadata.MD
-	opts := append(slices.Clip(o.grpcOpts), grpc.Header(&hdr))
+	var hdr, trl metadata.MD
+	opts := append(slices.Clip(o.grpcOpts), grpc.Header(&hdr), grpc.Trailer(&trl))
 	resends := 0
 	for {
-		hdr = nil
+		hdr, trl = nil, nil
 		resp, err := call(s.outgoing(ctx), s.request().(Req), opts...)
 		if err == nil {
 			s.succeeded(resp.GetModelHash())
@@ -225,7 +239,7 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 		}
 		switch {
 		case s.fallback(err):
-		case resends < c.maxResends && broken(ctx, err, len(hdr) > 0):
+		case resends < c.maxResends && broken(ctx, err, answered(hdr, trl)):
 			resends++
 		default:
 			return resp, err
