@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"slices"
+	"strings"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
@@ -67,7 +68,9 @@ func broken(ctx context.Context, err error, begun bool) bool {
 // covered).
 func answered(hdr, trl metadata.MD) bool {
 	for k, v := range hdr {
-		if !slices.Equal(trl[k], v) {
+		// gRPC's own keys (grpc-accept-encoding, …) come with any
+		// response; only application metadata says the handler answered.
+		if !strings.HasPrefix(k, "grpc-") && !slices.Equal(trl[k], v) {
 			return true
 		}
 	}
