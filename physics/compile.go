@@ -38,12 +38,12 @@ func (o Options) symTol() float64 {
 
 // validateSymTol adds a violation when a given symmetry tolerance is not a
 // finite length in [MinSymTolA, MaxSymTolA] Å (0 means the default).
-func validateSymTol(tolA float64, vs *violations) {
+func validateSymTol(tolA float64, vs *Violations) {
 	if tolA == 0 {
 		return
 	}
 	if !(tolA >= MinSymTolA && tolA <= MaxSymTolA) { // also NaN
-		vs.add("symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", DefaultSymTolA, MinSymTolA, MaxSymTolA, tolA)
+		vs.Add("symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", DefaultSymTolA, MinSymTolA, MaxSymTolA, tolA)
 	}
 }
 
@@ -131,7 +131,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	validate(c, lim, &vs)
 	validateSymTol(opt.SymTolA, &vs)
 	if len(vs.list) > 0 {
-		return nil, vs.err()
+		return nil, vs.Err()
 	}
 	m := newModel(c)
 	m.symTolA = opt.symTol()
@@ -168,7 +168,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 // shells to parts, and counts the interactions. A shell whose search fails
 // and an interaction count over the limit are added to vs; it returns
 // ctx.Err() if ctx ends first.
-func (m *Model) addSprings(ctx context.Context, parts fcParts, c *Crystal, toEV func(float64) float64, lim Limits, vs *violations) error {
+func (m *Model) addSprings(ctx context.Context, parts fcParts, c *Crystal, toEV func(float64) float64, lim Limits, vs *Violations) error {
 	for x, s := range c.Springs {
 		if x%pollEvery == 0 && ctx.Err() != nil {
 			return ctx.Err()
@@ -184,7 +184,7 @@ func (m *Model) addSprings(ctx context.Context, parts fcParts, c *Crystal, toEV 
 			return ctx.Err()
 		}
 		if err != nil {
-			vs.add(fmt.Sprintf("shells[%d]", idx), "%v", err)
+			vs.Add(fmt.Sprintf("shells[%d]", idx), "%v", err)
 			continue
 		}
 		m.shells[idx] = ShellInfo{Bonds: len(bonds), DistanceA: dist}
@@ -197,7 +197,7 @@ func (m *Model) addSprings(ctx context.Context, parts fcParts, c *Crystal, toEV 
 		}
 	}
 	if m.interactions > lim.MaxInteractions {
-		vs.add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
+		vs.Add("shells", "springs, shell bonds and blocks number %d, more than the limit of %d interactions", m.interactions, lim.MaxInteractions)
 	}
 	return nil
 }

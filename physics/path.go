@@ -92,18 +92,18 @@ func (m *Model) cartQ(q [3]float64) [3]float64 {
 // tried: the corners and options one by one, then the segments they form,
 // then the number of samples those segments would take.
 func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOptions) ([]PathSample, error) {
-	var vs violations
+	var vs Violations
 	qs := m.resolveCorners(corners, opt, &vs)
 	if len(vs.list) > 0 {
-		return nil, vs.err()
+		return nil, vs.Err()
 	}
 	seglen, total := m.segmentLengths(corners, qs, &vs)
 	if len(vs.list) > 0 {
-		return nil, vs.err()
+		return nil, vs.Err()
 	}
 	steps, nsamples := planSteps(len(corners), seglen, total, opt, &vs)
 	if len(vs.list) > 0 {
-		return nil, vs.err()
+		return nil, vs.Err()
 	}
 	samples, pieceStart := pathSamples(corners, qs, seglen, steps, nsamples)
 	if err := m.fillPathModes(ctx, samples, pieceStart, opt); err != nil {
@@ -114,7 +114,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 
 // resolveCorners returns the fractional q of every corner, from its
 // coordinates or its built-in label, and checks the sampling options.
-func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violations) [][3]float64 {
+func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *Violations) [][3]float64 {
 	qs := make([][3]float64, len(corners))
 	if len(corners) < 2 {
 		vs.Add("path", "must have at least 2 points, got %d", len(corners))
@@ -132,7 +132,7 @@ func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violat
 		}
 		q, ok := m.lookupLabel(c.Label)
 		if !ok {
-			vs.add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, m.latticeTypeName(), strings.Join(m.knownLabels(), ", "))
+			vs.Add(f+".label", "unknown label %q for this %s lattice (built in: %s); give its coordinates", c.Label, m.latticeTypeName(), strings.Join(m.knownLabels(), ", "))
 			continue
 		}
 		qs[i] = q
@@ -148,13 +148,13 @@ func (m *Model) resolveCorners(corners []PathCorner, opt PathOptions, vs *violat
 
 // checkCornerQ checks the given coordinates q of the corner at field f:
 // finite, within ±MaxQ, and 0 beyond the crystal's dimension.
-func (m *Model) checkCornerQ(f string, q [3]float64, vs *violations) {
+func (m *Model) checkCornerQ(f string, q [3]float64, vs *Violations) {
 	for k, x := range q {
 		switch {
 		case !(math.Abs(x) <= MaxQ):
-			vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
+			vs.Add(fmt.Sprintf("%s.q.q%d", f, k+1), qRangeMsg, x)
 		case k >= m.dim && x != 0:
-			vs.add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
+			vs.Add(fmt.Sprintf("%s.q.q%d", f, k+1), "must be 0 for a %d-dimensional crystal, got %v", m.dim, x)
 		}
 	}
 }
@@ -180,7 +180,7 @@ func (m *Model) latticeTypeName() string {
 // segmentLengths returns the Cartesian length (Å⁻¹) of the segment ending
 // at each corner (0 at the start of a piece) and their sum, and reports a
 // zero-length segment and a piece of one point.
-func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *violations) (seglen []float64, total float64) {
+func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *Violations) (seglen []float64, total float64) {
 	seglen = make([]float64, len(corners))
 	for i := 1; i < len(corners); i++ {
 		if corners[i].BreakBefore {
@@ -207,7 +207,7 @@ func (m *Model) segmentLengths(corners []PathCorner, qs [][3]float64, vs *violat
 // corner to its last (0 at a piece start), and the total number of
 // samples: from the spacing if one is given, else by sharing opt.Points
 // (or the default) among segments by length.
-func planSteps(ncorners int, seglen []float64, total float64, opt PathOptions, vs *violations) (steps []int, nsamples int) {
+func planSteps(ncorners int, seglen []float64, total float64, opt PathOptions, vs *Violations) (steps []int, nsamples int) {
 	steps = make([]int, ncorners)
 	nsamples = ncorners
 	if opt.SpacingInvA > 0 {
@@ -232,9 +232,9 @@ func planSteps(ncorners int, seglen []float64, total float64, opt PathOptions, v
 	}
 	switch {
 	case n > MaxPathSamples:
-		vs.add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
+		vs.Add("points", "must be ≤ %d, got %d", MaxPathSamples, n)
 	case n < ncorners:
-		vs.add("points", "must be at least the number of path points (%d), got %d", ncorners, n)
+		vs.Add("points", "must be at least the number of path points (%d), got %d", ncorners, n)
 	default:
 		distributeSteps(seglen, total, n-ncorners, steps)
 		nsamples = n

@@ -93,9 +93,6 @@ func (e *ValidationError) Error() string {
 // request's paths with AddErr.
 type Violations struct{ list []Violation }
 
-// violations is the engine's internal name for the collector.
-type violations = Violations
-
 // Add records a violation of field, the description formatted by Sprintf.
 func (vs *Violations) Add(field, format string, args ...any) {
 	vs.list = append(vs.list, Violation{Field: field, Description: fmt.Sprintf(format, args...)})
@@ -130,9 +127,6 @@ func (vs *Violations) Err() error {
 	}
 	return &ValidationError{Violations: vs.list}
 }
-
-func (vs *Violations) add(field, format string, args ...any) { vs.Add(field, format, args...) }
-func (vs *Violations) err() error                            { return vs.Err() }
 
 // JoinField joins a prefix ("model.crystal") and a field path relative to
 // it ("sites[2].mass_amu", or "[3]" for an element of the prefix itself).
@@ -169,7 +163,7 @@ func Validate(c *Crystal, lim Limits) error {
 // polarizations and force unit, sites, springs, blocks, shells, then the
 // interaction count. Later checks that need a sound lattice or sound site
 // positions skip what an earlier check has already reported.
-func validate(c *Crystal, lim Limits, vs *violations) {
+func validate(c *Crystal, lim Limits, vs *Violations) {
 	v := &validator{c: c, lim: lim, vs: vs, d: len(c.Lattice), n: len(c.Sites)}
 	v.checkLattice()
 	if c.Polarizations < 0 || c.Polarizations > 3 {
@@ -188,7 +182,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 	v.checkBlocks()
 	v.checkShells()
 	if total := len(c.Springs) + len(c.Blocks); total > lim.MaxInteractions {
-		vs.add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
+		vs.Add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
 	}
 }
 
@@ -197,7 +191,7 @@ func validate(c *Crystal, lim Limits, vs *violations) {
 type validator struct {
 	c    *Crystal
 	lim  Limits
-	vs   *violations
+	vs   *Violations
 	d, n int // lattice vectors, sites
 
 	latticeOK bool   // 1–3 finite, non-degenerate vectors
@@ -217,18 +211,18 @@ func (v *validator) checkLattice() {
 	c, vs, d := v.c, v.vs, v.d
 	switch {
 	case d == 0:
-		vs.add("lattice", "must have 1 to 3 vectors, got none")
+		vs.Add("lattice", "must have 1 to 3 vectors, got none")
 	case d > 3:
-		vs.add("lattice", "must have 1 to 3 vectors, got %d", d)
+		vs.Add("lattice", "must have 1 to 3 vectors, got %d", d)
 	}
 	v.latticeOK = v.dimOK()
 	for i, vec := range c.Lattice {
 		for k, x := range vec {
 			if !finite(x) {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
+				vs.Add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be finite, got %v", x)
 				v.latticeOK = false
 			} else if math.Abs(x) > MaxLengthA {
-				vs.add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
+				vs.Add(fmt.Sprintf("lattice[%d].%c", i, "xyz"[k]), "must be within ±%g Å, got %v", MaxLengthA, x)
 				v.latticeOK = false
 			}
 		}
@@ -236,7 +230,7 @@ func (v *validator) checkLattice() {
 	if v.latticeOK {
 		for i, vec := range c.Lattice {
 			if l := lattice.Norm(vec); l < LatticeTolA {
-				vs.add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
+				vs.Add(fmt.Sprintf("lattice[%d]", i), "length %.3g Å is below %.0e Å", l, LatticeTolA)
 				v.latticeOK = false
 			}
 		}
@@ -257,10 +251,10 @@ func (v *validator) checkDegenerate() {
 	what := [...]string{"", "length", "area", "volume"}[v.d]
 	switch {
 	case m < LatticeTolA:
-		v.vs.add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
+		v.vs.Add("lattice", "degenerate: cell %s %.3g is below %.0e (vectors are linearly dependent)", what, m, LatticeTolA)
 		v.latticeOK = false
 	case m < DegenerateLatticeRel*prod:
-		v.vs.add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
+		v.vs.Add("lattice", "degenerate: cell %s %.3g is %.2g of the product of the vector lengths, below %.0e (vectors nearly linearly dependent)", what, m, m/prod, DegenerateLatticeRel)
 		v.latticeOK = false
 	}
 }
@@ -273,14 +267,14 @@ func (v *validator) checkSites() {
 		vs.Add("sites", "must have at least one site, got none")
 	}
 	if n > v.lim.MaxSites {
-		vs.add("sites", "has %d sites, more than the limit of %d", n, v.lim.MaxSites)
+		vs.Add("sites", "has %d sites, more than the limit of %d", n, v.lim.MaxSites)
 	}
 	v.posOK = make([]bool, n)
 	for i, s := range v.c.Sites {
 		f := fmt.Sprintf("sites[%d]", i)
 		checkMass(vs, f+".mass_amu", s.MassAmu)
 		if v.dimOK() && len(s.Frac) != v.d {
-			vs.add(f+".frac", "must have %d numbers (one per lattice vector), got %d", v.d, len(s.Frac))
+			vs.Add(f+".frac", "must have %d numbers (one per lattice vector), got %d", v.d, len(s.Frac))
 			continue
 		}
 		ok := true
@@ -298,17 +292,17 @@ func (v *validator) checkSites() {
 }
 
 // checkMass checks one site mass (amu) at field f.
-func checkMass(vs *violations, f string, m float64) {
+func checkMass(vs *Violations, f string, m float64) {
 	switch {
 	case !finite(m):
-		vs.add(f, "must be finite, got %v", m)
+		vs.Add(f, "must be finite, got %v", m)
 	case m == 0:
 		// proto3 JSON cannot tell a missing mass from 0.
-		vs.add(f, "is required (missing or 0): the site's mass in amu, > 0")
+		vs.Add(f, "is required (missing or 0): the site's mass in amu, > 0")
 	case m < 0:
-		vs.add(f, "must be > 0, got %v", m)
+		vs.Add(f, "must be > 0, got %v", m)
 	case m < MinMassAmu || m > MaxMassAmu:
-		vs.add(f, "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, m)
+		vs.Add(f, "must be in [%g, %g] amu, got %v", MinMassAmu, MaxMassAmu, m)
 	}
 }
 
@@ -323,7 +317,7 @@ func (v *validator) checkCoincidences() {
 				continue
 			}
 			if dist := siteSeparation(v.c, i, j); dist < CoincidenceTolA {
-				v.vs.add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
+				v.vs.Add(fmt.Sprintf("sites[%d].frac", j), "on the same point as sites[%d] (%.3g Å apart)", i, dist)
 			}
 		}
 	}
@@ -332,9 +326,9 @@ func (v *validator) checkCoincidences() {
 // checkForce checks one force constant (in the crystal's unit) at field.
 func (v *validator) checkForce(field string, x float64) {
 	if !finite(x) {
-		v.vs.add(field, "must be finite, got %v", x)
+		v.vs.Add(field, "must be finite, got %v", x)
 	} else if math.Abs(x) > v.maxForce {
-		v.vs.add(field, "must be within ±%g %s, got %v", v.maxForce, v.forceUnit, x)
+		v.vs.Add(field, "must be within ±%g %s, got %v", v.maxForce, v.forceUnit, x)
 	}
 }
 
@@ -361,21 +355,21 @@ func (v *validator) checkPair(f string, from, to int, cell []int, allowSelf bool
 	vs, n := v.vs, v.n
 	ok = true
 	if from < 0 || from >= n {
-		vs.add(f+".from_site", "site index %d out of range [0, %d)", from, n)
+		vs.Add(f+".from_site", "site index %d out of range [0, %d)", from, n)
 		ok = false
 	}
 	if to < 0 || to >= n {
-		vs.add(f+".to_site", "site index %d out of range [0, %d)", to, n)
+		vs.Add(f+".to_site", "site index %d out of range [0, %d)", to, n)
 		ok = false
 	}
 	if v.dimOK() && len(cell) != v.d {
-		vs.add(f+".cell", "must have %d integers (one per lattice vector), got %d", v.d, len(cell))
+		vs.Add(f+".cell", "must have %d integers (one per lattice vector), got %d", v.d, len(cell))
 		return key, false
 	}
 	zero := true
 	for k, x := range cell {
 		if x > v.lim.MaxCellOffset || x < -v.lim.MaxCellOffset {
-			vs.add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, v.lim.MaxCellOffset)
+			vs.Add(fmt.Sprintf("%s.cell[%d]", f, k), "offset %d exceeds the limit of ±%d", x, v.lim.MaxCellOffset)
 			ok = false
 		}
 		if x != 0 {
@@ -386,7 +380,7 @@ func (v *validator) checkPair(f string, from, to int, cell []int, allowSelf bool
 		}
 	}
 	if ok && from == to && zero && !allowSelf {
-		vs.add(f, "site %d is bonded to itself in the same cell", from)
+		vs.Add(f, "site %d is bonded to itself in the same cell", from)
 		ok = false
 	}
 	key.i, key.j = from, to
@@ -408,13 +402,13 @@ func (v *validator) checkSprings() {
 		if v.posOK[s.From] && v.posOK[s.To] {
 			// A spring needs a direction: its two ends must be apart.
 			if l := v.bondLength(s); l < CoincidenceTolA {
-				v.vs.add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
+				v.vs.Add(f, "bond length %.3g Å is below %.0e Å: a spring needs two separate ends", l, CoincidenceTolA)
 				continue
 			}
 		}
 		ck := key.canonical()
 		if prev, dup := seen[ck]; dup {
-			v.vs.add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
+			v.vs.Add(f, "duplicate bond: the same bond as springs[%d] (a bond and its reverse are one bond)", prev)
 			continue
 		}
 		seen[ck] = idx
@@ -442,7 +436,7 @@ func (v *validator) checkBlocks() {
 	for idx, b := range v.c.Blocks {
 		f := fmt.Sprintf("blocks[%d]", idx)
 		if len(b.Phi) != 9 {
-			v.vs.add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
+			v.vs.Add(f+".phi", "must have 9 numbers (3×3 row-major), got %d", len(b.Phi))
 		}
 		for k, x := range b.Phi {
 			v.checkForce(fmt.Sprintf("%s.phi[%d]", f, k), x)
@@ -453,7 +447,7 @@ func (v *validator) checkBlocks() {
 		}
 		ck := key.canonical()
 		if prev, dup := seen[ck]; dup {
-			v.vs.add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
+			v.vs.Add(f, "duplicate block: the same site pair and cell as blocks[%d] (a block's transpose is implied for the reverse pair)", prev)
 			continue
 		}
 		seen[ck] = idx
@@ -483,7 +477,7 @@ func (v *validator) checkShells() {
 			sk.a, sk.b = sk.b, sk.a
 		}
 		if prev, dup := seen[sk]; dup {
-			vs.add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
+			vs.Add(f, "duplicate shell: shell %d between %q and %q is already shells[%d]", s.Shell, s.FromLabel, s.ToLabel, prev)
 		} else {
 			seen[sk] = idx
 		}
