@@ -414,3 +414,87 @@ func TestFoldCancelled(t *testing.T) {
 		t.Fatalf("err = %v, want context.Canceled", err)
 	}
 }
+
+// reorder returns the N×N set s with its atoms listed in the order perm
+// (atom x of the result is atom perm[x] of s), blocks moved along.
+func reorder(s *Set, perm []int) *Set {
+	out := &Set{Matrix: s.Matrix, Fractional: s.Fractional, TolA: s.TolA}
+	n := len(s.Atoms)
+	for _, i := range perm {
+		out.Atoms = append(out.Atoms, s.Atoms[i])
+	}
+	for _, i := range perm {
+		for _, j := range perm {
+			out.Phi = append(out.Phi, s.Phi[9*(i*n+j):9*(i*n+j)+9]...)
+		}
+	}
+	return out
+}
+
+// rowsOf returns the n×N form of the N×N set s: the rows of the atoms in
+// the cell cell.
+func rowsOf(s *Set, atoms []atomMap, cell [3]int) *Set {
+	out := &Set{Matrix: s.Matrix, Atoms: s.Atoms, Fractional: s.Fractional, TolA: s.TolA}
+	n := len(atoms)
+	for site := 0; ; site++ {
+		found := false
+		for i, a := range atoms {
+			if a.site == site && a.cell == cell {
+				out.PrimitiveAtoms = append(out.PrimitiveAtoms, i)
+				out.Phi = append(out.Phi, s.Phi[9*i*n:9*(i+1)*n]...)
+				found = true
+			}
+		}
+		if !found {
+			return out
+		}
+	}
+}
+
+// hashOf is the model hash of c's primitive cell with the set folded.
+func hashOf(t *testing.T, c *physics.Crystal, s *Set) string {
+	t.Helper()
+	got, _ := folded(t, c, s)
+	m, err := physics.Compile(context.Background(), got, physics.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m.Hash()
+}
+
+// TestSpellingsFoldAlike: the same data spelled as N×N or n×N blocks, with
+// the atoms shuffled and 1e-4 Å noise, or fractional in a non-diagonal
+// supercell, fold to the same bits (one model hash), and so does a set
+// whose rows differ (noise on every Φ) listed in another order. The
+// constants are chosen so that the sums do not come out exact by luck
+// (1/3, 1/7): averaging x/27 over 27 rows does not return x's bits.
+func TestSpellingsFoldAlike(t *testing.T) {
+	c := fcc()
+	for i := range c.Springs {
+		c.Springs[i].KLong = 1.0/3 + 0.0123*float64(i)
+		c.Springs[i].KTrans = 0.1 / 7
+	}
+	m := []int{3, 1, 0, 0, 3, 0, 0, -1, 3}
+	plain, atoms := supercell(t, c, m, nil, 0)
+	noisy, _ := supercell(t, c, m, rand.New(rand.NewPCG(1, 2)), 1e-4)
+	frac, _ := supercellAs(t, c, m, rand.New(rand.NewPCG(1, 3)), 0, true)
+	want := hashOf(t, c, plain)
+	for name, s := range map[string]*Set{
+		"shuffled, 1e-4 Å noise": noisy,
+		"fractional, shuffled":   frac,
+		"n×N rows of cell 0":     rowsOf(plain, atoms, [3]int{}),
+		"n×N rows of another cell": rowsOf(plain, atoms, atoms[len(atoms)-1].cell),
+	} {
+		if got := hashOf(t, c, s); got != want {
+			t.Errorf("%s: hash %s, N×N in order %s", name, got, want)
+		}
+	}
+	rng := rand.New(rand.NewPCG(4, 4))
+	for x := range plain.Phi {
+		plain.Phi[x] += 1e-3 * (2*rng.Float64() - 1)
+	}
+	perm := rng.Perm(len(plain.Atoms))
+	if a, b := hashOf(t, c, plain), hashOf(t, c, reorder(plain, perm)); a != b {
+		t.Errorf("rows that differ: hash %s in order, %s shuffled", a, b)
+	}
+}

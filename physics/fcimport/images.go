@@ -8,42 +8,93 @@ import (
 	"github.com/materials-lab/modegrid/physics"
 )
 
-// fold accumulates every pair's block onto its nearest images: with N×N
-// rows, each site's det M images each contribute 1/|det M|; with n×N rows
-// the one image contributes fully. It returns ctx.Err() if ctx ends first.
+// fold folds every pair's block onto its nearest images. The pairs of
+// one class (s, t, offset modulo the supercell) all have the same images,
+// and no other class reaches them, so each class's blocks are averaged
+// first — over the |det M| rows of site s with N×N rows, its one row with
+// n×N — and the mean shared equally among the class's m images:
+// Φ(s,0;t,R) = mean/m. The mean is ref + Σ(x − ref)/count, ref the block
+// of the class's first row atom in (site, cell) order, summed in that
+// order: the result does not depend on the order of the atoms, and a
+// class of equal blocks (an N×N set written out from one row per site)
+// gives ref exactly, so N×N and n×N spellings of the same data fold to
+// the same bits (and the same model hash). It returns ctx.Err() if ctx
+// ends first.
 func (g *geometry) fold(ctx context.Context, s *Set, maps []atomMap) (map[key][9]float64, error) {
-	fc := map[key][9]float64{}
 	n := len(s.Atoms)
-	rows, weight := make([]int, 0, n), 1/float64(abs(g.det))
-	if len(s.PrimitiveAtoms) > 0 {
-		rows, weight = s.PrimitiveAtoms, 1
-	} else {
-		for i := 0; i < n; i++ {
-			rows = append(rows, i)
-		}
+	type mean struct {
+		ref, dev [9]float64
+		count    int
 	}
-	for x, i := range rows {
+	classes := map[imageKey]*mean{}
+	var order []imageKey
+	for _, x := range g.rowOrder(s, maps) {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
+		i := x.atom
 		for j := 0; j < n; j++ {
-			blk := s.Phi[9*(x*n+j) : 9*(x*n+j)+9]
-			images := g.images(maps[i], maps[j])
+			blk := s.Phi[9*(x.row*n+j) : 9*(x.row*n+j)+9]
+			ck, images := g.images(maps[i], maps[j])
 			if len(images) > 1 {
 				g.shared++
 			}
-			w := weight / float64(len(images))
-			for _, r := range images {
-				k := key{maps[i].site, maps[j].site, r}
-				b := fc[k]
-				for a := range b {
-					b[a] += w * blk[a]
-				}
-				fc[k] = b
+			c := classes[ck]
+			if c == nil {
+				c = &mean{}
+				copy(c.ref[:], blk)
+				classes[ck] = c
+				order = append(order, ck)
 			}
+			for a := range c.dev {
+				c.dev[a] += blk[a] - c.ref[a]
+			}
+			c.count++
+		}
+	}
+	fc := make(map[key][9]float64, len(order))
+	for _, ck := range order {
+		c := classes[ck]
+		images := g.memo[ck]
+		var b [9]float64
+		for a := range b {
+			b[a] = (c.ref[a] + c.dev[a]/float64(c.count)) / float64(len(images))
+		}
+		for _, r := range images {
+			fc[key{ck.s, ck.t, r}] = b
 		}
 	}
 	return fc, nil
+}
+
+// row is a row atom of the set: its index and its row of Φ.
+type row struct{ atom, row int }
+
+// rowOrder returns the set's row atoms in (site, cell) order.
+func (g *geometry) rowOrder(s *Set, maps []atomMap) []row {
+	var rows []row
+	if len(s.PrimitiveAtoms) > 0 {
+		for x, i := range s.PrimitiveAtoms {
+			rows = append(rows, row{i, x})
+		}
+	} else {
+		for i := range s.Atoms {
+			rows = append(rows, row{i, i})
+		}
+	}
+	sort.Slice(rows, func(a, b int) bool {
+		x, y := maps[rows[a].atom], maps[rows[b].atom]
+		if x.site != y.site {
+			return x.site < y.site
+		}
+		for c := 0; c < 3; c++ {
+			if x.cell[c] != y.cell[c] {
+				return x.cell[c] < y.cell[c]
+			}
+		}
+		return false
+	})
+	return rows
 }
 
 // imageKey names the pairs that share their nearest images: the two
@@ -53,10 +104,11 @@ type imageKey struct {
 	base [3]int
 }
 
-// images returns the lattice vectors R of the nearest periodic images of
-// atom j seen from atom i (all within the tolerance of the nearest),
-// memoised by imageKey: the N² pairs have only n²·|det M| distinct ones.
-func (g *geometry) images(i, j atomMap) [][3]int {
+// images returns the class of the pair (atom i, atom j) and the lattice
+// vectors R of the nearest periodic images of atom j seen from atom i
+// (all within the tolerance of the nearest), memoised by class: the N²
+// pairs have only n²·|det M| distinct ones.
+func (g *geometry) images(i, j atomMap) (imageKey, [][3]int) {
 	var base [3]int
 	for c := 0; c < g.d; c++ {
 		base[c] = j.cell[c] - i.cell[c]
@@ -64,14 +116,14 @@ func (g *geometry) images(i, j atomMap) [][3]int {
 	base = g.reduce(base)
 	k := imageKey{i.site, j.site, base}
 	if r, ok := g.memo[k]; ok {
-		return r
+		return k, r
 	}
 	if g.memo == nil {
 		g.memo = map[imageKey][][3]int{}
 	}
 	r := g.searchImages(i.site, j.site, base)
 	g.memo[k] = r
-	return r
+	return k, r
 }
 
 // searchImages tries every supercell translation K in
