@@ -480,9 +480,9 @@ func TestSpellingsFoldAlike(t *testing.T) {
 	frac, _ := supercellAs(t, c, m, rand.New(rand.NewPCG(1, 3)), 0, true)
 	want := hashOf(t, c, plain)
 	for name, s := range map[string]*Set{
-		"shuffled, 1e-4 Å noise": noisy,
-		"fractional, shuffled":   frac,
-		"n×N rows of cell 0":     rowsOf(plain, atoms, [3]int{}),
+		"shuffled, 1e-4 Å noise":   noisy,
+		"fractional, shuffled":     frac,
+		"n×N rows of cell 0":       rowsOf(plain, atoms, [3]int{}),
 		"n×N rows of another cell": rowsOf(plain, atoms, atoms[len(atoms)-1].cell),
 	} {
 		if got := hashOf(t, c, s); got != want {
