@@ -10,7 +10,29 @@
 // equally, the Wigner–Seitz multiplicities) — the direct method of
 // K. Parlinski, Z. Q. Li and Y. Kawazoe, Phys. Rev. Lett. 78, 4063 (1997) —
 // then imposes index-permutation symmetry and the acoustic sum rule and
-// reports the size of each violation before and after.
+// reports the size of each violation before and after. Each class of
+// pairs (two sites and an offset modulo the supercell) is averaged in
+// (site, cell) order about a reference block, so the order of the atoms,
+// Cartesian or fractional positions and the N×N or n×N form of the same
+// data give the same bits, hence one model hash.
+//
+// Optionally (FoldModel with Options.Symmetrize) the set is averaged over
+// the crystal's space group: the primitive cell is first made exactly
+// symmetric as any model is (physics.Symmetrize of the lattice and sites,
+// within the symmetry tolerance), its operations found from the sites
+// alone — every (R, t), internal translations of a cell that is not
+// primitive included, checked to form a group — and
+// Φ(k) ← (1/|G|) Σ_g C_g Φ(g⁻¹·k) C_gᵀ, with g·(s, t, R) =
+// (π(s), π(t), rot·R + S_t − S_s) the image of a block under the
+// operation (site map π, cell shifts S of its translation) and C_g its
+// Cartesian rotation. The average keeps permutation symmetry and the sum
+// rule exactly, so they are imposed first and the result has all three
+// to rounding (groupaverage.go derives it); the report gives the number
+// of operations and the largest |C_g Φ(k) C_gᵀ − Φ(g·k)| before and
+// after.
+//
+// Units: positions Å (Cartesian) or fractional, Φ in the crystal's force
+// unit (eV/Å² or N/m) throughout; the tolerances are lengths in Å.
 //
 // Limits: the nearest image of a pair is sought among the supercell
 // translations within ±2 supercell vectors of the pair's offset reduced

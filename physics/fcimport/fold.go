@@ -30,11 +30,31 @@ type Set struct {
 
 // Report gives the largest element (force unit) of each violation before
 // and after its correction: Permutation is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ|
-// of the folded set, SumRule is max |Σ_{t,R} Φ(s,0;t,R)| over sites.
+// of the folded set, SumRule is max |Σ_{t,R} Φ(s,0;t,R)| over sites (before:
+// once the pairs are averaged), Invariance is max |C_g Φ(k) C_gᵀ − Φ(g·k)|
+// over the Operations used to symmetrise (before: of the folded set as
+// given; all three zero without symmetrisation). The after values are
+// those of the final set.
 type Report struct {
 	PermutationBefore, PermutationAfter float64
 	SumRuleBefore, SumRuleAfter         float64
-	Multiplicities                      int // pairs shared among >1 equidistant images
+	Multiplicities                      int // pairs shared among >1 equidistant image
+	Operations                          int // space-group operations averaged over (0: not symmetrised)
+	InvarianceBefore, InvarianceAfter   float64
+}
+
+// Options choose what FoldModel does beyond the fold and its corrections.
+type Options struct {
+	// Symmetrize makes the primitive cell exactly symmetric as for any
+	// model (physics.Symmetrize of its lattice and sites: metric and
+	// positions averaged over the operations found within SymTolA) and
+	// averages the folded set over the space group of that cell (every
+	// operation, internal translations of a cell that is not primitive
+	// included).
+	Symmetrize bool
+	// SymTolA is the symmetry tolerance, Å; 0 means
+	// physics.DefaultSymTolA.
+	SymTolA float64
 }
 
 // key names a folded block Φ(s, 0; t, R).
@@ -55,28 +75,99 @@ type atomMap struct {
 // listing every violation with field paths under "supercell_fc". It returns
 // ctx.Err() if ctx ends first (polled once per row of the set).
 func Fold(ctx context.Context, c *physics.Crystal, s *Set) ([]physics.Block, Report, error) {
+	m, rep, err := FoldModel(ctx, c, s, Options{})
+	if err != nil {
+		return nil, rep, err
+	}
+	return m.Blocks, rep, nil
+}
+
+// FoldModel is Fold returning the model: c's lattice and sites (made
+// exactly symmetric with opt.Symmetrize) with the folded blocks in place
+// of its springs, shells and blocks. The steps, in order: fold; with
+// Symmetrize, the support closed under the group; permutation symmetry by
+// averaging each pair; the sum rule by its least-squares correction; with
+// Symmetrize, the group average, then the pairs averaged once more (the
+// average keeps the other two properties to rounding; see groupaverage.go).
+func FoldModel(ctx context.Context, c *physics.Crystal, s *Set, opt Options) (*physics.Crystal, Report, error) {
+	var rep Report
 	g, err := newGeometry(c, s)
 	if err != nil {
-		return nil, Report{}, err
+		return nil, rep, err
 	}
 	maps, err := g.mapAtoms(s)
 	if err != nil {
-		return nil, Report{}, err
+		return nil, rep, err
+	}
+	out := *c
+	out.Springs, out.Shells, out.Blocks = nil, nil, nil
+	var ops []symOp
+	if opt.Symmetrize {
+		if ops, err = symmetricCell(ctx, &out, opt.SymTolA); err != nil {
+			return nil, rep, err
+		}
 	}
 	fc, err := g.fold(ctx, s, maps)
 	if err != nil {
-		return nil, Report{}, err
-	}
-	var rep Report
-	rep.Multiplicities = g.shared
-	rep.PermutationBefore = permute(fc)
-	rep.PermutationAfter = permutationViolation(fc)
-	rep.SumRuleBefore = sumRuleViolation(fc, g.nsites)
-	if err := imposeSumRule(fc, g.nsites); err != nil {
 		return nil, rep, err
 	}
+	rep.Multiplicities = g.shared
+	if err := g.correct(ctx, fc, ops, &rep); err != nil {
+		return nil, rep, err
+	}
+	out.Blocks = blocksOf(fc, g.d)
+	return &out, rep, nil
+}
+
+// symmetricCell makes c (lattice and sites, no interactions) exactly
+// symmetric by physics.Symmetrize and returns its space group.
+func symmetricCell(ctx context.Context, c *physics.Crystal, tolA float64) ([]symOp, error) {
+	sym, _, err := physics.Symmetrize(ctx, c, physics.Options{SymTolA: tolA})
+	if err != nil {
+		return nil, err
+	}
+	*c = *sym
+	if tolA == 0 {
+		tolA = physics.DefaultSymTolA
+	}
+	return spaceGroup(ctx, c, tolA)
+}
+
+// correct imposes permutation symmetry, the sum rule and (with ops)
+// invariance under the operations on fc, in place, and reports each.
+func (g *geometry) correct(ctx context.Context, fc map[key][9]float64, ops []symOp, rep *Report) error {
+	var err error
+	if len(ops) > 0 {
+		if rep.InvarianceBefore, err = invariance(ctx, fc, ops, g.d); err != nil {
+			return err
+		}
+		if err := closeUnderGroup(ctx, fc, ops, g.d); err != nil {
+			return err
+		}
+	}
+	rep.PermutationBefore = permute(fc)
+	rep.SumRuleBefore = sumRuleViolation(fc, g.nsites)
+	if err := imposeSumRule(fc, g.nsites); err != nil {
+		return err
+	}
+	if len(ops) > 0 {
+		avg, err := groupAverage(ctx, fc, ops, g.d)
+		if err != nil {
+			return err
+		}
+		clear(fc)
+		for k, b := range avg {
+			fc[k] = b
+		}
+		permute(fc)
+		rep.Operations = len(ops)
+		if rep.InvarianceAfter, err = invariance(ctx, fc, ops, g.d); err != nil {
+			return err
+		}
+	}
+	rep.PermutationAfter = permutationViolation(fc)
 	rep.SumRuleAfter = sumRuleViolation(fc, g.nsites)
-	return blocksOf(fc, g.d), rep, nil
+	return nil
 }
 
 // geometry holds the primitive and supercell lattices.

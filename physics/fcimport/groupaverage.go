@@ -1,0 +1,128 @@
+package fcimport
+
+import (
+	"context"
+	"math"
+)
+
+// The average of a folded set over the space group.
+//
+// An operation g takes the pair (site s, cell 0; site t, cell R) to
+// (π(s), S_s; π(t), rot·R + S_t), i.e. to the block key
+// g·(s, t, R) = (π(s), π(t), rot·R + S_t − S_s) (translated back to cell
+// 0), and a set invariant under g has Φ(g·k) = C Φ(k) Cᵀ. The group
+// average
+//
+//	Φ̄(k) = (1/|G|) Σ_g C_g Φ(g⁻¹·k) C_gᵀ
+//
+// (computed forwards: every block pushed to every image) is a projection
+// onto the invariant sets when the operations form a group, since
+// g ↦ (k ↦ g·k, Φ ↦ C_g Φ C_gᵀ) is then a representation. It keeps the
+// other two properties exactly: g maps the reverse of a key to the reverse
+// of its image, so index-permutation symmetry is kept, and for a fixed s
+// the map (t, R) → (π(t), rot·R + S_t − S_s) is a bijection of the atoms,
+// so every row sum of Φ̄ is an average of C E Cᵀ of row sums E: zero when
+// the sum rule held. Imposing both first and averaging last therefore
+// leaves all three to rounding. With C orthogonal (an exactly symmetric
+// lattice, which Symmetrize makes) both corrections are orthogonal
+// projections (in the Frobenius norm over the set's blocks) commuting
+// with the group, and the result is the least-squares nearest set that has
+// all three properties on the support closed under the group.
+
+// image returns g·k.
+func (op *symOp) image(k key, d int) key {
+	var r [3]int
+	for a := 0; a < d; a++ {
+		for b := 0; b < d; b++ {
+			r[a] += op.rot[a][b] * k.r[b]
+		}
+		r[a] += op.shift[k.t][a] - op.shift[k.s][a]
+	}
+	return key{op.perm[k.s], op.perm[k.t], r}
+}
+
+// rotate returns C Φ Cᵀ.
+func rotate(c *[3][3]float64, phi *[9]float64) [9]float64 {
+	var tmp, out [9]float64
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			var s float64
+			for e := 0; e < 3; e++ {
+				s += c[a][e] * phi[3*e+b]
+			}
+			tmp[3*a+b] = s
+		}
+	}
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			var s float64
+			for e := 0; e < 3; e++ {
+				s += tmp[3*a+e] * c[b][e]
+			}
+			out[3*a+b] = s
+		}
+	}
+	return out
+}
+
+// closeUnderGroup adds zero blocks at the images of every key, so that
+// the support of fc is closed under the operations. It returns ctx.Err()
+// if ctx ends first.
+func closeUnderGroup(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) error {
+	for _, k := range sortedKeys(fc) {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		for x := range ops {
+			ik := ops[x].image(k, d)
+			if _, ok := fc[ik]; !ok {
+				fc[ik] = [9]float64{}
+			}
+		}
+	}
+	return nil
+}
+
+// groupAverage returns the group average of fc (whose support must be
+// closed under the operations). It returns ctx.Err() if ctx ends first.
+func groupAverage(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (map[key][9]float64, error) {
+	out := make(map[key][9]float64, len(fc))
+	w := 1 / float64(len(ops))
+	for _, k := range sortedKeys(fc) {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		phi := fc[k]
+		for x := range ops {
+			ik := ops[x].image(k, d)
+			rot := rotate(&ops[x].cart, &phi)
+			b := out[ik]
+			for a := range b {
+				b[a] += w * rot[a]
+			}
+			out[ik] = b
+		}
+	}
+	return out, nil
+}
+
+// invariance is max |C_g Φ(k) C_gᵀ − Φ(g·k)| over the operations and
+// the keys of fc (a missing image counts as zero). It returns ctx.Err()
+// if ctx ends first.
+func invariance(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (float64, error) {
+	var v float64
+	for _, k := range sortedKeys(fc) {
+		if err := ctx.Err(); err != nil {
+			return 0, err
+		}
+		phi := fc[k]
+		for x := range ops {
+			rot := rotate(&ops[x].cart, &phi)
+			img := fc[ops[x].image(k, d)]
+			for a := range rot {
+				v = math.Max(v, math.Abs(rot[a]-img[a]))
+			}
+		}
+	}
+	return v, nil
+}

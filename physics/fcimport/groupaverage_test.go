@@ -1,0 +1,336 @@
+package fcimport
+
+import (
+	"context"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"strings"
+	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+)
+
+// withSprings adds a central-force spring (kl along, kt across the bond,
+// eV/Å²) on every pair of sites from ≤ to at distance distA Å, each bond
+// once (from < to in every cell; from = to with the cell offset
+// lexicographically positive).
+func withSprings(c *physics.Crystal, from, to int, distA, kl, kt float64) {
+	g := &geometry{d: c.Dim(), lat: c.Lattice}
+	for a := -2; a <= 2; a++ {
+		for b := -2; b <= 2; b++ {
+			for e := -2; e <= 2; e++ {
+				n := []int{a, b, e}[:g.d]
+				if from == to && !lessZero([3]int{-a, -b, -e}) {
+					continue
+				}
+				df := make([]float64, g.d)
+				for x := range df {
+					df[x] = c.Sites[to].Frac[x] + float64(n[x]) - c.Sites[from].Frac[x]
+				}
+				v := g.cart(df)
+				if math.Abs(math.Sqrt(dot(v, v))-distA) < 1e-9 {
+					c.Springs = append(c.Springs, physics.Spring{From: from, To: to, Cell: n, KLong: kl, KTrans: kt})
+				}
+			}
+		}
+	}
+}
+
+// fccLattice is the fcc primitive lattice of cubic constant 4 Å.
+func fccLattice() [][3]float64 { return [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 2, 0}} }
+
+// rocksalt is an invented two-species crystal on the rock-salt structure
+// (space group Fm-3m, point group m-3m of order 48): A (23 amu) at 0 and
+// B (35 amu) at (½,½,½) of the fcc primitive cell, nearest A–B springs at
+// 2 Å and A–A, B–B springs at 2√2 Å.
+func rocksalt() *physics.Crystal {
+	c := &physics.Crystal{Lattice: fccLattice(), Polarizations: 3, Sites: []physics.Site{
+		{Label: "A", MassAmu: 23, Frac: []float64{0, 0, 0}},
+		{Label: "B", MassAmu: 35, Frac: []float64{0.5, 0.5, 0.5}},
+	}}
+	withSprings(c, 0, 1, 2, 1.5, 0.2)
+	withSprings(c, 0, 0, 2*math.Sqrt2, 0.3, 0.05)
+	withSprings(c, 1, 1, 2*math.Sqrt2, 0.25, 0.04)
+	return c
+}
+
+// diamond is an invented one-species crystal on the diamond structure
+// (space group Fd-3m): two sites of 28 amu at 0 and (¼,¼,¼) of the fcc
+// primitive cell, nearest-neighbour springs at √3 Å and second-neighbour
+// springs at 2√2 Å. With the origin on an atom, the 24 operations that
+// exchange the two sites carry the translation (¼,¼,¼) (International
+// Tables for Crystallography, Vol. A, space group 227, origin choice 1).
+func diamond() *physics.Crystal {
+	c := &physics.Crystal{Lattice: fccLattice(), Polarizations: 3, Sites: []physics.Site{
+		{Label: "C", MassAmu: 28, Frac: []float64{0, 0, 0}},
+		{Label: "C", MassAmu: 28, Frac: []float64{0.25, 0.25, 0.25}},
+	}}
+	withSprings(c, 0, 1, math.Sqrt(3), 2.0, 0.3)
+	withSprings(c, 0, 0, 2*math.Sqrt2, 0.2, 0.02)
+	withSprings(c, 1, 1, 2*math.Sqrt2, 0.2, 0.02)
+	return c
+}
+
+// fccConventional is fcc() given in its 4-site cubic cell (a = 4 Å), a
+// cell that is not primitive: its operations are the 48 of m-3m times
+// the 4 internal translations.
+func fccConventional() *physics.Crystal {
+	c := &physics.Crystal{Lattice: [][3]float64{{4, 0, 0}, {0, 4, 0}, {0, 0, 4}}, Polarizations: 3}
+	for _, f := range [][]float64{{0, 0, 0}, {0, 0.5, 0.5}, {0.5, 0, 0.5}, {0.5, 0.5, 0}} {
+		c.Sites = append(c.Sites, physics.Site{Label: "M", MassAmu: 60, Frac: f})
+	}
+	for i := 0; i < 4; i++ {
+		for j := i; j < 4; j++ {
+			withSprings(c, i, j, 2*math.Sqrt2, 1.2, 0.1)
+		}
+	}
+	return c
+}
+
+// noisy adds uniform noise in [−amp, amp] eV/Å² to every element of Φ:
+// it breaks index permutation, the sum rule and the crystal's symmetry.
+func noisy(s *Set, rng *rand.Rand, amp float64) {
+	for x := range s.Phi {
+		s.Phi[x] += amp * (2*rng.Float64() - 1)
+	}
+}
+
+// foldedWith folds s for c with opt and compiles the result.
+func foldedWith(t *testing.T, c *physics.Crystal, s *Set, opt Options) (*physics.Model, Report) {
+	t.Helper()
+	fc, rep, err := FoldModel(context.Background(), c, s, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := physics.Compile(context.Background(), fc, physics.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return m, rep
+}
+
+// freqErr is the largest |ν_got − ν_want| (THz) at 30 seeded random q.
+func freqErr(want, got *physics.Model) float64 {
+	rng := rand.New(rand.NewPCG(7, 11))
+	var e float64
+	for x := 0; x < 30; x++ {
+		q := [3]float64{rng.Float64() - 0.5, rng.Float64() - 0.5, rng.Float64() - 0.5}
+		fw, fg := want.FrequenciesTHz(q), got.FrequenciesTHz(q)
+		for i := range fw {
+			e = math.Max(e, math.Abs(fw[i]-fg[i]))
+		}
+	}
+	return e
+}
+
+// coreOperations is the number of operations the core finds for c's
+// sites alone (one per rotation).
+func coreOperations(t *testing.T, c *physics.Crystal) int {
+	t.Helper()
+	geo := *c
+	geo.Springs = nil
+	m, err := physics.Compile(context.Background(), &geo, physics.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ops, err := m.Symmetry(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return len(ops)
+}
+
+// TestSymmetrizeExactSet: a set written out from an exactly symmetric
+// spring model is already invariant, and symmetrising it changes its
+// frequencies by rounding only (the group average is a projection). The
+// operation counts: the diatomic chain (Kittel ch. 4) has the identity
+// and the inversion through a site; rock salt and diamond the 48 of m-3m
+// (International Tables for Crystallography, Vol. A, groups 225 and
+// 227); the 4-site cubic cell of fcc 48 × 4 internal translations, where
+// the core, keeping one translation per rotation, finds 48.
+func TestSymmetrizeExactSet(t *testing.T) {
+	cases := []struct {
+		name      string
+		c         *physics.Crystal
+		m         []int
+		ops, core int
+	}{
+		{"diatomic chain", diatomic(), []int{3}, 2, 2},
+		{"fcc", fcc(), []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, 48, 48},
+		{"rock salt", rocksalt(), []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, 48, 48},
+		{"diamond", diamond(), []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, 48, 48},
+		{"fcc in its cubic cell", fccConventional(), []int{2, 0, 0, 0, 2, 0, 0, 0, 2}, 192, 48},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			s, _ := supercell(t, tc.c, tc.m, nil, 0)
+			want, err := physics.Compile(context.Background(), tc.c, physics.Options{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			got, rep := foldedWith(t, tc.c, s, Options{Symmetrize: true})
+			if rep.Operations != tc.ops {
+				t.Errorf("%d operations, want %d", rep.Operations, tc.ops)
+			}
+			if n := coreOperations(t, tc.c); n != tc.core {
+				t.Errorf("the core finds %d operations, want %d", n, tc.core)
+			}
+			if rep.InvarianceBefore > 1e-13 || rep.InvarianceAfter > 1e-13 {
+				t.Errorf("invariance violation %g before, %g after: want rounding (≤ 1e-13 eV/Å²)", rep.InvarianceBefore, rep.InvarianceAfter)
+			}
+			if e := freqErr(want, got); e > 1e-10 {
+				t.Errorf("frequencies off the springs' by %g THz", e)
+			}
+		})
+	}
+}
+
+// TestSymmetrizeNoisy: a set from a symmetric spring model with uniform
+// noise of 0.02 eV/Å² on every element, symmetrised: the invariance
+// violation falls from the noise's size to rounding, the sum rule and
+// index permutation hold to rounding, the frequencies come closer to the
+// noiseless set's at random q, and degeneracies the noise split are
+// restored. At Γ the optical modes of rock salt and diamond are a
+// triplet: a second-rank tensor invariant under a cubic point group is a
+// multiple of the identity (J. F. Nye, Physical Properties of Crystals,
+// ch. 1), so the 3×3 block of the optical displacement at Γ is, and its
+// three frequencies are equal; the noise splits them, the average
+// restores them to 1e-9 relative.
+func TestSymmetrizeNoisy(t *testing.T) {
+	cases := []struct {
+		name    string
+		c       *physics.Crystal
+		m       []int
+		optical bool
+	}{
+		{"rock salt", rocksalt(), []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, true},
+		{"diamond", diamond(), []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, true},
+		{"fcc in its cubic cell", fccConventional(), []int{2, 0, 0, 0, 2, 0, 0, 0, 2}, false},
+		{"fcc, non-diagonal supercell", fcc(), []int{3, 1, 0, 0, 3, 0, 0, -1, 3}, false},
+	}
+	const amp = 0.02
+	for x, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			clean, _ := supercell(t, tc.c, tc.m, nil, 0)
+			ref, _ := foldedWith(t, tc.c, clean, Options{})
+			s, _ := supercell(t, tc.c, tc.m, rand.New(rand.NewPCG(uint64(x), 17)), 1e-4)
+			noisy(s, rand.New(rand.NewPCG(uint64(x), 23)), amp)
+			plain, _ := foldedWith(t, tc.c, s, Options{})
+			sym, rep := foldedWith(t, tc.c, s, Options{Symmetrize: true})
+			t.Logf("%d operations; invariance %.3g → %.3g eV/Å²; sum rule %.3g → %.3g; permutation %.3g → %.3g",
+				rep.Operations, rep.InvarianceBefore, rep.InvarianceAfter, rep.SumRuleBefore, rep.SumRuleAfter, rep.PermutationBefore, rep.PermutationAfter)
+			if rep.InvarianceBefore < amp/10 || rep.InvarianceAfter > 1e-13 {
+				t.Errorf("invariance violation %g before, %g after: want about the noise (%g) before, rounding after", rep.InvarianceBefore, rep.InvarianceAfter, amp)
+			}
+			if rep.SumRuleAfter > 1e-12 || rep.PermutationAfter != 0 {
+				t.Errorf("sum rule %g, permutation %g after: want rounding, 0", rep.SumRuleAfter, rep.PermutationAfter)
+			}
+			ep, es := freqErr(ref, plain), freqErr(ref, sym)
+			t.Logf("largest frequency error: %.3g THz unsymmetrised, %.3g THz symmetrised", ep, es)
+			if !(es < ep/2) {
+				t.Errorf("symmetrised frequencies off by %g THz, unsymmetrised by %g: want at least 2× closer", es, ep)
+			}
+			for _, q := range [][3]float64{{0, 0, 0}, {0, 0.5, 0.5}, {0.5, 0.5, 0.5}} {
+				sameDegeneracies(t, q, ref.FrequenciesTHz(q), plain.FrequenciesTHz(q), sym.FrequenciesTHz(q))
+			}
+			if tc.optical {
+				f := sym.FrequenciesTHz([3]float64{})
+				if spread := (f[5] - f[3]) / f[5]; spread > 1e-9 {
+					t.Errorf("Γ optical triplet %v: spread %g relative, want ≤ 1e-9", f[3:], spread)
+				}
+				if p := plain.FrequenciesTHz([3]float64{}); (p[5]-p[3])/p[5] < 1e-6 {
+					t.Errorf("Γ optical triplet unsymmetrised %v: the noise should split it", p[3:])
+				}
+			}
+		})
+	}
+}
+
+// sameDegeneracies checks that every pair of modes degenerate in the
+// noiseless model (within 1e-9 relative to the highest) is degenerate in
+// the symmetrised one too. Only for q where the space group forces them
+// (Γ, and for the primitive cells X = (0,½,½) and L = (½,½,½), whose
+// transverse pairs are degenerate by their 4- and 3-fold axes; for the
+// cubic cell the same coordinates are points of its own zone): a
+// nearest-neighbour model also has accidental degeneracies (the 4-site
+// cubic cell of fcc has a fourfold one at (¼,½,¾), split into two
+// symmetric pairs by symmetric noise), which no symmetrisation restores.
+func sameDegeneracies(t *testing.T, q [3]float64, ref, plain, sym []float64) {
+	t.Helper()
+	top := ref[len(ref)-1]
+	for i := 0; i+1 < len(ref); i++ {
+		if ref[i+1]-ref[i] > 1e-9*top {
+			continue
+		}
+		if d := sym[i+1] - sym[i]; d > 1e-9*top {
+			t.Errorf("q=%v modes %d, %d: degenerate in the noiseless model, %g THz apart symmetrised (%g unsymmetrised)", q, i, i+1, d, plain[i+1]-plain[i])
+		}
+	}
+}
+
+// TestNotAGroup: operations that are not closed under composition (one
+// left out of a group) are named as a violation of the set.
+func TestNotAGroup(t *testing.T) {
+	c := rocksalt()
+	ops, err := spaceGroup(context.Background(), c, physics.DefaultSymTolA)
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = closed(context.Background(), ops[1:], 3)
+	var ve *physics.ValidationError
+	if !errors.As(err, &ve) || !strings.Contains(err.Error(), "supercell_fc") || !strings.Contains(err.Error(), "do not form a group") {
+		t.Fatalf("err = %v, want a ValidationError naming supercell_fc", err)
+	}
+}
+
+// TestSymmetrizeCancelled: a cancelled context stops the symmetrisation.
+func TestSymmetrizeCancelled(t *testing.T) {
+	c := rocksalt()
+	s, _ := supercell(t, c, []int{2, 0, 0, 0, 2, 0, 0, 0, 2}, nil, 0)
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, _, err := FoldModel(ctx, c, s, Options{Symmetrize: true}); !errors.Is(err, context.Canceled) {
+		t.Fatalf("err = %v, want context.Canceled", err)
+	}
+}
+
+// TestSymmetrizeNearlySymmetricCell: a rock-salt cell whose lattice
+// vectors and B site are off by up to 3e-5 Å (within the default
+// symmetry tolerance of 1e-4 Å) with a noisy set: the cell is made
+// exactly symmetric, and the final model is symmetric in its own frame —
+// the core finds all 48 operations of m-3m on it at a tolerance of 1e-9 Å,
+// which it checks on the dynamical matrix (D(Sq) = U D(q) U† to 1e-9 of
+// its largest element); on the model folded without symmetrisation it
+// finds the identity alone.
+func TestSymmetrizeNearlySymmetricCell(t *testing.T) {
+	c := rocksalt()
+	s, _ := supercell(t, c, []int{3, 0, 0, 0, 3, 0, 0, 0, 3}, nil, 0)
+	noisy(s, rand.New(rand.NewPCG(8, 8)), 0.01)
+	off := *c
+	off.Lattice = [][3]float64{{0, 2.00003, 2}, {2, -0.00002, 2.00001}, {2, 2, 0}}
+	off.Sites = []physics.Site{c.Sites[0], {Label: "B", MassAmu: 35, Frac: []float64{0.5, 0.500004, 0.5}}}
+	for name, tc := range map[string]struct {
+		opt  Options
+		want int
+	}{"symmetrised": {Options{Symmetrize: true}, 48}, "as given": {Options{}, 1}} {
+		fc, rep, err := FoldModel(context.Background(), &off, s, tc.opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m, err := physics.Compile(context.Background(), fc, physics.Options{SymTolA: 1e-9})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ops, err := m.Symmetry(context.Background())
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(ops) != tc.want {
+			t.Errorf("%s: the core finds %d operations at 1e-9 Å, want %d", name, len(ops), tc.want)
+		}
+		if tc.opt.Symmetrize && (rep.Operations != 48 || rep.InvarianceAfter > 1e-13) {
+			t.Errorf("%s: %d operations, invariance %g after: want 48, rounding", name, rep.Operations, rep.InvarianceAfter)
+		}
+	}
+}

@@ -1,0 +1,229 @@
+package fcimport
+
+import (
+	"context"
+	"encoding/binary"
+	"math"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/lattice"
+)
+
+// symOp is a space-group operation of the primitive cell acting on atoms:
+// fractional x goes to rot·x + t with rot·x_i + t = x_perm[i] + shift[i],
+// so site i of cell n goes to site perm[i] of cell rot·n + shift[i], and
+// a force-constant block goes to C Φ Cᵀ (cart is C, the rotation in
+// Cartesian coordinates).
+type symOp struct {
+	rot   [3][3]int
+	perm  []int
+	shift [][3]int
+	cart  [3][3]float64
+}
+
+// spaceGroup returns the operations (R, t) of c's lattice and sites within
+// tolA (Å): R from lattice.PointGroup, and for each R every translation
+// t = x_j − R·x_0 (j a site of site 0's mass) that puts every site within
+// tolA (Cartesian, modulo the lattice) of a site of the same mass — the
+// site test of the core's Model.Symmetry. Unlike the core, which keeps one
+// translation per rotation (enough in q-space), it keeps them all, so that
+// a cell that is not primitive gets its internal translations and the set
+// is a group; rotations that mix the first p Cartesian axes with the
+// others are left out, as the core does. An error (a *physics.
+// ValidationError) says the operations found do not form a group (sites
+// of one mass closer than the tolerance). It returns ctx.Err() if ctx ends
+// first.
+func spaceGroup(ctx context.Context, c *physics.Crystal, tolA float64) ([]symOp, error) {
+	d := c.Dim()
+	var lat [3][3]float64
+	copy(lat[:], c.Lattice)
+	recip := lattice.Reciprocal(lat, d)
+	shortest := math.Inf(1)
+	for k := 0; k < d; k++ {
+		shortest = math.Min(shortest, lattice.Norm(lat[k]))
+	}
+	polTol := 1e-8 + float64(1+d)*tolA/shortest
+	var ops []symOp
+	for _, r := range lattice.PointGroup(lat, d, tolA) {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		cart := cartesian(lat, recip, d, r)
+		if mixesPolarizations(cart, c.P(), polTol) {
+			continue
+		}
+		ops = append(ops, siteMaps(c, lat, r, cart, tolA)...)
+	}
+	if err := closed(ctx, ops, d); err != nil {
+		return nil, err
+	}
+	return ops, nil
+}
+
+// cartesian is C = Σ_kl a_k R_kl b_lᵀ/2π on the lattice span plus the
+// identity on its orthogonal complement (d < 3): x = Σ f_k a_k goes to
+// Σ (R f)_k a_k, with f_l = b_l·x/2π.
+func cartesian(lat, recip [3][3]float64, d int, r [3][3]int) [3][3]float64 {
+	var c [3][3]float64
+	for x := 0; x < 3; x++ {
+		for y := 0; y < 3; y++ {
+			var s, proj float64
+			for k := 0; k < d; k++ {
+				for l := 0; l < d; l++ {
+					s += lat[k][x] * float64(r[k][l]) * recip[l][y]
+				}
+				proj += lat[k][x] * recip[k][y]
+			}
+			c[x][y] = (s - proj) / (2 * math.Pi)
+			if x == y {
+				c[x][y]++
+			}
+		}
+	}
+	return c
+}
+
+// mixesPolarizations reports that C mixes the first p axes (the ones the
+// atoms move along) with the others by more than tol.
+func mixesPolarizations(c [3][3]float64, p int, tol float64) bool {
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			if (a < p) != (b < p) && math.Abs(c[a][b]) > tol {
+				return true
+			}
+		}
+	}
+	return false
+}
+
+// siteMaps returns an operation for every translation that, with the
+// rotation r, maps every site onto a site of its mass within tolA.
+func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]float64, tolA float64) []symOp {
+	d, ns := c.Dim(), len(c.Sites)
+	rx := make([][3]float64, ns)
+	for i, s := range c.Sites {
+		for a := 0; a < d; a++ {
+			for b := 0; b < d; b++ {
+				rx[i][a] += float64(r[a][b]) * s.Frac[b]
+			}
+		}
+	}
+	var ops []symOp
+	for j0 := range c.Sites {
+		if c.Sites[j0].MassAmu != c.Sites[0].MassAmu {
+			continue
+		}
+		var t [3]float64
+		for a := 0; a < d; a++ {
+			t[a] = c.Sites[j0].Frac[a] - rx[0][a]
+			t[a] -= math.Floor(t[a])
+		}
+		op := symOp{rot: r, cart: cart, perm: make([]int, ns), shift: make([][3]int, ns)}
+		if mapSites(c, lat, rx, t, tolA, &op) {
+			ops = append(ops, op)
+		}
+	}
+	return ops
+}
+
+// mapSites fills op.perm and op.shift for the images rx[i] + t of the
+// sites; false when a site lands on no free site of its mass.
+func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float64, tolA float64, op *symOp) bool {
+	d := c.Dim()
+	used := make([]bool, len(c.Sites))
+	for i := range c.Sites {
+		found := false
+		for j, sj := range c.Sites {
+			if used[j] || sj.MassAmu != c.Sites[i].MassAmu {
+				continue
+			}
+			var diff, cell [3]float64
+			for a := 0; a < d; a++ {
+				diff[a] = rx[i][a] + t[a] - sj.Frac[a]
+				cell[a] = math.Round(diff[a])
+				diff[a] -= cell[a]
+			}
+			var x [3]float64
+			for a := 0; a < d; a++ {
+				x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
+			}
+			if lattice.Norm(x) < tolA {
+				op.perm[i], used[j], found = j, true, true
+				for a := 0; a < d; a++ {
+					op.shift[i][a] = int(cell[a])
+				}
+				break
+			}
+		}
+		if !found {
+			return false
+		}
+	}
+	return true
+}
+
+// compose returns g∘h (h first): site i of cell n goes by h to site h.π(i)
+// of cell h.R·n + h.S_i, then by g to site g.π(h.π(i)) of cell
+// g.R·h.R·n + g.R·h.S_i + g.S_{h.π(i)}.
+func compose(g, h *symOp, d int) symOp {
+	out := symOp{perm: make([]int, len(h.perm)), shift: make([][3]int, len(h.perm))}
+	for a := 0; a < 3; a++ {
+		for b := 0; b < 3; b++ {
+			for k := 0; k < 3; k++ {
+				out.rot[a][b] += g.rot[a][k] * h.rot[k][b]
+			}
+		}
+	}
+	for i, hi := range h.perm {
+		out.perm[i] = g.perm[hi]
+		for a := 0; a < d; a++ {
+			for b := 0; b < d; b++ {
+				out.shift[i][a] += g.rot[a][b] * h.shift[i][b]
+			}
+			out.shift[i][a] += g.shift[hi][a]
+		}
+	}
+	return out
+}
+
+// signature identifies what an operation does to pairs of atoms: its
+// rotation, permutation and shifts relative to site 0's (a common lattice
+// translation changes no pair).
+func signature(op *symOp, d int) string {
+	var b []byte
+	for a := 0; a < d; a++ {
+		for c := 0; c < d; c++ {
+			b = binary.AppendVarint(b, int64(op.rot[a][c]))
+		}
+	}
+	for i, p := range op.perm {
+		b = binary.AppendVarint(b, int64(p))
+		for a := 0; a < d; a++ {
+			b = binary.AppendVarint(b, int64(op.shift[i][a]-op.shift[0][a]))
+		}
+	}
+	return string(b)
+}
+
+// closed checks that every product of two operations is one of them (so
+// that averaging over them is a projection).
+func closed(ctx context.Context, ops []symOp, d int) error {
+	have := make(map[string]bool, len(ops))
+	for x := range ops {
+		have[signature(&ops[x], d)] = true
+	}
+	for x := range ops {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		for y := range ops {
+			p := compose(&ops[x], &ops[y], d)
+			if !have[signature(&p, d)] {
+				var vs physics.Violations
+				vs.Add("supercell_fc", "the %d symmetry operations found within the symmetry tolerance do not form a group (sites of one mass closer than it?): give a smaller symmetry tolerance", len(ops))
+				return vs.Err()
+			}
+		}
+	}
+	return nil
+}
