@@ -15,16 +15,19 @@ import (
 // against the server's max sites (its N² blocks are a model of N sites).
 const maxSupercellSites = 64
 
-// foldSupercell replaces c's interactions by the blocks folded from the
-// crystal's supercell force-constant set, if it has one. A model with the
-// set and springs, shells or blocks too is refused (they would not
-// combine meaningfully). maxSites 0 means no cap.
+// foldSupercell returns c with its interactions replaced by the blocks
+// folded from the crystal's supercell force-constant set, if it has one
+// (c itself otherwise). With opt.Symmetrize the lattice and sites are made
+// exactly symmetric and the blocks averaged over the space group (the
+// model is then already symmetric: compileEntry does not symmetrise it
+// again). A model with the set and springs, shells or blocks too is
+// refused (they would not combine meaningfully). maxSites 0 means no cap.
 // The returned report (nil without a set) says what the fold found and
 // corrected; CheckModel answers it.
-func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int) (*modegridv1.SupercellFold, error) {
+func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int, opt fcimport.Options) (*physics.Crystal, *modegridv1.SupercellFold, error) {
 	fc := cr.GetSupercellFc()
 	if fc == nil {
-		return nil, nil
+		return c, nil, nil
 	}
 	var vs violations
 	if len(cr.GetSprings())+len(cr.GetShells())+len(cr.GetBlocks()) > 0 {
@@ -37,14 +40,13 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 		vs.Add("sites", "%d sites exceed the cap of %d for a model given as a supercell set", len(cr.GetSites()), maxSupercellSites)
 	}
 	if err := vs.Err(); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	blocks, rep, err := fcimport.Fold(ctx, c, setFromProto(fc))
+	out, rep, err := fcimport.FoldModel(ctx, c, setFromProto(fc), opt)
 	if err != nil {
-		return nil, fmt.Errorf("folding the supercell force constants: %w", err)
+		return nil, nil, fmt.Errorf("folding the supercell force constants: %w", err)
 	}
-	c.Blocks = blocks
-	return foldReport(fc, rep, c.ForceUnit), nil
+	return out, foldReport(fc, rep, c.ForceUnit), nil
 }
 
 // foldReport is the wire form of the fold's report. Every supercell atom
@@ -69,6 +71,9 @@ func foldReport(fc *modegridv1.SupercellForceConstants, r fcimport.Report, unit 
 		PermutationAfterEvPerA2:  ev(r.PermutationAfter),
 		SumRuleBeforeEvPerA2:     ev(r.SumRuleBefore),
 		SumRuleAfterEvPerA2:      ev(r.SumRuleAfter),
+		Operations:               uint32(r.Operations),
+		InvarianceBeforeEvPerA2:  ev(r.InvarianceBefore),
+		InvarianceAfterEvPerA2:   ev(r.InvarianceAfter),
 	}
 }
 

@@ -87,6 +87,7 @@ func (s *Service) rawModelOf(src *modegridv1.ModelSource) (rawModel, bool) {
 	r := rawModel{c: c, size: physics.GridSize{Sites: n, P: c.P(), Dim: d,
 		Interactions: len(cr.GetSprings()) + len(cr.GetBlocks())}}
 	if fs, ok := fcShapeOf(cr); ok {
+		fs.sym = src.GetSymmetrize()
 		r.fc, r.hasFC = fs, true
 		r.size.Interactions += fs.foldedInteractions()
 	}

@@ -14,8 +14,12 @@ import (
 
 // fcShape is the size of a well-formed set: n primitive sites, N atoms,
 // rows the number of atoms Φ has rows for (N, or n with primitive_atoms),
-// det = |det M|, d the dimensionality.
-type fcShape struct{ n, atoms, rows, det, d int }
+// det = |det M|, d the dimensionality; sym when it is to be symmetrised
+// (ModelSource.symmetrize).
+type fcShape struct {
+	n, atoms, rows, det, d int
+	sym                    bool
+}
 
 // fcShapeOf reads the set's shape; ok is false without a set or when it
 // is not well formed.
@@ -73,7 +77,13 @@ func (s fcShape) foldedInteractions() int { return (s.n*s.atoms + 1) / 2 }
 //     is 8m³/3 operations (Golub & Van Loan, Matrix Computations, 4th ed.,
 //     §5.4.8: 4mn² − 4n³/3 for m×n), and the matrix, U and V of the thin
 //     SVD are three m×m arrays of float64: 24·m² bytes;
-//   - the folded blocks themselves: n·N of at least 9 float64, 72·n·N bytes.
+//   - the folded blocks themselves: n·N of at least 9 float64, 72·n·N bytes;
+//   - with symmetrisation, the invariance measured before and after and
+//     the group average, three passes over the n·N blocks for each of
+//     |G| ≥ 1 operations (the identity at least: the group is not known
+//     before the search), each C Φ Cᵀ at least 54 multiply-adds and its
+//     image key d² + 2d; the average is written to a second map of the
+//     blocks, 72·n·N bytes more.
 //
 // The work is turned into time like every estimate (physics.Cost.Seconds)
 // on one core, since none of the fold runs in parallel.
@@ -88,5 +98,10 @@ func (s fcShape) foldCost() physics.Cost {
 	m := 9 * float64(s.n)
 	svd := 8 * m * m * m / 3
 	bytes := 24*int64(m)*int64(m) + 72*int64(s.n)*int64(s.atoms)
-	return physics.Cost{Bytes: bytes, Flops: search + accumulate + svd}
+	var sym float64
+	if s.sym {
+		sym = 3 * float64(s.n*s.atoms) * (54 + ops*ops + 2*ops)
+		bytes += 72 * int64(s.n) * int64(s.atoms)
+	}
+	return physics.Cost{Bytes: bytes, Flops: search + accumulate + svd + sym}
 }

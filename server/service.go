@@ -12,6 +12,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/fcimport"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
@@ -113,15 +114,16 @@ var modelCodec = &cache.Codec{
 // compileEntry compiles an inline model. raw is its deterministic
 // serialisation. It stops with ctx.Err() when ctx ends first.
 // With symmetrize set, the crystal is first made exactly symmetric
-// (physics.Symmetrize) and the entry is that model.
+// (physics.Symmetrize; a supercell set by its fold, fcimport.FoldModel)
+// and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
-	c := crystalFromProto(src.GetCrystal())
-	fold, err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites)
+	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
+	c, fold, err := foldSupercell(ctx, src.GetCrystal(), crystalFromProto(src.GetCrystal()), lim.MaxSites,
+		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA})
 	if err != nil {
 		return nil, err
 	}
-	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
-	if src.GetSymmetrize() {
+	if src.GetSymmetrize() && fold == nil {
 		if c, _, err = physics.Symmetrize(ctx, c, opt); err != nil {
 			return nil, err
 		}

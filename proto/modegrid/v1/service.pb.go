@@ -339,7 +339,12 @@ type ModelSource struct {
 	// Make the model exactly symmetric under the operations found within the
 	// tolerance before use: lattice metric and positions averaged over the
 	// group, springs recomputed from the new positions, explicit blocks
-	// averaged. The result is a new model with its own hash.
+	// averaged. A supercell force-constant set (Crystal.supercell_fc) is
+	// folded, then averaged over the space group of the symmetrised
+	// primitive cell, found from its sites alone (every operation, with the
+	// internal translations of a cell that is not primitive), keeping index
+	// permutation symmetry and the acoustic sum rule (see SupercellFold).
+	// The result is a new model with its own hash.
 	Symmetrize    bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
@@ -2845,7 +2850,9 @@ func (x *CheckModelResponse) GetSupercellFold() *SupercellFold {
 // in eV/Å². Permutation symmetry is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ| of the
 // folded blocks (corrected by averaging the pair); the acoustic sum rule is
 // max |Σ_{t,R} Φ(s,0;t,R)| over sites (corrected by the least-squares
-// change that restores it).
+// change that restores it); with ModelSource.symmetrize, invariance under
+// the space group (corrected by the group average, which keeps the other
+// two). The after values are those of the final set.
 type SupercellFold struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Supercell atoms mapped onto a primitive site and cell.
@@ -2863,8 +2870,18 @@ type SupercellFold struct {
 	SumRuleBeforeEvPerA2 float64 `protobuf:"fixed64,6,opt,name=sum_rule_before_ev_per_a2,json=sumRuleBeforeEvPerA2,proto3" json:"sum_rule_before_ev_per_a2,omitempty"`
 	// Acoustic sum-rule violation after it, eV/Å².
 	SumRuleAfterEvPerA2 float64 `protobuf:"fixed64,7,opt,name=sum_rule_after_ev_per_a2,json=sumRuleAfterEvPerA2,proto3" json:"sum_rule_after_ev_per_a2,omitempty"`
-	unknownFields       protoimpl.UnknownFields
-	sizeCache           protoimpl.SizeCache
+	// Space-group operations the set was averaged over
+	// (ModelSource.symmetrize); 0 when it was not symmetrised.
+	Operations uint32 `protobuf:"varint,8,opt,name=operations,proto3" json:"operations,omitempty"`
+	// Largest violation of invariance under those operations before the
+	// average, max |C Φ(k) Cᵀ − Φ(g·k)| over the operations g (Cartesian
+	// rotation C) and the folded blocks k (g·k the block k is carried to), of
+	// the folded set as given, eV/Å²; 0 when not symmetrised.
+	InvarianceBeforeEvPerA2 float64 `protobuf:"fixed64,9,opt,name=invariance_before_ev_per_a2,json=invarianceBeforeEvPerA2,proto3" json:"invariance_before_ev_per_a2,omitempty"`
+	// The same of the final set (after every correction), eV/Å².
+	InvarianceAfterEvPerA2 float64 `protobuf:"fixed64,10,opt,name=invariance_after_ev_per_a2,json=invarianceAfterEvPerA2,proto3" json:"invariance_after_ev_per_a2,omitempty"`
+	unknownFields          protoimpl.UnknownFields
+	sizeCache              protoimpl.SizeCache
 }
 
 func (x *SupercellFold) Reset() {
@@ -2942,6 +2959,27 @@ func (x *SupercellFold) GetSumRuleBeforeEvPerA2() float64 {
 func (x *SupercellFold) GetSumRuleAfterEvPerA2() float64 {
 	if x != nil {
 		return x.SumRuleAfterEvPerA2
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetOperations() uint32 {
+	if x != nil {
+		return x.Operations
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetInvarianceBeforeEvPerA2() float64 {
+	if x != nil {
+		return x.InvarianceBeforeEvPerA2
+	}
+	return 0
+}
+
+func (x *SupercellFold) GetInvarianceAfterEvPerA2() float64 {
+	if x != nil {
+		return x.InvarianceAfterEvPerA2
 	}
 	return 0
 }
@@ -3299,7 +3337,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14symmetry_tolerance_a\x18\x14 \x01(\x01R\x12symmetryToleranceA\x12a\n" +
 	"\x1csymmetry_at_looser_tolerance\x18\x15 \x03(\v2 .modegrid.v1.SymmetryAtToleranceR\x19symmetryAtLooserTolerance\x12 \n" +
 	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\x12A\n" +
-	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"\xef\x02\n" +
+	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"\x89\x04\n" +
 	"\rSupercellFold\x12!\n" +
 	"\fatoms_mapped\x18\x01 \x01(\rR\vatomsMapped\x12\x1f\n" +
 	"\vtolerance_a\x18\x02 \x01(\x01R\n" +
@@ -3308,7 +3346,13 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x1cpermutation_before_ev_per_a2\x18\x04 \x01(\x01R\x18permutationBeforeEvPerA2\x12<\n" +
 	"\x1bpermutation_after_ev_per_a2\x18\x05 \x01(\x01R\x17permutationAfterEvPerA2\x127\n" +
 	"\x19sum_rule_before_ev_per_a2\x18\x06 \x01(\x01R\x14sumRuleBeforeEvPerA2\x125\n" +
-	"\x18sum_rule_after_ev_per_a2\x18\a \x01(\x01R\x13sumRuleAfterEvPerA2\"V\n" +
+	"\x18sum_rule_after_ev_per_a2\x18\a \x01(\x01R\x13sumRuleAfterEvPerA2\x12\x1e\n" +
+	"\n" +
+	"operations\x18\b \x01(\rR\n" +
+	"operations\x12<\n" +
+	"\x1binvariance_before_ev_per_a2\x18\t \x01(\x01R\x17invarianceBeforeEvPerA2\x12:\n" +
+	"\x1ainvariance_after_ev_per_a2\x18\n" +
+	" \x01(\x01R\x16invarianceAfterEvPerA2\"V\n" +
 	"\x13SymmetryAtTolerance\x12\x1f\n" +
 	"\vtolerance_a\x18\x01 \x01(\x01R\n" +
 	"toleranceA\x12\x1e\n" +
