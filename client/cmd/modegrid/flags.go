@@ -357,7 +357,7 @@ func newModelCommand(name string, plots bool) *modelCommand {
 	c.out.register(c.fs, plots)
 	c.sumRule = c.fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
 	c.symTol = c.fs.Float64("sym-tol", 0, "symmetry `tolerance` in Å: how far sites may be from symmetric positions (0: the default, 1e-4 Å)")
-	c.symmetrize = c.fs.Bool("symmetrize", false, "make the model exactly symmetric under the operations found within --sym-tol (a new model, new hash)")
+	c.symmetrize = c.fs.Bool("symmetrize", false, "make the model exactly symmetric under the operations found within --sym-tol (a new model, new hash); a supercell set is averaged over its space group")
 	return c
 }
 

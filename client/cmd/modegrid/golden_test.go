@@ -31,6 +31,8 @@ var goldenCases = []struct {
 	// A supercell force-constant set with invented, deliberately broken
 	// numbers: the check reports the fold's corrections.
 	{"check-supercell-chain-table", []string{"check", "-m", testdata("broken-sum-rule-supercell-chain.json")}},
+	// The same set averaged over its space group (identity and inversion).
+	{"check-supercell-chain-symmetrized-table", []string{"check", "-m", testdata("broken-sum-rule-supercell-chain.json"), "--symmetrize"}},
 
 	{"modes-fcc-table", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5"}},
 	{"modes-fcc-csv", []string{"modes", "-m", example("fcc"), "--q", "0,0,0;0.5,0,0.5;0.5,0.5,0.5", "--format", "csv"}},

@@ -248,12 +248,13 @@ func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
 
 // foldRows report the fold of a supercell force-constant set (none when
 // the model has no set): atoms mapped, tolerance, pairs that shared images
-// and each violation before → after its correction.
+// and each violation before → after its correction; when it was
+// symmetrised (--symmetrize), the operations and the symmetry violation.
 func foldRows(f *modegridv1.SupercellFold, real func(float64) string) []checkRow {
 	if f == nil {
 		return nil
 	}
-	return []checkRow{
+	rows := []checkRow{
 		{"fold_atoms_mapped", "supercell atoms mapped", fmt.Sprint(f.GetAtomsMapped())},
 		{"fold_tolerance_a", "supercell tolerance (Å)", strconv.FormatFloat(f.GetToleranceA(), 'g', -1, 64)},
 		{"fold_shared_image_pairs", "pairs sharing images", fmt.Sprint(f.GetSharedImagePairs())},
@@ -262,6 +263,14 @@ func foldRows(f *modegridv1.SupercellFold, real func(float64) string) []checkRow
 		{"fold_sum_rule_before_ev_per_a2", "supercell sum-rule violation before (eV/Å²)", real(f.GetSumRuleBeforeEvPerA2())},
 		{"fold_sum_rule_after_ev_per_a2", "supercell sum-rule violation after (eV/Å²)", real(f.GetSumRuleAfterEvPerA2())},
 	}
+	if f.GetOperations() > 0 {
+		rows = append(rows,
+			checkRow{"fold_operations", "supercell set averaged over operations", fmt.Sprint(f.GetOperations())},
+			checkRow{"fold_invariance_before_ev_per_a2", "symmetry violation before (eV/Å²)", real(f.GetInvarianceBeforeEvPerA2())},
+			checkRow{"fold_invariance_after_ev_per_a2", "symmetry violation after (eV/Å²)", real(f.GetInvarianceAfterEvPerA2())},
+		)
+	}
+	return rows
 }
 
 // ---- modes ----
