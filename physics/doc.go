@@ -270,7 +270,8 @@
 //     by integer q-space rotations, the ReductionCache, tetrahedron
 //     geometry and simplex classes.
 //   - physics/fcimport — above the core, in spectra's layer: folds a
-//     supercell force-constant set into the core's explicit blocks.
+//     supercell force-constant set into the core's explicit blocks,
+//     optionally averaged over the crystal's space group.
 //   - physics (this package) — the model, validation, compilation, the
 //     dynamical matrix, symmetry with site maps, modes, velocities,
 //     long-wave limit and elastic Debye temperature, paths, stability,

@@ -498,3 +498,43 @@ func TestSpellingsFoldAlike(t *testing.T) {
 		t.Errorf("rows that differ: hash %s in order, %s shuffled", a, b)
 	}
 }
+
+// TestFoldBackClosedForm: the nearest-neighbour fcc crystal with central
+// springs only (K = 1.2 eV/Å², M = 60 amu), written out as a non-diagonal
+// supercell with shuffled atoms and folded back, has the closed-form
+// frequencies of that model at X = (2π/a)(1,0,0) and L = (π/a)(1,1,1):
+// ω²M/K = 8, 4, 4 and 8, 2, 2 (Ashcroft & Mermin, Solid State Physics,
+// ch. 22, nearest-neighbour fcc; Kittel, Introduction to Solid State
+// Physics, ch. 4, for the spring law). In the fractional reciprocal
+// coordinates of the primitive vectors (0,2,2), (2,0,2), (2,2,0) (a = 4 Å)
+// X is (0, ½, ½) and L is (½, ½, ½) (q_k = q·a_k/2π). ν = √(ω²)·ν₁ with
+// ν₁ = physics.NuUnitTHz, the THz of 1 eV/Å²/amu.
+func TestFoldBackClosedForm(t *testing.T) {
+	c := fcc()
+	for i := range c.Springs {
+		c.Springs[i].KTrans = 0
+	}
+	const k, m = 1.2, 60.0
+	s, _ := supercell(t, c, []int{3, 1, 0, 0, 3, 0, 0, -1, 3}, rand.New(rand.NewPCG(2, 9)), 1e-4)
+	got, _ := folded(t, c, s)
+	mod, err := physics.Compile(context.Background(), got, physics.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name  string
+		q     [3]float64
+		ratio []float64 // ω²M/K, ascending
+	}{
+		{"X", [3]float64{0, 0.5, 0.5}, []float64{4, 4, 8}},
+		{"L", [3]float64{0.5, 0.5, 0.5}, []float64{2, 2, 8}},
+	} {
+		f := mod.FrequenciesTHz(tc.q)
+		for i, r := range tc.ratio {
+			want := math.Sqrt(r*k/m) * physics.NuUnitTHz
+			if math.Abs(f[i]-want) > 1e-10 {
+				t.Errorf("%s mode %d: %.15g THz, closed form %.15g", tc.name, i, f[i], want)
+			}
+		}
+	}
+}
