@@ -428,7 +428,32 @@ func checkSeeds(tb testing.TB) []proto.Message {
 		Springs: []*modegridv1.Spring{{FromSite: 0, ToSite: 0, Cell: []int32{1}, KLong: 1e300}}}
 	return append(out, &modegridv1.CheckModelRequest{Model: inline(bad)}, &modegridv1.CheckModelRequest{Model: byHash(strings.Repeat("0", 64))},
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
-		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{})
+		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{},
+		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: fuzzChainSet(tb)}, Symmetrize: true}})
+}
+
+// fuzzChainSet is the diatomic chain example as a 2-cell supercell set
+// (4 atoms, the fuzz server's max sites): on-site 4, neighbours −2 eV/Å².
+func fuzzChainSet(tb testing.TB) *modegridv1.Crystal {
+	c := example(tb, "diatomic-chain")
+	c.Springs = nil
+	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{2}}
+	const n = 4
+	for i := range n {
+		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+		for j := range n {
+			blk := make([]float64, 9)
+			switch {
+			case i == j:
+				blk[0] = 4
+			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
+				blk[0] = -2
+			}
+			fc.Phi = append(fc.Phi, blk...)
+		}
+	}
+	c.SupercellFc = fc
+	return c
 }
 
 func modesSeeds(tb testing.TB) []proto.Message {
