@@ -33,7 +33,7 @@ type Set struct {
 // of the folded set, SumRule is max |Σ_{t,R} Φ(s,0;t,R)| over sites (before:
 // once the pairs are averaged), Invariance is max |C_g Φ(k) C_gᵀ − Φ(g·k)|
 // over the Operations used to symmetrise (before: of the folded set as
-// given; all three zero without symmetrisation). The after values are
+// given; both zero without symmetrisation). The after values are
 // those of the final set.
 type Report struct {
 	PermutationBefore, PermutationAfter float64
