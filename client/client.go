@@ -75,6 +75,8 @@ type Client struct {
 	affinity   bool
 	maxResends int // resends of a call broken after the server began to answer
 	refs       modelRefs
+	maxMsg     int // largest message sent or received
+	uploadAt   int // a request larger than this uploads its inline model first
 }
 
 // Option configures Dial.
@@ -86,6 +88,7 @@ type options struct {
 	token       string
 	affinity    bool
 	maxMsg      int
+	uploadAt    int // 0: maxMsg
 	keepalive   keepalive.ClientParameters
 	maxAttempts int
 	readyWait   time.Duration
@@ -184,6 +187,23 @@ func WithMaxMessageBytes(n int) Option {
 			return
 		}
 		o.maxMsg = n
+	}
+}
+
+// WithUploadThreshold sets the request size, in bytes, above which a
+// request's inline model is uploaded first (UploadModel) and the request
+// sent by reference (default, and at most: the largest message,
+// WithMaxMessageBytes). A server whose message cap is below the Client's
+// refuses a larger request with RESOURCE_EXHAUSTED; the Client then
+// uploads its model too, so the threshold matters only to spare that
+// first refusal.
+func WithUploadThreshold(n int) Option {
+	return func(o *options) {
+		if n <= 0 {
+			o.fail(fmt.Errorf("upload threshold must be > 0, got %d", n))
+			return
+		}
+		o.uploadAt = n
 	}
 }
 
@@ -328,7 +348,10 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
-	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}
+	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity, maxMsg: o.maxMsg, uploadAt: o.maxMsg}
+	if o.uploadAt > 0 {
+		c.uploadAt = min(o.uploadAt, o.maxMsg)
+	}
 	if o.maxAttempts > 1 {
 		c.maxResends = maxResends
 	}

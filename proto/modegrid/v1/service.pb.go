@@ -570,8 +570,8 @@ func (x *UploadModelHeader) GetModel() *ModelSource {
 }
 
 // UploadModelRequest is one message of an upload stream: the header first,
-// then chunks of the payload in order, each at most the message cap (the
-// Go client sends 1 MiB, or half the cap if less).
+// then chunks of the payload in order, each within the message cap (the
+// Go client sends 32 KiB).
 //
 // Violations are reported as in an inline request, so that a client
 // uploading on a caller's behalf can pass them on unchanged: those of the
