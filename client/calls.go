@@ -80,22 +80,22 @@ func answered(hdr, trl metadata.MD) bool {
 // Check calls CheckModel. An invalid model is not an error: the response has
 // Valid false and lists every violation.
 func (c *Client) Check(ctx context.Context, req *modegridv1.CheckModelRequest, opts ...CallOption) (*modegridv1.CheckModelResponse, error) {
-	return unary(ctx, c, req, c.api.CheckModel, false, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.CheckModel, false, collectOptions(opts))
 }
 
 // Dispersion calls ComputeDispersion.
 func (c *Client) Dispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest, opts ...CallOption) (*modegridv1.ComputeDispersionResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeDispersion, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeDispersion, c.affinity, collectOptions(opts))
 }
 
 // DOS calls ComputeDos.
 func (c *Client) DOS(ctx context.Context, req *modegridv1.ComputeDosRequest, opts ...CallOption) (*modegridv1.ComputeDosResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeDos, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeDos, c.affinity, collectOptions(opts))
 }
 
 // Thermal calls ComputeThermal.
 func (c *Client) Thermal(ctx context.Context, req *modegridv1.ComputeThermalRequest, opts ...CallOption) (*modegridv1.ComputeThermalResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeThermal, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeThermal, c.affinity, collectOptions(opts))
 }
 
 // Modes calls ComputeModes and collects the whole stream into one response
@@ -178,7 +178,11 @@ func (s *sender) streamOnce(ctx context.Context, o callOptions, delivered *int, 
 	sctx, cancel := context.WithCancel(s.outgoing(ctx))
 	defer cancel()
 	req := s.request().(*modegridv1.ComputeModesRequest)
-	stream, err := s.c.api.ComputeModes(sctx, req, o.grpcOpts...)
+	api, err := s.api()
+	if err != nil {
+		return err
+	}
+	stream, err := api.ComputeModes(sctx, req, o.grpcOpts...)
 	if err != nil {
 		return err
 	}
@@ -228,7 +232,7 @@ type hashed interface {
 
 // unary runs one unary call with the model reference logic.
 func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req Req,
-	call func(context.Context, Req, ...grpc.CallOption) (Resp, error), learn bool, o callOptions) (Resp, error) {
+	call func(modegridv1.ModegridServiceClient, context.Context, Req, ...grpc.CallOption) (Resp, error), learn bool, o callOptions) (Resp, error) {
 	s, err := c.newSender(ctx, req, learn)
 	if err != nil {
 		var zero Resp
@@ -243,7 +247,12 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 			return zero, err
 		}
 		hdr, trl = nil, nil
-		resp, err := call(s.outgoing(ctx), s.request().(Req), opts...)
+		api, err := s.api()
+		if err != nil {
+			var zero Resp
+			return zero, err
+		}
+		resp, err := call(api, s.outgoing(ctx), s.request().(Req), opts...)
 		if err == nil {
 			s.succeeded(resp.GetModelHash())
 			return resp, nil
@@ -312,6 +321,7 @@ func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (
 		if e, ok := c.refs.lookupHash(s.hash); ok {
 			s.inline = e.inline
 			s.key, s.hasKey = keyOf(e.inline)
+			s.upload = c.tooBig(withSource(req, e.inline))
 		}
 	}
 	return s, nil
@@ -352,7 +362,11 @@ func (s *sender) prepare(ctx context.Context, o callOptions) error {
 		return nil
 	}
 	s.upload = true
-	resp, err := s.c.upload(ctx, s.inline, s.hash, o)
+	api, err := s.api()
+	if err != nil {
+		return err
+	}
+	resp, err := s.c.upload(ctx, api, s.inline, s.hash, o)
 	if err != nil {
 		return err
 	}
@@ -362,6 +376,16 @@ func (s *sender) prepare(ctx context.Context, o callOptions) error {
 	}
 	s.hash, s.ref = h, h
 	return nil
+}
+
+// api is the connection the call goes on: the pinned one for a model
+// that goes by upload without affinity (so that its calls reach the
+// replica its upload reached), else the Client's own.
+func (s *sender) api() (modegridv1.ModegridServiceClient, error) {
+	if s.upload && !s.c.affinity {
+		return s.c.pinned()
+	}
+	return s.c.api, nil
 }
 
 // outgoing adds the affinity header when it applies.

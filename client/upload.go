@@ -5,8 +5,11 @@ import (
 	"crypto/sha256"
 	"errors"
 	"fmt"
+	"slices"
 	"strings"
+	"sync"
 
+	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 	"google.golang.org/protobuf/proto"
@@ -37,7 +40,14 @@ func (c *Client) UploadModel(ctx context.Context, src *modegridv1.ModelSource, o
 	if src.GetCrystal() == nil {
 		return nil, errors.New("modegrid client: UploadModel needs a model source with an inline crystal")
 	}
-	resp, err := c.upload(ctx, src, "", collectOptions(opts))
+	api := c.api
+	if !c.affinity {
+		var err error
+		if api, err = c.pinned(); err != nil {
+			return nil, err
+		}
+	}
+	resp, err := c.upload(ctx, api, src, "", collectOptions(opts))
 	if err != nil {
 		return nil, err
 	}
@@ -47,10 +57,10 @@ func (c *Client) UploadModel(ctx context.Context, src *modegridv1.ModelSource, o
 	return resp, nil
 }
 
-// upload sends src's crystal through one UploadModel stream, carrying the
+// upload sends src's crystal through one UploadModel stream on api, carrying the
 // affinity header for hash when it is known, and sends it again when a
 // stream broken after it began (UNAVAILABLE) can be resent.
-func (c *Client) upload(ctx context.Context, src *modegridv1.ModelSource, hash string, o callOptions) (*modegridv1.UploadModelResponse, error) {
+func (c *Client) upload(ctx context.Context, api modegridv1.ModegridServiceClient, src *modegridv1.ModelSource, hash string, o callOptions) (*modegridv1.UploadModelResponse, error) {
 	payload, err := proto.MarshalOptions{Deterministic: true}.Marshal(src.GetCrystal())
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: encode the model for upload: %w", err)
@@ -70,7 +80,7 @@ func (c *Client) upload(ctx context.Context, src *modegridv1.ModelSource, hash s
 		ctx = withAffinity(ctx, hash)
 	}
 	for resends := 0; ; resends++ {
-		resp, err := c.uploadOnce(ctx, h, payload, o)
+		resp, err := c.uploadOnce(ctx, api, h, payload, o)
 		if err == nil || resends >= c.maxResends || !broken(ctx, err, true) {
 			return resp, err
 		}
@@ -80,10 +90,10 @@ func (c *Client) upload(ctx context.Context, src *modegridv1.ModelSource, hash s
 // uploadOnce runs one UploadModel stream: the header, the payload in
 // chunks, then the server's answer. A send that fails means the server
 // has ended the stream; its status is then what CloseAndRecv returns.
-func (c *Client) uploadOnce(ctx context.Context, h *modegridv1.UploadModelHeader, payload []byte, o callOptions) (*modegridv1.UploadModelResponse, error) {
+func (c *Client) uploadOnce(ctx context.Context, api modegridv1.ModegridServiceClient, h *modegridv1.UploadModelHeader, payload []byte, o callOptions) (*modegridv1.UploadModelResponse, error) {
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel() // ends an abandoned stream
-	stream, err := c.api.UploadModel(ctx, o.grpcOpts...)
+	stream, err := api.UploadModel(ctx, o.grpcOpts...)
 	if err != nil {
 		return nil, err
 	}
@@ -109,4 +119,47 @@ func (c *Client) tooBig(req proto.Message) bool {
 func overServerCap(err error) bool {
 	st, ok := status.FromError(err)
 	return ok && st.Code() == codes.ResourceExhausted && strings.Contains(st.Message(), "received message larger than max")
+}
+
+// pinned returns the stub of the Client's pinned connection, dialled on
+// first use: the same target and options with gRPC's pick_first balancer
+// (the address list shuffled, so that clients spread over the replicas),
+// which keeps every call on one replica while it serves. Without model
+// affinity, uploads and the calls that name an uploaded model go on it: a
+// replica holds the models uploaded to it, and round_robin would send the
+// next call to another (with two replicas, every reference would reach
+// the one that did not receive the upload). When that replica goes away,
+// pick_first moves to another, which answers NOT_FOUND once and is sent
+// the model again.
+func (c *Client) pinned() (modegridv1.ModegridServiceClient, error) {
+	c.pin.once.Do(func() {
+		sc, err := serviceConfig(false, c.pin.maxAttempts, c.pin.health, c.pin.waitForReady, true)
+		if err != nil {
+			c.pin.err = fmt.Errorf("modegrid client: %w", err)
+			return
+		}
+		opts := append(slices.Clip(c.pin.dopts), grpc.WithDefaultServiceConfig(sc))
+		conn, err := grpc.NewClient(c.pin.target, opts...)
+		if err != nil {
+			c.pin.err = fmt.Errorf("modegrid client: %w", err)
+			return
+		}
+		c.pin.conn, c.pin.api = conn, modegridv1.NewModegridServiceClient(conn)
+	})
+	return c.pin.api, c.pin.err
+}
+
+// pinnedConn is the Client's pinned connection (see pinned) and what it
+// is dialled with.
+type pinnedConn struct {
+	target       string
+	dopts        []grpc.DialOption
+	maxAttempts  int
+	health       bool
+	waitForReady bool
+
+	once sync.Once
+	conn *grpc.ClientConn // nil until dialled
+	api  modegridv1.ModegridServiceClient
+	err  error
 }

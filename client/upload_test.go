@@ -414,3 +414,49 @@ func staticResolver(addrs []string) grpc.DialOption {
 
 // jsonOf is the protobuf JSON of c, as a model file holds it.
 func jsonOf(c *modegridv1.Crystal) ([]byte, error) { return protojson.Marshal(c) }
+
+// TestUploadRoundRobin: without affinity, over two replicas balanced
+// round_robin, a big model's upload and every call naming it reach one
+// replica (the Client's pinned connection), so no reference meets a
+// replica that never received the model; a small model's calls still
+// spread over both.
+func TestUploadRoundRobin(t *testing.T) {
+	var addrs []string
+	var recs []*recorder
+	for range 2 {
+		rec := &recorder{}
+		addr, _, _ := startServerConfig(t, "", smallServer, rec.options()...)
+		addrs, recs = append(addrs, addr), append(recs, rec)
+	}
+	c := dial(t, "replicas:///modegrid", client.WithDialOptions(staticResolver(addrs)), client.WithMaxMessageBytes(smallCap))
+	ctx := testContext(t)
+	big := &modegridv1.ComputeModesRequest{Model: client.Inline(chainSupercell(t, 32)), Qpoints: client.QList([3]float64{0.5, 0, 0})}
+	small := &modegridv1.ComputeModesRequest{Model: client.Inline(example(t, "chain")), Qpoints: client.QList([3]float64{0.5, 0, 0})}
+	var bigHash string
+	for i := range 6 {
+		resp, err := c.Modes(ctx, big)
+		if err != nil {
+			t.Fatalf("big model, call %d: %v", i, err)
+		}
+		bigHash = resp.GetModelHash()
+		if _, err := c.Modes(ctx, small); err != nil {
+			t.Fatalf("small model, call %d: %v", i, err)
+		}
+	}
+	bigOn, smallOn := map[int]int{}, map[int]int{}
+	for ri, r := range recs {
+		for _, cl := range r.snapshot() {
+			if strings.HasSuffix(cl.method, "/UploadModel") || cl.ref == bigHash {
+				bigOn[ri]++
+			} else {
+				smallOn[ri]++
+			}
+		}
+	}
+	if len(bigOn) != 1 {
+		t.Errorf("the big model's upload and calls reached replicas %v; want one", bigOn)
+	}
+	if len(smallOn) != 2 {
+		t.Errorf("the small model's calls reached replicas %v; want both (round_robin)", smallOn)
+	}
+}
