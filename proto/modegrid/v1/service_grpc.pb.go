@@ -43,7 +43,7 @@ const (
 // Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
 // field (also for a request over a server cap, named in the description);
 // NOT_FOUND for a model_hash the server does not hold (resend the model
-// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// inline, or upload it); FAILED_PRECONDITION for thermal properties of an unstable model;
 // RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
 // timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
 // over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
@@ -170,7 +170,7 @@ type ModegridService_UploadModelClient = grpc.ClientStreamingClient[UploadModelR
 // Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
 // field (also for a request over a server cap, named in the description);
 // NOT_FOUND for a model_hash the server does not hold (resend the model
-// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// inline, or upload it); FAILED_PRECONDITION for thermal properties of an unstable model;
 // RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
 // timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
 // over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
