@@ -365,7 +365,7 @@ func Dial(target string, opt ...Option) (*Client, error) {
 // it was opened). Calls in progress fail with CANCELED.
 func (c *Client) Close() error {
 	err := c.conn.Close()
-	c.pin.once.Do(func() {}) // no pinned connection is opened from now on
+	c.pin.once.Do(func() { c.pin.err = errors.New("modegrid client: closed") }) // no pinned connection from now on
 	if c.pin.conn != nil {
 		err = errors.Join(err, c.pin.conn.Close())
 	}
