@@ -80,22 +80,22 @@ func answered(hdr, trl metadata.MD) bool {
 // Check calls CheckModel. An invalid model is not an error: the response has
 // Valid false and lists every violation.
 func (c *Client) Check(ctx context.Context, req *modegridv1.CheckModelRequest, opts ...CallOption) (*modegridv1.CheckModelResponse, error) {
-	return unary(ctx, c, req, c.api.CheckModel, false, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.CheckModel, false, collectOptions(opts))
 }
 
 // Dispersion calls ComputeDispersion.
 func (c *Client) Dispersion(ctx context.Context, req *modegridv1.ComputeDispersionRequest, opts ...CallOption) (*modegridv1.ComputeDispersionResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeDispersion, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeDispersion, c.affinity, collectOptions(opts))
 }
 
 // DOS calls ComputeDos.
 func (c *Client) DOS(ctx context.Context, req *modegridv1.ComputeDosRequest, opts ...CallOption) (*modegridv1.ComputeDosResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeDos, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeDos, c.affinity, collectOptions(opts))
 }
 
 // Thermal calls ComputeThermal.
 func (c *Client) Thermal(ctx context.Context, req *modegridv1.ComputeThermalRequest, opts ...CallOption) (*modegridv1.ComputeThermalResponse, error) {
-	return unary(ctx, c, req, c.api.ComputeThermal, c.affinity, collectOptions(opts))
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeThermal, c.affinity, collectOptions(opts))
 }
 
 // Modes calls ComputeModes and collects the whole stream into one response
@@ -128,7 +128,7 @@ func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest,
 // points already delivered are skipped. An error from fn stops the stream
 // and is returned.
 func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRequest, fn func(*modegridv1.ComputeModesResponse) error, opts ...CallOption) error {
-	o := collectOptions(opts)
+	caller := collectOptions(opts)
 	s, err := c.newSender(ctx, req, c.affinity)
 	if err != nil {
 		return err
@@ -138,8 +138,12 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 	delivered := 0
 	resumes := 0
 	var hdr, trl metadata.MD
+	o := caller
 	o.grpcOpts = append(slices.Clip(o.grpcOpts), grpc.Header(&hdr), grpc.Trailer(&trl))
 	for {
+		if err := s.prepare(ctx, caller); err != nil {
+			return err
+		}
 		hdr, trl = nil, nil
 		err := s.streamOnce(ctx, o, &delivered, fn)
 		if err == nil {
@@ -174,7 +178,11 @@ func (s *sender) streamOnce(ctx context.Context, o callOptions, delivered *int, 
 	sctx, cancel := context.WithCancel(s.outgoing(ctx))
 	defer cancel()
 	req := s.request().(*modegridv1.ComputeModesRequest)
-	stream, err := s.c.api.ComputeModes(sctx, req, o.grpcOpts...)
+	api, err := s.api()
+	if err != nil {
+		return err
+	}
+	stream, err := api.ComputeModes(sctx, req, o.grpcOpts...)
 	if err != nil {
 		return err
 	}
@@ -224,7 +232,7 @@ type hashed interface {
 
 // unary runs one unary call with the model reference logic.
 func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req Req,
-	call func(context.Context, Req, ...grpc.CallOption) (Resp, error), learn bool, o callOptions) (Resp, error) {
+	call func(modegridv1.ModegridServiceClient, context.Context, Req, ...grpc.CallOption) (Resp, error), learn bool, o callOptions) (Resp, error) {
 	s, err := c.newSender(ctx, req, learn)
 	if err != nil {
 		var zero Resp
@@ -234,8 +242,17 @@ func unary[Req proto.Message, Resp hashed](ctx context.Context, c *Client, req R
 	opts := append(slices.Clip(o.grpcOpts), grpc.Header(&hdr), grpc.Trailer(&trl))
 	resends := 0
 	for {
+		if err := s.prepare(ctx, o); err != nil {
+			var zero Resp
+			return zero, err
+		}
 		hdr, trl = nil, nil
-		resp, err := call(s.outgoing(ctx), s.request().(Req), opts...)
+		api, err := s.api()
+		if err != nil {
+			var zero Resp
+			return zero, err
+		}
+		resp, err := call(api, s.outgoing(ctx), s.request().(Req), opts...)
 		if err == nil {
 			s.succeeded(resp.GetModelHash())
 			return resp, nil
@@ -262,6 +279,11 @@ type sender struct {
 	ref    string                  // hash to send as a reference; "" sends inline
 	hash   string                  // hash for the affinity header; "" unknown
 	resent bool                    // the NOT_FOUND fallback has been used
+	// upload is true when the model cannot go inline (its request is
+	// over the Client's upload threshold, or a server refused it as over
+	// its message cap): it goes by reference, uploaded first when the
+	// server may not hold it (prepare).
+	upload bool
 }
 
 func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (*sender, error) {
@@ -270,11 +292,12 @@ func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (
 	case s.src.GetCrystal() != nil:
 		s.inline = s.src
 		s.key, s.hasKey = keyOf(s.src)
+		s.upload = c.tooBig(req)
 		if !s.hasKey {
 			break
 		}
 		e, ok := c.refs.lookupKey(s.key)
-		if !ok && learn {
+		if !ok && learn && !s.upload {
 			// Ask once for the hash so that even the first compute call is
 			// routed to the replica that will own the model.
 			resp, err := c.api.CheckModel(ctx, &modegridv1.CheckModelRequest{Model: s.src})
@@ -298,6 +321,7 @@ func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (
 		if e, ok := c.refs.lookupHash(s.hash); ok {
 			s.inline = e.inline
 			s.key, s.hasKey = keyOf(e.inline)
+			s.upload = c.tooBig(withSource(req, e.inline))
 		}
 	}
 	return s, nil
@@ -310,11 +334,58 @@ func (s *sender) request() proto.Message {
 		return s.req // the caller's own reference
 	case s.ref != "":
 		return withSource(s.req, reference(s.ref, s.inline))
-	case s.src.GetCrystal() != nil || s.inline == nil:
-		return s.req // the caller's own inline model (or no model)
 	default:
-		return withSource(s.req, s.inline) // resend a remembered model
+		return s.inlineRequest()
 	}
+}
+
+// inlineRequest is the request with the model inline: the caller's own
+// inline model (or no model), or a remembered model resent.
+func (s *sender) inlineRequest() proto.Message {
+	if s.src.GetCrystal() != nil || s.inline == nil {
+		return s.req
+	}
+	return withSource(s.req, s.inline)
+}
+
+// prepare uploads the model when the request is to carry it but it
+// cannot go inline: it then goes by the hash the upload answers. The
+// upload carries the affinity header when the hash is known (a model
+// uploaded again after a NOT_FOUND); an upload without it may land on
+// another replica than the hash routes to, and is remembered as not yet
+// sent there.
+func (s *sender) prepare(ctx context.Context, o callOptions) error {
+	if s.ref != "" || s.inline == nil {
+		return nil
+	}
+	if !s.upload && !s.c.tooBig(s.inlineRequest()) {
+		return nil
+	}
+	s.upload = true
+	api, err := s.api()
+	if err != nil {
+		return err
+	}
+	resp, err := s.c.upload(ctx, api, s.inline, s.hash, o)
+	if err != nil {
+		return err
+	}
+	h := resp.GetModelHash()
+	if s.hasKey {
+		s.c.refs.remember(s.key, s.inline, h, !s.c.affinity || s.hash == h)
+	}
+	s.hash, s.ref = h, h
+	return nil
+}
+
+// api is the connection the call goes on: the pinned one for a model
+// that goes by upload without affinity (so that its calls reach the
+// replica its upload reached), else the Client's own.
+func (s *sender) api() (modegridv1.ModegridServiceClient, error) {
+	if s.upload && !s.c.affinity {
+		return s.c.pinned()
+	}
+	return s.c.api, nil
 }
 
 // outgoing adds the affinity header when it applies.
@@ -322,19 +393,30 @@ func (s *sender) outgoing(ctx context.Context) context.Context {
 	if !s.c.affinity || s.hash == "" {
 		return ctx
 	}
-	return metadata.AppendToOutgoingContext(ctx, AffinityHeader, s.hash)
+	return withAffinity(ctx, s.hash)
 }
 
-// fallback reports whether err is a NOT_FOUND for a model sent by reference
-// that can be resent inline, and switches to inline if so.
+// withAffinity adds the affinity header for model hash h.
+func withAffinity(ctx context.Context, h string) context.Context {
+	return metadata.AppendToOutgoingContext(ctx, AffinityHeader, h)
+}
+
+// fallback reports whether err calls for sending the model again, and
+// switches how: a NOT_FOUND for a model sent by reference is resent once
+// (inline, or uploaded again when it cannot go inline); a model inline
+// that a server refused as over its message cap is uploaded.
 func (s *sender) fallback(err error) bool {
-	if s.resent || s.ref == "" || s.inline == nil || status.Code(err) != codes.NotFound {
-		return false
+	switch {
+	case !s.resent && s.ref != "" && s.inline != nil && status.Code(err) == codes.NotFound:
+		s.c.refs.unsent(s.ref)
+		s.ref = ""
+		s.resent = true
+		return true
+	case !s.upload && s.ref == "" && s.inline != nil && overServerCap(err):
+		s.upload = true
+		return true
 	}
-	s.c.refs.unsent(s.ref)
-	s.ref = ""
-	s.resent = true
-	return true
+	return false
 }
 
 // succeeded records the server's hash after a successful call.

@@ -5,9 +5,11 @@ import (
 	"crypto/tls"
 	"crypto/x509"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"net"
 	"os"
+	"slices"
 	"strings"
 	"time"
 
@@ -75,6 +77,9 @@ type Client struct {
 	affinity   bool
 	maxResends int // resends of a call broken after the server began to answer
 	refs       modelRefs
+	maxMsg     int // largest message sent or received
+	uploadAt   int // a request larger than this uploads its inline model first
+	pin        pinnedConn
 }
 
 // Option configures Dial.
@@ -86,6 +91,7 @@ type options struct {
 	token       string
 	affinity    bool
 	maxMsg      int
+	uploadAt    int // 0: maxMsg
 	keepalive   keepalive.ClientParameters
 	maxAttempts int
 	readyWait   time.Duration
@@ -184,6 +190,23 @@ func WithMaxMessageBytes(n int) Option {
 			return
 		}
 		o.maxMsg = n
+	}
+}
+
+// WithUploadThreshold sets the request size, in bytes, above which a
+// request's inline model is uploaded first (UploadModel) and the request
+// sent by reference (default, and at most: the largest message,
+// WithMaxMessageBytes). A server whose message cap is below the Client's
+// refuses a larger request with RESOURCE_EXHAUSTED; the Client then
+// uploads its model too, so the threshold matters only to spare that
+// first refusal.
+func WithUploadThreshold(n int) Option {
+	return func(o *options) {
+		if n <= 0 {
+			o.fail(fmt.Errorf("upload threshold must be > 0, got %d", n))
+			return
+		}
+		o.uploadAt = n
 	}
 }
 
@@ -295,12 +318,11 @@ func Dial(target string, opt ...Option) (*Client, error) {
 	if o.err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", o.err)
 	}
-	sc, err := serviceConfig(o.affinity, o.maxAttempts, !o.noHealth, !o.failFast)
+	sc, err := serviceConfig(o.affinity, o.maxAttempts, !o.noHealth, !o.failFast, false)
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
 	dopts := []grpc.DialOption{
-		grpc.WithDefaultServiceConfig(sc),
 		grpc.WithKeepaliveParams(o.keepalive),
 		grpc.WithConnectParams(grpc.ConnectParams{Backoff: o.connect, MinConnectTimeout: DefaultMinConnectTimeout}),
 		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(o.maxMsg), grpc.MaxCallSendMsgSize(o.maxMsg),
@@ -324,19 +346,31 @@ func Dial(target string, opt ...Option) (*Client, error) {
 		dopts = append(dopts, grpc.WithPerRPCCredentials(bearer{token: o.token, secure: o.tls != nil}))
 	}
 	dopts = append(dopts, o.dialOpts...)
-	conn, err := grpc.NewClient(target, dopts...)
+	conn, err := grpc.NewClient(target, append(slices.Clip(dopts), grpc.WithDefaultServiceConfig(sc))...)
 	if err != nil {
 		return nil, fmt.Errorf("modegrid client: %w", err)
 	}
-	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity}
+	c := &Client{conn: conn, api: modegridv1.NewModegridServiceClient(conn), affinity: o.affinity, maxMsg: o.maxMsg, uploadAt: o.maxMsg}
+	if o.uploadAt > 0 {
+		c.uploadAt = min(o.uploadAt, o.maxMsg)
+	}
+	c.pin = pinnedConn{target: target, dopts: dopts, maxAttempts: o.maxAttempts, health: !o.noHealth, waitForReady: !o.failFast}
 	if o.maxAttempts > 1 {
 		c.maxResends = maxResends
 	}
 	return c, nil
 }
 
-// Close closes the connection. Calls in progress fail with CANCELED.
-func (c *Client) Close() error { return c.conn.Close() }
+// Close closes the connection (and the pinned one of uploaded models, if
+// it was opened). Calls in progress fail with CANCELED.
+func (c *Client) Close() error {
+	err := c.conn.Close()
+	c.pin.once.Do(func() { c.pin.err = errors.New("modegrid client: closed") }) // no pinned connection from now on
+	if c.pin.conn != nil {
+		err = errors.Join(err, c.pin.conn.Close())
+	}
+	return err
+}
 
 // Conn returns the underlying connection, for example to call the standard
 // gRPC health service.
@@ -353,11 +387,14 @@ func (c *Client) Raw() modegridv1.ModegridServiceClient { return c.api }
 // the service, and client-side health checking. Every method is retried:
 // each is a pure computation on its request (no state changes on the
 // server but its caches), so running one twice is harmless.
-func serviceConfig(affinity bool, maxAttempts int, health, waitForReady bool) (string, error) {
+func serviceConfig(affinity bool, maxAttempts int, health, waitForReady, pinned bool) (string, error) {
 	type obj = map[string]any
 	lb := []obj{{"round_robin": obj{}}}
-	if affinity {
+	switch {
+	case affinity:
 		lb = []obj{{"ring_hash_experimental": obj{"requestHashHeader": AffinityHeader}}}
+	case pinned:
+		lb = []obj{{"pick_first": obj{"shuffleAddressList": true}}}
 	}
 	mc := obj{
 		"name":         []obj{{"service": ServiceName}},

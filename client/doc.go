@@ -76,6 +76,33 @@
 // answered), the Client resends the model inline, once, transparently. The
 // caller's request messages are never modified.
 //
+// # Big models
+//
+// A request whose inline model makes it larger than one message
+// (WithMaxMessageBytes, or WithUploadThreshold) cannot go inline: the
+// Client first sends the model through the UploadModel stream (its
+// protobuf binary in 32 KiB chunks, with its SHA-256), then the request by
+// the hash the upload answers — the hash an inline request would get. The
+// hash is remembered like any other, so the model is uploaded once; a
+// NOT_FOUND later uploads it again, once. A server whose message cap is
+// below the Client's refuses the inline request (RESOURCE_EXHAUSTED); the
+// Client then uploads the model too. UploadModel does the upload
+// explicitly, to send a model ahead or to learn its hash.
+//
+// A replica holds the models uploaded to it. Without WithModelAffinity,
+// uploads and the calls that name an uploaded model therefore go on a
+// second, pinned connection (gRPC's pick_first over the same target, the
+// addresses shuffled), which keeps them on one replica while it serves;
+// other calls stay round_robin. With affinity, the upload carries the
+// model's hash like every call once it is known: the first upload of a
+// model may land on another replica, and the first reference then gets
+// NOT_FOUND and uploads the model again to the replica its hash routes to.
+//
+// An uploaded model that is invalid is refused by the upload:
+// INVALID_ARGUMENT naming the fields as an inline request would
+// ("model.crystal.sites[2].mass_amu"), also for Check, which for an inline
+// model would answer Valid false instead.
+//
 // # Streams
 //
 // ComputeModes is a server stream. Modes collects it into one response,

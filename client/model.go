@@ -1,27 +1,57 @@
 package client
 
 import (
+	"errors"
 	"fmt"
 	"os"
+	"path/filepath"
+	"strings"
 
 	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/proto"
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
-// LoadModel reads a model file: the protobuf JSON of modegrid.v1.Crystal
-// (camelCase or snake_case keys). It checks only the JSON; the server
-// validates the physics.
+// LoadModel reads a model file, by its extension: .pb or .binpb, the
+// protobuf binary of modegrid.v1.Crystal (the bytes proto.Marshal gives);
+// anything else, the protobuf JSON of modegrid.v1.Crystal (camelCase or
+// snake_case keys). It checks only the encoding; the server validates the
+// physics. NumPy .npz supercell sets are read by the modegrid command,
+// not by this package (whose only dependencies are gRPC and protobuf).
 func LoadModel(path string) (*modegridv1.Crystal, error) {
 	b, err := os.ReadFile(path)
 	if err != nil {
 		return nil, fmt.Errorf("read model: %w", err)
 	}
-	c, err := ParseModel(b)
+	c, err := ParseModelFile(path, b)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return c, nil
+}
+
+// ParseModelFile decodes the content b of a model file named name by the
+// name's extension, as LoadModel does: .pb and .binpb are protobuf binary
+// (ParseModelBinary), .npz is refused (see LoadModel), anything else is
+// protobuf JSON (ParseModel).
+func ParseModelFile(name string, b []byte) (*modegridv1.Crystal, error) {
+	switch strings.ToLower(filepath.Ext(name)) {
+	case ".pb", ".binpb":
+		return ParseModelBinary(b)
+	case ".npz":
+		return nil, errors.New("parse model: a NumPy .npz supercell set is read by the modegrid command (--model FILE.npz), not by the Go client library")
+	}
+	return ParseModel(b)
+}
+
+// ParseModelBinary parses the protobuf binary of a modegrid.v1.Crystal.
+func ParseModelBinary(b []byte) (*modegridv1.Crystal, error) {
+	var c modegridv1.Crystal
+	if err := proto.Unmarshal(b, &c); err != nil {
+		return nil, fmt.Errorf("parse model: protobuf binary of modegrid.v1.Crystal: %w", err)
+	}
+	return &c, nil
 }
 
 // ParseModel parses the protobuf JSON of a modegrid.v1.Crystal. Unknown keys

@@ -255,6 +255,7 @@ func TestServiceConfig(t *testing.T) {
 	tests := []struct {
 		name        string
 		affinity    bool
+		pinned      bool
 		attempts    int
 		health      bool
 		failFast    bool
@@ -268,10 +269,12 @@ func TestServiceConfig(t *testing.T) {
 		{name: "affinity", affinity: true, attempts: 4, health: true,
 			contains: []string{`"ring_hash_experimental":{"requestHashHeader":"x-modegrid-model"}`}, notContains: []string{"round_robin"}},
 		{name: "no retries", attempts: 1, contains: []string{`"round_robin"`}, notContains: []string{"retryPolicy", "healthCheckConfig"}},
+		{name: "pinned", pinned: true, attempts: 4, health: true,
+			contains: []string{`"pick_first":{"shuffleAddressList":true}`, `"retryPolicy"`, `"healthCheckConfig"`}, notContains: []string{"round_robin"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health, !tc.failFast)
+			sc, err := serviceConfig(tc.affinity, tc.attempts, tc.health, !tc.failFast, tc.pinned)
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -34,6 +34,16 @@ const (
 	DefaultMaxChunkBytes  = 1 << 20 // 1 MiB of mode data per streamed message
 	DefaultShutdownGrace  = 30 * time.Second
 	DefaultStabilityMesh  = 8 // coarse grid of CheckModel, points per reciprocal direction
+
+	// DefaultMaxUploadBytes caps the payload of one UploadModel stream:
+	// 256 MiB, far above the largest supercell set the default caps
+	// accept (512 atoms, N×N blocks: 18.9 MB).
+	DefaultMaxUploadBytes = 256 << 20
+	// DefaultMaxUploads is the number of uploads received at once.
+	DefaultMaxUploads = 4
+	// DefaultUploadIdleTimeout is the longest an upload may go without a
+	// message before the server abandons it.
+	DefaultUploadIdleTimeout = 30 * time.Second
 )
 
 // Keepalive policy published for clients. A client may ping at most every
@@ -100,6 +110,16 @@ type Config struct {
 	// size a client asks for.
 	ChunkPoints   int
 	MaxChunkBytes int
+
+	// MaxUploadBytes caps the payload of one UploadModel stream, bytes
+	// (0 → 256 MiB). MaxUploads is how many uploads are received at once
+	// (0 → 4; more are refused RESOURCE_EXHAUSTED at once), and
+	// UploadIdleTimeout the longest an upload may go without a message
+	// (0 → 30 s). Each upload also reserves its estimated memory from
+	// MemoryBudget before reading its payload (upload.go).
+	MaxUploadBytes    int64
+	MaxUploads        int
+	UploadIdleTimeout time.Duration
 
 	// MemoryBudget is the memory all computations together may take,
 	// bytes, by their estimates (0 → derived from the container's memory
@@ -183,6 +203,13 @@ func (c Config) withDefaults() Config {
 	setInt(&c.ChunkPoints, DefaultChunkPoints)
 	setInt(&c.MaxChunkBytes, min(DefaultMaxChunkBytes, c.MaxMsgBytes/4))
 	setInt(&c.StabilityMesh, DefaultStabilityMesh)
+	if c.MaxUploadBytes == 0 {
+		c.MaxUploadBytes = DefaultMaxUploadBytes
+	}
+	setInt(&c.MaxUploads, DefaultMaxUploads)
+	if c.UploadIdleTimeout == 0 {
+		c.UploadIdleTimeout = DefaultUploadIdleTimeout
+	}
 	if c.MaxComputeSeconds == 0 {
 		c.MaxComputeSeconds = DefaultMaxComputeSeconds
 	}
@@ -245,7 +272,7 @@ func (c Config) validateLimits(bad complaint) {
 		{"max-concurrent", c.MaxConcurrent}, {"max-qpoints", c.MaxQPoints}, {"max-sites", c.MaxSites},
 		{"max-temps", c.MaxTemps}, {"max-path-points", c.MaxPathPoints}, {"max-path-corners", c.MaxPathCorners},
 		{"max-dos-bins", c.MaxDOSBins}, {"max-msg-bytes", c.MaxMsgBytes}, {"chunk-points", c.ChunkPoints},
-		{"max-chunk-bytes", c.MaxChunkBytes}, {"stability-mesh", c.StabilityMesh},
+		{"max-chunk-bytes", c.MaxChunkBytes}, {"stability-mesh", c.StabilityMesh}, {"max-uploads", c.MaxUploads},
 	}
 	for _, p := range positive {
 		if p.v < 0 {
@@ -257,6 +284,9 @@ func (c Config) validateLimits(bad complaint) {
 	}
 	if c.StabilityMesh > 64 {
 		bad("stability-mesh", "must be ≤ 64, got %d", c.StabilityMesh)
+	}
+	if c.MaxUploadBytes < 0 {
+		bad("max-upload-bytes", "must be > 0, got %d", c.MaxUploadBytes)
 	}
 	if c.MemoryBudget < 0 {
 		bad("memory-budget", "must be ≥ 0 (0: derived from the memory limit), got %d", c.MemoryBudget)
@@ -270,6 +300,9 @@ func (c Config) validateDurations(bad complaint) {
 	}
 	if c.QueueTimeout < 0 {
 		bad("queue-timeout", "must be > 0, got %v", c.QueueTimeout)
+	}
+	if c.UploadIdleTimeout < 0 {
+		bad("upload-idle-timeout", "must be > 0, got %v", c.UploadIdleTimeout)
 	}
 	if c.DrainDelay < 0 {
 		bad("drain-delay", "must be ≥ 0, got %v", c.DrainDelay)

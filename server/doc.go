@@ -24,6 +24,20 @@ package server
 // replica sharing the Backend. A reference the server does not hold (never
 // sent, or evicted) is NOT_FOUND; the client resends the model inline.
 //
+// A model too large for one message (Config.MaxMsgBytes) comes through
+// UploadModel (upload.go), a client stream of a header (declared size,
+// optional SHA-256, the model's options) and chunks of the model's
+// protobuf binary. The upload is admitted on its header before any chunk
+// is read — an upload slot (Config.MaxUploads), the declared size against
+// Config.MaxUploadBytes, its estimated memory (4× the payload) against the
+// memory budget, then reserved from it — read while counting (a stream
+// longer or shorter than declared, or whose digest differs, is refused;
+// one silent for Config.UploadIdleTimeout is abandoned), and compiled
+// exactly as an inline model (the same pre-compile bound, validation,
+// fold and cache entries). The answer is the model hash an inline request
+// gets; the model is then referable by it like any other, and like any
+// other may be evicted (NOT_FOUND: upload it again).
+//
 // Every response carries the model hash and the canonical parameters (see
 // params.go) that produced it.
 //
@@ -86,10 +100,12 @@ package server
 //	INVALID_ARGUMENT     bad model or request, every bad field in BadRequest; request over a cap;
 //	                     request bytes that do not decode as the message (see codec.go: grpc-go
 //	                     alone answers those INTERNAL, before any interceptor)
-//	NOT_FOUND            model_hash not held by this server (resend the model inline)
+//	NOT_FOUND            model_hash not held by this server (resend the model inline, or upload it)
 //	FAILED_PRECONDITION  thermal properties of a model with imaginary modes without allow_unstable
-//	RESOURCE_EXHAUSTED   computation queue full or wait timed out; memory budget busy past the wait; message over max-msg-bytes
-//	DEADLINE_EXCEEDED    the client's deadline passed (the computation was stopped)
+//	RESOURCE_EXHAUSTED   computation queue full or wait timed out; memory budget busy past the wait; message over max-msg-bytes;
+//	                     uploads over max-uploads; an uploaded model larger than the model cache (cache-bytes)
+//	DEADLINE_EXCEEDED    the client's deadline passed (the computation was stopped); an upload silent for
+//	                     upload-idle-timeout
 //	CANCELED             the client cancelled (the computation was stopped)
 //	UNAUTHENTICATED      bearer tokens configured and none or a wrong one sent
 //	UNAVAILABLE          the server is shutting down
@@ -132,8 +148,12 @@ package server
 // evictions,refused,flight_joins,backend_errors,integrity_failures}_total, modegrid_cache_
 // {bytes,entries,max_bytes}, modegrid_panics_recovered_total,
 // modegrid_auth_failures_total, modegrid_requests_undecodable_total{grpc_service,grpc_method},
-// modegrid_build_info, and the Go and process
-// collectors. Labels are method, code, kind, level, tier and reason only.
+// modegrid_build_info, modegrid_memory_budget{,_in_use}_bytes,
+// modegrid_admission_refused_total{reason}, modegrid_uploads_total{result}
+// (ok, too_large, busy, invalid_stream, invalid_model, idle_timeout,
+// canceled, failed), modegrid_upload_received_bytes_total,
+// modegrid_uploads_in_flight, and the Go and process collectors. Labels
+// are method, code, kind, level, tier, reason and result only.
 //
 // # Logs
 //

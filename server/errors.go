@@ -47,10 +47,10 @@ func invalidArgument(prefix string, vs []physics.Violation) error {
 // errModelNotFound is the status of a reference to a model this server
 // does not hold (never sent, or evicted): the client resends it inline.
 func errModelNotFound(hash string) error {
-	st, err := status.New(codes.NotFound, fmt.Sprintf("model %s is not known to this server (never sent or evicted): send it inline", hash)).
-		WithDetails(&errdetails.ResourceInfo{ResourceType: "modegrid.v1.Crystal", ResourceName: hash, Description: "resend the model inline in ModelSource.crystal"})
+	st, err := status.New(codes.NotFound, fmt.Sprintf("model %s is not known to this server (never sent or evicted): send it inline, or upload it (UploadModel) when it is too large for one message", hash)).
+		WithDetails(&errdetails.ResourceInfo{ResourceType: "modegrid.v1.Crystal", ResourceName: hash, Description: "resend the model inline in ModelSource.crystal, or through UploadModel"})
 	if err != nil {
-		return status.Error(codes.NotFound, "model "+hash+" is not known to this server: send it inline")
+		return status.Error(codes.NotFound, "model "+hash+" is not known to this server: send it inline or upload it")
 	}
 	return st.Err()
 }

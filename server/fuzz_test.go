@@ -2,7 +2,9 @@ package server
 
 // Fuzz targets: the model JSON decoder with validation and
 // compilation, and every RPC handler fed arbitrary bytes as its request
-// message through a real server on loopback TCP.
+// message through a real server on loopback TCP (the upload stream: as its
+// payload, sent in chunks under a header chosen by the input's first byte,
+// fuzz_upload_test.go).
 //
 // Invariants checked on every input: no panic (a panic in a handler is
 // recovered as INTERNAL, which fails the target), no hang (each input has
@@ -683,6 +685,7 @@ func corpusTargets(tb testing.TB) map[string][][]byte {
 			out[target] = append(out[target], b)
 		}
 	}
+	out["FuzzUploadModel"] = uploadSeeds(tb)
 	return out
 }
 

@@ -90,6 +90,9 @@ func TestMetricsEndpoint(t *testing.T) {
 		"process_start_time_seconds":              dto.MetricType_GAUGE,
 		"go_memstats_heap_alloc_bytes":            dto.MetricType_GAUGE,
 		"promhttp_metric_handler_errors_total":    dto.MetricType_COUNTER,
+		"modegrid_uploads_total":                  dto.MetricType_COUNTER,
+		"modegrid_upload_received_bytes_total":    dto.MetricType_COUNTER,
+		"modegrid_uploads_in_flight":              dto.MetricType_GAUGE,
 	}
 	for name, typ := range want {
 		f, ok := fams[name]
@@ -121,7 +124,8 @@ func TestMetricsEndpoint(t *testing.T) {
 	}
 	// Low-cardinality labels only.
 	allowed := map[string]bool{"grpc_method": true, "grpc_service": true, "grpc_type": true, "grpc_code": true,
-		"kind": true, "level": true, "reason": true, "le": true, "quantile": true, "version": true, "goversion": true, "cause": true, "tier": true}
+		"kind": true, "level": true, "reason": true, "le": true, "quantile": true, "version": true, "goversion": true, "cause": true, "tier": true,
+		"result": true} // result: the eight outcomes of an upload (upload.go)
 	for name, f := range fams {
 		if !strings.HasPrefix(name, "modegrid_") && !strings.HasPrefix(name, "grpc_") {
 			continue

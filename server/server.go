@@ -353,5 +353,6 @@ func newService(cfg Config, reg prometheus.Registerer) *Service {
 	s.met = newMetrics(reg, s.gate, s.cache, cfg.Backend, cfg.Version)
 	s.reductions = mesh.NewReductionCache(cfg.reductionBytes())
 	s.budget = newBudget(cfg, reg)
+	s.uploads = newUploads(cfg, reg)
 	return s
 }

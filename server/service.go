@@ -34,6 +34,8 @@ type Service struct {
 	// kept for reuse, whose bound is taken out of the budget.
 	budget     *budget
 	reductions *mesh.ReductionCache
+	// uploads bounds and counts the UploadModel streams (upload.go).
+	uploads *uploads
 
 	// backendLog and integrityLog rate-limit the log lines about shared
 	// cache failures and refused cache entries (cachelog.go).
@@ -187,8 +189,7 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 		vs.Add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
 		return nil, nil
 	}
-	if tol := src.GetSymmetryToleranceA(); tol != 0 && !(tol >= physics.MinSymTolA && tol <= physics.MaxSymTolA) {
-		vs.Add("model.symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", physics.DefaultSymTolA, physics.MinSymTolA, physics.MaxSymTolA, tol)
+	if !checkSymTol(vs, src.GetSymmetryToleranceA()) {
 		return nil, nil
 	}
 	norm, raw, key, err := inlineKey(src)
@@ -230,6 +231,16 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	}
 	noteModel(ctx, e.hash)
 	return e, nil
+}
+
+// checkSymTol reports whether tol is an allowed symmetry tolerance,
+// adding a violation of model.symmetry_tolerance_a when it is not.
+func checkSymTol(vs *violations, tol float64) bool {
+	if tol != 0 && !(tol >= physics.MinSymTolA && tol <= physics.MaxSymTolA) {
+		vs.Add("model.symmetry_tolerance_a", "must be 0 (the default, %g Å) or between %g and %g Å, got %v", physics.DefaultSymTolA, physics.MinSymTolA, physics.MaxSymTolA, tol)
+		return false
+	}
+	return true
 }
 
 // inlineKey is the normalised source of an inline model, its

@@ -13,7 +13,6 @@ import (
 
 	"github.com/materials-lab/modegrid/client"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
-	"google.golang.org/protobuf/proto"
 )
 
 // env is what a command writes to.
@@ -172,21 +171,15 @@ func (m *modelFlag) load() (*modegridv1.Crystal, error) {
 }
 
 // parseModelFile decodes a model file by its extension: .npz is a NumPy
-// supercell force-constant set, .pb and .binpb the protobuf binary of a
-// Crystal (the same message as the JSON file, so the two convert one to
-// one), anything else protobuf JSON.
+// supercell force-constant set, read here; the rest as the client library
+// reads them (client.ParseModelFile): .pb and .binpb the protobuf binary
+// of a Crystal (the same message as the JSON file, so the two convert one
+// to one), anything else protobuf JSON.
 func parseModelFile(path string, b []byte) (*modegridv1.Crystal, error) {
-	switch strings.ToLower(filepath.Ext(path)) {
-	case ".npz":
+	if strings.EqualFold(filepath.Ext(path), ".npz") {
 		return loadNPZ(path, b)
-	case ".pb", ".binpb":
-		var c modegridv1.Crystal
-		if err := proto.Unmarshal(b, &c); err != nil {
-			return nil, fmt.Errorf("protobuf binary of modegrid.v1.Crystal: %s", jsonProblem(err))
-		}
-		return &c, nil
 	}
-	c, err := client.ParseModel(b)
+	c, err := client.ParseModelFile(path, b)
 	if err != nil {
 		return nil, errors.New(jsonProblem(err))
 	}

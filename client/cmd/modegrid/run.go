@@ -56,6 +56,7 @@ var commands = []struct {
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
+	{"upload", "send a model to --server (any size) and print the hash other calls can name it by", cmdUpload},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -67,7 +68,8 @@ func usageText() string {
 	}
 	b.WriteString(`
 common flags:
-  -m, --model FILE   model file (protobuf JSON of modegrid.v1.Crystal; see README)
+  -m, --model FILE   model file: .json, .pb/.binpb or .npz (see README); a model too
+                     large for one message is uploaded first, then named by hash
   --server ADDR      modegridd address; absent: an embedded server in this process
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
@@ -99,7 +101,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, upload, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

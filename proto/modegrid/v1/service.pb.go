@@ -21,6 +21,56 @@ const (
 	_ = protoimpl.EnforceVersion(protoimpl.MaxVersion - 20)
 )
 
+// ModelEncoding is how the payload of an upload encodes its model.
+type ModelEncoding int32
+
+const (
+	// Unspecified means protobuf binary.
+	ModelEncoding_MODEL_ENCODING_UNSPECIFIED ModelEncoding = 0
+	// The protobuf binary encoding of a modegrid.v1.Crystal (the same bytes
+	// as a .pb model file).
+	ModelEncoding_MODEL_ENCODING_PROTOBUF_BINARY ModelEncoding = 1
+)
+
+// Enum value maps for ModelEncoding.
+var (
+	ModelEncoding_name = map[int32]string{
+		0: "MODEL_ENCODING_UNSPECIFIED",
+		1: "MODEL_ENCODING_PROTOBUF_BINARY",
+	}
+	ModelEncoding_value = map[string]int32{
+		"MODEL_ENCODING_UNSPECIFIED":     0,
+		"MODEL_ENCODING_PROTOBUF_BINARY": 1,
+	}
+)
+
+func (x ModelEncoding) Enum() *ModelEncoding {
+	p := new(ModelEncoding)
+	*p = x
+	return p
+}
+
+func (x ModelEncoding) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (ModelEncoding) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[0].Descriptor()
+}
+
+func (ModelEncoding) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[0]
+}
+
+func (x ModelEncoding) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use ModelEncoding.Descriptor instead.
+func (ModelEncoding) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{0}
+}
+
 // FrequencyUnit selects the unit of every frequency in a response.
 type FrequencyUnit int32
 
@@ -66,11 +116,11 @@ func (x FrequencyUnit) String() string {
 }
 
 func (FrequencyUnit) Descriptor() protoreflect.EnumDescriptor {
-	return file_modegrid_v1_service_proto_enumTypes[0].Descriptor()
+	return file_modegrid_v1_service_proto_enumTypes[1].Descriptor()
 }
 
 func (FrequencyUnit) Type() protoreflect.EnumType {
-	return &file_modegrid_v1_service_proto_enumTypes[0]
+	return &file_modegrid_v1_service_proto_enumTypes[1]
 }
 
 func (x FrequencyUnit) Number() protoreflect.EnumNumber {
@@ -79,7 +129,7 @@ func (x FrequencyUnit) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use FrequencyUnit.Descriptor instead.
 func (FrequencyUnit) EnumDescriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{0}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{1}
 }
 
 // DosMethod selects how the density of states is computed.
@@ -123,11 +173,11 @@ func (x DosMethod) String() string {
 }
 
 func (DosMethod) Descriptor() protoreflect.EnumDescriptor {
-	return file_modegrid_v1_service_proto_enumTypes[1].Descriptor()
+	return file_modegrid_v1_service_proto_enumTypes[2].Descriptor()
 }
 
 func (DosMethod) Type() protoreflect.EnumType {
-	return &file_modegrid_v1_service_proto_enumTypes[1]
+	return &file_modegrid_v1_service_proto_enumTypes[2]
 }
 
 func (x DosMethod) Number() protoreflect.EnumNumber {
@@ -136,7 +186,7 @@ func (x DosMethod) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use DosMethod.Descriptor instead.
 func (DosMethod) EnumDescriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{1}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{2}
 }
 
 // ImaginaryModes says what the DOS does with imaginary modes.
@@ -176,11 +226,11 @@ func (x ImaginaryModes) String() string {
 }
 
 func (ImaginaryModes) Descriptor() protoreflect.EnumDescriptor {
-	return file_modegrid_v1_service_proto_enumTypes[2].Descriptor()
+	return file_modegrid_v1_service_proto_enumTypes[3].Descriptor()
 }
 
 func (ImaginaryModes) Type() protoreflect.EnumType {
-	return &file_modegrid_v1_service_proto_enumTypes[2]
+	return &file_modegrid_v1_service_proto_enumTypes[3]
 }
 
 func (x ImaginaryModes) Number() protoreflect.EnumNumber {
@@ -189,7 +239,7 @@ func (x ImaginaryModes) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use ImaginaryModes.Descriptor instead.
 func (ImaginaryModes) EnumDescriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{2}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{3}
 }
 
 // ThermalRoute selects how thermal sums are taken.
@@ -229,11 +279,11 @@ func (x ThermalRoute) String() string {
 }
 
 func (ThermalRoute) Descriptor() protoreflect.EnumDescriptor {
-	return file_modegrid_v1_service_proto_enumTypes[3].Descriptor()
+	return file_modegrid_v1_service_proto_enumTypes[4].Descriptor()
 }
 
 func (ThermalRoute) Type() protoreflect.EnumType {
-	return &file_modegrid_v1_service_proto_enumTypes[3]
+	return &file_modegrid_v1_service_proto_enumTypes[4]
 }
 
 func (x ThermalRoute) Number() protoreflect.EnumNumber {
@@ -242,7 +292,7 @@ func (x ThermalRoute) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use ThermalRoute.Descriptor instead.
 func (ThermalRoute) EnumDescriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{3}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{4}
 }
 
 // DebyeTemperatureStatus says whether ThermalPoint.debye_temperature_k
@@ -299,11 +349,11 @@ func (x DebyeTemperatureStatus) String() string {
 }
 
 func (DebyeTemperatureStatus) Descriptor() protoreflect.EnumDescriptor {
-	return file_modegrid_v1_service_proto_enumTypes[4].Descriptor()
+	return file_modegrid_v1_service_proto_enumTypes[5].Descriptor()
 }
 
 func (DebyeTemperatureStatus) Type() protoreflect.EnumType {
-	return &file_modegrid_v1_service_proto_enumTypes[4]
+	return &file_modegrid_v1_service_proto_enumTypes[5]
 }
 
 func (x DebyeTemperatureStatus) Number() protoreflect.EnumNumber {
@@ -312,7 +362,7 @@ func (x DebyeTemperatureStatus) Number() protoreflect.EnumNumber {
 
 // Deprecated: Use DebyeTemperatureStatus.Descriptor instead.
 func (DebyeTemperatureStatus) EnumDescriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{4}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{5}
 }
 
 // ModelSource is a model sent inline or a reference to a model the server has
@@ -444,6 +494,277 @@ func (*ModelSource_Crystal) isModelSource_Source() {}
 
 func (*ModelSource_ModelHash) isModelSource_Source() {}
 
+// UploadModelHeader is the first message of an upload: what follows and
+// the options the model is compiled with.
+type UploadModelHeader struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Total size of the payload, bytes (> 0, at most this server's cap
+	// max-upload-bytes). The server admits the upload by this figure before
+	// reading any chunk, and refuses a stream that carries more or fewer
+	// bytes.
+	SizeBytes uint64 `protobuf:"varint,1,opt,name=size_bytes,json=sizeBytes,proto3" json:"size_bytes,omitempty"`
+	// Encoding of the payload.
+	Encoding ModelEncoding `protobuf:"varint,2,opt,name=encoding,proto3,enum=modegrid.v1.ModelEncoding" json:"encoding,omitempty"`
+	// Optional SHA-256 digest of the whole payload, 32 bytes; when set the
+	// server refuses a payload whose digest differs.
+	Sha256 []byte `protobuf:"bytes,3,opt,name=sha256,proto3" json:"sha256,omitempty"`
+	// The options of the model, as in an inline request: enforce_sum_rule,
+	// symmetry_tolerance_a and symmetrize. Its source (crystal, model_hash)
+	// stays empty: the model comes in the chunks.
+	Model         *ModelSource `protobuf:"bytes,4,opt,name=model,proto3" json:"model,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UploadModelHeader) Reset() {
+	*x = UploadModelHeader{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[1]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UploadModelHeader) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UploadModelHeader) ProtoMessage() {}
+
+func (x *UploadModelHeader) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[1]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UploadModelHeader.ProtoReflect.Descriptor instead.
+func (*UploadModelHeader) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{1}
+}
+
+func (x *UploadModelHeader) GetSizeBytes() uint64 {
+	if x != nil {
+		return x.SizeBytes
+	}
+	return 0
+}
+
+func (x *UploadModelHeader) GetEncoding() ModelEncoding {
+	if x != nil {
+		return x.Encoding
+	}
+	return ModelEncoding_MODEL_ENCODING_UNSPECIFIED
+}
+
+func (x *UploadModelHeader) GetSha256() []byte {
+	if x != nil {
+		return x.Sha256
+	}
+	return nil
+}
+
+func (x *UploadModelHeader) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+// UploadModelRequest is one message of an upload stream: the header first,
+// then chunks of the payload in order, each within the message cap (the
+// Go client sends 32 KiB).
+//
+// Violations are reported as in an inline request, so that a client
+// uploading on a caller's behalf can pass them on unchanged: those of the
+// model under "model.crystal." (model.crystal.sites[2].mass_amu; a payload
+// that does not decode: model.crystal) and of its options under "model."
+// (model.symmetry_tolerance_a); those of the stream itself under "header."
+// (header.size_bytes for a stream longer or shorter than declared,
+// header.sha256 for a digest that differs) or "chunk".
+type UploadModelRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The part this message carries.
+	//
+	// Types that are valid to be assigned to Part:
+	//
+	//	*UploadModelRequest_Header
+	//	*UploadModelRequest_Chunk
+	Part          isUploadModelRequest_Part `protobuf_oneof:"part"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UploadModelRequest) Reset() {
+	*x = UploadModelRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[2]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UploadModelRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UploadModelRequest) ProtoMessage() {}
+
+func (x *UploadModelRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[2]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UploadModelRequest.ProtoReflect.Descriptor instead.
+func (*UploadModelRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{2}
+}
+
+func (x *UploadModelRequest) GetPart() isUploadModelRequest_Part {
+	if x != nil {
+		return x.Part
+	}
+	return nil
+}
+
+func (x *UploadModelRequest) GetHeader() *UploadModelHeader {
+	if x != nil {
+		if x, ok := x.Part.(*UploadModelRequest_Header); ok {
+			return x.Header
+		}
+	}
+	return nil
+}
+
+func (x *UploadModelRequest) GetChunk() []byte {
+	if x != nil {
+		if x, ok := x.Part.(*UploadModelRequest_Chunk); ok {
+			return x.Chunk
+		}
+	}
+	return nil
+}
+
+type isUploadModelRequest_Part interface {
+	isUploadModelRequest_Part()
+}
+
+type UploadModelRequest_Header struct {
+	// The header: the first message, and only that one.
+	Header *UploadModelHeader `protobuf:"bytes,1,opt,name=header,proto3,oneof"`
+}
+
+type UploadModelRequest_Chunk struct {
+	// The next bytes of the payload.
+	Chunk []byte `protobuf:"bytes,2,opt,name=chunk,proto3,oneof"`
+}
+
+func (*UploadModelRequest_Header) isUploadModelRequest_Part() {}
+
+func (*UploadModelRequest_Chunk) isUploadModelRequest_Part() {}
+
+// UploadModelResponse says under which hash the server holds the model.
+type UploadModelResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Canonical SHA-256 model hash, lower-case hex: use it as
+	// ModelSource.model_hash.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Payload bytes received.
+	ReceivedBytes uint64 `protobuf:"varint,2,opt,name=received_bytes,json=receivedBytes,proto3" json:"received_bytes,omitempty"`
+	// Sites of the compiled model.
+	Sites uint32 `protobuf:"varint,3,opt,name=sites,proto3" json:"sites,omitempty"`
+	// Pair interactions of the compiled model (after expanding shells and
+	// folding a supercell set).
+	Interactions uint32 `protobuf:"varint,4,opt,name=interactions,proto3" json:"interactions,omitempty"`
+	// Bytes the held model is charged in the server's model cache.
+	StoredBytes uint64 `protobuf:"varint,5,opt,name=stored_bytes,json=storedBytes,proto3" json:"stored_bytes,omitempty"`
+	// How the model's supercell force-constant set was folded (unset when
+	// it has none), as CheckModel reports it.
+	SupercellFold *SupercellFold `protobuf:"bytes,6,opt,name=supercell_fold,json=supercellFold,proto3" json:"supercell_fold,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UploadModelResponse) Reset() {
+	*x = UploadModelResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[3]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UploadModelResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UploadModelResponse) ProtoMessage() {}
+
+func (x *UploadModelResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[3]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UploadModelResponse.ProtoReflect.Descriptor instead.
+func (*UploadModelResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{3}
+}
+
+func (x *UploadModelResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *UploadModelResponse) GetReceivedBytes() uint64 {
+	if x != nil {
+		return x.ReceivedBytes
+	}
+	return 0
+}
+
+func (x *UploadModelResponse) GetSites() uint32 {
+	if x != nil {
+		return x.Sites
+	}
+	return 0
+}
+
+func (x *UploadModelResponse) GetInteractions() uint32 {
+	if x != nil {
+		return x.Interactions
+	}
+	return 0
+}
+
+func (x *UploadModelResponse) GetStoredBytes() uint64 {
+	if x != nil {
+		return x.StoredBytes
+	}
+	return 0
+}
+
+func (x *UploadModelResponse) GetSupercellFold() *SupercellFold {
+	if x != nil {
+		return x.SupercellFold
+	}
+	return nil
+}
+
 // QPoint is a wavevector in fractional coordinates of the reciprocal lattice
 // vectors (q = q1 b1 + q2 b2 + q3 b3, bi·aj = 2π δij). Components past the
 // crystal's dimensionality must be 0. Every component must be finite with
@@ -463,7 +784,7 @@ type QPoint struct {
 
 func (x *QPoint) Reset() {
 	*x = QPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[1]
+	mi := &file_modegrid_v1_service_proto_msgTypes[4]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -475,7 +796,7 @@ func (x *QPoint) String() string {
 func (*QPoint) ProtoMessage() {}
 
 func (x *QPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[1]
+	mi := &file_modegrid_v1_service_proto_msgTypes[4]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -488,7 +809,7 @@ func (x *QPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QPoint.ProtoReflect.Descriptor instead.
 func (*QPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{1}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{4}
 }
 
 func (x *QPoint) GetQ1() float64 {
@@ -523,7 +844,7 @@ type QPointList struct {
 
 func (x *QPointList) Reset() {
 	*x = QPointList{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[2]
+	mi := &file_modegrid_v1_service_proto_msgTypes[5]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -535,7 +856,7 @@ func (x *QPointList) String() string {
 func (*QPointList) ProtoMessage() {}
 
 func (x *QPointList) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[2]
+	mi := &file_modegrid_v1_service_proto_msgTypes[5]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -548,7 +869,7 @@ func (x *QPointList) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QPointList.ProtoReflect.Descriptor instead.
 func (*QPointList) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{2}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{5}
 }
 
 func (x *QPointList) GetPoints() []*QPoint {
@@ -572,7 +893,7 @@ type MonkhorstPackGrid struct {
 
 func (x *MonkhorstPackGrid) Reset() {
 	*x = MonkhorstPackGrid{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[3]
+	mi := &file_modegrid_v1_service_proto_msgTypes[6]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -584,7 +905,7 @@ func (x *MonkhorstPackGrid) String() string {
 func (*MonkhorstPackGrid) ProtoMessage() {}
 
 func (x *MonkhorstPackGrid) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[3]
+	mi := &file_modegrid_v1_service_proto_msgTypes[6]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -597,7 +918,7 @@ func (x *MonkhorstPackGrid) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use MonkhorstPackGrid.ProtoReflect.Descriptor instead.
 func (*MonkhorstPackGrid) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{3}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{6}
 }
 
 func (x *MonkhorstPackGrid) GetMesh() []uint32 {
@@ -627,7 +948,7 @@ type FiniteCrystal struct {
 
 func (x *FiniteCrystal) Reset() {
 	*x = FiniteCrystal{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[4]
+	mi := &file_modegrid_v1_service_proto_msgTypes[7]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -639,7 +960,7 @@ func (x *FiniteCrystal) String() string {
 func (*FiniteCrystal) ProtoMessage() {}
 
 func (x *FiniteCrystal) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[4]
+	mi := &file_modegrid_v1_service_proto_msgTypes[7]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -652,7 +973,7 @@ func (x *FiniteCrystal) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FiniteCrystal.ProtoReflect.Descriptor instead.
 func (*FiniteCrystal) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{4}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{7}
 }
 
 func (x *FiniteCrystal) GetCells() []uint32 {
@@ -679,7 +1000,7 @@ type QPointSet struct {
 
 func (x *QPointSet) Reset() {
 	*x = QPointSet{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[5]
+	mi := &file_modegrid_v1_service_proto_msgTypes[8]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -691,7 +1012,7 @@ func (x *QPointSet) String() string {
 func (*QPointSet) ProtoMessage() {}
 
 func (x *QPointSet) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[5]
+	mi := &file_modegrid_v1_service_proto_msgTypes[8]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -704,7 +1025,7 @@ func (x *QPointSet) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QPointSet.ProtoReflect.Descriptor instead.
 func (*QPointSet) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{5}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{8}
 }
 
 func (x *QPointSet) GetSet() isQPointSet_Set {
@@ -787,7 +1108,7 @@ type ComputeModesRequest struct {
 
 func (x *ComputeModesRequest) Reset() {
 	*x = ComputeModesRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[6]
+	mi := &file_modegrid_v1_service_proto_msgTypes[9]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -799,7 +1120,7 @@ func (x *ComputeModesRequest) String() string {
 func (*ComputeModesRequest) ProtoMessage() {}
 
 func (x *ComputeModesRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[6]
+	mi := &file_modegrid_v1_service_proto_msgTypes[9]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -812,7 +1133,7 @@ func (x *ComputeModesRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeModesRequest.ProtoReflect.Descriptor instead.
 func (*ComputeModesRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{6}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{9}
 }
 
 func (x *ComputeModesRequest) GetModel() *ModelSource {
@@ -884,7 +1205,7 @@ type Modes struct {
 
 func (x *Modes) Reset() {
 	*x = Modes{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[7]
+	mi := &file_modegrid_v1_service_proto_msgTypes[10]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -896,7 +1217,7 @@ func (x *Modes) String() string {
 func (*Modes) ProtoMessage() {}
 
 func (x *Modes) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[7]
+	mi := &file_modegrid_v1_service_proto_msgTypes[10]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -909,7 +1230,7 @@ func (x *Modes) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use Modes.ProtoReflect.Descriptor instead.
 func (*Modes) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{7}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{10}
 }
 
 func (x *Modes) GetQ() *QPoint {
@@ -975,7 +1296,7 @@ type ComputeModesResponse struct {
 
 func (x *ComputeModesResponse) Reset() {
 	*x = ComputeModesResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[8]
+	mi := &file_modegrid_v1_service_proto_msgTypes[11]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -987,7 +1308,7 @@ func (x *ComputeModesResponse) String() string {
 func (*ComputeModesResponse) ProtoMessage() {}
 
 func (x *ComputeModesResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[8]
+	mi := &file_modegrid_v1_service_proto_msgTypes[11]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1000,7 +1321,7 @@ func (x *ComputeModesResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeModesResponse.ProtoReflect.Descriptor instead.
 func (*ComputeModesResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{8}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{11}
 }
 
 func (x *ComputeModesResponse) GetModelHash() string {
@@ -1061,7 +1382,7 @@ type PathPoint struct {
 
 func (x *PathPoint) Reset() {
 	*x = PathPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[9]
+	mi := &file_modegrid_v1_service_proto_msgTypes[12]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1073,7 +1394,7 @@ func (x *PathPoint) String() string {
 func (*PathPoint) ProtoMessage() {}
 
 func (x *PathPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[9]
+	mi := &file_modegrid_v1_service_proto_msgTypes[12]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1086,7 +1407,7 @@ func (x *PathPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use PathPoint.ProtoReflect.Descriptor instead.
 func (*PathPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{9}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{12}
 }
 
 func (x *PathPoint) GetLabel() string {
@@ -1143,7 +1464,7 @@ type ComputeDispersionRequest struct {
 
 func (x *ComputeDispersionRequest) Reset() {
 	*x = ComputeDispersionRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[10]
+	mi := &file_modegrid_v1_service_proto_msgTypes[13]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1155,7 +1476,7 @@ func (x *ComputeDispersionRequest) String() string {
 func (*ComputeDispersionRequest) ProtoMessage() {}
 
 func (x *ComputeDispersionRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[10]
+	mi := &file_modegrid_v1_service_proto_msgTypes[13]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1168,7 +1489,7 @@ func (x *ComputeDispersionRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeDispersionRequest.ProtoReflect.Descriptor instead.
 func (*ComputeDispersionRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{10}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{13}
 }
 
 func (x *ComputeDispersionRequest) GetModel() *ModelSource {
@@ -1255,7 +1576,7 @@ type DispersionSample struct {
 
 func (x *DispersionSample) Reset() {
 	*x = DispersionSample{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[11]
+	mi := &file_modegrid_v1_service_proto_msgTypes[14]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1267,7 +1588,7 @@ func (x *DispersionSample) String() string {
 func (*DispersionSample) ProtoMessage() {}
 
 func (x *DispersionSample) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[11]
+	mi := &file_modegrid_v1_service_proto_msgTypes[14]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1280,7 +1601,7 @@ func (x *DispersionSample) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use DispersionSample.ProtoReflect.Descriptor instead.
 func (*DispersionSample) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{11}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{14}
 }
 
 func (x *DispersionSample) GetDistanceInvA() float64 {
@@ -1335,7 +1656,7 @@ type ComputeDispersionResponse struct {
 
 func (x *ComputeDispersionResponse) Reset() {
 	*x = ComputeDispersionResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[12]
+	mi := &file_modegrid_v1_service_proto_msgTypes[15]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1347,7 +1668,7 @@ func (x *ComputeDispersionResponse) String() string {
 func (*ComputeDispersionResponse) ProtoMessage() {}
 
 func (x *ComputeDispersionResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[12]
+	mi := &file_modegrid_v1_service_proto_msgTypes[15]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1360,7 +1681,7 @@ func (x *ComputeDispersionResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeDispersionResponse.ProtoReflect.Descriptor instead.
 func (*ComputeDispersionResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{12}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{15}
 }
 
 func (x *ComputeDispersionResponse) GetModelHash() string {
@@ -1421,7 +1742,7 @@ type ComputeDosRequest struct {
 
 func (x *ComputeDosRequest) Reset() {
 	*x = ComputeDosRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[13]
+	mi := &file_modegrid_v1_service_proto_msgTypes[16]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1433,7 +1754,7 @@ func (x *ComputeDosRequest) String() string {
 func (*ComputeDosRequest) ProtoMessage() {}
 
 func (x *ComputeDosRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[13]
+	mi := &file_modegrid_v1_service_proto_msgTypes[16]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1446,7 +1767,7 @@ func (x *ComputeDosRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeDosRequest.ProtoReflect.Descriptor instead.
 func (*ComputeDosRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{13}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{16}
 }
 
 func (x *ComputeDosRequest) GetModel() *ModelSource {
@@ -1534,7 +1855,7 @@ type ProjectedDos struct {
 
 func (x *ProjectedDos) Reset() {
 	*x = ProjectedDos{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[14]
+	mi := &file_modegrid_v1_service_proto_msgTypes[17]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1546,7 +1867,7 @@ func (x *ProjectedDos) String() string {
 func (*ProjectedDos) ProtoMessage() {}
 
 func (x *ProjectedDos) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[14]
+	mi := &file_modegrid_v1_service_proto_msgTypes[17]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1559,7 +1880,7 @@ func (x *ProjectedDos) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ProjectedDos.ProtoReflect.Descriptor instead.
 func (*ProjectedDos) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{14}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{17}
 }
 
 func (x *ProjectedDos) GetSite() int32 {
@@ -1614,7 +1935,7 @@ type ComputeDosResponse struct {
 
 func (x *ComputeDosResponse) Reset() {
 	*x = ComputeDosResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[15]
+	mi := &file_modegrid_v1_service_proto_msgTypes[18]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1626,7 +1947,7 @@ func (x *ComputeDosResponse) String() string {
 func (*ComputeDosResponse) ProtoMessage() {}
 
 func (x *ComputeDosResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[15]
+	mi := &file_modegrid_v1_service_proto_msgTypes[18]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1639,7 +1960,7 @@ func (x *ComputeDosResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeDosResponse.ProtoReflect.Descriptor instead.
 func (*ComputeDosResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{15}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{18}
 }
 
 func (x *ComputeDosResponse) GetModelHash() string {
@@ -1734,7 +2055,7 @@ type TemperatureRange struct {
 
 func (x *TemperatureRange) Reset() {
 	*x = TemperatureRange{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[16]
+	mi := &file_modegrid_v1_service_proto_msgTypes[19]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1746,7 +2067,7 @@ func (x *TemperatureRange) String() string {
 func (*TemperatureRange) ProtoMessage() {}
 
 func (x *TemperatureRange) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[16]
+	mi := &file_modegrid_v1_service_proto_msgTypes[19]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1759,7 +2080,7 @@ func (x *TemperatureRange) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use TemperatureRange.ProtoReflect.Descriptor instead.
 func (*TemperatureRange) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{16}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{19}
 }
 
 func (x *TemperatureRange) GetStartK() float64 {
@@ -1807,7 +2128,7 @@ type ComputeThermalRequest struct {
 
 func (x *ComputeThermalRequest) Reset() {
 	*x = ComputeThermalRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[17]
+	mi := &file_modegrid_v1_service_proto_msgTypes[20]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1819,7 +2140,7 @@ func (x *ComputeThermalRequest) String() string {
 func (*ComputeThermalRequest) ProtoMessage() {}
 
 func (x *ComputeThermalRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[17]
+	mi := &file_modegrid_v1_service_proto_msgTypes[20]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1832,7 +2153,7 @@ func (x *ComputeThermalRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeThermalRequest.ProtoReflect.Descriptor instead.
 func (*ComputeThermalRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{17}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{20}
 }
 
 func (x *ComputeThermalRequest) GetModel() *ModelSource {
@@ -1915,7 +2236,7 @@ type SiteDisplacement struct {
 
 func (x *SiteDisplacement) Reset() {
 	*x = SiteDisplacement{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[18]
+	mi := &file_modegrid_v1_service_proto_msgTypes[21]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -1927,7 +2248,7 @@ func (x *SiteDisplacement) String() string {
 func (*SiteDisplacement) ProtoMessage() {}
 
 func (x *SiteDisplacement) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[18]
+	mi := &file_modegrid_v1_service_proto_msgTypes[21]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -1940,7 +2261,7 @@ func (x *SiteDisplacement) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SiteDisplacement.ProtoReflect.Descriptor instead.
 func (*SiteDisplacement) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{18}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{21}
 }
 
 func (x *SiteDisplacement) GetSite() uint32 {
@@ -2054,7 +2375,7 @@ type ThermalPoint struct {
 
 func (x *ThermalPoint) Reset() {
 	*x = ThermalPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[19]
+	mi := &file_modegrid_v1_service_proto_msgTypes[22]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2066,7 +2387,7 @@ func (x *ThermalPoint) String() string {
 func (*ThermalPoint) ProtoMessage() {}
 
 func (x *ThermalPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[19]
+	mi := &file_modegrid_v1_service_proto_msgTypes[22]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2079,7 +2400,7 @@ func (x *ThermalPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ThermalPoint.ProtoReflect.Descriptor instead.
 func (*ThermalPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{19}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{22}
 }
 
 func (x *ThermalPoint) GetTemperatureK() float64 {
@@ -2262,7 +2583,7 @@ type ComputeThermalResponse struct {
 
 func (x *ComputeThermalResponse) Reset() {
 	*x = ComputeThermalResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[20]
+	mi := &file_modegrid_v1_service_proto_msgTypes[23]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2274,7 +2595,7 @@ func (x *ComputeThermalResponse) String() string {
 func (*ComputeThermalResponse) ProtoMessage() {}
 
 func (x *ComputeThermalResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[20]
+	mi := &file_modegrid_v1_service_proto_msgTypes[23]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2287,7 +2608,7 @@ func (x *ComputeThermalResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeThermalResponse.ProtoReflect.Descriptor instead.
 func (*ComputeThermalResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{20}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{23}
 }
 
 func (x *ComputeThermalResponse) GetModelHash() string {
@@ -2378,7 +2699,7 @@ type CheckModelRequest struct {
 
 func (x *CheckModelRequest) Reset() {
 	*x = CheckModelRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[21]
+	mi := &file_modegrid_v1_service_proto_msgTypes[24]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2390,7 +2711,7 @@ func (x *CheckModelRequest) String() string {
 func (*CheckModelRequest) ProtoMessage() {}
 
 func (x *CheckModelRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[21]
+	mi := &file_modegrid_v1_service_proto_msgTypes[24]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2403,7 +2724,7 @@ func (x *CheckModelRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use CheckModelRequest.ProtoReflect.Descriptor instead.
 func (*CheckModelRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{21}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{24}
 }
 
 func (x *CheckModelRequest) GetModel() *ModelSource {
@@ -2426,7 +2747,7 @@ type FieldViolation struct {
 
 func (x *FieldViolation) Reset() {
 	*x = FieldViolation{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[22]
+	mi := &file_modegrid_v1_service_proto_msgTypes[25]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2438,7 +2759,7 @@ func (x *FieldViolation) String() string {
 func (*FieldViolation) ProtoMessage() {}
 
 func (x *FieldViolation) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[22]
+	mi := &file_modegrid_v1_service_proto_msgTypes[25]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2451,7 +2772,7 @@ func (x *FieldViolation) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FieldViolation.ProtoReflect.Descriptor instead.
 func (*FieldViolation) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{22}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{25}
 }
 
 func (x *FieldViolation) GetField() string {
@@ -2483,7 +2804,7 @@ type ShellBonds struct {
 
 func (x *ShellBonds) Reset() {
 	*x = ShellBonds{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[23]
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2495,7 +2816,7 @@ func (x *ShellBonds) String() string {
 func (*ShellBonds) ProtoMessage() {}
 
 func (x *ShellBonds) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[23]
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2508,7 +2829,7 @@ func (x *ShellBonds) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ShellBonds.ProtoReflect.Descriptor instead.
 func (*ShellBonds) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{23}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
 }
 
 func (x *ShellBonds) GetShell() uint32 {
@@ -2546,7 +2867,7 @@ type SymmetryOperation struct {
 
 func (x *SymmetryOperation) Reset() {
 	*x = SymmetryOperation{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[24]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2558,7 +2879,7 @@ func (x *SymmetryOperation) String() string {
 func (*SymmetryOperation) ProtoMessage() {}
 
 func (x *SymmetryOperation) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[24]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2571,7 +2892,7 @@ func (x *SymmetryOperation) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SymmetryOperation.ProtoReflect.Descriptor instead.
 func (*SymmetryOperation) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{24}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
 }
 
 func (x *SymmetryOperation) GetRotation() []int32 {
@@ -2656,7 +2977,7 @@ type CheckModelResponse struct {
 
 func (x *CheckModelResponse) Reset() {
 	*x = CheckModelResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[25]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2668,7 +2989,7 @@ func (x *CheckModelResponse) String() string {
 func (*CheckModelResponse) ProtoMessage() {}
 
 func (x *CheckModelResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[25]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2681,7 +3002,7 @@ func (x *CheckModelResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use CheckModelResponse.ProtoReflect.Descriptor instead.
 func (*CheckModelResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{25}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{28}
 }
 
 func (x *CheckModelResponse) GetValid() bool {
@@ -2886,7 +3207,7 @@ type SupercellFold struct {
 
 func (x *SupercellFold) Reset() {
 	*x = SupercellFold{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2898,7 +3219,7 @@ func (x *SupercellFold) String() string {
 func (*SupercellFold) ProtoMessage() {}
 
 func (x *SupercellFold) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2911,7 +3232,7 @@ func (x *SupercellFold) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SupercellFold.ProtoReflect.Descriptor instead.
 func (*SupercellFold) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{29}
 }
 
 func (x *SupercellFold) GetAtomsMapped() uint32 {
@@ -2998,7 +3319,7 @@ type SymmetryAtTolerance struct {
 
 func (x *SymmetryAtTolerance) Reset() {
 	*x = SymmetryAtTolerance{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3010,7 +3331,7 @@ func (x *SymmetryAtTolerance) String() string {
 func (*SymmetryAtTolerance) ProtoMessage() {}
 
 func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3023,7 +3344,7 @@ func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SymmetryAtTolerance.ProtoReflect.Descriptor instead.
 func (*SymmetryAtTolerance) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{30}
 }
 
 func (x *SymmetryAtTolerance) GetToleranceA() float64 {
@@ -3059,7 +3380,7 @@ type RequestCost struct {
 
 func (x *RequestCost) Reset() {
 	*x = RequestCost{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[28]
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3071,7 +3392,7 @@ func (x *RequestCost) String() string {
 func (*RequestCost) ProtoMessage() {}
 
 func (x *RequestCost) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[28]
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3084,7 +3405,7 @@ func (x *RequestCost) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
 func (*RequestCost) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{28}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{31}
 }
 
 func (x *RequestCost) GetRequest() string {
@@ -3129,7 +3450,25 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"symmetrize\x18\x05 \x01(\bR\n" +
 	"symmetrizeB\b\n" +
-	"\x06source\"8\n" +
+	"\x06source\"\xb2\x01\n" +
+	"\x11UploadModelHeader\x12\x1d\n" +
+	"\n" +
+	"size_bytes\x18\x01 \x01(\x04R\tsizeBytes\x126\n" +
+	"\bencoding\x18\x02 \x01(\x0e2\x1a.modegrid.v1.ModelEncodingR\bencoding\x12\x16\n" +
+	"\x06sha256\x18\x03 \x01(\fR\x06sha256\x12.\n" +
+	"\x05model\x18\x04 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\"n\n" +
+	"\x12UploadModelRequest\x128\n" +
+	"\x06header\x18\x01 \x01(\v2\x1e.modegrid.v1.UploadModelHeaderH\x00R\x06header\x12\x16\n" +
+	"\x05chunk\x18\x02 \x01(\fH\x00R\x05chunkB\x06\n" +
+	"\x04part\"\xfb\x01\n" +
+	"\x13UploadModelResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12%\n" +
+	"\x0ereceived_bytes\x18\x02 \x01(\x04R\rreceivedBytes\x12\x14\n" +
+	"\x05sites\x18\x03 \x01(\rR\x05sites\x12\"\n" +
+	"\finteractions\x18\x04 \x01(\rR\finteractions\x12!\n" +
+	"\fstored_bytes\x18\x05 \x01(\x04R\vstoredBytes\x12A\n" +
+	"\x0esupercell_fold\x18\x06 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"8\n" +
 	"\x06QPoint\x12\x0e\n" +
 	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
 	"\x02q2\x18\x02 \x01(\x01R\x02q2\x12\x0e\n" +
@@ -3364,7 +3703,10 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"peak_bytes\x18\x02 \x01(\x04R\tpeakBytes\x12\x18\n" +
 	"\aseconds\x18\x03 \x01(\x01R\aseconds\x12\x1a\n" +
-	"\badmitted\x18\x04 \x01(\bR\badmitted*\x95\x01\n" +
+	"\badmitted\x18\x04 \x01(\bR\badmitted*S\n" +
+	"\rModelEncoding\x12\x1e\n" +
+	"\x1aMODEL_ENCODING_UNSPECIFIED\x10\x00\x12\"\n" +
+	"\x1eMODEL_ENCODING_PROTOBUF_BINARY\x10\x01*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
@@ -3390,7 +3732,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"&DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT\x10\x02\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE\x10\x03\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED\x10\x04\x12&\n" +
-	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\xc5\x03\n" +
+	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\x99\x04\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -3398,7 +3740,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x11ComputeDispersion\x12%.modegrid.v1.ComputeDispersionRequest\x1a&.modegrid.v1.ComputeDispersionResponse\x12M\n" +
 	"\n" +
 	"ComputeDos\x12\x1e.modegrid.v1.ComputeDosRequest\x1a\x1f.modegrid.v1.ComputeDosResponse\x12Y\n" +
-	"\x0eComputeThermal\x12\".modegrid.v1.ComputeThermalRequest\x1a#.modegrid.v1.ComputeThermalResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\x0eComputeThermal\x12\".modegrid.v1.ComputeThermalRequest\x1a#.modegrid.v1.ComputeThermalResponse\x12R\n" +
+	"\vUploadModel\x12\x1f.modegrid.v1.UploadModelRequest\x1a .modegrid.v1.UploadModelResponse(\x01B@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -3412,103 +3755,113 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 	return file_modegrid_v1_service_proto_rawDescData
 }
 
-var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 29)
+var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 6)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 32)
 var file_modegrid_v1_service_proto_goTypes = []any{
-	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
-	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
-	(ImaginaryModes)(0),               // 2: modegrid.v1.ImaginaryModes
-	(ThermalRoute)(0),                 // 3: modegrid.v1.ThermalRoute
-	(DebyeTemperatureStatus)(0),       // 4: modegrid.v1.DebyeTemperatureStatus
-	(*ModelSource)(nil),               // 5: modegrid.v1.ModelSource
-	(*QPoint)(nil),                    // 6: modegrid.v1.QPoint
-	(*QPointList)(nil),                // 7: modegrid.v1.QPointList
-	(*MonkhorstPackGrid)(nil),         // 8: modegrid.v1.MonkhorstPackGrid
-	(*FiniteCrystal)(nil),             // 9: modegrid.v1.FiniteCrystal
-	(*QPointSet)(nil),                 // 10: modegrid.v1.QPointSet
-	(*ComputeModesRequest)(nil),       // 11: modegrid.v1.ComputeModesRequest
-	(*Modes)(nil),                     // 12: modegrid.v1.Modes
-	(*ComputeModesResponse)(nil),      // 13: modegrid.v1.ComputeModesResponse
-	(*PathPoint)(nil),                 // 14: modegrid.v1.PathPoint
-	(*ComputeDispersionRequest)(nil),  // 15: modegrid.v1.ComputeDispersionRequest
-	(*DispersionSample)(nil),          // 16: modegrid.v1.DispersionSample
-	(*ComputeDispersionResponse)(nil), // 17: modegrid.v1.ComputeDispersionResponse
-	(*ComputeDosRequest)(nil),         // 18: modegrid.v1.ComputeDosRequest
-	(*ProjectedDos)(nil),              // 19: modegrid.v1.ProjectedDos
-	(*ComputeDosResponse)(nil),        // 20: modegrid.v1.ComputeDosResponse
-	(*TemperatureRange)(nil),          // 21: modegrid.v1.TemperatureRange
-	(*ComputeThermalRequest)(nil),     // 22: modegrid.v1.ComputeThermalRequest
-	(*SiteDisplacement)(nil),          // 23: modegrid.v1.SiteDisplacement
-	(*ThermalPoint)(nil),              // 24: modegrid.v1.ThermalPoint
-	(*ComputeThermalResponse)(nil),    // 25: modegrid.v1.ComputeThermalResponse
-	(*CheckModelRequest)(nil),         // 26: modegrid.v1.CheckModelRequest
-	(*FieldViolation)(nil),            // 27: modegrid.v1.FieldViolation
-	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
-	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
-	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*SupercellFold)(nil),             // 31: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),       // 32: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),               // 33: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 34: modegrid.v1.Crystal
+	(ModelEncoding)(0),                // 0: modegrid.v1.ModelEncoding
+	(FrequencyUnit)(0),                // 1: modegrid.v1.FrequencyUnit
+	(DosMethod)(0),                    // 2: modegrid.v1.DosMethod
+	(ImaginaryModes)(0),               // 3: modegrid.v1.ImaginaryModes
+	(ThermalRoute)(0),                 // 4: modegrid.v1.ThermalRoute
+	(DebyeTemperatureStatus)(0),       // 5: modegrid.v1.DebyeTemperatureStatus
+	(*ModelSource)(nil),               // 6: modegrid.v1.ModelSource
+	(*UploadModelHeader)(nil),         // 7: modegrid.v1.UploadModelHeader
+	(*UploadModelRequest)(nil),        // 8: modegrid.v1.UploadModelRequest
+	(*UploadModelResponse)(nil),       // 9: modegrid.v1.UploadModelResponse
+	(*QPoint)(nil),                    // 10: modegrid.v1.QPoint
+	(*QPointList)(nil),                // 11: modegrid.v1.QPointList
+	(*MonkhorstPackGrid)(nil),         // 12: modegrid.v1.MonkhorstPackGrid
+	(*FiniteCrystal)(nil),             // 13: modegrid.v1.FiniteCrystal
+	(*QPointSet)(nil),                 // 14: modegrid.v1.QPointSet
+	(*ComputeModesRequest)(nil),       // 15: modegrid.v1.ComputeModesRequest
+	(*Modes)(nil),                     // 16: modegrid.v1.Modes
+	(*ComputeModesResponse)(nil),      // 17: modegrid.v1.ComputeModesResponse
+	(*PathPoint)(nil),                 // 18: modegrid.v1.PathPoint
+	(*ComputeDispersionRequest)(nil),  // 19: modegrid.v1.ComputeDispersionRequest
+	(*DispersionSample)(nil),          // 20: modegrid.v1.DispersionSample
+	(*ComputeDispersionResponse)(nil), // 21: modegrid.v1.ComputeDispersionResponse
+	(*ComputeDosRequest)(nil),         // 22: modegrid.v1.ComputeDosRequest
+	(*ProjectedDos)(nil),              // 23: modegrid.v1.ProjectedDos
+	(*ComputeDosResponse)(nil),        // 24: modegrid.v1.ComputeDosResponse
+	(*TemperatureRange)(nil),          // 25: modegrid.v1.TemperatureRange
+	(*ComputeThermalRequest)(nil),     // 26: modegrid.v1.ComputeThermalRequest
+	(*SiteDisplacement)(nil),          // 27: modegrid.v1.SiteDisplacement
+	(*ThermalPoint)(nil),              // 28: modegrid.v1.ThermalPoint
+	(*ComputeThermalResponse)(nil),    // 29: modegrid.v1.ComputeThermalResponse
+	(*CheckModelRequest)(nil),         // 30: modegrid.v1.CheckModelRequest
+	(*FieldViolation)(nil),            // 31: modegrid.v1.FieldViolation
+	(*ShellBonds)(nil),                // 32: modegrid.v1.ShellBonds
+	(*SymmetryOperation)(nil),         // 33: modegrid.v1.SymmetryOperation
+	(*CheckModelResponse)(nil),        // 34: modegrid.v1.CheckModelResponse
+	(*SupercellFold)(nil),             // 35: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),       // 36: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),               // 37: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 38: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	34, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
-	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	9,  // 4: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	5,  // 5: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 6: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	0,  // 7: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	6,  // 8: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
-	0,  // 9: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	12, // 10: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	6,  // 11: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	5,  // 12: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	14, // 13: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
-	0,  // 14: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	6,  // 15: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
-	0,  // 16: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	16, // 17: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	5,  // 18: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 19: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	1,  // 20: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
-	0,  // 21: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	2,  // 22: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
-	0,  // 23: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	19, // 24: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	19, // 25: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	5,  // 26: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 27: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	21, // 28: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
-	3,  // 29: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	23, // 30: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
-	4,  // 31: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	24, // 32: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	5,  // 33: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	27, // 34: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	33, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	32, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	31, // 41: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	26, // 42: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 43: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 44: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 45: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 46: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 47: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 48: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 49: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 50: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 51: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	47, // [47:52] is the sub-list for method output_type
-	42, // [42:47] is the sub-list for method input_type
-	42, // [42:42] is the sub-list for extension type_name
-	42, // [42:42] is the sub-list for extension extendee
-	0,  // [0:42] is the sub-list for field type_name
+	38, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	0,  // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
+	6,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
+	7,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
+	35, // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	10, // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
+	11, // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	12, // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	13, // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	6,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	14, // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	1,  // 11: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	10, // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	1,  // 13: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	16, // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	10, // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	6,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	18, // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	1,  // 18: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	10, // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	1,  // 20: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	20, // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	6,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	14, // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	2,  // 24: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
+	1,  // 25: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	3,  // 26: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
+	1,  // 27: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	23, // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	23, // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	6,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	14, // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	25, // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	4,  // 33: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
+	27, // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	5,  // 35: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
+	28, // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	6,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	31, // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	32, // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	33, // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	18, // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	37, // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	18, // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	36, // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	35, // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	30, // 46: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	15, // 47: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	19, // 48: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	22, // 49: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	26, // 50: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	8,  // 51: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
+	34, // 52: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	17, // 53: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	21, // 54: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	24, // 55: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	29, // 56: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	9,  // 57: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
+	52, // [52:58] is the sub-list for method output_type
+	46, // [46:52] is the sub-list for method input_type
+	46, // [46:46] is the sub-list for extension type_name
+	46, // [46:46] is the sub-list for extension extendee
+	0,  // [0:46] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3521,7 +3874,11 @@ func file_modegrid_v1_service_proto_init() {
 		(*ModelSource_Crystal)(nil),
 		(*ModelSource_ModelHash)(nil),
 	}
-	file_modegrid_v1_service_proto_msgTypes[5].OneofWrappers = []any{
+	file_modegrid_v1_service_proto_msgTypes[2].OneofWrappers = []any{
+		(*UploadModelRequest_Header)(nil),
+		(*UploadModelRequest_Chunk)(nil),
+	}
+	file_modegrid_v1_service_proto_msgTypes[8].OneofWrappers = []any{
 		(*QPointSet_List)(nil),
 		(*QPointSet_Grid)(nil),
 		(*QPointSet_Cells)(nil),
@@ -3531,8 +3888,8 @@ func file_modegrid_v1_service_proto_init() {
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
-			NumEnums:      5,
-			NumMessages:   29,
+			NumEnums:      6,
+			NumMessages:   32,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

@@ -24,6 +24,7 @@ const (
 	ModegridService_ComputeDispersion_FullMethodName = "/modegrid.v1.ModegridService/ComputeDispersion"
 	ModegridService_ComputeDos_FullMethodName        = "/modegrid.v1.ModegridService/ComputeDos"
 	ModegridService_ComputeThermal_FullMethodName    = "/modegrid.v1.ModegridService/ComputeThermal"
+	ModegridService_UploadModel_FullMethodName       = "/modegrid.v1.ModegridService/UploadModel"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -42,7 +43,7 @@ const (
 // Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
 // field (also for a request over a server cap, named in the description);
 // NOT_FOUND for a model_hash the server does not hold (resend the model
-// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// inline, or upload it); FAILED_PRECONDITION for thermal properties of an unstable model;
 // RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
 // timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
 // over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
@@ -62,6 +63,15 @@ type ModegridServiceClient interface {
 	ComputeDos(ctx context.Context, in *ComputeDosRequest, opts ...grpc.CallOption) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(ctx context.Context, in *ComputeThermalRequest, opts ...grpc.CallOption) (*ComputeThermalResponse, error)
+	// UploadModel sends a model too large for one message (over the
+	// server's message cap) as a stream of chunks: a header, then the
+	// payload's bytes. The server compiles it like an inline model and
+	// holds it under its model hash, which every other call then takes as
+	// ModelSource.model_hash. The hash is the one an inline request with the
+	// same crystal and options gets. A model may be evicted later like any
+	// other: a reference then gets NOT_FOUND, and the model is uploaded
+	// again.
+	UploadModel(ctx context.Context, opts ...grpc.CallOption) (grpc.ClientStreamingClient[UploadModelRequest, UploadModelResponse], error)
 }
 
 type modegridServiceClient struct {
@@ -131,6 +141,19 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 	return out, nil
 }
 
+func (c *modegridServiceClient) UploadModel(ctx context.Context, opts ...grpc.CallOption) (grpc.ClientStreamingClient[UploadModelRequest, UploadModelResponse], error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	stream, err := c.cc.NewStream(ctx, &ModegridService_ServiceDesc.Streams[1], ModegridService_UploadModel_FullMethodName, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	x := &grpc.GenericClientStream[UploadModelRequest, UploadModelResponse]{ClientStream: stream}
+	return x, nil
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_UploadModelClient = grpc.ClientStreamingClient[UploadModelRequest, UploadModelResponse]
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -147,7 +170,7 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 // Status codes: INVALID_ARGUMENT with google.rpc.BadRequest listing every bad
 // field (also for a request over a server cap, named in the description);
 // NOT_FOUND for a model_hash the server does not hold (resend the model
-// inline); FAILED_PRECONDITION for thermal properties of an unstable model;
+// inline, or upload it); FAILED_PRECONDITION for thermal properties of an unstable model;
 // RESOURCE_EXHAUSTED when the server's computation queue is full or the wait
 // timed out (google.rpc.QuotaFailure and RetryInfo attached), or a message is
 // over the size cap; DEADLINE_EXCEEDED and CANCELED when the client's
@@ -167,6 +190,15 @@ type ModegridServiceServer interface {
 	ComputeDos(context.Context, *ComputeDosRequest) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error)
+	// UploadModel sends a model too large for one message (over the
+	// server's message cap) as a stream of chunks: a header, then the
+	// payload's bytes. The server compiles it like an inline model and
+	// holds it under its model hash, which every other call then takes as
+	// ModelSource.model_hash. The hash is the one an inline request with the
+	// same crystal and options gets. A model may be evicted later like any
+	// other: a reference then gets NOT_FOUND, and the model is uploaded
+	// again.
+	UploadModel(grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]) error
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -191,6 +223,9 @@ func (UnimplementedModegridServiceServer) ComputeDos(context.Context, *ComputeDo
 }
 func (UnimplementedModegridServiceServer) ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeThermal not implemented")
+}
+func (UnimplementedModegridServiceServer) UploadModel(grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]) error {
+	return status.Error(codes.Unimplemented, "method UploadModel not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -296,6 +331,13 @@ func _ModegridService_ComputeThermal_Handler(srv interface{}, ctx context.Contex
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_UploadModel_Handler(srv interface{}, stream grpc.ServerStream) error {
+	return srv.(ModegridServiceServer).UploadModel(&grpc.GenericServerStream[UploadModelRequest, UploadModelResponse]{ServerStream: stream})
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_UploadModelServer = grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -325,6 +367,11 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 			StreamName:    "ComputeModes",
 			Handler:       _ModegridService_ComputeModes_Handler,
 			ServerStreams: true,
+		},
+		{
+			StreamName:    "UploadModel",
+			Handler:       _ModegridService_UploadModel_Handler,
+			ClientStreams: true,
 		},
 	},
 	Metadata: "modegrid/v1/service.proto",

@@ -69,6 +69,7 @@ type options struct {
 	cacheBytes  byteSize
 	maxMsg      byteSize
 	maxChunk    byteSize
+	maxUpload   byteSize
 	memBudget   byteSize
 	maxQueue    int
 	reflection  bool
@@ -131,6 +132,10 @@ func newFlags(o *options) *flag.FlagSet {
 	fs.IntVar(&c.MaxDOSBins, "max-dos-bins", server.DefaultMaxDOSBins, "cap: frequency samples of one density of states")
 	o.maxMsg = server.DefaultMaxMsgBytes
 	fs.Var(&o.maxMsg, "max-msg-bytes", "cap: largest gRPC message received or sent, bytes")
+	o.maxUpload = server.DefaultMaxUploadBytes
+	fs.Var(&o.maxUpload, "max-upload-bytes", "cap: payload of one UploadModel stream (a model too large for one message), bytes")
+	fs.IntVar(&c.MaxUploads, "max-uploads", server.DefaultMaxUploads, "uploads received at once; more are refused RESOURCE_EXHAUSTED")
+	fs.DurationVar(&c.UploadIdleTimeout, "upload-idle-timeout", server.DefaultUploadIdleTimeout, "longest an upload may go without a message before it is abandoned")
 	fs.IntVar(&c.ChunkPoints, "chunk-points", server.DefaultChunkPoints, "default q-points per streamed modes message")
 	fs.Var(&o.memBudget, "memory-budget", "memory all computations together may take by their estimates, bytes (0: the container's memory limit, cgroup memory.max or GOMEMLIMIT, minus --cache-bytes, grid reductions (a quarter of --cache-bytes, at most 64 MiB) and a 256 MiB runtime reserve)")
 	fs.Float64Var(&c.MaxComputeSeconds, "max-compute-seconds", server.DefaultMaxComputeSeconds, "bound on the estimated compute time of one request, seconds (work at a conservative 1 GFlop/s per core)")
@@ -212,6 +217,7 @@ func parse(args []string, getenv func(string) string, stderr io.Writer) (*option
 	}
 	c.MaxMsgBytes = int(o.maxMsg)
 	c.MaxChunkBytes = int(o.maxChunk)
+	c.MaxUploadBytes = int64(o.maxUpload)
 	c.MemoryBudget = int64(o.memBudget)
 	c.DisableReflection = !o.reflection
 	o.redis.MaxEntryBytes = int(o.redisMax)
