@@ -22,6 +22,7 @@ test: proto-check lint fuzz-short
 # handler, the CLI's parsers. Seeds: <package>/testdata/fuzz/<function>/.
 FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
   ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal \
+  ./server:FuzzComputeGruneisen ./server:FuzzComputeQuasiHarmonic ./server:FuzzComputeConductivity \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
   ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
 FUZZTIME ?= 10m

@@ -138,10 +138,10 @@ func check(m *physics.Model, opt Options) (mesh.GridSpec, error) {
 	vs.AddErr("", "mesh", err)
 	n := m.ModeCount()
 	if g := opt.Umklapp.GammaBranch; opt.Umklapp.On && len(g) > 0 && len(g) != n {
-		vs.Add("umklapp.gamma_branch", "one γ per branch: the model has %d branches, got %d values", n, len(g))
+		vs.Add("umklapp.gruneisen_per_branch", "one γ per branch: the model has %d branches, got %d values", n, len(g))
 	}
 	if g := opt.Umklapp.GammaMode; opt.Umklapp.On && len(g) > 0 && err == nil && len(g) != spec.Count()*n {
-		vs.Add("umklapp.gamma_mode", "one γ per mode of the grid: %d points × %d branches, got %d values", spec.Count(), n, len(g))
+		vs.Add("umklapp.volume_models", "one γ per mode of the grid: %d points × %d branches, got %d values", spec.Count(), n, len(g))
 	}
 	if g := opt.Defects.SiteG2; opt.Defects.On && len(g) > 0 && len(g) != m.Sites() {
 		vs.Add("point_defects.site_g2", "one mass variance per site: the model has %d sites, got %d values", m.Sites(), len(g))

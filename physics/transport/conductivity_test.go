@@ -221,8 +221,8 @@ func TestConductivityRefusesBadInput(t *testing.T) {
 	if !errors.As(err, &ve) {
 		t.Fatalf("err = %v, want a validation error", err)
 	}
-	want := map[string]bool{"temperatures_k[0]": true, "boundaries[0].size_m": true, "boundaries[0].specularity": true, "boundaries[0].normal": true,
-		"power_law.exponent": true, "cumulative_bins": true, "umklapp.gamma_branch": true, "point_defects.site_g2": true}
+	want := map[string]bool{"temperatures_k[0]": true, "samples[0].size_m": true, "samples[0].specularity": true, "samples[0].normal": true,
+		"power_law.exponent": true, "cumulative_bins": true, "umklapp.gruneisen_per_branch": true, "point_defects.site_g2": true}
 	for _, v := range ve.Violations {
 		delete(want, v.Field)
 	}

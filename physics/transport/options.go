@@ -135,17 +135,18 @@ const (
 )
 
 // Validate checks the options alone, every violation at once, with field
-// paths relative to Options ("boundaries[1].size_m", "umklapp.gamma", …).
+// paths as the service names them ("samples[1].size_m" for Boundaries[1],
+// "umklapp.gruneisen" for Umklapp.Gamma, …).
 func (o Options) Validate() error {
 	var vs physics.Violations
 	if err := (thermo.ThermalOptions{TempsK: o.TempsK}).Validate(); err != nil {
 		vs.AddErr("", "temperatures_k", err)
 	}
 	if len(o.Boundaries) > MaxBoundaries {
-		vs.Add("boundaries", "%d sample geometries, more than the limit of %d", len(o.Boundaries), MaxBoundaries)
+		vs.Add("samples", "%d sample geometries, more than the limit of %d", len(o.Boundaries), MaxBoundaries)
 	}
 	for i, b := range o.Boundaries {
-		b.check(&vs, fmt.Sprintf("boundaries[%d]", i))
+		b.check(&vs, fmt.Sprintf("samples[%d]", i))
 	}
 	o.Umklapp.check(&vs)
 	if p := o.PowerLaw; p.On {
@@ -168,7 +169,7 @@ func (o Options) Validate() error {
 		vs.Add("cumulative_bins", "must be in [0, %d] (0: %d), got %d", MaxCumulativeBins, DefaultCumulativeBins, o.CumulativeBins)
 	}
 	if !o.scatters() {
-		vs.Add("boundaries", "no scattering mechanism is on: κ of a perfect infinite crystal is infinite in this model; give a sample size or turn on point defects, Umklapp or a power law")
+		vs.Add("samples", "no scattering mechanism is on: κ of a perfect infinite crystal is infinite in this model; give a sample size or turn on point defects, Umklapp or a power law")
 	}
 	return vs.Err()
 }
@@ -220,14 +221,14 @@ func (u Umklapp) check(vs *physics.Violations) {
 		vs.Add("umklapp.b", "must be in [0, 1e6] (0: 1), got %v", u.B)
 	}
 	if !(math.Abs(u.Gamma) <= MaxGamma) {
-		vs.Add("umklapp.gamma", "must be finite within ±%d, got %v", MaxGamma, u.Gamma)
+		vs.Add("umklapp.gruneisen", "must be finite within ±%d, got %v", MaxGamma, u.Gamma)
 	}
 	if u.Gamma == 0 && len(u.GammaBranch) == 0 && len(u.GammaMode) == 0 {
-		vs.Add("umklapp.gamma", "Umklapp scattering needs the Grüneisen parameter: give it for the crystal, per branch, or models at other volumes")
+		vs.Add("umklapp.gruneisen", "Umklapp scattering needs the Grüneisen parameter: give it for the crystal, per branch, or models at other volumes")
 	}
 	for i, g := range u.GammaBranch {
 		if !(math.Abs(g) <= MaxGamma) {
-			vs.Add(fmt.Sprintf("umklapp.gamma_branch[%d]", i), "must be finite within ±%d, got %v", MaxGamma, g)
+			vs.Add(fmt.Sprintf("umklapp.gruneisen_per_branch[%d]", i), "must be finite within ±%d, got %v", MaxGamma, g)
 		}
 	}
 	for _, c := range []struct {

@@ -105,8 +105,9 @@ func vinetDerivs(e0, v0, b0, bp, v float64) (e, d1, d2 float64) {
 	return e, -p, -dpdeta * detadv
 }
 
-// errFit is wrapped by fits that cannot be made.
-var errFit = errors.New("equation-of-state fit failed")
+// ErrFit is wrapped by equation-of-state fits that cannot be made (the
+// energies have no minimum near the volumes given, or too few volumes).
+var ErrFit = errors.New("equation-of-state fit failed")
 
 // FitEOS fits the equation of state kind to energies e (eV) at volumes v
 // (Å³; at least 5, distinct). Birch–Murnaghan's third-order energy is a
@@ -116,7 +117,7 @@ var errFit = errors.New("equation-of-state fit failed")
 // residual), started from the Birch–Murnaghan fit.
 func FitEOS(kind EOS, v, e []float64) (*EOSFit, error) {
 	if len(v) != len(e) || len(v) < 5 {
-		return nil, fmt.Errorf("%w: need at least 5 volumes with an energy each, got %d and %d", errFit, len(v), len(e))
+		return nil, fmt.Errorf("%w: need at least 5 volumes with an energy each, got %d and %d", ErrFit, len(v), len(e))
 	}
 	bm, err := fitBM(v, e)
 	if err != nil {
@@ -126,7 +127,7 @@ func FitEOS(kind EOS, v, e []float64) (*EOSFit, error) {
 		return bm, nil
 	}
 	if kind != Vinet {
-		return nil, fmt.Errorf("%w: unknown equation of state %d", errFit, int(kind))
+		return nil, fmt.Errorf("%w: unknown equation of state %d", ErrFit, int(kind))
 	}
 	return fitVinet(v, e, bm)
 }
@@ -153,7 +154,7 @@ func fitBM(v, e []float64) (*EOSFit, error) {
 		f.bm[k] = c[k] / math.Pow(s, float64(k))
 	}
 	if !f.bmMinimum(v) {
-		return nil, fmt.Errorf("%w: the fitted Birch–Murnaghan curve has no minimum near the volumes given (are the energies of one crystal near its equilibrium?)", errFit)
+		return nil, fmt.Errorf("%w: the fitted Birch–Murnaghan curve has no minimum near the volumes given (are the energies of one crystal near its equilibrium?)", ErrFit)
 	}
 	f.residuals(v, e)
 	return f, nil
@@ -287,7 +288,7 @@ func fitVinet(v, e []float64, start *EOSFit) (*EOSFit, error) {
 	}
 	f := &EOSFit{Kind: Vinet, E0eV: e0, V0A3: p[0], B0eVA3: p[1], B0p: p[2]}
 	if !finiteAll(f.E0eV, f.V0A3, f.B0eVA3, f.B0p) {
-		return nil, fmt.Errorf("%w: the Vinet fit did not converge", errFit)
+		return nil, fmt.Errorf("%w: the Vinet fit did not converge", ErrFit)
 	}
 	f.residuals(v, e)
 	return f, nil

@@ -21,9 +21,11 @@ type ModeGammas struct {
 	// Defined is false where γ is not defined: a mode of zero or
 	// imaginary frequency at any volume (the acoustic modes at Γ).
 	Defined []bool
-	// MinOverlap is the smallest overlap |⟨e_ref|e_V⟩|² of a pair of modes
-	// matched across volumes (1 for identical eigenvectors; values well
-	// below 1/2 mean the volumes are too far apart to follow the modes).
+	// MinOverlap is the smallest overlap |⟨e_ref|e_V⟩|² of a reference
+	// mode with the mode matched to it at another volume (with its
+	// degenerate partners there: inside a degenerate subspace single
+	// modes are arbitrary). 1 for identical eigenvectors; values well
+	// below 1/2 mean the volumes are too far apart to follow the modes.
 	MinOverlap float64
 }
 
@@ -152,9 +154,7 @@ func (p *pointGamma) solve(modes []volumeModes, ref int, idx []int, w []float64,
 			}
 		}
 		p.hung.solve(p.cost, p.match[v])
-		for k := 0; k < n; k++ {
-			minOv = math.Min(minOv, -p.cost[k*n+p.match[v][k]])
-		}
+		minOv = math.Min(minOv, p.subspaceOverlap(modes[v].freq[i*n:(i+1)*n], v))
 	}
 	freq := rv.freq[i*n : (i+1)*n]
 	copy(out.FreqTHz[r*n:(r+1)*n], freq)
@@ -173,6 +173,31 @@ func (p *pointGamma) solve(modes []volumeModes, ref int, idx []int, w []float64,
 		}
 	}
 	averageDegenerateGamma(freq, out.Gamma[r*n:(r+1)*n], out.Defined[r*n:(r+1)*n])
+	return minOv
+}
+
+// subspaceOverlap is the smallest, over the reference modes k, overlap of
+// e_ref,k with the subspace of the modes of volume v degenerate with its
+// match π(k) (within physics.DegenerateTolTHz): inside a degenerate
+// subspace the match of single modes is arbitrary, the subspace is not.
+func (p *pointGamma) subspaceOverlap(freq []float64, v int) float64 {
+	n := p.n
+	var top float64
+	for _, f := range freq {
+		top = math.Max(top, math.Abs(f))
+	}
+	tol := physics.DegenerateTolTHz*top + 1e-9
+	minOv := 1.0
+	for k := 0; k < n; k++ {
+		fm := freq[p.match[v][k]]
+		var ov float64
+		for j := 0; j < n; j++ {
+			if math.Abs(freq[j]-fm) <= tol {
+				ov -= p.cost[k*n+j]
+			}
+		}
+		minOv = math.Min(minOv, ov)
+	}
 	return minOv
 }
 

@@ -19,13 +19,13 @@ func leastSquares(rows [][]float64, y []float64) ([]float64, error) {
 	qr.Factorize(a)
 	var c mat.VecDense
 	if err := qr.SolveVecTo(&c, false, mat.NewVecDense(m, append([]float64(nil), y...))); err != nil {
-		return nil, fmt.Errorf("%w: least squares: %v", errFit, err)
+		return nil, fmt.Errorf("%w: least squares: %v", ErrFit, err)
 	}
 	out := make([]float64, n)
 	for k := range out {
 		out[k] = c.AtVec(k)
 		if math.IsNaN(out[k]) || math.IsInf(out[k], 0) {
-			return nil, fmt.Errorf("%w: least squares gave a non-finite coefficient", errFit)
+			return nil, fmt.Errorf("%w: least squares gave a non-finite coefficient", ErrFit)
 		}
 	}
 	return out, nil
