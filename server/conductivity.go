@@ -286,4 +286,3 @@ func conductivityToProto(hash, canon string, req *modegridv1.ComputeConductivity
 	}
 	return out
 }
-

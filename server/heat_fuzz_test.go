@@ -95,7 +95,7 @@ func heatSeeds(tb testing.TB) (gr, qh, co []proto.Message) {
 		&modegridv1.ComputeConductivityRequest{Model: fcc, Qpoints: mpGrid(true, 2, 2, 2), Range: &modegridv1.TemperatureRange{StartK: 100, StopK: 300, StepK: 100},
 			Umklapp: &modegridv1.UmklappScattering{Enabled: true, VolumeModels: models[1:3]}},
 		&modegridv1.ComputeConductivityRequest{Model: fcc, Qpoints: mpGrid(false, 2, 2, 2), TemperaturesK: []float64{300},
-			Samples: []*modegridv1.SampleGeometry{{Kind: modegridv1.SampleKind_SAMPLE_KIND_WIRE, SizeM: 1e-7}},
+			Samples:  []*modegridv1.SampleGeometry{{Kind: modegridv1.SampleKind_SAMPLE_KIND_WIRE, SizeM: 1e-7}},
 			PowerLaw: &modegridv1.PowerLawScattering{Enabled: true, RatePerS: 1e10, Exponent: 2}, Umklapp: &modegridv1.UmklappScattering{Enabled: true, GruneisenPerBranch: []float64{1, 1, 2}}},
 	}
 	return gr, qh, co
