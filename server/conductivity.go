@@ -3,6 +3,8 @@ package server
 import (
 	"context"
 	"fmt"
+	"regexp"
+	"strconv"
 	"strings"
 
 	"github.com/materials-lab/modegrid/physics"
@@ -227,8 +229,23 @@ func (s *Service) volumeModelViolations(e *modelEntry, volumes []*modelEntry, vs
 		} else {
 			f = "umklapp.volume_models"
 		}
-		vs.Add(f, "%s", v.Description)
+		vs.Add(f, "%s", renameSetModels(v.Description))
 	}
+}
+
+// setModel matches "models[i]" in the engine's words about the set whose
+// model 0 is the request's model and model i the volume model i−1.
+var setModel = regexp.MustCompile(`models\[(\d+)\]`)
+
+// renameSetModels rewrites the set's model indices into request paths.
+func renameSetModels(s string) string {
+	return setModel.ReplaceAllStringFunc(s, func(m string) string {
+		i, _ := strconv.Atoi(setModel.FindStringSubmatch(m)[1])
+		if i == 0 {
+			return "model"
+		}
+		return fmt.Sprintf("umklapp.volume_models[%d]", i-1)
+	})
 }
 
 func cmpInt(x, def int) int {

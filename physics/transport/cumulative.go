@@ -9,8 +9,9 @@ import (
 
 // cumulative is the cumulative κ (trace/3) of geometry bd at temperature
 // tK on bins points: each mode's share C|v|²τ/3 (times k_B and scale =
-// 1/(NV)) accumulated by mean free path |v|τ (log-spaced from the shortest
-// to the longest) and by frequency (even spacing from 0 to the highest).
+// 1/(NV)) accumulated by mean free path |v|τ (log-spaced from where 0.1 %
+// of κ is reached to the longest) and by frequency (even spacing up to the
+// highest).
 func (md *modeData) cumulative(bd Boundary, tK, scale float64, bins int) *Cumulative {
 	type share struct{ mfp, nu, k float64 }
 	var sh []share
@@ -37,7 +38,19 @@ func (md *modeData) cumulative(bd Boundary, tK, scale float64, bins int) *Cumula
 		return out
 	}
 	sort.Slice(sh, func(a, b int) bool { return sh[a].mfp < sh[b].mfp })
-	lo, hi := math.Log(sh[0].mfp), math.Log(sh[len(sh)-1].mfp)
+	// The axis starts where 0.1 % of κ is reached: modes of vanishing
+	// velocity (zone boundaries) have mean free paths of 10⁻²⁰ m that
+	// carry nothing and would stretch the axis over decades.
+	var total float64
+	for _, x := range sh {
+		total += x.k
+	}
+	first, part := 0, 0.0
+	for first < len(sh)-1 && part+sh[first].k < 1e-3*total {
+		part += sh[first].k
+		first++
+	}
+	lo, hi := math.Log(sh[first].mfp), math.Log(sh[len(sh)-1].mfp)
 	j := 0
 	var acc float64
 	for b := 0; b < bins; b++ {
