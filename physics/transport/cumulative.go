@@ -14,7 +14,7 @@ import (
 // highest).
 func (md *modeData) cumulative(bd Boundary, tK, scale float64, bins int) *Cumulative {
 	type share struct{ mfp, nu, k float64 }
-	var sh []share
+	sh := make([]share, 0, len(md.nu))
 	kappa := physics.THzToKelvin / tK
 	u := tK * math.Exp(-md.theta/(3*tK))
 	var top float64

@@ -27,6 +27,10 @@ func GruneisenCost(s physics.GridSize, points, vols int) physics.Cost {
 	chunk := int(max(1, min(physics.DefaultChunkPoints, physics.DefaultChunkBytes/(16*n*n+8*n+64))))
 	stream := physics.StreamCost(s, int(block), chunk, 0, physics.ModeOptions{Eigenvectors: true})
 	c.Bytes += stream.Bytes + int64(s.Workers+4)*(8*n*n+int64(vols)*8*n+64*n+1024)
+	// Every streamed chunk (frequencies and eigenvectors of each point)
+	// is copied out and dropped: counted whole, the collector may not run
+	// in between; and the point list of a grid (GridGruneisen).
+	c.Bytes += int64(vols)*P*(int64(unsafe.Sizeof(physics.PointModes{}))+8*n+16*n*n) + 32*P
 	c.Flops = float64(vols) * physics.StreamCost(s, points, chunk, 0, physics.ModeOptions{Eigenvectors: true}).Flops
 	c.Flops += float64(P) * float64(vols-1) * 9 * float64(n*n*n)
 	return c
@@ -41,7 +45,10 @@ func QHACost(s physics.GridSize, vols, temps int) physics.Cost {
 	per := physics.GridModesCost(s, physics.GridOptions{}).Plus(thermo.ThermalCost(s, temps, false, thermo.ModeSum, true))
 	c := physics.Cost{Bytes: per.Bytes * int64(vols), Flops: per.Flops * float64(vols)}
 	T := int64(temps)
-	c.Bytes += T * (int64(unsafe.Sizeof(Point{})) + 256 + int64(vols)*8*12 + 4096)
-	c.Flops += float64(T) * (float64(vols)*2000 + 600*200)
+	// Per temperature: the equation-of-state fit (Levenberg–Marquardt: up to
+	// 200 steps, each a Jacobian, residual vectors and a small QR, about
+	// 4 kB per volume in all, measured) and the entropy and Cv fits.
+	c.Bytes += T * (int64(unsafe.Sizeof(Point{})) + 256 + int64(vols)*(8*12+5<<10) + 12<<10)
+	c.Flops += float64(T) * (float64(vols)*2000 + 200*(300*float64(vols)+3000) + 600*200)
 	return c
 }
