@@ -75,7 +75,7 @@ common flags:
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else

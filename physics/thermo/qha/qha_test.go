@@ -130,6 +130,7 @@ func TestQHAPowerLawCrystal(t *testing.T) {
 		if rel(cpNum, p.CpeVPerK) > 0.005 {
 			t.Errorf("T = %g K: Cp = %.6e, T(∂S/∂T)_P = %.6e eV/K", p.TempK, p.CpeVPerK, cpNum)
 		}
+		t.Logf("T = %g K: α against (1/V)dV/dT: %.2g relative; Cp against T(∂S/∂T)_P: %.2g relative", p.TempK, rel(alphaNum, p.AlphaVolPerK), rel(cpNum, p.CpeVPerK))
 		if p.CpeVPerK <= p.CveVPerK {
 			t.Errorf("T = %g K: Cp %g ≤ Cv %g", p.TempK, p.CpeVPerK, p.CveVPerK)
 		}
