@@ -24,7 +24,8 @@ FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComp
   ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal \
   ./server:FuzzComputeGruneisen ./server:FuzzComputeQuasiHarmonic ./server:FuzzComputeConductivity \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
-  ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
+  ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps \
+  ./client/cmd/modegrid:FuzzParseSamples
 FUZZTIME ?= 10m
 FUZZTIME_SHORT ?= 3s
 FUZZ_VMEM_KB ?= 8000000

@@ -45,8 +45,8 @@ func parseLength(s string) (float64, error) {
 			if err != nil {
 				return 0, fmt.Errorf("%q: %w", s, err)
 			}
-			if !(x > 0) {
-				return 0, fmt.Errorf("%q: a size must be > 0", s)
+			if !(x*u.m > 0) || math.IsInf(x*u.m, 0) {
+				return 0, fmt.Errorf("%q: a size must be a positive length", s)
 			}
 			return x * u.m, nil
 		}
