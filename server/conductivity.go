@@ -107,7 +107,13 @@ func (s *Service) computeConductivity(ctx context.Context, req *modegridv1.Compu
 	if vm := req.GetUmklapp().GetVolumeModels(); len(vm) > qha.MaxVolumes-1 {
 		vs.Add("umklapp.volume_models", "%d models exceed the limit of %d", len(vm), qha.MaxVolumes-1)
 	}
-	if s.precheck(&vs, req.GetModel(), nil) {
+	if s.precheck(&vs, req.GetModel(), func(r rawModel, vs *violations) {
+		// A lower bound before compiling: the stream of every point.
+		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && vs.Len() == 0 && r.size.Dim == 3 {
+			s.lowerBound(vs, estimate{cost: transport.ConductivityCost(r.grid(qs.grid), len(opt.TempsK), max(1, len(opt.Boundaries)), false, 0),
+				field: "qpoints", change: "a smaller grid (qpoints)"})
+		}
+	}) {
 		return nil, vs.Err()
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)

@@ -47,6 +47,22 @@ func (s *Service) computeGruneisen(ctx context.Context, req *modegridv1.ComputeG
 	if vs.Len() > 0 {
 		return nil, vs.Err()
 	}
+	if s.precheck(&vs, req.GetModels()[0], func(r rawModel, vs *violations) {
+		// A lower bound before compiling: every point at every volume.
+		n := int(req.GetPathPoints())
+		if len(req.GetPath()) > 0 && n == 0 {
+			n = physics.DefaultPathPoints
+		}
+		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, true); qs != nil {
+			n = qs.count
+		}
+		if n > 0 && vs.Len() == 0 {
+			s.lowerBound(vs, estimate{cost: qha.GruneisenCost(r.grid(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}), n, len(req.GetModels())),
+				field: "qpoints", change: "fewer q-points or models"})
+		}
+	}) {
+		return nil, renamedFirst(&vs)
+	}
 	entries, err := s.resolveModels(ctx, req.GetModels(), "models", &vs)
 	if err != nil {
 		return nil, err

@@ -2,6 +2,7 @@ package server
 
 import (
 	"math"
+	"strings"
 	"testing"
 
 	"google.golang.org/grpc/codes"
@@ -211,4 +212,24 @@ func TestHeatRefusedBeforeWork(t *testing.T) {
 		t.Errorf("%v conductivity computations after a refusal", n)
 	}
 	_ = status.Code(err) == codes.InvalidArgument
+}
+
+// New inline models whose request could never fit are refused before any
+// of them is compiled (precompile.go's lower bound).
+func TestHeatRefusedBeforeCompile(t *testing.T) {
+	ts := startServer(t, Config{MemoryBudget: 64 << 20})
+	ctx := testContext(t)
+	models, e := volumeModels(t, 3, -0.02, -0.01, 0, 0.01, 0.02)
+	_, err := ts.api.ComputeQuasiHarmonic(ctx, &modegridv1.ComputeQuasiHarmonicRequest{Models: models, StaticEnergiesEv: e,
+		Qpoints: mpGrid(false, 120, 120, 120), TemperaturesK: []float64{300}})
+	if f := badFields(t, err); !strings.Contains(f["qpoints"], "at least") {
+		t.Fatalf("refusal %v", f)
+	}
+	_, err = ts.api.ComputeGruneisen(ctx, &modegridv1.ComputeGruneisenRequest{Models: models, Qpoints: mpGrid(false, 150, 150, 150)})
+	if f := badFields(t, err); !strings.Contains(f["qpoints"], "at least") {
+		t.Fatalf("refusal %v", f)
+	}
+	if n := metric(t, ts.srv.reg, "modegrid_computations_total", map[string]string{"kind": kindCompile}); n > 0 {
+		t.Errorf("%v compiles before the refusals", n)
+	}
 }

@@ -45,6 +45,16 @@ func (s *Service) computeQuasiHarmonic(ctx context.Context, req *modegridv1.Comp
 	if vs.Len() > 0 {
 		return nil, vs.Err()
 	}
+	if s.precheck(&vs, req.GetModels()[0], func(r rawModel, vs *violations) {
+		// A lower bound before compiling any model: every volume's grid
+		// modes and sums, as large as the first model's.
+		if qs := s.qsetFor(req.GetQpoints(), r.size.Dim, false); qs != nil && vs.Len() == 0 {
+			s.lowerBound(vs, estimate{cost: qha.QHACost(r.grid(qs.grid), len(req.GetModels()), len(opt.TempsK)),
+				field: "qpoints", change: "a smaller grid (qpoints), fewer temperatures or fewer volumes"})
+		}
+	}) {
+		return nil, renamedFirst(&vs)
+	}
 	entries, err := s.resolveModels(ctx, req.GetModels(), "models", &vs)
 	if err != nil {
 		return nil, err
@@ -120,4 +130,12 @@ func qhaToProto(hash, canon string, set *qha.VolumeSet, opt qha.Options, r *qha.
 		})
 	}
 	return out
+}
+
+// renamedFirst is the error of violations found on the first model before
+// compiling: "model…" paths become "models[0]…".
+func renamedFirst(vs *violations) error {
+	var out violations
+	renameModelFields(&out, vs, "models[0]")
+	return out.Err()
 }
