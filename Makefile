@@ -22,8 +22,10 @@ test: proto-check lint fuzz-short
 # handler, the CLI's parsers. Seeds: <package>/testdata/fuzz/<function>/.
 FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
   ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal ./server:FuzzUploadModel \
+  ./server:FuzzComputeGruneisen ./server:FuzzComputeQuasiHarmonic ./server:FuzzComputeConductivity \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
-  ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
+  ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps \
+  ./client/cmd/modegrid:FuzzParseSamples
 FUZZTIME ?= 10m
 FUZZTIME_SHORT ?= 3s
 FUZZ_VMEM_KB ?= 8000000

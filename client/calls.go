@@ -432,3 +432,20 @@ func (s *sender) succeeded(h string) {
 		s.hash = h
 	}
 }
+
+// Gruneisen calls ComputeGruneisen. Its models go inline (or by hash) as
+// the request gives them: a request of several models is not rewritten.
+func (c *Client) Gruneisen(ctx context.Context, req *modegridv1.ComputeGruneisenRequest, opts ...CallOption) (*modegridv1.ComputeGruneisenResponse, error) {
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeGruneisen, false, collectOptions(opts))
+}
+
+// QuasiHarmonic calls ComputeQuasiHarmonic (models sent as given, as for
+// Gruneisen).
+func (c *Client) QuasiHarmonic(ctx context.Context, req *modegridv1.ComputeQuasiHarmonicRequest, opts ...CallOption) (*modegridv1.ComputeQuasiHarmonicResponse, error) {
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeQuasiHarmonic, false, collectOptions(opts))
+}
+
+// Conductivity calls ComputeConductivity.
+func (c *Client) Conductivity(ctx context.Context, req *modegridv1.ComputeConductivityRequest, opts ...CallOption) (*modegridv1.ComputeConductivityResponse, error) {
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeConductivity, c.affinity, collectOptions(opts))
+}

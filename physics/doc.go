@@ -288,11 +288,16 @@
 //     harmonic U, F, S, Cv; θ_D(T) with its status; Debye functions;
 //     mean-square displacements) and their cost (ThermalCost); its
 //     DOS-integral route uses spectra.
+//   - physics/thermo/qha — the quasi-harmonic approximation: mode Grüneisen
+//     parameters from models at several volumes, equation-of-state fits,
+//     thermal expansion, B_T, Cp (GruneisenCost, QHACost).
+//   - physics/transport — lattice thermal conductivity in the
+//     relaxation-time approximation for bulk and finite samples, cumulative
+//     curves (ConductivityCost).
 //
 // Capabilities still to come each get a package of their own above the
 // core (DEVELOPERS.md, Architecture): imported first-principles force
 // constants (physics/fcimport), polar crystals and the dipole–dipole sum
 // (physics/polar), fitting force constants to data (physics/fit),
-// scattering intensities (physics/scatter), heat transport and the
-// quasi-harmonic approximation (physics/transport, physics/thermo/qha).
+// scattering intensities (physics/scatter).
 package physics

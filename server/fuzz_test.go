@@ -376,6 +376,12 @@ func respFor(method string) proto.Message {
 		return &modegridv1.ComputeDosResponse{}
 	case modegridv1.ModegridService_ComputeThermal_FullMethodName:
 		return &modegridv1.ComputeThermalResponse{}
+	case modegridv1.ModegridService_ComputeGruneisen_FullMethodName:
+		return &modegridv1.ComputeGruneisenResponse{}
+	case modegridv1.ModegridService_ComputeQuasiHarmonic_FullMethodName:
+		return &modegridv1.ComputeQuasiHarmonicResponse{}
+	case modegridv1.ModegridService_ComputeConductivity_FullMethodName:
+		return &modegridv1.ComputeConductivityResponse{}
 	}
 	panic("server fuzz: no response type for " + method)
 }
@@ -673,9 +679,11 @@ func corpusTargets(tb testing.TB) map[string][][]byte {
 		}
 		out["FuzzModelJSON"] = append(out["FuzzModelJSON"], b)
 	}
+	gr, qh, co := heatSeeds(tb)
 	for target, seeds := range map[string][]proto.Message{
 		"FuzzCheckModel": checkSeeds(tb), "FuzzComputeModes": modesSeeds(tb), "FuzzComputeDispersion": dispersionSeeds(tb),
 		"FuzzComputeDos": dosSeeds(tb), "FuzzComputeThermal": thermalSeeds(tb),
+		"FuzzComputeGruneisen": gr, "FuzzComputeQuasiHarmonic": qh, "FuzzComputeConductivity": co,
 	} {
 		for _, s := range seeds {
 			b, err := proto.MarshalOptions{Deterministic: true}.Marshal(s)

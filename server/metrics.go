@@ -24,10 +24,10 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
-var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal}
+var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity}
 
 const (
 	kindCompile    = "compile"
@@ -39,6 +39,11 @@ const (
 	kindDispersion = "dispersion"
 	kindDOS        = "dos"
 	kindThermal    = "thermal"
+	// Heat: mode Grüneisen parameters, quasi-harmonic thermodynamics,
+	// lattice thermal conductivity (heat.go and its neighbours).
+	kindGruneisen    = "gruneisen"
+	kindQHA          = "quasi_harmonic"
+	kindConductivity = "conductivity"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one

@@ -69,10 +69,17 @@ func sumRuleCause(e *modelEntry, err error) error {
 // TempsK, so their indices agree; the range's values are checked here.
 var thermalFields = fieldMap{"temperatures_k": "temperatures_k", "route": "route"}
 
+// tempRequest is a request with an explicit temperature list and a range
+// (thermal, quasi-harmonic, conductivity and Grüneisen requests).
+type tempRequest interface {
+	GetTemperaturesK() []float64
+	GetRange() *modegridv1.TemperatureRange
+}
+
 // temperatures expands the explicit list and the range into one list,
 // canonical values, checking the range and the cap (the explicit values
 // are left to the engine's check).
-func (s *Service) temperatures(req *modegridv1.ComputeThermalRequest, vs *violations) []float64 {
+func (s *Service) temperatures(req tempRequest, vs *violations) []float64 {
 	var ts []float64
 	check := func(field string, t float64) bool {
 		if math.IsNaN(t) || math.IsInf(t, 0) || t < 0 || t > thermo.MaxTempK {

@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"text/tabwriter"
 
@@ -18,7 +19,9 @@ import (
 const demoSummary = `Runs the main job on the built-in example crystals (invented models of a
 chain, a two-site chain, a square net, an fcc crystal and a rock-salt-like
 crystal): check, the dispersion along a path, the DOS per site and the
-thermal properties. Prints a summary table and writes CSV tables and
+thermal properties; then the rock-salt-like crystal's thermal expansion
+and its thermal conductivity for three grain sizes (volumes, energies and
+scattering constants invented). Prints a summary table and writes CSV tables and
 figures into --dir (default ./demo-out). Without --server it starts an
 embedded server, as every command does.`
 
@@ -80,6 +83,14 @@ func cmdDemo(args []string, e *env) error {
 		rows = append(rows, row)
 		files += n
 	}
+	var heat []string
+	if slices.Contains(names, demoHeatExample) {
+		lines, n, err := demoHeat(ctx, cl, e, *dir, *kind, uint32(*grid))
+		if err != nil {
+			return fmt.Errorf("demo heat: %w", err)
+		}
+		heat, files = lines, files+n
+	}
 	e.prog.clear()
 	width := len("crystal")
 	for _, r := range rows {
@@ -94,6 +105,9 @@ func cmdDemo(args []string, e *env) error {
 	}
 	if err := tw.Flush(); err != nil {
 		return err
+	}
+	for _, l := range heat {
+		fmt.Fprintln(e.stdout, l)
 	}
 	abs, err := filepath.Abs(*dir)
 	if err != nil {

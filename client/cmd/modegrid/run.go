@@ -55,6 +55,9 @@ var commands = []struct {
 	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
+	{"gruneisen", "mode Grüneisen parameters from models at several volumes", cmdGruneisen},
+	{"qha", "quasi-harmonic thermal expansion, bulk modulus and Cp from models at several volumes", cmdQHA},
+	{"conductivity", "lattice thermal conductivity of bulk and finite samples, cumulative curves", cmdConductivity},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"upload", "send a model to --server (any size) and print the hash other calls can name it by", cmdUpload},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
@@ -64,7 +67,7 @@ func usageText() string {
 	var b strings.Builder
 	b.WriteString("usage: modegrid <command> [flags]     (modegrid <command> -h for its flags)\n\ncommands:\n")
 	for _, c := range commands {
-		fmt.Fprintf(&b, "  %-8s %s\n", c.name, c.summary)
+		fmt.Fprintf(&b, "  %-12s %s\n", c.name, c.summary)
 	}
 	b.WriteString(`
 common flags:
@@ -74,7 +77,7 @@ common flags:
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -101,7 +104,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, upload, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, gruneisen, qha, conductivity, shape, upload, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

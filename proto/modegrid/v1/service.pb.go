@@ -365,6 +365,121 @@ func (DebyeTemperatureStatus) EnumDescriptor() ([]byte, []int) {
 	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{5}
 }
 
+// EquationOfState selects the equation of state fitted to F(V).
+type EquationOfState int32
+
+const (
+	// Unspecified means Vinet.
+	EquationOfState_EQUATION_OF_STATE_UNSPECIFIED EquationOfState = 0
+	// Vinet, Ferrante, Rose & Smith, J. Geophys. Res. 92, 9319 (1987).
+	EquationOfState_EQUATION_OF_STATE_VINET EquationOfState = 1
+	// Third-order Birch–Murnaghan (Birch, Phys. Rev. 71, 809 (1947)).
+	EquationOfState_EQUATION_OF_STATE_BIRCH_MURNAGHAN EquationOfState = 2
+)
+
+// Enum value maps for EquationOfState.
+var (
+	EquationOfState_name = map[int32]string{
+		0: "EQUATION_OF_STATE_UNSPECIFIED",
+		1: "EQUATION_OF_STATE_VINET",
+		2: "EQUATION_OF_STATE_BIRCH_MURNAGHAN",
+	}
+	EquationOfState_value = map[string]int32{
+		"EQUATION_OF_STATE_UNSPECIFIED":     0,
+		"EQUATION_OF_STATE_VINET":           1,
+		"EQUATION_OF_STATE_BIRCH_MURNAGHAN": 2,
+	}
+)
+
+func (x EquationOfState) Enum() *EquationOfState {
+	p := new(EquationOfState)
+	*p = x
+	return p
+}
+
+func (x EquationOfState) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (EquationOfState) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[6].Descriptor()
+}
+
+func (EquationOfState) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[6]
+}
+
+func (x EquationOfState) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use EquationOfState.Descriptor instead.
+func (EquationOfState) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{6}
+}
+
+// SampleKind is the shape of a finite sample.
+type SampleKind int32
+
+const (
+	// Unspecified means bulk: no boundary scattering.
+	SampleKind_SAMPLE_KIND_UNSPECIFIED SampleKind = 0
+	// Bulk, no boundary scattering.
+	SampleKind_SAMPLE_KIND_BULK SampleKind = 1
+	// Film of thickness size_m with surface normal `normal`: rate
+	// F_p·2|v·n|/L.
+	SampleKind_SAMPLE_KIND_FILM SampleKind = 2
+	// Wire of diameter size_m: rate F_p·|v|/L.
+	SampleKind_SAMPLE_KIND_WIRE SampleKind = 3
+	// Grains of size size_m: rate F_p·|v|/L.
+	SampleKind_SAMPLE_KIND_GRAIN SampleKind = 4
+)
+
+// Enum value maps for SampleKind.
+var (
+	SampleKind_name = map[int32]string{
+		0: "SAMPLE_KIND_UNSPECIFIED",
+		1: "SAMPLE_KIND_BULK",
+		2: "SAMPLE_KIND_FILM",
+		3: "SAMPLE_KIND_WIRE",
+		4: "SAMPLE_KIND_GRAIN",
+	}
+	SampleKind_value = map[string]int32{
+		"SAMPLE_KIND_UNSPECIFIED": 0,
+		"SAMPLE_KIND_BULK":        1,
+		"SAMPLE_KIND_FILM":        2,
+		"SAMPLE_KIND_WIRE":        3,
+		"SAMPLE_KIND_GRAIN":       4,
+	}
+)
+
+func (x SampleKind) Enum() *SampleKind {
+	p := new(SampleKind)
+	*p = x
+	return p
+}
+
+func (x SampleKind) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (SampleKind) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[7].Descriptor()
+}
+
+func (SampleKind) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[7]
+}
+
+func (x SampleKind) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use SampleKind.Descriptor instead.
+func (SampleKind) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{7}
+}
+
 // ModelSource is a model sent inline or a reference to a model the server has
 // already seen. An unknown reference gets NOT_FOUND: resend the model inline.
 type ModelSource struct {
@@ -3436,6 +3551,1683 @@ func (x *RequestCost) GetAdmitted() bool {
 	return false
 }
 
+// ComputeGruneisenRequest asks for mode Grüneisen parameters. The models are
+// one crystal at different volumes: the same sites in the same order (equal
+// labels and masses), only lattice and force constants differing; at least 2,
+// at most 64. γ is taken at the reference volume by finite differences in
+// ln V (three-point where three or more volumes are given), each volume's
+// modes matched to the reference's by eigenvector overlap.
+type ComputeGruneisenRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The models, at least 2.
+	Models []*ModelSource `protobuf:"bytes,1,rep,name=models,proto3" json:"models,omitempty"`
+	// Index into models of the reference volume; absent means the middle
+	// volume (the lower middle for an even count).
+	Reference *uint32 `protobuf:"varint,2,opt,name=reference,proto3,oneof" json:"reference,omitempty"`
+	// The q-points (list, grid or finite crystal; every point of a grid is
+	// computed). Exactly one of qpoints and path.
+	Qpoints *QPointSet `protobuf:"bytes,3,opt,name=qpoints,proto3" json:"qpoints,omitempty"`
+	// Corners of a path (as ComputeDispersionRequest.path), at least two.
+	Path []*PathPoint `protobuf:"bytes,4,rep,name=path,proto3" json:"path,omitempty"`
+	// Samples along the path (0: 201).
+	PathPoints uint32 `protobuf:"varint,5,opt,name=path_points,json=pathPoints,proto3" json:"path_points,omitempty"`
+	// Temperatures of the heat-capacity-weighted mean γ(T), K (grid or finite
+	// crystal only; weights from the grid).
+	TemperaturesK []float64 `protobuf:"fixed64,6,rep,packed,name=temperatures_k,json=temperaturesK,proto3" json:"temperatures_k,omitempty"`
+	// A range of temperatures, appended after the explicit list.
+	Range         *TemperatureRange `protobuf:"bytes,7,opt,name=range,proto3" json:"range,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeGruneisenRequest) Reset() {
+	*x = ComputeGruneisenRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeGruneisenRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeGruneisenRequest) ProtoMessage() {}
+
+func (x *ComputeGruneisenRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeGruneisenRequest.ProtoReflect.Descriptor instead.
+func (*ComputeGruneisenRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{32}
+}
+
+func (x *ComputeGruneisenRequest) GetModels() []*ModelSource {
+	if x != nil {
+		return x.Models
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenRequest) GetReference() uint32 {
+	if x != nil && x.Reference != nil {
+		return *x.Reference
+	}
+	return 0
+}
+
+func (x *ComputeGruneisenRequest) GetQpoints() *QPointSet {
+	if x != nil {
+		return x.Qpoints
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenRequest) GetPath() []*PathPoint {
+	if x != nil {
+		return x.Path
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenRequest) GetPathPoints() uint32 {
+	if x != nil {
+		return x.PathPoints
+	}
+	return 0
+}
+
+func (x *ComputeGruneisenRequest) GetTemperaturesK() []float64 {
+	if x != nil {
+		return x.TemperaturesK
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenRequest) GetRange() *TemperatureRange {
+	if x != nil {
+		return x.Range
+	}
+	return nil
+}
+
+// GruneisenPoint holds the mode Grüneisen parameters at one q-point.
+type GruneisenPoint struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The q-point, fractional reciprocal coordinates.
+	Q *QPoint `protobuf:"bytes,1,opt,name=q,proto3" json:"q,omitempty"`
+	// Distance along the path, Å⁻¹ (paths only).
+	DistanceInvA float64 `protobuf:"fixed64,2,opt,name=distance_inv_a,json=distanceInvA,proto3" json:"distance_inv_a,omitempty"`
+	// Corner label on a path, otherwise empty.
+	Label string `protobuf:"bytes,3,opt,name=label,proto3" json:"label,omitempty"`
+	// Frequencies at the reference volume, THz, ascending.
+	FrequenciesThz []float64 `protobuf:"fixed64,4,rep,packed,name=frequencies_thz,json=frequenciesThz,proto3" json:"frequencies_thz,omitempty"`
+	// γ per mode (the order of frequencies_thz), dimensionless; 0 where
+	// defined is false.
+	Gamma []float64 `protobuf:"fixed64,5,rep,packed,name=gamma,proto3" json:"gamma,omitempty"`
+	// False for a mode of zero or imaginary frequency at some volume (the
+	// acoustic modes at Γ): γ is not defined there.
+	Defined       []bool `protobuf:"varint,6,rep,packed,name=defined,proto3" json:"defined,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *GruneisenPoint) Reset() {
+	*x = GruneisenPoint{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *GruneisenPoint) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*GruneisenPoint) ProtoMessage() {}
+
+func (x *GruneisenPoint) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use GruneisenPoint.ProtoReflect.Descriptor instead.
+func (*GruneisenPoint) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{33}
+}
+
+func (x *GruneisenPoint) GetQ() *QPoint {
+	if x != nil {
+		return x.Q
+	}
+	return nil
+}
+
+func (x *GruneisenPoint) GetDistanceInvA() float64 {
+	if x != nil {
+		return x.DistanceInvA
+	}
+	return 0
+}
+
+func (x *GruneisenPoint) GetLabel() string {
+	if x != nil {
+		return x.Label
+	}
+	return ""
+}
+
+func (x *GruneisenPoint) GetFrequenciesThz() []float64 {
+	if x != nil {
+		return x.FrequenciesThz
+	}
+	return nil
+}
+
+func (x *GruneisenPoint) GetGamma() []float64 {
+	if x != nil {
+		return x.Gamma
+	}
+	return nil
+}
+
+func (x *GruneisenPoint) GetDefined() []bool {
+	if x != nil {
+		return x.Defined
+	}
+	return nil
+}
+
+// GammaAtTemperature is the heat-capacity-weighted mean of the mode γ.
+type GammaAtTemperature struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Temperature, K.
+	TemperatureK float64 `protobuf:"fixed64,1,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// Σ C γ / Σ C over the grid's modes, dimensionless.
+	Gamma float64 `protobuf:"fixed64,2,opt,name=gamma,proto3" json:"gamma,omitempty"`
+	// False at T = 0 (no mode carries heat capacity): gamma is then 0.
+	Defined       bool `protobuf:"varint,3,opt,name=defined,proto3" json:"defined,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *GammaAtTemperature) Reset() {
+	*x = GammaAtTemperature{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[34]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *GammaAtTemperature) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*GammaAtTemperature) ProtoMessage() {}
+
+func (x *GammaAtTemperature) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[34]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use GammaAtTemperature.ProtoReflect.Descriptor instead.
+func (*GammaAtTemperature) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{34}
+}
+
+func (x *GammaAtTemperature) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *GammaAtTemperature) GetGamma() float64 {
+	if x != nil {
+		return x.Gamma
+	}
+	return 0
+}
+
+func (x *GammaAtTemperature) GetDefined() bool {
+	if x != nil {
+		return x.Defined
+	}
+	return false
+}
+
+// ComputeGruneisenResponse holds mode Grüneisen parameters.
+type ComputeGruneisenResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the reference model.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters (they name every model's hash).
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Cell volume of each model, Å³ (Å² and Å for 2D and 1D models), in
+	// request order.
+	VolumesA3 []float64 `protobuf:"fixed64,3,rep,packed,name=volumes_a3,json=volumesA3,proto3" json:"volumes_a3,omitempty"`
+	// Index of the reference model in the request.
+	Reference uint32 `protobuf:"varint,4,opt,name=reference,proto3" json:"reference,omitempty"`
+	// One entry per q-point or path sample.
+	Points []*GruneisenPoint `protobuf:"bytes,5,rep,name=points,proto3" json:"points,omitempty"`
+	// Mean γ(T), one per requested temperature.
+	Averages []*GammaAtTemperature `protobuf:"bytes,6,rep,name=averages,proto3" json:"averages,omitempty"`
+	// Smallest overlap |⟨e_ref|e_V⟩|² of two modes matched across volumes
+	// (1: identical eigenvectors; well below 0.5: volumes too far apart to
+	// follow the modes).
+	MinOverlap    float64 `protobuf:"fixed64,7,opt,name=min_overlap,json=minOverlap,proto3" json:"min_overlap,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeGruneisenResponse) Reset() {
+	*x = ComputeGruneisenResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[35]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeGruneisenResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeGruneisenResponse) ProtoMessage() {}
+
+func (x *ComputeGruneisenResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[35]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeGruneisenResponse.ProtoReflect.Descriptor instead.
+func (*ComputeGruneisenResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{35}
+}
+
+func (x *ComputeGruneisenResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeGruneisenResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeGruneisenResponse) GetVolumesA3() []float64 {
+	if x != nil {
+		return x.VolumesA3
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenResponse) GetReference() uint32 {
+	if x != nil {
+		return x.Reference
+	}
+	return 0
+}
+
+func (x *ComputeGruneisenResponse) GetPoints() []*GruneisenPoint {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenResponse) GetAverages() []*GammaAtTemperature {
+	if x != nil {
+		return x.Averages
+	}
+	return nil
+}
+
+func (x *ComputeGruneisenResponse) GetMinOverlap() float64 {
+	if x != nil {
+		return x.MinOverlap
+	}
+	return 0
+}
+
+// ComputeQuasiHarmonicRequest asks for quasi-harmonic thermodynamics. The
+// models are one crystal (3D) at five or more volumes (as in
+// ComputeGruneisenRequest), each with its static energy.
+type ComputeQuasiHarmonicRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The models, at least 5.
+	Models []*ModelSource `protobuf:"bytes,1,rep,name=models,proto3" json:"models,omitempty"`
+	// Static (lattice) energy of each model's cell, eV, in the order of models:
+	// the user's own calculation at that volume, without vibrations.
+	StaticEnergiesEv []float64 `protobuf:"fixed64,2,rep,packed,name=static_energies_ev,json=staticEnergiesEv,proto3" json:"static_energies_ev,omitempty"`
+	// Grid or finite crystal of every volume's thermal sums.
+	Qpoints *QPointSet `protobuf:"bytes,3,opt,name=qpoints,proto3" json:"qpoints,omitempty"`
+	// Temperatures, K.
+	TemperaturesK []float64 `protobuf:"fixed64,4,rep,packed,name=temperatures_k,json=temperaturesK,proto3" json:"temperatures_k,omitempty"`
+	// A range of temperatures, appended after the explicit list.
+	Range *TemperatureRange `protobuf:"bytes,5,opt,name=range,proto3" json:"range,omitempty"`
+	// Pressure, GPa (0: the free energy F is minimised).
+	PressureGpa float64 `protobuf:"fixed64,6,opt,name=pressure_gpa,json=pressureGpa,proto3" json:"pressure_gpa,omitempty"`
+	// The equation of state fitted to F(V) at each temperature.
+	Eos EquationOfState `protobuf:"varint,7,opt,name=eos,proto3,enum=modegrid.v1.EquationOfState" json:"eos,omitempty"`
+	// Leave imaginary modes out of the sums instead of failing.
+	AllowUnstable bool `protobuf:"varint,8,opt,name=allow_unstable,json=allowUnstable,proto3" json:"allow_unstable,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeQuasiHarmonicRequest) Reset() {
+	*x = ComputeQuasiHarmonicRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[36]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeQuasiHarmonicRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeQuasiHarmonicRequest) ProtoMessage() {}
+
+func (x *ComputeQuasiHarmonicRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[36]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeQuasiHarmonicRequest.ProtoReflect.Descriptor instead.
+func (*ComputeQuasiHarmonicRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{36}
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetModels() []*ModelSource {
+	if x != nil {
+		return x.Models
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetStaticEnergiesEv() []float64 {
+	if x != nil {
+		return x.StaticEnergiesEv
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetQpoints() *QPointSet {
+	if x != nil {
+		return x.Qpoints
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetTemperaturesK() []float64 {
+	if x != nil {
+		return x.TemperaturesK
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetRange() *TemperatureRange {
+	if x != nil {
+		return x.Range
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetPressureGpa() float64 {
+	if x != nil {
+		return x.PressureGpa
+	}
+	return 0
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetEos() EquationOfState {
+	if x != nil {
+		return x.Eos
+	}
+	return EquationOfState_EQUATION_OF_STATE_UNSPECIFIED
+}
+
+func (x *ComputeQuasiHarmonicRequest) GetAllowUnstable() bool {
+	if x != nil {
+		return x.AllowUnstable
+	}
+	return false
+}
+
+// EosFit is an equation of state fitted at one temperature, with residuals.
+type EosFit struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Energy at the fit's minimum, eV per cell.
+	E0Ev float64 `protobuf:"fixed64,1,opt,name=e0_ev,json=e0Ev,proto3" json:"e0_ev,omitempty"`
+	// Volume at the minimum, Å³.
+	V0A3 float64 `protobuf:"fixed64,2,opt,name=v0_a3,json=v0A3,proto3" json:"v0_a3,omitempty"`
+	// Bulk modulus at V0, GPa.
+	B0Gpa float64 `protobuf:"fixed64,3,opt,name=b0_gpa,json=b0Gpa,proto3" json:"b0_gpa,omitempty"`
+	// Its pressure derivative B0', dimensionless.
+	B0Prime float64 `protobuf:"fixed64,4,opt,name=b0_prime,json=b0Prime,proto3" json:"b0_prime,omitempty"`
+	// Root-mean-square residual of the fit, eV.
+	RmsResidualEv float64 `protobuf:"fixed64,5,opt,name=rms_residual_ev,json=rmsResidualEv,proto3" json:"rms_residual_ev,omitempty"`
+	// Largest absolute residual, eV.
+	MaxResidualEv float64 `protobuf:"fixed64,6,opt,name=max_residual_ev,json=maxResidualEv,proto3" json:"max_residual_ev,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *EosFit) Reset() {
+	*x = EosFit{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[37]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *EosFit) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*EosFit) ProtoMessage() {}
+
+func (x *EosFit) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[37]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use EosFit.ProtoReflect.Descriptor instead.
+func (*EosFit) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{37}
+}
+
+func (x *EosFit) GetE0Ev() float64 {
+	if x != nil {
+		return x.E0Ev
+	}
+	return 0
+}
+
+func (x *EosFit) GetV0A3() float64 {
+	if x != nil {
+		return x.V0A3
+	}
+	return 0
+}
+
+func (x *EosFit) GetB0Gpa() float64 {
+	if x != nil {
+		return x.B0Gpa
+	}
+	return 0
+}
+
+func (x *EosFit) GetB0Prime() float64 {
+	if x != nil {
+		return x.B0Prime
+	}
+	return 0
+}
+
+func (x *EosFit) GetRmsResidualEv() float64 {
+	if x != nil {
+		return x.RmsResidualEv
+	}
+	return 0
+}
+
+func (x *EosFit) GetMaxResidualEv() float64 {
+	if x != nil {
+		return x.MaxResidualEv
+	}
+	return 0
+}
+
+// QuasiHarmonicPoint is the crystal's state at one temperature and the
+// requested pressure. Heat capacities per cell, per mole of cells and per
+// mole of atoms as in ThermalPoint.
+type QuasiHarmonicPoint struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Temperature, K.
+	TemperatureK float64 `protobuf:"fixed64,1,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// Equilibrium volume V(T), Å³ per cell.
+	VolumeA3 float64 `protobuf:"fixed64,2,opt,name=volume_a3,json=volumeA3,proto3" json:"volume_a3,omitempty"`
+	// Gibbs energy G = F + PV at V(T), eV per cell.
+	GibbsEnergyEv float64 `protobuf:"fixed64,3,opt,name=gibbs_energy_ev,json=gibbsEnergyEv,proto3" json:"gibbs_energy_ev,omitempty"`
+	// Isothermal bulk modulus B_T = V ∂²F/∂V², GPa.
+	BulkModulusGpa float64 `protobuf:"fixed64,4,opt,name=bulk_modulus_gpa,json=bulkModulusGpa,proto3" json:"bulk_modulus_gpa,omitempty"`
+	// Volume expansion coefficient (1/V)(∂V/∂T)_P, 1/K.
+	VolumeExpansionPerK float64 `protobuf:"fixed64,5,opt,name=volume_expansion_per_k,json=volumeExpansionPerK,proto3" json:"volume_expansion_per_k,omitempty"`
+	// Mean linear expansion coefficient, a third of the volume one, 1/K.
+	LinearExpansionPerK float64 `protobuf:"fixed64,6,opt,name=linear_expansion_per_k,json=linearExpansionPerK,proto3" json:"linear_expansion_per_k,omitempty"`
+	// Cv at V(T), eV/K per cell.
+	HeatCapacityVEvPerK float64 `protobuf:"fixed64,7,opt,name=heat_capacity_v_ev_per_k,json=heatCapacityVEvPerK,proto3" json:"heat_capacity_v_ev_per_k,omitempty"`
+	// Cp = Cv + α² B_T V T, eV/K per cell.
+	HeatCapacityPEvPerK float64 `protobuf:"fixed64,8,opt,name=heat_capacity_p_ev_per_k,json=heatCapacityPEvPerK,proto3" json:"heat_capacity_p_ev_per_k,omitempty"`
+	// Cv per mole of cells, J/(mol·K).
+	HeatCapacityVJPerMolK float64 `protobuf:"fixed64,9,opt,name=heat_capacity_v_j_per_mol_k,json=heatCapacityVJPerMolK,proto3" json:"heat_capacity_v_j_per_mol_k,omitempty"`
+	// Cp per mole of cells, J/(mol·K).
+	HeatCapacityPJPerMolK float64 `protobuf:"fixed64,10,opt,name=heat_capacity_p_j_per_mol_k,json=heatCapacityPJPerMolK,proto3" json:"heat_capacity_p_j_per_mol_k,omitempty"`
+	// Cv per mole of atoms, J/(mol·K).
+	HeatCapacityVJPerMolAtomsK float64 `protobuf:"fixed64,11,opt,name=heat_capacity_v_j_per_mol_atoms_k,json=heatCapacityVJPerMolAtomsK,proto3" json:"heat_capacity_v_j_per_mol_atoms_k,omitempty"`
+	// Cp per mole of atoms, J/(mol·K).
+	HeatCapacityPJPerMolAtomsK float64 `protobuf:"fixed64,12,opt,name=heat_capacity_p_j_per_mol_atoms_k,json=heatCapacityPJPerMolAtomsK,proto3" json:"heat_capacity_p_j_per_mol_atoms_k,omitempty"`
+	// Thermodynamic Grüneisen parameter α B_T V/Cv.
+	Gruneisen float64 `protobuf:"fixed64,13,opt,name=gruneisen,proto3" json:"gruneisen,omitempty"`
+	// False at T = 0, where gruneisen is not defined (0).
+	GruneisenDefined bool `protobuf:"varint,14,opt,name=gruneisen_defined,json=gruneisenDefined,proto3" json:"gruneisen_defined,omitempty"`
+	// The equation of state fitted to F(V) at this temperature.
+	Fit *EosFit `protobuf:"bytes,15,opt,name=fit,proto3" json:"fit,omitempty"`
+	// RMS residual of the polynomial fit of S(V) giving α, eV/K.
+	EntropyFitRmsEvPerK float64 `protobuf:"fixed64,16,opt,name=entropy_fit_rms_ev_per_k,json=entropyFitRmsEvPerK,proto3" json:"entropy_fit_rms_ev_per_k,omitempty"`
+	// False when V(T) lies outside the volumes given: the values are then the
+	// equation of state's extrapolation (warning says so).
+	Bracketed bool `protobuf:"varint,17,opt,name=bracketed,proto3" json:"bracketed,omitempty"`
+	// False when no minimum of G was found (all values 0; warning says why).
+	Found bool `protobuf:"varint,18,opt,name=found,proto3" json:"found,omitempty"`
+	// Empty, or why this point is not to be trusted as it stands.
+	Warning       string `protobuf:"bytes,19,opt,name=warning,proto3" json:"warning,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QuasiHarmonicPoint) Reset() {
+	*x = QuasiHarmonicPoint{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[38]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QuasiHarmonicPoint) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QuasiHarmonicPoint) ProtoMessage() {}
+
+func (x *QuasiHarmonicPoint) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[38]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QuasiHarmonicPoint.ProtoReflect.Descriptor instead.
+func (*QuasiHarmonicPoint) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{38}
+}
+
+func (x *QuasiHarmonicPoint) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetVolumeA3() float64 {
+	if x != nil {
+		return x.VolumeA3
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetGibbsEnergyEv() float64 {
+	if x != nil {
+		return x.GibbsEnergyEv
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetBulkModulusGpa() float64 {
+	if x != nil {
+		return x.BulkModulusGpa
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetVolumeExpansionPerK() float64 {
+	if x != nil {
+		return x.VolumeExpansionPerK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetLinearExpansionPerK() float64 {
+	if x != nil {
+		return x.LinearExpansionPerK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityVEvPerK() float64 {
+	if x != nil {
+		return x.HeatCapacityVEvPerK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityPEvPerK() float64 {
+	if x != nil {
+		return x.HeatCapacityPEvPerK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityVJPerMolK() float64 {
+	if x != nil {
+		return x.HeatCapacityVJPerMolK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityPJPerMolK() float64 {
+	if x != nil {
+		return x.HeatCapacityPJPerMolK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityVJPerMolAtomsK() float64 {
+	if x != nil {
+		return x.HeatCapacityVJPerMolAtomsK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetHeatCapacityPJPerMolAtomsK() float64 {
+	if x != nil {
+		return x.HeatCapacityPJPerMolAtomsK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetGruneisen() float64 {
+	if x != nil {
+		return x.Gruneisen
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetGruneisenDefined() bool {
+	if x != nil {
+		return x.GruneisenDefined
+	}
+	return false
+}
+
+func (x *QuasiHarmonicPoint) GetFit() *EosFit {
+	if x != nil {
+		return x.Fit
+	}
+	return nil
+}
+
+func (x *QuasiHarmonicPoint) GetEntropyFitRmsEvPerK() float64 {
+	if x != nil {
+		return x.EntropyFitRmsEvPerK
+	}
+	return 0
+}
+
+func (x *QuasiHarmonicPoint) GetBracketed() bool {
+	if x != nil {
+		return x.Bracketed
+	}
+	return false
+}
+
+func (x *QuasiHarmonicPoint) GetFound() bool {
+	if x != nil {
+		return x.Found
+	}
+	return false
+}
+
+func (x *QuasiHarmonicPoint) GetWarning() string {
+	if x != nil {
+		return x.Warning
+	}
+	return ""
+}
+
+// ComputeQuasiHarmonicResponse holds quasi-harmonic thermodynamics.
+type ComputeQuasiHarmonicResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the middle-volume model.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters (they name every model's hash).
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Cell volume of each model, Å³, in request order.
+	VolumesA3 []float64 `protobuf:"fixed64,3,rep,packed,name=volumes_a3,json=volumesA3,proto3" json:"volumes_a3,omitempty"`
+	// The equation of state of the static energies alone.
+	StaticFit *EosFit `protobuf:"bytes,4,opt,name=static_fit,json=staticFit,proto3" json:"static_fit,omitempty"`
+	// One point per temperature, in request order.
+	Points []*QuasiHarmonicPoint `protobuf:"bytes,5,rep,name=points,proto3" json:"points,omitempty"`
+	// Points not bracketed by the volumes or without a minimum.
+	Unbracketed uint32 `protobuf:"varint,6,opt,name=unbracketed,proto3" json:"unbracketed,omitempty"`
+	// Atoms (sites) per cell.
+	AtomsPerCell uint32 `protobuf:"varint,7,opt,name=atoms_per_cell,json=atomsPerCell,proto3" json:"atoms_per_cell,omitempty"`
+	// Pressure used, GPa.
+	PressureGpa   float64 `protobuf:"fixed64,8,opt,name=pressure_gpa,json=pressureGpa,proto3" json:"pressure_gpa,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeQuasiHarmonicResponse) Reset() {
+	*x = ComputeQuasiHarmonicResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[39]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeQuasiHarmonicResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeQuasiHarmonicResponse) ProtoMessage() {}
+
+func (x *ComputeQuasiHarmonicResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[39]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeQuasiHarmonicResponse.ProtoReflect.Descriptor instead.
+func (*ComputeQuasiHarmonicResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{39}
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetVolumesA3() []float64 {
+	if x != nil {
+		return x.VolumesA3
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetStaticFit() *EosFit {
+	if x != nil {
+		return x.StaticFit
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetPoints() []*QuasiHarmonicPoint {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetUnbracketed() uint32 {
+	if x != nil {
+		return x.Unbracketed
+	}
+	return 0
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetAtomsPerCell() uint32 {
+	if x != nil {
+		return x.AtomsPerCell
+	}
+	return 0
+}
+
+func (x *ComputeQuasiHarmonicResponse) GetPressureGpa() float64 {
+	if x != nil {
+		return x.PressureGpa
+	}
+	return 0
+}
+
+// SampleGeometry is one sample whose boundaries scatter phonons (Casimir,
+// Physica 5, 495 (1938)); F_p = (1−p)/(1+p) for the specular fraction p.
+type SampleGeometry struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The shape.
+	Kind SampleKind `protobuf:"varint,1,opt,name=kind,proto3,enum=modegrid.v1.SampleKind" json:"kind,omitempty"`
+	// Thickness, diameter or grain size, m (1e-10 to 10).
+	SizeM float64 `protobuf:"fixed64,2,opt,name=size_m,json=sizeM,proto3" json:"size_m,omitempty"`
+	// Film surface normal, Cartesian, any length (films only).
+	Normal *Vec3 `protobuf:"bytes,3,opt,name=normal,proto3" json:"normal,omitempty"`
+	// Specular fraction p of boundary reflections, 0 (diffuse) to 1.
+	Specularity   float64 `protobuf:"fixed64,4,opt,name=specularity,proto3" json:"specularity,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SampleGeometry) Reset() {
+	*x = SampleGeometry{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[40]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SampleGeometry) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SampleGeometry) ProtoMessage() {}
+
+func (x *SampleGeometry) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[40]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SampleGeometry.ProtoReflect.Descriptor instead.
+func (*SampleGeometry) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{40}
+}
+
+func (x *SampleGeometry) GetKind() SampleKind {
+	if x != nil {
+		return x.Kind
+	}
+	return SampleKind_SAMPLE_KIND_UNSPECIFIED
+}
+
+func (x *SampleGeometry) GetSizeM() float64 {
+	if x != nil {
+		return x.SizeM
+	}
+	return 0
+}
+
+func (x *SampleGeometry) GetNormal() *Vec3 {
+	if x != nil {
+		return x.Normal
+	}
+	return nil
+}
+
+func (x *SampleGeometry) GetSpecularity() float64 {
+	if x != nil {
+		return x.Specularity
+	}
+	return 0
+}
+
+// PointDefectScattering is mass-difference (isotope, point-defect)
+// scattering, Tamura's rate (π/6)V_a Γ ω² g(ω) (Klemens 1955; Tamura, Phys.
+// Rev. B 27, 858 (1983)).
+type PointDefectScattering struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Turn it on.
+	Enabled bool `protobuf:"varint,1,opt,name=enabled,proto3" json:"enabled,omitempty"`
+	// Mass variance g₂ = Σ f_i(1 − m_i/m̄)² of each site (one per site);
+	// empty: natural isotopes of the element each site's label names (a
+	// label naming no element of the built-in table is an error).
+	SiteG2        []float64 `protobuf:"fixed64,2,rep,packed,name=site_g2,json=siteG2,proto3" json:"site_g2,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *PointDefectScattering) Reset() {
+	*x = PointDefectScattering{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[41]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PointDefectScattering) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PointDefectScattering) ProtoMessage() {}
+
+func (x *PointDefectScattering) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[41]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PointDefectScattering.ProtoReflect.Descriptor instead.
+func (*PointDefectScattering) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{41}
+}
+
+func (x *PointDefectScattering) GetEnabled() bool {
+	if x != nil {
+		return x.Enabled
+	}
+	return false
+}
+
+func (x *PointDefectScattering) GetSiteG2() []float64 {
+	if x != nil {
+		return x.SiteG2
+	}
+	return nil
+}
+
+// UmklappScattering is the empirical Umklapp rate
+// b ħγ²ω²T e^(−θ/3T)/(M̄ v̄² θ) in the form used by Slack (Phys. Rev. 133,
+// A253 (1964); Solid State Physics 34, 1 (1979)).
+type UmklappScattering struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Turn it on.
+	Enabled bool `protobuf:"varint,1,opt,name=enabled,proto3" json:"enabled,omitempty"`
+	// The constant b, dimensionless (0: 1).
+	B float64 `protobuf:"fixed64,2,opt,name=b,proto3" json:"b,omitempty"`
+	// γ of every mode (used unless one of the two below is given).
+	Gruneisen float64 `protobuf:"fixed64,3,opt,name=gruneisen,proto3" json:"gruneisen,omitempty"`
+	// γ per branch, one per branch (modes counted by frequency at each q).
+	GruneisenPerBranch []float64 `protobuf:"fixed64,4,rep,packed,name=gruneisen_per_branch,json=gruneisenPerBranch,proto3" json:"gruneisen_per_branch,omitempty"`
+	// Models of the same crystal at other volumes: γ per mode on the grid
+	// from these and the request's model (the reference volume).
+	VolumeModels []*ModelSource `protobuf:"bytes,5,rep,name=volume_models,json=volumeModels,proto3" json:"volume_models,omitempty"`
+	// θ, K (0: the model's acoustic Debye temperature θ_D n^(−1/3)).
+	ThetaK float64 `protobuf:"fixed64,6,opt,name=theta_k,json=thetaK,proto3" json:"theta_k,omitempty"`
+	// v̄, km/s (0: the model's Debye mean sound velocity).
+	VelocityKmS float64 `protobuf:"fixed64,7,opt,name=velocity_km_s,json=velocityKmS,proto3" json:"velocity_km_s,omitempty"`
+	// M̄, u (0: the mean site mass).
+	MeanMassAmu   float64 `protobuf:"fixed64,8,opt,name=mean_mass_amu,json=meanMassAmu,proto3" json:"mean_mass_amu,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UmklappScattering) Reset() {
+	*x = UmklappScattering{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[42]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UmklappScattering) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UmklappScattering) ProtoMessage() {}
+
+func (x *UmklappScattering) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[42]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UmklappScattering.ProtoReflect.Descriptor instead.
+func (*UmklappScattering) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{42}
+}
+
+func (x *UmklappScattering) GetEnabled() bool {
+	if x != nil {
+		return x.Enabled
+	}
+	return false
+}
+
+func (x *UmklappScattering) GetB() float64 {
+	if x != nil {
+		return x.B
+	}
+	return 0
+}
+
+func (x *UmklappScattering) GetGruneisen() float64 {
+	if x != nil {
+		return x.Gruneisen
+	}
+	return 0
+}
+
+func (x *UmklappScattering) GetGruneisenPerBranch() []float64 {
+	if x != nil {
+		return x.GruneisenPerBranch
+	}
+	return nil
+}
+
+func (x *UmklappScattering) GetVolumeModels() []*ModelSource {
+	if x != nil {
+		return x.VolumeModels
+	}
+	return nil
+}
+
+func (x *UmklappScattering) GetThetaK() float64 {
+	if x != nil {
+		return x.ThetaK
+	}
+	return 0
+}
+
+func (x *UmklappScattering) GetVelocityKmS() float64 {
+	if x != nil {
+		return x.VelocityKmS
+	}
+	return 0
+}
+
+func (x *UmklappScattering) GetMeanMassAmu() float64 {
+	if x != nil {
+		return x.MeanMassAmu
+	}
+	return 0
+}
+
+// PowerLawScattering is a user rate A (ν/1 THz)ⁿ.
+type PowerLawScattering struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Turn it on.
+	Enabled bool `protobuf:"varint,1,opt,name=enabled,proto3" json:"enabled,omitempty"`
+	// A, 1/s.
+	RatePerS float64 `protobuf:"fixed64,2,opt,name=rate_per_s,json=ratePerS,proto3" json:"rate_per_s,omitempty"`
+	// n ≥ 0 (0: a constant rate).
+	Exponent      float64 `protobuf:"fixed64,3,opt,name=exponent,proto3" json:"exponent,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *PowerLawScattering) Reset() {
+	*x = PowerLawScattering{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[43]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PowerLawScattering) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PowerLawScattering) ProtoMessage() {}
+
+func (x *PowerLawScattering) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[43]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PowerLawScattering.ProtoReflect.Descriptor instead.
+func (*PowerLawScattering) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{43}
+}
+
+func (x *PowerLawScattering) GetEnabled() bool {
+	if x != nil {
+		return x.Enabled
+	}
+	return false
+}
+
+func (x *PowerLawScattering) GetRatePerS() float64 {
+	if x != nil {
+		return x.RatePerS
+	}
+	return 0
+}
+
+func (x *PowerLawScattering) GetExponent() float64 {
+	if x != nil {
+		return x.Exponent
+	}
+	return 0
+}
+
+// ComputeConductivityRequest asks for the lattice thermal conductivity of a
+// 3D crystal (3 polarizations) in the relaxation-time approximation, rates
+// combined by Matthiessen's rule.
+type ComputeConductivityRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The model.
+	Model *ModelSource `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Grid or finite crystal (every point is computed).
+	Qpoints *QPointSet `protobuf:"bytes,2,opt,name=qpoints,proto3" json:"qpoints,omitempty"`
+	// Temperatures, K.
+	TemperaturesK []float64 `protobuf:"fixed64,3,rep,packed,name=temperatures_k,json=temperaturesK,proto3" json:"temperatures_k,omitempty"`
+	// A range of temperatures, appended after the explicit list.
+	Range *TemperatureRange `protobuf:"bytes,4,opt,name=range,proto3" json:"range,omitempty"`
+	// Sample geometries: one κ(T) series each (none: bulk).
+	Samples []*SampleGeometry `protobuf:"bytes,5,rep,name=samples,proto3" json:"samples,omitempty"`
+	// Point-defect and isotope scattering.
+	PointDefects *PointDefectScattering `protobuf:"bytes,6,opt,name=point_defects,json=pointDefects,proto3" json:"point_defects,omitempty"`
+	// Umklapp scattering.
+	Umklapp *UmklappScattering `protobuf:"bytes,7,opt,name=umklapp,proto3" json:"umklapp,omitempty"`
+	// A user power-law rate.
+	PowerLaw *PowerLawScattering `protobuf:"bytes,8,opt,name=power_law,json=powerLaw,proto3" json:"power_law,omitempty"`
+	// Temperature of the cumulative curves, K (0: none).
+	CumulativeTemperatureK float64 `protobuf:"fixed64,9,opt,name=cumulative_temperature_k,json=cumulativeTemperatureK,proto3" json:"cumulative_temperature_k,omitempty"`
+	// Points of each cumulative curve (0: 100).
+	CumulativeBins uint32 `protobuf:"varint,10,opt,name=cumulative_bins,json=cumulativeBins,proto3" json:"cumulative_bins,omitempty"`
+	// Leave imaginary modes out instead of failing.
+	AllowUnstable bool `protobuf:"varint,11,opt,name=allow_unstable,json=allowUnstable,proto3" json:"allow_unstable,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeConductivityRequest) Reset() {
+	*x = ComputeConductivityRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[44]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeConductivityRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeConductivityRequest) ProtoMessage() {}
+
+func (x *ComputeConductivityRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[44]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeConductivityRequest.ProtoReflect.Descriptor instead.
+func (*ComputeConductivityRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{44}
+}
+
+func (x *ComputeConductivityRequest) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetQpoints() *QPointSet {
+	if x != nil {
+		return x.Qpoints
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetTemperaturesK() []float64 {
+	if x != nil {
+		return x.TemperaturesK
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetRange() *TemperatureRange {
+	if x != nil {
+		return x.Range
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetSamples() []*SampleGeometry {
+	if x != nil {
+		return x.Samples
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetPointDefects() *PointDefectScattering {
+	if x != nil {
+		return x.PointDefects
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetUmklapp() *UmklappScattering {
+	if x != nil {
+		return x.Umklapp
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetPowerLaw() *PowerLawScattering {
+	if x != nil {
+		return x.PowerLaw
+	}
+	return nil
+}
+
+func (x *ComputeConductivityRequest) GetCumulativeTemperatureK() float64 {
+	if x != nil {
+		return x.CumulativeTemperatureK
+	}
+	return 0
+}
+
+func (x *ComputeConductivityRequest) GetCumulativeBins() uint32 {
+	if x != nil {
+		return x.CumulativeBins
+	}
+	return 0
+}
+
+func (x *ComputeConductivityRequest) GetAllowUnstable() bool {
+	if x != nil {
+		return x.AllowUnstable
+	}
+	return false
+}
+
+// ConductivityPoint is κ at one temperature.
+type ConductivityPoint struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Temperature, K.
+	TemperatureK float64 `protobuf:"fixed64,1,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// κ_αβ, W/(m·K), 9 numbers row-major, Cartesian axes of the model.
+	KappaWPerMK []float64 `protobuf:"fixed64,2,rep,packed,name=kappa_w_per_m_k,json=kappaWPerMK,proto3" json:"kappa_w_per_m_k,omitempty"`
+	// trace/3, W/(m·K).
+	KappaMeanWPerMK float64 `protobuf:"fixed64,3,opt,name=kappa_mean_w_per_m_k,json=kappaMeanWPerMK,proto3" json:"kappa_mean_w_per_m_k,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
+}
+
+func (x *ConductivityPoint) Reset() {
+	*x = ConductivityPoint{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[45]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ConductivityPoint) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ConductivityPoint) ProtoMessage() {}
+
+func (x *ConductivityPoint) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[45]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ConductivityPoint.ProtoReflect.Descriptor instead.
+func (*ConductivityPoint) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{45}
+}
+
+func (x *ConductivityPoint) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *ConductivityPoint) GetKappaWPerMK() []float64 {
+	if x != nil {
+		return x.KappaWPerMK
+	}
+	return nil
+}
+
+func (x *ConductivityPoint) GetKappaMeanWPerMK() float64 {
+	if x != nil {
+		return x.KappaMeanWPerMK
+	}
+	return 0
+}
+
+// CumulativeConductivity is κ (trace/3) carried by modes up to a mean free
+// path and up to a frequency; both curves end at κ.
+type CumulativeConductivity struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Temperature, K.
+	TemperatureK float64 `protobuf:"fixed64,1,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// Mean free paths |v|τ, m, log-spaced.
+	MeanFreePathM []float64 `protobuf:"fixed64,2,rep,packed,name=mean_free_path_m,json=meanFreePathM,proto3" json:"mean_free_path_m,omitempty"`
+	// κ of modes with mean free path ≤ mean_free_path_m[i], W/(m·K).
+	KappaByMeanFreePath []float64 `protobuf:"fixed64,3,rep,packed,name=kappa_by_mean_free_path,json=kappaByMeanFreePath,proto3" json:"kappa_by_mean_free_path,omitempty"`
+	// Frequencies, THz, evenly spaced up to the highest mode.
+	FrequencyThz []float64 `protobuf:"fixed64,4,rep,packed,name=frequency_thz,json=frequencyThz,proto3" json:"frequency_thz,omitempty"`
+	// κ of modes with frequency ≤ frequency_thz[i], W/(m·K).
+	KappaByFrequency []float64 `protobuf:"fixed64,5,rep,packed,name=kappa_by_frequency,json=kappaByFrequency,proto3" json:"kappa_by_frequency,omitempty"`
+	unknownFields    protoimpl.UnknownFields
+	sizeCache        protoimpl.SizeCache
+}
+
+func (x *CumulativeConductivity) Reset() {
+	*x = CumulativeConductivity{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[46]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *CumulativeConductivity) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*CumulativeConductivity) ProtoMessage() {}
+
+func (x *CumulativeConductivity) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[46]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use CumulativeConductivity.ProtoReflect.Descriptor instead.
+func (*CumulativeConductivity) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{46}
+}
+
+func (x *CumulativeConductivity) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *CumulativeConductivity) GetMeanFreePathM() []float64 {
+	if x != nil {
+		return x.MeanFreePathM
+	}
+	return nil
+}
+
+func (x *CumulativeConductivity) GetKappaByMeanFreePath() []float64 {
+	if x != nil {
+		return x.KappaByMeanFreePath
+	}
+	return nil
+}
+
+func (x *CumulativeConductivity) GetFrequencyThz() []float64 {
+	if x != nil {
+		return x.FrequencyThz
+	}
+	return nil
+}
+
+func (x *CumulativeConductivity) GetKappaByFrequency() []float64 {
+	if x != nil {
+		return x.KappaByFrequency
+	}
+	return nil
+}
+
+// ConductivitySeries is κ(T) of one sample geometry.
+type ConductivitySeries struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The sample.
+	Sample *SampleGeometry `protobuf:"bytes,1,opt,name=sample,proto3" json:"sample,omitempty"`
+	// One point per temperature, in request order.
+	Points []*ConductivityPoint `protobuf:"bytes,2,rep,name=points,proto3" json:"points,omitempty"`
+	// Modes (q-point × branch) no mechanism scatters (left out: κ is a lower
+	// bound).
+	UnscatteredModes uint32 `protobuf:"varint,3,opt,name=unscattered_modes,json=unscatteredModes,proto3" json:"unscattered_modes,omitempty"`
+	// Cumulative curves (when cumulative_temperature_k > 0).
+	Cumulative    *CumulativeConductivity `protobuf:"bytes,4,opt,name=cumulative,proto3" json:"cumulative,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ConductivitySeries) Reset() {
+	*x = ConductivitySeries{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[47]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ConductivitySeries) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ConductivitySeries) ProtoMessage() {}
+
+func (x *ConductivitySeries) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[47]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ConductivitySeries.ProtoReflect.Descriptor instead.
+func (*ConductivitySeries) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{47}
+}
+
+func (x *ConductivitySeries) GetSample() *SampleGeometry {
+	if x != nil {
+		return x.Sample
+	}
+	return nil
+}
+
+func (x *ConductivitySeries) GetPoints() []*ConductivityPoint {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+func (x *ConductivitySeries) GetUnscatteredModes() uint32 {
+	if x != nil {
+		return x.UnscatteredModes
+	}
+	return 0
+}
+
+func (x *ConductivitySeries) GetCumulative() *CumulativeConductivity {
+	if x != nil {
+		return x.Cumulative
+	}
+	return nil
+}
+
+// ComputeConductivityResponse holds the lattice thermal conductivity.
+type ComputeConductivityResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the model.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters.
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// One series per sample geometry (bulk when none was given).
+	Series []*ConductivitySeries `protobuf:"bytes,3,rep,name=series,proto3" json:"series,omitempty"`
+	// Cell volume, Å³.
+	VolumeA3 float64 `protobuf:"fixed64,4,opt,name=volume_a3,json=volumeA3,proto3" json:"volume_a3,omitempty"`
+	// Umklapp constants used: θ (K), v̄ (km/s), M̄ (u); 0 when off.
+	UmklappThetaK float64 `protobuf:"fixed64,5,opt,name=umklapp_theta_k,json=umklappThetaK,proto3" json:"umklapp_theta_k,omitempty"`
+	// See umklapp_theta_k.
+	UmklappVelocityKmS float64 `protobuf:"fixed64,6,opt,name=umklapp_velocity_km_s,json=umklappVelocityKmS,proto3" json:"umklapp_velocity_km_s,omitempty"`
+	// See umklapp_theta_k.
+	UmklappMeanMassAmu float64 `protobuf:"fixed64,7,opt,name=umklapp_mean_mass_amu,json=umklappMeanMassAmu,proto3" json:"umklapp_mean_mass_amu,omitempty"`
+	// Γ of the point-defect rate (0 when off).
+	DefectGamma float64 `protobuf:"fixed64,8,opt,name=defect_gamma,json=defectGamma,proto3" json:"defect_gamma,omitempty"`
+	// Imaginary modes left out (allow_unstable).
+	ImaginaryModesExcluded uint32 `protobuf:"varint,9,opt,name=imaginary_modes_excluded,json=imaginaryModesExcluded,proto3" json:"imaginary_modes_excluded,omitempty"`
+	unknownFields          protoimpl.UnknownFields
+	sizeCache              protoimpl.SizeCache
+}
+
+func (x *ComputeConductivityResponse) Reset() {
+	*x = ComputeConductivityResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[48]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeConductivityResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeConductivityResponse) ProtoMessage() {}
+
+func (x *ComputeConductivityResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[48]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeConductivityResponse.ProtoReflect.Descriptor instead.
+func (*ComputeConductivityResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{48}
+}
+
+func (x *ComputeConductivityResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeConductivityResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeConductivityResponse) GetSeries() []*ConductivitySeries {
+	if x != nil {
+		return x.Series
+	}
+	return nil
+}
+
+func (x *ComputeConductivityResponse) GetVolumeA3() float64 {
+	if x != nil {
+		return x.VolumeA3
+	}
+	return 0
+}
+
+func (x *ComputeConductivityResponse) GetUmklappThetaK() float64 {
+	if x != nil {
+		return x.UmklappThetaK
+	}
+	return 0
+}
+
+func (x *ComputeConductivityResponse) GetUmklappVelocityKmS() float64 {
+	if x != nil {
+		return x.UmklappVelocityKmS
+	}
+	return 0
+}
+
+func (x *ComputeConductivityResponse) GetUmklappMeanMassAmu() float64 {
+	if x != nil {
+		return x.UmklappMeanMassAmu
+	}
+	return 0
+}
+
+func (x *ComputeConductivityResponse) GetDefectGamma() float64 {
+	if x != nil {
+		return x.DefectGamma
+	}
+	return 0
+}
+
+func (x *ComputeConductivityResponse) GetImaginaryModesExcluded() uint32 {
+	if x != nil {
+		return x.ImaginaryModesExcluded
+	}
+	return 0
+}
+
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
@@ -3703,7 +5495,158 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"peak_bytes\x18\x02 \x01(\x04R\tpeakBytes\x12\x18\n" +
 	"\aseconds\x18\x03 \x01(\x01R\aseconds\x12\x1a\n" +
-	"\badmitted\x18\x04 \x01(\bR\badmitted*S\n" +
+	"\badmitted\x18\x04 \x01(\bR\badmitted\"\xd7\x02\n" +
+	"\x17ComputeGruneisenRequest\x120\n" +
+	"\x06models\x18\x01 \x03(\v2\x18.modegrid.v1.ModelSourceR\x06models\x12!\n" +
+	"\treference\x18\x02 \x01(\rH\x00R\treference\x88\x01\x01\x120\n" +
+	"\aqpoints\x18\x03 \x01(\v2\x16.modegrid.v1.QPointSetR\aqpoints\x12*\n" +
+	"\x04path\x18\x04 \x03(\v2\x16.modegrid.v1.PathPointR\x04path\x12\x1f\n" +
+	"\vpath_points\x18\x05 \x01(\rR\n" +
+	"pathPoints\x12%\n" +
+	"\x0etemperatures_k\x18\x06 \x03(\x01R\rtemperaturesK\x123\n" +
+	"\x05range\x18\a \x01(\v2\x1d.modegrid.v1.TemperatureRangeR\x05rangeB\f\n" +
+	"\n" +
+	"_reference\"\xc8\x01\n" +
+	"\x0eGruneisenPoint\x12!\n" +
+	"\x01q\x18\x01 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12$\n" +
+	"\x0edistance_inv_a\x18\x02 \x01(\x01R\fdistanceInvA\x12\x14\n" +
+	"\x05label\x18\x03 \x01(\tR\x05label\x12'\n" +
+	"\x0ffrequencies_thz\x18\x04 \x03(\x01R\x0efrequenciesThz\x12\x14\n" +
+	"\x05gamma\x18\x05 \x03(\x01R\x05gamma\x12\x18\n" +
+	"\adefined\x18\x06 \x03(\bR\adefined\"i\n" +
+	"\x12GammaAtTemperature\x12#\n" +
+	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12\x14\n" +
+	"\x05gamma\x18\x02 \x01(\x01R\x05gamma\x12\x18\n" +
+	"\adefined\x18\x03 \x01(\bR\adefined\"\xa9\x02\n" +
+	"\x18ComputeGruneisenResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x12\x1d\n" +
+	"\n" +
+	"volumes_a3\x18\x03 \x03(\x01R\tvolumesA3\x12\x1c\n" +
+	"\treference\x18\x04 \x01(\rR\treference\x123\n" +
+	"\x06points\x18\x05 \x03(\v2\x1b.modegrid.v1.GruneisenPointR\x06points\x12;\n" +
+	"\baverages\x18\x06 \x03(\v2\x1f.modegrid.v1.GammaAtTemperatureR\baverages\x12\x1f\n" +
+	"\vmin_overlap\x18\a \x01(\x01R\n" +
+	"minOverlap\"\x85\x03\n" +
+	"\x1bComputeQuasiHarmonicRequest\x120\n" +
+	"\x06models\x18\x01 \x03(\v2\x18.modegrid.v1.ModelSourceR\x06models\x12,\n" +
+	"\x12static_energies_ev\x18\x02 \x03(\x01R\x10staticEnergiesEv\x120\n" +
+	"\aqpoints\x18\x03 \x01(\v2\x16.modegrid.v1.QPointSetR\aqpoints\x12%\n" +
+	"\x0etemperatures_k\x18\x04 \x03(\x01R\rtemperaturesK\x123\n" +
+	"\x05range\x18\x05 \x01(\v2\x1d.modegrid.v1.TemperatureRangeR\x05range\x12!\n" +
+	"\fpressure_gpa\x18\x06 \x01(\x01R\vpressureGpa\x12.\n" +
+	"\x03eos\x18\a \x01(\x0e2\x1c.modegrid.v1.EquationOfStateR\x03eos\x12%\n" +
+	"\x0eallow_unstable\x18\b \x01(\bR\rallowUnstable\"\xb4\x01\n" +
+	"\x06EosFit\x12\x13\n" +
+	"\x05e0_ev\x18\x01 \x01(\x01R\x04e0Ev\x12\x13\n" +
+	"\x05v0_a3\x18\x02 \x01(\x01R\x04v0A3\x12\x15\n" +
+	"\x06b0_gpa\x18\x03 \x01(\x01R\x05b0Gpa\x12\x19\n" +
+	"\bb0_prime\x18\x04 \x01(\x01R\ab0Prime\x12&\n" +
+	"\x0frms_residual_ev\x18\x05 \x01(\x01R\rrmsResidualEv\x12&\n" +
+	"\x0fmax_residual_ev\x18\x06 \x01(\x01R\rmaxResidualEv\"\xfd\x06\n" +
+	"\x12QuasiHarmonicPoint\x12#\n" +
+	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12\x1b\n" +
+	"\tvolume_a3\x18\x02 \x01(\x01R\bvolumeA3\x12&\n" +
+	"\x0fgibbs_energy_ev\x18\x03 \x01(\x01R\rgibbsEnergyEv\x12(\n" +
+	"\x10bulk_modulus_gpa\x18\x04 \x01(\x01R\x0ebulkModulusGpa\x123\n" +
+	"\x16volume_expansion_per_k\x18\x05 \x01(\x01R\x13volumeExpansionPerK\x123\n" +
+	"\x16linear_expansion_per_k\x18\x06 \x01(\x01R\x13linearExpansionPerK\x125\n" +
+	"\x18heat_capacity_v_ev_per_k\x18\a \x01(\x01R\x13heatCapacityVEvPerK\x125\n" +
+	"\x18heat_capacity_p_ev_per_k\x18\b \x01(\x01R\x13heatCapacityPEvPerK\x12:\n" +
+	"\x1bheat_capacity_v_j_per_mol_k\x18\t \x01(\x01R\x15heatCapacityVJPerMolK\x12:\n" +
+	"\x1bheat_capacity_p_j_per_mol_k\x18\n" +
+	" \x01(\x01R\x15heatCapacityPJPerMolK\x12E\n" +
+	"!heat_capacity_v_j_per_mol_atoms_k\x18\v \x01(\x01R\x1aheatCapacityVJPerMolAtomsK\x12E\n" +
+	"!heat_capacity_p_j_per_mol_atoms_k\x18\f \x01(\x01R\x1aheatCapacityPJPerMolAtomsK\x12\x1c\n" +
+	"\tgruneisen\x18\r \x01(\x01R\tgruneisen\x12+\n" +
+	"\x11gruneisen_defined\x18\x0e \x01(\bR\x10gruneisenDefined\x12%\n" +
+	"\x03fit\x18\x0f \x01(\v2\x13.modegrid.v1.EosFitR\x03fit\x125\n" +
+	"\x18entropy_fit_rms_ev_per_k\x18\x10 \x01(\x01R\x13entropyFitRmsEvPerK\x12\x1c\n" +
+	"\tbracketed\x18\x11 \x01(\bR\tbracketed\x12\x14\n" +
+	"\x05found\x18\x12 \x01(\bR\x05found\x12\x18\n" +
+	"\awarning\x18\x13 \x01(\tR\awarning\"\xd4\x02\n" +
+	"\x1cComputeQuasiHarmonicResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x12\x1d\n" +
+	"\n" +
+	"volumes_a3\x18\x03 \x03(\x01R\tvolumesA3\x122\n" +
+	"\n" +
+	"static_fit\x18\x04 \x01(\v2\x13.modegrid.v1.EosFitR\tstaticFit\x127\n" +
+	"\x06points\x18\x05 \x03(\v2\x1f.modegrid.v1.QuasiHarmonicPointR\x06points\x12 \n" +
+	"\vunbracketed\x18\x06 \x01(\rR\vunbracketed\x12$\n" +
+	"\x0eatoms_per_cell\x18\a \x01(\rR\fatomsPerCell\x12!\n" +
+	"\fpressure_gpa\x18\b \x01(\x01R\vpressureGpa\"\xa1\x01\n" +
+	"\x0eSampleGeometry\x12+\n" +
+	"\x04kind\x18\x01 \x01(\x0e2\x17.modegrid.v1.SampleKindR\x04kind\x12\x15\n" +
+	"\x06size_m\x18\x02 \x01(\x01R\x05sizeM\x12)\n" +
+	"\x06normal\x18\x03 \x01(\v2\x11.modegrid.v1.Vec3R\x06normal\x12 \n" +
+	"\vspecularity\x18\x04 \x01(\x01R\vspecularity\"J\n" +
+	"\x15PointDefectScattering\x12\x18\n" +
+	"\aenabled\x18\x01 \x01(\bR\aenabled\x12\x17\n" +
+	"\asite_g2\x18\x02 \x03(\x01R\x06siteG2\"\xab\x02\n" +
+	"\x11UmklappScattering\x12\x18\n" +
+	"\aenabled\x18\x01 \x01(\bR\aenabled\x12\f\n" +
+	"\x01b\x18\x02 \x01(\x01R\x01b\x12\x1c\n" +
+	"\tgruneisen\x18\x03 \x01(\x01R\tgruneisen\x120\n" +
+	"\x14gruneisen_per_branch\x18\x04 \x03(\x01R\x12gruneisenPerBranch\x12=\n" +
+	"\rvolume_models\x18\x05 \x03(\v2\x18.modegrid.v1.ModelSourceR\fvolumeModels\x12\x17\n" +
+	"\atheta_k\x18\x06 \x01(\x01R\x06thetaK\x12\"\n" +
+	"\rvelocity_km_s\x18\a \x01(\x01R\vvelocityKmS\x12\"\n" +
+	"\rmean_mass_amu\x18\b \x01(\x01R\vmeanMassAmu\"h\n" +
+	"\x12PowerLawScattering\x12\x18\n" +
+	"\aenabled\x18\x01 \x01(\bR\aenabled\x12\x1c\n" +
+	"\n" +
+	"rate_per_s\x18\x02 \x01(\x01R\bratePerS\x12\x1a\n" +
+	"\bexponent\x18\x03 \x01(\x01R\bexponent\"\xdc\x04\n" +
+	"\x1aComputeConductivityRequest\x12.\n" +
+	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x120\n" +
+	"\aqpoints\x18\x02 \x01(\v2\x16.modegrid.v1.QPointSetR\aqpoints\x12%\n" +
+	"\x0etemperatures_k\x18\x03 \x03(\x01R\rtemperaturesK\x123\n" +
+	"\x05range\x18\x04 \x01(\v2\x1d.modegrid.v1.TemperatureRangeR\x05range\x125\n" +
+	"\asamples\x18\x05 \x03(\v2\x1b.modegrid.v1.SampleGeometryR\asamples\x12G\n" +
+	"\rpoint_defects\x18\x06 \x01(\v2\".modegrid.v1.PointDefectScatteringR\fpointDefects\x128\n" +
+	"\aumklapp\x18\a \x01(\v2\x1e.modegrid.v1.UmklappScatteringR\aumklapp\x12<\n" +
+	"\tpower_law\x18\b \x01(\v2\x1f.modegrid.v1.PowerLawScatteringR\bpowerLaw\x128\n" +
+	"\x18cumulative_temperature_k\x18\t \x01(\x01R\x16cumulativeTemperatureK\x12'\n" +
+	"\x0fcumulative_bins\x18\n" +
+	" \x01(\rR\x0ecumulativeBins\x12%\n" +
+	"\x0eallow_unstable\x18\v \x01(\bR\rallowUnstable\"\x8d\x01\n" +
+	"\x11ConductivityPoint\x12#\n" +
+	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12$\n" +
+	"\x0fkappa_w_per_m_k\x18\x02 \x03(\x01R\vkappaWPerMK\x12-\n" +
+	"\x14kappa_mean_w_per_m_k\x18\x03 \x01(\x01R\x0fkappaMeanWPerMK\"\xef\x01\n" +
+	"\x16CumulativeConductivity\x12#\n" +
+	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12'\n" +
+	"\x10mean_free_path_m\x18\x02 \x03(\x01R\rmeanFreePathM\x124\n" +
+	"\x17kappa_by_mean_free_path\x18\x03 \x03(\x01R\x13kappaByMeanFreePath\x12#\n" +
+	"\rfrequency_thz\x18\x04 \x03(\x01R\ffrequencyThz\x12,\n" +
+	"\x12kappa_by_frequency\x18\x05 \x03(\x01R\x10kappaByFrequency\"\xf3\x01\n" +
+	"\x12ConductivitySeries\x123\n" +
+	"\x06sample\x18\x01 \x01(\v2\x1b.modegrid.v1.SampleGeometryR\x06sample\x126\n" +
+	"\x06points\x18\x02 \x03(\v2\x1e.modegrid.v1.ConductivityPointR\x06points\x12+\n" +
+	"\x11unscattered_modes\x18\x03 \x01(\rR\x10unscatteredModes\x12C\n" +
+	"\n" +
+	"cumulative\x18\x04 \x01(\v2#.modegrid.v1.CumulativeConductivityR\n" +
+	"cumulative\"\x9d\x03\n" +
+	"\x1bComputeConductivityResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x127\n" +
+	"\x06series\x18\x03 \x03(\v2\x1f.modegrid.v1.ConductivitySeriesR\x06series\x12\x1b\n" +
+	"\tvolume_a3\x18\x04 \x01(\x01R\bvolumeA3\x12&\n" +
+	"\x0fumklapp_theta_k\x18\x05 \x01(\x01R\rumklappThetaK\x121\n" +
+	"\x15umklapp_velocity_km_s\x18\x06 \x01(\x01R\x12umklappVelocityKmS\x121\n" +
+	"\x15umklapp_mean_mass_amu\x18\a \x01(\x01R\x12umklappMeanMassAmu\x12!\n" +
+	"\fdefect_gamma\x18\b \x01(\x01R\vdefectGamma\x128\n" +
+	"\x18imaginary_modes_excluded\x18\t \x01(\rR\x16imaginaryModesExcluded*S\n" +
 	"\rModelEncoding\x12\x1e\n" +
 	"\x1aMODEL_ENCODING_UNSPECIFIED\x10\x00\x12\"\n" +
 	"\x1eMODEL_ENCODING_PROTOBUF_BINARY\x10\x01*\x95\x01\n" +
@@ -3732,7 +5675,18 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"&DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT\x10\x02\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE\x10\x03\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED\x10\x04\x12&\n" +
-	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\x99\x04\n" +
+	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x05*x\n" +
+	"\x0fEquationOfState\x12!\n" +
+	"\x1dEQUATION_OF_STATE_UNSPECIFIED\x10\x00\x12\x1b\n" +
+	"\x17EQUATION_OF_STATE_VINET\x10\x01\x12%\n" +
+	"!EQUATION_OF_STATE_BIRCH_MURNAGHAN\x10\x02*\x82\x01\n" +
+	"\n" +
+	"SampleKind\x12\x1b\n" +
+	"\x17SAMPLE_KIND_UNSPECIFIED\x10\x00\x12\x14\n" +
+	"\x10SAMPLE_KIND_BULK\x10\x01\x12\x14\n" +
+	"\x10SAMPLE_KIND_FILM\x10\x02\x12\x14\n" +
+	"\x10SAMPLE_KIND_WIRE\x10\x03\x12\x15\n" +
+	"\x11SAMPLE_KIND_GRAIN\x10\x042\xd1\x06\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -3741,7 +5695,10 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"ComputeDos\x12\x1e.modegrid.v1.ComputeDosRequest\x1a\x1f.modegrid.v1.ComputeDosResponse\x12Y\n" +
 	"\x0eComputeThermal\x12\".modegrid.v1.ComputeThermalRequest\x1a#.modegrid.v1.ComputeThermalResponse\x12R\n" +
-	"\vUploadModel\x12\x1f.modegrid.v1.UploadModelRequest\x1a .modegrid.v1.UploadModelResponse(\x01B@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\vUploadModel\x12\x1f.modegrid.v1.UploadModelRequest\x1a .modegrid.v1.UploadModelResponse(\x01\x12_\n" +
+	"\x10ComputeGruneisen\x12$.modegrid.v1.ComputeGruneisenRequest\x1a%.modegrid.v1.ComputeGruneisenResponse\x12k\n" +
+	"\x14ComputeQuasiHarmonic\x12(.modegrid.v1.ComputeQuasiHarmonicRequest\x1a).modegrid.v1.ComputeQuasiHarmonicResponse\x12h\n" +
+	"\x13ComputeConductivity\x12'.modegrid.v1.ComputeConductivityRequest\x1a(.modegrid.v1.ComputeConductivityResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -3755,113 +5712,167 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 	return file_modegrid_v1_service_proto_rawDescData
 }
 
-var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 6)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 32)
+var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 8)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 49)
 var file_modegrid_v1_service_proto_goTypes = []any{
-	(ModelEncoding)(0),                // 0: modegrid.v1.ModelEncoding
-	(FrequencyUnit)(0),                // 1: modegrid.v1.FrequencyUnit
-	(DosMethod)(0),                    // 2: modegrid.v1.DosMethod
-	(ImaginaryModes)(0),               // 3: modegrid.v1.ImaginaryModes
-	(ThermalRoute)(0),                 // 4: modegrid.v1.ThermalRoute
-	(DebyeTemperatureStatus)(0),       // 5: modegrid.v1.DebyeTemperatureStatus
-	(*ModelSource)(nil),               // 6: modegrid.v1.ModelSource
-	(*UploadModelHeader)(nil),         // 7: modegrid.v1.UploadModelHeader
-	(*UploadModelRequest)(nil),        // 8: modegrid.v1.UploadModelRequest
-	(*UploadModelResponse)(nil),       // 9: modegrid.v1.UploadModelResponse
-	(*QPoint)(nil),                    // 10: modegrid.v1.QPoint
-	(*QPointList)(nil),                // 11: modegrid.v1.QPointList
-	(*MonkhorstPackGrid)(nil),         // 12: modegrid.v1.MonkhorstPackGrid
-	(*FiniteCrystal)(nil),             // 13: modegrid.v1.FiniteCrystal
-	(*QPointSet)(nil),                 // 14: modegrid.v1.QPointSet
-	(*ComputeModesRequest)(nil),       // 15: modegrid.v1.ComputeModesRequest
-	(*Modes)(nil),                     // 16: modegrid.v1.Modes
-	(*ComputeModesResponse)(nil),      // 17: modegrid.v1.ComputeModesResponse
-	(*PathPoint)(nil),                 // 18: modegrid.v1.PathPoint
-	(*ComputeDispersionRequest)(nil),  // 19: modegrid.v1.ComputeDispersionRequest
-	(*DispersionSample)(nil),          // 20: modegrid.v1.DispersionSample
-	(*ComputeDispersionResponse)(nil), // 21: modegrid.v1.ComputeDispersionResponse
-	(*ComputeDosRequest)(nil),         // 22: modegrid.v1.ComputeDosRequest
-	(*ProjectedDos)(nil),              // 23: modegrid.v1.ProjectedDos
-	(*ComputeDosResponse)(nil),        // 24: modegrid.v1.ComputeDosResponse
-	(*TemperatureRange)(nil),          // 25: modegrid.v1.TemperatureRange
-	(*ComputeThermalRequest)(nil),     // 26: modegrid.v1.ComputeThermalRequest
-	(*SiteDisplacement)(nil),          // 27: modegrid.v1.SiteDisplacement
-	(*ThermalPoint)(nil),              // 28: modegrid.v1.ThermalPoint
-	(*ComputeThermalResponse)(nil),    // 29: modegrid.v1.ComputeThermalResponse
-	(*CheckModelRequest)(nil),         // 30: modegrid.v1.CheckModelRequest
-	(*FieldViolation)(nil),            // 31: modegrid.v1.FieldViolation
-	(*ShellBonds)(nil),                // 32: modegrid.v1.ShellBonds
-	(*SymmetryOperation)(nil),         // 33: modegrid.v1.SymmetryOperation
-	(*CheckModelResponse)(nil),        // 34: modegrid.v1.CheckModelResponse
-	(*SupercellFold)(nil),             // 35: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),       // 36: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),               // 37: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 38: modegrid.v1.Crystal
+	(ModelEncoding)(0),                   // 0: modegrid.v1.ModelEncoding
+	(FrequencyUnit)(0),                   // 1: modegrid.v1.FrequencyUnit
+	(DosMethod)(0),                       // 2: modegrid.v1.DosMethod
+	(ImaginaryModes)(0),                  // 3: modegrid.v1.ImaginaryModes
+	(ThermalRoute)(0),                    // 4: modegrid.v1.ThermalRoute
+	(DebyeTemperatureStatus)(0),          // 5: modegrid.v1.DebyeTemperatureStatus
+	(EquationOfState)(0),                 // 6: modegrid.v1.EquationOfState
+	(SampleKind)(0),                      // 7: modegrid.v1.SampleKind
+	(*ModelSource)(nil),                  // 8: modegrid.v1.ModelSource
+	(*UploadModelHeader)(nil),            // 9: modegrid.v1.UploadModelHeader
+	(*UploadModelRequest)(nil),           // 10: modegrid.v1.UploadModelRequest
+	(*UploadModelResponse)(nil),          // 11: modegrid.v1.UploadModelResponse
+	(*QPoint)(nil),                       // 12: modegrid.v1.QPoint
+	(*QPointList)(nil),                   // 13: modegrid.v1.QPointList
+	(*MonkhorstPackGrid)(nil),            // 14: modegrid.v1.MonkhorstPackGrid
+	(*FiniteCrystal)(nil),                // 15: modegrid.v1.FiniteCrystal
+	(*QPointSet)(nil),                    // 16: modegrid.v1.QPointSet
+	(*ComputeModesRequest)(nil),          // 17: modegrid.v1.ComputeModesRequest
+	(*Modes)(nil),                        // 18: modegrid.v1.Modes
+	(*ComputeModesResponse)(nil),         // 19: modegrid.v1.ComputeModesResponse
+	(*PathPoint)(nil),                    // 20: modegrid.v1.PathPoint
+	(*ComputeDispersionRequest)(nil),     // 21: modegrid.v1.ComputeDispersionRequest
+	(*DispersionSample)(nil),             // 22: modegrid.v1.DispersionSample
+	(*ComputeDispersionResponse)(nil),    // 23: modegrid.v1.ComputeDispersionResponse
+	(*ComputeDosRequest)(nil),            // 24: modegrid.v1.ComputeDosRequest
+	(*ProjectedDos)(nil),                 // 25: modegrid.v1.ProjectedDos
+	(*ComputeDosResponse)(nil),           // 26: modegrid.v1.ComputeDosResponse
+	(*TemperatureRange)(nil),             // 27: modegrid.v1.TemperatureRange
+	(*ComputeThermalRequest)(nil),        // 28: modegrid.v1.ComputeThermalRequest
+	(*SiteDisplacement)(nil),             // 29: modegrid.v1.SiteDisplacement
+	(*ThermalPoint)(nil),                 // 30: modegrid.v1.ThermalPoint
+	(*ComputeThermalResponse)(nil),       // 31: modegrid.v1.ComputeThermalResponse
+	(*CheckModelRequest)(nil),            // 32: modegrid.v1.CheckModelRequest
+	(*FieldViolation)(nil),               // 33: modegrid.v1.FieldViolation
+	(*ShellBonds)(nil),                   // 34: modegrid.v1.ShellBonds
+	(*SymmetryOperation)(nil),            // 35: modegrid.v1.SymmetryOperation
+	(*CheckModelResponse)(nil),           // 36: modegrid.v1.CheckModelResponse
+	(*SupercellFold)(nil),                // 37: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),          // 38: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),                  // 39: modegrid.v1.RequestCost
+	(*ComputeGruneisenRequest)(nil),      // 40: modegrid.v1.ComputeGruneisenRequest
+	(*GruneisenPoint)(nil),               // 41: modegrid.v1.GruneisenPoint
+	(*GammaAtTemperature)(nil),           // 42: modegrid.v1.GammaAtTemperature
+	(*ComputeGruneisenResponse)(nil),     // 43: modegrid.v1.ComputeGruneisenResponse
+	(*ComputeQuasiHarmonicRequest)(nil),  // 44: modegrid.v1.ComputeQuasiHarmonicRequest
+	(*EosFit)(nil),                       // 45: modegrid.v1.EosFit
+	(*QuasiHarmonicPoint)(nil),           // 46: modegrid.v1.QuasiHarmonicPoint
+	(*ComputeQuasiHarmonicResponse)(nil), // 47: modegrid.v1.ComputeQuasiHarmonicResponse
+	(*SampleGeometry)(nil),               // 48: modegrid.v1.SampleGeometry
+	(*PointDefectScattering)(nil),        // 49: modegrid.v1.PointDefectScattering
+	(*UmklappScattering)(nil),            // 50: modegrid.v1.UmklappScattering
+	(*PowerLawScattering)(nil),           // 51: modegrid.v1.PowerLawScattering
+	(*ComputeConductivityRequest)(nil),   // 52: modegrid.v1.ComputeConductivityRequest
+	(*ConductivityPoint)(nil),            // 53: modegrid.v1.ConductivityPoint
+	(*CumulativeConductivity)(nil),       // 54: modegrid.v1.CumulativeConductivity
+	(*ConductivitySeries)(nil),           // 55: modegrid.v1.ConductivitySeries
+	(*ComputeConductivityResponse)(nil),  // 56: modegrid.v1.ComputeConductivityResponse
+	(*Crystal)(nil),                      // 57: modegrid.v1.Crystal
+	(*Vec3)(nil),                         // 58: modegrid.v1.Vec3
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	38, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	57, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	0,  // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
-	6,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
-	7,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
-	35, // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	10, // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	11, // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	12, // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	13, // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	6,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	14, // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	8,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
+	9,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
+	37, // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	12, // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
+	13, // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	14, // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	15, // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	8,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	16, // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	1,  // 11: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	10, // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	12, // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
 	1,  // 13: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	16, // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	10, // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	6,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	18, // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	18, // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	12, // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	8,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	20, // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
 	1,  // 18: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	10, // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	12, // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
 	1,  // 20: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	20, // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	6,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	14, // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	22, // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	8,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	16, // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	2,  // 24: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
 	1,  // 25: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
 	3,  // 26: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
 	1,  // 27: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	23, // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	23, // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	6,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	14, // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	25, // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	25, // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	25, // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	8,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	16, // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	27, // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
 	4,  // 33: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	27, // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	29, // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
 	5,  // 35: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	28, // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	6,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	31, // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	32, // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	33, // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	18, // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	37, // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	18, // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	36, // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	35, // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	30, // 46: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	15, // 47: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	19, // 48: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	22, // 49: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	26, // 50: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	8,  // 51: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
-	34, // 52: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	17, // 53: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	21, // 54: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	24, // 55: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	29, // 56: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	9,  // 57: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
-	52, // [52:58] is the sub-list for method output_type
-	46, // [46:52] is the sub-list for method input_type
-	46, // [46:46] is the sub-list for extension type_name
-	46, // [46:46] is the sub-list for extension extendee
-	0,  // [0:46] is the sub-list for field type_name
+	30, // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	8,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	33, // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	34, // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	35, // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	20, // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	39, // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	20, // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	38, // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	37, // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	8,  // 46: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
+	16, // 47: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	20, // 48: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
+	27, // 49: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
+	12, // 50: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
+	41, // 51: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
+	42, // 52: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
+	8,  // 53: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
+	16, // 54: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	27, // 55: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
+	6,  // 56: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
+	45, // 57: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
+	45, // 58: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
+	46, // 59: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
+	7,  // 60: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
+	58, // 61: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
+	8,  // 62: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
+	8,  // 63: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
+	16, // 64: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	27, // 65: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
+	48, // 66: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
+	49, // 67: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
+	50, // 68: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
+	51, // 69: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
+	48, // 70: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
+	53, // 71: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
+	54, // 72: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
+	55, // 73: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
+	32, // 74: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	17, // 75: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	21, // 76: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	24, // 77: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	28, // 78: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	10, // 79: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
+	40, // 80: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
+	44, // 81: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
+	52, // 82: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
+	36, // 83: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	19, // 84: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	23, // 85: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	26, // 86: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	31, // 87: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	11, // 88: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
+	43, // 89: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
+	47, // 90: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
+	56, // 91: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
+	83, // [83:92] is the sub-list for method output_type
+	74, // [74:83] is the sub-list for method input_type
+	74, // [74:74] is the sub-list for extension type_name
+	74, // [74:74] is the sub-list for extension extendee
+	0,  // [0:74] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3883,13 +5894,14 @@ func file_modegrid_v1_service_proto_init() {
 		(*QPointSet_Grid)(nil),
 		(*QPointSet_Cells)(nil),
 	}
+	file_modegrid_v1_service_proto_msgTypes[32].OneofWrappers = []any{}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
-			NumEnums:      6,
-			NumMessages:   32,
+			NumEnums:      8,
+			NumMessages:   49,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

@@ -19,12 +19,15 @@ import (
 const _ = grpc.SupportPackageIsVersion9
 
 const (
-	ModegridService_CheckModel_FullMethodName        = "/modegrid.v1.ModegridService/CheckModel"
-	ModegridService_ComputeModes_FullMethodName      = "/modegrid.v1.ModegridService/ComputeModes"
-	ModegridService_ComputeDispersion_FullMethodName = "/modegrid.v1.ModegridService/ComputeDispersion"
-	ModegridService_ComputeDos_FullMethodName        = "/modegrid.v1.ModegridService/ComputeDos"
-	ModegridService_ComputeThermal_FullMethodName    = "/modegrid.v1.ModegridService/ComputeThermal"
-	ModegridService_UploadModel_FullMethodName       = "/modegrid.v1.ModegridService/UploadModel"
+	ModegridService_CheckModel_FullMethodName           = "/modegrid.v1.ModegridService/CheckModel"
+	ModegridService_ComputeModes_FullMethodName         = "/modegrid.v1.ModegridService/ComputeModes"
+	ModegridService_ComputeDispersion_FullMethodName    = "/modegrid.v1.ModegridService/ComputeDispersion"
+	ModegridService_ComputeDos_FullMethodName           = "/modegrid.v1.ModegridService/ComputeDos"
+	ModegridService_ComputeThermal_FullMethodName       = "/modegrid.v1.ModegridService/ComputeThermal"
+	ModegridService_UploadModel_FullMethodName          = "/modegrid.v1.ModegridService/UploadModel"
+	ModegridService_ComputeGruneisen_FullMethodName     = "/modegrid.v1.ModegridService/ComputeGruneisen"
+	ModegridService_ComputeQuasiHarmonic_FullMethodName = "/modegrid.v1.ModegridService/ComputeQuasiHarmonic"
+	ModegridService_ComputeConductivity_FullMethodName  = "/modegrid.v1.ModegridService/ComputeConductivity"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -72,6 +75,19 @@ type ModegridServiceClient interface {
 	// other: a reference then gets NOT_FOUND, and the model is uploaded
 	// again.
 	UploadModel(ctx context.Context, opts ...grpc.CallOption) (grpc.ClientStreamingClient[UploadModelRequest, UploadModelResponse], error)
+	// ComputeGruneisen gives mode Grüneisen parameters γ = −∂ln ω/∂ln V from
+	// models of one crystal at several volumes, on a q-point set or a path,
+	// and their heat-capacity-weighted mean γ(T).
+	ComputeGruneisen(ctx context.Context, in *ComputeGruneisenRequest, opts ...grpc.CallOption) (*ComputeGruneisenResponse, error)
+	// ComputeQuasiHarmonic gives, in the quasi-harmonic approximation, the
+	// equilibrium volume, thermal expansion, isothermal bulk modulus, Cp and
+	// the thermodynamic Grüneisen parameter against temperature, from models
+	// at five or more volumes and their static energies.
+	ComputeQuasiHarmonic(ctx context.Context, in *ComputeQuasiHarmonicRequest, opts ...grpc.CallOption) (*ComputeQuasiHarmonicResponse, error)
+	// ComputeConductivity gives the lattice thermal conductivity in the
+	// relaxation-time approximation for bulk and finite samples, and the
+	// cumulative conductivity against mean free path and frequency.
+	ComputeConductivity(ctx context.Context, in *ComputeConductivityRequest, opts ...grpc.CallOption) (*ComputeConductivityResponse, error)
 }
 
 type modegridServiceClient struct {
@@ -154,6 +170,36 @@ func (c *modegridServiceClient) UploadModel(ctx context.Context, opts ...grpc.Ca
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type ModegridService_UploadModelClient = grpc.ClientStreamingClient[UploadModelRequest, UploadModelResponse]
 
+func (c *modegridServiceClient) ComputeGruneisen(ctx context.Context, in *ComputeGruneisenRequest, opts ...grpc.CallOption) (*ComputeGruneisenResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeGruneisenResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeGruneisen_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *modegridServiceClient) ComputeQuasiHarmonic(ctx context.Context, in *ComputeQuasiHarmonicRequest, opts ...grpc.CallOption) (*ComputeQuasiHarmonicResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeQuasiHarmonicResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeQuasiHarmonic_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
+func (c *modegridServiceClient) ComputeConductivity(ctx context.Context, in *ComputeConductivityRequest, opts ...grpc.CallOption) (*ComputeConductivityResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeConductivityResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeConductivity_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -199,6 +245,19 @@ type ModegridServiceServer interface {
 	// other: a reference then gets NOT_FOUND, and the model is uploaded
 	// again.
 	UploadModel(grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]) error
+	// ComputeGruneisen gives mode Grüneisen parameters γ = −∂ln ω/∂ln V from
+	// models of one crystal at several volumes, on a q-point set or a path,
+	// and their heat-capacity-weighted mean γ(T).
+	ComputeGruneisen(context.Context, *ComputeGruneisenRequest) (*ComputeGruneisenResponse, error)
+	// ComputeQuasiHarmonic gives, in the quasi-harmonic approximation, the
+	// equilibrium volume, thermal expansion, isothermal bulk modulus, Cp and
+	// the thermodynamic Grüneisen parameter against temperature, from models
+	// at five or more volumes and their static energies.
+	ComputeQuasiHarmonic(context.Context, *ComputeQuasiHarmonicRequest) (*ComputeQuasiHarmonicResponse, error)
+	// ComputeConductivity gives the lattice thermal conductivity in the
+	// relaxation-time approximation for bulk and finite samples, and the
+	// cumulative conductivity against mean free path and frequency.
+	ComputeConductivity(context.Context, *ComputeConductivityRequest) (*ComputeConductivityResponse, error)
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -226,6 +285,15 @@ func (UnimplementedModegridServiceServer) ComputeThermal(context.Context, *Compu
 }
 func (UnimplementedModegridServiceServer) UploadModel(grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]) error {
 	return status.Error(codes.Unimplemented, "method UploadModel not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeGruneisen(context.Context, *ComputeGruneisenRequest) (*ComputeGruneisenResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeGruneisen not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeQuasiHarmonic(context.Context, *ComputeQuasiHarmonicRequest) (*ComputeQuasiHarmonicResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeQuasiHarmonic not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeConductivity(context.Context, *ComputeConductivityRequest) (*ComputeConductivityResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeConductivity not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -338,6 +406,60 @@ func _ModegridService_UploadModel_Handler(srv interface{}, stream grpc.ServerStr
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type ModegridService_UploadModelServer = grpc.ClientStreamingServer[UploadModelRequest, UploadModelResponse]
 
+func _ModegridService_ComputeGruneisen_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeGruneisenRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeGruneisen(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeGruneisen_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeGruneisen(ctx, req.(*ComputeGruneisenRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _ModegridService_ComputeQuasiHarmonic_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeQuasiHarmonicRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeQuasiHarmonic(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeQuasiHarmonic_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeQuasiHarmonic(ctx, req.(*ComputeQuasiHarmonicRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
+func _ModegridService_ComputeConductivity_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeConductivityRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeConductivity(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeConductivity_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeConductivity(ctx, req.(*ComputeConductivityRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -360,6 +482,18 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ComputeThermal",
 			Handler:    _ModegridService_ComputeThermal_Handler,
+		},
+		{
+			MethodName: "ComputeGruneisen",
+			Handler:    _ModegridService_ComputeGruneisen_Handler,
+		},
+		{
+			MethodName: "ComputeQuasiHarmonic",
+			Handler:    _ModegridService_ComputeQuasiHarmonic_Handler,
+		},
+		{
+			MethodName: "ComputeConductivity",
+			Handler:    _ModegridService_ComputeConductivity_Handler,
 		},
 	},
 	Streams: []grpc.StreamDesc{

@@ -202,7 +202,7 @@ func coreXTestImports(path string, imports []string) []string {
 // only those before it (the leaves among themselves not at all);
 // physics/internal/testmodels, the tests' example models, is imported by
 // tests only.
-var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport", "physics/thermo"}
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport", "physics/thermo", "physics/thermo/qha, physics/transport"}
 
 // testModels is the test-only package of example models for the tests of
 // the packages above the core.
@@ -211,7 +211,9 @@ const testModels = "physics/internal/testmodels"
 // engineRank is the layer of a module-relative physics path: 1 for the
 // leaves (eigen, lattice, mesh, internal/...), 2 for the core, 3 for the
 // test models, 4 for spectra and fcimport (the same layer above the
-// core), 5 for thermo, 0 for a path outside physics.
+// core), 5 for thermo, 6 for the quasi-harmonic approximation and heat
+// transport (thermo/qha, transport: above thermo, neither importing the
+// other), 0 for a path outside physics.
 // A package imports only packages of a lower rank (or of its own, for the
 // leaves' sub-packages): spectra the core and the leaves, thermo spectra
 // too, the leaves nothing of the engine above them.
@@ -223,6 +225,8 @@ func engineRank(r string) int {
 		return 3
 	case under(r, "physics/spectra"), under(r, "physics/fcimport"):
 		return 4
+	case under(r, "physics/thermo/qha"), under(r, "physics/transport"):
+		return 6
 	case under(r, "physics/thermo"):
 		return 5
 	case under(r, "physics"):
@@ -437,6 +441,9 @@ func TestRulesCatchViolations(t *testing.T) {
 		{name: "spectra test imports thermo", path: "physics/spectra", imports: []string{m("physics/thermo")}, test: true, want: true},
 		{name: "core imports spectra", path: "physics", imports: []string{m("physics/spectra")}, want: true},
 		{name: "leaf imports thermo", path: "physics/mesh", imports: []string{m("physics/thermo")}, want: true},
+		{name: "qha on thermo, spectra, core and leaves", path: "physics/thermo/qha", imports: []string{m("physics/thermo"), m("physics/spectra"), m("physics"), m("physics/internal/parallel")}},
+		{name: "transport on thermo, spectra, core and leaves", path: "physics/transport", imports: []string{m("physics/thermo"), m("physics/spectra"), m("physics"), m("physics/mesh")}},
+		{name: "thermo imports qha", path: "physics/thermo", imports: []string{m("physics/thermo/qha")}, want: true},
 		{name: "thermo test on test models", path: "physics/thermo", imports: []string{m("physics/internal/testmodels")}, test: true},
 		{name: "spectra imports test models", path: "physics/spectra", imports: []string{m("physics/internal/testmodels")}, want: true},
 		{name: "test models import spectra", path: "physics/internal/testmodels", imports: []string{m("physics/spectra")}, want: true},
