@@ -70,6 +70,12 @@ func check(t *testing.T, what string, n, vols, temps int, est, got int64) {
 	t.Helper()
 	r := float64(est) / float64(got)
 	t.Logf("%s %d³ grid, %d volumes, %d temps: estimate %d, measured %d, ratio %.2f", what, n, vols, temps, est, got, r)
+	if r < 1 && raceEnabled && what == "quasi-harmonic" {
+		// gonum/mat keeps its workspaces in sync.Pools, which the race
+		// detector empties at random: the equation-of-state fits then
+		// allocate afresh (up to 8× here). The bound is checked without -race.
+		return
+	}
 	if r < 1 || r > 2 {
 		t.Errorf("ratio %.2f outside [1, 2]", r)
 	}
