@@ -24,6 +24,7 @@ const (
 	ModegridService_ComputeDispersion_FullMethodName = "/modegrid.v1.ModegridService/ComputeDispersion"
 	ModegridService_ComputeDos_FullMethodName        = "/modegrid.v1.ModegridService/ComputeDos"
 	ModegridService_ComputeThermal_FullMethodName    = "/modegrid.v1.ModegridService/ComputeThermal"
+	ModegridService_Fit_FullMethodName               = "/modegrid.v1.ModegridService/Fit"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -62,6 +63,13 @@ type ModegridServiceClient interface {
 	ComputeDos(ctx context.Context, in *ComputeDosRequest, opts ...grpc.CallOption) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(ctx context.Context, in *ComputeThermalRequest, opts ...grpc.CallOption) (*ComputeThermalResponse, error)
+	// Fit fits free parameters of a model to measured data (frequencies,
+	// sound velocities, elastic constants, heat capacities) by weighted least
+	// squares. It streams one progress message per evaluation of the model,
+	// then the result as the last message. The fitted model is stored like an
+	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
+	// every other call.
+	Fit(ctx context.Context, in *FitRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[FitResponse], error)
 }
 
 type modegridServiceClient struct {
@@ -131,6 +139,25 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 	return out, nil
 }
 
+func (c *modegridServiceClient) Fit(ctx context.Context, in *FitRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[FitResponse], error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	stream, err := c.cc.NewStream(ctx, &ModegridService_ServiceDesc.Streams[1], ModegridService_Fit_FullMethodName, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	x := &grpc.GenericClientStream[FitRequest, FitResponse]{ClientStream: stream}
+	if err := x.ClientStream.SendMsg(in); err != nil {
+		return nil, err
+	}
+	if err := x.ClientStream.CloseSend(); err != nil {
+		return nil, err
+	}
+	return x, nil
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_FitClient = grpc.ServerStreamingClient[FitResponse]
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -167,6 +194,13 @@ type ModegridServiceServer interface {
 	ComputeDos(context.Context, *ComputeDosRequest) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error)
+	// Fit fits free parameters of a model to measured data (frequencies,
+	// sound velocities, elastic constants, heat capacities) by weighted least
+	// squares. It streams one progress message per evaluation of the model,
+	// then the result as the last message. The fitted model is stored like an
+	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
+	// every other call.
+	Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -191,6 +225,9 @@ func (UnimplementedModegridServiceServer) ComputeDos(context.Context, *ComputeDo
 }
 func (UnimplementedModegridServiceServer) ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeThermal not implemented")
+}
+func (UnimplementedModegridServiceServer) Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error {
+	return status.Error(codes.Unimplemented, "method Fit not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -296,6 +333,17 @@ func _ModegridService_ComputeThermal_Handler(srv interface{}, ctx context.Contex
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_Fit_Handler(srv interface{}, stream grpc.ServerStream) error {
+	m := new(FitRequest)
+	if err := stream.RecvMsg(m); err != nil {
+		return err
+	}
+	return srv.(ModegridServiceServer).Fit(m, &grpc.GenericServerStream[FitRequest, FitResponse]{ServerStream: stream})
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_FitServer = grpc.ServerStreamingServer[FitResponse]
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -324,6 +372,11 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			StreamName:    "ComputeModes",
 			Handler:       _ModegridService_ComputeModes_Handler,
+			ServerStreams: true,
+		},
+		{
+			StreamName:    "Fit",
+			Handler:       _ModegridService_Fit_Handler,
 			ServerStreams: true,
 		},
 	},
