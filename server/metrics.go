@@ -24,7 +24,7 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindFit}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
 var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal}
@@ -39,6 +39,7 @@ const (
 	kindDispersion = "dispersion"
 	kindDOS        = "dos"
 	kindThermal    = "thermal"
+	kindFit        = "fit"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one

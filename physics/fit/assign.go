@@ -18,6 +18,10 @@ type item struct {
 // branches: it is taken only when nothing else is left.
 const forbidden = 1e12
 
+// maxCost bounds a pair's cost (a datum 1e100 σ from a branch is as far
+// as any), so that sums over up to MaxData items stay finite.
+const maxCost = 1e200
+
 // assign returns the 0-based branch of every item among the model values
 // vals (one per branch). Items with a branch keep it. The others are
 // matched one to one to the branches not in excluded and not taken by a
@@ -68,7 +72,10 @@ func assign(items []item, vals, long []float64, excluded []bool) []int {
 		cost[r] = make([]float64, len(cols))
 		for c, b := range cols {
 			d := (it.obs - vals[b]) / it.sigma
-			cost[r][c] = d * d
+			cost[r][c] = math.Min(d*d, maxCost) // also NaN → maxCost: the assignment's sums stay finite
+			if !(cost[r][c] <= maxCost) {
+				cost[r][c] = maxCost
+			}
 			if !allowed[b] {
 				cost[r][c] += forbidden
 			}
@@ -152,6 +159,9 @@ func hungarian(cost [][]float64) []int {
 				} else {
 					minv[j] -= delta
 				}
+			}
+			if j1 == 0 {
+				break // no column left (cannot happen with k ≤ m and finite costs)
 			}
 			j0 = j1
 			if p[j0] == 0 {

@@ -2,6 +2,7 @@ package fit
 
 import (
 	"context"
+	"math"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
@@ -238,6 +239,26 @@ func TestFixtureStable(t *testing.T) {
 		for b := 1; b < len(nu); b++ {
 			if nu[b]-nu[b-1] < 1e-3 {
 				t.Errorf("fixture at %v: branches %d and %d within %v THz", q, b, b+1, nu[b]-nu[b-1])
+			}
+		}
+	}
+}
+
+// TestExtremeSigmaStaysFinite: uncertainties at the ends of the accepted
+// range (a huge one was found by fuzzing the service) give finite numbers
+// or report the parameter not determined, never NaN or Inf.
+func TestExtremeSigmaStaysFinite(t *testing.T) {
+	for _, sigma := range []float64{MaxDatum, 1 / MaxDatum, 1e-20} {
+		p := &Problem{Crystal: testmodels.Chain(), Free: free("springs[0].k_long"),
+			Frequencies: []Frequency{{Q: [3]float64{0.2}, FreqTHz: 3, SigmaTHz: sigma}}}
+		res, err := Fit(testmodels.Ctx(t), p)
+		if err != nil {
+			t.Fatalf("σ = %g: %v", sigma, err)
+		}
+		pr := res.Params[0]
+		for _, x := range []float64{pr.Value, pr.StdErr, pr.StdErrUnscaled, res.ChiSquare, res.ReducedChiSquare, res.Correlation[0]} {
+			if math.IsNaN(x) || math.IsInf(x, 0) {
+				t.Errorf("σ = %g: a number that is not finite in %+v (χ² %v)", sigma, pr, res.ChiSquare)
 			}
 		}
 	}

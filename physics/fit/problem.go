@@ -233,13 +233,18 @@ func (p *Problem) validate(vs *physics.Violations) {
 	}
 }
 
+// MaxDatum bounds every measured value and σ in magnitude, and 1/MaxDatum
+// every σ from below: (value − model)/σ then stays within 1e100 and χ²
+// finite for any number of data. Real data are many orders inside.
+const MaxDatum = 1e50
+
 // checkValue checks a measured value and its σ.
 func checkValue(vs *physics.Violations, f, value, sigma string, x, s float64) {
-	if !finite(x) {
-		vs.Add(f+"."+value, "must be a finite number, got %v", x)
+	if !finite(x) || math.Abs(x) > MaxDatum {
+		vs.Add(f+"."+value, "must be a finite number within ±%g, got %v", MaxDatum, x)
 	}
-	if !(s > 0) || math.IsInf(s, 0) {
-		vs.Add(f+"."+sigma, "must be > 0 and finite (the standard uncertainty), got %v", s)
+	if !(s >= 1/MaxDatum && s <= MaxDatum) {
+		vs.Add(f+"."+sigma, "must be a standard uncertainty in [%g, %g], got %v", 1/MaxDatum, MaxDatum, s)
 	}
 }
 

@@ -144,9 +144,16 @@ func (ev *evaluator) result(e *evaluation, c *physics.Crystal, m *physics.Model,
 		if held[j] || undetermined[j] {
 			continue
 		}
+		se := norm(cov[j])
+		if math.IsInf(se, 0) || math.IsNaN(se) {
+			// An error past the range of float64: the data do not
+			// determine it in any useful sense.
+			undetermined[j] = true
+			continue
+		}
 		res.Params[j].Determined = true
-		res.Params[j].StdErrUnscaled = math.Sqrt(math.Max(0, cov.At(j, j)))
-		res.Params[j].StdErr = res.Params[j].StdErrUnscaled * math.Sqrt(res.ReducedChiSquare)
+		res.Params[j].StdErrUnscaled = se
+		res.Params[j].StdErr = se * math.Sqrt(res.ReducedChiSquare)
 	}
 	res.Correlation = correlation(cov, res.Params)
 	res.Undetermined = ev.groups(null, undetermined, cov, e.x, st.scale, res.ReducedChiSquare)
@@ -162,12 +169,16 @@ func (ev *evaluator) result(e *evaluation, c *physics.Crystal, m *physics.Model,
 	return res
 }
 
-// covariance returns the unscaled covariance (JᵀWJ)⁺ over the parameters
-// not held (n × n, zero rows for held ones), the flat directions in the
-// scaled parameters (columns of length n, orthonormal), and the rank.
-func covariance(st *step, held []bool) (*mat.SymDense, [][]float64, int) {
+// covariance returns a factor A of the unscaled covariance (JᵀWJ)⁺ over
+// the parameters not held, cov = A Aᵀ, one row per parameter (nil for
+// held ones): the rows are the parameters' vectors, so errors and
+// correlations come from norms and angles without forming cov, whose
+// elements (squares of the errors) may overflow where the errors do not.
+// It also returns the flat directions in the scaled parameters (length n,
+// orthonormal) and the rank.
+func covariance(st *step, held []bool) ([][]float64, [][]float64, int) {
 	n := len(st.scale)
-	cov := mat.NewSymDense(n, nil)
+	cov := make([][]float64, n)
 	var free []int
 	for j := 0; j < n; j++ {
 		if !held[j] {
@@ -178,14 +189,16 @@ func covariance(st *step, held []bool) (*mat.SymDense, [][]float64, int) {
 	if len(free) == 0 {
 		return cov, nil, 0
 	}
-	a := mat.NewDense(rows, len(free), nil)
+	// Zero rows pad J̃ to at least as many rows as columns, so the thin
+	// SVD has every right singular vector (the flat ones too).
+	a := mat.NewDense(max(rows, len(free)), len(free), nil)
 	for i := 0; i < rows; i++ {
 		for c, j := range free {
 			a.Set(i, c, st.jw[i*n+j]/st.scale[j])
 		}
 	}
 	var svd mat.SVD
-	if !svd.Factorize(a, mat.SVDFull) {
+	if !svd.Factorize(a, mat.SVDThin) {
 		return cov, nil, 0
 	}
 	sv := svd.Values(nil)
@@ -195,21 +208,11 @@ func covariance(st *step, held []bool) (*mat.SymDense, [][]float64, int) {
 	for _, s := range sv {
 		big = math.Max(big, s)
 	}
-	rank := 0
+	var keep []int
 	var null [][]float64
-	for k := 0; k < len(free); k++ {
-		s := 0.0
-		if k < len(sv) {
-			s = sv[k]
-		}
+	for k, s := range sv {
 		if s > singularRel*big && s > 0 {
-			rank++
-			for c1, j1 := range free {
-				for c2, j2 := range free[:c1+1] {
-					x := v.At(c1, k) * v.At(c2, k) / (s * s) / (st.scale[j1] * st.scale[j2])
-					cov.SetSym(j1, j2, cov.At(j1, j2)+x)
-				}
-			}
+			keep = append(keep, k)
 			continue
 		}
 		dir := make([]float64, n)
@@ -218,7 +221,47 @@ func covariance(st *step, held []bool) (*mat.SymDense, [][]float64, int) {
 		}
 		null = append(null, dir)
 	}
-	return cov, null, rank
+	for c, j := range free {
+		cov[j] = make([]float64, len(keep))
+		for x, k := range keep {
+			cov[j][x] = v.At(c, k) / sv[k] / st.scale[j]
+		}
+	}
+	return cov, null, len(keep)
+}
+
+// norm is the Euclidean norm of x without overflow in the squares.
+func norm(x []float64) float64 {
+	big := 0.0
+	for _, v := range x {
+		big = math.Max(big, math.Abs(v))
+	}
+	if big == 0 || math.IsInf(big, 0) || math.IsNaN(big) {
+		return big
+	}
+	var s float64
+	for _, v := range x {
+		s += (v / big) * (v / big)
+	}
+	return big * math.Sqrt(s)
+}
+
+// combine is Σ c_i rows[i] (rows of the covariance factor), nil rows
+// skipped: the factor of a combination's variance.
+func combineRows(rows [][]float64, c []float64) []float64 {
+	var out []float64
+	for i, r := range rows {
+		if r == nil {
+			continue
+		}
+		if out == nil {
+			out = make([]float64, len(r))
+		}
+		for k, v := range r {
+			out[k] += c[i] * v
+		}
+	}
+	return out
 }
 
 // involvedTol is the smallest weight |component|² in the flat directions
@@ -239,21 +282,32 @@ func involved(null [][]float64, n int) []bool {
 	return out
 }
 
-// correlation is cov normalised by its diagonal, over the determined
-// parameters; 1 on the diagonal.
-func correlation(cov *mat.SymDense, ps []ParamResult) []float64 {
+// correlation is the covariance normalised by its diagonal, over the
+// determined parameters (the cosine of the angle between their factor
+// rows); 1 on the diagonal.
+func correlation(cov [][]float64, ps []ParamResult) []float64 {
 	n := len(ps)
 	out := make([]float64, n*n)
+	unit := make([][]float64, n)
 	for i := 0; i < n; i++ {
 		out[i*n+i] = 1
 		if !ps[i].Determined {
 			continue
 		}
+		l := norm(cov[i])
+		unit[i] = make([]float64, len(cov[i]))
+		for k, v := range cov[i] {
+			unit[i][k] = v / l
+		}
 		for j := 0; j < i; j++ {
-			if !ps[j].Determined {
+			if unit[j] == nil {
 				continue
 			}
-			c := cov.At(i, j) / math.Sqrt(cov.At(i, i)*cov.At(j, j))
+			var c float64
+			for k, v := range unit[i] {
+				c += v * unit[j][k]
+			}
+			c = math.Max(-1, math.Min(1, c))
 			out[i*n+j], out[j*n+i] = c, c
 		}
 	}
@@ -264,7 +318,7 @@ func correlation(cov *mat.SymDense, ps []ParamResult) []float64 {
 // projector onto the flat directions (basis-independent, so two separate
 // degeneracies come out separate), and gives each group's determined and
 // flat combinations in the parameters' units.
-func (ev *evaluator) groups(null [][]float64, undetermined []bool, cov *mat.SymDense, x, scale []float64, redChi2 float64) []Undetermined {
+func (ev *evaluator) groups(null [][]float64, undetermined []bool, cov [][]float64, x, scale []float64, redChi2 float64) []Undetermined {
 	n := len(undetermined)
 	proj := func(i, j int) float64 {
 		var s float64
@@ -298,7 +352,7 @@ func (ev *evaluator) groups(null [][]float64, undetermined []bool, cov *mat.SymD
 // group describes one group: the eigenvectors of the projector restricted
 // to it, eigenvalue ≈ 1 flat, ≈ 0 determined (scaled parameters, turned
 // into coefficients of the parameters themselves).
-func (ev *evaluator) group(members []int, proj func(i, j int) float64, cov *mat.SymDense, x, scale []float64, redChi2 float64) Undetermined {
+func (ev *evaluator) group(members []int, proj func(i, j int) float64, cov [][]float64, x, scale []float64, redChi2 float64) Undetermined {
 	m := len(members)
 	u := Undetermined{}
 	for _, j := range members {
@@ -333,14 +387,17 @@ func (ev *evaluator) group(members []int, proj func(i, j int) float64, cov *mat.
 			u.Flat = append(u.Flat, comb)
 			continue
 		}
-		var v, varU float64
+		var v float64
+		rows := make([][]float64, m)
 		for a, ja := range members {
 			v += coeffs[a] * x[ja]
-			for b, jb := range members {
-				varU += coeffs[a] * coeffs[b] * cov.At(ja, jb)
-			}
+			rows[a] = cov[ja]
 		}
-		comb.Value, comb.StdErrUnscaled = v, math.Sqrt(math.Max(0, varU))
+		se := norm(combineRows(rows, coeffs))
+		if math.IsInf(se, 0) || math.IsNaN(se) {
+			continue // an error beyond float64: not determined in any useful sense either
+		}
+		comb.Value, comb.StdErrUnscaled = v, se
 		comb.StdErr = comb.StdErrUnscaled * math.Sqrt(redChi2)
 		u.Determined = append(u.Determined, comb)
 	}
