@@ -298,16 +298,35 @@ func writeModelFile(file string, c *modegridv1.Crystal) error {
 	case ".pb", ".binpb":
 		b, err = proto.MarshalOptions{Deterministic: true}.Marshal(c)
 	default:
-		// Re-indented by encoding/json: byte-stable, as writeJSON.
-		var compact []byte
-		if compact, err = protojson.Marshal(c); err == nil {
-			var out bytes.Buffer
-			err = json.Indent(&out, compact, "", "  ")
-			b = append(out.Bytes(), '\n')
-		}
+		b, err = modelJSON(c)
 	}
 	if err != nil {
 		return fmt.Errorf("encode the fitted model: %w", err)
 	}
 	return writeFile(file, func(w io.Writer) error { _, err := w.Write(b); return err })
+}
+
+// modelJSON is c as indented protobuf JSON, re-indented by encoding/json
+// (byte-stable, as writeJSON).
+func modelJSON(c *modegridv1.Crystal) ([]byte, error) {
+	compact, err := protojson.Marshal(c)
+	if err != nil {
+		return nil, fmt.Errorf("encode the fitted model: %w", err)
+	}
+	var out bytes.Buffer
+	if err := json.Indent(&out, compact, "", "  "); err != nil {
+		return nil, fmt.Errorf("encode the fitted model: %w", err)
+	}
+	out.WriteByte('\n')
+	return out.Bytes(), nil
+}
+
+// writeModelTo writes a model as indented protobuf JSON (a .json model file).
+func writeModelTo(w io.Writer, c *modegridv1.Crystal) error {
+	b, err := modelJSON(c)
+	if err != nil {
+		return err
+	}
+	_, err = w.Write(b)
+	return err
 }

@@ -65,7 +65,7 @@ func (f fitFigure) residualPanel() *plot.Plot {
 	for _, r := range rs {
 		top = max(top, 1.1*abs(r.GetNormalized()))
 	}
-	p.Y.Min, p.Y.Max = -top, top
+	p.Y.Min, p.Y.Max = -top, 1.45*top // headroom above for the legend
 	for _, y := range []float64{-2, 2} {
 		l := line([]float64{p.X.Min, p.X.Max}, []float64{y, y}, zeroColor, 0.8*vg.Points(1))
 		l.Dashes = []vg.Length{4 * vg.Points(1), 2 * vg.Points(1)}
