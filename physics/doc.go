@@ -287,11 +287,16 @@
 //     harmonic U, F, S, Cv; θ_D(T) with its status; Debye functions;
 //     mean-square displacements) and their cost (ThermalCost); its
 //     DOS-integral route uses spectra.
+//   - physics/fit — above thermo: weighted least-squares fits of force
+//     constants to frequencies, sound velocities, elastic constants and
+//     heat capacities, with standard errors (Fit), and their cost (Cost).
+//     It uses the core's dynamical matrix, modes and long-wave forms
+//     (LongWaveForms, forms.go); its tests check its heat capacities
+//     against thermo's.
 //
 // Capabilities still to come each get a package of their own above the
-// core (DEVELOPERS.md, Architecture): imported first-principles force
-// constants (physics/fcimport), polar crystals and the dipole–dipole sum
-// (physics/polar), fitting force constants to data (physics/fit),
-// scattering intensities (physics/scatter), heat transport and the
-// quasi-harmonic approximation (physics/transport, physics/thermo/qha).
+// core (DEVELOPERS.md, Architecture): polar crystals and the dipole–dipole
+// sum (physics/polar), scattering intensities (physics/scatter), heat
+// transport and the quasi-harmonic approximation (physics/transport,
+// physics/thermo/qha).
 package physics

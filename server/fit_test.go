@@ -16,8 +16,8 @@ import (
 )
 
 // fitQ are wavevectors of the rock-salt-like example (fcc): along Γ–X, at
-// X and L, and a general point.
-var fitQ = [][3]float64{{0.1, 0, 0.1}, {0.25, 0, 0.25}, {0.5, 0, 0.5}, {0.2, 0.2, 0.2}, {0.5, 0.5, 0.5}, {0.15, 0.05, 0.3}}
+// X, L and K, and a general point: 42 frequencies.
+var fitQ = [][3]float64{{0.1, 0, 0.1}, {0.25, 0, 0.25}, {0.5, 0, 0.5}, {0.2, 0.2, 0.2}, {0.5, 0.5, 0.5}, {0.375, 0.375, 0.75}, {0.15, 0.05, 0.3}}
 
 // fitPaths are the four shell constants fitted on the rock-salt-like
 // example.
@@ -26,6 +26,12 @@ var fitPaths = []string{"shells[0].k_long", "shells[0].k_trans", "shells[1].k_lo
 // measured asks the server for the frequencies of model at fitQ and
 // returns them as fit data (σ = 0.05 THz, unlabelled).
 func measured(t *testing.T, ts *testServer, model *modegridv1.Crystal) []*modegridv1.FrequencyDatum {
+	t.Helper()
+	return measuredFor(t, ts, model)
+}
+
+// measuredFor is measured for tests and benchmarks.
+func measuredFor(t testing.TB, ts *testServer, model *modegridv1.Crystal) []*modegridv1.FrequencyDatum {
 	t.Helper()
 	var pts []*modegridv1.QPoint
 	for _, q := range fitQ {
@@ -81,7 +87,7 @@ func runFit(t *testing.T, ts *testServer, req *modegridv1.FitRequest) ([]*modegr
 
 // perturbed is the rock-salt-like example with its four fitted constants
 // moved 10–30 % off.
-func perturbed(t *testing.T) (start, truth *modegridv1.Crystal) {
+func perturbed(t testing.TB) (start, truth *modegridv1.Crystal) {
 	truth = example(t, "rocksalt-like")
 	start = proto.Clone(truth).(*modegridv1.Crystal)
 	start.Shells[0].KLong *= 1.3
