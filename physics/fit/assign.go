@@ -62,6 +62,11 @@ func assign(items []item, vals, long []float64, excluded []bool) []int {
 			}
 		}
 	}
+	if len(cols) == 0 { // every branch excluded (refused by validation): any
+		for b := range vals {
+			cols = append(cols, b)
+		}
+	}
 	for len(cols) < len(free) { // more items than branches: each branch several times
 		cols = append(cols, cols[:min(len(cols), len(free)-len(cols))]...)
 	}

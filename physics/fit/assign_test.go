@@ -72,4 +72,11 @@ func TestAssignTerminatesOnExtremeCosts(t *testing.T) {
 	if got[0] == got[1] || got[1] == got[2] || got[0] == got[2] || got[1] != 1 {
 		t.Errorf("assignment %v; want distinct branches, the second datum on branch 2", got)
 	}
+	// Every branch excluded or taken: the assignment still ends.
+	if got := assign([]item{{obs: 2.1, sigma: 1}, {obs: 1, sigma: 1, branch: 2}}, vals[:2], nil, []bool{true, false}); got[0] != 1 {
+		t.Errorf("with every open branch labelled: %v; want the datum on the shared branch 2", got)
+	}
+	if got := assign([]item{{obs: 1.2, sigma: 1}}, vals, nil, []bool{true, true, true}); got[0] != 0 {
+		t.Errorf("with every branch excluded: %v; want the nearest, branch 1", got)
+	}
 }
