@@ -449,3 +449,85 @@ func (c *Client) QuasiHarmonic(ctx context.Context, req *modegridv1.ComputeQuasi
 func (c *Client) Conductivity(ctx context.Context, req *modegridv1.ComputeConductivityRequest, opts ...CallOption) (*modegridv1.ComputeConductivityResponse, error) {
 	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeConductivity, c.affinity, collectOptions(opts))
 }
+
+// Fit calls Fit and returns its last message, the one carrying the result
+// (FitResponse.GetResult). progress, when not nil, is called with every
+// progress message on the calling goroutine. A fit broken by UNAVAILABLE
+// after it began is sent again from the start (it is a pure computation),
+// and a model sent by reference that the server no longer holds is sent
+// again inline. The fitted model is remembered like a model the caller
+// sent: using FitResult.fitted inline in a later call sends its hash.
+func (c *Client) Fit(ctx context.Context, req *modegridv1.FitRequest, progress func(*modegridv1.FitProgress), opts ...CallOption) (*modegridv1.FitResponse, error) {
+	o := collectOptions(opts)
+	s, err := c.newSender(ctx, req, c.affinity)
+	if err != nil {
+		return nil, err
+	}
+	var hdr, trl metadata.MD
+	o.grpcOpts = append(slices.Clip(o.grpcOpts), grpc.Header(&hdr), grpc.Trailer(&trl))
+	resends := 0
+	for {
+		hdr, trl = nil, nil
+		last, begun, err := s.fitOnce(ctx, o, progress)
+		if err == nil {
+			c.rememberFitted(req.GetModel(), last.GetResult())
+			return last, nil
+		}
+		switch {
+		case !begun && s.fallback(err):
+		case resends < c.maxResends && broken(ctx, err, begun || answered(hdr, trl)):
+			resends++
+		default:
+			return nil, err
+		}
+	}
+}
+
+// fitOnce runs one attempt of a Fit stream; begun reports that a message
+// arrived.
+func (s *sender) fitOnce(ctx context.Context, o callOptions, progress func(*modegridv1.FitProgress)) (*modegridv1.FitResponse, bool, error) {
+	sctx, cancel := context.WithCancel(s.outgoing(ctx))
+	defer cancel()
+	stream, err := s.c.api.Fit(sctx, s.request().(*modegridv1.FitRequest), o.grpcOpts...)
+	if err != nil {
+		return nil, false, err
+	}
+	var last *modegridv1.FitResponse
+	for {
+		msg, err := stream.Recv()
+		if errors.Is(err, io.EOF) {
+			if last.GetResult() == nil {
+				return nil, last != nil, fmt.Errorf("modegrid client: the fit stream ended without a result")
+			}
+			return last, true, nil
+		}
+		if err != nil {
+			return nil, last != nil, err
+		}
+		if last == nil {
+			s.succeeded(msg.GetModelHash())
+		}
+		last = msg
+		if p := msg.GetProgress(); p != nil && progress != nil {
+			progress(p)
+		}
+	}
+}
+
+// rememberFitted records the fitted model of a fit as an inline model of
+// the caller's with its hash, under the starting model's options.
+func (c *Client) rememberFitted(start *modegridv1.ModelSource, r *modegridv1.FitResult) {
+	if r.GetFitted() == nil || r.GetFittedModelHash() == "" {
+		return
+	}
+	src := &modegridv1.ModelSource{
+		Source:             &modegridv1.ModelSource_Crystal{Crystal: r.GetFitted()},
+		EnforceSumRule:     start.GetEnforceSumRule(),
+		SymmetryToleranceA: start.GetSymmetryToleranceA(),
+	}
+	if k, ok := keyOf(src); ok {
+		// With affinity the fitted model lives on the replica that ran the
+		// fit, not necessarily the one its hash routes to.
+		c.refs.remember(k, src, r.GetFittedModelHash(), !c.affinity)
+	}
+}

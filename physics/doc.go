@@ -294,10 +294,14 @@
 //   - physics/transport — lattice thermal conductivity in the
 //     relaxation-time approximation for bulk and finite samples, cumulative
 //     curves (ConductivityCost).
+//   - physics/fit — above thermo: weighted least-squares fits of force
+//     constants to frequencies, sound velocities, elastic constants and
+//     heat capacities, with standard errors (Fit), and their cost (Cost).
+//     It uses the core's dynamical matrix, modes and long-wave forms
+//     (LongWaveForms, forms.go); its tests check its heat capacities
+//     against thermo's.
 //
 // Capabilities still to come each get a package of their own above the
-// core (DEVELOPERS.md, Architecture): imported first-principles force
-// constants (physics/fcimport), polar crystals and the dipole–dipole sum
-// (physics/polar), fitting force constants to data (physics/fit),
-// scattering intensities (physics/scatter).
+// core (DEVELOPERS.md, Architecture): polar crystals and the dipole–dipole
+// sum (physics/polar), scattering intensities (physics/scatter).
 package physics

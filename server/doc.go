@@ -49,7 +49,9 @@ package server
 // intermediate of a density of states or a thermal calculation — are
 // cached by (model hash, grid, what is kept: frequencies, site weights or
 // eigenvectors), so a DOS and a thermal request on one model and grid
-// diagonalise once. Modes streams are not cached.
+// diagonalise once. Modes streams are not cached, nor fits (fit.go: their
+// data are the request); a fit's fitted model is stored like an inline
+// model, under its hash.
 //
 // The in-process cache is one LRU bounded in bytes (Config.CacheBytes,
 // default 512 MiB, negative disables it — references by hash then work

@@ -241,9 +241,12 @@ type fuzzServer struct {
 
 // newFuzzServer starts a server with fuzzConfig on loopback, warmed with
 // every example crystal so that seeds may refer to them by hash.
-func newFuzzServer(f *testing.F) *fuzzServer {
+func newFuzzServer(f *testing.F) *fuzzServer { return newFuzzServerWith(f, fuzzConfig) }
+
+// newFuzzServerWith is newFuzzServer with another configuration.
+func newFuzzServerWith(f *testing.F, cfg Config) *fuzzServer {
 	f.Helper()
-	srv, err := New(fuzzConfig)
+	srv, err := New(cfg)
 	if err != nil {
 		f.Fatal(err)
 	}
@@ -284,16 +287,22 @@ func newFuzzServer(f *testing.F) *fuzzServer {
 type rpcTarget struct {
 	method string                          // full method name
 	req    func() proto.Message            // a new request message
-	stream bool                            // server-streaming (ComputeModes)
+	stream bool                            // server-streaming (ComputeModes, Fit)
 	check  func(fuzzCase, []proto.Message) // invariants of an accepted call's responses
 	// allowed codes besides OK and INVALID_ARGUMENT.
 	allowed []codes.Code
+	// config of the target's server (zero: fuzzConfig).
+	config *Config
 }
 
 // fuzzRPC fuzzes one RPC: the input bytes are sent as the request
 // message. The seeds are the committed corpus (TestFuzzCorpus).
 func fuzzRPC(f *testing.F, tg rpcTarget) {
-	fs := newFuzzServer(f)
+	cfg := fuzzConfig
+	if tg.config != nil {
+		cfg = *tg.config
+	}
+	fs := newFuzzServerWith(f, cfg)
 	reqDesc := tg.req().ProtoReflect().Descriptor()
 	f.Fuzz(func(t *testing.T, b []byte) {
 		if len(b) > fuzzInputMax {
@@ -355,7 +364,7 @@ func callStream(ctx context.Context, conn *grpc.ClientConn, tg rpcTarget, b []by
 		return err
 	}
 	for {
-		m := &modegridv1.ComputeModesResponse{}
+		m := respFor(tg.method)
 		if err := cs.RecvMsg(m); err != nil {
 			if errors.Is(err, io.EOF) {
 				return nil
@@ -382,6 +391,10 @@ func respFor(method string) proto.Message {
 		return &modegridv1.ComputeQuasiHarmonicResponse{}
 	case modegridv1.ModegridService_ComputeConductivity_FullMethodName:
 		return &modegridv1.ComputeConductivityResponse{}
+	case modegridv1.ModegridService_ComputeModes_FullMethodName:
+		return &modegridv1.ComputeModesResponse{}
+	case modegridv1.ModegridService_Fit_FullMethodName:
+		return &modegridv1.FitResponse{}
 	}
 	panic("server fuzz: no response type for " + method)
 }
@@ -669,6 +682,94 @@ func FuzzComputeThermal(f *testing.F) {
 	})
 }
 
+// fuzzFitConfig is fuzzConfig with a compute-time bound that keeps every
+// admitted fit (up to its evaluation limit) to a fraction of a second.
+var fuzzFitConfig = func() Config {
+	c := fuzzConfig
+	c.MaxComputeSeconds = 0.2
+	return c
+}()
+
+// fitSeeds are fits of every example model to frequencies, and of the
+// chain to every data kind, with bounds and ties, and bad data.
+func fitSeeds(tb testing.TB) []proto.Message {
+	var out []proto.Message
+	for _, name := range examples.Names() {
+		c := example(tb, name)
+		if len(c.GetSites()) > fuzzConfig.MaxSites {
+			continue
+		}
+		free := "springs[0].k_long"
+		if len(c.GetSprings()) == 0 {
+			free = "shells[0].k_long"
+		}
+		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{})
+		if err != nil {
+			tb.Fatal(err)
+		}
+		for _, src := range []*modegridv1.ModelSource{inline(c), byHash(m.Hash())} {
+			out = append(out, &modegridv1.FitRequest{Model: src, Free: []*modegridv1.FitParameter{{Path: free}},
+				Frequencies: []*modegridv1.FrequencyDatum{{Q: &modegridv1.QPoint{Q1: 0.2}, FrequencyThz: 3, SigmaThz: 0.1}, {Q: &modegridv1.QPoint{Q1: 0.5}, FrequencyThz: 4, SigmaThz: 0.1, Branch: 1}}})
+		}
+	}
+	chain := inline(example(tb, "chain"))
+	lower, upper := 0.5, 5.0
+	return append(out,
+		&modegridv1.FitRequest{Model: chain, Free: []*modegridv1.FitParameter{{Path: "springs[0].k_long", Lower: &lower, Upper: &upper}},
+			Frequencies:     []*modegridv1.FrequencyDatum{{Q: &modegridv1.QPoint{Q1: 0.25}, FrequencyThz: 2, SigmaThz: 0.1, Polarization: modegridv1.Polarization_POLARIZATION_LONGITUDINAL}},
+			SoundVelocities: []*modegridv1.SoundVelocityDatum{{Direction: &modegridv1.Vec3{X: 1}, KmS: 3, SigmaKmS: 0.2}},
+			HeatCapacities: []*modegridv1.HeatCapacityData{{Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{16}}, Basis: modegridv1.HeatCapacityBasis_HEAT_CAPACITY_BASIS_PER_KG,
+				Points: []*modegridv1.HeatCapacityPoint{{TemperatureK: 100, Value: 150, Sigma: 5}}}},
+			MaxEvaluations: 5},
+		&modegridv1.FitRequest{Model: inline(example(tb, "fcc")), Free: []*modegridv1.FitParameter{{Path: "shells[0].k_long"}},
+			Ties:             []*modegridv1.FitTie{{Path: "shells[0].k_trans", To: "shells[0].k_long", Ratio: 0.2}},
+			ElasticConstants: []*modegridv1.ElasticConstantDatum{{Ij: 11, Gpa: 100, SigmaGpa: 5}, {Ij: 44, Gpa: 40, SigmaGpa: 5}},
+			GammaFrequencies: []*modegridv1.GammaFrequencyDatum{{FrequencyThz: 5, SigmaThz: 1}}},
+		&modegridv1.FitRequest{Model: chain, Free: []*modegridv1.FitParameter{{Path: "springs[0].kLong"}, {Path: "blocks[3].phi[9]"}},
+			Frequencies: []*modegridv1.FrequencyDatum{{Q: &modegridv1.QPoint{Q1: math.NaN()}, FrequencyThz: 1, SigmaThz: 0}}, MaxEvaluations: 1 << 30})
+}
+
+// FuzzFit: a fit request's bytes. An accepted fit streams progress then
+// one result whose numbers are finite, whose fitted model has a hash and
+// whose residuals and parameters match the request's counts.
+func FuzzFit(f *testing.F) {
+	fuzzRPC(f, rpcTarget{
+		method: modegridv1.ModegridService_Fit_FullMethodName,
+		req:    func() proto.Message { return &modegridv1.FitRequest{} },
+		stream: true,
+		config: &fuzzFitConfig,
+		check: func(fc fuzzCase, rs []proto.Message) {
+			t := fc.t
+			if len(rs) == 0 {
+				t.Fatal("an accepted fit without messages")
+			}
+			for _, m := range rs[:len(rs)-1] {
+				p := m.(*modegridv1.FitResponse).GetProgress()
+				if p == nil {
+					t.Fatal("a message before the last is not progress")
+				}
+				fc.finite("progress", p.GetChiSquare(), p.GetDamping())
+			}
+			r := rs[len(rs)-1].(*modegridv1.FitResponse).GetResult()
+			if r == nil || !isHash(r.GetFittedModelHash()) {
+				t.Fatalf("last message %v; want a result with the fitted model's hash", rs[len(rs)-1])
+			}
+			fc.finite("χ²", r.GetChiSquare(), r.GetReducedChiSquare())
+			fc.finite("correlation", r.GetCorrelation()...)
+			if len(r.GetCorrelation()) != len(r.GetParameters())*len(r.GetParameters()) || int(r.GetData()) != len(r.GetResiduals()) {
+				t.Fatalf("%d correlations for %d parameters, %d residuals for %d data", len(r.GetCorrelation()), len(r.GetParameters()), len(r.GetResiduals()), r.GetData())
+			}
+			for _, p := range r.GetParameters() {
+				fc.finite(p.GetPath(), p.GetStart(), p.GetValue(), p.GetStdError(), p.GetStdErrorUnscaled())
+			}
+			for _, x := range r.GetResiduals() {
+				fc.finite(x.GetDatum(), x.GetMeasured(), x.GetSigma(), x.GetModel(), x.GetNormalized())
+			}
+		},
+		allowed: []codes.Code{codes.NotFound},
+	})
+}
+
 // corpusTargets maps each server fuzz target to its committed seeds.
 func corpusTargets(tb testing.TB) map[string][][]byte {
 	out := map[string][][]byte{}
@@ -684,6 +785,7 @@ func corpusTargets(tb testing.TB) map[string][][]byte {
 		"FuzzCheckModel": checkSeeds(tb), "FuzzComputeModes": modesSeeds(tb), "FuzzComputeDispersion": dispersionSeeds(tb),
 		"FuzzComputeDos": dosSeeds(tb), "FuzzComputeThermal": thermalSeeds(tb),
 		"FuzzComputeGruneisen": gr, "FuzzComputeQuasiHarmonic": qh, "FuzzComputeConductivity": co,
+		"FuzzFit": fitSeeds(tb),
 	} {
 		for _, s := range seeds {
 			b, err := proto.MarshalOptions{Deterministic: true}.Marshal(s)

@@ -24,7 +24,7 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindFit}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
 var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity}
@@ -44,6 +44,7 @@ const (
 	kindGruneisen    = "gruneisen"
 	kindQHA          = "quasi_harmonic"
 	kindConductivity = "conductivity"
+	kindFit        = "fit"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one

@@ -52,11 +52,48 @@ func TestDemo(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if want := 7*len(examples.Names()) + 4; len(entries) != want { // + the heat section's 4
+	if want := 7*len(examples.Names()) + 4 + 4; len(entries) != want { // + the heat section's 4, the fit's 4
 		t.Errorf("demo wrote %d files; want %d", len(entries), want)
 	}
-	if !strings.Contains(out, "wrote 39 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
+	if !strings.Contains(out, "wrote 43 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
 		t.Errorf("summary does not name the folder and file count:\n%s", out)
+	}
+	checkDemoFit(t, dir, out)
+}
+
+// checkDemoFit: the demo's fit says its data are invented, writes them as
+// a fit data file that `fit` reads back to the same result, the parameter
+// table, the fitted model and the figure, and prints each parameter with
+// its error beside the invented truth.
+func checkDemoFit(t *testing.T, dir, out string) {
+	t.Helper()
+	base := filepath.Join(dir, demoFitExample)
+	data, err := os.ReadFile(base + "-fit-data.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.HasPrefix(string(data), "# Invented") || !strings.Contains(string(data), "not real data") {
+		t.Errorf("the demo's data file does not say it is invented:\n%.200s", data)
+	}
+	if !strings.Contains(out, "invented frequencies (not real data)") || !strings.Contains(out, "invented truth") {
+		t.Errorf("the demo's fit table:\n%s", out)
+	}
+	code, again, stderr := runCLI(t, "fit", "-m", example(demoFitExample), "--data", base+"-fit-data.csv", "--free", strings.Join(demoFitPaths, ","), "--format", "csv")
+	if code != exitOK {
+		t.Fatalf("fit of the demo's data file: exit %d: %s", code, stderr)
+	}
+	table, err := os.ReadFile(base + "-fit.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := sameOutput(".csv", again, string(table)); err != nil {
+		t.Errorf("fit of the demo's data file differs from the demo's table: %v", err)
+	}
+	if code, _, stderr := runCLI(t, "check", "-m", base+"-fitted.json"); code != exitOK {
+		t.Errorf("the fitted model file does not check: %s", stderr)
+	}
+	if _, _, paths, text := svgStats(t, base+"-fit.svg"); paths < 20 || !strings.Contains(text, "fitted") {
+		t.Errorf("%s-fit.svg: %d paths, text %q", base, paths, text)
 	}
 }
 

@@ -41,6 +41,9 @@ func TestFigureGallery(t *testing.T) {
 			"--measured", testdata("measured-thermal.csv")},
 			[]string{"measured Cv (J/(K·mol atoms))", "5 measured points", "χ²/N ="}},
 		{"shape-diatomic-chain-zone-boundary", []string{"shape", "-m", example("diatomic-chain"), "--q", "0.5", "--branch", "2"}, nil},
+		{"fit-rocksalt-like", []string{"fit", "-m", example("rocksalt-like"), "--data", testdata("fit-rocksalt-like-dispersion.csv"),
+			"--data", testdata("fit-rocksalt-like-gamma.csv"), "--free", "shells[0].k_long,shells[0].k_trans,shells[1].k_long,shells[2].k_long", "--format", "table"},
+			[]string{"χ²/dof =", "shells[0].k_trans", "correlation", "(measured − model)/σ"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

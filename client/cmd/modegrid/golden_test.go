@@ -78,6 +78,24 @@ var goldenCases = []struct {
 	{"thermal-rocksalt-like-kg-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000", "--basis", "kg"}},
 	{"thermal-rocksalt-like-atoms-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000"}},
 	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
+
+	// Fits to invented data (testdata/fit-*.csv say how they were made).
+	{"fit-rocksalt-like-table", fitRocksaltArgs()},
+	{"fit-rocksalt-like-csv", append(fitRocksaltArgs(), "--format", "csv")},
+	{"fit-rocksalt-like-json", append(fitRocksaltArgs(), "--format", "json")},
+	{"fit-rocksalt-like-tie-bound-table", []string{"fit", "-m", example("rocksalt-like"), "--data", testdata("fit-rocksalt-like-dispersion.csv"),
+		"--free", "shells[0].k_long,shells[0].k_trans,shells[1].k_long", "--tie", "shells[2].k_long=shells[1].k_long*0.8", "--bound", "shells[0].k_trans=1.5:3"}},
+	{"fit-chain-heat-capacity-table", []string{"fit", "-m", example("chain"), "--data", testdata("fit-chain-heat-capacity.csv"),
+		"--data", testdata("fit-chain-velocity.csv"), "--free", "springs[0].k_long", "--grid", "64"}},
+	{"fit-spring-and-shell-chain-table", []string{"fit", "-m", testdata("spring-and-shell-chain.json"), "--data", testdata("fit-chain-dispersion.csv"),
+		"--free", "springs[0].k_long", "--free", "shells[0].k_long"}},
+}
+
+// fitRocksaltArgs fit the four shell constants of the rock-salt-like
+// example to its invented dispersion and Γ data.
+func fitRocksaltArgs() []string {
+	return []string{"fit", "-m", example("rocksalt-like"), "--data", testdata("fit-rocksalt-like-dispersion.csv"),
+		"--data", testdata("fit-rocksalt-like-gamma.csv"), "--free", "shells[0].k_long,shells[0].k_trans,shells[1].k_long,shells[2].k_long"}
 }
 
 func goldenFile(name string) string {

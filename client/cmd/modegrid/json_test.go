@@ -20,6 +20,7 @@ var responseOf = map[string]protoreflect.MessageDescriptor{
 	"path":    (&modegridv1.ComputeDispersionResponse{}).ProtoReflect().Descriptor(),
 	"dos":     (&modegridv1.ComputeDosResponse{}).ProtoReflect().Descriptor(),
 	"thermal": (&modegridv1.ComputeThermalResponse{}).ProtoReflect().Descriptor(),
+	"fit":     (&modegridv1.FitResult{}).ProtoReflect().Descriptor(),
 }
 
 // jsonCases are the JSON golden cases and two whose zero values protobuf

@@ -69,9 +69,14 @@ func (e *csvError) Error() string {
 // readMeasuredCSV reads the header and rows of file, skipping '#' and blank
 // lines, and returns the header and the rows with their line numbers.
 func readMeasuredCSV(file string) ([]string, [][]string, []int, error) {
+	return readCSV("--measured", file)
+}
+
+// readCSV is readMeasuredCSV for the file of flag.
+func readCSV(flag, file string) ([]string, [][]string, []int, error) {
 	f, err := os.Open(file)
 	if err != nil {
-		return nil, nil, nil, usagef("--measured: %v", err)
+		return nil, nil, nil, usagef("%s: %v", flag, err)
 	}
 	defer f.Close()
 	r := csv.NewReader(f)
@@ -91,7 +96,7 @@ func readMeasuredCSV(file string) ([]string, [][]string, []int, error) {
 			if errors.As(err, &pe) {
 				return nil, nil, nil, &csvError{file: file, line: pe.Line, column: pe.Column, msg: pe.Err.Error()}
 			}
-			return nil, nil, nil, fmt.Errorf("--measured %s: %w", file, err)
+			return nil, nil, nil, fmt.Errorf("%s %s: %w", flag, file, err)
 		}
 		line, _ := r.FieldPos(0)
 		if header == nil {

@@ -60,6 +60,7 @@ var commands = []struct {
 	{"conductivity", "lattice thermal conductivity of bulk and finite samples, cumulative curves", cmdConductivity},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"upload", "send a model to --server (any size) and print the hash other calls can name it by", cmdUpload},
+	{"fit", "fit force constants to measured frequencies, velocities, elastic constants, heat capacities", cmdFit},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -77,7 +78,7 @@ common flags:
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity, fit)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -104,7 +105,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, gruneisen, qha, conductivity, shape, upload, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, gruneisen, qha, conductivity, fit, shape, upload, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

@@ -480,6 +480,116 @@ func (SampleKind) EnumDescriptor() ([]byte, []int) {
 	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{7}
 }
 
+// Polarization is a hint of a measured mode's polarisation.
+type Polarization int32
+
+const (
+	// No hint.
+	Polarization_POLARIZATION_UNSPECIFIED Polarization = 0
+	// The mode's mass-weighted displacement lies mostly along the wavevector.
+	Polarization_POLARIZATION_LONGITUDINAL Polarization = 1
+	// Mostly across it.
+	Polarization_POLARIZATION_TRANSVERSE Polarization = 2
+)
+
+// Enum value maps for Polarization.
+var (
+	Polarization_name = map[int32]string{
+		0: "POLARIZATION_UNSPECIFIED",
+		1: "POLARIZATION_LONGITUDINAL",
+		2: "POLARIZATION_TRANSVERSE",
+	}
+	Polarization_value = map[string]int32{
+		"POLARIZATION_UNSPECIFIED":  0,
+		"POLARIZATION_LONGITUDINAL": 1,
+		"POLARIZATION_TRANSVERSE":   2,
+	}
+)
+
+func (x Polarization) Enum() *Polarization {
+	p := new(Polarization)
+	*p = x
+	return p
+}
+
+func (x Polarization) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (Polarization) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[8].Descriptor()
+}
+
+func (Polarization) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[8]
+}
+
+func (x Polarization) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use Polarization.Descriptor instead.
+func (Polarization) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{8}
+}
+
+// HeatCapacityBasis is the amount a heat capacity is given per.
+type HeatCapacityBasis int32
+
+const (
+	// Unspecified means per mole of atoms.
+	HeatCapacityBasis_HEAT_CAPACITY_BASIS_UNSPECIFIED HeatCapacityBasis = 0
+	// J/(K·mol) per mole of atoms (sites).
+	HeatCapacityBasis_HEAT_CAPACITY_BASIS_PER_MOL_ATOMS HeatCapacityBasis = 1
+	// J/(K·mol) per mole of cells (formula units).
+	HeatCapacityBasis_HEAT_CAPACITY_BASIS_PER_MOL_CELLS HeatCapacityBasis = 2
+	// J/(K·kg).
+	HeatCapacityBasis_HEAT_CAPACITY_BASIS_PER_KG HeatCapacityBasis = 3
+)
+
+// Enum value maps for HeatCapacityBasis.
+var (
+	HeatCapacityBasis_name = map[int32]string{
+		0: "HEAT_CAPACITY_BASIS_UNSPECIFIED",
+		1: "HEAT_CAPACITY_BASIS_PER_MOL_ATOMS",
+		2: "HEAT_CAPACITY_BASIS_PER_MOL_CELLS",
+		3: "HEAT_CAPACITY_BASIS_PER_KG",
+	}
+	HeatCapacityBasis_value = map[string]int32{
+		"HEAT_CAPACITY_BASIS_UNSPECIFIED":   0,
+		"HEAT_CAPACITY_BASIS_PER_MOL_ATOMS": 1,
+		"HEAT_CAPACITY_BASIS_PER_MOL_CELLS": 2,
+		"HEAT_CAPACITY_BASIS_PER_KG":        3,
+	}
+)
+
+func (x HeatCapacityBasis) Enum() *HeatCapacityBasis {
+	p := new(HeatCapacityBasis)
+	*p = x
+	return p
+}
+
+func (x HeatCapacityBasis) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (HeatCapacityBasis) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[9].Descriptor()
+}
+
+func (HeatCapacityBasis) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[9]
+}
+
+func (x HeatCapacityBasis) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use HeatCapacityBasis.Descriptor instead.
+func (HeatCapacityBasis) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{9}
+}
+
 // ModelSource is a model sent inline or a reference to a model the server has
 // already seen. An unknown reference gets NOT_FOUND: resend the model inline.
 type ModelSource struct {
@@ -5228,6 +5338,1473 @@ func (x *ComputeConductivityResponse) GetImaginaryModesExcluded() uint32 {
 	return 0
 }
 
+// FitRequest asks for a fit. Units: force constants in the model's
+// force_unit, frequencies THz, velocities km/s, elastic constants GPa,
+// temperatures K, heat capacities in the basis of their series.
+type FitRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The starting model. A model with a supercell force-constant set, and
+	// symmetrize, are refused: parameters are numbers of springs, shells and
+	// blocks as given.
+	Model *ModelSource `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// The free parameters, at least one.
+	Free []*FitParameter `protobuf:"bytes,2,rep,name=free,proto3" json:"free,omitempty"`
+	// Parameters that follow a free one.
+	Ties []*FitTie `protobuf:"bytes,3,rep,name=ties,proto3" json:"ties,omitempty"`
+	// Measured frequencies along the zone (dispersion points).
+	Frequencies []*FrequencyDatum `protobuf:"bytes,4,rep,name=frequencies,proto3" json:"frequencies,omitempty"`
+	// Measured frequencies at Γ (Raman, infrared).
+	GammaFrequencies []*GammaFrequencyDatum `protobuf:"bytes,5,rep,name=gamma_frequencies,json=gammaFrequencies,proto3" json:"gamma_frequencies,omitempty"`
+	// Measured speeds of sound.
+	SoundVelocities []*SoundVelocityDatum `protobuf:"bytes,6,rep,name=sound_velocities,json=soundVelocities,proto3" json:"sound_velocities,omitempty"`
+	// Measured elastic constants (three-dimensional crystals with three
+	// polarizations).
+	ElasticConstants []*ElasticConstantDatum `protobuf:"bytes,7,rep,name=elastic_constants,json=elasticConstants,proto3" json:"elastic_constants,omitempty"`
+	// Measured heat capacities at constant volume, per series.
+	HeatCapacities []*HeatCapacityData `protobuf:"bytes,8,rep,name=heat_capacities,json=heatCapacities,proto3" json:"heat_capacities,omitempty"`
+	// Largest number of model evaluations (values and derivatives); 0 means
+	// 100.
+	MaxEvaluations uint32 `protobuf:"varint,9,opt,name=max_evaluations,json=maxEvaluations,proto3" json:"max_evaluations,omitempty"`
+	unknownFields  protoimpl.UnknownFields
+	sizeCache      protoimpl.SizeCache
+}
+
+func (x *FitRequest) Reset() {
+	*x = FitRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[49]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitRequest) ProtoMessage() {}
+
+func (x *FitRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[49]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitRequest.ProtoReflect.Descriptor instead.
+func (*FitRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{49}
+}
+
+func (x *FitRequest) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+func (x *FitRequest) GetFree() []*FitParameter {
+	if x != nil {
+		return x.Free
+	}
+	return nil
+}
+
+func (x *FitRequest) GetTies() []*FitTie {
+	if x != nil {
+		return x.Ties
+	}
+	return nil
+}
+
+func (x *FitRequest) GetFrequencies() []*FrequencyDatum {
+	if x != nil {
+		return x.Frequencies
+	}
+	return nil
+}
+
+func (x *FitRequest) GetGammaFrequencies() []*GammaFrequencyDatum {
+	if x != nil {
+		return x.GammaFrequencies
+	}
+	return nil
+}
+
+func (x *FitRequest) GetSoundVelocities() []*SoundVelocityDatum {
+	if x != nil {
+		return x.SoundVelocities
+	}
+	return nil
+}
+
+func (x *FitRequest) GetElasticConstants() []*ElasticConstantDatum {
+	if x != nil {
+		return x.ElasticConstants
+	}
+	return nil
+}
+
+func (x *FitRequest) GetHeatCapacities() []*HeatCapacityData {
+	if x != nil {
+		return x.HeatCapacities
+	}
+	return nil
+}
+
+func (x *FitRequest) GetMaxEvaluations() uint32 {
+	if x != nil {
+		return x.MaxEvaluations
+	}
+	return 0
+}
+
+// FitParameter is a free parameter: a number of the model named by its
+// path with protobuf field names, e.g. "springs[0].k_long",
+// "shells[1].k_trans", "blocks[2].phi[4]", with optional bounds in the
+// model's force_unit (inclusive).
+type FitParameter struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Path of the number in the model.
+	Path string `protobuf:"bytes,1,opt,name=path,proto3" json:"path,omitempty"`
+	// Lower bound, force_unit.
+	Lower *float64 `protobuf:"fixed64,2,opt,name=lower,proto3,oneof" json:"lower,omitempty"`
+	// Upper bound, force_unit.
+	Upper         *float64 `protobuf:"fixed64,3,opt,name=upper,proto3,oneof" json:"upper,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitParameter) Reset() {
+	*x = FitParameter{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[50]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitParameter) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitParameter) ProtoMessage() {}
+
+func (x *FitParameter) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[50]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitParameter.ProtoReflect.Descriptor instead.
+func (*FitParameter) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{50}
+}
+
+func (x *FitParameter) GetPath() string {
+	if x != nil {
+		return x.Path
+	}
+	return ""
+}
+
+func (x *FitParameter) GetLower() float64 {
+	if x != nil && x.Lower != nil {
+		return *x.Lower
+	}
+	return 0
+}
+
+func (x *FitParameter) GetUpper() float64 {
+	if x != nil && x.Upper != nil {
+		return *x.Upper
+	}
+	return 0
+}
+
+// FitTie makes a parameter follow a free one: value(path) = ratio ×
+// value(to). Its value in the starting model is replaced.
+type FitTie struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Path of the tied number.
+	Path string `protobuf:"bytes,1,opt,name=path,proto3" json:"path,omitempty"`
+	// Path of the free parameter it follows.
+	To string `protobuf:"bytes,2,opt,name=to,proto3" json:"to,omitempty"`
+	// The fixed ratio; 0 means 1 (equal).
+	Ratio         float64 `protobuf:"fixed64,3,opt,name=ratio,proto3" json:"ratio,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitTie) Reset() {
+	*x = FitTie{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[51]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitTie) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitTie) ProtoMessage() {}
+
+func (x *FitTie) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[51]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitTie.ProtoReflect.Descriptor instead.
+func (*FitTie) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{51}
+}
+
+func (x *FitTie) GetPath() string {
+	if x != nil {
+		return x.Path
+	}
+	return ""
+}
+
+func (x *FitTie) GetTo() string {
+	if x != nil {
+		return x.To
+	}
+	return ""
+}
+
+func (x *FitTie) GetRatio() float64 {
+	if x != nil {
+		return x.Ratio
+	}
+	return 0
+}
+
+// FrequencyDatum is one measured frequency at a wavevector.
+type FrequencyDatum struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The wavevector, fractional reciprocal coordinates.
+	Q *QPoint `protobuf:"bytes,1,opt,name=q,proto3" json:"q,omitempty"`
+	// Measured frequency ν, THz.
+	FrequencyThz float64 `protobuf:"fixed64,2,opt,name=frequency_thz,json=frequencyThz,proto3" json:"frequency_thz,omitempty"`
+	// Its standard uncertainty, THz, > 0.
+	SigmaThz float64 `protobuf:"fixed64,3,opt,name=sigma_thz,json=sigmaThz,proto3" json:"sigma_thz,omitempty"`
+	// The measured branch, 1-based in ascending frequency at q; 0: the fit
+	// assigns the nearest branch at every step (data at one q to distinct
+	// branches).
+	Branch uint32 `protobuf:"varint,4,opt,name=branch,proto3" json:"branch,omitempty"`
+	// Polarisation hint for the assignment (needs q ≠ Γ).
+	Polarization  Polarization `protobuf:"varint,5,opt,name=polarization,proto3,enum=modegrid.v1.Polarization" json:"polarization,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FrequencyDatum) Reset() {
+	*x = FrequencyDatum{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[52]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FrequencyDatum) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FrequencyDatum) ProtoMessage() {}
+
+func (x *FrequencyDatum) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[52]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FrequencyDatum.ProtoReflect.Descriptor instead.
+func (*FrequencyDatum) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{52}
+}
+
+func (x *FrequencyDatum) GetQ() *QPoint {
+	if x != nil {
+		return x.Q
+	}
+	return nil
+}
+
+func (x *FrequencyDatum) GetFrequencyThz() float64 {
+	if x != nil {
+		return x.FrequencyThz
+	}
+	return 0
+}
+
+func (x *FrequencyDatum) GetSigmaThz() float64 {
+	if x != nil {
+		return x.SigmaThz
+	}
+	return 0
+}
+
+func (x *FrequencyDatum) GetBranch() uint32 {
+	if x != nil {
+		return x.Branch
+	}
+	return 0
+}
+
+func (x *FrequencyDatum) GetPolarization() Polarization {
+	if x != nil {
+		return x.Polarization
+	}
+	return Polarization_POLARIZATION_UNSPECIFIED
+}
+
+// GammaFrequencyDatum is one measured frequency at Γ.
+type GammaFrequencyDatum struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Measured frequency ν, THz.
+	FrequencyThz float64 `protobuf:"fixed64,1,opt,name=frequency_thz,json=frequencyThz,proto3" json:"frequency_thz,omitempty"`
+	// Its standard uncertainty, THz, > 0.
+	SigmaThz float64 `protobuf:"fixed64,2,opt,name=sigma_thz,json=sigmaThz,proto3" json:"sigma_thz,omitempty"`
+	// The measured branch, 1-based in ascending frequency, above the
+	// acoustic ones (> polarizations); 0: the nearest optical branch.
+	Branch        uint32 `protobuf:"varint,3,opt,name=branch,proto3" json:"branch,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *GammaFrequencyDatum) Reset() {
+	*x = GammaFrequencyDatum{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[53]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *GammaFrequencyDatum) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*GammaFrequencyDatum) ProtoMessage() {}
+
+func (x *GammaFrequencyDatum) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[53]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use GammaFrequencyDatum.ProtoReflect.Descriptor instead.
+func (*GammaFrequencyDatum) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{53}
+}
+
+func (x *GammaFrequencyDatum) GetFrequencyThz() float64 {
+	if x != nil {
+		return x.FrequencyThz
+	}
+	return 0
+}
+
+func (x *GammaFrequencyDatum) GetSigmaThz() float64 {
+	if x != nil {
+		return x.SigmaThz
+	}
+	return 0
+}
+
+func (x *GammaFrequencyDatum) GetBranch() uint32 {
+	if x != nil {
+		return x.Branch
+	}
+	return 0
+}
+
+// SoundVelocityDatum is one measured speed of sound.
+type SoundVelocityDatum struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Propagation direction, Cartesian (any length; projected onto the
+	// lattice's span).
+	Direction *Vec3 `protobuf:"bytes,1,opt,name=direction,proto3" json:"direction,omitempty"`
+	// Measured speed, km/s, > 0.
+	KmS float64 `protobuf:"fixed64,2,opt,name=km_s,json=kmS,proto3" json:"km_s,omitempty"`
+	// Its standard uncertainty, km/s, > 0.
+	SigmaKmS float64 `protobuf:"fixed64,3,opt,name=sigma_km_s,json=sigmaKmS,proto3" json:"sigma_km_s,omitempty"`
+	// The acoustic branch, 1-based in ascending speed; 0: the nearest.
+	Branch uint32 `protobuf:"varint,4,opt,name=branch,proto3" json:"branch,omitempty"`
+	// Polarisation hint for the assignment.
+	Polarization  Polarization `protobuf:"varint,5,opt,name=polarization,proto3,enum=modegrid.v1.Polarization" json:"polarization,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SoundVelocityDatum) Reset() {
+	*x = SoundVelocityDatum{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[54]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SoundVelocityDatum) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SoundVelocityDatum) ProtoMessage() {}
+
+func (x *SoundVelocityDatum) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[54]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SoundVelocityDatum.ProtoReflect.Descriptor instead.
+func (*SoundVelocityDatum) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{54}
+}
+
+func (x *SoundVelocityDatum) GetDirection() *Vec3 {
+	if x != nil {
+		return x.Direction
+	}
+	return nil
+}
+
+func (x *SoundVelocityDatum) GetKmS() float64 {
+	if x != nil {
+		return x.KmS
+	}
+	return 0
+}
+
+func (x *SoundVelocityDatum) GetSigmaKmS() float64 {
+	if x != nil {
+		return x.SigmaKmS
+	}
+	return 0
+}
+
+func (x *SoundVelocityDatum) GetBranch() uint32 {
+	if x != nil {
+		return x.Branch
+	}
+	return 0
+}
+
+func (x *SoundVelocityDatum) GetPolarization() Polarization {
+	if x != nil {
+		return x.Polarization
+	}
+	return Polarization_POLARIZATION_UNSPECIFIED
+}
+
+// ElasticConstantDatum is one measured elastic constant.
+type ElasticConstantDatum struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Voigt indices as two digits IJ, 1 ≤ I ≤ J ≤ 6 (11, 12, 44, …; 1 = xx,
+	// 2 = yy, 3 = zz, 4 = yz, 5 = xz, 6 = xy), Cartesian axes of the model.
+	Ij uint32 `protobuf:"varint,1,opt,name=ij,proto3" json:"ij,omitempty"`
+	// Measured value, GPa.
+	Gpa float64 `protobuf:"fixed64,2,opt,name=gpa,proto3" json:"gpa,omitempty"`
+	// Its standard uncertainty, GPa, > 0.
+	SigmaGpa      float64 `protobuf:"fixed64,3,opt,name=sigma_gpa,json=sigmaGpa,proto3" json:"sigma_gpa,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ElasticConstantDatum) Reset() {
+	*x = ElasticConstantDatum{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[55]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ElasticConstantDatum) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ElasticConstantDatum) ProtoMessage() {}
+
+func (x *ElasticConstantDatum) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[55]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ElasticConstantDatum.ProtoReflect.Descriptor instead.
+func (*ElasticConstantDatum) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{55}
+}
+
+func (x *ElasticConstantDatum) GetIj() uint32 {
+	if x != nil {
+		return x.Ij
+	}
+	return 0
+}
+
+func (x *ElasticConstantDatum) GetGpa() float64 {
+	if x != nil {
+		return x.Gpa
+	}
+	return 0
+}
+
+func (x *ElasticConstantDatum) GetSigmaGpa() float64 {
+	if x != nil {
+		return x.SigmaGpa
+	}
+	return 0
+}
+
+// HeatCapacityData is a series of measured heat capacities at constant
+// volume, compared with the harmonic mode sum over a grid (as
+// ComputeThermal's mode sum on that grid).
+type HeatCapacityData struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The grid of the mode sum (d divisions; not shifted by default).
+	Grid *MonkhorstPackGrid `protobuf:"bytes,1,opt,name=grid,proto3" json:"grid,omitempty"`
+	// The basis of value and sigma.
+	Basis HeatCapacityBasis `protobuf:"varint,2,opt,name=basis,proto3,enum=modegrid.v1.HeatCapacityBasis" json:"basis,omitempty"`
+	// The measured points.
+	Points        []*HeatCapacityPoint `protobuf:"bytes,3,rep,name=points,proto3" json:"points,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *HeatCapacityData) Reset() {
+	*x = HeatCapacityData{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[56]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *HeatCapacityData) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*HeatCapacityData) ProtoMessage() {}
+
+func (x *HeatCapacityData) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[56]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use HeatCapacityData.ProtoReflect.Descriptor instead.
+func (*HeatCapacityData) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{56}
+}
+
+func (x *HeatCapacityData) GetGrid() *MonkhorstPackGrid {
+	if x != nil {
+		return x.Grid
+	}
+	return nil
+}
+
+func (x *HeatCapacityData) GetBasis() HeatCapacityBasis {
+	if x != nil {
+		return x.Basis
+	}
+	return HeatCapacityBasis_HEAT_CAPACITY_BASIS_UNSPECIFIED
+}
+
+func (x *HeatCapacityData) GetPoints() []*HeatCapacityPoint {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+// HeatCapacityPoint is one measured heat capacity.
+type HeatCapacityPoint struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Temperature, K, > 0.
+	TemperatureK float64 `protobuf:"fixed64,1,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// Measured C_V in the series' basis.
+	Value float64 `protobuf:"fixed64,2,opt,name=value,proto3" json:"value,omitempty"`
+	// Its standard uncertainty, same unit, > 0.
+	Sigma         float64 `protobuf:"fixed64,3,opt,name=sigma,proto3" json:"sigma,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *HeatCapacityPoint) Reset() {
+	*x = HeatCapacityPoint{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[57]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *HeatCapacityPoint) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*HeatCapacityPoint) ProtoMessage() {}
+
+func (x *HeatCapacityPoint) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[57]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use HeatCapacityPoint.ProtoReflect.Descriptor instead.
+func (*HeatCapacityPoint) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{57}
+}
+
+func (x *HeatCapacityPoint) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *HeatCapacityPoint) GetValue() float64 {
+	if x != nil {
+		return x.Value
+	}
+	return 0
+}
+
+func (x *HeatCapacityPoint) GetSigma() float64 {
+	if x != nil {
+		return x.Sigma
+	}
+	return 0
+}
+
+// FitResponse is one message of the fit stream: progress, or the result
+// (the last message).
+type FitResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the starting model.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters of the request.
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Progress or the result.
+	//
+	// Types that are valid to be assigned to Update:
+	//
+	//	*FitResponse_Progress
+	//	*FitResponse_Result
+	Update        isFitResponse_Update `protobuf_oneof:"update"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitResponse) Reset() {
+	*x = FitResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[58]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitResponse) ProtoMessage() {}
+
+func (x *FitResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[58]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitResponse.ProtoReflect.Descriptor instead.
+func (*FitResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{58}
+}
+
+func (x *FitResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *FitResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *FitResponse) GetUpdate() isFitResponse_Update {
+	if x != nil {
+		return x.Update
+	}
+	return nil
+}
+
+func (x *FitResponse) GetProgress() *FitProgress {
+	if x != nil {
+		if x, ok := x.Update.(*FitResponse_Progress); ok {
+			return x.Progress
+		}
+	}
+	return nil
+}
+
+func (x *FitResponse) GetResult() *FitResult {
+	if x != nil {
+		if x, ok := x.Update.(*FitResponse_Result); ok {
+			return x.Result
+		}
+	}
+	return nil
+}
+
+type isFitResponse_Update interface {
+	isFitResponse_Update()
+}
+
+type FitResponse_Progress struct {
+	// After an evaluation of the model.
+	Progress *FitProgress `protobuf:"bytes,3,opt,name=progress,proto3,oneof"`
+}
+
+type FitResponse_Result struct {
+	// The finished fit.
+	Result *FitResult `protobuf:"bytes,4,opt,name=result,proto3,oneof"`
+}
+
+func (*FitResponse_Progress) isFitResponse_Update() {}
+
+func (*FitResponse_Result) isFitResponse_Update() {}
+
+// FitProgress reports one evaluation of the model.
+type FitProgress struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Levenberg–Marquardt steps taken (each lowered χ²).
+	Iteration uint32 `protobuf:"varint,1,opt,name=iteration,proto3" json:"iteration,omitempty"`
+	// Model evaluations so far.
+	Evaluations uint32 `protobuf:"varint,2,opt,name=evaluations,proto3" json:"evaluations,omitempty"`
+	// χ² of the best parameters so far.
+	ChiSquare float64 `protobuf:"fixed64,3,opt,name=chi_square,json=chiSquare,proto3" json:"chi_square,omitempty"`
+	// The damping parameter μ (of the column-scaled normal matrix).
+	Damping       float64 `protobuf:"fixed64,4,opt,name=damping,proto3" json:"damping,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitProgress) Reset() {
+	*x = FitProgress{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[59]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitProgress) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitProgress) ProtoMessage() {}
+
+func (x *FitProgress) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[59]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitProgress.ProtoReflect.Descriptor instead.
+func (*FitProgress) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{59}
+}
+
+func (x *FitProgress) GetIteration() uint32 {
+	if x != nil {
+		return x.Iteration
+	}
+	return 0
+}
+
+func (x *FitProgress) GetEvaluations() uint32 {
+	if x != nil {
+		return x.Evaluations
+	}
+	return 0
+}
+
+func (x *FitProgress) GetChiSquare() float64 {
+	if x != nil {
+		return x.ChiSquare
+	}
+	return 0
+}
+
+func (x *FitProgress) GetDamping() float64 {
+	if x != nil {
+		return x.Damping
+	}
+	return 0
+}
+
+// FitResult is a finished fit. Standard errors come from the covariance
+// (JᵀWJ)⁻¹, W = diag(1/σ²), over the determined parameters: std_error is
+// scaled by χ²/dof (the σ as relative weights), std_error_unscaled is not
+// (the σ trusted as absolute uncertainties).
+type FitResult struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the fitted model, stored on the server: usable at once as
+	// ModelSource.model_hash.
+	FittedModelHash string `protobuf:"bytes,1,opt,name=fitted_model_hash,json=fittedModelHash,proto3" json:"fitted_model_hash,omitempty"`
+	// The fitted model: the starting one with the fitted (and tied) numbers.
+	Fitted *Crystal `protobuf:"bytes,2,opt,name=fitted,proto3" json:"fitted,omitempty"`
+	// The free parameters, in request order.
+	Parameters []*FittedParameter `protobuf:"bytes,3,rep,name=parameters,proto3" json:"parameters,omitempty"`
+	// The tied parameters.
+	Ties []*FittedTie `protobuf:"bytes,4,rep,name=ties,proto3" json:"ties,omitempty"`
+	// Correlation matrix of parameters, row-major n×n; rows of parameters
+	// not determined or held at a bound are 0 but the diagonal.
+	Correlation []float64 `protobuf:"fixed64,5,rep,packed,name=correlation,proto3" json:"correlation,omitempty"`
+	// χ² = Σ ((measured − model)/σ)².
+	ChiSquare float64 `protobuf:"fixed64,6,opt,name=chi_square,json=chiSquare,proto3" json:"chi_square,omitempty"`
+	// Number of data N.
+	Data uint32 `protobuf:"varint,7,opt,name=data,proto3" json:"data,omitempty"`
+	// Parameter combinations the data determine (rank of the Jacobian).
+	Rank uint32 `protobuf:"varint,8,opt,name=rank,proto3" json:"rank,omitempty"`
+	// Degrees of freedom, N − rank.
+	DegreesOfFreedom uint32 `protobuf:"varint,9,opt,name=degrees_of_freedom,json=degreesOfFreedom,proto3" json:"degrees_of_freedom,omitempty"`
+	// χ²/dof (0 when dof is 0).
+	ReducedChiSquare float64 `protobuf:"fixed64,10,opt,name=reduced_chi_square,json=reducedChiSquare,proto3" json:"reduced_chi_square,omitempty"`
+	// One residual per datum.
+	Residuals []*FitResidual `protobuf:"bytes,11,rep,name=residuals,proto3" json:"residuals,omitempty"`
+	// Groups of parameters the data do not determine separately.
+	Undetermined []*UndeterminedParameters `protobuf:"bytes,12,rep,name=undetermined,proto3" json:"undetermined,omitempty"`
+	// Levenberg–Marquardt steps taken.
+	Iterations uint32 `protobuf:"varint,13,opt,name=iterations,proto3" json:"iterations,omitempty"`
+	// Model evaluations in all.
+	Evaluations uint32 `protobuf:"varint,14,opt,name=evaluations,proto3" json:"evaluations,omitempty"`
+	// True when a convergence test ended the fit (false: the evaluation limit).
+	Converged bool `protobuf:"varint,15,opt,name=converged,proto3" json:"converged,omitempty"`
+	// Which test ended the fit.
+	StopReason    string `protobuf:"bytes,16,opt,name=stop_reason,json=stopReason,proto3" json:"stop_reason,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitResult) Reset() {
+	*x = FitResult{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[60]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitResult) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitResult) ProtoMessage() {}
+
+func (x *FitResult) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[60]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitResult.ProtoReflect.Descriptor instead.
+func (*FitResult) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{60}
+}
+
+func (x *FitResult) GetFittedModelHash() string {
+	if x != nil {
+		return x.FittedModelHash
+	}
+	return ""
+}
+
+func (x *FitResult) GetFitted() *Crystal {
+	if x != nil {
+		return x.Fitted
+	}
+	return nil
+}
+
+func (x *FitResult) GetParameters() []*FittedParameter {
+	if x != nil {
+		return x.Parameters
+	}
+	return nil
+}
+
+func (x *FitResult) GetTies() []*FittedTie {
+	if x != nil {
+		return x.Ties
+	}
+	return nil
+}
+
+func (x *FitResult) GetCorrelation() []float64 {
+	if x != nil {
+		return x.Correlation
+	}
+	return nil
+}
+
+func (x *FitResult) GetChiSquare() float64 {
+	if x != nil {
+		return x.ChiSquare
+	}
+	return 0
+}
+
+func (x *FitResult) GetData() uint32 {
+	if x != nil {
+		return x.Data
+	}
+	return 0
+}
+
+func (x *FitResult) GetRank() uint32 {
+	if x != nil {
+		return x.Rank
+	}
+	return 0
+}
+
+func (x *FitResult) GetDegreesOfFreedom() uint32 {
+	if x != nil {
+		return x.DegreesOfFreedom
+	}
+	return 0
+}
+
+func (x *FitResult) GetReducedChiSquare() float64 {
+	if x != nil {
+		return x.ReducedChiSquare
+	}
+	return 0
+}
+
+func (x *FitResult) GetResiduals() []*FitResidual {
+	if x != nil {
+		return x.Residuals
+	}
+	return nil
+}
+
+func (x *FitResult) GetUndetermined() []*UndeterminedParameters {
+	if x != nil {
+		return x.Undetermined
+	}
+	return nil
+}
+
+func (x *FitResult) GetIterations() uint32 {
+	if x != nil {
+		return x.Iterations
+	}
+	return 0
+}
+
+func (x *FitResult) GetEvaluations() uint32 {
+	if x != nil {
+		return x.Evaluations
+	}
+	return 0
+}
+
+func (x *FitResult) GetConverged() bool {
+	if x != nil {
+		return x.Converged
+	}
+	return false
+}
+
+func (x *FitResult) GetStopReason() string {
+	if x != nil {
+		return x.StopReason
+	}
+	return ""
+}
+
+// FittedParameter is one free parameter after the fit, force_unit.
+type FittedParameter struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Path of the parameter (canonical spelling).
+	Path string `protobuf:"bytes,1,opt,name=path,proto3" json:"path,omitempty"`
+	// Starting value.
+	Start float64 `protobuf:"fixed64,2,opt,name=start,proto3" json:"start,omitempty"`
+	// Fitted value.
+	Value float64 `protobuf:"fixed64,3,opt,name=value,proto3" json:"value,omitempty"`
+	// Standard error scaled by sqrt(χ²/dof); 0 when not determined, held at
+	// a bound or dof = 0.
+	StdError float64 `protobuf:"fixed64,4,opt,name=std_error,json=stdError,proto3" json:"std_error,omitempty"`
+	// Standard error with the σ taken as absolute; 0 when not determined or
+	// held at a bound.
+	StdErrorUnscaled float64 `protobuf:"fixed64,5,opt,name=std_error_unscaled,json=stdErrorUnscaled,proto3" json:"std_error_unscaled,omitempty"`
+	// True when the data determine the parameter.
+	Determined bool `protobuf:"varint,6,opt,name=determined,proto3" json:"determined,omitempty"`
+	// "lower" or "upper" when the fit ended on that bound (the parameter is
+	// then held there and left out of the covariance); empty otherwise.
+	AtBound       string `protobuf:"bytes,7,opt,name=at_bound,json=atBound,proto3" json:"at_bound,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FittedParameter) Reset() {
+	*x = FittedParameter{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[61]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FittedParameter) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FittedParameter) ProtoMessage() {}
+
+func (x *FittedParameter) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[61]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FittedParameter.ProtoReflect.Descriptor instead.
+func (*FittedParameter) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{61}
+}
+
+func (x *FittedParameter) GetPath() string {
+	if x != nil {
+		return x.Path
+	}
+	return ""
+}
+
+func (x *FittedParameter) GetStart() float64 {
+	if x != nil {
+		return x.Start
+	}
+	return 0
+}
+
+func (x *FittedParameter) GetValue() float64 {
+	if x != nil {
+		return x.Value
+	}
+	return 0
+}
+
+func (x *FittedParameter) GetStdError() float64 {
+	if x != nil {
+		return x.StdError
+	}
+	return 0
+}
+
+func (x *FittedParameter) GetStdErrorUnscaled() float64 {
+	if x != nil {
+		return x.StdErrorUnscaled
+	}
+	return 0
+}
+
+func (x *FittedParameter) GetDetermined() bool {
+	if x != nil {
+		return x.Determined
+	}
+	return false
+}
+
+func (x *FittedParameter) GetAtBound() string {
+	if x != nil {
+		return x.AtBound
+	}
+	return ""
+}
+
+// FittedTie is a tied parameter after the fit.
+type FittedTie struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Path of the tied number.
+	Path string `protobuf:"bytes,1,opt,name=path,proto3" json:"path,omitempty"`
+	// The free parameter it follows.
+	To string `protobuf:"bytes,2,opt,name=to,proto3" json:"to,omitempty"`
+	// value = ratio × value(to).
+	Ratio float64 `protobuf:"fixed64,3,opt,name=ratio,proto3" json:"ratio,omitempty"`
+	// Fitted value, force_unit.
+	Value float64 `protobuf:"fixed64,4,opt,name=value,proto3" json:"value,omitempty"`
+	// Its value in the starting model (replaced by the tie).
+	Start         float64 `protobuf:"fixed64,5,opt,name=start,proto3" json:"start,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FittedTie) Reset() {
+	*x = FittedTie{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[62]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FittedTie) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FittedTie) ProtoMessage() {}
+
+func (x *FittedTie) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[62]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FittedTie.ProtoReflect.Descriptor instead.
+func (*FittedTie) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{62}
+}
+
+func (x *FittedTie) GetPath() string {
+	if x != nil {
+		return x.Path
+	}
+	return ""
+}
+
+func (x *FittedTie) GetTo() string {
+	if x != nil {
+		return x.To
+	}
+	return ""
+}
+
+func (x *FittedTie) GetRatio() float64 {
+	if x != nil {
+		return x.Ratio
+	}
+	return 0
+}
+
+func (x *FittedTie) GetValue() float64 {
+	if x != nil {
+		return x.Value
+	}
+	return 0
+}
+
+func (x *FittedTie) GetStart() float64 {
+	if x != nil {
+		return x.Start
+	}
+	return 0
+}
+
+// FitResidual is one datum against the fitted model.
+type FitResidual struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Field path of the datum in the request, e.g. "frequencies[3]",
+	// "heat_capacities[0].points[2]".
+	Datum string `protobuf:"bytes,1,opt,name=datum,proto3" json:"datum,omitempty"`
+	// Measured value (THz, km/s, GPa or the heat-capacity basis).
+	Measured float64 `protobuf:"fixed64,2,opt,name=measured,proto3" json:"measured,omitempty"`
+	// Its σ.
+	Sigma float64 `protobuf:"fixed64,3,opt,name=sigma,proto3" json:"sigma,omitempty"`
+	// The fitted model's value.
+	Model float64 `protobuf:"fixed64,4,opt,name=model,proto3" json:"model,omitempty"`
+	// The model branch compared (1-based; assigned when the datum had none);
+	// 0 for elastic constants and heat capacities.
+	Branch uint32 `protobuf:"varint,5,opt,name=branch,proto3" json:"branch,omitempty"`
+	// (measured − model)/σ.
+	Normalized    float64 `protobuf:"fixed64,6,opt,name=normalized,proto3" json:"normalized,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *FitResidual) Reset() {
+	*x = FitResidual{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[63]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *FitResidual) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*FitResidual) ProtoMessage() {}
+
+func (x *FitResidual) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[63]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use FitResidual.ProtoReflect.Descriptor instead.
+func (*FitResidual) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{63}
+}
+
+func (x *FitResidual) GetDatum() string {
+	if x != nil {
+		return x.Datum
+	}
+	return ""
+}
+
+func (x *FitResidual) GetMeasured() float64 {
+	if x != nil {
+		return x.Measured
+	}
+	return 0
+}
+
+func (x *FitResidual) GetSigma() float64 {
+	if x != nil {
+		return x.Sigma
+	}
+	return 0
+}
+
+func (x *FitResidual) GetModel() float64 {
+	if x != nil {
+		return x.Model
+	}
+	return 0
+}
+
+func (x *FitResidual) GetBranch() uint32 {
+	if x != nil {
+		return x.Branch
+	}
+	return 0
+}
+
+func (x *FitResidual) GetNormalized() float64 {
+	if x != nil {
+		return x.Normalized
+	}
+	return 0
+}
+
+// UndeterminedParameters is a group of parameters the data do not
+// determine separately (the Jacobian is singular to 1e-8 along some
+// combination of them).
+type UndeterminedParameters struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Paths of the parameters.
+	Paths []string `protobuf:"bytes,1,rep,name=paths,proto3" json:"paths,omitempty"`
+	// Combinations Σ coefficients[i]·paths[i] the data determine.
+	Determined []*ParameterCombination `protobuf:"bytes,2,rep,name=determined,proto3" json:"determined,omitempty"`
+	// Directions (coefficients per unit move of each path) along which χ² does
+	// not change.
+	Flat          []*ParameterCombination `protobuf:"bytes,3,rep,name=flat,proto3" json:"flat,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *UndeterminedParameters) Reset() {
+	*x = UndeterminedParameters{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[64]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *UndeterminedParameters) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*UndeterminedParameters) ProtoMessage() {}
+
+func (x *UndeterminedParameters) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[64]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use UndeterminedParameters.ProtoReflect.Descriptor instead.
+func (*UndeterminedParameters) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{64}
+}
+
+func (x *UndeterminedParameters) GetPaths() []string {
+	if x != nil {
+		return x.Paths
+	}
+	return nil
+}
+
+func (x *UndeterminedParameters) GetDetermined() []*ParameterCombination {
+	if x != nil {
+		return x.Determined
+	}
+	return nil
+}
+
+func (x *UndeterminedParameters) GetFlat() []*ParameterCombination {
+	if x != nil {
+		return x.Flat
+	}
+	return nil
+}
+
+// ParameterCombination is a linear combination of a group's parameters,
+// its largest coefficient +1.
+type ParameterCombination struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// One coefficient per path of the group.
+	Coefficients []float64 `protobuf:"fixed64,1,rep,packed,name=coefficients,proto3" json:"coefficients,omitempty"`
+	// Value of a determined combination, force_unit (0 for a flat direction).
+	Value float64 `protobuf:"fixed64,2,opt,name=value,proto3" json:"value,omitempty"`
+	// Its standard error scaled by sqrt(χ²/dof).
+	StdError float64 `protobuf:"fixed64,3,opt,name=std_error,json=stdError,proto3" json:"std_error,omitempty"`
+	// Its standard error with the σ taken as absolute.
+	StdErrorUnscaled float64 `protobuf:"fixed64,4,opt,name=std_error_unscaled,json=stdErrorUnscaled,proto3" json:"std_error_unscaled,omitempty"`
+	unknownFields    protoimpl.UnknownFields
+	sizeCache        protoimpl.SizeCache
+}
+
+func (x *ParameterCombination) Reset() {
+	*x = ParameterCombination{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[65]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ParameterCombination) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ParameterCombination) ProtoMessage() {}
+
+func (x *ParameterCombination) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[65]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ParameterCombination.ProtoReflect.Descriptor instead.
+func (*ParameterCombination) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{65}
+}
+
+func (x *ParameterCombination) GetCoefficients() []float64 {
+	if x != nil {
+		return x.Coefficients
+	}
+	return nil
+}
+
+func (x *ParameterCombination) GetValue() float64 {
+	if x != nil {
+		return x.Value
+	}
+	return 0
+}
+
+func (x *ParameterCombination) GetStdError() float64 {
+	if x != nil {
+		return x.StdError
+	}
+	return 0
+}
+
+func (x *ParameterCombination) GetStdErrorUnscaled() float64 {
+	if x != nil {
+		return x.StdErrorUnscaled
+	}
+	return 0
+}
+
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
@@ -5646,7 +7223,132 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x15umklapp_velocity_km_s\x18\x06 \x01(\x01R\x12umklappVelocityKmS\x121\n" +
 	"\x15umklapp_mean_mass_amu\x18\a \x01(\x01R\x12umklappMeanMassAmu\x12!\n" +
 	"\fdefect_gamma\x18\b \x01(\x01R\vdefectGamma\x128\n" +
-	"\x18imaginary_modes_excluded\x18\t \x01(\rR\x16imaginaryModesExcluded*S\n" +
+	"\x18imaginary_modes_excluded\x18\t \x01(\rR\x16imaginaryModesExcluded\"\xaf\x04\n" +
+	"\n" +
+	"FitRequest\x12.\n" +
+	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12-\n" +
+	"\x04free\x18\x02 \x03(\v2\x19.modegrid.v1.FitParameterR\x04free\x12'\n" +
+	"\x04ties\x18\x03 \x03(\v2\x13.modegrid.v1.FitTieR\x04ties\x12=\n" +
+	"\vfrequencies\x18\x04 \x03(\v2\x1b.modegrid.v1.FrequencyDatumR\vfrequencies\x12M\n" +
+	"\x11gamma_frequencies\x18\x05 \x03(\v2 .modegrid.v1.GammaFrequencyDatumR\x10gammaFrequencies\x12J\n" +
+	"\x10sound_velocities\x18\x06 \x03(\v2\x1f.modegrid.v1.SoundVelocityDatumR\x0fsoundVelocities\x12N\n" +
+	"\x11elastic_constants\x18\a \x03(\v2!.modegrid.v1.ElasticConstantDatumR\x10elasticConstants\x12F\n" +
+	"\x0fheat_capacities\x18\b \x03(\v2\x1d.modegrid.v1.HeatCapacityDataR\x0eheatCapacities\x12'\n" +
+	"\x0fmax_evaluations\x18\t \x01(\rR\x0emaxEvaluations\"l\n" +
+	"\fFitParameter\x12\x12\n" +
+	"\x04path\x18\x01 \x01(\tR\x04path\x12\x19\n" +
+	"\x05lower\x18\x02 \x01(\x01H\x00R\x05lower\x88\x01\x01\x12\x19\n" +
+	"\x05upper\x18\x03 \x01(\x01H\x01R\x05upper\x88\x01\x01B\b\n" +
+	"\x06_lowerB\b\n" +
+	"\x06_upper\"B\n" +
+	"\x06FitTie\x12\x12\n" +
+	"\x04path\x18\x01 \x01(\tR\x04path\x12\x0e\n" +
+	"\x02to\x18\x02 \x01(\tR\x02to\x12\x14\n" +
+	"\x05ratio\x18\x03 \x01(\x01R\x05ratio\"\xcc\x01\n" +
+	"\x0eFrequencyDatum\x12!\n" +
+	"\x01q\x18\x01 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12#\n" +
+	"\rfrequency_thz\x18\x02 \x01(\x01R\ffrequencyThz\x12\x1b\n" +
+	"\tsigma_thz\x18\x03 \x01(\x01R\bsigmaThz\x12\x16\n" +
+	"\x06branch\x18\x04 \x01(\rR\x06branch\x12=\n" +
+	"\fpolarization\x18\x05 \x01(\x0e2\x19.modegrid.v1.PolarizationR\fpolarization\"o\n" +
+	"\x13GammaFrequencyDatum\x12#\n" +
+	"\rfrequency_thz\x18\x01 \x01(\x01R\ffrequencyThz\x12\x1b\n" +
+	"\tsigma_thz\x18\x02 \x01(\x01R\bsigmaThz\x12\x16\n" +
+	"\x06branch\x18\x03 \x01(\rR\x06branch\"\xcd\x01\n" +
+	"\x12SoundVelocityDatum\x12/\n" +
+	"\tdirection\x18\x01 \x01(\v2\x11.modegrid.v1.Vec3R\tdirection\x12\x11\n" +
+	"\x04km_s\x18\x02 \x01(\x01R\x03kmS\x12\x1c\n" +
+	"\n" +
+	"sigma_km_s\x18\x03 \x01(\x01R\bsigmaKmS\x12\x16\n" +
+	"\x06branch\x18\x04 \x01(\rR\x06branch\x12=\n" +
+	"\fpolarization\x18\x05 \x01(\x0e2\x19.modegrid.v1.PolarizationR\fpolarization\"U\n" +
+	"\x14ElasticConstantDatum\x12\x0e\n" +
+	"\x02ij\x18\x01 \x01(\rR\x02ij\x12\x10\n" +
+	"\x03gpa\x18\x02 \x01(\x01R\x03gpa\x12\x1b\n" +
+	"\tsigma_gpa\x18\x03 \x01(\x01R\bsigmaGpa\"\xb4\x01\n" +
+	"\x10HeatCapacityData\x122\n" +
+	"\x04grid\x18\x01 \x01(\v2\x1e.modegrid.v1.MonkhorstPackGridR\x04grid\x124\n" +
+	"\x05basis\x18\x02 \x01(\x0e2\x1e.modegrid.v1.HeatCapacityBasisR\x05basis\x126\n" +
+	"\x06points\x18\x03 \x03(\v2\x1e.modegrid.v1.HeatCapacityPointR\x06points\"d\n" +
+	"\x11HeatCapacityPoint\x12#\n" +
+	"\rtemperature_k\x18\x01 \x01(\x01R\ftemperatureK\x12\x14\n" +
+	"\x05value\x18\x02 \x01(\x01R\x05value\x12\x14\n" +
+	"\x05sigma\x18\x03 \x01(\x01R\x05sigma\"\xc0\x01\n" +
+	"\vFitResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x126\n" +
+	"\bprogress\x18\x03 \x01(\v2\x18.modegrid.v1.FitProgressH\x00R\bprogress\x120\n" +
+	"\x06result\x18\x04 \x01(\v2\x16.modegrid.v1.FitResultH\x00R\x06resultB\b\n" +
+	"\x06update\"\x86\x01\n" +
+	"\vFitProgress\x12\x1c\n" +
+	"\titeration\x18\x01 \x01(\rR\titeration\x12 \n" +
+	"\vevaluations\x18\x02 \x01(\rR\vevaluations\x12\x1d\n" +
+	"\n" +
+	"chi_square\x18\x03 \x01(\x01R\tchiSquare\x12\x18\n" +
+	"\adamping\x18\x04 \x01(\x01R\adamping\"\x96\x05\n" +
+	"\tFitResult\x12*\n" +
+	"\x11fitted_model_hash\x18\x01 \x01(\tR\x0ffittedModelHash\x12,\n" +
+	"\x06fitted\x18\x02 \x01(\v2\x14.modegrid.v1.CrystalR\x06fitted\x12<\n" +
+	"\n" +
+	"parameters\x18\x03 \x03(\v2\x1c.modegrid.v1.FittedParameterR\n" +
+	"parameters\x12*\n" +
+	"\x04ties\x18\x04 \x03(\v2\x16.modegrid.v1.FittedTieR\x04ties\x12 \n" +
+	"\vcorrelation\x18\x05 \x03(\x01R\vcorrelation\x12\x1d\n" +
+	"\n" +
+	"chi_square\x18\x06 \x01(\x01R\tchiSquare\x12\x12\n" +
+	"\x04data\x18\a \x01(\rR\x04data\x12\x12\n" +
+	"\x04rank\x18\b \x01(\rR\x04rank\x12,\n" +
+	"\x12degrees_of_freedom\x18\t \x01(\rR\x10degreesOfFreedom\x12,\n" +
+	"\x12reduced_chi_square\x18\n" +
+	" \x01(\x01R\x10reducedChiSquare\x126\n" +
+	"\tresiduals\x18\v \x03(\v2\x18.modegrid.v1.FitResidualR\tresiduals\x12G\n" +
+	"\fundetermined\x18\f \x03(\v2#.modegrid.v1.UndeterminedParametersR\fundetermined\x12\x1e\n" +
+	"\n" +
+	"iterations\x18\r \x01(\rR\n" +
+	"iterations\x12 \n" +
+	"\vevaluations\x18\x0e \x01(\rR\vevaluations\x12\x1c\n" +
+	"\tconverged\x18\x0f \x01(\bR\tconverged\x12\x1f\n" +
+	"\vstop_reason\x18\x10 \x01(\tR\n" +
+	"stopReason\"\xd7\x01\n" +
+	"\x0fFittedParameter\x12\x12\n" +
+	"\x04path\x18\x01 \x01(\tR\x04path\x12\x14\n" +
+	"\x05start\x18\x02 \x01(\x01R\x05start\x12\x14\n" +
+	"\x05value\x18\x03 \x01(\x01R\x05value\x12\x1b\n" +
+	"\tstd_error\x18\x04 \x01(\x01R\bstdError\x12,\n" +
+	"\x12std_error_unscaled\x18\x05 \x01(\x01R\x10stdErrorUnscaled\x12\x1e\n" +
+	"\n" +
+	"determined\x18\x06 \x01(\bR\n" +
+	"determined\x12\x19\n" +
+	"\bat_bound\x18\a \x01(\tR\aatBound\"q\n" +
+	"\tFittedTie\x12\x12\n" +
+	"\x04path\x18\x01 \x01(\tR\x04path\x12\x0e\n" +
+	"\x02to\x18\x02 \x01(\tR\x02to\x12\x14\n" +
+	"\x05ratio\x18\x03 \x01(\x01R\x05ratio\x12\x14\n" +
+	"\x05value\x18\x04 \x01(\x01R\x05value\x12\x14\n" +
+	"\x05start\x18\x05 \x01(\x01R\x05start\"\xa3\x01\n" +
+	"\vFitResidual\x12\x14\n" +
+	"\x05datum\x18\x01 \x01(\tR\x05datum\x12\x1a\n" +
+	"\bmeasured\x18\x02 \x01(\x01R\bmeasured\x12\x14\n" +
+	"\x05sigma\x18\x03 \x01(\x01R\x05sigma\x12\x14\n" +
+	"\x05model\x18\x04 \x01(\x01R\x05model\x12\x16\n" +
+	"\x06branch\x18\x05 \x01(\rR\x06branch\x12\x1e\n" +
+	"\n" +
+	"normalized\x18\x06 \x01(\x01R\n" +
+	"normalized\"\xa8\x01\n" +
+	"\x16UndeterminedParameters\x12\x14\n" +
+	"\x05paths\x18\x01 \x03(\tR\x05paths\x12A\n" +
+	"\n" +
+	"determined\x18\x02 \x03(\v2!.modegrid.v1.ParameterCombinationR\n" +
+	"determined\x125\n" +
+	"\x04flat\x18\x03 \x03(\v2!.modegrid.v1.ParameterCombinationR\x04flat\"\x9b\x01\n" +
+	"\x14ParameterCombination\x12\"\n" +
+	"\fcoefficients\x18\x01 \x03(\x01R\fcoefficients\x12\x14\n" +
+	"\x05value\x18\x02 \x01(\x01R\x05value\x12\x1b\n" +
+	"\tstd_error\x18\x03 \x01(\x01R\bstdError\x12,\n" +
+	"\x12std_error_unscaled\x18\x04 \x01(\x01R\x10stdErrorUnscaled*S\n" +
 	"\rModelEncoding\x12\x1e\n" +
 	"\x1aMODEL_ENCODING_UNSPECIFIED\x10\x00\x12\"\n" +
 	"\x1eMODEL_ENCODING_PROTOBUF_BINARY\x10\x01*\x95\x01\n" +
@@ -5686,7 +7388,16 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x10SAMPLE_KIND_BULK\x10\x01\x12\x14\n" +
 	"\x10SAMPLE_KIND_FILM\x10\x02\x12\x14\n" +
 	"\x10SAMPLE_KIND_WIRE\x10\x03\x12\x15\n" +
-	"\x11SAMPLE_KIND_GRAIN\x10\x042\xd1\x06\n" +
+	"\x11SAMPLE_KIND_GRAIN\x10\x04*h\n" +
+	"\fPolarization\x12\x1c\n" +
+	"\x18POLARIZATION_UNSPECIFIED\x10\x00\x12\x1d\n" +
+	"\x19POLARIZATION_LONGITUDINAL\x10\x01\x12\x1b\n" +
+	"\x17POLARIZATION_TRANSVERSE\x10\x02*\xa6\x01\n" +
+	"\x11HeatCapacityBasis\x12#\n" +
+	"\x1fHEAT_CAPACITY_BASIS_UNSPECIFIED\x10\x00\x12%\n" +
+	"!HEAT_CAPACITY_BASIS_PER_MOL_ATOMS\x10\x01\x12%\n" +
+	"!HEAT_CAPACITY_BASIS_PER_MOL_CELLS\x10\x02\x12\x1e\n" +
+	"\x1aHEAT_CAPACITY_BASIS_PER_KG\x10\x032\x8d\a\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -5698,7 +7409,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\vUploadModel\x12\x1f.modegrid.v1.UploadModelRequest\x1a .modegrid.v1.UploadModelResponse(\x01\x12_\n" +
 	"\x10ComputeGruneisen\x12$.modegrid.v1.ComputeGruneisenRequest\x1a%.modegrid.v1.ComputeGruneisenResponse\x12k\n" +
 	"\x14ComputeQuasiHarmonic\x12(.modegrid.v1.ComputeQuasiHarmonicRequest\x1a).modegrid.v1.ComputeQuasiHarmonicResponse\x12h\n" +
-	"\x13ComputeConductivity\x12'.modegrid.v1.ComputeConductivityRequest\x1a(.modegrid.v1.ComputeConductivityResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\x13ComputeConductivity\x12'.modegrid.v1.ComputeConductivityRequest\x1a(.modegrid.v1.ComputeConductivityResponse\x12:\n" +
+	"\x03Fit\x12\x17.modegrid.v1.FitRequest\x1a\x18.modegrid.v1.FitResponse0\x01B@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -5712,8 +7424,8 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 	return file_modegrid_v1_service_proto_rawDescData
 }
 
-var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 8)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 49)
+var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 10)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 66)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(ModelEncoding)(0),                   // 0: modegrid.v1.ModelEncoding
 	(FrequencyUnit)(0),                   // 1: modegrid.v1.FrequencyUnit
@@ -5723,156 +7435,201 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(DebyeTemperatureStatus)(0),          // 5: modegrid.v1.DebyeTemperatureStatus
 	(EquationOfState)(0),                 // 6: modegrid.v1.EquationOfState
 	(SampleKind)(0),                      // 7: modegrid.v1.SampleKind
-	(*ModelSource)(nil),                  // 8: modegrid.v1.ModelSource
-	(*UploadModelHeader)(nil),            // 9: modegrid.v1.UploadModelHeader
-	(*UploadModelRequest)(nil),           // 10: modegrid.v1.UploadModelRequest
-	(*UploadModelResponse)(nil),          // 11: modegrid.v1.UploadModelResponse
-	(*QPoint)(nil),                       // 12: modegrid.v1.QPoint
-	(*QPointList)(nil),                   // 13: modegrid.v1.QPointList
-	(*MonkhorstPackGrid)(nil),            // 14: modegrid.v1.MonkhorstPackGrid
-	(*FiniteCrystal)(nil),                // 15: modegrid.v1.FiniteCrystal
-	(*QPointSet)(nil),                    // 16: modegrid.v1.QPointSet
-	(*ComputeModesRequest)(nil),          // 17: modegrid.v1.ComputeModesRequest
-	(*Modes)(nil),                        // 18: modegrid.v1.Modes
-	(*ComputeModesResponse)(nil),         // 19: modegrid.v1.ComputeModesResponse
-	(*PathPoint)(nil),                    // 20: modegrid.v1.PathPoint
-	(*ComputeDispersionRequest)(nil),     // 21: modegrid.v1.ComputeDispersionRequest
-	(*DispersionSample)(nil),             // 22: modegrid.v1.DispersionSample
-	(*ComputeDispersionResponse)(nil),    // 23: modegrid.v1.ComputeDispersionResponse
-	(*ComputeDosRequest)(nil),            // 24: modegrid.v1.ComputeDosRequest
-	(*ProjectedDos)(nil),                 // 25: modegrid.v1.ProjectedDos
-	(*ComputeDosResponse)(nil),           // 26: modegrid.v1.ComputeDosResponse
-	(*TemperatureRange)(nil),             // 27: modegrid.v1.TemperatureRange
-	(*ComputeThermalRequest)(nil),        // 28: modegrid.v1.ComputeThermalRequest
-	(*SiteDisplacement)(nil),             // 29: modegrid.v1.SiteDisplacement
-	(*ThermalPoint)(nil),                 // 30: modegrid.v1.ThermalPoint
-	(*ComputeThermalResponse)(nil),       // 31: modegrid.v1.ComputeThermalResponse
-	(*CheckModelRequest)(nil),            // 32: modegrid.v1.CheckModelRequest
-	(*FieldViolation)(nil),               // 33: modegrid.v1.FieldViolation
-	(*ShellBonds)(nil),                   // 34: modegrid.v1.ShellBonds
-	(*SymmetryOperation)(nil),            // 35: modegrid.v1.SymmetryOperation
-	(*CheckModelResponse)(nil),           // 36: modegrid.v1.CheckModelResponse
-	(*SupercellFold)(nil),                // 37: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),          // 38: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),                  // 39: modegrid.v1.RequestCost
-	(*ComputeGruneisenRequest)(nil),      // 40: modegrid.v1.ComputeGruneisenRequest
-	(*GruneisenPoint)(nil),               // 41: modegrid.v1.GruneisenPoint
-	(*GammaAtTemperature)(nil),           // 42: modegrid.v1.GammaAtTemperature
-	(*ComputeGruneisenResponse)(nil),     // 43: modegrid.v1.ComputeGruneisenResponse
-	(*ComputeQuasiHarmonicRequest)(nil),  // 44: modegrid.v1.ComputeQuasiHarmonicRequest
-	(*EosFit)(nil),                       // 45: modegrid.v1.EosFit
-	(*QuasiHarmonicPoint)(nil),           // 46: modegrid.v1.QuasiHarmonicPoint
-	(*ComputeQuasiHarmonicResponse)(nil), // 47: modegrid.v1.ComputeQuasiHarmonicResponse
-	(*SampleGeometry)(nil),               // 48: modegrid.v1.SampleGeometry
-	(*PointDefectScattering)(nil),        // 49: modegrid.v1.PointDefectScattering
-	(*UmklappScattering)(nil),            // 50: modegrid.v1.UmklappScattering
-	(*PowerLawScattering)(nil),           // 51: modegrid.v1.PowerLawScattering
-	(*ComputeConductivityRequest)(nil),   // 52: modegrid.v1.ComputeConductivityRequest
-	(*ConductivityPoint)(nil),            // 53: modegrid.v1.ConductivityPoint
-	(*CumulativeConductivity)(nil),       // 54: modegrid.v1.CumulativeConductivity
-	(*ConductivitySeries)(nil),           // 55: modegrid.v1.ConductivitySeries
-	(*ComputeConductivityResponse)(nil),  // 56: modegrid.v1.ComputeConductivityResponse
-	(*Crystal)(nil),                      // 57: modegrid.v1.Crystal
-	(*Vec3)(nil),                         // 58: modegrid.v1.Vec3
+	(Polarization)(0),                    // 8: modegrid.v1.Polarization
+	(HeatCapacityBasis)(0),               // 9: modegrid.v1.HeatCapacityBasis
+	(*ModelSource)(nil),                  // 10: modegrid.v1.ModelSource
+	(*UploadModelHeader)(nil),            // 11: modegrid.v1.UploadModelHeader
+	(*UploadModelRequest)(nil),           // 12: modegrid.v1.UploadModelRequest
+	(*UploadModelResponse)(nil),          // 13: modegrid.v1.UploadModelResponse
+	(*QPoint)(nil),                       // 14: modegrid.v1.QPoint
+	(*QPointList)(nil),                   // 15: modegrid.v1.QPointList
+	(*MonkhorstPackGrid)(nil),            // 16: modegrid.v1.MonkhorstPackGrid
+	(*FiniteCrystal)(nil),                // 17: modegrid.v1.FiniteCrystal
+	(*QPointSet)(nil),                    // 18: modegrid.v1.QPointSet
+	(*ComputeModesRequest)(nil),          // 19: modegrid.v1.ComputeModesRequest
+	(*Modes)(nil),                        // 20: modegrid.v1.Modes
+	(*ComputeModesResponse)(nil),         // 21: modegrid.v1.ComputeModesResponse
+	(*PathPoint)(nil),                    // 22: modegrid.v1.PathPoint
+	(*ComputeDispersionRequest)(nil),     // 23: modegrid.v1.ComputeDispersionRequest
+	(*DispersionSample)(nil),             // 24: modegrid.v1.DispersionSample
+	(*ComputeDispersionResponse)(nil),    // 25: modegrid.v1.ComputeDispersionResponse
+	(*ComputeDosRequest)(nil),            // 26: modegrid.v1.ComputeDosRequest
+	(*ProjectedDos)(nil),                 // 27: modegrid.v1.ProjectedDos
+	(*ComputeDosResponse)(nil),           // 28: modegrid.v1.ComputeDosResponse
+	(*TemperatureRange)(nil),             // 29: modegrid.v1.TemperatureRange
+	(*ComputeThermalRequest)(nil),        // 30: modegrid.v1.ComputeThermalRequest
+	(*SiteDisplacement)(nil),             // 31: modegrid.v1.SiteDisplacement
+	(*ThermalPoint)(nil),                 // 32: modegrid.v1.ThermalPoint
+	(*ComputeThermalResponse)(nil),       // 33: modegrid.v1.ComputeThermalResponse
+	(*CheckModelRequest)(nil),            // 34: modegrid.v1.CheckModelRequest
+	(*FieldViolation)(nil),               // 35: modegrid.v1.FieldViolation
+	(*ShellBonds)(nil),                   // 36: modegrid.v1.ShellBonds
+	(*SymmetryOperation)(nil),            // 37: modegrid.v1.SymmetryOperation
+	(*CheckModelResponse)(nil),           // 38: modegrid.v1.CheckModelResponse
+	(*SupercellFold)(nil),                // 39: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),          // 40: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),                  // 41: modegrid.v1.RequestCost
+	(*ComputeGruneisenRequest)(nil),      // 42: modegrid.v1.ComputeGruneisenRequest
+	(*GruneisenPoint)(nil),               // 43: modegrid.v1.GruneisenPoint
+	(*GammaAtTemperature)(nil),           // 44: modegrid.v1.GammaAtTemperature
+	(*ComputeGruneisenResponse)(nil),     // 45: modegrid.v1.ComputeGruneisenResponse
+	(*ComputeQuasiHarmonicRequest)(nil),  // 46: modegrid.v1.ComputeQuasiHarmonicRequest
+	(*EosFit)(nil),                       // 47: modegrid.v1.EosFit
+	(*QuasiHarmonicPoint)(nil),           // 48: modegrid.v1.QuasiHarmonicPoint
+	(*ComputeQuasiHarmonicResponse)(nil), // 49: modegrid.v1.ComputeQuasiHarmonicResponse
+	(*SampleGeometry)(nil),               // 50: modegrid.v1.SampleGeometry
+	(*PointDefectScattering)(nil),        // 51: modegrid.v1.PointDefectScattering
+	(*UmklappScattering)(nil),            // 52: modegrid.v1.UmklappScattering
+	(*PowerLawScattering)(nil),           // 53: modegrid.v1.PowerLawScattering
+	(*ComputeConductivityRequest)(nil),   // 54: modegrid.v1.ComputeConductivityRequest
+	(*ConductivityPoint)(nil),            // 55: modegrid.v1.ConductivityPoint
+	(*CumulativeConductivity)(nil),       // 56: modegrid.v1.CumulativeConductivity
+	(*ConductivitySeries)(nil),           // 57: modegrid.v1.ConductivitySeries
+	(*ComputeConductivityResponse)(nil),  // 58: modegrid.v1.ComputeConductivityResponse
+	(*FitRequest)(nil),                   // 59: modegrid.v1.FitRequest
+	(*FitParameter)(nil),                 // 60: modegrid.v1.FitParameter
+	(*FitTie)(nil),                       // 61: modegrid.v1.FitTie
+	(*FrequencyDatum)(nil),               // 62: modegrid.v1.FrequencyDatum
+	(*GammaFrequencyDatum)(nil),          // 63: modegrid.v1.GammaFrequencyDatum
+	(*SoundVelocityDatum)(nil),           // 64: modegrid.v1.SoundVelocityDatum
+	(*ElasticConstantDatum)(nil),         // 65: modegrid.v1.ElasticConstantDatum
+	(*HeatCapacityData)(nil),             // 66: modegrid.v1.HeatCapacityData
+	(*HeatCapacityPoint)(nil),            // 67: modegrid.v1.HeatCapacityPoint
+	(*FitResponse)(nil),                  // 68: modegrid.v1.FitResponse
+	(*FitProgress)(nil),                  // 69: modegrid.v1.FitProgress
+	(*FitResult)(nil),                    // 70: modegrid.v1.FitResult
+	(*FittedParameter)(nil),              // 71: modegrid.v1.FittedParameter
+	(*FittedTie)(nil),                    // 72: modegrid.v1.FittedTie
+	(*FitResidual)(nil),                  // 73: modegrid.v1.FitResidual
+	(*UndeterminedParameters)(nil),       // 74: modegrid.v1.UndeterminedParameters
+	(*ParameterCombination)(nil),         // 75: modegrid.v1.ParameterCombination
+	(*Crystal)(nil),                      // 76: modegrid.v1.Crystal
+	(*Vec3)(nil),                         // 77: modegrid.v1.Vec3
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	57, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
-	0,  // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
-	8,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
-	9,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
-	37, // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	12, // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	13, // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	14, // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	15, // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	8,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	16, // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	1,  // 11: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	12, // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
-	1,  // 13: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	18, // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	12, // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	8,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	20, // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
-	1,  // 18: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	12, // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
-	1,  // 20: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	22, // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	8,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	16, // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	2,  // 24: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
-	1,  // 25: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	3,  // 26: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
-	1,  // 27: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	25, // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	25, // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	8,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	16, // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	27, // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
-	4,  // 33: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	29, // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
-	5,  // 35: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	30, // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	8,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	33, // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	34, // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	35, // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	20, // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	39, // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	20, // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	38, // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	37, // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	8,  // 46: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
-	16, // 47: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	20, // 48: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
-	27, // 49: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
-	12, // 50: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
-	41, // 51: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
-	42, // 52: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
-	8,  // 53: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
-	16, // 54: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	27, // 55: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
-	6,  // 56: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
-	45, // 57: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
-	45, // 58: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
-	46, // 59: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
-	7,  // 60: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
-	58, // 61: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
-	8,  // 62: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
-	8,  // 63: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
-	16, // 64: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	27, // 65: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
-	48, // 66: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
-	49, // 67: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
-	50, // 68: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
-	51, // 69: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
-	48, // 70: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
-	53, // 71: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
-	54, // 72: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
-	55, // 73: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
-	32, // 74: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	17, // 75: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	21, // 76: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	24, // 77: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	28, // 78: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	10, // 79: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
-	40, // 80: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
-	44, // 81: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
-	52, // 82: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
-	36, // 83: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	19, // 84: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	23, // 85: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	26, // 86: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	31, // 87: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	11, // 88: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
-	43, // 89: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
-	47, // 90: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
-	56, // 91: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
-	83, // [83:92] is the sub-list for method output_type
-	74, // [74:83] is the sub-list for method input_type
-	74, // [74:74] is the sub-list for extension type_name
-	74, // [74:74] is the sub-list for extension extendee
-	0,  // [0:74] is the sub-list for field type_name
+	76,  // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	0,   // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
+	10,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
+	11,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
+	39,  // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	14,  // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
+	15,  // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	16,  // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	17,  // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	10,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	1,   // 11: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	14,  // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	1,   // 13: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	20,  // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	14,  // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	10,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	22,  // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	1,   // 18: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	14,  // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	1,   // 20: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	24,  // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	10,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	2,   // 24: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
+	1,   // 25: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	3,   // 26: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
+	1,   // 27: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	27,  // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	27,  // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	10,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	4,   // 33: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
+	31,  // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	5,   // 35: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
+	32,  // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	10,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	35,  // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	36,  // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	37,  // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	22,  // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	41,  // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	22,  // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	40,  // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	39,  // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	10,  // 46: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
+	18,  // 47: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	22,  // 48: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
+	29,  // 49: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
+	14,  // 50: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
+	43,  // 51: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
+	44,  // 52: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
+	10,  // 53: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
+	18,  // 54: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 55: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
+	6,   // 56: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
+	47,  // 57: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
+	47,  // 58: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
+	48,  // 59: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
+	7,   // 60: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
+	77,  // 61: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
+	10,  // 62: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
+	10,  // 63: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 64: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 65: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
+	50,  // 66: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
+	51,  // 67: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
+	52,  // 68: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
+	53,  // 69: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
+	50,  // 70: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
+	55,  // 71: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
+	56,  // 72: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
+	57,  // 73: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
+	10,  // 74: modegrid.v1.FitRequest.model:type_name -> modegrid.v1.ModelSource
+	60,  // 75: modegrid.v1.FitRequest.free:type_name -> modegrid.v1.FitParameter
+	61,  // 76: modegrid.v1.FitRequest.ties:type_name -> modegrid.v1.FitTie
+	62,  // 77: modegrid.v1.FitRequest.frequencies:type_name -> modegrid.v1.FrequencyDatum
+	63,  // 78: modegrid.v1.FitRequest.gamma_frequencies:type_name -> modegrid.v1.GammaFrequencyDatum
+	64,  // 79: modegrid.v1.FitRequest.sound_velocities:type_name -> modegrid.v1.SoundVelocityDatum
+	65,  // 80: modegrid.v1.FitRequest.elastic_constants:type_name -> modegrid.v1.ElasticConstantDatum
+	66,  // 81: modegrid.v1.FitRequest.heat_capacities:type_name -> modegrid.v1.HeatCapacityData
+	14,  // 82: modegrid.v1.FrequencyDatum.q:type_name -> modegrid.v1.QPoint
+	8,   // 83: modegrid.v1.FrequencyDatum.polarization:type_name -> modegrid.v1.Polarization
+	77,  // 84: modegrid.v1.SoundVelocityDatum.direction:type_name -> modegrid.v1.Vec3
+	8,   // 85: modegrid.v1.SoundVelocityDatum.polarization:type_name -> modegrid.v1.Polarization
+	16,  // 86: modegrid.v1.HeatCapacityData.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	9,   // 87: modegrid.v1.HeatCapacityData.basis:type_name -> modegrid.v1.HeatCapacityBasis
+	67,  // 88: modegrid.v1.HeatCapacityData.points:type_name -> modegrid.v1.HeatCapacityPoint
+	69,  // 89: modegrid.v1.FitResponse.progress:type_name -> modegrid.v1.FitProgress
+	70,  // 90: modegrid.v1.FitResponse.result:type_name -> modegrid.v1.FitResult
+	76,  // 91: modegrid.v1.FitResult.fitted:type_name -> modegrid.v1.Crystal
+	71,  // 92: modegrid.v1.FitResult.parameters:type_name -> modegrid.v1.FittedParameter
+	72,  // 93: modegrid.v1.FitResult.ties:type_name -> modegrid.v1.FittedTie
+	73,  // 94: modegrid.v1.FitResult.residuals:type_name -> modegrid.v1.FitResidual
+	74,  // 95: modegrid.v1.FitResult.undetermined:type_name -> modegrid.v1.UndeterminedParameters
+	75,  // 96: modegrid.v1.UndeterminedParameters.determined:type_name -> modegrid.v1.ParameterCombination
+	75,  // 97: modegrid.v1.UndeterminedParameters.flat:type_name -> modegrid.v1.ParameterCombination
+	34,  // 98: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	19,  // 99: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	23,  // 100: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	26,  // 101: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	30,  // 102: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	12,  // 103: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
+	42,  // 104: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
+	46,  // 105: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
+	54,  // 106: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
+	59,  // 107: modegrid.v1.ModegridService.Fit:input_type -> modegrid.v1.FitRequest
+	38,  // 108: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	21,  // 109: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	25,  // 110: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	28,  // 111: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	33,  // 112: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	13,  // 113: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
+	45,  // 114: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
+	49,  // 115: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
+	58,  // 116: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
+	68,  // 117: modegrid.v1.ModegridService.Fit:output_type -> modegrid.v1.FitResponse
+	108, // [108:118] is the sub-list for method output_type
+	98,  // [98:108] is the sub-list for method input_type
+	98,  // [98:98] is the sub-list for extension type_name
+	98,  // [98:98] is the sub-list for extension extendee
+	0,   // [0:98] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -5895,13 +7652,18 @@ func file_modegrid_v1_service_proto_init() {
 		(*QPointSet_Cells)(nil),
 	}
 	file_modegrid_v1_service_proto_msgTypes[32].OneofWrappers = []any{}
+	file_modegrid_v1_service_proto_msgTypes[50].OneofWrappers = []any{}
+	file_modegrid_v1_service_proto_msgTypes[58].OneofWrappers = []any{
+		(*FitResponse_Progress)(nil),
+		(*FitResponse_Result)(nil),
+	}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
-			NumEnums:      8,
-			NumMessages:   49,
+			NumEnums:      10,
+			NumMessages:   66,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

@@ -28,6 +28,7 @@ const (
 	ModegridService_ComputeGruneisen_FullMethodName     = "/modegrid.v1.ModegridService/ComputeGruneisen"
 	ModegridService_ComputeQuasiHarmonic_FullMethodName = "/modegrid.v1.ModegridService/ComputeQuasiHarmonic"
 	ModegridService_ComputeConductivity_FullMethodName  = "/modegrid.v1.ModegridService/ComputeConductivity"
+	ModegridService_Fit_FullMethodName                  = "/modegrid.v1.ModegridService/Fit"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -88,6 +89,13 @@ type ModegridServiceClient interface {
 	// relaxation-time approximation for bulk and finite samples, and the
 	// cumulative conductivity against mean free path and frequency.
 	ComputeConductivity(ctx context.Context, in *ComputeConductivityRequest, opts ...grpc.CallOption) (*ComputeConductivityResponse, error)
+	// Fit fits free parameters of a model to measured data (frequencies,
+	// sound velocities, elastic constants, heat capacities) by weighted least
+	// squares. It streams one progress message per evaluation of the model,
+	// then the result as the last message. The fitted model is stored like an
+	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
+	// every other call.
+	Fit(ctx context.Context, in *FitRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[FitResponse], error)
 }
 
 type modegridServiceClient struct {
@@ -200,6 +208,25 @@ func (c *modegridServiceClient) ComputeConductivity(ctx context.Context, in *Com
 	return out, nil
 }
 
+func (c *modegridServiceClient) Fit(ctx context.Context, in *FitRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[FitResponse], error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	stream, err := c.cc.NewStream(ctx, &ModegridService_ServiceDesc.Streams[2], ModegridService_Fit_FullMethodName, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	x := &grpc.GenericClientStream[FitRequest, FitResponse]{ClientStream: stream}
+	if err := x.ClientStream.SendMsg(in); err != nil {
+		return nil, err
+	}
+	if err := x.ClientStream.CloseSend(); err != nil {
+		return nil, err
+	}
+	return x, nil
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_FitClient = grpc.ServerStreamingClient[FitResponse]
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -258,6 +285,13 @@ type ModegridServiceServer interface {
 	// relaxation-time approximation for bulk and finite samples, and the
 	// cumulative conductivity against mean free path and frequency.
 	ComputeConductivity(context.Context, *ComputeConductivityRequest) (*ComputeConductivityResponse, error)
+	// Fit fits free parameters of a model to measured data (frequencies,
+	// sound velocities, elastic constants, heat capacities) by weighted least
+	// squares. It streams one progress message per evaluation of the model,
+	// then the result as the last message. The fitted model is stored like an
+	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
+	// every other call.
+	Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -294,6 +328,9 @@ func (UnimplementedModegridServiceServer) ComputeQuasiHarmonic(context.Context, 
 }
 func (UnimplementedModegridServiceServer) ComputeConductivity(context.Context, *ComputeConductivityRequest) (*ComputeConductivityResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeConductivity not implemented")
+}
+func (UnimplementedModegridServiceServer) Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error {
+	return status.Error(codes.Unimplemented, "method Fit not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -460,6 +497,17 @@ func _ModegridService_ComputeConductivity_Handler(srv interface{}, ctx context.C
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_Fit_Handler(srv interface{}, stream grpc.ServerStream) error {
+	m := new(FitRequest)
+	if err := stream.RecvMsg(m); err != nil {
+		return err
+	}
+	return srv.(ModegridServiceServer).Fit(m, &grpc.GenericServerStream[FitRequest, FitResponse]{ServerStream: stream})
+}
+
+// This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
+type ModegridService_FitServer = grpc.ServerStreamingServer[FitResponse]
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -506,6 +554,11 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 			StreamName:    "UploadModel",
 			Handler:       _ModegridService_UploadModel_Handler,
 			ClientStreams: true,
+		},
+		{
+			StreamName:    "Fit",
+			Handler:       _ModegridService_Fit_Handler,
+			ServerStreams: true,
 		},
 	},
 	Metadata: "modegrid/v1/service.proto",

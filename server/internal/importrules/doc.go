@@ -10,8 +10,8 @@
 //     tests too, and go.uber.org/goleak. Inside physics the arrows point
 //     one way: the leaves (physics/internal/parallel, eigen, lattice,
 //     mesh) ← the core (physics) ← physics/spectra ← physics/thermo ←
-//     physics/thermo/qha and physics/transport (one layer), and the core
-//     ← physics/fcimport (in spectra's layer); a
+//     physics/thermo/qha, physics/transport and physics/fit (one layer),
+//     and the core ← physics/fcimport (in spectra's layer); a
 //     package (and its tests) imports only packages below it.
 //     physics/internal/testmodels sits between the core and spectra and
 //     is imported by tests only.
