@@ -6,6 +6,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/fcimport"
+	"github.com/materials-lab/modegrid/physics/polar"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -20,8 +21,11 @@ const maxSupercellSites = 64
 // set and springs, shells or blocks too is refused (they would not
 // combine meaningfully). maxSites 0 means no cap.
 // The returned report (nil without a set) says what the fold found and
-// corrected; CheckModel answers it.
-func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int) (*modegridv1.SupercellFold, error) {
+// corrected; CheckModel answers it. For a polar crystal the dipole–dipole
+// part is taken out of the set before the fold (and the compiled model
+// adds it back at every q), with the charges made neutral first when
+// enforce is set, as the model will use them.
+func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int, enforce bool) (*modegridv1.SupercellFold, error) {
 	fc := cr.GetSupercellFc()
 	if fc == nil {
 		return nil, nil
@@ -39,7 +43,14 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 	if err := vs.Err(); err != nil {
 		return nil, err
 	}
-	blocks, rep, err := fcimport.Fold(ctx, c, setFromProto(fc))
+	set := setFromProto(fc)
+	if len(c.EpsilonInf) > 0 {
+		var err error
+		if set.LongRange, err = polar.SupercellPart(ctx, c, set.Matrix, enforce); err != nil {
+			return nil, err
+		}
+	}
+	blocks, rep, err := fcimport.Fold(ctx, c, set)
 	if err != nil {
 		return nil, fmt.Errorf("folding the supercell force constants: %w", err)
 	}

@@ -13,6 +13,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/polar"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
@@ -70,7 +71,7 @@ func (s *Service) run(ctx context.Context, kind string, fn func(ctx context.Cont
 type modelEntry struct {
 	m      *physics.Model
 	hash   string
-	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize}
+	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize, enforce_charge_neutrality}
 	// symmetrized: m is the source's crystal made exactly symmetric.
 	symmetrized bool
 	// fold reports the fold of the source's supercell force-constant set
@@ -116,11 +117,12 @@ var modelCodec = &cache.Codec{
 // (physics.Symmetrize) and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
 	c := crystalFromProto(src.GetCrystal())
-	fold, err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites)
+	fold, err := foldSupercell(ctx, src.GetCrystal(), c, lim.MaxSites, src.GetEnforceChargeNeutrality())
 	if err != nil {
 		return nil, err
 	}
-	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
+	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA(),
+		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality(), LongRange: polar.Builder()}
 	if src.GetSymmetrize() {
 		if c, _, err = physics.Symmetrize(ctx, c, opt); err != nil {
 			return nil, err
@@ -238,6 +240,9 @@ func inlineKey(src *modegridv1.ModelSource) (*modegridv1.ModelSource, []byte, ca
 		EnforceSumRule:     src.GetEnforceSumRule(),
 		SymmetryToleranceA: src.GetSymmetryToleranceA(),
 		Symmetrize:         src.GetSymmetrize(),
+		// Only a model with charges compiles differently with it: without
+		// them the option is dropped, so both spellings share the key.
+		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality() && len(src.GetCrystal().GetEpsilonInf()) > 0,
 	}
 	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
 	if err != nil {

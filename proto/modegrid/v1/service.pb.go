@@ -340,9 +340,14 @@ type ModelSource struct {
 	// tolerance before use: lattice metric and positions averaged over the
 	// group, springs recomputed from the new positions, explicit blocks
 	// averaged. The result is a new model with its own hash.
-	Symmetrize    bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	Symmetrize bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
+	// Impose the charge-neutrality sum rule on the Born effective charges,
+	// Σ_sites Z* = 0, by the smallest correction: the mean charge tensor is
+	// subtracted from every site's (the least change in the sum of squares).
+	// Ignored for a model without charges.
+	EnforceChargeNeutrality bool `protobuf:"varint,6,opt,name=enforce_charge_neutrality,json=enforceChargeNeutrality,proto3" json:"enforce_charge_neutrality,omitempty"`
+	unknownFields           protoimpl.UnknownFields
+	sizeCache               protoimpl.SizeCache
 }
 
 func (x *ModelSource) Reset() {
@@ -417,6 +422,13 @@ func (x *ModelSource) GetSymmetryToleranceA() float64 {
 func (x *ModelSource) GetSymmetrize() bool {
 	if x != nil {
 		return x.Symmetrize
+	}
+	return false
+}
+
+func (x *ModelSource) GetEnforceChargeNeutrality() bool {
+	if x != nil {
+		return x.EnforceChargeNeutrality
 	}
 	return false
 }
@@ -2645,6 +2657,8 @@ type CheckModelResponse struct {
 	// How the model's supercell force-constant set was folded onto its
 	// primitive cell (unset when the model has no set).
 	SupercellFold *SupercellFold `protobuf:"bytes,23,opt,name=supercell_fold,json=supercellFold,proto3" json:"supercell_fold,omitempty"`
+	// The model's polar data (unset when it has no Born effective charges).
+	Polar         *PolarCheck `protobuf:"bytes,24,opt,name=polar,proto3" json:"polar,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2840,6 +2854,103 @@ func (x *CheckModelResponse) GetSupercellFold() *SupercellFold {
 	return nil
 }
 
+func (x *CheckModelResponse) GetPolar() *PolarCheck {
+	if x != nil {
+		return x.Polar
+	}
+	return nil
+}
+
+// PolarCheck summarises the polar data of a model: Born effective charges
+// and ε∞, and the dipole–dipole (Ewald) sum they add to every D(q).
+type PolarCheck struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Largest element of the sum of the Born charge tensors over the sites,
+	// max_{αβ} |Σ_s Z*_{s,αβ}|, in e, as given (before any enforcement): the
+	// violation of charge neutrality. Acoustic modes at Γ approached along a
+	// direction are not zero while it is (the dipole of a rigid translation
+	// does not vanish).
+	ChargeNeutralityViolationE float64 `protobuf:"fixed64,1,opt,name=charge_neutrality_violation_e,json=chargeNeutralityViolationE,proto3" json:"charge_neutrality_violation_e,omitempty"`
+	// True when the sum rule was imposed (ModelSource.enforce_charge_neutrality):
+	// the model uses charges whose sum is zero.
+	ChargeNeutralityEnforced bool `protobuf:"varint,2,opt,name=charge_neutrality_enforced,json=chargeNeutralityEnforced,proto3" json:"charge_neutrality_enforced,omitempty"`
+	// The Ewald parameter Λ of the dipole–dipole sum, Å⁻¹ (results do not
+	// depend on it beyond rounding; it balances the two sums' work).
+	EwaldParameterInvA float64 `protobuf:"fixed64,3,opt,name=ewald_parameter_inv_a,json=ewaldParameterInvA,proto3" json:"ewald_parameter_inv_a,omitempty"`
+	// Real-space terms (site pairs × lattice vectors) of the Ewald sum,
+	// summed at every q.
+	EwaldRealTerms uint32 `protobuf:"varint,4,opt,name=ewald_real_terms,json=ewaldRealTerms,proto3" json:"ewald_real_terms,omitempty"`
+	// Reciprocal lattice vectors of the Ewald sum, summed at every q.
+	EwaldReciprocalVectors uint32 `protobuf:"varint,5,opt,name=ewald_reciprocal_vectors,json=ewaldReciprocalVectors,proto3" json:"ewald_reciprocal_vectors,omitempty"`
+	unknownFields          protoimpl.UnknownFields
+	sizeCache              protoimpl.SizeCache
+}
+
+func (x *PolarCheck) Reset() {
+	*x = PolarCheck{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PolarCheck) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PolarCheck) ProtoMessage() {}
+
+func (x *PolarCheck) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PolarCheck.ProtoReflect.Descriptor instead.
+func (*PolarCheck) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+}
+
+func (x *PolarCheck) GetChargeNeutralityViolationE() float64 {
+	if x != nil {
+		return x.ChargeNeutralityViolationE
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetChargeNeutralityEnforced() bool {
+	if x != nil {
+		return x.ChargeNeutralityEnforced
+	}
+	return false
+}
+
+func (x *PolarCheck) GetEwaldParameterInvA() float64 {
+	if x != nil {
+		return x.EwaldParameterInvA
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetEwaldRealTerms() uint32 {
+	if x != nil {
+		return x.EwaldRealTerms
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetEwaldReciprocalVectors() uint32 {
+	if x != nil {
+		return x.EwaldReciprocalVectors
+	}
+	return 0
+}
+
 // SupercellFold reports the fold of a supercell force-constant set: the
 // largest element of each violation before and after its correction, all
 // in eV/Å². Permutation symmetry is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ| of the
@@ -2869,7 +2980,7 @@ type SupercellFold struct {
 
 func (x *SupercellFold) Reset() {
 	*x = SupercellFold{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2881,7 +2992,7 @@ func (x *SupercellFold) String() string {
 func (*SupercellFold) ProtoMessage() {}
 
 func (x *SupercellFold) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[26]
+	mi := &file_modegrid_v1_service_proto_msgTypes[27]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2894,7 +3005,7 @@ func (x *SupercellFold) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SupercellFold.ProtoReflect.Descriptor instead.
 func (*SupercellFold) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{26}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
 }
 
 func (x *SupercellFold) GetAtomsMapped() uint32 {
@@ -2960,7 +3071,7 @@ type SymmetryAtTolerance struct {
 
 func (x *SymmetryAtTolerance) Reset() {
 	*x = SymmetryAtTolerance{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -2972,7 +3083,7 @@ func (x *SymmetryAtTolerance) String() string {
 func (*SymmetryAtTolerance) ProtoMessage() {}
 
 func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[27]
+	mi := &file_modegrid_v1_service_proto_msgTypes[28]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -2985,7 +3096,7 @@ func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SymmetryAtTolerance.ProtoReflect.Descriptor instead.
 func (*SymmetryAtTolerance) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{27}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{28}
 }
 
 func (x *SymmetryAtTolerance) GetToleranceA() float64 {
@@ -3021,7 +3132,7 @@ type RequestCost struct {
 
 func (x *RequestCost) Reset() {
 	*x = RequestCost{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[28]
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3033,7 +3144,7 @@ func (x *RequestCost) String() string {
 func (*RequestCost) ProtoMessage() {}
 
 func (x *RequestCost) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[28]
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3046,7 +3157,7 @@ func (x *RequestCost) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
 func (*RequestCost) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{28}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{29}
 }
 
 func (x *RequestCost) GetRequest() string {
@@ -3081,7 +3192,7 @@ var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
-	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\xe6\x01\n" +
+	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\xa2\x02\n" +
 	"\vModelSource\x120\n" +
 	"\acrystal\x18\x01 \x01(\v2\x14.modegrid.v1.CrystalH\x00R\acrystal\x12\x1f\n" +
 	"\n" +
@@ -3090,7 +3201,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14symmetry_tolerance_a\x18\x04 \x01(\x01R\x12symmetryToleranceA\x12\x1e\n" +
 	"\n" +
 	"symmetrize\x18\x05 \x01(\bR\n" +
-	"symmetrizeB\b\n" +
+	"symmetrize\x12:\n" +
+	"\x19enforce_charge_neutrality\x18\x06 \x01(\bR\x17enforceChargeNeutralityB\b\n" +
 	"\x06source\"8\n" +
 	"\x06QPoint\x12\x0e\n" +
 	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
@@ -3267,7 +3379,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc0\b\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xef\b\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -3299,7 +3411,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14symmetry_tolerance_a\x18\x14 \x01(\x01R\x12symmetryToleranceA\x12a\n" +
 	"\x1csymmetry_at_looser_tolerance\x18\x15 \x03(\v2 .modegrid.v1.SymmetryAtToleranceR\x19symmetryAtLooserTolerance\x12 \n" +
 	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\x12A\n" +
-	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"\xef\x02\n" +
+	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\x12-\n" +
+	"\x05polar\x18\x18 \x01(\v2\x17.modegrid.v1.PolarCheckR\x05polar\"\xa4\x02\n" +
+	"\n" +
+	"PolarCheck\x12A\n" +
+	"\x1dcharge_neutrality_violation_e\x18\x01 \x01(\x01R\x1achargeNeutralityViolationE\x12<\n" +
+	"\x1acharge_neutrality_enforced\x18\x02 \x01(\bR\x18chargeNeutralityEnforced\x121\n" +
+	"\x15ewald_parameter_inv_a\x18\x03 \x01(\x01R\x12ewaldParameterInvA\x12(\n" +
+	"\x10ewald_real_terms\x18\x04 \x01(\rR\x0eewaldRealTerms\x128\n" +
+	"\x18ewald_reciprocal_vectors\x18\x05 \x01(\rR\x16ewaldReciprocalVectors\"\xef\x02\n" +
 	"\rSupercellFold\x12!\n" +
 	"\fatoms_mapped\x18\x01 \x01(\rR\vatomsMapped\x12\x1f\n" +
 	"\vtolerance_a\x18\x02 \x01(\x01R\n" +
@@ -3369,7 +3489,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 29)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 30)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -3402,13 +3522,14 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                // 28: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),         // 29: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),        // 30: modegrid.v1.CheckModelResponse
-	(*SupercellFold)(nil),             // 31: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),       // 32: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),               // 33: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 34: modegrid.v1.Crystal
+	(*PolarCheck)(nil),                // 31: modegrid.v1.PolarCheck
+	(*SupercellFold)(nil),             // 32: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),       // 33: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),               // 34: modegrid.v1.RequestCost
+	(*Crystal)(nil),                   // 35: modegrid.v1.Crystal
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	34, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	35, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
 	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
 	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
@@ -3446,25 +3567,26 @@ var file_modegrid_v1_service_proto_depIdxs = []int32{
 	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
 	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
 	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	33, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	34, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
 	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	32, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	31, // 41: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	26, // 42: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 43: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 44: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 45: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 46: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 47: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 48: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 49: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 50: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 51: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	47, // [47:52] is the sub-list for method output_type
-	42, // [42:47] is the sub-list for method input_type
-	42, // [42:42] is the sub-list for extension type_name
-	42, // [42:42] is the sub-list for extension extendee
-	0,  // [0:42] is the sub-list for field type_name
+	33, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	32, // 41: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	31, // 42: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
+	26, // 43: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 44: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 45: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 46: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 47: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	30, // 48: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 49: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 50: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 51: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 52: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	48, // [48:53] is the sub-list for method output_type
+	43, // [43:48] is the sub-list for method input_type
+	43, // [43:43] is the sub-list for extension type_name
+	43, // [43:43] is the sub-list for extension extendee
+	0,  // [0:43] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3488,7 +3610,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   29,
+			NumMessages:   30,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

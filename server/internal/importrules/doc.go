@@ -10,7 +10,7 @@
 //     tests too, and go.uber.org/goleak. Inside physics the arrows point
 //     one way: the leaves (physics/internal/parallel, eigen, lattice,
 //     mesh) ← the core (physics) ← physics/spectra ← physics/thermo, and
-//     the core ← physics/fcimport (in spectra's layer); a
+//     the core ← physics/fcimport and physics/polar (in spectra's layer); a
 //     package (and its tests) imports only packages below it.
 //     physics/internal/testmodels sits between the core and spectra and
 //     is imported by tests only.
