@@ -425,3 +425,78 @@ func symmetricPolar(ops []SymOp, c *Crystal, out *Crystal) {
 		out.Sites[i].BornCharge = avg(func(op *SymOp) []float64 { return c.Sites[op.Perm[i]].BornCharge })
 	}
 }
+
+// splitGamma gives the samples of a path on Γ their directions of
+// approach, for a model with a long-range term (nothing changes for
+// others): the incoming segment's, the outgoing one's, and for a corner
+// where the two differ in direction both, as two samples at the same
+// distance (the second continuing the piece). A segment passing through
+// Γ has one direction on both sides.
+func (m *Model) splitGamma(samples []PathSample, pieceStart []bool) ([]PathSample, []bool) {
+	if m.longRange == nil {
+		return samples, pieceStart
+	}
+	var outS []PathSample
+	var outP []bool
+	for i, s := range samples {
+		if !IsGamma(s.Q) {
+			outS, outP = append(outS, s), append(outP, pieceStart[i])
+			continue
+		}
+		var in, out [3]float64
+		if !pieceStart[i] {
+			in = fracDir(s.Q, samples[i-1].Q)
+		}
+		if i+1 < len(samples) && !pieceStart[i+1] {
+			out = fracDir(samples[i+1].Q, s.Q)
+		}
+		switch {
+		case in == [3]float64{}:
+			s.GammaDir = out
+		case out == [3]float64{} || m.parallelQ(in, out):
+			s.GammaDir = in
+		default:
+			a, b := s, s
+			a.GammaDir, b.GammaDir = in, out
+			outS, outP = append(outS, a, b), append(outP, pieceStart[i], false)
+			continue
+		}
+		outS, outP = append(outS, s), append(outP, pieceStart[i])
+	}
+	return outS, outP
+}
+
+// fracDir is b − a scaled to a largest |component| of 1 (zero if equal).
+func fracDir(b, a [3]float64) [3]float64 {
+	d := [3]float64{b[0] - a[0], b[1] - a[1], b[2] - a[2]}
+	s := math.Max(math.Abs(d[0]), math.Max(math.Abs(d[1]), math.Abs(d[2])))
+	if s == 0 {
+		return d
+	}
+	return [3]float64{posZero(d[0] / s), posZero(d[1] / s), posZero(d[2] / s)}
+}
+
+// parallelQ reports whether two fractional directions are parallel (or
+// opposite) in Cartesian space, within 1e-9 of the sine of their angle:
+// the non-analytic limit depends on the direction's line only.
+func (m *Model) parallelQ(a, b [3]float64) bool {
+	ca, cb := m.cartQ(a), m.cartQ(b)
+	c := lattice.Cross(ca, cb)
+	return lattice.Norm(c) <= 1e-9*lattice.Norm(ca)*lattice.Norm(cb)
+}
+
+// gammaDirsOf returns the Cartesian directions of approach of the path
+// samples for StreamModes (nil when no sample has one).
+func (m *Model) gammaDirsOf(samples []PathSample) [][3]float64 {
+	var dirs [][3]float64
+	for i, s := range samples {
+		if s.GammaDir == ([3]float64{}) {
+			continue
+		}
+		if dirs == nil {
+			dirs = make([][3]float64, len(samples))
+		}
+		dirs[i] = m.cartQ(s.GammaDir)
+	}
+	return dirs
+}

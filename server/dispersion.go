@@ -168,6 +168,9 @@ func dispersionToProto(hash, canon string, unit physics.Unit, samples []physics.
 		}
 		out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
 			Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}, SiteWeights: smp.SiteWeight}
+		if d := smp.GammaDir; d != ([3]float64{}) {
+			out.Samples[i].GammaDirection = &modegridv1.QPoint{Q1: d[0], Q2: d[1], Q3: d[2]}
+		}
 	}
 	return out
 }

@@ -66,6 +66,13 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	}
 	chunk = max(1, min(chunk, s.cfg.MaxChunkBytes/per))
 	opt.ChunkSize = chunk
+	polar := e.m.Polar()
+	if polar && qs.dirs != nil {
+		opt.GammaDirs = make([][3]float64, len(qs.dirs))
+		for i, d := range qs.dirs {
+			opt.GammaDirs[i] = e.m.CartesianQ(d)
+		}
+	}
 
 	var p params
 	p.add("qpoints", qs.param())
@@ -94,6 +101,9 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 				}
 				for i := range c.Points {
 					resp.Points[i] = modesToProto(&c.Points[i], unit)
+					if polar {
+						markGamma(resp.Points[i], &c.Points[i], qs.dirs, c.Offset+i)
+					}
 				}
 				return stream.Send(resp)
 			})
@@ -171,4 +181,20 @@ func modesToProto(pm *physics.PointModes, unit physics.Unit) *modegridv1.Modes {
 		}
 	}
 	return out
+}
+
+// markGamma states how a polar model's Γ point was taken: along the
+// direction the list gave (gamma_direction), or the analytic part only
+// (gamma_analytic: grids, and list points without a direction). dirs are
+// the list's directions (nil for none or a grid), idx the point's index.
+func markGamma(out *modegridv1.Modes, pm *physics.PointModes, dirs [][3]float64, idx int) {
+	if !physics.IsGamma(pm.Q) {
+		return
+	}
+	if dirs != nil && dirs[idx] != ([3]float64{}) {
+		d := dirs[idx]
+		out.GammaDirection = &modegridv1.QPoint{Q1: d[0], Q2: d[1], Q3: d[2]}
+		return
+	}
+	out.GammaAnalytic = true
 }

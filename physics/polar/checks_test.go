@@ -310,3 +310,61 @@ func TestSupercellPartRoundTrip(t *testing.T) {
 		}
 	}
 }
+
+// TestPathGammaSides: along a path through Γ a polar model's Γ corner is
+// sampled twice, once with each segment's direction, at one distance; the
+// frequencies there are the direction-dependent limits (ModesToward), and
+// in a uniaxial crystal the two sides differ. The samples next to Γ tend
+// to them (the non-analytic term is continuous along a line).
+func TestPathGammaSides(t *testing.T) {
+	m := compile(t, rockSalt(1.3, diag(2.5, 2.5, 4)), 0)
+	// Corners: along b1+b2 (Cartesian (1,1,0)·π/a... in the xy plane) and
+	// along b3 − b1 − b2 (Cartesian ∝ (−1,−1,1)·…).
+	corners := []physics.PathCorner{
+		{Label: "A", Q: [3]float64{0.5, 0.5, 0}, HasQ: true},
+		{Label: "G", Q: [3]float64{0, 0, 0}, HasQ: true},
+		{Label: "B", Q: [3]float64{0, 0, 0.5}, HasQ: true},
+	}
+	samples, err := m.Dispersion(context.Background(), corners, physics.PathOptions{Points: 41})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(samples) != 42 {
+		t.Fatalf("%d samples; want 41 + 1 (Γ twice)", len(samples))
+	}
+	var at []int
+	for i, s := range samples {
+		if s.Q == ([3]float64{}) {
+			at = append(at, i)
+		}
+	}
+	if len(at) != 2 || at[1] != at[0]+1 || samples[at[0]].DistanceInvA != samples[at[1]].DistanceInvA {
+		t.Fatalf("Γ samples at %v; want two consecutive at one distance", at)
+	}
+	in, out := samples[at[0]], samples[at[1]]
+	if in.GammaDir != [3]float64{-1, -1, 0} || out.GammaDir != [3]float64{0, 0, 1} {
+		t.Errorf("directions %v, %v; want (−1,−1,0) in and (0,0,1) out", in.GammaDir, out.GammaDir)
+	}
+	for _, s := range []physics.PathSample{in, out} {
+		want, _ := m.ModesToward([3]float64{}, m.CartesianQ(s.GammaDir))
+		for k := range want {
+			if !relClose(s.FreqTHz[k], want[k], 1e-10, want[5]) {
+				t.Errorf("Γ along %v: branch %d %.12g THz; ModesToward %.12g", s.GammaDir, k, s.FreqTHz[k], want[k])
+			}
+		}
+	}
+	if math.Abs(in.FreqTHz[5]-out.FreqTHz[5]) < 1e-3 {
+		t.Errorf("LO %.9g and %.9g THz on the two sides: the uniaxial crystal should split them differently", in.FreqTHz[5], out.FreqTHz[5])
+	}
+	for _, k := range []int{at[0] - 1, at[1] + 1} {
+		g := in
+		if k > at[1] {
+			g = out
+		}
+		for b := 3; b < 6; b++ {
+			if math.Abs(samples[k].FreqTHz[b]-g.FreqTHz[b]) > 0.05*g.FreqTHz[5] {
+				t.Errorf("sample %d next to Γ, branch %d: %.6g THz far from the limit %.6g", k, b, samples[k].FreqTHz[b], g.FreqTHz[b])
+			}
+		}
+	}
+}

@@ -103,3 +103,21 @@ func (t *Term) TermSizes() Sizes {
 
 // compile-time check that *Term is a physics.LongRange.
 var _ physics.LongRange = (*Term)(nil)
+
+// InfraredCost estimates Infrared for a model of size s (physics.GridSize
+// of the model, its LongRangeFlops included) and samples frequencies.
+// Memory, from infrared.go: D(Γ) (16 n² bytes), its real symmetric copy,
+// the eigenvectors and gonum's workspace (8 n² each), the 3×n charge
+// matrix, a solver workspace with eigenvectors for the LO modes
+// (ModesToward: 56 n²), the modes (about 200 bytes each) and the samples
+// (48 bytes each), plus 64 KiB of headers. Work: two assemblies of D(Γ),
+// two eigenproblems with vectors ((16/3 + 18) n³ each, as
+// physics.GridModesCost counts them) and per sample a complex division
+// per mode.
+func InfraredCost(s physics.GridSize, samples int) physics.Cost {
+	n := int64(s.Modes())
+	b := 16*n*n + 3*8*n*n + 24*n + 56*n*n + 200*n + 48*int64(samples) + 64<<10
+	x := float64(n)
+	f := 2*s.SolveCost().Flops + 2*(16.0/3+18)*x*x*x + float64(samples)*x*30
+	return physics.Cost{Bytes: b, Flops: f}
+}

@@ -50,6 +50,9 @@ type IROptions struct {
 	// each ≥ 0; nil for DefaultIRPoints from 0 to DefaultIRSpan times the
 	// highest LO frequency.
 	FreqTHz []float64
+	// Points is the number of default samples when FreqTHz is nil (0:
+	// DefaultIRPoints; at least 2).
+	Points int
 	// DampingTHz is the damping γ of the modes as an ordinary frequency
 	// (THz; γ in ω units is 2π times it): one value for every mode, one
 	// per Γ mode (in ascending order of frequency), or nil for
@@ -67,9 +70,12 @@ type IRMode struct {
 	// Charge is the mode effective charge Z̃_α = Σ_{s,β} Z_s,αβ U_sβ with
 	// U = e/√m the displacement of the normalised eigenvector e, e/√amu
 	// (Gonze & Lee, Phys. Rev. B 55, 10355 (1997), eq. 53). Within a group
-	// of degenerate modes the modes are rotated so that their charges are
-	// mutually orthogonal (the only basis-free choice), the largest
-	// component positive.
+	// of degenerate modes the eigenvectors are any basis, and so would be
+	// the charges: the modes are rotated so that their charges are
+	// mutually orthogonal, the last of the group's charged modes having
+	// the largest charge along the direction (in a cubic crystal: exactly
+	// along it — the mode that becomes longitudinal), the others along the
+	// axes after it (orthogonal); the largest component is positive.
 	Charge [3]float64
 	// Strength is the oscillator strength S_αβ = Z̃_α Z̃_β, e²/amu
 	// (Gonze & Lee 1997, eq. 54).
@@ -112,7 +118,7 @@ func Infrared(ctx context.Context, m *physics.Model, opt IROptions) (*IRResult, 
 	}
 	res := &IRResult{Direction: u}
 	res.EpsInf, _ = m.EpsilonInf()
-	if res.Modes, err = gammaModes(ctx, m); err != nil {
+	if res.Modes, err = gammaModes(ctx, m, u); err != nil {
 		return nil, err
 	}
 	res.LOFreqTHz, _ = m.ModesToward([3]float64{}, u)
@@ -125,10 +131,14 @@ func Infrared(ctx context.Context, m *physics.Model, opt IROptions) (*IRResult, 
 	res.setDamping(opt.DampingTHz)
 	freqs := opt.FreqTHz
 	if freqs == nil {
+		np := opt.Points
+		if np == 0 {
+			np = DefaultIRPoints
+		}
 		top := res.LOFreqTHz[len(res.LOFreqTHz)-1] * DefaultIRSpan
-		freqs = make([]float64, DefaultIRPoints)
+		freqs = make([]float64, np)
 		for i := range freqs {
-			freqs[i] = top * float64(i) / float64(DefaultIRPoints-1)
+			freqs[i] = top * float64(i) / float64(np-1)
 		}
 	}
 	if err := res.sample(ctx, m, freqs); err != nil {
@@ -150,6 +160,9 @@ func checkIROptions(m *physics.Model, opt IROptions) ([3]float64, error) {
 			vs.Add(fmt.Sprintf("frequencies[%d]", i), "must be a finite frequency ≥ 0, got %v", f)
 		}
 	}
+	if opt.Points < 0 || opt.Points == 1 {
+		vs.Add("points", "must be 0 (the default, %d) or at least 2, got %d", DefaultIRPoints, opt.Points)
+	}
 	if n := len(opt.DampingTHz); n > 1 && n != m.ModeCount() {
 		vs.Add("damping", "must have one value for every mode or one per mode at Γ (%d), got %d", m.ModeCount(), n)
 	}
@@ -166,9 +179,10 @@ func checkIROptions(m *physics.Model, opt IROptions) ([3]float64, error) {
 
 // gammaModes diagonalises the analytic D(Γ) — real symmetric: its
 // imaginary parts, rounding of the reciprocal sum, are dropped — and
-// returns the modes with their charges and strengths. The 3 modes of
-// smallest |λ| are the acoustic ones.
-func gammaModes(ctx context.Context, m *physics.Model) ([]IRMode, error) {
+// returns the modes with their charges and strengths (degenerate groups
+// oriented by the unit direction u). The 3 modes of smallest |λ| are the
+// acoustic ones.
+func gammaModes(ctx context.Context, m *physics.Model, u [3]float64) ([]IRMode, error) {
 	n := m.ModeCount()
 	d := m.DynamicalMatrix([3]float64{}, nil)
 	sym := mat.NewSymDense(n, nil)
@@ -213,7 +227,7 @@ func gammaModes(ctx context.Context, m *physics.Model) ([]IRMode, error) {
 		}
 		modes[k].FreqTHz = math.Copysign(math.Sqrt(math.Abs(lam))*physics.NuUnitTHz, lam)
 	}
-	orthogonalCharges(modes, charges)
+	orthogonalCharges(modes, charges, u)
 	return modes, nil
 }
 
@@ -242,51 +256,116 @@ func acousticIndices(vals []float64, p int) []int {
 const degenerateRelTHz = 1e-7
 
 // orthogonalCharges sets each mode's charge and strength from the 3×n
-// charge matrix, rotating each group of degenerate modes (within
-// degenerateRelTHz) by the right singular vectors of its 3×g block, so
-// that the group's charges are orthogonal (U Σ): the group's total
-// strength Σ Z̃Z̃ᵀ does not change. The sign of each charge is fixed by
-// its largest component, positive.
-func orthogonalCharges(modes []IRMode, charges *mat.Dense) {
+// charge matrix C, rotating each group of degenerate modes (within
+// degenerateRelTHz) to the orthonormal basis v of its g modes that
+// Gram–Schmidt makes of Cᵀf₁, Cᵀf₂, Cᵀf₃ (f the frame of the direction u
+// and the Cartesian axes after it), then of the unit vectors (the modes
+// without charge): the charges C v are then orthogonal, the first along
+// f₁ as far as the group allows. The charged modes are stored in reverse
+// (the one along u last) and the group's total strength Σ Z̃Z̃ᵀ is
+// unchanged. The sign of each charge is fixed by its largest component.
+func orthogonalCharges(modes []IRMode, charges *mat.Dense, u [3]float64) {
 	n := len(modes)
 	top := 0.0
 	for _, md := range modes {
 		top = math.Max(top, math.Abs(md.FreqTHz))
 	}
+	frame := gramSchmidt([][]float64{u[:], {1, 0, 0}, {0, 1, 0}, {0, 0, 1}}, 3, 1e-8)
 	for lo := 0; lo < n; {
 		hi := lo + 1
 		for hi < n && math.Abs(modes[hi].FreqTHz-modes[lo].FreqTHz) <= degenerateRelTHz*math.Max(1, top) {
 			hi++
 		}
-		block := mat.DenseCopyOf(charges.Slice(0, 3, lo, hi))
-		if hi-lo > 1 {
-			var svd mat.SVD
-			if svd.Factorize(block, mat.SVDFull) {
-				var v mat.Dense
-				svd.VTo(&v)
-				block.Mul(mat.DenseCopyOf(charges.Slice(0, 3, lo, hi)), &v)
+		g := hi - lo
+		c := charges.Slice(0, 3, lo, hi)
+		var seq [][]float64
+		for _, f := range frame {
+			v := make([]float64, g)
+			for k := 0; k < g; k++ {
+				v[k] = f[0]*c.At(0, k) + f[1]*c.At(1, k) + f[2]*c.At(2, k)
 			}
+			seq = append(seq, v)
 		}
-		for k := lo; k < hi; k++ {
+		charged := len(gramSchmidt(seq, g, 1e-8))
+		for k := 0; k < g; k++ {
+			e := make([]float64, g)
+			e[k] = 1
+			seq = append(seq, e)
+		}
+		basis := gramSchmidt(seq, g, 1e-8)
+		for i, j := 0, charged-1; i < j; i, j = i+1, j-1 {
+			basis[i], basis[j] = basis[j], basis[i]
+		}
+		for k, v := range basis {
 			var z [3]float64
-			big := 0
 			for al := 0; al < 3; al++ {
-				z[al] = block.At(al, k-lo)
-				if math.Abs(z[al]) > math.Abs(z[big]) {
-					big = al
+				for x := 0; x < g; x++ {
+					z[al] += c.At(al, x) * v[x]
 				}
 			}
-			if z[big] < 0 {
-				z = [3]float64{-z[0], -z[1], -z[2]}
-			}
-			modes[k].Charge = z
-			for al := 0; al < 3; al++ {
-				for be := 0; be < 3; be++ {
-					modes[k].Strength[3*al+be] = z[al] * z[be]
-				}
-			}
+			setCharge(&modes[lo+k], z)
 		}
 		lo = hi
+	}
+}
+
+// gramSchmidt returns the orthonormal vectors (of length dim) that
+// modified Gram–Schmidt makes of seq in order, dropping each whose part
+// orthogonal to those before is below tol of its length (or zero), at
+// most dim of them.
+func gramSchmidt(seq [][]float64, dim int, tol float64) [][]float64 {
+	var out [][]float64
+	for _, s := range seq {
+		if len(out) == dim {
+			break
+		}
+		v := append([]float64(nil), s...)
+		n0 := norm(v)
+		for _, b := range out {
+			d := dot(v, b)
+			for k := range v {
+				v[k] -= d * b[k]
+			}
+		}
+		n := norm(v)
+		if n == 0 || n <= tol*n0 {
+			continue
+		}
+		for k := range v {
+			v[k] /= n
+		}
+		out = append(out, v)
+	}
+	return out
+}
+
+func dot(a, b []float64) float64 {
+	s := 0.0
+	for k := range a {
+		s += a[k] * b[k]
+	}
+	return s
+}
+
+func norm(a []float64) float64 { return math.Sqrt(dot(a, a)) }
+
+// setCharge stores a mode's charge, its sign fixed by the largest
+// component, and its strength.
+func setCharge(md *IRMode, z [3]float64) {
+	big := 0
+	for al := 1; al < 3; al++ {
+		if math.Abs(z[al]) > math.Abs(z[big]) {
+			big = al
+		}
+	}
+	if z[big] < 0 {
+		z = [3]float64{-z[0], -z[1], -z[2]}
+	}
+	md.Charge = z
+	for al := 0; al < 3; al++ {
+		for be := 0; be < 3; be++ {
+			md.Strength[3*al+be] = z[al] * z[be]
+		}
 	}
 }
 

@@ -55,6 +55,7 @@ var commands = []struct {
 	{"path", "dispersion along a path of high-symmetry points; --plot adds a DOS panel", cmdPath},
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
+	{"infrared", "infrared response of a polar model: Γ modes, mode charges, ε(ω), ε₀ and reflectivity", cmdInfrared},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
@@ -72,7 +73,7 @@ common flags:
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, infrared)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -99,7 +100,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, infrared, shape, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

@@ -523,9 +523,17 @@ func (x *QPoint) GetQ3() float64 {
 type QPointList struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// The q-points, fractional reciprocal coordinates.
-	Points        []*QPoint `protobuf:"bytes,1,rep,name=points,proto3" json:"points,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	Points []*QPoint `protobuf:"bytes,1,rep,name=points,proto3" json:"points,omitempty"`
+	// For a polar model (Born charges): the direction from which each point
+	// that is Γ (a reciprocal lattice vector) is approached, a fractional
+	// reciprocal vector of any length — the dipole–dipole term is not
+	// analytic at Γ, and its limit there (LO–TO splitting) depends on the
+	// direction. Empty, or one per point: a point that is not Γ takes a zero
+	// direction, and a zero direction at Γ takes the analytic part only (no
+	// splitting), as every grid does. Ignored for other models.
+	GammaDirections []*QPoint `protobuf:"bytes,2,rep,name=gamma_directions,json=gammaDirections,proto3" json:"gamma_directions,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
 }
 
 func (x *QPointList) Reset() {
@@ -561,6 +569,13 @@ func (*QPointList) Descriptor() ([]byte, []int) {
 func (x *QPointList) GetPoints() []*QPoint {
 	if x != nil {
 		return x.Points
+	}
+	return nil
+}
+
+func (x *QPointList) GetGammaDirections() []*QPoint {
+	if x != nil {
+		return x.GammaDirections
 	}
 	return nil
 }
@@ -885,8 +900,15 @@ type Modes struct {
 	Eigenvectors []float64 `protobuf:"fixed64,5,rep,packed,name=eigenvectors,proto3" json:"eigenvectors,omitempty"`
 	// Group velocities, km/s, mode-major, 3 Cartesian components per mode.
 	GroupVelocitiesKmS []float64 `protobuf:"fixed64,6,rep,packed,name=group_velocities_km_s,json=groupVelocitiesKmS,proto3" json:"group_velocities_km_s,omitempty"`
-	unknownFields      protoimpl.UnknownFields
-	sizeCache          protoimpl.SizeCache
+	// At Γ of a polar model: the direction of approach the frequencies were
+	// taken along (QPointList.gamma_directions, fractional reciprocal).
+	GammaDirection *QPoint `protobuf:"bytes,7,opt,name=gamma_direction,json=gammaDirection,proto3" json:"gamma_direction,omitempty"`
+	// True at Γ of a polar model taken without a direction (every grid's Γ,
+	// a list point without one): the analytic part of the dipole–dipole term
+	// only, so LO and TO modes are not split there.
+	GammaAnalytic bool `protobuf:"varint,8,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *Modes) Reset() {
@@ -959,6 +981,20 @@ func (x *Modes) GetGroupVelocitiesKmS() []float64 {
 		return x.GroupVelocitiesKmS
 	}
 	return nil
+}
+
+func (x *Modes) GetGammaDirection() *QPoint {
+	if x != nil {
+		return x.GammaDirection
+	}
+	return nil
+}
+
+func (x *Modes) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // ComputeModesResponse is one chunk of the modes stream.
@@ -1255,9 +1291,15 @@ type DispersionSample struct {
 	// branch. Within a group of degenerate modes (frequencies within 1e-6 THz)
 	// the individual eigenvectors are arbitrary, so each mode of the group gets
 	// the group's mean shares. Empty unless asked for.
-	SiteWeights   []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	SiteWeights []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
+	// At Γ of a polar model: the direction of the segment along which the
+	// path reaches or leaves Γ (fractional reciprocal, largest |component|
+	// 1), the direction of the non-analytic limit taken. A corner on Γ
+	// between segments of different directions appears twice, at one
+	// distance, once with each (LO–TO splitting seen from both sides).
+	GammaDirection *QPoint `protobuf:"bytes,6,opt,name=gamma_direction,json=gammaDirection,proto3" json:"gamma_direction,omitempty"`
+	unknownFields  protoimpl.UnknownFields
+	sizeCache      protoimpl.SizeCache
 }
 
 func (x *DispersionSample) Reset() {
@@ -1321,6 +1363,13 @@ func (x *DispersionSample) GetFrequencies() []float64 {
 func (x *DispersionSample) GetSiteWeights() []float64 {
 	if x != nil {
 		return x.SiteWeights
+	}
+	return nil
+}
+
+func (x *DispersionSample) GetGammaDirection() *QPoint {
+	if x != nil {
+		return x.GammaDirection
 	}
 	return nil
 }
@@ -1614,7 +1663,12 @@ type ComputeDosResponse struct {
 	// States per cell the DOS is normalised to (sites × p).
 	StatesPerCell float64 `protobuf:"fixed64,10,opt,name=states_per_cell,json=statesPerCell,proto3" json:"states_per_cell,omitempty"`
 	// Gaussian width used, response unit (0 for other methods).
-	Width         float64 `protobuf:"fixed64,11,opt,name=width,proto3" json:"width,omitempty"`
+	Width float64 `protobuf:"fixed64,11,opt,name=width,proto3" json:"width,omitempty"`
+	// True for a polar model: the grid's Γ point takes the analytic part of
+	// the dipole–dipole term only (its LO–TO splitting depends on the
+	// direction of approach; the point's weight vanishes as the grid grows,
+	// so the DOS converges as for any model).
+	GammaAnalytic bool `protobuf:"varint,12,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -1724,6 +1778,13 @@ func (x *ComputeDosResponse) GetWidth() float64 {
 		return x.Width
 	}
 	return 0
+}
+
+func (x *ComputeDosResponse) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // TemperatureRange is start, start+step, … up to and including stop.
@@ -2262,7 +2323,10 @@ type ComputeThermalResponse struct {
 	AtomsPerCell uint32 `protobuf:"varint,10,opt,name=atoms_per_cell,json=atomsPerCell,proto3" json:"atoms_per_cell,omitempty"`
 	// Mass of one cell, the sum of its site masses, amu: per kilogram = per
 	// cell / (this × m_u), m_u = 1.66053906660e-27 kg (CODATA 2018).
-	CellMassAmu   float64 `protobuf:"fixed64,11,opt,name=cell_mass_amu,json=cellMassAmu,proto3" json:"cell_mass_amu,omitempty"`
+	CellMassAmu float64 `protobuf:"fixed64,11,opt,name=cell_mass_amu,json=cellMassAmu,proto3" json:"cell_mass_amu,omitempty"`
+	// True for a polar model: the grid's Γ point takes the analytic part of
+	// the dipole–dipole term only (as ComputeDosResponse.gamma_analytic).
+	GammaAnalytic bool `protobuf:"varint,12,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2372,6 +2436,13 @@ func (x *ComputeThermalResponse) GetCellMassAmu() float64 {
 		return x.CellMassAmu
 	}
 	return 0
+}
+
+func (x *ComputeThermalResponse) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // CheckModelRequest asks for a model summary.
@@ -3188,6 +3259,455 @@ func (x *RequestCost) GetAdmitted() bool {
 	return false
 }
 
+// ComputeInfraredRequest asks for the infrared response of a polar model.
+//
+// ε(ω) = ε∞ + (4π/Ω) Σ_m S_m / (ω_m² − ω² − iγ_m ω) in Gaussian form (Gonze
+// & Lee, Phys. Rev. B 55, 10355 (1997)); in SI the factor 4π/Ω is
+// e²/(ε₀ Ω m_u) for S in e²/amu (physics/polar/doc.go derives it). The
+// reflectivity is R = |(n − 1)/(n + 1)|², n = √ε along the direction, at
+// normal incidence from vacuum.
+type ComputeInfraredRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The model; it must have Born charges and ε∞.
+	Model *ModelSource `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Cartesian direction of the light's electric field in the crystal (any
+	// length, not zero; Vec3's Å do not matter here): ε(ω) and R(ω) are
+	// ê·ε(ω)·ê, exact for a principal axis of ε (any axis of a cubic
+	// crystal), and the LO frequencies are those of Γ approached along it.
+	Direction *Vec3 `protobuf:"bytes,2,opt,name=direction,proto3" json:"direction,omitempty"`
+	// Unit of every frequency and damping in the request and the response.
+	Unit FrequencyUnit `protobuf:"varint,3,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	// Lower end of the sampled window (≥ 0); with max == min == 0 the
+	// window is 0 to 1.25 × the highest LO frequency.
+	Min float64 `protobuf:"fixed64,4,opt,name=min,proto3" json:"min,omitempty"`
+	// Upper end of the sampled window.
+	Max float64 `protobuf:"fixed64,5,opt,name=max,proto3" json:"max,omitempty"`
+	// Samples in the window, ends included (0: 1001; at least 2).
+	Points uint32 `protobuf:"varint,6,opt,name=points,proto3" json:"points,omitempty"`
+	// Damping γ of every mode, as an ordinary frequency in the unit (γ in
+	// the formula is 2π times it in rad/s; for weak damping it is about the
+	// full width at half maximum of the mode's peak in ε″, in the unit). 0
+	// with no mode_damping: 1 % of the highest frequency at Γ.
+	Damping float64 `protobuf:"fixed64,7,opt,name=damping,proto3" json:"damping,omitempty"`
+	// Damping per mode at Γ, in the order of the response's modes
+	// (ascending frequency), one per mode (sites × 3); overrides damping.
+	ModeDamping   []float64 `protobuf:"fixed64,8,rep,packed,name=mode_damping,json=modeDamping,proto3" json:"mode_damping,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeInfraredRequest) Reset() {
+	*x = ComputeInfraredRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeInfraredRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeInfraredRequest) ProtoMessage() {}
+
+func (x *ComputeInfraredRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeInfraredRequest.ProtoReflect.Descriptor instead.
+func (*ComputeInfraredRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{30}
+}
+
+func (x *ComputeInfraredRequest) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+func (x *ComputeInfraredRequest) GetDirection() *Vec3 {
+	if x != nil {
+		return x.Direction
+	}
+	return nil
+}
+
+func (x *ComputeInfraredRequest) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+func (x *ComputeInfraredRequest) GetMin() float64 {
+	if x != nil {
+		return x.Min
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetMax() float64 {
+	if x != nil {
+		return x.Max
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetPoints() uint32 {
+	if x != nil {
+		return x.Points
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetDamping() float64 {
+	if x != nil {
+		return x.Damping
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetModeDamping() []float64 {
+	if x != nil {
+		return x.ModeDamping
+	}
+	return nil
+}
+
+// InfraredMode is one mode at Γ in the analytic limit (transverse optical
+// and acoustic modes).
+type InfraredMode struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Frequency, response unit (negative: imaginary).
+	Frequency float64 `protobuf:"fixed64,1,opt,name=frequency,proto3" json:"frequency,omitempty"`
+	// One of the 3 acoustic modes (left out of ε).
+	Acoustic bool `protobuf:"varint,2,opt,name=acoustic,proto3" json:"acoustic,omitempty"`
+	// Infrared active: |Z̃|² above ComputeInfraredResponse.active_threshold
+	// of the oscillator-strength sum rule; the others are silent.
+	Active bool `protobuf:"varint,3,opt,name=active,proto3" json:"active,omitempty"`
+	// Mode effective charge Z̃_α = Σ_{s,β} Z*_{s,αβ} e_{sβ}/√m_s (Gonze & Lee
+	// 1997), 3 Cartesian components, e/√amu. Degenerate modes are rotated
+	// so that their charges are orthogonal.
+	ModeCharge []float64 `protobuf:"fixed64,4,rep,packed,name=mode_charge,json=modeCharge,proto3" json:"mode_charge,omitempty"`
+	// Oscillator strength S_αβ = Z̃_α Z̃_β, 9 numbers row-major, e²/amu
+	// (1 e²/amu = 1.5459e-11 C²/kg).
+	OscillatorStrength []float64 `protobuf:"fixed64,5,rep,packed,name=oscillator_strength,json=oscillatorStrength,proto3" json:"oscillator_strength,omitempty"`
+	// ê·S·ê along the request's direction, e²/amu.
+	StrengthAlong float64 `protobuf:"fixed64,6,opt,name=strength_along,json=strengthAlong,proto3" json:"strength_along,omitempty"`
+	// Damping used, response unit.
+	Damping       float64 `protobuf:"fixed64,7,opt,name=damping,proto3" json:"damping,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *InfraredMode) Reset() {
+	*x = InfraredMode{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *InfraredMode) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*InfraredMode) ProtoMessage() {}
+
+func (x *InfraredMode) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use InfraredMode.ProtoReflect.Descriptor instead.
+func (*InfraredMode) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{31}
+}
+
+func (x *InfraredMode) GetFrequency() float64 {
+	if x != nil {
+		return x.Frequency
+	}
+	return 0
+}
+
+func (x *InfraredMode) GetAcoustic() bool {
+	if x != nil {
+		return x.Acoustic
+	}
+	return false
+}
+
+func (x *InfraredMode) GetActive() bool {
+	if x != nil {
+		return x.Active
+	}
+	return false
+}
+
+func (x *InfraredMode) GetModeCharge() []float64 {
+	if x != nil {
+		return x.ModeCharge
+	}
+	return nil
+}
+
+func (x *InfraredMode) GetOscillatorStrength() []float64 {
+	if x != nil {
+		return x.OscillatorStrength
+	}
+	return nil
+}
+
+func (x *InfraredMode) GetStrengthAlong() float64 {
+	if x != nil {
+		return x.StrengthAlong
+	}
+	return 0
+}
+
+func (x *InfraredMode) GetDamping() float64 {
+	if x != nil {
+		return x.Damping
+	}
+	return 0
+}
+
+// InfraredSample is the response at one frequency along the direction.
+type InfraredSample struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Frequency, response unit.
+	Frequency float64 `protobuf:"fixed64,1,opt,name=frequency,proto3" json:"frequency,omitempty"`
+	// ε′ = Re ê·ε(ω)·ê, dimensionless.
+	EpsilonReal float64 `protobuf:"fixed64,2,opt,name=epsilon_real,json=epsilonReal,proto3" json:"epsilon_real,omitempty"`
+	// ε″ = Im ê·ε(ω)·ê, dimensionless (≥ 0: absorption).
+	EpsilonImag float64 `protobuf:"fixed64,3,opt,name=epsilon_imag,json=epsilonImag,proto3" json:"epsilon_imag,omitempty"`
+	// Normal-incidence reflectivity, in [0, 1].
+	Reflectivity  float64 `protobuf:"fixed64,4,opt,name=reflectivity,proto3" json:"reflectivity,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *InfraredSample) Reset() {
+	*x = InfraredSample{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *InfraredSample) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*InfraredSample) ProtoMessage() {}
+
+func (x *InfraredSample) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use InfraredSample.ProtoReflect.Descriptor instead.
+func (*InfraredSample) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{32}
+}
+
+func (x *InfraredSample) GetFrequency() float64 {
+	if x != nil {
+		return x.Frequency
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetEpsilonReal() float64 {
+	if x != nil {
+		return x.EpsilonReal
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetEpsilonImag() float64 {
+	if x != nil {
+		return x.EpsilonImag
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetReflectivity() float64 {
+	if x != nil {
+		return x.Reflectivity
+	}
+	return 0
+}
+
+// ComputeInfraredResponse holds the infrared response.
+type ComputeInfraredResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the model that produced this result.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters of the request that produced this result.
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Unit of every frequency and damping.
+	Unit FrequencyUnit `protobuf:"varint,3,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	// The unit vector of the direction used.
+	Direction *Vec3 `protobuf:"bytes,4,opt,name=direction,proto3" json:"direction,omitempty"`
+	// The modes at Γ (analytic limit), ascending.
+	Modes []*InfraredMode `protobuf:"bytes,5,rep,name=modes,proto3" json:"modes,omitempty"`
+	// Every mode's frequency at Γ approached along the direction (the LO
+	// modes among them), ascending, response unit.
+	LoFrequencies []float64 `protobuf:"fixed64,6,rep,packed,name=lo_frequencies,json=loFrequencies,proto3" json:"lo_frequencies,omitempty"`
+	// ε∞, 9 numbers row-major.
+	EpsilonInf []float64 `protobuf:"fixed64,7,rep,packed,name=epsilon_inf,json=epsilonInf,proto3" json:"epsilon_inf,omitempty"`
+	// Static ε₀ = ε∞ + (4π/Ω) Σ_m S_m/ω_m² over the active modes, 9 numbers.
+	EpsilonStatic []float64 `protobuf:"fixed64,8,rep,packed,name=epsilon_static,json=epsilonStatic,proto3" json:"epsilon_static,omitempty"`
+	// ê·ε∞·ê.
+	EpsilonInfAlong float64 `protobuf:"fixed64,9,opt,name=epsilon_inf_along,json=epsilonInfAlong,proto3" json:"epsilon_inf_along,omitempty"`
+	// ê·ε₀·ê.
+	EpsilonStaticAlong float64 `protobuf:"fixed64,10,opt,name=epsilon_static_along,json=epsilonStaticAlong,proto3" json:"epsilon_static_along,omitempty"`
+	// The samples, ascending in frequency.
+	Samples []*InfraredSample `protobuf:"bytes,11,rep,name=samples,proto3" json:"samples,omitempty"`
+	// The relative threshold of infrared activity: a mode is active when
+	// |Z̃|² > threshold × Σ_s tr(Z*_sᵀ Z*_s)/m_s (the sum of |Z̃|² over all
+	// modes).
+	ActiveThreshold float64 `protobuf:"fixed64,12,opt,name=active_threshold,json=activeThreshold,proto3" json:"active_threshold,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
+}
+
+func (x *ComputeInfraredResponse) Reset() {
+	*x = ComputeInfraredResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeInfraredResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeInfraredResponse) ProtoMessage() {}
+
+func (x *ComputeInfraredResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeInfraredResponse.ProtoReflect.Descriptor instead.
+func (*ComputeInfraredResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{33}
+}
+
+func (x *ComputeInfraredResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeInfraredResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeInfraredResponse) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+func (x *ComputeInfraredResponse) GetDirection() *Vec3 {
+	if x != nil {
+		return x.Direction
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetModes() []*InfraredMode {
+	if x != nil {
+		return x.Modes
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetLoFrequencies() []float64 {
+	if x != nil {
+		return x.LoFrequencies
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonInf() []float64 {
+	if x != nil {
+		return x.EpsilonInf
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonStatic() []float64 {
+	if x != nil {
+		return x.EpsilonStatic
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonInfAlong() float64 {
+	if x != nil {
+		return x.EpsilonInfAlong
+	}
+	return 0
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonStaticAlong() float64 {
+	if x != nil {
+		return x.EpsilonStaticAlong
+	}
+	return 0
+}
+
+func (x *ComputeInfraredResponse) GetSamples() []*InfraredSample {
+	if x != nil {
+		return x.Samples
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetActiveThreshold() float64 {
+	if x != nil {
+		return x.ActiveThreshold
+	}
+	return 0
+}
+
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
@@ -3207,10 +3727,11 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x06QPoint\x12\x0e\n" +
 	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
 	"\x02q2\x18\x02 \x01(\x01R\x02q2\x12\x0e\n" +
-	"\x02q3\x18\x03 \x01(\x01R\x02q3\"9\n" +
+	"\x02q3\x18\x03 \x01(\x01R\x02q3\"y\n" +
 	"\n" +
 	"QPointList\x12+\n" +
-	"\x06points\x18\x01 \x03(\v2\x13.modegrid.v1.QPointR\x06points\"A\n" +
+	"\x06points\x18\x01 \x03(\v2\x13.modegrid.v1.QPointR\x06points\x12>\n" +
+	"\x10gamma_directions\x18\x02 \x03(\v2\x13.modegrid.v1.QPointR\x0fgammaDirections\"A\n" +
 	"\x11MonkhorstPackGrid\x12\x12\n" +
 	"\x04mesh\x18\x01 \x03(\rR\x04mesh\x12\x18\n" +
 	"\ashifted\x18\x02 \x01(\bR\ashifted\"%\n" +
@@ -3228,14 +3749,16 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\feigenvectors\x18\x04 \x01(\bR\feigenvectors\x12)\n" +
 	"\x10group_velocities\x18\x05 \x01(\bR\x0fgroupVelocities\x12\x1d\n" +
 	"\n" +
-	"chunk_size\x18\x06 \x01(\rR\tchunkSize\"\xd9\x01\n" +
+	"chunk_size\x18\x06 \x01(\rR\tchunkSize\"\xbe\x02\n" +
 	"\x05Modes\x12!\n" +
 	"\x01q\x18\x01 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x16\n" +
 	"\x06weight\x18\x02 \x01(\x01R\x06weight\x12 \n" +
 	"\vfrequencies\x18\x03 \x03(\x01R\vfrequencies\x12\x1c\n" +
 	"\timaginary\x18\x04 \x01(\bR\timaginary\x12\"\n" +
 	"\feigenvectors\x18\x05 \x03(\x01R\feigenvectors\x121\n" +
-	"\x15group_velocities_km_s\x18\x06 \x03(\x01R\x12groupVelocitiesKmS\"\xdf\x01\n" +
+	"\x15group_velocities_km_s\x18\x06 \x03(\x01R\x12groupVelocitiesKmS\x12<\n" +
+	"\x0fgamma_direction\x18\a \x01(\v2\x13.modegrid.v1.QPointR\x0egammaDirection\x12%\n" +
+	"\x0egamma_analytic\x18\b \x01(\bR\rgammaAnalytic\"\xdf\x01\n" +
 	"\x14ComputeModesResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -3258,13 +3781,14 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12-\n" +
 	"\x10connect_branches\x18\x06 \x01(\bB\x02\x18\x01R\x0fconnectBranches\x12!\n" +
 	"\ffollow_modes\x18\a \x01(\bR\vfollowModes\x12!\n" +
-	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xb6\x01\n" +
+	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xf4\x01\n" +
 	"\x10DispersionSample\x12$\n" +
 	"\x0edistance_inv_a\x18\x01 \x01(\x01R\fdistanceInvA\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x14\n" +
 	"\x05label\x18\x03 \x01(\tR\x05label\x12 \n" +
 	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\x12!\n" +
-	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\"\xc3\x01\n" +
+	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\x12<\n" +
+	"\x0fgamma_direction\x18\x06 \x01(\v2\x13.modegrid.v1.QPointR\x0egammaDirection\"\xc3\x01\n" +
 	"\x19ComputeDispersionResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -3288,7 +3812,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\fProjectedDos\x12\x12\n" +
 	"\x04site\x18\x01 \x01(\x05R\x04site\x12\x14\n" +
 	"\x05label\x18\x02 \x01(\tR\x05label\x12\x10\n" +
-	"\x03dos\x18\x03 \x03(\x01R\x03dos\"\xa2\x03\n" +
+	"\x03dos\x18\x03 \x03(\x01R\x03dos\"\xc9\x03\n" +
 	"\x12ComputeDosResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -3306,7 +3830,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x0fimaginary_modes\x18\t \x01(\rR\x0eimaginaryModes\x12&\n" +
 	"\x0fstates_per_cell\x18\n" +
 	" \x01(\x01R\rstatesPerCell\x12\x14\n" +
-	"\x05width\x18\v \x01(\x01R\x05width\"Y\n" +
+	"\x05width\x18\v \x01(\x01R\x05width\x12%\n" +
+	"\x0egamma_analytic\x18\f \x01(\bR\rgammaAnalytic\"Y\n" +
 	"\x10TemperatureRange\x12\x17\n" +
 	"\astart_k\x18\x01 \x01(\x01R\x06startK\x12\x15\n" +
 	"\x06stop_k\x18\x02 \x01(\x01R\x05stopK\x12\x15\n" +
@@ -3349,7 +3874,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x19internal_energy_kj_per_kg\x18\x12 \x01(\x01R\x15internalEnergyKjPerKg\x120\n" +
 	"\x15free_energy_kj_per_kg\x18\x13 \x01(\x01R\x11freeEnergyKjPerKg\x12*\n" +
 	"\x12entropy_j_per_kg_k\x18\x14 \x01(\x01R\x0eentropyJPerKgK\x125\n" +
-	"\x18heat_capacity_j_per_kg_k\x18\x15 \x01(\x01R\x13heatCapacityJPerKgK\"\xc4\x04\n" +
+	"\x18heat_capacity_j_per_kg_k\x18\x15 \x01(\x01R\x13heatCapacityJPerKgK\"\xeb\x04\n" +
 	"\x16ComputeThermalResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -3365,7 +3890,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x1bzero_point_energy_kj_per_kg\x18\t \x01(\x01R\x16zeroPointEnergyKjPerKg\x12$\n" +
 	"\x0eatoms_per_cell\x18\n" +
 	" \x01(\rR\fatomsPerCell\x12\"\n" +
-	"\rcell_mass_amu\x18\v \x01(\x01R\vcellMassAmu\"C\n" +
+	"\rcell_mass_amu\x18\v \x01(\x01R\vcellMassAmu\x12%\n" +
+	"\x0egamma_analytic\x18\f \x01(\bR\rgammaAnalytic\"C\n" +
 	"\x11CheckModelRequest\x12.\n" +
 	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\"H\n" +
 	"\x0eFieldViolation\x12\x14\n" +
@@ -3440,7 +3966,48 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
 	"peak_bytes\x18\x02 \x01(\x04R\tpeakBytes\x12\x18\n" +
 	"\aseconds\x18\x03 \x01(\x01R\aseconds\x12\x1a\n" +
-	"\badmitted\x18\x04 \x01(\bR\badmitted*\x95\x01\n" +
+	"\badmitted\x18\x04 \x01(\bR\badmitted\"\xa2\x02\n" +
+	"\x16ComputeInfraredRequest\x12.\n" +
+	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12/\n" +
+	"\tdirection\x18\x02 \x01(\v2\x11.modegrid.v1.Vec3R\tdirection\x12.\n" +
+	"\x04unit\x18\x03 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12\x10\n" +
+	"\x03min\x18\x04 \x01(\x01R\x03min\x12\x10\n" +
+	"\x03max\x18\x05 \x01(\x01R\x03max\x12\x16\n" +
+	"\x06points\x18\x06 \x01(\rR\x06points\x12\x18\n" +
+	"\adamping\x18\a \x01(\x01R\adamping\x12!\n" +
+	"\fmode_damping\x18\b \x03(\x01R\vmodeDamping\"\xf3\x01\n" +
+	"\fInfraredMode\x12\x1c\n" +
+	"\tfrequency\x18\x01 \x01(\x01R\tfrequency\x12\x1a\n" +
+	"\bacoustic\x18\x02 \x01(\bR\bacoustic\x12\x16\n" +
+	"\x06active\x18\x03 \x01(\bR\x06active\x12\x1f\n" +
+	"\vmode_charge\x18\x04 \x03(\x01R\n" +
+	"modeCharge\x12/\n" +
+	"\x13oscillator_strength\x18\x05 \x03(\x01R\x12oscillatorStrength\x12%\n" +
+	"\x0estrength_along\x18\x06 \x01(\x01R\rstrengthAlong\x12\x18\n" +
+	"\adamping\x18\a \x01(\x01R\adamping\"\x98\x01\n" +
+	"\x0eInfraredSample\x12\x1c\n" +
+	"\tfrequency\x18\x01 \x01(\x01R\tfrequency\x12!\n" +
+	"\fepsilon_real\x18\x02 \x01(\x01R\vepsilonReal\x12!\n" +
+	"\fepsilon_imag\x18\x03 \x01(\x01R\vepsilonImag\x12\"\n" +
+	"\freflectivity\x18\x04 \x01(\x01R\freflectivity\"\x99\x04\n" +
+	"\x17ComputeInfraredResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x12.\n" +
+	"\x04unit\x18\x03 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12/\n" +
+	"\tdirection\x18\x04 \x01(\v2\x11.modegrid.v1.Vec3R\tdirection\x12/\n" +
+	"\x05modes\x18\x05 \x03(\v2\x19.modegrid.v1.InfraredModeR\x05modes\x12%\n" +
+	"\x0elo_frequencies\x18\x06 \x03(\x01R\rloFrequencies\x12\x1f\n" +
+	"\vepsilon_inf\x18\a \x03(\x01R\n" +
+	"epsilonInf\x12%\n" +
+	"\x0eepsilon_static\x18\b \x03(\x01R\repsilonStatic\x12*\n" +
+	"\x11epsilon_inf_along\x18\t \x01(\x01R\x0fepsilonInfAlong\x120\n" +
+	"\x14epsilon_static_along\x18\n" +
+	" \x01(\x01R\x12epsilonStaticAlong\x125\n" +
+	"\asamples\x18\v \x03(\v2\x1b.modegrid.v1.InfraredSampleR\asamples\x12)\n" +
+	"\x10active_threshold\x18\f \x01(\x01R\x0factiveThreshold*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
@@ -3466,7 +4033,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"&DEBYE_TEMPERATURE_STATUS_ELASTIC_LIMIT\x10\x02\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_GRID_TOO_COARSE\x10\x03\x12,\n" +
 	"(DEBYE_TEMPERATURE_STATUS_ILL_CONDITIONED\x10\x04\x12&\n" +
-	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\xc5\x03\n" +
+	"\"DEBYE_TEMPERATURE_STATUS_UNDEFINED\x10\x052\xa3\x04\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -3474,7 +4041,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x11ComputeDispersion\x12%.modegrid.v1.ComputeDispersionRequest\x1a&.modegrid.v1.ComputeDispersionResponse\x12M\n" +
 	"\n" +
 	"ComputeDos\x12\x1e.modegrid.v1.ComputeDosRequest\x1a\x1f.modegrid.v1.ComputeDosResponse\x12Y\n" +
-	"\x0eComputeThermal\x12\".modegrid.v1.ComputeThermalRequest\x1a#.modegrid.v1.ComputeThermalResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\x0eComputeThermal\x12\".modegrid.v1.ComputeThermalRequest\x1a#.modegrid.v1.ComputeThermalResponse\x12\\\n" +
+	"\x0fComputeInfrared\x12#.modegrid.v1.ComputeInfraredRequest\x1a$.modegrid.v1.ComputeInfraredResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -3489,7 +4057,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 5)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 30)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 34)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(FrequencyUnit)(0),                // 0: modegrid.v1.FrequencyUnit
 	(DosMethod)(0),                    // 1: modegrid.v1.DosMethod
@@ -3526,67 +4094,84 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*SupercellFold)(nil),             // 32: modegrid.v1.SupercellFold
 	(*SymmetryAtTolerance)(nil),       // 33: modegrid.v1.SymmetryAtTolerance
 	(*RequestCost)(nil),               // 34: modegrid.v1.RequestCost
-	(*Crystal)(nil),                   // 35: modegrid.v1.Crystal
+	(*ComputeInfraredRequest)(nil),    // 35: modegrid.v1.ComputeInfraredRequest
+	(*InfraredMode)(nil),              // 36: modegrid.v1.InfraredMode
+	(*InfraredSample)(nil),            // 37: modegrid.v1.InfraredSample
+	(*ComputeInfraredResponse)(nil),   // 38: modegrid.v1.ComputeInfraredResponse
+	(*Crystal)(nil),                   // 39: modegrid.v1.Crystal
+	(*Vec3)(nil),                      // 40: modegrid.v1.Vec3
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	35, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	39, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	6,  // 1: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	7,  // 2: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	8,  // 3: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	9,  // 4: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	5,  // 5: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 6: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	0,  // 7: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	6,  // 8: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
-	0,  // 9: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	12, // 10: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	6,  // 11: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	5,  // 12: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	14, // 13: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
-	0,  // 14: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	6,  // 15: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
-	0,  // 16: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	16, // 17: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	5,  // 18: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 19: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	1,  // 20: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
-	0,  // 21: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	2,  // 22: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
-	0,  // 23: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	19, // 24: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	19, // 25: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	5,  // 26: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	10, // 27: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	21, // 28: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
-	3,  // 29: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	23, // 30: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
-	4,  // 31: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	24, // 32: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	5,  // 33: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	27, // 34: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	28, // 35: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	29, // 36: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	14, // 37: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	34, // 38: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	14, // 39: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	33, // 40: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	32, // 41: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	31, // 42: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
-	26, // 43: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	11, // 44: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	15, // 45: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	18, // 46: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	22, // 47: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	30, // 48: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	13, // 49: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	17, // 50: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	20, // 51: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	25, // 52: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	48, // [48:53] is the sub-list for method output_type
-	43, // [43:48] is the sub-list for method input_type
-	43, // [43:43] is the sub-list for extension type_name
-	43, // [43:43] is the sub-list for extension extendee
-	0,  // [0:43] is the sub-list for field type_name
+	6,  // 2: modegrid.v1.QPointList.gamma_directions:type_name -> modegrid.v1.QPoint
+	7,  // 3: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	8,  // 4: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	9,  // 5: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	5,  // 6: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 7: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	0,  // 8: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	6,  // 9: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	6,  // 10: modegrid.v1.Modes.gamma_direction:type_name -> modegrid.v1.QPoint
+	0,  // 11: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	12, // 12: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	6,  // 13: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	5,  // 14: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	14, // 15: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	0,  // 16: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	6,  // 17: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	6,  // 18: modegrid.v1.DispersionSample.gamma_direction:type_name -> modegrid.v1.QPoint
+	0,  // 19: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	16, // 20: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	5,  // 21: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 22: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	1,  // 23: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
+	0,  // 24: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	2,  // 25: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
+	0,  // 26: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	19, // 27: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	19, // 28: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	5,  // 29: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	10, // 30: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	21, // 31: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	3,  // 32: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
+	23, // 33: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	4,  // 34: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
+	24, // 35: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	5,  // 36: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	27, // 37: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	28, // 38: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	29, // 39: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	14, // 40: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	34, // 41: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	14, // 42: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	33, // 43: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	32, // 44: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	31, // 45: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
+	5,  // 46: modegrid.v1.ComputeInfraredRequest.model:type_name -> modegrid.v1.ModelSource
+	40, // 47: modegrid.v1.ComputeInfraredRequest.direction:type_name -> modegrid.v1.Vec3
+	0,  // 48: modegrid.v1.ComputeInfraredRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	0,  // 49: modegrid.v1.ComputeInfraredResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	40, // 50: modegrid.v1.ComputeInfraredResponse.direction:type_name -> modegrid.v1.Vec3
+	36, // 51: modegrid.v1.ComputeInfraredResponse.modes:type_name -> modegrid.v1.InfraredMode
+	37, // 52: modegrid.v1.ComputeInfraredResponse.samples:type_name -> modegrid.v1.InfraredSample
+	26, // 53: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	11, // 54: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	15, // 55: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	18, // 56: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	22, // 57: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	35, // 58: modegrid.v1.ModegridService.ComputeInfrared:input_type -> modegrid.v1.ComputeInfraredRequest
+	30, // 59: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	13, // 60: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	17, // 61: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	20, // 62: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	25, // 63: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	38, // 64: modegrid.v1.ModegridService.ComputeInfrared:output_type -> modegrid.v1.ComputeInfraredResponse
+	59, // [59:65] is the sub-list for method output_type
+	53, // [53:59] is the sub-list for method input_type
+	53, // [53:53] is the sub-list for extension type_name
+	53, // [53:53] is the sub-list for extension extendee
+	0,  // [0:53] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -3610,7 +4195,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      5,
-			NumMessages:   30,
+			NumMessages:   34,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

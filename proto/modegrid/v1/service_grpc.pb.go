@@ -24,6 +24,7 @@ const (
 	ModegridService_ComputeDispersion_FullMethodName = "/modegrid.v1.ModegridService/ComputeDispersion"
 	ModegridService_ComputeDos_FullMethodName        = "/modegrid.v1.ModegridService/ComputeDos"
 	ModegridService_ComputeThermal_FullMethodName    = "/modegrid.v1.ModegridService/ComputeThermal"
+	ModegridService_ComputeInfrared_FullMethodName   = "/modegrid.v1.ModegridService/ComputeInfrared"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -62,6 +63,13 @@ type ModegridServiceClient interface {
 	ComputeDos(ctx context.Context, in *ComputeDosRequest, opts ...grpc.CallOption) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(ctx context.Context, in *ComputeThermalRequest, opts ...grpc.CallOption) (*ComputeThermalResponse, error)
+	// ComputeInfrared gives the infrared response of a polar model (Born
+	// charges and ε∞): the modes at Γ with their mode effective charges and
+	// oscillator strengths, the dielectric function ε(ω), the static ε₀ and
+	// the normal-incidence reflectivity along a direction. A model without
+	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
+	// (ε₀ undefined) FAILED_PRECONDITION.
+	ComputeInfrared(ctx context.Context, in *ComputeInfraredRequest, opts ...grpc.CallOption) (*ComputeInfraredResponse, error)
 }
 
 type modegridServiceClient struct {
@@ -131,6 +139,16 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 	return out, nil
 }
 
+func (c *modegridServiceClient) ComputeInfrared(ctx context.Context, in *ComputeInfraredRequest, opts ...grpc.CallOption) (*ComputeInfraredResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeInfraredResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeInfrared_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -167,6 +185,13 @@ type ModegridServiceServer interface {
 	ComputeDos(context.Context, *ComputeDosRequest) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error)
+	// ComputeInfrared gives the infrared response of a polar model (Born
+	// charges and ε∞): the modes at Γ with their mode effective charges and
+	// oscillator strengths, the dielectric function ε(ω), the static ε₀ and
+	// the normal-incidence reflectivity along a direction. A model without
+	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
+	// (ε₀ undefined) FAILED_PRECONDITION.
+	ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error)
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -191,6 +216,9 @@ func (UnimplementedModegridServiceServer) ComputeDos(context.Context, *ComputeDo
 }
 func (UnimplementedModegridServiceServer) ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeThermal not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeInfrared not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -296,6 +324,24 @@ func _ModegridService_ComputeThermal_Handler(srv interface{}, ctx context.Contex
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_ComputeInfrared_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeInfraredRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeInfrared(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeInfrared_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeInfrared(ctx, req.(*ComputeInfraredRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -318,6 +364,10 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ComputeThermal",
 			Handler:    _ModegridService_ComputeThermal_Handler,
+		},
+		{
+			MethodName: "ComputeInfrared",
+			Handler:    _ModegridService_ComputeInfrared_Handler,
 		},
 	},
 	Streams: []grpc.StreamDesc{
