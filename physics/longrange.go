@@ -70,12 +70,16 @@ var ErrNoLongRangeBuilder = errors.New("physics: the crystal has Born effective 
 const (
 	// MaxBornCharge bounds |Z*_{αβ}|, e: ten times any measured charge.
 	MaxBornCharge = 100.0
-	// MaxEpsilonInf bounds the eigenvalues of ε∞ (and its elements); its
-	// smallest eigenvalue must be at least MinEpsilonInf: a relative
-	// permittivity of a transparent medium is at least 1, and below 1e-3
-	// the screened Coulomb sum loses its digits.
-	MaxEpsilonInf = 1e4
-	MinEpsilonInf = 1e-3
+	// MinEpsilonInf and MaxEpsilonInf bound the eigenvalues of ε∞ (and
+	// MaxEpsilonInf its elements). The static permittivity of a stable
+	// medium is at least 1: ε(0) − 1 = (2/π)∫₀^∞ ε″(ω)/ω dω ≥ 0 by the
+	// Kramers–Kronig relations (Landau & Lifshitz, Electrodynamics of
+	// Continuous Media, §123), and ε∞ is the electrons' static
+	// permittivity. 1000 is far above any measured ε∞ (a few tens at
+	// most, common practice) and bounds the anisotropy the Ewald sum's
+	// cut-offs must cover.
+	MinEpsilonInf = 1.0
+	MaxEpsilonInf = 1e3
 	// EpsilonSymTol is how far ε∞ may be from symmetric, relative to its
 	// largest element; its symmetric part is used.
 	EpsilonSymTol = 1e-6

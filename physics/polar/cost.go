@@ -33,10 +33,17 @@ type Sizes struct {
 // Estimate returns the sizes of the term of a crystal with polar data
 // (validated, 3D) with the default parameter: the counts NewTerm would
 // make, by the same enumeration, without storing or computing the blocks
-// (for a 2-site cell a few thousand distance tests).
-func Estimate(c *physics.Crystal) Sizes {
+// (for a 2-site cell a few thousand distance tests), or NewTerm's error
+// for a set-up over MaxCandidates.
+func Estimate(c *physics.Crystal) (Sizes, error) {
 	t := geometryOf(c)
-	t.lambda = t.defaultLambda()
+	var err error
+	if t.lambda, err = t.defaultLambda(); err == nil {
+		err = t.checkSize(t.lambda)
+	}
+	if err != nil {
+		return Sizes{}, err
+	}
 	s := Sizes{LambdaInvA: t.lambda, ReciprocalVectors: len(t.reciprocalVectors())}
 	cells := map[[3]int]bool{}
 	_ = t.eachReal(nil, t.lambda, func(_, _ int, n [3]int, _ [3]float64) {
@@ -44,7 +51,7 @@ func Estimate(c *physics.Crystal) Sizes {
 		cells[n] = true
 	})
 	s.Cells = len(cells)
-	return s
+	return s, nil
 }
 
 // geometryOf is the part of a Term that the sizes depend on, from a

@@ -29,6 +29,14 @@ const (
 // sum, which keeps only its vectors.
 const maxRealBytes = 32 << 20
 
+// MaxCandidates bounds the lattice points the set-up of either Ewald sum
+// tests: the box of cell offsets that holds its cut-off sphere (times the
+// site pairs, for the real-space sum). A cell so small or skewed against
+// the cut-offs that it needs more is refused (a *physics.ValidationError
+// on "lattice"), so no model makes the compile run for minutes; the
+// examples need a few thousand.
+const MaxCandidates = 2e7
+
 // Params are the parameters of the Ewald sum. The zero value chooses them.
 type Params struct {
 	// LambdaInvA is the Ewald parameter Λ, Å⁻¹: the real-space terms decay
@@ -127,10 +135,17 @@ func NewTerm(ctx context.Context, m *physics.Model, p Params) (*Term, error) {
 		lat: m.Lattice(), recip: m.Reciprocal()}
 	t.epsInv, t.sqrtDet = inverse3(eps)
 	t.lambda = p.LambdaInvA
+	var err error
 	if t.lambda == 0 {
-		t.lambda = t.defaultLambda()
+		t.lambda, err = t.defaultLambda()
 	} else if !(t.lambda > 0) || math.IsInf(t.lambda, 0) {
 		return nil, fmt.Errorf("polar: the Ewald parameter must be a positive number of Å⁻¹, got %v", p.LambdaInvA)
+	}
+	if err == nil {
+		err = t.checkSize(t.lambda)
+	}
+	if err != nil {
+		return nil, err
 	}
 	t.pool.New = func() any { return t.newScratch() }
 	t.w = make([]float64, t.n)
@@ -157,12 +172,34 @@ func NewTerm(ctx context.Context, m *physics.Model, p Params) (*Term, error) {
 
 // defaultLambda is DefaultLambda for the term's cell, raised when the
 // real-space blocks would exceed maxRealBytes.
-func (t *Term) defaultLambda() float64 {
+func (t *Term) defaultLambda() (float64, error) {
 	l := DefaultLambda(t.omega, t.sqrtDet*t.sqrtDet)
+	if err := t.checkSize(l); err != nil {
+		return 0, err
+	}
 	if b := 72 * float64(t.countReal(l)); b > maxRealBytes {
 		l *= math.Cbrt(b / maxRealBytes)
 	}
-	return l
+	return l, nil
+}
+
+// checkSize refuses a set-up at parameter lambda that would test more
+// than MaxCandidates lattice points in either sum.
+func (t *Term) checkSize(lambda float64) error {
+	realBox := float64(t.n*(t.n+1)) / 2
+	for _, r := range t.realReach(lambda) {
+		realBox *= float64(2*r + 1)
+	}
+	recip := 1.0
+	for _, r := range t.recipReach(lambda) {
+		recip *= float64(2*r + 1)
+	}
+	if realBox > MaxCandidates || recip > MaxCandidates || math.IsNaN(realBox+recip) {
+		var vs physics.Violations
+		vs.Add("lattice", "the dipole–dipole (Ewald) sum of this cell would test %.3g real-space and %.3g reciprocal lattice points, more than the limit of %.0e: the cell is too skewed or its sites too many for the polar data", realBox, recip, float64(MaxCandidates))
+		return vs.Err()
+	}
+	return nil
 }
 
 // inverse3 returns the inverse of a symmetric positive definite 3×3
@@ -191,74 +228,57 @@ func quad(x [3]float64, a *[9]float64, y [3]float64) float64 {
 	return s
 }
 
-// eigRange returns the smallest and largest eigenvalue of ε∞ bounded
-// below and above by Gershgorin discs, cheap and safe for the cut-offs.
-func eigRange(e [9]float64) (lo, hi float64) {
-	lo, hi = math.Inf(1), 0
-	for a := 0; a < 3; a++ {
-		r := 0.0
-		for b := 0; b < 3; b++ {
-			if b != a {
-				r += math.Abs(e[3*a+b])
-			}
-		}
-		lo = math.Min(lo, e[4*a]-r)
-		hi = math.Max(hi, e[4*a]+r)
-	}
-	return lo, hi
-}
+// enorm is the ε-norm sqrt(x·a·x) of x for a symmetric positive
+// definite a.
+func enorm(x [3]float64, a *[9]float64) float64 { return math.Sqrt(quad(x, a, x)) }
 
-// kCut is the largest |K| (Å⁻¹) that can pass the reciprocal cut-off,
-// using the smallest eigenvalue of ε∞ (a positive lower bound of it).
-func (t *Term) kCut() float64 {
-	lo, _ := eigRange(t.eps)
-	if !(lo > 0) {
-		lo = 1 / normMax(t.epsInv) // Gershgorin failed: 1/‖ε⁻¹‖ ≤ λ_min
-	}
-	return 2 * t.lambda * math.Sqrt(gaussCut/lo)
-}
-
-// rCut is the largest |d| (Å) that can pass the real-space cut-off.
-func (t *Term) rCut(lambda float64) float64 {
-	_, hi := eigRange(t.eps)
-	return erfcCut / lambda * math.Sqrt(hi)
-}
-
-// normMax is the largest row sum of |a| (a bound of the spectral norm).
-func normMax(a [9]float64) float64 {
-	s := 0.0
-	for r := 0; r < 3; r++ {
-		s = math.Max(s, math.Abs(a[3*r])+math.Abs(a[3*r+1])+math.Abs(a[3*r+2]))
-	}
-	return s
-}
+// The cut-offs are ellipsoids: K·ε·K ≤ (2Λ)²·gaussCut in reciprocal
+// space, d·ε⁻¹·d ≤ (erfcCut/Λ)² in real space. Over the ellipsoid
+// x·A·x ≤ R² the largest w·x is R·sqrt(w·A⁻¹·w), so the integer
+// coordinates of its lattice points are bounded plane by plane: m_k =
+// G·a_k/2π ≤ 2Λ√gaussCut·sqrt(a_k·ε⁻¹·a_k)/2π, n_k = d·b_k/2π ≤
+// (erfcCut/Λ)·sqrt(b_k·ε·b_k)/2π, each plus what the reduced q (|q_k| ≤
+// ½) or the site separations add.
 
 // reciprocalVectors lists every G that can pass the reciprocal cut-off
-// for some reduced q (fractional components in [−½, ½]): |G| ≤ kCut +
-// |q|max.
+// for some reduced q (fractional components in [−½, ½]): by the triangle
+// inequality of the ε-norm, ‖G‖_ε ≤ 2Λ√gaussCut + ½Σ_k‖b_k‖_ε.
 func (t *Term) reciprocalVectors() [][3]float64 {
-	qmax := 0.0
-	for k := 0; k < 3; k++ {
-		qmax += 0.5 * lattice.Norm(t.recip[k])
-	}
-	lim := t.kCut() + qmax
-	var reach [3]int
-	for k := 0; k < 3; k++ {
-		reach[k] = int(math.Ceil(lim*lattice.Norm(t.lat[k])/(2*math.Pi))) + 1
-	}
+	lim := 2*t.lambda*math.Sqrt(gaussCut) + t.qMaxE()
+	reach := t.recipReach(t.lambda)
 	var out [][3]float64
 	var m [3]int
 	for m[0] = -reach[0]; m[0] <= reach[0]; m[0]++ {
 		for m[1] = -reach[1]; m[1] <= reach[1]; m[1]++ {
 			for m[2] = -reach[2]; m[2] <= reach[2]; m[2]++ {
 				g := t.cartG(m)
-				if lattice.Norm(g) <= lim {
+				if enorm(g, &t.eps) <= lim {
 					out = append(out, g)
 				}
 			}
 		}
 	}
 	return out
+}
+
+// qMaxE bounds the ε-norm of a reduced wavevector: ½Σ_k ‖b_k‖_ε.
+func (t *Term) qMaxE() float64 {
+	s := 0.0
+	for k := 0; k < 3; k++ {
+		s += 0.5 * enorm(t.recip[k], &t.eps)
+	}
+	return s
+}
+
+// recipReach is the range of integer coordinates m_k (G = Σ m_k b_k)
+// that holds every G of the sum, for every reduced q.
+func (t *Term) recipReach(lambda float64) [3]int {
+	var reach [3]int
+	for k := 0; k < 3; k++ {
+		x := 2*lambda*math.Sqrt(gaussCut)*enorm(t.lat[k], &t.epsInv)/(2*math.Pi) + 0.5
+		reach[k] = int(math.Min(math.Ceil(x), 1e9)) + 1
+	}
+	return reach
 }
 
 // cartG is Σ m_k b_k, Å⁻¹.
@@ -283,18 +303,20 @@ func (t *Term) cartR(n [3]int) [3]float64 {
 	return r
 }
 
-// realReach is the range of cell offsets that holds every real-space term
-// at parameter lambda.
+// realReach is the range of cell offsets n that holds every real-space
+// term at parameter lambda: n_k = b_k·(d − τ_j + τ_i)/2π over the cut-off
+// ellipsoid and the site separations.
 func (t *Term) realReach(lambda float64) [3]int {
-	sep := 0.0
-	for i := range t.tau {
-		for j := range t.tau {
-			sep = math.Max(sep, lattice.Norm(lattice.Sub(t.tau[j], t.tau[i])))
-		}
-	}
 	var reach [3]int
 	for k := 0; k < 3; k++ {
-		reach[k] = int(math.Ceil((t.rCut(lambda)+sep)*lattice.Norm(t.recip[k])/(2*math.Pi))) + 1
+		sep := 0.0
+		for i := range t.tau {
+			for j := range t.tau {
+				sep = math.Max(sep, math.Abs(lattice.Dot(t.recip[k], lattice.Sub(t.tau[j], t.tau[i]))))
+			}
+		}
+		x := (erfcCut/lambda*enorm(t.recip[k], &t.eps) + sep) / (2 * math.Pi)
+		reach[k] = int(math.Min(math.Ceil(x), 1e9)) + 1
 	}
 	return reach
 }

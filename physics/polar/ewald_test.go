@@ -6,6 +6,7 @@ package polar_test
 
 import (
 	"context"
+	"errors"
 	"math"
 	"math/cmplx"
 	"testing"
@@ -272,10 +273,30 @@ func TestBuildRefusesBadParameter(t *testing.T) {
 // built term holds.
 func TestEstimateMatchesTerm(t *testing.T) {
 	for _, c := range []*physics.Crystal{rockSalt(1, iso(3)), lowSymmetry()} {
-		got := polar.Estimate(c)
+		got, err := polar.Estimate(c)
+		if err != nil {
+			t.Fatal(err)
+		}
 		want := term(t, compile(t, c, 0)).TermSizes()
 		if got != want {
 			t.Errorf("Estimate %+v; the term has %+v", got, want)
 		}
+	}
+}
+
+// TestSkewedCellRefused: a cell so skewed that its Ewald sums would test
+// more than MaxCandidates lattice points is refused on "lattice" (a
+// validation error), not set up for minutes.
+func TestSkewedCellRefused(t *testing.T) {
+	c := rockSalt(1, iso(3))
+	c.Shells = nil
+	c.Lattice = [][3]float64{{4, 0, 0}, {4, 0.001, 0}, {0, 0, 4}}
+	_, err := physics.Compile(context.Background(), c, physics.Options{LongRange: polar.Builder()})
+	var ve *physics.ValidationError
+	if !errors.As(err, &ve) || ve.Violations[0].Field != "lattice" {
+		t.Fatalf("skewed polar cell: %v; want a validation error on lattice", err)
+	}
+	if _, err := polar.Estimate(c); !errors.As(err, &ve) {
+		t.Errorf("Estimate: %v; want the same refusal", err)
 	}
 }
