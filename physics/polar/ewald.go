@@ -75,6 +75,7 @@ type Term struct {
 
 	gvecs [][3]float64 // reciprocal lattice vectors of the sum, Cartesian
 	cells []realCell   // real-space terms grouped by cell offset
+	real  []realBlock  // the blocks of every cell, cell by cell
 	// onsite is the constant added to each site's diagonal block, raw
 	// (eV/Å², not mass-weighted): minus the self term of the reciprocal
 	// sum plus the symmetric sum-rule correction.
@@ -86,15 +87,14 @@ type Term struct {
 
 	asymmetry float64 // largest antisymmetric part of a sum-rule correction, eV/Å²
 	scale     float64 // row bound of the term, eV/Å²/amu
-	blocks    int     // real-space blocks
 	pool      sync.Pool
 }
 
-// realCell holds the real-space blocks of one cell offset n.
+// realCell names the real-space blocks of one cell offset n.
 type realCell struct {
 	n      [3]int
 	r      [3]float64 // Cartesian lattice vector R_n, Å
-	blocks []realBlock
+	lo, hi int        // its blocks: real[lo:hi]
 }
 
 // realBlock is Z_iᵀ T(R_n + τ_j − τ_i) Z_j·e²/(4πε₀), raw (eV/Å²), for a
@@ -246,18 +246,22 @@ func enorm(x [3]float64, a *[9]float64) float64 { return math.Sqrt(quad(x, a, x)
 func (t *Term) reciprocalVectors() [][3]float64 {
 	lim := 2*t.lambda*math.Sqrt(gaussCut) + t.qMaxE()
 	reach := t.recipReach(t.lambda)
-	var out [][3]float64
-	var m [3]int
-	for m[0] = -reach[0]; m[0] <= reach[0]; m[0]++ {
-		for m[1] = -reach[1]; m[1] <= reach[1]; m[1]++ {
-			for m[2] = -reach[2]; m[2] <= reach[2]; m[2]++ {
-				g := t.cartG(m)
-				if enorm(g, &t.eps) <= lim {
-					out = append(out, g)
+	each := func(fn func(g [3]float64)) {
+		var m [3]int
+		for m[0] = -reach[0]; m[0] <= reach[0]; m[0]++ {
+			for m[1] = -reach[1]; m[1] <= reach[1]; m[1]++ {
+				for m[2] = -reach[2]; m[2] <= reach[2]; m[2]++ {
+					if g := t.cartG(m); enorm(g, &t.eps) <= lim {
+						fn(g)
+					}
 				}
 			}
 		}
 	}
+	n := 0
+	each(func([3]float64) { n++ }) // counted first: one allocation
+	out := make([][3]float64, 0, n)
+	each(func(g [3]float64) { out = append(out, g) })
 	return out
 }
 
@@ -359,19 +363,29 @@ func (t *Term) countReal(lambda float64) int {
 	return c
 }
 
-// realSpace computes the real-space blocks, grouped by cell offset.
+// realSpace computes the real-space blocks, grouped by cell offset
+// (eachReal visits the cells one after the other, so each cell's blocks
+// are consecutive), in arrays counted first and allocated once.
 func (t *Term) realSpace(ctx context.Context) error {
-	index := map[[3]int]int{}
+	blocks, cells := 0, 0
+	var last [3]int
+	if err := t.eachReal(ctx, t.lambda, func(_, _ int, n [3]int, _ [3]float64) {
+		if blocks == 0 || n != last {
+			cells++
+			last = n
+		}
+		blocks++
+	}); err != nil {
+		return err
+	}
+	t.real, t.cells = make([]realBlock, 0, blocks), make([]realCell, 0, cells)
 	return t.eachReal(ctx, t.lambda, func(i, j int, n [3]int, d [3]float64) {
-		c, ok := index[n]
-		if !ok {
-			c = len(t.cells)
-			index[n] = c
-			t.cells = append(t.cells, realCell{n: n, r: t.cartR(n)})
+		if c := len(t.cells); c == 0 || t.cells[c-1].n != n {
+			t.cells = append(t.cells, realCell{n: n, r: t.cartR(n), lo: len(t.real)})
 		}
 		tt := t.shortTensor(d)
-		t.cells[c].blocks = append(t.cells[c].blocks, realBlock{i: i, j: j, b: t.sandwich(i, &tt, j, physics.CoulombEVA)})
-		t.blocks++
+		t.real = append(t.real, realBlock{i: i, j: j, b: t.sandwich(i, &tt, j, physics.CoulombEVA)})
+		t.cells[len(t.cells)-1].hi = len(t.real)
 	})
 }
 
@@ -504,12 +518,10 @@ func (t *Term) rowBound() float64 {
 			rows[3*i+x] += f * (math.Abs(b[3*x]) + math.Abs(b[3*x+1]) + math.Abs(b[3*x+2]))
 		}
 	}
-	for _, c := range t.cells {
-		for k := range c.blocks {
-			b := &c.blocks[k]
-			add(b.i, &b.b, t.w[b.i]*t.w[b.j])
-			add(b.j, &b.b, t.w[b.i]*t.w[b.j])
-		}
+	for k := range t.real {
+		b := &t.real[k]
+		add(b.i, &b.b, t.w[b.i]*t.w[b.j])
+		add(b.j, &b.b, t.w[b.i]*t.w[b.j])
 	}
 	for i := range t.onsite {
 		add(i, &t.onsite[i], t.w[i]*t.w[i])
@@ -557,7 +569,7 @@ func (t *Term) LambdaInvA() float64 { return t.lambda }
 
 // RealTerms is the number of real-space blocks (site pairs × lattice
 // vectors) summed at every q.
-func (t *Term) RealTerms() int { return t.blocks }
+func (t *Term) RealTerms() int { return len(t.real) }
 
 // ReciprocalVectors is the number of reciprocal lattice vectors summed at
 // every q.
@@ -581,7 +593,7 @@ func (t *Term) Terms() int { return len(t.cells) + len(t.gvecs) + 1 }
 // rank-one update of the lower triangle (8 per element, (3n)²/2
 // elements).
 func (t *Term) FlopsPerQ() float64 {
-	return Flops(t.n, t.blocks, len(t.cells), len(t.gvecs))
+	return Flops(t.n, len(t.real), len(t.cells), len(t.gvecs))
 }
 
 // Method implements physics.LongRange: the method, its version and Λ (in

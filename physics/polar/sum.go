@@ -88,8 +88,8 @@ func (t *Term) addReal(q [3]float64, a []complex128, nm int, stop func() bool) b
 		}
 		th := 2 * math.Pi * (q[0]*float64(c.n[0]) + q[1]*float64(c.n[1]) + q[2]*float64(c.n[2]))
 		sn, cs := math.Sincos(th)
-		for bi := range c.blocks {
-			b := &c.blocks[bi]
+		for bi := c.lo; bi < c.hi; bi++ {
+			b := &t.real[bi]
 			f := t.w[b.i] * t.w[b.j]
 			re, im := f*cs, f*sn
 			for x := 0; x < 3; x++ {
@@ -217,8 +217,8 @@ func (t *Term) addRealGrad(q [3]float64, g *[3][]complex128, nm int, stop func()
 		}
 		th := 2 * math.Pi * (q[0]*float64(c.n[0]) + q[1]*float64(c.n[1]) + q[2]*float64(c.n[2]))
 		sn, cs := math.Sincos(th)
-		for bi := range c.blocks {
-			b := &c.blocks[bi]
+		for bi := c.lo; bi < c.hi; bi++ {
+			b := &t.real[bi]
 			f := t.w[b.i] * t.w[b.j]
 			for x := 0; x < 3; x++ {
 				top := 3
