@@ -74,6 +74,7 @@ type Term struct {
 	recip   [3][3]float64 // reciprocal vectors (rows), Å⁻¹, 2π included
 
 	gvecs [][3]float64 // reciprocal lattice vectors of the sum, Cartesian
+	geg   []float64    // G·ε∞·G of each, Å⁻²: K·ε·K = G·ε·G + 2G·(εq) + q·ε·q
 	cells []realCell   // real-space terms grouped by cell offset
 	real  []realBlock  // the blocks of every cell, cell by cell
 	// onsite is the constant added to each site's diagonal block, raw
@@ -153,6 +154,10 @@ func NewTerm(ctx context.Context, m *physics.Model, p Params) (*Term, error) {
 		t.w[i] = 1 // raw sums first: the sum-rule correction is mass-free
 	}
 	t.gvecs = t.reciprocalVectors()
+	t.geg = make([]float64, len(t.gvecs))
+	for i, g := range t.gvecs {
+		t.geg[i] = quad(g, &t.eps, g)
+	}
 	if err := t.realSpace(ctx); err != nil {
 		return nil, err
 	}
@@ -456,7 +461,7 @@ func (t *Term) selfTerm(i int) [9]float64 {
 // (analytic part) acting on a rigid translation must give no force, so
 // the row sums A_i = Σ_j C_ij(0) (raw blocks, self term included) must be
 // cancelled. Each site's diagonal block gets −sym(A_i) (Gonze & Lee 1997,
-// section V, who subtract A_i itself: the same when A_i is symmetric, as
+// who subtract A_i itself: the same when A_i is symmetric, as
 // at sites of cubic or axial symmetry). An antisymmetric part K_i of
 // −A_i cannot sit in a diagonal block of a Hermitian D; Σ_i K_i = 0
 // (Σ_ij C_ij is symmetric), and the least symmetric change of the

@@ -27,7 +27,7 @@ var probes = [][3]float64{
 }
 
 // TestEwaldParameterIndependence: the Ewald sum is an identity for every
-// Λ (Gonze & Lee, Phys. Rev. B 55, 10355 (1997), section IV): D(q), its
+// Λ (Gonze & Lee, Phys. Rev. B 55, 10355 (1997)): D(q), its
 // frequencies and its derivative must agree between three parameters
 // spanning a factor 4 (real-space terms from about 200 to 10 000 per
 // pair) to 1e-8 relative to the largest element; measured a few 1e-14.
@@ -118,7 +118,7 @@ func TestHermitianAndTimeReversal(t *testing.T) {
 // zero (to the engine's tolerance) whatever the direction of approach:
 // the term's sum-rule correction removes the force of a rigid
 // translation, and Σ Z* = 0 removes the non-analytic part's (Gonze & Lee
-// 1997, section V).
+// 1997).
 func TestAcousticSumRule(t *testing.T) {
 	for _, tc := range []struct {
 		name string

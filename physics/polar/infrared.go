@@ -69,7 +69,7 @@ type IRMode struct {
 	Acoustic bool    // one of the 3 acoustic modes (excluded from ε)
 	// Charge is the mode effective charge Z̃_α = Σ_{s,β} Z_s,αβ U_sβ with
 	// U = e/√m the displacement of the normalised eigenvector e, e/√amu
-	// (Gonze & Lee, Phys. Rev. B 55, 10355 (1997), eq. 53). Within a group
+	// (Gonze & Lee, Phys. Rev. B 55, 10355 (1997)). Within a group
 	// of degenerate modes the eigenvectors are any basis, and so would be
 	// the charges: the modes are rotated so that their charges are
 	// mutually orthogonal, the last of the group's charged modes having
@@ -78,7 +78,7 @@ type IRMode struct {
 	// axes after it (orthogonal); the largest component is positive.
 	Charge [3]float64
 	// Strength is the oscillator strength S_αβ = Z̃_α Z̃_β, e²/amu
-	// (Gonze & Lee 1997, eq. 54).
+	// (Gonze & Lee 1997).
 	Strength [9]float64
 	Active   bool    // |Z̃|² above ActiveThreshold of the sum rule
 	DampTHz  float64 // its damping γ, THz
@@ -377,7 +377,7 @@ func oscillatorPrefactor(m *physics.Model) float64 {
 }
 
 // static marks the active modes and sums ε₀ = ε∞ + (4π/Ω)Σ_m S_m/ω_m²
-// over the optical modes (Gonze & Lee 1997, eq. 58, at ω = 0), with ω_m²
+// over the optical modes (Gonze & Lee 1997, at ω = 0), with ω_m²
 // the eigenvalue λ_m in eV/Å²/amu.
 func (res *IRResult) static(m *physics.Model) error {
 	var rule float64 // Σ_s tr(Z_sᵀ Z_s)/m_s = Σ_m |Z̃_m|²
@@ -434,7 +434,7 @@ func (res *IRResult) setDamping(d []float64) {
 //
 //	ε(ω) = ε∞ + (4π/Ω) Σ_m S_m / (ω_m² − ω² − iγ_m ω)
 //
-// (Gonze & Lee 1997, eq. 58, with the damping of a Lorentz oscillator),
+// (Gonze & Lee 1997, with the damping of a Lorentz oscillator),
 // n = √ε on the branch with Re n ≥ 0, R = |(n − 1)/(n + 1)|² (normal
 // incidence from vacuum; Born & Wolf, Principles of Optics, §1.5).
 func (res *IRResult) sample(ctx context.Context, m *physics.Model, freqs []float64) error {

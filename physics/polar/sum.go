@@ -57,15 +57,19 @@ func (t *Term) AddTo(q, dir [3]float64, a []complex128, stop func() bool) bool {
 	s := t.pool.Get().(*scratch)
 	defer t.pool.Put(s)
 	kq := t.cartQ(qr)
+	eq, qeq := t.epsTimes(kq)
 	pre := 4 * math.Pi / t.omega * physics.CoulombEVA
 	l2 := 4 * t.lambda * t.lambda
 	for gi, g := range t.gvecs {
 		if gi%pollEvery == 0 && stop != nil && stop() {
 			return false
 		}
+		kek := t.geg[gi] + 2*(g[0]*eq[0]+g[1]*eq[1]+g[2]*eq[2]) + qeq
+		if kek/l2 > gaussCut {
+			continue
+		}
 		k := [3]float64{kq[0] + g[0], kq[1] + g[1], kq[2] + g[2]}
-		kek := quad(k, &t.eps, k)
-		if kek == 0 || kek/l2 > gaussCut {
+		if k == ([3]float64{}) {
 			continue // K = 0 (Γ): the non-analytic term, below
 		}
 		t.siteVectors(k, s.v, true)
@@ -77,6 +81,18 @@ func (t *Term) AddTo(q, dir [3]float64, a []complex128, stop func() bool) bool {
 		rankOne(a, nm, pre/ded, s.v)
 	}
 	return true
+}
+
+// epsTimes returns ε∞·q and q·ε∞·q: with G·ε·G kept per vector, K·ε·K =
+// G·ε·G + 2G·(εq) + q·ε·q costs three products per G. (No digits are
+// lost: the reduced q is at most half a reciprocal vector, so |K| is not
+// much below |G| unless G = 0, where K·ε·K = q·ε·q exactly.)
+func (t *Term) epsTimes(q [3]float64) ([3]float64, float64) {
+	var e [3]float64
+	for a := 0; a < 3; a++ {
+		e[a] = t.eps[3*a]*q[0] + t.eps[3*a+1]*q[1] + t.eps[3*a+2]*q[2]
+	}
+	return e, q[0]*e[0] + q[1]*e[1] + q[2]*e[2]
 }
 
 // addReal adds the real-space blocks with their phases e^{2πi q·n}.
