@@ -75,8 +75,9 @@ type Term struct {
 
 	gvecs [][3]float64 // reciprocal lattice vectors of the sum, Cartesian
 	geg   []float64    // G·ε∞·G of each, Å⁻²: K·ε·K = G·ε·G + 2G·(εq) + q·ε·q
-	cells []realCell   // real-space terms grouped by cell offset
-	real  []realBlock  // the blocks of every cell, cell by cell
+	cells []realCell   // the cell offsets of the real-space terms
+	pairs []realPair   // the site pairs (i ≥ j) with real-space terms
+	real  []realBlock  // the blocks, pair by pair
 	// onsite is the constant added to each site's diagonal block, raw
 	// (eV/Å², not mass-weighted): minus the self term of the reciprocal
 	// sum plus the symmetric sum-rule correction.
@@ -91,17 +92,22 @@ type Term struct {
 	pool      sync.Pool
 }
 
-// realCell names the real-space blocks of one cell offset n.
+// realCell is a cell offset n of the real-space sum.
 type realCell struct {
-	n      [3]int
-	r      [3]float64 // Cartesian lattice vector R_n, Å
-	lo, hi int        // its blocks: real[lo:hi]
+	n [3]int
+	r [3]float64 // Cartesian lattice vector R_n, Å
 }
 
-// realBlock is Z_iᵀ T(R_n + τ_j − τ_i) Z_j·e²/(4πε₀), raw (eV/Å²), for a
-// row site i ≥ column site j.
+// realPair names the real-space blocks of the row site i ≥ column site j.
+type realPair struct {
+	i, j   int
+	lo, hi int // real[lo:hi]
+}
+
+// realBlock is Z_iᵀ T(R_n + τ_j − τ_i) Z_j·e²/(4πε₀), raw (eV/Å²), of its
+// pair at the cell offset cells[cell].
 type realBlock struct {
-	i, j int
+	cell int
 	b    [9]float64
 }
 
@@ -109,6 +115,8 @@ type realBlock struct {
 type scratch struct {
 	v  []complex128    // K·Z_i e^{iK·τ_i}/√m_i, 3 per site
 	dv [3][]complex128 // its derivatives along K_μ
+	// phase holds e^{iq·R_n} of every cell of the real-space sum.
+	phase []complex128
 }
 
 // DefaultLambda is the Ewald parameter (Å⁻¹) that balances the terms of
@@ -368,29 +376,49 @@ func (t *Term) countReal(lambda float64) int {
 	return c
 }
 
-// realSpace computes the real-space blocks, grouped by cell offset
-// (eachReal visits the cells one after the other, so each cell's blocks
-// are consecutive), in arrays counted first and allocated once.
+// realSpace computes the real-space blocks, stored pair by pair (each
+// pair's blocks together, so that D(q) sums a pair's blocks in one pass
+// and writes it once) in arrays counted first and allocated once: a
+// counting sort of eachReal's cell-major order.
 func (t *Term) realSpace(ctx context.Context) error {
-	blocks, cells := 0, 0
+	pairIndex := func(i, j int) int { return i*(i+1)/2 + j } // i ≥ j
+	count := make([]int, t.n*(t.n+1)/2)
+	cells := 0
 	var last [3]int
-	if err := t.eachReal(ctx, t.lambda, func(_, _ int, n [3]int, _ [3]float64) {
-		if blocks == 0 || n != last {
+	total := 0
+	if err := t.eachReal(ctx, t.lambda, func(i, j int, n [3]int, _ [3]float64) {
+		if total == 0 || n != last {
 			cells++
 			last = n
 		}
-		blocks++
+		count[pairIndex(i, j)]++
+		total++
 	}); err != nil {
 		return err
 	}
-	t.real, t.cells = make([]realBlock, 0, blocks), make([]realCell, 0, cells)
+	t.real, t.cells = make([]realBlock, total), make([]realCell, 0, cells)
+	next := make([]int, len(count))
+	for i := 0; i < t.n; i++ {
+		for j := 0; j <= i; j++ {
+			p := pairIndex(i, j)
+			if count[p] > 0 {
+				lo := 0
+				if len(t.pairs) > 0 {
+					lo = t.pairs[len(t.pairs)-1].hi
+				}
+				t.pairs = append(t.pairs, realPair{i: i, j: j, lo: lo, hi: lo + count[p]})
+				next[p] = lo
+			}
+		}
+	}
 	return t.eachReal(ctx, t.lambda, func(i, j int, n [3]int, d [3]float64) {
 		if c := len(t.cells); c == 0 || t.cells[c-1].n != n {
-			t.cells = append(t.cells, realCell{n: n, r: t.cartR(n), lo: len(t.real)})
+			t.cells = append(t.cells, realCell{n: n, r: t.cartR(n)})
 		}
 		tt := t.shortTensor(d)
-		t.real = append(t.real, realBlock{i: i, j: j, b: t.sandwich(i, &tt, j, physics.CoulombEVA)})
-		t.cells[len(t.cells)-1].hi = len(t.real)
+		p := pairIndex(i, j)
+		t.real[next[p]] = realBlock{cell: len(t.cells) - 1, b: t.sandwich(i, &tt, j, physics.CoulombEVA)}
+		next[p]++
 	})
 }
 
@@ -523,10 +551,12 @@ func (t *Term) rowBound() float64 {
 			rows[3*i+x] += f * (math.Abs(b[3*x]) + math.Abs(b[3*x+1]) + math.Abs(b[3*x+2]))
 		}
 	}
-	for k := range t.real {
-		b := &t.real[k]
-		add(b.i, &b.b, t.w[b.i]*t.w[b.j])
-		add(b.j, &b.b, t.w[b.i]*t.w[b.j])
+	for _, p := range t.pairs {
+		for k := p.lo; k < p.hi; k++ {
+			b := &t.real[k].b
+			add(p.i, b, t.w[p.i]*t.w[p.j])
+			add(p.j, b, t.w[p.i]*t.w[p.j])
+		}
 	}
 	for i := range t.onsite {
 		add(i, &t.onsite[i], t.w[i]*t.w[i])
@@ -608,7 +638,7 @@ func (t *Term) Method() string {
 }
 
 func (t *Term) newScratch() *scratch {
-	s := &scratch{v: make([]complex128, 3*t.n)}
+	s := &scratch{v: make([]complex128, 3*t.n), phase: make([]complex128, len(t.cells))}
 	for a := range s.dv {
 		s.dv[a] = make([]complex128, 3*t.n)
 	}

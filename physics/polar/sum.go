@@ -50,12 +50,12 @@ func (t *Term) cartQ(q [3]float64) [3]float64 {
 func (t *Term) AddTo(q, dir [3]float64, a []complex128, stop func() bool) bool {
 	nm := 3 * t.n
 	qr, gamma := reduce(q)
-	if !t.addReal(qr, a, nm, stop) {
+	s := t.pool.Get().(*scratch)
+	defer t.pool.Put(s)
+	if !t.addReal(qr, a, nm, s.phase, stop) {
 		return false
 	}
 	t.addConstant(a, nm)
-	s := t.pool.Get().(*scratch)
-	defer t.pool.Put(s)
 	kq := t.cartQ(qr)
 	eq, qeq := t.epsTimes(kq)
 	pre := 4 * math.Pi / t.omega * physics.CoulombEVA
@@ -95,33 +95,52 @@ func (t *Term) epsTimes(q [3]float64) ([3]float64, float64) {
 	return e, q[0]*e[0] + q[1]*e[1] + q[2]*e[2]
 }
 
-// addReal adds the real-space blocks with their phases e^{2πi q·n}.
-func (t *Term) addReal(q [3]float64, a []complex128, nm int, stop func() bool) bool {
-	for ci := range t.cells {
-		c := &t.cells[ci]
-		if ci%pollEvery == 0 && stop != nil && stop() {
+// addReal adds the real-space blocks with their phases e^{2πi q·n}: the
+// cells' phases first, then each pair's blocks summed in a local 3×3
+// accumulator and written once.
+func (t *Term) addReal(q [3]float64, a []complex128, nm int, ph []complex128, stop func() bool) bool {
+	t.cellPhases(q, ph)
+	for pi, p := range t.pairs {
+		if pi%pollEvery == 0 && stop != nil && stop() {
 			return false
 		}
-		th := 2 * math.Pi * (q[0]*float64(c.n[0]) + q[1]*float64(c.n[1]) + q[2]*float64(c.n[2]))
-		sn, cs := math.Sincos(th)
-		for bi := c.lo; bi < c.hi; bi++ {
-			b := &t.real[bi]
-			f := t.w[b.i] * t.w[b.j]
-			re, im := f*cs, f*sn
-			for x := 0; x < 3; x++ {
-				row := a[(3*b.i+x)*nm+3*b.j:]
-				top := 3
-				if b.i == b.j {
-					top = x + 1
-				}
-				for y := 0; y < top; y++ {
-					v := b.b[3*x+y]
-					row[y] += complex(v*re, v*im)
-				}
+		var acc [9]complex128
+		for k := p.lo; k < p.hi; k++ {
+			b := &t.real[k]
+			z := ph[b.cell]
+			for e, v := range b.b {
+				acc[e] += complex(v*real(z), v*imag(z))
 			}
 		}
+		t.addPair(a, nm, p, &acc)
 	}
 	return true
+}
+
+// addPair adds the pair's accumulated block, weighted 1/√(m_i m_j), to
+// the lower triangle of a.
+func (t *Term) addPair(a []complex128, nm int, p realPair, acc *[9]complex128) {
+	f := complex(t.w[p.i]*t.w[p.j], 0)
+	for x := 0; x < 3; x++ {
+		row := a[(3*p.i+x)*nm+3*p.j:]
+		top := 3
+		if p.i == p.j {
+			top = x + 1
+		}
+		for y := 0; y < top; y++ {
+			row[y] += f * acc[3*x+y]
+		}
+	}
+}
+
+// cellPhases fills ph with e^{2πi q·n} of every cell of the real-space
+// sum.
+func (t *Term) cellPhases(q [3]float64, ph []complex128) {
+	for ci := range t.cells {
+		n := &t.cells[ci].n
+		sn, cs := math.Sincos(2 * math.Pi * (q[0]*float64(n[0]) + q[1]*float64(n[1]) + q[2]*float64(n[2])))
+		ph[ci] = complex(cs, sn)
+	}
 }
 
 // siteVectors fills v with (K·Z_i)_α e^{iK·τ_i}/√m_i (the phase only when
@@ -160,11 +179,11 @@ func rankOne(a []complex128, nm int, w float64, v []complex128) {
 func (t *Term) AddGradTo(q [3]float64, g *[3][]complex128, stop func() bool) bool {
 	nm := 3 * t.n
 	qr, _ := reduce(q)
-	if !t.addRealGrad(qr, g, nm, stop) {
-		return false
-	}
 	s := t.pool.Get().(*scratch)
 	defer t.pool.Put(s)
+	if !t.addRealGrad(qr, g, nm, s.phase, stop) {
+		return false
+	}
 	kq := t.cartQ(qr)
 	pre := 4 * math.Pi / t.omega * physics.CoulombEVA
 	l2 := 4 * t.lambda * t.lambda
@@ -221,36 +240,31 @@ func gradRankOne(g []complex128, nm int, w, dw float64, v, dv []complex128) {
 	}
 }
 
-// addRealGrad adds iR_μ times each real-space block with its phase.
-func (t *Term) addRealGrad(q [3]float64, g *[3][]complex128, nm int, stop func() bool) bool {
-	for ci := range t.cells {
-		c := &t.cells[ci]
-		if ci%pollEvery == 0 && stop != nil && stop() {
+// addRealGrad adds iR_μ times each real-space block with its phase,
+// summed per pair as in addReal.
+func (t *Term) addRealGrad(q [3]float64, g *[3][]complex128, nm int, ph []complex128, stop func() bool) bool {
+	t.cellPhases(q, ph)
+	for pi, p := range t.pairs {
+		if pi%pollEvery == 0 && stop != nil && stop() {
 			return false
 		}
-		if c.n == ([3]int{}) {
-			continue
-		}
-		th := 2 * math.Pi * (q[0]*float64(c.n[0]) + q[1]*float64(c.n[1]) + q[2]*float64(c.n[2]))
-		sn, cs := math.Sincos(th)
-		for bi := c.lo; bi < c.hi; bi++ {
-			b := &t.real[bi]
-			f := t.w[b.i] * t.w[b.j]
-			for x := 0; x < 3; x++ {
-				top := 3
-				if b.i == b.j {
-					top = x + 1
+		var acc [3][9]complex128
+		for k := p.lo; k < p.hi; k++ {
+			b := &t.real[k]
+			r := &t.cells[b.cell].r
+			z := ph[b.cell] * complex(0, 1) // i·e^{iθ}
+			for m := 0; m < 3; m++ {
+				if r[m] == 0 {
+					continue
 				}
-				for y := 0; y < top; y++ {
-					v := f * b.b[3*x+y]
-					z := complex(-v*sn, v*cs) // i·v·e^{iθ}
-					for m := 0; m < 3; m++ {
-						if r := c.r[m]; r != 0 {
-							g[m][(3*b.i+x)*nm+3*b.j+y] += z * complex(r, 0)
-						}
-					}
+				zm := z * complex(r[m], 0)
+				for e, v := range b.b {
+					acc[m][e] += complex(v*real(zm), v*imag(zm))
 				}
 			}
+		}
+		for m := 0; m < 3; m++ {
+			t.addPair(g[m], nm, p, &acc[m])
 		}
 	}
 	return true
