@@ -295,8 +295,10 @@ func fillUpper(a []complex128, n int) {
 //	D_{iα,jβ}(q) = Σ_n Φ_αβ(0i; nj) exp(2πi q·n) / sqrt(m_i m_j).
 //
 // D is Hermitian by construction: the upper triangle is the conjugate of
-// the lower one, which is the only part computed. q must be finite with
-// |qₖ| ≤ MaxQ; it panics otherwise (check user data with ValidateQPoints).
+// the lower one, which is the only part computed. A model's long-range
+// term (longrange.go) is included, with its analytic part at Γ
+// (ModesToward takes a direction there). q must be finite with |qₖ| ≤
+// MaxQ; it panics otherwise (check user data with ValidateQPoints).
 func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 	mustQ("DynamicalMatrix", q)
 	nm := m.ModeCount()

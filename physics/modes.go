@@ -56,8 +56,9 @@ const eigenTolFactor = 4
 // Householder reduction and QL, n·ε‖D‖ up to a modest constant (Golub &
 // Van Loan, Matrix Computations, 4th ed., §8.3.1 and §8.3.5; Parlett, The
 // Symmetric Eigenvalue Problem, §8.15), plus the rounding of D itself,
-// summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
-// Zero and imaginary modes.
+// summed over C cells with the sum-rule self terms (C·ε·Λ), plus the same
+// allowance for a long-range term (c·terms·ε·scale, longrange.go). See
+// doc.go, Zero and imaginary modes.
 func (m *Model) EigenTol() float64 {
 	return eigenTolFactor*float64(m.ModeCount()+len(m.cells))*eigen.Epsilon*m.lambdaScale + m.longRangeTol()
 }
