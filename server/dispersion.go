@@ -119,6 +119,13 @@ func (s *Service) checkDispersion(e *modelEntry, path []*modegridv1.PathPoint, o
 		if opt.SpacingInvA > 0 {
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
 		}
+		if e.m.Polar() {
+			for _, c := range corners { // a polar model samples a Γ corner from both sides
+				if physics.IsGamma(c.Q) {
+					n++
+				}
+			}
+		}
 		c := physics.DispersionCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
 		c.Bytes += 2 * int64(n) * int64(perSample)
 		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
