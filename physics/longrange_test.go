@@ -73,6 +73,15 @@ func TestPolarValidation(t *testing.T) {
 		{"ε∞ infinite", func(c *physics.Crystal) { c.EpsilonInf[8] = math.Inf(1) }, []string{"epsilon_inf[8]"}},
 		{"ε∞ not symmetric", func(c *physics.Crystal) { c.EpsilonInf[1] = 0.5 }, []string{"epsilon_inf"}},
 		{"ε∞ not positive definite", func(c *physics.Crystal) { c.EpsilonInf[4] = -2 }, []string{"epsilon_inf"}},
+		// Found by fuzzing: elements near 1e-153 once made a library
+		// eigensolver panic.
+		{"ε∞ of subnormal scale", func(c *physics.Crystal) {
+			for k := range c.EpsilonInf {
+				c.EpsilonInf[k] = 1.2e-153
+			}
+			c.EpsilonInf[8] = 1.4e-76
+		}, []string{"epsilon_inf"}},
+		{"ε∞ below 1", func(c *physics.Crystal) { c.EpsilonInf = []float64{2, 1.5, 0, 1.5, 2, 0, 0, 0, 2} }, []string{"epsilon_inf"}},
 		{"two dimensions", func(c *physics.Crystal) {
 			c.Lattice = c.Lattice[:2]
 			c.Shells = nil

@@ -185,10 +185,19 @@ func checkIROptions(m *physics.Model, opt IROptions) ([3]float64, error) {
 func gammaModes(ctx context.Context, m *physics.Model, u [3]float64) ([]IRMode, error) {
 	n := m.ModeCount()
 	d := m.DynamicalMatrix([3]float64{}, nil)
+	// Scaled by its largest element, so that the library solver sees no
+	// subnormal or huge numbers (it panicked on a 3×3 of 1e-153 once).
+	big := 0.0
+	for _, z := range d {
+		big = math.Max(big, math.Abs(real(z)))
+	}
+	if big == 0 || math.IsInf(big, 0) || math.IsNaN(big) {
+		big = 1
+	}
 	sym := mat.NewSymDense(n, nil)
 	for r := 0; r < n; r++ {
 		for c := 0; c <= r; c++ {
-			sym.SetSym(r, c, (real(d[r*n+c])+real(d[c*n+r]))/2)
+			sym.SetSym(r, c, (real(d[r*n+c])+real(d[c*n+r]))/2/big)
 		}
 	}
 	var eig mat.EigenSym
@@ -199,6 +208,9 @@ func gammaModes(ctx context.Context, m *physics.Model, u [3]float64) ([]IRMode, 
 		return nil, err
 	}
 	vals := eig.Values(nil)
+	for k := range vals {
+		vals[k] *= big
+	}
 	var vecs mat.Dense
 	eig.VectorsTo(&vecs)
 	born := m.BornCharges()

@@ -41,6 +41,9 @@ func TestFigureGallery(t *testing.T) {
 			"--measured", testdata("measured-thermal.csv")},
 			[]string{"measured Cv (J/(K·mol atoms))", "5 measured points", "χ²/N ="}},
 		{"shape-diatomic-chain-zone-boundary", []string{"shape", "-m", example("diatomic-chain"), "--q", "0.5", "--branch", "2"}, nil},
+		{"path-polar-rocksalt-like", []string{"path", "-m", example("polar-rocksalt-like"), "--grid", "12"}, nil},
+		{"infrared-polar-rocksalt-like", []string{"infrared", "-m", example("polar-rocksalt-like"), "--damping", "3", "--format", "table"},
+			[]string{"static ε₀ along ê", "active", "acoustic"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
