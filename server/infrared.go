@@ -80,14 +80,39 @@ func (s *Service) infraredRequest(req *modegridv1.ComputeInfraredRequest, vs *vi
 		vs.Add("unit", "unknown frequency unit %d", req.GetUnit())
 	}
 	ir := irRequest{unit: unitFromProto(req.GetUnit())}
-	d := req.GetDirection()
+	ir.opt.Direction = unitDirection(req.GetDirection(), vs)
+	s.irWindow(req, &ir, vs)
+	damp := func(field string, x float64) float64 {
+		if !(x >= 0) || math.IsInf(x, 0) {
+			vs.Add(field, "must be a finite damping ≥ 0 (in the request's unit), got %v", x)
+		}
+		return ir.unit.ToTHz(canonFloat(x))
+	}
+	if md := req.GetModeDamping(); len(md) > 0 {
+		for i, x := range md {
+			ir.opt.DampingTHz = append(ir.opt.DampingTHz, damp(fmt.Sprintf("mode_damping[%d]", i), x))
+		}
+	} else if g := req.GetDamping(); g != 0 {
+		ir.opt.DampingTHz = []float64{damp("damping", g)}
+	}
+	return ir
+}
+
+// unitDirection is the request's direction made a unit vector (zero, with
+// a violation, when it is not a finite non-zero vector).
+func unitDirection(d *modegridv1.Vec3, vs *violations) [3]float64 {
 	dir := [3]float64{canonFloat(d.GetX()), canonFloat(d.GetY()), canonFloat(d.GetZ())}
 	l := math.Sqrt(dir[0]*dir[0] + dir[1]*dir[1] + dir[2]*dir[2])
 	if !(l > 0) || math.IsInf(l, 0) {
 		vs.Add("direction", "must be a finite, non-zero Cartesian vector (the light's electric field), got (%v, %v, %v)", d.GetX(), d.GetY(), d.GetZ())
-	} else {
-		ir.opt.Direction = [3]float64{canonFloat(dir[0] / l), canonFloat(dir[1] / l), canonFloat(dir[2] / l)}
+		return [3]float64{}
 	}
+	return [3]float64{canonFloat(dir[0] / l), canonFloat(dir[1] / l), canonFloat(dir[2] / l)}
+}
+
+// irWindow checks the window and the number of samples and, for a window
+// given, lays the sample frequencies (THz) into ir.opt.
+func (s *Service) irWindow(req *modegridv1.ComputeInfraredRequest, ir *irRequest, vs *violations) {
 	ir.lo, ir.hi = canonFloat(req.GetMin()), canonFloat(req.GetMax())
 	switch {
 	case !(ir.lo >= 0) || math.IsInf(ir.lo, 0):
@@ -113,20 +138,6 @@ func (s *Service) infraredRequest(req *modegridv1.ComputeInfraredRequest, vs *vi
 			ir.opt.FreqTHz[i] = ir.unit.ToTHz(ir.lo + (ir.hi-ir.lo)*float64(i)/float64(ir.points-1))
 		}
 	}
-	damp := func(field string, x float64) float64 {
-		if !(x >= 0) || math.IsInf(x, 0) {
-			vs.Add(field, "must be a finite damping ≥ 0 (in the request's unit), got %v", x)
-		}
-		return ir.unit.ToTHz(canonFloat(x))
-	}
-	if md := req.GetModeDamping(); len(md) > 0 {
-		for i, x := range md {
-			ir.opt.DampingTHz = append(ir.opt.DampingTHz, damp(fmt.Sprintf("mode_damping[%d]", i), x))
-		}
-	} else if g := req.GetDamping(); g != 0 {
-		ir.opt.DampingTHz = []float64{damp("damping", g)}
-	}
-	return ir
 }
 
 // checkInfrared checks what needs the model — charges, the number of

@@ -66,13 +66,8 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	}
 	chunk = max(1, min(chunk, s.cfg.MaxChunkBytes/per))
 	opt.ChunkSize = chunk
-	polar := e.m.Polar()
-	if polar && qs.dirs != nil {
-		opt.GammaDirs = make([][3]float64, len(qs.dirs))
-		for i, d := range qs.dirs {
-			opt.GammaDirs[i] = e.m.CartesianQ(d)
-		}
-	}
+	opt.GammaDirs = cartesianDirs(e.m, qs.dirs)
+	toProto := modesConverter(e.m, unit, qs.dirs)
 
 	var p params
 	p.add("qpoints", qs.param())
@@ -100,10 +95,7 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 					Points:     make([]*modegridv1.Modes, len(c.Points)),
 				}
 				for i := range c.Points {
-					resp.Points[i] = modesToProto(&c.Points[i], unit)
-					if polar {
-						markGamma(resp.Points[i], &c.Points[i], qs.dirs, c.Offset+i)
-					}
+					resp.Points[i] = toProto(&c.Points[i], c.Offset+i)
 				}
 				return stream.Send(resp)
 			})
@@ -181,6 +173,34 @@ func modesToProto(pm *physics.PointModes, unit physics.Unit) *modegridv1.Modes {
 		}
 	}
 	return out
+}
+
+// cartesianDirs converts a list's directions of approach at Γ to the
+// Cartesian ones the engine takes (nil when none, or for a model without
+// a long-range term, which ignores them).
+func cartesianDirs(m *physics.Model, dirs [][3]float64) [][3]float64 {
+	if dirs == nil || !m.Polar() {
+		return nil
+	}
+	out := make([][3]float64, len(dirs))
+	for i, d := range dirs {
+		out[i] = m.CartesianQ(d)
+	}
+	return out
+}
+
+// modesConverter returns the conversion of the modes at the point of
+// index idx, frequencies in unit, with how a polar model's Γ was taken
+// (markGamma).
+func modesConverter(m *physics.Model, unit physics.Unit, dirs [][3]float64) func(pm *physics.PointModes, idx int) *modegridv1.Modes {
+	polar := m.Polar()
+	return func(pm *physics.PointModes, idx int) *modegridv1.Modes {
+		out := modesToProto(pm, unit)
+		if polar {
+			markGamma(out, pm, dirs, idx)
+		}
+		return out
+	}
 }
 
 // markGamma states how a polar model's Γ point was taken: along the
