@@ -13,10 +13,10 @@ import (
 // Flops is the work of the term at one q (AddTo) for n sites, blocks
 // real-space blocks in cells cell offsets and gvecs reciprocal vectors:
 // per block a complex 3×3 update (36 operations), per cell a phase
-// (about 40), per reciprocal vector its weight and the site vectors
-// (about 60 per site: a sine and cosine and the 3×3 product) and a
-// rank-one update of the lower triangle (8 operations per element,
-// (3n)(3n+1)/2 elements).
+// (about 40), per reciprocal vector its weight (about 20) and the site
+// vectors (about 30 per site: kept phases and the 3×3 product; counted
+// as 60) and a rank-one update of the lower triangle (8 operations per
+// element, (3n)(3n+1)/2 elements).
 func Flops(n, blocks, cells, gvecs int) float64 {
 	nm := float64(3 * n)
 	return 36*float64(blocks) + 40*float64(cells) + float64(gvecs)*(60*float64(n)+4*nm*(nm+1))
@@ -44,7 +44,8 @@ func Estimate(c *physics.Crystal) (Sizes, error) {
 	if err != nil {
 		return Sizes{}, err
 	}
-	s := Sizes{LambdaInvA: t.lambda, ReciprocalVectors: len(t.reciprocalVectors())}
+	gs, _ := t.reciprocalVectors()
+	s := Sizes{LambdaInvA: t.lambda, ReciprocalVectors: len(gs)}
 	cells := map[[3]int]bool{}
 	_ = t.eachReal(nil, t.lambda, func(_, _ int, n [3]int, _ [3]float64) {
 		s.RealBlocks++
@@ -91,15 +92,16 @@ func (s Sizes) FlopsPerQ(sites int) float64 {
 
 // BuildCost is the cost of NewTerm for these sizes: the blocks kept (88 B
 // each, counted as 96 for the allocator's rounding), their cells (64 B
-// each) and the vectors (24 B, counted as 32), each array counted first
+// each) and per reciprocal vector its coordinates, G·ε·G, Gaussian and
+// site phases (52 + 16n B, counted as 64 + 16n), each array counted first
 // and allocated once, the sum-rule matrix at q = 0 ((3n)² complex) and
-// 8 KiB of small arrays (TestCostEstimates: 1.0–1.1× of the allocation). Work: per block a complementary error function, an
+// 8 KiB of small arrays (TestCostEstimates: 1.0–1.2× of the allocation). Work: per block a complementary error function, an
 // exponential and the 3×3 sandwich (about 200 operations), one AddTo at
 // q = 0, and the distance tests of the enumeration (up to four passes:
 // counting for the default Λ, counting, computing).
 func (s Sizes) BuildCost(sites int) physics.Cost {
 	nm := int64(3 * sites)
-	b := 96*int64(s.RealBlocks) + 64*int64(s.Cells) + 32*int64(s.ReciprocalVectors) + 16*nm*nm + 8<<10
+	b := 96*int64(s.RealBlocks) + 64*int64(s.Cells) + (64+16*int64(sites))*int64(s.ReciprocalVectors) + 16*nm*nm + 8<<10
 	f := 200*float64(s.RealBlocks) + s.FlopsPerQ(sites) + 4*40*float64(s.RealBlocks)
 	return physics.Cost{Bytes: b, Flops: f}
 }

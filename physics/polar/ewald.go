@@ -73,8 +73,12 @@ type Term struct {
 	lat     [3][3]float64 // lattice vectors (rows), Å
 	recip   [3][3]float64 // reciprocal vectors (rows), Å⁻¹, 2π included
 
-	gvecs [][3]float64 // reciprocal lattice vectors of the sum, Cartesian
-	geg   []float64    // G·ε∞·G of each, Å⁻²: K·ε·K = G·ε·G + 2G·(εq) + q·ε·q
+	gvecs  [][3]float64 // reciprocal lattice vectors of the sum, Cartesian
+	gm     [][3]int32   // their integer coordinates, G = Σ m_k b_k
+	greach [3]int       // the largest |m_k|
+	geg    []float64    // G·ε∞·G of each, Å⁻²: K·ε·K = G·ε·G + 2G·(εq) + q·ε·q
+	gauss  []float64    // e^{−G·ε∞·G/4Λ²} of each
+	gphase []complex128 // e^{iG·τ_s}, G-major (gphase[g·n + s])
 	cells []realCell   // the cell offsets of the real-space terms
 	pairs []realPair   // the site pairs (i ≥ j) with real-space terms
 	real  []realBlock  // the blocks, pair by pair
@@ -117,6 +121,10 @@ type scratch struct {
 	dv [3][]complex128 // its derivatives along K_μ
 	// phase holds e^{iq·R_n} of every cell of the real-space sum.
 	phase []complex128
+	// qph holds e^{iq·τ_s} per site, tab the per-axis Gaussian factors
+	// of AddTo's reciprocal sum (qTables).
+	qph []complex128
+	tab [3][]float64
 }
 
 // DefaultLambda is the Ewald parameter (Å⁻¹) that balances the terms of
@@ -161,11 +169,7 @@ func NewTerm(ctx context.Context, m *physics.Model, p Params) (*Term, error) {
 	for i := range t.w {
 		t.w[i] = 1 // raw sums first: the sum-rule correction is mass-free
 	}
-	t.gvecs = t.reciprocalVectors()
-	t.geg = make([]float64, len(t.gvecs))
-	for i, g := range t.gvecs {
-		t.geg[i] = quad(g, &t.eps, g)
-	}
+	t.setReciprocal()
 	if err := t.realSpace(ctx); err != nil {
 		return nil, err
 	}
@@ -256,26 +260,52 @@ func enorm(x [3]float64, a *[9]float64) float64 { return math.Sqrt(quad(x, a, x)
 // reciprocalVectors lists every G that can pass the reciprocal cut-off
 // for some reduced q (fractional components in [−½, ½]): by the triangle
 // inequality of the ε-norm, ‖G‖_ε ≤ 2Λ√gaussCut + ½Σ_k‖b_k‖_ε.
-func (t *Term) reciprocalVectors() [][3]float64 {
+func (t *Term) reciprocalVectors() ([][3]float64, [][3]int32) {
 	lim := 2*t.lambda*math.Sqrt(gaussCut) + t.qMaxE()
 	reach := t.recipReach(t.lambda)
-	each := func(fn func(g [3]float64)) {
+	each := func(fn func(g [3]float64, m [3]int)) {
 		var m [3]int
 		for m[0] = -reach[0]; m[0] <= reach[0]; m[0]++ {
 			for m[1] = -reach[1]; m[1] <= reach[1]; m[1]++ {
 				for m[2] = -reach[2]; m[2] <= reach[2]; m[2]++ {
 					if g := t.cartG(m); enorm(g, &t.eps) <= lim {
-						fn(g)
+						fn(g, m)
 					}
 				}
 			}
 		}
 	}
 	n := 0
-	each(func([3]float64) { n++ }) // counted first: one allocation
-	out := make([][3]float64, 0, n)
-	each(func(g [3]float64) { out = append(out, g) })
-	return out
+	each(func([3]float64, [3]int) { n++ }) // counted first: one allocation
+	gs, ms := make([][3]float64, 0, n), make([][3]int32, 0, n)
+	each(func(g [3]float64, m [3]int) {
+		gs = append(gs, g)
+		ms = append(ms, [3]int32{int32(m[0]), int32(m[1]), int32(m[2])})
+	})
+	return gs, ms
+}
+
+// setReciprocal lists the reciprocal vectors and what every q shares of
+// their terms: G·ε·G, the Gaussian factor and the site phases e^{iG·τ_s}
+// (AddTo then needs no exponential or sine per vector: see there).
+func (t *Term) setReciprocal() {
+	t.gvecs, t.gm = t.reciprocalVectors()
+	for _, m := range t.gm {
+		for k := 0; k < 3; k++ {
+			t.greach[k] = max(t.greach[k], int(m[k]), -int(m[k]))
+		}
+	}
+	l2 := 4 * t.lambda * t.lambda
+	t.geg, t.gauss = make([]float64, len(t.gvecs)), make([]float64, len(t.gvecs))
+	t.gphase = make([]complex128, len(t.gvecs)*t.n)
+	for i, g := range t.gvecs {
+		t.geg[i] = quad(g, &t.eps, g)
+		t.gauss[i] = math.Exp(-t.geg[i] / l2)
+		for s, tau := range t.tau {
+			sn, cs := math.Sincos(g[0]*tau[0] + g[1]*tau[1] + g[2]*tau[2])
+			t.gphase[i*t.n+s] = complex(cs, sn)
+		}
+	}
 }
 
 // qMaxE bounds the ε-norm of a reduced wavevector: ½Σ_k ‖b_k‖_ε.
@@ -638,7 +668,10 @@ func (t *Term) Method() string {
 }
 
 func (t *Term) newScratch() *scratch {
-	s := &scratch{v: make([]complex128, 3*t.n), phase: make([]complex128, len(t.cells))}
+	s := &scratch{v: make([]complex128, 3*t.n), phase: make([]complex128, len(t.cells)), qph: make([]complex128, t.n)}
+	for k := range s.tab {
+		s.tab[k] = make([]float64, 2*t.greach[k]+1)
+	}
 	for a := range s.dv {
 		s.dv[a] = make([]complex128, 3*t.n)
 	}

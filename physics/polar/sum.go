@@ -60,6 +60,8 @@ func (t *Term) AddTo(q, dir [3]float64, a []complex128, stop func() bool) bool {
 	eq, qeq := t.epsTimes(kq)
 	pre := 4 * math.Pi / t.omega * physics.CoulombEVA
 	l2 := 4 * t.lambda * t.lambda
+	t.qTables(kq, eq, s)
+	cq := pre * math.Exp(-qeq/l2)
 	for gi, g := range t.gvecs {
 		if gi%pollEvery == 0 && stop != nil && stop() {
 			return false
@@ -72,8 +74,10 @@ func (t *Term) AddTo(q, dir [3]float64, a []complex128, stop func() bool) bool {
 		if k == ([3]float64{}) {
 			continue // K = 0 (Γ): the non-analytic term, below
 		}
-		t.siteVectors(k, s.v, true)
-		rankOne(a, nm, pre*math.Exp(-kek/l2)/kek, s.v)
+		m := &t.gm[gi]
+		gauss := t.gauss[gi] * s.tab[0][int(m[0])+t.greach[0]] * s.tab[1][int(m[1])+t.greach[1]] * s.tab[2][int(m[2])+t.greach[2]]
+		t.phasedVectors(k, s.qph, t.gphase[gi*t.n:(gi+1)*t.n], s.v)
+		rankOne(a, nm, cq*gauss/kek, s.v)
 	}
 	if gamma && dir != ([3]float64{}) {
 		ded := quad(dir, &t.eps, dir)
@@ -140,6 +144,46 @@ func (t *Term) cellPhases(q [3]float64, ph []complex128) {
 		n := &t.cells[ci].n
 		sn, cs := math.Sincos(2 * math.Pi * (q[0]*float64(n[0]) + q[1]*float64(n[1]) + q[2]*float64(n[2])))
 		ph[ci] = complex(cs, sn)
+	}
+}
+
+// qTables prepares what AddTo's reciprocal vectors share at one q: the
+// site phases e^{iq·τ_s}, and per axis k the powers x_k^m (|m| ≤
+// greach_k) of x_k = e^{−2 b_k·(εq)/4Λ²}, so that the Gaussian of K = q+G
+// is e^{−G·ε·G/4Λ²} (kept per G) · Π_k x_k^{m_k} · e^{−q·ε·q/4Λ²} — three
+// multiplications instead of an exponential (and e^{iK·τ_s} a product of
+// two kept phases instead of a sine and cosine). Each power is a product
+// of at most greach_k factors: relative error a few ε·greach_k.
+func (t *Term) qTables(kq, eq [3]float64, s *scratch) {
+	for i, tau := range t.tau {
+		sn, cs := math.Sincos(kq[0]*tau[0] + kq[1]*tau[1] + kq[2]*tau[2])
+		s.qph[i] = complex(cs, sn)
+	}
+	l2 := 4 * t.lambda * t.lambda
+	for k := 0; k < 3; k++ {
+		r := t.greach[k]
+		tab := s.tab[k][:2*r+1]
+		x := math.Exp(-2 * (t.recip[k][0]*eq[0] + t.recip[k][1]*eq[1] + t.recip[k][2]*eq[2]) / l2)
+		tab[r] = 1
+		up, down := 1.0, 1.0
+		for m := 1; m <= r; m++ {
+			up *= x
+			down /= x
+			tab[r+m], tab[r-m] = up, down
+		}
+	}
+}
+
+// phasedVectors fills v with (K·Z_s)_α e^{iq·τ_s} e^{iG·τ_s}/√m_s (the
+// site vectors of siteVectors from kept phases).
+func (t *Term) phasedVectors(k [3]float64, qph, gph []complex128, v []complex128) {
+	for i := 0; i < t.n; i++ {
+		z := &t.z[i]
+		ph := qph[i] * gph[i] * complex(t.w[i], 0)
+		for al := 0; al < 3; al++ {
+			kz := k[0]*z[al] + k[1]*z[3+al] + k[2]*z[6+al]
+			v[3*i+al] = complex(kz, 0) * ph
+		}
 	}
 }
 
