@@ -75,7 +75,8 @@ type IRMode struct {
 	// mutually orthogonal, the last of the group's charged modes having
 	// the largest charge along the direction (in a cubic crystal: exactly
 	// along it — the mode that becomes longitudinal), the others along the
-	// axes after it (orthogonal); the largest component is positive.
+	// axes after it (orthogonal); the largest component (the first, of
+	// equal ones) is positive.
 	Charge [3]float64
 	// Strength is the oscillator strength S_αβ = Z̃_α Z̃_β, e²/amu
 	// (Gonze & Lee 1997).
@@ -362,13 +363,13 @@ func dot(a, b []float64) float64 {
 func norm(a []float64) float64 { return math.Sqrt(dot(a, a)) }
 
 // setCharge stores a mode's charge, its sign fixed by the largest
-// component, and its strength.
+// component (the first of those within 1e-9 of the largest, so that
+// rounding cannot flip a tie between equal components), and its strength.
 func setCharge(md *IRMode, z [3]float64) {
+	top := math.Max(math.Abs(z[0]), math.Max(math.Abs(z[1]), math.Abs(z[2])))
 	big := 0
-	for al := 1; al < 3; al++ {
-		if math.Abs(z[al]) > math.Abs(z[big]) {
-			big = al
-		}
+	for math.Abs(z[big]) < (1-1e-9)*top {
+		big++
 	}
 	if z[big] < 0 {
 		z = [3]float64{-z[0], -z[1], -z[2]}
