@@ -157,11 +157,14 @@
 //
 // Per q the term costs, with n sites, B real-space blocks in C cells and
 // G reciprocal vectors, about 36B + 40C + G(60n + 4(3n)(3n+1)) operations
-// (Flops), against 8·interactions·9 for the short-range assembly: on the
-// project's machine about 20–35 µs per q for the 2-site example (0.3–0.4
-// µs short-range), 0.5 ms for 16 sites, 8 ms for 54 (DEVELOPERS.md has
-// the table; BenchmarkPerQ). The set-up keeps the blocks (96 B each, at
-// most 32 MiB) and the vectors (BuildCost).
+// (Flops), against 8·interactions·9 for the short-range assembly. Per
+// vector the reciprocal sum takes no exponential and no sine: G·ε·G, the
+// Gaussian e^{−G·ε·G/4Λ²} and the phases e^{iG·τ_s} are kept, and per q
+// the cross term e^{−2G·εq/4Λ²} comes from per-axis power tables. On the
+// project's machine: about 15 µs per q for the 2-site example (0.3 µs for
+// its springs), 0.7 ms for 16 sites, 9 ms for 54 (DEVELOPERS.md has the
+// table; BenchmarkPerQ). The set-up keeps the blocks (96 B each, at most
+// 32 MiB), the vectors with their phases, and BuildCost estimates it.
 //
 // # Invariants
 //
