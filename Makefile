@@ -23,7 +23,7 @@ test: proto-check lint fuzz-short
 FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
   ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal ./server:FuzzUploadModel \
   ./server:FuzzComputeGruneisen ./server:FuzzComputeQuasiHarmonic ./server:FuzzComputeConductivity \
-  ./server:FuzzFit \
+  ./server:FuzzFit ./server:FuzzComputeInfrared \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
   ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps \
   ./client/cmd/modegrid:FuzzParseSamples

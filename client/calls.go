@@ -98,6 +98,11 @@ func (c *Client) Thermal(ctx context.Context, req *modegridv1.ComputeThermalRequ
 	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeThermal, c.affinity, collectOptions(opts))
 }
 
+// Infrared calls ComputeInfrared.
+func (c *Client) Infrared(ctx context.Context, req *modegridv1.ComputeInfraredRequest, opts ...CallOption) (*modegridv1.ComputeInfraredResponse, error) {
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeInfrared, c.affinity, collectOptions(opts))
+}
+
 // Modes calls ComputeModes and collects the whole stream into one response
 // (offset 0, every point in q order).
 func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest, opts ...CallOption) (*modegridv1.ComputeModesResponse, error) {

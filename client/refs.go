@@ -17,8 +17,8 @@ import (
 const maxRefs = 256
 
 // modelKey identifies an inline model on the client side: a SHA-256 of its
-// deterministic protobuf encoding (with the symmetry options when set) and
-// the sum-rule flag. It is not the
+// deterministic protobuf encoding (with the symmetry and charge-neutrality
+// options when set) and the sum-rule flag. It is not the
 // server's model hash (that one is canonical in meaning, not in bytes).
 type modelKey [sha256.Size + 1]byte
 
@@ -32,10 +32,11 @@ func keyOf(src *modegridv1.ModelSource) (modelKey, bool) {
 	// the key (serialised with the crystal; absent when unset, so keys of
 	// sources without them are unchanged).
 	var opts []byte
-	if src.GetSymmetryToleranceA() != 0 || src.GetSymmetrize() {
+	if src.GetSymmetryToleranceA() != 0 || src.GetSymmetrize() || src.GetEnforceChargeNeutrality() {
 		var err error
 		opts, err = proto.MarshalOptions{Deterministic: true}.Marshal(&modegridv1.ModelSource{
-			SymmetryToleranceA: src.GetSymmetryToleranceA(), Symmetrize: src.GetSymmetrize()})
+			SymmetryToleranceA: src.GetSymmetryToleranceA(), Symmetrize: src.GetSymmetrize(),
+			EnforceChargeNeutrality: src.GetEnforceChargeNeutrality()})
 		if err != nil {
 			return k, false
 		}

@@ -34,6 +34,7 @@ func TestWithSource(t *testing.T) {
 		{name: "dispersion", req: &modegridv1.ComputeDispersionRequest{Model: src, Path: []*modegridv1.PathPoint{{Label: "G"}, {Label: "X"}}, Points: 11}},
 		{name: "dos", req: &modegridv1.ComputeDosRequest{Model: src, Qpoints: qs, PerSite: true, Step: 0.1}},
 		{name: "thermal", req: &modegridv1.ComputeThermalRequest{Model: src, Qpoints: qs, TemperaturesK: []float64{300}, Msd: true}},
+		{name: "infrared", req: &modegridv1.ComputeInfraredRequest{Model: src, Direction: &modegridv1.Vec3{X: 1}, Points: 11, ModeDamping: []float64{1, 2}}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -84,6 +85,11 @@ func TestKeyOf(t *testing.T) {
 	withRule.EnforceSumRule = true
 	if k, _ := keyOf(withRule); k == ka {
 		t.Error("enforce_sum_rule does not change the key")
+	}
+	withCharge := Inline(a)
+	withCharge.EnforceChargeNeutrality = true
+	if k, _ := keyOf(withCharge); k == ka || k == func() modelKey { k, _ := keyOf(withRule); return k }() {
+		t.Error("enforce_charge_neutrality does not change the key")
 	}
 	if k, _ := keyOf(Inline(chain(41))); k == ka {
 		t.Error("a different mass has the same key")

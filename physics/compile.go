@@ -26,6 +26,13 @@ type Options struct {
 	// a model compiled with another tolerance has another hash, since the
 	// operations found (and so grid reductions) may differ.
 	SymTolA float64
+	// EnforceChargeNeutrality imposes Σ_sites Z* = 0 on the Born effective
+	// charges by the smallest correction (longrange.go, setPolar).
+	EnforceChargeNeutrality bool
+	// LongRange builds the long-range term of a crystal with Born charges
+	// (physics/polar.Builder); Compile refuses such a crystal without it
+	// (ErrNoLongRangeBuilder). Unused for crystals without charges.
+	LongRange LongRangeBuilder
 }
 
 // symTol returns the symmetry tolerance, resolving 0 to the default.
@@ -106,6 +113,11 @@ type Model struct {
 	springs   []springBond
 	hasBlocks bool
 	lw        lazy[*longWave] // computed on first use by longWaveLimit
+
+	// Born charges and ε∞ (nil without), and the long-range term they
+	// imply, built by Options.LongRange (longrange.go).
+	polar     *polarData
+	longRange LongRange
 }
 
 // Compile validates c and builds its force constants. A model that fails
@@ -135,6 +147,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	}
 	m := newModel(c)
 	m.symTolA = opt.symTol()
+	m.setPolar(c, opt.EnforceChargeNeutrality)
 	toEV := func(k float64) float64 { return k } // force constants to eV/Å²
 	if c.ForceUnit == NPerM {
 		// One division (a single rounding), so that a value converted to
@@ -157,6 +170,9 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	}
 	m.setTerms(raw)
 	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	if err := m.buildLongRange(ctx, opt); err != nil {
 		return nil, err
 	}
 	m.hash = m.canonicalHash(raw)

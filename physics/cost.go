@@ -59,12 +59,20 @@ type GridSize struct {
 	// bound IrreducibleUpperBound. Ignored with NoSymmetry (all points).
 	Irreducible int
 	Workers     int // goroutines of the parallel loops (0: GOMAXPROCS)
+	// LongRangeFlops is the work of the model's long-range term at one
+	// q-point (LongRange.FlopsPerQ; physics/polar.Cost before a compile),
+	// 0 without one: part of every assembly of D(q).
+	LongRangeFlops float64
 }
 
 // GridSizeOf fills a GridSize for model m on spec (normalised, see
 // GridSpec.Normalize) with irr irreducible points (0: unknown).
 func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
-	return GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
+	s := GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
+	if m.longRange != nil {
+		s.LongRangeFlops = m.longRange.FlopsPerQ()
+	}
+	return s
 }
 
 // Modes is the number of modes per point (sites × p).
@@ -130,10 +138,11 @@ func diagFlops(n int, vectors bool) float64 {
 }
 
 // assembleFlops is the work of building D(q): a complex phase and a p×p
-// block per interaction, plus filling the n² matrix.
+// block per interaction, plus filling the n² matrix, plus the long-range
+// term's sum.
 func (s GridSize) assembleFlops() float64 {
 	n := float64(s.Modes())
-	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
+	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n + s.LongRangeFlops
 }
 
 // workspaceBytes is one worker's eigensolver workspace (eigen.Work: a and

@@ -17,6 +17,16 @@
 // StandardPoints), sound velocities (SoundVelocities) and a stability check
 // (Stability). Model.Hash is the canonical hash of the compiled physics.
 //
+// A crystal may carry polar data — every site's Born effective charge and
+// the high-frequency dielectric tensor ε∞ — which the core validates,
+// compiles (Options.EnforceChargeNeutrality imposes Σ Z* = 0) and hashes;
+// their dipole–dipole term is a LongRange built by Options.LongRange
+// (physics/polar.Builder) and added wherever D(q) and ∂D/∂q are assembled
+// (longrange.go). It is not analytic at Γ: ModesToward, ModeOptions.GammaDirs
+// and the samples of a path (PathSample.GammaDir) give the direction of
+// approach; grids take its analytic part. Compile refuses charges without
+// a builder.
+//
 // # Units
 //
 // Lengths are in ångström (Å), masses in unified atomic mass units (amu) and
@@ -200,7 +210,10 @@
 // spelling, the name, the order of springs, shells and blocks, a bond given
 // as its reverse, a shell versus its explicit springs, a zero spring,
 // enforcing a sum rule that already holds, and N/m versus eV/Å² where the
-// conversion gives the same float64 all share one hash. Rotation and
+// conversion gives the same float64 all share one hash. Polar data (the
+// charges as used, ε∞'s symmetric part, the neutrality violation as given,
+// and the long-range method with its parameter) are appended only when
+// present, so models without them hash as before they existed. Rotation and
 // renumbering change it: they move eigenvectors, velocities and per-site
 // results (see Hash).
 //
@@ -272,6 +285,10 @@
 //   - physics/fcimport — above the core, in spectra's layer: folds a
 //     supercell force-constant set into the core's explicit blocks,
 //     optionally averaged over the crystal's space group.
+//   - physics/polar — above the core, in spectra's layer: the
+//     dipole–dipole (Ewald) term of polar crystals that fills the core's
+//     LongRange hook, the dipole part of supercell sets, the infrared
+//     response (mode charges, ε(ω), reflectivity) and their costs.
 //   - physics (this package) — the model, validation, compilation, the
 //     dynamical matrix, symmetry with site maps, modes, velocities,
 //     long-wave limit and elastic Debye temperature, paths, stability,
@@ -302,6 +319,6 @@
 //     against thermo's.
 //
 // Capabilities still to come each get a package of their own above the
-// core (DEVELOPERS.md, Architecture): polar crystals and the dipole–dipole
-// sum (physics/polar), scattering intensities (physics/scatter).
+// core (DEVELOPERS.md, Architecture): scattering intensities
+// (physics/scatter).
 package physics

@@ -98,6 +98,10 @@ func (m *Model) buildBlocks() {
 // per-point state of the assembly, reused across points.
 type phaseTable struct {
 	pw [3][]complex128
+	// gammaDir is the Cartesian direction from which Γ is approached when
+	// q is a reciprocal lattice vector, for a long-range term (zero: its
+	// analytic part only; longrange.go).
+	gammaDir [3]float64
 }
 
 // fill computes the tables for q by repeated multiplication (the error
@@ -211,7 +215,7 @@ func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func(
 			}
 		}
 	}
-	return true
+	return m.addLongRange(q, t.gammaDir, a, stop)
 }
 
 // assembleGrad writes the lower triangles of ∂D/∂q_α (α = x, y, z,
@@ -270,7 +274,7 @@ func (m *Model) assembleGrad(q [3]float64, g *[3][]complex128, t *phaseTable, st
 			}
 		}
 	}
-	return true
+	return m.longRange == nil || m.longRange.AddGradTo(q, g, stop)
 }
 
 // fillUpper completes a Hermitian matrix from its lower triangle.
@@ -291,8 +295,10 @@ func fillUpper(a []complex128, n int) {
 //	D_{iα,jβ}(q) = Σ_n Φ_αβ(0i; nj) exp(2πi q·n) / sqrt(m_i m_j).
 //
 // D is Hermitian by construction: the upper triangle is the conjugate of
-// the lower one, which is the only part computed. q must be finite with
-// |qₖ| ≤ MaxQ; it panics otherwise (check user data with ValidateQPoints).
+// the lower one, which is the only part computed. A model's long-range
+// term (longrange.go) is included, with its analytic part at Γ
+// (ModesToward takes a direction there). q must be finite with |qₖ| ≤
+// MaxQ; it panics otherwise (check user data with ValidateQPoints).
 func (m *Model) DynamicalMatrix(q [3]float64, out []complex128) []complex128 {
 	mustQ("DynamicalMatrix", q)
 	nm := m.ModeCount()

@@ -138,6 +138,9 @@ func (m *Model) SoundVelocities(ctx context.Context, dir [3]float64) ([]float64,
 		return nil, nil
 	}
 	u := lattice.Scale(qdir, 1/l)
+	if m.longRange != nil {
+		return m.polarSoundVelocities(ctx, u)
+	}
 	lw, err := m.longWaveLimit(ctx)
 	if err != nil || !lw.ok {
 		return nil, err

@@ -93,6 +93,7 @@ func (m *Model) canonicalHash(raw []term) string {
 		enc.str("symmetry_tolerance_a")
 		enc.float(m.symTolA)
 	}
+	m.hashPolar(&enc)
 	return hex.EncodeToString(h.Sum(nil))
 }
 

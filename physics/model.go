@@ -25,6 +25,10 @@ type Crystal struct {
 	Springs       []Spring
 	Shells        []Shell
 	Blocks        []Block
+	// EpsilonInf is the high-frequency dielectric tensor ε∞ (9 numbers,
+	// row-major, dimensionless), given with every site's BornCharge or not
+	// at all (longrange.go).
+	EpsilonInf []float64
 }
 
 // Site is one atom of the primitive cell.
@@ -32,6 +36,9 @@ type Site struct {
 	Label   string
 	MassAmu float64
 	Frac    []float64 // fractional position, d numbers
+	// BornCharge is the Born effective-charge tensor Z* (9 numbers,
+	// row-major, e: row α the dipole, column β the displacement), or none.
+	BornCharge []float64
 }
 
 // Spring is a pair spring between site From in cell 0 and site To in cell

@@ -56,10 +56,11 @@ const eigenTolFactor = 4
 // Householder reduction and QL, n·ε‖D‖ up to a modest constant (Golub &
 // Van Loan, Matrix Computations, 4th ed., §8.3.1 and §8.3.5; Parlett, The
 // Symmetric Eigenvalue Problem, §8.15), plus the rounding of D itself,
-// summed over C cells with the sum-rule self terms (C·ε·Λ). See doc.go,
-// Zero and imaginary modes.
+// summed over C cells with the sum-rule self terms (C·ε·Λ), plus the same
+// allowance for a long-range term (c·terms·ε·scale, longrange.go). See
+// doc.go, Zero and imaginary modes.
 func (m *Model) EigenTol() float64 {
-	return eigenTolFactor * float64(m.ModeCount()+len(m.cells)) * eigen.Epsilon * m.lambdaScale
+	return eigenTolFactor*float64(m.ModeCount()+len(m.cells))*eigen.Epsilon*m.lambdaScale + m.longRangeTol()
 }
 
 // EigenTolTHz is EigenTol as a frequency (THz): a mode with |ν| up to
@@ -114,6 +115,13 @@ type ModeOptions struct {
 	// (first-order degenerate perturbation theory along that direction).
 	// Zero means a fixed generic direction. See velocity.go.
 	VelocityDir [3]float64
+	// GammaDirs, when not nil, holds one Cartesian direction per point of a
+	// StreamModes list: at a point that is a reciprocal lattice vector, the
+	// direction from which q approaches it, for a model with a long-range
+	// term (LO–TO splitting); a zero direction takes the term's analytic
+	// part only, as every grid does. Ignored at other points, for other
+	// models, and by Point.
+	GammaDirs [][3]float64
 }
 
 // PointModes holds the modes at one q-point.
@@ -310,10 +318,8 @@ func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOpti
 	if err := ValidateQPoints(m.dim, pts, "points"); err != nil {
 		return err
 	}
-	if !finite3(opt.VelocityDir) {
-		var vs Violations
-		vs.Add("velocity_dir", "must be finite, got %v", opt.VelocityDir)
-		return vs.Err()
+	if err := checkModeOptions(opt, len(pts)); err != nil {
+		return err
 	}
 	if emit == nil {
 		return errors.New("physics: StreamModes needs an emit function")
@@ -405,6 +411,10 @@ func (w *pointWork) chunk(pts []mesh.QPoint, offset, n int, opt ModeOptions) (Mo
 		}
 		pm := &mc.Points[i]
 		pm.Q, pm.Weight = p.Q, p.Weight
+		w.ph.gammaDir = [3]float64{}
+		if opt.GammaDirs != nil {
+			w.ph.gammaDir = opt.GammaDirs[offset+i]
+		}
 		pm.FreqTHz = freq[i*n : (i+1)*n : (i+1)*n]
 		if vecs != nil {
 			pm.Eigvecs = vecs[i*n*n : (i+1)*n*n : (i+1)*n*n]
@@ -454,6 +464,25 @@ func ValidateQPoints(dim int, pts []mesh.QPoint, prefix string) error {
 
 // qRangeMsg is the violation text of a q component out of the domain.
 const qRangeMsg = "must be a finite number within ±1e6 reciprocal-lattice units (D(q) is periodic: reduce q modulo 1), got %v"
+
+// checkModeOptions checks the directions of StreamModes' options for a
+// list of n points: VelocityDir finite (field "velocity_dir"), GammaDirs
+// nil or one finite direction per point ("gamma_dirs").
+func checkModeOptions(opt ModeOptions, n int) error {
+	var vs Violations
+	if !finite3(opt.VelocityDir) {
+		vs.Add("velocity_dir", "must be finite, got %v", opt.VelocityDir)
+	}
+	if opt.GammaDirs != nil && len(opt.GammaDirs) != n {
+		vs.Add("gamma_dirs", "must have one direction per point (%d), got %d", n, len(opt.GammaDirs))
+	}
+	for i, d := range opt.GammaDirs {
+		if !finite3(d) {
+			vs.Add(fmt.Sprintf("gamma_dirs[%d]", i), "must be finite, got %v", d)
+		}
+	}
+	return vs.Err()
+}
 
 // finite3 reports whether every component of v is finite.
 func finite3(v [3]float64) bool { return finite(v[0]) && finite(v[1]) && finite(v[2]) }

@@ -58,6 +58,13 @@ type PathSample struct {
 	// Σ_axes |e_s,axis|² of the normalised eigenvector of D(q), in [0, 1]
 	// and summing to 1 over the sites (see siteShares for degenerate modes).
 	SiteWeight []float64
+	// GammaDir, at a sample on Γ of a model with a long-range term, is the
+	// direction from which the path reaches or leaves it, as a fractional
+	// reciprocal vector (the segment's Δq, largest |component| 1): the
+	// non-analytic limit taken there. A corner on Γ between two segments of
+	// different directions is sampled twice, at one distance, once with
+	// each (LO–TO splitting on both sides). Zero elsewhere.
+	GammaDir [3]float64
 }
 
 // lookupLabel resolves a built-in label.
@@ -106,6 +113,7 @@ func (m *Model) Dispersion(ctx context.Context, corners []PathCorner, opt PathOp
 		return nil, vs.Err()
 	}
 	samples, pieceStart := pathSamples(corners, qs, seglen, steps, nsamples)
+	samples, pieceStart = m.splitGamma(samples, pieceStart)
 	if err := m.fillPathModes(ctx, samples, pieceStart, opt); err != nil {
 		return nil, err
 	}
@@ -282,7 +290,7 @@ func (m *Model) fillPathModes(ctx context.Context, samples []PathSample, pieceSt
 	}
 	n := m.ModeCount()
 	var conn *connector
-	mopt := ModeOptions{Eigenvectors: opt.FollowModes || opt.SiteWeights}
+	mopt := ModeOptions{Eigenvectors: opt.FollowModes || opt.SiteWeights, GammaDirs: m.gammaDirsOf(samples)}
 	if opt.FollowModes {
 		conn = newConnector(n)
 	}

@@ -35,7 +35,9 @@ import (
 //     positions when the result is compiled;
 //   - explicit blocks are summed per bond and averaged over the group,
 //     Φ̄(i; n j) = Σ_g C_gᵀ Φ(g(i); g(n j)) C_g / N, one block per bond
-//     (missing images count as zero).
+//     (missing images count as zero);
+//   - Born charges and ε∞ are averaged as the tensors they are,
+//     Z̄_i = Σ_g C_gᵀ Z_{g(i)} C_g / N and ε̄ = Σ_g C_gᵀ ε C_g / N.
 //
 // Errors are those of Compile and Symmetry (ctx ending first included).
 func Symmetrize(ctx context.Context, c *Crystal, opt Options) (*Crystal, int, error) {
@@ -59,6 +61,7 @@ func Symmetrize(ctx context.Context, c *Crystal, opt Options) (*Crystal, int, er
 	if len(c.Blocks) > 0 {
 		out.Blocks = m.symmetricBlocks(ops, c.Blocks)
 	}
+	symmetricPolar(ops, c, &out)
 	return &out, len(ops), nil
 }
 

@@ -19,7 +19,15 @@ const (
 	BoltzmannEVPerK     = BoltzmannJPerK / ElementaryChargeC
 	GasConstantJPerMolK = BoltzmannJPerK * AvogadroPerMol // R
 	AngstromM           = 1e-10                           // 1 Å in m (exact)
+	// ε₀, the vacuum electric permittivity, F/m (CODATA 2018; no longer
+	// exact since the 2019 SI: relative standard uncertainty 1.5e-10).
+	VacuumPermittivityFPerM = 8.8541878128e-12
 )
+
+// CoulombEVA is the Coulomb constant in the engine's units,
+// e²/(4πε₀) = 14.3996454784 eV·Å: the energy in eV of two elementary
+// charges 1 Å apart (CODATA 2018 e and ε₀).
+const CoulombEVA = ElementaryChargeC / (4 * math.Pi * VacuumPermittivityFPerM * AngstromM)
 
 // OmegaUnitRadPerS is ω in rad/s of an eigenvalue of 1 eV/Å²/amu:
 // sqrt(e / (1e-20 m² · m_u)) ≈ 9.82269475e13 rad/s.

@@ -181,6 +181,7 @@ func validate(c *Crystal, lim Limits, vs *Violations) {
 	v.checkSprings()
 	v.checkBlocks()
 	v.checkShells()
+	v.checkPolar()
 	if total := len(c.Springs) + len(c.Blocks); total > lim.MaxInteractions {
 		vs.Add("springs", "springs and blocks number %d, more than the limit of %d interactions", total, lim.MaxInteractions)
 	}

@@ -37,6 +37,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/polar"
 	"github.com/materials-lab/modegrid/physics/spectra"
 	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
@@ -398,5 +399,8 @@ func (s *Service) typicalCosts(e *modelEntry) []*modegridv1.RequestCost {
 	opt := physics.ModeOptions{Eigenvectors: true}
 	est, per := s.modesCost(e, 1000, opt)
 	add("modes 1000 q-points eigenvectors", est, per <= float64(s.cfg.MaxMsgBytes))
+	if e.m.Polar() {
+		add(fmt.Sprintf("infrared %d points", polar.DefaultIRPoints), estimate{cost: polar.InfraredCost(size, polar.DefaultIRPoints)}, true)
+	}
 	return out
 }

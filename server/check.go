@@ -9,6 +9,7 @@ import (
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/polar"
 
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
@@ -98,6 +99,7 @@ func (s *Service) modelSummary(e *modelEntry, canon string) *modegridv1.CheckMod
 		ModesPerCell:            uint32(m.ModeCount()),
 		SumRuleViolationEvPerA2: m.SumRuleViolation(),
 		LatticeType:             m.LatticeType(),
+		Polar:                   polarCheck(m),
 	}
 	std := m.StandardPoints()
 	labels := make([]string, 0, len(std))
@@ -160,6 +162,10 @@ func withDescription(resp *modegridv1.CheckModelResponse, e *modelEntry) *modegr
 	out.Interactions = uint32(e.m.Interactions())
 	out.Symmetrized = e.symmetrized
 	out.SupercellFold = e.fold
+	if out.Polar != nil {
+		// A sum rule enforced where it already held leaves the hash alone.
+		out.Polar.ChargeNeutralityEnforced = e.m.ChargeNeutralityEnforced()
+	}
 	out.Shells = nil
 	for i, sh := range e.m.Shells() {
 		out.Shells = append(out.Shells, &modegridv1.ShellBonds{Shell: uint32(i), Bonds: uint32(sh.Bonds), DistanceA: sh.DistanceA})
@@ -208,4 +214,20 @@ func looserSymmetry(ctx context.Context, m *physics.Model) ([]*modegridv1.Symmet
 		out = append(out, &modegridv1.SymmetryAtTolerance{ToleranceA: tol, Operations: uint32(len(ops))})
 	}
 	return out, nil
+}
+
+// polarCheck summarises a model's polar data (nil without): the charge
+// neutrality violation as given and the size of the dipole–dipole Ewald
+// sum (whether the rule was enforced is the request's: withDescription).
+func polarCheck(m *physics.Model) *modegridv1.PolarCheck {
+	if !m.Polar() {
+		return nil
+	}
+	out := &modegridv1.PolarCheck{ChargeNeutralityViolationE: m.ChargeNeutralityViolation()}
+	if t, ok := m.LongRangeTerm().(*polar.Term); ok {
+		out.EwaldParameterInvA = t.LambdaInvA()
+		out.EwaldRealTerms = uint32(t.RealTerms())
+		out.EwaldReciprocalVectors = uint32(t.ReciprocalVectors())
+	}
+	return out
 }

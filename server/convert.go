@@ -24,7 +24,7 @@ func crystalFromProto(c *modegridv1.Crystal) *physics.Crystal {
 		out.Lattice = append(out.Lattice, [3]float64{v.GetX(), v.GetY(), v.GetZ()})
 	}
 	for _, s := range c.GetSites() {
-		out.Sites = append(out.Sites, physics.Site{Label: s.GetLabel(), MassAmu: s.GetMassAmu(), Frac: s.GetFrac()})
+		out.Sites = append(out.Sites, physics.Site{Label: s.GetLabel(), MassAmu: s.GetMassAmu(), Frac: s.GetFrac(), BornCharge: s.GetBornCharge()})
 	}
 	for _, s := range c.GetSprings() {
 		out.Springs = append(out.Springs, physics.Spring{From: int(s.GetFromSite()), To: int(s.GetToSite()), Cell: ints(s.GetCell()), KLong: s.GetKLong(), KTrans: s.GetKTrans()})
@@ -32,6 +32,7 @@ func crystalFromProto(c *modegridv1.Crystal) *physics.Crystal {
 	for _, s := range c.GetShells() {
 		out.Shells = append(out.Shells, physics.Shell{FromLabel: s.GetFromLabel(), ToLabel: s.GetToLabel(), Shell: int(s.GetShell()), KLong: s.GetKLong(), KTrans: s.GetKTrans()})
 	}
+	out.EpsilonInf = c.GetEpsilonInf()
 	for _, b := range c.GetBlocks() {
 		out.Blocks = append(out.Blocks, physics.Block{From: int(b.GetFromSite()), To: int(b.GetToSite()), Cell: ints(b.GetCell()), Phi: b.GetPhi()})
 	}

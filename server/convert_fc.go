@@ -6,6 +6,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/fcimport"
+	"github.com/materials-lab/modegrid/physics/polar"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -23,8 +24,11 @@ const maxSupercellSites = 64
 // again). A model with the set and springs, shells or blocks too is
 // refused (they would not combine meaningfully). maxSites 0 means no cap.
 // The returned report (nil without a set) says what the fold found and
-// corrected; CheckModel answers it.
-func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int, opt fcimport.Options) (*physics.Crystal, *modegridv1.SupercellFold, error) {
+// corrected; CheckModel answers it. For a polar crystal the dipole–dipole
+// part is taken out of the set before the fold (and the compiled model
+// adds it back at every q), with the charges made neutral first when
+// enforce is set, as the model will use them.
+func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Crystal, maxSites int, opt fcimport.Options, enforce bool) (*physics.Crystal, *modegridv1.SupercellFold, error) {
 	fc := cr.GetSupercellFc()
 	if fc == nil {
 		return c, nil, nil
@@ -42,7 +46,14 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 	if err := vs.Err(); err != nil {
 		return nil, nil, err
 	}
-	out, rep, err := fcimport.FoldModel(ctx, c, setFromProto(fc), opt)
+	set := setFromProto(fc)
+	if len(c.EpsilonInf) > 0 {
+		var err error
+		if set.LongRange, err = polar.SupercellPart(ctx, c, set.Matrix, enforce); err != nil {
+			return nil, nil, err
+		}
+	}
+	out, rep, err := fcimport.FoldModel(ctx, c, set, opt)
 	if err != nil {
 		return nil, nil, fmt.Errorf("folding the supercell force constants: %w", err)
 	}

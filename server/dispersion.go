@@ -119,6 +119,13 @@ func (s *Service) checkDispersion(e *modelEntry, path []*modegridv1.PathPoint, o
 		if opt.SpacingInvA > 0 {
 			n = int(pathLengthInvA(e.m, corners)/opt.SpacingInvA) + len(corners)
 		}
+		if e.m.Polar() {
+			for _, c := range corners { // a polar model samples a Γ corner from both sides
+				if physics.IsGamma(c.Q) {
+					n++
+				}
+			}
+		}
 		c := physics.DispersionCost(e.m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1), n, opt.FollowModes || opt.SiteWeights, opt.SiteWeights)
 		c.Bytes += 2 * int64(n) * int64(perSample)
 		est = estimate{cost: c, field: "points", change: "fewer samples (points or spacing_inv_a)"}
@@ -168,6 +175,9 @@ func dispersionToProto(hash, canon string, unit physics.Unit, samples []physics.
 		}
 		out.Samples[i] = &modegridv1.DispersionSample{DistanceInvA: smp.DistanceInvA, Label: smp.Label, Frequencies: f,
 			Q: &modegridv1.QPoint{Q1: smp.Q[0], Q2: smp.Q[1], Q3: smp.Q[2]}, SiteWeights: smp.SiteWeight}
+		if d := smp.GammaDir; d != ([3]float64{}) {
+			out.Samples[i].GammaDirection = &modegridv1.QPoint{Q1: d[0], Q2: d[1], Q3: d[2]}
+		}
 	}
 	return out
 }

@@ -43,8 +43,8 @@ package server
 //
 // # Caching
 //
-// Results of CheckModel, ComputeDispersion, ComputeDos and ComputeThermal
-// are cached by (model hash, canonical parameters), so requests equal in
+// Results of CheckModel, ComputeDispersion, ComputeDos, ComputeThermal and
+// ComputeInfrared are cached by (model hash, canonical parameters), so requests equal in
 // meaning hit however they are spelled. The modes on a grid — the costly
 // intermediate of a density of states or a thermal calculation — are
 // cached by (model hash, grid, what is kept: frequencies, site weights or

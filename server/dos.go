@@ -205,6 +205,7 @@ func dosToProto(e *modelEntry, canon string, r *spectra.DOSResult) *modegridv1.C
 		ImaginaryModes: uint32(r.Imaginary),
 		StatesPerCell:  r.StatesPerCell,
 		Width:          r.Width,
+		GammaAnalytic:  e.m.Polar(),
 	}
 	labels := e.m.Labels()
 	for i, d := range r.Sites {

@@ -48,6 +48,7 @@ import (
 	"google.golang.org/protobuf/reflect/protoreflect"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/polar"
 	"github.com/materials-lab/modegrid/proto/examples"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
@@ -176,7 +177,7 @@ func FuzzModelJSON(f *testing.F) {
 		var m *physics.Model
 		var err error
 		withinTime(t, 10*time.Second, "Compile", func() {
-			m, err = physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+			m, err = physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits, EnforceChargeNeutrality: sumRule, LongRange: polar.Builder()})
 		})
 		if err != nil {
 			ve, ok := err.(*physics.ValidationError)
@@ -200,7 +201,7 @@ func FuzzModelJSON(f *testing.F) {
 		if !isHash(m.Hash()) {
 			t.Fatalf("hash %q is not 64 hex digits", m.Hash())
 		}
-		again, err := physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits})
+		again, err := physics.Compile(context.Background(), crystalFromProto(&c), physics.Options{EnforceSumRule: sumRule, Limits: fuzzLimits, EnforceChargeNeutrality: sumRule, LongRange: polar.Builder()})
 		if err != nil || again.Hash() != m.Hash() {
 			t.Fatalf("compiling again: %v, hash %s; want %s", err, again.Hash(), m.Hash())
 		}
@@ -395,6 +396,8 @@ func respFor(method string) proto.Message {
 		return &modegridv1.ComputeModesResponse{}
 	case modegridv1.ModegridService_Fit_FullMethodName:
 		return &modegridv1.FitResponse{}
+	case modegridv1.ModegridService_ComputeInfrared_FullMethodName:
+		return &modegridv1.ComputeInfraredResponse{}
 	}
 	panic("server fuzz: no response type for " + method)
 }
@@ -408,7 +411,7 @@ func fuzzModels(tb testing.TB) []*modegridv1.ModelSource {
 		if len(c.GetSites()) > fuzzConfig.MaxSites {
 			continue
 		}
-		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{})
+		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{LongRange: polar.Builder()})
 		if err != nil {
 			tb.Fatal(err)
 		}
@@ -703,7 +706,7 @@ func fitSeeds(tb testing.TB) []proto.Message {
 		if len(c.GetSprings()) == 0 {
 			free = "shells[0].k_long"
 		}
-		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{})
+		m, err := physics.Compile(context.Background(), crystalFromProto(c), physics.Options{LongRange: polar.Builder()})
 		if err != nil {
 			tb.Fatal(err)
 		}
@@ -770,6 +773,47 @@ func FuzzFit(f *testing.F) {
 	})
 }
 
+// infraredSeeds are requests for the infrared response: of every example
+// (the non-polar ones are refused), and with bad and extreme options on
+// the polar example.
+func infraredSeeds(tb testing.TB) []proto.Message {
+	var out []proto.Message
+	for _, src := range fuzzModels(tb) {
+		out = append(out, &modegridv1.ComputeInfraredRequest{Model: src, Direction: &modegridv1.Vec3{X: 1, Y: 1}, Points: 50,
+			Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_CM1})
+	}
+	p := inline(example(tb, "polar-rocksalt-like"))
+	return append(out,
+		&modegridv1.ComputeInfraredRequest{Model: p, Direction: &modegridv1.Vec3{Z: 1}, Min: 1, Max: 20, Points: 3, ModeDamping: []float64{0, 0, 0, 0.1, 0.2, 0.3}},
+		&modegridv1.ComputeInfraredRequest{Model: p, Direction: &modegridv1.Vec3{X: 1e-300}, Damping: 1e300},
+		&modegridv1.ComputeInfraredRequest{Model: p, Direction: &modegridv1.Vec3{X: 1e300, Y: 1e300}, Max: 1e308, Points: 2},
+		&modegridv1.ComputeInfraredRequest{Model: p, Unit: 9, Min: math.NaN(), Points: 1, Damping: -1, ModeDamping: []float64{1}})
+}
+
+// FuzzComputeInfrared: any bytes as a ComputeInfraredRequest; an accepted
+// one gives finite numbers, R in [0, 1] and ε″ ≥ 0.
+func FuzzComputeInfrared(f *testing.F) {
+	fuzzRPC(f, rpcTarget{
+		method: modegridv1.ModegridService_ComputeInfrared_FullMethodName,
+		req:    func() proto.Message { return &modegridv1.ComputeInfraredRequest{} },
+		check: func(fc fuzzCase, rs []proto.Message) {
+			r := rs[0].(*modegridv1.ComputeInfraredResponse)
+			fc.finite("dielectric constants", append(append([]float64{r.GetEpsilonInfAlong(), r.GetEpsilonStaticAlong()}, r.GetEpsilonInf()...), r.GetEpsilonStatic()...)...)
+			fc.finite("LO frequencies", r.GetLoFrequencies()...)
+			for _, m := range r.GetModes() {
+				fc.finite("mode", append(append([]float64{m.GetFrequency(), m.GetDamping(), m.GetStrengthAlong()}, m.GetModeCharge()...), m.GetOscillatorStrength()...)...)
+			}
+			for _, s := range r.GetSamples() {
+				fc.finite("sample", s.GetFrequency(), s.GetEpsilonReal(), s.GetEpsilonImag(), s.GetReflectivity())
+				if !(s.GetReflectivity() >= 0 && s.GetReflectivity() <= 1) || s.GetEpsilonImag() < 0 {
+					fc.t.Fatalf("sample %v: R outside [0, 1] or ε″ < 0", s)
+				}
+			}
+		},
+		allowed: []codes.Code{codes.NotFound, codes.FailedPrecondition},
+	})
+}
+
 // corpusTargets maps each server fuzz target to its committed seeds.
 func corpusTargets(tb testing.TB) map[string][][]byte {
 	out := map[string][][]byte{}
@@ -783,7 +827,7 @@ func corpusTargets(tb testing.TB) map[string][][]byte {
 	gr, qh, co := heatSeeds(tb)
 	for target, seeds := range map[string][]proto.Message{
 		"FuzzCheckModel": checkSeeds(tb), "FuzzComputeModes": modesSeeds(tb), "FuzzComputeDispersion": dispersionSeeds(tb),
-		"FuzzComputeDos": dosSeeds(tb), "FuzzComputeThermal": thermalSeeds(tb),
+		"FuzzComputeDos": dosSeeds(tb), "FuzzComputeThermal": thermalSeeds(tb), "FuzzComputeInfrared": infraredSeeds(tb),
 		"FuzzComputeGruneisen": gr, "FuzzComputeQuasiHarmonic": qh, "FuzzComputeConductivity": co,
 		"FuzzFit": fitSeeds(tb),
 	} {

@@ -24,10 +24,10 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindFit}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindFit, kindInfrared}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
-var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity}
+var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindInfrared}
 
 const (
 	kindCompile    = "compile"
@@ -44,7 +44,8 @@ const (
 	kindGruneisen    = "gruneisen"
 	kindQHA          = "quasi_harmonic"
 	kindConductivity = "conductivity"
-	kindFit        = "fit"
+	kindFit          = "fit"
+	kindInfrared     = "infrared"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one

@@ -66,6 +66,8 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 	}
 	chunk = max(1, min(chunk, s.cfg.MaxChunkBytes/per))
 	opt.ChunkSize = chunk
+	opt.GammaDirs = cartesianDirs(e.m, qs.dirs)
+	toProto := modesConverter(e.m, unit, qs.dirs)
 
 	var p params
 	p.add("qpoints", qs.param())
@@ -93,7 +95,7 @@ func (s *Service) computeModes(ctx context.Context, req *modegridv1.ComputeModes
 					Points:     make([]*modegridv1.Modes, len(c.Points)),
 				}
 				for i := range c.Points {
-					resp.Points[i] = modesToProto(&c.Points[i], unit)
+					resp.Points[i] = toProto(&c.Points[i], c.Offset+i)
 				}
 				return stream.Send(resp)
 			})
@@ -171,4 +173,48 @@ func modesToProto(pm *physics.PointModes, unit physics.Unit) *modegridv1.Modes {
 		}
 	}
 	return out
+}
+
+// cartesianDirs converts a list's directions of approach at Γ to the
+// Cartesian ones the engine takes (nil when none, or for a model without
+// a long-range term, which ignores them).
+func cartesianDirs(m *physics.Model, dirs [][3]float64) [][3]float64 {
+	if dirs == nil || !m.Polar() {
+		return nil
+	}
+	out := make([][3]float64, len(dirs))
+	for i, d := range dirs {
+		out[i] = m.CartesianQ(d)
+	}
+	return out
+}
+
+// modesConverter returns the conversion of the modes at the point of
+// index idx, frequencies in unit, with how a polar model's Γ was taken
+// (markGamma).
+func modesConverter(m *physics.Model, unit physics.Unit, dirs [][3]float64) func(pm *physics.PointModes, idx int) *modegridv1.Modes {
+	polar := m.Polar()
+	return func(pm *physics.PointModes, idx int) *modegridv1.Modes {
+		out := modesToProto(pm, unit)
+		if polar {
+			markGamma(out, pm, dirs, idx)
+		}
+		return out
+	}
+}
+
+// markGamma states how a polar model's Γ point was taken: along the
+// direction the list gave (gamma_direction), or the analytic part only
+// (gamma_analytic: grids, and list points without a direction). dirs are
+// the list's directions (nil for none or a grid), idx the point's index.
+func markGamma(out *modegridv1.Modes, pm *physics.PointModes, dirs [][3]float64, idx int) {
+	if !physics.IsGamma(pm.Q) {
+		return
+	}
+	if dirs != nil && dirs[idx] != ([3]float64{}) {
+		d := dirs[idx]
+		out.GammaDirection = &modegridv1.QPoint{Q1: d[0], Q2: d[1], Q3: d[2]}
+		return
+	}
+	out.GammaAnalytic = true
 }

@@ -32,6 +32,7 @@ import (
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/polar"
 	"github.com/materials-lab/modegrid/physics/spectra"
 	"github.com/materials-lab/modegrid/physics/thermo"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
@@ -69,6 +70,33 @@ type rawModel struct {
 	// (hasFC), folded before the compile (precompile_fc.go).
 	fc    fcShape
 	hasFC bool
+	// polarBuild is the cost of setting up the dipole–dipole term of a
+	// model with Born charges (and, for a supercell set, of its dipole
+	// part at every commensurate q), 0 otherwise; set with
+	// size.LongRangeFlops by withPolar once the model is known valid.
+	polarBuild physics.Cost
+}
+
+// withPolar sizes the dipole–dipole term of a valid model with Born
+// charges (polar.Estimate: the same enumeration as the compile, without
+// the blocks): its work per q joins the size, its set-up the compile's
+// bound. A set-up too large for the engine is left to the compile, which
+// refuses it with its violation.
+func (r rawModel) withPolar() rawModel {
+	if len(r.c.EpsilonInf) == 0 {
+		return r
+	}
+	sz, err := polar.Estimate(r.c)
+	if err != nil {
+		return r
+	}
+	n := len(r.c.Sites)
+	r.size.LongRangeFlops = sz.FlopsPerQ(n)
+	r.polarBuild = sz.BuildCost(n)
+	if r.hasFC {
+		r.polarBuild.Flops += float64(r.fc.det) * (sz.FlopsPerQ(n) + 36*float64(n*n))
+	}
+	return r
 }
 
 // rawModelOf reads src when it carries an inline model whose shape the
@@ -179,6 +207,7 @@ func dot(a, b [3]float64) float64 { return a[0]*b[0] + a[1]*b[1] + a[2]*b[2] }
 // fold whose own memory cannot fit the budget is refused too.
 func (s *Service) checkCompile(vs *violations, r rawModel) {
 	secs, pairs := compileSeconds(r.c)
+	secs += r.polarBuild.Seconds(1)
 	var fold physics.Cost
 	if r.hasFC {
 		fold = r.fc.foldCost()
@@ -231,6 +260,7 @@ func (s *Service) precheck(vs *violations, src *modegridv1.ModelSource, refuse f
 	if !s.valid(r) {
 		return false
 	}
+	r = r.withPolar()
 	n := vs.Len()
 	s.checkCompile(vs, r)
 	if vs.Len() == n && refuse != nil {

@@ -16,6 +16,9 @@ type qset struct {
 	list  []mesh.QPoint // explicit points (weight 1), nil for a grid
 	grid  mesh.GridSpec // when list is nil
 	count int
+	// dirs are the directions of approach of a list's Γ points
+	// (fractional reciprocal; zero elsewhere), nil when none was given.
+	dirs [][3]float64
 }
 
 // param is the canonical description of the set. A list is named by its
@@ -31,6 +34,15 @@ func (q *qset) param() string {
 		for _, v := range p.Q {
 			binary.LittleEndian.PutUint64(b[:], math.Float64bits(v)) // exact bits (−0 made 0 on parsing)
 			h.Write(b[:])
+		}
+	}
+	if q.dirs != nil {
+		h.Write([]byte("gamma_directions"))
+		for _, d := range q.dirs {
+			for _, v := range d {
+				binary.LittleEndian.PutUint64(b[:], math.Float64bits(v))
+				h.Write(b[:])
+			}
 		}
 	}
 	return fmt.Sprintf("list:%d:sha256-%x", len(q.list), h.Sum(nil))
@@ -90,6 +102,7 @@ func (s *Service) parseQSet(set *modegridv1.QPointSet, dim int, field string, al
 			}
 			out.list[i] = mesh.QPoint{Q: q, Weight: 1}
 		}
+		out.dirs = gammaDirections(x.List, out.list, dim, field+".list.gamma_directions", vs)
 		return out
 	case *modegridv1.QPointSet_Grid:
 		g := s.parseMesh(x.Grid.GetMesh(), dim, field+".grid.mesh", vs)
@@ -155,4 +168,41 @@ func countString(n float64) string {
 		return fmt.Sprintf("%.0f", n)
 	}
 	return fmt.Sprintf("%.3g", n)
+}
+
+// gammaDirections parses a list's directions of approach at Γ: none, or
+// one per point, finite (within ±MaxQ like q) and zero at points that are
+// not Γ (a direction there would mean nothing). Nil when none is given or
+// all are zero.
+func gammaDirections(l *modegridv1.QPointList, pts []mesh.QPoint, dim int, f string, vs *violations) [][3]float64 {
+	ds := l.GetGammaDirections()
+	if len(ds) == 0 {
+		return nil
+	}
+	if len(ds) != len(pts) {
+		vs.Add(f, "must be empty or have one direction per point (%d), got %d", len(pts), len(ds))
+		return nil
+	}
+	out := make([][3]float64, len(ds))
+	given := false
+	for i, d := range ds {
+		v := [3]float64{canonFloat(d.GetQ1()), canonFloat(d.GetQ2()), canonFloat(d.GetQ3())}
+		for k, x := range v {
+			switch {
+			case !(math.Abs(x) <= physics.MaxQ):
+				vs.Add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), qRangeMsg, x)
+			case dim > 0 && k >= dim && x != 0:
+				vs.Add(fmt.Sprintf("%s[%d].q%d", f, i, k+1), "must be 0 for a %d-dimensional crystal, got %v", dim, x)
+			}
+		}
+		if v != ([3]float64{}) && !physics.IsGamma(pts[i].Q) {
+			vs.Add(fmt.Sprintf("%s[%d]", f, i), "points[%d] is not Γ: a direction of approach applies only at Γ (a reciprocal lattice vector); give 0 here", i)
+		}
+		out[i] = v
+		given = given || v != [3]float64{}
+	}
+	if !given {
+		return nil
+	}
+	return out
 }

@@ -14,6 +14,7 @@ import (
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/fcimport"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/polar"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
@@ -73,7 +74,7 @@ func (s *Service) run(ctx context.Context, kind string, fn func(ctx context.Cont
 type modelEntry struct {
 	m      *physics.Model
 	hash   string
-	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize}
+	source []byte // deterministic ModelSource{crystal, enforce_sum_rule, symmetry_tolerance_a, symmetrize, enforce_charge_neutrality}
 	// symmetrized: m is the source's crystal made exactly symmetric.
 	symmetrized bool
 	// fold reports the fold of the source's supercell force-constant set
@@ -83,9 +84,14 @@ type modelEntry struct {
 }
 
 // size is the entry's charge in the cache: an estimate of the compiled
-// model (force-constant terms dominate) plus its source.
+// model (force-constant terms dominate) plus its source, plus the
+// dipole–dipole term's arrays for a polar model.
 func (e *modelEntry) size() int64 {
-	return int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
+	n := int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
+	if t, ok := e.m.LongRangeTerm().(*polar.Term); ok {
+		n += t.TermSizes().BuildCost(e.m.Sites()).Bytes
+	}
+	return n
 }
 
 // modelCodec stores a model in the Backend as its source; a replica reading
@@ -119,9 +125,10 @@ var modelCodec = &cache.Codec{
 // (physics.Symmetrize; a supercell set by its fold, fcimport.FoldModel)
 // and the entry is that model.
 func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
-	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA()}
+	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA(),
+		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality(), LongRange: polar.Builder()}
 	c, fold, err := foldSupercell(ctx, src.GetCrystal(), crystalFromProto(src.GetCrystal()), lim.MaxSites,
-		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA})
+		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA}, src.GetEnforceChargeNeutrality())
 	if err != nil {
 		return nil, err
 	}
@@ -251,6 +258,9 @@ func inlineKey(src *modegridv1.ModelSource) (*modegridv1.ModelSource, []byte, ca
 		EnforceSumRule:     src.GetEnforceSumRule(),
 		SymmetryToleranceA: src.GetSymmetryToleranceA(),
 		Symmetrize:         src.GetSymmetrize(),
+		// Only a model with charges compiles differently with it: without
+		// them the option is dropped, so both spellings share the key.
+		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality() && len(src.GetCrystal().GetEpsilonInf()) > 0,
 	}
 	raw, err := proto.MarshalOptions{Deterministic: true}.Marshal(norm)
 	if err != nil {

@@ -222,6 +222,7 @@ func thermalToProto(e *modelEntry, canon string, r *thermo.ThermalResult) *modeg
 		DebyeTemperatureElasticK: r.ThetaElasticK,
 		ImaginaryModesExcluded:   uint32(r.ImaginaryExcluded),
 		Points:                   make([]*modegridv1.ThermalPoint, len(r.Points)),
+		GammaAnalytic:            e.m.Polar(),
 	}
 	labels := e.m.Labels()
 	atoms := float64(e.m.Sites())

@@ -26,6 +26,12 @@ type Set struct {
 	PrimitiveAtoms []int       // empty: Phi is N×N; else Phi is n×N rows of these atoms
 	Phi            []float64   // 9 per block, row-major, i-major
 	TolA           float64     // 0 → DefaultTolA
+	// LongRange, when set, is a long-range part of the force constants
+	// between site s in cell 0 and site t in cell r (periodic with the
+	// supercell), in Phi's unit: it is subtracted from every block before
+	// the fold, so that only the short-range rest is folded (a polar
+	// crystal's dipole–dipole part: physics/polar.SupercellPart).
+	LongRange func(s, t int, r [3]int) [9]float64
 }
 
 // Report gives the largest element (force unit) of each violation before

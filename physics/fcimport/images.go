@@ -35,6 +35,9 @@ func (g *geometry) fold(ctx context.Context, s *Set, maps []atomMap) (map[key][9
 		i := x.atom
 		for j := 0; j < n; j++ {
 			blk := s.Phi[9*(x.row*n+j) : 9*(x.row*n+j)+9]
+			if s.LongRange != nil {
+				blk = shortRange(blk, s.LongRange(maps[i].site, maps[j].site, cellDiff(maps[i], maps[j])))
+			}
 			ck, images := g.images(maps[i], maps[j])
 			if len(images) > 1 {
 				g.shared++
@@ -275,4 +278,18 @@ func lessZero(r [3]int) bool {
 		}
 	}
 	return false
+}
+
+// shortRange returns blk minus the long-range part lr, in a new slice.
+func shortRange(blk []float64, lr [9]float64) []float64 {
+	out := make([]float64, 9)
+	for a := range out {
+		out[a] = blk[a] - lr[a]
+	}
+	return out
+}
+
+// cellDiff is the cell offset of atom j seen from atom i.
+func cellDiff(i, j atomMap) [3]int {
+	return [3]int{j.cell[0] - i.cell[0], j.cell[1] - i.cell[1], j.cell[2] - i.cell[2]}
 }

@@ -17,17 +17,19 @@ import (
 )
 
 const demoSummary = `Runs the main job on the built-in example crystals (invented models of a
-chain, a two-site chain, a square net, an fcc crystal and a rock-salt-like
-crystal): check, the dispersion along a path, the DOS per site and the
-thermal properties; then the rock-salt-like crystal's thermal expansion
-and its thermal conductivity for three grain sizes (volumes, energies and
-scattering constants invented); then a fit of the rock-salt-like
-crystal's four shell constants to 40 invented "measured" frequencies (its
-own, computed with the constants changed by a few per cent and given
-seeded Gaussian noise: not real data). Prints a summary table and the
-fitted parameters, and writes CSV tables, the data, the fitted model and
-figures into --dir (default ./demo-out). Without --server it starts an
-embedded server, as every command does.`
+chain, a two-site chain, a square net, an fcc crystal, a rock-salt-like
+crystal and a polar one with Born charges): check, the dispersion along a
+path, the DOS per site and the thermal properties, and for the polar one
+its infrared response (ε(ω) and the reflectivity along x, in cm⁻¹); then
+the rock-salt-like crystal's thermal expansion and its thermal
+conductivity for three grain sizes (volumes, energies and scattering
+constants invented); then a fit of the rock-salt-like crystal's four shell
+constants to 40 invented "measured" frequencies (its own, computed with
+the constants changed by a few per cent and given seeded Gaussian noise:
+not real data). Prints a summary table and the fitted parameters, and
+writes CSV tables, the data, the fitted model and figures into --dir
+(default ./demo-out). Without --server it starts an embedded server, as
+every command does.`
 
 // demoRow is one line of the summary.
 type demoRow struct {
@@ -130,7 +132,8 @@ func cmdDemo(args []string, e *env) error {
 
 // demoOne runs the four steps on one example and writes its files: check,
 // dispersion, DOS per site and thermal properties (one CSV each), then the
-// three figures. It returns the summary row and the number of files written.
+// three figures; for a polar example also the infrared response (CSV and
+// figure). It returns the summary row and the number of files written.
 func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind string, grid uint32) (demoRow, int, error) {
 	crystal, err := examples.Load(name)
 	if err != nil {
@@ -176,7 +179,34 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 	if err := plotThermal(st.base+"-thermal"+ext, kind, thermalFigure{th: th, basis: basisAtoms, sites: row.sites, pol: p, title: title}); err != nil {
 		return row, st.files, err
 	}
-	return row, st.files + 3, nil
+	figures := 3
+	if len(crystal.GetEpsilonInf()) > 0 {
+		ir, err := st.infrared()
+		if err != nil {
+			return row, st.files, err
+		}
+		if err := plotInfrared(st.base+"-infrared"+ext, kind, ir, title); err != nil {
+			return row, st.files, err
+		}
+		figures++
+	}
+	return row, st.files + figures, nil
+}
+
+// infrared computes the infrared response of a polar example along x, in
+// cm⁻¹ (the spectroscopists' unit), and writes -infrared.csv.
+func (st *demoStep) infrared() (*modegridv1.ComputeInfraredResponse, error) {
+	done := st.e.prog.running(st.name + ": infrared response")
+	ir, err := st.cl.Infrared(st.ctx, &modegridv1.ComputeInfraredRequest{Model: st.src, Direction: &modegridv1.Vec3{X: 1},
+		Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_CM1})
+	done()
+	if err != nil {
+		return nil, err
+	}
+	if err := st.save("-infrared.csv", func(w io.Writer) error { return writeInfrared(w, "csv", ir, false) }); err != nil {
+		return nil, err
+	}
+	return ir, nil
 }
 
 // demoStep holds what every step of one example's demo needs: the call

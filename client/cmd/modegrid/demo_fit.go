@@ -157,13 +157,13 @@ func writeDemoFit(w io.Writer, res *modegridv1.FitResult, truth []float64) error
 	t := newTable(w)
 	t.row("parameter", "start", "invented truth", "fitted", "±", "± unscaled", "(fitted − truth)/±")
 	for i, p := range res.GetParameters() {
-		t.row(p.GetPath(), g4(p.GetStart()), g4(truth[i]), g4(p.GetValue()), g4(p.GetStdError()), g4(p.GetStdErrorUnscaled()),
+		t.row(p.GetPath(), g5(p.GetStart()), g5(truth[i]), g5(p.GetValue()), g5(p.GetStdError()), g5(p.GetStdErrorUnscaled()),
 			f4((p.GetValue()-truth[i])/p.GetStdError()))
 	}
 	if err := t.flush(); err != nil {
 		return err
 	}
 	_, err := fmt.Fprintf(w, "χ²/dof = %s (%d degrees of freedom), %d steps, %d evaluations\n",
-		g4(res.GetReducedChiSquare()), res.GetDegreesOfFreedom(), res.GetIterations(), res.GetEvaluations())
+		g5(res.GetReducedChiSquare()), res.GetDegreesOfFreedom(), res.GetIterations(), res.GetEvaluations())
 	return err
 }

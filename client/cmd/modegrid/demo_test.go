@@ -1,6 +1,7 @@
 package main
 
 import (
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -14,7 +15,8 @@ import (
 // TestDemo runs the demo end to end on every built-in example (small grid
 // and SVG figures to stay fast under -race; TestDemoPNG covers the default
 // PNG): exit 0, a summary row per example, and per example four CSV files
-// with their documented headers and three figures that parse.
+// with their documented headers and three figures that parse; for a polar
+// example (Born charges) also the infrared CSV and figure.
 func TestDemo(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "out")
 	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "6", "--plot-format", "svg")
@@ -28,7 +30,14 @@ func TestDemo(t *testing.T) {
 		"-dos.csv":     "frequency_thz,dos,integrated,dos_",
 		"-thermal.csv": thermalHeaderLine,
 	}
+	polar := 0
 	for _, name := range examples.Names() {
+		if c, err := examples.Load(name); err != nil {
+			t.Fatal(err)
+		} else if len(c.GetEpsilonInf()) > 0 {
+			polar++
+			checkInfraredDemo(t, dir, name)
+		}
 		if !strings.Contains(out, name) {
 			t.Errorf("summary lacks %s:\n%s", name, out)
 		}
@@ -52,10 +61,14 @@ func TestDemo(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if want := 7*len(examples.Names()) + 4 + 4; len(entries) != want { // + the heat section's 4, the fit's 4
+	want := 7*len(examples.Names()) + 2*polar + 4 + 4 // + the heat section's 4, the fit's 4
+	if len(entries) != want {
 		t.Errorf("demo wrote %d files; want %d", len(entries), want)
 	}
-	if !strings.Contains(out, "wrote 43 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
+	if polar == 0 {
+		t.Error("no polar example: the demo should show an infrared response")
+	}
+	if !strings.Contains(out, fmt.Sprintf("wrote %d files (CSV tables, SVG figures)", want)) || !strings.Contains(out, mustAbs(t, dir)) {
 		t.Errorf("summary does not name the folder and file count:\n%s", out)
 	}
 	checkDemoFit(t, dir, out)
@@ -116,6 +129,22 @@ func TestDemoPNG(t *testing.T) {
 		if w != pixels(size[0]) || h != pixels(size[1]) || ink < 0.01 || (fig != "-dos.png" && !branch) {
 			t.Errorf("%s: %d×%d px, %.2f%% ink, branch colour %v", fig, w, h, 100*ink, branch)
 		}
+	}
+}
+
+// checkInfraredDemo checks a polar example's infrared files: the CSV
+// header of the README and a figure with text and curves.
+func checkInfraredDemo(t *testing.T, dir, name string) {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join(dir, name+"-infrared.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if first, _, _ := strings.Cut(string(b), "\n"); first != "frequency_cm-1,epsilon_real,epsilon_imag,reflectivity" {
+		t.Errorf("%s-infrared.csv header %q", name, first)
+	}
+	if _, _, paths, text := svgStats(t, filepath.Join(dir, name+"-infrared.svg")); paths < 10 || !strings.Contains(text, "reflectivity") {
+		t.Errorf("%s-infrared.svg: %d paths, text %q", name, paths, text)
 	}
 }
 

@@ -44,6 +44,9 @@ func TestFigureGallery(t *testing.T) {
 		{"fit-rocksalt-like", []string{"fit", "-m", example("rocksalt-like"), "--data", testdata("fit-rocksalt-like-dispersion.csv"),
 			"--data", testdata("fit-rocksalt-like-gamma.csv"), "--free", "shells[0].k_long,shells[0].k_trans,shells[1].k_long,shells[2].k_long", "--format", "table"},
 			[]string{"χ²/dof =", "shells[0].k_trans", "correlation", "(measured − model)/σ"}},
+		{"path-polar-rocksalt-like", []string{"path", "-m", example("polar-rocksalt-like"), "--grid", "12"}, nil},
+		{"infrared-polar-rocksalt-like", []string{"infrared", "-m", example("polar-rocksalt-like"), "--damping", "3", "--format", "table"},
+			[]string{"static ε₀ along ê", "active", "acoustic"}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

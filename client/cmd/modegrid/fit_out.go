@@ -146,12 +146,12 @@ func errCell(p *modegridv1.FittedParameter, x float64) string {
 	case !p.GetDetermined():
 		return "undetermined"
 	}
-	return g4(x)
+	return g5(x)
 }
 
-// g4 prints a value with 5 significant digits (no exponent for ordinary
+// g5 prints a value with 5 significant digits (no exponent for ordinary
 // sizes), -0 as 0.
-func g4(x float64) string {
+func g5(x float64) string {
 	if x == 0 {
 		x = 0
 	}
@@ -168,21 +168,21 @@ func writeFitTable(w io.Writer, v fitView) error {
 	}
 	n := len(r.GetParameters())
 	fmt.Fprintf(w, "fit of %s: %d data, %d free parameter%s, %s\n", v.name, r.GetData(), n, plural(n), status)
-	fmt.Fprintf(w, "χ² = %s for %d degrees of freedom", g4(r.GetChiSquare()), r.GetDegreesOfFreedom())
+	fmt.Fprintf(w, "χ² = %s for %d degrees of freedom", g5(r.GetChiSquare()), r.GetDegreesOfFreedom())
 	if r.GetDegreesOfFreedom() > 0 {
-		fmt.Fprintf(w, ", χ²/dof = %s", g4(r.GetReducedChiSquare()))
+		fmt.Fprintf(w, ", χ²/dof = %s", g5(r.GetReducedChiSquare()))
 	}
 	fmt.Fprintf(w, "\n\n")
 	t := newTable(w)
 	t.row("parameter", "start", "fitted", "±", "± unscaled")
 	for _, p := range r.GetParameters() {
-		t.row(p.GetPath(), g4(p.GetStart()), g4(p.GetValue()), errCell(p, p.GetStdError()), errCell(p, p.GetStdErrorUnscaled()))
+		t.row(p.GetPath(), g5(p.GetStart()), g5(p.GetValue()), errCell(p, p.GetStdError()), errCell(p, p.GetStdErrorUnscaled()))
 	}
 	if err := t.flush(); err != nil {
 		return err
 	}
 	for _, x := range r.GetTies() {
-		fmt.Fprintf(w, "tied: %s = %s × %s = %s (start %s)\n", x.GetPath(), g4(x.GetRatio()), x.GetTo(), g4(x.GetValue()), g4(x.GetStart()))
+		fmt.Fprintf(w, "tied: %s = %s × %s = %s (start %s)\n", x.GetPath(), g5(x.GetRatio()), x.GetTo(), g5(x.GetValue()), g5(x.GetStart()))
 	}
 	fmt.Fprintf(w, "(force unit of the model; ± is the standard error from (JᵀWJ)⁻¹ scaled by χ²/dof, ± unscaled takes the σ as absolute)\n")
 	writeUndetermined(w, r)
@@ -198,7 +198,7 @@ func writeUndetermined(w io.Writer, r *modegridv1.FitResult) {
 	for _, g := range r.GetUndetermined() {
 		fmt.Fprintf(w, "\nnot separately determined: %s\n", strings.Join(g.GetPaths(), ", "))
 		for _, c := range g.GetDetermined() {
-			fmt.Fprintf(w, "  determined: %s = %s ± %s (± %s unscaled)\n", combination(g.GetPaths(), c), g4(c.GetValue()), g4(c.GetStdError()), g4(c.GetStdErrorUnscaled()))
+			fmt.Fprintf(w, "  determined: %s = %s ± %s (± %s unscaled)\n", combination(g.GetPaths(), c), g5(c.GetValue()), g5(c.GetStdError()), g5(c.GetStdErrorUnscaled()))
 		}
 		for _, c := range g.GetFlat() {
 			fmt.Fprintf(w, "  χ² does not change along: %s\n", combination(g.GetPaths(), c))
@@ -224,7 +224,7 @@ func combination(paths []string, c *modegridv1.ParameterCombination) string {
 			b.WriteString(" " + sign + " ")
 		}
 		if a := math.Abs(x); math.Abs(a-1) > 1e-9 {
-			b.WriteString(g4(a) + "·")
+			b.WriteString(g5(a) + "·")
 		}
 		b.WriteString(paths[i])
 	}

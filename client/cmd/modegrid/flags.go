@@ -335,6 +335,8 @@ type modelCommand struct {
 	conn    connFlags
 	out     outFlags
 	sumRule *bool
+	// chargeRule imposes charge neutrality on Born charges.
+	chargeRule *bool
 	// symTol is the symmetry tolerance (Å, 0: the server's default) and
 	// symmetrize asks for the model made exactly symmetric.
 	symTol     *float64
@@ -349,6 +351,7 @@ func newModelCommand(name string, plots bool) *modelCommand {
 	c.conn.register(c.fs)
 	c.out.register(c.fs, plots)
 	c.sumRule = c.fs.Bool("sum-rule", false, "impose the acoustic sum rule on explicit blocks")
+	c.chargeRule = c.fs.Bool("charge-sum-rule", false, "impose charge neutrality (the Born charges sum to zero) by the smallest correction")
 	c.symTol = c.fs.Float64("sym-tol", 0, "symmetry `tolerance` in Å: how far sites may be from symmetric positions (0: the default, 1e-4 Å)")
 	c.symmetrize = c.fs.Bool("symmetrize", false, "make the model exactly symmetric under the operations found within --sym-tol (a new model, new hash); a supercell set is averaged over its space group")
 	return c
@@ -376,12 +379,13 @@ func (c *modelCommand) dial() (*client.Client, context.Context, func(), error) {
 	return cl, ctx, func() { cancel(); stop() }, nil
 }
 
-// source is the inline model with the --sum-rule, --sym-tol and
-// --symmetrize choices.
+// source is the inline model with the --sum-rule, --charge-sum-rule,
+// --sym-tol and --symmetrize choices.
 func (c *modelCommand) source(crystal *modegridv1.Crystal) *modegridv1.ModelSource {
 	src := client.Inline(crystal)
 	src.EnforceSumRule = *c.sumRule
 	src.SymmetryToleranceA = *c.symTol
 	src.Symmetrize = *c.symmetrize
+	src.EnforceChargeNeutrality = *c.chargeRule
 	return src
 }

@@ -79,6 +79,16 @@ var goldenCases = []struct {
 	{"thermal-rocksalt-like-atoms-table", []string{"thermal", "-m", example("rocksalt-like"), "--grid", "6", "--temps", "100,300,1000"}},
 	{"thermal-fcc-msd-csv", []string{"thermal", "-m", example("fcc"), "--grid", "6", "--temps", "100,300", "--msd", "--format", "csv"}},
 
+	// The polar example: its charges in the check, Γ twice on a path (one
+	// sample per side, LO above TO), Γ along a direction, and the infrared
+	// response in every format.
+	{"check-polar-rocksalt-like-table", []string{"check", "-m", example("polar-rocksalt-like")}},
+	{"path-polar-rocksalt-like-csv", []string{"path", "-m", example("polar-rocksalt-like"), "--path", "X=0.5,0,0.5 G=0,0,0 L=0.5,0.5,0.5", "--points", "7", "--format", "csv"}},
+	{"modes-polar-rocksalt-like-gamma-dir-csv", []string{"modes", "-m", example("polar-rocksalt-like"), "--q", "0,0,0;0.5,0,0.5", "--gamma-dir", "1,1,0", "--unit", "cm-1", "--format", "csv"}},
+	{"infrared-polar-rocksalt-like-table", []string{"infrared", "-m", example("polar-rocksalt-like"), "--points", "11"}},
+	{"infrared-polar-rocksalt-like-csv", []string{"infrared", "-m", example("polar-rocksalt-like"), "--min", "150", "--max", "350", "--points", "9", "--damping", "4", "--format", "csv"}},
+	{"infrared-polar-rocksalt-like-modes-csv", []string{"infrared", "-m", example("polar-rocksalt-like"), "--dir", "1,1,0", "--modes", "--format", "csv"}},
+	{"infrared-polar-rocksalt-like-json", []string{"infrared", "-m", example("polar-rocksalt-like"), "--unit", "thz", "--points", "3", "--format", "json"}},
 	// Fits to invented data (testdata/fit-*.csv say how they were made).
 	{"fit-rocksalt-like-table", fitRocksaltArgs()},
 	{"fit-rocksalt-like-csv", append(fitRocksaltArgs(), "--format", "csv")},

@@ -15,12 +15,13 @@ import (
 // responseOf maps a subcommand to the response message its --format json
 // prints.
 var responseOf = map[string]protoreflect.MessageDescriptor{
-	"check":   (&modegridv1.CheckModelResponse{}).ProtoReflect().Descriptor(),
-	"modes":   (&modegridv1.ComputeModesResponse{}).ProtoReflect().Descriptor(),
-	"path":    (&modegridv1.ComputeDispersionResponse{}).ProtoReflect().Descriptor(),
-	"dos":     (&modegridv1.ComputeDosResponse{}).ProtoReflect().Descriptor(),
-	"thermal": (&modegridv1.ComputeThermalResponse{}).ProtoReflect().Descriptor(),
-	"fit":     (&modegridv1.FitResult{}).ProtoReflect().Descriptor(),
+	"check":    (&modegridv1.CheckModelResponse{}).ProtoReflect().Descriptor(),
+	"modes":    (&modegridv1.ComputeModesResponse{}).ProtoReflect().Descriptor(),
+	"path":     (&modegridv1.ComputeDispersionResponse{}).ProtoReflect().Descriptor(),
+	"dos":      (&modegridv1.ComputeDosResponse{}).ProtoReflect().Descriptor(),
+	"thermal":  (&modegridv1.ComputeThermalResponse{}).ProtoReflect().Descriptor(),
+	"fit":      (&modegridv1.FitResult{}).ProtoReflect().Descriptor(),
+	"infrared": (&modegridv1.ComputeInfraredResponse{}).ProtoReflect().Descriptor(),
 }
 
 // jsonCases are the JSON golden cases and two whose zero values protobuf

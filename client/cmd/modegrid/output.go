@@ -220,6 +220,7 @@ func checkValidRows(r *modegridv1.CheckModelResponse, csv bool) []checkRow {
 		checkRow{"sum_rule_violation_ev_per_a2", "sum-rule violation (eV/Å²)", real(r.GetSumRuleViolationEvPerA2())},
 	)
 	rows = append(rows, foldRows(r.GetSupercellFold(), real)...)
+	rows = append(rows, polarRows(r.GetPolar(), real)...)
 	rows = append(rows,
 		checkRow{"symmetry_operations", "symmetry operations", fmt.Sprint(len(r.GetSymmetry()))},
 		checkRow{"symmetry_tolerance_a", "symmetry tolerance (Å)", strconv.FormatFloat(r.GetSymmetryToleranceA(), 'g', -1, 64)},
@@ -271,6 +272,21 @@ func foldRows(f *modegridv1.SupercellFold, real func(float64) string) []checkRow
 		)
 	}
 	return rows
+}
+
+// polarRows report a polar model's charges and dipole–dipole sum (none
+// without Born charges).
+func polarRows(p *modegridv1.PolarCheck, real func(float64) string) []checkRow {
+	if p == nil {
+		return nil
+	}
+	return []checkRow{
+		{"charge_neutrality_violation_e", "charge-neutrality violation (e)", real(p.GetChargeNeutralityViolationE())},
+		{"charge_neutrality_enforced", "charge neutrality enforced", yesNo(p.GetChargeNeutralityEnforced())},
+		{"ewald_parameter_inv_a", "Ewald parameter (Å⁻¹)", real(p.GetEwaldParameterInvA())},
+		{"ewald_real_terms", "Ewald real-space terms", fmt.Sprint(p.GetEwaldRealTerms())},
+		{"ewald_reciprocal_vectors", "Ewald reciprocal vectors", fmt.Sprint(p.GetEwaldReciprocalVectors())},
+	}
 }
 
 // ---- modes ----

@@ -117,7 +117,7 @@ func (f fitFigure) build() (figure, error) {
 	lo, hi := freqRange(all...)
 	top := d.branchPanel(samples, unitLabel(f.disp.GetUnit()), lo, hi)
 	bottom := f.residualPanel()
-	title := fmt.Sprintf("%s fitted: χ²/dof = %s", f.view.name, g4(f.view.res.GetReducedChiSquare()))
+	title := fmt.Sprintf("%s fitted: χ²/dof = %s", f.view.name, g5(f.view.res.GetReducedChiSquare()))
 	return figure{size: fitSize, render: func(dc draw.Canvas) {
 		dc = drawTitle(dc, title)
 		h := dc.Max.Y - dc.Min.Y

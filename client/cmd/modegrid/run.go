@@ -58,6 +58,7 @@ var commands = []struct {
 	{"gruneisen", "mode Grüneisen parameters from models at several volumes", cmdGruneisen},
 	{"qha", "quasi-harmonic thermal expansion, bulk modulus and Cp from models at several volumes", cmdQHA},
 	{"conductivity", "lattice thermal conductivity of bulk and finite samples, cumulative curves", cmdConductivity},
+	{"infrared", "infrared response of a polar model: Γ modes, mode charges, ε(ω), ε₀ and reflectivity", cmdInfrared},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"upload", "send a model to --server (any size) and print the hash other calls can name it by", cmdUpload},
 	{"fit", "fit force constants to measured frequencies, velocities, elastic constants, heat capacities", cmdFit},
@@ -78,7 +79,7 @@ common flags:
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
   --unit U           thz (default), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity, fit)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity, fit, infrared)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -105,7 +106,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, gruneisen, qha, conductivity, fit, shape, upload, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, infrared, gruneisen, qha, conductivity, fit, shape, upload, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

@@ -42,9 +42,23 @@ func Names(t testing.TB) []string {
 	return names
 }
 
-// Load decodes an example model file with encoding/json. This mirror
-// of the protobuf JSON mapping is test-only: physics must not import proto/.
+// Load decodes an example model file with encoding/json, without its
+// polar data (Born charges and ε∞): the tests of the core compile every
+// example with the core alone, which refuses charges without the
+// dipole–dipole builder of physics/polar. This mirror of the protobuf JSON
+// mapping is test-only: physics must not import proto/.
 func Load(t testing.TB, name string) *physics.Crystal {
+	t.Helper()
+	c := LoadPolar(t, name)
+	c.EpsilonInf = nil
+	for i := range c.Sites {
+		c.Sites[i].BornCharge = nil
+	}
+	return c
+}
+
+// LoadPolar decodes an example model file with its polar data, if any.
+func LoadPolar(t testing.TB, name string) *physics.Crystal {
 	t.Helper()
 	b, err := os.ReadFile(filepath.Join(exampleDir, name+".json"))
 	if err != nil {
@@ -61,10 +75,12 @@ func Decode(t testing.TB, name string, b []byte) *physics.Crystal {
 		Lattice       []struct{ X, Y, Z float64 }
 		Polarizations int
 		ForceUnit     string
+		EpsilonInf    []float64
 		Sites         []struct {
-			Label   string
-			MassAmu float64
-			Frac    []float64
+			Label      string
+			MassAmu    float64
+			Frac       []float64
+			BornCharge []float64
 		}
 		Springs []struct {
 			From          int `json:"fromSite"`
@@ -87,7 +103,7 @@ func Decode(t testing.TB, name string, b []byte) *physics.Crystal {
 	if err := json.Unmarshal(b, &f); err != nil {
 		t.Fatalf("%s: %v", name, err)
 	}
-	c := &physics.Crystal{Name: f.Name, Polarizations: f.Polarizations}
+	c := &physics.Crystal{Name: f.Name, Polarizations: f.Polarizations, EpsilonInf: f.EpsilonInf}
 	if f.ForceUnit == "FORCE_UNIT_N_PER_M" {
 		c.ForceUnit = physics.NPerM
 	}
@@ -95,7 +111,7 @@ func Decode(t testing.TB, name string, b []byte) *physics.Crystal {
 		c.Lattice = append(c.Lattice, [3]float64{v.X, v.Y, v.Z})
 	}
 	for _, s := range f.Sites {
-		c.Sites = append(c.Sites, physics.Site{Label: s.Label, MassAmu: s.MassAmu, Frac: s.Frac})
+		c.Sites = append(c.Sites, physics.Site{Label: s.Label, MassAmu: s.MassAmu, Frac: s.Frac, BornCharge: s.BornCharge})
 	}
 	for _, s := range f.Springs {
 		c.Springs = append(c.Springs, physics.Spring{From: s.From, To: s.To, Cell: s.Cell, KLong: s.KLong, KTrans: s.KTrans})
@@ -155,7 +171,14 @@ func Clone(c *physics.Crystal) *physics.Crystal {
 	out.Sites = nil
 	for _, s := range c.Sites {
 		s.Frac = append([]float64(nil), s.Frac...)
+		s.BornCharge = append([]float64(nil), s.BornCharge...)
+		if len(s.BornCharge) == 0 {
+			s.BornCharge = nil
+		}
 		out.Sites = append(out.Sites, s)
+	}
+	if c.EpsilonInf != nil {
+		out.EpsilonInf = append([]float64(nil), c.EpsilonInf...)
 	}
 	out.Springs = nil
 	for _, s := range c.Springs {

@@ -109,7 +109,16 @@ type Crystal struct {
 	// finite displacements), folded into blocks of this primitive cell (the
 	// lattice and sites above) by the engine. A model has either this set or
 	// springs/shells/blocks, never both: a model with both is refused.
-	SupercellFc   *SupercellForceConstants `protobuf:"bytes,9,opt,name=supercell_fc,json=supercellFc,proto3" json:"supercell_fc,omitempty"`
+	SupercellFc *SupercellForceConstants `protobuf:"bytes,9,opt,name=supercell_fc,json=supercellFc,proto3" json:"supercell_fc,omitempty"`
+	// High-frequency (electronic) dielectric tensor ε∞, dimensionless, 9
+	// numbers row-major (xx, xy, xz, yx, ...): the relative permittivity of
+	// the crystal with its ions held fixed. Given together with every site's
+	// born_charge (both or neither); it must be symmetric (to 1e-6 of its
+	// largest element; the symmetric part is used) and positive definite,
+	// and needs a three-dimensional crystal with 3 polarizations. With them
+	// the model gains the long-range dipole–dipole term of a polar crystal
+	// (physics/polar/doc.go). Part of the model hash.
+	EpsilonInf    []float64 `protobuf:"fixed64,10,rep,packed,name=epsilon_inf,json=epsilonInf,proto3" json:"epsilon_inf,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -203,6 +212,13 @@ func (x *Crystal) GetBlocks() []*Block {
 func (x *Crystal) GetSupercellFc() *SupercellForceConstants {
 	if x != nil {
 		return x.SupercellFc
+	}
+	return nil
+}
+
+func (x *Crystal) GetEpsilonInf() []float64 {
+	if x != nil {
+		return x.EpsilonInf
 	}
 	return nil
 }
@@ -434,7 +450,16 @@ type Site struct {
 	// Mass in amu; required, > 0.
 	MassAmu float64 `protobuf:"fixed64,2,opt,name=mass_amu,json=massAmu,proto3" json:"mass_amu,omitempty"`
 	// Position in fractional coordinates of the lattice vectors (d numbers).
-	Frac          []float64 `protobuf:"fixed64,3,rep,packed,name=frac,proto3" json:"frac,omitempty"`
+	Frac []float64 `protobuf:"fixed64,3,rep,packed,name=frac,proto3" json:"frac,omitempty"`
+	// Born effective-charge tensor Z*, in units of the elementary charge e,
+	// 9 numbers row-major: Z*_{αβ} (row α, column β) is the dipole along α per
+	// unit displacement of this site along β, and equally the force along β
+	// per unit electric field along α. Empty for none; when any site has one
+	// every site must, and Crystal.epsilon_inf is required. The charges of a
+	// cell should sum to zero (charge neutrality, Σ Z* = 0): CheckModel
+	// reports the violation and ModelSource.enforce_charge_neutrality removes
+	// it. Part of the model hash.
+	BornCharge    []float64 `protobuf:"fixed64,4,rep,packed,name=born_charge,json=bornCharge,proto3" json:"born_charge,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -486,6 +511,13 @@ func (x *Site) GetMassAmu() float64 {
 func (x *Site) GetFrac() []float64 {
 	if x != nil {
 		return x.Frac
+	}
+	return nil
+}
+
+func (x *Site) GetBornCharge() []float64 {
+	if x != nil {
+		return x.BornCharge
 	}
 	return nil
 }
@@ -736,7 +768,7 @@ var File_modegrid_v1_crystal_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\n" +
-	"\x19modegrid/v1/crystal.proto\x12\vmodegrid.v1\"\xa0\x03\n" +
+	"\x19modegrid/v1/crystal.proto\x12\vmodegrid.v1\"\xc1\x03\n" +
 	"\aCrystal\x12\x12\n" +
 	"\x04name\x18\x01 \x01(\tR\x04name\x12+\n" +
 	"\alattice\x18\x02 \x03(\v2\x11.modegrid.v1.Vec3R\alattice\x12$\n" +
@@ -747,7 +779,10 @@ const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\asprings\x18\x06 \x03(\v2\x13.modegrid.v1.SpringR\asprings\x12*\n" +
 	"\x06shells\x18\a \x03(\v2\x12.modegrid.v1.ShellR\x06shells\x12*\n" +
 	"\x06blocks\x18\b \x03(\v2\x12.modegrid.v1.BlockR\x06blocks\x12G\n" +
-	"\fsupercell_fc\x18\t \x01(\v2$.modegrid.v1.SupercellForceConstantsR\vsupercellFc\"\xdf\x01\n" +
+	"\fsupercell_fc\x18\t \x01(\v2$.modegrid.v1.SupercellForceConstantsR\vsupercellFc\x12\x1f\n" +
+	"\vepsilon_inf\x18\n" +
+	" \x03(\x01R\n" +
+	"epsilonInf\"\xdf\x01\n" +
 	"\x17SupercellForceConstants\x12\x16\n" +
 	"\x06matrix\x18\x01 \x03(\x05R\x06matrix\x120\n" +
 	"\x05atoms\x18\x02 \x03(\v2\x1a.modegrid.v1.SupercellAtomR\x05atoms\x12\x1e\n" +
@@ -763,11 +798,13 @@ const file_modegrid_v1_crystal_proto_rawDesc = "" +
 	"\x04Vec3\x12\f\n" +
 	"\x01x\x18\x01 \x01(\x01R\x01x\x12\f\n" +
 	"\x01y\x18\x02 \x01(\x01R\x01y\x12\f\n" +
-	"\x01z\x18\x03 \x01(\x01R\x01z\"K\n" +
+	"\x01z\x18\x03 \x01(\x01R\x01z\"l\n" +
 	"\x04Site\x12\x14\n" +
 	"\x05label\x18\x01 \x01(\tR\x05label\x12\x19\n" +
 	"\bmass_amu\x18\x02 \x01(\x01R\amassAmu\x12\x12\n" +
-	"\x04frac\x18\x03 \x03(\x01R\x04frac\"\x82\x01\n" +
+	"\x04frac\x18\x03 \x03(\x01R\x04frac\x12\x1f\n" +
+	"\vborn_charge\x18\x04 \x03(\x01R\n" +
+	"bornCharge\"\x82\x01\n" +
 	"\x06Spring\x12\x1b\n" +
 	"\tfrom_site\x18\x01 \x01(\rR\bfromSite\x12\x17\n" +
 	"\ato_site\x18\x02 \x01(\rR\x06toSite\x12\x12\n" +

@@ -620,9 +620,14 @@ type ModelSource struct {
 	// internal translations of a cell that is not primitive), keeping index
 	// permutation symmetry and the acoustic sum rule (see SupercellFold).
 	// The result is a new model with its own hash.
-	Symmetrize    bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	Symmetrize bool `protobuf:"varint,5,opt,name=symmetrize,proto3" json:"symmetrize,omitempty"`
+	// Impose the charge-neutrality sum rule on the Born effective charges,
+	// Σ_sites Z* = 0, by the smallest correction: the mean charge tensor is
+	// subtracted from every site's (the least change in the sum of squares).
+	// Ignored for a model without charges.
+	EnforceChargeNeutrality bool `protobuf:"varint,6,opt,name=enforce_charge_neutrality,json=enforceChargeNeutrality,proto3" json:"enforce_charge_neutrality,omitempty"`
+	unknownFields           protoimpl.UnknownFields
+	sizeCache               protoimpl.SizeCache
 }
 
 func (x *ModelSource) Reset() {
@@ -697,6 +702,13 @@ func (x *ModelSource) GetSymmetryToleranceA() float64 {
 func (x *ModelSource) GetSymmetrize() bool {
 	if x != nil {
 		return x.Symmetrize
+	}
+	return false
+}
+
+func (x *ModelSource) GetEnforceChargeNeutrality() bool {
+	if x != nil {
+		return x.EnforceChargeNeutrality
 	}
 	return false
 }
@@ -1062,9 +1074,17 @@ func (x *QPoint) GetQ3() float64 {
 type QPointList struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// The q-points, fractional reciprocal coordinates.
-	Points        []*QPoint `protobuf:"bytes,1,rep,name=points,proto3" json:"points,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	Points []*QPoint `protobuf:"bytes,1,rep,name=points,proto3" json:"points,omitempty"`
+	// For a polar model (Born charges): the direction from which each point
+	// that is Γ (a reciprocal lattice vector) is approached, a fractional
+	// reciprocal vector of any length — the dipole–dipole term is not
+	// analytic at Γ, and its limit there (LO–TO splitting) depends on the
+	// direction. Empty, or one per point: a point that is not Γ takes a zero
+	// direction, and a zero direction at Γ takes the analytic part only (no
+	// splitting), as every grid does. Ignored for other models.
+	GammaDirections []*QPoint `protobuf:"bytes,2,rep,name=gamma_directions,json=gammaDirections,proto3" json:"gamma_directions,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
 }
 
 func (x *QPointList) Reset() {
@@ -1100,6 +1120,13 @@ func (*QPointList) Descriptor() ([]byte, []int) {
 func (x *QPointList) GetPoints() []*QPoint {
 	if x != nil {
 		return x.Points
+	}
+	return nil
+}
+
+func (x *QPointList) GetGammaDirections() []*QPoint {
+	if x != nil {
+		return x.GammaDirections
 	}
 	return nil
 }
@@ -1424,8 +1451,15 @@ type Modes struct {
 	Eigenvectors []float64 `protobuf:"fixed64,5,rep,packed,name=eigenvectors,proto3" json:"eigenvectors,omitempty"`
 	// Group velocities, km/s, mode-major, 3 Cartesian components per mode.
 	GroupVelocitiesKmS []float64 `protobuf:"fixed64,6,rep,packed,name=group_velocities_km_s,json=groupVelocitiesKmS,proto3" json:"group_velocities_km_s,omitempty"`
-	unknownFields      protoimpl.UnknownFields
-	sizeCache          protoimpl.SizeCache
+	// At Γ of a polar model: the direction of approach the frequencies were
+	// taken along (QPointList.gamma_directions, fractional reciprocal).
+	GammaDirection *QPoint `protobuf:"bytes,7,opt,name=gamma_direction,json=gammaDirection,proto3" json:"gamma_direction,omitempty"`
+	// True at Γ of a polar model taken without a direction (every grid's Γ,
+	// a list point without one): the analytic part of the dipole–dipole term
+	// only, so LO and TO modes are not split there.
+	GammaAnalytic bool `protobuf:"varint,8,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
 }
 
 func (x *Modes) Reset() {
@@ -1498,6 +1532,20 @@ func (x *Modes) GetGroupVelocitiesKmS() []float64 {
 		return x.GroupVelocitiesKmS
 	}
 	return nil
+}
+
+func (x *Modes) GetGammaDirection() *QPoint {
+	if x != nil {
+		return x.GammaDirection
+	}
+	return nil
+}
+
+func (x *Modes) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // ComputeModesResponse is one chunk of the modes stream.
@@ -1794,9 +1842,15 @@ type DispersionSample struct {
 	// branch. Within a group of degenerate modes (frequencies within 1e-6 THz)
 	// the individual eigenvectors are arbitrary, so each mode of the group gets
 	// the group's mean shares. Empty unless asked for.
-	SiteWeights   []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
-	unknownFields protoimpl.UnknownFields
-	sizeCache     protoimpl.SizeCache
+	SiteWeights []float64 `protobuf:"fixed64,5,rep,packed,name=site_weights,json=siteWeights,proto3" json:"site_weights,omitempty"`
+	// At Γ of a polar model: the direction of the segment along which the
+	// path reaches or leaves Γ (fractional reciprocal, largest |component|
+	// 1), the direction of the non-analytic limit taken. A corner on Γ
+	// between segments of different directions appears twice, at one
+	// distance, once with each (LO–TO splitting seen from both sides).
+	GammaDirection *QPoint `protobuf:"bytes,6,opt,name=gamma_direction,json=gammaDirection,proto3" json:"gamma_direction,omitempty"`
+	unknownFields  protoimpl.UnknownFields
+	sizeCache      protoimpl.SizeCache
 }
 
 func (x *DispersionSample) Reset() {
@@ -1860,6 +1914,13 @@ func (x *DispersionSample) GetFrequencies() []float64 {
 func (x *DispersionSample) GetSiteWeights() []float64 {
 	if x != nil {
 		return x.SiteWeights
+	}
+	return nil
+}
+
+func (x *DispersionSample) GetGammaDirection() *QPoint {
+	if x != nil {
+		return x.GammaDirection
 	}
 	return nil
 }
@@ -2153,7 +2214,12 @@ type ComputeDosResponse struct {
 	// States per cell the DOS is normalised to (sites × p).
 	StatesPerCell float64 `protobuf:"fixed64,10,opt,name=states_per_cell,json=statesPerCell,proto3" json:"states_per_cell,omitempty"`
 	// Gaussian width used, response unit (0 for other methods).
-	Width         float64 `protobuf:"fixed64,11,opt,name=width,proto3" json:"width,omitempty"`
+	Width float64 `protobuf:"fixed64,11,opt,name=width,proto3" json:"width,omitempty"`
+	// True for a polar model: the grid's Γ point takes the analytic part of
+	// the dipole–dipole term only (its LO–TO splitting depends on the
+	// direction of approach; the point's weight vanishes as the grid grows,
+	// so the DOS converges as for any model).
+	GammaAnalytic bool `protobuf:"varint,12,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2263,6 +2329,13 @@ func (x *ComputeDosResponse) GetWidth() float64 {
 		return x.Width
 	}
 	return 0
+}
+
+func (x *ComputeDosResponse) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // TemperatureRange is start, start+step, … up to and including stop.
@@ -2801,7 +2874,10 @@ type ComputeThermalResponse struct {
 	AtomsPerCell uint32 `protobuf:"varint,10,opt,name=atoms_per_cell,json=atomsPerCell,proto3" json:"atoms_per_cell,omitempty"`
 	// Mass of one cell, the sum of its site masses, amu: per kilogram = per
 	// cell / (this × m_u), m_u = 1.66053906660e-27 kg (CODATA 2018).
-	CellMassAmu   float64 `protobuf:"fixed64,11,opt,name=cell_mass_amu,json=cellMassAmu,proto3" json:"cell_mass_amu,omitempty"`
+	CellMassAmu float64 `protobuf:"fixed64,11,opt,name=cell_mass_amu,json=cellMassAmu,proto3" json:"cell_mass_amu,omitempty"`
+	// True for a polar model: the grid's Γ point takes the analytic part of
+	// the dipole–dipole term only (as ComputeDosResponse.gamma_analytic).
+	GammaAnalytic bool `protobuf:"varint,12,opt,name=gamma_analytic,json=gammaAnalytic,proto3" json:"gamma_analytic,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -2911,6 +2987,13 @@ func (x *ComputeThermalResponse) GetCellMassAmu() float64 {
 		return x.CellMassAmu
 	}
 	return 0
+}
+
+func (x *ComputeThermalResponse) GetGammaAnalytic() bool {
+	if x != nil {
+		return x.GammaAnalytic
+	}
+	return false
 }
 
 // CheckModelRequest asks for a model summary.
@@ -3196,6 +3279,8 @@ type CheckModelResponse struct {
 	// How the model's supercell force-constant set was folded onto its
 	// primitive cell (unset when the model has no set).
 	SupercellFold *SupercellFold `protobuf:"bytes,23,opt,name=supercell_fold,json=supercellFold,proto3" json:"supercell_fold,omitempty"`
+	// The model's polar data (unset when it has no Born effective charges).
+	Polar         *PolarCheck `protobuf:"bytes,24,opt,name=polar,proto3" json:"polar,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -3391,6 +3476,103 @@ func (x *CheckModelResponse) GetSupercellFold() *SupercellFold {
 	return nil
 }
 
+func (x *CheckModelResponse) GetPolar() *PolarCheck {
+	if x != nil {
+		return x.Polar
+	}
+	return nil
+}
+
+// PolarCheck summarises the polar data of a model: Born effective charges
+// and ε∞, and the dipole–dipole (Ewald) sum they add to every D(q).
+type PolarCheck struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Largest element of the sum of the Born charge tensors over the sites,
+	// max_{αβ} |Σ_s Z*_{s,αβ}|, in e, as given (before any enforcement): the
+	// violation of charge neutrality. Acoustic modes at Γ approached along a
+	// direction are not zero while it is (the dipole of a rigid translation
+	// does not vanish).
+	ChargeNeutralityViolationE float64 `protobuf:"fixed64,1,opt,name=charge_neutrality_violation_e,json=chargeNeutralityViolationE,proto3" json:"charge_neutrality_violation_e,omitempty"`
+	// True when the sum rule was imposed (ModelSource.enforce_charge_neutrality):
+	// the model uses charges whose sum is zero.
+	ChargeNeutralityEnforced bool `protobuf:"varint,2,opt,name=charge_neutrality_enforced,json=chargeNeutralityEnforced,proto3" json:"charge_neutrality_enforced,omitempty"`
+	// The Ewald parameter Λ of the dipole–dipole sum, Å⁻¹ (results do not
+	// depend on it beyond rounding; it balances the two sums' work).
+	EwaldParameterInvA float64 `protobuf:"fixed64,3,opt,name=ewald_parameter_inv_a,json=ewaldParameterInvA,proto3" json:"ewald_parameter_inv_a,omitempty"`
+	// Real-space terms (site pairs × lattice vectors) of the Ewald sum,
+	// summed at every q.
+	EwaldRealTerms uint32 `protobuf:"varint,4,opt,name=ewald_real_terms,json=ewaldRealTerms,proto3" json:"ewald_real_terms,omitempty"`
+	// Reciprocal lattice vectors of the Ewald sum, summed at every q.
+	EwaldReciprocalVectors uint32 `protobuf:"varint,5,opt,name=ewald_reciprocal_vectors,json=ewaldReciprocalVectors,proto3" json:"ewald_reciprocal_vectors,omitempty"`
+	unknownFields          protoimpl.UnknownFields
+	sizeCache              protoimpl.SizeCache
+}
+
+func (x *PolarCheck) Reset() {
+	*x = PolarCheck{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PolarCheck) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PolarCheck) ProtoMessage() {}
+
+func (x *PolarCheck) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[29]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PolarCheck.ProtoReflect.Descriptor instead.
+func (*PolarCheck) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{29}
+}
+
+func (x *PolarCheck) GetChargeNeutralityViolationE() float64 {
+	if x != nil {
+		return x.ChargeNeutralityViolationE
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetChargeNeutralityEnforced() bool {
+	if x != nil {
+		return x.ChargeNeutralityEnforced
+	}
+	return false
+}
+
+func (x *PolarCheck) GetEwaldParameterInvA() float64 {
+	if x != nil {
+		return x.EwaldParameterInvA
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetEwaldRealTerms() uint32 {
+	if x != nil {
+		return x.EwaldRealTerms
+	}
+	return 0
+}
+
+func (x *PolarCheck) GetEwaldReciprocalVectors() uint32 {
+	if x != nil {
+		return x.EwaldReciprocalVectors
+	}
+	return 0
+}
+
 // SupercellFold reports the fold of a supercell force-constant set: the
 // largest element of each violation before and after its correction, all
 // in eV/Å². Permutation symmetry is max |Φ(s,0;t,R) − Φ(t,0;s,−R)ᵀ| of the
@@ -3432,7 +3614,7 @@ type SupercellFold struct {
 
 func (x *SupercellFold) Reset() {
 	*x = SupercellFold{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[29]
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3444,7 +3626,7 @@ func (x *SupercellFold) String() string {
 func (*SupercellFold) ProtoMessage() {}
 
 func (x *SupercellFold) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[29]
+	mi := &file_modegrid_v1_service_proto_msgTypes[30]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3457,7 +3639,7 @@ func (x *SupercellFold) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SupercellFold.ProtoReflect.Descriptor instead.
 func (*SupercellFold) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{29}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{30}
 }
 
 func (x *SupercellFold) GetAtomsMapped() uint32 {
@@ -3544,7 +3726,7 @@ type SymmetryAtTolerance struct {
 
 func (x *SymmetryAtTolerance) Reset() {
 	*x = SymmetryAtTolerance{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[30]
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3556,7 +3738,7 @@ func (x *SymmetryAtTolerance) String() string {
 func (*SymmetryAtTolerance) ProtoMessage() {}
 
 func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[30]
+	mi := &file_modegrid_v1_service_proto_msgTypes[31]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3569,7 +3751,7 @@ func (x *SymmetryAtTolerance) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SymmetryAtTolerance.ProtoReflect.Descriptor instead.
 func (*SymmetryAtTolerance) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{30}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{31}
 }
 
 func (x *SymmetryAtTolerance) GetToleranceA() float64 {
@@ -3605,7 +3787,7 @@ type RequestCost struct {
 
 func (x *RequestCost) Reset() {
 	*x = RequestCost{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[31]
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3617,7 +3799,7 @@ func (x *RequestCost) String() string {
 func (*RequestCost) ProtoMessage() {}
 
 func (x *RequestCost) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[31]
+	mi := &file_modegrid_v1_service_proto_msgTypes[32]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3630,7 +3812,7 @@ func (x *RequestCost) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use RequestCost.ProtoReflect.Descriptor instead.
 func (*RequestCost) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{31}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{32}
 }
 
 func (x *RequestCost) GetRequest() string {
@@ -3692,7 +3874,7 @@ type ComputeGruneisenRequest struct {
 
 func (x *ComputeGruneisenRequest) Reset() {
 	*x = ComputeGruneisenRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3704,7 +3886,7 @@ func (x *ComputeGruneisenRequest) String() string {
 func (*ComputeGruneisenRequest) ProtoMessage() {}
 
 func (x *ComputeGruneisenRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[32]
+	mi := &file_modegrid_v1_service_proto_msgTypes[33]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3717,7 +3899,7 @@ func (x *ComputeGruneisenRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeGruneisenRequest.ProtoReflect.Descriptor instead.
 func (*ComputeGruneisenRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{32}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{33}
 }
 
 func (x *ComputeGruneisenRequest) GetModels() []*ModelSource {
@@ -3792,7 +3974,7 @@ type GruneisenPoint struct {
 
 func (x *GruneisenPoint) Reset() {
 	*x = GruneisenPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	mi := &file_modegrid_v1_service_proto_msgTypes[34]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3804,7 +3986,7 @@ func (x *GruneisenPoint) String() string {
 func (*GruneisenPoint) ProtoMessage() {}
 
 func (x *GruneisenPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[33]
+	mi := &file_modegrid_v1_service_proto_msgTypes[34]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3817,7 +3999,7 @@ func (x *GruneisenPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GruneisenPoint.ProtoReflect.Descriptor instead.
 func (*GruneisenPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{33}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{34}
 }
 
 func (x *GruneisenPoint) GetQ() *QPoint {
@@ -3877,7 +4059,7 @@ type GammaAtTemperature struct {
 
 func (x *GammaAtTemperature) Reset() {
 	*x = GammaAtTemperature{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[34]
+	mi := &file_modegrid_v1_service_proto_msgTypes[35]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3889,7 +4071,7 @@ func (x *GammaAtTemperature) String() string {
 func (*GammaAtTemperature) ProtoMessage() {}
 
 func (x *GammaAtTemperature) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[34]
+	mi := &file_modegrid_v1_service_proto_msgTypes[35]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3902,7 +4084,7 @@ func (x *GammaAtTemperature) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GammaAtTemperature.ProtoReflect.Descriptor instead.
 func (*GammaAtTemperature) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{34}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{35}
 }
 
 func (x *GammaAtTemperature) GetTemperatureK() float64 {
@@ -3952,7 +4134,7 @@ type ComputeGruneisenResponse struct {
 
 func (x *ComputeGruneisenResponse) Reset() {
 	*x = ComputeGruneisenResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[35]
+	mi := &file_modegrid_v1_service_proto_msgTypes[36]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -3964,7 +4146,7 @@ func (x *ComputeGruneisenResponse) String() string {
 func (*ComputeGruneisenResponse) ProtoMessage() {}
 
 func (x *ComputeGruneisenResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[35]
+	mi := &file_modegrid_v1_service_proto_msgTypes[36]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -3977,7 +4159,7 @@ func (x *ComputeGruneisenResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeGruneisenResponse.ProtoReflect.Descriptor instead.
 func (*ComputeGruneisenResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{35}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{36}
 }
 
 func (x *ComputeGruneisenResponse) GetModelHash() string {
@@ -4057,7 +4239,7 @@ type ComputeQuasiHarmonicRequest struct {
 
 func (x *ComputeQuasiHarmonicRequest) Reset() {
 	*x = ComputeQuasiHarmonicRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[36]
+	mi := &file_modegrid_v1_service_proto_msgTypes[37]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4069,7 +4251,7 @@ func (x *ComputeQuasiHarmonicRequest) String() string {
 func (*ComputeQuasiHarmonicRequest) ProtoMessage() {}
 
 func (x *ComputeQuasiHarmonicRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[36]
+	mi := &file_modegrid_v1_service_proto_msgTypes[37]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4082,7 +4264,7 @@ func (x *ComputeQuasiHarmonicRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeQuasiHarmonicRequest.ProtoReflect.Descriptor instead.
 func (*ComputeQuasiHarmonicRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{36}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{37}
 }
 
 func (x *ComputeQuasiHarmonicRequest) GetModels() []*ModelSource {
@@ -4162,7 +4344,7 @@ type EosFit struct {
 
 func (x *EosFit) Reset() {
 	*x = EosFit{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[37]
+	mi := &file_modegrid_v1_service_proto_msgTypes[38]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4174,7 +4356,7 @@ func (x *EosFit) String() string {
 func (*EosFit) ProtoMessage() {}
 
 func (x *EosFit) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[37]
+	mi := &file_modegrid_v1_service_proto_msgTypes[38]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4187,7 +4369,7 @@ func (x *EosFit) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use EosFit.ProtoReflect.Descriptor instead.
 func (*EosFit) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{37}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{38}
 }
 
 func (x *EosFit) GetE0Ev() float64 {
@@ -4282,7 +4464,7 @@ type QuasiHarmonicPoint struct {
 
 func (x *QuasiHarmonicPoint) Reset() {
 	*x = QuasiHarmonicPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[38]
+	mi := &file_modegrid_v1_service_proto_msgTypes[39]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4294,7 +4476,7 @@ func (x *QuasiHarmonicPoint) String() string {
 func (*QuasiHarmonicPoint) ProtoMessage() {}
 
 func (x *QuasiHarmonicPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[38]
+	mi := &file_modegrid_v1_service_proto_msgTypes[39]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4307,7 +4489,7 @@ func (x *QuasiHarmonicPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use QuasiHarmonicPoint.ProtoReflect.Descriptor instead.
 func (*QuasiHarmonicPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{38}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{39}
 }
 
 func (x *QuasiHarmonicPoint) GetTemperatureK() float64 {
@@ -4468,7 +4650,7 @@ type ComputeQuasiHarmonicResponse struct {
 
 func (x *ComputeQuasiHarmonicResponse) Reset() {
 	*x = ComputeQuasiHarmonicResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[39]
+	mi := &file_modegrid_v1_service_proto_msgTypes[40]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4480,7 +4662,7 @@ func (x *ComputeQuasiHarmonicResponse) String() string {
 func (*ComputeQuasiHarmonicResponse) ProtoMessage() {}
 
 func (x *ComputeQuasiHarmonicResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[39]
+	mi := &file_modegrid_v1_service_proto_msgTypes[40]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4493,7 +4675,7 @@ func (x *ComputeQuasiHarmonicResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeQuasiHarmonicResponse.ProtoReflect.Descriptor instead.
 func (*ComputeQuasiHarmonicResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{39}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{40}
 }
 
 func (x *ComputeQuasiHarmonicResponse) GetModelHash() string {
@@ -4570,7 +4752,7 @@ type SampleGeometry struct {
 
 func (x *SampleGeometry) Reset() {
 	*x = SampleGeometry{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[40]
+	mi := &file_modegrid_v1_service_proto_msgTypes[41]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4582,7 +4764,7 @@ func (x *SampleGeometry) String() string {
 func (*SampleGeometry) ProtoMessage() {}
 
 func (x *SampleGeometry) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[40]
+	mi := &file_modegrid_v1_service_proto_msgTypes[41]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4595,7 +4777,7 @@ func (x *SampleGeometry) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SampleGeometry.ProtoReflect.Descriptor instead.
 func (*SampleGeometry) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{40}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{41}
 }
 
 func (x *SampleGeometry) GetKind() SampleKind {
@@ -4643,7 +4825,7 @@ type PointDefectScattering struct {
 
 func (x *PointDefectScattering) Reset() {
 	*x = PointDefectScattering{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[41]
+	mi := &file_modegrid_v1_service_proto_msgTypes[42]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4655,7 +4837,7 @@ func (x *PointDefectScattering) String() string {
 func (*PointDefectScattering) ProtoMessage() {}
 
 func (x *PointDefectScattering) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[41]
+	mi := &file_modegrid_v1_service_proto_msgTypes[42]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4668,7 +4850,7 @@ func (x *PointDefectScattering) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use PointDefectScattering.ProtoReflect.Descriptor instead.
 func (*PointDefectScattering) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{41}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{42}
 }
 
 func (x *PointDefectScattering) GetEnabled() bool {
@@ -4713,7 +4895,7 @@ type UmklappScattering struct {
 
 func (x *UmklappScattering) Reset() {
 	*x = UmklappScattering{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[42]
+	mi := &file_modegrid_v1_service_proto_msgTypes[43]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4725,7 +4907,7 @@ func (x *UmklappScattering) String() string {
 func (*UmklappScattering) ProtoMessage() {}
 
 func (x *UmklappScattering) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[42]
+	mi := &file_modegrid_v1_service_proto_msgTypes[43]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4738,7 +4920,7 @@ func (x *UmklappScattering) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use UmklappScattering.ProtoReflect.Descriptor instead.
 func (*UmklappScattering) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{42}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{43}
 }
 
 func (x *UmklappScattering) GetEnabled() bool {
@@ -4812,7 +4994,7 @@ type PowerLawScattering struct {
 
 func (x *PowerLawScattering) Reset() {
 	*x = PowerLawScattering{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[43]
+	mi := &file_modegrid_v1_service_proto_msgTypes[44]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4824,7 +5006,7 @@ func (x *PowerLawScattering) String() string {
 func (*PowerLawScattering) ProtoMessage() {}
 
 func (x *PowerLawScattering) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[43]
+	mi := &file_modegrid_v1_service_proto_msgTypes[44]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4837,7 +5019,7 @@ func (x *PowerLawScattering) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use PowerLawScattering.ProtoReflect.Descriptor instead.
 func (*PowerLawScattering) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{43}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{44}
 }
 
 func (x *PowerLawScattering) GetEnabled() bool {
@@ -4894,7 +5076,7 @@ type ComputeConductivityRequest struct {
 
 func (x *ComputeConductivityRequest) Reset() {
 	*x = ComputeConductivityRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[44]
+	mi := &file_modegrid_v1_service_proto_msgTypes[45]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -4906,7 +5088,7 @@ func (x *ComputeConductivityRequest) String() string {
 func (*ComputeConductivityRequest) ProtoMessage() {}
 
 func (x *ComputeConductivityRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[44]
+	mi := &file_modegrid_v1_service_proto_msgTypes[45]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -4919,7 +5101,7 @@ func (x *ComputeConductivityRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeConductivityRequest.ProtoReflect.Descriptor instead.
 func (*ComputeConductivityRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{44}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{45}
 }
 
 func (x *ComputeConductivityRequest) GetModel() *ModelSource {
@@ -5014,7 +5196,7 @@ type ConductivityPoint struct {
 
 func (x *ConductivityPoint) Reset() {
 	*x = ConductivityPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[45]
+	mi := &file_modegrid_v1_service_proto_msgTypes[46]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5026,7 +5208,7 @@ func (x *ConductivityPoint) String() string {
 func (*ConductivityPoint) ProtoMessage() {}
 
 func (x *ConductivityPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[45]
+	mi := &file_modegrid_v1_service_proto_msgTypes[46]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5039,7 +5221,7 @@ func (x *ConductivityPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ConductivityPoint.ProtoReflect.Descriptor instead.
 func (*ConductivityPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{45}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{46}
 }
 
 func (x *ConductivityPoint) GetTemperatureK() float64 {
@@ -5083,7 +5265,7 @@ type CumulativeConductivity struct {
 
 func (x *CumulativeConductivity) Reset() {
 	*x = CumulativeConductivity{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[46]
+	mi := &file_modegrid_v1_service_proto_msgTypes[47]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5095,7 +5277,7 @@ func (x *CumulativeConductivity) String() string {
 func (*CumulativeConductivity) ProtoMessage() {}
 
 func (x *CumulativeConductivity) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[46]
+	mi := &file_modegrid_v1_service_proto_msgTypes[47]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5108,7 +5290,7 @@ func (x *CumulativeConductivity) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use CumulativeConductivity.ProtoReflect.Descriptor instead.
 func (*CumulativeConductivity) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{46}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{47}
 }
 
 func (x *CumulativeConductivity) GetTemperatureK() float64 {
@@ -5164,7 +5346,7 @@ type ConductivitySeries struct {
 
 func (x *ConductivitySeries) Reset() {
 	*x = ConductivitySeries{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[47]
+	mi := &file_modegrid_v1_service_proto_msgTypes[48]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5176,7 +5358,7 @@ func (x *ConductivitySeries) String() string {
 func (*ConductivitySeries) ProtoMessage() {}
 
 func (x *ConductivitySeries) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[47]
+	mi := &file_modegrid_v1_service_proto_msgTypes[48]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5189,7 +5371,7 @@ func (x *ConductivitySeries) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ConductivitySeries.ProtoReflect.Descriptor instead.
 func (*ConductivitySeries) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{47}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{48}
 }
 
 func (x *ConductivitySeries) GetSample() *SampleGeometry {
@@ -5247,7 +5429,7 @@ type ComputeConductivityResponse struct {
 
 func (x *ComputeConductivityResponse) Reset() {
 	*x = ComputeConductivityResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[48]
+	mi := &file_modegrid_v1_service_proto_msgTypes[49]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5259,7 +5441,7 @@ func (x *ComputeConductivityResponse) String() string {
 func (*ComputeConductivityResponse) ProtoMessage() {}
 
 func (x *ComputeConductivityResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[48]
+	mi := &file_modegrid_v1_service_proto_msgTypes[49]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5272,7 +5454,7 @@ func (x *ComputeConductivityResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ComputeConductivityResponse.ProtoReflect.Descriptor instead.
 func (*ComputeConductivityResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{48}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{49}
 }
 
 func (x *ComputeConductivityResponse) GetModelHash() string {
@@ -5371,7 +5553,7 @@ type FitRequest struct {
 
 func (x *FitRequest) Reset() {
 	*x = FitRequest{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[49]
+	mi := &file_modegrid_v1_service_proto_msgTypes[50]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5383,7 +5565,7 @@ func (x *FitRequest) String() string {
 func (*FitRequest) ProtoMessage() {}
 
 func (x *FitRequest) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[49]
+	mi := &file_modegrid_v1_service_proto_msgTypes[50]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5396,7 +5578,7 @@ func (x *FitRequest) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitRequest.ProtoReflect.Descriptor instead.
 func (*FitRequest) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{49}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{50}
 }
 
 func (x *FitRequest) GetModel() *ModelSource {
@@ -5480,7 +5662,7 @@ type FitParameter struct {
 
 func (x *FitParameter) Reset() {
 	*x = FitParameter{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[50]
+	mi := &file_modegrid_v1_service_proto_msgTypes[51]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5492,7 +5674,7 @@ func (x *FitParameter) String() string {
 func (*FitParameter) ProtoMessage() {}
 
 func (x *FitParameter) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[50]
+	mi := &file_modegrid_v1_service_proto_msgTypes[51]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5505,7 +5687,7 @@ func (x *FitParameter) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitParameter.ProtoReflect.Descriptor instead.
 func (*FitParameter) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{50}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{51}
 }
 
 func (x *FitParameter) GetPath() string {
@@ -5545,7 +5727,7 @@ type FitTie struct {
 
 func (x *FitTie) Reset() {
 	*x = FitTie{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[51]
+	mi := &file_modegrid_v1_service_proto_msgTypes[52]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5557,7 +5739,7 @@ func (x *FitTie) String() string {
 func (*FitTie) ProtoMessage() {}
 
 func (x *FitTie) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[51]
+	mi := &file_modegrid_v1_service_proto_msgTypes[52]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5570,7 +5752,7 @@ func (x *FitTie) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitTie.ProtoReflect.Descriptor instead.
 func (*FitTie) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{51}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{52}
 }
 
 func (x *FitTie) GetPath() string {
@@ -5615,7 +5797,7 @@ type FrequencyDatum struct {
 
 func (x *FrequencyDatum) Reset() {
 	*x = FrequencyDatum{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[52]
+	mi := &file_modegrid_v1_service_proto_msgTypes[53]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5627,7 +5809,7 @@ func (x *FrequencyDatum) String() string {
 func (*FrequencyDatum) ProtoMessage() {}
 
 func (x *FrequencyDatum) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[52]
+	mi := &file_modegrid_v1_service_proto_msgTypes[53]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5640,7 +5822,7 @@ func (x *FrequencyDatum) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FrequencyDatum.ProtoReflect.Descriptor instead.
 func (*FrequencyDatum) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{52}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{53}
 }
 
 func (x *FrequencyDatum) GetQ() *QPoint {
@@ -5694,7 +5876,7 @@ type GammaFrequencyDatum struct {
 
 func (x *GammaFrequencyDatum) Reset() {
 	*x = GammaFrequencyDatum{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[53]
+	mi := &file_modegrid_v1_service_proto_msgTypes[54]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5706,7 +5888,7 @@ func (x *GammaFrequencyDatum) String() string {
 func (*GammaFrequencyDatum) ProtoMessage() {}
 
 func (x *GammaFrequencyDatum) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[53]
+	mi := &file_modegrid_v1_service_proto_msgTypes[54]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5719,7 +5901,7 @@ func (x *GammaFrequencyDatum) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use GammaFrequencyDatum.ProtoReflect.Descriptor instead.
 func (*GammaFrequencyDatum) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{53}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{54}
 }
 
 func (x *GammaFrequencyDatum) GetFrequencyThz() float64 {
@@ -5763,7 +5945,7 @@ type SoundVelocityDatum struct {
 
 func (x *SoundVelocityDatum) Reset() {
 	*x = SoundVelocityDatum{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[54]
+	mi := &file_modegrid_v1_service_proto_msgTypes[55]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5775,7 +5957,7 @@ func (x *SoundVelocityDatum) String() string {
 func (*SoundVelocityDatum) ProtoMessage() {}
 
 func (x *SoundVelocityDatum) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[54]
+	mi := &file_modegrid_v1_service_proto_msgTypes[55]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5788,7 +5970,7 @@ func (x *SoundVelocityDatum) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use SoundVelocityDatum.ProtoReflect.Descriptor instead.
 func (*SoundVelocityDatum) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{54}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{55}
 }
 
 func (x *SoundVelocityDatum) GetDirection() *Vec3 {
@@ -5842,7 +6024,7 @@ type ElasticConstantDatum struct {
 
 func (x *ElasticConstantDatum) Reset() {
 	*x = ElasticConstantDatum{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[55]
+	mi := &file_modegrid_v1_service_proto_msgTypes[56]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5854,7 +6036,7 @@ func (x *ElasticConstantDatum) String() string {
 func (*ElasticConstantDatum) ProtoMessage() {}
 
 func (x *ElasticConstantDatum) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[55]
+	mi := &file_modegrid_v1_service_proto_msgTypes[56]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5867,7 +6049,7 @@ func (x *ElasticConstantDatum) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ElasticConstantDatum.ProtoReflect.Descriptor instead.
 func (*ElasticConstantDatum) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{55}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{56}
 }
 
 func (x *ElasticConstantDatum) GetIj() uint32 {
@@ -5908,7 +6090,7 @@ type HeatCapacityData struct {
 
 func (x *HeatCapacityData) Reset() {
 	*x = HeatCapacityData{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[56]
+	mi := &file_modegrid_v1_service_proto_msgTypes[57]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5920,7 +6102,7 @@ func (x *HeatCapacityData) String() string {
 func (*HeatCapacityData) ProtoMessage() {}
 
 func (x *HeatCapacityData) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[56]
+	mi := &file_modegrid_v1_service_proto_msgTypes[57]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5933,7 +6115,7 @@ func (x *HeatCapacityData) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use HeatCapacityData.ProtoReflect.Descriptor instead.
 func (*HeatCapacityData) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{56}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{57}
 }
 
 func (x *HeatCapacityData) GetGrid() *MonkhorstPackGrid {
@@ -5972,7 +6154,7 @@ type HeatCapacityPoint struct {
 
 func (x *HeatCapacityPoint) Reset() {
 	*x = HeatCapacityPoint{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[57]
+	mi := &file_modegrid_v1_service_proto_msgTypes[58]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -5984,7 +6166,7 @@ func (x *HeatCapacityPoint) String() string {
 func (*HeatCapacityPoint) ProtoMessage() {}
 
 func (x *HeatCapacityPoint) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[57]
+	mi := &file_modegrid_v1_service_proto_msgTypes[58]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -5997,7 +6179,7 @@ func (x *HeatCapacityPoint) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use HeatCapacityPoint.ProtoReflect.Descriptor instead.
 func (*HeatCapacityPoint) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{57}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{58}
 }
 
 func (x *HeatCapacityPoint) GetTemperatureK() float64 {
@@ -6042,7 +6224,7 @@ type FitResponse struct {
 
 func (x *FitResponse) Reset() {
 	*x = FitResponse{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[58]
+	mi := &file_modegrid_v1_service_proto_msgTypes[59]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6054,7 +6236,7 @@ func (x *FitResponse) String() string {
 func (*FitResponse) ProtoMessage() {}
 
 func (x *FitResponse) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[58]
+	mi := &file_modegrid_v1_service_proto_msgTypes[59]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6067,7 +6249,7 @@ func (x *FitResponse) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitResponse.ProtoReflect.Descriptor instead.
 func (*FitResponse) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{58}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{59}
 }
 
 func (x *FitResponse) GetModelHash() string {
@@ -6144,7 +6326,7 @@ type FitProgress struct {
 
 func (x *FitProgress) Reset() {
 	*x = FitProgress{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[59]
+	mi := &file_modegrid_v1_service_proto_msgTypes[60]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6156,7 +6338,7 @@ func (x *FitProgress) String() string {
 func (*FitProgress) ProtoMessage() {}
 
 func (x *FitProgress) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[59]
+	mi := &file_modegrid_v1_service_proto_msgTypes[60]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6169,7 +6351,7 @@ func (x *FitProgress) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitProgress.ProtoReflect.Descriptor instead.
 func (*FitProgress) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{59}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{60}
 }
 
 func (x *FitProgress) GetIteration() uint32 {
@@ -6246,7 +6428,7 @@ type FitResult struct {
 
 func (x *FitResult) Reset() {
 	*x = FitResult{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[60]
+	mi := &file_modegrid_v1_service_proto_msgTypes[61]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6258,7 +6440,7 @@ func (x *FitResult) String() string {
 func (*FitResult) ProtoMessage() {}
 
 func (x *FitResult) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[60]
+	mi := &file_modegrid_v1_service_proto_msgTypes[61]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6271,7 +6453,7 @@ func (x *FitResult) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitResult.ProtoReflect.Descriptor instead.
 func (*FitResult) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{60}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{61}
 }
 
 func (x *FitResult) GetFittedModelHash() string {
@@ -6412,7 +6594,7 @@ type FittedParameter struct {
 
 func (x *FittedParameter) Reset() {
 	*x = FittedParameter{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[61]
+	mi := &file_modegrid_v1_service_proto_msgTypes[62]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6424,7 +6606,7 @@ func (x *FittedParameter) String() string {
 func (*FittedParameter) ProtoMessage() {}
 
 func (x *FittedParameter) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[61]
+	mi := &file_modegrid_v1_service_proto_msgTypes[62]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6437,7 +6619,7 @@ func (x *FittedParameter) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FittedParameter.ProtoReflect.Descriptor instead.
 func (*FittedParameter) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{61}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{62}
 }
 
 func (x *FittedParameter) GetPath() string {
@@ -6508,7 +6690,7 @@ type FittedTie struct {
 
 func (x *FittedTie) Reset() {
 	*x = FittedTie{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[62]
+	mi := &file_modegrid_v1_service_proto_msgTypes[63]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6520,7 +6702,7 @@ func (x *FittedTie) String() string {
 func (*FittedTie) ProtoMessage() {}
 
 func (x *FittedTie) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[62]
+	mi := &file_modegrid_v1_service_proto_msgTypes[63]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6533,7 +6715,7 @@ func (x *FittedTie) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FittedTie.ProtoReflect.Descriptor instead.
 func (*FittedTie) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{62}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{63}
 }
 
 func (x *FittedTie) GetPath() string {
@@ -6594,7 +6776,7 @@ type FitResidual struct {
 
 func (x *FitResidual) Reset() {
 	*x = FitResidual{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[63]
+	mi := &file_modegrid_v1_service_proto_msgTypes[64]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6606,7 +6788,7 @@ func (x *FitResidual) String() string {
 func (*FitResidual) ProtoMessage() {}
 
 func (x *FitResidual) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[63]
+	mi := &file_modegrid_v1_service_proto_msgTypes[64]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6619,7 +6801,7 @@ func (x *FitResidual) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use FitResidual.ProtoReflect.Descriptor instead.
 func (*FitResidual) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{63}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{64}
 }
 
 func (x *FitResidual) GetDatum() string {
@@ -6682,7 +6864,7 @@ type UndeterminedParameters struct {
 
 func (x *UndeterminedParameters) Reset() {
 	*x = UndeterminedParameters{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[64]
+	mi := &file_modegrid_v1_service_proto_msgTypes[65]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6694,7 +6876,7 @@ func (x *UndeterminedParameters) String() string {
 func (*UndeterminedParameters) ProtoMessage() {}
 
 func (x *UndeterminedParameters) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[64]
+	mi := &file_modegrid_v1_service_proto_msgTypes[65]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6707,7 +6889,7 @@ func (x *UndeterminedParameters) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use UndeterminedParameters.ProtoReflect.Descriptor instead.
 func (*UndeterminedParameters) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{64}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{65}
 }
 
 func (x *UndeterminedParameters) GetPaths() []string {
@@ -6749,7 +6931,7 @@ type ParameterCombination struct {
 
 func (x *ParameterCombination) Reset() {
 	*x = ParameterCombination{}
-	mi := &file_modegrid_v1_service_proto_msgTypes[65]
+	mi := &file_modegrid_v1_service_proto_msgTypes[66]
 	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 	ms.StoreMessageInfo(mi)
 }
@@ -6761,7 +6943,7 @@ func (x *ParameterCombination) String() string {
 func (*ParameterCombination) ProtoMessage() {}
 
 func (x *ParameterCombination) ProtoReflect() protoreflect.Message {
-	mi := &file_modegrid_v1_service_proto_msgTypes[65]
+	mi := &file_modegrid_v1_service_proto_msgTypes[66]
 	if x != nil {
 		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
 		if ms.LoadMessageInfo() == nil {
@@ -6774,7 +6956,7 @@ func (x *ParameterCombination) ProtoReflect() protoreflect.Message {
 
 // Deprecated: Use ParameterCombination.ProtoReflect.Descriptor instead.
 func (*ParameterCombination) Descriptor() ([]byte, []int) {
-	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{65}
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{66}
 }
 
 func (x *ParameterCombination) GetCoefficients() []float64 {
@@ -6805,11 +6987,460 @@ func (x *ParameterCombination) GetStdErrorUnscaled() float64 {
 	return 0
 }
 
+// ComputeInfraredRequest asks for the infrared response of a polar model.
+//
+// ε(ω) = ε∞ + (4π/Ω) Σ_m S_m / (ω_m² − ω² − iγ_m ω) in Gaussian form (Gonze
+// & Lee, Phys. Rev. B 55, 10355 (1997)); in SI the factor 4π/Ω is
+// e²/(ε₀ Ω m_u) for S in e²/amu (physics/polar/doc.go derives it). The
+// reflectivity is R = |(n − 1)/(n + 1)|², n = √ε along the direction, at
+// normal incidence from vacuum.
+type ComputeInfraredRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The model; it must have Born charges and ε∞.
+	Model *ModelSource `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Cartesian direction of the light's electric field in the crystal (any
+	// length, not zero; Vec3's Å do not matter here): ε(ω) and R(ω) are
+	// ê·ε(ω)·ê, exact for a principal axis of ε (any axis of a cubic
+	// crystal), and the LO frequencies are those of Γ approached along it.
+	Direction *Vec3 `protobuf:"bytes,2,opt,name=direction,proto3" json:"direction,omitempty"`
+	// Unit of every frequency and damping in the request and the response.
+	Unit FrequencyUnit `protobuf:"varint,3,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	// Lower end of the sampled window (≥ 0); with max == min == 0 the
+	// window is 0 to 1.25 × the highest LO frequency.
+	Min float64 `protobuf:"fixed64,4,opt,name=min,proto3" json:"min,omitempty"`
+	// Upper end of the sampled window.
+	Max float64 `protobuf:"fixed64,5,opt,name=max,proto3" json:"max,omitempty"`
+	// Samples in the window, ends included (0: 1001; at least 2).
+	Points uint32 `protobuf:"varint,6,opt,name=points,proto3" json:"points,omitempty"`
+	// Damping γ of every mode, as an ordinary frequency in the unit (γ in
+	// the formula is 2π times it in rad/s; for weak damping it is about the
+	// full width at half maximum of the mode's peak in ε″, in the unit). 0
+	// with no mode_damping: 1 % of the highest frequency at Γ.
+	Damping float64 `protobuf:"fixed64,7,opt,name=damping,proto3" json:"damping,omitempty"`
+	// Damping per mode at Γ, in the order of the response's modes
+	// (ascending frequency), one per mode (sites × 3); overrides damping.
+	ModeDamping   []float64 `protobuf:"fixed64,8,rep,packed,name=mode_damping,json=modeDamping,proto3" json:"mode_damping,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeInfraredRequest) Reset() {
+	*x = ComputeInfraredRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[67]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeInfraredRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeInfraredRequest) ProtoMessage() {}
+
+func (x *ComputeInfraredRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[67]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeInfraredRequest.ProtoReflect.Descriptor instead.
+func (*ComputeInfraredRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{67}
+}
+
+func (x *ComputeInfraredRequest) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+func (x *ComputeInfraredRequest) GetDirection() *Vec3 {
+	if x != nil {
+		return x.Direction
+	}
+	return nil
+}
+
+func (x *ComputeInfraredRequest) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+func (x *ComputeInfraredRequest) GetMin() float64 {
+	if x != nil {
+		return x.Min
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetMax() float64 {
+	if x != nil {
+		return x.Max
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetPoints() uint32 {
+	if x != nil {
+		return x.Points
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetDamping() float64 {
+	if x != nil {
+		return x.Damping
+	}
+	return 0
+}
+
+func (x *ComputeInfraredRequest) GetModeDamping() []float64 {
+	if x != nil {
+		return x.ModeDamping
+	}
+	return nil
+}
+
+// InfraredMode is one mode at Γ in the analytic limit (transverse optical
+// and acoustic modes).
+type InfraredMode struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Frequency, response unit (negative: imaginary).
+	Frequency float64 `protobuf:"fixed64,1,opt,name=frequency,proto3" json:"frequency,omitempty"`
+	// One of the 3 acoustic modes (left out of ε).
+	Acoustic bool `protobuf:"varint,2,opt,name=acoustic,proto3" json:"acoustic,omitempty"`
+	// Infrared active: |Z̃|² above ComputeInfraredResponse.active_threshold
+	// of the oscillator-strength sum rule; the others are silent.
+	Active bool `protobuf:"varint,3,opt,name=active,proto3" json:"active,omitempty"`
+	// Mode effective charge Z̃_α = Σ_{s,β} Z*_{s,αβ} e_{sβ}/√m_s (Gonze & Lee
+	// 1997), 3 Cartesian components, e/√amu. Degenerate modes are rotated
+	// so that their charges are orthogonal.
+	ModeCharge []float64 `protobuf:"fixed64,4,rep,packed,name=mode_charge,json=modeCharge,proto3" json:"mode_charge,omitempty"`
+	// Oscillator strength S_αβ = Z̃_α Z̃_β, 9 numbers row-major, e²/amu
+	// (1 e²/amu = 1.5459e-11 C²/kg).
+	OscillatorStrength []float64 `protobuf:"fixed64,5,rep,packed,name=oscillator_strength,json=oscillatorStrength,proto3" json:"oscillator_strength,omitempty"`
+	// ê·S·ê along the request's direction, e²/amu.
+	StrengthAlong float64 `protobuf:"fixed64,6,opt,name=strength_along,json=strengthAlong,proto3" json:"strength_along,omitempty"`
+	// Damping used, response unit.
+	Damping       float64 `protobuf:"fixed64,7,opt,name=damping,proto3" json:"damping,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *InfraredMode) Reset() {
+	*x = InfraredMode{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[68]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *InfraredMode) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*InfraredMode) ProtoMessage() {}
+
+func (x *InfraredMode) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[68]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use InfraredMode.ProtoReflect.Descriptor instead.
+func (*InfraredMode) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{68}
+}
+
+func (x *InfraredMode) GetFrequency() float64 {
+	if x != nil {
+		return x.Frequency
+	}
+	return 0
+}
+
+func (x *InfraredMode) GetAcoustic() bool {
+	if x != nil {
+		return x.Acoustic
+	}
+	return false
+}
+
+func (x *InfraredMode) GetActive() bool {
+	if x != nil {
+		return x.Active
+	}
+	return false
+}
+
+func (x *InfraredMode) GetModeCharge() []float64 {
+	if x != nil {
+		return x.ModeCharge
+	}
+	return nil
+}
+
+func (x *InfraredMode) GetOscillatorStrength() []float64 {
+	if x != nil {
+		return x.OscillatorStrength
+	}
+	return nil
+}
+
+func (x *InfraredMode) GetStrengthAlong() float64 {
+	if x != nil {
+		return x.StrengthAlong
+	}
+	return 0
+}
+
+func (x *InfraredMode) GetDamping() float64 {
+	if x != nil {
+		return x.Damping
+	}
+	return 0
+}
+
+// InfraredSample is the response at one frequency along the direction.
+type InfraredSample struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Frequency, response unit.
+	Frequency float64 `protobuf:"fixed64,1,opt,name=frequency,proto3" json:"frequency,omitempty"`
+	// ε′ = Re ê·ε(ω)·ê, dimensionless.
+	EpsilonReal float64 `protobuf:"fixed64,2,opt,name=epsilon_real,json=epsilonReal,proto3" json:"epsilon_real,omitempty"`
+	// ε″ = Im ê·ε(ω)·ê, dimensionless (≥ 0: absorption).
+	EpsilonImag float64 `protobuf:"fixed64,3,opt,name=epsilon_imag,json=epsilonImag,proto3" json:"epsilon_imag,omitempty"`
+	// Normal-incidence reflectivity, in [0, 1].
+	Reflectivity  float64 `protobuf:"fixed64,4,opt,name=reflectivity,proto3" json:"reflectivity,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *InfraredSample) Reset() {
+	*x = InfraredSample{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[69]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *InfraredSample) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*InfraredSample) ProtoMessage() {}
+
+func (x *InfraredSample) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[69]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use InfraredSample.ProtoReflect.Descriptor instead.
+func (*InfraredSample) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{69}
+}
+
+func (x *InfraredSample) GetFrequency() float64 {
+	if x != nil {
+		return x.Frequency
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetEpsilonReal() float64 {
+	if x != nil {
+		return x.EpsilonReal
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetEpsilonImag() float64 {
+	if x != nil {
+		return x.EpsilonImag
+	}
+	return 0
+}
+
+func (x *InfraredSample) GetReflectivity() float64 {
+	if x != nil {
+		return x.Reflectivity
+	}
+	return 0
+}
+
+// ComputeInfraredResponse holds the infrared response.
+type ComputeInfraredResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the model that produced this result.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters of the request that produced this result.
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Unit of every frequency and damping.
+	Unit FrequencyUnit `protobuf:"varint,3,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	// The unit vector of the direction used.
+	Direction *Vec3 `protobuf:"bytes,4,opt,name=direction,proto3" json:"direction,omitempty"`
+	// The modes at Γ (analytic limit), ascending.
+	Modes []*InfraredMode `protobuf:"bytes,5,rep,name=modes,proto3" json:"modes,omitempty"`
+	// Every mode's frequency at Γ approached along the direction (the LO
+	// modes among them), ascending, response unit.
+	LoFrequencies []float64 `protobuf:"fixed64,6,rep,packed,name=lo_frequencies,json=loFrequencies,proto3" json:"lo_frequencies,omitempty"`
+	// ε∞, 9 numbers row-major.
+	EpsilonInf []float64 `protobuf:"fixed64,7,rep,packed,name=epsilon_inf,json=epsilonInf,proto3" json:"epsilon_inf,omitempty"`
+	// Static ε₀ = ε∞ + (4π/Ω) Σ_m S_m/ω_m² over the active modes, 9 numbers.
+	EpsilonStatic []float64 `protobuf:"fixed64,8,rep,packed,name=epsilon_static,json=epsilonStatic,proto3" json:"epsilon_static,omitempty"`
+	// ê·ε∞·ê.
+	EpsilonInfAlong float64 `protobuf:"fixed64,9,opt,name=epsilon_inf_along,json=epsilonInfAlong,proto3" json:"epsilon_inf_along,omitempty"`
+	// ê·ε₀·ê.
+	EpsilonStaticAlong float64 `protobuf:"fixed64,10,opt,name=epsilon_static_along,json=epsilonStaticAlong,proto3" json:"epsilon_static_along,omitempty"`
+	// The samples, ascending in frequency.
+	Samples []*InfraredSample `protobuf:"bytes,11,rep,name=samples,proto3" json:"samples,omitempty"`
+	// The relative threshold of infrared activity: a mode is active when
+	// |Z̃|² > threshold × Σ_s tr(Z*_sᵀ Z*_s)/m_s (the sum of |Z̃|² over all
+	// modes).
+	ActiveThreshold float64 `protobuf:"fixed64,12,opt,name=active_threshold,json=activeThreshold,proto3" json:"active_threshold,omitempty"`
+	unknownFields   protoimpl.UnknownFields
+	sizeCache       protoimpl.SizeCache
+}
+
+func (x *ComputeInfraredResponse) Reset() {
+	*x = ComputeInfraredResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[70]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeInfraredResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeInfraredResponse) ProtoMessage() {}
+
+func (x *ComputeInfraredResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[70]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeInfraredResponse.ProtoReflect.Descriptor instead.
+func (*ComputeInfraredResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{70}
+}
+
+func (x *ComputeInfraredResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeInfraredResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeInfraredResponse) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+func (x *ComputeInfraredResponse) GetDirection() *Vec3 {
+	if x != nil {
+		return x.Direction
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetModes() []*InfraredMode {
+	if x != nil {
+		return x.Modes
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetLoFrequencies() []float64 {
+	if x != nil {
+		return x.LoFrequencies
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonInf() []float64 {
+	if x != nil {
+		return x.EpsilonInf
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonStatic() []float64 {
+	if x != nil {
+		return x.EpsilonStatic
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonInfAlong() float64 {
+	if x != nil {
+		return x.EpsilonInfAlong
+	}
+	return 0
+}
+
+func (x *ComputeInfraredResponse) GetEpsilonStaticAlong() float64 {
+	if x != nil {
+		return x.EpsilonStaticAlong
+	}
+	return 0
+}
+
+func (x *ComputeInfraredResponse) GetSamples() []*InfraredSample {
+	if x != nil {
+		return x.Samples
+	}
+	return nil
+}
+
+func (x *ComputeInfraredResponse) GetActiveThreshold() float64 {
+	if x != nil {
+		return x.ActiveThreshold
+	}
+	return 0
+}
+
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\n" +
-	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\xe6\x01\n" +
+	"\x19modegrid/v1/service.proto\x12\vmodegrid.v1\x1a\x19modegrid/v1/crystal.proto\"\xa2\x02\n" +
 	"\vModelSource\x120\n" +
 	"\acrystal\x18\x01 \x01(\v2\x14.modegrid.v1.CrystalH\x00R\acrystal\x12\x1f\n" +
 	"\n" +
@@ -6818,7 +7449,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14symmetry_tolerance_a\x18\x04 \x01(\x01R\x12symmetryToleranceA\x12\x1e\n" +
 	"\n" +
 	"symmetrize\x18\x05 \x01(\bR\n" +
-	"symmetrizeB\b\n" +
+	"symmetrize\x12:\n" +
+	"\x19enforce_charge_neutrality\x18\x06 \x01(\bR\x17enforceChargeNeutralityB\b\n" +
 	"\x06source\"\xb2\x01\n" +
 	"\x11UploadModelHeader\x12\x1d\n" +
 	"\n" +
@@ -6841,10 +7473,11 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x06QPoint\x12\x0e\n" +
 	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
 	"\x02q2\x18\x02 \x01(\x01R\x02q2\x12\x0e\n" +
-	"\x02q3\x18\x03 \x01(\x01R\x02q3\"9\n" +
+	"\x02q3\x18\x03 \x01(\x01R\x02q3\"y\n" +
 	"\n" +
 	"QPointList\x12+\n" +
-	"\x06points\x18\x01 \x03(\v2\x13.modegrid.v1.QPointR\x06points\"A\n" +
+	"\x06points\x18\x01 \x03(\v2\x13.modegrid.v1.QPointR\x06points\x12>\n" +
+	"\x10gamma_directions\x18\x02 \x03(\v2\x13.modegrid.v1.QPointR\x0fgammaDirections\"A\n" +
 	"\x11MonkhorstPackGrid\x12\x12\n" +
 	"\x04mesh\x18\x01 \x03(\rR\x04mesh\x12\x18\n" +
 	"\ashifted\x18\x02 \x01(\bR\ashifted\"%\n" +
@@ -6862,14 +7495,16 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\feigenvectors\x18\x04 \x01(\bR\feigenvectors\x12)\n" +
 	"\x10group_velocities\x18\x05 \x01(\bR\x0fgroupVelocities\x12\x1d\n" +
 	"\n" +
-	"chunk_size\x18\x06 \x01(\rR\tchunkSize\"\xd9\x01\n" +
+	"chunk_size\x18\x06 \x01(\rR\tchunkSize\"\xbe\x02\n" +
 	"\x05Modes\x12!\n" +
 	"\x01q\x18\x01 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x16\n" +
 	"\x06weight\x18\x02 \x01(\x01R\x06weight\x12 \n" +
 	"\vfrequencies\x18\x03 \x03(\x01R\vfrequencies\x12\x1c\n" +
 	"\timaginary\x18\x04 \x01(\bR\timaginary\x12\"\n" +
 	"\feigenvectors\x18\x05 \x03(\x01R\feigenvectors\x121\n" +
-	"\x15group_velocities_km_s\x18\x06 \x03(\x01R\x12groupVelocitiesKmS\"\xdf\x01\n" +
+	"\x15group_velocities_km_s\x18\x06 \x03(\x01R\x12groupVelocitiesKmS\x12<\n" +
+	"\x0fgamma_direction\x18\a \x01(\v2\x13.modegrid.v1.QPointR\x0egammaDirection\x12%\n" +
+	"\x0egamma_analytic\x18\b \x01(\bR\rgammaAnalytic\"\xdf\x01\n" +
 	"\x14ComputeModesResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -6892,13 +7527,14 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x04unit\x18\x05 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12-\n" +
 	"\x10connect_branches\x18\x06 \x01(\bB\x02\x18\x01R\x0fconnectBranches\x12!\n" +
 	"\ffollow_modes\x18\a \x01(\bR\vfollowModes\x12!\n" +
-	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xb6\x01\n" +
+	"\fsite_weights\x18\b \x01(\bR\vsiteWeights\"\xf4\x01\n" +
 	"\x10DispersionSample\x12$\n" +
 	"\x0edistance_inv_a\x18\x01 \x01(\x01R\fdistanceInvA\x12!\n" +
 	"\x01q\x18\x02 \x01(\v2\x13.modegrid.v1.QPointR\x01q\x12\x14\n" +
 	"\x05label\x18\x03 \x01(\tR\x05label\x12 \n" +
 	"\vfrequencies\x18\x04 \x03(\x01R\vfrequencies\x12!\n" +
-	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\"\xc3\x01\n" +
+	"\fsite_weights\x18\x05 \x03(\x01R\vsiteWeights\x12<\n" +
+	"\x0fgamma_direction\x18\x06 \x01(\v2\x13.modegrid.v1.QPointR\x0egammaDirection\"\xc3\x01\n" +
 	"\x19ComputeDispersionResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -6922,7 +7558,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\fProjectedDos\x12\x12\n" +
 	"\x04site\x18\x01 \x01(\x05R\x04site\x12\x14\n" +
 	"\x05label\x18\x02 \x01(\tR\x05label\x12\x10\n" +
-	"\x03dos\x18\x03 \x03(\x01R\x03dos\"\xa2\x03\n" +
+	"\x03dos\x18\x03 \x03(\x01R\x03dos\"\xc9\x03\n" +
 	"\x12ComputeDosResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -6940,7 +7576,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x0fimaginary_modes\x18\t \x01(\rR\x0eimaginaryModes\x12&\n" +
 	"\x0fstates_per_cell\x18\n" +
 	" \x01(\x01R\rstatesPerCell\x12\x14\n" +
-	"\x05width\x18\v \x01(\x01R\x05width\"Y\n" +
+	"\x05width\x18\v \x01(\x01R\x05width\x12%\n" +
+	"\x0egamma_analytic\x18\f \x01(\bR\rgammaAnalytic\"Y\n" +
 	"\x10TemperatureRange\x12\x17\n" +
 	"\astart_k\x18\x01 \x01(\x01R\x06startK\x12\x15\n" +
 	"\x06stop_k\x18\x02 \x01(\x01R\x05stopK\x12\x15\n" +
@@ -6983,7 +7620,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x19internal_energy_kj_per_kg\x18\x12 \x01(\x01R\x15internalEnergyKjPerKg\x120\n" +
 	"\x15free_energy_kj_per_kg\x18\x13 \x01(\x01R\x11freeEnergyKjPerKg\x12*\n" +
 	"\x12entropy_j_per_kg_k\x18\x14 \x01(\x01R\x0eentropyJPerKgK\x125\n" +
-	"\x18heat_capacity_j_per_kg_k\x18\x15 \x01(\x01R\x13heatCapacityJPerKgK\"\xc4\x04\n" +
+	"\x18heat_capacity_j_per_kg_k\x18\x15 \x01(\x01R\x13heatCapacityJPerKgK\"\xeb\x04\n" +
 	"\x16ComputeThermalResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -6999,7 +7636,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x1bzero_point_energy_kj_per_kg\x18\t \x01(\x01R\x16zeroPointEnergyKjPerKg\x12$\n" +
 	"\x0eatoms_per_cell\x18\n" +
 	" \x01(\rR\fatomsPerCell\x12\"\n" +
-	"\rcell_mass_amu\x18\v \x01(\x01R\vcellMassAmu\"C\n" +
+	"\rcell_mass_amu\x18\v \x01(\x01R\vcellMassAmu\x12%\n" +
+	"\x0egamma_analytic\x18\f \x01(\bR\rgammaAnalytic\"C\n" +
 	"\x11CheckModelRequest\x12.\n" +
 	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\"H\n" +
 	"\x0eFieldViolation\x12\x14\n" +
@@ -7013,7 +7651,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"distance_a\x18\x03 \x01(\x01R\tdistanceA\"Q\n" +
 	"\x11SymmetryOperation\x12\x1a\n" +
 	"\brotation\x18\x01 \x03(\x05R\brotation\x12 \n" +
-	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xc0\b\n" +
+	"\vtranslation\x18\x02 \x03(\x01R\vtranslation\"\xef\b\n" +
 	"\x12CheckModelResponse\x12\x14\n" +
 	"\x05valid\x18\x01 \x01(\bR\x05valid\x12;\n" +
 	"\n" +
@@ -7045,7 +7683,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14symmetry_tolerance_a\x18\x14 \x01(\x01R\x12symmetryToleranceA\x12a\n" +
 	"\x1csymmetry_at_looser_tolerance\x18\x15 \x03(\v2 .modegrid.v1.SymmetryAtToleranceR\x19symmetryAtLooserTolerance\x12 \n" +
 	"\vsymmetrized\x18\x16 \x01(\bR\vsymmetrized\x12A\n" +
-	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\"\x89\x04\n" +
+	"\x0esupercell_fold\x18\x17 \x01(\v2\x1a.modegrid.v1.SupercellFoldR\rsupercellFold\x12-\n" +
+	"\x05polar\x18\x18 \x01(\v2\x17.modegrid.v1.PolarCheckR\x05polar\"\xa4\x02\n" +
+	"\n" +
+	"PolarCheck\x12A\n" +
+	"\x1dcharge_neutrality_violation_e\x18\x01 \x01(\x01R\x1achargeNeutralityViolationE\x12<\n" +
+	"\x1acharge_neutrality_enforced\x18\x02 \x01(\bR\x18chargeNeutralityEnforced\x121\n" +
+	"\x15ewald_parameter_inv_a\x18\x03 \x01(\x01R\x12ewaldParameterInvA\x12(\n" +
+	"\x10ewald_real_terms\x18\x04 \x01(\rR\x0eewaldRealTerms\x128\n" +
+	"\x18ewald_reciprocal_vectors\x18\x05 \x01(\rR\x16ewaldReciprocalVectors\"\x89\x04\n" +
 	"\rSupercellFold\x12!\n" +
 	"\fatoms_mapped\x18\x01 \x01(\rR\vatomsMapped\x12\x1f\n" +
 	"\vtolerance_a\x18\x02 \x01(\x01R\n" +
@@ -7348,7 +7994,48 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\fcoefficients\x18\x01 \x03(\x01R\fcoefficients\x12\x14\n" +
 	"\x05value\x18\x02 \x01(\x01R\x05value\x12\x1b\n" +
 	"\tstd_error\x18\x03 \x01(\x01R\bstdError\x12,\n" +
-	"\x12std_error_unscaled\x18\x04 \x01(\x01R\x10stdErrorUnscaled*S\n" +
+	"\x12std_error_unscaled\x18\x04 \x01(\x01R\x10stdErrorUnscaled\"\xa2\x02\n" +
+	"\x16ComputeInfraredRequest\x12.\n" +
+	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12/\n" +
+	"\tdirection\x18\x02 \x01(\v2\x11.modegrid.v1.Vec3R\tdirection\x12.\n" +
+	"\x04unit\x18\x03 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12\x10\n" +
+	"\x03min\x18\x04 \x01(\x01R\x03min\x12\x10\n" +
+	"\x03max\x18\x05 \x01(\x01R\x03max\x12\x16\n" +
+	"\x06points\x18\x06 \x01(\rR\x06points\x12\x18\n" +
+	"\adamping\x18\a \x01(\x01R\adamping\x12!\n" +
+	"\fmode_damping\x18\b \x03(\x01R\vmodeDamping\"\xf3\x01\n" +
+	"\fInfraredMode\x12\x1c\n" +
+	"\tfrequency\x18\x01 \x01(\x01R\tfrequency\x12\x1a\n" +
+	"\bacoustic\x18\x02 \x01(\bR\bacoustic\x12\x16\n" +
+	"\x06active\x18\x03 \x01(\bR\x06active\x12\x1f\n" +
+	"\vmode_charge\x18\x04 \x03(\x01R\n" +
+	"modeCharge\x12/\n" +
+	"\x13oscillator_strength\x18\x05 \x03(\x01R\x12oscillatorStrength\x12%\n" +
+	"\x0estrength_along\x18\x06 \x01(\x01R\rstrengthAlong\x12\x18\n" +
+	"\adamping\x18\a \x01(\x01R\adamping\"\x98\x01\n" +
+	"\x0eInfraredSample\x12\x1c\n" +
+	"\tfrequency\x18\x01 \x01(\x01R\tfrequency\x12!\n" +
+	"\fepsilon_real\x18\x02 \x01(\x01R\vepsilonReal\x12!\n" +
+	"\fepsilon_imag\x18\x03 \x01(\x01R\vepsilonImag\x12\"\n" +
+	"\freflectivity\x18\x04 \x01(\x01R\freflectivity\"\x99\x04\n" +
+	"\x17ComputeInfraredResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x12.\n" +
+	"\x04unit\x18\x03 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12/\n" +
+	"\tdirection\x18\x04 \x01(\v2\x11.modegrid.v1.Vec3R\tdirection\x12/\n" +
+	"\x05modes\x18\x05 \x03(\v2\x19.modegrid.v1.InfraredModeR\x05modes\x12%\n" +
+	"\x0elo_frequencies\x18\x06 \x03(\x01R\rloFrequencies\x12\x1f\n" +
+	"\vepsilon_inf\x18\a \x03(\x01R\n" +
+	"epsilonInf\x12%\n" +
+	"\x0eepsilon_static\x18\b \x03(\x01R\repsilonStatic\x12*\n" +
+	"\x11epsilon_inf_along\x18\t \x01(\x01R\x0fepsilonInfAlong\x120\n" +
+	"\x14epsilon_static_along\x18\n" +
+	" \x01(\x01R\x12epsilonStaticAlong\x125\n" +
+	"\asamples\x18\v \x03(\v2\x1b.modegrid.v1.InfraredSampleR\asamples\x12)\n" +
+	"\x10active_threshold\x18\f \x01(\x01R\x0factiveThreshold*S\n" +
 	"\rModelEncoding\x12\x1e\n" +
 	"\x1aMODEL_ENCODING_UNSPECIFIED\x10\x00\x12\"\n" +
 	"\x1eMODEL_ENCODING_PROTOBUF_BINARY\x10\x01*\x95\x01\n" +
@@ -7397,7 +8084,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x1fHEAT_CAPACITY_BASIS_UNSPECIFIED\x10\x00\x12%\n" +
 	"!HEAT_CAPACITY_BASIS_PER_MOL_ATOMS\x10\x01\x12%\n" +
 	"!HEAT_CAPACITY_BASIS_PER_MOL_CELLS\x10\x02\x12\x1e\n" +
-	"\x1aHEAT_CAPACITY_BASIS_PER_KG\x10\x032\x8d\a\n" +
+	"\x1aHEAT_CAPACITY_BASIS_PER_KG\x10\x032\xeb\a\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -7410,7 +8097,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x10ComputeGruneisen\x12$.modegrid.v1.ComputeGruneisenRequest\x1a%.modegrid.v1.ComputeGruneisenResponse\x12k\n" +
 	"\x14ComputeQuasiHarmonic\x12(.modegrid.v1.ComputeQuasiHarmonicRequest\x1a).modegrid.v1.ComputeQuasiHarmonicResponse\x12h\n" +
 	"\x13ComputeConductivity\x12'.modegrid.v1.ComputeConductivityRequest\x1a(.modegrid.v1.ComputeConductivityResponse\x12:\n" +
-	"\x03Fit\x12\x17.modegrid.v1.FitRequest\x1a\x18.modegrid.v1.FitResponse0\x01B@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\x03Fit\x12\x17.modegrid.v1.FitRequest\x1a\x18.modegrid.v1.FitResponse0\x01\x12\\\n" +
+	"\x0fComputeInfrared\x12#.modegrid.v1.ComputeInfraredRequest\x1a$.modegrid.v1.ComputeInfraredResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -7425,7 +8113,7 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 }
 
 var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 10)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 66)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 71)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(ModelEncoding)(0),                   // 0: modegrid.v1.ModelEncoding
 	(FrequencyUnit)(0),                   // 1: modegrid.v1.FrequencyUnit
@@ -7466,170 +8154,188 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(*ShellBonds)(nil),                   // 36: modegrid.v1.ShellBonds
 	(*SymmetryOperation)(nil),            // 37: modegrid.v1.SymmetryOperation
 	(*CheckModelResponse)(nil),           // 38: modegrid.v1.CheckModelResponse
-	(*SupercellFold)(nil),                // 39: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),          // 40: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),                  // 41: modegrid.v1.RequestCost
-	(*ComputeGruneisenRequest)(nil),      // 42: modegrid.v1.ComputeGruneisenRequest
-	(*GruneisenPoint)(nil),               // 43: modegrid.v1.GruneisenPoint
-	(*GammaAtTemperature)(nil),           // 44: modegrid.v1.GammaAtTemperature
-	(*ComputeGruneisenResponse)(nil),     // 45: modegrid.v1.ComputeGruneisenResponse
-	(*ComputeQuasiHarmonicRequest)(nil),  // 46: modegrid.v1.ComputeQuasiHarmonicRequest
-	(*EosFit)(nil),                       // 47: modegrid.v1.EosFit
-	(*QuasiHarmonicPoint)(nil),           // 48: modegrid.v1.QuasiHarmonicPoint
-	(*ComputeQuasiHarmonicResponse)(nil), // 49: modegrid.v1.ComputeQuasiHarmonicResponse
-	(*SampleGeometry)(nil),               // 50: modegrid.v1.SampleGeometry
-	(*PointDefectScattering)(nil),        // 51: modegrid.v1.PointDefectScattering
-	(*UmklappScattering)(nil),            // 52: modegrid.v1.UmklappScattering
-	(*PowerLawScattering)(nil),           // 53: modegrid.v1.PowerLawScattering
-	(*ComputeConductivityRequest)(nil),   // 54: modegrid.v1.ComputeConductivityRequest
-	(*ConductivityPoint)(nil),            // 55: modegrid.v1.ConductivityPoint
-	(*CumulativeConductivity)(nil),       // 56: modegrid.v1.CumulativeConductivity
-	(*ConductivitySeries)(nil),           // 57: modegrid.v1.ConductivitySeries
-	(*ComputeConductivityResponse)(nil),  // 58: modegrid.v1.ComputeConductivityResponse
-	(*FitRequest)(nil),                   // 59: modegrid.v1.FitRequest
-	(*FitParameter)(nil),                 // 60: modegrid.v1.FitParameter
-	(*FitTie)(nil),                       // 61: modegrid.v1.FitTie
-	(*FrequencyDatum)(nil),               // 62: modegrid.v1.FrequencyDatum
-	(*GammaFrequencyDatum)(nil),          // 63: modegrid.v1.GammaFrequencyDatum
-	(*SoundVelocityDatum)(nil),           // 64: modegrid.v1.SoundVelocityDatum
-	(*ElasticConstantDatum)(nil),         // 65: modegrid.v1.ElasticConstantDatum
-	(*HeatCapacityData)(nil),             // 66: modegrid.v1.HeatCapacityData
-	(*HeatCapacityPoint)(nil),            // 67: modegrid.v1.HeatCapacityPoint
-	(*FitResponse)(nil),                  // 68: modegrid.v1.FitResponse
-	(*FitProgress)(nil),                  // 69: modegrid.v1.FitProgress
-	(*FitResult)(nil),                    // 70: modegrid.v1.FitResult
-	(*FittedParameter)(nil),              // 71: modegrid.v1.FittedParameter
-	(*FittedTie)(nil),                    // 72: modegrid.v1.FittedTie
-	(*FitResidual)(nil),                  // 73: modegrid.v1.FitResidual
-	(*UndeterminedParameters)(nil),       // 74: modegrid.v1.UndeterminedParameters
-	(*ParameterCombination)(nil),         // 75: modegrid.v1.ParameterCombination
-	(*Crystal)(nil),                      // 76: modegrid.v1.Crystal
-	(*Vec3)(nil),                         // 77: modegrid.v1.Vec3
+	(*PolarCheck)(nil),                   // 39: modegrid.v1.PolarCheck
+	(*SupercellFold)(nil),                // 40: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),          // 41: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),                  // 42: modegrid.v1.RequestCost
+	(*ComputeGruneisenRequest)(nil),      // 43: modegrid.v1.ComputeGruneisenRequest
+	(*GruneisenPoint)(nil),               // 44: modegrid.v1.GruneisenPoint
+	(*GammaAtTemperature)(nil),           // 45: modegrid.v1.GammaAtTemperature
+	(*ComputeGruneisenResponse)(nil),     // 46: modegrid.v1.ComputeGruneisenResponse
+	(*ComputeQuasiHarmonicRequest)(nil),  // 47: modegrid.v1.ComputeQuasiHarmonicRequest
+	(*EosFit)(nil),                       // 48: modegrid.v1.EosFit
+	(*QuasiHarmonicPoint)(nil),           // 49: modegrid.v1.QuasiHarmonicPoint
+	(*ComputeQuasiHarmonicResponse)(nil), // 50: modegrid.v1.ComputeQuasiHarmonicResponse
+	(*SampleGeometry)(nil),               // 51: modegrid.v1.SampleGeometry
+	(*PointDefectScattering)(nil),        // 52: modegrid.v1.PointDefectScattering
+	(*UmklappScattering)(nil),            // 53: modegrid.v1.UmklappScattering
+	(*PowerLawScattering)(nil),           // 54: modegrid.v1.PowerLawScattering
+	(*ComputeConductivityRequest)(nil),   // 55: modegrid.v1.ComputeConductivityRequest
+	(*ConductivityPoint)(nil),            // 56: modegrid.v1.ConductivityPoint
+	(*CumulativeConductivity)(nil),       // 57: modegrid.v1.CumulativeConductivity
+	(*ConductivitySeries)(nil),           // 58: modegrid.v1.ConductivitySeries
+	(*ComputeConductivityResponse)(nil),  // 59: modegrid.v1.ComputeConductivityResponse
+	(*FitRequest)(nil),                   // 60: modegrid.v1.FitRequest
+	(*FitParameter)(nil),                 // 61: modegrid.v1.FitParameter
+	(*FitTie)(nil),                       // 62: modegrid.v1.FitTie
+	(*FrequencyDatum)(nil),               // 63: modegrid.v1.FrequencyDatum
+	(*GammaFrequencyDatum)(nil),          // 64: modegrid.v1.GammaFrequencyDatum
+	(*SoundVelocityDatum)(nil),           // 65: modegrid.v1.SoundVelocityDatum
+	(*ElasticConstantDatum)(nil),         // 66: modegrid.v1.ElasticConstantDatum
+	(*HeatCapacityData)(nil),             // 67: modegrid.v1.HeatCapacityData
+	(*HeatCapacityPoint)(nil),            // 68: modegrid.v1.HeatCapacityPoint
+	(*FitResponse)(nil),                  // 69: modegrid.v1.FitResponse
+	(*FitProgress)(nil),                  // 70: modegrid.v1.FitProgress
+	(*FitResult)(nil),                    // 71: modegrid.v1.FitResult
+	(*FittedParameter)(nil),              // 72: modegrid.v1.FittedParameter
+	(*FittedTie)(nil),                    // 73: modegrid.v1.FittedTie
+	(*FitResidual)(nil),                  // 74: modegrid.v1.FitResidual
+	(*UndeterminedParameters)(nil),       // 75: modegrid.v1.UndeterminedParameters
+	(*ParameterCombination)(nil),         // 76: modegrid.v1.ParameterCombination
+	(*ComputeInfraredRequest)(nil),       // 77: modegrid.v1.ComputeInfraredRequest
+	(*InfraredMode)(nil),                 // 78: modegrid.v1.InfraredMode
+	(*InfraredSample)(nil),               // 79: modegrid.v1.InfraredSample
+	(*ComputeInfraredResponse)(nil),      // 80: modegrid.v1.ComputeInfraredResponse
+	(*Crystal)(nil),                      // 81: modegrid.v1.Crystal
+	(*Vec3)(nil),                         // 82: modegrid.v1.Vec3
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	76,  // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	81,  // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	0,   // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
 	10,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
 	11,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
-	39,  // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	40,  // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
 	14,  // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	15,  // 6: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	16,  // 7: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	17,  // 8: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	10,  // 9: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 10: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	1,   // 11: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	14,  // 12: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
-	1,   // 13: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	20,  // 14: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	14,  // 15: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	10,  // 16: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	22,  // 17: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
-	1,   // 18: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	14,  // 19: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
-	1,   // 20: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	24,  // 21: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	10,  // 22: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 23: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	2,   // 24: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
-	1,   // 25: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	3,   // 26: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
-	1,   // 27: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	27,  // 28: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	27,  // 29: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	10,  // 30: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 31: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 32: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
-	4,   // 33: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	31,  // 34: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
-	5,   // 35: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	32,  // 36: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	10,  // 37: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	35,  // 38: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	36,  // 39: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	37,  // 40: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	22,  // 41: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	41,  // 42: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	22,  // 43: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	40,  // 44: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	39,  // 45: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	10,  // 46: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
-	18,  // 47: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	22,  // 48: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
-	29,  // 49: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
-	14,  // 50: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
-	43,  // 51: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
-	44,  // 52: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
-	10,  // 53: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
-	18,  // 54: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 55: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
-	6,   // 56: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
-	47,  // 57: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
-	47,  // 58: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
-	48,  // 59: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
-	7,   // 60: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
-	77,  // 61: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
-	10,  // 62: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
-	10,  // 63: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 64: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 65: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
-	50,  // 66: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
-	51,  // 67: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
-	52,  // 68: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
-	53,  // 69: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
-	50,  // 70: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
-	55,  // 71: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
-	56,  // 72: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
-	57,  // 73: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
-	10,  // 74: modegrid.v1.FitRequest.model:type_name -> modegrid.v1.ModelSource
-	60,  // 75: modegrid.v1.FitRequest.free:type_name -> modegrid.v1.FitParameter
-	61,  // 76: modegrid.v1.FitRequest.ties:type_name -> modegrid.v1.FitTie
-	62,  // 77: modegrid.v1.FitRequest.frequencies:type_name -> modegrid.v1.FrequencyDatum
-	63,  // 78: modegrid.v1.FitRequest.gamma_frequencies:type_name -> modegrid.v1.GammaFrequencyDatum
-	64,  // 79: modegrid.v1.FitRequest.sound_velocities:type_name -> modegrid.v1.SoundVelocityDatum
-	65,  // 80: modegrid.v1.FitRequest.elastic_constants:type_name -> modegrid.v1.ElasticConstantDatum
-	66,  // 81: modegrid.v1.FitRequest.heat_capacities:type_name -> modegrid.v1.HeatCapacityData
-	14,  // 82: modegrid.v1.FrequencyDatum.q:type_name -> modegrid.v1.QPoint
-	8,   // 83: modegrid.v1.FrequencyDatum.polarization:type_name -> modegrid.v1.Polarization
-	77,  // 84: modegrid.v1.SoundVelocityDatum.direction:type_name -> modegrid.v1.Vec3
-	8,   // 85: modegrid.v1.SoundVelocityDatum.polarization:type_name -> modegrid.v1.Polarization
-	16,  // 86: modegrid.v1.HeatCapacityData.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	9,   // 87: modegrid.v1.HeatCapacityData.basis:type_name -> modegrid.v1.HeatCapacityBasis
-	67,  // 88: modegrid.v1.HeatCapacityData.points:type_name -> modegrid.v1.HeatCapacityPoint
-	69,  // 89: modegrid.v1.FitResponse.progress:type_name -> modegrid.v1.FitProgress
-	70,  // 90: modegrid.v1.FitResponse.result:type_name -> modegrid.v1.FitResult
-	76,  // 91: modegrid.v1.FitResult.fitted:type_name -> modegrid.v1.Crystal
-	71,  // 92: modegrid.v1.FitResult.parameters:type_name -> modegrid.v1.FittedParameter
-	72,  // 93: modegrid.v1.FitResult.ties:type_name -> modegrid.v1.FittedTie
-	73,  // 94: modegrid.v1.FitResult.residuals:type_name -> modegrid.v1.FitResidual
-	74,  // 95: modegrid.v1.FitResult.undetermined:type_name -> modegrid.v1.UndeterminedParameters
-	75,  // 96: modegrid.v1.UndeterminedParameters.determined:type_name -> modegrid.v1.ParameterCombination
-	75,  // 97: modegrid.v1.UndeterminedParameters.flat:type_name -> modegrid.v1.ParameterCombination
-	34,  // 98: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	19,  // 99: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	23,  // 100: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	26,  // 101: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	30,  // 102: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	12,  // 103: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
-	42,  // 104: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
-	46,  // 105: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
-	54,  // 106: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
-	59,  // 107: modegrid.v1.ModegridService.Fit:input_type -> modegrid.v1.FitRequest
-	38,  // 108: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	21,  // 109: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	25,  // 110: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	28,  // 111: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	33,  // 112: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	13,  // 113: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
-	45,  // 114: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
-	49,  // 115: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
-	58,  // 116: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
-	68,  // 117: modegrid.v1.ModegridService.Fit:output_type -> modegrid.v1.FitResponse
-	108, // [108:118] is the sub-list for method output_type
-	98,  // [98:108] is the sub-list for method input_type
-	98,  // [98:98] is the sub-list for extension type_name
-	98,  // [98:98] is the sub-list for extension extendee
-	0,   // [0:98] is the sub-list for field type_name
+	14,  // 6: modegrid.v1.QPointList.gamma_directions:type_name -> modegrid.v1.QPoint
+	15,  // 7: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	16,  // 8: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	17,  // 9: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	10,  // 10: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 11: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	1,   // 12: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	14,  // 13: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	14,  // 14: modegrid.v1.Modes.gamma_direction:type_name -> modegrid.v1.QPoint
+	1,   // 15: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	20,  // 16: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	14,  // 17: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	10,  // 18: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	22,  // 19: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	1,   // 20: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	14,  // 21: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	14,  // 22: modegrid.v1.DispersionSample.gamma_direction:type_name -> modegrid.v1.QPoint
+	1,   // 23: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	24,  // 24: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	10,  // 25: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 26: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	2,   // 27: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
+	1,   // 28: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	3,   // 29: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
+	1,   // 30: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	27,  // 31: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	27,  // 32: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	10,  // 33: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 34: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 35: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	4,   // 36: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
+	31,  // 37: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	5,   // 38: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
+	32,  // 39: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	10,  // 40: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	35,  // 41: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	36,  // 42: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	37,  // 43: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	22,  // 44: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	42,  // 45: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	22,  // 46: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	41,  // 47: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	40,  // 48: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	39,  // 49: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
+	10,  // 50: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
+	18,  // 51: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	22,  // 52: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
+	29,  // 53: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
+	14,  // 54: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
+	44,  // 55: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
+	45,  // 56: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
+	10,  // 57: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
+	18,  // 58: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 59: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
+	6,   // 60: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
+	48,  // 61: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
+	48,  // 62: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
+	49,  // 63: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
+	7,   // 64: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
+	82,  // 65: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
+	10,  // 66: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
+	10,  // 67: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
+	18,  // 68: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	29,  // 69: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
+	51,  // 70: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
+	52,  // 71: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
+	53,  // 72: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
+	54,  // 73: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
+	51,  // 74: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
+	56,  // 75: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
+	57,  // 76: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
+	58,  // 77: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
+	10,  // 78: modegrid.v1.FitRequest.model:type_name -> modegrid.v1.ModelSource
+	61,  // 79: modegrid.v1.FitRequest.free:type_name -> modegrid.v1.FitParameter
+	62,  // 80: modegrid.v1.FitRequest.ties:type_name -> modegrid.v1.FitTie
+	63,  // 81: modegrid.v1.FitRequest.frequencies:type_name -> modegrid.v1.FrequencyDatum
+	64,  // 82: modegrid.v1.FitRequest.gamma_frequencies:type_name -> modegrid.v1.GammaFrequencyDatum
+	65,  // 83: modegrid.v1.FitRequest.sound_velocities:type_name -> modegrid.v1.SoundVelocityDatum
+	66,  // 84: modegrid.v1.FitRequest.elastic_constants:type_name -> modegrid.v1.ElasticConstantDatum
+	67,  // 85: modegrid.v1.FitRequest.heat_capacities:type_name -> modegrid.v1.HeatCapacityData
+	14,  // 86: modegrid.v1.FrequencyDatum.q:type_name -> modegrid.v1.QPoint
+	8,   // 87: modegrid.v1.FrequencyDatum.polarization:type_name -> modegrid.v1.Polarization
+	82,  // 88: modegrid.v1.SoundVelocityDatum.direction:type_name -> modegrid.v1.Vec3
+	8,   // 89: modegrid.v1.SoundVelocityDatum.polarization:type_name -> modegrid.v1.Polarization
+	16,  // 90: modegrid.v1.HeatCapacityData.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	9,   // 91: modegrid.v1.HeatCapacityData.basis:type_name -> modegrid.v1.HeatCapacityBasis
+	68,  // 92: modegrid.v1.HeatCapacityData.points:type_name -> modegrid.v1.HeatCapacityPoint
+	70,  // 93: modegrid.v1.FitResponse.progress:type_name -> modegrid.v1.FitProgress
+	71,  // 94: modegrid.v1.FitResponse.result:type_name -> modegrid.v1.FitResult
+	81,  // 95: modegrid.v1.FitResult.fitted:type_name -> modegrid.v1.Crystal
+	72,  // 96: modegrid.v1.FitResult.parameters:type_name -> modegrid.v1.FittedParameter
+	73,  // 97: modegrid.v1.FitResult.ties:type_name -> modegrid.v1.FittedTie
+	74,  // 98: modegrid.v1.FitResult.residuals:type_name -> modegrid.v1.FitResidual
+	75,  // 99: modegrid.v1.FitResult.undetermined:type_name -> modegrid.v1.UndeterminedParameters
+	76,  // 100: modegrid.v1.UndeterminedParameters.determined:type_name -> modegrid.v1.ParameterCombination
+	76,  // 101: modegrid.v1.UndeterminedParameters.flat:type_name -> modegrid.v1.ParameterCombination
+	10,  // 102: modegrid.v1.ComputeInfraredRequest.model:type_name -> modegrid.v1.ModelSource
+	82,  // 103: modegrid.v1.ComputeInfraredRequest.direction:type_name -> modegrid.v1.Vec3
+	1,   // 104: modegrid.v1.ComputeInfraredRequest.unit:type_name -> modegrid.v1.FrequencyUnit
+	1,   // 105: modegrid.v1.ComputeInfraredResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	82,  // 106: modegrid.v1.ComputeInfraredResponse.direction:type_name -> modegrid.v1.Vec3
+	78,  // 107: modegrid.v1.ComputeInfraredResponse.modes:type_name -> modegrid.v1.InfraredMode
+	79,  // 108: modegrid.v1.ComputeInfraredResponse.samples:type_name -> modegrid.v1.InfraredSample
+	34,  // 109: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	19,  // 110: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	23,  // 111: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	26,  // 112: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	30,  // 113: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	12,  // 114: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
+	43,  // 115: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
+	47,  // 116: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
+	55,  // 117: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
+	60,  // 118: modegrid.v1.ModegridService.Fit:input_type -> modegrid.v1.FitRequest
+	77,  // 119: modegrid.v1.ModegridService.ComputeInfrared:input_type -> modegrid.v1.ComputeInfraredRequest
+	38,  // 120: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	21,  // 121: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	25,  // 122: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	28,  // 123: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	33,  // 124: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	13,  // 125: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
+	46,  // 126: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
+	50,  // 127: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
+	59,  // 128: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
+	69,  // 129: modegrid.v1.ModegridService.Fit:output_type -> modegrid.v1.FitResponse
+	80,  // 130: modegrid.v1.ModegridService.ComputeInfrared:output_type -> modegrid.v1.ComputeInfraredResponse
+	120, // [120:131] is the sub-list for method output_type
+	109, // [109:120] is the sub-list for method input_type
+	109, // [109:109] is the sub-list for extension type_name
+	109, // [109:109] is the sub-list for extension extendee
+	0,   // [0:109] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -7651,9 +8357,9 @@ func file_modegrid_v1_service_proto_init() {
 		(*QPointSet_Grid)(nil),
 		(*QPointSet_Cells)(nil),
 	}
-	file_modegrid_v1_service_proto_msgTypes[32].OneofWrappers = []any{}
-	file_modegrid_v1_service_proto_msgTypes[50].OneofWrappers = []any{}
-	file_modegrid_v1_service_proto_msgTypes[58].OneofWrappers = []any{
+	file_modegrid_v1_service_proto_msgTypes[33].OneofWrappers = []any{}
+	file_modegrid_v1_service_proto_msgTypes[51].OneofWrappers = []any{}
+	file_modegrid_v1_service_proto_msgTypes[59].OneofWrappers = []any{
 		(*FitResponse_Progress)(nil),
 		(*FitResponse_Result)(nil),
 	}
@@ -7663,7 +8369,7 @@ func file_modegrid_v1_service_proto_init() {
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
 			NumEnums:      10,
-			NumMessages:   66,
+			NumMessages:   71,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

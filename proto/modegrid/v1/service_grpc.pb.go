@@ -29,6 +29,7 @@ const (
 	ModegridService_ComputeQuasiHarmonic_FullMethodName = "/modegrid.v1.ModegridService/ComputeQuasiHarmonic"
 	ModegridService_ComputeConductivity_FullMethodName  = "/modegrid.v1.ModegridService/ComputeConductivity"
 	ModegridService_Fit_FullMethodName                  = "/modegrid.v1.ModegridService/Fit"
+	ModegridService_ComputeInfrared_FullMethodName      = "/modegrid.v1.ModegridService/ComputeInfrared"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -96,6 +97,13 @@ type ModegridServiceClient interface {
 	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
 	// every other call.
 	Fit(ctx context.Context, in *FitRequest, opts ...grpc.CallOption) (grpc.ServerStreamingClient[FitResponse], error)
+	// ComputeInfrared gives the infrared response of a polar model (Born
+	// charges and ε∞): the modes at Γ with their mode effective charges and
+	// oscillator strengths, the dielectric function ε(ω), the static ε₀ and
+	// the normal-incidence reflectivity along a direction. A model without
+	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
+	// (ε₀ undefined) FAILED_PRECONDITION.
+	ComputeInfrared(ctx context.Context, in *ComputeInfraredRequest, opts ...grpc.CallOption) (*ComputeInfraredResponse, error)
 }
 
 type modegridServiceClient struct {
@@ -227,6 +235,16 @@ func (c *modegridServiceClient) Fit(ctx context.Context, in *FitRequest, opts ..
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type ModegridService_FitClient = grpc.ServerStreamingClient[FitResponse]
 
+func (c *modegridServiceClient) ComputeInfrared(ctx context.Context, in *ComputeInfraredRequest, opts ...grpc.CallOption) (*ComputeInfraredResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeInfraredResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeInfrared_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -292,6 +310,13 @@ type ModegridServiceServer interface {
 	// inline model: its hash (FitResult.fitted_model_hash) is usable at once in
 	// every other call.
 	Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error
+	// ComputeInfrared gives the infrared response of a polar model (Born
+	// charges and ε∞): the modes at Γ with their mode effective charges and
+	// oscillator strengths, the dielectric function ε(ω), the static ε₀ and
+	// the normal-incidence reflectivity along a direction. A model without
+	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
+	// (ε₀ undefined) FAILED_PRECONDITION.
+	ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error)
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -331,6 +356,9 @@ func (UnimplementedModegridServiceServer) ComputeConductivity(context.Context, *
 }
 func (UnimplementedModegridServiceServer) Fit(*FitRequest, grpc.ServerStreamingServer[FitResponse]) error {
 	return status.Error(codes.Unimplemented, "method Fit not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeInfrared not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -508,6 +536,24 @@ func _ModegridService_Fit_Handler(srv interface{}, stream grpc.ServerStream) err
 // This type alias is provided for backwards compatibility with existing code that references the prior non-generic stream type by name.
 type ModegridService_FitServer = grpc.ServerStreamingServer[FitResponse]
 
+func _ModegridService_ComputeInfrared_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeInfraredRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeInfrared(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeInfrared_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeInfrared(ctx, req.(*ComputeInfraredRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -542,6 +588,10 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ComputeConductivity",
 			Handler:    _ModegridService_ComputeConductivity_Handler,
+		},
+		{
+			MethodName: "ComputeInfrared",
+			Handler:    _ModegridService_ComputeInfrared_Handler,
 		},
 	},
 	Streams: []grpc.StreamDesc{

@@ -202,7 +202,7 @@ func coreXTestImports(path string, imports []string) []string {
 // only those before it (the leaves among themselves not at all);
 // physics/internal/testmodels, the tests' example models, is imported by
 // tests only.
-var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport", "physics/thermo", "physics/thermo/qha, physics/transport, physics/fit"}
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport, physics/polar", "physics/thermo", "physics/thermo/qha, physics/transport, physics/fit"}
 
 // testModels is the test-only package of example models for the tests of
 // the packages above the core.
@@ -210,8 +210,8 @@ const testModels = "physics/internal/testmodels"
 
 // engineRank is the layer of a module-relative physics path: 1 for the
 // leaves (eigen, lattice, mesh, internal/...), 2 for the core, 3 for the
-// test models, 4 for spectra and fcimport (the same layer above the
-// core), 5 for thermo, 6 for the quasi-harmonic approximation and heat
+// test models, 4 for spectra, fcimport and polar (the same layer above
+// the core), 5 for thermo, 6 for the quasi-harmonic approximation and heat
 // transport (thermo/qha, transport: above thermo, neither importing the
 // other), and fit (above thermo: its tests check its heat capacities
 // against thermo's), 0 for a path outside physics.
@@ -224,7 +224,7 @@ func engineRank(r string) int {
 		return 2
 	case under(r, testModels):
 		return 3
-	case under(r, "physics/spectra"), under(r, "physics/fcimport"):
+	case under(r, "physics/spectra"), under(r, "physics/fcimport"), under(r, "physics/polar"):
 		return 4
 	case under(r, "physics/thermo/qha"), under(r, "physics/transport"):
 		return 6
@@ -443,6 +443,11 @@ func TestRulesCatchViolations(t *testing.T) {
 		{name: "fcimport on the core", path: "physics/fcimport", imports: []string{m("physics"), m("physics/lattice")}},
 		{name: "fcimport imports thermo", path: "physics/fcimport", imports: []string{m("physics/thermo")}, want: true},
 		{name: "core imports fcimport", path: "physics", imports: []string{m("physics/fcimport")}, want: true},
+		{name: "polar on the core and leaves", path: "physics/polar", imports: []string{m("physics"), m("physics/lattice")}},
+		{name: "polar test on test models", path: "physics/polar", imports: []string{m("physics/internal/testmodels")}, test: true},
+		{name: "polar imports thermo", path: "physics/polar", imports: []string{m("physics/thermo")}, want: true},
+		{name: "core imports polar", path: "physics", imports: []string{m("physics/polar")}, want: true},
+		{name: "core test imports polar", path: "physics", imports: []string{m("physics/polar")}, test: true, want: true},
 		{name: "spectra imports thermo", path: "physics/spectra", imports: []string{m("physics/thermo")}, want: true},
 		{name: "spectra test imports thermo", path: "physics/spectra", imports: []string{m("physics/thermo")}, test: true, want: true},
 		{name: "core imports spectra", path: "physics", imports: []string{m("physics/spectra")}, want: true},
