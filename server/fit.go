@@ -42,6 +42,11 @@ func (s *Service) fit(ctx context.Context, req *modegridv1.FitRequest, stream gr
 		return err
 	}
 	start, byHash := s.startCrystal(src, e)
+	if len(start.GetEpsilonInf()) > 0 {
+		// Refused rather than fitted wrongly: the fit's unit-parameter
+		// models and derivatives hold short-range terms only.
+		vs.Add("model.crystal.epsilon_inf", "a polar model (Born charges and ε∞) cannot be fitted yet: fit its short-range part without the charges")
+	}
 	dim := len(start.GetLattice())
 	prob := s.fitProblem(req, dim, &vs)
 	var est estimate
