@@ -1,0 +1,107 @@
+package testmodels
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/lattice"
+)
+
+// Crystals of a chosen size, for the size ladders of the benchmarks and
+// the tests that run the engine at the sizes of first-principles cells.
+
+// CubicPair is an invented two-site crystal on a simple cubic lattice (a =
+// 3.1 Å): site A (30 amu) at the corner, B (70 amu) at the body centre,
+// with explicit springs — A–B to the 8 nearest neighbours, A–A and B–B
+// along the cube edges. Its point group is the full cubic group (48
+// operations); its springs are explicit so that every bond of a supercell
+// can be given its own constant.
+func CubicPair() *physics.Crystal {
+	c := &physics.Crystal{
+		Name:    "cubic pair",
+		Lattice: [][3]float64{{3.1, 0, 0}, {0, 3.1, 0}, {0, 0, 3.1}},
+		Sites: []physics.Site{
+			{Label: "A", MassAmu: 30, Frac: []float64{0, 0, 0}},
+			{Label: "B", MassAmu: 70, Frac: []float64{0.5, 0.5, 0.5}},
+		},
+	}
+	for _, x := range []int{0, -1} {
+		for _, y := range []int{0, -1} {
+			for _, z := range []int{0, -1} {
+				c.Springs = append(c.Springs, physics.Spring{From: 0, To: 1, Cell: []int{x, y, z}, KLong: 4, KTrans: 0.5})
+			}
+		}
+	}
+	for k := 0; k < 3; k++ {
+		cell := []int{0, 0, 0}
+		cell[k] = 1
+		c.Springs = append(c.Springs,
+			physics.Spring{From: 0, To: 0, Cell: cell, KLong: 1.5, KTrans: 0.2},
+			physics.Spring{From: 1, To: 1, Cell: append([]int(nil), cell...), KLong: 1.2, KTrans: 0.15})
+	}
+	return c
+}
+
+// CubicPairSupercell is CubicPair as an n1×n2×n3 supercell written as a
+// primitive cell of 2·n1·n2·n3 sites.
+func CubicPairSupercell(t testing.TB, n1, n2, n3 int) *physics.Crystal {
+	return Supercell(t, CubicPair(), [3][3]int{{n1, 0, 0}, {0, n2, 0}, {0, 0, n3}})
+}
+
+// SizedShape returns the supercell of CubicPair with the given number of
+// sites (8, 16, 32, 64, 128, 256 or 512): as close to a cube as the count
+// allows.
+func SizedShape(sites int) ([3]int, error) {
+	shapes := map[int][3]int{
+		8: {2, 2, 1}, 16: {2, 2, 2}, 32: {2, 2, 4}, 64: {4, 4, 2},
+		128: {4, 4, 4}, 256: {4, 4, 8}, 512: {8, 8, 4},
+	}
+	s, ok := shapes[sites]
+	if !ok {
+		return s, fmt.Errorf("no supercell shape of %d sites", sites)
+	}
+	return s, nil
+}
+
+// Sized returns the CubicPair supercell of the given number of sites (see
+// SizedShape).
+func Sized(t testing.TB, sites int) *physics.Crystal {
+	t.Helper()
+	s, err := SizedShape(sites)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return CubicPairSupercell(t, s[0], s[1], s[2])
+}
+
+// Distorted returns a copy of c with every site moved by a random
+// Cartesian displacement (each component uniform in ±posA, Å) and every
+// spring's two constants multiplied by 1 + u·rel, u uniform in [−1, 1]
+// (one u per spring). Displacements well below the symmetry tolerance
+// keep the symmetry (tolerance noise); above it, or a rel far above
+// SymFCTol, break it.
+func Distorted(c *physics.Crystal, rng *rand.Rand, posA, rel float64) *physics.Crystal {
+	out := Clone(c)
+	d := len(c.Lattice)
+	var lat [3][3]float64
+	copy(lat[:], c.Lattice)
+	recip := lattice.Reciprocal(lat, d) // Δf_k = b_k·Δr/2π
+	for i := range out.Sites {
+		var dr [3]float64
+		for a := 0; a < 3; a++ {
+			dr[a] = posA * (2*rng.Float64() - 1)
+		}
+		for k := 0; k < d; k++ {
+			out.Sites[i].Frac[k] += lattice.Dot(recip[k], dr) / (2 * math.Pi)
+		}
+	}
+	for i := range out.Springs {
+		f := 1 + rel*(2*rng.Float64()-1)
+		out.Springs[i].KLong *= f
+		out.Springs[i].KTrans *= f
+	}
+	return out
+}
