@@ -80,9 +80,10 @@ type modelEntry struct {
 }
 
 // size is the entry's charge in the cache: an estimate of the compiled
-// model (force-constant terms dominate) plus its source.
+// model (force-constant terms dominate, and the stacked copy of a model
+// that assembles in batches) plus its source.
 func (e *modelEntry) size() int64 {
-	return int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
+	return int64(1024+len(e.source)+200*e.m.Interactions()+100*e.m.Sites()) + e.m.StackBytes()
 }
 
 // modelCodec stores a model in the Backend as its source; a replica reading

@@ -105,3 +105,60 @@ func Distorted(c *physics.Crystal, rng *rand.Rand, posA, rel float64) *physics.C
 	}
 	return out
 }
+
+// FarSprings returns a copy of c whose springs are replaced by one
+// between every pair of sites (each bond once) in every cell n with |n_k| ≤ reach (and
+// within cutA, Å), of constants decaying with the bond length r as
+// k∥ = k0·e^{−r/λ}, k⊥ = k∥/10: a model with as many cell offsets as the
+// folded force constants of a (2·reach+1)-fold supercell, for the
+// benchmarks and tests of the dynamical matrix of such models.
+func FarSprings(c *physics.Crystal, reach int, cutA, k0, lambdaA float64) *physics.Crystal {
+	out := Clone(c)
+	out.Springs = nil
+	d := len(c.Lattice)
+	var lat [3][3]float64
+	copy(lat[:], c.Lattice)
+	pos := func(i int, n [3]int) [3]float64 {
+		var r [3]float64
+		for k := 0; k < d; k++ {
+			f := c.Sites[i].Frac[k] + float64(n[k])
+			r = lattice.Add(r, lattice.Scale(lat[k], f))
+		}
+		return r
+	}
+	var lim [3]int
+	for k := 0; k < d; k++ {
+		lim[k] = reach
+	}
+	var n [3]int
+	for n[0] = -lim[0]; n[0] <= lim[0]; n[0]++ {
+		for n[1] = -lim[1]; n[1] <= lim[1]; n[1]++ {
+			for n[2] = -lim[2]; n[2] <= lim[2]; n[2]++ {
+				for i := range c.Sites {
+					for j := i; j < len(c.Sites); j++ {
+						if i == j && !lessCellZero(n) {
+							continue // each bond of a site with its own images once
+						}
+						r := lattice.Norm(lattice.Sub(pos(j, n), pos(i, [3]int{})))
+						if r > cutA {
+							continue
+						}
+						k := k0 * math.Exp(-r/lambdaA)
+						out.Springs = append(out.Springs, physics.Spring{From: i, To: j, Cell: append([]int(nil), n[:d]...), KLong: k, KTrans: k / 10})
+					}
+				}
+			}
+		}
+	}
+	return out
+}
+
+// lessCellZero reports 0 < n in the lexicographic order.
+func lessCellZero(n [3]int) bool {
+	for _, x := range n {
+		if x != 0 {
+			return x > 0
+		}
+	}
+	return false
+}
