@@ -59,13 +59,14 @@ type GridSize struct {
 	// bound IrreducibleUpperBound. Ignored with NoSymmetry (all points).
 	Irreducible int
 	Workers     int // goroutines of the parallel loops (0: GOMAXPROCS)
-	// AssembleFlops is the work of one D(q) when the model assembles in
-	// batches (0: the loop's, estimated from Interactions); BatchPoints
-	// the points of a batch (0: no batches); BatchPointBytes the buffers
-	// a worker holds per point of its largest batch and BatchFixedBytes
-	// the rest of its batch workspace (dynbatch.go). GridSizeOf fills
-	// them from the model.
-	AssembleFlops   float64
+	// BatchPoints is the points of a batch when the model assembles its
+	// dynamical matrices in batches (0: each alone); BatchPointBytes the
+	// buffers a worker then holds per point of its largest batch and
+	// BatchFixedBytes the rest of its batch workspace (dynbatch.go).
+	// GridSizeOf fills them from the model. The work of the assembly is
+	// estimated from Interactions either way: the batched path is the
+	// faster one where it is taken, so that estimate stays an upper bound
+	// (and the pre-compile bound, which knows no batches, stays below).
 	BatchPoints     int
 	BatchPointBytes int64
 	BatchFixedBytes int64
@@ -93,7 +94,7 @@ func (s GridSize) batchWorkers(workers, n int) int64 {
 // GridSpec.Normalize) with irr irreducible points (0: unknown).
 func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
 	s := GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr,
-		AssembleFlops: m.batchFlops(), BatchPointBytes: m.batchPointBytes(), BatchFixedBytes: m.batchFixedBytes()}
+		BatchPointBytes: m.batchPointBytes(), BatchFixedBytes: m.batchFixedBytes()}
 	if m.stack != nil {
 		s.BatchPoints = m.stack.batch
 	}
@@ -163,12 +164,8 @@ func diagFlops(n int, vectors bool) float64 {
 }
 
 // assembleFlops is the work of building D(q): a complex phase and a p×p
-// block per interaction, plus filling the n² matrix; or, for a model that
-// assembles in batches, AssembleFlops.
+// block per interaction, plus filling the n² matrix.
 func (s GridSize) assembleFlops() float64 {
-	if s.AssembleFlops > 0 {
-		return s.AssembleFlops
-	}
 	n := float64(s.Modes())
 	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n
 }

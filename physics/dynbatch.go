@@ -185,16 +185,6 @@ func (m *Model) batchFixedBytes() int64 {
 	return int64(512 + 48*(2*max(m.reach[0], m.reach[1], m.reach[2])+1) + 4*8192)
 }
 
-// batchFlops is the work of one point's D(q) by the products (0 for a
-// model without a stack).
-func (m *Model) batchFlops() float64 {
-	if m.stack == nil {
-		return 0
-	}
-	n := float64(m.ModeCount())
-	return 4*float64(len(m.cells))*float64(m.stack.cols) + 8*float64(len(m.cells)) + 2*n*n
-}
-
 // batchWork is one worker's batch: its points and the products, reused
 // from batch to batch.
 type batchWork struct {
