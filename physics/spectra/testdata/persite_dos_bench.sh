@@ -1,0 +1,76 @@
+#!/usr/bin/env bash
+# The per-site DOS at first-principles size, end to end: modegrid's CLI
+# (embedded server) against the numpy reference (persite_dos_numpy.py), on
+# one and two cores, with wall time and peak memory (maxrss) from
+# /usr/bin/time -v. Prints a Markdown table (DEVELOPERS.md, "Measured: at
+# first-principles size").
+#
+#   physics/spectra/testdata/persite_dos_bench.sh              # the pure-Go build
+#   TAGS=lapack physics/spectra/testdata/persite_dos_bench.sh  # another build of the CLI
+#   MODEGRID=/path/to/modegrid ... .sh                         # a given binary (e.g. an older one)
+#   RUNS="64:12" CORES="1" ... .sh                             # a subset
+#
+# Run from the repository root. Needs go, /usr/bin/time and a python3 with
+# numpy (PYTHON, default /usr/bin/python3). The models are written by
+# TestWritePerSiteModels into OUT (default a temporary directory), with the
+# CSV outputs; nothing is written into the repository.
+set -euo pipefail
+
+TAGS=${TAGS:-}
+PYTHON=${PYTHON:-/usr/bin/python3}
+RUNS=${RUNS:-"64:12 128:8"}
+CORES=${CORES:-"1 2"}
+OUT=${OUT:-$(mktemp -d)}
+here=$(cd "$(dirname "$0")" && pwd)
+# The job's DOS window, bin and width (THz), as in persite_bench_test.go.
+DOSARGS=(--min 0 --max 15 --step 0.03)
+WIDTH=0.15
+
+mkdir -p "$OUT"
+go test -count=1 ./physics/spectra -run TestWritePerSiteModels -args -persite.write "$OUT" >/dev/null
+if [ -z "${MODEGRID:-}" ]; then
+	MODEGRID="$OUT/modegrid"
+	go build ${TAGS:+-tags "$TAGS"} -o "$MODEGRID" ./client/cmd/modegrid
+fi
+
+# timed LABEL ENV... -- CMD...: runs CMD under /usr/bin/time -v, prints
+# "wall_s maxrss_MiB".
+timed() {
+	local log="$OUT/time.log"
+	/usr/bin/time -v "$@" >"$OUT/stdout.log" 2>"$log" || { cat "$log" >&2; return 1; }
+	local wall rss
+	wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2, t, ":"); s=0; for (i=1; i<=n; i++) s=s*60+t[i]; print s}' "$log")
+	rss=$(awk -F': ' '/Maximum resident set size/ {printf "%.0f", $2/1024}' "$log")
+	echo "$wall $rss"
+}
+
+echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); build: ${TAGS:-pure Go}; CLI: $MODEGRID"
+echo
+echo "| crystal | grid | diagonalised | cores | modegrid CLI: wall, maxrss | numpy: wall, maxrss | numpy / modegrid | agreement |"
+echo "|---|---|---|---|---|---|---|---|"
+for run in $RUNS; do
+	sites=${run%%:*}
+	n=${run##*:}
+	model="$OUT/persite-$sites.json"
+	diag=$(( (n * n * n + 8) / 2 ))
+	for c in $CORES; do
+		ours="$OUT/ours-$sites-$n-$c.csv"
+		read -r w1 r1 < <(timed env GOMAXPROCS="$c" "$MODEGRID" dos --model "$model" --grid "$n" --method gaussian \
+			--width "$WIDTH" "${DOSARGS[@]}" --per-site --format csv --out "$ours")
+		read -r w2 r2 < <(timed env OPENBLAS_NUM_THREADS="$c" OMP_NUM_THREADS="$c" "$PYTHON" "$here/persite_dos_numpy.py" "$model" \
+			--grid "$n" --method gaussian --width "$WIDTH" "${DOSARGS[@]}" --compare "$ours")
+		agree=$(grep -o 'L1 [0-9.e+-]*' "$OUT/stdout.log" || true)
+		ratio=$(awk -v a="$w1" -v b="$w2" 'BEGIN {printf "%.2f", b/a}')
+		echo "| $sites sites | ${n}³ | $diag | $c | ${w1} s, ${r1} MiB | ${w2} s, ${r2} MiB | $ratio | Gaussian $agree |"
+	done
+done
+echo
+echo "load average after: $(cut -d' ' -f1-3 /proc/loadavg)"
+# The two compute the same thing: the histogram DOS of each crystal on a
+# 4³ grid agrees to rounding.
+for run in $RUNS; do
+	sites=${run%%:*}
+	"$MODEGRID" dos --model "$OUT/persite-$sites.json" --grid 4 --method histogram "${DOSARGS[@]}" --per-site --format csv --out "$OUT/check-$sites.csv"
+	OPENBLAS_NUM_THREADS=1 "$PYTHON" "$here/persite_dos_numpy.py" "$OUT/persite-$sites.json" --grid 4 --method histogram "${DOSARGS[@]}" \
+		--compare "$OUT/check-$sites.csv" | sed -n 2p | sed "s|^|$sites sites, histogram on 4³, |"
+done
