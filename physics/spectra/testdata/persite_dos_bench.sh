@@ -33,20 +33,22 @@ if [ -z "${MODEGRID:-}" ]; then
 	go build ${TAGS:+-tags "$TAGS"} -o "$MODEGRID" ./client/cmd/modegrid
 fi
 
-# timed LABEL ENV... -- CMD...: runs CMD under /usr/bin/time -v, prints
-# "wall_s maxrss_MiB".
+# timed CMD...: runs CMD under /usr/bin/time -v, prints "wall_s cpu_s
+# maxrss_MiB" (cpu: user + system, which a loaded machine inflates less
+# than the wall time).
 timed() {
 	local log="$OUT/time.log"
 	/usr/bin/time -v "$@" >"$OUT/stdout.log" 2>"$log" || { cat "$log" >&2; return 1; }
-	local wall rss
+	local wall cpu rss
 	wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2, t, ":"); s=0; for (i=1; i<=n; i++) s=s*60+t[i]; print s}' "$log")
+	cpu=$(awk -F': ' '/User time|System time/ {s+=$2} END {printf "%.2f", s}' "$log")
 	rss=$(awk -F': ' '/Maximum resident set size/ {printf "%.0f", $2/1024}' "$log")
-	echo "$wall $rss"
+	echo "$wall $cpu $rss"
 }
 
 echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); build: ${TAGS:-pure Go}; CLI: $MODEGRID"
 echo
-echo "| crystal | grid | diagonalised | cores | modegrid CLI: wall, maxrss | numpy: wall, maxrss | numpy / modegrid | agreement |"
+echo "| crystal | grid | diagonalised | cores | modegrid CLI: wall (cpu), maxrss | numpy: wall (cpu), maxrss | numpy / modegrid, wall | agreement |"
 echo "|---|---|---|---|---|---|---|---|"
 for run in $RUNS; do
 	sites=${run%%:*}
@@ -55,13 +57,13 @@ for run in $RUNS; do
 	diag=$(( (n * n * n + 8) / 2 ))
 	for c in $CORES; do
 		ours="$OUT/ours-$sites-$n-$c.csv"
-		read -r w1 r1 < <(timed env GOMAXPROCS="$c" "$MODEGRID" dos --model "$model" --grid "$n" --method gaussian \
+		read -r w1 c1 r1 < <(timed env GOMAXPROCS="$c" "$MODEGRID" dos --model "$model" --grid "$n" --method gaussian \
 			--width "$WIDTH" "${DOSARGS[@]}" --per-site --format csv --out "$ours")
-		read -r w2 r2 < <(timed env OPENBLAS_NUM_THREADS="$c" OMP_NUM_THREADS="$c" "$PYTHON" "$here/persite_dos_numpy.py" "$model" \
+		read -r w2 c2 r2 < <(timed env OPENBLAS_NUM_THREADS="$c" OMP_NUM_THREADS="$c" "$PYTHON" "$here/persite_dos_numpy.py" "$model" \
 			--grid "$n" --method gaussian --width "$WIDTH" "${DOSARGS[@]}" --compare "$ours")
 		agree=$(grep -o 'L1 [0-9.e+-]*' "$OUT/stdout.log" || true)
 		ratio=$(awk -v a="$w1" -v b="$w2" 'BEGIN {printf "%.2f", b/a}')
-		echo "| $sites sites | ${n}³ | $diag | $c | ${w1} s, ${r1} MiB | ${w2} s, ${r2} MiB | $ratio | Gaussian $agree |"
+		echo "| $sites sites | ${n}³ | $diag | $c | ${w1} s (${c1} s), ${r1} MiB | ${w2} s (${c2} s), ${r2} MiB | $ratio | Gaussian $agree |"
 	done
 done
 echo
