@@ -10,6 +10,11 @@
 #   MODEGRID=/path/to/modegrid ... .sh                         # a given binary (e.g. an older one)
 #   RUNS="64:12" CORES="1" ... .sh                             # a subset
 #
+# A job that the CLI's embedded server refuses by its work bound (its
+# estimate at 1 GFlop/s per core over max-compute-seconds, 300 s) runs
+# through a modegridd on the same cores with the bound raised, the CLI
+# calling it (--server); the row says so and its maxrss is the server's.
+#
 # Run from the repository root. Needs go, /usr/bin/time and a python3 with
 # numpy (PYTHON, default /usr/bin/python3). The models are written by
 # TestWritePerSiteModels into OUT (default a temporary directory), with the
@@ -32,13 +37,17 @@ if [ -z "${MODEGRID:-}" ]; then
 	MODEGRID="$OUT/modegrid"
 	go build ${TAGS:+-tags "$TAGS"} -o "$MODEGRID" ./client/cmd/modegrid
 fi
+if [ -z "${MODEGRIDD:-}" ]; then
+	MODEGRIDD="$OUT/modegridd"
+	go build ${TAGS:+-tags "$TAGS"} -o "$MODEGRIDD" ./server/cmd/modegridd
+fi
 
 # timed CMD...: runs CMD under /usr/bin/time -v, prints "wall_s cpu_s
 # maxrss_MiB" (cpu: user + system, which a loaded machine inflates less
 # than the wall time).
 timed() {
 	local log="$OUT/time.log"
-	/usr/bin/time -v "$@" >"$OUT/stdout.log" 2>"$log" || { cat "$log" >&2; return 1; }
+	/usr/bin/time -v "$@" >"$OUT/stdout.log" 2>"$log" || return 1
 	local wall cpu rss
 	wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2, t, ":"); s=0; for (i=1; i<=n; i++) s=s*60+t[i]; print s}' "$log")
 	cpu=$(awk -F': ' '/User time|System time/ {s+=$2} END {printf "%.2f", s}' "$log")
@@ -50,6 +59,32 @@ echo "load average before: $(cut -d' ' -f1-3 /proc/loadavg); build: ${TAGS:-pure
 echo
 echo "| crystal | grid | diagonalised | cores | modegrid CLI: wall (cpu), maxrss | numpy: wall (cpu), maxrss | numpy / modegrid, wall | agreement |"
 echo "|---|---|---|---|---|---|---|---|"
+# viaServer CORES ARGS...: the CLI with ARGS against a modegridd on CORES
+# cores with the work bound raised; prints "wall_s cpu_s maxrss_MiB" (wall
+# of the CLI, cpu and maxrss of the server).
+viaServer() {
+	local c=$1
+	shift
+	local port=$((20000 + RANDOM % 20000))
+	GOMAXPROCS="$c" /usr/bin/time -v "$MODEGRIDD" --listen "127.0.0.1:$port" --metrics-listen off \
+		--max-compute-seconds 36000 --log-level warn 2>"$OUT/server.log" &
+	local pid=$!
+	local ok=
+	for _ in $(seq 200); do
+		if (echo >"/dev/tcp/127.0.0.1/$port") 2>/dev/null; then ok=1; break; fi
+		sleep 0.1
+	done
+	[ -n "$ok" ] || { echo "modegridd did not start" >&2; kill "$pid"; return 1; }
+	local wall
+	read -r wall _ _ < <(timed "$MODEGRID" "$1" --server "127.0.0.1:$port" "${@:2}") || { cat "$OUT/time.log" >&2; return 1; }
+	kill -TERM $(pgrep -P "$pid") 2>/dev/null || true
+	wait "$pid" || true
+	local cpu rss
+	cpu=$(awk -F': ' '/User time|System time/ {s+=$2} END {printf "%.2f", s}' "$OUT/server.log")
+	rss=$(awk -F': ' '/Maximum resident set size/ {printf "%.0f", $2/1024}' "$OUT/server.log")
+	echo "$wall $cpu $rss"
+}
+
 for run in $RUNS; do
 	sites=${run%%:*}
 	n=${run##*:}
@@ -57,13 +92,18 @@ for run in $RUNS; do
 	diag=$(( (n * n * n + 8) / 2 ))
 	for c in $CORES; do
 		ours="$OUT/ours-$sites-$n-$c.csv"
-		read -r w1 c1 r1 < <(timed env GOMAXPROCS="$c" "$MODEGRID" dos --model "$model" --grid "$n" --method gaussian \
-			--width "$WIDTH" "${DOSARGS[@]}" --per-site --format csv --out "$ours")
+		args=(dos --model "$model" --grid "$n" --method gaussian --width "$WIDTH" "${DOSARGS[@]}" --per-site --format csv --out "$ours")
+		via=
+		if ! read -r w1 c1 r1 < <(timed env GOMAXPROCS="$c" "$MODEGRID" "${args[@]}"); then
+			grep -q max-compute-seconds "$OUT/time.log" || { cat "$OUT/time.log" >&2; exit 1; }
+			read -r w1 c1 r1 < <(viaServer "$c" "${args[@]}")
+			via=" (via modegridd: the embedded server's work bound refused it)"
+		fi
 		read -r w2 c2 r2 < <(timed env OPENBLAS_NUM_THREADS="$c" OMP_NUM_THREADS="$c" "$PYTHON" "$here/persite_dos_numpy.py" "$model" \
-			--grid "$n" --method gaussian --width "$WIDTH" "${DOSARGS[@]}" --compare "$ours")
+			--grid "$n" --method gaussian --width "$WIDTH" "${DOSARGS[@]}" --compare "$ours") || { cat "$OUT/time.log" >&2; exit 1; }
 		agree=$(grep -o 'L1 [0-9.e+-]*' "$OUT/stdout.log" || true)
 		ratio=$(awk -v a="$w1" -v b="$w2" 'BEGIN {printf "%.2f", b/a}')
-		echo "| $sites sites | ${n}³ | $diag | $c | ${w1} s (${c1} s), ${r1} MiB | ${w2} s (${c2} s), ${r2} MiB | $ratio | Gaussian $agree |"
+		echo "| $sites sites | ${n}³ | $diag | $c | ${w1} s (${c1} s), ${r1} MiB$via | ${w2} s (${c2} s), ${r2} MiB | $ratio | Gaussian $agree |"
 	done
 done
 echo
