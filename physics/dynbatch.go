@@ -40,18 +40,19 @@ type dmStack struct {
 }
 
 // Measured costs that choose the path (useStack), on the project's 2-core
-// machine, one core, gonum v0.17's pure-Go Dgemm (BenchmarkAssembly,
-// DEVELOPERS.md): the loop of assemble spends about stackLoopNs per block
-// element and point; the products about stackGemmNs per entry of the
-// stack (cells × M) and point (stackNarrowNs when M is small and the
-// products run along the batch's points), plus a nanosecond per element
+// machine, one core, gonum v0.17's pure-Go Dgemm (TestAssemblyTable, CPU
+// time; DEVELOPERS.md): the loop of assemble spends about stackLoopNs per
+// block element and point (0.64–0.95 measured, more for larger matrices);
+// the products about stackGemmNs per entry of the stack (cells × M) and
+// point (0.42–0.70), stackNarrowNs when M is small and the products run
+// along the batch's points (0.24–0.35), plus a nanosecond per element
 // scattered into the matrix; both compute the phases, stackPhaseNs per
-// cell and point.
+// cell and point (4–5).
 const (
-	stackLoopNs   = 0.6
-	stackGemmNs   = 0.4
-	stackNarrowNs = 0.25
-	stackPhaseNs  = 4
+	stackLoopNs   = 0.7
+	stackGemmNs   = 0.5
+	stackNarrowNs = 0.3
+	stackPhaseNs  = 4.5
 	// stackMinGain is how much faster the products must be estimated to
 	// be before a model takes them (and holds the stack).
 	stackMinGain = 1.2

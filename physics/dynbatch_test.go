@@ -146,3 +146,26 @@ func TestCancelStackedGridModes(t *testing.T) {
 	})
 	t.Logf("GridModes, batched assembly: returned %v after cancellation", lat)
 }
+
+// TestStackChoice: models with few cell offsets per block or few blocks
+// keep the loop (the examples, supercells with nearest-neighbour springs:
+// their stack would be mostly zeros), models with springs over many cells
+// take the products (the costs of dynbatch.go, measured by
+// TestAssemblyTable).
+func TestStackChoice(t *testing.T) {
+	for _, name := range testmodels.Names(t) {
+		if testmodels.Compile(t, testmodels.Load(t, name)).HasStack() {
+			t.Errorf("%s assembles in batches; want the loop", name)
+		}
+	}
+	for _, sites := range []int{64, 128} {
+		if testmodels.Compile(t, testmodels.LowSymmetry(t, sites)).HasStack() {
+			t.Errorf("the %d-site nearest-neighbour supercell assembles in batches; want the loop", sites)
+		}
+	}
+	for _, f := range []struct{ sites, reach int }{{2, 3}, {2, 8}, {16, 2}, {64, 1}} {
+		if !farModel(t, f.sites, f.reach).HasStack() {
+			t.Errorf("%d sites with springs over ±%d cells assembles by the loop; want batches", f.sites, f.reach)
+		}
+	}
+}

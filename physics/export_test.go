@@ -175,3 +175,6 @@ func (m *Model) BatchAssemble(qs [][3]float64, a []complex128) {
 		}
 	}
 }
+
+// Cells is the number of cell offsets of m's dynamical matrix.
+func (m *Model) Cells() int { return len(m.cells) }

@@ -69,7 +69,7 @@ type symSearch struct {
 	used  []bool
 	ph    []complex128 // e^{−2πi q'·S_i}
 	row   []complex128 // one block row of D(q'): p × ModeCount()
-	got   []complex128 // D(q') whole
+	got   []complex128 // D(q') whole, allocated on first use
 	table phaseTable
 }
 
@@ -108,7 +108,6 @@ func (m *Model) newSymSearch(ctx context.Context, tolA float64) (*symSearch, err
 	s.used = make([]bool, ns)
 	s.ph = make([]complex128, ns)
 	s.row = make([]complex128, m.p*nm)
-	s.got = make([]complex128, nm*nm)
 	s.hit = make([]bool, len(m.terms))
 	s.dev = make([]float64, ns)
 	return s, ctx.Err()
@@ -594,6 +593,9 @@ func (s *symSearch) invariant(ctx context.Context, op *SymOp, rot *rotation) (bo
 	m := s.m
 	p, nm := m.p, m.ModeCount()
 	sl := s.slack(rot, false)
+	if s.got == nil {
+		s.got = make([]complex128, nm*nm)
+	}
 	for k, q := range s.probes {
 		qp := s.phases(op, q)
 		if !m.assemble(qp, s.got, &s.table, stopFunc(ctx)) {
