@@ -21,6 +21,12 @@
 //     row, skipping the rotation's entries that are rounding noise; an
 //     element within that rounding bound of the tolerance is recomputed
 //     the original way, so every decision is the original one.
+//
+// The two shortcuts (rowRejects, termsAccept) read D(q) off the compiled
+// force-constant terms. A term added to D(q) beyond them (a non-analytic
+// long-range part) must enter both, or both must be skipped for models
+// that carry one, or they would decide on another matrix than the full
+// test's.
 
 package physics
 
