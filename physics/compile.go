@@ -90,6 +90,9 @@ type Model struct {
 	cells  []dmCell
 	blocks []dmBlock
 	reach  [3]int // largest |n_k| of any cell
+	// The blocks stacked by cell for the batched assembly (dynbatch.go);
+	// nil when each D(q) is assembled alone (the faster path for it).
+	stack *dmStack
 
 	hash string // canonical SHA-256, hex (hash.go)
 
@@ -230,6 +233,7 @@ func (m *Model) setTerms(raw []term) {
 		m.terms = append(m.terms, t)
 	}
 	m.buildBlocks()
+	m.buildStack(false)
 	rows := make([]float64, m.ModeCount())
 	for _, t := range m.terms {
 		for a := 0; a < m.p; a++ {

@@ -63,14 +63,47 @@ type GridSize struct {
 	// q-point (LongRange.FlopsPerQ; physics/polar.Cost before a compile),
 	// 0 without one: part of every assembly of D(q).
 	LongRangeFlops float64
+	// BatchPoints is the points of a batch when the model assembles its
+	// dynamical matrices in batches (0: each alone); BatchPointBytes the
+	// buffers a worker then holds per point of its largest batch and
+	// BatchFixedBytes the rest of its batch workspace (dynbatch.go).
+	// GridSizeOf fills them from the model. The work of the assembly is
+	// estimated from Interactions either way: the batched path is the
+	// faster one where it is taken, so that estimate stays an upper bound
+	// (and the pre-compile bound, which knows no batches, stays below).
+	BatchPoints     int
+	BatchPointBytes int64
+	BatchFixedBytes int64
+}
+
+// batchBytes is the batch workspace of one worker handed batches of at
+// most points points (0 without batches).
+func (s GridSize) batchBytes(points int) int64 {
+	if s.BatchPoints == 0 {
+		return 0
+	}
+	return s.BatchFixedBytes + s.BatchPointBytes*int64(max(0, min(s.BatchPoints, points)))
+}
+
+// batchWorkers is how many of workers the loops start over n points in
+// batches: one batch per grab, so never more than the batches.
+func (s GridSize) batchWorkers(workers, n int) int64 {
+	if s.BatchPoints == 0 {
+		return int64(workers)
+	}
+	return int64(max(1, min(workers, (n+s.BatchPoints-1)/s.BatchPoints)))
 }
 
 // GridSizeOf fills a GridSize for model m on spec (normalised, see
 // GridSpec.Normalize) with irr irreducible points (0: unknown).
 func (m *Model) GridSizeOf(spec mesh.GridSpec, irr int) GridSize {
-	s := GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr}
+	s := GridSize{Sites: m.nsites, P: m.p, Dim: m.dim, Interactions: m.Interactions(), Points: spec.Count(), Irreducible: irr,
+		BatchPointBytes: m.batchPointBytes(), BatchFixedBytes: m.batchFixedBytes()}
 	if m.longRange != nil {
 		s.LongRangeFlops = m.longRange.FlopsPerQ()
+	}
+	if m.stack != nil {
+		s.BatchPoints = m.stack.batch
 	}
 	return s
 }
@@ -163,7 +196,8 @@ func workspaceBytes(n int, vectors bool) int64 {
 // bound point in all), counted even when the reduction comes from a cache,
 // which may have dropped it by the time the work starts; the arrays of the
 // diagonalised points, then the same arrays for every point (unfold); one
-// solver workspace per worker. Work: assembly and diagonalisation of every
+// solver workspace per worker, with its batch buffers for a model that
+// assembles in batches (batchBytes). Work: assembly and diagonalisation of every
 // diagonalised point, plus the unfolding (a p×p rotation per site and mode
 // for eigenvectors and tensors).
 func GridModesCost(s GridSize, opt GridOptions) Cost {
@@ -172,7 +206,8 @@ func GridModesCost(s GridSize, opt GridOptions) Cost {
 	per := s.pointBytes(opt)
 	vec := opt.Projections || opt.Eigenvectors || opt.SiteTensors
 	// 4 kB: the result's header, the workers' closures and channels.
-	c := Cost{Bytes: 4<<10 + 32*n + n*per + int64(s.workers())*workspaceBytes(s.Modes(), vec)}
+	c := Cost{Bytes: 4<<10 + 32*n + n*per + int64(s.workers())*workspaceBytes(s.Modes(), vec) +
+		s.batchWorkers(s.workers(), int(reps))*s.batchBytes(int(reps))}
 	if opt.NoSymmetry {
 		c.Bytes += 10 * n // measured: about 9.5 B a point beyond the arrays, origin not traced
 	} else {
@@ -213,7 +248,8 @@ func GridModesBytes(s GridSize, opt GridOptions) int64 {
 // modes.go: at most 2·workers chunks computed ahead plus the one being
 // emitted, each holding its PointModes records, frequencies, eigenvectors
 // and velocities; one workspace per worker (and the velocity workspace,
-// 7 n² complex). The point list itself is the caller's. Work: every point
+// 7 n² complex, and the batch buffers of a model that assembles in
+// batches). The point list itself is the caller's. Work: every point
 // assembled and diagonalised, velocities by three Hermitian products per
 // mode.
 func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
@@ -233,7 +269,7 @@ func StreamCost(s GridSize, points, chunk, workers int, opt ModeOptions) Cost {
 	}
 	inFlight := int64(min(nchunks, 2*workers+1))
 	vec := opt.Eigenvectors || opt.Velocities
-	ws := workspaceBytes(int(n), vec)
+	ws := workspaceBytes(int(n), vec) + s.batchBytes(chunk)
 	if opt.Velocities {
 		ws += 9*16*n*n + 1024 // velWork and its solvers of degenerate groups
 	}

@@ -187,6 +187,18 @@
 // computation finished: a cancelled first use stores nothing and the next
 // call computes again, under its own context (lazy.go).
 //
+// # Assembly of D(q)
+//
+// D(q) is built from the compiled blocks grouped by cell offset, one phase
+// per cell. A model with many cell offsets (folded supercell force
+// constants) builds the matrices of a batch of q-points at once as two
+// real matrix products, cos and sin of the phases times the blocks stacked
+// by cell (gonum's Dgemm; dynbatch.go); Compile chooses that path by
+// measured costs, the results agree with the loop to rounding. The mode
+// loops (grids, streams, paths) hand their workers batches of points;
+// every D(q) they diagonalise is completed in one place (pointWork's
+// dynamical, modes.go).
+//
 // # Invariants
 //
 // D(q) is Hermitian by construction (only its lower triangle is built) and
@@ -238,7 +250,12 @@
 // three random q, with S = R⁻ᵀ acting on fractional q and
 // U_{π(i)α, iβ} = C_αβ exp(−2πi Sq·L_i), C the Cartesian rotation and L_i
 // the cell site i lands in; so springs, shells and blocks that break an
-// operation remove it. Time reversal, D(−q) = D(q)*, always holds.
+// operation remove it. Time reversal, D(−q) = D(q)*, always holds. The
+// search scales with the cell (symsearch.go): sites are matched through a
+// grid of fractional positions, and a candidate is rejected from one block
+// row of D or accepted from its force constants whenever either settles
+// the test for certain — the operations found are exactly those of the
+// direct test (checked against it, the direct search kept with the tests).
 //
 // Tolerance: every comparison is made within one length, Options.SymTolA
 // (default DefaultSymTolA = 1e-4 Å): sites must land within it of a site

@@ -143,15 +143,8 @@ func (t *phaseTable) phase(n [3]int, reach [3]int) complex128 {
 // (a unfinished) when it says so.
 func (m *Model) assemble(q [3]float64, a []complex128, t *phaseTable, stop func() bool) bool {
 	p, nm := m.p, m.ModeCount()
-	if stop == nil {
-		clear(a)
-	} else {
-		for r := 0; r < nm; r += eigen.PollRows + 1 {
-			if stop() {
-				return false
-			}
-			clear(a[r*nm : min(r+eigen.PollRows+1, nm)*nm])
-		}
+	if !clearPolled(a, nm, stop) {
+		return false
 	}
 	t.fill(q, m.reach)
 	done := 0

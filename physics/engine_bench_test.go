@@ -143,3 +143,44 @@ func BenchmarkGrid48(b *testing.B) {
 
 // sinkEigen keeps the benchmarked eigenvalues alive.
 var sinkEigen []float64
+
+// BenchmarkAssembly times the dynamical matrices of a batch of q-points
+// (ns/op: the whole batch), assembled one point at a time by the loop
+// ("loop") and as two matrix products ("batched", dynbatch.go), on models
+// with springs over ±reach cells — as many cell offsets as folded
+// supercell force constants have. The measured costs per element and per
+// stack entry it reports set the crossover (stackLoopNs, stackGemmNs).
+func BenchmarkAssembly(b *testing.B) {
+	rng := rand.New(rand.NewPCG(9, 9))
+	for _, f := range []struct{ sites, reach int }{{2, 2}, {2, 3}, {2, 5}, {2, 8}, {8, 2}, {16, 2}, {64, 1}} {
+		m := farModel(b, f.sites, f.reach)
+		nm := m.ModeCount()
+		for _, batched := range []bool{false, true} {
+			m.SetStack(batched)
+			q := m.BatchPoints()
+			if !batched {
+				m.SetStack(true)
+				q = m.BatchPoints() // the same points for both
+				m.SetStack(false)
+			}
+			qs := randomQs(rng, q)
+			name := fmt.Sprintf("sites=%d/reach=%d/Q=%d/loop", f.sites, f.reach, q)
+			if batched {
+				name = fmt.Sprintf("sites=%d/reach=%d/Q=%d/batched", f.sites, f.reach, q)
+			}
+			b.Run(name, func(b *testing.B) {
+				a := make([]complex128, nm*nm)
+				var t physics.PhaseTable
+				for b.Loop() {
+					if batched {
+						m.BatchAssemble(qs, a)
+						continue
+					}
+					for _, q := range qs {
+						m.Assemble(q, a, &t)
+					}
+				}
+			})
+		}
+	}
+}

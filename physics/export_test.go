@@ -125,3 +125,56 @@ func SamePhysics(a, b *Model) bool {
 	}
 	return true
 }
+
+// HasStack reports whether m assembles D(q) in batches (dynbatch.go).
+func (m *Model) HasStack() bool { return m.stack != nil }
+
+// SetStack gives m a stack (on) or takes it away (off), whatever the
+// crossover says: for comparing the two assemblies on one model. Only
+// for a model no other goroutine uses.
+func (m *Model) SetStack(on bool) {
+	m.stack = nil
+	if on {
+		m.buildStack(true)
+	}
+}
+
+// BatchedDynamicalMatrices returns the full Hermitian D(q) of each of qs
+// by the batched assembly (the model must have a stack), in batches of
+// at most the stack's batch.
+func (m *Model) BatchedDynamicalMatrices(qs [][3]float64) [][]complex128 {
+	b := m.newBatchWork()
+	nm := m.ModeCount()
+	var out [][]complex128
+	for lo := 0; lo < len(qs); lo += m.stack.batch {
+		part := qs[lo:min(lo+m.stack.batch, len(qs))]
+		b.compute(part, nil)
+		for k := range part {
+			a := make([]complex128, nm*nm)
+			b.load(k, a, nil)
+			fillUpper(a, nm)
+			out = append(out, a)
+		}
+	}
+	return out
+}
+
+// BatchPoints is the number of points a mode loop hands a worker at once.
+func (m *Model) BatchPoints() int { return m.batchPoints() }
+
+// BatchAssemble builds D(q) of every q of qs by the batched assembly, each
+// into a (lower triangle, as Assemble): the batched twin of Assemble for
+// the benchmarks. The model must have a stack.
+func (m *Model) BatchAssemble(qs [][3]float64, a []complex128) {
+	b := m.newBatchWork()
+	for lo := 0; lo < len(qs); lo += m.stack.batch {
+		part := qs[lo:min(lo+m.stack.batch, len(qs))]
+		b.compute(part, nil)
+		for k := range part {
+			b.load(k, a, nil)
+		}
+	}
+}
+
+// Cells is the number of cell offsets of m's dynamical matrix.
+func (m *Model) Cells() int { return len(m.cells) }

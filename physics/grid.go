@@ -173,13 +173,29 @@ func (m *Model) GridModes(ctx context.Context, spec mesh.GridSpec, opt GridOptio
 	if opt.SiteTensors {
 		c.SiteTensor = make([]float64, reps*nm*ns*pairs)
 	}
-	err = parallel.For(ctx, reps, 16, func(done <-chan struct{}) func(i int) bool {
+	// Batches of consecutive points per worker: one batched assembly each
+	// for a model with a stack (dynbatch.go), else 16 points per grab.
+	batch := m.batchPoints()
+	err = parallel.For(ctx, (reps+batch-1)/batch, 1, func(done <-chan struct{}) func(b int) bool {
 		w := m.newPointWork(done)
-		return func(i int) bool {
-			if !w.solve(repQ(i), vec) {
-				return false
+		w.reserve(reps)
+		return func(b int) bool {
+			lo, hi := b*batch, min((b+1)*batch, reps)
+			if w.batch != nil {
+				w.qbuf = w.qbuf[:0]
+				for i := lo; i < hi; i++ {
+					w.qbuf = append(w.qbuf, repQ(i))
+				}
+				if !w.prefetch(w.qbuf) {
+					return false
+				}
 			}
-			c.store(i, w, opt)
+			for i := lo; i < hi; i++ {
+				if w.stopped() || !w.solve(repQ(i), vec) {
+					return false
+				}
+				c.store(i, w, opt)
+			}
 			return true
 		}
 	})

@@ -79,7 +79,7 @@ func unfoldSiteWeights(op *SymOp, nmodes, nsites int, src, dst []float64) {
 
 // unfoldEigvecs rotates the eigenvectors of the representative q into
 // those at the image q' = S q: e'_{π(i)α} = exp(−2πi q'·L_i) Σ_β C_αβ e_{iβ}
-// (from D(q') = U D(q) U†, see rotateD), conjugated when time reversal is
+// (from D(q') = U D(q) U†, see symsearch.go), conjugated when time reversal is
 // applied.
 func unfoldEigvecs(op *SymOp, timeReversal bool, qImage [3]float64, p, nsites int, src, dst []complex128) {
 	nm := p * nsites

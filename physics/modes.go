@@ -164,28 +164,79 @@ func imaginary(freqTHz []float64) bool {
 // pointWork is one worker's reusable state for the modes at one q-point:
 // nothing is allocated per point once it is warm.
 type pointWork struct {
-	m    *Model
-	eig  *eigen.Work
-	ph   phaseTable
-	vel  *velWork // lazily, for group velocities
-	done <-chan struct{}
+	m     *Model
+	eig   *eigen.Work
+	ph    phaseTable
+	vel   *velWork     // lazily, for group velocities
+	batch *batchWork   // the points prefetched (nil: the model assembles each q alone)
+	next  int          // the batch's point the next solve expects
+	qbuf  [][3]float64 // the points of the next batch, as the loops gather them
+	done  <-chan struct{}
 }
 
 func (m *Model) newPointWork(done <-chan struct{}) *pointWork {
-	w := &pointWork{m: m, eig: eigen.NewWork(m.ModeCount()), done: done}
+	w := &pointWork{m: m, eig: eigen.NewWork(m.ModeCount()), batch: m.newBatchWork(), done: done}
 	w.eig.SetStop(done)
 	return w
+}
+
+// reserve sets up the batch buffers for batches of up to n points (no-op
+// for a model without a stack), so that a worker's memory is known when
+// it starts: what the cost estimates count.
+func (w *pointWork) reserve(n int) {
+	if w.batch == nil {
+		return
+	}
+	n = min(n, w.m.stack.batch)
+	w.qbuf = make([][3]float64, 0, n)
+	w.batch.reserve(n)
+}
+
+// prefetch builds D(q) for the points qs (at most Model.batchPoints of
+// them) that the worker will solve next, in this order, as one batch
+// (dynbatch.go); a model without a stack builds nothing here and
+// assembles each point when it is solved. It returns false if stopped.
+func (w *pointWork) prefetch(qs [][3]float64) bool {
+	if w.batch == nil {
+		return true
+	}
+	w.next = 0
+	return w.batch.compute(qs, w.stopFunc())
+}
+
+// stopFunc is the poll the assembly loops take: nil (never stop) for
+// matrices too small to be worth polling inside, as the solver does.
+func (w *pointWork) stopFunc() func() bool {
+	if w.done != nil && w.m.ModeCount() >= eigen.CancelCheckModes {
+		return w.stopped
+	}
+	return nil
+}
+
+// dynamical writes the lower triangle of D(q) into the solver's matrix:
+// from the prefetched batch when q is its next point, else assembled on
+// its own. Every D(q) that the mode loops diagonalise is completed here —
+// the one place to add a term beyond the force constants' own. It
+// returns false if stopped.
+func (w *pointWork) dynamical(q [3]float64) bool {
+	stop := w.stopFunc()
+	if b := w.batch; b != nil && w.next < len(b.q) && b.q[w.next] == q {
+		w.next++
+		if !b.load(w.next-1, w.eig.A(), stop) {
+			return false
+		}
+		// The batch holds the force constants' part only, as assemble
+		// before its last step: the long-range term is added here.
+		return w.m.addLongRange(q, w.ph.gammaDir, w.eig.A(), stop)
+	}
+	return w.m.assemble(q, w.eig.A(), &w.ph, stop)
 }
 
 // solve diagonalises D(q) into w.eig.Values() (eigenvalues, eV/Å²/amu,
 // ascending, rounding noise around zero set to 0 by cleanEigenvalues) and,
 // with vectors, w.eig.Vectors(). It returns false if stopped.
 func (w *pointWork) solve(q [3]float64, vectors bool) bool {
-	var stop func() bool
-	if w.done != nil && w.m.ModeCount() >= eigen.CancelCheckModes {
-		stop = w.stopped
-	}
-	if !w.m.assemble(q, w.eig.A(), &w.ph, stop) {
+	if !w.dynamical(q) {
 		return false
 	}
 	switch w.eig.Solve(vectors) {
@@ -347,6 +398,7 @@ func (m *Model) StreamModes(ctx context.Context, pts []mesh.QPoint, opt ModeOpti
 	for wk := 0; wk < workers; wk++ {
 		g.Go(func() {
 			w := m.newPointWork(ctx.Done())
+			w.reserve(chunk)
 			for {
 				select {
 				case <-tokens:
@@ -405,9 +457,19 @@ func (w *pointWork) chunk(pts []mesh.QPoint, offset, n int, opt ModeOptions) (Mo
 	if opt.Velocities {
 		vel = make([][3]float64, len(pts)*n)
 	}
+	batch := w.m.batchPoints()
 	for i, p := range pts {
 		if w.stopped() {
 			return mc, false
+		}
+		if w.batch != nil && i%batch == 0 {
+			w.qbuf = w.qbuf[:0]
+			for _, p := range pts[i:min(i+batch, len(pts))] {
+				w.qbuf = append(w.qbuf, p.Q)
+			}
+			if !w.prefetch(w.qbuf) {
+				return mc, false
+			}
 		}
 		pm := &mc.Points[i]
 		pm.Q, pm.Weight = p.Q, p.Weight

@@ -3,8 +3,6 @@ package physics
 import (
 	"context"
 	"math"
-	"math/cmplx"
-	"math/rand/v2"
 
 	"github.com/materials-lab/modegrid/physics/lattice"
 )
@@ -74,10 +72,14 @@ const (
 // The identity is always first. The result is computed once per model.
 // Time reversal (q → −q) is not listed: it always holds.
 //
-// The search costs O(sites³) per candidate rotation plus a few dynamical
-// matrices (tens of seconds at 512 sites); it polls ctx and returns
-// ctx.Err() when ctx ends first. A cancelled search keeps nothing: the
-// next call searches again.
+// Candidates are the lattice's point group (lattice.PointGroup) and, per
+// rotation, the translations taking site 0 onto each site of its mass;
+// sites are matched through a grid of fractional positions (O(sites) per
+// candidate), a candidate is rejected from one block row of D when it
+// certainly fails and accepted from its force constants when it
+// certainly holds, and only the rest are compared on whole matrices
+// (symsearch.go). It polls ctx and returns ctx.Err() when ctx ends first.
+// A cancelled search keeps nothing: the next call searches again.
 //
 // Operations are found within the model's symmetry tolerance (SymTolA): a
 // model within it of a symmetric one gets that one's operations, and the
@@ -98,32 +100,12 @@ func (m *Model) SymTolA() float64 { return m.symTolA }
 // it is for comparing tolerances (how many operations a looser one would
 // find). tolA must be positive.
 func (m *Model) SymmetryAt(ctx context.Context, tolA float64) ([]SymOp, error) {
-	d := m.dim
-	rng := rand.New(rand.NewPCG(0x5eed, 0x0dd5))
-	var probes [][3]float64
-	for k := 0; k < 3; k++ {
-		var q [3]float64
-		for a := 0; a < d; a++ {
-			q[a] = rng.Float64() - 0.5
-		}
-		probes = append(probes, q)
+	s, err := m.newSymSearch(ctx, tolA)
+	if err != nil {
+		return nil, err
 	}
-	dq := make([][]complex128, len(probes))
-	for k, q := range probes {
-		var err error
-		if dq[k], err = m.dynamicalMatrixCtx(ctx, q); err != nil {
-			return nil, err
-		}
-	}
-	var dmax float64
-	for _, dm := range dq {
-		for _, z := range dm {
-			dmax = math.Max(dmax, cmplx.Abs(z))
-		}
-	}
-	fcTol := m.fcTol(tolA, dmax)
 	var ops []SymOp
-	for _, r := range lattice.PointGroup(m.lattice, d, tolA) {
+	for _, r := range lattice.PointGroup(m.lattice, m.dim, tolA) {
 		if ctx.Err() != nil {
 			return nil, ctx.Err()
 		}
@@ -133,15 +115,12 @@ func (m *Model) SymmetryAt(ctx context.Context, tolA float64) ([]SymOp, error) {
 		}
 		// One translation per rotation suffices for q-space use: the
 		// first candidate that leaves the model invariant.
-		err := m.siteMappings(ctx, r, cart, tolA, func(op SymOp) (bool, error) {
-			ok, err := m.fcInvariant(ctx, op, probes, dq, fcTol)
-			if ok {
-				ops = append(ops, op)
-			}
-			return ok, err
-		})
+		op, ok, err := s.firstInvariant(ctx, r, cart)
 		if err != nil {
 			return nil, err
+		}
+		if ok {
+			ops = append(ops, op)
 		}
 	}
 	// Identity first.
@@ -196,116 +175,12 @@ func (m *Model) keepsPolarizations(c [3][3]float64, tolA float64) bool {
 	return true
 }
 
-// siteMappings passes to try, in order, the candidate operations (R, t)
-// that map every site onto a site of the same mass, t running over
-// x_j − R x_0, until try returns true or an error. Candidates are built
-// one at a time (each costs O(sites²)), so a rotation whose first
-// candidate holds costs one, not sites, of them. It polls ctx per
-// candidate translation.
-func (m *Model) siteMappings(ctx context.Context, r [3][3]int, cart [3][3]float64, tolA float64, try func(SymOp) (bool, error)) error {
-	d, ns := m.dim, m.nsites
-	rx := make([][3]float64, ns)
-	for i := 0; i < ns; i++ {
-		for a := 0; a < d; a++ {
-			for b := 0; b < d; b++ {
-				rx[i][a] += float64(r[a][b]) * m.frac[i][b]
-			}
-		}
-	}
-	for j0 := 0; j0 < ns; j0++ {
-		if m.massAmu[j0] != m.massAmu[0] {
-			continue
-		}
-		if err := ctx.Err(); err != nil {
-			return err
-		}
-		var t [3]float64
-		for a := 0; a < d; a++ {
-			t[a] = m.frac[j0][a] - rx[0][a]
-			t[a] -= math.Floor(t[a])
-		}
-		perm := make([]int, ns)
-		shift := make([][3]int, ns)
-		used := make([]bool, ns)
-		ok := true
-		for i := 0; i < ns && ok; i++ {
-			found := false
-			for j := 0; j < ns; j++ {
-				if used[j] || m.massAmu[j] != m.massAmu[i] {
-					continue
-				}
-				var diff, cell [3]float64
-				for a := 0; a < d; a++ {
-					diff[a] = rx[i][a] + t[a] - m.frac[j][a]
-					cell[a] = math.Round(diff[a])
-					diff[a] -= cell[a]
-				}
-				if lattice.Norm(m.cart(diff[:d])) < tolA {
-					perm[i], used[j], found = j, true, true
-					for a := 0; a < d; a++ {
-						shift[i][a] = int(cell[a])
-					}
-					break
-				}
-			}
-			ok = found
-		}
-		if !ok {
-			continue
-		}
-		op := SymOp{Rot: r, Trans: t, Cart: cart, Perm: perm, Shift: shift, QRot: lattice.InvTransposeInt(r)}
-		if done, err := try(op); done || err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
 // applyQ returns QRot·q.
 func (op *SymOp) applyQ(q [3]float64) [3]float64 {
 	var out [3]float64
 	for a := 0; a < 3; a++ {
 		for b := 0; b < 3; b++ {
 			out[a] += float64(op.QRot[a][b]) * q[b]
-		}
-	}
-	return out
-}
-
-// rotateD computes U D(q) U† for the operation: the block of sites
-// (π i, π j) is C D_ij Cᵀ · exp(−2πi q'·(L_i − L_j)), q' = QRot q, using
-// only the p×p part of C. It polls ctx once per row of sites and returns
-// nil when ctx ended.
-func (m *Model) rotateD(ctx context.Context, op *SymOp, q [3]float64, dm []complex128) []complex128 {
-	p, nm := m.p, m.ModeCount()
-	qp := op.applyQ(q)
-	ph := make([]complex128, m.nsites)
-	for i := range ph {
-		var arg float64
-		for a := 0; a < 3; a++ {
-			arg += qp[a] * float64(op.Shift[i][a])
-		}
-		ph[i] = cmplx.Rect(1, -2*math.Pi*arg)
-	}
-	out := make([]complex128, nm*nm)
-	for i := 0; i < m.nsites; i++ {
-		if ctx.Err() != nil {
-			return nil
-		}
-		for j := 0; j < m.nsites; j++ {
-			f := ph[i] * cmplx.Conj(ph[j])
-			pi, pj := op.Perm[i], op.Perm[j]
-			for a := 0; a < p; a++ {
-				for b := 0; b < p; b++ {
-					var s complex128
-					for c := 0; c < p; c++ {
-						for e := 0; e < p; e++ {
-							s += complex(op.Cart[a][c]*op.Cart[b][e], 0) * dm[(i*p+c)*nm+j*p+e]
-						}
-					}
-					out[(pi*p+a)*nm+pj*p+b] = s * f
-				}
-			}
 		}
 	}
 	return out
@@ -363,25 +238,4 @@ func (m *Model) shortestBondA() float64 {
 		}
 	}
 	return r
-}
-
-// fcInvariant reports D(Sq) = U D(q) U† at the probes, within tol (see
-// fcTol); it returns ctx.Err() when ctx ends first.
-func (m *Model) fcInvariant(ctx context.Context, op SymOp, probes [][3]float64, dq [][]complex128, tol float64) (bool, error) {
-	for k, q := range probes {
-		want := m.rotateD(ctx, &op, q, dq[k])
-		if want == nil {
-			return false, ctx.Err()
-		}
-		got, err := m.dynamicalMatrixCtx(ctx, op.applyQ(q))
-		if err != nil {
-			return false, err
-		}
-		for x := range got {
-			if cmplx.Abs(got[x]-want[x]) > tol {
-				return false, nil
-			}
-		}
-	}
-	return true, nil
 }

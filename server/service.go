@@ -84,10 +84,11 @@ type modelEntry struct {
 }
 
 // size is the entry's charge in the cache: an estimate of the compiled
-// model (force-constant terms dominate) plus its source, plus the
-// dipole–dipole term's arrays for a polar model.
+// model (force-constant terms dominate, and the stacked copy of a model
+// that assembles in batches) plus its source, plus the dipole–dipole
+// term's arrays for a polar model.
 func (e *modelEntry) size() int64 {
-	n := int64(1024 + len(e.source) + 200*e.m.Interactions() + 100*e.m.Sites())
+	n := int64(1024+len(e.source)+200*e.m.Interactions()+100*e.m.Sites()) + e.m.StackBytes()
 	if t, ok := e.m.LongRangeTerm().(*polar.Term); ok {
 		n += t.TermSizes().BuildCost(e.m.Sites()).Bytes
 	}

@@ -33,17 +33,19 @@ func measureAlloc(t *testing.T, fn func()) int64 {
 	return int64(b.TotalAlloc - a.TotalAlloc)
 }
 
+// rung is one request of the cost ladder: its estimate and its run.
+type rung struct {
+	name string
+	est  func() int64
+	run  func()
+}
+
 // TestCostLadder compares every estimator with the measured allocation of
 // the real computation over a ladder of models (1, 2, 8 and 64 sites) and
 // grids, with every output option: the estimate must never be below the
 // measurement nor more than twice it. The table is logged (go test -v).
 func TestCostLadder(t *testing.T) {
 	ctx := context.Background()
-	type rung struct {
-		name string
-		est  func() int64
-		run  func()
-	}
 	var rungs []rung
 	for _, l := range testmodels.Ladder(t) {
 		if testmodels.RaceEnabled && l.Sites > 8 {
@@ -145,6 +147,7 @@ func TestCostLadder(t *testing.T) {
 			})
 		}
 	}
+	rungs = append(rungs, stackedRungs(t)...)
 	t.Logf("| request | estimate | measured | ratio |")
 	t.Logf("|---|---|---|---|")
 	for _, r := range rungs {
@@ -156,6 +159,50 @@ func TestCostLadder(t *testing.T) {
 			t.Errorf("%s: estimate %d B, measured %d B (ratio %.2f, want 1…2)", r.name, est, got, ratio)
 		}
 	}
+}
+
+// stackedRungs are the grid modes and a stream of a model that assembles
+// its dynamical matrices in batches (springs over ±5 cells, as many cell
+// offsets as a folded 11×11×11 supercell set): their estimates count each
+// worker's batch buffers.
+func stackedRungs(t *testing.T) []rung {
+	ctx := context.Background()
+	m := testmodels.Compile(t, testmodels.FarSprings(testmodels.CubicPair(), 5, 1e9, 2, 1.5))
+	if m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 1).BatchPoints == 0 {
+		t.Fatal("the far-reaching model does not assemble in batches")
+	}
+	var rungs []rung
+	for _, n := range []int{4, 10} {
+		spec := mesh.GridSpec{Mesh: [3]int{n, n, n}}
+		cache := mesh.NewReductionCache(64 << 20)
+		irr, _ := physics.IrreducibleCount(cache, m, spec)
+		size := m.GridSizeOf(spec, irr)
+		for _, opt := range []physics.GridOptions{{}, {Projections: true}, {NoSymmetry: true, Projections: true}} {
+			opt.Cache = cache
+			rungs = append(rungs, rung{
+				name: fmt.Sprintf("2 sites over ±5 cells (batched) %d³ grid %+v", n, optName(opt)),
+				est:  func() int64 { return physics.GridModesCost(size, opt).Bytes },
+				run: func() {
+					if _, err := m.GridModes(ctx, spec, opt); err != nil {
+						t.Fatal(err)
+					}
+				},
+			})
+		}
+	}
+	pts := mesh.GridSpec{Mesh: [3]int{4, 4, 4}}.Points()
+	mo := physics.ModeOptions{ChunkSize: 16}
+	size := m.GridSizeOf(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}, 0)
+	rungs = append(rungs, rung{
+		name: fmt.Sprintf("2 sites over ±5 cells (batched) stream of %d points", len(pts)),
+		est:  func() int64 { return physics.StreamCost(size, len(pts), mo.ChunkSize, 0, mo).Bytes },
+		run: func() {
+			if err := m.StreamModes(ctx, pts, mo, func(physics.ModeChunk) error { return nil }); err != nil {
+				t.Fatal(err)
+			}
+		},
+	})
+	return rungs
 }
 
 func optName(o physics.GridOptions) string {
