@@ -11,12 +11,12 @@ import (
 // Element is one row of the built-in neutron table: bound scattering
 // lengths and cross-sections of the element in natural isotopic abundance.
 type Element struct {
-	Symbol        string
-	Z             int
-	CoherentFm    float64 // bound coherent scattering length b_c, fm
-	CoherentBarn  float64 // bound coherent cross-section σ_coh, barn
+	Symbol         string
+	Z              int
+	CoherentFm     float64 // bound coherent scattering length b_c, fm
+	CoherentBarn   float64 // bound coherent cross-section σ_coh, barn
 	IncoherentBarn float64 // bound incoherent cross-section σ_inc, barn
-	WeightAmu     float64 // standard atomic weight, amu (for the mass check only)
+	WeightAmu      float64 // standard atomic weight, amu (for the mass check only)
 	// text is the row as transcribed (the tests read the printed digits).
 	text string
 }
