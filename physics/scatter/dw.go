@@ -143,3 +143,6 @@ func siteMSD(ctx context.Context, m *physics.Model, spec mesh.GridSpec, tempK fl
 	}
 	return out, nil
 }
+
+// gridSpec is a Γ-centred grid of the given divisions.
+func gridSpec(n [3]int) mesh.GridSpec { return mesh.GridSpec{Mesh: n} }

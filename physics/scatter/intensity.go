@@ -118,12 +118,19 @@ func (s *setup) newWork(done <-chan struct{}) *lineWork {
 // ħ²|F_s|²/(2E_s)·n_s at E = −E_s, n the Bose factor at T. D(q) is
 // periodic, so the modes at q are those at Q itself.
 func (w *lineWork) lines(qf [3]float64, out *Lines) bool {
+	return w.linesAt(qf, w.s.cart(qf), out)
+}
+
+// linesAt is lines with the Cartesian Q given: the q of the modes is qf,
+// and for a crystal of fewer than three dimensions qc may have components
+// outside its reciprocal space (a powder average), which enter Q·e and
+// the Debye–Waller exponent but not q.
+func (w *lineWork) linesAt(qf, qc [3]float64, out *Lines) bool {
 	s := w.s
 	freq, vecs, ok := w.solver.Solve(qf)
 	if !ok {
 		return false
 	}
-	qc := s.cart(qf)
 	qn := math.Sqrt(qc[0]*qc[0] + qc[1]*qc[1] + qc[2]*qc[2])
 	for j := range w.a {
 		u := &s.u[j]
