@@ -287,6 +287,10 @@
 //     harmonic U, F, S, Cv; θ_D(T) with its status; Debye functions;
 //     mean-square displacements) and their cost (ThermalCost); its
 //     DOS-integral route uses spectra.
+//   - physics/scatter — above thermo: neutron and X-ray one-phonon
+//     scattering S(Q, E) of single crystals and powders, Debye–Waller
+//     factors from thermo, the neutron-weighted DOS, a table of neutron
+//     scattering lengths; their cost (scatter/cost.go).
 //
 // Capabilities still to come each get a package of their own above the
 // core (DEVELOPERS.md, Architecture): imported first-principles force

@@ -9,8 +9,9 @@
 //     (gonum.org/v1/gonum/...) and physics/... (its own sub-packages); its
 //     tests too, and go.uber.org/goleak. Inside physics the arrows point
 //     one way: the leaves (physics/internal/parallel, eigen, lattice,
-//     mesh) ← the core (physics) ← physics/spectra ← physics/thermo, and
-//     the core ← physics/fcimport (in spectra's layer); a
+//     mesh) ← the core (physics) ← physics/spectra ← physics/thermo ←
+//     physics/scatter, and the core ← physics/fcimport (in spectra's
+//     layer); a
 //     package (and its tests) imports only packages below it.
 //     physics/internal/testmodels sits between the core and spectra and
 //     is imported by tests only.

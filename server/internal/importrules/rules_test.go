@@ -202,7 +202,7 @@ func coreXTestImports(path string, imports []string) []string {
 // only those before it (the leaves among themselves not at all);
 // physics/internal/testmodels, the tests' example models, is imported by
 // tests only.
-var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport", "physics/thermo"}
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport", "physics/thermo", "physics/scatter"}
 
 // testModels is the test-only package of example models for the tests of
 // the packages above the core.
@@ -211,7 +211,9 @@ const testModels = "physics/internal/testmodels"
 // engineRank is the layer of a module-relative physics path: 1 for the
 // leaves (eigen, lattice, mesh, internal/...), 2 for the core, 3 for the
 // test models, 4 for spectra and fcimport (the same layer above the
-// core), 5 for thermo, 0 for a path outside physics.
+// core), 5 for thermo, 6 for scatter (above thermo: it takes the
+// Debye–Waller factors from thermo's displacements), 0 for a path outside
+// physics.
 // A package imports only packages of a lower rank (or of its own, for the
 // leaves' sub-packages): spectra the core and the leaves, thermo spectra
 // too, the leaves nothing of the engine above them.
@@ -225,6 +227,8 @@ func engineRank(r string) int {
 		return 4
 	case under(r, "physics/thermo"):
 		return 5
+	case under(r, "physics/scatter"):
+		return 6
 	case under(r, "physics"):
 		return 1
 	}
@@ -430,6 +434,8 @@ func TestRulesCatchViolations(t *testing.T) {
 		{name: "physics leaf test imports the core", path: "physics/eigen", imports: []string{m("physics")}, test: true, want: true},
 		{name: "spectra on the core and leaves", path: "physics/spectra", imports: []string{m("physics"), m("physics/mesh"), m("physics/internal/parallel")}},
 		{name: "thermo on spectra, core and leaves", path: "physics/thermo", imports: []string{m("physics/spectra"), m("physics"), m("physics/mesh")}},
+		{name: "scatter on thermo, spectra, core and leaves", path: "physics/scatter", imports: []string{m("physics/thermo"), m("physics/spectra"), m("physics"), m("physics/internal/parallel")}},
+		{name: "thermo imports scatter", path: "physics/thermo", imports: []string{m("physics/scatter")}, want: true},
 		{name: "fcimport on the core", path: "physics/fcimport", imports: []string{m("physics"), m("physics/lattice")}},
 		{name: "fcimport imports thermo", path: "physics/fcimport", imports: []string{m("physics/thermo")}, want: true},
 		{name: "core imports fcimport", path: "physics", imports: []string{m("physics/fcimport")}, want: true},
