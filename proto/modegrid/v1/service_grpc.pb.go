@@ -24,6 +24,7 @@ const (
 	ModegridService_ComputeDispersion_FullMethodName = "/modegrid.v1.ModegridService/ComputeDispersion"
 	ModegridService_ComputeDos_FullMethodName        = "/modegrid.v1.ModegridService/ComputeDos"
 	ModegridService_ComputeThermal_FullMethodName    = "/modegrid.v1.ModegridService/ComputeThermal"
+	ModegridService_ComputeScattering_FullMethodName = "/modegrid.v1.ModegridService/ComputeScattering"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -62,6 +63,10 @@ type ModegridServiceClient interface {
 	ComputeDos(ctx context.Context, in *ComputeDosRequest, opts ...grpc.CallOption) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(ctx context.Context, in *ComputeThermalRequest, opts ...grpc.CallOption) (*ComputeThermalResponse, error)
+	// ComputeScattering gives one-phonon neutron or X-ray scattering: S(Q, E)
+	// of a single crystal (Q list, path or slice), the powder average
+	// S(|Q|, E), or the neutron-weighted DOS.
+	ComputeScattering(ctx context.Context, in *ComputeScatteringRequest, opts ...grpc.CallOption) (*ComputeScatteringResponse, error)
 }
 
 type modegridServiceClient struct {
@@ -131,6 +136,16 @@ func (c *modegridServiceClient) ComputeThermal(ctx context.Context, in *ComputeT
 	return out, nil
 }
 
+func (c *modegridServiceClient) ComputeScattering(ctx context.Context, in *ComputeScatteringRequest, opts ...grpc.CallOption) (*ComputeScatteringResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeScatteringResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeScattering_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -167,6 +182,10 @@ type ModegridServiceServer interface {
 	ComputeDos(context.Context, *ComputeDosRequest) (*ComputeDosResponse, error)
 	// ComputeThermal gives harmonic thermal properties at a list of temperatures.
 	ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error)
+	// ComputeScattering gives one-phonon neutron or X-ray scattering: S(Q, E)
+	// of a single crystal (Q list, path or slice), the powder average
+	// S(|Q|, E), or the neutron-weighted DOS.
+	ComputeScattering(context.Context, *ComputeScatteringRequest) (*ComputeScatteringResponse, error)
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -191,6 +210,9 @@ func (UnimplementedModegridServiceServer) ComputeDos(context.Context, *ComputeDo
 }
 func (UnimplementedModegridServiceServer) ComputeThermal(context.Context, *ComputeThermalRequest) (*ComputeThermalResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeThermal not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeScattering(context.Context, *ComputeScatteringRequest) (*ComputeScatteringResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeScattering not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -296,6 +318,24 @@ func _ModegridService_ComputeThermal_Handler(srv interface{}, ctx context.Contex
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_ComputeScattering_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeScatteringRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeScattering(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeScattering_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeScattering(ctx, req.(*ComputeScatteringRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -318,6 +358,10 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ComputeThermal",
 			Handler:    _ModegridService_ComputeThermal_Handler,
+		},
+		{
+			MethodName: "ComputeScattering",
+			Handler:    _ModegridService_ComputeScattering_Handler,
 		},
 	},
 	Streams: []grpc.StreamDesc{
