@@ -24,10 +24,10 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindScatter}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
-var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal}
+var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindScatter}
 
 const (
 	kindCompile    = "compile"
@@ -39,6 +39,7 @@ const (
 	kindDispersion = "dispersion"
 	kindDOS        = "dos"
 	kindThermal    = "thermal"
+	kindScatter    = "scatter"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one
