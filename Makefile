@@ -21,7 +21,7 @@ test: proto-check lint fuzz-short
 # Fuzz targets (package:function): the model file decoder, every RPC
 # handler, the CLI's parsers. Seeds: <package>/testdata/fuzz/<function>/.
 FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
-  ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal \
+  ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal ./server:FuzzComputeScattering \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
   ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps
 FUZZTIME ?= 10m

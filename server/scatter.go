@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"strings"
 
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
@@ -45,7 +46,7 @@ type scatterJob struct {
 func (s *Service) computeScattering(ctx context.Context, req *modegridv1.ComputeScatteringRequest) (*modegridv1.ComputeScatteringResponse, error) {
 	var vs violations
 	if req.GetTarget() == nil {
-		vs.Add("target", "say what to compute: q_list, path, slice, powder or weighted_dos")
+		vs.Add("q_list", "say what to compute: one of q_list, path, slice, powder or weighted_dos")
 	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
@@ -73,7 +74,7 @@ func (s *Service) computeScattering(ctx context.Context, req *modegridv1.Compute
 			return s.run(ctx, kindScatter, func(ctx context.Context) error {
 				var err error
 				out, err = runScatter(ctx, e, job)
-				return sumRuleCause(e, err)
+				return sumRuleCause(e, scatterFields(err, targetName(req)))
 			})
 		})
 		if err != nil {
@@ -170,7 +171,7 @@ func givenScatterers(req *modegridv1.ComputeScatteringRequest, vs *violations) [
 		case *modegridv1.Scatterer_Label:
 			g.Label = t.Label
 		default:
-			vs.Add(fmt.Sprintf("scatterers[%d].target", i), "name a label or a site")
+			vs.Add(fmt.Sprintf("scatterers[%d].label", i), "name a label or a site")
 		}
 		if ff := sc.GetFormFactor(); ff != nil {
 			if len(ff.GetA()) > 4 || len(ff.GetA()) != len(ff.GetBA2()) {
@@ -243,7 +244,9 @@ func (s *Service) scatterTarget(m *physics.Model, req *modegridv1.ComputeScatter
 			if vs.Len() > 0 {
 				break
 			}
-			vs.AddErr("", "slice", physics.ValidateQPoints(m.Dim(), []mesh.QPoint{{Q: q.Q}}, fmt.Sprintf("slice.point[%d]", i)))
+			if physics.ValidateQPoints(m.Dim(), []mesh.QPoint{{Q: q.Q}}, "q") != nil {
+				vs.Add("slice", "point %d of the slice, Q = %v (fractional), is outside ±%g", i, q.Q, physics.MaxQ)
+			}
 		}
 	case *modegridv1.ComputeScatteringRequest_Powder:
 		p := t.Powder
@@ -341,8 +344,8 @@ func runScatter(ctx context.Context, e *modelEntry, job *scatterJob) (*modegridv
 		per := 1 / physics.MeV.PerTHz() * r.Unit.PerTHz() // axis units per meV
 		for _, p := range r.Points {
 			sp := &modegridv1.ScatteringPoint{
-				QFrac:     &modegridv1.QVector{Q1: p.Q[0], Q2: p.Q[1], Q3: p.Q[2]},
-				QCartInvA: &modegridv1.QVector{Q1: p.QCartInvA[0], Q2: p.QCartInvA[1], Q3: p.QCartInvA[2]},
+				QFrac:        &modegridv1.QVector{Q1: p.Q[0], Q2: p.Q[1], Q3: p.Q[2]},
+				QCartInvA:    &modegridv1.QVector{Q1: p.QCartInvA[0], Q2: p.QCartInvA[1], Q3: p.QCartInvA[2]},
 				DistanceInvA: p.DistanceInvA, Label: p.Label, U: p.U, V: p.V, S: p.S,
 			}
 			if job.lines {
@@ -387,4 +390,26 @@ func unitLabel(u physics.Unit) string {
 		return "cm⁻¹"
 	}
 	return "meV"
+}
+
+// scatterFields renames the field paths of the engine's validation errors
+// to the request's: a site's scatterer is under scatterers, a Q point under
+// the target.
+func scatterFields(err error, target string) error {
+	var ve *physics.ValidationError
+	if !errors.As(err, &ve) {
+		return err
+	}
+	var vs violations
+	for _, v := range ve.Violations {
+		f := v.Field
+		switch {
+		case strings.HasPrefix(f, "sites"):
+			f = "scatterers"
+		case strings.HasPrefix(f, "q"):
+			f = target
+		}
+		vs.Add(f, "%s", v.Description)
+	}
+	return vs.Err()
 }

@@ -149,7 +149,7 @@ func (po PowderOptions) check(vs *physics.Violations) {
 		vs.Add("powder.q_max_inv_a", "need 0 ≤ q_min ≤ q_max ≤ %g Å⁻¹, got %v…%v", MaxQInvA, po.QMinInvA, po.QMaxInvA)
 	}
 	if po.NQ < 1 || po.NQ > MaxPowderQ {
-		vs.Add("powder.q_samples", "must be 1…%d, got %d", MaxPowderQ, po.NQ)
+		vs.Add("powder.q_points", "must be 1…%d, got %d", MaxPowderQ, po.NQ)
 	}
 	if !(po.Tolerance > 0 && po.Tolerance < 1) {
 		vs.Add("powder.tolerance", "must be in (0, 1) (0 for the default %g), got %v", DefaultPowderTolerance, po.Tolerance)
