@@ -98,6 +98,12 @@ func (c *Client) Thermal(ctx context.Context, req *modegridv1.ComputeThermalRequ
 	return unary(ctx, c, req, c.api.ComputeThermal, c.affinity, collectOptions(opts))
 }
 
+// Scattering calls ComputeScattering (single-crystal S(Q, E), powder map
+// or neutron-weighted DOS).
+func (c *Client) Scattering(ctx context.Context, req *modegridv1.ComputeScatteringRequest, opts ...CallOption) (*modegridv1.ComputeScatteringResponse, error) {
+	return unary(ctx, c, req, c.api.ComputeScattering, c.affinity, collectOptions(opts))
+}
+
 // Modes calls ComputeModes and collects the whole stream into one response
 // (offset 0, every point in q order).
 func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest, opts ...CallOption) (*modegridv1.ComputeModesResponse, error) {
