@@ -717,8 +717,8 @@ func scatterSeeds(tb testing.TB) []proto.Message {
 			Target: &modegridv1.ComputeScatteringRequest_WeightedDos{WeightedDos: &modegridv1.WeightedDosSpec{Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{4, 4, 4}}}}},
 		&modegridv1.ComputeScatteringRequest{Model: fcc, Probe: modegridv1.Probe_PROBE_XRAY, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
 			Scatterers: []*modegridv1.Scatterer{{Target: &modegridv1.Scatterer_Label{Label: "M"}, FormFactor: &modegridv1.XrayFormFactor{A: []float64{10, 5}, BA2: []float64{2, 20}, C: 1}}},
-			Target: &modegridv1.ComputeScatteringRequest_Slice{Slice: &modegridv1.QSlice{Origin: &modegridv1.QVector{}, UVector: &modegridv1.QVector{Q1: 1}, VVector: &modegridv1.QVector{Q2: 1}, UMax: 1, VMax: 1, UPoints: 3, VPoints: 2}},
-			Energy: &modegridv1.EnergyAxis{Min: 10, Max: 10, Step: 1}},
+			Target:     &modegridv1.ComputeScatteringRequest_Slice{Slice: &modegridv1.QSlice{Origin: &modegridv1.QVector{}, UVector: &modegridv1.QVector{Q1: 1}, VVector: &modegridv1.QVector{Q2: 1}, UMax: 1, VMax: 1, UPoints: 3, VPoints: 2}},
+			Energy:     &modegridv1.EnergyAxis{Min: 10, Max: 10, Step: 1}},
 	}
 }
 
