@@ -27,8 +27,11 @@ var scatterCodec = protoCodec(func() *modegridv1.ComputeScatteringResponse { ret
 // FAILED_PRECONDITION unless allow_unstable.
 func (s *Service) ComputeScattering(ctx context.Context, req *modegridv1.ComputeScatteringRequest) (*modegridv1.ComputeScatteringResponse, error) {
 	resp, err := s.computeScattering(ctx, req)
-	if errors.Is(err, thermo.ErrUnstable) {
+	switch {
+	case errors.Is(err, thermo.ErrUnstable):
 		return nil, status.Errorf(codes.FailedPrecondition, "%v (set allow_unstable to compute anyway, leaving imaginary modes out)", err)
+	case errors.Is(err, scatter.ErrOverflow):
+		return nil, status.Errorf(codes.FailedPrecondition, "%v", err)
 	}
 	return resp, s.toStatus(ctx, "ComputeScattering", err)
 }

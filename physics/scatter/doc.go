@@ -54,8 +54,9 @@
 // where the one-phonon term is not defined) have no line; imaginary modes
 // make the computation fail with an error wrapping thermo.ErrUnstable,
 // unless AllowUnstable leaves them out (counted). Within a group of
-// degenerate modes (frequencies within 1e-6 THz) each mode gets the
-// group's mean weight: the sum is basis-independent, the parts are not.
+// degenerate modes (frequencies within 1.5e-7 of the largest |ν| at the
+// Q, about 1e-6 THz for the examples) each mode gets the group's mean
+// weight: the sum is basis-independent, the parts are not.
 //
 // # Phase convention
 //
@@ -106,6 +107,12 @@
 // constant 2·Step), sampled at the axis energies when its σ ≥ Step and
 // bin-averaged otherwise, so Σ S·Step over a window holding the lines is
 // their weight. A powder map may add a constant Gaussian FWHM in |Q|.
+// Step, every FWHM and the |Q| FWHM are at least MinEnergy (1e-12 of their
+// unit; the window from the modes is at least 200·MinEnergy wide), and
+// lengths, cross-sections and form-factor coefficients are 0 or of a size
+// in [MinScatter, MaxScatter] = [1e-6, 1e6], with the form factor's
+// exponents b ≥ 0: far from the smallest and largest floating-point
+// numbers.
 //
 // # Powder average
 //
@@ -134,5 +141,8 @@
 // ħ²Q²/2M exactly; S(−Q, −E) = e^{−E/k_BT} S(Q, E) line by line; S does
 // not depend on the choice of cell (per cell: S of a supercell of M cells
 // is M times the primitive one). Results do not depend on scheduling: every
-// Q point and every powder row is computed on its own.
+// Q point and every powder row is computed on its own. No result holds a
+// NaN or ±Inf: a model so soft (force constants near 1e-200 eV/Å²) that a
+// weight ∝ k_BT/E² or a mean-square displacement leaves the range of the
+// numbers fails with an error wrapping ErrOverflow.
 package scatter

@@ -35,10 +35,12 @@ var recoilMeV = physics.ReducedPlanckJS * physics.ReducedPlanckJS /
 // fm2ToBarn converts fm² to barn (1 barn = 100 fm²).
 const fm2ToBarn = 0.01
 
-// degenerateTolTHz groups modes whose intensities are shared: the
-// intensity of each mode of a degenerate group depends on the basis the
-// solver picked, their sum does not.
-const degenerateTolTHz = 1e-6
+// degenerateTol groups modes whose intensities are shared: the intensity
+// of each mode of a degenerate group depends on the basis the solver
+// picked, their sum does not. Relative to the largest |ν| at the Q (about
+// 1e-6 THz for modes of 5–10 THz), so that the grouping does not depend on
+// the frequency scale.
+const degenerateTol = 1.5e-7
 
 // setup is what every Q point needs: the model, its scatterers, the
 // Debye–Waller tensors and the constants.
@@ -197,12 +199,16 @@ func bose(eMeV, kTmeV float64) float64 {
 }
 
 // averageGroups replaces the values of each group of degenerate modes
-// (ascending frequencies within degenerateTolTHz of the previous) by the
-// group's mean.
+// (ascending frequencies within degenerateTol × the largest |ν| of the
+// previous) by the group's mean.
 func averageGroups(freq, v []float64) {
+	if len(freq) == 0 {
+		return
+	}
+	tol := degenerateTol * max(math.Abs(freq[0]), math.Abs(freq[len(freq)-1]))
 	for lo := 0; lo < len(freq); {
 		hi := lo + 1
-		for hi < len(freq) && freq[hi]-freq[hi-1] <= degenerateTolTHz {
+		for hi < len(freq) && freq[hi]-freq[hi-1] <= tol {
 			hi++
 		}
 		if hi-lo > 1 {
@@ -228,15 +234,7 @@ func checkOptions(m *physics.Model, opt Options, vs *physics.Violations) {
 		vs.Add("sites", "one scatterer per site is needed: %d for %d sites", len(opt.Sites), m.Sites())
 	}
 	for i, st := range opt.Sites {
-		for _, v := range append(append([]float64{st.CoherentFm, st.IncoherentBarn, st.FormFactor.C}, st.FormFactor.A[:]...), st.FormFactor.B[:]...) {
-			if !(math.Abs(v) <= 1e6) {
-				vs.Add(fmt.Sprintf("sites[%d]", i), "every length, cross-section and form-factor coefficient must be finite and within ±1e6, got %v", v)
-				break
-			}
-		}
-		if st.IncoherentBarn < 0 {
-			vs.Add(fmt.Sprintf("sites[%d].incoherent_barn", i), "must be ≥ 0, got %v", st.IncoherentBarn)
-		}
+		checkScatterer(i, st, vs)
 	}
 	if !(opt.TempK >= 0 && opt.TempK <= 1e6) {
 		vs.Add("temperature_k", "must be a temperature in [0, 1e+06] K, got %v", opt.TempK)
@@ -254,5 +252,38 @@ func prepare(ctx context.Context, m *physics.Model, opt Options) (*setup, *DWRes
 	if err != nil {
 		return nil, nil, err
 	}
+	if err := checkDW(dw, opt.TempK); err != nil {
+		return nil, nil, err
+	}
 	return newSetup(m, opt, dw.U), dw, nil
+}
+
+// Bounds of what a site scatters with: a length, cross-section or
+// form-factor coefficient is 0 or of a magnitude in [MinScatter,
+// MaxScatter] (fm, barn, electrons, Å²). Real lengths are 0.1–20 fm; below
+// 1e-6 fm a square of the amplitudes nears the smallest floating-point
+// numbers and loses its precision, or underflows to a silent 0.
+const (
+	MinScatter = 1e-6
+	MaxScatter = 1e6
+)
+
+// checkScatterer adds the violations of site i's scatterer.
+func checkScatterer(i int, st SiteScatterer, vs *physics.Violations) {
+	for _, v := range append(append([]float64{st.CoherentFm, st.IncoherentBarn, st.FormFactor.C}, st.FormFactor.A[:]...), st.FormFactor.B[:]...) {
+		if a := math.Abs(v); !(v == 0 || (a >= MinScatter && a <= MaxScatter)) {
+			vs.Add(fmt.Sprintf("sites[%d]", i), "every length, cross-section and form-factor coefficient must be 0 or of a size within [%g, %g], got %v", MinScatter, MaxScatter, v)
+			break
+		}
+	}
+	if st.IncoherentBarn < 0 {
+		vs.Add(fmt.Sprintf("sites[%d].incoherent_barn", i), "must be ≥ 0, got %v", st.IncoherentBarn)
+	}
+	for k, b := range st.FormFactor.B {
+		if b < 0 {
+			// exp(−b·s²) with b < 0 grows without bound (to +Inf at large |Q|);
+			// the published parametrisations have b > 0.
+			vs.Add(fmt.Sprintf("sites[%d].form_factor.b_a2[%d]", i, k), "must be ≥ 0 Å² (a form factor falls with |Q|), got %v", b)
+		}
+	}
 }

@@ -131,6 +131,11 @@ func ComputePowder(ctx context.Context, m *physics.Model, po PowderOptions, opt 
 		return nil, fmt.Errorf("%w: %d imaginary modes met on the |Q| spheres (allow unstable models to leave them out)", thermo.ErrUnstable, res.Imaginary)
 	}
 	res.S = broadenQ(res.S, res.QInvA, opt.Resolution.QFWHM)
+	for i, row := range res.S {
+		if !allFinite(row) {
+			return nil, overflow(fmt.Sprintf("the powder row at |Q| = %g Å⁻¹", res.QInvA[i]), max(top, res.Energies[len(res.Energies)-1]*g.mevPer), opt.TempK)
+		}
+	}
 	return res, nil
 }
 

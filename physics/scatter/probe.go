@@ -84,6 +84,12 @@ const (
 	// MaxEnergy bounds |Min|, |Max|, Step and every FWHM in any unit
 	// (far above any phonon, low enough that no sum overflows).
 	MaxEnergy = 1e9
+	// MinEnergy bounds Step and every FWHM from below in any unit: far
+	// below any instrument's resolution, and far enough from the smallest
+	// floating-point numbers that a Gaussian's 1/σ and σ² neither overflow
+	// nor underflow. The window chosen from the modes is at least
+	// (DefaultAxisSamples − 1)·MinEnergy wide.
+	MinEnergy = 1e-12
 )
 
 // mevPer is how many meV one unit of u is (energy hν for THz and cm⁻¹).
@@ -154,8 +160,8 @@ func (r Resolution) checkFWHM(vs *physics.Violations, lo, hi float64) {
 		if e < lo || e > hi {
 			continue
 		}
-		if w := r.fwhmAt(e, lo, hi); !(w > 0) || w > MaxEnergy {
-			vs.Add("resolution.fwhm", "the FWHM must be positive over the energy window %v…%v; it is %v at E = %v", lo, hi, w, e)
+		if w := r.fwhmAt(e, lo, hi); !(w >= MinEnergy) || w > MaxEnergy {
+			vs.Add("resolution.fwhm", "the FWHM must be at least %g and at most %g over the energy window %v…%v; it is %v at E = %v", MinEnergy, MaxEnergy, lo, hi, w, e)
 			return
 		}
 	}

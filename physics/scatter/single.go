@@ -91,6 +91,9 @@ func ComputeSingle(ctx context.Context, m *physics.Model, qs []QSample, opt Opti
 		p := &res.Points[i]
 		p.S = make([]float64, g.n)
 		g.addLines(p.S, &p.Lines)
+		if !allFinite(p.S) || !allFinite(p.Lines.Creation) || !allFinite(p.Lines.Annihilation) {
+			return nil, overflow(fmt.Sprintf("S(Q, E) at Q = %v (fractional)", p.Q), top, opt.TempK)
+		}
 	}
 	return res, nil
 }

@@ -29,6 +29,9 @@ type grid struct {
 // "energy" and "resolution".
 func resolveAxis(a Axis, res Resolution, topMeV float64, vs *physics.Violations) grid {
 	mp := mevPer(a.Unit)
+	if !(res.QFWHM == 0 || (res.QFWHM >= MinEnergy && res.QFWHM <= 1e3)) {
+		vs.Add("resolution.q_fwhm_inv_a", "must be 0 (none) or within [%g, 1000] Å⁻¹, got %v", MinEnergy, res.QFWHM)
+	}
 	switch a.Unit {
 	case physics.MeV, physics.THz, physics.CM1:
 	default:
@@ -40,6 +43,7 @@ func resolveAxis(a Axis, res Resolution, topMeV float64, vs *physics.Violations)
 		if !(a.Max > 0) {
 			a.Max = 1
 		}
+		a.Max = max(a.Max, (DefaultAxisSamples-1)*MinEnergy)
 	}
 	if a.Step == 0 {
 		a.Step = (a.Max - a.Min) / (DefaultAxisSamples - 1)
@@ -61,8 +65,8 @@ func resolveAxis(a Axis, res Resolution, topMeV float64, vs *physics.Violations)
 	case a.Max < a.Min:
 		vs.Add("energy.max", "must be ≥ min (%v), got %v", a.Min, a.Max)
 		return grid{}
-	case !(a.Step > 0):
-		vs.Add("energy.step", "must be > 0 (0 for the default), got %v", a.Step)
+	case !(a.Step >= MinEnergy):
+		vs.Add("energy.step", "must be at least %g (0 for %d steps across the window), got %v", MinEnergy, DefaultAxisSamples-1, a.Step)
 		return grid{}
 	}
 	n := a.samples()
@@ -77,9 +81,6 @@ func resolveAxis(a Axis, res Resolution, topMeV float64, vs *physics.Violations)
 		vs.Add("resolution.fwhm", "at most %d coefficients (a cubic in E), got %d", MaxFWHMTerms, len(res.FWHM))
 	} else if len(res.FWHM) > 0 {
 		res.checkFWHM(vs, a.Min, a.Max)
-	}
-	if !(res.QFWHM >= 0 && res.QFWHM <= 1e3) {
-		vs.Add("resolution.q_fwhm_inv_a", "must be ≥ 0 and ≤ 1000 Å⁻¹ (0: none), got %v", res.QFWHM)
 	}
 	if len(res.FWHM) == 0 {
 		res.FWHM = []float64{2 * a.Step}

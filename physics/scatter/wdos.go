@@ -87,5 +87,8 @@ func ComputeWeightedDOS(ctx context.Context, m *physics.Model, grid mesh.GridSpe
 			res.Normalized[i] = v / mean
 		}
 	}
+	if !allFinite(res.Weighted) || !allFinite(res.Normalized) {
+		return nil, overflow("the weighted DOS", top*physics.MeV.PerTHz(), opt.TempK)
+	}
 	return res, nil
 }
