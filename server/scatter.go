@@ -253,25 +253,31 @@ func (s *Service) scatterTarget(m *physics.Model, req *modegridv1.ComputeScatter
 		}
 	case *modegridv1.ComputeScatteringRequest_Powder:
 		p := t.Powder
-		job.powder = &scatter.PowderOptions{QMinInvA: p.GetQMinInvA(), QMaxInvA: p.GetQMaxInvA(), NQ: int(min(p.GetQPoints(), 1<<30)), Tolerance: p.GetTolerance(), MaxDirections: int(min(p.GetMaxDirections(), 1<<30))}
+		job.powder = &scatter.PowderOptions{QMinInvA: p.GetQMinInvA(), QMaxInvA: p.GetQMaxInvA(), NQ: int(min(p.GetQPoints(), 1<<30)), Tolerance: p.GetTolerance(), MaxDirections: int(min(p.GetMaxDirections(), 1<<30)), CoherentOnly: p.GetCoherentOnly()}
 	case *modegridv1.ComputeScatteringRequest_WeightedDos:
-		var spec mesh.GridSpec
-		for k, n := range t.WeightedDos.GetGrid().GetMesh() {
-			if k < 3 {
-				spec.Mesh[k] = int(min(n, 1<<22))
-			}
-		}
-		spec.Shifted = t.WeightedDos.GetGrid().GetShifted()
-		g, err := physics.NormalizeGrid(spec, m.Dim())
-		if err != nil {
-			vs.AddErr("weighted_dos.grid", "weighted_dos.grid", err)
-			return
-		}
-		if g.Count() > s.cfg.MaxQPoints {
-			vs.Add("weighted_dos.grid.mesh", "%d q-points, over this server's cap max-qpoints=%d", g.Count(), s.cfg.MaxQPoints)
-		}
-		job.dos = &g
+		job.dos = s.weightedDOSGrid(m, t.WeightedDos.GetGrid(), vs)
 	}
+}
+
+// weightedDOSGrid converts the grid of a weighted DOS (nil after a
+// violation).
+func (s *Service) weightedDOSGrid(m *physics.Model, grid *modegridv1.MonkhorstPackGrid, vs *violations) *mesh.GridSpec {
+	var spec mesh.GridSpec
+	for k, n := range grid.GetMesh() {
+		if k < 3 {
+			spec.Mesh[k] = int(min(n, 1<<22))
+		}
+	}
+	spec.Shifted = grid.GetShifted()
+	g, err := physics.NormalizeGrid(spec, m.Dim())
+	if err != nil {
+		vs.AddErr("weighted_dos.grid", "weighted_dos.grid", err)
+		return nil
+	}
+	if g.Count() > s.cfg.MaxQPoints {
+		vs.Add("weighted_dos.grid.mesh", "%d q-points, over this server's cap max-qpoints=%d", g.Count(), s.cfg.MaxQPoints)
+	}
+	return &g
 }
 
 // scatterEstimate is the cost of the job.
@@ -290,8 +296,13 @@ func (s *Service) scatterEstimate(ctx context.Context, e *modelEntry, job *scatt
 		if err != nil {
 			return estimate{}, err
 		}
-		c := scatter.PowderCost(size, dw, po.NQ, samples, maxDirs, order)
+		ax := job.opt.Axis
+		c := scatter.PowderCost(size, dw, scatter.PowderSize{Rows: po.NQ, E: samples, MaxDirections: maxDirs, GroupOrder: order,
+			DefaultAxis: ax.Min == 0 && ax.Max == 0, QResolution: job.opt.Resolution.QFWHM > 0})
 		c.Bytes += 2 * 8 * int64(po.NQ) * int64(samples)
+		if g, ok := scatter.IncoherentSize(e.m, job.opt.DebyeWaller, job.opt.Probe, po.CoherentOnly); ok {
+			c = c.Plus(scatter.IncoherentCost(g, po.NQ, samples, scatter.IncoherentBins(ax, job.opt.Resolution)))
+		}
 		return estimate{cost: c, field: "powder", change: "fewer |Q| samples (q_points), fewer directions (max_directions) or a coarser Debye–Waller grid"}, nil
 	case job.dos != nil:
 		c := scatter.WeightedDOSCost(s.gridSize(e, *job.dos), true, samples)
@@ -326,6 +337,12 @@ func runScatter(ctx context.Context, e *modelEntry, job *scatterJob) (*modegridv
 		}
 		out.Unit, out.Energies, out.Fwhm, dw = unitToProto(r.Unit), r.Energies, r.FWHM, r.DW
 		out.ImaginaryModes, out.PowderUnconvergedRows, out.PowderGroupOrder = uint32(r.Imaginary), uint32(r.Unconverged), uint32(r.GroupOrder)
+		out.PowderIncoherent = r.Incoherent
+		if r.Incoherent {
+			for k := 0; k < e.m.Dim(); k++ {
+				out.PowderIncoherentMesh = append(out.PowderIncoherentMesh, uint32(r.IncoherentMesh[k]))
+			}
+		}
 		for i, q := range r.QInvA {
 			out.Powder = append(out.Powder, &modegridv1.PowderRow{QInvA: q, S: r.S[i], Directions: uint32(r.Directions[i]), Change: r.Change[i]})
 		}

@@ -2,6 +2,7 @@ package server
 
 import (
 	"math"
+	"slices"
 	"strings"
 	"testing"
 
@@ -120,6 +121,29 @@ func TestScatteringPowderAndWeightedDOSOverGRPC(t *testing.T) {
 	}
 	if len(pw.GetPowder()) != 3 || len(pw.GetPowder()[0].GetS()) != 81 || pw.GetPowderGroupOrder() != 48 {
 		t.Errorf("powder: %d rows of %d, group order %d (want 3 rows of 81, the cubic group m-3m, which holds −1: 48)", len(pw.GetPowder()), len(pw.GetPowder()[0].GetS()), pw.GetPowderGroupOrder())
+	}
+	if !pw.GetPowderIncoherent() || !slices.Equal(pw.GetPowderIncoherentMesh(), []uint32{24, 24, 24}) {
+		t.Errorf("a neutron map holds the incoherent term by default: %v on %v", pw.GetPowderIncoherent(), pw.GetPowderIncoherentMesh())
+	}
+	// Coherent only: the incoherent term (Q's σ_inc = 2 barn) is what the
+	// two maps differ by, and it adds intensity.
+	co, err := ts.api.ComputeScattering(testContext(t), &modegridv1.ComputeScatteringRequest{
+		Model: inline(example(t, "rocksalt-like")), Scatterers: sc, TemperatureK: 100,
+		Target: &modegridv1.ComputeScatteringRequest_Powder{Powder: &modegridv1.PowderSpec{QMinInvA: 1, QMaxInvA: 3, QPoints: 3, MaxDirections: 4096, CoherentOnly: true}},
+		Energy: &modegridv1.EnergyAxis{Max: 40, Step: 0.5}, Resolution: &modegridv1.Resolution{Fwhm: []float64{1.5}, QFwhmInvA: 0.2},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var withInc, without float64
+	for i := range co.GetPowder() {
+		for k := range co.GetPowder()[i].GetS() {
+			withInc += pw.GetPowder()[i].GetS()[k]
+			without += co.GetPowder()[i].GetS()[k]
+		}
+	}
+	if co.GetPowderIncoherent() || !(withInc > without) {
+		t.Errorf("coherent only: incoherent %v; summed S %v with the incoherent term, %v without", co.GetPowderIncoherent(), withInc, without)
 	}
 	wd, err := ts.api.ComputeScattering(testContext(t), &modegridv1.ComputeScatteringRequest{
 		Model: inline(example(t, "rocksalt-like")), Scatterers: sc,

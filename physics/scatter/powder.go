@@ -23,6 +23,10 @@ type PowderOptions struct {
 	// MaxDirections caps the directions per |Q| (0: DefaultMaxDirections);
 	// a row that reaches it unconverged is reported in Unconverged.
 	MaxDirections int
+	// CoherentOnly leaves out the incoherent one-phonon term of a neutron
+	// powder map (addIncoherent), which is otherwise added: a measured map
+	// holds both. X-ray maps are coherent only.
+	CoherentOnly bool
 }
 
 // Powder defaults and bounds.
@@ -56,6 +60,11 @@ type PowderResult struct {
 	GroupOrder int
 	DW         *DWResult
 	Imaginary  int // imaginary modes met (AllowUnstable), over all directions
+	// Incoherent says whether S holds the incoherent one-phonon term
+	// (neutrons without CoherentOnly); IncoherentMesh is the grid of its
+	// projected DOS.
+	Incoherent     bool
+	IncoherentMesh [3]int
 }
 
 // ComputePowder returns the powder (orientational) average of the
@@ -98,37 +107,27 @@ func ComputePowder(ctx context.Context, m *physics.Model, po PowderOptions, opt 
 	}
 	res := &PowderResult{Unit: g.unit, Energies: g.energies(), FWHM: g.res.FWHM, QInvA: make([]float64, po.NQ),
 		S: make([][]float64, po.NQ), Directions: make([]int, po.NQ), Change: make([]float64, po.NQ), DW: dw}
-	imag := make([]int, po.NQ)
 	for i := range res.QInvA {
 		res.QInvA[i] = po.QMinInvA
 		if po.NQ > 1 {
 			res.QInvA[i] += (po.QMaxInvA - po.QMinInvA) * float64(i) / float64(po.NQ-1)
 		}
 	}
-	dom, order, err := powderDomain(ctx, m, opt.Sites)
-	if err != nil {
+	if err := st.powderRows(ctx, res, g, po); err != nil {
 		return nil, err
-	}
-	res.GroupOrder = order
-	err = parallel.For(ctx, po.NQ, 1, func(stop <-chan struct{}) func(int) bool {
-		w := st.newWork(stop)
-		return func(i int) bool {
-			row, n, ch, im, ok := w.powderRow(res.QInvA[i], g, po, dom)
-			res.S[i], res.Directions[i], res.Change[i], imag[i] = row, n, ch, im
-			return ok
-		}
-	})
-	if err != nil {
-		return nil, err
-	}
-	for i := range imag {
-		res.Imaginary += imag[i]
-		if res.Change[i] > po.Tolerance {
-			res.Unconverged++
-		}
 	}
 	if res.Imaginary > 0 && !opt.AllowUnstable {
 		return nil, fmt.Errorf("%w: %d imaginary modes met on the |Q| spheres (allow unstable models to leave them out)", thermo.ErrUnstable, res.Imaginary)
+	}
+	if opt.Probe == Neutron && !po.CoherentOnly {
+		dos, err := incoherentDOS(ctx, m, opt, g)
+		if err != nil {
+			return nil, err
+		}
+		for i, q := range res.QInvA {
+			st.addIncoherent(res.S[i], q, dos, g)
+		}
+		res.Incoherent, res.IncoherentMesh = true, opt.DebyeWaller.dwSpec(m.Dim()).Mesh
 	}
 	res.S = broadenQ(res.S, res.QInvA, opt.Resolution.QFWHM)
 	for i, row := range res.S {
@@ -137,6 +136,36 @@ func ComputePowder(ctx context.Context, m *physics.Model, po PowderOptions, opt 
 		}
 	}
 	return res, nil
+}
+
+// powderRows computes the coherent rows of res (its |Q| set) in parallel,
+// with their quadrature sizes, changes, the unconverged count and the
+// imaginary modes met.
+func (st *setup) powderRows(ctx context.Context, res *PowderResult, g grid, po PowderOptions) error {
+	dom, order, err := powderDomain(ctx, st.m, st.sites)
+	if err != nil {
+		return err
+	}
+	res.GroupOrder = order
+	imag := make([]int, len(res.QInvA))
+	err = parallel.For(ctx, len(res.QInvA), 1, func(stop <-chan struct{}) func(int) bool {
+		w := st.newWork(stop)
+		return func(i int) bool {
+			row, n, ch, im, ok := w.powderRow(res.QInvA[i], g, po, dom)
+			res.S[i], res.Directions[i], res.Change[i], imag[i] = row, n, ch, im
+			return ok
+		}
+	})
+	if err != nil {
+		return err
+	}
+	for i := range imag {
+		res.Imaginary += imag[i]
+		if res.Change[i] > po.Tolerance {
+			res.Unconverged++
+		}
+	}
+	return nil
 }
 
 func (po PowderOptions) resolved() PowderOptions {
@@ -220,13 +249,16 @@ func (d domain) contains(n [3]float64) bool {
 // imaginary modes met and false when stopped. Of the n points of the
 // spherical Fibonacci set only those in the domain are computed.
 func (w *lineWork) powderRow(qn float64, g grid, po PowderOptions, dom domain) ([]float64, int, float64, int, bool) {
-	var prev []float64
+	// Two rows, the quadrature of n and the one of n/2, swapped as n
+	// doubles.
+	row, prev := make([]float64, g.n), make([]float64, g.n)
+	havePrev := false
 	var lines Lines
 	lat := w.s.m.Lattice()
 	golden := math.Pi * (3 - math.Sqrt(5))
 	imag := 0
 	for n := MinDirections; ; n *= 2 {
-		row := make([]float64, g.n)
+		clear(row)
 		if qn == 0 {
 			return row, n, 0, 0, true
 		}
@@ -259,7 +291,7 @@ func (w *lineWork) powderRow(qn float64, g grid, po PowderOptions, dom domain) (
 				row[i] /= float64(kept)
 			}
 		}
-		if prev != nil && kept > 0 {
+		if havePrev && kept > 0 {
 			var d, t float64
 			for k := range row {
 				d += math.Abs(row[k] - prev[k])
@@ -274,9 +306,12 @@ func (w *lineWork) powderRow(qn float64, g grid, po PowderOptions, dom domain) (
 			}
 		}
 		if kept > 0 {
-			prev = row
+			row, prev, havePrev = prev, row, true
 		}
 		if 2*n > MaxPowderDirections {
+			if kept > 0 {
+				row = prev // the one just computed, after the swap
+			}
 			return row, n, 1, imag, true
 		}
 	}

@@ -3737,6 +3737,11 @@ type PowderSpec struct {
 	Tolerance float64 `protobuf:"fixed64,4,opt,name=tolerance,proto3" json:"tolerance,omitempty"`
 	// Directions per |Q| sphere at most; 0 means 2^20.
 	MaxDirections uint32 `protobuf:"varint,5,opt,name=max_directions,json=maxDirections,proto3" json:"max_directions,omitempty"`
+	// Leave out the incoherent one-phonon term, which a neutron map
+	// otherwise holds besides the coherent one (σ_inc/4π per site times its
+	// projected DOS on the Debye–Waller grid; see the response's
+	// powder_incoherent). X-ray maps are coherent only.
+	CoherentOnly  bool `protobuf:"varint,6,opt,name=coherent_only,json=coherentOnly,proto3" json:"coherent_only,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
 }
@@ -3804,6 +3809,13 @@ func (x *PowderSpec) GetMaxDirections() uint32 {
 		return x.MaxDirections
 	}
 	return 0
+}
+
+func (x *PowderSpec) GetCoherentOnly() bool {
+	if x != nil {
+		return x.CoherentOnly
+	}
+	return false
 }
 
 // WeightedDosSpec asks for the neutron-weighted DOS (incoherent
@@ -4611,8 +4623,13 @@ type ComputeScatteringResponse struct {
 	// Order of the rotation group (with −1) whose fundamental domain held
 	// the powder directions.
 	PowderGroupOrder uint32 `protobuf:"varint,16,opt,name=powder_group_order,json=powderGroupOrder,proto3" json:"powder_group_order,omitempty"`
-	unknownFields    protoimpl.UnknownFields
-	sizeCache        protoimpl.SizeCache
+	// Powder: true when S holds the incoherent one-phonon term besides the
+	// coherent one (neutrons, unless coherent_only).
+	PowderIncoherent bool `protobuf:"varint,17,opt,name=powder_incoherent,json=powderIncoherent,proto3" json:"powder_incoherent,omitempty"`
+	// Powder with the incoherent term: the grid of its projected DOS.
+	PowderIncoherentMesh []uint32 `protobuf:"varint,18,rep,packed,name=powder_incoherent_mesh,json=powderIncoherentMesh,proto3" json:"powder_incoherent_mesh,omitempty"`
+	unknownFields        protoimpl.UnknownFields
+	sizeCache            protoimpl.SizeCache
 }
 
 func (x *ComputeScatteringResponse) Reset() {
@@ -4755,6 +4772,20 @@ func (x *ComputeScatteringResponse) GetPowderGroupOrder() uint32 {
 		return x.PowderGroupOrder
 	}
 	return 0
+}
+
+func (x *ComputeScatteringResponse) GetPowderIncoherent() bool {
+	if x != nil {
+		return x.PowderIncoherent
+	}
+	return false
+}
+
+func (x *ComputeScatteringResponse) GetPowderIncoherentMesh() []uint32 {
+	if x != nil {
+		return x.PowderIncoherentMesh
+	}
+	return nil
 }
 
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
@@ -5038,14 +5069,15 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\bu_points\x18\b \x01(\rR\auPoints\x12\x19\n" +
 	"\bv_points\x18\t \x01(\rR\avPoints\"5\n" +
 	"\x05QList\x12,\n" +
-	"\x06points\x18\x01 \x03(\v2\x14.modegrid.v1.QVectorR\x06points\"\xaa\x01\n" +
+	"\x06points\x18\x01 \x03(\v2\x14.modegrid.v1.QVectorR\x06points\"\xcf\x01\n" +
 	"\n" +
 	"PowderSpec\x12\x1d\n" +
 	"\vq_min_inv_a\x18\x01 \x01(\x01R\bqMinInvA\x12\x1d\n" +
 	"\vq_max_inv_a\x18\x02 \x01(\x01R\bqMaxInvA\x12\x19\n" +
 	"\bq_points\x18\x03 \x01(\rR\aqPoints\x12\x1c\n" +
 	"\ttolerance\x18\x04 \x01(\x01R\ttolerance\x12%\n" +
-	"\x0emax_directions\x18\x05 \x01(\rR\rmaxDirections\"E\n" +
+	"\x0emax_directions\x18\x05 \x01(\rR\rmaxDirections\x12#\n" +
+	"\rcoherent_only\x18\x06 \x01(\bR\fcoherentOnly\"E\n" +
 	"\x0fWeightedDosSpec\x122\n" +
 	"\x04grid\x18\x01 \x01(\v2\x1e.modegrid.v1.MonkhorstPackGridR\x04grid\"t\n" +
 	"\n" +
@@ -5110,7 +5142,7 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"coherentFm\x12'\n" +
 	"\x0fincoherent_barn\x18\x04 \x01(\x01R\x0eincoherentBarn\x12\x16\n" +
 	"\x06source\x18\x05 \x01(\tR\x06source\x12\x11\n" +
-	"\x04u_a2\x18\x06 \x03(\x01R\x03uA2\"\xcc\x05\n" +
+	"\x04u_a2\x18\x06 \x03(\x01R\x03uA2\"\xaf\x06\n" +
 	"\x19ComputeScatteringResponse\x12\x1d\n" +
 	"\n" +
 	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
@@ -5131,7 +5163,9 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x11debye_waller_mesh\x18\r \x03(\rR\x0fdebyeWallerMesh\x12:\n" +
 	"\x19debye_waller_extrapolated\x18\x0e \x01(\bR\x17debyeWallerExtrapolated\x126\n" +
 	"\x17powder_unconverged_rows\x18\x0f \x01(\rR\x15powderUnconvergedRows\x12,\n" +
-	"\x12powder_group_order\x18\x10 \x01(\rR\x10powderGroupOrder*\x95\x01\n" +
+	"\x12powder_group_order\x18\x10 \x01(\rR\x10powderGroupOrder\x12+\n" +
+	"\x11powder_incoherent\x18\x11 \x01(\bR\x10powderIncoherent\x124\n" +
+	"\x16powder_incoherent_mesh\x18\x12 \x03(\rR\x14powderIncoherentMesh*\x95\x01\n" +
 	"\rFrequencyUnit\x12\x1e\n" +
 	"\x1aFREQUENCY_UNIT_UNSPECIFIED\x10\x00\x12\x16\n" +
 	"\x12FREQUENCY_UNIT_THZ\x10\x01\x12\x16\n" +
