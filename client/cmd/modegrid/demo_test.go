@@ -14,7 +14,8 @@ import (
 // TestDemo runs the demo end to end on every built-in example (small grid
 // and SVG figures to stay fast under -race; TestDemoPNG covers the default
 // PNG): exit 0, a summary row per example, and per example four CSV files
-// with their documented headers and three figures that parse.
+// with their documented headers and three figures that parse; for the
+// rock-salt-like example besides, its scattering lines and map.
 func TestDemo(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "out")
 	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "6", "--plot-format", "svg")
@@ -48,14 +49,27 @@ func TestDemo(t *testing.T) {
 			}
 		}
 	}
+	// The rock-salt-like example adds its neutron scattering map and the
+	// lines it shows.
+	b, err := os.ReadFile(filepath.Join(dir, demoScatterExample+"-scatter-lines.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if first, _, _ := strings.Cut(string(b), "\n"); first != "distance_invA,label,q1,q2,q3,qx_invA,qy_invA,qz_invA,h,k,l,mode,energy_mev,creation_barn_per_sr,annihilation_barn_per_sr" {
+		t.Errorf("scatter lines header %q", first)
+	}
+	if _, _, paths, text := svgStats(t, filepath.Join(dir, demoScatterExample+"-scatter.svg")); paths < 10 ||
+		!strings.Contains(text, "S(Q, E) (barn/(sr·meV) per cell)") || !strings.Contains(text, "222") {
+		t.Errorf("scatter map: %d paths, text %q", paths, text)
+	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if want := 7 * len(examples.Names()); len(entries) != want {
+	if want := 7*len(examples.Names()) + 2; len(entries) != want {
 		t.Errorf("demo wrote %d files; want %d", len(entries), want)
 	}
-	if !strings.Contains(out, "wrote 35 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
+	if !strings.Contains(out, "wrote 37 files (CSV tables, SVG figures)") || !strings.Contains(out, mustAbs(t, dir)) {
 		t.Errorf("summary does not name the folder and file count:\n%s", out)
 	}
 }

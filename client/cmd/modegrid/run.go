@@ -56,6 +56,9 @@ var commands = []struct {
 	{"dos", "phonon density of states, total and per site", cmdDOS},
 	{"thermal", "harmonic heat capacity, entropy, free and internal energy, Debye temperature", cmdThermal},
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
+	{"scatter", "one-phonon S(Q, E) of a single crystal along a path, at Q points or on a plane (neutrons, X-rays)", cmdScatter},
+	{"powder", "powder-averaged S(|Q|, E) map, coherent and incoherent", cmdPowder},
+	{"weighted-dos", "neutron-weighted density of states (incoherent approximation)", cmdWeightedDOS},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -63,16 +66,16 @@ func usageText() string {
 	var b strings.Builder
 	b.WriteString("usage: modegrid <command> [flags]     (modegrid <command> -h for its flags)\n\ncommands:\n")
 	for _, c := range commands {
-		fmt.Fprintf(&b, "  %-8s %s\n", c.name, c.summary)
+		fmt.Fprintf(&b, "  %-12s %s\n", c.name, c.summary)
 	}
 	b.WriteString(`
 common flags:
   -m, --model FILE   model file (protobuf JSON of modegrid.v1.Crystal; see README)
   --server ADDR      modegridd address; absent: an embedded server in this process
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
-  --unit U           thz (default), mev or cm-1
+  --unit U           thz (default; mev for scatter, powder, weighted-dos), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, scatter, powder, weighted-dos)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -99,7 +102,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, shape, scatter, powder, weighted-dos, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and
