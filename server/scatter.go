@@ -234,29 +234,35 @@ func (s *Service) scatterTarget(m *physics.Model, req *modegridv1.ComputeScatter
 		}
 		job.qs = scatter.SamplePath(m, corners, n)
 	case *modegridv1.ComputeScatteringRequest_Slice:
-		sl := t.Slice
-		nu, nv := int(sl.GetUPoints()), int(sl.GetVPoints())
-		if nu < 1 || nv < 1 || nu*nv > maxQ {
-			vs.Add("slice", "u_points and v_points must be ≥ 1 with at most %d points in all, got %d × %d", maxQ, nu, nv)
-			return
-		}
-		spec := scatter.Slice{Origin: vec(sl.GetOrigin(), "slice.origin"), U: vec(sl.GetUVector(), "slice.u_vector"), V: vec(sl.GetVVector(), "slice.v_vector"),
-			U0: sl.GetUMin(), U1: sl.GetUMax(), V0: sl.GetVMin(), V1: sl.GetVMax(), NU: nu, NV: nv}
-		job.qs = spec.Samples()
-		for i, q := range job.qs {
-			if vs.Len() > 0 {
-				break
-			}
-			if physics.ValidateQPoints(m.Dim(), []mesh.QPoint{{Q: q.Q}}, "q") != nil {
-				vs.Add("slice", "point %d of the slice, Q = %v (fractional), is outside ±%g", i, q.Q, physics.MaxQ)
-			}
-		}
+		job.qs = sliceSamples(m, t.Slice, maxQ, vec, vs)
 	case *modegridv1.ComputeScatteringRequest_Powder:
 		p := t.Powder
 		job.powder = &scatter.PowderOptions{QMinInvA: p.GetQMinInvA(), QMaxInvA: p.GetQMaxInvA(), NQ: int(min(p.GetQPoints(), 1<<30)), Tolerance: p.GetTolerance(), MaxDirections: int(min(p.GetMaxDirections(), 1<<30)), CoherentOnly: p.GetCoherentOnly()}
 	case *modegridv1.ComputeScatteringRequest_WeightedDos:
 		job.dos = s.weightedDOSGrid(m, t.WeightedDos.GetGrid(), vs)
 	}
+}
+
+// sliceSamples converts a slice of Q to its points (nil after a
+// violation); vec converts one vector of the request's frame.
+func sliceSamples(m *physics.Model, sl *modegridv1.QSlice, maxQ int, vec func(*modegridv1.QVector, string) [3]float64, vs *violations) []scatter.QSample {
+	nu, nv := int(sl.GetUPoints()), int(sl.GetVPoints())
+	if nu < 1 || nv < 1 || nu*nv > maxQ {
+		vs.Add("slice", "u_points and v_points must be ≥ 1 with at most %d points in all, got %d × %d", maxQ, nu, nv)
+		return nil
+	}
+	spec := scatter.Slice{Origin: vec(sl.GetOrigin(), "slice.origin"), U: vec(sl.GetUVector(), "slice.u_vector"), V: vec(sl.GetVVector(), "slice.v_vector"),
+		U0: sl.GetUMin(), U1: sl.GetUMax(), V0: sl.GetVMin(), V1: sl.GetVMax(), NU: nu, NV: nv}
+	qs := spec.Samples()
+	for i, q := range qs {
+		if vs.Len() > 0 {
+			break
+		}
+		if physics.ValidateQPoints(m.Dim(), []mesh.QPoint{{Q: q.Q}}, "q") != nil {
+			vs.Add("slice", "point %d of the slice, Q = %v (fractional), is outside ±%g", i, q.Q, physics.MaxQ)
+		}
+	}
+	return qs
 }
 
 // weightedDOSGrid converts the grid of a weighted DOS (nil after a
