@@ -51,6 +51,9 @@ func (s *Service) computeScattering(ctx context.Context, req *modegridv1.Compute
 	if req.GetTarget() == nil {
 		vs.Add("q_list", "say what to compute: one of q_list, path, slice, powder or weighted_dos")
 	}
+	if s.precheckScatter(&vs, req) {
+		return nil, vs.Err() // refused from the request alone, before compiling
+	}
 	e, err := s.resolve(ctx, req.GetModel(), &vs)
 	if err != nil {
 		return nil, err
@@ -317,6 +320,98 @@ func (s *Service) scatterEstimate(ctx context.Context, e *modelEntry, job *scatt
 	c := scatter.SingleCost(size, dw, len(job.qs), samples)
 	c.Bytes += 2 * 8 * int64(len(job.qs)) * int64(samples)
 	return estimate{cost: c, field: targetName(req), change: "fewer Q points or energies, or a coarser Debye–Waller grid"}, nil
+}
+
+// precheckScatter is ComputeScattering's pre-compile check (precompile.go):
+// the compile's bound, then scatterLowerBound.
+func (s *Service) precheckScatter(vs *violations, req *modegridv1.ComputeScatteringRequest) bool {
+	return s.precheck(vs, req.GetModel(), func(r rawModel, vs *violations) {
+		if est, ok := scatterLowerBound(r, req, s.cfg.MaxQPoints); ok {
+			s.lowerBound(vs, est)
+		}
+	})
+}
+
+// scatterLowerBound is a lower bound of the request's cost from its message
+// alone: the model's size as rawModel reads it, every grid reduced by the
+// largest point group (rawModel.grid), the powder directions by the
+// largest group order, a path's samples at least n − corners; the same
+// estimators as scatterEstimate. False when a count is missing or past its
+// cap (the normal path reports it).
+func scatterLowerBound(r rawModel, req *modegridv1.ComputeScatteringRequest, maxQ int) (estimate, bool) {
+	d := r.size.Dim
+	dw := scatter.DWOptions{Off: req.GetDebyeWaller().GetOff()}
+	for k, n := range req.GetDebyeWaller().GetMesh() {
+		if k < 3 {
+			dw.Mesh[k] = int(min(n, 1024))
+		}
+	}
+	var dws []physics.GridSize
+	for _, g := range scatter.DWGrids(dw, d, req.GetTemperatureK()) {
+		dws = append(dws, r.grid(g))
+	}
+	ax := req.GetEnergy()
+	axis := scatter.Axis{Min: ax.GetMin(), Max: ax.GetMax(), Step: ax.GetStep()}
+	res := scatter.Resolution{FWHM: req.GetResolution().GetFwhm(), QFWHM: req.GetResolution().GetQFwhmInvA()}
+	samples := axisSamples(axis)
+	one := r.grid(mesh.GridSpec{Mesh: [3]int{1, 1, 1}})
+	n := 0
+	switch t := req.GetTarget().(type) {
+	case *modegridv1.ComputeScatteringRequest_Powder:
+		return powderLowerBound(r, req, t.Powder, dw, dws, axis, res)
+	case *modegridv1.ComputeScatteringRequest_WeightedDos:
+		var spec mesh.GridSpec
+		for k, m := range t.WeightedDos.GetGrid().GetMesh() {
+			if k < 3 {
+				spec.Mesh[k] = int(min(m, 1<<22))
+			}
+		}
+		g, err := physics.NormalizeGrid(spec, d)
+		if err != nil || g.Count() > maxQ {
+			return estimate{}, false
+		}
+		return estimate{cost: scatter.WeightedDOSCost(r.grid(g), true, samples), field: "weighted_dos.grid", change: "a smaller grid"}, true
+	case *modegridv1.ComputeScatteringRequest_Path:
+		n = int(t.Path.GetPoints())
+		if n == 0 {
+			n = physics.DefaultPathPoints
+		}
+		n = max(len(t.Path.GetCorners()), n-len(t.Path.GetCorners()))
+	case *modegridv1.ComputeScatteringRequest_QList:
+		n = len(t.QList.GetPoints())
+	case *modegridv1.ComputeScatteringRequest_Slice:
+		n = int(min(t.Slice.GetUPoints(), 1<<20)) * int(min(t.Slice.GetVPoints(), 1<<20))
+	}
+	if n < 1 || n > min(scatter.MaxQSamples, maxQ) {
+		return estimate{}, false
+	}
+	c := scatter.SingleCost(one, dws, n, samples)
+	c.Bytes += 2 * 8 * int64(n) * int64(samples)
+	return estimate{cost: c, field: targetName(req), change: "fewer Q points or energies, or a coarser Debye–Waller grid"}, true
+}
+
+// powderLowerBound is scatterLowerBound of a powder map, with every row
+// run to its direction cap spread over the largest group.
+func powderLowerBound(r rawModel, req *modegridv1.ComputeScatteringRequest, p *modegridv1.PowderSpec, dw scatter.DWOptions, dws []physics.GridSize,
+	axis scatter.Axis, res scatter.Resolution) (estimate, bool) {
+	rows, dirs, samples := int(p.GetQPoints()), int(p.GetMaxDirections()), axisSamples(axis)
+	if dirs == 0 {
+		dirs = scatter.DefaultMaxDirections
+	}
+	if rows < 1 || rows > scatter.MaxPowderQ || dirs > scatter.MaxPowderDirections {
+		return estimate{}, false
+	}
+	c := scatter.PowderCost(r.grid(mesh.GridSpec{Mesh: [3]int{1, 1, 1}}), dws, scatter.PowderSize{Rows: rows, E: samples, MaxDirections: dirs,
+		GroupOrder: scatter.MaxGroupOrder, DefaultAxis: axis.Min == 0 && axis.Max == 0, QResolution: res.QFWHM > 0})
+	c.Bytes += 2 * 8 * int64(rows) * int64(samples)
+	probe := scatter.Neutron
+	if req.GetProbe() == modegridv1.Probe_PROBE_XRAY {
+		probe = scatter.XRay
+	}
+	if g, ok := scatter.IncoherentGrid(dw, r.size.Dim, probe, p.GetCoherentOnly()); ok {
+		c = c.Plus(scatter.IncoherentCost(r.grid(g), rows, samples, scatter.IncoherentBins(axis, res)))
+	}
+	return estimate{cost: c, field: "powder", change: "fewer |Q| samples (q_points), fewer directions (max_directions) or a coarser Debye–Waller grid"}, true
 }
 
 // axisSamples is the number of energies the axis will have (the default's

@@ -1,6 +1,7 @@
 package server
 
 import (
+	"context"
 	"math"
 	"slices"
 	"strings"
@@ -10,6 +11,7 @@ import (
 	"google.golang.org/grpc/status"
 	"google.golang.org/protobuf/proto"
 
+	"github.com/materials-lab/modegrid/physics"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -199,5 +201,106 @@ func TestScatteringValidationOverGRPC(t *testing.T) {
 	})
 	if _, ok := badFields(t, err)["energy.max"]; !ok {
 		t.Errorf("energy.max not refused: %v", err)
+	}
+}
+
+// TestScatteringPrecompileRefusesBombs: a request whose lower bound from
+// its message alone (scatterLowerBound) exceeds the memory budget is
+// refused before its model is compiled: no computation counted.
+func TestScatteringPrecompileRefusesBombs(t *testing.T) {
+	ts := startServer(t, Config{MemoryBudget: 1868 << 20})
+	m := []*modegridv1.Scatterer{byLabel("M", 5)}
+	tests := []struct {
+		name, field string
+		req         *modegridv1.ComputeScatteringRequest
+	}{
+		{"512 sites, powder map with the default Debye–Waller grid", "powder", &modegridv1.ComputeScatteringRequest{Model: inline(cubicSupercell(8)), Scatterers: m,
+			Target: &modegridv1.ComputeScatteringRequest_Powder{Powder: &modegridv1.PowderSpec{QMinInvA: 1, QMaxInvA: 2, QPoints: 2}}}},
+		{"64 sites, weighted DOS on a 96³ grid", "weighted_dos.grid", &modegridv1.ComputeScatteringRequest{Model: inline(cubicSupercell(4)), Scatterers: m,
+			Target: &modegridv1.ComputeScatteringRequest_WeightedDos{WeightedDos: &modegridv1.WeightedDosSpec{Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{96, 96, 96}}}}}},
+		{"216 sites, a path with the default Debye–Waller grid", "path", &modegridv1.ComputeScatteringRequest{Model: inline(cubicSupercell(6)), Scatterers: m, TemperatureK: 300,
+			Target: &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Corners: []*modegridv1.QPathCorner{{Q: &modegridv1.QVector{Q1: 1}}, {Q: &modegridv1.QVector{Q1: 2}}}}}}},
+	}
+	reg := ts.srv.Registry()
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			work0 := metricSum(t, reg, "modegrid_computations_total")
+			_, err := ts.api.ComputeScattering(testContext(t), tt.req)
+			if status.Code(err) != codes.InvalidArgument {
+				t.Fatalf("got %v; want INVALID_ARGUMENT", err)
+			}
+			if d := badFields(t, err)[tt.field]; !strings.Contains(d, "estimated peak memory at least") {
+				t.Errorf("%s: %q", tt.field, d)
+			}
+			if w := metricSum(t, reg, "modegrid_computations_total"); w != work0 {
+				t.Errorf("computations (compile included) went from %v to %v: work started", work0, w)
+			}
+		})
+	}
+}
+
+// TestScatteringBoundIsBelowTheEstimate: the pre-compile bound never
+// exceeds the estimate made after the compile, memory or work, for every
+// kind of target, on the examples and two supercells.
+func TestScatteringBoundIsBelowTheEstimate(t *testing.T) {
+	svc := NewService()
+	crystals := []*modegridv1.Crystal{cubicSupercell(2), cubicSupercell(3), example(t, "fcc"), example(t, "rocksalt-like")}
+	path := &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Points: 40, Corners: []*modegridv1.QPathCorner{
+		{Q: &modegridv1.QVector{Q1: 1}}, {Q: &modegridv1.QVector{Q1: 1.5}}, {Q: &modegridv1.QVector{Q1: 1.5, Q2: 0.7}}}}}
+	targets := map[string]func() *modegridv1.ComputeScatteringRequest{
+		"path": func() *modegridv1.ComputeScatteringRequest {
+			return &modegridv1.ComputeScatteringRequest{Target: path, TemperatureK: 300}
+		},
+		"list": func() *modegridv1.ComputeScatteringRequest {
+			return &modegridv1.ComputeScatteringRequest{Target: &modegridv1.ComputeScatteringRequest_QList{QList: &modegridv1.QList{Points: []*modegridv1.QVector{{Q1: 0.3}, {Q2: 1.2}}}},
+				DebyeWaller: &modegridv1.DebyeWaller{Off: true}, Energy: &modegridv1.EnergyAxis{Max: 30, Step: 0.1}}
+		},
+		"slice": func() *modegridv1.ComputeScatteringRequest {
+			return &modegridv1.ComputeScatteringRequest{Target: &modegridv1.ComputeScatteringRequest_Slice{Slice: &modegridv1.QSlice{Origin: &modegridv1.QVector{}, UVector: &modegridv1.QVector{Q1: 1},
+				VVector: &modegridv1.QVector{Q2: 1}, UMax: 1, VMax: 1, UPoints: 7, VPoints: 5}}, DebyeWaller: &modegridv1.DebyeWaller{Mesh: []uint32{6, 6, 6}}}
+		},
+		"powder": func() *modegridv1.ComputeScatteringRequest {
+			return &modegridv1.ComputeScatteringRequest{Target: &modegridv1.ComputeScatteringRequest_Powder{Powder: &modegridv1.PowderSpec{QMinInvA: 1, QMaxInvA: 3, QPoints: 9}},
+				Resolution: &modegridv1.Resolution{QFwhmInvA: 0.1}, DebyeWaller: &modegridv1.DebyeWaller{Mesh: []uint32{4, 4, 4}}, TemperatureK: 100}
+		},
+		"weighted dos": func() *modegridv1.ComputeScatteringRequest {
+			return &modegridv1.ComputeScatteringRequest{Target: &modegridv1.ComputeScatteringRequest_WeightedDos{WeightedDos: &modegridv1.WeightedDosSpec{
+				Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{8, 8, 8}}}}}
+		},
+	}
+	for _, c := range crystals {
+		src := inline(c)
+		r, ok := svc.rawModelOf(src)
+		if !ok {
+			t.Fatalf("%s: not read", c.GetName())
+		}
+		e, err := compileEntry(context.Background(), src, nil, physics.Limits{})
+		if err != nil {
+			t.Fatalf("%s: %v", c.GetName(), err)
+		}
+		var sc []*modegridv1.Scatterer
+		for _, l := range slices.Compact(slices.Sorted(slices.Values(e.m.Labels()))) {
+			sc = append(sc, &modegridv1.Scatterer{Target: &modegridv1.Scatterer_Label{Label: l}, CoherentFm: proto.Float64(4), IncoherentBarn: proto.Float64(1)})
+		}
+		for name, mk := range targets {
+			req := mk()
+			req.Model, req.Scatterers = src, sc
+			var vs violations
+			job := svc.scatterJob(e.m, req, &vs)
+			if vs.Len() > 0 {
+				t.Fatalf("%s %s: %v", c.GetName(), name, vs.Err())
+			}
+			hi, err := svc.scatterEstimate(context.Background(), e, job, req)
+			if err != nil {
+				t.Fatal(err)
+			}
+			lo, ok := scatterLowerBound(r, req, svc.cfg.MaxQPoints)
+			if !ok {
+				t.Fatalf("%s %s: no bound", c.GetName(), name)
+			}
+			if lo.cost.Bytes > hi.cost.Bytes || lo.cost.Flops > hi.cost.Flops*(1+1e-12) || lo.field != hi.field {
+				t.Errorf("%s %s: bound %+v (%s) above the estimate %+v (%s)", c.GetName(), name, lo.cost, lo.field, hi.cost, hi.field)
+			}
+		}
 	}
 }

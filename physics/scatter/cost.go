@@ -6,6 +6,7 @@ import (
 	"unsafe"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/spectra"
 	"github.com/materials-lab/modegrid/physics/thermo"
 )
@@ -19,13 +20,24 @@ import (
 // DWSizes returns the grid sizes DebyeWaller uses for m under o (none when
 // Off; the half grid when it extrapolates).
 func DWSizes(m *physics.Model, o DWOptions, tempK float64) []physics.GridSize {
+	var out []physics.GridSize
+	for _, spec := range DWGrids(o, m.Dim(), tempK) {
+		out = append(out, m.GridSizeOf(spec, 0))
+	}
+	return out
+}
+
+// DWGrids returns the grids DebyeWaller uses for a dim-dimensional crystal
+// under o (none when Off; the half grid when it extrapolates); the first is
+// also the grid of a powder map's incoherent term.
+func DWGrids(o DWOptions, dim int, tempK float64) []mesh.GridSpec {
 	if o.Off {
 		return nil
 	}
-	spec := o.dwSpec(m.Dim())
-	out := []physics.GridSize{m.GridSizeOf(spec, 0)}
-	if h, ok := halfGrid(spec, m.Dim()); ok && tempK > 0 {
-		out = append(out, m.GridSizeOf(h, 0))
+	spec := o.dwSpec(dim)
+	out := []mesh.GridSpec{spec}
+	if h, ok := halfGrid(spec, dim); ok && tempK > 0 {
+		out = append(out, h)
 	}
 	return out
 }
@@ -78,10 +90,11 @@ func spreadFlops(n int) float64 { return 4 * float64(min(n, 4096)) }
 
 // setupBytes is what every computation's setup holds: the sites'
 // positions, masses and scatterers, the Debye–Waller result, the axis,
-// and the parallel loop's goroutines and closures (4 KiB: measured 1–4 KiB,
-// the most under the race detector).
+// and the parallel loop's goroutines and closures, with what the runtime
+// allocates beside them during a call (8 KiB: the smallest call measured
+// 25–31 KiB over repeated runs, this much apart).
 func setupBytes(s physics.GridSize, e int) int64 {
-	return 2*allocRound(96*int64(s.Sites)) + 2*allocRound(8*int64(e)) + 4096
+	return 2*allocRound(96*int64(s.Sites)) + 2*allocRound(8*int64(e)) + 8192
 }
 
 // workBytes is one worker of the Q loops: a point solver with
@@ -165,11 +178,26 @@ func IncoherentCost(g physics.GridSize, rows, e, bins int) physics.Cost {
 // IncoherentSize is the grid size of the incoherent term's DOS for m
 // under o, and false when the map has none (X-rays, or coherent only).
 func IncoherentSize(m *physics.Model, o DWOptions, probe Probe, coherentOnly bool) (physics.GridSize, bool) {
-	if probe != Neutron || coherentOnly {
+	spec, ok := IncoherentGrid(o, m.Dim(), probe, coherentOnly)
+	if !ok {
 		return physics.GridSize{}, false
 	}
-	return m.GridSizeOf(o.dwSpec(m.Dim()), 0), true
+	return m.GridSizeOf(spec, 0), true
 }
+
+// IncoherentGrid is the grid of the incoherent term's DOS (the
+// Debye–Waller grid of o, also when o is Off), and false when the map has
+// none.
+func IncoherentGrid(o DWOptions, dim int, probe Probe, coherentOnly bool) (mesh.GridSpec, bool) {
+	if probe != Neutron || coherentOnly {
+		return mesh.GridSpec{}, false
+	}
+	return o.dwSpec(dim), true
+}
+
+// MaxGroupOrder is the largest order PowderGroupOrder returns (m-3m with
+// −1: 48); PowderCost with it is a lower bound of the work.
+const MaxGroupOrder = 48
 
 // PowderGroupOrder is the order of the group whose fundamental domain
 // ComputePowder's directions fill (the point group, with −1, of the
