@@ -23,10 +23,10 @@ test: proto-check lint fuzz-short
 FUZZ_TARGETS := ./server:FuzzModelJSON ./server:FuzzCheckModel ./server:FuzzComputeModes \
   ./server:FuzzComputeDispersion ./server:FuzzComputeDos ./server:FuzzComputeThermal ./server:FuzzUploadModel \
   ./server:FuzzComputeGruneisen ./server:FuzzComputeQuasiHarmonic ./server:FuzzComputeConductivity \
-  ./server:FuzzFit ./server:FuzzComputeInfrared \
+  ./server:FuzzFit ./server:FuzzComputeInfrared ./server:FuzzComputeScattering \
   ./client/cmd/modegrid:FuzzParseQList ./client/cmd/modegrid:FuzzParseMesh \
   ./client/cmd/modegrid:FuzzParsePath ./client/cmd/modegrid:FuzzParseTemps \
-  ./client/cmd/modegrid:FuzzParseSamples
+  ./client/cmd/modegrid:FuzzParseSamples ./client/cmd/modegrid:FuzzParseScatterers
 FUZZTIME ?= 10m
 FUZZTIME_SHORT ?= 3s
 FUZZ_VMEM_KB ?= 8000000

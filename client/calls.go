@@ -103,6 +103,12 @@ func (c *Client) Infrared(ctx context.Context, req *modegridv1.ComputeInfraredRe
 	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeInfrared, c.affinity, collectOptions(opts))
 }
 
+// Scattering calls ComputeScattering (single-crystal S(Q, E), powder map
+// or neutron-weighted DOS).
+func (c *Client) Scattering(ctx context.Context, req *modegridv1.ComputeScatteringRequest, opts ...CallOption) (*modegridv1.ComputeScatteringResponse, error) {
+	return unary(ctx, c, req, modegridv1.ModegridServiceClient.ComputeScattering, c.affinity, collectOptions(opts))
+}
+
 // Modes calls ComputeModes and collects the whole stream into one response
 // (offset 0, every point in q order).
 func (c *Client) Modes(ctx context.Context, req *modegridv1.ComputeModesRequest, opts ...CallOption) (*modegridv1.ComputeModesResponse, error) {

@@ -334,8 +334,9 @@
 //     It uses the core's dynamical matrix, modes and long-wave forms
 //     (LongWaveForms, forms.go); its tests check its heat capacities
 //     against thermo's.
-//
-// Capabilities still to come each get a package of their own above the
-// core (DEVELOPERS.md, Architecture): scattering intensities
-// (physics/scatter).
+//   - physics/scatter — above thermo: neutron and X-ray one-phonon
+//     scattering S(Q, E) of single crystals and powders, Debye–Waller
+//     factors from thermo, the neutron-weighted DOS, a table of neutron
+//     scattering lengths; their cost (scatter/cost.go).
+
 package physics

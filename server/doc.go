@@ -103,7 +103,9 @@ package server
 //	                     request bytes that do not decode as the message (see codec.go: grpc-go
 //	                     alone answers those INTERNAL, before any interceptor)
 //	NOT_FOUND            model_hash not held by this server (resend the model inline, or upload it)
-//	FAILED_PRECONDITION  thermal properties of a model with imaginary modes without allow_unstable
+//	FAILED_PRECONDITION  thermal properties or scattering of a model with imaginary modes without
+//	                     allow_unstable; scattering of a model so soft that its intensities leave the
+//	                     range of floating-point numbers
 //	RESOURCE_EXHAUSTED   computation queue full or wait timed out; memory budget busy past the wait; message over max-msg-bytes;
 //	                     uploads over max-uploads; an uploaded model larger than the model cache (cache-bytes)
 //	DEADLINE_EXCEEDED    the client's deadline passed (the computation was stopped); an upload silent for
@@ -111,7 +113,8 @@ package server
 //	CANCELED             the client cancelled (the computation was stopped)
 //	UNAUTHENTICATED      bearer tokens configured and none or a wrong one sent
 //	UNAVAILABLE          the server is shutting down
-//	INTERNAL             a bug: a recovered panic or unexpected error, logged and counted
+//	INTERNAL             a bug: a recovered panic or unexpected error, logged and counted; a result
+//	                     holding a NaN or ±Inf (results.go), logged, neither sent nor cached
 //
 // # Connections
 //

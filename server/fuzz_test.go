@@ -398,6 +398,8 @@ func respFor(method string) proto.Message {
 		return &modegridv1.FitResponse{}
 	case modegridv1.ModegridService_ComputeInfrared_FullMethodName:
 		return &modegridv1.ComputeInfraredResponse{}
+	case modegridv1.ModegridService_ComputeScattering_FullMethodName:
+		return &modegridv1.ComputeScatteringResponse{}
 	}
 	panic("server fuzz: no response type for " + method)
 }
@@ -829,7 +831,8 @@ func corpusTargets(tb testing.TB) map[string][][]byte {
 		"FuzzCheckModel": checkSeeds(tb), "FuzzComputeModes": modesSeeds(tb), "FuzzComputeDispersion": dispersionSeeds(tb),
 		"FuzzComputeDos": dosSeeds(tb), "FuzzComputeThermal": thermalSeeds(tb), "FuzzComputeInfrared": infraredSeeds(tb),
 		"FuzzComputeGruneisen": gr, "FuzzComputeQuasiHarmonic": qh, "FuzzComputeConductivity": co,
-		"FuzzFit": fitSeeds(tb),
+		"FuzzFit":               fitSeeds(tb),
+		"FuzzComputeScattering": scatterSeeds(tb),
 	} {
 		for _, s := range seeds {
 			b, err := proto.MarshalOptions{Deterministic: true}.Marshal(s)
@@ -878,4 +881,45 @@ func TestFuzzCorpus(t *testing.T) {
 			}
 		}
 	}
+}
+
+func scatterSeeds(tb testing.TB) []proto.Message {
+	fcc := inline(example(tb, "fcc"))
+	rs := inline(example(tb, "rocksalt-like"))
+	m := []*modegridv1.Scatterer{{Target: &modegridv1.Scatterer_Label{Label: "M"}, CoherentFm: proto.Float64(5)}}
+	pq := []*modegridv1.Scatterer{{Target: &modegridv1.Scatterer_Label{Label: "P"}, CoherentFm: proto.Float64(3)}, {Target: &modegridv1.Scatterer_Site{Site: 1}, CoherentFm: proto.Float64(-2), IncoherentBarn: proto.Float64(1)}}
+	return []proto.Message{
+		&modegridv1.ComputeScatteringRequest{Model: fcc, Scatterers: m, TemperatureK: 100, Lines: true, DebyeWaller: &modegridv1.DebyeWaller{Mesh: []uint32{4, 4, 4}},
+			Target: &modegridv1.ComputeScatteringRequest_QList{QList: &modegridv1.QList{Points: []*modegridv1.QVector{{Q1: 1.2, Q2: 0.3}}}}},
+		&modegridv1.ComputeScatteringRequest{Model: rs, Scatterers: pq, Frame: modegridv1.QFrame_Q_FRAME_CONVENTIONAL, ConventionalA: 5.6, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
+			Target: &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Points: 9, Corners: []*modegridv1.QPathCorner{{Q: &modegridv1.QVector{Q1: 2}}, {Q: &modegridv1.QVector{Q1: 1, Q2: 1, Q3: 1}}}}},
+			Energy: &modegridv1.EnergyAxis{Min: -10, Max: 40, Step: 1}, Resolution: &modegridv1.Resolution{Fwhm: []float64{1, 0.02}}},
+		&modegridv1.ComputeScatteringRequest{Model: rs, Scatterers: pq, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
+			Target: &modegridv1.ComputeScatteringRequest_Powder{Powder: &modegridv1.PowderSpec{QMinInvA: 1, QMaxInvA: 2, QPoints: 2, MaxDirections: 256}}},
+		&modegridv1.ComputeScatteringRequest{Model: rs, Scatterers: pq,
+			Target: &modegridv1.ComputeScatteringRequest_WeightedDos{WeightedDos: &modegridv1.WeightedDosSpec{Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{4, 4, 4}}}}},
+		&modegridv1.ComputeScatteringRequest{Model: fcc, Probe: modegridv1.Probe_PROBE_XRAY, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
+			Scatterers: []*modegridv1.Scatterer{{Target: &modegridv1.Scatterer_Label{Label: "M"}, FormFactor: &modegridv1.XrayFormFactor{A: []float64{10, 5}, BA2: []float64{2, 20}, C: 1}}},
+			Target:     &modegridv1.ComputeScatteringRequest_Slice{Slice: &modegridv1.QSlice{Origin: &modegridv1.QVector{}, UVector: &modegridv1.QVector{Q1: 1}, VVector: &modegridv1.QVector{Q2: 1}, UMax: 1, VMax: 1, UPoints: 3, VPoints: 2}},
+			Energy:     &modegridv1.EnergyAxis{Min: 10, Max: 10, Step: 1}},
+	}
+}
+
+func FuzzComputeScattering(f *testing.F) {
+	fuzzRPC(f, rpcTarget{
+		method: modegridv1.ModegridService_ComputeScattering_FullMethodName,
+		req:    func() proto.Message { return &modegridv1.ComputeScatteringRequest{} },
+		check: func(fc fuzzCase, rs []proto.Message) {
+			r := rs[0].(*modegridv1.ComputeScatteringResponse)
+			fc.finite("energies", r.GetEnergies()...)
+			fc.finite("weighted dos", append(r.GetWeightedDos(), r.GetWeightedDosNormalized()...)...)
+			for _, p := range r.GetPoints() {
+				fc.finite("S(Q,E)", append(append(p.GetS(), p.GetCreation()...), p.GetAnnihilation()...)...)
+			}
+			for _, p := range r.GetPowder() {
+				fc.finite("powder row", p.GetS()...)
+			}
+		},
+		allowed: []codes.Code{codes.NotFound, codes.FailedPrecondition},
+	})
 }

@@ -24,10 +24,10 @@ var latencyBuckets = []float64{
 
 // Computation kinds: the values of the "kind" label of the computation
 // metrics. A fixed, small set.
-var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindFit, kindInfrared}
+var computeKinds = []string{kindCompile, kindCheck, kindGrid, kindModes, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindFit, kindInfrared, kindScatter}
 
 // Cache kinds: the values of the "kind" label of the cache metrics.
-var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindInfrared}
+var cacheKinds = []string{kindModel, kindInline, kindCheck, kindGrid, kindDispersion, kindDOS, kindThermal, kindGruneisen, kindQHA, kindConductivity, kindInfrared, kindScatter}
 
 const (
 	kindCompile    = "compile"
@@ -46,6 +46,7 @@ const (
 	kindConductivity = "conductivity"
 	kindFit          = "fit"
 	kindInfrared     = "infrared"
+	kindScatter      = "scatter"
 )
 
 // metrics are the server's Prometheus metrics, all registered on one

@@ -137,6 +137,12 @@ func cachedResult[M proto.Message](ctx context.Context, s *Service, kind, hash, 
 			return nil, 0, status.Errorf(codes.ResourceExhausted,
 				"the response would be %d bytes, over this server's cap max-msg-bytes=%d: ask for fewer samples, temperatures or sites", n, s.cfg.MaxMsgBytes)
 		}
+		if at := nonFinite(m.ProtoReflect(), ""); at != "" {
+			// The engine refuses what overflows before this; a number that
+			// still is not finite is a bug, kept from the client and the cache.
+			s.log.Error("non-finite number in a result", "kind", kind, "model", hash, "params", params, "field", at)
+			return nil, 0, status.Errorf(codes.Internal, "internal error: the result held a number that is not finite at %s; nothing was sent (logged on the server)", at)
+		}
 		return m, resultBytes(m), nil
 	})
 	noteCache(ctx, src.String())

@@ -222,6 +222,14 @@ func accumulateDOS(ctx context.Context, m *physics.Model, g *physics.GridModes, 
 	if opt.Method != Tetrahedron {
 		return modeAccumulate(ctx, g, opt.Method, scale, width, grid, opt.PerSite, hasCut, cut)
 	}
+	// The simplex counts are ratios of products of frequency differences.
+	// Scaled by a power of two (exact in binary floating point), the
+	// frequencies, the abscissae and the cut give the same counts to the
+	// bit, with the abscissae's spacing near 1: a product of three
+	// differences of modes near 1e-120 THz no longer underflows to 0 (0/0,
+	// or 1/0 times a count).
+	pow2 := math.Ldexp(1, -math.Ilogb(grid.dx))
+	scale, grid, cut = scale*pow2, grid.scaled(pow2), cut*pow2
 	set := mesh.GridSimplices(m.Reciprocal(), g.Spec.Mesh, m.Dim())
 	if opt.PerSite {
 		// Projections need every simplex (their weights differ between

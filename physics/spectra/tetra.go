@@ -232,6 +232,11 @@ func newAnchoredCumGrid(anchor, dx float64, a, n int) cumGrid {
 	return cumGrid{x0: anchor - float64(a)*dx, dx: dx, n: n, inv: 1 / dx, anchor: anchor, a: float64(a)}
 }
 
+// scaled is the grid with every abscissa times p, a power of two (exact).
+func (s cumGrid) scaled(p float64) cumGrid {
+	return cumGrid{x0: s.x0 * p, dx: s.dx * p, n: s.n, inv: s.inv / p, anchor: s.anchor * p, a: s.a}
+}
+
 func (s cumGrid) at(j int) float64 { return s.anchor + (float64(j)-s.a)*s.dx }
 
 // from is the smallest j with x_j ≥ e, in [0, n]. (Integer truncation

@@ -19,8 +19,10 @@ import (
 const demoSummary = `Runs the main job on the built-in example crystals (invented models of a
 chain, a two-site chain, a square net, an fcc crystal, a rock-salt-like
 crystal and a polar one with Born charges): check, the dispersion along a
-path, the DOS per site and the thermal properties, and for the polar one
-its infrared response (ε(ω) and the reflectivity along x, in cm⁻¹); then
+path, the DOS per site and the thermal properties, for the polar one its
+infrared response (ε(ω) and the reflectivity along x, in cm⁻¹) and for
+the rock-salt-like crystal the neutron scattering map S(Q, E) along a path
+through four zones; then
 the rock-salt-like crystal's thermal expansion and its thermal
 conductivity for three grain sizes (volumes, energies and scattering
 constants invented); then a fit of the rock-salt-like crystal's four shell
@@ -47,7 +49,7 @@ func cmdDemo(args []string, e *env) error {
 	conn.register(fs)
 	dir := fs.String("dir", "demo-out", "folder for the CSV tables and figures (created if needed)")
 	kind := fs.String("plot-format", "png", "figure format: png or svg")
-	grid := fs.Uint("grid", 0, "grid divisions per direction for DOS and thermal (default: 512 in 1D, 64 in 2D, 24 in 3D)")
+	grid := fs.Uint("grid", 0, "grid divisions per direction for DOS, thermal and Debye–Waller factors (default: 512 in 1D, 64 in 2D, 24 in 3D)")
 	only := fs.String("examples", "", "comma-separated example names (default: all)")
 	if err := parse(fs, args, e.stderr, demoSummary); err != nil {
 		return err
@@ -190,6 +192,12 @@ func demoOne(ctx context.Context, cl *client.Client, e *env, name, dir, kind str
 		}
 		figures++
 	}
+	if name == demoScatterExample {
+		if err := st.scatterMap(ext, kind, grid, title); err != nil {
+			return row, st.files, err
+		}
+		figures++
+	}
 	return row, st.files + figures, nil
 }
 
@@ -207,6 +215,46 @@ func (st *demoStep) infrared() (*modegridv1.ComputeInfraredResponse, error) {
 		return nil, err
 	}
 	return ir, nil
+}
+
+// demoScatterExample is the example whose neutron scattering map the demo
+// draws.
+const demoScatterExample = "rocksalt-like"
+
+// scatterMap computes the neutron S(Q, E) of the rock-salt-like example at
+// 300 K along a path through the zones of (200), (300), (311) and (222)
+// (conventional cube, a = 5.6 Å), with invented lengths b_P = 3 fm, b_Q =
+// 6 fm and σ_inc,Q = 2 barn and a resolution of 1 meV FWHM, and writes
+// -scatter-lines.csv (each mode's energy and line weights) and the map
+// with the branches over it. grid, when not 0, is the Debye–Waller grid.
+func (st *demoStep) scatterMap(ext, kind string, grid uint32, title string) error {
+	sc, err := parseScatterers(scattererFlags{b: "P=3;Q=6", sigmaInc: "Q=2"})
+	if err != nil {
+		return err
+	}
+	req := &modegridv1.ComputeScatteringRequest{Model: st.src, Scatterers: sc, TemperatureK: 300, Lines: true,
+		Frame: modegridv1.QFrame_Q_FRAME_CONVENTIONAL, ConventionalA: 5.6,
+		Energy:     &modegridv1.EnergyAxis{Min: -10, Max: 32, Step: 0.2, Unit: modegridv1.FrequencyUnit_FREQUENCY_UNIT_MEV},
+		Resolution: &modegridv1.Resolution{Fwhm: []float64{1}},
+		Target: &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Points: 161, Corners: []*modegridv1.QPathCorner{
+			{Label: "200", Q: &modegridv1.QVector{Q1: 2}}, {Label: "300", Q: &modegridv1.QVector{Q1: 3}},
+			{Label: "311", Q: &modegridv1.QVector{Q1: 3, Q2: 1, Q3: 1}}, {Label: "222", Q: &modegridv1.QVector{Q1: 2, Q2: 2, Q3: 2}}}}},
+	}
+	if grid > 0 {
+		req.DebyeWaller = &modegridv1.DebyeWaller{Mesh: []uint32{grid, grid, grid}}
+	}
+	done := st.e.prog.running(st.name + ": neutron scattering map")
+	resp, err := st.cl.Scattering(st.ctx, req)
+	done()
+	if err != nil {
+		return err
+	}
+	out := scatterOutput{resp: resp, kind: "path", probe: req.GetProbe(), frame: req.GetFrame(), a: req.GetConventionalA()}
+	if err := st.save("-scatter-lines.csv", func(w io.Writer) error { return out.writeLines(w, "csv") }); err != nil {
+		return err
+	}
+	return plotScatterPath(st.base+"-scatter"+ext, kind, scatterMapFigure{resp: resp, probe: req.GetProbe(),
+		title: title + ": neutrons (invented lengths), T = 300 K, FWHM 1 meV"})
 }
 
 // demoStep holds what every step of one example's demo needs: the call

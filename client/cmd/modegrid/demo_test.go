@@ -16,7 +16,8 @@ import (
 // and SVG figures to stay fast under -race; TestDemoPNG covers the default
 // PNG): exit 0, a summary row per example, and per example four CSV files
 // with their documented headers and three figures that parse; for a polar
-// example (Born charges) also the infrared CSV and figure.
+// example (Born charges) also the infrared CSV and figure, for the
+// rock-salt-like example its scattering lines and map.
 func TestDemo(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "out")
 	code, out, stderr := runCLI(t, "demo", "--dir", dir, "--grid", "6", "--plot-format", "svg")
@@ -57,11 +58,24 @@ func TestDemo(t *testing.T) {
 			}
 		}
 	}
+	// The rock-salt-like example adds its neutron scattering map and the
+	// lines it shows.
+	b, err := os.ReadFile(filepath.Join(dir, demoScatterExample+"-scatter-lines.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if first, _, _ := strings.Cut(string(b), "\n"); first != "distance_invA,label,q1,q2,q3,qx_invA,qy_invA,qz_invA,h,k,l,mode,energy_mev,creation_barn_per_sr,annihilation_barn_per_sr" {
+		t.Errorf("scatter lines header %q", first)
+	}
+	if _, _, paths, text := svgStats(t, filepath.Join(dir, demoScatterExample+"-scatter.svg")); paths < 10 ||
+		!strings.Contains(text, "S(Q, E) (barn/(sr·meV) per cell)") || !strings.Contains(text, "222") {
+		t.Errorf("scatter map: %d paths, text %q", paths, text)
+	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		t.Fatal(err)
 	}
-	want := 7*len(examples.Names()) + 2*polar + 4 + 4 // + the heat section's 4, the fit's 4
+	want := 7*len(examples.Names()) + 2*polar + 2 + 4 + 4 // + the scattering map's 2, the heat section's 4, the fit's 4
 	if len(entries) != want {
 		t.Errorf("demo wrote %d files; want %d", len(entries), want)
 	}

@@ -47,6 +47,11 @@ func TestFigureGallery(t *testing.T) {
 		{"path-polar-rocksalt-like", []string{"path", "-m", example("polar-rocksalt-like"), "--grid", "12"}, nil},
 		{"infrared-polar-rocksalt-like", []string{"infrared", "-m", example("polar-rocksalt-like"), "--damping", "3", "--format", "table"},
 			[]string{"static ε₀ along ê", "active", "acoustic"}},
+		// Invented lengths for the invented species P and Q.
+		{"scatter-rocksalt-like-path", []string{"scatter", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--sigma-inc", "Q=2", "--frame", "conv", "--a", "5.6",
+			"--path", "200=2,0,0 300=3,0,0 311=3,1,1 222=2,2,2", "--points", "161", "--emin", "-10", "--emax", "32", "--estep", "0.2", "--fwhm", "1", "--dw-grid", "12"}, nil},
+		{"powder-rocksalt-like", []string{"powder", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--sigma-inc", "Q=2", "--qmin", "0.2", "--qmax", "8", "--qpoints", "40",
+			"--max-directions", "65536", "--emax", "32", "--estep", "0.25", "--fwhm", "1", "--dw-grid", "12"}, nil},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

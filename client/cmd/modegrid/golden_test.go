@@ -99,6 +99,25 @@ var goldenCases = []struct {
 		"--data", testdata("fit-chain-velocity.csv"), "--free", "springs[0].k_long", "--grid", "64"}},
 	{"fit-spring-and-shell-chain-table", []string{"fit", "-m", testdata("spring-and-shell-chain.json"), "--data", testdata("fit-chain-dispersion.csv"),
 		"--free", "springs[0].k_long", "--free", "shells[0].k_long"}},
+	// Scattering: invented lengths for the invented species P and Q of the rock-salt-like example.
+	{"scatter-rocksalt-like-path-table", []string{"scatter", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--sigma-inc", "Q=2",
+		"--path", "200=2,0,0 300=3,0,0", "--frame", "conv", "--a", "5.6", "--points", "3", "--temp", "100", "--dw-grid", "6"}},
+	{"scatter-rocksalt-like-path-csv", []string{"scatter", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--sigma-inc", "Q=2",
+		"--path", "200=2,0,0 300=3,0,0", "--frame", "conv", "--a", "5.6", "--points", "3", "--temp", "100", "--dw-grid", "6",
+		"--emin", "-30", "--emax", "30", "--estep", "5", "--fwhm", "2", "--format", "csv"}},
+	{"scatter-fcc-list-lines-csv", []string{"scatter", "-m", example("fcc"), "--b", "M=5", "--q", "1.2,0.3,0;0.1,0.2,0.3",
+		"--no-debye-waller", "--temp", "0", "--lines", "--format", "csv"}},
+	{"scatter-fcc-slice-csv", []string{"scatter", "-m", example("fcc"), "--b", "M=5", "--slice", "1,0,0;1,0,0;0,1,0", "--u", "0:0.5:2", "--v", "0:0.5:2",
+		"--no-debye-waller", "--emin", "5", "--emax", "5", "--estep", "1", "--fwhm", "3", "--format", "csv"}},
+	{"scatter-fcc-xray-json", []string{"scatter", "-m", example("fcc"), "--probe", "xray", "--xray-f", "M=20,10,5,30,2", "--q", "1.5,0,0",
+		"--no-debye-waller", "--emax", "20", "--estep", "10", "--format", "json"}},
+	{"powder-fcc-table", []string{"powder", "-m", example("fcc"), "--b", "M=5", "--sigma-inc", "M=1", "--qmin", "1", "--qmax", "3", "--qpoints", "3",
+		"--max-directions", "256", "--emax", "24", "--estep", "4", "--dw-grid", "6"}},
+	{"powder-fcc-csv", []string{"powder", "-m", example("fcc"), "--b", "M=5", "--sigma-inc", "M=1", "--qmin", "1", "--qmax", "3", "--qpoints", "3",
+		"--max-directions", "256", "--emax", "24", "--estep", "4", "--dw-grid", "6", "--format", "csv"}},
+	{"weighted-dos-rocksalt-like-csv", []string{"weighted-dos", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--sigma-inc", "Q=2", "--grid", "6",
+		"--emax", "32", "--estep", "4", "--format", "csv"}},
+	{"weighted-dos-rocksalt-like-table", []string{"weighted-dos", "-m", example("rocksalt-like"), "--b", "P=3;Q=6", "--grid", "6", "--emax", "32", "--estep", "8"}},
 }
 
 // fitRocksaltArgs fit the four shell constants of the rock-salt-like
@@ -287,6 +306,18 @@ func TestCSVHeaders(t *testing.T) {
 			"temperature_k,heat_capacity_j_per_mol_cells_k,entropy_j_per_mol_cells_k,free_energy_kj_per_mol_cells,internal_energy_kj_per_mol_cells,debye_temperature_k,debye_temperature_status"},
 		{"thermal per kg", []string{"thermal", "-m", example("chain"), "--grid", "32", "--temps", "300", "--basis", "kg"},
 			"temperature_k,heat_capacity_j_per_kg_k,entropy_j_per_kg_k,free_energy_kj_per_kg,internal_energy_kj_per_kg,debye_temperature_k,debye_temperature_status"},
+		{"scatter path", []string{"scatter", "-m", example("fcc"), "--b", "M=5", "--path", "A=1,0,0 B=1.5,0,0", "--points", "3", "--no-debye-waller"},
+			"distance_invA,label,q1,q2,q3,qx_invA,qy_invA,qz_invA,energy_mev,s_barn_per_sr_mev"},
+		{"scatter conventional frame in THz", []string{"scatter", "-m", example("fcc"), "--b", "M=5", "--q", "1,0,0", "--frame", "conv", "--a", "4", "--no-debye-waller", "--unit", "thz"},
+			"q1,q2,q3,qx_invA,qy_invA,qz_invA,h,k,l,energy_thz,s_barn_per_sr_thz"},
+		{"scatter slice lines", []string{"scatter", "-m", example("fcc"), "--b", "M=5", "--slice", "0,0,0;1,0,0;0,1,0", "--u", "0:1:2", "--v", "0:1:2", "--no-debye-waller", "--lines"},
+			"u,v,q1,q2,q3,qx_invA,qy_invA,qz_invA,mode,energy_mev,creation_barn_per_sr,annihilation_barn_per_sr"},
+		{"scatter X-ray", []string{"scatter", "-m", example("fcc"), "--probe", "xray", "--xray-f", "M=26", "--q", "1,0,0", "--no-debye-waller"},
+			"q1,q2,q3,qx_invA,qy_invA,qz_invA,energy_mev,s_electrons2_per_mev"},
+		{"powder", []string{"powder", "-m", example("fcc"), "--b", "M=5", "--qpoints", "2", "--max-directions", "128", "--no-debye-waller", "--coherent-only"},
+			"q_invA,energy_mev,s_barn_per_sr_mev"},
+		{"weighted DOS", []string{"weighted-dos", "-m", example("fcc"), "--b", "M=5", "--grid", "4"},
+			"energy_mev,weighted_dos_barn_per_amu_mev,weighted_dos_normalized_per_mev"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

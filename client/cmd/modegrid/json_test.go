@@ -22,6 +22,8 @@ var responseOf = map[string]protoreflect.MessageDescriptor{
 	"thermal":  (&modegridv1.ComputeThermalResponse{}).ProtoReflect().Descriptor(),
 	"fit":      (&modegridv1.FitResult{}).ProtoReflect().Descriptor(),
 	"infrared": (&modegridv1.ComputeInfraredResponse{}).ProtoReflect().Descriptor(),
+	"scatter":  (&modegridv1.ComputeScatteringResponse{}).ProtoReflect().Descriptor(),
+	"powder":   (&modegridv1.ComputeScatteringResponse{}).ProtoReflect().Descriptor(),
 }
 
 // jsonCases are the JSON golden cases and two whose zero values protobuf
@@ -36,6 +38,8 @@ func jsonCases() [][]string {
 	return append(cases,
 		[]string{"thermal", "-m", example("chain"), "--grid", "8", "--temps", "0", "--msd", "--format", "json"},
 		[]string{"dos", "-m", example("diatomic-chain"), "--grid", "8", "--step", "1", "--per-site", "--format", "json"},
+		// A powder map: its rows, sites and Debye–Waller fields.
+		[]string{"powder", "-m", example("fcc"), "--b", "M=5", "--qpoints", "2", "--max-directions", "128", "--dw-grid", "4", "--emax", "20", "--estep", "10", "--format", "json"},
 	)
 }
 

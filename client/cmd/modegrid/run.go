@@ -62,6 +62,9 @@ var commands = []struct {
 	{"shape", "the motion of one mode as a multi-frame XYZ trajectory (--xyz) or a figure (--plot, 1D and 2D)", cmdShape},
 	{"upload", "send a model to --server (any size) and print the hash other calls can name it by", cmdUpload},
 	{"fit", "fit force constants to measured frequencies, velocities, elastic constants, heat capacities", cmdFit},
+	{"scatter", "one-phonon S(Q, E) of a single crystal along a path, at Q points or on a plane (neutrons, X-rays)", cmdScatter},
+	{"powder", "powder-averaged S(|Q|, E) map, coherent and incoherent", cmdPowder},
+	{"weighted-dos", "neutron-weighted density of states (incoherent approximation)", cmdWeightedDOS},
 	{"demo", "run check, path, dos and thermal on the built-in example crystals", cmdDemo},
 }
 
@@ -77,9 +80,10 @@ common flags:
                      large for one message is uploaded first, then named by hash
   --server ADDR      modegridd address; absent: an embedded server in this process
   --token T          bearer token (default $MODEGRID_TOKEN); --tls, --ca FILE, --cert/--key FILE
-  --unit U           thz (default), mev or cm-1
+  --unit U           thz (default; mev for scatter, powder, weighted-dos), mev or cm-1
   --format F         table (default), csv or json; --out FILE writes it to FILE
-  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity, fit, infrared)
+  --plot FILE        draw a figure, FILE.png or FILE.svg (path, dos, thermal, qha, conductivity, fit, infrared,
+                     scatter, powder, weighted-dos)
 
 exit codes: 0 success, 2 usage error, 3 invalid model or request,
             4 server unreachable, 1 anything else
@@ -106,7 +110,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return report(err, stderr)
 		}
 	}
-	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, infrared, gruneisen, qha, conductivity, fit, shape, upload, demo)", args[0]), stderr)
+	return report(usagef("unknown command %q (commands: check, modes, path, dos, thermal, infrared, gruneisen, qha, conductivity, fit, scatter, powder, weighted-dos, shape, upload, demo)", args[0]), stderr)
 }
 
 // report prints err as one clear message (plus one line per bad field) and

@@ -590,6 +590,119 @@ func (HeatCapacityBasis) EnumDescriptor() ([]byte, []int) {
 	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{9}
 }
 
+// Probe is the radiation whose one-phonon scattering is computed.
+type Probe int32
+
+const (
+	// Unspecified means neutrons.
+	Probe_PROBE_UNSPECIFIED Probe = 0
+	// Neutrons: coherent lengths b in fm; S in barn/(sr·energy unit) per cell.
+	Probe_PROBE_NEUTRON Probe = 1
+	// X-rays: form factors f(|Q|) in electrons; S in electrons²/(energy unit)
+	// per cell (times r_e² and the polarisation factor for a cross-section).
+	Probe_PROBE_XRAY Probe = 2
+)
+
+// Enum value maps for Probe.
+var (
+	Probe_name = map[int32]string{
+		0: "PROBE_UNSPECIFIED",
+		1: "PROBE_NEUTRON",
+		2: "PROBE_XRAY",
+	}
+	Probe_value = map[string]int32{
+		"PROBE_UNSPECIFIED": 0,
+		"PROBE_NEUTRON":     1,
+		"PROBE_XRAY":        2,
+	}
+)
+
+func (x Probe) Enum() *Probe {
+	p := new(Probe)
+	*p = x
+	return p
+}
+
+func (x Probe) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (Probe) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[10].Descriptor()
+}
+
+func (Probe) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[10]
+}
+
+func (x Probe) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use Probe.Descriptor instead.
+func (Probe) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{10}
+}
+
+// QFrame is the frame of every QVector of a scattering request.
+type QFrame int32
+
+const (
+	// Unspecified means fractional.
+	QFrame_Q_FRAME_UNSPECIFIED QFrame = 0
+	// Fractional coordinates of the model's reciprocal lattice vectors
+	// (reciprocal-lattice units of the model's own cell).
+	QFrame_Q_FRAME_FRACTIONAL QFrame = 1
+	// Cartesian, Å⁻¹ (2π included), the model's axes.
+	QFrame_Q_FRAME_CARTESIAN QFrame = 2
+	// (h, k, l) in units of 2π/a along the Cartesian axes, a =
+	// conventional_a (Å): the conventional cube's reciprocal-lattice units.
+	QFrame_Q_FRAME_CONVENTIONAL QFrame = 3
+)
+
+// Enum value maps for QFrame.
+var (
+	QFrame_name = map[int32]string{
+		0: "Q_FRAME_UNSPECIFIED",
+		1: "Q_FRAME_FRACTIONAL",
+		2: "Q_FRAME_CARTESIAN",
+		3: "Q_FRAME_CONVENTIONAL",
+	}
+	QFrame_value = map[string]int32{
+		"Q_FRAME_UNSPECIFIED":  0,
+		"Q_FRAME_FRACTIONAL":   1,
+		"Q_FRAME_CARTESIAN":    2,
+		"Q_FRAME_CONVENTIONAL": 3,
+	}
+)
+
+func (x QFrame) Enum() *QFrame {
+	p := new(QFrame)
+	*p = x
+	return p
+}
+
+func (x QFrame) String() string {
+	return protoimpl.X.EnumStringOf(x.Descriptor(), protoreflect.EnumNumber(x))
+}
+
+func (QFrame) Descriptor() protoreflect.EnumDescriptor {
+	return file_modegrid_v1_service_proto_enumTypes[11].Descriptor()
+}
+
+func (QFrame) Type() protoreflect.EnumType {
+	return &file_modegrid_v1_service_proto_enumTypes[11]
+}
+
+func (x QFrame) Number() protoreflect.EnumNumber {
+	return protoreflect.EnumNumber(x)
+}
+
+// Deprecated: Use QFrame.Descriptor instead.
+func (QFrame) EnumDescriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{11}
+}
+
 // ModelSource is a model sent inline or a reference to a model the server has
 // already seen. An unknown reference gets NOT_FOUND: resend the model inline.
 type ModelSource struct {
@@ -7436,6 +7549,1604 @@ func (x *ComputeInfraredResponse) GetActiveThreshold() float64 {
 	return 0
 }
 
+// QVector is a scattering vector Q in the request's frame.
+type QVector struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// First component.
+	Q1 float64 `protobuf:"fixed64,1,opt,name=q1,proto3" json:"q1,omitempty"`
+	// Second component.
+	Q2 float64 `protobuf:"fixed64,2,opt,name=q2,proto3" json:"q2,omitempty"`
+	// Third component.
+	Q3            float64 `protobuf:"fixed64,3,opt,name=q3,proto3" json:"q3,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QVector) Reset() {
+	*x = QVector{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[71]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QVector) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QVector) ProtoMessage() {}
+
+func (x *QVector) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[71]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QVector.ProtoReflect.Descriptor instead.
+func (*QVector) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{71}
+}
+
+func (x *QVector) GetQ1() float64 {
+	if x != nil {
+		return x.Q1
+	}
+	return 0
+}
+
+func (x *QVector) GetQ2() float64 {
+	if x != nil {
+		return x.Q2
+	}
+	return 0
+}
+
+func (x *QVector) GetQ3() float64 {
+	if x != nil {
+		return x.Q3
+	}
+	return 0
+}
+
+// XrayFormFactor is f(s) = Σ a_i exp(−b_i s²) + c, s = sinθ/λ = |Q|/4π
+// (Å⁻¹), in electrons: the four-Gaussian form of International Tables for
+// Crystallography Vol. C, Table 6.1.1.4 (coefficients from that table or
+// any source), or a constant c with a and b empty.
+type XrayFormFactor struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// a_1 … a_4, electrons (at most 4).
+	A []float64 `protobuf:"fixed64,1,rep,packed,name=a,proto3" json:"a,omitempty"`
+	// b_1 … b_4, Å² (as many as a).
+	BA2 []float64 `protobuf:"fixed64,2,rep,packed,name=b_a2,json=bA2,proto3" json:"b_a2,omitempty"`
+	// c, electrons.
+	C             float64 `protobuf:"fixed64,3,opt,name=c,proto3" json:"c,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *XrayFormFactor) Reset() {
+	*x = XrayFormFactor{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[72]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *XrayFormFactor) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*XrayFormFactor) ProtoMessage() {}
+
+func (x *XrayFormFactor) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[72]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use XrayFormFactor.ProtoReflect.Descriptor instead.
+func (*XrayFormFactor) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{72}
+}
+
+func (x *XrayFormFactor) GetA() []float64 {
+	if x != nil {
+		return x.A
+	}
+	return nil
+}
+
+func (x *XrayFormFactor) GetBA2() []float64 {
+	if x != nil {
+		return x.BA2
+	}
+	return nil
+}
+
+func (x *XrayFormFactor) GetC() float64 {
+	if x != nil {
+		return x.C
+	}
+	return 0
+}
+
+// Scatterer says what the sites of one label, or one site, scatter with.
+// Sites not named take their neutron lengths from the built-in table by
+// their label's element symbol (Sears, Neutron News 3(3), 26 (1992)), if
+// their mass is the element's natural atomic weight within 0.5 %.
+type Scatterer struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Which sites.
+	//
+	// Types that are valid to be assigned to Target:
+	//
+	//	*Scatterer_Label
+	//	*Scatterer_Site
+	Target isScatterer_Target `protobuf_oneof:"target"`
+	// Bound coherent scattering length b_c, fm (neutrons).
+	CoherentFm *float64 `protobuf:"fixed64,3,opt,name=coherent_fm,json=coherentFm,proto3,oneof" json:"coherent_fm,omitempty"`
+	// Bound incoherent cross-section σ_inc, barn (neutrons; 0 if unset and
+	// coherent_fm is given).
+	IncoherentBarn *float64 `protobuf:"fixed64,4,opt,name=incoherent_barn,json=incoherentBarn,proto3,oneof" json:"incoherent_barn,omitempty"`
+	// X-ray form factor (required for every site with the X-ray probe).
+	FormFactor    *XrayFormFactor `protobuf:"bytes,5,opt,name=form_factor,json=formFactor,proto3" json:"form_factor,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Scatterer) Reset() {
+	*x = Scatterer{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[73]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Scatterer) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Scatterer) ProtoMessage() {}
+
+func (x *Scatterer) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[73]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Scatterer.ProtoReflect.Descriptor instead.
+func (*Scatterer) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{73}
+}
+
+func (x *Scatterer) GetTarget() isScatterer_Target {
+	if x != nil {
+		return x.Target
+	}
+	return nil
+}
+
+func (x *Scatterer) GetLabel() string {
+	if x != nil {
+		if x, ok := x.Target.(*Scatterer_Label); ok {
+			return x.Label
+		}
+	}
+	return ""
+}
+
+func (x *Scatterer) GetSite() uint32 {
+	if x != nil {
+		if x, ok := x.Target.(*Scatterer_Site); ok {
+			return x.Site
+		}
+	}
+	return 0
+}
+
+func (x *Scatterer) GetCoherentFm() float64 {
+	if x != nil && x.CoherentFm != nil {
+		return *x.CoherentFm
+	}
+	return 0
+}
+
+func (x *Scatterer) GetIncoherentBarn() float64 {
+	if x != nil && x.IncoherentBarn != nil {
+		return *x.IncoherentBarn
+	}
+	return 0
+}
+
+func (x *Scatterer) GetFormFactor() *XrayFormFactor {
+	if x != nil {
+		return x.FormFactor
+	}
+	return nil
+}
+
+type isScatterer_Target interface {
+	isScatterer_Target()
+}
+
+type Scatterer_Label struct {
+	// Every site of this label.
+	Label string `protobuf:"bytes,1,opt,name=label,proto3,oneof"`
+}
+
+type Scatterer_Site struct {
+	// This site (index); overrides a label entry.
+	Site uint32 `protobuf:"varint,2,opt,name=site,proto3,oneof"`
+}
+
+func (*Scatterer_Label) isScatterer_Target() {}
+
+func (*Scatterer_Site) isScatterer_Target() {}
+
+// QPathCorner is a corner of a path of Q.
+type QPathCorner struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Free label shown at the corner.
+	Label string `protobuf:"bytes,1,opt,name=label,proto3" json:"label,omitempty"`
+	// Q at the corner, request frame.
+	Q *QVector `protobuf:"bytes,2,opt,name=q,proto3" json:"q,omitempty"`
+	// Start a new piece of path here.
+	BreakBefore   bool `protobuf:"varint,3,opt,name=break_before,json=breakBefore,proto3" json:"break_before,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QPathCorner) Reset() {
+	*x = QPathCorner{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[74]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QPathCorner) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QPathCorner) ProtoMessage() {}
+
+func (x *QPathCorner) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[74]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QPathCorner.ProtoReflect.Descriptor instead.
+func (*QPathCorner) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{74}
+}
+
+func (x *QPathCorner) GetLabel() string {
+	if x != nil {
+		return x.Label
+	}
+	return ""
+}
+
+func (x *QPathCorner) GetQ() *QVector {
+	if x != nil {
+		return x.Q
+	}
+	return nil
+}
+
+func (x *QPathCorner) GetBreakBefore() bool {
+	if x != nil {
+		return x.BreakBefore
+	}
+	return false
+}
+
+// QPath is a path of straight segments through Q (any zone).
+type QPath struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Corners, at least two.
+	Corners []*QPathCorner `protobuf:"bytes,1,rep,name=corners,proto3" json:"corners,omitempty"`
+	// Samples along the path (0: 201), shared among segments by length.
+	Points        uint32 `protobuf:"varint,2,opt,name=points,proto3" json:"points,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QPath) Reset() {
+	*x = QPath{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[75]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QPath) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QPath) ProtoMessage() {}
+
+func (x *QPath) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[75]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QPath.ProtoReflect.Descriptor instead.
+func (*QPath) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{75}
+}
+
+func (x *QPath) GetCorners() []*QPathCorner {
+	if x != nil {
+		return x.Corners
+	}
+	return nil
+}
+
+func (x *QPath) GetPoints() uint32 {
+	if x != nil {
+		return x.Points
+	}
+	return 0
+}
+
+// QSlice is a plane of Q: Q = origin + u·u_vector + v·v_vector, request
+// frame, for u_points values of u from u_min to u_max and v_points of v.
+type QSlice struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Origin of the plane.
+	Origin *QVector `protobuf:"bytes,1,opt,name=origin,proto3" json:"origin,omitempty"`
+	// First direction.
+	UVector *QVector `protobuf:"bytes,2,opt,name=u_vector,json=uVector,proto3" json:"u_vector,omitempty"`
+	// Second direction.
+	VVector *QVector `protobuf:"bytes,3,opt,name=v_vector,json=vVector,proto3" json:"v_vector,omitempty"`
+	// First u.
+	UMin float64 `protobuf:"fixed64,4,opt,name=u_min,json=uMin,proto3" json:"u_min,omitempty"`
+	// Last u.
+	UMax float64 `protobuf:"fixed64,5,opt,name=u_max,json=uMax,proto3" json:"u_max,omitempty"`
+	// First v.
+	VMin float64 `protobuf:"fixed64,6,opt,name=v_min,json=vMin,proto3" json:"v_min,omitempty"`
+	// Last v.
+	VMax float64 `protobuf:"fixed64,7,opt,name=v_max,json=vMax,proto3" json:"v_max,omitempty"`
+	// Values of u (≥ 1).
+	UPoints uint32 `protobuf:"varint,8,opt,name=u_points,json=uPoints,proto3" json:"u_points,omitempty"`
+	// Values of v (≥ 1).
+	VPoints       uint32 `protobuf:"varint,9,opt,name=v_points,json=vPoints,proto3" json:"v_points,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QSlice) Reset() {
+	*x = QSlice{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[76]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QSlice) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QSlice) ProtoMessage() {}
+
+func (x *QSlice) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[76]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QSlice.ProtoReflect.Descriptor instead.
+func (*QSlice) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{76}
+}
+
+func (x *QSlice) GetOrigin() *QVector {
+	if x != nil {
+		return x.Origin
+	}
+	return nil
+}
+
+func (x *QSlice) GetUVector() *QVector {
+	if x != nil {
+		return x.UVector
+	}
+	return nil
+}
+
+func (x *QSlice) GetVVector() *QVector {
+	if x != nil {
+		return x.VVector
+	}
+	return nil
+}
+
+func (x *QSlice) GetUMin() float64 {
+	if x != nil {
+		return x.UMin
+	}
+	return 0
+}
+
+func (x *QSlice) GetUMax() float64 {
+	if x != nil {
+		return x.UMax
+	}
+	return 0
+}
+
+func (x *QSlice) GetVMin() float64 {
+	if x != nil {
+		return x.VMin
+	}
+	return 0
+}
+
+func (x *QSlice) GetVMax() float64 {
+	if x != nil {
+		return x.VMax
+	}
+	return 0
+}
+
+func (x *QSlice) GetUPoints() uint32 {
+	if x != nil {
+		return x.UPoints
+	}
+	return 0
+}
+
+func (x *QSlice) GetVPoints() uint32 {
+	if x != nil {
+		return x.VPoints
+	}
+	return 0
+}
+
+// QList is an explicit list of Q.
+type QList struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The points, request frame.
+	Points        []*QVector `protobuf:"bytes,1,rep,name=points,proto3" json:"points,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *QList) Reset() {
+	*x = QList{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[77]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *QList) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*QList) ProtoMessage() {}
+
+func (x *QList) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[77]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use QList.ProtoReflect.Descriptor instead.
+func (*QList) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{77}
+}
+
+func (x *QList) GetPoints() []*QVector {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+// PowderSpec asks for the powder-averaged S(|Q|, E).
+type PowderSpec struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Smallest |Q|, Å⁻¹.
+	QMinInvA float64 `protobuf:"fixed64,1,opt,name=q_min_inv_a,json=qMinInvA,proto3" json:"q_min_inv_a,omitempty"`
+	// Largest |Q|, Å⁻¹.
+	QMaxInvA float64 `protobuf:"fixed64,2,opt,name=q_max_inv_a,json=qMaxInvA,proto3" json:"q_max_inv_a,omitempty"`
+	// |Q| samples (≥ 1).
+	QPoints uint32 `protobuf:"varint,3,opt,name=q_points,json=qPoints,proto3" json:"q_points,omitempty"`
+	// Relative L1 change of a row between N and 2N directions taken as
+	// converged; 0 means 0.02.
+	Tolerance float64 `protobuf:"fixed64,4,opt,name=tolerance,proto3" json:"tolerance,omitempty"`
+	// Directions per |Q| sphere at most; 0 means 2^20.
+	MaxDirections uint32 `protobuf:"varint,5,opt,name=max_directions,json=maxDirections,proto3" json:"max_directions,omitempty"`
+	// Leave out the incoherent one-phonon term, which a neutron map
+	// otherwise holds besides the coherent one (σ_inc/4π per site times its
+	// projected DOS on the Debye–Waller grid; see the response's
+	// powder_incoherent). X-ray maps are coherent only.
+	CoherentOnly  bool `protobuf:"varint,6,opt,name=coherent_only,json=coherentOnly,proto3" json:"coherent_only,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *PowderSpec) Reset() {
+	*x = PowderSpec{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[78]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PowderSpec) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PowderSpec) ProtoMessage() {}
+
+func (x *PowderSpec) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[78]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PowderSpec.ProtoReflect.Descriptor instead.
+func (*PowderSpec) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{78}
+}
+
+func (x *PowderSpec) GetQMinInvA() float64 {
+	if x != nil {
+		return x.QMinInvA
+	}
+	return 0
+}
+
+func (x *PowderSpec) GetQMaxInvA() float64 {
+	if x != nil {
+		return x.QMaxInvA
+	}
+	return 0
+}
+
+func (x *PowderSpec) GetQPoints() uint32 {
+	if x != nil {
+		return x.QPoints
+	}
+	return 0
+}
+
+func (x *PowderSpec) GetTolerance() float64 {
+	if x != nil {
+		return x.Tolerance
+	}
+	return 0
+}
+
+func (x *PowderSpec) GetMaxDirections() uint32 {
+	if x != nil {
+		return x.MaxDirections
+	}
+	return 0
+}
+
+func (x *PowderSpec) GetCoherentOnly() bool {
+	if x != nil {
+		return x.CoherentOnly
+	}
+	return false
+}
+
+// WeightedDosSpec asks for the neutron-weighted DOS (incoherent
+// approximation).
+type WeightedDosSpec struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Γ-centred grid of the DOS (tetrahedron method).
+	Grid          *MonkhorstPackGrid `protobuf:"bytes,1,opt,name=grid,proto3" json:"grid,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *WeightedDosSpec) Reset() {
+	*x = WeightedDosSpec{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[79]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *WeightedDosSpec) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*WeightedDosSpec) ProtoMessage() {}
+
+func (x *WeightedDosSpec) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[79]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use WeightedDosSpec.ProtoReflect.Descriptor instead.
+func (*WeightedDosSpec) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{79}
+}
+
+func (x *WeightedDosSpec) GetGrid() *MonkhorstPackGrid {
+	if x != nil {
+		return x.Grid
+	}
+	return nil
+}
+
+// EnergyAxis is the axis of energy transfer E (> 0: the sample gains a
+// phonon). min = max = 0 chooses 0 … 1.15 × the highest mode; step 0 means
+// 200 steps. min = max ≠ 0 with step > 0 is a single energy (a
+// constant-energy slice).
+type EnergyAxis struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// First energy, unit.
+	Min float64 `protobuf:"fixed64,1,opt,name=min,proto3" json:"min,omitempty"`
+	// Last energy, unit.
+	Max float64 `protobuf:"fixed64,2,opt,name=max,proto3" json:"max,omitempty"`
+	// Step, unit.
+	Step float64 `protobuf:"fixed64,3,opt,name=step,proto3" json:"step,omitempty"`
+	// meV (unspecified means meV here), THz (hν) or cm⁻¹ (hν/hc).
+	Unit          FrequencyUnit `protobuf:"varint,4,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *EnergyAxis) Reset() {
+	*x = EnergyAxis{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[80]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *EnergyAxis) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*EnergyAxis) ProtoMessage() {}
+
+func (x *EnergyAxis) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[80]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use EnergyAxis.ProtoReflect.Descriptor instead.
+func (*EnergyAxis) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{80}
+}
+
+func (x *EnergyAxis) GetMin() float64 {
+	if x != nil {
+		return x.Min
+	}
+	return 0
+}
+
+func (x *EnergyAxis) GetMax() float64 {
+	if x != nil {
+		return x.Max
+	}
+	return 0
+}
+
+func (x *EnergyAxis) GetStep() float64 {
+	if x != nil {
+		return x.Step
+	}
+	return 0
+}
+
+func (x *EnergyAxis) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+// Resolution is the instrument's Gaussian resolution.
+type Resolution struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// FWHM in energy as a polynomial in E: fwhm[0] + fwhm[1]·E + … (at most a
+	// cubic; E and FWHM in the axis unit), positive over the window; empty
+	// means a constant 2 × step.
+	Fwhm []float64 `protobuf:"fixed64,1,rep,packed,name=fwhm,proto3" json:"fwhm,omitempty"`
+	// FWHM in |Q|, Å⁻¹ (powder only); 0 means none.
+	QFwhmInvA     float64 `protobuf:"fixed64,2,opt,name=q_fwhm_inv_a,json=qFwhmInvA,proto3" json:"q_fwhm_inv_a,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *Resolution) Reset() {
+	*x = Resolution{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[81]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *Resolution) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*Resolution) ProtoMessage() {}
+
+func (x *Resolution) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[81]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use Resolution.ProtoReflect.Descriptor instead.
+func (*Resolution) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{81}
+}
+
+func (x *Resolution) GetFwhm() []float64 {
+	if x != nil {
+		return x.Fwhm
+	}
+	return nil
+}
+
+func (x *Resolution) GetQFwhmInvA() float64 {
+	if x != nil {
+		return x.QFwhmInvA
+	}
+	return 0
+}
+
+// DebyeWaller says how the Debye–Waller factors are found.
+type DebyeWaller struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// W = 0 (bare one-phonon intensities); required for 1D crystals and 2D
+	// ones at T > 0, whose ⟨u²⟩ diverges.
+	Off bool `protobuf:"varint,1,opt,name=off,proto3" json:"off,omitempty"`
+	// Γ-centred grid of the mean-square displacements (d numbers; empty: 24
+	// per direction in 3D, 64 in 2D, 256 in 1D).
+	Mesh          []uint32 `protobuf:"varint,2,rep,packed,name=mesh,proto3" json:"mesh,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *DebyeWaller) Reset() {
+	*x = DebyeWaller{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[82]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *DebyeWaller) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*DebyeWaller) ProtoMessage() {}
+
+func (x *DebyeWaller) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[82]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use DebyeWaller.ProtoReflect.Descriptor instead.
+func (*DebyeWaller) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{82}
+}
+
+func (x *DebyeWaller) GetOff() bool {
+	if x != nil {
+		return x.Off
+	}
+	return false
+}
+
+func (x *DebyeWaller) GetMesh() []uint32 {
+	if x != nil {
+		return x.Mesh
+	}
+	return nil
+}
+
+// ComputeScatteringRequest asks for one-phonon scattering intensities.
+type ComputeScatteringRequest struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// The model.
+	Model *ModelSource `protobuf:"bytes,1,opt,name=model,proto3" json:"model,omitempty"`
+	// Neutrons or X-rays.
+	Probe Probe `protobuf:"varint,2,opt,name=probe,proto3,enum=modegrid.v1.Probe" json:"probe,omitempty"`
+	// Scattering lengths or form factors by label or site.
+	Scatterers []*Scatterer `protobuf:"bytes,3,rep,name=scatterers,proto3" json:"scatterers,omitempty"`
+	// Sample temperature, K.
+	TemperatureK float64 `protobuf:"fixed64,4,opt,name=temperature_k,json=temperatureK,proto3" json:"temperature_k,omitempty"`
+	// What to compute.
+	//
+	// Types that are valid to be assigned to Target:
+	//
+	//	*ComputeScatteringRequest_QList
+	//	*ComputeScatteringRequest_Path
+	//	*ComputeScatteringRequest_Slice
+	//	*ComputeScatteringRequest_Powder
+	//	*ComputeScatteringRequest_WeightedDos
+	Target isComputeScatteringRequest_Target `protobuf_oneof:"target"`
+	// Frame of every QVector.
+	Frame QFrame `protobuf:"varint,10,opt,name=frame,proto3,enum=modegrid.v1.QFrame" json:"frame,omitempty"`
+	// Conventional cubic lattice constant, Å (Q_FRAME_CONVENTIONAL only).
+	ConventionalA float64 `protobuf:"fixed64,11,opt,name=conventional_a,json=conventionalA,proto3" json:"conventional_a,omitempty"`
+	// The energy axis.
+	Energy *EnergyAxis `protobuf:"bytes,12,opt,name=energy,proto3" json:"energy,omitempty"`
+	// The instrument's resolution.
+	Resolution *Resolution `protobuf:"bytes,13,opt,name=resolution,proto3" json:"resolution,omitempty"`
+	// Debye–Waller factors.
+	DebyeWaller *DebyeWaller `protobuf:"bytes,14,opt,name=debye_waller,json=debyeWaller,proto3" json:"debye_waller,omitempty"`
+	// Leave imaginary modes out (counted) instead of failing with
+	// FAILED_PRECONDITION.
+	AllowUnstable bool `protobuf:"varint,15,opt,name=allow_unstable,json=allowUnstable,proto3" json:"allow_unstable,omitempty"`
+	// Also return every point's mode energies and line weights.
+	Lines         bool `protobuf:"varint,16,opt,name=lines,proto3" json:"lines,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ComputeScatteringRequest) Reset() {
+	*x = ComputeScatteringRequest{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[83]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeScatteringRequest) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeScatteringRequest) ProtoMessage() {}
+
+func (x *ComputeScatteringRequest) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[83]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeScatteringRequest.ProtoReflect.Descriptor instead.
+func (*ComputeScatteringRequest) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{83}
+}
+
+func (x *ComputeScatteringRequest) GetModel() *ModelSource {
+	if x != nil {
+		return x.Model
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetProbe() Probe {
+	if x != nil {
+		return x.Probe
+	}
+	return Probe_PROBE_UNSPECIFIED
+}
+
+func (x *ComputeScatteringRequest) GetScatterers() []*Scatterer {
+	if x != nil {
+		return x.Scatterers
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetTemperatureK() float64 {
+	if x != nil {
+		return x.TemperatureK
+	}
+	return 0
+}
+
+func (x *ComputeScatteringRequest) GetTarget() isComputeScatteringRequest_Target {
+	if x != nil {
+		return x.Target
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetQList() *QList {
+	if x != nil {
+		if x, ok := x.Target.(*ComputeScatteringRequest_QList); ok {
+			return x.QList
+		}
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetPath() *QPath {
+	if x != nil {
+		if x, ok := x.Target.(*ComputeScatteringRequest_Path); ok {
+			return x.Path
+		}
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetSlice() *QSlice {
+	if x != nil {
+		if x, ok := x.Target.(*ComputeScatteringRequest_Slice); ok {
+			return x.Slice
+		}
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetPowder() *PowderSpec {
+	if x != nil {
+		if x, ok := x.Target.(*ComputeScatteringRequest_Powder); ok {
+			return x.Powder
+		}
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetWeightedDos() *WeightedDosSpec {
+	if x != nil {
+		if x, ok := x.Target.(*ComputeScatteringRequest_WeightedDos); ok {
+			return x.WeightedDos
+		}
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetFrame() QFrame {
+	if x != nil {
+		return x.Frame
+	}
+	return QFrame_Q_FRAME_UNSPECIFIED
+}
+
+func (x *ComputeScatteringRequest) GetConventionalA() float64 {
+	if x != nil {
+		return x.ConventionalA
+	}
+	return 0
+}
+
+func (x *ComputeScatteringRequest) GetEnergy() *EnergyAxis {
+	if x != nil {
+		return x.Energy
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetResolution() *Resolution {
+	if x != nil {
+		return x.Resolution
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetDebyeWaller() *DebyeWaller {
+	if x != nil {
+		return x.DebyeWaller
+	}
+	return nil
+}
+
+func (x *ComputeScatteringRequest) GetAllowUnstable() bool {
+	if x != nil {
+		return x.AllowUnstable
+	}
+	return false
+}
+
+func (x *ComputeScatteringRequest) GetLines() bool {
+	if x != nil {
+		return x.Lines
+	}
+	return false
+}
+
+type isComputeScatteringRequest_Target interface {
+	isComputeScatteringRequest_Target()
+}
+
+type ComputeScatteringRequest_QList struct {
+	// Single crystal at a list of Q.
+	QList *QList `protobuf:"bytes,5,opt,name=q_list,json=qList,proto3,oneof"`
+}
+
+type ComputeScatteringRequest_Path struct {
+	// Single crystal along a path of Q.
+	Path *QPath `protobuf:"bytes,6,opt,name=path,proto3,oneof"`
+}
+
+type ComputeScatteringRequest_Slice struct {
+	// Single crystal on a plane of Q.
+	Slice *QSlice `protobuf:"bytes,7,opt,name=slice,proto3,oneof"`
+}
+
+type ComputeScatteringRequest_Powder struct {
+	// Powder average on a grid of |Q| and E.
+	Powder *PowderSpec `protobuf:"bytes,8,opt,name=powder,proto3,oneof"`
+}
+
+type ComputeScatteringRequest_WeightedDos struct {
+	// Neutron-weighted DOS.
+	WeightedDos *WeightedDosSpec `protobuf:"bytes,9,opt,name=weighted_dos,json=weightedDos,proto3,oneof"`
+}
+
+func (*ComputeScatteringRequest_QList) isComputeScatteringRequest_Target() {}
+
+func (*ComputeScatteringRequest_Path) isComputeScatteringRequest_Target() {}
+
+func (*ComputeScatteringRequest_Slice) isComputeScatteringRequest_Target() {}
+
+func (*ComputeScatteringRequest_Powder) isComputeScatteringRequest_Target() {}
+
+func (*ComputeScatteringRequest_WeightedDos) isComputeScatteringRequest_Target() {}
+
+// ScatteringPoint is S(Q, E) at one Q of a single-crystal request.
+type ScatteringPoint struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Q, fractional reciprocal coordinates of the model's cell.
+	QFrac *QVector `protobuf:"bytes,1,opt,name=q_frac,json=qFrac,proto3" json:"q_frac,omitempty"`
+	// Q, Cartesian Å⁻¹.
+	QCartInvA *QVector `protobuf:"bytes,2,opt,name=q_cart_inv_a,json=qCartInvA,proto3" json:"q_cart_inv_a,omitempty"`
+	// Distance along a path, Å⁻¹ (paths only).
+	DistanceInvA float64 `protobuf:"fixed64,3,opt,name=distance_inv_a,json=distanceInvA,proto3" json:"distance_inv_a,omitempty"`
+	// Corner label (paths only).
+	Label string `protobuf:"bytes,4,opt,name=label,proto3" json:"label,omitempty"`
+	// Slice coordinate u (slices only).
+	U float64 `protobuf:"fixed64,5,opt,name=u,proto3" json:"u,omitempty"`
+	// Slice coordinate v (slices only).
+	V float64 `protobuf:"fixed64,6,opt,name=v,proto3" json:"v,omitempty"`
+	// S at each energy of the response (intensity_unit).
+	S []float64 `protobuf:"fixed64,7,rep,packed,name=s,proto3" json:"s,omitempty"`
+	// With lines: mode energies, axis unit, ascending (imaginary negative).
+	ModeEnergies []float64 `protobuf:"fixed64,8,rep,packed,name=mode_energies,json=modeEnergies,proto3" json:"mode_energies,omitempty"`
+	// With lines: weight of each mode's line at +E (phonon creation), barn/sr
+	// per cell (electrons² for X-rays).
+	Creation []float64 `protobuf:"fixed64,9,rep,packed,name=creation,proto3" json:"creation,omitempty"`
+	// With lines: weight of each mode's line at −E (annihilation).
+	Annihilation  []float64 `protobuf:"fixed64,10,rep,packed,name=annihilation,proto3" json:"annihilation,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *ScatteringPoint) Reset() {
+	*x = ScatteringPoint{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[84]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ScatteringPoint) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ScatteringPoint) ProtoMessage() {}
+
+func (x *ScatteringPoint) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[84]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ScatteringPoint.ProtoReflect.Descriptor instead.
+func (*ScatteringPoint) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{84}
+}
+
+func (x *ScatteringPoint) GetQFrac() *QVector {
+	if x != nil {
+		return x.QFrac
+	}
+	return nil
+}
+
+func (x *ScatteringPoint) GetQCartInvA() *QVector {
+	if x != nil {
+		return x.QCartInvA
+	}
+	return nil
+}
+
+func (x *ScatteringPoint) GetDistanceInvA() float64 {
+	if x != nil {
+		return x.DistanceInvA
+	}
+	return 0
+}
+
+func (x *ScatteringPoint) GetLabel() string {
+	if x != nil {
+		return x.Label
+	}
+	return ""
+}
+
+func (x *ScatteringPoint) GetU() float64 {
+	if x != nil {
+		return x.U
+	}
+	return 0
+}
+
+func (x *ScatteringPoint) GetV() float64 {
+	if x != nil {
+		return x.V
+	}
+	return 0
+}
+
+func (x *ScatteringPoint) GetS() []float64 {
+	if x != nil {
+		return x.S
+	}
+	return nil
+}
+
+func (x *ScatteringPoint) GetModeEnergies() []float64 {
+	if x != nil {
+		return x.ModeEnergies
+	}
+	return nil
+}
+
+func (x *ScatteringPoint) GetCreation() []float64 {
+	if x != nil {
+		return x.Creation
+	}
+	return nil
+}
+
+func (x *ScatteringPoint) GetAnnihilation() []float64 {
+	if x != nil {
+		return x.Annihilation
+	}
+	return nil
+}
+
+// PowderRow is S(|Q|, E) at one |Q|.
+type PowderRow struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// |Q|, Å⁻¹.
+	QInvA float64 `protobuf:"fixed64,1,opt,name=q_inv_a,json=qInvA,proto3" json:"q_inv_a,omitempty"`
+	// S at each energy of the response (intensity_unit).
+	S []float64 `protobuf:"fixed64,2,rep,packed,name=s,proto3" json:"s,omitempty"`
+	// Directions of the row's final sphere quadrature.
+	Directions uint32 `protobuf:"varint,3,opt,name=directions,proto3" json:"directions,omitempty"`
+	// Its relative L1 change from half as many.
+	Change        float64 `protobuf:"fixed64,4,opt,name=change,proto3" json:"change,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *PowderRow) Reset() {
+	*x = PowderRow{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[85]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *PowderRow) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*PowderRow) ProtoMessage() {}
+
+func (x *PowderRow) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[85]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use PowderRow.ProtoReflect.Descriptor instead.
+func (*PowderRow) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{85}
+}
+
+func (x *PowderRow) GetQInvA() float64 {
+	if x != nil {
+		return x.QInvA
+	}
+	return 0
+}
+
+func (x *PowderRow) GetS() []float64 {
+	if x != nil {
+		return x.S
+	}
+	return nil
+}
+
+func (x *PowderRow) GetDirections() uint32 {
+	if x != nil {
+		return x.Directions
+	}
+	return 0
+}
+
+func (x *PowderRow) GetChange() float64 {
+	if x != nil {
+		return x.Change
+	}
+	return 0
+}
+
+// SiteScattering reports what one site scattered with.
+type SiteScattering struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Site index.
+	Site uint32 `protobuf:"varint,1,opt,name=site,proto3" json:"site,omitempty"`
+	// Site label.
+	Label string `protobuf:"bytes,2,opt,name=label,proto3" json:"label,omitempty"`
+	// Coherent length used, fm (neutrons).
+	CoherentFm float64 `protobuf:"fixed64,3,opt,name=coherent_fm,json=coherentFm,proto3" json:"coherent_fm,omitempty"`
+	// Incoherent cross-section used, barn (neutrons).
+	IncoherentBarn float64 `protobuf:"fixed64,4,opt,name=incoherent_barn,json=incoherentBarn,proto3" json:"incoherent_barn,omitempty"`
+	// "request" or "built-in table (Sears 1992): <element>".
+	Source string `protobuf:"bytes,5,opt,name=source,proto3" json:"source,omitempty"`
+	// Mean-square displacement ⟨u uᵀ⟩ used for the Debye–Waller factor, Å²,
+	// 9 numbers row-major (zeros when off).
+	UA2           []float64 `protobuf:"fixed64,6,rep,packed,name=u_a2,json=uA2,proto3" json:"u_a2,omitempty"`
+	unknownFields protoimpl.UnknownFields
+	sizeCache     protoimpl.SizeCache
+}
+
+func (x *SiteScattering) Reset() {
+	*x = SiteScattering{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[86]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *SiteScattering) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*SiteScattering) ProtoMessage() {}
+
+func (x *SiteScattering) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[86]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use SiteScattering.ProtoReflect.Descriptor instead.
+func (*SiteScattering) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{86}
+}
+
+func (x *SiteScattering) GetSite() uint32 {
+	if x != nil {
+		return x.Site
+	}
+	return 0
+}
+
+func (x *SiteScattering) GetLabel() string {
+	if x != nil {
+		return x.Label
+	}
+	return ""
+}
+
+func (x *SiteScattering) GetCoherentFm() float64 {
+	if x != nil {
+		return x.CoherentFm
+	}
+	return 0
+}
+
+func (x *SiteScattering) GetIncoherentBarn() float64 {
+	if x != nil {
+		return x.IncoherentBarn
+	}
+	return 0
+}
+
+func (x *SiteScattering) GetSource() string {
+	if x != nil {
+		return x.Source
+	}
+	return ""
+}
+
+func (x *SiteScattering) GetUA2() []float64 {
+	if x != nil {
+		return x.UA2
+	}
+	return nil
+}
+
+// ComputeScatteringResponse holds the intensities.
+type ComputeScatteringResponse struct {
+	state protoimpl.MessageState `protogen:"open.v1"`
+	// Hash of the model.
+	ModelHash string `protobuf:"bytes,1,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`
+	// Canonical parameters of the request.
+	Parameters string `protobuf:"bytes,2,opt,name=parameters,proto3" json:"parameters,omitempty"`
+	// Unit of the energies.
+	Unit FrequencyUnit `protobuf:"varint,3,opt,name=unit,proto3,enum=modegrid.v1.FrequencyUnit" json:"unit,omitempty"`
+	// The energy axis.
+	Energies []float64 `protobuf:"fixed64,4,rep,packed,name=energies,proto3" json:"energies,omitempty"`
+	// Energy FWHM polynomial used (axis unit).
+	Fwhm []float64 `protobuf:"fixed64,5,rep,packed,name=fwhm,proto3" json:"fwhm,omitempty"`
+	// Unit of S, e.g. "barn/(sr·meV) per cell".
+	IntensityUnit string `protobuf:"bytes,6,opt,name=intensity_unit,json=intensityUnit,proto3" json:"intensity_unit,omitempty"`
+	// Single crystal: one per Q, in request order (slices: u fastest).
+	Points []*ScatteringPoint `protobuf:"bytes,7,rep,name=points,proto3" json:"points,omitempty"`
+	// Powder: one row per |Q|.
+	Powder []*PowderRow `protobuf:"bytes,8,rep,name=powder,proto3" json:"powder,omitempty"`
+	// Weighted DOS: Σ_j (σ_j/m_j) g_j(E), barn/amu per energy unit per cell.
+	WeightedDos []float64 `protobuf:"fixed64,9,rep,packed,name=weighted_dos,json=weightedDos,proto3" json:"weighted_dos,omitempty"`
+	// Weighted DOS normalised to sites × polarizations states.
+	WeightedDosNormalized []float64 `protobuf:"fixed64,10,rep,packed,name=weighted_dos_normalized,json=weightedDosNormalized,proto3" json:"weighted_dos_normalized,omitempty"`
+	// What each site scattered with.
+	Sites []*SiteScattering `protobuf:"bytes,11,rep,name=sites,proto3" json:"sites,omitempty"`
+	// Imaginary modes left out (allow_unstable).
+	ImaginaryModes uint32 `protobuf:"varint,12,opt,name=imaginary_modes,json=imaginaryModes,proto3" json:"imaginary_modes,omitempty"`
+	// Debye–Waller grid used (empty when off).
+	DebyeWallerMesh []uint32 `protobuf:"varint,13,rep,packed,name=debye_waller_mesh,json=debyeWallerMesh,proto3" json:"debye_waller_mesh,omitempty"`
+	// True when the thermal part of ⟨u²⟩ was extrapolated from the grid and
+	// its half.
+	DebyeWallerExtrapolated bool `protobuf:"varint,14,opt,name=debye_waller_extrapolated,json=debyeWallerExtrapolated,proto3" json:"debye_waller_extrapolated,omitempty"`
+	// Powder rows that reached max_directions above the tolerance.
+	PowderUnconvergedRows uint32 `protobuf:"varint,15,opt,name=powder_unconverged_rows,json=powderUnconvergedRows,proto3" json:"powder_unconverged_rows,omitempty"`
+	// Order of the rotation group (with −1) whose fundamental domain held
+	// the powder directions.
+	PowderGroupOrder uint32 `protobuf:"varint,16,opt,name=powder_group_order,json=powderGroupOrder,proto3" json:"powder_group_order,omitempty"`
+	// Powder: true when S holds the incoherent one-phonon term besides the
+	// coherent one (neutrons, unless coherent_only).
+	PowderIncoherent bool `protobuf:"varint,17,opt,name=powder_incoherent,json=powderIncoherent,proto3" json:"powder_incoherent,omitempty"`
+	// Powder with the incoherent term: the grid of its projected DOS.
+	PowderIncoherentMesh []uint32 `protobuf:"varint,18,rep,packed,name=powder_incoherent_mesh,json=powderIncoherentMesh,proto3" json:"powder_incoherent_mesh,omitempty"`
+	unknownFields        protoimpl.UnknownFields
+	sizeCache            protoimpl.SizeCache
+}
+
+func (x *ComputeScatteringResponse) Reset() {
+	*x = ComputeScatteringResponse{}
+	mi := &file_modegrid_v1_service_proto_msgTypes[87]
+	ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+	ms.StoreMessageInfo(mi)
+}
+
+func (x *ComputeScatteringResponse) String() string {
+	return protoimpl.X.MessageStringOf(x)
+}
+
+func (*ComputeScatteringResponse) ProtoMessage() {}
+
+func (x *ComputeScatteringResponse) ProtoReflect() protoreflect.Message {
+	mi := &file_modegrid_v1_service_proto_msgTypes[87]
+	if x != nil {
+		ms := protoimpl.X.MessageStateOf(protoimpl.Pointer(x))
+		if ms.LoadMessageInfo() == nil {
+			ms.StoreMessageInfo(mi)
+		}
+		return ms
+	}
+	return mi.MessageOf(x)
+}
+
+// Deprecated: Use ComputeScatteringResponse.ProtoReflect.Descriptor instead.
+func (*ComputeScatteringResponse) Descriptor() ([]byte, []int) {
+	return file_modegrid_v1_service_proto_rawDescGZIP(), []int{87}
+}
+
+func (x *ComputeScatteringResponse) GetModelHash() string {
+	if x != nil {
+		return x.ModelHash
+	}
+	return ""
+}
+
+func (x *ComputeScatteringResponse) GetParameters() string {
+	if x != nil {
+		return x.Parameters
+	}
+	return ""
+}
+
+func (x *ComputeScatteringResponse) GetUnit() FrequencyUnit {
+	if x != nil {
+		return x.Unit
+	}
+	return FrequencyUnit_FREQUENCY_UNIT_UNSPECIFIED
+}
+
+func (x *ComputeScatteringResponse) GetEnergies() []float64 {
+	if x != nil {
+		return x.Energies
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetFwhm() []float64 {
+	if x != nil {
+		return x.Fwhm
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetIntensityUnit() string {
+	if x != nil {
+		return x.IntensityUnit
+	}
+	return ""
+}
+
+func (x *ComputeScatteringResponse) GetPoints() []*ScatteringPoint {
+	if x != nil {
+		return x.Points
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetPowder() []*PowderRow {
+	if x != nil {
+		return x.Powder
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetWeightedDos() []float64 {
+	if x != nil {
+		return x.WeightedDos
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetWeightedDosNormalized() []float64 {
+	if x != nil {
+		return x.WeightedDosNormalized
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetSites() []*SiteScattering {
+	if x != nil {
+		return x.Sites
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetImaginaryModes() uint32 {
+	if x != nil {
+		return x.ImaginaryModes
+	}
+	return 0
+}
+
+func (x *ComputeScatteringResponse) GetDebyeWallerMesh() []uint32 {
+	if x != nil {
+		return x.DebyeWallerMesh
+	}
+	return nil
+}
+
+func (x *ComputeScatteringResponse) GetDebyeWallerExtrapolated() bool {
+	if x != nil {
+		return x.DebyeWallerExtrapolated
+	}
+	return false
+}
+
+func (x *ComputeScatteringResponse) GetPowderUnconvergedRows() uint32 {
+	if x != nil {
+		return x.PowderUnconvergedRows
+	}
+	return 0
+}
+
+func (x *ComputeScatteringResponse) GetPowderGroupOrder() uint32 {
+	if x != nil {
+		return x.PowderGroupOrder
+	}
+	return 0
+}
+
+func (x *ComputeScatteringResponse) GetPowderIncoherent() bool {
+	if x != nil {
+		return x.PowderIncoherent
+	}
+	return false
+}
+
+func (x *ComputeScatteringResponse) GetPowderIncoherentMesh() []uint32 {
+	if x != nil {
+		return x.PowderIncoherentMesh
+	}
+	return nil
+}
+
 var File_modegrid_v1_service_proto protoreflect.FileDescriptor
 
 const file_modegrid_v1_service_proto_rawDesc = "" +
@@ -8035,7 +9746,141 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14epsilon_static_along\x18\n" +
 	" \x01(\x01R\x12epsilonStaticAlong\x125\n" +
 	"\asamples\x18\v \x03(\v2\x1b.modegrid.v1.InfraredSampleR\asamples\x12)\n" +
-	"\x10active_threshold\x18\f \x01(\x01R\x0factiveThreshold*S\n" +
+	"\x10active_threshold\x18\f \x01(\x01R\x0factiveThreshold\"9\n" +
+	"\aQVector\x12\x0e\n" +
+	"\x02q1\x18\x01 \x01(\x01R\x02q1\x12\x0e\n" +
+	"\x02q2\x18\x02 \x01(\x01R\x02q2\x12\x0e\n" +
+	"\x02q3\x18\x03 \x01(\x01R\x02q3\"?\n" +
+	"\x0eXrayFormFactor\x12\f\n" +
+	"\x01a\x18\x01 \x03(\x01R\x01a\x12\x11\n" +
+	"\x04b_a2\x18\x02 \x03(\x01R\x03bA2\x12\f\n" +
+	"\x01c\x18\x03 \x01(\x01R\x01c\"\xf9\x01\n" +
+	"\tScatterer\x12\x16\n" +
+	"\x05label\x18\x01 \x01(\tH\x00R\x05label\x12\x14\n" +
+	"\x04site\x18\x02 \x01(\rH\x00R\x04site\x12$\n" +
+	"\vcoherent_fm\x18\x03 \x01(\x01H\x01R\n" +
+	"coherentFm\x88\x01\x01\x12,\n" +
+	"\x0fincoherent_barn\x18\x04 \x01(\x01H\x02R\x0eincoherentBarn\x88\x01\x01\x12<\n" +
+	"\vform_factor\x18\x05 \x01(\v2\x1b.modegrid.v1.XrayFormFactorR\n" +
+	"formFactorB\b\n" +
+	"\x06targetB\x0e\n" +
+	"\f_coherent_fmB\x12\n" +
+	"\x10_incoherent_barn\"j\n" +
+	"\vQPathCorner\x12\x14\n" +
+	"\x05label\x18\x01 \x01(\tR\x05label\x12\"\n" +
+	"\x01q\x18\x02 \x01(\v2\x14.modegrid.v1.QVectorR\x01q\x12!\n" +
+	"\fbreak_before\x18\x03 \x01(\bR\vbreakBefore\"S\n" +
+	"\x05QPath\x122\n" +
+	"\acorners\x18\x01 \x03(\v2\x18.modegrid.v1.QPathCornerR\acorners\x12\x16\n" +
+	"\x06points\x18\x02 \x01(\rR\x06points\"\xa2\x02\n" +
+	"\x06QSlice\x12,\n" +
+	"\x06origin\x18\x01 \x01(\v2\x14.modegrid.v1.QVectorR\x06origin\x12/\n" +
+	"\bu_vector\x18\x02 \x01(\v2\x14.modegrid.v1.QVectorR\auVector\x12/\n" +
+	"\bv_vector\x18\x03 \x01(\v2\x14.modegrid.v1.QVectorR\avVector\x12\x13\n" +
+	"\x05u_min\x18\x04 \x01(\x01R\x04uMin\x12\x13\n" +
+	"\x05u_max\x18\x05 \x01(\x01R\x04uMax\x12\x13\n" +
+	"\x05v_min\x18\x06 \x01(\x01R\x04vMin\x12\x13\n" +
+	"\x05v_max\x18\a \x01(\x01R\x04vMax\x12\x19\n" +
+	"\bu_points\x18\b \x01(\rR\auPoints\x12\x19\n" +
+	"\bv_points\x18\t \x01(\rR\avPoints\"5\n" +
+	"\x05QList\x12,\n" +
+	"\x06points\x18\x01 \x03(\v2\x14.modegrid.v1.QVectorR\x06points\"\xcf\x01\n" +
+	"\n" +
+	"PowderSpec\x12\x1d\n" +
+	"\vq_min_inv_a\x18\x01 \x01(\x01R\bqMinInvA\x12\x1d\n" +
+	"\vq_max_inv_a\x18\x02 \x01(\x01R\bqMaxInvA\x12\x19\n" +
+	"\bq_points\x18\x03 \x01(\rR\aqPoints\x12\x1c\n" +
+	"\ttolerance\x18\x04 \x01(\x01R\ttolerance\x12%\n" +
+	"\x0emax_directions\x18\x05 \x01(\rR\rmaxDirections\x12#\n" +
+	"\rcoherent_only\x18\x06 \x01(\bR\fcoherentOnly\"E\n" +
+	"\x0fWeightedDosSpec\x122\n" +
+	"\x04grid\x18\x01 \x01(\v2\x1e.modegrid.v1.MonkhorstPackGridR\x04grid\"t\n" +
+	"\n" +
+	"EnergyAxis\x12\x10\n" +
+	"\x03min\x18\x01 \x01(\x01R\x03min\x12\x10\n" +
+	"\x03max\x18\x02 \x01(\x01R\x03max\x12\x12\n" +
+	"\x04step\x18\x03 \x01(\x01R\x04step\x12.\n" +
+	"\x04unit\x18\x04 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\"A\n" +
+	"\n" +
+	"Resolution\x12\x12\n" +
+	"\x04fwhm\x18\x01 \x03(\x01R\x04fwhm\x12\x1f\n" +
+	"\fq_fwhm_inv_a\x18\x02 \x01(\x01R\tqFwhmInvA\"3\n" +
+	"\vDebyeWaller\x12\x10\n" +
+	"\x03off\x18\x01 \x01(\bR\x03off\x12\x12\n" +
+	"\x04mesh\x18\x02 \x03(\rR\x04mesh\"\x8b\x06\n" +
+	"\x18ComputeScatteringRequest\x12.\n" +
+	"\x05model\x18\x01 \x01(\v2\x18.modegrid.v1.ModelSourceR\x05model\x12(\n" +
+	"\x05probe\x18\x02 \x01(\x0e2\x12.modegrid.v1.ProbeR\x05probe\x126\n" +
+	"\n" +
+	"scatterers\x18\x03 \x03(\v2\x16.modegrid.v1.ScattererR\n" +
+	"scatterers\x12#\n" +
+	"\rtemperature_k\x18\x04 \x01(\x01R\ftemperatureK\x12+\n" +
+	"\x06q_list\x18\x05 \x01(\v2\x12.modegrid.v1.QListH\x00R\x05qList\x12(\n" +
+	"\x04path\x18\x06 \x01(\v2\x12.modegrid.v1.QPathH\x00R\x04path\x12+\n" +
+	"\x05slice\x18\a \x01(\v2\x13.modegrid.v1.QSliceH\x00R\x05slice\x121\n" +
+	"\x06powder\x18\b \x01(\v2\x17.modegrid.v1.PowderSpecH\x00R\x06powder\x12A\n" +
+	"\fweighted_dos\x18\t \x01(\v2\x1c.modegrid.v1.WeightedDosSpecH\x00R\vweightedDos\x12)\n" +
+	"\x05frame\x18\n" +
+	" \x01(\x0e2\x13.modegrid.v1.QFrameR\x05frame\x12%\n" +
+	"\x0econventional_a\x18\v \x01(\x01R\rconventionalA\x12/\n" +
+	"\x06energy\x18\f \x01(\v2\x17.modegrid.v1.EnergyAxisR\x06energy\x127\n" +
+	"\n" +
+	"resolution\x18\r \x01(\v2\x17.modegrid.v1.ResolutionR\n" +
+	"resolution\x12;\n" +
+	"\fdebye_waller\x18\x0e \x01(\v2\x18.modegrid.v1.DebyeWallerR\vdebyeWaller\x12%\n" +
+	"\x0eallow_unstable\x18\x0f \x01(\bR\rallowUnstable\x12\x14\n" +
+	"\x05lines\x18\x10 \x01(\bR\x05linesB\b\n" +
+	"\x06target\"\xc0\x02\n" +
+	"\x0fScatteringPoint\x12+\n" +
+	"\x06q_frac\x18\x01 \x01(\v2\x14.modegrid.v1.QVectorR\x05qFrac\x125\n" +
+	"\fq_cart_inv_a\x18\x02 \x01(\v2\x14.modegrid.v1.QVectorR\tqCartInvA\x12$\n" +
+	"\x0edistance_inv_a\x18\x03 \x01(\x01R\fdistanceInvA\x12\x14\n" +
+	"\x05label\x18\x04 \x01(\tR\x05label\x12\f\n" +
+	"\x01u\x18\x05 \x01(\x01R\x01u\x12\f\n" +
+	"\x01v\x18\x06 \x01(\x01R\x01v\x12\f\n" +
+	"\x01s\x18\a \x03(\x01R\x01s\x12#\n" +
+	"\rmode_energies\x18\b \x03(\x01R\fmodeEnergies\x12\x1a\n" +
+	"\bcreation\x18\t \x03(\x01R\bcreation\x12\"\n" +
+	"\fannihilation\x18\n" +
+	" \x03(\x01R\fannihilation\"i\n" +
+	"\tPowderRow\x12\x16\n" +
+	"\aq_inv_a\x18\x01 \x01(\x01R\x05qInvA\x12\f\n" +
+	"\x01s\x18\x02 \x03(\x01R\x01s\x12\x1e\n" +
+	"\n" +
+	"directions\x18\x03 \x01(\rR\n" +
+	"directions\x12\x16\n" +
+	"\x06change\x18\x04 \x01(\x01R\x06change\"\xaf\x01\n" +
+	"\x0eSiteScattering\x12\x12\n" +
+	"\x04site\x18\x01 \x01(\rR\x04site\x12\x14\n" +
+	"\x05label\x18\x02 \x01(\tR\x05label\x12\x1f\n" +
+	"\vcoherent_fm\x18\x03 \x01(\x01R\n" +
+	"coherentFm\x12'\n" +
+	"\x0fincoherent_barn\x18\x04 \x01(\x01R\x0eincoherentBarn\x12\x16\n" +
+	"\x06source\x18\x05 \x01(\tR\x06source\x12\x11\n" +
+	"\x04u_a2\x18\x06 \x03(\x01R\x03uA2\"\xaf\x06\n" +
+	"\x19ComputeScatteringResponse\x12\x1d\n" +
+	"\n" +
+	"model_hash\x18\x01 \x01(\tR\tmodelHash\x12\x1e\n" +
+	"\n" +
+	"parameters\x18\x02 \x01(\tR\n" +
+	"parameters\x12.\n" +
+	"\x04unit\x18\x03 \x01(\x0e2\x1a.modegrid.v1.FrequencyUnitR\x04unit\x12\x1a\n" +
+	"\benergies\x18\x04 \x03(\x01R\benergies\x12\x12\n" +
+	"\x04fwhm\x18\x05 \x03(\x01R\x04fwhm\x12%\n" +
+	"\x0eintensity_unit\x18\x06 \x01(\tR\rintensityUnit\x124\n" +
+	"\x06points\x18\a \x03(\v2\x1c.modegrid.v1.ScatteringPointR\x06points\x12.\n" +
+	"\x06powder\x18\b \x03(\v2\x16.modegrid.v1.PowderRowR\x06powder\x12!\n" +
+	"\fweighted_dos\x18\t \x03(\x01R\vweightedDos\x126\n" +
+	"\x17weighted_dos_normalized\x18\n" +
+	" \x03(\x01R\x15weightedDosNormalized\x121\n" +
+	"\x05sites\x18\v \x03(\v2\x1b.modegrid.v1.SiteScatteringR\x05sites\x12'\n" +
+	"\x0fimaginary_modes\x18\f \x01(\rR\x0eimaginaryModes\x12*\n" +
+	"\x11debye_waller_mesh\x18\r \x03(\rR\x0fdebyeWallerMesh\x12:\n" +
+	"\x19debye_waller_extrapolated\x18\x0e \x01(\bR\x17debyeWallerExtrapolated\x126\n" +
+	"\x17powder_unconverged_rows\x18\x0f \x01(\rR\x15powderUnconvergedRows\x12,\n" +
+	"\x12powder_group_order\x18\x10 \x01(\rR\x10powderGroupOrder\x12+\n" +
+	"\x11powder_incoherent\x18\x11 \x01(\bR\x10powderIncoherent\x124\n" +
+	"\x16powder_incoherent_mesh\x18\x12 \x03(\rR\x14powderIncoherentMesh*S\n" +
 	"\rModelEncoding\x12\x1e\n" +
 	"\x1aMODEL_ENCODING_UNSPECIFIED\x10\x00\x12\"\n" +
 	"\x1eMODEL_ENCODING_PROTOBUF_BINARY\x10\x01*\x95\x01\n" +
@@ -8084,7 +9929,17 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x1fHEAT_CAPACITY_BASIS_UNSPECIFIED\x10\x00\x12%\n" +
 	"!HEAT_CAPACITY_BASIS_PER_MOL_ATOMS\x10\x01\x12%\n" +
 	"!HEAT_CAPACITY_BASIS_PER_MOL_CELLS\x10\x02\x12\x1e\n" +
-	"\x1aHEAT_CAPACITY_BASIS_PER_KG\x10\x032\xeb\a\n" +
+	"\x1aHEAT_CAPACITY_BASIS_PER_KG\x10\x03*A\n" +
+	"\x05Probe\x12\x15\n" +
+	"\x11PROBE_UNSPECIFIED\x10\x00\x12\x11\n" +
+	"\rPROBE_NEUTRON\x10\x01\x12\x0e\n" +
+	"\n" +
+	"PROBE_XRAY\x10\x02*j\n" +
+	"\x06QFrame\x12\x17\n" +
+	"\x13Q_FRAME_UNSPECIFIED\x10\x00\x12\x16\n" +
+	"\x12Q_FRAME_FRACTIONAL\x10\x01\x12\x15\n" +
+	"\x11Q_FRAME_CARTESIAN\x10\x02\x12\x18\n" +
+	"\x14Q_FRAME_CONVENTIONAL\x10\x032\xcf\b\n" +
 	"\x0fModegridService\x12M\n" +
 	"\n" +
 	"CheckModel\x12\x1e.modegrid.v1.CheckModelRequest\x1a\x1f.modegrid.v1.CheckModelResponse\x12U\n" +
@@ -8098,7 +9953,8 @@ const file_modegrid_v1_service_proto_rawDesc = "" +
 	"\x14ComputeQuasiHarmonic\x12(.modegrid.v1.ComputeQuasiHarmonicRequest\x1a).modegrid.v1.ComputeQuasiHarmonicResponse\x12h\n" +
 	"\x13ComputeConductivity\x12'.modegrid.v1.ComputeConductivityRequest\x1a(.modegrid.v1.ComputeConductivityResponse\x12:\n" +
 	"\x03Fit\x12\x17.modegrid.v1.FitRequest\x1a\x18.modegrid.v1.FitResponse0\x01\x12\\\n" +
-	"\x0fComputeInfrared\x12#.modegrid.v1.ComputeInfraredRequest\x1a$.modegrid.v1.ComputeInfraredResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
+	"\x0fComputeInfrared\x12#.modegrid.v1.ComputeInfraredRequest\x1a$.modegrid.v1.ComputeInfraredResponse\x12b\n" +
+	"\x11ComputeScattering\x12%.modegrid.v1.ComputeScatteringRequest\x1a&.modegrid.v1.ComputeScatteringResponseB@Z>github.com/materials-lab/modegrid/proto/modegrid/v1;modegridv1b\x06proto3"
 
 var (
 	file_modegrid_v1_service_proto_rawDescOnce sync.Once
@@ -8112,8 +9968,8 @@ func file_modegrid_v1_service_proto_rawDescGZIP() []byte {
 	return file_modegrid_v1_service_proto_rawDescData
 }
 
-var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 10)
-var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 71)
+var file_modegrid_v1_service_proto_enumTypes = make([]protoimpl.EnumInfo, 12)
+var file_modegrid_v1_service_proto_msgTypes = make([]protoimpl.MessageInfo, 88)
 var file_modegrid_v1_service_proto_goTypes = []any{
 	(ModelEncoding)(0),                   // 0: modegrid.v1.ModelEncoding
 	(FrequencyUnit)(0),                   // 1: modegrid.v1.FrequencyUnit
@@ -8125,217 +9981,265 @@ var file_modegrid_v1_service_proto_goTypes = []any{
 	(SampleKind)(0),                      // 7: modegrid.v1.SampleKind
 	(Polarization)(0),                    // 8: modegrid.v1.Polarization
 	(HeatCapacityBasis)(0),               // 9: modegrid.v1.HeatCapacityBasis
-	(*ModelSource)(nil),                  // 10: modegrid.v1.ModelSource
-	(*UploadModelHeader)(nil),            // 11: modegrid.v1.UploadModelHeader
-	(*UploadModelRequest)(nil),           // 12: modegrid.v1.UploadModelRequest
-	(*UploadModelResponse)(nil),          // 13: modegrid.v1.UploadModelResponse
-	(*QPoint)(nil),                       // 14: modegrid.v1.QPoint
-	(*QPointList)(nil),                   // 15: modegrid.v1.QPointList
-	(*MonkhorstPackGrid)(nil),            // 16: modegrid.v1.MonkhorstPackGrid
-	(*FiniteCrystal)(nil),                // 17: modegrid.v1.FiniteCrystal
-	(*QPointSet)(nil),                    // 18: modegrid.v1.QPointSet
-	(*ComputeModesRequest)(nil),          // 19: modegrid.v1.ComputeModesRequest
-	(*Modes)(nil),                        // 20: modegrid.v1.Modes
-	(*ComputeModesResponse)(nil),         // 21: modegrid.v1.ComputeModesResponse
-	(*PathPoint)(nil),                    // 22: modegrid.v1.PathPoint
-	(*ComputeDispersionRequest)(nil),     // 23: modegrid.v1.ComputeDispersionRequest
-	(*DispersionSample)(nil),             // 24: modegrid.v1.DispersionSample
-	(*ComputeDispersionResponse)(nil),    // 25: modegrid.v1.ComputeDispersionResponse
-	(*ComputeDosRequest)(nil),            // 26: modegrid.v1.ComputeDosRequest
-	(*ProjectedDos)(nil),                 // 27: modegrid.v1.ProjectedDos
-	(*ComputeDosResponse)(nil),           // 28: modegrid.v1.ComputeDosResponse
-	(*TemperatureRange)(nil),             // 29: modegrid.v1.TemperatureRange
-	(*ComputeThermalRequest)(nil),        // 30: modegrid.v1.ComputeThermalRequest
-	(*SiteDisplacement)(nil),             // 31: modegrid.v1.SiteDisplacement
-	(*ThermalPoint)(nil),                 // 32: modegrid.v1.ThermalPoint
-	(*ComputeThermalResponse)(nil),       // 33: modegrid.v1.ComputeThermalResponse
-	(*CheckModelRequest)(nil),            // 34: modegrid.v1.CheckModelRequest
-	(*FieldViolation)(nil),               // 35: modegrid.v1.FieldViolation
-	(*ShellBonds)(nil),                   // 36: modegrid.v1.ShellBonds
-	(*SymmetryOperation)(nil),            // 37: modegrid.v1.SymmetryOperation
-	(*CheckModelResponse)(nil),           // 38: modegrid.v1.CheckModelResponse
-	(*PolarCheck)(nil),                   // 39: modegrid.v1.PolarCheck
-	(*SupercellFold)(nil),                // 40: modegrid.v1.SupercellFold
-	(*SymmetryAtTolerance)(nil),          // 41: modegrid.v1.SymmetryAtTolerance
-	(*RequestCost)(nil),                  // 42: modegrid.v1.RequestCost
-	(*ComputeGruneisenRequest)(nil),      // 43: modegrid.v1.ComputeGruneisenRequest
-	(*GruneisenPoint)(nil),               // 44: modegrid.v1.GruneisenPoint
-	(*GammaAtTemperature)(nil),           // 45: modegrid.v1.GammaAtTemperature
-	(*ComputeGruneisenResponse)(nil),     // 46: modegrid.v1.ComputeGruneisenResponse
-	(*ComputeQuasiHarmonicRequest)(nil),  // 47: modegrid.v1.ComputeQuasiHarmonicRequest
-	(*EosFit)(nil),                       // 48: modegrid.v1.EosFit
-	(*QuasiHarmonicPoint)(nil),           // 49: modegrid.v1.QuasiHarmonicPoint
-	(*ComputeQuasiHarmonicResponse)(nil), // 50: modegrid.v1.ComputeQuasiHarmonicResponse
-	(*SampleGeometry)(nil),               // 51: modegrid.v1.SampleGeometry
-	(*PointDefectScattering)(nil),        // 52: modegrid.v1.PointDefectScattering
-	(*UmklappScattering)(nil),            // 53: modegrid.v1.UmklappScattering
-	(*PowerLawScattering)(nil),           // 54: modegrid.v1.PowerLawScattering
-	(*ComputeConductivityRequest)(nil),   // 55: modegrid.v1.ComputeConductivityRequest
-	(*ConductivityPoint)(nil),            // 56: modegrid.v1.ConductivityPoint
-	(*CumulativeConductivity)(nil),       // 57: modegrid.v1.CumulativeConductivity
-	(*ConductivitySeries)(nil),           // 58: modegrid.v1.ConductivitySeries
-	(*ComputeConductivityResponse)(nil),  // 59: modegrid.v1.ComputeConductivityResponse
-	(*FitRequest)(nil),                   // 60: modegrid.v1.FitRequest
-	(*FitParameter)(nil),                 // 61: modegrid.v1.FitParameter
-	(*FitTie)(nil),                       // 62: modegrid.v1.FitTie
-	(*FrequencyDatum)(nil),               // 63: modegrid.v1.FrequencyDatum
-	(*GammaFrequencyDatum)(nil),          // 64: modegrid.v1.GammaFrequencyDatum
-	(*SoundVelocityDatum)(nil),           // 65: modegrid.v1.SoundVelocityDatum
-	(*ElasticConstantDatum)(nil),         // 66: modegrid.v1.ElasticConstantDatum
-	(*HeatCapacityData)(nil),             // 67: modegrid.v1.HeatCapacityData
-	(*HeatCapacityPoint)(nil),            // 68: modegrid.v1.HeatCapacityPoint
-	(*FitResponse)(nil),                  // 69: modegrid.v1.FitResponse
-	(*FitProgress)(nil),                  // 70: modegrid.v1.FitProgress
-	(*FitResult)(nil),                    // 71: modegrid.v1.FitResult
-	(*FittedParameter)(nil),              // 72: modegrid.v1.FittedParameter
-	(*FittedTie)(nil),                    // 73: modegrid.v1.FittedTie
-	(*FitResidual)(nil),                  // 74: modegrid.v1.FitResidual
-	(*UndeterminedParameters)(nil),       // 75: modegrid.v1.UndeterminedParameters
-	(*ParameterCombination)(nil),         // 76: modegrid.v1.ParameterCombination
-	(*ComputeInfraredRequest)(nil),       // 77: modegrid.v1.ComputeInfraredRequest
-	(*InfraredMode)(nil),                 // 78: modegrid.v1.InfraredMode
-	(*InfraredSample)(nil),               // 79: modegrid.v1.InfraredSample
-	(*ComputeInfraredResponse)(nil),      // 80: modegrid.v1.ComputeInfraredResponse
-	(*Crystal)(nil),                      // 81: modegrid.v1.Crystal
-	(*Vec3)(nil),                         // 82: modegrid.v1.Vec3
+	(Probe)(0),                           // 10: modegrid.v1.Probe
+	(QFrame)(0),                          // 11: modegrid.v1.QFrame
+	(*ModelSource)(nil),                  // 12: modegrid.v1.ModelSource
+	(*UploadModelHeader)(nil),            // 13: modegrid.v1.UploadModelHeader
+	(*UploadModelRequest)(nil),           // 14: modegrid.v1.UploadModelRequest
+	(*UploadModelResponse)(nil),          // 15: modegrid.v1.UploadModelResponse
+	(*QPoint)(nil),                       // 16: modegrid.v1.QPoint
+	(*QPointList)(nil),                   // 17: modegrid.v1.QPointList
+	(*MonkhorstPackGrid)(nil),            // 18: modegrid.v1.MonkhorstPackGrid
+	(*FiniteCrystal)(nil),                // 19: modegrid.v1.FiniteCrystal
+	(*QPointSet)(nil),                    // 20: modegrid.v1.QPointSet
+	(*ComputeModesRequest)(nil),          // 21: modegrid.v1.ComputeModesRequest
+	(*Modes)(nil),                        // 22: modegrid.v1.Modes
+	(*ComputeModesResponse)(nil),         // 23: modegrid.v1.ComputeModesResponse
+	(*PathPoint)(nil),                    // 24: modegrid.v1.PathPoint
+	(*ComputeDispersionRequest)(nil),     // 25: modegrid.v1.ComputeDispersionRequest
+	(*DispersionSample)(nil),             // 26: modegrid.v1.DispersionSample
+	(*ComputeDispersionResponse)(nil),    // 27: modegrid.v1.ComputeDispersionResponse
+	(*ComputeDosRequest)(nil),            // 28: modegrid.v1.ComputeDosRequest
+	(*ProjectedDos)(nil),                 // 29: modegrid.v1.ProjectedDos
+	(*ComputeDosResponse)(nil),           // 30: modegrid.v1.ComputeDosResponse
+	(*TemperatureRange)(nil),             // 31: modegrid.v1.TemperatureRange
+	(*ComputeThermalRequest)(nil),        // 32: modegrid.v1.ComputeThermalRequest
+	(*SiteDisplacement)(nil),             // 33: modegrid.v1.SiteDisplacement
+	(*ThermalPoint)(nil),                 // 34: modegrid.v1.ThermalPoint
+	(*ComputeThermalResponse)(nil),       // 35: modegrid.v1.ComputeThermalResponse
+	(*CheckModelRequest)(nil),            // 36: modegrid.v1.CheckModelRequest
+	(*FieldViolation)(nil),               // 37: modegrid.v1.FieldViolation
+	(*ShellBonds)(nil),                   // 38: modegrid.v1.ShellBonds
+	(*SymmetryOperation)(nil),            // 39: modegrid.v1.SymmetryOperation
+	(*CheckModelResponse)(nil),           // 40: modegrid.v1.CheckModelResponse
+	(*PolarCheck)(nil),                   // 41: modegrid.v1.PolarCheck
+	(*SupercellFold)(nil),                // 42: modegrid.v1.SupercellFold
+	(*SymmetryAtTolerance)(nil),          // 43: modegrid.v1.SymmetryAtTolerance
+	(*RequestCost)(nil),                  // 44: modegrid.v1.RequestCost
+	(*ComputeGruneisenRequest)(nil),      // 45: modegrid.v1.ComputeGruneisenRequest
+	(*GruneisenPoint)(nil),               // 46: modegrid.v1.GruneisenPoint
+	(*GammaAtTemperature)(nil),           // 47: modegrid.v1.GammaAtTemperature
+	(*ComputeGruneisenResponse)(nil),     // 48: modegrid.v1.ComputeGruneisenResponse
+	(*ComputeQuasiHarmonicRequest)(nil),  // 49: modegrid.v1.ComputeQuasiHarmonicRequest
+	(*EosFit)(nil),                       // 50: modegrid.v1.EosFit
+	(*QuasiHarmonicPoint)(nil),           // 51: modegrid.v1.QuasiHarmonicPoint
+	(*ComputeQuasiHarmonicResponse)(nil), // 52: modegrid.v1.ComputeQuasiHarmonicResponse
+	(*SampleGeometry)(nil),               // 53: modegrid.v1.SampleGeometry
+	(*PointDefectScattering)(nil),        // 54: modegrid.v1.PointDefectScattering
+	(*UmklappScattering)(nil),            // 55: modegrid.v1.UmklappScattering
+	(*PowerLawScattering)(nil),           // 56: modegrid.v1.PowerLawScattering
+	(*ComputeConductivityRequest)(nil),   // 57: modegrid.v1.ComputeConductivityRequest
+	(*ConductivityPoint)(nil),            // 58: modegrid.v1.ConductivityPoint
+	(*CumulativeConductivity)(nil),       // 59: modegrid.v1.CumulativeConductivity
+	(*ConductivitySeries)(nil),           // 60: modegrid.v1.ConductivitySeries
+	(*ComputeConductivityResponse)(nil),  // 61: modegrid.v1.ComputeConductivityResponse
+	(*FitRequest)(nil),                   // 62: modegrid.v1.FitRequest
+	(*FitParameter)(nil),                 // 63: modegrid.v1.FitParameter
+	(*FitTie)(nil),                       // 64: modegrid.v1.FitTie
+	(*FrequencyDatum)(nil),               // 65: modegrid.v1.FrequencyDatum
+	(*GammaFrequencyDatum)(nil),          // 66: modegrid.v1.GammaFrequencyDatum
+	(*SoundVelocityDatum)(nil),           // 67: modegrid.v1.SoundVelocityDatum
+	(*ElasticConstantDatum)(nil),         // 68: modegrid.v1.ElasticConstantDatum
+	(*HeatCapacityData)(nil),             // 69: modegrid.v1.HeatCapacityData
+	(*HeatCapacityPoint)(nil),            // 70: modegrid.v1.HeatCapacityPoint
+	(*FitResponse)(nil),                  // 71: modegrid.v1.FitResponse
+	(*FitProgress)(nil),                  // 72: modegrid.v1.FitProgress
+	(*FitResult)(nil),                    // 73: modegrid.v1.FitResult
+	(*FittedParameter)(nil),              // 74: modegrid.v1.FittedParameter
+	(*FittedTie)(nil),                    // 75: modegrid.v1.FittedTie
+	(*FitResidual)(nil),                  // 76: modegrid.v1.FitResidual
+	(*UndeterminedParameters)(nil),       // 77: modegrid.v1.UndeterminedParameters
+	(*ParameterCombination)(nil),         // 78: modegrid.v1.ParameterCombination
+	(*ComputeInfraredRequest)(nil),       // 79: modegrid.v1.ComputeInfraredRequest
+	(*InfraredMode)(nil),                 // 80: modegrid.v1.InfraredMode
+	(*InfraredSample)(nil),               // 81: modegrid.v1.InfraredSample
+	(*ComputeInfraredResponse)(nil),      // 82: modegrid.v1.ComputeInfraredResponse
+	(*QVector)(nil),                      // 83: modegrid.v1.QVector
+	(*XrayFormFactor)(nil),               // 84: modegrid.v1.XrayFormFactor
+	(*Scatterer)(nil),                    // 85: modegrid.v1.Scatterer
+	(*QPathCorner)(nil),                  // 86: modegrid.v1.QPathCorner
+	(*QPath)(nil),                        // 87: modegrid.v1.QPath
+	(*QSlice)(nil),                       // 88: modegrid.v1.QSlice
+	(*QList)(nil),                        // 89: modegrid.v1.QList
+	(*PowderSpec)(nil),                   // 90: modegrid.v1.PowderSpec
+	(*WeightedDosSpec)(nil),              // 91: modegrid.v1.WeightedDosSpec
+	(*EnergyAxis)(nil),                   // 92: modegrid.v1.EnergyAxis
+	(*Resolution)(nil),                   // 93: modegrid.v1.Resolution
+	(*DebyeWaller)(nil),                  // 94: modegrid.v1.DebyeWaller
+	(*ComputeScatteringRequest)(nil),     // 95: modegrid.v1.ComputeScatteringRequest
+	(*ScatteringPoint)(nil),              // 96: modegrid.v1.ScatteringPoint
+	(*PowderRow)(nil),                    // 97: modegrid.v1.PowderRow
+	(*SiteScattering)(nil),               // 98: modegrid.v1.SiteScattering
+	(*ComputeScatteringResponse)(nil),    // 99: modegrid.v1.ComputeScatteringResponse
+	(*Crystal)(nil),                      // 100: modegrid.v1.Crystal
+	(*Vec3)(nil),                         // 101: modegrid.v1.Vec3
 }
 var file_modegrid_v1_service_proto_depIdxs = []int32{
-	81,  // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
+	100, // 0: modegrid.v1.ModelSource.crystal:type_name -> modegrid.v1.Crystal
 	0,   // 1: modegrid.v1.UploadModelHeader.encoding:type_name -> modegrid.v1.ModelEncoding
-	10,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
-	11,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
-	40,  // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	14,  // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
-	14,  // 6: modegrid.v1.QPointList.gamma_directions:type_name -> modegrid.v1.QPoint
-	15,  // 7: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
-	16,  // 8: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
-	17,  // 9: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
-	10,  // 10: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 11: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	12,  // 2: modegrid.v1.UploadModelHeader.model:type_name -> modegrid.v1.ModelSource
+	13,  // 3: modegrid.v1.UploadModelRequest.header:type_name -> modegrid.v1.UploadModelHeader
+	42,  // 4: modegrid.v1.UploadModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	16,  // 5: modegrid.v1.QPointList.points:type_name -> modegrid.v1.QPoint
+	16,  // 6: modegrid.v1.QPointList.gamma_directions:type_name -> modegrid.v1.QPoint
+	17,  // 7: modegrid.v1.QPointSet.list:type_name -> modegrid.v1.QPointList
+	18,  // 8: modegrid.v1.QPointSet.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	19,  // 9: modegrid.v1.QPointSet.cells:type_name -> modegrid.v1.FiniteCrystal
+	12,  // 10: modegrid.v1.ComputeModesRequest.model:type_name -> modegrid.v1.ModelSource
+	20,  // 11: modegrid.v1.ComputeModesRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	1,   // 12: modegrid.v1.ComputeModesRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	14,  // 13: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
-	14,  // 14: modegrid.v1.Modes.gamma_direction:type_name -> modegrid.v1.QPoint
+	16,  // 13: modegrid.v1.Modes.q:type_name -> modegrid.v1.QPoint
+	16,  // 14: modegrid.v1.Modes.gamma_direction:type_name -> modegrid.v1.QPoint
 	1,   // 15: modegrid.v1.ComputeModesResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	20,  // 16: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
-	14,  // 17: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
-	10,  // 18: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
-	22,  // 19: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
+	22,  // 16: modegrid.v1.ComputeModesResponse.points:type_name -> modegrid.v1.Modes
+	16,  // 17: modegrid.v1.PathPoint.q:type_name -> modegrid.v1.QPoint
+	12,  // 18: modegrid.v1.ComputeDispersionRequest.model:type_name -> modegrid.v1.ModelSource
+	24,  // 19: modegrid.v1.ComputeDispersionRequest.path:type_name -> modegrid.v1.PathPoint
 	1,   // 20: modegrid.v1.ComputeDispersionRequest.unit:type_name -> modegrid.v1.FrequencyUnit
-	14,  // 21: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
-	14,  // 22: modegrid.v1.DispersionSample.gamma_direction:type_name -> modegrid.v1.QPoint
+	16,  // 21: modegrid.v1.DispersionSample.q:type_name -> modegrid.v1.QPoint
+	16,  // 22: modegrid.v1.DispersionSample.gamma_direction:type_name -> modegrid.v1.QPoint
 	1,   // 23: modegrid.v1.ComputeDispersionResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	24,  // 24: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
-	10,  // 25: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 26: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	26,  // 24: modegrid.v1.ComputeDispersionResponse.samples:type_name -> modegrid.v1.DispersionSample
+	12,  // 25: modegrid.v1.ComputeDosRequest.model:type_name -> modegrid.v1.ModelSource
+	20,  // 26: modegrid.v1.ComputeDosRequest.qpoints:type_name -> modegrid.v1.QPointSet
 	2,   // 27: modegrid.v1.ComputeDosRequest.method:type_name -> modegrid.v1.DosMethod
 	1,   // 28: modegrid.v1.ComputeDosRequest.unit:type_name -> modegrid.v1.FrequencyUnit
 	3,   // 29: modegrid.v1.ComputeDosRequest.imaginary:type_name -> modegrid.v1.ImaginaryModes
 	1,   // 30: modegrid.v1.ComputeDosResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	27,  // 31: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
-	27,  // 32: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
-	10,  // 33: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 34: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 35: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
+	29,  // 31: modegrid.v1.ComputeDosResponse.sites:type_name -> modegrid.v1.ProjectedDos
+	29,  // 32: modegrid.v1.ComputeDosResponse.labels:type_name -> modegrid.v1.ProjectedDos
+	12,  // 33: modegrid.v1.ComputeThermalRequest.model:type_name -> modegrid.v1.ModelSource
+	20,  // 34: modegrid.v1.ComputeThermalRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	31,  // 35: modegrid.v1.ComputeThermalRequest.range:type_name -> modegrid.v1.TemperatureRange
 	4,   // 36: modegrid.v1.ComputeThermalRequest.route:type_name -> modegrid.v1.ThermalRoute
-	31,  // 37: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
+	33,  // 37: modegrid.v1.ThermalPoint.displacements:type_name -> modegrid.v1.SiteDisplacement
 	5,   // 38: modegrid.v1.ThermalPoint.debye_temperature_status:type_name -> modegrid.v1.DebyeTemperatureStatus
-	32,  // 39: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
-	10,  // 40: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
-	35,  // 41: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
-	36,  // 42: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
-	37,  // 43: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
-	22,  // 44: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
-	42,  // 45: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
-	22,  // 46: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
-	41,  // 47: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
-	40,  // 48: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
-	39,  // 49: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
-	10,  // 50: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
-	18,  // 51: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	22,  // 52: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
-	29,  // 53: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
-	14,  // 54: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
-	44,  // 55: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
-	45,  // 56: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
-	10,  // 57: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
-	18,  // 58: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 59: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
+	34,  // 39: modegrid.v1.ComputeThermalResponse.points:type_name -> modegrid.v1.ThermalPoint
+	12,  // 40: modegrid.v1.CheckModelRequest.model:type_name -> modegrid.v1.ModelSource
+	37,  // 41: modegrid.v1.CheckModelResponse.violations:type_name -> modegrid.v1.FieldViolation
+	38,  // 42: modegrid.v1.CheckModelResponse.shells:type_name -> modegrid.v1.ShellBonds
+	39,  // 43: modegrid.v1.CheckModelResponse.symmetry:type_name -> modegrid.v1.SymmetryOperation
+	24,  // 44: modegrid.v1.CheckModelResponse.standard_points:type_name -> modegrid.v1.PathPoint
+	44,  // 45: modegrid.v1.CheckModelResponse.typical_costs:type_name -> modegrid.v1.RequestCost
+	24,  // 46: modegrid.v1.CheckModelResponse.default_path:type_name -> modegrid.v1.PathPoint
+	43,  // 47: modegrid.v1.CheckModelResponse.symmetry_at_looser_tolerance:type_name -> modegrid.v1.SymmetryAtTolerance
+	42,  // 48: modegrid.v1.CheckModelResponse.supercell_fold:type_name -> modegrid.v1.SupercellFold
+	41,  // 49: modegrid.v1.CheckModelResponse.polar:type_name -> modegrid.v1.PolarCheck
+	12,  // 50: modegrid.v1.ComputeGruneisenRequest.models:type_name -> modegrid.v1.ModelSource
+	20,  // 51: modegrid.v1.ComputeGruneisenRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	24,  // 52: modegrid.v1.ComputeGruneisenRequest.path:type_name -> modegrid.v1.PathPoint
+	31,  // 53: modegrid.v1.ComputeGruneisenRequest.range:type_name -> modegrid.v1.TemperatureRange
+	16,  // 54: modegrid.v1.GruneisenPoint.q:type_name -> modegrid.v1.QPoint
+	46,  // 55: modegrid.v1.ComputeGruneisenResponse.points:type_name -> modegrid.v1.GruneisenPoint
+	47,  // 56: modegrid.v1.ComputeGruneisenResponse.averages:type_name -> modegrid.v1.GammaAtTemperature
+	12,  // 57: modegrid.v1.ComputeQuasiHarmonicRequest.models:type_name -> modegrid.v1.ModelSource
+	20,  // 58: modegrid.v1.ComputeQuasiHarmonicRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	31,  // 59: modegrid.v1.ComputeQuasiHarmonicRequest.range:type_name -> modegrid.v1.TemperatureRange
 	6,   // 60: modegrid.v1.ComputeQuasiHarmonicRequest.eos:type_name -> modegrid.v1.EquationOfState
-	48,  // 61: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
-	48,  // 62: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
-	49,  // 63: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
+	50,  // 61: modegrid.v1.QuasiHarmonicPoint.fit:type_name -> modegrid.v1.EosFit
+	50,  // 62: modegrid.v1.ComputeQuasiHarmonicResponse.static_fit:type_name -> modegrid.v1.EosFit
+	51,  // 63: modegrid.v1.ComputeQuasiHarmonicResponse.points:type_name -> modegrid.v1.QuasiHarmonicPoint
 	7,   // 64: modegrid.v1.SampleGeometry.kind:type_name -> modegrid.v1.SampleKind
-	82,  // 65: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
-	10,  // 66: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
-	10,  // 67: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
-	18,  // 68: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
-	29,  // 69: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
-	51,  // 70: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
-	52,  // 71: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
-	53,  // 72: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
-	54,  // 73: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
-	51,  // 74: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
-	56,  // 75: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
-	57,  // 76: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
-	58,  // 77: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
-	10,  // 78: modegrid.v1.FitRequest.model:type_name -> modegrid.v1.ModelSource
-	61,  // 79: modegrid.v1.FitRequest.free:type_name -> modegrid.v1.FitParameter
-	62,  // 80: modegrid.v1.FitRequest.ties:type_name -> modegrid.v1.FitTie
-	63,  // 81: modegrid.v1.FitRequest.frequencies:type_name -> modegrid.v1.FrequencyDatum
-	64,  // 82: modegrid.v1.FitRequest.gamma_frequencies:type_name -> modegrid.v1.GammaFrequencyDatum
-	65,  // 83: modegrid.v1.FitRequest.sound_velocities:type_name -> modegrid.v1.SoundVelocityDatum
-	66,  // 84: modegrid.v1.FitRequest.elastic_constants:type_name -> modegrid.v1.ElasticConstantDatum
-	67,  // 85: modegrid.v1.FitRequest.heat_capacities:type_name -> modegrid.v1.HeatCapacityData
-	14,  // 86: modegrid.v1.FrequencyDatum.q:type_name -> modegrid.v1.QPoint
+	101, // 65: modegrid.v1.SampleGeometry.normal:type_name -> modegrid.v1.Vec3
+	12,  // 66: modegrid.v1.UmklappScattering.volume_models:type_name -> modegrid.v1.ModelSource
+	12,  // 67: modegrid.v1.ComputeConductivityRequest.model:type_name -> modegrid.v1.ModelSource
+	20,  // 68: modegrid.v1.ComputeConductivityRequest.qpoints:type_name -> modegrid.v1.QPointSet
+	31,  // 69: modegrid.v1.ComputeConductivityRequest.range:type_name -> modegrid.v1.TemperatureRange
+	53,  // 70: modegrid.v1.ComputeConductivityRequest.samples:type_name -> modegrid.v1.SampleGeometry
+	54,  // 71: modegrid.v1.ComputeConductivityRequest.point_defects:type_name -> modegrid.v1.PointDefectScattering
+	55,  // 72: modegrid.v1.ComputeConductivityRequest.umklapp:type_name -> modegrid.v1.UmklappScattering
+	56,  // 73: modegrid.v1.ComputeConductivityRequest.power_law:type_name -> modegrid.v1.PowerLawScattering
+	53,  // 74: modegrid.v1.ConductivitySeries.sample:type_name -> modegrid.v1.SampleGeometry
+	58,  // 75: modegrid.v1.ConductivitySeries.points:type_name -> modegrid.v1.ConductivityPoint
+	59,  // 76: modegrid.v1.ConductivitySeries.cumulative:type_name -> modegrid.v1.CumulativeConductivity
+	60,  // 77: modegrid.v1.ComputeConductivityResponse.series:type_name -> modegrid.v1.ConductivitySeries
+	12,  // 78: modegrid.v1.FitRequest.model:type_name -> modegrid.v1.ModelSource
+	63,  // 79: modegrid.v1.FitRequest.free:type_name -> modegrid.v1.FitParameter
+	64,  // 80: modegrid.v1.FitRequest.ties:type_name -> modegrid.v1.FitTie
+	65,  // 81: modegrid.v1.FitRequest.frequencies:type_name -> modegrid.v1.FrequencyDatum
+	66,  // 82: modegrid.v1.FitRequest.gamma_frequencies:type_name -> modegrid.v1.GammaFrequencyDatum
+	67,  // 83: modegrid.v1.FitRequest.sound_velocities:type_name -> modegrid.v1.SoundVelocityDatum
+	68,  // 84: modegrid.v1.FitRequest.elastic_constants:type_name -> modegrid.v1.ElasticConstantDatum
+	69,  // 85: modegrid.v1.FitRequest.heat_capacities:type_name -> modegrid.v1.HeatCapacityData
+	16,  // 86: modegrid.v1.FrequencyDatum.q:type_name -> modegrid.v1.QPoint
 	8,   // 87: modegrid.v1.FrequencyDatum.polarization:type_name -> modegrid.v1.Polarization
-	82,  // 88: modegrid.v1.SoundVelocityDatum.direction:type_name -> modegrid.v1.Vec3
+	101, // 88: modegrid.v1.SoundVelocityDatum.direction:type_name -> modegrid.v1.Vec3
 	8,   // 89: modegrid.v1.SoundVelocityDatum.polarization:type_name -> modegrid.v1.Polarization
-	16,  // 90: modegrid.v1.HeatCapacityData.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	18,  // 90: modegrid.v1.HeatCapacityData.grid:type_name -> modegrid.v1.MonkhorstPackGrid
 	9,   // 91: modegrid.v1.HeatCapacityData.basis:type_name -> modegrid.v1.HeatCapacityBasis
-	68,  // 92: modegrid.v1.HeatCapacityData.points:type_name -> modegrid.v1.HeatCapacityPoint
-	70,  // 93: modegrid.v1.FitResponse.progress:type_name -> modegrid.v1.FitProgress
-	71,  // 94: modegrid.v1.FitResponse.result:type_name -> modegrid.v1.FitResult
-	81,  // 95: modegrid.v1.FitResult.fitted:type_name -> modegrid.v1.Crystal
-	72,  // 96: modegrid.v1.FitResult.parameters:type_name -> modegrid.v1.FittedParameter
-	73,  // 97: modegrid.v1.FitResult.ties:type_name -> modegrid.v1.FittedTie
-	74,  // 98: modegrid.v1.FitResult.residuals:type_name -> modegrid.v1.FitResidual
-	75,  // 99: modegrid.v1.FitResult.undetermined:type_name -> modegrid.v1.UndeterminedParameters
-	76,  // 100: modegrid.v1.UndeterminedParameters.determined:type_name -> modegrid.v1.ParameterCombination
-	76,  // 101: modegrid.v1.UndeterminedParameters.flat:type_name -> modegrid.v1.ParameterCombination
-	10,  // 102: modegrid.v1.ComputeInfraredRequest.model:type_name -> modegrid.v1.ModelSource
-	82,  // 103: modegrid.v1.ComputeInfraredRequest.direction:type_name -> modegrid.v1.Vec3
+	70,  // 92: modegrid.v1.HeatCapacityData.points:type_name -> modegrid.v1.HeatCapacityPoint
+	72,  // 93: modegrid.v1.FitResponse.progress:type_name -> modegrid.v1.FitProgress
+	73,  // 94: modegrid.v1.FitResponse.result:type_name -> modegrid.v1.FitResult
+	100, // 95: modegrid.v1.FitResult.fitted:type_name -> modegrid.v1.Crystal
+	74,  // 96: modegrid.v1.FitResult.parameters:type_name -> modegrid.v1.FittedParameter
+	75,  // 97: modegrid.v1.FitResult.ties:type_name -> modegrid.v1.FittedTie
+	76,  // 98: modegrid.v1.FitResult.residuals:type_name -> modegrid.v1.FitResidual
+	77,  // 99: modegrid.v1.FitResult.undetermined:type_name -> modegrid.v1.UndeterminedParameters
+	78,  // 100: modegrid.v1.UndeterminedParameters.determined:type_name -> modegrid.v1.ParameterCombination
+	78,  // 101: modegrid.v1.UndeterminedParameters.flat:type_name -> modegrid.v1.ParameterCombination
+	12,  // 102: modegrid.v1.ComputeInfraredRequest.model:type_name -> modegrid.v1.ModelSource
+	101, // 103: modegrid.v1.ComputeInfraredRequest.direction:type_name -> modegrid.v1.Vec3
 	1,   // 104: modegrid.v1.ComputeInfraredRequest.unit:type_name -> modegrid.v1.FrequencyUnit
 	1,   // 105: modegrid.v1.ComputeInfraredResponse.unit:type_name -> modegrid.v1.FrequencyUnit
-	82,  // 106: modegrid.v1.ComputeInfraredResponse.direction:type_name -> modegrid.v1.Vec3
-	78,  // 107: modegrid.v1.ComputeInfraredResponse.modes:type_name -> modegrid.v1.InfraredMode
-	79,  // 108: modegrid.v1.ComputeInfraredResponse.samples:type_name -> modegrid.v1.InfraredSample
-	34,  // 109: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
-	19,  // 110: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
-	23,  // 111: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
-	26,  // 112: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
-	30,  // 113: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
-	12,  // 114: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
-	43,  // 115: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
-	47,  // 116: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
-	55,  // 117: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
-	60,  // 118: modegrid.v1.ModegridService.Fit:input_type -> modegrid.v1.FitRequest
-	77,  // 119: modegrid.v1.ModegridService.ComputeInfrared:input_type -> modegrid.v1.ComputeInfraredRequest
-	38,  // 120: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
-	21,  // 121: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
-	25,  // 122: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
-	28,  // 123: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
-	33,  // 124: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
-	13,  // 125: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
-	46,  // 126: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
-	50,  // 127: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
-	59,  // 128: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
-	69,  // 129: modegrid.v1.ModegridService.Fit:output_type -> modegrid.v1.FitResponse
-	80,  // 130: modegrid.v1.ModegridService.ComputeInfrared:output_type -> modegrid.v1.ComputeInfraredResponse
-	120, // [120:131] is the sub-list for method output_type
-	109, // [109:120] is the sub-list for method input_type
-	109, // [109:109] is the sub-list for extension type_name
-	109, // [109:109] is the sub-list for extension extendee
-	0,   // [0:109] is the sub-list for field type_name
+	101, // 106: modegrid.v1.ComputeInfraredResponse.direction:type_name -> modegrid.v1.Vec3
+	80,  // 107: modegrid.v1.ComputeInfraredResponse.modes:type_name -> modegrid.v1.InfraredMode
+	81,  // 108: modegrid.v1.ComputeInfraredResponse.samples:type_name -> modegrid.v1.InfraredSample
+	84,  // 109: modegrid.v1.Scatterer.form_factor:type_name -> modegrid.v1.XrayFormFactor
+	83,  // 110: modegrid.v1.QPathCorner.q:type_name -> modegrid.v1.QVector
+	86,  // 111: modegrid.v1.QPath.corners:type_name -> modegrid.v1.QPathCorner
+	83,  // 112: modegrid.v1.QSlice.origin:type_name -> modegrid.v1.QVector
+	83,  // 113: modegrid.v1.QSlice.u_vector:type_name -> modegrid.v1.QVector
+	83,  // 114: modegrid.v1.QSlice.v_vector:type_name -> modegrid.v1.QVector
+	83,  // 115: modegrid.v1.QList.points:type_name -> modegrid.v1.QVector
+	18,  // 116: modegrid.v1.WeightedDosSpec.grid:type_name -> modegrid.v1.MonkhorstPackGrid
+	1,   // 117: modegrid.v1.EnergyAxis.unit:type_name -> modegrid.v1.FrequencyUnit
+	12,  // 118: modegrid.v1.ComputeScatteringRequest.model:type_name -> modegrid.v1.ModelSource
+	10,  // 119: modegrid.v1.ComputeScatteringRequest.probe:type_name -> modegrid.v1.Probe
+	85,  // 120: modegrid.v1.ComputeScatteringRequest.scatterers:type_name -> modegrid.v1.Scatterer
+	89,  // 121: modegrid.v1.ComputeScatteringRequest.q_list:type_name -> modegrid.v1.QList
+	87,  // 122: modegrid.v1.ComputeScatteringRequest.path:type_name -> modegrid.v1.QPath
+	88,  // 123: modegrid.v1.ComputeScatteringRequest.slice:type_name -> modegrid.v1.QSlice
+	90,  // 124: modegrid.v1.ComputeScatteringRequest.powder:type_name -> modegrid.v1.PowderSpec
+	91,  // 125: modegrid.v1.ComputeScatteringRequest.weighted_dos:type_name -> modegrid.v1.WeightedDosSpec
+	11,  // 126: modegrid.v1.ComputeScatteringRequest.frame:type_name -> modegrid.v1.QFrame
+	92,  // 127: modegrid.v1.ComputeScatteringRequest.energy:type_name -> modegrid.v1.EnergyAxis
+	93,  // 128: modegrid.v1.ComputeScatteringRequest.resolution:type_name -> modegrid.v1.Resolution
+	94,  // 129: modegrid.v1.ComputeScatteringRequest.debye_waller:type_name -> modegrid.v1.DebyeWaller
+	83,  // 130: modegrid.v1.ScatteringPoint.q_frac:type_name -> modegrid.v1.QVector
+	83,  // 131: modegrid.v1.ScatteringPoint.q_cart_inv_a:type_name -> modegrid.v1.QVector
+	1,   // 132: modegrid.v1.ComputeScatteringResponse.unit:type_name -> modegrid.v1.FrequencyUnit
+	96,  // 133: modegrid.v1.ComputeScatteringResponse.points:type_name -> modegrid.v1.ScatteringPoint
+	97,  // 134: modegrid.v1.ComputeScatteringResponse.powder:type_name -> modegrid.v1.PowderRow
+	98,  // 135: modegrid.v1.ComputeScatteringResponse.sites:type_name -> modegrid.v1.SiteScattering
+	36,  // 136: modegrid.v1.ModegridService.CheckModel:input_type -> modegrid.v1.CheckModelRequest
+	21,  // 137: modegrid.v1.ModegridService.ComputeModes:input_type -> modegrid.v1.ComputeModesRequest
+	25,  // 138: modegrid.v1.ModegridService.ComputeDispersion:input_type -> modegrid.v1.ComputeDispersionRequest
+	28,  // 139: modegrid.v1.ModegridService.ComputeDos:input_type -> modegrid.v1.ComputeDosRequest
+	32,  // 140: modegrid.v1.ModegridService.ComputeThermal:input_type -> modegrid.v1.ComputeThermalRequest
+	14,  // 141: modegrid.v1.ModegridService.UploadModel:input_type -> modegrid.v1.UploadModelRequest
+	45,  // 142: modegrid.v1.ModegridService.ComputeGruneisen:input_type -> modegrid.v1.ComputeGruneisenRequest
+	49,  // 143: modegrid.v1.ModegridService.ComputeQuasiHarmonic:input_type -> modegrid.v1.ComputeQuasiHarmonicRequest
+	57,  // 144: modegrid.v1.ModegridService.ComputeConductivity:input_type -> modegrid.v1.ComputeConductivityRequest
+	62,  // 145: modegrid.v1.ModegridService.Fit:input_type -> modegrid.v1.FitRequest
+	79,  // 146: modegrid.v1.ModegridService.ComputeInfrared:input_type -> modegrid.v1.ComputeInfraredRequest
+	95,  // 147: modegrid.v1.ModegridService.ComputeScattering:input_type -> modegrid.v1.ComputeScatteringRequest
+	40,  // 148: modegrid.v1.ModegridService.CheckModel:output_type -> modegrid.v1.CheckModelResponse
+	23,  // 149: modegrid.v1.ModegridService.ComputeModes:output_type -> modegrid.v1.ComputeModesResponse
+	27,  // 150: modegrid.v1.ModegridService.ComputeDispersion:output_type -> modegrid.v1.ComputeDispersionResponse
+	30,  // 151: modegrid.v1.ModegridService.ComputeDos:output_type -> modegrid.v1.ComputeDosResponse
+	35,  // 152: modegrid.v1.ModegridService.ComputeThermal:output_type -> modegrid.v1.ComputeThermalResponse
+	15,  // 153: modegrid.v1.ModegridService.UploadModel:output_type -> modegrid.v1.UploadModelResponse
+	48,  // 154: modegrid.v1.ModegridService.ComputeGruneisen:output_type -> modegrid.v1.ComputeGruneisenResponse
+	52,  // 155: modegrid.v1.ModegridService.ComputeQuasiHarmonic:output_type -> modegrid.v1.ComputeQuasiHarmonicResponse
+	61,  // 156: modegrid.v1.ModegridService.ComputeConductivity:output_type -> modegrid.v1.ComputeConductivityResponse
+	71,  // 157: modegrid.v1.ModegridService.Fit:output_type -> modegrid.v1.FitResponse
+	82,  // 158: modegrid.v1.ModegridService.ComputeInfrared:output_type -> modegrid.v1.ComputeInfraredResponse
+	99,  // 159: modegrid.v1.ModegridService.ComputeScattering:output_type -> modegrid.v1.ComputeScatteringResponse
+	148, // [148:160] is the sub-list for method output_type
+	136, // [136:148] is the sub-list for method input_type
+	136, // [136:136] is the sub-list for extension type_name
+	136, // [136:136] is the sub-list for extension extendee
+	0,   // [0:136] is the sub-list for field type_name
 }
 
 func init() { file_modegrid_v1_service_proto_init() }
@@ -8363,13 +10267,24 @@ func file_modegrid_v1_service_proto_init() {
 		(*FitResponse_Progress)(nil),
 		(*FitResponse_Result)(nil),
 	}
+	file_modegrid_v1_service_proto_msgTypes[73].OneofWrappers = []any{
+		(*Scatterer_Label)(nil),
+		(*Scatterer_Site)(nil),
+	}
+	file_modegrid_v1_service_proto_msgTypes[83].OneofWrappers = []any{
+		(*ComputeScatteringRequest_QList)(nil),
+		(*ComputeScatteringRequest_Path)(nil),
+		(*ComputeScatteringRequest_Slice)(nil),
+		(*ComputeScatteringRequest_Powder)(nil),
+		(*ComputeScatteringRequest_WeightedDos)(nil),
+	}
 	type x struct{}
 	out := protoimpl.TypeBuilder{
 		File: protoimpl.DescBuilder{
 			GoPackagePath: reflect.TypeOf(x{}).PkgPath(),
 			RawDescriptor: unsafe.Slice(unsafe.StringData(file_modegrid_v1_service_proto_rawDesc), len(file_modegrid_v1_service_proto_rawDesc)),
-			NumEnums:      10,
-			NumMessages:   71,
+			NumEnums:      12,
+			NumMessages:   88,
 			NumExtensions: 0,
 			NumServices:   1,
 		},

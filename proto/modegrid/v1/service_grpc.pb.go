@@ -30,6 +30,7 @@ const (
 	ModegridService_ComputeConductivity_FullMethodName  = "/modegrid.v1.ModegridService/ComputeConductivity"
 	ModegridService_Fit_FullMethodName                  = "/modegrid.v1.ModegridService/Fit"
 	ModegridService_ComputeInfrared_FullMethodName      = "/modegrid.v1.ModegridService/ComputeInfrared"
+	ModegridService_ComputeScattering_FullMethodName    = "/modegrid.v1.ModegridService/ComputeScattering"
 )
 
 // ModegridServiceClient is the client API for ModegridService service.
@@ -104,6 +105,10 @@ type ModegridServiceClient interface {
 	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
 	// (ε₀ undefined) FAILED_PRECONDITION.
 	ComputeInfrared(ctx context.Context, in *ComputeInfraredRequest, opts ...grpc.CallOption) (*ComputeInfraredResponse, error)
+	// ComputeScattering gives one-phonon neutron or X-ray scattering: S(Q, E)
+	// of a single crystal (Q list, path or slice), the powder average
+	// S(|Q|, E), or the neutron-weighted DOS.
+	ComputeScattering(ctx context.Context, in *ComputeScatteringRequest, opts ...grpc.CallOption) (*ComputeScatteringResponse, error)
 }
 
 type modegridServiceClient struct {
@@ -245,6 +250,16 @@ func (c *modegridServiceClient) ComputeInfrared(ctx context.Context, in *Compute
 	return out, nil
 }
 
+func (c *modegridServiceClient) ComputeScattering(ctx context.Context, in *ComputeScatteringRequest, opts ...grpc.CallOption) (*ComputeScatteringResponse, error) {
+	cOpts := append([]grpc.CallOption{grpc.StaticMethod()}, opts...)
+	out := new(ComputeScatteringResponse)
+	err := c.cc.Invoke(ctx, ModegridService_ComputeScattering_FullMethodName, in, out, cOpts...)
+	if err != nil {
+		return nil, err
+	}
+	return out, nil
+}
+
 // ModegridServiceServer is the server API for ModegridService service.
 // All implementations must embed UnimplementedModegridServiceServer
 // for forward compatibility.
@@ -317,6 +332,10 @@ type ModegridServiceServer interface {
 	// charges is INVALID_ARGUMENT; an imaginary infrared-active mode at Γ
 	// (ε₀ undefined) FAILED_PRECONDITION.
 	ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error)
+	// ComputeScattering gives one-phonon neutron or X-ray scattering: S(Q, E)
+	// of a single crystal (Q list, path or slice), the powder average
+	// S(|Q|, E), or the neutron-weighted DOS.
+	ComputeScattering(context.Context, *ComputeScatteringRequest) (*ComputeScatteringResponse, error)
 	mustEmbedUnimplementedModegridServiceServer()
 }
 
@@ -359,6 +378,9 @@ func (UnimplementedModegridServiceServer) Fit(*FitRequest, grpc.ServerStreamingS
 }
 func (UnimplementedModegridServiceServer) ComputeInfrared(context.Context, *ComputeInfraredRequest) (*ComputeInfraredResponse, error) {
 	return nil, status.Error(codes.Unimplemented, "method ComputeInfrared not implemented")
+}
+func (UnimplementedModegridServiceServer) ComputeScattering(context.Context, *ComputeScatteringRequest) (*ComputeScatteringResponse, error) {
+	return nil, status.Error(codes.Unimplemented, "method ComputeScattering not implemented")
 }
 func (UnimplementedModegridServiceServer) mustEmbedUnimplementedModegridServiceServer() {}
 func (UnimplementedModegridServiceServer) testEmbeddedByValue()                         {}
@@ -554,6 +576,24 @@ func _ModegridService_ComputeInfrared_Handler(srv interface{}, ctx context.Conte
 	return interceptor(ctx, in, info, handler)
 }
 
+func _ModegridService_ComputeScattering_Handler(srv interface{}, ctx context.Context, dec func(interface{}) error, interceptor grpc.UnaryServerInterceptor) (interface{}, error) {
+	in := new(ComputeScatteringRequest)
+	if err := dec(in); err != nil {
+		return nil, err
+	}
+	if interceptor == nil {
+		return srv.(ModegridServiceServer).ComputeScattering(ctx, in)
+	}
+	info := &grpc.UnaryServerInfo{
+		Server:     srv,
+		FullMethod: ModegridService_ComputeScattering_FullMethodName,
+	}
+	handler := func(ctx context.Context, req interface{}) (interface{}, error) {
+		return srv.(ModegridServiceServer).ComputeScattering(ctx, req.(*ComputeScatteringRequest))
+	}
+	return interceptor(ctx, in, info, handler)
+}
+
 // ModegridService_ServiceDesc is the grpc.ServiceDesc for ModegridService service.
 // It's only intended for direct use with grpc.RegisterService,
 // and not to be introspected or modified (even as a copy)
@@ -592,6 +632,10 @@ var ModegridService_ServiceDesc = grpc.ServiceDesc{
 		{
 			MethodName: "ComputeInfrared",
 			Handler:    _ModegridService_ComputeInfrared_Handler,
+		},
+		{
+			MethodName: "ComputeScattering",
+			Handler:    _ModegridService_ComputeScattering_Handler,
 		},
 	},
 	Streams: []grpc.StreamDesc{

@@ -10,8 +10,9 @@
 //     tests too, and go.uber.org/goleak. Inside physics the arrows point
 //     one way: the leaves (physics/internal/parallel, eigen, lattice,
 //     mesh) ← the core (physics) ← physics/spectra ← physics/thermo ←
-//     physics/thermo/qha, physics/transport and physics/fit (one layer),
-//     and the core ← physics/fcimport and physics/polar (in spectra's layer); a
+//     physics/thermo/qha, physics/transport, physics/fit and physics/scatter
+//     (one layer), and the core ← physics/fcimport and physics/polar (in
+//     spectra's layer); a
 //     package (and its tests) imports only packages below it.
 //     physics/internal/testmodels sits between the core and spectra and
 //     is imported by tests only.

@@ -202,7 +202,7 @@ func coreXTestImports(path string, imports []string) []string {
 // only those before it (the leaves among themselves not at all);
 // physics/internal/testmodels, the tests' example models, is imported by
 // tests only.
-var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport, physics/polar", "physics/thermo", "physics/thermo/qha, physics/transport, physics/fit"}
+var engineLayers = []string{"physics/internal/parallel, physics/eigen, physics/lattice, physics/mesh", "physics", "physics/internal/testmodels", "physics/spectra, physics/fcimport, physics/polar", "physics/thermo", "physics/thermo/qha, physics/transport, physics/fit, physics/scatter"}
 
 // testModels is the test-only package of example models for the tests of
 // the packages above the core.
@@ -213,8 +213,9 @@ const testModels = "physics/internal/testmodels"
 // test models, 4 for spectra, fcimport and polar (the same layer above
 // the core), 5 for thermo, 6 for the quasi-harmonic approximation and heat
 // transport (thermo/qha, transport: above thermo, neither importing the
-// other), and fit (above thermo: its tests check its heat capacities
-// against thermo's), 0 for a path outside physics.
+// other), fit (above thermo: its tests check its heat capacities against
+// thermo's) and scatter (it takes the Debye–Waller factors from thermo's
+// displacements), 0 for a path outside physics.
 // A package imports only packages of a lower rank (or of its own, for the
 // leaves' sub-packages): spectra the core and the leaves, thermo spectra
 // too, the leaves nothing of the engine above them.
@@ -230,7 +231,7 @@ func engineRank(r string) int {
 		return 6
 	case under(r, "physics/thermo"):
 		return 5
-	case under(r, "physics/fit"):
+	case under(r, "physics/fit"), under(r, "physics/scatter"):
 		return 6
 	case under(r, "physics"):
 		return 1
@@ -440,6 +441,8 @@ func TestRulesCatchViolations(t *testing.T) {
 		{name: "fit on thermo, spectra, core and leaves", path: "physics/fit", imports: []string{m("physics/thermo"), m("physics/spectra"), m("physics"), m("physics/eigen"), m("physics/internal/parallel")}},
 		{name: "thermo imports fit", path: "physics/thermo", imports: []string{m("physics/fit")}, want: true},
 		{name: "core test imports fit", path: "physics", imports: []string{m("physics/fit")}, test: true, want: true},
+		{name: "scatter on thermo, spectra, core and leaves", path: "physics/scatter", imports: []string{m("physics/thermo"), m("physics/spectra"), m("physics"), m("physics/internal/parallel")}},
+		{name: "thermo imports scatter", path: "physics/thermo", imports: []string{m("physics/scatter")}, want: true},
 		{name: "fcimport on the core", path: "physics/fcimport", imports: []string{m("physics"), m("physics/lattice")}},
 		{name: "fcimport imports thermo", path: "physics/fcimport", imports: []string{m("physics/thermo")}, want: true},
 		{name: "core imports fcimport", path: "physics", imports: []string{m("physics/fcimport")}, want: true},
