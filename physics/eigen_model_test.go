@@ -81,3 +81,45 @@ func TestTinyLatticeComponentFiniteAtGamma(t *testing.T) {
 		}
 	}
 }
+
+// TestExtremeRangeModel: a model at the edges of every accepted range at
+// once — masses of 1e-6 and 1e9 amu, force constants of 1e6 and 1e-100
+// eV/Å² (MinForceEVPerA2), a denormal fractional coordinate — has dynamical
+// matrices whose elements span 121 orders of magnitude plus denormal
+// phases. Their eigenpairs satisfy D x = λ x and xᴴx = I to 1e-11 of the
+// largest eigenvalue and agree with the real embedding (gonum) to 1e-12 of
+// it (definition of an eigendecomposition; common practice), and the
+// stability scan (the call that once panicked inside gonum on such a
+// model, with force constants below today's floor) gives finite numbers.
+func TestExtremeRangeModel(t *testing.T) {
+	c := &physics.Crystal{
+		Lattice: [][3]float64{{0, 2, 2}, {2, 0, 2}, {2, 2, 0}},
+		Sites: []physics.Site{
+			{Label: "C", MassAmu: 1e9, Frac: []float64{0, 2.37e-322, 0}},
+			{Label: "B", MassAmu: 1e-6, Frac: []float64{0, 0.5, 0}},
+			{Label: "A", MassAmu: 1e9, Frac: []float64{0, 0, 0.5}},
+		},
+		Shells: []physics.Shell{
+			{FromLabel: "A", ToLabel: "C", Shell: 2, KTrans: physics.MinForceEVPerA2},
+			{FromLabel: "B", ToLabel: "B", Shell: 2, KLong: physics.MaxForceEVPerA2, KTrans: 1.4e-76},
+			{FromLabel: "B", ToLabel: "C", Shell: 1, KLong: -physics.MinForceEVPerA2, KTrans: physics.MinForceEVPerA2},
+		},
+	}
+	m := testmodels.Compile(t, c)
+	n := m.ModeCount()
+	for _, q := range [][3]float64{{0, 0, 0}, {0.5, 0, 0}, {0.1, 0.2, 0.3}, {0.25, -0.4, 0.05}} {
+		d := m.DynamicalMatrix(q, nil)
+		vals, vecs := eigen.Hermitian(d, n, true)
+		want, _ := eigen.Embedded(d, n, false)
+		for k := range want {
+			if !(math.Abs(vals[k]-want[k]) <= 1e-12*testmodels.MaxAbs(want)) {
+				t.Fatalf("q=%v λ%d = %v; gonum %v", q, k, vals[k], want[k])
+			}
+		}
+		checkEigenpairs(t, d, n, vals, vecs, 1e-11)
+	}
+	lo, hi, _, err := m.Stability(testmodels.Ctx(t), 4)
+	if err != nil || math.IsNaN(lo) || math.IsInf(lo, 0) || math.IsNaN(hi) || math.IsInf(hi, 0) {
+		t.Fatalf("stability: %v, %v, %v; want finite frequencies", lo, hi, err)
+	}
+}

@@ -48,6 +48,14 @@ const (
 	MinMassAmu      = 1e-6 // amu
 	MaxMassAmu      = 1e9  // amu
 	MaxForceEVPerA2 = 1e6  // |spring constant| or |block element|, eV/Å² (1.6e7 N/m)
+	// MinForceEVPerA2 is the smallest magnitude of a force constant that
+	// is not 0 (0 switches a term off), eV/Å²: with the heaviest mass it
+	// is a frequency of 5e-54 THz, and it keeps every element of a
+	// dynamical matrix within 1e-121 of the largest the limits allow, so
+	// that their squares stay normal floats. Smaller values (denormals
+	// such as 1e-303) changed nothing any result shows but took the
+	// eigensolver to the edge of the float range.
+	MinForceEVPerA2 = 1e-100
 )
 
 // Geometric tolerances used by validation and neighbour search.
@@ -172,9 +180,9 @@ func validate(c *Crystal, lim Limits, vs *Violations) {
 	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
 		vs.Add("force_unit", "unknown unit %d", c.ForceUnit)
 	}
-	v.maxForce, v.forceUnit = MaxForceEVPerA2, "eV/Å²"
+	v.minForce, v.maxForce, v.forceUnit = MinForceEVPerA2, MaxForceEVPerA2, "eV/Å²"
 	if c.ForceUnit == NPerM {
-		v.maxForce, v.forceUnit = MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
+		v.minForce, v.maxForce, v.forceUnit = MinForceEVPerA2*EVPerA2InNPerM, MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
 	}
 	v.checkSites()
 	v.checkCoincidences()
@@ -198,6 +206,7 @@ type validator struct {
 	latticeOK bool   // 1–3 finite, non-degenerate vectors
 	posOK     []bool // per site: finite, in-range position on a sound lattice
 
+	minForce  float64 // smallest |force constant| other than 0, crystal's unit
 	maxForce  float64 // largest |force constant| in the crystal's unit
 	forceUnit string  // that unit, for messages
 }
@@ -330,6 +339,8 @@ func (v *validator) checkForce(field string, x float64) {
 		v.vs.Add(field, "must be finite, got %v", x)
 	} else if math.Abs(x) > v.maxForce {
 		v.vs.Add(field, "must be within ±%g %s, got %v", v.maxForce, v.forceUnit, x)
+	} else if x != 0 && math.Abs(x) < v.minForce {
+		v.vs.Add(field, "must be 0 or at least %g %s in magnitude, got %v (a force constant that small changes no result; 0 switches the term off)", v.minForce, v.forceUnit, x)
 	}
 }
 

@@ -53,6 +53,10 @@ func TestValidationRules(t *testing.T) {
 		{"spring too stiff", twoSiteChain, func(c *physics.Crystal) { c.Springs[0].KLong = 1e300 }, physics.Limits{}, "springs[0].k_long", "within ±1e+06 eV/Å²"},
 		{"spring too stiff in N/m", twoSiteChain, func(c *physics.Crystal) { c.ForceUnit = physics.NPerM; c.Springs[0].KLong = 2e7 }, physics.Limits{}, "springs[0].k_long", "N/m"},
 		{"block element too large", twoSiteChain, func(c *physics.Crystal) { c.Blocks[0].Phi[0] = -1e7 }, physics.Limits{}, "blocks[0].phi[0]", "got -1e+07"},
+		{"shell k denormal", threeD, func(c *physics.Crystal) { c.Shells[0].KTrans = 5.9e-303 }, physics.Limits{}, "shells[0].k_trans", "must be 0 or at least 1e-100 eV/Å² in magnitude, got 5.9e-303"},
+		{"spring k tiny", twoSiteChain, func(c *physics.Crystal) { c.Springs[0].KLong = -1e-101 }, physics.Limits{}, "springs[0].k_long", "got -1e-101"},
+		{"spring k tiny in N/m", twoSiteChain, func(c *physics.Crystal) { c.ForceUnit = physics.NPerM; c.Springs[0].KLong = 1e-99 }, physics.Limits{}, "springs[0].k_long", "at least 1.602176634e-99 N/m"},
+		{"block element tiny", twoSiteChain, func(c *physics.Crystal) { c.Blocks[0].Phi[1] = 4.9e-324 }, physics.Limits{}, "blocks[0].phi[1]", "got 5e-324"},
 		{"spring of zero length", twoSiteChain, func(c *physics.Crystal) {
 			c.Sites[0].Frac[0] = 0.5
 			c.Sites[1].Frac[0] = 0.25

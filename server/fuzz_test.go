@@ -455,7 +455,8 @@ func checkSeeds(tb testing.TB) []proto.Message {
 	return append(out, &modegridv1.CheckModelRequest{Model: inline(bad)}, &modegridv1.CheckModelRequest{Model: byHash(strings.Repeat("0", 64))},
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
 		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{},
-		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: fuzzChainSet(tb)}, Symmetrize: true}})
+		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: fuzzChainSet(tb)}, Symmetrize: true}},
+		&modegridv1.CheckModelRequest{Model: inline(tinyForceModel())}) // once INTERNAL (a panic in gonum)
 }
 
 // fuzzChainSet is the diatomic chain example as a 2-cell supercell set

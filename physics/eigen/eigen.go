@@ -346,18 +346,27 @@ func (w *Work) tridiagonalize() bool {
 // diagonal onto β e₁ with β real: v (in w.hv, v[k+1] = 1) and τ (w.tau[k]),
 // and sets w.e[k] = β. It returns false when the column is already in
 // that form (H_k = I) and nothing needs reflecting.
+//
+// A column far below the matrix's scale (elements under 2⁻⁴⁵⁰, whose
+// squares leave the normal range) is first brought near 1 by a power of
+// two (columnUp): its squares would otherwise underflow, β come out 0 and
+// τ infinite. v and τ do not depend on that factor; β is scaled back.
 func (w *Work) reflector(k int) bool {
 	n, a := w.n, w.a
+	xnorm2 := w.columnNorm2(k)
 	alpha := a[(k+1)*n+k]
-	var xnorm2 float64
-	for i := k + 2; i < n; i++ {
-		z := a[i*n+k]
-		xnorm2 += real(z)*real(z) + imag(z)*imag(z)
-	}
 	ar, ai := real(alpha), imag(alpha)
+	up := 0
+	if ar*ar+ai*ai+xnorm2 < tinyColumn2 {
+		if up = w.columnUp(k); up != 0 {
+			xnorm2 = w.columnNorm2(k)
+			alpha = a[(k+1)*n+k]
+			ar, ai = real(alpha), imag(alpha)
+		}
+	}
 	if xnorm2 == 0 && ai == 0 {
 		w.tau[k] = 0
-		w.e[k] = ar
+		w.e[k] = math.Ldexp(ar, -up)
 		return false
 	}
 	beta := -math.Copysign(math.Sqrt(ar*ar+ai*ai+xnorm2), ar)
@@ -376,8 +385,48 @@ func (w *Work) reflector(k int) bool {
 		}
 	}
 	w.tau[k] = tau
-	w.e[k] = beta
+	w.e[k] = math.Ldexp(beta, -up)
 	return true
+}
+
+// tinyColumn2 is the squared norm below which reflector rescales a column:
+// under it, elements whose squares fell below the normal range (2⁻¹⁰²²)
+// could carry more than 2⁻¹⁰⁰ of it.
+const tinyColumn2 = 0x1p-900
+
+// columnNorm2 is the squared norm of column k of w.a below the
+// sub-diagonal (rows k+2…n−1).
+func (w *Work) columnNorm2(k int) float64 {
+	n, a := w.n, w.a
+	var xnorm2 float64
+	for i := k + 2; i < n; i++ {
+		z := a[i*n+k]
+		xnorm2 += real(z)*real(z) + imag(z)*imag(z)
+	}
+	return xnorm2
+}
+
+// columnUp multiplies column k of w.a below the diagonal by 2^up, the
+// power of two (exact, denormals included) that brings its largest |Re|
+// or |Im| into [½, 1), and returns up (0 for a zero column). The column
+// is not read again once its reflector is built.
+func (w *Work) columnUp(k int) int {
+	n, a := w.n, w.a
+	var cmax float64
+	for i := k + 1; i < n; i++ {
+		z := a[i*n+k]
+		cmax = max(cmax, math.Abs(real(z)), math.Abs(imag(z)))
+	}
+	if cmax == 0 {
+		return 0
+	}
+	_, exp := math.Frexp(cmax)
+	up := -exp
+	for i := k + 1; i < n; i++ {
+		z := a[i*n+k]
+		a[i*n+k] = complex(math.Ldexp(real(z), up), math.Ldexp(imag(z), up))
+	}
+	return up
 }
 
 // reflectTrailing applies H_k on both sides of the trailing block

@@ -20,27 +20,24 @@ import (
 // eigenvector exactly when u + iv is one of H, and its partner (−v; u) is
 // i(u + iv). A complex Gram–Schmidt pass over the real eigenvectors in
 // ascending order keeps one complex vector per direction. If gonum does not
-// converge either, the results are NaN. The matrix must be finite.
+// converge either, or the matrix is not finite, the results are NaN.
+//
+// The embedding is solved shifted (embed): gonum's tridiagonal QL is
+// wrong on a diagonal block whose norm is far below the rest, which the
+// shift rules out.
 func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
-	s, exp := embed(h, n)
 	vals := make([]float64, n)
 	var es mat.EigenSym
+	if !finiteLower(h, n) {
+		return nanResults(vals, vectors)
+	}
+	s, exp, shift := embed(h, n)
 	if !es.Factorize(s, vectors) {
-		for k := range vals {
-			vals[k] = math.NaN()
-		}
-		var vecs []complex128
-		if vectors {
-			vecs = make([]complex128, n*n)
-			for k := range vecs {
-				vecs[k] = cmplx.NaN()
-			}
-		}
-		return vals, vecs
+		return nanResults(vals, vectors)
 	}
 	all := es.Values(nil)
 	for k := range all {
-		all[k] = math.Ldexp(all[k], exp)
+		all[k] = math.Ldexp(all[k]-shift, exp)
 	}
 	if !vectors {
 		for k := 0; k < n; k++ {
@@ -54,11 +51,54 @@ func Embedded(h []complex128, n int, vectors bool) ([]float64, []complex128) {
 	return vals, vecs
 }
 
+// nanResults fills vals with NaN and returns it with NaN vectors when
+// asked: the answer for a matrix Embedded cannot solve.
+func nanResults(vals []float64, vectors bool) ([]float64, []complex128) {
+	n := len(vals)
+	for k := range vals {
+		vals[k] = math.NaN()
+	}
+	var vecs []complex128
+	if vectors {
+		vecs = make([]complex128, n*n)
+		for k := range vecs {
+			vecs[k] = cmplx.NaN()
+		}
+	}
+	return vals, vecs
+}
+
+// finiteLower reports whether every element of the lower triangle of the
+// n×n matrix h is finite.
+func finiteLower(h []complex128, n int) bool {
+	for i := 0; i < n; i++ {
+		for _, z := range h[i*n : i*n+i+1] {
+			if cmplx.IsNaN(z) || cmplx.IsInf(z) {
+				return false
+			}
+		}
+	}
+	return true
+}
+
 // embed returns the real symmetric 2n×2n embedding [[A, −B], [B, A]] of
-// H = A + iB scaled by 2^−exp, a power of two (exact) that brings the
-// largest element near 1: gonum v0.17 panics inside Dsterf on matrices of
-// very small norm (found by TestEigenAgainstGonum at 1e-150).
-func embed(h []complex128, n int) (s *mat.SymDense, exp int) {
+// H = A + iB scaled by 2^−exp and shifted: S = 2^−exp H + shift·I.
+//
+// The power of two (exact) brings the largest element near 1. The shift,
+// twice the Gershgorin bound g ≥ ‖2^−exp H‖₂, puts every eigenvalue of S,
+// and so every diagonal element of its tridiagonal form, in [g, 3g]: no
+// unreduced block of that tridiagonal is then small. gonum v0.17 mishandles
+// such blocks (lapack/gonum, when a block's norm is below ≈1e-122 of the
+// largest element): Dsterf, its values-only path, passes the matrix size as
+// the stride of a vector and panics with "lapack: insufficient length of
+// a" (found on a dynamical matrix mixing force constants of 1e-77 and
+// 1e-300 eV/Å²); Dsteqr, its path with vectors, never resets its scaling
+// flag and multiplies later blocks by the ratio of the scales (eigenvalues
+// of 1e121). Before the shift, a matrix of very small norm panicked the same
+// way (found by TestEigenAgainstGonum at 1e-150). The shift costs absolute
+// accuracy of a few ε·g in every eigenvalue, within the ε‖H‖ the solver
+// promises anyway.
+func embed(h []complex128, n int) (s *mat.SymDense, exp int, shift float64) {
 	var amax float64
 	for i := 0; i < n; i++ {
 		for _, z := range h[i*n : i*n+i+1] {
@@ -68,20 +108,32 @@ func embed(h []complex128, n int) (s *mat.SymDense, exp int) {
 	if amax > 0 && !math.IsInf(amax, 0) {
 		_, exp = math.Frexp(amax)
 	}
-	down := math.Ldexp(1, -exp)
 	s = mat.NewSymDense(2*n, nil)
+	rows := make([]float64, n) // Gershgorin: Σⱼ |Re hᵢⱼ| + |Im hᵢⱼ|, scaled
 	for i := 0; i < n; i++ {
 		for j := 0; j <= i; j++ {
-			z := h[i*n+j] * complex(down, 0)
-			s.SetSym(i, j, real(z))
-			s.SetSym(n+i, n+j, real(z))
+			// Ldexp per element: 2^−exp itself overflows when the
+			// largest element is a denormal.
+			re, im := math.Ldexp(real(h[i*n+j]), -exp), math.Ldexp(imag(h[i*n+j]), -exp)
+			s.SetSym(i, j, re)
+			s.SetSym(n+i, n+j, re)
 			// Block B at (n+i, j) holds imag(h_ij); −B at (i, n+j) is its
 			// mirror (−B = Bᵀ for Hermitian H).
-			s.SetSym(n+i, j, imag(z))
-			s.SetSym(n+j, i, -imag(z))
+			s.SetSym(n+i, j, im)
+			s.SetSym(n+j, i, -im)
+			rows[i] += math.Abs(re) + math.Abs(im)
+			if j != i {
+				rows[j] += math.Abs(re) + math.Abs(im)
+			}
 		}
 	}
-	return s, exp
+	for _, r := range rows {
+		shift = math.Max(shift, 2*r)
+	}
+	for i := 0; i < 2*n; i++ {
+		s.SetSym(i, i, s.At(i, i)+shift)
+	}
+	return s, exp, shift
 }
 
 // complexVectors turns the real eigenvectors ev of the embedding (columns,
