@@ -78,7 +78,9 @@ func answered(hdr, trl metadata.MD) bool {
 }
 
 // Check calls CheckModel. An invalid model is not an error: the response has
-// Valid false and lists every violation.
+// Valid false and lists every violation of the crystal (paths relative to
+// Crystal). A bad option of the model source (SymmetryToleranceA) is
+// INVALID_ARGUMENT, as in every call.
 func (c *Client) Check(ctx context.Context, req *modegridv1.CheckModelRequest, opts ...CallOption) (*modegridv1.CheckModelResponse, error) {
 	return unary(ctx, c, req, modegridv1.ModegridServiceClient.CheckModel, false, collectOptions(opts))
 }
@@ -311,8 +313,11 @@ func (c *Client) newSender(ctx context.Context, req proto.Message, learn bool) (
 		if !ok && learn && !s.upload {
 			// Ask once for the hash so that even the first compute call is
 			// routed to the replica that will own the model.
+			// INVALID_ARGUMENT (a bad option of the model source, a check
+			// over the server's bounds) is left to the call itself, which
+			// lists every problem of its own request.
 			resp, err := c.api.CheckModel(ctx, &modegridv1.CheckModelRequest{Model: s.src})
-			if err != nil && status.Code(err) != codes.Unimplemented {
+			if code := status.Code(err); err != nil && code != codes.Unimplemented && code != codes.InvalidArgument {
 				return nil, err
 			}
 			if resp.GetValid() && resp.GetModelHash() != "" {

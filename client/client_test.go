@@ -497,3 +497,29 @@ func TestDefaultsMatchServer(t *testing.T) {
 		t.Errorf("client message limit %d bytes; server %d", client.DefaultMaxMessageBytes, server.DefaultMaxMsgBytes)
 	}
 }
+
+// TestAffinityReportsTheCallsOwnViolations: with WithModelAffinity the
+// client learns a new model's hash by CheckModel before the call; when
+// that check is INVALID_ARGUMENT (here a bad symmetry tolerance), the call
+// itself still goes and lists every problem of its own request at once,
+// the bad q-point included.
+func TestAffinityReportsTheCallsOwnViolations(t *testing.T) {
+	addr, _ := startServer(t, "")
+	c := dial(t, addr, client.WithModelAffinity())
+	src := client.Inline(example(t, "chain"))
+	src.SymmetryToleranceA = 5
+	_, err := c.Modes(testContext(t), &modegridv1.ComputeModesRequest{Model: src, Qpoints: client.QList([3]float64{math.NaN(), 0, 0})})
+	if status.Code(err) != codes.InvalidArgument {
+		t.Fatalf("got %v; want InvalidArgument", err)
+	}
+	var fields []string
+	tol, q := false, false
+	for _, v := range client.FieldViolations(err) {
+		fields = append(fields, v.GetField())
+		tol = tol || v.GetField() == "model.symmetry_tolerance_a"
+		q = q || strings.HasPrefix(v.GetField(), "qpoints")
+	}
+	if !tol || !q {
+		t.Errorf("violations %v; want model.symmetry_tolerance_a and the q-point", fields)
+	}
+}

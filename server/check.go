@@ -17,8 +17,10 @@ import (
 var checkCodec = protoCodec(func() *modegridv1.CheckModelResponse { return &modegridv1.CheckModelResponse{} })
 
 // CheckModel validates a model and summarises it. An invalid inline model
-// is not a call error: the response lists every violation. The summary of
-// a valid model is cached by its hash.
+// is not a call error: the response lists every violation of the crystal
+// (paths relative to it). A bad option of the model source (its symmetry
+// tolerance), like every other problem of the request, is
+// INVALID_ARGUMENT. The summary of a valid model is cached by its hash.
 func (s *Service) CheckModel(ctx context.Context, req *modegridv1.CheckModelRequest) (*modegridv1.CheckModelResponse, error) {
 	resp, err := s.checkModel(ctx, req)
 	return resp, s.toStatus(ctx, "CheckModel", err)
@@ -41,6 +43,11 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	}
 	if err != nil {
 		return nil, err
+	}
+	if !crystalOnly(&mvs) {
+		// A problem beyond the crystal is the request's: a call error
+		// that lists the crystal's violations too (all at once).
+		vs.AddErr("", "model", mvs.Err())
 	}
 	if err := vs.Err(); err != nil {
 		return nil, err
@@ -73,13 +80,28 @@ func (s *Service) checkModel(ctx context.Context, req *modegridv1.CheckModelRequ
 	return withDescription(resp, e), nil
 }
 
+// crystalPrefix is the path of an inline model's crystal in a request.
+const crystalPrefix = "model.crystal."
+
+// crystalOnly reports whether every violation in mvs is of a field inside
+// the crystal (under crystalPrefix), which the report can name relative to
+// the Crystal message.
+func crystalOnly(mvs *violations) bool {
+	for _, v := range mvs.List() {
+		if !strings.HasPrefix(v.Field, crystalPrefix) {
+			return false
+		}
+	}
+	return true
+}
+
 // invalidModelResponse is the answer for an inline model that does not
 // compile: not valid, every violation of the model listed (fields relative
-// to the crystal).
+// to the crystal; crystalOnly holds).
 func invalidModelResponse(canon string, mvs *violations) *modegridv1.CheckModelResponse {
 	out := &modegridv1.CheckModelResponse{Parameters: canon}
 	for _, v := range mvs.List() {
-		out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, "model.crystal."), Description: v.Description})
+		out.Violations = append(out.Violations, &modegridv1.FieldViolation{Field: strings.TrimPrefix(v.Field, crystalPrefix), Description: v.Description})
 	}
 	return out
 }

@@ -67,3 +67,58 @@ func TestCheckSymmetryTolerance(t *testing.T) {
 		t.Errorf("violations %v; want model.symmetry_tolerance_a", f)
 	}
 }
+
+// TestCheckModelBadToleranceIsACallError: CheckModel's report names
+// fields of the crystal only; a bad symmetry tolerance (an option of the
+// model source) is INVALID_ARGUMENT naming model.symmetry_tolerance_a, with
+// the crystal's own violations (model.crystal.…) and the sites cap listed
+// beside it, all at once. Before, the report carried the option's path,
+// which is no field of Crystal (found by FuzzCheckModel).
+func TestCheckModelBadToleranceIsACallError(t *testing.T) {
+	ts := startServer(t, Config{MaxSites: 2})
+	ctx := testContext(t)
+	cases := []struct {
+		name   string
+		mutate func(src *modegridv1.ModelSource)
+		want   []string
+	}{
+		{"tolerance only", func(src *modegridv1.ModelSource) { src.SymmetryToleranceA = 5 }, []string{"model.symmetry_tolerance_a"}},
+		{"tolerance and a bad mass", func(src *modegridv1.ModelSource) {
+			src.SymmetryToleranceA = -1
+			src.GetCrystal().Sites[0].MassAmu = -12
+		}, []string{"model.symmetry_tolerance_a", "model.crystal.sites[0].mass_amu"}},
+		{"tolerance and over the sites cap", func(src *modegridv1.ModelSource) {
+			src.SymmetryToleranceA = 1e-12
+			c := src.GetCrystal()
+			c.Sites = append(c.Sites, &modegridv1.Site{Label: "C", MassAmu: 1, Frac: []float64{0, 0}})
+		}, []string{"model.symmetry_tolerance_a", "model.crystal.sites"}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			src := inline(typedHoneycomb())
+			tc.mutate(src)
+			r, err := ts.api.CheckModel(ctx, &modegridv1.CheckModelRequest{Model: src})
+			if err == nil {
+				t.Fatalf("a report %v; want INVALID_ARGUMENT", r)
+			}
+			fields := badFields(t, err)
+			for _, f := range tc.want {
+				if fields[f] == "" {
+					t.Errorf("violations %v; want %s", fields, f)
+				}
+			}
+			if len(fields) != len(tc.want) {
+				t.Errorf("violations %v; want exactly %v", fields, tc.want)
+			}
+		})
+	}
+	// A good tolerance with a bad crystal stays a report, paths relative
+	// to Crystal.
+	src := inline(typedHoneycomb())
+	src.SymmetryToleranceA = 1e-3
+	src.GetCrystal().Sites[1].MassAmu = -1
+	r, err := ts.api.CheckModel(ctx, &modegridv1.CheckModelRequest{Model: src})
+	if err != nil || r.GetValid() || len(r.GetViolations()) != 1 || r.GetViolations()[0].GetField() != "sites[1].mass_amu" {
+		t.Errorf("got %v, %v; want a report naming sites[1].mass_amu", r, err)
+	}
+}

@@ -456,7 +456,8 @@ func checkSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
 		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{},
 		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: fuzzChainSet(tb)}, Symmetrize: true}},
-		&modegridv1.CheckModelRequest{Model: inline(tinyForceModel())}) // once INTERNAL (a panic in gonum)
+		&modegridv1.CheckModelRequest{Model: inline(tinyForceModel())}, // once INTERNAL (a panic in gonum)
+		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: example(tb, "chain")}, SymmetryToleranceA: 5}}) // once a report naming a non-Crystal path
 }
 
 // fuzzChainSet is the diatomic chain example as a 2-cell supercell set
@@ -559,6 +560,9 @@ func thermalSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.ComputeThermalRequest{Model: chain, Qpoints: mpGrid(false, 1), TemperaturesK: []float64{300}, Route: modegridv1.ThermalRoute_THERMAL_ROUTE_DOS_INTEGRAL})
 }
 
+// FuzzCheckModel: besides the invariants of every RPC target, a report of
+// an invalid model names fields of Crystal only (a bad option of the model
+// source is INVALID_ARGUMENT, checked against the request's fields).
 func FuzzCheckModel(f *testing.F) {
 	fuzzRPC(f, rpcTarget{
 		method: modegridv1.ModegridService_CheckModel_FullMethodName,

@@ -193,11 +193,17 @@ func (s *Service) resolve(ctx context.Context, src *modegridv1.ModelSource, vs *
 }
 
 func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource, vs *violations) (*modelEntry, error) {
-	if n := len(src.GetCrystal().GetSites()); n > s.cfg.MaxSites {
-		vs.Add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", n, s.cfg.MaxSites)
-		return nil, nil
+	tooMany := len(src.GetCrystal().GetSites()) > s.cfg.MaxSites
+	if tooMany {
+		vs.Add("model.crystal.sites", "%d sites exceed this server's cap max-sites=%d", len(src.GetCrystal().GetSites()), s.cfg.MaxSites)
 	}
-	if !checkSymTol(vs, src.GetSymmetryToleranceA()) {
+	badTol := !checkSymTol(vs, src.GetSymmetryToleranceA())
+	if badTol && !tooMany {
+		// No compile with a bad option, but the crystal's own violations
+		// are listed with it (Validate is quick below the sites cap).
+		vs.AddErr("model.crystal", "model.crystal", physics.Validate(crystalFromProto(src.GetCrystal()), physics.Limits{MaxSites: s.cfg.MaxSites}))
+	}
+	if badTol || tooMany {
 		return nil, nil
 	}
 	norm, raw, key, err := inlineKey(src)

@@ -84,7 +84,9 @@ func (ForceUnit) EnumDescriptor() ([]byte, []int) {
 // (client.ParseModel) still accepts those keys in model files.
 //
 // Units: lengths in ångström (Å), masses in unified atomic mass units (amu),
-// force constants in eV/Å² unless force_unit says N/m.
+// force constants in eV/Å² unless force_unit says N/m. Accepted ranges:
+// masses 1e-6 to 1e9 amu; every force constant (spring constant, block or
+// supercell_fc element) 0 or of magnitude 1e-100 to 1e6 eV/Å².
 type Crystal struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// Free-form name; not part of the model hash.

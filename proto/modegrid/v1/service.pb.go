@@ -3155,10 +3155,10 @@ func (x *CheckModelRequest) GetModel() *ModelSource {
 	return nil
 }
 
-// FieldViolation is one validation failure.
+// FieldViolation is one validation failure of a model.
 type FieldViolation struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
-	// Field path, e.g. "sites[2].mass_amu".
+	// Field path relative to the Crystal message, e.g. "sites[2].mass_amu".
 	Field string `protobuf:"bytes,1,opt,name=field,proto3" json:"field,omitempty"`
 	// What is wrong, with the bad value.
 	Description   string `protobuf:"bytes,2,opt,name=description,proto3" json:"description,omitempty"`
@@ -3335,7 +3335,8 @@ type CheckModelResponse struct {
 	state protoimpl.MessageState `protogen:"open.v1"`
 	// True when the model passed validation.
 	Valid bool `protobuf:"varint,1,opt,name=valid,proto3" json:"valid,omitempty"`
-	// Every validation failure (empty when valid).
+	// Every validation failure of the crystal (empty when valid), paths
+	// relative to Crystal.
 	Violations []*FieldViolation `protobuf:"bytes,2,rep,name=violations,proto3" json:"violations,omitempty"`
 	// Canonical SHA-256 model hash, lower-case hex (empty when invalid).
 	ModelHash string `protobuf:"bytes,3,opt,name=model_hash,json=modelHash,proto3" json:"model_hash,omitempty"`

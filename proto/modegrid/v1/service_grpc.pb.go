@@ -58,7 +58,13 @@ const (
 // shuts down; INTERNAL for a server bug (logged).
 type ModegridServiceClient interface {
 	// CheckModel validates a model and summarises it. An invalid model is not a
-	// call error here: the response lists every violation.
+	// call error here: the response lists every violation of the crystal, each
+	// field path relative to the Crystal message. Anything else wrong with the
+	// request is a call error as for every RPC: a bad option of the model
+	// source (symmetry_tolerance_a: INVALID_ARGUMENT naming
+	// model.symmetry_tolerance_a, together with the crystal's violations as
+	// model.crystal.…), a model whose check would run past the server's
+	// bounds (INVALID_ARGUMENT), an unknown model_hash (NOT_FOUND).
 	CheckModel(ctx context.Context, in *CheckModelRequest, opts ...grpc.CallOption) (*CheckModelResponse, error)
 	// ComputeModes streams normal-mode frequencies on a q-point set in bounded
 	// chunks, in q order.
@@ -285,7 +291,13 @@ func (c *modegridServiceClient) ComputeScattering(ctx context.Context, in *Compu
 // shuts down; INTERNAL for a server bug (logged).
 type ModegridServiceServer interface {
 	// CheckModel validates a model and summarises it. An invalid model is not a
-	// call error here: the response lists every violation.
+	// call error here: the response lists every violation of the crystal, each
+	// field path relative to the Crystal message. Anything else wrong with the
+	// request is a call error as for every RPC: a bad option of the model
+	// source (symmetry_tolerance_a: INVALID_ARGUMENT naming
+	// model.symmetry_tolerance_a, together with the crystal's violations as
+	// model.crystal.…), a model whose check would run past the server's
+	// bounds (INVALID_ARGUMENT), an unknown model_hash (NOT_FOUND).
 	CheckModel(context.Context, *CheckModelRequest) (*CheckModelResponse, error)
 	// ComputeModes streams normal-mode frequencies on a q-point set in bounded
 	// chunks, in q order.
