@@ -456,8 +456,10 @@ func checkSeeds(tb testing.TB) []proto.Message {
 		&modegridv1.CheckModelRequest{Model: inline(many)}, &modegridv1.CheckModelRequest{Model: inline(extreme)},
 		&modegridv1.CheckModelRequest{Model: byHash("NOT-A-HASH")}, &modegridv1.CheckModelRequest{},
 		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: fuzzChainSet(tb)}, Symmetrize: true}},
-		&modegridv1.CheckModelRequest{Model: inline(tinyForceModel())},                                                                                               // once INTERNAL (a panic in gonum)
-		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: example(tb, "chain")}, SymmetryToleranceA: 5}}) // once a report naming a non-Crystal path
+		// Once INTERNAL (a panic in gonum); once a report naming a path that is
+		// no field of Crystal (a bad symmetry tolerance).
+		&modegridv1.CheckModelRequest{Model: inline(tinyForceModel())},
+		&modegridv1.CheckModelRequest{Model: &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: example(tb, "chain")}, SymmetryToleranceA: 5}})
 }
 
 // fuzzChainSet is the diatomic chain example as a 2-cell supercell set
