@@ -141,7 +141,7 @@ func Compile(ctx context.Context, c *Crystal, opt Options) (*Model, error) {
 	if c == nil {
 		return nil, Validate(nil, opt.Limits)
 	}
-	lim := opt.Limits.withDefaults()
+	lim := opt.Limits.WithDefaults()
 	var vs Violations
 	validate(c, lim, &vs)
 	validateSymTol(opt.SymTolA, &vs)

@@ -50,7 +50,7 @@ type ShellBond struct {
 
 // ShellBonds returns the bonds of shell sh in m under the default limits.
 func (m *Model) ShellBonds(ctx context.Context, sh Shell) ([]ShellBond, error) {
-	bonds, _, err := m.findShell(ctx, sh, Limits{}.withDefaults())
+	bonds, _, err := m.findShell(ctx, sh, Limits{}.WithDefaults())
 	out := make([]ShellBond, len(bonds))
 	for k, b := range bonds {
 		r := lattice.Sub(lattice.Add(m.pos[b.j], m.latticeVec(b.n)), m.pos[b.i])

@@ -26,7 +26,9 @@ const (
 	DefaultMaxCellOffset   = 64
 )
 
-func (l Limits) withDefaults() Limits {
+// WithDefaults returns l with every zero (or negative) limit replaced by its
+// default.
+func (l Limits) WithDefaults() Limits {
 	if l.MaxSites <= 0 {
 		l.MaxSites = DefaultMaxSites
 	}
@@ -163,7 +165,7 @@ func Validate(c *Crystal, lim Limits) error {
 		vs.Add("model", "is required (got a nil crystal)")
 		return vs.Err()
 	}
-	validate(c, lim.withDefaults(), &vs)
+	validate(c, lim.WithDefaults(), &vs)
 	return vs.Err()
 }
 
@@ -179,10 +181,6 @@ func validate(c *Crystal, lim Limits, vs *Violations) {
 	}
 	if c.ForceUnit != EVPerA2 && c.ForceUnit != NPerM {
 		vs.Add("force_unit", "unknown unit %d", c.ForceUnit)
-	}
-	v.minForce, v.maxForce, v.forceUnit = MinForceEVPerA2, MaxForceEVPerA2, "eV/Å²"
-	if c.ForceUnit == NPerM {
-		v.minForce, v.maxForce, v.forceUnit = MinForceEVPerA2*EVPerA2InNPerM, MaxForceEVPerA2*EVPerA2InNPerM, "N/m"
 	}
 	v.checkSites()
 	v.checkCoincidences()
@@ -205,10 +203,6 @@ type validator struct {
 
 	latticeOK bool   // 1–3 finite, non-degenerate vectors
 	posOK     []bool // per site: finite, in-range position on a sound lattice
-
-	minForce  float64 // smallest |force constant| other than 0, crystal's unit
-	maxForce  float64 // largest |force constant| in the crystal's unit
-	forceUnit string  // that unit, for messages
 }
 
 // dimOK reports whether the lattice has an acceptable number of vectors,
@@ -335,13 +329,29 @@ func (v *validator) checkCoincidences() {
 
 // checkForce checks one force constant (in the crystal's unit) at field.
 func (v *validator) checkForce(field string, x float64) {
-	if !finite(x) {
-		v.vs.Add(field, "must be finite, got %v", x)
-	} else if math.Abs(x) > v.maxForce {
-		v.vs.Add(field, "must be within ±%g %s, got %v", v.maxForce, v.forceUnit, x)
-	} else if x != 0 && math.Abs(x) < v.minForce {
-		v.vs.Add(field, "must be 0 or at least %g %s in magnitude, got %v (a force constant that small changes no result; 0 switches the term off)", v.minForce, v.forceUnit, x)
+	if d, bad := ForceViolation(x, v.c.ForceUnit); bad {
+		v.vs.Add(field, "%s", d)
 	}
+}
+
+// ForceViolation says what is wrong with the force constant x (a spring
+// constant or a block element) in unit u, if anything: it must be finite,
+// within ±MaxForceEVPerA2 and, unless 0, at least MinForceEVPerA2 in
+// magnitude (both converted to u; an unknown unit is taken as eV/Å²).
+func ForceViolation(x float64, u ForceUnit) (description string, bad bool) {
+	lo, hi, name := MinForceEVPerA2, MaxForceEVPerA2, "eV/Å²"
+	if u == NPerM {
+		lo, hi, name = lo*EVPerA2InNPerM, hi*EVPerA2InNPerM, "N/m"
+	}
+	switch {
+	case !finite(x):
+		return fmt.Sprintf("must be finite, got %v", x), true
+	case math.Abs(x) > hi:
+		return fmt.Sprintf("must be within ±%g %s, got %v", hi, name, x), true
+	case x != 0 && math.Abs(x) < lo:
+		return fmt.Sprintf("must be 0 or at least %g %s in magnitude, got %v (a force constant that small changes no result; 0 switches the term off)", lo, name, x), true
+	}
+	return "", false
 }
 
 // bondKey names one bond: from site i to site j in the cell offset n.

@@ -129,7 +129,7 @@ func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, 
 	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA(),
 		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality(), LongRange: polar.Builder()}
 	c, fold, err := foldSupercell(ctx, src.GetCrystal(), crystalFromProto(src.GetCrystal()), lim.MaxSites,
-		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA}, src.GetEnforceChargeNeutrality())
+		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA, Limits: lim}, src.GetEnforceChargeNeutrality())
 	if err != nil {
 		return nil, err
 	}

@@ -40,6 +40,18 @@
 // (not for extremely skewed ones). The sum-rule correction solves a dense
 // 9n×9n system (n primitive sites).
 //
+// The folded model obeys physics.Validate's limits (Options.Limits), and a
+// set that would break them is refused naming its own fields, every
+// violation at once (limits.go): before the fold, a supercell so long
+// that the nearest image of a pair lies past the cell-offset limit
+// (supercell_fc.matrix) or one folding into more blocks than the
+// interaction limit (supercell_fc.atoms), and each element of Φ out of
+// physics.ForceViolation's range (supercell_fc.phi[i], the first few);
+// after it, a folded element past the largest accepted (an on-site sum)
+// or an offset past the limit that the group closure added. A folded
+// element below the smallest accepted magnitude (physics.MinForceEVPerA2,
+// a cancellation's residue) is set to 0.
+//
 // Arrows: fcimport imports the core (for its Crystal, Block and
 // ValidationError) and the core never imports fcimport; the server calls
 // Fold, puts the blocks on the crystal, then Compile.

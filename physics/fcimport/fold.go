@@ -61,6 +61,11 @@ type Options struct {
 	// SymTolA is the symmetry tolerance, Å; 0 means
 	// physics.DefaultSymTolA.
 	SymTolA float64
+	// Limits are those the folded model will be compiled with (zero
+	// fields: the defaults). A set that would fold past them — a cell
+	// offset, the number of blocks, an element's range — is refused with
+	// the set's own field paths (limits.go).
+	Limits physics.Limits
 }
 
 // key names a folded block Φ(s, 0; t, R).
@@ -97,11 +102,7 @@ func Fold(ctx context.Context, c *physics.Crystal, s *Set) ([]physics.Block, Rep
 // average keeps the other two properties to rounding; see groupaverage.go).
 func FoldModel(ctx context.Context, c *physics.Crystal, s *Set, opt Options) (*physics.Crystal, Report, error) {
 	var rep Report
-	g, err := newGeometry(c, s)
-	if err != nil {
-		return nil, rep, err
-	}
-	maps, err := g.mapAtoms(s)
+	g, maps, err := checkSet(c, s, opt.Limits)
 	if err != nil {
 		return nil, rep, err
 	}
@@ -122,7 +123,33 @@ func FoldModel(ctx context.Context, c *physics.Crystal, s *Set, opt Options) (*p
 		return nil, rep, err
 	}
 	out.Blocks = blocksOf(fc, g.d)
+	flushTiny(out.Blocks, c.ForceUnit)
+	if err := checkFolded(out.Blocks, g.d, c.ForceUnit, opt.Limits); err != nil {
+		return nil, rep, err
+	}
 	return &out, rep, nil
+}
+
+// checkSet checks the set against c and lim before any folding: its
+// numbers, its shape, the mapping of its atoms, and what it would fold
+// into (checkReach). Every violation comes at once, except those that a
+// broken shape or mapping hides. It returns the geometry and the atoms'
+// places.
+func checkSet(c *physics.Crystal, s *Set, lim physics.Limits) (*geometry, []atomMap, error) {
+	var vs physics.Violations
+	checkPhi(&vs, s.Phi, c.ForceUnit)
+	g, err := newGeometry(c, s)
+	var maps []atomMap
+	if err == nil {
+		if maps, err = g.mapAtoms(s); err == nil {
+			err = g.checkReach(s, maps, lim)
+		}
+	}
+	vs.AddErr("", "supercell_fc", err)
+	if err := vs.Err(); err != nil {
+		return nil, nil, err
+	}
+	return g, maps, nil
 }
 
 // symmetricCell makes c (lattice and sites, no interactions) exactly
@@ -238,12 +265,6 @@ func newGeometry(c *physics.Crystal, s *Set) (*geometry, error) {
 	}
 	if len(s.Phi) != 9*rows*len(s.Atoms) {
 		vs.Add("supercell_fc.phi", "needs 9×%d×%d = %d numbers, got %d", rows, len(s.Atoms), 9*rows*len(s.Atoms), len(s.Phi))
-	}
-	for i, x := range s.Phi {
-		if math.IsNaN(x) || math.Abs(x) > physics.MaxForceEVPerA2 {
-			vs.Add(fmt.Sprintf("supercell_fc.phi[%d]", i), "must be finite with |Φ| ≤ %g, got %v", physics.MaxForceEVPerA2, x)
-			break
-		}
 	}
 	return g, vs.Err()
 }
