@@ -389,9 +389,9 @@ func (w *Work) reflector(k int) bool {
 	return true
 }
 
-// tinyColumn2 is the squared norm below which reflector rescales a column:
-// under it, elements whose squares fell below the normal range (2⁻¹⁰²²)
-// could carry more than 2⁻¹⁰⁰ of it.
+// tinyColumn2 is the squared norm below which reflector rescales a column.
+// Above it, what the squares that fall below the normal range (2⁻¹⁰²²)
+// lose is under n·2⁻¹⁷⁴ of the norm; below it, it could be all of it.
 const tinyColumn2 = 0x1p-900
 
 // columnNorm2 is the squared norm of column k of w.a below the
