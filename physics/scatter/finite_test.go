@@ -11,22 +11,22 @@ import (
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
-// softFCC is the fcc example with its force constants times 2⁻⁸⁰⁰: every
-// frequency times 2⁻⁴⁰⁰ ≈ 3.9e-121 (ν ∝ √(k/m)), the eigenvectors the
+// softFCC is the fcc example with its force constants times 2⁻³²⁰: every
+// frequency times 2⁻¹⁶⁰ ≈ 6.8e-49 (ν ∝ √(k/m)), the eigenvectors the
 // same.
 func softFCC(t *testing.T) (normal, soft *physics.Model) {
 	c := testmodels.Load(t, "fcc")
 	s := testmodels.Load(t, "fcc")
 	for i := range s.Shells {
-		s.Shells[i].KLong *= 0x1p-800
-		s.Shells[i].KTrans *= 0x1p-800
+		s.Shells[i].KLong *= 0x1p-320
+		s.Shells[i].KTrans *= 0x1p-320
 	}
 	return testmodels.Compile(t, c), testmodels.Compile(t, s)
 }
 
 // TestSoftModelLines: at T = 0 with W = 0, a line's weight ħ²|F_s|²/(2E_s)
 // scales as 1/E_s with the same amplitudes F_s, so the soft crystal's lines
-// are the fcc example's times 2⁴⁰⁰ at energies times 2⁻⁴⁰⁰ (derived from
+// are the fcc example's times 2¹⁶⁰ at energies times 2⁻¹⁶⁰ (derived from
 // the line weight of doc.go; 1e-9 relative: the frequencies agree to
 // rounding). Every number of the results is finite, single crystal and
 // weighted DOS, at 0 and 300 K (the weighted DOS of this crystal was NaN
@@ -46,11 +46,11 @@ func TestSoftModelLines(t *testing.T) {
 	for i := range qs {
 		r, g := ref.Points[i].Lines, got.Points[i].Lines
 		for k := range r.EnergyMeV {
-			if e := g.EnergyMeV[k] * 0x1p400; math.Abs(e/r.EnergyMeV[k]-1) > 1e-9 {
-				t.Errorf("Q %v mode %d: energy·2⁴⁰⁰ %v, want %v", qs[i].Q, k, e, r.EnergyMeV[k])
+			if e := g.EnergyMeV[k] * 0x1p160; math.Abs(e/r.EnergyMeV[k]-1) > 1e-9 {
+				t.Errorf("Q %v mode %d: energy·2¹⁶⁰ %v, want %v", qs[i].Q, k, e, r.EnergyMeV[k])
 			}
-			if w := g.Creation[k] * 0x1p-400; math.Abs(w/r.Creation[k]-1) > 1e-9 {
-				t.Errorf("Q %v mode %d: weight·2⁻⁴⁰⁰ %v, want %v", qs[i].Q, k, w, r.Creation[k])
+			if w := g.Creation[k] * 0x1p-160; math.Abs(w/r.Creation[k]-1) > 1e-9 {
+				t.Errorf("Q %v mode %d: weight·2⁻¹⁶⁰ %v, want %v", qs[i].Q, k, w, r.Creation[k])
 			}
 		}
 	}
