@@ -22,8 +22,8 @@ import (
 // fit shares them).
 type linear struct {
 	zero      *physics.Model
-	units     []*physics.Model // per parameter; nil for a charge parameter
-	charges   *chargeBasis     // nil without free charges
+	units     []*physics.Model       // per parameter; nil for a charge parameter
+	charges   *chargeBasis           // nil without free charges
 	zeroForms *physics.LongWaveForms // when long-wave data are fitted (never with charges)
 	unitForms []*physics.LongWaveForms
 }
