@@ -99,7 +99,7 @@ func (s *Service) sendFitResult(ctx context.Context, stream grpc.ServerStreaming
 	fitted := fittedCrystal(start, res.Crystal)
 	var vs violations
 	fe, err := s.resolveInline(ctx, &modegridv1.ModelSource{
-		Source:             &modegridv1.ModelSource_Crystal{Crystal: fitted},
+		Source:                  &modegridv1.ModelSource_Crystal{Crystal: fitted},
 		EnforceSumRule:          src.GetEnforceSumRule(),
 		SymmetryToleranceA:      src.GetSymmetryToleranceA(),
 		EnforceChargeNeutrality: neutral,
