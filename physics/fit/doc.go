@@ -136,6 +136,7 @@
 //     order degenerate perturbation theory), so a degeneracy that a
 //     parameter splits is followed one-sidedly, and one it keeps is exact
 //     both ways. A mode at exactly zero frequency gets 0.
+//
 //   - Sound velocities and elastic constants: the relaxed long-wave tensor
 //     G = G2 − Y'ᵀΦ0'⁺Y' (site 0 held) is a minimum over the internal
 //     displacements, so its derivative is the derivative of the energy form
@@ -143,6 +144,7 @@
 //     ∂G = ∂G2 + Wᵀ∂Y' + ∂Y'ᵀW + Wᵀ∂Φ0'W. Speeds follow by Hellmann–Feynman
 //     on C(u) = Σ u_α u_β G_αβ (degenerate groups as above), elastic
 //     constants linearly from ∂G.
+//
 //   - Heat capacities: ∂C_V/∂x = Σ w (∂c/∂ν)(∂ν/∂x) over the modes of the
 //     sum, ∂ν/∂x by Hellmann–Feynman per mode; within a degenerate group
 //     only the group's trace enters (every mode has the same ∂c/∂ν), so
