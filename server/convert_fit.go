@@ -130,9 +130,16 @@ func addFitViolations(vs *violations, err error, byHash bool) {
 }
 
 // fittedCrystal is the fitted model as a message: the starting one (every
-// field kept) with the force constants of the engine's fitted crystal.
+// field kept, ε∞ among them) with the force constants and Born charges of
+// the engine's fitted crystal (the charges as given, before any
+// enforcement of neutrality, which the model source repeats).
 func fittedCrystal(start *modegridv1.Crystal, c *physics.Crystal) *modegridv1.Crystal {
 	out := cloneCrystal(start)
+	for i, s := range out.GetSites() {
+		if len(s.GetBornCharge()) > 0 {
+			s.BornCharge = append([]float64(nil), c.Sites[i].BornCharge...)
+		}
+	}
 	for i, s := range out.GetSprings() {
 		s.KLong, s.KTrans = c.Springs[i].KLong, c.Springs[i].KTrans
 	}

@@ -13,6 +13,7 @@ import (
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/fit"
 	"github.com/materials-lab/modegrid/physics/mesh"
+	"github.com/materials-lab/modegrid/physics/polar"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -42,17 +43,17 @@ func (s *Service) fit(ctx context.Context, req *modegridv1.FitRequest, stream gr
 		return err
 	}
 	start, byHash := s.startCrystal(src, e)
-	if len(start.GetEpsilonInf()) > 0 {
-		// Refused rather than fitted wrongly: the fit's unit-parameter
-		// models and derivatives hold short-range terms only.
-		vs.Add("model.crystal.epsilon_inf", "a polar model (Born charges and ε∞) cannot be fitted yet: fit its short-range part without the charges")
-	}
+	flags := s.startFlags(src, e) // the compile options the starting model was made with
 	dim := len(start.GetLattice())
 	prob := s.fitProblem(req, dim, &vs)
 	var est estimate
 	if prob != nil && start != nil {
 		prob.Crystal = crystalFromProto(start)
-		prob.Options = physics.Options{EnforceSumRule: src.GetEnforceSumRule(), SymTolA: src.GetSymmetryToleranceA(), Limits: physics.Limits{MaxSites: s.cfg.MaxSites}}
+		// A polar model is fitted with its dipole–dipole term in every D
+		// (physics/fit: force constants by unit models without the
+		// charges, charges by the term's exact quadratic form).
+		prob.Options = physics.Options{EnforceSumRule: src.GetEnforceSumRule(), SymTolA: src.GetSymmetryToleranceA(), Limits: physics.Limits{MaxSites: s.cfg.MaxSites},
+			EnforceChargeNeutrality: flags.GetEnforceChargeNeutrality(), LongRange: polar.Builder()}
 		if e != nil || (dim >= 1 && dim <= 3 && start.GetPolarizations() <= 3) {
 			addFitViolations(&vs, prob.Validate(), byHash) // with the model's own violations when it has any
 		}
@@ -88,19 +89,20 @@ func (s *Service) fit(ctx context.Context, req *modegridv1.FitRequest, stream gr
 		}
 		return err
 	}
-	return s.sendFitResult(ctx, stream, src, start, e.hash, canon, res)
+	return s.sendFitResult(ctx, stream, src, flags.GetEnforceChargeNeutrality(), start, e.hash, canon, res)
 }
 
 // sendFitResult stores the fitted model (compiled again under the cache's
 // rules, outside the fit's slot) and sends the result.
 func (s *Service) sendFitResult(ctx context.Context, stream grpc.ServerStreamingServer[modegridv1.FitResponse], src *modegridv1.ModelSource,
-	start *modegridv1.Crystal, hash, canon string, res *fit.Result) error {
+	neutral bool, start *modegridv1.Crystal, hash, canon string, res *fit.Result) error {
 	fitted := fittedCrystal(start, res.Crystal)
 	var vs violations
 	fe, err := s.resolveInline(ctx, &modegridv1.ModelSource{
-		Source:             &modegridv1.ModelSource_Crystal{Crystal: fitted},
-		EnforceSumRule:     src.GetEnforceSumRule(),
-		SymmetryToleranceA: src.GetSymmetryToleranceA(),
+		Source:                  &modegridv1.ModelSource_Crystal{Crystal: fitted},
+		EnforceSumRule:          src.GetEnforceSumRule(),
+		SymmetryToleranceA:      src.GetSymmetryToleranceA(),
+		EnforceChargeNeutrality: neutral,
 	}, &vs)
 	if err != nil {
 		return err
@@ -127,6 +129,20 @@ func (s *Service) startCrystal(src *modegridv1.ModelSource, e *modelEntry) (*mod
 		return nil, true
 	}
 	return stored.GetCrystal(), true
+}
+
+// startFlags is the model source whose compile options the starting
+// model was made with: the request's for an inline model, the stored
+// source for one by hash (its charge-neutrality option; nil-safe).
+func (s *Service) startFlags(src *modegridv1.ModelSource, e *modelEntry) *modegridv1.ModelSource {
+	if src.GetCrystal() != nil || e == nil {
+		return src
+	}
+	var stored modegridv1.ModelSource
+	if proto.Unmarshal(e.source, &stored) != nil {
+		return src
+	}
+	return &stored
 }
 
 // precheckFit is Fit's pre-compile check: the request's own caps and the

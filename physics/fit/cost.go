@@ -2,6 +2,7 @@ package fit
 
 import (
 	"runtime"
+	"strings"
 
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -15,8 +16,9 @@ type Shape struct {
 	// Size is the model's size: sites, polarizations, dimensionality,
 	// interactions (Points and Irreducible are ignored).
 	Size physics.GridSize
-	// Params is the number of free parameters.
-	Params int
+	// Params is the number of free parameters, Charges how many of them
+	// are Born charges (each adds charge models: ChargeModels).
+	Params, Charges int
 	// Frequencies counts the dispersion points and Γ frequencies, Q the
 	// distinct wavevectors among them (at most Frequencies).
 	Frequencies, Q int
@@ -51,6 +53,11 @@ func ShapeOf(p *Problem, size physics.GridSize, compile physics.Cost) Shape {
 		qs[[3]float64{}] = true
 	}
 	s.Q = len(qs)
+	for _, f := range p.Free {
+		if strings.HasPrefix(f.Path, "sites[") {
+			s.Charges++
+		}
+	}
 	grids := map[mesh.GridSpec]int{}
 	for _, h := range p.HeatCapacities {
 		g := h.Grid
@@ -130,6 +137,18 @@ func Cost(s Shape) physics.Cost {
 	}
 	f += heatFlops + float64(rows)*float64(np*np)*6 // the step's SVD
 	c.Flops = evals*f + float64(np)*s.Compile.Flops
+	if s.Charges > 0 {
+		// The charge models (charges.go): compiled once, each assembled
+		// (its long-range term) at every wavevector and grid point of an
+		// evaluation, and their matrices kept beside the unit models'.
+		cm := float64(ChargeModels(s.Charges))
+		c.Bytes += int64(cm) * max(s.Compile.Bytes, 4096)
+		pts := float64(q)
+		for _, h := range s.Heat {
+			pts += float64(h.Grid.Count()/2 + 1)
+		}
+		c.Flops += cm*s.Compile.Flops + evals*pts*cm*(s.Size.LongRangeFlops+2*float64(n*n))
+	}
 	return c
 }
 

@@ -49,7 +49,9 @@
 // A path names one number of the model by its place in the model file,
 // with the protobuf field names (the JSON spellings kLong, kTrans are read
 // too): springs[i].k_long, springs[i].k_trans, shells[i].k_long,
-// shells[i].k_trans, blocks[i].phi[k] (k = 0..8, row-major). A tie sets
+// shells[i].k_trans, blocks[i].phi[k] (k = 0..8, row-major), and on a
+// polar model sites[i].born_charge[k] (k = 0..8, the row-major Born
+// effective charge in e, bounded by physics.MaxBornCharge). A tie sets
 // another path to Ratio × a free parameter (Ratio 1: equal); its value in
 // the starting model is replaced. Bounds are optional, inclusive, and the
 // model's force limit (physics.MaxForceEVPerA2, in the model's unit)
@@ -134,6 +136,7 @@
 //     order degenerate perturbation theory), so a degeneracy that a
 //     parameter splits is followed one-sidedly, and one it keeps is exact
 //     both ways. A mode at exactly zero frequency gets 0.
+//
 //   - Sound velocities and elastic constants: the relaxed long-wave tensor
 //     G = G2 − Y'ᵀΦ0'⁺Y' (site 0 held) is a minimum over the internal
 //     displacements, so its derivative is the derivative of the energy form
@@ -141,13 +144,34 @@
 //     ∂G = ∂G2 + Wᵀ∂Y' + ∂Y'ᵀW + Wᵀ∂Φ0'W. Speeds follow by Hellmann–Feynman
 //     on C(u) = Σ u_α u_β G_αβ (degenerate groups as above), elastic
 //     constants linearly from ∂G.
+//
 //   - Heat capacities: ∂C_V/∂x = Σ w (∂c/∂ν)(∂ν/∂x) over the modes of the
 //     sum, ∂ν/∂x by Hellmann–Feynman per mode; within a degenerate group
 //     only the group's trace enters (every mode has the same ∂c/∂ν), so
 //     the diagonal elements eᴴ(∂D/∂x)e suffice.
 //
+//   - Born charges: the dipole–dipole term of physics/polar is bilinear
+//     in the charges (every piece of it, the sum-rule correction included;
+//     its cut-offs depend on the cell and ε∞ only), and so is it after the
+//     neutrality correction Z − mean(Z). With Z(x) = Z₀ + Σ x_a E_a the
+//     term is M(Z₀) + Σ x_a 2B(Z₀, E_a) + Σ_ab x_a x_b B(E_a, E_b), B its
+//     bilinear form, obtained once from models with zero force constants
+//     and charges only by the polarisation identity B(U, V) = [M(U + V) −
+//     M(U − V)]/4 — exact for a quadratic M, not a finite difference
+//     (charges.go derives it). ∂D/∂x_a = 2B(Z₀, E_a) + 2Σ_b x_b B(E_a,
+//     E_b) enters Hellmann–Feynman as above. The unit models of the force
+//     constants are compiled without charges (the term does not depend
+//     on them) and the zero model holds M(Z₀). A tie never joins a charge
+//     and a force constant. Γ data of a polar model are frequencies of
+//     the analytic D(Γ) (no direction: the transverse optical modes at
+//     the zone centre, as infrared absorption sees them); sound velocities
+//     and elastic constants of a polar model are refused (the long-wave
+//     forms are short-range only).
+//
 // TestDerivativesAgainstFiniteDifferences checks every parameter kind on
-// every data kind against central differences (1e-6 relative).
+// every data kind against central differences (1e-6 relative), and
+// TestChargeDerivativesAgainstFiniteDifferences the charges on every data
+// kind a polar fit takes, with and without neutrality enforced.
 //
 // # Uncertainties
 //
@@ -190,12 +214,11 @@
 //
 // A kind is one entry of the table in params.go: the collection and field
 // (protobuf and JSON names), and a reference to the number in a Crystal.
-// A kind on which D depends non-linearly (a site's Born effective charge,
-// sites[i].born_charge[k], through a dipole–dipole term quadratic in the
-// charges; a mass) cannot use the unit-parameter model: its entry then
-// also gives ∂D(q)/∂x and the derivative of the long-wave forms at the
-// current model, and the evaluator asks the entry instead of the unit
-// model. The data kinds, the method and the uncertainties are untouched.
+// A kind on which D depends linearly uses the unit-parameter model. The
+// Born charges, on which D depends quadratically, are marked charge and
+// use the charge models of charges.go; another non-linear kind (a mass)
+// would need its own derivative of D and of the long-wave forms. The
+// data kinds, the method and the uncertainties are untouched.
 //
 // # Cost, concurrency and cancellation
 //

@@ -71,21 +71,18 @@ func newEvaluator(ctx context.Context, p *Problem, params []param) (*evaluator, 
 		}
 		return nil, startError(err)
 	}
-	zero := zeroForces(p.Crystal)
-	for j := range params {
-		one := make([]float64, len(params))
-		one[j] = 1
-		u, err := ev.compile(ctx, crystalAt(zero, params, one))
-		if err != nil {
-			return nil, fmt.Errorf("fit: the unit model of %s: %w", params[j].name, err)
-		}
-		ev.lin.units = append(ev.lin.units, u)
+	if err := ev.compileUnits(ctx, p.Crystal, params); err != nil {
+		return nil, err
 	}
 	m := ev.lin.zero
 	var vs physics.Violations
 	ev.freqs = ev.setupFrequencies(p)
 	ev.checkFrequencies(&vs, ev.freqs, m.ModeCount(), m.Polarizations())
-	ev.setupLongWave(p, m, &vs)
+	if m.Polar() {
+		refusePolarLongWave(p, &vs)
+	} else {
+		ev.setupLongWave(p, m, &vs)
+	}
 	ev.setupHeat(p, m)
 	if vs.Len() > 0 {
 		return nil, vs.Err()
@@ -98,6 +95,44 @@ func newEvaluator(ctx context.Context, p *Problem, params []param) (*evaluator, 
 	}
 	ev.cacheMatrices()
 	return ev, nil
+}
+
+// compileUnits compiles the unit-parameter model of every force-constant
+// parameter (from start without its charges: the dipole–dipole term does
+// not depend on force constants, and sits in the zero model) and the
+// charge models of the charge parameters (charges.go).
+func (ev *evaluator) compileUnits(ctx context.Context, start *physics.Crystal, params []param) error {
+	zero := withoutCharges(zeroForces(start))
+	for j, pr := range params {
+		if pr.members[0].path.isCharge() {
+			ev.lin.units = append(ev.lin.units, nil)
+			continue
+		}
+		one := make([]float64, len(params))
+		one[j] = 1
+		u, err := ev.compile(ctx, crystalAt(zero, params[j:j+1], one[j:j+1]))
+		if err != nil {
+			return fmt.Errorf("fit: the unit model of %s: %w", params[j].name, err)
+		}
+		ev.lin.units = append(ev.lin.units, u)
+	}
+	var err error
+	ev.lin.charges, err = ev.newChargeBasis(ctx, start, crystalAt(ev.base, params, make([]float64, len(params))), params)
+	return err
+}
+
+// refusePolarLongWave refuses sound velocities and elastic constants of a
+// polar model: the fit's long-wave forms hold the short-range force
+// constants only, and the dipole–dipole term's long-wave limit (its
+// analytic part, and the macroscopic field of the internal relaxation)
+// is not in them.
+func refusePolarLongWave(p *Problem, vs *physics.Violations) {
+	if len(p.SoundVelocities) > 0 {
+		vs.Add("sound_velocities", "sound velocities cannot be fitted for a polar model (Born charges and ε∞): the fit's long-wave limit holds the short-range force constants only; give dispersion points at small q along the direction instead")
+	}
+	if len(p.ElasticConstants) > 0 {
+		vs.Add("elastic_constants", "elastic constants cannot be fitted for a polar model (Born charges and ε∞): the fit's long-wave limit holds the short-range force constants only; give dispersion points at small q instead")
+	}
 }
 
 // compile compiles c with the fit's options, returning ctx.Err() when ctx

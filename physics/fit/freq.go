@@ -39,7 +39,7 @@ const maxCachedMatrixBytes = 32 << 20
 // they fit maxCachedMatrixBytes.
 func (ev *evaluator) cacheMatrices() {
 	n := int64(ev.lin.zero.ModeCount())
-	if int64(len(ev.freqs))*int64(1+len(ev.params))*16*n*n > maxCachedMatrixBytes {
+	if int64(len(ev.freqs))*int64(ev.lin.count())*16*n*n > maxCachedMatrixBytes {
 		return
 	}
 	for g := range ev.freqs {
@@ -112,7 +112,7 @@ func (ev *evaluator) evalGroup(g *qGroup, e *evaluation) {
 	if mats == nil {
 		mats = ev.lin.matrices(g.q, nil)
 	}
-	lam, nu, vecs := solve(eigen.NewWork(n), combine(mats, e.x, nil), g.q, m.Polarizations(), ev.lin.eigenTol(e.x))
+	lam, nu, vecs := solve(eigen.NewWork(n), ev.lin.combine(mats, e.x, nil), g.q, m.Polarizations(), ev.lin.eigenTol(e.x))
 	var long []float64
 	if g.hints {
 		long = longitudinalFractions(m, g.q, vecs)
@@ -127,13 +127,14 @@ func (ev *evaluator) evalGroup(g *qGroup, e *evaluation) {
 	}
 	branches := assign(items, nu, long, excluded)
 	tol := degeneracyTol(lam, ev.lin.eigenTol(e.x))
+	dD, _ := ev.lin.derivatives(mats, e.x, nil)
 	for i, d := range g.data {
 		b := branches[i]
 		e.value[d.row], e.branch[d.row] = nu[b], b+1
 		if nu[b] == 0 {
 			continue // a zero mode: its frequency is pinned (∂ν/∂λ infinite at 0, and λ stays 0)
 		}
-		h := eigenDerivatives(mats[1:], vecs, lam, b, n, tol)
+		h := eigenDerivatives(dD, vecs, lam, b, n, tol)
 		scale := physics.NuUnitTHz * physics.NuUnitTHz / (2 * math.Abs(nu[b]))
 		for j := range np {
 			e.jac[d.row*np+j] = h[j] * scale

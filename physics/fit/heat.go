@@ -158,7 +158,8 @@ func (ev *evaluator) evalHeatGroup(ctx context.Context, g *heatGroup, e *evaluat
 type heatWork struct {
 	m    *physics.Model // the zero model: sizes
 	eig  *eigen.Work
-	mats [][]complex128 // D₀ and the D_j at the current point
+	mats [][]complex128 // D₀ and the D_j at the current point (linear.matrices)
+	dbuf [][]complex128 // the charges' ∂D/∂x (linear.derivatives)
 	d    []complex128   // D(x)
 	tmp  []complex128
 	hk   []float64 // per mode and parameter: e_kᴴ D_j e_k
@@ -177,7 +178,9 @@ func newHeatWork(m *physics.Model, params int) *heatWork {
 func (w *heatWork) point(ev *evaluator, g *heatGroup, x []float64, q [3]float64, weight float64, acc []float64) {
 	n, p := w.m.ModeCount(), w.m.Polarizations()
 	w.mats = ev.lin.matrices(q, w.mats)
-	w.d = combine(w.mats, x, w.d)
+	w.d = ev.lin.combine(w.mats, x, w.d)
+	var dD [][]complex128
+	dD, w.dbuf = ev.lin.derivatives(w.mats, x, w.dbuf)
 	lam, nu, vecs := solve(w.eig, w.d, q, p, ev.lin.eigenTol(x))
 	for k, l := range lam {
 		w.skip[k] = !(l > 0)
@@ -194,7 +197,7 @@ func (w *heatWork) point(ev *evaluator, g *heatGroup, x []float64, q [3]float64,
 		}
 		v := vecs[k*n : (k+1)*n]
 		for j := range np {
-			mulVec(w.mats[1+j], v, w.tmp, n)
+			mulVec(dD[j], v, w.tmp, n)
 			w.hk[k*np+j] = real(dotc(v, w.tmp))
 		}
 	}

@@ -17,33 +17,40 @@ import (
 // reach it. Every kind listed here is linear in the dynamical matrix: its
 // derivative is the dynamical matrix of the unit-parameter model (eval.go).
 //
-// Adding a kind is one entry of this table. A kind on which D does not
-// depend linearly (a site's Born effective charge, sites[i].born_charge[k],
-// once the model has it: the dipole–dipole term is quadratic in the
-// charges) adds, in the same entry, the derivative of D and of the
-// long-wave forms at the current model instead of relying on the unit
-// model; see the Adding a parameter kind section of doc.go.
+// Adding a kind is one entry of this table. The one kind on which D does
+// not depend linearly, a site's Born effective charge
+// (sites[i].born_charge[k]), is marked charge: D is quadratic in it, and
+// charges.go gives its derivative exactly from models compiled with
+// charges only; see the Adding a parameter kind section of doc.go.
 type kind struct {
 	collection string // "springs"
 	field      string // "k_long": the proto field name
 	json       string // "kLong": the protojson name, accepted as a spelling
 	width      int    // 0: a scalar field; k > 0: the field is a list of k numbers (phi[0..8])
-	count      func(c *physics.Crystal) int
-	ref        func(c *physics.Crystal, i, k int) *float64
+	// charge marks a Born effective charge: D depends on it quadratically
+	// (the dipole–dipole term is bilinear in the charges), so its
+	// derivative comes from the charge models of charges.go, not from a
+	// unit-parameter model; its bound is physics.MaxBornCharge (e), not
+	// the force limit.
+	charge bool
+	count  func(c *physics.Crystal) int
+	ref    func(c *physics.Crystal, i, k int) *float64
 }
 
 // kinds is the table of parameter kinds.
 var kinds = []kind{
-	{"springs", "k_long", "kLong", 0, func(c *physics.Crystal) int { return len(c.Springs) },
+	{"springs", "k_long", "kLong", 0, false, func(c *physics.Crystal) int { return len(c.Springs) },
 		func(c *physics.Crystal, i, _ int) *float64 { return &c.Springs[i].KLong }},
-	{"springs", "k_trans", "kTrans", 0, func(c *physics.Crystal) int { return len(c.Springs) },
+	{"springs", "k_trans", "kTrans", 0, false, func(c *physics.Crystal) int { return len(c.Springs) },
 		func(c *physics.Crystal, i, _ int) *float64 { return &c.Springs[i].KTrans }},
-	{"shells", "k_long", "kLong", 0, func(c *physics.Crystal) int { return len(c.Shells) },
+	{"shells", "k_long", "kLong", 0, false, func(c *physics.Crystal) int { return len(c.Shells) },
 		func(c *physics.Crystal, i, _ int) *float64 { return &c.Shells[i].KLong }},
-	{"shells", "k_trans", "kTrans", 0, func(c *physics.Crystal) int { return len(c.Shells) },
+	{"shells", "k_trans", "kTrans", 0, false, func(c *physics.Crystal) int { return len(c.Shells) },
 		func(c *physics.Crystal, i, _ int) *float64 { return &c.Shells[i].KTrans }},
-	{"blocks", "phi", "phi", 9, func(c *physics.Crystal) int { return len(c.Blocks) },
+	{"blocks", "phi", "phi", 9, false, func(c *physics.Crystal) int { return len(c.Blocks) },
 		func(c *physics.Crystal, i, k int) *float64 { return &c.Blocks[i].Phi[k] }},
+	{"sites", "born_charge", "bornCharge", 9, true, func(c *physics.Crystal) int { return len(c.Sites) },
+		func(c *physics.Crystal, i, k int) *float64 { return &c.Sites[i].BornCharge[k] }},
 }
 
 // Path is a resolved parameter path: one number of a Crystal.
@@ -106,6 +113,9 @@ func resolve(c *physics.Crystal, kd *kind, s string, i int, ierr error, kstr str
 	if ierr != nil || i >= n {
 		return Path{}, fmt.Errorf("%q: index %s out of range: the model has %d %s", s, strconvQuote(i, ierr), n, kd.collection)
 	}
+	if kd.charge && len(c.Sites[i].BornCharge) != kd.width {
+		return Path{}, fmt.Errorf("%q: site %d has no Born charge (9 numbers): only a polar model (Born charges and ε∞) has charges to fit", s, i)
+	}
 	p := Path{kind: kd, i: i}
 	switch {
 	case kd.width == 0 && kstr != "":
@@ -145,10 +155,16 @@ func kindList() string {
 }
 
 // cloneForces returns a copy of c that owns its force constants (springs,
-// shells, blocks and their phi); lattice and sites are shared, never
-// written.
+// shells, blocks and their phi) and its sites' Born charges; the lattice
+// and the rest of the sites are shared, never written.
 func cloneForces(c *physics.Crystal) *physics.Crystal {
 	out := *c
+	out.Sites = append([]physics.Site(nil), c.Sites...)
+	for i := range out.Sites {
+		if z := out.Sites[i].BornCharge; z != nil {
+			out.Sites[i].BornCharge = append([]float64(nil), z...)
+		}
+	}
 	out.Springs = append([]physics.Spring(nil), c.Springs...)
 	out.Shells = append([]physics.Shell(nil), c.Shells...)
 	out.Blocks = make([]physics.Block, len(c.Blocks))
@@ -162,7 +178,8 @@ func cloneForces(c *physics.Crystal) *physics.Crystal {
 // zeroForces returns a copy of c with every force constant 0: the
 // skeleton of a unit-parameter model (the same springs, shells and
 // blocks, so the same on-site blocks given or left to the sum rule, and
-// the same bonds found by the shells).
+// the same bonds found by the shells). Its charges are c's; see
+// withoutCharges and charges.go.
 func zeroForces(c *physics.Crystal) *physics.Crystal {
 	out := cloneForces(c)
 	for i := range out.Springs {
@@ -175,4 +192,29 @@ func zeroForces(c *physics.Crystal) *physics.Crystal {
 		clear(out.Blocks[i].Phi)
 	}
 	return out
+}
+
+// withoutCharges returns c without polar data (no Born charges, no ε∞):
+// the skeleton of the unit-parameter models of the force constants, whose
+// D must hold the short-range term only (the dipole–dipole term depends
+// on the charges alone, not on any force constant). c must own its sites
+// (cloneForces).
+func withoutCharges(c *physics.Crystal) *physics.Crystal {
+	c.EpsilonInf = nil
+	for i := range c.Sites {
+		c.Sites[i].BornCharge = nil
+	}
+	return c
+}
+
+// isCharge reports whether p names a Born effective charge.
+func (p Path) isCharge() bool { return p.kind.charge }
+
+// paramLimit is the largest |value| of the number p names: the force
+// limit for force constants, physics.MaxBornCharge for charges.
+func paramLimit(c *physics.Crystal, p Path) float64 {
+	if p.isCharge() {
+		return physics.MaxBornCharge
+	}
+	return forceLimit(c)
 }

@@ -39,7 +39,6 @@ func (p *Problem) params(vs *physics.Violations) []param {
 	seen := map[string]string{} // canonical path → field that named it
 	var out []param
 	index := map[string]int{}
-	limit := forceLimit(c)
 	for i, f := range p.Free {
 		field := fmt.Sprintf("free[%d]", i)
 		path, err := ParsePath(c, f.Path)
@@ -53,6 +52,7 @@ func (p *Problem) params(vs *physics.Violations) []param {
 			continue
 		}
 		seen[name] = field + ".path"
+		limit := paramLimit(c, path)
 		pr := param{name: name, members: []member{{path, 1}}, start: path.Get(c), lo: -limit, hi: limit}
 		if !checkBounds(vs, field, f, pr.start, limit) {
 			continue
@@ -67,7 +67,7 @@ func (p *Problem) params(vs *physics.Violations) []param {
 		out = append(out, pr)
 	}
 	for i, t := range p.Ties {
-		p.addTie(vs, fmt.Sprintf("ties[%d]", i), t, seen, index, out, limit)
+		p.addTie(vs, fmt.Sprintf("ties[%d]", i), t, seen, index, out)
 	}
 	return out
 }
@@ -82,7 +82,7 @@ func checkBounds(vs *physics.Violations, field string, f Free, start, limit floa
 		name string
 	}{{f.HasLower, f.Lower, "lower"}, {f.HasUpper, f.Upper, "upper"}} {
 		if b.has && (!finite(b.v) || math.Abs(b.v) > limit) {
-			vs.Add(field+"."+b.name, "must be a finite number within the model's force limit ±%g, got %v", limit, b.v)
+			vs.Add(field+"."+b.name, "must be a finite number within the parameter's limit ±%g (the model's force limit, or the largest Born charge in e), got %v", limit, b.v)
 			ok = false
 		}
 	}
@@ -108,7 +108,7 @@ func boundString(has bool, v float64) string {
 }
 
 // addTie adds tie t to the free parameter it follows.
-func (p *Problem) addTie(vs *physics.Violations, field string, t Tie, seen map[string]string, index map[string]int, params []param, limit float64) {
+func (p *Problem) addTie(vs *physics.Violations, field string, t Tie, seen map[string]string, index map[string]int, params []param) {
 	path, err := ParsePath(p.Crystal, t.Path)
 	if err != nil {
 		vs.Add(field+".path", "%v", err)
@@ -139,8 +139,13 @@ func (p *Problem) addTie(vs *physics.Violations, field string, t Tie, seen map[s
 		return
 	}
 	pr := &params[x]
+	if path.isCharge() != pr.members[0].path.isCharge() {
+		vs.Add(field+".to", "%s and %s are of different sorts (a Born charge, in e, and a force constant): a tie joins numbers of one sort", name, to.String())
+		return
+	}
+	limit := paramLimit(p.Crystal, path)
 	pr.members = append(pr.members, member{path, ratio})
-	// The tied number must stay within the force limit too.
+	// The tied number must stay within its limit too.
 	pr.lo = math.Max(pr.lo, -limit/math.Abs(ratio))
 	pr.hi = math.Min(pr.hi, limit/math.Abs(ratio))
 }
