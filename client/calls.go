@@ -202,6 +202,14 @@ func (s *sender) streamOnce(ctx context.Context, o callOptions, delivered *int, 
 	first := true
 	for {
 		chunk, err := stream.Recv()
+		if errors.Is(err, io.EOF) && first {
+			// The server sends at least one message (the model hash) on
+			// every successful stream. A stream seen to end cleanly before
+			// any was seen once in CI after retries were exhausted on a
+			// server that answered every attempt UNAVAILABLE: never a
+			// silent empty result.
+			return status.Error(codes.Unavailable, "modegrid client: the stream ended before its first message")
+		}
 		if errors.Is(err, io.EOF) {
 			return nil
 		}
