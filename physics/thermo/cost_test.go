@@ -155,7 +155,11 @@ func TestCostLadder(t *testing.T) {
 		est := r.est()
 		ratio := float64(est) / float64(got)
 		t.Logf("| %s | %d | %d | %.2f |", r.name, est, got, ratio)
-		if est < got || ratio > 2 {
+		// Above 2× is allowed within 16 KiB: the fixed allowance for the
+		// result's header and the workers' closures dominates the smallest
+		// rungs, whose allocation varies by ±5 KiB between runs under the
+		// race detector.
+		if est < got || (ratio > 2 && est-got > 16<<10) {
 			t.Errorf("%s: estimate %d B, measured %d B (ratio %.2f, want 1…2)", r.name, est, got, ratio)
 		}
 	}
