@@ -4,28 +4,13 @@ package polar_test
 
 import (
 	"context"
-	"runtime"
-	"runtime/debug"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/polar"
 )
-
-// measureAlloc runs fn with the collector off and returns the bytes it
-// allocated (TotalAlloc growth): deterministic, and an upper bound of the
-// live peak (nothing is freed meanwhile).
-func measureAlloc(fn func()) int64 {
-	old := debug.SetGCPercent(-1)
-	defer debug.SetGCPercent(old)
-	runtime.GC()
-	var a, b runtime.MemStats
-	runtime.ReadMemStats(&a)
-	fn()
-	runtime.ReadMemStats(&b)
-	return int64(b.TotalAlloc - a.TotalAlloc)
-}
 
 // TestCostEstimates: the estimates of the infrared response and of the
 // term's set-up lie between 1× and 2× of what the real runs allocate
@@ -51,7 +36,7 @@ func TestCostEstimates(t *testing.T) {
 		c    *physics.Crystal
 	}{{"2 sites", rockSalt(1.2, iso(3))}, {"3 sites", fluorite(1.1)}, {"16 sites", big}} {
 		m := compile(t, tc.c, 0)
-		setup := measureAlloc(func() {
+		setup := testmodels.MeasureAlloc(t, func() {
 			if _, err := polar.NewTerm(context.Background(), m, polar.Params{}); err != nil {
 				t.Fatal(err)
 			}
@@ -66,7 +51,7 @@ func TestCostEstimates(t *testing.T) {
 			t.Errorf("%s, set-up: estimate %d bytes, measured %d; want 1× to 2×", tc.name, est, setup)
 		}
 		for _, n := range []int{11, 1001, 5001} {
-			got := measureAlloc(func() {
+			got := testmodels.MeasureAlloc(t, func() {
 				if _, err := polar.Infrared(context.Background(), m, polar.IROptions{Direction: [3]float64{1, 0, 0}, Points: n}); err != nil {
 					t.Fatal(err)
 				}

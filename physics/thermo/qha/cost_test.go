@@ -1,28 +1,13 @@
 package qha_test
 
 import (
-	"runtime"
-	"runtime/debug"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
 	"github.com/materials-lab/modegrid/physics/mesh"
 	"github.com/materials-lab/modegrid/physics/thermo/qha"
 )
-
-// measureAlloc runs fn with the collector off and returns the bytes it
-// allocated (the method of physics/thermo's TestCostLadder: an upper bound
-// of the live peak, deterministic).
-func measureAlloc(fn func()) int64 {
-	old := debug.SetGCPercent(-1)
-	defer debug.SetGCPercent(old)
-	runtime.GC()
-	var a, b runtime.MemStats
-	runtime.ReadMemStats(&a)
-	fn()
-	runtime.ReadMemStats(&b)
-	return int64(b.TotalAlloc - a.TotalAlloc)
-}
 
 // TestCostEstimates: GruneisenCost and QHACost lie between 1× and 2× of
 // the measured allocation over a ladder of grids, volumes and
@@ -36,7 +21,7 @@ func TestCostEstimates(t *testing.T) {
 		if _, err := qha.GridGruneisen(ctx(t), set, spec); err != nil { // warm: symmetry
 			t.Fatal(err)
 		}
-		got := measureAlloc(func() {
+		got := testmodels.MeasureAlloc(t, func() {
 			if _, err := qha.GridGruneisen(ctx(t), set, spec); err != nil {
 				t.Error(err)
 			}
@@ -57,7 +42,7 @@ func TestCostEstimates(t *testing.T) {
 		if _, err := qha.Compute(ctx(t), set, static, opt); err != nil {
 			t.Fatal(err)
 		}
-		got = measureAlloc(func() {
+		got = testmodels.MeasureAlloc(t, func() {
 			if _, err := qha.Compute(ctx(t), set, static, opt); err != nil {
 				t.Error(err)
 			}
