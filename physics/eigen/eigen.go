@@ -70,11 +70,11 @@ const (
 type Work struct {
 	n    int
 	a    []complex128 // input matrix, lower triangle; overwritten
-	hv   []complex128 // Householder vectors: hv[k*n+i], i > k (hv[k*n+k+1] = 1)
+	hv   []complex128 // Householder vectors: hv[k*n+i], i > k (hv[k*n+k+1] = 1); pure-Go path
 	tau  []complex128 // reflector scalars
 	y    []complex128 // scratch vector
 	d, e []float64    // tridiagonal: diagonal and sub-diagonal (e[n-1] scratch)
-	zt   []float64    // rotations of QL: row k is the k-th tridiagonal eigenvector
+	zt   []float64    // rotations of QL: row k is the k-th tridiagonal eigenvector; pure-Go path
 	perm []int        // ascending order of d
 
 	// Results of Solve.
@@ -84,14 +84,18 @@ type Work struct {
 	// done, when not nil, is polled inside the loops of large solves; a
 	// closed channel makes Solve return Stopped.
 	done <-chan struct{}
+
+	route  route          // which path Solve takes (dispatch.go)
+	lapack [2]*lapackWork // LAPACK workspaces, values and vectors, when used
 }
 
-// NewWork returns the workspace for n×n matrices.
+// NewWork returns the workspace for n×n matrices. The workspace of each
+// path and mode (eigenvalues, eigenvectors) is allocated by the first
+// Solve that needs it and reused after.
 func NewWork(n int) *Work {
 	return &Work{
 		n:    n,
 		a:    make([]complex128, n*n),
-		hv:   make([]complex128, n*n),
 		tau:  make([]complex128, n),
 		y:    make([]complex128, n),
 		d:    make([]float64, n),
@@ -148,11 +152,14 @@ func (w *Work) stopped() bool {
 // eigenvectors into w.vecs. It returns NoConverge if QL did not
 // converge (w.a is then destroyed; callers rebuild the matrix and use the
 // real embedding of embed.go), Stopped if done was closed.
+//
+// In builds with the lapack tag, matrices of lapackMin modes and more go to
+// LAPACK (lapackSolve), which cannot poll done during the call: it is
+// polled before and after (DEVELOPERS.md states the longest call).
 func (w *Work) Solve(vectors bool) Status {
 	n := w.n
 	if vectors && w.vecs == nil {
 		w.vecs = make([]complex128, n*n)
-		w.zt = make([]float64, n*n)
 	}
 	if n == 1 {
 		w.vals[0] = real(w.a[0])
@@ -186,6 +193,15 @@ func (w *Work) Solve(vectors bool) Status {
 	if exp != 0 && w.scale(complex(math.Ldexp(1, -exp), 0)) {
 		return Stopped
 	}
+	if w.useLAPACK(vectors) {
+		return w.solveLAPACK(vectors, math.Ldexp(1, exp))
+	}
+	if w.hv == nil {
+		w.hv = make([]complex128, n*n)
+	}
+	if vectors && w.zt == nil {
+		w.zt = make([]float64, n*n)
+	}
 	if w.tridiagonalize() {
 		return Stopped
 	}
@@ -199,6 +215,31 @@ func (w *Work) Solve(vectors bool) Status {
 	}
 	w.sortValues(math.Ldexp(1, exp))
 	if vectors && w.backTransform() {
+		return Stopped
+	}
+	return OK
+}
+
+// solveLAPACK is Solve's LAPACK path on the scaled matrix in w.a: the
+// eigenvalues, multiplied by unscale, into w.vals and, with vectors, the
+// eigenvectors into w.vecs (lapackSolve leaves them conjugated; see
+// there). done is polled before and after the call.
+func (w *Work) solveLAPACK(vectors bool, unscale float64) Status {
+	if w.stopped() {
+		return Stopped
+	}
+	if !w.lapackSolve(vectors) {
+		return NoConverge
+	}
+	for k, d := range w.d {
+		w.vals[k] = d * unscale
+	}
+	if vectors {
+		for k, z := range w.vecs {
+			w.vecs[k] = complex(real(z), -imag(z))
+		}
+	}
+	if w.stopped() {
 		return Stopped
 	}
 	return OK
