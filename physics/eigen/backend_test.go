@@ -287,3 +287,50 @@ func TestWorkspaceBytes(t *testing.T) {
 		}
 	}
 }
+
+// TestConcurrentSolves: workspaces used from several goroutines at once
+// (as the engine's workers do), at sizes on both paths and above the
+// size from which a lone LAPACK call may use several threads, give the
+// results of solving one after the other, to 1e-12 ‖H‖_F (a call on
+// several threads may round differently).
+func TestConcurrentSolves(t *testing.T) {
+	rng := rand.New(rand.NewPCG(12, 3))
+	sizes := []int{30, 70, 200, 400}
+	mats := make([][]complex128, len(sizes))
+	want := make([][]float64, len(sizes))
+	for i, n := range sizes {
+		mats[i] = randomHermitian(rng, n)
+		want[i], _ = solveRoute(t, mats[i], n, routeAuto, false)
+	}
+	const workers = 4
+	errs := make(chan error, workers)
+	for g := 0; g < workers; g++ {
+		go func() {
+			var err error
+			for rep := 0; rep < 3 && err == nil; rep++ {
+				i := (g + rep) % len(sizes)
+				n := sizes[i]
+				w := NewWork(n)
+				copy(w.a, mats[i])
+				vectors := (g+rep)%2 == 1
+				if st := w.Solve(vectors); st != OK {
+					err = fmt.Errorf("n=%d: status %v", n, st)
+					break
+				}
+				tol := 1e-12 * frobenius(mats[i])
+				for k, v := range w.Values() {
+					if math.Abs(v-want[i][k]) > tol {
+						err = fmt.Errorf("n=%d vectors=%v: λ%d = %v concurrently, %v alone", n, vectors, k, v, want[i][k])
+						break
+					}
+				}
+			}
+			errs <- err
+		}()
+	}
+	for g := 0; g < workers; g++ {
+		if err := <-errs; err != nil {
+			t.Error(err)
+		}
+	}
+}

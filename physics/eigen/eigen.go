@@ -85,8 +85,9 @@ type Work struct {
 	// closed channel makes Solve return Stopped.
 	done <-chan struct{}
 
-	route  route          // which path Solve takes (dispatch.go)
-	lapack [2]*lapackWork // LAPACK workspaces, values and vectors, when used
+	route   route          // which path Solve takes (dispatch.go)
+	lapack  [2]*lapackWork // LAPACK workspaces, values and vectors, when used
+	threads int            // OpenBLAS threads of the last LAPACK call
 }
 
 // NewWork returns the workspace for n×n matrices. The workspace of each

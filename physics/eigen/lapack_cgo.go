@@ -169,6 +169,7 @@ func (w *Work) lapackSolve(vectors bool) bool {
 		w.lapack[modeIndex(vectors)] = lw
 	}
 	threads := lapackThreads.enter(w.n, vectors)
+	w.threads = threads
 	var info C.int
 	if lw.evr {
 		z := w.a // unused without vectors
@@ -246,3 +247,6 @@ func backendName() string { return "lapack" }
 
 // backendDetail is OpenBLAS's own build description (version, target).
 func backendDetail() string { return C.GoString(C.openblas_get_config()) }
+
+// openblasThreads is OpenBLAS's current thread count (tests).
+func openblasThreads() int { return int(C.openblas_get_num_threads()) }

@@ -7,6 +7,7 @@ package eigen
 import (
 	"fmt"
 	"math/rand/v2"
+	"runtime"
 	"testing"
 )
 
@@ -85,5 +86,24 @@ func BenchmarkLAPACKCrossover(b *testing.B) {
 				})
 			}
 		}
+	}
+}
+
+// TestWideCallRestoresThreads: a lone large call may run on several
+// OpenBLAS threads, and leaves OpenBLAS on one thread after it, so that
+// calls from the engine's workers do not oversubscribe the cores.
+func TestWideCallRestoresThreads(t *testing.T) {
+	rng := rand.New(rand.NewPCG(7, 7))
+	n := wideMin[1]
+	w := NewWork(n)
+	copy(w.a, randomHermitian(rng, n))
+	if st := w.Solve(true); st != OK {
+		t.Fatalf("status %v", st)
+	}
+	if want := min(lapackThreads.maxThreads, runtime.GOMAXPROCS(0)); w.threads != want {
+		t.Errorf("a lone call of n=%d ran on %d threads; want %d", n, w.threads, want)
+	}
+	if got := openblasThreads(); got != 1 {
+		t.Errorf("OpenBLAS runs %d threads after a call; want 1", got)
 	}
 }
