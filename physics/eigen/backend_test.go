@@ -334,3 +334,45 @@ func TestConcurrentSolves(t *testing.T) {
 		}
 	}
 }
+
+// TestStopMidSolve: a stop channel closed during a solve, at its first,
+// middle or last poll, makes that solve return Stopped, on every path; a
+// large LAPACK solve polls between the panels of its reduction (n/32 of
+// them) and between the column blocks of its back-transformation, so more
+// than n/32 times.
+func TestStopMidSolve(t *testing.T) {
+	rng := rand.New(rand.NewPCG(30, 1))
+	const n = 300
+	h := randomHermitian(rng, n)
+	for _, r := range routes() {
+		for _, vectors := range []bool{false, true} {
+			w := NewWork(n)
+			w.route = r.route
+			polls := 0
+			w.onPoll = func() { polls++ }
+			w.SetStop(make(chan struct{}))
+			copy(w.a, h)
+			if st := w.Solve(vectors); st != OK {
+				t.Fatalf("%s vectors=%v: status %v", r.name, vectors, st)
+			}
+			if polls <= n/32 {
+				t.Errorf("%s vectors=%v: %d polls in a solve of n=%d; want more than %d", r.name, vectors, polls, n, n/32)
+			}
+			total := polls
+			for _, at := range []int{1, total / 2, total} {
+				done := make(chan struct{})
+				polls = 0
+				w.onPoll = func() {
+					if polls++; polls == at {
+						close(done)
+					}
+				}
+				w.SetStop(done)
+				copy(w.a, h)
+				if st := w.Solve(vectors); st != Stopped {
+					t.Errorf("%s vectors=%v: stop at poll %d of %d gave status %v; want Stopped", r.name, vectors, at, total, st)
+				}
+			}
+		}
+	}
+}

@@ -88,6 +88,7 @@ type Work struct {
 	route   route          // which path Solve takes (dispatch.go)
 	lapack  [2]*lapackWork // LAPACK workspaces, values and vectors, when used
 	threads int            // OpenBLAS threads of the last LAPACK call
+	onPoll  func()         // tests: called at each poll of done
 }
 
 // NewWork returns the workspace for n×n matrices. The workspace of each
@@ -139,6 +140,9 @@ const (
 func (w *Work) stopped() bool {
 	if w.done == nil {
 		return false
+	}
+	if w.onPoll != nil {
+		w.onPoll()
 	}
 	select {
 	case <-w.done:
@@ -224,13 +228,13 @@ func (w *Work) Solve(vectors bool) Status {
 // solveLAPACK is Solve's LAPACK path on the scaled matrix in w.a: the
 // eigenvalues, multiplied by unscale, into w.vals and, with vectors, the
 // eigenvectors into w.vecs (lapackSolve leaves them conjugated; see
-// there). done is polled before and after the call.
+// there). done is polled before, between and after the LAPACK calls.
 func (w *Work) solveLAPACK(vectors bool, unscale float64) Status {
 	if w.stopped() {
 		return Stopped
 	}
-	if !w.lapackSolve(vectors) {
-		return NoConverge
+	if st := w.lapackSolve(vectors); st != OK {
+		return st
 	}
 	for k, d := range w.d {
 		w.vals[k] = d * unscale

@@ -12,13 +12,31 @@ package eigen
 #include <complex.h>
 #include <stddef.h>
 
-// LAPACK (Fortran, LP64: INTEGER is a C int; the hidden lengths of the
-// CHARACTER arguments are size_t at the end, as gfortran passes them).
-void zheevd_(const char *jobz, const char *uplo, const int *n,
-	double complex *a, const int *lda, double *w,
-	double complex *work, const int *lwork, double *rwork, const int *lrwork,
+// LAPACK and BLAS (Fortran, LP64: INTEGER is a C int; the hidden lengths of
+// the CHARACTER arguments are size_t at the end, as gfortran passes them).
+int ilaenv_(const int *ispec, const char *name, const char *opts,
+	const int *n1, const int *n2, const int *n3, const int *n4, size_t, size_t);
+void zlatrd_(const char *uplo, const int *n, const int *nb, double complex *a,
+	const int *lda, double *e, double complex *tau, double complex *w,
+	const int *ldw, size_t);
+void zher2k_(const char *uplo, const char *trans, const int *n, const int *k,
+	const double complex *alpha, const double complex *a, const int *lda,
+	const double complex *b, const int *ldb, const double *beta,
+	double complex *c, const int *ldc, size_t, size_t);
+void zhetd2_(const char *uplo, const int *n, double complex *a, const int *lda,
+	double *d, double *e, double complex *tau, int *info, size_t);
+void dsterf_(const int *n, double *d, double *e, int *info);
+void zstemr_(const char *jobz, const char *range, const int *n, double *d,
+	double *e, const double *vl, const double *vu, const int *il,
+	const int *iu, int *m, double *w, double complex *z, const int *ldz,
+	const int *nzc, int *isuppz, int *tryrac, double *work, const int *lwork,
 	int *iwork, const int *liwork, int *info, size_t, size_t);
-
+void zsteqr_(const char *compz, const int *n, double *d, double *e,
+	double complex *z, const int *ldz, double *work, int *info, size_t);
+void zunmtr_(const char *side, const char *uplo, const char *trans,
+	const int *m, const int *n, const double complex *a, const int *lda,
+	const double complex *tau, double complex *c, const int *ldc,
+	double complex *work, const int *lwork, int *info, size_t, size_t, size_t);
 void zheevr_(const char *jobz, const char *range, const char *uplo, const int *n,
 	double complex *a, const int *lda, const double *vl, const double *vu,
 	const int *il, const int *iu, const double *abstol, int *m, double *w,
@@ -31,29 +49,90 @@ int openblas_get_num_threads(void);
 int openblas_get_num_procs(void);
 char *openblas_get_config(void);
 
-// mg_zheevd calls zheevd on the upper triangle (column-major) of the n×n
-// matrix a; lwork = -1 asks for the workspace sizes instead.
-static int mg_zheevd(int vectors, int n, double complex *a, double *w,
-	double complex *work, int lwork, double *rwork, int lrwork,
-	int *iwork, int liwork) {
-	char jobz = vectors ? 'V' : 'N', uplo = 'U';
+// The stages of zheevr (all eigenvalues, upper triangle), one call each,
+// so that the caller can poll for cancellation between them. Every matrix
+// is n×n, column-major, leading dimension n.
+
+// mg_ilaenv is ilaenv's block size (ispec 1) or crossover (ispec 3) of
+// zhetrd for order n.
+static int mg_ilaenv(int ispec, int n) {
+	int m1 = -1;
+	return ilaenv_(&ispec, "ZHETRD", "U", &n, &m1, &m1, &m1, 6, 1);
+}
+
+// mg_panel is one step of zhetrd's blocked loop: zlatrd reduces the last
+// nb columns of the leading m×m block (its update of the rest in w), and
+// zher2k applies that update to the leading (m−nb)×(m−nb) block.
+static void mg_panel(int n, int m, int nb, double complex *a, double *e,
+	double complex *tau, double complex *w) {
+	char uplo = 'U', trans = 'N';
+	double complex alpha = -1;
+	double beta = 1;
+	int k = m - nb;
+	zlatrd_(&uplo, &m, &nb, a, &n, e, tau, w, &n, 1);
+	zher2k_(&uplo, &trans, &k, &nb, &alpha, a + (size_t)k * n, &n, w, &n,
+		&beta, a, &n, 1, 1);
+}
+
+// mg_zhetd2 reduces the leading k×k block unblocked.
+static int mg_zhetd2(int n, int k, double complex *a, double *d, double *e,
+	double complex *tau) {
+	char uplo = 'U';
 	int info = 0;
-	zheevd_(&jobz, &uplo, &n, a, &n, w, work, &lwork, rwork, &lrwork,
-		iwork, &liwork, &info, 1, 1);
+	zhetd2_(&uplo, &k, a, &n, d, e, tau, &info, 1);
 	return info;
 }
-// mg_zheevr calls zheevr (all eigenvalues) on the upper triangle
-// (column-major) of the n×n matrix a, eigenvectors into z; lwork = -1 asks
-// for the workspace sizes instead.
+
+static int mg_dsterf(int n, double *d, double *e) {
+	int info = 0;
+	dsterf_(&n, d, e, &info);
+	return info;
+}
+
+// mg_zstemr: all eigenpairs of the tridiagonal (d, e) by relatively robust
+// representations, eigenvalues into w and eigenvectors into z; lwork = -1
+// asks for the workspace sizes instead.
+static int mg_zstemr(int n, double *d, double *e, double *w, double complex *z,
+	int *isuppz, double *work, int lwork, int *iwork, int liwork) {
+	char jobz = 'V', range = 'A';
+	int m = 0, il = 1, iu = n, tryrac = 1, info = 0;
+	double vl = 0, vu = 0;
+	zstemr_(&jobz, &range, &n, d, e, &vl, &vu, &il, &iu, &m, w, z, &n, &n,
+		isuppz, &tryrac, work, &lwork, iwork, &liwork, &info, 1, 1);
+	return info;
+}
+
+// mg_zsteqr: all eigenpairs of the tridiagonal (d, e) by implicit QL/QR,
+// eigenvectors into z (work: 2n−2 reals).
+static int mg_zsteqr(int n, double *d, double *e, double complex *z, double *work) {
+	char compz = 'I';
+	int info = 0;
+	zsteqr_(&compz, &n, d, e, z, &n, work, &info, 1);
+	return info;
+}
+
+// mg_zunmtr applies the reflectors of the reduction (in a and tau) to the
+// n×cols block c: c ← Q c; lwork = -1 asks for the workspace size.
+static int mg_zunmtr(int n, int cols, const double complex *a,
+	const double complex *tau, double complex *c, double complex *work, int lwork) {
+	char side = 'L', uplo = 'U', trans = 'N';
+	int info = 0;
+	zunmtr_(&side, &uplo, &trans, &n, &cols, a, &n, tau, c, &n, work, &lwork,
+		&info, 1, 1, 1);
+	return info;
+}
+
+// mg_zheevr is the driver the stages above take apart (benchmarks and
+// tests compare them); lwork = -1 asks for the workspace sizes.
 static int mg_zheevr(int vectors, int n, double complex *a, double *w,
 	double complex *z, int *isuppz,
 	double complex *work, int lwork, double *rwork, int lrwork,
 	int *iwork, int liwork) {
 	char jobz = vectors ? 'V' : 'N', range = 'A', uplo = 'U';
-	int info = 0, m = 0, il = 1, iu = n, ldz = n > 0 ? n : 1;
+	int info = 0, m = 0, il = 1, iu = n;
 	double vl = 0, vu = 0, abstol = 0;
 	zheevr_(&jobz, &range, &uplo, &n, a, &n, &vl, &vu, &il, &iu, &abstol,
-		&m, w, z, &ldz, isuppz, work, &lwork, rwork, &lrwork,
+		&m, w, z, &n, isuppz, work, &lwork, rwork, &lrwork,
 		iwork, &liwork, &info, 1, 1, 1);
 	return info;
 }
@@ -71,124 +150,224 @@ import (
 // lapackLinked: this build has the LAPACK path.
 const lapackLinked = true
 
+// lapackBlockCols is the width of the column blocks in which the
+// back-transformation applies the reflectors, with a poll between blocks.
+const lapackBlockCols = 256
+
 // lapackWork is the LAPACK workspace of one Work and mode (values or
-// vectors), sized once by the driver's workspace query.
+// vectors), sized once by the stages' workspace queries: O(n) numbers
+// besides the n×n matrices the Work has anyway.
 type lapackWork struct {
-	evr    bool // zheevr (else zheevd)
-	work   []complex128
-	rwork  []float64
+	nb, kk int          // zhetrd's block size; columns kk… are reduced in panels
+	panel  []complex128 // zlatrd's n×nb update
+	rwork  []float64    // zstemr's workspace, then a copy of d and e
 	iwork  []C.int
 	isuppz []C.int
-}
-
-// useEVR selects the driver per mode (values, vectors): zheevr, or zheevd
-// when false. BenchmarkLAPACKDrivers measured them on this machine at the
-// ladder's sizes, one core: equal within 5 % for eigenvalues (both reduce
-// to the same tridiagonal and call the same root-free QL), and for
-// eigenvectors zheevr 0–5 % faster from n = 96 up (205 against 217 ms at
-// n = 768) while its workspace is O(n) instead of zheevd's 2n² complex and
-// 2n² real, and it writes the eigenvectors straight into Work.vecs. SciPy's
-// eigh uses the same driver by default; numpy's uses zheevd.
-var useEVR = [2]bool{true, true}
-
-// newLapackWork allocates the driver's optimal workspace for n and the
-// mode.
-func newLapackWork(n int, vectors bool) *lapackWork {
-	q := queryLapackWork(n, vectors)
-	return &lapackWork{
-		evr:    q.evr,
-		work:   make([]complex128, q.work),
-		rwork:  make([]float64, q.rwork),
-		iwork:  make([]C.int, q.iwork),
-		isuppz: make([]C.int, q.isuppz),
-	}
+	work   []complex128 // zunmtr's workspace for a column block
 }
 
 // lapackSizes are the lengths of a LAPACK workspace.
 type lapackSizes struct {
-	evr                        bool
-	work, rwork, iwork, isuppz int
+	nb, kk                            int
+	panel, rwork, iwork, isuppz, work int
 }
 
-// queryLapackWork asks the driver for its optimal workspace for n and the
-// mode.
+// queryLapackWork asks the stages for their workspace for n and the mode.
 func queryLapackWork(n int, vectors bool) lapackSizes {
-	var wq C.complexdouble
-	var rq C.double
-	var iq C.int
-	var a, z [1]complex128
-	var vals [1]float64
-	var isuppz [2]C.int
-	evr := useEVR[modeIndex(vectors)]
-	if evr {
-		C.mg_zheevr(cBool(vectors), C.int(n), cz(a[:]), cd(vals[:]), cz(z[:]), &isuppz[0],
-			&wq, -1, &rq, -1, &iq, -1)
-	} else {
-		C.mg_zheevd(cBool(vectors), C.int(n), cz(a[:]), cd(vals[:]), &wq, -1, &rq, -1, &iq, -1)
+	q := lapackSizes{nb: int(C.mg_ilaenv(1, C.int(n)))}
+	nx := n
+	if q.nb > 1 && q.nb < n {
+		nx = max(q.nb, int(C.mg_ilaenv(3, C.int(n))))
 	}
-	q := lapackSizes{
-		evr:   evr,
-		work:  max(int(real(complex128(wq))), 1),
-		rwork: max(int(rq), 1),
-		iwork: max(int(iq), 1),
+	if nx >= n {
+		q.nb, nx = 1, n
 	}
-	if evr {
-		q.isuppz = max(2*n, 1)
+	q.kk = n - (n-nx+q.nb-1)/q.nb*q.nb
+	if q.kk < n {
+		q.panel = n * q.nb
 	}
+	if !vectors {
+		return q
+	}
+	var rq, dummy [1]float64
+	var iq, idummy [2]C.int
+	var one [1]complex128
+	C.mg_zstemr(C.int(n), cd(dummy[:]), cd(dummy[:]), cd(dummy[:]), cz(one[:]), ci(idummy[:]), cd(rq[:]), -1, &iq[0], -1)
+	q.rwork = max(int(rq[0]), 1) + 2*n
+	q.iwork = max(int(iq[0]), 1)
+	q.isuppz = 2 * n
+	var wq [1]complex128
+	C.mg_zunmtr(C.int(n), C.int(min(n, lapackBlockCols)), cz(one[:]), cz(one[:]), cz(one[:]), cz(wq[:]), -1)
+	q.work = max(int(real(wq[0])), 1)
 	return q
+}
+
+// newLapackWork allocates the workspace for n and the mode.
+func newLapackWork(n int, vectors bool) *lapackWork {
+	q := queryLapackWork(n, vectors)
+	return &lapackWork{
+		nb: q.nb, kk: q.kk,
+		panel:  make([]complex128, q.panel),
+		rwork:  make([]float64, q.rwork),
+		iwork:  make([]C.int, q.iwork),
+		isuppz: make([]C.int, q.isuppz),
+		work:   make([]complex128, q.work),
+	}
 }
 
 // lapackWorkBytes is the size of the workspace newLapackWork allocates.
 func lapackWorkBytes(n int, vectors bool) int64 {
-	lw := queryLapackWork(n, vectors)
-	return heapBytes(16*int64(lw.work)) + heapBytes(8*int64(lw.rwork)) +
-		heapBytes(4*int64(lw.iwork)) + heapBytes(4*int64(lw.isuppz))
+	q := queryLapackWork(n, vectors)
+	return heapBytes(int64(unsafe.Sizeof(lapackWork{}))) + heapBytes(16*int64(q.panel)) +
+		heapBytes(8*int64(q.rwork)) + heapBytes(4*int64(q.iwork)) +
+		heapBytes(4*int64(q.isuppz)) + heapBytes(16*int64(q.work))
 }
 
-func cz(s []complex128) *C.complexdouble { return (*C.complexdouble)(unsafe.Pointer(&s[0])) }
-func cd(s []float64) *C.double           { return (*C.double)(unsafe.Pointer(&s[0])) }
+// cz and cd pass a Go slice to C (nil when empty).
+func cz(s []complex128) *C.complexdouble {
+	if len(s) == 0 {
+		return nil
+	}
+	return (*C.complexdouble)(unsafe.Pointer(&s[0]))
+}
+
+func cd(s []float64) *C.double {
+	if len(s) == 0 {
+		return nil
+	}
+	return (*C.double)(unsafe.Pointer(&s[0]))
+}
+
+func ci(s []C.int) *C.int {
+	if len(s) == 0 {
+		return nil
+	}
+	return &s[0]
+}
+
+// lapackSolve diagonalises the matrix in w.a (lower triangle, row-major,
+// already scaled) into w.d (ascending) and, with vectors, the conjugated
+// eigenvectors into w.vecs, mode-major: the stages of LAPACK's zheevr
+// (Hermitian reduction to tridiagonal form, zhetrd; the tridiagonal's
+// eigenvalues by root-free QL, dsterf, or its eigenpairs by relatively
+// robust representations, zstemr, with implicit QL, zsteqr, should that
+// fail; the reflectors applied to the eigenvectors, zunmtr), called one
+// by one so that done is polled between zhetrd's panels and between
+// column blocks of the back-transformation.
+//
+// Row-major lower triangle of H is the column-major upper triangle of
+// conj(H) = Hᵀ: the eigenvalues are those of H, and each eigenvector u of
+// conj(H) is conj(x) for the eigenvector x of H; stored column-major, u_k
+// occupies [k*n, (k+1)*n), already mode-major.
+func (w *Work) lapackSolve(vectors bool) Status {
+	lw := w.lapack[modeIndex(vectors)]
+	if lw == nil {
+		lw = newLapackWork(w.n, vectors)
+		w.lapack[modeIndex(vectors)] = lw
+	}
+	w.threads = lapackThreads.enter(w.n, vectors)
+	defer lapackThreads.leave(w.threads)
+	if w.reduceLAPACK(lw) {
+		return Stopped
+	}
+	n := C.int(w.n)
+	if !vectors {
+		if C.mg_dsterf(n, cd(w.d), cd(w.e)) != 0 {
+			return NoConverge
+		}
+		return OK
+	}
+	if w.stopped() {
+		return Stopped
+	}
+	if !w.tridiagonalPairs(lw) {
+		return NoConverge
+	}
+	for j := 0; j < w.n; j += lapackBlockCols {
+		if w.stopped() {
+			return Stopped
+		}
+		cols := min(lapackBlockCols, w.n-j)
+		if C.mg_zunmtr(n, C.int(cols), cz(w.a), cz(w.tau), cz(w.vecs[j*w.n:]), cz(lw.work), C.int(len(lw.work))) != 0 {
+			return NoConverge
+		}
+	}
+	return OK
+}
+
+// reduceLAPACK is zhetrd on w.a, upper triangle (column-major), into w.d,
+// w.e and w.tau (the reflectors stay in w.a): its blocked loop written out
+// from LAPACK's zhetrd.f, a poll before each panel. True when stopped.
+func (w *Work) reduceLAPACK(lw *lapackWork) bool {
+	n, a, nb := w.n, w.a, lw.nb
+	for k := n - nb; k >= lw.kk; k -= nb {
+		if w.stopped() {
+			return true
+		}
+		C.mg_panel(C.int(n), C.int(k+nb), C.int(nb), cz(a), cd(w.e), cz(w.tau), cz(lw.panel))
+		// zlatrd left 1 in the superdiagonal of the panel's reflectors.
+		for j := k; j < k+nb; j++ {
+			a[j*n+j-1] = complex(w.e[j-1], 0)
+			w.d[j] = real(a[j*n+j])
+		}
+	}
+	if w.stopped() {
+		return true
+	}
+	C.mg_zhetd2(C.int(n), C.int(lw.kk), cz(a), cd(w.d), cd(w.e), cz(w.tau))
+	return false
+}
+
+// tridiagonalPairs finds all eigenpairs of the tridiagonal (w.d, w.e):
+// eigenvalues into w.d, ascending, eigenvectors (real, as complex numbers)
+// into w.vecs, column-major. zstemr first, as zheevr; should it fail (it
+// may on rare tridiagonals: LAPACK's zheevr then falls back too), zsteqr
+// on a copy of the tridiagonal. False when both failed.
+func (w *Work) tridiagonalPairs(lw *lapackWork) bool {
+	n := w.n
+	saved := lw.rwork[len(lw.rwork)-2*n:]
+	copy(saved[:n], w.d)
+	copy(saved[n:], w.e)
+	rwork := lw.rwork[:len(lw.rwork)-2*n]
+	if C.mg_zstemr(C.int(n), cd(w.d), cd(w.e), cd(w.vals), cz(w.vecs), ci(lw.isuppz),
+		cd(rwork), C.int(len(rwork)), ci(lw.iwork), C.int(len(lw.iwork))) == 0 {
+		copy(w.d, w.vals)
+		return true
+	}
+	copy(w.d, saved[:n])
+	copy(w.e, saved[n:])
+	return C.mg_zsteqr(C.int(n), cd(w.d), cd(w.e), cz(w.vecs), cd(rwork)) == 0
+}
+
+// zheevrWhole solves w.a by one call of LAPACK's zheevr, the driver whose
+// stages lapackSolve calls one by one (benchmarks and tests compare them;
+// it allocates its workspace): eigenvalues into w.d, conjugated
+// eigenvectors into w.vecs. False when LAPACK reported a failure.
+func (w *Work) zheevrWhole(vectors bool) bool {
+	n := C.int(w.n)
+	var wq [1]complex128
+	var rq [1]float64
+	var iq [1]C.int
+	isuppz := make([]C.int, 2*w.n)
+	z := w.vecs
+	if !vectors {
+		z = make([]complex128, 1)
+	}
+	C.mg_zheevr(cBool(vectors), n, cz(w.a), cd(w.d), cz(z), ci(isuppz), cz(wq[:]), -1, cd(rq[:]), -1, ci(iq[:]), -1)
+	work := make([]complex128, max(int(real(wq[0])), 1))
+	rwork := make([]float64, max(int(rq[0]), 1))
+	iwork := make([]C.int, max(int(iq[0]), 1))
+	w.threads = lapackThreads.enter(w.n, vectors)
+	defer lapackThreads.leave(w.threads)
+	return C.mg_zheevr(cBool(vectors), n, cz(w.a), cd(w.d), cz(z), ci(isuppz), cz(work), C.int(len(work)),
+		cd(rwork), C.int(len(rwork)), ci(iwork), C.int(len(iwork))) == 0
+}
 
 func cBool(b bool) C.int {
 	if b {
 		return 1
 	}
 	return 0
-}
-
-// lapackSolve diagonalises the matrix in w.a (lower triangle, row-major,
-// already scaled) into w.d (ascending) and, with vectors, the conjugated
-// eigenvectors into w.vecs, mode-major. Row-major lower triangle of H is
-// the column-major upper triangle of conj(H) = Hᵀ: the eigenvalues are
-// those of H, and each eigenvector u of conj(H) is conj(x) for the
-// eigenvector x of H; stored column-major, u_k occupies [k*n, (k+1)*n),
-// already mode-major. It returns false when LAPACK reported a failure.
-func (w *Work) lapackSolve(vectors bool) bool {
-	lw := w.lapack[modeIndex(vectors)]
-	if lw == nil {
-		lw = newLapackWork(w.n, vectors)
-		w.lapack[modeIndex(vectors)] = lw
-	}
-	threads := lapackThreads.enter(w.n, vectors)
-	w.threads = threads
-	var info C.int
-	if lw.evr {
-		z := w.a // unused without vectors
-		if vectors {
-			z = w.vecs
-		}
-		info = C.mg_zheevr(cBool(vectors), C.int(w.n), cz(w.a), cd(w.d), cz(z), &lw.isuppz[0],
-			cz(lw.work), C.int(len(lw.work)), cd(lw.rwork), C.int(len(lw.rwork)),
-			&lw.iwork[0], C.int(len(lw.iwork)))
-	} else {
-		info = C.mg_zheevd(cBool(vectors), C.int(w.n), cz(w.a), cd(w.d),
-			cz(lw.work), C.int(len(lw.work)), cd(lw.rwork), C.int(len(lw.rwork)),
-			&lw.iwork[0], C.int(len(lw.iwork)))
-		if vectors && info == 0 {
-			copy(w.vecs, w.a)
-		}
-	}
-	lapackThreads.leave(threads)
-	return info == 0
 }
 
 // threadPolicy decides how many OpenBLAS threads a call may use. The

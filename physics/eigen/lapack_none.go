@@ -12,7 +12,7 @@ const lapackLinked = false
 type lapackWork struct{}
 
 // lapackSolve is never called in this build (useLAPACK is false).
-func (w *Work) lapackSolve(bool) bool { panic("eigen: LAPACK not linked in this build") }
+func (w *Work) lapackSolve(bool) Status { panic("eigen: LAPACK not linked in this build") }
 
 // backendName names the linked solver.
 func backendName() string { return "go" }
