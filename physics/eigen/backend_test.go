@@ -11,6 +11,7 @@ import (
 	"math/rand/v2"
 	"runtime"
 	"testing"
+	"time"
 )
 
 // routes are the paths this build can take, by name.
@@ -372,6 +373,44 @@ func TestStopMidSolve(t *testing.T) {
 				if st := w.Solve(vectors); st != Stopped {
 					t.Errorf("%s vectors=%v: stop at poll %d of %d gave status %v; want Stopped", r.name, vectors, at, total, st)
 				}
+			}
+		}
+	}
+}
+
+// BenchmarkPollGaps reports the longest stretch between two polls of the
+// stop channel in a solve (max-gap-ms), that is the worst delay between a
+// cancel and the solver's return, for the sizes of 256 and 512 sites.
+func BenchmarkPollGaps(b *testing.B) {
+	rng := rand.New(rand.NewPCG(1, 2))
+	for _, n := range []int{768, 1536} {
+		h := randomHermitian(rng, n)
+		for _, vectors := range []bool{false, true} {
+			for _, r := range routes() {
+				if r.route == routeAuto {
+					continue
+				}
+				b.Run(fmt.Sprintf("%s/n=%d/vectors=%v", r.name, n, vectors), func(b *testing.B) {
+					w := NewWork(n)
+					w.route = r.route
+					w.SetStop(make(chan struct{}))
+					var last time.Time
+					var gap time.Duration
+					w.onPoll = func() {
+						now := time.Now()
+						gap = max(gap, now.Sub(last))
+						last = now
+					}
+					for b.Loop() {
+						copy(w.a, h)
+						last = time.Now()
+						if st := w.Solve(vectors); st != OK {
+							b.Fatalf("status %v", st)
+						}
+						gap = max(gap, time.Since(last))
+					}
+					b.ReportMetric(float64(gap)/1e6, "max-gap-ms")
+				})
 			}
 		}
 	}

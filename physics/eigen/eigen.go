@@ -37,6 +37,13 @@
 // Accuracy: both stages are backward stable, so every eigenvalue is exact
 // for a matrix within a few ε‖H‖ of the input; the tests ask for 1e-12 of
 // the largest eigenvalue against gonum (the project asks for 1e-10).
+//
+// This path is unblocked: every step is a matrix–vector product, so from
+// about 40–64 modes up LAPACK's blocked reduction on OpenBLAS is faster
+// (1.3× at n = 96 for eigenvalues, 2× with eigenvectors, 2.3× and 4.4× at
+// n = 768, one core). Builds with the lapack tag hand those sizes to
+// LAPACK (lapack_cgo.go, dispatch.go); this path stays below the crossover,
+// where it is the faster, and is the whole solver of the default build.
 
 package eigen
 
