@@ -22,3 +22,6 @@ func backendDetail() string { return "" }
 
 // lapackWorkBytes is never asked in this build.
 func lapackWorkBytes(int, bool) int64 { return 0 }
+
+// lapackBlockCols matches lapack_cgo.go's (tests size matrices by it).
+const lapackBlockCols = 256
