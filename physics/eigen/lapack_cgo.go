@@ -166,6 +166,7 @@ import "C"
 import (
 	"os"
 	"runtime"
+	"runtime/metrics"
 	"strconv"
 	"sync"
 	"unsafe"
@@ -397,16 +398,22 @@ func cBool(b bool) C.int {
 // threadPolicy decides how many OpenBLAS threads a call may use. The
 // engine parallelises over q-points itself, so a call normally runs on one
 // thread (set once at start-up), and calls from several goroutines run side
-// by side. A large solve that finds no other LAPACK call in flight may
-// widen to maxThreads for its duration: it holds mu exclusively while the
-// thread count is raised, so no narrow call ever runs with it (OpenBLAS's
-// thread count is process-wide), and a narrow call arriving meanwhile
-// waits for it instead of oversubscribing the cores. TryLock never queues
-// a writer, so narrow calls are never starved.
+// by side. A large solve that finds no other LAPACK call in flight and
+// cores with nothing else to run may widen to those cores for its
+// duration: it holds mu exclusively while the thread count is raised, so
+// no narrow call ever runs with it (OpenBLAS's thread count is
+// process-wide), and a narrow call arriving meanwhile waits for it instead
+// of oversubscribing the cores. TryLock never queues a writer, so narrow
+// calls are never starved. Widening onto a busy core would be worse than
+// not: OpenBLAS's threads meet at every block of work, and one that waits
+// for a core slows the call down (measured: a 768-mode solve on two
+// threads of a machine running five times as many threads as it has
+// cores had 2 s between two polls, against 0.2–0.4 s on one thread).
 type threadPolicy struct {
 	mu         sync.RWMutex
 	maxThreads int // from OPENBLAS_NUM_THREADS (if set) and the CPUs OpenBLAS sees
 	once       sync.Once
+	sched      []metrics.Sample // running and runnable goroutines
 }
 
 var lapackThreads threadPolicy
@@ -420,6 +427,7 @@ func (p *threadPolicy) init() {
 		p.maxThreads = min(p.maxThreads, v)
 	}
 	p.maxThreads = max(p.maxThreads, 1)
+	p.sched = []metrics.Sample{{Name: "/sched/goroutines/running:goroutines"}, {Name: "/sched/goroutines/runnable:goroutines"}}
 	C.openblas_set_num_threads(1)
 }
 
@@ -428,11 +436,28 @@ func (p *threadPolicy) init() {
 func (p *threadPolicy) enter(n int, vectors bool) int {
 	p.once.Do(p.init)
 	if k := min(p.maxThreads, runtime.GOMAXPROCS(0)); k > 1 && n >= wideMin[modeIndex(vectors)] && p.mu.TryLock() {
-		C.openblas_set_num_threads(C.int(k))
-		return k
+		if k = min(k, 1+p.idleProcs()); k > 1 {
+			C.openblas_set_num_threads(C.int(k))
+			return k
+		}
+		p.mu.Unlock()
 	}
 	p.mu.RLock()
 	return 1
+}
+
+// idleProcs is the number of Go processors with no goroutine to run
+// besides the caller (running counts it), from the scheduler's metrics
+// (a few µs to read). Called with mu held, since p.sched is shared.
+func (p *threadPolicy) idleProcs() int {
+	metrics.Read(p.sched)
+	var busy uint64
+	for _, s := range p.sched {
+		if s.Value.Kind() == metrics.KindUint64 {
+			busy += s.Value.Uint64()
+		}
+	}
+	return max(runtime.GOMAXPROCS(0)-int(busy), 0)
 }
 
 // leave releases what enter took.

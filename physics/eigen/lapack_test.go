@@ -9,6 +9,9 @@ import (
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"runtime/metrics"
+	"sync"
+	"sync/atomic"
 	"testing"
 )
 
@@ -122,21 +125,68 @@ func BenchmarkLAPACKCrossover(b *testing.B) {
 	}
 }
 
-// TestWideCallRestoresThreads: a lone large call may run on several
-// OpenBLAS threads, and leaves OpenBLAS on one thread after it, so that
-// calls from the engine's workers do not oversubscribe the cores.
+// TestWideCallRestoresThreads: a lone large call with idle cores beside
+// it runs on several OpenBLAS threads (in one of a few tries: a runtime
+// goroutine may be busy at the moment one looks), and leaves OpenBLAS on
+// one thread after it, so that calls from the engine's workers do not
+// oversubscribe the cores.
 func TestWideCallRestoresThreads(t *testing.T) {
+	lapackThreads.once.Do(lapackThreads.init)
+	want := min(lapackThreads.maxThreads, runtime.GOMAXPROCS(0))
+	if want < 2 {
+		t.Skip("one core or OPENBLAS_NUM_THREADS=1: no wide calls")
+	}
 	rng := rand.New(rand.NewPCG(7, 7))
+	n := wideMin[1]
+	w := NewWork(n)
+	h := randomHermitian(rng, n)
+	wide := false
+	for try := 0; try < 5 && !wide; try++ {
+		copy(w.a, h)
+		if st := w.Solve(true); st != OK {
+			t.Fatalf("status %v", st)
+		}
+		wide = w.threads == want
+		if got := openblasThreads(); got != 1 {
+			t.Errorf("OpenBLAS runs %d threads after a call; want 1", got)
+		}
+	}
+	if !wide {
+		t.Errorf("a lone call of n=%d ran on %d threads; want %d", n, w.threads, want)
+	}
+}
+
+// TestNoWideCallOnBusyCores: while goroutines keep every other core busy,
+// a large call stays on one thread.
+func TestNoWideCallOnBusyCores(t *testing.T) {
+	procs := runtime.GOMAXPROCS(0)
+	if procs < 2 {
+		t.Skip("one core: no wide calls")
+	}
+	var stop atomic.Bool
+	var wg sync.WaitGroup
+	defer func() { stop.Store(true); wg.Wait() }()
+	for g := 0; g < procs-1; g++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for !stop.Load() {
+			}
+		}()
+	}
+	// Until the scheduler reports the spinners running.
+	s := []metrics.Sample{{Name: "/sched/goroutines/running:goroutines"}}
+	for metrics.Read(s); s[0].Value.Uint64() < uint64(procs); metrics.Read(s) {
+		runtime.Gosched()
+	}
+	rng := rand.New(rand.NewPCG(7, 8))
 	n := wideMin[1]
 	w := NewWork(n)
 	copy(w.a, randomHermitian(rng, n))
 	if st := w.Solve(true); st != OK {
 		t.Fatalf("status %v", st)
 	}
-	if want := min(lapackThreads.maxThreads, runtime.GOMAXPROCS(0)); w.threads != want {
-		t.Errorf("a lone call of n=%d ran on %d threads; want %d", n, w.threads, want)
-	}
-	if got := openblasThreads(); got != 1 {
-		t.Errorf("OpenBLAS runs %d threads after a call; want 1", got)
+	if w.threads != 1 {
+		t.Errorf("a call beside %d busy goroutines ran on %d threads; want 1", procs-1, w.threads)
 	}
 }
