@@ -85,17 +85,21 @@ static int mg_ilaenv(int ispec, int n) {
 }
 
 // mg_panel is one step of zhetrd's blocked loop: zlatrd reduces the last
-// nb columns of the leading m×m block (its update of the rest in w), and
-// zher2k applies that update to the leading (m−nb)×(m−nb) block.
+// nb columns of the leading m×m block (its update of the rest in w), on t2
+// OpenBLAS threads, and zher2k applies that update to the leading
+// (m−nb)×(m−nb) block on t3 threads (OpenBLAS is left on one thread).
 static void mg_panel(int n, int m, int nb, double complex *a, double *e,
-	double complex *tau, double complex *w) {
+	double complex *tau, double complex *w, int t2, int t3) {
 	char uplo = 'U', trans = 'N';
 	double complex alpha = -1;
 	double beta = 1;
 	int k = m - nb;
+	if (t2 > 1) openblas_set_num_threads(t2);
 	zlatrd_(&uplo, &m, &nb, a, &n, e, tau, w, &n, 1);
+	if (t3 != t2) openblas_set_num_threads(t3);
 	zher2k_(&uplo, &trans, &k, &nb, &alpha, a + (size_t)k * n, &n, w, &n,
 		&beta, a, &n, 1, 1);
+	if (t3 > 1) openblas_set_num_threads(1);
 }
 
 // mg_zhetd2 reduces the leading k×k block unblocked.
@@ -137,12 +141,16 @@ static int mg_zsteqr(int n, double *d, double *e, double complex *z, double *wor
 
 // mg_zunmtr applies the reflectors of the reduction (in a and tau) to the
 // n×cols block c: c ← Q c; lwork = -1 asks for the workspace size.
+// On t OpenBLAS threads (OpenBLAS is left on one thread).
 static int mg_zunmtr(int n, int cols, const double complex *a,
-	const double complex *tau, double complex *c, double complex *work, int lwork) {
+	const double complex *tau, double complex *c, double complex *work, int lwork,
+	int t) {
 	char side = 'L', uplo = 'U', trans = 'N';
 	int info = 0;
+	if (t > 1) openblas_set_num_threads(t);
 	zunmtr_(&side, &uplo, &trans, &n, &cols, a, &n, tau, c, &n, work, &lwork,
 		&info, 1, 1, 1);
+	if (t > 1) openblas_set_num_threads(1);
 	return info;
 }
 
@@ -222,7 +230,7 @@ func queryLapackWork(n int, vectors bool) lapackSizes {
 	q.iwork = max(int(iq[0]), 1)
 	q.isuppz = 2 * n
 	var wq [1]complex128
-	C.mg_zunmtr(C.int(n), C.int(min(n, lapackBlockCols)), cz(one[:]), cz(one[:]), cz(one[:]), cz(wq[:]), -1)
+	C.mg_zunmtr(C.int(n), C.int(min(n, lapackBlockCols)), cz(one[:]), cz(one[:]), cz(one[:]), cz(wq[:]), -1, 1)
 	q.work = max(int(real(wq[0])), 1)
 	return q
 }
@@ -313,7 +321,7 @@ func (w *Work) lapackSolve(vectors bool) Status {
 			return Stopped
 		}
 		cols := min(lapackBlockCols, w.n-j)
-		if C.mg_zunmtr(n, C.int(cols), cz(w.a), cz(w.tau), cz(w.vecs[j*w.n:]), cz(lw.work), C.int(len(lw.work))) != 0 {
+		if C.mg_zunmtr(n, C.int(cols), cz(w.a), cz(w.tau), cz(w.vecs[j*w.n:]), cz(lw.work), C.int(len(lw.work)), C.int(w.threads)) != 0 {
 			return NoConverge
 		}
 	}
@@ -329,7 +337,11 @@ func (w *Work) reduceLAPACK(lw *lapackWork) bool {
 		if w.stopped() {
 			return true
 		}
-		C.mg_panel(C.int(n), C.int(k+nb), C.int(nb), cz(a), cd(w.e), cz(w.tau), cz(lw.panel))
+		t2 := 1
+		if wideLevel2 {
+			t2 = w.threads
+		}
+		C.mg_panel(C.int(n), C.int(k+nb), C.int(nb), cz(a), cd(w.e), cz(w.tau), cz(lw.panel), C.int(t2), C.int(w.threads))
 		// zlatrd left 1 in the superdiagonal of the panel's reflectors.
 		for j := k; j < k+nb; j++ {
 			a[j*n+j-1] = complex(w.e[j-1], 0)
@@ -384,6 +396,10 @@ func (w *Work) zheevrWhole(vectors bool) bool {
 	iwork := make([]C.int, max(int(iq[0]), 1))
 	w.threads = lapackThreads.enter(w.n, vectors)
 	defer lapackThreads.leave(w.threads)
+	if w.threads > 1 {
+		C.openblas_set_num_threads(C.int(w.threads))
+		defer C.openblas_set_num_threads(1)
+	}
 	return C.mg_zheevr(cBool(vectors), n, cz(w.a), cd(w.d), cz(z), ci(isuppz), cz(work), C.int(len(work)),
 		cd(rwork), C.int(len(rwork)), ci(iwork), C.int(len(iwork))) == 0
 }
@@ -404,11 +420,17 @@ func cBool(b bool) C.int {
 // no narrow call ever runs with it (OpenBLAS's thread count is
 // process-wide), and a narrow call arriving meanwhile waits for it instead
 // of oversubscribing the cores. TryLock never queues a writer, so narrow
-// calls are never starved. Widening onto a busy core would be worse than
-// not: OpenBLAS's threads meet at every block of work, and one that waits
-// for a core slows the call down (measured: a 768-mode solve on two
-// threads of a machine running five times as many threads as it has
-// cores had 2 s between two polls, against 0.2–0.4 s on one thread).
+// calls are never starved. Only the matrix–matrix stages (zher2k of each
+// panel, zunmtr) widen: their threads meet a few times per call, while
+// zlatrd's matrix–vector products would make them meet once per column,
+// and a thread that waits for a core at each meeting slows the call down
+// many times over. Measured on this machine with one goroutine spinning
+// beside the call (two cores): the reduction and tridiagonal stage of
+// n = 768 took 0.79 s with the matrix–matrix stages on two threads and
+// 4.7 s with everything on two, and 15 against 214 ms at n = 192 (the
+// machine was loaded: 0.64 and 0.50 s, 7.7 and 3.8 ms without the
+// spinning goroutine). For the same reason a call widens only onto cores
+// the Go scheduler reports idle when it starts.
 type threadPolicy struct {
 	mu         sync.RWMutex
 	maxThreads int // from OPENBLAS_NUM_THREADS (if set) and the CPUs OpenBLAS sees
@@ -437,7 +459,6 @@ func (p *threadPolicy) enter(n int, vectors bool) int {
 	p.once.Do(p.init)
 	if k := min(p.maxThreads, runtime.GOMAXPROCS(0)); k > 1 && n >= wideMin[modeIndex(vectors)] && p.mu.TryLock() {
 		if k = min(k, 1+p.idleProcs()); k > 1 {
-			C.openblas_set_num_threads(C.int(k))
 			return k
 		}
 		p.mu.Unlock()
@@ -463,12 +484,17 @@ func (p *threadPolicy) idleProcs() int {
 // leave releases what enter took.
 func (p *threadPolicy) leave(threads int) {
 	if threads > 1 {
-		C.openblas_set_num_threads(1)
 		p.mu.Unlock()
 		return
 	}
 	p.mu.RUnlock()
 }
+
+// wideLevel2 makes a wide call run its matrix–vector stages (zlatrd's
+// products) on several threads too; false: only the matrix–matrix stages
+// (zher2k, zunmtr), whose threads meet a few times per call instead of
+// once per column (measurement only).
+var wideLevel2 = false
 
 // backendName names the linked solver.
 func backendName() string { return "lapack" }

@@ -86,7 +86,8 @@ func BenchmarkLAPACKDrivers(b *testing.B) {
 
 // BenchmarkLAPACKCrossover times both paths around the sizes where LAPACK
 // overtakes the pure-Go solver (lapackMin), and the LAPACK path with one
-// and with several OpenBLAS threads where several start to pay (wideMin).
+// and with several OpenBLAS threads where several start to pay (wideMin):
+// on the matrix–matrix stages only (wide), or on all (wide-level2).
 func BenchmarkLAPACKCrossover(b *testing.B) {
 	rng := rand.New(rand.NewPCG(1, 1))
 	for _, n := range []int{24, 32, 40, 48, 56, 64, 80, 96, 128, 192, 256, 384, 512, 768} {
@@ -97,17 +98,19 @@ func BenchmarkLAPACKCrossover(b *testing.B) {
 				kind = "vectors"
 			}
 			for _, c := range []struct {
-				name  string
-				route route
-				wide  int
-			}{{"go", routeGo, 1 << 30}, {"lapack-1", routeLAPACK, 1 << 30}, {"lapack-wide", routeLAPACK, 0}} {
-				if c.route == routeGo && n > 96 {
+				name   string
+				route  route
+				wide   int
+				level2 bool
+			}{{"go", routeGo, 1 << 30, false}, {"lapack-1", routeLAPACK, 1 << 30, false},
+				{"lapack-wide", routeLAPACK, 0, false}, {"lapack-wide-level2", routeLAPACK, 0, true}} {
+				if c.route == routeGo && n > 96 || c.wide == 0 && n < 96 {
 					continue
 				}
 				b.Run(fmt.Sprintf("%s/n=%d/%s", kind, n, c.name), func(b *testing.B) {
-					saved := wideMin
-					defer func() { wideMin = saved }()
-					wideMin = [2]int{c.wide, c.wide}
+					saved, savedL2 := wideMin, wideLevel2
+					defer func() { wideMin, wideLevel2 = saved, savedL2 }()
+					wideMin, wideLevel2 = [2]int{c.wide, c.wide}, c.level2
 					w := NewWork(n)
 					w.route = c.route
 					copy(w.a, h)
