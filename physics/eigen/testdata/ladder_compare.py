@@ -9,8 +9,13 @@ OPENBLAS_NUM_THREADS=2) and each size, it runs BenchmarkHermitianLadder of
 the lapack build (go: the pure-Go path forced; lapack: the LAPACK path
 forced; auto: what the shipped build does) and then ladder_numpy.py on the
 same size, so that drift in the machine's load touches both alike. Each Go
-figure is the least of three runs of 0.5 s; each numpy figure the best of
-five (see ladder_numpy.py).
+figure is the least of COUNT runs (default 3) of BENCHTIME (default 0.5 s);
+each numpy figure the best of REPEATS runs of MIN_SECONDS (ladder_numpy.py;
+the same numbers by default). On a machine shared with other work, many
+short runs find its quiet moments: COUNT=REPEATS=15, BENCHTIME=0.1s,
+MIN_SECONDS=0.1.
+
+CORES=1 or CORES=2 runs one of the two CPU sets only.
 
 Usage, from physics/eigen:
     CGO_ENABLED=1 go test -c -tags lapack -o /tmp/eigen-lapack.test .
@@ -32,12 +37,14 @@ def go_times(binary, cpus, threads, n):
     out = subprocess.run(
         ["taskset", "-c", cpus, binary, "-test.run", "^$",
          "-test.bench", "HermitianLadder/.*/n=%d/" % n,
-         "-test.benchtime", "0.5s", "-test.count", "3"],
+         "-test.benchtime", os.environ.get("BENCHTIME", "0.5s"),
+         "-test.count", os.environ.get("COUNT", "3")],
         env=env, check=True, capture_output=True, text=True, cwd=os.path.dirname(HERE)).stdout
     times = {}
-    for m in re.finditer(r"HermitianLadder/(\w+)/n=\d+/(\w+)(?:-\d+)?\s+\d+\s+([\d.]+) ns/op", out):
-        key = (m.group(1), m.group(2))
-        times[key] = min(times.get(key, float("inf")), float(m.group(3)) * 1e-9)
+    pat = r"HermitianLadder/(\w+)/n=\d+/(\w+)(?:-\d+)?\s+\d+\s+([\d.]+) ns/op\s+([\d.]+) cpu-ns/op"
+    for m in re.finditer(pat, out):
+        for key, v in (((m.group(1), m.group(2)), m.group(3)), ((m.group(1), m.group(2), "cpu"), m.group(4))):
+            times[key] = min(times.get(key, float("inf")), float(v) * 1e-9)
     return times
 
 
@@ -47,8 +54,9 @@ def numpy_times(cpus, threads, n):
         ["taskset", "-c", cpus, "/usr/bin/python3", os.path.join(HERE, "ladder_numpy.py"), str(n)],
         env=env, check=True, capture_output=True, text=True).stdout
     times = {}
-    for m in re.finditer(r"^(\w+)\s+n=\d+\s+([\d.e+-]+) (us|ms)$", out, re.M):
+    for m in re.finditer(r"^(\w+)\s+n=\d+\s+([\d.e+-]+) (us|ms)  cpu ([\d.e+-]+) (us|ms)$", out, re.M):
         times[m.group(1)] = float(m.group(2)) * UNITS[m.group(3)]
+        times[(m.group(1), "cpu")] = float(m.group(4)) * UNITS[m.group(5)]
     return times
 
 
@@ -61,19 +69,20 @@ def fmt(seconds):
 def main():
     binary = os.path.abspath(sys.argv[1])
     sizes = [int(a) for a in sys.argv[2:]] or SIZES
-    for name, cpus, threads in CONFIGS:
+    configs = [c for c in CONFIGS if os.environ.get("CORES", "1,2").find(c[2]) >= 0]
+    for name, cpus, threads in configs:
         print("\n%s (taskset -c %s, GOMAXPROCS=%s, OPENBLAS_NUM_THREADS=%s)\n"
               % (name, cpus, threads, threads))
-        print("| n | mode | ours, pure Go | ours, LAPACK path | ours, shipped | numpy (LAPACK) | shipped / numpy |")
-        print("|---|---|---|---|---|---|---|")
+        print("| n | mode | ours, pure Go | ours, LAPACK path | ours, shipped | numpy (LAPACK) | shipped / numpy | CPU time: shipped / numpy |")
+        print("|---|---|---|---|---|---|---|---|")
         for n in sizes:
             g = go_times(binary, cpus, threads, n)
             p = numpy_times(cpus, threads, n)
             for mode in ("values", "vectors"):
                 auto, ref = g[(mode, "auto")], p[mode]
-                print("| %d | %s | %s | %s | %s | %s | %.2f |" % (
-                    n, mode, fmt(g[(mode, "go")]), fmt(g[(mode, "lapack")]), fmt(auto), fmt(ref), auto / ref),
-                    flush=True)
+                print("| %d | %s | %s | %s | %s | %s | %.2f | %s / %s |" % (
+                    n, mode, fmt(g[(mode, "go")]), fmt(g[(mode, "lapack")]), fmt(auto), fmt(ref), auto / ref,
+                    fmt(g[(mode, "auto", "cpu")]), fmt(p[(mode, "cpu")])), flush=True)
 
 
 if __name__ == "__main__":

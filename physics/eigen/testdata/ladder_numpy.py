@@ -4,8 +4,10 @@ zheevd on whichever BLAS/LAPACK numpy links) on random Hermitian matrices of
 the sizes of BenchmarkHermitianLadder (eigen_test.go), elements uniform in
 [-1, 1) + i[-1, 1) like randomHermitian there.
 
-Each figure is the best of five repeats of the mean over a run of at least
-0.5 s, per call. The matrix is copied into a fresh array before each call,
+Each figure is the best of REPEATS repeats (default 5) of the mean over a
+run of at least MIN_SECONDS (default 0.5 s), per call: on a machine shared
+with other work, many short runs (REPEATS=15 MIN_SECONDS=0.1) find the
+quiet moments better. The matrix is copied into a fresh array before each call,
 as the Go benchmark copies it into the workspace (numpy copies it again into
 Fortran order inside the call, as LAPACK needs).
 
@@ -14,7 +16,8 @@ BLAS threads are set by the environment before numpy loads, e.g.
     OPENBLAS_NUM_THREADS=1 taskset -c 0 /usr/bin/python3 ladder_numpy.py
     OPENBLAS_NUM_THREADS=2 taskset -c 0,1 /usr/bin/python3 ladder_numpy.py
 
-Output: one line per size and kind, "values n=24 35.1 us" and so on.
+Output: one line per size and kind, wall and CPU time per call:
+"values  n=24   35.1 us  cpu 35 us" and so on.
 """
 import os
 import sys
@@ -33,19 +36,26 @@ def random_hermitian(rng, n):
     return h
 
 
+REPEATS = int(os.environ.get("REPEATS", "5"))
+MIN_SECONDS = float(os.environ.get("MIN_SECONDS", "0.5"))
+
+
 def per_call(fn, h):
-    """Seconds per call: best of 5 repeats of the mean over >= 0.5 s."""
-    best = float("inf")
-    for _ in range(5):
-        count, start = 0, time.perf_counter()
+    """Seconds per call, wall and CPU (the process's, all threads): best of
+    REPEATS repeats of the mean over a run of at least MIN_SECONDS (and 3
+    calls)."""
+    best, best_cpu = float("inf"), float("inf")
+    for _ in range(REPEATS):
+        count, start, cpu = 0, time.perf_counter(), time.process_time()
         while True:
             fn(h.copy())
             count += 1
             elapsed = time.perf_counter() - start
-            if elapsed >= 0.5 and count >= 3:
+            if elapsed >= MIN_SECONDS and count >= 3:
                 break
         best = min(best, elapsed / count)
-    return best
+        best_cpu = min(best_cpu, (time.process_time() - cpu) / count)
+    return best, best_cpu
 
 
 def fmt(seconds):
@@ -63,7 +73,8 @@ def main():
     for n in sizes:
         h = random_hermitian(rng, n)
         for kind, fn in (("values", np.linalg.eigvalsh), ("vectors", np.linalg.eigh)):
-            print("%-7s n=%-4d %s" % (kind, n, fmt(per_call(fn, h))), flush=True)
+            wall, cpu = per_call(fn, h)
+            print("%-7s n=%-4d %s  cpu %s" % (kind, n, fmt(wall), fmt(cpu)), flush=True)
 
 
 if __name__ == "__main__":
