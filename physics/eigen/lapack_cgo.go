@@ -321,7 +321,7 @@ func (w *Work) lapackSolve(vectors bool) Status {
 			return Stopped
 		}
 		cols := min(lapackBlockCols, w.n-j)
-		if C.mg_zunmtr(n, C.int(cols), cz(w.a), cz(w.tau), cz(w.vecs[j*w.n:]), cz(lw.work), C.int(len(lw.work)), C.int(w.threads)) != 0 {
+		if C.mg_zunmtr(n, C.int(cols), cz(w.a), cz(w.tau), cz(w.vecs[j*w.n:]), cz(lw.work), C.int(len(lw.work)), C.int(w.stageThreads())) != 0 {
 			return NoConverge
 		}
 	}
@@ -337,11 +337,12 @@ func (w *Work) reduceLAPACK(lw *lapackWork) bool {
 		if w.stopped() {
 			return true
 		}
+		t3 := w.stageThreads()
 		t2 := 1
 		if wideLevel2 {
-			t2 = w.threads
+			t2 = t3
 		}
-		C.mg_panel(C.int(n), C.int(k+nb), C.int(nb), cz(a), cd(w.e), cz(w.tau), cz(lw.panel), C.int(t2), C.int(w.threads))
+		C.mg_panel(C.int(n), C.int(k+nb), C.int(nb), cz(a), cd(w.e), cz(w.tau), cz(lw.panel), C.int(t2), C.int(t3))
 		// zlatrd left 1 in the superdiagonal of the panel's reflectors.
 		for j := k; j < k+nb; j++ {
 			a[j*n+j-1] = complex(w.e[j-1], 0)
@@ -420,17 +421,22 @@ func cBool(b bool) C.int {
 // no narrow call ever runs with it (OpenBLAS's thread count is
 // process-wide), and a narrow call arriving meanwhile waits for it instead
 // of oversubscribing the cores. TryLock never queues a writer, so narrow
-// calls are never starved. Only the matrix–matrix stages (zher2k of each
-// panel, zunmtr) widen: their threads meet a few times per call, while
-// zlatrd's matrix–vector products would make them meet once per column,
-// and a thread that waits for a core at each meeting slows the call down
-// many times over. Measured on this machine with one goroutine spinning
-// beside the call (two cores): the reduction and tridiagonal stage of
-// n = 768 took 0.79 s with the matrix–matrix stages on two threads and
-// 4.7 s with everything on two, and 15 against 214 ms at n = 192 (the
-// machine was loaded: 0.64 and 0.50 s, 7.7 and 3.8 ms without the
-// spinning goroutine). For the same reason a call widens only onto cores
-// the Go scheduler reports idle when it starts.
+// calls are never starved.
+//
+// A wide call uses only cores the Go scheduler reports idle, and asks
+// again before each stage (each panel of the reduction, each column block
+// of the back-transformation; stageThreads): OpenBLAS's threads meet after
+// every matrix–vector product (32 to a panel), and a thread that has to
+// wait for its core at each meeting slows the call down many times over.
+// Measured on this machine with one goroutine spinning beside a call on
+// two threads (two cores, loaded by other work): the reduction and
+// tridiagonal stage of n = 768 took 4.7 s with every stage on two threads,
+// 0.79 s with only the matrix–matrix stages on two (0.50 and 0.64 s
+// without the spinning goroutine), and 214 against 15 ms at n = 192. A
+// goroutine that starts running during a wide call thus costs it at most
+// one panel on two threads. Other processes on the same cores are not
+// seen: where the cores are shared, OPENBLAS_NUM_THREADS=1 keeps every
+// call on one thread.
 type threadPolicy struct {
 	mu         sync.RWMutex
 	maxThreads int // from OPENBLAS_NUM_THREADS (if set) and the CPUs OpenBLAS sees
@@ -490,11 +496,23 @@ func (p *threadPolicy) leave(threads int) {
 	p.mu.RUnlock()
 }
 
-// wideLevel2 makes a wide call run its matrix–vector stages (zlatrd's
-// products) on several threads too; false: only the matrix–matrix stages
-// (zher2k, zunmtr), whose threads meet a few times per call instead of
-// once per column (measurement only).
-var wideLevel2 = false
+// stageThreads is the number of OpenBLAS threads the next stage of a
+// call runs on: 1 for a shared call; for a wide one, as many of its
+// threads as the Go scheduler reports idle cores for now (a goroutine that
+// started running since the call began takes its core back at the next
+// panel or column block).
+func (w *Work) stageThreads() int {
+	if w.threads <= 1 {
+		return 1
+	}
+	return min(w.threads, 1+lapackThreads.idleProcs())
+}
+
+// wideLevel2 makes the stages of a wide call that are matrix–vector
+// products (zlatrd's, 32 to a panel) run on several threads too; false
+// keeps them on one, threading only the matrix–matrix stages (zher2k,
+// zunmtr). A variable for BenchmarkLAPACKCrossover.
+var wideLevel2 = true
 
 // backendName names the linked solver.
 func backendName() string { return "lapack" }

@@ -87,7 +87,8 @@ func BenchmarkLAPACKDrivers(b *testing.B) {
 // BenchmarkLAPACKCrossover times both paths around the sizes where LAPACK
 // overtakes the pure-Go solver (lapackMin), and the LAPACK path with one
 // and with several OpenBLAS threads where several start to pay (wideMin):
-// on the matrix–matrix stages only (wide), or on all (wide-level2).
+// on every stage (wide, what a wide call does), or on the matrix–matrix
+// stages only (wide-level3).
 func BenchmarkLAPACKCrossover(b *testing.B) {
 	rng := rand.New(rand.NewPCG(1, 1))
 	for _, n := range []int{24, 32, 40, 48, 56, 64, 80, 96, 128, 192, 256, 384, 512, 768} {
@@ -103,7 +104,7 @@ func BenchmarkLAPACKCrossover(b *testing.B) {
 				wide   int
 				level2 bool
 			}{{"go", routeGo, 1 << 30, false}, {"lapack-1", routeLAPACK, 1 << 30, false},
-				{"lapack-wide", routeLAPACK, 0, false}, {"lapack-wide-level2", routeLAPACK, 0, true}} {
+				{"lapack-wide-level3", routeLAPACK, 0, false}, {"lapack-wide", routeLAPACK, 0, true}} {
 				if c.route == routeGo && n > 96 || c.wide == 0 && n < 96 {
 					continue
 				}
