@@ -1,19 +1,24 @@
 // Which solver a Work uses: the pure-Go Householder + QL of eigen.go, or,
-// in builds with the lapack tag, LAPACK's zheevd from a crossover size up.
+// in builds with the lapack tag, LAPACK (lapack_cgo.go) from a crossover
+// size up.
 
 package eigen
 
 import "unsafe"
 
-// Crossover sizes, measured with BenchmarkHermitianLadder (DEVELOPERS.md,
-// "Measured: eigensolver size ladder"): from lapackMin[mode] modes up a
-// lapack build calls LAPACK, below it the pure-Go path is faster; from
-// wideMin[mode] up a call with no other LAPACK call in flight may use
-// several OpenBLAS threads (lapack_cgo.go). Index 0: eigenvalues only,
-// 1: with eigenvectors.
+// Crossover sizes (DEVELOPERS.md, "Measured: eigensolver size ladder").
+// From lapackMin[mode] modes up a lapack build calls LAPACK: one core, CPU
+// time per solve (BenchmarkLAPACKCrossover), the two paths are level at
+// 64 modes for eigenvalues only (208 against 207 µs; the pure-Go path 1.1×
+// faster at 56, LAPACK 1.2× at 80) and at 40 with eigenvectors (165
+// against 167 µs; LAPACK 1.2× faster at 48). From wideMin[mode] up a call
+// with no other LAPACK call in flight may use idle cores (lapack_cgo.go):
+// on two cores that gained 11 % at n = 384 for eigenvalues and 6 % at
+// n = 192 with eigenvectors for twice the CPU time, 1.6× and 1.5× at
+// n = 768. Index 0: eigenvalues only, 1: with eigenvectors.
 var (
 	lapackMin = [2]int{64, 40}
-	wideMin   = [2]int{384, 192}
+	wideMin   = [2]int{384, 384}
 )
 
 // route forces one path regardless of size (tests and benchmarks).
