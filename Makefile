@@ -5,18 +5,39 @@ VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo dev)
 LDFLAGS := -s -w -X main.version=$(VERSION)
 PKGS    := ./...
 
+# The eigensolver's lapack build (physics/eigen: OpenBLAS's LAPACK through
+# cgo for large matrices) is the one the container ships. OPENBLAS is "yes"
+# when OpenBLAS can be linked here (Debian/Ubuntu: libopenblas-dev); then
+# modegridd is built with the tag and the tests run in both builds.
+# `make build OPENBLAS=no` builds pure Go regardless.
+ifndef OPENBLAS
+OPENBLAS := $(shell printf 'int main(void){return 0;}\n' | $(CC) -x c - -lopenblas -o /dev/null 2>/dev/null && echo yes || echo no)
+endif
+ifeq ($(OPENBLAS),yes)
+DAEMON_FLAGS := -tags lapack
+endif
+
 .PHONY: all build test demo proto proto-check lint vet bench image clean fuzz fuzz-short adversarial
 
 all: build
 
+# modegridd as the image builds it (lapack tag when OpenBLAS links here);
+# the CLI pure Go, a single static file to hand out.
 build:
-	$(GO) build -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegridd ./server/cmd/modegridd
+	$(GO) build $(DAEMON_FLAGS) -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegridd ./server/cmd/modegridd
 	$(GO) build -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegrid ./client/cmd/modegrid
 
 # Everything: generated code fresh, buf lint, go vet, gofmt, a short fuzz
-# of every fuzz target, race tests.
+# of every fuzz target, race tests; the engine's tests again in the lapack
+# build when OpenBLAS links here (deploy/'s tests build the image's binary,
+# which needs it: .ci/run installs libopenblas-dev).
 test: proto-check lint fuzz-short
 	$(GO) test -race -count=1 -timeout 9m $(PKGS)
+ifeq ($(OPENBLAS),yes)
+	CGO_ENABLED=1 $(GO) test -race -count=1 -timeout 5m -tags lapack ./physics/...
+else
+	@echo "OpenBLAS not found (apt-get install libopenblas-dev): the lapack build of physics/ is not tested"
+endif
 
 # Fuzz targets (package:function): the model file decoder, every RPC
 # handler, the CLI's parsers. Seeds: <package>/testdata/fuzz/<function>/.
@@ -80,6 +101,9 @@ lint: vet
 
 vet:
 	$(GO) vet $(PKGS)
+ifeq ($(OPENBLAS),yes)
+	CGO_ENABLED=1 $(GO) vet -tags lapack ./physics/eigen
+endif
 
 bench:
 	$(GO) test -run '^$$' -bench . -benchmem $(PKGS)

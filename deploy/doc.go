@@ -1,8 +1,8 @@
 // Package deploy holds what it takes to run modegridd outside a developer's
 // shell, and the tests that keep those files honest:
 //
-//   - Dockerfile (with /.dockerignore): a static, CPU-only binary on a
-//     distroless non-root base;
+//   - Dockerfile (with /.dockerignore): a CPU-only binary built with the
+//     lapack tag and the OpenBLAS runtime on a distroless non-root base;
 //   - kubernetes/: Deployment, headless and ClusterIP Services, HPA, PDB,
 //     ConfigMap and an optional shared Redis;
 //   - prometheus/: scrape configuration, alert rules and their unit tests;

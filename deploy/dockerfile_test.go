@@ -202,11 +202,14 @@ func (df *dockerfile) goBuildCommand(out, version string) (*exec.Cmd, error) {
 }
 
 // TestDockerfile checks deploy/Dockerfile statically (no Docker engine runs
-// here): a build stage on the Go toolchain named in go.mod or newer compiles a
-// static, trimmed, version-stamped binary of ./server/cmd/modegridd; the
-// final stage is distroless static (no shell) with the nonroot user, copies
-// only that binary, exposes the gRPC and metrics ports its ENV listens on,
-// and nothing mentions GPU or CUDA layers.
+// here): a build stage on the Go toolchain named in go.mod or newer installs
+// OpenBLAS and compiles a trimmed, version-stamped binary of
+// ./server/cmd/modegridd with cgo and the lapack tag (the build that ships:
+// physics/eigen); the final stage is distroless with the C library and no
+// shell, with the nonroot user, copies only that binary and the libraries
+// staged beside it into a directory its LD_LIBRARY_PATH names, exposes the
+// gRPC and metrics ports its ENV listens on, and nothing mentions GPU or
+// CUDA layers.
 func TestDockerfile(t *testing.T) {
 	file := filepath.Join(repoRoot, "deploy", "Dockerfile")
 	df, err := parseDockerfile(file)
@@ -234,16 +237,23 @@ func TestDockerfile(t *testing.T) {
 		if buildSt.name == "" {
 			t.Error("build stage has no name (FROM ... AS build) for COPY --from")
 		}
-		if got := buildSt.env()["CGO_ENABLED"]; got != "0" {
-			t.Errorf("build stage ENV CGO_ENABLED=%q; want 0 (static binary)", got)
+		if got := buildSt.env()["CGO_ENABLED"]; got != "1" {
+			t.Errorf("build stage ENV CGO_ENABLED=%q; want 1 (the lapack build links OpenBLAS through cgo)", got)
 		}
 		var run string
+		installs := false
 		for _, r := range buildSt.all("RUN") {
 			if strings.Contains(r, "go build") {
 				run = r
 			}
+			if strings.Contains(r, "apt-get install") && slices.Contains(shellWords(r), "libopenblas-dev") {
+				installs = true
+			}
 		}
-		for _, want := range []string{"-trimpath", "-X main.version=${VERSION}", "-s -w", "./server/cmd/modegridd"} {
+		if !installs {
+			t.Error("build stage does not apt-get install libopenblas-dev (the library the lapack build links)")
+		}
+		for _, want := range []string{"-tags lapack", "-trimpath", "-X main.version=${VERSION}", "-s -w", "./server/cmd/modegridd"} {
 			if !strings.Contains(run, want) {
 				t.Errorf("go build line %q lacks %q", run, want)
 			}
@@ -254,8 +264,8 @@ func TestDockerfile(t *testing.T) {
 	})
 
 	t.Run("run stage", func(t *testing.T) {
-		if !strings.HasPrefix(runSt.image, "gcr.io/distroless/static") || !strings.HasSuffix(runSt.image, ":nonroot") {
-			t.Errorf("run stage FROM %q; want gcr.io/distroless/static…:nonroot (no shell, non-root)", runSt.image)
+		if !strings.HasPrefix(runSt.image, "gcr.io/distroless/cc-debian12") || !strings.HasSuffix(runSt.image, ":nonroot") {
+			t.Errorf("run stage FROM %q; want gcr.io/distroless/cc-debian12:nonroot (glibc of the build image's Debian 12, no shell, non-root)", runSt.image)
 		}
 		users := runSt.all("USER")
 		if len(users) == 0 {
@@ -271,8 +281,14 @@ func TestDockerfile(t *testing.T) {
 				t.Errorf("line %d: RUN in the run stage (distroless has no shell)", in.line)
 			}
 			if in.cmd == "COPY" && !strings.HasPrefix(in.args, "--from="+buildSt.name+" ") {
-				t.Errorf("line %d: COPY %s; the run stage should copy only the binary from the build stage", in.line, in.args)
+				t.Errorf("line %d: COPY %s; the run stage should copy only the binary and its libraries from the build stage", in.line, in.args)
 			}
+		}
+		libDir := runStageLibDir(df)
+		if libDir == "" {
+			t.Errorf("run stage copies no %s from the build stage", stagedLibDir)
+		} else if !slices.Contains(strings.Split(runSt.env()["LD_LIBRARY_PATH"], ":"), strings.TrimSuffix(libDir, "/")) {
+			t.Errorf("run stage copies the libraries to %s, which its LD_LIBRARY_PATH %q does not name", libDir, runSt.env()["LD_LIBRARY_PATH"])
 		}
 		var ports []string
 		for _, e := range runSt.all("EXPOSE") {
@@ -304,6 +320,41 @@ func TestDockerfile(t *testing.T) {
 		}
 	})
 }
+
+// stagedLibDir is where the build stage collects the shared libraries the
+// run stage copies.
+const stagedLibDir = "/out/lib/"
+
+// runStageLibDir returns where the run stage copies stagedLibDir to ("" if
+// it does not).
+func runStageLibDir(df *dockerfile) string {
+	for _, c := range df.stages[len(df.stages)-1].all("COPY") {
+		w := shellWords(c)
+		if len(w) == 3 && strings.HasPrefix(w[0], "--from=") && w[1] == stagedLibDir {
+			return w[2]
+		}
+	}
+	return ""
+}
+
+// stagedLibs returns the files the build stage copies into stagedLibDir
+// (the arguments of its `cp -L … /out/lib/` line).
+func stagedLibs(df *dockerfile) []string {
+	for _, r := range df.stages[0].all("RUN") {
+		for _, cmd := range strings.Split(r, "&&") {
+			w := shellWords(strings.TrimSpace(cmd))
+			if len(w) > 3 && w[0] == "cp" && w[1] == "-L" && w[len(w)-1] == stagedLibDir {
+				return w[2 : len(w)-1]
+			}
+		}
+	}
+	return nil
+}
+
+// baseImageLibs are the shared libraries gcr.io/distroless/cc-debian12
+// provides (its packages libc6 and libgcc-s1), with the kernel's vDSO.
+var baseImageLibs = []string{"linux-vdso.so.1", "ld-linux-x86-64.so.2", "libc.so.6", "libm.so.6",
+	"libpthread.so.0", "libdl.so.2", "librt.so.1", "libgcc_s.so.1"}
 
 // stripComments drops comment lines, which may say what the image is not.
 func stripComments(s string) string {
@@ -483,27 +534,34 @@ func matchDockerPattern(pat, p string) bool {
 	return false
 }
 
-// TestStaticBinary builds modegridd with the Dockerfile's own go build
-// command and checks the result: a statically linked ELF (no interpreter,
-// no shared libraries, so it runs on distroless/static), built with
-// -trimpath (no build-machine paths inside), carrying the stamped version;
-// started with only the container's environment (ports moved to free
-// loopback ones), it reports SERVING on the gRPC health service and exits
-// with status 0 on SIGTERM.
-func TestStaticBinary(t *testing.T) {
+// TestDaemonBinary builds modegridd with the Dockerfile's own go build
+// command and checks the result: an ELF binary linked dynamically only to
+// the C library and OpenBLAS; every shared library it needs on this machine
+// (ldd, the same Debian 12 packages as the build image) is either in the
+// base image or staged by the build stage for the run stage, and the staged
+// files exist; built with -trimpath (no build-machine paths inside),
+// carrying the stamped version; started with only the container's
+// environment (ports moved to free loopback ones), it logs that it runs on
+// the LAPACK eigensolver, reports SERVING on the gRPC health service and
+// exits with status 0 on SIGTERM.
+func TestDaemonBinary(t *testing.T) {
 	bin := daemonBinary(t)
 	f, err := elf.Open(bin)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer f.Close()
-	for _, p := range f.Progs {
-		if p.Type == elf.PT_INTERP {
-			t.Error("binary has a PT_INTERP program header: dynamically linked")
+	libs, err := f.ImportedLibraries()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, l := range libs {
+		if !slices.Contains([]string{"libopenblas.so.0", "libc.so.6", "libm.so.6", "libpthread.so.0", "libdl.so.2"}, l) {
+			t.Errorf("binary needs %s; want only the C library and OpenBLAS", l)
 		}
 	}
-	if libs, _ := f.ImportedLibraries(); len(libs) > 0 {
-		t.Errorf("binary needs shared libraries %v", libs)
+	if !slices.Contains(libs, "libopenblas.so.0") {
+		t.Errorf("binary links %v, not OpenBLAS: not the lapack build", libs)
 	}
 	raw, err := os.ReadFile(bin)
 	if err != nil {
@@ -515,6 +573,33 @@ func TestStaticBinary(t *testing.T) {
 	if !strings.Contains(string(raw), testVersion) {
 		t.Errorf("binary does not contain the stamped version %q (is main.version defined?)", testVersion)
 	}
+
+	t.Run("image carries its libraries", func(t *testing.T) {
+		df, err := parseDockerfile(filepath.Join(repoRoot, "deploy", "Dockerfile"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		staged := map[string]bool{}
+		for _, p := range stagedLibs(df) {
+			if _, err := os.Stat(p); err != nil {
+				t.Errorf("the build stage stages %s, absent here: %v", p, err)
+			}
+			staged[path.Base(p)] = true
+		}
+		out, err := exec.Command("ldd", bin).CombinedOutput()
+		if err != nil {
+			t.Fatalf("ldd %s: %v\n%s", bin, err, out)
+		}
+		for _, line := range strings.Split(strings.TrimSpace(string(out)), "\n") {
+			name := path.Base(strings.Fields(line)[0])
+			if strings.Contains(line, "not found") {
+				t.Errorf("ldd: %s not found on this machine (is libopenblas-dev installed?)", name)
+			}
+			if !slices.Contains(baseImageLibs, name) && !staged[name] {
+				t.Errorf("the binary needs %s, which neither the base image has nor the build stage stages", name)
+			}
+		}
+	})
 
 	t.Run("version flag", func(t *testing.T) {
 		out, err := exec.Command(bin, "--version").CombinedOutput()
@@ -539,6 +624,9 @@ func TestStaticBinary(t *testing.T) {
 			env = append(env, k+"="+v)
 		}
 		d := startDaemon(t, daemonConfig{name: "container-like", env: env})
+		if !strings.Contains(d.logs.String(), `"eigensolver":"lapack"`) {
+			t.Errorf("the startup log does not name the LAPACK eigensolver:\n%s", d.logs.String())
+		}
 		if err := d.terminate(30 * time.Second); err != nil {
 			t.Fatalf("after SIGTERM: %v; want exit status 0\nlog:\n%s", err, d.logs.String())
 		}

@@ -38,7 +38,7 @@ const (
 const serviceName = "modegrid.v1.ModegridService"
 
 // testVersion is stamped into the test build, as the Dockerfile stamps the
-// git version, so TestStaticBinary can check that stamping works.
+// git version, so TestDaemonBinary can check that stamping works.
 const testVersion = "v0.0.0-deploytest"
 
 // repoRoot is the module root, the Docker build context.

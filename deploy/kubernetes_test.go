@@ -290,6 +290,11 @@ func TestDeployment(t *testing.T) {
 		if q.Cmp(memLim) >= 0 || q.Value() < memLim.Value()*3/4 {
 			t.Errorf("GOMEMLIMIT %s; want between 75%% and 100%% of the memory limit %s", gml, memLim.String())
 		}
+		// OpenBLAS would size its thread pool from the node's CPUs.
+		cpuLim := c.Resources.Limits[corev1.ResourceCPU]
+		if obt, want := envValue(c, "OPENBLAS_NUM_THREADS"), strconv.FormatInt(cpuLim.Value(), 10); obt != want {
+			t.Errorf("OPENBLAS_NUM_THREADS %q; want the CPU limit, %s", obt, want)
+		}
 	})
 
 	t.Run("security", func(t *testing.T) {

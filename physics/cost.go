@@ -4,6 +4,7 @@ import (
 	"runtime"
 	"unsafe"
 
+	"github.com/materials-lab/modegrid/physics/eigen"
 	"github.com/materials-lab/modegrid/physics/mesh"
 )
 
@@ -178,15 +179,11 @@ func (s GridSize) assembleFlops() float64 {
 	return 8*float64(s.Interactions)*float64(s.P*s.P) + 2*n*n + s.LongRangeFlops
 }
 
-// workspaceBytes is one worker's eigensolver workspace (eigen.Work: a and
-// hv, n² complex each, and n-vectors; with eigenvectors vecs, n² complex,
-// and zt, n² real) and its phase tables.
+// workspaceBytes is one worker's eigensolver workspace (eigen.Work, whose
+// size depends on the path the build's solver takes at n) and its phase
+// tables.
 func workspaceBytes(n int, vectors bool) int64 {
-	b := int64(32*n*n + 64*n + 1024)
-	if vectors {
-		b += int64(24 * n * n)
-	}
-	return b
+	return eigen.WorkspaceBytes(n, vectors) + 1024
 }
 
 // GridModesCost estimates Model.GridModes. Memory, from grid.go and

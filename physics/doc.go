@@ -157,7 +157,9 @@
 //
 // Complex Householder tridiagonalisation and implicit QL (root-free for
 // eigenvalues only), chosen by measurement over a real 2n×2n embedding in
-// gonum and a complex Jacobi method; see the header of eigen/eigen.go. Every
+// gonum and a complex Jacobi method; see the header of eigen/eigen.go. In
+// builds with the lapack tag (the container's), matrices of 40–64 modes and
+// more go to OpenBLAS's LAPACK instead (eigen/doc.go). Every
 // eigenvalue is within a few n·ε‖D‖ of exact (EigenTol above). Workspaces are reused per core:
 // grid and stream loops allocate nothing per point.
 //

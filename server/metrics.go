@@ -8,6 +8,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 
+	"github.com/materials-lab/modegrid/physics/eigen"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 	"github.com/materials-lab/modegrid/server/cache"
 	"github.com/materials-lab/modegrid/server/gate"
@@ -202,13 +203,14 @@ func admissionGauges(g *gate.Gate) []prometheus.Collector {
 }
 
 // buildInfo is the constant build_info gauge: 1, labelled with the
-// build version and the Go version.
+// build version, the Go version and the eigensolver linked ("go", or
+// "lapack" for a build with the lapack tag: eigen.Backend).
 func buildInfo(version string) prometheus.Collector {
 	build := prometheus.NewGaugeVec(prometheus.GaugeOpts{
 		Namespace: "modegrid", Name: "build_info",
-		Help: "Always 1; labels carry the build version and Go version.",
-	}, []string{"version", "goversion"})
-	build.WithLabelValues(version, runtime.Version()).Set(1)
+		Help: "Always 1; labels carry the build version, Go version and eigensolver (go or lapack).",
+	}, []string{"version", "goversion", "eigensolver"})
+	build.WithLabelValues(version, runtime.Version(), eigen.Backend()).Set(1)
 	return build
 }
 

@@ -32,6 +32,7 @@ import (
 	"strings"
 	"syscall"
 
+	"github.com/materials-lab/modegrid/physics/eigen"
 	"github.com/materials-lab/modegrid/server"
 	rediscache "github.com/materials-lab/modegrid/server/cache/redis"
 )
@@ -283,7 +284,7 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	}
 	cfg := srv.Config()
 	err = srv.Run(ctx, func(grpcAddr, metricsAddr net.Addr) {
-		attrs := []any{"version", version, "addr", grpcAddr.String(), "tls", cfg.TLSCertFile != "",
+		attrs := []any{"version", version, "eigensolver", eigen.Backend(), "addr", grpcAddr.String(), "tls", cfg.TLSCertFile != "",
 			"mtls", cfg.ClientCAFile != "", "tokens", cfg.TokenFile != "", "cache_bytes", max(cfg.CacheBytes, 0),
 			"max_concurrent", cfg.MaxConcurrent, "redis", o.redis.Addr}
 		if metricsAddr != nil {
@@ -291,6 +292,9 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		}
 		if cfg.HealthListen != "" {
 			attrs = append(attrs, "health_listen", cfg.HealthListen)
+		}
+		if d := eigen.BackendDetail(); d != "" {
+			attrs = append(attrs, "lapack", d)
 		}
 		log.Info("serving", attrs...)
 	})
