@@ -169,7 +169,7 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 		switch {
 		case delivered == 0 && s.fallback(err):
 			continue
-		case resumes < c.maxResends && broken(ctx, err, answered(hdr, trl) || delivered > 0):
+		case resumes < c.maxResends && (errors.Is(err, errEmptyStream) || broken(ctx, err, answered(hdr, trl) || delivered > 0)):
 			resumes++
 			continue
 		case delivered > 0 && s.fallback(err):
@@ -184,6 +184,14 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 type fnError struct{ err error }
 
 func (e fnError) Error() string { return e.err.Error() }
+
+// errEmptyStream: a stream that ended cleanly before its first message.
+// The server sends at least one message (the model hash) on every
+// successful stream, so this is never an empty result: it was seen in CI
+// after retries were exhausted and across a server's graceful stop, and is
+// resent like a broken stream (the computation is pure), then reported as
+// UNAVAILABLE.
+var errEmptyStream = status.Error(codes.Unavailable, "modegrid client: the stream ended before its first message")
 
 // streamOnce runs one attempt of a ComputeModes stream, skipping points
 // before *delivered and advancing it.
@@ -203,12 +211,7 @@ func (s *sender) streamOnce(ctx context.Context, o callOptions, delivered *int, 
 	for {
 		chunk, err := stream.Recv()
 		if errors.Is(err, io.EOF) && first {
-			// The server sends at least one message (the model hash) on
-			// every successful stream. A stream seen to end cleanly before
-			// any was seen once in CI after retries were exhausted on a
-			// server that answered every attempt UNAVAILABLE: never a
-			// silent empty result.
-			return status.Error(codes.Unavailable, "modegrid client: the stream ended before its first message")
+			return errEmptyStream
 		}
 		if errors.Is(err, io.EOF) {
 			return nil
