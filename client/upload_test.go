@@ -443,15 +443,28 @@ func TestUploadRoundRobin(t *testing.T) {
 			t.Fatalf("small model, call %d: %v", i, err)
 		}
 	}
-	bigOn, smallOn := map[int]int{}, map[int]int{}
-	for ri, r := range recs {
-		for _, cl := range r.snapshot() {
-			if strings.HasSuffix(cl.method, "/UploadModel") || cl.ref == bigHash {
-				bigOn[ri]++
-			} else {
-				smallOn[ri]++
+	count := func() (bigOn, smallOn map[int]int) {
+		bigOn, smallOn = map[int]int{}, map[int]int{}
+		for ri, r := range recs {
+			for _, cl := range r.snapshot() {
+				if strings.HasSuffix(cl.method, "/UploadModel") || cl.ref == bigHash {
+					bigOn[ri]++
+				} else {
+					smallOn[ri]++
+				}
 			}
 		}
+		return bigOn, smallOn
+	}
+	// round_robin picks among the replicas connected at the time: on a
+	// loaded machine the second may connect only after the first calls,
+	// so more small calls are made (at most 100) until both have had one.
+	bigOn, smallOn := count()
+	for i := 0; len(smallOn) < 2 && i < 100; i++ {
+		if _, err := c.Modes(ctx, small); err != nil {
+			t.Fatalf("small model, extra call %d: %v", i, err)
+		}
+		bigOn, smallOn = count()
 	}
 	if len(bigOn) != 1 {
 		t.Errorf("the big model's upload and calls reached replicas %v; want one", bigOn)

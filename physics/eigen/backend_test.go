@@ -423,3 +423,34 @@ func BenchmarkPollGaps(b *testing.B) {
 		}
 	}
 }
+
+// TestWorkScale: cost estimates scale the pure-Go path's operation count
+// by WorkScale. It is 1 wherever the pure-Go path runs (every n without
+// LAPACK, below the crossover with it) and, where LAPACK runs, in (0, 1]
+// and never rising with n (the measured speed-up only grows with n), so
+// that a larger matrix is never estimated cheaper than a smaller one.
+func TestWorkScale(t *testing.T) {
+	for _, vectors := range []bool{false, true} {
+		prev := 1.0
+		for n := 1; n <= 2048; n++ {
+			f := WorkScale(n, vectors)
+			w := Work{n: n}
+			switch {
+			case !w.useLAPACK(vectors) && f != 1:
+				t.Fatalf("n = %d vectors %v: scale %g on the pure-Go path; want 1", n, vectors, f)
+			case !(f > 0 && f <= prev):
+				t.Fatalf("n = %d vectors %v: scale %g after %g; want in (0, previous]", n, vectors, f, prev)
+			}
+			if x := float64(n); f*x*x*x < prev*(x-1)*(x-1)*(x-1) {
+				t.Fatalf("n = %d vectors %v: scaled n³ %g below n−1's %g", n, vectors, f*x*x*x, prev*(x-1)*(x-1)*(x-1))
+			}
+			prev = f
+		}
+		if !lapackLinked && prev != 1 {
+			t.Errorf("vectors %v: scale %g at n = 2048 without LAPACK; want 1", vectors, prev)
+		}
+		if lapackLinked && prev == 1 {
+			t.Errorf("vectors %v: scale 1 at n = 2048 with LAPACK; want the measured speed-up counted", vectors)
+		}
+	}
+}

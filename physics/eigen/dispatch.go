@@ -4,7 +4,10 @@
 
 package eigen
 
-import "unsafe"
+import (
+	"math"
+	"unsafe"
+)
 
 // Crossover sizes (DEVELOPERS.md, "Measured: eigensolver size ladder").
 // From lapackMin[mode] modes up a lapack build calls LAPACK: one core, CPU
@@ -59,6 +62,48 @@ func Backend() string { return backendName() }
 // BackendDetail describes the linked LAPACK library (OpenBLAS's version and
 // build target), or is empty for the pure-Go build.
 func BackendDetail() string { return backendDetail() }
+
+// lapackWorkScale are the fractions of the pure-Go path's time that the
+// LAPACK path is allowed in work estimates at a few n (index as
+// lapackMin), from 1 at the crossover: each is above the measured ratio of
+// the two paths' one-core times at that n (DEVELOPERS.md, "Measured:
+// eigensolver size ladder": eigenvalues 0.72 at n = 96, 0.57 at 192, 0.48
+// at 384, 0.43 at 768; with eigenvectors 0.47 at 96, 0.32 at 192, 0.26 at
+// 384, 0.23 at 768), so estimates stay on the safe side.
+var lapackWorkScale = [2][]struct {
+	n     float64
+	scale float64
+}{
+	{{192, 0.75}, {384, 0.6}},
+	{{96, 0.6}, {192, 0.45}, {384, 0.35}},
+}
+
+// WorkScale is the time of a solve of order n in this build relative to
+// the pure-Go path's, as cost estimates count it: 1 where the pure-Go path
+// runs (every n in builds without the lapack tag); where LAPACK runs,
+// lapackWorkScale's fractions joined linearly in log n from 1 at the
+// crossover, the last one kept beyond, so that the scaled n³ still grows
+// with n. A caller's operation count of the pure-Go path times WorkScale
+// is the work of this build's solve at the same rate.
+func WorkScale(n int, vectors bool) float64 {
+	w := Work{n: n}
+	if !w.useLAPACK(vectors) {
+		return 1
+	}
+	m := modeIndex(vectors)
+	x0, f0 := float64(lapackMin[m]), 1.0
+	for _, c := range lapackWorkScale[m] {
+		if float64(n) < c.n {
+			if float64(n) <= x0 {
+				return f0
+			}
+			t := math.Log(float64(n)/x0) / math.Log(c.n/x0)
+			return f0 + t*(c.scale-f0)
+		}
+		x0, f0 = c.n, c.scale
+	}
+	return f0
+}
 
 // WorkspaceBytes is what one Work of size n allocates in this build for
 // solves of one mode (eigenvalues only, or with eigenvectors): the input

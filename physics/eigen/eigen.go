@@ -166,8 +166,9 @@ func (w *Work) stopped() bool {
 // real embedding of embed.go), Stopped if done was closed.
 //
 // In builds with the lapack tag, matrices of lapackMin modes and more go to
-// LAPACK (lapackSolve), which cannot poll done during the call: it is
-// polled before and after (DEVELOPERS.md states the longest call).
+// LAPACK (lapackSolve), which cannot poll done inside a LAPACK call: it is
+// polled between the calls (DEVELOPERS.md states the longest call). A
+// NoConverge from that path leaves w.a destroyed too.
 func (w *Work) Solve(vectors bool) Status {
 	n := w.n
 	if vectors && w.vecs == nil {
@@ -183,7 +184,8 @@ func (w *Work) Solve(vectors bool) Status {
 	// Scale by a power of two (exact) so that the largest element is not
 	// far from 1: sqrt(a² + b²) below can then neither overflow nor lose
 	// everything to underflow.
-	amax, stop := w.maxElement()
+	useLAPACK := w.useLAPACK(vectors)
+	amax, stop := w.maxElement(useLAPACK && vectors)
 	if stop {
 		return Stopped
 	}
@@ -205,7 +207,7 @@ func (w *Work) Solve(vectors bool) Status {
 	if exp != 0 && w.scale(complex(math.Ldexp(1, -exp), 0)) {
 		return Stopped
 	}
-	if w.useLAPACK(vectors) {
+	if useLAPACK {
 		return w.solveLAPACK(vectors, math.Ldexp(1, exp))
 	}
 	if w.hv == nil {
@@ -232,10 +234,10 @@ func (w *Work) Solve(vectors bool) Status {
 	return OK
 }
 
-// solveLAPACK is Solve's LAPACK path on the scaled matrix in w.a: the
-// eigenvalues, multiplied by unscale, into w.vals and, with vectors, the
-// eigenvectors into w.vecs (lapackSolve leaves them conjugated; see
-// there). done is polled before, between and after the LAPACK calls.
+// solveLAPACK is Solve's LAPACK path on the scaled matrix in w.a (with
+// vectors, conjugated by maxElement: see lapackSolve): the eigenvalues,
+// multiplied by unscale, into w.vals and, with vectors, the eigenvectors
+// into w.vecs. done is polled before, between and after the LAPACK calls.
 func (w *Work) solveLAPACK(vectors bool, unscale float64) Status {
 	if w.stopped() {
 		return Stopped
@@ -245,11 +247,6 @@ func (w *Work) solveLAPACK(vectors bool, unscale float64) Status {
 	}
 	for k, d := range w.d {
 		w.vals[k] = d * unscale
-	}
-	if vectors {
-		for k, z := range w.vecs {
-			w.vecs[k] = complex(real(z), -imag(z))
-		}
 	}
 	if w.stopped() {
 		return Stopped
@@ -264,16 +261,22 @@ func (w *Work) poll(i int) bool {
 }
 
 // maxElement returns the largest |Re| or |Im| of the lower triangle of
-// w.a (NaN if any element is NaN), and true when stopped.
-func (w *Work) maxElement() (float64, bool) {
+// w.a (NaN if any element is NaN), and true when stopped. With conjugate
+// it also replaces the lower triangle by its complex conjugate (for the
+// LAPACK path with eigenvectors; see lapackSolve).
+func (w *Work) maxElement(conjugate bool) (float64, bool) {
 	n := w.n
 	var amax float64
 	for i := 0; i < n; i++ {
 		if w.poll(i) {
 			return 0, true
 		}
-		for _, z := range w.a[i*n : i*n+i+1] {
+		row := w.a[i*n : i*n+i+1]
+		for j, z := range row {
 			amax = max(amax, math.Abs(real(z)), math.Abs(imag(z)))
+			if conjugate {
+				row[j] = complex(real(z), -imag(z))
+			}
 		}
 	}
 	return amax, false

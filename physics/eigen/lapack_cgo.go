@@ -6,28 +6,34 @@
 // libopenblas-dev installed (Debian/Ubuntu); the binary then needs
 // libopenblas0 (and the Fortran runtime it pulls in) to run.
 //
-// Method: LAPACK's zheevr for all eigenvalues (Anderson et al., LAPACK
-// Users' Guide, 3rd ed., SIAM 1999, §2.4.4 and §3.4.1): blocked
+// Method: the stages of LAPACK's Hermitian eigensolvers (Anderson et al.,
+// LAPACK Users' Guide, 3rd ed., SIAM 1999, §2.4.4 and §3.4.1): blocked
 // Householder reduction to real tridiagonal form, zhetrd, whose panels
-// (zlatrd) feed a rank-2k update (zher2k) so that most of the work is a
+// (zlatrd) feed a rank-2k update (zher2k) so that half the work is a
 // matrix–matrix product (Dongarra, Hammarling & Sorensen, J. Comput. Appl.
 // Math. 27, 215 (1989)); then the root-free QL of dsterf for eigenvalues
-// only, or for eigenvectors too the relatively robust representations of
-// zstemr (Dhillon, Parlett & Vömel, ACM Trans. Math. Softw. 32, 533
-// (2006)), O(n²); then zunmtr applies the reflectors to the eigenvectors
-// (blocked, matrix–matrix). The stages are called one by one from Go, the
-// loop of zhetrd written out, so that a stop channel is polled between
-// panels and between column blocks of zunmtr: a solve of n = 768 is cut
-// into about 30 uninterruptible pieces.
+// only, or, with eigenvectors, the divide and conquer of zstedc (Cuppen,
+// Numer. Math. 36, 177 (1981); Gu & Eisenstat, SIAM J. Matrix Anal. Appl.
+// 16, 172 (1995)) and zunmtr applying the reflectors to the eigenvectors
+// (blocked, matrix–matrix). These are zheevd's stages; they are called one
+// by one from Go, the loop of zhetrd written out, so that a stop channel is
+// polled between panels and between column blocks of zunmtr: a solve of
+// n = 768 is cut into about 30 uninterruptible pieces.
 //
-// Chosen by measurement on this machine (BenchmarkLAPACKDrivers; one core):
-// zheevr and numpy's zheevd (divide and conquer, zstedc, for the
-// tridiagonal eigenvectors) are equal within 5 % for eigenvalues (the
-// same reduction and the same dsterf), and for eigenvectors zheevr was
-// 0–5 % faster from n = 96 up (205 against 217 ms at n = 768) with an O(n)
-// workspace instead of zheevd's 2n² complex and 2n² real numbers. Its
-// stages called one by one cost the same as one zheevr call (the table in
-// DEVELOPERS.md, "Measured: eigensolver size ladder").
+// Chosen by measurement on this machine, one core, CPU time:
+//   - zheevr against zheevd, one call each (BenchmarkLAPACKDrivers at the
+//     time): equal within 5 % for eigenvalues, and zheevr 0–5 % faster with
+//     eigenvectors from n = 96 up (205 against 217 ms at n = 768).
+//   - The stages one by one, zstedc against zheevr's zstemr (relatively
+//     robust representations; Dhillon, Parlett & Vömel, ACM Trans. Math.
+//     Softw. 32, 533 (2006)) for the tridiagonal eigenpairs
+//     (BenchmarkTridiagonalStage): zstedc 3–9 % faster at every size from
+//     n = 64 to 1 536 (918 against 958 µs at n = 96, 205 against 218 ms at
+//     768, 1.50 against 1.64 s at 1 536), level at 40, for a workspace of
+//     2n² reals more. So zstedc, with zstemr kept for the benchmark.
+//   - The stages one by one cost what one call of the driver costs
+//     (BenchmarkLAPACKDrivers); DEVELOPERS.md, "Measured: eigensolver size
+//     ladder", has the table against numpy.
 
 package eigen
 
@@ -57,6 +63,10 @@ void zstemr_(const char *jobz, const char *range, const int *n, double *d,
 	int *iwork, const int *liwork, int *info, size_t, size_t);
 void zsteqr_(const char *compz, const int *n, double *d, double *e,
 	double complex *z, const int *ldz, double *work, int *info, size_t);
+void zstedc_(const char *compz, const int *n, double *d, double *e,
+	double complex *z, const int *ldz, double complex *work, const int *lwork,
+	double *rwork, const int *lrwork, int *iwork, const int *liwork, int *info,
+	size_t);
 void zunmtr_(const char *side, const char *uplo, const char *trans,
 	const int *m, const int *n, const double complex *a, const int *lda,
 	const double complex *tau, double complex *c, const int *ldc,
@@ -73,7 +83,7 @@ int openblas_get_num_threads(void);
 int openblas_get_num_procs(void);
 char *openblas_get_config(void);
 
-// The stages of zheevr (all eigenvalues, upper triangle), one call each,
+// The stages of zheevd and zheevr (all eigenvalues, upper triangle), one call each,
 // so that the caller can poll for cancellation between them. Every matrix
 // is n×n, column-major, leading dimension n.
 
@@ -130,6 +140,19 @@ static int mg_zstemr(int n, double *d, double *e, double *w, double complex *z,
 	return info;
 }
 
+// mg_zstedc: all eigenpairs of the tridiagonal (d, e) by divide and
+// conquer, eigenvalues into d and eigenvectors into z; lwork = -1 asks for
+// the workspace sizes instead.
+static int mg_zstedc(int n, double *d, double *e, double complex *z,
+	double complex *work, int lwork, double *rwork, int lrwork, int *iwork,
+	int liwork) {
+	char compz = 'I';
+	int info = 0;
+	zstedc_(&compz, &n, d, e, z, &n, work, &lwork, rwork, &lrwork, iwork,
+		&liwork, &info, 1);
+	return info;
+}
+
 // mg_zsteqr: all eigenpairs of the tridiagonal (d, e) by implicit QL/QR,
 // eigenvectors into z (work: 2n−2 reals).
 static int mg_zsteqr(int n, double *d, double *e, double complex *z, double *work) {
@@ -172,6 +195,7 @@ static int mg_zheevr(int vectors, int n, double complex *a, double *w,
 import "C"
 
 import (
+	"math"
 	"os"
 	"runtime"
 	"runtime/metrics"
@@ -187,13 +211,21 @@ const lapackLinked = true
 // back-transformation applies the reflectors, with a poll between blocks.
 const lapackBlockCols = 256
 
+// divideConquerMax: below this order the tridiagonal eigenpairs come from
+// zstedc (divide and conquer, as in zheevd), from it up from zstemr (as in
+// zheevr): zstedc at every size, measured faster (see the top of the
+// file). A variable for BenchmarkTridiagonalStage.
+var divideConquerMax = math.MaxInt
+
 // lapackWork is the LAPACK workspace of one Work and mode (values or
 // vectors), sized once by the stages' workspace queries: O(n) numbers
-// besides the n×n matrices the Work has anyway.
+// besides the n×n matrices the Work has anyway, and with eigenvectors
+// zstedc's 2n² reals.
 type lapackWork struct {
+	dc     bool         // tridiagonal eigenpairs by zstedc (else zstemr)
 	nb, kk int          // zhetrd's block size; columns kk… are reduced in panels
 	panel  []complex128 // zlatrd's n×nb update
-	rwork  []float64    // zstemr's workspace, then a copy of d and e
+	rwork  []float64    // zstedc's (or zstemr's) workspace, then a copy of d and e
 	iwork  []C.int
 	isuppz []C.int
 	work   []complex128 // zunmtr's workspace for a column block
@@ -201,6 +233,7 @@ type lapackWork struct {
 
 // lapackSizes are the lengths of a LAPACK workspace.
 type lapackSizes struct {
+	dc                                bool // zstedc (else zstemr)
 	nb, kk                            int
 	panel, rwork, iwork, isuppz, work int
 }
@@ -224,14 +257,17 @@ func queryLapackWork(n int, vectors bool) lapackSizes {
 	}
 	var rq, dummy [1]float64
 	var iq, idummy [2]C.int
-	var one [1]complex128
-	C.mg_zstemr(C.int(n), cd(dummy[:]), cd(dummy[:]), cd(dummy[:]), cz(one[:]), ci(idummy[:]), cd(rq[:]), -1, &iq[0], -1)
-	q.rwork = max(int(rq[0]), 1) + 2*n
+	var one, wq, dq [1]complex128
+	if q.dc = n < divideConquerMax; q.dc {
+		C.mg_zstedc(C.int(n), cd(dummy[:]), cd(dummy[:]), cz(one[:]), cz(dq[:]), -1, cd(rq[:]), -1, &iq[0], -1)
+	} else {
+		C.mg_zstemr(C.int(n), cd(dummy[:]), cd(dummy[:]), cd(dummy[:]), cz(one[:]), ci(idummy[:]), cd(rq[:]), -1, &iq[0], -1)
+		q.isuppz = 2 * n
+	}
+	q.rwork = max(int(rq[0]), 2*n) + 2*n
 	q.iwork = max(int(iq[0]), 1)
-	q.isuppz = 2 * n
-	var wq [1]complex128
 	C.mg_zunmtr(C.int(n), C.int(min(n, lapackBlockCols)), cz(one[:]), cz(one[:]), cz(one[:]), cz(wq[:]), -1, 1)
-	q.work = max(int(real(wq[0])), 1)
+	q.work = max(int(real(wq[0])), int(real(dq[0])), 1)
 	return q
 }
 
@@ -239,7 +275,7 @@ func queryLapackWork(n int, vectors bool) lapackSizes {
 func newLapackWork(n int, vectors bool) *lapackWork {
 	q := queryLapackWork(n, vectors)
 	return &lapackWork{
-		nb: q.nb, kk: q.kk,
+		dc: q.dc, nb: q.nb, kk: q.kk,
 		panel:  make([]complex128, q.panel),
 		rwork:  make([]float64, q.rwork),
 		iwork:  make([]C.int, q.iwork),
@@ -279,19 +315,22 @@ func ci(s []C.int) *C.int {
 }
 
 // lapackSolve diagonalises the matrix in w.a (lower triangle, row-major,
-// already scaled) into w.d (ascending) and, with vectors, the conjugated
-// eigenvectors into w.vecs, mode-major: the stages of LAPACK's zheevr
-// (Hermitian reduction to tridiagonal form, zhetrd; the tridiagonal's
-// eigenvalues by root-free QL, dsterf, or its eigenpairs by relatively
-// robust representations, zstemr, with implicit QL, zsteqr, should that
-// fail; the reflectors applied to the eigenvectors, zunmtr), called one
-// by one so that done is polled between zhetrd's panels and between
-// column blocks of the back-transformation.
+// already scaled; with vectors, conjugated) into w.d (ascending) and, with
+// vectors, the eigenvectors into w.vecs, mode-major: the stages of LAPACK's
+// zheevd (Hermitian reduction to tridiagonal form, zhetrd; the
+// tridiagonal's eigenvalues by root-free QL, dsterf, or its eigenpairs by
+// divide and conquer, zstedc, with implicit QL, zsteqr, should that fail;
+// the reflectors applied to the eigenvectors, zunmtr), called one by one
+// so that done is polled between zhetrd's panels and between column blocks
+// of the back-transformation.
 //
-// Row-major lower triangle of H is the column-major upper triangle of
-// conj(H) = Hᵀ: the eigenvalues are those of H, and each eigenvector u of
-// conj(H) is conj(x) for the eigenvector x of H; stored column-major, u_k
-// occupies [k*n, (k+1)*n), already mode-major.
+// The row-major lower triangle of a Hermitian matrix H is the
+// column-major upper triangle of conj(H) = Hᵀ, which has the eigenvalues of
+// H: so LAPACK is handed w.a as it is when only eigenvalues are asked. The
+// eigenvectors of conj(H) are the conjugates of H's, so with vectors Solve
+// conjugates the lower triangle first (in the pass that finds its largest
+// element): LAPACK then reads H itself, and its eigenvectors, stored
+// column-major, u_k in [k*n, (k+1)*n), are H's, already mode-major.
 func (w *Work) lapackSolve(vectors bool) Status {
 	lw := w.lapack[modeIndex(vectors)]
 	if lw == nil {
@@ -358,16 +397,22 @@ func (w *Work) reduceLAPACK(lw *lapackWork) bool {
 
 // tridiagonalPairs finds all eigenpairs of the tridiagonal (w.d, w.e):
 // eigenvalues into w.d, ascending, eigenvectors (real, as complex numbers)
-// into w.vecs, column-major. zstemr first, as zheevr; should it fail (it
-// may on rare tridiagonals: LAPACK's zheevr then falls back too), zsteqr
-// on a copy of the tridiagonal. False when both failed.
+// into w.vecs, column-major. zstedc (or zstemr, see divideConquerMax)
+// first; should it fail (never seen; LAPACK's drivers then stop, or for
+// zheevr fall back), zsteqr on a copy of the tridiagonal. False when both
+// failed.
 func (w *Work) tridiagonalPairs(lw *lapackWork) bool {
 	n := w.n
 	saved := lw.rwork[len(lw.rwork)-2*n:]
 	copy(saved[:n], w.d)
 	copy(saved[n:], w.e)
 	rwork := lw.rwork[:len(lw.rwork)-2*n]
-	if C.mg_zstemr(C.int(n), cd(w.d), cd(w.e), cd(w.vals), cz(w.vecs), ci(lw.isuppz),
+	if lw.dc {
+		if C.mg_zstedc(C.int(n), cd(w.d), cd(w.e), cz(w.vecs), cz(lw.work), C.int(len(lw.work)),
+			cd(rwork), C.int(len(rwork)), ci(lw.iwork), C.int(len(lw.iwork))) == 0 {
+			return true
+		}
+	} else if C.mg_zstemr(C.int(n), cd(w.d), cd(w.e), cd(w.vals), cz(w.vecs), ci(lw.isuppz),
 		cd(rwork), C.int(len(rwork)), ci(lw.iwork), C.int(len(lw.iwork))) == 0 {
 		copy(w.d, w.vals)
 		return true

@@ -196,3 +196,40 @@ func TestNoWideCallOnBusyCores(t *testing.T) {
 		t.Errorf("a call beside %d busy goroutines ran on %d threads; want 1", procs-1, w.threads)
 	}
 }
+
+// BenchmarkTridiagonalStage compares, with eigenvectors, the LAPACK path
+// with the tridiagonal eigenpairs by divide and conquer (zstedc, zheevd's
+// choice) and by relatively robust representations (zstemr, zheevr's), to
+// set divideConquerMax.
+func BenchmarkTridiagonalStage(b *testing.B) {
+	rng := rand.New(rand.NewPCG(1, 1))
+	for _, n := range []int{40, 64, 96, 128, 192, 256, 384, 768, 1536} {
+		h := randomHermitian(rng, n)
+		for _, dc := range []bool{true, false} {
+			name := "zstemr"
+			if dc {
+				name = "zstedc"
+			}
+			b.Run(fmt.Sprintf("n=%d/%s", n, name), func(b *testing.B) {
+				saved := divideConquerMax
+				defer func() { divideConquerMax = saved }()
+				divideConquerMax = 0
+				if dc {
+					divideConquerMax = n + 1
+				}
+				w := NewWork(n)
+				w.route = routeLAPACK
+				copy(w.a, h)
+				w.Solve(true)
+				cpu0 := cpuTime()
+				for b.Loop() {
+					copy(w.a, h)
+					if st := w.Solve(true); st != OK {
+						b.Fatalf("status %v", st)
+					}
+				}
+				b.ReportMetric(float64(cpuTime()-cpu0)/float64(b.N), "cpu-ns/op")
+			})
+		}
+	}
+}

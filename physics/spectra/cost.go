@@ -56,7 +56,26 @@ func DOSCost(s physics.GridSize, opt DOSOptions, samples int, reduced bool) phys
 			accs = int64(parallel.SliceCount(int(simplices), classChunk))
 		}
 	}
+	if opt.Method != Tetrahedron {
+		// modeAccumulate: one accumulator per slice of the orbits (the
+		// diagonalised points), each with an orbit's site shares and Φ
+		// on the samples; for a reduced grid the orbits (an int32 a
+		// point, two an orbit).
+		orbits := s.Points
+		if reduced && s.Irreducible > 0 {
+			orbits = min(s.Irreducible, s.Points)
+		}
+		accs = int64(parallel.SliceCount(orbits, modeChunk))
+		c.Bytes += accs * (8*int64(s.Modes())*ns + 8*acc)
+		if reduced {
+			c.Bytes += 4*int64(s.Points) + 8*int64(orbits) + 8
+		}
+	}
 	c.Bytes += accs*accBytes(acc, ns) + 8*acc*(1+ns) + 8*ns
+	placed := s.Points // points (tetrahedra) or orbits (Gaussian, histogram) placed
+	if opt.Method != Tetrahedron && reduced && s.Irreducible > 0 {
+		placed = min(s.Irreducible, s.Points)
+	}
 	c.Bytes += 24*S + 16*S*ns + 64*ns + 16<<10
 	// Samples a band spans inside one simplex: the band's range over the
 	// zone (at most the window) divided by the points per direction.
@@ -67,7 +86,8 @@ func DOSCost(s physics.GridSize, opt DOSOptions, samples int, reduced bool) phys
 	case Tetrahedron:
 		c.Flops = float64(simplices) * bands * (60 + span*(4+4*float64(ns)))
 	default:
-		c.Flops = float64(s.Points) * bands * (20 + span*(8+2*float64(ns)))
+		// Each orbit placed once, after its points' site shares are summed.
+		c.Flops = float64(placed)*bands*(20+span*(8+2*float64(ns))) + float64(s.Points)*bands*3*float64(ns)
 	}
 	return c
 }

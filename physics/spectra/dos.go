@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/blas/blas64"
+
 	"github.com/materials-lab/modegrid/physics"
 	"github.com/materials-lab/modegrid/physics/internal/parallel"
 	"github.com/materials-lab/modegrid/physics/mesh"
@@ -443,71 +445,87 @@ func defaultGaussianWidth(top float64, mesh [3]int, dim int) float64 {
 // modeAccumulate accumulates the Gaussian or histogram state counts of
 // every mode of g (frequencies times scale), all cores, one accumulator per
 // worker. Modes below the cut (imaginary ones, when excluded) are left out.
+//
+// The points of one orbit of g's symmetry reduction have the same
+// frequencies (unfold copies them) and site weights that are permutations
+// of one another, so each orbit is placed once: with the sum of its
+// points' weights and, per site, the sum of its points' weighted site
+// shares. The result is the per-point sum regrouped (equal up to
+// rounding); for a crystal with time reversal alone it halves the work.
+// A mode's per-site Gaussian is one rank-1 update of the samples it
+// reaches (gonum's Ger: the samples' Φ values times the site shares).
 func modeAccumulate(ctx context.Context, g *physics.GridModes, method DOSMethod, scale, width float64, grid cumGrid, sites, hasCut bool, cut float64) (*cumAcc, error) {
 	nm, ns := g.NModes, g.NSites
 	accNS := 0
 	if sites {
 		accNS = ns
 	}
-	npts := len(g.Points)
-	workers := parallel.SliceCount(npts, modeChunk)
+	orb := pointOrbits(g)
+	norb := orb.count()
+	workers := parallel.SliceCount(norb, modeChunk)
 	accs := make([]*cumAcc, workers)
+	// Per slice: the orbit's site shares (mode-major) and Φ on the samples
+	// a mode reaches.
+	shares, phis := make([][]float64, workers), make([][]float64, workers)
 	for w := range accs {
 		accs[w] = newCumAcc(grid, accNS, false, 0)
+		if sites {
+			shares[w] = make([]float64, nm*ns)
+		}
+		if method == Gaussian {
+			phis[w] = make([]float64, grid.n)
+		}
 	}
 	reach := gaussianCutoff * width
 	invSigma := 1 / width
-	err := parallel.Slices(ctx, npts, modeChunk, workers, func(worker, lo, hi int) {
-		a := accs[worker]
-		sw := a.sw[0]
-		for i := lo; i < hi; i++ {
-			w := g.Points[i].Weight
+	err := parallel.Slices(ctx, norb, modeChunk, workers, func(worker, lo, hi int) {
+		a, share, phi := accs[worker], shares[worker], phis[worker]
+		var one [1]int32
+		for o := lo; o < hi; o++ {
+			members := orb.members(o, &one)
+			first := int(members[0])
+			w := 0.0
+			for _, i := range members {
+				w += g.Points[i].Weight
+			}
+			if sites {
+				clear(share)
+				for _, i := range members {
+					orbitShares(share, g.SiteWeight[int(i)*nm*ns:(int(i)+1)*nm*ns], ns, g.Points[i].Weight)
+				}
+			}
 			for k := 0; k < nm; k++ {
-				nu := g.FreqTHz[i*nm+k] * scale
+				nu := g.FreqTHz[first*nm+k] * scale
 				if hasCut && nu < cut {
 					continue
 				}
+				var sw []float64
 				if sites {
-					src := g.SiteWeight[(i*nm+k)*ns : (i*nm+k)*ns+ns]
-					sum := 0.0
-					for _, x := range src {
-						sum += x
-					}
-					for s, x := range src {
-						sw[s] = 0
-						if sum > 0 {
-							sw[s] = w * x / sum
-						}
-					}
+					sw = share[k*ns : (k+1)*ns]
 				}
 				if method == Histogram {
 					j := grid.above(nu)
 					a.step[j] += w
 					if sites {
-						row := a.sstep[j*ns : j*ns+ns]
-						for s, x := range sw {
-							row[s] += x
-						}
+						addTo(a.sstep[j*ns:(j+1)*ns], sw)
 					}
 					continue
 				}
 				j0, j1 := grid.from(nu-reach), grid.from(nu+reach)
 				a.step[j1] += w
 				if sites {
-					row := a.sstep[j1*ns : j1*ns+ns]
-					for s, x := range sw {
-						row[s] += x
-					}
+					addTo(a.sstep[j1*ns:(j1+1)*ns], sw)
 				}
-				for j := j0; j < j1; j++ {
-					phi := normalCDF((grid.at(j) - nu) * invSigma)
-					a.val[j] += w * phi
-					if sites {
-						out := a.sval[j*ns : j*ns+ns]
-						for s, x := range sw {
-							out[s] += x * phi
-						}
-					}
+				if j1 <= j0 {
+					continue
+				}
+				p := phi[:j1-j0]
+				for j := range p {
+					p[j] = normalCDF((grid.at(j0+j) - nu) * invSigma)
+					a.val[j0+j] += w * p[j]
+				}
+				if sites {
+					addOuter(a.sval[j0*ns:j1*ns], p, sw)
 				}
 			}
 		}
@@ -519,6 +537,106 @@ func modeAccumulate(ctx context.Context, g *physics.GridModes, method DOSMethod,
 		accs[0].merge(b)
 	}
 	return accs[0], nil
+}
+
+// orbitShares adds weight × the site shares of every mode of one point to
+// dst (both mode-major, ns sites a mode): a mode's share of site s is its
+// site weight divided by the sum over its sites (all 0 if that is 0).
+func orbitShares(dst, siteWeight []float64, ns int, weight float64) {
+	for k := 0; k+ns <= len(siteWeight); k += ns {
+		src := siteWeight[k : k+ns]
+		sum := 0.0
+		for _, x := range src {
+			sum += x
+		}
+		if !(sum > 0) {
+			continue
+		}
+		f := weight / sum
+		d := dst[k : k+ns]
+		for s, x := range src {
+			d[s] += f * x
+		}
+	}
+}
+
+// addTo adds x to dst element by element.
+func addTo(dst, x []float64) {
+	dst = dst[:len(x)]
+	for s, v := range x {
+		dst[s] += v
+	}
+}
+
+// gerMinSites is the number of sites from which a mode's per-site update
+// goes through gonum's Ger (assembly on amd64, 3× the plain loop at 64
+// sites by BenchmarkAddOuter); below it the call's checks cost more than
+// they save.
+const gerMinSites = 8
+
+// addOuter adds the outer product p ⊗ x to the row-major len(p)×len(x)
+// block dst.
+func addOuter(dst, p, x []float64) {
+	ns := len(x)
+	if ns >= gerMinSites {
+		blas64.Ger(1, blas64.Vector{N: len(p), Data: p, Inc: 1}, blas64.Vector{N: ns, Data: x, Inc: 1},
+			blas64.General{Rows: len(p), Cols: ns, Stride: ns, Data: dst})
+		return
+	}
+	for j, f := range p {
+		row := dst[j*ns : (j+1)*ns]
+		for s, v := range x {
+			row[s] += v * f
+		}
+	}
+}
+
+// orbits lists the points of grid modes by orbit of their symmetry
+// reduction: orbit o is idx[start[o]:start[o+1]], ascending. With no
+// reduction every point is its own orbit (start and idx nil).
+type orbits struct {
+	n          int // points
+	start, idx []int32
+}
+
+// pointOrbits groups the points of g by the reduction's slot (a counting
+// sort of Slot).
+func pointOrbits(g *physics.GridModes) orbits {
+	ir := g.Reduction()
+	if ir == nil || len(ir.Slot) != len(g.Points) || len(ir.Irr) == len(g.Points) {
+		return orbits{n: len(g.Points)}
+	}
+	start := make([]int32, len(ir.Irr)+1)
+	for _, s := range ir.Slot {
+		start[s+1]++
+	}
+	for o := range ir.Irr {
+		start[o+1] += start[o]
+	}
+	idx := make([]int32, len(ir.Slot))
+	next := append([]int32(nil), start[:len(ir.Irr)]...)
+	for i, s := range ir.Slot {
+		idx[next[s]] = int32(i)
+		next[s]++
+	}
+	return orbits{n: len(g.Points), start: start, idx: idx}
+}
+
+// count is the number of orbits.
+func (o orbits) count() int {
+	if o.start == nil {
+		return o.n
+	}
+	return len(o.start) - 1
+}
+
+// members are the points of orbit k (in one, when the orbit is a point).
+func (o orbits) members(k int, one *[1]int32) []int32 {
+	if o.start == nil {
+		one[0] = int32(k)
+		return one[:]
+	}
+	return o.idx[o.start[k]:o.start[k+1]]
 }
 
 // cdfTable holds Φ(u) = ½ erfc(−u/√2) and φ(u) = Φ′(u) at u = −8 + i/cdfPerUnit,

@@ -535,3 +535,69 @@ func TestNormalCDF(t *testing.T) {
 		}
 	}
 }
+
+// axisTriple is a test crystal of three like atoms on the three axes of a
+// simple cubic cell, at (x,0,0), (0,x,0), (0,0,x): the six operations that
+// permute the axes map it onto itself and permute its sites, and no
+// operation fixing every q-point (a translation) or sending q to −q (an
+// inversion) does, so the points of an orbit have different site weights.
+const axisTriple = `{
+  "name": "axis-triple",
+  "lattice": [{"x": 4.0, "y": 0, "z": 0}, {"x": 0, "y": 4.0, "z": 0}, {"x": 0, "y": 0, "z": 4.0}],
+  "polarizations": 3,
+  "forceUnit": "FORCE_UNIT_EV_PER_A2",
+  "sites": [
+    {"label": "A", "massAmu": 30.0, "frac": [0.25, 0.0, 0.0]},
+    {"label": "A", "massAmu": 30.0, "frac": [0.0, 0.25, 0.0]},
+    {"label": "A", "massAmu": 30.0, "frac": [0.0, 0.0, 0.25]}
+  ],
+  "shells": [
+    {"fromLabel": "A", "toLabel": "A", "shell": 1, "kLong": 2.0, "kTrans": 0.3},
+    {"fromLabel": "A", "toLabel": "A", "shell": 2, "kLong": 1.0, "kTrans": 0.2},
+    {"fromLabel": "A", "toLabel": "A", "shell": 3, "kLong": 0.5, "kTrans": 0.1}
+  ]
+}`
+
+// TestOrbitSumsMatchEveryPoint: the Gaussian and histogram DOS place each
+// orbit of the symmetry reduction once, with its points' weights and site
+// shares summed (modeAccumulate). The result must be the sum over every
+// point of the grid: checked per site against the same DOS from modes
+// computed with NoSymmetry (every point diagonalised, no reduction), on a
+// crystal whose operations permute its sites (axisTriple; a wrong sum,
+// e.g. the first point's shares for the whole orbit, fails it) and on one
+// of two unlike sites (rock-salt-like).
+func TestOrbitSumsMatchEveryPoint(t *testing.T) {
+	for _, c := range []*physics.Crystal{testmodels.Decode(t, "axis-triple", []byte(axisTriple)), testmodels.Load(t, "rocksalt-like")} {
+		m := testmodels.Compile(t, c)
+		spec := mesh.GridSpec{Mesh: [3]int{6, 6, 6}}
+		reduced := testmodels.Modes(t, m, spec, physics.GridOptions{Projections: true})
+		every := testmodels.Modes(t, m, spec, physics.GridOptions{Projections: true, NoSymmetry: true})
+		orb := pointOrbits(reduced)
+		largest := 0
+		for o := range orb.count() {
+			var one [1]int32
+			largest = max(largest, len(orb.members(o, &one)))
+		}
+		if reduced.Reduction() == nil || largest < 6 || pointOrbits(every).count() != len(every.Points) {
+			t.Fatalf("%s: want a reduced grid with orbits of 6 points or more (largest %d) against one without", c.Name, largest)
+		}
+		for _, meth := range []DOSMethod{Gaussian, Histogram} {
+			opt := DOSOptions{Method: meth, PerSite: true, Min: 0, Max: 12, Step: 0.05, NegativeAxis: true}
+			if meth == Gaussian {
+				opt.Width = 0.2
+			}
+			a, b := mustDOS(t, m, reduced, opt), mustDOS(t, m, every, opt)
+			peak := slices.Max(b.DOS)
+			worst := 0.0
+			for i := range b.DOS {
+				worst = max(worst, math.Abs(a.DOS[i]-b.DOS[i]))
+				for s := range b.Sites {
+					worst = max(worst, math.Abs(a.Sites[s][i]-b.Sites[s][i]))
+				}
+			}
+			if worst > 1e-12*peak {
+				t.Errorf("%s %v: orbit sums differ from every point's by %.3g (peak %.3g)", c.Name, meth, worst, peak)
+			}
+		}
+	}
+}
