@@ -11,10 +11,12 @@ import (
 )
 
 // maxSupercellSites caps the primitive sites of a model given as a
-// supercell set: the sum-rule correction solves a dense 9n×9n system by
-// SVD (n³ work), about 0.1 s at 64 sites. The supercell's atoms count
+// supercell set: first-principles cells of up to 200 atoms and some
+// room. The fold's cost grows as n² (image search) and n·N (blocks), its
+// sum-rule correction as two n×n SVDs (n³, milliseconds at 256 sites);
+// admission counts all of it (foldCost). The supercell's atoms count
 // against the server's max sites (its N² blocks are a model of N sites).
-const maxSupercellSites = 64
+const maxSupercellSites = 256
 
 // foldSupercell returns c with its interactions replaced by the blocks
 // folded from the crystal's supercell force-constant set, if it has one

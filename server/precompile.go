@@ -215,8 +215,8 @@ func (s *Service) checkCompile(vs *violations, r rawModel) {
 	foldSecs := fold.Seconds(1)
 	if fold.Bytes > s.budget.total {
 		s.budget.refused.WithLabelValues(reasonMemoryNeverFits).Inc()
-		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites: a %d×%d sum-rule system) needs at least %s, over this server's memory budget %s (memory-budget); give fewer primitive sites",
-			r.fc.n, 9*r.fc.n, 9*r.fc.n, fmtBytes(fold.Bytes), fmtBytes(s.budget.total))
+		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: at least %d folded blocks and two %d×%d sum-rule systems) needs at least %s, over this server's memory budget %s (memory-budget); give fewer primitive sites or a smaller supercell",
+			r.fc.n, r.fc.atoms, r.fc.n*r.fc.atoms, r.fc.n, r.fc.n, fmtBytes(fold.Bytes), fmtBytes(s.budget.total))
 		return
 	}
 	if secs+foldSecs <= s.cfg.MaxComputeSeconds {
@@ -224,8 +224,8 @@ func (s *Service) checkCompile(vs *violations, r rawModel) {
 	}
 	s.budget.refused.WithLabelValues(reasonCompileTooLong).Inc()
 	if foldSecs >= secs {
-		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: image search and a %d×%d sum-rule SVD) takes at least %.3g floating-point operations, about %.3g s on 1 core%s, over this server's bound max-compute-seconds=%g; give fewer primitive sites or a smaller supercell",
-			r.fc.n, r.fc.atoms, 9*r.fc.n, 9*r.fc.n, fold.Flops, foldSecs, compileMore(secs), s.cfg.MaxComputeSeconds)
+		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: image search, accumulation and two %d×%d sum-rule SVDs) takes at least %.3g floating-point operations, about %.3g s on 1 core%s, over this server's bound max-compute-seconds=%g; give fewer primitive sites or a smaller supercell",
+			r.fc.n, r.fc.atoms, r.fc.n, r.fc.n, fold.Flops, foldSecs, compileMore(secs), s.cfg.MaxComputeSeconds)
 		return
 	}
 	vs.Add("model.crystal.shells", "compiling the model searches at least %.3g site pairs for its neighbour shells, at least %.0f s, over this server's bound max-compute-seconds=%g; ask for nearer shells (shell), fewer sites, or give the bonds as springs",

@@ -72,11 +72,13 @@ func (s fcShape) foldedInteractions() int { return (s.n*s.atoms + 1) / 2 }
 //     fractional difference, d; its Cartesian form, 3d; the length, 4);
 //   - accumulation: every one of the rows·N blocks is added, 9 numbers
 //     with a weight, at least 18 operations;
-//   - the sum-rule solve: the dense m×m system, m = 9n, factorised by SVD
-//     (gonum, single-threaded); its Householder bidiagonalisation alone
-//     is 8m³/3 operations (Golub & Van Loan, Matrix Computations, 4th ed.,
-//     §5.4.8: 4mn² − 4n³/3 for m×n), and the matrix, U and V of the thin
-//     SVD are three m×m arrays of float64: 24·m² bytes;
+//   - the sum-rule solve: two dense n×n systems (the symmetric and
+//     antisymmetric parts; fcimport's imposeSumRule), each factorised by
+//     SVD (gonum, single-threaded); the Householder bidiagonalisation
+//     alone is 8n³/3 operations each (Golub & Van Loan, Matrix
+//     Computations, 4th ed., §5.4.8: 4mn² − 4n³/3 for m×n), and the
+//     matrix, U and V of each thin SVD are three n×n arrays of float64:
+//     48·n² bytes for both;
 //   - the folded blocks themselves: n·N of at least 9 float64, 72·n·N bytes;
 //   - with symmetrisation, the invariance measured before and after and
 //     the group average, three passes over the n·N blocks for each of
@@ -95,9 +97,9 @@ func (s fcShape) foldCost() physics.Cost {
 	ops := float64(s.d)
 	search := float64(s.n*s.n*s.det) * per * (ops*ops + 4*ops + 4)
 	accumulate := 18 * float64(s.rows) * float64(s.atoms)
-	m := 9 * float64(s.n)
-	svd := 8 * m * m * m / 3
-	bytes := 24*int64(m)*int64(m) + 72*int64(s.n)*int64(s.atoms)
+	m := float64(s.n)
+	svd := 2 * 8 * m * m * m / 3
+	bytes := 48*int64(s.n)*int64(s.n) + 72*int64(s.n)*int64(s.atoms)
 	var sym float64
 	if s.sym {
 		sym = 3 * float64(s.n*s.atoms) * (54 + ops*ops + 2*ops)

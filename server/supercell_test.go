@@ -3,6 +3,7 @@ package server
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 	"testing"
 
@@ -201,14 +202,14 @@ func chainSet(n int) *modegridv1.Crystal {
 }
 
 // TestSupercellFoldAdmission: through real gRPC with max-compute-seconds
-// 0.01, the diatomic chain's 3-cell set (a 18×18 sum-rule system) computes;
-// a 32-site set, whose sum-rule SVD alone is at least 8·288³/3 = 6.370e7
-// operations (with the image search, 32²·5·9, and the accumulation,
-// 18·32², 6.377e7: 0.064 s at the server's rate), is refused before anything
-// runs: no computation counted, not even the compile, and the refusal
-// names the set, its work and the bound.
+// 1e-4, the diatomic chain's 3-cell set computes; a 32-site set, whose
+// fold is at least 2.39e5 operations (the image search, 32²·5·9 = 46 080;
+// the accumulation, 18·32² = 18 432; the sum-rule correction's two 32×32
+// SVDs, 2·8·32³/3 = 174 763: 0.00024 s at the server's rate), is refused
+// before anything runs: no computation counted, not even the compile, and
+// the refusal names the set, its work and the bound.
 func TestSupercellFoldAdmission(t *testing.T) {
-	ts := startServer(t, Config{MaxComputeSeconds: 0.01})
+	ts := startServer(t, Config{MaxComputeSeconds: 1e-4})
 	reg := ts.srv.Registry()
 	got, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.25)})
 	if err != nil || len(allPoints(got)) != 1 {
@@ -218,7 +219,7 @@ func TestSupercellFoldAdmission(t *testing.T) {
 	q0 := metric(t, reg, "modegrid_qpoints_diagonalized_total", nil)
 	_, err = collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
 	desc := badFields(t, err)["model.crystal.supercell_fc"]
-	for _, w := range []string{"288×288", "6.38e+07", "max-compute-seconds=0.01"} {
+	for _, w := range []string{"two 32×32", "2.39e+05", "max-compute-seconds=0.0001"} {
 		if !strings.Contains(desc, w) {
 			t.Errorf("model.crystal.supercell_fc: %q does not say %q", desc, w)
 		}
@@ -266,16 +267,17 @@ func TestFoldedInteractionsBound(t *testing.T) {
 	}
 }
 
-// TestSupercellFoldMemory: a 32-site set's fold needs at least
-// 24·288² + 72·32² = 2,064,384 bytes (the SVD's three 288×288 arrays and
-// the folded blocks); on a 1 MiB memory budget it is refused before any
-// computation, naming the set and the budget.
+// TestSupercellFoldMemory: a 128-site set's fold needs at least
+// 72·128² + 48·128² = 1,966,080 bytes (its 128² folded blocks and the
+// sum-rule correction's two SVDs of 128×128, three arrays each); on a
+// 1 MiB memory budget it is refused before any computation, naming the set
+// and the budget.
 func TestSupercellFoldMemory(t *testing.T) {
 	ts := startServer(t, Config{MemoryBudget: 1 << 20})
 	reg := ts.srv.Registry()
-	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(128)), Qpoints: qlist(0.25)})
 	desc := badFields(t, err)["model.crystal.supercell_fc"]
-	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "288×288") {
+	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "1.9 MiB") || !strings.Contains(desc, "two 128×128") {
 		t.Errorf("model.crystal.supercell_fc: %q; want the sum-rule system and the memory budget named", desc)
 	}
 	if n := metricSum(t, reg, "modegrid_computations_total"); n != 0 {
@@ -283,5 +285,47 @@ func TestSupercellFoldMemory(t *testing.T) {
 	}
 	if n := metric(t, reg, "modegrid_admission_refused_total", map[string]string{"reason": reasonMemoryNeverFits}); n != 1 {
 		t.Errorf("memory_never_fits refusals = %v; want 1", n)
+	}
+}
+
+// TestSupercellSiteCap: first-principles cells reach 200 atoms. A chain of
+// 200 sites given as a supercell set (its own cell, nearest-neighbour
+// constants 2 eV/Å², 30 amu) folds and computes through real gRPC, and its
+// 200 frequencies at q = 0.25 are those of the monatomic chain at the 200
+// wavevectors k = (q + m)/200 the big cell folds onto Γ…q,
+// ν = 2√(K/M)|sin(πk)| (Kittel, Introduction to Solid State Physics,
+// ch. 4), to 1e-9 relative. A set of maxSupercellSites + 1 sites is
+// refused on its sites, naming the cap.
+func TestSupercellSiteCap(t *testing.T) {
+	ts := startServer(t, Config{})
+	const n, q = 200, 0.25
+	got, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(n)), Qpoints: qlist(q)})
+	if err != nil {
+		t.Fatalf("a %d-site set: %v", n, err)
+	}
+	freqs := allPoints(got)[0].GetFrequencies()
+	var want []float64
+	for m := range n {
+		want = append(want, 2*math.Sqrt(2.0/30)*math.Abs(math.Sin(math.Pi*(q+float64(m))/n))*physics.NuUnitTHz)
+	}
+	slices.Sort(want)
+	if len(freqs) != n {
+		t.Fatalf("%d frequencies; want %d", len(freqs), n)
+	}
+	for m := range want {
+		if math.Abs(freqs[m]-want[m]) > 1e-9*want[n-1] {
+			t.Fatalf("mode %d: %.12g THz; want %.12g", m, freqs[m], want[m])
+		}
+	}
+	var vs violations
+	if _, err := NewService().resolve(testContext(t), inline(chainSet(maxSupercellSites+1)), &vs); err != nil {
+		t.Fatal(err)
+	}
+	found := false
+	for _, v := range vs.List() {
+		found = found || strings.HasSuffix(v.Field, "sites") && strings.Contains(v.Description, fmt.Sprint("cap of ", maxSupercellSites))
+	}
+	if !found {
+		t.Errorf("violations %v; want the sites named with the cap of %d", vs.List(), maxSupercellSites)
 	}
 }

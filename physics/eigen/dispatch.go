@@ -16,12 +16,15 @@ import (
 // faster at 56, LAPACK 1.2× at 80) and at 40 with eigenvectors (165
 // against 167 µs; LAPACK 1.2× faster at 48). From wideMin[mode] up a call
 // with no other LAPACK call in flight may use idle cores (lapack_cgo.go):
-// on two cores that gained 11 % at n = 384 for eigenvalues and 6 % at
-// n = 192 with eigenvectors for twice the CPU time, 1.6× and 1.5× at
-// n = 768. Index 0: eigenvalues only, 1: with eigenvectors.
+// on two cores, one call alone (BenchmarkLAPACKCrossover, best of 3, wall
+// time against one thread), eigenvalues gained 5 % at n = 96, 6 % at 128,
+// 9 % at 192, 5–6 % at 256 and 384; with eigenvectors threads lost 10–18 %
+// at 96 and 128 and gained 6 % at 192, 15 % at 256, 8 % at 384 (1.5× at
+// 768), for about twice the CPU time. Index 0: eigenvalues only, 1: with
+// eigenvectors.
 var (
 	lapackMin = [2]int{64, 40}
-	wideMin   = [2]int{384, 384}
+	wideMin   = [2]int{96, 192}
 )
 
 // route forces one path regardless of size (tests and benchmarks).
