@@ -21,11 +21,13 @@ endif
 
 all: build
 
-# modegridd as the image builds it (lapack tag when OpenBLAS links here);
-# the CLI pure Go, a single static file to hand out.
+# modegridd as the image builds it (lapack tag when OpenBLAS links here),
+# and the CLI alike, so that its embedded server computes as fast as the
+# image; `make build OPENBLAS=no` gives pure-Go binaries, the CLI then a
+# single static file to hand out.
 build:
 	$(GO) build $(DAEMON_FLAGS) -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegridd ./server/cmd/modegridd
-	$(GO) build -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegrid ./client/cmd/modegrid
+	$(GO) build $(DAEMON_FLAGS) -trimpath -ldflags '$(LDFLAGS)' -o $(BIN)/modegrid ./client/cmd/modegrid
 
 # Everything: generated code fresh, buf lint, go vet, gofmt, a short fuzz
 # of every fuzz target, race tests; the engine's tests again in the lapack

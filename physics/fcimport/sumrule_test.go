@@ -1,6 +1,8 @@
 package fcimport
 
 import (
+	"fmt"
+	"maps"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -60,32 +62,7 @@ func TestSumRuleDecoupled(t *testing.T) {
 	rng := rand.New(rand.NewPCG(16, 9))
 	for trial := range 60 {
 		nsites := 1 + trial%12
-		fc := map[key][9]float64{}
-		for range 4 * nsites {
-			s, u := rng.IntN(nsites), rng.IntN(nsites)
-			r := [3]int{rng.IntN(5) - 2, rng.IntN(5) - 2, rng.IntN(3) - 1}
-			var b [9]float64
-			for x := range b {
-				b[x] = 2*rng.Float64() - 1
-			}
-			fc[key{s, u, r}] = b
-			fc[key{u, s, neg(r)}] = transpose(b)
-		}
-		for s := range nsites { // every site's on-site block, as every fold has
-			k := key{s, s, [3]int{}}
-			b := fc[k]
-			fc[k] = b
-		}
-		// Symmetrise an on-site block written twice above (s = u, R = 0).
-		for k, b := range fc {
-			if k.s == k.t && k.r == [3]int{} {
-				p := transpose(b)
-				for x := range b {
-					b[x] = (b[x] + p[x]) / 2
-				}
-				fc[k] = b
-			}
-		}
+		fc := randomSet(rng, nsites)
 		whole := map[key][9]float64{}
 		for k, b := range fc {
 			whole[k] = b
@@ -105,6 +82,62 @@ func TestSumRuleDecoupled(t *testing.T) {
 		}
 		if v := sumRuleViolation(fc, nsites); v > 1e-12 {
 			t.Errorf("trial %d: sum rule %.3g after the correction", trial, v)
+		}
+	}
+}
+
+// randomSet is a random permutation-symmetric folded set of nsites sites
+// with about 4·nsites pairs and every on-site block (TestSumRuleDecoupled's
+// sets, for the benchmark).
+func randomSet(rng *rand.Rand, nsites int) map[key][9]float64 {
+	fc := map[key][9]float64{}
+	for range 4 * nsites {
+		s, u := rng.IntN(nsites), rng.IntN(nsites)
+		r := [3]int{rng.IntN(5) - 2, rng.IntN(5) - 2, rng.IntN(3) - 1}
+		var b [9]float64
+		for x := range b {
+			b[x] = 2*rng.Float64() - 1
+		}
+		fc[key{s, u, r}] = b
+		fc[key{u, s, neg(r)}] = transpose(b)
+	}
+	for s := range nsites {
+		k := key{s, s, [3]int{}}
+		b := fc[k]
+		p := transpose(b)
+		for x := range b {
+			b[x] = (b[x] + p[x]) / 2
+		}
+		fc[k] = b
+	}
+	return fc
+}
+
+// BenchmarkSumRule: the sum-rule correction of a random set of n sites,
+// decoupled (two n×n SVDs, what the fold does) and whole (one 9n×9n SVD,
+// the form before; only up to 128 sites, 1152×1152).
+func BenchmarkSumRule(b *testing.B) {
+	for _, n := range []int{16, 64, 128, 200} {
+		set := randomSet(rand.New(rand.NewPCG(uint64(n), 1)), n)
+		for _, whole := range []bool{false, true} {
+			if whole && n > 128 {
+				continue
+			}
+			name := "decoupled"
+			if whole {
+				name = "whole"
+			}
+			b.Run(fmt.Sprintf("sites=%d/%s", n, name), func(b *testing.B) {
+				t := &testing.T{}
+				for b.Loop() {
+					fc := maps.Clone(set)
+					if whole {
+						imposeSumRuleWhole(t, fc, n)
+					} else if err := imposeSumRule(fc, n); err != nil {
+						b.Fatal(err)
+					}
+				}
+			})
 		}
 	}
 }

@@ -237,7 +237,10 @@ func connect(addr string, opts ...client.Option) (*client.Client, func(), error)
 		}
 		return c, func() { c.Close() }, nil
 	}
-	srv, err := server.New(server.Config{MetricsListen: "off"})
+	// The embedded server serves this process alone: its work bound is
+	// the command's own deadline (callTimeout) rather than a shared
+	// server's default, so a local job the estimate puts within it runs.
+	srv, err := server.New(server.Config{MetricsListen: "off", MaxComputeSeconds: callTimeout.Seconds()})
 	if err != nil {
 		return nil, nil, fmt.Errorf("start embedded server: %w", err)
 	}
@@ -266,7 +269,10 @@ func connect(addr string, opts ...client.Option) (*client.Client, func(), error)
 	}, nil
 }
 
-// callContext bounds a command's calls; long jobs are still far inside it.
+// callTimeout bounds a command's calls; long jobs are still far inside it.
+const callTimeout = 30 * time.Minute
+
+// callContext bounds a command's calls by callTimeout.
 func callContext() (context.Context, context.CancelFunc) {
-	return context.WithTimeout(context.Background(), 30*time.Minute)
+	return context.WithTimeout(context.Background(), callTimeout)
 }

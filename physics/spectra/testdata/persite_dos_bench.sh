@@ -11,7 +11,7 @@
 #   RUNS="64:12" CORES="1" ... .sh                             # a subset
 #
 # A job that the CLI's embedded server refuses by its work bound (its
-# estimate at 1 GFlop/s per core over max-compute-seconds, 300 s) runs
+# estimate at 1 GFlop/s per core over the command's 30-minute deadline) runs
 # through a modegridd on the same cores with the bound raised, the CLI
 # calling it (--server); the row says so and its maxrss is the server's.
 #
