@@ -109,7 +109,7 @@ func reportLatency(b *testing.B, lat []time.Duration) {
 // alike; overhead-% is the server's extra time relative to the direct call
 // (target < 5 %).
 func BenchmarkColdDos48(b *testing.B) {
-	e, err := compileEntry(context.Background(), inline(example(b, "fcc")), nil, physics.Limits{})
+	e, err := compileEntry(context.Background(), inline(example(b, "fcc")), nil, physics.Limits{}, 0)
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -192,7 +192,7 @@ func checkUploadHash(t *testing.T, in uploadInput, hash string) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	e, err := compileEntry(context.Background(), norm, raw, physics.Limits{MaxSites: fuzzConfig.MaxSites})
+	e, err := compileEntry(context.Background(), norm, raw, physics.Limits{MaxSites: fuzzConfig.MaxSites}, 0)
 	if err != nil {
 		t.Fatalf("an uploaded model does not compile inline: %v", err)
 	}

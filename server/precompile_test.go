@@ -124,7 +124,7 @@ func TestPrecompileBoundIsBelowTheEstimate(t *testing.T) {
 		if !ok {
 			t.Fatalf("%s: not read", c.GetName())
 		}
-		e, err := compileEntry(context.Background(), src, nil, physics.Limits{})
+		e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
 		if err != nil {
 			t.Fatalf("%s: %v", c.GetName(), err)
 		}

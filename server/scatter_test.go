@@ -274,7 +274,7 @@ func TestScatteringBoundIsBelowTheEstimate(t *testing.T) {
 		if !ok {
 			t.Fatalf("%s: not read", c.GetName())
 		}
-		e, err := compileEntry(context.Background(), src, nil, physics.Limits{})
+		e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
 		if err != nil {
 			t.Fatalf("%s: %v", c.GetName(), err)
 		}

@@ -112,7 +112,7 @@ var modelCodec = &cache.Codec{
 		if err := proto.Unmarshal(b, &src); err != nil {
 			return nil, 0, err
 		}
-		e, err := compileEntry(ctx, &src, b, physics.Limits{})
+		e, err := compileEntry(ctx, &src, b, physics.Limits{}, 0)
 		if err != nil {
 			return nil, 0, err
 		}
@@ -121,15 +121,18 @@ var modelCodec = &cache.Codec{
 }
 
 // compileEntry compiles an inline model. raw is its deterministic
-// serialisation. It stops with ctx.Err() when ctx ends first.
+// serialisation. maxSymFlops bounds the symmetrisation of a supercell set,
+// whose cost is known only once its space group is found (0: no bound;
+// fcimport.Options.MaxSymmetrizeFlops). It stops with ctx.Err() when ctx
+// ends first.
 // With symmetrize set, the crystal is first made exactly symmetric
 // (physics.Symmetrize; a supercell set by its fold, fcimport.FoldModel)
 // and the entry is that model.
-func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits) (*modelEntry, error) {
+func compileEntry(ctx context.Context, src *modegridv1.ModelSource, raw []byte, lim physics.Limits, maxSymFlops float64) (*modelEntry, error) {
 	opt := physics.Options{EnforceSumRule: src.GetEnforceSumRule(), Limits: lim, SymTolA: src.GetSymmetryToleranceA(),
 		EnforceChargeNeutrality: src.GetEnforceChargeNeutrality(), LongRange: polar.Builder()}
 	c, fold, err := foldSupercell(ctx, src.GetCrystal(), crystalFromProto(src.GetCrystal()), lim.MaxSites,
-		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA, Limits: lim}, src.GetEnforceChargeNeutrality())
+		fcimport.Options{Symmetrize: src.GetSymmetrize(), SymTolA: opt.SymTolA, Limits: lim, MaxSymmetrizeFlops: maxSymFlops}, src.GetEnforceChargeNeutrality())
 	if err != nil {
 		return nil, err
 	}
@@ -219,7 +222,7 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 		var e *modelEntry
 		err := s.run(ctx, kindCompile, func(ctx context.Context) error {
 			var err error
-			e, err = compileEntry(ctx, norm, raw, physics.Limits{MaxSites: s.cfg.MaxSites})
+			e, err = compileEntry(ctx, norm, raw, physics.Limits{MaxSites: s.cfg.MaxSites}, s.cfg.MaxComputeSeconds*physics.FlopsPerCoreSecond)
 			return err
 		})
 		if err != nil {

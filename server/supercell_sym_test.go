@@ -3,11 +3,13 @@ package server
 import (
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/fcimport"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -248,5 +250,46 @@ func TestFoldCostSymmetrize(t *testing.T) {
 	}
 	if d := sym.Bytes - plain.Bytes; d != 7776 {
 		t.Errorf("symmetrisation adds %v bytes, want 7776", d)
+	}
+}
+
+// TestSymmetrizeWorkBound: the symmetrisation's cost is known only once
+// the space group is found; the fold then compares it with the server's
+// bound before any pass over the blocks. The rocksalt-like set (48
+// operations: 1 translation × 48 rotations) folds into 2·54 = 108 blocks at
+// least (each primitive site against each supercell atom), so symmetrising
+// it is at least fcimport.SymmetrizeFlops(108, 1, 48) = 1.058e7 operations
+// (0.0106 s at 1 GFlop/s); its pre-compile lower bound is far below
+// (TestFoldCostSymmetrize).
+// On a server bounded at 0.005 s the set computes unsymmetrised and is
+// refused symmetrised, naming the operations; on the default bound it
+// symmetrises.
+func TestSymmetrizeWorkBound(t *testing.T) {
+	c, _ := rocksaltFCSet(t)
+	src := func(sym bool) *modegridv1.ModelSource {
+		return &modegridv1.ModelSource{Source: &modegridv1.ModelSource_Crystal{Crystal: c}, Symmetrize: sym}
+	}
+	tight := startServer(t, Config{MaxComputeSeconds: 0.005})
+	if _, err := tight.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: src(false)}); err != nil {
+		t.Fatalf("unsymmetrised on the tight bound: %v", err)
+	}
+	_, err := collectModes(testContext(t), tight.api, &modegridv1.ComputeModesRequest{Model: src(true), Qpoints: qlist(0)})
+	desc := badFields(t, err)["model.crystal.supercell_fc"]
+	for _, w := range []string{"48 operations", "1 translations × 48 rotations", "over the bound of 5e+06"} {
+		if !strings.Contains(desc, w) {
+			t.Errorf("model.crystal.supercell_fc: %q does not say %q", desc, w)
+		}
+	}
+	chk, err := tight.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: src(true)})
+	if err != nil || chk.GetValid() || len(chk.GetViolations()) != 1 || chk.GetViolations()[0].GetField() != "supercell_fc" {
+		t.Errorf("CheckModel on the tight bound: %v, valid %v, violations %v; want invalid on supercell_fc (paths relative to the crystal)", err, chk.GetValid(), chk.GetViolations())
+	}
+	if f := fcimport.SymmetrizeFlops(108, 1, 48); f != 4*108*49*500 {
+		t.Errorf("SymmetrizeFlops(108, 1, 48) = %g; want 4 passes × 108 blocks × 49 operations × 500", f)
+	}
+	roomy := startServer(t, Config{})
+	r, err := roomy.api.CheckModel(testContext(t), &modegridv1.CheckModelRequest{Model: src(true)})
+	if err != nil || r.GetSupercellFold().GetOperations() != 48 {
+		t.Errorf("symmetrised on the default bound: %v, %d operations", err, r.GetSupercellFold().GetOperations())
 	}
 }

@@ -3,6 +3,7 @@ package fcimport
 import (
 	"context"
 	"errors"
+	"maps"
 	"math"
 	"math/rand/v2"
 	"strings"
@@ -331,6 +332,111 @@ func TestSymmetrizeNearlySymmetricCell(t *testing.T) {
 		}
 		if tc.opt.Symmetrize && (rep.Operations != 48 || rep.InvarianceAfter > 1e-13) {
 			t.Errorf("%s: %d operations, invariance %g after: want 48, rounding", name, rep.Operations, rep.InvarianceAfter)
+		}
+	}
+}
+
+// TestFactorisedGroupAverage: the group average computed as the average
+// over the pure translations followed by one operation per rotation
+// (groupAverage) equals the average over every operation (averageOver the
+// whole group) to rounding, on a random set of blocks of the 4-site cubic
+// cell of an fcc crystal (192 operations: 4 translations × 48 rotations);
+// the support closed in two steps (closeUnderGroup) is the support closed
+// under every operation; the factorised invariance is 0 only for an
+// invariant set and never above the invariance over every operation.
+func TestFactorisedGroupAverage(t *testing.T) {
+	c := fccConventional()
+	ops, err := spaceGroup(context.Background(), c, physics.DefaultSymTolA)
+	if err != nil {
+		t.Fatal(err)
+	}
+	trans, reps := factorGroup(ops)
+	if len(ops) != 192 || len(trans) != 4 || len(reps) != 48 {
+		t.Fatalf("%d operations, %d translations, %d rotations; want 192, 4, 48", len(ops), len(trans), len(reps))
+	}
+	rng := rand.New(rand.NewPCG(4, 48))
+	fc := map[key][9]float64{}
+	for range 40 {
+		var b [9]float64
+		for x := range b {
+			b[x] = 2*rng.Float64() - 1
+		}
+		fc[key{rng.IntN(4), rng.IntN(4), [3]int{rng.IntN(3) - 1, rng.IntN(3) - 1, rng.IntN(3) - 1}}] = b
+	}
+	whole := maps.Clone(fc)
+	ctx := context.Background()
+	if err := closeUnderGroup(ctx, fc, ops, 3); err != nil {
+		t.Fatal(err)
+	}
+	if err := closeUnder(ctx, whole, ops, 3); err != nil {
+		t.Fatal(err)
+	}
+	if len(fc) != len(whole) {
+		t.Fatalf("support closed in two steps has %d blocks, under every operation %d", len(fc), len(whole))
+	}
+	for k := range whole {
+		if _, ok := fc[k]; !ok {
+			t.Fatalf("block %v missing from the support closed in two steps", k)
+		}
+	}
+	direct, err := averageOver(ctx, whole, ops, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fact, err := groupAverage(ctx, fc, ops, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	worst := 0.0
+	for k, b := range direct {
+		for x := range b {
+			worst = math.Max(worst, math.Abs(b[x]-fact[k][x]))
+		}
+	}
+	if worst > 1e-13 || len(direct) != len(fact) {
+		t.Errorf("factorised average differs from the direct one by %.3g (%d against %d blocks)", worst, len(fact), len(direct))
+	}
+	allOps := func(m map[key][9]float64) float64 {
+		var v float64
+		for k, phi := range m {
+			for x := range ops {
+				rot := rotate(&ops[x].cart, &phi)
+				img := m[ops[x].image(k, 3)]
+				for a := range rot {
+					v = math.Max(v, math.Abs(rot[a]-img[a]))
+				}
+			}
+		}
+		return v
+	}
+	before, err := invariance(ctx, fc, ops, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	after, err := invariance(ctx, fact, ops, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if before < 0.1 || before > allOps(fc) || after > 1e-13 || allOps(fact) > 1e-13 {
+		t.Errorf("invariance before %.3g (over every operation %.3g), after %.3g (%.3g); want before of order 1 and at most the full one, after rounding", before, allOps(fc), after, allOps(fact))
+	}
+}
+
+// TestNotAGroupAnywhere: leaving any one operation out of a group with
+// translations (the fcc crystal's 4-site cubic cell, 192 operations) is
+// found by the generator-based closure check, and the whole group passes.
+func TestNotAGroupAnywhere(t *testing.T) {
+	ops, err := spaceGroup(context.Background(), fccConventional(), physics.DefaultSymTolA)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := closed(context.Background(), ops, 3); err != nil {
+		t.Fatalf("the whole group: %v", err)
+	}
+	for _, x := range []int{0, 1, 3, 4, 50, 100, 191} {
+		rest := append(append([]symOp(nil), ops[:x]...), ops[x+1:]...)
+		if err := closed(context.Background(), rest, 3); err == nil || !strings.Contains(err.Error(), "do not form a group") {
+			t.Errorf("operation %d left out: err = %v; want not a group", x, err)
 		}
 	}
 }

@@ -3716,9 +3716,12 @@ type SupercellFold struct {
 	// (ModelSource.symmetrize); 0 when it was not symmetrised.
 	Operations uint32 `protobuf:"varint,8,opt,name=operations,proto3" json:"operations,omitempty"`
 	// Largest violation of invariance under those operations before the
-	// average, max |C Φ(k) Cᵀ − Φ(g·k)| over the operations g (Cartesian
-	// rotation C) and the folded blocks k (g·k the block k is carried to), of
-	// the folded set as given, eV/Å²; 0 when not symmetrised.
+	// average, max |C Φ(k) Cᵀ − Φ(g·k)| over the folded blocks k (g·k the
+	// block k is carried to) and the operations g (Cartesian rotation C)
+	// that generate the group as products of one of each: its pure lattice
+	// translations and one operation per rotation (0 exactly when the set is
+	// invariant under every operation); of the folded set as given, eV/Å²; 0
+	// when not symmetrised.
 	InvarianceBeforeEvPerA2 float64 `protobuf:"fixed64,9,opt,name=invariance_before_ev_per_a2,json=invarianceBeforeEvPerA2,proto3" json:"invariance_before_ev_per_a2,omitempty"`
 	// The same of the final set (after every correction), eV/Å².
 	InvarianceAfterEvPerA2 float64 `protobuf:"fixed64,10,opt,name=invariance_after_ev_per_a2,json=invarianceAfterEvPerA2,proto3" json:"invariance_after_ev_per_a2,omitempty"`
