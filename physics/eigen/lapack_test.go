@@ -112,19 +112,7 @@ func BenchmarkLAPACKCrossover(b *testing.B) {
 					saved, savedL2 := wideMin, wideLevel2
 					defer func() { wideMin, wideLevel2 = saved, savedL2 }()
 					wideMin, wideLevel2 = [2]int{c.wide, c.wide}, c.level2
-					w := NewWork(n)
-					w.route = c.route
-					copy(w.a, h)
-					w.Solve(vectors)
-					cpu0 := cpuTime()
-					for b.Loop() {
-						copy(w.a, h)
-						if st := w.Solve(vectors); st != OK {
-							b.Fatalf("status %v", st)
-						}
-					}
-					b.ReportMetric(float64(cpuTime()-cpu0)/float64(b.N), "cpu-ns/op")
-					sinkVals = w.vals
+					benchSolves(b, h, n, c.route, vectors)
 				})
 			}
 		}
@@ -217,18 +205,7 @@ func BenchmarkTridiagonalStage(b *testing.B) {
 				if dc {
 					divideConquerMax = n + 1
 				}
-				w := NewWork(n)
-				w.route = routeLAPACK
-				copy(w.a, h)
-				w.Solve(true)
-				cpu0 := cpuTime()
-				for b.Loop() {
-					copy(w.a, h)
-					if st := w.Solve(true); st != OK {
-						b.Fatalf("status %v", st)
-					}
-				}
-				b.ReportMetric(float64(cpuTime()-cpu0)/float64(b.N), "cpu-ns/op")
+				benchSolves(b, h, n, routeLAPACK, true)
 			})
 		}
 	}
