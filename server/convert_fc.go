@@ -14,9 +14,17 @@ import (
 // supercell set: first-principles cells of up to 200 atoms and some
 // room. The fold's cost grows as n² (image search) and n·N (blocks), its
 // sum-rule correction as two n×n SVDs (n³, milliseconds at 256 sites);
-// admission counts all of it (foldCost). The supercell's atoms count
-// against the server's max sites (its N² blocks are a model of N sites).
+// admission counts all of it (foldCost). The supercell's atoms have a cap
+// of their own (supercellAtomsPerSite).
 const maxSupercellSites = 256
+
+// supercellAtomsPerSite scales the server's max sites into the cap on a
+// set's supercell atoms: the atoms are not sites of the folded model (it
+// has the primitive cell's), they size the input and the fold, which the
+// message and upload caps and the fold's admission (foldCost) bound; so a
+// 2×2×2 supercell of a cell as large as the largest model is taken (a
+// 200-atom cell's set has 1 600 atoms).
+const supercellAtomsPerSite = 8
 
 // foldSupercell returns c with its interactions replaced by the blocks
 // folded from the crystal's supercell force-constant set, if it has one
@@ -39,8 +47,8 @@ func foldSupercell(ctx context.Context, cr *modegridv1.Crystal, c *physics.Cryst
 	if len(cr.GetSprings())+len(cr.GetShells())+len(cr.GetBlocks()) > 0 {
 		vs.Add("supercell_fc", "a model has either a supercell force-constant set or springs/shells/blocks, not both")
 	}
-	if maxSites > 0 && len(fc.GetAtoms()) > maxSites {
-		vs.Add("supercell_fc.atoms", "%d atoms exceed the server's max sites %d", len(fc.GetAtoms()), maxSites)
+	if maxSites > 0 && len(fc.GetAtoms()) > supercellAtomsPerSite*maxSites {
+		vs.Add("supercell_fc.atoms", "%d atoms exceed the cap of %d (%d × the server's max sites %d)", len(fc.GetAtoms()), supercellAtomsPerSite*maxSites, supercellAtomsPerSite, maxSites)
 	}
 	if len(cr.GetSites()) > maxSupercellSites {
 		vs.Add("sites", "%d sites exceed the cap of %d for a model given as a supercell set", len(cr.GetSites()), maxSupercellSites)

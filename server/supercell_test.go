@@ -112,13 +112,21 @@ func TestSupercellRefused(t *testing.T) {
 	}
 }
 
-// TestSupercellCap: a set with more atoms than the server's max sites is
-// refused, naming the field and the cap.
+// TestSupercellCap: a set's supercell atoms are capped at 8 × the server's
+// max sites (a 2×2×2 supercell of the largest model): the rock-salt set of
+// 54 atoms (2 sites) is refused on a server of max sites 4 (cap 32),
+// naming the field and the cap, and computes on one of max sites 8 (cap
+// 64), where its 2-site model is well within the sites cap.
 func TestSupercellCap(t *testing.T) {
+	c, _ := rocksaltFCSet(t)
 	ts := startServer(t, Config{MaxSites: 4})
-	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(diatomicSupercell(t)), Qpoints: qlist(0.1)})
-	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "max sites 4") {
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(c), Qpoints: qlist(0.1)})
+	if st := status.Convert(err); st.Code() != codes.InvalidArgument || !strings.Contains(st.Message(), "supercell_fc.atoms") || !strings.Contains(st.Message(), "cap of 32 (8 × the server's max sites 4)") {
 		t.Fatalf("err = %v, want INVALID_ARGUMENT naming supercell_fc.atoms and the cap", err)
+	}
+	roomy := startServer(t, Config{MaxSites: 8})
+	if _, err := collectModes(testContext(t), roomy.api, &modegridv1.ComputeModesRequest{Model: inline(c), Qpoints: qlist(0.1)}); err != nil {
+		t.Errorf("54 atoms on a server of max sites 8: %v", err)
 	}
 }
 
