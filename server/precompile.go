@@ -215,7 +215,7 @@ func (s *Service) checkCompile(vs *violations, r rawModel) {
 	foldSecs := fold.Seconds(1)
 	if fold.Bytes > s.budget.total {
 		s.budget.refused.WithLabelValues(reasonMemoryNeverFits).Inc()
-		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: at least %d folded blocks and two %d×%d sum-rule systems) needs at least %s, over this server's memory budget %s (memory-budget); give fewer primitive sites or a smaller supercell",
+		vs.Add("model.crystal.supercell_fc", "folding the supercell set (%d sites, %d atoms: at least %d folded blocks and two %d×%d sum-rule systems) needs about %s, over this server's memory budget %s (memory-budget); give fewer primitive sites or a smaller supercell",
 			r.fc.n, r.fc.atoms, r.fc.n*r.fc.atoms, r.fc.n, r.fc.n, fmtBytes(fold.Bytes), fmtBytes(s.budget.total))
 		return
 	}

@@ -9,6 +9,7 @@ package server
 
 import (
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/fcimport"
 	modegridv1 "github.com/materials-lab/modegrid/proto/modegrid/v1"
 )
 
@@ -63,7 +64,10 @@ func intDet(m []int32, d int) int {
 // them, each block and its transposed partner once: at least ⌈n·N/2⌉.
 func (s fcShape) foldedInteractions() int { return (s.n*s.atoms + 1) / 2 }
 
-// foldCost is a lower bound of the fold's own work and memory:
+// foldCost is a lower bound of the fold's own work and an estimate of its
+// memory (fcimport.FoldBytes: measured allocation per pair block, with and
+// without symmetrisation, the bound tested against it; the same figure is
+// reserved from the budget while a set is folded). The work:
 //
 //   - image search: the nearest images are searched once per class
 //     (s, t, offset modulo the supercell), n²·|det M| classes, each trying
@@ -76,16 +80,13 @@ func (s fcShape) foldedInteractions() int { return (s.n*s.atoms + 1) / 2 }
 //     antisymmetric parts; fcimport's imposeSumRule), each factorised by
 //     SVD (gonum, single-threaded); the Householder bidiagonalisation
 //     alone is 8n³/3 operations each (Golub & Van Loan, Matrix
-//     Computations, 4th ed., §5.4.8: 4mn² − 4n³/3 for m×n), and the
-//     matrix, U and V of each thin SVD are three n×n arrays of float64:
-//     48·n² bytes for both;
-//   - the folded blocks themselves: n·N of at least 9 float64, 72·n·N bytes;
+//     Computations, 4th ed., §5.4.8: 4mn² − 4n³/3 for m×n);
 //   - with symmetrisation, the invariance measured before and after and
 //     the group average, three passes over the n·N blocks for each of
 //     |G| ≥ 1 operations (the identity at least: the group is not known
-//     before the search), each C Φ Cᵀ at least 54 multiply-adds and its
-//     image key d² + 2d; the average is written to a second map of the
-//     blocks, 72·n·N bytes more.
+//     before the search; once it is, the fold prices the passes itself,
+//     fcimport.Options.MaxSymmetrizeFlops), each C Φ Cᵀ at least 54
+//     multiply-adds and its image key d² + 2d.
 //
 // The work is turned into time like every estimate (physics.Cost.Seconds)
 // on one core, since none of the fold runs in parallel.
@@ -99,11 +100,10 @@ func (s fcShape) foldCost() physics.Cost {
 	accumulate := 18 * float64(s.rows) * float64(s.atoms)
 	m := float64(s.n)
 	svd := 2 * 8 * m * m * m / 3
-	bytes := 48*int64(s.n)*int64(s.n) + 72*int64(s.n)*int64(s.atoms)
+	bytes := fcimport.FoldBytes(s.n, s.atoms, s.sym)
 	var sym float64
 	if s.sym {
 		sym = 3 * float64(s.n*s.atoms) * (54 + ops*ops + 2*ops)
-		bytes += 72 * int64(s.n) * int64(s.atoms)
 	}
 	return physics.Cost{Bytes: bytes, Flops: search + accumulate + svd + sym}
 }

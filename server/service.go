@@ -219,6 +219,15 @@ func (s *Service) resolveInline(ctx context.Context, src *modegridv1.ModelSource
 	// caller's deadline never cancels it for the others, and a compile
 	// nobody waits for stops at once.
 	v, from, err := s.cache.Do(ctx, key, nil, func(ctx context.Context) (any, int64, error) {
+		// A supercell set's fold holds maps of its n·N pair blocks: its
+		// estimate is taken from the memory budget while it runs.
+		if fs, ok := fcShapeOf(norm.GetCrystal()); ok {
+			release, err := s.budget.reserve(ctx, fcimport.FoldBytes(fs.n, fs.atoms, norm.GetSymmetrize()))
+			if err != nil {
+				return nil, 0, err
+			}
+			defer release()
+		}
 		var e *modelEntry
 		err := s.run(ctx, kindCompile, func(ctx context.Context) error {
 			var err error

@@ -1,15 +1,18 @@
 package server
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"slices"
 	"strings"
+	"sync/atomic"
 	"testing"
 
 	"google.golang.org/protobuf/proto"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/fcimport"
 
 	"google.golang.org/genproto/googleapis/rpc/errdetails"
 	"google.golang.org/grpc/codes"
@@ -275,17 +278,17 @@ func TestFoldedInteractionsBound(t *testing.T) {
 	}
 }
 
-// TestSupercellFoldMemory: a 128-site set's fold needs at least
-// 72·128² + 48·128² = 1,966,080 bytes (its 128² folded blocks and the
-// sum-rule correction's two SVDs of 128×128, three arrays each); on a
-// 1 MiB memory budget it is refused before any computation, naming the set
-// and the budget.
+// TestSupercellFoldMemory: a 32-site set's fold is estimated at
+// fcimport.FoldBytes(32, 32, false) = 3 kB × 32² pair blocks + 48·32² +
+// 256 kB = 3 457 024 bytes (3.3 MiB; the figure tested against the fold's
+// allocation in fcimport); on a 1 MiB memory budget it is refused before
+// any computation, naming the set and the budget.
 func TestSupercellFoldMemory(t *testing.T) {
 	ts := startServer(t, Config{MemoryBudget: 1 << 20})
 	reg := ts.srv.Registry()
-	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(128)), Qpoints: qlist(0.25)})
+	_, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(chainSet(32)), Qpoints: qlist(0.25)})
 	desc := badFields(t, err)["model.crystal.supercell_fc"]
-	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "1.9 MiB") || !strings.Contains(desc, "two 128×128") {
+	if !strings.Contains(desc, "memory budget") || !strings.Contains(desc, "about 3.3 MiB") || !strings.Contains(desc, "two 32×32") {
 		t.Errorf("model.crystal.supercell_fc: %q; want the sum-rule system and the memory budget named", desc)
 	}
 	if n := metricSum(t, reg, "modegrid_computations_total"); n != 0 {
@@ -335,5 +338,29 @@ func TestSupercellSiteCap(t *testing.T) {
 	}
 	if !found {
 		t.Errorf("violations %v; want the sites named with the cap of %d", vs.List(), maxSupercellSites)
+	}
+}
+
+// TestFoldReservesMemory: while a supercell set is folded and compiled,
+// its fold estimate (fcimport.FoldBytes) is held from the server's memory
+// budget: seen from the compile's start (the test hook) as the budget in
+// use, and returned afterwards.
+func TestFoldReservesMemory(t *testing.T) {
+	var seen atomic.Int64
+	var ts *testServer
+	ts = startServer(t, Config{}, serverOpts{hook: func(_ context.Context, kind string) {
+		if kind == kindCompile {
+			seen.Store(ts.srv.svc.budget.inUse.Load())
+		}
+	}})
+	c := chainSet(12)
+	if _, err := collectModes(testContext(t), ts.api, &modegridv1.ComputeModesRequest{Model: inline(c), Qpoints: qlist(0.25)}); err != nil {
+		t.Fatal(err)
+	}
+	if want := fcimport.FoldBytes(12, 12, false); seen.Load() < want {
+		t.Errorf("budget in use during the fold: %d B; want at least the fold's %d B", seen.Load(), want)
+	}
+	if n := ts.srv.svc.budget.inUse.Load(); n != 0 {
+		t.Errorf("budget in use after the call: %d B; want 0", n)
 	}
 }

@@ -76,6 +76,21 @@ type Options struct {
 	MaxSymmetrizeFlops float64
 }
 
+// FoldBytes estimates what FoldModel allocates for a set of n primitive
+// sites and atoms supercell atoms (n·atoms pair blocks), with or without
+// symmetrisation: the pair maps, the image memo, the folded and corrected
+// maps, the sorted keys, the two n×n SVDs and the model's blocks. Measured
+// (TestFoldBytes; allocated bytes, which the service counts as held):
+// about 2–2.8 kB a pair block as folded, 3–5.6 kB symmetrised, plus
+// fixed buffers; the figures here are above every measurement.
+func FoldBytes(n, atoms int, sym bool) int64 {
+	per, fixed := int64(3<<10), int64(256<<10)
+	if sym {
+		per, fixed = 6656, int64(512<<10)
+	}
+	return per*int64(n)*int64(atoms) + 48*int64(n)*int64(n) + fixed
+}
+
 // symPassFlops is the work charged per block and operation of one pass
 // of the symmetrisation (the image key, C Φ Cᵀ and a map access, about
 // 330 ns measured on this project's machine for 10⁴–10⁵ blocks, so
@@ -246,6 +261,7 @@ type geometry struct {
 	tol       float64
 	shared    int
 	memo      map[imageKey][][3]int // images by pair class
+	cands     []imageCand           // searchImages' buffer
 }
 
 // newGeometry checks the set's shape and prepares the lattices.

@@ -130,18 +130,17 @@ func (g *geometry) images(i, j atomMap) (imageKey, [][3]int) {
 }
 
 // searchImages tries every supercell translation K in
-// [−searchRange, searchRange]^d added to base and keeps the nearest.
+// [−searchRange, searchRange]^d added to base and keeps the nearest. The
+// candidates go into a buffer of the geometry, reused from call to call
+// (the search runs once per pair class, up to n²·|det M| times: a slice a
+// call was most of a large fold's allocation).
 func (g *geometry) searchImages(si, sj int, base [3]int) [][3]int {
-	type cand struct {
-		r [3]int
-		d float64
-	}
-	var cs []cand
 	lo, hi := [3]int{}, [3]int{}
 	for c := 0; c < g.d; c++ {
 		lo[c], hi[c] = -searchRange, searchRange
 	}
-	df := make([]float64, g.d)
+	cs := g.cands[:0]
+	var df [3]float64
 	for k0 := lo[0]; k0 <= hi[0]; k0++ {
 		for k1 := lo[1]; k1 <= hi[1]; k1++ {
 			for k2 := lo[2]; k2 <= hi[2]; k2++ {
@@ -155,22 +154,35 @@ func (g *geometry) searchImages(si, sj int, base [3]int) [][3]int {
 				for c := 0; c < g.d; c++ {
 					df[c] = g.frac[sj][c] + float64(r[c]) - g.frac[si][c]
 				}
-				x := g.cart(df)
-				cs = append(cs, cand{r, math.Sqrt(dot(x, x))})
+				x := g.cart(df[:g.d])
+				cs = append(cs, imageCand{r, math.Sqrt(dot(x, x))})
 			}
 		}
 	}
+	g.cands = cs
 	dmin := math.Inf(1)
 	for _, c := range cs {
 		dmin = math.Min(dmin, c.d)
 	}
-	var out [][3]int
+	n := 0
+	for _, c := range cs {
+		if c.d <= dmin+g.tol {
+			n++
+		}
+	}
+	out := make([][3]int, 0, n)
 	for _, c := range cs {
 		if c.d <= dmin+g.tol {
 			out = append(out, c.r)
 		}
 	}
 	return out
+}
+
+// imageCand is a candidate image of a pair: its cell offset and length.
+type imageCand struct {
+	r [3]int
+	d float64
 }
 
 func neg(r [3]int) [3]int { return [3]int{-r[0], -r[1], -r[2]} }
