@@ -216,12 +216,19 @@ func symmetricCell(ctx context.Context, c *physics.Crystal, tolA float64) ([]sym
 // correct imposes permutation symmetry, the sum rule and (with ops)
 // invariance under the operations on fc, in place, and reports each.
 func (g *geometry) correct(ctx context.Context, fc map[key][9]float64, ops []symOp, rep *Report) error {
-	var err error
+	var idx *indexedSet
 	if len(ops) > 0 {
-		if rep.InvarianceBefore, err = invariance(ctx, fc, ops, g.d); err != nil {
+		// The support closed first (zero blocks at missing images, which
+		// the invariance counts as zero anyway), then indexed once.
+		if err := closeUnderGroup(ctx, fc, ops, g.d); err != nil {
 			return err
 		}
-		if err := closeUnderGroup(ctx, fc, ops, g.d); err != nil {
+		var err error
+		if idx, err = newIndexedSet(ctx, fc, ops, g.d); err != nil {
+			return err
+		}
+		idx.load(fc)
+		if rep.InvarianceBefore, err = idx.invariance(ctx); err != nil {
 			return err
 		}
 	}
@@ -230,18 +237,17 @@ func (g *geometry) correct(ctx context.Context, fc map[key][9]float64, ops []sym
 	if err := imposeSumRule(fc, g.nsites); err != nil {
 		return err
 	}
-	if len(ops) > 0 {
-		avg, err := groupAverage(ctx, fc, ops, g.d)
-		if err != nil {
+	if idx != nil {
+		idx.load(fc)
+		if err := idx.average(ctx); err != nil {
 			return err
 		}
-		clear(fc)
-		for k, b := range avg {
-			fc[k] = b
-		}
+		idx.store(fc)
 		permute(fc)
 		rep.Operations = len(ops)
-		if rep.InvarianceAfter, err = invariance(ctx, fc, ops, g.d); err != nil {
+		idx.load(fc)
+		var err error
+		if rep.InvarianceAfter, err = idx.invariance(ctx); err != nil {
 			return err
 		}
 	}

@@ -2,6 +2,7 @@ package fcimport
 
 import (
 	"context"
+	"fmt"
 	"math"
 )
 
@@ -121,63 +122,106 @@ func closeUnder(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) 
 	return nil
 }
 
-// groupAverage returns the average of fc over the group ops (fc's support
-// must be closed under it): over its translations, then over one
-// operation per rotation. It returns ctx.Err() if ctx ends first.
-func groupAverage(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (map[key][9]float64, error) {
-	trans, reps := factorGroup(ops)
-	avg, err := averageOver(ctx, fc, trans, d)
-	if err != nil {
-		return nil, err
-	}
-	return averageOver(ctx, avg, reps, d)
+// The invariance of a set is max |C_g Φ(k) C_gᵀ − Φ(g·k)| over the
+// group's translations and one operation per rotation (every operation is
+// a product of one of each, so it is 0 exactly when the set is invariant
+// under all of them) and the blocks k (indexedSet.invariance).
+
+// indexedSet is a folded set whose support is closed under a group, its
+// blocks in key order with, for each of the group's generating operations
+// (its translations, then one operation per rotation; factorGroup), the
+// index of every block's image: the passes of the symmetrisation then
+// read and write arrays instead of looking every image up in the map
+// (about 330 ns a block and operation with the map).
+type indexedSet struct {
+	keys   []key
+	vals   [][9]float64
+	gens   []symOp
+	ntrans int
+	img    [][]int32 // img[x][i]: index of gens[x]·keys[i]
 }
 
-// averageOver returns (1/|ops|) Σ_g C_g Φ(g⁻¹·k) C_gᵀ, every block pushed
-// to its images.
-func averageOver(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (map[key][9]float64, error) {
-	out := make(map[key][9]float64, len(fc))
-	w := 1 / float64(len(ops))
-	for _, k := range sortedKeys(fc) {
+// newIndexedSet indexes fc, whose support must be closed under ops
+// (closeUnderGroup). It returns ctx.Err() if ctx ends first.
+func newIndexedSet(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (*indexedSet, error) {
+	trans, reps := factorGroup(ops)
+	s := &indexedSet{keys: sortedKeys(fc), gens: append(append([]symOp(nil), trans...), reps...), ntrans: len(trans)}
+	index := make(map[key]int32, len(s.keys))
+	for i, k := range s.keys {
+		index[k] = int32(i)
+	}
+	s.vals = make([][9]float64, len(s.keys))
+	s.img = make([][]int32, len(s.gens))
+	for x := range s.gens {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		phi := fc[k]
-		for x := range ops {
-			ik := ops[x].image(k, d)
-			rot := rotate(&ops[x].cart, &phi)
-			b := out[ik]
-			for a := range b {
-				b[a] += w * rot[a]
+		row := make([]int32, len(s.keys))
+		for i, k := range s.keys {
+			j, ok := index[s.gens[x].image(k, d)]
+			if !ok {
+				return nil, fmt.Errorf("fcimport: internal: the support is not closed under the group (block %v)", k)
 			}
-			out[ik] = b
+			row[i] = j
 		}
+		s.img[x] = row
 	}
-	return out, nil
+	return s, nil
 }
 
-// invariance is max |C_g Φ(k) C_gᵀ − Φ(g·k)| over the group's translations
-// and one operation per rotation (every operation is a product of one of
-// each, so it is 0 exactly when fc is invariant under all of them) and the
-// keys of fc (a missing image counts as zero). It returns ctx.Err() if ctx
-// ends first.
-func invariance(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (float64, error) {
-	trans, reps := factorGroup(ops)
+// load reads the blocks of fc into s.vals; store writes them back.
+func (s *indexedSet) load(fc map[key][9]float64) {
+	for i, k := range s.keys {
+		s.vals[i] = fc[k]
+	}
+}
+
+func (s *indexedSet) store(fc map[key][9]float64) {
+	for i, k := range s.keys {
+		fc[k] = s.vals[i]
+	}
+}
+
+// invariance is the set's invariance (above) on the loaded blocks.
+func (s *indexedSet) invariance(ctx context.Context) (float64, error) {
 	var v float64
-	for _, k := range sortedKeys(fc) {
+	for x := range s.gens {
 		if err := ctx.Err(); err != nil {
 			return 0, err
 		}
-		phi := fc[k]
-		for _, part := range [][]symOp{trans, reps} {
-			for x := range part {
-				rot := rotate(&part[x].cart, &phi)
-				img := fc[part[x].image(k, d)]
-				for a := range rot {
-					v = math.Max(v, math.Abs(rot[a]-img[a]))
-				}
+		c, img := &s.gens[x].cart, s.img[x]
+		for i := range s.vals {
+			rot := rotate(c, &s.vals[i])
+			im := &s.vals[img[i]]
+			for a := range rot {
+				v = math.Max(v, math.Abs(rot[a]-im[a]))
 			}
 		}
 	}
 	return v, nil
+}
+
+// average replaces the loaded blocks by their group average: over the
+// translations, then over one operation per rotation (the factorisation
+// at the top of this file).
+func (s *indexedSet) average(ctx context.Context) error {
+	for _, part := range [][2]int{{0, s.ntrans}, {s.ntrans, len(s.gens)}} {
+		out := make([][9]float64, len(s.vals))
+		w := 1 / float64(part[1]-part[0])
+		for x := part[0]; x < part[1]; x++ {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			c, img := &s.gens[x].cart, s.img[x]
+			for i := range s.vals {
+				rot := rotate(c, &s.vals[i])
+				b := &out[img[i]]
+				for a := range b {
+					b[a] += w * rot[a]
+				}
+			}
+		}
+		s.vals = out
+	}
+	return nil
 }

@@ -337,9 +337,9 @@ func TestSymmetrizeNearlySymmetricCell(t *testing.T) {
 }
 
 // TestFactorisedGroupAverage: the group average computed as the average
-// over the pure translations followed by one operation per rotation
-// (groupAverage) equals the average over every operation (averageOver the
-// whole group) to rounding, on a random set of blocks of the 4-site cubic
+// over the pure translations followed by one operation per rotation, on
+// the indexed set (indexedSet.average), equals the average over every
+// operation (averageOver the whole group) to rounding, on a random set of blocks of the 4-site cubic
 // cell of an fcc crystal (192 operations: 4 translations × 48 rotations);
 // the support closed in two steps (closeUnderGroup) is the support closed
 // under every operation; the factorised invariance is 0 only for an
@@ -383,7 +383,21 @@ func TestFactorisedGroupAverage(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	fact, err := groupAverage(ctx, fc, ops, 3)
+	idx, err := newIndexedSet(ctx, fc, ops, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	idx.load(fc)
+	before, err := idx.invariance(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := idx.average(ctx); err != nil {
+		t.Fatal(err)
+	}
+	fact := maps.Clone(fc)
+	idx.store(fact)
+	after, err := idx.invariance(ctx)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -409,14 +423,6 @@ func TestFactorisedGroupAverage(t *testing.T) {
 		}
 		return v
 	}
-	before, err := invariance(ctx, fc, ops, 3)
-	if err != nil {
-		t.Fatal(err)
-	}
-	after, err := invariance(ctx, fact, ops, 3)
-	if err != nil {
-		t.Fatal(err)
-	}
 	if before < 0.1 || before > allOps(fc) || after > 1e-13 || allOps(fact) > 1e-13 {
 		t.Errorf("invariance before %.3g (over every operation %.3g), after %.3g (%.3g); want before of order 1 and at most the full one, after rounding", before, allOps(fc), after, allOps(fact))
 	}
@@ -439,4 +445,28 @@ func TestNotAGroupAnywhere(t *testing.T) {
 			t.Errorf("operation %d left out: err = %v; want not a group", x, err)
 		}
 	}
+}
+
+// averageOver returns (1/|ops|) Σ_g C_g Φ(g⁻¹·k) C_gᵀ, every block pushed
+// to its images, over the operations given: the direct average, which
+// TestFactorisedGroupAverage compares the indexed one with.
+func averageOver(ctx context.Context, fc map[key][9]float64, ops []symOp, d int) (map[key][9]float64, error) {
+	out := make(map[key][9]float64, len(fc))
+	w := 1 / float64(len(ops))
+	for _, k := range sortedKeys(fc) {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		phi := fc[k]
+		for x := range ops {
+			ik := ops[x].image(k, d)
+			rot := rotate(&ops[x].cart, &phi)
+			b := out[ik]
+			for a := range b {
+				b[a] += w * rot[a]
+			}
+			out[ik] = b
+		}
+	}
+	return out, nil
 }
