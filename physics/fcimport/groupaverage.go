@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"math"
+
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // The average of a folded set over the space group.
@@ -81,7 +83,7 @@ func rotate(c *[3][3]float64, phi *[9]float64) [9]float64 {
 func factorGroup(ops []symOp) (trans, reps []symOp) {
 	seen := map[[3][3]int]bool{}
 	for _, op := range ops {
-		if op.rot == ([3][3]int{{1, 0, 0}, {0, 1, 0}, {0, 0, 1}}) {
+		if op.rot == lattice.Identity() {
 			trans = append(trans, op)
 		}
 		if !seen[op.rot] {
@@ -182,7 +184,9 @@ func (s *indexedSet) store(fc map[key][9]float64) {
 	}
 }
 
-// invariance is the set's invariance (above) on the loaded blocks.
+// invariance is the set's invariance (above) on the loaded blocks. A pure
+// translation does not rotate a block (its C is the identity exactly:
+// spaceGroup), so its blocks are compared as they are.
 func (s *indexedSet) invariance(ctx context.Context) (float64, error) {
 	var v float64
 	for x := range s.gens {
@@ -191,10 +195,17 @@ func (s *indexedSet) invariance(ctx context.Context) (float64, error) {
 		}
 		c, img := &s.gens[x].cart, s.img[x]
 		for i := range s.vals {
-			rot := rotate(c, &s.vals[i])
+			rot := &s.vals[i]
+			var r [9]float64
+			if x >= s.ntrans {
+				r = rotate(c, rot)
+				rot = &r
+			}
 			im := &s.vals[img[i]]
 			for a := range rot {
-				v = math.Max(v, math.Abs(rot[a]-im[a]))
+				if d := math.Abs(rot[a] - im[a]); d > v {
+					v = d
+				}
 			}
 		}
 	}
@@ -214,7 +225,10 @@ func (s *indexedSet) average(ctx context.Context) error {
 			}
 			c, img := &s.gens[x].cart, s.img[x]
 			for i := range s.vals {
-				rot := rotate(c, &s.vals[i])
+				rot := s.vals[i]
+				if x >= s.ntrans {
+					rot = rotate(c, &rot)
+				}
 				b := &out[img[i]]
 				for a := range b {
 					b[a] += w * rot[a]

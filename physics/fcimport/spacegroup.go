@@ -49,6 +49,11 @@ func spaceGroup(ctx context.Context, c *physics.Crystal, tolA float64) ([]symOp,
 			return nil, err
 		}
 		cart := cartesian(lat, recip, d, r)
+		if r == lattice.Identity() {
+			// A pure translation rotates nothing: exactly the identity,
+			// not its rounded Cartesian form.
+			cart = [3][3]float64{{1, 0, 0}, {0, 1, 0}, {0, 0, 1}}
+		}
 		if mixesPolarizations(cart, c.P(), polTol) {
 			continue
 		}
