@@ -10,9 +10,11 @@
 //     Debian/Ubuntu libopenblas-dev to build, libopenblas0 to run), matrices
 //     from a crossover size up (dispatch.go: 64 modes for eigenvalues only,
 //     40 with eigenvectors, measured) go to LAPACK instead: the stages of
-//     zheevr called one by one (lapack_cgo.go). This is the build the
-//     container image ships; DEVELOPERS.md ("Measured: eigensolver size
-//     ladder") has the figures. Backend reports which build this is.
+//     its Hermitian drivers (zhetrd, then dsterf or zstedc, then zunmtr)
+//     called one by one (lapack_cgo.go). This is the build the container
+//     image and `make build` ship; DEVELOPERS.md ("Measured: eigensolver
+//     size ladder") has the figures. Backend reports which build this is;
+//     WorkScale, how cost estimates count its solves.
 //
 // Conventions:
 //   - Matrices are n×n, row-major, []complex128 of length n*n; only the
