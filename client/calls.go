@@ -169,7 +169,11 @@ func (c *Client) StreamModes(ctx context.Context, req *modegridv1.ComputeModesRe
 		switch {
 		case delivered == 0 && s.fallback(err):
 			continue
-		case resumes < c.maxResends && (errors.Is(err, errEmptyStream) || broken(ctx, err, answered(hdr, trl) || delivered > 0)):
+		case errors.Is(err, errEmptyStream):
+			// Not resent: gRPC has already retried the call (see
+			// errEmptyStream).
+			return err
+		case resumes < c.maxResends && broken(ctx, err, answered(hdr, trl) || delivered > 0):
 			resumes++
 			continue
 		case delivered > 0 && s.fallback(err):
@@ -187,10 +191,14 @@ func (e fnError) Error() string { return e.err.Error() }
 
 // errEmptyStream: a stream that ended cleanly before its first message.
 // The server sends at least one message (the model hash) on every
-// successful stream, so this is never an empty result: it was seen in CI
-// after retries were exhausted and across a server's graceful stop, and is
-// resent like a broken stream (the computation is pure), then reported as
-// UNAVAILABLE.
+// successful stream, so this is never an empty result: it is reported as
+// UNAVAILABLE at once. It was seen across a server's graceful stop and, 1
+// run in 100 under the race detector, when gRPC's retries of a stream
+// refused with a trailers-only UNAVAILABLE were exhausted: the last
+// attempt's Recv returned io.EOF, trailers holding only the content type.
+// It used to be resent like a broken stream, which repeated the whole
+// retry sequence (the server saw 6 attempts of a 3-attempt limit); gRPC
+// has retried by then, so it is not resent.
 var errEmptyStream = status.Error(codes.Unavailable, "modegrid client: the stream ended before its first message")
 
 // streamOnce runs one attempt of a ComputeModes stream, skipping points

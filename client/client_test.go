@@ -523,3 +523,26 @@ func TestAffinityReportsTheCallsOwnViolations(t *testing.T) {
 		t.Errorf("violations %v; want model.symmetry_tolerance_a and the q-point", fields)
 	}
 }
+
+// TestEmptyStreamUnavailable: a modes stream that the server ends cleanly
+// before its first message (the real service always sends the model hash
+// first) is never an empty success: the client reports UNAVAILABLE at once
+// and does not send the call again.
+func TestEmptyStreamUnavailable(t *testing.T) {
+	var attempts atomic.Int32
+	addr, _ := startServer(t, "", grpc.ChainStreamInterceptor(func(srv any, ss grpc.ServerStream, info *grpc.StreamServerInfo, h grpc.StreamHandler) error {
+		if isModegrid(info.FullMethod) {
+			attempts.Add(1)
+			return nil
+		}
+		return h(srv, ss)
+	}))
+	c := dial(t, addr, client.WithMaxAttempts(3))
+	_, err := c.Modes(testContext(t), &modegridv1.ComputeModesRequest{Model: client.Inline(example(t, "chain")), Qpoints: client.QList([3]float64{0.5, 0, 0})})
+	if status.Code(err) != codes.Unavailable || !strings.Contains(err.Error(), "before its first message") {
+		t.Errorf("err = %v; want UNAVAILABLE saying the stream ended before its first message", err)
+	}
+	if n := attempts.Load(); n != 1 {
+		t.Errorf("server saw %d attempts; want 1", n)
+	}
+}
