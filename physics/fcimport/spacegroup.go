@@ -253,10 +253,8 @@ func closed(ctx context.Context, ops []symOp, d int) error {
 			continue
 		}
 		gens = append(gens, x)
-		if !in[x] {
-			in[x] = true
-			elems = append(elems, x)
-		}
+		in[x] = true
+		elems = append(elems, x)
 		// Every element times every generator, the new ones included as
 		// they are found (elems grows while it is walked).
 		for i := 0; i < len(elems); i++ {
