@@ -41,8 +41,8 @@ type Set struct {
 // over the pure translations of the Operations used to symmetrise and one
 // operation per rotation (every operation is a product of one of each, so
 // it is 0 exactly when the set is invariant under all; groupaverage.go)
-// (before: of the folded set as given; both zero without symmetrisation). The after values are
-// those of the final set.
+// (before: of the folded set as given; both zero without symmetrisation).
+// The after values are those of the final set.
 type Report struct {
 	PermutationBefore, PermutationAfter float64
 	SumRuleBefore, SumRuleAfter         float64
