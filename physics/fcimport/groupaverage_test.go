@@ -6,10 +6,13 @@ import (
 	"maps"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
+	"github.com/materials-lab/modegrid/physics/internal/testmodels"
+	"github.com/materials-lab/modegrid/physics/lattice"
 )
 
 // withSprings adds a central-force spring (kl along, kt across the bond,
@@ -469,4 +472,102 @@ func averageOver(ctx context.Context, fc map[key][9]float64, ops []symOp, d int)
 		}
 	}
 	return out, nil
+}
+
+// mapSitesBrute is mapSites as it was before the bins: every site tried
+// for every image (the reference of TestSiteBinsMatchBrute).
+func mapSitesBrute(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float64, tolA float64, op *symOp) bool {
+	d := c.Dim()
+	used := make([]bool, len(c.Sites))
+	for i := range c.Sites {
+		found := false
+		for j, sj := range c.Sites {
+			if used[j] || sj.MassAmu != c.Sites[i].MassAmu {
+				continue
+			}
+			var diff, cell [3]float64
+			for a := 0; a < d; a++ {
+				diff[a] = rx[i][a] + t[a] - sj.Frac[a]
+				cell[a] = math.Round(diff[a])
+				diff[a] -= cell[a]
+			}
+			var x [3]float64
+			for a := 0; a < d; a++ {
+				x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
+			}
+			if lattice.Norm(x) < tolA {
+				op.perm[i], used[j], found = j, true, true
+				for a := 0; a < d; a++ {
+					op.shift[i][a] = int(cell[a])
+				}
+				break
+			}
+		}
+		if !found {
+			return false
+		}
+	}
+	return true
+}
+
+// TestSiteBinsMatchBrute: the site mapping through bins (mapSites) makes
+// the same decision, permutation and shifts as trying every site, for
+// every rotation of the lattice's point group and every candidate
+// translation, on crystals with many operations (supercells of a
+// two-site cubic crystal, an fcc cubic cell, rock salt, diamond), with
+// sites moved by less and by more than the tolerance, and in one and two
+// dimensions; at tolerances from 1e-6 Å to 0.3 Å (a few bins to the cap).
+func TestSiteBinsMatchBrute(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 5))
+	crystals := []*physics.Crystal{fccConventional(), rocksalt(), diamond(),
+		testmodels.Sized(t, 16), testmodels.Sized(t, 32),
+		testmodels.Distorted(testmodels.Sized(t, 32), rng, 3e-5, 0),
+		testmodels.Distorted(testmodels.Sized(t, 16), rng, 0.02, 0),
+		testmodels.Load(t, "diatomic-chain"), testmodels.Load(t, "square-net")}
+	decisions, accepted := 0, 0
+	for ci, c := range crystals {
+		d := c.Dim()
+		var lat [3][3]float64
+		copy(lat[:], c.Lattice)
+		recip := lattice.Reciprocal(lat, d)
+		for _, tolA := range []float64{1e-6, 1e-4, 0.05, 0.3} {
+			bins := newSiteBins(c, recip, tolA)
+			used := make([]bool, len(c.Sites))
+			for _, r := range lattice.PointGroup(lat, d, tolA) {
+				rx := make([][3]float64, len(c.Sites))
+				for i, s := range c.Sites {
+					for a := 0; a < d; a++ {
+						for b := 0; b < d; b++ {
+							rx[i][a] += float64(r[a][b]) * s.Frac[b]
+						}
+					}
+				}
+				for j0 := range c.Sites {
+					var tr [3]float64
+					for a := 0; a < d; a++ {
+						tr[a] = c.Sites[j0].Frac[a] - rx[0][a]
+						tr[a] -= math.Floor(tr[a])
+					}
+					n := len(c.Sites)
+					a := symOp{perm: make([]int, n), shift: make([][3]int, n)}
+					b := symOp{perm: make([]int, n), shift: make([][3]int, n)}
+					clear(used)
+					okA := mapSites(c, lat, rx, tr, tolA, &a, bins, used)
+					okB := mapSitesBrute(c, lat, rx, tr, tolA, &b)
+					decisions++
+					if okA != okB || okA && (!slices.Equal(a.perm, b.perm) || !slices.Equal(a.shift, b.shift)) {
+						t.Fatalf("crystal %d, tol %g, rotation %v, translation of site %d: bins %v %v %v, every site %v %v %v",
+							ci, tolA, r, j0, okA, a.perm, a.shift, okB, b.perm, b.shift)
+					}
+					if okA {
+						accepted++
+					}
+				}
+			}
+		}
+	}
+	t.Logf("%d candidate operations decided alike, %d accepted", decisions, accepted)
+	if accepted < 100 {
+		t.Errorf("only %d operations accepted: the test exercises too few maps", accepted)
+	}
 }

@@ -43,6 +43,7 @@ func spaceGroup(ctx context.Context, c *physics.Crystal, tolA float64) ([]symOp,
 		shortest = math.Min(shortest, lattice.Norm(lat[k]))
 	}
 	polTol := 1e-8 + float64(1+d)*tolA/shortest
+	bins := newSiteBins(c, recip, tolA)
 	var ops []symOp
 	for _, r := range lattice.PointGroup(lat, d, tolA) {
 		if err := ctx.Err(); err != nil {
@@ -57,7 +58,7 @@ func spaceGroup(ctx context.Context, c *physics.Crystal, tolA float64) ([]symOp,
 		if mixesPolarizations(cart, c.P(), polTol) {
 			continue
 		}
-		ops = append(ops, siteMaps(c, lat, r, cart, tolA)...)
+		ops = append(ops, siteMaps(c, lat, r, cart, tolA, bins)...)
 	}
 	if err := closed(ctx, ops, d); err != nil {
 		return nil, err
@@ -103,7 +104,7 @@ func mixesPolarizations(c [3][3]float64, p int, tol float64) bool {
 
 // siteMaps returns an operation for every translation that, with the
 // rotation r, maps every site onto a site of its mass within tolA.
-func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]float64, tolA float64) []symOp {
+func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]float64, tolA float64, bins *siteBins) []symOp {
 	d, ns := c.Dim(), len(c.Sites)
 	rx := make([][3]float64, ns)
 	for i, s := range c.Sites {
@@ -114,6 +115,7 @@ func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]flo
 		}
 	}
 	var ops []symOp
+	used := make([]bool, ns)
 	for j0 := range c.Sites {
 		if c.Sites[j0].MassAmu != c.Sites[0].MassAmu {
 			continue
@@ -124,7 +126,8 @@ func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]flo
 			t[a] -= math.Floor(t[a])
 		}
 		op := symOp{rot: r, cart: cart, perm: make([]int, ns), shift: make([][3]int, ns)}
-		if mapSites(c, lat, rx, t, tolA, &op) {
+		clear(used)
+		if mapSites(c, lat, rx, t, tolA, &op, bins, used) {
 			ops = append(ops, op)
 		}
 	}
@@ -132,19 +135,27 @@ func siteMaps(c *physics.Crystal, lat [3][3]float64, r [3][3]int, cart [3][3]flo
 }
 
 // mapSites fills op.perm and op.shift for the images rx[i] + t of the
-// sites; false when a site lands on no free site of its mass.
-func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float64, tolA float64, op *symOp) bool {
+// sites; false when a site lands on no free site of its mass. Site i goes
+// to the lowest-numbered free site of its mass within tolA (Cartesian,
+// modulo the lattice), found among the sites of the bins next to the
+// image (siteBins) rather than among all sites. used is scratch of one
+// flag a site, all false on entry.
+func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float64, tolA float64, op *symOp, bins *siteBins, used []bool) bool {
 	d := c.Dim()
-	used := make([]bool, len(c.Sites))
 	for i := range c.Sites {
-		found := false
-		for j, sj := range c.Sites {
-			if used[j] || sj.MassAmu != c.Sites[i].MassAmu {
-				continue
+		var p [3]float64
+		for a := 0; a < d; a++ {
+			p[a] = rx[i][a] + t[a]
+		}
+		best, bestCell := -1, [3]float64{}
+		bins.near(p, func(j int) {
+			sj := c.Sites[j]
+			if used[j] || sj.MassAmu != c.Sites[i].MassAmu || best >= 0 && j > best {
+				return
 			}
 			var diff, cell [3]float64
 			for a := 0; a < d; a++ {
-				diff[a] = rx[i][a] + t[a] - sj.Frac[a]
+				diff[a] = p[a] - sj.Frac[a]
 				cell[a] = math.Round(diff[a])
 				diff[a] -= cell[a]
 			}
@@ -153,18 +164,93 @@ func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float
 				x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
 			}
 			if lattice.Norm(x) < tolA {
-				op.perm[i], used[j], found = j, true, true
-				for a := 0; a < d; a++ {
-					op.shift[i][a] = int(cell[a])
-				}
-				break
+				best, bestCell = j, cell
 			}
-		}
-		if !found {
+		})
+		if best < 0 {
 			return false
+		}
+		op.perm[i], used[best] = best, true
+		for a := 0; a < d; a++ {
+			op.shift[i][a] = int(bestCell[a])
 		}
 	}
 	return true
+}
+
+// siteBins files the sites by their fractional coordinates (modulo 1) in
+// a periodic grid of bins at least as wide, along each axis k, as the
+// largest change tolA (Å) can make to that coordinate, tolA·|b_k|/2π (b_k
+// the reciprocal vectors): every site within tolA of a point is then in
+// the point's bin or a neighbouring one. The grid has about 8 bins a site
+// at most, so looking a point up costs O(1) sites on average.
+type siteBins struct {
+	d    int
+	m    [3]int
+	bins [][]int32 // sites of each bin, ascending
+}
+
+func newSiteBins(c *physics.Crystal, recip [3][3]float64, tolA float64) *siteBins {
+	d, n := c.Dim(), len(c.Sites)
+	b := &siteBins{d: d, m: [3]int{1, 1, 1}}
+	limit := 2*int(math.Ceil(math.Pow(float64(n), 1/float64(d)))) + 1
+	total := 1
+	for k := 0; k < d; k++ {
+		reach := tolA * lattice.Norm(recip[k]) / (2 * math.Pi)
+		m := limit
+		if reach > 0 {
+			m = min(limit, int(math.Floor(1/reach)))
+		}
+		b.m[k] = max(1, m)
+		total *= b.m[k]
+	}
+	b.bins = make([][]int32, total)
+	for j, s := range c.Sites {
+		var f [3]float64
+		copy(f[:], s.Frac)
+		x := b.index(b.cell(f))
+		b.bins[x] = append(b.bins[x], int32(j))
+	}
+	return b
+}
+
+// cell is the bin of fractional point f along each axis.
+func (b *siteBins) cell(f [3]float64) [3]int {
+	var c [3]int
+	for k := 0; k < b.d; k++ {
+		u := f[k] - math.Floor(f[k])
+		c[k] = min(int(u*float64(b.m[k])), b.m[k]-1)
+	}
+	return c
+}
+
+// index is the bin number of a cell.
+func (b *siteBins) index(c [3]int) int { return (c[0]*b.m[1]+c[1])*b.m[2] + c[2] }
+
+// near calls visit for every site in the bins next to (and in) the bin of
+// fractional point p, each bin once.
+func (b *siteBins) near(p [3]float64, visit func(j int)) {
+	c := b.cell(p)
+	var span [3][]int
+	for k := 0; k < 3; k++ {
+		switch {
+		case k >= b.d || b.m[k] == 1:
+			span[k] = []int{0}
+		case b.m[k] == 2:
+			span[k] = []int{0, 1}
+		default:
+			span[k] = []int{(c[k] + b.m[k] - 1) % b.m[k], c[k], (c[k] + 1) % b.m[k]}
+		}
+	}
+	for _, x := range span[0] {
+		for _, y := range span[1] {
+			for _, z := range span[2] {
+				for _, j := range b.bins[b.index([3]int{x, y, z})] {
+					visit(int(j))
+				}
+			}
+		}
+	}
 }
 
 // compose returns g∘h (h first): site i of cell n goes by h to site h.π(i)
