@@ -485,17 +485,11 @@ func mapSitesBrute(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]
 			if used[j] || sj.MassAmu != c.Sites[i].MassAmu {
 				continue
 			}
-			var diff, cell [3]float64
+			var p [3]float64
 			for a := 0; a < d; a++ {
-				diff[a] = rx[i][a] + t[a] - sj.Frac[a]
-				cell[a] = math.Round(diff[a])
-				diff[a] -= cell[a]
+				p[a] = rx[i][a] + t[a]
 			}
-			var x [3]float64
-			for a := 0; a < d; a++ {
-				x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
-			}
-			if lattice.Norm(x) < tolA {
+			if cell, dist := roundedImage(lat, d, p, sj.Frac); dist < tolA {
 				op.perm[i], used[j], found = j, true, true
 				for a := 0; a < d; a++ {
 					op.shift[i][a] = int(cell[a])

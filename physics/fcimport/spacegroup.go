@@ -153,17 +153,7 @@ func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float
 			if used[j] || sj.MassAmu != c.Sites[i].MassAmu || best >= 0 && j > best {
 				return
 			}
-			var diff, cell [3]float64
-			for a := 0; a < d; a++ {
-				diff[a] = p[a] - sj.Frac[a]
-				cell[a] = math.Round(diff[a])
-				diff[a] -= cell[a]
-			}
-			var x [3]float64
-			for a := 0; a < d; a++ {
-				x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
-			}
-			if lattice.Norm(x) < tolA {
+			if cell, dist := roundedImage(lat, d, p, sj.Frac); dist < tolA {
 				best, bestCell = j, cell
 			}
 		})
@@ -176,6 +166,23 @@ func mapSites(c *physics.Crystal, lat [3][3]float64, rx [][3]float64, t [3]float
 		}
 	}
 	return true
+}
+
+// roundedImage returns the cell offset of site position frac nearest to
+// fractional point p along each axis (rounded), and the Cartesian distance
+// (Å) between p and the site in that cell.
+func roundedImage(lat [3][3]float64, d int, p [3]float64, frac []float64) ([3]float64, float64) {
+	var diff, cell [3]float64
+	for a := 0; a < d; a++ {
+		diff[a] = p[a] - frac[a]
+		cell[a] = math.Round(diff[a])
+		diff[a] -= cell[a]
+	}
+	var x [3]float64
+	for a := 0; a < d; a++ {
+		x = lattice.Add(x, lattice.Scale(lat[a], diff[a]))
+	}
+	return cell, lattice.Norm(x)
 }
 
 // siteBins files the sites by their fractional coordinates (modulo 1) in
