@@ -469,19 +469,12 @@ func fuzzChainSet(tb testing.TB) *modegridv1.Crystal {
 	c.Springs = nil
 	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{2}}
 	const n = 4
+	order := make([]int, n)
 	for i := range n {
 		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
-		for j := range n {
-			blk := make([]float64, 9)
-			switch {
-			case i == j:
-				blk[0] = 4
-			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
-				blk[0] = -2
-			}
-			fc.Phi = append(fc.Phi, blk...)
-		}
+		order[i] = i
 	}
+	fc.Phi = ringBlocks(order)
 	c.SupercellFc = fc
 	return c
 }

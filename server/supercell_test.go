@@ -26,15 +26,15 @@ import (
 // Physics, ch. 4) written as a 3-cell supercell force-constant set: atoms
 // at 2.5·i Å (L, H alternating, listed in reverse), Φ_xx(i,i) = 2K,
 // Φ_xx(i,i±1 mod 6) = −K.
-func diatomicSupercell(t *testing.T) *modegridv1.Crystal {
-	c := example(t, "diatomic-chain")
-	c.Springs = nil
-	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{3}}
-	const n = 6
-	order := []int{5, 4, 3, 2, 1, 0}
-	for _, i := range order {
-		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
-	}
+func diatomicSupercell(t *testing.T) *modegridv1.Crystal { return chainSupercell(t, 3) }
+
+// ringBlocks are the N×N force-constant blocks (eV/Å², 9 numbers each,
+// row-major) of a ring of len(order) atoms with nearest-neighbour springs
+// K = 2 eV/Å² along x, the atoms listed in the given order:
+// Φ_xx(i,i) = 2K, Φ_xx(i, i±1 mod N) = −K, the rest 0.
+func ringBlocks(order []int) []float64 {
+	n := len(order)
+	phi := make([]float64, 0, 9*n*n)
 	for _, i := range order {
 		for _, j := range order {
 			blk := make([]float64, 9)
@@ -44,11 +44,10 @@ func diatomicSupercell(t *testing.T) *modegridv1.Crystal {
 			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
 				blk[0] = -2
 			}
-			fc.Phi = append(fc.Phi, blk...)
+			phi = append(phi, blk...)
 		}
 	}
-	c.SupercellFc = fc
-	return c
+	return phi
 }
 
 // TestSupercellModesOverGRPC: through real gRPC, the diatomic chain given
@@ -192,22 +191,13 @@ func TestSupercellCheckReportsFold(t *testing.T) {
 func chainSet(n int) *modegridv1.Crystal {
 	c := &modegridv1.Crystal{Name: fmt.Sprintf("chain-set-%d", n), Lattice: []*modegridv1.Vec3{{X: 2.5 * float64(n)}}, Polarizations: 1}
 	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{1}}
+	order := make([]int, n)
 	for i := range n {
 		c.Sites = append(c.Sites, &modegridv1.Site{Label: fmt.Sprintf("S%d", i), MassAmu: 30, Frac: []float64{float64(i) / float64(n)}})
 		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+		order[i] = i
 	}
-	for i := range n {
-		for j := range n {
-			blk := make([]float64, 9)
-			switch {
-			case i == j:
-				blk[0] = 4
-			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
-				blk[0] = -2
-			}
-			fc.Phi = append(fc.Phi, blk...)
-		}
-	}
+	fc.Phi = ringBlocks(order)
 	c.SupercellFc = fc
 	return c
 }

@@ -34,22 +34,12 @@ func chainSupercell(t testing.TB, cells int) *modegridv1.Crystal {
 	c.Springs = nil
 	n := 2 * cells
 	fc := &modegridv1.SupercellForceConstants{Matrix: []int32{int32(cells)}}
+	order := make([]int, 0, n)
 	for i := n - 1; i >= 0; i-- {
 		fc.Atoms = append(fc.Atoms, &modegridv1.SupercellAtom{Position: []float64{2.5 * float64(i), 0, 0}})
+		order = append(order, i)
 	}
-	fc.Phi = make([]float64, 0, 9*n*n)
-	for i := n - 1; i >= 0; i-- {
-		for j := n - 1; j >= 0; j-- {
-			blk := make([]float64, 9)
-			switch {
-			case i == j:
-				blk[0] = 4
-			case (i-j+n)%n == 1 || (j-i+n)%n == 1:
-				blk[0] = -2
-			}
-			fc.Phi = append(fc.Phi, blk...)
-		}
-	}
+	fc.Phi = ringBlocks(order)
 	c.SupercellFc = fc
 	return c
 }
