@@ -14,7 +14,9 @@ import (
 	"sync/atomic"
 	"time"
 
+	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
+	grpcstats "google.golang.org/grpc/stats"
 	"google.golang.org/grpc/status"
 
 	"github.com/materials-lab/modegrid/client"
@@ -58,6 +60,7 @@ type sample struct {
 	kind    string
 	start   time.Time
 	latency time.Duration
+	sent    time.Time // when the call's request went on the wire (zero: never)
 	code    codes.Code
 	bad     string // an OK response that is incomplete: what is missing
 }
@@ -70,7 +73,7 @@ type engine struct {
 	cold atomic.Uint64 // counter making every cold request unique
 
 	flightMu sync.Mutex // protects inFlight and halted, so a signal sees an exact count
-	inFlight int        // calls in flight
+	inFlight int        // calls on the wire: sent (see wireMarker) and not yet ended
 	halted   bool       // no call starts any more (haltWhenFull)
 
 	// afterWarm, if set, runs once the warm set has been made, before the
@@ -313,20 +316,23 @@ func (e *engine) run(ctx context.Context) error {
 
 // do makes one call and records it; false (and no call) once halted.
 func (e *engine) do(ctx context.Context, class string, r request) bool {
-	cctx, cancel := context.WithTimeout(ctx, e.cfg.callTimeout)
-	defer cancel()
 	e.flightMu.Lock()
-	if e.halted {
-		e.flightMu.Unlock()
+	halted := e.halted
+	e.flightMu.Unlock()
+	if halted {
 		return false
 	}
-	e.inFlight++
+	f := &flight{e: e}
+	cctx, cancel := context.WithTimeout(context.WithValue(ctx, flightKey{}, f), e.cfg.callTimeout)
+	defer cancel()
 	start := time.Now()
-	e.flightMu.Unlock()
 	bad, err := r.call(cctx, e.c)
 	e.flightMu.Lock()
-	e.inFlight--
+	if !f.sent.IsZero() {
+		e.inFlight--
+	}
 	lat := time.Since(start)
+	sent := f.sent
 	e.flightMu.Unlock()
 	code := status.Code(err)
 	if err != nil && code == codes.Unknown {
@@ -338,16 +344,62 @@ func (e *engine) do(ctx context.Context, class string, r request) bool {
 		}
 	}
 	e.mu.Lock()
-	e.samples = append(e.samples, sample{class: class, kind: r.kind, start: start, latency: lat, code: code, bad: bad})
+	e.samples = append(e.samples, sample{class: class, kind: r.kind, start: start, latency: lat, sent: sent, code: code, bad: bad})
 	e.mu.Unlock()
 	return true
 }
 
-// haltWhenFull waits (at most limit) until n calls are in flight, then,
-// with no call able to start or end meanwhile, runs act, stops calls from
-// starting and returns the number in flight and the time act ran. Calls
-// that started before that time and ended after it are exactly the ones
-// in flight when act ran.
+// flight is one call of the engine, carried in its context so that
+// wireMarker can tell the engine when its request is on the wire.
+type flight struct {
+	e    *engine
+	sent time.Time // guarded by e.flightMu
+}
+
+type flightKey struct{}
+
+// wireMarker is a gRPC stats handler that counts a call of the engine in
+// flight from the moment its first request's headers are queued on a
+// connection that is not draining (grpc-go reports OutHeader then). A call
+// counted so is one the server will receive even if it begins a graceful
+// stop at once: the server's first GOAWAY is answered only after what the
+// client queued before it. A call begun but not yet on the wire when the
+// server stops is instead retried by gRPC on a new connection and refused
+// there (UNAVAILABLE, connection refused) — it never reached the server, so
+// it is not one of the calls a stop must finish.
+type wireMarker struct{}
+
+func (wireMarker) TagRPC(ctx context.Context, _ *grpcstats.RPCTagInfo) context.Context   { return ctx }
+func (wireMarker) TagConn(ctx context.Context, _ *grpcstats.ConnTagInfo) context.Context { return ctx }
+func (wireMarker) HandleConn(context.Context, grpcstats.ConnStats)                       {}
+
+func (wireMarker) HandleRPC(ctx context.Context, s grpcstats.RPCStats) {
+	if h, ok := s.(*grpcstats.OutHeader); !ok || !h.Client {
+		return
+	}
+	f, ok := ctx.Value(flightKey{}).(*flight)
+	if !ok {
+		return
+	}
+	f.e.flightMu.Lock()
+	if f.sent.IsZero() {
+		f.sent = time.Now()
+		f.e.inFlight++
+	}
+	f.e.flightMu.Unlock()
+}
+
+// dialEngine dials target for an engine: the client options given plus
+// the stats handler that counts the engine's calls on the wire.
+func dialEngine(target string, opts ...client.Option) (*client.Client, error) {
+	return client.Dial(target, append(opts, client.WithDialOptions(grpc.WithStatsHandler(wireMarker{})))...)
+}
+
+// haltWhenFull waits (at most limit) until n calls are on the wire, then,
+// with no call able to be sent or end meanwhile, runs act, stops calls from
+// starting and returns the number on the wire and the time act ran. Calls
+// sent before that time and ended after it are exactly the ones on the
+// wire when act ran.
 func (e *engine) haltWhenFull(n int, limit time.Duration, act func()) (int, time.Time) {
 	deadline := time.Now().Add(limit)
 	tick := time.NewTicker(time.Millisecond)

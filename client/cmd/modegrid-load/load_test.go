@@ -117,7 +117,7 @@ func inProcess(t *testing.T, cfg server.Config) (*server.Server, string) {
 // afterwards.
 func runEngine(t *testing.T, addr string, cfg config) []sample {
 	t.Helper()
-	c, err := client.Dial(addr, client.WithMaxAttempts(1), client.WithFailFast())
+	c, err := dialEngine(addr, client.WithMaxAttempts(1), client.WithFailFast())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -261,7 +261,7 @@ func TestDaemonMemoryBound(t *testing.T) {
 }
 
 // TestDaemonSIGTERM: SIGTERM to a real modegridd while 20 calls are in
-// flight (2 computing, 18 queued). With a grace period long enough, every
+// flight (on the wire: 2 computing, 18 queued). With a grace period long enough, every
 // one finishes with its complete answer; with a grace period shorter than
 // the work, the calls still running when it ends get UNAVAILABLE and none
 // gets an OK with part of its answer. Either way every call ends and the

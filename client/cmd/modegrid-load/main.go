@@ -14,8 +14,10 @@
 // reads its peak resident set (VmHWM) from /proc; with --server it samples
 // process_resident_memory_bytes from --metrics, if given. --sigterm-after
 // (with --spawn) sends the child SIGTERM part-way, once every caller has a
-// call in flight, and reports how each of those calls ended and how long
-// the child took to exit.
+// call on the wire (its request sent: a call still being set up when the
+// server stops is refused by the stopping server's transport and is no
+// call of its), and reports how each of those calls ended and how long the
+// child took to exit.
 //
 // With --adversarial it runs the adversarial suite instead of a load (see
 // adversarial.go): each request that once took a replica down, and
@@ -81,7 +83,7 @@ type serverStats struct {
 	ExitCode         int                `json:"exit_code"`
 }
 
-// sigtermStats describes the calls in flight when SIGTERM was sent.
+// sigtermStats describes the calls on the wire when SIGTERM was sent.
 type sigtermStats struct {
 	InFlight         int            `json:"in_flight"`
 	Codes            map[string]int `json:"codes"`
@@ -89,7 +91,7 @@ type sigtermStats struct {
 	MaxAfterSignalMs float64        `json:"max_after_signal_ms"`
 	ExitCode         int            `json:"exit_code"`
 	ExitAfterMs      float64        `json:"exit_after_ms"`
-	StartedAfter     int            `json:"started_after"` // calls begun as the signal went out
+	StartedAfter     int            `json:"started_after"` // calls not yet on the wire when the signal went out
 }
 
 func main() {
@@ -149,7 +151,7 @@ func newFlagSet(o *options, raw *rawFlags, stderr io.Writer) *flag.FlagSet {
 	fs.StringVar(&raw.kinds, "cold-kinds", strings.Join(coldKinds, ","), "kinds of cold calls, comma-separated")
 	fs.DurationVar(&o.cfg.callTimeout, "timeout", 30*time.Second, "deadline of each call")
 	fs.Uint64Var(&o.cfg.seed, "seed", 1, "seed of the request mix (math/rand/v2 PCG)")
-	fs.DurationVar(&o.sigtermAfter, "sigterm-after", 0, "with --spawn: send SIGTERM after this long, once every caller has a call in flight")
+	fs.DurationVar(&o.sigtermAfter, "sigterm-after", 0, "with --spawn: send SIGTERM after this long, once every caller has a call on the wire")
 	fs.BoolVar(&o.jsonOut, "json", false, "print the report as JSON")
 	fs.BoolVar(&o.adversarial, "adversarial", false, "with --spawn: run the adversarial suite (a fresh server per request; markdown table) instead of a load")
 	fs.StringVar(&o.only, "only", "", "with --adversarial: run only the rows whose request contains this text")
@@ -278,7 +280,7 @@ func load(ctx context.Context, o *options) (*report, error) {
 			metricsURL = "http://" + ch.metricsAddr + "/metrics"
 		}
 	}
-	c, err := client.Dial(cfg.target, cfg.dial...)
+	c, err := dialEngine(cfg.target, cfg.dial...)
 	if err != nil {
 		return nil, err
 	}
@@ -420,19 +422,19 @@ func startSigterm(ctx context.Context, after time.Duration, ch *child, e *engine
 	return sg
 }
 
-// finish counts how the calls in flight at the signal ended (and those
-// begun as it went out), waits for the child to exit and records its exit
-// in sg.stats and srv.
+// finish counts how the calls on the wire at the signal ended (and those
+// not yet on it as it went out), waits for the child to exit and records
+// its exit in sg.stats and srv.
 func (sg *sigterm) finish(samples []sample, ch *child, srv *serverStats) error {
 	sig := sg.stats
 	for _, s := range samples {
-		if !s.start.Before(sg.signalled) {
-			sig.StartedAfter++
-			continue
-		}
 		end := s.start.Add(s.latency)
 		if end.Before(sg.signalled) {
 			continue // finished before the signal
+		}
+		if s.sent.IsZero() || !s.sent.Before(sg.signalled) {
+			sig.StartedAfter++ // not on the wire when the signal went out
+			continue
 		}
 		sig.MaxAfterSignalMs = max(sig.MaxAfterSignalMs, float64(end.Sub(sg.signalled).Microseconds())/1000)
 		switch {
@@ -552,7 +554,7 @@ func printReport(w io.Writer, r *report) {
 		fmt.Fprintf(w, "; exit code %d\n", s.ExitCode)
 	}
 	if s := r.Sigterm; s != nil {
-		fmt.Fprintf(w, "SIGTERM with %d calls in flight: %s; the last ended %.0f ms after the signal; modegridd exited %d after %.0f ms (%d calls started as the signal went out)\n",
+		fmt.Fprintf(w, "SIGTERM with %d calls in flight: %s; the last ended %.0f ms after the signal; modegridd exited %d after %.0f ms (%d calls not yet on the wire then)\n",
 			s.InFlight, codeList(s.Codes, s.Incomplete), s.MaxAfterSignalMs, s.ExitCode, s.ExitAfterMs, s.StartedAfter)
 	}
 }
