@@ -111,6 +111,7 @@ func Compute(ctx context.Context, m *physics.Model, opt Options) (*Result, error
 		return nil, err
 	}
 	res.Series = make([]Series, len(bounds))
+	var vs physics.Violations
 	for b, bd := range bounds {
 		s, err := md.series(ctx, bd, opt.TempsK, scale)
 		if err != nil {
@@ -123,9 +124,50 @@ func Compute(ctx context.Context, m *physics.Model, opt Options) (*Result, error
 		if opt.CumulativeTempK > 0 {
 			s.Cumulative = md.cumulative(bd, opt.CumulativeTempK, scale, cmp(opt.CumulativeBins, DefaultCumulativeBins))
 		}
+		s.checkRange(&vs, b, len(opt.Boundaries) > 0)
 		res.Series[b] = s
 	}
+	if err := vs.Err(); err != nil {
+		return nil, err
+	}
 	return res, nil
+}
+
+// checkRange adds a violation for every temperature of s (series b; named
+// by samples[b] when the request gave its samples) at which κ is past the
+// range of a float64, and for its cumulative curves if they are. Each
+// mode adds C·v⊗v·τ with τ = 1/Σ rates; a mode with a heat capacity but
+// rates of order 10⁻³⁰⁰ 1/s or less (a point-defect variance of that
+// order and no other mechanism, say) gives τ, and κ, beyond 1.8·10³⁰⁸:
+// the model's κ is effectively infinite there, and no number stands for
+// it. It is refused on the request's fields rather than answered with an
+// infinity or NaN.
+func (s *Series) checkRange(vs *physics.Violations, b int, named bool) {
+	where := ""
+	if named {
+		where = fmt.Sprintf(" in samples[%d]", b)
+	}
+	const advice = "some modes are all but unscattered with these rates (τ = 1/Σ rates overflows); give a sample size (samples), larger point-defect variances, Umklapp or a power law, or a higher temperature"
+	for t, p := range s.Points {
+		ok := finite(p.MeanWmK)
+		for _, x := range p.KappaWmK {
+			ok = ok && finite(x)
+		}
+		if !ok {
+			vs.Add(fmt.Sprintf("temperatures_k[%d]", t), "κ at %g K%s is beyond the range of a float64: %s", p.TempK, where, advice)
+		}
+	}
+	if c := s.Cumulative; c != nil {
+		ok := true
+		for _, xs := range [][]float64{c.MFPM, c.KappaByMFP, c.FreqTHz, c.KappaByFreq} {
+			for _, x := range xs {
+				ok = ok && finite(x)
+			}
+		}
+		if !ok {
+			vs.Add("cumulative_temperature_k", "the cumulative κ at %g K%s is beyond the range of a float64: %s", c.TempK, where, advice)
+		}
+	}
 }
 
 func cmp(x, def int) int {

@@ -3,6 +3,7 @@ package transport
 import (
 	"errors"
 	"math"
+	"strings"
 	"testing"
 
 	"github.com/materials-lab/modegrid/physics"
@@ -231,5 +232,44 @@ func TestConductivityRefusesBadInput(t *testing.T) {
 	}
 	if _, err := Compute(testCtx(t), m, Options{Grid: mesh.GridSpec{Mesh: [3]int{2, 2, 2}}, TempsK: []float64{300}}); err == nil {
 		t.Error("no scattering at all was accepted")
+	}
+}
+
+// TestConductivityOutOfRange: a point-defect variance of 10⁻³²⁰ as the
+// only mechanism (a fuzzed request's) scatters every mode at a rate of
+// order 10⁻³¹⁶ 1/s or less, so τ = 1/rate and κ = Σ C v v τ pass the
+// largest float64 (derived: C ≈ 1 at 300 K, v ≈ 10³ m/s). Compute refuses
+// it on the temperature's field (and the cumulative curves' own), all at
+// once, instead of answering Inf or NaN; the same model with g₂ = 10⁻⁴
+// is answered with a finite κ.
+func TestConductivityOutOfRange(t *testing.T) {
+	m := compile(t, isoCrystal(isoA, isoMass, isoK, "X"))
+	opt := func(g2 float64) Options {
+		return Options{Grid: mesh.GridSpec{Mesh: [3]int{4, 4, 4}}, TempsK: []float64{300, 600},
+			Boundaries: []Boundary{{Kind: Bulk}}, Defects: PointDefects{On: true, SiteG2: []float64{g2}}, CumulativeTempK: 300}
+	}
+	_, err := Compute(testCtx(t), m, opt(1e-320))
+	var ve *physics.ValidationError
+	if !errors.As(err, &ve) {
+		t.Fatalf("err = %v, want a validation error", err)
+	}
+	want := map[string]bool{"temperatures_k[0]": true, "temperatures_k[1]": true, "cumulative_temperature_k": true}
+	for _, v := range ve.Violations {
+		if !want[v.Field] || !strings.Contains(v.Description, "in samples[0]") {
+			t.Errorf("unexpected violation %s: %s", v.Field, v.Description)
+		}
+		delete(want, v.Field)
+	}
+	if len(want) > 0 {
+		t.Errorf("missing %v in %v", want, err)
+	}
+	res, err := Compute(testCtx(t), m, opt(1e-4))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range res.Series[0].Points {
+		if !finite(p.MeanWmK) || !(p.MeanWmK > 0) {
+			t.Errorf("g₂ = 1e-4: κ(%g K) = %v W/(m·K), want finite and positive", p.TempK, p.MeanWmK)
+		}
 	}
 }
