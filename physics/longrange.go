@@ -131,13 +131,16 @@ func (v *validator) checkPolar() {
 // sites with a Born charge.
 func (v *validator) checkEpsilon(charged int) {
 	e, vs := v.c.EpsilonInf, v.vs
-	switch {
-	case len(e) == 0:
+	if len(e) == 0 {
 		vs.Add("epsilon_inf", "is missing: Born charges need the high-frequency dielectric tensor ε∞ (9 numbers, dimensionless)")
 		return
-	case charged == 0:
+	}
+	if charged == 0 {
 		vs.Add("epsilon_inf", "is given but no site has a Born charge: give both (every site's born_charge) or neither")
-	case len(e) != 9:
+	}
+	// Checked whether or not charges came with it: every violation at
+	// once, and nothing below reads a tensor of the wrong length.
+	if len(e) != 9 {
 		vs.Add("epsilon_inf", "must have 9 numbers (3×3 row-major, dimensionless), got %d", len(e))
 		return
 	}

@@ -70,6 +70,12 @@ func TestPolarValidation(t *testing.T) {
 		{"no ε∞", func(c *physics.Crystal) { c.EpsilonInf = nil }, []string{"epsilon_inf"}},
 		{"ε∞ without charges", func(c *physics.Crystal) { c.Sites[0].BornCharge, c.Sites[1].BornCharge = nil, nil }, []string{"sites[0].born_charge", "sites[1].born_charge", "epsilon_inf"}},
 		{"ε∞ of 4 numbers", func(c *physics.Crystal) { c.EpsilonInf = []float64{1, 0, 0, 1} }, []string{"epsilon_inf"}},
+		// Found by fuzzing: the length went unchecked when no site had a
+		// charge, and the symmetry check read past the end (a panic).
+		{"ε∞ of 6 numbers without charges", func(c *physics.Crystal) {
+			c.Sites[0].BornCharge, c.Sites[1].BornCharge = nil, nil
+			c.EpsilonInf = []float64{1, 0, 0, 0, 1, 0}
+		}, []string{"sites[0].born_charge", "sites[1].born_charge", "epsilon_inf", "epsilon_inf"}},
 		{"ε∞ infinite", func(c *physics.Crystal) { c.EpsilonInf[8] = math.Inf(1) }, []string{"epsilon_inf[8]"}},
 		{"ε∞ not symmetric", func(c *physics.Crystal) { c.EpsilonInf[1] = 0.5 }, []string{"epsilon_inf"}},
 		{"ε∞ not positive definite", func(c *physics.Crystal) { c.EpsilonInf[4] = -2 }, []string{"epsilon_inf"}},
