@@ -69,11 +69,14 @@ func (s *Service) computeScattering(ctx context.Context, req *modegridv1.Compute
 	if err != nil {
 		return nil, err
 	}
+	canon := scatterParams(req)
+	rows, what := scatterRows(job)
+	s.checkReply(&vs, targetName(req), scatterReplyBytes(e.m, job, canon),
+		fmt.Sprintf("%d %s × %d energies (energy)", rows, what, axisSamples(job.opt.Axis)))
 	s.budget.check(&vs, est)
 	if err := vs.Err(); err != nil {
 		return nil, err
 	}
-	canon := scatterParams(req)
 	return cachedResult(ctx, s, kindScatter, e.hash, canon, scatterCodec, func(ctx context.Context) (*modegridv1.ComputeScatteringResponse, error) {
 		var out *modegridv1.ComputeScatteringResponse
 		err := s.admitted(ctx, est, func(ctx context.Context) error {
@@ -320,6 +323,52 @@ func (s *Service) scatterEstimate(ctx context.Context, e *modelEntry, job *scatt
 	c := scatter.SingleCost(size, dw, len(job.qs), samples)
 	c.Bytes += 2 * 8 * int64(len(job.qs)) * int64(samples)
 	return estimate{cost: c, field: targetName(req), change: "fewer Q points or energies, or a coarser Debye–Waller grid"}, nil
+}
+
+// scatterRows is the number of rows of intensities the job answers with
+// (Q points, powder |Q| rows, or the one weighted DOS) and their name.
+func scatterRows(job *scatterJob) (int, string) {
+	switch {
+	case job.powder != nil:
+		return job.powder.NQ, "|Q| rows"
+	case job.dos != nil:
+		return 1, "spectrum"
+	}
+	return len(job.qs), "Q points"
+}
+
+// scatterReplyBytes is the size of the response to job on model m with
+// canonical parameters params, bytes, as protobuf encodes it: 8 bytes a
+// double of the packed arrays (energies, the FWHM polynomial, S of every
+// row, the lines of every Q point when asked, each site's ⟨u uᵀ⟩) plus
+// their tags and lengths, and an allowance for the small fields of each
+// message (Q vectors, distances, counts, the sites' sources). It is
+// checked against the message cap before any work (checkReply); the
+// answer is measured again after it (cachedResult), the safety net this
+// estimate keeps from being needed (TestScatterReplyBytes: within
+// 1–1.25× of every target's response and 2 kB).
+func scatterReplyBytes(m *physics.Model, job *scatterJob, params string) float64 {
+	packed := func(n int) float64 { return 8*float64(n) + 12 } // tag, length, values
+	e := axisSamples(job.opt.Axis)
+	b := 256 + float64(len(params)) + packed(e) + packed(len(job.opt.Resolution.FWHM))
+	switch {
+	case job.powder != nil:
+		b += float64(job.powder.NQ) * (packed(e) + 40)
+	case job.dos != nil:
+		b += 2 * packed(e)
+	default:
+		per := packed(e) + 96 // two Q vectors, distance, u, v, tags
+		if job.lines {
+			per += 3 * packed(m.ModeCount())
+		}
+		for _, q := range job.qs {
+			b += per + float64(len(q.Label))
+		}
+	}
+	for _, l := range m.Labels() {
+		b += packed(9) + 96 + float64(len(l)) // ⟨u uᵀ⟩, b, σ, source, tags
+	}
+	return b
 }
 
 // precheckScatter is ComputeScattering's pre-compile check (precompile.go):

@@ -304,3 +304,84 @@ func TestScatteringBoundIsBelowTheEstimate(t *testing.T) {
 		}
 	}
 }
+
+// TestScatterReplyBytes: the reply size checked against the message cap
+// before the work (scatterReplyBytes) is never below the response's
+// encoded size and within 1.25× of it and 2 kB, for every kind of target
+// (a path with its mode lines, a Q list, a slice, a powder map, a
+// weighted DOS) on three crystals.
+func TestScatterReplyBytes(t *testing.T) {
+	svc := NewService()
+	crystals := []*modegridv1.Crystal{cubicSupercell(2), example(t, "fcc"), example(t, "rocksalt-like")}
+	axis := &modegridv1.EnergyAxis{Max: 40, Step: 0.05}
+	targets := map[string]*modegridv1.ComputeScatteringRequest{
+		"path with lines": {Lines: true, Energy: axis, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
+			Target: &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Points: 30, Corners: []*modegridv1.QPathCorner{
+				{Q: &modegridv1.QVector{Q1: 1}, Label: "G"}, {Q: &modegridv1.QVector{Q1: 1.5}, Label: "X"}, {Q: &modegridv1.QVector{Q1: 1.5, Q2: 0.7}, Label: "W"}}}}},
+		"list": {Target: &modegridv1.ComputeScatteringRequest_QList{QList: &modegridv1.QList{Points: []*modegridv1.QVector{{Q1: 0.3}, {Q2: 1.2}, {Q3: 0.7}}}},
+			DebyeWaller: &modegridv1.DebyeWaller{Off: true}, Energy: axis, Resolution: &modegridv1.Resolution{Fwhm: []float64{0.5, 0.01}}},
+		"slice": {Target: &modegridv1.ComputeScatteringRequest_Slice{Slice: &modegridv1.QSlice{Origin: &modegridv1.QVector{}, UVector: &modegridv1.QVector{Q1: 1},
+			VVector: &modegridv1.QVector{Q2: 1}, UMax: 1, VMax: 1, UPoints: 5, VPoints: 4}}, DebyeWaller: &modegridv1.DebyeWaller{Mesh: []uint32{4, 4, 4}}, TemperatureK: 300},
+		"powder": {Target: &modegridv1.ComputeScatteringRequest_Powder{Powder: &modegridv1.PowderSpec{QMinInvA: 1, QMaxInvA: 3, QPoints: 6, MaxDirections: 128}},
+			DebyeWaller: &modegridv1.DebyeWaller{Mesh: []uint32{4, 4, 4}}, Energy: axis},
+		"weighted dos": {Target: &modegridv1.ComputeScatteringRequest_WeightedDos{WeightedDos: &modegridv1.WeightedDosSpec{
+			Grid: &modegridv1.MonkhorstPackGrid{Mesh: []uint32{6, 6, 6}}}}, Energy: axis},
+	}
+	for _, c := range crystals {
+		src := inline(c)
+		e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
+		if err != nil {
+			t.Fatalf("%s: %v", c.GetName(), err)
+		}
+		var sc []*modegridv1.Scatterer
+		for _, l := range slices.Compact(slices.Sorted(slices.Values(e.m.Labels()))) {
+			sc = append(sc, &modegridv1.Scatterer{Target: &modegridv1.Scatterer_Label{Label: l}, CoherentFm: proto.Float64(4), IncoherentBarn: proto.Float64(1)})
+		}
+		for name, tmpl := range targets {
+			req := proto.Clone(tmpl).(*modegridv1.ComputeScatteringRequest)
+			req.Model, req.Scatterers = src, sc
+			var vs violations
+			job := svc.scatterJob(e.m, req, &vs)
+			if vs.Len() > 0 {
+				t.Fatalf("%s %s: %v", c.GetName(), name, vs.Err())
+			}
+			canon := scatterParams(req)
+			est := scatterReplyBytes(e.m, job, canon)
+			resp, err := runScatter(testContext(t), e, job)
+			if err != nil {
+				t.Fatalf("%s %s: %v", c.GetName(), name, err)
+			}
+			resp.ModelHash, resp.Parameters = e.hash, canon
+			got := float64(proto.Size(resp))
+			t.Logf("%s %s: %.0f / %.0f = %.3f", c.GetName(), name, est, got, est/got)
+			if est < got || est > 1.25*got+2048 {
+				t.Errorf("%s %s: estimated %.0f bytes, the response is %.0f", c.GetName(), name, est, got)
+			}
+		}
+	}
+}
+
+// TestScatteringReplyCapOverGRPC: a path whose energies make a response
+// past the message cap is refused before any work, on the target, naming
+// the energies (a fuzzed request of 96 387 energies was answered
+// RESOURCE_EXHAUSTED after its computation before).
+func TestScatteringReplyCapOverGRPC(t *testing.T) {
+	ts := startServer(t, Config{MaxMsgBytes: 1 << 20})
+	reg := ts.srv.Registry()
+	work0 := metricSum(t, reg, "modegrid_computations_total")
+	_, err := ts.api.ComputeScattering(testContext(t), &modegridv1.ComputeScatteringRequest{
+		Model: inline(example(t, "fcc")), Scatterers: []*modegridv1.Scatterer{byLabel("M", 5)}, DebyeWaller: &modegridv1.DebyeWaller{Off: true},
+		Target: &modegridv1.ComputeScatteringRequest_Path{Path: &modegridv1.QPath{Points: 20, Corners: []*modegridv1.QPathCorner{{Q: &modegridv1.QVector{}}, {Q: &modegridv1.QVector{Q1: 1}}}}},
+		Energy: &modegridv1.EnergyAxis{Max: 40, Step: 0.005},
+	})
+	if status.Code(err) != codes.InvalidArgument {
+		t.Fatalf("got %v; want INVALID_ARGUMENT", err)
+	}
+	if d := badFields(t, err)["path"]; !strings.Contains(d, "× 8001 energies (energy)") || !strings.Contains(d, "max-msg-bytes=1048576") {
+		t.Errorf("path: %q", d)
+	}
+	// The compile counts as a computation; the scattering itself must not.
+	if w := metricSum(t, reg, "modegrid_computations_total"); w > work0+1 {
+		t.Errorf("computations went from %v to %v: the scattering ran", work0, w)
+	}
+}
