@@ -274,22 +274,10 @@ func TestScatteringBoundIsBelowTheEstimate(t *testing.T) {
 		if !ok {
 			t.Fatalf("%s: not read", c.GetName())
 		}
-		e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
-		if err != nil {
-			t.Fatalf("%s: %v", c.GetName(), err)
-		}
-		var sc []*modegridv1.Scatterer
-		for _, l := range slices.Compact(slices.Sorted(slices.Values(e.m.Labels()))) {
-			sc = append(sc, &modegridv1.Scatterer{Target: &modegridv1.Scatterer_Label{Label: l}, CoherentFm: proto.Float64(4), IncoherentBarn: proto.Float64(1)})
-		}
+		e, sc := scatterEntry(t, src)
 		for name, mk := range targets {
 			req := mk()
-			req.Model, req.Scatterers = src, sc
-			var vs violations
-			job := svc.scatterJob(e.m, req, &vs)
-			if vs.Len() > 0 {
-				t.Fatalf("%s %s: %v", c.GetName(), name, vs.Err())
-			}
+			job := scatterJobOf(t, svc, e, src, sc, req, name)
 			hi, err := svc.scatterEstimate(context.Background(), e, job, req)
 			if err != nil {
 				t.Fatal(err)
@@ -303,6 +291,33 @@ func TestScatteringBoundIsBelowTheEstimate(t *testing.T) {
 			}
 		}
 	}
+}
+
+// scatterEntry compiles the model of src and gives every label of it a
+// scatterer (b = 4 fm, σ_inc = 1 barn; invented).
+func scatterEntry(t *testing.T, src *modegridv1.ModelSource) (*modelEntry, []*modegridv1.Scatterer) {
+	t.Helper()
+	e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
+	if err != nil {
+		t.Fatalf("%s: %v", src.GetCrystal().GetName(), err)
+	}
+	var sc []*modegridv1.Scatterer
+	for _, l := range slices.Compact(slices.Sorted(slices.Values(e.m.Labels()))) {
+		sc = append(sc, &modegridv1.Scatterer{Target: &modegridv1.Scatterer_Label{Label: l}, CoherentFm: proto.Float64(4), IncoherentBarn: proto.Float64(1)})
+	}
+	return e, sc
+}
+
+// scatterJobOf sets req's model and scatterers and converts it on e.
+func scatterJobOf(t *testing.T, svc *Service, e *modelEntry, src *modegridv1.ModelSource, sc []*modegridv1.Scatterer, req *modegridv1.ComputeScatteringRequest, name string) *scatterJob {
+	t.Helper()
+	req.Model, req.Scatterers = src, sc
+	var vs violations
+	job := svc.scatterJob(e.m, req, &vs)
+	if vs.Len() > 0 {
+		t.Fatalf("%s %s: %v", src.GetCrystal().GetName(), name, vs.Err())
+	}
+	return job
 }
 
 // TestScatterReplyBytes: the reply size checked against the message cap
@@ -329,22 +344,10 @@ func TestScatterReplyBytes(t *testing.T) {
 	}
 	for _, c := range crystals {
 		src := inline(c)
-		e, err := compileEntry(context.Background(), src, nil, physics.Limits{}, 0)
-		if err != nil {
-			t.Fatalf("%s: %v", c.GetName(), err)
-		}
-		var sc []*modegridv1.Scatterer
-		for _, l := range slices.Compact(slices.Sorted(slices.Values(e.m.Labels()))) {
-			sc = append(sc, &modegridv1.Scatterer{Target: &modegridv1.Scatterer_Label{Label: l}, CoherentFm: proto.Float64(4), IncoherentBarn: proto.Float64(1)})
-		}
+		e, sc := scatterEntry(t, src)
 		for name, tmpl := range targets {
 			req := proto.Clone(tmpl).(*modegridv1.ComputeScatteringRequest)
-			req.Model, req.Scatterers = src, sc
-			var vs violations
-			job := svc.scatterJob(e.m, req, &vs)
-			if vs.Len() > 0 {
-				t.Fatalf("%s %s: %v", c.GetName(), name, vs.Err())
-			}
+			job := scatterJobOf(t, svc, e, src, sc, req, name)
 			canon := scatterParams(req)
 			est := scatterReplyBytes(e.m, job, canon)
 			resp, err := runScatter(testContext(t), e, job)
