@@ -149,25 +149,25 @@ func (s *Series) checkRange(vs *physics.Violations, b int, named bool) {
 	}
 	const advice = "some modes are all but unscattered with these rates (τ = 1/Σ rates overflows); give a sample size (samples), larger point-defect variances, Umklapp or a power law, or a higher temperature"
 	for t, p := range s.Points {
-		ok := finite(p.MeanWmK)
-		for _, x := range p.KappaWmK {
-			ok = ok && finite(x)
-		}
-		if !ok {
+		if !allFinite(p.KappaWmK[:], []float64{p.MeanWmK}) {
 			vs.Add(fmt.Sprintf("temperatures_k[%d]", t), "κ at %g K%s is beyond the range of a float64: %s", p.TempK, where, advice)
 		}
 	}
-	if c := s.Cumulative; c != nil {
-		ok := true
-		for _, xs := range [][]float64{c.MFPM, c.KappaByMFP, c.FreqTHz, c.KappaByFreq} {
-			for _, x := range xs {
-				ok = ok && finite(x)
+	if c := s.Cumulative; c != nil && !allFinite(c.MFPM, c.KappaByMFP, c.FreqTHz, c.KappaByFreq) {
+		vs.Add("cumulative_temperature_k", "the cumulative κ at %g K%s is beyond the range of a float64: %s", c.TempK, where, advice)
+	}
+}
+
+// allFinite reports whether every number of the slices is finite.
+func allFinite(xss ...[]float64) bool {
+	for _, xs := range xss {
+		for _, x := range xs {
+			if !finite(x) {
+				return false
 			}
 		}
-		if !ok {
-			vs.Add("cumulative_temperature_k", "the cumulative κ at %g K%s is beyond the range of a float64: %s", c.TempK, where, advice)
-		}
 	}
+	return true
 }
 
 func cmp(x, def int) int {
